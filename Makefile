@@ -1,0 +1,38 @@
+# trueturn — top-level targets. `make demo` and `make test` are the two set-up commands.
+PYTHON ?= python3
+VENV   ?= .venv
+PY     := $(VENV)/bin/python
+STAMP  := $(VENV)/.installed
+
+.PHONY: demo test test-python lint bench firmware clean
+
+$(STAMP): pyproject.toml
+	test -x $(PY) || $(PYTHON) -m venv $(VENV)
+	$(PY) -m pip install -q --upgrade pip
+	$(PY) -m pip install -q -e '.[test]'
+	touch $(STAMP)
+
+demo: $(STAMP)
+	$(VENV)/bin/trueturn demo
+
+test: $(STAMP)
+	$(MAKE) -C firmware test
+	$(MAKE) -C firmware
+	$(PY) -m ruff check host tests bench
+	$(PY) -m pytest -q
+
+test-python: $(STAMP)
+	$(PY) -m pytest -q
+
+lint: $(STAMP)
+	$(PY) -m ruff check host tests bench
+
+bench: $(STAMP)
+	$(PY) bench/run_all.py
+
+firmware:
+	$(MAKE) -C firmware
+
+clean:
+	$(MAKE) -C firmware clean
+	rm -rf $(VENV) build *.egg-info host/*.egg-info

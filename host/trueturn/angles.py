@@ -1,0 +1,62 @@
+"""The one angle convention of trueturn (README, "Angles").
+
+* Positions on the rotor and weight angles are counted in degrees, 0-360, from the
+  reference mark AGAINST the direction of rotation, i.e. in the order the points pass a
+  fixed pickup after the mark passes it.
+* Phase is the lag, in degrees 0-360, of the 1x positive peak after the tach event.
+* Inside the math a 1x reading is the complex phasor ``A * exp(1j * radians(phase))`` and a
+  mass is ``m * exp(1j * radians(angle))``; with both counted the same way, a heavy spot at
+  angle theta produces a phasor whose phase is theta plus a constant system lag.
+
+Users whose rotor is numbered the other way (with rotation) choose that at the edge with
+:func:`from_user_angle_deg` / :func:`to_user_angle_deg`; never inside the math.
+"""
+
+from __future__ import annotations
+
+import math
+from typing import Literal
+
+import numpy as np
+
+Numbering = Literal["against", "with"]
+
+
+def wrap_deg(angle_deg: float) -> float:
+    """Angle folded into [0, 360)."""
+    wrapped = math.fmod(angle_deg, 360.0)
+    if wrapped < 0:
+        wrapped += 360.0
+    return 0.0 if wrapped >= 360.0 else wrapped
+
+
+def phasor(amplitude: float, phase_deg: float) -> complex:
+    """``amplitude * exp(i * phase)`` with the phase in degrees."""
+    return complex(amplitude * math.cos(math.radians(phase_deg)),
+                   amplitude * math.sin(math.radians(phase_deg)))
+
+
+def amplitude_phase(value: complex) -> tuple[float, float]:
+    """(amplitude, phase_deg in [0, 360)) of a phasor."""
+    return abs(value), wrap_deg(math.degrees(math.atan2(value.imag, value.real)))
+
+
+def phasors(amplitudes: np.ndarray, phases_deg: np.ndarray) -> np.ndarray:
+    """Vectorised :func:`phasor`."""
+    return np.asarray(amplitudes) * np.exp(1j * np.radians(phases_deg))
+
+
+def angle_difference_deg(a_deg: float, b_deg: float) -> float:
+    """Signed smallest difference ``a - b`` in (-180, 180]."""
+    diff = wrap_deg(a_deg - b_deg)
+    return diff - 360.0 if diff > 180.0 else diff
+
+
+def from_user_angle_deg(user_angle_deg: float, numbering: Numbering = "against") -> float:
+    """Convert an angle as the person reads it on their rotor to the internal convention."""
+    return wrap_deg(user_angle_deg if numbering == "against" else -user_angle_deg)
+
+
+def to_user_angle_deg(angle_deg: float, numbering: Numbering = "against") -> float:
+    """Convert an internal angle to the numbering the person uses on their rotor."""
+    return from_user_angle_deg(angle_deg, numbering)

@@ -1,0 +1,1 @@
+"""Command line (argparse). Formats and calls the layers below; holds no math."""

@@ -1,0 +1,1 @@
+"""I/O with the board: protocol codec, capture files, serial ports and URL handlers."""

@@ -1,0 +1,52 @@
+"""Consistent Overhead Byte Stuffing (Cheshire & Baker, IEEE/ACM Trans. Netw. 7(2), 1999).
+
+Frames on the wire are ``cobs_encode(frame) + b"\\x00"``; the encoded body never contains 0x00.
+"""
+
+from __future__ import annotations
+
+
+class CobsError(ValueError):
+    """The bytes between two delimiters are not a valid COBS encoding."""
+
+
+def cobs_encode(data: bytes) -> bytes:
+    """Encode ``data`` so that the result contains no zero byte (delimiter not added)."""
+    out = bytearray()
+    block = bytearray()
+    for byte in data:
+        if byte == 0:
+            out.append(len(block) + 1)
+            out += block
+            block.clear()
+        else:
+            block.append(byte)
+            if len(block) == 254:
+                out.append(255)
+                out += block
+                block.clear()
+    out.append(len(block) + 1)
+    out += block
+    return bytes(out)
+
+
+def cobs_decode(encoded: bytes) -> bytes:
+    """Invert :func:`cobs_encode`; raise :class:`CobsError` on a malformed body."""
+    out = bytearray()
+    pos = 0
+    length = len(encoded)
+    while pos < length:
+        code = encoded[pos]
+        if code == 0:
+            raise CobsError("zero byte inside a COBS body")
+        end = pos + code
+        if end > length:
+            raise CobsError("COBS block runs past the end of the frame")
+        block = encoded[pos + 1 : end]
+        if 0 in block:
+            raise CobsError("zero byte inside a COBS body")
+        out += block
+        pos = end
+        if code != 255 and pos < length:
+            out.append(0)
+    return bytes(out)

@@ -1,0 +1,298 @@
+"""Protocol v1 codec: frames <-> messages, and a stream decoder that counts every loss.
+
+Frame layout before COBS (protocol/SPEC.md): ``type u8 | seq u8 | payload | CRC-16 (big-endian)``.
+On the wire: ``COBS(frame) | 0x00``. All payload fields are little-endian.
+"""
+
+from __future__ import annotations
+
+import struct
+from dataclasses import dataclass, field
+from typing import Any
+
+from trueturn.link.catalogue import FIELD_FORMATS, Catalogue, MessageDef, load_catalogue
+from trueturn.link.cobs import CobsError, cobs_decode, cobs_encode
+from trueturn.link.crc import crc16_ibm3740
+
+# Error kinds a frame can be rejected with; the golden invalid vectors name these.
+FRAME_ERRORS = ("cobs", "too_short", "too_long", "crc", "unknown_type", "bad_length")
+
+
+class FrameError(ValueError):
+    """A frame was rejected; ``kind`` is one of :data:`FRAME_ERRORS`."""
+
+    def __init__(self, kind: str, detail: str) -> None:
+        super().__init__(f"{kind}: {detail}")
+        self.kind = kind
+        self.detail = detail
+
+
+@dataclass(frozen=True)
+class Message:
+    """One decoded message: its catalogue name, sequence number and field values."""
+
+    name: str
+    seq: int
+    values: dict[str, Any]
+
+    def __getitem__(self, key: str) -> Any:
+        return self.values[key]
+
+    def to_json(self) -> dict[str, Any]:
+        return {"type": self.name, "seq": self.seq, **self.values}
+
+
+def encode_payload(mdef: MessageDef, values: dict[str, Any]) -> bytes:
+    """Pack field values into a payload; raise ValueError naming a missing or bad field."""
+    fixed = mdef.fixed_fields
+    try:
+        out = mdef.fixed_struct.pack(*(int(values[f.name]) for f in fixed))
+    except KeyError as exc:
+        raise ValueError(f"{mdef.name}: missing field {exc.args[0]!r}") from None
+    except struct.error as exc:
+        raise ValueError(f"{mdef.name}: field out of range ({exc})") from None
+    rest = mdef.rest_field
+    if rest is not None:
+        items = [int(v) for v in values.get(rest.name, [])]
+        try:
+            out += struct.pack(f"<{len(items)}{FIELD_FORMATS[rest.type]}", *items)
+        except struct.error as exc:
+            raise ValueError(f"{mdef.name}: {rest.name} out of range ({exc})") from None
+    return out
+
+
+def encode_frame(name: str, seq: int, values: dict[str, Any] | None = None,
+                 catalogue: Catalogue | None = None) -> bytes:
+    """Return the wire bytes (COBS body plus the 0x00 delimiter) of one message."""
+    cat = catalogue or load_catalogue()
+    mdef = cat.by_name(name)
+    payload = encode_payload(mdef, values or {})
+    frame = bytes((mdef.type_id, seq & 0xFF)) + payload
+    if len(frame) + cat.crc_bytes > cat.max_frame_bytes:
+        raise ValueError(f"{name}: frame of {len(frame) + cat.crc_bytes} bytes exceeds "
+                         f"{cat.max_frame_bytes}")
+    frame += crc16_ibm3740(frame).to_bytes(2, "big")
+    return cobs_encode(frame) + b"\x00"
+
+
+def decode_frame(body: bytes, catalogue: Catalogue | None = None) -> Message:
+    """Decode one COBS body (delimiter removed) or raise :class:`FrameError`."""
+    cat = catalogue or load_catalogue()
+    max_encoded = cat.max_frame_bytes + 1 + cat.max_frame_bytes // 254
+    if len(body) > max_encoded:
+        raise FrameError("too_long", f"{len(body)} encoded bytes, at most {max_encoded}")
+    try:
+        frame = cobs_decode(body)
+    except CobsError as exc:
+        raise FrameError("cobs", str(exc)) from None
+    if len(frame) < cat.overhead_bytes:
+        raise FrameError("too_short", f"{len(frame)} bytes, at least {cat.overhead_bytes}")
+    if len(frame) > cat.max_frame_bytes:
+        raise FrameError("too_long", f"{len(frame)} bytes, at most {cat.max_frame_bytes}")
+    got_crc = int.from_bytes(frame[-2:], "big")
+    want_crc = crc16_ibm3740(frame[:-2])
+    if got_crc != want_crc:
+        raise FrameError("crc", f"CRC {got_crc:#06x}, computed {want_crc:#06x}")
+    type_id, seq = frame[0], frame[1]
+    mdef = cat.by_id(type_id)
+    if mdef is None:
+        raise FrameError("unknown_type", f"message type {type_id:#04x}")
+    return Message(mdef.name, seq, decode_payload(mdef, frame[2:-2]))
+
+
+def decode_payload(mdef: MessageDef, payload: bytes) -> dict[str, Any]:
+    """Unpack a payload by its definition or raise ``FrameError('bad_length')``."""
+    fixed = mdef.fixed_struct
+    rest = mdef.rest_field
+    if rest is None:
+        if len(payload) != fixed.size:
+            raise FrameError("bad_length", f"{mdef.name} payload {len(payload)} bytes, "
+                                           f"must be {fixed.size}")
+    else:
+        extra = len(payload) - fixed.size
+        if extra < 0 or extra % rest.size_bytes:
+            raise FrameError("bad_length", f"{mdef.name} payload {len(payload)} bytes, must be "
+                                           f"{fixed.size} + a multiple of {rest.size_bytes}")
+    values: dict[str, Any] = dict(zip((f.name for f in mdef.fixed_fields),
+                                      fixed.unpack_from(payload), strict=True))
+    if rest is not None:
+        n = (len(payload) - fixed.size) // rest.size_bytes
+        values[rest.name] = list(struct.unpack_from(
+            f"<{n}{FIELD_FORMATS[rest.type]}", payload, fixed.size))
+    if mdef.name == "samples":
+        check_sample_block(values)
+    return values
+
+
+def check_sample_block(values: dict[str, Any]) -> None:
+    """The sample-block rules of SPEC.md: 1..4 channels, whole sets, aligned start."""
+    channels = values["channels"]
+    count = len(values["samples"])
+    if not 1 <= channels <= 4 or count == 0 or count % channels or values["first_index"] % channels:
+        raise FrameError("bad_length", f"samples block of {count} samples on {channels} channels "
+                                       f"starting at {values['first_index']}")
+
+
+@dataclass
+class LinkCounters:
+    """Everything the stream decoder has seen and lost, for the status line and reports."""
+
+    bytes_in: int = 0
+    frames_ok: int = 0
+    frames_bad: int = 0
+    errors: dict[str, int] = field(default_factory=lambda: {k: 0 for k in FRAME_ERRORS})
+    seq_gaps: int = 0
+    frames_lost: int = 0
+    sample_gaps: int = 0
+    samples_lost: int = 0
+    tach_edges_lost: int = 0
+    board_resets: int = 0
+    duplicates: int = 0
+
+    def to_json(self) -> dict[str, Any]:
+        return {
+            "bytes": self.bytes_in, "frames_ok": self.frames_ok, "frames_bad": self.frames_bad,
+            **{f"err_{k}": v for k, v in self.errors.items()},
+            "seq_gaps": self.seq_gaps, "frames_lost": self.frames_lost,
+            "sample_gaps": self.sample_gaps, "samples_lost": self.samples_lost,
+            "tach_edges_lost": self.tach_edges_lost, "board_resets": self.board_resets,
+            "duplicates": self.duplicates,
+        }
+
+
+@dataclass(frozen=True)
+class LinkEvent:
+    """Something the decoder noticed that is not a message: a rejected frame, a gap, a reset."""
+
+    kind: str  # a FRAME_ERRORS kind, or seq_gap, sample_gap, tach_gap, board_reset, duplicate
+    detail: str
+    count: int = 1
+
+
+class StreamDecoder:
+    """Bytes in, messages and link events out; never raises on bad input.
+
+    Resynchronises at every 0x00. Loss accounting per SPEC.md "Loss detection": sequence
+    gaps (frames lost), sample-index gaps (samples lost), tach edge-count gaps, and board
+    resets (uptime going backwards, or an unsolicited identity while streaming).
+    """
+
+    def __init__(self, catalogue: Catalogue | None = None) -> None:
+        self.catalogue = catalogue or load_catalogue()
+        self.counters = LinkCounters()
+        self._buffer = bytearray()
+        self._discarding = False
+        self._max_body = self.catalogue.max_frame_bytes + 2
+        self._last_seq: int | None = None
+        self._next_sample_index: int | None = None
+        self._last_edge_count: int | None = None
+        self._last_uptime_ms: int | None = None
+        self._identity_requested = False
+        self._last_body = b""
+
+    def expect_identity(self) -> None:
+        """Tell the decoder the host sent ``identify``, so the next identity is no reset."""
+        self._identity_requested = True
+
+    @property
+    def pending_bytes(self) -> int:
+        """Bytes received after the last delimiter (an unfinished frame)."""
+        return len(self._buffer)
+
+    def feed(self, data: bytes) -> list[Message | LinkEvent]:
+        """Consume bytes; return the messages and events completed by them, in order."""
+        self.counters.bytes_in += len(data)
+        out: list[Message | LinkEvent] = []
+        start = 0
+        while True:
+            end = data.find(b"\x00", start)
+            if end < 0:
+                self._take(data[start:], out)
+                return out
+            self._take(data[start:end], out)
+            if self._discarding:
+                self._discarding = False
+            elif self._buffer:
+                self._frame(bytes(self._buffer), out)
+            self._buffer.clear()
+            start = end + 1
+
+    def _take(self, chunk: bytes, out: list[Message | LinkEvent]) -> None:
+        if self._discarding or not chunk:
+            return
+        self._buffer += chunk
+        if len(self._buffer) > self._max_body:
+            self._reject("too_long", f"no delimiter within {self._max_body} bytes", out)
+            self._buffer.clear()
+            self._discarding = True
+
+    def _reject(self, kind: str, detail: str, out: list[Message | LinkEvent]) -> None:
+        self.counters.frames_bad += 1
+        self.counters.errors[kind] += 1
+        out.append(LinkEvent(kind, detail))
+
+    def _frame(self, body: bytes, out: list[Message | LinkEvent]) -> None:
+        try:
+            msg = decode_frame(body, self.catalogue)
+        except FrameError as exc:
+            self._reject(exc.kind, exc.detail, out)
+            return
+        if msg.seq == self._last_seq and body == self._last_body:
+            self.counters.duplicates += 1
+            out.append(LinkEvent("duplicate", f"frame seq {msg.seq} received twice, dropped"))
+            return
+        self._last_body = body
+        self.counters.frames_ok += 1
+        self._track(msg, out)
+        out.append(msg)
+
+    def _track(self, msg: Message, out: list[Message | LinkEvent]) -> None:
+        c = self.counters
+        if msg.name == "identity":
+            if self._last_seq is not None and not self._identity_requested:
+                self._reset("identity sent without being asked", out)
+            self._identity_requested = False
+        elif msg.name == "status":
+            if self._last_uptime_ms is not None and msg["uptime_ms"] < self._last_uptime_ms:
+                self._reset(f"uptime went back from {self._last_uptime_ms} to "
+                            f"{msg['uptime_ms']} ms", out)
+            self._last_uptime_ms = msg["uptime_ms"]
+        if self._last_seq is not None:
+            missing = (msg.seq - self._last_seq - 1) & 0xFF
+            if missing:
+                c.seq_gaps += 1
+                c.frames_lost += missing
+                out.append(LinkEvent("seq_gap", f"{missing} frame(s) missing before seq "
+                                                f"{msg.seq}", missing))
+        self._last_seq = msg.seq
+        if msg.name == "stream_config":
+            self._next_sample_index = None
+        elif msg.name == "samples":
+            first = msg["first_index"]
+            if self._next_sample_index is not None and first != self._next_sample_index:
+                lost = (first - self._next_sample_index) & 0xFFFFFFFF
+                c.sample_gaps += 1
+                if lost < 0x80000000:
+                    c.samples_lost += lost
+                    out.append(LinkEvent("sample_gap", f"{lost} sample(s) missing before "
+                                                       f"index {first}", lost))
+                else:
+                    out.append(LinkEvent("sample_gap", f"sample index went back to {first}; "
+                                                       "stream restarted", 0))
+            self._next_sample_index = (first + len(msg["samples"])) & 0xFFFFFFFF
+        elif msg.name == "tach":
+            count = msg["edge_count"]
+            if self._last_edge_count is not None:
+                lost = (count - self._last_edge_count - 1) & 0xFFFF
+                if lost:
+                    c.tach_edges_lost += lost
+                    out.append(LinkEvent("tach_gap", f"{lost} tach edge(s) missing", lost))
+            self._last_edge_count = count
+
+    def _reset(self, why: str, out: list[Message | LinkEvent]) -> None:
+        self.counters.board_resets += 1
+        self._last_seq = None
+        self._next_sample_index = None
+        self._last_edge_count = None
+        self._last_uptime_ms = None
+        out.append(LinkEvent("board_reset", f"board reset detected: {why}"))

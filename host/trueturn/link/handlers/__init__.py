@@ -1,0 +1,1 @@
+"""pyserial URL handlers: pyserial imports ``protocol_<scheme>`` from this package."""

@@ -1,0 +1,215 @@
+"""Rigid rotor on two flexible bearings: exact steady-state 1x response to unbalance.
+
+Model (the classic rigid-rotor / soft-bearing model of balancing texts; from memory:
+Den Hartog, *Mechanical Vibrations*, rotating unbalance; Vance, *Rotordynamics of
+Turbomachinery*, rigid rotor on flexible supports):
+
+* four degrees of freedom: translation of the centre of mass (x horizontal, y vertical) and
+  the two small tilts ``a = dx/dz``, ``b = dy/dz``; a section at axial distance ``d`` from the
+  centre of mass moves by ``x + a*d``, ``y + b*d``;
+* bearings are springs and dashpots, stiffness and damping may differ horizontally and
+  vertically (an anisotropic support gives elliptical orbits);
+* gyroscopic coupling of the tilts by the polar moment of inertia (``Ip*Omega``);
+* unbalance masses ``m`` at radius ``r`` in a plane at axial position ``z`` give a rotating
+  force ``m*r*omega^2`` and a moment about the centre of mass.
+
+The equations are solved exactly in the frequency domain (one complex 4x4 linear solve per
+speed). Angles follow :mod:`trueturn.angles`: a mass angle is counted from the reference mark
+against rotation, a phase is the lag of the 1x positive peak after the tach event. The
+rotor turns in the positive sense of the fixed frame; a pickup direction and the tach
+direction are fixed angles around the shaft, 0 = horizontal, counted with rotation.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+
+import numpy as np
+
+STANDARD_GRAVITY_M_S2 = 9.80665  # CGPM 1901 standard acceleration of gravity
+
+
+@dataclass(frozen=True)
+class Mass:
+    """A point mass on the rotor: plane name, grams, and angle in the project convention."""
+
+    plane: str
+    mass_g: float
+    angle_deg: float
+
+
+@dataclass(frozen=True)
+class Bearing:
+    """One support: axial position and its horizontal/vertical stiffness and damping."""
+
+    axial_mm: float
+    stiffness_h_n_per_m: float
+    stiffness_v_n_per_m: float
+    damping_h_ns_per_m: float
+    damping_v_ns_per_m: float
+
+
+@dataclass(frozen=True)
+class CorrectionPlane:
+    """A plane where weights can go: name, axial position, radius of the weight positions."""
+
+    name: str
+    axial_mm: float
+    radius_mm: float
+
+
+@dataclass(frozen=True)
+class Pickup:
+    """An accelerometer on bearing ``bearing`` sensing along ``direction_deg`` (0 = horizontal)."""
+
+    name: str
+    bearing: int
+    direction_deg: float
+
+
+def rpm_to_rad_s(speed_rpm: float) -> float:
+    """Shaft speed in rad/s."""
+    return speed_rpm * 2.0 * math.pi / 60.0
+
+
+def unbalance_force_n(mass_g: float, radius_mm: float, speed_rpm: float) -> float:
+    """Centrifugal force amplitude ``m*r*omega^2`` of a point mass, in newtons."""
+    return mass_g * 1e-3 * radius_mm * 1e-3 * rpm_to_rad_s(speed_rpm) ** 2
+
+
+@dataclass
+class RigidRotor:
+    """A rigid rotor on two (or more) bearings with correction planes and pickups.
+
+    ``nonlinearity`` (dimensionless, 0 = linear) adds a mild amplitude-dependent gain and
+    phase at each pickup: ``a -> a * (1 + nonlinearity * |a|/g * exp(i*30 deg))``, a stand-in
+    for a mount that stiffens or loosens with amplitude, so influence coefficients measured
+    with different trial weights differ slightly, as they do on real machines.
+    """
+
+    mass_kg: float
+    transverse_inertia_kg_m2: float
+    polar_inertia_kg_m2: float
+    centre_of_mass_axial_mm: float
+    bearings: list[Bearing]
+    planes: list[CorrectionPlane]
+    pickups: list[Pickup]
+    nonlinearity: float = 0.0
+    tach_direction_deg: float = 0.0
+    _plane_index: dict[str, int] = field(init=False, repr=False, compare=False)
+
+    def __post_init__(self) -> None:
+        if self.mass_kg <= 0 or self.transverse_inertia_kg_m2 <= 0:
+            raise ValueError("rotor mass and transverse inertia must be positive")
+        if len(self.bearings) < 1:
+            raise ValueError("a rotor needs at least one bearing")
+        if len({p.name for p in self.planes}) != len(self.planes):
+            raise ValueError("correction plane names must be unique")
+        for p in self.pickups:
+            if not 0 <= p.bearing < len(self.bearings):
+                raise ValueError(f"pickup {p.name!r} names bearing {p.bearing}, "
+                                 f"the rotor has {len(self.bearings)}")
+        self._plane_index = {p.name: i for i, p in enumerate(self.planes)}
+
+    # --- the linear model -------------------------------------------------------------------
+
+    def _matrices(self, omega: float) -> tuple[np.ndarray, np.ndarray]:
+        """Dynamic stiffness ``K + i*omega*(C + G) - omega^2*M`` for DOFs [x, a, y, b]."""
+        zc = self.centre_of_mass_axial_mm * 1e-3
+        mass = np.diag([self.mass_kg, self.transverse_inertia_kg_m2,
+                        self.mass_kg, self.transverse_inertia_kg_m2])
+        stiff = np.zeros((4, 4))
+        damp = np.zeros((4, 4))
+        for b in self.bearings:
+            d = b.axial_mm * 1e-3 - zc
+            shape = np.array([[1.0, d], [d, d * d]])
+            stiff[0:2, 0:2] += b.stiffness_h_n_per_m * shape
+            stiff[2:4, 2:4] += b.stiffness_v_n_per_m * shape
+            damp[0:2, 0:2] += b.damping_h_ns_per_m * shape
+            damp[2:4, 2:4] += b.damping_v_ns_per_m * shape
+        gyro = np.zeros((4, 4))
+        # It*a'' + Ip*Omega*b' ; It*b'' - Ip*Omega*a'' (forward whirl is stiffened); Omega = omega
+        gyro[1, 3] = self.polar_inertia_kg_m2 * omega
+        gyro[3, 1] = -self.polar_inertia_kg_m2 * omega
+        dyn = stiff + 1j * omega * (damp + gyro) - omega**2 * mass
+        # Output map: pickup displacement = row . [x, a, y, b]
+        out = np.zeros((len(self.pickups), 4))
+        for i, p in enumerate(self.pickups):
+            d = self.bearings[p.bearing].axial_mm * 1e-3 - zc
+            c, s = math.cos(math.radians(p.direction_deg)), math.sin(math.radians(p.direction_deg))
+            out[i] = [c, c * d, s, s * d]
+        return dyn, out
+
+    def _plane_forcing(self, omega: float) -> np.ndarray:
+        """Generalised force per plane (4 x planes) for 1 g at the plane radius at angle 0.
+
+        A body point at angle ``alpha`` (against rotation) sits at fixed angle
+        ``omega*t + tach_dir - alpha`` when the tach event is at t = 0; its force is
+        ``m r omega^2 (cos, sin)`` of that angle, i.e. ``Re(F e^{i omega t})`` with
+        ``F_x = m r omega^2 e^{i(tach_dir - alpha)}`` and ``F_y = -i F_x``.
+        """
+        zc = self.centre_of_mass_axial_mm * 1e-3
+        tach = math.radians(self.tach_direction_deg)
+        forcing = np.zeros((4, len(self.planes)), dtype=complex)
+        for j, plane in enumerate(self.planes):
+            fx = 1e-3 * plane.radius_mm * 1e-3 * omega**2 * complex(math.cos(tach), math.sin(tach))
+            d = plane.axial_mm * 1e-3 - zc
+            forcing[:, j] = [fx, fx * d, -1j * fx, -1j * fx * d]
+        return forcing
+
+    def influence_matrix(self, speed_rpm: float) -> np.ndarray:
+        """Linear influence coefficients, pickups x planes, complex, in (m/s^2) per gram.
+
+        Entry (i, j) is the 1x acceleration phasor (project convention) at pickup i caused
+        by 1 g at the radius of plane j at angle 0. A mass ``m`` at angle ``alpha`` in that
+        plane contributes ``m * exp(i*alpha) * H[i, j]`` (with a phasor counted against
+        rotation, a heavier spot at a larger angle lags more).
+        """
+        omega = rpm_to_rad_s(speed_rpm)
+        if not self.planes or not self.pickups:
+            return np.zeros((len(self.pickups), len(self.planes)), dtype=complex)
+        dyn, out = self._matrices(omega)
+        disp = out @ np.linalg.solve(dyn, self._plane_forcing(omega))
+        accel = -(omega**2) * disp  # e^{i omega t} convention
+        # Project phasor of Re(X e^{i omega t}) = A cos(theta - phi) is conj(X).
+        return np.conj(accel)
+
+    def unbalance_phasors(self, masses: list[Mass]) -> np.ndarray:
+        """Sum of ``mass_g * exp(i*angle)`` per plane (grams at the plane radius)."""
+        u = np.zeros(len(self.planes), dtype=complex)
+        for m in masses:
+            try:
+                j = self._plane_index[m.plane]
+            except KeyError:
+                raise ValueError(f"no correction plane named {m.plane!r}; planes are "
+                                 f"{', '.join(self._plane_index)}") from None
+            u[j] += m.mass_g * np.exp(1j * math.radians(m.angle_deg))
+        return u
+
+    def response_1x(self, speed_rpm: float, masses: list[Mass]) -> dict[str, complex]:
+        """Steady-state 1x acceleration phasor at each pickup, m/s^2, project convention.
+
+        Exact for the linear model (``nonlinearity = 0``); with nonlinearity the linear
+        response is passed through the amplitude-dependent gain described on the class.
+        """
+        linear = self.influence_matrix(speed_rpm) @ self.unbalance_phasors(masses)
+        if self.nonlinearity:
+            gain = 1.0 + self.nonlinearity * np.abs(linear) / STANDARD_GRAVITY_M_S2 \
+                * np.exp(1j * math.radians(30.0))
+            linear = linear * gain
+        return {p.name: complex(v) for p, v in zip(self.pickups, linear, strict=True)}
+
+    # --- helpers for scenarios and tests ----------------------------------------------------
+
+    def plane(self, name: str) -> CorrectionPlane:
+        """The correction plane called ``name``."""
+        return self.planes[self._plane_index[name]]
+
+    def natural_frequencies_hz(self, speed_rpm: float = 0.0) -> list[float]:
+        """Undamped natural frequencies (Hz) of the rigid-body modes, gyroscopics ignored."""
+        dyn0, _ = self._matrices(0.0)
+        mass = np.diag([self.mass_kg, self.transverse_inertia_kg_m2,
+                        self.mass_kg, self.transverse_inertia_kg_m2])
+        eig = np.linalg.eigvals(np.linalg.solve(mass, dyn0.real))
+        return sorted(float(math.sqrt(max(e.real, 0.0)) / (2 * math.pi)) for e in eig)

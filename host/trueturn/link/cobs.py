@@ -14,7 +14,9 @@ def cobs_encode(data: bytes) -> bytes:
     """Encode ``data`` so that the result contains no zero byte (delimiter not added)."""
     out = bytearray()
     block = bytearray()
+    ended_on_full_block = False
     for byte in data:
+        ended_on_full_block = False
         if byte == 0:
             out.append(len(block) + 1)
             out += block
@@ -25,8 +27,10 @@ def cobs_encode(data: bytes) -> bytes:
                 out.append(255)
                 out += block
                 block.clear()
-    out.append(len(block) + 1)
-    out += block
+                ended_on_full_block = True
+    if not ended_on_full_block:  # a trailing 0xFF block needs no empty block after it
+        out.append(len(block) + 1)
+        out += block
     return bytes(out)
 
 

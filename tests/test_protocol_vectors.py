@@ -98,3 +98,17 @@ def test_dump_reports_every_invalid_vector() -> None:
         assert lines[0]["event"] == vec["error"], vec["name"]
         assert lines[-1]["summary"]["frames_bad"] == 1
         assert lines[-1]["summary"]["crc_errors"] == (1 if vec["error"] == "crc" else 0)
+
+
+def test_spec_message_table_matches_catalogue() -> None:
+    """protocol/SPEC.md's message table (id, name, payload size) stays in step with the catalogue."""
+    import re
+
+    spec = (VECTORS.parent / "SPEC.md").read_text()
+    rows = re.findall(r"^\| (0x[0-9a-f]{2}) \| `(\w+)` \| [^|]+ \| ([0-9+ ·n]+) \|", spec, re.M)
+    table = {name: (int(type_id, 16), size.strip()) for type_id, name, size in rows}
+    cat = load_catalogue()
+    assert set(table) == {m.name for m in cat.messages}
+    for m in cat.messages:
+        size = str(m.fixed_struct.size) + (" + 2·n" if m.rest_field else "")
+        assert table[m.name] == (m.type_id, size), m.name

@@ -1,0 +1,144 @@
+"""Decoder fuzzing at scale (issue: reliability): impaired streams and random frame bodies.
+
+Figures: frames sent, impaired, delivered intact, losses accounted by the decoder vs actual,
+false accepts measured vs the CRC-16 theory, exceptions escaping the decoder (goal 0).
+Frame count: TT_BENCH_FRAMES (default 1 000 000).
+"""
+
+from __future__ import annotations
+
+import os
+import random
+import time
+
+import numpy as np
+
+from common import Row
+from trueturn.link.cobs import cobs_decode, cobs_encode
+from trueturn.link.codec import FrameError, Message, StreamDecoder, decode_frame, encode_frame
+from trueturn.link.crc import crc16_ibm3740
+
+SAMPLES_PER_FRAME = 4
+BIT_ERROR_RATE = 1e-3
+
+
+def _expected_samples(index: int) -> list[int]:
+    return [(index * 7 + k * 131) % 1024 for k in range(SAMPLES_PER_FRAME)]
+
+
+def _frame(i: int) -> bytes:
+    first = i * SAMPLES_PER_FRAME
+    return encode_frame("samples", i & 0xFF, {"first_index": first, "channels": 1,
+                                              "samples": _expected_samples(first)})
+
+
+def impaired_stream(n_frames: int, rng: random.Random) -> tuple[bytes, int, int]:
+    """Frames with drops (1 %), duplicates (0.5 %), truncation (0.5 %), garbage (0.5 %), then
+    bit flips at BIT_ERROR_RATE. Returns (bytes, frames structurally impaired, bits flipped)."""
+    parts: list[bytes] = []
+    impaired = 0
+    for i in range(n_frames):
+        wire = _frame(i)
+        roll = rng.random()
+        if roll < 0.01:
+            impaired += 1
+            continue  # dropped on the way
+        if roll < 0.015:
+            parts.append(wire)  # duplicated
+        elif roll < 0.02:
+            wire = wire[: rng.randrange(1, len(wire) - 1)] + b"\x00"  # truncated
+            impaired += 1
+        elif roll < 0.025:
+            parts.append(bytes(rng.randrange(256) for _ in range(rng.randrange(1, 30))))
+        parts.append(wire)
+    stream = np.frombuffer(b"".join(parts), dtype=np.uint8).copy()
+    gen = np.random.default_rng(rng.randrange(2**32))
+    n_bits = stream.size * 8
+    flips = gen.choice(n_bits, size=gen.binomial(n_bits, BIT_ERROR_RATE), replace=False)
+    np.bitwise_xor.at(stream, flips // 8, (1 << (flips % 8)).astype(np.uint8))
+    return stream.tobytes(), impaired, int(flips.size)
+
+
+def fuzz_stream(n_frames: int) -> dict[str, float]:
+    rng = random.Random(20261201)
+    data, impaired, flipped = impaired_stream(n_frames, rng)
+    decoder = StreamDecoder()
+    delivered = set()
+    false_accepts = 0
+    crashes = 0
+    started = time.perf_counter()
+    for pos in range(0, len(data), 4096):
+        try:
+            items = decoder.feed(data[pos : pos + 4096])
+        except Exception:  # the figure we want to be zero
+            crashes += 1
+            continue
+        for item in items:
+            if not isinstance(item, Message):
+                continue
+            first = item.values.get("first_index", -1)
+            ok = (item.name == "samples" and first % SAMPLES_PER_FRAME == 0
+                  and 0 <= first < n_frames * SAMPLES_PER_FRAME
+                  and item.seq == (first // SAMPLES_PER_FRAME) & 0xFF
+                  and item.values["samples"] == _expected_samples(first))
+            if ok:
+                delivered.add(first // SAMPLES_PER_FRAME)
+            else:
+                false_accepts += 1
+    elapsed = time.perf_counter() - started
+    c = decoder.counters
+    return {"frames": n_frames, "impaired": impaired, "bits_flipped": flipped,
+            "delivered": len(delivered), "missing": n_frames - len(delivered),
+            "accounted": c.frames_lost, "rejected": c.frames_bad, "false_accepts": false_accepts,
+            "crashes": crashes, "frames_per_s": n_frames / elapsed}
+
+
+def random_bodies(n: int) -> tuple[int, int]:
+    """Random frame bodies of valid-looking length: how many does the CRC let through?
+
+    Theory: a 16-bit CRC accepts a random body with probability 2^-16.
+    """
+    rng = np.random.default_rng(7)
+    bodies = rng.integers(0, 256, size=(n, 12), dtype=np.uint8)
+    passed = 0
+    for row in bodies:
+        raw = row.tobytes()
+        if crc16_ibm3740(raw[:-2]) == int.from_bytes(raw[-2:], "big"):
+            passed += 1
+            try:
+                decode_frame(cobs_encode(raw))
+            except FrameError:
+                pass
+            assert cobs_decode(cobs_encode(raw)) == raw
+    return n, passed
+
+
+def rows() -> list[Row]:
+    n = int(os.environ.get("TT_BENCH_FRAMES", "1000000"))
+    r = fuzz_stream(n)
+    n_random, passed = random_bodies(n)
+    theory = n_random / 65536
+    return [
+        Row("link fuzz: frames sent (BER 1e-3, drops, dups, truncation, garbage)",
+            f"{r['frames']:,}", ">= 1,000,000", r["frames"] >= 1_000_000),
+        Row("link fuzz: frames impaired before bit flips / bits flipped",
+            f"{r['impaired']:,} / {r['bits_flipped']:,}", "info"),
+        Row("link fuzz: frames not delivered intact / counted lost by decoder",
+            f"{r['missing']:,} / {r['accounted']:,}", "equal", r["missing"] == r["accounted"]),
+        Row("link fuzz: frames rejected (cobs/crc/length)", f"{r['rejected']:,}", "info"),
+        Row("link fuzz: false accepts in impaired stream", f"{r['false_accepts']}",
+            f"~{r['missing'] / 65536:.1f} or fewer (2^-16 x corrupted)",
+            r["false_accepts"] <= max(3, 3 * r["missing"] / 65536)),
+        Row("link fuzz: exceptions escaping the decoder", f"{r['crashes']}", "0",
+            r["crashes"] == 0),
+        Row("link fuzz: random 12-byte bodies passing CRC-16, measured vs theory",
+            f"{passed} of {n_random:,} (theory {theory:.1f})",
+            "within 3 sigma of n/65536", abs(passed - theory) <= 3 * theory**0.5 + 1),
+        Row("link: decode speed", f"{r['frames_per_s']:,.0f} frames/s", "info"),
+    ]
+
+
+if __name__ == "__main__":
+    from common import format_table
+
+    print(format_table(rows()))

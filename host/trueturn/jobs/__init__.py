@@ -1,0 +1,27 @@
+"""Machine profiles, job records, the workspace store, reports and the printable angle ring."""
+
+from trueturn.jobs.profiles import MachineProfile, Pickup, Plane, PlaneLayout, TachSetup, Units
+from trueturn.jobs.records import (
+    CoefficientSet,
+    Confirmation,
+    Correction,
+    Event,
+    InfluenceEntry,
+    JobRecord,
+    MassChange,
+    PendingStep,
+    PlaneVerdict,
+    Reading,
+    Run,
+    SplitPart,
+    Verdict,
+)
+from trueturn.jobs.schema import SchemaError
+from trueturn.jobs.store import SCHEMA_VERSION, Workspace
+
+__all__ = [
+    "CoefficientSet", "Confirmation", "Correction", "Event", "InfluenceEntry", "JobRecord",
+    "MachineProfile", "MassChange", "PendingStep", "Pickup", "Plane", "PlaneLayout",
+    "PlaneVerdict", "Reading", "Run", "SCHEMA_VERSION", "SchemaError", "SplitPart",
+    "TachSetup", "Units", "Verdict", "Workspace",
+]

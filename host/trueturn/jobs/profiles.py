@@ -1,0 +1,177 @@
+"""Machine profiles: what stays the same every time a machine is balanced.
+
+A profile is written once per machine (``machines/<name>.yaml`` in the workspace) and copied
+into every job so a job file is complete on its own. Angles follow host/trueturn/angles.py:
+positions are counted from the reference mark against the direction of rotation.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Literal
+
+from trueturn.angles import wrap_deg
+from trueturn.jobs.schema import limits
+
+MassUnit = Literal["g", "oz"]
+LengthUnit = Literal["mm", "in"]
+VelocityUnit = Literal["mm/s", "in/s"]
+Rotation = Literal["cw", "ccw"]
+
+#: Exact definitions (international yard and pound agreement, 1959; NIST SP 811, Appendix B).
+MM_PER_IN = 25.4
+G_PER_OZ = 28.349523125
+
+
+@dataclass
+class Units:
+    """How the person wants masses, lengths and vibration shown (storage is always g, mm, mm/s)."""
+
+    mass: MassUnit = "g"
+    length: LengthUnit = "mm"
+    vibration: VelocityUnit = "mm/s"
+
+
+@dataclass
+class PlaneLayout:
+    """Where weights can go in a plane.
+
+    ``equal``: ``positions`` equally spaced holes/slots, the first at ``offset_deg``;
+    ``angles``: an explicit list (bolt holes, blade roots); ``free``: anywhere on the circle.
+    """
+
+    kind: Literal["equal", "angles", "free"] = "free"
+    positions: int | None = field(default=None, metadata=limits(minimum=1, maximum=360))
+    offset_deg: float = 0.0
+    angles_deg: list[float] = field(default_factory=list)
+
+    def _checks(self) -> list[tuple[str, str]]:
+        if self.kind == "equal" and self.positions is None:
+            return [("positions", "layout 'equal' needs the number of positions")]
+        if self.kind == "angles" and not self.angles_deg:
+            return [("angles_deg", "layout 'angles' needs at least one angle")]
+        return []
+
+    def position_angles_deg(self) -> list[float]:
+        """Angles of the numbered positions (position k+1 at index k); empty for ``free``."""
+        if self.kind == "equal" and self.positions:
+            step = 360.0 / self.positions
+            return [wrap_deg(self.offset_deg + k * step) for k in range(self.positions)]
+        if self.kind == "angles":
+            return [wrap_deg(a) for a in self.angles_deg]
+        return []
+
+
+@dataclass
+class Plane:
+    """A correction plane: where on the rotor weights are attached or removed."""
+
+    name: str = field(metadata=limits(nonempty=True))
+    radius_mm: float = field(metadata=limits(above=0))
+    axial_position_mm: float = 0.0
+    layout: PlaneLayout = field(default_factory=PlaneLayout)
+
+
+@dataclass
+class Pickup:
+    """A vibration pickup (accelerometer) and how it is mounted."""
+
+    name: str = field(metadata=limits(nonempty=True))
+    sensitivity_mv_per_g: float = field(metadata=limits(above=0))
+    zero_offset_mv: float = 0.0
+    mounting: str = ""
+    direction: Literal["horizontal", "vertical", "axial", "other"] = "horizontal"
+    near_plane: str | None = None
+
+
+@dataclass
+class TachSetup:
+    """The once-per-rev reference: which edge counts and where the mark is."""
+
+    edge: Literal["rising", "falling"] = "rising"
+    marks_per_rev: int = field(default=1, metadata=limits(minimum=1, maximum=64))
+    mark: str = ""
+
+
+@dataclass
+class MachineProfile:
+    """One machine: rotor, speeds, planes, pickups, tach, mains and target grade.
+
+    ``rotation`` is the direction of rotation as seen from the pickup side.
+    ``target_grade`` is the balance quality grade G of ISO 21940-11 in mm/s (e.g. 6.3).
+    """
+
+    name: str = field(metadata=limits(nonempty=True))
+    rotor_kind: str = field(metadata=limits(nonempty=True))
+    rotor_mass_kg: float = field(metadata=limits(above=0))
+    speed_min_rpm: float = field(metadata=limits(above=0))
+    speed_max_rpm: float = field(metadata=limits(above=0))
+    max_speed_rpm: float = field(metadata=limits(above=0))
+    rotation: Rotation
+    planes: list[Plane] = field(metadata=limits(nonempty=True))
+    pickups: list[Pickup] = field(metadata=limits(nonempty=True))
+    tach: TachSetup = field(default_factory=TachSetup)
+    mains_hz: Literal[50, 60] = 50
+    target_grade: float = field(default=6.3, metadata=limits(above=0))
+    units: Units = field(default_factory=Units)
+    notes: str = ""
+
+    def _checks(self) -> list[tuple[str, str]]:
+        problems: list[tuple[str, str]] = []
+        if self.speed_min_rpm > self.speed_max_rpm:
+            problems.append(("speed_min_rpm", "must not exceed speed_max_rpm"))
+        if self.speed_max_rpm > self.max_speed_rpm:
+            problems.append(("speed_max_rpm", "must not exceed max_speed_rpm"))
+        if len(self.planes) > 2:
+            problems.append(("planes", "at most two correction planes are supported"))
+        for what, names in (("planes", [p.name for p in self.planes]),
+                            ("pickups", [p.name for p in self.pickups])):
+            duplicates = sorted({n for n in names if names.count(n) > 1})
+            if duplicates:
+                problems.append((what, f"name {duplicates[0]!r} is used twice"))
+        plane_names = {p.name for p in self.planes}
+        for i, pickup in enumerate(self.pickups):
+            if pickup.near_plane is not None and pickup.near_plane not in plane_names:
+                problems.append((f"pickups[{i}]", f"near_plane {pickup.near_plane!r} is not a plane"))
+        return problems
+
+    def plane(self, name: str) -> Plane:
+        """The plane called ``name`` (KeyError if there is none)."""
+        for plane in self.planes:
+            if plane.name == name:
+                return plane
+        raise KeyError(name)
+
+
+def format_mass(mass_g: float, unit: MassUnit) -> str:
+    """A mass in the person's unit: ``'3.20 g'`` or ``'0.113 oz'``."""
+    if unit == "oz":
+        return f"{mass_g / G_PER_OZ:.3f} oz"
+    return f"{mass_g:.2f} g"
+
+
+def format_length(length_mm: float, unit: LengthUnit) -> str:
+    """A length in the person's unit: ``'75.0 mm'`` or ``'2.953 in'``."""
+    if unit == "in":
+        return f"{length_mm / MM_PER_IN:.3f} in"
+    return f"{length_mm:.1f} mm"
+
+
+#: Vibration units a stored reading may carry, and their factor to the base of their kind.
+VIBRATION_UNITS: dict[str, tuple[str, float]] = {
+    "mm/s": ("velocity", 1.0),
+    "in/s": ("velocity", MM_PER_IN),
+    "um": ("displacement", 1.0),
+    "mil": ("displacement", MM_PER_IN),  # 1 mil = 0.001 in = 25.4 um
+    "m/s2": ("acceleration", 1.0),
+    "g": ("acceleration", 9.80665),  # standard gravity, CGPM 1901
+}
+
+
+def convert_vibration(amplitude: float, from_unit: str, preferred: VelocityUnit) -> tuple[float, str]:
+    """Convert a velocity reading to the preferred velocity unit; other kinds stay as stored."""
+    kind, factor = VIBRATION_UNITS[from_unit]
+    if kind != "velocity":
+        return amplitude, from_unit
+    _, to_factor = VIBRATION_UNITS[preferred]
+    return amplitude * factor / to_factor, preferred

@@ -1,0 +1,252 @@
+"""Job records: every run of one balancing job, what was done between runs, and the outcome.
+
+A job stores plain numbers. Readings come from the DSP layer, corrections, influence
+coefficients and the ISO 21940-11 verdict from the balancing engine; this module only keeps
+them, checks they are well formed and answers simple questions (which run is next, which
+parts are on the rotor now). Angles follow host/trueturn/angles.py (from the reference mark,
+against rotation, 0-360); masses in g, radii in mm.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+from dataclasses import dataclass, field
+from typing import Literal
+
+from trueturn.jobs.profiles import MachineProfile
+from trueturn.jobs.schema import limits
+
+VibrationUnit = Literal["mm/s", "in/s", "um", "mil", "m/s2", "g"]
+RunKind = Literal["initial", "trial", "correction", "trim", "check"]
+
+
+def now_iso() -> str:
+    """The current UTC time as ISO 8601 text with a ``Z`` (seconds resolution)."""
+    return dt.datetime.now(dt.timezone.utc).replace(microsecond=0).isoformat().replace(
+        "+00:00", "Z")
+
+
+@dataclass
+class Reading:
+    """One pickup's 1x vector in one run (from the DSP layer).
+
+    ``phase_deg`` is the lag of the 1x positive peak after the tach event;
+    ``confidence_deg`` the half-width of its confidence interval.
+    """
+
+    sensor: str = field(metadata=limits(nonempty=True))
+    amplitude: float = field(metadata=limits(minimum=0))
+    unit: VibrationUnit
+    phase_deg: float = field(metadata=limits(minimum=0, below=360))
+    confidence_deg: float = field(metadata=limits(minimum=0, maximum=180))
+    revolutions: int = field(metadata=limits(minimum=0))
+    speed_rpm: float = field(metadata=limits(above=0))
+
+
+@dataclass
+class MassChange:
+    """A part attached to or removed from a plane (trial weight, correction part, drilled spot)."""
+
+    action: Literal["attach", "remove"]
+    plane: str = field(metadata=limits(nonempty=True))
+    mass_g: float = field(metadata=limits(above=0))
+    angle_deg: float = field(metadata=limits(minimum=0, below=360))
+    purpose: Literal["trial", "correction", "trim", "other"] = "correction"
+    position: int | None = field(default=None, metadata=limits(minimum=1))
+    radius_mm: float | None = field(default=None, metadata=limits(above=0))
+    part: str = ""
+    time: str | None = None
+
+
+@dataclass
+class SplitPart:
+    """One share of a correction split onto a fixed position."""
+
+    position: int = field(metadata=limits(minimum=1))
+    angle_deg: float = field(metadata=limits(minimum=0, below=360))
+    mass_g: float = field(metadata=limits(minimum=0))
+
+
+@dataclass
+class Correction:
+    """A correction computed after a run: add (or remove) ``mass_g`` at ``angle_deg``."""
+
+    plane: str = field(metadata=limits(nonempty=True))
+    mass_g: float = field(metadata=limits(minimum=0))
+    angle_deg: float = field(metadata=limits(minimum=0, below=360))
+    action: Literal["add", "remove"] = "add"
+    radius_mm: float | None = field(default=None, metadata=limits(above=0))
+    split: list[SplitPart] = field(default_factory=list)
+
+
+@dataclass
+class Confirmation:
+    """A safety confirmation the operator gave before a hands-on step."""
+
+    time: str = field(metadata=limits(nonempty=True))
+    step: str = field(metadata=limits(nonempty=True))
+    standstill_by_tach: bool
+    tach_rpm: float | None = field(default=None, metadata=limits(minimum=0))
+    text: str = ""
+
+
+@dataclass
+class Event:
+    """Something that happened during a run: overspeed, link lost, unsteady speed, ..."""
+
+    time: str = field(metadata=limits(nonempty=True))
+    kind: str = field(metadata=limits(nonempty=True))
+    detail: str = ""
+
+
+@dataclass
+class Run:
+    """One measurement run, with what was done on the rotor before it and computed after it."""
+
+    index: int = field(metadata=limits(minimum=1))
+    kind: RunKind
+    time: str = field(metadata=limits(nonempty=True))
+    speed_rpm: float = field(metadata=limits(above=0))
+    readings: list[Reading] = field(metadata=limits(nonempty=True))
+    label: str = ""
+    changes: list[MassChange] = field(default_factory=list)
+    confirmations: list[Confirmation] = field(default_factory=list)
+    corrections: list[Correction] = field(default_factory=list)
+    events: list[Event] = field(default_factory=list)
+    notes: str = ""
+
+    def reading(self, sensor: str) -> Reading | None:
+        """This run's reading of ``sensor``, or None."""
+        return next((r for r in self.readings if r.sensor == sensor), None)
+
+
+@dataclass
+class PendingStep:
+    """Hands-on work done since the last completed run, not yet measured (kept across crashes)."""
+
+    changes: list[MassChange] = field(default_factory=list)
+    confirmations: list[Confirmation] = field(default_factory=list)
+    notes: str = ""
+
+
+@dataclass
+class PlaneVerdict:
+    """Residual unbalance against the permissible value in one plane (ISO 21940-11)."""
+
+    plane: str = field(metadata=limits(nonempty=True))
+    residual_gmm: float = field(metadata=limits(minimum=0))
+    permissible_gmm: float = field(metadata=limits(above=0))
+    passed: bool
+
+
+@dataclass
+class Verdict:
+    """The balance quality verdict computed by the engine after a run."""
+
+    grade: float = field(metadata=limits(above=0))
+    speed_rpm: float = field(metadata=limits(above=0))
+    after_run: int = field(metadata=limits(minimum=1))
+    planes: list[PlaneVerdict] = field(metadata=limits(nonempty=True))
+    passed: bool
+    standard: str = "ISO 21940-11:2016"
+    note: str = ""
+
+
+@dataclass
+class InfluenceEntry:
+    """Influence coefficient of ``plane`` on ``sensor``: vibration per gram, as amp/phase."""
+
+    sensor: str = field(metadata=limits(nonempty=True))
+    plane: str = field(metadata=limits(nonempty=True))
+    amp: float = field(metadata=limits(minimum=0))
+    phase_deg: float = field(metadata=limits(minimum=0, below=360))
+
+
+@dataclass
+class CoefficientSet:
+    """Saved influence coefficients of one machine at one speed, for later one-run trims.
+
+    ``amp`` is in ``unit`` per gram placed at the plane's radius (see the machine profile).
+    """
+
+    speed_rpm: float = field(metadata=limits(above=0))
+    unit: VibrationUnit
+    entries: list[InfluenceEntry] = field(metadata=limits(nonempty=True))
+    job_id: str = ""
+    created: str = ""
+
+    def matrix(self, sensors: list[str], planes: list[str]) -> list[list[complex]]:
+        """Coefficients as complex numbers, rows ``sensors``, columns ``planes``."""
+        from trueturn.angles import phasor
+
+        table = {(e.sensor, e.plane): phasor(e.amp, e.phase_deg) for e in self.entries}
+        try:
+            return [[table[(s, p)] for p in planes] for s in sensors]
+        except KeyError as exc:
+            raise KeyError(f"no coefficient for sensor/plane {exc.args[0]}") from None
+
+
+@dataclass
+class JobRecord:
+    """One balancing job on one machine: runs in order, pending hands-on work, outcome."""
+
+    job_id: str = field(metadata=limits(nonempty=True))
+    machine: MachineProfile
+    created: str = field(metadata=limits(nonempty=True))
+    updated: str = ""
+    status: Literal["open", "closed"] = "open"
+    method: Literal["single-plane", "two-plane", "trim"] = "single-plane"
+    speed_rpm: float | None = field(default=None, metadata=limits(above=0))
+    operator: str = ""
+    customer: str = ""
+    runs: list[Run] = field(default_factory=list)
+    pending: PendingStep | None = None
+    influence: CoefficientSet | None = None
+    verdict: Verdict | None = None
+    notes: str = ""
+
+    def _checks(self) -> list[tuple[str, str]]:
+        problems: list[tuple[str, str]] = []
+        sensors = {p.name for p in self.machine.pickups}
+        planes = {p.name for p in self.machine.planes}
+        for i, run in enumerate(self.runs):
+            if run.index != i + 1:
+                problems.append((f"runs[{i}]", f"run index {run.index} out of order, expected {i + 1}"))
+            for reading in run.readings:
+                if reading.sensor not in sensors:
+                    problems.append((f"runs[{i}]", f"sensor {reading.sensor!r} is not a pickup of the machine"))
+            plane_refs = [c.plane for c in run.changes] + [c.plane for c in run.corrections]
+            for name in plane_refs:
+                if name not in planes:
+                    problems.append((f"runs[{i}]", f"plane {name!r} is not a plane of the machine"))
+        if self.verdict is not None and self.verdict.after_run > len(self.runs):
+            problems.append(("verdict", f"refers to run {self.verdict.after_run}, which is not recorded"))
+        return problems
+
+    @property
+    def next_run_index(self) -> int:
+        """Index the next run will get (a resumed job continues here)."""
+        return len(self.runs) + 1
+
+    def parts_on_rotor(self) -> list[MassChange]:
+        """Parts attached and not removed since, over all runs and the pending step.
+
+        A removal cancels the latest attached part with the same plane, angle and mass
+        (to 0.01 g / 0.5 deg); a removal that matches nothing (drilling) is not listed.
+        """
+        attached: list[MassChange] = []
+        steps = [run.changes for run in self.runs]
+        if self.pending is not None:
+            steps.append(self.pending.changes)
+        for changes in steps:
+            for change in changes:
+                if change.action == "attach":
+                    attached.append(change)
+                    continue
+                for j in range(len(attached) - 1, -1, -1):
+                    part = attached[j]
+                    if (part.plane == change.plane and abs(part.mass_g - change.mass_g) < 0.01
+                            and abs((part.angle_deg - change.angle_deg + 180) % 360 - 180) < 0.5):
+                        del attached[j]
+                        break
+        return attached

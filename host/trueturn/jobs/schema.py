@@ -1,0 +1,287 @@
+"""Dataclasses to and from YAML, with one-line errors that name the file, the line and the field.
+
+The job and machine files are written for people as well as for the program, so a mistake in a
+hand-edited file must come back as ``machines/grinder.yaml:12: planes[0].radius_mm: must be
+greater than 0, got -40`` and nothing more.
+
+How it works: YAML is loaded with a loader that remembers the line of every mapping key and
+list item (PyYAML node marks); a dataclass is then filled field by field from its type hints
+(str, int, float, bool, ``Literal[...]``, ``list[...]``, ``X | None``, nested dataclasses), with
+range limits given in each field's ``metadata`` (see :func:`limits`), and an optional
+``_checks()`` method for rules across fields.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import datetime as dt
+import math
+import types
+import typing
+from collections.abc import Callable
+from typing import Any, Literal, Union
+
+import yaml
+
+from trueturn.errors import UserError
+
+__all__ = [
+    "SchemaError",
+    "limits",
+    "load_yaml_text",
+    "from_data",
+    "to_data",
+    "dump_yaml_text",
+    "Migration",
+]
+
+Migration = Callable[[dict[str, Any]], dict[str, Any]]
+
+
+class SchemaError(UserError):
+    """A file that cannot be read as the expected document; the message is one line."""
+
+
+class LineDict(dict):
+    """A YAML mapping that remembers its own line and each key's line (1-based)."""
+
+    line: int = 0
+    key_lines: dict[Any, int]
+
+    def __init__(self, *args: Any, **kwargs: Any) -> None:
+        super().__init__(*args, **kwargs)
+        self.key_lines = {}
+
+
+class LineList(list):
+    """A YAML sequence that remembers its own line and each item's line (1-based)."""
+
+    line: int = 0
+    item_lines: list[int]
+
+    def __init__(self, *args: Any) -> None:
+        super().__init__(*args)
+        self.item_lines = []
+
+
+class _LineLoader(yaml.SafeLoader):
+    """Safe loader building :class:`LineDict` / :class:`LineList` so errors can name a line."""
+
+
+def _construct_mapping(loader: _LineLoader, node: yaml.MappingNode) -> LineDict:
+    loader.flatten_mapping(node)
+    result = LineDict()
+    result.line = node.start_mark.line + 1
+    for key_node, value_node in node.value:
+        key = loader.construct_object(key_node, deep=True)
+        if not isinstance(key, (str, int, float, bool)) and key is not None:
+            raise yaml.constructor.ConstructorError(
+                None, None, "a key must be plain text", key_node.start_mark)
+        if key in result:
+            raise yaml.constructor.ConstructorError(
+                None, None, f"field '{key}' appears twice", key_node.start_mark)
+        result[key] = loader.construct_object(value_node, deep=True)
+        result.key_lines[key] = key_node.start_mark.line + 1
+    return result
+
+
+def _construct_sequence(loader: _LineLoader, node: yaml.SequenceNode) -> LineList:
+    result = LineList()
+    result.line = node.start_mark.line + 1
+    for item_node in node.value:
+        result.append(loader.construct_object(item_node, deep=True))
+        result.item_lines.append(item_node.start_mark.line + 1)
+    return result
+
+
+_LineLoader.add_constructor(yaml.resolver.BaseResolver.DEFAULT_MAPPING_TAG, _construct_mapping)
+_LineLoader.add_constructor(yaml.resolver.BaseResolver.DEFAULT_SEQUENCE_TAG, _construct_sequence)
+
+
+def load_yaml_text(text: str, source: str) -> Any:
+    """Parse YAML text; a syntax error becomes one :class:`SchemaError` line."""
+    try:
+        return yaml.load(text, Loader=_LineLoader)  # noqa: S506 - a SafeLoader subclass
+    except yaml.MarkedYAMLError as exc:
+        mark = exc.problem_mark or exc.context_mark
+        line = mark.line + 1 if mark is not None else 1
+        problem = exc.problem or exc.context or "unreadable"
+        raise SchemaError(f"{source}:{line}: not valid YAML: {problem}") from None
+    except yaml.YAMLError as exc:
+        raise SchemaError(f"{source}:1: not valid YAML: {str(exc).splitlines()[0]}") from None
+
+
+def limits(*, minimum: float | None = None, maximum: float | None = None,
+           above: float | None = None, below: float | None = None,
+           nonempty: bool = False) -> dict[str, Any]:
+    """Field metadata: inclusive ``minimum``/``maximum``, exclusive ``above``/``below``,
+    ``nonempty`` for text and lists."""
+    return {"minimum": minimum, "maximum": maximum, "above": above, "below": below,
+            "nonempty": nonempty}
+
+
+class _Context:
+    """Where a value came from: file name, dotted field path, line."""
+
+    def __init__(self, source: str, path: str, line: int) -> None:
+        self.source, self.path, self.line = source, path, line
+
+    def fail(self, message: str, line: int | None = None, path: str | None = None) -> typing.NoReturn:
+        where = path if path is not None else self.path
+        raise SchemaError(f"{self.source}:{line or self.line}: {where or '(top)'}: {message}")
+
+    def child(self, name: str | int, line: int | None) -> _Context:
+        if isinstance(name, int):
+            path = f"{self.path}[{name}]"
+        else:
+            path = f"{self.path}.{name}" if self.path else name
+        return _Context(self.source, path, line or self.line)
+
+
+def _describe(value: Any) -> str:
+    text = repr(value) if isinstance(value, str) else str(value)
+    return text if len(text) <= 40 else text[:37] + "..."
+
+
+def _check_limits(value: Any, meta: typing.Mapping[str, Any], ctx: _Context) -> None:
+    if meta.get("nonempty") and len(value) == 0:
+        ctx.fail("must not be empty")
+    if isinstance(value, (int, float)) and not isinstance(value, bool):
+        if meta.get("above") is not None and not value > meta["above"]:
+            ctx.fail(f"must be greater than {meta['above']:g}, got {value:g}")
+        if meta.get("below") is not None and not value < meta["below"]:
+            ctx.fail(f"must be less than {meta['below']:g}, got {value:g}")
+        if meta.get("minimum") is not None and value < meta["minimum"]:
+            ctx.fail(f"must be at least {meta['minimum']:g}, got {value:g}")
+        if meta.get("maximum") is not None and value > meta["maximum"]:
+            ctx.fail(f"must be at most {meta['maximum']:g}, got {value:g}")
+
+
+_HINTS: dict[type, dict[str, Any]] = {}
+
+
+def _hints(cls: type) -> dict[str, Any]:
+    if cls not in _HINTS:
+        _HINTS[cls] = typing.get_type_hints(cls)
+    return _HINTS[cls]
+
+
+def _convert(tp: Any, value: Any, ctx: _Context, meta: typing.Mapping[str, Any]) -> Any:
+    origin = typing.get_origin(tp)
+    if origin is Union or origin is types.UnionType:
+        args = [a for a in typing.get_args(tp) if a is not type(None)]
+        if value is None:
+            return None
+        if len(args) != 1:
+            raise TypeError(f"unsupported union {tp}")
+        return _convert(args[0], value, ctx, meta)
+    if value is None:
+        ctx.fail("must have a value")
+    if origin is Literal:
+        choices = typing.get_args(tp)
+        if isinstance(value, bool) or value not in choices:
+            listed = ", ".join(str(c) for c in choices)
+            ctx.fail(f"{_describe(value)} is not one of: {listed}")
+        return value
+    if origin is list:
+        (item_type,) = typing.get_args(tp)
+        if not isinstance(value, list):
+            ctx.fail(f"must be a list, got {_describe(value)}")
+        item_lines = getattr(value, "item_lines", [])
+        items = []
+        for i, item in enumerate(value):
+            line = item_lines[i] if i < len(item_lines) else None
+            items.append(_convert(item_type, item, ctx.child(i, line), {}))
+        _check_limits(items, meta, ctx)
+        return items
+    if dataclasses.is_dataclass(tp):
+        return _from_mapping(tp, value, ctx)
+    if tp is str:
+        if isinstance(value, (dt.datetime, dt.date)):
+            return value.isoformat()
+        if not isinstance(value, str):
+            ctx.fail(f"must be text, got {_describe(value)}")
+        _check_limits(value, meta, ctx)
+        return value
+    if tp is bool:
+        if not isinstance(value, bool):
+            ctx.fail(f"must be true or false, got {_describe(value)}")
+        return value
+    if tp is int:
+        if isinstance(value, bool) or not isinstance(value, int):
+            ctx.fail(f"must be a whole number, got {_describe(value)}")
+        _check_limits(value, meta, ctx)
+        return value
+    if tp is float:
+        if isinstance(value, bool) or not isinstance(value, (int, float)):
+            ctx.fail(f"must be a number, got {_describe(value)}")
+        if not math.isfinite(value):
+            ctx.fail(f"must be a finite number, got {value}")
+        _check_limits(value, meta, ctx)
+        return float(value)
+    if tp is Any:
+        return value
+    raise TypeError(f"unsupported field type {tp}")
+
+
+def _from_mapping(cls: type, value: Any, ctx: _Context) -> Any:
+    if not isinstance(value, dict):
+        ctx.fail(f"must be a mapping of fields, got {_describe(value)}")
+    own_line = getattr(value, "line", 0) or ctx.line
+    key_lines: dict[Any, int] = getattr(value, "key_lines", {})
+    fields = {f.name: f for f in dataclasses.fields(cls) if f.init}
+    for key in value:
+        if key not in fields:
+            known = ", ".join(fields)
+            ctx.child(str(key), key_lines.get(key, own_line)).fail(
+                f"unknown field (known fields: {known})")
+    hints = _hints(cls)
+    kwargs: dict[str, Any] = {}
+    for name, f in fields.items():
+        child = ctx.child(name, key_lines.get(name, own_line))
+        if name not in value:
+            if f.default is dataclasses.MISSING and f.default_factory is dataclasses.MISSING:
+                child.fail("missing field", line=own_line)
+            continue
+        kwargs[name] = _convert(hints[name], value[name], child, f.metadata)
+    obj = cls(**kwargs)
+    checks = getattr(obj, "_checks", None)
+    if checks is not None:
+        for field_name, message in checks():
+            ctx.child(field_name, key_lines.get(field_name.split("[")[0], own_line)).fail(message)
+    return obj
+
+
+def from_data(cls: type, data: Any, source: str, path: str = "") -> Any:
+    """Build dataclass ``cls`` from loaded YAML ``data``; raise :class:`SchemaError` on a mistake."""
+    return _convert(cls, data, _Context(source, path, getattr(data, "line", 1) or 1), {})
+
+
+def to_data(obj: Any) -> Any:
+    """Plain dicts/lists/numbers of a dataclass tree, in field order; ``None`` fields left out."""
+    if dataclasses.is_dataclass(obj) and not isinstance(obj, type):
+        out: dict[str, Any] = {}
+        for f in dataclasses.fields(obj):
+            value = getattr(obj, f.name)
+            if value is None:
+                continue
+            out[f.name] = to_data(value)
+        return out
+    if isinstance(obj, (list, tuple)):
+        return [to_data(v) for v in obj]
+    return obj
+
+
+class _Dumper(yaml.SafeDumper):
+    """Safe dumper that indents list items under their key (easier to read and diff)."""
+
+    def increase_indent(self, flow: bool = False, indentless: bool = False) -> None:
+        super().increase_indent(flow, False)
+
+
+def dump_yaml_text(data: Any, header: str = "") -> str:
+    """YAML text of plain data (keys in insertion order), with an optional comment header."""
+    body = yaml.dump(data, Dumper=_Dumper, sort_keys=False, allow_unicode=True,
+                     default_flow_style=False, width=100)
+    lines = "".join(f"# {line}\n" if line else "#\n" for line in header.splitlines())
+    return lines + body

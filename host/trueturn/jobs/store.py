@@ -1,0 +1,443 @@
+"""The workspace: machine profiles, job records and saved influence coefficients as YAML files.
+
+Layout (``root`` is the workspace folder)::
+
+    machines/<machine-slug>.yaml               machine profile
+    machines/<machine-slug>.coefficients.yaml  saved influence coefficients, one set per speed
+    jobs/<job-id>.yaml                         job record (a copy of the profile inside)
+
+Every file starts with ``schema_version`` and ``kind``. Files written by an older version are
+migrated on load (``MIGRATIONS``); files from a newer version are refused with one line.
+
+Every save is atomic: the text goes to a temporary file in the same folder, is flushed and
+fsynced, then ``os.replace``-d over the target and the folder is fsynced, so a crash, a yanked
+cable or ``kill -9`` leaves either the old file or the new one, never a mix or an empty file.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import re
+import sys
+import tempfile
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any
+
+from trueturn.errors import UserError
+from trueturn.jobs.profiles import MachineProfile
+from trueturn.jobs.records import CoefficientSet, JobRecord, PendingStep, Run, Verdict, now_iso
+from trueturn.jobs.schema import (
+    Migration,
+    SchemaError,
+    dump_yaml_text,
+    from_data,
+    load_yaml_text,
+    to_data,
+)
+
+#: Version of the file format this code writes. Bump it when a stored field changes meaning
+#: or name, and add a function to ``MIGRATIONS`` that lifts the previous version by one.
+SCHEMA_VERSION = 1
+
+#: ``MIGRATIONS[kind][n]`` turns the data of a version-``n`` file into version ``n + 1``.
+MIGRATIONS: dict[str, dict[int, Migration]] = {"machine": {}, "job": {}, "coefficients": {}}
+
+WORKSPACE_ENV = "TRUETURN_WORKSPACE"
+_TEMP_PREFIX = ".tt-"
+_TEMP_SUFFIX = ".tmp"
+
+
+# --------------------------------------------------------------------------------------------
+# Atomic files
+
+
+def fsync_directory(folder: Path) -> None:
+    """Make a rename in ``folder`` durable (POSIX; a no-op where folders cannot be opened)."""
+    if os.name != "posix":
+        return
+    fd = os.open(folder, os.O_RDONLY)
+    try:
+        os.fsync(fd)
+    finally:
+        os.close(fd)
+
+
+def atomic_write_bytes(path: str | os.PathLike[str], data: bytes) -> Path:
+    """Write ``data`` to ``path`` atomically: temp file in the same folder, fsync, rename."""
+    target = Path(path)
+    folder = target.parent if str(target.parent) else Path(".")
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+        fd, temp_name = tempfile.mkstemp(prefix=f"{_TEMP_PREFIX}{target.name}.",
+                                         suffix=_TEMP_SUFFIX, dir=folder)
+    except OSError as exc:
+        raise UserError(f"cannot write {target}: {exc.strerror or exc}") from None
+    try:
+        with os.fdopen(fd, "wb") as handle:
+            handle.write(data)
+            handle.flush()
+            os.fsync(handle.fileno())
+        if target.exists():
+            with contextlib.suppress(OSError):
+                os.chmod(temp_name, target.stat().st_mode & 0o7777)
+        else:
+            with contextlib.suppress(OSError):
+                os.chmod(temp_name, 0o666 & ~_umask())
+        os.replace(temp_name, target)
+        fsync_directory(folder)
+    except OSError as exc:
+        with contextlib.suppress(OSError):
+            os.unlink(temp_name)
+        raise UserError(f"cannot write {target}: {exc.strerror or exc}") from None
+    except BaseException:
+        with contextlib.suppress(OSError):
+            os.unlink(temp_name)
+        raise
+    return target
+
+
+def atomic_write_text(path: str | os.PathLike[str], text: str) -> Path:
+    """:func:`atomic_write_bytes` for UTF-8 text."""
+    return atomic_write_bytes(path, text.encode("utf-8"))
+
+
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
+
+
+def remove_stale_temps(folder: Path, older_than_s: float = 60.0) -> int:
+    """Delete temp files left by a save that was killed; return how many went."""
+    removed = 0
+    now = time.time()
+    for temp in folder.glob(f"{_TEMP_PREFIX}*{_TEMP_SUFFIX}"):
+        with contextlib.suppress(OSError):
+            if now - temp.stat().st_mtime > older_than_s:
+                temp.unlink()
+                removed += 1
+    return removed
+
+
+# --------------------------------------------------------------------------------------------
+# Documents (schema_version + kind + fields)
+
+
+@dataclass
+class CoefficientFile:
+    """All saved coefficient sets of one machine."""
+
+    machine: str = ""
+    sets: list[CoefficientSet] = field(default_factory=list)
+
+_KIND_CLASS: dict[str, type] = {
+    "machine": MachineProfile,
+    "job": JobRecord,
+    "coefficients": CoefficientFile,
+}
+
+_HEADERS = {
+    "machine": "trueturn machine profile. Angles from the reference mark against rotation.",
+    "job": "trueturn job record, saved after every run. Edit with care: the tool checks it.",
+    "coefficients": "trueturn saved influence coefficients (amp per gram, phase_deg).",
+}
+
+
+def document_text(kind: str, obj: Any) -> str:
+    """The YAML text of a document: header comment, ``schema_version``, ``kind``, fields."""
+    data = {"schema_version": SCHEMA_VERSION, "kind": kind, **to_data(obj)}
+    return dump_yaml_text(data, header=_HEADERS[kind])
+
+
+def parse_document(text: str, kind: str, source: str) -> Any:
+    """Read document text of ``kind``; migrate older versions; one-line SchemaError on a mistake."""
+    data = load_yaml_text(text, source)
+    if data is None:
+        raise SchemaError(f"{source}:1: the file is empty")
+    if not isinstance(data, dict):
+        raise SchemaError(f"{source}:1: expected a mapping of fields at the top")
+    lines = getattr(data, "key_lines", {})
+    version = data.get("schema_version")
+    if version is None:
+        raise SchemaError(f"{source}:1: schema_version: missing field")
+    line = lines.get("schema_version", 1)
+    if isinstance(version, bool) or not isinstance(version, int) or version < 1:
+        raise SchemaError(f"{source}:{line}: schema_version: must be a whole number from 1")
+    if version > SCHEMA_VERSION:
+        raise SchemaError(f"{source}:{line}: schema_version: {version} was written by a newer "
+                          f"trueturn (this one reads up to {SCHEMA_VERSION}); please upgrade")
+    found_kind = data.get("kind")
+    if found_kind != kind:
+        raise SchemaError(f"{source}:{lines.get('kind', 1)}: kind: expected {kind!r}, "
+                          f"got {found_kind!r}")
+    body = {k: v for k, v in data.items() if k not in ("schema_version", "kind")}
+    if isinstance(data, dict) and hasattr(data, "key_lines"):
+        body = _keep_lines(data, body)
+    for step in range(version, SCHEMA_VERSION):
+        migrate = MIGRATIONS[kind].get(step)
+        if migrate is None:
+            raise SchemaError(f"{source}:{line}: schema_version: no migration from {step}")
+        body = migrate(body)
+    return from_data(_KIND_CLASS[kind], body, source)
+
+
+def _keep_lines(original: Any, body: dict[str, Any]) -> Any:
+    from trueturn.jobs.schema import LineDict
+
+    result = LineDict(body)
+    result.line = original.line
+    result.key_lines = {k: v for k, v in original.key_lines.items() if k in body}
+    return result
+
+
+def read_document(path: Path, kind: str) -> Any:
+    """Load a document file; a missing or unreadable file is a one-line UserError."""
+    try:
+        text = path.read_text(encoding="utf-8")
+    except FileNotFoundError:
+        raise UserError(f"{path}: no such file") from None
+    except UnicodeDecodeError:
+        raise SchemaError(f"{path}:1: not a text file") from None
+    except OSError as exc:
+        raise UserError(f"{path}: cannot read ({exc.strerror or exc})") from None
+    return parse_document(text, kind, str(path))
+
+
+def write_document(path: Path, kind: str, obj: Any) -> Path:
+    """Save a document atomically."""
+    return atomic_write_text(path, document_text(kind, obj))
+
+
+# --------------------------------------------------------------------------------------------
+# Workspace
+
+
+def default_workspace() -> Path:
+    """The platform's per-user data folder for trueturn.
+
+    Linux and others: ``$XDG_DATA_HOME/trueturn`` or ``~/.local/share/trueturn``
+    (XDG Base Directory Specification); macOS: ``~/Library/Application Support/trueturn``;
+    Windows: ``%APPDATA%\\trueturn``.
+    """
+    home = Path.home()
+    if sys.platform == "win32":
+        base = os.environ.get("APPDATA")
+        return Path(base) / "trueturn" if base else home / "AppData" / "Roaming" / "trueturn"
+    if sys.platform == "darwin":
+        return home / "Library" / "Application Support" / "trueturn"
+    xdg = os.environ.get("XDG_DATA_HOME")
+    if xdg and Path(xdg).is_absolute():
+        return Path(xdg) / "trueturn"
+    return home / ".local" / "share" / "trueturn"
+
+
+def resolve_workspace(option: str | os.PathLike[str] | None = None) -> Path:
+    """``--workspace`` if given, else ``$TRUETURN_WORKSPACE``, else :func:`default_workspace`."""
+    if option:
+        return Path(option).expanduser()
+    env = os.environ.get(WORKSPACE_ENV)
+    if env:
+        return Path(env).expanduser()
+    return default_workspace()
+
+
+def slug(name: str) -> str:
+    """A file-name-safe form of a machine name: ``'Bench grinder #2'`` -> ``'bench-grinder-2'``."""
+    text = re.sub(r"[^a-z0-9]+", "-", name.strip().lower()).strip("-")
+    return text or "machine"
+
+
+_JOB_ID = re.compile(r"^[A-Za-z0-9][A-Za-z0-9._-]{0,99}$")
+
+
+@dataclass(frozen=True)
+class JobSummary:
+    """One line of a machine's history."""
+
+    job_id: str
+    created: str
+    status: str
+    runs: int
+    passed: bool | None
+    path: Path
+
+
+class Workspace:
+    """Machine profiles, jobs and coefficients under one folder (created on first save)."""
+
+    def __init__(self, root: str | os.PathLike[str]) -> None:
+        self.root = Path(root)
+
+    @classmethod
+    def open(cls, option: str | os.PathLike[str] | None = None) -> Workspace:
+        """The workspace chosen by ``--workspace``, the environment or the platform default."""
+        return cls(resolve_workspace(option))
+
+    @property
+    def machines_dir(self) -> Path:
+        return self.root / "machines"
+
+    @property
+    def jobs_dir(self) -> Path:
+        return self.root / "jobs"
+
+    # machines ------------------------------------------------------------------------------
+
+    def machine_path(self, name: str) -> Path:
+        return self.machines_dir / f"{slug(name)}.yaml"
+
+    def save_machine(self, profile: MachineProfile) -> Path:
+        return write_document(self.machine_path(profile.name), "machine", profile)
+
+    def load_machine(self, name: str) -> MachineProfile:
+        path = self.machine_path(name)
+        if not path.exists():
+            raise UserError(f"no machine called {name!r} in {self.machines_dir}")
+        return read_document(path, "machine")
+
+    def machine_names(self) -> list[str]:
+        """Names of the saved machines (read from their files), sorted."""
+        names = []
+        for path in sorted(self.machines_dir.glob("*.yaml")):
+            if path.name.endswith(".coefficients.yaml"):
+                continue
+            names.append(read_document(path, "machine").name)
+        return sorted(names)
+
+    # jobs ---------------------------------------------------------------------------------
+
+    def job_path(self, job_id: str) -> Path:
+        if not _JOB_ID.match(job_id):
+            raise UserError(f"{job_id!r} is not a job id (letters, digits, '.', '_', '-')")
+        return self.jobs_dir / f"{job_id}.yaml"
+
+    def new_job(self, profile: MachineProfile, *, method: str = "single-plane",
+                speed_rpm: float | None = None, operator: str = "", customer: str = "",
+                when: str | None = None) -> JobRecord:
+        """Create, save and return a new open job for ``profile`` with a fresh id."""
+        created = when or now_iso()
+        stem = f"{created[:10]}-{slug(profile.name)}"
+        number = 1
+        while self.job_path(f"{stem}-{number:03d}").exists():
+            number += 1
+        job = JobRecord(job_id=f"{stem}-{number:03d}", machine=profile, created=created,
+                        updated=created, method=method, speed_rpm=speed_rpm,  # type: ignore[arg-type]
+                        operator=operator, customer=customer)
+        self.save_job(job)
+        return job
+
+    def save_job(self, job: JobRecord) -> Path:
+        """Save ``job`` atomically (call after every run and every hands-on step)."""
+        job.updated = now_iso()
+        path = write_document(self.job_path(job.job_id), "job", job)
+        remove_stale_temps(self.jobs_dir)
+        return path
+
+    def find_job(self, ref: str | os.PathLike[str]) -> Path:
+        """A job file from a path or a job id in this workspace."""
+        candidate = Path(ref)
+        if candidate.suffix in (".yaml", ".yml") or candidate.exists() or os.sep in str(ref):
+            if not candidate.is_file():
+                raise UserError(f"{candidate}: no such job file")
+            return candidate
+        path = self.job_path(str(ref))
+        if not path.is_file():
+            raise UserError(f"no job {str(ref)!r} in {self.jobs_dir}")
+        return path
+
+    def load_job(self, ref: str | os.PathLike[str]) -> JobRecord:
+        return read_document(self.find_job(ref), "job")
+
+    def append_run(self, job: JobRecord, run: Run) -> Path:
+        """Add a completed run (its pending hands-on work folded in) and save at once."""
+        if run.index != job.next_run_index:
+            raise ValueError(f"run index {run.index}, expected {job.next_run_index}")
+        if job.status != "open":
+            raise UserError(f"job {job.job_id} is closed; start a new job to measure again")
+        if job.pending is not None:
+            run.changes = job.pending.changes + run.changes
+            run.confirmations = job.pending.confirmations + run.confirmations
+            if job.pending.notes:
+                run.notes = (job.pending.notes + "\n" + run.notes).strip()
+            job.pending = None
+        job.runs.append(run)
+        return self.save_job(job)
+
+    def record_pending(self, job: JobRecord, pending: PendingStep) -> Path:
+        """Keep hands-on work done since the last run (so a crash does not forget a trial weight)."""
+        job.pending = pending
+        return self.save_job(job)
+
+    def close_job(self, job: JobRecord, verdict: Verdict | None = None) -> Path:
+        if verdict is not None:
+            job.verdict = verdict
+        job.status = "closed"
+        return self.save_job(job)
+
+    def resume_job(self, ref: str | os.PathLike[str]) -> JobRecord:
+        """Reload an open job after an unplug or crash; it continues at ``next_run_index``."""
+        job = self.load_job(ref)
+        if job.status != "open":
+            raise UserError(f"job {job.job_id} is closed; nothing to resume")
+        return job
+
+    def job_summaries(self) -> list[JobSummary]:
+        """Every job in the workspace, oldest first (unreadable files raise one line)."""
+        out = []
+        for path in sorted(self.jobs_dir.glob("*.yaml")):
+            job: JobRecord = read_document(path, "job")
+            out.append(JobSummary(job.job_id, job.created, job.status, len(job.runs),
+                                  job.verdict.passed if job.verdict else None, path))
+        return sorted(out, key=lambda s: (s.created, s.job_id))
+
+    def history(self, machine_name: str) -> list[JobSummary]:
+        """The jobs of one machine, oldest first."""
+        wanted = slug(machine_name)
+        result = []
+        for path in sorted(self.jobs_dir.glob("*.yaml")):
+            job: JobRecord = read_document(path, "job")
+            if slug(job.machine.name) == wanted:
+                result.append(JobSummary(job.job_id, job.created, job.status, len(job.runs),
+                                         job.verdict.passed if job.verdict else None, path))
+        return sorted(result, key=lambda s: (s.created, s.job_id))
+
+    # influence coefficients -----------------------------------------------------------------
+
+    def coefficients_path(self, machine_name: str) -> Path:
+        return self.machines_dir / f"{slug(machine_name)}.coefficients.yaml"
+
+    def load_coefficient_file(self, machine_name: str) -> CoefficientFile:
+        path = self.coefficients_path(machine_name)
+        if not path.exists():
+            return CoefficientFile(machine=machine_name, sets=[])
+        return read_document(path, "coefficients")
+
+    def save_coefficients(self, machine_name: str, coefficients: CoefficientSet,
+                          same_speed_pct: float = 2.0) -> Path:
+        """Keep ``coefficients`` for the machine, replacing a set within ``same_speed_pct`` %."""
+        stored = self.load_coefficient_file(machine_name)
+        kept = [s for s in stored.sets
+                if abs(s.speed_rpm - coefficients.speed_rpm) > same_speed_pct / 100 * s.speed_rpm]
+        kept.append(coefficients)
+        kept.sort(key=lambda s: s.speed_rpm)
+        return write_document(self.coefficients_path(machine_name), "coefficients",
+                              CoefficientFile(machine=machine_name, sets=kept))
+
+    def find_coefficients(self, machine_name: str, speed_rpm: float,
+                          tolerance_pct: float = 5.0) -> CoefficientSet | None:
+        """The saved set nearest ``speed_rpm`` if within ``tolerance_pct`` %, else None.
+
+        Influence coefficients change with speed (common practice, no source), so a set is
+        only offered for a trim at about the speed it was measured at.
+        """
+        sets = self.load_coefficient_file(machine_name).sets
+        if not sets:
+            return None
+        best = min(sets, key=lambda s: abs(s.speed_rpm - speed_rpm))
+        if abs(best.speed_rpm - speed_rpm) > tolerance_pct / 100 * best.speed_rpm:
+            return None
+        return best
+

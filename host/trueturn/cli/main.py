@@ -8,7 +8,7 @@ import sys
 from collections.abc import Sequence
 
 from trueturn import __version__
-from trueturn.errors import UserError
+from trueturn.errors import UserError, one_line
 
 # Subcommand name -> module in trueturn.cli defining ``add_parser(subparsers)`` and ``run(args)``.
 COMMANDS: dict[str, str] = {
@@ -32,7 +32,7 @@ class _Parser(argparse.ArgumentParser):
     """argparse that exits 2 with one line (``trueturn X: problem``) on a usage mistake."""
 
     def error(self, message: str) -> None:  # type: ignore[override]
-        self.exit(2, f"{self.prog}: {message} (see {self.prog} --help)\n")
+        self.exit(2, f"{self.prog}: {one_line(message)} (see {self.prog} --help)\n")
 
 
 def build_parser() -> argparse.ArgumentParser:
@@ -55,7 +55,12 @@ def main(argv: Sequence[str] | None = None) -> int:
     try:
         return int(args.run(args) or 0)
     except UserError as exc:
-        print(f"trueturn {args.command}: {exc}", file=sys.stderr)
+        print(f"trueturn {args.command}: {one_line(exc)}", file=sys.stderr)
+        return 2
+    except OSError as exc:  # a file or port the person named cannot be used
+        name = f" {exc.filename}" if exc.filename else ""
+        print(f"trueturn {args.command}: cannot use{name}: {one_line(exc.strerror or exc)}",
+              file=sys.stderr)
         return 2
     except KeyboardInterrupt:
         print(f"trueturn {args.command}: interrupted", file=sys.stderr)

@@ -1,11 +1,158 @@
-"""`trueturn solve`: compute correction masses from balancing runs."""
+"""`trueturn solve`: correction masses from balancing runs (READINGS file, YAML or JSON)."""
 
 from __future__ import annotations
 
 import argparse
+import sys
+from pathlib import Path
+from typing import Any
 
-from trueturn.cli.common import add_not_ready
+import yaml
+
+from trueturn.angles import amplitude_phase
+from trueturn.balance import parse_readings, solve
+from trueturn.balance.influence import Correction
+from trueturn.balance.solve import SolveReport
+from trueturn.cli.common import print_json
+from trueturn.errors import UserError
+
+CAUTION = ("Caution: before attaching, moving or removing any mass, switch the machine off, "
+           "lock it out and wait until it has stopped (the tach must show standstill). Fasten "
+           "every mass to hold its centrifugal force; follow the machine manufacturer's "
+           "instructions, local codes and licensed practice.")
 
 
 def add_parser(sub: argparse._SubParsersAction) -> None:
-    add_not_ready(sub, "solve", "compute correction masses from balancing runs", 6)
+    parser = sub.add_parser(
+        "solve", help="compute correction masses from balancing runs",
+        description="Compute where and how much mass to add from balancing runs in a READINGS "
+                    "file (YAML or JSON; see host/trueturn/balance/README.md). Readings with "
+                    "phase use influence coefficients; amplitudes only use the four-run method.")
+    parser.add_argument("readings", metavar="READINGS", help="YAML or JSON file, '-' for stdin")
+    parser.add_argument("--json", action="store_true", help="machine-readable output")
+    parser.set_defaults(run=run)
+
+
+def load_document(path: str) -> Any:
+    """Read a YAML/JSON document; any problem becomes one line naming the file."""
+    try:
+        text = sys.stdin.read() if path == "-" else Path(path).read_text(encoding="utf-8")
+    except OSError as exc:
+        raise UserError(f"{path}: cannot read ({exc.strerror or exc})") from None
+    try:
+        return yaml.safe_load(text)
+    except yaml.YAMLError as exc:
+        mark = getattr(exc, "problem_mark", None)
+        where = f" line {mark.line + 1}" if mark is not None else ""
+        problem = getattr(exc, "problem", None) or "not valid YAML/JSON"
+        raise UserError(f"{path}:{where} {problem}") from None
+
+
+def _r(value: float | None, digits: int = 4) -> float | None:
+    return None if value is None else round(float(value), digits)
+
+
+def _correction_json(c: Correction) -> dict[str, Any]:
+    out: dict[str, Any] = {"plane": c.plane, "mass_g": _r(c.mass_g), "angle_deg": _r(c.angle_deg, 2)}
+    if c.mass_g_pm is not None:
+        out["mass_g_pm"] = _r(c.mass_g_pm)
+        out["angle_deg_pm"] = _r(c.angle_deg_pm, 2)
+    return out
+
+
+def _phasor_json(value: complex, has_phase: bool) -> dict[str, Any]:
+    amp, phase = amplitude_phase(value)
+    return {"amp": _r(amp, 6), "phase_deg": _r(phase, 2) if has_phase else None}
+
+
+def report_json(report: SolveReport, has_phase: bool) -> dict[str, Any]:
+    """The stable JSON contract of `solve` (plus extra fields documented in the README)."""
+    s = report.solution
+    out: dict[str, Any] = {
+        "method": s.method,
+        "corrections": [_correction_json(c) for c in s.corrections],
+        "predicted_residual": {k: _phasor_json(v, has_phase) for k, v in s.predicted_residual.items()},
+        "condition_number": _r(s.condition_number, 3),
+        "warnings": list(s.warnings),
+        "trial_masses": s.trial_masses,
+        "on_rotor_now": [{"plane": m.plane, "mass_g": m.mass_g, "angle_deg": m.angle_deg}
+                         for m in s.on_rotor_now],
+        "corrections_keeping_current": [_correction_json(c) for c in s.corrections_keeping_current],
+        "ambiguous": s.ambiguous,
+        "candidates": [[_correction_json(c) for c in cand] for cand in s.candidates],
+    }
+    if report.static_couple is not None:
+        sc = report.static_couple
+        out["static_couple"] = {"static_gmm": _r(sc.static_gmm), "static_angle_deg": _r(sc.static_angle_deg, 2),
+                                "couple_gmm": _r(sc.couple_gmm), "couple_angle_deg": _r(sc.couple_angle_deg, 2)}
+    if report.verdict is not None:
+        v = report.verdict
+        out["tolerance"] = {"U_per_gmm": _r(report.u_per_gmm), "per_plane_gmm": [_r(x) for x in v.permissible_gmm],
+                            "residual_now_gmm": [_r(x) for x in v.residual_gmm], "pass": v.passed}
+    if s.influence is not None:
+        out["influence"] = [{"sensor": c.sensor, "plane": c.plane, "amp_per_g": _r(c.amp_per_g, 8),
+                             "phase_deg": _r(c.phase_deg, 3), "speed_rpm": c.speed_rpm}
+                            for c in s.influence.as_saved()]
+    return out
+
+
+def _line(c: Correction) -> str:
+    text = f"  {c.plane:<14} {c.mass_g:8.3f} g at {c.angle_deg:6.1f}°"
+    if c.mass_g_pm is not None:
+        text += f"   (± {c.mass_g_pm:.3g} g, ± {c.angle_deg_pm:.0f}°, 95 %)"
+    return text
+
+
+def report_text(report: SolveReport, has_phase: bool) -> str:
+    s = report.solution
+    lines = [f"method: {s.method}",
+             "",
+             "Add to the as-found rotor (every trial mass removed):"]
+    lines += [_line(c) for c in s.corrections]
+    if s.on_rotor_now:
+        now = ", ".join(f"{m.mass_g:g} g at {m.angle_deg:g}° in {m.plane}" for m in s.on_rotor_now)
+        lines += ["", f"Or, leaving the trial masses of the last run on ({now}), add:"]
+        lines += [_line(c) for c in s.corrections_keeping_current]
+    else:
+        lines += ["", "No trial mass was on the rotor in the last run: add the masses above."]
+    lines.append(f"(trial masses between runs: {s.trial_masses})")
+    if s.candidates:
+        lines += ["", "Other answers that fit equally well:"]
+        for cand in s.candidates:
+            lines += [_line(c) for c in cand]
+    lines += ["", "Predicted 1x after the correction:" if has_phase
+              else "Fit scatter of the amplitudes (the floor of what can be predicted):"]
+    for key, value in s.predicted_residual.items():
+        amp, phase = amplitude_phase(value)
+        lines.append(f"  {key:<14} {amp:10.4g}" + (f" at {phase:6.1f}°" if has_phase else ""))
+    if s.condition_number is not None:
+        lines.append(f"condition number: {s.condition_number:.3g}")
+    if report.static_couple is not None:
+        sc = report.static_couple
+        lines.append(f"static part: {sc.static_gmm:.4g} g·mm at {sc.static_angle_deg:.1f}°; couple: "
+                     f"{sc.couple_gmm:.4g} g·mm per plane at {sc.couple_angle_deg:.1f}° / "
+                     f"{(sc.couple_angle_deg + 180) % 360:.1f}°")
+    if report.verdict is not None:
+        v = report.verdict
+        per = ", ".join(f"{r:.4g} of {p:.4g} g·mm" for r, p in zip(v.residual_gmm, v.permissible_gmm, strict=True))
+        lines.append(f"ISO 21940-11 residual of the last run: {per} -> "
+                     f"{'PASS' if v.passed else 'not yet within tolerance'}")
+    for w in s.warnings:
+        lines.append(f"warning: {w}")
+    lines += ["", CAUTION]
+    return "\n".join(lines)
+
+
+def run(args: argparse.Namespace) -> int:
+    doc = load_document(args.readings)
+    name = "stdin" if args.readings == "-" else args.readings
+    inp = parse_readings(doc, name)
+    try:
+        report = solve(inp)
+    except UserError as exc:
+        raise UserError(f"{name}: {exc}") from None
+    if args.json:
+        print_json(report_json(report, inp.has_phase))
+    else:
+        print(report_text(report, inp.has_phase))
+    return 0

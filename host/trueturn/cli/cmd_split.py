@@ -1,11 +1,107 @@
-"""`trueturn split`: split a correction onto the rotor's positions."""
+"""`trueturn split`: put a correction where masses can go (positions, combining, removal)."""
 
 from __future__ import annotations
 
 import argparse
+from typing import Any
 
-from trueturn.cli.common import add_not_ready
+from trueturn.balance.splitting import (
+    DEFAULT_POINT_ANGLE_DEG,
+    combine,
+    equally_spaced,
+    removal,
+    split,
+)
+from trueturn.cli.common import print_json
+from trueturn.errors import UserError
+
+
+def _mass_at(text: str) -> tuple[float, float]:
+    try:
+        mass, angle = text.split("@")
+        return float(mass), float(angle)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected MASS_G@ANGLE_DEG, got {text!r}") from None
 
 
 def add_parser(sub: argparse._SubParsersAction) -> None:
-    add_not_ready(sub, "split", "split a correction onto the rotor's positions", 6)
+    parser = sub.add_parser(
+        "split", help="split a correction onto the rotor's positions",
+        description="Split a correction mass onto the two neighbouring positions of N equally "
+                    "spaced positions (blades, holes) or of a list of angles; combine several "
+                    "masses into one; or remove material opposite instead of adding.")
+    parser.add_argument("--mass-g", type=float, help="correction mass, g")
+    parser.add_argument("--angle-deg", type=float, help="correction angle, degrees")
+    parser.add_argument("--combine", type=_mass_at, nargs="+", metavar="MASS_G@ANGLE_DEG",
+                        help="use the vector sum of these masses as the correction")
+    where = parser.add_mutually_exclusive_group()
+    where.add_argument("--positions", type=int, help="number of equally spaced positions")
+    where.add_argument("--at-deg", type=float, nargs="+", metavar="ANGLE",
+                       help="explicit position angles, degrees")
+    parser.add_argument("--first-deg", type=float, default=0.0,
+                        help="angle of position 0 for --positions (default 0)")
+    parser.add_argument("--remove", action="store_true",
+                        help="drill material out at the opposite angle instead of adding")
+    parser.add_argument("--drill-mm", type=float, help="drill diameter for --remove, mm")
+    parser.add_argument("--density-g-cm3", type=float, default=7.85,
+                        help="material density for --remove, g/cm³ (default 7.85, steel)")
+    parser.add_argument("--point-deg", type=float, default=DEFAULT_POINT_ANGLE_DEG,
+                        help="drill point angle, degrees (default 118)")
+    parser.add_argument("--json", action="store_true", help="machine-readable output")
+    parser.set_defaults(run=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    if args.combine:
+        if args.mass_g is not None or args.angle_deg is not None:
+            raise UserError("give either --combine or --mass-g/--angle-deg, not both")
+        if any(m < 0 for m, _ in args.combine):
+            raise UserError("--combine: masses must not be negative")
+        mass_g, angle_deg = combine(args.combine)
+    else:
+        if args.mass_g is None or args.angle_deg is None:
+            raise UserError("missing --mass-g and --angle-deg (or --combine)")
+        mass_g, angle_deg = args.mass_g, args.angle_deg
+    if mass_g < 0:
+        raise UserError(f"--mass-g must not be negative, got {mass_g:g}")
+    if args.remove:
+        if args.drill_mm is None:
+            raise UserError("--remove needs --drill-mm")
+        angle_deg = (angle_deg + 180.0) % 360.0
+    if args.positions is not None:
+        if args.positions < 3:
+            raise UserError(f"--positions must be at least 3 to reach every angle, got {args.positions}")
+        positions = equally_spaced(args.positions, args.first_deg)
+    elif args.at_deg:
+        positions = list(args.at_deg)
+    else:
+        positions = [angle_deg]
+    parts = split(mass_g, angle_deg, positions)
+    out: dict[str, Any] = {"mode": "remove" if args.remove else "add",
+                           "correction": {"mass_g": round(mass_g, 6), "angle_deg": round(angle_deg, 3)},
+                           "parts": []}
+    for p in parts:
+        item: dict[str, Any] = {"position": p.position if (args.positions or args.at_deg) else None,
+                                "angle_deg": round(p.angle_deg, 3), "mass_g": round(p.mass_g, 6)}
+        if args.remove:
+            hole = removal(p.mass_g, (p.angle_deg + 180.0) % 360.0, args.drill_mm,
+                           args.density_g_cm3, args.point_deg)
+            item["depth_full_diameter_mm"] = round(hole.depth_full_diameter_mm, 3)
+            item["depth_to_tip_mm"] = round(hole.depth_to_tip_mm, 3)
+        out["parts"].append(item)
+    if args.json:
+        print_json(out)
+        return 0
+    verb = "remove" if args.remove else "add"
+    print(f"correction to {verb}: {mass_g:.4g} g at {angle_deg:.1f}°")
+    for item in out["parts"]:
+        where = f"position {item['position']}" if item["position"] is not None else "at"
+        text = f"  {where} ({item['angle_deg']:.1f}°): {verb} {item['mass_g']:.4g} g"
+        if args.remove:
+            text += (f" — {args.drill_mm:g} mm drill, {item['depth_full_diameter_mm']:.2f} mm at full "
+                     f"diameter ({item['depth_to_tip_mm']:.2f} mm to the tip)")
+        print(text)
+    print("Caution: work only with the machine switched off, locked out and at standstill (tach "
+          "confirmed); check that drilling does not weaken the part and follow the "
+          "manufacturer's instructions.")
+    return 0

@@ -1,0 +1,444 @@
+"""Influence-coefficient balancing for 1, 2 or N planes, M >= N pickups, one or more speeds.
+
+Method (the influence coefficient method, e.g. Thearle's two-plane procedure generalised by
+least squares; see README in this folder): with the complex 1x reading ``R[c]`` of channel
+``c`` (a pickup at a speed) and the complex masses ``W[j]`` (grams at the plane's radius,
+relative to the as-found rotor) the rotor is modelled as linear,
+
+    R_k[c] = R0[c] + sum_j A[c, j] * W_k[j]            for every run k,
+
+so the as-found vector ``R0`` and the influence coefficients ``A`` follow from any set of runs
+in which the masses changed, by linear least squares (``numpy.linalg.lstsq``). The
+correction ``C`` minimises ``sum_c w_c^2 |R0[c] + A[c, :] C|^2`` (weights per pickup),
+optionally with ``|C_j| <= max_mass_g`` per plane (``scipy.optimize.minimize``, SLSQP).
+
+Angles follow :mod:`trueturn.angles`.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+
+import numpy as np
+from scipy.optimize import minimize
+
+from trueturn.angles import amplitude_phase
+from trueturn.balance.readings import BalanceInput, PlacedMass, Plane, Run, SavedCoefficient
+from trueturn.errors import UserError
+
+#: a 95 % confidence circle holds a 2-D normal within this many per-axis sigmas
+#: (sqrt(-2 ln 0.05), Rayleigh distribution quantile).
+CIRCLE95_SIGMAS = float(np.sqrt(-2.0 * np.log(0.05)))
+#: trial effect thresholds: at least this relative change of the 1x ...
+MIN_TRIAL_CHANGE = 0.25
+#: ... and at least this many confidence radii (common practice, no source)
+MIN_TRIAL_CONFIDENCES = 3.0
+#: runs whose speeds differ by less than this fraction belong to the same speed
+SPEED_MATCH = 0.03
+#: beyond this the runs cannot separate the planes (numerically singular)
+SINGULAR_CONDITION = 1e8
+MONTE_CARLO_DRAWS = 200
+
+
+class SingularSystemError(UserError):
+    """The runs or coefficients cannot separate the planes."""
+
+
+@dataclass(frozen=True)
+class Channel:
+    """One row of the influence matrix: a pickup at a speed (None: a single, unnamed speed)."""
+
+    sensor: str
+    speed_rpm: float | None = None
+
+    @property
+    def key(self) -> str:
+        return self.sensor if self.speed_rpm is None else f"{self.sensor}@{self.speed_rpm:g}rpm"
+
+
+@dataclass(frozen=True)
+class InfluenceModel:
+    """Influence coefficients ``matrix[c, j]`` in reading units per gram at plane j's radius."""
+
+    planes: tuple[str, ...]
+    channels: tuple[Channel, ...]
+    matrix: np.ndarray
+
+    def as_saved(self) -> list[SavedCoefficient]:
+        """The coefficients in the form READINGS accepts back under ``influence``."""
+        out = []
+        for c, channel in enumerate(self.channels):
+            for j, plane in enumerate(self.planes):
+                amp, phase = amplitude_phase(complex(self.matrix[c, j]))
+                out.append(SavedCoefficient(channel.sensor, plane, amp, phase, channel.speed_rpm))
+        return out
+
+
+@dataclass(frozen=True)
+class Correction:
+    """Mass to add at ``angle_deg`` in ``plane`` (at its radius); ± are 95 % half-widths."""
+
+    plane: str
+    mass_g: float
+    angle_deg: float
+    radius_mm: float
+    mass_g_pm: float | None = None
+    angle_deg_pm: float | None = None
+
+    @property
+    def vector_g(self) -> complex:
+        return complex(self.mass_g * np.exp(1j * np.radians(self.angle_deg)))
+
+    @property
+    def unbalance_gmm(self) -> float:
+        return self.mass_g * self.radius_mm
+
+
+@dataclass
+class Solution:
+    """What `solve` reports (see balance/README.md for the JSON form)."""
+
+    method: str
+    corrections: list[Correction]
+    predicted_residual: dict[str, complex]
+    condition_number: float | None
+    warnings: list[str] = field(default_factory=list)
+    trial_masses: str = "none"
+    on_rotor_now: list[PlacedMass] = field(default_factory=list)
+    corrections_keeping_current: list[Correction] = field(default_factory=list)
+    influence: InfluenceModel | None = None
+    as_found: dict[str, complex] = field(default_factory=dict)
+    residual_now_gmm: list[float] | None = None
+    candidates: list[list[Correction]] = field(default_factory=list)
+    ambiguous: bool = False
+
+
+# ----------------------------------------------------------------------------- helpers
+
+def mass_vector(masses: Sequence[PlacedMass], planes: Sequence[Plane]) -> np.ndarray:
+    """Complex vector sum of the masses per plane (grams at the plane's radius)."""
+    names = [p.name for p in planes]
+    out = np.zeros(len(names), dtype=complex)
+    for m in masses:
+        out[names.index(m.plane)] += m.vector_g
+    return out
+
+
+def speed_groups(runs: Sequence[Run]) -> list[float | None]:
+    """The distinct speeds of the runs (within 3 %), in order of first appearance."""
+    speeds = [r.speed_rpm for r in runs]
+    if all(s is None for s in speeds):
+        return [None]
+    if any(s is None for s in speeds):
+        raise UserError("runs: speed_rpm is given in some runs but not in others")
+    groups: list[float] = []
+    for s in speeds:
+        if not any(abs(s - g) <= SPEED_MATCH * g for g in groups):
+            groups.append(s)
+    return groups
+
+
+def _group_of(speed: float | None, groups: Sequence[float | None]) -> float | None:
+    if speed is None:
+        return None if None in groups else groups[0]
+    for g in groups:
+        if g is not None and abs(speed - g) <= SPEED_MATCH * g:
+            return g
+    raise UserError(f"no coefficients for the speed {speed:g} rpm")
+
+
+def _describe(masses: Sequence[PlacedMass]) -> str:
+    if not masses:
+        return "nothing"
+    return ", ".join(f"{m.mass_g:g} g at {m.angle_deg:g}° in {m.plane}" for m in masses)
+
+
+def trial_handling(runs: Sequence[Run]) -> str:
+    """'removed', 'left on', 'mixed' or 'none': what happened to trial masses between runs."""
+    seen = set()
+    for prev, cur in zip(runs, runs[1:], strict=False):
+        if not prev.added or list(prev.added) == list(cur.added):
+            continue
+        cur_left = list(cur.added)
+        kept = True
+        for m in prev.added:
+            if m in cur_left:
+                cur_left.remove(m)
+            else:
+                kept = False
+        if kept and cur_left:
+            seen.add("left on")
+        elif not kept:
+            seen.add("removed")
+    if not seen:
+        return "none"
+    return seen.pop() if len(seen) == 1 else "mixed"
+
+
+# ----------------------------------------------------------------------------- fitting
+
+def fit_influence(runs: Sequence[Run], planes: Sequence[Plane], sensors: Sequence[str],
+                  readings_override: dict[tuple[int, str], complex] | None = None
+                  ) -> tuple[np.ndarray, InfluenceModel]:
+    """As-found vectors ``R0[c]`` and coefficients ``A[c, j]`` from runs, by least squares.
+
+    Each speed needs at least N+1 runs whose mass vectors (with a constant term) have full
+    rank, e.g. the classic sequence: as-found, then one trial per plane (removed or left on).
+    """
+    groups = speed_groups(runs)
+    n_planes = len(planes)
+    channels: list[Channel] = []
+    r0_rows: list[complex] = []
+    a_rows: list[np.ndarray] = []
+    for g in groups:
+        members = [(k, r) for k, r in enumerate(runs) if _group_of(r.speed_rpm, groups) == g]
+        design = np.array([[1.0 + 0j, *mass_vector(r.added, planes)] for _, r in members])
+        at = "" if g is None else f" at {g:g} rpm"
+        if len(members) < n_planes + 1:
+            raise SingularSystemError(
+                f"runs{at}: {n_planes} plane(s) need at least {n_planes + 1} runs "
+                f"(as-found plus one trial per plane), got {len(members)}")
+        if np.linalg.matrix_rank(design) < n_planes + 1 or np.linalg.cond(design) > SINGULAR_CONDITION:
+            untouched = [p.name for j, p in enumerate(planes) if np.allclose(design[:, j + 1], design[0, j + 1])]
+            why = (f"plane(s) {', '.join(untouched)} never got a different mass" if untouched
+                   else "the mass changes of the runs are not independent between planes")
+            raise SingularSystemError(f"runs{at}: singular system, {why}")
+        for name in sensors:
+            y = np.array([
+                readings_override[(k, name)] if readings_override else r.readings[name].vector
+                for k, r in members])
+            x, *_ = np.linalg.lstsq(design, y, rcond=None)
+            channels.append(Channel(name, g))
+            r0_rows.append(x[0])
+            a_rows.append(x[1:])
+    model = InfluenceModel(tuple(p.name for p in planes), tuple(channels), np.array(a_rows))
+    return np.array(r0_rows), model
+
+
+def model_from_saved(saved: Sequence[SavedCoefficient], planes: Sequence[Plane],
+                     sensors: Sequence[str], runs: Sequence[Run]) -> InfluenceModel:
+    """Rebuild an :class:`InfluenceModel` for the speeds of ``runs`` from saved coefficients."""
+    saved_speeds = sorted({s.speed_rpm for s in saved}, key=lambda v: -1 if v is None else v)
+    channels, rows = [], []
+    for g in speed_groups(runs):
+        match = [s for s in saved_speeds if s is None or g is None
+                 or abs(s - g) <= SPEED_MATCH * g]
+        if not match:
+            raise UserError(f"influence: no saved coefficients for {g:g} rpm")
+        speed = match[0]
+        for name in sensors:
+            row = []
+            for plane in planes:
+                found = [s for s in saved if s.sensor == name and s.plane == plane.name
+                         and s.speed_rpm == speed]
+                if not found:
+                    raise UserError(f"influence: no coefficient for sensor '{name}', "
+                                    f"plane '{plane.name}'")
+                row.append(found[0].vector)
+            channels.append(Channel(name, g))
+            rows.append(row)
+    return InfluenceModel(tuple(p.name for p in planes), tuple(channels),
+                          np.array(rows, dtype=complex))
+
+
+def as_found_with_model(model: InfluenceModel, runs: Sequence[Run], planes: Sequence[Plane],
+                        readings_override: dict[tuple[int, str], complex] | None = None
+                        ) -> np.ndarray:
+    """``R0[c]`` from any runs given known coefficients: mean of ``R_k - A W_k`` (trim)."""
+    groups = [c.speed_rpm for c in model.channels]
+    sums = np.zeros(len(model.channels), dtype=complex)
+    counts = np.zeros(len(model.channels))
+    for k, run in enumerate(runs):
+        g = _group_of(run.speed_rpm, groups)
+        w = mass_vector(run.added, planes)
+        for c, ch in enumerate(model.channels):
+            if ch.speed_rpm != g:
+                continue
+            value = readings_override[(k, ch.sensor)] if readings_override else run.readings[ch.sensor].vector
+            sums[c] += value - model.matrix[c] @ w
+            counts[c] += 1
+    return sums / np.maximum(counts, 1)
+
+
+# ----------------------------------------------------------------------------- correcting
+
+def correction_for(r0: np.ndarray, matrix: np.ndarray, channel_weights: np.ndarray,
+                   max_mass_g: Sequence[float | None]) -> tuple[np.ndarray, list[int]]:
+    """Weighted least-squares correction ``C`` and the planes whose mass limit was applied."""
+    aw = matrix * channel_weights[:, None]
+    bw = -r0 * channel_weights
+    c, *_ = np.linalg.lstsq(aw, bw, rcond=None)
+    over = [j for j, lim in enumerate(max_mass_g) if lim is not None and abs(c[j]) > lim * (1 + 1e-9)]
+    if not over:
+        return c, []
+    n = len(c)
+
+    def cost(x: np.ndarray) -> float:
+        z = x[:n] + 1j * x[n:]
+        return float(np.sum(np.abs(aw @ z - bw) ** 2))
+
+    def grad(x: np.ndarray) -> np.ndarray:
+        z = x[:n] + 1j * x[n:]
+        g = 2 * aw.conj().T @ (aw @ z - bw)
+        return np.concatenate([g.real, g.imag])
+
+    limits = [(j, lim) for j, lim in enumerate(max_mass_g) if lim is not None]
+    cons = [{"type": "ineq", "fun": (lambda x, j=j, lim=lim: lim ** 2 - x[j] ** 2 - x[n + j] ** 2)}
+            for j, lim in limits]
+    start = c.copy()
+    for j, lim in limits:
+        if abs(start[j]) > lim:
+            start[j] *= 0.99 * lim / abs(start[j])
+    x0 = np.concatenate([start.real, start.imag])
+    scale = max(float(np.sum(np.abs(bw) ** 2)), 1e-30)
+    res = minimize(lambda x: cost(x) / scale, x0, jac=lambda x: grad(x) / scale,
+                   constraints=cons, method="SLSQP", options={"maxiter": 300, "ftol": 1e-12})
+    z = res.x[:n] + 1j * res.x[n:]
+    return z, over
+
+
+def _uncertainty(inp: BalanceInput, fit, nominal: np.ndarray, weights: np.ndarray,
+                 limits: Sequence[float | None]) -> tuple[list[float], list[float]] | None:
+    """95 % half-widths of each correction's mass and angle, Monte Carlo over the readings'
+    confidence circles (fixed seed, reproducible)."""
+    sigma = {}
+    for k, run in enumerate(inp.runs):
+        for name, r in run.readings.items():
+            if r.confidence:
+                sigma[(k, name)] = r.confidence / CIRCLE95_SIGMAS
+    if not sigma:
+        return None
+    rng = np.random.default_rng(20211)
+    draws = []
+    for _ in range(MONTE_CARLO_DRAWS):
+        override = {}
+        for k, run in enumerate(inp.runs):
+            for name, r in run.readings.items():
+                s = sigma.get((k, name), 0.0)
+                override[(k, name)] = r.vector + s * complex(rng.normal(), rng.normal())
+        r0, matrix = fit(override)
+        c, _ = correction_for(r0, matrix, weights, limits)
+        draws.append(c)
+    d = np.array(draws)
+    mass_pm = np.percentile(np.abs(np.abs(d) - np.abs(nominal)), 95, axis=0)
+    radius95 = np.percentile(np.abs(d - nominal), 95, axis=0)
+    ratio = np.clip(radius95 / np.maximum(np.abs(nominal), 1e-30), 0.0, 1.0)
+    angle_pm = np.degrees(np.arcsin(ratio))
+    angle_pm[radius95 >= np.abs(nominal)] = 180.0
+    return [float(v) for v in mass_pm], [float(v) for v in angle_pm]
+
+
+def _trial_warnings(inp: BalanceInput, r0: np.ndarray, model: InfluenceModel) -> list[str]:
+    """Warn where a plane's trial changed the 1x too little against the level or the scatter."""
+    warnings = []
+    conf = {}
+    for run in inp.runs:
+        for name, r in run.readings.items():
+            if r.confidence:
+                conf[name] = max(conf.get(name, 0.0), r.confidence)
+    for j, plane in enumerate(inp.planes):
+        trial_g = max(abs(mass_vector(r.added, inp.planes)[j]) for r in inp.runs)
+        if trial_g <= 0:
+            continue
+        effects = np.abs(model.matrix[:, j]) * trial_g
+        levels = np.abs(r0)
+        change = float(np.max(effects / np.maximum(levels, 1e-30)))
+        factor = MIN_TRIAL_CHANGE / change if change < MIN_TRIAL_CHANGE else 1.0
+        reasons = []
+        if change < MIN_TRIAL_CHANGE:
+            reasons.append(f"changed the 1x by only {100 * change:.0f} % (want ≥ {100 * MIN_TRIAL_CHANGE:.0f} %)")
+        noise = [MIN_TRIAL_CONFIDENCES * conf[ch.sensor] / max(e, 1e-30)
+                 for ch, e in zip(model.channels, effects, strict=True) if ch.sensor in conf]
+        if noise and min(noise) > 1.0:
+            factor = max(factor, min(noise))
+            reasons.append(f"its effect is under {MIN_TRIAL_CONFIDENCES:g}× the readings' confidence radius")
+        if reasons:
+            warnings.append(
+                f"plane {plane.name}: the trial mass ({trial_g:.3g} g) {' and '.join(reasons)}; "
+                f"use a trial mass about {factor:.1f}× bigger (about {trial_g * factor:.3g} g)")
+    return warnings
+
+
+def _corrections(planes: Sequence[Plane], c: np.ndarray,
+                 pm: tuple[list[float], list[float]] | None = None) -> list[Correction]:
+    out = []
+    for j, plane in enumerate(planes):
+        mass, angle = amplitude_phase(complex(c[j]))
+        out.append(Correction(plane.name, mass, angle, plane.radius_mm,
+                              None if pm is None else pm[0][j], None if pm is None else pm[1][j]))
+    return out
+
+
+def solve_with_phase(inp: BalanceInput) -> Solution:
+    """Corrections from phase-and-amplitude readings (fresh coefficients or a saved-set trim)."""
+    sensors = [s.name for s in inp.sensors]
+    planes = inp.planes
+    if inp.influence:
+        model = model_from_saved(inp.influence, planes, sensors, inp.runs)
+
+        def fit(override=None):
+            return as_found_with_model(model, inp.runs, planes, override), model.matrix
+        method = "trim with saved influence coefficients"
+    else:
+        def fit(override=None):
+            r0_, m_ = fit_influence(inp.runs, planes, sensors, override)
+            return r0_, m_.matrix
+        _, model = fit_influence(inp.runs, planes, sensors)
+        method = "influence coefficients" + (" (least squares)" if len(inp.runs) > len(planes) + 1
+                                             or len(model.channels) > len(planes) else "")
+    r0, matrix = fit()
+    if len(model.channels) < len(planes):
+        raise SingularSystemError(
+            f"{len(planes)} planes need at least {len(planes)} pickup readings "
+            f"(pickups × speeds), got {len(model.channels)}")
+    weights = np.array([next(s.weight for s in inp.sensors if s.name == ch.sensor)
+                        for ch in model.channels])
+    aw = matrix * weights[:, None]
+    cond = float(np.linalg.cond(aw))
+    if not np.isfinite(cond) or cond > SINGULAR_CONDITION:
+        raise SingularSystemError("singular system: the pickups cannot tell the planes apart "
+                                  f"(condition number {cond:.3g})")
+    limits = [p.max_mass_g for p in planes]
+    c, limited = correction_for(r0, matrix, weights, limits)
+    warnings = []
+    if cond > 30:
+        warnings.append(f"condition number {cond:.0f}: the planes act alike on the pickups; "
+                        "the answer is sensitive to reading errors (move a pickup or a plane)")
+    free, _ = correction_for(r0, matrix, weights, [None] * len(planes))
+    for j in limited:
+        warnings.append(f"plane {planes[j].name}: correction limited to {planes[j].max_mass_g:g} g "
+                        f"(without the limit it would be {abs(free[j]):.3g} g)")
+    if not inp.influence:
+        warnings += _trial_warnings(inp, r0, model)
+    pm = _uncertainty(inp, fit, c, weights, limits)
+    predicted = r0 + matrix @ c
+    now = inp.runs[-1].added
+    keep = c - mass_vector(now, planes)
+    return Solution(
+        method=method,
+        corrections=_corrections(planes, c, pm),
+        predicted_residual={ch.key: complex(v) for ch, v in zip(model.channels, predicted, strict=True)},
+        condition_number=cond,
+        warnings=warnings,
+        trial_masses=trial_handling(inp.runs),
+        on_rotor_now=list(now),
+        corrections_keeping_current=_corrections(planes, keep),
+        influence=model,
+        as_found={ch.key: complex(v) for ch, v in zip(model.channels, r0, strict=True)},
+        residual_now_gmm=residual_unbalance_gmm(model, inp.runs[-1], planes, weights),
+    )
+
+
+def residual_unbalance_gmm(model: InfluenceModel, run: Run, planes: Sequence[Plane],
+                           channel_weights: np.ndarray | None = None) -> list[float]:
+    """Residual unbalance per plane (g·mm) estimated from a run's measured 1x vectors through
+    the influence coefficients: the least-squares correction still needed, times radius."""
+    groups = sorted({c.speed_rpm for c in model.channels}, key=lambda v: -1 if v is None else v)
+    g = _group_of(run.speed_rpm, groups)
+    rows = [c for c, ch in enumerate(model.channels) if ch.speed_rpm == g]
+    w = np.ones(len(model.channels)) if channel_weights is None else channel_weights
+    y = np.array([run.readings[model.channels[c].sensor].vector for c in rows])
+    a = model.matrix[rows] * w[rows][:, None]
+    d, *_ = np.linalg.lstsq(a, -y * w[rows], rcond=None)
+    return [float(abs(d[j]) * p.radius_mm) for j, p in enumerate(planes)]

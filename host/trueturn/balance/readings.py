@@ -1,0 +1,277 @@
+"""The balancing input (planes, pickups, runs, optional saved coefficients) as dataclasses.
+
+:func:`parse_readings` turns the already-loaded READINGS document (a dict from YAML or JSON)
+into :class:`BalanceInput`, checking every field and naming the first problem in one line
+(:class:`trueturn.errors.UserError`). No file access here: the caller loads the document.
+Angles follow :mod:`trueturn.angles` (counted against rotation from the reference mark).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass, field
+from typing import Any
+
+from trueturn.angles import phasor, wrap_deg
+from trueturn.errors import UserError
+
+
+@dataclass(frozen=True)
+class Plane:
+    """A correction plane: where masses go, at ``radius_mm`` from the axis."""
+
+    name: str
+    radius_mm: float
+    max_mass_g: float | None = None
+
+
+@dataclass(frozen=True)
+class Sensor:
+    """A pickup; ``weight`` scales its importance in the least-squares correction."""
+
+    name: str
+    weight: float = 1.0
+
+
+@dataclass(frozen=True)
+class PlacedMass:
+    """A mass on the rotor: ``mass_g`` at ``angle_deg`` in ``plane`` (at the plane's radius)."""
+
+    plane: str
+    mass_g: float
+    angle_deg: float
+
+    @property
+    def vector_g(self) -> complex:
+        return phasor(self.mass_g, self.angle_deg)
+
+
+@dataclass(frozen=True)
+class Reading:
+    """A 1x reading; ``phase_deg`` None for the amplitude-only method.
+
+    ``confidence`` is the radius (reading units) of the circle that holds the true phasor
+    with about 95 % probability, as reported by the measuring side; None if unknown.
+    """
+
+    amp: float
+    phase_deg: float | None = None
+    confidence: float | None = None
+
+    @property
+    def vector(self) -> complex:
+        if self.phase_deg is None:
+            raise ValueError("reading has no phase")
+        return phasor(self.amp, self.phase_deg)
+
+
+@dataclass(frozen=True)
+class Run:
+    """One run: the masses on the rotor relative to the as-found rotor, and the readings."""
+
+    label: str
+    added: tuple[PlacedMass, ...]
+    readings: dict[str, Reading]
+    speed_rpm: float | None = None
+
+
+@dataclass(frozen=True)
+class SavedCoefficient:
+    """One saved influence coefficient: reading units per gram at the plane's radius."""
+
+    sensor: str
+    plane: str
+    amp_per_g: float
+    phase_deg: float
+    speed_rpm: float | None = None
+
+    @property
+    def vector(self) -> complex:
+        return phasor(self.amp_per_g, self.phase_deg)
+
+
+@dataclass(frozen=True)
+class Tolerance:
+    """Optional ISO 21940-11 target for a pass/fail verdict on the last run."""
+
+    rotor_mass_kg: float
+    grade_mm_s: float
+    speed_rpm: float
+    cg_from_first_plane_mm: float | None = None
+    plane_distance_mm: float | None = None
+
+
+@dataclass(frozen=True)
+class BalanceInput:
+    """Everything `solve` needs, checked."""
+
+    planes: tuple[Plane, ...]
+    sensors: tuple[Sensor, ...]
+    runs: tuple[Run, ...]
+    influence: tuple[SavedCoefficient, ...] = field(default_factory=tuple)
+    tolerance: Tolerance | None = None
+
+    @property
+    def has_phase(self) -> bool:
+        return all(r.phase_deg is not None for run in self.runs for r in run.readings.values())
+
+    def plane(self, name: str) -> Plane:
+        for plane in self.planes:
+            if plane.name == name:
+                return plane
+        raise KeyError(name)
+
+
+def _number(value: Any, where: str, *, positive: bool = False, nonneg: bool = False) -> float:
+    if isinstance(value, bool) or not isinstance(value, (int, float)):
+        raise UserError(f"{where}: expected a number, got {value!r}")
+    number = float(value)
+    if not math.isfinite(number):
+        raise UserError(f"{where}: must be a finite number, got {value!r}")
+    if positive and number <= 0:
+        raise UserError(f"{where}: must be greater than 0, got {value!r}")
+    if nonneg and number < 0:
+        raise UserError(f"{where}: must not be negative, got {value!r}")
+    return number
+
+
+def _mapping(value: Any, where: str) -> dict:
+    if not isinstance(value, dict):
+        raise UserError(f"{where}: expected a mapping (key: value), got {type(value).__name__}")
+    return value
+
+
+def _list(value: Any, where: str) -> list:
+    if not isinstance(value, list):
+        raise UserError(f"{where}: expected a list, got {type(value).__name__}")
+    return value
+
+
+def _require(mapping: dict, key: str, where: str) -> Any:
+    if key not in mapping or mapping[key] is None:
+        raise UserError(f"{where}: missing field '{key}'")
+    return mapping[key]
+
+
+def _name(value: Any, where: str) -> str:
+    if not isinstance(value, (str, int)) or str(value).strip() == "":
+        raise UserError(f"{where}: expected a non-empty name, got {value!r}")
+    return str(value)
+
+
+def parse_masses(items: Any, where: str, plane_names: set[str]) -> tuple[PlacedMass, ...]:
+    """Parse a list of ``{plane, mass_g, angle_deg}``; unknown planes are refused."""
+    masses = []
+    for i, item in enumerate(_list(items if items is not None else [], where)):
+        at = f"{where}[{i}]"
+        item = _mapping(item, at)
+        plane = _name(_require(item, "plane", at), f"{at}.plane")
+        if plane not in plane_names:
+            known = ", ".join(sorted(plane_names))
+            raise UserError(f"{at}.plane: unknown plane '{plane}' (planes: {known})")
+        mass_g = _number(_require(item, "mass_g", at), f"{at}.mass_g", nonneg=True)
+        angle = _number(_require(item, "angle_deg", at), f"{at}.angle_deg")
+        masses.append(PlacedMass(plane, mass_g, wrap_deg(angle)))
+    return tuple(masses)
+
+
+def parse_readings(doc: Any, source: str = "READINGS") -> BalanceInput:
+    """Check and convert a READINGS document; the first problem raises a one-line UserError."""
+    doc = _mapping(doc, source)
+    planes: list[Plane] = []
+    for i, item in enumerate(_list(_require(doc, "planes", source), f"{source}: planes")):
+        at = f"{source}: planes[{i}]"
+        item = _mapping(item, at)
+        name = _name(_require(item, "name", at), f"{at}.name")
+        if any(p.name == name for p in planes):
+            raise UserError(f"{at}.name: plane '{name}' given twice")
+        radius = _number(_require(item, "radius_mm", at), f"{at}.radius_mm", positive=True)
+        max_mass = item.get("max_mass_g")
+        limit = None if max_mass is None else _number(max_mass, f"{at}.max_mass_g", positive=True)
+        planes.append(Plane(name, radius, limit))
+    if not planes:
+        raise UserError(f"{source}: planes: at least one correction plane is needed")
+
+    sensors: list[Sensor] = []
+    for i, item in enumerate(_list(_require(doc, "sensors", source), f"{source}: sensors")):
+        at = f"{source}: sensors[{i}]"
+        item = _mapping(item, at)
+        name = _name(_require(item, "name", at), f"{at}.name")
+        if any(s.name == name for s in sensors):
+            raise UserError(f"{at}.name: sensor '{name}' given twice")
+        weight = item.get("weight", 1.0)
+        sensors.append(Sensor(name, _number(weight, f"{at}.weight", positive=True)))
+    if not sensors:
+        raise UserError(f"{source}: sensors: at least one pickup is needed")
+
+    plane_names = {p.name for p in planes}
+    sensor_names = [s.name for s in sensors]
+    runs: list[Run] = []
+    for i, item in enumerate(_list(_require(doc, "runs", source), f"{source}: runs")):
+        at = f"{source}: runs[{i}]"
+        item = _mapping(item, at)
+        label = str(item.get("label", f"run {i + 1}"))
+        added = parse_masses(item.get("added", []), f"{at}.added", plane_names)
+        speed = item.get("speed_rpm")
+        speed_rpm = None if speed is None else _number(speed, f"{at}.speed_rpm", positive=True)
+        raw = _mapping(_require(item, "readings", at), f"{at}.readings")
+        for key in raw:
+            if str(key) not in sensor_names:
+                raise UserError(f"{at}.readings: unknown sensor '{key}' "
+                                f"(sensors: {', '.join(sensor_names)})")
+        readings: dict[str, Reading] = {}
+        for name in sensor_names:
+            if name not in raw:
+                raise UserError(f"{at}.readings: missing sensor '{name}'")
+            r_at = f"{at}.readings.{name}"
+            r = _mapping(raw[name], r_at)
+            amp = _number(_require(r, "amp", r_at), f"{r_at}.amp", nonneg=True)
+            phase = r.get("phase_deg")
+            phase_deg = None if phase is None else wrap_deg(_number(phase, f"{r_at}.phase_deg"))
+            conf = r.get("confidence")
+            confidence = None if conf is None else _number(conf, f"{r_at}.confidence", nonneg=True)
+            readings[name] = Reading(amp, phase_deg, confidence)
+        runs.append(Run(label, added, readings, speed_rpm))
+    if not runs:
+        raise UserError(f"{source}: runs: at least one run is needed")
+    with_phase = [r.phase_deg is not None for run in runs for r in run.readings.values()]
+    if any(with_phase) and not all(with_phase):
+        raise UserError(f"{source}: runs: phase_deg is given in some readings but not in others "
+                        "(give it everywhere, or nowhere for the amplitude-only method)")
+
+    saved: list[SavedCoefficient] = []
+    for i, item in enumerate(_list(doc.get("influence") or [], f"{source}: influence")):
+        at = f"{source}: influence[{i}]"
+        item = _mapping(item, at)
+        sensor = _name(_require(item, "sensor", at), f"{at}.sensor")
+        if sensor not in sensor_names:
+            raise UserError(f"{at}.sensor: unknown sensor '{sensor}'")
+        plane = _name(_require(item, "plane", at), f"{at}.plane")
+        if plane not in plane_names:
+            raise UserError(f"{at}.plane: unknown plane '{plane}'")
+        amp = _number(_require(item, "amp_per_g", at), f"{at}.amp_per_g", nonneg=True)
+        phase = _number(_require(item, "phase_deg", at), f"{at}.phase_deg")
+        speed = item.get("speed_rpm")
+        speed_rpm = None if speed is None else _number(speed, f"{at}.speed_rpm", positive=True)
+        saved.append(SavedCoefficient(sensor, plane, amp, wrap_deg(phase), speed_rpm))
+
+    tolerance = None
+    if doc.get("tolerance") is not None:
+        at = f"{source}: tolerance"
+        t = _mapping(doc["tolerance"], at)
+        run_speed = next((r.speed_rpm for r in reversed(runs) if r.speed_rpm), None)
+        speed = t.get("speed_rpm", run_speed)
+        if speed is None:
+            raise UserError(f"{at}: missing field 'speed_rpm' (no run gives speed_rpm either)")
+        cg = t.get("cg_from_first_plane_mm")
+        dist = t.get("plane_distance_mm")
+        tolerance = Tolerance(
+            rotor_mass_kg=_number(_require(t, "rotor_mass_kg", at), f"{at}.rotor_mass_kg",
+                                  positive=True),
+            grade_mm_s=_number(_require(t, "grade", at), f"{at}.grade", positive=True),
+            speed_rpm=_number(speed, f"{at}.speed_rpm", positive=True),
+            cg_from_first_plane_mm=None if cg is None else _number(cg, f"{at}.cg_from_first_plane_mm"),
+            plane_distance_mm=None if dist is None else _number(dist, f"{at}.plane_distance_mm",
+                                                                 positive=True),
+        )
+    return BalanceInput(tuple(planes), tuple(sensors), tuple(runs), tuple(saved), tolerance)

@@ -1,0 +1,106 @@
+"""Placing a correction where masses can go: splitting, combining, removing by drilling.
+
+* Splitting a mass m at angle theta onto two positions phi_a < theta < phi_b: the two parts
+  must sum to the correction as vectors, which the law of sines gives:
+  ``m_a = m sin(phi_b - theta) / sin(phi_b - phi_a)``, ``m_b = m sin(theta - phi_a) / sin(...)``.
+* Combining several masses: their vector sum.
+* Removal instead of addition: the same mass at the opposite angle; the drill depth follows
+  from the hole volume (cylinder plus the cone of the drill point).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+from trueturn.angles import amplitude_phase, phasor, wrap_deg
+from trueturn.errors import UserError
+
+DEFAULT_POINT_ANGLE_DEG = 118.0  # common twist-drill point angle
+
+
+@dataclass(frozen=True)
+class Part:
+    """A share of a correction at one position (index into the positions given)."""
+
+    position: int
+    angle_deg: float
+    mass_g: float
+
+
+def equally_spaced(count: int, first_deg: float = 0.0) -> list[float]:
+    """Angles of ``count`` equally spaced positions, position 0 at ``first_deg``."""
+    if count < 1:
+        raise UserError(f"number of positions must be at least 1, got {count}")
+    return [wrap_deg(first_deg + 360.0 * i / count) for i in range(count)]
+
+
+def split(mass_g: float, angle_deg: float, positions_deg: Sequence[float]) -> list[Part]:
+    """Split a correction onto the two positions either side of it (one if it falls on one)."""
+    if mass_g < 0:
+        raise UserError(f"mass must not be negative, got {mass_g:g}")
+    if not positions_deg:
+        raise UserError("no positions given")
+    theta = wrap_deg(angle_deg)
+    for i, p in enumerate(positions_deg):
+        if abs(math.remainder(theta - p, 360.0)) < 1e-9:
+            return [Part(i, wrap_deg(p), mass_g)]
+    order = sorted(range(len(positions_deg)), key=lambda i: wrap_deg(positions_deg[i]))
+    best = None
+    for n, i in enumerate(order):
+        j = order[(n + 1) % len(order)]
+        a, b = wrap_deg(positions_deg[i]), wrap_deg(positions_deg[j])
+        gap = wrap_deg(b - a) if len(order) > 1 else 0.0
+        if gap > 0 and wrap_deg(theta - a) < gap:
+            best = (i, j, a, gap)
+            break
+    if best is None or best[3] >= 180.0 - 1e-9:
+        raise UserError(f"no two positions less than 180° apart on either side of {theta:g}°; "
+                        "a correction there cannot be made from positive masses")
+    i, j, a, gap = best
+    da = math.radians(wrap_deg(theta - a))
+    g = math.radians(gap)
+    m_a = mass_g * math.sin(g - da) / math.sin(g)
+    m_b = mass_g * math.sin(da) / math.sin(g)
+    return [Part(i, wrap_deg(positions_deg[i]), m_a), Part(j, wrap_deg(positions_deg[j]), m_b)]
+
+
+def combine(masses: Sequence[tuple[float, float]]) -> tuple[float, float]:
+    """One mass equivalent to several ``(mass_g, angle_deg)`` at the same radius."""
+    total = sum((phasor(m, a) for m, a in masses), 0j)
+    return amplitude_phase(total)
+
+
+@dataclass(frozen=True)
+class Removal:
+    """Material to remove at ``angle_deg`` instead of adding a mass; hole depths in mm."""
+
+    angle_deg: float
+    mass_g: float
+    volume_mm3: float
+    depth_full_diameter_mm: float   # depth of the full-diameter part of the hole
+    depth_to_tip_mm: float          # from the surface to the drill point's tip
+
+
+def removal(mass_g: float, angle_deg: float, drill_diameter_mm: float, density_g_cm3: float,
+            point_angle_deg: float = DEFAULT_POINT_ANGLE_DEG) -> Removal:
+    """Remove ``mass_g`` opposite to an addition at ``angle_deg`` with one drilled hole."""
+    if mass_g < 0:
+        raise UserError(f"mass must not be negative, got {mass_g:g}")
+    if drill_diameter_mm <= 0 or density_g_cm3 <= 0:
+        raise UserError("drill diameter and density must be greater than 0")
+    if not 0 < point_angle_deg < 180:
+        raise UserError(f"drill point angle must be between 0 and 180°, got {point_angle_deg:g}")
+    volume = mass_g / density_g_cm3 * 1000.0
+    r = drill_diameter_mm / 2.0
+    half = math.radians(point_angle_deg / 2.0)
+    tip_h = r / math.tan(half)
+    cone = math.pi * r * r * tip_h / 3.0
+    if volume <= cone:
+        to_tip = (3.0 * volume / (math.pi * math.tan(half) ** 2)) ** (1.0 / 3.0)
+        full = 0.0
+    else:
+        full = (volume - cone) / (math.pi * r * r)
+        to_tip = full + tip_h
+    return Removal(wrap_deg(angle_deg + 180.0), mass_g, volume, full, to_tip)

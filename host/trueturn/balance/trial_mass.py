@@ -1,0 +1,54 @@
+"""Trial-mass sizing.
+
+Rule (common practice, no source): choose the trial mass so that its centrifugal force
+``F = m_t * r * omega^2`` is about 10 % of the rotor's weight ``M * g``. The mass is capped
+(by default at 1 % of the rotor mass, common practice, no source) and the cap is reported.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+from trueturn.balance.iso21940 import angular_speed_rad_s
+from trueturn.errors import UserError
+
+STANDARD_GRAVITY_M_S2 = 9.80665  # CGPM 1901 conventional value
+DEFAULT_FORCE_RATIO = 0.10
+DEFAULT_CAP_FRACTION = 0.01
+
+
+@dataclass(frozen=True)
+class TrialMass:
+    """A trial mass and what it does at speed."""
+
+    mass_g: float
+    force_n: float               # centrifugal force at the speed
+    force_ratio: float           # force / rotor weight
+    force_over_own_weight: float  # force / the trial mass's own weight (r omega^2 / g)
+    capped: bool
+    warnings: list[str] = field(default_factory=list)
+
+
+def size_trial_mass(rotor_mass_kg: float, radius_mm: float, speed_rpm: float,
+                    force_ratio: float = DEFAULT_FORCE_RATIO,
+                    max_mass_g: float | None = None) -> TrialMass:
+    """Trial mass whose centrifugal force is ``force_ratio`` of the rotor's weight, capped."""
+    for name, value in (("rotor mass", rotor_mass_kg), ("radius", radius_mm),
+                        ("speed", speed_rpm), ("force ratio", force_ratio)):
+        if not value > 0:
+            raise UserError(f"{name} must be greater than 0, got {value:g}")
+    if max_mass_g is not None and not max_mass_g > 0:
+        raise UserError(f"maximum mass must be greater than 0, got {max_mass_g:g}")
+    accel = radius_mm / 1000.0 * angular_speed_rad_s(speed_rpm) ** 2   # r omega^2, m/s^2
+    wanted_g = 1000.0 * force_ratio * rotor_mass_kg * STANDARD_GRAVITY_M_S2 / accel
+    cap_g = max_mass_g if max_mass_g is not None else DEFAULT_CAP_FRACTION * rotor_mass_kg * 1000
+    warnings = []
+    capped = wanted_g > cap_g
+    mass_g = min(wanted_g, cap_g)
+    if capped:
+        why = "the limit you gave" if max_mass_g is not None else "1 % of the rotor mass"
+        warnings.append(f"the rule asks for {wanted_g:.3g} g, capped at {cap_g:.3g} g ({why}); "
+                        "its effect may be small: check the trial-effect warning after the run")
+    force_n = mass_g / 1000.0 * accel
+    return TrialMass(mass_g, force_n, force_n / (rotor_mass_kg * STANDARD_GRAVITY_M_S2),
+                     accel / STANDARD_GRAVITY_M_S2, capped, warnings)

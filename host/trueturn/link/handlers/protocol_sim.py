@@ -1,0 +1,216 @@
+"""pyserial URL handler ``sim://NAME[?options]``: the virtual board as a serial port.
+
+``NAME`` is a packaged scenario (``bench-grinder``) or a path to a scenario YAML
+(``sim://./my-fan.yaml``). Options (all optional):
+
+``realtime=1|0``   1 (default): bytes appear as simulated time follows the wall clock;
+                   0: as fast as the host reads (simulated time runs ahead).
+``pace=F``         with realtime=1, run simulated time F times faster than the wall clock.
+``seed=N``         noise and speed-wander seed (default 1).
+``rpm=R``          drive speed (variable-speed scenarios, within their range).
+``motor=on|off``   rotor turning (default) or at standstill at power-up.
+``noise=F``        scale every disturbance (noise, hum, harmonics, tones, jitter); 0 = clean.
+``unbalance=as-found|none``  start with the scenario's hidden unbalance (default) or none.
+``tick0=T``        the board clock at power-up (e.g. 4294000000 to see the 32-bit wrap soon).
+
+``port.rig`` reaches the running virtual rig: ``add_mass``, ``remove_mass``, ``set_masses``,
+``clear_masses``, ``motor_start``, ``motor_stop``, ``set_speed_rpm``, ``speed_rpm``,
+``standstill``, ``exact_response_1x()``, and ``unplug()`` (later reads and writes raise
+``serial.SerialException`` like a pulled USB cable).
+"""
+
+from __future__ import annotations
+
+import time
+import urllib.parse
+
+from serial.serialutil import PortNotOpenError, SerialBase, SerialException, to_bytes
+
+from trueturn.errors import UserError
+from trueturn.sim.board import STEP_TICKS, TICK_HZ, BoardOptions, VirtualBoard
+from trueturn.sim.scenario import load_scenario
+
+_USAGE = ('expected "sim://NAME[?realtime=0|1&pace=F&seed=N&rpm=R&motor=on|off&noise=F'
+          '&unbalance=as-found|none&tick0=T]"')
+
+
+class Rig(VirtualBoard):
+    """The virtual board plus the cable: :meth:`unplug` makes the port fail like a real one."""
+
+    unplugged = False
+
+    def unplug(self) -> None:
+        """Pull the virtual USB cable."""
+        with self.lock:
+            self.unplugged = True
+
+
+class Serial(SerialBase):
+    """A serial port whose other end is the simulated board of a scenario."""
+
+    def __init__(self, *args, **kwargs) -> None:
+        self.rig: Rig | None = None
+        self.realtime = True
+        self.pace = 1.0
+        self._wall_start = 0.0
+        self._tick_start = 0
+        super().__init__(*args, **kwargs)
+
+    # --- pyserial plumbing ------------------------------------------------------------------
+
+    def open(self) -> None:
+        if self.is_open:
+            raise SerialException("Port is already open.")
+        if self._port is None:
+            raise SerialException("Port must be configured before it can be used.")
+        name, options = self.from_url(self.port)
+        try:
+            scenario = load_scenario(name)
+            self.rig = Rig(scenario, options)
+        except (UserError, ValueError) as exc:
+            raise SerialException(f"sim://{name}: {exc}") from None
+        self._wall_start = time.monotonic()
+        self._tick_start = self.rig.tick
+        self._reconfigure_port()
+        self.is_open = True
+
+    def close(self) -> None:
+        self.is_open = False
+        super().close()
+
+    def _reconfigure_port(self) -> None:
+        """Baud rate and framing do not matter to the virtual board."""
+
+    def from_url(self, url: str) -> tuple[str, BoardOptions]:
+        """Scenario name (or path) and board options from ``sim://...``."""
+        if not url.startswith("sim://"):
+            raise SerialException(f"{_USAGE}: not starting with sim:// ({url!r})")
+        rest = url[len("sim://"):]
+        name, _, query = rest.partition("?")
+        if not name:
+            raise SerialException(f"{_USAGE}: no scenario name")
+        opts = BoardOptions()
+        try:
+            for key, values in urllib.parse.parse_qs(query, keep_blank_values=True).items():
+                value = values[-1]
+                if key == "realtime":
+                    self.realtime = _flag(value)
+                elif key == "pace":
+                    self.pace = float(value)
+                    if not self.pace > 0:
+                        raise ValueError("pace must be positive")
+                elif key == "seed":
+                    opts.seed = int(value)
+                elif key == "rpm":
+                    opts.speed_rpm = float(value)
+                elif key == "motor":
+                    opts.motor_on = _flag(value)
+                elif key == "noise":
+                    opts.noise_scale = float(value)
+                elif key == "unbalance":
+                    if value not in ("as-found", "none"):
+                        raise ValueError("unbalance must be as-found or none")
+                    opts.unbalance = value
+                elif key == "tick0":
+                    opts.tick0 = int(value) % (1 << 32)
+                else:
+                    raise ValueError(f"unknown option {key!r}")
+        except ValueError as exc:
+            raise SerialException(f"{_USAGE}: {exc}") from None
+        return name, opts
+
+    # --- the clock --------------------------------------------------------------------------
+
+    def _check(self) -> Rig:
+        if not self.is_open or self.rig is None:
+            raise PortNotOpenError()
+        if self.rig.unplugged:
+            raise SerialException("device reports readiness to read but returned no data "
+                                  "(device disconnected or multiple access on port?)")
+        return self.rig
+
+    def _sync(self) -> None:
+        """Realtime: bring the simulated clock up to the wall clock."""
+        rig = self._check()
+        if self.realtime:
+            elapsed = (time.monotonic() - self._wall_start) * self.pace
+            rig.advance_to(self._tick_start + int(elapsed * TICK_HZ))
+
+    @property
+    def in_waiting(self) -> int:
+        rig = self._check()
+        self._sync()
+        if not self.realtime and not rig.output_pending:
+            rig.advance_to(rig.tick + STEP_TICKS)
+        return rig.output_pending
+
+    def read(self, size: int = 1) -> bytes:
+        rig = self._check()
+        deadline = None if self._timeout is None else time.monotonic() + self._timeout
+        data = bytearray()
+        while len(data) < size:
+            self._sync()
+            if not self.realtime and rig.output_pending < size - len(data):
+                rig.advance_to(rig.tick + STEP_TICKS)
+            data += rig.take_output(size - len(data))
+            if len(data) >= size or not self.realtime:
+                continue
+            if deadline is not None and time.monotonic() >= deadline:
+                break
+            time.sleep(0.002 if deadline is None else
+                       max(0.0, min(0.002, deadline - time.monotonic())))
+            self._check()
+        return bytes(data)
+
+    def write(self, data: bytes) -> int:
+        self._check()
+        payload = to_bytes(data)
+        self._sync()
+        self.rig.receive(payload)
+        return len(payload)
+
+    def reset_input_buffer(self) -> None:
+        rig = self._check()
+        self._sync()
+        rig.take_output()
+
+    def reset_output_buffer(self) -> None:
+        self._check()
+
+    @property
+    def out_waiting(self) -> int:
+        return 0
+
+    def _update_dtr_state(self) -> None:
+        """No DTR reset on the virtual board."""
+
+    def _update_rts_state(self) -> None:
+        """No RTS line on the virtual board."""
+
+    def _update_break_state(self) -> None:
+        """Breaks are ignored."""
+
+    @property
+    def cts(self) -> bool:
+        return True
+
+    @property
+    def dsr(self) -> bool:
+        return True
+
+    @property
+    def ri(self) -> bool:
+        return False
+
+    @property
+    def cd(self) -> bool:
+        return True
+
+
+def _flag(value: str) -> bool:
+    low = value.strip().lower()
+    if low in ("1", "on", "yes", "true"):
+        return True
+    if low in ("0", "off", "no", "false"):
+        return False
+    raise ValueError(f"expected 1/0 or on/off, got {value!r}")

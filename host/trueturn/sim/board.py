@@ -1,0 +1,541 @@
+"""The virtual board: a scenario's rotor behind a board that speaks protocol v1 byte for byte.
+
+One simulated clock (ticks of ``TICK_HZ``) drives everything: conversion ``n`` of a stream is
+triggered at ``start_tick + n * period_ticks`` and sampled at that instant (aperture delay 0),
+tach edges are stamped with the tick at which the shaft angle crosses the mark, status goes
+out every simulated second. Frames are made with :func:`trueturn.link.codec.encode_frame`.
+
+Behaviour, matching the firmware's contract in protocol/catalogue.yaml:
+
+* at power-up: ``identity`` with sequence number 0, then ``status`` every second;
+* every host command gets ``reply`` (error codes of the catalogue) first, then its answer:
+  ``identify`` -> ``identity``; ``configure`` (only idle) -> ``stream_config`` with
+  ``start_tick`` 0; ``start`` -> ``stream_config`` with the stream's ``start_tick``, then
+  ``samples`` blocks (whole channel sets, at most 120 samples); ``stop`` flushes the whole
+  sets taken so far, then replies; ``ping`` -> ``pong``;
+* a frame failing COBS or CRC gets no reply and counts in ``rx_bad_frames``; an unknown or
+  board-to-host type gets ``unknown_command``; a wrong payload length gets ``bad_length``;
+* ``tach`` messages go out for every edge, streaming or not (standstill = no edges).
+
+Defaults at power-up (our choice): 2 channels at 4000 Hz each, rising tach edge, so
+``period_ticks`` = 250 (one conversion every 125 us).
+"""
+
+from __future__ import annotations
+
+import math
+import threading
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from trueturn.link.catalogue import load_catalogue
+from trueturn.link.cobs import CobsError, cobs_decode
+from trueturn.link.codec import FrameError, decode_payload, encode_frame
+from trueturn.link.crc import crc16_ibm3740
+from trueturn.sim.rotor import STANDARD_GRAVITY_M_S2, Mass, rpm_to_rad_s
+from trueturn.sim.scenario import ADC_FULL_SCALE_COUNTS, ADC_REFERENCE_V, Scenario
+
+TICK_HZ = 2_000_000
+BOARD_ID_SIMULATED = 2
+FIRMWARE_VERSION = (0, 1, 0)
+MAX_BLOCK_SAMPLES = 120
+DEFAULT_RATE_HZ = 4000
+DEFAULT_CHANNELS = 2
+STEP_TICKS = 20_000  # 10 ms of simulated time per generation step
+STATUS_PERIOD_TICKS = TICK_HZ
+START_DELAY_TICKS = 200  # first conversion of a stream, after the start command
+STANDSTILL_RAD_S = 0.05  # below this the virtual shaft is taken as stopped
+TWO_PI = 2.0 * math.pi
+
+ERROR_CODES = {name: code for code, name in load_catalogue().error_codes.items()}
+STATES = {name: code for code, name in load_catalogue().device_states.items()}
+LAST_ERRORS = {name: code for code, name in load_catalogue().last_errors.items()}
+
+
+@dataclass
+class BoardOptions:
+    """Knobs of the virtual board (the ``sim://`` URL options)."""
+
+    seed: int = 1
+    speed_rpm: float | None = None  # None: the scenario's nominal speed
+    motor_on: bool = True  # running (at speed) at power-up
+    noise_scale: float = 1.0  # multiplies every noise, hum, harmonic and tone level
+    tick0: int = 0  # value of the clock at power-up (tests of the 32-bit wrap)
+    unbalance: str = "as-found"  # or "none": start with no unbalance at all
+
+
+@dataclass
+class _Stream:
+    rate_hz: int = DEFAULT_RATE_HZ
+    channels: int = DEFAULT_CHANNELS
+    tach_edge: int = 1
+    streaming: bool = False
+    start_tick: int = 0
+    next_index: int = 0
+    pending: list[int] = field(default_factory=list)
+    pending_first: int = 0
+
+    @property
+    def period_ticks(self) -> int:
+        return TICK_HZ // (self.rate_hz * self.channels)
+
+
+class VirtualBoard:
+    """Physics + firmware behaviour; bytes in with :meth:`receive`, out with :meth:`advance_to`.
+
+    Thread-safe: the rig controls (masses, motor) may be called from another thread while a
+    reader advances the clock.
+    """
+
+    def __init__(self, scenario: Scenario, options: BoardOptions | None = None) -> None:
+        self.scenario = scenario
+        self.options = options or BoardOptions()
+        self.catalogue = load_catalogue()
+        self.lock = threading.RLock()
+        self.rng = np.random.default_rng(self.options.seed)
+        self.tick = self.options.tick0  # the board's clock (unbounded int; sent mod 2^32)
+        self._boot_tick = self.tick
+        self._seq = 0
+        self._out = bytearray()
+        self._stream = _Stream()
+        self._added: list[Mass] = []
+        self._hidden = list(scenario.as_found) if self.options.unbalance != "none" else []
+        motor = scenario.motor
+        self.target_speed_rpm = self.options.speed_rpm or motor.nominal_speed_rpm()
+        self._check_speed(self.target_speed_rpm)
+        self.running = self.options.motor_on
+        self._omega = rpm_to_rad_s(self.target_speed_rpm) if self.running else 0.0
+        self._theta = float(self.rng.uniform(0, TWO_PI))  # shaft angle, rad, 0 = mark at tach
+        self._drift_phases = self.rng.uniform(0, TWO_PI, size=2)
+        self._tone_phases = self.rng.uniform(0, TWO_PI, size=8)
+        self._edges_seen = 0
+        self._next_status_tick = self.tick + STATUS_PERIOD_TICKS
+        self._counters = {"samples_dropped": 0, "frames_dropped": 0, "adc_overruns": 0,
+                          "rx_bad_frames": 0}
+        self._last_error = LAST_ERRORS["none"]
+        self._rx = bytearray()
+        self._rx_discarding = False
+        self._response_cache: tuple[float, tuple[Mass, ...], np.ndarray] | None = None
+        self._send("identity", self._identity_values())
+
+    # --- rig controls (the host's demo mode uses these through ``port.rig``) ----------------
+
+    @property
+    def masses(self) -> list[Mass]:
+        """Weights added by the operator (the as-found unbalance is hidden, as on a real rotor)."""
+        with self.lock:
+            return list(self._added)
+
+    def set_masses(self, masses: list[Mass]) -> None:
+        """Replace all added weights."""
+        for m in masses:
+            if m.plane not in self.scenario.layouts:
+                self._bad_plane(m.plane)
+        with self.lock:
+            self._added = list(masses)
+
+    def add_mass(self, mass: Mass) -> None:
+        """Attach one weight."""
+        self.set_masses(self.masses + [mass])
+
+    def remove_mass(self, mass: Mass) -> None:
+        """Take off a weight that was attached (ValueError if it is not on the rotor)."""
+        with self.lock:
+            if mass not in self._added:
+                raise ValueError(f"no weight {mass} is attached")
+            self._added.remove(mass)
+
+    def clear_masses(self) -> None:
+        """Take off every added weight."""
+        self.set_masses([])
+
+    def all_masses(self) -> list[Mass]:
+        """Hidden as-found unbalance plus the added weights (for tests and honest demos)."""
+        with self.lock:
+            return self._hidden + self._added
+
+    def motor_start(self) -> None:
+        """Switch the virtual motor on; the rotor spins up over the scenario's spin-up time."""
+        with self.lock:
+            self.running = True
+
+    def motor_stop(self) -> None:
+        """Switch the motor off; the rotor coasts down and stops (no more tach edges)."""
+        with self.lock:
+            self.running = False
+
+    def set_speed_rpm(self, speed_rpm: float) -> None:
+        """Set the drive speed (variable-speed scenarios only, within their range)."""
+        with self.lock:
+            self._check_speed(speed_rpm)
+            if self.scenario.motor.kind != "variable" and \
+                    abs(speed_rpm - self.scenario.motor.nominal_speed_rpm()) > 1e-6:
+                raise ValueError(f"{self.scenario.name} runs at a fixed speed")
+            self.target_speed_rpm = float(speed_rpm)
+
+    @property
+    def speed_rpm(self) -> float:
+        """The shaft's present speed."""
+        with self.lock:
+            return self._omega * 60.0 / TWO_PI
+
+    @property
+    def standstill(self) -> bool:
+        with self.lock:
+            return self._omega == 0.0
+
+    @property
+    def time_s(self) -> float:
+        """Simulated seconds since power-up."""
+        return (self.tick - self._boot_tick) / TICK_HZ
+
+    def exact_response_1x(self, speed_rpm: float | None = None) -> dict[str, complex]:
+        """The model's steady 1x acceleration (m/s^2, project phasors) with the present weights."""
+        return self.scenario.rotor.response_1x(speed_rpm or self.target_speed_rpm,
+                                               self.all_masses())
+
+    def _check_speed(self, speed_rpm: float) -> None:
+        rng = self.scenario.motor.speed_range_rpm
+        if not speed_rpm > 0:
+            raise ValueError("speed must be positive")
+        if rng is not None and not rng[0] <= speed_rpm <= rng[1]:
+            raise ValueError(f"speed {speed_rpm:g} rpm is outside {rng[0]:g}-{rng[1]:g} rpm")
+
+    def _bad_plane(self, plane: str) -> None:
+        raise ValueError(f"no correction plane named {plane!r}; planes are "
+                         f"{', '.join(self.scenario.layouts)}")
+
+    # --- byte interface ----------------------------------------------------------------------
+
+    def take_output(self, max_bytes: int | None = None) -> bytes:
+        """Remove and return up to ``max_bytes`` of what the board has sent."""
+        with self.lock:
+            n = len(self._out) if max_bytes is None else min(max_bytes, len(self._out))
+            data = bytes(self._out[:n])
+            del self._out[:n]
+            return data
+
+    @property
+    def output_pending(self) -> int:
+        return len(self._out)
+
+    def receive(self, data: bytes) -> None:
+        """Bytes from the host, handled at the board's present time."""
+        with self.lock:
+            for byte in data:
+                if byte == 0:
+                    if not self._rx_discarding and self._rx:
+                        self._handle_frame(bytes(self._rx))
+                    self._rx.clear()
+                    self._rx_discarding = False
+                elif not self._rx_discarding:
+                    self._rx.append(byte)
+                    if len(self._rx) > self.catalogue.max_frame_bytes + 2:
+                        self._rx.clear()
+                        self._rx_discarding = True
+                        self._bad_rx()
+
+    def advance_to(self, tick: int) -> None:
+        """Run the simulated board until its clock reaches ``tick``."""
+        with self.lock:
+            while self.tick < tick:
+                self._step(min(STEP_TICKS, tick - self.tick))
+
+    def advance_s(self, seconds: float) -> None:
+        """Run for ``seconds`` of simulated time."""
+        self.advance_to(self.tick + int(round(seconds * TICK_HZ)))
+
+    # --- protocol ----------------------------------------------------------------------------
+
+    def _send(self, name: str, values: dict) -> None:
+        self._out += encode_frame(name, self._seq, values, self.catalogue)
+        self._seq = (self._seq + 1) & 0xFF
+
+    def _identity_values(self) -> dict:
+        major, minor, patch = FIRMWARE_VERSION
+        return {"protocol_version": self.catalogue.protocol_version,
+                "definition_hash": self.catalogue.definition_hash,
+                "firmware_major": major, "firmware_minor": minor, "firmware_patch": patch,
+                "board_id": BOARD_ID_SIMULATED, "tick_hz": TICK_HZ, "adc_bits": 10,
+                "adc_reference_mv": int(ADC_REFERENCE_V * 1000), "aperture_delay_ticks": 0,
+                "max_channels": 2, "channel0_pin": 0, "channel1_pin": 1, "tach_pin": 8}
+
+    def _stream_config_values(self) -> dict:
+        s = self._stream
+        return {"rate_hz": s.rate_hz, "channels": s.channels, "period_ticks": s.period_ticks,
+                "tach_edge": s.tach_edge,
+                "start_tick": (s.start_tick & 0xFFFFFFFF) if s.streaming else 0}
+
+    def _reply(self, type_id: int, seq: int, error: str) -> None:
+        self._send("reply", {"command_type": type_id, "command_seq": seq,
+                             "error": ERROR_CODES[error]})
+
+    def _bad_rx(self) -> None:
+        self._counters["rx_bad_frames"] += 1
+        self._last_error = LAST_ERRORS["rx_bad_frame"]
+
+    def _handle_frame(self, body: bytes) -> None:
+        try:
+            frame = cobs_decode(body)
+        except CobsError:
+            self._bad_rx()
+            return
+        if len(frame) < self.catalogue.overhead_bytes or len(frame) > self.catalogue.max_frame_bytes \
+                or crc16_ibm3740(frame[:-2]) != int.from_bytes(frame[-2:], "big"):
+            self._bad_rx()
+            return
+        type_id, seq = frame[0], frame[1]
+        mdef = self.catalogue.by_id(type_id)
+        if mdef is None or mdef.direction != "host":
+            self._reply(type_id, seq, "unknown_command")
+            return
+        try:
+            values = decode_payload(mdef, frame[2:-2])
+        except FrameError:
+            self._reply(type_id, seq, "bad_length")
+            return
+        getattr(self, f"_cmd_{mdef.name}")(type_id, seq, values)
+
+    def _cmd_identify(self, type_id: int, seq: int, values: dict) -> None:
+        self._reply(type_id, seq, "ok")
+        self._send("identity", self._identity_values())
+
+    def _cmd_ping(self, type_id: int, seq: int, values: dict) -> None:
+        self._reply(type_id, seq, "ok")
+        self._send("pong", {"token": values["token"], "tick": self.tick & 0xFFFFFFFF})
+
+    def _cmd_configure(self, type_id: int, seq: int, values: dict) -> None:
+        s = self._stream
+        if s.streaming:
+            self._reply(type_id, seq, "busy")
+            return
+        rate, channels, edge = values["rate_hz"], values["channels"], values["tach_edge"]
+        if not (100 <= rate <= 5000 and channels in (1, 2) and edge in (0, 1)
+                and TICK_HZ % (rate * channels) == 0 and TICK_HZ // (rate * channels) <= 0xFFFF):
+            self._reply(type_id, seq, "bad_value")
+            return
+        s.rate_hz, s.channels, s.tach_edge = rate, channels, edge
+        self._reply(type_id, seq, "ok")
+        self._send("stream_config", self._stream_config_values())
+
+    def _cmd_start(self, type_id: int, seq: int, values: dict) -> None:
+        s = self._stream
+        if s.streaming:
+            self._reply(type_id, seq, "busy")
+            return
+        s.streaming = True
+        s.start_tick = self.tick + START_DELAY_TICKS
+        s.next_index = 0
+        s.pending = []
+        s.pending_first = 0
+        self._reply(type_id, seq, "ok")
+        self._send("stream_config", self._stream_config_values())
+
+    def _cmd_stop(self, type_id: int, seq: int, values: dict) -> None:
+        s = self._stream
+        if not s.streaming:
+            self._reply(type_id, seq, "not_streaming")
+            return
+        self._flush_samples(final=True)
+        s.streaming = False
+        self._reply(type_id, seq, "ok")
+
+    def _flush_samples(self, final: bool) -> None:
+        """Send full blocks; at the end of a stream also the last whole channel sets (a set
+        cut by the stop command is not sent: it was never complete)."""
+        s = self._stream
+        block = MAX_BLOCK_SAMPLES - MAX_BLOCK_SAMPLES % s.channels
+        if final:
+            del s.pending[len(s.pending) - len(s.pending) % s.channels:]
+        while len(s.pending) >= block or (final and s.pending):
+            chunk = s.pending[:block]
+            s.pending = s.pending[block:]
+            self._send("samples", {"first_index": s.pending_first & 0xFFFFFFFF,
+                                   "channels": s.channels, "samples": chunk})
+            s.pending_first += len(chunk)
+
+    # --- physics over one generation step ----------------------------------------------------
+
+    def _target_omega(self, t_s: float) -> float:
+        """Where the drive pulls the shaft speed at time ``t_s`` (slip wander / drift)."""
+        if not self.running:
+            return 0.0
+        motor = self.scenario.motor
+        wander = 0.7 * math.sin(TWO_PI * t_s / motor.drift_period_s + self._drift_phases[0]) \
+            + 0.3 * math.sin(TWO_PI * t_s / (0.37 * motor.drift_period_s) + self._drift_phases[1])
+        base = rpm_to_rad_s(self.target_speed_rpm)
+        if motor.kind == "variable":
+            return base * (1.0 + motor.drift_fraction * wander)
+        # induction: speed below synchronous by the slip, the slip follows the load wander
+        synchronous = rpm_to_rad_s(120.0 * motor.mains_hz / motor.poles * motor.pulley_ratio)
+        slip_now = (1.0 - base / synchronous) * (1.0 + motor.load_wander * wander)
+        return synchronous * (1.0 - slip_now)
+
+    def _next_omega(self, omega: float, dt_s: float, t_end_s: float) -> float:
+        motor = self.scenario.motor
+        target = self._target_omega(t_end_s)
+        if self.running:
+            tau = max(motor.spin_up_s / 4.0, 1e-3)
+            return target + (omega - target) * math.exp(-dt_s / tau)
+        # coast-down: windage (proportional) plus bearing friction (constant) -> stops in time
+        tau = max(motor.coast_down_s / 2.0, 1e-3)
+        friction = rpm_to_rad_s(self.scenario.speed_rpm) / (2.0 * motor.coast_down_s)
+        new = omega * math.exp(-dt_s / tau) - friction * dt_s
+        return new if new > STANDSTILL_RAD_S else 0.0
+
+    def _pickup_phasors_v(self, omega: float) -> np.ndarray:
+        """1x volts phasors (project convention) at each channel for the present weights."""
+        key = (round(omega, 3), tuple(self.all_masses()))
+        if self._response_cache is not None and self._response_cache[:2] == key:
+            return self._response_cache[2]
+        sc = self.scenario
+        if omega <= 0:
+            volts = np.zeros(len(sc.rotor.pickups), dtype=complex)
+        else:
+            resp = sc.rotor.response_1x(omega * 60.0 / TWO_PI, list(key[1]))
+            volts = np.array([sc.pickup_volts(resp[p.name], i)
+                              for i, p in enumerate(sc.rotor.pickups)])
+        self._response_cache = (key[0], key[1], volts)
+        return volts
+
+    def _step(self, n_ticks: int) -> None:
+        t0_tick = self.tick
+        t1_tick = t0_tick + n_ticks
+        dt_s = n_ticks / TICK_HZ
+        omega0 = self._omega
+        omega1 = self._next_omega(omega0, dt_s, (t1_tick - self._boot_tick) / TICK_HZ)
+        accel = (omega1 - omega0) / dt_s
+        theta0 = self._theta
+
+        def theta_at(tick: np.ndarray | int) -> np.ndarray:
+            tau = (np.asarray(tick, dtype=np.float64) - t0_tick) / TICK_HZ
+            return theta0 + omega0 * tau + 0.5 * accel * tau * tau
+
+        events: list[tuple[int, int, str, dict]] = []  # (tick, order, name, values)
+        self._tach_events(t0_tick, t1_tick, theta0, omega0, accel, events)
+        s = self._stream
+        if s.streaming:
+            self._sample_events(t0_tick, t1_tick, theta_at, 0.5 * (omega0 + omega1), events)
+        while self._next_status_tick < t1_tick:
+            events.append((self._next_status_tick, 2, "status", {}))
+            self._next_status_tick += STATUS_PERIOD_TICKS
+        events.sort(key=lambda e: (e[0], e[1]))
+        for tick, _, name, values in events:
+            if name == "status":
+                self._send("status", self._status_values(tick))
+            elif name == "samples":
+                self._send("samples", values)
+            else:
+                self._send(name, values)
+        self._theta = float(theta_at(t1_tick)) % TWO_PI if omega1 or omega0 else self._theta
+        self._omega = omega1
+        self.tick = t1_tick
+
+    def _tach_events(self, t0_tick: int, t1_tick: int, theta0: float, omega0: float,
+                     accel: float, events: list) -> None:
+        if omega0 <= 0 and accel <= 0:
+            return
+        mark = 0.0 if self._stream.tach_edge == 1 else math.radians(
+            self.scenario.signals.tach_mark_width_deg)
+        dt = (t1_tick - t0_tick) / TICK_HZ
+        theta1 = theta0 + omega0 * dt + 0.5 * accel * dt * dt
+        k_first = math.floor((theta0 - mark) / TWO_PI) + 1  # edges after theta0, up to theta1
+        k_last = math.floor((theta1 - mark) / TWO_PI)
+        jitter_s = self.scenario.signals.tach_jitter_us * 1e-6 * self.options.noise_scale
+        for k in range(k_first, k_last + 1):
+            delta = k * TWO_PI + mark - theta0
+            if delta < 0:
+                continue
+            root = omega0 * omega0 + 2.0 * accel * delta
+            tau = 2.0 * delta / (omega0 + math.sqrt(max(root, 0.0))) if omega0 + math.sqrt(
+                max(root, 0.0)) > 0 else 0.0
+            if jitter_s:
+                tau += float(self.rng.normal(0.0, jitter_s))
+            tick = t0_tick + max(0, min(int(round(tau * TICK_HZ)), t1_tick - t0_tick - 1))
+            self._edges_seen += 1
+            events.append((tick, 0, "tach", {"tick": tick & 0xFFFFFFFF,
+                                             "edge_count": self._edges_seen & 0xFFFF}))
+
+    def _sample_events(self, t0_tick: int, t1_tick: int, theta_at, omega: float,
+                       events: list) -> None:
+        s = self._stream
+        period = s.period_ticks
+        first = max(s.next_index, -(-(t0_tick - s.start_tick) // period))
+        last = (t1_tick - 1 - s.start_tick) // period  # inclusive
+        if last < first:
+            return
+        index = np.arange(first, last + 1, dtype=np.int64)
+        ticks = s.start_tick + index * period
+        volts = self._voltages(index % s.channels, ticks, theta_at(ticks), omega)
+        counts = np.clip(np.rint(volts / ADC_REFERENCE_V * ADC_FULL_SCALE_COUNTS), 0,
+                         ADC_FULL_SCALE_COUNTS).astype(int)
+        block = MAX_BLOCK_SAMPLES - MAX_BLOCK_SAMPLES % s.channels
+        s.next_index = last + 1
+        for i, c in zip(index.tolist(), counts.tolist(), strict=True):
+            if not s.pending:
+                s.pending_first = i
+            s.pending.append(c)
+            if len(s.pending) == block:
+                events.append((s.start_tick + i * period, 1, "samples",
+                               {"first_index": s.pending_first & 0xFFFFFFFF,
+                                "channels": s.channels, "samples": s.pending}))
+                s.pending = []
+                s.pending_first = i + 1
+
+    def _voltages(self, channel: np.ndarray, ticks: np.ndarray, theta: np.ndarray,
+                  omega: float) -> np.ndarray:
+        sc = self.scenario
+        sig = sc.signals
+        scale = self.options.noise_scale
+        t_s = ticks.astype(np.float64) / TICK_HZ
+        out = np.zeros(len(ticks))
+        one_x = self._pickup_phasors_v(omega)
+        speed_ratio_sq = (omega / rpm_to_rad_s(sc.speed_rpm)) ** 2
+        line = sc.motor.mains_hz
+        for ch in range(int(channel.max()) + 1 if len(channel) else 0):
+            sel = channel == ch
+            th = theta[sel]
+            if ch >= len(sc.electrical):  # an input with nothing connected: mid-rail and noise
+                out[sel] = ADC_REFERENCE_V / 2 + self.rng.normal(0, 0.002 * scale, th.size)
+                continue
+            el = sc.electrical[ch]
+            v_per_g = el.sensitivity_v_per_g
+            p = one_x[ch]
+            # A cos(theta - phi) with the project phasor A e^{i phi}
+            v = el.zero_g_v + np.abs(p) * np.cos(th - np.angle(p))
+            for k, h in enumerate(sig.harmonics + sig.tones):
+                amp_v = h.amplitude_g * v_per_g * scale
+                if not amp_v:
+                    continue
+                ph = math.radians(h.phase_deg) + 0.7 * ch + (0.0 if k < len(sig.harmonics)
+                                                             else self._tone_phases[k % 8])
+                if h.hz is not None:
+                    v = v + amp_v * np.cos(TWO_PI * h.hz * t_s[sel] - ph)
+                else:
+                    v = v + amp_v * speed_ratio_sq * np.cos(h.order * th - ph)
+            v = v + scale * sig.hum_line_v * np.cos(TWO_PI * line * t_s[sel] + 0.3 * ch)
+            v = v + scale * sig.hum_double_v * np.cos(TWO_PI * 2 * line * t_s[sel] + 1.1 + ch)
+            if sig.noise_rms_g and scale:
+                v = v + self.rng.normal(0.0, sig.noise_rms_g * v_per_g * scale, th.size)
+            out[sel] = v
+        return out
+
+    def _status_values(self, tick: int) -> dict:
+        return {"uptime_ms": ((tick - self._boot_tick) * 1000 // TICK_HZ) & 0xFFFFFFFF,
+                "state": STATES["streaming" if self._stream.streaming else "idle"],
+                "samples_dropped": self._counters["samples_dropped"],
+                "frames_dropped": self._counters["frames_dropped"],
+                "adc_overruns": self._counters["adc_overruns"],
+                "tach_edges": self._edges_seen & 0xFFFFFFFF,
+                "rx_bad_frames": self._counters["rx_bad_frames"] & 0xFFFF,
+                "last_error": self._last_error}
+
+
+def volts_to_counts(volts: float) -> float:
+    """ADC counts (not rounded) for a voltage: 10 bits over the 5 V reference."""
+    return volts / ADC_REFERENCE_V * ADC_FULL_SCALE_COUNTS
+
+
+def accel_to_g(accel_m_s2: float) -> float:
+    return accel_m_s2 / STANDARD_GRAVITY_M_S2

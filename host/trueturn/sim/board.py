@@ -33,8 +33,13 @@ from trueturn.link.catalogue import load_catalogue
 from trueturn.link.cobs import CobsError, cobs_decode
 from trueturn.link.codec import FrameError, decode_payload, encode_frame
 from trueturn.link.crc import crc16_ibm3740
-from trueturn.sim.rotor import STANDARD_GRAVITY_M_S2, Mass, rpm_to_rad_s
-from trueturn.sim.scenario import ADC_FULL_SCALE_COUNTS, ADC_REFERENCE_V, Scenario
+from trueturn.sim.rotor import Mass, rpm_to_rad_s
+from trueturn.sim.scenario import (
+    ADC_COUNTS_PER_REFERENCE,
+    ADC_MAX_COUNT,
+    ADC_REFERENCE_V,
+    Scenario,
+)
 
 TICK_HZ = 2_000_000
 BOARD_ID_SIMULATED = 2
@@ -42,6 +47,7 @@ FIRMWARE_VERSION = (0, 1, 0)
 MAX_BLOCK_SAMPLES = 120
 DEFAULT_RATE_HZ = 4000
 DEFAULT_CHANNELS = 2
+MIN_PERIOD_TICKS = 200  # protocol/SPEC.md 4.8
 STEP_TICKS = 20_000  # 10 ms of simulated time per generation step
 STATUS_PERIOD_TICKS = TICK_HZ
 START_DELAY_TICKS = 200  # first conversion of a stream, after the start command
@@ -312,7 +318,8 @@ class VirtualBoard:
             return
         rate, channels, edge = values["rate_hz"], values["channels"], values["tach_edge"]
         if not (100 <= rate <= 5000 and channels in (1, 2) and edge in (0, 1)
-                and TICK_HZ % (rate * channels) == 0 and TICK_HZ // (rate * channels) <= 0xFFFF):
+                and TICK_HZ % (rate * channels) == 0
+                and MIN_PERIOD_TICKS <= TICK_HZ // (rate * channels) <= 0xFFFF):
             self._reply(type_id, seq, "bad_value")
             return
         s.rate_hz, s.channels, s.tach_edge = rate, channels, edge
@@ -468,8 +475,8 @@ class VirtualBoard:
         index = np.arange(first, last + 1, dtype=np.int64)
         ticks = s.start_tick + index * period
         volts = self._voltages(index % s.channels, ticks, theta_at(ticks), omega)
-        counts = np.clip(np.rint(volts / ADC_REFERENCE_V * ADC_FULL_SCALE_COUNTS), 0,
-                         ADC_FULL_SCALE_COUNTS).astype(int)
+        counts = np.clip(np.rint(volts / ADC_REFERENCE_V * ADC_COUNTS_PER_REFERENCE), 0,
+                         ADC_MAX_COUNT).astype(int)
         block = MAX_BLOCK_SAMPLES - MAX_BLOCK_SAMPLES % s.channels
         s.next_index = last + 1
         for i, c in zip(index.tolist(), counts.tolist(), strict=True):
@@ -532,10 +539,3 @@ class VirtualBoard:
                 "last_error": self._last_error}
 
 
-def volts_to_counts(volts: float) -> float:
-    """ADC counts (not rounded) for a voltage: 10 bits over the 5 V reference."""
-    return volts / ADC_REFERENCE_V * ADC_FULL_SCALE_COUNTS
-
-
-def accel_to_g(accel_m_s2: float) -> float:
-    return accel_m_s2 / STANDARD_GRAVITY_M_S2

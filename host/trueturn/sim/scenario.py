@@ -26,7 +26,9 @@ from trueturn.sim.rotor import (
 )
 
 ADC_REFERENCE_V = 5.0
-ADC_FULL_SCALE_COUNTS = 1023
+# ATmega328P datasheet, ADC conversion result: ADC = Vin * 1024 / Vref, at most 1023.
+ADC_COUNTS_PER_REFERENCE = 1024
+ADC_MAX_COUNT = 1023
 
 
 @dataclass(frozen=True)

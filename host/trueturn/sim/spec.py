@@ -17,7 +17,7 @@ from trueturn.angles import amplitude_phase
 from trueturn.errors import UserError
 from trueturn.sim.rotor import STANDARD_GRAVITY_M_S2, Mass
 from trueturn.sim.scenario import (
-    ADC_FULL_SCALE_COUNTS,
+    ADC_COUNTS_PER_REFERENCE,
     ADC_REFERENCE_V,
     Scenario,
     load_scenario,
@@ -58,14 +58,14 @@ def exact_1x(scenario: Scenario, speed_rpm: float | None = None,
         amp, phase = amplitude_phase(resp[p.name])
         volts = abs(scenario.pickup_volts(amp, ch))
         out.append(Exact1x(p.name, ch, speed, amp, amp / STANDARD_GRAVITY_M_S2, volts,
-                           volts / ADC_REFERENCE_V * ADC_FULL_SCALE_COUNTS, phase))
+                           volts / ADC_REFERENCE_V * ADC_COUNTS_PER_REFERENCE, phase))
     return out
 
 
 _OVERRIDES = {"speed_rpm", "seed", "masses", "noise_scale", "first_edge_s"}
 
 
-def signal_spec(scenario_name: str, channels: int = 2, **overrides: Any) -> dict[str, Any]:
+def signal_spec(scenario_name: str | Scenario, channels: int = 2, **overrides: Any) -> dict[str, Any]:
     """The steady signal spec (JSON-ready dict) of a scenario for the emulator harness.
 
     Overrides: ``speed_rpm``, ``seed``, ``masses`` (list of :class:`Mass`, replaces the

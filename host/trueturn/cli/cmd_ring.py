@@ -1,11 +1,54 @@
-"""`trueturn ring`: print a 1:1 angle ring for a rotor."""
+"""`trueturn ring`: write a printable 1:1 angle ring (SVG) for a rotor face or rim."""
 
 from __future__ import annotations
 
 import argparse
+import math
+import sys
 
-from trueturn.cli.common import add_not_ready
+from trueturn.errors import UserError
 
 
 def add_parser(sub: argparse._SubParsersAction) -> None:
-    add_not_ready(sub, "ring", "print a 1:1 angle ring for a rotor", 7)
+    parser = sub.add_parser(
+        "ring", help="write a printable 1:1 angle ring for a rotor (SVG)",
+        description="Write an SVG angle ring to print at 100 %% and lay on the rotor: 0 deg at "
+                    "the reference mark, degree ticks, the weight positions numbered against "
+                    "rotation, and a 100 mm box to check the printed scale.")
+    parser.add_argument("--diameter-mm", type=float, required=True, metavar="D",
+                        help="outer diameter of the ring = rotor face or rim diameter, mm")
+    parser.add_argument("--positions", type=int, required=True, metavar="N",
+                        help="number of equally spaced weight positions")
+    parser.add_argument("--first-deg", type=float, default=0.0, metavar="DEG",
+                        help="angle of position 1 from the reference mark (default 0)")
+    parser.add_argument("--rotation", choices=("cw", "ccw"), default="cw",
+                        help="which way the rotor turns, seen looking at the face the ring "
+                             "goes on (default cw)")
+    parser.add_argument("--title", default="", help="a line of text printed on the ring")
+    parser.add_argument("-o", "--output", default="ring.svg", metavar="FILE",
+                        help="SVG file to write (default ring.svg; '-' for standard output)")
+    parser.set_defaults(run=run)
+
+
+def run(args: argparse.Namespace) -> int:
+    from trueturn.jobs.ring import ring_svg
+    from trueturn.jobs.store import atomic_write_text
+
+    if not math.isfinite(args.diameter_mm) or not 10.0 <= args.diameter_mm <= 2000.0:
+        raise UserError(f"--diameter-mm {args.diameter_mm:g}: must be between 10 and 2000 mm")
+    if not 1 <= args.positions <= 360:
+        raise UserError(f"--positions {args.positions}: must be between 1 and 360")
+    if not math.isfinite(args.first_deg):
+        raise UserError("--first-deg must be a number of degrees")
+    text, layout = ring_svg(args.diameter_mm, args.positions, args.first_deg, args.rotation,
+                            args.title)
+    if args.output == "-":
+        sys.stdout.write(text)
+    else:
+        atomic_write_text(args.output, text)
+        print(f"wrote {args.output}: {layout.width_mm:.0f} x {layout.height_mm:.0f} mm, "
+              f"positions {layout.spacing_mm:.2f} mm apart on the rim; print at 100 %",
+              file=sys.stderr)
+    if not layout.fits_a4_and_letter:
+        print("note: larger than an A4/Letter sheet; print as tiles at 100 %", file=sys.stderr)
+    return 0

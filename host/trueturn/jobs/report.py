@@ -1,0 +1,566 @@
+"""Job reports: a self-contained HTML page with inline SVG plots, a Markdown variant, a CSV.
+
+The report shows what the job stores (readings, corrections, verdict); it computes nothing
+but unit conversions and plot geometry. The HTML uses no network resources and no scripts;
+its print styles fit A4 (210 mm) and US Letter (216 mm) paper with 12 mm margins.
+
+Plot orientation: 0 deg at the top; angles grow against rotation as seen from the pickup side
+(host/trueturn/angles.py), so a rotor turning clockwise has its angles drawn counter-clockwise.
+"""
+
+from __future__ import annotations
+
+import csv
+import html
+import io
+import math
+from collections.abc import Iterable, Sequence
+
+from trueturn.jobs.profiles import (
+    MachineProfile,
+    convert_vibration,
+    format_length,
+    format_mass,
+)
+from trueturn.jobs.records import JobRecord, Reading, Run
+
+#: Okabe & Ito (2008) colour-blind-safe palette; one colour per run, in order.
+RUN_COLOURS = ("#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#000000")
+
+CAUTIONS = (
+    "Before every hands-on step the rotor must be at a standstill confirmed by the tach, the "
+    "machine switched off and isolated from power (unplugged or locked out), and the step "
+    "confirmed in the tool.",
+    "Fasten every weight so it cannot come loose: a thrown weight is a projectile. Stand out of "
+    "the plane of rotation when starting the machine, and wear eye protection.",
+    "Never run above the machine's maximum speed or the rated speed of any wheel, blade or "
+    "cutter on it. Keep every guard in place for runs.",
+    "Check that parts, clamps and fasteners clear guards and housings before the first turn by "
+    "hand.",
+    "This report records measurements; it does not certify a machine as safe. The machine's "
+    "manufacturer, local codes and licensed practice take precedence over anything here.",
+)
+
+_RUN_KIND_NAMES = {"initial": "initial", "trial": "trial weight", "correction": "correction",
+                   "trim": "trim", "check": "check"}
+
+
+def _e(text: object) -> str:
+    return html.escape(str(text), quote=True)
+
+
+def _deg(angle_deg: float) -> str:
+    return f"{angle_deg:.0f}\u00b0" if abs(angle_deg - round(angle_deg)) < 0.05 else f"{angle_deg:.1f}\u00b0"
+
+
+def reading_text(reading: Reading, machine: MachineProfile) -> tuple[str, str]:
+    """(amplitude with unit, phase with confidence) in the person's chosen units."""
+    amplitude, unit = convert_vibration(reading.amplitude, reading.unit, machine.units.vibration)
+    digits = 3 if amplitude < 10 else 1
+    return (f"{amplitude:.{digits}f} {unit}",
+            f"{_deg(reading.phase_deg)} \u00b1 {reading.confidence_deg:.1f}\u00b0")
+
+
+def _reduction(before: Reading, after: Reading) -> str:
+    """Change of amplitude from before to after, in percent (only when the units agree)."""
+    b, _ = convert_vibration(before.amplitude, before.unit, "mm/s")
+    a, _ = convert_vibration(after.amplitude, after.unit, "mm/s")
+    if before.unit != after.unit and {before.unit, after.unit} != {"mm/s", "in/s"}:
+        return "-"
+    if b <= 0:
+        return "-"
+    return f"{(a - b) / b * 100:+.0f} %"
+
+
+# --------------------------------------------------------------------------------------------
+# SVG
+
+
+def _xy(cx: float, cy: float, r: float, angle_deg: float, rotation: str) -> tuple[float, float]:
+    """Point at ``angle_deg`` (against rotation) on a circle, 0 at the top, seen from the
+    pickup side: for a clockwise rotor the angle grows counter-clockwise on paper."""
+    sign = -1.0 if rotation == "cw" else 1.0
+    a = math.radians(angle_deg)
+    return cx + sign * r * math.sin(a), cy - r * math.cos(a)
+
+
+def _nice_step(span: float) -> float:
+    """A 1-2-5 step giving about four rings for ``span``."""
+    raw = span / 4.0
+    power = 10 ** math.floor(math.log10(raw))
+    for factor in (1, 2, 2.5, 5, 10):
+        if factor * power >= raw:
+            return factor * power
+    return 10 * power
+
+
+def confidence_radius(amplitude: float, confidence_deg: float) -> float:
+    """Radius of the circle around a vector's tip that spans its phase confidence: A*sin(c).
+
+    Common practice, no source: a circle of this radius is seen from the origin under
+    +/- ``confidence_deg``; for 90 deg or more it reaches the origin (radius A).
+    """
+    return amplitude * math.sin(math.radians(min(confidence_deg, 90.0)))
+
+
+def polar_svg(job: JobRecord, sensor: str, size_px: int = 320) -> str:
+    """Polar plot of every run's 1x vector of ``sensor`` with its confidence circle."""
+    machine = job.machine
+    rotation = machine.rotation
+    points: list[tuple[Run, float, float, float, str]] = []
+    unit = machine.units.vibration
+    for run in job.runs:
+        reading = run.reading(sensor)
+        if reading is None:
+            continue
+        amplitude, unit = convert_vibration(reading.amplitude, reading.unit, machine.units.vibration)
+        points.append((run, amplitude, reading.phase_deg,
+                       confidence_radius(amplitude, reading.confidence_deg), unit))
+    extent = max([a + c for _, a, _, c, _ in points] + [1e-9])
+    step = _nice_step(extent)
+    rings = max(1, math.ceil(extent / step))
+    full = rings * step
+    c = size_px / 2
+    plot_r = c - 34
+    scale = plot_r / full
+    out = [f'<svg xmlns="http://www.w3.org/2000/svg" class="polar" viewBox="0 0 {size_px} '
+           f'{size_px + 18}" role="img" aria-label="1x vectors of {_e(sensor)}">',
+           f'<title>1x vectors, {_e(sensor)}</title>']
+    for k in range(1, rings + 1):
+        out.append(f'<circle cx="{c:.1f}" cy="{c:.1f}" r="{k * step * scale:.2f}" '
+                   f'fill="none" stroke="#bbb" stroke-width="0.7"/>')
+        lx, ly = _xy(c, c, k * step * scale, 45.0 if rotation == "ccw" else 315.0, "ccw")
+        out.append(f'<text x="{lx + 2:.1f}" y="{ly - 2:.1f}" class="tick">{k * step:g}</text>')
+    for angle in range(0, 360, 30):
+        x1, y1 = _xy(c, c, 0, angle, rotation)
+        x2, y2 = _xy(c, c, plot_r, angle, rotation)
+        out.append(f'<line x1="{x1:.1f}" y1="{y1:.1f}" x2="{x2:.1f}" y2="{y2:.1f}" '
+                   f'stroke="#ddd" stroke-width="0.7"/>')
+        tx, ty = _xy(c, c, plot_r + 14, angle, rotation)
+        out.append(f'<text x="{tx:.1f}" y="{ty + 4:.1f}" text-anchor="middle" '
+                   f'class="tick">{angle}\u00b0</text>')
+    for i, (run, amplitude, phase_deg, conf_r, _) in enumerate(points):
+        colour = RUN_COLOURS[i % len(RUN_COLOURS)]
+        tx, ty = _xy(c, c, amplitude * scale, phase_deg, rotation)
+        out.append(f'<g class="run-vector" data-run="{run.index}">')
+        out.append(f'<circle class="confidence" cx="{tx:.2f}" cy="{ty:.2f}" '
+                   f'r="{max(conf_r * scale, 0.8):.2f}" fill="{colour}" fill-opacity="0.15" '
+                   f'stroke="{colour}" stroke-width="0.8"/>')
+        out.append(f'<line x1="{c:.1f}" y1="{c:.1f}" x2="{tx:.2f}" y2="{ty:.2f}" '
+                   f'stroke="{colour}" stroke-width="2"/>')
+        out.append(f'<circle cx="{tx:.2f}" cy="{ty:.2f}" r="2.5" fill="{colour}"/>')
+        lx, ly = _xy(c, c, amplitude * scale + 9, phase_deg, rotation)
+        out.append(f'<text x="{lx:.1f}" y="{ly + 4:.1f}" text-anchor="middle" '
+                   f'class="label" fill="{colour}">{run.index}</text>')
+        out.append("</g>")
+    arrow = "\u21bb" if rotation == "cw" else "\u21ba"
+    out.append(f'<text x="4" y="{size_px + 12}" class="tick">{_e(unit)}; rotor turns {arrow} '
+               f'({rotation}) seen from the pickup side</text>')
+    out.append("</svg>")
+    return "\n".join(out)
+
+
+def plane_svg(job: JobRecord, plane_name: str, size_px: int = 240) -> str:
+    """The plane seen from the pickup side: reference mark, positions, parts on the rotor."""
+    machine = job.machine
+    plane = machine.plane(plane_name)
+    rotation = machine.rotation
+    c = size_px / 2
+    r = c - 30
+    out = [f'<svg xmlns="http://www.w3.org/2000/svg" class="plane" viewBox="0 0 {size_px} '
+           f'{size_px}" role="img" aria-label="parts on {_e(plane_name)}">',
+           f'<title>Parts on {_e(plane_name)}</title>',
+           f'<circle cx="{c}" cy="{c}" r="{r}" fill="none" stroke="#555" stroke-width="1.2"/>',
+           f'<circle cx="{c}" cy="{c}" r="3" fill="#555"/>']
+    mx, my = _xy(c, c, r + 4, 0.0, rotation)
+    out.append(f'<path d="M {mx:.1f} {my:.1f} l -6 -10 l 12 0 z" fill="#000"/>')
+    out.append(f'<text x="{mx:.1f}" y="{my - 13:.1f}" text-anchor="middle" class="tick">'
+               f'mark 0\u00b0</text>')
+    for k, angle in enumerate(plane.layout.position_angles_deg()):
+        x1, y1 = _xy(c, c, r - 5, angle, rotation)
+        x2, y2 = _xy(c, c, r + 5, angle, rotation)
+        out.append(f'<line x1="{x1:.1f}" y1="{y1:.1f}" x2="{x2:.1f}" y2="{y2:.1f}" '
+                   f'stroke="#555" stroke-width="1"/>')
+        tx, ty = _xy(c, c, r - 14, angle, rotation)
+        out.append(f'<text x="{tx:.1f}" y="{ty + 3:.1f}" text-anchor="middle" '
+                   f'class="tick">{k + 1}</text>')
+    for part in job.parts_on_rotor():
+        if part.plane != plane_name:
+            continue
+        px, py = _xy(c, c, r, part.angle_deg, rotation)
+        lx, ly = _xy(c, c, r + 18, part.angle_deg, rotation)
+        colour = "#D55E00" if part.purpose == "trial" else "#0072B2"
+        out.append(f'<circle class="part" cx="{px:.1f}" cy="{py:.1f}" r="5" fill="{colour}"/>')
+        out.append(f'<text x="{lx:.1f}" y="{ly + 3:.1f}" text-anchor="middle" class="label">'
+                   f'{_e(format_mass(part.mass_g, machine.units.mass))}</text>')
+    out.append("</svg>")
+    return "\n".join(out)
+
+
+# --------------------------------------------------------------------------------------------
+# Tables shared by HTML and Markdown
+
+
+def _machine_rows(job: JobRecord) -> list[tuple[str, str]]:
+    m = job.machine
+    u = m.units
+    planes = "; ".join(
+        f"{p.name}: radius {format_length(p.radius_mm, u.length)}, "
+        f"at {format_length(p.axial_position_mm, u.length)}, " + (
+            f"{p.layout.positions} positions from {_deg(p.layout.offset_deg)}"
+            if p.layout.kind == "equal" else
+            f"positions at {', '.join(_deg(a) for a in p.layout.angles_deg)}"
+            if p.layout.kind == "angles" else "free placement")
+        for p in m.planes)
+    pickups = "; ".join(f"{p.name}: {p.direction}, {p.sensitivity_mv_per_g:g} mV/g"
+                        + (f", {p.mounting}" if p.mounting else "") for p in m.pickups)
+    return [
+        ("Machine", m.name),
+        ("Rotor", f"{m.rotor_kind}, {m.rotor_mass_kg:g} kg"),
+        ("Speed", f"{m.speed_min_rpm:g}-{m.speed_max_rpm:g} rpm, never above "
+                  f"{m.max_speed_rpm:g} rpm"),
+        ("Rotation", f"{m.rotation} seen from the pickup side; angles from the reference "
+                     "mark against rotation"),
+        ("Correction planes", planes),
+        ("Pickups", pickups),
+        ("Tach", f"{m.tach.edge} edge, {m.tach.marks_per_rev} mark(s) per rev"
+                 + (f", {m.tach.mark}" if m.tach.mark else "")),
+        ("Mains", f"{m.mains_hz} Hz"),
+        ("Target grade", f"G {m.target_grade:g} (ISO 21940-11)"),
+    ]
+
+
+def _job_rows(job: JobRecord) -> list[tuple[str, str]]:
+    rows = [("Job", job.job_id), ("Status", job.status), ("Method", job.method),
+            ("Started", job.created), ("Last saved", job.updated or job.created)]
+    if job.speed_rpm:
+        rows.append(("Balancing speed", f"{job.speed_rpm:g} rpm"))
+    if job.operator:
+        rows.append(("Operator", job.operator))
+    if job.customer:
+        rows.append(("For", job.customer))
+    return rows
+
+
+def before_after_rows(job: JobRecord) -> list[list[str]]:
+    """Per pickup: before (first run) and after (last run) amplitude and phase, and the change."""
+    rows = []
+    if not job.runs:
+        return rows
+    first, last = job.runs[0], job.runs[-1]
+    for pickup in job.machine.pickups:
+        before = first.reading(pickup.name)
+        after = last.reading(pickup.name) if len(job.runs) > 1 else None
+        b = reading_text(before, job.machine) if before else ("-", "-")
+        a = reading_text(after, job.machine) if after else ("-", "-")
+        change = _reduction(before, after) if before and after else "-"
+        rows.append([pickup.name, b[0], b[1], a[0], a[1], change])
+    return rows
+
+
+def run_rows(job: JobRecord) -> tuple[list[str], list[list[str]]]:
+    sensors = [p.name for p in job.machine.pickups]
+    header = ["Run", "Time", "What", "Speed"] + sensors + ["Revs"]
+    rows = []
+    for run in job.runs:
+        cells = [str(run.index), run.time, run.label or _RUN_KIND_NAMES[run.kind],
+                 f"{run.speed_rpm:g} rpm"]
+        revs = []
+        for s in sensors:
+            reading = run.reading(s)
+            if reading is None:
+                cells.append("-")
+                continue
+            amp, phase = reading_text(reading, job.machine)
+            cells.append(f"{amp} at {phase}")
+            revs.append(str(reading.revolutions))
+        cells.append("/".join(dict.fromkeys(revs)) or "-")
+        rows.append(cells)
+    return header, rows
+
+
+def change_rows(job: JobRecord) -> list[list[str]]:
+    u = job.machine.units
+    rows = []
+    for run in job.runs:
+        for ch in run.changes:
+            rows.append([f"before run {run.index}", ch.action, ch.purpose, ch.plane,
+                         format_mass(ch.mass_g, u.mass), _deg(ch.angle_deg),
+                         str(ch.position) if ch.position else "-",
+                         format_length(ch.radius_mm, u.length) if ch.radius_mm else "-",
+                         ch.part or "-"])
+    if job.pending is not None:
+        for ch in job.pending.changes:
+            rows.append(["pending", ch.action, ch.purpose, ch.plane, format_mass(ch.mass_g, u.mass),
+                         _deg(ch.angle_deg), str(ch.position) if ch.position else "-",
+                         format_length(ch.radius_mm, u.length) if ch.radius_mm else "-",
+                         ch.part or "-"])
+    return rows
+
+
+def correction_rows(job: JobRecord) -> list[list[str]]:
+    u = job.machine.units
+    rows = []
+    for run in job.runs:
+        for corr in run.corrections:
+            split = ", ".join(f"{format_mass(s.mass_g, u.mass)} at position {s.position} "
+                              f"({_deg(s.angle_deg)})" for s in corr.split) or "-"
+            rows.append([f"after run {run.index}", corr.plane, corr.action,
+                         format_mass(corr.mass_g, u.mass), _deg(corr.angle_deg), split])
+    return rows
+
+
+def verdict_rows(job: JobRecord) -> list[list[str]]:
+    if job.verdict is None:
+        return []
+    rows = []
+    for pv in job.verdict.planes:
+        try:
+            radius = job.machine.plane(pv.plane).radius_mm
+            at_radius = (f" ({format_mass(pv.residual_gmm / radius, job.machine.units.mass)} at "
+                         f"{format_length(radius, job.machine.units.length)})")
+        except KeyError:
+            at_radius = ""
+        rows.append([pv.plane, f"{pv.residual_gmm:.1f} g\u00b7mm{at_radius}",
+                     f"{pv.permissible_gmm:.1f} g\u00b7mm", "within" if pv.passed else "OVER"])
+    return rows
+
+
+def confirmation_rows(job: JobRecord) -> list[list[str]]:
+    rows = []
+    groups: list[tuple[str, Iterable]] = [(f"before run {r.index}", r.confirmations)
+                                          for r in job.runs]
+    if job.pending is not None:
+        groups.append(("pending", job.pending.confirmations))
+    for where, confirmations in groups:
+        for c in confirmations:
+            tach = (f"yes ({c.tach_rpm:g} rpm)" if c.tach_rpm is not None else "yes") \
+                if c.standstill_by_tach else "NO"
+            rows.append([where, c.time, c.step, tach, c.text or "-"])
+    return rows
+
+
+def event_rows(job: JobRecord) -> list[list[str]]:
+    return [[f"run {r.index}", e.time, e.kind, e.detail or "-"] for r in job.runs
+            for e in r.events]
+
+
+def influence_rows(job: JobRecord) -> list[list[str]]:
+    if job.influence is None:
+        return []
+    u = job.influence.unit
+    return [[e.sensor, e.plane, f"{e.amp:.4g} {u} per g", _deg(e.phase_deg)]
+            for e in job.influence.entries]
+
+
+# --------------------------------------------------------------------------------------------
+# HTML
+
+_CSS = """
+:root { color-scheme: light; }
+body { font-family: "DejaVu Sans", "Helvetica Neue", Arial, sans-serif; font-size: 10pt;
+       color: #111; max-width: 186mm; margin: 8mm auto; line-height: 1.3; }
+h1 { font-size: 15pt; margin: 0 0 2mm 0; }
+h2 { font-size: 11.5pt; margin: 5mm 0 1.5mm 0; border-bottom: 0.4mm solid #444; }
+table { border-collapse: collapse; width: 100%; margin: 1mm 0 2mm 0; font-size: 8.5pt; }
+th, td { border: 0.25mm solid #bbb; padding: 0.6mm 1.4mm; text-align: left; vertical-align: top; }
+th { background: #eee; }
+table.kv th { width: 32mm; }
+.figures { display: flex; flex-wrap: wrap; gap: 3mm; }
+figure { margin: 0; width: 88mm; }
+figure.small { width: 58mm; }
+figure svg { width: 100%; height: auto; }
+figcaption { font-size: 8pt; color: #333; }
+svg text { font-family: "DejaVu Sans", Arial, sans-serif; }
+svg .tick { font-size: 9px; fill: #555; }
+svg .label { font-size: 11px; font-weight: bold; }
+.pass { color: #006b3c; font-weight: bold; }
+.fail { color: #b00020; font-weight: bold; }
+.cautions { border: 0.5mm solid #b00020; padding: 1mm 3mm; }
+.cautions li { margin: 0.5mm 0; }
+.note { font-size: 8.5pt; color: #333; }
+@page { margin: 12mm; }
+@media print {
+  body { margin: 0; max-width: none; }
+  h2 { break-after: avoid; }
+  table, figure, .cautions { break-inside: avoid; }
+  thead { display: table-header-group; }
+}
+"""
+
+
+def _html_table(header: Sequence[str], rows: Sequence[Sequence[str]], css_class: str = "") -> str:
+    cls = f' class="{css_class}"' if css_class else ""
+    head = "".join(f"<th>{_e(h)}</th>" for h in header)
+    body = "".join("<tr>" + "".join(f"<td>{_e(c)}</td>" for c in row) + "</tr>" for row in rows)
+    return f"<table{cls}><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>"
+
+
+def _html_kv(rows: Sequence[tuple[str, str]]) -> str:
+    body = "".join(f"<tr><th>{_e(k)}</th><td>{_e(v)}</td></tr>" for k, v in rows)
+    return f'<table class="kv"><tbody>{body}</tbody></table>'
+
+
+def _verdict_line(job: JobRecord) -> tuple[str, str]:
+    v = job.verdict
+    if v is None:
+        return "none", "No verdict recorded yet."
+    word = "meets" if v.passed else "does NOT meet"
+    return ("pass" if v.passed else "fail",
+            f"After run {v.after_run} at {v.speed_rpm:g} rpm the rotor {word} balance quality "
+            f"grade G {v.grade:g} ({v.standard}).")
+
+
+def html_report(job: JobRecord, generated: str = "") -> str:
+    """The whole report as one self-contained HTML page (polyglot: also well-formed XML)."""
+    m = job.machine
+    parts: list[str] = [
+        '<!DOCTYPE html>',
+        '<html xmlns="http://www.w3.org/1999/xhtml" lang="en">',
+        '<head><meta charset="utf-8"/>',
+        '<meta name="viewport" content="width=device-width, initial-scale=1"/>',
+        f'<title>Balancing report {_e(job.job_id)}</title>',
+        f'<style>{_CSS}</style></head>',
+        '<body>',
+        f'<h1>Balancing report: {_e(m.name)}</h1>',
+        f'<p class="note">Job {_e(job.job_id)}'
+        + (f"; report generated {_e(generated)}" if generated else "") + ' by trueturn.</p>',
+        '<h2>Machine and job</h2>',
+        '<div class="figures"><div style="flex:1 1 88mm">', _html_kv(_machine_rows(job)),
+        '</div><div style="flex:1 1 60mm">', _html_kv(_job_rows(job)), '</div></div>',
+    ]
+    css, line = _verdict_line(job)
+    parts += ['<h2>Result</h2>', f'<p id="verdict" class="{css}">{_e(line)}</p>']
+    rows = verdict_rows(job)
+    if rows:
+        parts.append(_html_table(["Plane", "Residual unbalance", "Permissible (U_per)",
+                                  "Verdict"], rows, "verdict"))
+        parts.append('<p class="note">Permissible residual unbalance per ISO 21940-11: '
+                     'U_per = 1000 \u00b7 G \u00b7 m / \u03c9 (g\u00b7mm, G in mm/s, m in kg, '
+                     '\u03c9 in rad/s), shared between the correction planes.'
+                     + (f" {_e(job.verdict.note)}" if job.verdict and job.verdict.note else "")
+                     + '</p>')
+    parts += ['<h2>Before and after</h2>',
+              _html_table(["Pickup", "Before", "Phase", "After", "Phase", "Change"],
+                          before_after_rows(job), "before-after")]
+    if job.runs:
+        figures = []
+        for pickup in m.pickups:
+            figures.append(f'<figure>{polar_svg(job, pickup.name)}<figcaption>1x vector of '
+                           f'{_e(pickup.name)} per run (numbers = run), circle = phase '
+                           f'confidence. 0\u00b0 at top.</figcaption></figure>')
+        parts += ['<div class="figures">', *figures, '</div>']
+    header, rows = run_rows(job)
+    parts += ['<h2>Runs</h2>', _html_table(header, rows, "runs")]
+    rows = correction_rows(job)
+    parts.append('<h2>Corrections and parts</h2>')
+    if rows:
+        parts.append(_html_table(["When", "Plane", "Action", "Mass", "Angle", "Split onto positions"],
+                                 rows, "corrections"))
+    rows = change_rows(job)
+    if rows:
+        parts.append(_html_table(["When", "Action", "Purpose", "Plane", "Mass", "Angle", "Position",
+                                  "Radius", "Part"], rows, "changes"))
+    if not job.runs and job.pending is None:
+        parts.append('<p>No runs recorded yet.</p>')
+    plane_figures = [f'<figure class="small">{plane_svg(job, p.name)}<figcaption>Parts left on '
+                     f'{_e(p.name)}, seen from the pickup side.</figcaption></figure>'
+                     for p in m.planes]
+    parts += ['<div class="figures">', *plane_figures, '</div>']
+    rows = influence_rows(job)
+    if rows:
+        parts += ['<h2>Saved influence coefficients</h2>',
+                  _html_table(["Pickup", "Plane", "Amplitude", "Phase"], rows, "influence"),
+                  f'<p class="note">Measured at {job.influence.speed_rpm:g} rpm; kept for '
+                  'one-run trims of this machine at about this speed.</p>']
+    parts.append('<h2>Safety confirmations and events</h2>')
+    rows = confirmation_rows(job)
+    parts.append(_html_table(["When", "Time", "Step", "Standstill by tach", "Confirmed"],
+                             rows, "confirmations") if rows
+                 else '<p>No hands-on steps recorded.</p>')
+    rows = event_rows(job)
+    if rows:
+        parts.append(_html_table(["Run", "Time", "Event", "Detail"], rows, "events"))
+    notes = [job.notes] + [f"Run {r.index}: {r.notes}" for r in job.runs if r.notes]
+    notes = [n for n in notes if n]
+    if notes:
+        parts += ['<h2>Notes</h2>', *[f'<p class="note">{_e(n)}</p>' for n in notes]]
+    parts += ['<h2>Cautions</h2>', '<div class="cautions"><ul>',
+              *[f'<li>{_e(c)}</li>' for c in CAUTIONS], '</ul></div>', '</body>', '</html>']
+    return "\n".join(parts) + "\n"
+
+
+# --------------------------------------------------------------------------------------------
+# Markdown and CSV
+
+
+def _md_cell(text: str) -> str:
+    return str(text).replace("|", "\\|").replace("\n", " ")
+
+
+def _md_table(header: Sequence[str], rows: Sequence[Sequence[str]]) -> str:
+    lines = ["| " + " | ".join(_md_cell(h) for h in header) + " |",
+             "|" + "|".join("---" for _ in header) + "|"]
+    lines += ["| " + " | ".join(_md_cell(c) for c in row) + " |" for row in rows]
+    return "\n".join(lines)
+
+
+def markdown_report(job: JobRecord, generated: str = "") -> str:
+    """The report as Markdown tables (no plots; the HTML report has them)."""
+    out = [f"# Balancing report: {job.machine.name}", "",
+           f"Job {job.job_id}" + (f"; report generated {generated}" if generated else "")
+           + " by trueturn. Plots are in the HTML report.", "",
+           "## Machine and job", "",
+           _md_table(["Item", "Value"], _machine_rows(job) + _job_rows(job)), "",
+           "## Result", "", _verdict_line(job)[1], ""]
+    rows = verdict_rows(job)
+    if rows:
+        out += [_md_table(["Plane", "Residual unbalance", "Permissible (U_per)", "Verdict"], rows),
+                ""]
+    out += ["## Before and after", "",
+            _md_table(["Pickup", "Before", "Phase", "After", "Phase", "Change"],
+                      before_after_rows(job)), ""]
+    header, rows = run_rows(job)
+    out += ["## Runs", "", _md_table(header, rows), ""]
+    out += ["## Corrections and parts", ""]
+    rows = correction_rows(job)
+    if rows:
+        out += [_md_table(["When", "Plane", "Action", "Mass", "Angle", "Split onto positions"],
+                          rows), ""]
+    rows = change_rows(job)
+    if rows:
+        out += [_md_table(["When", "Action", "Purpose", "Plane", "Mass", "Angle", "Position",
+                           "Radius", "Part"], rows), ""]
+    rows = influence_rows(job)
+    if rows:
+        out += ["## Saved influence coefficients", "",
+                _md_table(["Pickup", "Plane", "Amplitude", "Phase"], rows), ""]
+    rows = confirmation_rows(job)
+    out += ["## Safety confirmations and events", ""]
+    out += [_md_table(["When", "Time", "Step", "Standstill by tach", "Confirmed"], rows)
+            if rows else "No hands-on steps recorded.", ""]
+    rows = event_rows(job)
+    if rows:
+        out += [_md_table(["Run", "Time", "Event", "Detail"], rows), ""]
+    notes = [job.notes] + [f"Run {r.index}: {r.notes}" for r in job.runs if r.notes]
+    if any(notes):
+        out += ["## Notes", "", *[f"- {n}" for n in notes if n], ""]
+    out += ["## Cautions", "", *[f"- {c}" for c in CAUTIONS], ""]
+    return "\n".join(out)
+
+
+CSV_COLUMNS = ("job_id", "run", "kind", "label", "time", "sensor", "amplitude", "unit",
+               "phase_deg", "confidence_deg", "revolutions", "speed_rpm")
+
+
+def readings_csv(job: JobRecord) -> str:
+    """Every reading of every run, one row each, in the units stored."""
+    buffer = io.StringIO()
+    writer = csv.writer(buffer, lineterminator="\n")
+    writer.writerow(CSV_COLUMNS)
+    for run in job.runs:
+        for r in run.readings:
+            writer.writerow([job.job_id, run.index, run.kind, run.label, run.time, r.sensor,
+                             repr(r.amplitude), r.unit, repr(r.phase_deg), repr(r.confidence_deg),
+                             r.revolutions, repr(r.speed_rpm)])
+    return buffer.getvalue()

@@ -1,11 +1,146 @@
-"""`trueturn analyze`: phase-locked 1x amplitude and phase from a capture."""
+"""``trueturn analyze CAPTURE``: order-tracked 1x amplitude and phase per pickup from a capture."""
 
 from __future__ import annotations
 
 import argparse
+import math
+from typing import Any
 
-from trueturn.cli.common import add_not_ready
+from trueturn.cli.common import print_json
+from trueturn.dsp.analysis import Analysis, analyze_capture
+from trueturn.dsp.units import UNITS, PickupProfile
+from trueturn.errors import UserError
+from trueturn.link.capture import CaptureError, read_capture
+
+# Option value -> unit label of trueturn.dsp.units.UNITS
+UNIT_CHOICES = {
+    "volts": "V pk", "g": "g pk", "mm/s": "mm/s rms", "in/s": "in/s pk",
+    "um": "um pk-pk", "mils": "mil pk-pk",
+}
 
 
 def add_parser(sub: argparse._SubParsersAction) -> None:
-    add_not_ready(sub, "analyze", "phase-locked 1x amplitude and phase from a capture", 5)
+    parser = sub.add_parser(
+        "analyze", help="1x amplitude and phase per pickup, speed and spectrum from a capture",
+        description="Read a capture (from `trueturn record`), track the shaft angle from the "
+                    "tach and report, per pickup, the 1x vector averaged over whole "
+                    "revolutions with its 95 %% confidence, whether the reading is steady, "
+                    "and the labelled spectrum peaks. Phase is the lag of the 1x positive "
+                    "peak after the tach edge, 0-360 degrees.")
+    parser.add_argument("capture", help="capture file (or a plain file of frames)")
+    parser.add_argument("--revs", type=int, metavar="N",
+                        help="average the last N good revolutions (default: all)")
+    parser.add_argument("--json", action="store_true", help="print JSON instead of a table")
+    parser.add_argument("--mains-hz", type=float, choices=(50.0, 60.0), default=None,
+                        metavar="{50,60}",
+                        help="mains frequency where the machine runs (hum at it and twice it "
+                             "is removed); default 50, or the capture's own setting")
+    parser.add_argument("--sensitivity-v-per-g", metavar="S[,S2]",
+                        help="pickup sensitivity in V/g, one value per channel; without it "
+                             "readings stay in volts")
+    parser.add_argument("--unit", choices=tuple(UNIT_CHOICES), default=None,
+                        help="unit of the 1x amplitude (default mm/s RMS when a sensitivity "
+                             "is known, volts otherwise)")
+    parser.add_argument("--lowpass-hz", metavar="F[,F2]",
+                        help="corner of a first-order RC low-pass in front of the ADC, per "
+                             "channel; its phase lag at 1x is compensated")
+    parser.add_argument("--names", metavar="NAME[,NAME2]", help="pickup names, per channel")
+    parser.set_defaults(run=run)
+
+
+def _per_channel(text: str | None, what: str, positive: bool = True) -> list[float]:
+    if not text:
+        return []
+    try:
+        values = [float(v) for v in text.split(",")]
+    except ValueError:
+        raise UserError(f"{what} must be numbers separated by commas, got {text!r}") from None
+    if positive and any(not (v > 0 and math.isfinite(v)) for v in values):
+        raise UserError(f"{what} must be positive, got {text!r}")
+    return values
+
+
+def _profiles(args: argparse.Namespace, metadata: dict[str, Any]) -> list[PickupProfile]:
+    """Pickup profiles from the capture metadata (``pickups``), overridden by options."""
+    stored = metadata.get("pickups") if isinstance(metadata.get("pickups"), list) else []
+    sens = _per_channel(args.sensitivity_v_per_g, "--sensitivity-v-per-g")
+    corners = _per_channel(args.lowpass_hz, "--lowpass-hz")
+    names = args.names.split(",") if args.names else []
+    count = max(len(stored), len(sens), len(corners), len(names), 2)
+    out = []
+    for ch in range(count):
+        base = stored[ch] if ch < len(stored) and isinstance(stored[ch], dict) else {}
+        try:
+            profile = PickupProfile(
+                name=str(base.get("name", f"pickup {ch + 1}")),
+                sensitivity_v_per_g=base.get("sensitivity_v_per_g"),
+                zero_g_v=base.get("zero_g_v"),
+                lowpass_corners_hz=tuple(float(f) for f in base.get("lowpass_corners_hz", ())),
+                delay_us=float(base.get("delay_us", 0.0)))
+        except (TypeError, ValueError):
+            raise UserError(f"capture header: pickup {ch + 1} profile is malformed") from None
+        if ch < len(names) and names[ch].strip():
+            profile = PickupProfile(names[ch].strip(), profile.sensitivity_v_per_g,
+                                    profile.zero_g_v, profile.lowpass_corners_hz,
+                                    profile.delay_us)
+        if ch < len(sens):
+            profile = PickupProfile(profile.name, sens[ch], profile.zero_g_v,
+                                    profile.lowpass_corners_hz, profile.delay_us)
+        if ch < len(corners):
+            profile = PickupProfile(profile.name, profile.sensitivity_v_per_g, profile.zero_g_v,
+                                    (corners[ch],), profile.delay_us)
+        out.append(profile)
+    return out
+
+
+def run(args: argparse.Namespace) -> int:
+    if args.revs is not None and args.revs < 2:
+        raise UserError("--revs must be at least 2")
+    try:
+        metadata, raw = read_capture(args.capture)
+    except OSError as exc:
+        raise UserError(f"cannot read {args.capture}: {exc.strerror}") from None
+    except CaptureError as exc:
+        raise UserError(str(exc)) from None
+    mains = args.mains_hz
+    if mains is None:
+        stored = metadata.get("mains_hz")
+        mains = float(stored) if stored in (50, 60, 50.0, 60.0) else 50.0
+    unit = UNIT_CHOICES[args.unit] if args.unit else None
+    assert unit is None or unit in UNITS
+    result = analyze_capture(raw, revs=args.revs, mains_hz=mains,
+                             profiles=_profiles(args, metadata), unit=unit)
+    if not result.readings:
+        why = result.warnings[0] if result.warnings else "no samples and tach edges found"
+        raise UserError(f"{args.capture}: no 1x reading could be made ({why})")
+    if args.json:
+        print_json(result.to_json())
+    else:
+        print(format_table(result))
+    return 0
+
+
+def format_table(result: Analysis) -> str:
+    """The readable form: speed, one row per pickup, harmonics, peaks, warnings."""
+    lines = [f"speed {result.speed_rpm:.1f} rpm ({result.speed_rpm / 60.0:.2f} Hz)", ""]
+    head = ("pickup", "1x amplitude", "phase", "95% conf", "revs", "ready")
+    rows = [head]
+    for r in result.readings:
+        conf = "-" if r.confidence_deg >= 180 else f"+/-{r.confidence_deg:.1f} deg"
+        rows.append((r.sensor, f"{r.amplitude:.4g} {r.unit}", f"{r.phase_deg:.1f} deg", conf,
+                     str(r.revolutions), "yes" if r.steady else "not yet"))
+    widths = [max(len(row[i]) for row in rows) for i in range(len(head))]
+    lines += ["  ".join(cell.ljust(w) for cell, w in zip(row, widths, strict=True)).rstrip()
+              for row in rows]
+    lines.append("")
+    for r in result.readings:
+        orders = ", ".join(f"{h.order}x {h.amplitude:.3g} @ {h.phase_deg:.0f} deg"
+                           for h in r.harmonics)
+        lines.append(f"{r.sensor}: {orders} ({r.unit})")
+    for spec in result.spectra:
+        if spec.peaks:
+            peaks = ", ".join(f"{p.hz:.1f} Hz {p.amplitude:.3g} [{p.label}]" for p in spec.peaks)
+            lines.append(f"{spec.sensor} spectrum peaks ({spec.unit}): {peaks}")
+    if result.warnings:
+        lines += ["", "warnings:"] + [f"  - {w}" for w in result.warnings]
+    return "\n".join(lines)

@@ -1,0 +1,8 @@
+"""Measurement: shaft angle from the tach, order-tracked 1x/2x/3x phasors, averaging,
+steadiness, spectrum and units. Pure numpy/scipy; see host/trueturn/dsp/README.md."""
+
+from trueturn.dsp.analysis import Analysis, analyze_capture
+from trueturn.dsp.meter import LiveAnalyzer, Reading
+from trueturn.dsp.units import PickupProfile
+
+__all__ = ["Analysis", "LiveAnalyzer", "PickupProfile", "Reading", "analyze_capture"]

@@ -1,0 +1,117 @@
+"""Per-revolution vectors -> mean, scatter, 95 % confidence radius and a steadiness verdict.
+
+Confidence circle: with per-revolution vectors z_k = mu + e_k, e_k independent circular
+complex Gaussian, ``n |mean - mu|^2 / s^2`` follows F(2, 2n - 2) where
+``s^2 = sum |z_k - mean|^2 / (n - 1)`` (the "circular T^2" statistic; from memory: Victor &
+Mast, Electroencephalogr. Clin. Neurophysiol. 78 (1991) 378-388). The radius is the
+95 % quantile of that distribution (scipy.stats.f) scaled back, and the phase confidence
+is the half-angle that circle subtends seen from the origin.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import stats
+
+
+@dataclass(frozen=True)
+class VectorStats:
+    """Summary of n per-revolution phasors (amplitudes in the phasors' unit)."""
+
+    mean: complex
+    revolutions: int
+    scatter_rms: float
+    confidence_radius: float
+    confidence_deg: float
+    drift: float
+    drift_radius: float
+
+    @property
+    def amplitude(self) -> float:
+        return abs(self.mean)
+
+    @property
+    def phase_deg(self) -> float:
+        return math.degrees(math.atan2(self.mean.imag, self.mean.real)) % 360.0
+
+    @property
+    def drifting(self) -> bool:
+        """The second half differs from the first half by more than chance and 3 % allow."""
+        return self.drift > self.drift_radius and self.drift > 0.03 * abs(self.mean)
+
+
+def confidence_radius(scatter_var: float, n: int, level: float = 0.95) -> float:
+    """Radius of the ``level`` confidence circle of a mean of n circular-Gaussian vectors."""
+    if n < 2:
+        return math.inf
+    return math.sqrt(stats.f.ppf(level, 2, 2 * n - 2) * scatter_var / n)
+
+
+def subtended_deg(radius: float, amplitude: float) -> float:
+    """Half-angle (degrees) of a circle of ``radius`` around a point ``amplitude`` from 0."""
+    if not math.isfinite(radius) or radius >= amplitude:
+        return 180.0
+    return math.degrees(math.asin(radius / amplitude))
+
+
+def vector_stats(vectors: np.ndarray, level: float = 0.95) -> VectorStats:
+    """Mean, scatter and confidence of per-revolution phasors (any unit)."""
+    z = np.asarray(vectors, dtype=complex)
+    n = int(z.size)
+    if n == 0:
+        return VectorStats(0j, 0, math.nan, math.inf, 180.0, 0.0, math.inf)
+    mean = complex(z.mean())
+    dev2 = np.abs(z - mean) ** 2
+    var = float(dev2.sum() / (n - 1)) if n > 1 else math.inf
+    radius = confidence_radius(var, n, level)
+    half = n // 2
+    drift, drift_radius = 0.0, math.inf
+    if half >= 2:
+        first, second = z[:half], z[n - half:]
+        drift = abs(complex(second.mean() - first.mean()))
+        pooled = float((np.abs(first - first.mean()) ** 2).sum()
+                       + (np.abs(second - second.mean()) ** 2).sum()) / (2 * half - 2)
+        drift_radius = math.sqrt(stats.f.ppf(level, 2, 4 * half - 4) * pooled * 2.0 / half)
+    return VectorStats(mean, n, math.sqrt(float(dev2.mean())), radius,
+                       subtended_deg(radius, abs(mean)), drift, drift_radius)
+
+
+@dataclass(frozen=True)
+class SteadinessLimits:
+    """When a reading is ready: enough revolutions, steady speed, tight vector.
+
+    Defaults are common practice, no source: a 5 degree phase confidence is well inside
+    what a trial-weight run can resolve, 2 % speed spread keeps the rotor's response
+    (resonances) from shifting noticeably on a small machine.
+    """
+
+    min_revolutions: int = 8
+    max_speed_spread_pct: float = 2.0
+    max_confidence_deg: float = 5.0
+
+
+def steadiness(vector: VectorStats, speeds_rpm: np.ndarray,
+               limits: SteadinessLimits | None = None) -> tuple[bool, tuple[str, ...]]:
+    """(steady, reasons it is not) for one pickup's statistics and the revolution speeds."""
+    lim = limits or SteadinessLimits()
+    reasons = []
+    if vector.revolutions < lim.min_revolutions:
+        reasons.append(f"only {vector.revolutions} revolutions averaged "
+                       f"(need {lim.min_revolutions})")
+    speeds = np.asarray(speeds_rpm, dtype=float)
+    if speeds.size:
+        spread = 100.0 * float(speeds.max() - speeds.min()) / float(speeds.mean())
+        if spread > lim.max_speed_spread_pct:
+            reasons.append(f"speed varies by {spread:.1f} % (limit {lim.max_speed_spread_pct:g} %)")
+    if vector.confidence_deg > lim.max_confidence_deg:
+        if vector.confidence_deg >= 180.0:
+            reasons.append("1x is not above the scatter yet (noise, or too few revolutions)")
+        else:
+            reasons.append(f"phase uncertain by +/-{vector.confidence_deg:.1f} deg "
+                           f"(limit {lim.max_confidence_deg:g} deg)")
+    if vector.drifting:
+        reasons.append("1x vector still changing (first and second half disagree)")
+    return not reasons, tuple(reasons)

@@ -1,0 +1,443 @@
+"""The streaming meter: decoded messages in, one :class:`Reading` per pickup out.
+
+:class:`LiveAnalyzer` takes identity, stream_config, samples and tach messages one at a
+time (duck-typed: anything with ``.name`` and ``[field]``, e.g.
+:class:`trueturn.link.codec.Message`). Memory is bounded: raw samples are kept only until the
+revolutions they belong to are fitted, then each revolution is a few dozen numbers
+(:class:`trueturn.dsp.order.BlockFit` rows) in a window of ``max_revs``.
+
+A revolution is fitted as soon as the samples covering its end have arrived (one sample
+block after the tach edge); :meth:`LiveAnalyzer.readings` then costs well under a
+millisecond, so the app can refresh after every revolution.
+
+Sample times: conversion index i was triggered at ``start_tick + i * period_ticks`` and held
+``aperture_delay_ticks`` later (identity message), so the fit uses
+``start_tick + i * period_ticks + aperture_delay_ticks``; the channel-to-channel skew of the
+multiplexed ADC is part of that formula.
+"""
+
+from __future__ import annotations
+
+import math
+from collections import deque
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass, field
+from typing import Any, Protocol
+
+import numpy as np
+
+from trueturn.dsp.averaging import SteadinessLimits, VectorStats, steadiness, vector_stats
+from trueturn.dsp.order import BlockFit, fit_block, solve_orders
+from trueturn.dsp.shaft import Revolution, TachTracker, extend_tick
+from trueturn.dsp.spectrum import Spectrum, spectrum
+from trueturn.dsp.units import PickupProfile, chain_response, convert_phasor, default_unit
+
+DEFAULT_TICK_HZ = 2_000_000
+DEFAULT_ADC_BITS = 10
+DEFAULT_REFERENCE_MV = 5000
+
+
+class MessageLike(Protocol):
+    name: str
+
+    def __getitem__(self, key: str) -> Any: ...
+
+
+@dataclass(frozen=True)
+class Harmonic:
+    """One order of a reading: amplitude and phase (lag, degrees) in the reading's unit."""
+
+    order: int
+    amplitude: float
+    phase_deg: float
+
+
+@dataclass(frozen=True)
+class Reading:
+    """The 1x reading of one pickup over the averaged revolutions."""
+
+    sensor: str
+    channel: int
+    amplitude: float
+    unit: str
+    phase_deg: float
+    confidence_deg: float
+    confidence_radius: float
+    revolutions: int
+    steady: bool
+    speed_rpm: float
+    warnings: tuple[str, ...]
+    harmonics: tuple[Harmonic, ...] = ()
+    noise_rms_v: float = math.nan
+    hum_v: dict[float, float] = field(default_factory=dict)
+
+    @property
+    def phasor(self) -> complex:
+        """``amplitude * exp(i phase)`` (see trueturn.angles)."""
+        return self.amplitude * complex(math.cos(math.radians(self.phase_deg)),
+                                        math.sin(math.radians(self.phase_deg)))
+
+
+class _Ring:
+    """The last ``size`` samples of one channel, in order (for the spectrum)."""
+
+    def __init__(self, size: int) -> None:
+        self.data = np.zeros(size)
+        self.count = 0
+        self.pos = 0
+
+    def clear(self) -> None:
+        self.count = 0
+        self.pos = 0
+
+    def extend(self, values: np.ndarray) -> None:
+        size = self.data.size
+        if values.size >= size:
+            self.data[:] = values[-size:]
+            self.pos, self.count = 0, size
+            return
+        end = self.pos + values.size
+        if end <= size:
+            self.data[self.pos:end] = values
+        else:
+            cut = size - self.pos
+            self.data[self.pos:] = values[:cut]
+            self.data[: end - size] = values[cut:]
+        self.pos = end % size
+        self.count = min(size, self.count + values.size)
+
+    def values(self) -> np.ndarray:
+        if self.count < self.data.size:
+            return self.data[: self.count].copy()
+        return np.concatenate([self.data[self.pos:], self.data[: self.pos]])
+
+
+_FIT_FIELDS = ("coef_y", "coef_n", "schur_nn", "schur_ny", "resid_yy", "nuisance_energy",
+               "sample_counts")
+
+
+class LiveAnalyzer:
+    """Streaming order-tracked meter for all pickups of one board.
+
+    ``profiles``: one :class:`PickupProfile` per channel (missing ones are uncalibrated,
+    named "pickup N"); ``unit``: a key of :data:`trueturn.dsp.units.UNITS` or None for
+    each profile's default; ``mains_hz`` 50 or 60 (hum at it and twice it is fitted out);
+    ``max_revs`` revolutions averaged (a sliding window); ``batch_revs`` revolutions fitted
+    together when nobody asks for readings in between (bounded memory in batch use).
+    """
+
+    def __init__(self, profiles: Sequence[PickupProfile] = (), unit: str | None = None,
+                 mains_hz: float | None = 50.0, max_revs: int = 100,
+                 orders: tuple[int, ...] = (1, 2, 3), limits: SteadinessLimits | None = None,
+                 spectrum_seconds: float = 4.0, batch_revs: int = 64) -> None:
+        if 1 not in orders:
+            raise ValueError("orders must include 1")
+        self.profiles = tuple(profiles)
+        self.unit = unit
+        self.mains_hz = mains_hz
+        self.max_revs = max_revs
+        self.orders = tuple(orders)
+        self.limits = limits or SteadinessLimits()
+        self.spectrum_seconds = spectrum_seconds
+        self.batch_revs = batch_revs
+        self.tick_hz = DEFAULT_TICK_HZ
+        self.adc_bits = DEFAULT_ADC_BITS
+        self.reference_mv = DEFAULT_REFERENCE_MV
+        self.aperture_ticks = 0
+        self.identity_seen = False
+        self.streams = 0
+        self.tach = TachTracker()
+        self._reset_stream(None)
+
+    # ---------------------------------------------------------------- stream state
+    def _reset_stream(self, config: MessageLike | None) -> None:
+        self.config = config
+        self.channels = int(config["channels"]) if config else 0
+        self.rate_hz = float(config["rate_hz"]) if config else 0.0
+        self.period_ticks = int(config["period_ticks"]) if config else 0
+        self.start_tick = int(config["start_tick"]) if config else 0
+        self._next_index: int | None = None
+        self._chunks_ticks: list[list[np.ndarray]] = [[] for _ in range(self.channels)]
+        self._chunks_values: list[list[np.ndarray]] = [[] for _ in range(self.channels)]
+        self._gaps: deque[tuple[int, int]] = deque(maxlen=64)
+        self._pending: list[Revolution] = []
+        self._fits: list[deque[BlockFit]] = [deque() for _ in range(self.channels)]
+        self._fit_rows = [0] * self.channels
+        self._rev_ends: deque[int] = deque(maxlen=self.max_revs)
+        self._rev_periods: deque[int] = deque(maxlen=self.max_revs)
+        self._rings = [_Ring(max(64, int(self.spectrum_seconds * self.rate_hz)))
+                       for _ in range(self.channels)]
+        self._latest_tick = self.start_tick
+        self.revs_with_gaps = 0
+        self.revs_skipped = 0
+        self.clipped_samples = 0
+        self.samples_seen = 0
+        self.tach.reset()
+
+    def feed(self, msg: MessageLike) -> bool:
+        """Take one decoded message; True when new revolutions are ready to be read."""
+        name = msg.name
+        if name == "samples":
+            return self._samples(msg)
+        if name == "tach":
+            if self.config is not None:
+                tick = extend_tick(int(msg["tick"]), self._latest_tick)
+                rev = self.tach.add_edge(tick)
+                if rev is not None:
+                    self._pending.append(rev)
+                    return self._ready_count() > 0
+            return False
+        if name == "stream_config":
+            self.streams += 1
+            self._reset_stream(msg)
+        elif name == "identity":
+            self.identity_seen = True
+            self.tick_hz = int(msg["tick_hz"])
+            self.adc_bits = int(msg["adc_bits"])
+            self.reference_mv = int(msg["adc_reference_mv"])
+            self.aperture_ticks = int(msg["aperture_delay_ticks"])
+        return False
+
+    def feed_all(self, messages: Iterable[MessageLike]) -> None:
+        for msg in messages:
+            self.feed(msg)
+
+    def _sample_tick(self, index: int) -> int:
+        return self.start_tick + index * self.period_ticks + self.aperture_ticks
+
+    def _samples(self, msg: MessageLike) -> bool:
+        if self.config is None:
+            return False
+        ch = self.channels
+        if int(msg["channels"]) != ch:
+            return False
+        first = int(msg["first_index"])
+        if self._next_index is not None:
+            first = extend_tick(first, self._next_index)
+            if first < self._next_index:
+                return False  # repeated or stale block
+            if first > self._next_index:
+                self._gaps.append((self._sample_tick(self._next_index), self._sample_tick(first)))
+                for ring in self._rings:
+                    ring.clear()
+        values = np.asarray(msg["samples"], dtype=float)
+        n = values.size - values.size % ch
+        self._next_index = first + n
+        self.samples_seen += n
+        top = (1 << self.adc_bits) - 1
+        base = self._sample_tick(first)
+        offsets = np.arange(0, n, ch, dtype=np.int64) * self.period_ticks
+        for c in range(ch):
+            v = values[c:n:ch]
+            self._chunks_ticks[c].append(base + c * self.period_ticks + offsets)
+            self._chunks_values[c].append(v)
+            self._rings[c].extend(v)
+        if values.size and (values.min() <= 0 or values.max() >= top):
+            self.clipped_samples += int(np.count_nonzero((values <= 0) | (values >= top)))
+        self._latest_tick = self._sample_tick(self._next_index)
+        ready = self._ready_count()
+        if ready >= self.batch_revs:
+            self._process()
+        elif not self._pending and self.tach.last_edge_tick is None:
+            self._trim(self._latest_tick - int(2 * self.tick_hz))
+        elif not self._pending and self.tach.last_edge_tick is not None:
+            self._trim(self.tach.last_edge_tick)
+        return ready > 0
+
+    def _ready_count(self) -> int:
+        covered = self._latest_tick if self._next_index is not None else None
+        if covered is None:
+            return 0
+        return sum(1 for rev in self._pending if rev.end_tick <= covered)
+
+    # ---------------------------------------------------------------- processing
+    def _trim(self, keep_from_tick: int) -> None:
+        for c in range(self.channels):
+            ticks, values = self._chunks_ticks[c], self._chunks_values[c]
+            while ticks and ticks[0][-1] < keep_from_tick:
+                ticks.pop(0)
+                values.pop(0)
+
+    def _process(self) -> None:
+        covered = self._latest_tick
+        ready = [rev for rev in self._pending if rev.end_tick <= covered]
+        if not ready or not self.channels:
+            return
+        self._pending = [rev for rev in self._pending if rev.end_tick > covered]
+        use = []
+        for rev in ready:
+            if any(g0 < rev.end_tick and g1 > rev.start_tick for g0, g1 in self._gaps):
+                self.revs_with_gaps += 1
+            else:
+                use.append(rev)
+        first_tick = self._sample_tick(0)
+        if self._chunks_ticks[0]:
+            first_tick = int(self._chunks_ticks[0][0][0])
+        kept = [rev for rev in use if rev.start_tick >= first_tick]
+        self.revs_skipped += len(use) - len(kept)
+        if kept:
+            starts = np.array([r.start_tick for r in kept], dtype=np.int64)
+            ends = np.array([r.end_tick for r in kept], dtype=np.int64)
+            for c in range(self.channels):
+                ticks = np.concatenate(self._chunks_ticks[c])
+                values = np.concatenate(self._chunks_values[c])
+                fit = fit_block(ticks, values, starts, ends, self.tick_hz, self.orders,
+                                self._nuisance_hz(), self.start_tick)
+                self._fits[c].append(fit)
+                self._fit_rows[c] += fit.revolutions
+                while self._fits[c] and self._fit_rows[c] - self._fits[c][0].revolutions \
+                        >= self.max_revs:
+                    self._fit_rows[c] -= self._fits[c].popleft().revolutions
+            self._rev_ends.extend(int(e) for e in ends)
+            self._rev_periods.extend(int(e - s) for s, e in zip(starts, ends, strict=True))
+        keep_from = min([rev.start_tick for rev in self._pending]
+                        + [ready[-1].end_tick])
+        self._trim(keep_from)
+
+    def _nuisance_hz(self) -> tuple[float, ...]:
+        if not self.mains_hz:
+            return ()
+        nyquist = self.rate_hz / 2.0
+        return tuple(f for f in (self.mains_hz, 2.0 * self.mains_hz) if f < nyquist)
+
+    # ---------------------------------------------------------------- results
+    @property
+    def volts_per_count(self) -> float:
+        return (self.reference_mv / 1000.0) / (1 << self.adc_bits)
+
+    def profile(self, channel: int) -> PickupProfile:
+        if channel < len(self.profiles):
+            return self.profiles[channel]
+        return PickupProfile(name=f"pickup {channel + 1}")
+
+    def stream_warnings(self) -> list[str]:
+        """Problems with the stream as a whole (tach, link, set-up), one line each."""
+        out = []
+        if self.config is None:
+            out.append("no stream_config message: the capture holds no usable samples")
+            return out
+        if self.samples_seen and self.tach.revolutions == 0:
+            out.append("no steady tach signal: check the tach sensor, its aim and the "
+                       "reflective mark")
+        if not self.identity_seen:
+            out.append(f"no identity message: assumed a {DEFAULT_ADC_BITS}-bit ADC, "
+                       f"{DEFAULT_REFERENCE_MV / 1000:.3f} V reference, {DEFAULT_TICK_HZ} Hz "
+                       "clock and no aperture delay")
+        if self.tach.double_edges:
+            out.append(f"{self.tach.double_edges} extra tach edge(s) ignored (second mark, "
+                       "scratch or flicker?)")
+        if self.tach.missing_edges:
+            out.append(f"{self.tach.missing_edges} tach edge(s) missed; those revolutions "
+                       "were left out")
+        if self.revs_with_gaps:
+            out.append(f"{self.revs_with_gaps} revolution(s) left out for lost samples "
+                       "(USB link dropped data)")
+        if self.clipped_samples:
+            out.append(f"{self.clipped_samples} sample(s) at the ADC limits: the pickup "
+                       "signal clips; reduce its gain or move it")
+        return out
+
+    def _stacked(self, channel: int, last: int | None) -> dict[str, np.ndarray]:
+        fits = self._fits[channel]
+        out = {name: np.concatenate([getattr(f, name) for f in fits]) for name in _FIT_FIELDS}
+        n = min(last or self.max_revs, self.max_revs)
+        return {k: v[-n:] for k, v in out.items()}
+
+    def speeds_rpm(self, last: int | None = None) -> np.ndarray:
+        """Speed of each averaged revolution (rpm), oldest first."""
+        periods = np.fromiter(self._rev_periods, dtype=float)
+        n = min(last or self.max_revs, self.max_revs)
+        return 60.0 * self.tick_hz / periods[-n:]
+
+    @property
+    def speed_rpm(self) -> float:
+        """Speed of the last complete revolution, NaN before the first one."""
+        if not self._rev_periods:
+            return math.nan
+        return 60.0 * self.tick_hz / self._rev_periods[-1]
+
+    def readings(self, last: int | None = None) -> list[Reading]:
+        """One reading per pickup over the last ``last`` (default ``max_revs``) revolutions."""
+        self._process()
+        out = []
+        stream = tuple(self.stream_warnings())
+        for c in range(self.channels):
+            if not self._fits[c]:
+                continue
+            out.append(self._reading(c, last, stream))
+        return out
+
+    def _reading(self, c: int, last: int | None, stream_warnings: tuple[str, ...]) -> Reading:
+        rows = self._stacked(c, last)
+        est = solve_orders(rows["coef_y"], rows["coef_n"], rows["schur_nn"], rows["schur_ny"],
+                           rows["resid_yy"], rows["nuisance_energy"], rows["sample_counts"],
+                           self.orders, self._nuisance_hz())
+        good = np.isfinite(rows["coef_y"]).all(axis=1)
+        speeds = self.speeds_rpm(last)[-len(good):][good]
+        freqs_hz = speeds / 60.0
+        profile = self.profile(c)
+        unit = self.unit or default_unit(profile)
+        vpc = self.volts_per_count
+        warnings = list(stream_warnings)
+        # Per-revolution 1x vectors converted at each revolution's own speed.
+        factors = np.array([convert_phasor(1.0 + 0j, profile, f, unit)[0] for f in freqs_hz])
+        used_unit = convert_phasor(1.0 + 0j, profile, 1.0, unit)[1]
+        if used_unit != unit:
+            warnings.append(f"{profile.name}: no sensitivity known, shown in volts")
+        k1 = self.orders.index(1)
+        vectors = est.phasors[:, k1] * vpc * factors
+        vstats: VectorStats = vector_stats(vectors)
+        steady, reasons = steadiness(vstats, speeds, self.limits)
+        warnings += [f"{profile.name}: {r}" for r in reasons]
+        mean_hz = float(freqs_hz.mean()) if freqs_hz.size else math.nan
+        for f in est.dropped_hz:
+            order = round(f / mean_hz) if mean_hz > 0 else 0
+            what = f"{order}x" if order in self.orders else "an order"
+            warnings.append(f"{what} sits on the {f:g} Hz mains hum, so hum cannot be "
+                            "removed from it: run a little faster or slower if you can")
+        harmonics = []
+        for k, h in enumerate(self.orders):
+            mean_v = complex(est.phasors[:, k].mean()) * vpc if len(est.phasors) else 0j
+            value, _ = convert_phasor(mean_v, profile, h * mean_hz, unit) \
+                if math.isfinite(mean_hz) else (0j, unit)
+            harmonics.append(Harmonic(h, abs(value),
+                                      math.degrees(math.atan2(value.imag, value.real)) % 360.0))
+        return Reading(
+            sensor=profile.name, channel=c, amplitude=vstats.amplitude, unit=used_unit,
+            phase_deg=vstats.phase_deg, confidence_deg=vstats.confidence_deg,
+            confidence_radius=vstats.confidence_radius, revolutions=vstats.revolutions,
+            steady=steady, speed_rpm=float(speeds.mean()) if speeds.size else math.nan,
+            warnings=tuple(warnings), harmonics=tuple(harmonics),
+            noise_rms_v=est.noise_rms * vpc,
+            hum_v={f: abs(z) * vpc for f, z in est.nuisance.items()},
+        )
+
+    def spectra(self, resolution_hz: float = 1.0) -> list[Spectrum | None]:
+        """Welch spectrum (volts, or g for a calibrated pickup) of each pickup's recent samples."""
+        out: list[Spectrum | None] = []
+        rot_hz = None
+        if self._rev_periods:
+            recent = self.speeds_rpm()[-max(1, int(self.spectrum_seconds * self.speed_rpm / 60)):]
+            rot_hz = float(recent.mean()) / 60.0
+        for c in range(self.channels):
+            values = self._rings[c].values()
+            if values.size < 64:
+                out.append(None)
+                continue
+            scale = self.volts_per_count
+            profile = self.profile(c)
+            if profile.calibrated:
+                assert profile.sensitivity_v_per_g is not None
+                scale /= profile.sensitivity_v_per_g
+            out.append(spectrum(values * scale, self.rate_hz, rot_hz, self.mains_hz,
+                                resolution_hz))
+        return out
+
+    def spectrum_unit(self, channel: int) -> str:
+        return "g pk" if self.profile(channel).calibrated else "V pk"
+
+
+def chain_phase_deg(profile: PickupProfile, frequency_hz: float) -> float:
+    """Phase lag (degrees) of the profile's known input chain at ``frequency_hz``."""
+    z = chain_response(profile, frequency_hz)
+    return math.degrees(math.atan2(z.imag, z.real))

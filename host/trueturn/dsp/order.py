@@ -1,0 +1,221 @@
+"""Order tracking: 1x, 2x, 3x phasors per revolution by least squares in the shaft-angle domain.
+
+Model for the samples y(t) of one pickup in revolution r (shaft angle theta(t) from
+:mod:`trueturn.dsp.shaft`, t the sample's tick including the ADC aperture delay):
+
+    y(t) = d_r + sum_h [a_rh cos(h theta) + b_rh sin(h theta)]            (synchronous, per rev)
+              + sum_f [u_f cos(2 pi f t) + v_f sin(2 pi f t)]             (known tones, per block)
+              + noise
+
+The per-revolution part is the order-tracked signal; the second part models known
+non-synchronous tones (mains hum at the line frequency and twice it) as nuisance terms
+shared by the whole block, so a hum 10 Hz from 1x at ten times its size does not leak
+into the 1x vector. Everything is solved jointly, in closed form, with the block
+(Frisch-Waugh-Lovell) partition: per-revolution normal equations are stacked and solved
+in one batched call, then the few nuisance coefficients from the summed Schur complements.
+Ordinary least squares with white noise is the maximum-likelihood estimator, so the 1x
+phase reaches the Cramér-Rao bound (tests/test_dsp_order.py, bench/bench_dsp.py).
+
+Phasor convention (:mod:`trueturn.angles`): order h is ``c_h = a_h + i b_h``, i.e.
+``y = |c| cos(h theta - arg c)``, so ``arg c_1`` is the lag of the 1x positive peak after
+the tach edge. References: Kay, Fundamentals of Statistical Signal Processing: Estimation
+Theory (1993), ch. 4 and 8 (linear model, least squares); Fyfe & Munck, "Analysis of
+computed order tracking", Mech. Syst. Signal Process. 11(2), 1997 (angle-domain resampling,
+here replaced by fitting directly at the sample angles).
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+# A nuisance tone whose energy is mostly explained by the per-revolution model (it sits on
+# an order, e.g. 3000 rpm on 50 Hz mains) cannot be told apart from it; it is dropped.
+MIN_NUISANCE_KEPT_FRACTION = 0.02
+
+
+@dataclass(frozen=True)
+class BlockFit:
+    """Per-revolution sufficient statistics of one pickup over a block of revolutions.
+
+    ``coef_y`` (R, p) are the per-revolution coefficients without nuisance terms,
+    ``coef_n`` (R, p, q) the per-revolution fit of each nuisance column; ``schur_nn``
+    (R, q, q) and ``schur_ny`` (R, q) the nuisance normal equations after removing the
+    revolution model; ``resid_yy`` (R,) the residual energy without nuisance terms;
+    ``nuisance_energy`` (R, q) the raw energy of each nuisance column.
+    """
+
+    orders: tuple[int, ...]
+    nuisance_hz: tuple[float, ...]
+    coef_y: np.ndarray
+    coef_n: np.ndarray
+    schur_nn: np.ndarray
+    schur_ny: np.ndarray
+    resid_yy: np.ndarray
+    nuisance_energy: np.ndarray
+    sample_counts: np.ndarray
+
+    @property
+    def revolutions(self) -> int:
+        return int(self.coef_y.shape[0])
+
+
+@dataclass(frozen=True)
+class OrderEstimate:
+    """Per-revolution order phasors after removing the nuisance tones.
+
+    ``phasors`` (R, len(orders)) complex, peak amplitude in the input unit; ``dc`` (R,);
+    ``noise_rms`` the residual standard deviation; ``dropped_hz`` nuisance tones that could
+    not be separated from the orders; ``nuisance`` the fitted tone phasors (amplitude, peak).
+    """
+
+    orders: tuple[int, ...]
+    phasors: np.ndarray
+    dc: np.ndarray
+    noise_rms: float
+    dropped_hz: tuple[float, ...]
+    nuisance: dict[float, complex]
+
+
+def revolution_basis(theta_rad: np.ndarray, orders: tuple[int, ...]) -> np.ndarray:
+    """Columns ``[1, cos(h theta), sin(h theta) for h in orders]`` (n, 1 + 2 len(orders))."""
+    cols = [np.ones_like(theta_rad)]
+    for h in orders:
+        z = np.exp(1j * h * theta_rad)
+        cols += [z.real, z.imag]
+    return np.stack(cols, axis=1)
+
+
+def tone_basis(times_s: np.ndarray, tones_hz: tuple[float, ...]) -> np.ndarray:
+    """Columns ``[cos(2 pi f t), sin(2 pi f t) for f in tones_hz]`` (n, 2 len(tones_hz))."""
+    cols = []
+    for f in tones_hz:
+        z = np.exp(2j * math.pi * f * times_s)
+        cols += [z.real, z.imag]
+    if not cols:
+        return np.zeros((times_s.shape[0], 0))
+    return np.stack(cols, axis=1)
+
+
+def assign_revolutions(sample_ticks: np.ndarray, starts: np.ndarray,
+                       ends: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(sample position, revolution number, slot within the revolution) of every sample
+    inside [start, end) of a revolution.
+
+    ``sample_ticks`` must be sorted; revolutions must not overlap.
+    """
+    lo = np.searchsorted(sample_ticks, starts, side="left")
+    hi = np.searchsorted(sample_ticks, ends, side="left")
+    counts = hi - lo
+    total = int(counts.sum())
+    rev = np.repeat(np.arange(len(starts)), counts)
+    first_out = np.cumsum(counts) - counts
+    slot = np.arange(total) - np.repeat(first_out, counts)
+    return slot + np.repeat(lo, counts), rev, slot
+
+
+def fit_block(sample_ticks: np.ndarray, values: np.ndarray, starts: np.ndarray,
+              ends: np.ndarray, tick_hz: float, orders: tuple[int, ...] = (1, 2, 3),
+              nuisance_hz: tuple[float, ...] = (), origin_tick: int = 0) -> BlockFit:
+    """Per-revolution least-squares statistics for the revolutions [starts[r], ends[r]).
+
+    ``sample_ticks`` (sorted, 64-bit, aperture delay included) and ``values`` are one
+    pickup's samples; ``origin_tick`` fixes the time origin of the nuisance tones and must be
+    the same for every block that is later combined. A revolution with fewer samples than
+    twice the number of unknowns gets NaN coefficients (see :func:`combine_blocks`).
+    """
+    starts = np.asarray(starts, dtype=np.int64)
+    ends = np.asarray(ends, dtype=np.int64)
+    pos, rev, slot = assign_revolutions(sample_ticks, starts, ends)
+    n_revs = len(starts)
+    ticks = sample_ticks[pos]
+    theta = 2.0 * math.pi * (ticks - starts[rev]) / (ends - starts)[rev]
+    times_s = (ticks - origin_tick) / tick_hz
+    basis = revolution_basis(theta, orders)
+    tones = tone_basis(times_s, nuisance_hz)
+    p = basis.shape[1]
+    q = tones.shape[1]
+    design = np.concatenate([basis, tones, values[pos, None]], axis=1)
+    m = design.shape[1]
+    counts = np.bincount(rev, minlength=n_revs)
+    length = int(counts.max()) if counts.size else 0
+    padded = np.zeros((n_revs, max(length, 1), m))
+    padded[rev, slot] = design
+    gram = np.matmul(padded.transpose(0, 2, 1), padded)
+    aa = gram[:, :p, :p]
+    rhs = gram[:, :p, p:]
+    ok = counts >= 2 * p
+    aa_safe = np.where(ok[:, None, None], aa, np.eye(p))
+    solved = np.linalg.solve(aa_safe, rhs)  # (R, p, q + 1)
+    coef_n = solved[:, :, :q]
+    coef_y = solved[:, :, q]
+    na = gram[:, p:p + q, :p]
+    schur_nn = gram[:, p:p + q, p:p + q] - np.matmul(na, coef_n)
+    schur_ny = gram[:, p:p + q, -1] - np.einsum("rqp,rp->rq", na, coef_y)
+    resid_yy = gram[:, -1, -1] - np.einsum("rp,rp->r", rhs[:, :, q], coef_y)
+    nuisance_energy = np.diagonal(gram[:, p:p + q, p:p + q], axis1=1, axis2=2).copy()
+    bad = ~ok
+    if bad.any():
+        coef_y[bad] = np.nan
+        coef_n[bad] = 0.0
+        schur_nn[bad] = 0.0
+        schur_ny[bad] = 0.0
+        resid_yy[bad] = 0.0
+        nuisance_energy[bad] = 0.0
+    return BlockFit(tuple(orders), tuple(nuisance_hz), coef_y, coef_n, schur_nn, schur_ny,
+                    resid_yy, nuisance_energy, counts)
+
+
+def solve_orders(coef_y: np.ndarray, coef_n: np.ndarray, schur_nn: np.ndarray,
+                 schur_ny: np.ndarray, resid_yy: np.ndarray, nuisance_energy: np.ndarray,
+                 sample_counts: np.ndarray, orders: tuple[int, ...],
+                 nuisance_hz: tuple[float, ...]) -> OrderEstimate:
+    """Per-revolution order phasors with the nuisance tones fitted over all given revolutions.
+
+    Inputs are :class:`BlockFit` fields stacked over revolutions (any number of blocks with
+    the same ``origin_tick``). Rows with NaN ``coef_y`` are dropped.
+    """
+    good = np.isfinite(coef_y).all(axis=1)
+    coef_y, coef_n = coef_y[good], coef_n[good]
+    schur_nn, schur_ny = schur_nn[good], schur_ny[good]
+    resid_yy, nuisance_energy = resid_yy[good], nuisance_energy[good]
+    sample_counts = sample_counts[good]
+    q = coef_n.shape[2]
+    keep = np.ones(q, dtype=bool)
+    total_nn = schur_nn.sum(axis=0) if q else np.zeros((0, 0))
+    total_ny = schur_ny.sum(axis=0) if q else np.zeros(0)
+    raw = nuisance_energy.sum(axis=0) if q else np.zeros(0)
+    dropped = []
+    for k, f in enumerate(nuisance_hz):
+        cols = slice(2 * k, 2 * k + 2)
+        kept_fraction = np.diag(total_nn)[cols] / np.maximum(raw[cols], 1e-300)
+        if raw[cols].sum() <= 0 or kept_fraction.min() < MIN_NUISANCE_KEPT_FRACTION:
+            keep[cols] = False
+            dropped.append(f)
+    gamma = np.zeros(q)
+    if keep.any():
+        sub_nn = total_nn[np.ix_(keep, keep)]
+        gamma[keep] = np.linalg.lstsq(sub_nn, total_ny[keep], rcond=None)[0]
+    beta = coef_y - np.einsum("rpq,q->rp", coef_n, gamma)
+    resid = resid_yy - 2 * np.einsum("rq,q->r", schur_ny, gamma) \
+        + np.einsum("q,rqk,k->r", gamma, schur_nn, gamma)
+    p = coef_y.shape[1]
+    dof = max(int(sample_counts.sum()) - p * len(beta) - int(keep.sum()), 1)
+    noise_rms = math.sqrt(max(float(resid.sum()), 0.0) / dof)
+    phasors = beta[:, 1::2] + 1j * beta[:, 2::2]
+    nuisance = {f: complex(gamma[2 * k], gamma[2 * k + 1])
+                for k, f in enumerate(nuisance_hz) if f not in dropped}
+    return OrderEstimate(tuple(orders), phasors, beta[:, 0], noise_rms, tuple(dropped), nuisance)
+
+
+def estimate_orders(sample_ticks: np.ndarray, values: np.ndarray, starts: np.ndarray,
+                    ends: np.ndarray, tick_hz: float, orders: tuple[int, ...] = (1, 2, 3),
+                    nuisance_hz: tuple[float, ...] = ()) -> OrderEstimate:
+    """One-shot :func:`fit_block` + :func:`solve_orders` for a whole record."""
+    origin = int(starts[0]) if len(starts) else 0
+    fit = fit_block(np.asarray(sample_ticks, dtype=np.int64), np.asarray(values, dtype=float),
+                    starts, ends, tick_hz, orders, nuisance_hz, origin)
+    return solve_orders(fit.coef_y, fit.coef_n, fit.schur_nn, fit.schur_ny, fit.resid_yy,
+                        fit.nuisance_energy, fit.sample_counts, fit.orders, fit.nuisance_hz)

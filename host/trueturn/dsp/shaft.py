@@ -1,0 +1,182 @@
+"""Shaft angle and speed from once-per-rev tach edges, all in the board's timer ticks.
+
+Every tach edge starts a revolution at shaft angle 0 (the reference mark passing the tach).
+Between two accepted edges the angle is interpolated linearly in time (constant speed within
+one revolution; at 3 % drift over a few seconds the error is far below 0.01 degrees).
+
+Bad edges are found by the period ratio (new period / median of recent good periods):
+a ratio well below 1 is a double trigger (a scratch, a second reflective spot, noise) and the
+edge is dropped; a ratio near 2 or more means edges were missed and the long interval is not
+used as a revolution. Both are counted and flagged, never silently averaged in.
+"""
+
+from __future__ import annotations
+
+import math
+from collections import deque
+from dataclasses import dataclass
+
+import numpy as np
+
+TICK_WRAP = 1 << 32
+
+
+def extend_tick(tick_u32: int, reference_tick: int) -> int:
+    """The 64-bit tick nearest ``reference_tick`` whose low 32 bits are ``tick_u32``.
+
+    The board's Timer1 count is extended to 32 bits (wraps every 35.8 min at 2 MHz); the
+    host keeps one unwrapped time line by placing each new value next to a recent one.
+    """
+    delta = (tick_u32 - reference_tick + (TICK_WRAP >> 1)) % TICK_WRAP - (TICK_WRAP >> 1)
+    return reference_tick + delta
+
+
+def speed_rpm_from_period(period_ticks: float, tick_hz: float) -> float:
+    """Shaft speed in rev/min from one revolution's length in ticks."""
+    return 60.0 * tick_hz / period_ticks
+
+
+def rpm_to_hz(speed_rpm: float) -> float:
+    """Rotation frequency in Hz (1x) of a speed in rev/min; 3000 rpm is 50 Hz."""
+    return speed_rpm / 60.0
+
+
+def hz_to_rpm(frequency_hz: float) -> float:
+    """Speed in rev/min of a rotation frequency in Hz."""
+    return frequency_hz * 60.0
+
+
+@dataclass(frozen=True)
+class Revolution:
+    """One whole revolution between two accepted tach edges (64-bit ticks, end exclusive)."""
+
+    number: int
+    start_tick: int
+    end_tick: int
+
+    @property
+    def period_ticks(self) -> int:
+        return self.end_tick - self.start_tick
+
+    def speed_rpm(self, tick_hz: float) -> float:
+        return speed_rpm_from_period(self.period_ticks, tick_hz)
+
+
+@dataclass(frozen=True)
+class EdgeFlag:
+    """A tach edge that was not used: ``kind`` is ``double``, ``missing`` or ``restart``."""
+
+    tick: int
+    kind: str
+    period_ratio: float
+    edges_missed: int = 0
+
+
+class TachTracker:
+    """Tach edges in, whole revolutions out; double and missing edges flagged and excluded.
+
+    ``double_ratio``/``missing_ratio``: a period shorter than ``double_ratio`` times the
+    reference (median of the last ``history`` good periods) is a double edge, one longer
+    than ``missing_ratio`` times it hides missed edges. After ``restart_after`` rejections in
+    a row (a real change of speed, a stop and restart) the reference is learned again.
+    Memory is bounded: the flag list keeps the last ``max_flags`` entries.
+    """
+
+    def __init__(self, double_ratio: float = 0.7, missing_ratio: float = 1.5,
+                 history: int = 9, restart_after: int = 4, max_flags: int = 256) -> None:
+        self.double_ratio = double_ratio
+        self.missing_ratio = missing_ratio
+        self.restart_after = restart_after
+        self._periods: deque[int] = deque(maxlen=history)
+        self._last_edge: int | None = None
+        self._rejected_in_row = 0
+        self._candidate: int | None = None
+        self.revolutions = 0
+        self.double_edges = 0
+        self.missing_edges = 0
+        self.restarts = 0
+        self.flags: deque[EdgeFlag] = deque(maxlen=max_flags)
+
+    @property
+    def reference_period_ticks(self) -> float | None:
+        """Median of the recent good periods, or None while still learning."""
+        if not self._periods:
+            return None
+        return float(np.median(np.fromiter(self._periods, dtype=float)))
+
+    @property
+    def last_edge_tick(self) -> int | None:
+        return self._last_edge
+
+    def reset(self) -> None:
+        """Forget the edge history (a new stream)."""
+        self._periods.clear()
+        self._last_edge = None
+        self._candidate = None
+        self._rejected_in_row = 0
+
+    def add_edge(self, tick: int) -> Revolution | None:
+        """Take one edge (64-bit tick); return the revolution it completes, if any."""
+        last = self._last_edge
+        if last is None:
+            self._last_edge = tick
+            return None
+        period = tick - last
+        if period <= 0:
+            self.flags.append(EdgeFlag(tick, "double", 0.0))
+            self.double_edges += 1
+            return None
+        reference = self.reference_period_ticks
+        if reference is None:
+            return self._learn(tick, period)
+        ratio = period / reference
+        if ratio < self.double_ratio:
+            self.double_edges += 1
+            self.flags.append(EdgeFlag(tick, "double", ratio))
+            self._rejected(tick)
+            return None
+        if ratio > self.missing_ratio:
+            missed = max(1, int(math.floor(ratio + 0.5)) - 1)
+            self.missing_edges += missed
+            self.flags.append(EdgeFlag(tick, "missing", ratio, missed))
+            self._last_edge = tick
+            self._rejected(tick)
+            return None
+        self._rejected_in_row = 0
+        self._periods.append(period)
+        self._last_edge = tick
+        return self._emit(last, tick)
+
+    def _emit(self, start: int, end: int) -> Revolution:
+        rev = Revolution(self.revolutions, start, end)
+        self.revolutions += 1
+        return rev
+
+    def _learn(self, tick: int, period: int) -> Revolution | None:
+        """No reference yet: accept once two consecutive periods agree within 15 %."""
+        previous = self._candidate
+        self._candidate = period
+        start = self._last_edge
+        self._last_edge = tick
+        if previous is not None and 1 / 1.15 <= period / previous <= 1.15:
+            self._periods.append(previous)
+            self._periods.append(period)
+            self._candidate = None
+            assert start is not None
+            return self._emit(start, tick)
+        return None
+
+    def _rejected(self, tick: int) -> None:
+        self._rejected_in_row += 1
+        if self._rejected_in_row >= self.restart_after:
+            self.restarts += 1
+            self.flags.append(EdgeFlag(tick, "restart", 0.0))
+            self._periods.clear()
+            self._candidate = None
+            self._last_edge = tick
+            self._rejected_in_row = 0
+
+
+def shaft_angle_rad(ticks: np.ndarray, start_tick: int, end_tick: int) -> np.ndarray:
+    """Shaft angle (rad, 0 at the tach edge, increasing with rotation) within one revolution."""
+    return (2.0 * math.pi / (end_tick - start_tick)) * (np.asarray(ticks, dtype=float) - start_tick)

@@ -1,0 +1,455 @@
+/* main.c - trueturn firmware for the ATmega328P at 16 MHz (Uno/Nano class), avr-libc only.
+ *
+ * One clock: Timer1 runs free at clk/8 = 2 MHz (the tick), extended to 32 bits in software.
+ *  - The tach enters on ICP1 (D8) with the noise canceller on; the capture register holds
+ *    the tick of the edge, so no interrupt latency enters the tach time.
+ *  - The ADC is auto-triggered by Timer1 compare-match B; the ADC interrupt steps OCR1B by
+ *    period_ticks, so conversion i is triggered at exactly start_tick + i * period_ticks.
+ *    A0 and A1 alternate when two channels are on.
+ *  - The main loop turns queued samples and tach edges into protocol v1 frames, answers
+ *    host commands, sends status once a second and blinks the LED.
+ * See firmware/README.md for the design notes and the cycle budget of each handler. */
+#include <avr/interrupt.h>
+#include <avr/io.h>
+#include <avr/wdt.h>
+#include <stdint.h>
+#include <util/atomic.h>
+
+#include "tt_blocks.h"
+#include "tt_clock.h"
+#include "tt_cobs.h"
+#include "tt_command.h"
+#include "tt_frame.h"
+#include "tt_messages.h"
+#include "tt_pins.h"
+#include "tt_protocol_defs.h"
+#include "tt_rx.h"
+#include "tt_tachq.h"
+
+#define TT_FIRMWARE_MAJOR 1u
+#define TT_FIRMWARE_MINOR 0u
+#define TT_FIRMWARE_PATCH 0u
+#ifndef TT_BOARD_ID
+#define TT_BOARD_ID 1u /* 1 = ATmega328P 16 MHz (Uno/Nano class) */
+#endif
+
+#define TT_TICK_HZ (F_CPU / 8UL)          /* Timer1 prescaler 8 */
+#define TT_ADC_BITS 10u
+#define TT_ADC_REFERENCE_MV 5000u         /* AVCC reference */
+/* Auto-triggered conversion: sample-and-hold 2 ADC clocks after the trigger plus 3 CPU
+ * clocks of synchronisation (ATmega328P datasheet, "ADC Conversion Time"): 2 * 64 + 3 = 131
+ * CPU clocks = 16.4 ticks, reported as 16. */
+#define TT_APERTURE_DELAY_TICKS 16u
+#define TT_MAX_CHANNELS 2u
+/* A conversion takes 13.5 ADC clocks = 864 CPU clocks = 108 ticks; the next trigger must be
+ * due after the ADC interrupt has stepped OCR1B, hence 200 ticks (100 us, 2 x 5 kSps). */
+#define TT_MIN_PERIOD_TICKS 200u
+#define TT_START_LEAD_TICKS 400u          /* first trigger 200 us after start */
+#define TT_STATUS_PERIOD_TICKS TT_TICK_HZ /* status once a second */
+
+#define TT_RX_RING 32u                    /* power of two */
+
+/* ---- shared with interrupt handlers ---- */
+static struct tt_blocks g_blocks;
+static struct tt_tachq g_tach;
+static volatile uint16_t g_t1_overflows;
+static volatile uint16_t g_adc_period_ticks;
+static volatile uint8_t g_adc_two_channels;
+static volatile uint8_t g_adc_armed;
+static volatile uint16_t g_adc_overruns;
+static volatile uint8_t g_last_error;
+static volatile uint8_t g_stream_fault;
+
+static uint8_t g_tx[256];                 /* indices wrap at 256 for free */
+static volatile uint8_t g_tx_head, g_tx_tail;
+static uint8_t g_rx_ring[TT_RX_RING];
+static volatile uint8_t g_rx_head, g_rx_tail;
+
+/* ---- main loop only ---- */
+static uint8_t g_rx_body[24];             /* host commands are at most 10 encoded bytes */
+static struct tt_rx g_rx;
+static uint8_t g_raw[TT_OVERHEAD_BYTES + TT_MSG_SAMPLES_FIXED_BYTES
+                     + TT_BLOCK_MAX_SAMPLES * TT_MSG_SAMPLES_REST_ITEM_BYTES];
+static uint8_t g_seq;
+static uint8_t g_state = TT_STATE_IDLE;
+static struct tt_setup g_setup = {1000u, 2u, 1u, 1000u}; /* 2 x 1 kSps, rising edge */
+static uint32_t g_start_tick;
+static uint16_t g_rx_bad_frames;
+static uint32_t g_uptime_ms;
+static uint32_t g_next_status_tick;
+
+static const struct tt_limits g_limits = {
+    TT_TICK_HZ, 100u, 5000u, TT_MAX_CHANNELS, TT_MIN_PERIOD_TICKS};
+
+/* Reset cause, saved before the C runtime clears RAM (.noinit is not cleared). */
+static uint8_t g_reset_flags __attribute__((section(".noinit")));
+
+/* Runs before main: keep MCUSR and stop a watchdog left running by a watchdog reset, which
+ * would otherwise restart the board in a loop (avr-libc <avr/wdt.h> documentation). */
+void tt_early_init(void) __attribute__((naked, used, section(".init3")));
+void tt_early_init(void)
+{
+    g_reset_flags = MCUSR;
+    MCUSR = 0;
+    wdt_disable();
+}
+
+/* ---------------- interrupt handlers ---------------- */
+
+ISR(TIMER1_OVF_vect)
+{
+    g_t1_overflows++;
+}
+
+ISR(TIMER1_CAPT_vect)
+{
+    uint16_t icr = ICR1;
+    uint8_t pending = (TIFR1 & _BV(TOV1)) != 0;
+    if (tt_tachq_put(&g_tach, tt_extend_ticks(g_t1_overflows, icr, pending))) {
+        g_last_error = TT_LAST_TACH_OVERRUN;
+        g_stream_fault = 1;
+    }
+}
+
+ISR(ADC_vect)
+{
+    uint16_t sample = ADC; /* read before the multiplexer moves on */
+    uint16_t due;
+    if (!g_adc_armed) {
+        return;
+    }
+    due = (uint16_t)(OCR1B + g_adc_period_ticks);
+    OCR1B = due;
+    TIFR1 = _BV(OCF1B); /* the trigger is the flag's rising edge: clear it for the next one */
+    if (g_adc_two_channels) {
+        ADMUX ^= 1u;    /* A0 <-> A1 for the next conversion (safe: none is running) */
+    }
+    if ((uint16_t)(TCNT1 - due) < 0x8000u) {
+        g_adc_overruns++; /* the next trigger time has already passed */
+        g_last_error = TT_LAST_ADC_LATE;
+        g_stream_fault = 1;
+    }
+    if (tt_blocks_put(&g_blocks, sample)) {
+        g_last_error = TT_LAST_SAMPLE_OVERRUN;
+        g_stream_fault = 1;
+    }
+}
+
+ISR(USART_RX_vect)
+{
+    uint8_t byte = UDR0;
+    uint8_t next = (uint8_t)((g_rx_head + 1u) & (TT_RX_RING - 1u));
+    if (next != g_rx_tail) { /* a full ring drops the byte; the frame then fails its CRC */
+        g_rx_ring[g_rx_head] = byte;
+        g_rx_head = next;
+    }
+}
+
+ISR(USART_UDRE_vect)
+{
+    uint8_t tail = g_tx_tail;
+    if (tail != g_tx_head) {
+        UDR0 = g_tx[tail];
+        g_tx_tail = (uint8_t)(tail + 1u);
+    } else {
+        UCSR0B &= (uint8_t)~_BV(UDRIE0);
+    }
+}
+
+/* ---------------- clock ---------------- */
+
+static uint32_t now_ticks(void)
+{
+    uint16_t low, overflows;
+    uint8_t pending;
+    ATOMIC_BLOCK(ATOMIC_RESTORESTATE) {
+        low = TCNT1;
+        pending = (TIFR1 & _BV(TOV1)) != 0;
+        overflows = g_t1_overflows;
+    }
+    return tt_extend_ticks(overflows, low, pending);
+}
+
+/* ---------------- transmit ---------------- */
+
+/* Queue the raw frame in g_raw if the ring has room; the sequence number moves on. */
+static uint8_t tx_try(uint8_t raw_len)
+{
+    uint8_t head = g_tx_head;
+    uint8_t room = (uint8_t)(g_tx_tail - head - 1u);
+    if (room < (uint8_t)(raw_len + 2u)) { /* COBS adds 1 byte (frames < 254), plus 0x00 */
+        return 0;
+    }
+    g_tx_head = (uint8_t)(head + tt_cobs_encode_ring(g_raw, raw_len, g_tx, head));
+    UCSR0B |= _BV(UDRIE0);
+    g_seq++;
+    return 1;
+}
+
+/* Queue a frame, waiting for the UART to make room (at most ~5 ms). */
+static void tx_wait(uint8_t raw_len)
+{
+    while (!tx_try(raw_len)) {
+        wdt_reset();
+    }
+}
+
+static void send_identity(void)
+{
+    struct tt_identity v;
+    v.protocol_version = TT_PROTOCOL_VERSION;
+    v.definition_hash = TT_DEFINITION_HASH;
+    v.firmware_major = TT_FIRMWARE_MAJOR;
+    v.firmware_minor = TT_FIRMWARE_MINOR;
+    v.firmware_patch = TT_FIRMWARE_PATCH;
+    v.board_id = TT_BOARD_ID;
+    v.tick_hz = TT_TICK_HZ;
+    v.adc_bits = TT_ADC_BITS;
+    v.adc_reference_mv = TT_ADC_REFERENCE_MV;
+    v.aperture_delay_ticks = TT_APERTURE_DELAY_TICKS;
+    v.max_channels = TT_MAX_CHANNELS;
+    v.channel0_pin = TT_PICKUP_1_ADC_CHANNEL;
+    v.channel1_pin = TT_PICKUP_2_ADC_CHANNEL;
+    v.tach_pin = TT_TACH_ARDUINO_PIN;
+    tx_wait((uint8_t)tt_msg_identity(g_raw, g_seq, &v));
+}
+
+static void send_stream_config(void)
+{
+    struct tt_stream_config v;
+    v.rate_hz = g_setup.rate_hz;
+    v.channels = g_setup.channels;
+    v.period_ticks = g_setup.period_ticks;
+    v.tach_edge = g_setup.tach_edge;
+    v.start_tick = g_state == TT_STATE_IDLE ? 0u : g_start_tick;
+    tx_wait((uint8_t)tt_msg_stream_config(g_raw, g_seq, &v));
+}
+
+/* ---------------- sampling ---------------- */
+
+static void set_tach_edge(uint8_t rising)
+{
+    ATOMIC_BLOCK(ATOMIC_RESTORESTATE) {
+        if (rising) {
+            TCCR1B |= _BV(ICES1);
+        } else {
+            TCCR1B &= (uint8_t)~_BV(ICES1);
+        }
+        TIFR1 = _BV(ICF1); /* a change of edge can set the flag (datasheet, "Input Capture") */
+    }
+}
+
+static void start_stream(void)
+{
+    uint8_t block_len = tt_blocks_len_for(g_setup.rate_hz, g_setup.channels);
+    while (ADCSRA & _BV(ADSC)) {
+        /* let a conversion still running from the last stream finish (at most 54 us) */
+    }
+    ATOMIC_BLOCK(ATOMIC_RESTORESTATE) {
+        tt_blocks_reset(&g_blocks, block_len);
+        g_adc_period_ticks = g_setup.period_ticks;
+        g_adc_two_channels = g_setup.channels == 2u;
+        g_stream_fault = 0;
+        ADMUX = _BV(REFS0) | TT_PICKUP_1_ADC_CHANNEL;
+        g_start_tick = now_ticks() + TT_START_LEAD_TICKS;
+        OCR1B = (uint16_t)g_start_tick;
+        TIFR1 = _BV(OCF1B);
+        g_adc_armed = 1;
+        ADCSRA = _BV(ADEN) | _BV(ADATE) | _BV(ADIE) | _BV(ADPS2) | _BV(ADPS1);
+    }
+    g_state = TT_STATE_STREAMING;
+}
+
+static uint8_t send_one_block(void)
+{
+    const struct tt_block *b = tt_blocks_peek(&g_blocks);
+    if (b == 0) {
+        return 0;
+    }
+    if (!tx_try((uint8_t)tt_msg_samples(g_raw, g_seq, b->first_index, g_setup.channels,
+                                        b->samples, g_blocks.block_len))) {
+        return 0;
+    }
+    tt_blocks_release(&g_blocks);
+    return 1;
+}
+
+static void stop_stream(void)
+{
+    ATOMIC_BLOCK(ATOMIC_RESTORESTATE) {
+        ADCSRA = _BV(ADEN) | _BV(ADIE) | _BV(ADPS2) | _BV(ADPS1); /* no more triggers */
+        g_adc_armed = 0;
+    }
+    while (tt_blocks_peek(&g_blocks) != 0) { /* complete blocks still go out */
+        wdt_reset();
+        send_one_block();
+    }
+    g_state = TT_STATE_IDLE;
+}
+
+/* ---------------- host commands ---------------- */
+
+static void bad_frame(void)
+{
+    g_rx_bad_frames++;
+    g_last_error = TT_LAST_RX_BAD_FRAME;
+}
+
+static void handle_body(void)
+{
+    struct tt_frame f;
+    struct tt_command cmd;
+    enum tt_frame_status st = tt_frame_decode(g_rx.buf, g_rx.len, &f);
+    if (!tt_command_parse(st, &f, g_state, &g_limits, &cmd)) {
+        bad_frame();
+        return;
+    }
+    if (cmd.action == TT_ACT_STOP) {
+        stop_stream();
+    } else if (cmd.action == TT_ACT_CONFIGURE) {
+        g_setup = cmd.setup;
+        set_tach_edge(g_setup.tach_edge);
+    }
+    tx_wait((uint8_t)tt_msg_reply(g_raw, g_seq, cmd.type, cmd.seq, cmd.error));
+    switch (cmd.action) {
+    case TT_ACT_IDENTIFY:
+        send_identity();
+        break;
+    case TT_ACT_START:
+        start_stream();
+        send_stream_config();
+        break;
+    case TT_ACT_CONFIGURE:
+        send_stream_config();
+        break;
+    case TT_ACT_PING:
+        tx_wait((uint8_t)tt_msg_pong(g_raw, g_seq, cmd.token, now_ticks()));
+        break;
+    default:
+        break;
+    }
+}
+
+static void service_rx(void)
+{
+    while (g_rx_tail != g_rx_head) {
+        uint8_t tail = g_rx_tail;
+        enum tt_rx_result r = tt_rx_byte(&g_rx, g_rx_ring[tail]);
+        g_rx_tail = (uint8_t)((tail + 1u) & (TT_RX_RING - 1u));
+        if (r == TT_RX_TOO_LONG) {
+            bad_frame();
+        } else if (r == TT_RX_BODY) {
+            handle_body();
+            tt_rx_done(&g_rx);
+        }
+    }
+}
+
+/* ---------------- tach, status, LED ---------------- */
+
+static void service_tach(void)
+{
+    const struct tt_tach_event *e = tt_tachq_peek(&g_tach);
+    if (e != 0 && tx_try((uint8_t)tt_msg_tach(g_raw, g_seq, e->tick, e->edge_count))) {
+        tt_tachq_release(&g_tach);
+    }
+}
+
+static void service_status(uint32_t now)
+{
+    struct tt_status v;
+    if ((int32_t)(now - g_next_status_tick) < 0) {
+        return;
+    }
+    ATOMIC_BLOCK(ATOMIC_RESTORESTATE) {
+        v.samples_dropped = g_blocks.dropped;
+        v.frames_dropped = g_tach.dropped; /* tach messages lost to a full edge queue */
+        v.adc_overruns = g_adc_overruns;
+        v.tach_edges = g_tach.edges_total;
+        v.last_error = g_last_error;
+    }
+    v.uptime_ms = g_uptime_ms + 1000u;
+    v.state = g_state;
+    v.rx_bad_frames = g_rx_bad_frames;
+    if (tx_try((uint8_t)tt_msg_status(g_raw, g_seq, &v))) {
+        g_uptime_ms += 1000u;
+        g_next_status_tick += TT_STATUS_PERIOD_TICKS;
+    }
+}
+
+/* LED patterns (documented in firmware/README.md), in units of 2^17 ticks = 65.5 ms:
+ * idle = one 65 ms flash every 1.05 s; streaming = 0.26 s on / 0.26 s off;
+ * error = 65 ms on / 65 ms off. */
+static void service_led(uint32_t now)
+{
+    uint8_t unit = (uint8_t)(now >> 17);
+    uint8_t on;
+    if (g_state == TT_STATE_STREAMING) {
+        on = (unit & 4u) == 0u;
+    } else if (g_state == TT_STATE_ERROR) {
+        on = (unit & 1u) == 0u;
+    } else {
+        on = (unit & 15u) == 0u;
+    }
+    if (on) {
+        TT_LED_PORT |= _BV(TT_LED_BIT);
+    } else {
+        TT_LED_PORT &= (uint8_t)~_BV(TT_LED_BIT);
+    }
+}
+
+/* ---------------- set-up ---------------- */
+
+static void board_init(void)
+{
+    TT_LED_DDR |= _BV(TT_LED_BIT);
+    TT_TACH_DDR &= (uint8_t)~_BV(TT_TACH_BIT);
+    TT_TACH_PORT |= _BV(TT_TACH_BIT); /* pull-up: open-collector tach modules need one */
+
+    /* ADC: AVCC reference, right-aligned, A0, 250 kHz ADC clock (prescaler 64), interrupt
+     * on. The first conversion after enabling takes 25 ADC clocks; do it now (its result is
+     * ignored while disarmed) so every stream conversion takes the normal 13.5. */
+    DIDR0 = TT_PICKUP_DIDR_BITS;
+    ADMUX = _BV(REFS0) | TT_PICKUP_1_ADC_CHANNEL;
+    ADCSRB = _BV(ADTS2) | _BV(ADTS0); /* auto-trigger source: Timer1 compare match B */
+    ADCSRA = _BV(ADEN) | _BV(ADIE) | _BV(ADPS2) | _BV(ADPS1) | _BV(ADSC);
+
+    /* Timer1: normal mode, clk/8, input-capture noise canceller, edge from the set-up. */
+    TCCR1A = 0;
+    TIFR1 = _BV(ICF1) | _BV(OCF1B) | _BV(OCF1A) | _BV(TOV1);
+    TIMSK1 = _BV(ICIE1) | _BV(TOIE1);
+    TCCR1B = _BV(ICNC1) | (g_setup.tach_edge ? _BV(ICES1) : 0u) | _BV(CS11);
+
+    /* UART 500000 baud 8N1: U2X, UBRR = 16 MHz / (8 * 500000) - 1 = 3, exact. */
+    UCSR0A = _BV(U2X0);
+    UBRR0 = 3u;
+    UCSR0C = _BV(UCSZ01) | _BV(UCSZ00);
+    UCSR0B = _BV(RXEN0) | _BV(TXEN0) | _BV(RXCIE0);
+
+    tt_rx_init(&g_rx, g_rx_body, sizeof g_rx_body);
+    if (g_reset_flags & _BV(WDRF)) {
+        g_last_error = TT_LAST_WATCHDOG_RESET;
+    }
+    wdt_enable(WDTO_250MS);
+}
+
+int main(void)
+{
+    board_init();
+    sei();
+    send_identity(); /* at boot, seq 0 */
+    g_next_status_tick = now_ticks() + TT_STATUS_PERIOD_TICKS;
+    for (;;) {
+        uint32_t now;
+        wdt_reset();
+        service_rx();
+        service_tach();
+        send_one_block();
+        if (g_state == TT_STATE_STREAMING && g_stream_fault) {
+            g_state = TT_STATE_ERROR; /* streaming goes on; losses are in the status */
+        }
+        now = now_ticks();
+        service_status(now);
+        service_led(now);
+    }
+}

@@ -1,11 +1,185 @@
-"""`trueturn record`: record the board's stream to a capture file."""
+"""`trueturn record`: record the board's stream to a capture file (protocol/SPEC.md section 7).
+
+Works the same with a real port (``/dev/ttyUSB0``, ``COM3``), ``sim://NAME`` and
+``emu://NAME``. The length is counted in stream time (samples received), not wall time, so a
+fast simulation (``sim://NAME?realtime=0``) records S seconds of signal in less.
+"""
 
 from __future__ import annotations
 
 import argparse
+import datetime as dt
+import sys
+import time
+from pathlib import Path
+from typing import Any
 
-from trueturn.cli.common import add_not_ready
+import serial
+
+from trueturn import __version__
+from trueturn.cli.common import print_json
+from trueturn.errors import UserError
+from trueturn.link.capture import CaptureWriter
+from trueturn.link.codec import Message
+from trueturn.link.ports import open_port
+from trueturn.link.session import BoardError, BoardSession, mismatch_message
+
+BOOT_WAIT_S = 2.5  # a Nano's bootloader takes up to ~2 s after the port opens
+STALL_TIMEOUT_S = 3.0  # no samples for this long: the stream is gone
+PROGRESS_EVERY_S = 0.25
 
 
 def add_parser(sub: argparse._SubParsersAction) -> None:
-    add_not_ready(sub, "record", "record the board's stream to a capture file", 4)
+    parser = sub.add_parser(
+        "record", help="record the board's stream to a capture file",
+        description="Configure the board, stream for S seconds of signal and save every "
+                    "received byte in a capture file (replay it with analyze or dump).")
+    parser.add_argument("--port", required=True,
+                        help="serial port or URL: /dev/ttyUSB0, COM3, sim://bench-grinder, "
+                             "emu://bench-grinder")
+    parser.add_argument("--seconds", type=float, required=True, help="seconds of signal to record")
+    parser.add_argument("-o", "--output", required=True, help="capture file to write")
+    parser.add_argument("--rate-hz", type=int, default=4000,
+                        help="samples per second per channel (default 4000)")
+    parser.add_argument("--channels", type=int, default=2, choices=(1, 2),
+                        help="pickup channels (default 2)")
+    parser.add_argument("--tach-edge", choices=("rising", "falling"), default="rising",
+                        help="tach edge that marks the reference (default rising)")
+    parser.add_argument("--json", action="store_true", help="print a JSON summary on stdout")
+    parser.add_argument("--quiet", action="store_true", help="no progress line")
+    parser.set_defaults(run=run)
+
+
+def _progress(text: str, quiet: bool) -> None:
+    if not quiet:
+        sys.stderr.write(f"\r{text}\x1b[K" if sys.stderr.isatty() else f"{text}\n")
+        sys.stderr.flush()
+
+
+def _boot_identity(session: BoardSession) -> dict[str, Any] | None:
+    """The identity a board sends at reset (opening a Nano's port resets it), if it comes
+    within BOOT_WAIT_S; asking again on top of it would look like a second reset."""
+    deadline = time.monotonic() + BOOT_WAIT_S
+    while time.monotonic() < deadline:
+        session.read()
+        if session.identity is not None:
+            problem = mismatch_message(session.identity, session.catalogue)
+            if problem:
+                raise BoardError(problem)
+            return session.identity
+    return None
+
+
+def _virtual_rig_metadata(port: serial.SerialBase) -> dict[str, Any]:
+    """For sim:// and emu:// the scenario is known: store its mains and pickups, so
+    ``trueturn analyze`` fits out the right hum and can convert volts to g."""
+    rig = getattr(port, "rig", None)
+    scenario = getattr(rig, "scenario", None) or getattr(port, "scenario", None)
+    if scenario is None or not hasattr(scenario, "electrical"):
+        return {}
+    return {
+        "scenario": scenario.name,
+        "mains_hz": scenario.motor.mains_hz,
+        "pickups": [{"name": p.name, "sensitivity_v_per_g": e.sensitivity_v_per_g,
+                     "zero_g_v": e.zero_g_v}
+                    for p, e in zip(scenario.rotor.pickups, scenario.electrical, strict=True)],
+    }
+
+
+def run(args: argparse.Namespace) -> int:
+    if not args.seconds > 0 or args.seconds > 24 * 3600:
+        raise UserError(f"--seconds must be between 0 and 86400, got {args.seconds:g}")
+    if not 100 <= args.rate_hz <= 5000:
+        raise UserError(f"--rate-hz must be 100..5000, got {args.rate_hz}")
+    out_path = Path(args.output)
+    if out_path.is_dir():
+        raise UserError(f"{out_path} is a folder; give a file name, e.g. {out_path}/run1.cap")
+    if not out_path.parent.exists():
+        raise UserError(f"folder {out_path.parent} does not exist")
+    try:
+        port = open_port(args.port)
+    except (serial.SerialException, OSError, ValueError) as exc:
+        raise UserError(f"cannot open {args.port}: {exc}") from None
+    try:
+        return _record(port, args, out_path)
+    finally:
+        port.close()
+
+
+def _record(port: serial.SerialBase, args: argparse.Namespace, out_path: Path) -> int:
+    early: list[bytes] = []
+    writer: CaptureWriter | None = None
+
+    def sink(data: bytes) -> None:
+        if writer is None:
+            early.append(data)
+        else:
+            writer.write(data)
+
+    session = BoardSession(port, on_bytes=sink)
+    identity = _boot_identity(session) or session.identify()
+    metadata: dict[str, Any] = {
+        "port": args.port, "started_utc": dt.datetime.now(dt.timezone.utc).isoformat(),
+        "trueturn_version": __version__, "identity": identity,
+        "requested": {"seconds": args.seconds, "rate_hz": args.rate_hz,
+                      "channels": args.channels, "tach_edge": args.tach_edge},
+    }
+    metadata.update(_virtual_rig_metadata(port))
+    try:
+        writer = CaptureWriter(out_path, metadata)
+    except OSError as exc:
+        raise UserError(f"cannot write {out_path}: {exc.strerror or exc}") from None
+    for chunk in early:
+        writer.write(chunk)
+    edge = 1 if args.tach_edge == "rising" else 0
+    samples = 0
+    tach_edges = 0
+    interrupted = False
+    try:
+        session.configure(args.rate_hz, args.channels, edge)
+        config = session.start()
+        target = int(round(args.seconds * config["rate_hz"])) * config["channels"]
+        last_data = time.monotonic()
+        last_progress = 0.0
+        while samples < target:
+            for item in session.read():
+                if isinstance(item, Message):
+                    if item.name == "samples":
+                        samples += len(item["samples"])
+                        last_data = time.monotonic()
+                    elif item.name == "tach":
+                        tach_edges += 1
+            now = time.monotonic()
+            if now - last_data > STALL_TIMEOUT_S:
+                raise UserError(f"no samples from {args.port} for {STALL_TIMEOUT_S:g} s; "
+                                f"kept {samples / target * args.seconds:.2f} s in {out_path}")
+            if now - last_progress >= PROGRESS_EVERY_S:
+                last_progress = now
+                c = session.decoder.counters
+                _progress(f"recording {min(samples, target) / target * args.seconds:6.2f} / "
+                          f"{args.seconds:g} s  frames {c.frames_ok}  lost {c.frames_lost} "
+                          f"frames, {c.samples_lost} samples", args.quiet)
+        session.stop()
+    except KeyboardInterrupt:
+        interrupted = True
+        try:
+            session.send("stop")
+        except UserError:
+            pass
+    finally:
+        writer.close()
+    c = session.decoder.counters
+    seconds = samples / (args.rate_hz * args.channels)
+    summary = {"file": str(out_path), "seconds": round(seconds, 3),
+               "rate_hz": args.rate_hz, "channels": args.channels, "samples": samples,
+               "tach_edges": tach_edges, "interrupted": interrupted, "link": c.to_json()}
+    if not args.quiet:
+        sys.stderr.write("\n" if sys.stderr.isatty() else "")
+    print(f"{'interrupted, kept' if interrupted else 'wrote'} {out_path}: {seconds:.2f} s, "
+          f"{args.channels} ch x {args.rate_hz} Hz, {tach_edges} tach edges; link: "
+          f"{c.frames_ok} frames, {c.frames_bad} bad, {c.frames_lost} lost, "
+          f"{c.samples_lost} samples lost, {c.tach_edges_lost} tach edges lost",
+          file=sys.stderr)
+    if args.json:
+        print_json(summary)
+    return 130 if interrupted else 0

@@ -53,6 +53,13 @@ def _deg(angle_deg: float) -> str:
     return f"{angle_deg:.0f}\u00b0" if abs(angle_deg - round(angle_deg)) < 0.05 else f"{angle_deg:.1f}\u00b0"
 
 
+def short_time(iso: str) -> str:
+    """``'2026-11-28T14:02:10Z'`` shown as ``'2026-11-28 14:02'`` (other text unchanged)."""
+    if len(iso) >= 16 and iso[10] == "T":
+        return iso[:10] + " " + iso[11:16]
+    return iso
+
+
 def reading_text(reading: Reading, machine: MachineProfile) -> tuple[str, str]:
     """(amplitude with unit, phase with confidence) in the person's chosen units."""
     amplitude, unit = convert_vibration(reading.amplitude, reading.unit, machine.units.vibration)
@@ -160,13 +167,13 @@ def polar_svg(job: JobRecord, sensor: str, size_px: int = 320) -> str:
     return "\n".join(out)
 
 
-def plane_svg(job: JobRecord, plane_name: str, size_px: int = 240) -> str:
+def plane_svg(job: JobRecord, plane_name: str, size_px: int = 170) -> str:
     """The plane seen from the pickup side: reference mark, positions, parts on the rotor."""
     machine = job.machine
     plane = machine.plane(plane_name)
     rotation = machine.rotation
     c = size_px / 2
-    r = c - 30
+    r = c - 22
     out = [f'<svg xmlns="http://www.w3.org/2000/svg" class="plane" viewBox="0 0 {size_px} '
            f'{size_px}" role="img" aria-label="parts on {_e(plane_name)}">',
            f'<title>Parts on {_e(plane_name)}</title>',
@@ -174,8 +181,7 @@ def plane_svg(job: JobRecord, plane_name: str, size_px: int = 240) -> str:
            f'<circle cx="{c}" cy="{c}" r="3" fill="#555"/>']
     mx, my = _xy(c, c, r + 4, 0.0, rotation)
     out.append(f'<path d="M {mx:.1f} {my:.1f} l -6 -10 l 12 0 z" fill="#000"/>')
-    out.append(f'<text x="{mx:.1f}" y="{my - 13:.1f}" text-anchor="middle" class="tick">'
-               f'mark 0\u00b0</text>')
+    out.append(f'<text x="{mx + 8:.1f}" y="{my - 2:.1f}" class="tick">0\u00b0 mark</text>')
     for k, angle in enumerate(plane.layout.position_angles_deg()):
         x1, y1 = _xy(c, c, r - 5, angle, rotation)
         x2, y2 = _xy(c, c, r + 5, angle, rotation)
@@ -188,13 +194,21 @@ def plane_svg(job: JobRecord, plane_name: str, size_px: int = 240) -> str:
         if part.plane != plane_name:
             continue
         px, py = _xy(c, c, r, part.angle_deg, rotation)
-        lx, ly = _xy(c, c, r + 18, part.angle_deg, rotation)
         colour = "#D55E00" if part.purpose == "trial" else "#0072B2"
-        out.append(f'<circle class="part" cx="{px:.1f}" cy="{py:.1f}" r="5" fill="{colour}"/>')
-        out.append(f'<text x="{lx:.1f}" y="{ly + 3:.1f}" text-anchor="middle" class="label">'
-                   f'{_e(format_mass(part.mass_g, machine.units.mass))}</text>')
+        out.append(f'<circle class="part" cx="{px:.1f}" cy="{py:.1f}" r="5" fill="{colour}">'
+                   f'<title>{_e(format_mass(part.mass_g, machine.units.mass))} at '
+                   f'{_deg(part.angle_deg)}</title></circle>')
     out.append("</svg>")
     return "\n".join(out)
+
+
+def parts_text(job: JobRecord, plane_name: str) -> str:
+    """The parts left on a plane, as text: ``'1.70 g at 0 deg (position 1), ...'``."""
+    items = [f"{format_mass(p.mass_g, job.machine.units.mass)} at {_deg(p.angle_deg)}"
+             + (f" (position {p.position})" if p.position else "")
+             + (" TRIAL" if p.purpose == "trial" else "")
+             for p in job.parts_on_rotor() if p.plane == plane_name]
+    return ", ".join(items) if items else "no parts recorded"
 
 
 # --------------------------------------------------------------------------------------------
@@ -219,20 +233,19 @@ def _machine_rows(job: JobRecord) -> list[tuple[str, str]]:
         ("Rotor", f"{m.rotor_kind}, {m.rotor_mass_kg:g} kg"),
         ("Speed", f"{m.speed_min_rpm:g}-{m.speed_max_rpm:g} rpm, never above "
                   f"{m.max_speed_rpm:g} rpm"),
-        ("Rotation", f"{m.rotation} seen from the pickup side; angles from the reference "
-                     "mark against rotation"),
+        ("Rotation", f"{m.rotation}, seen from the pickup side"),
         ("Correction planes", planes),
         ("Pickups", pickups),
         ("Tach", f"{m.tach.edge} edge, {m.tach.marks_per_rev} mark(s) per rev"
                  + (f", {m.tach.mark}" if m.tach.mark else "")),
-        ("Mains", f"{m.mains_hz} Hz"),
-        ("Target grade", f"G {m.target_grade:g} (ISO 21940-11)"),
+        ("Mains, target", f"{m.mains_hz} Hz; grade G {m.target_grade:g} (ISO 21940-11)"),
     ]
 
 
 def _job_rows(job: JobRecord) -> list[tuple[str, str]]:
     rows = [("Job", job.job_id), ("Status", job.status), ("Method", job.method),
-            ("Started", job.created), ("Last saved", job.updated or job.created)]
+            ("Started", short_time(job.created)),
+            ("Last saved", short_time(job.updated or job.created))]
     if job.speed_rpm:
         rows.append(("Balancing speed", f"{job.speed_rpm:g} rpm"))
     if job.operator:
@@ -260,10 +273,10 @@ def before_after_rows(job: JobRecord) -> list[list[str]]:
 
 def run_rows(job: JobRecord) -> tuple[list[str], list[list[str]]]:
     sensors = [p.name for p in job.machine.pickups]
-    header = ["Run", "Time", "What", "Speed"] + sensors + ["Revs"]
+    header = ["Run", "Time (UTC)", "What", "Speed"] + sensors + ["Revs"]
     rows = []
     for run in job.runs:
-        cells = [str(run.index), run.time, run.label or _RUN_KIND_NAMES[run.kind],
+        cells = [str(run.index), short_time(run.time), run.label or _RUN_KIND_NAMES[run.kind],
                  f"{run.speed_rpm:g} rpm"]
         revs = []
         for s in sensors:
@@ -336,12 +349,12 @@ def confirmation_rows(job: JobRecord) -> list[list[str]]:
         for c in confirmations:
             tach = (f"yes ({c.tach_rpm:g} rpm)" if c.tach_rpm is not None else "yes") \
                 if c.standstill_by_tach else "NO"
-            rows.append([where, c.time, c.step, tach, c.text or "-"])
+            rows.append([where, short_time(c.time), c.step, tach, c.text or "-"])
     return rows
 
 
 def event_rows(job: JobRecord) -> list[list[str]]:
-    return [[f"run {r.index}", e.time, e.kind, e.detail or "-"] for r in job.runs
+    return [[f"run {r.index}", short_time(e.time), e.kind, e.detail or "-"] for r in job.runs
             for e in r.events]
 
 
@@ -358,27 +371,29 @@ def influence_rows(job: JobRecord) -> list[list[str]]:
 
 _CSS = """
 :root { color-scheme: light; }
-body { font-family: "DejaVu Sans", "Helvetica Neue", Arial, sans-serif; font-size: 10pt;
+body { font-family: "DejaVu Sans", "Helvetica Neue", Arial, sans-serif; font-size: 9pt;
        color: #111; max-width: 186mm; margin: 8mm auto; line-height: 1.3; }
 h1 { font-size: 15pt; margin: 0 0 2mm 0; }
-h2 { font-size: 11.5pt; margin: 5mm 0 1.5mm 0; border-bottom: 0.4mm solid #444; }
-table { border-collapse: collapse; width: 100%; margin: 1mm 0 2mm 0; font-size: 8.5pt; }
-th, td { border: 0.25mm solid #bbb; padding: 0.6mm 1.4mm; text-align: left; vertical-align: top; }
+h2 { font-size: 11pt; margin: 3mm 0 1mm 0; border-bottom: 0.4mm solid #444; }
+table { border-collapse: collapse; width: 100%; margin: 1mm 0 1.5mm 0; font-size: 7.8pt; }
+th, td { border: 0.25mm solid #bbb; padding: 0.4mm 1.2mm; text-align: left; vertical-align: top; }
 th { background: #eee; }
-table.kv th { width: 32mm; }
-.figures { display: flex; flex-wrap: wrap; gap: 3mm; }
-figure { margin: 0; width: 88mm; }
-figure.small { width: 58mm; }
+table.kv th { width: 26mm; }
+.figures { display: flex; flex-wrap: wrap; gap: 2mm; align-items: flex-start; }
+.figures > div { min-width: 0; }
+figure { margin: 0; flex: 0 0 30%; }
+figure.small { flex: 0 0 18%; }
 figure svg { width: 100%; height: auto; }
-figcaption { font-size: 8pt; color: #333; }
+figcaption { font-size: 7pt; color: #333; }
 svg text { font-family: "DejaVu Sans", Arial, sans-serif; }
-svg .tick { font-size: 9px; fill: #555; }
-svg .label { font-size: 11px; font-weight: bold; }
+svg .tick { font-size: 10px; fill: #444; }
+svg .label { font-size: 12px; font-weight: bold; }
 .pass { color: #006b3c; font-weight: bold; }
 .fail { color: #b00020; font-weight: bold; }
 .cautions { border: 0.5mm solid #b00020; padding: 1mm 3mm; }
 .cautions li { margin: 0.5mm 0; }
-.note { font-size: 8.5pt; color: #333; }
+.note { font-size: 7.8pt; color: #333; margin: 1mm 0; }
+.cautions { font-size: 8pt; }
 @page { margin: 12mm; }
 @media print {
   body { margin: 0; max-width: none; }
@@ -443,13 +458,16 @@ def html_report(job: JobRecord, generated: str = "") -> str:
     parts += ['<h2>Before and after</h2>',
               _html_table(["Pickup", "Before", "Phase", "After", "Phase", "Change"],
                           before_after_rows(job), "before-after")]
+    figures = []
     if job.runs:
-        figures = []
         for pickup in m.pickups:
             figures.append(f'<figure>{polar_svg(job, pickup.name)}<figcaption>1x vector of '
                            f'{_e(pickup.name)} per run (numbers = run), circle = phase '
-                           f'confidence. 0\u00b0 at top.</figcaption></figure>')
-        parts += ['<div class="figures">', *figures, '</div>']
+                           f'confidence.</figcaption></figure>')
+    figures += [f'<figure class="small">{plane_svg(job, p.name)}<figcaption>{_e(p.name)}, seen '
+                f'from the pickup side: {_e(parts_text(job, p.name))}.</figcaption></figure>'
+                for p in m.planes]
+    parts += ['<div class="figures">', *figures, '</div>']
     header, rows = run_rows(job)
     parts += ['<h2>Runs</h2>', _html_table(header, rows, "runs")]
     rows = correction_rows(job)
@@ -463,10 +481,6 @@ def html_report(job: JobRecord, generated: str = "") -> str:
                                   "Radius", "Part"], rows, "changes"))
     if not job.runs and job.pending is None:
         parts.append('<p>No runs recorded yet.</p>')
-    plane_figures = [f'<figure class="small">{plane_svg(job, p.name)}<figcaption>Parts left on '
-                     f'{_e(p.name)}, seen from the pickup side.</figcaption></figure>'
-                     for p in m.planes]
-    parts += ['<div class="figures">', *plane_figures, '</div>']
     rows = influence_rows(job)
     if rows:
         parts += ['<h2>Saved influence coefficients</h2>',
@@ -475,12 +489,12 @@ def html_report(job: JobRecord, generated: str = "") -> str:
                   'one-run trims of this machine at about this speed.</p>']
     parts.append('<h2>Safety confirmations and events</h2>')
     rows = confirmation_rows(job)
-    parts.append(_html_table(["When", "Time", "Step", "Standstill by tach", "Confirmed"],
+    parts.append(_html_table(["When", "Time (UTC)", "Step", "Standstill by tach", "Confirmed"],
                              rows, "confirmations") if rows
                  else '<p>No hands-on steps recorded.</p>')
     rows = event_rows(job)
     if rows:
-        parts.append(_html_table(["Run", "Time", "Event", "Detail"], rows, "events"))
+        parts.append(_html_table(["Run", "Time (UTC)", "Event", "Detail"], rows, "events"))
     notes = [job.notes] + [f"Run {r.index}: {r.notes}" for r in job.runs if r.notes]
     notes = [n for n in notes if n]
     if notes:
@@ -537,11 +551,11 @@ def markdown_report(job: JobRecord, generated: str = "") -> str:
                 _md_table(["Pickup", "Plane", "Amplitude", "Phase"], rows), ""]
     rows = confirmation_rows(job)
     out += ["## Safety confirmations and events", ""]
-    out += [_md_table(["When", "Time", "Step", "Standstill by tach", "Confirmed"], rows)
+    out += [_md_table(["When", "Time (UTC)", "Step", "Standstill by tach", "Confirmed"], rows)
             if rows else "No hands-on steps recorded.", ""]
     rows = event_rows(job)
     if rows:
-        out += [_md_table(["Run", "Time", "Event", "Detail"], rows), ""]
+        out += [_md_table(["Run", "Time (UTC)", "Event", "Detail"], rows), ""]
     notes = [job.notes] + [f"Run {r.index}: {r.notes}" for r in job.runs if r.notes]
     if any(notes):
         out += ["## Notes", "", *[f"- {n}" for n in notes if n], ""]

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from functools import lru_cache
 
 import numpy as np
 from scipy import stats
@@ -43,11 +44,17 @@ class VectorStats:
         return self.drift > self.drift_radius and self.drift > 0.03 * abs(self.mean)
 
 
+@lru_cache(maxsize=512)
+def f_quantile(level: float, dfn: int, dfd: int) -> float:
+    """Quantile of the F distribution (scipy.stats.f), cached: the meter asks every revolution."""
+    return float(stats.f.ppf(level, dfn, dfd))
+
+
 def confidence_radius(scatter_var: float, n: int, level: float = 0.95) -> float:
     """Radius of the ``level`` confidence circle of a mean of n circular-Gaussian vectors."""
     if n < 2:
         return math.inf
-    return math.sqrt(stats.f.ppf(level, 2, 2 * n - 2) * scatter_var / n)
+    return math.sqrt(f_quantile(level, 2, 2 * n - 2) * scatter_var / n)
 
 
 def subtended_deg(radius: float, amplitude: float) -> float:
@@ -74,7 +81,7 @@ def vector_stats(vectors: np.ndarray, level: float = 0.95) -> VectorStats:
         drift = abs(complex(second.mean() - first.mean()))
         pooled = float((np.abs(first - first.mean()) ** 2).sum()
                        + (np.abs(second - second.mean()) ** 2).sum()) / (2 * half - 2)
-        drift_radius = math.sqrt(stats.f.ppf(level, 2, 4 * half - 4) * pooled * 2.0 / half)
+        drift_radius = math.sqrt(f_quantile(level, 2, 4 * half - 4) * pooled * 2.0 / half)
     return VectorStats(mean, n, math.sqrt(float(dev2.mean())), radius,
                        subtended_deg(radius, abs(mean)), drift, drift_radius)
 

@@ -1,0 +1,58 @@
+"""Averaging, confidence circle and steadiness verdict (trueturn.dsp.averaging)."""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from scipy import stats
+
+from trueturn.dsp.averaging import confidence_radius, steadiness, vector_stats
+
+
+def test_radius_formula_against_scipy_f_quantile() -> None:
+    # circular T^2 (from memory: Victor & Mast 1991): n |mean - mu|^2 / s^2 ~ F(2, 2n-2);
+    # reference quantile from scipy.stats.f
+    assert confidence_radius(4.0, 10) == pytest.approx(math.sqrt(stats.f.ppf(0.95, 2, 18) * 0.4))
+    # large n: F(2, inf) = chi2_2 / 2, 95 % quantile = -ln(0.05) = 2.9957 (closed form)
+    assert confidence_radius(1.0, 100_000) ** 2 * 100_000 == pytest.approx(2.9957, rel=1e-3)
+
+
+def test_coverage_is_95_percent() -> None:
+    rng = np.random.default_rng(11)
+    mu = 3.0 + 1.0j
+    trials, inside = 4000, 0
+    for _ in range(trials):
+        z = mu + (rng.normal(size=10) + 1j * rng.normal(size=10)) * 0.8
+        s = vector_stats(z)
+        inside += abs(s.mean - mu) <= s.confidence_radius
+    # binomial spread at 4000 trials is +/-0.0034 (1 sigma); bounds are about 4 sigma
+    assert 0.935 < inside / trials < 0.965
+
+
+def test_confidence_angle_and_scatter() -> None:
+    z = np.array([1.0 + 0.1j, 1.0 - 0.1j] * 10)
+    s = vector_stats(z)
+    assert s.mean == pytest.approx(1.0)
+    assert s.scatter_rms == pytest.approx(0.1)
+    assert s.confidence_deg == pytest.approx(math.degrees(math.asin(s.confidence_radius)))
+    assert s.phase_deg == pytest.approx(0.0)
+
+
+def test_steadiness_verdicts() -> None:
+    rng = np.random.default_rng(2)
+    good = 2.0 * np.exp(1j * 0.5) + 0.02 * (rng.normal(size=40) + 1j * rng.normal(size=40))
+    speeds = np.full(40, 1800.0)
+    ok, reasons = steadiness(vector_stats(good), speeds)
+    assert ok and reasons == ()
+    ok, reasons = steadiness(vector_stats(good[:4]), speeds[:4])
+    assert not ok and "only 4 revolutions" in reasons[0]
+    ok, reasons = steadiness(vector_stats(good), np.linspace(1750, 1850, 40))
+    assert not ok and "speed varies" in reasons[0]
+    noisy = good + 3 * (rng.normal(size=40) + 1j * rng.normal(size=40))
+    ok, reasons = steadiness(vector_stats(noisy), speeds)
+    assert not ok and any("phase uncertain" in r or "not above" in r for r in reasons)
+    warming = good * np.linspace(1.0, 1.3, 40)  # amplitude still rising (rotor warming up)
+    ok, reasons = steadiness(vector_stats(warming), speeds)
+    assert not ok and any("still changing" in r for r in reasons)

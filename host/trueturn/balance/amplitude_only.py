@@ -47,8 +47,22 @@ def _fit(w: np.ndarray, v: np.ndarray, weights: np.ndarray, u0: complex, t0: np.
         model = np.abs(u + w)[:, None] * x[2:][None, :]
         return (((model - v) / scale) * weights).ravel()
 
+    n_runs, n_sensors = v.shape
+    factor = (weights / scale)[None, :]
+
+    def jacobian(x: np.ndarray) -> np.ndarray:
+        z = x[0] + 1j * x[1] + w
+        mag = np.maximum(np.abs(z), 1e-300)
+        jac = np.zeros((n_runs, n_sensors, 2 + n_sensors))
+        jac[:, :, 0] = (z.real / mag)[:, None] * x[2:][None, :] * factor
+        jac[:, :, 1] = (z.imag / mag)[:, None] * x[2:][None, :] * factor
+        for s in range(n_sensors):
+            jac[:, s, 2 + s] = mag * factor[0, s]
+        return jac.reshape(n_runs * n_sensors, 2 + n_sensors)
+
     x0 = np.concatenate([[u0.real, u0.imag], t0])
-    res = least_squares(residuals, x0, method="lm", xtol=1e-14, ftol=1e-14, max_nfev=2000)
+    res = least_squares(residuals, x0, jac=jacobian, method="lm", xtol=1e-12, ftol=1e-12,
+                        max_nfev=400)
     return res.x[0] + 1j * res.x[1], np.abs(res.x[2:]), float(np.sum(res.fun ** 2)), res.jac
 
 
@@ -75,7 +89,7 @@ def fit_amplitude_only(w: np.ndarray, v: np.ndarray, weights: np.ndarray | None 
     size = float(np.max(np.abs(w))) or 1.0
     starts = _linear_start(w, v)
     starts += [m * size * np.exp(1j * np.radians(a))
-               for m in (0.3, 1.0, 3.0) for a in range(0, 360, 30)]
+               for m in (0.5, 2.0) for a in range(0, 360, 45)]
     fits = []
     for u0 in starts:
         t0 = np.median(v / np.maximum(np.abs(u0 + w), 1e-9 * size)[:, None], axis=0)

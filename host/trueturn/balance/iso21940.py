@@ -63,14 +63,14 @@ def angular_speed_rad_s(speed_rpm: float) -> float:
 
 def permissible_eccentricity_um(grade_mm_s: float, speed_rpm: float) -> float:
     """e_per = G / omega (ISO 21940-11:2016), in micrometres."""
-    if grade_mm_s <= 0 or speed_rpm <= 0:
+    if not (0 < grade_mm_s < math.inf and 0 < speed_rpm < math.inf):
         raise UserError("grade and speed must be greater than 0")
     return 1000.0 * grade_mm_s / angular_speed_rad_s(speed_rpm)
 
 
 def permissible_unbalance_gmm(grade_mm_s: float, speed_rpm: float, rotor_mass_kg: float) -> float:
     """U_per = e_per * m (ISO 21940-11:2016), in g·mm (µm · kg = g · mm)."""
-    if rotor_mass_kg <= 0:
+    if not 0 < rotor_mass_kg < math.inf:
         raise UserError("rotor mass must be greater than 0")
     return permissible_eccentricity_um(grade_mm_s, speed_rpm) * rotor_mass_kg
 
@@ -86,7 +86,7 @@ def allocate_two_planes(u_per_gmm: float, plane_distance_mm: float | None = None
             raise UserError("give both the plane distance and the centre-of-mass position, "
                             "or neither")
         return u_per_gmm / 2.0, u_per_gmm / 2.0
-    if plane_distance_mm <= 0:
+    if not 0 < plane_distance_mm < math.inf or not math.isfinite(cg_from_first_plane_mm):
         raise UserError("plane distance must be greater than 0")
     a = cg_from_first_plane_mm
     if not 0.0 <= a <= plane_distance_mm:

@@ -38,8 +38,10 @@ def equally_spaced(count: int, first_deg: float = 0.0) -> list[float]:
 
 def split(mass_g: float, angle_deg: float, positions_deg: Sequence[float]) -> list[Part]:
     """Split a correction onto the two positions either side of it (one if it falls on one)."""
-    if mass_g < 0:
-        raise UserError(f"mass must not be negative, got {mass_g:g}")
+    if not math.isfinite(mass_g) or mass_g < 0:
+        raise UserError(f"mass must be a finite number not below 0, got {mass_g:g}")
+    if not math.isfinite(angle_deg) or not all(math.isfinite(p) for p in positions_deg):
+        raise UserError("angles must be finite numbers")
     if not positions_deg:
         raise UserError("no positions given")
     theta = wrap_deg(angle_deg)
@@ -86,9 +88,9 @@ class Removal:
 def removal(mass_g: float, angle_deg: float, drill_diameter_mm: float, density_g_cm3: float,
             point_angle_deg: float = DEFAULT_POINT_ANGLE_DEG) -> Removal:
     """Remove ``mass_g`` opposite to an addition at ``angle_deg`` with one drilled hole."""
-    if mass_g < 0:
-        raise UserError(f"mass must not be negative, got {mass_g:g}")
-    if drill_diameter_mm <= 0 or density_g_cm3 <= 0:
+    if not math.isfinite(mass_g) or mass_g < 0:
+        raise UserError(f"mass must be a finite number not below 0, got {mass_g:g}")
+    if not (0 < drill_diameter_mm < math.inf and 0 < density_g_cm3 < math.inf):
         raise UserError("drill diameter and density must be greater than 0")
     if not 0 < point_angle_deg < 180:
         raise UserError(f"drill point angle must be between 0 and 180°, got {point_angle_deg:g}")

@@ -7,6 +7,7 @@ Rule (common practice, no source): choose the trial mass so that its centrifugal
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 
 from trueturn.balance.iso21940 import angular_speed_rad_s
@@ -35,9 +36,9 @@ def size_trial_mass(rotor_mass_kg: float, radius_mm: float, speed_rpm: float,
     """Trial mass whose centrifugal force is ``force_ratio`` of the rotor's weight, capped."""
     for name, value in (("rotor mass", rotor_mass_kg), ("radius", radius_mm),
                         ("speed", speed_rpm), ("force ratio", force_ratio)):
-        if not value > 0:
-            raise UserError(f"{name} must be greater than 0, got {value:g}")
-    if max_mass_g is not None and not max_mass_g > 0:
+        if not 0 < value < math.inf:
+            raise UserError(f"{name} must be a finite number greater than 0, got {value:g}")
+    if max_mass_g is not None and not 0 < max_mass_g < math.inf:
         raise UserError(f"maximum mass must be greater than 0, got {max_mass_g:g}")
     accel = radius_mm / 1000.0 * angular_speed_rad_s(speed_rpm) ** 2   # r omega^2, m/s^2
     wanted_g = 1000.0 * force_ratio * rotor_mass_kg * STANDARD_GRAVITY_M_S2 / accel

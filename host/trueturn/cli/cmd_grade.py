@@ -23,8 +23,8 @@ def parse_grade(text: str) -> float:
         value = float(cleaned)
     except ValueError:
         raise argparse.ArgumentTypeError(f"not a balance grade: {text!r} (e.g. 6.3 or G6.3)") from None
-    if value <= 0:
-        raise argparse.ArgumentTypeError(f"grade must be greater than 0, got {text!r}")
+    if not 0 < value < float("inf"):
+        raise argparse.ArgumentTypeError(f"grade must be a finite number greater than 0, got {text!r}")
     return value
 
 
@@ -61,7 +61,7 @@ def run(args: argparse.Namespace) -> int:
                         ("--grade", args.grade)):
         if value is None:
             raise UserError(f"missing {flag}")
-        if not value > 0:
+        if not 0 < value < float("inf"):
             raise UserError(f"{flag} must be greater than 0, got {value:g}")
     e_um = permissible_eccentricity_um(args.grade, args.speed_rpm)
     u_gmm = permissible_unbalance_gmm(args.grade, args.speed_rpm, args.rotor_mass_kg)
@@ -74,7 +74,7 @@ def run(args: argparse.Namespace) -> int:
     if args.residual_gmm is not None:
         if len(args.residual_gmm) != args.planes:
             raise UserError(f"--residual-gmm needs {args.planes} value(s), one per plane")
-        if any(r < 0 for r in args.residual_gmm):
+        if any(not 0 <= r < float("inf") for r in args.residual_gmm):
             raise UserError("--residual-gmm values must not be negative")
         v = verdict(args.residual_gmm, shares)
         out["pass"] = v.passed

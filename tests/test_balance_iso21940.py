@@ -1,0 +1,60 @@
+"""ISO 21940-11:2016 tolerance values checked against the standard's formulas."""
+
+from __future__ import annotations
+
+import math
+
+import pytest
+
+from trueturn.balance.iso21940 import (
+    GRADES,
+    allocate_two_planes,
+    permissible_eccentricity_um,
+    permissible_unbalance_gmm,
+    verdict,
+)
+from trueturn.errors import UserError
+
+
+def test_g63_at_3000_rpm_is_about_20_um():
+    # ISO 21940-11:2016, e_per = G / omega: 6.3 mm/s / (2 pi 3000/60 rad/s) = 20.05 um
+    assert permissible_eccentricity_um(6.3, 3000) == pytest.approx(20.05, abs=0.01)
+
+
+@pytest.mark.parametrize(("grade", "rpm", "mass_kg", "u_gmm"), [
+    # ISO 21940-11:2016, U_per = 1000 G m / omega (g mm, with G in mm/s, m in kg), hand-computed
+    (6.3, 3000, 5.0, 100.27),      # 20.05 um x 5 kg
+    (2.5, 3600, 10.0, 66.31),      # 2500 / 376.99 = 6.631 um x 10 kg
+    (1.0, 10000, 0.5, 0.4775),     # 1000 / 1047.2 = 0.9549 um x 0.5 kg
+    (16, 1000, 2.0, 305.58),       # 16000 / 104.72 = 152.79 um x 2 kg
+])
+def test_permissible_unbalance_formula(grade, rpm, mass_kg, u_gmm):
+    assert permissible_unbalance_gmm(grade, rpm, mass_kg) == pytest.approx(u_gmm, rel=1e-3)
+
+
+def test_grade_table_spans_0_4_to_4000_in_steps_of_2_5():
+    # ISO 21940-11 grades: G 0.4 ... G 4000, neighbours a factor of 2.5 apart (rounded)
+    values = sorted(g.grade_mm_s for g in GRADES)
+    assert values[0] == 0.4 and values[-1] == 4000 and len(values) == 11
+    for low, high in zip(values, values[1:], strict=False):
+        assert 2.4 <= high / low <= 2.6
+    assert all(g.examples for g in GRADES)
+
+
+def test_two_plane_allocation_lever_rule_and_limits():
+    # ISO 21940-11:2016 clause 7 (from memory): U_A = U L_B / L, U_B = U L_A / L, each
+    # within 0.3 ... 0.7 of U_per; symmetric rotor: half each
+    assert allocate_two_planes(100.0) == (50.0, 50.0)
+    a, b = allocate_two_planes(100.0, 200.0, 80.0)
+    assert (a, b) == pytest.approx((60.0, 40.0))
+    a, b = allocate_two_planes(100.0, 200.0, 10.0)
+    assert (a, b) == pytest.approx((70.0, 30.0))
+    with pytest.raises(UserError):
+        allocate_two_planes(100.0, 200.0, 250.0)
+
+
+def test_verdict():
+    assert verdict([10, 20], [15, 25]).passed
+    v = verdict([10, 30], [15, 25])
+    assert not v.passed and v.worst_ratio == pytest.approx(1.2)
+    assert math.isclose(verdict([5], [10]).worst_ratio, 0.5)

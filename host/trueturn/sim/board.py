@@ -108,11 +108,15 @@ class VirtualBoard:
         self._added: list[Mass] = []
         self._hidden = list(scenario.as_found) if self.options.unbalance != "none" else []
         motor = scenario.motor
+        if self.options.speed_rpm is not None and motor.kind != "variable":
+            raise ValueError(f"{scenario.name} runs at a fixed speed (induction motor); "
+                             "rpm= is for variable-speed scenarios")
         self.target_speed_rpm = self.options.speed_rpm or motor.nominal_speed_rpm()
         self._check_speed(self.target_speed_rpm)
         self.running = self.options.motor_on
         self._omega = rpm_to_rad_s(self.target_speed_rpm) if self.running else 0.0
         self._theta = float(self.rng.uniform(0, TWO_PI))  # shaft angle, rad, 0 = mark at tach
+        self._turns = 0  # whole turns before self._theta (non-integer orders need the total)
         self._drift_phases = self.rng.uniform(0, TWO_PI, size=2)
         self._tone_phases = self.rng.uniform(0, TWO_PI, size=8)
         self._edges_seen = 0
@@ -435,7 +439,11 @@ class VirtualBoard:
                 self._send("samples", values)
             else:
                 self._send(name, values)
-        self._theta = float(theta_at(t1_tick)) % TWO_PI if omega1 or omega0 else self._theta
+        if omega1 or omega0:
+            theta_end = float(theta_at(t1_tick))
+            turns = math.floor(theta_end / TWO_PI)
+            self._turns += turns
+            self._theta = theta_end - turns * TWO_PI
         self._omega = omega1
         self.tick = t1_tick
 
@@ -519,6 +527,9 @@ class VirtualBoard:
                                                              else self._tone_phases[k % 8])
                 if h.hz is not None:
                     v = v + amp_v * np.cos(TWO_PI * h.hz * t_s[sel] - ph)
+                elif not float(h.order).is_integer():  # belt, motor through a pulley
+                    turns_phase = (h.order * (self._turns % 1_000_000)) % 1.0 * TWO_PI
+                    v = v + amp_v * speed_ratio_sq * np.cos(h.order * th + turns_phase - ph)
                 else:
                     v = v + amp_v * speed_ratio_sq * np.cos(h.order * th - ph)
             v = v + scale * sig.hum_line_v * np.cos(TWO_PI * line * t_s[sel] + 0.3 * ch)

@@ -125,8 +125,7 @@ class Serial(SerialBase):
         if not self.is_open or self.rig is None:
             raise PortNotOpenError()
         if self.rig.unplugged:
-            raise SerialException("device reports readiness to read but returned no data "
-                                  "(device disconnected or multiple access on port?)")
+            raise SerialException("device disconnected (the virtual USB cable was unplugged)")
         return self.rig
 
     def _sync(self) -> None:

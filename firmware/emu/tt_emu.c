@@ -1,0 +1,654 @@
+/* tt_emu.c - runs the trueturn firmware ELF in simavr (ATmega328P, 16 MHz) against a
+ * synthetic rotor: pickups on ADC0/ADC1 and the once-per-rev tach on ICP1 (PB0), the UART
+ * joined to stdin/stdout, and the CPU cycles spent in each interrupt handler counted.
+ *
+ *   tt_emu [options] FIRMWARE.elf
+ *     --speed-rpm X         shaft speed (default 1800)
+ *     --first-edge-s X      time of the first tach edge after the timer starts (0.001)
+ *     --jitter-rms-s X      gaussian jitter of the tach edges (0)
+ *     --ref-v X             ADC reference, volts (5.0)
+ *     --seed N              noise seed (1)
+ *     --channel OFF,NOISE   add a pickup channel: offset and noise rms, volts (up to 2)
+ *     --order CH,K,AMP,PH   order-K component on channel CH: amplitude V, phase lag deg
+ *     --tone CH,HZ,AMP,PH   fixed-frequency component on channel CH
+ *     --seconds X           stop after X simulated seconds (default: run until stdin ends)
+ *     --realtime            do not run ahead of the wall clock
+ *     --report PATH         write a JSON report (cycles per handler, counts) at the end
+ *     --script BYTESHEX@S   send these bytes to the UART at simulated time S (repeatable;
+ *                           for runs without a host program)
+ *
+ * The signal follows the steady-signal spec of trueturn.sim.signal_spec: shaft angle
+ * theta(t) = 2 pi (rpm/60)(t - first_edge_s); a rising tach edge at every multiple of 2 pi
+ * (pulse 1/36 rev wide); v(t) = offset + sum amp cos(k theta - ph) + sum amp cos(2 pi f t - ph)
+ * + gaussian noise; 10-bit counts of the reference, clamped. t = 0 is the instant Timer1
+ * starts counting (tick 0).
+ *
+ * simavr 1.6 leaves out what the firmware relies on, so the harness supplies it:
+ *  - ADC auto-trigger from Timer1 compare-match B (simavr implements only free running):
+ *    the harness keeps OCR1B writes away from simavr's timer (which would restart its count
+ *    on every write), sets OCF1B when the count reaches OCR1B and raises the ADC trigger;
+ *  - an exact TCNT1 (count = elapsed cycles / 8), and TIFR1 writes that clear only the
+ *    flags written as 1 (simavr 1.6 could drop a pending overflow flag there);
+ *  - the input capture itself: simavr's capture path follows the port's pin model (with the
+ *    pull-up on, it captured the opposite edge), so at each tach edge of the selected
+ *    polarity the harness loads ICR1 with the exact count and raises the capture interrupt,
+ *    and it mirrors the tach level in PINB0.
+ * The analog value is set when simavr starts the conversion, for the instant of the
+ * sample-and-hold (trigger + 131 CPU cycles, ATmega328P datasheet). UART output goes to the
+ * original stdout; simavr's own messages go to stderr. */
+#define _GNU_SOURCE
+#include <errno.h>
+#include <fcntl.h>
+#include <math.h>
+#include <signal.h>
+#include <stdint.h>
+#include <stdio.h>
+#include <stdlib.h>
+#include <string.h>
+#include <time.h>
+#include <unistd.h>
+
+#include "avr_adc.h"
+#include "avr_ioport.h"
+#include "avr_timer.h"
+#include "avr_uart.h"
+#include "sim_avr.h"
+#include "sim_elf.h"
+#include "sim_interrupts.h"
+#include "sim_irq.h"
+#include "sim_time.h"
+
+/* ATmega328P data-space addresses (datasheet, "Register Summary") */
+#define R_PINB 0x23
+#define R_TIFR1 0x36
+#define R_ADCSRA 0x7A
+#define R_ADCSRB 0x7B
+#define R_TCCR1B 0x81
+#define R_TCNT1L 0x84
+#define R_TCNT1H 0x85
+#define R_ICR1L 0x86
+#define R_ICR1H 0x87
+#define R_OCR1BL 0x8A
+#define R_OCR1BH 0x8B
+#define BIT_OCF1B 2
+#define BIT_ICES1 6
+#define BIT_ADATE 5
+#define CS1_MASK 0x07
+#define ADTS_T1_COMPB 5
+#define F_CPU_HZ 16000000u
+#define CYCLES_PER_TICK 8u
+#define APERTURE_CYCLES 131u /* 2 ADC clocks x 64 + 3 CPU clocks */
+#define N_VECTORS 26
+#define VECTOR_BYTES 4u
+#define OPCODE_RETI 0x9518u
+
+static const char *vector_names[N_VECTORS] = {
+    "RESET", "INT0", "INT1", "PCINT0", "PCINT1", "PCINT2", "WDT", "TIMER2_COMPA",
+    "TIMER2_COMPB", "TIMER2_OVF", "TIMER1_CAPT", "TIMER1_COMPA", "TIMER1_COMPB",
+    "TIMER1_OVF", "TIMER0_COMPA", "TIMER0_COMPB", "TIMER0_OVF", "SPI_STC", "USART_RX",
+    "USART_UDRE", "USART_TX", "ADC", "EE_READY", "ANALOG_COMP", "TWI", "SPM_READY"};
+
+#define MAX_CH 2
+#define MAX_TERMS 16
+
+struct term {
+    double key; /* order or hz */
+    double amplitude_v;
+    double phase_rad;
+};
+
+struct channel {
+    double offset_v, noise_rms_v;
+    int n_orders, n_tones;
+    struct term orders[MAX_TERMS], tones[MAX_TERMS];
+};
+
+struct script_item {
+    double at_s;
+    uint8_t bytes[64];
+    int n;
+};
+
+static struct {
+    avr_t *avr;
+    double speed_rpm, first_edge_s, jitter_rms_s, ref_v, seconds;
+    int realtime, n_channels;
+    uint64_t seed;
+    struct channel ch[MAX_CH];
+    const char *report_path;
+    struct script_item script[32];
+    int n_script, next_script;
+
+    int uart_fd;
+    uint8_t out_buf[8192];
+    size_t out_len;
+    uint8_t in_buf[4096];
+    size_t in_len, in_pos;
+    int stdin_open;
+
+    int timer_started;
+    avr_cycle_count_t t1_start;     /* cycle at which Timer1 started: tick 0, t = 0 */
+    avr_timer_t *timer1;
+    avr_io_write_t tccr1b_orig;
+    void *tccr1b_param;
+
+    avr_irq_t *adc_irq, *uart_irq;
+    long tach_n;                    /* index of the next edge */
+    int tach_high;
+    double tach_edge_cycle;         /* exact cycle of the current/next edge */
+
+    /* interrupt accounting */
+    int in_isr, isr_vector;
+    avr_cycle_count_t isr_enter;
+    uint64_t isr_cycles[N_VECTORS], isr_count[N_VECTORS], isr_max[N_VECTORS];
+    avr_cycle_count_t window_start;
+    int window_open;
+    uint64_t triggers, conversions_started;
+    uint64_t uart_bytes_out, uart_bytes_in;
+    struct timespec wall_start;
+} E;
+
+/* ---------------- small helpers ---------------- */
+
+static uint64_t rng_next(void)
+{
+    /* xorshift64* (Vigna, "An experimental exploration of Marsaglia's xorshift generators") */
+    E.seed ^= E.seed >> 12;
+    E.seed ^= E.seed << 25;
+    E.seed ^= E.seed >> 27;
+    return E.seed * 0x2545F4914F6CDD1DULL;
+}
+
+static double rng_gauss(void)
+{
+    /* Box-Muller */
+    double u1 = ((double)(rng_next() >> 11) + 1.0) / 9007199254740993.0;
+    double u2 = (double)(rng_next() >> 11) / 9007199254740992.0;
+    return sqrt(-2.0 * log(u1)) * cos(2.0 * M_PI * u2);
+}
+
+static double wall_seconds(void)
+{
+    struct timespec now;
+    clock_gettime(CLOCK_MONOTONIC, &now);
+    return (double)(now.tv_sec - E.wall_start.tv_sec) + 1e-9 * (double)(now.tv_nsec - E.wall_start.tv_nsec);
+}
+
+static double sim_seconds(void)
+{
+    return E.timer_started ? (double)(E.avr->cycle - E.t1_start) / F_CPU_HZ
+                           : 0.0;
+}
+
+static uint32_t current_ticks(void)
+{
+    return (uint32_t)((E.avr->cycle - E.t1_start) / CYCLES_PER_TICK);
+}
+
+static void flush_out(void)
+{
+    size_t done = 0;
+    while (done < E.out_len) {
+        ssize_t w = write(E.uart_fd, E.out_buf + done, E.out_len - done);
+        if (w < 0) {
+            if (errno == EINTR) continue;
+            E.avr->state = cpu_Done; /* the host went away */
+            E.out_len = 0;
+            return;
+        }
+        done += (size_t)w;
+    }
+    E.out_len = 0;
+}
+
+/* ---------------- signal model ---------------- */
+
+static double theta_at(double t)
+{
+    return 2.0 * M_PI * (E.speed_rpm / 60.0) * (t - E.first_edge_s);
+}
+
+static uint32_t channel_millivolts(int c, double t)
+{
+    const struct channel *ch = &E.ch[c];
+    double v = ch->offset_v, theta = theta_at(t), counts;
+    uint32_t n;
+    int i;
+    for (i = 0; i < ch->n_orders; i++)
+        v += ch->orders[i].amplitude_v * cos(ch->orders[i].key * theta - ch->orders[i].phase_rad);
+    for (i = 0; i < ch->n_tones; i++)
+        v += ch->tones[i].amplitude_v * cos(2.0 * M_PI * ch->tones[i].key * t - ch->tones[i].phase_rad);
+    if (ch->noise_rms_v > 0.0) v += ch->noise_rms_v * rng_gauss();
+    /* ADC = Vin * 1024 / Vref (ATmega328P datasheet, "ADC Conversion Result"), clamped */
+    counts = floor(v * 1024.0 / E.ref_v);
+    if (counts < 0.0) counts = 0.0;
+    if (counts > 1023.0) counts = 1023.0;
+    n = (uint32_t)counts;
+    /* simavr scales millivolts as mV * 1023 / AVCC: pick the mV that gives exactly n */
+    return (uint32_t)((n * (uint32_t)lround(E.ref_v * 1000.0) + 1022u) / 1023u);
+}
+
+/* ---------------- Timer1 pieces simavr lacks ---------------- */
+
+static uint8_t tcnt1_read(struct avr_t *avr, avr_io_addr_t addr, void *param)
+{
+    uint16_t t = E.timer_started ? (uint16_t)current_ticks() : 0u;
+    (void)param;
+    avr->data[R_TCNT1L] = (uint8_t)t;
+    avr->data[R_TCNT1H] = (uint8_t)(t >> 8);
+    return avr->data[addr];
+}
+
+static avr_cycle_count_t compb_fire(struct avr_t *avr, avr_cycle_count_t when, void *param);
+
+static void schedule_compb(void)
+{
+    uint16_t ocr = (uint16_t)(E.avr->data[R_OCR1BL] | (E.avr->data[R_OCR1BH] << 8));
+    uint64_t now_tick = (E.avr->cycle - E.t1_start) / CYCLES_PER_TICK;
+    uint64_t delta = (uint16_t)(ocr - (uint16_t)now_tick);
+    avr_cycle_count_t at;
+    if (delta == 0) delta = 65536u; /* a write equal to the count does not match now */
+    at = E.t1_start + (now_tick + delta) * CYCLES_PER_TICK;
+    avr_cycle_timer_cancel(E.avr, compb_fire, NULL);
+    avr_cycle_timer_register(E.avr, at - E.avr->cycle, compb_fire, NULL);
+}
+
+static avr_cycle_count_t compb_fire(struct avr_t *avr, avr_cycle_count_t when, void *param)
+{
+    uint8_t tifr = avr->data[R_TIFR1];
+    (void)param;
+    if (!(tifr & (1u << BIT_OCF1B))) {
+        avr->data[R_TIFR1] = (uint8_t)(tifr | (1u << BIT_OCF1B));
+        if ((avr->data[R_ADCSRA] & (1u << BIT_ADATE)) && (avr->data[R_ADCSRB] & 7u) == ADTS_T1_COMPB) {
+            if (!E.window_open) {
+                E.window_open = 1;
+                E.window_start = avr->cycle;
+                memset(E.isr_cycles, 0, sizeof E.isr_cycles);
+                memset(E.isr_count, 0, sizeof E.isr_count);
+                memset(E.isr_max, 0, sizeof E.isr_max);
+            }
+            E.triggers++;
+            avr_raise_irq(E.adc_irq + ADC_IRQ_IN_TRIGGER, 1);
+        }
+    }
+    return when + 65536u * CYCLES_PER_TICK; /* the count comes round again */
+}
+
+/* TIFR1: a 1 clears that flag, a 0 leaves it alone (datasheet, "TIFR1"). simavr 1.6 could
+ * lose a pending overflow or capture flag when the firmware cleared OCF1B. */
+static void tifr1_write(struct avr_t *avr, avr_io_addr_t addr, uint8_t v, void *param)
+{
+    (void)param;
+    if (v & (1u << 0)) avr_clear_interrupt(avr, &E.timer1->overflow);
+    if (v & (1u << 1)) avr_clear_interrupt(avr, &E.timer1->comp[0].interrupt);
+    if (v & (1u << 2)) avr_clear_interrupt(avr, &E.timer1->comp[1].interrupt);
+    if (v & (1u << 5)) avr_clear_interrupt(avr, &E.timer1->icr);
+    avr->data[addr] &= (uint8_t)~(v & 0x27u);
+}
+
+static void ocr1bl_write(struct avr_t *avr, avr_io_addr_t addr, uint8_t v, void *param)
+{
+    (void)param;
+    avr->data[addr] = v; /* the high byte was written first, straight into data[] */
+    if (E.timer_started) schedule_compb();
+}
+
+static avr_cycle_count_t tach_fire(struct avr_t *avr, avr_cycle_count_t when, void *param);
+
+static void schedule_tach(void)
+{
+    double period_s = 60.0 / E.speed_rpm;
+    double edge_s = E.first_edge_s + (double)E.tach_n * period_s;
+    if (E.jitter_rms_s > 0.0) edge_s += E.jitter_rms_s * rng_gauss();
+    if (edge_s < 0.0) edge_s = 0.0;
+    E.tach_edge_cycle = (double)E.t1_start + edge_s * F_CPU_HZ;
+    if (E.tach_edge_cycle < (double)E.avr->cycle + 1.0) E.tach_edge_cycle = (double)E.avr->cycle + 1.0;
+    avr_cycle_timer_register(E.avr, (avr_cycle_count_t)ceil(E.tach_edge_cycle) - E.avr->cycle, tach_fire, NULL);
+}
+
+static void tach_capture(double edge_cycle)
+{
+    /* Input capture: ICR1 takes the count at the edge and ICF1 is raised. */
+    uint16_t t = (uint16_t)(uint64_t)((edge_cycle - (double)E.t1_start) / CYCLES_PER_TICK);
+    E.avr->data[R_ICR1L] = (uint8_t)t;
+    E.avr->data[R_ICR1H] = (uint8_t)(t >> 8);
+    avr_raise_interrupt(E.avr, &E.timer1->icr);
+}
+
+static avr_cycle_count_t tach_fire(struct avr_t *avr, avr_cycle_count_t when, void *param)
+{
+    int rising_capture = (avr->data[R_TCCR1B] >> BIT_ICES1) & 1;
+    double width_cycles = (60.0 / E.speed_rpm) / 36.0 * F_CPU_HZ;
+    (void)when;
+    (void)param;
+    if (!E.tach_high) {
+        E.tach_high = 1;
+        avr->data[R_PINB] |= 1u; /* PB0 high */
+        if (rising_capture) tach_capture(E.tach_edge_cycle);
+        E.tach_edge_cycle += width_cycles;
+        return (avr_cycle_count_t)ceil(E.tach_edge_cycle);
+    }
+    E.tach_high = 0;
+    avr->data[R_PINB] &= (uint8_t)~1u; /* PB0 low */
+    if (!rising_capture) tach_capture(E.tach_edge_cycle);
+    E.tach_n++;
+    schedule_tach();
+    return 0;
+}
+
+static void tccr1b_write(struct avr_t *avr, avr_io_addr_t addr, uint8_t v, void *param)
+{
+    uint8_t old = avr->data[addr];
+    (void)param;
+    if ((old & CS1_MASK) != (v & CS1_MASK)) {
+        E.tccr1b_orig(avr, addr, v, E.tccr1b_param); /* clock change: simavr reconfigures */
+        /* simavr also schedules its own compare matches from the OCR values of this moment
+         * (OCR1B = 0 matches 8 cycles after every overflow); compare B is ours alone. */
+        E.timer1->comp[0].comp_cycles = 0;
+        E.timer1->comp[1].comp_cycles = 0;
+        if (!E.timer_started && (v & CS1_MASK)) {
+            E.timer_started = 1;
+            E.t1_start = avr->cycle;
+            schedule_tach();
+        }
+    } else {
+        avr->data[addr] = v; /* edge select only: keep simavr's count running */
+    }
+}
+
+/* ---------------- ADC ---------------- */
+
+static void adc_conversion_started(struct avr_irq_t *irq, uint32_t value, void *param)
+{
+    union {
+        avr_adc_mux_t mux;
+        uint32_t v;
+    } e;
+    double t;
+    int src;
+    (void)irq;
+    (void)param;
+    memset(&e, 0, sizeof e);
+    e.v = value;
+    src = (int)e.mux.src;
+    E.conversions_started++;
+    if (src < 0 || src >= E.n_channels) return;
+    t = ((double)(E.avr->cycle - E.t1_start) + APERTURE_CYCLES) / F_CPU_HZ;
+    avr_raise_irq(E.adc_irq + ADC_IRQ_ADC0 + src, channel_millivolts(src, t));
+}
+
+/* ---------------- UART ---------------- */
+
+static void uart_output(struct avr_irq_t *irq, uint32_t value, void *param)
+{
+    (void)irq;
+    (void)param;
+    E.out_buf[E.out_len++] = (uint8_t)value;
+    E.uart_bytes_out++;
+    if (E.out_len == sizeof E.out_buf) flush_out();
+}
+
+#define BYTE_CYCLES 320u /* 10 bits at 500000 baud */
+
+static avr_cycle_count_t uart_feed(struct avr_t *avr, avr_cycle_count_t when, void *param)
+{
+    (void)param;
+    if (E.in_pos < E.in_len) {
+        avr_raise_irq(E.uart_irq + UART_IRQ_INPUT, E.in_buf[E.in_pos++]);
+        E.uart_bytes_in++;
+    }
+    (void)avr;
+    return when + BYTE_CYCLES;
+}
+
+#define POLL_CYCLES 8000u /* 0.5 ms */
+
+static avr_cycle_count_t poll_host(struct avr_t *avr, avr_cycle_count_t when, void *param)
+{
+    (void)param;
+    flush_out();
+    if (E.in_pos == E.in_len) {
+        E.in_pos = E.in_len = 0;
+    }
+    if (E.stdin_open && E.in_len < sizeof E.in_buf) {
+        ssize_t r = read(0, E.in_buf + E.in_len, sizeof E.in_buf - E.in_len);
+        if (r > 0) {
+            E.in_len += (size_t)r;
+        } else if (r == 0) {
+            E.stdin_open = 0;
+            if (E.seconds <= 0.0) avr->state = cpu_Done; /* the host closed the link */
+        }
+    }
+    while (E.next_script < E.n_script && sim_seconds() >= E.script[E.next_script].at_s) {
+        struct script_item *s = &E.script[E.next_script++];
+        if (E.in_len + (size_t)s->n <= sizeof E.in_buf) {
+            memcpy(E.in_buf + E.in_len, s->bytes, (size_t)s->n);
+            E.in_len += (size_t)s->n;
+        }
+    }
+    if (E.realtime) {
+        double ahead = sim_seconds() - wall_seconds();
+        if (ahead > 0.002) usleep((useconds_t)(ahead * 1e6));
+    }
+    if (E.seconds > 0.0 && sim_seconds() >= E.seconds) avr->state = cpu_Done;
+    return when + POLL_CYCLES;
+}
+
+/* ---------------- report ---------------- */
+
+static void write_report(void)
+{
+    FILE *f;
+    int i, first = 1;
+    avr_cycle_count_t window = E.window_open ? E.avr->cycle - E.window_start : 0;
+    uint64_t isr_total = 0;
+    if (!E.report_path) return;
+    f = fopen(E.report_path, "w");
+    if (!f) {
+        perror(E.report_path);
+        return;
+    }
+    for (i = 0; i < N_VECTORS; i++) isr_total += E.isr_cycles[i];
+    fprintf(f, "{\n  \"sim_seconds\": %.6f,\n  \"wall_seconds\": %.3f,\n", sim_seconds(), wall_seconds());
+    fprintf(f, "  \"cpu_hz\": %u,\n  \"window_cycles\": %llu,\n  \"isr_cycles\": %llu,\n", F_CPU_HZ,
+            (unsigned long long)window, (unsigned long long)isr_total);
+    fprintf(f, "  \"isr_load\": %.6f,\n", window ? (double)isr_total / (double)window : 0.0);
+    fprintf(f, "  \"adc_triggers\": %llu,\n  \"conversions_started\": %llu,\n",
+            (unsigned long long)E.triggers, (unsigned long long)E.conversions_started);
+    fprintf(f, "  \"tach_edges\": %ld,\n  \"uart_bytes_out\": %llu,\n  \"uart_bytes_in\": %llu,\n",
+            E.tach_n, (unsigned long long)E.uart_bytes_out, (unsigned long long)E.uart_bytes_in);
+    fprintf(f, "  \"cpu_state\": %d,\n  \"handlers\": {", E.avr->state);
+    for (i = 0; i < N_VECTORS; i++) {
+        if (!E.isr_count[i]) continue;
+        fprintf(f, "%s\n    \"%s\": {\"count\": %llu, \"cycles\": %llu, \"max_cycles\": %llu, \"mean_cycles\": %.1f}",
+                first ? "" : ",", vector_names[i], (unsigned long long)E.isr_count[i],
+                (unsigned long long)E.isr_cycles[i], (unsigned long long)E.isr_max[i],
+                (double)E.isr_cycles[i] / (double)E.isr_count[i]);
+        first = 0;
+    }
+    fprintf(f, "\n  }\n}\n");
+    fclose(f);
+}
+
+/* ---------------- arguments ---------------- */
+
+static void usage(void)
+{
+    fprintf(stderr, "usage: tt_emu [--speed-rpm X] [--first-edge-s X] [--jitter-rms-s X] [--ref-v X] "
+                    "[--seed N] [--channel OFF,NOISE]... [--order CH,K,AMP,PH]... [--tone CH,HZ,AMP,PH]... "
+                    "[--seconds X] [--realtime] [--report PATH] [--script HEX@S]... FIRMWARE.elf\n");
+    exit(2);
+}
+
+static void add_term(const char *arg, int is_order)
+{
+    int c;
+    double key, amp, ph;
+    if (sscanf(arg, "%d,%lf,%lf,%lf", &c, &key, &amp, &ph) != 4 || c < 0 || c >= MAX_CH) usage();
+    if (c >= E.n_channels) E.n_channels = c + 1;
+    if (is_order) {
+        if (E.ch[c].n_orders == MAX_TERMS) usage();
+        E.ch[c].orders[E.ch[c].n_orders++] = (struct term){key, amp, ph * M_PI / 180.0};
+    } else {
+        if (E.ch[c].n_tones == MAX_TERMS) usage();
+        E.ch[c].tones[E.ch[c].n_tones++] = (struct term){key, amp, ph * M_PI / 180.0};
+    }
+}
+
+static void add_script(const char *arg)
+{
+    const char *at = strchr(arg, '@');
+    struct script_item *s;
+    size_t i, n;
+    if (!at || E.n_script == 32) usage();
+    s = &E.script[E.n_script++];
+    n = (size_t)(at - arg) / 2u;
+    if (n > sizeof s->bytes) usage();
+    for (i = 0; i < n; i++) {
+        unsigned b;
+        if (sscanf(arg + 2 * i, "%2x", &b) != 1) usage();
+        s->bytes[i] = (uint8_t)b;
+    }
+    s->n = (int)n;
+    s->at_s = atof(at + 1);
+}
+
+static void quiet_logger(avr_t *avr, const int level, const char *format, va_list ap)
+{
+    (void)avr;
+    if (level <= LOG_ERROR) vfprintf(stderr, format, ap);
+}
+
+int main(int argc, char **argv)
+{
+    elf_firmware_t fw;
+    const char *elf = NULL;
+    int i, channels_declared = 0;
+    memset(&E, 0, sizeof E);
+    memset(&fw, 0, sizeof fw);
+    E.speed_rpm = 1800.0;
+    E.first_edge_s = 0.001;
+    E.ref_v = 5.0;
+    E.seed = 1;
+    for (i = 1; i < argc; i++) {
+        const char *a = argv[i];
+        const char *v = i + 1 < argc ? argv[i + 1] : NULL;
+        if (!strcmp(a, "--realtime")) { E.realtime = 1; continue; }
+        if (a[0] != '-') { elf = a; continue; }
+        if (!v) usage();
+        i++;
+        if (!strcmp(a, "--speed-rpm")) E.speed_rpm = atof(v);
+        else if (!strcmp(a, "--first-edge-s")) E.first_edge_s = atof(v);
+        else if (!strcmp(a, "--jitter-rms-s")) E.jitter_rms_s = atof(v);
+        else if (!strcmp(a, "--ref-v")) E.ref_v = atof(v);
+        else if (!strcmp(a, "--seed")) E.seed = strtoull(v, NULL, 0) * 2654435761ULL + 1u;
+        else if (!strcmp(a, "--seconds")) E.seconds = atof(v);
+        else if (!strcmp(a, "--report")) E.report_path = v;
+        else if (!strcmp(a, "--script")) add_script(v);
+        else if (!strcmp(a, "--order")) add_term(v, 1);
+        else if (!strcmp(a, "--tone")) add_term(v, 0);
+        else if (!strcmp(a, "--channel")) {
+            if (channels_declared == MAX_CH) usage();
+            if (sscanf(v, "%lf,%lf", &E.ch[channels_declared].offset_v,
+                       &E.ch[channels_declared].noise_rms_v) != 2) usage();
+            channels_declared++;
+            if (channels_declared > E.n_channels) E.n_channels = channels_declared;
+        } else usage();
+    }
+    if (!elf || E.speed_rpm <= 0.0 || E.ref_v <= 0.0) usage();
+
+    /* UART bytes go to the real stdout; everything simavr prints goes to stderr */
+    E.uart_fd = dup(1);
+    dup2(2, 1);
+    signal(SIGPIPE, SIG_IGN);
+    fcntl(0, F_SETFL, fcntl(0, F_GETFL) | O_NONBLOCK);
+    E.stdin_open = 1;
+    clock_gettime(CLOCK_MONOTONIC, &E.wall_start);
+
+    avr_global_logger_set(quiet_logger);
+    if (elf_read_firmware(elf, &fw) != 0) {
+        fprintf(stderr, "tt_emu: cannot read %s\n", elf);
+        return 2;
+    }
+    E.avr = avr_make_mcu_by_name("atmega328p");
+    if (!E.avr) {
+        fprintf(stderr, "tt_emu: simavr has no atmega328p\n");
+        return 2;
+    }
+    avr_init(E.avr);
+    E.avr->log = LOG_ERROR;
+    fw.frequency = F_CPU_HZ;
+    avr_load_firmware(E.avr, &fw);
+    E.avr->frequency = F_CPU_HZ;
+    E.avr->vcc = E.avr->avcc = E.avr->aref = (uint32_t)lround(E.ref_v * 1000.0);
+
+    /* UART 0 <-> host, without simavr's console echo */
+    {
+        uint32_t flags = 0;
+        avr_ioctl(E.avr, AVR_IOCTL_UART_GET_FLAGS('0'), &flags);
+        flags &= ~(uint32_t)(AVR_UART_FLAG_STDIO | AVR_UART_FLAG_POLL_SLEEP);
+        avr_ioctl(E.avr, AVR_IOCTL_UART_SET_FLAGS('0'), &flags);
+    }
+    E.uart_irq = avr_io_getirq(E.avr, AVR_IOCTL_UART_GETIRQ('0'), 0);
+    avr_irq_register_notify(E.uart_irq + UART_IRQ_OUTPUT, uart_output, NULL);
+    E.adc_irq = avr_io_getirq(E.avr, AVR_IOCTL_ADC_GETIRQ, 0);
+    avr_irq_register_notify(E.adc_irq + ADC_IRQ_OUT_TRIGGER, adc_conversion_started, NULL);
+
+    /* Timer1 pieces: exact TCNT1, OCR1B kept from simavr's timer, TCCR1B edge changes */
+    E.avr->io[AVR_DATA_TO_IO(R_TCNT1L)].r.c = tcnt1_read;
+    E.avr->io[AVR_DATA_TO_IO(R_TCNT1L)].r.param = NULL;
+    E.avr->io[AVR_DATA_TO_IO(R_OCR1BL)].w.c = ocr1bl_write;
+    E.avr->io[AVR_DATA_TO_IO(R_OCR1BL)].w.param = NULL;
+    for (avr_io_t *port = E.avr->io_port; port; port = port->next) {
+        if (!strcmp(port->kind, "timer") && ((avr_timer_t *)port)->name == '1') {
+            E.timer1 = (avr_timer_t *)port;
+        }
+    }
+    if (!E.timer1) {
+        fprintf(stderr, "tt_emu: simavr has no Timer1\n");
+        return 2;
+    }
+    E.avr->io[AVR_DATA_TO_IO(R_TIFR1)].w.c = tifr1_write;
+    E.avr->io[AVR_DATA_TO_IO(R_TIFR1)].w.param = NULL;
+    E.tccr1b_orig = E.avr->io[AVR_DATA_TO_IO(R_TCCR1B)].w.c;
+    E.tccr1b_param = E.avr->io[AVR_DATA_TO_IO(R_TCCR1B)].w.param;
+    if (!E.tccr1b_orig) {
+        fprintf(stderr, "tt_emu: simavr has no TCCR1B handler\n");
+        return 2;
+    }
+    E.avr->io[AVR_DATA_TO_IO(R_TCCR1B)].w.c = tccr1b_write;
+    E.avr->io[AVR_DATA_TO_IO(R_TCCR1B)].w.param = NULL;
+
+    avr_cycle_timer_register(E.avr, POLL_CYCLES, poll_host, NULL);
+    avr_cycle_timer_register(E.avr, BYTE_CYCLES, uart_feed, NULL);
+
+    for (;;) {
+        avr_flashaddr_t pc = E.avr->pc;
+        int reti = E.in_isr && pc + 1u < E.avr->flashend
+                   && (uint16_t)(E.avr->flash[pc] | (E.avr->flash[pc + 1u] << 8)) == OPCODE_RETI;
+        int state = avr_run(E.avr);
+        if (state == cpu_Done || state == cpu_Crashed) break;
+        if (reti) {
+            uint64_t spent = E.avr->cycle - E.isr_enter;
+            E.in_isr = 0;
+            E.isr_cycles[E.isr_vector] += spent;
+            E.isr_count[E.isr_vector]++;
+            if (spent > E.isr_max[E.isr_vector]) E.isr_max[E.isr_vector] = spent;
+        }
+        if (!E.in_isr && E.avr->pc != pc && E.avr->pc > 0
+            && E.avr->pc < N_VECTORS * VECTOR_BYTES && E.avr->pc % VECTOR_BYTES == 0) {
+            /* the core just took an interrupt: the 4-cycle response is already counted
+             * in avr->cycle, so count it here too */
+            E.in_isr = 1;
+            E.isr_vector = (int)(E.avr->pc / VECTOR_BYTES);
+            E.isr_enter = E.avr->cycle - 4u;
+        }
+    }
+    flush_out();
+    write_report();
+    if (E.avr->state == cpu_Crashed) {
+        fprintf(stderr, "tt_emu: the firmware crashed at pc 0x%x\n", (unsigned)E.avr->pc);
+        return 1;
+    }
+    return 0;
+}

@@ -1,0 +1,71 @@
+"""`trueturn analyze`: the JSON contract, the table and one-line errors."""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import pytest
+
+from trueturn.cli.main import main
+from trueturn.dsp.synthetic import OrderComponent, SyntheticRun, synthesize
+from trueturn.link.capture import write_capture_header
+
+
+@pytest.fixture(scope="module")
+def capture(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    raw, _ = synthesize(SyntheticRun(speed_rpm=1800.0, duration_s=3.0, seed=4,
+                                     orders=((OrderComponent(1, 90.0, 10.0),),
+                                             (OrderComponent(1, 40.0, 100.0),))))
+    path = tmp_path_factory.mktemp("cap") / "grinder.ttcap"
+    with open(path, "wb") as f:
+        write_capture_header(f, {"pickups": [{"name": "left"}, {"name": "right",
+                                                             "sensitivity_v_per_g": 0.3}]})
+        f.write(raw)
+    return path
+
+
+def test_json_contract(capture: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    assert main(["analyze", str(capture), "--json", "--revs", "50"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert data["speed_rpm"] == pytest.approx(1800.0, rel=1e-4)
+    assert [p["name"] for p in data["pickups"]] == ["left", "right"]
+    for p in data["pickups"]:
+        assert {"name", "amplitude", "unit", "phase_deg", "confidence_deg", "revolutions",
+                "steady"} <= set(p)
+        assert p["revolutions"] == 50
+    assert data["pickups"][0]["unit"] == "V pk"
+    assert data["pickups"][1]["unit"] == "mm/s rms"
+    assert data["pickups"][0]["phase_deg"] == pytest.approx(10.0, abs=0.5)
+    assert all({"hz", "amplitude", "label"} <= set(pk) for pk in data["spectrum_peaks"])
+    assert any(pk["label"] == "1x" and pk["hz"] == pytest.approx(30.0, abs=0.5)
+               for pk in data["spectrum_peaks"])
+    assert isinstance(data["warnings"], list)
+
+
+def test_table_and_options(capture: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    assert main(["analyze", str(capture), "--sensitivity-v-per-g", "0.1,0.3", "--unit", "mils",
+                 "--mains-hz", "60", "--names", "inboard,outboard"]) == 0
+    out = capsys.readouterr().out
+    assert "speed 1800.0 rpm" in out and "inboard" in out and "mil pk-pk" in out
+
+
+@pytest.mark.parametrize("args, text", [
+    (["--revs", "1"], "--revs must be at least 2"),
+    (["--sensitivity-v-per-g", "abc"], "must be numbers"),
+    (["--sensitivity-v-per-g", "-1"], "must be positive"),
+])
+def test_bad_options_exit_2(capture: Path, capsys: pytest.CaptureFixture[str],
+                            args: list[str], text: str) -> None:
+    assert main(["analyze", str(capture), *args]) == 2
+    err = capsys.readouterr().err
+    assert text in err and len(err.strip().splitlines()) == 1
+
+
+def test_bad_files_exit_2(tmp_path: Path, capsys: pytest.CaptureFixture[str]) -> None:
+    assert main(["analyze", str(tmp_path / "none.ttcap")]) == 2
+    junk = tmp_path / "junk.bin"
+    junk.write_bytes(bytes(range(1, 200)))
+    assert main(["analyze", str(junk)]) == 2
+    err = capsys.readouterr().err.strip().splitlines()
+    assert len(err) == 2 and "no 1x reading" in err[1]

@@ -1,0 +1,191 @@
+"""Job report: HTML with inline SVG (well-formed, no network), Markdown, CSV, units, plot geometry.
+
+Uses the invented demo job tests/data/demo_bench_grinder_job.yaml (made-up numbers).
+"""
+
+from __future__ import annotations
+
+import contextlib
+import copy
+import csv
+import io
+import math
+import re
+import xml.etree.ElementTree as ET
+from html.parser import HTMLParser
+from pathlib import Path
+
+import pytest
+
+from trueturn.cli.main import main
+from trueturn.jobs import JobRecord, Workspace
+from trueturn.jobs.report import (
+    CAUTIONS,
+    confidence_radius,
+    html_report,
+    markdown_report,
+    readings_csv,
+)
+from trueturn.jobs.store import read_document
+
+DEMO_JOB = Path(__file__).parent / "data" / "demo_bench_grinder_job.yaml"
+XHTML = "{http://www.w3.org/1999/xhtml}"
+SVG = "{http://www.w3.org/2000/svg}"
+
+
+@pytest.fixture(scope="module")
+def job() -> JobRecord:
+    return read_document(DEMO_JOB, "job")
+
+
+@pytest.fixture(scope="module")
+def page(job: JobRecord) -> ET.Element:
+    return ET.fromstring(html_report(job, generated="2026-12-01T10:00:00Z"))
+
+
+def table(page: ET.Element, css_class: str) -> list[list[str]]:
+    found = [t for t in page.iter(f"{XHTML}table") if t.get("class") == css_class]
+    assert len(found) == 1, css_class
+    return [["".join(cell.itertext()) for cell in row] for row in found[0].iter(f"{XHTML}tr")]
+
+
+def test_html_is_well_formed_and_self_contained(job: JobRecord) -> None:
+    text = html_report(job)
+    ET.fromstring(text)  # polyglot HTML: also well-formed XML
+
+    class Tags(HTMLParser):
+        def __init__(self) -> None:
+            super().__init__()
+            self.tags: list[str] = []
+
+        def handle_starttag(self, tag: str, attrs: list) -> None:
+            self.tags.append(tag)
+
+    parser = Tags()
+    parser.feed(text)
+    assert "script" not in parser.tags and "link" not in parser.tags and "img" not in parser.tags
+    urls = set(re.findall(r"https?://[^\"' )]+", text))
+    assert urls <= {"http://www.w3.org/1999/xhtml", "http://www.w3.org/2000/svg"}
+    assert "@page" in text and "@media print" in text
+
+
+def test_before_after_table_per_pickup(page: ET.Element, job: JobRecord) -> None:
+    rows = table(page, "before-after")
+    assert rows[0] == ["Pickup", "Before", "Phase", "After", "Phase", "Change"]
+    assert [r[0] for r in rows[1:]] == ["left bearing", "right bearing"]
+    first, last = job.runs[0].readings[0], job.runs[-1].readings[0]
+    assert rows[1][1] == f"{first.amplitude:.3f} mm/s"
+    assert rows[1][3] == f"{last.amplitude:.3f} mm/s"
+    assert rows[1][5] == f"{(last.amplitude - first.amplitude) / first.amplitude * 100:+.0f} %"
+
+
+def test_runs_corrections_confirmations_and_verdict_are_listed(page: ET.Element,
+                                                               job: JobRecord) -> None:
+    assert len(table(page, "runs")) == 1 + len(job.runs)
+    corrections = table(page, "corrections")
+    assert corrections[1][:5] == ["after run 3", "left wheel", "add", "4.70 g", "19.5\u00b0"]
+    assert "at position 1 (0\u00b0)" in corrections[1][5]
+    changes = table(page, "changes")
+    assert len(changes) - 1 == sum(len(r.changes) for r in job.runs)
+    confirmations = table(page, "confirmations")
+    assert len(confirmations) - 1 == sum(len(r.confirmations) for r in job.runs)
+    assert all(row[3].startswith("yes") for row in confirmations[1:])
+    verdict = table(page, "verdict")
+    assert verdict[1] == ["left wheel", "7.6 g\u00b7mm (0.20 g at 38.0 mm)", "24.5 g\u00b7mm", "within"]
+    line = "".join(next(e for e in page.iter() if e.get("id") == "verdict").itertext())
+    assert "meets balance quality grade G 6.3 (ISO 21940-11:2016)" in line
+    text = "".join(page.itertext())
+    for caution in CAUTIONS:
+        assert caution in text
+
+
+def test_polar_plots_draw_each_run_at_its_phase_with_its_confidence(page: ET.Element,
+                                                                    job: JobRecord) -> None:
+    polars = [s for s in page.iter(f"{SVG}svg") if s.get("class") == "polar"]
+    assert len(polars) == len(job.machine.pickups)
+    for svg, pickup in zip(polars, job.machine.pickups, strict=True):
+        groups = [g for g in svg.iter(f"{SVG}g") if g.get("class") == "run-vector"]
+        assert [int(g.get("data-run")) for g in groups] == [r.index for r in job.runs]
+        scales = []
+        for g, run in zip(groups, job.runs, strict=True):
+            reading = run.reading(pickup.name)
+            line = g.find(f"{SVG}line")
+            cx, cy = float(line.get("x1")), float(line.get("y1"))
+            dx, dy = float(line.get("x2")) - cx, cy - float(line.get("y2"))  # y up
+            # Rotor turns cw seen from the pickup side, so angles grow counter-clockwise on
+            # paper from 0 at the top: paper angle (math convention) = 90 + phase.
+            paper_deg = math.degrees(math.atan2(dy, dx))
+            assert abs((paper_deg - 90.0 - reading.phase_deg + 180) % 360 - 180) < 0.2
+            length = math.hypot(dx, dy)
+            scales.append(length / reading.amplitude)
+            circle = next(c for c in g.iter(f"{SVG}circle") if c.get("class") == "confidence")
+            expected = confidence_radius(reading.amplitude, reading.confidence_deg) * scales[-1]
+            assert float(circle.get("r")) == pytest.approx(max(expected, 0.8), abs=0.01)
+        assert max(scales) - min(scales) < 0.02 * max(scales)  # one scale per plot
+
+
+def test_confidence_radius_geometry() -> None:
+    # A circle of radius A*sin(c) around the tip is seen from the origin under +/- c
+    # (tangent from a point to a circle; elementary geometry).
+    assert confidence_radius(2.0, 30.0) == pytest.approx(1.0)
+    assert confidence_radius(2.0, 120.0) == pytest.approx(2.0)
+
+
+def test_units_follow_the_machine_preferences(job: JobRecord) -> None:
+    imperial = copy.deepcopy(job)
+    imperial.machine.units.vibration = "in/s"
+    imperial.machine.units.mass = "oz"
+    imperial.machine.units.length = "in"
+    page = ET.fromstring(html_report(imperial))
+    rows = table(page, "before-after")
+    # 1 in = 25.4 mm exactly (international yard and pound agreement, 1959; NIST SP 811 B.8)
+    assert rows[1][1] == f"{job.runs[0].readings[0].amplitude / 25.4:.3f} in/s"
+    # 1 oz (avoirdupois) = 28.349523125 g exactly (NIST SP 811 B.8)
+    corrections = table(page, "corrections")
+    assert corrections[1][3] == f"{4.70 / 28.349523125:.3f} oz" == "0.166 oz"
+    assert "1.496 in" in "".join(page.itertext())  # 38 mm radius
+
+
+def test_markdown_has_the_same_tables(job: JobRecord) -> None:
+    text = markdown_report(job)
+    assert text.startswith("# Balancing report: Bench grinder 200 mm")
+    assert "| Pickup | Before | Phase | After | Phase | Change |" in text
+    assert "| left bearing | 2.653 mm/s | 313.3\u00b0 \u00b1 1.6\u00b0 |" in text
+    assert "## Cautions" in text and "<svg" not in text
+
+
+def test_csv_holds_every_reading_exactly(job: JobRecord) -> None:
+    rows = list(csv.DictReader(io.StringIO(readings_csv(job))))
+    assert len(rows) == sum(len(r.readings) for r in job.runs)
+    for row, (run, reading) in zip(rows, [(r, x) for r in job.runs for x in r.readings],
+                                   strict=True):
+        assert int(row["run"]) == run.index and row["sensor"] == reading.sensor
+        assert float(row["amplitude"]) == reading.amplitude
+        assert float(row["phase_deg"]) == reading.phase_deg
+        assert float(row["confidence_deg"]) == reading.confidence_deg
+
+
+def test_report_of_a_new_job_without_runs(tmp_path: Path, job: JobRecord) -> None:
+    fresh = Workspace(tmp_path).new_job(job.machine, when="2026-12-01T08:00:00Z")
+    page = ET.fromstring(html_report(fresh))
+    assert "No verdict recorded yet." in "".join(page.itertext())
+    assert table(page, "before-after") == [["Pickup", "Before", "Phase", "After", "Phase",
+                                            "Change"]]
+    assert "No runs recorded yet." in "".join(page.itertext())
+    assert len(table(page, "runs")) == 1
+    text = markdown_report(fresh)
+    assert "No verdict recorded yet." in text and "No hands-on steps recorded." in text
+
+
+def test_cli_report_writes_html_and_csv(tmp_path: Path) -> None:
+    out, sheet = tmp_path / "r.html", tmp_path / "r.csv"
+    err = io.StringIO()
+    with contextlib.redirect_stderr(err):
+        rc = main(["report", str(DEMO_JOB), "-o", str(out), "--csv", str(sheet)])
+    assert rc == 0
+    ET.parse(out)
+    assert sheet.read_text().startswith("job_id,run,kind,label,time,sensor,amplitude")
+    stdout = io.StringIO()
+    with contextlib.redirect_stdout(stdout), contextlib.redirect_stderr(io.StringIO()):
+        assert main(["report", str(DEMO_JOB), "-o", "-", "--format", "md"]) == 0
+    assert stdout.getvalue().startswith("# Balancing report")

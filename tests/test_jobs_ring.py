@@ -1,0 +1,134 @@
+"""The printable angle ring: 1 SVG unit = 1 mm, marks pi*D/N apart on the rim, numbering direction.
+
+Geometry reference: circumference C = pi * D, so N equal positions are pi * D / N apart along
+the rim, and the straight distance between neighbours is the chord D * sin(pi / N)
+(elementary geometry; Euclid, Elements III; Archimedes, Measurement of a Circle).
+"""
+
+from __future__ import annotations
+
+import contextlib
+import io
+import math
+import xml.etree.ElementTree as ET
+from pathlib import Path
+
+import pytest
+
+from trueturn.cli.main import main
+from trueturn.jobs.ring import RULER_MM, ring_svg
+
+SVG = "{http://www.w3.org/2000/svg}"
+
+
+def parse(text: str) -> ET.Element:
+    return ET.fromstring(text.encode("utf-8"))
+
+
+def marks(root: ET.Element) -> list[tuple[int, float, float, float, float]]:
+    """(position, x1, y1, x2, y2) of the numbered position marks, in mm."""
+    out = []
+    for line in root.iter(f"{SVG}line"):
+        if line.get("class") == "position-mark":
+            out.append((int(line.get("data-position")), float(line.get("x1")),
+                        float(line.get("y1")), float(line.get("x2")), float(line.get("y2"))))
+    return sorted(out)
+
+
+def centre(root: ET.Element) -> tuple[float, float]:
+    rim = next(c for c in root.iter(f"{SVG}circle") if c.get("class") == "rim")
+    return float(rim.get("cx")), float(rim.get("cy"))
+
+
+@pytest.mark.parametrize(("diameter_mm", "positions"), [(150.0, 12), (60.0, 8), (37.5, 7),
+                                                        (203.2, 16), (100.0, 3)])
+def test_marks_are_pi_d_over_n_apart_on_paper(diameter_mm: float, positions: int) -> None:
+    text, layout = ring_svg(diameter_mm, positions)
+    root = parse(text)
+    # 1 user unit = 1 mm: width/height in mm equal the viewBox size.
+    width, height = root.get("width"), root.get("height")
+    assert width.endswith("mm") and height.endswith("mm")
+    assert root.get("viewBox").split() == ["0", "0", width[:-2], height[:-2]]
+    cx, cy = centre(root)
+    found = marks(root)
+    assert [m[0] for m in found] == list(range(1, positions + 1))
+    radius = diameter_mm / 2
+    angles = []
+    for _, x1, y1, _, _ in found:
+        assert math.hypot(x1 - cx, y1 - cy) == pytest.approx(radius, abs=1e-3)  # on the rim
+        angles.append(math.atan2(-(y1 - cy), x1 - cx))
+    spacing = math.pi * diameter_mm / positions
+    for k in range(positions):
+        a, b = angles[k], angles[(k + 1) % positions]
+        arc = radius * (((b - a) + math.pi) % (2 * math.pi) - math.pi)
+        assert abs(arc) == pytest.approx(spacing, abs=0.01)
+        chord = math.dist(found[k][1:3], found[(k + 1) % positions][1:3])
+        assert chord == pytest.approx(diameter_mm * math.sin(math.pi / positions), abs=0.01)
+    assert layout.spacing_mm == pytest.approx(spacing)
+
+
+@pytest.mark.parametrize(("rotation", "turn"), [("cw", +1), ("ccw", -1)])
+def test_numbers_run_against_rotation_from_the_reference_mark(rotation: str, turn: int) -> None:
+    root = parse(ring_svg(120.0, 6, first_deg=0.0, rotation=rotation)[0])
+    cx, cy = centre(root)
+    found = marks(root)
+    _, x1, y1, _, _ = found[0]
+    assert x1 == pytest.approx(cx, abs=1e-3) and y1 < cy  # position 1 on the 0 deg mark, top
+    a1 = math.atan2(-(found[0][2] - cy), found[0][1] - cx)
+    a2 = math.atan2(-(found[1][2] - cy), found[1][1] - cx)
+    step = math.degrees(((a2 - a1) + math.pi) % (2 * math.pi) - math.pi)
+    # A cw rotor (as seen) has its angles growing counter-clockwise on paper (+60 deg in the
+    # y-up math convention) and the other way for a ccw rotor.
+    assert step == pytest.approx(turn * 60.0, abs=1e-3)  # coordinates kept to 0.1 um
+
+
+def test_first_position_offset_and_degree_ticks() -> None:
+    text, layout = ring_svg(150.0, 4, first_deg=15.0, rotation="cw")
+    root = parse(text)
+    cx, cy = centre(root)
+    _, x1, y1, _, _ = marks(root)[0]
+    assert math.degrees(math.atan2(-(y1 - cy), x1 - cx)) == pytest.approx(90.0 + 15.0, abs=1e-3)
+    ticks = [t for t in root.iter(f"{SVG}line") if t.get("class") == "degree-tick"]
+    assert layout.tick_step_deg == 1  # 150 mm rim: 1.3 mm per degree
+    assert len(ticks) == 360
+    for tick in ticks[::45]:
+        deg = float(tick.get("data-deg"))
+        x, y = float(tick.get("x1")), float(tick.get("y1"))
+        assert math.degrees(math.atan2(-(y - cy), x - cx)) % 360 == pytest.approx((90 + deg) % 360,
+                                                                                abs=1e-2)
+
+
+def test_ruler_box_is_100_mm_with_1_mm_ticks() -> None:
+    root = parse(ring_svg(80.0, 6)[0])
+    rect = next(r for r in root.iter(f"{SVG}rect") if r.get("class") == "ruler")
+    assert float(rect.get("width")) == RULER_MM == 100.0
+    xs = sorted(float(t.get("x1")) for t in root.iter(f"{SVG}line")
+                if t.get("class") == "ruler-tick")
+    assert len(xs) == 101
+    assert all(b - a == pytest.approx(1.0) for a, b in zip(xs, xs[1:], strict=False))
+    assert xs[0] == pytest.approx(float(rect.get("x")))
+    width_mm = float(root.get("width")[:-2])
+    assert xs[-1] < width_mm  # the whole ruler is on the sheet
+
+
+def test_small_ring_fits_a_sheet_and_big_ring_says_to_tile() -> None:
+    assert ring_svg(150.0, 12)[1].fits_a4_and_letter
+    text, layout = ring_svg(300.0, 12)
+    assert not layout.fits_a4_and_letter and "print as tiles" in text
+
+
+def test_cli_ring_writes_svg_and_refuses_bad_input(tmp_path: Path) -> None:
+    out = tmp_path / "ring.svg"
+    with contextlib.redirect_stderr(io.StringIO()):
+        assert main(["ring", "--diameter-mm", "150", "--positions", "12", "--rotation", "ccw",
+                     "-o", str(out)]) == 0
+    root = ET.parse(out).getroot()
+    assert root.get("data-rotation") == "ccw" and len(marks(root)) == 12
+    for bad in (["--diameter-mm", "-5", "--positions", "12"],
+                ["--diameter-mm", "150", "--positions", "0"],
+                ["--diameter-mm", "nan", "--positions", "4"]):
+        err = io.StringIO()
+        with contextlib.redirect_stderr(err):
+            assert main(["ring", *bad, "-o", str(tmp_path / "x.svg")]) == 2
+        assert err.getvalue().count("\n") == 1
+    assert not (tmp_path / "x.svg").exists()

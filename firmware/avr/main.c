@@ -72,7 +72,7 @@ static uint8_t g_raw[TT_OVERHEAD_BYTES + TT_MSG_SAMPLES_FIXED_BYTES
                      + TT_BLOCK_MAX_SAMPLES * TT_MSG_SAMPLES_REST_ITEM_BYTES];
 static uint8_t g_seq;
 static uint8_t g_state = TT_STATE_IDLE;
-static struct tt_setup g_setup = {1000u, 2u, 1u, 1000u}; /* 2 x 1 kSps, rising edge */
+static struct tt_setup g_setup = {4000u, 2u, 1u, 250u}; /* SPEC 4.8 defaults: 2 x 4 kSps, rising */
 static uint32_t g_start_tick;
 static uint16_t g_rx_bad_frames;
 static uint32_t g_uptime_ms;

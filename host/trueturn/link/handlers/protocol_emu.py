@@ -1,0 +1,275 @@
+"""pyserial URL handler ``emu://SCENARIO[?options]``: the real firmware, emulated, as a port.
+
+The firmware ELF (firmware/build/trueturn.elf) runs in simavr under the harness
+firmware/build/tt_emu, which synthesises the pickup voltages and the tach from the scenario's
+steady signal spec (:func:`trueturn.sim.signal_spec`) and joins the board's UART to this port.
+Unlike ``sim://`` (a Python model of the board), every byte here comes from the firmware.
+
+Options (all optional):
+
+``realtime=1|0``  1 (default): the emulated time does not run ahead of the wall clock;
+                  0: as fast as the emulator runs (about 1-2x real time on a laptop).
+``seconds=S``     stop the emulated board after S simulated seconds (default: run until closed).
+``seed=N``        noise seed (default 1).
+``rpm=R``         shaft speed instead of the scenario's.
+``noise=F``       scale noise, hum, harmonics, tones and tach jitter (0 = clean signal).
+``channels=1|2``  pickups connected (default 2).
+
+After :meth:`Serial.close`, ``port.report`` holds the harness report: simulated and wall
+seconds, CPU cycles spent in each interrupt handler and the interrupt load.
+"""
+
+from __future__ import annotations
+
+import json
+import os
+import shutil
+import subprocess
+import tempfile
+import threading
+import time
+import urllib.parse
+from pathlib import Path
+from typing import Any
+
+from serial.serialutil import PortNotOpenError, SerialBase, SerialException, to_bytes
+
+from trueturn.errors import UserError
+
+_USAGE = 'expected "emu://SCENARIO[?realtime=0|1&seconds=S&seed=N&rpm=R&noise=F&channels=1|2]"'
+
+#: The firmware folder of a source checkout (override with TRUETURN_FIRMWARE_DIR).
+FIRMWARE_DIR = Path(os.environ.get("TRUETURN_FIRMWARE_DIR")
+                    or Path(__file__).resolve().parents[4] / "firmware")
+
+
+def firmware_paths(firmware_dir: Path = FIRMWARE_DIR) -> tuple[Path, Path]:
+    """(ELF, harness) paths inside the firmware folder."""
+    return firmware_dir / "build" / "trueturn.elf", firmware_dir / "build" / "tt_emu"
+
+
+def ensure_built(firmware_dir: Path = FIRMWARE_DIR) -> tuple[Path, Path]:
+    """Build the ELF and the harness with ``make -C firmware emu`` if either is missing."""
+    elf, harness = firmware_paths(firmware_dir)
+    if elf.is_file() and harness.is_file():
+        return elf, harness
+    hint = f"the emulator is not built: run `make -C {firmware_dir} emu`"
+    if not (firmware_dir / "Makefile").is_file() or shutil.which("make") is None:
+        raise SerialException(hint)
+    done = subprocess.run(["make", "-s", "-C", str(firmware_dir), "emu"],
+                          capture_output=True, text=True, check=False)
+    if done.returncode != 0 or not (elf.is_file() and harness.is_file()):
+        last = (done.stderr.strip().splitlines() or ["make failed"])[-1]
+        raise SerialException(f"{hint} ({last})")
+    return elf, harness
+
+
+def harness_args(spec: dict[str, Any]) -> list[str]:
+    """Command-line arguments of tt_emu for a signal spec (trueturn.sim.signal_spec format)."""
+    args = ["--speed-rpm", repr(float(spec["speed_rpm"])),
+            "--ref-v", repr(float(spec["adc_reference_v"])),
+            "--seed", str(int(spec.get("seed", 1))),
+            "--first-edge-s", repr(float(spec["tach"]["first_edge_s"])),
+            "--jitter-rms-s", repr(float(spec["tach"].get("jitter_rms_s", 0.0)))]
+    for ch, chan in enumerate(spec["channels"]):
+        args += ["--channel", f"{float(chan['offset_v'])!r},{float(chan['noise_rms_v'])!r}"]
+        for o in chan.get("orders", []):
+            args += ["--order", f"{ch},{float(o['order'])!r},{float(o['amplitude_v'])!r},"
+                                f"{float(o['phase_deg'])!r}"]
+        for t in chan.get("tones", []):
+            args += ["--tone", f"{ch},{float(t['hz'])!r},{float(t['amplitude_v'])!r},"
+                               f"{float(t['phase_deg'])!r}"]
+    return args
+
+
+class Serial(SerialBase):
+    """A serial port whose other end is the firmware running in the emulator."""
+
+    def __init__(self, *args: Any, **kwargs: Any) -> None:
+        self.report: dict[str, Any] | None = None
+        self.spec: dict[str, Any] | None = None
+        self._proc: subprocess.Popen[bytes] | None = None
+        self._buffer = bytearray()
+        self._cond = threading.Condition()
+        self._eof = False
+        self._reader: threading.Thread | None = None
+        self._tmpdir: tempfile.TemporaryDirectory[str] | None = None
+        super().__init__(*args, **kwargs)
+
+    # --- pyserial plumbing ------------------------------------------------------------------
+
+    def open(self) -> None:
+        if self.is_open:
+            raise SerialException("Port is already open.")
+        if self._port is None:
+            raise SerialException("Port must be configured before it can be used.")
+        name, options = self.from_url(self.port)
+        from trueturn.sim import signal_spec  # late import: sim pulls in numpy/scipy
+
+        try:
+            self.spec = signal_spec(name, channels=options.pop("channels"), **options.pop("spec"))
+        except (UserError, ValueError, OSError) as exc:
+            raise SerialException(f"emu://{name}: {exc}") from None
+        elf, harness = ensure_built()
+        self._tmpdir = tempfile.TemporaryDirectory(prefix="trueturn-emu-")
+        report = Path(self._tmpdir.name) / "report.json"
+        argv = [str(harness), *harness_args(self.spec), "--report", str(report)]
+        if options["realtime"]:
+            argv.append("--realtime")
+        if options["seconds"]:
+            argv += ["--seconds", repr(options["seconds"])]
+        argv.append(str(elf))
+        self._report_path = report
+        self._log = open(Path(self._tmpdir.name) / "stderr.txt", "wb")  # noqa: SIM115
+        self._proc = subprocess.Popen(argv, stdin=subprocess.PIPE, stdout=subprocess.PIPE,
+                                      stderr=self._log, bufsize=0)
+        self._eof = False
+        self._reader = threading.Thread(target=self._read_loop, name="emu-reader", daemon=True)
+        self._reader.start()
+        self.is_open = True
+
+    def from_url(self, url: str) -> tuple[str, dict[str, Any]]:
+        """Parse ``emu://NAME?options`` into the scenario name and options."""
+        parts = urllib.parse.urlsplit(url)
+        if parts.scheme != "emu":
+            raise SerialException(f"{_USAGE}, not starting with emu:// ({url!r})")
+        name = (parts.netloc + parts.path).strip("/") or ""
+        if not name:
+            raise SerialException(f"{_USAGE}: scenario name missing")
+        opts: dict[str, Any] = {"realtime": True, "seconds": 0.0, "channels": 2, "spec": {}}
+        try:
+            for key, values in urllib.parse.parse_qs(parts.query, strict_parsing=bool(parts.query)).items():
+                value = values[-1]
+                if key == "realtime":
+                    opts["realtime"] = {"1": True, "0": False}[value]
+                elif key == "seconds":
+                    opts["seconds"] = float(value)
+                elif key == "channels":
+                    opts["channels"] = {"1": 1, "2": 2}[value]
+                elif key == "seed":
+                    opts["spec"]["seed"] = int(value)
+                elif key == "rpm":
+                    opts["spec"]["speed_rpm"] = float(value)
+                elif key == "noise":
+                    opts["spec"]["noise_scale"] = float(value)
+                else:
+                    raise SerialException(f"{_USAGE}: unknown option {key!r}")
+        except (KeyError, ValueError):
+            raise SerialException(f"{_USAGE}: bad option in {parts.query!r}") from None
+        return name, opts
+
+    def _read_loop(self) -> None:
+        assert self._proc is not None and self._proc.stdout is not None
+        fd = self._proc.stdout.fileno()
+        while True:
+            try:
+                chunk = os.read(fd, 65536)
+            except OSError:
+                chunk = b""
+            with self._cond:
+                if not chunk:
+                    self._eof = True
+                    self._cond.notify_all()
+                    return
+                self._buffer += chunk
+                self._cond.notify_all()
+
+    def close(self) -> None:
+        proc = self._proc
+        if proc is not None:
+            try:
+                if proc.stdin is not None:
+                    proc.stdin.close()
+            except OSError:
+                pass
+            try:
+                proc.wait(timeout=5)
+            except subprocess.TimeoutExpired:
+                proc.kill()
+                proc.wait()
+            if self._reader is not None:
+                self._reader.join(timeout=2)
+            self._log.close()
+            try:
+                self.report = json.loads(self._report_path.read_text(encoding="utf-8"))
+            except (OSError, ValueError):
+                self.report = None
+            self._proc = None
+        if self._tmpdir is not None:
+            self._tmpdir.cleanup()
+            self._tmpdir = None
+        self.is_open = False
+
+    def _reconfigure_port(self) -> None:
+        """Baud rate and framing have no meaning for the emulated UART link."""
+
+    # --- data -------------------------------------------------------------------------------
+
+    @property
+    def in_waiting(self) -> int:
+        with self._cond:
+            return len(self._buffer)
+
+    @property
+    def finished(self) -> bool:
+        """True once the emulated board has stopped (``seconds=`` reached) and all is read."""
+        with self._cond:
+            return self._eof and not self._buffer
+
+    def read(self, size: int = 1) -> bytes:
+        if not self.is_open:
+            raise PortNotOpenError()
+        deadline = None if self._timeout is None else time.monotonic() + self._timeout
+        with self._cond:
+            while len(self._buffer) < size and not self._eof:
+                remaining = None if deadline is None else deadline - time.monotonic()
+                if remaining is not None and remaining <= 0:
+                    break
+                self._cond.wait(remaining)
+            data = bytes(self._buffer[:size])
+            del self._buffer[:size]
+        return data
+
+    def write(self, data: bytes | bytearray | memoryview) -> int:
+        if not self.is_open:
+            raise PortNotOpenError()
+        payload = to_bytes(data)
+        assert self._proc is not None and self._proc.stdin is not None
+        try:
+            self._proc.stdin.write(payload)
+            self._proc.stdin.flush()
+        except (BrokenPipeError, OSError):
+            raise SerialException("the emulated board has stopped") from None
+        return len(payload)
+
+    def reset_input_buffer(self) -> None:
+        with self._cond:
+            self._buffer.clear()
+
+    def reset_output_buffer(self) -> None:
+        """Nothing is held back on the way to the emulator."""
+
+    def _update_dtr_state(self) -> None:
+        """No modem lines on the emulated link."""
+
+    def _update_rts_state(self) -> None:
+        """No modem lines on the emulated link."""
+
+    def _update_break_state(self) -> None:
+        """No break condition on the emulated link."""
+
+    @property
+    def cts(self) -> bool:
+        return True
+
+    @property
+    def dsr(self) -> bool:
+        return True
+
+    @property
+    def ri(self) -> bool:
+        return False
+
+    @property
+    def cd(self) -> bool:
+        return True

@@ -51,7 +51,7 @@ def lathe() -> MachineProfile:
 
 def make_run(index: int) -> Run:
     """A run whose numbers are a function of its index, so the parent can check content."""
-    readings = [Reading(sensor=name, amplitude=index + k / 10, unit="mm/s",
+    readings = [Reading(sensor=name, amplitude=index + k / 10, unit="mm/s pk",
                         phase_deg=(37.0 * index + 90 * k) % 360, confidence_deg=1.5,
                         revolutions=32, speed_rpm=600.0) for k, name in
                 enumerate(("headstock", "tailstock"))]

@@ -74,8 +74,8 @@ def test_before_after_table_per_pickup(page: ET.Element, job: JobRecord) -> None
     assert rows[0] == ["Pickup", "Before", "Phase", "After", "Phase", "Change"]
     assert [r[0] for r in rows[1:]] == ["left bearing", "right bearing"]
     first, last = job.runs[0].readings[0], job.runs[-1].readings[0]
-    assert rows[1][1] == f"{first.amplitude:.3f} mm/s"
-    assert rows[1][3] == f"{last.amplitude:.3f} mm/s"
+    assert rows[1][1] == f"{first.amplitude:.3f} mm/s rms"
+    assert rows[1][3] == f"{last.amplitude:.3f} mm/s rms"
     assert rows[1][5] == f"{(last.amplitude - first.amplitude) / first.amplitude * 100:+.0f} %"
 
 
@@ -139,7 +139,7 @@ def test_units_follow_the_machine_preferences(job: JobRecord) -> None:
     page = ET.fromstring(html_report(imperial))
     rows = table(page, "before-after")
     # 1 in = 25.4 mm exactly (international yard and pound agreement, 1959; NIST SP 811 B.8)
-    assert rows[1][1] == f"{job.runs[0].readings[0].amplitude / 25.4:.3f} in/s"
+    assert rows[1][1] == f"{job.runs[0].readings[0].amplitude / 25.4:.3f} in/s rms"
     # 1 oz (avoirdupois) = 28.349523125 g exactly (NIST SP 811 B.8)
     corrections = table(page, "corrections")
     assert corrections[1][3] == f"{4.70 / 28.349523125:.3f} oz" == "0.166 oz"
@@ -150,7 +150,7 @@ def test_markdown_has_the_same_tables(job: JobRecord) -> None:
     text = markdown_report(job)
     assert text.startswith("# Balancing report: Bench grinder 200 mm")
     assert "| Pickup | Before | Phase | After | Phase | Change |" in text
-    assert "| left bearing | 2.653 mm/s | 313.3\u00b0 \u00b1 1.6\u00b0 |" in text
+    assert "| left bearing | 2.653 mm/s rms | 313.3\u00b0 \u00b1 1.6\u00b0 |" in text
     assert "## Cautions" in text and "<svg" not in text
 
 
@@ -189,3 +189,32 @@ def test_cli_report_writes_html_and_csv(tmp_path: Path) -> None:
     with contextlib.redirect_stdout(stdout), contextlib.redirect_stderr(io.StringIO()):
         assert main(["report", str(DEMO_JOB), "-o", "-", "--format", "md"]) == 0
     assert stdout.getvalue().startswith("# Balancing report")
+
+
+def test_unit_conversion_keeps_the_detector() -> None:
+    from trueturn.jobs.profiles import convert_vibration
+
+    # 1 in = 25.4 mm exactly, so 1 mil = 25.4 um (NIST SP 811 B.8); rms stays rms.
+    assert convert_vibration(25.4, "mm/s rms", "in/s") == (1.0, "in/s rms")
+    assert convert_vibration(1.0, "in/s pk", "mm/s") == (25.4, "mm/s pk")
+    assert convert_vibration(50.8, "um pk-pk", "in/s", length="in") == (2.0, "mil pk-pk")
+    assert convert_vibration(3.0, "mil pk-pk", "mm/s", length="mm") == pytest.approx(
+        (76.2, "um pk-pk"))
+    assert convert_vibration(0.4, "g pk", "in/s") == (0.4, "g pk")
+    assert convert_vibration(0.02, "V pk", "mm/s") == (0.02, "V pk")
+
+
+def test_plot_uses_the_dsp_confidence_radius_when_stored(job: JobRecord) -> None:
+    from trueturn.jobs.report import polar_svg
+
+    with_radius = copy.deepcopy(job)
+    for run in with_radius.runs:
+        for reading in run.readings:
+            reading.confidence_radius = reading.amplitude / 2
+    svg = ET.fromstring(polar_svg(with_radius, "left bearing"))
+    for g in (g for g in svg.iter(f"{SVG}g") if g.get("class") == "run-vector"):
+        line = g.find(f"{SVG}line")
+        length = math.dist((float(line.get("x1")), float(line.get("y1"))),
+                           (float(line.get("x2")), float(line.get("y2"))))
+        circle = next(c for c in g.iter(f"{SVG}circle") if c.get("class") == "confidence")
+        assert float(circle.get("r")) == pytest.approx(max(length / 2, 0.8), abs=0.02)

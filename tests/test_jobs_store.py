@@ -56,7 +56,7 @@ def shop_fan() -> MachineProfile:
 
 
 def reading(sensor: str = "motor", amplitude: float = 3.1, phase_deg: float = 40.0) -> Reading:
-    return Reading(sensor=sensor, amplitude=amplitude, unit="mm/s", phase_deg=phase_deg,
+    return Reading(sensor=sensor, amplitude=amplitude, unit="mm/s rms", phase_deg=phase_deg,
                    confidence_deg=2.5, revolutions=48, speed_rpm=1420.0)
 
 
@@ -144,10 +144,22 @@ def test_negative_part_mass_inside_a_run() -> None:
 
 
 def test_wrong_unit_in_a_reading() -> None:
-    text = demo_text().replace("unit: mm/s", "unit: cm/s", 1)
+    text = demo_text().replace("unit: mm/s rms", "unit: cm/s rms", 1)
     message = error_of(text)
-    assert "runs[0].readings[0].unit: 'cm/s' is not one of: mm/s, in/s, um, mil, m/s2, g" in message
-    assert message.startswith(f"jobs/x.yaml:{line_of(text, 'unit: cm/s')}:")
+    assert "runs[0].readings[0].unit: 'cm/s rms' is not one of: mm/s rms, mm/s pk, in/s pk" in message
+    assert message.startswith(f"jobs/x.yaml:{line_of(text, 'unit: cm/s rms')}:")
+
+
+def test_reading_units_cover_every_dsp_unit_label() -> None:
+    """A job must be able to store whatever unit the DSP layer reports (and read it back)."""
+    import typing
+
+    from trueturn.dsp.units import UNITS
+    from trueturn.jobs.profiles import VIBRATION_UNIT_LABELS
+    from trueturn.jobs.records import VibrationUnit
+
+    assert set(UNITS) <= set(VIBRATION_UNIT_LABELS)
+    assert typing.get_args(VibrationUnit) == VIBRATION_UNIT_LABELS
 
 
 def test_wrong_unit_preference() -> None:
@@ -268,7 +280,7 @@ def test_coefficients_kept_per_machine_and_speed(tmp_path: Path) -> None:
     assert ws.find_coefficients("Shop fan 500", 1420.0) is None
 
     def coefficients(speed_rpm: float, amp: float) -> CoefficientSet:
-        return CoefficientSet(speed_rpm=speed_rpm, unit="mm/s", job_id="j",
+        return CoefficientSet(speed_rpm=speed_rpm, unit="mm/s rms", job_id="j",
                               entries=[InfluenceEntry("motor", "hub", amp, 118.0)])
 
     ws.save_coefficients("Shop fan 500", coefficients(1420.0, 0.21))

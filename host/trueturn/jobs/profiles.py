@@ -157,21 +157,38 @@ def format_length(length_mm: float, unit: LengthUnit) -> str:
     return f"{length_mm:.1f} mm"
 
 
-#: Vibration units a stored reading may carry, and their factor to the base of their kind.
-VIBRATION_UNITS: dict[str, tuple[str, float]] = {
+#: Units a stored reading may carry. The first group are the DSP layer's labels, detector
+#: included (trueturn.dsp.units.UNITS; a test keeps the two lists in step); the bare forms
+#: are accepted for hand-written files and mean "detector not stated".
+VIBRATION_UNIT_LABELS: tuple[str, ...] = (
+    "mm/s rms", "mm/s pk", "in/s pk", "in/s rms", "um pk-pk", "mil pk-pk", "g pk", "m/s2 pk",
+    "V pk", "mm/s", "in/s", "um", "mil", "g", "m/s2", "V",
+)
+
+#: length-dependent base unit -> (quantity, factor to the metric base of that quantity)
+_BASES: dict[str, tuple[str, float]] = {
     "mm/s": ("velocity", 1.0),
     "in/s": ("velocity", MM_PER_IN),
     "um": ("displacement", 1.0),
     "mil": ("displacement", MM_PER_IN),  # 1 mil = 0.001 in = 25.4 um
-    "m/s2": ("acceleration", 1.0),
-    "g": ("acceleration", 9.80665),  # standard gravity, CGPM 1901
 }
 
 
-def convert_vibration(amplitude: float, from_unit: str, preferred: VelocityUnit) -> tuple[float, str]:
-    """Convert a velocity reading to the preferred velocity unit; other kinds stay as stored."""
-    kind, factor = VIBRATION_UNITS[from_unit]
-    if kind != "velocity":
+def split_unit(label: str) -> tuple[str, str]:
+    """``'mm/s rms'`` -> ``('mm/s', 'rms')``; ``'mm/s'`` -> ``('mm/s', '')``."""
+    base, _, detector = label.partition(" ")
+    return base, detector
+
+
+def convert_vibration(amplitude: float, from_unit: str, preferred: VelocityUnit,
+                      length: LengthUnit = "mm") -> tuple[float, str]:
+    """Show a reading in the person's units: velocity in ``preferred`` (mm/s or in/s),
+    displacement in um (``length`` mm) or mil (``length`` in); the detector (rms, pk, pk-pk)
+    is kept as measured, never converted. Acceleration and volts stay as stored."""
+    base, detector = split_unit(from_unit)
+    if base not in _BASES:
         return amplitude, from_unit
-    _, to_factor = VIBRATION_UNITS[preferred]
-    return amplitude * factor / to_factor, preferred
+    quantity, factor = _BASES[base]
+    target = preferred if quantity == "velocity" else ("mil" if length == "in" else "um")
+    value = amplitude * factor / _BASES[target][1]
+    return value, f"{target} {detector}".strip()

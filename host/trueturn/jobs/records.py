@@ -16,7 +16,8 @@ from typing import Literal
 from trueturn.jobs.profiles import MachineProfile
 from trueturn.jobs.schema import limits
 
-VibrationUnit = Literal["mm/s", "in/s", "um", "mil", "m/s2", "g"]
+VibrationUnit = Literal["mm/s rms", "mm/s pk", "in/s pk", "in/s rms", "um pk-pk", "mil pk-pk",
+                        "g pk", "m/s2 pk", "V pk", "mm/s", "in/s", "um", "mil", "g", "m/s2", "V"]
 RunKind = Literal["initial", "trial", "correction", "trim", "check"]
 
 
@@ -30,8 +31,10 @@ def now_iso() -> str:
 class Reading:
     """One pickup's 1x vector in one run (from the DSP layer).
 
+    ``unit`` is the DSP layer's label with its detector (``'mm/s rms'``, ``'g pk'``, ...).
     ``phase_deg`` is the lag of the 1x positive peak after the tach event;
-    ``confidence_deg`` the half-width of its confidence interval.
+    ``confidence_deg`` the half-width of its confidence interval, ``confidence_radius`` (if
+    the DSP layer gave one) the radius of the confidence circle in ``unit``.
     """
 
     sensor: str = field(metadata=limits(nonempty=True))
@@ -41,6 +44,7 @@ class Reading:
     confidence_deg: float = field(metadata=limits(minimum=0, maximum=180))
     revolutions: int = field(metadata=limits(minimum=0))
     speed_rpm: float = field(metadata=limits(above=0))
+    confidence_radius: float | None = field(default=None, metadata=limits(minimum=0))
 
 
 @dataclass

@@ -62,7 +62,8 @@ def short_time(iso: str) -> str:
 
 def reading_text(reading: Reading, machine: MachineProfile) -> tuple[str, str]:
     """(amplitude with unit, phase with confidence) in the person's chosen units."""
-    amplitude, unit = convert_vibration(reading.amplitude, reading.unit, machine.units.vibration)
+    amplitude, unit = convert_vibration(reading.amplitude, reading.unit, machine.units.vibration,
+                                        machine.units.length)
     digits = 3 if amplitude < 10 else 1
     return (f"{amplitude:.{digits}f} {unit}",
             f"{_deg(reading.phase_deg)} \u00b1 {reading.confidence_deg:.1f}\u00b0")
@@ -70,11 +71,9 @@ def reading_text(reading: Reading, machine: MachineProfile) -> tuple[str, str]:
 
 def _reduction(before: Reading, after: Reading) -> str:
     """Change of amplitude from before to after, in percent (only when the units agree)."""
-    b, _ = convert_vibration(before.amplitude, before.unit, "mm/s")
-    a, _ = convert_vibration(after.amplitude, after.unit, "mm/s")
-    if before.unit != after.unit and {before.unit, after.unit} != {"mm/s", "in/s"}:
-        return "-"
-    if b <= 0:
+    b, b_unit = convert_vibration(before.amplitude, before.unit, "mm/s")
+    a, a_unit = convert_vibration(after.amplitude, after.unit, "mm/s")
+    if a_unit != b_unit or b <= 0:
         return "-"
     return f"{(a - b) / b * 100:+.0f} %"
 
@@ -120,9 +119,13 @@ def polar_svg(job: JobRecord, sensor: str, size_px: int = 320) -> str:
         reading = run.reading(sensor)
         if reading is None:
             continue
-        amplitude, unit = convert_vibration(reading.amplitude, reading.unit, machine.units.vibration)
-        points.append((run, amplitude, reading.phase_deg,
-                       confidence_radius(amplitude, reading.confidence_deg), unit))
+        amplitude, unit = convert_vibration(reading.amplitude, reading.unit,
+                                            machine.units.vibration, machine.units.length)
+        if reading.confidence_radius is not None and reading.amplitude > 0:
+            radius = reading.confidence_radius * amplitude / reading.amplitude
+        else:
+            radius = confidence_radius(amplitude, reading.confidence_deg)
+        points.append((run, amplitude, reading.phase_deg, radius, unit))
     extent = max([a + c for _, a, _, c, _ in points] + [1e-9])
     step = _nice_step(extent)
     rings = max(1, math.ceil(extent / step))

@@ -131,6 +131,19 @@ def test_phase_lag_and_gain_table() -> None:
         assert float(cells[3]) == pytest.approx(1 / math.sqrt(1 + (f_hz / fc_hz) ** 2), abs=6e-4)
 
 
+def test_module_as_sold_figures() -> None:
+    # Same first-order formulas; ADXL335-class bandwidth 1/(2*pi*32 kOhm*C) (ADXL335 data sheet).
+    text = " ".join(WIRING_TEXT.split())
+    m = re.search(r"\(fc = ([\d.]+) Hz\) the same figures at (\d+) Hz are ([\d.]+)° and (\d+\.\d+)",
+                  text)
+    assert m, "module-as-sold sentence not found in WIRING.md"
+    stated_fc_hz, f_hz, lag_deg, gain = (float(g) for g in m.groups())
+    fc_hz = 1 / (2 * math.pi * 32e3 * 0.1e-6)
+    assert stated_fc_hz == pytest.approx(fc_hz, abs=0.06)
+    assert lag_deg == pytest.approx(math.degrees(math.atan(f_hz / fc_hz)), abs=0.06)
+    assert gain == pytest.approx(1 / math.sqrt(1 + (f_hz / fc_hz) ** 2), abs=6e-4)
+
+
 def test_attenuation_table() -> None:
     fc_hz = _buffered_corner_hz()
     for cells in _table(WIRING_TEXT, "| frequency | what it is |"):

@@ -442,3 +442,25 @@ def residual_unbalance_gmm(model: InfluenceModel, run: Run, planes: Sequence[Pla
     a = model.matrix[rows] * w[rows][:, None]
     d, *_ = np.linalg.lstsq(a, -y * w[rows], rcond=None)
     return [float(abs(d[j]) * p.radius_mm) for j, p in enumerate(planes)]
+
+
+def trial_size_factor(before: dict[str, complex], after: dict[str, complex],
+                      confidence: dict[str, float] | None = None) -> float:
+    """How many times bigger a trial mass should have been (1.0 = big enough).
+
+    Right after one trial run: the trial changed the 1x from ``before`` to ``after``
+    (phasors per pickup). It is big enough when on some pickup the change is at least 25 %
+    of the level before and at least three confidence radii (common practice, no source).
+    """
+    factor = np.inf
+    for name, b in before.items():
+        change = abs(after[name] - b)
+        if change <= 0:
+            continue
+        need = MIN_TRIAL_CHANGE * abs(b) / change
+        if confidence and confidence.get(name):
+            need = max(need, MIN_TRIAL_CONFIDENCES * confidence[name] / change)
+        factor = min(factor, need)
+    if not np.isfinite(factor):
+        raise UserError("the trial run shows no change at all: is the trial mass on the rotor?")
+    return float(max(1.0, factor))

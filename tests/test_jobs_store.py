@@ -319,3 +319,24 @@ def test_report_finds_a_job_by_id_in_the_workspace(tmp_path: Path,
     with contextlib.redirect_stderr(err):
         assert main(["report", "no-such-job", "--workspace", str(tmp_path / "ws")]) == 2
     assert err.getvalue().count("\n") == 1 and "no job 'no-such-job'" in err.getvalue()
+
+
+def test_a_job_that_would_not_read_back_is_never_written(tmp_path: Path) -> None:
+    ws = Workspace(tmp_path)
+    job = ws.new_job(shop_fan(), when="2026-11-30T09:00:00Z")
+    before = ws.job_path(job.job_id).read_bytes()
+    bad = run(1)
+    bad.readings[0].unit = "furlongs/fortnight"  # type: ignore[assignment]
+    with pytest.raises(SchemaError, match=r"\(not saved\):\d+: runs\[0\]\.readings\[0\]\.unit"):
+        ws.append_run(job, bad)
+    assert ws.job_path(job.job_id).read_bytes() == before
+
+
+def test_job_in_a_file_of_the_persons_choosing(tmp_path: Path) -> None:
+    ws = Workspace(tmp_path / "ws")
+    job = ws.new_job(shop_fan(), when="2026-11-30T09:00:00Z")
+    own = tmp_path / "customer" / "fan-job.yaml"
+    ws.append_run(job, run(1), path=own)
+    ws.close_job(job, path=own)
+    assert read_document(own, "job").status == "closed"
+    assert ws.load_job(str(own)).runs == [run(1)]

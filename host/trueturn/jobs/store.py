@@ -207,8 +207,11 @@ def read_document(path: Path, kind: str) -> Any:
 
 
 def write_document(path: Path, kind: str, obj: Any) -> Path:
-    """Save a document atomically."""
-    return atomic_write_text(path, document_text(kind, obj))
+    """Save a document atomically, after checking the text reads back (never write a file
+    that the tool itself would refuse to open)."""
+    text = document_text(kind, obj)
+    parse_document(text, kind, f"{path} (not saved)")
+    return atomic_write_text(path, text)
 
 
 # --------------------------------------------------------------------------------------------
@@ -329,12 +332,16 @@ class Workspace:
         self.save_job(job)
         return job
 
-    def save_job(self, job: JobRecord) -> Path:
-        """Save ``job`` atomically (call after every run and every hands-on step)."""
+    def save_job(self, job: JobRecord, path: str | os.PathLike[str] | None = None) -> Path:
+        """Save ``job`` atomically (call after every run and every hands-on step).
+
+        ``path`` keeps the job in a file of the person's choosing instead of the workspace.
+        """
         job.updated = now_iso()
-        path = write_document(self.job_path(job.job_id), "job", job)
-        remove_stale_temps(self.jobs_dir)
-        return path
+        target = Path(path) if path is not None else self.job_path(job.job_id)
+        written = write_document(target, "job", job)
+        remove_stale_temps(target.parent)
+        return written
 
     def find_job(self, ref: str | os.PathLike[str]) -> Path:
         """A job file from a path or a job id in this workspace."""
@@ -351,7 +358,8 @@ class Workspace:
     def load_job(self, ref: str | os.PathLike[str]) -> JobRecord:
         return read_document(self.find_job(ref), "job")
 
-    def append_run(self, job: JobRecord, run: Run) -> Path:
+    def append_run(self, job: JobRecord, run: Run,
+                   path: str | os.PathLike[str] | None = None) -> Path:
         """Add a completed run (its pending hands-on work folded in) and save at once."""
         if run.index != job.next_run_index:
             raise ValueError(f"run index {run.index}, expected {job.next_run_index}")
@@ -364,18 +372,20 @@ class Workspace:
                 run.notes = (job.pending.notes + "\n" + run.notes).strip()
             job.pending = None
         job.runs.append(run)
-        return self.save_job(job)
+        return self.save_job(job, path)
 
-    def record_pending(self, job: JobRecord, pending: PendingStep) -> Path:
+    def record_pending(self, job: JobRecord, pending: PendingStep,
+                       path: str | os.PathLike[str] | None = None) -> Path:
         """Keep hands-on work done since the last run (so a crash does not forget a trial weight)."""
         job.pending = pending
-        return self.save_job(job)
+        return self.save_job(job, path)
 
-    def close_job(self, job: JobRecord, verdict: Verdict | None = None) -> Path:
+    def close_job(self, job: JobRecord, verdict: Verdict | None = None,
+                  path: str | os.PathLike[str] | None = None) -> Path:
         if verdict is not None:
             job.verdict = verdict
         job.status = "closed"
-        return self.save_job(job)
+        return self.save_job(job, path)
 
     def resume_job(self, ref: str | os.PathLike[str]) -> JobRecord:
         """Reload an open job after an unplug or crash; it continues at ``next_run_index``."""

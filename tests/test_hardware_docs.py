@@ -254,8 +254,9 @@ def test_safety_page_trial_weight_figures() -> None:
     # physics textbook); weight = m*g with standard gravity 9.80665 m/s^2.
     text = " ".join((HARDWARE / "SAFETY.md").read_text(encoding="utf-8").split())
     m = re.search(r"A ([\d.]+) g washer at ([\d.]+) mm radius on a rotor turning at (\d+) rpm "
-                  r"is held against about ([\d.]+) N, roughly (\d+) times its own weight, and if "
-                  r"it comes loose it leaves at about ([\d.]+) m/s \(over (\d+) km/h\)", text)
+                  r"needs a holding force of about ([\d.]+) N, roughly (\d+) times its own "
+                  r"weight, and if it comes loose it leaves at about ([\d.]+) m/s "
+                  r"\(over (\d+) km/h\)", text)
     assert m, "trial-weight example not found in SAFETY.md"
     mass_g, radius_mm, speed_rpm, force_n, times, speed_m_s, over_km_h = map(float, m.groups())
     omega_rad_s = 2 * math.pi * speed_rpm / 60

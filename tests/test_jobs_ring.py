@@ -132,3 +132,38 @@ def test_cli_ring_writes_svg_and_refuses_bad_input(tmp_path: Path) -> None:
             assert main(["ring", *bad, "-o", str(tmp_path / "x.svg")]) == 2
         assert err.getvalue().count("\n") == 1
     assert not (tmp_path / "x.svg").exists()
+
+
+@pytest.mark.parametrize(("diameter_mm", "positions"), [(120.0, 8), (40.0, 5), (250.0, 24)])
+def test_rim_strip_is_pi_d_long_with_marks_pi_d_over_n_apart(diameter_mm: float,
+                                                             positions: int) -> None:
+    from trueturn.jobs.ring import strip_svg
+
+    text, layout = strip_svg(diameter_mm, positions)
+    root = parse(text)
+    assert root.get("viewBox").split()[2:] == [root.get("width")[:-2], root.get("height")[:-2]]
+    along: dict[int, float] = {}
+    total = 0.0
+    for row in (g for g in root.iter(f"{SVG}g") if g.get("class") == "strip-row"):
+        rect = next(r for r in row.iter(f"{SVG}rect") if r.get("class") == "strip")
+        x0, start = float(rect.get("x")), float(row.get("data-start-mm"))
+        assert start == pytest.approx(total, abs=1e-3)  # rows continue where the last ended
+        total += float(rect.get("width"))
+        for line in row.iter(f"{SVG}line"):
+            if line.get("class") == "position-mark":
+                along[int(line.get("data-position"))] = start + float(line.get("x1")) - x0
+    assert total == pytest.approx(math.pi * diameter_mm, abs=1e-3)  # circumference pi * D
+    assert sorted(along) == list(range(1, positions + 1))
+    gaps = [along[k + 1] - along[k] for k in range(1, positions)]
+    gaps.append(total - along[positions] + along[1])  # across the join
+    for gap in gaps:
+        assert gap == pytest.approx(math.pi * diameter_mm / positions, abs=1e-3)
+    assert layout.spacing_mm == pytest.approx(math.pi * diameter_mm / positions)
+
+
+def test_cli_rim_strip(tmp_path: Path) -> None:
+    out = tmp_path / "strip.svg"
+    with contextlib.redirect_stderr(io.StringIO()):
+        assert main(["ring", "--diameter-mm", "120", "--positions", "8", "--rim",
+                     "-o", str(out)]) == 0
+    assert ET.parse(out).getroot().get("data-length-mm") == f"{math.pi * 120:.4f}"

@@ -24,6 +24,9 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     parser.add_argument("--rotation", choices=("cw", "ccw"), default="cw",
                         help="which way the rotor turns, seen looking at the face the ring "
                              "goes on (default cw)")
+    parser.add_argument("--rim", action="store_true",
+                        help="a straight strip (length pi x D) to wrap round a rim, instead "
+                             "of a ring for the face")
     parser.add_argument("--title", default="", help="a line of text printed on the ring")
     parser.add_argument("-o", "--output", default="ring.svg", metavar="FILE",
                         help="SVG file to write (default ring.svg; '-' for standard output)")
@@ -31,8 +34,7 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from trueturn.jobs.ring import ring_svg
-    from trueturn.jobs.store import atomic_write_text
+    from trueturn.jobs.ring import ring_svg, strip_svg
 
     if not math.isfinite(args.diameter_mm) or not 10.0 <= args.diameter_mm <= 2000.0:
         raise UserError(f"--diameter-mm {args.diameter_mm:g}: must be between 10 and 2000 mm")
@@ -40,15 +42,31 @@ def run(args: argparse.Namespace) -> int:
         raise UserError(f"--positions {args.positions}: must be between 1 and 360")
     if not math.isfinite(args.first_deg):
         raise UserError("--first-deg must be a number of degrees")
+    if args.rim:
+        text, strip = strip_svg(args.diameter_mm, args.positions, args.first_deg, args.title)
+        _write(args.output, text)
+        if args.output != "-":
+            print(f"wrote {args.output}: strip {strip.length_mm:.1f} mm long in {strip.rows} "
+                  f"row(s), positions {strip.spacing_mm:.2f} mm apart; print at 100 %",
+                  file=sys.stderr)
+        return 0
     text, layout = ring_svg(args.diameter_mm, args.positions, args.first_deg, args.rotation,
                             args.title)
-    if args.output == "-":
-        sys.stdout.write(text)
-    else:
-        atomic_write_text(args.output, text)
+    _write(args.output, text)
+    if args.output != "-":
         print(f"wrote {args.output}: {layout.width_mm:.0f} x {layout.height_mm:.0f} mm, "
               f"positions {layout.spacing_mm:.2f} mm apart on the rim; print at 100 %",
               file=sys.stderr)
     if not layout.fits_a4_and_letter:
-        print("note: larger than an A4/Letter sheet; print as tiles at 100 %", file=sys.stderr)
+        print("note: larger than an A4/Letter sheet; print as tiles at 100 %, or use --rim "
+              "for a strip", file=sys.stderr)
     return 0
+
+
+def _write(output: str, text: str) -> None:
+    from trueturn.jobs.store import atomic_write_text
+
+    if output == "-":
+        sys.stdout.write(text)
+    else:
+        atomic_write_text(output, text)

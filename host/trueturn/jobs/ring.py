@@ -198,3 +198,121 @@ def ring_svg(diameter_mm: float, positions: int, first_deg: float = 0.0,
                    'Letter sheet: print as tiles (poster) at 100 % and tape them together.</text>')
     out.append("</svg>")
     return "\n".join(out) + "\n", lay
+
+
+# --------------------------------------------------------------------------------------------
+# Rim strip: the same scale unrolled, to wrap round a cylindrical rim (pulley, cutterhead).
+
+STRIP_ROW_MM = 160.0
+STRIP_HEIGHT_MM = 14.0
+STRIP_TAB_MM = 8.0
+
+
+@dataclass(frozen=True)
+class StripLayout:
+    """An unrolled ring: total length pi * D cut into rows of at most ``STRIP_ROW_MM``."""
+
+    diameter_mm: float
+    positions: int
+    first_deg: float
+    length_mm: float
+    rows: int
+    width_mm: float
+    height_mm: float
+    position_angles_deg: tuple[float, ...]
+
+    @property
+    def spacing_mm(self) -> float:
+        return self.length_mm / self.positions
+
+
+def strip_svg(diameter_mm: float, positions: int, first_deg: float = 0.0,
+              title: str = "") -> tuple[str, StripLayout]:
+    """A straight strip of length pi * D with degree ticks and numbered positions.
+
+    Wrapped round the rim with its arrow pointing the way the rim moves, the numbers grow
+    against rotation like the ring's: a point further along the strip passes a fixed pickup
+    later, so the rim surface moves from higher numbers towards lower ones.
+    """
+    lay_ring = plan_ring(diameter_mm, positions, first_deg, "cw")  # validates the inputs
+    length = math.pi * diameter_mm
+    rows = max(1, math.ceil(length / STRIP_ROW_MM - 1e-9))
+    width = STRIP_ROW_MM + STRIP_TAB_MM + 2 * MARGIN_MM + 4.0
+    row_pitch = STRIP_HEIGHT_MM + 9.0
+    top = MARGIN_MM + 10.0
+    height = top + rows * row_pitch + 26.0 + MARGIN_MM
+    lay = StripLayout(diameter_mm, positions, lay_ring.first_deg, length, rows, round(width, 3),
+                      round(height, 3), lay_ring.position_angles_deg)
+    x0 = MARGIN_MM
+    step = lay_ring.tick_step_deg
+    out = [
+        '<?xml version="1.0" encoding="UTF-8"?>',
+        f'<svg xmlns="http://www.w3.org/2000/svg" width="{lay.width_mm:g}mm" '
+        f'height="{lay.height_mm:g}mm" viewBox="0 0 {lay.width_mm:g} {lay.height_mm:g}" '
+        f'data-diameter-mm="{diameter_mm:g}" data-positions="{positions}" '
+        f'data-length-mm="{length:.4f}">',
+        f'<title>trueturn rim strip, diameter {diameter_mm:g} mm, {positions} positions</title>',
+        '<style>text { font-family: "DejaVu Sans", Arial, sans-serif; fill: #000; } '
+        '.small { font-size: 2.4px; } .info { font-size: 3px; } .deg { font-size: 2.2px; } '
+        '.pos { font-size: 3.4px; font-weight: bold; }</style>',
+        f'<text x="{x0}" y="{MARGIN_MM}" class="info">trueturn rim strip: diameter '
+        f'{diameter_mm:g} mm, length {length:.1f} mm, {positions} positions every '
+        f'{length / positions:.2f} mm, position 1 at {lay.first_deg:g}\u00b0'
+        + (f", {html.escape(title)}" if title else "") + '</text>',
+        f'<text x="{x0}" y="{MARGIN_MM + 3.5}" class="small">Cut out the rows and glue each '
+        'onto the grey tab of the row before. Wrap round the rim with 0\u00b0 on the</text>',
+        f'<text x="{x0}" y="{MARGIN_MM + 6.5}" class="small">reference mark and the arrows '
+        'pointing the way the rim moves; the numbers then grow against rotation.</text>',
+    ]
+    for row in range(rows):
+        start = row * STRIP_ROW_MM
+        seg = min(STRIP_ROW_MM, length - start)
+        y = top + row * row_pitch
+        out.append(f'<g class="strip-row" data-row="{row}" data-start-mm="{start:.4f}">')
+        out.append(f'<rect class="strip" x="{x0:g}" y="{y:g}" width="{seg:.4f}" '
+                   f'height="{STRIP_HEIGHT_MM:g}" fill="none" stroke="#000" stroke-width="0.25"/>')
+        tab_text = "glue" if row < rows - 1 else "0\u00b0"
+        out.append(f'<rect x="{x0 + seg:.4f}" y="{y:g}" width="{STRIP_TAB_MM:g}" '
+                   f'height="{STRIP_HEIGHT_MM:g}" fill="#eee" stroke="#000" stroke-width="0.15" '
+                   'stroke-dasharray="1 1"/>')
+        out.append(f'<text x="{x0 + seg + STRIP_TAB_MM / 2:.2f}" y="{y + 8:g}" '
+                   f'text-anchor="middle" class="small">{tab_text}</text>')
+        out.append(f'<text x="{x0 + seg / 2:.2f}" y="{y + STRIP_HEIGHT_MM + 2.6:g}" '
+                   'text-anchor="middle" class="small">\u2190 rim moves this way \u2190</text>')
+        for deg in range(0, 360, step):
+            s = deg / 360.0 * length
+            if not start - 1e-9 <= s < start + seg - 1e-9:
+                continue
+            x = x0 + s - start
+            tick = 4.0 if deg % 10 == 0 else 2.8 if deg % 5 == 0 else 1.6
+            out.append(f'<line class="degree-tick" data-deg="{deg}" x1="{x:.4f}" y1="{y:g}" '
+                       f'x2="{x:.4f}" y2="{y + tick:g}" stroke="#000" stroke-width="0.15"/>')
+            if deg % 10 == 0:
+                out.append(f'<text x="{x:.3f}" y="{y + 6.2:g}" text-anchor="middle" '
+                           f'class="deg">{deg}</text>')
+        for k, angle in enumerate(lay.position_angles_deg):
+            s = angle / 360.0 * length
+            if not start - 1e-9 <= s < start + seg - 1e-9:
+                continue
+            x = x0 + s - start
+            out.append(f'<line class="position-mark" data-position="{k + 1}" '
+                       f'data-angle-deg="{angle:g}" x1="{x:.4f}" y1="{y + 7:g}" x2="{x:.4f}" '
+                       f'y2="{y + STRIP_HEIGHT_MM:g}" stroke="#000" stroke-width="0.45"/>')
+            out.append(f'<text x="{x + 0.8:.3f}" y="{y + STRIP_HEIGHT_MM - 1.2:g}" '
+                       f'class="pos">{k + 1}</text>')
+        out.append("</g>")
+    rx = MARGIN_MM
+    ry = lay.height_mm - MARGIN_MM - 16.0
+    out.append(f'<rect class="ruler" x="{rx:g}" y="{ry:g}" width="{RULER_MM:g}" height="8" '
+               'fill="none" stroke="#000" stroke-width="0.25"/>')
+    for mm in range(int(RULER_MM) + 1):
+        tick = 4.0 if mm % 10 == 0 else 2.5 if mm % 5 == 0 else 1.5
+        out.append(f'<line class="ruler-tick" x1="{rx + mm:g}" y1="{ry + 8:g}" x2="{rx + mm:g}" '
+                   f'y2="{ry + 8 - tick:g}" stroke="#000" stroke-width="0.12"/>')
+        if mm % 10 == 0:
+            out.append(f'<text x="{rx + mm:g}" y="{ry + 3:g}" text-anchor="middle" '
+                       f'class="small">{mm // 10}</text>')
+    out.append(f'<text x="{rx:g}" y="{ry + 12:g}" class="small">This box must measure exactly '
+               f'{RULER_MM:g} mm (10 cm). Print at 100 % / actual size, not "fit to page".</text>')
+    out.append("</svg>")
+    return "\n".join(out) + "\n", lay

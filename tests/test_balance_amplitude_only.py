@@ -103,3 +103,16 @@ def test_least_squares_generalisation_with_unequal_trials():
     sol = solve(parse_readings(doc)).solution
     assert sol.method == "amplitude-only (least squares)"
     assert abs(sol.corrections[0].vector_g + unbalance) < 1e-5
+
+
+def test_amplitude_only_uncertainty_from_confidence():
+    unbalance, trial_g = 4.0 * np.exp(1j * math.radians(70)), 3.0
+    angles = (0.0, 120.0, 240.0)
+    amps = [abs(unbalance + trial_g * np.exp(1j * math.radians(a))) for a in angles]
+    doc = four_run_doc(abs(unbalance), trial_g, amps, angles)
+    widths = []
+    for conf in (0.02, 0.2):
+        for run in doc["runs"]:
+            run["readings"]["s"]["confidence"] = conf
+        widths.append(solve(parse_readings(doc)).solution.corrections[0].mass_g_pm)
+    assert 0 < widths[0] < widths[1]

@@ -181,3 +181,75 @@ def test_singular_runs_are_refused():
     doc["runs"][2]["added"] = doc["runs"][1]["added"]   # both trials in the same plane
     with pytest.raises(UserError, match="singular"):
         solve(parse_readings(doc))
+
+
+def test_two_speeds_least_squares_on_sim_rotor():
+    # physics truth: sim rigid rotor (linear) read at two speeds; 4 channels, 2 planes
+    from balance_sim_helpers import readings
+    from trueturn.sim import Mass
+    from trueturn.sim.scenario import load_scenario
+    sc = load_scenario("jointer-head")
+    rotor = sc.rotor
+    rotor.nonlinearity = 0.0
+    planes = [p.name for p in rotor.planes]
+    runs = []
+    for speed in (0.6 * sc.speed_rpm, sc.speed_rpm):
+        for added in ([], [Mass(planes[0], 2.0, 0.0)], [Mass(planes[1], 2.0, 90.0)]):
+            runs.append({"speed_rpm": speed,
+                         "added": [{"plane": m.plane, "mass_g": m.mass_g, "angle_deg": m.angle_deg} for m in added],
+                         "readings": readings(rotor, speed, sc.as_found + added)})
+    doc = {"planes": [{"name": p.name, "radius_mm": p.radius_mm} for p in rotor.planes],
+           "sensors": [{"name": p.name} for p in rotor.pickups], "runs": runs,
+           "weights": {rotor.pickups[0].name: 2.0}}
+    sol = solve(parse_readings(doc)).solution
+    assert len(sol.influence.channels) == 4 and len(sol.predicted_residual) == 4
+    assert reduction(sc, sol.corrections) >= 0.99
+
+
+def test_three_planes_on_a_rigid_rotor_are_refused_as_singular():
+    # physics: a rigid rotor responds only to the resultant force and moment of the
+    # unbalance, so three planes cannot be told apart (rank 2); the engine must say so
+    from balance_sim_helpers import readings
+    from trueturn.sim import CorrectionPlane, Mass, Pickup
+    from trueturn.sim.scenario import load_scenario
+    sc = load_scenario("jointer-head")
+    rotor = sc.rotor
+    rotor.nonlinearity = 0.0
+    rotor.planes.append(CorrectionPlane("middle", 0.0, 30.0))
+    rotor.pickups += [Pickup("h0", 0, 0.0), Pickup("h1", 1, 0.0)]   # 4 pickups >= 3 planes
+    rotor.__post_init__()
+    runs = []
+    for added in ([], *[[Mass(p.name, 2.0, 0.0)] for p in rotor.planes]):
+        runs.append({"added": [{"plane": m.plane, "mass_g": m.mass_g, "angle_deg": m.angle_deg} for m in added],
+                     "readings": readings(rotor, sc.speed_rpm, sc.as_found + added)})
+    doc = {"planes": [{"name": p.name, "radius_mm": p.radius_mm} for p in rotor.planes],
+           "sensors": [{"name": p.name} for p in rotor.pickups], "runs": runs}
+    with pytest.raises(UserError, match="singular"):
+        solve(parse_readings(doc))
+
+
+def test_tolerance_verdict_after_the_correction_run():
+    # ISO 21940-11 verdict through the influence coefficients: after the computed correction
+    # is applied on the (linear) sim rotor, the check run is within G 6.3; before it is not
+    from balance_sim_helpers import readings
+    from trueturn.sim import Mass
+    sc, doc = classic_document("bench-grinder", linear=True)
+    doc["tolerance"] = {"rotor_mass_kg": sc.rotor.mass_kg, "grade": 6.3, "speed_rpm": sc.speed_rpm}
+    first = solve(parse_readings(doc))
+    assert first.verdict is not None and not first.verdict.passed
+    added = [Mass(c.plane, c.mass_g, c.angle_deg) for c in first.solution.corrections]
+    doc["runs"].append({"label": "check", "added": [{"plane": m.plane, "mass_g": m.mass_g,
+                                                      "angle_deg": m.angle_deg} for m in added],
+                        "readings": readings(sc.rotor, sc.speed_rpm, sc.as_found + added)})
+    assert solve(parse_readings(doc)).verdict.passed
+
+
+def test_trial_size_factor():
+    from trueturn.balance.influence import trial_size_factor
+    before = {"a": 10 + 0j, "b": 5j}
+    assert trial_size_factor(before, {"a": 11 + 0j, "b": 5.2j}) == pytest.approx(2.5)
+    assert trial_size_factor(before, {"a": 14 + 0j, "b": 5j}) == 1.0
+    # three confidence radii dominate when the scatter is large (common practice, no source)
+    assert trial_size_factor(before, {"a": 14 + 0j, "b": 5j}, {"a": 4.0}) == pytest.approx(3.0)
+    with pytest.raises(UserError):
+        trial_size_factor(before, dict(before))

@@ -204,6 +204,16 @@ def parse_readings(doc: Any, source: str = "READINGS") -> BalanceInput:
     if not sensors:
         raise UserError(f"{source}: sensors: at least one pickup is needed")
 
+    if doc.get("weights") is not None:
+        at = f"{source}: weights"
+        given = _mapping(doc["weights"], at)
+        names = {s.name for s in sensors}
+        for key in given:
+            if str(key) not in names:
+                raise UserError(f"{at}: unknown sensor '{key}' (sensors: {', '.join(sorted(names))})")
+        sensors = [Sensor(s.name, _number(given[s.name], f"{at}.{s.name}", positive=True))
+                   if s.name in given else s for s in sensors]
+
     plane_names = {p.name for p in planes}
     sensor_names = [s.name for s in sensors]
     runs: list[Run] = []

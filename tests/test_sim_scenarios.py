@@ -154,7 +154,7 @@ def test_record_then_analyze_agrees_with_describe(tmp_path: Path,
     assert main(["record", "--port", "sim://bench-grinder?realtime=0", "--seconds", "5",
                  "-o", str(out), "--quiet", "--json"]) == 0
     summary = json.loads(capsys.readouterr().out)
-    assert summary["seconds"] == pytest.approx(5.0, abs=0.02)
+    assert summary["seconds"] == pytest.approx(5.0, abs=0.06)  # within one 50 ms step
     link = summary["link"]
     assert (link["frames_lost"], link["samples_lost"], link["frames_bad"],
             link["board_resets"]) == (0, 0, 0, 0)

@@ -48,7 +48,7 @@ MAX_BLOCK_SAMPLES = 120
 DEFAULT_RATE_HZ = 4000
 DEFAULT_CHANNELS = 2
 MIN_PERIOD_TICKS = 200  # protocol/SPEC.md 4.8
-STEP_TICKS = 20_000  # 10 ms of simulated time per generation step
+STEP_TICKS = 100_000  # at most 50 ms of simulated time per generation step
 STATUS_PERIOD_TICKS = TICK_HZ
 START_DELAY_TICKS = 200  # first conversion of a stream, after the start command
 STANDSTILL_RAD_S = 0.05  # below this the virtual shaft is taken as stopped
@@ -397,14 +397,15 @@ class VirtualBoard:
 
     def _pickup_phasors_v(self, omega: float) -> np.ndarray:
         """1x volts phasors (project convention) at each channel for the present weights."""
-        key = (round(omega, 3), tuple(self.all_masses()))
+        # The response changes slowly with speed: re-solve when the speed moves by 0.05 rpm.
+        key = (round(omega * 60.0 / TWO_PI / 0.05) * 0.05, tuple(self.all_masses()))
         if self._response_cache is not None and self._response_cache[:2] == key:
             return self._response_cache[2]
         sc = self.scenario
         if omega <= 0:
             volts = np.zeros(len(sc.rotor.pickups), dtype=complex)
         else:
-            resp = sc.rotor.response_1x(omega * 60.0 / TWO_PI, list(key[1]))
+            resp = sc.rotor.response_1x(key[0], list(key[1]))
             volts = np.array([sc.pickup_volts(resp[p.name], i)
                               for i, p in enumerate(sc.rotor.pickups)])
         self._response_cache = (key[0], key[1], volts)

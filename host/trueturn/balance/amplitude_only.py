@@ -89,7 +89,7 @@ def fit_amplitude_only(w: np.ndarray, v: np.ndarray, weights: np.ndarray | None 
     size = float(np.max(np.abs(w))) or 1.0
     starts = _linear_start(w, v)
     starts += [m * size * np.exp(1j * np.radians(a))
-               for m in (0.5, 2.0) for a in range(0, 360, 45)]
+               for m in (0.7,) for a in range(0, 360, 45)]
     fits = []
     for u0 in starts:
         t0 = np.median(v / np.maximum(np.abs(u0 + w), 1e-9 * size)[:, None], axis=0)

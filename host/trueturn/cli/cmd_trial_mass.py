@@ -11,8 +11,8 @@ from trueturn.cli.common import print_json
 def add_parser(sub: argparse._SubParsersAction) -> None:
     parser = sub.add_parser(
         "trial-mass", help="size a trial mass",
-        description="Trial mass whose centrifugal force is about 10 %% of the rotor's weight "
-                    "(common practice), capped at 1 %% of the rotor mass or --max-mass-g.")
+        description="Trial mass whose centrifugal force is about 10 % of the rotor's weight "
+                    "(common practice), capped at 1 % of the rotor mass or --max-mass-g.")
     parser.add_argument("--rotor-mass-kg", type=float, required=True, help="rotor mass, kg")
     parser.add_argument("--radius-mm", type=float, required=True,
                         help="radius at which the trial mass sits, mm")

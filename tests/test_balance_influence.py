@@ -6,6 +6,8 @@ from __future__ import annotations
 import numpy as np
 import pytest
 import scipy.linalg
+from hypothesis import assume, given, settings
+from hypothesis import strategies as st
 
 from balance_sim_helpers import SCENARIOS, classic_document, reduction
 from trueturn.angles import phasor
@@ -253,3 +255,35 @@ def test_trial_size_factor():
     assert trial_size_factor(before, {"a": 14 + 0j, "b": 5j}, {"a": 4.0}) == pytest.approx(3.0)
     with pytest.raises(UserError):
         trial_size_factor(before, dict(before))
+
+
+@settings(max_examples=40, deadline=None)
+@given(seed=st.integers(0, 2**32 - 1), n_planes=st.integers(1, 3), extra=st.integers(0, 2),
+       left_on=st.booleans())
+def test_random_linear_rotors_are_recovered_exactly(seed, n_planes, extra, left_on):
+    # property (linear algebra): for any well-conditioned linear rotor R = R0 + A W, the
+    # classic sequence (trials removed or left on) gives C with A C = -R0 exactly
+    rng = np.random.default_rng(seed)
+    n_sensors = n_planes + extra
+    a = rng.normal(size=(n_sensors, n_planes)) + 1j * rng.normal(size=(n_sensors, n_planes))
+    assume(np.linalg.cond(a) < 50)
+    unbalance = rng.normal(size=n_planes) + 1j * rng.normal(size=n_planes)
+    names = [f"p{j}" for j in range(n_planes)]
+    runs, on = [], []
+    for k in range(n_planes + 1):
+        if k:
+            trial = {"plane": names[k - 1], "mass_g": float(rng.uniform(0.5, 3)),
+                     "angle_deg": float(rng.uniform(0, 360))}
+            on = [*on, trial] if left_on else [trial]
+        w = np.zeros(n_planes, complex)
+        for m in on:
+            w[names.index(m["plane"])] += phasor(m["mass_g"], m["angle_deg"])
+        y = a @ (unbalance + w)
+        runs.append({"added": list(on), "readings": {
+            f"s{i}": {"amp": float(abs(y[i])), "phase_deg": float(np.degrees(np.angle(y[i])))}
+            for i in range(n_sensors)}})
+    doc = {"planes": [{"name": n, "radius_mm": 40} for n in names],
+           "sensors": [{"name": f"s{i}"} for i in range(n_sensors)], "runs": runs}
+    sol = solve(parse_readings(doc)).solution
+    c = np.array([x.vector_g for x in sol.corrections])
+    np.testing.assert_allclose(c, -unbalance, atol=1e-7)

@@ -340,3 +340,43 @@ def test_job_in_a_file_of_the_persons_choosing(tmp_path: Path) -> None:
     ws.close_job(job, path=own)
     assert read_document(own, "job").status == "closed"
     assert ws.load_job(str(own)).runs == [run(1)]
+
+
+# --------------------------------------------------------------------------------------------
+# Our YAML writer against PyYAML's reader (reference library: PyYAML, pure-Python SafeLoader
+# and libyaml CSafeLoader)
+
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+_scalars = (st.none() | st.booleans() | st.integers(-10**12, 10**12)
+            | st.floats(allow_nan=False) | st.text(max_size=30))
+_keys = st.text(min_size=1, max_size=12)
+_documents = st.recursive(
+    _scalars, lambda inner: st.lists(inner, max_size=4) | st.dictionaries(_keys, inner, max_size=4),
+    max_leaves=25)
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.dictionaries(_keys, _documents, min_size=1, max_size=5))
+def test_yaml_writer_reads_back_identically_with_pyyaml(data: dict) -> None:
+    import yaml
+
+    from trueturn.jobs.schema import dump_yaml_text
+
+    text = dump_yaml_text(data, header="a header\nsecond line")
+    assert yaml.load(text, Loader=yaml.SafeLoader) == data  # noqa: S506 - SafeLoader
+    if hasattr(yaml, "CSafeLoader"):
+        assert yaml.load(text, Loader=yaml.CSafeLoader) == data  # noqa: S506
+
+
+def test_yaml_writer_quotes_what_yaml_would_read_as_something_else() -> None:
+    from trueturn.jobs.schema import dump_yaml_text
+
+    tricky = ["yes", "No", "on", "null", "~", "1.5", "2026-11-28", "0x1F", "a: b", "#x", "-x",
+              "x ", " x", "", "3e5", ".inf", "@x", "a\nb", "\u2028", "\x85", "\ufeff"]
+    import yaml
+
+    text = dump_yaml_text({"values": tricky, "map": {t or "empty": t for t in tricky}})
+    assert yaml.safe_load(text) == {"values": tricky, "map": {t or "empty": t for t in tricky}}
+    assert "name: Bench grinder 200 mm" in DEMO_JOB.read_text()  # plain where it is safe

@@ -15,7 +15,9 @@ from __future__ import annotations
 
 import dataclasses
 import datetime as dt
+import json
 import math
+import re
 import types
 import typing
 from collections.abc import Callable
@@ -157,13 +159,20 @@ def _check_limits(value: Any, meta: typing.Mapping[str, Any], ctx: _Context) -> 
             ctx.fail(f"must be at most {meta['maximum']:g}, got {value:g}")
 
 
-_HINTS: dict[type, dict[str, Any]] = {}
+_FIELDS: dict[type, dict[str, tuple[Any, typing.Mapping[str, Any], bool]]] = {}
 
 
-def _hints(cls: type) -> dict[str, Any]:
-    if cls not in _HINTS:
-        _HINTS[cls] = typing.get_type_hints(cls)
-    return _HINTS[cls]
+def _field_table(cls: type) -> dict[str, tuple[Any, typing.Mapping[str, Any], bool]]:
+    """name -> (type hint, metadata, required) for the init fields of ``cls`` (cached)."""
+    table = _FIELDS.get(cls)
+    if table is None:
+        hints = typing.get_type_hints(cls)
+        table = {f.name: (hints[f.name], f.metadata,
+                          f.default is dataclasses.MISSING
+                          and f.default_factory is dataclasses.MISSING)
+                 for f in dataclasses.fields(cls) if f.init}
+        _FIELDS[cls] = table
+    return table
 
 
 def _convert(tp: Any, value: Any, ctx: _Context, meta: typing.Mapping[str, Any]) -> Any:
@@ -229,21 +238,20 @@ def _from_mapping(cls: type, value: Any, ctx: _Context) -> Any:
         ctx.fail(f"must be a mapping of fields, got {_describe(value)}")
     own_line = getattr(value, "line", 0) or ctx.line
     key_lines: dict[Any, int] = getattr(value, "key_lines", {})
-    fields = {f.name: f for f in dataclasses.fields(cls) if f.init}
+    fields = _field_table(cls)
     for key in value:
         if key not in fields:
             known = ", ".join(fields)
             ctx.child(str(key), key_lines.get(key, own_line)).fail(
                 f"unknown field (known fields: {known})")
-    hints = _hints(cls)
     kwargs: dict[str, Any] = {}
-    for name, f in fields.items():
-        child = ctx.child(name, key_lines.get(name, own_line))
+    for name, (hint, meta, required) in fields.items():
         if name not in value:
-            if f.default is dataclasses.MISSING and f.default_factory is dataclasses.MISSING:
-                child.fail("missing field", line=ctx.line or own_line)
+            if required:
+                ctx.child(name, own_line).fail("missing field", line=ctx.line or own_line)
             continue
-        kwargs[name] = _convert(hints[name], value[name], child, f.metadata)
+        kwargs[name] = _convert(hint, value[name], ctx.child(name, key_lines.get(name, own_line)),
+                                meta)
     obj = cls(**kwargs)
     checks = getattr(obj, "_checks", None)
     if checks is not None:
@@ -272,13 +280,92 @@ def to_data(obj: Any) -> Any:
     return obj
 
 
-#: libyaml's emitter when PyYAML has it (about 3x faster, same text), else the Python one.
-_Dumper = getattr(yaml, "CSafeDumper", yaml.SafeDumper)
+# A small block-style YAML writer for the plain data of our documents (dicts with text keys,
+# lists, text, numbers, booleans, None). PyYAML's representer is pure Python and took most of
+# a save; this writer is several times faster and its output is checked against PyYAML's
+# reader (tests/test_jobs_store.py, property test). Text is written plain only when the YAML
+# 1.1 resolver cannot read it as anything but text, else as a JSON string (valid YAML).
+
+_PLAIN = re.compile(r"[A-Za-z][A-Za-z0-9 _.,()/+-]*")
+_YAML11_WORDS = {"yes", "no", "on", "off", "true", "false", "null", "y", "n"}
+
+
+# Characters YAML would not read back literally inside double quotes: the C1 controls and
+# DEL, which PyYAML's reader refuses, and NEL/LS/PS/BOM, which YAML treats as line breaks.
+_ESCAPE = re.compile("[\x7f-\x9f\u2028\u2029\ufeff\ufffe\uffff]")
+
+
+def _quoted(text: str) -> str:
+    """A JSON string is a YAML double-quoted scalar; escape what YAML reads differently."""
+    return _ESCAPE.sub(lambda m: f"\\u{ord(m.group()):04x}", json.dumps(text, ensure_ascii=False))
+
+
+def _scalar(value: Any) -> str:
+    if value is None:
+        return "null"
+    if value is True:
+        return "true"
+    if value is False:
+        return "false"
+    if isinstance(value, int):
+        return str(value)
+    if isinstance(value, float):
+        if math.isnan(value):
+            return ".nan"
+        if math.isinf(value):
+            return ".inf" if value > 0 else "-.inf"
+        text = repr(value)
+        if "." not in text and "e" in text:  # YAML 1.1 floats need a dot: 1e-05 -> 1.0e-05
+            text = text.replace("e", ".0e", 1)
+        return text
+    if isinstance(value, str):
+        if (_PLAIN.fullmatch(value) and not value.endswith(" ")
+                and value.lower() not in _YAML11_WORDS):
+            return value
+        return _quoted(value)
+    raise TypeError(f"cannot write {type(value).__name__} to YAML")
+
+
+def _is_scalar(value: Any) -> bool:
+    return not isinstance(value, (dict, list, tuple))
+
+
+def _emit(value: Any, indent: str, out: list[str]) -> None:
+    """Lines of a mapping or sequence at ``indent`` (sequences indentless, like PyYAML)."""
+    if isinstance(value, dict):
+        for key, item in value.items():
+            head = f"{indent}{_scalar(str(key))}:"
+            if _is_scalar(item):
+                out.append(f"{head} {_scalar(item)}")
+            elif not item:
+                out.append(f"{head} {'{}' if isinstance(item, dict) else '[]'}")
+            elif isinstance(item, (list, tuple)) and all(_is_scalar(v) for v in item):
+                flow = ", ".join(_quoted(v) if isinstance(v, str)
+                                 else _scalar(v) for v in item)
+                out.append(f"{head} [{flow}]")
+            elif isinstance(item, dict):
+                out.append(head)
+                _emit(item, indent + "  ", out)
+            else:
+                out.append(head)
+                _emit(item, indent, out)
+        return
+    for item in value:
+        if _is_scalar(item):
+            out.append(f"{indent}- {_scalar(item)}")
+        elif not item:
+            out.append(f"{indent}- {'{}' if isinstance(item, dict) else '[]'}")
+        else:
+            start = len(out)
+            _emit(item, indent + "  ", out)
+            out[start] = f"{indent}- " + out[start][len(indent) + 2:]
 
 
 def dump_yaml_text(data: Any, header: str = "") -> str:
     """YAML text of plain data (keys in insertion order), with an optional comment header."""
-    body = yaml.dump(data, Dumper=_Dumper, sort_keys=False, allow_unicode=True,
-                     default_flow_style=False, width=100)
-    lines = "".join(f"# {line}\n" if line else "#\n" for line in header.splitlines())
-    return lines + body
+    lines = [f"# {line}" if line else "#" for line in header.splitlines()]
+    if isinstance(data, (dict, list, tuple)) and data:
+        _emit(data, "", lines)
+    else:
+        lines.append(_scalar(data) if _is_scalar(data) else ("{}" if isinstance(data, dict) else "[]"))
+    return "\n".join(lines) + "\n"

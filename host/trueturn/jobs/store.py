@@ -207,11 +207,11 @@ def read_document(path: Path, kind: str) -> Any:
 
 
 def write_document(path: Path, kind: str, obj: Any) -> Path:
-    """Save a document atomically, after checking the text reads back (never write a file
-    that the tool itself would refuse to open)."""
-    text = document_text(kind, obj)
-    parse_document(text, kind, f"{path} (not saved)")
-    return atomic_write_text(path, text)
+    """Save a document atomically, after the same checks loading applies (never write a
+    file that the tool itself would refuse to open)."""
+    data = to_data(obj)
+    from_data(_KIND_CLASS[kind], data, f"{path} (not saved)")  # the same checks as loading
+    return atomic_write_text(path, document_text(kind, obj))
 
 
 # --------------------------------------------------------------------------------------------

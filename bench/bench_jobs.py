@@ -1,0 +1,75 @@
+#!/usr/bin/env python3
+"""Job store figures: how long the save after every run takes, and the report.
+
+A job is saved atomically (temp file, fsync, rename, folder fsync) after every run and every
+hands-on step, while the person waits; it must not be felt. Measured on an invented
+two-plane job grown to 12 and to 40 runs (a long job with several trims): save (including
+the schema checks), load, and HTML report generation, median of repeated runs.
+
+Goals (common practice, no source): a save under 250 ms is not noticed between a run and
+the next instruction on screen; a report under 2 s.
+"""
+
+from __future__ import annotations
+
+import copy
+import statistics
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+
+from common import Row  # noqa: E402
+from trueturn.jobs.report import html_report  # noqa: E402
+from trueturn.jobs.store import Workspace, read_document  # noqa: E402
+
+DEMO_JOB = Path(__file__).resolve().parent.parent / "tests" / "data" / "demo_bench_grinder_job.yaml"
+
+
+def _grown(runs: int):
+    job = read_document(DEMO_JOB, "job")
+    base = job.runs
+    grown = []
+    for k in range(runs):
+        run = copy.deepcopy(base[k % len(base)])
+        run.index = k + 1
+        grown.append(run)
+    job.runs = grown
+    job.verdict = None
+    return job
+
+
+def _median_s(action, repeats: int) -> float:
+    times = []
+    for _ in range(repeats):
+        started = time.perf_counter()
+        action()
+        times.append(time.perf_counter() - started)
+    return statistics.median(times)
+
+
+def rows() -> list[Row]:
+    out: list[Row] = []
+    with tempfile.TemporaryDirectory() as tmp:
+        ws = Workspace(tmp)
+        for runs in (12, 40):
+            job = _grown(runs)
+            path = ws.save_job(job)
+            save_s = _median_s(lambda job=job: ws.save_job(job), 15)
+            load_s = _median_s(lambda path=path: read_document(path, "job"), 15)
+            report_s = _median_s(lambda job=job: html_report(job), 5)
+            size_kb = path.stat().st_size / 1024
+            out.append(Row(f"save job, {runs} runs ({size_kb:.0f} KiB, checks + fsync)",
+                           f"{save_s * 1000:.0f} ms", "< 250 ms", save_s < 0.25))
+            out.append(Row(f"load job, {runs} runs", f"{load_s * 1000:.0f} ms", "-", None))
+            out.append(Row(f"HTML report, {runs} runs", f"{report_s * 1000:.0f} ms", "< 2000 ms",
+                           report_s < 2.0))
+    return out
+
+
+if __name__ == "__main__":
+    from common import format_table
+
+    print(format_table(rows()))

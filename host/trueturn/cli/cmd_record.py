@@ -23,6 +23,7 @@ from trueturn.link.capture import CaptureWriter
 from trueturn.link.codec import Message
 from trueturn.link.ports import open_port
 from trueturn.link.session import BoardError, BoardSession, mismatch_message
+from trueturn.sim.scenario import load_scenario
 
 BOOT_WAIT_S = 2.5  # a Nano's bootloader takes up to ~2 s after the port opens
 STALL_TIMEOUT_S = 3.0  # no samples for this long: the stream is gone
@@ -74,7 +75,13 @@ def _virtual_rig_metadata(port: serial.SerialBase) -> dict[str, Any]:
     """For sim:// and emu:// the scenario is known: store its mains and pickups, so
     ``trueturn analyze`` fits out the right hum and can convert volts to g."""
     rig = getattr(port, "rig", None)
-    scenario = getattr(rig, "scenario", None) or getattr(port, "scenario", None)
+    scenario = getattr(rig, "scenario", None)
+    spec = getattr(port, "spec", None)  # emu:// keeps the signal spec it runs
+    if scenario is None and isinstance(spec, dict) and isinstance(spec.get("scenario"), str):
+        try:
+            scenario = load_scenario(spec["scenario"])
+        except UserError:
+            return {}
     if scenario is None or not hasattr(scenario, "electrical"):
         return {}
     return {

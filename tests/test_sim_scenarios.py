@@ -212,3 +212,27 @@ def test_record_stops_cleanly_when_the_cable_is_pulled(tmp_path: Path,
     assert err.count("\n") == 1 and "lost the board" in err
     metadata, raw = read_capture(out)  # what came before the pull is a valid capture
     assert metadata["identity"]["board_id"] == 2 and len(raw) > 1000
+
+
+def test_record_ctrl_c_keeps_a_complete_file(tmp_path: Path, monkeypatch: pytest.MonkeyPatch,
+                                             capsys: pytest.CaptureFixture[str]) -> None:
+    from trueturn.link.session import BoardSession
+
+    real_read = BoardSession.read
+    calls = {"n": 0}
+
+    def read_then_interrupt(self: BoardSession) -> list:
+        calls["n"] += 1
+        if calls["n"] == 40:
+            raise KeyboardInterrupt
+        return real_read(self)
+
+    monkeypatch.setattr(BoardSession, "read", read_then_interrupt)
+    out = tmp_path / "cut.cap"
+    assert main(["record", "--port", "sim://jointer-head?realtime=0", "--seconds", "60",
+                 "-o", str(out), "--quiet"]) == 130
+    assert "interrupted, kept" in capsys.readouterr().err
+    _, raw = read_capture(out)
+    analysis = analyze_capture(raw, mains_hz=60.0)
+    assert analysis.readings and analysis.readings[0].revolutions > 10
+    assert analysis.link["frames_bad"] == 0  # every frame in the file is whole

@@ -133,7 +133,7 @@ def test_streams_over_10_s_without_loss_and_keeps_the_sample_time_relation() -> 
 
 
 def test_answers_commands_as_the_spec_says() -> None:
-    board = Board("emu://shop-fan?realtime=0")
+    board = Board("emu://shop-fan?realtime=0&noise=0")  # no tach jitter
     try:
         boot = board.wait_for(lambda m: m.name == "identity", "identity at boot")
         assert boot.seq == 0 and boot["tick_hz"] == 2_000_000
@@ -149,11 +149,17 @@ def test_answers_commands_as_the_spec_says() -> None:
         assert reply["error"] == ERR["not_streaming"]
         reply, _ = board.command("configure", {"rate_hz": 3000, "channels": 2, "tach_edge": 1})
         assert reply["error"] == ERR["bad_value"]  # 2e6 / 6000 ticks is not whole
+        rising = board.after(0, "tach")["tick"]  # default edge: rising
         reply, i = board.command("configure", {"rate_hz": 2000, "channels": 1, "tach_edge": 0})
         assert reply["error"] == ERR["ok"]
         cfg = board.after(i, "stream_config")
         assert (cfg["rate_hz"], cfg["channels"], cfg["period_ticks"], cfg["tach_edge"],
                 cfg["start_tick"]) == (2000, 1, 1000, 0, 0)
+        # the falling edge is captured from now on: the harness's tach pulse is 1/36 rev wide
+        first_fall = board.after(i, "tach")
+        falling = board.after(board.messages.index(first_fall), "tach")["tick"]
+        rev_ticks = 2_000_000 * 60 / signal_spec("shop-fan", noise_scale=0)["speed_rpm"]
+        assert (falling - rising) % rev_ticks == pytest.approx(rev_ticks / 36, abs=3)
 
         reply, i = board.command("start")
         assert reply["error"] == ERR["ok"]

@@ -49,18 +49,18 @@ def firmware_paths(firmware_dir: Path = FIRMWARE_DIR) -> tuple[Path, Path]:
 
 
 def ensure_built(firmware_dir: Path = FIRMWARE_DIR) -> tuple[Path, Path]:
-    """Build the ELF and the harness with ``make -C firmware emu`` if either is missing."""
+    """Bring the ELF and the harness up to date with ``make -C firmware emu`` (a no-op when
+    nothing changed); without make or a Makefile, use what is built."""
     elf, harness = firmware_paths(firmware_dir)
-    if elf.is_file() and harness.is_file():
-        return elf, harness
     hint = f"the emulator is not built: run `make -C {firmware_dir} emu`"
-    if not (firmware_dir / "Makefile").is_file() or shutil.which("make") is None:
+    if (firmware_dir / "Makefile").is_file() and shutil.which("make") is not None:
+        done = subprocess.run(["make", "-s", "-C", str(firmware_dir), "emu"],
+                              capture_output=True, text=True, check=False)
+        if done.returncode != 0:
+            last = (done.stderr.strip().splitlines() or ["make failed"])[-1]
+            raise SerialException(f"{hint} ({last})")
+    if not (elf.is_file() and harness.is_file()):
         raise SerialException(hint)
-    done = subprocess.run(["make", "-s", "-C", str(firmware_dir), "emu"],
-                          capture_output=True, text=True, check=False)
-    if done.returncode != 0 or not (elf.is_file() and harness.is_file()):
-        last = (done.stderr.strip().splitlines() or ["make failed"])[-1]
-        raise SerialException(f"{hint} ({last})")
     return elf, harness
 
 

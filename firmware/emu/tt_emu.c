@@ -148,6 +148,14 @@ static struct {
     struct timespec wall_start;
 } E;
 
+static volatile sig_atomic_t g_stop_requested;
+
+static void on_sigterm(int sig)
+{
+    (void)sig;
+    g_stop_requested = 1; /* finish the instruction, flush, write the report, exit */
+}
+
 /* ---------------- small helpers ---------------- */
 
 static uint64_t rng_next(void)
@@ -561,6 +569,8 @@ int main(int argc, char **argv)
     E.uart_fd = dup(1);
     dup2(2, 1);
     signal(SIGPIPE, SIG_IGN);
+    signal(SIGTERM, on_sigterm);
+    signal(SIGINT, on_sigterm);
     fcntl(0, F_SETFL, fcntl(0, F_GETFL) | O_NONBLOCK);
     E.stdin_open = 1;
     clock_gettime(CLOCK_MONOTONIC, &E.wall_start);
@@ -627,7 +637,7 @@ int main(int argc, char **argv)
         int reti = E.in_isr && pc + 1u < E.avr->flashend
                    && (uint16_t)(E.avr->flash[pc] | (E.avr->flash[pc + 1u] << 8)) == OPCODE_RETI;
         int state = avr_run(E.avr);
-        if (state == cpu_Done || state == cpu_Crashed) break;
+        if (state == cpu_Done || state == cpu_Crashed || g_stop_requested) break;
         if (reti) {
             uint64_t spent = E.avr->cycle - E.isr_enter;
             E.in_isr = 0;

@@ -182,11 +182,15 @@ class Serial(SerialBase):
                     proc.stdin.close()
             except OSError:
                 pass
-            try:
-                proc.wait(timeout=5)
+            try:  # with seconds= the board runs on after stdin closes: ask it to stop
+                proc.wait(timeout=0.5)
             except subprocess.TimeoutExpired:
-                proc.kill()
-                proc.wait()
+                proc.terminate()  # the harness writes its report and exits
+                try:
+                    proc.wait(timeout=5)
+                except subprocess.TimeoutExpired:
+                    proc.kill()
+                    proc.wait()
             if self._reader is not None:
                 self._reader.join(timeout=2)
             self._log.close()

@@ -315,6 +315,7 @@ def test_report_finds_a_job_by_id_in_the_workspace(tmp_path: Path,
     out = tmp_path / "r.md"
     assert main(["report", job.job_id, "-o", str(out)]) == 0
     assert out.read_text().startswith("# Balancing report: Bench grinder 200 mm")
+    assert ws.find_job(f"{job.job_id}.yaml") == ws.job_path(job.job_id)  # name as listed
     err = io.StringIO()
     with contextlib.redirect_stderr(err):
         assert main(["report", "no-such-job", "--workspace", str(tmp_path / "ws")]) == 2

@@ -347,9 +347,12 @@ class Workspace:
         """A job file from a path or a job id in this workspace."""
         candidate = Path(ref)
         if candidate.suffix in (".yaml", ".yml") or candidate.exists() or os.sep in str(ref):
-            if not candidate.is_file():
-                raise UserError(f"{candidate}: no such job file")
-            return candidate
+            if candidate.is_file():
+                return candidate
+            in_workspace = self.jobs_dir / candidate.name
+            if candidate.name == str(ref) and in_workspace.is_file():
+                return in_workspace  # a file name as listed in the workspace's jobs folder
+            raise UserError(f"{candidate}: no such job file")
         path = self.job_path(str(ref))
         if not path.is_file():
             raise UserError(f"no job {str(ref)!r} in {self.jobs_dir}")

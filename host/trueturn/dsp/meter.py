@@ -18,6 +18,7 @@ multiplexed ADC is part of that formula.
 
 from __future__ import annotations
 
+import bisect
 import math
 from collections import deque
 from collections.abc import Iterable, Sequence
@@ -27,10 +28,16 @@ from typing import Any, Protocol
 import numpy as np
 
 from trueturn.dsp.averaging import SteadinessLimits, VectorStats, steadiness, vector_stats
-from trueturn.dsp.order import BlockFit, fit_block, solve_orders
+from trueturn.dsp.order import ROW_FIELDS, BlockFit, fit_block, solve_orders
 from trueturn.dsp.shaft import Revolution, TachTracker, extend_tick
 from trueturn.dsp.spectrum import Spectrum, spectrum
-from trueturn.dsp.units import PickupProfile, chain_response, convert_phasor, default_unit
+from trueturn.dsp.units import (
+    PickupProfile,
+    chain_response,
+    conversion_factors,
+    convert_phasor,
+    default_unit,
+)
 
 DEFAULT_TICK_HZ = 2_000_000
 DEFAULT_ADC_BITS = 10
@@ -112,8 +119,6 @@ class _Ring:
         return np.concatenate([self.data[self.pos:], self.data[: self.pos]])
 
 
-_FIT_FIELDS = ("coef_y", "coef_n", "schur_nn", "schur_ny", "resid_yy", "nuisance_energy",
-               "sample_counts")
 
 
 class LiveAnalyzer:
@@ -157,16 +162,14 @@ class LiveAnalyzer:
         self.period_ticks = int(config["period_ticks"]) if config else 0
         self.start_tick = int(config["start_tick"]) if config else 0
         self._next_index: int | None = None
-        self._chunks_ticks: list[list[np.ndarray]] = [[] for _ in range(self.channels)]
-        self._chunks_values: list[list[np.ndarray]] = [[] for _ in range(self.channels)]
+        self._chunks: deque[tuple[int, np.ndarray]] = deque()  # (first index, interleaved)
         self._gaps: deque[tuple[int, int]] = deque(maxlen=64)
         self._pending: list[Revolution] = []
-        self._fits: list[deque[BlockFit]] = [deque() for _ in range(self.channels)]
-        self._fit_rows = [0] * self.channels
-        self._rev_ends: deque[int] = deque(maxlen=self.max_revs)
-        self._rev_periods: deque[int] = deque(maxlen=self.max_revs)
-        self._rings = [_Ring(max(64, int(self.spectrum_seconds * self.rate_hz)))
-                       for _ in range(self.channels)]
+        self._pending_ends: list[int] = []
+        self._rows: list[dict[str, np.ndarray]] = [{} for _ in range(self.channels)]
+        self._rev_periods = np.zeros(0, dtype=np.int64)
+        ring_len = max(64, int(self.spectrum_seconds * self.rate_hz)) * max(self.channels, 1)
+        self._ring = _Ring(ring_len)
         self._latest_tick = self.start_tick
         self.revs_with_gaps = 0
         self.revs_skipped = 0
@@ -185,6 +188,7 @@ class LiveAnalyzer:
                 rev = self.tach.add_edge(tick)
                 if rev is not None:
                     self._pending.append(rev)
+                    self._pending_ends.append(rev.end_tick)
                     return self._ready_count() > 0
             return False
         if name == "stream_config":
@@ -218,80 +222,86 @@ class LiveAnalyzer:
                 return False  # repeated or stale block
             if first > self._next_index:
                 self._gaps.append((self._sample_tick(self._next_index), self._sample_tick(first)))
-                for ring in self._rings:
-                    ring.clear()
+                self._ring.clear()
         values = np.asarray(msg["samples"], dtype=float)
         n = values.size - values.size % ch
+        if n != values.size:
+            values = values[:n]
         self._next_index = first + n
         self.samples_seen += n
-        top = (1 << self.adc_bits) - 1
-        base = self._sample_tick(first)
-        offsets = np.arange(0, n, ch, dtype=np.int64) * self.period_ticks
-        for c in range(ch):
-            v = values[c:n:ch]
-            self._chunks_ticks[c].append(base + c * self.period_ticks + offsets)
-            self._chunks_values[c].append(v)
-            self._rings[c].extend(v)
-        if values.size and (values.min() <= 0 or values.max() >= top):
+        self._chunks.append((first, values))
+        self._ring.extend(values)
+        if n and (values.max() >= (1 << self.adc_bits) - 1 or values.min() <= 0):
+            top = (1 << self.adc_bits) - 1
             self.clipped_samples += int(np.count_nonzero((values <= 0) | (values >= top)))
         self._latest_tick = self._sample_tick(self._next_index)
         ready = self._ready_count()
         if ready >= self.batch_revs:
             self._process()
-        elif not self._pending and self.tach.last_edge_tick is None:
-            self._trim(self._latest_tick - int(2 * self.tick_hz))
-        elif not self._pending and self.tach.last_edge_tick is not None:
-            self._trim(self.tach.last_edge_tick)
+        elif not self._pending:
+            last_edge = self.tach.last_edge_tick
+            self._trim(last_edge if last_edge is not None
+                       else self._latest_tick - int(2 * self.tick_hz))
         return ready > 0
 
     def _ready_count(self) -> int:
-        covered = self._latest_tick if self._next_index is not None else None
-        if covered is None:
+        if self._next_index is None:
             return 0
-        return sum(1 for rev in self._pending if rev.end_tick <= covered)
+        return bisect.bisect_right(self._pending_ends, self._latest_tick)
 
     # ---------------------------------------------------------------- processing
     def _trim(self, keep_from_tick: int) -> None:
-        for c in range(self.channels):
-            ticks, values = self._chunks_ticks[c], self._chunks_values[c]
-            while ticks and ticks[0][-1] < keep_from_tick:
-                ticks.pop(0)
-                values.pop(0)
+        """Drop sample blocks that end before ``keep_from_tick``."""
+        chunks = self._chunks
+        while chunks and self._sample_tick(chunks[0][0] + chunks[0][1].size - 1) < keep_from_tick:
+            chunks.popleft()
+
+    def _channel_samples(self) -> tuple[np.ndarray, np.ndarray]:
+        """(conversion indices, values) of every held sample, oldest first."""
+        firsts = np.array([f for f, _ in self._chunks], dtype=np.int64)
+        sizes = np.array([v.size for _, v in self._chunks], dtype=np.int64)
+        values = np.concatenate([v for _, v in self._chunks])
+        offsets = np.cumsum(sizes) - sizes
+        index = np.repeat(firsts - offsets, sizes) + np.arange(values.size, dtype=np.int64)
+        return index, values
 
     def _process(self) -> None:
-        covered = self._latest_tick
-        ready = [rev for rev in self._pending if rev.end_tick <= covered]
-        if not ready or not self.channels:
+        n_ready = self._ready_count()
+        if not n_ready or not self.channels:
             return
-        self._pending = [rev for rev in self._pending if rev.end_tick > covered]
+        ready = self._pending[:n_ready]
+        del self._pending[:n_ready]
+        del self._pending_ends[:n_ready]
         use = []
         for rev in ready:
             if any(g0 < rev.end_tick and g1 > rev.start_tick for g0, g1 in self._gaps):
                 self.revs_with_gaps += 1
             else:
                 use.append(rev)
-        first_tick = self._sample_tick(0)
-        if self._chunks_ticks[0]:
-            first_tick = int(self._chunks_ticks[0][0][0])
+        first_tick = self._sample_tick(self._chunks[0][0]) if self._chunks else self._latest_tick
         kept = [rev for rev in use if rev.start_tick >= first_tick]
         self.revs_skipped += len(use) - len(kept)
         if kept:
             starts = np.array([r.start_tick for r in kept], dtype=np.int64)
             ends = np.array([r.end_tick for r in kept], dtype=np.int64)
-            for c in range(self.channels):
-                ticks = np.concatenate(self._chunks_ticks[c])
-                values = np.concatenate(self._chunks_values[c])
-                fit = fit_block(ticks, values, starts, ends, self.tick_hz, self.orders,
-                                self._nuisance_hz(), self.start_tick)
-                self._fits[c].append(fit)
-                self._fit_rows[c] += fit.revolutions
-                while self._fits[c] and self._fit_rows[c] - self._fits[c][0].revolutions \
-                        >= self.max_revs:
-                    self._fit_rows[c] -= self._fits[c].popleft().revolutions
-            self._rev_ends.extend(int(e) for e in ends)
-            self._rev_periods.extend(int(e - s) for s, e in zip(starts, ends, strict=True))
-        keep_from = min([rev.start_tick for rev in self._pending]
-                        + [ready[-1].end_tick])
+            index, values = self._channel_samples()
+            ticks = self.start_tick + index * self.period_ticks + self.aperture_ticks
+            ch = self.channels
+            phase = int(index[0] % ch)
+            for c in range(ch):
+                sel = slice((c - phase) % ch, None, ch)
+                fit = fit_block(ticks[sel], values[sel], starts, ends, self.tick_hz,
+                                self.orders, self._nuisance_hz(), self.start_tick)
+                rows = self._rows[c]
+                for name in ROW_FIELDS:
+                    new = getattr(fit, name)
+                    old = rows.get(name)
+                    joined = new if old is None else np.concatenate([old, new])
+                    rows[name] = joined[-self.max_revs:]
+            periods = np.concatenate([self._rev_periods, ends - starts])
+            self._rev_periods = periods[-self.max_revs:]
+        keep_from = min(self._pending[0].start_tick if self._pending else ready[-1].end_tick,
+                        ready[-1].end_tick)
         self._trim(keep_from)
 
     def _nuisance_hz(self) -> tuple[float, ...]:
@@ -338,23 +348,20 @@ class LiveAnalyzer:
         return out
 
     def _stacked(self, channel: int, last: int | None) -> dict[str, np.ndarray]:
-        fits = self._fits[channel]
-        out = {name: np.concatenate([getattr(f, name) for f in fits]) for name in _FIT_FIELDS}
         n = min(last or self.max_revs, self.max_revs)
-        return {k: v[-n:] for k, v in out.items()}
+        return {k: v[-n:] for k, v in self._rows[channel].items()}
 
     def speeds_rpm(self, last: int | None = None) -> np.ndarray:
         """Speed of each averaged revolution (rpm), oldest first."""
-        periods = np.fromiter(self._rev_periods, dtype=float)
         n = min(last or self.max_revs, self.max_revs)
-        return 60.0 * self.tick_hz / periods[-n:]
+        return 60.0 * self.tick_hz / self._rev_periods[-n:].astype(float)
 
     @property
     def speed_rpm(self) -> float:
         """Speed of the last complete revolution, NaN before the first one."""
-        if not self._rev_periods:
+        if not self._rev_periods.size:
             return math.nan
-        return 60.0 * self.tick_hz / self._rev_periods[-1]
+        return 60.0 * self.tick_hz / float(self._rev_periods[-1])
 
     def readings(self, last: int | None = None) -> list[Reading]:
         """One reading per pickup over the last ``last`` (default ``max_revs``) revolutions."""
@@ -362,16 +369,14 @@ class LiveAnalyzer:
         out = []
         stream = tuple(self.stream_warnings())
         for c in range(self.channels):
-            if not self._fits[c]:
+            if not self._rows[c]:
                 continue
             out.append(self._reading(c, last, stream))
         return out
 
     def _reading(self, c: int, last: int | None, stream_warnings: tuple[str, ...]) -> Reading:
         rows = self._stacked(c, last)
-        est = solve_orders(rows["coef_y"], rows["coef_n"], rows["schur_nn"], rows["schur_ny"],
-                           rows["resid_yy"], rows["nuisance_energy"], rows["sample_counts"],
-                           self.orders, self._nuisance_hz())
+        est = solve_orders(BlockFit(self.orders, self._nuisance_hz(), **rows))
         good = np.isfinite(rows["coef_y"]).all(axis=1)
         speeds = self.speeds_rpm(last)[-len(good):][good]
         freqs_hz = speeds / 60.0
@@ -380,8 +385,7 @@ class LiveAnalyzer:
         vpc = self.volts_per_count
         warnings = list(stream_warnings)
         # Per-revolution 1x vectors converted at each revolution's own speed.
-        factors = np.array([convert_phasor(1.0 + 0j, profile, f, unit)[0] for f in freqs_hz])
-        used_unit = convert_phasor(1.0 + 0j, profile, 1.0, unit)[1]
+        factors, used_unit = conversion_factors(profile, freqs_hz, unit)
         if used_unit != unit:
             warnings.append(f"{profile.name}: no sensitivity known, shown in volts")
         k1 = self.orders.index(1)
@@ -416,11 +420,12 @@ class LiveAnalyzer:
         """Welch spectrum (volts, or g for a calibrated pickup) of each pickup's recent samples."""
         out: list[Spectrum | None] = []
         rot_hz = None
-        if self._rev_periods:
+        if self._rev_periods.size:
             recent = self.speeds_rpm()[-max(1, int(self.spectrum_seconds * self.speed_rpm / 60)):]
             rot_hz = float(recent.mean()) / 60.0
+        interleaved = self._ring.values()
         for c in range(self.channels):
-            values = self._rings[c].values()
+            values = interleaved[c::self.channels]
             if values.size < 64:
                 out.append(None)
                 continue

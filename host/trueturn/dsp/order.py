@@ -9,10 +9,13 @@ Model for the samples y(t) of one pickup in revolution r (shaft angle theta(t) f
 
 The per-revolution part is the order-tracked signal; the second part models known
 non-synchronous tones (mains hum at the line frequency and twice it) as nuisance terms
-shared by the whole block, so a hum 10 Hz from 1x at ten times its size does not leak
-into the 1x vector. Everything is solved jointly, in closed form, with the block
-(Frisch-Waugh-Lovell) partition: per-revolution normal equations are stacked and solved
-in one batched call, then the few nuisance coefficients from the summed Schur complements.
+shared by the whole window, so a hum 10 Hz from 1x at ten times its size does not leak
+into the 1x vector. The tone coefficients are estimated over the whole window with the
+synchronous part held common to all its revolutions (so a hum only 1 Hz from 1x, as on an
+induction motor, is still told apart once the window spans a few beats); the
+per-revolution vectors are then the least-squares fit of each revolution with the fitted
+tones removed (Frisch-Waugh-Lovell partition). All of it comes from per-revolution normal
+equations, built and solved in batched calls, and a few small sums.
 Ordinary least squares with white noise is the maximum-likelihood estimator, so the 1x
 phase reaches the Cramér-Rao bound (tests/test_dsp_order.py, bench/bench_dsp.py).
 
@@ -38,13 +41,15 @@ MIN_NUISANCE_KEPT_FRACTION = 0.02
 
 @dataclass(frozen=True)
 class BlockFit:
-    """Per-revolution sufficient statistics of one pickup over a block of revolutions.
+    """Per-revolution sufficient statistics of one pickup (R revolutions, p = 1 + 2 orders
+    revolution columns, q = 2 tones nuisance columns).
 
-    ``coef_y`` (R, p) are the per-revolution coefficients without nuisance terms,
-    ``coef_n`` (R, p, q) the per-revolution fit of each nuisance column; ``schur_nn``
-    (R, q, q) and ``schur_ny`` (R, q) the nuisance normal equations after removing the
-    revolution model; ``resid_yy`` (R,) the residual energy without nuisance terms;
-    ``nuisance_energy`` (R, q) the raw energy of each nuisance column.
+    ``coef_y`` (R, p): per-revolution coefficients without nuisance terms; ``coef_n``
+    (R, p, q): the per-revolution fit of each nuisance column; ``schur_nn`` (R, q, q) and
+    ``schur_ny`` (R, q): nuisance normal equations after removing each revolution's own fit;
+    ``resid_yy`` (R,): residual energy without nuisance terms; ``gram_aa`` (R, p, p),
+    ``gram_an`` (R, p, q), ``gram_nn`` (R, q, q), ``gram_ay`` (R, p), ``gram_ny`` (R, q): the raw
+    normal-equation blocks; ``sample_counts`` (R,).
     """
 
     orders: tuple[int, ...]
@@ -54,12 +59,28 @@ class BlockFit:
     schur_nn: np.ndarray
     schur_ny: np.ndarray
     resid_yy: np.ndarray
-    nuisance_energy: np.ndarray
+    gram_aa: np.ndarray
+    gram_an: np.ndarray
+    gram_nn: np.ndarray
+    gram_ay: np.ndarray
+    gram_ny: np.ndarray
     sample_counts: np.ndarray
 
     @property
     def revolutions(self) -> int:
         return int(self.coef_y.shape[0])
+
+
+ROW_FIELDS = ("coef_y", "coef_n", "schur_nn", "schur_ny", "resid_yy", "gram_aa", "gram_an",
+              "gram_nn", "gram_ay", "gram_ny", "sample_counts")
+
+
+def join_fits(fits: list[BlockFit], last: int | None = None) -> BlockFit:
+    """Stack the revolutions of several blocks (same orders, tones and time origin)."""
+    rows = {name: np.concatenate([getattr(f, name) for f in fits]) for name in ROW_FIELDS}
+    if last is not None:
+        rows = {k: v[-last:] for k, v in rows.items()}
+    return BlockFit(fits[0].orders, fits[0].nuisance_hz, **rows)
 
 
 @dataclass(frozen=True)
@@ -81,22 +102,29 @@ class OrderEstimate:
 
 def revolution_basis(theta_rad: np.ndarray, orders: tuple[int, ...]) -> np.ndarray:
     """Columns ``[1, cos(h theta), sin(h theta) for h in orders]`` (n, 1 + 2 len(orders))."""
-    cols = [np.ones_like(theta_rad)]
-    for h in orders:
-        z = np.exp(1j * h * theta_rad)
-        cols += [z.real, z.imag]
-    return np.stack(cols, axis=1)
+    out = np.empty((theta_rad.shape[0], 1 + 2 * len(orders)))
+    out[:, 0] = 1.0
+    z1 = np.exp(1j * theta_rad)
+    powers = {1: z1}
+    top = max(orders, default=1)
+    if min(orders, default=1) >= 1 and top <= 8:
+        for h in range(2, top + 1):  # exp(i h theta) by repeated products: one exp in all
+            powers[h] = powers[h - 1] * z1
+    for k, h in enumerate(orders):
+        z = powers[h] if h in powers else np.exp(1j * h * theta_rad)
+        out[:, 1 + 2 * k] = z.real
+        out[:, 2 + 2 * k] = z.imag
+    return out
 
 
 def tone_basis(times_s: np.ndarray, tones_hz: tuple[float, ...]) -> np.ndarray:
     """Columns ``[cos(2 pi f t), sin(2 pi f t) for f in tones_hz]`` (n, 2 len(tones_hz))."""
-    cols = []
-    for f in tones_hz:
-        z = np.exp(2j * math.pi * f * times_s)
-        cols += [z.real, z.imag]
-    if not cols:
-        return np.zeros((times_s.shape[0], 0))
-    return np.stack(cols, axis=1)
+    out = np.empty((times_s.shape[0], 2 * len(tones_hz)))
+    for k, f in enumerate(tones_hz):
+        phase = (2.0 * math.pi * f) * times_s
+        out[:, 2 * k] = np.cos(phase)
+        out[:, 2 * k + 1] = np.sin(phase)
+    return out
 
 
 def assign_revolutions(sample_ticks: np.ndarray, starts: np.ndarray,
@@ -155,59 +183,63 @@ def fit_block(sample_ticks: np.ndarray, values: np.ndarray, starts: np.ndarray,
     schur_nn = gram[:, p:p + q, p:p + q] - np.matmul(na, coef_n)
     schur_ny = gram[:, p:p + q, -1] - np.einsum("rqp,rp->rq", na, coef_y)
     resid_yy = gram[:, -1, -1] - np.einsum("rp,rp->r", rhs[:, :, q], coef_y)
-    nuisance_energy = np.diagonal(gram[:, p:p + q, p:p + q], axis1=1, axis2=2).copy()
+    fit = BlockFit(tuple(orders), tuple(nuisance_hz), coef_y, coef_n, schur_nn, schur_ny,
+                   resid_yy, gram[:, :p, :p].copy(), gram[:, :p, p:p + q].copy(),
+                   gram[:, p:p + q, p:p + q].copy(), gram[:, :p, -1].copy(),
+                   gram[:, p:p + q, -1].copy(), counts)
     bad = ~ok
     if bad.any():
-        coef_y[bad] = np.nan
-        coef_n[bad] = 0.0
-        schur_nn[bad] = 0.0
-        schur_ny[bad] = 0.0
-        resid_yy[bad] = 0.0
-        nuisance_energy[bad] = 0.0
-    return BlockFit(tuple(orders), tuple(nuisance_hz), coef_y, coef_n, schur_nn, schur_ny,
-                    resid_yy, nuisance_energy, counts)
+        fit.coef_y[bad] = np.nan
+        for name in ROW_FIELDS[1:-1]:
+            getattr(fit, name)[bad] = 0.0
+    return fit
 
 
-def solve_orders(coef_y: np.ndarray, coef_n: np.ndarray, schur_nn: np.ndarray,
-                 schur_ny: np.ndarray, resid_yy: np.ndarray, nuisance_energy: np.ndarray,
-                 sample_counts: np.ndarray, orders: tuple[int, ...],
-                 nuisance_hz: tuple[float, ...]) -> OrderEstimate:
-    """Per-revolution order phasors with the nuisance tones fitted over all given revolutions.
+def solve_orders(fit: BlockFit) -> OrderEstimate:
+    """Per-revolution order phasors with the nuisance tones fitted over all the revolutions.
 
-    Inputs are :class:`BlockFit` fields stacked over revolutions (any number of blocks with
-    the same ``origin_tick``). Rows with NaN ``coef_y`` are dropped.
+    ``fit`` may be stacked from several blocks (:func:`join_fits`). Revolutions with NaN
+    coefficients (too few samples) are left out. A tone that the window cannot tell apart
+    from the synchronous model (less than 2 % of its energy left after projecting the model
+    out: it sits within about one beat per window of an order) is dropped and reported.
     """
-    good = np.isfinite(coef_y).all(axis=1)
-    coef_y, coef_n = coef_y[good], coef_n[good]
-    schur_nn, schur_ny = schur_nn[good], schur_ny[good]
-    resid_yy, nuisance_energy = resid_yy[good], nuisance_energy[good]
-    sample_counts = sample_counts[good]
+    good = np.isfinite(fit.coef_y).all(axis=1)
+    coef_y, coef_n = fit.coef_y[good], fit.coef_n[good]
+    schur_nn, schur_ny, resid_yy = fit.schur_nn[good], fit.schur_ny[good], fit.resid_yy[good]
+    sample_counts = fit.sample_counts[good]
     q = coef_n.shape[2]
-    keep = np.ones(q, dtype=bool)
-    total_nn = schur_nn.sum(axis=0) if q else np.zeros((0, 0))
-    total_ny = schur_ny.sum(axis=0) if q else np.zeros(0)
-    raw = nuisance_energy.sum(axis=0) if q else np.zeros(0)
-    dropped = []
-    for k, f in enumerate(nuisance_hz):
-        cols = slice(2 * k, 2 * k + 2)
-        kept_fraction = np.diag(total_nn)[cols] / np.maximum(raw[cols], 1e-300)
-        if raw[cols].sum() <= 0 or kept_fraction.min() < MIN_NUISANCE_KEPT_FRACTION:
-            keep[cols] = False
-            dropped.append(f)
+    p = coef_y.shape[1]
     gamma = np.zeros(q)
-    if keep.any():
-        sub_nn = total_nn[np.ix_(keep, keep)]
-        gamma[keep] = np.linalg.lstsq(sub_nn, total_ny[keep], rcond=None)[0]
+    dropped: list[float] = []
+    if q and len(coef_y):
+        # window model: synchronous coefficients common to all revolutions, tones shared
+        aa = fit.gram_aa[good].sum(axis=0)
+        an = fit.gram_an[good].sum(axis=0)
+        nn = fit.gram_nn[good].sum(axis=0)
+        ay = fit.gram_ay[good].sum(axis=0)
+        ny = fit.gram_ny[good].sum(axis=0)
+        w = np.linalg.lstsq(aa, np.concatenate([an, ay[:, None]], axis=1), rcond=None)[0]
+        s_nn = nn - an.T @ w[:, :q]
+        s_ny = ny - an.T @ w[:, q]
+        keep = np.ones(q, dtype=bool)
+        raw = np.diag(nn)
+        for k, f in enumerate(fit.nuisance_hz):
+            cols = slice(2 * k, 2 * k + 2)
+            kept_fraction = np.diag(s_nn)[cols] / np.maximum(raw[cols], 1e-300)
+            if raw[cols].sum() <= 0 or kept_fraction.min() < MIN_NUISANCE_KEPT_FRACTION:
+                keep[cols] = False
+                dropped.append(f)
+        if keep.any():
+            gamma[keep] = np.linalg.lstsq(s_nn[np.ix_(keep, keep)], s_ny[keep], rcond=None)[0]
     beta = coef_y - np.einsum("rpq,q->rp", coef_n, gamma)
     resid = resid_yy - 2 * np.einsum("rq,q->r", schur_ny, gamma) \
         + np.einsum("q,rqk,k->r", gamma, schur_nn, gamma)
-    p = coef_y.shape[1]
-    dof = max(int(sample_counts.sum()) - p * len(beta) - int(keep.sum()), 1)
+    dof = max(int(sample_counts.sum()) - p * len(beta) - int(np.count_nonzero(gamma)), 1)
     noise_rms = math.sqrt(max(float(resid.sum()), 0.0) / dof)
     phasors = beta[:, 1::2] + 1j * beta[:, 2::2]
     nuisance = {f: complex(gamma[2 * k], gamma[2 * k + 1])
-                for k, f in enumerate(nuisance_hz) if f not in dropped}
-    return OrderEstimate(tuple(orders), phasors, beta[:, 0], noise_rms, tuple(dropped), nuisance)
+                for k, f in enumerate(fit.nuisance_hz) if f not in dropped}
+    return OrderEstimate(fit.orders, phasors, beta[:, 0], noise_rms, tuple(dropped), nuisance)
 
 
 def estimate_orders(sample_ticks: np.ndarray, values: np.ndarray, starts: np.ndarray,
@@ -217,5 +249,4 @@ def estimate_orders(sample_ticks: np.ndarray, values: np.ndarray, starts: np.nda
     origin = int(starts[0]) if len(starts) else 0
     fit = fit_block(np.asarray(sample_ticks, dtype=np.int64), np.asarray(values, dtype=float),
                     starts, ends, tick_hz, orders, nuisance_hz, origin)
-    return solve_orders(fit.coef_y, fit.coef_n, fit.schur_nn, fit.schur_ny, fit.resid_yy,
-                        fit.nuisance_energy, fit.sample_counts, fit.orders, fit.nuisance_hz)
+    return solve_orders(fit)

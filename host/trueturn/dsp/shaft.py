@@ -13,6 +13,7 @@ used as a revolution. Both are counted and flagged, never silently averaged in.
 from __future__ import annotations
 
 import math
+import statistics
 from collections import deque
 from dataclasses import dataclass
 
@@ -102,7 +103,7 @@ class TachTracker:
         """Median of the recent good periods, or None while still learning."""
         if not self._periods:
             return None
-        return float(np.median(np.fromiter(self._periods, dtype=float)))
+        return float(statistics.median(self._periods))
 
     @property
     def last_edge_tick(self) -> int | None:

@@ -20,7 +20,9 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Literal
+from typing import Any, Literal
+
+import numpy as np
 
 STANDARD_GRAVITY_M_S2 = 9.80665  # CGPM 1901, exact
 MM_PER_INCH = 25.4
@@ -74,20 +76,19 @@ def counts_to_volts(counts: float, adc_bits: int, reference_mv: float) -> float:
     return counts * (reference_mv / 1000.0) / (1 << adc_bits)
 
 
-def chain_response(profile: PickupProfile, frequency_hz: float) -> complex:
+def chain_response(profile: PickupProfile, frequency_hz: float | np.ndarray) -> Any:
     """Complex gain of the known input chain at ``frequency_hz`` in the phasor convention.
 
     A first-order low-pass with corner fc delays a tone by ``atan(f/fc)`` and scales it by
-    ``1/sqrt(1 + (f/fc)^2)``; a pure delay tau adds ``360 f tau`` degrees of lag. With
-    phase counted as lag, the measured phasor is ``true * chain_response``.
+    ``1/sqrt(1 + (f/fc)^2)``, i.e. its gain is ``1 / (1 - i f/fc)`` with phase counted as
+    lag; a pure delay tau adds ``360 f tau`` degrees of lag. The measured phasor is
+    ``true * chain_response``. Works on a float or an array of frequencies.
     """
-    gain = 1.0 + 0j
+    f = np.asarray(frequency_hz, dtype=float)
+    gain = np.exp(2j * np.pi * f * profile.delay_us * 1e-6)
     for corner in profile.lowpass_corners_hz:
-        ratio = frequency_hz / corner
-        gain *= complex(math.cos(math.atan(ratio)), math.sin(math.atan(ratio))) \
-            / math.sqrt(1.0 + ratio * ratio)
-    lag_rad = 2.0 * math.pi * frequency_hz * profile.delay_us * 1e-6
-    return gain * complex(math.cos(lag_rad), math.sin(lag_rad))
+        gain = gain / (1.0 - 1j * f / corner)
+    return complex(gain) if gain.ndim == 0 else gain
 
 
 def default_unit(profile: PickupProfile) -> str:
@@ -95,30 +96,38 @@ def default_unit(profile: PickupProfile) -> str:
     return "mm/s rms" if profile.calibrated else "V pk"
 
 
-def convert_phasor(volts_phasor: complex, profile: PickupProfile, frequency_hz: float,
-                   unit: str) -> tuple[complex, str]:
-    """A phasor in volts (peak) at ``frequency_hz`` -> (phasor in ``unit``, unit used).
+def conversion_factors(profile: PickupProfile, frequency_hz: float | np.ndarray,
+                       unit: str) -> tuple[Any, str]:
+    """Complex factors taking a volts phasor (peak) at ``frequency_hz`` to ``unit``.
 
-    Compensates the profile's input chain first. An uncalibrated pickup asked for a physical
-    unit gives volts (the returned unit says so); the caller warns.
+    Compensates the profile's input chain. An uncalibrated pickup asked for a physical unit
+    gives volts (the returned unit says so); the caller warns.
     """
     if unit not in UNITS:
         raise ValueError(f"unknown unit {unit!r}; choose one of {', '.join(UNITS)}")
-    true_volts = volts_phasor / chain_response(profile, frequency_hz)
-    quantity, factor = UNITS[unit]
+    f = np.asarray(frequency_hz, dtype=float)
+    factor = 1.0 / np.asarray(chain_response(profile, f))
+    quantity, scale = UNITS[unit]
+    used = unit
     if quantity == "volts" or not profile.calibrated:
-        return true_volts, "V pk"
-    assert profile.sensitivity_v_per_g is not None
-    accel_m_s2 = true_volts / profile.sensitivity_v_per_g * STANDARD_GRAVITY_M_S2
-    omega = 2.0 * math.pi * frequency_hz
-    if quantity == "acceleration":
-        value = accel_m_s2
-    elif quantity == "velocity":
-        value = accel_m_s2 / omega
+        used = "V pk"
     else:
-        value = accel_m_s2 / (omega * omega)
-    shift = math.radians(PHASE_FROM_ACCELERATION_DEG[quantity])
-    return value * factor * complex(math.cos(shift), math.sin(shift)), unit
+        assert profile.sensitivity_v_per_g is not None
+        omega = 2.0 * np.pi * f
+        factor = factor * (STANDARD_GRAVITY_M_S2 / profile.sensitivity_v_per_g) * scale
+        if quantity == "velocity":
+            factor = factor / omega
+        elif quantity == "displacement":
+            factor = factor / (omega * omega)
+        factor = factor * np.exp(1j * np.radians(PHASE_FROM_ACCELERATION_DEG[quantity]))
+    return (complex(factor) if np.ndim(factor) == 0 else factor), used
+
+
+def convert_phasor(volts_phasor: complex, profile: PickupProfile, frequency_hz: float,
+                   unit: str) -> tuple[complex, str]:
+    """A phasor in volts (peak) at ``frequency_hz`` -> (phasor in ``unit``, unit used)."""
+    factor, used = conversion_factors(profile, frequency_hz, unit)
+    return complex(volts_phasor * factor), used
 
 
 def velocity_mm_s_pk(accel_g_pk: float, frequency_hz: float) -> float:

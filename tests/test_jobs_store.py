@@ -381,3 +381,20 @@ def test_yaml_writer_quotes_what_yaml_would_read_as_something_else() -> None:
     text = dump_yaml_text({"values": tricky, "map": {t or "empty": t for t in tricky}})
     assert yaml.safe_load(text) == {"values": tricky, "map": {t or "empty": t for t in tricky}}
     assert "name: Bench grinder 200 mm" in DEMO_JOB.read_text()  # plain where it is safe
+
+
+def test_cli_lists_jobs_and_a_machines_history(tmp_path: Path) -> None:
+    ws = Workspace(tmp_path)
+    first = ws.new_job(shop_fan(), when="2026-11-30T09:00:00Z")
+    ws.append_run(first, run(1))
+    ws.new_job(read_document(DEMO_JOB, "job").machine, when="2026-11-30T10:00:00Z")
+    out = io.StringIO()
+    with contextlib.redirect_stdout(out):
+        assert main(["report", "--list", "--machine", "Shop fan 500",
+                     "--workspace", str(tmp_path)]) == 0
+    lines = out.getvalue().splitlines()
+    assert len(lines) == 1 and lines[0].startswith(first.job_id) and "1 runs" in lines[0]
+    err = io.StringIO()
+    with contextlib.redirect_stderr(err):
+        assert main(["report", "--workspace", str(tmp_path)]) == 2
+    assert err.getvalue().count("\n") == 1

@@ -5,8 +5,12 @@ from __future__ import annotations
 import argparse
 import sys
 from pathlib import Path
+from typing import TYPE_CHECKING
 
 from trueturn.errors import UserError
+
+if TYPE_CHECKING:
+    from trueturn.jobs.store import Workspace
 
 
 def add_parser(sub: argparse._SubParsersAction) -> None:
@@ -16,7 +20,12 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                     "plots, corrections and placed parts, the ISO 21940-11 verdict and the "
                     "safety cautions. The HTML page needs no network and prints on A4 or "
                     "Letter.")
-    parser.add_argument("job", metavar="JOB", help="job file (.yaml) or job id in the workspace")
+    parser.add_argument("job", metavar="JOB", nargs="?",
+                        help="job file (.yaml) or job id in the workspace")
+    parser.add_argument("--list", action="store_true",
+                        help="list the jobs in the workspace (oldest first) instead")
+    parser.add_argument("--machine", metavar="NAME",
+                        help="with --list: only the jobs of this machine (its history)")
     parser.add_argument("-o", "--output", metavar="FILE",
                         help="where to write the report (default: JOB id + .html/.md here; "
                              "'-' for standard output)")
@@ -33,7 +42,12 @@ def run(args: argparse.Namespace) -> int:
     from trueturn.jobs.report import html_report, markdown_report, readings_csv
     from trueturn.jobs.store import Workspace, atomic_write_text
 
-    job = Workspace.open(args.workspace).load_job(args.job)
+    workspace = Workspace.open(args.workspace)
+    if args.list:
+        return _list_jobs(workspace, args.machine)
+    if not args.job:
+        raise UserError("give a job file or job id (or --list to see the jobs)")
+    job = workspace.load_job(args.job)
     fmt = args.format
     if fmt is None:
         fmt = "md" if args.output and Path(args.output).suffix.lower() == ".md" else "html"
@@ -50,4 +64,19 @@ def run(args: argparse.Namespace) -> int:
     if args.csv:
         atomic_write_text(args.csv, readings_csv(job))
         print(f"wrote {args.csv}", file=sys.stderr)
+    return 0
+
+
+def _list_jobs(workspace: Workspace, machine: str | None) -> int:
+    """Print one line per job (the machine's history with ``machine``)."""
+    summaries = workspace.history(machine) if machine else workspace.job_summaries()
+    if not summaries:
+        where = f" for machine {machine!r}" if machine else ""
+        print(f"no jobs{where} in {workspace.jobs_dir}", file=sys.stderr)
+        return 0
+    verdicts = {True: "within grade", False: "over grade", None: "-"}
+    width = max(len(s.job_id) for s in summaries)
+    for s in summaries:
+        print(f"{s.job_id:<{width}}  {s.created}  {s.status:<6}  {s.runs:>2} runs  "
+              f"{verdicts[s.passed]}")
     return 0

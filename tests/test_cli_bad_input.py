@@ -15,12 +15,11 @@ import yaml
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from trueturn.cli.main import build_parser, main
+from trueturn.cli.main import COMMANDS, main
 
 # Commands that open the app or a port run elsewhere (test_ui_*, test_sim_*); not fuzzed here.
 SKIP = {"demo", "ui", "record"}
-FUZZED = [name for name in build_parser()._subparsers._group_actions[0].choices  # noqa: SLF001
-          if name not in SKIP]
+FUZZED = [name for name in COMMANDS if name not in SKIP]
 
 WORDS = st.sampled_from(["--json", "--mass-g", "--angle-deg", "--positions", "--first-deg",
                          "--rotor-mass-kg", "--radius-mm", "--speed-rpm", "--grade",

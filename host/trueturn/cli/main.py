@@ -10,21 +10,23 @@ from collections.abc import Sequence
 from trueturn import __version__
 from trueturn.errors import UserError, one_line
 
-# Subcommand name -> module in trueturn.cli defining ``add_parser(subparsers)`` and ``run(args)``.
-COMMANDS: dict[str, str] = {
-    "demo": "cmd_demo",
-    "ui": "cmd_ui",
-    "ports": "cmd_ports",
-    "record": "cmd_record",
-    "dump": "cmd_dump",
-    "analyze": "cmd_analyze",
-    "solve": "cmd_solve",
-    "grade": "cmd_grade",
-    "split": "cmd_split",
-    "trial-mass": "cmd_trial_mass",
-    "report": "cmd_report",
-    "ring": "cmd_ring",
-    "sim": "cmd_sim",
+# Subcommand name -> (module in trueturn.cli defining ``add_parser(subparsers)``, one-line help).
+# Only the chosen command's module is imported, so `trueturn dump` does not pay for scipy or
+# Textual; the help lines here are what `trueturn --help` lists.
+COMMANDS: dict[str, tuple[str, str]] = {
+    "demo": ("cmd_demo", "open the app on a simulated machine"),
+    "ui": ("cmd_ui", "open the app on a board or a virtual rig"),
+    "ports": ("cmd_ports", "list serial ports and mark likely boards"),
+    "record": ("cmd_record", "record the board's stream to a capture file"),
+    "dump": ("cmd_dump", "print the messages in a capture or frame file as JSON lines"),
+    "analyze": ("cmd_analyze", "phase-locked 1x amplitude and phase from a capture"),
+    "solve": ("cmd_solve", "compute correction masses from balancing runs"),
+    "grade": ("cmd_grade", "ISO 21940-11 permissible residual unbalance"),
+    "split": ("cmd_split", "split a correction onto the rotor's positions"),
+    "trial-mass": ("cmd_trial_mass", "size a trial mass and show its force"),
+    "report": ("cmd_report", "write a job report (HTML with SVG plots)"),
+    "ring": ("cmd_ring", "print a 1:1 angle ring for a rotor"),
+    "sim": ("cmd_sim", "list and describe the simulated machines"),
 }
 
 
@@ -35,7 +37,8 @@ class _Parser(argparse.ArgumentParser):
         self.exit(2, f"{self.prog}: {one_line(message)} (see {self.prog} --help)\n")
 
 
-def build_parser() -> argparse.ArgumentParser:
+def build_parser(only: str | None = None) -> argparse.ArgumentParser:
+    """The full parser, or with ``only`` just that command's real options (others: help line)."""
     parser = _Parser(
         prog="trueturn",
         description="Dynamic balancing of small rotating machines with a low-cost kit.",
@@ -43,14 +46,26 @@ def build_parser() -> argparse.ArgumentParser:
     parser.add_argument("--version", action="version", version=f"trueturn {__version__}")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
     sub.required = True
-    for module_name in COMMANDS.values():
-        module = importlib.import_module(f"trueturn.cli.{module_name}")
-        module.add_parser(sub)
+    for name, (module_name, help_text) in COMMANDS.items():
+        if only is None or only == name:
+            importlib.import_module(f"trueturn.cli.{module_name}").add_parser(sub)
+        else:
+            sub.add_parser(name, help=help_text, add_help=False)
     return parser
 
 
+def _chosen_command(argv: Sequence[str]) -> str | None:
+    """The subcommand named in ``argv`` (first word not starting with '-'), if it is known."""
+    for word in argv:
+        if not word.startswith("-"):
+            return word if word in COMMANDS else None
+    return None
+
+
 def main(argv: Sequence[str] | None = None) -> int:
-    parser = build_parser()
+    argv = list(sys.argv[1:] if argv is None else argv)
+    chosen = _chosen_command(argv)
+    parser = build_parser(only=chosen or "")
     args = parser.parse_args(argv)
     try:
         return int(args.run(args) or 0)

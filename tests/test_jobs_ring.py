@@ -167,3 +167,13 @@ def test_cli_rim_strip(tmp_path: Path) -> None:
         assert main(["ring", "--diameter-mm", "120", "--positions", "8", "--rim",
                      "-o", str(out)]) == 0
     assert ET.parse(out).getroot().get("data-length-mm") == f"{math.pi * 120:.4f}"
+
+
+def test_ring_and_strip_carry_the_standstill_caution() -> None:
+    from trueturn.jobs.ring import CAUTION, strip_svg
+
+    for text in (ring_svg(90.0, 6)[0], strip_svg(90.0, 6)[0]):
+        lines = ["".join(t.itertext()) for t in parse(text).iter(f"{SVG}text")
+                 if "caution" in (t.get("class") or "")]
+        assert lines == list(CAUTION)
+        assert "standstill" in " ".join(lines) and "unplugged" in " ".join(lines)

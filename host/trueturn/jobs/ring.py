@@ -24,6 +24,9 @@ A4_PRINTABLE_MM = (186.0, 273.0)
 LETTER_PRINTABLE_MM = (191.9, 255.4)
 RULER_MM = 100.0
 MARGIN_MM = 8.0
+#: Printed on every ring and strip: the person's hands are on the rotor while using it.
+CAUTION = ("Caution: fit, read and remove the ring only with the rotor stopped (tach shows",
+           "standstill), the machine switched off and unplugged. Take it off before any run.")
 
 
 @dataclass(frozen=True)
@@ -81,7 +84,7 @@ def plan_ring(diameter_mm: float, positions: int, first_deg: float = 0.0,
     band = min(22.0, max(6.0, 0.3 * radius))
     width = max(diameter_mm + 8.0, 150.0) + 2 * MARGIN_MM  # room for outside labels and text
     ring_block = diameter_mm + 2 * 6.0  # room for the reference triangle above
-    height = MARGIN_MM + 7.0 + ring_block + 26.0 + MARGIN_MM
+    height = MARGIN_MM + 7.0 + ring_block + 34.0 + MARGIN_MM
     centre = (width / 2.0, MARGIN_MM + 7.0 + 6.0 + radius)
     step = 360.0 / positions
     angles = tuple(wrap_deg(first_deg + k * step) for k in range(positions))
@@ -148,7 +151,8 @@ def ring_svg(diameter_mm: float, positions: int, first_deg: float = 0.0,
         tx, ty = ring_point(lay, r - band * 0.8 - label_size * 0.9, angle)
         out.append(f'<text x="{tx:.2f}" y="{ty + label_size * 0.35:.2f}" text-anchor="middle" '
                    f'class="pos">{k + 1}</text>')
-        tx, ty = ring_point(lay, r - band * 0.8 - label_size * 2.1, angle)
+        inward = label_size * (2.1 + 1.2 * abs(math.sin(math.radians(angle))))
+        tx, ty = ring_point(lay, r - band * 0.8 - inward, angle)
         out.append(f'<text x="{tx:.2f}" y="{ty + label_size * 0.3:.2f}" text-anchor="middle" '
                    f'class="deg">{angle:g}\u00b0</text>')
     # Reference mark: a filled triangle outside the rim pointing at 0 deg, and a heavy line.
@@ -181,7 +185,7 @@ def ring_svg(diameter_mm: float, positions: int, first_deg: float = 0.0,
                    f'rotation ({rotation})</text>')
     # Ruler box for checking the print scale.
     rx = (lay.width_mm - RULER_MM) / 2.0
-    ry = lay.height_mm - MARGIN_MM - 16.0
+    ry = lay.height_mm - MARGIN_MM - 22.0
     out.append(f'<rect class="ruler" x="{rx:g}" y="{ry:g}" width="{RULER_MM:g}" height="8" '
                'fill="none" stroke="#000" stroke-width="0.25"/>')
     for mm in range(int(RULER_MM) + 1):
@@ -193,8 +197,11 @@ def ring_svg(diameter_mm: float, positions: int, first_deg: float = 0.0,
                        f'class="small">{mm // 10}</text>')
     out.append(f'<text x="{rx:g}" y="{ry + 12:g}" class="small">This box must measure exactly '
                f'{RULER_MM:g} mm (10 cm). Print at 100 % / actual size, not "fit to page".</text>')
+    for i, line in enumerate(CAUTION):
+        out.append(f'<text x="{rx:g}" y="{ry + 15.5 + 3 * i:g}" class="small caution">'
+                   f'{line}</text>')
     if not lay.fits_a4_and_letter:
-        out.append(f'<text x="{rx:g}" y="{ry + 15.5:g}" class="small">Larger than an A4 or '
+        out.append(f'<text x="{rx:g}" y="{ry + 21.5:g}" class="small">Larger than an A4 or '
                    'Letter sheet: print as tiles (poster) at 100 % and tape them together.</text>')
     out.append("</svg>")
     return "\n".join(out) + "\n", lay
@@ -240,7 +247,7 @@ def strip_svg(diameter_mm: float, positions: int, first_deg: float = 0.0,
     width = STRIP_ROW_MM + STRIP_TAB_MM + 2 * MARGIN_MM + 4.0
     row_pitch = STRIP_HEIGHT_MM + 9.0
     top = MARGIN_MM + 10.0
-    height = top + rows * row_pitch + 26.0 + MARGIN_MM
+    height = top + rows * row_pitch + 32.0 + MARGIN_MM
     lay = StripLayout(diameter_mm, positions, lay_ring.first_deg, length, rows, round(width, 3),
                       round(height, 3), lay_ring.position_angles_deg)
     x0 = MARGIN_MM
@@ -302,7 +309,7 @@ def strip_svg(diameter_mm: float, positions: int, first_deg: float = 0.0,
                        f'class="pos">{k + 1}</text>')
         out.append("</g>")
     rx = MARGIN_MM
-    ry = lay.height_mm - MARGIN_MM - 16.0
+    ry = lay.height_mm - MARGIN_MM - 22.0
     out.append(f'<rect class="ruler" x="{rx:g}" y="{ry:g}" width="{RULER_MM:g}" height="8" '
                'fill="none" stroke="#000" stroke-width="0.25"/>')
     for mm in range(int(RULER_MM) + 1):
@@ -314,5 +321,8 @@ def strip_svg(diameter_mm: float, positions: int, first_deg: float = 0.0,
                        f'class="small">{mm // 10}</text>')
     out.append(f'<text x="{rx:g}" y="{ry + 12:g}" class="small">This box must measure exactly '
                f'{RULER_MM:g} mm (10 cm). Print at 100 % / actual size, not "fit to page".</text>')
+    for i, line in enumerate(CAUTION):
+        out.append(f'<text x="{rx:g}" y="{ry + 15.5 + 3 * i:g}" class="small caution">'
+                   f'{line}</text>')
     out.append("</svg>")
     return "\n".join(out) + "\n", lay

@@ -363,11 +363,15 @@ class Workspace:
 
     def append_run(self, job: JobRecord, run: Run,
                    path: str | os.PathLike[str] | None = None) -> Path:
-        """Add a completed run (its pending hands-on work folded in) and save at once."""
+        """Add a completed run (its pending hands-on work folded in) and save at once.
+
+        If the save fails, ``job`` and ``run`` are left as they were.
+        """
         if run.index != job.next_run_index:
             raise ValueError(f"run index {run.index}, expected {job.next_run_index}")
         if job.status != "open":
             raise UserError(f"job {job.job_id} is closed; start a new job to measure again")
+        before = (job.pending, job.updated, run.changes, run.confirmations, run.notes)
         if job.pending is not None:
             run.changes = job.pending.changes + run.changes
             run.confirmations = job.pending.confirmations + run.confirmations
@@ -375,7 +379,12 @@ class Workspace:
                 run.notes = (job.pending.notes + "\n" + run.notes).strip()
             job.pending = None
         job.runs.append(run)
-        return self.save_job(job, path)
+        try:
+            return self.save_job(job, path)
+        except BaseException:
+            job.runs.pop()
+            job.pending, job.updated, run.changes, run.confirmations, run.notes = before
+            raise
 
     def record_pending(self, job: JobRecord, pending: PendingStep,
                        path: str | os.PathLike[str] | None = None) -> Path:

@@ -105,7 +105,7 @@ def test_live_updates_every_revolution_with_bounded_memory() -> None:
     for msg in _messages(raw):
         if meter.feed(msg):
             readings = meter.readings()
-            seen_revs.append(readings[0].revolutions)
+            seen_revs.append(readings[0].revolutions if readings else 0)
         if msg.name == "tach":
             last_edge_tick = msg["tick"]
         # raw samples are held only for the revolution in progress (a few 15 ms blocks)
@@ -143,6 +143,16 @@ def test_rc_filter_phase_is_compensated() -> None:
     assert math.remainder(plain.phase_deg - r.phase_deg, 360) == pytest.approx(
         math.degrees(math.atan(f / 90.0)), abs=1e-6)
     assert r.amplitude == pytest.approx(plain.amplitude * math.sqrt(1 + (f / 90.0) ** 2))
+
+
+def test_updates_every_second_without_tach() -> None:
+    raw, _ = synthesize(SyntheticRun(**{**RUN.__dict__, "duration_s": 3.5,
+                                        "missing_edges": tuple(range(200))}))
+    meter = LiveAnalyzer()
+    updates = sum(meter.feed(m) for m in _messages(raw))
+    assert updates == 3  # one per second of stream time
+    assert meter.readings() == []
+    assert any("tach" in w for w in meter.stream_warnings())
 
 
 def test_no_tach_and_empty_input() -> None:

@@ -171,6 +171,7 @@ class LiveAnalyzer:
         ring_len = max(64, int(self.spectrum_seconds * self.rate_hz)) * max(self.channels, 1)
         self._ring = _Ring(ring_len)
         self._latest_tick = self.start_tick
+        self._last_update_tick = self.start_tick
         self.revs_with_gaps = 0
         self.revs_skipped = 0
         self.clipped_samples = 0
@@ -178,7 +179,12 @@ class LiveAnalyzer:
         self.tach.reset()
 
     def feed(self, msg: MessageLike) -> bool:
-        """Take one decoded message; True when new revolutions are ready to be read."""
+        """Take one decoded message; True when the readings should be refreshed.
+
+        That is when a revolution's samples are complete (about one 15 ms sample block after
+        its closing tach edge at 2 x 4 kSps), and at least once per second of stream time
+        even without revolutions, so a stalled tach or a very slow shaft still shows.
+        """
         name = msg.name
         if name == "samples":
             return self._samples(msg)
@@ -242,7 +248,12 @@ class LiveAnalyzer:
             last_edge = self.tach.last_edge_tick
             self._trim(last_edge if last_edge is not None
                        else self._latest_tick - int(2 * self.tick_hz))
-        return ready > 0
+        # new revolutions, or a second of stream time without any (slow shaft, lost tach):
+        # either way the display should refresh
+        if ready or self._latest_tick - self._last_update_tick >= self.tick_hz:
+            self._last_update_tick = self._latest_tick
+            return True
+        return False
 
     def _ready_count(self) -> int:
         if self._next_index is None:

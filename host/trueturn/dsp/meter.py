@@ -408,8 +408,8 @@ class LiveAnalyzer:
         for f in est.dropped_hz:
             order = round(f / mean_hz) if mean_hz > 0 else 0
             what = f"{order}x" if order in self.orders else "an order"
-            warnings.append(f"{what} sits on the {f:g} Hz mains hum, so hum cannot be "
-                            "removed from it: run a little faster or slower if you can")
+            warnings.append(f"{what} falls on {f:g} Hz, a mains hum frequency: any hum there "
+                            "adds to it (a slightly different speed separates them)")
         harmonics = []
         for k, h in enumerate(self.orders):
             mean_v = complex(est.phasors[:, k].mean()) * vpc if len(est.phasors) else 0j

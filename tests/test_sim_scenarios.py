@@ -140,6 +140,14 @@ def test_sim_list_and_describe_json(capsys: pytest.CaptureFixture[str]) -> None:
         # counts = volts * 1024 / 5 V (ATmega328P datasheet, ADC conversion result)
         assert row["amplitude_counts"] == pytest.approx(row["amplitude_v"] * 1024 / 5, rel=1e-5)
         assert 0 <= row["phase_deg"] < 360
+    lathe = load_scenario("lathe-faceplate")
+    h = lathe.rotor.influence_matrix(1400.0)
+    assert len(desc["influence_1x"]) == h.size
+    for row in desc["influence_1x"]:
+        i = [p.name for p in lathe.rotor.pickups].index(row["pickup"])
+        # volts per gram = (m/s^2 per gram) / 9.80665 m/s^2 per g * V/g
+        want = abs(h[i, 0]) / 9.80665 * lathe.electrical[i].sensitivity_v_per_g
+        assert row["amplitude_v_per_g"] == pytest.approx(want, rel=1e-6)
     assert main(["sim", "describe", "lathe-faceplate", "--rpm", "3000"]) == 2
     assert "outside" in capsys.readouterr().err
     assert main(["sim", "describe", "no-such"]) == 2

@@ -150,4 +150,19 @@ def describe(scenario: Scenario, speed_rpm: float | None = None) -> dict[str, An
         "board": {"tick_hz": TICK_HZ, "adc_bits": 10, "adc_reference_v": ADC_REFERENCE_V,
                   "tach_edge": "rising"},
         "exact_1x": [e.to_json() for e in exact_1x(sc, speed_rpm)],
+        "influence_1x": influence_v_per_g(sc, speed_rpm),
     }
+
+
+def influence_v_per_g(scenario: Scenario, speed_rpm: float | None = None) -> list[dict[str, Any]]:
+    """The linear model's influence coefficients in board units: volts at each pickup per
+    gram at each plane's radius at angle 0 (phase in the project convention)."""
+    sc = scenario
+    h = sc.rotor.influence_matrix(speed_rpm or sc.speed_rpm)
+    out = []
+    for i, p in enumerate(sc.rotor.pickups):
+        for j, plane in enumerate(sc.rotor.planes):
+            amp, phase = amplitude_phase(sc.pickup_volts(complex(h[i, j]), i))
+            out.append({"pickup": p.name, "plane": plane.name,
+                        "amplitude_v_per_g": round(amp, 9), "phase_deg": round(phase, 4)})
+    return out

@@ -110,7 +110,7 @@ def test_live_updates_every_revolution_with_bounded_memory() -> None:
             last_edge_tick = msg["tick"]
         # raw samples are held only for the revolution in progress (a few 15 ms blocks)
         assert len(meter._chunks) <= 5
-        assert all(len(rows.get("coef_y", ())) <= 20 for rows in meter._rows)
+        assert all(len(rows) <= 20 for rows in meter._rows)
     assert last_edge_tick is not None
     # one update per revolution: counts go 1, 2, ... up to the window of 20, then stay
     assert seen_revs[:5] == [1, 2, 3, 4, 5]
@@ -161,3 +161,20 @@ def test_no_tach_and_empty_input() -> None:
     assert not result.readings
     assert any("tach" in w for w in result.warnings)
     assert analyze_capture(b"").warnings[0].startswith("no stream_config")
+
+
+@pytest.mark.parametrize("limit", [5, 300, 1000])
+def test_row_store_keeps_the_last_rows_in_order(limit: int) -> None:
+    from trueturn.dsp.meter import _RowStore
+
+    rng = np.random.default_rng(limit)
+    store, everything = _RowStore(limit), []
+    start = 0
+    for size in rng.integers(1, 90, 40):
+        block = np.arange(start, start + size)
+        store.append({"a": block, "b": np.stack([block, -block], axis=1)})
+        everything.extend(block.tolist())
+        start += size
+        want = everything[-limit:]
+        assert store.last(limit)["a"].tolist() == want
+        assert store.last(3)["b"][:, 1].tolist() == [-x for x in want[-3:]]

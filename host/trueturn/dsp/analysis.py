@@ -18,8 +18,9 @@ from trueturn.dsp.spectrum import SpectrumPeak
 from trueturn.dsp.units import PickupProfile
 from trueturn.link.codec import LinkEvent, StreamDecoder
 
-# Long enough for any capture a person records by hand (about 11 min at 3000 rpm).
-ALL_REVS = 32768
+# The most revolutions one analysis averages (about 2.7 min at 3000 rpm); longer captures
+# use their last ALL_REVS and say so.
+ALL_REVS = 8192
 
 
 @dataclass(frozen=True)
@@ -91,6 +92,8 @@ def analyze_capture(raw: bytes, revs: int | None = None, mains_hz: float | None 
     c = decoder.counters
     if c.frames_bad:
         warnings.append(f"{c.frames_bad} damaged frame(s) skipped (CRC or framing errors)")
+    if revs is None and meter.tach.revolutions > ALL_REVS:
+        warnings.append(f"long capture: the last {ALL_REVS} revolutions are averaged")
     if meter.streams > 1:
         warnings.append(f"{meter.streams} streams in the capture; only the last is analysed")
     if readings:

@@ -121,6 +121,48 @@ class _Ring:
 
 
 
+class _RowStore:
+    """The last ``limit`` rows of several arrays, appended in blocks (amortised O(1) per row)."""
+
+    def __init__(self, limit: int) -> None:
+        self.limit = limit
+        self.count = 0
+        self.arrays: dict[str, np.ndarray] = {}
+
+    def append(self, block: dict[str, np.ndarray]) -> None:
+        new = len(next(iter(block.values())))
+        if new >= self.limit:
+            self.arrays = {k: np.array(v[-self.limit:]) for k, v in block.items()}
+            self.count = self.limit
+            return
+        if not self.arrays:
+            cap = min(self.limit, max(256, 2 * new))
+            self.arrays = {k: np.zeros((cap,) + v.shape[1:], v.dtype) for k, v in block.items()}
+        cap = len(next(iter(self.arrays.values())))
+        if self.count + new > cap:
+            if cap < self.limit:  # grow
+                cap = min(self.limit, max(2 * cap, self.count + new))
+                for k, v in self.arrays.items():
+                    grown = np.zeros((cap,) + v.shape[1:], v.dtype)
+                    grown[: self.count] = v[: self.count]
+                    self.arrays[k] = grown
+            if self.count + new > cap:  # full at the limit: drop the oldest rows
+                drop = self.count + new - cap
+                for v in self.arrays.values():
+                    v[: self.count - drop] = v[drop: self.count]
+                self.count -= drop
+        for k, v in block.items():
+            self.arrays[k][self.count: self.count + new] = v
+        self.count += new
+
+    def last(self, n: int) -> dict[str, np.ndarray]:
+        start = max(0, self.count - n)
+        return {k: v[start: self.count] for k, v in self.arrays.items()}
+
+    def __len__(self) -> int:
+        return self.count
+
+
 class LiveAnalyzer:
     """Streaming order-tracked meter for all pickups of one board.
 
@@ -166,8 +208,8 @@ class LiveAnalyzer:
         self._gaps: deque[tuple[int, int]] = deque(maxlen=64)
         self._pending: list[Revolution] = []
         self._pending_ends: list[int] = []
-        self._rows: list[dict[str, np.ndarray]] = [{} for _ in range(self.channels)]
-        self._rev_periods = np.zeros(0, dtype=np.int64)
+        self._rows = [_RowStore(self.max_revs) for _ in range(self.channels)]
+        self._periods = _RowStore(self.max_revs)
         ring_len = max(64, int(self.spectrum_seconds * self.rate_hz)) * max(self.channels, 1)
         self._ring = _Ring(ring_len)
         self._latest_tick = self.start_tick
@@ -303,14 +345,8 @@ class LiveAnalyzer:
                 sel = slice((c - phase) % ch, None, ch)
                 fit = fit_block(ticks[sel], values[sel], starts, ends, self.tick_hz,
                                 self.orders, self._nuisance_hz(), self.start_tick)
-                rows = self._rows[c]
-                for name in ROW_FIELDS:
-                    new = getattr(fit, name)
-                    old = rows.get(name)
-                    joined = new if old is None else np.concatenate([old, new])
-                    rows[name] = joined[-self.max_revs:]
-            periods = np.concatenate([self._rev_periods, ends - starts])
-            self._rev_periods = periods[-self.max_revs:]
+                self._rows[c].append({name: getattr(fit, name) for name in ROW_FIELDS})
+            self._periods.append({"ticks": ends - starts})
         keep_from = min(self._pending[0].start_tick if self._pending else ready[-1].end_tick,
                         ready[-1].end_tick)
         self._trim(keep_from)
@@ -360,19 +396,21 @@ class LiveAnalyzer:
 
     def _stacked(self, channel: int, last: int | None) -> dict[str, np.ndarray]:
         n = min(last or self.max_revs, self.max_revs)
-        return {k: v[-n:] for k, v in self._rows[channel].items()}
+        return self._rows[channel].last(n)
 
     def speeds_rpm(self, last: int | None = None) -> np.ndarray:
         """Speed of each averaged revolution (rpm), oldest first."""
         n = min(last or self.max_revs, self.max_revs)
-        return 60.0 * self.tick_hz / self._rev_periods[-n:].astype(float)
+        if not len(self._periods):
+            return np.zeros(0)
+        return 60.0 * self.tick_hz / self._periods.last(n)["ticks"].astype(float)
 
     @property
     def speed_rpm(self) -> float:
         """Speed of the last complete revolution, NaN before the first one."""
-        if not self._rev_periods.size:
+        if not len(self._periods):
             return math.nan
-        return 60.0 * self.tick_hz / float(self._rev_periods[-1])
+        return 60.0 * self.tick_hz / float(self._periods.last(1)["ticks"][0])
 
     def readings(self, last: int | None = None) -> list[Reading]:
         """One reading per pickup over the last ``last`` (default ``max_revs``) revolutions."""
@@ -380,7 +418,7 @@ class LiveAnalyzer:
         out = []
         stream = tuple(self.stream_warnings())
         for c in range(self.channels):
-            if not self._rows[c]:
+            if not len(self._rows[c]):
                 continue
             out.append(self._reading(c, last, stream))
         return out
@@ -431,7 +469,7 @@ class LiveAnalyzer:
         """Welch spectrum (volts, or g for a calibrated pickup) of each pickup's recent samples."""
         out: list[Spectrum | None] = []
         rot_hz = None
-        if self._rev_periods.size:
+        if len(self._periods):
             recent = self.speeds_rpm()[-max(1, int(self.spectrum_seconds * self.speed_rpm / 60)):]
             rot_hz = float(recent.mean()) / 60.0
         interleaved = self._ring.values()

@@ -1,0 +1,1 @@
+"""The Textual app: live meter, spectrum, guided balancing procedure, demo mode."""

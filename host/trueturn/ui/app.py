@@ -1,0 +1,596 @@
+"""The trueturn Textual app: connect, live meter, spectrum, and the guided procedure.
+
+Screens: :class:`ConnectScreen` (board identity, refusal of a mismatched firmware),
+:class:`BenchScreen` (three views: meter, spectrum, guide; a status strip always on top),
+:class:`TextPage` (keys, cautions). All blocking I/O runs in a thread worker that pumps
+the :class:`~trueturn.ui.session.LinkSession`; the screen polls a snapshot ten times a second.
+"""
+
+from __future__ import annotations
+
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+
+from textual import work
+from textual.app import App, ComposeResult
+from textual.binding import Binding
+from textual.containers import Container, Vertical
+from textual.screen import Screen
+from textual.widgets import ContentSwitcher, Footer, ProgressBar, Sparkline, Static
+from textual.worker import get_current_worker
+
+from trueturn.jobs.profiles import MachineProfile
+from trueturn.ui.engine import BalanceEngine
+from trueturn.ui.jobfile import JobKeeper
+from trueturn.ui.machine import describe_change, setup_from_profile
+from trueturn.ui.procedure import (
+    GateRefused,
+    Mode,
+    Procedure,
+    SafetyEvent,
+)
+from trueturn.ui.rig import DemoRig
+from trueturn.ui.session import LinkProblem, LinkSession, Snapshot
+from trueturn.ui.texts import CAUTIONS, keys_markup
+from trueturn.ui.widgets import PolarPlot, PolarPoint
+
+TICK_S = 0.1
+STYLES = ("cyan", "magenta", "yellow", "green")
+
+
+@dataclass
+class AppConfig:
+    """How the app was started (from ``trueturn demo`` or ``trueturn ui``)."""
+
+    url: str
+    profile: MachineProfile
+    demo: bool = False
+    workspace: Path | None = None
+    job_file: Path | None = None
+    mode: Mode | None = None
+    standstill_s: float = 3.0
+    revolutions_per_run: int = 30
+    rate_hz: int = 2000
+    extra: dict[str, object] = field(default_factory=dict)
+
+
+class TextPage(Screen):
+    """A full-screen page of text (keys, cautions); Escape goes back."""
+
+    BINDINGS = [Binding("escape", "app.pop_screen", "Back"), Binding("q", "app.pop_screen", "Back")]
+
+    def __init__(self, markup: str, page_id: str) -> None:
+        super().__init__(id=page_id)
+        self.markup = markup
+
+    def compose(self) -> ComposeResult:
+        yield Static(self.markup, classes="page")
+        yield Footer()
+
+
+class ConnectScreen(Screen):
+    """Open the port, show who answered, refuse a mismatched firmware."""
+
+    BINDINGS = [Binding("enter", "go", "Continue"), Binding("q", "app.quit", "Quit"),
+                Binding("c", "app.cautions", "Cautions")]
+
+    def compose(self) -> ComposeResult:
+        yield Static("", id="connect-body")
+        yield Footer()
+
+    def on_mount(self) -> None:
+        app = self.trueturn
+        self.ok = False
+        self.query_one("#connect-body", Static).update(f"Opening {app.config.url} …")
+        self.open_link()
+
+    @property
+    def trueturn(self) -> TrueturnApp:
+        assert isinstance(self.app, TrueturnApp)
+        return self.app
+
+    @work(thread=True, exclusive=True, group="link-open")
+    def open_link(self) -> None:
+        app = self.trueturn
+        try:
+            identity = app.session.open()
+        except LinkProblem as exc:
+            self.app.call_from_thread(self.show_problem, str(exc))
+            return
+        self.app.call_from_thread(self.show_identity)
+        del identity
+
+    def show_problem(self, text: str) -> None:
+        self.query_one("#connect-body", Static).update(
+            f"[b red]Cannot use {self.trueturn.config.url}[/]\n\n{text}\n\nPress q to quit.")
+
+    def show_identity(self) -> None:
+        ident = self.trueturn.session.identity
+        assert ident is not None
+        lines = [f"[b]Connected: {self.trueturn.config.url}[/b]", "",
+                 f"  Board            {ident.board}",
+                 f"  Firmware         {ident.firmware}",
+                 f"  Protocol         v{ident.protocol_version}  (this trueturn: "
+                 f"v{ident.host_protocol_version})",
+                 f"  Definition hash  {ident.definition_hash:08x}  (this trueturn: "
+                 f"{ident.host_definition_hash:08x})",
+                 f"  Clock            {ident.tick_hz / 1e6:g} MHz, {ident.max_channels} channels",
+                 ""]
+        if ident.matches:
+            self.ok = True
+            prof = self.trueturn.config.profile
+            lines += ["[green]Firmware and host speak the same protocol.[/green]", "",
+                      f"Machine: [b]{prof.name}[/b] ({prof.rotor_kind})",
+                      "" if not self.trueturn.config.demo else
+                      "[i]Demo: a simulated rig stands in for the machine; weights you confirm "
+                      "go onto the simulated rotor.[/i]",
+                      "", "Press [b]Enter[/b] to start, [b]c[/b] for the cautions, [b]q[/b] "
+                      "to quit."]
+        else:
+            lines += ["[b red]Refused: " + ident.mismatch_text() + "[/]", "",
+                      "Press q to quit."]
+        self.query_one("#connect-body", Static).update("\n".join(lines))
+
+    def action_go(self) -> None:
+        if self.ok:
+            self.trueturn.start_bench()
+
+
+class BenchScreen(Screen):
+    """Status strip on top, then one of three views: meter, spectrum, guide."""
+
+    BINDINGS = [
+        Binding("m", "view('meter-view')", "Meter"),
+        Binding("s", "view('spectrum-view')", "Spectrum"),
+        Binding("g", "view('guide-view')", "Guide"),
+        Binding("enter", "confirm", "Confirm"),
+        Binding("1", "tick(1)", show=False), Binding("2", "tick(2)", show=False),
+        Binding("3", "tick(3)", show=False), Binding("4", "tick(4)", show=False),
+        Binding("r", "removal", "Add/remove", show=False),
+        Binding("o", "motor(True)", "Motor on", show=False),
+        Binding("x", "motor(False)", "Motor off"),
+        Binding("c", "app.cautions", "Cautions"),
+        Binding("question_mark", "app.keys", "Keys"),
+        Binding("f1", "app.keys", "Keys", show=False),
+        Binding("q", "app.quit", "Quit"),
+    ]
+
+    def compose(self) -> ComposeResult:
+        yield Static("", id="status")
+        with ContentSwitcher(initial="guide-view", id="views"):
+            with Container(id="meter-view"):
+                yield Static("", id="meter-table")
+                yield PolarPlot(id="polar")
+            with Vertical(id="spectrum-view"):
+                yield Sparkline([0.0], id="spark")
+                yield Static("", id="peaks")
+            with Vertical(id="guide-view"):
+                yield Static("", id="guide-body")
+                yield ProgressBar(total=100, show_eta=False, id="progress")
+                yield Static("", id="guide-msg")
+        yield Footer()
+
+    @property
+    def trueturn(self) -> TrueturnApp:
+        assert isinstance(self.app, TrueturnApp)
+        return self.app
+
+    def on_mount(self) -> None:
+        self.set_interval(TICK_S, self.trueturn.tick)
+        self.trueturn.tick()
+
+    def action_view(self, view_id: str) -> None:
+        self.query_one("#views", ContentSwitcher).current = view_id
+        self.trueturn.tick()
+
+    def action_confirm(self) -> None:
+        self.trueturn.confirm()
+
+    def action_tick(self, item: int) -> None:
+        self.trueturn.tick_item(item)
+
+    def action_removal(self) -> None:
+        self.trueturn.toggle_removal()
+
+    def action_motor(self, on: bool) -> None:
+        self.trueturn.motor(on)
+
+
+class TrueturnApp(App):
+    """trueturn: balance a rotor with the kit, guided step by step."""
+
+    TITLE = "trueturn"
+    CSS_PATH = "app.tcss"
+    BINDINGS = [Binding("ctrl+c", "quit", "Quit", show=False)]
+
+    def __init__(self, config: AppConfig) -> None:
+        super().__init__()
+        self.config = config
+        profile = config.profile
+        self.session = LinkSession(
+            config.url, channels=len(profile.pickups), rate_hz=config.rate_hz,
+            standstill_s=config.standstill_s,
+            sensor_names=tuple(p.name for p in profile.pickups), mains_hz=profile.mains_hz,
+            pickups=profile.pickups)
+        self.engine = BalanceEngine(profile)
+        self.rig = DemoRig(self.session) if config.demo else None
+        self.keeper = JobKeeper(profile, workspace=config.workspace, job_file=config.job_file)
+        self.procedure: Procedure | None = None
+        self.ticked: set[int] = set()
+        self.message = ""
+        self.alarm: SafetyEvent | None = None
+        self.snap: Snapshot | None = None
+        self.link_error = ""
+        self.bench: BenchScreen | None = None
+
+    # ---- lifecycle ----------------------------------------------------------------------
+    def on_mount(self) -> None:
+        self.push_screen(ConnectScreen(id="connect"))
+
+    def start_bench(self) -> None:
+        try:
+            self.session.start()
+        except LinkProblem as exc:
+            self.notify(str(exc), severity="error")
+            return
+        self.pump_link()
+        self.bench = BenchScreen(id="bench")
+        self.switch_screen(self.bench)
+        if self.config.mode is not None:
+            self.choose_mode(self.config.mode)
+
+    @work(thread=True, exclusive=True, group="link-pump")
+    def pump_link(self) -> None:
+        worker = get_current_worker()
+        while not worker.is_cancelled:
+            try:
+                handled = self.session.pump()
+            except LinkProblem as exc:
+                self.call_from_thread(self.lost_link, str(exc))
+                return
+            # Sleep a little every time: a fast virtual rig must not starve the screen.
+            time.sleep(0.001 if handled else 0.003)
+
+    def lost_link(self, text: str) -> None:
+        self.link_error = text
+        self.message = f"LINK LOST: {text}. The job is saved up to the last run."
+
+    async def action_quit(self) -> None:
+        self.workers.cancel_group(self, "link-pump")
+        self.session.close()
+        self.exit()
+
+    def action_cautions(self) -> None:
+        self.push_screen(TextPage(CAUTIONS, "cautions"))
+
+    def action_keys(self) -> None:
+        self.push_screen(TextPage(keys_markup(), "keys"))
+
+    # ---- the person's actions -----------------------------------------------------------
+    def choose_mode(self, mode: Mode) -> None:
+        try:
+            setup = setup_from_profile(self.config.profile, mode, self.config.standstill_s,
+                                       self.config.revolutions_per_run)
+            self.procedure = Procedure(setup, self.engine, self.session.watch)
+        except ValueError as exc:
+            self.message = str(exc)
+            return
+        self.keeper.start(self.procedure)
+        self.ticked = set()
+        self.message = ""
+
+    def tick_item(self, item: int) -> None:
+        proc = self.procedure
+        if proc is None:
+            mode = {1: Mode.ONE_PLANE, 2: Mode.TWO_PLANE, 3: Mode.AMPLITUDE_ONLY}.get(item)
+            if mode is not None:
+                self.choose_mode(mode)
+            self.tick()
+            return
+        items = proc.checklist()
+        if 1 <= item <= len(items):
+            self.ticked ^= {item - 1}
+            self.message = ""
+        self.tick()
+
+    def confirm(self) -> None:
+        proc = self.procedure
+        if proc is None:
+            self.message = "Choose the procedure first: 1, 2 or 3."
+            self.tick()
+            return
+        now = self.session.watch.now_s or 0.0
+        step = proc.step
+        try:
+            if step.kind == "hands-on" and step.phase == "lockout":
+                proc.lock_out(self.ticked, now)
+                self.ticked = set()
+                self.message = "Locked out. Do the work now, then tick the list."
+            elif step.kind == "hands-on":
+                changes = proc.hands_on_done(self.ticked, now)
+                if self.rig is not None:
+                    self.rig.apply(changes, proc)
+                self.keeper.hands_on(proc, changes)
+                self.ticked = set()
+                self.message = ""
+            elif step.kind == "run" and step.phase == "arming":
+                proc.arm_run(True, now)
+                self.session.reset_meter()
+                self.alarm = None
+                if self.rig is not None:
+                    self.rig.motor(True)
+                    self.message = "Demo: the virtual motor is starting."
+                else:
+                    self.message = "Switch the machine on now and stand clear."
+            elif step.kind == "run":
+                self.message = "Measuring: wait for the bar to fill (the reading must be steady)."
+            elif step.kind == "correction":
+                proc.accept_correction()
+                self.message = ""
+            elif step.kind == "verdict" and not proc.finished:
+                proc.finish()
+                path = self.keeper.finish(proc)
+                self.message = f"Job closed and saved: {path}"
+            else:
+                self.message = "The job is finished. Press q to quit."
+        except GateRefused as exc:
+            self.message = f"Refused: {exc}"
+        self.tick()
+
+    def toggle_removal(self) -> None:
+        proc = self.procedure
+        if proc is None:
+            return
+        try:
+            proc.set_removal(not proc.removal)
+            self.message = ("Correction as material to remove." if proc.removal
+                            else "Correction as mass to add.")
+        except GateRefused as exc:
+            self.message = f"Refused: {exc}"
+        self.tick()
+
+    def motor(self, on: bool) -> None:
+        if self.rig is None:
+            self.message = "This is a real machine: use its own switch."
+        else:
+            proc = self.procedure
+            if on and proc is not None and (proc.step.kind != "run" or
+                                            proc.step.phase != "running"):
+                self.message = "Refused: start the motor from a run step (confirm the forces)."
+            else:
+                self.rig.motor(on)
+                self.message = "Demo: virtual motor " + ("on." if on else "off, coasting down.")
+        self.tick()
+
+    # ---- the 10 Hz refresh --------------------------------------------------------------
+    def tick(self) -> None:
+        bench = self.bench
+        if bench is None or not bench.is_mounted:
+            return
+        snap = self.session.snapshot()
+        self.snap = snap
+        self._run_logic(snap)
+        bench.query_one("#status", Static).update(self._status_text(snap))
+        current = bench.query_one("#views", ContentSwitcher).current
+        if current == "meter-view":
+            self._draw_meter(bench, snap)
+        elif current == "spectrum-view":
+            self._draw_spectrum(bench, snap)
+        else:
+            self._draw_guide(bench, snap)
+
+    def _run_logic(self, snap: Snapshot) -> None:
+        proc = self.procedure
+        if proc is None or proc.step.kind != "run" or proc.step.phase != "running":
+            return
+        meter = snap.meter
+        now = snap.board_time_s
+        for ev in proc.observe(meter.readings, meter.speed_rpm or 0.0, now):
+            self.alarm = ev
+            self.keeper.event(ev)
+        if proc.ready(meter.readings):
+            run = proc.record(meter.readings, meter.speed_rpm or 0.0, now)
+            self.keeper.run(proc, run)
+            stop = "press x to switch the virtual motor off" if self.rig else \
+                "switch the machine off"
+            self.message = f"Run '{run.label}' recorded and saved: {stop}."
+
+    # ---- drawing ------------------------------------------------------------------------
+    def _status_text(self, snap: Snapshot) -> str:
+        ident = self.session.identity
+        board = f"{ident.board} fw {ident.firmware} · protocol v{ident.protocol_version}" \
+            if ident else "no board"
+        speed = snap.meter.speed_rpm
+        if snap.standstill:
+            motion = f"[green]STANDSTILL[/] ({snap.quiet_s:.0f} s no tach edge)"
+        elif speed:
+            motion = f"[b red]TURNING {speed:.0f} rpm[/]"
+        else:
+            motion = f"[yellow]checking… {snap.quiet_s:.1f} s quiet[/]"
+        c = snap.counters
+        lost = (f"lost: {c.get('samples_lost', 0) + snap.board_samples_dropped} samples, "
+                f"{c.get('frames_lost', 0) + c.get('frames_bad', 0) + snap.board_frames_dropped}"
+                f" frames")
+        demo = " [b]DEMO[/b]" if self.config.demo else ""
+        return f"{self.config.profile.name}{demo} · {board}\n{motion} · {lost}"
+
+    def _draw_meter(self, bench: BenchScreen, snap: Snapshot) -> None:
+        meter = snap.meter
+        lines = [f"[b]Live 1x[/b]   speed {meter.speed_rpm or 0:.0f} rpm", ""]
+        points: list[PolarPoint] = []
+        for i, name in enumerate(meter.sensors):
+            r = meter.readings.get(name)
+            style = STYLES[i % len(STYLES)]
+            tag = chr(ord("A") + i)
+            if r is None:
+                lines += [f"[{style}]{tag} {name}[/]", "  waiting for whole revolutions…", ""]
+                continue
+            ready = "[green]READY[/]" if r.steady else "[yellow]settling[/]"
+            phase = f"{r.phase_deg:5.0f}°" if r.phase_deg is not None else "  —  "
+            lines += [f"[{style}]{tag} {name}[/]  {ready}",
+                      f"  {r.amplitude:8.3f} {r.unit}  phase {phase} ±{r.confidence_deg:.0f}°",
+                      f"  {r.revolutions} rev averaged", ""]
+            if r.phase_deg is not None:
+                points.append(PolarPoint(r.amplitude, r.phase_deg, tag, style))
+        proc = self.procedure
+        if proc is not None:
+            for k, run in enumerate(proc.runs):
+                for i, name in enumerate(meter.sensors):
+                    r = run.readings.get(name)
+                    if r is not None and r.phase_deg is not None:
+                        points.append(PolarPoint(r.amplitude, r.phase_deg, str(k + 1 % 10),
+                                                 STYLES[i % len(STYLES)], current=False))
+        c = snap.counters
+        lines += [f"link: {c.get('frames_bad', 0)} bad frames, {c.get('frames_lost', 0)} lost,",
+                  f"{c.get('samples_lost', 0)} samples lost, board dropped "
+                  f"{snap.board_samples_dropped}"]
+        if meter.warnings:
+            lines.append(f"[yellow]{meter.warnings[-1]}[/]")
+        bench.query_one("#meter-table", Static).update("\n".join(lines))
+        bench.query_one("#polar", PolarPlot).show(points, meter.unit)
+
+    def _draw_spectrum(self, bench: BenchScreen, snap: Snapshot) -> None:
+        meter = snap.meter
+        spark = bench.query_one("#spark", Sparkline)
+        spark.data = list(meter.spectrum_amplitude) or [0.0]
+        top = meter.spectrum_max_hz
+        lines = [f"[b]Spectrum[/b] 0 … {top:.0f} Hz (left to right)", "",
+                 "  freq Hz   amplitude      label"]
+        for hz, amp, label in meter.peaks[:8]:
+            lines.append(f"  {hz:7.1f}   {amp:10.4f}   {label}")
+        if not meter.peaks:
+            lines.append("  (collecting…)")
+        bench.query_one("#peaks", Static).update("\n".join(lines))
+
+    def _draw_guide(self, bench: BenchScreen, snap: Snapshot) -> None:
+        body = bench.query_one("#guide-body", Static)
+        bar = bench.query_one("#progress", ProgressBar)
+        msg = bench.query_one("#guide-msg", Static)
+        proc = self.procedure
+        bar.set_class(False, "shown")
+        if self.alarm is not None and proc is not None and proc.step.kind == "run":
+            msg.set_class(True, "alarm")
+            msg.update(f"{self.alarm.detail} (x stops the demo motor)" if self.rig else
+                       self.alarm.detail)
+        else:
+            msg.set_class(False, "alarm")
+            msg.update(self.message)
+        if proc is None:
+            body.update(self._setup_text())
+            return
+        body.update(self._step_text(proc, snap))
+        if proc.step.kind == "run" and proc.step.phase == "running":
+            bar.set_class(True, "shown")
+            bar.update(progress=100 * proc.progress(snap.meter.readings))
+
+    def _setup_text(self) -> str:
+        prof = self.config.profile
+        planes = ", ".join(f"{p.name} (r {p.radius_mm:g} mm)" for p in prof.planes)
+        return "\n".join([
+            f"[b]Machine[/b] {prof.name}: {prof.rotor_kind}, {prof.rotor_mass_kg:g} kg, "
+            f"max {prof.max_speed_rpm:.0f} rpm",
+            f"  planes: {planes}",
+            f"  pickups: {', '.join(p.name for p in prof.pickups)} · target G {prof.target_grade:g}",
+            "", "[b]Choose the procedure[/b]",
+            "  [b]1[/b]  one plane (narrow rotor: fan, pulley, single wheel)",
+            "  [b]2[/b]  two planes (long rotor or two wheels)",
+            "  [b]3[/b]  amplitude only: four-run method, no phase needed", "",
+            "Every hands-on step waits for tach standstill and your checklist.",
+            "Press [b]c[/b] for the cautions first."])
+
+    def _step_text(self, proc: Procedure, snap: Snapshot) -> str:
+        step = proc.step
+        n = len(proc.runs)
+        head = f"[b]{step.title}[/b]   [dim](runs so far: {n})[/dim]"
+        lines = [head]
+        turning = not snap.standstill
+        if step.kind == "hands-on":
+            for change in step.changes:
+                lines.append("  " + describe_change(change, proc, self.engine))
+            items = proc.checklist()
+            if step.phase == "lockout":
+                if turning:
+                    how = "press [b]x[/b] (demo motor off)" if self.rig else \
+                        "switch the machine off"
+                    lines.append(f"[b red]Rotor not at standstill: {how} and wait "
+                                 f"{proc.setup.standstill_s:.0f} s.[/]")
+                else:
+                    lines.append("[green]Tach confirms standstill.[/green]")
+                lines.append("Before you reach in, tick:")
+            else:
+                lines.append("Do the work now. When it is done, tick:")
+            for i, item in enumerate(items):
+                box = "[x]" if i in self.ticked else "[ ]"
+                lines.append(f"  {box} [b]{i + 1}[/b] {item}")
+            lines.append("[b]Enter[/b]: " + ("locked out, I will work on the rotor"
+                                             if step.phase == "lockout" else
+                                             "done, safe to run"))
+        elif step.kind == "run":
+            if step.phase == "arming":
+                lines.append(f"Planned speed {proc.setup.speed_rpm:.0f} rpm "
+                             f"(max {proc.setup.max_speed_rpm:.0f}). Masses on the rotor:")
+                forces = proc.forces()
+                for m, f in forces:
+                    kind = "remove" if m.removal else m.kind
+                    lines.append(f"  {kind} {abs(m.mass_g):.2f} g on {m.plane} at "
+                                 f"{m.angle_deg:.0f}°: [b]{f:.1f} N[/b] outward")
+                if not forces:
+                    lines.append("  none added")
+                lines += ["Guards on, everyone out of the plane of rotation.",
+                          "[b]Enter[/b]: I confirm these forces; start the run" +
+                          (" (starts the virtual motor)" if self.rig else "")]
+            else:
+                meter = snap.meter
+                lines.append(f"Measuring at {meter.speed_rpm or 0:.0f} rpm; averaging "
+                             f"{proc.setup.revolutions_per_run} steady revolutions.")
+                for name in proc.setup.sensors:
+                    r = meter.readings.get(name)
+                    if r is None:
+                        lines.append(f"  {name}: waiting")
+                        continue
+                    ph = f"{r.phase_deg:.0f}°" if r.phase_deg is not None else "—"
+                    st = "[green]steady[/]" if r.steady else "[yellow]settling[/]"
+                    lines.append(f"  {name}: {r.amplitude:.3f} {r.unit} at {ph} "
+                                 f"±{r.confidence_deg:.0f}°, {r.revolutions} rev, {st}")
+                lines.append("Stop at once on a warning below.")
+        elif step.kind == "correction":
+            sol = proc.solution
+            assert sol is not None
+            lines.append(f"Method: {sol.method}")
+            for c in sol.corrections:
+                verb = "remove" if proc.removal else "add"
+                lines.append(f"  {c.plane}: {verb} [b]{c.mass_g:.2f} g[/b] at {c.angle_deg:.0f}°")
+            lines.append("Parts to place:")
+            for p in sol.parts:
+                lines.append("  " + describe_change_part(p, proc))
+            for w in sol.warnings[:2]:
+                lines.append(f"[yellow]{w}[/]")
+            lines.append("[b]r[/b]: " + ("add mass instead" if proc.removal else
+                                         "remove material instead (drill/grind)") +
+                         "   [b]Enter[/b]: go and place the parts")
+        elif step.kind == "verdict":
+            v = proc.verdict
+            assert v is not None
+            word = "[b green]PASS[/]" if v.passed else "[b red]NOT YET[/]"
+            lines.append(f"{word}: ISO 21940-11, grade G {v.grade_mm_per_s:g} at "
+                         f"{proc.setup.speed_rpm:.0f} rpm, {len(proc.runs)} runs")
+            for plane, res in v.residual_gmm.items():
+                per = v.permissible_gmm.get(plane, float("nan"))
+                lines.append(f"  {plane}: residual {res:.1f} g·mm, permissible {per:.1f} g·mm")
+            if v.note:
+                lines.append(v.note)
+            if proc.finished:
+                lines.append(f"Saved: {self.keeper.path}")
+                if self.keeper.report_path:
+                    lines.append(f"Report: {self.keeper.report_path}")
+            else:
+                lines.append("[b]Enter[/b]: close the job and write the report")
+        return "\n".join(lines)
+
+
+def describe_change_part(p, proc: Procedure) -> str:  # type: ignore[no-untyped-def]
+    """One correction part as a line (position, angle, mass, add or remove)."""
+    where = f"position {p.position + 1} " if p.position is not None else ""
+    verb = "remove" if p.removal else "add"
+    return f"{p.plane}: {verb} {abs(p.mass_g):.2f} g at {where}({p.angle_deg:.0f}°)"

@@ -1,0 +1,133 @@
+"""Adapter: the procedure's questions answered by the balancing engine (``trueturn.balance``).
+
+No arithmetic of balancing here: this module only converts between the procedure's
+records and the engine's input/output dataclasses. Methods used: influence coefficients by
+least squares over all runs, the amplitude-only (four-run) method, trial-mass sizing by the
+10 %-of-rotor-weight rule, splitting onto positions, ISO 21940-11 permissible unbalance.
+"""
+
+from __future__ import annotations
+
+from trueturn.angles import wrap_deg
+from trueturn.balance.iso21940 import angular_speed_rad_s
+from trueturn.balance.readings import BalanceInput, Plane, Reading, Run, Sensor, Tolerance
+from trueturn.balance.readings import PlacedMass as EngineMass
+from trueturn.balance.solve import solve
+from trueturn.balance.splitting import split
+from trueturn.balance.trial_mass import size_trial_mass
+from trueturn.errors import UserError
+from trueturn.jobs.profiles import MachineProfile
+from trueturn.ui.procedure import (
+    Correction,
+    GateRefused,
+    Mode,
+    PlacedMass,
+    PlaneSetup,
+    ProcedureSetup,
+    RunRecord,
+    Solution,
+    TrialSuggestion,
+    Verdict,
+)
+
+
+def _engine_mass(m: PlacedMass) -> EngineMass:
+    """A placed part as the engine sees it: removed material = the same mass added opposite."""
+    if m.removal:
+        return EngineMass(m.plane, abs(m.mass_g), wrap_deg(m.angle_deg + 180.0))
+    return EngineMass(m.plane, m.mass_g, m.angle_deg)
+
+
+class BalanceEngine:
+    """The :class:`trueturn.ui.procedure.Engine` backed by ``trueturn.balance``."""
+
+    def __init__(self, profile: MachineProfile | None = None) -> None:
+        self.profile = profile
+
+    # ---- sizes and forces ---------------------------------------------------------------
+    def trial_mass(self, setup: ProcedureSetup, plane: PlaneSetup) -> TrialSuggestion:
+        t = size_trial_mass(setup.rotor_mass_kg, plane.radius_mm, setup.speed_rpm)
+        mass_g = max(0.1, round(t.mass_g, 1))  # what a kitchen scale can weigh
+        position = 0 if plane.position_angles_deg else None
+        angle = plane.position_angles_deg[0] if plane.position_angles_deg else 0.0
+        force = self.force_n(mass_g, plane.radius_mm, setup.speed_rpm)
+        weight_n = setup.rotor_mass_kg * 9.80665  # standard gravity (CGPM 1901)
+        return TrialSuggestion(plane.name, mass_g, angle, position, force, force / weight_n)
+
+    def force_n(self, mass_g: float, radius_mm: float, speed_rpm: float) -> float:
+        """Centrifugal force F = m r omega^2 (newtons)."""
+        return mass_g / 1000.0 * radius_mm / 1000.0 * angular_speed_rad_s(speed_rpm) ** 2
+
+    # ---- solving ------------------------------------------------------------------------
+    def _input(self, setup: ProcedureSetup, runs: list[RunRecord],
+               with_tolerance: bool) -> BalanceInput:
+        planes = setup.planes[:2] if setup.mode is Mode.TWO_PLANE else setup.planes[:1]
+        phase = setup.mode is not Mode.AMPLITUDE_ONLY
+        engine_runs = []
+        for run in runs:
+            readings = {
+                name: Reading(r.amplitude, r.phase_deg if phase else None, r.confidence_radius)
+                for name, r in run.readings.items()}
+            engine_runs.append(Run(run.label, tuple(_engine_mass(m) for m in run.masses),
+                                   readings, run.speed_rpm))
+        tolerance = None
+        if with_tolerance:
+            tolerance = Tolerance(setup.rotor_mass_kg, setup.grade_mm_per_s, setup.speed_rpm)
+        return BalanceInput(tuple(Plane(p.name, p.radius_mm) for p in planes),
+                            tuple(Sensor(s) for s in setup.sensors), tuple(engine_runs),
+                            tolerance=tolerance)
+
+    def _parts(self, setup: ProcedureSetup, corrections: list[Correction], kind: str,
+               removal: bool) -> tuple[PlacedMass, ...]:
+        parts: list[PlacedMass] = []
+        for c in corrections:
+            plane = next(p for p in setup.planes if p.name == c.plane)
+            angle = wrap_deg(c.angle_deg + 180.0) if removal else c.angle_deg
+            if c.mass_g <= 0:
+                continue
+            if plane.position_angles_deg:
+                try:
+                    pieces = split(c.mass_g, angle, plane.position_angles_deg)
+                except UserError as exc:
+                    raise GateRefused(f"plane {plane.name}: {exc}") from None
+                for piece in pieces:
+                    if piece.mass_g >= 0.005:
+                        parts.append(PlacedMass(c.plane, round(piece.mass_g, 2), piece.angle_deg,
+                                                piece.position, kind, removal))  # type: ignore[arg-type]
+            else:
+                parts.append(PlacedMass(c.plane, round(c.mass_g, 2), angle, None, kind,  # type: ignore[arg-type]
+                                        removal))
+        return tuple(parts)
+
+    def _solution(self, setup: ProcedureSetup, sol, corrections, kind: str,  # type: ignore[no-untyped-def]
+                  removal: bool) -> Solution:
+        corr = [Correction(c.plane, c.mass_g, c.angle_deg) for c in corrections]
+        return Solution(tuple(corr), self._parts(setup, corr, kind, removal), sol.method,
+                        tuple(sol.warnings), sol.influence)
+
+    def solve(self, setup: ProcedureSetup, runs: list[RunRecord], removal: bool) -> Solution:
+        try:
+            report = solve(self._input(setup, runs, with_tolerance=False))
+        except UserError as exc:
+            raise GateRefused(str(exc)) from None
+        sol = report.solution
+        return self._solution(setup, sol, sol.corrections, "correction", removal)
+
+    def assess(self, setup: ProcedureSetup, runs: list[RunRecord],
+               removal: bool) -> tuple[Verdict, Solution]:
+        """Refit over every run so far; verdict on the last run; trim still needed."""
+        try:
+            report = solve(self._input(setup, runs, with_tolerance=True))
+        except UserError as exc:
+            raise GateRefused(str(exc)) from None
+        sol = report.solution
+        v = report.verdict
+        assert v is not None
+        names = [c.plane for c in sol.corrections]
+        verdict = Verdict(v.passed, setup.grade_mm_per_s,
+                          dict(zip(names, v.residual_gmm, strict=True)),
+                          dict(zip(names, v.permissible_gmm, strict=True)),
+                          note=f"permissible U_per {report.u_per_gmm:.1f} g·mm "
+                               f"(ISO 21940-11: e_per = G/omega, U_per = e_per * m)")
+        trim = self._solution(setup, sol, sol.corrections_keeping_current, "trim", removal)
+        return verdict, trim

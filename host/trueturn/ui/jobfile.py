@@ -1,0 +1,141 @@
+"""Adapter: keep the procedure's record in a job file (``trueturn.jobs``), saved atomically
+after every hands-on step and every run, closed with the verdict and an HTML report."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from trueturn.jobs import records as rec
+from trueturn.jobs.profiles import MachineProfile
+from trueturn.jobs.report import html_report
+from trueturn.jobs.store import Workspace, atomic_write_text, write_document
+from trueturn.ui.procedure import MassChange, Mode, Procedure, RunRecord, SafetyEvent
+
+# The meter's unit names -> the job file's unit names (amplitudes are stored as measured).
+UNIT_TO_JOB = {"mm/s rms": "mm/s", "mm/s pk": "mm/s", "in/s pk": "in/s", "um pk-pk": "um",
+               "mil pk-pk": "mil", "m/s2 pk": "m/s2", "g pk": "g"}
+
+
+def _job_unit(unit: str) -> str:
+    return UNIT_TO_JOB.get(unit, unit)
+
+
+class JobKeeper:
+    """One job per procedure: created at the start, updated after every step."""
+
+    def __init__(self, profile: MachineProfile, workspace: Path | None = None,
+                 job_file: Path | None = None) -> None:
+        self.profile = profile
+        self.workspace = Workspace.open(workspace)
+        self.job_file = job_file
+        self.job: rec.JobRecord | None = None
+        self.path: Path | None = None
+        self.report_path: Path | None = None
+        self._confirmed = 0
+
+    def _save(self) -> None:
+        assert self.job is not None
+        if self.job_file is not None:
+            self.job.updated = rec.now_iso()
+            self.path = write_document(self.job_file, "job", self.job)
+        else:
+            self.path = self.workspace.save_job(self.job)
+
+    def start(self, proc: Procedure) -> None:
+        method = {Mode.TWO_PLANE: "two-plane"}.get(proc.setup.mode, "single-plane")
+        created = rec.now_iso()
+        if self.job_file is None:
+            self.workspace.save_machine(self.profile)
+            self.job = self.workspace.new_job(self.profile, method=method,
+                                              speed_rpm=proc.setup.speed_rpm)
+        else:
+            self.job = rec.JobRecord(job_id=self.job_file.stem, machine=self.profile,
+                                     created=created, updated=created,
+                                     method=method,  # type: ignore[arg-type]
+                                     speed_rpm=proc.setup.speed_rpm)
+        if proc.setup.mode is Mode.AMPLITUDE_ONLY:
+            self.job.notes = "amplitude-only procedure (four-run method)"
+        self._confirmed = 0
+        self._save()
+
+    def _new_confirmations(self, proc: Procedure) -> list[rec.Confirmation]:
+        out = [rec.Confirmation(rec.now_iso(), text, standstill_by_tach=True, tach_rpm=0.0,
+                                text=f"board time {t:.1f} s")
+               for t, text in proc.confirmations[self._confirmed:]]
+        self._confirmed = len(proc.confirmations)
+        return out
+
+    def hands_on(self, proc: Procedure, changes: tuple[MassChange, ...]) -> None:
+        """Keep the confirmed hands-on work as pending (a crash does not forget a weight)."""
+        if self.job is None:
+            return
+        pending = self.job.pending or rec.PendingStep()
+        for change in changes:
+            m = change.mass
+            if m is None or change.action == "mount-pickups":
+                continue
+            action = "attach" if change.action == "attach" else "remove"
+            pending.changes.append(rec.MassChange(
+                action, m.plane, abs(m.mass_g), m.angle_deg, purpose=m.kind,
+                position=None if m.position is None else m.position + 1,
+                radius_mm=proc.plane(m.plane).radius_mm,
+                part="drilled out" if m.removal else "", time=rec.now_iso()))
+        pending.confirmations += self._new_confirmations(proc)
+        self.job.pending = pending
+        self._save()
+
+    def event(self, event: SafetyEvent) -> None:
+        """Events are stored with their run; nothing to write until the run ends."""
+        del event
+
+    def run(self, proc: Procedure, run: RunRecord) -> None:
+        if self.job is None:
+            return
+        kind = "initial" if len(proc.runs) == 1 else (
+            "trial" if run.label.startswith("trial") else "check")
+        readings = [rec.Reading(r.sensor, r.amplitude, _job_unit(r.unit),  # type: ignore[arg-type]
+                                (r.phase_deg or 0.0) % 360.0, min(180.0, r.confidence_deg),
+                                r.revolutions, r.speed_rpm)
+                    for r in run.readings.values()]
+        corrections = []
+        if proc.step.kind == "correction" and proc.solution is not None:
+            for c in proc.solution.corrections:
+                parts = [rec.SplitPart(p.position + 1, p.angle_deg, abs(p.mass_g))
+                         for p in proc.solution.parts
+                         if p.plane == c.plane and p.position is not None]
+                corrections.append(rec.Correction(
+                    c.plane, c.mass_g, c.angle_deg, "remove" if proc.removal else "add",
+                    proc.plane(c.plane).radius_mm, parts))
+        events = [rec.Event(rec.now_iso(), e.kind, e.detail) for e in run.events]
+        record = rec.Run(index=self.job.next_run_index, kind=kind,  # type: ignore[arg-type]
+                         time=rec.now_iso(), speed_rpm=run.speed_rpm, readings=readings,
+                         label=run.label, confirmations=self._new_confirmations(proc),
+                         corrections=corrections, events=events,
+                         notes="; ".join(run.force_confirmed))
+        if self.job_file is None:
+            self.workspace.append_run(self.job, record)
+        else:
+            if self.job.pending is not None:
+                record.changes = self.job.pending.changes + record.changes
+                record.confirmations = self.job.pending.confirmations + record.confirmations
+                self.job.pending = None
+            self.job.runs.append(record)
+        self._save()
+
+    def finish(self, proc: Procedure) -> Path | None:
+        """Close the job with the verdict and write the HTML report beside it."""
+        if self.job is None:
+            return None
+        v = proc.verdict
+        if v is not None:
+            planes = [rec.PlaneVerdict(name, res, v.permissible_gmm[name],
+                                       res <= v.permissible_gmm[name])
+                      for name, res in v.residual_gmm.items()]
+            self.job.verdict = rec.Verdict(v.grade_mm_per_s, proc.setup.speed_rpm,
+                                           len(self.job.runs), planes, v.passed, note=v.note)
+        self.job.status = "closed"
+        self._save()
+        assert self.path is not None
+        self.report_path = self.path.with_suffix(".html")
+        atomic_write_text(self.report_path, html_report(self.job))
+        return self.path

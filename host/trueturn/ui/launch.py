@@ -1,0 +1,74 @@
+"""Starting the app from the command line: choose the port and the machine profile."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from trueturn.errors import UserError
+from trueturn.jobs.profiles import MachineProfile
+from trueturn.jobs.store import Workspace, read_document
+from trueturn.link.ports import list_board_ports
+from trueturn.ui.app import AppConfig, TrueturnApp
+
+
+def scenario_profile(name: str) -> MachineProfile:
+    """The machine profile of a simulated rig's scenario."""
+    from trueturn.sim.scenario import load_scenario
+    from trueturn.ui.machine import profile_from_scenario
+
+    return profile_from_scenario(load_scenario(name))
+
+
+def _run(config: AppConfig) -> int:
+    TrueturnApp(config).run()
+    return 0
+
+
+def launch_sim(scenario: str, workspace: str | Path | None = None, pace: float = 1.0,
+               demo: bool = True) -> int:
+    """The app on ``sim://SCENARIO`` with the motor off at power-up."""
+    if not pace > 0:
+        raise UserError(f"--pace must be greater than 0, got {pace:g}")
+    profile = scenario_profile(scenario)
+    url = f"sim://{scenario}?motor=off" + (f"&pace={pace:g}" if pace != 1.0 else "")
+    return _run(AppConfig(url, profile, demo=demo,
+                          workspace=Path(workspace) if workspace else None))
+
+
+def _scheme(url: str) -> str | None:
+    return url.split("://", 1)[0] if "://" in url else None
+
+
+def choose_profile(port: str, job: str | None, machine: str | None,
+                   workspace: str | None) -> MachineProfile:
+    """The machine: from --job (if it exists), --machine, the scenario, or the only one saved."""
+    ws = Workspace.open(workspace)
+    if job is not None and Path(job).is_file():
+        return read_document(Path(job), "job").machine
+    if machine is not None:
+        return ws.load_machine(machine)
+    if _scheme(port) in ("sim", "emu"):
+        return scenario_profile(port.split("://", 1)[1].split("?", 1)[0])
+    names = ws.machine_names() if ws.machines_dir.is_dir() else []
+    if len(names) == 1:
+        return ws.load_machine(names[0])
+    if not names:
+        raise UserError(f"no machine profile in {ws.machines_dir}: save one there first "
+                        "(copy and edit a demo machine file) or give --job FILE")
+    raise UserError(f"several machines saved ({', '.join(names)}): choose one with --machine")
+
+
+def launch_port(port: str | None, job: str | None = None, machine: str | None = None,
+                workspace: str | None = None) -> int:
+    """The app on a real board (auto-detected when ``port`` is None) or a virtual rig."""
+    if port is None:
+        found = [p for p in list_board_ports() if p.likely_board]
+        if not found:
+            raise UserError("no board found on any USB serial port: plug it in, or give "
+                            "--port (try: trueturn ports), or try: trueturn demo")
+        port = found[0].device
+    profile = choose_profile(port, job, machine, workspace)
+    scheme = _scheme(port)
+    return _run(AppConfig(port, profile, demo=scheme == "sim",
+                          workspace=Path(workspace) if workspace else None,
+                          job_file=Path(job) if job else None))

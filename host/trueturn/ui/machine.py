@@ -1,0 +1,77 @@
+"""Adapter: machine profiles (``trueturn.jobs``) to the procedure's set-up, demo profiles from
+the simulated scenarios (``trueturn.sim``), and one-line descriptions of hands-on actions."""
+
+from __future__ import annotations
+
+from typing import TYPE_CHECKING
+
+from trueturn.jobs.profiles import MachineProfile, Pickup, Plane, PlaneLayout
+from trueturn.ui.procedure import MassChange, Mode, PlaneSetup, Procedure, ProcedureSetup
+
+if TYPE_CHECKING:
+    from trueturn.sim.scenario import Scenario
+    from trueturn.ui.engine import BalanceEngine
+
+DEMO_GRADE_MM_S = 6.3  # ISO 21940-11 grade G 6.3: fans, general machinery (demo target)
+
+
+def profile_from_scenario(scenario: Scenario) -> MachineProfile:
+    """A machine profile for a simulated rig (its numbers are the scenario's, invented)."""
+    motor = scenario.motor
+    speed = scenario.speed_rpm
+    if motor.speed_range_rpm is not None:
+        low, high = motor.speed_range_rpm
+    else:
+        low, high = speed * 0.97, speed * 1.01
+    planes = []
+    for cp in scenario.rotor.planes:
+        layout = scenario.layouts.get(cp.name)
+        if layout is not None and layout.positions:
+            plane_layout = PlaneLayout("equal", layout.positions, layout.first_position_deg)
+        else:
+            plane_layout = PlaneLayout()
+        planes.append(Plane(cp.name, cp.radius_mm, cp.axial_mm, plane_layout))
+    pickups = [Pickup(p.name, e.sensitivity_v_per_g * 1000.0, e.zero_g_v * 1000.0,
+                      direction="vertical" if abs(p.direction_deg - 90.0) < 1 else "horizontal")
+               for p, e in zip(scenario.rotor.pickups, scenario.electrical, strict=False)]
+    return MachineProfile(
+        name=f"{scenario.name} (demo)", rotor_kind=scenario.title,
+        rotor_mass_kg=scenario.rotor.mass_kg, speed_min_rpm=round(low, 1),
+        speed_max_rpm=round(high, 1), max_speed_rpm=round(high * 1.08, 1), rotation="cw",
+        planes=planes, pickups=pickups, mains_hz=int(motor.mains_hz),  # type: ignore[arg-type]
+        target_grade=DEMO_GRADE_MM_S,
+        notes="Simulated rig for the demo; all numbers are invented.")
+
+
+def setup_from_profile(profile: MachineProfile, mode: Mode, standstill_s: float = 3.0,
+                       revolutions_per_run: int = 30) -> ProcedureSetup:
+    """The procedure's view of a machine profile; the planned speed is the top service speed."""
+    planes = tuple(PlaneSetup(p.name, p.radius_mm, tuple(p.layout.position_angles_deg()))
+                   for p in profile.planes)
+    return ProcedureSetup(
+        machine=profile.name, mode=mode, planes=planes,
+        sensors=tuple(p.name for p in profile.pickups), rotor_mass_kg=profile.rotor_mass_kg,
+        speed_rpm=profile.speed_max_rpm, max_speed_rpm=profile.max_speed_rpm,
+        grade_mm_per_s=profile.target_grade, revolutions_per_run=revolutions_per_run,
+        standstill_s=standstill_s)
+
+
+def describe_change(change: MassChange, proc: Procedure, engine: BalanceEngine) -> str:
+    """One line for a hands-on action, with the mass's force at the planned speed."""
+    if change.action == "mount-pickups":
+        names = ", ".join(proc.setup.sensors)
+        return (f"Mount the pickups ({names}) firmly on the bearing housings and aim the tach "
+                "at its reflective mark (0° = the mark).")
+    m = change.mass
+    assert m is not None
+    plane = proc.plane(m.plane)
+    where = f"position {m.position + 1} ({m.angle_deg:.0f}°)" if m.position is not None \
+        else f"{m.angle_deg:.0f}° from the mark, against rotation"
+    force = engine.force_n(abs(m.mass_g), plane.radius_mm, proc.setup.speed_rpm)
+    if change.action == "detach":
+        return f"Take off the {m.kind} mass {abs(m.mass_g):.2f} g from {m.plane} at {where}."
+    if m.removal:
+        return (f"Remove {abs(m.mass_g):.2f} g of material from {m.plane} at {where}, "
+                f"r {plane.radius_mm:g} mm (where the maker allows).")
+    return (f"Attach {m.kind} mass [b]{m.mass_g:.2f} g[/b] on {m.plane} at {where}, "
+            f"r {plane.radius_mm:g} mm: {force:.1f} N at {proc.setup.speed_rpm:.0f} rpm.")

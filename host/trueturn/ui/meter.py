@@ -1,0 +1,137 @@
+"""Adapter: the DSP layer's streaming meter (``trueturn.dsp.meter.LiveAnalyzer``) for the app.
+
+The app needs plain numbers per pickup (:class:`~trueturn.ui.procedure.SensorReading`), the
+speed, and a spectrum with labelled peaks; this module converts, and restarts the averaging
+when a new run begins. No signal processing of its own.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+from trueturn.dsp.averaging import SteadinessLimits
+from trueturn.dsp.meter import LiveAnalyzer
+from trueturn.dsp.units import PickupProfile
+from trueturn.ui.procedure import SensorReading
+
+SPECTRUM_BINS = 76  # one sparkline column each, fits 80 columns
+# The DSP's "steady" here covers revolutions, speed spread and drift; the phase limit is
+# applied by the procedure, which also accepts a tight circle around a small vector (a
+# well-balanced rotor has no meaningful phase).
+METER_LIMITS = SteadinessLimits(max_confidence_deg=180.0)
+PHASE_LIMIT_DEG = SteadinessLimits().max_confidence_deg
+
+
+@dataclass
+class MeterView:
+    """What the screens draw: readings by pickup name, speed, spectrum strip, peaks."""
+
+    sensors: tuple[str, ...]
+    readings: dict[str, SensorReading] = field(default_factory=dict)
+    speed_rpm: float | None = None
+    unit: str = ""
+    spectrum_amplitude: list[float] = field(default_factory=list)
+    spectrum_max_hz: float = 0.0
+    peaks: list[tuple[float, float, str]] = field(default_factory=list)
+    warnings: list[str] = field(default_factory=list)
+
+
+class _Msg:
+    """A stored message replayed into a fresh analyzer (duck-typed like codec.Message)."""
+
+    def __init__(self, name: str, values: dict[str, Any]) -> None:
+        self.name = name
+        self.values = dict(values)
+
+    def __getitem__(self, key: str) -> Any:
+        return self.values[key]
+
+
+class MeterAdapter:
+    """One :class:`LiveAnalyzer` per run; identity and stream set-up kept for restarts."""
+
+    def __init__(self, sensor_names: Sequence[str], mains_hz: float = 50.0,
+                 pickups: Sequence[Any] = (), max_revs: int = 60) -> None:
+        self.sensors = tuple(sensor_names)
+        self.mains_hz = mains_hz
+        self.max_revs = max_revs
+        profiles = []
+        for i, name in enumerate(self.sensors):
+            p = pickups[i] if i < len(pickups) else None
+            if p is not None and getattr(p, "sensitivity_mv_per_g", 0) > 0:
+                profiles.append(PickupProfile(name, p.sensitivity_mv_per_g / 1000.0,
+                                              p.zero_offset_mv / 1000.0 or None))
+            else:
+                profiles.append(PickupProfile(name))
+        self.profiles = tuple(profiles)
+        self._identity: _Msg | None = None
+        self._config: _Msg | None = None
+        self.spectrum_wanted = False
+        self.analyzer = self._new()
+
+    def _new(self) -> LiveAnalyzer:
+        a = LiveAnalyzer(self.profiles, mains_hz=self.mains_hz, max_revs=self.max_revs,
+                         limits=METER_LIMITS)
+        for msg in (self._identity, self._config):
+            if msg is not None:
+                a.feed(msg)
+        return a
+
+    def identity(self, values: dict[str, Any]) -> None:
+        self._identity = _Msg("identity", values)
+        self.analyzer.feed(self._identity)
+
+    def stream_config(self, values: dict[str, Any]) -> None:
+        self._config = _Msg("stream_config", values)
+        self.analyzer.feed(self._config)
+
+    def feed(self, msg: Any) -> None:
+        if msg.name == "stream_config":
+            self._config = _Msg("stream_config", msg.values)
+        elif msg.name == "identity":
+            self._identity = _Msg("identity", msg.values)
+        self.analyzer.feed(msg)
+
+    def reset(self) -> None:
+        """Forget the averaged revolutions (a new run starts)."""
+        self.analyzer = self._new()
+
+    def view(self) -> MeterView:
+        a = self.analyzer
+        out = MeterView(self.sensors)
+        speed = a.speed_rpm
+        out.speed_rpm = speed if math.isfinite(speed) else None
+        for r in a.readings():
+            out.readings[r.sensor] = SensorReading(
+                r.sensor, r.amplitude, r.unit, r.phase_deg, r.confidence_deg, r.revolutions,
+                r.steady, r.speed_rpm, r.confidence_radius
+                if math.isfinite(r.confidence_radius) else None)
+            out.unit = r.unit
+            out.warnings += [w for w in r.warnings if w not in out.warnings]
+        if self.spectrum_wanted:
+            self._spectrum(out)
+        return out
+
+    def _spectrum(self, out: MeterView) -> None:
+        spectra = self.analyzer.spectra()
+        spec = next((s for s in spectra if s is not None), None)
+        if spec is None:
+            return
+        freqs = list(spec.frequencies_hz)
+        asd = list(spec.asd)
+        rot_hz = (out.speed_rpm or 0.0) / 60.0
+        top = max(5.0 * rot_hz, 2.5 * self.mains_hz, 50.0)
+        top = min(top, freqs[-1] if freqs else top)
+        width = top / SPECTRUM_BINS
+        bins = [0.0] * SPECTRUM_BINS
+        for f, v in zip(freqs, asd, strict=False):
+            k = int(f / width)
+            if 0 <= k < SPECTRUM_BINS:
+                bins[k] = max(bins[k], float(v))
+        out.spectrum_amplitude = bins
+        out.spectrum_max_hz = top
+        out.peaks = [(p.hz, p.amplitude, p.label) for p in
+                     sorted(spec.peaks, key=lambda p: -p.amplitude)]

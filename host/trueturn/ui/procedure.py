@@ -1,0 +1,537 @@
+"""The guided balancing procedure as a pure state machine with its safety gates.
+
+No Textual, no I/O: the app feeds it board time, tach edges, readings and the person's
+confirmations; it answers with the current step, what to show, and refuses any confirmation
+a gate does not allow (:class:`GateRefused`). The balancing arithmetic itself comes from the
+engine passed in (``trueturn.ui.engine``, a thin adapter over ``trueturn.balance``).
+
+Sequence (influence-coefficient method with a tach; four-run method without one):
+
+    set-up (mount pickups) -> as-found run -> attach trial mass -> trial run(s)
+    -> correction (split onto positions, add or remove) -> attach correction -> check run
+    -> verdict against the grade -> trim (hands-on + check run) until pass or trims run out
+
+Safety gates (ARCHITECTURE.md, "Safety"):
+
+* every hands-on step opens with a lock-out gate and closes with a done gate; both need
+  standstill confirmed by the tach (no edge for ``standstill_s`` of board time, with data
+  still arriving) plus every item of the gate's checklist ticked;
+* every run needs the person to confirm the centrifugal force of the masses on the rotor at
+  the planned speed;
+* while the rotor turns, overspeed (profile max) and runaway vibration (``runaway_factor``
+  times the as-found 1x) raise a stop warning that is recorded with the run.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from enum import Enum
+from typing import Literal, Protocol
+
+from trueturn.angles import angle_difference_deg, wrap_deg
+
+
+class Mode(str, Enum):
+    """Which procedure: by correction planes, or amplitude only (no tach phase)."""
+
+    ONE_PLANE = "one-plane"
+    TWO_PLANE = "two-plane"
+    AMPLITUDE_ONLY = "amplitude-only"
+
+
+# Gate checklists. Wording is ours; the items are the usual shop cautions.
+LOCKOUT_CHECKLIST: tuple[str, ...] = (
+    "Power is off and locked out (plug pulled or switch locked)",
+    "I can see the rotor standing still",
+)
+DONE_CHECKLIST: tuple[str, ...] = (
+    "Every weight is fastened (screw tight, clip closed)",
+    "Tools, rags and loose parts are off the machine",
+    "Guards and covers are back on",
+    "Everyone is clear of the plane of rotation",
+)
+
+DEFAULT_STANDSTILL_S = 3.0
+DEFAULT_RUNAWAY_FACTOR = 3.0
+DEFAULT_PHASE_LIMIT_DEG = 5.0  # the DSP's default phase confidence for a steady reading
+SMALL_VECTOR_FRACTION = 0.05  # below 5 % of the as-found 1x, a tight circle is enough
+
+
+class GateRefused(Exception):
+    """A confirmation the safety gates do not allow yet; the message says why in one line."""
+
+
+@dataclass(frozen=True)
+class PlaneSetup:
+    """A correction plane as the procedure needs it."""
+
+    name: str
+    radius_mm: float
+    position_angles_deg: tuple[float, ...] = ()  # blades/holes; empty = any angle
+
+
+@dataclass(frozen=True)
+class ProcedureSetup:
+    """What the procedure needs to know about the machine (from the machine profile)."""
+
+    machine: str
+    mode: Mode
+    planes: tuple[PlaneSetup, ...]
+    sensors: tuple[str, ...]
+    rotor_mass_kg: float
+    speed_rpm: float
+    max_speed_rpm: float
+    grade_mm_per_s: float = 6.3
+    revolutions_per_run: int = 30
+    max_trims: int = 3
+    standstill_s: float = DEFAULT_STANDSTILL_S
+    runaway_factor: float = DEFAULT_RUNAWAY_FACTOR
+    phase_limit_deg: float = DEFAULT_PHASE_LIMIT_DEG
+
+
+@dataclass(frozen=True)
+class PlacedMass:
+    """A mass on the rotor relative to the as-found state; negative mass = material removed."""
+
+    plane: str
+    mass_g: float
+    angle_deg: float
+    position: int | None = None  # index of a blade/hole, when the plane has positions
+    kind: Literal["trial", "correction", "trim"] = "correction"
+    removal: bool = False  # True: drill/grind this much out at angle_deg (rather than add)
+
+
+@dataclass(frozen=True)
+class MassChange:
+    """One hands-on action: attach a mass or take one off (``detach``)."""
+
+    action: Literal["attach", "detach", "mount-pickups"]
+    mass: PlacedMass | None = None
+
+
+@dataclass(frozen=True)
+class SensorReading:
+    """A 1x reading at one pickup, as the meter gives it (plain numbers)."""
+
+    sensor: str
+    amplitude: float
+    unit: str
+    phase_deg: float | None
+    confidence_deg: float
+    revolutions: int
+    steady: bool
+    speed_rpm: float
+    confidence_radius: float | None = None  # 95 % circle radius in the reading's unit
+
+
+@dataclass(frozen=True)
+class SafetyEvent:
+    """Something the person had to be told to stop for, with board time."""
+
+    kind: Literal["overspeed", "runaway"]
+    detail: str
+    time_s: float
+
+
+@dataclass
+class RunRecord:
+    """A completed run: what was on the rotor and what the pickups read."""
+
+    label: str
+    masses: tuple[PlacedMass, ...]
+    readings: dict[str, SensorReading]
+    speed_rpm: float
+    time_s: float
+    force_confirmed: tuple[str, ...] = ()
+    events: list[SafetyEvent] = field(default_factory=list)
+
+
+@dataclass(frozen=True)
+class Correction:
+    """Mass to add (or remove) in one plane, as the engine computed it."""
+
+    plane: str
+    mass_g: float
+    angle_deg: float
+
+
+@dataclass(frozen=True)
+class Solution:
+    """Engine output: corrections, the parts to place, and the engine's notes."""
+
+    corrections: tuple[Correction, ...]
+    parts: tuple[PlacedMass, ...]
+    method: str
+    warnings: tuple[str, ...] = ()
+    coefficients: object = None  # opaque to the procedure; kept for trims and the verdict
+
+
+@dataclass(frozen=True)
+class Verdict:
+    """Residual unbalance against the permissible one, per plane (ISO 21940-11)."""
+
+    passed: bool
+    grade_mm_per_s: float
+    residual_gmm: dict[str, float]
+    permissible_gmm: dict[str, float]
+    note: str = ""
+
+
+@dataclass(frozen=True)
+class TrialSuggestion:
+    """A trial mass for one plane and its centrifugal force at the planned speed."""
+
+    plane: str
+    mass_g: float
+    angle_deg: float
+    position: int | None
+    force_n: float
+    force_ratio: float  # force / rotor weight
+
+
+class Engine(Protocol):
+    """What the procedure asks the balancing layer (see ``trueturn.ui.engine``)."""
+
+    def trial_mass(self, setup: ProcedureSetup, plane: PlaneSetup) -> TrialSuggestion: ...
+
+    def force_n(self, mass_g: float, radius_mm: float, speed_rpm: float) -> float: ...
+
+    def solve(self, setup: ProcedureSetup, runs: list[RunRecord], removal: bool) -> Solution: ...
+
+    def assess(self, setup: ProcedureSetup, runs: list[RunRecord],
+               removal: bool) -> tuple[Verdict, Solution]:
+        """Verdict on the last run, and the trim that would still be needed."""
+        ...
+
+
+StepKind = Literal["hands-on", "run", "correction", "verdict"]
+
+
+@dataclass
+class Step:
+    """One screenful of the procedure."""
+
+    kind: StepKind
+    title: str
+    changes: tuple[MassChange, ...] = ()
+    run_label: str = ""
+    phase: str = "start"  # hands-on: lockout|working; run: arming|running; others: start
+
+
+class StandstillWatch:
+    """Tach-confirmed standstill on the board's own clock.
+
+    Standstill holds when data has been arriving for at least ``hold_s`` of board time and
+    no tach edge came during the last ``hold_s``. If data stops arriving, board time stops
+    and standstill is never confirmed (a dead link proves nothing).
+    """
+
+    def __init__(self, hold_s: float = DEFAULT_STANDSTILL_S) -> None:
+        self.hold_s = hold_s
+        self.first_s: float | None = None
+        self.now_s: float | None = None
+        self.last_edge_s: float | None = None
+
+    def data(self, board_time_s: float) -> None:
+        """Board time of the newest sample received."""
+        if self.first_s is None:
+            self.first_s = board_time_s
+        self.now_s = board_time_s if self.now_s is None else max(self.now_s, board_time_s)
+
+    def edge(self, board_time_s: float) -> None:
+        """A tach edge at this board time."""
+        self.data(board_time_s)
+        self.last_edge_s = board_time_s
+
+    def reset(self) -> None:
+        """Forget everything (new stream or board reset)."""
+        self.first_s = self.now_s = self.last_edge_s = None
+
+    def quiet_s(self) -> float:
+        """Seconds of board time with data and without a tach edge."""
+        if self.now_s is None or self.first_s is None:
+            return 0.0
+        since = self.first_s if self.last_edge_s is None else self.last_edge_s
+        return max(0.0, self.now_s - since)
+
+    @property
+    def standstill(self) -> bool:
+        return self.quiet_s() >= self.hold_s
+
+
+class Procedure:
+    """The guided procedure; call the methods named after what the person does."""
+
+    def __init__(self, setup: ProcedureSetup, engine: Engine,
+                 watch: StandstillWatch | None = None) -> None:
+        if setup.mode is Mode.TWO_PLANE and len(setup.planes) < 2:
+            raise ValueError("two-plane balancing needs two correction planes in the profile")
+        if not setup.planes:
+            raise ValueError("the profile has no correction plane")
+        self.setup = setup
+        self.engine = engine
+        self.watch = watch or StandstillWatch(setup.standstill_s)
+        self.runs: list[RunRecord] = []
+        self.on_rotor: list[PlacedMass] = []
+        self.removal = False
+        self.solution: Solution | None = None
+        self.verdict: Verdict | None = None
+        self.trims_done = 0
+        self.events: list[SafetyEvent] = []
+        self.confirmations: list[tuple[float, str]] = []
+        self.log: list[str] = []
+        self._pending_run_events: list[SafetyEvent] = []
+        self._alarmed: set[str] = set()
+        self._force_text: tuple[str, ...] = ()
+        self.step = Step("hands-on", "Set up: mount the pickups and the tach",
+                         (MassChange("mount-pickups"),), phase="lockout")
+        self.finished = False
+
+    # ---- what to show -------------------------------------------------------------------
+    @property
+    def planes_used(self) -> tuple[PlaneSetup, ...]:
+        return self.setup.planes[:2] if self.setup.mode is Mode.TWO_PLANE else self.setup.planes[:1]
+
+    def plane(self, name: str) -> PlaneSetup:
+        for p in self.setup.planes:
+            if p.name == name:
+                return p
+        raise KeyError(name)
+
+    def checklist(self) -> tuple[str, ...]:
+        """The checklist of the current gate (empty when no checklist gate is open)."""
+        if self.step.kind != "hands-on":
+            return ()
+        return LOCKOUT_CHECKLIST if self.step.phase == "lockout" else DONE_CHECKLIST
+
+    def forces(self) -> list[tuple[PlacedMass, float]]:
+        """Each mass on the rotor with its centrifugal force (N) at the planned speed."""
+        out = []
+        for m in self.on_rotor:
+            radius = self.plane(m.plane).radius_mm
+            out.append((m, self.engine.force_n(abs(m.mass_g), radius, self.setup.speed_rpm)))
+        return out
+
+    def as_found(self) -> RunRecord | None:
+        return self.runs[0] if self.runs else None
+
+    # ---- hands-on gates -----------------------------------------------------------------
+    def _require_standstill(self) -> None:
+        if not self.watch.standstill:
+            quiet = self.watch.quiet_s()
+            raise GateRefused(
+                f"rotor not confirmed at standstill by the tach ({quiet:.1f} s without an edge, "
+                f"{self.setup.standstill_s:.0f} s needed): stop the machine and wait")
+
+    def _require_ticks(self, ticked: set[int], items: tuple[str, ...]) -> None:
+        missing = [i for i in range(len(items)) if i not in ticked]
+        if missing:
+            raise GateRefused(f"tick every item first; still open: {items[missing[0]]}")
+
+    def lock_out(self, ticked: set[int], now_s: float) -> None:
+        """The person says power is off and locked out; allowed only at tach standstill."""
+        if self.step.kind != "hands-on" or self.step.phase != "lockout":
+            raise GateRefused("no hands-on step is waiting for lock-out")
+        self._require_standstill()
+        self._require_ticks(ticked, LOCKOUT_CHECKLIST)
+        self.confirmations.append((now_s, f"lock-out before: {self.step.title}"))
+        self.step.phase = "working"
+
+    def hands_on_done(self, ticked: set[int], now_s: float) -> tuple[MassChange, ...]:
+        """The person says the work is done and the machine is safe to run; apply the changes.
+
+        Returns the changes so the app can mirror them on a simulated rig.
+        """
+        if self.step.kind != "hands-on" or self.step.phase != "working":
+            raise GateRefused("lock out first: the hands-on step has not been opened")
+        self._require_standstill()
+        self._require_ticks(ticked, DONE_CHECKLIST)
+        changes = self.step.changes
+        for change in changes:
+            if change.action == "attach" and change.mass is not None:
+                self.on_rotor.append(change.mass)
+            elif change.action == "detach" and change.mass is not None:
+                self.on_rotor.remove(change.mass)
+        self.confirmations.append((now_s, f"done, safe to run: {self.step.title}"))
+        self._advance_after_hands_on()
+        return changes
+
+    # ---- runs ---------------------------------------------------------------------------
+    def arm_run(self, force_acknowledged: bool, now_s: float) -> None:
+        """The person has seen the forces at the planned speed and confirms the run."""
+        if self.step.kind != "run" or self.step.phase != "arming":
+            raise GateRefused("no run is waiting to be started")
+        if not force_acknowledged:
+            raise GateRefused("confirm the centrifugal force of the masses first")
+        text = tuple(f"{m.mass_g:.2f} g on {m.plane}: {f:.1f} N at {self.setup.speed_rpm:.0f} rpm"
+                     for m, f in self.forces())
+        self._force_text = text
+        self.confirmations.append((now_s, f"force confirmed before: {self.step.run_label}"))
+        self.step.phase = "running"
+        self._pending_run_events = []
+        self._alarmed = set()
+
+    def observe(self, readings: dict[str, SensorReading], speed_rpm: float,
+                now_s: float) -> list[SafetyEvent]:
+        """Check a live reading during a run; return new stop warnings (also recorded)."""
+        if self.step.kind != "run" or self.step.phase != "running":
+            return []
+        new: list[SafetyEvent] = []
+        if speed_rpm > self.setup.max_speed_rpm and "overspeed" not in self._alarmed:
+            new.append(SafetyEvent(
+                "overspeed", f"speed {speed_rpm:.0f} rpm is over the machine's maximum "
+                f"{self.setup.max_speed_rpm:.0f} rpm: STOP THE MACHINE", now_s))
+        base = self.as_found()
+        if base is not None:
+            for name, r in readings.items():
+                ref = base.readings.get(name)
+                key = f"runaway:{name}"
+                if (ref is not None and ref.amplitude > 0 and key not in self._alarmed
+                        and r.amplitude > self.setup.runaway_factor * ref.amplitude):
+                    new.append(SafetyEvent(
+                        "runaway", f"{name}: 1x {r.amplitude:.3g} {r.unit} is over "
+                        f"{self.setup.runaway_factor:g} x the as-found {ref.amplitude:.3g}: "
+                        "STOP THE MACHINE", now_s))
+        for ev in new:
+            self._alarmed.add(ev.kind if ev.kind == "overspeed" else
+                              f"runaway:{ev.detail.split(':')[0]}")
+        self._pending_run_events += new
+        self.events += new
+        return new
+
+    def settled(self, r: SensorReading) -> bool:
+        """One pickup's reading is good enough to keep.
+
+        Steady (revolutions, speed, drift) and either the phase known within the limit, or
+        - for a vector that became small after a correction - a 95 % circle no wider than
+        5 % of the as-found 1x at that pickup (then its phase does not matter).
+        """
+        if not r.steady or r.revolutions < self.setup.revolutions_per_run:
+            return False
+        if self.setup.mode is Mode.AMPLITUDE_ONLY:
+            base = self.as_found()
+            if base is None or r.confidence_radius is None:
+                return r.confidence_deg <= self.setup.phase_limit_deg
+            ref = base.readings.get(r.sensor)
+            limit = SMALL_VECTOR_FRACTION * (ref.amplitude if ref else r.amplitude)
+            return r.confidence_radius <= max(limit, SMALL_VECTOR_FRACTION * r.amplitude)
+        if r.phase_deg is None:
+            return False
+        if r.confidence_deg <= self.setup.phase_limit_deg:
+            return True
+        base = self.as_found()
+        ref = base.readings.get(r.sensor) if base is not None else None
+        return (ref is not None and r.confidence_radius is not None
+                and r.confidence_radius <= SMALL_VECTOR_FRACTION * ref.amplitude)
+
+    def ready(self, readings: dict[str, SensorReading]) -> bool:
+        """True when every pickup has a settled reading over enough revolutions."""
+        if self.step.kind != "run" or self.step.phase != "running":
+            return False
+        return all(name in readings and self.settled(readings[name])
+                   for name in self.setup.sensors)
+
+    def progress(self, readings: dict[str, SensorReading]) -> float:
+        """Fraction 0..1 of the revolutions averaged for the current run."""
+        if not readings:
+            return 0.0
+        revs = min((readings[s].revolutions if s in readings else 0) for s in self.setup.sensors)
+        return max(0.0, min(1.0, revs / self.setup.revolutions_per_run))
+
+    def record(self, readings: dict[str, SensorReading], speed_rpm: float,
+               now_s: float) -> RunRecord:
+        """Keep the run's readings (only when :meth:`ready`) and move on."""
+        if not self.ready(readings):
+            raise GateRefused("the reading is not steady yet: keep the machine running")
+        run = RunRecord(self.step.run_label, tuple(self.on_rotor),
+                        {s: readings[s] for s in self.setup.sensors}, speed_rpm, now_s,
+                        self._force_text, list(self._pending_run_events))
+        self.runs.append(run)
+        self.log.append(f"run recorded: {run.label}")
+        self._advance_after_run(run)
+        return run
+
+    # ---- correction step ----------------------------------------------------------------
+    def set_removal(self, removal: bool) -> None:
+        """Choose removing material instead of adding mass; re-splits the correction."""
+        if self.step.kind != "correction":
+            raise GateRefused("removal can only be chosen while a correction is shown")
+        self.removal = removal
+        self.solution = self._solve()
+
+    def accept_correction(self) -> None:
+        """Go on to the hands-on step that places the correction parts."""
+        if self.step.kind != "correction" or self.solution is None:
+            raise GateRefused("no correction is waiting")
+        changes = [MassChange("detach", m) for m in self.on_rotor if m.kind == "trial"]
+        changes += [MassChange("attach", p) for p in self.solution.parts]
+        word = "Trim" if self.trims_done else "Correction"
+        self.step = Step("hands-on", f"{word}: place the parts", tuple(changes),
+                         phase="lockout")
+
+    def finish(self) -> None:
+        """Close the procedure after the verdict."""
+        if self.step.kind != "verdict":
+            raise GateRefused("there is no verdict yet")
+        self.finished = True
+
+    # ---- sequencing ---------------------------------------------------------------------
+    def _runs_needed(self) -> list[tuple[str, PlaneSetup, float]]:
+        """Trial runs: (label, plane, angle offset from the suggestion)."""
+        mode = self.setup.mode
+        if mode is Mode.AMPLITUDE_ONLY:
+            p = self.setup.planes[0]
+            return [(f"trial {p.name} at {a:.0f} deg", p, a) for a in (0.0, 120.0, 240.0)]
+        return [(f"trial {p.name}", p, 0.0) for p in self.planes_used]
+
+    def _trial_mass(self, plane: PlaneSetup, offset_deg: float) -> PlacedMass:
+        s = self.engine.trial_mass(self.setup, plane)
+        angle = wrap_deg(s.angle_deg + offset_deg)
+        position = s.position
+        if plane.position_angles_deg and offset_deg:
+            position = min(range(len(plane.position_angles_deg)), key=lambda k: abs(
+                angle_difference_deg(plane.position_angles_deg[k], angle)))
+            angle = plane.position_angles_deg[position]
+        return PlacedMass(plane.name, s.mass_g, angle, position, kind="trial")
+
+    def _advance_after_hands_on(self) -> None:
+        n_runs = len(self.runs)
+        trials = self._runs_needed()
+        if n_runs == 0:
+            self.step = Step("run", "As-found run", run_label="as found", phase="arming")
+        elif n_runs <= len(trials):
+            label = trials[n_runs - 1][0]
+            self.step = Step("run", f"Trial run: {label}", run_label=label, phase="arming")
+        else:
+            label = "check" if not self.trims_done else f"check after trim {self.trims_done}"
+            self.step = Step("run", f"Check run: {label}", run_label=label, phase="arming")
+
+    def _advance_after_run(self, run: RunRecord) -> None:
+        trials = self._runs_needed()
+        n_runs = len(self.runs)
+        if n_runs <= len(trials):
+            # Next: move the trial mass (off the previous plane/angle, onto the next one).
+            changes = [MassChange("detach", m) for m in self.on_rotor if m.kind == "trial"]
+            label, plane, offset = trials[n_runs - 1]
+            changes.append(MassChange("attach", self._trial_mass(plane, offset)))
+            self.step = Step("hands-on", f"Attach the trial mass for: {label}", tuple(changes),
+                             phase="lockout")
+            return
+        if n_runs == len(trials) + 1:
+            self.solution = self._solve()
+            self.step = Step("correction", "Correction")
+            return
+        # A check run: verdict, and the trim still needed.
+        self.verdict, trim = self.engine.assess(self.setup, self.runs, self.removal)
+        if self.verdict.passed or self.trims_done >= self.setup.max_trims:
+            self.step = Step("verdict", "Verdict")
+        else:
+            self.trims_done += 1
+            self.solution = trim
+            self.step = Step("correction", f"Trim {self.trims_done}")
+
+    def _solve(self) -> Solution:
+        if self.trims_done == 0:
+            return self.engine.solve(self.setup, self.runs[: len(self._runs_needed()) + 1],
+                                     self.removal)
+        return self.engine.assess(self.setup, self.runs, self.removal)[1]

@@ -1,0 +1,41 @@
+"""Demo mode: mirror the operator's confirmed hands-on work onto the simulated rig.
+
+When the person confirms a weight on a ``sim://`` rig, the same weight goes onto the
+simulated rotor through the rig API (``port.rig``: add_mass, remove_mass, motor_start,
+motor_stop), so the demo's residual is the physics' honest answer, not a scripted one.
+Removed material is a negative mass at the drilled angle.
+"""
+
+from __future__ import annotations
+
+from trueturn.sim.rotor import Mass
+from trueturn.ui.procedure import MassChange, PlacedMass, Procedure
+from trueturn.ui.session import LinkSession
+
+
+def rig_mass(m: PlacedMass) -> Mass:
+    return Mass(m.plane, -abs(m.mass_g) if m.removal else m.mass_g, m.angle_deg)
+
+
+class DemoRig:
+    """The simulated rig behind the session's ``sim://`` port."""
+
+    def __init__(self, session: LinkSession) -> None:
+        self.session = session
+
+    def apply(self, changes: tuple[MassChange, ...], proc: Procedure | None = None) -> None:
+        """Put the confirmed changes onto the simulated rotor."""
+        del proc
+        for change in changes:
+            if change.mass is None:
+                continue
+            if change.action == "attach":
+                self.session.rig_call("add_mass", rig_mass(change.mass))
+            elif change.action == "detach":
+                self.session.rig_call("remove_mass", rig_mass(change.mass))
+
+    def motor(self, on: bool) -> None:
+        self.session.rig_call("motor_start" if on else "motor_stop")
+
+    def masses(self) -> list[Mass]:
+        return list(self.session.rig_call("all_masses"))

@@ -1,0 +1,260 @@
+"""The app's link to the board: open, check identity, stream, and keep a live snapshot.
+
+All blocking I/O lives here and runs in a Textual thread worker (``LiveApp``); the screen
+only reads :meth:`LinkSession.snapshot`, a copy taken under a lock. Decoding is the link
+layer's (``StreamDecoder``), the measurement is the DSP layer's (through
+:mod:`trueturn.ui.meter`); this module only moves messages between them and keeps the
+board's clock for the tach standstill watch.
+"""
+
+from __future__ import annotations
+
+import threading
+from collections.abc import Sequence
+from dataclasses import dataclass, field
+from typing import Any
+
+import serial
+
+from trueturn.errors import UserError
+from trueturn.link.catalogue import load_catalogue
+from trueturn.link.codec import LinkEvent, Message, StreamDecoder
+from trueturn.link.ports import open_port
+from trueturn.link.session import BoardError, BoardSession
+from trueturn.ui.meter import MeterAdapter, MeterView
+from trueturn.ui.procedure import StandstillWatch
+
+BOARD_NAMES = {1: "ATmega328P board", 2: "simulated board", 3: "emulated board"}
+
+
+class LinkProblem(Exception):
+    """The port cannot be used (cannot open, no identity, wrong firmware); one line."""
+
+
+@dataclass(frozen=True)
+class BoardIdentity:
+    """The board's identity message, with what this host expects beside it."""
+
+    protocol_version: int
+    definition_hash: int
+    firmware: str
+    board: str
+    tick_hz: int
+    max_channels: int
+    host_protocol_version: int
+    host_definition_hash: int
+
+    @property
+    def matches(self) -> bool:
+        return (self.protocol_version == self.host_protocol_version
+                and self.definition_hash == self.host_definition_hash)
+
+    def mismatch_text(self) -> str:
+        return (f"board speaks protocol v{self.protocol_version} (definition "
+                f"{self.definition_hash:08x}), this trueturn speaks v{self.host_protocol_version} "
+                f"(definition {self.host_definition_hash:08x}); flash the matching firmware "
+                "or install the matching trueturn")
+
+
+@dataclass
+class Snapshot:
+    """Everything the screens show, copied out of the reader thread."""
+
+    meter: MeterView
+    standstill: bool = False
+    quiet_s: float = 0.0
+    board_time_s: float = 0.0
+    counters: dict[str, int] = field(default_factory=dict)
+    board_samples_dropped: int = 0
+    board_frames_dropped: int = 0
+    events: list[str] = field(default_factory=list)
+    streaming: bool = False
+
+
+class LinkSession:
+    """One open port: identity check, configure, start, then :meth:`pump` in a worker."""
+
+    def __init__(self, url: str, channels: int = 2, rate_hz: int = 2000,
+                 standstill_s: float = 3.0, sensor_names: tuple[str, ...] = ("A", "B"),
+                 mains_hz: float = 60.0, pickups: Sequence[Any] = ()) -> None:
+        self.url = url
+        self.channels = channels
+        self.rate_hz = rate_hz
+        self.catalogue = load_catalogue()
+        self.decoder = StreamDecoder(self.catalogue)
+        self.meter = MeterAdapter(sensor_names[:channels], mains_hz=mains_hz,
+                                  pickups=list(pickups)[:channels])
+        self.watch = StandstillWatch(standstill_s)
+        self.identity: BoardIdentity | None = None
+        self.port: Any = None
+        self.board: BoardSession | None = None
+        self._lock = threading.Lock()  # the port (reader thread and rig calls)
+        self._state = threading.Lock()  # meter, watch and counters
+        self._tick_hz = 2_000_000
+        self._start_tick = 0
+        self._period_ticks = 1
+        self._tick_base = 0  # unwrapping the 32-bit tick counter
+        self._last_tick32: int | None = None
+        self._events: list[str] = []
+        self._status: dict[str, int] = {}
+        self._streaming = False
+
+    # ---- opening ------------------------------------------------------------------------
+    def open(self, timeout_s: float = 3.0) -> BoardIdentity:
+        """Open the port, ask for the identity and check it; raise :class:`LinkProblem`.
+
+        A mismatched firmware does not raise: the identity comes back with ``matches``
+        False so the screen can show both sides before refusing.
+        """
+        try:
+            self.port = open_port(self.url)
+        except (serial.SerialException, ValueError, OSError, UserError) as exc:
+            raise LinkProblem(f"cannot open {self.url}: {exc}") from None
+        self.board = BoardSession(self.port, self.catalogue)
+        self.decoder = self.board.decoder
+        try:
+            self.board.identify(timeout_s)
+        except BoardError as exc:
+            if self.board.identity is None:
+                self.close()
+                raise LinkProblem(str(exc)) from None
+        v = self.board.identity
+        assert v is not None
+        self._tick_hz = int(v["tick_hz"])
+        self.identity = BoardIdentity(
+            protocol_version=v["protocol_version"], definition_hash=v["definition_hash"],
+            firmware=f"{v['firmware_major']}.{v['firmware_minor']}.{v['firmware_patch']}",
+            board=BOARD_NAMES.get(v["board_id"], f"board id {v['board_id']}"),
+            tick_hz=self._tick_hz, max_channels=v["max_channels"],
+            host_protocol_version=self.catalogue.protocol_version,
+            host_definition_hash=self.catalogue.definition_hash)
+        self.meter.identity(v)
+        return self.identity
+
+    def start(self) -> None:
+        """Configure and start streaming (only after a matching identity)."""
+        if self.identity is None or not self.identity.matches or self.board is None:
+            raise LinkProblem("refusing to stream: the board's firmware does not match")
+        channels = max(1, min(self.channels, self.identity.max_channels))
+        try:
+            with self._lock:
+                self.board.configure(self.rate_hz, channels)
+                config = self.board.start()
+        except UserError as exc:
+            raise LinkProblem(str(exc)) from None
+        self._handle_config(config)
+        self.meter.stream_config(config)
+        self._streaming = True
+
+    # ---- streaming ----------------------------------------------------------------------
+    def _board_time_s(self, tick32: int) -> float:
+        """Board seconds from a 32-bit tick, unwrapping the counter (wraps every ~36 min)."""
+        if self._last_tick32 is None:
+            self._last_tick32 = tick32
+        diff = tick32 - self._last_tick32
+        base = self._tick_base
+        if diff < -0x80000000:
+            self._tick_base += 1 << 32
+            base = self._tick_base
+            self._last_tick32 = tick32
+        elif diff > 0x80000000:
+            base -= 1 << 32  # a late tick from before the wrap
+        elif diff > 0:
+            self._last_tick32 = tick32
+        return (base + tick32) / self._tick_hz
+
+    def pump(self) -> int:
+        """Read what the port has, feed the meter and the watch; return messages handled."""
+        assert self.board is not None
+        try:
+            with self._lock:
+                items = self.board.read()
+        except (serial.SerialException, OSError, UserError) as exc:
+            self._streaming = False
+            raise LinkProblem(f"the link to {self.url} was lost: {exc}") from None
+        with self._state:
+            return self._handle_items(items)
+
+    def _handle_items(self, items: list[Message | LinkEvent]) -> int:
+        handled = 0
+        for item in items:
+            if isinstance(item, LinkEvent):
+                if item.kind == "board_reset":
+                    self.watch.reset()
+                self._events.append(f"{item.kind}: {item.detail}")
+                del self._events[:-20]
+                continue
+            handled += 1
+            self._handle(item)
+        return handled
+
+    def _handle(self, msg: Message) -> None:
+        v = msg.values
+        if msg.name == "stream_config":
+            self._handle_config(v)
+        elif msg.name == "samples":
+            last_index = v["first_index"] + len(v["samples"]) - 1
+            tick = (self._start_tick + last_index * self._period_ticks) & 0xFFFFFFFF
+            self.watch.data(self._board_time_s(tick))
+        elif msg.name == "tach":
+            self.watch.edge(self._board_time_s(int(v["tick"])))
+        elif msg.name == "status":
+            self._status = {"samples_dropped": int(v["samples_dropped"]),
+                            "frames_dropped": int(v["frames_dropped"])}
+        self.meter.feed(msg)
+
+    def _handle_config(self, v: dict[str, Any]) -> None:
+        self._start_tick = int(v["start_tick"])
+        self._period_ticks = int(v["period_ticks"])
+
+    def reset_meter(self) -> None:
+        """Start averaging afresh (a new run)."""
+        with self._state:
+            self.meter.reset()
+
+    def snapshot(self) -> Snapshot:
+        """A copy of the live state for the screens."""
+        with self._state:
+            events = list(self._events)
+            status = dict(self._status)
+            view = self.meter.view()
+        c = self.decoder.counters
+        return Snapshot(
+            meter=view, standstill=self.watch.standstill,
+            quiet_s=self.watch.quiet_s(), board_time_s=self.watch.now_s or 0.0,
+            counters={"frames_bad": c.frames_bad, "frames_lost": c.frames_lost,
+                      "samples_lost": c.samples_lost, "tach_edges_lost": c.tach_edges_lost,
+                      "board_resets": c.board_resets},
+            board_samples_dropped=status.get("samples_dropped", 0),
+            board_frames_dropped=status.get("frames_dropped", 0),
+            events=events, streaming=self._streaming)
+
+    # ---- the simulated rig (demo mode) --------------------------------------------------
+    @property
+    def rig(self) -> Any:
+        """The virtual rig behind a ``sim://`` port, or None on a real board."""
+        return getattr(self.port, "rig", None)
+
+    def rig_call(self, method: str, *args: Any) -> Any:
+        """Call a rig method under the port lock (the reader thread is using the port)."""
+        rig = self.rig
+        if rig is None:
+            raise LinkProblem("this port has no simulated rig")
+        with self._lock:
+            return getattr(rig, method)(*args)
+
+    def close(self) -> None:
+        if self.port is None:
+            return
+        try:
+            if self._streaming and self.board is not None:
+                with self._lock:
+                    self.board.send("stop")
+        except (serial.SerialException, OSError, UserError):
+            pass
+        self._streaming = False
+        try:
+            with self._lock:
+                self.port.close()
+        except (serial.SerialException, OSError):
+            pass

@@ -1,0 +1,47 @@
+"""Words the app shows: cautions, key list, step instructions. Our own wording."""
+
+from __future__ import annotations
+
+CAUTIONS = """\
+[b]Cautions — read before every job[/b]
+
+• A rotor can throw a weight, a clip or a chip with enough force to injure or kill.
+  Stand out of the plane of rotation whenever the machine can turn.
+• Before touching the rotor: switch off, pull the plug or lock the isolator, wait until
+  the tach confirms standstill, and check with your own eyes.
+• Fasten every weight as the machine's maker allows: screws with thread lock, clips made
+  for the purpose. Putty and tape are for trials at reduced speed only, if at all.
+• Drilling to remove mass weakens parts. Never drill a grinding wheel, a saw blade, a
+  cast fan hub or a cutterhead body; follow the maker's instructions for your part.
+• Never run above the machine's or the wheel's marked maximum speed.
+• Guards and covers go back on before every run. Wear eye and hearing protection.
+• Stop at once if vibration rises sharply, a noise changes, or anything comes loose.
+
+This tool does not replace the manufacturer's instructions, local codes and regulations,
+or the judgement of a licensed professional. Where they say otherwise, they win.
+
+[dim]Press Escape to go back.[/dim]"""
+
+KEYS: list[tuple[str, str]] = [
+    ("m", "Meter: live 1x amplitude, phase, speed, polar plot"),
+    ("s", "Spectrum with labelled peaks"),
+    ("g", "Guide: the balancing procedure"),
+    ("1 2 3", "Guide set-up: one plane / two planes / amplitude only"),
+    ("1 … 4", "Guide: tick or untick a checklist item"),
+    ("Enter", "Guide: confirm the step shown (gates refuse while unsafe)"),
+    ("r", "Guide: remove material instead of adding mass (correction step)"),
+    ("o", "Demo rig: switch the virtual motor on"),
+    ("x", "Demo rig: switch the virtual motor off"),
+    ("c", "Cautions (safety notes)"),
+    ("? / F1", "This list of keys"),
+    ("Escape", "Close this screen / go back"),
+    ("q", "Quit (the job is saved after every run)"),
+]
+
+
+def keys_markup() -> str:
+    lines = ["[b]Keys[/b]", ""]
+    lines += [f"  [b]{k:<8}[/b] {what}" for k, what in KEYS]
+    lines += ["", "The mouse works too: click the tabs at the bottom.",
+              "[dim]Press Escape to go back.[/dim]"]
+    return "\n".join(lines)

@@ -1,0 +1,137 @@
+"""Small widgets of our own: a braille polar plot of 1x vectors and a spectrum strip.
+
+Braille cells give 2x4 dots per character, enough for a readable polar plot in a corner of
+an 80x24 terminal. The plot draws 0 deg at the top and angles growing clockwise on screen,
+with a ring at full scale and one at half scale; each vector is a line from the centre with
+its pickup's letter at the tip; earlier runs of the job are single dots with a digit.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+from rich.text import Text
+from textual.widget import Widget
+
+BRAILLE_BASE = 0x2800
+# Dot bit for (column 0..1, row 0..3) inside one braille cell (Unicode braille patterns).
+_DOT_BITS = ((0x01, 0x08), (0x02, 0x10), (0x04, 0x20), (0x40, 0x80))
+
+
+class BrailleCanvas:
+    """A grid of braille cells with dot plotting, lines, and text overlays."""
+
+    def __init__(self, cols: int, rows: int) -> None:
+        self.cols, self.rows = max(1, cols), max(1, rows)
+        self.width, self.height = self.cols * 2, self.rows * 4
+        self._bits = [[0] * self.cols for _ in range(self.rows)]
+        self._style = [[""] * self.cols for _ in range(self.rows)]
+        self._text: dict[tuple[int, int], tuple[str, str]] = {}
+
+    def dot(self, x: float, y: float, style: str = "") -> None:
+        xi, yi = int(round(x)), int(round(y))
+        if 0 <= xi < self.width and 0 <= yi < self.height:
+            r, c = yi // 4, xi // 2
+            self._bits[r][c] |= _DOT_BITS[yi % 4][xi % 2]
+            if style:
+                self._style[r][c] = style
+
+    def line(self, x0: float, y0: float, x1: float, y1: float, style: str = "") -> None:
+        n = int(max(abs(x1 - x0), abs(y1 - y0))) + 1
+        for k in range(n + 1):
+            t = k / n
+            self.dot(x0 + (x1 - x0) * t, y0 + (y1 - y0) * t, style)
+
+    def circle(self, cx: float, cy: float, r: float, style: str = "") -> None:
+        n = max(24, int(2 * math.pi * r))
+        for k in range(n):
+            a = 2 * math.pi * k / n
+            self.dot(cx + r * math.cos(a), cy + r * math.sin(a), style)
+
+    def label(self, col: int, row: int, text: str, style: str = "") -> None:
+        for i, ch in enumerate(text):
+            if 0 <= col + i < self.cols and 0 <= row < self.rows:
+                self._text[(row, col + i)] = (ch, style)
+
+    def render(self) -> Text:
+        out = Text()
+        for r in range(self.rows):
+            for c in range(self.cols):
+                if (r, c) in self._text:
+                    ch, style = self._text[(r, c)]
+                    out.append(ch, style)
+                else:
+                    bits = self._bits[r][c]
+                    out.append(chr(BRAILLE_BASE + bits) if bits else " ", self._style[r][c])
+            if r < self.rows - 1:
+                out.append("\n")
+        return out
+
+
+@dataclass(frozen=True)
+class PolarPoint:
+    """A 1x vector to draw: amplitude, phase (deg), a one-letter tag, vector or history dot."""
+
+    amplitude: float
+    phase_deg: float
+    tag: str
+    style: str = ""
+    current: bool = True
+
+
+class PolarPlot(Widget):
+    """Polar plot of 1x vectors: live vectors as lines, the job's earlier runs as dots."""
+
+    DEFAULT_CSS = "PolarPlot { width: 1fr; height: 1fr; min-width: 20; min-height: 8; }"
+
+    def __init__(self, *, id: str | None = None) -> None:  # noqa: A002 - Textual's name
+        super().__init__(id=id)
+        self.points: list[PolarPoint] = []
+        self.unit = ""
+
+    def show(self, points: list[PolarPoint], unit: str) -> None:
+        self.points = points
+        self.unit = unit
+        self.refresh()
+
+    def render(self) -> Text:
+        cols, rows = self.size.width, self.size.height
+        canvas = BrailleCanvas(cols, rows - 1)
+        # A cell is about twice as tall as wide and holds 2x4 dots, so dots are square.
+        radius = max(4.0, min(canvas.width, canvas.height) / 2 - 2)
+        cx, cy = canvas.width / 2, canvas.height / 2
+
+        def xy(amp_frac: float, phase_deg: float) -> tuple[float, float]:
+            a = math.radians(phase_deg)
+            return cx + radius * amp_frac * math.sin(a), cy - radius * amp_frac * math.cos(a)
+
+        for frac in (1.0, 0.5):
+            n = max(32, int(8 * radius))
+            for k in range(n):
+                x, y = xy(frac, 360.0 * k / n)
+                canvas.dot(x, y, "grey50")
+        for a in (0.0, 90.0, 180.0, 270.0):
+            x, y = xy(1.0, a)
+            canvas.line(cx, cy, x, y, "grey30")
+        full = max([p.amplitude for p in self.points] + [1e-12]) * 1.1
+        for p in self.points:
+            x, y = xy(p.amplitude / full, p.phase_deg)
+            if p.current:
+                canvas.line(cx, cy, x, y, p.style)
+            else:
+                canvas.dot(x, y, p.style)
+        for p in self.points:
+            x, y = xy(p.amplitude / full, p.phase_deg)
+            canvas.label(int(x // 2), int(y // 4), p.tag, f"bold {p.style}".strip())
+        top_x, top_y = xy(1.0, 0.0)
+        canvas.label(int(top_x // 2), max(0, int(top_y // 4)), "0")
+        rx, ry = xy(1.0, 90.0)
+        canvas.label(min(canvas.cols - 2, int(rx // 2) + 1), int(ry // 4), "90")
+        bx, by = xy(1.0, 180.0)
+        canvas.label(int(bx // 2) - 1, min(canvas.rows - 1, int(by // 4)), "180")
+        lx, ly = xy(1.0, 270.0)
+        canvas.label(max(0, int(lx // 2) - 3), int(ly // 4), "270")
+        text = canvas.render()
+        text.append(f"\nfull scale {full:.3g} {self.unit}", "grey62")
+        return text

@@ -137,3 +137,19 @@ def test_capture_round_trip(tmp_path) -> None:
     meta, raw = read_capture(path)
     assert meta["port"] == "sim://bench-grinder" and meta["format_version"] == 1
     assert raw == wire
+
+
+def test_power_up_identity_then_requested_identity_is_not_a_reset() -> None:
+    # Opening a real Nano's port resets it: identity (seq 0) arrives before our identify's answer.
+    ident = dict(protocol_version=1, definition_hash=0, firmware_major=1, firmware_minor=0,
+                 firmware_patch=0, board_id=1, tick_hz=2_000_000, adc_bits=10,
+                 adc_reference_mv=5000, aperture_delay_ticks=16, max_channels=2,
+                 channel0_pin=0, channel1_pin=1, tach_pin=8)
+    dec = StreamDecoder()
+    dec.expect_identity()
+    dec.feed(encode_frame("identity", 0, ident))
+    dec.feed(encode_frame("reply", 1, {"command_type": 0x81, "command_seq": 0, "error": 0})
+             + encode_frame("identity", 2, ident))
+    assert dec.counters.board_resets == 0
+    dec.feed(encode_frame("identity", 0, ident))  # now unasked: the board restarted
+    assert dec.counters.board_resets == 1

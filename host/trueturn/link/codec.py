@@ -249,9 +249,15 @@ class StreamDecoder:
     def _track(self, msg: Message, out: list[Message | LinkEvent]) -> None:
         c = self.counters
         if msg.name == "identity":
-            if self._last_seq is not None and not self._identity_requested:
+            if self._last_seq is None:
+                # First frame seen. A power-up identity (seq 0, sent when opening the port
+                # resets the board) leaves a pending identify request for the answer to come.
+                if msg.seq != 0:
+                    self._identity_requested = False
+            elif not self._identity_requested:
                 self._reset("identity sent without being asked", out)
-            self._identity_requested = False
+            else:
+                self._identity_requested = False
         elif msg.name == "status":
             if self._last_uptime_ms is not None and msg["uptime_ms"] < self._last_uptime_ms:
                 self._reset(f"uptime went back from {self._last_uptime_ms} to "

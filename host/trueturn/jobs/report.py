@@ -275,12 +275,20 @@ def before_after_rows(job: JobRecord) -> list[list[str]]:
 
 
 def run_rows(job: JobRecord) -> tuple[list[str], list[list[str]]]:
+    """One row per run; a pickup's unit goes in its column header when all its runs share it."""
     sensors = [p.name for p in job.machine.pickups]
-    header = ["Run", "Time (UTC)", "What", "Speed"] + sensors + ["Revs"]
+    header = ["Run", "Time (UTC)", "What", "rpm"]
+    shared_units: dict[str, str | None] = {}
+    for s in sensors:
+        units = {reading_text(r, job.machine)[0].split(" ", 1)[1] for run in job.runs
+                 if (r := run.reading(s)) is not None}
+        shared_units[s] = units.pop() if len(units) == 1 else None
+        header.append(f"{s} ({shared_units[s]})" if shared_units[s] else s)
+    header.append("Revs")
     rows = []
     for run in job.runs:
         cells = [str(run.index), short_time(run.time), run.label or _RUN_KIND_NAMES[run.kind],
-                 f"{run.speed_rpm:g} rpm"]
+                 f"{run.speed_rpm:.0f}"]
         revs = []
         for s in sensors:
             reading = run.reading(s)
@@ -288,6 +296,8 @@ def run_rows(job: JobRecord) -> tuple[list[str], list[list[str]]]:
                 cells.append("-")
                 continue
             amp, phase = reading_text(reading, job.machine)
+            if shared_units[s]:
+                amp = amp.split(" ", 1)[0]
             cells.append(f"{amp} at {phase}")
             revs.append(str(reading.revolutions))
         cells.append("/".join(dict.fromkeys(revs)) or "-")
@@ -382,6 +392,8 @@ table { border-collapse: collapse; width: 100%; margin: 1mm 0 1.5mm 0; font-size
 th, td { border: 0.25mm solid #bbb; padding: 0.4mm 1.2mm; text-align: left; vertical-align: top; }
 th { background: #eee; }
 table.kv th { width: 26mm; }
+table.runs td:nth-child(2), table.confirmations td:nth-child(2), table.events td:nth-child(2)
+  { white-space: nowrap; }
 .figures { display: flex; flex-wrap: wrap; gap: 2mm; align-items: flex-start; }
 .figures > div { min-width: 0; }
 figure { margin: 0; flex: 0 0 30%; }

@@ -192,14 +192,18 @@ class CoefficientSet:
 
 @dataclass
 class JobRecord:
-    """One balancing job on one machine: runs in order, pending hands-on work, outcome."""
+    """One balancing job on one machine: runs in order, pending hands-on work, outcome.
+
+    ``method``: ``single-plane`` / ``two-plane`` influence coefficients, ``four-run``
+    (amplitude only, no phase), or ``trim`` (one run with saved coefficients).
+    """
 
     job_id: str = field(metadata=limits(nonempty=True))
     machine: MachineProfile
     created: str = field(metadata=limits(nonempty=True))
     updated: str = ""
     status: Literal["open", "closed"] = "open"
-    method: Literal["single-plane", "two-plane", "trim"] = "single-plane"
+    method: Literal["single-plane", "two-plane", "four-run", "trim"] = "single-plane"
     speed_rpm: float | None = field(default=None, metadata=limits(above=0))
     operator: str = ""
     customer: str = ""

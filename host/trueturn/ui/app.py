@@ -368,11 +368,12 @@ class TrueturnApp(App):
         bench = self.bench
         if bench is None or not bench.is_mounted:
             return
+        current = bench.query_one("#views", ContentSwitcher).current
+        self.session.meter.spectrum_wanted = current == "spectrum-view"
         snap = self.session.snapshot()
         self.snap = snap
         self._run_logic(snap)
         bench.query_one("#status", Static).update(self._status_text(snap))
-        current = bench.query_one("#views", ContentSwitcher).current
         if current == "meter-view":
             self._draw_meter(bench, snap)
         elif current == "spectrum-view":

@@ -114,7 +114,7 @@ def test_ruler_box_is_100_mm_with_1_mm_ticks() -> None:
 def test_small_ring_fits_a_sheet_and_big_ring_says_to_tile() -> None:
     assert ring_svg(150.0, 12)[1].fits_a4_and_letter
     text, layout = ring_svg(300.0, 12)
-    assert not layout.fits_a4_and_letter and "print as tiles" in text
+    assert not layout.fits_a4_and_letter and "--tiles" in text
 
 
 def test_cli_ring_writes_svg_and_refuses_bad_input(tmp_path: Path) -> None:
@@ -177,3 +177,46 @@ def test_ring_and_strip_carry_the_standstill_caution() -> None:
                  if "caution" in (t.get("class") or "")]
         assert lines == list(CAUTION)
         assert "standstill" in " ".join(lines) and "unplugged" in " ".join(lines)
+
+
+@pytest.mark.parametrize("diameter_mm", [150.0, 300.0, 420.0])
+def test_tiles_cover_the_big_ring_at_1_to_1_on_sheet_sized_windows(diameter_mm: float) -> None:
+    from trueturn.jobs.ring import (
+        A4_PRINTABLE_MM,
+        LETTER_PRINTABLE_MM,
+        TILE_OVERLAP_MM,
+        ring_tiles_html,
+    )
+
+    page, tiles = ring_tiles_html(diameter_mm, 12)
+    whole = parse(ring_svg(diameter_mm, 12)[0])
+    width, height = float(whole.get("width")[:-2]), float(whole.get("height")[:-2])
+    sheets = list(ET.fromstring(page).iter(f"{SVG}svg"))
+    assert len(sheets) == len(tiles)
+    for sheet in sheets:
+        x, y, w, h = map(float, sheet.get("viewBox").split())
+        assert (float(sheet.get("width")[:-2]), float(sheet.get("height")[:-2])) == (w, h)  # 1:1
+        assert w <= min(A4_PRINTABLE_MM[0], LETTER_PRINTABLE_MM[0])
+        assert h <= min(A4_PRINTABLE_MM[1], LETTER_PRINTABLE_MM[1])
+        assert marks(sheet) == marks(whole)  # the same drawing seen through each window
+    # The windows cover the whole drawing, neighbours sharing the overlap band.
+    xs = sorted({t.x_mm for t in tiles})
+    ys = sorted({t.y_mm for t in tiles})
+    w, h = map(float, sheets[0].get("viewBox").split()[2:])
+    assert xs[0] == 0 and ys[0] == 0 and xs[-1] + w >= width and ys[-1] + h >= height
+    assert all(b - a == pytest.approx(w - TILE_OVERLAP_MM) for a, b in zip(xs, xs[1:], strict=False))
+    assert all(b - a == pytest.approx(h - TILE_OVERLAP_MM) for a, b in zip(ys, ys[1:], strict=False))
+    assert len(tiles) == len(xs) * len(ys)
+
+
+def test_cli_tiles(tmp_path: Path) -> None:
+    out = tmp_path / "big.html"
+    with contextlib.redirect_stderr(io.StringIO()):
+        assert main(["ring", "--diameter-mm", "300", "--positions", "6", "--tiles",
+                     "-o", str(out)]) == 0
+    assert len(list(ET.parse(out).getroot().iter(f"{SVG}svg"))) == 4
+    err = io.StringIO()
+    with contextlib.redirect_stderr(err):
+        assert main(["ring", "--diameter-mm", "300", "--positions", "6", "--tiles", "--rim",
+                     "-o", str(tmp_path / "x")]) == 2
+    assert err.getvalue().count("\n") == 1

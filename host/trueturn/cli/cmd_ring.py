@@ -27,6 +27,9 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     parser.add_argument("--rim", action="store_true",
                         help="a straight strip (length pi x D) to wrap round a rim, instead "
                              "of a ring for the face")
+    parser.add_argument("--tiles", action="store_true",
+                        help="a ring larger than a sheet: write an HTML page with one 1:1 "
+                             "sheet per tile to print and tape together")
     parser.add_argument("--title", default="", help="a line of text printed on the ring")
     parser.add_argument("-o", "--output", default="ring.svg", metavar="FILE",
                         help="SVG file to write (default ring.svg; '-' for standard output)")
@@ -34,7 +37,7 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    from trueturn.jobs.ring import ring_svg, strip_svg
+    from trueturn.jobs.ring import ring_svg, ring_tiles_html, strip_svg
 
     if not math.isfinite(args.diameter_mm) or not 10.0 <= args.diameter_mm <= 2000.0:
         raise UserError(f"--diameter-mm {args.diameter_mm:g}: must be between 10 and 2000 mm")
@@ -42,6 +45,17 @@ def run(args: argparse.Namespace) -> int:
         raise UserError(f"--positions {args.positions}: must be between 1 and 360")
     if not math.isfinite(args.first_deg):
         raise UserError("--first-deg must be a number of degrees")
+    if args.tiles and args.rim:
+        raise UserError("choose --tiles (a big ring) or --rim (a strip), not both")
+    if args.tiles:
+        output = args.output if args.output != "ring.svg" else "ring.html"
+        page, tiles = ring_tiles_html(args.diameter_mm, args.positions, args.first_deg,
+                                      args.rotation, args.title)
+        _write(output, page)
+        if output != "-":
+            print(f"wrote {output}: {len(tiles)} sheet(s) to print at 100 % and tape together",
+                  file=sys.stderr)
+        return 0
     if args.rim:
         text, strip = strip_svg(args.diameter_mm, args.positions, args.first_deg, args.title)
         _write(args.output, text)
@@ -58,8 +72,8 @@ def run(args: argparse.Namespace) -> int:
               f"positions {layout.spacing_mm:.2f} mm apart on the rim; print at 100 %",
               file=sys.stderr)
     if not layout.fits_a4_and_letter:
-        print("note: larger than an A4/Letter sheet; print as tiles at 100 %, or use --rim "
-              "for a strip", file=sys.stderr)
+        print("note: larger than an A4/Letter sheet; use --tiles for sheets to tape together, "
+              "or --rim for a strip", file=sys.stderr)
     return 0
 
 

@@ -202,7 +202,7 @@ def ring_svg(diameter_mm: float, positions: int, first_deg: float = 0.0,
                    f'{line}</text>')
     if not lay.fits_a4_and_letter:
         out.append(f'<text x="{rx:g}" y="{ry + 21.5:g}" class="small">Larger than an A4 or '
-                   'Letter sheet: print as tiles (poster) at 100 % and tape them together.</text>')
+                   'Letter sheet: print with --tiles and tape the sheets together.</text>')
     out.append("</svg>")
     return "\n".join(out) + "\n", lay
 
@@ -326,3 +326,79 @@ def strip_svg(diameter_mm: float, positions: int, first_deg: float = 0.0,
                    f'{line}</text>')
     out.append("</svg>")
     return "\n".join(out) + "\n", lay
+
+
+# --------------------------------------------------------------------------------------------
+# Tiles: a ring larger than a sheet, cut into sheet-sized windows of the same 1:1 drawing.
+
+TILE_MM = (180.0, 245.0)  # fits A4 (186 x 273) and Letter (191.9 x 255.4) with 12 mm margins
+TILE_OVERLAP_MM = 10.0
+
+
+@dataclass(frozen=True)
+class Tile:
+    """One sheet: the window ``x_mm``..``x_mm + TILE_MM[0]`` (and y) of the whole drawing."""
+
+    row: int
+    column: int
+    x_mm: float
+    y_mm: float
+
+
+def plan_tiles(width_mm: float, height_mm: float) -> list[Tile]:
+    """Windows of ``TILE_MM`` stepping by the tile size less the overlap, covering it all."""
+    step_x, step_y = TILE_MM[0] - TILE_OVERLAP_MM, TILE_MM[1] - TILE_OVERLAP_MM
+    columns = max(1, math.ceil((width_mm - TILE_OVERLAP_MM) / step_x - 1e-9))
+    rows = max(1, math.ceil((height_mm - TILE_OVERLAP_MM) / step_y - 1e-9))
+    return [Tile(r + 1, c + 1, c * step_x, r * step_y) for r in range(rows) for c in range(columns)]
+
+
+def ring_tiles_html(diameter_mm: float, positions: int, first_deg: float = 0.0,
+                    rotation: str = "cw", title: str = "") -> tuple[str, list[Tile]]:
+    """An HTML page with one sheet per tile of the ring drawing, each printed at 1:1.
+
+    Neighbouring tiles share a 10 mm band (shaded on the right and bottom edges) so they can
+    be laid over each other and taped; each sheet has its own 50 mm scale check.
+    """
+    text, layout = ring_svg(diameter_mm, positions, first_deg, rotation, title)
+    start = text.index("<svg")
+    inner = text[text.index(">", start) + 1:text.rindex("</svg>")]
+    tiles = plan_tiles(layout.width_mm, layout.height_mm)
+    columns = max(t.column for t in tiles)
+    rows = max(t.row for t in tiles)
+    w, h = TILE_MM
+    sheets = []
+    for tile in tiles:
+        x, y = tile.x_mm, tile.y_mm
+        overlay = [
+            f'<rect x="{x + w - TILE_OVERLAP_MM:g}" y="{y:g}" width="{TILE_OVERLAP_MM:g}" '
+            f'height="{h:g}" fill="#000" fill-opacity="0.06"/>' if tile.column < columns else "",
+            f'<rect x="{x:g}" y="{y + h - TILE_OVERLAP_MM:g}" width="{w:g}" '
+            f'height="{TILE_OVERLAP_MM:g}" fill="#000" fill-opacity="0.06"/>' if tile.row < rows
+            else "",
+            f'<rect class="tile-edge" x="{x:g}" y="{y:g}" width="{w:g}" height="{h:g}" '
+            'fill="none" stroke="#000" stroke-width="0.2" stroke-dasharray="2 2"/>',
+            f'<rect x="{x + 2:g}" y="{y + 1:g}" width="130" height="10.5" fill="#fff"/>',
+            f'<text x="{x + 3:g}" y="{y + 4:g}" class="info">sheet row {tile.row}, column '
+            f'{tile.column} of {rows} x {columns}: lay the next sheet over the shaded band</text>',
+            f'<rect class="tile-ruler" x="{x + 3:g}" y="{y + 6:g}" width="50" height="4" '
+            'fill="none" stroke="#000" stroke-width="0.2"/>',
+            *[f'<line x1="{x + 3 + k:g}" y1="{y + 10:g}" x2="{x + 3 + k:g}" '
+              f'y2="{y + (7.5 if k % 10 else 6):g}" stroke="#000" stroke-width="0.12"/>'
+              for k in range(0, 51, 5)],
+            f'<text x="{x + 55:g}" y="{y + 9.5:g}" class="small">this box is 50 mm</text>',
+        ]
+        sheets.append(
+            f'<div class="sheet"><svg xmlns="http://www.w3.org/2000/svg" width="{w:g}mm" '
+            f'height="{h:g}mm" viewBox="{x:g} {y:g} {w:g} {h:g}" data-row="{tile.row}" '
+            f'data-column="{tile.column}">{inner}{"".join(overlay)}</svg></div>')
+    page = "\n".join([
+        '<!DOCTYPE html>',
+        '<html xmlns="http://www.w3.org/1999/xhtml" lang="en"><head><meta charset="utf-8"/>',
+        f'<title>trueturn angle ring, diameter {diameter_mm:g} mm, {len(tiles)} sheets</title>',
+        '<style>@page { margin: 12mm; } body { margin: 0; } '
+        '.sheet { break-after: page; page-break-after: always; } '
+        '.sheet:last-child { break-after: auto; page-break-after: auto; } '
+        'svg { display: block; }</style></head><body>',
+        *sheets, '</body></html>'])
+    return page + "\n", tiles

@@ -120,10 +120,16 @@ def revolution_basis(theta_rad: np.ndarray, orders: tuple[int, ...]) -> np.ndarr
 def tone_basis(times_s: np.ndarray, tones_hz: tuple[float, ...]) -> np.ndarray:
     """Columns ``[cos(2 pi f t), sin(2 pi f t) for f in tones_hz]`` (n, 2 len(tones_hz))."""
     out = np.empty((times_s.shape[0], 2 * len(tones_hz)))
+    done: dict[float, np.ndarray] = {}
     for k, f in enumerate(tones_hz):
-        phase = (2.0 * math.pi * f) * times_s
-        out[:, 2 * k] = np.cos(phase)
-        out[:, 2 * k + 1] = np.sin(phase)
+        base = next((g for g in done if g > 0 and f == 2 * g), None)
+        if base is not None:  # twice an earlier tone: square it instead of a new exp
+            z = done[base] * done[base]
+        else:
+            z = np.exp((2j * math.pi * f) * times_s)
+        done[f] = z
+        out[:, 2 * k] = z.real
+        out[:, 2 * k + 1] = z.imag
     return out
 
 

@@ -30,6 +30,7 @@ from trueturn.errors import UserError
 from trueturn.jobs.profiles import MachineProfile
 from trueturn.jobs.records import CoefficientSet, JobRecord, PendingStep, Run, Verdict, now_iso
 from trueturn.jobs.schema import (
+    LineDict,
     Migration,
     SchemaError,
     dump_yaml_text,
@@ -148,8 +149,12 @@ _HEADERS = {
 
 def document_text(kind: str, obj: Any) -> str:
     """The YAML text of a document: header comment, ``schema_version``, ``kind``, fields."""
-    data = {"schema_version": SCHEMA_VERSION, "kind": kind, **to_data(obj)}
-    return dump_yaml_text(data, header=_HEADERS[kind])
+    return _document_text_of_data(kind, to_data(obj))
+
+
+def _document_text_of_data(kind: str, data: dict[str, Any]) -> str:
+    return dump_yaml_text({"schema_version": SCHEMA_VERSION, "kind": kind, **data},
+                          header=_HEADERS[kind])
 
 
 def parse_document(text: str, kind: str, source: str) -> Any:
@@ -173,9 +178,8 @@ def parse_document(text: str, kind: str, source: str) -> Any:
     if found_kind != kind:
         raise SchemaError(f"{source}:{lines.get('kind', 1)}: kind: expected {kind!r}, "
                           f"got {found_kind!r}")
-    body = {k: v for k, v in data.items() if k not in ("schema_version", "kind")}
-    if isinstance(data, dict) and hasattr(data, "key_lines"):
-        body = _keep_lines(data, body)
+    body = _keep_lines(data, {k: v for k, v in data.items()
+                              if k not in ("schema_version", "kind")})
     for step in range(version, SCHEMA_VERSION):
         migrate = MIGRATIONS[kind].get(step)
         if migrate is None:
@@ -184,12 +188,11 @@ def parse_document(text: str, kind: str, source: str) -> Any:
     return from_data(_KIND_CLASS[kind], body, source)
 
 
-def _keep_lines(original: Any, body: dict[str, Any]) -> Any:
-    from trueturn.jobs.schema import LineDict
-
+def _keep_lines(original: Any, body: dict[str, Any]) -> LineDict:
+    """``body`` as a LineDict that keeps the original mapping's line numbers."""
     result = LineDict(body)
-    result.line = original.line
-    result.key_lines = {k: v for k, v in original.key_lines.items() if k in body}
+    result.line = getattr(original, "line", 1)
+    result.key_lines = {k: v for k, v in getattr(original, "key_lines", {}).items() if k in body}
     return result
 
 
@@ -211,7 +214,7 @@ def write_document(path: Path, kind: str, obj: Any) -> Path:
     file that the tool itself would refuse to open)."""
     data = to_data(obj)
     from_data(_KIND_CLASS[kind], data, f"{path} (not saved)")  # the same checks as loading
-    return atomic_write_text(path, document_text(kind, obj))
+    return atomic_write_text(path, _document_text_of_data(kind, data))
 
 
 # --------------------------------------------------------------------------------------------

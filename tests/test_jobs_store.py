@@ -176,7 +176,9 @@ def test_unknown_field_is_a_typo_not_silently_dropped() -> None:
 
 def test_cross_field_rule_and_references() -> None:
     text = demo_text().replace("sensor: left bearing", "sensor: left bearng", 1)
-    assert "runs[0]: sensor 'left bearng' is not a pickup of the machine" in error_of(text)
+    message = error_of(text)
+    assert "runs[0]: sensor 'left bearng' is not a pickup of the machine" in message
+    assert message.startswith(f"jobs/x.yaml:{line_of(text, '- index: 1')}:")  # that run's line
     text = demo_text().replace("  speed_min_rpm: 2800\n", "  speed_min_rpm: 3500\n")
     assert "machine.speed_min_rpm: must not exceed speed_max_rpm" in error_of(text)
 

@@ -256,7 +256,14 @@ def _from_mapping(cls: type, value: Any, ctx: _Context) -> Any:
     checks = getattr(obj, "_checks", None)
     if checks is not None:
         for field_name, message in checks():
-            ctx.child(field_name, key_lines.get(field_name.split("[")[0], own_line)).fail(message)
+            name, _, index = field_name.partition("[")
+            line = key_lines.get(name, own_line)
+            if index:  # "runs[2]": the line of that list item
+                item_lines = getattr(value.get(name), "item_lines", [])
+                position = int(index.rstrip("]"))
+                if position < len(item_lines):
+                    line = item_lines[position]
+            ctx.child(field_name, line).fail(message)
     return obj
 
 

@@ -12,7 +12,7 @@ from trueturn.errors import UserError
 def add_parser(sub: argparse._SubParsersAction) -> None:
     parser = sub.add_parser(
         "ring", help="write a printable 1:1 angle ring for a rotor (SVG)",
-        description="Write an SVG angle ring to print at 100 %% and lay on the rotor: 0 deg at "
+        description="Write an SVG angle ring to print at 100 % and lay on the rotor: 0 deg at "
                     "the reference mark, degree ticks, the weight positions numbered against "
                     "rotation, and a 100 mm box to check the printed scale.")
     parser.add_argument("--diameter-mm", type=float, required=True, metavar="D",
@@ -32,7 +32,8 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                              "sheet per tile to print and tape together")
     parser.add_argument("--title", default="", help="a line of text printed on the ring")
     parser.add_argument("-o", "--output", default="ring.svg", metavar="FILE",
-                        help="SVG file to write (default ring.svg; '-' for standard output)")
+                        help="file to write (default ring.svg, ring.html with --tiles; '-' for "
+                             "standard output)")
     parser.set_defaults(run=run)
 
 

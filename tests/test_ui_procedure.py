@@ -32,7 +32,8 @@ ALL_DONE = set(range(len(DONE_CHECKLIST)))
 class Rig:
     """A bench for the procedure: the scenario's rotor physics and a board clock."""
 
-    def __init__(self, name: str, mode: Mode) -> None:
+    def __init__(self, name: str, mode: Mode, correction_scale: float = 1.0) -> None:
+        self.correction_scale = correction_scale  # < 1: the person's weights come out light
         self.scenario = load_scenario(name)
         self.profile = profile_from_scenario(self.scenario)
         self.setup = setup_from_profile(self.profile, mode, standstill_s=3.0,
@@ -74,7 +75,8 @@ class Rig:
             if c.mass is None:
                 continue
             m = c.mass
-            mass = Mass(m.plane, -m.mass_g if m.removal else m.mass_g, m.angle_deg)
+            grams = m.mass_g * (self.correction_scale if m.kind == "correction" else 1.0)
+            mass = Mass(m.plane, -grams if m.removal else grams, m.angle_deg)
             if c.action == "attach":
                 self.masses.append(mass)
             else:
@@ -225,3 +227,19 @@ def test_amplitude_only_four_run_method_on_the_fan() -> None:
     after = rig.scenario.rotor.response_1x(rig.setup.speed_rpm, rig.masses)
     name = next(iter(before))
     assert abs(after[name]) < 0.25 * abs(before[name])
+
+
+def test_a_light_correction_leads_to_a_trim_and_then_a_pass() -> None:
+    # The person's correction weights come out 40 % light: the check run fails the grade,
+    # the guide computes a trim from every run so far, and the trim brings it within.
+    rig = Rig("bench-grinder", Mode.TWO_PLANE, correction_scale=0.6)
+    before = rig.scenario.rotor.response_1x(rig.setup.speed_rpm, rig.masses)
+    rig.complete()
+    proc = rig.proc
+    assert proc.trims_done >= 1
+    assert proc.runs[4].label == "check after trim 1"
+    assert proc.verdict is not None and proc.verdict.passed
+    assert any(m.kind == "trim" for m in proc.on_rotor)
+    after = rig.scenario.rotor.response_1x(rig.setup.speed_rpm, rig.masses)
+    for name in before:
+        assert abs(after[name]) < 0.1 * abs(before[name])  # physics truth, as above

@@ -149,7 +149,7 @@ class BenchScreen(Screen):
         Binding("3", "tick(3)", show=False), Binding("4", "tick(4)", show=False),
         Binding("r", "removal", "Add/remove", show=False),
         Binding("o", "motor(True)", "Motor on", show=False),
-        Binding("x", "motor(False)", "Motor off"),
+        Binding("x", "motor(False)", "Motor off", show=False),
         Binding("c", "app.cautions", "Cautions"),
         Binding("question_mark", "app.keys", "Keys"),
         Binding("f1", "app.keys", "Keys", show=False),
@@ -202,6 +202,7 @@ class TrueturnApp(App):
 
     TITLE = "trueturn"
     CSS_PATH = "app.tcss"
+    ENABLE_COMMAND_PALETTE = False
     BINDINGS = [Binding("ctrl+c", "quit", "Quit", show=False)]
 
     def __init__(self, config: AppConfig) -> None:
@@ -403,12 +404,13 @@ class TrueturnApp(App):
         board = f"{ident.board} fw {ident.firmware} · protocol v{ident.protocol_version}" \
             if ident else "no board"
         speed = snap.meter.speed_rpm
+        turning = self.session.watch.last_edge_s is not None and snap.quiet_s < 1.0
         if snap.standstill:
             motion = f"[green]STANDSTILL[/] ({snap.quiet_s:.0f} s no tach edge)"
-        elif speed:
-            motion = f"[b red]TURNING {speed:.0f} rpm[/]"
+        elif turning:
+            motion = f"[b red]TURNING {speed or 0:.0f} rpm[/]"
         else:
-            motion = f"[yellow]checking… {snap.quiet_s:.1f} s quiet[/]"
+            motion = f"[yellow]checking standstill… {snap.quiet_s:.1f} s quiet[/]"
         c = snap.counters
         lost = (f"lost: {c.get('samples_lost', 0) + snap.board_samples_dropped} samples, "
                 f"{c.get('frames_lost', 0) + c.get('frames_bad', 0) + snap.board_frames_dropped}"
@@ -483,7 +485,10 @@ class TrueturnApp(App):
         body.update(self._step_text(proc, snap))
         if proc.step.kind == "run" and proc.step.phase == "running":
             bar.set_class(True, "shown")
-            bar.update(progress=100 * proc.progress(snap.meter.readings))
+            done = proc.progress(snap.meter.readings)
+            if not proc.ready(snap.meter.readings):
+                done = min(done, 0.95)  # full only when every pickup has settled
+            bar.update(progress=100 * done)
 
     def _setup_text(self) -> str:
         prof = self.config.profile
@@ -505,24 +510,29 @@ class TrueturnApp(App):
         n = len(proc.runs)
         head = f"[b]{step.title}[/b]   [dim](runs so far: {n})[/dim]"
         lines = [head]
-        turning = not snap.standstill
+        watch = self.session.watch
+        turning = not snap.standstill and watch.last_edge_s is not None and snap.quiet_s < 1.0
+        checking = not snap.standstill and not turning
         if step.kind == "hands-on":
             for change in step.changes:
                 lines.append("  " + describe_change(change, proc, self.engine))
             items = proc.checklist()
+            if turning:
+                how = "press [b]x[/b] (demo motor off)" if self.rig else \
+                    "switch the machine off"
+                lines.append(f"[b red]Rotor not at standstill: {how} and wait "
+                             f"{proc.setup.standstill_s:.0f} s.[/]")
+            elif checking:
+                lines.append(f"[yellow]Checking standstill: {snap.quiet_s:.1f} of "
+                             f"{proc.setup.standstill_s:.0f} s without a tach edge…[/]")
+            else:
+                lines.append("[green]Tach confirms standstill.[/green]")
             if step.phase == "lockout":
-                if turning:
-                    how = "press [b]x[/b] (demo motor off)" if self.rig else \
-                        "switch the machine off"
-                    lines.append(f"[b red]Rotor not at standstill: {how} and wait "
-                                 f"{proc.setup.standstill_s:.0f} s.[/]")
-                else:
-                    lines.append("[green]Tach confirms standstill.[/green]")
                 lines.append("Before you reach in, tick:")
             else:
                 lines.append("Do the work now. When it is done, tick:")
             for i, item in enumerate(items):
-                box = "[x]" if i in self.ticked else "[ ]"
+                box = "\\[x]" if i in self.ticked else "\\[ ]"
                 lines.append(f"  {box} [b]{i + 1}[/b] {item}")
             lines.append("[b]Enter[/b]: " + ("locked out, I will work on the rotor"
                                              if step.phase == "lockout" else
@@ -554,6 +564,10 @@ class TrueturnApp(App):
                     st = "[green]steady[/]" if r.steady else "[yellow]settling[/]"
                     lines.append(f"  {name}: {r.amplitude:.3f} {r.unit} at {ph} "
                                  f"±{r.confidence_deg:.0f}°, {r.revolutions} rev, {st}")
+                waiting = [r for r in (meter.readings.get(n) for n in proc.setup.sensors)
+                           if r is not None and not proc.settled(r)]
+                if waiting and meter.warnings:
+                    lines.append(f"[yellow]Not ready: {meter.warnings[0]}[/]")
                 lines.append("Stop at once on a warning below.")
         elif step.kind == "correction":
             sol = proc.solution
@@ -581,6 +595,9 @@ class TrueturnApp(App):
                 lines.append(f"  {plane}: residual {res:.1f} g·mm, permissible {per:.1f} g·mm")
             if v.note:
                 lines.append(v.note)
+            if turning:
+                lines.append("[b]Switch the machine off[/b]" +
+                             (" (x for the demo motor)." if self.rig else "."))
             if proc.finished:
                 lines.append(f"Saved: {self.keeper.path}")
                 if self.keeper.report_path:
@@ -592,6 +609,7 @@ class TrueturnApp(App):
 
 def describe_change_part(p, proc: Procedure) -> str:  # type: ignore[no-untyped-def]
     """One correction part as a line (position, angle, mass, add or remove)."""
-    where = f"position {p.position + 1} " if p.position is not None else ""
+    where = f"position {p.position + 1} ({p.angle_deg:.0f}°)" if p.position is not None \
+        else f"{p.angle_deg:.0f}°"
     verb = "remove" if p.removal else "add"
-    return f"{p.plane}: {verb} {abs(p.mass_g):.2f} g at {where}({p.angle_deg:.0f}°)"
+    return f"{p.plane}: {verb} {abs(p.mass_g):.2f} g at {where}"

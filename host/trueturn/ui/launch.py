@@ -6,7 +6,7 @@ from pathlib import Path
 
 from trueturn.errors import UserError
 from trueturn.jobs.profiles import MachineProfile
-from trueturn.jobs.store import Workspace, read_document
+from trueturn.jobs.store import Workspace
 from trueturn.link.ports import list_board_ports
 from trueturn.ui.app import AppConfig, TrueturnApp
 
@@ -41,10 +41,9 @@ def _scheme(url: str) -> str | None:
 
 def choose_profile(port: str, job: str | None, machine: str | None,
                    workspace: str | None) -> MachineProfile:
-    """The machine: from --job (if it exists), --machine, the scenario, or the only one saved."""
+    """The machine: --machine, the virtual rig's scenario, or the only one saved."""
+    del job
     ws = Workspace.open(workspace)
-    if job is not None and Path(job).is_file():
-        return read_document(Path(job), "job").machine
     if machine is not None:
         return ws.load_machine(machine)
     if _scheme(port) in ("sim", "emu"):
@@ -67,6 +66,9 @@ def launch_port(port: str | None, job: str | None = None, machine: str | None = 
             raise UserError("no board found on any USB serial port: plug it in, or give "
                             "--port (try: trueturn ports), or try: trueturn demo")
         port = found[0].device
+    if job is not None and Path(job).exists():
+        raise UserError(f"{job} exists: the app writes a new job file and never overwrites "
+                        "one; give a new name (use --machine to pick the machine)")
     profile = choose_profile(port, job, machine, workspace)
     scheme = _scheme(port)
     return _run(AppConfig(port, profile, demo=scheme == "sim",

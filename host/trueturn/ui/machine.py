@@ -73,5 +73,9 @@ def describe_change(change: MassChange, proc: Procedure, engine: BalanceEngine) 
     if m.removal:
         return (f"Remove {abs(m.mass_g):.2f} g of material from {m.plane} at {where}, "
                 f"r {plane.radius_mm:g} mm (where the maker allows).")
-    return (f"Attach {m.kind} mass [b]{m.mass_g:.2f} g[/b] on {m.plane} at {where}, "
-            f"r {plane.radius_mm:g} mm: {force:.1f} N at {proc.setup.speed_rpm:.0f} rpm.")
+    text = (f"Attach {m.kind} mass [b]{m.mass_g:.2f} g[/b] on {m.plane} at {where}, "
+            f"r {plane.radius_mm:g} mm: {force:.1f} N at {proc.setup.speed_rpm:.0f} rpm")
+    if m.kind == "trial":
+        ratio = engine.trial_mass(proc.setup, plane).force_ratio
+        text += f" (about {ratio:.0%} of the rotor's weight)"
+    return text + "."

@@ -121,7 +121,8 @@ class PolarPlot(Widget):
                 canvas.line(cx, cy, x, y, p.style)
             else:
                 canvas.dot(x, y, p.style)
-        for p in self.points:
+        # Earlier runs' digits first, live vector letters last so they stay readable.
+        for p in sorted(self.points, key=lambda q: q.current):
             x, y = xy(p.amplitude / full, p.phase_deg)
             canvas.label(int(x // 2), int(y // 4), p.tag, f"bold {p.style}".strip())
         top_x, top_y = xy(1.0, 0.0)

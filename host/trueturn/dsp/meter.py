@@ -171,12 +171,16 @@ class LiveAnalyzer:
     each profile's default; ``mains_hz`` 50 or 60 (hum at it and twice it is fitted out);
     ``max_revs`` revolutions averaged (a sliding window); ``batch_revs`` revolutions fitted
     together when nobody asks for readings in between (bounded memory in batch use).
+    ``hum_spread_hz``: the grid is never exactly at 50/60 Hz, so each hum frequency is fitted
+    as a comb of three tones ``f, f +/- spread`` (twice the spread at 2x line), which follows
+    a grid off by a few hundredths of a hertz over a window of a few seconds; 0 fits one tone.
     """
 
     def __init__(self, profiles: Sequence[PickupProfile] = (), unit: str | None = None,
                  mains_hz: float | None = 50.0, max_revs: int = 100,
                  orders: tuple[int, ...] = (1, 2, 3), limits: SteadinessLimits | None = None,
-                 spectrum_seconds: float = 4.0, batch_revs: int = 64) -> None:
+                 spectrum_seconds: float = 4.0, batch_revs: int = 64,
+                 hum_spread_hz: float = 0.1) -> None:
         if 1 not in orders:
             raise ValueError("orders must include 1")
         self.profiles = tuple(profiles)
@@ -187,6 +191,7 @@ class LiveAnalyzer:
         self.limits = limits or SteadinessLimits()
         self.spectrum_seconds = spectrum_seconds
         self.batch_revs = batch_revs
+        self.hum_spread_hz = hum_spread_hz
         self.tick_hz = DEFAULT_TICK_HZ
         self.adc_bits = DEFAULT_ADC_BITS
         self.reference_mv = DEFAULT_REFERENCE_MV
@@ -351,11 +356,23 @@ class LiveAnalyzer:
                         ready[-1].end_tick)
         self._trim(keep_from)
 
-    def _nuisance_hz(self) -> tuple[float, ...]:
+    def _hum_groups(self) -> dict[float, tuple[float, ...]]:
+        """Hum frequency -> the comb of tones fitted for it (below the Nyquist frequency)."""
         if not self.mains_hz:
-            return ()
+            return {}
         nyquist = self.rate_hz / 2.0
-        return tuple(f for f in (self.mains_hz, 2.0 * self.mains_hz) if f < nyquist)
+        groups = {}
+        for multiple in (1, 2):
+            base = multiple * self.mains_hz
+            spread = multiple * self.hum_spread_hz
+            comb = (base - spread, base, base + spread) if spread > 0 else (base,)
+            comb = tuple(f for f in comb if 0 < f < nyquist)
+            if comb:
+                groups[base] = comb
+        return groups
+
+    def _nuisance_hz(self) -> tuple[float, ...]:
+        return tuple(f for comb in self._hum_groups().values() for f in comb)
 
     # ---------------------------------------------------------------- results
     @property
@@ -443,11 +460,14 @@ class LiveAnalyzer:
         steady, reasons = steadiness(vstats, speeds, self.limits)
         warnings += [f"{profile.name}: {r}" for r in reasons]
         mean_hz = float(freqs_hz.mean()) if freqs_hz.size else math.nan
-        for f in est.dropped_hz:
-            order = round(f / mean_hz) if mean_hz > 0 else 0
+        groups = self._hum_groups()
+        for base, comb in groups.items():
+            if not any(f in est.dropped_hz for f in comb):
+                continue
+            order = round(base / mean_hz) if mean_hz > 0 else 0
             what = f"{order}x" if order in self.orders else "an order"
-            warnings.append(f"{what} falls on {f:g} Hz, a mains hum frequency: any hum there "
-                            "adds to it (a slightly different speed separates them)")
+            warnings.append(f"{what} is too close to {base:g} Hz, a mains hum frequency: any "
+                            "hum there adds to it (a slightly different speed separates them)")
         harmonics = []
         for k, h in enumerate(self.orders):
             mean_v = complex(est.phasors[:, k].mean()) * vpc if len(est.phasors) else 0j
@@ -462,7 +482,7 @@ class LiveAnalyzer:
             steady=steady, speed_rpm=float(speeds.mean()) if speeds.size else math.nan,
             warnings=tuple(warnings), harmonics=tuple(harmonics),
             noise_rms_v=est.noise_rms * vpc,
-            hum_v={f: abs(z) * vpc for f, z in est.nuisance.items()},
+            hum_v={base: est.tone_amplitude(comb) * vpc for base, comb in groups.items()},
         )
 
     def spectra(self, resolution_hz: float = 1.0) -> list[Spectrum | None]:

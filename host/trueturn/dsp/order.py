@@ -30,13 +30,14 @@ here replaced by fitting directly at the sample angles).
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
-# A nuisance tone whose energy is mostly explained by the per-revolution model (it sits on
-# an order, e.g. 3000 rpm on 50 Hz mains) cannot be told apart from it; it is dropped.
-MIN_NUISANCE_KEPT_FRACTION = 0.02
+# A nuisance tone whose energy is half explained by the window's synchronous model (it lies
+# within about half a beat per window of an order, e.g. 3000 rpm on 50 Hz mains) cannot be
+# told apart from that order without inflating its error; it is dropped and reported.
+MIN_NUISANCE_KEPT_FRACTION = 0.5
 
 
 @dataclass(frozen=True)
@@ -98,6 +99,21 @@ class OrderEstimate:
     noise_rms: float
     dropped_hz: tuple[float, ...]
     nuisance: dict[float, complex]
+    nuisance_hz: tuple[float, ...] = ()
+    gamma: np.ndarray = field(default_factory=lambda: np.zeros(0))
+    nuisance_gram: np.ndarray = field(default_factory=lambda: np.zeros((0, 0)))
+    samples: int = 0
+
+    def tone_amplitude(self, tones_hz: tuple[float, ...]) -> float:
+        """Peak amplitude of the fitted waveform of some nuisance tones together (a comb
+        around one hum frequency), from its mean power over the window."""
+        cols = [c for k, f in enumerate(self.nuisance_hz) if f in tones_hz
+                for c in (2 * k, 2 * k + 1)]
+        if not cols or not self.samples:
+            return 0.0
+        g = self.gamma[cols]
+        power = float(g @ self.nuisance_gram[np.ix_(cols, cols)] @ g) / self.samples
+        return math.sqrt(2.0 * max(power, 0.0))
 
 
 def revolution_basis(theta_rad: np.ndarray, orders: tuple[int, ...]) -> np.ndarray:
@@ -118,15 +134,38 @@ def revolution_basis(theta_rad: np.ndarray, orders: tuple[int, ...]) -> np.ndarr
 
 
 def tone_basis(times_s: np.ndarray, tones_hz: tuple[float, ...]) -> np.ndarray:
-    """Columns ``[cos(2 pi f t), sin(2 pi f t) for f in tones_hz]`` (n, 2 len(tones_hz))."""
+    """Columns ``[cos(2 pi f t), sin(2 pi f t) for f in tones_hz]`` (n, 2 len(tones_hz)).
+
+    Related tones (twice another, or another plus a difference already at hand, as in a
+    comb ``f, f +/- d``) are built by complex products instead of new exponentials.
+    """
     out = np.empty((times_s.shape[0], 2 * len(tones_hz)))
     done: dict[float, np.ndarray] = {}
+    diffs: dict[float, np.ndarray] = {}
+
+    def near(table: dict[float, np.ndarray], f: float) -> float | None:
+        return next((g for g in table if abs(g - f) < 1e-9), None)
+
     for k, f in enumerate(tones_hz):
-        base = next((g for g in done if g > 0 and f == 2 * g), None)
-        if base is not None:  # twice an earlier tone: square it instead of a new exp
-            z = done[base] * done[base]
+        z = None
+        half = near(done, f / 2.0)
+        if half is not None:
+            z = done[half] * done[half]
         else:
+            for g, zg in done.items():
+                d = near(diffs, f - g)
+                if d is not None:
+                    z = zg * diffs[d]
+                    break
+                d = near(diffs, g - f)
+                if d is not None:
+                    z = zg * np.conj(diffs[d])
+                    break
+        if z is None:
             z = np.exp((2j * math.pi * f) * times_s)
+            for g, zg in done.items():
+                if g < f and near(diffs, f - g) is None:
+                    diffs[f - g] = z * np.conj(zg)
         done[f] = z
         out[:, 2 * k] = z.real
         out[:, 2 * k + 1] = z.imag
@@ -206,8 +245,10 @@ def solve_orders(fit: BlockFit) -> OrderEstimate:
 
     ``fit`` may be stacked from several blocks (:func:`join_fits`). Revolutions with NaN
     coefficients (too few samples) are left out. A tone that the window cannot tell apart
-    from the synchronous model (less than 2 % of its energy left after projecting the model
-    out: it sits within about one beat per window of an order) is dropped and reported.
+    from the synchronous model (less than half its energy left after projecting the model
+    out: it lies within about half a beat per window of an order) is dropped and reported.
+    Tones may be close together (a comb around a hum frequency that is not exactly known);
+    the solve is a minimum-norm least squares, so only the fitted waveform matters.
     """
     good = np.isfinite(fit.coef_y).all(axis=1)
     coef_y, coef_n = fit.coef_y[good], fit.coef_n[good]
@@ -217,6 +258,7 @@ def solve_orders(fit: BlockFit) -> OrderEstimate:
     p = coef_y.shape[1]
     gamma = np.zeros(q)
     dropped: list[float] = []
+    nn = np.zeros((q, q))
     if q and len(coef_y):
         # window model: synchronous coefficients common to all revolutions, tones shared
         aa = fit.gram_aa[good].sum(axis=0)
@@ -236,7 +278,7 @@ def solve_orders(fit: BlockFit) -> OrderEstimate:
                 keep[cols] = False
                 dropped.append(f)
         if keep.any():
-            gamma[keep] = np.linalg.lstsq(s_nn[np.ix_(keep, keep)], s_ny[keep], rcond=None)[0]
+            gamma[keep] = np.linalg.lstsq(s_nn[np.ix_(keep, keep)], s_ny[keep], rcond=1e-10)[0]
     beta = coef_y - np.einsum("rpq,q->rp", coef_n, gamma)
     resid = resid_yy - 2 * np.einsum("rq,q->r", schur_ny, gamma) \
         + np.einsum("q,rqk,k->r", gamma, schur_nn, gamma)
@@ -245,7 +287,8 @@ def solve_orders(fit: BlockFit) -> OrderEstimate:
     phasors = beta[:, 1::2] + 1j * beta[:, 2::2]
     nuisance = {f: complex(gamma[2 * k], gamma[2 * k + 1])
                 for k, f in enumerate(fit.nuisance_hz) if f not in dropped}
-    return OrderEstimate(fit.orders, phasors, beta[:, 0], noise_rms, tuple(dropped), nuisance)
+    return OrderEstimate(fit.orders, phasors, beta[:, 0], noise_rms, tuple(dropped), nuisance,
+                         tuple(fit.nuisance_hz), gamma, nn, int(sample_counts.sum()))
 
 
 def estimate_orders(sample_ticks: np.ndarray, values: np.ndarray, starts: np.ndarray,

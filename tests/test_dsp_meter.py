@@ -162,12 +162,15 @@ def test_rc_filter_phase_is_compensated() -> None:
 
 
 def test_updates_every_second_without_tach() -> None:
-    raw, _ = synthesize(SyntheticRun(**{**RUN.__dict__, "duration_s": 3.5,
-                                        "missing_edges": tuple(range(200))}))
+    raw, _ = synthesize(SyntheticRun(**{**RUN.__dict__, "duration_s": 12.5,
+                                        "missing_edges": tuple(range(1000))}))
     meter = LiveAnalyzer()
     updates = sum(meter.feed(m) for m in _messages(raw))
-    assert updates == 3  # one per second of stream time
+    assert updates == 12  # one per second of stream time
     assert meter.readings() == []
+    # with no tach, raw samples are kept for at most the longest revolution measured (10 s)
+    held = sum(v.size for _, v in meter._chunks)
+    assert held <= 2 * 4000 * 10 + 240
     assert any("tach" in w for w in meter.stream_warnings())
 
 

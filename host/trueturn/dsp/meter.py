@@ -42,6 +42,7 @@ from trueturn.dsp.units import (
 DEFAULT_TICK_HZ = 2_000_000
 DEFAULT_ADC_BITS = 10
 DEFAULT_REFERENCE_MV = 5000
+MAX_REVOLUTION_S = 10.0  # slowest shaft measured: 6 rpm
 
 
 class MessageLike(Protocol):
@@ -292,9 +293,11 @@ class LiveAnalyzer:
         if ready >= self.batch_revs:
             self._process()
         elif not self._pending:
+            # keep what the revolution in progress needs, but never more than the longest
+            # revolution measured (MAX_REVOLUTION_S): a stopped shaft must not fill memory
+            oldest = self._latest_tick - int(MAX_REVOLUTION_S * self.tick_hz)
             last_edge = self.tach.last_edge_tick
-            self._trim(last_edge if last_edge is not None
-                       else self._latest_tick - int(2 * self.tick_hz))
+            self._trim(max(last_edge, oldest) if last_edge is not None else oldest)
         # new revolutions, or a second of stream time without any (slow shaft, lost tach):
         # either way the display should refresh
         if ready or self._latest_tick - self._last_update_tick >= self.tick_hz:

@@ -243,3 +243,18 @@ def test_a_light_correction_leads_to_a_trim_and_then_a_pass() -> None:
     after = rig.scenario.rotor.response_1x(rig.setup.speed_rpm, rig.masses)
     for name in before:
         assert abs(after[name]) < 0.1 * abs(before[name])  # physics truth, as above
+
+
+def test_a_silent_tach_proves_nothing_after_a_board_reset() -> None:
+    # After the link restarts (board reset), "no tach edges" could be a dead tach: the gate
+    # wants to see the tach working again before it trusts the quiet.
+    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+    rig.hands_on()
+    rig.run()
+    rig.proc.watch.reset()
+    rig.rest(10.0)
+    with pytest.raises(GateRefused, match="tach has not seen the rotor turn"):
+        rig.proc.lock_out(ALL_LOCKOUT, rig.t)
+    rig.spin(1.0, 300.0)
+    rig.rest(3.5)
+    rig.proc.lock_out(ALL_LOCKOUT, rig.t)

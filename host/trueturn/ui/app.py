@@ -8,6 +8,7 @@ the :class:`~trueturn.ui.session.LinkSession`; the screen polls a snapshot ten t
 
 from __future__ import annotations
 
+import contextlib
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -248,7 +249,9 @@ class TrueturnApp(App):
             try:
                 handled = self.session.pump()
             except LinkProblem as exc:
-                self.call_from_thread(self.lost_link, str(exc))
+                if not worker.is_cancelled:  # not a port we closed ourselves on quit
+                    with contextlib.suppress(RuntimeError):
+                        self.call_from_thread(self.lost_link, str(exc))
                 return
             # Sleep a little every time: a fast virtual rig must not starve the screen.
             time.sleep(0.001 if handled else 0.003)
@@ -534,6 +537,8 @@ class TrueturnApp(App):
             for i, item in enumerate(items):
                 box = "\\[x]" if i in self.ticked else "\\[ ]"
                 lines.append(f"  {box} [b]{i + 1}[/b] {item}")
+            lines.append("[dim]c: cautions. Follow the machine maker's instructions for "
+                         "fastening and removal.[/dim]")
             lines.append("[b]Enter[/b]: " + ("locked out, I will work on the rotor"
                                              if step.phase == "lockout" else
                                              "done, safe to run"))

@@ -54,6 +54,7 @@ DONE_CHECKLIST: tuple[str, ...] = (
 DEFAULT_STANDSTILL_S = 3.0
 DEFAULT_RUNAWAY_FACTOR = 3.0
 DEFAULT_PHASE_LIMIT_DEG = 5.0  # the DSP's default phase confidence for a steady reading
+TACH_PROVEN_EDGES = 10  # edges seen before "no edges" is trusted as standstill
 SMALL_VECTOR_FRACTION = 0.05  # below 5 % of the as-found 1x, a tight circle is enough
 
 
@@ -231,6 +232,7 @@ class StandstillWatch:
         self.first_s: float | None = None
         self.now_s: float | None = None
         self.last_edge_s: float | None = None
+        self.edges_seen = 0
 
     def data(self, board_time_s: float) -> None:
         """Board time of the newest sample received."""
@@ -242,10 +244,12 @@ class StandstillWatch:
         """A tach edge at this board time."""
         self.data(board_time_s)
         self.last_edge_s = board_time_s
+        self.edges_seen += 1
 
     def reset(self) -> None:
         """Forget everything (new stream or board reset)."""
         self.first_s = self.now_s = self.last_edge_s = None
+        self.edges_seen = 0
 
     def quiet_s(self) -> float:
         """Seconds of board time with data and without a tach edge."""
@@ -317,6 +321,10 @@ class Procedure:
 
     # ---- hands-on gates -----------------------------------------------------------------
     def _require_standstill(self) -> None:
+        if self.runs and self.watch.edges_seen < TACH_PROVEN_EDGES:
+            # "No edges" proves nothing from a tach that has not been seen working.
+            raise GateRefused("the tach has not seen the rotor turn since the link started: "
+                              "standstill cannot be proven; check the tach and its mark")
         if not self.watch.standstill:
             quiet = self.watch.quiet_s()
             raise GateRefused(

@@ -255,6 +255,6 @@ def test_a_silent_tach_proves_nothing_after_a_board_reset() -> None:
     rig.rest(10.0)
     with pytest.raises(GateRefused, match="tach has not seen the rotor turn"):
         rig.proc.lock_out(ALL_LOCKOUT, rig.t)
-    rig.spin(1.0, 300.0)
+    rig.spin(2.0, 600.0)  # 20 edges: the tach works
     rig.rest(3.5)
     rig.proc.lock_out(ALL_LOCKOUT, rig.t)

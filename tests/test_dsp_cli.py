@@ -10,6 +10,7 @@ import pytest
 from trueturn.cli.main import main
 from trueturn.dsp.synthetic import OrderComponent, SyntheticRun, synthesize
 from trueturn.link.capture import write_capture_header
+from trueturn.link.codec import encode_frame
 
 
 @pytest.fixture(scope="module")
@@ -69,3 +70,18 @@ def test_bad_files_exit_2(tmp_path: Path, capsys: pytest.CaptureFixture[str]) ->
     assert main(["analyze", str(junk)]) == 2
     err = capsys.readouterr().err.strip().splitlines()
     assert len(err) == 2 and "no 1x reading" in err[1]
+
+
+def test_configure_then_start_is_one_stream(tmp_path: Path,
+                                            capsys: pytest.CaptureFixture[str]) -> None:
+    # the board answers configure and start each with a stream_config (protocol catalogue);
+    # only the second one is followed by samples, so no "several streams" warning
+    raw, _ = synthesize(SyntheticRun(speed_rpm=1800.0, duration_s=1.0, seed=2))
+    idle = encode_frame("stream_config", 200, {"rate_hz": 4000, "channels": 2,
+                                               "period_ticks": 250, "tach_edge": 1,
+                                               "start_tick": 0})
+    path = tmp_path / "two-configs.bin"
+    path.write_bytes(idle + raw)
+    assert main(["analyze", str(path), "--json"]) == 0
+    data = json.loads(capsys.readouterr().out)
+    assert not any("streams" in w for w in data["warnings"])

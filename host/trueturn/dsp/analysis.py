@@ -95,7 +95,8 @@ def analyze_capture(raw: bytes, revs: int | None = None, mains_hz: float | None 
     if revs is None and meter.tach.revolutions > ALL_REVS:
         warnings.append(f"long capture: the last {ALL_REVS} revolutions are averaged")
     if meter.streams > 1:
-        warnings.append(f"{meter.streams} streams in the capture; only the last is analysed")
+        warnings.append(f"{meter.streams} streams with samples in the capture; only the last "
+                        "is analysed")
     if readings:
         for r in readings:
             warnings += [w for w in r.warnings if w not in warnings]

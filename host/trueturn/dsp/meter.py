@@ -198,7 +198,7 @@ class LiveAnalyzer:
         self.reference_mv = DEFAULT_REFERENCE_MV
         self.aperture_ticks = 0
         self.identity_seen = False
-        self.streams = 0
+        self.streams = 0  # streams that carried samples (a configure-only one does not count)
         self.tach = TachTracker()
         self._reset_stream(None)
 
@@ -246,7 +246,6 @@ class LiveAnalyzer:
                     return self._ready_count() > 0
             return False
         if name == "stream_config":
-            self.streams += 1
             self._reset_stream(msg)
         elif name == "identity":
             self.identity_seen = True
@@ -277,6 +276,8 @@ class LiveAnalyzer:
             if first > self._next_index:
                 self._gaps.append((self._sample_tick(self._next_index), self._sample_tick(first)))
                 self._ring.clear()
+        if self._next_index is None:
+            self.streams += 1
         values = np.asarray(msg["samples"], dtype=float)
         n = values.size - values.size % ch
         if n != values.size:

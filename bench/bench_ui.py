@@ -1,0 +1,113 @@
+"""Figures for the app: keystrokes and runs for a full demo balance, and the cost of one
+screen refresh, measured by driving the real app headless (Textual Pilot, 80x24) on the
+simulated bench grinder (sim://bench-grinder?realtime=0) by its screen text alone."""
+
+from __future__ import annotations
+
+import asyncio
+import statistics
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+from textual import events
+from textual.widgets import Static
+
+from trueturn.ui.app import AppConfig, TrueturnApp
+from trueturn.ui.launch import scenario_profile
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+from common import Row  # noqa: E402
+
+GOAL_KEYS = 60  # our goal: a two-plane balance in at most 60 keystrokes
+GOAL_RUNS = 5  # as the balancing issue: within 5 runs
+GOAL_REFRESH_MS = 50.0  # the screen refreshes 10 times a second: keep each under 50 ms
+
+
+def _text(app: TrueturnApp) -> str:
+    return "\n".join(str(w.render()) for w in app.screen.query(Static))
+
+
+async def _balance(workspace: Path) -> tuple[int, int, bool, list[float], float]:
+    config = AppConfig("sim://bench-grinder?realtime=0&motor=off",
+                       scenario_profile("bench-grinder"), demo=True, workspace=workspace)
+    app = TrueturnApp(config)
+    refresh_s: list[float] = []
+    original = app.tick
+
+    def timed_tick() -> None:
+        started = time.perf_counter()
+        original()
+        refresh_s.append(time.perf_counter() - started)
+
+    app.tick = timed_tick  # type: ignore[method-assign]
+    keys = 0
+    started = time.monotonic()
+    async with app.run_test(size=(80, 24)) as pilot:
+
+        async def key(*names: str) -> None:
+            nonlocal keys
+            for name in names:
+                keys += 1
+                event = events.Key(name, name if len(name) == 1 else None)
+                event.set_sender(app)
+                assert app._driver is not None
+                app._driver.send_message(event)
+                await pilot.pause(0.02)
+
+        async def until(text: str, timeout_s: float = 120.0) -> None:
+            deadline = time.monotonic() + timeout_s
+            while text not in _text(app):
+                if time.monotonic() > deadline:
+                    raise TimeoutError(text)
+                await pilot.pause(0.05)
+
+        await until("Press Enter to start")
+        await key("enter")
+        await until("Choose the procedure")
+        await key("2")
+        while True:
+            text = _text(app)
+            if "close the job and write the report" in text:
+                await key("enter")
+                break
+            if "Rotor not at standstill" in text:
+                await key("x")
+                await until("Tach confirms standstill")
+            elif "Before you reach in" in text and "Tach confirms standstill" in text:
+                await key("1", "2", "enter")
+            elif "Do the work now" in text and "Tach confirms standstill" in text:
+                await key("1", "2", "3", "4", "enter")
+            elif "I confirm these forces" in text or "go and place the parts" in text:
+                await key("enter")
+            await pilot.pause(0.1)
+        proc = app.procedure
+        assert proc is not None and proc.verdict is not None
+        result = (keys, len(proc.runs), proc.verdict.passed, refresh_s,
+                  time.monotonic() - started)
+        await key("q")
+    return result
+
+
+def rows() -> list[Row]:
+    with tempfile.TemporaryDirectory() as tmp:
+        keys, runs, passed, refresh_s, wall_s = asyncio.run(_balance(Path(tmp)))
+    ms = sorted(1000.0 * s for s in refresh_s)
+    p95 = ms[int(0.95 * (len(ms) - 1))]
+    return [
+        Row("ui: keystrokes, two-plane demo balance to verdict", str(keys),
+            f"<= {GOAL_KEYS}", keys <= GOAL_KEYS),
+        Row("ui: runs to verdict (demo bench grinder)", f"{runs} ({'pass' if passed else 'FAIL'})",
+            f"<= {GOAL_RUNS}, pass", runs <= GOAL_RUNS and passed),
+        Row("ui: screen refresh, median / p95", f"{statistics.median(ms):.1f} / {p95:.1f} ms",
+            f"p95 <= {GOAL_REFRESH_MS:g} ms", p95 <= GOAL_REFRESH_MS),
+        Row("ui: headless demo balance, wall time (rig as fast as possible)",
+            f"{wall_s:.0f} s", "", None),
+    ]
+
+
+if __name__ == "__main__":
+    from common import format_table
+
+    print(format_table(rows()))

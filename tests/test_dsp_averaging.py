@@ -56,3 +56,14 @@ def test_steadiness_verdicts() -> None:
     warming = good * np.linspace(1.0, 1.3, 40)  # amplitude still rising (rotor warming up)
     ok, reasons = steadiness(vector_stats(warming), speeds)
     assert not ok and any("still changing" in r for r in reasons)
+
+
+def test_small_settled_1x_is_ready_with_a_note() -> None:
+    # a well-balanced rotor at the check run: 1x smaller than the per-revolution scatter
+    rng = np.random.default_rng(9)
+    small = 0.05 + 0.2 * (rng.normal(size=200) + 1j * rng.normal(size=200))
+    speeds = np.full(200, 3000.0)
+    ok, notes = steadiness(vector_stats(small[:40]), speeds[:40])
+    assert not ok  # too early to say
+    ok, notes = steadiness(vector_stats(small), speeds)
+    assert ok and "settled after 200 revolutions" in notes[0]

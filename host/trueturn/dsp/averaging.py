@@ -88,37 +88,52 @@ def vector_stats(vectors: np.ndarray, level: float = 0.95) -> VectorStats:
 
 @dataclass(frozen=True)
 class SteadinessLimits:
-    """When a reading is ready: enough revolutions, steady speed, tight vector.
+    """When a reading is ready: enough revolutions, steady speed, tight or settled vector.
 
     Defaults are common practice, no source: a 5 degree phase confidence is well inside
     what a trial-weight run can resolve, 2 % speed spread keeps the rotor's response
-    (resonances) from shifting noticeably on a small machine.
+    (resonances) from shifting noticeably on a small machine. A small 1x (a rotor already
+    well balanced, at the check run) may never reach 5 degrees: after
+    ``settled_revolutions`` without drift the reading is ready anyway, with its confidence
+    radius saying how uncertain it is (the balance layer judges it against the tolerance).
     """
 
     min_revolutions: int = 8
     max_speed_spread_pct: float = 2.0
     max_confidence_deg: float = 5.0
+    settled_revolutions: int = 64
 
 
 def steadiness(vector: VectorStats, speeds_rpm: np.ndarray,
                limits: SteadinessLimits | None = None) -> tuple[bool, tuple[str, ...]]:
-    """(steady, reasons it is not) for one pickup's statistics and the revolution speeds."""
+    """(steady, notes) for one pickup's statistics and the revolution speeds.
+
+    When not steady the notes say why; when steady they may still say what to keep in mind
+    (a small 1x whose phase stays uncertain).
+    """
     lim = limits or SteadinessLimits()
-    reasons = []
+    blocking = []
+    notes = []
     if vector.revolutions < lim.min_revolutions:
-        reasons.append(f"only {vector.revolutions} revolutions averaged "
-                       f"(need {lim.min_revolutions})")
+        blocking.append(f"only {vector.revolutions} revolutions averaged "
+                        f"(need {lim.min_revolutions})")
     speeds = np.asarray(speeds_rpm, dtype=float)
     if speeds.size:
         spread = 100.0 * float(speeds.max() - speeds.min()) / float(speeds.mean())
         if spread > lim.max_speed_spread_pct:
-            reasons.append(f"speed varies by {spread:.1f} % (limit {lim.max_speed_spread_pct:g} %)")
+            blocking.append(f"speed varies by {spread:.1f} % "
+                            f"(limit {lim.max_speed_spread_pct:g} %)")
+    if vector.drifting:
+        blocking.append("1x vector still changing (first and second half disagree)")
     if vector.confidence_deg > lim.max_confidence_deg:
         if vector.confidence_deg >= 180.0:
-            reasons.append("1x is not above the scatter yet (noise, or too few revolutions)")
+            text = "1x is not above the scatter (noise, or a very small 1x)"
         else:
-            reasons.append(f"phase uncertain by +/-{vector.confidence_deg:.1f} deg "
-                           f"(limit {lim.max_confidence_deg:g} deg)")
-    if vector.drifting:
-        reasons.append("1x vector still changing (first and second half disagree)")
-    return not reasons, tuple(reasons)
+            text = (f"phase uncertain by +/-{vector.confidence_deg:.1f} deg "
+                    f"(aim {lim.max_confidence_deg:g} deg)")
+        if vector.revolutions >= lim.settled_revolutions and not blocking:
+            notes.append(text + f"; settled after {vector.revolutions} revolutions, so the "
+                                "1x is small compared with the scatter")
+        else:
+            blocking.append(text)
+    return not blocking, tuple(blocking + notes)

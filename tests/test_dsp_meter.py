@@ -65,6 +65,19 @@ def test_aperture_delay_is_compensated() -> None:
     assert abs(shift) > 3 * with_id.confidence_deg
 
 
+def test_identity_from_the_capture_header() -> None:
+    # bytes recorded after the identity message: the header's copy restores the aperture delay
+    raw, truth = synthesize(RUN)
+    bare, _ = synthesize(SyntheticRun(**{**RUN.__dict__, "send_identity": False}))
+    header = {"tick_hz": 2_000_000, "adc_bits": 10, "adc_reference_mv": 5000,
+              "aperture_delay_ticks": 26}
+    from_header = analyze_capture(bare, identity=header)
+    assert not any("identity" in w for w in from_header.warnings)
+    assert from_header.readings[0].phasor == pytest.approx(
+        analyze_capture(raw).readings[0].phasor, rel=1e-9)
+    assert any("no identity" in w for w in analyze_capture(bare).warnings)
+
+
 def test_tach_faults_and_lost_blocks_are_flagged_and_excluded() -> None:
     run = SyntheticRun(**{**RUN.__dict__, "double_edges_after": (10, 50), "missing_edges": (30,),
                           "lost_blocks": (40, 41)})

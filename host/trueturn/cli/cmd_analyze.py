@@ -108,8 +108,11 @@ def run(args: argparse.Namespace) -> int:
         mains = float(stored) if stored in (50, 60, 50.0, 60.0) else 50.0
     unit = UNIT_CHOICES[args.unit] if args.unit else None
     assert unit is None or unit in UNITS
+    stored_identity = metadata.get("identity")
     result = analyze_capture(raw, revs=args.revs, mains_hz=mains,
-                             profiles=_profiles(args, metadata), unit=unit)
+                             profiles=_profiles(args, metadata), unit=unit,
+                             identity=stored_identity if isinstance(stored_identity, dict)
+                             else None)
     if not result.readings:
         why = result.warnings[0] if result.warnings else "no samples and tach edges found"
         raise UserError(f"{args.capture}: no 1x reading could be made ({why})")

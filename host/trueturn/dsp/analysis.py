@@ -16,7 +16,7 @@ from trueturn.dsp.averaging import SteadinessLimits
 from trueturn.dsp.meter import LiveAnalyzer, Reading
 from trueturn.dsp.spectrum import SpectrumPeak
 from trueturn.dsp.units import PickupProfile
-from trueturn.link.codec import LinkEvent, StreamDecoder
+from trueturn.link.codec import LinkEvent, Message, StreamDecoder
 
 # The most revolutions one analysis averages (about 2.7 min at 3000 rpm); longer captures
 # use their last ALL_REVS and say so.
@@ -72,10 +72,20 @@ class Analysis:
 
 def analyze_capture(raw: bytes, revs: int | None = None, mains_hz: float | None = 50.0,
                     profiles: Sequence[PickupProfile] = (), unit: str | None = None,
-                    limits: SteadinessLimits | None = None) -> Analysis:
-    """Analyse the received bytes of one capture over its last ``revs`` good revolutions."""
+                    limits: SteadinessLimits | None = None,
+                    identity: dict[str, Any] | None = None) -> Analysis:
+    """Analyse the received bytes of one capture over its last ``revs`` good revolutions.
+
+    ``identity``: the board's identity fields as saved in a capture header, used when the
+    bytes themselves start after the identity message (an identity in the bytes wins).
+    """
     meter = LiveAnalyzer(profiles=profiles, unit=unit, mains_hz=mains_hz,
                          max_revs=revs or ALL_REVS, limits=limits)
+    if identity:
+        try:
+            meter.feed(Message("identity", 0, dict(identity)))
+        except (KeyError, TypeError, ValueError):
+            pass  # an incomplete header copy: rely on the bytes
     decoder = StreamDecoder()
     link_notes: list[str] = []
     chunk = 1 << 16

@@ -14,8 +14,9 @@ import time
 from pathlib import Path
 
 from textual import events
+from textual.keys import _character_to_key
 from textual.pilot import Pilot
-from textual.widgets import Static
+from textual.widgets import Input, Static
 
 from trueturn.jobs.store import read_document
 from trueturn.ui.app import AppConfig, TrueturnApp
@@ -40,6 +41,16 @@ async def press(app: TrueturnApp, pilot: Pilot, *keys: str) -> None:
         assert app._driver is not None
         app._driver.send_message(event)
         await pilot.pause(0.02)
+    await pilot._wait_for_screen()
+
+
+async def type_text(app: TrueturnApp, pilot: Pilot, text: str) -> None:
+    for ch in text:
+        event = events.Key(_character_to_key(ch) if not ch.isalnum() else ch, ch)
+        event.set_sender(app)
+        assert app._driver is not None
+        app._driver.send_message(event)
+        await pilot.pause(0.01)
     await pilot._wait_for_screen()
 
 
@@ -243,3 +254,31 @@ def test_mode_keys_pick_the_procedure(tmp_path: Path) -> None:
     app = make_app("shop-fan", tmp_path)
     app.choose_mode(Mode.AMPLITUDE_ONLY)
     assert app.procedure is not None and app.procedure.setup.mode is Mode.AMPLITUDE_ONLY
+
+
+def test_create_a_machine_in_the_app(tmp_path: Path) -> None:
+    config = AppConfig("sim://shop-fan?realtime=0&motor=off", scenario_profile("shop-fan"),
+                       demo=False, workspace=tmp_path / "ws")
+    app = TrueturnApp(config)
+
+    async def scenario() -> None:
+        async with app.run_test(size=SIZE) as pilot:
+            await connect(app, pilot)
+            await press(app, pilot, "p")
+            await wait_for(pilot, lambda: "n: new machine" in screen_text(app), 5)
+            await press(app, pilot, "n")
+            await wait_for(pilot, lambda: "Machine name" in screen_text(app), 5)
+            fields = ["Lathe 2", "faceplate", "12", "900", "1200", "1", "150", "8", "300",
+                      "50", "6.3"]
+            for k, text in enumerate(fields):
+                field = app.screen.query(Input)[k]
+                field.value = ""
+                field.focus()
+                await type_text(app, pilot, text)
+            await press(app, pilot, "ctrl+s")
+            await wait_for(pilot, lambda: app.config.profile.name == "Lathe 2", 5)
+            saved = app.keeper.workspace.load_machine("Lathe 2")
+            assert saved.rotor_mass_kg == 12.0 and saved.planes[0].layout.positions == 8
+            assert "Lathe 2" in screen_text(app)
+            await press(app, pilot, "q")
+    asyncio.run(scenario())

@@ -25,6 +25,7 @@ from trueturn.jobs.profiles import MachineProfile
 from trueturn.ui.engine import BalanceEngine
 from trueturn.ui.jobfile import JobKeeper
 from trueturn.ui.machine import describe_change, setup_from_profile
+from trueturn.ui.machines import MachinePicker
 from trueturn.ui.procedure import (
     GateRefused,
     Mode,
@@ -149,6 +150,7 @@ class BenchScreen(Screen):
         Binding("1", "tick(1)", show=False), Binding("2", "tick(2)", show=False),
         Binding("3", "tick(3)", show=False), Binding("4", "tick(4)", show=False),
         Binding("r", "removal", "Add/remove", show=False),
+        Binding("p", "machine", "Machine", show=False),
         Binding("o", "motor(True)", "Motor on", show=False),
         Binding("x", "motor(False)", "Motor off", show=False),
         Binding("c", "app.cautions", "Cautions"),
@@ -193,6 +195,9 @@ class BenchScreen(Screen):
 
     def action_removal(self) -> None:
         self.trueturn.toggle_removal()
+
+    def action_machine(self) -> None:
+        self.trueturn.pick_machine()
 
     def action_motor(self, on: bool) -> None:
         self.trueturn.motor(on)
@@ -272,6 +277,29 @@ class TrueturnApp(App):
         self.push_screen(TextPage(keys_markup(), "keys"))
 
     # ---- the person's actions -----------------------------------------------------------
+    def pick_machine(self) -> None:
+        if self.procedure is not None or self.rig is not None:
+            self.message = ("The demo rig is the simulated machine; other machines are for a "
+                            "real board." if self.rig is not None else
+                            "The machine is fixed once a job has started (quit to change it).")
+            self.tick()
+            return
+        picker = MachinePicker(self.keeper.workspace, self.session.channels,
+                               self.config.profile)
+        self.push_screen(picker, self.use_machine)
+
+    def use_machine(self, profile: MachineProfile | None) -> None:
+        if profile is None:
+            return
+        self.config.profile = profile
+        self.engine = BalanceEngine(profile)
+        self.keeper = JobKeeper(profile, workspace=self.config.workspace,
+                                job_file=self.config.job_file)
+        self.session.use_machine([p.name for p in profile.pickups], profile.mains_hz,
+                                 profile.pickups)
+        self.message = f"Machine: {profile.name}"
+        self.tick()
+
     def choose_mode(self, mode: Mode) -> None:
         try:
             setup = setup_from_profile(self.config.profile, mode, self.config.standstill_s,
@@ -505,6 +533,7 @@ class TrueturnApp(App):
             "  [b]1[/b]  one plane (narrow rotor: fan, pulley, single wheel)",
             "  [b]2[/b]  two planes (long rotor or two wheels)",
             "  [b]3[/b]  amplitude only: four-run method, no phase needed", "",
+            "  [b]p[/b]  pick another saved machine, or create one", "",
             "Every hands-on step waits for tach standstill and your checklist.",
             "Press [b]c[/b] for the cautions first."])
 

@@ -72,6 +72,14 @@ class MeterAdapter:
         self.spectrum_wanted = False
         self.analyzer = self._new()
 
+    def for_machine(self, sensor_names: Sequence[str], mains_hz: float,
+                    pickups: Sequence[Any]) -> MeterAdapter:
+        """A fresh adapter for another machine on the same stream (same board set-up)."""
+        other = MeterAdapter(sensor_names, mains_hz, pickups, self.max_revs)
+        other._identity, other._config = self._identity, self._config
+        other.analyzer = other._new()
+        return other
+
     def _new(self) -> LiveAnalyzer:
         a = LiveAnalyzer(self.profiles, mains_hz=self.mains_hz, max_revs=self.max_revs,
                          limits=METER_LIMITS)

@@ -207,6 +207,13 @@ class LinkSession:
         self._start_tick = int(v["start_tick"])
         self._period_ticks = int(v["period_ticks"])
 
+    def use_machine(self, sensor_names: Sequence[str], mains_hz: float,
+                    pickups: Sequence[Any]) -> None:
+        """Measure for another machine profile with the same number of pickups."""
+        with self._state:
+            self.meter = self.meter.for_machine(list(sensor_names)[: self.channels], mains_hz,
+                                                list(pickups)[: self.channels])
+
     def reset_meter(self) -> None:
         """Start averaging afresh (a new run)."""
         with self._state:

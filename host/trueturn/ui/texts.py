@@ -27,6 +27,7 @@ KEYS: list[tuple[str, str]] = [
     ("s", "Spectrum with labelled peaks"),
     ("g", "Guide: the balancing procedure"),
     ("1 2 3", "Guide set-up: one plane / two planes / amplitude only"),
+    ("p", "Guide set-up: pick a saved machine or create a new one"),
     ("1 … 4", "Guide: tick or untick a checklist item"),
     ("Enter", "Guide: confirm the step shown (gates refuse while unsafe)"),
     ("r", "Guide: remove material instead of adding mass (correction step)"),

@@ -116,9 +116,14 @@ class OrderEstimate:
         return math.sqrt(2.0 * max(power, 0.0))
 
 
-def revolution_basis(theta_rad: np.ndarray, orders: tuple[int, ...]) -> np.ndarray:
-    """Columns ``[1, cos(h theta), sin(h theta) for h in orders]`` (n, 1 + 2 len(orders))."""
-    out = np.empty((theta_rad.shape[0], 1 + 2 * len(orders)))
+def revolution_basis(theta_rad: np.ndarray, orders: tuple[int, ...],
+                     out: np.ndarray | None = None) -> np.ndarray:
+    """Columns ``[1, cos(h theta), sin(h theta) for h in orders]`` (n, 1 + 2 len(orders)).
+
+    ``out``: an array (or a column slice of one) of that shape to fill instead.
+    """
+    if out is None:
+        out = np.empty((theta_rad.shape[0], 1 + 2 * len(orders)))
     out[:, 0] = 1.0
     z1 = np.exp(1j * theta_rad)
     powers = {1: z1}
@@ -133,13 +138,16 @@ def revolution_basis(theta_rad: np.ndarray, orders: tuple[int, ...]) -> np.ndarr
     return out
 
 
-def tone_basis(times_s: np.ndarray, tones_hz: tuple[float, ...]) -> np.ndarray:
+def tone_basis(times_s: np.ndarray, tones_hz: tuple[float, ...],
+               out: np.ndarray | None = None) -> np.ndarray:
     """Columns ``[cos(2 pi f t), sin(2 pi f t) for f in tones_hz]`` (n, 2 len(tones_hz)).
 
     Related tones (twice another, or another plus a difference already at hand, as in a
     comb ``f, f +/- d``) are built by complex products instead of new exponentials.
+    ``out``: an array (or a column slice of one) of that shape to fill instead.
     """
-    out = np.empty((times_s.shape[0], 2 * len(tones_hz)))
+    if out is None:
+        out = np.empty((times_s.shape[0], 2 * len(tones_hz)))
     done: dict[float, np.ndarray] = {}
     diffs: dict[float, np.ndarray] = {}
 
@@ -197,26 +205,34 @@ def fit_block(sample_ticks: np.ndarray, values: np.ndarray, starts: np.ndarray,
     ``sample_ticks`` (sorted, 64-bit, aperture delay included) and ``values`` are one
     pickup's samples; ``origin_tick`` fixes the time origin of the nuisance tones and must be
     the same for every block that is later combined. A revolution with fewer samples than
-    twice the number of unknowns gets NaN coefficients (see :func:`combine_blocks`).
+    twice the number of unknowns gets NaN coefficients (left out by :func:`solve_orders`).
     """
     starts = np.asarray(starts, dtype=np.int64)
     ends = np.asarray(ends, dtype=np.int64)
-    pos, rev, slot = assign_revolutions(sample_ticks, starts, ends)
     n_revs = len(starts)
-    ticks = sample_ticks[pos]
-    theta = 2.0 * math.pi * (ticks - starts[rev]) / (ends - starts)[rev]
-    times_s = (ticks - origin_tick) / tick_hz
-    basis = revolution_basis(theta, orders)
-    tones = tone_basis(times_s, nuisance_hz)
-    p = basis.shape[1]
-    q = tones.shape[1]
-    design = np.concatenate([basis, tones, values[pos, None]], axis=1)
-    m = design.shape[1]
-    counts = np.bincount(rev, minlength=n_revs)
-    length = int(counts.max()) if counts.size else 0
-    padded = np.zeros((n_revs, max(length, 1), m))
-    padded[rev, slot] = design
-    gram = np.matmul(padded.transpose(0, 2, 1), padded)
+    p = 1 + 2 * len(orders)
+    q = 2 * len(nuisance_hz)
+    m = p + q + 1
+    # Lay the samples out as (revolution, slot) directly; slots past a revolution's last
+    # sample repeat a valid sample and are zeroed at the end (they add nothing to the sums).
+    lo = np.searchsorted(sample_ticks, starts, side="left")
+    counts = np.searchsorted(sample_ticks, ends, side="left") - lo
+    length = max(int(counts.max()) if counts.size else 0, 1)
+    slots = np.arange(length)
+    valid = slots[None, :] < counts[:, None]
+    grid = np.minimum(lo[:, None] + slots[None, :], max(len(sample_ticks) - 1, 0)).ravel()
+    ticks = sample_ticks[grid]
+    periods = np.repeat(ends - starts, length)
+    theta = (2.0 * math.pi) * (ticks - np.repeat(starts, length)) / periods
+    # column-major (m, R*L): every column is written contiguously
+    columns = np.empty((m, n_revs * length))
+    revolution_basis(theta, orders, out=columns[:p].T)
+    if q:
+        tone_basis((ticks - origin_tick) / tick_hz, nuisance_hz, out=columns[p:p + q].T)
+    columns[-1] = values[grid]
+    columns *= valid.reshape(1, -1)
+    per_rev = columns.reshape(m, n_revs, length).transpose(1, 0, 2)  # (R, m, L)
+    gram = np.matmul(per_rev, per_rev.transpose(0, 2, 1))
     aa = gram[:, :p, :p]
     rhs = gram[:, :p, p:]
     ok = counts >= 2 * p

@@ -10,7 +10,7 @@ import hashlib
 import json
 import struct
 from dataclasses import dataclass, field
-from functools import lru_cache
+from functools import cached_property, lru_cache
 from importlib import resources
 from typing import Any
 
@@ -44,16 +44,16 @@ class MessageDef:
     fields: tuple[FieldDef, ...]
     doc: str = ""
 
-    @property
+    @cached_property
     def fixed_fields(self) -> tuple[FieldDef, ...]:
         return tuple(f for f in self.fields if not f.is_rest_array)
 
-    @property
+    @cached_property
     def rest_field(self) -> FieldDef | None:
         rest = [f for f in self.fields if f.is_rest_array]
         return rest[0] if rest else None
 
-    @property
+    @cached_property
     def fixed_struct(self) -> struct.Struct:
         return struct.Struct("<" + "".join(FIELD_FORMATS[f.type] for f in self.fixed_fields))
 

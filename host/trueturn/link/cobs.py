@@ -36,21 +36,19 @@ def cobs_encode(data: bytes) -> bytes:
 
 def cobs_decode(encoded: bytes) -> bytes:
     """Invert :func:`cobs_encode`; raise :class:`CobsError` on a malformed body."""
-    out = bytearray()
+    if 0 in encoded:
+        raise CobsError("zero byte inside a COBS body")
+    parts: list[bytes] = []
+    append = parts.append
     pos = 0
     length = len(encoded)
     while pos < length:
         code = encoded[pos]
-        if code == 0:
-            raise CobsError("zero byte inside a COBS body")
         end = pos + code
         if end > length:
             raise CobsError("COBS block runs past the end of the frame")
-        block = encoded[pos + 1 : end]
-        if 0 in block:
-            raise CobsError("zero byte inside a COBS body")
-        out += block
+        append(encoded[pos + 1 : end])
+        if code != 255 and end < length:
+            append(b"\x00")
         pos = end
-        if code != 255 and pos < length:
-            out.append(0)
-    return bytes(out)
+    return b"".join(parts)

@@ -32,9 +32,10 @@ import urllib.parse
 from pathlib import Path
 from typing import Any
 
-from serial.serialutil import PortNotOpenError, SerialBase, SerialException, to_bytes
+from serial.serialutil import PortNotOpenError, SerialException, to_bytes
 
 from trueturn.errors import UserError
+from trueturn.link.handlers.virtual import VirtualLineSerial
 
 _USAGE = 'expected "emu://SCENARIO[?realtime=0|1&seconds=S&seed=N&rpm=R&noise=F&channels=1|2]"'
 
@@ -82,7 +83,7 @@ def harness_args(spec: dict[str, Any]) -> list[str]:
     return args
 
 
-class Serial(SerialBase):
+class Serial(VirtualLineSerial):
     """A serial port whose other end is the firmware running in the emulator."""
 
     def __init__(self, *args: Any, **kwargs: Any) -> None:
@@ -253,27 +254,3 @@ class Serial(SerialBase):
     def reset_output_buffer(self) -> None:
         """Nothing is held back on the way to the emulator."""
 
-    def _update_dtr_state(self) -> None:
-        """No modem lines on the emulated link."""
-
-    def _update_rts_state(self) -> None:
-        """No modem lines on the emulated link."""
-
-    def _update_break_state(self) -> None:
-        """No break condition on the emulated link."""
-
-    @property
-    def cts(self) -> bool:
-        return True
-
-    @property
-    def dsr(self) -> bool:
-        return True
-
-    @property
-    def ri(self) -> bool:
-        return False
-
-    @property
-    def cd(self) -> bool:
-        return True

@@ -24,9 +24,10 @@ from __future__ import annotations
 import time
 import urllib.parse
 
-from serial.serialutil import PortNotOpenError, SerialBase, SerialException, to_bytes
+from serial.serialutil import PortNotOpenError, SerialException, to_bytes
 
 from trueturn.errors import UserError
+from trueturn.link.handlers.virtual import VirtualLineSerial
 from trueturn.sim.board import STEP_TICKS, TICK_HZ, BoardOptions, VirtualBoard
 from trueturn.sim.scenario import load_scenario
 
@@ -45,7 +46,7 @@ class Rig(VirtualBoard):
             self.unplugged = True
 
 
-class Serial(SerialBase):
+class Serial(VirtualLineSerial):
     """A serial port whose other end is the simulated board of a scenario."""
 
     def __init__(self, *args, **kwargs) -> None:
@@ -180,30 +181,6 @@ class Serial(SerialBase):
     def out_waiting(self) -> int:
         return 0
 
-    def _update_dtr_state(self) -> None:
-        """No DTR reset on the virtual board."""
-
-    def _update_rts_state(self) -> None:
-        """No RTS line on the virtual board."""
-
-    def _update_break_state(self) -> None:
-        """Breaks are ignored."""
-
-    @property
-    def cts(self) -> bool:
-        return True
-
-    @property
-    def dsr(self) -> bool:
-        return True
-
-    @property
-    def ri(self) -> bool:
-        return False
-
-    @property
-    def cd(self) -> bool:
-        return True
 
 
 def _flag(value: str) -> bool:

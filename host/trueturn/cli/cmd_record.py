@@ -20,9 +20,9 @@ from trueturn import __version__
 from trueturn.cli.common import print_json
 from trueturn.errors import UserError
 from trueturn.link.capture import CaptureWriter
-from trueturn.link.codec import Message
+from trueturn.link.codec import LinkEvent, Message
 from trueturn.link.ports import open_port
-from trueturn.link.session import BoardError, BoardSession, mismatch_message
+from trueturn.link.session import BoardError, BoardSession, LinkLost, mismatch_message
 from trueturn.sim.scenario import load_scenario
 
 BOOT_WAIT_S = 2.5  # a Nano's bootloader takes up to ~2 s after the port opens
@@ -113,6 +113,12 @@ def run(args: argparse.Namespace) -> int:
         port.close()
 
 
+def _kept(samples: int, target: int, seconds: float, out_path: Path) -> str:
+    """What is in the capture file when a recording stops early (it stays a valid capture)."""
+    return (f"kept an incomplete capture ({min(samples, target) / target * seconds:.2f} of "
+            f"{seconds:g} s) in {out_path}")
+
+
 def _record(port: serial.SerialBase, args: argparse.Namespace, out_path: Path) -> int:
     early: list[bytes] = []
     writer: CaptureWriter | None = None
@@ -149,17 +155,28 @@ def _record(port: serial.SerialBase, args: argparse.Namespace, out_path: Path) -
         last_data = time.monotonic()
         last_progress = 0.0
         while samples < target:
-            for item in session.read():
+            try:
+                items = session.read()
+            except LinkLost as exc:
+                raise UserError(f"{exc}; {_kept(samples, target, args.seconds, out_path)}; "
+                                "plug the board back in and record again") from None
+            for item in items:
                 if isinstance(item, Message):
                     if item.name == "samples":
                         samples += len(item["samples"])
                         last_data = time.monotonic()
                     elif item.name == "tach":
                         tach_edges += 1
+                elif isinstance(item, LinkEvent) and item.kind == "board_reset":
+                    # The board restarted (brown-out, loose cable, watchdog): its stream has
+                    # stopped and its clock restarted, so this recording cannot go on.
+                    raise UserError(f"{item.detail}; {_kept(samples, target, args.seconds, out_path)}"
+                                    "; check the USB cable and the board's power, then record "
+                                    "again")
             now = time.monotonic()
             if now - last_data > STALL_TIMEOUT_S:
                 raise UserError(f"no samples from {args.port} for {STALL_TIMEOUT_S:g} s; "
-                                f"kept {samples / target * args.seconds:.2f} s in {out_path}")
+                                f"{_kept(samples, target, args.seconds, out_path)}")
             if now - last_progress >= PROGRESS_EVERY_S:
                 last_progress = now
                 c = session.decoder.counters

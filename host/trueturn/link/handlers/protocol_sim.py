@@ -15,8 +15,9 @@
 
 ``port.rig`` reaches the running virtual rig: ``add_mass``, ``remove_mass``, ``set_masses``,
 ``clear_masses``, ``motor_start``, ``motor_stop``, ``set_speed_rpm``, ``speed_rpm``,
-``standstill``, ``exact_response_1x()``, and ``unplug()`` (later reads and writes raise
-``serial.SerialException`` like a pulled USB cable).
+``standstill``, ``exact_response_1x()``, ``unplug()`` (later reads and writes raise
+``serial.SerialException`` like a pulled USB cable) and ``reset()`` (the board restarts: a
+fresh identity with seq 0, stream stopped, uptime from zero).
 """
 
 from __future__ import annotations
@@ -28,7 +29,15 @@ from serial.serialutil import PortNotOpenError, SerialException, to_bytes
 
 from trueturn.errors import UserError
 from trueturn.link.handlers.virtual import VirtualLineSerial
-from trueturn.sim.board import STEP_TICKS, TICK_HZ, BoardOptions, VirtualBoard
+from trueturn.sim.board import (
+    LAST_ERRORS,
+    STATUS_PERIOD_TICKS,
+    STEP_TICKS,
+    TICK_HZ,
+    BoardOptions,
+    VirtualBoard,
+    _Stream,
+)
 from trueturn.sim.scenario import load_scenario
 
 _USAGE = ('expected "sim://NAME[?realtime=0|1&pace=F&seed=N&rpm=R&motor=on|off&noise=F'
@@ -44,6 +53,25 @@ class Rig(VirtualBoard):
         """Pull the virtual USB cable."""
         with self.lock:
             self.unplugged = True
+
+    def reset(self) -> None:
+        """Restart the board as a brown-out or watchdog would, keeping the rotor as it is.
+
+        What the board had not sent yet is lost; its sequence numbers, uptime, edge count and
+        stream settings start again from power-up (identity with seq 0, idle, defaults).
+        """
+        with self.lock:
+            self._out.clear()
+            self._rx.clear()
+            self._rx_discarding = False
+            self._seq = 0
+            self._stream = _Stream()
+            self._boot_tick = self.tick
+            self._edges_seen = 0
+            self._counters = dict.fromkeys(self._counters, 0)
+            self._last_error = LAST_ERRORS["none"]
+            self._next_status_tick = self.tick + STATUS_PERIOD_TICKS
+            self._send("identity", self._identity_values())
 
 
 class Serial(VirtualLineSerial):

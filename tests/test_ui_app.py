@@ -74,7 +74,7 @@ def screen_text(app: TrueturnApp) -> str:
 async def connect(app: TrueturnApp, pilot: Pilot) -> None:
     await wait_for(pilot, lambda: "Press Enter to start" in screen_text(app), 20)
     await press(app, pilot, "enter")
-    await wait_for(pilot, lambda: app.bench is not None and app.bench.is_mounted, 10)
+    await wait_for(pilot, lambda: "Choose the procedure" in screen_text(app), 10)
 
 
 async def follow_the_screens(app: TrueturnApp, pilot: Pilot, mode_key: str) -> int:
@@ -203,7 +203,7 @@ def test_key_screens_by_their_text(tmp_path: Path) -> None:
             await press(app, pilot, "escape")
             await press(app, pilot, "enter")
             await wait_for(pilot, lambda: app.bench is not None and app.bench.is_mounted)
-            assert "Choose the procedure" in screen_text(app)
+            await wait_for(pilot, lambda: "Choose the procedure" in screen_text(app), 5)
             await press(app, pilot, "question_mark")
             text = screen_text(app)
             for key, _ in KEYS:

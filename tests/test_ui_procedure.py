@@ -258,3 +258,25 @@ def test_a_silent_tach_proves_nothing_after_a_board_reset() -> None:
     rig.spin(2.0, 600.0)  # 20 edges: the tach works
     rig.rest(3.5)
     rig.proc.lock_out(ALL_LOCKOUT, rig.t)
+
+
+def test_one_run_trim_with_coefficients_saved_by_an_earlier_job() -> None:
+    from trueturn.jobs.records import CoefficientSet, InfluenceEntry
+
+    first = Rig("bench-grinder", Mode.TWO_PLANE)
+    first.complete()
+    model = first.proc.solution.coefficients
+    saved = CoefficientSet(first.setup.speed_rpm, "m/s2", [
+        InfluenceEntry(c.sensor, c.plane, c.amp_per_g, c.phase_deg % 360.0)
+        for c in model.as_saved()])
+    # Another day, the same machine, fresh unbalance (the scenario's as-found again).
+    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+    rig.setup = setup_from_profile(rig.profile, Mode.SAVED_TRIM, saved=saved)
+    rig.proc = Procedure(rig.setup, BalanceEngine(rig.profile))
+    before = rig.scenario.rotor.response_1x(rig.setup.speed_rpm, rig.masses)
+    rig.complete()
+    assert [r.label for r in rig.proc.runs] == ["as found", "check"]  # no trial runs
+    assert rig.proc.verdict is not None and rig.proc.verdict.passed
+    after = rig.scenario.rotor.response_1x(rig.setup.speed_rpm, rig.masses)
+    for name in before:
+        assert abs(after[name]) < 0.1 * abs(before[name])  # physics truth

@@ -21,7 +21,9 @@ from textual.screen import Screen
 from textual.widgets import ContentSwitcher, Footer, ProgressBar, Sparkline, Static
 from textual.worker import get_current_worker
 
+from trueturn.errors import UserError
 from trueturn.jobs.profiles import MachineProfile
+from trueturn.jobs.records import CoefficientSet
 from trueturn.ui.engine import BalanceEngine
 from trueturn.ui.jobfile import JobKeeper
 from trueturn.ui.machine import describe_change, setup_from_profile
@@ -230,6 +232,7 @@ class TrueturnApp(App):
         self.snap: Snapshot | None = None
         self.link_error = ""
         self.bench: BenchScreen | None = None
+        self._saved_cache: dict[str, CoefficientSet | None] = {}
 
     # ---- lifecycle ----------------------------------------------------------------------
     def on_mount(self) -> None:
@@ -302,8 +305,9 @@ class TrueturnApp(App):
 
     def choose_mode(self, mode: Mode) -> None:
         try:
+            saved = self.saved_coefficients() if mode is Mode.SAVED_TRIM else None
             setup = setup_from_profile(self.config.profile, mode, self.config.standstill_s,
-                                       self.config.revolutions_per_run)
+                                       self.config.revolutions_per_run, saved)
             self.procedure = Procedure(setup, self.engine, self.session.watch)
         except ValueError as exc:
             self.message = str(exc)
@@ -312,10 +316,22 @@ class TrueturnApp(App):
         self.ticked = set()
         self.message = ""
 
+    def saved_coefficients(self) -> CoefficientSet | None:
+        """Influence coefficients an earlier job kept for this machine near this speed."""
+        prof = self.config.profile
+        if prof.name not in self._saved_cache:
+            try:
+                found = self.keeper.workspace.find_coefficients(prof.name, prof.speed_max_rpm)
+            except (UserError, OSError):
+                found = None
+            self._saved_cache[prof.name] = found
+        return self._saved_cache[prof.name]
+
     def tick_item(self, item: int) -> None:
         proc = self.procedure
         if proc is None:
-            mode = {1: Mode.ONE_PLANE, 2: Mode.TWO_PLANE, 3: Mode.AMPLITUDE_ONLY}.get(item)
+            mode = {1: Mode.ONE_PLANE, 2: Mode.TWO_PLANE, 3: Mode.AMPLITUDE_ONLY,
+                    4: Mode.SAVED_TRIM}.get(item)
             if mode is not None:
                 self.choose_mode(mode)
             self.tick()
@@ -363,6 +379,7 @@ class TrueturnApp(App):
             elif step.kind == "verdict" and not proc.finished:
                 proc.finish()
                 path = self.keeper.finish(proc)
+                self._saved_cache.clear()
                 self.message = f"Job closed and saved: {path}"
             else:
                 self.message = "The job is finished. Press q to quit."
@@ -532,7 +549,9 @@ class TrueturnApp(App):
             "", "[b]Choose the procedure[/b]",
             "  [b]1[/b]  one plane (narrow rotor: fan, pulley, single wheel)",
             "  [b]2[/b]  two planes (long rotor or two wheels)",
-            "  [b]3[/b]  amplitude only: four-run method, no phase needed", "",
+            "  [b]3[/b]  amplitude only: four-run method, no phase needed",
+            "  [b]4[/b]  one-run trim with the coefficients of an earlier job" +
+            ("" if self.saved_coefficients() else " [dim](none saved yet)[/dim]"), "",
             "  [b]p[/b]  pick another saved machine, or create one", "",
             "Every hands-on step waits for tach standstill and your checklist.",
             "Press [b]c[/b] for the cautions first."])

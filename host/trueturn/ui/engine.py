@@ -10,7 +10,15 @@ from __future__ import annotations
 
 from trueturn.angles import wrap_deg
 from trueturn.balance.iso21940 import angular_speed_rad_s
-from trueturn.balance.readings import BalanceInput, Plane, Reading, Run, Sensor, Tolerance
+from trueturn.balance.readings import (
+    BalanceInput,
+    Plane,
+    Reading,
+    Run,
+    SavedCoefficient,
+    Sensor,
+    Tolerance,
+)
 from trueturn.balance.readings import PlacedMass as EngineMass
 from trueturn.balance.solve import solve
 from trueturn.balance.splitting import split
@@ -28,6 +36,7 @@ from trueturn.ui.procedure import (
     Solution,
     TrialSuggestion,
     Verdict,
+    planes_for,
 )
 
 
@@ -61,7 +70,7 @@ class BalanceEngine:
     # ---- solving ------------------------------------------------------------------------
     def _input(self, setup: ProcedureSetup, runs: list[RunRecord],
                with_tolerance: bool) -> BalanceInput:
-        planes = setup.planes[:2] if setup.mode is Mode.TWO_PLANE else setup.planes[:1]
+        planes = planes_for(setup)
         phase = setup.mode is not Mode.AMPLITUDE_ONLY
         engine_runs = []
         for run in runs:
@@ -73,9 +82,10 @@ class BalanceEngine:
         tolerance = None
         if with_tolerance:
             tolerance = Tolerance(setup.rotor_mass_kg, setup.grade_mm_per_s, setup.speed_rpm)
+        saved = tuple(c for c in setup.saved_coefficients if isinstance(c, SavedCoefficient))
         return BalanceInput(tuple(Plane(p.name, p.radius_mm) for p in planes),
                             tuple(Sensor(s) for s in setup.sensors), tuple(engine_runs),
-                            tolerance=tolerance)
+                            influence=saved, tolerance=tolerance)
 
     def _parts(self, setup: ProcedureSetup, corrections: list[Correction], kind: str,
                removal: bool) -> tuple[PlacedMass, ...]:

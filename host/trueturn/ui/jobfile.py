@@ -42,7 +42,8 @@ class JobKeeper:
             self.path = self.workspace.save_job(self.job)
 
     def start(self, proc: Procedure) -> None:
-        method = {Mode.TWO_PLANE: "two-plane"}.get(proc.setup.mode, "single-plane")
+        method = {Mode.TWO_PLANE: "two-plane", Mode.SAVED_TRIM: "trim"}.get(
+            proc.setup.mode, "single-plane")
         created = rec.now_iso()
         if self.job_file is None:
             self.workspace.save_machine(self.profile)
@@ -122,6 +123,22 @@ class JobKeeper:
             self.job.runs.append(record)
         self._save()
 
+    def _keep_coefficients(self, proc: Procedure) -> None:
+        """Store the influence coefficients (refitted over every run) for later trims."""
+        assert self.job is not None
+        model = proc.solution.coefficients if proc.solution is not None else None
+        saved = model.as_saved() if hasattr(model, "as_saved") else []
+        unit = next((r.unit for r in proc.runs[-1].readings.values()), "") if proc.runs else ""
+        if not saved or _job_unit(unit) not in UNIT_TO_JOB.values():
+            return
+        entries = [rec.InfluenceEntry(c.sensor, c.plane, c.amp_per_g, c.phase_deg % 360.0)
+                   for c in saved]
+        coefficients = rec.CoefficientSet(proc.setup.speed_rpm, _job_unit(unit),  # type: ignore[arg-type]
+                                          entries, job_id=self.job.job_id,
+                                          created=rec.now_iso())
+        self.job.influence = coefficients
+        self.workspace.save_coefficients(self.profile.name, coefficients)
+
     def finish(self, proc: Procedure) -> Path | None:
         """Close the job with the verdict and write the HTML report beside it."""
         if self.job is None:
@@ -133,6 +150,7 @@ class JobKeeper:
                       for name, res in v.residual_gmm.items()]
             self.job.verdict = rec.Verdict(v.grade_mm_per_s, proc.setup.speed_rpm,
                                            len(self.job.runs), planes, v.passed, note=v.note)
+        self._keep_coefficients(proc)
         self.job.status = "closed"
         self._save()
         assert self.path is not None

@@ -5,7 +5,9 @@ from __future__ import annotations
 
 from typing import TYPE_CHECKING
 
+from trueturn.balance.readings import SavedCoefficient
 from trueturn.jobs.profiles import MachineProfile, Pickup, Plane, PlaneLayout
+from trueturn.jobs.records import CoefficientSet
 from trueturn.ui.procedure import MassChange, Mode, PlaneSetup, Procedure, ProcedureSetup
 
 if TYPE_CHECKING:
@@ -44,8 +46,16 @@ def profile_from_scenario(scenario: Scenario) -> MachineProfile:
 
 
 def setup_from_profile(profile: MachineProfile, mode: Mode, standstill_s: float = 3.0,
-                       revolutions_per_run: int = 30) -> ProcedureSetup:
-    """The procedure's view of a machine profile; the planned speed is the top service speed."""
+                       revolutions_per_run: int = 30,
+                       saved: CoefficientSet | None = None) -> ProcedureSetup:
+    """The procedure's view of a machine profile; the planned speed is the top service speed.
+
+    ``saved``: influence coefficients kept by an earlier job, for the one-run trim.
+    """
+    coefficients: tuple[SavedCoefficient, ...] = ()
+    if saved is not None:
+        coefficients = tuple(SavedCoefficient(e.sensor, e.plane, e.amp, e.phase_deg,
+                                              saved.speed_rpm) for e in saved.entries)
     planes = tuple(PlaneSetup(p.name, p.radius_mm, tuple(p.layout.position_angles_deg()))
                    for p in profile.planes)
     return ProcedureSetup(
@@ -53,7 +63,9 @@ def setup_from_profile(profile: MachineProfile, mode: Mode, standstill_s: float 
         sensors=tuple(p.name for p in profile.pickups), rotor_mass_kg=profile.rotor_mass_kg,
         speed_rpm=profile.speed_max_rpm, max_speed_rpm=profile.max_speed_rpm,
         grade_mm_per_s=profile.target_grade, revolutions_per_run=revolutions_per_run,
-        standstill_s=standstill_s)
+        standstill_s=standstill_s,
+        saved_planes=tuple(dict.fromkeys(c.plane for c in coefficients)),
+        saved_coefficients=coefficients)
 
 
 def describe_change(change: MassChange, proc: Procedure, engine: BalanceEngine) -> str:

@@ -37,6 +37,7 @@ class Mode(str, Enum):
     ONE_PLANE = "one-plane"
     TWO_PLANE = "two-plane"
     AMPLITUDE_ONLY = "amplitude-only"
+    SAVED_TRIM = "saved-trim"  # one run, with influence coefficients saved by an earlier job
 
 
 # Gate checklists. Wording is ours; the items are the usual shop cautions.
@@ -88,6 +89,8 @@ class ProcedureSetup:
     standstill_s: float = DEFAULT_STANDSTILL_S
     runaway_factor: float = DEFAULT_RUNAWAY_FACTOR
     phase_limit_deg: float = DEFAULT_PHASE_LIMIT_DEG
+    saved_planes: tuple[str, ...] = ()  # saved-trim: the planes the coefficients cover
+    saved_coefficients: tuple[object, ...] = ()  # saved-trim: opaque to the procedure
 
 
 @dataclass(frozen=True)
@@ -219,6 +222,13 @@ class Step:
     phase: str = "start"  # hands-on: lockout|working; run: arming|running; others: start
 
 
+def planes_for(setup: ProcedureSetup) -> tuple[PlaneSetup, ...]:
+    """The correction planes a procedure works in."""
+    if setup.mode is Mode.SAVED_TRIM:
+        return tuple(p for p in setup.planes if p.name in setup.saved_planes)
+    return setup.planes[:2] if setup.mode is Mode.TWO_PLANE else setup.planes[:1]
+
+
 class StandstillWatch:
     """Tach-confirmed standstill on the board's own clock.
 
@@ -268,6 +278,8 @@ class Procedure:
 
     def __init__(self, setup: ProcedureSetup, engine: Engine,
                  watch: StandstillWatch | None = None) -> None:
+        if setup.mode is Mode.SAVED_TRIM and not setup.saved_coefficients:
+            raise ValueError("no saved influence coefficients for this machine at this speed")
         if setup.mode is Mode.TWO_PLANE and len(setup.planes) < 2:
             raise ValueError("two-plane balancing needs two correction planes in the profile")
         if not setup.planes:
@@ -294,7 +306,7 @@ class Procedure:
     # ---- what to show -------------------------------------------------------------------
     @property
     def planes_used(self) -> tuple[PlaneSetup, ...]:
-        return self.setup.planes[:2] if self.setup.mode is Mode.TWO_PLANE else self.setup.planes[:1]
+        return planes_for(self.setup)
 
     def plane(self, name: str) -> PlaneSetup:
         for p in self.setup.planes:
@@ -487,6 +499,8 @@ class Procedure:
     def _runs_needed(self) -> list[tuple[str, PlaneSetup, float]]:
         """Trial runs: (label, plane, angle offset from the suggestion)."""
         mode = self.setup.mode
+        if mode is Mode.SAVED_TRIM:
+            return []
         if mode is Mode.AMPLITUDE_ONLY:
             p = self.setup.planes[0]
             return [(f"trial {p.name} at {a:.0f} deg", p, a) for a in (0.0, 120.0, 240.0)]

@@ -26,7 +26,7 @@ KEYS: list[tuple[str, str]] = [
     ("m", "Meter: live 1x amplitude, phase, speed, polar plot"),
     ("s", "Spectrum with labelled peaks"),
     ("g", "Guide: the balancing procedure"),
-    ("1 2 3", "Guide set-up: one plane / two planes / amplitude only"),
+    ("1 2 3 4", "Guide set-up: one plane / two planes / amplitude only / one-run trim"),
     ("p", "Guide set-up: pick a saved machine or create a new one"),
     ("1 … 4", "Guide: tick or untick a checklist item"),
     ("Enter", "Guide: confirm the step shown (gates refuse while unsafe)"),

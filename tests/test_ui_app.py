@@ -279,3 +279,20 @@ def test_create_a_machine_in_the_app(tmp_path: Path) -> None:
             assert "Lathe 2" in screen_text(app)
             await press(app, pilot, "q")
     asyncio.run(scenario())
+
+
+def test_a_pulled_cable_is_reported_and_blocks_the_gates(tmp_path: Path) -> None:
+    async def scenario() -> None:
+        app = make_app("bench-grinder", tmp_path)
+        async with app.run_test(size=SIZE) as pilot:
+            await connect(app, pilot)
+            await press(app, pilot, "2")
+            app.session.rig.unplug()
+            await wait_for(pilot, lambda: "LINK LOST" in screen_text(app), 10)
+            # No data, no standstill proof: the gate stays shut.
+            await press(app, pilot, "1", "2", "enter")
+            proc = app.procedure
+            assert proc is not None and proc.step.phase == "lockout"
+            assert "Refused: no fresh data from the board" in screen_text(app)
+            await press(app, pilot, "q")
+    asyncio.run(scenario())

@@ -104,7 +104,8 @@ class Rig:
 
 
 def test_standstill_needs_quiet_tach_and_live_data() -> None:
-    watch = StandstillWatch(3.0)
+    wall = [100.0]
+    watch = StandstillWatch(3.0, clock=lambda: wall[0], stale_s=1.0)
     assert not watch.standstill  # no data at all: nothing proven
     for k in range(100):
         watch.edge(k * 0.02)
@@ -112,6 +113,10 @@ def test_standstill_needs_quiet_tach_and_live_data() -> None:
     watch.data(2.0 + 2.9)
     assert not watch.standstill  # 2.9 s since the last edge
     watch.data(2.0 + 3.1)
+    assert watch.standstill
+    wall[0] += 1.5  # then the data stops coming: the old quiet proves nothing now
+    assert not watch.standstill
+    watch.data(2.0 + 3.2)
     assert watch.standstill
 
 

@@ -266,6 +266,7 @@ class TrueturnApp(App):
 
     def lost_link(self, text: str) -> None:
         self.link_error = text
+        self.session.watch.reset()  # nothing is proven about the rotor any more
         self.message = f"LINK LOST: {text}. The job is saved up to the last run."
 
     async def action_quit(self) -> None:
@@ -378,9 +379,9 @@ class TrueturnApp(App):
                 self.message = ""
             elif step.kind == "verdict" and not proc.finished:
                 proc.finish()
-                path = self.keeper.finish(proc)
+                self.keeper.finish(proc)
                 self._saved_cache.clear()
-                self.message = f"Job closed and saved: {path}"
+                self.message = "Job closed and saved (report beside it). Press q to quit."
             else:
                 self.message = "The job is finished. Press q to quit."
         except GateRefused as exc:

@@ -24,6 +24,8 @@ Safety gates (ARCHITECTURE.md, "Safety"):
 
 from __future__ import annotations
 
+import time
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from enum import Enum
 from typing import Literal, Protocol
@@ -232,16 +234,20 @@ def planes_for(setup: ProcedureSetup) -> tuple[PlaneSetup, ...]:
 class StandstillWatch:
     """Tach-confirmed standstill on the board's own clock.
 
-    Standstill holds when data has been arriving for at least ``hold_s`` of board time and
-    no tach edge came during the last ``hold_s``. If data stops arriving, board time stops
-    and standstill is never confirmed (a dead link proves nothing).
+    Standstill holds when data has been arriving for at least ``hold_s`` of board time, no
+    tach edge came during the last ``hold_s``, and the newest data is fresh (arrived within
+    ``stale_s`` by ``clock``, a monotonic wall clock). A dead or silent link proves nothing.
     """
 
-    def __init__(self, hold_s: float = DEFAULT_STANDSTILL_S) -> None:
+    def __init__(self, hold_s: float = DEFAULT_STANDSTILL_S,
+                 clock: Callable[[], float] = time.monotonic, stale_s: float = 1.0) -> None:
         self.hold_s = hold_s
+        self.clock = clock
+        self.stale_s = stale_s
         self.first_s: float | None = None
         self.now_s: float | None = None
         self.last_edge_s: float | None = None
+        self.last_data_wall_s: float | None = None
         self.edges_seen = 0
 
     def data(self, board_time_s: float) -> None:
@@ -249,6 +255,7 @@ class StandstillWatch:
         if self.first_s is None:
             self.first_s = board_time_s
         self.now_s = board_time_s if self.now_s is None else max(self.now_s, board_time_s)
+        self.last_data_wall_s = self.clock()
 
     def edge(self, board_time_s: float) -> None:
         """A tach edge at this board time."""
@@ -257,8 +264,8 @@ class StandstillWatch:
         self.edges_seen += 1
 
     def reset(self) -> None:
-        """Forget everything (new stream or board reset)."""
-        self.first_s = self.now_s = self.last_edge_s = None
+        """Forget everything (new stream, board reset, link lost)."""
+        self.first_s = self.now_s = self.last_edge_s = self.last_data_wall_s = None
         self.edges_seen = 0
 
     def quiet_s(self) -> float:
@@ -269,8 +276,14 @@ class StandstillWatch:
         return max(0.0, self.now_s - since)
 
     @property
+    def fresh(self) -> bool:
+        """Data arrived within ``stale_s`` (wall clock)."""
+        return (self.last_data_wall_s is not None
+                and self.clock() - self.last_data_wall_s <= self.stale_s)
+
+    @property
     def standstill(self) -> bool:
-        return self.quiet_s() >= self.hold_s
+        return self.fresh and self.quiet_s() >= self.hold_s
 
 
 class Procedure:
@@ -337,6 +350,9 @@ class Procedure:
             # "No edges" proves nothing from a tach that has not been seen working.
             raise GateRefused("the tach has not seen the rotor turn since the link started: "
                               "standstill cannot be proven; check the tach and its mark")
+        if not self.watch.fresh:
+            raise GateRefused("no fresh data from the board: standstill cannot be proven; "
+                              "check the cable and the board")
         if not self.watch.standstill:
             quiet = self.watch.quiet_s()
             raise GateRefused(

@@ -97,6 +97,7 @@ def analyze_capture(raw: bytes, revs: int | None = None, mains_hz: float | None 
                                       "only the last stream is analysed")
                 continue
             meter.feed(item)
+    meter.end_of_stream()
     readings = tuple(meter.readings())
     warnings = list(dict.fromkeys(link_notes))
     c = decoder.counters

@@ -43,6 +43,7 @@ DEFAULT_TICK_HZ = 2_000_000
 DEFAULT_ADC_BITS = 10
 DEFAULT_REFERENCE_MV = 5000
 MAX_REVOLUTION_S = 10.0  # slowest shaft measured: 6 rpm
+TACH_SCATTER_WARN_DEG = 0.5  # tach edges scattering more than this are worth a word
 
 
 class MessageLike(Protocol):
@@ -221,6 +222,8 @@ class LiveAnalyzer:
         self._latest_tick = self.start_tick
         self._last_update_tick = self.start_tick
         self.revs_with_gaps = 0
+        self.revs_uneven = 0
+        self._ended = False
         self.revs_skipped = 0
         self.clipped_samples = 0
         self.samples_seen = 0
@@ -254,6 +257,11 @@ class LiveAnalyzer:
             self.reference_mv = int(msg["adc_reference_mv"])
             self.aperture_ticks = int(msg["aperture_delay_ticks"])
         return False
+
+    def end_of_stream(self) -> None:
+        """No more messages will come (the end of a capture): stop holding back the newest
+        revolution for the edge after it."""
+        self._ended = True
 
     def feed_all(self, messages: Iterable[MessageLike]) -> None:
         for msg in messages:
@@ -309,7 +317,16 @@ class LiveAnalyzer:
     def _ready_count(self) -> int:
         if self._next_index is None:
             return 0
-        return bisect.bisect_right(self._pending_ends, self._latest_tick)
+        ready = bisect.bisect_right(self._pending_ends, self._latest_tick)
+        # The newest revolution waits for the next edge, which tells whether the edge that
+        # closed it came early or late (TachTracker.uneven); not longer than two of its
+        # periods, so a stopped shaft or a missed edge does not hold it for ever.
+        if ready and ready == len(self._pending) and not self._ended:
+            newest = self._pending[-1]
+            if newest.number == self.tach.revolutions - 1 and \
+                    self._latest_tick < newest.end_tick + 2 * newest.period_ticks:
+                ready -= 1
+        return ready
 
     # ---------------------------------------------------------------- processing
     def _trim(self, keep_from_tick: int) -> None:
@@ -338,6 +355,8 @@ class LiveAnalyzer:
         for rev in ready:
             if any(g0 < rev.end_tick and g1 > rev.start_tick for g0, g1 in self._gaps):
                 self.revs_with_gaps += 1
+            elif rev.number in self.tach.uneven:
+                self.revs_uneven += 1
             else:
                 use.append(rev)
         first_tick = self._sample_tick(self._chunks[0][0]) if self._chunks else self._latest_tick
@@ -407,6 +426,12 @@ class LiveAnalyzer:
         if self.tach.missing_edges:
             out.append(f"{self.tach.missing_edges} tach edge(s) missed; those revolutions "
                        "were left out")
+        scatter = self.tach.timing_scatter_deg
+        if self.revs_uneven or scatter > TACH_SCATTER_WARN_DEG:
+            out.append(f"tach timing is uneven (edges scatter by {scatter:.1f} deg rms, "
+                       f"{self.revs_uneven} revolution(s) left out): clean or renew the "
+                       "reflective mark, check the sensor's distance and that its mount is "
+                       "tight; speed and phase readings wander with it")
         if self.revs_with_gaps:
             out.append(f"{self.revs_with_gaps} revolution(s) left out for lost samples "
                        "(USB link dropped data)")

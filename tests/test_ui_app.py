@@ -13,12 +13,14 @@ import math
 import time
 from pathlib import Path
 
+import yaml
 from textual import events
 from textual.keys import _character_to_key
 from textual.pilot import Pilot
 from textual.widgets import Input, Static
 
 from trueturn.jobs.store import read_document
+from trueturn.sim.scenario import scenario_dir
 from trueturn.ui.app import AppConfig, TrueturnApp
 from trueturn.ui.launch import scenario_profile
 from trueturn.ui.procedure import Mode
@@ -28,8 +30,21 @@ from trueturn.ui.texts import KEYS
 SIZE = (80, 24)
 
 
+def quick_scenario(name: str, tmp_path: Path) -> str:
+    """A copy of a demo scenario whose motor starts and stops in about a second (the
+    scenario files are meant to be copied and edited), so the tests spend less time
+    waiting for a coasting rotor; everything else is the scenario as shipped."""
+    raw = yaml.safe_load((scenario_dir() / f"{name}.yaml").read_text(encoding="utf-8"))
+    raw["motor"]["spin_up_s"] = 1.0
+    raw["motor"]["coast_down_s"] = 1.5
+    path = tmp_path / f"{name}.yaml"
+    path.write_text(yaml.safe_dump(raw), encoding="utf-8")
+    return str(path)
+
+
 def make_app(scenario: str, tmp_path: Path) -> TrueturnApp:
-    config = AppConfig(f"sim://{scenario}?realtime=0&motor=off", scenario_profile(scenario),
+    source = quick_scenario(scenario, tmp_path)
+    config = AppConfig(f"sim://{source}?realtime=0&motor=off", scenario_profile(source),
                        demo=True, workspace=tmp_path / "ws")
     return TrueturnApp(config)
 
@@ -270,8 +285,11 @@ def test_create_a_machine_in_the_app(tmp_path: Path) -> None:
             for k, text in enumerate(fields):
                 field = app.screen.query(Input)[k]
                 field.value = ""
-                field.focus()
-                await type_text(app, pilot, text)
+                if k == 0:  # typed like a person; the rest filled in directly
+                    field.focus()
+                    await type_text(app, pilot, text)
+                else:
+                    field.value = text
             await press(app, pilot, "ctrl+s")
             await wait_for(pilot, lambda: app.config.profile.name == "Lathe 2", 5)
             saved = app.keeper.workspace.load_machine("Lathe 2")

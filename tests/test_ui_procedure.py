@@ -285,3 +285,20 @@ def test_one_run_trim_with_coefficients_saved_by_an_earlier_job() -> None:
     after = rig.scenario.rotor.response_1x(rig.setup.speed_rpm, rig.masses)
     for name in before:
         assert abs(after[name]) < 0.1 * abs(before[name])  # physics truth
+
+
+def test_a_run_the_engine_cannot_use_is_measured_again() -> None:
+    rig = Rig("shop-fan", Mode.ONE_PLANE)
+    rig.hands_on()
+    rig.run()
+    rig.hands_on()
+    rig.proc.arm_run(True, rig.t)
+    # The trial run went at half speed (belt slipping): no common speed with the as-found.
+    rig.proc.record(rig.readings(), rig.setup.speed_rpm / 2, rig.t)
+    assert rig.proc.step.kind == "correction" and rig.proc.problem
+    with pytest.raises(GateRefused, match="no correction"):
+        rig.proc.accept_correction()
+    rig.proc.repeat_run()
+    assert rig.proc.step.kind == "run" and len(rig.proc.runs) == 1
+    rig.run()
+    assert rig.proc.step.kind == "correction" and rig.proc.solution is not None

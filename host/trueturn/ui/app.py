@@ -9,6 +9,7 @@ the :class:`~trueturn.ui.session.LinkSession`; the screen polls a snapshot ten t
 from __future__ import annotations
 
 import contextlib
+import statistics
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -262,7 +263,7 @@ class TrueturnApp(App):
                         self.call_from_thread(self.lost_link, str(exc))
                 return
             # Sleep a little every time: a fast virtual rig must not starve the screen.
-            time.sleep(0.001 if handled else 0.003)
+            time.sleep(0.0 if handled else 0.003)
 
     def lost_link(self, text: str) -> None:
         self.link_error = text
@@ -374,6 +375,9 @@ class TrueturnApp(App):
                     self.message = "Switch the machine on now and stand clear."
             elif step.kind == "run":
                 self.message = "Measuring: wait for the bar to fill (the reading must be steady)."
+            elif step.kind == "correction" and proc.problem:
+                proc.repeat_run()
+                self.message = "Run again: confirm the forces to start."
             elif step.kind == "correction":
                 proc.accept_correction()
                 self.message = ""
@@ -441,7 +445,9 @@ class TrueturnApp(App):
             self.alarm = ev
             self.keeper.event(ev)
         if proc.ready(meter.readings):
-            run = proc.record(meter.readings, meter.speed_rpm or 0.0, now)
+            # The run's speed: the mean over the averaged revolutions of its readings.
+            speeds = [r.speed_rpm for r in meter.readings.values() if r.speed_rpm > 0]
+            run = proc.record(meter.readings, statistics.fmean(speeds), now)
             self.keeper.run(proc, run)
             stop = "press x to switch the virtual motor off" if self.rig else \
                 "switch the machine off"
@@ -623,6 +629,11 @@ class TrueturnApp(App):
                 if waiting and meter.warnings:
                     lines.append(f"[yellow]Not ready: {meter.warnings[0]}[/]")
                 lines.append("Stop at once on a warning below.")
+        elif step.kind == "correction" and proc.problem:
+            lines += [f"[b red]No correction from these runs:[/] {proc.problem}",
+                      "Check that the pickups and the tach did not move, and that the "
+                      "machine ran at its usual speed.",
+                      "[b]Enter[/b]: measure the last run again"]
         elif step.kind == "correction":
             sol = proc.solution
             assert sol is not None

@@ -110,9 +110,10 @@ class MeterAdapter:
     def view(self) -> MeterView:
         a = self.analyzer
         out = MeterView(self.sensors)
+        readings = a.readings()  # processes pending revolutions first
         speed = a.speed_rpm
         out.speed_rpm = speed if math.isfinite(speed) else None
-        for r in a.readings():
+        for r in readings:
             out.readings[r.sensor] = SensorReading(
                 r.sensor, r.amplitude, r.unit, r.phase_deg, r.confidence_deg, r.revolutions,
                 r.steady, r.speed_rpm, r.confidence_radius

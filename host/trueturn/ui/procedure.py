@@ -312,6 +312,7 @@ class Procedure:
         self._pending_run_events: list[SafetyEvent] = []
         self._alarmed: set[str] = set()
         self._force_text: tuple[str, ...] = ()
+        self.problem = ""  # why no correction could be computed (then: repeat the run)
         self.step = Step("hands-on", "Set up: mount the pickups and the tach",
                          (MassChange("mount-pickups"),), phase="lockout")
         self.finished = False
@@ -490,13 +491,23 @@ class Procedure:
     # ---- correction step ----------------------------------------------------------------
     def set_removal(self, removal: bool) -> None:
         """Choose removing material instead of adding mass; re-splits the correction."""
-        if self.step.kind != "correction":
+        if self.step.kind != "correction" or self.problem:
             raise GateRefused("removal can only be chosen while a correction is shown")
         self.removal = removal
         self.solution = self._solve()
 
+    def repeat_run(self) -> None:
+        """Drop the last run and measure it again (after a problem with its readings)."""
+        if self.step.kind != "correction" or not self.problem or not self.runs:
+            raise GateRefused("there is no run to repeat")
+        last = self.runs.pop()
+        self.problem = ""
+        self.step = Step("run", f"Repeat: {last.label}", run_label=last.label, phase="arming")
+
     def accept_correction(self) -> None:
         """Go on to the hands-on step that places the correction parts."""
+        if self.step.kind == "correction" and self.problem:
+            raise GateRefused(f"no correction: {self.problem}")
         if self.step.kind != "correction" or self.solution is None:
             raise GateRefused("no correction is waiting")
         changes = [MassChange("detach", m) for m in self.on_rotor if m.kind == "trial"]
@@ -556,11 +567,19 @@ class Procedure:
                              phase="lockout")
             return
         if n_runs == len(trials) + 1:
-            self.solution = self._solve()
             self.step = Step("correction", "Correction")
+            try:
+                self.solution = self._solve()
+            except GateRefused as exc:
+                self.problem = str(exc)
             return
         # A check run: verdict, and the trim still needed.
-        self.verdict, trim = self.engine.assess(self.setup, self.runs, self.removal)
+        try:
+            self.verdict, trim = self.engine.assess(self.setup, self.runs, self.removal)
+        except GateRefused as exc:
+            self.step = Step("correction", "Check run not usable")
+            self.problem = str(exc)
+            return
         if self.verdict.passed or self.trims_done >= self.setup.max_trims:
             self.step = Step("verdict", "Verdict")
         else:

@@ -626,8 +626,11 @@ class TrueturnApp(App):
                                  f"±{r.confidence_deg:.0f}°, {r.revolutions} rev, {st}")
                 waiting = [r for r in (meter.readings.get(n) for n in proc.setup.sensors)
                            if r is not None and not proc.settled(r)]
-                if waiting and meter.warnings:
-                    lines.append(f"[yellow]Not ready: {meter.warnings[0]}[/]")
+                if waiting:
+                    own = [w for w in meter.warnings
+                           if any(w.startswith(f"{r.sensor}:") for r in waiting)]
+                    why = own[0] if own else "waiting for enough steady revolutions"
+                    lines.append(f"[yellow]Not ready: {why}[/]")
                 lines.append("Stop at once on a warning below.")
         elif step.kind == "correction" and proc.problem:
             lines += [f"[b red]No correction from these runs:[/] {proc.problem}",

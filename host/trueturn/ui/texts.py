@@ -2,32 +2,31 @@
 
 from __future__ import annotations
 
-CAUTIONS = """\
-[b]Cautions — read before every job[/b]
-
-• A rotor can throw a weight, a clip or a chip with enough force to injure or kill.
-  Stand out of the plane of rotation whenever the machine can turn.
-• Before touching the rotor: switch off, pull the plug or lock the isolator, wait until
-  the tach confirms standstill, and check with your own eyes.
-• Fasten every weight as the machine's maker allows: screws with thread lock, clips made
-  for the purpose. Putty and tape are for trials at reduced speed only, if at all.
-• Drilling to remove mass weakens parts. Never drill a grinding wheel, a saw blade, a
-  cast fan hub or a cutterhead body; follow the maker's instructions for your part.
-• Never run above the machine's or the wheel's marked maximum speed.
-• Guards and covers go back on before every run. Wear eye and hearing protection.
-• Stop at once if vibration rises sharply, a noise changes, or anything comes loose.
-
-This tool does not replace the manufacturer's instructions, local codes and regulations,
-or the judgement of a licensed professional. Where they say otherwise, they win.
-
-[dim]Press Escape to go back.[/dim]"""
+CAUTIONS = "\n".join([
+    "[b]Cautions — read before every job[/b]", "",
+    "• A rotor can throw a weight, clip or chip hard enough to injure or kill: stay out of "
+    "the plane of rotation whenever the machine can turn.",
+    "• Before touching the rotor: switch off, pull the plug or lock the isolator, wait for "
+    "the tach to confirm standstill, and look for yourself.",
+    "• Fasten weights only as the machine's maker allows (screws with thread lock, clips "
+    "made for it). Putty and tape: trials at reduced speed only, if at all.",
+    "• Removing mass weakens parts. Never drill a grinding wheel, a saw blade, a cast fan "
+    "hub or a cutterhead body; follow the maker's instructions.",
+    "• Never run above the machine's or the wheel's marked maximum speed.",
+    "• Guards and covers back on before every run; wear eye and ear protection.",
+    "• Stop at once if vibration rises, a noise changes or anything comes loose.", "",
+    "This tool does not replace the manufacturer's instructions, local codes and "
+    "regulations, or the judgement of a licensed professional: where they say otherwise, "
+    "they win.", "",
+    "[dim]Press Escape to go back.[/dim]",
+])
 
 KEYS: list[tuple[str, str]] = [
     ("m", "Meter: live 1x amplitude, phase, speed, polar plot"),
     ("s", "Spectrum with labelled peaks"),
     ("g", "Guide: the balancing procedure"),
-    ("1 2 3 4", "Guide set-up: one plane / two planes / amplitude only / one-run trim"),
-    ("p", "Guide set-up: pick a saved machine or create a new one"),
+    ("1 2 3 4", "Set-up: one plane / two planes / amplitude only / one-run trim"),
+    ("p", "Set-up: pick a saved machine or create a new one"),
     ("1 … 4", "Guide: tick or untick a checklist item"),
     ("Enter", "Guide: confirm the step shown (gates refuse while unsafe)"),
     ("r", "Guide: remove material instead of adding mass (correction step)"),
@@ -43,6 +42,6 @@ KEYS: list[tuple[str, str]] = [
 def keys_markup() -> str:
     lines = ["[b]Keys[/b]", ""]
     lines += [f"  [b]{k:<8}[/b] {what}" for k, what in KEYS]
-    lines += ["", "The mouse works too: click the tabs at the bottom.",
+    lines += ["", "The mouse works too: click a key in the bar at the bottom.",
               "[dim]Press Escape to go back.[/dim]"]
     return "\n".join(lines)

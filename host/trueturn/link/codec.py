@@ -7,8 +7,11 @@ On the wire: ``COBS(frame) | 0x00``. All payload fields are little-endian.
 from __future__ import annotations
 
 import struct
+from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
 from typing import Any
+
+import numpy as np
 
 from trueturn.link.catalogue import FIELD_FORMATS, Catalogue, MessageDef, load_catalogue
 from trueturn.link.cobs import CobsError, cobs_decode, cobs_encode
@@ -27,6 +30,54 @@ class FrameError(ValueError):
         self.detail = detail
 
 
+# numpy dtypes of the catalogue's field types (all little-endian on the wire)
+_FIELD_DTYPES = {"u8": "<u1", "u16": "<u2", "u32": "<u4", "i16": "<i2", "i32": "<i4"}
+
+
+class RestArray(Sequence[int]):
+    """A decoded array field (``count: rest``, e.g. the ``samples`` of a block), read-only.
+
+    Backed by a numpy view of the frame bytes (no Python int per element), so
+    ``numpy.asarray(values["samples"])`` costs nothing; it behaves as a sequence of ints and
+    is equal to a list holding the same numbers, as the decoded field always was.
+    """
+
+    __slots__ = ("_array",)
+    __hash__ = None  # type: ignore[assignment]  # like the list it stands for
+
+    def __init__(self, array: np.ndarray) -> None:
+        self._array = array
+
+    def __len__(self) -> int:
+        return len(self._array)
+
+    def __getitem__(self, index):  # type: ignore[no-untyped-def, override]
+        if isinstance(index, slice):
+            return self._array[index].tolist()
+        return int(self._array[index])
+
+    def __iter__(self) -> Iterator[int]:
+        return iter(self._array.tolist())
+
+    def __eq__(self, other: object) -> bool:
+        if isinstance(other, RestArray):
+            return self.tolist() == other.tolist()
+        if isinstance(other, (list, tuple)):
+            return self.tolist() == list(other)
+        return NotImplemented
+
+    def __repr__(self) -> str:
+        return repr(self.tolist())
+
+    def __array__(self, dtype: Any = None, copy: Any = None) -> np.ndarray:
+        if dtype is None or np.dtype(dtype) == self._array.dtype:
+            return self._array
+        return self._array.astype(dtype)
+
+    def tolist(self) -> list[int]:
+        return self._array.tolist()
+
+
 @dataclass(frozen=True)
 class Message:
     """One decoded message: its catalogue name, sequence number and field values."""
@@ -39,7 +90,9 @@ class Message:
         return self.values[key]
 
     def to_json(self) -> dict[str, Any]:
-        return {"type": self.name, "seq": self.seq, **self.values}
+        values = {k: v.tolist() if isinstance(v, RestArray) else v
+                  for k, v in self.values.items()}
+        return {"type": self.name, "seq": self.seq, **values}
 
 
 def encode_payload(mdef: MessageDef, values: dict[str, Any]) -> bytes:
@@ -77,27 +130,51 @@ def encode_frame(name: str, seq: int, values: dict[str, Any] | None = None,
 
 def decode_frame(body: bytes, catalogue: Catalogue | None = None) -> Message:
     """Decode one COBS body (delimiter removed) or raise :class:`FrameError`."""
-    cat = catalogue or load_catalogue()
-    max_encoded = cat.max_frame_bytes + 1 + cat.max_frame_bytes // 254
-    if len(body) > max_encoded:
-        raise FrameError("too_long", f"{len(body)} encoded bytes, at most {max_encoded}")
-    try:
-        frame = cobs_decode(body)
-    except CobsError as exc:
-        raise FrameError("cobs", str(exc)) from None
-    if len(frame) < cat.overhead_bytes:
-        raise FrameError("too_short", f"{len(frame)} bytes, at least {cat.overhead_bytes}")
-    if len(frame) > cat.max_frame_bytes:
-        raise FrameError("too_long", f"{len(frame)} bytes, at most {cat.max_frame_bytes}")
-    got_crc = int.from_bytes(frame[-2:], "big")
-    want_crc = crc16_ibm3740(frame[:-2])
-    if got_crc != want_crc:
-        raise FrameError("crc", f"CRC {got_crc:#06x}, computed {want_crc:#06x}")
-    type_id, seq = frame[0], frame[1]
-    mdef = cat.by_id(type_id)
-    if mdef is None:
-        raise FrameError("unknown_type", f"message type {type_id:#04x}")
-    return Message(mdef.name, seq, decode_payload(mdef, frame[2:-2]))
+    return _frame_decoder(catalogue or load_catalogue()).decode(body)
+
+
+class _FrameDecoder:
+    """:func:`decode_frame` with the catalogue's constants and per-type layouts looked up
+    once (a sample stream is thousands of frames a second)."""
+
+    def __init__(self, cat: Catalogue) -> None:
+        self.catalogue = cat
+        self.max_frame = cat.max_frame_bytes
+        self.max_encoded = cat.max_frame_bytes + 1 + cat.max_frame_bytes // 254
+        self.overhead = cat.overhead_bytes
+        self.types = {m.type_id: m for m in cat.messages}
+
+    def decode(self, body: bytes) -> Message:
+        if len(body) > self.max_encoded:
+            raise FrameError("too_long", f"{len(body)} encoded bytes, at most {self.max_encoded}")
+        try:
+            frame = cobs_decode(body)
+        except CobsError as exc:
+            raise FrameError("cobs", str(exc)) from None
+        if len(frame) < self.overhead:
+            raise FrameError("too_short", f"{len(frame)} bytes, at least {self.overhead}")
+        if len(frame) > self.max_frame:
+            raise FrameError("too_long", f"{len(frame)} bytes, at most {self.max_frame}")
+        # CRC-16/IBM-3740 has no final XOR: the CRC over the frame including its own
+        # big-endian CRC is 0 exactly when the check value matches (the CRC residue)
+        if crc16_ibm3740(frame):
+            got_crc = int.from_bytes(frame[-2:], "big")
+            want_crc = crc16_ibm3740(frame[:-2])
+            raise FrameError("crc", f"CRC {got_crc:#06x}, computed {want_crc:#06x}")
+        mdef = self.types.get(frame[0])
+        if mdef is None:
+            raise FrameError("unknown_type", f"message type {frame[0]:#04x}")
+        return Message(mdef.name, frame[1], decode_payload(mdef, frame[2:-2]))
+
+
+_DECODERS: dict[int, _FrameDecoder] = {}
+
+
+def _frame_decoder(cat: Catalogue) -> _FrameDecoder:
+    found = _DECODERS.get(id(cat))
+    if found is None or found.catalogue is not cat:
+        found = _DECODERS[id(cat)] = _FrameDecoder(cat)
+    return found
 
 
 def decode_payload(mdef: MessageDef, payload: bytes) -> dict[str, Any]:
@@ -116,9 +193,8 @@ def decode_payload(mdef: MessageDef, payload: bytes) -> dict[str, Any]:
     values: dict[str, Any] = dict(zip((f.name for f in mdef.fixed_fields),
                                       fixed.unpack_from(payload), strict=True))
     if rest is not None:
-        n = (len(payload) - fixed.size) // rest.size_bytes
-        values[rest.name] = list(struct.unpack_from(
-            f"<{n}{FIELD_FORMATS[rest.type]}", payload, fixed.size))
+        values[rest.name] = RestArray(np.frombuffer(payload, _FIELD_DTYPES[rest.type],
+                                                    offset=fixed.size))
     if mdef.name == "samples":
         check_sample_block(values)
     return values
@@ -189,6 +265,7 @@ class StreamDecoder:
         self._last_uptime_ms: int | None = None
         self._identity_requested = False
         self._last_body = b""
+        self._decoder = _frame_decoder(self.catalogue)
 
     def expect_identity(self) -> None:
         """Tell the decoder the host sent ``identify``, so the next identity is no reset."""
@@ -203,19 +280,21 @@ class StreamDecoder:
         """Consume bytes; return the messages and events completed by them, in order."""
         self.counters.bytes_in += len(data)
         out: list[Message | LinkEvent] = []
-        start = 0
-        while True:
-            end = data.find(b"\x00", start)
-            if end < 0:
-                self._take(data[start:], out)
-                return out
-            self._take(data[start:end], out)
+        *bodies, rest = bytes(data).split(b"\x00")
+        max_body = self._max_body
+        for body in bodies:
+            if not self._buffer and not self._discarding and len(body) <= max_body:
+                if body:  # the common case: a whole frame inside this chunk
+                    self._frame(body, out)
+                continue
+            self._take(body, out)
             if self._discarding:
                 self._discarding = False
             elif self._buffer:
                 self._frame(bytes(self._buffer), out)
             self._buffer.clear()
-            start = end + 1
+        self._take(rest, out)
+        return out
 
     def _take(self, chunk: bytes, out: list[Message | LinkEvent]) -> None:
         if self._discarding or not chunk:
@@ -233,7 +312,7 @@ class StreamDecoder:
 
     def _frame(self, body: bytes, out: list[Message | LinkEvent]) -> None:
         try:
-            msg = decode_frame(body, self.catalogue)
+            msg = self._decoder.decode(body)
         except FrameError as exc:
             self._reject(exc.kind, exc.detail, out)
             return

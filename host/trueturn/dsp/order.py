@@ -38,6 +38,18 @@ import numpy as np
 # within about half a beat per window of an order, e.g. 3000 rpm on 50 Hz mains) cannot be
 # told apart from that order without inflating its error; it is dropped and reported.
 MIN_NUISANCE_KEPT_FRACTION = 0.5
+# Summing groups of samples (fit_blocks ``group``) keeps at least this many sums per
+# revolution: the 1x keeps > 99 % of its information, 3x > 96 % (sinc^2 of 1/20 and 3/20).
+MIN_GROUPS_PER_REV = 20
+MAX_GROUP = 4
+
+
+def group_for(samples_per_rev: float) -> int:
+    """The samples summed per fitted value: up to MAX_GROUP, keeping MIN_GROUPS_PER_REV."""
+    group = 1
+    while group < MAX_GROUP and samples_per_rev >= 2 * group * MIN_GROUPS_PER_REV:
+        group *= 2
+    return group
 
 
 @dataclass(frozen=True)
@@ -50,7 +62,8 @@ class BlockFit:
     ``schur_ny`` (R, q): nuisance normal equations after removing each revolution's own fit;
     ``resid_yy`` (R,): residual energy without nuisance terms; ``gram_aa`` (R, p, p),
     ``gram_an`` (R, p, q), ``gram_nn`` (R, q, q), ``gram_ay`` (R, p), ``gram_ny`` (R, q): the raw
-    normal-equation blocks; ``sample_counts`` (R,).
+    normal-equation blocks; ``sample_counts`` (R,) samples and ``observations`` (R,) values
+    fitted (samples, or sums of samples: :func:`fit_blocks`).
     """
 
     orders: tuple[int, ...]
@@ -66,6 +79,7 @@ class BlockFit:
     gram_ay: np.ndarray
     gram_ny: np.ndarray
     sample_counts: np.ndarray
+    observations: np.ndarray
 
     @property
     def revolutions(self) -> int:
@@ -73,7 +87,7 @@ class BlockFit:
 
 
 ROW_FIELDS = ("coef_y", "coef_n", "schur_nn", "schur_ny", "resid_yy", "gram_aa", "gram_an",
-              "gram_nn", "gram_ay", "gram_ny", "sample_counts")
+              "gram_nn", "gram_ay", "gram_ny", "sample_counts", "observations")
 
 
 def join_fits(fits: list[BlockFit], last: int | None = None) -> BlockFit:
@@ -199,24 +213,128 @@ def assign_revolutions(sample_ticks: np.ndarray, starts: np.ndarray,
 
 def fit_block(sample_ticks: np.ndarray, values: np.ndarray, starts: np.ndarray,
               ends: np.ndarray, tick_hz: float, orders: tuple[int, ...] = (1, 2, 3),
-              nuisance_hz: tuple[float, ...] = (), origin_tick: int = 0) -> BlockFit:
+              nuisance_hz: tuple[float, ...] = (), origin_tick: int = 0,
+              group: int = 1) -> BlockFit:
     """Per-revolution least-squares statistics for the revolutions [starts[r], ends[r]).
 
     ``sample_ticks`` (sorted, 64-bit, aperture delay included) and ``values`` are one
     pickup's samples; ``origin_tick`` fixes the time origin of the nuisance tones and must be
-    the same for every block that is later combined. A revolution with fewer samples than
-    twice the number of unknowns gets NaN coefficients (left out by :func:`solve_orders`).
+    the same for every block that is later combined. A revolution with fewer observations
+    than twice the number of unknowns gets NaN coefficients (left out by
+    :func:`solve_orders`). ``group``: see :func:`fit_blocks`.
+    """
+    return fit_blocks([sample_ticks], [values], starts, ends, tick_hz, orders, nuisance_hz,
+                      origin_tick, group)[0]
+
+
+def fit_blocks(sample_ticks: list[np.ndarray], values: list[np.ndarray], starts: np.ndarray,
+               ends: np.ndarray, tick_hz: float, orders: tuple[int, ...] = (1, 2, 3),
+               nuisance_hz: tuple[float, ...] = (), origin_tick: int = 0,
+               group: int = 1) -> list[BlockFit]:
+    """:func:`fit_block` for several pickups over the same revolutions, in one batch.
+
+    ``group`` > 1 fits the sums of that many consecutive samples wherever a revolution's
+    samples are evenly spaced (the normal case: one ADC clock, no lost samples inside): an
+    unbiased fit that costs about ``group`` times less (:func:`_gram`); other revolutions,
+    and all of them with ``group = 1``, are fitted sample by sample.
     """
     starts = np.asarray(starts, dtype=np.int64)
     ends = np.asarray(ends, dtype=np.int64)
+    n_revs = len(starts)
+    n_ch = len(sample_ticks)
+    p = 1 + 2 * len(orders)
+    q = 2 * len(nuisance_hz)
+    m = p + q + 1
+    # one row per (pickup, revolution); every pickup's samples in one array
+    ticks_all = [np.asarray(t, dtype=np.int64) for t in sample_ticks]
+    values_all = np.concatenate([np.asarray(v, dtype=float) for v in values]) if n_ch else \
+        np.zeros(0)
+    offsets = np.cumsum([0] + [len(t) for t in ticks_all])
+    lo_rows, counts_rows, step_rows, even_rows, first_rows = [], [], [], [], []
+    for c, ticks in enumerate(ticks_all):
+        lo = np.searchsorted(ticks, starts, side="left")
+        counts = np.searchsorted(ticks, ends, side="left") - lo
+        even, step = _evenly_spaced(ticks, lo, counts) if group > 1 else \
+            (np.zeros(n_revs, dtype=bool), 0)
+        lo_rows.append(lo + offsets[c])
+        counts_rows.append(counts)
+        step_rows.append(np.full(n_revs, step, dtype=np.int64))
+        even_rows.append(even)
+        first_rows.append(ticks[np.minimum(lo, max(len(ticks) - 1, 0))] if len(ticks) else
+                          np.zeros(n_revs, dtype=np.int64))
+    lo, counts, step, even, first = (np.concatenate(x) for x in (
+        lo_rows, counts_rows, step_rows, even_rows, first_rows))
+    row_starts, row_ends = np.tile(starts, n_ch), np.tile(ends, n_ch)
+    gram = np.empty((n_ch * n_revs, m, m))
+    observations = counts.copy()
+    if even.any():
+        gram[even], observations[even] = _gram(
+            values_all, lo[even], first[even], step[even], row_starts[even], row_ends[even],
+            counts[even], tick_hz, orders, nuisance_hz, origin_tick, group)
+    if not even.all():
+        odd = ~even
+        ticks_flat = np.concatenate(ticks_all) if n_ch else np.zeros(0, dtype=np.int64)
+        gram[odd] = _dense_gram(ticks_flat, values_all, row_starts[odd], row_ends[odd],
+                                lo[odd], counts[odd], tick_hz, orders, nuisance_hz,
+                                origin_tick)
+    aa = gram[:, :p, :p]
+    rhs = gram[:, :p, p:]
+    ok = observations >= 2 * p
+    aa_safe = np.where(ok[:, None, None], aa, np.eye(p))
+    solved = np.linalg.solve(aa_safe, rhs)  # (R, p, q + 1)
+    coef_n = solved[:, :, :q]
+    coef_y = solved[:, :, q]
+    na = gram[:, p:p + q, :p]
+    schur_nn = gram[:, p:p + q, p:p + q] - np.matmul(na, coef_n)
+    schur_ny = gram[:, p:p + q, -1] - np.einsum("rqp,rp->rq", na, coef_y)
+    resid_yy = gram[:, -1, -1] - np.einsum("rp,rp->r", rhs[:, :, q], coef_y)
+    blocks = [coef_n, schur_nn, schur_ny, resid_yy, gram[:, :p, :p].copy(),
+              gram[:, :p, p:p + q].copy(), gram[:, p:p + q, p:p + q].copy(),
+              gram[:, :p, -1].copy(), gram[:, p:p + q, -1].copy()]
+    bad = ~ok
+    if bad.any():
+        coef_y[bad] = np.nan
+        for arr in blocks:
+            arr[bad] = 0.0
+    fits = []
+    for c in range(n_ch):
+        r = slice(c * n_revs, (c + 1) * n_revs)
+        fits.append(BlockFit(tuple(orders), tuple(nuisance_hz), coef_y[r],
+                             *(arr[r] for arr in blocks), counts[r], observations[r]))
+    return fits
+
+
+def _evenly_spaced(ticks: np.ndarray, lo: np.ndarray,
+                   counts: np.ndarray) -> tuple[np.ndarray, int]:
+    """(revolutions whose samples are all ``step`` ticks apart, ``step``): ``step`` is the
+    usual spacing (the median), a revolution qualifies when none of its spacings differs."""
+    even = np.zeros(len(lo), dtype=bool)
+    used = counts > 1
+    if not used.any():
+        return even, 0
+    first, stop = int(lo[used].min()), int((lo + counts)[used].max())
+    gaps = np.diff(ticks[first:stop])
+    step = int(np.median(gaps))
+    if step <= 0:
+        return even, 0
+    odd_before = np.concatenate(([0], np.cumsum(gaps != step)))  # odd spacings so far
+    last = np.clip(lo + counts - 1 - first, 0, len(gaps))
+    begin = np.clip(lo - first, 0, len(gaps))
+    return used & (odd_before[last] == odd_before[begin]), step
+
+
+def _dense_gram(sample_ticks: np.ndarray, values: np.ndarray, starts: np.ndarray,
+                ends: np.ndarray, lo: np.ndarray, counts: np.ndarray, tick_hz: float,
+                orders: tuple[int, ...], nuisance_hz: tuple[float, ...],
+                origin_tick: int) -> np.ndarray:
+    """(R, m, m) normal equations ``X'X`` of ``X = [revolution basis, tones, y]`` per
+    revolution, sample by sample (any spacing); row r's samples start at index ``lo[r]``."""
     n_revs = len(starts)
     p = 1 + 2 * len(orders)
     q = 2 * len(nuisance_hz)
     m = p + q + 1
     # Lay the samples out as (revolution, slot) directly; slots past a revolution's last
     # sample repeat a valid sample and are zeroed at the end (they add nothing to the sums).
-    lo = np.searchsorted(sample_ticks, starts, side="left")
-    counts = np.searchsorted(sample_ticks, ends, side="left") - lo
     length = max(int(counts.max()) if counts.size else 0, 1)
     slots = np.arange(length)
     valid = slots[None, :] < counts[:, None]
@@ -232,28 +350,79 @@ def fit_block(sample_ticks: np.ndarray, values: np.ndarray, starts: np.ndarray,
     columns[-1] = values[grid]
     columns *= valid.reshape(1, -1)
     per_rev = columns.reshape(m, n_revs, length).transpose(1, 0, 2)  # (R, m, L)
-    gram = np.matmul(per_rev, per_rev.transpose(0, 2, 1))
-    aa = gram[:, :p, :p]
-    rhs = gram[:, :p, p:]
-    ok = counts >= 2 * p
-    aa_safe = np.where(ok[:, None, None], aa, np.eye(p))
-    solved = np.linalg.solve(aa_safe, rhs)  # (R, p, q + 1)
-    coef_n = solved[:, :, :q]
-    coef_y = solved[:, :, q]
-    na = gram[:, p:p + q, :p]
-    schur_nn = gram[:, p:p + q, p:p + q] - np.matmul(na, coef_n)
-    schur_ny = gram[:, p:p + q, -1] - np.einsum("rqp,rp->rq", na, coef_y)
-    resid_yy = gram[:, -1, -1] - np.einsum("rp,rp->r", rhs[:, :, q], coef_y)
-    fit = BlockFit(tuple(orders), tuple(nuisance_hz), coef_y, coef_n, schur_nn, schur_ny,
-                   resid_yy, gram[:, :p, :p].copy(), gram[:, :p, p:p + q].copy(),
-                   gram[:, p:p + q, p:p + q].copy(), gram[:, :p, -1].copy(),
-                   gram[:, p:p + q, -1].copy(), counts)
-    bad = ~ok
-    if bad.any():
-        fit.coef_y[bad] = np.nan
-        for name in ROW_FIELDS[1:-1]:
-            getattr(fit, name)[bad] = 0.0
-    return fit
+    return np.matmul(per_rev, per_rev.transpose(0, 2, 1))
+
+
+def _dirichlet(angle: np.ndarray, n: np.ndarray) -> np.ndarray:
+    """``D_n(b) = sin(n b/2) / sin(b/2)``, so that ``sum_{k<n} exp(i b k) = exp(i b (n-1)/2)
+    D_n(b)`` (Dirichlet kernel; n at b = 0, where the quotient is 0/0)."""
+    half = 0.5 * angle
+    sin_half = np.sin(half)
+    tiny = np.abs(sin_half) < 1e-12
+    return np.where(tiny, n, np.sin(half * n) / np.where(tiny, 1.0, sin_half))
+
+
+def _gram(values: np.ndarray, lo: np.ndarray, first_ticks: np.ndarray,
+          step_ticks: np.ndarray, starts: np.ndarray, ends: np.ndarray, counts: np.ndarray,
+          tick_hz: float, orders: tuple[int, ...], nuisance_hz: tuple[float, ...],
+          origin_tick: int, group: int) -> tuple[np.ndarray, np.ndarray]:
+    """Normal equations of revolutions whose samples are evenly spaced, fitted to the sums
+    of ``group`` consecutive samples: (gram (R, m, m), observations per row (R,)).
+
+    Row r has its sample k at tick ``first_ticks[r] + k step_ticks[r]``, values from
+    ``values[lo[r]]`` on. Every model column is a constant or the real or imaginary part of
+    ``exp(i (a + b k))`` (shaft angle and tone phase are linear in k), so its sum over the
+    n samples of a group is exactly that column at the group's centre times ``D_n(b)``
+    (:func:`_dirichlet`). Summing is a linear map of the data: the sums obey the same model
+    with these exact columns, so least squares on them (weighted 1/n, a sum's noise variance
+    being n sigma^2) is unbiased for every order and tone, with no approximation. It gives
+    up only the detail within a group: a component with c groups per cycle keeps about
+    ``sinc^2(1/c)`` of its information (1x with 20 groups per revolution: 99 %, a phase
+    error 0.4 % above the Cramér-Rao bound; tests/test_dsp_order.py checks this path
+    against the bound).
+    """
+    n_rows = len(first_ticks)
+    p = 1 + 2 * len(orders)
+    q = 2 * len(nuisance_hz)
+    m = p + q + 1
+    n_groups = max(-(-int(counts.max()) // group), 1)
+    slots = np.arange(n_groups * group)
+    y = values[np.minimum(lo[:, None] + slots, len(values) - 1)]
+    y[slots >= counts[:, None]] = 0.0
+    # group sizes (a row's last group may be short, later ones empty) and centres
+    size = np.clip(counts[:, None] - group * np.arange(n_groups), 0, group)  # (R, G)
+    centre = group * np.arange(n_groups) + 0.5 * (size - 1)
+    ticks = first_ticks[:, None] + step_ticks[:, None] * centre  # (R, G), fractional
+    period = (ends - starts).astype(float)[:, None]
+    theta = (2.0 * math.pi) * (ticks - starts[:, None]) / period
+    columns = np.empty((m, n_rows * n_groups))
+    revolution_basis(theta.ravel(), orders, out=columns[:p].T)
+    if q:
+        tone_basis(((ticks - origin_tick) / tick_hz).ravel(), nuisance_hz,
+                   out=columns[p:p + q].T)
+    # Scale each group's values to (sum of n samples) / sqrt(n): unit noise variance per
+    # observation. Whole groups share one factor per row and column; a row's short last
+    # group gets its own; empty groups (past a revolution's end) are zero.
+    cols = columns.reshape(m, n_rows, n_groups)
+    step_rad = (2.0 * math.pi) * step_ticks[:, None]
+    col_rad = [np.zeros((n_rows, 1))]  # per-sample angle step of each complex column
+    if orders:
+        col_rad.append(step_rad / period * np.repeat(np.asarray(orders, dtype=float), 2))
+    if q:
+        col_rad.append(step_rad / tick_hz * np.repeat(np.asarray(nuisance_hz, dtype=float), 2))
+    angle = np.concatenate(col_rad, axis=1)  # (R, p + q); the constant's sum is n = D_n(0)
+    rows = np.nonzero(counts % group)[0]
+    last = counts[rows] // group
+    rem = (counts[rows] % group).astype(float)[:, None]
+    short = cols[:-1, rows, last] * (_dirichlet(angle[rows], rem) / np.sqrt(rem)).T
+    cols[:-1] *= (_dirichlet(angle, float(group)) / math.sqrt(group)).T[:, :, None]
+    cols[:-1, rows, last] = short
+    cols[:-1] *= (size > 0)[None]
+    sums = y.reshape(n_rows, n_groups, group).sum(axis=2) / math.sqrt(group)
+    sums[rows, last] *= math.sqrt(group) / np.sqrt(rem[:, 0])
+    cols[-1] = sums
+    per_rev = columns.reshape(m, n_rows, n_groups).transpose(1, 0, 2)  # (R, m, G)
+    return np.matmul(per_rev, per_rev.transpose(0, 2, 1)), np.count_nonzero(size, axis=1)
 
 
 def solve_orders(fit: BlockFit) -> OrderEstimate:
@@ -270,6 +439,7 @@ def solve_orders(fit: BlockFit) -> OrderEstimate:
     coef_y, coef_n = fit.coef_y[good], fit.coef_n[good]
     schur_nn, schur_ny, resid_yy = fit.schur_nn[good], fit.schur_ny[good], fit.resid_yy[good]
     sample_counts = fit.sample_counts[good]
+    observations = fit.observations[good]
     q = coef_n.shape[2]
     p = coef_y.shape[1]
     gamma = np.zeros(q)
@@ -298,7 +468,7 @@ def solve_orders(fit: BlockFit) -> OrderEstimate:
     beta = coef_y - np.einsum("rpq,q->rp", coef_n, gamma)
     resid = resid_yy - 2 * np.einsum("rq,q->r", schur_ny, gamma) \
         + np.einsum("q,rqk,k->r", gamma, schur_nn, gamma)
-    dof = max(int(sample_counts.sum()) - p * len(beta) - int(np.count_nonzero(gamma)), 1)
+    dof = max(int(observations.sum()) - p * len(beta) - int(np.count_nonzero(gamma)), 1)
     noise_rms = math.sqrt(max(float(resid.sum()), 0.0) / dof)
     phasors = beta[:, 1::2] + 1j * beta[:, 2::2]
     nuisance = {f: complex(gamma[2 * k], gamma[2 * k + 1])

@@ -28,7 +28,7 @@ from typing import Any, Protocol
 import numpy as np
 
 from trueturn.dsp.averaging import SteadinessLimits, VectorStats, steadiness, vector_stats
-from trueturn.dsp.order import ROW_FIELDS, BlockFit, fit_block, solve_orders
+from trueturn.dsp.order import ROW_FIELDS, BlockFit, fit_blocks, group_for, solve_orders
 from trueturn.dsp.shaft import Revolution, TachTracker, extend_tick
 from trueturn.dsp.spectrum import Spectrum, spectrum
 from trueturn.dsp.units import (
@@ -181,7 +181,7 @@ class LiveAnalyzer:
     def __init__(self, profiles: Sequence[PickupProfile] = (), unit: str | None = None,
                  mains_hz: float | None = 50.0, max_revs: int = 100,
                  orders: tuple[int, ...] = (1, 2, 3), limits: SteadinessLimits | None = None,
-                 spectrum_seconds: float = 4.0, batch_revs: int = 64,
+                 spectrum_seconds: float = 4.0, batch_revs: int = 256,
                  hum_spread_hz: float = 0.1) -> None:
         if 1 not in orders:
             raise ValueError("orders must include 1")
@@ -212,6 +212,7 @@ class LiveAnalyzer:
         self.start_tick = int(config["start_tick"]) if config else 0
         self._next_index: int | None = None
         self._chunks: deque[tuple[int, np.ndarray]] = deque()  # (first index, interleaved)
+        self._fresh: list[np.ndarray] = []  # blocks not yet in the ring nor clip-counted
         self._gaps: deque[tuple[int, int]] = deque(maxlen=64)
         self._pending: list[Revolution] = []
         self._pending_ends: list[int] = []
@@ -283,20 +284,23 @@ class LiveAnalyzer:
                 return False  # repeated or stale block
             if first > self._next_index:
                 self._gaps.append((self._sample_tick(self._next_index), self._sample_tick(first)))
+                self._fresh.clear()
                 self._ring.clear()
         if self._next_index is None:
             self.streams += 1
-        values = np.asarray(msg["samples"], dtype=float)
+        # kept as received (a numpy array from the codec: no copy); converted to float in
+        # bulk when revolutions are fitted, counted for clipping and put in the spectrum ring
+        # in bulk too (per-block numpy calls cost more than the arithmetic at 2 x 4 kSps)
+        values = np.asarray(msg["samples"])
         n = values.size - values.size % ch
         if n != values.size:
             values = values[:n]
         self._next_index = first + n
         self.samples_seen += n
         self._chunks.append((first, values))
-        self._ring.extend(values)
-        if n and (values.max() >= (1 << self.adc_bits) - 1 or values.min() <= 0):
-            top = (1 << self.adc_bits) - 1
-            self.clipped_samples += int(np.count_nonzero((values <= 0) | (values >= top)))
+        self._fresh.append(values)
+        if len(self._fresh) >= 64:
+            self._flush_fresh()
         self._latest_tick = self._sample_tick(self._next_index)
         ready = self._ready_count()
         if ready >= self.batch_revs:
@@ -313,6 +317,17 @@ class LiveAnalyzer:
             self._last_update_tick = self._latest_tick
             return True
         return False
+
+    def _flush_fresh(self) -> None:
+        """Count clipped samples of the blocks received since last time; feed the ring."""
+        if not self._fresh:
+            return
+        values = np.concatenate(self._fresh).astype(float)
+        self._fresh.clear()
+        self._ring.extend(values)
+        top = (1 << self.adc_bits) - 1
+        if values.size and (values.max() >= top or values.min() <= 0):
+            self.clipped_samples += int(np.count_nonzero((values <= 0) | (values >= top)))
 
     def _ready_count(self) -> int:
         if self._next_index is None:
@@ -332,19 +347,25 @@ class LiveAnalyzer:
     def _trim(self, keep_from_tick: int) -> None:
         """Drop sample blocks that end before ``keep_from_tick``."""
         chunks = self._chunks
-        while chunks and self._sample_tick(chunks[0][0] + chunks[0][1].size - 1) < keep_from_tick:
+        if not chunks or self.period_ticks <= 0:
+            return
+        # first conversion index at or after keep_from_tick
+        offset = keep_from_tick - self.start_tick - self.aperture_ticks
+        keep_index = -(-offset // self.period_ticks)
+        while chunks and chunks[0][0] + chunks[0][1].size <= keep_index:
             chunks.popleft()
 
     def _channel_samples(self) -> tuple[np.ndarray, np.ndarray]:
         """(conversion indices, values) of every held sample, oldest first."""
         firsts = np.array([f for f, _ in self._chunks], dtype=np.int64)
         sizes = np.array([v.size for _, v in self._chunks], dtype=np.int64)
-        values = np.concatenate([v for _, v in self._chunks])
+        values = np.concatenate([v for _, v in self._chunks]).astype(float)
         offsets = np.cumsum(sizes) - sizes
         index = np.repeat(firsts - offsets, sizes) + np.arange(values.size, dtype=np.int64)
         return index, values
 
     def _process(self) -> None:
+        self._flush_fresh()
         n_ready = self._ready_count()
         if not n_ready or not self.channels:
             return
@@ -369,10 +390,12 @@ class LiveAnalyzer:
             ticks = self.start_tick + index * self.period_ticks + self.aperture_ticks
             ch = self.channels
             phase = int(index[0] % ch)
-            for c in range(ch):
-                sel = slice((c - phase) % ch, None, ch)
-                fit = fit_block(ticks[sel], values[sel], starts, ends, self.tick_hz,
-                                self.orders, self._nuisance_hz(), self.start_tick)
+            sels = [slice((c - phase) % ch, None, ch) for c in range(ch)]
+            samples_per_rev = float((ends - starts).min()) / (ch * self.period_ticks)
+            fits = fit_blocks([ticks[s] for s in sels], [values[s] for s in sels], starts, ends,
+                              self.tick_hz, self.orders, self._nuisance_hz(), self.start_tick,
+                              group_for(samples_per_rev))
+            for c, fit in enumerate(fits):
                 self._rows[c].append({name: getattr(fit, name) for name in ROW_FIELDS})
             self._periods.append({"ticks": ends - starts})
         keep_from = min(self._pending[0].start_tick if self._pending else ready[-1].end_tick,
@@ -410,6 +433,7 @@ class LiveAnalyzer:
     def stream_warnings(self) -> list[str]:
         """Problems with the stream as a whole (tach, link, set-up), one line each."""
         out = []
+        self._flush_fresh()
         if self.config is None:
             out.append("no stream_config message: the capture holds no usable samples")
             return out
@@ -521,6 +545,7 @@ class LiveAnalyzer:
         if len(self._periods):
             recent = self.speeds_rpm()[-max(1, int(self.spectrum_seconds * self.speed_rpm / 60)):]
             rot_hz = float(recent.mean()) / 60.0
+        self._flush_fresh()
         interleaved = self._ring.values()
         for c in range(self.channels):
             values = interleaved[c::self.channels]

@@ -23,8 +23,8 @@ source).
 
 from __future__ import annotations
 
+import functools
 import math
-import statistics
 from collections import deque
 from dataclasses import dataclass
 
@@ -120,7 +120,7 @@ class TachTracker:
         """Median of the recent good periods, or None while still learning."""
         if not self._periods:
             return None
-        return float(statistics.median(self._periods))
+        return float(_median(list(self._periods)))
 
     @property
     def last_edge_tick(self) -> int | None:
@@ -185,17 +185,13 @@ class TachTracker:
         n = len(recent)
         if n < 4:
             return None
+        pairs, inflation = _theil_sen_table(n)
         # Theil-Sen line through the recent periods (robust to the odd bad edge), one step on
-        slope = statistics.median((recent[j] - recent[i]) / (j - i)
-                                  for i in range(n) for j in range(i + 1, n))
-        intercept = statistics.median(p - slope * i for i, p in enumerate(recent))
+        slope = _median([(recent[j] - recent[i]) / d for i, j, d in pairs])
+        intercept = _median([p - slope * i for i, p in enumerate(recent)])
         predicted = intercept + slope * n
         residual = (period - predicted) / predicted
-        # the prediction's own noise inflates the residual; for a least-squares line the
-        # variance factor is 1 + 1/n + (n - mean)^2 / Sxx (textbook regression prediction)
-        mean_x = (n - 1) / 2
-        sxx = sum((i - mean_x) ** 2 for i in range(n))
-        self._residuals.append(residual / math.sqrt(1 + 1 / n + (n - mean_x) ** 2 / sxx))
+        self._residuals.append(residual / inflation)
         return residual
 
     def _judge(self, rev: Revolution, residual: float | None) -> None:
@@ -241,6 +237,26 @@ class TachTracker:
             self._candidate = None
             self._last_edge = tick
             self._rejected_in_row = 0
+
+
+def _median(values: list[float]) -> float:
+    """Median as :func:`statistics.median` gives it (mean of the middle two for even n)."""
+    ordered = sorted(values)
+    mid = len(ordered) // 2
+    return ordered[mid] if len(ordered) % 2 else (ordered[mid - 1] + ordered[mid]) / 2
+
+
+@functools.cache
+def _theil_sen_table(n: int) -> tuple[tuple[tuple[int, int, int], ...], float]:
+    """(index pairs i < j with j - i, prediction inflation) for a line through n points.
+
+    The prediction's own noise inflates the residual; for a least-squares line the variance
+    factor is 1 + 1/n + (n - mean)^2 / Sxx (textbook regression prediction).
+    """
+    pairs = tuple((i, j, j - i) for i in range(n) for j in range(i + 1, n))
+    mean_x = (n - 1) / 2
+    sxx = sum((i - mean_x) ** 2 for i in range(n))
+    return pairs, math.sqrt(1 + 1 / n + (n - mean_x) ** 2 / sxx)
 
 
 def shaft_angle_rad(ticks: np.ndarray, start_tick: int, end_tick: int) -> np.ndarray:

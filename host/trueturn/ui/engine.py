@@ -39,6 +39,8 @@ from trueturn.ui.procedure import (
     planes_for,
 )
 
+MIN_PART_FRACTION = 0.02  # a split share under 2 % of the correction is left out
+
 
 def _engine_mass(m: PlacedMass) -> EngineMass:
     """A placed part as the engine sees it: removed material = the same mass added opposite."""
@@ -101,7 +103,7 @@ class BalanceEngine:
                 except UserError as exc:
                     raise GateRefused(f"plane {plane.name}: {exc}") from None
                 for piece in pieces:
-                    if piece.mass_g >= 0.005:
+                    if piece.mass_g >= max(0.005, MIN_PART_FRACTION * c.mass_g):
                         parts.append(PlacedMass(c.plane, round(piece.mass_g, 2), piece.angle_deg,
                                                 piece.position, kind, removal))  # type: ignore[arg-type]
             else:

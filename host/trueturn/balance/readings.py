@@ -135,6 +135,16 @@ def _number(value: Any, where: str, *, positive: bool = False, nonneg: bool = Fa
     return number
 
 
+def _angle(value: Any, where: str) -> float:
+    """An angle as a person or an instrument writes it, 0..360 or -180..180 degrees, taken
+    modulo 360; beyond a full turn either way it is more likely a typo and is refused."""
+    number = _number(value, where)
+    if not -360.0 <= number <= 360.0:
+        raise UserError(f"{where}: must be within -360..360 degrees (from the reference mark, "
+                        f"against rotation), got {value!r}")
+    return wrap_deg(number)
+
+
 def _mapping(value: Any, where: str) -> dict:
     if not isinstance(value, dict):
         raise UserError(f"{where}: expected a mapping (key: value), got {type(value).__name__}")
@@ -169,9 +179,9 @@ def parse_masses(items: Any, where: str, plane_names: set[str]) -> tuple[PlacedM
         if plane not in plane_names:
             known = ", ".join(sorted(plane_names))
             raise UserError(f"{at}.plane: unknown plane '{plane}' (planes: {known})")
-        mass_g = _number(_require(item, "mass_g", at), f"{at}.mass_g", nonneg=True)
-        angle = _number(_require(item, "angle_deg", at), f"{at}.angle_deg")
-        masses.append(PlacedMass(plane, mass_g, wrap_deg(angle)))
+        mass_g = _number(_require(item, "mass_g", at), f"{at}.mass_g", positive=True)
+        angle = _angle(_require(item, "angle_deg", at), f"{at}.angle_deg")
+        masses.append(PlacedMass(plane, mass_g, angle))
     return tuple(masses)
 
 
@@ -237,7 +247,7 @@ def parse_readings(doc: Any, source: str = "READINGS") -> BalanceInput:
             r = _mapping(raw[name], r_at)
             amp = _number(_require(r, "amp", r_at), f"{r_at}.amp", nonneg=True)
             phase = r.get("phase_deg")
-            phase_deg = None if phase is None else wrap_deg(_number(phase, f"{r_at}.phase_deg"))
+            phase_deg = None if phase is None else _angle(phase, f"{r_at}.phase_deg")
             conf = r.get("confidence")
             confidence = None if conf is None else _number(conf, f"{r_at}.confidence", nonneg=True)
             readings[name] = Reading(amp, phase_deg, confidence)
@@ -260,10 +270,10 @@ def parse_readings(doc: Any, source: str = "READINGS") -> BalanceInput:
         if plane not in plane_names:
             raise UserError(f"{at}.plane: unknown plane '{plane}'")
         amp = _number(_require(item, "amp_per_g", at), f"{at}.amp_per_g", nonneg=True)
-        phase = _number(_require(item, "phase_deg", at), f"{at}.phase_deg")
+        phase = _angle(_require(item, "phase_deg", at), f"{at}.phase_deg")
         speed = item.get("speed_rpm")
         speed_rpm = None if speed is None else _number(speed, f"{at}.speed_rpm", positive=True)
-        saved.append(SavedCoefficient(sensor, plane, amp, wrap_deg(phase), speed_rpm))
+        saved.append(SavedCoefficient(sensor, plane, amp, phase, speed_rpm))
 
     tolerance = None
     if doc.get("tolerance") is not None:

@@ -44,8 +44,9 @@ def run(args: argparse.Namespace) -> int:
         raise UserError(f"--diameter-mm {args.diameter_mm:g}: must be between 10 and 2000 mm")
     if not 1 <= args.positions <= 360:
         raise UserError(f"--positions {args.positions}: must be between 1 and 360")
-    if not math.isfinite(args.first_deg):
-        raise UserError("--first-deg must be a number of degrees")
+    if not math.isfinite(args.first_deg) or not -360.0 <= args.first_deg <= 360.0:
+        raise UserError(f"--first-deg must be -360..360 degrees from the reference mark, got "
+                        f"{args.first_deg:g}")
     if args.tiles and args.rim:
         raise UserError("choose --tiles (a big ring) or --rim (a strip), not both")
     if args.tiles:

@@ -39,6 +39,8 @@ def load_document(path: str) -> Any:
         text = sys.stdin.read() if path == "-" else Path(path).read_text(encoding="utf-8")
     except OSError as exc:
         raise UserError(f"{path}: cannot read ({exc.strerror or exc})") from None
+    except UnicodeDecodeError:
+        raise UserError(f"{path}: not a text file (YAML or JSON in UTF-8 expected)") from None
     try:
         return yaml.safe_load(text)
     except yaml.YAMLError as exc:

@@ -62,8 +62,18 @@ def run(args: argparse.Namespace) -> int:
         if args.mass_g is None or args.angle_deg is None:
             raise UserError("missing --mass-g and --angle-deg (or --combine)")
         mass_g, angle_deg = args.mass_g, args.angle_deg
-    if mass_g < 0:
-        raise UserError(f"--mass-g must not be negative, got {mass_g:g}")
+    scale = sum(m for m, _ in args.combine) if args.combine else 0.0
+    if not mass_g > 1e-9 * scale:
+        if args.combine:
+            raise UserError("--combine: the masses cancel out; nothing to split")
+        raise UserError(f"--mass-g must be greater than 0, got {mass_g:g}")
+    angles = [("--angle-deg", args.angle_deg), ("--first-deg", args.first_deg),
+              *(("--at-deg", a) for a in args.at_deg or ()),
+              *(("--combine", a) for _, a in args.combine or ())]
+    for option, value in angles:
+        if value is not None and not -360.0 <= value <= 360.0:
+            raise UserError(f"{option}: angles are -360..360 degrees from the reference mark, "
+                            f"against rotation; got {value:g}")
     if args.remove:
         if args.drill_mm is None:
             raise UserError("--remove needs --drill-mm")

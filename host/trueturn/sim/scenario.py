@@ -13,6 +13,7 @@ from importlib import resources
 from pathlib import Path
 from typing import Any
 
+import numpy as np
 import yaml
 
 from trueturn.errors import UserError
@@ -140,12 +141,32 @@ def list_scenarios() -> list[str]:
     return sorted(p.stem for p in scenario_dir().glob("*.yaml"))
 
 
+# No quantity in a scenario comes near this; beyond it the model's arithmetic overflows.
+LARGEST_VALUE = 1e12
+# Quantities that must be above zero, and those that must not be negative.
+POSITIVE_KEYS = {"mass_kg", "transverse_inertia_kg_m2", "stiffness_n_per_m",
+                 "stiffness_h_n_per_m", "stiffness_v_n_per_m", "radius_mm",
+                 "sensitivity_v_per_g", "poles", "pulley_ratio", "drift_period_s",
+                 "spin_up_s", "coast_down_s", "mains_hz"}
+NON_NEGATIVE_KEYS = {"damping_ns_per_m", "damping_h_ns_per_m", "damping_v_ns_per_m",
+                     "polar_inertia_kg_m2", "mass_g", "positions", "slip", "load_wander",
+                     "speed_rpm", "drift_fraction", "noise_rms_g", "hum_line_v",
+                     "hum_double_v", "tach_jitter_us", "tach_mark_width_deg", "amplitude_g",
+                     "nonlinearity", "order", "hz", "zero_g_v"}
+
+
 def _num(section: dict[str, Any], key: str, where: str, default: float | None = None) -> float:
     value = section.get(key, default)
     if value is None:
         raise UserError(f"{where}: missing '{key}'")
     if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
         raise UserError(f"{where}: '{key}' must be a number, got {value!r}")
+    if abs(value) > LARGEST_VALUE:
+        raise UserError(f"{where}: '{key}' is out of range ({value:g})")
+    if key in POSITIVE_KEYS and not value > 0:
+        raise UserError(f"{where}: '{key}' must be greater than 0, got {value:g}")
+    if key in NON_NEGATIVE_KEYS and value < 0:
+        raise UserError(f"{where}: '{key}' must not be negative, got {value:g}")
     return float(value)
 
 
@@ -158,6 +179,14 @@ def _mapping(value: Any, where: str) -> dict[str, Any]:
 def _list(value: Any, where: str) -> list[Any]:
     if not isinstance(value, list) or not value:
         raise UserError(f"{where}: expected a non-empty list")
+    return value
+
+
+def _optional_list(value: Any, where: str) -> list[Any]:
+    if value is None:
+        return []
+    if not isinstance(value, list):
+        raise UserError(f"{where}: expected a list")
     return value
 
 
@@ -220,10 +249,10 @@ def parse_scenario(raw: Any, source: str) -> Scenario:
     except ValueError as exc:
         raise UserError(f"{source}: {exc}") from None
     as_found = []
-    for i, m in enumerate(top.get("as_found") or []):
+    for i, m in enumerate(_optional_list(top.get("as_found"), f"{source}: as_found")):
         w = f"{source}: as_found[{i}]"
         m = _mapping(m, w)
-        if m.get("plane") not in layouts:
+        if not isinstance(m.get("plane"), str) or m["plane"] not in layouts:
             raise UserError(f"{w}: plane {m.get('plane')!r} is not one of {', '.join(layouts)}")
         as_found.append(Mass(str(m["plane"]), _num(m, "mass_g", w), _num(m, "angle_deg", w)))
     mw = f"{source}: motor"
@@ -235,8 +264,16 @@ def parse_scenario(raw: Any, source: str) -> Scenario:
     if mains_hz not in (50.0, 60.0):
         raise UserError(f"{mw}: mains_hz must be 50 or 60")
     rng = mo.get("speed_range_rpm")
-    if rng is not None and (not isinstance(rng, list) or len(rng) != 2):
-        raise UserError(f"{mw}: speed_range_rpm must be [low, high]")
+    if rng is not None:
+        if not isinstance(rng, list) or len(rng) != 2:
+            raise UserError(f"{mw}: speed_range_rpm must be [low, high]")
+        low = _num({"low": rng[0]}, "low", f"{mw}: speed_range_rpm")
+        high = _num({"high": rng[1]}, "high", f"{mw}: speed_range_rpm")
+        if not 0 < low <= high:
+            raise UserError(f"{mw}: speed_range_rpm must be [low, high] with 0 < low <= high")
+        rng = [low, high]
+    if not 0 <= _num(mo, "slip", mw, 0.0) < 1:
+        raise UserError(f"{mw}: slip must be a fraction below 1")
     motor = Motor(kind=kind, mains_hz=mains_hz, poles=int(_num(mo, "poles", mw, 2)),
                   slip=_num(mo, "slip", mw, 0.0), load_wander=_num(mo, "load_wander", mw, 0.0),
                   pulley_ratio=_num(mo, "pulley_ratio", mw, 1.0),
@@ -254,15 +291,34 @@ def parse_scenario(raw: Any, source: str) -> Scenario:
         noise_rms_g=_num(si, "noise_rms_g", sw, 0.0),
         hum_line_v=_num(si, "hum_line_v", sw, 0.0),
         hum_double_v=_num(si, "hum_double_v", sw, 0.0),
-        harmonics=tuple(_tone(t, f"{sw}: harmonics[{i}]") for i, t in enumerate(si.get("harmonics") or [])),
-        tones=tuple(_tone(t, f"{sw}: tones[{i}]") for i, t in enumerate(si.get("tones") or [])),
+        harmonics=tuple(_tone(t, f"{sw}: harmonics[{i}]") for i, t in enumerate(
+            _optional_list(si.get("harmonics"), f"{sw}: harmonics"))),
+        tones=tuple(_tone(t, f"{sw}: tones[{i}]") for i, t in enumerate(
+            _optional_list(si.get("tones"), f"{sw}: tones"))),
         tach_jitter_us=_num(si, "tach_jitter_us", sw, 0.0),
         tach_mark_width_deg=_num(si, "tach_mark_width_deg", sw, 10.0),
     )
-    return Scenario(name=name, title=str(top.get("title", name)),
-                    description=str(top.get("description", "")).strip(), rotor=rotor,
-                    electrical=electrical, as_found=as_found, motor=motor, signals=signals,
-                    layouts=layouts, source=source)
+    scenario = Scenario(name=name, title=str(top.get("title", name)),
+                        description=str(top.get("description", "")).strip(), rotor=rotor,
+                        electrical=electrical, as_found=as_found, motor=motor, signals=signals,
+                        layouts=layouts, source=source)
+    _check_model(scenario)
+    return scenario
+
+
+def _check_model(scenario: Scenario) -> None:
+    """Values each fine alone can still make a model with no finite response: say so."""
+    try:
+        with np.errstate(all="ignore"):
+            response = scenario.rotor.response_1x(scenario.speed_rpm, scenario.as_found)
+            modes = scenario.rotor.natural_frequencies_hz()
+        finite = all(np.isfinite(v) for v in response.values()) and \
+            bool(np.all(np.isfinite(modes)))
+    except (ValueError, ArithmeticError, np.linalg.LinAlgError):
+        finite = False
+    if not finite:
+        raise UserError(f"{scenario.source}: the rotor model has no finite response; check "
+                        "the masses, inertias, stiffnesses and positions")
 
 
 def load_scenario(name_or_path: str | Path) -> Scenario:

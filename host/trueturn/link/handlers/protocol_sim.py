@@ -132,6 +132,8 @@ class Serial(VirtualLineSerial):
                     opts.seed = int(value)
                 elif key == "rpm":
                     opts.speed_rpm = float(value)
+                    if not opts.speed_rpm > 0:  # 0 must not fall back to the nominal speed
+                        raise ValueError("rpm must be positive")
                 elif key == "motor":
                     opts.motor_on = _flag(value)
                 elif key == "noise":

@@ -154,6 +154,10 @@ def test_two_plane_bench_grinder_to_a_pass_verdict(tmp_path: Path) -> None:
             assert job.status == "closed" and job.verdict.passed
             assert [r.kind for r in job.runs] == ["initial", "trial", "trial", "check"]
             assert job.influence is not None  # kept for a later one-run trim
+            # readings are stored with the DSP layer's unit label, detector included
+            shown = next(iter(proc.runs[-1].readings.values())).unit
+            assert {r.unit for run in job.runs for r in run.readings} == {shown}
+            assert job.influence.unit == shown
             assert all(c.standstill_by_tach for r in job.runs for c in r.confirmations)
             assert app.keeper.report_path.read_text(encoding="utf-8").count("<svg") >= 1
             await press(app, pilot, "q")

@@ -6,18 +6,12 @@ from __future__ import annotations
 from pathlib import Path
 
 from trueturn.jobs import records as rec
-from trueturn.jobs.profiles import MachineProfile
+from trueturn.jobs.profiles import VIBRATION_UNIT_LABELS, MachineProfile
 from trueturn.jobs.report import html_report
 from trueturn.jobs.store import Workspace, atomic_write_text, write_document
 from trueturn.ui.procedure import MassChange, Mode, Procedure, RunRecord, SafetyEvent
 
 # The meter's unit names -> the job file's unit names (amplitudes are stored as measured).
-UNIT_TO_JOB = {"mm/s rms": "mm/s", "mm/s pk": "mm/s", "in/s pk": "in/s", "um pk-pk": "um",
-               "mil pk-pk": "mil", "m/s2 pk": "m/s2", "g pk": "g"}
-
-
-def _job_unit(unit: str) -> str:
-    return UNIT_TO_JOB.get(unit, unit)
 
 
 class JobKeeper:
@@ -94,7 +88,7 @@ class JobKeeper:
             return
         kind = "initial" if len(proc.runs) == 1 else (
             "trial" if run.label.startswith("trial") else "check")
-        readings = [rec.Reading(r.sensor, r.amplitude, _job_unit(r.unit),  # type: ignore[arg-type]
+        readings = [rec.Reading(r.sensor, r.amplitude, r.unit,  # type: ignore[arg-type]
                                 (r.phase_deg or 0.0) % 360.0, min(180.0, r.confidence_deg),
                                 r.revolutions, r.speed_rpm)
                     for r in run.readings.values()]
@@ -129,11 +123,11 @@ class JobKeeper:
         model = proc.solution.coefficients if proc.solution is not None else None
         saved = model.as_saved() if hasattr(model, "as_saved") else []
         unit = next((r.unit for r in proc.runs[-1].readings.values()), "") if proc.runs else ""
-        if not saved or _job_unit(unit) not in UNIT_TO_JOB.values():
+        if not saved or unit not in VIBRATION_UNIT_LABELS:
             return
         entries = [rec.InfluenceEntry(c.sensor, c.plane, c.amp_per_g, c.phase_deg % 360.0)
                    for c in saved]
-        coefficients = rec.CoefficientSet(proc.setup.speed_rpm, _job_unit(unit),  # type: ignore[arg-type]
+        coefficients = rec.CoefficientSet(proc.setup.speed_rpm, unit,  # type: ignore[arg-type]
                                           entries, job_id=self.job.job_id,
                                           created=rec.now_iso())
         self.job.influence = coefficients

@@ -11,7 +11,11 @@ from hypothesis import strategies as st
 from trueturn.angles import phasor
 from trueturn.balance.splitting import combine, equally_spaced, removal, split
 from trueturn.balance.static_couple import static_couple
-from trueturn.balance.trial_mass import STANDARD_GRAVITY_M_S2, size_trial_mass
+from trueturn.balance.trial_mass import (
+    STANDARD_GRAVITY_M_S2,
+    centrifugal_force_n,
+    size_trial_mass,
+)
 from trueturn.errors import UserError
 
 
@@ -96,3 +100,11 @@ def test_static_couple_decomposition():
     d = static_couple(u1, u2)
     s, k = phasor(d.static_gmm, d.static_angle_deg), phasor(d.couple_gmm, d.couple_angle_deg)
     assert abs(s / 2 + k - u1) < 1e-9 and abs(s / 2 - k - u2) < 1e-9
+
+
+def test_centrifugal_force_worked_number():
+    # F = m r omega^2 (textbook mechanics): 1 g at 100 mm at 3000 rpm (omega = 100 pi rad/s)
+    # is 0.001 kg * 0.1 m * 98 696 s^-2 = 9.87 N.
+    assert centrifugal_force_n(1.0, 100.0, 3000.0) == pytest.approx(9.8696, rel=1e-4)
+    # doubling the speed quadruples the force
+    assert centrifugal_force_n(1.0, 100.0, 6000.0) == pytest.approx(4 * 9.8696, rel=1e-4)

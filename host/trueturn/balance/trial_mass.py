@@ -30,6 +30,11 @@ class TrialMass:
     warnings: list[str] = field(default_factory=list)
 
 
+def centrifugal_force_n(mass_g: float, radius_mm: float, speed_rpm: float) -> float:
+    """Centrifugal force F = m·r·ω² of a mass at a radius, in newtons."""
+    return mass_g / 1000.0 * radius_mm / 1000.0 * angular_speed_rad_s(speed_rpm) ** 2
+
+
 def size_trial_mass(rotor_mass_kg: float, radius_mm: float, speed_rpm: float,
                     force_ratio: float = DEFAULT_FORCE_RATIO,
                     max_mass_g: float | None = None) -> TrialMass:
@@ -50,6 +55,6 @@ def size_trial_mass(rotor_mass_kg: float, radius_mm: float, speed_rpm: float,
         why = "the limit you gave" if max_mass_g is not None else "1 % of the rotor mass"
         warnings.append(f"the rule asks for {wanted_g:.3g} g, capped at {cap_g:.3g} g ({why}); "
                         "its effect may be small: check the trial-effect warning after the run")
-    force_n = mass_g / 1000.0 * accel
+    force_n = centrifugal_force_n(mass_g, radius_mm, speed_rpm)
     return TrialMass(mass_g, force_n, force_n / (rotor_mass_kg * STANDARD_GRAVITY_M_S2),
                      accel / STANDARD_GRAVITY_M_S2, capped, warnings)

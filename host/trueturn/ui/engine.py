@@ -9,7 +9,6 @@ least squares over all runs, the amplitude-only (four-run) method, trial-mass si
 from __future__ import annotations
 
 from trueturn.angles import wrap_deg
-from trueturn.balance.iso21940 import angular_speed_rad_s
 from trueturn.balance.readings import (
     BalanceInput,
     Plane,
@@ -22,7 +21,7 @@ from trueturn.balance.readings import (
 from trueturn.balance.readings import PlacedMass as EngineMass
 from trueturn.balance.solve import solve
 from trueturn.balance.splitting import split
-from trueturn.balance.trial_mass import size_trial_mass
+from trueturn.balance.trial_mass import centrifugal_force_n, size_trial_mass
 from trueturn.errors import UserError
 from trueturn.jobs.profiles import MachineProfile
 from trueturn.ui.procedure import (
@@ -67,7 +66,7 @@ class BalanceEngine:
 
     def force_n(self, mass_g: float, radius_mm: float, speed_rpm: float) -> float:
         """Centrifugal force F = m r omega^2 (newtons)."""
-        return mass_g / 1000.0 * radius_mm / 1000.0 * angular_speed_rad_s(speed_rpm) ** 2
+        return centrifugal_force_n(mass_g, radius_mm, speed_rpm)
 
     # ---- solving ------------------------------------------------------------------------
     def _input(self, setup: ProcedureSetup, runs: list[RunRecord],

@@ -1,7 +1,8 @@
 """Decoder fuzzing at scale (issue: reliability): impaired streams and random frame bodies.
 
-Figures: frames sent, impaired, delivered intact, losses accounted by the decoder vs actual,
-false accepts measured vs the CRC-16 theory, exceptions escaping the decoder (goal 0).
+Figures: frames sent, impaired, corrupted and detected, delivered intact, losses accounted by
+the decoder vs actual, false accepts measured vs the CRC-16 theory, pure random bytes through
+the decoder, exceptions escaping the decoder (goal 0).
 Frame count: TT_BENCH_FRAMES (default 1 000 000).
 """
 
@@ -32,11 +33,14 @@ def _frame(i: int) -> bytes:
                                               "samples": _expected_samples(first)})
 
 
-def impaired_stream(n_frames: int, rng: random.Random) -> tuple[bytes, int, int]:
+def impaired_stream(n_frames: int, rng: random.Random) -> tuple[bytes, int, int, int]:
     """Frames with drops (1 %), duplicates (0.5 %), truncation (0.5 %), garbage (0.5 %), then
-    bit flips at BIT_ERROR_RATE. Returns (bytes, frames structurally impaired, bits flipped)."""
+    bit flips at BIT_ERROR_RATE. Returns (bytes, frames structurally impaired, bits flipped,
+    frames corrupted: truncated or hit by a flip in any copy; drops are losses, not corrupt)."""
     parts: list[bytes] = []
+    owner: list[int] = []  # frame index of each part, -1 for inserted garbage
     impaired = 0
+    truncated: set[int] = set()
     for i in range(n_frames):
         wire = _frame(i)
         roll = rng.random()
@@ -45,23 +49,32 @@ def impaired_stream(n_frames: int, rng: random.Random) -> tuple[bytes, int, int]
             continue  # dropped on the way
         if roll < 0.015:
             parts.append(wire)  # duplicated
+            owner.append(i)
         elif roll < 0.02:
             wire = wire[: rng.randrange(1, len(wire) - 1)] + b"\x00"  # truncated
             impaired += 1
+            truncated.add(i)
         elif roll < 0.025:
             parts.append(bytes(rng.randrange(256) for _ in range(rng.randrange(1, 30))))
+            owner.append(-1)
         parts.append(wire)
+        owner.append(i)
     stream = np.frombuffer(b"".join(parts), dtype=np.uint8).copy()
     gen = np.random.default_rng(rng.randrange(2**32))
     n_bits = stream.size * 8
     flips = gen.choice(n_bits, size=gen.binomial(n_bits, BIT_ERROR_RATE), replace=False)
     np.bitwise_xor.at(stream, flips // 8, (1 << (flips % 8)).astype(np.uint8))
-    return stream.tobytes(), impaired, int(flips.size)
+    ends = np.cumsum([len(p) for p in parts])
+    hit = np.asarray(owner)[np.searchsorted(ends, flips // 8, side="right")]
+    corrupted = truncated | {int(i) for i in hit if i >= 0}
+    # one clean frame closes the stream, as the next frame of a live stream would: a loss
+    # at the very end cannot be seen from sequence numbers before a later frame arrives
+    return stream.tobytes() + _frame(n_frames), impaired, int(flips.size), len(corrupted)
 
 
 def fuzz_stream(n_frames: int) -> dict[str, float]:
     rng = random.Random(20261201)
-    data, impaired, flipped = impaired_stream(n_frames, rng)
+    data, impaired, flipped, corrupted = impaired_stream(n_frames, rng)
     decoder = StreamDecoder()
     delivered = set()
     false_accepts = 0
@@ -78,16 +91,19 @@ def fuzz_stream(n_frames: int) -> dict[str, float]:
                 continue
             first = item.values.get("first_index", -1)
             ok = (item.name == "samples" and first % SAMPLES_PER_FRAME == 0
-                  and 0 <= first < n_frames * SAMPLES_PER_FRAME
+                  and 0 <= first <= n_frames * SAMPLES_PER_FRAME  # the closing frame too
                   and item.seq == (first // SAMPLES_PER_FRAME) & 0xFF
                   and item.values["samples"] == _expected_samples(first))
-            if ok:
+            if ok and first < n_frames * SAMPLES_PER_FRAME:
                 delivered.add(first // SAMPLES_PER_FRAME)
+            elif ok:
+                pass  # the closing frame
             else:
                 false_accepts += 1
     elapsed = time.perf_counter() - started
     c = decoder.counters
     return {"frames": n_frames, "impaired": impaired, "bits_flipped": flipped,
+            "corrupted": corrupted, "detected": corrupted - false_accepts,
             "delivered": len(delivered), "missing": n_frames - len(delivered),
             "accounted": c.frames_lost, "rejected": c.frames_bad, "false_accepts": false_accepts,
             "crashes": crashes, "frames_per_s": n_frames / elapsed}
@@ -113,11 +129,28 @@ def random_bodies(n: int) -> tuple[int, int]:
     return n, passed
 
 
+def random_byte_stream(n_bytes: int) -> dict[str, int]:
+    """Pure random bytes through the stream decoder: nothing may escape, and a message is
+    accepted only when a body between two 0x00 passes COBS, CRC-16, type and length checks
+    (at most one body in 2^16 by the CRC alone)."""
+    data = np.random.default_rng(1234).integers(0, 256, n_bytes, dtype=np.uint8).tobytes()
+    decoder = StreamDecoder()
+    accepted = crashes = 0
+    for pos in range(0, len(data), 4096):
+        try:
+            accepted += sum(isinstance(i, Message) for i in decoder.feed(data[pos:pos + 4096]))
+        except Exception:  # the figure we want to be zero
+            crashes += 1
+    return {"bytes": n_bytes, "bodies": decoder.counters.frames_bad + accepted,
+            "accepted": accepted, "crashes": crashes}
+
+
 def rows() -> list[Row]:
     n = int(os.environ.get("TT_BENCH_FRAMES", "1000000"))
     r = fuzz_stream(n)
     n_random, passed = random_bodies(n)
     theory = n_random / 65536
+    noise = random_byte_stream(max(1 << 16, 16 * n))
     return [
         Row("link fuzz: frames sent (BER 1e-3, drops, dups, truncation, garbage)",
             f"{r['frames']:,}", ">= 1,000,000", r["frames"] >= 1_000_000),
@@ -125,6 +158,9 @@ def rows() -> list[Row]:
             f"{r['impaired']:,} / {r['bits_flipped']:,}", "info"),
         Row("link fuzz: frames not delivered intact / counted lost by decoder",
             f"{r['missing']:,} / {r['accounted']:,}", "equal", r["missing"] == r["accounted"]),
+        Row("link fuzz: frames corrupted (truncated or bit-flipped) / detected (refused, "
+            "not accepted with wrong content)",
+            f"{r['corrupted']:,} / {r['detected']:,}", "info"),
         Row("link fuzz: frames rejected (cobs/crc/length)", f"{r['rejected']:,}", "info"),
         Row("link fuzz: false accepts in impaired stream", f"{r['false_accepts']}",
             f"~{r['missing'] / 65536:.1f} or fewer (2^-16 x corrupted)",
@@ -134,6 +170,11 @@ def rows() -> list[Row]:
         Row("link fuzz: random 12-byte bodies passing CRC-16, measured vs theory",
             f"{passed} of {n_random:,} (theory {theory:.1f})",
             "within 3 sigma of n/65536", abs(passed - theory) <= 3 * theory**0.5 + 1),
+        Row("link fuzz: pure random bytes, bodies between 0x00 / accepted as messages",
+            f"{noise['bodies']:,} / {noise['accepted']} (CRC bound {noise['bodies'] / 65536:.2f})",
+            "<= 3 x bound + 1", noise["accepted"] <= 3 * noise["bodies"] / 65536 + 1),
+        Row("link fuzz: exceptions escaping the decoder on pure random bytes",
+            f"{noise['crashes']}", "0", noise["crashes"] == 0),
         Row("link: decode speed", f"{r['frames_per_s']:,.0f} frames/s", "info"),
     ]
 

@@ -65,12 +65,18 @@ def test_unplug_mid_recording_says_so_keeps_a_valid_capture_and_a_new_recording_
     metadata, raw = read_capture(cut)
     analysis = analyze_capture(raw, mains_hz=60.0)
     assert analysis.readings and analysis.link["frames_bad"] <= 1  # at most the cut frame
-    # plugged back in: the next recording goes through
+    # the run stays marked incomplete when it is analysed later
+    code, text, err = run_cli(["analyze", str(cut)])
+    assert code == 0, err
+    assert "incomplete capture: 2.0" in text and "of the 20 s asked for" in text
+    # plugged back in: the next recording goes through, and is complete
     monkeypatch.undo()
     again = tmp_path / "again.cap"
     code, _, err = run_cli(["record", "--port", "sim://bench-grinder?realtime=0", "--seconds",
                             "1", "-o", str(again), "--quiet"])
     assert code == 0, err
+    code, text, err = run_cli(["analyze", str(again)])
+    assert code == 0 and "incomplete" not in text, err
 
 
 def test_board_reset_mid_recording_is_detected_at_once(tmp_path,
@@ -88,7 +94,7 @@ def test_board_reset_mid_recording_is_detected_at_once(tmp_path,
     # analyze says so too, and still reads the stream before the reset
     code, text, err = run_cli(["analyze", str(out), "--mains-hz", "60"])
     assert code == 0, err
-    assert "board restarted during the capture" in text
+    assert "board restarted during the capture" in text and "incomplete capture" in text
     assert analyze_capture(raw, mains_hz=60.0).link["board_resets"] == 1
 
 

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import dataclasses
 import math
 from typing import Any
 
@@ -11,6 +12,7 @@ from trueturn.dsp.analysis import Analysis, analyze_capture
 from trueturn.dsp.units import UNITS, PickupProfile
 from trueturn.errors import UserError
 from trueturn.link.capture import CaptureError, read_capture
+from trueturn.link.codec import Message, StreamDecoder
 
 # Option value -> unit label of trueturn.dsp.units.UNITS
 UNIT_CHOICES = {
@@ -113,6 +115,9 @@ def run(args: argparse.Namespace) -> int:
                              profiles=_profiles(args, metadata), unit=unit,
                              identity=stored_identity if isinstance(stored_identity, dict)
                              else None)
+    short = _incomplete(metadata, raw)
+    if short:
+        result = dataclasses.replace(result, warnings=(short, *result.warnings))
     if not result.readings:
         why = result.warnings[0] if result.warnings else "no samples and tach edges found"
         raise UserError(f"{args.capture}: no 1x reading could be made ({why})")
@@ -121,6 +126,27 @@ def run(args: argparse.Namespace) -> int:
     else:
         print(format_table(result))
     return 0
+
+
+def _incomplete(metadata: dict[str, Any], raw: bytes) -> str | None:
+    """A warning when the capture holds less signal than ``record`` was asked for (the
+    cable was pulled, the board restarted or the recording was interrupted)."""
+    requested = metadata.get("requested")
+    wanted_s = requested.get("seconds") if isinstance(requested, dict) else None
+    if isinstance(wanted_s, bool) or not isinstance(wanted_s, (int, float)) or wanted_s <= 0:
+        return None
+    samples = 0
+    per_second = 0
+    for item in StreamDecoder().feed(raw):
+        if isinstance(item, Message) and item.name == "stream_config":
+            samples, per_second = 0, item["rate_hz"] * item["channels"]
+        elif isinstance(item, Message) and item.name == "samples":
+            samples += len(item["samples"])
+    got_s = samples / per_second if per_second else 0.0
+    if got_s >= 0.98 * wanted_s:
+        return None
+    return (f"incomplete capture: {got_s:.2f} of the {wanted_s:g} s asked for were recorded "
+            "(the link was lost, the board restarted or the recording was stopped)")
 
 
 def format_table(result: Analysis) -> str:

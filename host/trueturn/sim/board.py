@@ -69,6 +69,19 @@ class BoardOptions:
     noise_scale: float = 1.0  # multiplies every noise, hum, harmonic and tone level
     tick0: int = 0  # value of the clock at power-up (tests of the 32-bit wrap)
     unbalance: str = "as-found"  # or "none": start with no unbalance at all
+    tach_fault: str = "none"  # see TACH_FAULTS
+
+
+#: ``sim://NAME?tach=...``: what a worn set-up does to the once-per-rev signal. Each fault hits
+#: about one edge in ten (its own random stream, so the signals stay as without it).
+TACH_FAULTS = {
+    "none": "a clean mark and sensor",
+    "missing": "the sensor misses an edge now and then (mark too small, sensor too far)",
+    "double": "a second spot on the shaft (scratch, dirt) triggers an extra edge",
+    "knocked": "an edge comes 5-15 degrees early or late (smudged or peeling mark)",
+    "off": "no tach signal at all (unplugged, not aimed, no mark)",
+}
+TACH_FAULT_SHARE = 0.1
 
 
 @dataclass
@@ -120,6 +133,9 @@ class VirtualBoard:
         self._drift_phases = self.rng.uniform(0, TWO_PI, size=2)
         self._tone_phases = self.rng.uniform(0, TWO_PI, size=8)
         self._edges_seen = 0
+        if self.options.tach_fault not in TACH_FAULTS:
+            raise ValueError(f"tach fault must be one of {', '.join(TACH_FAULTS)}")
+        self._fault_rng = np.random.default_rng(self.options.seed + 7919)
         self._next_status_tick = self.tick + STATUS_PERIOD_TICKS
         self._counters = {"samples_dropped": 0, "frames_dropped": 0, "adc_overruns": 0,
                           "rx_bad_frames": 0}
@@ -468,10 +484,20 @@ class VirtualBoard:
                 max(root, 0.0)) > 0 else 0.0
             if jitter_s:
                 tau += float(self.rng.normal(0.0, jitter_s))
-            tick = t0_tick + max(0, min(int(round(tau * TICK_HZ)), t1_tick - t0_tick - 1))
-            self._edges_seen += 1
-            events.append((tick, 0, "tach", {"tick": tick & 0xFFFFFFFF,
-                                             "edge_count": self._edges_seen & 0xFFFF}))
+            fault = self.options.tach_fault
+            hit = fault != "none" and self._fault_rng.random() < TACH_FAULT_SHARE
+            period_s = TWO_PI / max(omega0 + accel * tau, 1e-9)
+            if fault == "off" or (hit and fault == "missing"):
+                continue  # the sensor never saw it: no message, the edge count stays
+            if hit and fault == "knocked":
+                tau += float(self._fault_rng.choice([-1.0, 1.0])
+                             * self._fault_rng.uniform(5.0, 15.0)) / 360.0 * period_s
+            for extra in ((0.0, 0.4) if hit and fault == "double" else (0.0,)):
+                at = int(round((tau + extra * period_s) * TICK_HZ))
+                tick = t0_tick + max(0, min(at, t1_tick - t0_tick - 1))
+                self._edges_seen += 1
+                events.append((tick, 0, "tach", {"tick": tick & 0xFFFFFFFF,
+                                                 "edge_count": self._edges_seen & 0xFFFF}))
 
     def _sample_events(self, t0_tick: int, t1_tick: int, theta_at, omega: float,
                        events: list) -> None:

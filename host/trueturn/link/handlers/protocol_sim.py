@@ -12,6 +12,8 @@
 ``noise=F``        scale every disturbance (noise, hum, harmonics, tones, jitter); 0 = clean.
 ``unbalance=as-found|none``  start with the scenario's hidden unbalance (default) or none.
 ``tick0=T``        the board clock at power-up (e.g. 4294000000 to see the 32-bit wrap soon).
+``tach=F``         a tach fault on about one edge in ten: none (default), missing, double,
+                   knocked (5-15 degrees early or late), or off (no tach signal at all).
 
 ``port.rig`` reaches the running virtual rig: ``add_mass``, ``remove_mass``, ``set_masses``,
 ``clear_masses``, ``motor_start``, ``motor_stop``, ``set_speed_rpm``, ``speed_rpm``,
@@ -33,6 +35,7 @@ from trueturn.sim.board import (
     LAST_ERRORS,
     STATUS_PERIOD_TICKS,
     STEP_TICKS,
+    TACH_FAULTS,
     TICK_HZ,
     BoardOptions,
     VirtualBoard,
@@ -41,7 +44,7 @@ from trueturn.sim.board import (
 from trueturn.sim.scenario import load_scenario
 
 _USAGE = ('expected "sim://NAME[?realtime=0|1&pace=F&seed=N&rpm=R&motor=on|off&noise=F'
-          '&unbalance=as-found|none&tick0=T]"')
+          '&unbalance=as-found|none&tick0=T&tach=none|missing|double|knocked|off]"')
 
 
 class Rig(VirtualBoard):
@@ -142,6 +145,10 @@ class Serial(VirtualLineSerial):
                     if value not in ("as-found", "none"):
                         raise ValueError("unbalance must be as-found or none")
                     opts.unbalance = value
+                elif key == "tach":
+                    if value not in TACH_FAULTS:
+                        raise ValueError(f"tach must be one of {', '.join(TACH_FAULTS)}")
+                    opts.tach_fault = value
                 elif key == "tick0":
                     opts.tick0 = int(value) % (1 << 32)
                 else:

@@ -177,25 +177,48 @@ def _frame_decoder(cat: Catalogue) -> _FrameDecoder:
     return found
 
 
+class _Layout:
+    """A message definition's payload layout, looked up once per definition."""
+
+    def __init__(self, mdef: MessageDef) -> None:
+        self.mdef = mdef
+        self.fixed = mdef.fixed_struct
+        self.fixed_size = mdef.fixed_struct.size
+        self.names = tuple(f.name for f in mdef.fixed_fields)
+        rest = mdef.rest_field
+        self.rest_name = rest.name if rest is not None else None
+        self.rest_dtype = _FIELD_DTYPES[rest.type] if rest is not None else None
+        self.rest_size = rest.size_bytes if rest is not None else 0
+        self.is_samples = mdef.name == "samples"
+
+
+_LAYOUTS: dict[int, _Layout] = {}
+
+
+def _layout(mdef: MessageDef) -> _Layout:
+    found = _LAYOUTS.get(id(mdef))
+    if found is None or found.mdef is not mdef:
+        found = _LAYOUTS[id(mdef)] = _Layout(mdef)
+    return found
+
+
 def decode_payload(mdef: MessageDef, payload: bytes) -> dict[str, Any]:
     """Unpack a payload by its definition or raise ``FrameError('bad_length')``."""
-    fixed = mdef.fixed_struct
-    rest = mdef.rest_field
-    if rest is None:
-        if len(payload) != fixed.size:
+    lay = _layout(mdef)
+    size = lay.fixed_size
+    if lay.rest_name is None:
+        if len(payload) != size:
             raise FrameError("bad_length", f"{mdef.name} payload {len(payload)} bytes, "
-                                           f"must be {fixed.size}")
+                                           f"must be {size}")
     else:
-        extra = len(payload) - fixed.size
-        if extra < 0 or extra % rest.size_bytes:
+        extra = len(payload) - size
+        if extra < 0 or extra % lay.rest_size:
             raise FrameError("bad_length", f"{mdef.name} payload {len(payload)} bytes, must be "
-                                           f"{fixed.size} + a multiple of {rest.size_bytes}")
-    values: dict[str, Any] = dict(zip((f.name for f in mdef.fixed_fields),
-                                      fixed.unpack_from(payload), strict=True))
-    if rest is not None:
-        values[rest.name] = RestArray(np.frombuffer(payload, _FIELD_DTYPES[rest.type],
-                                                    offset=fixed.size))
-    if mdef.name == "samples":
+                                           f"{size} + a multiple of {lay.rest_size}")
+    values: dict[str, Any] = dict(zip(lay.names, lay.fixed.unpack_from(payload), strict=True))
+    if lay.rest_name is not None:
+        values[lay.rest_name] = RestArray(np.frombuffer(payload, lay.rest_dtype, offset=size))
+    if lay.is_samples:
         check_sample_block(values)
     return values
 

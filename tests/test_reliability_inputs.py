@@ -317,3 +317,21 @@ def test_workspace_with_a_broken_machine_file_is_one_line(tmp_path: Path) -> Non
     with pytest.raises(UserError) as err:
         ws.machine_names()
     assert "\n" not in str(err.value) and "grinder.yaml" in str(err.value)
+
+
+@settings(max_examples=80, deadline=None,
+          suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(header=st.one_of(st.binary(max_size=40), st.text(max_size=30).map(str.encode)),
+       declared=st.integers(0, 2**32 - 1), body=st.binary(max_size=300),
+       magic=st.booleans())
+def test_damaged_capture_files(tmp_path: Path, header: bytes, declared: int, body: bytes,
+                               magic: bool) -> None:
+    # a capture cut short, with a garbled header, or random bytes: one line, never a traceback
+    from trueturn.link.capture import CAPTURE_MAGIC
+
+    data = (CAPTURE_MAGIC + declared.to_bytes(4, "little") if magic else b"") + header + body
+    path = tmp_path / "bad.cap"
+    path.write_bytes(data)
+    for argv in (["analyze", str(path)], ["dump", str(path)]):
+        code, _, err = run_cli(argv)
+        assert_one_line_or_ok(code, err)

@@ -161,3 +161,35 @@ def test_record_refuses_a_mismatched_board_naming_both(tmp_path, monkeypatch: py
     for needle in needles:
         assert needle in err, err
     assert not out.exists()  # nothing recorded from a board we cannot read
+
+
+def test_analyze_refuses_a_capture_from_other_definitions_naming_both(tmp_path) -> None:
+    from trueturn.dsp.synthetic import SyntheticRun, synthesize
+    from trueturn.link.capture import CaptureWriter
+    from trueturn.link.codec import StreamDecoder, encode_frame
+
+    ours = load_catalogue().definition_hash
+    raw, _ = synthesize(SyntheticRun(speed_rpm=2700.0, duration_s=1.0, send_identity=False))
+    header = tmp_path / "header.cap"
+    with CaptureWriter(header, {"identity": {"protocol_version": 1,
+                                             "definition_hash": 0x0BADF00D}}) as cap:
+        cap.write(raw)
+    # and one whose own identity message says so, in a plain frame file
+    with_identity, _ = synthesize(SyntheticRun(speed_rpm=2700.0, duration_s=1.0))
+    out = bytearray()
+    for msg in StreamDecoder().feed(with_identity):
+        values = dict(msg.values)
+        if msg.name == "identity":
+            values["protocol_version"] = 3
+        out += encode_frame(msg.name, msg.seq, values)
+    plain = tmp_path / "old.frames"
+    plain.write_bytes(bytes(out))
+    for path, needles in ((header, ("0x0badf00d", f"{ours:#010x}")),
+                          (plain, ("protocol 3", "reads protocol 1"))):
+        code, text, err = run_cli(["analyze", str(path)])
+        assert code == 2 and text == "" and err.count("\n") == 1, err
+        for needle in needles:
+            assert needle in err, err
+    good = tmp_path / "good.frames"
+    good.write_bytes(with_identity)
+    assert run_cli(["analyze", str(good)])[0] == 0

@@ -12,6 +12,7 @@ from trueturn.dsp.analysis import Analysis, analyze_capture
 from trueturn.dsp.units import UNITS, PickupProfile
 from trueturn.errors import UserError
 from trueturn.link.capture import CaptureError, read_capture
+from trueturn.link.catalogue import load_catalogue
 from trueturn.link.codec import Message, StreamDecoder
 
 # Option value -> unit label of trueturn.dsp.units.UNITS
@@ -115,6 +116,7 @@ def run(args: argparse.Namespace) -> int:
                              profiles=_profiles(args, metadata), unit=unit,
                              identity=stored_identity if isinstance(stored_identity, dict)
                              else None)
+    _check_protocol(args.capture, metadata, raw)
     short = _incomplete(metadata, raw)
     if short:
         result = dataclasses.replace(result, warnings=(short, *result.warnings))
@@ -126,6 +128,26 @@ def run(args: argparse.Namespace) -> int:
     else:
         print(format_table(result))
     return 0
+
+
+def _check_protocol(name: str, metadata: dict[str, Any], raw: bytes) -> None:
+    """Refuse a capture from a board speaking other definitions, naming both (SPEC.md §5)."""
+    catalogue = load_catalogue()
+    identities = [metadata.get("identity")]
+    for item in StreamDecoder(catalogue).feed(raw[:4096]):
+        if isinstance(item, Message) and item.name == "identity":
+            identities.append(item.values)
+    for identity in identities:
+        if not isinstance(identity, dict):
+            continue
+        version, digest = identity.get("protocol_version"), identity.get("definition_hash")
+        if not isinstance(version, int) or not isinstance(digest, int):
+            continue
+        if (version, digest) != (catalogue.protocol_version, catalogue.definition_hash):
+            raise UserError(f"{name} was recorded from a board speaking protocol {version} "
+                            f"(definitions {digest:#010x}); this trueturn reads protocol "
+                            f"{catalogue.protocol_version} ({catalogue.definition_hash:#010x}): "
+                            "analyze it with the trueturn version that recorded it")
 
 
 def _incomplete(metadata: dict[str, Any], raw: bytes) -> str | None:

@@ -335,3 +335,28 @@ def test_damaged_capture_files(tmp_path: Path, header: bytes, declared: int, bod
     for argv in (["analyze", str(path)], ["dump", str(path)]):
         code, _, err = run_cli(argv)
         assert_one_line_or_ok(code, err)
+
+
+RECORD_PORTS = st.sampled_from([
+    "sim://shop-fan?realtime=0", "sim://jointer-head?realtime=0&tach=off", "sim://nope",
+    "sim://shop-fan?realtime=0&seed=x", "sim://lathe-faceplate?realtime=0&rpm=-1", "sim://",
+    "sim://shop-fan?realtime=0&bogus=1", "sim://shop-fan?realtime=0&tach=sometimes",
+    "/dev/no-such-tty", "nosuchscheme://x", ""])
+RECORD_VALUES = st.sampled_from(["0.2", "0", "-1", "nan", "inf", "abc", "1e400", ""])
+RECORD_EXTRAS = st.lists(st.sampled_from([
+    "--rate-hz", "--channels", "--tach-edge", "--json", "--quiet", "4000", "50", "1", "3",
+    "rising", "sideways", "-1", "abc", "5000", "100"]), max_size=4)
+RECORD_OUTPUTS = st.sampled_from(["out.cap", "nodir/out.cap", ".", "", "out dir/x.cap"])
+
+
+@settings(max_examples=60, deadline=None,
+          suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(port=RECORD_PORTS, seconds=RECORD_VALUES, output=RECORD_OUTPUTS, extras=RECORD_EXTRAS)
+def test_random_record_arguments(port: str, seconds: str, output: str, extras: list[str],
+                                 tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # `record` talks to a port, so test_cli_bad_input leaves it out; here its ports are
+    # virtual or absent and an accepted recording is at most 0.2 s of signal
+    monkeypatch.chdir(tmp_path)
+    code, _, err = run_cli(["record", "--port", port, "--seconds", seconds, "-o", output,
+                            "--quiet", *extras])
+    assert_one_line_or_ok(code, err)

@@ -76,24 +76,24 @@ def _drift_hum_bias(speed_rpm: float, mains_hz: float,
     return worst_deg, worst_pct
 
 
-def _speed() -> tuple[float, float, float]:
-    """(decode + DSP, DSP only, decode only) seconds of signal per CPU second, 2 ch x 4 kSps,
-    on one core: measured in a child process whose BLAS runs one thread (CPU time counts
+def _speed() -> tuple[float, float, float, float]:
+    """(decode + DSP, DSP only, decode only, share of DSP time in the order fit) seconds of
+    signal per CPU second, 2 ch x 4 kSps, on one core: measured in a child process whose BLAS runs one thread (CPU time counts
     every thread, and an idle BLAS worker spinning on a second core is no work done)."""
     env = dict(os.environ, OPENBLAS_NUM_THREADS="1", OMP_NUM_THREADS="1", MKL_NUM_THREADS="1")
     out = subprocess.run([sys.executable, os.path.abspath(__file__), "--speed"], env=env,
                          capture_output=True, text=True, check=True,
                          cwd=os.path.dirname(os.path.abspath(__file__)))
-    both, dsp_only, decode_only = json.loads(out.stdout.strip().splitlines()[-1])
-    return both, dsp_only, decode_only
+    both, dsp_only, decode_only, fit_share = json.loads(out.stdout.strip().splitlines()[-1])
+    return both, dsp_only, decode_only, fit_share
 
 
-def _speed_here() -> tuple[float, float, float]:
+def _speed_here() -> tuple[float, float, float, float]:
     """:func:`_speed` in this process (best of five runs of each)."""
     duration_s = 20.0
     raw, _ = synthesize(SyntheticRun(speed_rpm=2880.0, duration_s=duration_s, rate_hz=4000,
                                      channels=2, noise_counts=2.0, seed=1))
-    best_all = best_dsp = best_decode = math.inf
+    best_all = best_dsp = best_decode = best_feed = math.inf
     for _ in range(5):
         t0 = time.process_time()
         analyze_capture(raw)
@@ -108,7 +108,13 @@ def _speed_here() -> tuple[float, float, float]:
         meter.readings()
         meter.spectra()
         best_dsp = min(best_dsp, time.process_time() - t0)
-    return duration_s / best_all, duration_s / best_dsp, duration_s / best_decode
+        t0 = time.process_time()  # the same without the fit (nothing is ever processed)
+        meter = LiveAnalyzer(max_revs=100_000, batch_revs=1 << 30)
+        for m in messages:
+            meter.feed(m)
+        best_feed = min(best_feed, time.process_time() - t0)
+    fit_share = max(0.0, 1.0 - best_feed / best_dsp)
+    return duration_s / best_all, duration_s / best_dsp, duration_s / best_decode, fit_share
 
 
 def _latency_ms() -> tuple[float, float, float]:
@@ -142,13 +148,15 @@ def rows() -> list[Row]:
             what += f", grid {offset:+.2f} Hz off, 100 revs"
         out.append(Row(f"dsp: 1x phase error, {what}", f"{deg:.3f} deg", "< 0.5 deg", deg < 0.5))
         out.append(Row(f"dsp: 1x amplitude error, {what}", f"{pct:.3f} %", "< 1 %", pct < 1.0))
-    both, dsp_only, decode_only = _speed()
+    both, dsp_only, decode_only, fit_share = _speed()
     out.append(Row("dsp: decode + DSP vs real time, 2 ch x 4 kSps, one core",
                    f"{both:.0f}x", ">= 500x", both >= 500))
     out.append(Row("dsp: DSP alone (messages already decoded) vs real time", f"{dsp_only:.0f}x",
                    "(info)", None))
     out.append(Row("dsp: decode alone (trueturn.link.codec.StreamDecoder) vs real time",
                    f"{decode_only:.0f}x", "(info)", None))
+    out.append(Row("dsp: share of DSP time in fitting, readings and spectra (rest: per-message "
+                   "work, tach)", f"{100 * fit_share:.0f} %", "(info)", None))
     p99, worst, fill = _latency_ms()
     total = worst + fill
     out.append(Row("dsp: revolution end to updated reading (block fill + worst processing)",

@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import contextlib
-import io
 import json
 import math
 
@@ -11,18 +9,8 @@ import pytest
 import yaml
 
 from balance_sim_helpers import classic_document, reduction
+from cli_helpers import run_cli
 from trueturn.balance.influence import Correction
-from trueturn.cli.main import main
-
-
-def run_cli(argv):
-    out, err = io.StringIO(), io.StringIO()
-    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
-        try:
-            code = main(argv)
-        except SystemExit as exc:
-            code = exc.code if isinstance(exc.code, int) else 2
-    return code, out.getvalue(), err.getvalue()
 
 
 @pytest.fixture

@@ -6,8 +6,6 @@ is 0 (accepted) or 2 (refused with one line on stderr).
 
 from __future__ import annotations
 
-import contextlib
-import io
 import json
 
 import pytest
@@ -15,7 +13,8 @@ import yaml
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from trueturn.cli.main import COMMANDS, main
+from cli_helpers import run_cli
+from trueturn.cli.main import COMMANDS
 
 # Commands that open the app or a port run elsewhere (test_ui_*, test_sim_*); not fuzzed here.
 SKIP = {"demo", "ui", "record"}
@@ -30,15 +29,6 @@ WORDS = st.sampled_from(["--json", "--mass-g", "--angle-deg", "--positions", "--
 ARGS = st.lists(st.one_of(WORDS, st.text(max_size=6), st.floats(allow_nan=True).map(str)),
                 max_size=8)
 
-
-def run_cli(argv: list[str]) -> tuple[int, str, str]:
-    out, err = io.StringIO(), io.StringIO()
-    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
-        try:
-            code = main(argv)
-        except SystemExit as exc:  # argparse usage errors and --help
-            code = exc.code if isinstance(exc.code, int) else 2
-    return code, out.getvalue(), err.getvalue()
 
 
 @pytest.mark.parametrize("command", FUZZED)

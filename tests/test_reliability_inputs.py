@@ -8,9 +8,7 @@ profile inside it) and a READINGS document of the bench grinder (invented demo d
 
 from __future__ import annotations
 
-import contextlib
 import copy
-import io
 import json
 import math
 from pathlib import Path
@@ -23,7 +21,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from balance_sim_helpers import classic_document
-from trueturn.cli.main import main
+from cli_helpers import run_cli
 from trueturn.errors import UserError
 from trueturn.jobs.store import Workspace, read_document
 from trueturn.sim.scenario import scenario_dir
@@ -34,15 +32,6 @@ FUZZ = settings(max_examples=60, deadline=None,
                 suppress_health_check=[HealthCheck.function_scoped_fixture,
                                        HealthCheck.too_slow])
 
-
-def run_cli(argv: list[str]) -> tuple[int, str, str]:
-    out, err = io.StringIO(), io.StringIO()
-    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
-        try:
-            code = main(argv)
-        except SystemExit as exc:
-            code = exc.code if isinstance(exc.code, int) else 2
-    return code, out.getvalue(), err.getvalue()
 
 
 def assert_one_line_or_ok(code: int, err: str) -> None:

@@ -6,13 +6,10 @@ Every fault must be said at once on one line, exit 2, and leave a valid capture 
 
 from __future__ import annotations
 
-import contextlib
-import io
-
 import pytest
 
 import trueturn.cli.cmd_record as rec
-from trueturn.cli.main import main
+from cli_helpers import run_cli
 from trueturn.dsp.analysis import analyze_capture
 from trueturn.link.capture import read_capture
 from trueturn.link.catalogue import load_catalogue
@@ -20,16 +17,6 @@ from trueturn.link.codec import LinkEvent, Message
 from trueturn.link.ports import open_port
 from trueturn.link.session import BoardSession, LinkLost
 from trueturn.sim.board import VirtualBoard
-
-
-def run_cli(argv: list[str]) -> tuple[int, str, str]:
-    out, err = io.StringIO(), io.StringIO()
-    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
-        try:
-            code = main(argv)
-        except SystemExit as exc:
-            code = exc.code if isinstance(exc.code, int) else 2
-    return code, out.getvalue(), err.getvalue()
 
 
 def _schedule(monkeypatch: pytest.MonkeyPatch, at_s: float, action: str) -> None:

@@ -8,8 +8,6 @@ from (trueturn.dsp.synthetic); invented numbers, used only to make the faults.
 
 from __future__ import annotations
 
-import contextlib
-import io
 import json
 import math
 from pathlib import Path
@@ -17,7 +15,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from trueturn.cli.main import main
+from cli_helpers import run_cli
 from trueturn.dsp.analysis import analyze_capture
 from trueturn.dsp.shaft import TachTracker
 from trueturn.dsp.synthetic import OrderComponent, SyntheticRun, synthesize
@@ -30,15 +28,6 @@ RUN = SyntheticRun(speed_rpm=2700.0, duration_s=4.0, rate_hz=4000, channels=2,
                    noise_counts=2.0, seed=11)
 PERIOD_TICKS = 2_000_000 * 60 / 2700
 
-
-def run_cli(argv: list[str]) -> tuple[int, str, str]:
-    out, err = io.StringIO(), io.StringIO()
-    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
-        try:
-            code = main(argv)
-        except SystemExit as exc:
-            code = exc.code if isinstance(exc.code, int) else 2
-    return code, out.getvalue(), err.getvalue()
 
 
 def _rewrite(raw: bytes, tach) -> bytes:

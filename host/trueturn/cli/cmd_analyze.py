@@ -7,11 +7,10 @@ import dataclasses
 import math
 from typing import Any
 
-from trueturn.cli.common import print_json
+from trueturn.cli.common import load_capture, print_json
 from trueturn.dsp.analysis import Analysis, analyze_capture
 from trueturn.dsp.units import UNITS, PickupProfile
 from trueturn.errors import UserError
-from trueturn.link.capture import CaptureError, read_capture
 from trueturn.link.catalogue import load_catalogue
 from trueturn.link.codec import Message, StreamDecoder
 
@@ -99,12 +98,7 @@ def _profiles(args: argparse.Namespace, metadata: dict[str, Any]) -> list[Pickup
 def run(args: argparse.Namespace) -> int:
     if args.revs is not None and args.revs < 2:
         raise UserError("--revs must be at least 2")
-    try:
-        metadata, raw = read_capture(args.capture)
-    except OSError as exc:
-        raise UserError(f"cannot read {args.capture}: {exc.strerror}") from None
-    except CaptureError as exc:
-        raise UserError(str(exc)) from None
+    metadata, raw = load_capture(args.capture)
     mains = args.mains_hz
     if mains is None:
         stored = metadata.get("mains_hz")

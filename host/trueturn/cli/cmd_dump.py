@@ -6,8 +6,7 @@ import argparse
 import json
 import sys
 
-from trueturn.errors import UserError
-from trueturn.link.capture import CaptureError, read_capture
+from trueturn.cli.common import load_capture
 from trueturn.link.codec import LinkEvent, StreamDecoder
 
 
@@ -24,12 +23,7 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    try:
-        metadata, raw = read_capture(args.file)
-    except OSError as exc:
-        raise UserError(f"cannot read {args.file}: {exc.strerror}") from None
-    except CaptureError as exc:
-        raise UserError(str(exc)) from None
+    metadata, raw = load_capture(args.file)
     out = sys.stdout
     if not metadata.get("plain"):
         out.write(json.dumps({"capture": metadata}) + "\n")

@@ -24,3 +24,15 @@ def add_not_ready(sub: argparse._SubParsersAction, name: str, help_text: str, is
         raise UserError(f"not available yet in this version (tracked as issue #{issue})")
 
     parser.set_defaults(run=run)
+
+
+def load_capture(path: str) -> tuple[dict[str, Any], bytes]:
+    """Read a capture or frame file for a command; a missing or damaged file is one line."""
+    from trueturn.link.capture import CaptureError, read_capture
+
+    try:
+        return read_capture(path)
+    except OSError as exc:
+        raise UserError(f"cannot read {path}: {exc.strerror}") from None
+    except CaptureError as exc:
+        raise UserError(str(exc)) from None

@@ -41,6 +41,7 @@ from trueturn.ui.texts import CAUTIONS, keys_markup
 from trueturn.ui.widgets import PolarPlot, PolarPoint
 
 TICK_S = 0.1
+TACH_SILENT_S = 2.0  # no tach edge for this long while data arrive: the tach is not seen
 STYLES = ("cyan", "magenta", "yellow", "green")
 
 
@@ -156,6 +157,7 @@ class BenchScreen(Screen):
         Binding("p", "machine", "Machine", show=False),
         Binding("o", "motor(True)", "Motor on", show=False),
         Binding("x", "motor(False)", "Motor off", show=False),
+        Binding("l", "reconnect", "Reconnect", show=False),
         Binding("c", "app.cautions", "Cautions"),
         Binding("question_mark", "app.keys", "Keys"),
         Binding("f1", "app.keys", "Keys", show=False),
@@ -205,6 +207,9 @@ class BenchScreen(Screen):
     def action_motor(self, on: bool) -> None:
         self.trueturn.motor(on)
 
+    def action_reconnect(self) -> None:
+        self.trueturn.reconnect()
+
 
 class TrueturnApp(App):
     """trueturn: balance a rotor with the kit, guided step by step."""
@@ -232,6 +237,8 @@ class TrueturnApp(App):
         self.alarm: SafetyEvent | None = None
         self.snap: Snapshot | None = None
         self.link_error = ""
+        self.reconnecting = False
+        self.restarts_seen = 0
         self.bench: BenchScreen | None = None
         self._saved_cache: dict[str, CoefficientSet | None] = {}
 
@@ -266,9 +273,76 @@ class TrueturnApp(App):
             time.sleep(0.0 if handled else 0.003)
 
     def lost_link(self, text: str) -> None:
+        """The port failed: say so at once, drop the run in progress, keep the job as saved."""
         self.link_error = text
         self.session.watch.reset()  # nothing is proven about the rotor any more
-        self.message = f"LINK LOST: {text}. The job is saved up to the last run."
+        self.session.reset_meter()  # a partial average is never kept
+        proc = self.procedure
+        if proc is not None and proc.interrupt_run("link-lost", text,
+                                                   self.session.watch.now_s or 0.0):
+            self.alarm = None
+        self.message = "LINK LOST: check the USB cable and the board, then press l to reconnect."
+        self.tick()
+
+    def reconnect(self) -> None:
+        """Open the same port again, identify, restart the stream, resume the step."""
+        if not self.link_error:
+            self.message = "The link is up: nothing to reconnect."
+        elif not self.reconnecting:
+            self.reconnecting = True
+            self.message = f"Reconnecting to {self.config.url} …"
+            self.reopen_link(self.session.rig)
+        self.tick()
+
+    @work(thread=True, exclusive=True, group="link-open")
+    def reopen_link(self, old_rig: object) -> None:
+        try:
+            identity = self.session.reconnect()
+            if identity.matches:
+                self.session.start()
+        except LinkProblem as exc:
+            self.call_from_thread(self.reconnect_failed, f"reconnect failed: {exc}")
+            return
+        if not identity.matches:
+            self.call_from_thread(self.reconnect_failed, "Refused: " + identity.mismatch_text())
+            return
+        self.call_from_thread(self.reconnected, old_rig)
+
+    def reconnect_failed(self, text: str) -> None:
+        self.reconnecting = False
+        self.link_error = text
+        self.message = "Still no link: press l to try again, or q to quit (the job is saved)."
+        self.tick()
+
+    def reconnected(self, old_rig: object) -> None:
+        self.reconnecting = False
+        self.link_error = ""
+        self.restarts_seen = self.session.restarts
+        if self.rig is not None and old_rig is not None:
+            self.rig.carry_over(old_rig)  # the rotor kept its weights while the cable was out
+        ident = self.session.identity
+        assert ident is not None
+        self.message = f"Reconnected: {ident.board} fw {ident.firmware}."
+        proc = self.procedure
+        if proc is not None and proc.step.kind == "run" and proc.step.phase == "interrupted":
+            proc.resume_run()
+            self.alarm = None
+            self.message += f" Run {len(proc.runs) + 1} ({proc.step.run_label}) starts over."
+        self.pump_link()
+        self.tick()
+
+    def board_restarted(self) -> None:
+        """The board restarted and the session started its stream again."""
+        proc = self.procedure
+        note = "the board restarted (power dip or loose cable?)"
+        if proc is not None and proc.interrupt_run("board-restart", note,
+                                                   self.session.watch.now_s or 0.0):
+            self.alarm = None
+            self.message = (f"{note[0].upper()}{note[1:]}; run {len(proc.runs) + 1} "
+                            f"({proc.step.run_label}) starts over.")
+        else:
+            self.message = (f"{note[0].upper()}{note[1:]}; streaming again. Standstill must "
+                            "be proven afresh by the tach.")
 
     async def action_quit(self) -> None:
         self.workers.cancel_group(self, "link-pump")
@@ -373,6 +447,8 @@ class TrueturnApp(App):
                     self.message = "Demo: the virtual motor is starting."
                 else:
                     self.message = "Switch the machine on now and stand clear."
+            elif step.kind == "run" and step.phase == "interrupted":
+                self.message = "The run was interrupted: press l to reconnect; it starts over."
             elif step.kind == "run":
                 self.message = "Measuring: wait for the bar to fill (the reading must be steady)."
             elif step.kind == "correction" and proc.problem:
@@ -426,6 +502,9 @@ class TrueturnApp(App):
         self.session.meter.spectrum_wanted = current == "spectrum-view"
         snap = self.session.snapshot()
         self.snap = snap
+        if snap.restarts != self.restarts_seen:
+            self.restarts_seen = snap.restarts
+            self.board_restarted()
         self._run_logic(snap)
         bench.query_one("#status", Static).update(self._status_text(snap))
         if current == "meter-view":
@@ -437,21 +516,31 @@ class TrueturnApp(App):
 
     def _run_logic(self, snap: Snapshot) -> None:
         proc = self.procedure
-        if proc is None or proc.step.kind != "run" or proc.step.phase != "running":
+        if proc is None or proc.step.kind != "run" or proc.step.phase != "running" \
+                or self.link_error:
             return
         meter = snap.meter
         now = snap.board_time_s
         for ev in proc.observe(meter.readings, meter.speed_rpm or 0.0, now):
             self.alarm = ev
             self.keeper.event(ev)
-        if proc.ready(meter.readings):
+        live = self.tach_live(snap)
+        if proc.ready(meter.readings, live):
             # The run's speed: the mean over the averaged revolutions of its readings.
             speeds = [r.speed_rpm for r in meter.readings.values() if r.speed_rpm > 0]
-            run = proc.record(meter.readings, statistics.fmean(speeds), now)
+            run = proc.record(meter.readings, statistics.fmean(speeds), now, live)
             self.keeper.run(proc, run)
             stop = "press x to switch the virtual motor off" if self.rig else \
                 "switch the machine off"
             self.message = f"Run '{run.label}' recorded and saved: {stop}."
+            why = {"link-lost": "a lost link", "board-restart": "a board restart"}
+            over = [why[e.kind] for e in run.events if e.kind in why]
+            if over:
+                self.message += f" It started over after {over[-1]}."
+
+    def tach_live(self, snap: Snapshot) -> bool:
+        """The tach is being seen: an edge within the last ``TACH_SILENT_S`` of board time."""
+        return self.session.watch.last_edge_s is not None and snap.quiet_s < TACH_SILENT_S
 
     # ---- drawing ------------------------------------------------------------------------
     def _status_text(self, snap: Snapshot) -> str:
@@ -460,7 +549,10 @@ class TrueturnApp(App):
             if ident else "no board"
         speed = snap.meter.speed_rpm
         turning = self.session.watch.last_edge_s is not None and snap.quiet_s < 1.0
-        if snap.standstill:
+        if self.link_error:
+            motion = "[b red]LINK LOST[/] · l: reconnect" if not self.reconnecting else \
+                "[b yellow]reconnecting…[/]"
+        elif snap.standstill:
             motion = f"[green]STANDSTILL[/] ({snap.quiet_s:.0f} s no tach edge)"
         elif turning:
             motion = f"[b red]TURNING {speed or 0:.0f} rpm[/]"
@@ -470,6 +562,8 @@ class TrueturnApp(App):
         lost = (f"lost: {c.get('samples_lost', 0) + snap.board_samples_dropped} samples, "
                 f"{c.get('frames_lost', 0) + c.get('frames_bad', 0) + snap.board_frames_dropped}"
                 f" frames")
+        if c.get("board_resets", 0):
+            lost += f", board restarts: {c['board_resets']}"
         demo = " [b]DEMO[/b]" if self.config.demo else ""
         return f"{self.config.profile.name}{demo} · {board}\n{motion} · {lost}"
 
@@ -503,7 +597,9 @@ class TrueturnApp(App):
         lines += [f"link: {c.get('frames_bad', 0)} bad frames, {c.get('frames_lost', 0)} lost,",
                   f"{c.get('samples_lost', 0)} samples lost, board dropped "
                   f"{snap.board_samples_dropped}"]
-        if meter.warnings:
+        if meter.tach_faults:
+            lines += [f"[yellow]Tach: {f}[/]" for f in meter.tach_faults[:2]]
+        elif meter.warnings:
             lines.append(f"[yellow]{meter.warnings[-1]}[/]")
         bench.query_one("#meter-table", Static).update("\n".join(lines))
         bench.query_one("#polar", PolarPlot).show(points, meter.unit)
@@ -535,7 +631,8 @@ class TrueturnApp(App):
             msg.set_class(False, "alarm")
             msg.update(self.message)
         if proc is None:
-            body.update(self._setup_text())
+            body.update("\n".join(self._link_lines(None)) if self.link_error
+                        else self._setup_text())
             return
         body.update(self._step_text(proc, snap))
         if proc.step.kind == "run" and proc.step.phase == "running":
@@ -544,6 +641,20 @@ class TrueturnApp(App):
             if not proc.ready(snap.meter.readings):
                 done = min(done, 0.95)  # full only when every pickup has settled
             bar.update(progress=100 * done)
+
+    def _link_lines(self, proc: Procedure | None) -> list[str]:
+        """What the guide says while the link is down."""
+        lines = [f"[b red]LINK LOST[/]: {self.link_error}"]
+        if proc is not None:
+            n = len(proc.runs)
+            lines.append(f"Job saved up to the last complete run ({n} runs): {self.keeper.path}")
+            step = proc.step
+            if step.kind == "run" and step.phase == "interrupted":
+                lines.append(f"Run {n + 1} ({step.run_label}) is incomplete: nothing of it "
+                             "was kept; it starts over after reconnecting.")
+        lines.append("Check the USB cable and the board, then press [b]l[/b] to "
+                     "reconnect (the same port).")
+        return lines
 
     def _setup_text(self) -> str:
         prof = self.config.profile
@@ -568,6 +679,8 @@ class TrueturnApp(App):
         n = len(proc.runs)
         head = f"[b]{step.title}[/b]   [dim](runs so far: {n})[/dim]"
         lines = [head]
+        if self.link_error:
+            return "\n".join(lines + self._link_lines(proc))
         watch = self.session.watch
         turning = not snap.standstill and watch.last_edge_s is not None and snap.quiet_s < 1.0
         checking = not snap.standstill and not turning
@@ -624,6 +737,10 @@ class TrueturnApp(App):
                     st = "[green]steady[/]" if r.steady else "[yellow]settling[/]"
                     lines.append(f"  {name}: {r.amplitude:.3f} {r.unit} at {ph} "
                                  f"±{r.confidence_deg:.0f}°, {r.revolutions} rev, {st}")
+                if not self.tach_live(snap):
+                    lines.append(f"[b red]No tach edge for {snap.quiet_s:.1f} s (spinning up? "
+                                 "tach not seeing its mark?): nothing is kept meanwhile.[/]")
+                lines += [f"[yellow]Tach: {f}[/]" for f in meter.tach_faults[:2]]
                 waiting = [r for r in (meter.readings.get(n) for n in proc.setup.sensors)
                            if r is not None and not proc.settled(r)]
                 if waiting:

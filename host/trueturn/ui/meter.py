@@ -8,6 +8,7 @@ when a new run begins. No signal processing of its own.
 from __future__ import annotations
 
 import math
+import re
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any
@@ -24,6 +25,27 @@ SPECTRUM_BINS = 76  # one sparkline column each, fits 80 columns
 METER_LIMITS = SteadinessLimits(max_confidence_deg=180.0)
 PHASE_LIMIT_DEG = SteadinessLimits().max_confidence_deg
 
+# The DSP's tach warnings (trueturn.dsp.meter stream_warnings) in a few plain words each,
+# in the order a person should look at them.
+_TACH_WORDS: tuple[tuple[str, str], ...] = (
+    ("no steady tach signal", "no tach edges: rotor at rest, or the tach does not see its mark"),
+    ("tach edge(s) missed", "missed tach edges{n}: the mark was not seen every turn"),
+    ("extra tach edge(s)", "extra tach edges{n}: a second mark, scratch or flicker"),
+    ("tach timing is uneven", "uneven tach edges: clean the mark, tighten the sensor"),
+)
+
+
+def tach_faults(warnings: Sequence[str]) -> tuple[str, ...]:
+    """The tach's trouble in plain words, from the DSP's warning lines (empty: tach fine)."""
+    out = []
+    for key, words in _TACH_WORDS:
+        line = next((w for w in warnings if key in w), None)
+        if line is None:
+            continue
+        count = re.match(r"\s*(\d+)", line)
+        out.append(words.format(n=f" ({count.group(1)})" if count else ""))
+    return tuple(out)
+
 
 @dataclass
 class MeterView:
@@ -37,6 +59,7 @@ class MeterView:
     spectrum_max_hz: float = 0.0
     peaks: list[tuple[float, float, str]] = field(default_factory=list)
     warnings: list[str] = field(default_factory=list)
+    tach_faults: tuple[str, ...] = ()  # plain words, see :func:`tach_faults`
 
 
 class _Msg:
@@ -114,12 +137,16 @@ class MeterAdapter:
         speed = a.speed_rpm
         out.speed_rpm = speed if math.isfinite(speed) else None
         for r in readings:
+            faults = tach_faults(r.warnings)
             out.readings[r.sensor] = SensorReading(
                 r.sensor, r.amplitude, r.unit, r.phase_deg, r.confidence_deg, r.revolutions,
                 r.steady, r.speed_rpm, r.confidence_radius
-                if math.isfinite(r.confidence_radius) else None)
+                if math.isfinite(r.confidence_radius) else None, faults)
             out.unit = r.unit
             out.warnings += [w for w in r.warnings if w not in out.warnings]
+        if not readings:  # no revolution yet: the stream's own warnings (no tach, ...)
+            out.warnings += [w for w in a.stream_warnings() if "stream_config" not in w]
+        out.tach_faults = tach_faults(out.warnings)
         if self.spectrum_wanted:
             self._spectrum(out)
         return out

@@ -128,15 +128,17 @@ class SensorReading:
     steady: bool
     speed_rpm: float
     confidence_radius: float | None = None  # 95 % circle radius in the reading's unit
+    tach_faults: tuple[str, ...] = ()  # plain words: no tach, missed/extra edges, uneven
 
 
 @dataclass(frozen=True)
 class SafetyEvent:
     """Something the person had to be told to stop for, with board time."""
 
-    kind: Literal["overspeed", "runaway"]
+    kind: Literal["overspeed", "runaway", "link-lost", "board-restart"]
     detail: str
     time_s: float
+
 
 
 @dataclass
@@ -221,7 +223,8 @@ class Step:
     title: str
     changes: tuple[MassChange, ...] = ()
     run_label: str = ""
-    phase: str = "start"  # hands-on: lockout|working; run: arming|running; others: start
+    phase: str = "start"  # hands-on: lockout|working; run: arming|running|interrupted;
+    # others: start
 
 
 def planes_for(setup: ProcedureSetup) -> tuple[PlaneSetup, ...]:
@@ -346,8 +349,11 @@ class Procedure:
         return self.runs[0] if self.runs else None
 
     # ---- hands-on gates -----------------------------------------------------------------
-    def _require_standstill(self) -> None:
-        if self.runs and self.watch.edges_seen < TACH_PROVEN_EDGES:
+    def _require_standstill(self, tach_proven_before: bool = False) -> None:
+        """Tach-confirmed standstill; ``tach_proven_before``: the tach was proven working at
+        this step's lock-out (power locked out since), so a link reopened meanwhile need not
+        see the rotor turn again before the done gate."""
+        if self.runs and self.watch.edges_seen < TACH_PROVEN_EDGES and not tach_proven_before:
             # "No edges" proves nothing from a tach that has not been seen working.
             raise GateRefused("the tach has not seen the rotor turn since the link started: "
                               "standstill cannot be proven; check the tach and its mark")
@@ -381,7 +387,7 @@ class Procedure:
         """
         if self.step.kind != "hands-on" or self.step.phase != "working":
             raise GateRefused("lock out first: the hands-on step has not been opened")
-        self._require_standstill()
+        self._require_standstill(tach_proven_before=True)
         self._require_ticks(ticked, DONE_CHECKLIST)
         changes = self.step.changes
         for change in changes:
@@ -445,6 +451,8 @@ class Procedure:
         """
         if not r.steady or r.revolutions < self.setup.revolutions_per_run:
             return False
+        if any(f.startswith("no tach") for f in r.tach_faults):
+            return False
         if self.setup.mode is Mode.AMPLITUDE_ONLY:
             base = self.as_found()
             if base is None or r.confidence_radius is None:
@@ -461,9 +469,14 @@ class Procedure:
         return (ref is not None and r.confidence_radius is not None
                 and r.confidence_radius <= SMALL_VECTOR_FRACTION * ref.amplitude)
 
-    def ready(self, readings: dict[str, SensorReading]) -> bool:
-        """True when every pickup has a settled reading over enough revolutions."""
-        if self.step.kind != "run" or self.step.phase != "running":
+    def ready(self, readings: dict[str, SensorReading], tach_live: bool = True) -> bool:
+        """True when every pickup has a settled reading over enough revolutions.
+
+        Never while the tach is silent (``tach_live`` False: no edge lately while data
+        arrive) or a reading says there is no tach: without the once-per-rev reference a 1x
+        phase means nothing.
+        """
+        if self.step.kind != "run" or self.step.phase != "running" or not tach_live:
             return False
         return all(name in readings and self.settled(readings[name])
                    for name in self.setup.sensors)
@@ -476,10 +489,13 @@ class Procedure:
         return max(0.0, min(1.0, revs / self.setup.revolutions_per_run))
 
     def record(self, readings: dict[str, SensorReading], speed_rpm: float,
-               now_s: float) -> RunRecord:
+               now_s: float, tach_live: bool = True) -> RunRecord:
         """Keep the run's readings (only when :meth:`ready`) and move on."""
-        if not self.ready(readings):
-            raise GateRefused("the reading is not steady yet: keep the machine running")
+        if self.step.kind == "run" and self.step.phase == "interrupted":
+            raise GateRefused("the run was interrupted: reconnect first; it starts over")
+        if not self.ready(readings, tach_live):
+            raise GateRefused("the reading is not steady yet (or the tach is silent): "
+                              "keep the machine running")
         run = RunRecord(self.step.run_label, tuple(self.on_rotor),
                         {s: readings[s] for s in self.setup.sensors}, speed_rpm, now_s,
                         self._force_text, list(self._pending_run_events))
@@ -487,6 +503,32 @@ class Procedure:
         self.log.append(f"run recorded: {run.label}")
         self._advance_after_run(run)
         return run
+
+    def interrupt_run(self, kind: Literal["link-lost", "board-restart"], detail: str,
+                      now_s: float) -> bool:
+        """The run in progress lost its data (link lost, board restarted); return True if a
+        run was in progress.
+
+        Nothing of its partial average is kept (the app discards it): a lost link leaves the
+        run ``interrupted`` until :meth:`resume_run`; a board restart keeps it running from
+        zero. The interruption is kept as an event of the run when it completes.
+        """
+        if self.step.kind != "run" or self.step.phase not in ("running", "interrupted"):
+            return False
+        event = SafetyEvent(kind, detail, now_s)
+        self._pending_run_events.append(event)
+        self.events.append(event)
+        self.log.append(f"run incomplete: {self.step.run_label} ({detail})")
+        if kind == "link-lost":
+            self.step.phase = "interrupted"
+        return True
+
+    def resume_run(self) -> None:
+        """The link is back: the interrupted run starts over (same masses, same confirmation)."""
+        if self.step.kind != "run" or self.step.phase != "interrupted":
+            raise GateRefused("no interrupted run to resume")
+        self.step.phase = "running"
+        self._alarmed = set()
 
     # ---- correction step ----------------------------------------------------------------
     def set_removal(self, removal: bool) -> None:

@@ -37,5 +37,14 @@ class DemoRig:
     def motor(self, on: bool) -> None:
         self.session.rig_call("motor_start" if on else "motor_stop")
 
+    def carry_over(self, old_rig: object) -> None:
+        """A reopened ``sim://`` port is a fresh virtual board: give it the rotor as it was
+        (the weights the person put on, the motor on or off) - a pulled cable changes
+        nothing on a real machine."""
+        for mass in getattr(old_rig, "masses", []):
+            self.session.rig_call("add_mass", mass)
+        if getattr(old_rig, "running", False):
+            self.session.rig_call("motor_start")
+
     def masses(self) -> list[Mass]:
         return list(self.session.rig_call("all_masses"))

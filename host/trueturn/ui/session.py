@@ -20,7 +20,7 @@ from trueturn.errors import UserError
 from trueturn.link.catalogue import load_catalogue
 from trueturn.link.codec import LinkEvent, Message, StreamDecoder
 from trueturn.link.ports import open_port
-from trueturn.link.session import BoardError, BoardSession
+from trueturn.link.session import BoardError, BoardSession, mismatch_message
 from trueturn.ui.meter import MeterAdapter, MeterView
 from trueturn.ui.procedure import StandstillWatch
 
@@ -69,6 +69,7 @@ class Snapshot:
     board_frames_dropped: int = 0
     events: list[str] = field(default_factory=list)
     streaming: bool = False
+    restarts: int = 0  # board restarts seen and recovered from (stream started again)
 
 
 class LinkSession:
@@ -98,6 +99,7 @@ class LinkSession:
         self._events: list[str] = []
         self._status: dict[str, int] = {}
         self._streaming = False
+        self.restarts = 0
 
     # ---- opening ------------------------------------------------------------------------
     def open(self, timeout_s: float = 3.0) -> BoardIdentity:
@@ -135,15 +137,61 @@ class LinkSession:
         """Configure and start streaming (only after a matching identity)."""
         if self.identity is None or not self.identity.matches or self.board is None:
             raise LinkProblem("refusing to stream: the board's firmware does not match")
-        channels = max(1, min(self.channels, self.identity.max_channels))
         try:
-            with self._lock:
-                self.board.configure(self.rate_hz, channels)
-                config = self.board.start()
+            config = self._configure_and_start()
         except UserError as exc:
             raise LinkProblem(str(exc)) from None
+        with self._state:
+            self._use_config(config)
+        self._streaming = True
+
+    def _configure_and_start(self) -> dict[str, Any]:
+        assert self.identity is not None and self.board is not None
+        channels = max(1, min(self.channels, self.identity.max_channels))
+        with self._lock:
+            self.board.configure(self.rate_hz, channels)
+            return self.board.start()
+
+    def _use_config(self, config: dict[str, Any]) -> None:
+        """A fresh stream: its tick origin, and a meter that starts averaging from zero."""
         self._handle_config(config)
         self.meter.stream_config(config)
+        self.meter.reset()
+
+    def _forget_clock(self) -> None:
+        """The board's clock may have restarted: unwrap it afresh, prove standstill afresh."""
+        self._tick_base = 0
+        self._last_tick32 = None
+        self.watch.reset()
+
+    def reconnect(self, timeout_s: float = 3.0) -> BoardIdentity:
+        """Open the same port again after a lost link and check who answers (like
+        :meth:`open`: a mismatched firmware comes back with ``matches`` False)."""
+        self.close()
+        self.identity = None
+        with self._state:
+            self._forget_clock()
+            self._events.clear()
+            self._status = {}
+        return self.open(timeout_s)
+
+    def _restart_after_reset(self) -> None:
+        """The board restarted (power dip, loose cable, watchdog) and is idle: configure and
+        start it again; the partial average is discarded and standstill proven afresh."""
+        assert self.board is not None
+        ident = self.board.identity
+        problem = mismatch_message(ident, self.catalogue) if ident is not None else None
+        if problem:
+            raise LinkProblem(f"the board restarted and now {problem}")
+        try:
+            config = self._configure_and_start()
+        except UserError as exc:
+            self._streaming = False
+            raise LinkProblem(f"the board restarted and did not start again: {exc}") from None
+        with self._state:
+            self._forget_clock()
+            self._use_config(config)
+            self.restarts += 1
         self._streaming = True
 
     # ---- streaming ----------------------------------------------------------------------
@@ -173,20 +221,28 @@ class LinkSession:
             self._streaming = False
             raise LinkProblem(f"the link to {self.url} was lost: {exc}") from None
         with self._state:
-            return self._handle_items(items)
+            handled, restarted = self._handle_items(items)
+        if restarted:
+            self._restart_after_reset()
+        return handled
 
-    def _handle_items(self, items: list[Message | LinkEvent]) -> int:
+    def _handle_items(self, items: list[Message | LinkEvent]) -> tuple[int, bool]:
+        """Feed the messages on; return how many, and whether the board restarted."""
         handled = 0
+        restarted = False
         for item in items:
             if isinstance(item, LinkEvent):
                 if item.kind == "board_reset":
-                    self.watch.reset()
+                    restarted = True
+                    self._streaming = False
+                    self._forget_clock()
+                    self.meter.reset()  # nothing of a partial average survives a restart
                 self._events.append(f"{item.kind}: {item.detail}")
                 del self._events[:-20]
                 continue
             handled += 1
             self._handle(item)
-        return handled
+        return handled, restarted
 
     def _handle(self, msg: Message) -> None:
         v = msg.values
@@ -234,7 +290,7 @@ class LinkSession:
                       "board_resets": c.board_resets},
             board_samples_dropped=status.get("samples_dropped", 0),
             board_frames_dropped=status.get("frames_dropped", 0),
-            events=events, streaming=self._streaming)
+            events=events, streaming=self._streaming, restarts=self.restarts)
 
     # ---- the simulated rig (demo mode) --------------------------------------------------
     @property

@@ -32,6 +32,7 @@ KEYS: list[tuple[str, str]] = [
     ("r", "Guide: remove material instead of adding mass (correction step)"),
     ("o", "Demo rig: switch the virtual motor on"),
     ("x", "Demo rig: switch the virtual motor off"),
+    ("l", "Link lost: reconnect to the same port (the run starts over)"),
     ("c", "Cautions (safety notes)"),
     ("? / F1", "This list of keys"),
     ("Escape", "Close this screen / go back"),

@@ -186,20 +186,7 @@ def ring_svg(diameter_mm: float, positions: int, first_deg: float = 0.0,
     # Ruler box for checking the print scale.
     rx = (lay.width_mm - RULER_MM) / 2.0
     ry = lay.height_mm - MARGIN_MM - 22.0
-    out.append(f'<rect class="ruler" x="{rx:g}" y="{ry:g}" width="{RULER_MM:g}" height="8" '
-               'fill="none" stroke="#000" stroke-width="0.25"/>')
-    for mm in range(int(RULER_MM) + 1):
-        length = 4.0 if mm % 10 == 0 else 2.5 if mm % 5 == 0 else 1.5
-        out.append(f'<line class="ruler-tick" x1="{rx + mm:g}" y1="{ry + 8:g}" x2="{rx + mm:g}" '
-                   f'y2="{ry + 8 - length:g}" stroke="#000" stroke-width="0.12"/>')
-        if mm % 10 == 0:
-            out.append(f'<text x="{rx + mm:g}" y="{ry + 3:g}" text-anchor="middle" '
-                       f'class="small">{mm // 10}</text>')
-    out.append(f'<text x="{rx:g}" y="{ry + 12:g}" class="small">This box must measure exactly '
-               f'{RULER_MM:g} mm (10 cm). Print at 100 % / actual size, not "fit to page".</text>')
-    for i, line in enumerate(CAUTION):
-        out.append(f'<text x="{rx:g}" y="{ry + 15.5 + 3 * i:g}" class="small caution">'
-                   f'{line}</text>')
+    _ruler_and_caution(out, rx, ry)
     if not lay.fits_a4_and_letter:
         out.append(f'<text x="{rx:g}" y="{ry + 21.5:g}" class="small">Larger than an A4 or '
                    'Letter sheet: print with --tiles and tape the sheets together.</text>')
@@ -310,20 +297,7 @@ def strip_svg(diameter_mm: float, positions: int, first_deg: float = 0.0,
         out.append("</g>")
     rx = MARGIN_MM
     ry = lay.height_mm - MARGIN_MM - 22.0
-    out.append(f'<rect class="ruler" x="{rx:g}" y="{ry:g}" width="{RULER_MM:g}" height="8" '
-               'fill="none" stroke="#000" stroke-width="0.25"/>')
-    for mm in range(int(RULER_MM) + 1):
-        tick = 4.0 if mm % 10 == 0 else 2.5 if mm % 5 == 0 else 1.5
-        out.append(f'<line class="ruler-tick" x1="{rx + mm:g}" y1="{ry + 8:g}" x2="{rx + mm:g}" '
-                   f'y2="{ry + 8 - tick:g}" stroke="#000" stroke-width="0.12"/>')
-        if mm % 10 == 0:
-            out.append(f'<text x="{rx + mm:g}" y="{ry + 3:g}" text-anchor="middle" '
-                       f'class="small">{mm // 10}</text>')
-    out.append(f'<text x="{rx:g}" y="{ry + 12:g}" class="small">This box must measure exactly '
-               f'{RULER_MM:g} mm (10 cm). Print at 100 % / actual size, not "fit to page".</text>')
-    for i, line in enumerate(CAUTION):
-        out.append(f'<text x="{rx:g}" y="{ry + 15.5 + 3 * i:g}" class="small caution">'
-                   f'{line}</text>')
+    _ruler_and_caution(out, rx, ry)
     out.append("</svg>")
     return "\n".join(out) + "\n", lay
 
@@ -402,3 +376,21 @@ def ring_tiles_html(diameter_mm: float, positions: int, first_deg: float = 0.0,
         'svg { display: block; }</style></head><body>',
         *sheets, '</body></html>'])
     return page + "\n", tiles
+
+
+def _ruler_and_caution(out: list[str], rx: float, ry: float) -> None:
+    """A RULER_MM box with mm ticks to check the print scale, then the standstill caution."""
+    out.append(f'<rect class="ruler" x="{rx:g}" y="{ry:g}" width="{RULER_MM:g}" height="8" '
+               'fill="none" stroke="#000" stroke-width="0.25"/>')
+    for mm in range(int(RULER_MM) + 1):
+        length = 4.0 if mm % 10 == 0 else 2.5 if mm % 5 == 0 else 1.5
+        out.append(f'<line class="ruler-tick" x1="{rx + mm:g}" y1="{ry + 8:g}" x2="{rx + mm:g}" '
+                   f'y2="{ry + 8 - length:g}" stroke="#000" stroke-width="0.12"/>')
+        if mm % 10 == 0:
+            out.append(f'<text x="{rx + mm:g}" y="{ry + 3:g}" text-anchor="middle" '
+                       f'class="small">{mm // 10}</text>')
+    out.append(f'<text x="{rx:g}" y="{ry + 12:g}" class="small">This box must measure exactly '
+               f'{RULER_MM:g} mm (10 cm). Print at 100 % / actual size, not "fit to page".</text>')
+    for i, line in enumerate(CAUTION):
+        out.append(f'<text x="{rx:g}" y="{ry + 15.5 + 3 * i:g}" class="small caution">'
+                   f'{line}</text>')

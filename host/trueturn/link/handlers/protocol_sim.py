@@ -91,10 +91,7 @@ class Serial(VirtualLineSerial):
     # --- pyserial plumbing ------------------------------------------------------------------
 
     def open(self) -> None:
-        if self.is_open:
-            raise SerialException("Port is already open.")
-        if self._port is None:
-            raise SerialException("Port must be configured before it can be used.")
+        self._check_can_open()
         name, options = self.from_url(self.port)
         try:
             scenario = load_scenario(name)

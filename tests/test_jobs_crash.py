@@ -1,10 +1,10 @@
 """A job file survives ``kill -9`` at any moment: never corrupt, never empty, never behind.
 
 Each round forks a child process (it inherits the imported modules, so a round costs
-milliseconds instead of an interpreter start-up) that resumes the job and saves it in a loop,
-reporting on a pipe how many runs each completed save holds. The parent sends SIGKILL after a
-random delay, then checks the file: it must parse and validate, and hold at least the runs of
-the last save the child reported. Rename-based atomic replacement is the POSIX guarantee this
+milliseconds instead of an interpreter start-up) that resumes the job and saves it in a loop.
+The child pauses inside every save (tests/kill_points.py) and the parent sends SIGKILL at a
+seeded point, then checks the file: it must parse and validate, and be exactly the file of the
+last save that finished its rename. Rename-based atomic replacement is the POSIX guarantee this
 relies on (POSIX.1-2017, rename(): "a link named new shall remain visible to other threads
 throughout the renaming operation and refer either to the file referred to by new or old").
 """
@@ -14,13 +14,12 @@ from __future__ import annotations
 import os
 import random
 import signal
-import struct
 import sys
-import time
 from pathlib import Path
 
 import pytest
 
+import kill_points
 from trueturn.jobs import (
     MachineProfile,
     PendingStep,
@@ -60,7 +59,7 @@ def make_run(index: int) -> Run:
                notes="x" * (200 * index))  # grows the file so writes take a little longer
 
 
-def child_loop(root: Path, job_id: str, report_fd: int) -> None:
+def child_loop(root: Path, job_id: str) -> None:
     ws = Workspace(root)
     job = ws.resume_job(job_id)
     tick = 0
@@ -70,32 +69,6 @@ def child_loop(root: Path, job_id: str, report_fd: int) -> None:
             ws.append_run(job, make_run(job.next_run_index))
         else:
             ws.record_pending(job, PendingStep(notes=f"waiting {tick}"))
-        os.write(report_fd, struct.pack("<I", len(job.runs)))
-
-
-def fork_child(root: Path, job_id: str) -> tuple[int, int]:
-    read_fd, write_fd = os.pipe()
-    pid = os.fork()
-    if pid == 0:  # child: never return into pytest
-        code = 0
-        try:
-            os.close(read_fd)
-            child_loop(root, job_id, write_fd)
-        except BaseException:  # noqa: BLE001 - report through the exit code only
-            code = 1
-        finally:
-            os._exit(code)
-    os.close(write_fd)
-    return pid, read_fd
-
-
-def reported_counts(read_fd: int) -> list[int]:
-    data = b""
-    while chunk := os.read(read_fd, 65536):
-        data += chunk
-    os.close(read_fd)
-    usable = len(data) - len(data) % 4
-    return [v for (v,) in struct.iter_unpack("<I", data[:usable])]
 
 
 def check_job_file(path: Path, at_least_runs: int) -> int:
@@ -109,23 +82,33 @@ def check_job_file(path: Path, at_least_runs: int) -> int:
 
 
 def test_sigkill_during_saves_never_corrupts_and_resume_continues(tmp_path: Path) -> None:
+    # Each child is killed at a seeded point inside a save (half written, before or after the
+    # rename; tests/kill_points.py), never after a random sleep: the same kills on an idle
+    # or a loaded machine.
     rng = random.Random(20261130)
     ws = Workspace(tmp_path)
     job = ws.new_job(lathe(), when="2026-11-30T12:00:00Z")
     path = ws.job_path(job.job_id)
+    committed = [path.read_bytes()]  # the file as the last finished save left it
+
+    def look(point: int) -> None:
+        if point == kill_points.AFTER_RENAME:
+            committed.append(path.read_bytes())
+
     runs_seen = 0
+    points_killed: set[int] = set()
     for _ in range(KILLS):
-        pid, read_fd = fork_child(tmp_path, job.job_id)
-        first = os.read(read_fd, 4)  # the child has resumed and completed one save
-        assert len(first) == 4, "child died before its first save"
-        time.sleep(rng.uniform(0.0, 0.05))
-        os.kill(pid, signal.SIGKILL)
-        _, status = os.waitpid(pid, 0)
-        assert os.WIFSIGNALED(status) and os.WTERMSIG(status) == signal.SIGKILL, \
-            "child stopped on its own (an exception in the save loop?)"
-        counts = [struct.unpack("<I", first)[0], *reported_counts(read_fd)]
-        assert counts == sorted(counts)
-        runs_seen = check_job_file(path, at_least_runs=max(counts[-1], runs_seen))
+        outcome = kill_points.run_child(lambda: child_loop(tmp_path, job.job_id),
+                                        kill_at=rng.randint(1, 15), on_point=look)
+        assert outcome.killed, "child stopped on its own (an exception in the save loop?)"
+        points_killed.add(outcome.killed_at)  # type: ignore[arg-type]
+        if outcome.killed_at in (kill_points.WRITE_HALF, kill_points.BEFORE_RENAME):
+            assert path.read_bytes() == committed[-1]  # never behind, never torn
+        else:  # killed just after the rename: the new file is in place
+            committed.append(path.read_bytes())
+        runs_seen = check_job_file(path, at_least_runs=runs_seen)
+    assert points_killed == {kill_points.WRITE_HALF, kill_points.BEFORE_RENAME,
+                             kill_points.AFTER_RENAME}
     assert runs_seen == MAX_RUNS
     # Leftover temp files from killed saves are never taken for jobs.
     assert [p.name for p in ws.jobs_dir.glob("*.yaml")] == [path.name]

@@ -17,15 +17,14 @@ from __future__ import annotations
 import math
 import os
 import random
-import signal
 import sys
-import time
 import xml.etree.ElementTree as ET
 from pathlib import Path
 
 import numpy as np
 import pytest
 
+import kill_points
 from trueturn.angles import amplitude_phase, phasor
 from trueturn.dsp.meter import LiveAnalyzer
 from trueturn.dsp.units import PickupProfile
@@ -184,7 +183,7 @@ def next_step(ws: Workspace, job: JobRecord, port) -> bool:  # noqa: ANN001
     return True
 
 
-def carry_on(root: Path, job_id: str, report_fd: int | None = None) -> None:
+def carry_on(root: Path, job_id: str) -> None:
     """Reopen the job, restore the rotor's parts, do steps until the job is closed."""
     ws = Workspace(root)
     job = ws.load_job(job_id)
@@ -192,12 +191,22 @@ def carry_on(root: Path, job_id: str, report_fd: int | None = None) -> None:
         return
     port = open_port(PORT)
     put_back_parts(job, port.rig)
+    advance = port.rig.advance_s
+
+    def advance_with_pause(seconds: float) -> None:  # a kill may land between signal blocks
+        kill_points.pause(kill_points.SIM_BLOCK)
+        advance(seconds)
+
+    port.rig.advance_s = advance_with_pause
     while next_step(ws, job, port):
-        if report_fd is not None:
-            os.write(report_fd, b".")
+        pass
 
 
 def test_job_through_the_virtual_rig_survives_kills_and_is_finished(tmp_path: Path) -> None:
+    # The kills land inside steps by construction: the child pauses before every block of
+    # simulated signal and inside every save (half written, before and after the rename), and
+    # the parent kills it at a seeded point of that sequence (tests/kill_points.py). The same
+    # seed gives the same kills on an idle or a loaded machine.
     rng = random.Random(7)
     port = open_port(PORT)
     ws = Workspace(tmp_path)
@@ -205,37 +214,30 @@ def test_job_through_the_virtual_rig_survives_kills_and_is_finished(tmp_path: Pa
     hidden = port.rig.scenario.rotor.unbalance_phasors(port.rig.scenario.as_found)
     port.close()
     path = ws.job_path(job.job_id)
-    kills = 0
+    kinds_killed: set[int] = set()
     states: list[tuple[int, bool, str]] = []
+    committed = [path.read_bytes()]  # the file as the last finished save left it
+
+    def look(point: int) -> None:
+        if point == kill_points.AFTER_RENAME:
+            committed.append(path.read_bytes())
+
     for _ in range(8):
-        read_fd, write_fd = os.pipe()
-        pid = os.fork()
-        if pid == 0:
-            code = 0
-            try:
-                os.close(read_fd)
-                carry_on(tmp_path, job.job_id, write_fd)
-            except BaseException:  # noqa: BLE001 - reported by the exit code
-                code = 1
-            finally:
-                os._exit(code)
-        os.close(write_fd)
-        # Let the child finish 0 or 1 steps, then kill it a random moment into the next one
-        # (a step simulates seconds of signal, so the kill lands inside it, not after it).
-        for _ in range(rng.randint(0, 1)):
-            os.read(read_fd, 1)
-        time.sleep(rng.uniform(0.0, 0.08))
-        os.kill(pid, signal.SIGKILL)
-        _, status = os.waitpid(pid, 0)
-        os.close(read_fd)
-        if os.WIFSIGNALED(status):
-            kills += 1
-        else:
-            assert os.WEXITSTATUS(status) == 0, "the procedure failed in the child"
+        outcome = kill_points.run_child(lambda: carry_on(tmp_path, job.job_id),
+                                        kill_at=rng.randint(1, 9), on_point=look)
+        assert outcome.killed or outcome.exit_code == 0, "the procedure failed in the child"
+        if not outcome.killed:
+            break
+        kinds_killed.add(outcome.killed_at)  # type: ignore[arg-type]
+        if outcome.killed_at in (kill_points.WRITE_HALF, kill_points.BEFORE_RENAME):
+            assert path.read_bytes() == committed[-1]  # a save cut short leaves the last one
+        committed.append(path.read_bytes())
         seen = read_document(path, "job")  # valid after every kill
         states.append((len(seen.runs), seen.pending is not None, seen.status))
     carry_on(tmp_path, job.job_id)  # whatever is left, without interruption
-    assert kills >= 4, states
+    assert len(states) >= 4, states
+    # Kills landed inside saves (both sides of the rename) and inside measurements.
+    assert kinds_killed >= {kill_points.WRITE_HALF, kill_points.SIM_BLOCK}, kinds_killed
     # The kills landed part-way through: the job was reopened from several different steps.
     assert len({s for s in states if s[0] > 0 and s[2] == "open"}) >= 2, states
 

@@ -186,6 +186,8 @@ def solve_amplitude_only(inp: BalanceInput) -> Solution:
         influence=None,
         as_found={n: complex(best_t[s] * abs(best_u)) for s, n in enumerate(names)},
         residual_now_gmm=[float(abs(best_u + mass_vector(now, inp.planes)[0]) * plane.radius_mm)],
+        residual_now_vector_gmm=[complex((best_u + mass_vector(now, inp.planes)[0])
+                                         * plane.radius_mm)],
         candidates=candidates,
         ambiguous=ambiguous,
     )

@@ -110,6 +110,8 @@ class Solution:
     influence: InfluenceModel | None = None
     as_found: dict[str, complex] = field(default_factory=dict)
     residual_now_gmm: list[float] | None = None
+    #: residual unbalance per plane as phasors (g·mm; angle of the heavy spot), None if unknown
+    residual_now_vector_gmm: list[complex] | None = None
     candidates: list[list[Correction]] = field(default_factory=list)
     ambiguous: bool = False
 
@@ -427,6 +429,8 @@ def solve_with_phase(inp: BalanceInput) -> Solution:
         influence=model,
         as_found={ch.key: complex(v) for ch, v in zip(model.channels, r0, strict=True)},
         residual_now_gmm=residual_unbalance_gmm(model, inp.runs[-1], planes, weights),
+        residual_now_vector_gmm=residual_unbalance_vectors_gmm(model, inp.runs[-1], planes,
+                                                               weights),
     )
 
 
@@ -434,6 +438,13 @@ def residual_unbalance_gmm(model: InfluenceModel, run: Run, planes: Sequence[Pla
                            channel_weights: np.ndarray | None = None) -> list[float]:
     """Residual unbalance per plane (g·mm) estimated from a run's measured 1x vectors through
     the influence coefficients: the least-squares correction still needed, times radius."""
+    return [abs(u) for u in residual_unbalance_vectors_gmm(model, run, planes, channel_weights)]
+
+
+def residual_unbalance_vectors_gmm(model: InfluenceModel, run: Run, planes: Sequence[Plane],
+                                   channel_weights: np.ndarray | None = None) -> list[complex]:
+    """Residual unbalance per plane as phasors (g·mm): minus the least-squares correction
+    still needed (grams at the plane's radius), times radius — the heavy spot's angle."""
     groups = sorted({c.speed_rpm for c in model.channels}, key=lambda v: -1 if v is None else v)
     g = _group_of(run.speed_rpm, groups)
     rows = [c for c, ch in enumerate(model.channels) if ch.speed_rpm == g]
@@ -441,7 +452,7 @@ def residual_unbalance_gmm(model: InfluenceModel, run: Run, planes: Sequence[Pla
     y = np.array([run.readings[model.channels[c].sensor].vector for c in rows])
     a = model.matrix[rows] * w[rows][:, None]
     d, *_ = np.linalg.lstsq(a, -y * w[rows], rcond=None)
-    return [float(abs(d[j]) * p.radius_mm) for j, p in enumerate(planes)]
+    return [complex(-d[j] * p.radius_mm) for j, p in enumerate(planes)]
 
 
 def trial_size_factor(before: dict[str, complex], after: dict[str, complex],

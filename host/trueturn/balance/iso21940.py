@@ -1,13 +1,23 @@
 """Balance tolerance after ISO 21940-11:2016 (rigid rotors), formerly ISO 1940-1.
 
 * Permissible specific unbalance (eccentricity): ``e_per = G / omega``; with G in mm/s and
-  omega in rad/s, ``e_per_um = 1000 * G / omega``.
+  omega in rad/s, ``e_per_um = 1000 * G / omega``; omega is the **maximum service speed**.
 * Permissible residual unbalance: ``U_per = e_per * m``; ``U_per_gmm = e_per_um * m_kg``.
-* Allocation to two tolerance planes (ISO 21940-11:2016, clause 7, "allocation of U_per to
-  tolerance planes", from memory — check against the standard): for a rotor whose centre of
-  mass lies between the planes, the lever rule ``U_per,A = U_per * L_B / L`` and
-  ``U_per,B = U_per * L_A / L``, each kept within 0.3...0.7 of ``U_per``. Overhung rotors
-  (centre of mass outside the planes) need the standard's other rules and are refused here.
+* Tolerance planes are the bearing planes (ISO 21940-11:2016, clause 4, "reference planes
+  for unbalance tolerances": "the reference planes for unbalance tolerances are taken to be
+  the bearing planes"; this sentence checked against a public excerpt, the clause number
+  from memory). Residual unbalances left in correction planes elsewhere are referred to the
+  bearing planes by rigid-rotor statics (:func:`refer_to_bearings`): the bearing reactions
+  to the rotating centrifugal forces, force and moment balance, for correction planes
+  inboard, outboard or overhung. A couple left in planes wider apart than the bearings
+  loads them by the ratio of the spans.
+* Allocation of ``U_per`` to the two bearing planes (ISO 21940-11:2016, clause 7,
+  "allocation of U_per to tolerance planes", from memory — check against the standard):
+  the lever rule ``U_per,A = U_per * L_B / L`` and ``U_per,B = U_per * L_A / L`` (L_A, L_B:
+  distances of the centre of mass from bearings A and B, L = L_A + L_B), each share kept
+  within 0.3...0.7 of ``U_per``. Centre of mass not given: midway, half each. Centre of
+  mass outside the bearings: the 0.3/0.7 limits (from memory the standard treats such
+  rotors separately; the verdict carries :attr:`VerdictFlag.CG_OUTSIDE_BEARINGS`).
 """
 
 from __future__ import annotations
@@ -15,7 +25,9 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
+from enum import Enum
 
+from trueturn.angles import amplitude_phase
 from trueturn.errors import UserError
 
 #: lower and upper share of U_per per plane for the lever-rule allocation (clause 7, from memory)
@@ -97,13 +109,58 @@ def allocate_two_planes(u_per_gmm: float, plane_distance_mm: float | None = None
     return u_per_gmm * share_first, u_per_gmm * share_second
 
 
+class TolerancePlanes(str, Enum):
+    """Where residual unbalance was compared with its permissible share."""
+
+    BEARINGS = "bearings"                    # ISO 21940-11 reference planes (clause 4)
+    CORRECTION_PLANES = "correction planes"  # bearing positions unknown: planes as given
+
+
+class PlaneArrangement(str, Enum):
+    """Correction planes relative to the two bearings."""
+
+    INBOARD = "inboard"      # every correction plane between the bearings (or on one)
+    OUTBOARD = "outboard"    # planes outside the bearings, on both sides
+    OVERHUNG = "overhung"    # planes outside the bearings, all on one side
+    MIXED = "mixed"          # some planes between the bearings, some outside
+
+
+class VerdictFlag(str, Enum):
+    """Facts about a verdict that the person must be told (put into words by ui/cli)."""
+
+    #: bearing positions unknown: residuals compared in the correction planes themselves
+    NOT_AT_BEARINGS = "not_at_bearings"
+    #: residual angles unknown: the bearing loads are the worst case (magnitudes added)
+    WORST_CASE_PHASING = "worst_case_phasing"
+    #: centre of mass outside the bearings: shares limited to 0.3/0.7 (see module notes)
+    CG_OUTSIDE_BEARINGS = "cg_outside_bearings"
+    #: centre of mass not given: taken midway between the bearings (half each)
+    CG_ASSUMED_MIDWAY = "cg_assumed_midway"
+    #: no maximum service speed given: the grade was judged at the last run's speed
+    SPEED_FROM_LAST_RUN = "speed_from_last_run"
+    #: the answer is ambiguous (amplitude-only): no PASS can be given
+    AMBIGUOUS = "ambiguous"
+
+
 @dataclass(frozen=True)
 class Verdict:
-    """Pass/fail of residual unbalances (g·mm per plane) against their permissible values."""
+    """Pass/fail of residual unbalances (g·mm per tolerance plane) against their shares.
+
+    ``labels`` names the tolerance planes (bearing or correction plane names, or empty);
+    ``residual_angle_deg`` is None per plane where only a magnitude is known;
+    ``speed_rpm`` is the speed the grade was judged at (None: not stated to the engine).
+    """
 
     passed: bool
     residual_gmm: tuple[float, ...]
     permissible_gmm: tuple[float, ...]
+    labels: tuple[str, ...] = ()
+    tolerance_planes: TolerancePlanes = TolerancePlanes.CORRECTION_PLANES
+    residual_angle_deg: tuple[float | None, ...] = ()
+    arrangement: PlaneArrangement | None = None
+    u_per_gmm: float | None = None
+    speed_rpm: float | None = None
+    flags: tuple[VerdictFlag, ...] = ()
 
     @property
     def worst_ratio(self) -> float:
@@ -115,7 +172,152 @@ def verdict(residual_gmm: Sequence[float], permissible_gmm: Sequence[float]) -> 
     if len(residual_gmm) != len(permissible_gmm):
         raise ValueError("one permissible value per plane")
     ok = all(r <= p for r, p in zip(residual_gmm, permissible_gmm, strict=True))
-    return Verdict(ok, tuple(residual_gmm), tuple(permissible_gmm))
+    return Verdict(ok, tuple(residual_gmm), tuple(permissible_gmm),
+                   flags=(VerdictFlag.NOT_AT_BEARINGS,))
+
+
+def _bearing_span(bearing_axial_mm: Sequence[float]) -> tuple[float, float, float]:
+    if len(bearing_axial_mm) != 2:
+        raise UserError(f"two bearing positions are needed, got {len(bearing_axial_mm)}")
+    z_a, z_b = (float(z) for z in bearing_axial_mm)
+    if not (math.isfinite(z_a) and math.isfinite(z_b)):
+        raise UserError("bearing positions must be finite numbers (mm)")
+    span = z_b - z_a
+    if abs(span) < 1e-9:
+        raise UserError("the two bearings must be at different axial positions")
+    return z_a, z_b, span
+
+
+def bearing_lever_arms(plane_axial_mm: Sequence[float], bearing_axial_mm: Sequence[float]
+                       ) -> tuple[tuple[float, ...], tuple[float, ...]]:
+    """Share of a plane's unbalance carried by bearing A and by bearing B (rigid rotor).
+
+    For an unbalance U at axial position z and bearings at z_A, z_B (L = z_B - z_A), force and
+    moment balance of the rotating centrifugal forces (all scale with omega^2, so unbalance
+    units carry through) give the bearing reactions
+
+        R_A = U (z_B - z) / L,   R_B = U (z - z_A) / L.
+
+    Both arms lie in 0...1 for a plane between the bearings; outside, one exceeds 1 and the
+    other is negative (the far bearing is pulled the other way). Rigid-body statics.
+    """
+    z_a, z_b, span = _bearing_span(bearing_axial_mm)
+    zs = [float(z) for z in plane_axial_mm]
+    if not all(math.isfinite(z) for z in zs):
+        raise UserError("plane positions must be finite numbers (mm)")
+    return (tuple((z_b - z) / span for z in zs), tuple((z - z_a) / span for z in zs))
+
+
+def refer_to_bearings(residual_gmm: Sequence[complex], plane_axial_mm: Sequence[float],
+                      bearing_axial_mm: Sequence[float]) -> tuple[complex, complex]:
+    """Residual unbalance vectors (g·mm, complex) in the correction planes referred to the
+    two bearing planes: ``(U_A, U_B)`` with ``U_A + U_B = sum U_j`` (force balance) and
+    ``z_A U_A + z_B U_B = sum z_j U_j`` (moment balance). Rigid-body statics.
+
+    Parameters
+    ----------
+    residual_gmm : residual unbalance per correction plane, magnitude and angle as a phasor
+    plane_axial_mm : axial position of each correction plane, mm (any common origin)
+    bearing_axial_mm : axial positions of bearing A and bearing B, mm (same origin)
+    """
+    if len(residual_gmm) != len(plane_axial_mm):
+        raise UserError("one axial position per correction plane is needed")
+    arm_a, arm_b = bearing_lever_arms(plane_axial_mm, bearing_axial_mm)
+    u = [complex(x) for x in residual_gmm]
+    return (sum((a * x for a, x in zip(arm_a, u, strict=True)), 0j),
+            sum((b * x for b, x in zip(arm_b, u, strict=True)), 0j))
+
+
+def worst_case_at_bearings(residual_gmm: Sequence[float], plane_axial_mm: Sequence[float],
+                           bearing_axial_mm: Sequence[float]) -> tuple[float, float]:
+    """Bearing-plane residuals when only magnitudes are known: every plane's share in phase
+    (``sum |arm_j| |U_j|``), the largest value the unknown angles could give (triangle
+    inequality on :func:`refer_to_bearings`)."""
+    if len(residual_gmm) != len(plane_axial_mm):
+        raise UserError("one axial position per correction plane is needed")
+    arm_a, arm_b = bearing_lever_arms(plane_axial_mm, bearing_axial_mm)
+    mags = [abs(float(x)) for x in residual_gmm]
+    return (sum(abs(a) * m for a, m in zip(arm_a, mags, strict=True)),
+            sum(abs(b) * m for b, m in zip(arm_b, mags, strict=True)))
+
+
+def plane_arrangement(plane_axial_mm: Sequence[float], bearing_axial_mm: Sequence[float]
+                      ) -> PlaneArrangement:
+    """Inboard, outboard, overhung or mixed: where the correction planes are."""
+    z_a, z_b, _ = _bearing_span(bearing_axial_mm)
+    low, high = min(z_a, z_b), max(z_a, z_b)
+    tol = 1e-9 * max(1.0, abs(high - low))
+    inside = [low - tol <= z <= high + tol for z in plane_axial_mm]
+    if all(inside):
+        return PlaneArrangement.INBOARD
+    if any(inside):
+        return PlaneArrangement.MIXED
+    if all(z < low for z in plane_axial_mm) or all(z > high for z in plane_axial_mm):
+        return PlaneArrangement.OVERHUNG
+    return PlaneArrangement.OUTBOARD
+
+
+def allocate_to_bearings(u_per_gmm: float, bearing_axial_mm: Sequence[float],
+                         cg_axial_mm: float | None = None
+                         ) -> tuple[tuple[float, float], tuple[VerdictFlag, ...]]:
+    """U_per shared between bearing A and bearing B by the lever rule, each share within
+    0.3...0.7 of U_per (ISO 21940-11:2016 clause 7, from memory).
+
+    Returns the two shares and the flags that apply (centre of mass assumed midway, or
+    outside the bearings).
+    """
+    z_a, z_b, span = _bearing_span(bearing_axial_mm)
+    if cg_axial_mm is None:
+        return (u_per_gmm / 2.0, u_per_gmm / 2.0), (VerdictFlag.CG_ASSUMED_MIDWAY,)
+    if not math.isfinite(cg_axial_mm):
+        raise UserError("the centre-of-mass position must be a finite number (mm)")
+    share_a = (z_b - cg_axial_mm) / span   # L_B / L
+    share_b = (cg_axial_mm - z_a) / span   # L_A / L
+    flags: tuple[VerdictFlag, ...] = ()
+    if share_a < 0 or share_b < 0:
+        flags = (VerdictFlag.CG_OUTSIDE_BEARINGS,)
+    share_a = min(max(share_a, MIN_SHARE), MAX_SHARE)
+    share_b = min(max(share_b, MIN_SHARE), MAX_SHARE)
+    return (u_per_gmm * share_a, u_per_gmm * share_b), flags
+
+
+def bearing_verdict(residual_gmm: Sequence[complex | float], plane_axial_mm: Sequence[float],
+                    bearing_axial_mm: Sequence[float], u_per_gmm: float,
+                    cg_axial_mm: float | None = None, *, angles_known: bool = True,
+                    bearing_names: Sequence[str] = ("bearing A", "bearing B"),
+                    speed_rpm: float | None = None) -> Verdict:
+    """ISO 21940-11 verdict at the bearing planes.
+
+    The correction-plane residuals (phasors, g·mm) are referred to the bearings by
+    :func:`refer_to_bearings` (or :func:`worst_case_at_bearings` when ``angles_known`` is
+    False and only magnitudes are given) and compared with the lever-rule shares of
+    ``u_per_gmm`` (:func:`allocate_to_bearings`). Pass when both bearings are within.
+
+    References
+    ----------
+    ISO 21940-11:2016, clause 4 (bearing planes as tolerance planes) and clause 7
+    (allocation to tolerance planes, from memory); rigid-body statics for the referral.
+    """
+    if not 0 < u_per_gmm < math.inf:
+        raise UserError("permissible unbalance must be greater than 0")
+    flags: list[VerdictFlag] = []
+    if angles_known:
+        at = refer_to_bearings([complex(x) for x in residual_gmm], plane_axial_mm,
+                               bearing_axial_mm)
+        mags = (abs(at[0]), abs(at[1]))
+        angles: tuple[float | None, ...] = tuple(amplitude_phase(x)[1] for x in at)
+    else:
+        mags = worst_case_at_bearings([abs(complex(x)) for x in residual_gmm], plane_axial_mm,
+                                      bearing_axial_mm)
+        angles = (None, None)
+        flags.append(VerdictFlag.WORST_CASE_PHASING)
+    shares, share_flags = allocate_to_bearings(u_per_gmm, bearing_axial_mm, cg_axial_mm)
+    flags += share_flags
+    ok = all(r <= p for r, p in zip(mags, shares, strict=True))
+    return Verdict(ok, tuple(float(m) for m in mags), tuple(shares), tuple(bearing_names),
+                   TolerancePlanes.BEARINGS, angles,
+                   plane_arrangement(plane_axial_mm, bearing_axial_mm), u_per_gmm, speed_rpm,
+                   tuple(flags))
 
 
 def per_plane_permissible(u_per_gmm: float, n_planes: int, plane_distance_mm: float | None = None,

@@ -23,6 +23,15 @@ class Plane:
     name: str
     radius_mm: float
     max_mass_g: float | None = None
+    axial_mm: float | None = None
+
+
+@dataclass(frozen=True)
+class Bearing:
+    """A bearing (support) of the rotor at ``axial_mm`` (same origin as the planes')."""
+
+    name: str
+    axial_mm: float
 
 
 @dataclass(frozen=True)
@@ -99,6 +108,7 @@ class Tolerance:
     speed_rpm: float
     cg_from_first_plane_mm: float | None = None
     plane_distance_mm: float | None = None
+    cg_axial_mm: float | None = None
 
 
 @dataclass(frozen=True)
@@ -110,6 +120,7 @@ class BalanceInput:
     runs: tuple[Run, ...]
     influence: tuple[SavedCoefficient, ...] = field(default_factory=tuple)
     tolerance: Tolerance | None = None
+    bearings: tuple[Bearing, ...] = ()
 
     @property
     def has_phase(self) -> bool:
@@ -198,7 +209,9 @@ def parse_readings(doc: Any, source: str = "READINGS") -> BalanceInput:
         radius = _number(_require(item, "radius_mm", at), f"{at}.radius_mm", positive=True)
         max_mass = item.get("max_mass_g")
         limit = None if max_mass is None else _number(max_mass, f"{at}.max_mass_g", positive=True)
-        planes.append(Plane(name, radius, limit))
+        axial = item.get("axial_mm")
+        axial_mm = None if axial is None else _number(axial, f"{at}.axial_mm")
+        planes.append(Plane(name, radius, limit, axial_mm))
     if not planes:
         raise UserError(f"{source}: planes: at least one correction plane is needed")
 
@@ -275,6 +288,27 @@ def parse_readings(doc: Any, source: str = "READINGS") -> BalanceInput:
         speed_rpm = None if speed is None else _number(speed, f"{at}.speed_rpm", positive=True)
         saved.append(SavedCoefficient(sensor, plane, amp, phase, speed_rpm))
 
+    bearings: list[Bearing] = []
+    if doc.get("bearings") is not None:
+        items = _list(doc["bearings"], f"{source}: bearings")
+        if len(items) != 2:
+            raise UserError(f"{source}: bearings: exactly two bearings are needed, got {len(items)}")
+        for i, item in enumerate(items):
+            at = f"{source}: bearings[{i}]"
+            item = _mapping(item, at)
+            name = _name(item.get("name", "AB"[i]), f"{at}.name")
+            bearings.append(Bearing(name, _number(_require(item, "axial_mm", at), f"{at}.axial_mm")))
+        if bearings[0].axial_mm == bearings[1].axial_mm:
+            raise UserError(f"{source}: bearings: the two bearings must be at different axial_mm")
+        if bearings[0].name == bearings[1].name:
+            raise UserError(f"{source}: bearings[1].name: bearing '{bearings[1].name}' given twice")
+        for i, plane in enumerate(planes):
+            if plane.axial_mm is None:
+                raise UserError(f"{source}: planes[{i}]: missing field 'axial_mm' (needed with "
+                                "bearings, to refer residuals to the bearing planes)")
+        if len(planes) > 1 and len({p.axial_mm for p in planes}) < len(planes):
+            raise UserError(f"{source}: planes: two planes at the same axial_mm")
+
     tolerance = None
     if doc.get("tolerance") is not None:
         at = f"{source}: tolerance"
@@ -285,6 +319,7 @@ def parse_readings(doc: Any, source: str = "READINGS") -> BalanceInput:
             raise UserError(f"{at}: missing field 'speed_rpm' (no run gives speed_rpm either)")
         cg = t.get("cg_from_first_plane_mm")
         dist = t.get("plane_distance_mm")
+        cg_axial = t.get("cg_axial_mm")
         tolerance = Tolerance(
             rotor_mass_kg=_number(_require(t, "rotor_mass_kg", at), f"{at}.rotor_mass_kg",
                                   positive=True),
@@ -293,5 +328,7 @@ def parse_readings(doc: Any, source: str = "READINGS") -> BalanceInput:
             cg_from_first_plane_mm=None if cg is None else _number(cg, f"{at}.cg_from_first_plane_mm"),
             plane_distance_mm=None if dist is None else _number(dist, f"{at}.plane_distance_mm",
                                                                  positive=True),
+            cg_axial_mm=None if cg_axial is None else _number(cg_axial, f"{at}.cg_axial_mm"),
         )
-    return BalanceInput(tuple(planes), tuple(sensors), tuple(runs), tuple(saved), tolerance)
+    return BalanceInput(tuple(planes), tuple(sensors), tuple(runs), tuple(saved), tolerance,
+                        tuple(bearings))

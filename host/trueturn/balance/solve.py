@@ -1,5 +1,10 @@
 """One entry point for `solve`: phase readings -> influence coefficients; amplitudes only ->
-the amplitude-only method; optional ISO 21940-11 verdict on the last run."""
+the amplitude-only method; optional ISO 21940-11 verdict on the last run.
+
+The verdict is judged at the bearing planes when the READINGS give the bearings and the
+planes' axial positions (ISO 21940-11:2016 clause 4, bearing planes as tolerance planes;
+residual phasors referred by rigid-rotor statics, :func:`iso21940.bearing_verdict`);
+otherwise in the correction planes, flagged :attr:`VerdictFlag.NOT_AT_BEARINGS`."""
 
 from __future__ import annotations
 
@@ -9,6 +14,7 @@ from trueturn.balance.amplitude_only import solve_amplitude_only
 from trueturn.balance.influence import Solution, solve_with_phase
 from trueturn.balance.iso21940 import (
     Verdict,
+    bearing_verdict,
     per_plane_permissible,
     permissible_unbalance_gmm,
     verdict,
@@ -37,9 +43,26 @@ def solve(inp: BalanceInput) -> SolveReport:
                                              second.vector_g * second.radius_mm)
     tol = inp.tolerance
     if tol is not None and solution.residual_now_gmm is not None:
-        u_per = permissible_unbalance_gmm(tol.grade_mm_s, tol.speed_rpm, tol.rotor_mass_kg)
-        shares = per_plane_permissible(u_per, len(inp.planes), tol.plane_distance_mm,
-                                       tol.cg_from_first_plane_mm)
-        report.u_per_gmm = u_per
-        report.verdict = verdict(solution.residual_now_gmm, shares)
+        report.u_per_gmm = permissible_unbalance_gmm(tol.grade_mm_s, tol.speed_rpm,
+                                                     tol.rotor_mass_kg)
+        report.verdict = tolerance_verdict(inp, solution, report.u_per_gmm)
     return report
+
+
+def tolerance_verdict(inp: BalanceInput, solution: Solution, u_per_gmm: float) -> Verdict:
+    """ISO 21940-11 verdict on the residual of the last run: at the bearings when known."""
+    tol = inp.tolerance
+    assert tol is not None and solution.residual_now_gmm is not None
+    if inp.bearings and solution.residual_now_vector_gmm is not None:
+        planes_mm = [p.axial_mm for p in inp.planes]
+        assert all(z is not None for z in planes_mm)  # parse_readings requires them
+        return bearing_verdict(solution.residual_now_vector_gmm, planes_mm,  # type: ignore[arg-type]
+                               [b.axial_mm for b in inp.bearings], u_per_gmm, tol.cg_axial_mm,
+                               bearing_names=[b.name for b in inp.bearings],
+                               speed_rpm=tol.speed_rpm)
+    shares = per_plane_permissible(u_per_gmm, len(inp.planes), tol.plane_distance_mm,
+                                   tol.cg_from_first_plane_mm)
+    v = verdict(solution.residual_now_gmm, shares)
+    return Verdict(v.passed, v.residual_gmm, v.permissible_gmm,
+                   tuple(p.name for p in inp.planes), u_per_gmm=u_per_gmm,
+                   speed_rpm=tol.speed_rpm, flags=v.flags)

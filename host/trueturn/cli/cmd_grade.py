@@ -3,10 +3,16 @@
 from __future__ import annotations
 
 import argparse
+import math
 from typing import Any
 
+from trueturn.angles import phasor
 from trueturn.balance.iso21940 import (
     GRADES,
+    Grade,
+    Verdict,
+    allocate_to_bearings,
+    bearing_verdict,
     per_plane_permissible,
     permissible_eccentricity_um,
     permissible_unbalance_gmm,
@@ -28,11 +34,28 @@ def parse_grade(text: str) -> float:
     return value
 
 
+def parse_residual(text: str) -> tuple[float, float | None]:
+    """'37' -> (37, None); '37@180' -> (37, 180): g·mm, optionally at an angle in degrees."""
+    mag_text, sep, angle_text = text.partition("@")
+    try:
+        mag = float(mag_text)
+        angle = float(angle_text) if sep else None
+    except ValueError:
+        raise argparse.ArgumentTypeError(
+            f"not a residual: {text!r} (g·mm, or g·mm@angle_deg such as 37@180)") from None
+    if not 0 <= mag < math.inf or (angle is not None and not -360 <= angle <= 360):
+        raise argparse.ArgumentTypeError(
+            f"residual must be >= 0 g·mm with an angle within -360..360°, got {text!r}")
+    return mag, angle
+
+
 def add_parser(sub: argparse._SubParsersAction) -> None:
     parser = sub.add_parser(
         "grade", help="ISO 21940-11 permissible residual unbalance",
         description="Permissible residual unbalance for a rigid rotor after ISO 21940-11:2016 "
-                    "(e_per = G/omega, U_per = e_per*m), shared between the correction planes.")
+                    "(e_per = G/omega, U_per = e_per*m at the maximum service speed), judged at "
+                    "the bearing planes when their positions are given (residuals referred by "
+                    "rigid-rotor statics), otherwise shared between the correction planes.")
     parser.add_argument("--rotor-mass-kg", type=float, help="mass of the rotor, kg")
     parser.add_argument("--speed-rpm", type=float, help="maximum service speed, rpm")
     parser.add_argument("--grade", type=parse_grade, help="balance quality grade G, mm/s (e.g. 6.3)")
@@ -42,8 +65,17 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                         help="distance between the two correction planes, mm")
     parser.add_argument("--cg-from-first-plane-mm", type=float,
                         help="distance of the centre of mass from the first plane, mm")
-    parser.add_argument("--residual-gmm", type=float, nargs="+", metavar="U",
-                        help="measured residual unbalance per plane, g·mm, for a pass/fail verdict")
+    parser.add_argument("--residual-gmm", type=parse_residual, nargs="+", metavar="U[@DEG]",
+                        help="residual unbalance per correction plane, g·mm, optionally at an "
+                             "angle (37@180), for a pass/fail verdict")
+    parser.add_argument("--plane-axial-mm", type=float, nargs="+", metavar="Z",
+                        help="axial position of each correction plane, mm (with --bearing-axial-mm)")
+    parser.add_argument("--bearing-axial-mm", type=float, nargs=2, metavar=("ZA", "ZB"),
+                        help="axial positions of the two bearings, mm (same origin): the verdict "
+                             "is then judged at the bearing planes (ISO 21940-11)")
+    parser.add_argument("--cg-axial-mm", type=float,
+                        help="axial position of the rotor's centre of mass, mm (default: "
+                             "midway between the bearings)")
     parser.add_argument("--list", action="store_true", help="print the grade table and exit")
     parser.add_argument("--json", action="store_true", help="machine-readable output")
     parser.set_defaults(run=run)
@@ -65,33 +97,126 @@ def run(args: argparse.Namespace) -> int:
             raise UserError(f"{flag} must be greater than 0, got {value:g}")
     e_um = permissible_eccentricity_um(args.grade, args.speed_rpm)
     u_gmm = permissible_unbalance_gmm(args.grade, args.speed_rpm, args.rotor_mass_kg)
+    if args.bearing_axial_mm is not None:
+        return _run_bearings(args, e_um, u_gmm)
+    for flag in ("plane_axial_mm", "cg_axial_mm"):
+        if getattr(args, flag) is not None:
+            raise UserError(f"--{flag.replace('_', '-')} needs --bearing-axial-mm")
     shares = per_plane_permissible(u_gmm, args.planes, args.plane_distance_mm,
                                    args.cg_from_first_plane_mm)
     out: dict[str, Any] = {"e_per_um": round(e_um, 6), "U_per_gmm": round(u_gmm, 6),
+                           "tolerance_planes": "correction planes",
                            "per_plane_gmm": [round(x, 6) for x in shares]}
-    standard = next((g for g in GRADES if abs(g.grade_mm_s - args.grade) < 1e-9), None)
+    standard = _standard(args.grade)
     out["grade_examples"] = standard.examples if standard else None
     if args.residual_gmm is not None:
         if len(args.residual_gmm) != args.planes:
             raise UserError(f"--residual-gmm needs {args.planes} value(s), one per plane")
-        if any(not 0 <= r < float("inf") for r in args.residual_gmm):
-            raise UserError("--residual-gmm values must not be negative")
-        v = verdict(args.residual_gmm, shares)
+        v = verdict([m for m, _ in args.residual_gmm], shares)
         out["pass"] = v.passed
+        out["flags"] = [f.value for f in v.flags]
     if args.json:
         print_json(out)
         return 0
-    print(f"grade G {args.grade:g} at {args.speed_rpm:g} rpm, rotor {args.rotor_mass_kg:g} kg "
-          "(ISO 21940-11:2016)")
+    _header(args, e_um, u_gmm, standard)
+    print("tolerance planes: the correction planes (give --bearing-axial-mm and "
+          "--plane-axial-mm to judge at the bearings, as ISO 21940-11 does)")
+    for i, share in enumerate(shares):
+        print(f"  plane {i + 1}: {share:.4g} g·mm")
+    if args.residual_gmm is not None:
+        print("verdict: " + ("PASS" if out["pass"] else "not within tolerance"))
+    print("The machine's manufacturer or your contract may require a different grade.")
+    return 0
+
+
+def _standard(grade_mm_s: float) -> Grade | None:
+    return next((g for g in GRADES if abs(g.grade_mm_s - grade_mm_s) < 1e-9), None)
+
+
+def _header(args: argparse.Namespace, e_um: float, u_gmm: float, standard: Grade | None) -> None:
+    print(f"grade G {args.grade:g} at {args.speed_rpm:g} rpm (maximum service speed), rotor "
+          f"{args.rotor_mass_kg:g} kg (ISO 21940-11:2016)")
     if standard is None:
         print("note: not one of the standard grades G 0.4 ... G 4000")
     else:
         print(f"typical rotors: {standard.examples}")
     print(f"permissible specific unbalance e_per: {e_um:.4g} µm")
     print(f"permissible residual unbalance U_per: {u_gmm:.4g} g·mm")
-    for i, share in enumerate(shares):
-        print(f"  plane {i + 1}: {share:.4g} g·mm")
+
+
+FLAG_TEXT = {
+    "worst_case_phasing": "residual angles not given: bearing loads are the worst case "
+                          "(every plane's share in phase); give U@angle for the actual value",
+    "cg_outside_bearings": "centre of mass outside the bearings: shares limited to 0.3/0.7 of "
+                           "U_per; check the standard's rules for such rotors",
+    "cg_assumed_midway": "centre of mass not given: taken midway between the bearings",
+}
+
+
+def _run_bearings(args: argparse.Namespace, e_um: float, u_gmm: float) -> int:
+    """Verdict at the bearing planes: residuals referred by rigid-rotor statics."""
+    if args.plane_distance_mm is not None or args.cg_from_first_plane_mm is not None:
+        raise UserError("with --bearing-axial-mm give --cg-axial-mm (and --plane-axial-mm), "
+                        "not --plane-distance-mm / --cg-from-first-plane-mm")
+    z_a, z_b = args.bearing_axial_mm
+    if not (math.isfinite(z_a) and math.isfinite(z_b)) or z_a == z_b:
+        raise UserError("--bearing-axial-mm: two different, finite positions are needed")
+    if args.cg_axial_mm is not None and not math.isfinite(args.cg_axial_mm):
+        raise UserError("--cg-axial-mm must be a finite number")
+    out: dict[str, Any] = {"e_per_um": round(e_um, 6), "U_per_gmm": round(u_gmm, 6),
+                           "tolerance_planes": "bearings",
+                           "bearing_axial_mm": [z_a, z_b], "cg_axial_mm": args.cg_axial_mm}
+    standard = _standard(args.grade)
+    out["grade_examples"] = standard.examples if standard else None
+    v: Verdict | None = None
     if args.residual_gmm is not None:
-        print("verdict: " + ("PASS" if out["pass"] else "not within tolerance"))
+        planes = args.plane_axial_mm
+        if planes is None:
+            raise UserError("--residual-gmm with --bearing-axial-mm needs --plane-axial-mm, "
+                            "one position per residual")
+        if len(planes) != len(args.residual_gmm):
+            raise UserError(f"--plane-axial-mm needs {len(args.residual_gmm)} value(s), one "
+                            "per --residual-gmm")
+        if not all(math.isfinite(z) for z in planes):
+            raise UserError("--plane-axial-mm values must be finite numbers")
+        angles = [a for _, a in args.residual_gmm]
+        known = all(a is not None for a in angles)
+        if not known and any(a is not None for a in angles):
+            raise UserError("--residual-gmm: give an angle for every plane (U@deg) or for none")
+        vectors = [phasor(m, a or 0.0) for m, a in args.residual_gmm]
+        v = bearing_verdict(vectors, planes, (z_a, z_b), u_gmm, args.cg_axial_mm,
+                            angles_known=known, speed_rpm=args.speed_rpm)
+        out["plane_axial_mm"] = list(planes)
+        out["plane_arrangement"] = v.arrangement.value if v.arrangement else None
+        out["per_bearing_gmm"] = [round(x, 6) for x in v.residual_gmm]
+        out["per_bearing_angle_deg"] = [None if a is None else round(a, 2)
+                                        for a in v.residual_angle_deg]
+        shares = v.permissible_gmm
+        flags = [f.value for f in v.flags]
+    else:
+        shares, share_flags = allocate_to_bearings(u_gmm, (z_a, z_b), args.cg_axial_mm)
+        flags = [f.value for f in share_flags]
+    out["per_bearing_permissible_gmm"] = [round(x, 6) for x in shares]
+    out["per_plane_gmm"] = out["per_bearing_permissible_gmm"]  # per tolerance plane
+    out["flags"] = flags
+    if v is not None:
+        out["pass"] = v.passed
+    if args.json:
+        print_json(out)
+        return 0
+    _header(args, e_um, u_gmm, standard)
+    print(f"tolerance planes: the bearings at {z_a:g} and {z_b:g} mm (ISO 21940-11:2016, "
+          "clause 4; allocation by the lever rule, clause 7)")
+    for i, (name, share) in enumerate(zip(("A", "B"), shares, strict=True)):
+        line = f"  bearing {name}: permitted {share:.4g} g·mm"
+        if v is not None:
+            line += f", residual referred here {v.residual_gmm[i]:.4g} g·mm"
+        print(line)
+    if v is not None and v.arrangement is not None:
+        print(f"correction planes: {v.arrangement.value}")
+    for f in flags:
+        print(f"note: {FLAG_TEXT.get(f, f)}")
+    if v is not None:
+        print("verdict: " + ("PASS" if v.passed else "not within tolerance"))
     print("The machine's manufacturer or your contract may require a different grade.")
     return 0

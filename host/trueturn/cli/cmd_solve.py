@@ -12,6 +12,7 @@ import yaml
 from trueturn.angles import amplitude_phase
 from trueturn.balance import parse_readings, solve
 from trueturn.balance.influence import Correction
+from trueturn.balance.iso21940 import TolerancePlanes, VerdictFlag
 from trueturn.balance.solve import SolveReport
 from trueturn.cli.common import print_json
 from trueturn.errors import UserError
@@ -88,14 +89,67 @@ def report_json(report: SolveReport, has_phase: bool) -> dict[str, Any]:
         out["static_couple"] = {"static_gmm": _r(sc.static_gmm), "static_angle_deg": _r(sc.static_angle_deg, 2),
                                 "couple_gmm": _r(sc.couple_gmm), "couple_angle_deg": _r(sc.couple_angle_deg, 2)}
     if report.verdict is not None:
-        v = report.verdict
-        out["tolerance"] = {"U_per_gmm": _r(report.u_per_gmm), "per_plane_gmm": [_r(x) for x in v.permissible_gmm],
-                            "residual_now_gmm": [_r(x) for x in v.residual_gmm], "pass": v.passed}
+        out["tolerance"] = verdict_json(report)
     if s.influence is not None:
         out["influence"] = [{"sensor": c.sensor, "plane": c.plane, "amp_per_g": _r(c.amp_per_g, 8),
                              "phase_deg": _r(c.phase_deg, 3), "speed_rpm": c.speed_rpm}
                             for c in s.influence.as_saved()]
     return out
+
+
+def verdict_json(report: SolveReport) -> dict[str, Any]:
+    """The ``tolerance`` object: values per tolerance plane (the bearings when known)."""
+    v = report.verdict
+    assert v is not None
+    out: dict[str, Any] = {
+        "U_per_gmm": _r(report.u_per_gmm), "speed_rpm": v.speed_rpm,
+        "tolerance_planes": v.tolerance_planes.value, "labels": list(v.labels),
+        "per_plane_gmm": [_r(x) for x in v.permissible_gmm],
+        "residual_now_gmm": [_r(x) for x in v.residual_gmm], "pass": v.passed,
+        "flags": [f.value for f in v.flags]}
+    if v.tolerance_planes is TolerancePlanes.BEARINGS:
+        out["per_bearing_gmm"] = out["residual_now_gmm"]
+        out["per_bearing_angle_deg"] = [None if a is None else _r(a, 2) for a in v.residual_angle_deg]
+        out["per_bearing_permissible_gmm"] = out["per_plane_gmm"]
+        out["plane_arrangement"] = v.arrangement.value if v.arrangement else None
+    s = report.solution
+    if s.residual_now_gmm is not None:
+        out["residual_in_correction_planes_gmm"] = [_r(x) for x in s.residual_now_gmm]
+    return out
+
+
+#: the verdict's flags in words (the one place they are put into words for the CLI)
+VERDICT_FLAG_TEXT = {
+    VerdictFlag.NOT_AT_BEARINGS: "judged in the correction planes: give `bearings` and each "
+                                 "plane's `axial_mm` to judge at the bearings (ISO 21940-11)",
+    VerdictFlag.WORST_CASE_PHASING: "residual angles unknown: bearing loads are the worst case",
+    VerdictFlag.CG_OUTSIDE_BEARINGS: "centre of mass outside the bearings: shares limited to "
+                                     "0.3/0.7 of U_per; check the standard's rules for such rotors",
+    VerdictFlag.CG_ASSUMED_MIDWAY: "centre of mass not given (tolerance.cg_axial_mm): taken "
+                                   "midway between the bearings",
+    VerdictFlag.SPEED_FROM_LAST_RUN: "no maximum service speed given (tolerance.speed_rpm): "
+                                     "judged at the last run's speed",
+    VerdictFlag.AMBIGUOUS: "the answer is ambiguous: no pass can be given",
+}
+
+
+def verdict_text(report: SolveReport) -> list[str]:
+    """The verdict in words: one line per tolerance plane, then the flags."""
+    v = report.verdict
+    assert v is not None
+    where = "at the bearings" if v.tolerance_planes is TolerancePlanes.BEARINGS else \
+        "in the correction planes"
+    speed = f" at {v.speed_rpm:g} rpm" if v.speed_rpm else ""
+    lines = [f"ISO 21940-11 residual of the last run, {where} (U_per {report.u_per_gmm:.4g} g·mm"
+             f"{speed}):"]
+    labels = v.labels or tuple(f"plane {i + 1}" for i in range(len(v.residual_gmm)))
+    for name, r, p in zip(labels, v.residual_gmm, v.permissible_gmm, strict=True):
+        lines.append(f"  {name:<14} {r:.4g} of {p:.4g} g·mm")
+    if v.arrangement is not None:
+        lines.append(f"  correction planes {v.arrangement.value} of the bearings")
+    lines.append("  -> " + ("PASS" if v.passed else "not yet within tolerance"))
+    lines += [f"  note: {VERDICT_FLAG_TEXT[f]}" for f in v.flags]
+    return lines
 
 
 def _line(c: Correction) -> str:
@@ -135,10 +189,7 @@ def report_text(report: SolveReport, has_phase: bool) -> str:
                      f"{sc.couple_gmm:.4g} g·mm per plane at {sc.couple_angle_deg:.1f}° / "
                      f"{(sc.couple_angle_deg + 180) % 360:.1f}°")
     if report.verdict is not None:
-        v = report.verdict
-        per = ", ".join(f"{r:.4g} of {p:.4g} g·mm" for r, p in zip(v.residual_gmm, v.permissible_gmm, strict=True))
-        lines.append(f"ISO 21940-11 residual of the last run: {per} -> "
-                     f"{'PASS' if v.passed else 'not yet within tolerance'}")
+        lines += verdict_text(report)
     for w in s.warnings:
         lines.append(f"warning: {w}")
     lines += ["", CAUTION]

@@ -70,6 +70,18 @@ class Plane:
     radius_mm: float = field(metadata=limits(above=0))
     axial_position_mm: float = 0.0
     layout: PlaneLayout = field(default_factory=PlaneLayout)
+    max_mass_g: float | None = field(default=None, metadata=limits(above=0))
+
+
+@dataclass
+class Bearing:
+    """A bearing (support) of the rotor; ``axial_position_mm`` uses the planes' origin.
+
+    The ISO 21940-11 verdict is judged at the two bearings when the profile names them.
+    """
+
+    name: str = field(metadata=limits(nonempty=True))
+    axial_position_mm: float = 0.0
 
 
 @dataclass
@@ -115,9 +127,25 @@ class MachineProfile:
     target_grade: float = field(default=6.3, metadata=limits(above=0))
     units: Units = field(default_factory=Units)
     notes: str = ""
+    #: the two bearings (empty in profiles written before bearing positions were kept:
+    #: the verdict is then judged in the correction planes, and says so)
+    bearings: list[Bearing] = field(default_factory=list)
+    #: axial position of the rotor's centre of mass (planes' origin); None: midway
+    cg_axial_position_mm: float | None = None
 
     def _checks(self) -> list[tuple[str, str]]:
         problems: list[tuple[str, str]] = []
+        if self.bearings:
+            if len(self.bearings) != 2:
+                problems.append(("bearings", "give exactly two bearings (or none)"))
+            elif self.bearings[0].axial_position_mm == self.bearings[1].axial_position_mm:
+                problems.append(("bearings", "the two bearings must be at different positions"))
+            elif self.bearings[0].name == self.bearings[1].name:
+                problems.append(("bearings", f"name {self.bearings[0].name!r} is used twice"))
+            elif len(self.planes) == 2 and (self.planes[0].axial_position_mm
+                                            == self.planes[1].axial_position_mm):
+                problems.append(("planes", "with bearings, the two planes need different "
+                                           "axial_position_mm"))
         if self.speed_min_rpm > self.speed_max_rpm:
             problems.append(("speed_min_rpm", "must not exceed speed_max_rpm"))
         if self.speed_max_rpm > self.max_speed_rpm:
@@ -134,6 +162,12 @@ class MachineProfile:
             if pickup.near_plane is not None and pickup.near_plane not in plane_names:
                 problems.append((f"pickups[{i}]", f"near_plane {pickup.near_plane!r} is not a plane"))
         return problems
+
+    def bearing_positions_mm(self) -> tuple[float, float] | None:
+        """Axial positions of the two bearings, or None in a profile that does not give them."""
+        if len(self.bearings) != 2:
+            return None
+        return (self.bearings[0].axial_position_mm, self.bearings[1].axial_position_mm)
 
     def plane(self, name: str) -> Plane:
         """The plane called ``name`` (KeyError if there is none)."""

@@ -431,6 +431,22 @@ def _html_kv(rows: Sequence[tuple[str, str]]) -> str:
     return f'<table class="kv"><tbody>{body}</tbody></table>'
 
 
+def verdict_at_bearings(job: JobRecord) -> bool:
+    """True when the recorded verdict names the machine's bearings (ISO 21940-11 tolerance
+    planes) rather than its correction planes."""
+    names = {b.name for b in job.machine.bearings}
+    return (job.verdict is not None and bool(names)
+            and all(pv.plane in names for pv in job.verdict.planes))
+
+
+def _verdict_where(job: JobRecord) -> str:
+    if verdict_at_bearings(job):
+        return ("judged at the bearing planes (ISO 21940-11 tolerance planes), residuals "
+                "referred there by rigid-rotor statics, U_per shared by the lever rule")
+    return ("shared between the correction planes (bearing positions not in the machine "
+            "profile, so not judged at the bearings)")
+
+
 def _verdict_line(job: JobRecord) -> tuple[str, str]:
     v = job.verdict
     if v is None:
@@ -463,11 +479,13 @@ def html_report(job: JobRecord, generated: str = "") -> str:
     parts += ['<h2>Result</h2>', f'<p id="verdict" class="{css}">{_e(line)}</p>']
     rows = verdict_rows(job)
     if rows:
-        parts.append(_html_table(["Plane", "Residual unbalance", "Permissible (U_per)",
+        parts.append(_html_table(["Bearing" if verdict_at_bearings(job) else "Plane",
+                                  "Residual unbalance", "Permissible (U_per)",
                                   "Verdict"], rows, "verdict"))
         parts.append('<p class="note">Permissible residual unbalance per ISO 21940-11: '
                      'U_per = 1000 \u00b7 G \u00b7 m / \u03c9 (g\u00b7mm, G in mm/s, m in kg, '
-                     '\u03c9 in rad/s), shared between the correction planes.'
+                     '\u03c9 in rad/s, at the maximum service speed), '
+                     + _e(_verdict_where(job)) + '.'
                      + (f" {_e(job.verdict.note)}" if job.verdict and job.verdict.note else "")
                      + '</p>')
     parts += ['<h2>Before and after</h2>',
@@ -544,7 +562,9 @@ def markdown_report(job: JobRecord, generated: str = "") -> str:
            "## Result", "", _verdict_line(job)[1], ""]
     rows = verdict_rows(job)
     if rows:
-        out += [_md_table(["Plane", "Residual unbalance", "Permissible (U_per)", "Verdict"], rows),
+        out += [_md_table(["Bearing" if verdict_at_bearings(job) else "Plane",
+                           "Residual unbalance", "Permissible (U_per)", "Verdict"], rows),
+                "", f"U_per per ISO 21940-11 at the maximum service speed, {_verdict_where(job)}.",
                 ""]
     out += ["## Before and after", "",
             _md_table(["Pickup", "Before", "Phase", "After", "Phase", "Change"],

@@ -210,3 +210,48 @@ def test_row_store_keeps_the_last_rows_in_order(limit: int) -> None:
         want = everything[-limit:]
         assert store.last(limit)["a"].tolist() == want
         assert store.last(3)["b"][:, 1].tolist() == [-x for x in want[-3:]]
+
+
+def _with_status(messages: list[Message], adc_overruns_end: int) -> list[Message]:
+    """The messages with a status before the first sample block (no overruns yet) and one at
+    the end (``adc_overruns_end`` late conversions counted by the board)."""
+    def status(seq: int, overruns: int) -> Message:
+        return Message("status", seq, {"uptime_ms": 1000 + seq, "state": 1,
+                                       "samples_dropped": 0, "frames_dropped": 0,
+                                       "adc_overruns": overruns, "tach_edges": 0,
+                                       "rx_bad_frames": 0, "last_error": 0})
+    first = next(i for i, m in enumerate(messages) if m.name == "samples")
+    return [*messages[:first], status(0, 0), *messages[first:], status(1, adc_overruns_end)]
+
+
+def test_late_adc_conversions_without_a_gap_are_refused() -> None:
+    # Firmware that let a late trigger slip a whole timer wrap kept its indices contiguous:
+    # the board's adc_overruns rose but no sample is missing, so every later sample time may
+    # be wrong. The meter must give no reading and say why (issue 14, item 1).
+    raw, _ = synthesize(RUN)
+    meter = LiveAnalyzer()
+    meter.feed_all(_with_status(_messages(raw), adc_overruns_end=2))
+    meter.end_of_stream()
+    assert meter.readings() == []
+    assert any(w.startswith("refused:") and "adc_late" in w for w in meter.stream_warnings())
+    # the same capture with no late conversion counted gives readings
+    clean = LiveAnalyzer()
+    clean.feed_all(_with_status(_messages(raw), adc_overruns_end=0))
+    clean.end_of_stream()
+    assert len(clean.readings()) == 2
+    assert not any("adc_late" in w for w in clean.stream_warnings())
+
+
+def test_late_adc_conversions_with_their_gap_are_flagged_and_left_out() -> None:
+    # Firmware that skips to the next channel set leaves a gap: readings stay right, the
+    # revolutions over the gap are left out and the late conversions are said.
+    run = SyntheticRun(**{**RUN.__dict__, "lost_blocks": (30,)})
+    raw, truth = synthesize(run)
+    meter = LiveAnalyzer()
+    meter.feed_all(_with_status(_messages(raw), adc_overruns_end=1))
+    meter.end_of_stream()
+    readings = meter.readings()
+    assert len(readings) == 2 and meter.revs_with_gaps >= 1
+    assert any("1 late ADC conversion(s)" in w for w in readings[0].warnings)
+    for r in readings:
+        assert abs(r.phasor - _truth_volts(truth, r.channel)) <= SLACK * r.confidence_radius

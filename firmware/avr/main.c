@@ -15,6 +15,7 @@
 #include <stdint.h>
 #include <util/atomic.h>
 
+#include "tt_adc.h"
 #include "tt_blocks.h"
 #include "tt_clock.h"
 #include "tt_cobs.h"
@@ -114,23 +115,34 @@ ISR(TIMER1_CAPT_vect)
 ISR(ADC_vect)
 {
     uint16_t sample = ADC; /* read before the multiplexer moves on */
-    uint16_t due;
+    uint16_t due, skipped;
     if (!g_adc_armed) {
         return;
     }
-    due = (uint16_t)(OCR1B + g_adc_period_ticks);
-    OCR1B = due;
-    TIFR1 = _BV(OCF1B); /* the trigger is the flag's rising edge: clear it for the next one */
-    if (g_adc_two_channels) {
-        ADMUX ^= 1u;    /* A0 <-> A1 for the next conversion (safe: none is running) */
-    }
-    if ((uint16_t)(TCNT1 - due) < 0x8000u) {
-        g_adc_overruns++; /* the next trigger time has already passed */
-        g_last_error = TT_LAST_ADC_LATE;
-        g_stream_fault = 1;
-    }
     if (tt_blocks_put(&g_blocks, sample)) {
         g_last_error = TT_LAST_SAMPLE_OVERRUN;
+        g_stream_fault = 1;
+    }
+    /* Next trigger: one period on, or, if that time is already past (this handler ran
+     * late), the next channel-set start safely ahead; the conversions in between are
+     * skipped and counted as dropped, so no sample time ever shifts (core/tt_adc.h). */
+    due = (uint16_t)(OCR1B + g_adc_period_ticks);
+    skipped = tt_adc_step(&due, TCNT1, g_adc_period_ticks, (uint8_t)g_blocks.next_index,
+                          g_adc_two_channels, TT_ADC_LEAD_TICKS);
+    /* The channel for the next conversion, before the trigger flag is cleared (datasheet,
+     * "Changing Channel or Reference Selection": safe after a conversion, before the flag
+     * used as trigger source is cleared); a skip always resumes at channel 0. */
+    if (skipped != 0u) {
+        ADMUX = _BV(REFS0) | TT_PICKUP_1_ADC_CHANNEL;
+    } else if (g_adc_two_channels) {
+        ADMUX ^= 1u;    /* A0 <-> A1 */
+    }
+    OCR1B = due;
+    TIFR1 = _BV(OCF1B); /* the trigger is the flag's rising edge: clear it for the next one */
+    if (skipped != 0u) {
+        tt_blocks_skip(&g_blocks, skipped);
+        g_adc_overruns++;
+        g_last_error = TT_LAST_ADC_LATE;
         g_stream_fault = 1;
     }
 }

@@ -66,6 +66,18 @@ static inline uint8_t tt_blocks_put(struct tt_blocks *r, uint16_t sample)
     return 0;
 }
 
+/* Interrupt side: the next n conversions (from next_index on) will never be made (their
+ * trigger time passed, see tt_adc.h). A block holds consecutive indices only, so the samples
+ * already in the block being filled go with them; all are counted in `dropped` and the next
+ * block starts at the index after the skipped ones. Keep next_index + n a multiple of the
+ * channel count. */
+static inline void tt_blocks_skip(struct tt_blocks *r, uint16_t n)
+{
+    r->dropped += (uint32_t)r->fill + n;
+    r->fill = 0;
+    r->next_index += n;
+}
+
 /* Main-loop side: the oldest complete block, or NULL if none is waiting. */
 static inline const struct tt_block *tt_blocks_peek(const struct tt_blocks *r)
 {

@@ -16,6 +16,12 @@
  *     --report PATH         write a JSON report (cycles per handler, counts) at the end
  *     --script BYTESHEX@S   send these bytes to the UART at simulated time S (repeatable;
  *                           for runs without a host program)
+ *     --irq-off S,US        fault injection: hold the CPU's interrupts off for US
+ *                           microseconds from simulated time S (a handler or critical
+ *                           section far over its budget; repeatable, up to 8)
+ *     --tach-chatter N,GAP  after every tach edge, N more edges of the same polarity GAP
+ *                           CPU cycles apart (a comparator without hysteresis on a slow
+ *                           mark edge, or a noisy cable)
  *
  * The signal follows the steady-signal spec of trueturn.sim.signal_spec: shaft angle
  * theta(t) = 2 pi (rpm/60)(t - first_edge_s); a rising tach edge at every multiple of 2 pi
@@ -53,6 +59,7 @@
 #include "avr_timer.h"
 #include "avr_uart.h"
 #include "sim_avr.h"
+#include "sim_core.h"
 #include "sim_elf.h"
 #include "sim_interrupts.h"
 #include "sim_irq.h"
@@ -118,6 +125,14 @@ static struct {
     const char *report_path;
     struct script_item script[32];
     int n_script, next_script;
+    double irq_off_at_s[8], irq_off_us[8];
+    int n_irq_off;
+    avr_cycle_count_t irq_off_until;
+    int chatter_n;
+    double chatter_gap_cycles;
+    int chatter_left;
+    double chatter_cycle;
+    uint64_t chatter_edges;
 
     int uart_fd;
     uint8_t out_buf[8192];
@@ -302,6 +317,7 @@ static void ocr1bl_write(struct avr_t *avr, avr_io_addr_t addr, uint8_t v, void 
 }
 
 static avr_cycle_count_t tach_fire(struct avr_t *avr, avr_cycle_count_t when, void *param);
+static avr_cycle_count_t irq_off_start(struct avr_t *avr, avr_cycle_count_t when, void *param);
 
 static void schedule_tach(void)
 {
@@ -323,6 +339,30 @@ static void tach_capture(double edge_cycle)
     avr_raise_interrupt(E.avr, &E.timer1->icr);
 }
 
+/* Chatter: the edges that follow a real one. The pin bounces back and forth, so each is an
+ * edge of the captured polarity: ICR1 takes its count and ICF1 is set, as the hardware does
+ * whether or not the capture interrupt is enabled (datasheet, "Input Capture Unit"). */
+static avr_cycle_count_t chatter_fire(struct avr_t *avr, avr_cycle_count_t when, void *param)
+{
+    (void)avr;
+    (void)param;
+    tach_capture(E.chatter_cycle);
+    E.chatter_edges++;
+    if (--E.chatter_left <= 0) return 0;
+    E.chatter_cycle += E.chatter_gap_cycles;
+    return when + (avr_cycle_count_t)E.chatter_gap_cycles;
+}
+
+static void start_chatter(double edge_cycle)
+{
+    if (E.chatter_n <= 0) return;
+    E.chatter_left = E.chatter_n;
+    E.chatter_cycle = edge_cycle + E.chatter_gap_cycles;
+    avr_cycle_timer_cancel(E.avr, chatter_fire, NULL);
+    avr_cycle_timer_register(E.avr, (avr_cycle_count_t)ceil(E.chatter_cycle) - E.avr->cycle,
+                             chatter_fire, NULL);
+}
+
 static avr_cycle_count_t tach_fire(struct avr_t *avr, avr_cycle_count_t when, void *param)
 {
     int rising_capture = (avr->data[R_TCCR1B] >> BIT_ICES1) & 1;
@@ -332,13 +372,19 @@ static avr_cycle_count_t tach_fire(struct avr_t *avr, avr_cycle_count_t when, vo
     if (!E.tach_high) {
         E.tach_high = 1;
         avr->data[R_PINB] |= 1u; /* PB0 high */
-        if (rising_capture) tach_capture(E.tach_edge_cycle);
+        if (rising_capture) {
+            tach_capture(E.tach_edge_cycle);
+            start_chatter(E.tach_edge_cycle);
+        }
         E.tach_edge_cycle += width_cycles;
         return (avr_cycle_count_t)ceil(E.tach_edge_cycle);
     }
     E.tach_high = 0;
     avr->data[R_PINB] &= (uint8_t)~1u; /* PB0 low */
-    if (!rising_capture) tach_capture(E.tach_edge_cycle);
+    if (!rising_capture) {
+        tach_capture(E.tach_edge_cycle);
+        start_chatter(E.tach_edge_cycle);
+    }
     E.tach_n++;
     schedule_tach();
     return 0;
@@ -358,6 +404,10 @@ static void tccr1b_write(struct avr_t *avr, avr_io_addr_t addr, uint8_t v, void 
             E.timer_started = 1;
             E.t1_start = avr->cycle;
             schedule_tach();
+            for (int k = 0; k < E.n_irq_off; k++) {
+                avr_cycle_timer_register(avr, (avr_cycle_count_t)(E.irq_off_at_s[k] * F_CPU_HZ) + 1u,
+                                         irq_off_start, (void *)(intptr_t)k);
+            }
         }
     } else {
         avr->data[addr] = v; /* edge select only: keep simavr's count running */
@@ -383,6 +433,33 @@ static void adc_conversion_started(struct avr_irq_t *irq, uint32_t value, void *
     if (src < 0 || src >= E.n_channels) return;
     t = ((double)(E.avr->cycle - E.t1_start) + APERTURE_CYCLES) / F_CPU_HZ;
     avr_raise_irq(E.adc_irq + ADC_IRQ_ADC0 + src, channel_millivolts(src, t));
+}
+
+/* ---------------- fault injection: interrupts held off ---------------- */
+
+#define IRQ_OFF_RECHECK_CYCLES 8u
+
+/* While the window lasts, keep SREG.I clear every few cycles (a reti or an SREG restore in
+ * the firmware would set it again); at its end set it, as the code that held it would. */
+static avr_cycle_count_t irq_off_tick(struct avr_t *avr, avr_cycle_count_t when, void *param)
+{
+    (void)param;
+    if (avr->cycle >= E.irq_off_until) {
+        avr_sreg_set(avr, S_I, 1);
+        return 0;
+    }
+    avr_sreg_set(avr, S_I, 0);
+    return when + IRQ_OFF_RECHECK_CYCLES;
+}
+
+static avr_cycle_count_t irq_off_start(struct avr_t *avr, avr_cycle_count_t when, void *param)
+{
+    int i = (int)(intptr_t)param;
+    (void)when;
+    E.irq_off_until = avr->cycle + (avr_cycle_count_t)(E.irq_off_us[i] * (F_CPU_HZ / 1e6));
+    avr_sreg_set(avr, S_I, 0);
+    avr_cycle_timer_register(avr, IRQ_OFF_RECHECK_CYCLES, irq_off_tick, NULL);
+    return 0;
 }
 
 /* ---------------- UART ---------------- */
@@ -463,6 +540,7 @@ static void write_report(void)
     fprintf(f, "  \"isr_load\": %.6f,\n", window ? (double)isr_total / (double)window : 0.0);
     fprintf(f, "  \"adc_triggers\": %llu,\n  \"conversions_started\": %llu,\n",
             (unsigned long long)E.triggers, (unsigned long long)E.conversions_started);
+    fprintf(f, "  \"chatter_edges\": %llu,\n", (unsigned long long)E.chatter_edges);
     fprintf(f, "  \"tach_edges\": %ld,\n  \"uart_bytes_out\": %llu,\n  \"uart_bytes_in\": %llu,\n",
             E.tach_n, (unsigned long long)E.uart_bytes_out, (unsigned long long)E.uart_bytes_in);
     fprintf(f, "  \"cpu_state\": %d,\n  \"handlers\": {", E.avr->state);
@@ -484,7 +562,8 @@ static void usage(void)
 {
     fprintf(stderr, "usage: tt_emu [--speed-rpm X] [--first-edge-s X] [--jitter-rms-s X] [--ref-v X] "
                     "[--seed N] [--channel OFF,NOISE]... [--order CH,K,AMP,PH]... [--tone CH,HZ,AMP,PH]... "
-                    "[--seconds X] [--realtime] [--report PATH] [--script HEX@S]... FIRMWARE.elf\n");
+                    "[--seconds X] [--realtime] [--report PATH] [--script HEX@S]... [--irq-off S,US]... "
+                    "[--tach-chatter N,GAP] FIRMWARE.elf\n");
     exit(2);
 }
 
@@ -553,6 +632,14 @@ int main(int argc, char **argv)
         else if (!strcmp(a, "--seconds")) E.seconds = atof(v);
         else if (!strcmp(a, "--report")) E.report_path = v;
         else if (!strcmp(a, "--script")) add_script(v);
+        else if (!strcmp(a, "--irq-off")) {
+            if (E.n_irq_off == 8 || sscanf(v, "%lf,%lf", &E.irq_off_at_s[E.n_irq_off],
+                                           &E.irq_off_us[E.n_irq_off]) != 2) usage();
+            E.n_irq_off++;
+        } else if (!strcmp(a, "--tach-chatter")) {
+            if (sscanf(v, "%d,%lf", &E.chatter_n, &E.chatter_gap_cycles) != 2 || E.chatter_n < 0
+                || E.chatter_gap_cycles < 1.0) usage();
+        }
         else if (!strcmp(a, "--order")) add_term(v, 1);
         else if (!strcmp(a, "--tone")) add_term(v, 0);
         else if (!strcmp(a, "--channel")) {

@@ -16,6 +16,7 @@
 #include <stdlib.h>
 #include <string.h>
 
+#include "tt_adc.h"
 #include "tt_blocks.h"
 #include "tt_clock.h"
 #include "tt_cobs.h"
@@ -151,6 +152,88 @@ static void unit_blocks(void)
     CHECK(r.dropped == 0u && got == 100000u / 40u);
 }
 
+/* The ADC trigger stepping of tt_adc.h with the sample ring, against a model of the timer:
+ * conversion k is triggered when the 16-bit count reaches OCR1B; its interrupt runs after a
+ * random latency (sometimes longer than a whole period) and writes OCR1B for the next one.
+ * Every sample kept must sit at index (trigger - start) / period exactly, the indices in the
+ * blocks must be gap-free except where `dropped` says, and each skip ends at a set start. */
+static void unit_adc_step(void)
+{
+    static struct tt_blocks r;
+    const struct tt_block *b;
+    uint16_t d, skipped;
+    uint32_t trig, now32, start = 60000u, idx = 0, held = 0, seen = 0, expect_first = 0;
+    uint32_t gaps = 0, events = 0, period, k, late = 0;
+    uint8_t channels, mask;
+    /* already ahead: nothing skipped */
+    d = 1000u;
+    CHECK(tt_adc_step(&d, 900u, 250u, 3u, 1u, 16u) == 0u && d == 1000u);
+    /* too close (inside the lead), one channel: one skipped */
+    d = 1000u;
+    CHECK(tt_adc_step(&d, 990u, 250u, 3u, 0u, 16u) == 1u && d == 1250u);
+    /* passed, two channels, next index odd: skip to the next even index */
+    d = 1000u;
+    CHECK(tt_adc_step(&d, 1100u, 250u, 3u, 1u, 16u) == 1u && d == 1250u);
+    /* passed, two channels, next index even: a whole set (2) */
+    d = 1000u;
+    CHECK(tt_adc_step(&d, 1100u, 250u, 4u, 1u, 16u) == 2u && d == 1500u);
+    /* across the timer wrap */
+    d = 0xFFF0u;
+    CHECK(tt_adc_step(&d, 0x0010u, 0x100u, 0u, 1u, 16u) == 2u && d == 0x01F0u);
+    for (channels = 1; channels <= 2; channels++) {
+        mask = (uint8_t)(channels - 1u);
+        period = channels == 1 ? 500u : 250u;
+        r.dropped = 0;
+        tt_blocks_reset(&r, (uint8_t)(20u * channels));
+        srand(99u + channels);
+        trig = start;        /* 32-bit trigger time of conversion idx */
+        idx = 0;
+        held = 0;
+        expect_first = 0;
+        gaps = 0;
+        seen = 0;
+        late = 0;
+        for (k = 0; k < 200000u; k++) {
+            uint32_t latency = 20u + (uint32_t)(rand() % 60);
+            if (rand() % 500 == 0) latency += (uint32_t)(rand() % 2000); /* a stalled handler */
+            now32 = trig + 108u + latency;  /* conversion done after 108 ticks, then the ISR */
+            /* the sample of conversion idx carries its trigger time as its value (mod 2^16) */
+            tt_blocks_put(&r, (uint16_t)trig);
+            d = (uint16_t)(trig + period);
+            skipped = tt_adc_step(&d, (uint16_t)now32, (uint16_t)period, (uint8_t)(r.next_index & mask), mask,
+                                  TT_ADC_LEAD_TICKS);
+            if (skipped) {
+                tt_blocks_skip(&r, skipped);
+                late++;
+                if ((r.next_index & mask) != 0u) failures++;
+            }
+            idx = r.next_index;
+            trig = trig + period * (1u + skipped);
+            if ((uint16_t)(d) != (uint16_t)trig || (int32_t)(trig - now32) < (int32_t)TT_ADC_LEAD_TICKS)
+                failures++;
+            while ((b = tt_blocks_peek(&r)) != NULL) {
+                uint8_t j;
+                if (b->first_index != expect_first) gaps += b->first_index - expect_first;
+                for (j = 0; j < r.block_len; j++) {
+                    /* SPEC 4.4: tick = start_tick + index * period_ticks */
+                    if (b->samples[j] != (uint16_t)(start + (b->first_index + j) * period)) failures++;
+                    seen++;
+                }
+                if (b->first_index % channels) failures++;
+                expect_first = b->first_index + r.block_len;
+                tt_blocks_release(&r);
+            }
+            held = r.fill;
+        }
+        events += late;
+        /* every index not delivered is counted as dropped (the filling block is in flight) */
+        CHECK(gaps == r.dropped); /* (the last skip came before the last block sent) */
+        CHECK(seen + r.dropped + held == idx);
+        CHECK(late > 0u);
+    }
+    CHECK(events > 100u);
+}
+
 static void unit_tachq(void)
 {
     static struct tt_tachq q;
@@ -266,6 +349,7 @@ static int run_unit(void)
     unit_cobs();
     unit_clock();
     unit_blocks();
+    unit_adc_step();
     unit_tachq();
     unit_rx();
     unit_commands();

@@ -201,6 +201,7 @@ class LiveAnalyzer:
         self.identity_seen = False
         self.streams = 0  # streams that carried samples (a configure-only one does not count)
         self.tach = TachTracker()
+        self._last_status: MessageLike | None = None
         self._reset_stream(None)
 
     # ---------------------------------------------------------------- stream state
@@ -228,6 +229,10 @@ class LiveAnalyzer:
         self.revs_skipped = 0
         self.clipped_samples = 0
         self.samples_seen = 0
+        # board counters (status, totals since reset) at the stream's start and now
+        self._board_base: dict[str, int] | None = (
+            _board_counters(self._last_status) if self._last_status is not None else None)
+        self._board_now: dict[str, int] | None = None
         self.tach.reset()
 
     def feed(self, msg: MessageLike) -> bool:
@@ -249,7 +254,9 @@ class LiveAnalyzer:
                     self._pending_ends.append(rev.end_tick)
                     return self._ready_count() > 0
             return False
-        if name == "stream_config":
+        if name == "status":
+            self._status(msg)
+        elif name == "stream_config":
             self._reset_stream(msg)
         elif name == "identity":
             self.identity_seen = True
@@ -258,6 +265,31 @@ class LiveAnalyzer:
             self.reference_mv = int(msg["adc_reference_mv"])
             self.aperture_ticks = int(msg["aperture_delay_ticks"])
         return False
+
+    def _status(self, msg: MessageLike) -> None:
+        """Track the board's loss counters over the stream (SPEC 4.6: totals since reset)."""
+        self._last_status = msg
+        counters = _board_counters(msg)
+        if self.config is None or self._next_index is None:
+            self._board_base = counters  # before the stream's first sample block
+            return
+        if self._board_base is None or any(counters[k] < v for k, v in self._board_base.items()):
+            self._board_base = counters  # first status of the stream, or the board restarted
+        self._board_now = counters
+
+    def board_losses(self) -> dict[str, int]:
+        """How much each board counter (adc_overruns, samples_dropped, frames_dropped) rose
+        during this stream, as far as the status messages received tell."""
+        if self._board_base is None or self._board_now is None:
+            return {}
+        return {k: v - self._board_base[k] for k, v in self._board_now.items()}
+
+    @property
+    def adc_late_unexplained(self) -> bool:
+        """The board counted late ADC conversions in this stream but no gap in the sample
+        indices was seen: firmware that shifts sample times instead of skipping them (a wrong
+        reading), so readings are refused."""
+        return self.board_losses().get("adc_overruns", 0) > 0 and not self._gaps
 
     def end_of_stream(self) -> None:
         """No more messages will come (the end of a capture): stop holding back the newest
@@ -459,6 +491,15 @@ class LiveAnalyzer:
         if self.revs_with_gaps:
             out.append(f"{self.revs_with_gaps} revolution(s) left out for lost samples "
                        "(USB link dropped data)")
+        losses = self.board_losses()
+        if self.adc_late_unexplained:
+            out.append(f"refused: the board counted {losses['adc_overruns']} late ADC "
+                       "conversion(s) (adc_late) in this stream but no gap in the sample "
+                       "indices: sample times may be shifted; update the firmware")
+        elif losses.get("adc_overruns", 0) > 0:
+            out.append(f"{losses['adc_overruns']} late ADC conversion(s) on the board "
+                       "(adc_late): the samples around them were dropped and their "
+                       "revolutions left out")
         if self.clipped_samples:
             out.append(f"{self.clipped_samples} sample(s) at the ADC limits: the pickup "
                        "signal clips; reduce its gain or move it")
@@ -485,7 +526,9 @@ class LiveAnalyzer:
     def readings(self, last: int | None = None) -> list[Reading]:
         """One reading per pickup over the last ``last`` (default ``max_revs``) revolutions."""
         self._process()
-        out = []
+        out: list[Reading] = []
+        if self.adc_late_unexplained:
+            return out
         stream = tuple(self.stream_warnings())
         for c in range(self.channels):
             if not len(self._rows[c]):
@@ -563,6 +606,10 @@ class LiveAnalyzer:
 
     def spectrum_unit(self, channel: int) -> str:
         return "g pk" if self.profile(channel).calibrated else "V pk"
+
+
+def _board_counters(msg: MessageLike) -> dict[str, int]:
+    return {k: int(msg[k]) for k in ("adc_overruns", "samples_dropped", "frames_dropped")}
 
 
 def chain_phase_deg(profile: PickupProfile, frequency_hz: float) -> float:

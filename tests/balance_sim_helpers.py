@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from trueturn.angles import amplitude_phase
+from trueturn.angles import amplitude_phase, phasor
 from trueturn.sim import Mass
 from trueturn.sim.scenario import load_scenario
 
@@ -61,3 +61,37 @@ def reduction(sc, corrections, rng=None) -> float:
     before = np.linalg.norm(list(rotor.response_1x(speed, sc.as_found).values()))
     after = np.linalg.norm(list(rotor.response_1x(speed, sc.as_found + added).values()))
     return 1.0 - after / before
+
+
+def linear_document(residual_g: tuple[complex, complex], bearings: bool = True,
+                    speeds_rpm: tuple[float, ...] | None = None) -> dict:
+    """READINGS from a known linear two-plane rotor (R = A (U0 + W)); the check run leaves
+    ``residual_g`` (grams at 75 mm) in the planes; ``speeds_rpm``: one per run (4 runs).
+    Constructed numbers: the tests check the engine against formulas (statics, ISO
+    21940-11), not against these values."""
+    a = np.array([[phasor(0.30, 40), phasor(0.12, 300)], [phasor(0.10, 110), phasor(0.28, 20)]])
+    u0 = np.array([phasor(3.0, 70), phasor(2.0, 250)])
+    runs_w = [np.zeros(2, complex), np.array([phasor(5, 0), 0]), np.array([0, phasor(5, 90)]),
+              np.array(residual_g) - u0]
+
+    def reading(w):
+        r = a @ (u0 + w)
+        return {s: {"amp": float(abs(v)), "phase_deg": float(np.degrees(np.angle(v)) % 360)}
+                for s, v in zip(("left", "right"), r, strict=True)}
+
+    def added(w):
+        return [{"plane": p, "mass_g": float(abs(x)), "angle_deg": float(np.degrees(np.angle(x)) % 360)}
+                for p, x in zip(("wheel L", "wheel R"), w, strict=True) if abs(x) > 0]
+
+    doc = {"planes": [{"name": "wheel L", "radius_mm": 75, "axial_mm": -150},
+                      {"name": "wheel R", "radius_mm": 75, "axial_mm": 150}],
+           "sensors": [{"name": "left"}, {"name": "right"}],
+           "runs": [{"label": f"run {k}", "added": added(w), "readings": reading(w)}
+                    for k, w in enumerate(runs_w)],
+           "tolerance": {"rotor_mass_kg": 4.5, "grade": 6.3, "speed_rpm": 3538.8}}
+    if speeds_rpm is not None:
+        for run, speed in zip(doc["runs"], speeds_rpm, strict=True):
+            run["speed_rpm"] = speed
+    if bearings:
+        doc["bearings"] = [{"name": "motor end", "axial_mm": -60}, {"name": "free end", "axial_mm": 60}]
+    return doc

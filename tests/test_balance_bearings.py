@@ -15,6 +15,7 @@ import numpy as np
 import pytest
 import yaml
 
+from balance_sim_helpers import linear_document
 from cli_helpers import run_cli
 from trueturn.angles import phasor
 from trueturn.balance import parse_readings, solve
@@ -135,38 +136,9 @@ def test_inboard_planes_at_the_bearings_agree_with_the_plane_verdict():
     assert v.passed is False
 
 
-def _linear_document(residual_g: tuple[complex, complex], bearings: bool = True) -> dict:
-    """READINGS from a known linear two-plane rotor (R = A (U0 + W)); the check run leaves
-    ``residual_g`` (grams at 75 mm) in the planes. Constructed numbers, no source needed: the
-    test checks the engine against the statics above, not against these values."""
-    a = np.array([[phasor(0.30, 40), phasor(0.12, 300)], [phasor(0.10, 110), phasor(0.28, 20)]])
-    u0 = np.array([phasor(3.0, 70), phasor(2.0, 250)])
-    runs_w = [np.zeros(2, complex), np.array([phasor(5, 0), 0]), np.array([0, phasor(5, 90)]),
-              np.array(residual_g) - u0]
-
-    def reading(w):
-        r = a @ (u0 + w)
-        return {s: {"amp": float(abs(v)), "phase_deg": float(np.degrees(np.angle(v)) % 360)}
-                for s, v in zip(("left", "right"), r, strict=True)}
-
-    def added(w):
-        return [{"plane": p, "mass_g": float(abs(x)), "angle_deg": float(np.degrees(np.angle(x)) % 360)}
-                for p, x in zip(("wheel L", "wheel R"), w, strict=True) if abs(x) > 0]
-
-    doc = {"planes": [{"name": "wheel L", "radius_mm": 75, "axial_mm": -150},
-                      {"name": "wheel R", "radius_mm": 75, "axial_mm": 150}],
-           "sensors": [{"name": "left"}, {"name": "right"}],
-           "runs": [{"label": f"run {k}", "added": added(w), "readings": reading(w)}
-                    for k, w in enumerate(runs_w)],
-           "tolerance": {"rotor_mass_kg": 4.5, "grade": 6.3, "speed_rpm": 3538.8}}
-    if bearings:
-        doc["bearings"] = [{"name": "motor end", "axial_mm": -60}, {"name": "free end", "axial_mm": 60}]
-    return doc
-
-
 def test_solve_judges_the_last_run_at_the_bearings(tmp_path):
     e = 37.0 / 75.0  # grams at 75 mm -> 37 g mm, a pure couple
-    doc = _linear_document((phasor(e, 0), phasor(e, 180)))
+    doc = linear_document((phasor(e, 0), phasor(e, 180)))
     report = solve(parse_readings(doc))
     v = report.verdict
     assert v is not None and v.tolerance_planes is TolerancePlanes.BEARINGS
@@ -176,7 +148,7 @@ def test_solve_judges_the_last_run_at_the_bearings(tmp_path):
     assert v.permissible_gmm == pytest.approx((38.25, 38.25), abs=0.01)
     assert v.passed is False and v.arrangement is PlaneArrangement.OUTBOARD
     # without bearings: judged in the planes (37 of 38.25 each: pass), flagged as such
-    plain = solve(parse_readings(_linear_document((phasor(e, 0), phasor(e, 180)), bearings=False)))
+    plain = solve(parse_readings(linear_document((phasor(e, 0), phasor(e, 180)), bearings=False)))
     assert plain.verdict.passed is True
     assert VerdictFlag.NOT_AT_BEARINGS in plain.verdict.flags
     # the JSON names the bearing fields
@@ -196,7 +168,7 @@ def test_solve_static_residual_midway_passes_at_the_bearings():
     # statics: a static residual of 2 x 30 g mm in phase is 30 g mm per bearing when the
     # planes are symmetric about the bearings' midpoint: within 38.25
     e = 30.0 / 75.0
-    report = solve(parse_readings(_linear_document((phasor(e, 45), phasor(e, 45)))))
+    report = solve(parse_readings(linear_document((phasor(e, 45), phasor(e, 45)))))
     assert report.verdict.residual_gmm == pytest.approx((30.0, 30.0), rel=1e-6)
     assert report.verdict.passed is True
     assert report.u_per_gmm == pytest.approx(permissible_unbalance_gmm(6.3, 3538.8, 4.5))
@@ -209,7 +181,7 @@ def test_solve_static_residual_midway_passes_at_the_bearings():
     (lambda d: d["bearings"][1].__setitem__("axial_mm", "far"), "axial_mm"),
 ])
 def test_bad_bearing_input_is_one_line(tmp_path, change, needle):
-    doc = _linear_document((0.1 + 0j, 0.1 + 0j))
+    doc = linear_document((0.1 + 0j, 0.1 + 0j))
     change(doc)
     path = tmp_path / "bad.yaml"
     path.write_text(yaml.safe_dump(doc))

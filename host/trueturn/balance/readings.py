@@ -101,7 +101,12 @@ class SavedCoefficient:
 
 @dataclass(frozen=True)
 class Tolerance:
-    """Optional ISO 21940-11 target for a pass/fail verdict on the last run."""
+    """Optional ISO 21940-11 target for a pass/fail verdict on the last run.
+
+    ``speed_rpm`` is the maximum service speed the grade is judged at (ISO 21940-11:
+    e_per = G / omega at the maximum service speed). ``speed_from_last_run`` is True when the
+    document did not give it and the last run's speed stood in (the verdict is flagged).
+    """
 
     rotor_mass_kg: float
     grade_mm_s: float
@@ -109,6 +114,7 @@ class Tolerance:
     cg_from_first_plane_mm: float | None = None
     plane_distance_mm: float | None = None
     cg_axial_mm: float | None = None
+    speed_from_last_run: bool = False
 
 
 @dataclass(frozen=True)
@@ -313,10 +319,14 @@ def parse_readings(doc: Any, source: str = "READINGS") -> BalanceInput:
     if doc.get("tolerance") is not None:
         at = f"{source}: tolerance"
         t = _mapping(doc["tolerance"], at)
-        run_speed = next((r.speed_rpm for r in reversed(runs) if r.speed_rpm), None)
-        speed = t.get("speed_rpm", run_speed)
+        run_speed = runs[-1].speed_rpm
+        speed = t.get("speed_rpm")
+        from_last_run = speed is None
+        if from_last_run:
+            speed = run_speed
         if speed is None:
-            raise UserError(f"{at}: missing field 'speed_rpm' (no run gives speed_rpm either)")
+            raise UserError(f"{at}: missing field 'speed_rpm' (the maximum service speed; the "
+                            "last run gives no speed_rpm either)")
         cg = t.get("cg_from_first_plane_mm")
         dist = t.get("plane_distance_mm")
         cg_axial = t.get("cg_axial_mm")
@@ -329,6 +339,7 @@ def parse_readings(doc: Any, source: str = "READINGS") -> BalanceInput:
             plane_distance_mm=None if dist is None else _number(dist, f"{at}.plane_distance_mm",
                                                                  positive=True),
             cg_axial_mm=None if cg_axial is None else _number(cg_axial, f"{at}.cg_axial_mm"),
+            speed_from_last_run=from_last_run,
         )
     return BalanceInput(tuple(planes), tuple(sensors), tuple(runs), tuple(saved), tolerance,
                         tuple(bearings))

@@ -8,12 +8,13 @@ otherwise in the correction planes, flagged :attr:`VerdictFlag.NOT_AT_BEARINGS`.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 from trueturn.balance.amplitude_only import solve_amplitude_only
 from trueturn.balance.influence import Solution, solve_with_phase
 from trueturn.balance.iso21940 import (
     Verdict,
+    VerdictFlag,
     bearing_verdict,
     per_plane_permissible,
     permissible_unbalance_gmm,
@@ -46,6 +47,9 @@ def solve(inp: BalanceInput) -> SolveReport:
         report.u_per_gmm = permissible_unbalance_gmm(tol.grade_mm_s, tol.speed_rpm,
                                                      tol.rotor_mass_kg)
         report.verdict = tolerance_verdict(inp, solution, report.u_per_gmm)
+        if tol.speed_from_last_run:
+            report.verdict = replace(report.verdict, flags=(*report.verdict.flags,
+                                                            VerdictFlag.SPEED_FROM_LAST_RUN))
     return report
 
 

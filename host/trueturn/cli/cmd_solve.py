@@ -90,6 +90,9 @@ def report_json(report: SolveReport, has_phase: bool) -> dict[str, Any]:
                                 "couple_gmm": _r(sc.couple_gmm), "couple_angle_deg": _r(sc.couple_angle_deg, 2)}
     if report.verdict is not None:
         out["tolerance"] = verdict_json(report)
+        if VerdictFlag.SPEED_FROM_LAST_RUN in report.verdict.flags:
+            out["warnings"].append(VERDICT_FLAG_TEXT[VerdictFlag.SPEED_FROM_LAST_RUN].format(
+                speed_rpm=report.verdict.speed_rpm or 0.0))
     if s.influence is not None:
         out["influence"] = [{"sensor": c.sensor, "plane": c.plane, "amp_per_g": _r(c.amp_per_g, 8),
                              "phase_deg": _r(c.phase_deg, 3), "speed_rpm": c.speed_rpm}
@@ -128,7 +131,8 @@ VERDICT_FLAG_TEXT = {
     VerdictFlag.CG_ASSUMED_MIDWAY: "centre of mass not given (tolerance.cg_axial_mm): taken "
                                    "midway between the bearings",
     VerdictFlag.SPEED_FROM_LAST_RUN: "no maximum service speed given (tolerance.speed_rpm): "
-                                     "judged at the last run's speed",
+                                     "judged at the last run's speed, {speed_rpm:g} rpm; "
+                                     "give the machine's maximum service speed",
     VerdictFlag.AMBIGUOUS: "the answer is ambiguous: no pass can be given",
 }
 
@@ -148,7 +152,8 @@ def verdict_text(report: SolveReport) -> list[str]:
     if v.arrangement is not None:
         lines.append(f"  correction planes {v.arrangement.value} of the bearings")
     lines.append("  -> " + ("PASS" if v.passed else "not yet within tolerance"))
-    lines += [f"  note: {VERDICT_FLAG_TEXT[f]}" for f in v.flags]
+    lines += [f"  note: {VERDICT_FLAG_TEXT[f].format(speed_rpm=v.speed_rpm or 0.0)}"
+              for f in v.flags]
     return lines
 
 

@@ -64,18 +64,21 @@ def reduction(sc, corrections, rng=None) -> float:
 
 
 def linear_document(residual_g: tuple[complex, complex], bearings: bool = True,
-                    speeds_rpm: tuple[float, ...] | None = None) -> dict:
+                    speeds_rpm: tuple[float, ...] | None = None, exponent: float = 0.0,
+                    trial_g: float = 5.0, check_run: bool = True) -> dict:
     """READINGS from a known linear two-plane rotor (R = A (U0 + W)); the check run leaves
-    ``residual_g`` (grams at 75 mm) in the planes; ``speeds_rpm``: one per run (4 runs).
+    ``residual_g`` (grams at 75 mm) in the planes; ``speeds_rpm``: one per run (4 runs), the
+    1x scaled by ``(n / n_first) ** exponent``; the correction that zeroes it is ``-U0``.
     Constructed numbers: the tests check the engine against formulas (statics, ISO
     21940-11), not against these values."""
     a = np.array([[phasor(0.30, 40), phasor(0.12, 300)], [phasor(0.10, 110), phasor(0.28, 20)]])
     u0 = np.array([phasor(3.0, 70), phasor(2.0, 250)])
-    runs_w = [np.zeros(2, complex), np.array([phasor(5, 0), 0]), np.array([0, phasor(5, 90)]),
-              np.array(residual_g) - u0]
+    runs_w = [np.zeros(2, complex), np.array([phasor(trial_g, 0), 0]),
+              np.array([0, phasor(trial_g, 90)]), np.array(residual_g) - u0][:4 if check_run else 3]
+    speeds = speeds_rpm or (1.0,) * len(runs_w)
 
-    def reading(w):
-        r = a @ (u0 + w)
+    def reading(w, speed=1.0):
+        r = a @ (u0 + w) * (speed / speeds[0]) ** exponent
         return {s: {"amp": float(abs(v)), "phase_deg": float(np.degrees(np.angle(v)) % 360)}
                 for s, v in zip(("left", "right"), r, strict=True)}
 
@@ -86,8 +89,8 @@ def linear_document(residual_g: tuple[complex, complex], bearings: bool = True,
     doc = {"planes": [{"name": "wheel L", "radius_mm": 75, "axial_mm": -150},
                       {"name": "wheel R", "radius_mm": 75, "axial_mm": 150}],
            "sensors": [{"name": "left"}, {"name": "right"}],
-           "runs": [{"label": f"run {k}", "added": added(w), "readings": reading(w)}
-                    for k, w in enumerate(runs_w)],
+           "runs": [{"label": f"run {k}", "added": added(w), "readings": reading(w, n)}
+                    for k, (w, n) in enumerate(zip(runs_w, speeds, strict=True))],
            "tolerance": {"rotor_mass_kg": 4.5, "grade": 6.3, "speed_rpm": 3538.8}}
     if speeds_rpm is not None:
         for run, speed in zip(doc["runs"], speeds_rpm, strict=True):
@@ -95,3 +98,7 @@ def linear_document(residual_g: tuple[complex, complex], bearings: bool = True,
     if bearings:
         doc["bearings"] = [{"name": "motor end", "axial_mm": -60}, {"name": "free end", "axial_mm": 60}]
     return doc
+
+
+#: the correction that zeroes the 1x of :func:`linear_document`'s rotor: minus its U0
+LINEAR_TRUE_CORRECTION_G = (-phasor(3.0, 70), -phasor(2.0, 250))

@@ -127,6 +127,9 @@ class BalanceInput:
     influence: tuple[SavedCoefficient, ...] = field(default_factory=tuple)
     tolerance: Tolerance | None = None
     bearings: tuple[Bearing, ...] = ()
+    #: local slope p of the 1x with speed (1x ~ speed**p), e.g. from a coast-down sweep;
+    #: when given, readings are normalised to their group's reference speed
+    speed_exponent: float | None = None
 
     @property
     def has_phase(self) -> bool:
@@ -341,5 +344,12 @@ def parse_readings(doc: Any, source: str = "READINGS") -> BalanceInput:
             cg_axial_mm=None if cg_axial is None else _number(cg_axial, f"{at}.cg_axial_mm"),
             speed_from_last_run=from_last_run,
         )
+    exponent = doc.get("speed_exponent")
+    speed_exponent = None
+    if exponent is not None:
+        speed_exponent = _number(exponent, f"{source}: speed_exponent")
+        if not 0.0 <= speed_exponent <= 6.0:
+            raise UserError(f"{source}: speed_exponent: expected 0...6 (1x ~ speed**p; "
+                            f"usually 2...4), got {exponent!r}")
     return BalanceInput(tuple(planes), tuple(sensors), tuple(runs), tuple(saved), tolerance,
-                        tuple(bearings))
+                        tuple(bearings), speed_exponent)

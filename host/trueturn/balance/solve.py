@@ -21,6 +21,12 @@ from trueturn.balance.iso21940 import (
     verdict,
 )
 from trueturn.balance.readings import BalanceInput
+from trueturn.balance.speed import (
+    SpeedErrorEstimate,
+    normalise_speeds,
+    off_speed_runs,
+    speed_error_estimate,
+)
 from trueturn.balance.static_couple import StaticCouple, static_couple
 
 
@@ -32,12 +38,26 @@ class SolveReport:
     u_per_gmm: float | None = None
     verdict: Verdict | None = None
     static_couple: StaticCouple | None = None
+    #: runs of a speed group taken at speeds more than 0.3 % apart, and what it may cost
+    speed: SpeedErrorEstimate | None = None
 
 
 def solve(inp: BalanceInput) -> SolveReport:
-    """Compute corrections for a checked READINGS input."""
-    solution = solve_with_phase(inp) if inp.has_phase else solve_amplitude_only(inp)
-    report = SolveReport(solution)
+    """Compute corrections for a checked READINGS input.
+
+    Runs at slightly different speeds are normalised when ``inp.speed_exponent`` is known,
+    otherwise reported with an error estimate (:mod:`trueturn.balance.speed`).
+    """
+    solver = solve_with_phase if inp.has_phase else solve_amplitude_only
+    if inp.speed_exponent is not None:
+        solution = solver(normalise_speeds(inp, inp.speed_exponent))
+        off = off_speed_runs(inp.runs)
+        speed = (SpeedErrorEstimate(tuple(off), (), (), 1.0, inp.speed_exponent)
+                 if off else None)
+    else:
+        solution = solver(inp)
+        speed = speed_error_estimate(inp, solution, solver)
+    report = SolveReport(solution, speed=speed)
     if len(solution.corrections) == 2:
         first, second = solution.corrections
         report.static_couple = static_couple(first.vector_g * first.radius_mm,

@@ -76,7 +76,7 @@ def report_json(report: SolveReport, has_phase: bool) -> dict[str, Any]:
         "corrections": [_correction_json(c) for c in s.corrections],
         "predicted_residual": {k: _phasor_json(v, has_phase) for k, v in s.predicted_residual.items()},
         "condition_number": _r(s.condition_number, 3),
-        "warnings": list(s.warnings),
+        "warnings": list(s.warnings) + speed_warnings(report),
         "trial_masses": s.trial_masses,
         "on_rotor_now": [{"plane": m.plane, "mass_g": m.mass_g, "angle_deg": m.angle_deg}
                          for m in s.on_rotor_now],
@@ -93,11 +93,53 @@ def report_json(report: SolveReport, has_phase: bool) -> dict[str, Any]:
         if VerdictFlag.SPEED_FROM_LAST_RUN in report.verdict.flags:
             out["warnings"].append(VERDICT_FLAG_TEXT[VerdictFlag.SPEED_FROM_LAST_RUN].format(
                 speed_rpm=report.verdict.speed_rpm or 0.0))
+    if report.speed is not None:
+        out["off_speed"] = speed_json(report)
     if s.influence is not None:
         out["influence"] = [{"sensor": c.sensor, "plane": c.plane, "amp_per_g": _r(c.amp_per_g, 8),
                              "phase_deg": _r(c.phase_deg, 3), "speed_rpm": c.speed_rpm}
                             for c in s.influence.as_saved()]
     return out
+
+
+def speed_warnings(report: SolveReport) -> list[str]:
+    """Runs at different speeds in words (the facts are in ``report.speed``)."""
+    est = report.speed
+    if est is None:
+        return []
+    lines = []
+    for r in est.off_speed:
+        low, high = sorted(100 * abs(e) for e in r.amplitude_error_range)
+        way = "below" if r.deviation < 0 else "above"
+        lines.append(f"run '{r.label}' at {r.speed_rpm:g} rpm is {100 * abs(r.deviation):.1f} % "
+                     f"{way} its group's {r.reference_rpm:g} rpm: its 1x reads about "
+                     f"{low:.1f}...{high:.1f} % {'low' if r.deviation < 0 else 'high'} "
+                     "(1x ~ speed^2...speed^4)")
+    if est.normalised_with_exponent is not None:
+        lines.append(f"readings normalised to each group's reference speed with 1x ~ "
+                     f"speed^{est.normalised_with_exponent:g} (speed_exponent)")
+    elif est.correction_change_fraction:
+        worst = max(est.correction_change_fraction)
+        lines.append(f"speed differences: the correction may be off by up to {100 * worst:.0f} % "
+                     f"(vector), so it might cut the unbalance by only "
+                     f"{100 * max(est.worst_cut_fraction, 0.0):.0f} %; repeat the off-speed "
+                     "run(s) at the reference speed, or give speed_exponent (the local slope, "
+                     "e.g. from a coast-down sweep)")
+    return lines
+
+
+def speed_json(report: SolveReport) -> dict[str, Any] | None:
+    est = report.speed
+    if est is None:
+        return None
+    return {"runs": [{"run": r.index, "label": r.label, "speed_rpm": r.speed_rpm,
+                      "reference_rpm": r.reference_rpm, "deviation": _r(r.deviation, 6),
+                      "amplitude_error_range": [_r(e, 6) for e in r.amplitude_error_range]}
+                     for r in est.off_speed],
+            "correction_change_g": [_r(x) for x in est.correction_change_g],
+            "correction_change_fraction": [_r(x) for x in est.correction_change_fraction],
+            "worst_cut_fraction": _r(est.worst_cut_fraction),
+            "normalised_with_exponent": est.normalised_with_exponent}
 
 
 def verdict_json(report: SolveReport) -> dict[str, Any]:
@@ -195,7 +237,7 @@ def report_text(report: SolveReport, has_phase: bool) -> str:
                      f"{(sc.couple_angle_deg + 180) % 360:.1f}°")
     if report.verdict is not None:
         lines += verdict_text(report)
-    for w in s.warnings:
+    for w in [*s.warnings, *speed_warnings(report)]:
         lines.append(f"warning: {w}")
     lines += ["", CAUTION]
     return "\n".join(lines)

@@ -1,0 +1,137 @@
+"""Runs at slightly different speeds: find them, estimate what they cost, normalise them.
+
+The influence-coefficient method assumes every run of a speed group was taken at the same
+speed. The 1x response to unbalance scales with speed as ``(n / n_ref) ** p``: the
+centrifugal force goes as omega^2, and the mounting adds omega^0 (displacement, well below a
+resonance) up to omega^2 more (velocity or acceleration pickups, or near a resonance), so
+``p`` lies between about 2 and 4 (forced-vibration response of a single-degree-of-freedom
+system, from memory: any vibration textbook, e.g. Thomson, *Theory of Vibration with
+Applications*, rotating unbalance). A trial run 2 % slower than the as-found run then reads
+4...8 % low; when the trial changed the 1x only a little, that error lands wholly on the
+trial's apparent effect and on the influence coefficients.
+
+* :func:`off_speed_runs` lists runs more than :data:`SPEED_WARN_FRACTION` (0.3 %) from the
+  reference speed of their group (the first run of the group, usually "as found").
+* :func:`normalise_speeds` rescales every reading to its group's reference speed with a
+  known local slope ``p`` (e.g. measured on a coast-down sweep).
+* :func:`speed_error_estimate` re-solves with the readings normalised at ``p = 2`` and
+  ``p = 4`` and reports how far the correction moves: the estimated error of not knowing the
+  slope (common practice, no source: a sensitivity check by re-solving).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from trueturn.balance.influence import SPEED_MATCH, Solution, speed_groups
+from trueturn.balance.readings import BalanceInput, Reading, Run
+
+#: runs further than this fraction from their group's reference speed are reported
+SPEED_WARN_FRACTION = 0.003
+#: the range of the response's speed exponent p (1x ~ speed**p) used for the estimate
+EXPONENT_RANGE: tuple[float, float] = (2.0, 4.0)
+
+
+@dataclass(frozen=True)
+class OffSpeedRun:
+    """A run whose speed differs from its group's reference speed by ``deviation`` (signed
+    fraction: -0.02 = 2 % slow). ``amplitude_error_range`` is the reading's relative error
+    for p = 2 and p = 4 (``(n / n_ref) ** p - 1``)."""
+
+    index: int
+    label: str
+    speed_rpm: float
+    reference_rpm: float
+    deviation: float
+    amplitude_error_range: tuple[float, float]
+
+
+@dataclass(frozen=True)
+class SpeedErrorEstimate:
+    """What the speed differences may cost: per plane, the vector change of the correction
+    (grams) and that change as a fraction of the correction, worst over p = 2...4; and the
+    1x cut the correction would still give if the worst case were the truth."""
+
+    off_speed: tuple[OffSpeedRun, ...]
+    correction_change_g: tuple[float, ...]
+    correction_change_fraction: tuple[float, ...]
+    worst_cut_fraction: float
+    normalised_with_exponent: float | None = None
+
+
+def _reference_speeds(runs: Sequence[Run]) -> list[float | None]:
+    """Each run's reference: the speed of the first run of its group (within 3 %)."""
+    groups = speed_groups(runs)
+    refs: list[float | None] = []
+    for run in runs:
+        if run.speed_rpm is None:
+            refs.append(None)
+            continue
+        group = next(g for g in groups if g is not None and abs(run.speed_rpm - g) <= SPEED_MATCH * g)
+        refs.append(group)
+    return refs
+
+
+def off_speed_runs(runs: Sequence[Run], warn_fraction: float = SPEED_WARN_FRACTION
+                   ) -> list[OffSpeedRun]:
+    """Runs more than ``warn_fraction`` from their group's reference speed."""
+    out = []
+    for k, (run, ref) in enumerate(zip(runs, _reference_speeds(runs), strict=True)):
+        if run.speed_rpm is None or ref is None:
+            continue
+        deviation = run.speed_rpm / ref - 1.0
+        if abs(deviation) > warn_fraction:
+            ratio = run.speed_rpm / ref
+            errors = tuple(float(ratio ** p - 1.0) for p in EXPONENT_RANGE)
+            out.append(OffSpeedRun(k, run.label, run.speed_rpm, ref, deviation,
+                                   (errors[0], errors[1])))
+    return out
+
+
+def normalise_speeds(inp: BalanceInput, exponent: float) -> BalanceInput:
+    """Readings rescaled to their group's reference speed: ``R * (n_ref / n) ** exponent``
+    (amplitude and confidence radius; phase unchanged)."""
+    runs = []
+    for run, ref in zip(inp.runs, _reference_speeds(inp.runs), strict=True):
+        if run.speed_rpm is None or ref is None or run.speed_rpm == ref:
+            runs.append(run)
+            continue
+        scale = (ref / run.speed_rpm) ** exponent
+        readings = {name: Reading(r.amp * scale, r.phase_deg,
+                                  None if r.confidence is None else r.confidence * scale)
+                    for name, r in run.readings.items()}
+        runs.append(replace(run, readings=readings))
+    return replace(inp, runs=tuple(runs))
+
+
+def speed_error_estimate(inp: BalanceInput, solution: Solution,
+                         solver: Callable[[BalanceInput], Solution],
+                         normalised_with_exponent: float | None = None
+                         ) -> SpeedErrorEstimate | None:
+    """Re-solve with readings normalised at p = 2 and p = 4; None when no run is off speed.
+
+    ``solution`` is the answer given (from ``inp`` as it is, or normalised with a known
+    exponent); ``solver`` the function that produced it (phase or amplitude-only).
+    """
+    off = off_speed_runs(inp.runs)
+    if not off:
+        return None
+    given = np.array([c.vector_g for c in solution.corrections])
+    worst_change = np.zeros(len(given))
+    worst_cut = 1.0
+    for p in EXPONENT_RANGE:
+        other = solver(normalise_speeds(inp, p))
+        alt = np.array([c.vector_g for c in other.corrections])
+        change = np.abs(alt - given)
+        worst_change = np.maximum(worst_change, change)
+        # if `alt` were the true correction, applying `given` leaves |alt - given| of it
+        size = float(np.linalg.norm(alt))
+        if size > 0:
+            worst_cut = min(worst_cut, 1.0 - float(np.linalg.norm(alt - given)) / size)
+    fraction = worst_change / np.maximum(np.abs(given), 1e-30)
+    return SpeedErrorEstimate(tuple(off), tuple(float(x) for x in worst_change),
+                              tuple(float(x) for x in fraction), worst_cut,
+                              normalised_with_exponent)

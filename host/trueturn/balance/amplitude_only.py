@@ -32,10 +32,14 @@ from trueturn.balance.influence import (
     trial_handling,
 )
 from trueturn.balance.readings import BalanceInput
+from trueturn.balance.sanity import check_trial_information
 from trueturn.errors import UserError
 
 #: two fitted answers closer than this fraction of their size are the same answer
 SAME_ANSWER = 0.05
+#: fit scatter (RMS) above this fraction of the mean reading: inconsistent readings, warned
+#: and never given a PASS (common practice, no source)
+MAX_FIT_SCATTER = 0.10
 
 
 def _fit(w: np.ndarray, v: np.ndarray, weights: np.ndarray, u0: complex, t0: np.ndarray):
@@ -128,6 +132,17 @@ def solve_amplitude_only(inp: BalanceInput) -> Solution:
                         "different trial positions or masses")
     names = [s.name for s in inp.sensors]
     v = np.array([[r.readings[n].amp for n in names] for r in inp.runs])
+    if not np.any(v > 0):
+        raise UserError("amplitude-only method: every reading is zero: no vibration was "
+                        "measured (check the pickups and their cables)")
+    # no information, no answer: the trials must change the amplitudes beyond their scatter
+    conf = np.array([[r.readings[n].confidence or 0.0 for n in names] for r in inp.runs])
+    check_trial_information(
+        plane.name, float(np.max(np.abs(w))),
+        [float(np.max(np.abs(v[1:, s] - v[0, s]))) for s in range(len(names))],
+        [float(v[0, s]) for s in range(len(names))],
+        [float(np.sqrt(2.0) * conf[:, s].max()) if conf[:, s].any() else None
+         for s in range(len(names))])
     weights = np.array([s.weight for s in inp.sensors])
     distinct, jac = fit_amplitude_only(w, v, weights)
     best_u, best_t, best_cost = distinct[0]
@@ -167,6 +182,21 @@ def solve_amplitude_only(inp: BalanceInput) -> Solution:
         angle_pm = 180.0 if r95 >= abs(best_u) else float(np.degrees(np.arcsin(r95 / abs(best_u))))
         pm = (mass_pm, angle_pm)
     mass, angle = (float(x) for x in amplitude_phase(-best_u))
+    if rivals:
+        # the ± covers every answer that fits equally well
+        others = [amplitude_phase(-d[0]) for d in rivals]
+        spread_mass = max(abs(m - mass) for m, _ in others)
+        spread_angle = max(abs(angle_difference_deg(a, angle)) for _, a in others)
+        pm = (max(pm[0] if pm else 0.0, spread_mass), max(pm[1] if pm else 0.0, spread_angle))
+    scatter = fit_rms / np.maximum(np.mean(v, axis=0), 1e-30)
+    inconsistent = bool(np.max(scatter) > MAX_FIT_SCATTER)
+    if inconsistent:
+        worst = int(np.argmax(scatter))
+        warnings.append(f"inconsistent amplitudes: the fit scatters by {fit_rms[worst]:.3g} on "
+                        f"pickup {names[worst]}'s readings of {v[:, worst].min():.3g}..."
+                        f"{v[:, worst].max():.3g} ({100 * scatter[worst]:.0f} %, want ≤ "
+                        f"{100 * MAX_FIT_SCATTER:.0f} %); repeat the runs (steady speed, masses "
+                        "fastened, pickup firm)")
     correction = Correction(plane.name, mass, angle, plane.radius_mm,
                             None if pm is None else pm[0], None if pm is None else pm[1])
     now = inp.runs[-1].added
@@ -177,7 +207,9 @@ def solve_amplitude_only(inp: BalanceInput) -> Solution:
     return Solution(
         method=method,
         corrections=[correction],
-        predicted_residual={n: complex(fit_rms[s]) for s, n in enumerate(names)},
+        predicted_residual={},
+        fit_scatter={n: float(fit_rms[s]) for s, n in enumerate(names)},
+        inconsistent=inconsistent,
         condition_number=cond,
         warnings=warnings,
         trial_masses=trial_handling(inp.runs),

@@ -25,6 +25,7 @@ from scipy.optimize import minimize
 
 from trueturn.angles import amplitude_phase
 from trueturn.balance.readings import BalanceInput, PlacedMass, Plane, Run, SavedCoefficient
+from trueturn.balance.sanity import check_trial_information
 from trueturn.errors import UserError
 
 #: a 95 % confidence circle holds a 2-D normal within this many per-axis sigmas
@@ -114,6 +115,10 @@ class Solution:
     residual_now_vector_gmm: list[complex] | None = None
     candidates: list[list[Correction]] = field(default_factory=list)
     ambiguous: bool = False
+    #: amplitude-only: RMS misfit of the amplitudes per pickup (reading units), not a prediction
+    fit_scatter: dict[str, float] | None = None
+    #: amplitude-only: the fit scatter exceeds 10 % of the readings (no PASS is given)
+    inconsistent: bool = False
 
 
 # ----------------------------------------------------------------------------- helpers
@@ -362,6 +367,24 @@ def _trial_warnings(inp: BalanceInput, r0: np.ndarray, model: InfluenceModel) ->
     return warnings
 
 
+def _refuse_uninformative_trials(inp: BalanceInput, r0: np.ndarray, model: InfluenceModel) -> None:
+    """No information, no answer: a plane whose trial is unresolved on every pickup is refused
+    (:func:`trueturn.balance.sanity.check_trial_information`)."""
+    conf: dict[str, float] = {}
+    for run in inp.runs:
+        for name, r in run.readings.items():
+            if r.confidence:
+                conf[name] = max(conf.get(name, 0.0), r.confidence)
+    for j, plane in enumerate(inp.planes):
+        trial_g = max(abs(mass_vector(r.added, inp.planes)[j]) for r in inp.runs)
+        effects = [float(abs(model.matrix[c, j]) * trial_g) for c in range(len(model.channels))]
+        levels = [float(abs(v)) for v in r0]
+        # the change of a reading: two independent 95 % circles add in quadrature
+        unc = [float(np.sqrt(2.0) * conf[ch.sensor]) if ch.sensor in conf else None
+               for ch in model.channels]
+        check_trial_information(plane.name, trial_g, effects, levels, unc)
+
+
 def _corrections(planes: Sequence[Plane], c: np.ndarray,
                  pm: tuple[list[float], list[float]] | None = None) -> list[Correction]:
     out = []
@@ -394,6 +417,8 @@ def solve_with_phase(inp: BalanceInput) -> Solution:
         raise SingularSystemError(
             f"{len(planes)} planes need at least {len(planes)} pickup readings "
             f"(pickups × speeds), got {len(model.channels)}")
+    if not inp.influence:
+        _refuse_uninformative_trials(inp, r0, model)
     weights = np.array([next(s.weight for s in inp.sensors if s.name == ch.sensor)
                         for ch in model.channels])
     aw = matrix * weights[:, None]

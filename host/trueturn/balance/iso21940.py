@@ -140,6 +140,8 @@ class VerdictFlag(str, Enum):
     SPEED_FROM_LAST_RUN = "speed_from_last_run"
     #: the answer is ambiguous (amplitude-only): no PASS can be given
     AMBIGUOUS = "ambiguous"
+    #: the amplitudes do not fit one answer (amplitude-only): no PASS can be given
+    INCONSISTENT = "inconsistent"
 
 
 @dataclass(frozen=True)

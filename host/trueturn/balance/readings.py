@@ -291,7 +291,7 @@ def parse_readings(doc: Any, source: str = "READINGS") -> BalanceInput:
         plane = _name(_require(item, "plane", at), f"{at}.plane")
         if plane not in plane_names:
             raise UserError(f"{at}.plane: unknown plane '{plane}'")
-        amp = _number(_require(item, "amp_per_g", at), f"{at}.amp_per_g", nonneg=True)
+        amp = _number(_require(item, "amp_per_g", at), f"{at}.amp_per_g", positive=True)
         phase = _angle(_require(item, "phase_deg", at), f"{at}.phase_deg")
         speed = item.get("speed_rpm")
         speed_rpm = None if speed is None else _number(speed, f"{at}.speed_rpm", positive=True)

@@ -8,7 +8,7 @@ otherwise in the correction planes, flagged :attr:`VerdictFlag.NOT_AT_BEARINGS`.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, replace
+from dataclasses import dataclass, field, replace
 
 from trueturn.balance.amplitude_only import solve_amplitude_only
 from trueturn.balance.influence import Solution, solve_with_phase
@@ -21,6 +21,7 @@ from trueturn.balance.iso21940 import (
     verdict,
 )
 from trueturn.balance.readings import BalanceInput
+from trueturn.balance.sanity import CorrectionFinding, check_corrections
 from trueturn.balance.speed import (
     SpeedErrorEstimate,
     normalise_speeds,
@@ -40,6 +41,8 @@ class SolveReport:
     static_couple: StaticCouple | None = None
     #: runs of a speed group taken at speeds more than 0.3 % apart, and what it may cost
     speed: SpeedErrorEstimate | None = None
+    #: corrections allowed but large against the rotor's mass (shown loudly)
+    correction_findings: list[CorrectionFinding] = field(default_factory=list)
 
 
 def solve(inp: BalanceInput) -> SolveReport:
@@ -57,7 +60,10 @@ def solve(inp: BalanceInput) -> SolveReport:
     else:
         solution = solver(inp)
         speed = speed_error_estimate(inp, solution, solver)
-    report = SolveReport(solution, speed=speed)
+    rotor_kg = inp.tolerance.rotor_mass_kg if inp.tolerance is not None else None
+    findings = check_corrections([c.mass_g for c in solution.corrections],
+                                 [c.plane for c in solution.corrections], rotor_kg)
+    report = SolveReport(solution, speed=speed, correction_findings=findings)
     if len(solution.corrections) == 2:
         first, second = solution.corrections
         report.static_couple = static_couple(first.vector_g * first.radius_mm,
@@ -67,9 +73,19 @@ def solve(inp: BalanceInput) -> SolveReport:
         report.u_per_gmm = permissible_unbalance_gmm(tol.grade_mm_s, tol.speed_rpm,
                                                      tol.rotor_mass_kg)
         report.verdict = tolerance_verdict(inp, solution, report.u_per_gmm)
+        extra = []
         if tol.speed_from_last_run:
-            report.verdict = replace(report.verdict, flags=(*report.verdict.flags,
-                                                            VerdictFlag.SPEED_FROM_LAST_RUN))
+            extra.append(VerdictFlag.SPEED_FROM_LAST_RUN)
+        if solution.ambiguous:
+            extra.append(VerdictFlag.AMBIGUOUS)
+        if solution.inconsistent:
+            extra.append(VerdictFlag.INCONSISTENT)
+        if extra:
+            # an ambiguous or inconsistent answer never comes with a PASS
+            withheld = solution.ambiguous or solution.inconsistent
+            report.verdict = replace(report.verdict,
+                                     passed=report.verdict.passed and not withheld,
+                                     flags=(*report.verdict.flags, *extra))
     return report
 
 

@@ -76,12 +76,13 @@ def report_json(report: SolveReport, has_phase: bool) -> dict[str, Any]:
         "corrections": [_correction_json(c) for c in s.corrections],
         "predicted_residual": {k: _phasor_json(v, has_phase) for k, v in s.predicted_residual.items()},
         "condition_number": _r(s.condition_number, 3),
-        "warnings": list(s.warnings) + speed_warnings(report),
+        "warnings": list(s.warnings) + speed_warnings(report) + size_warnings(report),
         "trial_masses": s.trial_masses,
         "on_rotor_now": [{"plane": m.plane, "mass_g": m.mass_g, "angle_deg": m.angle_deg}
                          for m in s.on_rotor_now],
         "corrections_keeping_current": [_correction_json(c) for c in s.corrections_keeping_current],
         "ambiguous": s.ambiguous,
+        "inconsistent": s.inconsistent,
         "candidates": [[_correction_json(c) for c in cand] for cand in s.candidates],
     }
     if report.static_couple is not None:
@@ -93,6 +94,12 @@ def report_json(report: SolveReport, has_phase: bool) -> dict[str, Any]:
         if VerdictFlag.SPEED_FROM_LAST_RUN in report.verdict.flags:
             out["warnings"].append(VERDICT_FLAG_TEXT[VerdictFlag.SPEED_FROM_LAST_RUN].format(
                 speed_rpm=report.verdict.speed_rpm or 0.0))
+    if s.fit_scatter is not None:
+        out["fit_scatter"] = {k: _r(v, 6) for k, v in s.fit_scatter.items()}
+    if report.correction_findings:
+        out["large_corrections"] = [
+            {"plane": f.plane, "mass_g": _r(f.mass_g), "share_of_rotor": _r(f.share_of_rotor, 6),
+             "flag": f.flag.value} for f in report.correction_findings]
     if report.speed is not None:
         out["off_speed"] = speed_json(report)
     if s.influence is not None:
@@ -126,6 +133,13 @@ def speed_warnings(report: SolveReport) -> list[str]:
                      "run(s) at the reference speed, or give speed_exponent (the local slope, "
                      "e.g. from a coast-down sweep)")
     return lines
+
+
+def size_warnings(report: SolveReport) -> list[str]:
+    """Corrections large against the rotor's mass, loudly."""
+    return [f"LARGE CORRECTION: plane {f.plane}: {f.mass_g:.4g} g is {100 * f.share_of_rotor:.2g} % "
+            "of the rotor's mass; check the runs before fitting it, and that the plane can hold "
+            "it at speed" for f in report.correction_findings]
 
 
 def speed_json(report: SolveReport) -> dict[str, Any] | None:
@@ -176,6 +190,7 @@ VERDICT_FLAG_TEXT = {
                                      "judged at the last run's speed, {speed_rpm:g} rpm; "
                                      "give the machine's maximum service speed",
     VerdictFlag.AMBIGUOUS: "the answer is ambiguous: no pass can be given",
+    VerdictFlag.INCONSISTENT: "the amplitudes do not fit one answer: no pass can be given",
 }
 
 
@@ -223,11 +238,15 @@ def report_text(report: SolveReport, has_phase: bool) -> str:
         lines += ["", "Other answers that fit equally well:"]
         for cand in s.candidates:
             lines += [_line(c) for c in cand]
-    lines += ["", "Predicted 1x after the correction:" if has_phase
-              else "Fit scatter of the amplitudes (the floor of what can be predicted):"]
-    for key, value in s.predicted_residual.items():
-        amp, phase = amplitude_phase(value)
-        lines.append(f"  {key:<14} {amp:10.4g}" + (f" at {phase:6.1f}°" if has_phase else ""))
+    if s.fit_scatter is not None:
+        lines += ["", "Fit scatter of the amplitudes (RMS misfit, the floor of what can be "
+                      "predicted; not a prediction):"]
+        lines += [f"  {key:<14} {value:10.4g}" for key, value in s.fit_scatter.items()]
+    else:
+        lines += ["", "Predicted 1x after the correction:"]
+        for key, value in s.predicted_residual.items():
+            amp, phase = amplitude_phase(value)
+            lines.append(f"  {key:<14} {amp:10.4g}" + (f" at {phase:6.1f}°" if has_phase else ""))
     if s.condition_number is not None:
         lines.append(f"condition number: {s.condition_number:.3g}")
     if report.static_couple is not None:
@@ -237,7 +256,7 @@ def report_text(report: SolveReport, has_phase: bool) -> str:
                      f"{(sc.couple_angle_deg + 180) % 360:.1f}°")
     if report.verdict is not None:
         lines += verdict_text(report)
-    for w in [*s.warnings, *speed_warnings(report)]:
+    for w in [*s.warnings, *speed_warnings(report), *size_warnings(report)]:
         lines.append(f"warning: {w}")
     lines += ["", CAUTION]
     return "\n".join(lines)

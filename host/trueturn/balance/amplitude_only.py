@@ -18,6 +18,8 @@ positions, or positions on one line), which are reported, never silently chosen.
 
 from __future__ import annotations
 
+from dataclasses import replace
+
 import numpy as np
 from scipy.optimize import least_squares
 
@@ -27,6 +29,7 @@ from trueturn.balance.influence import (
     MIN_TRIAL_CHANGE,
     Correction,
     Solution,
+    clipped_readings,
     mass_vector,
     speed_groups,
     trial_handling,
@@ -117,12 +120,22 @@ def _is_four_run(w: np.ndarray) -> bool:
 
 def solve_amplitude_only(inp: BalanceInput) -> Solution:
     """Correction for one plane from amplitudes only; reports ambiguity."""
+    last_clipped = any(r.clipped for r in inp.runs[-1].readings.values())
     if len(inp.planes) != 1:
         raise UserError("amplitude-only method (no phase_deg): supports exactly one plane, "
                         f"got {len(inp.planes)}; give phase readings for several planes")
     if len(speed_groups(inp.runs)) > 1:
         raise UserError("amplitude-only method: all runs must be at one speed")
     plane = inp.planes[0]
+    clipped = clipped_readings(inp.runs)
+    if clipped:
+        # a clipped reading never enters the fit: its whole run is left out (one joint fit)
+        kept = tuple(r for r in inp.runs if not any(x.clipped for x in r.readings.values()))
+        if len(kept) < 3:
+            raise UserError("amplitude-only method: after leaving out the runs with clipped "
+                            f"readings {len(kept)} run(s) remain, at least 3 are needed; repeat "
+                            "the clipped run(s) with the pickup's gain reduced")
+        inp = replace(inp, runs=kept)
     w = np.array([mass_vector(r.added, inp.planes)[0] for r in inp.runs])
     if len(w) < 3:
         raise UserError(f"amplitude-only method: needs at least 3 runs (the four-run method "
@@ -209,6 +222,8 @@ def solve_amplitude_only(inp: BalanceInput) -> Solution:
         corrections=[correction],
         predicted_residual={},
         fit_scatter={n: float(fit_rms[s]) for s, n in enumerate(names)},
+        clipped=clipped,
+        clipped_last_run=last_clipped,
         inconsistent=inconsistent,
         condition_number=cond,
         warnings=warnings,

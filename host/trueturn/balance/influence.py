@@ -119,6 +119,10 @@ class Solution:
     fit_scatter: dict[str, float] | None = None
     #: amplitude-only: the fit scatter exceeds 10 % of the readings (no PASS is given)
     inconsistent: bool = False
+    #: (run label, sensor) of every clipped reading, left out of the coefficients
+    clipped: list[tuple[str, str]] = field(default_factory=list)
+    #: the last run (the one the verdict is on) has a clipped reading: no PASS
+    clipped_last_run: bool = False
 
 
 # ----------------------------------------------------------------------------- helpers
@@ -202,25 +206,39 @@ def fit_influence(runs: Sequence[Run], planes: Sequence[Plane], sensors: Sequenc
         members = [(k, r) for k, r in enumerate(runs) if _group_of(r.speed_rpm, groups) == g]
         design = np.array([[1.0 + 0j, *mass_vector(r.added, planes)] for _, r in members])
         at = "" if g is None else f" at {g:g} rpm"
-        if len(members) < n_planes + 1:
-            raise SingularSystemError(
-                f"runs{at}: {n_planes} plane(s) need at least {n_planes + 1} runs "
-                f"(as-found plus one trial per plane), got {len(members)}")
-        if np.linalg.matrix_rank(design) < n_planes + 1 or np.linalg.cond(design) > SINGULAR_CONDITION:
-            untouched = [p.name for j, p in enumerate(planes) if np.allclose(design[:, j + 1], design[0, j + 1])]
-            why = (f"plane(s) {', '.join(untouched)} never got a different mass" if untouched
-                   else "the mass changes of the runs are not independent between planes")
-            raise SingularSystemError(f"runs{at}: singular system, {why}")
+        _check_design(design, n_planes, planes, at)
         for name in sensors:
+            # a clipped reading never enters the coefficients
+            keep = [i for i, (_, r) in enumerate(members) if not r.readings[name].clipped]
+            if len(keep) < len(members):
+                try:
+                    _check_design(design[keep], n_planes, planes, at)
+                except SingularSystemError as exc:
+                    raise SingularSystemError(
+                        f"pickup {name}: without its clipped reading(s) {exc}; repeat the "
+                        "clipped run(s) with the pickup's gain reduced") from None
             y = np.array([
                 readings_override[(k, name)] if readings_override else r.readings[name].vector
-                for k, r in members])
-            x, *_ = np.linalg.lstsq(design, y, rcond=None)
+                for k, r in (members[i] for i in keep)])
+            x, *_ = np.linalg.lstsq(design[keep], y, rcond=None)
             channels.append(Channel(name, g))
             r0_rows.append(x[0])
             a_rows.append(x[1:])
     model = InfluenceModel(tuple(p.name for p in planes), tuple(channels), np.array(a_rows))
     return np.array(r0_rows), model
+
+
+def _check_design(design: np.ndarray, n_planes: int, planes: Sequence[Plane], at: str) -> None:
+    """Enough runs, with independent mass changes, to fit R0 and one coefficient per plane."""
+    if len(design) < n_planes + 1:
+        raise SingularSystemError(
+            f"runs{at}: {n_planes} plane(s) need at least {n_planes + 1} runs "
+            f"(as-found plus one trial per plane), got {len(design)}")
+    if np.linalg.matrix_rank(design) < n_planes + 1 or np.linalg.cond(design) > SINGULAR_CONDITION:
+        untouched = [p.name for j, p in enumerate(planes) if np.allclose(design[:, j + 1], design[0, j + 1])]
+        why = (f"plane(s) {', '.join(untouched)} never got a different mass" if untouched
+               else "the mass changes of the runs are not independent between planes")
+        raise SingularSystemError(f"runs{at}: singular system, {why}")
 
 
 def model_from_saved(saved: Sequence[SavedCoefficient], planes: Sequence[Plane],
@@ -260,12 +278,16 @@ def as_found_with_model(model: InfluenceModel, runs: Sequence[Run], planes: Sequ
         g = _group_of(run.speed_rpm, groups)
         w = mass_vector(run.added, planes)
         for c, ch in enumerate(model.channels):
-            if ch.speed_rpm != g:
+            if ch.speed_rpm != g or run.readings[ch.sensor].clipped:
                 continue
             value = readings_override[(k, ch.sensor)] if readings_override else run.readings[ch.sensor].vector
             sums[c] += value - model.matrix[c] @ w
             counts[c] += 1
-    return sums / np.maximum(counts, 1)
+    if np.any(counts == 0):
+        missing = ", ".join(ch.key for c, ch in enumerate(model.channels) if counts[c] == 0)
+        raise UserError(f"pickup(s) {missing}: every reading is clipped; repeat the run with "
+                        "the pickup's gain reduced")
+    return sums / counts
 
 
 # ----------------------------------------------------------------------------- correcting
@@ -456,7 +478,14 @@ def solve_with_phase(inp: BalanceInput) -> Solution:
         residual_now_gmm=residual_unbalance_gmm(model, inp.runs[-1], planes, weights),
         residual_now_vector_gmm=residual_unbalance_vectors_gmm(model, inp.runs[-1], planes,
                                                                weights),
+        clipped=clipped_readings(inp.runs),
+        clipped_last_run=any(r.clipped for r in inp.runs[-1].readings.values()),
     )
+
+
+def clipped_readings(runs: Sequence[Run]) -> list[tuple[str, str]]:
+    """(run label, sensor) of every reading flagged clipped."""
+    return [(run.label, name) for run in runs for name, r in run.readings.items() if r.clipped]
 
 
 def residual_unbalance_gmm(model: InfluenceModel, run: Run, planes: Sequence[Plane],

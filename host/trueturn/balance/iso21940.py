@@ -142,6 +142,8 @@ class VerdictFlag(str, Enum):
     AMBIGUOUS = "ambiguous"
     #: the amplitudes do not fit one answer (amplitude-only): no PASS can be given
     INCONSISTENT = "inconsistent"
+    #: the run judged has a clipped reading (reads low): no PASS can be given
+    CLIPPED = "clipped"
 
 
 @dataclass(frozen=True)

@@ -66,6 +66,9 @@ class Reading:
     amp: float
     phase_deg: float | None = None
     confidence: float | None = None
+    #: the capture behind this reading clipped at the ADC limits: the 1x is unreliable
+    #: (reads low, phase skewed); never used for coefficients, no PASS on it
+    clipped: bool = False
 
     @property
     def vector(self) -> complex:
@@ -272,7 +275,10 @@ def parse_readings(doc: Any, source: str = "READINGS") -> BalanceInput:
             phase_deg = None if phase is None else _angle(phase, f"{r_at}.phase_deg")
             conf = r.get("confidence")
             confidence = None if conf is None else _number(conf, f"{r_at}.confidence", nonneg=True)
-            readings[name] = Reading(amp, phase_deg, confidence)
+            clipped = r.get("clipped", False)
+            if not isinstance(clipped, bool):
+                raise UserError(f"{r_at}.clipped: expected true or false, got {clipped!r}")
+            readings[name] = Reading(amp, phase_deg, confidence, clipped)
         runs.append(Run(label, added, readings, speed_rpm))
     if not runs:
         raise UserError(f"{source}: runs: at least one run is needed")

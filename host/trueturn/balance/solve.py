@@ -80,9 +80,11 @@ def solve(inp: BalanceInput) -> SolveReport:
             extra.append(VerdictFlag.AMBIGUOUS)
         if solution.inconsistent:
             extra.append(VerdictFlag.INCONSISTENT)
+        if solution.clipped_last_run:
+            extra.append(VerdictFlag.CLIPPED)
         if extra:
-            # an ambiguous or inconsistent answer never comes with a PASS
-            withheld = solution.ambiguous or solution.inconsistent
+            # an ambiguous, inconsistent or clipped answer never comes with a PASS
+            withheld = solution.ambiguous or solution.inconsistent or solution.clipped_last_run
             report.verdict = replace(report.verdict,
                                      passed=report.verdict.passed and not withheld,
                                      flags=(*report.verdict.flags, *extra))

@@ -83,6 +83,7 @@ def report_json(report: SolveReport, has_phase: bool) -> dict[str, Any]:
         "corrections_keeping_current": [_correction_json(c) for c in s.corrections_keeping_current],
         "ambiguous": s.ambiguous,
         "inconsistent": s.inconsistent,
+        "clipped": [{"run": label, "sensor": sensor} for label, sensor in s.clipped],
         "candidates": [[_correction_json(c) for c in cand] for cand in s.candidates],
     }
     if report.static_couple is not None:
@@ -136,8 +137,10 @@ def speed_warnings(report: SolveReport) -> list[str]:
 
 
 def size_warnings(report: SolveReport) -> list[str]:
-    """Corrections large against the rotor's mass, loudly."""
-    return [f"LARGE CORRECTION: plane {f.plane}: {f.mass_g:.4g} g is {100 * f.share_of_rotor:.2g} % "
+    """Corrections large against the rotor's mass, loudly; clipped readings left out."""
+    clipped = [f"run '{label}', pickup {sensor}: the reading clipped and was left out of the "
+               "coefficients; reduce the pickup's gain" for label, sensor in report.solution.clipped]
+    return clipped + [f"LARGE CORRECTION: plane {f.plane}: {f.mass_g:.4g} g is {100 * f.share_of_rotor:.2g} % "
             "of the rotor's mass; check the runs before fitting it, and that the plane can hold "
             "it at speed" for f in report.correction_findings]
 
@@ -191,6 +194,8 @@ VERDICT_FLAG_TEXT = {
                                      "give the machine's maximum service speed",
     VerdictFlag.AMBIGUOUS: "the answer is ambiguous: no pass can be given",
     VerdictFlag.INCONSISTENT: "the amplitudes do not fit one answer: no pass can be given",
+    VerdictFlag.CLIPPED: "the last run has a clipped reading (it reads low): no pass can be "
+                         "given; repeat it with the pickup's gain reduced",
 }
 
 

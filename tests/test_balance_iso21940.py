@@ -2,10 +2,13 @@
 
 from __future__ import annotations
 
+import json
 import math
+from pathlib import Path
 
 import pytest
 
+from cli_helpers import run_cli
 from trueturn.balance.iso21940 import (
     GRADES,
     allocate_two_planes,
@@ -58,3 +61,39 @@ def test_verdict():
     v = verdict([10, 30], [15, 25])
     assert not v.passed and v.worst_ratio == pytest.approx(1.2)
     assert math.isclose(verdict([5], [10]).worst_ratio, 0.5)
+
+
+@pytest.mark.parametrize(("grade", "rotor_type"), [
+    # from memory: ISO 21940-11:2016 Table 1 (same as ISO 1940-1:2003 Table 1 as recalled)
+    (6.3, "fans"), (6.3, "pumps"), (6.3, "machine-tools"), (2.5, "machine-tool drives"),
+    (2.5, "compressors"), (1, "grinding machine drives"), (0.4, "gyroscopes"),
+    (40, "cars: wheels, wheel rims, wheel sets, drive shafts"), (16, "crushing machines"),
+])
+def test_grade_table_rotor_types(grade, rotor_type):
+    by_grade = {g.grade_mm_s: g.rotor_types for g in GRADES}
+    assert rotor_type in by_grade[grade]
+    # each type is listed under one grade only
+    assert sum(rotor_type in types for types in by_grade.values()) == 1
+
+
+def test_grade_list_marks_its_source():
+    code, out, _ = run_cli(["grade", "--list"])
+    assert code == 0 and "ISO 21940-11:2016, Table 1" in out and "from memory" in out
+    rows = json.loads(run_cli(["grade", "--list", "--json"])[1])
+    assert [r["grade_mm_s"] for r in rows] == [g.grade_mm_s for g in GRADES]
+    assert all("from memory" in r["source"] for r in rows)
+
+
+def test_readme_worked_example_matches_the_table_and_the_cli():
+    # the README's example names a rotor type that the table puts under the grade it uses,
+    # and its printed figures are what the command prints
+    readme = (Path(__file__).parents[1] / "README.md").read_text(encoding="utf-8")
+    assert "G 6.3 (fans, in the example table of ISO 21940-11)" in readme
+    assert "fans" in {g.grade_mm_s: g.rotor_types for g in GRADES}[6.3]
+    code, out, _ = run_cli(["grade", "--rotor-mass-kg", "4", "--speed-rpm", "3450", "--grade",
+                            "G6.3"])
+    assert code == 0
+    for line in ("permissible specific unbalance e_per: 17.44 µm",
+                 "permissible residual unbalance U_per: 69.75 g·mm",
+                 "  plane 1: 34.88 g·mm"):
+        assert line in out and line in readme

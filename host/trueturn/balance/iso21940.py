@@ -36,35 +36,47 @@ MIN_SHARE, MAX_SHARE = 0.3, 0.7
 
 @dataclass(frozen=True)
 class Grade:
-    """A balance quality grade: G in mm/s and typical rotor types."""
+    """A balance quality grade: G in mm/s and the machinery types the standard lists for it."""
 
     grade_mm_s: float
-    examples: str
+    rotor_types: tuple[str, ...]
+
+    @property
+    def examples(self) -> str:
+        """The machinery types as one line."""
+        return "; ".join(self.rotor_types)
 
 
-#: Grades G 0.4 ... G 4000 (ratio 2.5). Examples paraphrased from memory of the table in
-#: ISO 21940-11:2016 / ISO 1940-1:2003 ("guidance for balance quality grades"); the
-#: machine's manufacturer or contract has the final word.
+#: Where :data:`GRADES` comes from (shown with the table).
+GRADES_SOURCE = ("ISO 21940-11:2016, Table 1 (guidance for balance quality grades for rotors "
+                 "in a constant (rigid) state), from memory: the grades are certain, the "
+                 "machinery types recalled (the same as ISO 1940-1:2003 Table 1) — check the "
+                 "standard; the machine's manufacturer or contract has the final word")
+
+#: Grades G 0.4 ... G 4000 (neighbours a factor 2.5 apart) with the machinery types of
+#: ISO 21940-11:2016 Table 1, from memory (see :data:`GRADES_SOURCE`).
 GRADES: tuple[Grade, ...] = (
-    Grade(4000, "crankshaft drives of rigidly mounted slow marine diesel engines with an "
-                "uneven number of cylinders"),
-    Grade(1600, "crankshaft drives of rigidly mounted large two-stroke engines"),
-    Grade(630, "crankshaft drives of rigidly mounted large four-stroke engines; elastically "
-               "mounted marine diesel engines"),
-    Grade(250, "crankshaft drives of rigidly mounted fast four-cylinder diesel engines"),
-    Grade(100, "complete fast diesel engines with six or more cylinders; car, truck and "
-               "locomotive engines"),
-    Grade(40, "car wheels and rims, wheel sets, drive shafts; crankshaft drives of "
-              "elastically mounted fast four-stroke engines"),
-    Grade(16, "drive shafts with special requirements; crushing and agricultural machinery "
-              "parts; car, truck and locomotive engine crankshaft drives"),
-    Grade(6.3, "fans, flywheels, pump impellers, centrifuge drums, paper machine rolls, "
-               "machine-tool and general machinery parts, standard electric motor rotors"),
-    Grade(2.5, "gas and steam turbines, turbo-compressors, turbine-driven pumps, "
-               "machine-tool drives, small electric armatures, computer drives"),
-    Grade(1, "grinding machine drives, small electric armatures with special requirements, "
-             "tape and record player drives"),
-    Grade(0.4, "spindles, discs and armatures of precision grinding machines, gyroscopes"),
+    Grade(4000, ("crankshaft drives for large slow marine diesel engines (piston speed below "
+                 "9 m/s), inherently unbalanced",)),
+    Grade(1600, ("crankshaft drives for large slow marine diesel engines (piston speed below "
+                 "9 m/s), inherently balanced",)),
+    Grade(630, ("crankshaft drives, inherently unbalanced, elastically mounted",)),
+    Grade(250, ("crankshaft drives, inherently unbalanced, rigidly mounted",)),
+    Grade(100, ("complete reciprocating engines for cars, trucks and locomotives",)),
+    Grade(40, ("cars: wheels, wheel rims, wheel sets, drive shafts",
+               "crankshaft drives, inherently balanced, elastically mounted")),
+    Grade(16, ("agricultural machinery", "crankshaft drives, inherently balanced, rigidly "
+               "mounted", "crushing machines", "drive shafts (cardan shafts, propeller shafts)")),
+    Grade(6.3, ("aircraft gas turbines", "centrifuges (separators, decanters)",
+                "electric motors and generators (shaft height at least 80 mm) of maximum rated "
+                "speeds up to 950 r/min", "electric motors of shaft heights smaller than 80 mm",
+                "fans", "gears", "machinery, general", "machine-tools", "paper machines",
+                "process plant machines", "pumps", "turbo chargers", "water turbines")),
+    Grade(2.5, ("compressors", "computer drives", "electric motors and generators (shaft "
+                "height at least 80 mm) of maximum rated speeds above 950 r/min",
+                "gas turbines and steam turbines", "machine-tool drives", "textile machines")),
+    Grade(1, ("audio and video drives", "grinding machine drives")),
+    Grade(0.4, ("gyroscopes", "spindles and drives of high-precision systems")),
 )
 
 

@@ -9,6 +9,7 @@ from typing import Any
 from trueturn.angles import phasor
 from trueturn.balance.iso21940 import (
     GRADES,
+    GRADES_SOURCE,
     Grade,
     Verdict,
     allocate_to_bearings,
@@ -84,10 +85,13 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
 def run(args: argparse.Namespace) -> int:
     if args.list:
         if args.json:
-            print_json([{"grade_mm_s": g.grade_mm_s, "examples": g.examples} for g in GRADES])
+            print_json([{"grade_mm_s": g.grade_mm_s, "examples": g.examples,
+                         "rotor_types": list(g.rotor_types), "source": GRADES_SOURCE}
+                        for g in GRADES])
         else:
             for g in GRADES:
                 print(f"G {g.grade_mm_s:<6g} {g.examples}")
+            print(f"source: {GRADES_SOURCE}")
         return 0
     for flag, value in (("--rotor-mass-kg", args.rotor_mass_kg), ("--speed-rpm", args.speed_rpm),
                         ("--grade", args.grade)):

@@ -44,7 +44,7 @@ from trueturn.sim.scenario import (
 TICK_HZ = 2_000_000
 BOARD_ID_SIMULATED = 2
 FIRMWARE_VERSION = (0, 1, 0)
-MAX_BLOCK_SAMPLES = 120
+MAX_BLOCK_SAMPLES = 118
 DEFAULT_RATE_HZ = 4000
 DEFAULT_CHANNELS = 2
 MIN_PERIOD_TICKS = 200  # protocol/SPEC.md 4.8
@@ -80,7 +80,24 @@ TACH_FAULTS = {
     "double": "a second spot on the shaft (scratch, dirt) triggers an extra edge",
     "knocked": "an edge comes 5-15 degrees early or late (smudged or peeling mark)",
     "off": "no tach signal at all (unplugged, not aimed, no mark)",
+    "chatter": "every edge comes with a burst of extra edges (a comparator without hysteresis "
+               "on a slow mark edge, a noisy cable); the board's hold-off drops them",
 }
+#: ``tach=chatter``: extra edges after each real one, 160 CPU cycles (20 ticks) apart, the
+#: same burst as ``emu://...?tach=chatter`` gives the real firmware.
+TACH_CHATTER_EDGES = 10
+TACH_CHATTER_GAP_TICKS = 20
+# The firmware's tach hold-off (firmware/core/tt_tachq.h): capture off after an accepted
+# edge for 1/16 of the last period, at least 100 us, at most 15 ms.
+TACH_HOLDOFF_MIN_TICKS = 200
+TACH_HOLDOFF_MAX_TICKS = 30_000
+TACH_HOLDOFF_SHIFT = 4
+
+
+def tach_holdoff_ticks(last_period_ticks: int) -> int:
+    """The board's hold-off after an accepted edge (as tt_tach_holdoff_ticks in C)."""
+    return min(TACH_HOLDOFF_MAX_TICKS,
+               max(TACH_HOLDOFF_MIN_TICKS, (last_period_ticks & 0xFFFFFFFF) >> TACH_HOLDOFF_SHIFT))
 TACH_FAULT_SHARE = 0.1
 
 
@@ -133,12 +150,14 @@ class VirtualBoard:
         self._drift_phases = self.rng.uniform(0, TWO_PI, size=2)
         self._tone_phases = self.rng.uniform(0, TWO_PI, size=8)
         self._edges_seen = 0
+        self._last_edge_tick = self.tick  # as the firmware's 0 at reset
+        self._holdoff_until = self.tick
         if self.options.tach_fault not in TACH_FAULTS:
             raise ValueError(f"tach fault must be one of {', '.join(TACH_FAULTS)}")
         self._fault_rng = np.random.default_rng(self.options.seed + 7919)
         self._next_status_tick = self.tick + STATUS_PERIOD_TICKS
         self._counters = {"samples_dropped": 0, "frames_dropped": 0, "adc_overruns": 0,
-                          "rx_bad_frames": 0}
+                          "rx_bad_frames": 0, "tach_suppressed": 0}
         self._last_error = LAST_ERRORS["none"]
         self._rx = bytearray()
         self._rx_discarding = False
@@ -373,13 +392,14 @@ class VirtualBoard:
         cut by the stop command is not sent: it was never complete)."""
         s = self._stream
         block = MAX_BLOCK_SAMPLES - MAX_BLOCK_SAMPLES % s.channels
+        timebase = {"start_tick": s.start_tick & 0xFFFFFFFF, "period_ticks": s.period_ticks}
         if final:
             del s.pending[len(s.pending) - len(s.pending) % s.channels:]
         while len(s.pending) >= block or (final and s.pending):
             chunk = s.pending[:block]
             s.pending = s.pending[block:]
             self._send("samples", {"first_index": s.pending_first & 0xFFFFFFFF,
-                                   "channels": s.channels, "samples": chunk})
+                                   "channels": s.channels, **timebase, "samples": chunk})
             s.pending_first += len(chunk)
 
     # --- physics over one generation step ----------------------------------------------------
@@ -495,9 +515,33 @@ class VirtualBoard:
             for extra in ((0.0, 0.4) if hit and fault == "double" else (0.0,)):
                 at = int(round((tau + extra * period_s) * TICK_HZ))
                 tick = t0_tick + max(0, min(at, t1_tick - t0_tick - 1))
-                self._edges_seen += 1
-                events.append((tick, 0, "tach", {"tick": tick & 0xFFFFFFFF,
-                                                 "edge_count": self._edges_seen & 0xFFFF}))
+                self._accept_edge(tick, events)
+                if fault == "chatter":
+                    self._chatter(tick, events)
+
+    def _accept_edge(self, tick: int, events: list) -> None:
+        """An edge the capture interrupt takes: queued, counted, hold-off started."""
+        self._holdoff_until = tick + tach_holdoff_ticks(tick - self._last_edge_tick)
+        self._last_edge_tick = tick
+        self._edges_seen += 1
+        events.append((tick, 0, "tach", {"tick": tick & 0xFFFFFFFF,
+                                         "edge_count": self._edges_seen & 0xFFFF}))
+
+    def _chatter(self, tick: int, events: list) -> None:
+        """The burst after an accepted edge, through the board's hold-off: edges inside it
+        only count the window as suppressed (once); any after it are taken as edges."""
+        window_hit = False
+        for k in range(1, TACH_CHATTER_EDGES + 1):
+            at = tick + k * TACH_CHATTER_GAP_TICKS
+            if at <= self._holdoff_until:
+                window_hit = True
+            else:
+                if window_hit:
+                    self._counters["tach_suppressed"] += 1
+                    window_hit = False
+                self._accept_edge(at, events)
+        if window_hit:
+            self._counters["tach_suppressed"] += 1
 
     def _sample_events(self, t0_tick: int, t1_tick: int, theta_at, omega: float,
                        events: list) -> None:
@@ -521,7 +565,9 @@ class VirtualBoard:
             if len(s.pending) == block:
                 events.append((s.start_tick + i * period, 1, "samples",
                                {"first_index": s.pending_first & 0xFFFFFFFF,
-                                "channels": s.channels, "samples": s.pending}))
+                                "channels": s.channels,
+                                "start_tick": s.start_tick & 0xFFFFFFFF,
+                                "period_ticks": period, "samples": s.pending}))
                 s.pending = []
                 s.pending_first = i + 1
 
@@ -574,6 +620,7 @@ class VirtualBoard:
                 "adc_overruns": self._counters["adc_overruns"],
                 "tach_edges": self._edges_seen & 0xFFFFFFFF,
                 "rx_bad_frames": self._counters["rx_bad_frames"] & 0xFFFF,
+                "tach_suppressed": self._counters["tach_suppressed"] & 0xFFFF,
                 "last_error": self._last_error}
 
 

@@ -30,6 +30,7 @@ def _expected_samples(index: int) -> list[int]:
 def _frame(i: int) -> bytes:
     first = i * SAMPLES_PER_FRAME
     return encode_frame("samples", i & 0xFF, {"first_index": first, "channels": 1,
+                                              "start_tick": 400, "period_ticks": 500,
                                               "samples": _expected_samples(first)})
 
 

@@ -32,15 +32,21 @@ VALID = [
     ("reply_busy", "reply", 8, dict(command_type=0x84, command_seq=13, error=4)),
     ("stream_config", "stream_config", 9, dict(rate_hz=4000, channels=2, period_ticks=250, tach_edge=1,
                               start_tick=123_456_789)),
-    ("samples", "samples", 10, dict(first_index=1024, channels=2,
-                         samples=[512, 498, 530, 477, 1023, 0, 300, 700])),
-    ("samples_longest", "samples", 255, dict(first_index=0xFFFFFF88, channels=2,
-                                  samples=[(i * 37) % 1024 for i in range(120)])),
-    ("samples_shortest", "samples", 1, dict(first_index=5, channels=1, samples=[511])),
-    ("samples_zero_bytes", "samples", 0, dict(first_index=0, channels=1, samples=[0] * 120)),
+    ("samples", "samples", 10, dict(first_index=1024, channels=2, start_tick=123_456_789,
+                                    period_ticks=250,
+                                    samples=[512, 498, 530, 477, 1023, 0, 300, 700])),
+    ("samples_longest", "samples", 255, dict(first_index=0xFFFFFF8A, channels=2,
+                                             start_tick=0xFFFFFF00, period_ticks=200,
+                                             samples=[(i * 37) % 1024 for i in range(118)])),
+    ("samples_shortest", "samples", 1, dict(first_index=5, channels=1, start_tick=400,
+                                            period_ticks=20000, samples=[511])),
+    # every byte of the payload zero except channels and the high byte of period_ticks
+    ("samples_zero_bytes", "samples", 0, dict(first_index=0, channels=1, start_tick=0,
+                                              period_ticks=0x0100, samples=[0] * 118)),
     ("tach", "tach", 42, dict(tick=4_000_000_123, edge_count=65535)),
     ("status", "status", 200, dict(uptime_ms=86_400_000, state=1, samples_dropped=3, frames_dropped=1,
-                         adc_overruns=0, tach_edges=1_234_567, rx_bad_frames=2, last_error=1)),
+                         adc_overruns=0, tach_edges=1_234_567, rx_bad_frames=2, tach_suppressed=9,
+                         last_error=1)),
     ("pong", "pong", 17, dict(token=0xDEADBEEF, tick=77)),
     ("identify", "identify", 0, {}),
     ("start", "start", 1, {}),
@@ -48,6 +54,13 @@ VALID = [
     ("configure", "configure", 3, dict(rate_hz=2000, channels=2, tach_edge=0)),
     ("ping", "ping", 4, dict(token=0x01020304)),
 ]
+
+
+# fixed part of a samples payload: first_index 16, channels, start_tick 400, period_ticks 250
+SAMPLES_HEAD_1CH = ((16).to_bytes(4, "little") + b"\x01" + (400).to_bytes(4, "little")
+                    + (250).to_bytes(2, "little"))
+SAMPLES_HEAD_2CH = ((16).to_bytes(4, "little") + b"\x02" + (400).to_bytes(4, "little")
+                    + (250).to_bytes(2, "little"))
 
 
 def frame_bytes(raw: bytes) -> bytes:
@@ -68,13 +81,13 @@ def invalid_vectors() -> list[tuple[str, bytes, str]]:
         ("unknown_type", frame_bytes(bytes((0x7E, 0))), "unknown_type"),
         ("wrong_length_fixed", frame_bytes(bytes((0x85, 5, 1, 2, 3))), "bad_length"),
         ("wrong_length_samples_odd_bytes",
-         frame_bytes(bytes((0x04, 6)) + (16).to_bytes(4, "little") + b"\x01\x10\x02\x20"),
+         frame_bytes(bytes((0x04, 6)) + SAMPLES_HEAD_1CH + b"\x10\x02\x20"),
          "bad_length"),
         ("samples_not_whole_sets",
-         frame_bytes(bytes((0x04, 6)) + (16).to_bytes(4, "little") + b"\x02\x10\x02\x20\x03\x01\x00"),
+         frame_bytes(bytes((0x04, 6)) + SAMPLES_HEAD_2CH + b"\x10\x02\x20\x03\x01\x00"),
          "bad_length"),
-        ("too_long", frame_bytes(bytes((0x04, 1)) + (0).to_bytes(4, "little") + b"\x01"
-                                 + b"\x11\x01" * 123), "too_long"),
+        ("too_long", frame_bytes(bytes((0x04, 1)) + SAMPLES_HEAD_1CH
+                                 + b"\x11\x01" * 120), "too_long"),
         ("bad_cobs", bytes((0x05, 0x85, 0x04)) + b"\x00", "cobs"),
     ]
 
@@ -95,7 +108,7 @@ def main() -> None:
         (out / "invalid" / f"{name}.bin").write_bytes(wire)
         index["invalid"].append({"name": name, "file": f"invalid/{name}.bin", "error": error,
                                  "hex": wire.hex()})
-    header = ("# Golden vectors of protocol v1, written by protocol/make_vectors.py.\n"
+    header = ("# Golden vectors of the protocol, written by protocol/make_vectors.py.\n"
               "# hex = the wire bytes (COBS body + 0x00). values = the decoded fields.\n")
     (out / "vectors.yaml").write_text(header + yaml.safe_dump(index, sort_keys=False, width=120))
 

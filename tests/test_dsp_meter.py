@@ -219,7 +219,7 @@ def _with_status(messages: list[Message], adc_overruns_end: int) -> list[Message
         return Message("status", seq, {"uptime_ms": 1000 + seq, "state": 1,
                                        "samples_dropped": 0, "frames_dropped": 0,
                                        "adc_overruns": overruns, "tach_edges": 0,
-                                       "rx_bad_frames": 0, "last_error": 0})
+                                       "rx_bad_frames": 0, "tach_suppressed": 0, "last_error": 0})
     first = next(i for i, m in enumerate(messages) if m.name == "samples")
     return [*messages[:first], status(0, 0), *messages[first:], status(1, adc_overruns_end)]
 

@@ -119,7 +119,7 @@ def _random_values(rng: random.Random, name: str) -> dict:
         values["channels"] = channels
         values["first_index"] = rng.randint(0, 0xFFFFFFFF) // channels * channels
         values["samples"] = [rng.choice([0, 1023, rng.randint(0, 1023), rng.randint(0, 0xFFFF)])
-                             for _ in range(channels * rng.randint(1, 120 // channels))]
+                             for _ in range(channels * rng.randint(1, 118 // channels))]
     return values
 
 

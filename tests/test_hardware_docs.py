@@ -185,7 +185,8 @@ def _capture(path: Path, per_channel: list[list[int]], reference_mv: int) -> Non
     interleaved = [v for pair in zip(*per_channel, strict=True) for v in pair]
     for block, start in enumerate(range(0, len(interleaved), 100)):
         frames.append(encode_frame("samples", block + 1, {
-            "first_index": start, "channels": 2, "samples": interleaved[start:start + 100]}))
+            "first_index": start, "channels": 2, "start_tick": 400, "period_ticks": 250,
+            "samples": interleaved[start:start + 100]}))
     path.write_bytes(b"".join(frames))
 
 

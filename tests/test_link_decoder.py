@@ -11,6 +11,7 @@ from trueturn.link.codec import LinkEvent, Message, StreamDecoder, encode_frame
 
 def _samples(seq: int, first: int, n: int = 8) -> bytes:
     return encode_frame("samples", seq, {"first_index": first, "channels": 2,
+                                         "start_tick": 400, "period_ticks": 250,
                                          "samples": list(range(n))})
 
 
@@ -81,7 +82,7 @@ def test_board_reset_detected_from_uptime_going_back() -> None:
     def status(seq: int, uptime_ms: int) -> bytes:
         return encode_frame("status", seq, dict(uptime_ms=uptime_ms, state=1, samples_dropped=0,
                                                 frames_dropped=0, adc_overruns=0, tach_edges=0,
-                                                rx_bad_frames=0, last_error=0))
+                                                rx_bad_frames=0, tach_suppressed=0, last_error=0))
     dec = StreamDecoder()
     items = dec.feed(status(10, 50_000) + status(11, 51_000) + status(3, 900))
     assert len(_events(items, "board_reset")) == 1

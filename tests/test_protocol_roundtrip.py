@@ -19,7 +19,7 @@ def messages(draw: st.DrawFn) -> tuple[str, int, dict]:
     values = {f.name: draw(st.integers(*LIMITS[f.type])) for f in mdef.fixed_fields}
     if mdef.name == "samples":
         channels = draw(st.integers(1, 2))
-        sets = draw(st.integers(1, 120 // channels))
+        sets = draw(st.integers(1, 118 // channels))
         values["channels"] = channels
         values["first_index"] = draw(st.integers(0, 0xFFFFFFFF // channels)) * channels
         values["samples"] = draw(st.lists(st.integers(0, 0xFFFF), min_size=sets * channels,

@@ -6,6 +6,9 @@ Every fault must be said at once on one line, exit 2, and leave a valid capture 
 
 from __future__ import annotations
 
+import json
+import re
+
 import pytest
 
 import trueturn.cli.cmd_record as rec
@@ -55,7 +58,8 @@ def test_unplug_mid_recording_says_so_keeps_a_valid_capture_and_a_new_recording_
     # the run stays marked incomplete when it is analysed later
     code, text, err = run_cli(["analyze", str(cut)])
     assert code == 0, err
-    assert "incomplete capture: 2.0" in text and "of the 20 s asked for" in text
+    # unplugged at 2 s: the samples up to the last whole block (14.75 ms) before it
+    assert re.search(r"incomplete capture: (1\.9[89]|2\.00) of the 20 s asked for", text)
     # plugged back in: the next recording goes through, and is complete
     monkeypatch.undo()
     again = tmp_path / "again.cap"
@@ -158,7 +162,7 @@ def test_analyze_refuses_a_capture_from_other_definitions_naming_both(tmp_path) 
     ours = load_catalogue().definition_hash
     raw, _ = synthesize(SyntheticRun(speed_rpm=2700.0, duration_s=1.0, send_identity=False))
     header = tmp_path / "header.cap"
-    with CaptureWriter(header, {"identity": {"protocol_version": 1,
+    with CaptureWriter(header, {"identity": {"protocol_version": 2,
                                              "definition_hash": 0x0BADF00D}}) as cap:
         cap.write(raw)
     # and one whose own identity message says so, in a plain frame file
@@ -172,7 +176,7 @@ def test_analyze_refuses_a_capture_from_other_definitions_naming_both(tmp_path) 
     plain = tmp_path / "old.frames"
     plain.write_bytes(bytes(out))
     for path, needles in ((header, ("0x0badf00d", f"{ours:#010x}")),
-                          (plain, ("protocol 3", "reads protocol 1"))):
+                          (plain, ("protocol 3", f"reads protocol {load_catalogue().protocol_version}"))):
         code, text, err = run_cli(["analyze", str(path)])
         assert code == 2 and text == "" and err.count("\n") == 1, err
         for needle in needles:
@@ -180,3 +184,53 @@ def test_analyze_refuses_a_capture_from_other_definitions_naming_both(tmp_path) 
     good = tmp_path / "good.frames"
     good.write_bytes(with_identity)
     assert run_cli(["analyze", str(good)])[0] == 0
+
+
+def _without_started_stream_config(raw: bytes) -> bytes:
+    """The capture bytes with the stream_config sent after ``start`` (start_tick != 0)
+    removed, every other frame byte for byte as received."""
+    from trueturn.link.codec import decode_frame
+
+    kept = []
+    removed = 0
+    for body in raw.split(b"\x00")[:-1]:
+        try:
+            msg = decode_frame(body)
+        except ValueError:
+            kept.append(body)
+            continue
+        if msg.name == "stream_config" and msg["start_tick"] != 0:
+            removed += 1
+            continue
+        kept.append(body)
+    assert removed == 1
+    return b"".join(b + b"\x00" for b in kept)
+
+
+def test_a_lost_stream_config_does_not_move_the_phase(tmp_path) -> None:
+    # Issue 14, item 8: on protocol 1 losing this one frame made analyze use the
+    # configure-time copy (start_tick 0) and give a confidently wrong phase (137.4 deg became
+    # 31.3 deg). Every sample block now carries its stream's timebase (SPEC 4.4), so the
+    # capture without it must give the same reading, and say what was missing.
+    from trueturn.link.capture import CaptureWriter
+
+    whole = tmp_path / "whole.cap"
+    code, _, err = run_cli(["record", "--port", "sim://bench-grinder?realtime=0&tick0=9800",
+                            "--seconds", "3", "-o", str(whole), "--quiet"])
+    assert code == 0, err
+    metadata, raw = read_capture(whole)
+    cut = tmp_path / "cut.cap"
+    with CaptureWriter(cut, {k: v for k, v in metadata.items()
+                             if k not in ("format_version",)}) as cap:
+        cap.write(_without_started_stream_config(raw))
+    readings = {}
+    for path in (whole, cut):
+        code, text, err = run_cli(["analyze", "--json", str(path)])
+        assert code == 0, err
+        readings[path.name] = json.loads(text)
+    for a, b in zip(readings["whole.cap"]["pickups"], readings["cut.cap"]["pickups"],
+                    strict=True):
+        assert abs(a["phase_deg"] - b["phase_deg"]) < 0.5
+        assert b["amplitude"] == pytest.approx(a["amplitude"], rel=0.01)
+    assert any("stream_config" in w for w in readings["cut.cap"]["warnings"])
+    assert not any("stream_config" in w for w in readings["whole.cap"]["warnings"])

@@ -54,6 +54,7 @@
 static struct tt_blocks g_blocks;
 static struct tt_tachq g_tach;
 static volatile uint16_t g_t1_overflows;
+static uint32_t g_tach_last_tick;          /* capture ISR only */
 static volatile uint16_t g_adc_period_ticks;
 static volatile uint8_t g_adc_two_channels;
 static volatile uint8_t g_adc_armed;
@@ -102,14 +103,34 @@ ISR(TIMER1_OVF_vect)
     g_t1_overflows++;
 }
 
+/* Tach edge. Hold-off: the capture interrupt is switched off after an accepted edge and
+ * back on by compare match A a fraction of the last period later (core/tt_tachq.h), so a
+ * chattering input (a comparator without hysteresis on a slow mark edge, a noisy cable)
+ * costs one interrupt per revolution instead of a storm that starves the ADC handler. */
 ISR(TIMER1_CAPT_vect)
 {
     uint16_t icr = ICR1;
     uint8_t pending = (TIFR1 & _BV(TOV1)) != 0;
-    if (tt_tachq_put(&g_tach, tt_extend_ticks(g_t1_overflows, icr, pending))) {
+    uint32_t tick = tt_extend_ticks(g_t1_overflows, icr, pending);
+    OCR1A = (uint16_t)(icr + tt_tach_holdoff_ticks(tick - g_tach_last_tick));
+    TIFR1 = _BV(OCF1A);
+    TIMSK1 = _BV(TOIE1) | _BV(OCIE1A);
+    g_tach_last_tick = tick;
+    if (tt_tachq_put(&g_tach, tick)) {
         g_last_error = TT_LAST_TACH_OVERRUN;
         g_stream_fault = 1;
     }
+}
+
+/* End of the tach hold-off: edges that came during it (ICF1 set) were chatter; count the
+ * window, clear the flag and take the next edge. */
+ISR(TIMER1_COMPA_vect)
+{
+    if (TIFR1 & _BV(ICF1)) {
+        g_tach.suppressed++;
+    }
+    TIFR1 = _BV(ICF1);
+    TIMSK1 = _BV(TOIE1) | _BV(ICIE1);
 }
 
 ISR(ADC_vect)
@@ -279,7 +300,8 @@ static uint8_t send_one_block(void)
         return 0;
     }
     if (!tx_try((uint8_t)tt_msg_samples(g_raw, g_seq, b->first_index, g_setup.channels,
-                                        b->samples, g_blocks.block_len))) {
+                                        g_start_tick, g_setup.period_ticks, b->samples,
+                                        g_blocks.block_len))) {
         return 0;
     }
     tt_blocks_release(&g_blocks);
@@ -378,6 +400,7 @@ static void service_status(uint32_t now)
         v.frames_dropped = g_tach.dropped; /* tach messages lost to a full edge queue */
         v.adc_overruns = g_adc_overruns;
         v.tach_edges = g_tach.edges_total;
+        v.tach_suppressed = g_tach.suppressed;
         v.last_error = g_last_error;
     }
     v.uptime_ms = g_uptime_ms + 1000u;

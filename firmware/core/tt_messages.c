@@ -34,13 +34,16 @@ size_t tt_msg_stream_config(uint8_t *raw, uint8_t seq, const struct tt_stream_co
 }
 
 size_t tt_msg_samples(uint8_t *raw, uint8_t seq, uint32_t first_index, uint8_t channels,
-                      const uint16_t *samples, uint8_t count)
+                      uint32_t start_tick, uint16_t period_ticks, const uint16_t *samples,
+                      uint8_t count)
 {
     struct tt_samples v;
     uint8_t *p = tt_begin(raw, TT_MSG_SAMPLES, seq);
     uint8_t i;
     v.first_index = first_index;
     v.channels = channels;
+    v.start_tick = start_tick;
+    v.period_ticks = period_ticks;
     tt_pack_samples(p, &v);
     p += TT_MSG_SAMPLES_FIXED_BYTES;
     for (i = 0; i < count; i++) {

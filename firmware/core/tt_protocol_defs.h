@@ -7,8 +7,8 @@
 
 #include <stdint.h>
 
-#define TT_PROTOCOL_VERSION 1u
-#define TT_DEFINITION_HASH 0x204D7F0FUL
+#define TT_PROTOCOL_VERSION 2u
+#define TT_DEFINITION_HASH 0x68BB8BF5UL
 #define TT_MAX_FRAME_BYTES 254u
 #define TT_HEADER_BYTES 2u
 #define TT_CRC_BYTES 2u
@@ -202,20 +202,24 @@ static inline void tt_unpack_stream_config(const uint8_t *in, struct tt_stream_c
     v->start_tick = (uint32_t)((uint32_t)(in + TT_MSG_STREAM_CONFIG_OFF_START_TICK)[0] | ((uint32_t)(in + TT_MSG_STREAM_CONFIG_OFF_START_TICK)[1] << 8) | ((uint32_t)(in + TT_MSG_STREAM_CONFIG_OFF_START_TICK)[2] << 16) | ((uint32_t)(in + TT_MSG_STREAM_CONFIG_OFF_START_TICK)[3] << 24));
 }
 
-/* 0x04 samples (device): A block of conversions, channels interleaved. Sample k of the block has index first_index + k, channel (first_index + k) mod channels, and was triggered at tick start_tick + (first_index + k) * period_ticks (mod 2^32). */
+/* 0x04 samples (device): A block of conversions, channels interleaved. Sample k of the block has index first_index + k, channel (first_index + k) mod channels, and was triggered at tick start_tick + (first_index + k) * period_ticks (mod 2^32). Every block carries its stream's timebase, so it is placed in time without any earlier frame. */
 #define TT_MSG_SAMPLES 0x04u
 #define TT_MSG_SAMPLES_DIR TT_DIR_DEVICE
 #define TT_MSG_SAMPLES_OFF_FIRST_INDEX 0u  /* u32 */
 #define TT_MSG_SAMPLES_OFF_CHANNELS 4u  /* u8 */
-#define TT_MSG_SAMPLES_FIXED_BYTES 5u
+#define TT_MSG_SAMPLES_OFF_START_TICK 5u  /* u32 */
+#define TT_MSG_SAMPLES_OFF_PERIOD_TICKS 9u  /* u16 */
+#define TT_MSG_SAMPLES_FIXED_BYTES 11u
 #define TT_MSG_SAMPLES_REST_ITEM_BYTES 2u  /* samples: u16 array */
 
 struct tt_samples {
     uint32_t first_index;
     uint8_t channels;
+    uint32_t start_tick;
+    uint16_t period_ticks;
 };
 
-/* Pack the fixed fields of samples into out[0..4] (little-endian). */
+/* Pack the fixed fields of samples into out[0..10] (little-endian). */
 static inline void tt_pack_samples(uint8_t *out, const struct tt_samples *v)
 {
     (out + TT_MSG_SAMPLES_OFF_FIRST_INDEX)[0] = (uint8_t)(v->first_index);
@@ -223,13 +227,21 @@ static inline void tt_pack_samples(uint8_t *out, const struct tt_samples *v)
     (out + TT_MSG_SAMPLES_OFF_FIRST_INDEX)[2] = (uint8_t)((v->first_index) >> 16);
     (out + TT_MSG_SAMPLES_OFF_FIRST_INDEX)[3] = (uint8_t)((v->first_index) >> 24);
     (out + TT_MSG_SAMPLES_OFF_CHANNELS)[0] = (uint8_t)(v->channels);
+    (out + TT_MSG_SAMPLES_OFF_START_TICK)[0] = (uint8_t)(v->start_tick);
+    (out + TT_MSG_SAMPLES_OFF_START_TICK)[1] = (uint8_t)((v->start_tick) >> 8);
+    (out + TT_MSG_SAMPLES_OFF_START_TICK)[2] = (uint8_t)((v->start_tick) >> 16);
+    (out + TT_MSG_SAMPLES_OFF_START_TICK)[3] = (uint8_t)((v->start_tick) >> 24);
+    (out + TT_MSG_SAMPLES_OFF_PERIOD_TICKS)[0] = (uint8_t)(v->period_ticks);
+    (out + TT_MSG_SAMPLES_OFF_PERIOD_TICKS)[1] = (uint8_t)((v->period_ticks) >> 8);
 }
 
-/* Unpack the fixed fields of samples from in[0..4]. */
+/* Unpack the fixed fields of samples from in[0..10]. */
 static inline void tt_unpack_samples(const uint8_t *in, struct tt_samples *v)
 {
     v->first_index = (uint32_t)((uint32_t)(in + TT_MSG_SAMPLES_OFF_FIRST_INDEX)[0] | ((uint32_t)(in + TT_MSG_SAMPLES_OFF_FIRST_INDEX)[1] << 8) | ((uint32_t)(in + TT_MSG_SAMPLES_OFF_FIRST_INDEX)[2] << 16) | ((uint32_t)(in + TT_MSG_SAMPLES_OFF_FIRST_INDEX)[3] << 24));
     v->channels = (uint8_t)((uint8_t)(in + TT_MSG_SAMPLES_OFF_CHANNELS)[0]);
+    v->start_tick = (uint32_t)((uint32_t)(in + TT_MSG_SAMPLES_OFF_START_TICK)[0] | ((uint32_t)(in + TT_MSG_SAMPLES_OFF_START_TICK)[1] << 8) | ((uint32_t)(in + TT_MSG_SAMPLES_OFF_START_TICK)[2] << 16) | ((uint32_t)(in + TT_MSG_SAMPLES_OFF_START_TICK)[3] << 24));
+    v->period_ticks = (uint16_t)((uint16_t)(in + TT_MSG_SAMPLES_OFF_PERIOD_TICKS)[0] | ((uint16_t)(in + TT_MSG_SAMPLES_OFF_PERIOD_TICKS)[1] << 8));
 }
 
 /* 0x05 tach (device): One once-per-rev edge captured on ICP1. */
@@ -273,8 +285,9 @@ static inline void tt_unpack_tach(const uint8_t *in, struct tt_tach *v)
 #define TT_MSG_STATUS_OFF_ADC_OVERRUNS 11u  /* u16 */
 #define TT_MSG_STATUS_OFF_TACH_EDGES 13u  /* u32 */
 #define TT_MSG_STATUS_OFF_RX_BAD_FRAMES 17u  /* u16 */
-#define TT_MSG_STATUS_OFF_LAST_ERROR 19u  /* u8 */
-#define TT_MSG_STATUS_FIXED_BYTES 20u
+#define TT_MSG_STATUS_OFF_TACH_SUPPRESSED 19u  /* u16 */
+#define TT_MSG_STATUS_OFF_LAST_ERROR 21u  /* u8 */
+#define TT_MSG_STATUS_FIXED_BYTES 22u
 #define TT_MSG_STATUS_REST_ITEM_BYTES 0u
 
 struct tt_status {
@@ -285,10 +298,11 @@ struct tt_status {
     uint16_t adc_overruns;
     uint32_t tach_edges;
     uint16_t rx_bad_frames;
+    uint16_t tach_suppressed;
     uint8_t last_error;
 };
 
-/* Pack the fixed fields of status into out[0..19] (little-endian). */
+/* Pack the fixed fields of status into out[0..21] (little-endian). */
 static inline void tt_pack_status(uint8_t *out, const struct tt_status *v)
 {
     (out + TT_MSG_STATUS_OFF_UPTIME_MS)[0] = (uint8_t)(v->uptime_ms);
@@ -310,10 +324,12 @@ static inline void tt_pack_status(uint8_t *out, const struct tt_status *v)
     (out + TT_MSG_STATUS_OFF_TACH_EDGES)[3] = (uint8_t)((v->tach_edges) >> 24);
     (out + TT_MSG_STATUS_OFF_RX_BAD_FRAMES)[0] = (uint8_t)(v->rx_bad_frames);
     (out + TT_MSG_STATUS_OFF_RX_BAD_FRAMES)[1] = (uint8_t)((v->rx_bad_frames) >> 8);
+    (out + TT_MSG_STATUS_OFF_TACH_SUPPRESSED)[0] = (uint8_t)(v->tach_suppressed);
+    (out + TT_MSG_STATUS_OFF_TACH_SUPPRESSED)[1] = (uint8_t)((v->tach_suppressed) >> 8);
     (out + TT_MSG_STATUS_OFF_LAST_ERROR)[0] = (uint8_t)(v->last_error);
 }
 
-/* Unpack the fixed fields of status from in[0..19]. */
+/* Unpack the fixed fields of status from in[0..21]. */
 static inline void tt_unpack_status(const uint8_t *in, struct tt_status *v)
 {
     v->uptime_ms = (uint32_t)((uint32_t)(in + TT_MSG_STATUS_OFF_UPTIME_MS)[0] | ((uint32_t)(in + TT_MSG_STATUS_OFF_UPTIME_MS)[1] << 8) | ((uint32_t)(in + TT_MSG_STATUS_OFF_UPTIME_MS)[2] << 16) | ((uint32_t)(in + TT_MSG_STATUS_OFF_UPTIME_MS)[3] << 24));
@@ -323,6 +339,7 @@ static inline void tt_unpack_status(const uint8_t *in, struct tt_status *v)
     v->adc_overruns = (uint16_t)((uint16_t)(in + TT_MSG_STATUS_OFF_ADC_OVERRUNS)[0] | ((uint16_t)(in + TT_MSG_STATUS_OFF_ADC_OVERRUNS)[1] << 8));
     v->tach_edges = (uint32_t)((uint32_t)(in + TT_MSG_STATUS_OFF_TACH_EDGES)[0] | ((uint32_t)(in + TT_MSG_STATUS_OFF_TACH_EDGES)[1] << 8) | ((uint32_t)(in + TT_MSG_STATUS_OFF_TACH_EDGES)[2] << 16) | ((uint32_t)(in + TT_MSG_STATUS_OFF_TACH_EDGES)[3] << 24));
     v->rx_bad_frames = (uint16_t)((uint16_t)(in + TT_MSG_STATUS_OFF_RX_BAD_FRAMES)[0] | ((uint16_t)(in + TT_MSG_STATUS_OFF_RX_BAD_FRAMES)[1] << 8));
+    v->tach_suppressed = (uint16_t)((uint16_t)(in + TT_MSG_STATUS_OFF_TACH_SUPPRESSED)[0] | ((uint16_t)(in + TT_MSG_STATUS_OFF_TACH_SUPPRESSED)[1] << 8));
     v->last_error = (uint8_t)((uint8_t)(in + TT_MSG_STATUS_OFF_LAST_ERROR)[0]);
 }
 

@@ -20,7 +20,24 @@ struct tt_tachq {
     uint16_t edge_count;            /* edges since reset, mod 2^16 (the first edge is 1) */
     volatile uint32_t edges_total;  /* edges since reset */
     volatile uint16_t dropped;      /* edges not queued because the queue was full */
+    volatile uint16_t suppressed;   /* hold-off windows in which more edges came (chatter) */
 };
+
+/* Tach hold-off after an accepted edge: 1/16 of the last period (22.5 degrees), at least
+ * 100 us and at most 15 ms (it is timed by a 16-bit compare register). A chattering input
+ * gives bursts of edges right after the real one; at 2 MHz: 200..30000 ticks. */
+#define TT_TACH_HOLDOFF_MIN_TICKS 200u
+#define TT_TACH_HOLDOFF_MAX_TICKS 30000u
+#define TT_TACH_HOLDOFF_SHIFT 4u
+
+static inline uint16_t tt_tach_holdoff_ticks(uint32_t last_period_ticks)
+{
+    uint32_t h = last_period_ticks >> TT_TACH_HOLDOFF_SHIFT;
+    if (h > TT_TACH_HOLDOFF_MAX_TICKS) {
+        return TT_TACH_HOLDOFF_MAX_TICKS;
+    }
+    return h < TT_TACH_HOLDOFF_MIN_TICKS ? (uint16_t)TT_TACH_HOLDOFF_MIN_TICKS : (uint16_t)h;
+}
 
 /* Interrupt side: record an edge at tick. Returns 1 if it could not be queued. */
 static inline uint8_t tt_tachq_put(struct tt_tachq *q, uint32_t tick)

@@ -75,6 +75,8 @@
 #define R_TCNT1H 0x85
 #define R_ICR1L 0x86
 #define R_ICR1H 0x87
+#define R_OCR1AL 0x88
+#define R_OCR1AH 0x89
 #define R_OCR1BL 0x8A
 #define R_OCR1BH 0x8B
 #define BIT_OCF1B 2
@@ -314,6 +316,32 @@ static void ocr1bl_write(struct avr_t *avr, avr_io_addr_t addr, uint8_t v, void 
     (void)param;
     avr->data[addr] = v; /* the high byte was written first, straight into data[] */
     if (E.timer_started) schedule_compb();
+}
+
+/* Compare match A (the firmware's tach hold-off): like OCR1B, OCR1A writes are kept from
+ * simavr's timer (which would restart its count); at the match the harness sets OCF1A and
+ * raises the interrupt, which simavr delivers if OCIE1A is set. */
+static avr_cycle_count_t compa_fire(struct avr_t *avr, avr_cycle_count_t when, void *param)
+{
+    (void)param;
+    avr_raise_interrupt(avr, &E.timer1->comp[0].interrupt);
+    return when + 65536u * CYCLES_PER_TICK;
+}
+
+static void ocr1al_write(struct avr_t *avr, avr_io_addr_t addr, uint8_t v, void *param)
+{
+    uint16_t ocr;
+    uint64_t now_tick, delta;
+    (void)param;
+    avr->data[addr] = v;
+    if (!E.timer_started) return;
+    ocr = (uint16_t)(avr->data[R_OCR1AL] | (avr->data[R_OCR1AH] << 8));
+    now_tick = (avr->cycle - E.t1_start) / CYCLES_PER_TICK;
+    delta = (uint16_t)(ocr - (uint16_t)now_tick);
+    if (delta == 0) delta = 65536u;
+    avr_cycle_timer_cancel(avr, compa_fire, NULL);
+    avr_cycle_timer_register(avr, E.t1_start + (now_tick + delta) * CYCLES_PER_TICK - avr->cycle,
+                             compa_fire, NULL);
 }
 
 static avr_cycle_count_t tach_fire(struct avr_t *avr, avr_cycle_count_t when, void *param);
@@ -696,6 +724,8 @@ int main(int argc, char **argv)
     E.avr->io[AVR_DATA_TO_IO(R_TCNT1L)].r.param = NULL;
     E.avr->io[AVR_DATA_TO_IO(R_OCR1BL)].w.c = ocr1bl_write;
     E.avr->io[AVR_DATA_TO_IO(R_OCR1BL)].w.param = NULL;
+    E.avr->io[AVR_DATA_TO_IO(R_OCR1AL)].w.c = ocr1al_write;
+    E.avr->io[AVR_DATA_TO_IO(R_OCR1AL)].w.param = NULL;
     for (avr_io_t *port = E.avr->io_port; port; port = port->next) {
         if (!strcmp(port->kind, "timer") && ((avr_timer_t *)port)->name == '1') {
             E.timer1 = (avr_timer_t *)port;

@@ -249,6 +249,11 @@ static void unit_tachq(void)
     tt_tachq_put(&q, 5);
     e = tt_tachq_peek(&q);
     CHECK(e != NULL && e->edge_count == TT_TACHQ_LEN + 3u); /* the gap shows in edge_count */
+    /* hold-off: 1/16 of the last period, within 100 us .. 15 ms at 2 MHz */
+    CHECK(tt_tach_holdoff_ticks(33898u) == 2118u);     /* 3540 rpm: 16.9 ms -> 1.06 ms */
+    CHECK(tt_tach_holdoff_ticks(1000u) == 200u);       /* 120000 rpm: floor 100 us */
+    CHECK(tt_tach_holdoff_ticks(4000000u) == 30000u);  /* 30 rpm: cap 15 ms */
+    CHECK(tt_tach_holdoff_ticks(0xFFFFFFFFu) == 30000u); /* first edge after reset */
 }
 
 static void unit_rx(void)
@@ -408,20 +413,22 @@ static int run_encode(void)
             raw_len = tt_msg_stream_config(raw, (uint8_t)v[0], &m);
         } else if (!strcmp(name, "samples")) {
             uint16_t s[TT_SAMPLES_MAX_PER_MESSAGE];
-            int count = nv - 3;
-            NEED(2);
+            int count = nv - 5;
+            NEED(4);
             if (count < 0 || count > (int)TT_SAMPLES_MAX_PER_MESSAGE) { printf("error count\n"); continue; }
-            for (i = 0; i < count; i++) s[i] = (uint16_t)v[3 + i];
-            raw_len = tt_msg_samples(raw, (uint8_t)v[0], (uint32_t)v[1], (uint8_t)v[2], s, (uint8_t)count);
+            for (i = 0; i < count; i++) s[i] = (uint16_t)v[5 + i];
+            raw_len = tt_msg_samples(raw, (uint8_t)v[0], (uint32_t)v[1], (uint8_t)v[2], (uint32_t)v[3],
+                                     (uint16_t)v[4], s, (uint8_t)count);
         } else if (!strcmp(name, "tach")) {
             NEED(2);
             raw_len = tt_msg_tach(raw, (uint8_t)v[0], (uint32_t)v[1], (uint16_t)v[2]);
         } else if (!strcmp(name, "status")) {
             struct tt_status m;
-            NEED(8);
+            NEED(9);
             m.uptime_ms = (uint32_t)v[1]; m.state = (uint8_t)v[2]; m.samples_dropped = (uint32_t)v[3];
             m.frames_dropped = (uint16_t)v[4]; m.adc_overruns = (uint16_t)v[5];
-            m.tach_edges = (uint32_t)v[6]; m.rx_bad_frames = (uint16_t)v[7]; m.last_error = (uint8_t)v[8];
+            m.tach_edges = (uint32_t)v[6]; m.rx_bad_frames = (uint16_t)v[7];
+            m.tach_suppressed = (uint16_t)v[8]; m.last_error = (uint8_t)v[9];
             raw_len = tt_msg_status(raw, (uint8_t)v[0], &m);
         } else if (!strcmp(name, "pong")) {
             NEED(2);

@@ -27,7 +27,8 @@ def run(args: argparse.Namespace) -> int:
     out = sys.stdout
     if not metadata.get("plain"):
         out.write(json.dumps({"capture": metadata}) + "\n")
-    decoder = StreamDecoder()
+    # a plain frame file (e.g. protocol/vectors) may hold frames of either direction
+    decoder = StreamDecoder(from_board=not metadata.get("plain"))
     for item in decoder.feed(raw):
         if isinstance(item, LinkEvent):
             record = {"event": item.kind, "detail": item.detail, "count": item.count}

@@ -87,6 +87,8 @@ def analyze_capture(raw: bytes, revs: int | None = None, mains_hz: float | None 
         except (KeyError, TypeError, ValueError):
             pass  # an incomplete header copy: rely on the bytes
     decoder = StreamDecoder()
+    if identity:
+        decoder.assume_identity(identity)
     link_notes: list[str] = []
     chunk = 1 << 16
     for start in range(0, len(raw), chunk):
@@ -95,6 +97,9 @@ def analyze_capture(raw: bytes, revs: int | None = None, mains_hz: float | None 
                 if item.kind == "board_reset":
                     link_notes.append("the board restarted during the capture; "
                                       "only the last stream is analysed")
+                elif item.kind == "stream_config_missing" and meter.config is not None:
+                    link_notes.append("a stream's stream_config message was lost; its "
+                                      "sample times were taken from the sample blocks")
                 continue
             meter.feed(item)
     meter.end_of_stream()
@@ -102,7 +107,9 @@ def analyze_capture(raw: bytes, revs: int | None = None, mains_hz: float | None 
     warnings = list(dict.fromkeys(link_notes))
     c = decoder.counters
     if c.frames_bad:
-        warnings.append(f"{c.frames_bad} damaged frame(s) skipped (CRC or framing errors)")
+        refused = c.errors["bad_value"] + c.errors["wrong_direction"]
+        warnings.append(f"{c.frames_bad} damaged frame(s) skipped (CRC or framing errors"
+                        + (f"; {refused} with values no board sends" if refused else "") + ")")
     if revs is None and meter.tach.revolutions > ALL_REVS:
         warnings.append(f"long capture: the last {ALL_REVS} revolutions are averaged")
     if meter.streams > 1:

@@ -13,7 +13,8 @@ millisecond, so the app can refresh after every revolution.
 Sample times: conversion index i was triggered at ``start_tick + i * period_ticks`` and held
 ``aperture_delay_ticks`` later (identity message), so the fit uses
 ``start_tick + i * period_ticks + aperture_delay_ticks``; the channel-to-channel skew of the
-multiplexed ADC is part of that formula.
+multiplexed ADC is part of that formula. ``start_tick`` and ``period_ticks`` are read from
+every sample block (SPEC 4.4), so a lost stream_config never misplaces a sample in time.
 """
 
 from __future__ import annotations
@@ -201,6 +202,7 @@ class LiveAnalyzer:
         self.identity_seen = False
         self.streams = 0  # streams that carried samples (a configure-only one does not count)
         self.tach = TachTracker()
+        self.timebase_from_blocks = 0  # streams whose stream_config never arrived
         self._last_status: MessageLike | None = None
         self._reset_stream(None)
 
@@ -304,11 +306,13 @@ class LiveAnalyzer:
         return self.start_tick + index * self.period_ticks + self.aperture_ticks
 
     def _samples(self, msg: MessageLike) -> bool:
-        if self.config is None:
-            return False
-        ch = self.channels
-        if int(msg["channels"]) != ch:
-            return False
+        start, period, ch = int(msg["start_tick"]), int(msg["period_ticks"]), int(msg["channels"])
+        if self.config is None or (start, period, ch) != (
+                self.start_tick & 0xFFFFFFFF, self.period_ticks, self.channels):
+            # SPEC 4.4: every block carries its stream's timebase, so a lost (or unrecorded)
+            # stream_config costs nothing: the block starts the stream it belongs to
+            self.timebase_from_blocks += 1
+            self._reset_stream(_BlockTimebase(start, period, ch, self.tick_hz))
         first = int(msg["first_index"])
         if self._next_index is not None:
             first = extend_tick(first, self._next_index)
@@ -606,6 +610,20 @@ class LiveAnalyzer:
 
     def spectrum_unit(self, channel: int) -> str:
         return "g pk" if self.profile(channel).calibrated else "V pk"
+
+
+class _BlockTimebase:
+    """A stream set-up taken from a sample block (its stream_config was lost)."""
+
+    name = "stream_config"
+
+    def __init__(self, start_tick: int, period_ticks: int, channels: int, tick_hz: int) -> None:
+        self.values = {"start_tick": start_tick, "period_ticks": period_ticks,
+                       "channels": channels, "tach_edge": None,
+                       "rate_hz": tick_hz / (period_ticks * channels) if period_ticks else 0.0}
+
+    def __getitem__(self, key: str) -> Any:
+        return self.values[key]
 
 
 def _board_counters(msg: MessageLike) -> dict[str, int]:

@@ -56,7 +56,7 @@ class SyntheticRun:
     adc_bits: int = 10
     adc_reference_mv: int = 5000
     first_edge_rev: float = 0.3
-    block_conversions: int = 120
+    block_conversions: int = 118  # whole sets of 1 or 2 channels, the most a frame holds
     double_edges_after: tuple[int, ...] = ()  # edge numbers followed by a spurious edge
     missing_edges: tuple[int, ...] = ()  # edge numbers never sent
     lost_blocks: tuple[int, ...] = ()  # sample block numbers never sent
@@ -143,8 +143,8 @@ def synthesize(run: SyntheticRun) -> tuple[bytes, SyntheticTruth]:
         if b in run.lost_blocks:
             continue
         events.append((done_tick + 1, 0, "samples", {
-            "first_index": first, "channels": ch,
-            "samples": counts[first:first + block].tolist()}))
+            "first_index": first, "channels": ch, "start_tick": run.start_tick % (1 << 32),
+            "period_ticks": period, "samples": counts[first:first + block].tolist()}))
     events.sort(key=lambda e: (e[0], e[1]))
 
     cat = load_catalogue()

@@ -17,8 +17,19 @@ from trueturn.link.catalogue import FIELD_FORMATS, Catalogue, MessageDef, load_c
 from trueturn.link.cobs import CobsError, cobs_decode, cobs_encode
 from trueturn.link.crc import crc16_ibm3740
 
-# Error kinds a frame can be rejected with; the golden invalid vectors name these.
-FRAME_ERRORS = ("cobs", "too_short", "too_long", "crc", "unknown_type", "bad_length")
+# Error kinds a frame can be rejected with; the golden invalid vectors name the first six.
+# The stream decoder adds two checks of meaning (SPEC.md section 3): ``wrong_direction``, a
+# host command type arriving from the board, and ``bad_value``, a field outside its
+# physical range (SPEC.md section 4, "Ranges").
+FRAME_ERRORS = ("cobs", "too_short", "too_long", "crc", "unknown_type", "bad_length",
+                "wrong_direction", "bad_value")
+
+# Physical ranges of board fields (SPEC.md section 4, "Ranges"); outside them a frame that
+# passed its CRC is still corrupt (or from no board of ours) and is refused, field named.
+TICK_HZ_RANGE = (10_000, 200_000_000)     # a timer clock from 10 kHz to 200 MHz
+ADC_BITS_RANGE = (6, 16)                  # samples are u16
+REFERENCE_MV_RANGE = (500, 10_000)        # 0.5 V .. 10 V ADC reference
+CHANNELS_RANGE = (1, 4)
 
 
 class FrameError(ValueError):
@@ -263,7 +274,9 @@ class LinkCounters:
 class LinkEvent:
     """Something the decoder noticed that is not a message: a rejected frame, a gap, a reset."""
 
-    kind: str  # a FRAME_ERRORS kind, or seq_gap, sample_gap, tach_gap, board_reset, duplicate
+    # a FRAME_ERRORS kind, or seq_gap, sample_gap, tach_gap, board_reset, duplicate,
+    # stream_config_missing
+    kind: str
     detail: str
     count: int = 1
 
@@ -276,8 +289,12 @@ class StreamDecoder:
     resets (uptime going backwards, or an unsolicited identity while streaming).
     """
 
-    def __init__(self, catalogue: Catalogue | None = None) -> None:
+    def __init__(self, catalogue: Catalogue | None = None, from_board: bool = True) -> None:
+        """``from_board``: the bytes come from a board (a port or a capture), so a host
+        command type in them is refused (``wrong_direction``); False for files of frames of
+        either direction, such as the golden vectors."""
         self.catalogue = catalogue or load_catalogue()
+        self.from_board = from_board
         self.counters = LinkCounters()
         self._buffer = bytearray()
         self._discarding = False
@@ -289,6 +306,24 @@ class StreamDecoder:
         self._identity_requested = False
         self._last_body = b""
         self._decoder = _frame_decoder(self.catalogue)
+        self._tick_hz: int | None = None
+        self._adc_max: int | None = None  # 2^adc_bits - 1 of the board's identity
+        self._stream: tuple[int, int, int] | None = None  # start_tick, period_ticks, channels
+        self._last_errors = set(self.catalogue.last_errors)
+        self._states = set(self.catalogue.device_states)
+        self._reply_errors = set(self.catalogue.error_codes)
+        self._host_names = {m.name for m in self.catalogue.messages if m.direction == "host"}
+
+    def assume_identity(self, identity: dict[str, Any]) -> None:
+        """Take the board's identity from elsewhere (a capture header) for the range checks
+        of values that depend on it (sample counts against ``adc_bits``); an identity in the
+        stream replaces it."""
+        try:
+            if self._identity_problem(identity) is None:
+                self._tick_hz = int(identity["tick_hz"])
+                self._adc_max = (1 << int(identity["adc_bits"])) - 1
+        except (KeyError, TypeError, ValueError):
+            pass
 
     def expect_identity(self) -> None:
         """Tell the decoder the host sent ``identify``, so the next identity is no reset."""
@@ -339,6 +374,14 @@ class StreamDecoder:
         except FrameError as exc:
             self._reject(exc.kind, exc.detail, out)
             return
+        if self.from_board and msg.name in self._host_names:
+            self._reject("wrong_direction", f"message type {msg.name} is a host command; "
+                                            "a board never sends it", out)
+            return
+        problem = self._check_values(msg)
+        if problem is not None:
+            self._reject(*problem, out)
+            return
         if msg.seq == self._last_seq and body == self._last_body:
             self.counters.duplicates += 1
             out.append(LinkEvent("duplicate", f"frame seq {msg.seq} received twice, dropped"))
@@ -347,6 +390,64 @@ class StreamDecoder:
         self.counters.frames_ok += 1
         self._track(msg, out)
         out.append(msg)
+
+    @staticmethod
+    def _identity_problem(v: dict[str, Any]) -> str | None:
+        checks = (("tick_hz", TICK_HZ_RANGE), ("adc_bits", ADC_BITS_RANGE),
+                  ("adc_reference_mv", REFERENCE_MV_RANGE), ("max_channels", CHANNELS_RANGE))
+        for name, (low, high) in checks:
+            if not low <= int(v[name]) <= high:
+                return f"identity {name} {v[name]} outside {low}..{high}"
+        return None
+
+    def _check_values(self, msg: Message) -> tuple[str, str] | None:
+        """A field outside its physical range: (error kind, detail naming the field)."""
+        v = msg.values
+        name = msg.name
+        if name == "identity":
+            problem = self._identity_problem(v)
+            if problem is not None:
+                return "bad_value", problem
+            self._tick_hz = v["tick_hz"]
+            self._adc_max = (1 << v["adc_bits"]) - 1
+        elif name == "stream_config":
+            if not CHANNELS_RANGE[0] <= v["channels"] <= CHANNELS_RANGE[1]:
+                return "bad_value", f"stream_config channels {v['channels']} outside 1..4"
+            for key in ("rate_hz", "period_ticks"):
+                if v[key] == 0:
+                    return "bad_value", f"stream_config {key} 0"
+            if v["tach_edge"] > 1:
+                return "bad_value", f"stream_config tach_edge {v['tach_edge']} not 0 or 1"
+            if self._tick_hz is not None and \
+                    v["period_ticks"] * v["rate_hz"] * v["channels"] != self._tick_hz:
+                return "bad_value", (f"stream_config period_ticks {v['period_ticks']} is not "
+                                     f"tick_hz {self._tick_hz} / (rate_hz {v['rate_hz']} x "
+                                     f"channels {v['channels']})")
+        elif name == "samples":
+            if v["period_ticks"] == 0:
+                return "bad_value", "samples period_ticks 0"
+            stream = self._stream
+            if stream is not None and v["start_tick"] == stream[0]:
+                if v["channels"] != stream[2]:  # SPEC 4.4: channels equals the stream's
+                    return "bad_length", (f"samples block on {v['channels']} channels in a "
+                                          f"stream of {stream[2]}")
+                if v["period_ticks"] != stream[1]:
+                    return "bad_value", (f"samples period_ticks {v['period_ticks']} in a "
+                                         f"stream of {stream[1]}")
+            if self._adc_max is not None:
+                top = int(np.asarray(v["samples"]).max())
+                if top > self._adc_max:
+                    return "bad_value", (f"samples value {top} above {self._adc_max}, the "
+                                         "largest count of the board's ADC")
+        elif name == "status":
+            if v["state"] not in self._states:
+                return "bad_value", f"status state {v['state']} not a device state"
+            if v["last_error"] not in self._last_errors:
+                return "bad_value", f"status last_error {v['last_error']} not a known code"
+        elif name == "reply":
+            if v["error"] not in self._reply_errors:
+                return "bad_value", f"reply error {v['error']} not a known code"
+        return None
 
     def _track(self, msg: Message, out: list[Message | LinkEvent]) -> None:
         c = self.counters
@@ -375,8 +476,20 @@ class StreamDecoder:
         self._last_seq = msg.seq
         if msg.name == "stream_config":
             self._next_sample_index = None
+            self._stream = (msg["start_tick"], msg["period_ticks"], msg["channels"])
         elif msg.name == "samples":
             first = msg["first_index"]
+            timebase = (msg["start_tick"], msg["period_ticks"], msg["channels"])
+            if self._stream is None or timebase[0] != self._stream[0]:
+                # SPEC 4.4: every block carries its stream's timebase; a new one without a
+                # stream_config before it means that frame was lost (or the capture started
+                # after it): the blocks alone place the samples in time
+                out.append(LinkEvent("stream_config_missing",
+                                     f"samples of a stream starting at tick {timebase[0]} "
+                                     "arrived without its stream_config; timing taken from "
+                                     "the sample blocks"))
+                self._stream = timebase
+                self._next_sample_index = None
             if self._next_sample_index is not None and first != self._next_sample_index:
                 lost = (first - self._next_sample_index) & 0xFFFFFFFF
                 c.sample_gaps += 1
@@ -403,4 +516,5 @@ class StreamDecoder:
         self._next_sample_index = None
         self._last_edge_count = None
         self._last_uptime_ms = None
+        self._stream = None
         out.append(LinkEvent("board_reset", f"board reset detected: {why}"))

@@ -14,6 +14,10 @@ Options (all optional):
 ``rpm=R``         shaft speed instead of the scenario's.
 ``noise=F``       scale noise, hum, harmonics, tones and tach jitter (0 = clean signal).
 ``channels=1|2``  pickups connected (default 2).
+``tach=none|chatter``  chatter: after every tach edge a burst of 10 more edges 160 CPU cycles
+                  (10 us) apart, as a comparator without hysteresis gives on a slow mark edge
+                  (the same burst as ``sim://...?tach=chatter``); the firmware's hold-off
+                  must drop them (status.tach_suppressed).
 
 After :meth:`Serial.close`, ``port.report`` holds the harness report: simulated and wall
 seconds, CPU cycles spent in each interrupt handler and the interrupt load.
@@ -37,7 +41,12 @@ from serial.serialutil import PortNotOpenError, SerialException, to_bytes
 from trueturn.errors import UserError
 from trueturn.link.handlers.virtual import VirtualLineSerial
 
-_USAGE = 'expected "emu://SCENARIO[?realtime=0|1&seconds=S&seed=N&rpm=R&noise=F&channels=1|2]"'
+_USAGE = ('expected "emu://SCENARIO[?realtime=0|1&seconds=S&seed=N&rpm=R&noise=F&channels=1|2'
+          '&tach=none|chatter]"')
+#: ``tach=chatter``: extra edges after each real one and their spacing in CPU cycles
+#: (trueturn.sim.board.TACH_CHATTER_EDGES, TACH_CHATTER_GAP_TICKS x 8 cycles per tick)
+CHATTER_EDGES = 10
+CHATTER_GAP_CYCLES = 160
 
 #: The firmware folder of a source checkout (override with TRUETURN_FIRMWARE_DIR).
 FIRMWARE_DIR = Path(os.environ.get("TRUETURN_FIRMWARE_DIR")
@@ -116,6 +125,8 @@ class Serial(VirtualLineSerial):
             argv.append("--realtime")
         if options["seconds"]:
             argv += ["--seconds", repr(options["seconds"])]
+        if options["tach"] == "chatter":
+            argv += ["--tach-chatter", f"{CHATTER_EDGES},{CHATTER_GAP_CYCLES}"]
         argv.append(str(elf))
         self._report_path = report
         self._log = open(Path(self._tmpdir.name) / "stderr.txt", "wb")  # noqa: SIM115
@@ -134,7 +145,8 @@ class Serial(VirtualLineSerial):
         name = (parts.netloc + parts.path).strip("/") or ""
         if not name:
             raise SerialException(f"{_USAGE}: scenario name missing")
-        opts: dict[str, Any] = {"realtime": True, "seconds": 0.0, "channels": 2, "spec": {}}
+        opts: dict[str, Any] = {"realtime": True, "seconds": 0.0, "channels": 2, "spec": {},
+                                "tach": "none"}
         try:
             for key, values in urllib.parse.parse_qs(parts.query, strict_parsing=bool(parts.query)).items():
                 value = values[-1]
@@ -150,6 +162,8 @@ class Serial(VirtualLineSerial):
                     opts["spec"]["speed_rpm"] = float(value)
                 elif key == "noise":
                     opts["spec"]["noise_scale"] = float(value)
+                elif key == "tach":
+                    opts["tach"] = {"none": "none", "chatter": "chatter"}[value]
                 else:
                     raise SerialException(f"{_USAGE}: unknown option {key!r}")
         except (KeyError, ValueError):

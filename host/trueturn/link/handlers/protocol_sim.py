@@ -13,7 +13,9 @@
 ``unbalance=as-found|none``  start with the scenario's hidden unbalance (default) or none.
 ``tick0=T``        the board clock at power-up (e.g. 4294000000 to see the 32-bit wrap soon).
 ``tach=F``         a tach fault on about one edge in ten: none (default), missing, double,
-                   knocked (5-15 degrees early or late), or off (no tach signal at all).
+                   knocked (5-15 degrees early or late), or off (no tach signal at all);
+                   chatter: a burst of 10 extra edges 10 us apart after every edge, which
+                   the board's hold-off drops (counted in status.tach_suppressed).
 
 ``port.rig`` reaches the running virtual rig: ``add_mass``, ``remove_mass``, ``set_masses``,
 ``clear_masses``, ``motor_start``, ``motor_stop``, ``set_speed_rpm``, ``speed_rpm``,
@@ -44,7 +46,7 @@ from trueturn.sim.board import (
 from trueturn.sim.scenario import load_scenario
 
 _USAGE = ('expected "sim://NAME[?realtime=0|1&pace=F&seed=N&rpm=R&motor=on|off&noise=F'
-          '&unbalance=as-found|none&tick0=T&tach=none|missing|double|knocked|off]"')
+          '&unbalance=as-found|none&tick0=T&tach=none|missing|double|knocked|off|chatter]"')
 
 
 class Rig(VirtualBoard):

@@ -21,6 +21,25 @@ from trueturn.link.crc import crc16_ibm3740
 
 SAMPLES_PER_FRAME = 4
 BIT_ERROR_RATE = 1e-3
+# the board the fuzzed stream comes from: a 10-bit ADC, so a count above 1023 is corrupt
+IDENTITY = {"protocol_version": 2, "definition_hash": 0, "firmware_major": 1,
+            "firmware_minor": 0, "firmware_patch": 0, "board_id": 1, "tick_hz": 2_000_000,
+            "adc_bits": 10, "adc_reference_mv": 5000, "aperture_delay_ticks": 16,
+            "max_channels": 2, "channel0_pin": 0, "channel1_pin": 1, "tach_pin": 8}
+
+
+def _out_of_range(msg: Message) -> bool:
+    """A value no board of ours sends (SPEC 4.9) in an accepted message."""
+    v = msg.values
+    if msg.name == "samples":
+        return (max(v["samples"]) > 1023 or not 1 <= v["channels"] <= 4
+                or v["period_ticks"] == 0)
+    if msg.name == "identity":
+        return not (6 <= v["adc_bits"] <= 16 and 10_000 <= v["tick_hz"] <= 200_000_000
+                    and 500 <= v["adc_reference_mv"] <= 10_000)
+    if msg.name == "stream_config":
+        return v["rate_hz"] == 0 or v["period_ticks"] == 0 or not 1 <= v["channels"] <= 4
+    return msg.name in ("identify", "start", "stop", "configure", "ping")
 
 
 def _expected_samples(index: int) -> list[int]:
@@ -77,8 +96,10 @@ def fuzz_stream(n_frames: int) -> dict[str, float]:
     rng = random.Random(20261201)
     data, impaired, flipped, corrupted = impaired_stream(n_frames, rng)
     decoder = StreamDecoder()
+    decoder.assume_identity(IDENTITY)
     delivered = set()
     false_accepts = 0
+    out_of_range = 0
     crashes = 0
     started = time.perf_counter()
     for pos in range(0, len(data), 4096):
@@ -101,13 +122,16 @@ def fuzz_stream(n_frames: int) -> dict[str, float]:
                 pass  # the closing frame
             else:
                 false_accepts += 1
+                out_of_range += _out_of_range(item)
     elapsed = time.perf_counter() - started
     c = decoder.counters
     return {"frames": n_frames, "impaired": impaired, "bits_flipped": flipped,
             "corrupted": corrupted, "detected": corrupted - false_accepts,
             "delivered": len(delivered), "missing": n_frames - len(delivered),
             "accounted": c.frames_lost, "rejected": c.frames_bad, "false_accepts": false_accepts,
-            "crashes": crashes, "frames_per_s": n_frames / elapsed}
+            "crashes": crashes, "frames_per_s": n_frames / elapsed,
+            "out_of_range": out_of_range, "bad_value": c.errors["bad_value"]
+            + c.errors["wrong_direction"]}
 
 
 def random_bodies(n: int) -> tuple[int, int]:
@@ -136,14 +160,20 @@ def random_byte_stream(n_bytes: int) -> dict[str, int]:
     (at most one body in 2^16 by the CRC alone)."""
     data = np.random.default_rng(1234).integers(0, 256, n_bytes, dtype=np.uint8).tobytes()
     decoder = StreamDecoder()
-    accepted = crashes = 0
+    decoder.assume_identity(IDENTITY)
+    accepted = crashes = out_of_range = 0
     for pos in range(0, len(data), 4096):
         try:
-            accepted += sum(isinstance(i, Message) for i in decoder.feed(data[pos:pos + 4096]))
+            items = decoder.feed(data[pos:pos + 4096])
         except Exception:  # the figure we want to be zero
             crashes += 1
+            continue
+        for item in items:
+            if isinstance(item, Message):
+                accepted += 1
+                out_of_range += _out_of_range(item)
     return {"bytes": n_bytes, "bodies": decoder.counters.frames_bad + accepted,
-            "accepted": accepted, "crashes": crashes}
+            "accepted": accepted, "crashes": crashes, "out_of_range": out_of_range}
 
 
 def rows() -> list[Row]:
@@ -176,6 +206,11 @@ def rows() -> list[Row]:
             "<= 3 x bound + 1", noise["accepted"] <= 3 * noise["bodies"] / 65536 + 1),
         Row("link fuzz: exceptions escaping the decoder on pure random bytes",
             f"{noise['crashes']}", "0", noise["crashes"] == 0),
+        Row("link fuzz: corrupt frames accepted with out-of-range values (impaired stream + "
+            "random bytes)", f"{r['out_of_range'] + noise['out_of_range']}", "0",
+            r["out_of_range"] + noise["out_of_range"] == 0),
+        Row("link fuzz: CRC-passing frames refused for out-of-range values or direction",
+            f"{r['bad_value']:,}", "info"),
         Row("link: decode speed", f"{r['frames_per_s']:,.0f} frames/s", "info"),
     ]
 

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import pytest
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
@@ -154,3 +155,76 @@ def test_power_up_identity_then_requested_identity_is_not_a_reset() -> None:
     assert dec.counters.board_resets == 0
     dec.feed(encode_frame("identity", 0, ident))  # now unasked: the board restarted
     assert dec.counters.board_resets == 1
+
+
+IDENTITY = {"protocol_version": 2, "definition_hash": 0, "firmware_major": 1,
+            "firmware_minor": 0, "firmware_patch": 0, "board_id": 1, "tick_hz": 2_000_000,
+            "adc_bits": 10, "adc_reference_mv": 5000, "aperture_delay_ticks": 16,
+            "max_channels": 2, "channel0_pin": 0, "channel1_pin": 1, "tach_pin": 8}
+CONFIG = {"rate_hz": 4000, "channels": 2, "period_ticks": 250, "tach_edge": 1,
+          "start_tick": 400}
+
+
+def _rejected(frames: list[bytes]) -> tuple[list[Message], list[LinkEvent]]:
+    items = StreamDecoder().feed(b"".join(frames))
+    return _messages(items), [i for i in items if isinstance(i, LinkEvent)]
+
+
+@pytest.mark.parametrize(("field", "value"), [
+    # issue 14, item 9: values no board of ours sends (SPEC 4.9); each refused by name
+    ("adc_bits", 0), ("adc_bits", 255), ("tick_hz", 0), ("tick_hz", 1),
+    ("tick_hz", 0xFFFFFFFF), ("adc_reference_mv", 0), ("max_channels", 0)])
+def test_identity_out_of_range_is_refused_naming_the_field(field: str, value: int) -> None:
+    msgs, events = _rejected([encode_frame("identity", 0, {**IDENTITY, field: value})])
+    assert msgs == [] and [e.kind for e in events] == ["bad_value"]
+    assert f"identity {field} {value}" in events[0].detail
+
+
+@pytest.mark.parametrize(("field", "value"), [
+    ("rate_hz", 0), ("period_ticks", 0), ("channels", 0), ("channels", 9), ("tach_edge", 2),
+    ("period_ticks", 251)])  # 251 x 4000 x 2 is not tick_hz (SPEC 4.3)
+def test_stream_config_out_of_range_is_refused(field: str, value: int) -> None:
+    msgs, events = _rejected([encode_frame("identity", 0, IDENTITY),
+                              encode_frame("stream_config", 1, {**CONFIG, field: value})])
+    assert [m.name for m in msgs] == ["identity"]
+    assert [e.kind for e in events] == ["bad_value"] and field in events[0].detail
+
+
+def test_sample_above_the_adc_range_and_wrong_channels_are_refused() -> None:
+    def block(seq: int, first: int, channels: int, values: list[int]) -> bytes:
+        return encode_frame("samples", seq, {"first_index": first, "channels": channels,
+                                             "start_tick": 400, "period_ticks": 250,
+                                             "samples": values})
+    msgs, events = _rejected([
+        encode_frame("identity", 0, IDENTITY), encode_frame("stream_config", 1, CONFIG),
+        block(2, 0, 2, [1, 2, 3, 1023]),
+        block(3, 4, 2, [1, 2, 1024, 4]),   # 1024 > 2^10 - 1: a corrupt value
+        block(4, 8, 1, [1, 2, 3, 4]),      # one channel in a two-channel stream: bad_length
+        block(5, 12, 2, [5, 6, 7, 8])])
+    assert [m["first_index"] for m in msgs if m.name == "samples"] == [0, 12]
+    kinds = [(e.kind, e.detail) for e in events if e.kind in ("bad_value", "bad_length")]
+    assert kinds[0][0] == "bad_value" and "samples value 1024 above 1023" in kinds[0][1]
+    assert kinds[1][0] == "bad_length" and "1 channels in a stream of 2" in kinds[1][1]
+
+
+def test_host_commands_from_the_board_are_refused() -> None:
+    msgs, events = _rejected([encode_frame("start", 0), encode_frame("configure", 1, {
+        "rate_hz": 4000, "channels": 2, "tach_edge": 1})])
+    assert msgs == [] and [e.kind for e in events] == ["wrong_direction"] * 2
+    # a frame file may hold both directions (golden vectors): then they decode
+    both = StreamDecoder(from_board=False).feed(encode_frame("start", 0))
+    assert [m.name for m in _messages(both)] == ["start"]
+
+
+def test_samples_of_a_stream_whose_config_was_lost_are_placed_by_their_own_fields() -> None:
+    # issue 14, item 8: the configure-time stream_config (start_tick 0) is the last one seen
+    items = StreamDecoder().feed(b"".join([
+        encode_frame("stream_config", 0, {**CONFIG, "start_tick": 0}),
+        encode_frame("samples", 2, {"first_index": 0, "channels": 2, "start_tick": 98_765,
+                                    "period_ticks": 250, "samples": [1, 2]}),
+        encode_frame("samples", 3, {"first_index": 2, "channels": 2, "start_tick": 98_765,
+                                    "period_ticks": 250, "samples": [3, 4]})]))
+    missing = [i for i in items if isinstance(i, LinkEvent)
+               and i.kind == "stream_config_missing"]
+    assert len(missing) == 1 and "98765" in missing[0].detail
+    assert len([m for m in _messages(items) if m.name == "samples"]) == 2

@@ -72,13 +72,13 @@ async def _balance(workspace: Path) -> tuple[int, int, bool, list[float], float]
             if "close the job and write the report" in text:
                 await key("enter")
                 break
-            if "Rotor not at standstill" in text:
+            if "Not at proven standstill" in text:
                 await key("x")
-                await until("Tach confirms standstill")
-            elif "Before you reach in" in text and "Tach confirms standstill" in text:
-                await key("1", "2", "enter")
-            elif "Do the work now" in text and "Tach confirms standstill" in text:
-                await key("1", "2", "3", "4", "enter")
+                await until("Standstill proven")
+            elif "Before you reach in" in text and "Standstill proven" in text:
+                await key("space", "space", "enter")
+            elif "Do the work now" in text and "Standstill proven" in text:
+                await key("space", "space", "space", "space", "enter")
             elif "I confirm these forces" in text or "go and place the parts" in text:
                 await key("enter")
             await pilot.pause(0.1)

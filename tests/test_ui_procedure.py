@@ -11,26 +11,36 @@ import math
 
 import pytest
 
+from trueturn.dsp.motion import PickupMotion
+from trueturn.procedure.standstill import StandstillState, StandstillWatch
 from trueturn.sim.rotor import Mass
 from trueturn.sim.scenario import load_scenario
 from trueturn.ui.engine import BalanceEngine
 from trueturn.ui.machine import profile_from_scenario, setup_from_profile
 from trueturn.ui.procedure import (
-    DONE_CHECKLIST,
-    LOCKOUT_CHECKLIST,
     GateRefused,
     Mode,
     Procedure,
     SensorReading,
-    StandstillWatch,
 )
 
-ALL_LOCKOUT = set(range(len(LOCKOUT_CHECKLIST)))
-ALL_DONE = set(range(len(DONE_CHECKLIST)))
+QUIET_G = 0.006  # a still pickup's broadband level (demo number)
+
+
+def pickups(names: tuple[str, ...], line_hz: float | None) -> tuple[PickupMotion, ...]:
+    """What the pickups say: quiet, or a line at ``line_hz`` (a turning machine)."""
+    return tuple(PickupMotion(n, QUIET_G if line_hz is None else 0.3, 0.02, line_hz,
+                              None if line_hz is None else 0.4, 4.0) for n in names)
+
+
+def tick_all(proc: Procedure) -> None:
+    while len(proc.ticked) < len(proc.checklist()):
+        proc.tick_next()
 
 
 class Rig:
-    """A bench for the procedure: the scenario's rotor physics and a board clock."""
+    """A bench for the procedure: the scenario's rotor physics and a board clock; the
+    pickups' judgement follows the rotor (a line at the rotation frequency while it turns)."""
 
     def __init__(self, name: str, mode: Mode, correction_scale: float = 1.0) -> None:
         self.correction_scale = correction_scale  # < 1: the person's weights come out light
@@ -41,6 +51,12 @@ class Rig:
         self.proc = Procedure(self.setup, BalanceEngine(self.profile))
         self.masses: list[Mass] = list(self.scenario.as_found)
         self.t = 0.0
+        self._judged = -1.0
+
+    def _judge(self, line_hz: float | None) -> None:
+        if self.t - self._judged >= 0.5:
+            self._judged = self.t
+            self.proc.watch.motion(self.t, pickups(self.setup.sensors, line_hz))
 
     def spin(self, seconds: float, rpm: float) -> None:
         """Board time passes with the rotor turning: a tach edge every revolution."""
@@ -49,6 +65,7 @@ class Rig:
         while self.t < end:
             self.t += period
             self.proc.watch.edge(self.t)
+            self._judge(rpm / 60.0)
 
     def rest(self, seconds: float) -> None:
         """Board time passes at standstill: samples keep arriving, no tach edges."""
@@ -56,6 +73,15 @@ class Rig:
         while self.t < end:
             self.t += 0.05
             self.proc.watch.data(self.t)
+            self._judge(None)
+
+    def settle(self) -> None:
+        """Wait at rest until standstill is proven (at most a minute of board time)."""
+        for _ in range(600):
+            if self.proc.watch.evidence().proven:
+                return
+            self.rest(0.1)
+        raise AssertionError(f"no standstill: {self.proc.watch.evidence()}")
 
     def readings(self, scale: float = 1.0) -> dict[str, SensorReading]:
         response = self.scenario.rotor.response_1x(self.setup.speed_rpm, self.masses)
@@ -68,9 +94,11 @@ class Rig:
         return out
 
     def hands_on(self) -> None:
-        self.rest(3.5)
-        self.proc.lock_out(ALL_LOCKOUT, self.t)
-        changes = self.proc.hands_on_done(ALL_DONE, self.t)
+        self.settle()
+        tick_all(self.proc)
+        self.proc.lock_out(self.t)
+        tick_all(self.proc)
+        changes = self.proc.hands_on_done(self.t)
         for c in changes:
             if c.mass is None:
                 continue
@@ -103,41 +131,108 @@ class Rig:
         raise AssertionError("procedure did not reach a verdict in 20 steps")
 
 
-def test_standstill_needs_quiet_tach_and_live_data() -> None:
+def test_standstill_needs_quiet_tach_quiet_pickups_and_live_data() -> None:
     wall = [100.0]
     watch = StandstillWatch(3.0, clock=lambda: wall[0], stale_s=1.0)
-    assert not watch.standstill  # no data at all: nothing proven
+    names = ("a", "b")
+    assert watch.evidence().state is StandstillState.NO_DATA  # no data at all
     for k in range(100):
         watch.edge(k * 0.02)
-    assert not watch.standstill
-    watch.data(2.0 + 2.9)
+    assert watch.evidence().state is StandstillState.TURNING
+    watch.motion(2.0 + 2.9, pickups(names, 50.0))  # still shaking at 50 Hz
     assert not watch.standstill  # 2.9 s since the last edge
-    watch.data(2.0 + 3.1)
-    assert watch.standstill
+    watch.motion(2.0 + 3.1, pickups(names, None))
+    assert not watch.standstill  # the pickups have been quiet for less than the hold
+    watch.motion(2.0 + 6.1, pickups(names, None))
+    ev = watch.evidence()
+    assert ev.proven and ev.tach_trusted and ev.basis is not None
+    assert ev.last_speed_rpm == pytest.approx(3000.0)  # 60 / 0.02 s
     wall[0] += 1.5  # then the data stops coming: the old quiet proves nothing now
-    assert not watch.standstill
-    watch.data(2.0 + 3.2)
+    assert watch.evidence().state is StandstillState.NO_DATA
+    watch.data(2.0 + 6.2)
     assert watch.standstill
+    watch.motion(2.0 + 6.7, pickups(names, 59.0))  # the pickups see a machine running
+    assert watch.evidence().state is StandstillState.TACH_FAULT
+
+
+def test_a_dark_tach_on_a_running_machine_is_a_tach_fault_not_a_standstill() -> None:
+    # The tach never saw an edge (tape gone) while the machine runs at 59 Hz.
+    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+    for _ in range(400):  # 20 s of board time
+        rig.t += 0.05
+        rig.proc.watch.data(rig.t)
+        rig._judge(59.0)
+    ev = rig.proc.watch.evidence()
+    assert ev.state is StandstillState.TACH_FAULT and ev.seen_hz == pytest.approx(59.0)
+    with pytest.raises(GateRefused, match="TACH FAULT"):
+        rig.proc.tick_next()
+    with pytest.raises(GateRefused, match="TACH FAULT"):
+        rig.proc.lock_out(rig.t)
+    # The motor is switched off and the pickups go quiet: the latched fault means the tach
+    # proves nothing, so only a long quiet (pickups and tach) gives standstill.
+    rig.rest(10.0)
+    assert not rig.proc.watch.evidence().proven
+    assert "tach went silent while the pickups saw" in _refusal(rig)
+    rig.rest(11.0)
+    ev = rig.proc.watch.evidence()
+    assert ev.proven and ev.basis.value == "pickups-long-hold" and not ev.tach_trusted
+
+
+def _refusal(rig: Rig) -> str:
+    with pytest.raises(GateRefused) as info:
+        rig.proc.tick_next()
+    return str(info.value)
+
+
+def test_a_slow_rotor_is_not_taken_for_a_still_one() -> None:
+    # 20 rpm: one edge every 3 s. Three seconds of silence are not enough: the gate waits
+    # for three of the last measured periods (common practice, no source).
+    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+    rig.spin(40.0, 20.0)
+    rig.rest(3.2)
+    ev = rig.proc.watch.evidence()
+    assert not ev.proven and ev.tach_hold_needed_s == pytest.approx(9.0, abs=0.01)
+    rig.rest(6.0)
+    assert rig.proc.watch.evidence().proven
+
+
+def test_ticks_only_at_standstill_and_dropped_when_the_rotor_turns() -> None:
+    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+    rig.spin(3.0, 3500.0)
+    with pytest.raises(GateRefused, match="turning"):
+        rig.proc.tick_next()
+    assert rig.proc.ticked == set()
+    rig.settle()
+    rig.proc.tick_next()
+    assert rig.proc.ticked == {0}
+    rig.spin(1.0, 600.0)  # someone started the machine
+    assert rig.proc.check_ticks() and rig.proc.ticked == set()
 
 
 def test_confirm_while_rotor_turns_is_refused() -> None:
     rig = Rig("bench-grinder", Mode.TWO_PLANE)
     rig.spin(5.0, 3500.0)
-    with pytest.raises(GateRefused, match="standstill"):
-        rig.proc.lock_out(ALL_LOCKOUT, rig.t)
+    with pytest.raises(GateRefused, match="turning"):
+        rig.proc.lock_out(rig.t)
     assert rig.proc.step.phase == "lockout"
     # Stopped, but the person has not ticked everything: still refused.
-    rig.rest(3.5)
+    rig.settle()
+    rig.proc.tick_next()
     with pytest.raises(GateRefused, match="tick every item"):
-        rig.proc.lock_out({0}, rig.t)
-    rig.proc.lock_out(ALL_LOCKOUT, rig.t)
+        rig.proc.lock_out(rig.t)
+    tick_all(rig.proc)
+    rig.proc.lock_out(rig.t)
     # The rotor turns again before the work is declared done: refused.
     rig.spin(1.0, 600.0)
-    with pytest.raises(GateRefused, match="standstill"):
-        rig.proc.hands_on_done(ALL_DONE, rig.t)
-    rig.rest(3.5)
-    rig.proc.hands_on_done(ALL_DONE, rig.t)
+    with pytest.raises(GateRefused, match="turning"):
+        rig.proc.hands_on_done(rig.t)
+    rig.settle()
+    tick_all(rig.proc)
+    rig.proc.hands_on_done(rig.t)
     assert rig.proc.step.kind == "run"
+    # Every confirmation kept the evidence it was given on.
+    assert len(rig.proc.evidence_log) == len(rig.proc.confirmations) == 2
+    assert all(ev.proven for ev in rig.proc.evidence_log)
 
 
 def test_run_needs_force_confirmation_and_a_ready_reading() -> None:
@@ -154,21 +249,47 @@ def test_run_needs_force_confirmation_and_a_ready_reading() -> None:
     assert rig.proc.progress(unsteady) == pytest.approx(5 / 30)
 
 
-def test_overspeed_and_runaway_are_warned_and_recorded() -> None:
+def test_overspeed_and_runaway_stop_the_run_and_are_recorded() -> None:
     rig = Rig("bench-grinder", Mode.TWO_PLANE)
     rig.hands_on()
     rig.run()  # as found
     rig.hands_on()  # trial mass on
     rig.proc.arm_run(True, rig.t)
-    events = rig.proc.observe(rig.readings(scale=3.5), rig.setup.max_speed_rpm + 50, rig.t)
+    over = rig.setup.max_speed_rpm + 50
+    events = rig.proc.observe(rig.readings(scale=3.5), over, rig.t)
     kinds = sorted(e.kind for e in events)
     assert kinds == ["overspeed", "runaway", "runaway"]
     assert all("STOP THE MACHINE" in e.detail for e in events)
-    # Told once per run, not at every refresh.
-    assert rig.proc.observe(rig.readings(scale=3.5), rig.setup.max_speed_rpm + 50, rig.t) == []
+    # The run stops: nothing kept, the alarm held until acknowledged.
+    assert rig.proc.step.phase == "stopped" and rig.proc.alarm is not None
+    with pytest.raises(GateRefused, match="stopped by an alarm"):
+        rig.proc.record(rig.readings(), rig.setup.speed_rpm, rig.t)
+    assert len(rig.proc.runs) == 1
+    rig.proc.acknowledge_alarm()
+    assert rig.proc.step.kind == "hands-on" and rig.proc.step.phase == "lockout"
+    assert [e.kind for e in rig.proc.events].count("runaway") == 2
+    # Forces before the next run are shown at the higher of planned and measured speed.
+    rig.hands_on()  # inspect; then the same trial run again
+    assert rig.proc.step.kind == "run" and rig.proc.step.run_label == "trial left-wheel"
+    assert rig.proc.force_speed_rpm == pytest.approx(over)
+    m, force = rig.proc.forces()[0]
+    assert force == pytest.approx(BalanceEngine().force_n(m.mass_g, 50.0, over))
+
+
+def test_a_run_can_be_stopped_and_then_measured_again() -> None:
+    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+    rig.hands_on()
+    rig.proc.arm_run(True, rig.t)
     rig.spin(1.0, rig.setup.speed_rpm)
-    rig.proc.record(rig.readings(), rig.setup.speed_rpm, rig.t)
-    assert [e.kind for e in rig.proc.runs[-1].events].count("runaway") == 2
+    event = rig.proc.abort_run(rig.t)
+    assert event.kind == "aborted" and rig.proc.runs == []
+    assert rig.proc.step.kind == "hands-on" and rig.proc.step.changes == ()
+    with pytest.raises(GateRefused):
+        rig.proc.lock_out(rig.t)  # still turning: the gates hold for the inspection too
+    rig.hands_on()
+    assert rig.proc.step.kind == "run" and rig.proc.step.run_label == "as found"
+    rig.run()
+    assert [r.label for r in rig.proc.runs] == ["as found"]
 
 
 def test_force_shown_before_a_run_is_m_r_omega_squared() -> None:
@@ -215,9 +336,10 @@ def test_single_plane_shop_fan_splits_onto_blades_and_removal_option() -> None:
     c = proc.solution.corrections[0]
     want = c.mass_g * complex(math.cos(math.radians(c.angle_deg)), math.sin(math.radians(c.angle_deg)))
     assert abs(total - want) < 0.02
-    proc.set_removal(True)
-    assert all(p.removal for p in proc.solution.parts)
-    proc.set_removal(False)
+    # Fan blades must not be drilled: the profile says so and the offer agrees.
+    assert not proc.removal_allowed
+    with pytest.raises(GateRefused, match="not allowed on blades"):
+        proc.set_removal(True)
     rig.complete()
     assert proc.verdict is not None and proc.verdict.passed
 
@@ -250,19 +372,56 @@ def test_a_light_correction_leads_to_a_trim_and_then_a_pass() -> None:
         assert abs(after[name]) < 0.1 * abs(before[name])  # physics truth, as above
 
 
-def test_a_silent_tach_proves_nothing_after_a_board_reset() -> None:
-    # After the link restarts (board reset), "no tach edges" could be a dead tach: the gate
-    # wants to see the tach working again before it trusts the quiet.
+def test_a_silent_tach_proves_little_after_a_board_reset() -> None:
+    # After the link restarts (board reset), "no tach edges" could be a dead tach: until the
+    # tach is seen working again, standstill needs the long quiet of pickups and tach.
     rig = Rig("bench-grinder", Mode.TWO_PLANE)
     rig.hands_on()
     rig.run()
     rig.proc.watch.reset()
     rig.rest(10.0)
-    with pytest.raises(GateRefused, match="tach has not seen the rotor turn"):
-        rig.proc.lock_out(ALL_LOCKOUT, rig.t)
+    with pytest.raises(GateRefused, match="checking standstill"):
+        rig.proc.lock_out(rig.t)
     rig.spin(2.0, 600.0)  # 20 edges: the tach works
     rig.rest(3.5)
-    rig.proc.lock_out(ALL_LOCKOUT, rig.t)
+    assert rig.proc.watch.evidence().basis.value == "tach-and-pickups"
+    tick_all(rig.proc)
+    rig.proc.lock_out(rig.t)
+
+
+def test_removal_where_the_profile_allows_it() -> None:
+    rig = Rig("shop-fan", Mode.ONE_PLANE)
+    rig.profile.planes[0].removal = True  # a plane whose maker allows drilling (invented)
+    rig.setup = setup_from_profile(rig.profile, Mode.ONE_PLANE)
+    rig.proc = Procedure(rig.setup, BalanceEngine(rig.profile))
+    for _ in range(2):
+        rig.hands_on()
+        rig.run()
+    rig.proc.set_removal(True)
+    assert all(p.removal for p in rig.proc.solution.parts)
+
+
+def test_one_plane_on_a_two_plane_rotor_never_passes_the_whole_rotor() -> None:
+    rig = Rig("bench-grinder", Mode.ONE_PLANE)
+    assert rig.proc.partial_planes
+    rig.complete()
+    v = rig.proc.verdict
+    assert v is not None and v.partial_planes and not v.passed
+
+
+def test_a_pickup_worse_than_as_found_withholds_the_pass() -> None:
+    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+    rig.hands_on()
+    rig.run()
+    base = rig.proc.runs[0]
+    from trueturn.ui.procedure import RunRecord, Verdict
+
+    worse = {n: SensorReading(n, r.amplitude * (1.5 if k == 0 else 0.05), r.unit, r.phase_deg,
+                              0.5, 40, True, r.speed_rpm, r.amplitude * 0.005)
+             for k, (n, r) in enumerate(base.readings.items())}
+    ok = Verdict(True, 6.3, {"left-wheel": 1.0}, {"left-wheel": 10.0})
+    v = rig.proc._whole_machine(ok, RunRecord("check", (), worse, 3500.0, rig.t))
+    assert not v.passed and v.planes_passed and v.worse_pickups == (rig.setup.sensors[0],)
 
 
 def test_one_run_trim_with_coefficients_saved_by_an_earlier_job() -> None:

@@ -17,7 +17,7 @@ from pathlib import Path
 from textual.pilot import Pilot
 
 from test_ui_app import SIZE, connect, make_app, press, screen_text, wait_for, widget_text
-from test_ui_procedure import ALL_DONE, ALL_LOCKOUT, Rig
+from test_ui_procedure import Rig, tick_all
 from trueturn.jobs.store import read_document
 from trueturn.ui.app import TrueturnApp
 from trueturn.ui.meter import tach_faults
@@ -63,8 +63,8 @@ def fault_while_spinning_up(app: TrueturnApp, fault: Callable[[], None]) -> dict
 async def to_the_as_found_run(app: TrueturnApp, pilot: Pilot) -> None:
     """Set-up step through both gates, then confirm the forces: the motor starts."""
     await press(app, pilot, "1")
-    await wait_for(pilot, lambda: "Tach confirms standstill" in screen_text(app), 20)
-    await press(app, pilot, "1", "2", "enter", "1", "2", "3", "4", "enter")
+    await wait_for(pilot, lambda: "Standstill proven" in screen_text(app), 20)
+    await press(app, pilot, "space", "space", "enter", "space", "space", "space", "space", "enter")
     proc = app.procedure
     assert proc is not None and proc.step.kind == "run" and proc.step.phase == "arming"
 
@@ -81,8 +81,8 @@ def test_unplug_mid_run_keeps_the_job_and_reconnect_resumes_the_run(tmp_path: Pa
             await wait_for(pilot, lambda: len(proc.runs) == 1, 30)
             # the trial mass goes on, then its run is cut by the pulled cable
             await press(app, pilot, "x")
-            await wait_for(pilot, lambda: "Tach confirms standstill" in screen_text(app), 20)
-            await press(app, pilot, "1", "2", "enter", "1", "2", "3", "4", "enter")
+            await wait_for(pilot, lambda: "Standstill proven" in screen_text(app), 20)
+            await press(app, pilot, "space", "space", "enter", "space", "space", "space", "space", "enter")
             assert proc.step.kind == "run" and proc.step.phase == "arming"
             saved_before = app.keeper.path.read_bytes()
             old_rig = app.session.rig
@@ -260,16 +260,28 @@ def test_interrupted_run_keeps_nothing_until_resumed() -> None:
     assert [e.kind for e in run.events] == ["link-lost"]
 
 
-def test_done_gate_after_a_reopened_link_trusts_the_tach_proven_at_lock_out() -> None:
+def test_done_gate_after_a_reopened_link_needs_the_long_quiet() -> None:
+    # The link was lost and reopened while the person worked (power locked out): the tach
+    # has not been seen working on the new link, so its silence alone proves nothing; the
+    # done gate waits for the long quiet of pickups and tach (procedure.standstill).
     rig = Rig("shop-fan", Mode.ONE_PLANE)
     rig.hands_on()
-    rig.run()  # as found: now runs exist, so a lock-out needs a tach seen working
+    rig.run()
     proc = rig.proc
+    rig.settle()
+    tick_all(proc)
+    proc.lock_out(rig.t)
+    proc.watch.reset()
     rig.rest(3.5)
-    proc.lock_out(ALL_LOCKOUT, rig.t)
-    proc.watch.reset()  # link lost and reopened while the person works, power locked out
-    rig.rest(3.5)
-    proc.hands_on_done(ALL_DONE, rig.t)  # standstill proven afresh, tach proven at lock-out
+    try:
+        tick_all(proc)
+        raise AssertionError("done gate opened on an unproven tach after 3.5 s")
+    except GateRefused as exc:
+        assert "checking standstill" in str(exc)
+    rig.settle()
+    assert proc.watch.evidence().basis.value == "pickups-long-hold"
+    tick_all(proc)
+    proc.hands_on_done(rig.t)
     assert proc.step.kind == "run"
 
 
@@ -281,13 +293,15 @@ def test_lock_out_after_a_restart_needs_the_tach_seen_working_again() -> None:
     proc.watch.reset()  # the board restarted: its tach edges so far prove nothing
     rig.rest(3.5)
     try:
-        proc.lock_out(ALL_LOCKOUT, rig.t)
-        raise AssertionError("lock-out allowed with an unproven tach")
+        tick_all(proc)
+        raise AssertionError("tick allowed with an unproven tach after 3.5 s")
     except GateRefused as exc:
-        assert "tach has not seen the rotor turn" in str(exc)
-    rig.spin(1.0, rig.setup.speed_rpm)  # seen working again, then quiet for 3 s
-    rig.rest(3.5)
-    proc.lock_out(ALL_LOCKOUT, rig.t)
+        assert "checking standstill" in str(exc)
+    rig.spin(1.0, rig.setup.speed_rpm)  # seen working again, then quiet
+    rig.settle()
+    assert proc.watch.evidence().basis.value == "tach-and-pickups"
+    tick_all(proc)
+    proc.lock_out(rig.t)
     assert proc.step.phase == "working"
 
 

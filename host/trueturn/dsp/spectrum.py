@@ -82,14 +82,14 @@ def spectrum(values: np.ndarray, sample_rate_hz: float, rotation_hz: float | Non
     for i in found:
         lobe = psd[max(i - 2, 0): i + 3]  # Hann main lobe: +/- 2 bins
         amplitude = math.sqrt(2.0 * float(lobe.sum()) * df)  # Parseval over the main lobe
-        hz = _refine(freqs, psd, int(i))
+        hz = refine_peak_hz(freqs, psd, int(i))
         peaks.append(SpectrumPeak(hz, amplitude,
                                   label_peak(hz, rotation_hz, line_hz, max(2.0 * df, 0.01 * hz))))
     peaks.sort(key=lambda pk: pk.amplitude, reverse=True)
     return Spectrum(freqs, np.sqrt(psd), df, segments, tuple(peaks[:max_peaks]))
 
 
-def _refine(freqs: np.ndarray, psd: np.ndarray, i: int) -> float:
+def refine_peak_hz(freqs: np.ndarray, psd: np.ndarray, i: int) -> float:
     """Peak frequency by a parabola through the log power of the three top bins."""
     if i <= 0 or i >= psd.size - 1 or min(psd[i - 1: i + 2]) <= 0:
         return float(freqs[i])

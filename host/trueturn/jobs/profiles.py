@@ -70,6 +70,10 @@ class Plane:
     radius_mm: float = field(metadata=limits(above=0))
     axial_position_mm: float = 0.0
     layout: PlaneLayout = field(default_factory=PlaneLayout)
+    # Drilling or grinding material out of this plane is allowed (a flywheel rim, a pulley
+    # web). Default: not allowed - grinding wheels, cutterhead bodies and fan blades must
+    # never be drilled; the app then offers only added mass.
+    removal: bool = False
     max_mass_g: float | None = field(default=None, metadata=limits(above=0))
 
 

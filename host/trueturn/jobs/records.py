@@ -84,14 +84,36 @@ class Correction:
 
 
 @dataclass
-class Confirmation:
-    """A safety confirmation the operator gave before a hands-on step."""
+class PickupLevel:
+    """What one pickup showed at a confirmation: broadband level, its quiet limit, any line."""
 
-    time: str = field(metadata=limits(nonempty=True))
+    pickup: str = field(metadata=limits(nonempty=True))
+    level_g_rms: float = field(metadata=limits(minimum=0))
+    limit_g_rms: float = field(metadata=limits(minimum=0))
+    line_hz: float | None = field(default=None, metadata=limits(minimum=0))
+
+
+@dataclass
+class Confirmation:
+    """A safety confirmation the operator gave, with the standstill evidence seen then.
+
+    ``standstill_by_tach``: a tach seen working was silent for the hold time (False when the
+    standstill rested on the pickups and a longer hold, or was not proven). The evidence
+    fields are None in files written before they existed.
+    """
+
+    time: str = field(metadata=limits(nonempty=True))  # host time (UTC)
     step: str = field(metadata=limits(nonempty=True))
     standstill_by_tach: bool
-    tach_rpm: float | None = field(default=None, metadata=limits(minimum=0))
+    tach_rpm: float | None = field(default=None, metadata=limits(minimum=0))  # last measured
     text: str = ""
+    basis: str | None = None  # tach-and-pickups | pickups-long-hold
+    board_time_s: float | None = field(default=None, metadata=limits(minimum=0))
+    tach_silent_s: float | None = field(default=None, metadata=limits(minimum=0))
+    tach_edges_seen: int | None = field(default=None, metadata=limits(minimum=0))
+    tach_seen_working: bool | None = None
+    last_edge_age_s: float | None = field(default=None, metadata=limits(minimum=0))
+    pickups: list[PickupLevel] = field(default_factory=list)
 
 
 @dataclass
@@ -131,6 +153,7 @@ class PendingStep:
     changes: list[MassChange] = field(default_factory=list)
     confirmations: list[Confirmation] = field(default_factory=list)
     notes: str = ""
+    events: list[Event] = field(default_factory=list)  # e.g. a run stopped, not kept
 
 
 @dataclass

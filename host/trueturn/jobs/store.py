@@ -374,10 +374,12 @@ class Workspace:
             raise ValueError(f"run index {run.index}, expected {job.next_run_index}")
         if job.status != "open":
             raise UserError(f"job {job.job_id} is closed; start a new job to measure again")
-        before = (job.pending, job.updated, run.changes, run.confirmations, run.notes)
+        before = (job.pending, job.updated, run.changes, run.confirmations, run.notes,
+                  run.events)
         if job.pending is not None:
             run.changes = job.pending.changes + run.changes
             run.confirmations = job.pending.confirmations + run.confirmations
+            run.events = job.pending.events + run.events
             if job.pending.notes:
                 run.notes = (job.pending.notes + "\n" + run.notes).strip()
             job.pending = None
@@ -386,7 +388,8 @@ class Workspace:
             return self.save_job(job, path)
         except BaseException:
             job.runs.pop()
-            job.pending, job.updated, run.changes, run.confirmations, run.notes = before
+            (job.pending, job.updated, run.changes, run.confirmations, run.notes,
+             run.events) = before
             raise
 
     def record_pending(self, job: JobRecord, pending: PendingStep,

@@ -52,6 +52,7 @@ STEP_TICKS = 100_000  # at most 50 ms of simulated time per generation step
 STATUS_PERIOD_TICKS = TICK_HZ
 START_DELAY_TICKS = 200  # first conversion of a stream, after the start command
 STANDSTILL_RAD_S = 0.05  # below this the virtual shaft is taken as stopped
+SENSOR_FLOOR_G = 0.004  # a still accelerometer's own noise, rms over the sampled band
 TWO_PI = 2.0 * math.pi
 
 ERROR_CODES = {name: code for code, name in load_catalogue().error_codes.items()}
@@ -599,6 +600,8 @@ class VirtualBoard:
                 ph = math.radians(h.phase_deg) + 0.7 * ch + (0.0 if k < len(sig.harmonics)
                                                              else self._tone_phases[k % 8])
                 if h.hz is not None:
+                    if not self.running:  # a fixed-frequency tone comes from the live motor
+                        continue
                     v = v + amp_v * np.cos(TWO_PI * h.hz * t_s[sel] - ph)
                 elif not float(h.order).is_integer():  # belt, motor through a pulley
                     turns_phase = (h.order * (self._turns % 1_000_000)) % 1.0 * TWO_PI
@@ -608,7 +611,14 @@ class VirtualBoard:
             v = v + scale * sig.hum_line_v * np.cos(TWO_PI * line * t_s[sel] + 0.3 * ch)
             v = v + scale * sig.hum_double_v * np.cos(TWO_PI * 2 * line * t_s[sel] + 1.1 + ch)
             if sig.noise_rms_g and scale:
-                v = v + self.rng.normal(0.0, sig.noise_rms_g * v_per_g * scale, th.size)
+                # The sensor's own floor is always there; the machine's share (turbulence,
+                # rubbing, belts) grows with speed like the tones above, so a still rotor
+                # leaves the pickups at their floor and the total is noise_rms_g at the
+                # nominal speed.
+                sensor_g = min(sig.noise_rms_g, SENSOR_FLOOR_G)
+                machine_g = math.sqrt(sig.noise_rms_g ** 2 - sensor_g ** 2) * speed_ratio_sq
+                v = v + self.rng.normal(0.0, math.hypot(sensor_g, machine_g) * v_per_g * scale,
+                                        th.size)
             out[sel] = v
         return out
 

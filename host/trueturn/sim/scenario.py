@@ -99,6 +99,7 @@ class PlaneLayout:
     positions: int = 0
     first_position_deg: float = 0.0
     note: str = ""
+    removal: bool = False  # drilling/grinding material out is allowed in this plane
 
     def angles_deg(self) -> list[float]:
         if not self.positions:
@@ -224,9 +225,12 @@ def parse_scenario(raw: Any, source: str) -> Scenario:
         if not p.get("name"):
             raise UserError(f"{w}: missing 'name'")
         planes.append(CorrectionPlane(str(p["name"]), _num(p, "axial_mm", w), _num(p, "radius_mm", w)))
+        removal = p.get("removal", False)
+        if not isinstance(removal, bool):
+            raise UserError(f"{w}: removal must be true or false")
         layouts[str(p["name"])] = PlaneLayout(int(_num(p, "positions", w, 0)),
                                               _num(p, "first_position_deg", w, 0.0),
-                                              str(p.get("note", "")))
+                                              str(p.get("note", "")), removal)
     pickups, electrical = [], []
     for i, p in enumerate(_list(top.get("pickups"), f"{source}: pickups")):
         w = f"{source}: pickups[{i}]"

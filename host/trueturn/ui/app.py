@@ -25,6 +25,7 @@ from textual.worker import get_current_worker
 from trueturn.errors import UserError
 from trueturn.jobs.profiles import MachineProfile
 from trueturn.jobs.records import CoefficientSet
+from trueturn.procedure.standstill import StandstillState
 from trueturn.ui.engine import BalanceEngine
 from trueturn.ui.jobfile import JobKeeper
 from trueturn.ui.machine import describe_change, setup_from_profile
@@ -34,6 +35,8 @@ from trueturn.ui.procedure import (
     Mode,
     Procedure,
     SafetyEvent,
+    standstill_basis_words,
+    standstill_refusal,
 )
 from trueturn.ui.rig import DemoRig
 from trueturn.ui.session import LinkProblem, LinkSession, Snapshot
@@ -151,8 +154,11 @@ class BenchScreen(Screen):
         Binding("s", "view('spectrum-view')", "Spectrum"),
         Binding("g", "view('guide-view')", "Guide"),
         Binding("enter", "confirm", "Confirm"),
-        Binding("1", "tick(1)", show=False), Binding("2", "tick(2)", show=False),
-        Binding("3", "tick(3)", show=False), Binding("4", "tick(4)", show=False),
+        Binding("1", "choose(1)", show=False), Binding("2", "choose(2)", show=False),
+        Binding("3", "choose(3)", show=False), Binding("4", "choose(4)", show=False),
+        Binding("space", "tick", "Tick", show=False),
+        Binding("backspace", "untick", "Untick", show=False),
+        Binding("a", "abort", "Stop run", show=False),
         Binding("r", "removal", "Add/remove", show=False),
         Binding("p", "machine", "Machine", show=False),
         Binding("o", "motor(True)", "Motor on", show=False),
@@ -195,8 +201,17 @@ class BenchScreen(Screen):
     def action_confirm(self) -> None:
         self.trueturn.confirm()
 
-    def action_tick(self, item: int) -> None:
-        self.trueturn.tick_item(item)
+    def action_choose(self, item: int) -> None:
+        self.trueturn.choose_item(item)
+
+    def action_tick(self) -> None:
+        self.trueturn.tick_next()
+
+    def action_untick(self) -> None:
+        self.trueturn.untick()
+
+    def action_abort(self) -> None:
+        self.trueturn.abort_run()
 
     def action_removal(self) -> None:
         self.trueturn.toggle_removal()
@@ -232,8 +247,8 @@ class TrueturnApp(App):
         self.rig = DemoRig(self.session) if config.demo else None
         self.keeper = JobKeeper(profile, workspace=config.workspace, job_file=config.job_file)
         self.procedure: Procedure | None = None
-        self.ticked: set[int] = set()
         self.message = ""
+        self.quit_armed = False  # q pressed once during a run: a second q quits
         self.alarm: SafetyEvent | None = None
         self.snap: Snapshot | None = None
         self.link_error = ""
@@ -345,6 +360,16 @@ class TrueturnApp(App):
                             "be proven afresh by the tach.")
 
     async def action_quit(self) -> None:
+        proc = self.procedure
+        running = proc is not None and proc.step.kind == "run" and \
+            proc.step.phase in ("running", "stopped")
+        if running and not self.quit_armed:
+            self.quit_armed = True
+            self.message = ("A run is in progress: press q again to quit (nothing of this run "
+                            "is kept; the job is saved up to the last complete run), or a to "
+                            "stop the run.")
+            self.tick()
+            return
         self.workers.cancel_group(self, "link-pump")
         self.session.close()
         self.exit()
@@ -389,8 +414,12 @@ class TrueturnApp(App):
             self.message = str(exc)
             return
         self.keeper.start(self.procedure)
-        self.ticked = set()
         self.message = ""
+        if self.procedure.partial_planes:
+            self.message = (f"Note: {self.config.profile.name} has "
+                            f"{len(self.config.profile.planes)} correction planes; balancing "
+                            "one of them cannot show the whole rotor within its grade. "
+                            "Quit and choose 2 for both planes.")
 
     def saved_coefficients(self) -> CoefficientSet | None:
         """Influence coefficients an earlier job kept for this machine near this speed."""
@@ -403,19 +432,48 @@ class TrueturnApp(App):
             self._saved_cache[prof.name] = found
         return self._saved_cache[prof.name]
 
-    def tick_item(self, item: int) -> None:
-        proc = self.procedure
-        if proc is None:
+    def choose_item(self, item: int) -> None:
+        """1-4 choose the procedure (only while none is chosen: they never tick a list)."""
+        if self.procedure is None:
             mode = {1: Mode.ONE_PLANE, 2: Mode.TWO_PLANE, 3: Mode.AMPLITUDE_ONLY,
                     4: Mode.SAVED_TRIM}.get(item)
             if mode is not None:
                 self.choose_mode(mode)
+        self.tick()
+
+    def tick_next(self) -> None:
+        """Space ticks the next item of the open checklist, only at proven standstill."""
+        proc = self.procedure
+        if proc is None:
+            return
+        try:
+            proc.tick_next()
+            self.message = ""
+        except GateRefused as exc:
+            self.message = f"Refused: {exc}"
+        self.tick()
+
+    def untick(self) -> None:
+        if self.procedure is not None:
+            self.procedure.untick_last()
+        self.tick()
+
+    def abort_run(self) -> None:
+        """a stops the run at any moment: nothing of it is kept; inspect the rotor next."""
+        proc = self.procedure
+        if proc is None or proc.step.kind != "run":
+            self.message = "No run to stop."
             self.tick()
             return
-        items = proc.checklist()
-        if 1 <= item <= len(items):
-            self.ticked ^= {item - 1}
-            self.message = ""
+        event = proc.abort_run(self.session.watch.now_s or 0.0)
+        self.session.reset_meter()  # the partial average is dropped
+        self.quit_armed = False
+        self.keeper.event(event)
+        if self.rig is not None:
+            self.rig.motor(False)
+            self.message = "Run stopped: the virtual motor is off. Wait for standstill."
+        else:
+            self.message = "Run stopped: switch the machine off and wait for standstill."
         self.tick()
 
     def confirm(self) -> None:
@@ -427,19 +485,23 @@ class TrueturnApp(App):
         now = self.session.watch.now_s or 0.0
         step = proc.step
         try:
-            if step.kind == "hands-on" and step.phase == "lockout":
-                proc.lock_out(self.ticked, now)
-                self.ticked = set()
+            if proc.alarm is not None:
+                alarm = proc.acknowledge_alarm()
+                self.alarm = None
+                self.message = (f"Alarm acknowledged ({alarm.kind}). Wait for standstill, then "
+                                "inspect the rotor before it runs again.")
+            elif step.kind == "hands-on" and step.phase == "lockout":
+                proc.lock_out(now)
                 self.message = "Locked out. Do the work now, then tick the list."
             elif step.kind == "hands-on":
-                changes = proc.hands_on_done(self.ticked, now)
+                changes = proc.hands_on_done(now)
                 if self.rig is not None:
                     self.rig.apply(changes, proc)
                 self.keeper.hands_on(proc, changes)
-                self.ticked = set()
                 self.message = ""
             elif step.kind == "run" and step.phase == "arming":
                 proc.arm_run(True, now)
+                self.quit_armed = False
                 self.session.reset_meter()
                 self.alarm = None
                 if self.rig is not None:
@@ -505,6 +567,9 @@ class TrueturnApp(App):
         if snap.restarts != self.restarts_seen:
             self.restarts_seen = snap.restarts
             self.board_restarted()
+        proc = self.procedure
+        if proc is not None and proc.check_ticks():
+            self.message = "Ticks cleared: standstill is no longer proven."
         self._run_logic(snap)
         bench.query_one("#status", Static).update(self._status_text(snap))
         if current == "meter-view":
@@ -521,15 +586,24 @@ class TrueturnApp(App):
             return
         meter = snap.meter
         now = snap.board_time_s
-        for ev in proc.observe(meter.readings, meter.speed_rpm or 0.0, now):
+        alarms = proc.observe(meter.readings, meter.speed_rpm or 0.0, now)
+        for ev in alarms:
             self.alarm = ev
             self.keeper.event(ev)
+        if alarms:
+            self.session.reset_meter()  # nothing of a stopped run is kept
+            if self.rig is not None:
+                self.rig.motor(False)
+            self.quit_armed = False
+            return
         live = self.tach_live(snap)
         if proc.ready(meter.readings, live):
             # The run's speed: the mean over the averaged revolutions of its readings.
             speeds = [r.speed_rpm for r in meter.readings.values() if r.speed_rpm > 0]
             run = proc.record(meter.readings, statistics.fmean(speeds), now, live)
             self.keeper.run(proc, run)
+            self.session.remember_running_level()
+            self.quit_armed = False
             stop = "press x to switch the virtual motor off" if self.rig else \
                 "switch the machine off"
             self.message = f"Run '{run.label}' recorded and saved: {stop}."
@@ -548,16 +622,24 @@ class TrueturnApp(App):
         board = f"{ident.board} fw {ident.firmware} · protocol v{ident.protocol_version}" \
             if ident else "no board"
         speed = snap.meter.speed_rpm
-        turning = self.session.watch.last_edge_s is not None and snap.quiet_s < 1.0
+        ev = snap.evidence
+        state = ev.state if ev is not None else StandstillState.NO_DATA
         if self.link_error:
             motion = "[b red]LINK LOST[/] · l: reconnect" if not self.reconnecting else \
                 "[b yellow]reconnecting…[/]"
-        elif snap.standstill:
-            motion = f"[green]STANDSTILL[/] ({snap.quiet_s:.0f} s no tach edge)"
-        elif turning:
+        elif state is StandstillState.PROVEN:
+            motion = (f"[green]STANDSTILL[/] (tach silent {ev.tach_silent_s:.0f} s, "
+                      "pickups quiet)")
+        elif state is StandstillState.TURNING:
             motion = f"[b red]TURNING {speed or 0:.0f} rpm[/]"
+        elif state is StandstillState.TACH_FAULT:
+            hz = ev.seen_hz
+            motion = "[b red]TACH FAULT[/]: pickups see " + (
+                f"{hz:.0f} Hz (~{60 * hz:.0f} rpm)" if hz is not None else "vibration")
+        elif state is StandstillState.NO_DATA:
+            motion = "[b red]NO DATA[/]: standstill cannot be proven"
         else:
-            motion = f"[yellow]checking standstill… {snap.quiet_s:.1f} s quiet[/]"
+            motion = f"[yellow]checking standstill… {ev.wait_s:.0f} s to go[/]"
         c = snap.counters
         lost = (f"lost: {c.get('samples_lost', 0) + snap.board_samples_dropped} samples, "
                 f"{c.get('frames_lost', 0) + c.get('frames_bad', 0) + snap.board_frames_dropped}"
@@ -681,39 +763,51 @@ class TrueturnApp(App):
         lines = [head]
         if self.link_error:
             return "\n".join(lines + self._link_lines(proc))
-        watch = self.session.watch
-        turning = not snap.standstill and watch.last_edge_s is not None and snap.quiet_s < 1.0
-        checking = not snap.standstill and not turning
+        ev = snap.evidence
+        turning = ev is not None and ev.state is StandstillState.TURNING
         if step.kind == "hands-on":
             for change in step.changes:
                 lines.append("  " + describe_change(change, proc, self.engine))
+            if not step.changes:
+                lines.append("  Look the rotor over: weights, fasteners, pickups, tach mark.")
             items = proc.checklist()
-            if turning:
+            if ev is not None and ev.proven:
+                lines.append(f"[green]Standstill proven: {standstill_basis_words(ev)}.[/green]")
+            elif ev is not None:
                 how = "press [b]x[/b] (demo motor off)" if self.rig else \
                     "switch the machine off"
-                lines.append(f"[b red]Rotor not at standstill: {how} and wait "
-                             f"{proc.setup.standstill_s:.0f} s.[/]")
-            elif checking:
-                lines.append(f"[yellow]Checking standstill: {snap.quiet_s:.1f} of "
-                             f"{proc.setup.standstill_s:.0f} s without a tach edge…[/]")
-            else:
-                lines.append("[green]Tach confirms standstill.[/green]")
+                line = standstill_refusal(ev)
+                style = "yellow" if ev.state is StandstillState.CHECKING else "b red"
+                lines.append(f"[{style}]Not at proven standstill: {line}.[/]")
+                if ev.state in (StandstillState.TURNING, StandstillState.TACH_FAULT):
+                    lines.append(f"[b red]Stop: {how}.[/]")
             if step.phase == "lockout":
-                lines.append("Before you reach in, tick:")
+                lines.append("Before you reach in, tick each item ([b]Space[/b]):")
             else:
-                lines.append("Do the work now. When it is done, tick:")
+                lines.append("Do the work now. When it is done, tick each item ([b]Space[/b]):")
             for i, item in enumerate(items):
-                box = "\\[x]" if i in self.ticked else "\\[ ]"
-                lines.append(f"  {box} [b]{i + 1}[/b] {item}")
+                box = "\\[x]" if i in proc.ticked else "\\[ ]"
+                lines.append(f"  {box} {item}")
             lines.append("[dim]c: cautions. Follow the machine maker's instructions for "
                          "fastening and removal.[/dim]")
             lines.append("[b]Enter[/b]: " + ("locked out, I will work on the rotor"
                                              if step.phase == "lockout" else
                                              "done, safe to run"))
         elif step.kind == "run":
-            if step.phase == "arming":
+            if step.phase == "stopped":
+                alarm = proc.alarm
+                lines += [f"[b red]STOPPED: {alarm.detail if alarm else 'alarm'}[/]",
+                          "Nothing of this run is kept.",
+                          "Switch the machine off" + (" (the demo motor is off)."
+                                                      if self.rig else " now."),
+                          "[b]Enter[/b]: I have seen the alarm; inspect the rotor next"]
+            elif step.phase == "arming":
+                speed = proc.force_speed_rpm
+                why = "" if speed <= proc.setup.speed_rpm else \
+                    f" (measured {speed:.0f} rpm last run, above the planned speed)"
                 lines.append(f"Planned speed {proc.setup.speed_rpm:.0f} rpm "
-                             f"(max {proc.setup.max_speed_rpm:.0f}). Masses on the rotor:")
+                             f"(max {proc.setup.max_speed_rpm:.0f}). Forces at "
+                             f"{speed:.0f} rpm{why}. Masses on the rotor:")
                 forces = proc.forces()
                 for m, f in forces:
                     kind = "remove" if m.removal else m.kind
@@ -723,7 +817,8 @@ class TrueturnApp(App):
                     lines.append("  none added")
                 lines += ["Guards on, everyone out of the plane of rotation.",
                           "[b]Enter[/b]: I confirm these forces; start the run" +
-                          (" (starts the virtual motor)" if self.rig else "")]
+                          (" (starts the virtual motor)" if self.rig else ""),
+                          "[b]a[/b]: not now, go back and inspect the rotor"]
             else:
                 meter = snap.meter
                 lines.append(f"Measuring at {meter.speed_rpm or 0:.0f} rpm; averaging "
@@ -748,7 +843,8 @@ class TrueturnApp(App):
                            if any(w.startswith(f"{r.sensor}:") for r in waiting)]
                     why = own[0] if own else "waiting for enough steady revolutions"
                     lines.append(f"[yellow]Not ready: {why}[/]")
-                lines.append("Stop at once on a warning below.")
+                lines.append("Stop at once on a warning below. [b]a[/b]: stop this run now "
+                             "(nothing of it is kept)")
         elif step.kind == "correction" and proc.problem:
             lines += [f"[b red]No correction from these runs:[/] {proc.problem}",
                       "Check that the pickups and the tach did not move, and that the "
@@ -766,9 +862,13 @@ class TrueturnApp(App):
                 lines.append("  " + describe_change_part(p, proc))
             for w in sol.warnings[:2]:
                 lines.append(f"[yellow]{w}[/]")
-            lines.append("[b]r[/b]: " + ("add mass instead" if proc.removal else
-                                         "remove material instead (drill/grind)") +
-                         "   [b]Enter[/b]: go and place the parts")
+            if proc.removal_allowed:
+                lines.append("[b]r[/b]: " + ("add mass instead" if proc.removal else
+                                             "remove material instead (drill/grind)") +
+                             "   [b]Enter[/b]: go and place the parts")
+            else:
+                lines.append("[b]Enter[/b]: go and place the parts (removing material is not "
+                             "allowed on this rotor)")
         elif step.kind == "verdict":
             v = proc.verdict
             assert v is not None
@@ -780,6 +880,13 @@ class TrueturnApp(App):
                 lines.append(f"  {plane}: residual {res:.1f} g·mm, permissible {per:.1f} g·mm")
             if v.note:
                 lines.append(v.note)
+            if v.worse_pickups:
+                lines.append(f"[b red]Worse than as found at {', '.join(v.worse_pickups)}[/] "
+                             "(beyond both readings' 95 % circles): not passed.")
+            if v.partial_planes:
+                lines.append("[yellow]One plane of a multi-plane rotor was corrected: the other "
+                             "plane's residual is not measured, so the whole rotor cannot be "
+                             "shown within the grade. Balance both planes (2).[/]")
             if turning:
                 lines.append("[b]Switch the machine off[/b]" +
                              (" (x for the demo motor)." if self.rig else "."))

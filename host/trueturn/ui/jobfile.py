@@ -3,12 +3,14 @@ after every hands-on step and every run, closed with the verdict and an HTML rep
 
 from __future__ import annotations
 
+import math
 from pathlib import Path
 
 from trueturn.jobs import records as rec
 from trueturn.jobs.profiles import VIBRATION_UNIT_LABELS, MachineProfile
 from trueturn.jobs.report import html_report
 from trueturn.jobs.store import Workspace, atomic_write_text, write_document
+from trueturn.procedure.standstill import StandstillEvidence
 from trueturn.ui.procedure import MassChange, Mode, Procedure, RunRecord, SafetyEvent
 
 # The meter's unit names -> the job file's unit names (amplitudes are stored as measured).
@@ -54,9 +56,13 @@ class JobKeeper:
         self._save()
 
     def _new_confirmations(self, proc: Procedure) -> list[rec.Confirmation]:
-        out = [rec.Confirmation(rec.now_iso(), text, standstill_by_tach=True, tach_rpm=0.0,
-                                text=f"board time {t:.1f} s")
-               for t, text in proc.confirmations[self._confirmed:]]
+        """The confirmations given since the last save, each with the standstill evidence
+        seen at that moment (nothing written as a constant)."""
+        out = []
+        for k in range(self._confirmed, len(proc.confirmations)):
+            t, text = proc.confirmations[k]
+            ev = proc.evidence_log[k] if k < len(proc.evidence_log) else None
+            out.append(confirmation_record(text, t, ev))
         self._confirmed = len(proc.confirmations)
         return out
 
@@ -80,8 +86,14 @@ class JobKeeper:
         self._save()
 
     def event(self, event: SafetyEvent) -> None:
-        """Events are stored with their run; nothing to write until the run ends."""
-        del event
+        """A run stopped (alarm or by the person) is not kept, but its event is: saved at
+        once with the pending step, and folded into the next run that is kept."""
+        if self.job is None or event.kind not in ("overspeed", "runaway", "aborted"):
+            return  # link-lost and board-restart travel with the run that completes
+        pending = self.job.pending or rec.PendingStep()
+        pending.events.append(rec.Event(rec.now_iso(), event.kind, event.detail))
+        self.job.pending = pending
+        self._save()
 
     def run(self, proc: Procedure, run: RunRecord) -> None:
         if self.job is None:
@@ -113,6 +125,7 @@ class JobKeeper:
             if self.job.pending is not None:
                 record.changes = self.job.pending.changes + record.changes
                 record.confirmations = self.job.pending.confirmations + record.confirmations
+                record.events = self.job.pending.events + record.events
                 self.job.pending = None
             self.job.runs.append(record)
         self._save()
@@ -151,3 +164,23 @@ class JobKeeper:
         self.report_path = self.path.with_suffix(".html")
         atomic_write_text(self.report_path, html_report(self.job))
         return self.path
+
+
+def confirmation_record(step: str, board_time_s: float,
+                        ev: StandstillEvidence | None) -> rec.Confirmation:
+    """A job-file confirmation holding the evidence seen (host time now, board time given)."""
+    if ev is None:
+        return rec.Confirmation(rec.now_iso(), step, standstill_by_tach=False,
+                                text="no standstill evidence kept", board_time_s=board_time_s)
+    finite = [p for p in ev.pickups if math.isfinite(p.level_g_rms)]
+    return rec.Confirmation(
+        rec.now_iso(), step,
+        standstill_by_tach=ev.proven and ev.tach_trusted,
+        tach_rpm=ev.last_speed_rpm,
+        text=("" if ev.proven else f"standstill not proven: {ev.state.value}"),
+        basis=ev.basis.value if ev.basis is not None else None,
+        board_time_s=max(0.0, board_time_s), tach_silent_s=ev.tach_silent_s,
+        tach_edges_seen=ev.tach_edges_seen, tach_seen_working=ev.tach_trusted,
+        last_edge_age_s=ev.last_edge_age_s,
+        pickups=[rec.PickupLevel(p.name, p.level_g_rms, p.limit_g_rms, p.periodic_hz)
+                 for p in finite])

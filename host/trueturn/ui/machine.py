@@ -32,7 +32,8 @@ def profile_from_scenario(scenario: Scenario) -> MachineProfile:
             plane_layout = PlaneLayout("equal", layout.positions, layout.first_position_deg)
         else:
             plane_layout = PlaneLayout()
-        planes.append(Plane(cp.name, cp.radius_mm, cp.axial_mm, plane_layout))
+        planes.append(Plane(cp.name, cp.radius_mm, cp.axial_mm, plane_layout,
+                            removal=bool(layout is not None and layout.removal)))
     pickups = [Pickup(p.name, e.sensitivity_v_per_g * 1000.0, e.zero_g_v * 1000.0,
                       direction="vertical" if abs(p.direction_deg - 90.0) < 1 else "horizontal")
                for p, e in zip(scenario.rotor.pickups, scenario.electrical, strict=False)]
@@ -56,7 +57,8 @@ def setup_from_profile(profile: MachineProfile, mode: Mode, standstill_s: float 
     if saved is not None:
         coefficients = tuple(SavedCoefficient(e.sensor, e.plane, e.amp, e.phase_deg,
                                               saved.speed_rpm) for e in saved.entries)
-    planes = tuple(PlaneSetup(p.name, p.radius_mm, tuple(p.layout.position_angles_deg()))
+    planes = tuple(PlaneSetup(p.name, p.radius_mm, tuple(p.layout.position_angles_deg()),
+                              removal_allowed=p.removal)
                    for p in profile.planes)
     return ProcedureSetup(
         machine=profile.name, mode=mode, planes=planes,
@@ -65,6 +67,7 @@ def setup_from_profile(profile: MachineProfile, mode: Mode, standstill_s: float 
         grade_mm_per_s=profile.target_grade, revolutions_per_run=revolutions_per_run,
         standstill_s=standstill_s,
         saved_planes=tuple(dict.fromkeys(c.plane for c in coefficients)),
+        profile_planes=len(profile.planes),
         saved_coefficients=coefficients)
 
 

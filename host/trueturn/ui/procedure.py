@@ -24,13 +24,17 @@ Safety gates (ARCHITECTURE.md, "Safety"):
 
 from __future__ import annotations
 
-import time
-from collections.abc import Callable
-from dataclasses import dataclass, field
+import math
+from dataclasses import dataclass, field, replace
 from enum import Enum
 from typing import Literal, Protocol
 
 from trueturn.angles import angle_difference_deg, wrap_deg
+from trueturn.procedure.standstill import (
+    StandstillEvidence,
+    StandstillState,
+    StandstillWatch,
+)
 
 
 class Mode(str, Enum):
@@ -57,7 +61,6 @@ DONE_CHECKLIST: tuple[str, ...] = (
 DEFAULT_STANDSTILL_S = 3.0
 DEFAULT_RUNAWAY_FACTOR = 3.0
 DEFAULT_PHASE_LIMIT_DEG = 5.0  # the DSP's default phase confidence for a steady reading
-TACH_PROVEN_EDGES = 10  # edges seen before "no edges" is trusted as standstill
 SMALL_VECTOR_FRACTION = 0.05  # below 5 % of the as-found 1x, a tight circle is enough
 
 
@@ -72,6 +75,7 @@ class PlaneSetup:
     name: str
     radius_mm: float
     position_angles_deg: tuple[float, ...] = ()  # blades/holes; empty = any angle
+    removal_allowed: bool = False  # the profile allows drilling/grinding material out here
 
 
 @dataclass(frozen=True)
@@ -92,6 +96,7 @@ class ProcedureSetup:
     runaway_factor: float = DEFAULT_RUNAWAY_FACTOR
     phase_limit_deg: float = DEFAULT_PHASE_LIMIT_DEG
     saved_planes: tuple[str, ...] = ()  # saved-trim: the planes the coefficients cover
+    profile_planes: int = 0  # correction planes the machine has (0: as many as ``planes``)
     saved_coefficients: tuple[object, ...] = ()  # saved-trim: opaque to the procedure
 
 
@@ -135,7 +140,7 @@ class SensorReading:
 class SafetyEvent:
     """Something the person had to be told to stop for, with board time."""
 
-    kind: Literal["overspeed", "runaway", "link-lost", "board-restart"]
+    kind: Literal["overspeed", "runaway", "link-lost", "board-restart", "aborted"]
     detail: str
     time_s: float
 
@@ -183,6 +188,9 @@ class Verdict:
     residual_gmm: dict[str, float]
     permissible_gmm: dict[str, float]
     note: str = ""
+    worse_pickups: tuple[str, ...] = ()  # 1x grew beyond both readings' 95 % circles
+    planes_passed: bool | None = None  # the per-plane verdict before the checks below
+    partial_planes: bool = False  # fewer planes corrected than the machine has
 
 
 @dataclass(frozen=True)
@@ -223,8 +231,8 @@ class Step:
     title: str
     changes: tuple[MassChange, ...] = ()
     run_label: str = ""
-    phase: str = "start"  # hands-on: lockout|working; run: arming|running|interrupted;
-    # others: start
+    phase: str = "start"  # hands-on: lockout|working; run: arming|running|interrupted|
+    # stopped (an alarm stopped it; held until acknowledged); others: start
 
 
 def planes_for(setup: ProcedureSetup) -> tuple[PlaneSetup, ...]:
@@ -234,59 +242,51 @@ def planes_for(setup: ProcedureSetup) -> tuple[PlaneSetup, ...]:
     return setup.planes[:2] if setup.mode is Mode.TWO_PLANE else setup.planes[:1]
 
 
-class StandstillWatch:
-    """Tach-confirmed standstill on the board's own clock.
+def standstill_refusal(ev: StandstillEvidence) -> str:
+    """Why a hands-on step must wait, in one line (the evidence in words)."""
+    state = ev.state
+    if state is StandstillState.NO_DATA:
+        return ("no fresh data from the board: standstill cannot be proven; check the cable "
+                "and the board")
+    if state is StandstillState.TURNING:
+        return "the tach sees the rotor turning: stop the machine and wait"
+    if state is StandstillState.TACH_FAULT:
+        return tach_fault_words(ev) + ": nothing hands-on until the tach and the pickups agree"
+    if ev.tach_fault_latched:
+        return (f"the tach went silent while the pickups saw the machine run: standstill "
+                f"needs {ev.tach_hold_needed_s:.0f} s of quiet pickups and tach "
+                f"({ev.wait_s:.0f} s to go); then fix the tach")
+    if ev.moving_pickups:
+        p = ev.moving_pickups[0]
+        return (f"the pickups are not quiet ({p.name}: {p.level_g_rms:.3f} {p.unit} rms, "
+                f"limit {p.limit_g_rms:.3f}): wait for the machine to settle")
+    if not ev.pickups:
+        return "the pickups' signal is not judged yet: wait a moment"
+    return (f"checking standstill: {ev.wait_s:.1f} s to go (tach silent "
+            f"{ev.tach_silent_s:.1f} s, pickups quiet {ev.pickups_quiet_s:.1f} s, "
+            f"{ev.tach_hold_needed_s:.0f} s needed)")
 
-    Standstill holds when data has been arriving for at least ``hold_s`` of board time, no
-    tach edge came during the last ``hold_s``, and the newest data is fresh (arrived within
-    ``stale_s`` by ``clock``, a monotonic wall clock). A dead or silent link proves nothing.
-    """
 
-    def __init__(self, hold_s: float = DEFAULT_STANDSTILL_S,
-                 clock: Callable[[], float] = time.monotonic, stale_s: float = 1.0) -> None:
-        self.hold_s = hold_s
-        self.clock = clock
-        self.stale_s = stale_s
-        self.first_s: float | None = None
-        self.now_s: float | None = None
-        self.last_edge_s: float | None = None
-        self.last_data_wall_s: float | None = None
-        self.edges_seen = 0
+def tach_fault_words(ev: StandstillEvidence) -> str:
+    """The disagreement in plain words: what the pickups see while the tach is silent."""
+    hz = ev.seen_hz
+    seen = (f"{hz:.0f} Hz, about {60 * hz:.0f} rpm if it is the 1x" if hz is not None
+            else "vibration")
+    return (f"TACH FAULT: no tach edge for {ev.tach_silent_s:.0f} s but the pickups see a "
+            f"machine running ({seen}); check the tach, its mark and its cable")
 
-    def data(self, board_time_s: float) -> None:
-        """Board time of the newest sample received."""
-        if self.first_s is None:
-            self.first_s = board_time_s
-        self.now_s = board_time_s if self.now_s is None else max(self.now_s, board_time_s)
-        self.last_data_wall_s = self.clock()
 
-    def edge(self, board_time_s: float) -> None:
-        """A tach edge at this board time."""
-        self.data(board_time_s)
-        self.last_edge_s = board_time_s
-        self.edges_seen += 1
-
-    def reset(self) -> None:
-        """Forget everything (new stream, board reset, link lost)."""
-        self.first_s = self.now_s = self.last_edge_s = self.last_data_wall_s = None
-        self.edges_seen = 0
-
-    def quiet_s(self) -> float:
-        """Seconds of board time with data and without a tach edge."""
-        if self.now_s is None or self.first_s is None:
-            return 0.0
-        since = self.first_s if self.last_edge_s is None else self.last_edge_s
-        return max(0.0, self.now_s - since)
-
-    @property
-    def fresh(self) -> bool:
-        """Data arrived within ``stale_s`` (wall clock)."""
-        return (self.last_data_wall_s is not None
-                and self.clock() - self.last_data_wall_s <= self.stale_s)
-
-    @property
-    def standstill(self) -> bool:
-        return self.fresh and self.quiet_s() >= self.hold_s
+def standstill_basis_words(ev: StandstillEvidence) -> str:
+    """What proved standstill, for the screen (e.g. tach silent 3 s, seen working ...)."""
+    levels = ", ".join(f"{p.name} {p.level_g_rms:.3f} {p.unit} rms" for p in ev.pickups)
+    if ev.tach_trusted:
+        seen = (f", last edge {ev.last_edge_age_s:.0f} s ago at "
+                f"{ev.last_speed_rpm:.0f} rpm" if ev.last_speed_rpm else "")
+        tach = f"tach silent {ev.tach_silent_s:.0f} s (seen working{seen})"
+    else:
+        tach = (f"tach silent {ev.tach_silent_s:.0f} s but not seen working since the link "
+                f"started, so the pickups had to stay quiet {ev.tach_hold_needed_s:.0f} s")
+    return f"{tach}; pickups quiet: {levels}"
 
 
 class Procedure:
@@ -316,6 +316,10 @@ class Procedure:
         self._alarmed: set[str] = set()
         self._force_text: tuple[str, ...] = ()
         self.problem = ""  # why no correction could be computed (then: repeat the run)
+        self.ticked: set[int] = set()  # checklist items ticked at the open gate
+        self.alarm: SafetyEvent | None = None  # held until acknowledged
+        self.last_speed_rpm = 0.0  # the highest speed measured during the last run
+        self.evidence_log: list[StandstillEvidence] = []  # parallel to confirmations
         self.step = Step("hands-on", "Set up: mount the pickups and the tach",
                          (MassChange("mount-pickups"),), phase="lockout")
         self.finished = False
@@ -337,65 +341,104 @@ class Procedure:
             return ()
         return LOCKOUT_CHECKLIST if self.step.phase == "lockout" else DONE_CHECKLIST
 
+    @property
+    def force_speed_rpm(self) -> float:
+        """The speed forces are shown at: the higher of the planned and the last measured."""
+        return max(self.setup.speed_rpm, self.last_speed_rpm)
+
     def forces(self) -> list[tuple[PlacedMass, float]]:
-        """Each mass on the rotor with its centrifugal force (N) at the planned speed."""
+        """Each mass on the rotor with its centrifugal force (N) at :attr:`force_speed_rpm`."""
         out = []
+        speed = self.force_speed_rpm
         for m in self.on_rotor:
             radius = self.plane(m.plane).radius_mm
-            out.append((m, self.engine.force_n(abs(m.mass_g), radius, self.setup.speed_rpm)))
+            out.append((m, self.engine.force_n(abs(m.mass_g), radius, speed)))
         return out
+
+    @property
+    def removal_allowed(self) -> bool:
+        """Every plane this procedure corrects allows removing material (machine profile)."""
+        return all(p.removal_allowed for p in self.planes_used)
+
+    @property
+    def partial_planes(self) -> bool:
+        """Fewer planes corrected than the machine has (one plane on a two-plane rotor)."""
+        return (self.setup.mode is Mode.ONE_PLANE
+                and max(self.setup.profile_planes, len(self.setup.planes)) > 1)
 
     def as_found(self) -> RunRecord | None:
         return self.runs[0] if self.runs else None
 
     # ---- hands-on gates -----------------------------------------------------------------
-    def _require_standstill(self, tach_proven_before: bool = False) -> None:
-        """Tach-confirmed standstill; ``tach_proven_before``: the tach was proven working at
-        this step's lock-out (power locked out since), so a link reopened meanwhile need not
-        see the rotor turn again before the done gate."""
-        if self.runs and self.watch.edges_seen < TACH_PROVEN_EDGES and not tach_proven_before:
-            # "No edges" proves nothing from a tach that has not been seen working.
-            raise GateRefused("the tach has not seen the rotor turn since the link started: "
-                              "standstill cannot be proven; check the tach and its mark")
-        if not self.watch.fresh:
-            raise GateRefused("no fresh data from the board: standstill cannot be proven; "
-                              "check the cable and the board")
-        if not self.watch.standstill:
-            quiet = self.watch.quiet_s()
-            raise GateRefused(
-                f"rotor not confirmed at standstill by the tach ({quiet:.1f} s without an edge, "
-                f"{self.setup.standstill_s:.0f} s needed): stop the machine and wait")
+    def _require_standstill(self) -> StandstillEvidence:
+        """Standstill proven by evidence that agrees (:mod:`trueturn.procedure.standstill`);
+        returns the evidence, or refuses saying what is missing."""
+        ev = self.watch.evidence()
+        if not ev.proven:
+            raise GateRefused(standstill_refusal(ev))
+        return ev
 
-    def _require_ticks(self, ticked: set[int], items: tuple[str, ...]) -> None:
-        missing = [i for i in range(len(items)) if i not in ticked]
+    def _require_ticks(self, items: tuple[str, ...]) -> None:
+        missing = [i for i in range(len(items)) if i not in self.ticked]
         if missing:
             raise GateRefused(f"tick every item first; still open: {items[missing[0]]}")
 
-    def lock_out(self, ticked: set[int], now_s: float) -> None:
-        """The person says power is off and locked out; allowed only at tach standstill."""
+    def tick_next(self) -> int:
+        """Tick the next open item of the gate's checklist (only at proven standstill);
+        returns its index."""
+        items = self.checklist()
+        if not items:
+            raise GateRefused("no checklist is open")
+        self._require_standstill()
+        open_items = [i for i in range(len(items)) if i not in self.ticked]
+        if not open_items:
+            raise GateRefused("every item is ticked: press Enter to confirm")
+        self.ticked.add(open_items[0])
+        return open_items[0]
+
+    def untick_last(self) -> None:
+        """Take back the last tick."""
+        if self.ticked:
+            self.ticked.discard(max(self.ticked))
+
+    def check_ticks(self) -> bool:
+        """Drop every tick when standstill is no longer proven; True if ticks were dropped."""
+        if self.ticked and not self.watch.evidence().proven:
+            self.ticked = set()
+            return True
+        return False
+
+    def _confirm(self, now_s: float, text: str, evidence: StandstillEvidence) -> None:
+        self.confirmations.append((now_s, text))
+        self.evidence_log.append(evidence)
+
+    def lock_out(self, now_s: float) -> None:
+        """The person says power is off and locked out; allowed only at proven standstill."""
         if self.step.kind != "hands-on" or self.step.phase != "lockout":
             raise GateRefused("no hands-on step is waiting for lock-out")
-        self._require_standstill()
-        self._require_ticks(ticked, LOCKOUT_CHECKLIST)
-        self.confirmations.append((now_s, f"lock-out before: {self.step.title}"))
+        ev = self._require_standstill()
+        self._require_ticks(LOCKOUT_CHECKLIST)
+        self._confirm(now_s, f"lock-out before: {self.step.title}", ev)
+        self.ticked = set()
         self.step.phase = "working"
 
-    def hands_on_done(self, ticked: set[int], now_s: float) -> tuple[MassChange, ...]:
+    def hands_on_done(self, now_s: float) -> tuple[MassChange, ...]:
         """The person says the work is done and the machine is safe to run; apply the changes.
 
         Returns the changes so the app can mirror them on a simulated rig.
         """
         if self.step.kind != "hands-on" or self.step.phase != "working":
             raise GateRefused("lock out first: the hands-on step has not been opened")
-        self._require_standstill(tach_proven_before=True)
-        self._require_ticks(ticked, DONE_CHECKLIST)
+        ev = self._require_standstill()
+        self._require_ticks(DONE_CHECKLIST)
         changes = self.step.changes
         for change in changes:
             if change.action == "attach" and change.mass is not None:
                 self.on_rotor.append(change.mass)
             elif change.action == "detach" and change.mass is not None:
                 self.on_rotor.remove(change.mass)
-        self.confirmations.append((now_s, f"done, safe to run: {self.step.title}"))
+        self._confirm(now_s, f"done, safe to run: {self.step.title}", ev)
+        self.ticked = set()
         self._advance_after_hands_on()
         return changes
 
@@ -406,13 +449,16 @@ class Procedure:
             raise GateRefused("no run is waiting to be started")
         if not force_acknowledged:
             raise GateRefused("confirm the centrifugal force of the masses first")
-        text = tuple(f"{m.mass_g:.2f} g on {m.plane}: {f:.1f} N at {self.setup.speed_rpm:.0f} rpm"
-                     for m, f in self.forces())
+        text = tuple(f"{m.mass_g:.2f} g on {m.plane}: {f:.1f} N at "
+                     f"{self.force_speed_rpm:.0f} rpm" for m, f in self.forces())
         self._force_text = text
-        self.confirmations.append((now_s, f"force confirmed before: {self.step.run_label}"))
+        self._confirm(now_s, f"force confirmed before: {self.step.run_label}",
+                      self.watch.evidence())
         self.step.phase = "running"
         self._pending_run_events = []
         self._alarmed = set()
+        self.alarm = None
+        self.last_speed_rpm = 0.0
 
     def observe(self, readings: dict[str, SensorReading], speed_rpm: float,
                 now_s: float) -> list[SafetyEvent]:
@@ -435,11 +481,15 @@ class Procedure:
                         "runaway", f"{name}: 1x {r.amplitude:.3g} {r.unit} is over "
                         f"{self.setup.runaway_factor:g} x the as-found {ref.amplitude:.3g}: "
                         "STOP THE MACHINE", now_s))
-        for ev in new:
-            self._alarmed.add(ev.kind if ev.kind == "overspeed" else
-                              f"runaway:{ev.detail.split(':')[0]}")
-        self._pending_run_events += new
+        if math.isfinite(speed_rpm) and speed_rpm > self.last_speed_rpm:
+            self.last_speed_rpm = speed_rpm
         self.events += new
+        if new:
+            # The run stops here: nothing of it is kept; the alarm is held until the person
+            # acknowledges it, then a gated hands-on step waits for standstill.
+            self.alarm = new[0]
+            self.step.phase = "stopped"
+            self.log.append(f"run stopped: {self.step.run_label} ({new[0].kind})")
         return new
 
     def settled(self, r: SensorReading) -> bool:
@@ -493,6 +543,8 @@ class Procedure:
         """Keep the run's readings (only when :meth:`ready`) and move on."""
         if self.step.kind == "run" and self.step.phase == "interrupted":
             raise GateRefused("the run was interrupted: reconnect first; it starts over")
+        if self.step.kind == "run" and self.step.phase == "stopped":
+            raise GateRefused("the run was stopped by an alarm: nothing of it is kept")
         if not self.ready(readings, tach_live):
             raise GateRefused("the reading is not steady yet (or the tach is silent): "
                               "keep the machine running")
@@ -530,11 +582,42 @@ class Procedure:
         self.step.phase = "running"
         self._alarmed = set()
 
+    def abort_run(self, now_s: float, reason: str = "stopped by the person") -> SafetyEvent:
+        """Stop the run at any moment: nothing of it is kept, the job file is not written;
+        a gated hands-on step (inspect the rotor) comes next, then the same run again."""
+        if self.step.kind != "run":
+            raise GateRefused("no run to stop")
+        event = SafetyEvent("aborted", f"{self.step.run_label}: {reason}", now_s)
+        self.events.append(event)
+        self.log.append(f"run aborted: {self.step.run_label} ({reason})")
+        self._inspect_step(f"Run stopped ({self.step.run_label}): inspect the rotor")
+        return event
+
+    def acknowledge_alarm(self) -> SafetyEvent:
+        """The person has seen the alarm that stopped the run; go to the inspection step."""
+        if self.alarm is None or self.step.kind != "run" or self.step.phase != "stopped":
+            raise GateRefused("no alarm is waiting")
+        alarm = self.alarm
+        self.alarm = None
+        what = {"overspeed": "overspeed", "runaway": "vibration too high"}.get(alarm.kind,
+                                                                             alarm.kind)
+        self._inspect_step(f"Stopped ({what}): inspect the rotor")
+        return alarm
+
+    def _inspect_step(self, title: str) -> None:
+        self.ticked = set()
+        self._pending_run_events = []
+        self.step = Step("hands-on", title, (), phase="lockout")
+
     # ---- correction step ----------------------------------------------------------------
     def set_removal(self, removal: bool) -> None:
         """Choose removing material instead of adding mass; re-splits the correction."""
         if self.step.kind != "correction" or self.problem:
             raise GateRefused("removal can only be chosen while a correction is shown")
+        if removal and not self.removal_allowed:
+            barred = ", ".join(p.name for p in self.planes_used if not p.removal_allowed)
+            raise GateRefused(f"removing material is not allowed on {barred} (machine "
+                              "profile): add mass instead")
         self.removal = removal
         self.solution = self._solve()
 
@@ -617,7 +700,8 @@ class Procedure:
             return
         # A check run: verdict, and the trim still needed.
         try:
-            self.verdict, trim = self.engine.assess(self.setup, self.runs, self.removal)
+            verdict, trim = self.engine.assess(self.setup, self.runs, self.removal)
+            self.verdict = self._whole_machine(verdict, run)
         except GateRefused as exc:
             self.step = Step("correction", "Check run not usable")
             self.problem = str(exc)
@@ -628,6 +712,29 @@ class Procedure:
             self.trims_done += 1
             self.solution = trim
             self.step = Step("correction", f"Trim {self.trims_done}")
+
+    def _whole_machine(self, verdict: Verdict, run: RunRecord) -> Verdict:
+        """The verdict looks at every pickup and the whole rotor, not only the planes solved.
+
+        A pickup whose 1x grew from the as-found run by more than both readings' 95 %
+        circles got worse; with fewer planes corrected than the machine has, the residual in
+        the other plane is not measured, so the whole rotor's allowance cannot be shown met.
+        Either one withholds the pass.
+        """
+        base = self.as_found()
+        worse = []
+        if base is not None:
+            for name, r in run.readings.items():
+                ref = base.readings.get(name)
+                if ref is None:
+                    continue
+                margin = (r.confidence_radius or 0.0) + (ref.confidence_radius or 0.0)
+                if r.amplitude - ref.amplitude > margin:
+                    worse.append(name)
+        partial = self.partial_planes
+        passed = verdict.passed and not worse and not partial
+        return replace(verdict, passed=passed, worse_pickups=tuple(worse),
+                       planes_passed=verdict.passed, partial_planes=partial)
 
     def _solve(self) -> Solution:
         if self.trims_done == 0:

@@ -16,15 +16,17 @@ from typing import Any
 
 import serial
 
+from trueturn.dsp.motion import MotionMonitor
 from trueturn.errors import UserError
 from trueturn.link.catalogue import load_catalogue
 from trueturn.link.codec import LinkEvent, Message, StreamDecoder
 from trueturn.link.ports import open_port
 from trueturn.link.session import BoardError, BoardSession, mismatch_message
+from trueturn.procedure.standstill import StandstillEvidence, StandstillWatch
 from trueturn.ui.meter import MeterAdapter, MeterView
-from trueturn.ui.procedure import StandstillWatch
 
 BOARD_NAMES = {1: "ATmega328P board", 2: "simulated board", 3: "emulated board"}
+MOTION_JUDGE_S = 0.5  # board seconds between two judgements of the pickups' motion
 
 
 class LinkProblem(Exception):
@@ -62,6 +64,7 @@ class Snapshot:
 
     meter: MeterView
     standstill: bool = False
+    evidence: StandstillEvidence | None = None
     quiet_s: float = 0.0
     board_time_s: float = 0.0
     counters: dict[str, int] = field(default_factory=dict)
@@ -86,6 +89,10 @@ class LinkSession:
         self.meter = MeterAdapter(sensor_names[:channels], mains_hz=mains_hz,
                                   pickups=list(pickups)[:channels])
         self.watch = StandstillWatch(standstill_s)
+        self.mains_hz = mains_hz
+        self.motion: MotionMonitor | None = None  # the pickups' evidence, from stream_config
+        self._motion_judged_s = -1e9
+        self._motion_next_index: int | None = None
         self.identity: BoardIdentity | None = None
         self.port: Any = None
         self.board: BoardSession | None = None
@@ -163,6 +170,10 @@ class LinkSession:
         self._tick_base = 0
         self._last_tick32 = None
         self.watch.reset()
+        if self.motion is not None:
+            self.motion.clear()
+        self._motion_next_index = None
+        self._motion_judged_s = -1e9
 
     def reconnect(self, timeout_s: float = 3.0) -> BoardIdentity:
         """Open the same port again after a lost link and check who answers (like
@@ -251,7 +262,9 @@ class LinkSession:
         elif msg.name == "samples":
             last_index = v["first_index"] + len(v["samples"]) - 1
             tick = (self._start_tick + last_index * self._period_ticks) & 0xFFFFFFFF
-            self.watch.data(self._board_time_s(tick))
+            now_s = self._board_time_s(tick)
+            self.watch.data(now_s)
+            self._feed_motion(v, now_s)
         elif msg.name == "tach":
             self.watch.edge(self._board_time_s(int(v["tick"])))
         elif msg.name == "status":
@@ -262,6 +275,47 @@ class LinkSession:
     def _handle_config(self, v: dict[str, Any]) -> None:
         self._start_tick = int(v["start_tick"])
         self._period_ticks = int(v["period_ticks"])
+        self._new_motion(float(v["rate_hz"]))
+
+    def _new_motion(self, rate_hz: float) -> None:
+        """The pickups' motion monitor for this stream (counts -> g from the identity's ADC
+        reference and each pickup's sensitivity)."""
+        ident = self.board.identity if self.board is not None else None
+        if ident is None or rate_hz <= 0:
+            self.motion = None
+            return
+        volts_per_count = ident["adc_reference_mv"] / 1000.0 / (1 << int(ident["adc_bits"]))
+        scales, units = [], []
+        for profile in self.meter.profiles:
+            calibrated = profile.sensitivity_v_per_g is not None and profile.sensitivity_v_per_g > 0
+            scales.append(volts_per_count / profile.sensitivity_v_per_g if calibrated
+                          else volts_per_count)
+            units.append("g" if calibrated else "V")
+        running = self.motion.running_g_rms if self.motion is not None else None
+        self.motion = MotionMonitor(self.meter.sensors, tuple(scales), rate_hz, self.mains_hz,
+                                    tuple(units))
+        if running is not None and len(running) == len(self.meter.sensors):
+            self.motion.running_g_rms = running
+        self._motion_next_index = None
+
+    def _feed_motion(self, v: dict[str, Any], now_s: float) -> None:
+        """Feed the pickups' monitor; judge twice a second of board time."""
+        if self.motion is None:
+            return
+        first = int(v["first_index"])
+        if self._motion_next_index is not None and first != self._motion_next_index:
+            self.motion.clear()  # a gap: the window starts afresh
+        self._motion_next_index = first + len(v["samples"])
+        self.motion.feed(v["samples"], int(v["channels"]))
+        if now_s - self._motion_judged_s >= MOTION_JUDGE_S:
+            self._motion_judged_s = now_s
+            self.watch.motion(now_s, self.motion.judge())
+
+    def remember_running_level(self) -> None:
+        """The pickups' present level is the running machine's (after a kept run)."""
+        with self._state:
+            if self.motion is not None:
+                self.motion.remember_running_level()
 
     def use_machine(self, sensor_names: Sequence[str], mains_hz: float,
                     pickups: Sequence[Any]) -> None:
@@ -269,6 +323,11 @@ class LinkSession:
         with self._state:
             self.meter = self.meter.for_machine(list(sensor_names)[: self.channels], mains_hz,
                                                 list(pickups)[: self.channels])
+            self.mains_hz = mains_hz
+            if self.motion is not None:
+                rate_hz = self.motion.rate_hz
+                self.motion = None
+                self._new_motion(rate_hz)
 
     def reset_meter(self) -> None:
         """Start averaging afresh (a new run)."""
@@ -282,8 +341,10 @@ class LinkSession:
             status = dict(self._status)
             view = self.meter.view()
         c = self.decoder.counters
+        with self._state:
+            evidence = self.watch.evidence()
         return Snapshot(
-            meter=view, standstill=self.watch.standstill,
+            meter=view, standstill=evidence.proven, evidence=evidence,
             quiet_s=self.watch.quiet_s(), board_time_s=self.watch.now_s or 0.0,
             counters={"frames_bad": c.frames_bad, "frames_lost": c.frames_lost,
                       "samples_lost": c.samples_lost, "tach_edges_lost": c.tach_edges_lost,

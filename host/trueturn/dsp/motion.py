@@ -1,0 +1,199 @@
+"""Is the machine moving? What the pickups alone say, for the standstill evidence.
+
+The tach says whether the mark passes the sensor; it says nothing when its tape flew off or
+the sensor was knocked aside. The pickups are independent evidence: a turning rotor shakes
+its bearings at 1x (and 2x, blade pass, ...), a rotor at rest leaves the pickups at their own
+noise floor. Two tests, both on the last few seconds of each pickup:
+
+* **periodic**: a spectral line standing well above the spectrum's median level (Welch,
+  scipy.signal.welch; Welch 1967), away from the mains line and its double (electrical hum on
+  the leads is there whether the rotor turns or not);
+* **broadband**: the RMS level (hum bands left out) against a limit set from the pickup's own noise floor
+  (ADC quantisation plus the sensor's noise density over the sampled band), tightened to a
+  quarter of the running level when that is known (never below the floor).
+
+Limits of the method, said plainly (common practice, no source): a rotor turning so slowly
+that its 1x is below the noise floor (a few hundred rpm on a well-balanced rotor, since the
+1x force grows with the square of speed) looks still to the pickups; a rotor turning at
+exactly the mains frequency hides its 1x under the hum exclusion (the broadband test and the
+harmonics still see a rough one). That is why the pickups are one piece of evidence beside
+the tach, and why the person still looks and locks out.
+"""
+
+from __future__ import annotations
+
+import math
+from collections import deque
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import signal
+
+from trueturn.dsp.spectrum import refine_peak_hz
+
+# ADXL335-class analog accelerometer noise density, 150 ug/sqrt(Hz) typical (from memory:
+# ADXL335 datasheet, "Noise density"). Used only to place the floor, not as a measurement.
+SENSOR_NOISE_DENSITY_G = 150e-6
+FLOOR_FACTOR = 2.0  # a still pickup sits at its floor; twice the floor is "near" it
+ABSOLUTE_LIMIT_G_RMS = 0.02  # above 20 mg rms broadband a pickup is never called quiet
+RUNNING_FRACTION = 0.25  # with a known running level: quiet means below a quarter of it
+PERIODIC_SNR = 6.0  # a line 6x (amplitude) above the median level, as dsp.spectrum's peaks
+PERIODIC_MIN_G = 0.003  # and at least 3 mg peak: smaller lines are not taken for motion
+HUM_GUARD_BINS = 2  # the Hann main lobe around the mains line and its double is hum
+GRID_TOLERANCE_HZ = 0.1  # the grid is never exactly at 50/60 Hz
+LOWEST_HZ = 2.0  # below this the window cannot resolve a line from the DC lobe
+WINDOW_S = 4.0  # the samples judged
+RESOLUTION_HZ = 0.5  # Welch segment length: 1 / resolution seconds
+
+
+@dataclass(frozen=True)
+class PickupMotion:
+    """What one pickup says about motion over the last window.
+
+    ``level_g_rms``: broadband AC RMS; ``limit_g_rms``: the level below which it is quiet;
+    ``periodic_hz``/``periodic_g``: the strongest line that is not hum (None: no line);
+    ``seconds``: how much signal was judged. Levels are in g for a calibrated pickup, else
+    volts (then ``unit`` says so).
+    """
+
+    name: str
+    level_g_rms: float
+    limit_g_rms: float
+    periodic_hz: float | None
+    periodic_g: float | None
+    seconds: float
+    unit: str = "g"
+
+    @property
+    def quiet(self) -> bool:
+        return self.periodic_hz is None and self.level_g_rms <= self.limit_g_rms
+
+
+def noise_floor_g_rms(g_per_count: float, rate_hz: float,
+                      density_g: float = SENSOR_NOISE_DENSITY_G) -> float:
+    """Expected RMS of a still pickup: quantisation (q / sqrt(12)) and sensor noise over the
+    band up to Nyquist, added in power (Widrow and Kollar, Quantization Noise, 2008, for the
+    q/sqrt(12) model; from memory)."""
+    quantisation = g_per_count / math.sqrt(12.0)
+    sensor = density_g * math.sqrt(rate_hz / 2.0)
+    return math.hypot(quantisation, sensor)
+
+
+def quiet_limit_g_rms(floor_g_rms: float, running_g_rms: float | None = None) -> float:
+    """The broadband limit: twice the floor, at most ``ABSOLUTE_LIMIT_G_RMS``; with a known
+    running level, at most a quarter of it, but never below twice the floor."""
+    near_floor = FLOOR_FACTOR * floor_g_rms
+    limit = max(near_floor, ABSOLUTE_LIMIT_G_RMS)
+    if running_g_rms is not None and running_g_rms > 0:
+        limit = min(limit, RUNNING_FRACTION * running_g_rms)
+    return max(limit, near_floor)
+
+
+def motion_spectrum(values: np.ndarray, rate_hz: float, mains_hz: float | None,
+                    resolution_hz: float = RESOLUTION_HZ
+                    ) -> tuple[float, tuple[float, float] | None]:
+    """Broadband level and the strongest line that is not mains hum, from one Welch spectrum.
+
+    Returns ``(level_rms, line)``: the RMS over the band from ``LOWEST_HZ`` up, with the hum
+    bands left out (Parseval: the sum of the density times the bin width), and the strongest
+    line as (Hz, peak amplitude) or None. Welch's averaged periodogram (Hann, 50 % overlap);
+    a line must stand ``PERIODIC_SNR`` times (amplitude) above the median level and reach
+    ``PERIODIC_MIN_G``; its amplitude is the power over the Hann main lobe, as in
+    :mod:`trueturn.dsp.spectrum`.
+    """
+    x = np.asarray(values, dtype=float)
+    if x.size < 64:
+        return (float(np.std(x)) if x.size else math.nan), None
+    nperseg = 1 << max(6, math.ceil(math.log2(rate_hz / resolution_hz)))
+    nperseg = min(nperseg, 1 << int(math.log2(x.size)))
+    freqs, psd = signal.welch(x, fs=rate_hz, window="hann", nperseg=nperseg,
+                              noverlap=nperseg // 2, detrend="constant", scaling="density")
+    df = float(freqs[1] - freqs[0])
+    band = freqs >= max(LOWEST_HZ, 3 * df)
+    if mains_hz:
+        for k in (1, 2):
+            band &= np.abs(freqs - k * mains_hz) > HUM_GUARD_BINS * df + GRID_TOLERANCE_HZ
+    level = math.sqrt(float(psd[band].sum()) * df)
+    usable = band & (freqs <= 0.45 * rate_hz)
+    if not usable.any():
+        return level, None
+    floor = float(np.median(psd[1:]))
+    candidates = np.flatnonzero(usable)
+    best = int(candidates[np.argmax(psd[candidates])])
+    lobe = psd[max(best - 2, 0): best + 3]
+    amplitude = math.sqrt(2.0 * float(lobe.sum()) * df)
+    if psd[best] < floor * PERIODIC_SNR ** 2 or amplitude < PERIODIC_MIN_G:
+        return level, None
+    return level, (refine_peak_hz(freqs, psd, best), amplitude)
+
+
+class MotionMonitor:
+    """The last ``window_s`` of each pickup's samples, judged on demand.
+
+    Feed it interleaved ADC counts as they arrive (:meth:`feed`); a gap (lost samples)
+    starts the window afresh. ``g_per_count`` per channel converts counts to g (or volts
+    for an uncalibrated pickup, named by ``units``).
+    """
+
+    def __init__(self, names: tuple[str, ...], g_per_count: tuple[float, ...], rate_hz: float,
+                 mains_hz: float | None, units: tuple[str, ...] | None = None,
+                 window_s: float = WINDOW_S) -> None:
+        self.names = names
+        self.g_per_count = g_per_count
+        self.rate_hz = float(rate_hz)
+        self.mains_hz = mains_hz
+        self.units = units or tuple("g" for _ in names)
+        self.size = max(64, int(window_s * self.rate_hz))
+        self._rings: list[deque[np.ndarray]] = [deque() for _ in names]
+        self._counts = [0] * len(names)
+        self.running_g_rms: list[float | None] = [None] * len(names)
+
+    def clear(self) -> None:
+        for ring in self._rings:
+            ring.clear()
+        self._counts = [0] * len(self.names)
+
+    def feed(self, interleaved_counts: np.ndarray, channels: int) -> None:
+        """One block of samples, channel-interleaved as in the protocol's samples message."""
+        values = np.asarray(interleaved_counts)
+        n = values.size - values.size % channels
+        for c in range(min(channels, len(self.names))):
+            block = values[c:n:channels]
+            ring = self._rings[c]
+            ring.append(block)
+            self._counts[c] += block.size
+            while ring and self._counts[c] - ring[0].size >= self.size:
+                self._counts[c] -= ring.popleft().size
+
+    def seconds(self) -> float:
+        """Signal held for the pickup with the least (seconds)."""
+        return min(self._counts, default=0) / self.rate_hz if self.rate_hz else 0.0
+
+    def levels(self) -> list[float]:
+        """Broadband level of each pickup over what is held (hum left out; g or volts)."""
+        return [motion_spectrum(self._values(c), self.rate_hz, self.mains_hz)[0]
+                for c in range(len(self.names))]
+
+    def remember_running_level(self) -> None:
+        """The present levels are a running machine's (call at the end of a recorded run)."""
+        self.running_g_rms = [v if math.isfinite(v) else None for v in self.levels()]
+
+    def _values(self, c: int) -> np.ndarray:
+        ring = self._rings[c]
+        if not ring:
+            return np.zeros(0)
+        x = np.concatenate(list(ring)).astype(float) * self.g_per_count[c]
+        return x[-self.size:]
+
+    def judge(self) -> tuple[PickupMotion, ...]:
+        """Each pickup's evidence over what is held (possibly less than the full window)."""
+        out = []
+        for c, name in enumerate(self.names):
+            x = self._values(c)
+            floor = noise_floor_g_rms(self.g_per_count[c], self.rate_hz)
+            limit = quiet_limit_g_rms(floor, self.running_g_rms[c])
+            level, line = motion_spectrum(x, self.rate_hz, self.mains_hz)
+            out.append(PickupMotion(
+                name, level, limit, None if line is None else line[0],
+                None if line is None else line[1], x.size / self.rate_hz, self.units[c]))
+        return tuple(out)

@@ -22,7 +22,7 @@ def port():
 def test_identify_configure_start_stream_stop(port) -> None:
     session = BoardSession(port)
     ident = session.identify()
-    assert ident["protocol_version"] == 1 and ident["board_id"] == 2
+    assert ident["protocol_version"] == load_catalogue().protocol_version and ident["board_id"] == 2
     cfg = session.configure(rate_hz=2000, channels=2)
     assert cfg["period_ticks"] == ident["tick_hz"] // (2000 * 2)
     started = session.start()
@@ -58,7 +58,9 @@ def test_mismatched_definitions_are_refused_naming_both(port) -> None:
 
 def test_mismatch_message_is_none_for_a_matching_board() -> None:
     cat = load_catalogue()
-    assert mismatch_message({"protocol_version": 1, "definition_hash": cat.definition_hash},
+    ours = cat.protocol_version
+    assert mismatch_message({"protocol_version": ours, "definition_hash": cat.definition_hash},
                             cat) is None
-    assert "protocol 2" in mismatch_message({"protocol_version": 2,
-                                             "definition_hash": cat.definition_hash}, cat)
+    assert f"protocol {ours + 1}" in mismatch_message({"protocol_version": ours + 1,
+                                                      "definition_hash": cat.definition_hash},
+                                                     cat)

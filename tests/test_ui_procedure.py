@@ -67,6 +67,15 @@ class Rig:
             self.proc.watch.edge(self.t)
             self._judge(rpm / 60.0)
 
+    def coast(self, rpm: float) -> None:
+        """The machine is switched off: edges ever farther apart from ``rpm`` down to 30 rpm
+        (a linear coast-down of a few seconds), then nothing."""
+        while rpm > 30.0:
+            self.t += 60.0 / rpm
+            self.proc.watch.edge(self.t)
+            self._judge(rpm / 60.0 if rpm > 300 else None)
+            rpm *= 0.9
+
     def rest(self, seconds: float) -> None:
         """Board time passes at standstill: samples keep arriving, no tach edges."""
         end = self.t + seconds
@@ -116,6 +125,7 @@ class Rig:
         r = self.readings()
         assert self.proc.ready(r)
         self.proc.record(r, self.setup.speed_rpm, self.t)
+        self.coast(self.setup.speed_rpm)
 
     def complete(self) -> None:
         for _ in range(20):
@@ -139,6 +149,9 @@ def test_standstill_needs_quiet_tach_quiet_pickups_and_live_data() -> None:
     for k in range(100):
         watch.edge(k * 0.02)
     assert watch.evidence().state is StandstillState.TURNING
+    watch.edge(1.98 + 0.6)  # coasting down: the last turns at 100 rpm, then 30 rpm
+    watch.edge(2.0)
+    watch.edge(2.0)  # a repeated edge time is not a period
     watch.motion(2.0 + 2.9, pickups(names, 50.0))  # still shaking at 50 Hz
     assert not watch.standstill  # 2.9 s since the last edge
     watch.motion(2.0 + 3.1, pickups(names, None))
@@ -146,7 +159,7 @@ def test_standstill_needs_quiet_tach_quiet_pickups_and_live_data() -> None:
     watch.motion(2.0 + 6.1, pickups(names, None))
     ev = watch.evidence()
     assert ev.proven and ev.tach_trusted and ev.basis is not None
-    assert ev.last_speed_rpm == pytest.approx(3000.0)  # 60 / 0.02 s
+    assert ev.last_speed_rpm == pytest.approx(100.0)  # 60 / 0.6 s
     wall[0] += 1.5  # then the data stops coming: the old quiet proves nothing now
     assert watch.evidence().state is StandstillState.NO_DATA
     watch.data(2.0 + 6.2)
@@ -182,6 +195,16 @@ def _refusal(rig: Rig) -> str:
     with pytest.raises(GateRefused) as info:
         rig.proc.tick_next()
     return str(info.value)
+
+
+def test_edges_that_stop_at_speed_are_a_tach_losing_its_mark() -> None:
+    # A rotor slows down before it stops; edges that stop at 3500 rpm mean the tach lost its
+    # mark: its silence proves nothing and the long quiet applies (common practice, no source).
+    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+    rig.spin(3.0, 3500.0)
+    rig.rest(5.0)
+    ev = rig.proc.watch.evidence()
+    assert not ev.proven and not ev.tach_trusted and ev.tach_hold_needed_s >= 20.0
 
 
 def test_a_slow_rotor_is_not_taken_for_a_still_one() -> None:
@@ -383,7 +406,8 @@ def test_a_silent_tach_proves_little_after_a_board_reset() -> None:
     with pytest.raises(GateRefused, match="checking standstill"):
         rig.proc.lock_out(rig.t)
     rig.spin(2.0, 600.0)  # 20 edges: the tach works
-    rig.rest(3.5)
+    rig.coast(600.0)
+    rig.settle()
     assert rig.proc.watch.evidence().basis.value == "tach-and-pickups"
     tick_all(rig.proc)
     rig.proc.lock_out(rig.t)

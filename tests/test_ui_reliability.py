@@ -297,7 +297,8 @@ def test_lock_out_after_a_restart_needs_the_tach_seen_working_again() -> None:
         raise AssertionError("tick allowed with an unproven tach after 3.5 s")
     except GateRefused as exc:
         assert "checking standstill" in str(exc)
-    rig.spin(1.0, rig.setup.speed_rpm)  # seen working again, then quiet
+    rig.spin(1.0, rig.setup.speed_rpm)  # seen working again, coasting down, then quiet
+    rig.coast(rig.setup.speed_rpm)
     rig.settle()
     assert proc.watch.evidence().basis.value == "tach-and-pickups"
     tick_all(proc)

@@ -13,7 +13,9 @@ order it is checked:
    and the broadband level near their own floor, judged on fresh signal, continuously for
    ``hold_s``.
 4. **The tach is trusted**: it was seen working (``TACH_PROVEN_EDGES`` edges) since the link
-   started, and no tach fault happened since. An untrusted tach (never seen working, or
+   started, no tach fault happened since, and its edges did not stop abruptly (at an even
+   pace above ``ABRUPT_STOP_RPM``: a rotor slows down before it stops, a tach losing its
+   mark does not). An untrusted tach (never seen working, or
    silent while the pickups saw the machine run) does not count as evidence: then the
    pickups must stay quiet, and the tach silent, for ``untrusted_hold_s`` (longer, so a rotor
    coasting below what the pickups can see has stopped).
@@ -44,6 +46,11 @@ TACH_PROVEN_EDGES = 10  # edges seen before the tach's silence counts as evidenc
 TURNING_WINDOW_S = 1.0  # an edge within this much board time: the tach sees the rotor turn
 PERIODS_HELD = 3.0  # silent for three of the last measured revolutions
 MOTION_STALE_S = 2.0  # pickup judgements older than this (board time) are not evidence
+# A coast-down ends with edges ever farther apart; edges that stop at an even pace faster
+# than one turn a second are a tach that lost its mark (common practice, no source): its
+# silence then proves nothing and the long hold applies.
+ABRUPT_STOP_RPM = 60.0
+STEADY_RATIO = 1.05
 
 
 class StandstillState(str, Enum):
@@ -128,6 +135,7 @@ class StandstillWatch:
         self.now_s: float | None = None
         self.last_edge_s: float | None = None
         self.last_period_s: float | None = None
+        self.prev_period_s: float | None = None
         self.last_data_wall_s: float | None = None
         self.edges_seen = 0
         self.fault_latched = False
@@ -150,6 +158,7 @@ class StandstillWatch:
         """A tach edge at this board time."""
         self.data(board_time_s)
         if self.last_edge_s is not None and board_time_s > self.last_edge_s:
+            self.prev_period_s = self.last_period_s
             self.last_period_s = board_time_s - self.last_edge_s
         self.last_edge_s = board_time_s
         self.edges_seen += 1
@@ -207,8 +216,21 @@ class StandstillWatch:
                 and self.clock() - self.last_data_wall_s <= self.stale_s)
 
     @property
+    def stopped_abruptly(self) -> bool:
+        """The edges stopped at a steady speed above ``ABRUPT_STOP_RPM``: the last two
+        periods within ``STEADY_RATIO`` of each other. A coasting rotor's last turns come
+        ever slower (each period clearly longer than the one before); a tach that lost its
+        mark at speed stops with periods as even as ever."""
+        if not self.last_period_s or not self.prev_period_s:
+            return False
+        speed = 60.0 / self.last_period_s
+        return (speed > ABRUPT_STOP_RPM and self.last_period_s < STEADY_RATIO * self.prev_period_s
+                and self.tach_silent_s() >= TURNING_WINDOW_S)
+
+    @property
     def tach_trusted(self) -> bool:
-        return self.edges_seen >= TACH_PROVEN_EDGES and not self.fault_latched
+        return (self.edges_seen >= TACH_PROVEN_EDGES and not self.fault_latched
+                and not self.stopped_abruptly)
 
     def evidence(self) -> StandstillEvidence:
         now = self.now_s or 0.0

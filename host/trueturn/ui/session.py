@@ -26,7 +26,7 @@ from trueturn.procedure.standstill import StandstillEvidence, StandstillWatch
 from trueturn.ui.meter import MeterAdapter, MeterView
 
 BOARD_NAMES = {1: "ATmega328P board", 2: "simulated board", 3: "emulated board"}
-MOTION_JUDGE_S = 0.5  # board seconds between two judgements of the pickups' motion
+MOTION_JUDGE_S = 0.2  # board seconds between two judgements of the pickups' motion
 
 
 class LinkProblem(Exception):

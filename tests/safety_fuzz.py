@@ -34,6 +34,10 @@ STEP_S = 0.1
 ACTIONS = ("tick", "untick", "enter", "abort", "motor_on", "motor_off", "tach_dark",
            "tach_ok", "tach_flicker", "link_lost", "link_back", "board_restart", "overspeed",
            "wait", "wait_long", "arm")
+# Drawn from with these repeats, so random sequences get past the gates often enough for
+# the property to be tested where it matters (a person mostly ticks, confirms and waits).
+WEIGHTED_ACTIONS = ACTIONS + ("tick",) * 6 + ("enter",) * 6 + ("wait_long",) * 6 + \
+    ("arm",) * 2 + ("motor_off",) * 2
 
 
 @dataclass

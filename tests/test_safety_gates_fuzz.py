@@ -9,11 +9,11 @@ from __future__ import annotations
 from hypothesis import given, settings
 from hypothesis import strategies as st
 
-from safety_fuzz import ACTIONS, run_sequence
+from safety_fuzz import WEIGHTED_ACTIONS, run_sequence
 
 
 @settings(max_examples=300, deadline=None, derandomize=True)
-@given(seed=st.integers(0, 2**16), actions=st.lists(st.sampled_from(ACTIONS), max_size=60))
+@given(seed=st.integers(0, 2**16), actions=st.lists(st.sampled_from(WEIGHTED_ACTIONS), max_size=60))
 def test_no_hands_on_step_unlocks_while_the_rotor_turns(seed: int, actions: list[str]) -> None:
     rig = run_sequence(seed, actions)
     assert rig.unlocked_while_turning == 0

@@ -6,12 +6,13 @@ CAUTIONS = "\n".join([
     "[b]Cautions — read before every job[/b]", "",
     "• A rotor can throw a weight, clip or chip hard enough to injure or kill: stay out of "
     "the plane of rotation whenever the machine can turn.",
-    "• Before touching the rotor: switch off, pull the plug or lock the isolator, wait for "
-    "the tach to confirm standstill, and look for yourself.",
+    "• Before touching the rotor: switch off, pull the plug or lock the isolator, wait until "
+    "the screen says standstill is proven (tach and pickups agree), and look for yourself.",
     "• Fasten weights only as the machine's maker allows (screws with thread lock, clips "
     "made for it). Putty and tape: trials at reduced speed only, if at all.",
     "• Removing mass weakens parts. Never drill a grinding wheel, a saw blade, a cast fan "
-    "hub or a cutterhead body; follow the maker's instructions.",
+    "hub, fan blades or a cutterhead body; follow the maker's instructions. The app offers "
+    "removal only where the machine profile allows it (default: not allowed).",
     "• Never run above the machine's or the wheel's marked maximum speed.",
     "• Guards and covers back on before every run; wear eye and ear protection.",
     "• Stop at once if vibration rises, a noise changes or anything comes loose.", "",
@@ -27,8 +28,10 @@ KEYS: list[tuple[str, str]] = [
     ("g", "Guide: the balancing procedure"),
     ("1 2 3 4", "Set-up: one plane / two planes / amplitude only / one-run trim"),
     ("p", "Set-up: pick a saved machine or create a new one"),
-    ("1 … 4", "Guide: tick or untick a checklist item"),
-    ("Enter", "Guide: confirm the step shown (gates refuse while unsafe)"),
+    ("Space", "Guide: tick the next checklist item (only at proven standstill)"),
+    ("Backspace", "Guide: take back the last tick"),
+    ("a", "Guide: stop the run now (nothing of it is kept; inspect the rotor next)"),
+    ("Enter", "Guide: confirm the step shown (gates refuse while unsafe); acknowledge an alarm"),
     ("r", "Guide: remove material instead of adding mass (correction step)"),
     ("o", "Demo rig: switch the virtual motor on"),
     ("x", "Demo rig: switch the virtual motor off"),
@@ -36,7 +39,7 @@ KEYS: list[tuple[str, str]] = [
     ("c", "Cautions (safety notes)"),
     ("? / F1", "This list of keys"),
     ("Escape", "Close this screen / go back"),
-    ("q", "Quit (the job is saved after every run)"),
+    ("q", "Quit (the job is saved after every run; during a run, press q twice)"),
 ]
 
 

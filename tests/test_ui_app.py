@@ -325,3 +325,53 @@ def test_a_pulled_cable_is_reported_and_blocks_the_gates(tmp_path: Path) -> None
             assert "Refused: no fresh data from the board" in screen_text(app)
             await press(app, pilot, "q")
     asyncio.run(scenario())
+
+
+def test_a_dark_tach_on_a_running_machine_is_a_tach_fault_on_screen(tmp_path: Path) -> None:
+    # sim:// with the tach off and the motor on: no STANDSTILL, no tick, a reason in words.
+    async def scenario() -> None:
+        source = quick_scenario("bench-grinder", tmp_path)
+        app = TrueturnApp(AppConfig(f"sim://{source}?realtime=0&tach=off",
+                                    scenario_profile(source), demo=True,
+                                    workspace=tmp_path / "ws"))
+        async with app.run_test(size=SIZE) as pilot:
+            await connect(app, pilot)
+            await press(app, pilot, "2")
+            await wait_for(pilot, lambda: "TACH FAULT" in screen_text(app), 30)
+            assert "STANDSTILL" not in screen_text(app)
+            await press(app, pilot, "space", "space", "enter")
+            proc = app.procedure
+            assert proc is not None and proc.ticked == set() and proc.step.phase == "lockout"
+            assert "Refused: TACH FAULT" in screen_text(app)
+            await press(app, pilot, "q")
+    asyncio.run(scenario())
+
+
+def test_a_run_is_stopped_with_a_and_q_asks_first(tmp_path: Path) -> None:
+    async def scenario() -> None:
+        app = make_app("bench-grinder", tmp_path)
+        app.config.revolutions_per_run = 10**9  # this run never completes by itself
+        async with app.run_test(size=SIZE) as pilot:
+            await connect(app, pilot)
+            await press(app, pilot, "2")
+            await wait_for(pilot, lambda: "Standstill proven" in screen_text(app))
+            await press(app, pilot, "space", "space", "enter")
+            await press(app, pilot, "space", "space", "space", "space", "enter")
+            proc = app.procedure
+            assert proc is not None and proc.step.kind == "run"
+            await press(app, pilot, "enter")  # forces confirmed: the motor starts
+            await wait_for(pilot, lambda: "TURNING" in screen_text(app))
+            await press(app, pilot, "q")  # mid-run: asks first
+            assert "press q again" in screen_text(app)
+            await press(app, pilot, "a")
+            assert proc.step.kind == "hands-on" and proc.runs == []
+            assert "Run stopped" in screen_text(app)
+            job = read_document(app.keeper.path, "job")
+            assert job.runs == [] and [e.kind for e in job.pending.events] == ["aborted"]
+            # The inspection waits for standstill, then the same run comes again.
+            await wait_for(pilot, lambda: "Standstill proven" in screen_text(app), 60)
+            await press(app, pilot, "space", "space", "enter")
+            await press(app, pilot, "space", "space", "space", "space", "enter")
+            assert proc.step.kind == "run" and proc.step.run_label == "as found"
+            await press(app, pilot, "q")
+    asyncio.run(scenario())

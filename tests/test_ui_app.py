@@ -87,6 +87,12 @@ def screen_text(app: TrueturnApp) -> str:
     return "\n".join(str(w.render()) for w in app.screen.query(Static))
 
 
+async def through_hands_on_gates(app: TrueturnApp, pilot: Pilot, wait_s: float = 60.0) -> None:
+    """Wait for proven standstill, then tick the lock-out list, Enter, the done list, Enter."""
+    await wait_for(pilot, lambda: "Standstill proven" in screen_text(app), wait_s)
+    await press(app, pilot, "space", "space", "enter", "space", "space", "space", "space", "enter")
+
+
 async def connect(app: TrueturnApp, pilot: Pilot) -> None:
     await wait_for(pilot, lambda: "Press Enter to start" in screen_text(app), 20)
     await press(app, pilot, "enter")
@@ -196,8 +202,7 @@ def test_confirm_while_the_rotor_turns_is_refused(tmp_path: Path) -> None:
         async with app.run_test(size=SIZE) as pilot:
             await connect(app, pilot)
             await press(app, pilot, "2")
-            await wait_for(pilot, lambda: "Standstill proven" in screen_text(app))
-            await press(app, pilot, "space", "space", "enter", "space", "space", "space", "space", "enter")
+            await through_hands_on_gates(app, pilot)
             proc = app.procedure
             assert proc is not None and proc.step.kind == "run"
             await press(app, pilot, "enter")  # confirm the forces: the motor starts
@@ -354,9 +359,7 @@ def test_a_run_is_stopped_with_a_and_q_asks_first(tmp_path: Path) -> None:
         async with app.run_test(size=SIZE) as pilot:
             await connect(app, pilot)
             await press(app, pilot, "2")
-            await wait_for(pilot, lambda: "Standstill proven" in screen_text(app))
-            await press(app, pilot, "space", "space", "enter")
-            await press(app, pilot, "space", "space", "space", "space", "enter")
+            await through_hands_on_gates(app, pilot)
             proc = app.procedure
             assert proc is not None and proc.step.kind == "run"
             await press(app, pilot, "enter")  # forces confirmed: the motor starts
@@ -369,9 +372,7 @@ def test_a_run_is_stopped_with_a_and_q_asks_first(tmp_path: Path) -> None:
             job = read_document(app.keeper.path, "job")
             assert job.runs == [] and [e.kind for e in job.pending.events] == ["aborted"]
             # The inspection waits for standstill, then the same run comes again.
-            await wait_for(pilot, lambda: "Standstill proven" in screen_text(app), 60)
-            await press(app, pilot, "space", "space", "enter")
-            await press(app, pilot, "space", "space", "space", "space", "enter")
+            await through_hands_on_gates(app, pilot)
             assert proc.step.kind == "run" and proc.step.run_label == "as found"
             await press(app, pilot, "q")
     asyncio.run(scenario())

@@ -16,7 +16,16 @@ from pathlib import Path
 
 from textual.pilot import Pilot
 
-from test_ui_app import SIZE, connect, make_app, press, screen_text, wait_for, widget_text
+from test_ui_app import (
+    SIZE,
+    connect,
+    make_app,
+    press,
+    screen_text,
+    through_hands_on_gates,
+    wait_for,
+    widget_text,
+)
 from test_ui_procedure import Rig, tick_all
 from trueturn.jobs.store import read_document
 from trueturn.ui.app import TrueturnApp
@@ -63,8 +72,7 @@ def fault_while_spinning_up(app: TrueturnApp, fault: Callable[[], None]) -> dict
 async def to_the_as_found_run(app: TrueturnApp, pilot: Pilot) -> None:
     """Set-up step through both gates, then confirm the forces: the motor starts."""
     await press(app, pilot, "1")
-    await wait_for(pilot, lambda: "Standstill proven" in screen_text(app), 20)
-    await press(app, pilot, "space", "space", "enter", "space", "space", "space", "space", "enter")
+    await through_hands_on_gates(app, pilot, 20)
     proc = app.procedure
     assert proc is not None and proc.step.kind == "run" and proc.step.phase == "arming"
 
@@ -81,8 +89,7 @@ def test_unplug_mid_run_keeps_the_job_and_reconnect_resumes_the_run(tmp_path: Pa
             await wait_for(pilot, lambda: len(proc.runs) == 1, 30)
             # the trial mass goes on, then its run is cut by the pulled cable
             await press(app, pilot, "x")
-            await wait_for(pilot, lambda: "Standstill proven" in screen_text(app), 20)
-            await press(app, pilot, "space", "space", "enter", "space", "space", "space", "space", "enter")
+            await through_hands_on_gates(app, pilot, 20)
             assert proc.step.kind == "run" and proc.step.phase == "arming"
             saved_before = app.keeper.path.read_bytes()
             old_rig = app.session.rig

@@ -207,7 +207,6 @@ class StandstillWatch:
         since = self.first_s if self.last_edge_s is None else self.last_edge_s
         return max(0.0, self.now_s - since)
 
-    quiet_s = tach_silent_s  # the older name
 
     @property
     def fresh(self) -> bool:

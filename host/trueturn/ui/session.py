@@ -345,7 +345,7 @@ class LinkSession:
             evidence = self.watch.evidence()
         return Snapshot(
             meter=view, standstill=evidence.proven, evidence=evidence,
-            quiet_s=self.watch.quiet_s(), board_time_s=self.watch.now_s or 0.0,
+            quiet_s=evidence.tach_silent_s, board_time_s=self.watch.now_s or 0.0,
             counters={"frames_bad": c.frames_bad, "frames_lost": c.frames_lost,
                       "samples_lost": c.samples_lost, "tach_edges_lost": c.tach_edges_lost,
                       "board_resets": c.board_resets},

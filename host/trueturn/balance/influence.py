@@ -358,14 +358,20 @@ def _uncertainty(inp: BalanceInput, fit, nominal: np.ndarray, weights: np.ndarra
     return [float(v) for v in mass_pm], [float(v) for v in angle_pm]
 
 
-def _trial_warnings(inp: BalanceInput, r0: np.ndarray, model: InfluenceModel) -> list[str]:
-    """Warn where a plane's trial changed the 1x too little against the level or the scatter."""
-    warnings = []
-    conf = {}
+def _largest_confidence(inp: BalanceInput) -> dict[str, float]:
+    """Each pickup's largest 95 % confidence radius over the runs (pickups without one left out)."""
+    conf: dict[str, float] = {}
     for run in inp.runs:
         for name, r in run.readings.items():
             if r.confidence:
                 conf[name] = max(conf.get(name, 0.0), r.confidence)
+    return conf
+
+
+def _trial_warnings(inp: BalanceInput, r0: np.ndarray, model: InfluenceModel) -> list[str]:
+    """Warn where a plane's trial changed the 1x too little against the level or the scatter."""
+    warnings = []
+    conf = _largest_confidence(inp)
     for j, plane in enumerate(inp.planes):
         trial_g = max(abs(mass_vector(r.added, inp.planes)[j]) for r in inp.runs)
         if trial_g <= 0:
@@ -392,11 +398,7 @@ def _trial_warnings(inp: BalanceInput, r0: np.ndarray, model: InfluenceModel) ->
 def _refuse_uninformative_trials(inp: BalanceInput, r0: np.ndarray, model: InfluenceModel) -> None:
     """No information, no answer: a plane whose trial is unresolved on every pickup is refused
     (:func:`trueturn.balance.sanity.check_trial_information`)."""
-    conf: dict[str, float] = {}
-    for run in inp.runs:
-        for name, r in run.readings.items():
-            if r.confidence:
-                conf[name] = max(conf.get(name, 0.0), r.confidence)
+    conf = _largest_confidence(inp)
     for j, plane in enumerate(inp.planes):
         trial_g = max(abs(mass_vector(r.added, inp.planes)[j]) for r in inp.runs)
         effects = [float(abs(model.matrix[c, j]) * trial_g) for c in range(len(model.channels))]

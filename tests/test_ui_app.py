@@ -153,12 +153,16 @@ def test_two_plane_bench_grinder_to_a_pass_verdict(tmp_path: Path) -> None:
             assert proc is not None and proc.verdict is not None
             assert proc.verdict.passed
             assert "PASS" in screen_text(app)
+            # ISO 21940-11 at the bearings (the profile places them), at the service speed
+            assert "judged at the bearings" in screen_text(app)
+            assert "bearing 1: residual" in screen_text(app)
             # Honest residual: the weights the app placed on the simulated rotor cut the
             # exact 1x (physics) by at least 90 %.
             assert unbalance_now(app) < 0.1 * before
             assert keys < 60
             job = read_document(app.keeper.path, "job")
             assert job.status == "closed" and job.verdict.passed
+            assert [p.plane for p in job.verdict.planes] == ["bearing 1", "bearing 2"]
             assert [r.kind for r in job.runs] == ["initial", "trial", "trial", "check"]
             assert job.influence is not None  # kept for a later one-run trim
             # readings are stored with the DSP layer's unit label, detector included

@@ -9,6 +9,7 @@ the :class:`~trueturn.ui.session.LinkSession`; the screen polls a snapshot ten t
 from __future__ import annotations
 
 import contextlib
+import math
 import statistics
 import time
 from dataclasses import dataclass, field
@@ -22,6 +23,7 @@ from textual.screen import Screen
 from textual.widgets import ContentSwitcher, Footer, ProgressBar, Sparkline, Static
 from textual.worker import get_current_worker
 
+from trueturn.angles import wrap_deg
 from trueturn.errors import UserError
 from trueturn.jobs.profiles import MachineProfile
 from trueturn.jobs.records import CoefficientSet
@@ -40,7 +42,7 @@ from trueturn.ui.procedure import (
 )
 from trueturn.ui.rig import DemoRig
 from trueturn.ui.session import LinkProblem, LinkSession, Snapshot
-from trueturn.ui.texts import CAUTIONS, keys_markup
+from trueturn.ui.texts import CAUTIONS, VERDICT_FLAG_WORDS, keys_markup
 from trueturn.ui.widgets import PolarPlot, PolarPoint
 
 TICK_S = 0.1
@@ -160,6 +162,7 @@ class BenchScreen(Screen):
         Binding("backspace", "untick", "Untick", show=False),
         Binding("a", "abort", "Stop run", show=False),
         Binding("r", "removal", "Add/remove", show=False),
+        Binding("e", "again", "Run again", show=False),
         Binding("p", "machine", "Machine", show=False),
         Binding("o", "motor(True)", "Motor on", show=False),
         Binding("x", "motor(False)", "Motor off", show=False),
@@ -215,6 +218,9 @@ class BenchScreen(Screen):
 
     def action_removal(self) -> None:
         self.trueturn.toggle_removal()
+
+    def action_again(self) -> None:
+        self.trueturn.run_off_speed_again()
 
     def action_machine(self) -> None:
         self.trueturn.pick_machine()
@@ -513,6 +519,11 @@ class TrueturnApp(App):
                 self.message = "The run was interrupted: press l to reconnect; it starts over."
             elif step.kind == "run":
                 self.message = "Measuring: wait for the bar to fill (the reading must be steady)."
+            elif (step.kind == "correction" and proc.too_small_trial is not None
+                  and proc.too_small_trial.suggested_g is not None):
+                larger = proc.redo_trial_larger()
+                self.message = (f"Redo the trial on {larger.plane} with {larger.mass_g:.1f} g: "
+                                "the hands-on step comes first.")
             elif step.kind == "correction" and proc.problem:
                 proc.repeat_run()
                 self.message = "Run again: confirm the forces to start."
@@ -526,6 +537,20 @@ class TrueturnApp(App):
                 self.message = "Job closed and saved (report beside it). Press q to quit."
             else:
                 self.message = "The job is finished. Press q to quit."
+        except GateRefused as exc:
+            self.message = f"Refused: {exc}"
+        self.tick()
+
+    def run_off_speed_again(self) -> None:
+        """e: measure again the coefficient run that was furthest off speed."""
+        proc = self.procedure
+        if proc is None:
+            return
+        try:
+            off = proc.repeat_off_speed_run()
+            self.message = (f"Run '{off.label}' again at the usual speed (it was "
+                            f"{100 * abs(off.deviation):.1f} % "
+                            f"{'slow' if off.deviation < 0 else 'fast'}).")
         except GateRefused as exc:
             self.message = f"Refused: {exc}"
         self.tick()
@@ -846,22 +871,37 @@ class TrueturnApp(App):
                 lines.append("Stop at once on a warning below. [b]a[/b]: stop this run now "
                              "(nothing of it is kept)")
         elif step.kind == "correction" and proc.problem:
-            lines += [f"[b red]No correction from these runs:[/] {proc.problem}",
-                      "Check that the pickups and the tach did not move, and that the "
-                      "machine ran at its usual speed.",
-                      "[b]Enter[/b]: measure the last run again"]
+            lines.append(f"[b red]No correction from these runs:[/] {proc.problem}")
+            small = proc.too_small_trial
+            if small is not None and small.suggested_g is not None:
+                lines.append(f"[b]Enter[/b]: redo the trial on {small.plane} with "
+                             f"{math.ceil(small.suggested_g * 10) / 10:.1f} g instead of "
+                             f"{small.trial_g:.2f} g (the other runs are kept)")
+            else:
+                lines += ["Check that the pickups and the tach did not move, that the trial "
+                          "mass is on the rotor, and that the machine ran at its usual speed.",
+                          "[b]Enter[/b]: measure the last run again"]
         elif step.kind == "correction":
             sol = proc.solution
             assert sol is not None
             lines.append(f"Method: {sol.method}")
             for c in sol.corrections:
-                verb = "remove" if proc.removal else "add"
-                lines.append(f"  {c.plane}: {verb} [b]{c.mass_g:.2f} g[/b] at {c.angle_deg:.0f}°")
+                # removal: the same mass taken out opposite the add angle
+                verb, at = (("remove", wrap_deg(c.angle_deg + 180.0)) if proc.removal
+                            else ("add", c.angle_deg))
+                lines.append(f"  {c.plane}: {verb} [b]{c.mass_g:.2f} g[/b] at {at:.0f}°")
             lines.append("Parts to place:")
             for p in sol.parts:
                 lines.append("  " + describe_change_part(p, proc))
             for w in sol.warnings[:2]:
                 lines.append(f"[yellow]{w}[/]")
+            for off in sol.off_speed:
+                way = "slow" if off.deviation < 0 else "fast"
+                lines.append(f"[yellow]Run '{off.label}' was {100 * abs(off.deviation):.1f} % "
+                             f"{way}: this correction might cut the 1x by only "
+                             f"{100 * max(off.worst_cut, 0.0):.0f} %.[/]")
+            if sol.off_speed and not proc.trims_done:
+                lines.append("[b]e[/b]: run it again at the usual speed first")
             if proc.removal_allowed:
                 lines.append("[b]r[/b]: " + ("add mass instead" if proc.removal else
                                              "remove material instead (drill/grind)") +
@@ -873,13 +913,16 @@ class TrueturnApp(App):
             v = proc.verdict
             assert v is not None
             word = "[b green]PASS[/]" if v.passed else "[b red]NOT YET[/]"
-            lines.append(f"{word}: ISO 21940-11, grade G {v.grade_mm_per_s:g} at "
-                         f"{proc.setup.speed_rpm:.0f} rpm, {len(proc.runs)} runs")
-            for plane, res in v.residual_gmm.items():
-                per = v.permissible_gmm.get(plane, float("nan"))
-                lines.append(f"  {plane}: residual {res:.1f} g·mm, permissible {per:.1f} g·mm")
+            where = "at the bearings" if v.at_bearings else "in the correction planes"
+            lines.append(f"{word}: ISO 21940-11, grade G {v.grade_mm_per_s:g} at the maximum "
+                         f"service speed {v.speed_rpm or proc.setup.speed_rpm:.0f} rpm, judged "
+                         f"{where}, {len(proc.runs)} runs")
+            for label, res in v.residual_gmm.items():
+                per = v.permissible_gmm.get(label, float("nan"))
+                lines.append(f"  {label}: residual {res:.1f} g·mm, permissible {per:.1f} g·mm")
             if v.note:
                 lines.append(v.note)
+            lines += [f"[yellow]{VERDICT_FLAG_WORDS.get(f, f)}[/]" for f in v.flags]
             if v.worse_pickups:
                 lines.append(f"[b red]Worse than as found at {', '.join(v.worse_pickups)}[/] "
                              "(beyond both readings' 95 % circles): not passed.")

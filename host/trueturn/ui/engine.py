@@ -9,8 +9,10 @@ least squares over all runs, the amplitude-only (four-run) method, trial-mass si
 from __future__ import annotations
 
 from trueturn.angles import wrap_deg
+from trueturn.balance.iso21940 import TolerancePlanes
 from trueturn.balance.readings import (
     BalanceInput,
+    Bearing,
     Plane,
     Reading,
     Run,
@@ -19,7 +21,8 @@ from trueturn.balance.readings import (
     Tolerance,
 )
 from trueturn.balance.readings import PlacedMass as EngineMass
-from trueturn.balance.solve import solve
+from trueturn.balance.sanity import NoInformationError
+from trueturn.balance.solve import SolveReport, solve
 from trueturn.balance.splitting import split
 from trueturn.balance.trial_mass import centrifugal_force_n, size_trial_mass
 from trueturn.errors import UserError
@@ -28,11 +31,13 @@ from trueturn.ui.procedure import (
     Correction,
     GateRefused,
     Mode,
+    OffSpeed,
     PlacedMass,
     PlaneSetup,
     ProcedureSetup,
     RunRecord,
     Solution,
+    TooSmallTrial,
     TrialSuggestion,
     Verdict,
     planes_for,
@@ -80,13 +85,30 @@ class BalanceEngine:
                 for name, r in run.readings.items()}
             engine_runs.append(Run(run.label, tuple(_engine_mass(m) for m in run.masses),
                                    readings, run.speed_rpm))
+        # judged at the bearings when the profile places them and every plane used
+        at_bearings = (len(setup.bearings) == 2
+                       and all(p.axial_mm is not None for p in planes))
         tolerance = None
         if with_tolerance:
-            tolerance = Tolerance(setup.rotor_mass_kg, setup.grade_mm_per_s, setup.speed_rpm)
+            # the grade at the machine's maximum service speed (profile), never the run's
+            tolerance = Tolerance(setup.rotor_mass_kg, setup.grade_mm_per_s, setup.speed_rpm,
+                                  cg_axial_mm=setup.cg_axial_mm)
         saved = tuple(c for c in setup.saved_coefficients if isinstance(c, SavedCoefficient))
-        return BalanceInput(tuple(Plane(p.name, p.radius_mm) for p in planes),
+        bearings = tuple(Bearing(name, z) for name, z in setup.bearings) if at_bearings else ()
+        return BalanceInput(tuple(Plane(p.name, p.radius_mm, p.max_mass_g,
+                                        p.axial_mm if at_bearings else None) for p in planes),
                             tuple(Sensor(s) for s in setup.sensors), tuple(engine_runs),
-                            influence=saved, tolerance=tolerance)
+                            influence=saved, tolerance=tolerance, bearings=bearings)
+
+    def _report(self, inp: BalanceInput) -> SolveReport:
+        """Solve, turning the engine's refusals into gate refusals (with the facts kept)."""
+        try:
+            return solve(inp)
+        except NoInformationError as exc:
+            raise GateRefused(str(exc), TooSmallTrial(exc.plane, exc.trial_g,
+                                                      exc.suggested_g)) from None
+        except UserError as exc:
+            raise GateRefused(str(exc)) from None
 
     def _parts(self, setup: ProcedureSetup, corrections: list[Correction], kind: str,
                removal: bool) -> tuple[PlacedMass, ...]:
@@ -110,35 +132,38 @@ class BalanceEngine:
                                         removal))
         return tuple(parts)
 
-    def _solution(self, setup: ProcedureSetup, sol, corrections, kind: str,  # type: ignore[no-untyped-def]
+    def _solution(self, setup: ProcedureSetup, report: SolveReport, corrections, kind: str,  # type: ignore[no-untyped-def]
                   removal: bool) -> Solution:
+        sol = report.solution
         corr = [Correction(c.plane, c.mass_g, c.angle_deg) for c in corrections]
+        off: tuple[OffSpeed, ...] = ()
+        if report.speed is not None:
+            off = tuple(OffSpeed(o.index, o.label, o.deviation, report.speed.worst_cut_fraction)
+                        for o in report.speed.off_speed)
         return Solution(tuple(corr), self._parts(setup, corr, kind, removal), sol.method,
-                        tuple(sol.warnings), sol.influence)
+                        tuple(sol.warnings), sol.influence, off)
 
     def solve(self, setup: ProcedureSetup, runs: list[RunRecord], removal: bool) -> Solution:
-        try:
-            report = solve(self._input(setup, runs, with_tolerance=False))
-        except UserError as exc:
-            raise GateRefused(str(exc)) from None
-        sol = report.solution
-        return self._solution(setup, sol, sol.corrections, "correction", removal)
+        report = self._report(self._input(setup, runs, with_tolerance=False))
+        return self._solution(setup, report, report.solution.corrections, "correction", removal)
 
     def assess(self, setup: ProcedureSetup, runs: list[RunRecord],
                removal: bool) -> tuple[Verdict, Solution]:
         """Refit over every run so far; verdict on the last run; trim still needed."""
-        try:
-            report = solve(self._input(setup, runs, with_tolerance=True))
-        except UserError as exc:
-            raise GateRefused(str(exc)) from None
+        report = self._report(self._input(setup, runs, with_tolerance=True))
         sol = report.solution
         v = report.verdict
         assert v is not None
-        names = [c.plane for c in sol.corrections]
+        names = list(v.labels) or [c.plane for c in sol.corrections]
+        at_bearings = v.tolerance_planes is TolerancePlanes.BEARINGS
+        where = "at the bearings" if at_bearings else "in the correction planes"
         verdict = Verdict(v.passed, setup.grade_mm_per_s,
                           dict(zip(names, v.residual_gmm, strict=True)),
                           dict(zip(names, v.permissible_gmm, strict=True)),
-                          note=f"permissible U_per {report.u_per_gmm:.1f} g·mm "
-                               f"(ISO 21940-11: e_per = G/omega, U_per = e_per * m)")
-        trim = self._solution(setup, sol, sol.corrections_keeping_current, "trim", removal)
+                          note=f"permissible U_per {report.u_per_gmm:.1f} g·mm at "
+                               f"{setup.speed_rpm:.0f} rpm, shared {where} "
+                               f"(ISO 21940-11: e_per = G/omega, U_per = e_per * m)",
+                          at_bearings=at_bearings, speed_rpm=v.speed_rpm,
+                          flags=tuple(f.value for f in v.flags))
+        trim = self._solution(setup, report, sol.corrections_keeping_current, "trim", removal)
         return verdict, trim

@@ -12,6 +12,7 @@ from trueturn.jobs.report import html_report
 from trueturn.jobs.store import Workspace, atomic_write_text, write_document
 from trueturn.procedure.standstill import StandstillEvidence
 from trueturn.ui.procedure import MassChange, Mode, Procedure, RunRecord, SafetyEvent
+from trueturn.ui.texts import VERDICT_FLAG_WORDS
 
 # The meter's unit names -> the job file's unit names (amplitudes are stored as measured).
 
@@ -155,8 +156,9 @@ class JobKeeper:
             planes = [rec.PlaneVerdict(name, res, v.permissible_gmm[name],
                                        res <= v.permissible_gmm[name])
                       for name, res in v.residual_gmm.items()]
+            note = " ".join([v.note, *(VERDICT_FLAG_WORDS.get(f, f) + "." for f in v.flags)])
             self.job.verdict = rec.Verdict(v.grade_mm_per_s, proc.setup.speed_rpm,
-                                           len(self.job.runs), planes, v.passed, note=v.note)
+                                           len(self.job.runs), planes, v.passed, note=note)
         self._keep_coefficients(proc)
         self.job.status = "closed"
         self._save()

@@ -6,7 +6,7 @@ from __future__ import annotations
 from typing import TYPE_CHECKING
 
 from trueturn.balance.readings import SavedCoefficient
-from trueturn.jobs.profiles import MachineProfile, Pickup, Plane, PlaneLayout
+from trueturn.jobs.profiles import Bearing, MachineProfile, Pickup, Plane, PlaneLayout
 from trueturn.jobs.records import CoefficientSet
 from trueturn.ui.procedure import MassChange, Mode, PlaneSetup, Procedure, ProcedureSetup
 
@@ -43,6 +43,9 @@ def profile_from_scenario(scenario: Scenario) -> MachineProfile:
         speed_max_rpm=round(high, 1), max_speed_rpm=round(high * 1.08, 1), rotation="cw",
         planes=planes, pickups=pickups, mains_hz=int(motor.mains_hz),  # type: ignore[arg-type]
         target_grade=DEMO_GRADE_MM_S,
+        bearings=[Bearing(f"bearing {i + 1}", b.axial_mm)
+                  for i, b in enumerate(scenario.rotor.bearings)],
+        cg_axial_position_mm=scenario.rotor.centre_of_mass_axial_mm,
         notes="Simulated rig for the demo; all numbers are invented.")
 
 
@@ -57,8 +60,11 @@ def setup_from_profile(profile: MachineProfile, mode: Mode, standstill_s: float 
     if saved is not None:
         coefficients = tuple(SavedCoefficient(e.sensor, e.plane, e.amp, e.phase_deg,
                                               saved.speed_rpm) for e in saved.entries)
+    bearings = profile.bearing_positions_mm()
     planes = tuple(PlaneSetup(p.name, p.radius_mm, tuple(p.layout.position_angles_deg()),
-                              removal_allowed=p.removal)
+                              removal_allowed=p.removal,
+                              axial_mm=p.axial_position_mm if bearings else None,
+                              max_mass_g=p.max_mass_g)
                    for p in profile.planes)
     return ProcedureSetup(
         machine=profile.name, mode=mode, planes=planes,
@@ -68,7 +74,10 @@ def setup_from_profile(profile: MachineProfile, mode: Mode, standstill_s: float 
         standstill_s=standstill_s,
         saved_planes=tuple(dict.fromkeys(c.plane for c in coefficients)),
         profile_planes=len(profile.planes),
-        saved_coefficients=coefficients)
+        saved_coefficients=coefficients,
+        bearings=tuple((b.name, b.axial_position_mm) for b in profile.bearings)
+        if bearings else (),
+        cg_axial_mm=profile.cg_axial_position_mm)
 
 
 def describe_change(change: MassChange, proc: Procedure, engine: BalanceEngine) -> str:

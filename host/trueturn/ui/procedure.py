@@ -64,8 +64,39 @@ DEFAULT_PHASE_LIMIT_DEG = 5.0  # the DSP's default phase confidence for a steady
 SMALL_VECTOR_FRACTION = 0.05  # below 5 % of the as-found 1x, a tight circle is enough
 
 
+@dataclass(frozen=True)
+class TooSmallTrial:
+    """A trial whose effect the readings could not resolve (no information, no answer):
+    ``plane``, the ``trial_g`` used and a ``suggested_g`` that would be resolved (None when
+    the trial showed no change at all: is it on the rotor?)."""
+
+    plane: str
+    trial_g: float
+    suggested_g: float | None
+
+
+@dataclass(frozen=True)
+class OffSpeed:
+    """A run of the coefficient set taken off its group's speed (``index`` into the runs):
+    ``deviation`` is signed (-0.02 = 2 % slow); ``worst_cut`` is the 1x cut the correction
+    would still give if the worst speed response (1x ~ speed**2...4) were the truth."""
+
+    index: int
+    label: str
+    deviation: float
+    worst_cut: float
+
+
 class GateRefused(Exception):
-    """A confirmation the safety gates do not allow yet; the message says why in one line."""
+    """A confirmation the safety gates do not allow yet; the message says why in one line.
+
+    ``too_small_trial``: set when the refusal is a trial that carried no information, so
+    the procedure can offer to redo that trial with a larger mass.
+    """
+
+    def __init__(self, message: str, too_small_trial: TooSmallTrial | None = None) -> None:
+        super().__init__(message)
+        self.too_small_trial = too_small_trial
 
 
 @dataclass(frozen=True)
@@ -76,6 +107,8 @@ class PlaneSetup:
     radius_mm: float
     position_angles_deg: tuple[float, ...] = ()  # blades/holes; empty = any angle
     removal_allowed: bool = False  # the profile allows drilling/grinding material out here
+    axial_mm: float | None = None  # along the shaft, the bearings' origin (None: not given)
+    max_mass_g: float | None = None  # largest correction the plane takes (profile)
 
 
 @dataclass(frozen=True)
@@ -98,6 +131,9 @@ class ProcedureSetup:
     saved_planes: tuple[str, ...] = ()  # saved-trim: the planes the coefficients cover
     profile_planes: int = 0  # correction planes the machine has (0: as many as ``planes``)
     saved_coefficients: tuple[object, ...] = ()  # saved-trim: opaque to the procedure
+    #: the two bearings (name, axial_mm): the ISO 21940-11 verdict is judged there
+    bearings: tuple[tuple[str, float], ...] = ()
+    cg_axial_mm: float | None = None  # the rotor's centre of mass (None: midway)
 
 
 @dataclass(frozen=True)
@@ -177,11 +213,13 @@ class Solution:
     method: str
     warnings: tuple[str, ...] = ()
     coefficients: object = None  # opaque to the procedure; kept for trims and the verdict
+    off_speed: tuple[OffSpeed, ...] = ()  # coefficient runs taken off their group's speed
 
 
 @dataclass(frozen=True)
 class Verdict:
-    """Residual unbalance against the permissible one, per plane (ISO 21940-11)."""
+    """Residual unbalance against the permissible one per tolerance plane (ISO 21940-11):
+    the bearings when the profile gives them (``at_bearings``), else the correction planes."""
 
     passed: bool
     grade_mm_per_s: float
@@ -191,6 +229,9 @@ class Verdict:
     worse_pickups: tuple[str, ...] = ()  # 1x grew beyond both readings' 95 % circles
     planes_passed: bool | None = None  # the per-plane verdict before the checks below
     partial_planes: bool = False  # fewer planes corrected than the machine has
+    at_bearings: bool = False  # judged at the bearings (else in the correction planes)
+    speed_rpm: float | None = None  # the service speed the grade was judged at
+    flags: tuple[str, ...] = ()  # the engine's verdict flags (codes), put in words by the app
 
 
 @dataclass(frozen=True)
@@ -316,6 +357,8 @@ class Procedure:
         self._alarmed: set[str] = set()
         self._force_text: tuple[str, ...] = ()
         self.problem = ""  # why no correction could be computed (then: repeat the run)
+        self.too_small_trial: TooSmallTrial | None = None  # the problem is a trial too small
+        self._redo_index: int | None = None  # a recorded run being measured again
         self.ticked: set[int] = set()  # checklist items ticked at the open gate
         self.alarm: SafetyEvent | None = None  # held until acknowledged
         self.last_speed_rpm = 0.0  # the highest speed measured during the last run
@@ -551,6 +594,13 @@ class Procedure:
         run = RunRecord(self.step.run_label, tuple(self.on_rotor),
                         {s: readings[s] for s in self.setup.sensors}, speed_rpm, now_s,
                         self._force_text, list(self._pending_run_events))
+        if self._redo_index is not None:
+            # a run of the coefficient set measured again: it replaces the first one
+            self.runs[self._redo_index] = run
+            self._redo_index = None
+            self.log.append(f"run measured again: {run.label}")
+            self._to_correction()
+            return run
         self.runs.append(run)
         self.log.append(f"run recorded: {run.label}")
         self._advance_after_run(run)
@@ -629,6 +679,56 @@ class Procedure:
         self.problem = ""
         self.step = Step("run", f"Repeat: {last.label}", run_label=last.label, phase="arming")
 
+    def _redo(self, index: int, masses: tuple[PlacedMass, ...], title: str) -> None:
+        """Measure run ``index`` of the coefficient set again with ``masses`` on the rotor:
+        a gated hands-on step sets the rotor up when it differs, then the run, then the
+        correction is solved again with the new run in place of the old one."""
+        changes = [MassChange("detach", m) for m in self.on_rotor if m not in masses]
+        changes += [MassChange("attach", m) for m in masses if m not in self.on_rotor]
+        self._redo_index = index
+        self.problem = ""
+        self.too_small_trial = None
+        label = self.runs[index].label
+        if changes:
+            self.step = Step("hands-on", title, tuple(changes), phase="lockout")
+        else:
+            self.step = Step("run", f"Run again: {label}", run_label=label, phase="arming")
+
+    def redo_trial_larger(self) -> PlacedMass:
+        """Redo the trial that carried no information with the suggested larger mass (same
+        plane and position); returns the new trial mass. The other runs are kept."""
+        t = self.too_small_trial
+        if self.step.kind != "correction" or t is None or t.suggested_g is None:
+            raise GateRefused("there is no trial to redo with a larger mass")
+        if self.setup.mode not in (Mode.ONE_PLANE, Mode.TWO_PLANE):
+            raise GateRefused("redo the trials with a larger mass from a new job")
+        found = [(k, m) for k, r in enumerate(self.runs) for m in r.masses
+                 if m.kind == "trial" and m.plane == t.plane]
+        if not found:
+            raise GateRefused(f"no trial run on {t.plane} to redo")
+        index, old = found[-1]
+        mass_g = math.ceil(t.suggested_g * 10.0) / 10.0  # what a kitchen scale can weigh
+        limit = self.plane(t.plane).max_mass_g
+        if limit is not None and mass_g > limit:
+            raise GateRefused(f"the trial on {t.plane} would need {mass_g:.1f} g, more than the "
+                              f"plane takes ({limit:g} g, machine profile)")
+        larger = replace(old, mass_g=mass_g)
+        masses = tuple(larger if m == old else m for m in self.runs[index].masses)
+        self._redo(index, masses, f"Redo {self.runs[index].label} with {mass_g:.1f} g")
+        return larger
+
+    def repeat_off_speed_run(self) -> OffSpeed:
+        """Measure the coefficient run furthest off its group's speed again (same masses);
+        offered while the first correction is shown."""
+        sol = self.solution
+        if (self.step.kind != "correction" or self.problem or sol is None
+                or not sol.off_speed or self.trims_done):
+            raise GateRefused("no run of this correction was off speed")
+        worst = max(sol.off_speed, key=lambda o: abs(o.deviation))
+        run = self.runs[worst.index]
+        self._redo(worst.index, run.masses, f"Set up {run.label} again: it ran off speed")
+        return worst
+
     def accept_correction(self) -> None:
         """Go on to the hands-on step that places the correction parts."""
         if self.step.kind == "correction" and self.problem:
@@ -669,6 +769,10 @@ class Procedure:
         return PlacedMass(plane.name, s.mass_g, angle, position, kind="trial")
 
     def _advance_after_hands_on(self) -> None:
+        if self._redo_index is not None:
+            label = self.runs[self._redo_index].label
+            self.step = Step("run", f"Run again: {label}", run_label=label, phase="arming")
+            return
         n_runs = len(self.runs)
         trials = self._runs_needed()
         if n_runs == 0:
@@ -692,11 +796,7 @@ class Procedure:
                              phase="lockout")
             return
         if n_runs == len(trials) + 1:
-            self.step = Step("correction", "Correction")
-            try:
-                self.solution = self._solve()
-            except GateRefused as exc:
-                self.problem = str(exc)
+            self._to_correction()
             return
         # A check run: verdict, and the trim still needed.
         try:
@@ -712,6 +812,17 @@ class Procedure:
             self.trims_done += 1
             self.solution = trim
             self.step = Step("correction", f"Trim {self.trims_done}")
+
+    def _to_correction(self) -> None:
+        """The coefficient runs are complete: solve, or say why no correction can be given."""
+        self.step = Step("correction", "Correction")
+        self.problem = ""
+        self.too_small_trial = None
+        try:
+            self.solution = self._solve()
+        except GateRefused as exc:
+            self.problem = str(exc)
+            self.too_small_trial = exc.too_small_trial
 
     def _whole_machine(self, verdict: Verdict, run: RunRecord) -> Verdict:
         """The verdict looks at every pickup and the whole rotor, not only the planes solved.

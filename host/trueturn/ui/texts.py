@@ -33,6 +33,7 @@ KEYS: list[tuple[str, str]] = [
     ("a", "Guide: stop the run now (nothing of it is kept; inspect the rotor next)"),
     ("Enter", "Guide: confirm the step shown (gates refuse while unsafe); acknowledge an alarm"),
     ("r", "Guide: remove material instead of adding mass (correction step)"),
+    ("e", "Guide: run again the run that was off speed, before placing the correction"),
     ("o", "Demo rig: switch the virtual motor on"),
     ("x", "Demo rig: switch the virtual motor off"),
     ("l", "Link lost: reconnect to the same port (the run starts over)"),
@@ -41,6 +42,23 @@ KEYS: list[tuple[str, str]] = [
     ("Escape", "Close this screen / go back"),
     ("q", "Quit (the job is saved after every run; during a run, press q twice)"),
 ]
+
+
+#: the engine's verdict flags (``trueturn.balance.iso21940.VerdictFlag`` values) in the
+#: app's words; the machine profile is where the person fixes what is missing
+VERDICT_FLAG_WORDS: dict[str, str] = {
+    "not_at_bearings": "judged in the correction planes: give the machine profile its two "
+                       "bearings and each plane's axial position to judge at the bearings",
+    "worst_case_phasing": "residual angles unknown: the bearing loads are the worst case",
+    "cg_outside_bearings": "the centre of mass lies outside the bearings: shares limited to "
+                           "0.3/0.7 of U_per; check the standard's rules for such rotors",
+    "cg_assumed_midway": "the centre of mass is not in the profile: taken midway between the "
+                         "bearings",
+    "speed_from_last_run": "no maximum service speed: judged at the last run's speed",
+    "ambiguous": "the answer is ambiguous: no pass can be given",
+    "inconsistent": "the amplitudes do not fit one answer: no pass can be given",
+    "clipped": "the last run has a clipped reading (it reads low): no pass can be given",
+}
 
 
 def keys_markup() -> str:

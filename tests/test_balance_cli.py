@@ -87,7 +87,7 @@ def test_split_json_vector_sum():
                             "--first-deg", "10", "--json"])
     assert code == 0
     parts = json.loads(out)["parts"]
-    assert [p["position"] for p in parts] == [0, 1]
+    assert [p["position"] for p in parts] == [1, 2]  # numbered from 1, like the ring
     x = sum(p["mass_g"] * math.cos(math.radians(p["angle_deg"])) for p in parts)
     y = sum(p["mass_g"] * math.sin(math.radians(p["angle_deg"])) for p in parts)
     assert math.hypot(x, y) == pytest.approx(10, abs=1e-4)

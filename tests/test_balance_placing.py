@@ -9,7 +9,7 @@ from hypothesis import given
 from hypothesis import strategies as st
 
 from trueturn.angles import phasor
-from trueturn.balance.splitting import combine, equally_spaced, removal, split
+from trueturn.balance.splitting import combine, removal, split
 from trueturn.balance.static_couple import static_couple
 from trueturn.balance.trial_mass import (
     STANDARD_GRAVITY_M_S2,
@@ -17,13 +17,14 @@ from trueturn.balance.trial_mass import (
     size_trial_mass,
 )
 from trueturn.errors import UserError
+from trueturn.positions import equally_spaced_deg
 
 
 @given(mass=st.floats(0.01, 500), angle=st.floats(0, 360, exclude_max=True),
        count=st.integers(3, 36), first=st.floats(0, 360))
 def test_split_parts_sum_to_the_correction(mass, angle, count, first):
     # vector sum of the parts equals the correction (statics: resultant of two forces)
-    parts = split(mass, angle, equally_spaced(count, first))
+    parts = split(mass, angle, equally_spaced_deg(count, first))
     assert 1 <= len(parts) <= 2
     assert all(p.mass_g >= -1e-9 for p in parts)
     total = sum((phasor(p.mass_g, p.angle_deg) for p in parts), 0j)
@@ -35,15 +36,15 @@ def test_split_parts_sum_to_the_correction(mass, angle, count, first):
 
 def test_split_known_case_law_of_sines():
     # hand calculation: 10 g at 30 deg onto 0 and 90 deg -> 10 cos 30 and 10 sin 30
-    parts = split(10.0, 30.0, equally_spaced(4))
-    assert [p.position for p in parts] == [0, 1]
+    parts = split(10.0, 30.0, equally_spaced_deg(4))
+    assert [p.index for p in parts] == [0, 1] and [p.number for p in parts] == [1, 2]
     assert parts[0].mass_g == pytest.approx(10 * math.cos(math.radians(30)))
     assert parts[1].mass_g == pytest.approx(10 * math.sin(math.radians(30)))
 
 
 def test_split_onto_explicit_angles_and_refusal():
     parts = split(5.0, 100.0, [10.0, 80.0, 170.0, 260.0])
-    assert {p.position for p in parts} == {1, 2}
+    assert {p.number for p in parts} == {2, 3}  # 80 and 170 deg: positions 2 and 3 of the list
     with pytest.raises(UserError):
         split(5.0, 100.0, [0.0, 200.0])   # the gap around 100 deg is 200 deg
 

@@ -10,6 +10,12 @@
 
 Users whose rotor is numbered the other way (with rotation) choose that at the edge with
 :func:`from_user_angle_deg` / :func:`to_user_angle_deg`; never inside the math.
+
+Pictures (the app's live polar plot, the report's plots, the printed ring) all place an angle
+with :func:`screen_xy`: the plane drawn as the person sees it from the side they look at it
+from (the pickup side for a machine profile, the printed side for a ring), 0 deg (the
+reference mark) at the top, angles growing against rotation. A rotor that turns clockwise as
+seen therefore has its angles growing counter-clockwise on the picture: 90 deg on the left.
 """
 
 from __future__ import annotations
@@ -20,6 +26,8 @@ from typing import Literal
 import numpy as np
 
 Numbering = Literal["against", "with"]
+#: Direction of rotation as seen by the person looking at the picture's side of the plane.
+Rotation = Literal["cw", "ccw"]
 
 
 def wrap_deg(angle_deg: float) -> float:
@@ -60,3 +68,33 @@ def from_user_angle_deg(user_angle_deg: float, numbering: Numbering = "against")
 def to_user_angle_deg(angle_deg: float, numbering: Numbering = "against") -> float:
     """Convert an internal angle to the numbering the person uses on their rotor."""
     return from_user_angle_deg(angle_deg, numbering)
+
+
+def screen_xy(angle_deg: float, rotation: Rotation) -> tuple[float, float]:
+    """Where ``angle_deg`` goes on a picture of the plane: a point on the unit circle.
+
+    Parameters
+    ----------
+    angle_deg : float
+        Angle from the reference mark, degrees against rotation (the one convention).
+    rotation : {"cw", "ccw"}
+        Direction of rotation as seen from the side the picture shows.
+
+    Returns
+    -------
+    (x, y) : tuple of float
+        Screen coordinates on the unit circle with **x to the right and y down** (SVG user
+        units, terminal columns and rows): 0 deg is at the top, ``(0, -1)``; for a clockwise
+        rotor 90 deg is on the left, ``(-1, 0)``, for a counter-clockwise one on the right.
+        Scale by a radius and add the centre to draw.
+
+    Notes
+    -----
+    Angles count in the order points pass a fixed pickup after the mark, i.e. against the
+    motion of the rim: on a picture of a clockwise rotor they advance counter-clockwise.
+    """
+    if rotation not in ("cw", "ccw"):
+        raise ValueError(f"rotation must be 'cw' or 'ccw', got {rotation!r}")
+    a = math.radians(angle_deg)
+    sign = -1.0 if rotation == "cw" else 1.0
+    return sign * math.sin(a), -math.cos(a)

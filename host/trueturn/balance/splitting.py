@@ -1,8 +1,11 @@
 """Placing a correction where masses can go: splitting, combining, removing by drilling.
 
 * Splitting a mass m at angle theta onto two positions phi_a < theta < phi_b: the two parts
-  must sum to the correction as vectors, which the law of sines gives:
+  must sum to the correction as vectors (resolution of a vector into components along two
+  given directions), which the law of sines gives:
   ``m_a = m sin(phi_b - theta) / sin(phi_b - phi_a)``, ``m_b = m sin(theta - phi_a) / sin(...)``.
+* Positions are given as a plane's list of angles; the parts name them by index and by the
+  number a person sees (host/trueturn/positions.py: numbered from 1).
 * Combining several masses: their vector sum.
 * Removal instead of addition: the same mass at the opposite angle; the drill depth follows
   from the hole volume (cylinder plus the cone of the drill point).
@@ -16,28 +19,55 @@ from dataclasses import dataclass
 
 from trueturn.angles import amplitude_phase, phasor, wrap_deg
 from trueturn.errors import UserError
+from trueturn.positions import number_of
 
 DEFAULT_POINT_ANGLE_DEG = 118.0  # common twist-drill point angle
 
 
 @dataclass(frozen=True)
 class Part:
-    """A share of a correction at one position (index into the positions given)."""
+    """A share of a correction at one position of the list given to :func:`split`."""
 
-    position: int
+    index: int        # into the list of position angles (inside the code)
     angle_deg: float
     mass_g: float
 
-
-def equally_spaced(count: int, first_deg: float = 0.0) -> list[float]:
-    """Angles of ``count`` equally spaced positions, position 0 at ``first_deg``."""
-    if count < 1:
-        raise UserError(f"number of positions must be at least 1, got {count}")
-    return [wrap_deg(first_deg + 360.0 * i / count) for i in range(count)]
+    @property
+    def number(self) -> int:
+        """The position's number as a person sees it (from 1)."""
+        return number_of(self.index)
 
 
 def split(mass_g: float, angle_deg: float, positions_deg: Sequence[float]) -> list[Part]:
-    """Split a correction onto the two positions either side of it (one if it falls on one)."""
+    """Split a correction onto the two positions either side of it (one if it falls on one).
+
+    Parameters
+    ----------
+    mass_g : float
+        Correction mass, g (not below 0).
+    angle_deg : float
+        Correction angle from the reference mark, degrees against rotation.
+    positions_deg : sequence of float
+        Angles of the positions where masses can go, position 1 first.
+
+    Returns
+    -------
+    list of Part
+        One part if the correction falls on a position, else two parts on the neighbouring
+        positions (less than 180 deg apart) whose vector sum is the correction.
+
+    Notes
+    -----
+    With the correction at ``theta`` between positions ``a`` and ``b`` (gap ``g = b - a``), the
+    triangle of the two parts and the correction gives by the law of sines
+    ``m_a = m sin(g - (theta - a)) / sin g`` and ``m_b = m sin(theta - a) / sin g``.
+
+    References
+    ----------
+    .. [1] Resolution of a force into two components along given lines by the law of sines
+       (parallelogram law), e.g. F. P. Beer, E. R. Johnston, "Vector Mechanics for Engineers:
+       Statics", ch. 2 (from memory).
+    """
     if not math.isfinite(mass_g) or mass_g < 0:
         raise UserError(f"mass must be a finite number not below 0, got {mass_g:g}")
     if not math.isfinite(angle_deg) or not all(math.isfinite(p) for p in positions_deg):

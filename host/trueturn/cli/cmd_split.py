@@ -8,12 +8,12 @@ from typing import Any
 from trueturn.balance.splitting import (
     DEFAULT_POINT_ANGLE_DEG,
     combine,
-    equally_spaced,
     removal,
     split,
 )
 from trueturn.cli.common import print_json
 from trueturn.errors import UserError
+from trueturn.positions import degrees_text, equally_spaced_deg, position_text
 
 
 def _mass_at(text: str) -> tuple[float, float]:
@@ -29,7 +29,9 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
         "split", help="split a correction onto the rotor's positions",
         description="Split a correction mass onto the two neighbouring positions of N equally "
                     "spaced positions (blades, holes) or of a list of angles; combine several "
-                    "masses into one; or remove material opposite instead of adding.")
+                    "masses into one; or remove material opposite instead of adding. Angles "
+                    "count from the reference mark against rotation; positions are numbered "
+                    "from 1 in the same direction, as on the printed ring.")
     parser.add_argument("--mass-g", type=float, help="correction mass, g")
     parser.add_argument("--angle-deg", type=float, help="correction angle, degrees")
     parser.add_argument("--combine", type=_mass_at, nargs="+", metavar="MASS_G@ANGLE_DEG",
@@ -37,9 +39,10 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     where = parser.add_mutually_exclusive_group()
     where.add_argument("--positions", type=int, help="number of equally spaced positions")
     where.add_argument("--at-deg", type=float, nargs="+", metavar="ANGLE",
-                       help="explicit position angles, degrees")
-    parser.add_argument("--first-deg", type=float, default=0.0,
-                        help="angle of position 0 for --positions (default 0)")
+                       help="explicit position angles, degrees, position 1 first")
+    parser.add_argument("--first-deg", type=float,
+                        help="angle of position 1 for --positions (default 0), as for "
+                             "`trueturn ring`")
     parser.add_argument("--remove", action="store_true",
                         help="drill material out at the opposite angle instead of adding")
     parser.add_argument("--drill-mm", type=float, help="drill diameter for --remove, mm")
@@ -67,6 +70,8 @@ def run(args: argparse.Namespace) -> int:
         if args.combine:
             raise UserError("--combine: the masses cancel out; nothing to split")
         raise UserError(f"--mass-g must be greater than 0, got {mass_g:g}")
+    if args.first_deg is not None and args.positions is None:
+        raise UserError("--first-deg goes with --positions (the angle of position 1)")
     angles = [("--angle-deg", args.angle_deg), ("--first-deg", args.first_deg),
               *(("--at-deg", a) for a in args.at_deg or ()),
               *(("--combine", a) for _, a in args.combine or ())]
@@ -81,7 +86,7 @@ def run(args: argparse.Namespace) -> int:
     if args.positions is not None:
         if args.positions < 3:
             raise UserError(f"--positions must be at least 3 to reach every angle, got {args.positions}")
-        positions = equally_spaced(args.positions, args.first_deg)
+        positions = list(equally_spaced_deg(args.positions, args.first_deg or 0.0))
     elif args.at_deg:
         positions = list(args.at_deg)
     else:
@@ -91,7 +96,7 @@ def run(args: argparse.Namespace) -> int:
                            "correction": {"mass_g": round(mass_g, 6), "angle_deg": round(angle_deg, 3)},
                            "parts": []}
     for p in parts:
-        item: dict[str, Any] = {"position": p.position if (args.positions or args.at_deg) else None,
+        item: dict[str, Any] = {"position": p.number if (args.positions or args.at_deg) else None,
                                 "angle_deg": round(p.angle_deg, 3), "mass_g": round(p.mass_g, 6)}
         if args.remove:
             hole = removal(p.mass_g, (p.angle_deg + 180.0) % 360.0, args.drill_mm,
@@ -103,10 +108,13 @@ def run(args: argparse.Namespace) -> int:
         print_json(out)
         return 0
     verb = "remove" if args.remove else "add"
-    print(f"correction to {verb}: {mass_g:.4g} g at {angle_deg:.1f}°")
+    print(f"correction to {verb}: {mass_g:.4g} g at {degrees_text(angle_deg)}")
     for item in out["parts"]:
-        where = f"position {item['position']}" if item["position"] is not None else "at"
-        text = f"  {where} ({item['angle_deg']:.1f}°): {verb} {item['mass_g']:.4g} g"
+        if item["position"] is not None:
+            where = position_text(item["position"], item["angle_deg"])
+        else:
+            where = f"at {degrees_text(item['angle_deg'])}"
+        text = f"  {where}: {verb} {item['mass_g']:.4g} g"
         if args.remove:
             text += (f" — {args.drill_mm:g} mm drill, {item['depth_full_diameter_mm']:.2f} mm at full "
                      f"diameter ({item['depth_to_tip_mm']:.2f} mm to the tip)")

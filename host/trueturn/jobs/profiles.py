@@ -2,7 +2,8 @@
 
 A profile is written once per machine (``machines/<name>.yaml`` in the workspace) and copied
 into every job so a job file is complete on its own. Angles follow host/trueturn/angles.py:
-positions are counted from the reference mark against the direction of rotation.
+positions are counted from the reference mark against the direction of rotation, and numbered
+from 1 (host/trueturn/positions.py).
 """
 
 from __future__ import annotations
@@ -10,13 +11,13 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Literal
 
-from trueturn.angles import wrap_deg
+from trueturn.angles import Rotation, wrap_deg
 from trueturn.jobs.schema import limits
+from trueturn.positions import equally_spaced_deg
 
 MassUnit = Literal["g", "oz"]
 LengthUnit = Literal["mm", "in"]
 VelocityUnit = Literal["mm/s", "in/s"]
-Rotation = Literal["cw", "ccw"]
 
 #: Exact definitions (international yard and pound agreement, 1959; NIST SP 811, Appendix B).
 MM_PER_IN = 25.4
@@ -55,8 +56,7 @@ class PlaneLayout:
     def position_angles_deg(self) -> list[float]:
         """Angles of the numbered positions (position k+1 at index k); empty for ``free``."""
         if self.kind == "equal" and self.positions:
-            step = 360.0 / self.positions
-            return [wrap_deg(self.offset_deg + k * step) for k in range(self.positions)]
+            return list(equally_spaced_deg(self.positions, self.offset_deg))
         if self.kind == "angles":
             return [wrap_deg(a) for a in self.angles_deg]
         return []

@@ -4,8 +4,10 @@ The report shows what the job stores (readings, corrections, verdict); it comput
 but unit conversions and plot geometry. The HTML uses no network resources and no scripts;
 its print styles fit A4 (210 mm) and US Letter (216 mm) paper with 12 mm margins.
 
-Plot orientation: 0 deg at the top; angles grow against rotation as seen from the pickup side
-(host/trueturn/angles.py), so a rotor turning clockwise has its angles drawn counter-clockwise.
+Plot orientation: the one mapping of angles.screen_xy, the same as the app's live plot and the
+printed ring: 0 deg at the top; angles grow against rotation as seen from the pickup side, so a
+rotor turning clockwise has its angles drawn counter-clockwise. Positions are numbered from 1
+(host/trueturn/positions.py).
 """
 
 from __future__ import annotations
@@ -16,6 +18,7 @@ import io
 import math
 from collections.abc import Iterable, Sequence
 
+from trueturn.angles import Rotation, screen_xy
 from trueturn.jobs.profiles import (
     MachineProfile,
     convert_vibration,
@@ -23,6 +26,7 @@ from trueturn.jobs.profiles import (
     format_mass,
 )
 from trueturn.jobs.records import JobRecord, Reading, Run
+from trueturn.positions import degrees_text, number_of, position_text
 
 #: Okabe & Ito (2008) colour-blind-safe palette; one colour per run, in order.
 RUN_COLOURS = ("#0072B2", "#D55E00", "#009E73", "#CC79A7", "#E69F00", "#56B4E9", "#000000")
@@ -49,8 +53,7 @@ def _e(text: object) -> str:
     return html.escape(str(text), quote=True)
 
 
-def _deg(angle_deg: float) -> str:
-    return f"{angle_deg:.0f}\u00b0" if abs(angle_deg - round(angle_deg)) < 0.05 else f"{angle_deg:.1f}\u00b0"
+_deg = degrees_text
 
 
 def short_time(iso: str) -> str:
@@ -82,12 +85,12 @@ def _reduction(before: Reading, after: Reading) -> str:
 # SVG
 
 
-def _xy(cx: float, cy: float, r: float, angle_deg: float, rotation: str) -> tuple[float, float]:
-    """Point at ``angle_deg`` (against rotation) on a circle, 0 at the top, seen from the
-    pickup side: for a clockwise rotor the angle grows counter-clockwise on paper."""
-    sign = -1.0 if rotation == "cw" else 1.0
-    a = math.radians(angle_deg)
-    return cx + sign * r * math.sin(a), cy - r * math.cos(a)
+def _xy(cx: float, cy: float, r: float, angle_deg: float,
+        rotation: Rotation) -> tuple[float, float]:
+    """Point at ``angle_deg`` (against rotation) on a circle of radius ``r`` round (cx, cy),
+    seen from the pickup side (angles.screen_xy)."""
+    x, y = screen_xy(angle_deg, rotation)
+    return cx + r * x, cy + r * y
 
 
 def _nice_step(span: float) -> float:
@@ -192,7 +195,7 @@ def plane_svg(job: JobRecord, plane_name: str, size_px: int = 170) -> str:
                    f'stroke="#555" stroke-width="1"/>')
         tx, ty = _xy(c, c, r - 14, angle, rotation)
         out.append(f'<text x="{tx:.1f}" y="{ty + 3:.1f}" text-anchor="middle" '
-                   f'class="tick">{k + 1}</text>')
+                   f'class="tick">{number_of(k)}</text>')
     for part in job.parts_on_rotor():
         if part.plane != plane_name:
             continue
@@ -208,7 +211,7 @@ def plane_svg(job: JobRecord, plane_name: str, size_px: int = 170) -> str:
 def parts_text(job: JobRecord, plane_name: str) -> str:
     """The parts left on a plane, as text: ``'1.70 g at 0 deg (position 1), ...'``."""
     items = [f"{format_mass(p.mass_g, job.machine.units.mass)} at {_deg(p.angle_deg)}"
-             + (f" (position {p.position})" if p.position else "")
+             + (f" ({position_text(p.position)})" if p.position else "")
              + (" TRIAL" if p.purpose == "trial" else "")
              for p in job.parts_on_rotor() if p.plane == plane_name]
     return ", ".join(items) if items else "no parts recorded"
@@ -329,8 +332,9 @@ def correction_rows(job: JobRecord) -> list[list[str]]:
     rows = []
     for run in job.runs:
         for corr in run.corrections:
-            split = ", ".join(f"{format_mass(s.mass_g, u.mass)} at position {s.position} "
-                              f"({_deg(s.angle_deg)})" for s in corr.split) or "-"
+            split = ", ".join(f"{format_mass(s.mass_g, u.mass)} at "
+                              f"{position_text(s.position, s.angle_deg)}"
+                              for s in corr.split) or "-"
             rows.append([f"after run {run.index}", corr.plane, corr.action,
                          format_mass(corr.mass_g, u.mass), _deg(corr.angle_deg), split])
     return rows

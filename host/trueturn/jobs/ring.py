@@ -16,7 +16,8 @@ import html
 import math
 from dataclasses import dataclass
 
-from trueturn.angles import wrap_deg
+from trueturn.angles import Rotation, screen_xy, wrap_deg
+from trueturn.positions import equally_spaced_deg, number_of
 
 #: Largest drawing that fits A4 portrait (210 x 297 mm) with 12 mm margins.
 A4_PRINTABLE_MM = (186.0, 273.0)
@@ -36,13 +37,13 @@ class RingLayout:
     diameter_mm: float
     positions: int
     first_deg: float
-    rotation: str
+    rotation: Rotation
     width_mm: float
     height_mm: float
     centre_mm: tuple[float, float]
     band_mm: float
     tick_step_deg: int
-    position_angles_deg: tuple[float, ...]
+    position_angles_deg: tuple[float, ...]  # entry k: position k + 1 (positions.py)
 
     @property
     def fits_a4_and_letter(self) -> bool:
@@ -58,9 +59,8 @@ class RingLayout:
 def ring_point(layout: RingLayout, radius_mm: float, angle_deg: float) -> tuple[float, float]:
     """Paper coordinates (mm) of ``angle_deg`` (against rotation, 0 at the top mark)."""
     cx, cy = layout.centre_mm
-    sign = -1.0 if layout.rotation == "cw" else 1.0  # angles grow against rotation
-    a = math.radians(angle_deg)
-    return cx + sign * radius_mm * math.sin(a), cy - radius_mm * math.cos(a)
+    x, y = screen_xy(angle_deg, layout.rotation)  # the one angle-to-picture mapping
+    return cx + radius_mm * x, cy + radius_mm * y
 
 
 def tick_step_deg(diameter_mm: float, min_gap_mm: float = 0.7) -> int:
@@ -72,7 +72,7 @@ def tick_step_deg(diameter_mm: float, min_gap_mm: float = 0.7) -> int:
 
 
 def plan_ring(diameter_mm: float, positions: int, first_deg: float = 0.0,
-              rotation: str = "cw") -> RingLayout:
+              rotation: Rotation = "cw") -> RingLayout:
     """Size the drawing for a ring of ``diameter_mm`` with ``positions`` numbered marks."""
     if not (math.isfinite(diameter_mm) and 10.0 <= diameter_mm <= 2000.0):
         raise ValueError("diameter must be between 10 and 2000 mm")
@@ -86,14 +86,13 @@ def plan_ring(diameter_mm: float, positions: int, first_deg: float = 0.0,
     ring_block = diameter_mm + 2 * 6.0  # room for the reference triangle above
     height = MARGIN_MM + 7.0 + ring_block + 34.0 + MARGIN_MM
     centre = (width / 2.0, MARGIN_MM + 7.0 + 6.0 + radius)
-    step = 360.0 / positions
-    angles = tuple(wrap_deg(first_deg + k * step) for k in range(positions))
+    angles = equally_spaced_deg(positions, first_deg)
     return RingLayout(diameter_mm, positions, wrap_deg(first_deg), rotation, round(width, 3),
                       round(height, 3), centre, band, tick_step_deg(diameter_mm), angles)
 
 
 def ring_svg(diameter_mm: float, positions: int, first_deg: float = 0.0,
-             rotation: str = "cw", title: str = "") -> tuple[str, RingLayout]:
+             rotation: Rotation = "cw", title: str = "") -> tuple[str, RingLayout]:
     """The ring drawing as SVG text, and its layout."""
     lay = plan_ring(diameter_mm, positions, first_deg, rotation)
     r = diameter_mm / 2.0
@@ -145,12 +144,12 @@ def ring_svg(diameter_mm: float, positions: int, first_deg: float = 0.0,
     for k, angle in enumerate(lay.position_angles_deg):
         x1, y1 = ring_point(lay, r, angle)
         x2, y2 = ring_point(lay, r - band * 0.8, angle)
-        out.append(f'<line class="position-mark" data-position="{k + 1}" '
+        out.append(f'<line class="position-mark" data-position="{number_of(k)}" '
                    f'data-angle-deg="{angle:g}" x1="{x1:.4f}" y1="{y1:.4f}" x2="{x2:.4f}" '
                    f'y2="{y2:.4f}" stroke="#000" stroke-width="0.45"/>')
         tx, ty = ring_point(lay, r - band * 0.8 - label_size * 0.9, angle)
         out.append(f'<text x="{tx:.2f}" y="{ty + label_size * 0.35:.2f}" text-anchor="middle" '
-                   f'class="pos">{k + 1}</text>')
+                   f'class="pos">{number_of(k)}</text>')
         inward = label_size * (2.1 + 1.2 * abs(math.sin(math.radians(angle))))
         tx, ty = ring_point(lay, r - band * 0.8 - inward, angle)
         out.append(f'<text x="{tx:.2f}" y="{ty + label_size * 0.3:.2f}" text-anchor="middle" '
@@ -289,11 +288,11 @@ def strip_svg(diameter_mm: float, positions: int, first_deg: float = 0.0,
             if not start - 1e-9 <= s < start + seg - 1e-9:
                 continue
             x = x0 + s - start
-            out.append(f'<line class="position-mark" data-position="{k + 1}" '
+            out.append(f'<line class="position-mark" data-position="{number_of(k)}" '
                        f'data-angle-deg="{angle:g}" x1="{x:.4f}" y1="{y + 7:g}" x2="{x:.4f}" '
                        f'y2="{y + STRIP_HEIGHT_MM:g}" stroke="#000" stroke-width="0.45"/>')
             out.append(f'<text x="{x + 0.8:.3f}" y="{y + STRIP_HEIGHT_MM - 1.2:g}" '
-                       f'class="pos">{k + 1}</text>')
+                       f'class="pos">{number_of(k)}</text>')
         out.append("</g>")
     rx = MARGIN_MM
     ry = lay.height_mm - MARGIN_MM - 22.0
@@ -328,7 +327,7 @@ def plan_tiles(width_mm: float, height_mm: float) -> list[Tile]:
 
 
 def ring_tiles_html(diameter_mm: float, positions: int, first_deg: float = 0.0,
-                    rotation: str = "cw", title: str = "") -> tuple[str, list[Tile]]:
+                    rotation: Rotation = "cw", title: str = "") -> tuple[str, list[Tile]]:
     """An HTML page with one sheet per tile of the ring drawing, each printed at 1:1.
 
     Neighbouring tiles share a 10 mm band (shaded on the right and bottom edges) so they can

@@ -17,6 +17,7 @@ import numpy as np
 import yaml
 
 from trueturn.errors import UserError
+from trueturn.positions import equally_spaced_deg
 from trueturn.sim.rotor import (
     STANDARD_GRAVITY_M_S2,
     Bearing,
@@ -102,10 +103,10 @@ class PlaneLayout:
     removal: bool = False  # drilling/grinding material out is allowed in this plane
 
     def angles_deg(self) -> list[float]:
+        """Angles of positions 1..N (entry k is position k + 1); empty when anywhere."""
         if not self.positions:
             return []
-        step = 360.0 / self.positions
-        return [(self.first_position_deg + i * step) % 360.0 for i in range(self.positions)]
+        return list(equally_spaced_deg(self.positions, self.first_position_deg))
 
 
 @dataclass

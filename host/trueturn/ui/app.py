@@ -27,6 +27,7 @@ from trueturn.angles import wrap_deg
 from trueturn.errors import UserError
 from trueturn.jobs.profiles import MachineProfile
 from trueturn.jobs.records import CoefficientSet
+from trueturn.positions import number_of, position_text
 from trueturn.procedure.standstill import StandstillState
 from trueturn.ui.engine import BalanceEngine
 from trueturn.ui.jobfile import JobKeeper
@@ -709,7 +710,8 @@ class TrueturnApp(App):
         elif meter.warnings:
             lines.append(f"[yellow]{meter.warnings[-1]}[/]")
         bench.query_one("#meter-table", Static).update("\n".join(lines))
-        bench.query_one("#polar", PolarPlot).show(points, meter.unit)
+        bench.query_one("#polar", PolarPlot).show(points, meter.unit,
+                                                    self.config.profile.rotation)
 
     def _draw_spectrum(self, bench: BenchScreen, snap: Snapshot) -> None:
         meter = snap.meter
@@ -944,7 +946,7 @@ class TrueturnApp(App):
 
 def describe_change_part(p, proc: Procedure) -> str:  # type: ignore[no-untyped-def]
     """One correction part as a line (position, angle, mass, add or remove)."""
-    where = f"position {p.position + 1} ({p.angle_deg:.0f}°)" if p.position is not None \
+    where = position_text(number_of(p.position), p.angle_deg) if p.position is not None \
         else f"{p.angle_deg:.0f}°"
     verb = "remove" if p.removal else "add"
     return f"{p.plane}: {verb} {abs(p.mass_g):.2f} g at {where}"

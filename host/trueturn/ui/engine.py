@@ -126,7 +126,7 @@ class BalanceEngine:
                 for piece in pieces:
                     if piece.mass_g >= max(0.005, MIN_PART_FRACTION * c.mass_g):
                         parts.append(PlacedMass(c.plane, round(piece.mass_g, 2), piece.angle_deg,
-                                                piece.position, kind, removal))  # type: ignore[arg-type]
+                                                piece.index, kind, removal))  # type: ignore[arg-type]
             else:
                 parts.append(PlacedMass(c.plane, round(c.mass_g, 2), angle, None, kind,  # type: ignore[arg-type]
                                         removal))

@@ -10,6 +10,7 @@ from trueturn.jobs import records as rec
 from trueturn.jobs.profiles import VIBRATION_UNIT_LABELS, MachineProfile
 from trueturn.jobs.report import html_report
 from trueturn.jobs.store import Workspace, atomic_write_text, write_document
+from trueturn.positions import number_of
 from trueturn.procedure.standstill import StandstillEvidence
 from trueturn.ui.procedure import MassChange, Mode, Procedure, RunRecord, SafetyEvent
 from trueturn.ui.texts import VERDICT_FLAG_WORDS
@@ -79,7 +80,7 @@ class JobKeeper:
             action = "attach" if change.action == "attach" else "remove"
             pending.changes.append(rec.MassChange(
                 action, m.plane, abs(m.mass_g), m.angle_deg, purpose=m.kind,
-                position=None if m.position is None else m.position + 1,
+                position=None if m.position is None else number_of(m.position),
                 radius_mm=proc.plane(m.plane).radius_mm,
                 part="drilled out" if m.removal else "", time=rec.now_iso()))
         pending.confirmations += self._new_confirmations(proc)
@@ -108,7 +109,7 @@ class JobKeeper:
         corrections = []
         if proc.step.kind == "correction" and proc.solution is not None:
             for c in proc.solution.corrections:
-                parts = [rec.SplitPart(p.position + 1, p.angle_deg, abs(p.mass_g))
+                parts = [rec.SplitPart(number_of(p.position), p.angle_deg, abs(p.mass_g))
                          for p in proc.solution.parts
                          if p.plane == c.plane and p.position is not None]
                 corrections.append(rec.Correction(

@@ -8,6 +8,7 @@ from typing import TYPE_CHECKING
 from trueturn.balance.readings import SavedCoefficient
 from trueturn.jobs.profiles import Bearing, MachineProfile, Pickup, Plane, PlaneLayout
 from trueturn.jobs.records import CoefficientSet
+from trueturn.positions import number_of, position_text
 from trueturn.ui.procedure import MassChange, Mode, PlaneSetup, Procedure, ProcedureSetup
 
 if TYPE_CHECKING:
@@ -89,7 +90,7 @@ def describe_change(change: MassChange, proc: Procedure, engine: BalanceEngine) 
     m = change.mass
     assert m is not None
     plane = proc.plane(m.plane)
-    where = f"position {m.position + 1} ({m.angle_deg:.0f}°)" if m.position is not None \
+    where = position_text(number_of(m.position), m.angle_deg) if m.position is not None \
         else f"{m.angle_deg:.0f}° from the mark, against rotation"
     force = engine.force_n(abs(m.mass_g), plane.radius_mm, proc.setup.speed_rpm)
     if change.action == "detach":

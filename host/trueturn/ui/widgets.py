@@ -1,9 +1,12 @@
 """Small widgets of our own: a braille polar plot of 1x vectors and a spectrum strip.
 
 Braille cells give 2x4 dots per character, enough for a readable polar plot in a corner of
-an 80x24 terminal. The plot draws 0 deg at the top and angles growing clockwise on screen,
-with a ring at full scale and one at half scale; each vector is a line from the centre with
-its pickup's letter at the tip; earlier runs of the job are single dots with a digit.
+an 80x24 terminal. The plot places angles with the one mapping of the project,
+``angles.screen_xy``, exactly like the report and the printed ring: 0 deg at the top, angles
+growing against rotation as seen from the pickup side (counter-clockwise on screen for a
+rotor turning clockwise). A ring at full scale and one at half scale; each vector is a line
+from the centre with its pickup's letter at the tip; earlier runs of the job are single dots
+with a digit.
 """
 
 from __future__ import annotations
@@ -13,6 +16,8 @@ from dataclasses import dataclass
 
 from rich.text import Text
 from textual.widget import Widget
+
+from trueturn.angles import Rotation, screen_xy
 
 BRAILLE_BASE = 0x2800
 # Dot bit for (column 0..1, row 0..3) inside one braille cell (Unicode braille patterns).
@@ -89,50 +94,66 @@ class PolarPlot(Widget):
         super().__init__(id=id)
         self.points: list[PolarPoint] = []
         self.unit = ""
+        self.rotation: Rotation = "cw"
 
-    def show(self, points: list[PolarPoint], unit: str) -> None:
+    def show(self, points: list[PolarPoint], unit: str, rotation: Rotation) -> None:
+        """Draw ``points``; ``rotation`` as seen from the pickup side (the machine profile)."""
         self.points = points
         self.unit = unit
+        self.rotation = rotation
         self.refresh()
 
     def render(self) -> Text:
-        cols, rows = self.size.width, self.size.height
-        canvas = BrailleCanvas(cols, rows - 1)
-        # A cell is about twice as tall as wide and holds 2x4 dots, so dots are square.
-        radius = max(4.0, min(canvas.width, canvas.height) / 2 - 2)
-        cx, cy = canvas.width / 2, canvas.height / 2
+        return polar_text(self.points, self.unit, self.rotation, self.size.width,
+                          self.size.height)
 
-        def xy(amp_frac: float, phase_deg: float) -> tuple[float, float]:
-            a = math.radians(phase_deg)
-            return cx + radius * amp_frac * math.sin(a), cy - radius * amp_frac * math.cos(a)
 
-        for frac in (1.0, 0.5):
-            n = max(32, int(8 * radius))
-            for k in range(n):
-                x, y = xy(frac, 360.0 * k / n)
-                canvas.dot(x, y, "grey50")
-        for a in (0.0, 90.0, 180.0, 270.0):
-            x, y = xy(1.0, a)
-            canvas.line(cx, cy, x, y, "grey30")
-        full = max([p.amplitude for p in self.points] + [1e-12]) * 1.1
-        for p in self.points:
-            x, y = xy(p.amplitude / full, p.phase_deg)
-            if p.current:
-                canvas.line(cx, cy, x, y, p.style)
-            else:
-                canvas.dot(x, y, p.style)
-        # Earlier runs' digits first, live vector letters last so they stay readable.
-        for p in sorted(self.points, key=lambda q: q.current):
-            x, y = xy(p.amplitude / full, p.phase_deg)
-            canvas.label(int(x // 2), int(y // 4), p.tag, f"bold {p.style}".strip())
-        top_x, top_y = xy(1.0, 0.0)
-        canvas.label(int(top_x // 2), max(0, int(top_y // 4)), "0")
-        rx, ry = xy(1.0, 90.0)
-        canvas.label(min(canvas.cols - 2, int(rx // 2) + 1), int(ry // 4), "90")
-        bx, by = xy(1.0, 180.0)
-        canvas.label(int(bx // 2) - 1, min(canvas.rows - 1, int(by // 4)), "180")
-        lx, ly = xy(1.0, 270.0)
-        canvas.label(max(0, int(lx // 2) - 3), int(ly // 4), "270")
-        text = canvas.render()
-        text.append(f"\nfull scale {full:.3g} {self.unit}", "grey62")
-        return text
+def polar_text(points: list[PolarPoint], unit: str, rotation: Rotation, cols: int,
+               rows: int) -> Text:
+    """The polar plot drawn into ``cols`` x ``rows`` terminal cells (the last row: the scale)."""
+    canvas = BrailleCanvas(cols, rows - 1)
+    # A cell is about twice as tall as wide and holds 2x4 dots, so dots are square.
+    radius = max(4.0, min(canvas.width, canvas.height) / 2 - 2)
+    cx, cy = canvas.width / 2, canvas.height / 2
+
+    def xy(amp_frac: float, phase_deg: float) -> tuple[float, float]:
+        x, y = screen_xy(phase_deg, rotation)  # the one angle-to-screen mapping
+        return cx + radius * amp_frac * x, cy + radius * amp_frac * y
+
+    for frac in (1.0, 0.5):
+        n = max(32, int(8 * radius))
+        for k in range(n):
+            x, y = xy(frac, 360.0 * k / n)
+            canvas.dot(x, y, "grey50")
+    for a in (0.0, 90.0, 180.0, 270.0):
+        x, y = xy(1.0, a)
+        canvas.line(cx, cy, x, y, "grey30")
+    full = max([p.amplitude for p in points] + [1e-12]) * 1.1
+    for p in points:
+        x, y = xy(p.amplitude / full, p.phase_deg)
+        if p.current:
+            canvas.line(cx, cy, x, y, p.style)
+        else:
+            canvas.dot(x, y, p.style)
+    # Earlier runs' digits first, live vector letters last so they stay readable.
+    for p in sorted(points, key=lambda q: q.current):
+        x, y = xy(p.amplitude / full, p.phase_deg)
+        canvas.label(int(x // 2), int(y // 4), p.tag, f"bold {p.style}".strip())
+    for a in (0, 90, 180, 270):
+        # The angle's label just outside the full-scale ring, on whichever side it falls.
+        x, y = xy(1.0, a)
+        word = str(a)
+        col = int(x // 2)
+        if x > cx + 1:
+            col += 1
+        elif x < cx - 1:
+            col -= len(word)
+        else:
+            col -= len(word) // 2
+        row = int(y // 4)
+        canvas.label(max(0, min(canvas.cols - len(word), col)),
+                     max(0, min(canvas.rows - 1, row)), word)
+    turns = "\u21bb cw" if rotation == "cw" else "\u21ba ccw"
+    text = canvas.render()
+    text.append(f"\nfull scale {full:.3g} {unit} · turns {turns}", "grey62")
+    return text

@@ -19,10 +19,11 @@ import random
 from dataclasses import dataclass
 
 from trueturn.dsp.motion import PickupMotion
+from trueturn.model import Reading
+from trueturn.procedure.engine import BalanceEngine
+from trueturn.procedure.guide import GateRefused, Mode, Procedure
 from trueturn.procedure.standstill import StandstillWatch
-from trueturn.ui.engine import BalanceEngine
 from trueturn.ui.machine import setup_from_profile
-from trueturn.ui.procedure import GateRefused, Mode, Procedure, SensorReading
 
 RATED_RPM = 3540.0
 SPIN_UP_S = 2.0
@@ -90,9 +91,9 @@ class FuzzRig:
         return tuple(PickupMotion(n, level, 0.02, line, one_x if line else None, 4.0)
                      for n in self.sensors)
 
-    def readings(self) -> dict[str, SensorReading]:
+    def readings(self) -> dict[str, Reading]:
         amp = FULL_1X_G * (self.rpm / RATED_RPM) ** 2
-        return {n: SensorReading(n, amp + 0.01 * k, "g pk", 30.0 + 40 * k, 0.5, 40, True,
+        return {n: Reading(n, amp + 0.01 * k, "g pk", 30.0 + 40 * k, 0.5, 40, True,
                                  self.rpm, 0.002) for k, n in enumerate(self.sensors)}
 
     def act(self, action: str) -> None:
@@ -177,7 +178,7 @@ def new_rig(seed: int) -> FuzzRig:
                                revolutions_per_run=30)
     rig_box: list[FuzzRig] = []
     watch = StandstillWatch(3.0, clock=lambda: rig_box[0].wall, stale_s=1.0)
-    proc = Procedure(setup, BalanceEngine(profile), watch)
+    proc = Procedure(setup, BalanceEngine(), watch)
     rig = FuzzRig(proc, setup.sensors, rng=random.Random(seed))
     rig_box.append(rig)
     return rig

@@ -14,7 +14,7 @@ from cli_helpers import run_cli
 from test_balance_amplitude_only import four_run_doc
 from trueturn.angles import phasor
 from trueturn.balance import parse_readings, solve
-from trueturn.balance.iso21940 import VerdictFlag
+from trueturn.model import VerdictFlag
 
 
 def _clip(reading: dict) -> None:

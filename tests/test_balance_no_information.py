@@ -21,8 +21,8 @@ from cli_helpers import run_cli
 from test_balance_amplitude_only import four_run_doc
 from trueturn.angles import angle_difference_deg, phasor
 from trueturn.balance import parse_readings, solve
-from trueturn.balance.iso21940 import VerdictFlag
 from trueturn.balance.sanity import AbsurdCorrectionError, CorrectionFlag, NoInformationError
+from trueturn.model import VerdictFlag
 
 
 def _write(tmp_path, doc):

@@ -21,10 +21,10 @@ from textual.widgets import Input, Static
 
 from trueturn.jobs.store import read_document
 from trueturn.link.catalogue import load_catalogue
+from trueturn.procedure.guide import Mode
 from trueturn.sim.scenario import scenario_dir
 from trueturn.ui.app import AppConfig, TrueturnApp
 from trueturn.ui.launch import scenario_profile
-from trueturn.ui.procedure import Mode
 from trueturn.ui.session import BoardIdentity
 from trueturn.ui.texts import KEYS
 

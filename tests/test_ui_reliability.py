@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import asyncio
 from collections.abc import Callable
+from dataclasses import replace
 from pathlib import Path
 
 from textual.pilot import Pilot
@@ -28,9 +29,9 @@ from test_ui_app import (
 )
 from test_ui_procedure import Rig, tick_all
 from trueturn.jobs.store import read_document
+from trueturn.procedure.guide import GateRefused, Mode
 from trueturn.ui.app import TrueturnApp
 from trueturn.ui.meter import tach_faults
-from trueturn.ui.procedure import GateRefused, Mode
 from trueturn.ui.session import BoardIdentity
 
 
@@ -260,7 +261,7 @@ def test_interrupted_run_keeps_nothing_until_resumed() -> None:
     assert proc.ready(full)
     # a silent tach, or a reading that says there is no tach, keeps nothing
     assert not proc.ready(full, tach_live=False)
-    no_tach = {k: r.__class__(**{**r.__dict__, "tach_faults": ("no tach edges: …",)})
+    no_tach = {k: replace(r, no_tach=True)
                for k, r in full.items()}
     assert not proc.ready(no_tach)
     run = proc.record(full, rig.setup.speed_rpm, rig.t)

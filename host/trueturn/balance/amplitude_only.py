@@ -136,7 +136,7 @@ def solve_amplitude_only(inp: BalanceInput) -> Solution:
                             f"readings {len(kept)} run(s) remain, at least 3 are needed; repeat "
                             "the clipped run(s) with the pickup's gain reduced")
         inp = replace(inp, runs=kept)
-    w = np.array([mass_vector(r.added, inp.planes)[0] for r in inp.runs])
+    w = np.array([mass_vector(r.masses, inp.planes)[0] for r in inp.runs])
     if len(w) < 3:
         raise UserError(f"amplitude-only method: needs at least 3 runs (the four-run method "
                         f"uses 4: as found plus one trial at three positions), got {len(w)}")
@@ -144,12 +144,12 @@ def solve_amplitude_only(inp: BalanceInput) -> Solution:
         raise UserError("amplitude-only method: singular system, the runs need at least three "
                         "different trial positions or masses")
     names = [s.name for s in inp.sensors]
-    v = np.array([[r.readings[n].amp for n in names] for r in inp.runs])
+    v = np.array([[r.readings[n].amplitude for n in names] for r in inp.runs])
     if not np.any(v > 0):
         raise UserError("amplitude-only method: every reading is zero: no vibration was "
                         "measured (check the pickups and their cables)")
     # no information, no answer: the trials must change the amplitudes beyond their scatter
-    conf = np.array([[r.readings[n].confidence or 0.0 for n in names] for r in inp.runs])
+    conf = np.array([[r.readings[n].confidence_radius or 0.0 for n in names] for r in inp.runs])
     check_trial_information(
         plane.name, float(np.max(np.abs(w))),
         [float(np.max(np.abs(v[1:, s] - v[0, s]))) for s in range(len(names))],
@@ -180,7 +180,7 @@ def solve_amplitude_only(inp: BalanceInput) -> Solution:
                         f"bigger (about {trial_g * factor:.3g} g)")
     fit_rms = np.sqrt(np.mean((best_t[None, :] * np.abs(best_u + w)[:, None] - v) ** 2, axis=0))
     pm = None
-    sig = np.array([[(r.readings[n].confidence or 0.0) / CIRCLE95_SIGMAS for n in names]
+    sig = np.array([[(r.readings[n].confidence_radius or 0.0) / CIRCLE95_SIGMAS for n in names]
                     for r in inp.runs])
     if sig.any():
         rng = np.random.default_rng(20211)
@@ -212,7 +212,7 @@ def solve_amplitude_only(inp: BalanceInput) -> Solution:
                         "fastened, pickup firm)")
     correction = Correction(plane.name, mass, angle, plane.radius_mm,
                             None if pm is None else pm[0], None if pm is None else pm[1])
-    now = inp.runs[-1].added
+    now = inp.runs[-1].masses
     keep_mass, keep_angle = amplitude_phase(-best_u - mass_vector(now, inp.planes)[0])
     cond = float(np.linalg.cond(jac)) if jac.size else None
     candidates = [[Correction(plane.name, *amplitude_phase(-d[0]), plane.radius_mm)] for d in rivals]

@@ -24,9 +24,10 @@ import numpy as np
 from scipy.optimize import minimize
 
 from trueturn.angles import amplitude_phase
-from trueturn.balance.readings import BalanceInput, PlacedMass, Plane, Run, SavedCoefficient
+from trueturn.balance.readings import BalanceInput, SavedCoefficient
 from trueturn.balance.sanity import check_trial_information
 from trueturn.errors import UserError
+from trueturn.model import Correction, PlacedMass, Plane, Run
 
 #: a 95 % confidence circle holds a 2-D normal within this many per-axis sigmas
 #: (sqrt(-2 ln 0.05), Rayleigh distribution quantile).
@@ -74,26 +75,6 @@ class InfluenceModel:
                 amp, phase = amplitude_phase(complex(self.matrix[c, j]))
                 out.append(SavedCoefficient(channel.sensor, plane, amp, phase, channel.speed_rpm))
         return out
-
-
-@dataclass(frozen=True)
-class Correction:
-    """Mass to add at ``angle_deg`` in ``plane`` (at its radius); ± are 95 % half-widths."""
-
-    plane: str
-    mass_g: float
-    angle_deg: float
-    radius_mm: float
-    mass_g_pm: float | None = None
-    angle_deg_pm: float | None = None
-
-    @property
-    def vector_g(self) -> complex:
-        return complex(self.mass_g * np.exp(1j * np.radians(self.angle_deg)))
-
-    @property
-    def unbalance_gmm(self) -> float:
-        return self.mass_g * self.radius_mm
 
 
 @dataclass
@@ -169,11 +150,11 @@ def trial_handling(runs: Sequence[Run]) -> str:
     """'removed', 'left on', 'mixed' or 'none': what happened to trial masses between runs."""
     seen = set()
     for prev, cur in zip(runs, runs[1:], strict=False):
-        if not prev.added or list(prev.added) == list(cur.added):
+        if not prev.masses or list(prev.masses) == list(cur.masses):
             continue
-        cur_left = list(cur.added)
+        cur_left = list(cur.masses)
         kept = True
-        for m in prev.added:
+        for m in prev.masses:
             if m in cur_left:
                 cur_left.remove(m)
             else:
@@ -204,7 +185,7 @@ def fit_influence(runs: Sequence[Run], planes: Sequence[Plane], sensors: Sequenc
     a_rows: list[np.ndarray] = []
     for g in groups:
         members = [(k, r) for k, r in enumerate(runs) if _group_of(r.speed_rpm, groups) == g]
-        design = np.array([[1.0 + 0j, *mass_vector(r.added, planes)] for _, r in members])
+        design = np.array([[1.0 + 0j, *mass_vector(r.masses, planes)] for _, r in members])
         at = "" if g is None else f" at {g:g} rpm"
         _check_design(design, n_planes, planes, at)
         for name in sensors:
@@ -276,7 +257,7 @@ def as_found_with_model(model: InfluenceModel, runs: Sequence[Run], planes: Sequ
     counts = np.zeros(len(model.channels))
     for k, run in enumerate(runs):
         g = _group_of(run.speed_rpm, groups)
-        w = mass_vector(run.added, planes)
+        w = mass_vector(run.masses, planes)
         for c, ch in enumerate(model.channels):
             if ch.speed_rpm != g or run.readings[ch.sensor].clipped:
                 continue
@@ -334,8 +315,8 @@ def _uncertainty(inp: BalanceInput, fit, nominal: np.ndarray, weights: np.ndarra
     sigma = {}
     for k, run in enumerate(inp.runs):
         for name, r in run.readings.items():
-            if r.confidence:
-                sigma[(k, name)] = r.confidence / CIRCLE95_SIGMAS
+            if r.confidence_radius:
+                sigma[(k, name)] = r.confidence_radius / CIRCLE95_SIGMAS
     if not sigma:
         return None
     rng = np.random.default_rng(20211)
@@ -363,8 +344,8 @@ def _largest_confidence(inp: BalanceInput) -> dict[str, float]:
     conf: dict[str, float] = {}
     for run in inp.runs:
         for name, r in run.readings.items():
-            if r.confidence:
-                conf[name] = max(conf.get(name, 0.0), r.confidence)
+            if r.confidence_radius:
+                conf[name] = max(conf.get(name, 0.0), r.confidence_radius)
     return conf
 
 
@@ -373,7 +354,7 @@ def _trial_warnings(inp: BalanceInput, r0: np.ndarray, model: InfluenceModel) ->
     warnings = []
     conf = _largest_confidence(inp)
     for j, plane in enumerate(inp.planes):
-        trial_g = max(abs(mass_vector(r.added, inp.planes)[j]) for r in inp.runs)
+        trial_g = max(abs(mass_vector(r.masses, inp.planes)[j]) for r in inp.runs)
         if trial_g <= 0:
             continue
         effects = np.abs(model.matrix[:, j]) * trial_g
@@ -400,7 +381,7 @@ def _refuse_uninformative_trials(inp: BalanceInput, r0: np.ndarray, model: Influ
     (:func:`trueturn.balance.sanity.check_trial_information`)."""
     conf = _largest_confidence(inp)
     for j, plane in enumerate(inp.planes):
-        trial_g = max(abs(mass_vector(r.added, inp.planes)[j]) for r in inp.runs)
+        trial_g = max(abs(mass_vector(r.masses, inp.planes)[j]) for r in inp.runs)
         effects = [float(abs(model.matrix[c, j]) * trial_g) for c in range(len(model.channels))]
         levels = [float(abs(v)) for v in r0]
         # the change of a reading: two independent 95 % circles add in quadrature
@@ -464,7 +445,7 @@ def solve_with_phase(inp: BalanceInput) -> Solution:
         warnings += _trial_warnings(inp, r0, model)
     pm = _uncertainty(inp, fit, c, weights, limits)
     predicted = r0 + matrix @ c
-    now = inp.runs[-1].added
+    now = inp.runs[-1].masses
     keep = c - mass_vector(now, planes)
     return Solution(
         method=method,

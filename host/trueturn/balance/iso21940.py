@@ -25,10 +25,10 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass
-from enum import Enum
 
 from trueturn.angles import amplitude_phase
 from trueturn.errors import UserError
+from trueturn.model import PlaneArrangement, TolerancePlanes, Verdict, VerdictFlag
 
 #: lower and upper share of U_per per plane for the lever-rule allocation (clause 7, from memory)
 MIN_SHARE, MAX_SHARE = 0.3, 0.7
@@ -119,68 +119,6 @@ def allocate_two_planes(u_per_gmm: float, plane_distance_mm: float | None = None
     share_first = min(max((plane_distance_mm - a) / plane_distance_mm, MIN_SHARE), MAX_SHARE)
     share_second = min(max(a / plane_distance_mm, MIN_SHARE), MAX_SHARE)
     return u_per_gmm * share_first, u_per_gmm * share_second
-
-
-class TolerancePlanes(str, Enum):
-    """Where residual unbalance was compared with its permissible share."""
-
-    BEARINGS = "bearings"                    # ISO 21940-11 reference planes (clause 4)
-    CORRECTION_PLANES = "correction planes"  # bearing positions unknown: planes as given
-
-
-class PlaneArrangement(str, Enum):
-    """Correction planes relative to the two bearings."""
-
-    INBOARD = "inboard"      # every correction plane between the bearings (or on one)
-    OUTBOARD = "outboard"    # planes outside the bearings, on both sides
-    OVERHUNG = "overhung"    # planes outside the bearings, all on one side
-    MIXED = "mixed"          # some planes between the bearings, some outside
-
-
-class VerdictFlag(str, Enum):
-    """Facts about a verdict that the person must be told (put into words by ui/cli)."""
-
-    #: bearing positions unknown: residuals compared in the correction planes themselves
-    NOT_AT_BEARINGS = "not_at_bearings"
-    #: residual angles unknown: the bearing loads are the worst case (magnitudes added)
-    WORST_CASE_PHASING = "worst_case_phasing"
-    #: centre of mass outside the bearings: shares limited to 0.3/0.7 (see module notes)
-    CG_OUTSIDE_BEARINGS = "cg_outside_bearings"
-    #: centre of mass not given: taken midway between the bearings (half each)
-    CG_ASSUMED_MIDWAY = "cg_assumed_midway"
-    #: no maximum service speed given: the grade was judged at the last run's speed
-    SPEED_FROM_LAST_RUN = "speed_from_last_run"
-    #: the answer is ambiguous (amplitude-only): no PASS can be given
-    AMBIGUOUS = "ambiguous"
-    #: the amplitudes do not fit one answer (amplitude-only): no PASS can be given
-    INCONSISTENT = "inconsistent"
-    #: the run judged has a clipped reading (reads low): no PASS can be given
-    CLIPPED = "clipped"
-
-
-@dataclass(frozen=True)
-class Verdict:
-    """Pass/fail of residual unbalances (g·mm per tolerance plane) against their shares.
-
-    ``labels`` names the tolerance planes (bearing or correction plane names, or empty);
-    ``residual_angle_deg`` is None per plane where only a magnitude is known;
-    ``speed_rpm`` is the speed the grade was judged at (None: not stated to the engine).
-    """
-
-    passed: bool
-    residual_gmm: tuple[float, ...]
-    permissible_gmm: tuple[float, ...]
-    labels: tuple[str, ...] = ()
-    tolerance_planes: TolerancePlanes = TolerancePlanes.CORRECTION_PLANES
-    residual_angle_deg: tuple[float | None, ...] = ()
-    arrangement: PlaneArrangement | None = None
-    u_per_gmm: float | None = None
-    speed_rpm: float | None = None
-    flags: tuple[VerdictFlag, ...] = ()
-
-    @property
-    def worst_ratio(self) -> float:
-        return max(r / p for r, p in zip(self.residual_gmm, self.permissible_gmm, strict=True))
 
 
 def verdict(residual_gmm: Sequence[float], permissible_gmm: Sequence[float]) -> Verdict:

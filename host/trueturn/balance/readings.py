@@ -14,24 +14,7 @@ from typing import Any
 
 from trueturn.angles import phasor, wrap_deg
 from trueturn.errors import UserError
-
-
-@dataclass(frozen=True)
-class Plane:
-    """A correction plane: where masses go, at ``radius_mm`` from the axis."""
-
-    name: str
-    radius_mm: float
-    max_mass_g: float | None = None
-    axial_mm: float | None = None
-
-
-@dataclass(frozen=True)
-class Bearing:
-    """A bearing (support) of the rotor at ``axial_mm`` (same origin as the planes')."""
-
-    name: str
-    axial_mm: float
+from trueturn.model import Bearing, PlacedMass, Plane, Reading, Run
 
 
 @dataclass(frozen=True)
@@ -40,51 +23,6 @@ class Sensor:
 
     name: str
     weight: float = 1.0
-
-
-@dataclass(frozen=True)
-class PlacedMass:
-    """A mass on the rotor: ``mass_g`` at ``angle_deg`` in ``plane`` (at the plane's radius)."""
-
-    plane: str
-    mass_g: float
-    angle_deg: float
-
-    @property
-    def vector_g(self) -> complex:
-        return phasor(self.mass_g, self.angle_deg)
-
-
-@dataclass(frozen=True)
-class Reading:
-    """A 1x reading; ``phase_deg`` None for the amplitude-only method.
-
-    ``confidence`` is the radius (reading units) of the circle that holds the true phasor
-    with about 95 % probability, as reported by the measuring side; None if unknown.
-    """
-
-    amp: float
-    phase_deg: float | None = None
-    confidence: float | None = None
-    #: the capture behind this reading clipped at the ADC limits: the 1x is unreliable
-    #: (reads low, phase skewed); never used for coefficients, no PASS on it
-    clipped: bool = False
-
-    @property
-    def vector(self) -> complex:
-        if self.phase_deg is None:
-            raise ValueError("reading has no phase")
-        return phasor(self.amp, self.phase_deg)
-
-
-@dataclass(frozen=True)
-class Run:
-    """One run: the masses on the rotor relative to the as-found rotor, and the readings."""
-
-    label: str
-    added: tuple[PlacedMass, ...]
-    readings: dict[str, Reading]
-    speed_rpm: float | None = None
 
 
 @dataclass(frozen=True)
@@ -251,6 +189,7 @@ def parse_readings(doc: Any, source: str = "READINGS") -> BalanceInput:
 
     plane_names = {p.name for p in planes}
     sensor_names = [s.name for s in sensors]
+    unit = str(doc.get("unit", ""))
     runs: list[Run] = []
     for i, item in enumerate(_list(_require(doc, "runs", source), f"{source}: runs")):
         at = f"{source}: runs[{i}]"
@@ -278,7 +217,8 @@ def parse_readings(doc: Any, source: str = "READINGS") -> BalanceInput:
             clipped = r.get("clipped", False)
             if not isinstance(clipped, bool):
                 raise UserError(f"{r_at}.clipped: expected true or false, got {clipped!r}")
-            readings[name] = Reading(amp, phase_deg, confidence, clipped)
+            readings[name] = Reading(name, amp, unit, phase_deg, speed_rpm=speed_rpm,
+                                     confidence_radius=confidence, clipped=clipped)
         runs.append(Run(label, added, readings, speed_rpm))
     if not runs:
         raise UserError(f"{source}: runs: at least one run is needed")

@@ -27,7 +27,8 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from trueturn.balance.influence import SPEED_MATCH, Solution, speed_groups
-from trueturn.balance.readings import BalanceInput, Reading, Run
+from trueturn.balance.readings import BalanceInput
+from trueturn.model import Run
 
 #: runs further than this fraction from their group's reference speed are reported
 SPEED_WARN_FRACTION = 0.003
@@ -100,8 +101,9 @@ def normalise_speeds(inp: BalanceInput, exponent: float) -> BalanceInput:
             runs.append(run)
             continue
         scale = (ref / run.speed_rpm) ** exponent
-        readings = {name: Reading(r.amp * scale, r.phase_deg,
-                                  None if r.confidence is None else r.confidence * scale)
+        readings = {name: replace(r, amplitude=r.amplitude * scale,
+                                  confidence_radius=None if r.confidence_radius is None
+                                  else r.confidence_radius * scale)
                     for name, r in run.readings.items()}
         runs.append(replace(run, readings=readings))
     return replace(inp, runs=tuple(runs))

@@ -40,7 +40,8 @@ class Reading:
     sensor: str = field(metadata=limits(nonempty=True))
     amplitude: float = field(metadata=limits(minimum=0))
     unit: VibrationUnit
-    phase_deg: float = field(metadata=limits(minimum=0, below=360))
+    #: null when no phase was measured (no tach: the amplitude-only method), never a guess
+    phase_deg: float | None = field(metadata=limits(minimum=0, below=360))
     confidence_deg: float = field(metadata=limits(minimum=0, maximum=180))
     revolutions: int = field(metadata=limits(minimum=0))
     speed_rpm: float = field(metadata=limits(above=0))

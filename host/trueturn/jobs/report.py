@@ -69,6 +69,7 @@ def reading_text(reading: Reading, machine: MachineProfile) -> tuple[str, str]:
                                         machine.units.length)
     digits = 3 if amplitude < 10 else 1
     return (f"{amplitude:.{digits}f} {unit}",
+            "no phase" if reading.phase_deg is None else
             f"{_deg(reading.phase_deg)} \u00b1 {reading.confidence_deg:.1f}\u00b0")
 
 
@@ -120,8 +121,8 @@ def polar_svg(job: JobRecord, sensor: str, size_px: int = 320) -> str:
     unit = machine.units.vibration
     for run in job.runs:
         reading = run.reading(sensor)
-        if reading is None:
-            continue
+        if reading is None or reading.phase_deg is None:
+            continue  # a reading without a phase has no place on a polar plot
         amplitude, unit = convert_vibration(reading.amplitude, reading.unit,
                                             machine.units.vibration, machine.units.length)
         if reading.confidence_radius is not None and reading.amplitude > 0:

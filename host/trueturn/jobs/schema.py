@@ -15,6 +15,7 @@ from __future__ import annotations
 
 import dataclasses
 import datetime as dt
+import enum
 import json
 import math
 import re
@@ -273,17 +274,23 @@ def from_data(cls: type, data: Any, source: str, path: str = "") -> Any:
 
 
 def to_data(obj: Any) -> Any:
-    """Plain dicts/lists/numbers of a dataclass tree, in field order; ``None`` fields left out."""
+    """Plain dicts/lists/numbers of a dataclass tree, in field order; ``None`` left out where
+    the field has a default (a required field that may be null is written as null); an
+    enum as its value."""
     if dataclasses.is_dataclass(obj) and not isinstance(obj, type):
         out: dict[str, Any] = {}
         for f in dataclasses.fields(obj):
             value = getattr(obj, f.name)
-            if value is None:
+            required = (f.default is dataclasses.MISSING
+                        and f.default_factory is dataclasses.MISSING)
+            if value is None and not required:
                 continue
             out[f.name] = to_data(value)
         return out
     if isinstance(obj, (list, tuple)):
         return [to_data(v) for v in obj]
+    if isinstance(obj, enum.Enum):
+        return obj.value
     return obj
 
 

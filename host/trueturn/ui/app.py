@@ -27,13 +27,10 @@ from trueturn.angles import wrap_deg
 from trueturn.errors import UserError
 from trueturn.jobs.profiles import MachineProfile
 from trueturn.jobs.records import CoefficientSet
+from trueturn.model.result import WITHHOLDING_FLAGS
 from trueturn.positions import number_of, position_text
-from trueturn.procedure.standstill import StandstillState
-from trueturn.ui.engine import BalanceEngine
-from trueturn.ui.jobfile import JobKeeper
-from trueturn.ui.machine import describe_change, setup_from_profile
-from trueturn.ui.machines import MachinePicker
-from trueturn.ui.procedure import (
+from trueturn.procedure.engine import BalanceEngine
+from trueturn.procedure.guide import (
     GateRefused,
     Mode,
     Procedure,
@@ -41,9 +38,13 @@ from trueturn.ui.procedure import (
     standstill_basis_words,
     standstill_refusal,
 )
+from trueturn.procedure.standstill import StandstillState
+from trueturn.ui.jobfile import JobKeeper
+from trueturn.ui.machine import describe_change, setup_from_profile
+from trueturn.ui.machines import MachinePicker
 from trueturn.ui.rig import DemoRig
 from trueturn.ui.session import LinkProblem, LinkSession, Snapshot
-from trueturn.ui.texts import CAUTIONS, VERDICT_FLAG_WORDS, keys_markup
+from trueturn.ui.texts import CAUTIONS, VERDICT_FLAG_WORDS, keys_markup, verdict_note
 from trueturn.ui.widgets import PolarPlot, PolarPoint
 
 TICK_S = 0.1
@@ -250,7 +251,7 @@ class TrueturnApp(App):
             standstill_s=config.standstill_s,
             sensor_names=tuple(p.name for p in profile.pickups), mains_hz=profile.mains_hz,
             pickups=profile.pickups)
-        self.engine = BalanceEngine(profile)
+        self.engine = BalanceEngine()
         self.rig = DemoRig(self.session) if config.demo else None
         self.keeper = JobKeeper(profile, workspace=config.workspace, job_file=config.job_file)
         self.procedure: Procedure | None = None
@@ -403,7 +404,7 @@ class TrueturnApp(App):
         if profile is None:
             return
         self.config.profile = profile
-        self.engine = BalanceEngine(profile)
+        self.engine = BalanceEngine()
         self.keeper = JobKeeper(profile, workspace=self.config.workspace,
                                 job_file=self.config.job_file)
         self.session.use_machine([p.name for p in profile.pickups], profile.mains_hz,
@@ -916,22 +917,17 @@ class TrueturnApp(App):
             assert v is not None
             word = "[b green]PASS[/]" if v.passed else "[b red]NOT YET[/]"
             where = "at the bearings" if v.at_bearings else "in the correction planes"
-            lines.append(f"{word}: ISO 21940-11, grade G {v.grade_mm_per_s:g} at the maximum "
-                         f"service speed {v.speed_rpm or proc.setup.speed_rpm:.0f} rpm, judged "
-                         f"{where}, {len(proc.runs)} runs")
-            for label, res in v.residual_gmm.items():
-                per = v.permissible_gmm.get(label, float("nan"))
+            lines.append(f"{word}: ISO 21940-11, grade G {proc.setup.grade_mm_per_s:g} at the "
+                         f"maximum service speed {v.speed_rpm or proc.setup.speed_rpm:.0f} rpm, "
+                         f"judged {where}, {len(proc.runs)} runs")
+            for label, res, per, _ in v.rows():
                 lines.append(f"  {label}: residual {res:.1f} g·mm, permissible {per:.1f} g·mm")
-            if v.note:
-                lines.append(v.note)
-            lines += [f"[yellow]{VERDICT_FLAG_WORDS.get(f, f)}[/]" for f in v.flags]
+            lines.append(verdict_note(v, proc.setup.speed_rpm))
+            for f in v.flags:
+                style = "b red" if f in WITHHOLDING_FLAGS else "yellow"
+                lines.append(f"[{style}]{VERDICT_FLAG_WORDS[f]}[/]")
             if v.worse_pickups:
-                lines.append(f"[b red]Worse than as found at {', '.join(v.worse_pickups)}[/] "
-                             "(beyond both readings' 95 % circles): not passed.")
-            if v.partial_planes:
-                lines.append("[yellow]One plane of a multi-plane rotor was corrected: the other "
-                             "plane's residual is not measured, so the whole rotor cannot be "
-                             "shown within the grade. Balance both planes (2).[/]")
+                lines.append(f"[b red]Worse than as found at {', '.join(v.worse_pickups)}.[/]")
             if turning:
                 lines.append("[b]Switch the machine off[/b]" +
                              (" (x for the demo motor)." if self.rig else "."))

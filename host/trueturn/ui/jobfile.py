@@ -10,10 +10,11 @@ from trueturn.jobs import records as rec
 from trueturn.jobs.profiles import VIBRATION_UNIT_LABELS, MachineProfile
 from trueturn.jobs.report import html_report
 from trueturn.jobs.store import Workspace, atomic_write_text, write_document
+from trueturn.model import Run, RunKind, SafetyEvent
 from trueturn.positions import number_of
+from trueturn.procedure.guide import MassChange, Mode, Procedure
 from trueturn.procedure.standstill import StandstillEvidence
-from trueturn.ui.procedure import MassChange, Mode, Procedure, RunRecord, SafetyEvent
-from trueturn.ui.texts import VERDICT_FLAG_WORDS
+from trueturn.ui.texts import VERDICT_FLAG_WORDS, verdict_note
 
 # The meter's unit names -> the job file's unit names (amplitudes are stored as measured).
 
@@ -79,7 +80,7 @@ class JobKeeper:
                 continue
             action = "attach" if change.action == "attach" else "remove"
             pending.changes.append(rec.MassChange(
-                action, m.plane, abs(m.mass_g), m.angle_deg, purpose=m.kind,
+                action, m.plane, abs(m.mass_g), m.angle_deg, purpose=m.kind.value,
                 position=None if m.position is None else number_of(m.position),
                 radius_mm=proc.plane(m.plane).radius_mm,
                 part="drilled out" if m.removal else "", time=rec.now_iso()))
@@ -97,14 +98,15 @@ class JobKeeper:
         self.job.pending = pending
         self._save()
 
-    def run(self, proc: Procedure, run: RunRecord) -> None:
+    def run(self, proc: Procedure, run: Run) -> None:
         if self.job is None:
             return
-        kind = "initial" if len(proc.runs) == 1 else (
-            "trial" if run.label.startswith("trial") else "check")
+        kind = (run.kind or RunKind.CHECK).value  # the procedure says why it ran
         readings = [rec.Reading(r.sensor, r.amplitude, r.unit,  # type: ignore[arg-type]
-                                (r.phase_deg or 0.0) % 360.0, min(180.0, r.confidence_deg),
-                                r.revolutions, r.speed_rpm)
+                                None if r.phase_deg is None else r.phase_deg % 360.0,
+                                min(180.0, r.confidence_deg), r.revolutions,
+                                r.speed_rpm or run.speed_rpm or 0.0,
+                                confidence_radius=r.confidence_radius)
                     for r in run.readings.values()]
         corrections = []
         if proc.step.kind == "correction" and proc.solution is not None:
@@ -120,7 +122,7 @@ class JobKeeper:
                          time=rec.now_iso(), speed_rpm=run.speed_rpm, readings=readings,
                          label=run.label, confirmations=self._new_confirmations(proc),
                          corrections=corrections, events=events,
-                         notes="; ".join(run.force_confirmed))
+                         notes="; ".join(run.forces_confirmed))
         if self.job_file is None:
             self.workspace.append_run(self.job, record)
         else:
@@ -154,11 +156,11 @@ class JobKeeper:
             return None
         v = proc.verdict
         if v is not None:
-            planes = [rec.PlaneVerdict(name, res, v.permissible_gmm[name],
-                                       res <= v.permissible_gmm[name])
-                      for name, res in v.residual_gmm.items()]
-            note = " ".join([v.note, *(VERDICT_FLAG_WORDS.get(f, f) + "." for f in v.flags)])
-            self.job.verdict = rec.Verdict(v.grade_mm_per_s, proc.setup.speed_rpm,
+            planes = [rec.PlaneVerdict(name, res, per, within)
+                      for name, res, per, within in v.rows()]
+            note = " ".join([verdict_note(v, proc.setup.speed_rpm),
+                             *(VERDICT_FLAG_WORDS[f] + "." for f in v.flags)])
+            self.job.verdict = rec.Verdict(proc.setup.grade_mm_per_s, proc.setup.speed_rpm,
                                            len(self.job.runs), planes, v.passed, note=note)
         self._keep_coefficients(proc)
         self.job.status = "closed"

@@ -8,12 +8,14 @@ from typing import TYPE_CHECKING
 from trueturn.balance.readings import SavedCoefficient
 from trueturn.jobs.profiles import Bearing, MachineProfile, Pickup, Plane, PlaneLayout
 from trueturn.jobs.records import CoefficientSet
+from trueturn.model import Bearing as ModelBearing
+from trueturn.model import Plane as ModelPlane
 from trueturn.positions import number_of, position_text
-from trueturn.ui.procedure import MassChange, Mode, PlaneSetup, Procedure, ProcedureSetup
+from trueturn.procedure.guide import MassChange, Mode, Procedure, ProcedureSetup
 
 if TYPE_CHECKING:
+    from trueturn.procedure.engine import BalanceEngine
     from trueturn.sim.scenario import Scenario
-    from trueturn.ui.engine import BalanceEngine
 
 DEMO_GRADE_MM_S = 6.3  # ISO 21940-11 grade G 6.3: fans, general machinery (demo target)
 
@@ -62,10 +64,9 @@ def setup_from_profile(profile: MachineProfile, mode: Mode, standstill_s: float 
         coefficients = tuple(SavedCoefficient(e.sensor, e.plane, e.amp, e.phase_deg,
                                               saved.speed_rpm) for e in saved.entries)
     bearings = profile.bearing_positions_mm()
-    planes = tuple(PlaneSetup(p.name, p.radius_mm, tuple(p.layout.position_angles_deg()),
-                              removal_allowed=p.removal,
-                              axial_mm=p.axial_position_mm if bearings else None,
-                              max_mass_g=p.max_mass_g)
+    planes = tuple(ModelPlane(p.name, p.radius_mm, p.max_mass_g,
+                              p.axial_position_mm if bearings else None,
+                              tuple(p.layout.position_angles_deg()), p.removal)
                    for p in profile.planes)
     return ProcedureSetup(
         machine=profile.name, mode=mode, planes=planes,
@@ -76,7 +77,7 @@ def setup_from_profile(profile: MachineProfile, mode: Mode, standstill_s: float 
         saved_planes=tuple(dict.fromkeys(c.plane for c in coefficients)),
         profile_planes=len(profile.planes),
         saved_coefficients=coefficients,
-        bearings=tuple((b.name, b.axial_position_mm) for b in profile.bearings)
+        bearings=tuple(ModelBearing(b.name, b.axial_position_mm) for b in profile.bearings)
         if bearings else (),
         cg_axial_mm=profile.cg_axial_position_mm)
 

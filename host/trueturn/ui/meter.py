@@ -1,6 +1,6 @@
 """Adapter: the DSP layer's streaming meter (``trueturn.dsp.meter.LiveAnalyzer``) for the app.
 
-The app needs plain numbers per pickup (:class:`~trueturn.ui.procedure.SensorReading`), the
+The app needs plain numbers per pickup (:class:`~trueturn.model.Reading`), the
 speed, and a spectrum with labelled peaks; this module converts, and restarts the averaging
 when a new run begins. No signal processing of its own.
 """
@@ -16,7 +16,7 @@ from typing import Any
 from trueturn.dsp.averaging import SteadinessLimits
 from trueturn.dsp.meter import LiveAnalyzer
 from trueturn.dsp.units import PickupProfile
-from trueturn.ui.procedure import SensorReading
+from trueturn.model import Reading
 
 SPECTRUM_BINS = 76  # one sparkline column each, fits 80 columns
 # The DSP's "steady" here covers revolutions, speed spread and drift; the phase limit is
@@ -52,7 +52,7 @@ class MeterView:
     """What the screens draw: readings by pickup name, speed, spectrum strip, peaks."""
 
     sensors: tuple[str, ...]
-    readings: dict[str, SensorReading] = field(default_factory=dict)
+    readings: dict[str, Reading] = field(default_factory=dict)
     speed_rpm: float | None = None
     unit: str = ""
     spectrum_amplitude: list[float] = field(default_factory=list)
@@ -138,10 +138,11 @@ class MeterAdapter:
         out.speed_rpm = speed if math.isfinite(speed) else None
         for r in readings:
             faults = tach_faults(r.warnings)
-            out.readings[r.sensor] = SensorReading(
+            out.readings[r.sensor] = Reading(
                 r.sensor, r.amplitude, r.unit, r.phase_deg, r.confidence_deg, r.revolutions,
                 r.steady, r.speed_rpm, r.confidence_radius
-                if math.isfinite(r.confidence_radius) else None, faults)
+                if math.isfinite(r.confidence_radius) else None,
+                no_tach=any(f.startswith("no tach") for f in faults))
             out.unit = r.unit
             out.warnings += [w for w in r.warnings if w not in out.warnings]
         if not readings:  # no revolution yet: the stream's own warnings (no tach, ...)

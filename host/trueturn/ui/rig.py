@@ -3,18 +3,21 @@
 When the person confirms a weight on a ``sim://`` rig, the same weight goes onto the
 simulated rotor through the rig API (``port.rig``: add_mass, remove_mass, motor_start,
 motor_stop), so the demo's residual is the physics' honest answer, not a scripted one.
-Removed material is a negative mass at the drilled angle.
+Removed material goes on as its equivalent addition (``PlacedMass.as_addition``: the same
+mass opposite the drilled spot), the one removal rule.
 """
 
 from __future__ import annotations
 
+from trueturn.model import PlacedMass
+from trueturn.procedure.guide import MassChange, Procedure
 from trueturn.sim.rotor import Mass
-from trueturn.ui.procedure import MassChange, PlacedMass, Procedure
 from trueturn.ui.session import LinkSession
 
 
 def rig_mass(m: PlacedMass) -> Mass:
-    return Mass(m.plane, -abs(m.mass_g) if m.removal else m.mass_g, m.angle_deg)
+    added = m.as_addition()
+    return Mass(added.plane, added.mass_g, added.angle_deg)
 
 
 class DemoRig:

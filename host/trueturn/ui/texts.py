@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+from trueturn.model import Verdict, VerdictFlag
+
 CAUTIONS = "\n".join([
     "[b]Cautions — read before every job[/b]", "",
     "• A rotor can throw a weight, clip or chip hard enough to injure or kill: stay out of "
@@ -44,21 +46,38 @@ KEYS: list[tuple[str, str]] = [
 ]
 
 
-#: the engine's verdict flags (``trueturn.balance.iso21940.VerdictFlag`` values) in the
-#: app's words; the machine profile is where the person fixes what is missing
-VERDICT_FLAG_WORDS: dict[str, str] = {
-    "not_at_bearings": "judged in the correction planes: give the machine profile its two "
-                       "bearings and each plane's axial position to judge at the bearings",
-    "worst_case_phasing": "residual angles unknown: the bearing loads are the worst case",
-    "cg_outside_bearings": "the centre of mass lies outside the bearings: shares limited to "
-                           "0.3/0.7 of U_per; check the standard's rules for such rotors",
-    "cg_assumed_midway": "the centre of mass is not in the profile: taken midway between the "
-                         "bearings",
-    "speed_from_last_run": "no maximum service speed: judged at the last run's speed",
-    "ambiguous": "the answer is ambiguous: no pass can be given",
-    "inconsistent": "the amplitudes do not fit one answer: no pass can be given",
-    "clipped": "the last run has a clipped reading (it reads low): no pass can be given",
+#: the verdict's flags in the app's words (the machine profile is where the person fixes
+#: what is missing)
+VERDICT_FLAG_WORDS: dict[VerdictFlag, str] = {
+    VerdictFlag.NOT_AT_BEARINGS: "judged in the correction planes: give the machine profile "
+                                 "its two bearings and each plane's axial position to judge "
+                                 "at the bearings",
+    VerdictFlag.WORST_CASE_PHASING: "residual angles unknown: the bearing loads are the worst "
+                                    "case",
+    VerdictFlag.CG_OUTSIDE_BEARINGS: "the centre of mass lies outside the bearings: shares "
+                                     "limited to 0.3/0.7 of U_per; check the standard's rules "
+                                     "for such rotors",
+    VerdictFlag.CG_ASSUMED_MIDWAY: "the centre of mass is not in the profile: taken midway "
+                                   "between the bearings",
+    VerdictFlag.SPEED_FROM_LAST_RUN: "no maximum service speed: judged at the last run's speed",
+    VerdictFlag.AMBIGUOUS: "the answer is ambiguous: no pass can be given",
+    VerdictFlag.INCONSISTENT: "the amplitudes do not fit one answer: no pass can be given",
+    VerdictFlag.CLIPPED: "the last run has a clipped reading (it reads low): no pass can be "
+                         "given",
+    VerdictFlag.WORSE_THAN_AS_FOUND: "a pickup reads worse than as found (beyond both "
+                                     "readings' 95 % circles): not passed",
+    VerdictFlag.PARTIAL_PLANES: "one plane of a multi-plane rotor was corrected: the other "
+                                "plane's residual is not measured, so the whole rotor cannot "
+                                "be shown within the grade; balance both planes (2)",
 }
+
+
+def verdict_note(v: Verdict, service_speed_rpm: float) -> str:
+    """Where and at which speed the grade was judged, with the formula used."""
+    where = "at the bearings" if v.at_bearings else "in the correction planes"
+    u_per = f"U_per {v.u_per_gmm:.1f} g·mm " if v.u_per_gmm is not None else ""
+    return (f"permissible {u_per}at {v.speed_rpm or service_speed_rpm:.0f} rpm, shared "
+            f"{where} (ISO 21940-11: e_per = G/omega, U_per = e_per * m)")
 
 
 def keys_markup() -> str:

@@ -3,7 +3,7 @@
 No Textual, no I/O: the app feeds it board time, tach edges, readings and the person's
 confirmations; it answers with the current step, what to show, and refuses any confirmation
 a gate does not allow (:class:`GateRefused`). The balancing arithmetic itself comes from the
-engine passed in (``trueturn.ui.engine``, a thin adapter over ``trueturn.balance``).
+engine passed in (:mod:`trueturn.procedure.engine`, backed by ``trueturn.balance``).
 
 Sequence (influence-coefficient method with a tach; four-run method without one):
 
@@ -25,11 +25,24 @@ Safety gates (ARCHITECTURE.md, "Safety"):
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, replace
 from enum import Enum
-from typing import Literal, Protocol
+from typing import ClassVar, Literal, Protocol
 
 from trueturn.angles import angle_difference_deg, wrap_deg
+from trueturn.model import (
+    Bearing,
+    Correction,
+    MassKind,
+    PlacedMass,
+    Plane,
+    Reading,
+    Run,
+    RunKind,
+    SafetyEvent,
+    Verdict,
+    VerdictFlag,
+)
 from trueturn.procedure.standstill import (
     StandstillEvidence,
     StandstillState,
@@ -100,24 +113,12 @@ class GateRefused(Exception):
 
 
 @dataclass(frozen=True)
-class PlaneSetup:
-    """A correction plane as the procedure needs it."""
-
-    name: str
-    radius_mm: float
-    position_angles_deg: tuple[float, ...] = ()  # blades/holes; empty = any angle
-    removal_allowed: bool = False  # the profile allows drilling/grinding material out here
-    axial_mm: float | None = None  # along the shaft, the bearings' origin (None: not given)
-    max_mass_g: float | None = None  # largest correction the plane takes (profile)
-
-
-@dataclass(frozen=True)
 class ProcedureSetup:
     """What the procedure needs to know about the machine (from the machine profile)."""
 
     machine: str
     mode: Mode
-    planes: tuple[PlaneSetup, ...]
+    planes: tuple[Plane, ...]
     sensors: tuple[str, ...]
     rotor_mass_kg: float
     speed_rpm: float
@@ -131,21 +132,9 @@ class ProcedureSetup:
     saved_planes: tuple[str, ...] = ()  # saved-trim: the planes the coefficients cover
     profile_planes: int = 0  # correction planes the machine has (0: as many as ``planes``)
     saved_coefficients: tuple[object, ...] = ()  # saved-trim: opaque to the procedure
-    #: the two bearings (name, axial_mm): the ISO 21940-11 verdict is judged there
-    bearings: tuple[tuple[str, float], ...] = ()
+    #: the two bearings: the ISO 21940-11 verdict is judged there
+    bearings: tuple[Bearing, ...] = ()
     cg_axial_mm: float | None = None  # the rotor's centre of mass (None: midway)
-
-
-@dataclass(frozen=True)
-class PlacedMass:
-    """A mass on the rotor relative to the as-found state; negative mass = material removed."""
-
-    plane: str
-    mass_g: float
-    angle_deg: float
-    position: int | None = None  # index of a blade/hole, when the plane has positions
-    kind: Literal["trial", "correction", "trim"] = "correction"
-    removal: bool = False  # True: drill/grind this much out at angle_deg (rather than add)
 
 
 @dataclass(frozen=True)
@@ -155,53 +144,6 @@ class MassChange:
     action: Literal["attach", "detach", "mount-pickups"]
     mass: PlacedMass | None = None
 
-
-@dataclass(frozen=True)
-class SensorReading:
-    """A 1x reading at one pickup, as the meter gives it (plain numbers)."""
-
-    sensor: str
-    amplitude: float
-    unit: str
-    phase_deg: float | None
-    confidence_deg: float
-    revolutions: int
-    steady: bool
-    speed_rpm: float
-    confidence_radius: float | None = None  # 95 % circle radius in the reading's unit
-    tach_faults: tuple[str, ...] = ()  # plain words: no tach, missed/extra edges, uneven
-
-
-@dataclass(frozen=True)
-class SafetyEvent:
-    """Something the person had to be told to stop for, with board time."""
-
-    kind: Literal["overspeed", "runaway", "link-lost", "board-restart", "aborted"]
-    detail: str
-    time_s: float
-
-
-
-@dataclass
-class RunRecord:
-    """A completed run: what was on the rotor and what the pickups read."""
-
-    label: str
-    masses: tuple[PlacedMass, ...]
-    readings: dict[str, SensorReading]
-    speed_rpm: float
-    time_s: float
-    force_confirmed: tuple[str, ...] = ()
-    events: list[SafetyEvent] = field(default_factory=list)
-
-
-@dataclass(frozen=True)
-class Correction:
-    """Mass to add (or remove) in one plane, as the engine computed it."""
-
-    plane: str
-    mass_g: float
-    angle_deg: float
 
 
 @dataclass(frozen=True)
@@ -217,24 +159,6 @@ class Solution:
 
 
 @dataclass(frozen=True)
-class Verdict:
-    """Residual unbalance against the permissible one per tolerance plane (ISO 21940-11):
-    the bearings when the profile gives them (``at_bearings``), else the correction planes."""
-
-    passed: bool
-    grade_mm_per_s: float
-    residual_gmm: dict[str, float]
-    permissible_gmm: dict[str, float]
-    note: str = ""
-    worse_pickups: tuple[str, ...] = ()  # 1x grew beyond both readings' 95 % circles
-    planes_passed: bool | None = None  # the per-plane verdict before the checks below
-    partial_planes: bool = False  # fewer planes corrected than the machine has
-    at_bearings: bool = False  # judged at the bearings (else in the correction planes)
-    speed_rpm: float | None = None  # the service speed the grade was judged at
-    flags: tuple[str, ...] = ()  # the engine's verdict flags (codes), put in words by the app
-
-
-@dataclass(frozen=True)
 class TrialSuggestion:
     """A trial mass for one plane and its centrifugal force at the planned speed."""
 
@@ -247,36 +171,79 @@ class TrialSuggestion:
 
 
 class Engine(Protocol):
-    """What the procedure asks the balancing layer (see ``trueturn.ui.engine``)."""
+    """What the procedure asks the balancing layer (:mod:`trueturn.procedure.engine`)."""
 
-    def trial_mass(self, setup: ProcedureSetup, plane: PlaneSetup) -> TrialSuggestion: ...
+    def trial_mass(self, setup: ProcedureSetup, plane: Plane) -> TrialSuggestion: ...
 
     def force_n(self, mass_g: float, radius_mm: float, speed_rpm: float) -> float: ...
 
-    def solve(self, setup: ProcedureSetup, runs: list[RunRecord], removal: bool) -> Solution: ...
+    def solve(self, setup: ProcedureSetup, runs: list[Run], removal: bool) -> Solution: ...
 
-    def assess(self, setup: ProcedureSetup, runs: list[RunRecord],
+    def assess(self, setup: ProcedureSetup, runs: list[Run],
                removal: bool) -> tuple[Verdict, Solution]:
         """Verdict on the last run, and the trim that would still be needed."""
         ...
 
 
-StepKind = Literal["hands-on", "run", "correction", "verdict"]
+class HandsOnPhase(str, Enum):
+    """A hands-on step opens with the lock-out gate and closes with the done gate."""
+
+    LOCKOUT = "lockout"
+    WORKING = "working"
 
 
-@dataclass
-class Step:
-    """One screenful of the procedure."""
+class RunPhase(str, Enum):
+    """A run: waiting for the force confirmation, measuring, cut off by a lost link (starts
+    over on reconnect), or stopped by an alarm (held until acknowledged)."""
 
-    kind: StepKind
+    ARMING = "arming"
+    RUNNING = "running"
+    INTERRUPTED = "interrupted"
+    STOPPED = "stopped"
+
+
+@dataclass(frozen=True)
+class HandsOn:
+    """The person works on the rotor: ``changes`` to make, between two gates."""
+
+    kind: ClassVar[str] = "hands-on"
     title: str
     changes: tuple[MassChange, ...] = ()
-    run_label: str = ""
-    phase: str = "start"  # hands-on: lockout|working; run: arming|running|interrupted|
-    # stopped (an alarm stopped it; held until acknowledged); others: start
+    phase: HandsOnPhase = HandsOnPhase.LOCKOUT
 
 
-def planes_for(setup: ProcedureSetup) -> tuple[PlaneSetup, ...]:
+@dataclass(frozen=True)
+class Measure:
+    """A run: the machine spins while the pickups are averaged."""
+
+    kind: ClassVar[str] = "run"
+    title: str
+    run_label: str
+    run_kind: RunKind
+    phase: RunPhase = RunPhase.ARMING
+
+
+@dataclass(frozen=True)
+class ShowCorrection:
+    """The correction (or the reason there is none) is shown."""
+
+    kind: ClassVar[str] = "correction"
+    title: str
+
+
+@dataclass(frozen=True)
+class ShowVerdict:
+    """The verdict is shown; the job closes."""
+
+    kind: ClassVar[str] = "verdict"
+    title: str
+
+
+#: one screenful of the procedure: a tagged union of frozen steps
+Step = HandsOn | Measure | ShowCorrection | ShowVerdict
+
+
+def planes_for(setup: ProcedureSetup) -> tuple[Plane, ...]:
     """The correction planes a procedure works in."""
     if setup.mode is Mode.SAVED_TRIM:
         return tuple(p for p in setup.planes if p.name in setup.saved_planes)
@@ -344,7 +311,7 @@ class Procedure:
         self.setup = setup
         self.engine = engine
         self.watch = watch or StandstillWatch(setup.standstill_s)
-        self.runs: list[RunRecord] = []
+        self.runs: list[Run] = []
         self.on_rotor: list[PlacedMass] = []
         self.removal = False
         self.solution: Solution | None = None
@@ -363,16 +330,16 @@ class Procedure:
         self.alarm: SafetyEvent | None = None  # held until acknowledged
         self.last_speed_rpm = 0.0  # the highest speed measured during the last run
         self.evidence_log: list[StandstillEvidence] = []  # parallel to confirmations
-        self.step = Step("hands-on", "Set up: mount the pickups and the tach",
-                         (MassChange("mount-pickups"),), phase="lockout")
+        self.step: Step = HandsOn("Set up: mount the pickups and the tach",
+                                  (MassChange("mount-pickups"),))
         self.finished = False
 
     # ---- what to show -------------------------------------------------------------------
     @property
-    def planes_used(self) -> tuple[PlaneSetup, ...]:
+    def planes_used(self) -> tuple[Plane, ...]:
         return planes_for(self.setup)
 
-    def plane(self, name: str) -> PlaneSetup:
+    def plane(self, name: str) -> Plane:
         for p in self.setup.planes:
             if p.name == name:
                 return p
@@ -409,7 +376,7 @@ class Procedure:
         return (self.setup.mode is Mode.ONE_PLANE
                 and max(self.setup.profile_planes, len(self.setup.planes)) > 1)
 
-    def as_found(self) -> RunRecord | None:
+    def as_found(self) -> Run | None:
         return self.runs[0] if self.runs else None
 
     # ---- hands-on gates -----------------------------------------------------------------
@@ -463,7 +430,7 @@ class Procedure:
         self._require_ticks(LOCKOUT_CHECKLIST)
         self._confirm(now_s, f"lock-out before: {self.step.title}", ev)
         self.ticked = set()
-        self.step.phase = "working"
+        self.step = replace(self.step, phase=HandsOnPhase.WORKING)
 
     def hands_on_done(self, now_s: float) -> tuple[MassChange, ...]:
         """The person says the work is done and the machine is safe to run; apply the changes.
@@ -497,13 +464,13 @@ class Procedure:
         self._force_text = text
         self._confirm(now_s, f"force confirmed before: {self.step.run_label}",
                       self.watch.evidence())
-        self.step.phase = "running"
+        self.step = replace(self.step, phase=RunPhase.RUNNING)
         self._pending_run_events = []
         self._alarmed = set()
         self.alarm = None
         self.last_speed_rpm = 0.0
 
-    def observe(self, readings: dict[str, SensorReading], speed_rpm: float,
+    def observe(self, readings: dict[str, Reading], speed_rpm: float,
                 now_s: float) -> list[SafetyEvent]:
         """Check a live reading during a run; return new stop warnings (also recorded)."""
         if self.step.kind != "run" or self.step.phase != "running":
@@ -531,11 +498,11 @@ class Procedure:
             # The run stops here: nothing of it is kept; the alarm is held until the person
             # acknowledges it, then a gated hands-on step waits for standstill.
             self.alarm = new[0]
-            self.step.phase = "stopped"
+            self.step = replace(self.step, phase=RunPhase.STOPPED)
             self.log.append(f"run stopped: {self.step.run_label} ({new[0].kind})")
         return new
 
-    def settled(self, r: SensorReading) -> bool:
+    def settled(self, r: Reading) -> bool:
         """One pickup's reading is good enough to keep.
 
         Steady (revolutions, speed, drift) and either the phase known within the limit, or
@@ -544,7 +511,7 @@ class Procedure:
         """
         if not r.steady or r.revolutions < self.setup.revolutions_per_run:
             return False
-        if any(f.startswith("no tach") for f in r.tach_faults):
+        if r.no_tach:
             return False
         if self.setup.mode is Mode.AMPLITUDE_ONLY:
             base = self.as_found()
@@ -562,7 +529,7 @@ class Procedure:
         return (ref is not None and r.confidence_radius is not None
                 and r.confidence_radius <= SMALL_VECTOR_FRACTION * ref.amplitude)
 
-    def ready(self, readings: dict[str, SensorReading], tach_live: bool = True) -> bool:
+    def ready(self, readings: dict[str, Reading], tach_live: bool = True) -> bool:
         """True when every pickup has a settled reading over enough revolutions.
 
         Never while the tach is silent (``tach_live`` False: no edge lately while data
@@ -574,15 +541,15 @@ class Procedure:
         return all(name in readings and self.settled(readings[name])
                    for name in self.setup.sensors)
 
-    def progress(self, readings: dict[str, SensorReading]) -> float:
+    def progress(self, readings: dict[str, Reading]) -> float:
         """Fraction 0..1 of the revolutions averaged for the current run."""
         if not readings:
             return 0.0
         revs = min((readings[s].revolutions if s in readings else 0) for s in self.setup.sensors)
         return max(0.0, min(1.0, revs / self.setup.revolutions_per_run))
 
-    def record(self, readings: dict[str, SensorReading], speed_rpm: float,
-               now_s: float, tach_live: bool = True) -> RunRecord:
+    def record(self, readings: dict[str, Reading], speed_rpm: float,
+               now_s: float, tach_live: bool = True) -> Run:
         """Keep the run's readings (only when :meth:`ready`) and move on."""
         if self.step.kind == "run" and self.step.phase == "interrupted":
             raise GateRefused("the run was interrupted: reconnect first; it starts over")
@@ -591,9 +558,11 @@ class Procedure:
         if not self.ready(readings, tach_live):
             raise GateRefused("the reading is not steady yet (or the tach is silent): "
                               "keep the machine running")
-        run = RunRecord(self.step.run_label, tuple(self.on_rotor),
-                        {s: readings[s] for s in self.setup.sensors}, speed_rpm, now_s,
-                        self._force_text, list(self._pending_run_events))
+        step = self.step
+        assert isinstance(step, Measure)
+        run = Run(step.run_label, tuple(self.on_rotor),
+                  {s: readings[s] for s in self.setup.sensors}, speed_rpm, step.run_kind,
+                  now_s, self._force_text, tuple(self._pending_run_events))
         if self._redo_index is not None:
             # a run of the coefficient set measured again: it replaces the first one
             self.runs[self._redo_index] = run
@@ -622,14 +591,14 @@ class Procedure:
         self.events.append(event)
         self.log.append(f"run incomplete: {self.step.run_label} ({detail})")
         if kind == "link-lost":
-            self.step.phase = "interrupted"
+            self.step = replace(self.step, phase=RunPhase.INTERRUPTED)
         return True
 
     def resume_run(self) -> None:
         """The link is back: the interrupted run starts over (same masses, same confirmation)."""
         if self.step.kind != "run" or self.step.phase != "interrupted":
             raise GateRefused("no interrupted run to resume")
-        self.step.phase = "running"
+        self.step = replace(self.step, phase=RunPhase.RUNNING)
         self._alarmed = set()
 
     def abort_run(self, now_s: float, reason: str = "stopped by the person") -> SafetyEvent:
@@ -657,7 +626,7 @@ class Procedure:
     def _inspect_step(self, title: str) -> None:
         self.ticked = set()
         self._pending_run_events = []
-        self.step = Step("hands-on", title, (), phase="lockout")
+        self.step = HandsOn(title)
 
     # ---- correction step ----------------------------------------------------------------
     def set_removal(self, removal: bool) -> None:
@@ -677,7 +646,7 @@ class Procedure:
             raise GateRefused("there is no run to repeat")
         last = self.runs.pop()
         self.problem = ""
-        self.step = Step("run", f"Repeat: {last.label}", run_label=last.label, phase="arming")
+        self.step = Measure(f"Repeat: {last.label}", last.label, last.kind or RunKind.CHECK)
 
     def _redo(self, index: int, masses: tuple[PlacedMass, ...], title: str) -> None:
         """Measure run ``index`` of the coefficient set again with ``masses`` on the rotor:
@@ -689,10 +658,11 @@ class Procedure:
         self.problem = ""
         self.too_small_trial = None
         label = self.runs[index].label
+        kind = self.runs[index].kind or RunKind.CHECK
         if changes:
-            self.step = Step("hands-on", title, tuple(changes), phase="lockout")
+            self.step = HandsOn(title, tuple(changes))
         else:
-            self.step = Step("run", f"Run again: {label}", run_label=label, phase="arming")
+            self.step = Measure(f"Run again: {label}", label, kind)
 
     def redo_trial_larger(self) -> PlacedMass:
         """Redo the trial that carried no information with the suggested larger mass (same
@@ -738,8 +708,7 @@ class Procedure:
         changes = [MassChange("detach", m) for m in self.on_rotor if m.kind == "trial"]
         changes += [MassChange("attach", p) for p in self.solution.parts]
         word = "Trim" if self.trims_done else "Correction"
-        self.step = Step("hands-on", f"{word}: place the parts", tuple(changes),
-                         phase="lockout")
+        self.step = HandsOn(f"{word}: place the parts", tuple(changes))
 
     def finish(self) -> None:
         """Close the procedure after the verdict."""
@@ -748,7 +717,7 @@ class Procedure:
         self.finished = True
 
     # ---- sequencing ---------------------------------------------------------------------
-    def _runs_needed(self) -> list[tuple[str, PlaneSetup, float]]:
+    def _runs_needed(self) -> list[tuple[str, Plane, float]]:
         """Trial runs: (label, plane, angle offset from the suggestion)."""
         mode = self.setup.mode
         if mode is Mode.SAVED_TRIM:
@@ -758,7 +727,7 @@ class Procedure:
             return [(f"trial {p.name} at {a:.0f} deg", p, a) for a in (0.0, 120.0, 240.0)]
         return [(f"trial {p.name}", p, 0.0) for p in self.planes_used]
 
-    def _trial_mass(self, plane: PlaneSetup, offset_deg: float) -> PlacedMass:
+    def _trial_mass(self, plane: Plane, offset_deg: float) -> PlacedMass:
         s = self.engine.trial_mass(self.setup, plane)
         angle = wrap_deg(s.angle_deg + offset_deg)
         position = s.position
@@ -766,25 +735,26 @@ class Procedure:
             position = min(range(len(plane.position_angles_deg)), key=lambda k: abs(
                 angle_difference_deg(plane.position_angles_deg[k], angle)))
             angle = plane.position_angles_deg[position]
-        return PlacedMass(plane.name, s.mass_g, angle, position, kind="trial")
+        return PlacedMass(plane.name, s.mass_g, angle, position, kind=MassKind.TRIAL)
 
     def _advance_after_hands_on(self) -> None:
         if self._redo_index is not None:
-            label = self.runs[self._redo_index].label
-            self.step = Step("run", f"Run again: {label}", run_label=label, phase="arming")
+            redo = self.runs[self._redo_index]
+            self.step = Measure(f"Run again: {redo.label}", redo.label,
+                                redo.kind or RunKind.CHECK)
             return
         n_runs = len(self.runs)
         trials = self._runs_needed()
         if n_runs == 0:
-            self.step = Step("run", "As-found run", run_label="as found", phase="arming")
+            self.step = Measure("As-found run", "as found", RunKind.AS_FOUND)
         elif n_runs <= len(trials):
             label = trials[n_runs - 1][0]
-            self.step = Step("run", f"Trial run: {label}", run_label=label, phase="arming")
+            self.step = Measure(f"Trial run: {label}", label, RunKind.TRIAL)
         else:
             label = "check" if not self.trims_done else f"check after trim {self.trims_done}"
-            self.step = Step("run", f"Check run: {label}", run_label=label, phase="arming")
+            self.step = Measure(f"Check run: {label}", label, RunKind.CHECK)
 
-    def _advance_after_run(self, run: RunRecord) -> None:
+    def _advance_after_run(self, run: Run) -> None:
         trials = self._runs_needed()
         n_runs = len(self.runs)
         if n_runs <= len(trials):
@@ -792,8 +762,7 @@ class Procedure:
             changes = [MassChange("detach", m) for m in self.on_rotor if m.kind == "trial"]
             label, plane, offset = trials[n_runs - 1]
             changes.append(MassChange("attach", self._trial_mass(plane, offset)))
-            self.step = Step("hands-on", f"Attach the trial mass for: {label}", tuple(changes),
-                             phase="lockout")
+            self.step = HandsOn(f"Attach the trial mass for: {label}", tuple(changes))
             return
         if n_runs == len(trials) + 1:
             self._to_correction()
@@ -803,19 +772,19 @@ class Procedure:
             verdict, trim = self.engine.assess(self.setup, self.runs, self.removal)
             self.verdict = self._whole_machine(verdict, run)
         except GateRefused as exc:
-            self.step = Step("correction", "Check run not usable")
+            self.step = ShowCorrection("Check run not usable")
             self.problem = str(exc)
             return
         if self.verdict.passed or self.trims_done >= self.setup.max_trims:
-            self.step = Step("verdict", "Verdict")
+            self.step = ShowVerdict("Verdict")
         else:
             self.trims_done += 1
             self.solution = trim
-            self.step = Step("correction", f"Trim {self.trims_done}")
+            self.step = ShowCorrection(f"Trim {self.trims_done}")
 
     def _to_correction(self) -> None:
         """The coefficient runs are complete: solve, or say why no correction can be given."""
-        self.step = Step("correction", "Correction")
+        self.step = ShowCorrection("Correction")
         self.problem = ""
         self.too_small_trial = None
         try:
@@ -824,7 +793,7 @@ class Procedure:
             self.problem = str(exc)
             self.too_small_trial = exc.too_small_trial
 
-    def _whole_machine(self, verdict: Verdict, run: RunRecord) -> Verdict:
+    def _whole_machine(self, verdict: Verdict, run: Run) -> Verdict:
         """The verdict looks at every pickup and the whole rotor, not only the planes solved.
 
         A pickup whose 1x grew from the as-found run by more than both readings' 95 %
@@ -842,10 +811,12 @@ class Procedure:
                 margin = (r.confidence_radius or 0.0) + (ref.confidence_radius or 0.0)
                 if r.amplitude - ref.amplitude > margin:
                     worse.append(name)
-        partial = self.partial_planes
-        passed = verdict.passed and not worse and not partial
-        return replace(verdict, passed=passed, worse_pickups=tuple(worse),
-                       planes_passed=verdict.passed, partial_planes=partial)
+        flags = []
+        if worse:
+            flags.append(VerdictFlag.WORSE_THAN_AS_FOUND)
+        if self.partial_planes:
+            flags.append(VerdictFlag.PARTIAL_PLANES)
+        return replace(verdict.with_flags(*flags), worse_pickups=tuple(worse))
 
     def _solve(self) -> Solution:
         if self.trims_done == 0:

@@ -1,0 +1,140 @@
+"""The procedure's questions answered by the balancing engine (``trueturn.balance``).
+
+No arithmetic of balancing here and no conversion of nouns: the procedure's runs, readings
+and masses are the model's (:mod:`trueturn.model`), which the engine takes as they are.
+Methods used: influence coefficients by least squares over all runs, the amplitude-only
+(four-run) method, trial-mass sizing by the 10 %-of-rotor-weight rule, splitting onto
+positions, ISO 21940-11 permissible unbalance judged at the bearings when they are known.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Sequence
+from dataclasses import replace
+
+from trueturn.balance.readings import BalanceInput, SavedCoefficient, Sensor, Tolerance
+from trueturn.balance.sanity import NoInformationError
+from trueturn.balance.solve import SolveReport, solve
+from trueturn.balance.splitting import split
+from trueturn.balance.trial_mass import (
+    STANDARD_GRAVITY_M_S2,
+    centrifugal_force_n,
+    size_trial_mass,
+)
+from trueturn.errors import UserError
+from trueturn.model import Correction, MassKind, PlacedMass, Plane, Run, Verdict
+from trueturn.procedure.guide import (
+    GateRefused,
+    Mode,
+    OffSpeed,
+    ProcedureSetup,
+    Solution,
+    TooSmallTrial,
+    TrialSuggestion,
+    planes_for,
+)
+
+MIN_PART_FRACTION = 0.02  # a split share under 2 % of the correction is left out
+
+
+class BalanceEngine:
+    """The :class:`trueturn.procedure.guide.Engine` backed by ``trueturn.balance``."""
+
+    # ---- sizes and forces ---------------------------------------------------------------
+    def trial_mass(self, setup: ProcedureSetup, plane: Plane) -> TrialSuggestion:
+        t = size_trial_mass(setup.rotor_mass_kg, plane.radius_mm, setup.speed_rpm)
+        mass_g = max(0.1, round(t.mass_g, 1))  # what a kitchen scale can weigh
+        position = 0 if plane.position_angles_deg else None
+        angle = plane.position_angles_deg[0] if plane.position_angles_deg else 0.0
+        force = self.force_n(mass_g, plane.radius_mm, setup.speed_rpm)
+        weight_n = setup.rotor_mass_kg * STANDARD_GRAVITY_M_S2
+        return TrialSuggestion(plane.name, mass_g, angle, position, force, force / weight_n)
+
+    def force_n(self, mass_g: float, radius_mm: float, speed_rpm: float) -> float:
+        """Centrifugal force F = m r omega^2 (newtons)."""
+        return centrifugal_force_n(mass_g, radius_mm, speed_rpm)
+
+    # ---- solving ------------------------------------------------------------------------
+    def _input(self, setup: ProcedureSetup, runs: Sequence[Run],
+               with_tolerance: bool) -> BalanceInput:
+        planes = planes_for(setup)
+        if setup.mode is Mode.AMPLITUDE_ONLY:
+            # the four-run method uses amplitudes only, whatever the meter measured
+            runs = [replace(run, readings={name: replace(r, phase_deg=None)
+                                           for name, r in run.readings.items()})
+                    for run in runs]
+        # judged at the bearings when the profile places them and every plane used
+        at_bearings = (len(setup.bearings) == 2
+                       and all(p.axial_mm is not None for p in planes))
+        if not at_bearings:
+            planes = tuple(replace(p, axial_mm=None) for p in planes)
+        tolerance = None
+        if with_tolerance:
+            # the grade at the machine's maximum service speed (profile), never the run's
+            tolerance = Tolerance(setup.rotor_mass_kg, setup.grade_mm_per_s, setup.speed_rpm,
+                                  cg_axial_mm=setup.cg_axial_mm)
+        saved = tuple(c for c in setup.saved_coefficients if isinstance(c, SavedCoefficient))
+        return BalanceInput(planes, tuple(Sensor(s) for s in setup.sensors), tuple(runs),
+                            influence=saved, tolerance=tolerance,
+                            bearings=setup.bearings if at_bearings else ())
+
+    def _report(self, inp: BalanceInput) -> SolveReport:
+        """Solve, turning the engine's refusals into gate refusals (with the facts kept)."""
+        try:
+            return solve(inp)
+        except NoInformationError as exc:
+            raise GateRefused(str(exc), TooSmallTrial(exc.plane, exc.trial_g,
+                                                      exc.suggested_g)) from None
+        except UserError as exc:
+            raise GateRefused(str(exc)) from None
+
+    def _parts(self, setup: ProcedureSetup, corrections: Sequence[Correction], kind: MassKind,
+               removal: bool) -> tuple[PlacedMass, ...]:
+        """The parts a person places: each correction split onto the plane's positions;
+        removal takes the same mass out opposite (:meth:`PlacedMass.as_addition` undoes it)."""
+        parts: list[PlacedMass] = []
+        for c in corrections:
+            if c.mass_g <= 0:
+                continue
+            plane = next(p for p in setup.planes if p.name == c.plane)
+            whole = PlacedMass(c.plane, c.mass_g, c.angle_deg, None, kind)
+            if removal:
+                whole = replace(whole.as_addition(), removal=True)  # same effect, opposite
+            if not plane.position_angles_deg:
+                parts.append(replace(whole, mass_g=round(whole.mass_g, 2)))
+                continue
+            try:
+                pieces = split(whole.mass_g, whole.angle_deg, plane.position_angles_deg)
+            except UserError as exc:
+                raise GateRefused(f"plane {plane.name}: {exc}") from None
+            for piece in pieces:
+                if piece.mass_g >= max(0.005, MIN_PART_FRACTION * c.mass_g):
+                    parts.append(replace(whole, mass_g=round(piece.mass_g, 2),
+                                         angle_deg=piece.angle_deg, position=piece.index))
+        return tuple(parts)
+
+    def _solution(self, setup: ProcedureSetup, report: SolveReport,
+                  corrections: Sequence[Correction], kind: MassKind, removal: bool) -> Solution:
+        sol = report.solution
+        off: tuple[OffSpeed, ...] = ()
+        if report.speed is not None:
+            off = tuple(OffSpeed(o.index, o.label, o.deviation, report.speed.worst_cut_fraction)
+                        for o in report.speed.off_speed)
+        return Solution(tuple(corrections), self._parts(setup, corrections, kind, removal),
+                        sol.method, tuple(sol.warnings), sol.influence, off)
+
+    def solve(self, setup: ProcedureSetup, runs: Sequence[Run], removal: bool) -> Solution:
+        report = self._report(self._input(setup, runs, with_tolerance=False))
+        return self._solution(setup, report, report.solution.corrections, MassKind.CORRECTION,
+                              removal)
+
+    def assess(self, setup: ProcedureSetup, runs: Sequence[Run],
+               removal: bool) -> tuple[Verdict, Solution]:
+        """Refit over every run so far; verdict on the last run; trim still needed."""
+        report = self._report(self._input(setup, runs, with_tolerance=True))
+        sol = report.solution
+        assert report.verdict is not None
+        verdict = replace(report.verdict, grade_mm_s=setup.grade_mm_per_s)
+        trim = self._solution(setup, report, sol.corrections_keeping_current, MassKind.TRIM,
+                              removal)
+        return verdict, trim

@@ -263,7 +263,7 @@ def test_mismatched_firmware_is_refused_naming_both(tmp_path: Path, monkeypatch)
     app = make_app("bench-grinder", tmp_path)
     host = app.session.catalogue
 
-    def fake_open(timeout_s: float = 3.0) -> BoardIdentity:
+    def fake_open(timeout_s: float = 3.0, on_phase: object = None) -> BoardIdentity:
         app.session.identity = BoardIdentity(2, 0x12345678, "0.0.9", "simulated board",
                                               2_000_000, 2, host.protocol_version,
                                               host.definition_hash)

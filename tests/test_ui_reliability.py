@@ -171,7 +171,7 @@ def test_reconnect_to_a_mismatched_firmware_is_refused_naming_both(tmp_path: Pat
             app.session.rig.unplug()
             await wait_for(pilot, lambda: "LINK LOST" in screen_text(app), 10)
 
-            def other_firmware(timeout_s: float = 3.0) -> BoardIdentity:
+            def other_firmware(timeout_s: float = 3.0, on_phase: object = None) -> BoardIdentity:
                 app.session.identity = BoardIdentity(1, 0x0BADF00D, "0.0.9", "simulated board",
                                                       2_000_000, 2, host.protocol_version,
                                                       host.definition_hash)

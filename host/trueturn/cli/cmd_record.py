@@ -20,12 +20,11 @@ from trueturn import __version__
 from trueturn.cli.common import print_json
 from trueturn.errors import UserError
 from trueturn.link.capture import CaptureWriter
-from trueturn.link.codec import LinkEvent, Message
+from trueturn.link.codec import LinkEvent, Message, decode_frame
 from trueturn.link.ports import open_port
-from trueturn.link.session import BoardError, BoardSession, LinkLost, mismatch_message
+from trueturn.link.session import BoardSession, LinkLost
 from trueturn.sim.scenario import load_scenario
 
-BOOT_WAIT_S = 2.5  # a Nano's bootloader takes up to ~2 s after the port opens
 STALL_TIMEOUT_S = 3.0  # no samples for this long: the stream is gone
 PROGRESS_EVERY_S = 0.25
 
@@ -57,18 +56,25 @@ def _progress(text: str, quiet: bool) -> None:
         sys.stderr.flush()
 
 
-def _boot_identity(session: BoardSession) -> dict[str, Any] | None:
-    """The identity a board sends at reset (opening a Nano's port resets it), if it comes
-    within BOOT_WAIT_S; asking again on top of it would look like a second reset."""
-    deadline = time.monotonic() + BOOT_WAIT_S
-    while time.monotonic() < deadline:
-        session.read()
-        if session.identity is not None:
-            problem = mismatch_message(session.identity, session.catalogue)
-            if problem:
-                raise BoardError(problem)
-            return session.identity
-    return None
+def from_identity(early: bytes) -> bytes:
+    """The bytes heard while greeting the board, from its identity frame on.
+
+    A capture starts with the identity, so that replaying it (``analyze``, ``dump``) never
+    takes an identity after other frames for a board restart: frames before it are the
+    status of a board that did not reset on open (or leftovers from before the reset)."""
+    start = 0
+    for end in range(len(early)):
+        if early[end] != 0:
+            continue
+        body = early[start:end]
+        if body:
+            try:
+                if decode_frame(body).name == "identity":
+                    return early[start:]
+            except ValueError:
+                pass
+        start = end + 1
+    return early
 
 
 def _virtual_rig_metadata(port: serial.SerialBase) -> dict[str, Any]:
@@ -130,7 +136,7 @@ def _record(port: serial.SerialBase, args: argparse.Namespace, out_path: Path) -
             writer.write(data)
 
     session = BoardSession(port, on_bytes=sink)
-    identity = _boot_identity(session) or session.identify()
+    identity = session.greet()
     metadata: dict[str, Any] = {
         "port": args.port, "started_utc": dt.datetime.now(dt.timezone.utc).isoformat(),
         "trueturn_version": __version__, "identity": identity,
@@ -142,8 +148,7 @@ def _record(port: serial.SerialBase, args: argparse.Namespace, out_path: Path) -
         writer = CaptureWriter(out_path, metadata)
     except OSError as exc:
         raise UserError(f"cannot write {out_path}: {exc.strerror or exc}") from None
-    for chunk in early:
-        writer.write(chunk)
+    writer.write(from_identity(b"".join(early)))
     edge = 1 if args.tach_edge == "rising" else 0
     samples = 0
     tach_edges = 0

@@ -72,6 +72,8 @@ def main(argv: Sequence[str] | None = None) -> int:
     except UserError as exc:
         print(f"trueturn {args.command}: {one_line(exc)}", file=sys.stderr)
         return 2
+    except BrokenPipeError:  # the output was cut short (| head): nothing to say
+        return 0
     except OSError as exc:  # a file or port the person named cannot be used
         name = f" {exc.filename}" if exc.filename else ""
         print(f"trueturn {args.command}: cannot use{name}: {one_line(exc.strerror or exc)}",
@@ -80,8 +82,6 @@ def main(argv: Sequence[str] | None = None) -> int:
     except KeyboardInterrupt:
         print(f"trueturn {args.command}: interrupted", file=sys.stderr)
         return 130
-    except BrokenPipeError:
-        return 0
 
 
 if __name__ == "__main__":

@@ -2,22 +2,18 @@
 
 from __future__ import annotations
 
+import os
 from dataclasses import dataclass
 
 import serial
 from serial.tools import list_ports
 
+from trueturn.link.boards import CHIPS, LINK_BAUD, chip_for
+from trueturn.link.problems import PortError, check_port_name, classify_error
+
 # USB VID:PID of the USB-serial chips found on Uno/Nano-class boards and their clones.
 KNOWN_BRIDGES: dict[tuple[int, int], str] = {
-    (0x2341, 0x0043): "Arduino Uno R3 (ATmega16U2)",
-    (0x2341, 0x0001): "Arduino Uno (ATmega8U2)",
-    (0x2A03, 0x0043): "Uno-class board (ATmega16U2)",
-    (0x1A86, 0x7523): "CH340 USB-serial (common Nano clone)",
-    (0x1A86, 0x5523): "CH341 USB-serial",
-    (0x0403, 0x6001): "FTDI FT232R USB-serial (classic Nano)",
-    (0x0403, 0x6015): "FTDI FT231X USB-serial",
-    (0x10C4, 0xEA60): "Silicon Labs CP210x USB-serial",
-}
+    vid_pid: f"{chip.name}, {chip.boards}" for chip in CHIPS for vid_pid in chip.vid_pids}
 
 URL_HANDLER_PACKAGE = "trueturn.link.handlers"
 
@@ -30,6 +26,10 @@ class PortInfo:
     description: str
     vid_pid: str | None
     likely_board: str | None
+    chip: str | None = None  # trueturn.link.boards.UsbSerialChip.key
+    link_baud: int = LINK_BAUD
+    link_baud_actual: float | None = None  # what the chip makes when asked for link_baud
+    link_baud_error_pct: float | None = None
 
 
 def register_url_handlers() -> None:
@@ -38,21 +38,41 @@ def register_url_handlers() -> None:
         serial.protocol_handler_packages.append(URL_HANDLER_PACKAGE)
 
 
+def port_info(device: str, description: str, vid: int | None, pid: int | None) -> PortInfo:
+    """What is known about one port from its USB VID:PID."""
+    vid_pid = f"{vid:04X}:{pid:04X}" if vid is not None and pid is not None else None
+    chip = chip_for(vid, pid)
+    if chip is None:
+        return PortInfo(device, description, vid_pid, None)
+    baud = chip.baud(LINK_BAUD)
+    return PortInfo(device, description, vid_pid, f"{chip.name}, {chip.boards}", chip.key,
+                    LINK_BAUD, baud.actual_baud, round(baud.error_pct, 3))
+
+
 def list_board_ports() -> list[PortInfo]:
     """All serial ports, likely boards first."""
-    found = []
-    for port in list_ports.comports():
-        vid_pid = None
-        likely = None
-        if port.vid is not None and port.pid is not None:
-            vid_pid = f"{port.vid:04X}:{port.pid:04X}"
-            likely = KNOWN_BRIDGES.get((port.vid, port.pid))
-        found.append(PortInfo(port.device, port.description or "", vid_pid, likely))
+    found = [port_info(p.device, p.description or "", p.vid, p.pid)
+             for p in list_ports.comports()]
     found.sort(key=lambda p: (p.likely_board is None, p.device))
     return found
 
 
-def open_port(url: str, baudrate: int = 500_000, timeout_s: float = 0.1) -> serial.SerialBase:
-    """Open a real port (``/dev/ttyUSB0``, ``COM3``) or a URL (``sim://bench-grinder``)."""
+def open_port(url: str, baudrate: int = LINK_BAUD, timeout_s: float = 0.1) -> serial.SerialBase:
+    """Open a real port (``/dev/ttyUSB0``, ``COM3``) or a URL (``sim://bench-grinder``).
+
+    A port that cannot be opened raises :class:`~trueturn.link.problems.PortError` saying
+    why in plain words (permission, busy, no such port, macOS dial-in name, ...). On POSIX a
+    real port is opened exclusively, so a second program cannot read the same board.
+    """
     register_url_handlers()
-    return serial.serial_for_url(url, baudrate=baudrate, timeout=timeout_s)
+    named = check_port_name(url)
+    if named is not None:
+        raise PortError(named)
+    virtual = "://" in url
+    extra = {"exclusive": True} if os.name == "posix" and not virtual else {}
+    try:
+        return serial.serial_for_url(url, baudrate=baudrate, timeout=timeout_s, **extra)
+    except PortError:
+        raise
+    except (serial.SerialException, OSError, ValueError) as exc:
+        raise PortError(classify_error(url, exc)) from None

@@ -29,6 +29,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from trueturn.link.boards import BOOTLOADER_WAIT_S
 from trueturn.link.catalogue import load_catalogue
 from trueturn.link.cobs import CobsError, cobs_decode
 from trueturn.link.codec import FrameError, decode_payload, encode_frame
@@ -71,6 +72,12 @@ class BoardOptions:
     tick0: int = 0  # value of the clock at power-up (tests of the 32-bit wrap)
     unbalance: str = "as-found"  # or "none": start with no unbalance at all
     tach_fault: str = "none"  # see TACH_FAULTS
+    #: None: the board powers up as the port opens (identity at once, the default);
+    #: True: opening the port resets it into its bootloader (see BOOTLOADER_WAIT_S), then
+    #: the firmware starts; False: it does not reset (DTR not wired) and has been running
+    #: for a while: no identity at open, its status every second.
+    reset_on_open: bool | None = None
+    bootloader: str = "new"  # a key of trueturn.link.boards.BOOTLOADER_WAIT_S
 
 
 #: ``sim://NAME?tach=...``: what a worn set-up does to the once-per-rev signal. Each fault hits
@@ -100,6 +107,8 @@ def tach_holdoff_ticks(last_period_ticks: int) -> int:
     return min(TACH_HOLDOFF_MAX_TICKS,
                max(TACH_HOLDOFF_MIN_TICKS, (last_period_ticks & 0xFFFFFFFF) >> TACH_HOLDOFF_SHIFT))
 TACH_FAULT_SHARE = 0.1
+#: ``reset_on_open=0``: how long the board has been running when the port opens.
+RUNNING_UPTIME_S = 60.0
 
 
 @dataclass
@@ -163,6 +172,41 @@ class VirtualBoard:
         self._rx = bytearray()
         self._rx_discarding = False
         self._response_cache: tuple[float, tuple[Mass, ...], np.ndarray] | None = None
+        if self.options.bootloader not in BOOTLOADER_WAIT_S:
+            raise ValueError(f"bootloader must be one of {', '.join(BOOTLOADER_WAIT_S)}")
+        self._boot_at: int | None = None  # in the bootloader until this tick
+        self.bootloader_bytes = 0  # bytes the host sent into the bootloader's window
+        if self.options.reset_on_open:
+            self._boot_at = self.tick + self._bootloader_wait_ticks
+        elif self.options.reset_on_open is False:
+            # running for a while already: its power-up identity went out long ago
+            self._boot_tick = self.tick - int(RUNNING_UPTIME_S * TICK_HZ)
+            self._seq = int(self.rng.integers(1, 256))
+        else:
+            self._send("identity", self._identity_values())
+
+    @property
+    def _bootloader_wait_ticks(self) -> int:
+        return int(BOOTLOADER_WAIT_S[self.options.bootloader] * TICK_HZ)
+
+    @property
+    def in_bootloader(self) -> bool:
+        """True while the bootloader listens after the reset of opening the port."""
+        with self.lock:
+            return self._boot_at is not None
+
+    def _power_up(self) -> None:
+        """Our firmware starts (power-up, a reset, the bootloader's end): sequence numbers,
+        uptime, edge count, counters and stream settings from zero, identity with seq 0."""
+        self._seq = 0
+        self._stream = _Stream()
+        self._boot_tick = self.tick
+        self._edges_seen = 0
+        self._last_edge_tick = self.tick
+        self._holdoff_until = self.tick
+        self._counters = dict.fromkeys(self._counters, 0)
+        self._last_error = LAST_ERRORS["none"]
+        self._next_status_tick = self.tick + STATUS_PERIOD_TICKS
         self._send("identity", self._identity_values())
 
     # --- rig controls (the host's demo mode uses these through ``port.rig``) ----------------
@@ -267,8 +311,13 @@ class VirtualBoard:
         return len(self._out)
 
     def receive(self, data: bytes) -> None:
-        """Bytes from the host, handled at the board's present time."""
+        """Bytes from the host, handled at the board's present time (swallowed by the
+        bootloader in its window, which then waits again from now)."""
         with self.lock:
+            if self._boot_at is not None and data:
+                self.bootloader_bytes += len(data)
+                self._boot_at = max(self._boot_at, self.tick + self._bootloader_wait_ticks)
+                return
             for byte in data:
                 if byte == 0:
                     if not self._rx_discarding and self._rx:
@@ -286,7 +335,13 @@ class VirtualBoard:
         """Run the simulated board until its clock reaches ``tick``."""
         with self.lock:
             while self.tick < tick:
-                self._step(min(STEP_TICKS, tick - self.tick))
+                n = min(STEP_TICKS, tick - self.tick)
+                if self._boot_at is not None:
+                    n = max(1, min(n, self._boot_at - self.tick))
+                self._step(n)
+                if self._boot_at is not None and self.tick >= self._boot_at:
+                    self._boot_at = None
+                    self._power_up()
 
     def advance_s(self, seconds: float) -> None:
         """Run for ``seconds`` of simulated time."""
@@ -470,6 +525,8 @@ class VirtualBoard:
             events.append((self._next_status_tick, 2, "status", {}))
             self._next_status_tick += STATUS_PERIOD_TICKS
         events.sort(key=lambda e: (e[0], e[1]))
+        if self._boot_at is not None:
+            events = []  # the bootloader runs: our firmware sends nothing yet
         for tick, _, name, values in events:
             if name == "status":
                 self._send("status", self._status_values(tick))

@@ -27,6 +27,7 @@ from trueturn.angles import wrap_deg
 from trueturn.errors import UserError
 from trueturn.jobs.profiles import MachineProfile
 from trueturn.jobs.records import CoefficientSet
+from trueturn.link.session import GreetPhase
 from trueturn.model.result import WITHHOLDING_FLAGS
 from trueturn.positions import number_of, position_text
 from trueturn.procedure.engine import BalanceEngine
@@ -46,6 +47,13 @@ from trueturn.ui.rig import DemoRig
 from trueturn.ui.session import LinkProblem, LinkSession, Snapshot
 from trueturn.ui.texts import CAUTIONS, VERDICT_FLAG_WORDS, keys_markup, verdict_note
 from trueturn.ui.widgets import PolarPlot, PolarPoint
+
+#: What the screen says while the port opens (trueturn.link.session.BoardSession.greet).
+GREET_PHASE_TEXT = {
+    GreetPhase.WAITING_FOR_START: "waiting for the board to start… (opening the port resets "
+                                  "a Uno or Nano; its bootloader listens for up to 2 s)",
+    GreetPhase.ASKING: "asking the board who it is…",
+}
 
 TICK_S = 0.1
 TACH_SILENT_S = 2.0  # no tach edge for this long while data arrive: the tach is not seen
@@ -107,12 +115,17 @@ class ConnectScreen(Screen):
     def open_link(self) -> None:
         app = self.trueturn
         try:
-            identity = app.session.open()
+            identity = app.session.open(
+                on_phase=lambda phase: self.app.call_from_thread(self.show_phase, phase))
         except LinkProblem as exc:
             self.app.call_from_thread(self.show_problem, str(exc))
             return
         self.app.call_from_thread(self.show_identity)
         del identity
+
+    def show_phase(self, phase: GreetPhase) -> None:
+        self.query_one("#connect-body", Static).update(
+            f"Opening {self.trueturn.config.url} …\n\n{GREET_PHASE_TEXT[phase]}")
 
     def show_problem(self, text: str) -> None:
         self.query_one("#connect-body", Static).update(
@@ -320,7 +333,8 @@ class TrueturnApp(App):
     @work(thread=True, exclusive=True, group="link-open")
     def reopen_link(self, old_rig: object) -> None:
         try:
-            identity = self.session.reconnect()
+            identity = self.session.reconnect(on_phase=lambda phase: self.call_from_thread(
+                self.reconnect_phase, phase))
             if identity.matches:
                 self.session.start()
         except LinkProblem as exc:
@@ -330,6 +344,10 @@ class TrueturnApp(App):
             self.call_from_thread(self.reconnect_failed, "Refused: " + identity.mismatch_text())
             return
         self.call_from_thread(self.reconnected, old_rig)
+
+    def reconnect_phase(self, phase: GreetPhase) -> None:
+        self.message = f"Reconnecting to {self.config.url}: {GREET_PHASE_TEXT[phase]}"
+        self.tick()
 
     def reconnect_failed(self, text: str) -> None:
         self.reconnecting = False

@@ -10,7 +10,7 @@ board's clock for the tach standstill watch.
 from __future__ import annotations
 
 import threading
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -21,7 +21,7 @@ from trueturn.errors import UserError
 from trueturn.link.catalogue import load_catalogue
 from trueturn.link.codec import LinkEvent, Message, StreamDecoder
 from trueturn.link.ports import open_port
-from trueturn.link.session import BoardError, BoardSession, mismatch_message
+from trueturn.link.session import BoardError, BoardSession, GreetPhase, mismatch_message
 from trueturn.procedure.standstill import StandstillEvidence, StandstillWatch
 from trueturn.ui.meter import MeterAdapter, MeterView
 
@@ -109,20 +109,23 @@ class LinkSession:
         self.restarts = 0
 
     # ---- opening ------------------------------------------------------------------------
-    def open(self, timeout_s: float = 3.0) -> BoardIdentity:
-        """Open the port, ask for the identity and check it; raise :class:`LinkProblem`.
+    def open(self, timeout_s: float = 3.0,
+             on_phase: Callable[[GreetPhase], None] | None = None) -> BoardIdentity:
+        """Open the port, wait for the board to start (a Uno or Nano resets when its port
+        opens: :meth:`BoardSession.greet`), check its identity; raise :class:`LinkProblem`.
 
+        ``on_phase`` hears when the wait for the board starts, so a screen can say so.
         A mismatched firmware does not raise: the identity comes back with ``matches``
         False so the screen can show both sides before refusing.
         """
         try:
             self.port = open_port(self.url)
         except (serial.SerialException, ValueError, OSError, UserError) as exc:
-            raise LinkProblem(f"cannot open {self.url}: {exc}") from None
+            raise LinkProblem(str(exc)) from None
         self.board = BoardSession(self.port, self.catalogue)
         self.decoder = self.board.decoder
         try:
-            self.board.identify(timeout_s)
+            self.board.greet(answer_s=timeout_s, on_phase=on_phase)
         except BoardError as exc:
             if self.board.identity is None:
                 self.close()
@@ -175,7 +178,8 @@ class LinkSession:
         self._motion_next_index = None
         self._motion_judged_s = -1e9
 
-    def reconnect(self, timeout_s: float = 3.0) -> BoardIdentity:
+    def reconnect(self, timeout_s: float = 3.0,
+                  on_phase: Callable[[GreetPhase], None] | None = None) -> BoardIdentity:
         """Open the same port again after a lost link and check who answers (like
         :meth:`open`: a mismatched firmware comes back with ``matches`` False)."""
         self.close()
@@ -184,7 +188,7 @@ class LinkSession:
             self._forget_clock()
             self._events.clear()
             self._status = {}
-        return self.open(timeout_s)
+        return self.open(timeout_s, on_phase)
 
     def _restart_after_reset(self) -> None:
         """The board restarted (power dip, loose cable, watchdog) and is idle: configure and

@@ -18,6 +18,13 @@ Options (all optional):
                   (10 us) apart, as a comparator without hysteresis gives on a slow mark edge
                   (the same burst as ``sim://...?tach=chatter``); the firmware's hold-off
                   must drop them (status.tach_suppressed).
+``reset_on_open=1|0``  1: the board is held in reset while its bootloader listens after the
+                  port opens (``bootloader=new|old``: about 0.5 or 1.5 s of wall time,
+                  trueturn.link.boards.BOOTLOADER_WAIT_S); bytes written then are swallowed
+                  and make it wait again from that byte; then the firmware starts.
+                  0: the board does not reset on open and runs already: its power-up
+                  identity went out before the port opened (the first frame is dropped).
+                  Without the option the firmware starts as the port opens.
 
 After :meth:`Serial.close`, ``port.report`` holds the harness report: simulated and wall
 seconds, CPU cycles spent in each interrupt handler and the interrupt load.
@@ -39,10 +46,11 @@ from typing import Any
 from serial.serialutil import PortNotOpenError, SerialException, to_bytes
 
 from trueturn.errors import UserError
+from trueturn.link.boards import BOOTLOADER_WAIT_S
 from trueturn.link.handlers.virtual import VirtualLineSerial
 
 _USAGE = ('expected "emu://SCENARIO[?realtime=0|1&seconds=S&seed=N&rpm=R&noise=F&channels=1|2'
-          '&tach=none|chatter]"')
+          '&tach=none|chatter&reset_on_open=0|1&bootloader=new|old]"')
 #: ``tach=chatter``: extra edges after each real one and their spacing in CPU cycles
 #: (trueturn.sim.board.TACH_CHATTER_EDGES, TACH_CHATTER_GAP_TICKS x 8 cycles per tick)
 CHATTER_EDGES = 10
@@ -104,6 +112,13 @@ class Serial(VirtualLineSerial):
         self._eof = False
         self._reader: threading.Thread | None = None
         self._tmpdir: tempfile.TemporaryDirectory[str] | None = None
+        self._argv: list[str] = []
+        self._boot_at: float | None = None  # monotonic time the bootloader hands over
+        self._boot_wait_s = 0.0
+        self._booter: threading.Thread | None = None
+        self._closing = False
+        self._drop_first_frame = False
+        self.bootloader_bytes = 0  # bytes the host wrote into the bootloader's window
         super().__init__(*args, **kwargs)
 
     # --- pyserial plumbing ------------------------------------------------------------------
@@ -128,14 +143,46 @@ class Serial(VirtualLineSerial):
         if options["tach"] == "chatter":
             argv += ["--tach-chatter", f"{CHATTER_EDGES},{CHATTER_GAP_CYCLES}"]
         argv.append(str(elf))
+        self._argv = argv
         self._report_path = report
         self._log = open(Path(self._tmpdir.name) / "stderr.txt", "wb")  # noqa: SIM115
-        self._proc = subprocess.Popen(argv, stdin=subprocess.PIPE, stdout=subprocess.PIPE,
-                                      stderr=self._log, bufsize=0)
         self._eof = False
+        self._closing = False
+        self._drop_first_frame = options["reset_on_open"] is False
+        if options["reset_on_open"]:
+            self._boot_wait_s = BOOTLOADER_WAIT_S[options["bootloader"]]
+            self._boot_at = time.monotonic() + self._boot_wait_s
+            self._booter = threading.Thread(target=self._bootloader, name="emu-bootloader",
+                                            daemon=True)
+            self._booter.start()
+        else:
+            self._spawn()
+        self.is_open = True
+
+    def _spawn(self) -> None:
+        """Start the emulated board (the firmware runs from its reset vector)."""
+        self._proc = subprocess.Popen(self._argv, stdin=subprocess.PIPE, stdout=subprocess.PIPE,
+                                      stderr=self._log, bufsize=0)
         self._reader = threading.Thread(target=self._read_loop, name="emu-reader", daemon=True)
         self._reader.start()
-        self.is_open = True
+
+    def _bootloader(self) -> None:
+        """Hold the board in its bootloader until the wait (moved by bytes written) ends."""
+        with self._cond:
+            while not self._closing:
+                assert self._boot_at is not None
+                remaining = self._boot_at - time.monotonic()
+                if remaining <= 0:
+                    self._boot_at = None
+                    self._spawn()
+                    return
+                self._cond.wait(remaining)
+
+    @property
+    def in_bootloader(self) -> bool:
+        """True while the bootloader listens after the reset of opening the port."""
+        with self._cond:
+            return self._boot_at is not None
 
     def from_url(self, url: str) -> tuple[str, dict[str, Any]]:
         """Parse ``emu://NAME?options`` into the scenario name and options."""
@@ -146,7 +193,7 @@ class Serial(VirtualLineSerial):
         if not name:
             raise SerialException(f"{_USAGE}: scenario name missing")
         opts: dict[str, Any] = {"realtime": True, "seconds": 0.0, "channels": 2, "spec": {},
-                                "tach": "none"}
+                                "tach": "none", "reset_on_open": None, "bootloader": "new"}
         try:
             for key, values in urllib.parse.parse_qs(parts.query, strict_parsing=bool(parts.query)).items():
                 value = values[-1]
@@ -164,6 +211,10 @@ class Serial(VirtualLineSerial):
                     opts["spec"]["noise_scale"] = float(value)
                 elif key == "tach":
                     opts["tach"] = {"none": "none", "chatter": "chatter"}[value]
+                elif key == "reset_on_open":
+                    opts["reset_on_open"] = {"1": True, "0": False}[value]
+                elif key == "bootloader":
+                    opts["bootloader"] = {b: b for b in BOOTLOADER_WAIT_S}[value]
                 else:
                     raise SerialException(f"{_USAGE}: unknown option {key!r}")
         except (KeyError, ValueError):
@@ -183,11 +234,25 @@ class Serial(VirtualLineSerial):
                     self._eof = True
                     self._cond.notify_all()
                     return
+                if self._drop_first_frame:  # sent before the port opened: never seen
+                    end = chunk.find(b"\x00")
+                    if end < 0:
+                        continue
+                    chunk = chunk[end + 1:]
+                    self._drop_first_frame = False
                 self._buffer += chunk
                 self._cond.notify_all()
 
     def close(self) -> None:
+        with self._cond:
+            self._closing = True
+            self._cond.notify_all()
+        if self._booter is not None:
+            self._booter.join(timeout=5)
+            self._booter = None
         proc = self._proc
+        if proc is None and self._tmpdir is not None:
+            self._log.close()  # closed while still in the bootloader: the board never ran
         if proc is not None:
             try:
                 if proc.stdin is not None:
@@ -250,6 +315,12 @@ class Serial(VirtualLineSerial):
         if not self.is_open:
             raise PortNotOpenError()
         payload = to_bytes(data)
+        with self._cond:
+            if self._boot_at is not None:  # the bootloader swallows it and waits again
+                self.bootloader_bytes += len(payload)
+                self._boot_at = max(self._boot_at, time.monotonic() + self._boot_wait_s)
+                self._cond.notify_all()
+                return len(payload)
         assert self._proc is not None and self._proc.stdin is not None
         try:
             self._proc.stdin.write(payload)

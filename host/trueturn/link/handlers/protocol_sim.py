@@ -16,10 +16,20 @@
                    knocked (5-15 degrees early or late), or off (no tach signal at all);
                    chatter: a burst of 10 extra edges 10 us apart after every edge, which
                    the board's hold-off drops (counted in status.tach_suppressed).
+``reset_on_open=1|0``  1: opening the port resets the board, as on a Uno or Nano whose
+                   DTR line is wired to reset: its bootloader listens first (nothing sent;
+                   bytes written then are swallowed and make it wait again from that
+                   byte), then the firmware starts and sends its identity (seq 0).
+                   0: the board does not reset (DTR not wired) and has run for a minute:
+                   no identity at open, its status every second. Without the option the
+                   board powers up as the port opens (identity at once).
+``bootloader=new|old``  with reset_on_open=1: the newer bootloader (waits about 0.5 s) or
+                   the old Nano one (about 1.5 s); trueturn.link.boards.BOOTLOADER_WAIT_S.
 
 ``port.rig`` reaches the running virtual rig: ``add_mass``, ``remove_mass``, ``set_masses``,
 ``clear_masses``, ``motor_start``, ``motor_stop``, ``set_speed_rpm``, ``speed_rpm``,
-``standstill``, ``exact_response_1x()``, ``unplug()`` (later reads and writes raise
+``standstill``, ``in_bootloader``, ``bootloader_bytes`` (bytes the host sent into the
+bootloader's window), ``exact_response_1x()``, ``unplug()`` (later reads and writes raise
 ``serial.SerialException`` like a pulled USB cable) and ``reset()`` (the board restarts: a
 fresh identity with seq 0, stream stopped, uptime from zero).
 """
@@ -32,21 +42,20 @@ import urllib.parse
 from serial.serialutil import PortNotOpenError, SerialException, to_bytes
 
 from trueturn.errors import UserError
+from trueturn.link.boards import BOOTLOADER_WAIT_S
 from trueturn.link.handlers.virtual import VirtualLineSerial
 from trueturn.sim.board import (
-    LAST_ERRORS,
-    STATUS_PERIOD_TICKS,
     STEP_TICKS,
     TACH_FAULTS,
     TICK_HZ,
     BoardOptions,
     VirtualBoard,
-    _Stream,
 )
 from trueturn.sim.scenario import load_scenario
 
 _USAGE = ('expected "sim://NAME[?realtime=0|1&pace=F&seed=N&rpm=R&motor=on|off&noise=F'
-          '&unbalance=as-found|none&tick0=T&tach=none|missing|double|knocked|off|chatter]"')
+          '&unbalance=as-found|none&tick0=T&tach=none|missing|double|knocked|off|chatter'
+          '&reset_on_open=0|1&bootloader=new|old]"')
 
 
 class Rig(VirtualBoard):
@@ -69,14 +78,8 @@ class Rig(VirtualBoard):
             self._out.clear()
             self._rx.clear()
             self._rx_discarding = False
-            self._seq = 0
-            self._stream = _Stream()
-            self._boot_tick = self.tick
-            self._edges_seen = 0
-            self._counters = dict.fromkeys(self._counters, 0)
-            self._last_error = LAST_ERRORS["none"]
-            self._next_status_tick = self.tick + STATUS_PERIOD_TICKS
-            self._send("identity", self._identity_values())
+            self._boot_at = None
+            self._power_up()
 
 
 class Serial(VirtualLineSerial):
@@ -148,6 +151,12 @@ class Serial(VirtualLineSerial):
                     if value not in TACH_FAULTS:
                         raise ValueError(f"tach must be one of {', '.join(TACH_FAULTS)}")
                     opts.tach_fault = value
+                elif key == "reset_on_open":
+                    opts.reset_on_open = _flag(value)
+                elif key == "bootloader":
+                    if value not in BOOTLOADER_WAIT_S:
+                        raise ValueError(f"bootloader must be one of {', '.join(BOOTLOADER_WAIT_S)}")
+                    opts.bootloader = value
                 elif key == "tick0":
                     opts.tick0 = int(value) % (1 << 32)
                 else:
@@ -216,6 +225,16 @@ class Serial(VirtualLineSerial):
     @property
     def out_waiting(self) -> int:
         return 0
+
+    @property
+    def in_bootloader(self) -> bool:
+        """True while the board's bootloader listens (``reset_on_open=1``)."""
+        return self._check().in_bootloader
+
+    @property
+    def bootloader_bytes(self) -> int:
+        """Bytes the host wrote into the bootloader's window (lost, and it waited longer)."""
+        return self._check().bootloader_bytes
 
 
 

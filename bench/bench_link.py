@@ -25,7 +25,8 @@ BIT_ERROR_RATE = 1e-3
 IDENTITY = {"protocol_version": 2, "definition_hash": 0, "firmware_major": 1,
             "firmware_minor": 0, "firmware_patch": 0, "board_id": 1, "tick_hz": 2_000_000,
             "adc_bits": 10, "adc_reference_mv": 5000, "aperture_delay_ticks": 16,
-            "max_channels": 2, "channel0_pin": 0, "channel1_pin": 1, "tach_pin": 8}
+            "max_channels": 2, "channel0_pin": 0, "channel1_pin": 1, "tach_pin": 8,
+            "adc_reference_kind": 1, "reset_flags": 1}
 
 
 def _out_of_range(msg: Message) -> bool:

@@ -23,15 +23,16 @@ from trueturn.link.crc import crc16_ibm3740  # noqa: E402
 CAT = load_catalogue()
 
 VALID = [
-    ("identity", "identity", 0, dict(protocol_version=1, definition_hash=CAT.definition_hash,
-                         firmware_major=1, firmware_minor=0, firmware_patch=0, board_id=1,
-                         tick_hz=2_000_000, adc_bits=10, adc_reference_mv=5000,
-                         aperture_delay_ticks=16, max_channels=2, channel0_pin=0,
-                         channel1_pin=1, tach_pin=8)),
+    ("identity", "identity", 0, dict(protocol_version=CAT.protocol_version,
+                         definition_hash=CAT.definition_hash,
+                         firmware_major=1, firmware_minor=1, firmware_patch=0, board_id=1,
+                         tick_hz=2_000_000, adc_bits=10, adc_reference_mv=4873,
+                         adc_reference_kind=1, aperture_delay_ticks=16, max_channels=2,
+                         channel0_pin=0, channel1_pin=1, tach_pin=8, reset_flags=0x52)),
     ("reply", "reply", 7, dict(command_type=0x84, command_seq=12, error=0)),
     ("reply_busy", "reply", 8, dict(command_type=0x84, command_seq=13, error=4)),
     ("stream_config", "stream_config", 9, dict(rate_hz=4000, channels=2, period_ticks=250, tach_edge=1,
-                              start_tick=123_456_789)),
+                              start_tick=123_456_789, adc_reference_mv=4869)),
     ("samples", "samples", 10, dict(first_index=1024, channels=2, start_tick=123_456_789,
                                     period_ticks=250,
                                     samples=[512, 498, 530, 477, 1023, 0, 300, 700])),
@@ -46,7 +47,7 @@ VALID = [
     ("tach", "tach", 42, dict(tick=4_000_000_123, edge_count=65535)),
     ("status", "status", 200, dict(uptime_ms=86_400_000, state=1, samples_dropped=3, frames_dropped=1,
                          adc_overruns=0, tach_edges=1_234_567, rx_bad_frames=2, tach_suppressed=9,
-                         last_error=1)),
+                         capture_overwrites=4, error_flags=0x31)),
     ("pong", "pong", 17, dict(token=0xDEADBEEF, tick=77)),
     ("identify", "identify", 0, {}),
     ("start", "start", 1, {}),
@@ -89,6 +90,14 @@ def invalid_vectors() -> list[tuple[str, bytes, str]]:
         ("too_long", frame_bytes(bytes((0x04, 1)) + SAMPLES_HEAD_1CH
                                  + b"\x11\x01" * 120), "too_long"),
         ("bad_cobs", bytes((0x05, 0x85, 0x04)) + b"\x00", "cobs"),
+        # 119 samples fit a frame (253 bytes) but exceed limits.samples_per_block (118)
+        ("samples_over_block_limit", frame_bytes(bytes((0x04, 7)) + SAMPLES_HEAD_1CH
+                                                 + b"\x11\x01" * 119), "bad_length"),
+        # three channels: a whole number of sets, but more than limits.channels (2)
+        ("samples_too_many_channels",
+         frame_bytes(bytes((0x04, 8)) + (18).to_bytes(4, "little") + b"\x03"
+                     + (400).to_bytes(4, "little") + (250).to_bytes(2, "little")
+                     + b"\x10\x02" * 3), "bad_length"),
     ]
 
 

@@ -79,7 +79,7 @@ def test_configure_then_start_is_one_stream(tmp_path: Path,
     raw, _ = synthesize(SyntheticRun(speed_rpm=1800.0, duration_s=1.0, seed=2))
     idle = encode_frame("stream_config", 200, {"rate_hz": 4000, "channels": 2,
                                                "period_ticks": 250, "tach_edge": 1,
-                                               "start_tick": 0})
+                                               "start_tick": 0, "adc_reference_mv": 5000})
     path = tmp_path / "two-configs.bin"
     path.write_bytes(idle + raw)
     assert main(["analyze", str(path), "--json"]) == 0

@@ -180,7 +180,8 @@ def _capture(path: Path, per_channel: list[list[int]], reference_mv: int) -> Non
     identity = {"protocol_version": 1, "definition_hash": 0, "firmware_major": 0,
                 "firmware_minor": 1, "firmware_patch": 0, "board_id": 1, "tick_hz": 2_000_000,
                 "adc_bits": 10, "adc_reference_mv": reference_mv, "aperture_delay_ticks": 3,
-                "max_channels": 2, "channel0_pin": 0, "channel1_pin": 1, "tach_pin": 8}
+                "max_channels": 2, "channel0_pin": 0, "channel1_pin": 1, "tach_pin": 8,
+            "adc_reference_kind": 1, "reset_flags": 1}
     frames = [encode_frame("identity", 0, identity)]
     interleaved = [v for pair in zip(*per_channel, strict=True) for v in pair]
     for block, start in enumerate(range(0, len(interleaved), 100)):

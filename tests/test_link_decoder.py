@@ -83,7 +83,8 @@ def test_board_reset_detected_from_uptime_going_back() -> None:
     def status(seq: int, uptime_ms: int) -> bytes:
         return encode_frame("status", seq, dict(uptime_ms=uptime_ms, state=1, samples_dropped=0,
                                                 frames_dropped=0, adc_overruns=0, tach_edges=0,
-                                                rx_bad_frames=0, tach_suppressed=0, last_error=0))
+                                                rx_bad_frames=0, tach_suppressed=0, capture_overwrites=0,
+                                                error_flags=0))
     dec = StreamDecoder()
     items = dec.feed(status(10, 50_000) + status(11, 51_000) + status(3, 900))
     assert len(_events(items, "board_reset")) == 1
@@ -95,7 +96,8 @@ def test_unsolicited_identity_is_a_reset_but_a_requested_one_is_not() -> None:
     ident = dict(protocol_version=1, definition_hash=0, firmware_major=1, firmware_minor=0,
                  firmware_patch=0, board_id=1, tick_hz=2_000_000, adc_bits=10,
                  adc_reference_mv=5000, aperture_delay_ticks=16, max_channels=2,
-                 channel0_pin=0, channel1_pin=1, tach_pin=8)
+                 channel0_pin=0, channel1_pin=1, tach_pin=8,
+                 adc_reference_kind=1, reset_flags=1)
     dec = StreamDecoder()
     dec.feed(_samples(0, 0))
     dec.expect_identity()
@@ -146,7 +148,8 @@ def test_power_up_identity_then_requested_identity_is_not_a_reset() -> None:
     ident = dict(protocol_version=1, definition_hash=0, firmware_major=1, firmware_minor=0,
                  firmware_patch=0, board_id=1, tick_hz=2_000_000, adc_bits=10,
                  adc_reference_mv=5000, aperture_delay_ticks=16, max_channels=2,
-                 channel0_pin=0, channel1_pin=1, tach_pin=8)
+                 channel0_pin=0, channel1_pin=1, tach_pin=8,
+                 adc_reference_kind=1, reset_flags=1)
     dec = StreamDecoder()
     dec.expect_identity()
     dec.feed(encode_frame("identity", 0, ident))
@@ -160,9 +163,10 @@ def test_power_up_identity_then_requested_identity_is_not_a_reset() -> None:
 IDENTITY = {"protocol_version": 2, "definition_hash": 0, "firmware_major": 1,
             "firmware_minor": 0, "firmware_patch": 0, "board_id": 1, "tick_hz": 2_000_000,
             "adc_bits": 10, "adc_reference_mv": 5000, "aperture_delay_ticks": 16,
-            "max_channels": 2, "channel0_pin": 0, "channel1_pin": 1, "tach_pin": 8}
+            "max_channels": 2, "channel0_pin": 0, "channel1_pin": 1, "tach_pin": 8,
+            "adc_reference_kind": 1, "reset_flags": 1}
 CONFIG = {"rate_hz": 4000, "channels": 2, "period_ticks": 250, "tach_edge": 1,
-          "start_tick": 400}
+          "start_tick": 400, "adc_reference_mv": 4950}
 
 
 def _rejected(frames: list[bytes]) -> tuple[list[Message], list[LinkEvent]]:

@@ -171,12 +171,12 @@ def test_analyze_refuses_a_capture_from_other_definitions_naming_both(tmp_path) 
     for msg in StreamDecoder().feed(with_identity):
         values = dict(msg.values)
         if msg.name == "identity":
-            values["protocol_version"] = 3
+            values["protocol_version"] = load_catalogue().protocol_version - 1
         out += encode_frame(msg.name, msg.seq, values)
     plain = tmp_path / "old.frames"
     plain.write_bytes(bytes(out))
     for path, needles in ((header, ("0x0badf00d", f"{ours:#010x}")),
-                          (plain, ("protocol 3", f"reads protocol {load_catalogue().protocol_version}"))):
+                          (plain, (f"protocol {load_catalogue().protocol_version - 1}", f"reads protocol {load_catalogue().protocol_version}"))):
         code, text, err = run_cli(["analyze", str(path)])
         assert code == 2 and text == "" and err.count("\n") == 1, err
         for needle in needles:

@@ -90,7 +90,7 @@ def test_every_command_gets_its_reply_then_its_answer() -> None:
     assert items[3]["token"] == 0xDEADBEEF
     config = items[5].values
     assert config == {"rate_hz": 2000, "channels": 1, "period_ticks": 1000, "tach_edge": 1,
-                      "start_tick": 0}
+                      "start_tick": 0, "adc_reference_mv": 5000}
     assert link.decoder.counters.board_resets == 0
 
 
@@ -131,7 +131,8 @@ def test_busy_not_streaming_bad_length_unknown_and_bad_frames() -> None:
     assert got[202] == (0x01, ERR["unknown_command"])
     assert 203 not in got  # bad CRC: no reply (SPEC 4.2), counted instead
     status = messages(items, "status")[-1]
-    assert status["rx_bad_frames"] == 2 and status["last_error"] == 5 and status["state"] == 1
+    # error_flags bit 4 rx_bad_frame (catalogue), set since the start
+    assert status["rx_bad_frames"] == 2 and status["error_flags"] == 1 << 4 and status["state"] == 1
 
 
 def test_start_sends_stream_config_before_samples_and_stop_ends_on_whole_sets() -> None:

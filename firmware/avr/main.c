@@ -6,8 +6,12 @@
  *  - The ADC is auto-triggered by Timer1 compare-match B; the ADC interrupt steps OCR1B by
  *    period_ticks, so conversion i is triggered at exactly start_tick + i * period_ticks.
  *    A0 and A1 alternate when two channels are on.
- *  - The main loop turns queued samples and tach edges into protocol v1 frames, answers
+ *  - The main loop turns queued samples and tach edges into protocol frames, answers
  *    host commands, sends status once a second and blinks the LED.
+ *  - The watchdog runs in interrupt mode only: a main loop stalled for 250 ms (or a transmit
+ *    wait past its bound) makes its interrupt restart the firmware through the reset vector
+ *    with a marker in .noinit RAM, reported in identity.reset_flags. It never resets the chip
+ *    itself, so no bootloader ever sees a watchdog reset (the old Nano bootloader would loop).
  * See firmware/README.md for the design notes and the cycle budget of each handler. */
 #include <avr/interrupt.h>
 #include <avr/io.h>
@@ -21,6 +25,7 @@
 #include "tt_cobs.h"
 #include "tt_command.h"
 #include "tt_frame.h"
+#include "tt_health.h"
 #include "tt_messages.h"
 #include "tt_pins.h"
 #include "tt_protocol_defs.h"
@@ -28,23 +33,32 @@
 #include "tt_tachq.h"
 
 #define TT_FIRMWARE_MAJOR 1u
-#define TT_FIRMWARE_MINOR 0u
+#define TT_FIRMWARE_MINOR 1u
 #define TT_FIRMWARE_PATCH 0u
 #ifndef TT_BOARD_ID
-#define TT_BOARD_ID 1u /* 1 = ATmega328P 16 MHz (Uno/Nano class) */
+#define TT_BOARD_ID TT_BOARD_ATMEGA328P
 #endif
 
 #define TT_TICK_HZ (F_CPU / 8UL)          /* Timer1 prescaler 8 */
+/* every board of ours ticks at the catalogue's board_tick_hz (the host relies on it) */
+typedef char tt_tick_hz_is_the_catalogues[(TT_TICK_HZ == TT_LIMIT_BOARD_TICK_HZ_MIN) ? 1 : -1];
 #define TT_ADC_BITS 10u
-#define TT_ADC_REFERENCE_MV 5000u         /* AVCC reference */
+/* ADC reference: AVCC (the USB rail, 4.6-5.1 V), measured against the 1.1 V bandgap. */
+#define TT_ADMUX_BANDGAP 0x0Eu            /* MUX3..0 = 1110: the internal 1.1 V (VBG) */
+#define TT_BANDGAP_SETTLE_TICKS 2000u     /* 1 ms after switching to the bandgap */
+#define TT_AVCC_DISCARD 2u                /* conversions thrown away after the switch */
+#define TT_AVCC_SAMPLES 8u                /* conversions averaged */
+/* A transmit wait gives up after 20 ms (four times what the 256-byte ring takes to drain at
+ * 50 kB/s): the transmitter is stuck, and the watchdog restarts the firmware. */
+#define TT_TX_WAIT_TICKS (TT_TICK_HZ / 50u)
 /* Auto-triggered conversion: sample-and-hold 2 ADC clocks after the trigger plus 3 CPU
  * clocks of synchronisation (ATmega328P datasheet, "ADC Conversion Time"): 2 * 64 + 3 = 131
  * CPU clocks = 16.4 ticks, reported as 16. */
 #define TT_APERTURE_DELAY_TICKS 16u
-#define TT_MAX_CHANNELS 2u
+#define TT_MAX_CHANNELS TT_LIMIT_CHANNELS_MAX
 /* A conversion takes 13.5 ADC clocks = 864 CPU clocks = 108 ticks; the next trigger must be
- * due after the ADC interrupt has stepped OCR1B, hence 200 ticks (100 us, 2 x 5 kSps). */
-#define TT_MIN_PERIOD_TICKS 200u
+ * due after the ADC interrupt has stepped OCR1B, hence limits.period_ticks.min = 200 ticks
+ * (100 us, 2 x 5 kSps). */
 #define TT_START_LEAD_TICKS 400u          /* first trigger 200 us after start */
 #define TT_STATUS_PERIOD_TICKS TT_TICK_HZ /* status once a second */
 
@@ -59,8 +73,10 @@ static volatile uint16_t g_adc_period_ticks;
 static volatile uint8_t g_adc_two_channels;
 static volatile uint8_t g_adc_armed;
 static volatile uint16_t g_adc_overruns;
-static volatile uint8_t g_last_error;
+static volatile uint16_t g_capture_overwrites;
+static volatile uint8_t g_error_flags;    /* status.error_flags, cleared at start */
 static volatile uint8_t g_stream_fault;
+static volatile uint8_t g_stall_site;     /* enum tt_stall_site: what the main loop waits on */
 
 static uint8_t g_tx[256];                 /* indices wrap at 256 for free */
 static volatile uint8_t g_tx_head, g_tx_tail;
@@ -81,22 +97,76 @@ static uint32_t g_uptime_ms;
 static uint32_t g_next_status_tick;
 
 static const struct tt_limits g_limits = {
-    TT_TICK_HZ, 100u, 5000u, TT_MAX_CHANNELS, TT_MIN_PERIOD_TICKS};
+    TT_TICK_HZ, TT_LIMIT_RATE_HZ_MIN, TT_LIMIT_RATE_HZ_MAX, TT_MAX_CHANNELS,
+    TT_LIMIT_PERIOD_TICKS_MIN};
+static uint16_t g_avcc_mv;                /* the ADC reference, last measured */
+static uint8_t g_reset_flags;             /* identity.reset_flags */
 
-/* Reset cause, saved before the C runtime clears RAM (.noinit is not cleared). */
-static uint8_t g_reset_flags __attribute__((section(".noinit")));
+/* Kept across a stall restart and read before the C runtime clears RAM (.noinit is never
+ * cleared): the restart marker, MCUSR and r2 as the firmware found them. */
+static struct tt_restart_marker g_marker __attribute__((section(".noinit")));
+static uint8_t g_boot_mcusr __attribute__((section(".noinit")));
+static uint8_t g_boot_r2 __attribute__((section(".noinit")));
 
-/* Runs before main: keep MCUSR and stop a watchdog left running by a watchdog reset, which
- * would otherwise restart the board in a loop (avr-libc <avr/wdt.h> documentation). */
+/* The very first instructions after the reset vector: optiboot (Uno, newer Nano) clears MCUSR
+ * and passes its old value in r2 (from memory: optiboot 5 and later); nothing has touched r2
+ * yet here. */
+void tt_save_r2(void) __attribute__((naked, used, section(".init0")));
+void tt_save_r2(void)
+{
+    __asm__ __volatile__("sts %0, r2" : "=m"(g_boot_r2));
+}
+
+/* Runs before main: keep MCUSR and stop a watchdog left running (a watchdog reset leaves it
+ * on at 16 ms, and a bootloader may jump here without stopping it; avr-libc <avr/wdt.h>
+ * documentation). WDRF must be cleared before WDE can be. */
 void tt_early_init(void) __attribute__((naked, used, section(".init3")));
 void tt_early_init(void)
 {
-    g_reset_flags = MCUSR;
+    g_boot_mcusr = MCUSR;
     MCUSR = 0;
     wdt_disable();
 }
 
+/* The watchdog in interrupt mode only (WDIE, never WDE), 250 ms: a stall is caught by its
+ * interrupt, never by a chip reset (ATmega328P datasheet, "Watchdog Timer": interrupt mode). */
+static void watchdog_interrupt_mode(void)
+{
+    ATOMIC_BLOCK(ATOMIC_RESTORESTATE) {
+        wdt_reset();
+        WDTCSR = _BV(WDCE) | _BV(WDE);
+        WDTCSR = _BV(WDIE) | _BV(WDP2); /* 32K cycles of the 128 kHz oscillator = 0.25 s */
+    }
+}
+
 /* ---------------- interrupt handlers ---------------- */
+
+/* The main loop has not fed the watchdog for 250 ms (or gave up a transmit wait): leave a
+ * marker, put every peripheral this firmware uses back to its reset state and start again at
+ * the reset vector. The firmware starts afresh (RAM initialised, identity with reset_flags
+ * stall_restart), but no chip reset happens, so no bootloader runs. */
+ISR(WDT_vect)
+{
+    tt_marker_set(&g_marker, g_stall_site);
+    wdt_disable();
+    UCSR0B = 0;
+    ADCSRA = _BV(ADIF);
+    ADCSRB = 0;
+    ADMUX = 0;
+    DIDR0 = 0;
+    TIMSK1 = 0;
+    TCCR1B = 0;
+    TCCR1A = 0;
+    TCNT1 = 0;
+    OCR1A = 0;
+    OCR1B = 0;
+    TIFR1 = _BV(ICF1) | _BV(OCF1B) | _BV(OCF1A) | _BV(TOV1);
+    PORTB = 0;
+    DDRB = 0;
+    __asm__ __volatile__("jmp 0");
+    for (;;) {
+    }
+}
 
 ISR(TIMER1_OVF_vect)
 {
@@ -109,15 +179,23 @@ ISR(TIMER1_OVF_vect)
  * costs one interrupt per revolution instead of a storm that starves the ADC handler. */
 ISR(TIMER1_CAPT_vect)
 {
+    /* ICF1 was cleared as this vector was taken: set again means a second edge came since and
+     * overwrote ICR1 before it is read here (the first edge's time is lost) */
+    uint8_t overwritten = (TIFR1 & _BV(ICF1)) != 0;
     uint16_t icr = ICR1;
     uint8_t pending = (TIFR1 & _BV(TOV1)) != 0;
     uint32_t tick = tt_extend_ticks(g_t1_overflows, icr, pending);
     OCR1A = (uint16_t)(icr + tt_tach_holdoff_ticks(tick - g_tach_last_tick));
-    TIFR1 = _BV(OCF1A);
+    TIFR1 = overwritten ? (uint8_t)(_BV(OCF1A) | _BV(ICF1)) : (uint8_t)_BV(OCF1A);
     TIMSK1 = _BV(TOIE1) | _BV(OCIE1A);
     g_tach_last_tick = tick;
+    if (overwritten) {
+        g_capture_overwrites++;
+        g_error_flags |= TT_EF_CAPTURE_OVERWRITE;
+        g_stream_fault = 1;
+    }
     if (tt_tachq_put(&g_tach, tick)) {
-        g_last_error = TT_LAST_TACH_OVERRUN;
+        g_error_flags |= TT_EF_TACH_OVERRUN;
         g_stream_fault = 1;
     }
 }
@@ -141,7 +219,7 @@ ISR(ADC_vect)
         return;
     }
     if (tt_blocks_put(&g_blocks, sample)) {
-        g_last_error = TT_LAST_SAMPLE_OVERRUN;
+        g_error_flags |= TT_EF_SAMPLE_OVERRUN;
         g_stream_fault = 1;
     }
     /* Next trigger: one period on, or, if that time is already past (this handler ran
@@ -163,7 +241,7 @@ ISR(ADC_vect)
     if (skipped != 0u) {
         tt_blocks_skip(&g_blocks, skipped);
         g_adc_overruns++;
-        g_last_error = TT_LAST_ADC_LATE;
+        g_error_flags |= TT_EF_ADC_LATE;
         g_stream_fault = 1;
     }
 }
@@ -219,11 +297,23 @@ static uint8_t tx_try(uint8_t raw_len)
     return 1;
 }
 
-/* Queue a frame, waiting for the UART to make room (at most ~5 ms). */
+/* A wait bounded by TT_TX_WAIT_TICKS from `since` has run out: the transmitter is stuck.
+ * Stop feeding the watchdog: its interrupt restarts the firmware, the marker saying where. */
+static void tx_stuck_if_late(uint32_t deadline)
+{
+    if (tt_deadline_passed(now_ticks(), deadline)) {
+        g_stall_site = TT_STALL_TRANSMIT;
+        for (;;) {
+        }
+    }
+}
+
+/* Queue a frame, waiting for the UART to make room (normally at most ~5 ms; bounded). */
 static void tx_wait(uint8_t raw_len)
 {
+    uint32_t deadline = now_ticks() + TT_TX_WAIT_TICKS;
     while (!tx_try(raw_len)) {
-        wdt_reset();
+        tx_stuck_if_late(deadline);
     }
 }
 
@@ -238,7 +328,9 @@ static void send_identity(void)
     v.board_id = TT_BOARD_ID;
     v.tick_hz = TT_TICK_HZ;
     v.adc_bits = TT_ADC_BITS;
-    v.adc_reference_mv = TT_ADC_REFERENCE_MV;
+    v.adc_reference_mv = g_avcc_mv;
+    v.adc_reference_kind = TT_REF_AVCC_VS_BANDGAP;
+    v.reset_flags = g_reset_flags;
     v.aperture_delay_ticks = TT_APERTURE_DELAY_TICKS;
     v.max_channels = TT_MAX_CHANNELS;
     v.channel0_pin = TT_PICKUP_1_ADC_CHANNEL;
@@ -255,10 +347,39 @@ static void send_stream_config(void)
     v.period_ticks = g_setup.period_ticks;
     v.tach_edge = g_setup.tach_edge;
     v.start_tick = g_state == TT_STATE_IDLE ? 0u : g_start_tick;
+    v.adc_reference_mv = g_avcc_mv;
     tx_wait((uint8_t)tt_msg_stream_config(g_raw, g_seq, &v));
 }
 
 /* ---------------- sampling ---------------- */
+
+/* AVCC, the ADC reference, against the internal 1.1 V bandgap (core/tt_health.h): polled
+ * conversions with the ADC interrupt off, only while no stream runs. About 2 ms. */
+static void measure_avcc(void)
+{
+    uint32_t sum = 0, until;
+    uint8_t i;
+    while (ADCSRA & _BV(ADSC)) {
+        /* a conversion still running (at most 25 ADC clocks = 100 us) */
+    }
+    ADCSRA = _BV(ADEN) | _BV(ADIF) | _BV(ADPS2) | _BV(ADPS1); /* no trigger, no interrupt */
+    ADMUX = _BV(REFS0) | TT_ADMUX_BANDGAP;
+    until = now_ticks() + TT_BANDGAP_SETTLE_TICKS;
+    while (!tt_deadline_passed(now_ticks(), until)) {
+        /* the bandgap input settles (common practice, no source: 1 ms and two conversions) */
+    }
+    for (i = 0; i < TT_AVCC_DISCARD + TT_AVCC_SAMPLES; i++) {
+        ADCSRA |= _BV(ADSC);
+        while (ADCSRA & _BV(ADSC)) {
+        }
+        if (i >= TT_AVCC_DISCARD) {
+            sum += ADC;
+        }
+    }
+    ADMUX = _BV(REFS0) | TT_PICKUP_1_ADC_CHANNEL;
+    ADCSRA = _BV(ADEN) | _BV(ADIF) | _BV(ADIE) | _BV(ADPS2) | _BV(ADPS1);
+    g_avcc_mv = tt_avcc_mv(sum, TT_AVCC_SAMPLES);
+}
 
 static void set_tach_edge(uint8_t rising)
 {
@@ -275,16 +396,18 @@ static void set_tach_edge(uint8_t rising)
 static void start_stream(void)
 {
     uint8_t block_len = tt_blocks_len_for(g_setup.rate_hz, g_setup.channels);
-    while (ADCSRA & _BV(ADSC)) {
-        /* let a conversion still running from the last stream finish (at most 54 us) */
-    }
+    measure_avcc(); /* also lets a conversion still running from the last stream finish */
     ATOMIC_BLOCK(ATOMIC_RESTORESTATE) {
         tt_blocks_reset(&g_blocks, block_len);
         g_adc_period_ticks = g_setup.period_ticks;
         g_adc_two_channels = g_setup.channels == 2u;
         g_stream_fault = 0;
+        g_error_flags = 0; /* SPEC 4.6: the flags describe this stream */
         ADMUX = _BV(REFS0) | TT_PICKUP_1_ADC_CHANNEL;
         g_start_tick = now_ticks() + TT_START_LEAD_TICKS;
+        if (g_start_tick == 0u) {
+            g_start_tick = 1u; /* SPEC 4.3: start_tick 0 means "no stream" */
+        }
         OCR1B = (uint16_t)g_start_tick;
         TIFR1 = _BV(OCF1B);
         g_adc_armed = 1;
@@ -310,13 +433,16 @@ static uint8_t send_one_block(void)
 
 static void stop_stream(void)
 {
+    uint32_t deadline;
     ATOMIC_BLOCK(ATOMIC_RESTORESTATE) {
         ADCSRA = _BV(ADEN) | _BV(ADIE) | _BV(ADPS2) | _BV(ADPS1); /* no more triggers */
         g_adc_armed = 0;
     }
-    while (tt_blocks_peek(&g_blocks) != 0) { /* complete blocks still go out */
-        wdt_reset();
-        send_one_block();
+    deadline = now_ticks() + (uint32_t)TT_TX_WAIT_TICKS * TT_BLOCK_COUNT;
+    while (tt_blocks_peek(&g_blocks) != 0) { /* complete blocks still go out (bounded) */
+        if (!send_one_block()) {
+            tx_stuck_if_late(deadline);
+        }
     }
     g_state = TT_STATE_IDLE;
 }
@@ -326,7 +452,7 @@ static void stop_stream(void)
 static void bad_frame(void)
 {
     g_rx_bad_frames++;
-    g_last_error = TT_LAST_RX_BAD_FRAME;
+    g_error_flags |= TT_EF_RX_BAD_FRAME;
 }
 
 static void handle_body(void)
@@ -347,6 +473,9 @@ static void handle_body(void)
     tx_wait((uint8_t)tt_msg_reply(g_raw, g_seq, cmd.type, cmd.seq, cmd.error));
     switch (cmd.action) {
     case TT_ACT_IDENTIFY:
+        if (g_state == TT_STATE_IDLE) {
+            measure_avcc(); /* while streaming the ADC is busy: the last value is sent */
+        }
         send_identity();
         break;
     case TT_ACT_START:
@@ -354,6 +483,7 @@ static void handle_body(void)
         send_stream_config();
         break;
     case TT_ACT_CONFIGURE:
+        measure_avcc();
         send_stream_config();
         break;
     case TT_ACT_PING:
@@ -379,6 +509,24 @@ static void service_rx(void)
     }
 }
 
+/* ---------------- transmitter watch ---------------- */
+
+/* Samples, tach and status never wait for the transmitter (their loss is counted), so a stuck
+ * transmitter would go unnoticed while streaming: bytes waiting in the ring that have not
+ * moved for TT_TX_WAIT_TICKS mean it is stuck, and the watchdog restarts the firmware. */
+static void service_tx_watch(uint32_t now)
+{
+    static uint8_t last_tail;
+    static uint32_t moved_at;
+    uint8_t tail = g_tx_tail;
+    if (tail != last_tail || tail == g_tx_head) {
+        last_tail = tail;
+        moved_at = now;
+    } else {
+        tx_stuck_if_late(moved_at + TT_TX_WAIT_TICKS);
+    }
+}
+
 /* ---------------- tach, status, LED ---------------- */
 
 static void service_tach(void)
@@ -401,7 +549,8 @@ static void service_status(uint32_t now)
         v.adc_overruns = g_adc_overruns;
         v.tach_edges = g_tach.edges_total;
         v.tach_suppressed = g_tach.suppressed;
-        v.last_error = g_last_error;
+        v.capture_overwrites = g_capture_overwrites;
+        v.error_flags = g_error_flags;
     }
     v.uptime_ms = g_uptime_ms + 1000u;
     v.state = g_state;
@@ -462,16 +611,20 @@ static void board_init(void)
     UCSR0B = _BV(RXEN0) | _BV(TXEN0) | _BV(RXCIE0);
 
     tt_rx_init(&g_rx, g_rx_body, sizeof g_rx_body);
-    if (g_reset_flags & _BV(WDRF)) {
-        g_last_error = TT_LAST_WATCHDOG_RESET;
+    {
+        uint8_t site = 0;
+        uint8_t marker_ok = tt_marker_take(&g_marker, &site);
+        g_reset_flags = tt_reset_flags(g_boot_mcusr, g_boot_r2, marker_ok, site);
     }
-    wdt_enable(WDTO_250MS);
+    g_error_flags = tt_restart_error_flags(g_reset_flags);
+    watchdog_interrupt_mode();
 }
 
 int main(void)
 {
     board_init();
     sei();
+    measure_avcc();
     send_identity(); /* at boot, seq 0 */
     g_next_status_tick = now_ticks() + TT_STATUS_PERIOD_TICKS;
     for (;;) {
@@ -486,5 +639,6 @@ int main(void)
         now = now_ticks();
         service_status(now);
         service_led(now);
+        service_tx_watch(now);
     }
 }

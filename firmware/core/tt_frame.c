@@ -1,4 +1,4 @@
-/* tt_frame.c - sealing, encoding and checking protocol v1 frames. */
+/* tt_frame.c - sealing, encoding and checking protocol frames. */
 #include "tt_frame.h"
 
 #include "tt_cobs.h"
@@ -40,7 +40,8 @@ const char *tt_frame_status_name(enum tt_frame_status st)
     return "?";
 }
 
-/* The sample-block rules: 1..4 channels, whole sets, a start aligned to the channel count. */
+/* The sample-block rules (SPEC 4.4): limits.channels, 1..limits.samples_per_block samples in
+ * whole channel sets, a start aligned to the channel count. */
 static int tt_samples_block_ok(const uint8_t *p, size_t payload_len)
 {
     uint32_t first = (uint32_t)p[TT_MSG_SAMPLES_OFF_FIRST_INDEX]
@@ -49,8 +50,9 @@ static int tt_samples_block_ok(const uint8_t *p, size_t payload_len)
                    | ((uint32_t)p[TT_MSG_SAMPLES_OFF_FIRST_INDEX + 3u] << 24);
     uint8_t channels = p[TT_MSG_SAMPLES_OFF_CHANNELS];
     size_t count = (payload_len - TT_MSG_SAMPLES_FIXED_BYTES) / TT_MSG_SAMPLES_REST_ITEM_BYTES;
-    return channels >= 1u && channels <= 4u && count > 0u && count % channels == 0u
-           && first % channels == 0u;
+    return channels >= TT_LIMIT_CHANNELS_MIN && channels <= TT_LIMIT_CHANNELS_MAX
+           && count >= TT_LIMIT_SAMPLES_PER_BLOCK_MIN && count <= TT_LIMIT_SAMPLES_PER_BLOCK_MAX
+           && count % channels == 0u && first % channels == 0u;
 }
 
 enum tt_frame_status tt_frame_decode(uint8_t *body, size_t n, struct tt_frame *out)

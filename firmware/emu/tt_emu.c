@@ -22,6 +22,16 @@
  *     --tach-chatter N,GAP  after every tach edge, N more edges of the same polarity GAP
  *                           CPU cycles apart (a comparator without hysteresis on a slow
  *                           mark edge, or a noisy cable)
+ *     --mcusr HEX           MCUSR as a reset left it (bits PORF 1, EXTRF 2, BORF 4, WDRF 8;
+ *                           default 1, a power-on without a bootloader)
+ *     --r2 HEX              register r2 at the firmware's start, as a bootloader left it
+ *                           (optiboot passes the MCUSR it cleared there)
+ *     --wdt-running         the watchdog already on at 16 ms in reset mode when the firmware
+ *                           starts (as a watchdog reset leaves it; with --mcusr 8)
+ *     --stall S             fault injection: the main loop stalls at simulated time S (it
+ *                           jumps into an endless loop with interrupts on; repeatable, up to 4)
+ *     --tx-stuck S,MS       fault injection: the transmitter is stuck from S for MS ms (the
+ *                           data-register-empty interrupt never comes)
  *
  * The signal follows the steady-signal spec of trueturn.sim.signal_spec: shaft angle
  * theta(t) = 2 pi (rpm/60)(t - first_edge_s); a rising tach edge at every multiple of 2 pi
@@ -41,7 +51,11 @@
  *    and it mirrors the tach level in PINB0.
  * The analog value is set when simavr starts the conversion, for the instant of the
  * sample-and-hold (trigger + 131 CPU cycles, ATmega328P datasheet). UART output goes to the
- * original stdout; simavr's own messages go to stderr. */
+ * original stdout; simavr's own messages go to stderr.
+ *
+ * Time: the signal's t = 0 is the instant Timer1 first starts; if the firmware stops and
+ * restarts Timer1 (a stall restart through the reset vector), the count starts again from 0
+ * while the rotor turns on. The report counts entries at the reset vector (restarts). */
 #define _GNU_SOURCE
 #include <errno.h>
 #include <fcntl.h>
@@ -68,6 +82,12 @@
 /* ATmega328P data-space addresses (datasheet, "Register Summary") */
 #define R_PINB 0x23
 #define R_TIFR1 0x36
+#define R_MCUSR 0x54
+#define R_WDTCSR 0x60
+#define R_UCSR0B 0xC1
+#define BIT_UDRIE0 5
+#define BIT_WDCE 4
+#define BIT_WDE 3
 #define R_ADCSRA 0x7A
 #define R_ADCSRB 0x7B
 #define R_TCCR1B 0x81
@@ -135,6 +155,16 @@ static struct {
     int chatter_left;
     double chatter_cycle;
     uint64_t chatter_edges;
+    int preset_mcusr, preset_r2, wdt_running;
+    double stall_at_s[4];
+    int n_stall, stall_pending;
+    uint64_t stalls;
+    avr_flashaddr_t stall_pc;
+    double tx_stuck_at_s, tx_stuck_ms;
+    int tx_stuck;
+    avr_io_write_t ucsr0b_orig;
+    void *ucsr0b_param;
+    uint64_t reset_vector_entries;
 
     int uart_fd;
     uint8_t out_buf[8192];
@@ -143,8 +173,9 @@ static struct {
     size_t in_len, in_pos;
     int stdin_open;
 
-    int timer_started;
-    avr_cycle_count_t t1_start;     /* cycle at which Timer1 started: tick 0, t = 0 */
+    int timer_started, timer_ever_started;
+    avr_cycle_count_t t1_start;     /* cycle at which Timer1 (last) started: tick 0 */
+    avr_cycle_count_t t0_cycle;     /* cycle at which Timer1 first started: t = 0 */
     avr_timer_t *timer1;
     avr_io_write_t tccr1b_orig;
     void *tccr1b_param;
@@ -201,8 +232,7 @@ static double wall_seconds(void)
 
 static double sim_seconds(void)
 {
-    return E.timer_started ? (double)(E.avr->cycle - E.t1_start) / F_CPU_HZ
-                           : 0.0;
+    return E.timer_ever_started ? (double)(E.avr->cycle - E.t0_cycle) / F_CPU_HZ : 0.0;
 }
 
 static uint32_t current_ticks(void)
@@ -346,6 +376,8 @@ static void ocr1al_write(struct avr_t *avr, avr_io_addr_t addr, uint8_t v, void 
 
 static avr_cycle_count_t tach_fire(struct avr_t *avr, avr_cycle_count_t when, void *param);
 static avr_cycle_count_t irq_off_start(struct avr_t *avr, avr_cycle_count_t when, void *param);
+static avr_cycle_count_t stall_start(struct avr_t *avr, avr_cycle_count_t when, void *param);
+static avr_cycle_count_t tx_stuck_edge(struct avr_t *avr, avr_cycle_count_t when, void *param);
 
 static void schedule_tach(void)
 {
@@ -353,7 +385,7 @@ static void schedule_tach(void)
     double edge_s = E.first_edge_s + (double)E.tach_n * period_s;
     if (E.jitter_rms_s > 0.0) edge_s += E.jitter_rms_s * rng_gauss();
     if (edge_s < 0.0) edge_s = 0.0;
-    E.tach_edge_cycle = (double)E.t1_start + edge_s * F_CPU_HZ;
+    E.tach_edge_cycle = (double)E.t0_cycle + edge_s * F_CPU_HZ;
     if (E.tach_edge_cycle < (double)E.avr->cycle + 1.0) E.tach_edge_cycle = (double)E.avr->cycle + 1.0;
     avr_cycle_timer_register(E.avr, (avr_cycle_count_t)ceil(E.tach_edge_cycle) - E.avr->cycle, tach_fire, NULL);
 }
@@ -428,13 +460,33 @@ static void tccr1b_write(struct avr_t *avr, avr_io_addr_t addr, uint8_t v, void 
          * (OCR1B = 0 matches 8 cycles after every overflow); compare B is ours alone. */
         E.timer1->comp[0].comp_cycles = 0;
         E.timer1->comp[1].comp_cycles = 0;
-        if (!E.timer_started && (v & CS1_MASK)) {
+        if (E.timer_started && !(v & CS1_MASK)) {
+            /* stopped (a restart of the firmware): the count starts again from 0 */
+            E.timer_started = 0;
+            avr_cycle_timer_cancel(avr, compb_fire, NULL);
+            avr_cycle_timer_cancel(avr, compa_fire, NULL);
+        } else if (!E.timer_started && (v & CS1_MASK)) {
             E.timer_started = 1;
             E.t1_start = avr->cycle;
-            schedule_tach();
-            for (int k = 0; k < E.n_irq_off; k++) {
-                avr_cycle_timer_register(avr, (avr_cycle_count_t)(E.irq_off_at_s[k] * F_CPU_HZ) + 1u,
-                                         irq_off_start, (void *)(intptr_t)k);
+            if (!E.timer_ever_started) {
+                E.timer_ever_started = 1;
+                E.t0_cycle = avr->cycle;
+                schedule_tach();
+                for (int k = 0; k < E.n_irq_off; k++) {
+                    avr_cycle_timer_register(avr, (avr_cycle_count_t)(E.irq_off_at_s[k] * F_CPU_HZ) + 1u,
+                                             irq_off_start, (void *)(intptr_t)k);
+                }
+                for (int k = 0; k < E.n_stall; k++) {
+                    avr_cycle_timer_register(avr, (avr_cycle_count_t)(E.stall_at_s[k] * F_CPU_HZ) + 1u,
+                                             stall_start, NULL);
+                }
+                if (E.tx_stuck_ms > 0.0) {
+                    avr_cycle_timer_register(avr, (avr_cycle_count_t)(E.tx_stuck_at_s * F_CPU_HZ) + 1u,
+                                             tx_stuck_edge, (void *)(intptr_t)1);
+                    avr_cycle_timer_register(avr, (avr_cycle_count_t)((E.tx_stuck_at_s + E.tx_stuck_ms / 1e3)
+                                                                      * F_CPU_HZ) + 1u,
+                                             tx_stuck_edge, (void *)(intptr_t)0);
+                }
             }
         }
     } else {
@@ -458,8 +510,9 @@ static void adc_conversion_started(struct avr_irq_t *irq, uint32_t value, void *
     e.v = value;
     src = (int)e.mux.src;
     E.conversions_started++;
+    if (e.mux.kind != ADC_MUX_SINGLE) return; /* the bandgap: simavr's own 1100 mV */
     if (src < 0 || src >= E.n_channels) return;
-    t = ((double)(E.avr->cycle - E.t1_start) + APERTURE_CYCLES) / F_CPU_HZ;
+    t = ((double)(E.avr->cycle - E.t0_cycle) + APERTURE_CYCLES) / F_CPU_HZ;
     avr_raise_irq(E.adc_irq + ADC_IRQ_ADC0 + src, channel_millivolts(src, t));
 }
 
@@ -487,6 +540,47 @@ static avr_cycle_count_t irq_off_start(struct avr_t *avr, avr_cycle_count_t when
     E.irq_off_until = avr->cycle + (avr_cycle_count_t)(E.irq_off_us[i] * (F_CPU_HZ / 1e6));
     avr_sreg_set(avr, S_I, 0);
     avr_cycle_timer_register(avr, IRQ_OFF_RECHECK_CYCLES, irq_off_tick, NULL);
+    return 0;
+}
+
+/* ---------------- fault injection: a stalled main loop, a stuck transmitter ---------------- */
+
+/* The endless loop avr-libc's exit() ends in (`cli` then `rjmp .-2`, opcodes F8 94 FF CF): the
+ * stall jumps to its `rjmp`, so interrupts stay on and only the main loop is stuck. */
+static avr_flashaddr_t find_stall_loop(void)
+{
+    for (avr_flashaddr_t a = 0; a + 3u < E.avr->codeend && a + 3u <= E.avr->flashend; a += 2u) {
+        if (E.avr->flash[a] == 0xF8 && E.avr->flash[a + 1u] == 0x94 && E.avr->flash[a + 2u] == 0xFF
+            && E.avr->flash[a + 3u] == 0xCF) {
+            return a + 2u;
+        }
+    }
+    return 0;
+}
+
+static avr_cycle_count_t stall_start(struct avr_t *avr, avr_cycle_count_t when, void *param)
+{
+    (void)avr;
+    (void)when;
+    (void)param;
+    E.stall_pending = 1; /* done between instructions, outside handlers, by the main loop */
+    return 0;
+}
+
+/* UCSR0B writes while the transmitter is stuck lose UDRIE0: the interrupt never comes. */
+static void ucsr0b_write(struct avr_t *avr, avr_io_addr_t addr, uint8_t v, void *param)
+{
+    (void)param;
+    if (E.tx_stuck) v &= (uint8_t)~(1u << BIT_UDRIE0);
+    if (E.ucsr0b_orig) E.ucsr0b_orig(avr, addr, v, E.ucsr0b_param);
+    else avr->data[addr] = v;
+}
+
+static avr_cycle_count_t tx_stuck_edge(struct avr_t *avr, avr_cycle_count_t when, void *param)
+{
+    (void)when;
+    E.tx_stuck = (int)(intptr_t)param;
+    if (E.tx_stuck) avr->data[R_UCSR0B] &= (uint8_t)~(1u << BIT_UDRIE0);
     return 0;
 }
 
@@ -569,6 +663,9 @@ static void write_report(void)
     fprintf(f, "  \"adc_triggers\": %llu,\n  \"conversions_started\": %llu,\n",
             (unsigned long long)E.triggers, (unsigned long long)E.conversions_started);
     fprintf(f, "  \"chatter_edges\": %llu,\n", (unsigned long long)E.chatter_edges);
+    fprintf(f, "  \"stalls\": %llu,\n  \"reset_vector_entries\": %llu,\n",
+            (unsigned long long)E.stalls, (unsigned long long)E.reset_vector_entries);
+    fprintf(f, "  \"wdtcsr\": %u,\n  \"mcusr\": %u,\n", E.avr->data[R_WDTCSR], E.avr->data[R_MCUSR]);
     fprintf(f, "  \"tach_edges\": %ld,\n  \"uart_bytes_out\": %llu,\n  \"uart_bytes_in\": %llu,\n",
             E.tach_n, (unsigned long long)E.uart_bytes_out, (unsigned long long)E.uart_bytes_in);
     fprintf(f, "  \"cpu_state\": %d,\n  \"handlers\": {", E.avr->state);
@@ -591,7 +688,8 @@ static void usage(void)
     fprintf(stderr, "usage: tt_emu [--speed-rpm X] [--first-edge-s X] [--jitter-rms-s X] [--ref-v X] "
                     "[--seed N] [--channel OFF,NOISE]... [--order CH,K,AMP,PH]... [--tone CH,HZ,AMP,PH]... "
                     "[--seconds X] [--realtime] [--report PATH] [--script HEX@S]... [--irq-off S,US]... "
-                    "[--tach-chatter N,GAP] FIRMWARE.elf\n");
+                    "[--tach-chatter N,GAP] [--mcusr HEX] [--r2 HEX] [--wdt-running] [--stall S]... "
+                    "[--tx-stuck S,MS] FIRMWARE.elf\n");
     exit(2);
 }
 
@@ -645,10 +743,12 @@ int main(int argc, char **argv)
     E.first_edge_s = 0.001;
     E.ref_v = 5.0;
     E.seed = 1;
+    E.preset_mcusr = 0x01; /* a board just powered, no bootloader: PORF */
     for (i = 1; i < argc; i++) {
         const char *a = argv[i];
         const char *v = i + 1 < argc ? argv[i + 1] : NULL;
         if (!strcmp(a, "--realtime")) { E.realtime = 1; continue; }
+        if (!strcmp(a, "--wdt-running")) { E.wdt_running = 1; continue; }
         if (a[0] != '-') { elf = a; continue; }
         if (!v) usage();
         i++;
@@ -667,6 +767,14 @@ int main(int argc, char **argv)
         } else if (!strcmp(a, "--tach-chatter")) {
             if (sscanf(v, "%d,%lf", &E.chatter_n, &E.chatter_gap_cycles) != 2 || E.chatter_n < 0
                 || E.chatter_gap_cycles < 1.0) usage();
+        }
+        else if (!strcmp(a, "--mcusr")) E.preset_mcusr = (int)strtol(v, NULL, 16);
+        else if (!strcmp(a, "--r2")) E.preset_r2 = (int)strtol(v, NULL, 16);
+        else if (!strcmp(a, "--stall")) {
+            if (E.n_stall == 4) usage();
+            E.stall_at_s[E.n_stall++] = atof(v);
+        } else if (!strcmp(a, "--tx-stuck")) {
+            if (sscanf(v, "%lf,%lf", &E.tx_stuck_at_s, &E.tx_stuck_ms) != 2 || E.tx_stuck_ms <= 0.0) usage();
         }
         else if (!strcmp(a, "--order")) add_term(v, 1);
         else if (!strcmp(a, "--tone")) add_term(v, 0);
@@ -745,6 +853,32 @@ int main(int argc, char **argv)
     }
     E.avr->io[AVR_DATA_TO_IO(R_TCCR1B)].w.c = tccr1b_write;
     E.avr->io[AVR_DATA_TO_IO(R_TCCR1B)].w.param = NULL;
+    E.ucsr0b_orig = E.avr->io[AVR_DATA_TO_IO(R_UCSR0B)].w.c;
+    E.ucsr0b_param = E.avr->io[AVR_DATA_TO_IO(R_UCSR0B)].w.param;
+    E.avr->io[AVR_DATA_TO_IO(R_UCSR0B)].w.c = ucsr0b_write;
+    E.avr->io[AVR_DATA_TO_IO(R_UCSR0B)].w.param = NULL;
+
+    /* what a reset and a bootloader leave behind, before the first instruction */
+    E.avr->data[R_MCUSR] = (uint8_t)E.preset_mcusr;
+    E.avr->data[2] = (uint8_t)E.preset_r2;
+    if (E.wdt_running) {
+        /* the watchdog's change sequence, through simavr's own handler: on, 16 ms, reset mode */
+        avr_io_write_t w = E.avr->io[AVR_DATA_TO_IO(R_WDTCSR)].w.c;
+        void *wp = E.avr->io[AVR_DATA_TO_IO(R_WDTCSR)].w.param;
+        if (!w) {
+            fprintf(stderr, "tt_emu: simavr has no watchdog handler\n");
+            return 2;
+        }
+        w(E.avr, R_WDTCSR, (uint8_t)((1u << BIT_WDCE) | (1u << BIT_WDE)), wp);
+        w(E.avr, R_WDTCSR, (uint8_t)(1u << BIT_WDE), wp);
+    }
+    if (E.n_stall) {
+        E.stall_pc = find_stall_loop();
+        if (!E.stall_pc) {
+            fprintf(stderr, "tt_emu: no endless loop (cli; rjmp .-2) in the firmware to stall in\n");
+            return 2;
+        }
+    }
 
     avr_cycle_timer_register(E.avr, POLL_CYCLES, poll_host, NULL);
     avr_cycle_timer_register(E.avr, BYTE_CYCLES, uart_feed, NULL);
@@ -755,6 +889,11 @@ int main(int argc, char **argv)
                    && (uint16_t)(E.avr->flash[pc] | (E.avr->flash[pc + 1u] << 8)) == OPCODE_RETI;
         int state = avr_run(E.avr);
         if (state == cpu_Done || state == cpu_Crashed || g_stop_requested) break;
+        if (E.avr->pc == 0 && pc != 0) {
+            E.reset_vector_entries++; /* a restart: a handler that jumped here never returns */
+            E.in_isr = 0;
+            continue;
+        }
         if (reti) {
             uint64_t spent = E.avr->cycle - E.isr_enter;
             E.in_isr = 0;
@@ -769,6 +908,11 @@ int main(int argc, char **argv)
             E.in_isr = 1;
             E.isr_vector = (int)(E.avr->pc / VECTOR_BYTES);
             E.isr_enter = E.avr->cycle - 4u;
+        }
+        if (E.stall_pending && !E.in_isr && E.avr->sreg[S_I]) {
+            E.stall_pending = 0; /* in the main loop, interrupts on: stall it there */
+            E.stalls++;
+            E.avr->pc = E.stall_pc;
         }
     }
     flush_out();

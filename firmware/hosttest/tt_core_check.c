@@ -23,6 +23,7 @@
 #include "tt_command.h"
 #include "tt_crc.h"
 #include "tt_frame.h"
+#include "tt_health.h"
 #include "tt_messages.h"
 #include "tt_protocol_defs.h"
 #include "tt_rx.h"
@@ -39,7 +40,9 @@ static int checks, failures;
         }                                                                            \
     } while (0)
 
-static const struct tt_limits board_limits = {2000000UL, 100u, 5000u, 2u, 200u};
+static const struct tt_limits board_limits = {
+    TT_LIMIT_BOARD_TICK_HZ_MIN, TT_LIMIT_RATE_HZ_MIN, TT_LIMIT_RATE_HZ_MAX,
+    TT_LIMIT_CHANNELS_MAX, TT_LIMIT_PERIOD_TICKS_MIN};
 
 /* ---------------- unit checks ---------------- */
 
@@ -348,6 +351,49 @@ static void unit_commands(void)
     }
 }
 
+/* Reset causes, the restart marker, the AVCC arithmetic and the wait bound (core/tt_health.h). */
+static void unit_health(void)
+{
+    struct tt_restart_marker m;
+    uint8_t site = 99;
+    /* MCUSR bit positions (ATmega328P datasheet, "MCUSR"): PORF 0, EXTRF 1, BORF 2, WDRF 3 */
+    CHECK(tt_reset_flags(0x01u, 0u, 0u, 0u) == TT_RF_POWER_ON);
+    CHECK(tt_reset_flags(0x02u, 0x5Au, 0u, 0u) == TT_RF_EXTERNAL);
+    CHECK(tt_reset_flags(0x05u, 0u, 1u, TT_STALL_LOOP) == (TT_RF_POWER_ON | TT_RF_BROWN_OUT));
+    CHECK(tt_reset_flags(0x08u, 0u, 0u, 0u) == TT_RF_WATCHDOG);
+    /* a stall restart: MCUSR was cleared at the last start, the marker says so */
+    CHECK(tt_reset_flags(0u, 0u, 1u, TT_STALL_LOOP) == TT_RF_STALL_RESTART);
+    CHECK(tt_reset_flags(0u, 0u, 1u, TT_STALL_TRANSMIT)
+          == (TT_RF_STALL_RESTART | TT_RF_STALL_IN_TRANSMIT));
+    /* optiboot cleared MCUSR and passed it in r2 */
+    CHECK(tt_reset_flags(0u, 0x02u, 0u, 0u) == (TT_RF_EXTERNAL | TT_RF_FROM_BOOTLOADER));
+    CHECK(tt_reset_flags(0u, 0x08u, 0u, 0u) == (TT_RF_WATCHDOG | TT_RF_FROM_BOOTLOADER));
+    /* nothing usable: r2 left with other bits, or empty */
+    CHECK(tt_reset_flags(0u, 0x5Au, 0u, 0u) == TT_RF_UNKNOWN);
+    CHECK(tt_reset_flags(0u, 0u, 0u, 0u) == TT_RF_UNKNOWN);
+    CHECK(tt_restart_error_flags(TT_RF_STALL_RESTART | TT_RF_STALL_IN_TRANSMIT)
+          == (TT_EF_RESTARTED | TT_EF_TX_OVERRUN));
+    CHECK(tt_restart_error_flags(TT_RF_POWER_ON) == 0u);
+    /* the marker: valid once, then gone; random RAM is not a marker */
+    tt_marker_set(&m, TT_STALL_TRANSMIT);
+    CHECK(tt_marker_take(&m, &site) == 1u && site == TT_STALL_TRANSMIT);
+    CHECK(tt_marker_take(&m, &site) == 0u);
+    m.magic = TT_RESTART_MAGIC; m.site = 1u; m.site_check = 1u;
+    CHECK(tt_marker_take(&m, &site) == 0u);
+    /* ADC = floor(1100 mV * 1024 / AVCC) (datasheet "ADC Conversion Result", bandgap input),
+     * taken at the middle of its count: 5.0 V gives 225.28 -> 225, 8 x 225 = 1800 ->
+     * 1100 * 1024 / 225.5 = 4995 mV; 4.6 V gives 244.87 -> 244 -> 1100 * 1024 / 244.5 = 4607 */
+    CHECK(tt_avcc_mv(225u * 8u, 8u) == 4995u);
+    CHECK(tt_avcc_mv(244u * 8u, 8u) == 4607u);
+    CHECK(tt_avcc_mv(0u, 8u) == 0u);
+    CHECK(tt_avcc_mv(1u, 1u) == 0xFFFFu);
+    /* the wait bound across the 32-bit wrap */
+    CHECK(tt_deadline_passed(100u, 100u) == 1u);
+    CHECK(tt_deadline_passed(99u, 100u) == 0u);
+    CHECK(tt_deadline_passed(5u, 0xFFFFFFF0u) == 1u);
+    CHECK(tt_deadline_passed(0xFFFFFFF0u, 5u) == 0u);
+}
+
 static int run_unit(void)
 {
     unit_crc();
@@ -358,6 +404,7 @@ static int run_unit(void)
     unit_tachq();
     unit_rx();
     unit_commands();
+    unit_health();
     if (failures) {
         printf("FAILED %d of %d checks\n", failures, checks);
         return 1;
@@ -393,23 +440,26 @@ static int run_encode(void)
 #define NEED(k) if (nv < 1 + (k)) { printf("error %s needs %d values\n", name, k); continue; }
         if (!strcmp(name, "identity")) {
             struct tt_identity m;
-            NEED(14);
+            NEED(16);
             m.protocol_version = (uint8_t)v[1]; m.definition_hash = (uint32_t)v[2];
             m.firmware_major = (uint8_t)v[3]; m.firmware_minor = (uint8_t)v[4];
             m.firmware_patch = (uint8_t)v[5]; m.board_id = (uint8_t)v[6];
             m.tick_hz = (uint32_t)v[7]; m.adc_bits = (uint8_t)v[8];
-            m.adc_reference_mv = (uint16_t)v[9]; m.aperture_delay_ticks = (uint16_t)v[10];
-            m.max_channels = (uint8_t)v[11]; m.channel0_pin = (uint8_t)v[12];
-            m.channel1_pin = (uint8_t)v[13]; m.tach_pin = (uint8_t)v[14];
+            m.adc_reference_mv = (uint16_t)v[9]; m.adc_reference_kind = (uint8_t)v[10];
+            m.aperture_delay_ticks = (uint16_t)v[11];
+            m.max_channels = (uint8_t)v[12]; m.channel0_pin = (uint8_t)v[13];
+            m.channel1_pin = (uint8_t)v[14]; m.tach_pin = (uint8_t)v[15];
+            m.reset_flags = (uint8_t)v[16];
             raw_len = tt_msg_identity(raw, (uint8_t)v[0], &m);
         } else if (!strcmp(name, "reply")) {
             NEED(3);
             raw_len = tt_msg_reply(raw, (uint8_t)v[0], (uint8_t)v[1], (uint8_t)v[2], (uint8_t)v[3]);
         } else if (!strcmp(name, "stream_config")) {
             struct tt_stream_config m;
-            NEED(5);
+            NEED(6);
             m.rate_hz = (uint16_t)v[1]; m.channels = (uint8_t)v[2]; m.period_ticks = (uint16_t)v[3];
             m.tach_edge = (uint8_t)v[4]; m.start_tick = (uint32_t)v[5];
+            m.adc_reference_mv = (uint16_t)v[6];
             raw_len = tt_msg_stream_config(raw, (uint8_t)v[0], &m);
         } else if (!strcmp(name, "samples")) {
             uint16_t s[TT_SAMPLES_MAX_PER_MESSAGE];
@@ -424,11 +474,12 @@ static int run_encode(void)
             raw_len = tt_msg_tach(raw, (uint8_t)v[0], (uint32_t)v[1], (uint16_t)v[2]);
         } else if (!strcmp(name, "status")) {
             struct tt_status m;
-            NEED(9);
+            NEED(10);
             m.uptime_ms = (uint32_t)v[1]; m.state = (uint8_t)v[2]; m.samples_dropped = (uint32_t)v[3];
             m.frames_dropped = (uint16_t)v[4]; m.adc_overruns = (uint16_t)v[5];
             m.tach_edges = (uint32_t)v[6]; m.rx_bad_frames = (uint16_t)v[7];
-            m.tach_suppressed = (uint16_t)v[8]; m.last_error = (uint8_t)v[9];
+            m.tach_suppressed = (uint16_t)v[8]; m.capture_overwrites = (uint16_t)v[9];
+            m.error_flags = (uint8_t)v[10];
             raw_len = tt_msg_status(raw, (uint8_t)v[0], &m);
         } else if (!strcmp(name, "pong")) {
             NEED(2);

@@ -155,13 +155,14 @@ def synthesize(run: SyntheticRun) -> tuple[bytes, SyntheticTruth]:
             "protocol_version": cat.protocol_version, "definition_hash": cat.definition_hash,
             "firmware_major": 0, "firmware_minor": 1, "firmware_patch": 0, "board_id": 2,
             "tick_hz": run.tick_hz, "adc_bits": run.adc_bits,
-            "adc_reference_mv": run.adc_reference_mv,
+            "adc_reference_mv": run.adc_reference_mv, "adc_reference_kind": 0,
             "aperture_delay_ticks": run.aperture_delay_ticks, "max_channels": 2,
-            "channel0_pin": 0, "channel1_pin": 1, "tach_pin": 8}, cat)
+            "channel0_pin": 0, "channel1_pin": 1, "tach_pin": 8, "reset_flags": 1}, cat)
         seq += 1
     out += encode_frame("stream_config", seq, {
         "rate_hz": run.rate_hz, "channels": ch, "period_ticks": period, "tach_edge": 1,
-        "start_tick": run.start_tick % (1 << 32)}, cat)
+        "start_tick": run.start_tick % (1 << 32), "adc_reference_mv": run.adc_reference_mv},
+        cat)
     seq += 1
     for _tick, _prio, name, values_dict in events:
         out += encode_frame(name, seq & 0xFF, values_dict, cat)

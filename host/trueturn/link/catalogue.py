@@ -1,7 +1,8 @@
-"""The protocol v1 message catalogue (protocol/catalogue.yaml) as Python objects.
+"""The protocol message catalogue (protocol/catalogue.yaml) as Python objects.
 
-This module is the only place that reads the catalogue; the codec, the simulated board and
-the C header generator all use it, so the wire format is defined exactly once.
+This module is the only place that reads the catalogue; the codec, the simulated board, the
+session, the CLI and the C header generator all use it, so the wire format and its limits
+(rate range, channel count, board ids, code tables) are defined exactly once.
 """
 
 from __future__ import annotations
@@ -59,6 +60,23 @@ class MessageDef:
 
 
 @dataclass(frozen=True)
+class Limit:
+    """A protocol limit: whole numbers from ``min`` to ``max``, both included."""
+
+    name: str
+    min: int
+    max: int
+    doc: str = ""
+
+    def __contains__(self, value: object) -> bool:
+        return isinstance(value, (int, float)) and self.min <= value <= self.max
+
+    def span(self) -> str:
+        """The range as written in messages: ``100..5000``."""
+        return f"{self.min}..{self.max}"
+
+
+@dataclass(frozen=True)
 class Catalogue:
     """The parsed catalogue: constants, code tables and message definitions."""
 
@@ -68,7 +86,11 @@ class Catalogue:
     crc: dict[str, Any]
     error_codes: dict[int, str]
     device_states: dict[int, str]
-    last_errors: dict[int, str]
+    error_flags: dict[int, str]  # bit number -> name (status.error_flags)
+    reset_flags: dict[int, str]  # bit number -> name (identity.reset_flags)
+    reference_kinds: dict[int, str]
+    board_ids: dict[int, str]
+    limits: dict[str, Limit]
     messages: tuple[MessageDef, ...]
     definition_hash: int
     _by_id: dict[int, MessageDef] = field(init=False, repr=False, compare=False)
@@ -87,6 +109,19 @@ class Catalogue:
         except KeyError:
             raise KeyError(f"no message named {name!r} in the protocol catalogue") from None
 
+    def limit(self, name: str) -> Limit:
+        """One of the catalogue's ``limits`` (KeyError naming it if absent)."""
+        try:
+            return self.limits[name]
+        except KeyError:
+            raise KeyError(f"no limit named {name!r} in the protocol catalogue") from None
+
+    def flag_names(self, table: str, value: int) -> list[str]:
+        """Names of the bits set in ``value`` (``table``: error_flags or reset_flags), low bit
+        first; a bit the table does not name reads ``bitN``."""
+        names: dict[int, str] = getattr(self, table)
+        return [names.get(bit, f"bit{bit}") for bit in range(8) if value >> bit & 1]
+
     @property
     def crc_bytes(self) -> int:
         return int(self.crc["width"]) // 8
@@ -98,21 +133,33 @@ class Catalogue:
 
 
 
-def definition_hash(raw: dict[str, Any]) -> int:
-    """Hash of everything in the catalogue that shapes the bytes on the wire.
+#: Code tables of the catalogue that enter the definition hash (number -> name).
+CODE_TABLES = ("error_codes", "device_states", "error_flags", "reset_flags", "reference_kinds",
+               "board_ids")
 
-    Canonical form (protocol/SPEC.md, "Definition hash"): JSON with sorted keys and no
-    spaces of ``{"protocol_version", "max_frame_bytes", "header_bytes", "crc": {width, poly,
-    init, refin, refout, xorout}, "messages": [{"id", "name", "direction", "fields":
-    [{"name", "type", "count"}]}]}`` where ``count`` is ``"rest"`` or ``1``; the hash is the
-    first four bytes of its SHA-256 read as a little-endian u32.
+
+def _table_names(table: dict[int, Any]) -> dict[str, str]:
+    """A code table as the hash sees it: decimal code as a string -> name."""
+    return {str(int(k)): (v["name"] if isinstance(v, dict) else str(v)) for k, v in table.items()}
+
+
+def canonical_definition(raw: dict[str, Any]) -> str:
+    """The canonical JSON text whose SHA-256 gives the definition hash (SPEC.md section 6).
+
+    ``{"protocol_version", "max_frame_bytes", "header_bytes", "crc": {width, poly, init, refin,
+    refout, xorout}, "limits": {name: {"min", "max"}}, <each of CODE_TABLES>: {"code": name},
+    "messages": [{"id", "name", "direction", "fields": [{"name", "type", "count"}]}]}`` with
+    ``count`` 1 or ``"rest"``, keys sorted, separators ``,`` and ``:``, ASCII only.
     """
     crc = raw["crc"]
-    canonical = {
+    canonical: dict[str, Any] = {
         "protocol_version": raw["protocol_version"],
         "max_frame_bytes": raw["max_frame_bytes"],
         "header_bytes": raw["header_bytes"],
         "crc": {k: crc[k] for k in ("width", "poly", "init", "refin", "refout", "xorout")},
+        "limits": {name: {"min": int(v["min"]), "max": int(v["max"])}
+                   for name, v in raw["limits"].items()},
+        **{table: _table_names(raw[table]) for table in CODE_TABLES},
         "messages": [
             {
                 "id": m["id"],
@@ -126,13 +173,31 @@ def definition_hash(raw: dict[str, Any]) -> int:
             for m in raw["messages"]
         ],
     }
-    text = json.dumps(canonical, sort_keys=True, separators=(",", ":"))
-    digest = hashlib.sha256(text.encode("utf-8")).digest()
+    return json.dumps(canonical, sort_keys=True, separators=(",", ":"))
+
+
+def definition_hash(raw: dict[str, Any]) -> int:
+    """Hash of everything in the catalogue that shapes the bytes on the wire and their
+    meaning: the first four bytes of the SHA-256 of :func:`canonical_definition`, read as a
+    little-endian u32 (protocol/SPEC.md section 6)."""
+    digest = hashlib.sha256(canonical_definition(raw).encode("ascii")).digest()
     return int.from_bytes(digest[:4], "little")
+
+
+def _bits(raw: dict[str, Any], table: str) -> dict[int, str]:
+    bits = {int(k): v["name"] for k, v in raw[table].items()}
+    if any(not 0 <= b <= 7 for b in bits):
+        raise ValueError(f"{table}: bit numbers are 0..7 (the field is a u8)")
+    return bits
 
 
 def parse_catalogue(raw: dict[str, Any]) -> Catalogue:
     """Build a :class:`Catalogue` from the YAML mapping, checking its own rules."""
+    limits = {}
+    for name, v in raw["limits"].items():
+        if not isinstance(v["min"], int) or not isinstance(v["max"], int) or v["min"] > v["max"]:
+            raise ValueError(f"limit {name}: min and max must be whole numbers, min <= max")
+        limits[name] = Limit(name, v["min"], v["max"], v.get("doc", ""))
     messages = []
     seen: set[int] = set()
     for m in raw["messages"]:
@@ -155,7 +220,11 @@ def parse_catalogue(raw: dict[str, Any]) -> Catalogue:
         crc=dict(raw["crc"]),
         error_codes={k: v["name"] for k, v in raw["error_codes"].items()},
         device_states=dict(raw["device_states"]),
-        last_errors={k: v["name"] for k, v in raw["last_errors"].items()},
+        error_flags=_bits(raw, "error_flags"),
+        reset_flags=_bits(raw, "reset_flags"),
+        reference_kinds={k: v["name"] for k, v in raw["reference_kinds"].items()},
+        board_ids={k: v["name"] for k, v in raw["board_ids"].items()},
+        limits=limits,
         messages=tuple(messages),
         definition_hash=definition_hash(raw),
     )
@@ -168,5 +237,5 @@ def catalogue_text() -> str:
 
 @lru_cache(maxsize=1)
 def load_catalogue() -> Catalogue:
-    """The protocol v1 catalogue (cached)."""
+    """The protocol catalogue (cached)."""
     return parse_catalogue(yaml.safe_load(catalogue_text()))

@@ -9,6 +9,7 @@ from __future__ import annotations
 import struct
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
+from functools import lru_cache
 from typing import Any
 
 import numpy as np
@@ -24,12 +25,9 @@ from trueturn.link.crc import crc16_ibm3740
 FRAME_ERRORS = ("cobs", "too_short", "too_long", "crc", "unknown_type", "bad_length",
                 "wrong_direction", "bad_value")
 
-# Physical ranges of board fields (SPEC.md section 4, "Ranges"); outside them a frame that
-# passed its CRC is still corrupt (or from no board of ours) and is refused, field named.
-TICK_HZ_RANGE = (10_000, 200_000_000)     # a timer clock from 10 kHz to 200 MHz
-ADC_BITS_RANGE = (6, 16)                  # samples are u16
-REFERENCE_MV_RANGE = (500, 10_000)        # 0.5 V .. 10 V ADC reference
-CHANNELS_RANGE = (1, 4)
+# Physical ranges of board fields come from the catalogue's ``limits`` (SPEC.md section 4.9);
+# outside them a frame that passed its CRC is still corrupt (or from no board of ours) and is
+# refused, the field named.
 
 
 class FrameError(ValueError):
@@ -234,11 +232,21 @@ def decode_payload(mdef: MessageDef, payload: bytes) -> dict[str, Any]:
     return values
 
 
+@lru_cache(maxsize=1)
+def _sample_block_limits() -> tuple[int, int, int, int]:
+    lim = load_catalogue().limits
+    return (lim["channels"].min, lim["channels"].max, lim["samples_per_block"].min,
+            lim["samples_per_block"].max)
+
+
 def check_sample_block(values: dict[str, Any]) -> None:
-    """The sample-block rules of SPEC.md: 1..4 channels, whole sets, aligned start."""
+    """The sample-block rules of SPEC.md 4.4: limits.channels, 1..limits.samples_per_block
+    samples in whole channel sets, aligned start."""
     channels = values["channels"]
     count = len(values["samples"])
-    if not 1 <= channels <= 4 or count == 0 or count % channels or values["first_index"] % channels:
+    ch_min, ch_max, n_min, n_max = _sample_block_limits()
+    if not ch_min <= channels <= ch_max or not n_min <= count <= n_max \
+            or count % channels or values["first_index"] % channels:
         raise FrameError("bad_length", f"samples block of {count} samples on {channels} channels "
                                        f"starting at {values['first_index']}")
 
@@ -274,8 +282,8 @@ class LinkCounters:
 class LinkEvent:
     """Something the decoder noticed that is not a message: a rejected frame, a gap, a reset."""
 
-    # a FRAME_ERRORS kind, or seq_gap, sample_gap, tach_gap, board_reset, duplicate,
-    # stream_config_missing
+    # a FRAME_ERRORS kind, or seq_gap, sample_gap, tach_gap, tach_repeat, board_reset,
+    # duplicate, stream_config_missing
     kind: str
     detail: str
     count: int = 1
@@ -309,10 +317,12 @@ class StreamDecoder:
         self._tick_hz: int | None = None
         self._adc_max: int | None = None  # 2^adc_bits - 1 of the board's identity
         self._stream: tuple[int, int, int] | None = None  # start_tick, period_ticks, channels
-        self._last_errors = set(self.catalogue.last_errors)
+        self._error_bits = sum(1 << b for b in self.catalogue.error_flags)
         self._states = set(self.catalogue.device_states)
+        self._limits = self.catalogue.limits
         self._reply_errors = set(self.catalogue.error_codes)
         self._host_names = {m.name for m in self.catalogue.messages if m.direction == "host"}
+        self._identify_id = self.catalogue.by_name("identify").type_id
 
     def assume_identity(self, identity: dict[str, Any]) -> None:
         """Take the board's identity from elsewhere (a capture header) for the range checks
@@ -391,13 +401,18 @@ class StreamDecoder:
         self._track(msg, out)
         out.append(msg)
 
-    @staticmethod
-    def _identity_problem(v: dict[str, Any]) -> str | None:
-        checks = (("tick_hz", TICK_HZ_RANGE), ("adc_bits", ADC_BITS_RANGE),
-                  ("adc_reference_mv", REFERENCE_MV_RANGE), ("max_channels", CHANNELS_RANGE))
-        for name, (low, high) in checks:
-            if not low <= int(v[name]) <= high:
-                return f"identity {name} {v[name]} outside {low}..{high}"
+    def _identity_problem(self, v: dict[str, Any]) -> str | None:
+        lim = self._limits
+        checks = (("tick_hz", lim["tick_hz"]), ("adc_bits", lim["adc_bits"]),
+                  ("adc_reference_mv", lim["adc_reference_mv"]),
+                  ("max_channels", lim["channels"]))
+        for name, limit in checks:
+            if int(v[name]) not in limit:
+                return f"identity {name} {v[name]} outside {limit.span()}"
+        for name, table in (("board_id", self.catalogue.board_ids),
+                            ("adc_reference_kind", self.catalogue.reference_kinds)):
+            if v[name] not in table:
+                return f"identity {name} {v[name]} not a code of the catalogue"
         return None
 
     def _check_values(self, msg: Message) -> tuple[str, str] | None:
@@ -411,8 +426,10 @@ class StreamDecoder:
             self._tick_hz = v["tick_hz"]
             self._adc_max = (1 << v["adc_bits"]) - 1
         elif name == "stream_config":
-            if not CHANNELS_RANGE[0] <= v["channels"] <= CHANNELS_RANGE[1]:
-                return "bad_value", f"stream_config channels {v['channels']} outside 1..4"
+            for key, limit in (("channels", self._limits["channels"]),
+                               ("adc_reference_mv", self._limits["adc_reference_mv"])):
+                if v[key] not in limit:
+                    return "bad_value", f"stream_config {key} {v[key]} outside {limit.span()}"
             for key in ("rate_hz", "period_ticks"):
                 if v[key] == 0:
                     return "bad_value", f"stream_config {key} 0"
@@ -442,8 +459,9 @@ class StreamDecoder:
         elif name == "status":
             if v["state"] not in self._states:
                 return "bad_value", f"status state {v['state']} not a device state"
-            if v["last_error"] not in self._last_errors:
-                return "bad_value", f"status last_error {v['last_error']} not a known code"
+            if v["error_flags"] & ~self._error_bits:
+                return "bad_value", (f"status error_flags {v['error_flags']:#04x} has a bit the "
+                                     "catalogue does not define")
         elif name == "reply":
             if v["error"] not in self._reply_errors:
                 return "bad_value", f"reply error {v['error']} not a known code"
@@ -458,9 +476,16 @@ class StreamDecoder:
                 if msg.seq != 0:
                     self._identity_requested = False
             elif not self._identity_requested:
-                self._reset("identity sent without being asked", out)
+                flags = self.catalogue.flag_names("reset_flags", int(msg["reset_flags"]))
+                self._reset("identity sent without being asked (reset flags: "
+                            f"{', '.join(flags) or 'none'})", out)
             else:
                 self._identity_requested = False
+        elif msg.name == "reply":
+            # SPEC 5: an identity right after the board's ok to `identify` was asked for, also
+            # in a capture, where the host's own frames are not recorded
+            if msg["command_type"] == self._identify_id and msg["error"] == 0:
+                self._identity_requested = True
         elif msg.name == "status":
             if self._last_uptime_ms is not None and msg["uptime_ms"] < self._last_uptime_ms:
                 self._reset(f"uptime went back from {self._last_uptime_ms} to "
@@ -504,8 +529,14 @@ class StreamDecoder:
         elif msg.name == "tach":
             count = msg["edge_count"]
             if self._last_edge_count is not None:
-                lost = (count - self._last_edge_count - 1) & 0xFFFF
-                if lost:
+                step = (count - self._last_edge_count) & 0xFFFF
+                if step == 0:  # SPEC 5: the same edge again (a repeated message), no loss
+                    out.append(LinkEvent("tach_repeat", f"tach edge {count} received again", 0))
+                elif step >= 0x8000:  # SPEC 5: backwards: counting started again, no loss
+                    out.append(LinkEvent("tach_gap", f"tach edge count went back to {count}",
+                                         0))
+                elif step > 1:
+                    lost = step - 1
                     c.tach_edges_lost += lost
                     out.append(LinkEvent("tach_gap", f"{lost} tach edge(s) missing", lost))
             self._last_edge_count = count

@@ -1,4 +1,4 @@
-"""The virtual board: a scenario's rotor behind a board that speaks protocol v1 byte for byte.
+"""The virtual board: a scenario's rotor behind a board that speaks the protocol byte for byte.
 
 One simulated clock (ticks of ``TICK_HZ``) drives everything: conversion ``n`` of a stream is
 triggered at ``start_tick + n * period_ticks`` and sampled at that instant (aperture delay 0),
@@ -42,13 +42,13 @@ from trueturn.sim.scenario import (
     Scenario,
 )
 
-TICK_HZ = 2_000_000
-BOARD_ID_SIMULATED = 2
+_CAT = load_catalogue()
+TICK_HZ = _CAT.limit("board_tick_hz").min  # every board of ours ticks at this rate
+BOARD_ID_SIMULATED = {name: code for code, name in _CAT.board_ids.items()}["simulated"]
 FIRMWARE_VERSION = (0, 1, 0)
-MAX_BLOCK_SAMPLES = 118
+MAX_BLOCK_SAMPLES = _CAT.limit("samples_per_block").max
 DEFAULT_RATE_HZ = 4000
 DEFAULT_CHANNELS = 2
-MIN_PERIOD_TICKS = 200  # protocol/SPEC.md 4.8
 STEP_TICKS = 100_000  # at most 50 ms of simulated time per generation step
 STATUS_PERIOD_TICKS = TICK_HZ
 START_DELAY_TICKS = 200  # first conversion of a stream, after the start command
@@ -56,9 +56,12 @@ STANDSTILL_RAD_S = 0.05  # below this the virtual shaft is taken as stopped
 SENSOR_FLOOR_G = 0.004  # a still accelerometer's own noise, rms over the sampled band
 TWO_PI = 2.0 * math.pi
 
-ERROR_CODES = {name: code for code, name in load_catalogue().error_codes.items()}
-STATES = {name: code for code, name in load_catalogue().device_states.items()}
-LAST_ERRORS = {name: code for code, name in load_catalogue().last_errors.items()}
+ERROR_CODES = {name: code for code, name in _CAT.error_codes.items()}
+STATES = {name: code for code, name in _CAT.device_states.items()}
+#: status.error_flags and identity.reset_flags: name -> bit value
+ERROR_FLAGS = {name: 1 << bit for bit, name in _CAT.error_flags.items()}
+RESET_FLAGS = {name: 1 << bit for bit, name in _CAT.reset_flags.items()}
+REFERENCE_KINDS = {name: code for code, name in _CAT.reference_kinds.items()}
 
 
 @dataclass
@@ -107,6 +110,7 @@ def tach_holdoff_ticks(last_period_ticks: int) -> int:
     return min(TACH_HOLDOFF_MAX_TICKS,
                max(TACH_HOLDOFF_MIN_TICKS, (last_period_ticks & 0xFFFFFFFF) >> TACH_HOLDOFF_SHIFT))
 TACH_FAULT_SHARE = 0.1
+
 #: ``reset_on_open=0``: how long the board has been running when the port opens.
 RUNNING_UPTIME_S = 60.0
 
@@ -168,7 +172,8 @@ class VirtualBoard:
         self._next_status_tick = self.tick + STATUS_PERIOD_TICKS
         self._counters = {"samples_dropped": 0, "frames_dropped": 0, "adc_overruns": 0,
                           "rx_bad_frames": 0, "tach_suppressed": 0}
-        self._last_error = LAST_ERRORS["none"]
+        self._error_flags = 0
+        self._reset_flags = RESET_FLAGS["power_on"]
         self._rx = bytearray()
         self._rx_discarding = False
         self._response_cache: tuple[float, tuple[Mass, ...], np.ndarray] | None = None
@@ -205,7 +210,7 @@ class VirtualBoard:
         self._last_edge_tick = self.tick
         self._holdoff_until = self.tick
         self._counters = dict.fromkeys(self._counters, 0)
-        self._last_error = LAST_ERRORS["none"]
+        self._error_flags = 0
         self._next_status_tick = self.tick + STATUS_PERIOD_TICKS
         self._send("identity", self._identity_values())
 
@@ -359,14 +364,17 @@ class VirtualBoard:
                 "definition_hash": self.catalogue.definition_hash,
                 "firmware_major": major, "firmware_minor": minor, "firmware_patch": patch,
                 "board_id": BOARD_ID_SIMULATED, "tick_hz": TICK_HZ, "adc_bits": 10,
-                "adc_reference_mv": int(ADC_REFERENCE_V * 1000), "aperture_delay_ticks": 0,
-                "max_channels": 2, "channel0_pin": 0, "channel1_pin": 1, "tach_pin": 8}
+                "adc_reference_mv": int(ADC_REFERENCE_V * 1000),
+                "adc_reference_kind": REFERENCE_KINDS["nominal"], "aperture_delay_ticks": 0,
+                "max_channels": _CAT.limit("channels").max, "channel0_pin": 0,
+                "channel1_pin": 1, "tach_pin": 8, "reset_flags": self._reset_flags}
 
     def _stream_config_values(self) -> dict:
         s = self._stream
         return {"rate_hz": s.rate_hz, "channels": s.channels, "period_ticks": s.period_ticks,
                 "tach_edge": s.tach_edge,
-                "start_tick": (s.start_tick & 0xFFFFFFFF) if s.streaming else 0}
+                "start_tick": (s.start_tick & 0xFFFFFFFF) if s.streaming else 0,
+                "adc_reference_mv": int(ADC_REFERENCE_V * 1000)}
 
     def _reply(self, type_id: int, seq: int, error: str) -> None:
         self._send("reply", {"command_type": type_id, "command_seq": seq,
@@ -374,7 +382,7 @@ class VirtualBoard:
 
     def _bad_rx(self) -> None:
         self._counters["rx_bad_frames"] += 1
-        self._last_error = LAST_ERRORS["rx_bad_frame"]
+        self._error_flags |= ERROR_FLAGS["rx_bad_frame"]
 
     def _handle_frame(self, body: bytes) -> None:
         try:
@@ -412,9 +420,10 @@ class VirtualBoard:
             self._reply(type_id, seq, "busy")
             return
         rate, channels, edge = values["rate_hz"], values["channels"], values["tach_edge"]
-        if not (100 <= rate <= 5000 and channels in (1, 2) and edge in (0, 1)
+        lim = self.catalogue.limits
+        if not (rate in lim["rate_hz"] and channels in lim["channels"] and edge in (0, 1)
                 and TICK_HZ % (rate * channels) == 0
-                and MIN_PERIOD_TICKS <= TICK_HZ // (rate * channels) <= 0xFFFF):
+                and TICK_HZ // (rate * channels) in lim["period_ticks"]):
             self._reply(type_id, seq, "bad_value")
             return
         s.rate_hz, s.channels, s.tach_edge = rate, channels, edge
@@ -427,7 +436,10 @@ class VirtualBoard:
             self._reply(type_id, seq, "busy")
             return
         s.streaming = True
+        self._error_flags = 0  # SPEC 4.6: the flags describe the stream from its start
         s.start_tick = self.tick + START_DELAY_TICKS
+        if s.start_tick & 0xFFFFFFFF == 0:
+            s.start_tick += 1  # SPEC 4.3: start_tick 0 means "no stream"
         s.next_index = 0
         s.pending = []
         s.pending_first = 0
@@ -688,6 +700,7 @@ class VirtualBoard:
                 "tach_edges": self._edges_seen & 0xFFFFFFFF,
                 "rx_bad_frames": self._counters["rx_bad_frames"] & 0xFFFF,
                 "tach_suppressed": self._counters["tach_suppressed"] & 0xFFFF,
-                "last_error": self._last_error}
+                "capture_overwrites": 0,  # the model has no interrupt latency
+                "error_flags": self._error_flags}
 
 

@@ -219,7 +219,8 @@ def _with_status(messages: list[Message], adc_overruns_end: int) -> list[Message
         return Message("status", seq, {"uptime_ms": 1000 + seq, "state": 1,
                                        "samples_dropped": 0, "frames_dropped": 0,
                                        "adc_overruns": overruns, "tach_edges": 0,
-                                       "rx_bad_frames": 0, "tach_suppressed": 0, "last_error": 0})
+                                       "rx_bad_frames": 0, "tach_suppressed": 0,
+                                       "capture_overwrites": 0, "error_flags": 0})
     first = next(i for i, m in enumerate(messages) if m.name == "samples")
     return [*messages[:first], status(0, 0), *messages[first:], status(1, adc_overruns_end)]
 
@@ -255,3 +256,33 @@ def test_late_adc_conversions_with_their_gap_are_flagged_and_left_out() -> None:
     assert any("1 late ADC conversion(s)" in w for w in readings[0].warnings)
     for r in readings:
         assert abs(r.phasor - _truth_volts(truth, r.channel)) <= SLACK * r.confidence_radius
+
+
+def test_counts_become_volts_with_the_measured_reference_or_are_refused() -> None:
+    # SPEC 4.10: V = counts x adc_reference_mv / 1000 / 2^adc_bits (ATmega328P datasheet, "ADC
+    # Conversion Result"), with the reference the board measured at the stream's start; one
+    # outside limits.usable_reference_mv (4.0-5.5 V, the catalogue) gives no reading at all.
+    from trueturn.dsp.meter import LiveAnalyzer
+    from trueturn.link.codec import Message, StreamDecoder
+
+    def analyzer(reference_mv: int) -> LiveAnalyzer:
+        raw, _ = synthesize(SyntheticRun(speed_rpm=1800.0, duration_s=2.0, seed=4,
+                                         adc_reference_mv=reference_mv))
+        meter = LiveAnalyzer()
+        for m in StreamDecoder().feed(raw):
+            if isinstance(m, Message):
+                meter.feed(m)
+        meter.end_of_stream()
+        return meter
+
+    low, usual = analyzer(4600), analyzer(5000)
+    assert low.volts_per_count == pytest.approx(4.6 / 1024, rel=1e-12)
+    a, b = low.readings(), usual.readings()
+    assert len(a) == len(b) == 2
+    for ra, rb in zip(a, b, strict=True):  # the same counts, read against 4.6 V and 5.0 V
+        assert ra.amplitude / rb.amplitude == pytest.approx(4.6 / 5.0, rel=1e-9)
+    for bad in (3900, 5600):
+        meter = analyzer(bad)
+        assert meter.readings() == []
+        warning = next(w for w in meter.stream_warnings() if w.startswith("refused"))
+        assert "stream_config.adc_reference_mv" in warning and f"{bad} mV" in warning

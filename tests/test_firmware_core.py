@@ -165,3 +165,31 @@ def test_c_decoder_agrees_with_host_codec_on_damaged_frames(core_check: str) -> 
             python_kind = exc.kind
         c_kind = "ok" if verdict[0] == "ok" else verdict[1]
         assert c_kind == python_kind, body.hex()
+
+
+def test_firmware_core_and_simulated_board_share_the_catalogue_limits(core_check: str) -> None:
+    # #16 item 6: the configure limits are the catalogue's (rate 100..5000, channels 1..2,
+    # period_ticks 200..65535 whole ticks of 2 MHz); the C core (generated TT_LIMIT_*) and the
+    # simulated board (read from the catalogue) must answer every configure the same way.
+    from trueturn.link.codec import StreamDecoder
+    from trueturn.sim.board import VirtualBoard
+    from trueturn.sim.scenario import load_scenario
+
+    lim = load_catalogue().limits
+    rates = sorted({lim["rate_hz"].min - 1, lim["rate_hz"].min, 2000, 3000, 4000,
+                    lim["rate_hz"].max, lim["rate_hz"].max + 1, 30, 0xFFFF})
+    channels = range(lim["channels"].min - 1, lim["channels"].max + 2)
+    cases = [(r, c) for r in rates for c in channels]
+    frames = [encode_frame("configure", i, {"rate_hz": r, "channels": c, "tach_edge": 1})
+              for i, (r, c) in enumerate(cases)]
+    out = _run(core_check, "decode", "\n".join(f.hex() for f in frames) + "\n")
+    c_errors = [int(line.split(" | ")[1].split()[3]) for line in out]
+    board = VirtualBoard(load_scenario("bench-grinder"))
+    board.take_output()
+    for f in frames:
+        board.receive(f)
+    replies = [m for m in StreamDecoder().feed(board.take_output()) if m.name == "reply"]
+    assert [m["error"] for m in replies] == c_errors
+    ok = {case for case, err in zip(cases, c_errors, strict=True) if err == ERROR_CODES["ok"]}
+    assert (lim["rate_hz"].max, lim["channels"].max) in ok  # 2 x 5 kSps: 200 ticks
+    assert (lim["rate_hz"].max + 1, 1) not in ok and (4000, lim["channels"].max + 1) not in ok

@@ -11,9 +11,9 @@ import math
 from dataclasses import dataclass, field
 
 from trueturn.balance.iso21940 import angular_speed_rad_s
+from trueturn.constants import STANDARD_GRAVITY_M_S2
 from trueturn.errors import UserError
 
-STANDARD_GRAVITY_M_S2 = 9.80665  # CGPM 1901 conventional value
 DEFAULT_FORCE_RATIO = 0.10
 DEFAULT_CAP_FRACTION = 0.01
 

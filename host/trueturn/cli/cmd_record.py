@@ -20,6 +20,7 @@ from trueturn import __version__
 from trueturn.cli.common import print_json
 from trueturn.errors import UserError
 from trueturn.link.capture import CaptureWriter
+from trueturn.link.catalogue import load_catalogue
 from trueturn.link.codec import LinkEvent, Message, decode_frame
 from trueturn.link.ports import open_port
 from trueturn.link.session import BoardSession, LinkLost
@@ -41,8 +42,10 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     parser.add_argument("-o", "--output", required=True, help="capture file to write")
     parser.add_argument("--rate-hz", type=int, default=4000,
                         help="samples per second per channel (default 4000)")
-    parser.add_argument("--channels", type=int, default=2, choices=(1, 2),
-                        help="pickup channels (default 2)")
+    parser.add_argument("--channels", type=int, default=None,
+                        help="pickup channels, as many as are connected (default: the "
+                             "simulated machine's pickups, else 2); give 1 with one pickup, so "
+                             "no open input is recorded as a channel")
     parser.add_argument("--tach-edge", choices=("rising", "falling"), default="rising",
                         help="tach edge that marks the reference (default rising)")
     parser.add_argument("--json", action="store_true", help="print a JSON summary on stdout")
@@ -102,8 +105,11 @@ def _virtual_rig_metadata(port: serial.SerialBase) -> dict[str, Any]:
 def run(args: argparse.Namespace) -> int:
     if not args.seconds > 0 or args.seconds > 24 * 3600:
         raise UserError(f"--seconds must be between 0 and 86400, got {args.seconds:g}")
-    if not 100 <= args.rate_hz <= 5000:
-        raise UserError(f"--rate-hz must be 100..5000, got {args.rate_hz}")
+    limits = load_catalogue().limits
+    if args.rate_hz not in limits["rate_hz"]:
+        raise UserError(f"--rate-hz must be {limits['rate_hz'].span()}, got {args.rate_hz}")
+    if args.channels is not None and args.channels not in limits["channels"]:
+        raise UserError(f"--channels must be {limits['channels'].span()}, got {args.channels}")
     out_path = Path(args.output)
     if out_path.is_dir():
         raise UserError(f"{out_path} is a folder; give a file name, e.g. {out_path}/run1.cap")
@@ -137,13 +143,18 @@ def _record(port: serial.SerialBase, args: argparse.Namespace, out_path: Path) -
 
     session = BoardSession(port, on_bytes=sink)
     identity = session.greet()
+    rig = _virtual_rig_metadata(port)
+    if args.channels is None:  # the pickups a simulated machine has connected: no ghost
+        spec = getattr(port, "spec", None)  # emu:// (channels=1|2 of the URL)
+        connected = len(spec["channels"]) if isinstance(spec, dict) else len(rig.get("pickups", ()))
+        args.channels = min(connected or 2, int(identity["max_channels"]))
     metadata: dict[str, Any] = {
         "port": args.port, "started_utc": dt.datetime.now(dt.timezone.utc).isoformat(),
         "trueturn_version": __version__, "identity": identity,
         "requested": {"seconds": args.seconds, "rate_hz": args.rate_hz,
                       "channels": args.channels, "tach_edge": args.tach_edge},
     }
-    metadata.update(_virtual_rig_metadata(port))
+    metadata.update(rig)
     try:
         writer = CaptureWriter(out_path, metadata)
     except OSError as exc:

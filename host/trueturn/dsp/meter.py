@@ -39,10 +39,13 @@ from trueturn.dsp.units import (
     convert_phasor,
     default_unit,
 )
+from trueturn.link.catalogue import load_catalogue
 
-DEFAULT_TICK_HZ = 2_000_000
+DEFAULT_TICK_HZ = load_catalogue().limit("board_tick_hz").min
 DEFAULT_ADC_BITS = 10
 DEFAULT_REFERENCE_MV = 5000
+#: ADC references the meter converts with (SPEC 4.10): outside, readings are refused
+USABLE_REFERENCE_MV = load_catalogue().limit("usable_reference_mv")
 MAX_REVOLUTION_S = 10.0  # slowest shaft measured: 6 rpm
 TACH_SCATTER_WARN_DEG = 0.5  # tach edges scattering more than this are worth a word
 
@@ -197,7 +200,9 @@ class LiveAnalyzer:
         self.hum_spread_hz = hum_spread_hz
         self.tick_hz = DEFAULT_TICK_HZ
         self.adc_bits = DEFAULT_ADC_BITS
-        self.reference_mv = DEFAULT_REFERENCE_MV
+        self.reference_mv = DEFAULT_REFERENCE_MV  # the one in use (SPEC 4.10)
+        self.reference_field = "identity.adc_reference_mv"  # where it came from
+        self._identity_reference_mv = DEFAULT_REFERENCE_MV
         self.aperture_ticks = 0
         self.identity_seen = False
         self.streams = 0  # streams that carried samples (a configure-only one does not count)
@@ -213,6 +218,15 @@ class LiveAnalyzer:
         self.rate_hz = float(config["rate_hz"]) if config else 0.0
         self.period_ticks = int(config["period_ticks"]) if config else 0
         self.start_tick = int(config["start_tick"]) if config else 0
+        # SPEC 4.10: convert with the reference the board measured at this stream's start
+        try:
+            self.reference_mv = int(config["adc_reference_mv"]) if config else 0
+            self.reference_field = "stream_config.adc_reference_mv"
+        except KeyError:
+            self.reference_mv = 0
+        if not self.reference_mv:
+            self.reference_mv = self._identity_reference_mv
+            self.reference_field = "identity.adc_reference_mv"
         self._next_index: int | None = None
         self._chunks: deque[tuple[int, np.ndarray]] = deque()  # (first index, interleaved)
         self._fresh: list[np.ndarray] = []  # blocks not yet in the ring nor clip-counted
@@ -264,7 +278,10 @@ class LiveAnalyzer:
             self.identity_seen = True
             self.tick_hz = int(msg["tick_hz"])
             self.adc_bits = int(msg["adc_bits"])
-            self.reference_mv = int(msg["adc_reference_mv"])
+            self._identity_reference_mv = int(msg["adc_reference_mv"])
+            if self.config is None or self.reference_field.startswith("identity"):
+                self.reference_mv = self._identity_reference_mv
+                self.reference_field = "identity.adc_reference_mv"
             self.aperture_ticks = int(msg["aperture_delay_ticks"])
         return False
 
@@ -292,6 +309,16 @@ class LiveAnalyzer:
         indices was seen: firmware that shifts sample times instead of skipping them (a wrong
         reading), so readings are refused."""
         return self.board_losses().get("adc_overruns", 0) > 0 and not self._gaps
+
+    @property
+    def reference_problem(self) -> str | None:
+        """Why counts cannot become volts (SPEC 4.10): the ADC reference outside
+        limits.usable_reference_mv, the field named; None when it is usable."""
+        if self.reference_mv in USABLE_REFERENCE_MV:
+            return None
+        return (f"refused: the ADC reference {self.reference_field} is {self.reference_mv} mV, "
+                f"outside {USABLE_REFERENCE_MV.min}..{USABLE_REFERENCE_MV.max} mV: the board's "
+                "USB supply is out of range (try another USB port, cable or a powered hub)")
 
     def end_of_stream(self) -> None:
         """No more messages will come (the end of a capture): stop holding back the newest
@@ -495,6 +522,9 @@ class LiveAnalyzer:
         if self.revs_with_gaps:
             out.append(f"{self.revs_with_gaps} revolution(s) left out for lost samples "
                        "(USB link dropped data)")
+        bad_reference = self.reference_problem
+        if bad_reference:
+            out.append(bad_reference)
         losses = self.board_losses()
         if self.adc_late_unexplained:
             out.append(f"refused: the board counted {losses['adc_overruns']} late ADC "
@@ -531,7 +561,7 @@ class LiveAnalyzer:
         """One reading per pickup over the last ``last`` (default ``max_revs``) revolutions."""
         self._process()
         out: list[Reading] = []
-        if self.adc_late_unexplained:
+        if self.adc_late_unexplained or self.reference_problem:
             return out
         stream = tuple(self.stream_warnings())
         for c in range(self.channels):

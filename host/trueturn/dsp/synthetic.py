@@ -50,7 +50,7 @@ class SyntheticRun:
     noise_counts: float = 2.0
     dc_counts: float = 512.0
     drift_fraction: float = 0.0
-    tick_hz: int = 2_000_000
+    tick_hz: int = load_catalogue().limit("board_tick_hz").min
     start_tick: int = 1000
     aperture_delay_ticks: int = 0
     adc_bits: int = 10

@@ -24,9 +24,7 @@ from typing import Any, Literal
 
 import numpy as np
 
-STANDARD_GRAVITY_M_S2 = 9.80665  # CGPM 1901, exact
-MM_PER_INCH = 25.4
-UM_PER_MIL = 25.4
+from trueturn.constants import MM_PER_INCH, STANDARD_GRAVITY_M_S2, UM_PER_MIL  # noqa: F401
 
 Quantity = Literal["volts", "acceleration", "velocity", "displacement"]
 

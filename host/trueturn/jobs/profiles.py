@@ -12,6 +12,7 @@ from dataclasses import dataclass, field
 from typing import Literal
 
 from trueturn.angles import Rotation, wrap_deg
+from trueturn.constants import MM_PER_INCH
 from trueturn.jobs.schema import limits
 from trueturn.positions import equally_spaced_deg
 
@@ -20,7 +21,7 @@ LengthUnit = Literal["mm", "in"]
 VelocityUnit = Literal["mm/s", "in/s"]
 
 #: Exact definitions (international yard and pound agreement, 1959; NIST SP 811, Appendix B).
-MM_PER_IN = 25.4
+MM_PER_IN = MM_PER_INCH
 G_PER_OZ = 28.349523125
 
 

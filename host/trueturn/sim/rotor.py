@@ -27,7 +27,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-STANDARD_GRAVITY_M_S2 = 9.80665  # CGPM 1901 standard acceleration of gravity
+from trueturn.constants import STANDARD_GRAVITY_M_S2
 
 
 @dataclass(frozen=True)

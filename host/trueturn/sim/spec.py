@@ -15,6 +15,7 @@ from typing import Any
 
 from trueturn.angles import amplitude_phase
 from trueturn.errors import UserError
+from trueturn.link.catalogue import load_catalogue
 from trueturn.sim.rotor import STANDARD_GRAVITY_M_S2, Mass
 from trueturn.sim.scenario import (
     ADC_COUNTS_PER_REFERENCE,
@@ -23,7 +24,7 @@ from trueturn.sim.scenario import (
     load_scenario,
 )
 
-TICK_HZ = 2_000_000
+TICK_HZ = load_catalogue().limit("board_tick_hz").min
 UNCONNECTED_OFFSET_V = ADC_REFERENCE_V / 2
 UNCONNECTED_NOISE_V = 0.002
 CHANNEL_PHASE_STEP_RAD = 0.7  # harmonics differ from pickup to pickup by this much (invented)
@@ -75,8 +76,9 @@ def signal_spec(scenario_name: str | Scenario, channels: int = 2, **overrides: A
     unknown = set(overrides) - _OVERRIDES
     if unknown:
         raise UserError(f"unknown signal spec option(s): {', '.join(sorted(unknown))}")
-    if channels not in (1, 2):
-        raise UserError("channels must be 1 or 2")
+    limit = load_catalogue().limit("channels")
+    if channels not in limit:
+        raise UserError(f"channels must be {limit.span()}")
     sc = scenario_name if isinstance(scenario_name, Scenario) else load_scenario(scenario_name)
     speed = float(overrides.get("speed_rpm") or sc.speed_rpm)
     scale = float(overrides.get("noise_scale", 1.0))

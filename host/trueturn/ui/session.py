@@ -25,7 +25,8 @@ from trueturn.link.session import BoardError, BoardSession, GreetPhase, mismatch
 from trueturn.procedure.standstill import StandstillEvidence, StandstillWatch
 from trueturn.ui.meter import MeterAdapter, MeterView
 
-BOARD_NAMES = {1: "ATmega328P board", 2: "simulated board", 3: "emulated board"}
+#: The catalogue's board_ids in words (emu:// runs the board's own firmware: it says atmega328p)
+BOARD_WORDS = {"atmega328p": "ATmega328P board", "simulated": "simulated board"}
 MOTION_JUDGE_S = 0.2  # board seconds between two judgements of the pickups' motion
 
 
@@ -52,10 +53,10 @@ class BoardIdentity:
                 and self.definition_hash == self.host_definition_hash)
 
     def mismatch_text(self) -> str:
-        return (f"board speaks protocol v{self.protocol_version} (definition "
-                f"{self.definition_hash:08x}), this trueturn speaks v{self.host_protocol_version} "
-                f"(definition {self.host_definition_hash:08x}); flash the matching firmware "
-                "or install the matching trueturn")
+        """The one mismatch message of the link layer (both sides named)."""
+        theirs = {"protocol_version": self.protocol_version,
+                  "definition_hash": self.definition_hash}
+        return mismatch_message(theirs, load_catalogue()) or ""
 
 
 @dataclass
@@ -98,7 +99,8 @@ class LinkSession:
         self.board: BoardSession | None = None
         self._lock = threading.Lock()  # the port (reader thread and rig calls)
         self._state = threading.Lock()  # meter, watch and counters
-        self._tick_hz = 2_000_000
+        self._tick_hz = self.catalogue.limit("board_tick_hz").min
+        self._stream_reference_mv = 0
         self._start_tick = 0
         self._period_ticks = 1
         self._tick_base = 0  # unwrapping the 32-bit tick counter
@@ -136,7 +138,8 @@ class LinkSession:
         self.identity = BoardIdentity(
             protocol_version=v["protocol_version"], definition_hash=v["definition_hash"],
             firmware=f"{v['firmware_major']}.{v['firmware_minor']}.{v['firmware_patch']}",
-            board=BOARD_NAMES.get(v["board_id"], f"board id {v['board_id']}"),
+            board=BOARD_WORDS.get(self.catalogue.board_ids.get(v["board_id"], ""),
+                                  f"board id {v['board_id']}"),
             tick_hz=self._tick_hz, max_channels=v["max_channels"],
             host_protocol_version=self.catalogue.protocol_version,
             host_definition_hash=self.catalogue.definition_hash)
@@ -279,6 +282,7 @@ class LinkSession:
     def _handle_config(self, v: dict[str, Any]) -> None:
         self._start_tick = int(v["start_tick"])
         self._period_ticks = int(v["period_ticks"])
+        self._stream_reference_mv = int(v.get("adc_reference_mv") or 0)
         self._new_motion(float(v["rate_hz"]))
 
     def _new_motion(self, rate_hz: float) -> None:
@@ -288,7 +292,9 @@ class LinkSession:
         if ident is None or rate_hz <= 0:
             self.motion = None
             return
-        volts_per_count = ident["adc_reference_mv"] / 1000.0 / (1 << int(ident["adc_bits"]))
+        # SPEC 4.10: the reference measured at this stream's start, else the identity's
+        reference_mv = self._stream_reference_mv or ident["adc_reference_mv"]
+        volts_per_count = reference_mv / 1000.0 / (1 << int(ident["adc_bits"]))
         scales, units = [], []
         for profile in self.meter.profiles:
             calibrated = profile.sensitivity_v_per_g is not None and profile.sensitivity_v_per_g > 0

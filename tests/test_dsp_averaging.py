@@ -9,6 +9,7 @@ import pytest
 from scipy import stats
 
 from trueturn.dsp.averaging import confidence_radius, steadiness, vector_stats
+from trueturn.dsp.findings import Code, describe
 
 
 def test_radius_formula_against_scipy_f_quantile() -> None:
@@ -47,15 +48,22 @@ def test_steadiness_verdicts() -> None:
     ok, reasons = steadiness(vector_stats(good), speeds)
     assert ok and reasons == ()
     ok, reasons = steadiness(vector_stats(good[:4]), speeds[:4])
-    assert not ok and "only 4 revolutions" in reasons[0]
-    ok, reasons = steadiness(vector_stats(good), np.linspace(1750, 1850, 40))
-    assert not ok and "speed varies" in reasons[0]
+    assert not ok and reasons[0].code is Code.FEW_REVOLUTIONS and reasons[0].count == 4
+    assert "only 4 revolutions" in describe(reasons[0])
+    ok, reasons = steadiness(vector_stats(good), np.linspace(1750, 1850, 40), pickup="left")
+    assert not ok and reasons[0].code is Code.SPEED_VARIES and reasons[0].pickup == "left"
+    # spread (max - min) / mean: 100 / 1800 = 5.56 %
+    assert reasons[0].details["spread_pct"] == pytest.approx(100 * 100 / 1800, rel=1e-3)
+    assert describe(reasons[0]).startswith("left: speed varies by 5.6 %")
     noisy = good + 3 * (rng.normal(size=40) + 1j * rng.normal(size=40))
     ok, reasons = steadiness(vector_stats(noisy), speeds)
-    assert not ok and any("phase uncertain" in r or "not above" in r for r in reasons)
+    assert not ok and {r.code for r in reasons} & {Code.PHASE_UNCERTAIN,
+                                                   Code.NOT_ABOVE_SCATTER}
+    assert all(r.blocking for r in reasons)
     warming = good * np.linspace(1.0, 1.3, 40)  # amplitude still rising (rotor warming up)
     ok, reasons = steadiness(vector_stats(warming), speeds)
-    assert not ok and any("still changing" in r for r in reasons)
+    assert not ok and any(r.code is Code.VECTOR_DRIFTING for r in reasons)
+    assert any("still changing" in describe(r) for r in reasons)
 
 
 def test_small_settled_1x_is_ready_with_a_note() -> None:
@@ -66,4 +74,5 @@ def test_small_settled_1x_is_ready_with_a_note() -> None:
     ok, notes = steadiness(vector_stats(small[:40]), speeds[:40])
     assert not ok  # too early to say
     ok, notes = steadiness(vector_stats(small), speeds)
-    assert ok and "settled after 200 revolutions" in notes[0]
+    assert ok and not notes[0].blocking and notes[0].count == 200
+    assert "settled after 200 revolutions" in describe(notes[0])

@@ -27,7 +27,7 @@ def capture(tmp_path_factory: pytest.TempPathFactory) -> Path:
 
 
 def test_json_contract(capture: Path, capsys: pytest.CaptureFixture[str]) -> None:
-    assert main(["analyze", str(capture), "--json", "--revs", "50"]) == 0
+    assert main(["analyze", str(capture), "--json", "--revs", "50", "--unit", "mm/s"]) == 0
     data = json.loads(capsys.readouterr().out)
     assert data["speed_rpm"] == pytest.approx(1800.0, rel=1e-4)
     assert [p["name"] for p in data["pickups"]] == ["left", "right"]
@@ -42,6 +42,18 @@ def test_json_contract(capture: Path, capsys: pytest.CaptureFixture[str]) -> Non
     assert any(pk["label"] == "1x" and pk["hz"] == pytest.approx(30.0, abs=0.5)
                for pk in data["spectrum_peaks"])
     assert isinstance(data["warnings"], list)
+    # findings as data beside the words (issue #16 item 3): the left pickup has no
+    # sensitivity, so it reads in volts although mm/s was asked; the same in words
+    assert len(data["findings"]) == len(data["warnings"])
+    assert {"code": "uncalibrated", "pickup": "left", "asked_unit": "mm/s rms"} in \
+        data["findings"]
+    assert all(set(f) >= {"code", "pickup"} for f in data["findings"])
+    # what the 95 % circle covers, said in the output (issue #14 item 13)
+    assert "tones_within_unresolved_hz_of_an_order" in data["confidence"]["not_covered"]
+    for p in data["pickups"]:
+        # 50 revolutions at 30 Hz: 1.67 s, so tones closer than 0.6 Hz are not resolved
+        assert p["unresolved_hz"] == pytest.approx(30 / 50, rel=1e-3)
+        assert p["confidence_radius"] >= p["confidence_random"]
 
 
 def test_table_and_options(capture: Path, capsys: pytest.CaptureFixture[str]) -> None:
@@ -49,6 +61,7 @@ def test_table_and_options(capture: Path, capsys: pytest.CaptureFixture[str]) ->
                  "--mains-hz", "60", "--names", "inboard,outboard"]) == 0
     out = capsys.readouterr().out
     assert "speed 1800.0 rpm" in out and "inboard" in out and "mil pk-pk" in out
+    assert "95% conf:" in out and "not covered" in out
 
 
 @pytest.mark.parametrize("args, text", [

@@ -223,3 +223,31 @@ def test_sim_without_tach_is_refused_naming_the_tach(tmp_path) -> None:
     code, _, err = run_cli(["record", "--port", "sim://shop-fan?tach=sometimes", "--seconds",
                             "1", "-o", str(tmp_path / "x.cap")])
     assert code == 2 and "tach must be one of" in err
+
+
+@pytest.mark.parametrize("pattern", [(10.0, 10.0), (12.0, -9.0), (-8.0, -14.0, -6.0)])
+def test_runs_of_knocked_edges_are_cleaned_and_the_average_stays_in_its_circle(
+        pattern: tuple[float, ...]) -> None:
+    # Issue #14 item 11: a knocked mark may knock two or three edges in a row (same way or
+    # either way). Every revolution that starts or ends at a knocked edge is left out (a run
+    # of m knocked edges touches m + 1 revolutions), the kept speeds agree (no "speed
+    # varies"), and the 50-revolution average lands inside its own 95 % circle around the
+    # truth (SLACK as everywhere: 1.5 x the radius fails 0.1 % of correct estimates).
+    starts = (60, 75, 90, 105, 120, 135)  # within the last 50 revolutions and before them
+    shifts = {s + i: deg for s in starts for i, deg in enumerate(pattern)}
+    raw = _rewrite(synthesize(RUN)[0], lambda k, v: {
+        **v, "tick": (v["tick"] + int(round(shifts.get(k, 0.0) / 360 * PERIOD_TICKS)))
+        % (1 << 32)})
+    tracker = TachTracker()
+    for msg in StreamDecoder().feed(raw):
+        if isinstance(msg, Message) and msg.name == "tach":
+            tracker.add_edge(msg["tick"])
+    tracker.close_run()
+    assert tracker.uneven_revolutions == len(starts) * (len(pattern) + 1)
+    result = analyze_capture(raw, revs=50)
+    assert not [f for f in result.findings if f.code.value == "speed_varies"]
+    uneven = next(f for f in result.findings if f.code.value == "tach_uneven")
+    assert uneven.count == len(starts) * (len(pattern) + 1)
+    for r in result.readings:
+        assert r.revolutions == 50 and r.steady, r.warnings
+        assert abs(r.phasor - _truth(r.channel)) <= SLACK * r.confidence_radius, r

@@ -28,6 +28,7 @@ from test_ui_app import (
     widget_text,
 )
 from test_ui_procedure import Rig, tick_all
+from trueturn.dsp.findings import Code, Finding, describe
 from trueturn.jobs.store import read_document
 from trueturn.procedure.guide import GateRefused, Mode
 from trueturn.ui.app import TrueturnApp
@@ -315,14 +316,16 @@ def test_lock_out_after_a_restart_needs_the_tach_seen_working_again() -> None:
 
 
 def test_tach_warnings_in_plain_words() -> None:
-    # the DSP's own warning lines (trueturn.dsp.meter.LiveAnalyzer.stream_warnings)
-    lines = ["3 tach edge(s) missed; those revolutions were left out",
-             "17 extra tach edge(s) ignored (second mark, scratch or flicker?)",
-             "tach timing is uneven (edges scatter by 2.1 deg rms, 4 revolution(s) left out)",
-             "no steady tach signal: check the tach sensor, its aim and the reflective mark",
-             "left: 1x is too close to 60 Hz"]
-    words = tach_faults(lines)
+    # the DSP's findings (trueturn.dsp.meter.LiveAnalyzer.stream_findings), chosen by code
+    found = [Finding(Code.TACH_MISSED_EDGES, count=3), Finding(Code.TACH_EXTRA_EDGES, count=17),
+             Finding(Code.TACH_UNEVEN, count=4, details={"scatter_deg": 2.1}),
+             Finding(Code.NO_TACH), Finding(Code.LINK_TACH_LOST, count=2),
+             Finding(Code.ORDER_ON_MAINS, "left", details={"order": 1, "hum_hz": 60.0})]
+    words = [describe(f, brief=True) for f in tach_faults(found)]
     assert words[0].startswith("no tach edges")
-    assert "missed tach edges (3)" in words[1] and "extra tach edges (17)" in words[2]
-    assert "uneven tach edges" in words[3] and len(words) == 4
-    assert tach_faults(["left: 1x is too close to 60 Hz"]) == ()
+    assert "missed tach edges (3)" in words[1] and "the mark was not seen" in words[1]
+    # edges lost on the USB link are said as link loss, not as a mark the sensor missed
+    assert "lost on the USB link (2)" in words[2] and "mark" not in words[2]
+    assert "extra tach edges (17)" in words[3]
+    assert "uneven tach edges" in words[4] and len(words) == 5
+    assert tach_faults(found[-1:]) == ()

@@ -9,6 +9,8 @@ from typing import Any
 
 from trueturn.cli.common import load_capture, print_json
 from trueturn.dsp.analysis import Analysis, analyze_capture
+from trueturn.dsp.findings import Code, Finding, describe
+from trueturn.dsp.spectrum import SpectrumPeak
 from trueturn.dsp.units import UNITS, PickupProfile
 from trueturn.errors import UserError
 from trueturn.link.catalogue import load_catalogue
@@ -113,7 +115,8 @@ def run(args: argparse.Namespace) -> int:
     _check_protocol(args.capture, metadata, raw)
     short = _incomplete(metadata, raw)
     if short:
-        result = dataclasses.replace(result, warnings=(short, *result.warnings))
+        result = dataclasses.replace(result, warnings=(describe(short), *result.warnings),
+                                     findings=(short, *result.findings))
     if not result.readings:
         why = result.warnings[0] if result.warnings else "no samples and tach edges found"
         raise UserError(f"{args.capture}: no 1x reading could be made ({why})")
@@ -144,8 +147,8 @@ def _check_protocol(name: str, metadata: dict[str, Any], raw: bytes) -> None:
                             "analyze it with the trueturn version that recorded it")
 
 
-def _incomplete(metadata: dict[str, Any], raw: bytes) -> str | None:
-    """A warning when the capture holds less signal than ``record`` was asked for (the
+def _incomplete(metadata: dict[str, Any], raw: bytes) -> Finding | None:
+    """A finding when the capture holds less signal than ``record`` was asked for (the
     cable was pulled, the board restarted or the recording was interrupted)."""
     requested = metadata.get("requested")
     wanted_s = requested.get("seconds") if isinstance(requested, dict) else None
@@ -161,8 +164,15 @@ def _incomplete(metadata: dict[str, Any], raw: bytes) -> str | None:
     got_s = samples / per_second if per_second else 0.0
     if got_s >= 0.98 * wanted_s:
         return None
-    return (f"incomplete capture: {got_s:.2f} of the {wanted_s:g} s asked for were recorded "
-            "(the link was lost, the board restarted or the recording was stopped)")
+    return Finding(Code.INCOMPLETE_CAPTURE, details={"recorded_s": round(got_s, 3),
+                                                     "requested_s": wanted_s})
+
+
+def _peak_label(peak: SpectrumPeak) -> str:
+    """``line``, ``line + 2x`` (the stronger first), ``line, fitted`` (its level from the
+    order fit: the spectrum cannot show it beside a strong neighbour)."""
+    label = " + ".join((peak.label, *peak.also))
+    return f"{label}, fitted" if peak.fitted else label
 
 
 def format_table(result: Analysis) -> str:
@@ -184,8 +194,18 @@ def format_table(result: Analysis) -> str:
         lines.append(f"{r.sensor}: {orders} ({r.unit})")
     for spec in result.spectra:
         if spec.peaks:
-            peaks = ", ".join(f"{p.hz:.1f} Hz {p.amplitude:.3g} [{p.label}]" for p in spec.peaks)
+            peaks = ", ".join(f"{p.hz:.1f} Hz {p.amplitude:.3g} [{_peak_label(p)}]"
+                              for p in spec.peaks)
             lines.append(f"{spec.sensor} spectrum peaks ({spec.unit}): {peaks}")
+    if result.readings:
+        bias = max(r.timing_bias_deg for r in result.readings)
+        unresolved = max(1.0 / r.window_s for r in result.readings if r.window_s > 0) \
+            if any(r.window_s > 0 for r in result.readings) else math.inf
+        lines += ["", f"95% conf: the scatter of the averaged revolutions (noise, hum left "
+                      f"over, tach jitter) plus up to {bias:.3f} deg of tach and aperture "
+                      "timing; not covered: a vibration within "
+                      f"{unresolved:.2g} Hz of 1x, the pickup sensitivity and ADC reference, "
+                      "filters beyond the pickup profile, the tach sensor's own delay"]
     if result.warnings:
         lines += ["", "warnings:"] + [f"  - {w}" for w in result.warnings]
     return "\n".join(lines)

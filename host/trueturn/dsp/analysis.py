@@ -13,11 +13,24 @@ from dataclasses import dataclass
 from typing import Any
 
 from trueturn.dsp.averaging import SteadinessLimits
+from trueturn.dsp.findings import Code, Finding, describe, unique
 from trueturn.dsp.meter import LiveAnalyzer, Reading
 from trueturn.dsp.spectrum import SpectrumPeak
 from trueturn.dsp.units import PickupProfile
 from trueturn.link.codec import LinkEvent, Message, StreamDecoder
 
+# What each pickup's 95 % circle (confidence_radius) covers and what it does not
+# (dsp/README.md, "What the 95 % circle covers"); part of the JSON contract.
+CONFIDENCE_SCOPE: dict[str, Any] = {
+    "level": 0.95,
+    "covers": ["noise", "hum_residue", "tach_jitter", "tach_tick_quantisation",
+               "tones_apart_from_orders", "tach_capture_bias_bound", "aperture_rounding_bound"],
+    "not_covered": ["tones_within_unresolved_hz_of_an_order", "sensitivity_and_adc_reference",
+                    "input_chain_beyond_profile", "tach_sensor_latency"],
+}
+# The most samples one block holds (protocol/catalogue.yaml, samples: "1..120"): the fewest
+# frames a run of lost samples can have taken
+MAX_BLOCK_SAMPLES = 120
 # The most revolutions one analysis averages (about 2.7 min at 3000 rpm); longer captures
 # use their last ALL_REVS and say so.
 ALL_REVS = 8192
@@ -42,6 +55,7 @@ class Analysis:
     spectra: tuple[PickupPeaks, ...]
     warnings: tuple[str, ...]
     link: dict[str, Any]
+    findings: tuple[Finding, ...] = ()  # the warnings as data, in the same order
 
     def to_json(self) -> dict[str, Any]:
         def num(x: float, digits: int = 6) -> float | None:
@@ -54,6 +68,9 @@ class Analysis:
                 "amplitude": num(r.amplitude), "unit": r.unit,
                 "phase_deg": num(r.phase_deg, 3), "confidence_deg": num(r.confidence_deg, 3),
                 "confidence_radius": num(r.confidence_radius),
+                "confidence_random": num(r.confidence_random),
+                "timing_bias_deg": num(r.timing_bias_deg, 5),
+                "unresolved_hz": num(1.0 / r.window_s if r.window_s > 0 else math.inf, 4),
                 "revolutions": r.revolutions, "steady": r.steady,
                 "speed_rpm": num(r.speed_rpm, 3),
                 "orders": [{"order": h.order, "amplitude": num(h.amplitude),
@@ -63,9 +80,11 @@ class Analysis:
             } for r in self.readings],
             "spectrum_peaks": [{"pickup": s.sensor, "hz": num(p.hz, 3),
                                 "amplitude": num(p.amplitude), "unit": s.unit,
-                                "label": p.label}
+                                "label": p.label, "also": list(p.also), "fitted": p.fitted}
                                for s in self.spectra for p in s.peaks],
+            "confidence": CONFIDENCE_SCOPE,
             "warnings": list(self.warnings),
+            "findings": [f.to_json() for f in self.findings],
             "link": self.link,
         }
 
@@ -89,39 +108,38 @@ def analyze_capture(raw: bytes, revs: int | None = None, mains_hz: float | None 
     decoder = StreamDecoder()
     if identity:
         decoder.assume_identity(identity)
-    link_notes: list[str] = []
+    found: list[Finding] = []
+    board = _BoardLosses()
     chunk = 1 << 16
     for start in range(0, len(raw), chunk):
         for item in decoder.feed(raw[start:start + chunk]):
             if isinstance(item, LinkEvent):
                 if item.kind == "board_reset":
-                    link_notes.append("the board restarted during the capture; "
-                                      "only the last stream is analysed")
+                    found.append(Finding(Code.BOARD_RESTART))
                 elif item.kind == "stream_config_missing" and meter.config is not None:
-                    link_notes.append("a stream's stream_config message was lost; its "
-                                      "sample times were taken from the sample blocks")
+                    found.append(Finding(Code.TIMEBASE_FROM_BLOCKS))
                 continue
+            if item.name == "status":
+                board.status(item)
+            elif item.name == "samples":
+                board.block(len(item["samples"]))
             meter.feed(item)
     meter.end_of_stream()
     readings = tuple(meter.readings())
-    warnings = list(dict.fromkeys(link_notes))
+    found = unique(found)
     c = decoder.counters
-    if c.frames_bad:
-        refused = c.errors["bad_value"] + c.errors["wrong_direction"]
-        warnings.append(f"{c.frames_bad} damaged frame(s) skipped (CRC or framing errors"
-                        + (f"; {refused} with values no board sends" if refused else "") + ")")
+    found += link_findings(c.to_json(), board)
     if revs is None and meter.tach.revolutions > ALL_REVS:
-        warnings.append(f"long capture: the last {ALL_REVS} revolutions are averaged")
+        found.append(Finding(Code.LONG_CAPTURE, count=ALL_REVS))
     if meter.streams > 1:
-        warnings.append(f"{meter.streams} streams with samples in the capture; only the last "
-                        "is analysed")
+        found.append(Finding(Code.SEVERAL_STREAMS, count=meter.streams))
     if readings:
         for r in readings:
-            warnings += [w for w in r.warnings if w not in warnings]
+            found += r.findings
     else:
-        warnings += [w for w in meter.stream_warnings() if w not in warnings]
+        found += meter.stream_findings()
         if meter.config is not None and meter.tach.revolutions:
-            warnings.append("no whole revolution with samples in the capture")
+            found.append(Finding(Code.NO_WHOLE_REVOLUTION))
     spectra = []
     for ch, spec in enumerate(meter.spectra()):
         if spec is not None:
@@ -131,8 +149,66 @@ def analyze_capture(raw: bytes, revs: int | None = None, mains_hz: float | None 
         other_mains = 110.0 - mains_hz
         for spec in spectra:
             if any(p.label == "other" and abs(p.hz - other_mains) < 0.5 for p in spec.peaks[:3]):
-                warnings.append(f"{spec.sensor}: a strong {other_mains:g} Hz peak; is the mains "
-                                f"setting ({mains_hz:g} Hz) right for this place?")
+                found.append(Finding(Code.MAINS_SETTING, spec.sensor, details={
+                    "other_mains_hz": other_mains, "mains_hz": mains_hz}))
     speed = float(meter.speeds_rpm().mean()) if meter.tach.revolutions and len(
         meter.speeds_rpm()) else math.nan
-    return Analysis(speed, readings, tuple(spectra), tuple(warnings), c.to_json())
+    found = unique(found)
+    return Analysis(speed, readings, tuple(spectra), tuple(describe(f) for f in found),
+                    c.to_json(), tuple(found))
+
+
+class _BoardLosses:
+    """What the board itself dropped (status counters, totals since its reset, SPEC 4.6),
+    summed over the capture across restarts; and the largest sample block seen."""
+
+    def __init__(self) -> None:
+        self.first: dict[str, int] | None = None
+        self.last: dict[str, int] | None = None
+        self.total = {"samples_dropped": 0, "frames_dropped": 0}
+        self.block_max = 0
+
+    def status(self, msg: Message) -> None:
+        now = {k: int(msg[k]) for k in self.total}
+        if self.last is not None and all(now[k] >= v for k, v in self.last.items()):
+            for k in self.total:
+                self.total[k] += now[k] - self.last[k]
+        self.last = now
+
+    def block(self, samples: int) -> None:
+        self.block_max = max(self.block_max, samples)
+
+
+def link_findings(link: dict[str, Any], board: _BoardLosses | None = None) -> list[Finding]:
+    """Findings about the USB link from the decoder's counters (``LinkCounters.to_json``).
+
+    Lost frames are said with what they held (samples, tach edges, or neither: then the
+    readings are unaffected). A loss of a whole number of 256 frames leaves the 8-bit
+    sequence number in step; it is found when the sample indices and the tach edge count
+    need more lost frames than the sequence number shows (after what the board itself
+    said it dropped: ``samples_dropped`` and ``frames_dropped`` in status), and said.
+    """
+    out: list[Finding] = []
+    bad = int(link.get("frames_bad", 0))
+    if bad:
+        refused = int(link.get("err_bad_value", 0)) + int(link.get("err_wrong_direction", 0))
+        out.append(Finding(Code.LINK_DAMAGED_FRAMES, count=bad,
+                           details={"bad_values": refused}))
+    seen = int(link.get("frames_lost", 0))
+    samples = int(link.get("samples_lost", 0))
+    tach = int(link.get("tach_edges_lost", 0))
+    dropped_samples = board.total["samples_dropped"] if board else 0
+    dropped_frames = board.total["frames_dropped"] if board else 0
+    block = board.block_max if board and board.block_max else MAX_BLOCK_SAMPLES
+    # frames that must have been lost on the way to carry the gaps the board did not cause
+    on_link = max(samples - dropped_samples, 0)
+    needed = tach + -(-on_link // block)
+    unseen = 0
+    if needed > seen + dropped_frames:
+        unseen = 256 * -(-(needed - seen - dropped_frames) // 256)
+        out.append(Finding(Code.LINK_UNSEEN_LOSS, count=unseen, details={
+            "samples": on_link, "tach_edges": tach, "frames_by_sequence": seen}))
+    if seen or unseen:
+        out.append(Finding(Code.LINK_FRAMES_LOST, count=seen + unseen, details={
+            "samples": on_link, "tach_edges": tach, "frames_by_sequence": seen}))
+    return out

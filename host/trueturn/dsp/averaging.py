@@ -17,6 +17,8 @@ from functools import lru_cache
 import numpy as np
 from scipy import stats
 
+from trueturn.dsp.findings import Code, Finding
+
 
 @dataclass(frozen=True)
 class VectorStats:
@@ -105,35 +107,36 @@ class SteadinessLimits:
 
 
 def steadiness(vector: VectorStats, speeds_rpm: np.ndarray,
-               limits: SteadinessLimits | None = None) -> tuple[bool, tuple[str, ...]]:
-    """(steady, notes) for one pickup's statistics and the revolution speeds.
+               limits: SteadinessLimits | None = None,
+               pickup: str | None = None) -> tuple[bool, tuple[Finding, ...]]:
+    """(steady, findings) for one pickup's statistics and the revolution speeds.
 
-    When not steady the notes say why; when steady they may still say what to keep in mind
-    (a small 1x whose phase stays uncertain).
+    When not steady the blocking findings say why; when steady a note may still say what
+    to keep in mind (a small 1x whose phase stays uncertain: ``blocking`` False).
     """
     lim = limits or SteadinessLimits()
-    blocking = []
-    notes = []
+    blocking: list[Finding] = []
+    notes: list[Finding] = []
     if vector.revolutions < lim.min_revolutions:
-        blocking.append(f"only {vector.revolutions} revolutions averaged "
-                        f"(need {lim.min_revolutions})")
+        blocking.append(Finding(Code.FEW_REVOLUTIONS, pickup, vector.revolutions,
+                                {"minimum": lim.min_revolutions}, blocking=True))
     speeds = np.asarray(speeds_rpm, dtype=float)
     if speeds.size:
         spread = 100.0 * float(speeds.max() - speeds.min()) / float(speeds.mean())
         if spread > lim.max_speed_spread_pct:
-            blocking.append(f"speed varies by {spread:.1f} % "
-                            f"(limit {lim.max_speed_spread_pct:g} %)")
+            blocking.append(Finding(Code.SPEED_VARIES, pickup, int(speeds.size),
+                                    {"spread_pct": round(spread, 3),
+                                     "limit_pct": lim.max_speed_spread_pct}, blocking=True))
     if vector.drifting:
-        blocking.append("1x vector still changing (first and second half disagree)")
+        blocking.append(Finding(Code.VECTOR_DRIFTING, pickup, vector.revolutions,
+                                {"drift": vector.drift, "drift_radius": vector.drift_radius},
+                                blocking=True))
     if vector.confidence_deg > lim.max_confidence_deg:
-        if vector.confidence_deg >= 180.0:
-            text = "1x is not above the scatter (noise, or a very small 1x)"
-        else:
-            text = (f"phase uncertain by +/-{vector.confidence_deg:.1f} deg "
-                    f"(aim {lim.max_confidence_deg:g} deg)")
-        if vector.revolutions >= lim.settled_revolutions and not blocking:
-            notes.append(text + f"; settled after {vector.revolutions} revolutions, so the "
-                                "1x is small compared with the scatter")
-        else:
-            blocking.append(text)
+        code = Code.NOT_ABOVE_SCATTER if vector.confidence_deg >= 180.0 else \
+            Code.PHASE_UNCERTAIN
+        details = {"confidence_deg": round(vector.confidence_deg, 3),
+                   "limit_deg": lim.max_confidence_deg}
+        settled = vector.revolutions >= lim.settled_revolutions and not blocking
+        finding = Finding(code, pickup, vector.revolutions, details, blocking=not settled)
+        (notes if settled else blocking).append(finding)
     return not blocking, tuple(blocking + notes)

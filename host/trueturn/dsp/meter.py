@@ -20,6 +20,7 @@ every sample block (SPEC 4.4), so a lost stream_config never misplaces a sample 
 from __future__ import annotations
 
 import bisect
+import dataclasses
 import math
 from collections import deque
 from collections.abc import Iterable, Sequence
@@ -28,10 +29,17 @@ from typing import Any, Protocol
 
 import numpy as np
 
-from trueturn.dsp.averaging import SteadinessLimits, VectorStats, steadiness, vector_stats
+from trueturn.dsp.averaging import (
+    SteadinessLimits,
+    VectorStats,
+    steadiness,
+    subtended_deg,
+    vector_stats,
+)
+from trueturn.dsp.findings import Code, Finding, describe
 from trueturn.dsp.order import ROW_FIELDS, BlockFit, fit_blocks, group_for, solve_orders
 from trueturn.dsp.shaft import Revolution, TachTracker, extend_tick
-from trueturn.dsp.spectrum import Spectrum, spectrum
+from trueturn.dsp.spectrum import Spectrum, name_by_levels, spectrum
 from trueturn.dsp.units import (
     PickupProfile,
     chain_response,
@@ -48,6 +56,10 @@ DEFAULT_REFERENCE_MV = 5000
 USABLE_REFERENCE_MV = load_catalogue().limit("usable_reference_mv")
 MAX_REVOLUTION_S = 10.0  # slowest shaft measured: 6 rpm
 TACH_SCATTER_WARN_DEG = 0.5  # tach edges scattering more than this are worth a word
+# Timing bias bound, in board ticks: the input capture holds the tick in which the tach edge
+# came (up to 1 tick after it, ATmega328P datasheet, "Input Capture Unit", from memory), and
+# identity.aperture_delay_ticks is the trigger-to-hold delay rounded to whole ticks (0.5).
+TIMING_BIAS_TICKS = 1.5
 
 
 class MessageLike(Protocol):
@@ -83,6 +95,12 @@ class Reading:
     harmonics: tuple[Harmonic, ...] = ()
     noise_rms_v: float = math.nan
     hum_v: dict[float, float] = field(default_factory=dict)
+    findings: tuple[Finding, ...] = ()  # the warnings as data (trueturn.dsp.findings)
+    # What the 95 % circle is made of (dsp/README.md, "What the 95 % circle covers"):
+    # the random part from the revolutions' scatter, plus a bound on the timing bias
+    confidence_random: float = math.nan  # radius from the scatter alone
+    timing_bias_deg: float = 0.0  # phase bound of tach capture and aperture rounding
+    window_s: float = math.nan  # time spanned by the averaged revolutions
 
     @property
     def phasor(self) -> complex:
@@ -208,6 +226,7 @@ class LiveAnalyzer:
         self.streams = 0  # streams that carried samples (a configure-only one does not count)
         self.tach = TachTracker()
         self.timebase_from_blocks = 0  # streams whose stream_config never arrived
+        self._edge_count: int | None = None  # the last tach message's edge_count
         self._last_status: MessageLike | None = None
         self._reset_stream(None)
 
@@ -241,6 +260,7 @@ class LiveAnalyzer:
         self._last_update_tick = self.start_tick
         self.revs_with_gaps = 0
         self.revs_uneven = 0
+        self._levels: dict[int, dict[str, float]] = {}  # per channel, from the last reading
         self._ended = False
         self.revs_skipped = 0
         self.clipped_samples = 0
@@ -262,9 +282,14 @@ class LiveAnalyzer:
         if name == "samples":
             return self._samples(msg)
         if name == "tach":
+            count = int(msg["edge_count"])
+            # the board counts every edge it takes (16 bits, SPEC 4.5): a jump is edges the
+            # USB link lost, not edges the sensor missed
+            lost = (count - self._edge_count - 1) & 0xFFFF if self._edge_count is not None else 0
+            self._edge_count = count
             if self.config is not None:
                 tick = extend_tick(int(msg["tick"]), self._latest_tick)
-                rev = self.tach.add_edge(tick)
+                rev = self.tach.add_edge(tick, lost)
                 if rev is not None:
                     self._pending.append(rev)
                     self._pending_ends.append(rev.end_tick)
@@ -275,6 +300,7 @@ class LiveAnalyzer:
         elif name == "stream_config":
             self._reset_stream(msg)
         elif name == "identity":
+            self._edge_count = None  # a board restart counts from 0 again
             self.identity_seen = True
             self.tick_hz = int(msg["tick_hz"])
             self.adc_bits = int(msg["adc_bits"])
@@ -322,8 +348,10 @@ class LiveAnalyzer:
 
     def end_of_stream(self) -> None:
         """No more messages will come (the end of a capture): stop holding back the newest
-        revolution for the edge after it."""
+        revolution for the edge after it, and leave out a run of off tach edges that never
+        came back in step."""
         self._ended = True
+        self.tach.close_run()
 
     def feed_all(self, messages: Iterable[MessageLike]) -> None:
         for msg in messages:
@@ -403,6 +431,10 @@ class LiveAnalyzer:
             newest = self._pending[-1]
             if newest.number == self.tach.revolutions - 1 and \
                     self._latest_tick < newest.end_tick + 2 * newest.period_ticks:
+                ready -= 1
+        undecided = self.tach.undecided_from  # a run of off tach edges not closed yet
+        if undecided is not None:
+            while ready and self._pending[ready - 1].number >= undecided:
                 ready -= 1
         return ready
 
@@ -493,55 +525,58 @@ class LiveAnalyzer:
             return self.profiles[channel]
         return PickupProfile(name=f"pickup {channel + 1}")
 
-    def stream_warnings(self) -> list[str]:
-        """Problems with the stream as a whole (tach, link, set-up), one line each."""
-        out = []
+    def stream_findings(self) -> list[Finding]:
+        """Problems with the stream as a whole (tach, link, set-up), as data."""
+        out: list[Finding] = []
         self._flush_fresh()
         if self.config is None:
-            out.append("no stream_config message: the capture holds no usable samples")
+            out.append(Finding(Code.NO_STREAM))
             return out
-        if self.samples_seen and self.tach.revolutions == 0:
-            out.append("no steady tach signal: check the tach sensor, its aim and the "
-                       "reflective mark")
+        tach = self.tach
+        if self.samples_seen and tach.revolutions == 0:
+            out.append(Finding(Code.NO_TACH))
         if not self.identity_seen:
-            out.append(f"no identity message: assumed a {DEFAULT_ADC_BITS}-bit ADC, "
-                       f"{DEFAULT_REFERENCE_MV / 1000:.3f} V reference, {DEFAULT_TICK_HZ} Hz "
-                       "clock and no aperture delay")
-        if self.tach.double_edges:
-            out.append(f"{self.tach.double_edges} extra tach edge(s) ignored (second mark, "
-                       "scratch or flicker?)")
-        if self.tach.missing_edges:
-            out.append(f"{self.tach.missing_edges} tach edge(s) missed; those revolutions "
-                       "were left out")
-        scatter = self.tach.timing_scatter_deg
+            out.append(Finding(Code.NO_IDENTITY, details={
+                "adc_bits": DEFAULT_ADC_BITS, "reference_mv": DEFAULT_REFERENCE_MV,
+                "tick_hz": DEFAULT_TICK_HZ}))
+        if tach.double_edges:
+            out.append(Finding(Code.TACH_EXTRA_EDGES, count=tach.double_edges))
+        if tach.missing_edges:
+            out.append(Finding(Code.TACH_MISSED_EDGES, count=tach.missing_edges))
+        if tach.link_lost_edges:
+            out.append(Finding(Code.LINK_TACH_LOST, count=tach.link_lost_edges))
+        scatter = tach.timing_scatter_deg
         if self.revs_uneven or scatter > TACH_SCATTER_WARN_DEG:
-            out.append(f"tach timing is uneven (edges scatter by {scatter:.1f} deg rms, "
-                       f"{self.revs_uneven} revolution(s) left out): clean or renew the "
-                       "reflective mark, check the sensor's distance and that its mount is "
-                       "tight; speed and phase readings wander with it")
+            out.append(Finding(Code.TACH_UNEVEN, count=self.revs_uneven, details={
+                "scatter_deg": round(scatter, 3) if math.isfinite(scatter) else math.nan}))
         if self.revs_with_gaps:
-            out.append(f"{self.revs_with_gaps} revolution(s) left out for lost samples "
-                       "(USB link dropped data)")
-        bad_reference = self.reference_problem
-        if bad_reference:
-            out.append(bad_reference)
+            out.append(Finding(Code.LINK_SAMPLES_LOST, count=self.revs_with_gaps))
+        if self.reference_problem:
+            out.append(Finding(Code.ADC_REFERENCE_REFUSED, details={
+                "field": self.reference_field, "reference_mv": self.reference_mv,
+                "min_mv": USABLE_REFERENCE_MV.min, "max_mv": USABLE_REFERENCE_MV.max}))
         losses = self.board_losses()
         if self.adc_late_unexplained:
-            out.append(f"refused: the board counted {losses['adc_overruns']} late ADC "
-                       "conversion(s) (adc_late) in this stream but no gap in the sample "
-                       "indices: sample times may be shifted; update the firmware")
+            out.append(Finding(Code.ADC_LATE_REFUSED, count=losses["adc_overruns"]))
         elif losses.get("adc_overruns", 0) > 0:
-            out.append(f"{losses['adc_overruns']} late ADC conversion(s) on the board "
-                       "(adc_late): the samples around them were dropped and their "
-                       "revolutions left out")
+            out.append(Finding(Code.ADC_LATE, count=losses["adc_overruns"]))
         if self.clipped_samples:
-            out.append(f"{self.clipped_samples} sample(s) at the ADC limits: the pickup "
-                       "signal clips; reduce its gain or move it")
+            out.append(Finding(Code.CLIPPED, count=self.clipped_samples))
         return out
+
+    def stream_warnings(self) -> list[str]:
+        """:meth:`stream_findings` in words, one line each."""
+        return [describe(f) for f in self.stream_findings()]
 
     def _stacked(self, channel: int, last: int | None) -> dict[str, np.ndarray]:
         n = min(last or self.max_revs, self.max_revs)
         return self._rows[channel].last(n)
+
+    def _stacked_ticks(self, last: int | None) -> np.ndarray:
+        n = min(last or self.max_revs, self.max_revs)
+        if not len(self._periods):
+            return np.zeros(0, dtype=np.int64)
+        return self._periods.last(n)["ticks"]
 
     def speeds_rpm(self, last: int | None = None) -> np.ndarray:
         """Speed of each averaged revolution (rpm), oldest first."""
@@ -563,14 +598,14 @@ class LiveAnalyzer:
         out: list[Reading] = []
         if self.adc_late_unexplained or self.reference_problem:
             return out
-        stream = tuple(self.stream_warnings())
+        stream = tuple(self.stream_findings())
         for c in range(self.channels):
             if not len(self._rows[c]):
                 continue
             out.append(self._reading(c, last, stream))
         return out
 
-    def _reading(self, c: int, last: int | None, stream_warnings: tuple[str, ...]) -> Reading:
+    def _reading(self, c: int, last: int | None, stream: tuple[Finding, ...]) -> Reading:
         rows = self._stacked(c, last)
         est = solve_orders(BlockFit(self.orders, self._nuisance_hz(), **rows))
         good = np.isfinite(rows["coef_y"]).all(axis=1)
@@ -579,40 +614,55 @@ class LiveAnalyzer:
         profile = self.profile(c)
         unit = self.unit or default_unit(profile)
         vpc = self.volts_per_count
-        warnings = list(stream_warnings)
+        findings = list(stream)
         # Per-revolution 1x vectors converted at each revolution's own speed.
         factors, used_unit = conversion_factors(profile, freqs_hz, unit)
         if used_unit != unit:
-            warnings.append(f"{profile.name}: no sensitivity known, shown in volts")
+            findings.append(Finding(Code.UNCALIBRATED, profile.name,
+                                    details={"asked_unit": unit}))
         k1 = self.orders.index(1)
         vectors = est.phasors[:, k1] * vpc * factors
         vstats: VectorStats = vector_stats(vectors)
-        steady, reasons = steadiness(vstats, speeds, self.limits)
-        warnings += [f"{profile.name}: {r}" for r in reasons]
+        steady, reasons = steadiness(vstats, speeds, self.limits, profile.name)
+        findings += reasons
         mean_hz = float(freqs_hz.mean()) if freqs_hz.size else math.nan
         groups = self._hum_groups()
         for base, comb in groups.items():
             if not any(f in est.dropped_hz for f in comb):
                 continue
             order = round(base / mean_hz) if mean_hz > 0 else 0
-            what = f"{order}x" if order in self.orders else "an order"
-            warnings.append(f"{what} is too close to {base:g} Hz, a mains hum frequency: any "
-                            "hum there adds to it (a slightly different speed separates them)")
+            findings.append(Finding(Code.ORDER_ON_MAINS, profile.name, details={
+                "order": order if order in self.orders else 0, "hum_hz": base}))
         harmonics = []
+        levels: dict[str, float] = {}  # volts pk, as the spectrum sees them (no chain)
         for k, h in enumerate(self.orders):
             mean_v = complex(est.phasors[:, k].mean()) * vpc if len(est.phasors) else 0j
+            levels[f"{h}x"] = abs(mean_v)
             value, _ = convert_phasor(mean_v, profile, h * mean_hz, unit) \
                 if math.isfinite(mean_hz) else (0j, unit)
             harmonics.append(Harmonic(h, abs(value),
                                       math.degrees(math.atan2(value.imag, value.real)) % 360.0))
+        hum_v = {base: est.tone_amplitude(comb) * vpc for base, comb in groups.items()
+                 if not any(f in est.dropped_hz for f in comb)}
+        for base, level in hum_v.items():
+            levels["line" if base == self.mains_hz else "2x line"] = level
+        self._levels[c] = levels
+        # the 95 % circle: the random part plus the timing bias bound, added (conservative)
+        bias_rad = 2.0 * math.pi * mean_hz * TIMING_BIAS_TICKS / self.tick_hz \
+            if math.isfinite(mean_hz) else 0.0
+        radius = vstats.confidence_radius + vstats.amplitude * bias_rad
+        window_s = float(self._stacked_ticks(last)[-len(good):][good].sum()) / self.tick_hz
         return Reading(
             sensor=profile.name, channel=c, amplitude=vstats.amplitude, unit=used_unit,
-            phase_deg=vstats.phase_deg, confidence_deg=vstats.confidence_deg,
-            confidence_radius=vstats.confidence_radius, revolutions=vstats.revolutions,
+            phase_deg=vstats.phase_deg,
+            confidence_deg=subtended_deg(radius, vstats.amplitude),
+            confidence_radius=radius, revolutions=vstats.revolutions,
             steady=steady, speed_rpm=float(speeds.mean()) if speeds.size else math.nan,
-            warnings=tuple(warnings), harmonics=tuple(harmonics),
+            warnings=tuple(describe(f) for f in findings), harmonics=tuple(harmonics),
             noise_rms_v=est.noise_rms * vpc,
-            hum_v={base: est.tone_amplitude(comb) * vpc for base, comb in groups.items()},
+            hum_v=hum_v, findings=tuple(findings),
+            confidence_random=vstats.confidence_radius, timing_bias_deg=math.degrees(bias_rad),
+            window_s=window_s,
         )
 
     def spectra(self, resolution_hz: float = 1.0) -> list[Spectrum | None]:
@@ -634,8 +684,15 @@ class LiveAnalyzer:
             if profile.calibrated:
                 assert profile.sensitivity_v_per_g is not None
                 scale /= profile.sensitivity_v_per_g
-            out.append(spectrum(values * scale, self.rate_hz, rot_hz, self.mains_hz,
-                                resolution_hz))
+            spec = spectrum(values * scale, self.rate_hz, rot_hz, self.mains_hz, resolution_hz)
+            levels = self._levels.get(c)
+            if levels:  # name coinciding peaks by the fitted levels; show hidden mains lines
+                named = name_by_levels(spec.peaks, {k: v * scale / self.volts_per_count
+                                                    for k, v in levels.items()},
+                                       self.mains_hz, rot_hz, spec.resolution_hz,
+                                       spec.detect_amplitude)
+                spec = dataclasses.replace(spec, peaks=named)
+            out.append(spec)
         return out
 
     def spectrum_unit(self, channel: int) -> str:

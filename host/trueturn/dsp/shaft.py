@@ -9,16 +9,27 @@ a ratio well below 1 is a double trigger (a scratch, a second reflective spot, n
 edge is dropped; a ratio near 2 or more means edges were missed and the long interval is not
 used as a revolution. Both are counted and flagged, never silently averaged in.
 
-Timing jitter (a dirty or worn mark, a slow sensor, a loose mount) moves single edges early
-or late. Each accepted period is compared with the one predicted from the recent ones (a
+Timing jitter (a dirty or worn mark, a slow sensor, a loose mount) moves edges early or
+late. Each accepted period is compared with the one predicted from the recent ones (a
 Theil-Sen line, robust to the odd bad edge, so a spin-up or coast-down is not mistaken for
-jitter). An edge that came early or late makes the revolution before it long and the one
-after it short by the same amount: when two neighbouring revolutions are off in opposite
-directions by more than ``uneven_fraction`` of a turn, both are listed in ``uneven`` so
-averages leave them out (a sudden change of speed puts both on the same side and is not
-taken for jitter). The residuals' scatter gives the edge timing scatter in degrees: white
-edge jitter of sigma shows as period residuals of sigma * sqrt(2) (common practice, no
-source).
+jitter), and each edge with the time where the good edges before it put it: the last point
+of that time line plus the predicted period. A good edge moves the time line halfway to
+itself (``ANCHOR_GAIN``: white jitter averages out); an edge more than ``uneven_fraction``
+of a turn off it is off and does not move it. A run of off edges closes at the next good
+edge, and every revolution that starts or ends at an off edge is listed in ``uneven`` so
+averages leave it out: runs of knocked edges (two or three in a row, either way) are
+cleaned as well as single ones, and the good edges around them are judged against the
+time line, not against the knocked edges. While a run is open its revolutions are undecided
+(``undecided_from``; the live meter holds them). A run that does not close within
+``max_uneven_run`` edges starts the time line again from the latest edge: when its offsets
+grew steadily one way it was a change of speed the prediction had not caught up with and
+its revolutions are kept, otherwise (edges wandering, heavy jitter) they are left out. The period residuals' scatter
+gives the edge timing scatter in degrees: white edge jitter of sigma shows as period
+residuals of sigma * sqrt(2) (common practice, no source).
+
+Tach edges the board saw but the USB link lost (``add_edge(..., lost_before=n)``, from the
+tach message's edge counter) are link loss, not a sensor fault: the interval across them is
+not used and they are counted in ``link_lost_edges``, apart from ``missing_edges``.
 """
 
 from __future__ import annotations
@@ -31,6 +42,11 @@ from dataclasses import dataclass
 import numpy as np
 
 TICK_WRAP = 1 << 32
+# How far a good tach edge moves the time line the next edges are judged against (1: to the
+# edge itself). Below 1, white edge jitter averages out over a few edges, so one edge a little
+# early does not make the good edges after it look late (an alpha tracker; common practice,
+# no source); a knocked edge (off) does not move it at all.
+ANCHOR_GAIN = 0.5
 
 
 def extend_tick(tick_u32: int, reference_tick: int) -> int:
@@ -76,7 +92,8 @@ class Revolution:
 
 @dataclass(frozen=True)
 class EdgeFlag:
-    """A tach edge that was not used: ``kind`` is ``double``, ``missing`` or ``restart``."""
+    """A tach edge that was not used: ``kind`` is ``double``, ``missing``, ``link`` (edges
+    lost on the USB link before it) or ``restart``."""
 
     tick: int
     kind: str
@@ -96,13 +113,17 @@ class TachTracker:
 
     def __init__(self, double_ratio: float = 0.7, missing_ratio: float = 1.5,
                  history: int = 9, restart_after: int = 4, max_flags: int = 256,
-                 uneven_fraction: float = 0.01) -> None:
+                 uneven_fraction: float = 0.01, max_uneven_run: int = 4) -> None:
         self.double_ratio = double_ratio
         self.uneven_fraction = uneven_fraction
+        self.max_uneven_run = max_uneven_run
         self.uneven_revolutions = 0
         self.uneven: deque[int] = deque(maxlen=max_flags)  # numbers of uneven revolutions
         self._residuals: deque[float] = deque(maxlen=64)  # (period - predicted) / predicted
-        self._previous: tuple[int, int, float] | None = None  # (number, end tick, residual)
+        self._anchor: float | None = None  # where the time line puts the last edge (ticks)
+        self._run: list[int] = []  # numbers of the revolutions of the open run
+        self._run_offsets: list[float] = []  # the offsets of its edges (fraction of a turn)
+        self.link_lost_edges = 0
         self.missing_ratio = missing_ratio
         self.restart_after = restart_after
         self._periods: deque[int] = deque(maxlen=history)
@@ -130,14 +151,28 @@ class TachTracker:
         """Forget the edge history (a new stream)."""
         self._periods.clear()
         self._residuals.clear()
-        self._previous = None
+        self._run.clear()
+        self._run_offsets.clear()
+        self._anchor = None
         self._last_edge = None
         self._candidate = None
         self._rejected_in_row = 0
 
-    def add_edge(self, tick: int) -> Revolution | None:
-        """Take one edge (64-bit tick); return the revolution it completes, if any."""
+    def add_edge(self, tick: int, lost_before: int = 0) -> Revolution | None:
+        """Take one edge (64-bit tick); return the revolution it completes, if any.
+
+        ``lost_before``: edges the board counted before this one that never arrived (lost on
+        the USB link): the interval across them is no revolution and the edges are counted
+        in ``link_lost_edges``, not as missed by the sensor.
+        """
         last = self._last_edge
+        if lost_before > 0 and last is not None:
+            self.link_lost_edges += lost_before
+            self.flags.append(EdgeFlag(tick, "link", 0.0, lost_before))
+            self._last_edge = tick
+            self.close_run()
+            self._anchor = float(tick)
+            return None
         if last is None:
             self._last_edge = tick
             return None
@@ -160,14 +195,16 @@ class TachTracker:
             self.missing_edges += missed
             self.flags.append(EdgeFlag(tick, "missing", ratio, missed))
             self._last_edge = tick
+            self.close_run()
+            self._anchor = float(tick)
             self._rejected(tick)
             return None
-        residual = self._residual(period)
+        residual, predicted = self._residual(period)
         self._rejected_in_row = 0
         self._periods.append(period)
         self._last_edge = tick
         rev = self._emit(last, tick)
-        self._judge(rev, residual)
+        self._judge(rev, residual, predicted)
         return rev
 
     @property
@@ -179,12 +216,13 @@ class TachTracker:
         rms = math.sqrt(sum(r * r for r in self._residuals) / len(self._residuals))
         return 360.0 * rms / math.sqrt(2.0)
 
-    def _residual(self, period: int) -> float | None:
-        """``period`` against the one the recent periods predict, as a fraction of it."""
+    def _residual(self, period: int) -> tuple[float | None, float | None]:
+        """(``period`` against the one the recent periods predict, as a fraction of it;
+        the prediction in ticks), or (None, None) while fewer than four are known."""
         recent = list(self._periods)
         n = len(recent)
         if n < 4:
-            return None
+            return None, None
         pairs, inflation = _theil_sen_table(n)
         # Theil-Sen line through the recent periods (robust to the odd bad edge), one step on
         slope = _median([(recent[j] - recent[i]) / d for i, j, d in pairs])
@@ -192,22 +230,56 @@ class TachTracker:
         predicted = intercept + slope * n
         residual = (period - predicted) / predicted
         self._residuals.append(residual / inflation)
-        return residual
+        return residual, predicted
 
-    def _judge(self, rev: Revolution, residual: float | None) -> None:
-        """Mark ``rev`` and the one before it uneven when the edge they share was off."""
-        previous = self._previous
-        self._previous = None if residual is None else (rev.number, rev.end_tick, residual)
-        if previous is None or residual is None or previous[1] != rev.start_tick:
+    @property
+    def undecided_from(self) -> int | None:
+        """The number of the first revolution not judged yet (an open run), or None."""
+        return self._run[0] if self._run else None
+
+    def close_run(self) -> None:
+        """End an open run without its way back (a gap in the edges, the end of the data):
+        its revolutions are left out, as they may hold knocked edges."""
+        for number in self._run:
+            self._mark(number)
+        self._run.clear()
+        self._run_offsets.clear()
+
+    def _judge(self, rev: Revolution, residual: float | None,
+               predicted: float | None) -> None:
+        """Judge the edge that closed ``rev`` by its offset from where the good edges before
+        it put it; open, extend or close a run of off edges."""
+        if residual is None or predicted is None or self._anchor is None:
+            self._anchor = float(rev.end_tick)  # still learning: the edge is the time line
             return
-        number, _, before = previous
-        limit = self.uneven_fraction
-        if before * residual < 0 and max(abs(before), abs(residual)) > limit \
-                and min(abs(before), abs(residual)) > limit / 2:
-            for n in (number, rev.number):
-                if n not in self.uneven:
-                    self.uneven.append(n)
-                    self.uneven_revolutions += 1
+        expected = self._anchor + predicted
+        offset = (rev.end_tick - expected) / predicted  # fraction of a turn
+        if abs(offset) <= self.uneven_fraction:  # a good edge
+            if self._run:  # back in step: the run's edges were off
+                self._run.append(rev.number)  # it starts at the last off edge
+                self.close_run()
+            # the good edge moves the time line part of the way (white edge jitter averages)
+            self._anchor = expected + ANCHOR_GAIN * (rev.end_tick - expected)
+            return
+        self._run.append(rev.number)
+        self._run_offsets.append(offset)
+        if len(self._run) > self.max_uneven_run:
+            # no way back. Offsets growing steadily one way are a change of speed (or of
+            # acceleration) the prediction had not caught up with: nothing was knocked, keep
+            # the revolutions. Otherwise the edges wander (heavy jitter): leave them out.
+            steps = np.diff(np.abs(self._run_offsets))
+            same_side = all(o * offset > 0 for o in self._run_offsets)
+            if same_side and (steps >= 0).all():
+                self._run.clear()
+            self.close_run()
+            self._anchor = float(rev.end_tick)
+            return
+        self._anchor = expected  # an off edge does not move the time line
+
+    def _mark(self, number: int) -> None:
+        if number not in self.uneven:
+            self.uneven.append(number)
+            self.uneven_revolutions += 1
 
     def _emit(self, start: int, end: int) -> Revolution:
         rev = Revolution(self.revolutions, start, end)

@@ -15,15 +15,27 @@ import numpy as np
 from scipy import signal
 
 LABELS = ("1x", "2x", "3x", "line", "2x line", "other")
+HANN_ENBW_BINS = 1.5  # equivalent noise bandwidth of the Hann window, in bins
+# How far from a strong peak a mains line is hidden in its main lobe and listed with the
+# level the order fit measured (the Hann main lobe is +/- 2 bins of about 1 Hz)
+LINE_IN_LOBE_HZ = 2.5
 
 
 @dataclass(frozen=True)
 class SpectrumPeak:
-    """One labelled peak: frequency, amplitude (peak, input unit) and label."""
+    """One labelled peak: frequency, amplitude (peak, input unit) and label.
+
+    ``also``: the other names that fit the same frequency (a 2x on the mains line: both are
+    in it; ``label`` is the stronger where the order fit measured both, else the nearest).
+    ``fitted``: the amplitude is the level the order fit measured (a mains line inside the
+    main lobe of a strong neighbour, which the spectrum cannot show as a peak of its own).
+    """
 
     hz: float
     amplitude: float
     label: str
+    also: tuple[str, ...] = ()
+    fitted: bool = False
 
 
 @dataclass(frozen=True)
@@ -35,25 +47,79 @@ class Spectrum:
     resolution_hz: float
     segments: int
     peaks: tuple[SpectrumPeak, ...]
+    detect_amplitude: float = 0.0  # the smallest tone amplitude listed as a peak
+
+
+def peak_names(hz: float, rotation_hz: float | None, line_hz: float | None,
+               tolerance_hz: float) -> tuple[str, ...]:
+    """Every name of 1x..3x, line and 2x line within ``tolerance_hz`` of ``hz``, nearest
+    first (orders first where two are about as near: ``LABELS`` order within a quarter of
+    the tolerance); empty when none fits."""
+    candidates: list[tuple[float, str]] = []
+    if rotation_hz:
+        candidates += [(abs(hz - h * rotation_hz), f"{h}x") for h in (1, 2, 3)]
+    if line_hz:
+        candidates += [(abs(hz - line_hz), "line"), (abs(hz - 2 * line_hz), "2x line")]
+    inside = sorted((d, LABELS.index(lab), lab) for d, lab in candidates if d <= tolerance_hz)
+    if not inside:
+        return ()
+    best = inside[0][0]
+    near = sorted((i, lab) for d, i, lab in inside if d <= best + 0.25 * tolerance_hz)
+    rest = [lab for d, i, lab in inside if d > best + 0.25 * tolerance_hz]
+    return tuple(lab for _, lab in near) + tuple(rest)
 
 
 def label_peak(hz: float, rotation_hz: float | None, line_hz: float | None,
                tolerance_hz: float) -> str:
     """Name a peak by the nearest of 1x..3x and line, 2x line within ``tolerance_hz``.
 
-    Orders win over line labels when both fit (the pickup cannot tell them apart then).
+    Orders win over line labels when both fit (the spectrum cannot tell them apart; the
+    meter names the stronger from the order fit, see :func:`name_by_levels`).
     """
-    candidates: list[tuple[float, str]] = []
+    names = peak_names(hz, rotation_hz, line_hz, tolerance_hz)
+    return names[0] if names else "other"
+
+
+def name_by_levels(peaks: tuple[SpectrumPeak, ...], levels: dict[str, float],
+                   line_hz: float | None, rotation_hz: float | None, resolution_hz: float,
+                   detect_amplitude: float) -> tuple[SpectrumPeak, ...]:
+    """Peaks named with the levels an order fit measured (``levels``: name -> amplitude in
+    the spectrum's unit, for the orders and the mains lines it fitted).
+
+    Names whose frequencies lie within ``resolution_hz`` of each other coincide: the
+    spectrum sees one peak, and the name with the higher fitted level comes first (both are
+    listed). A fitted mains line further from the peak than that (inside its main lobe, so
+    not a peak of its own: the 60 Hz line beside a 1x at 58.9 Hz) is listed at its own
+    frequency with its fitted level (``fitted``) when it reaches ``detect_amplitude``.
+    """
+    nominal = {"line": line_hz, "2x line": 2 * line_hz if line_hz else None}
     if rotation_hz:
-        candidates += [(abs(hz - h * rotation_hz), f"{h}x") for h in (1, 2, 3)]
-    if line_hz:
-        candidates += [(abs(hz - line_hz), "line"), (abs(hz - 2 * line_hz), "2x line")]
-    inside = [c for c in candidates if c[0] <= tolerance_hz]
-    if not inside:
-        return "other"
-    best = min(d for d, _ in inside)
-    near = [lab for d, lab in inside if d <= best + 0.25 * tolerance_hz]
-    return next(lab for lab in LABELS if lab in near)
+        nominal.update({f"{h}x": h * rotation_hz for h in (1, 2, 3)})
+    out = []
+    apart: list[str] = []
+    for p in peaks:
+        names = [p.label, *p.also]
+        if p.label == "other":
+            out.append(p)
+            continue
+        here = nominal.get(p.label) or p.hz
+        for name in list(names[1:]):
+            f = nominal.get(name)
+            if name in levels and f is not None and abs(f - here) > resolution_hz:
+                names.remove(name)  # in the lobe but not the same frequency
+                apart.append(name)
+        if len(names) > 1 and all(n in levels for n in names):
+            names.sort(key=lambda n: -levels[n])
+        out.append(SpectrumPeak(p.hz, p.amplitude, names[0], tuple(names[1:]), p.fitted))
+    named = {n for p in out for n in (p.label, *p.also)}
+    for name in ("line", "2x line"):
+        hz, level = nominal[name], levels.get(name)
+        if hz is None or level is None or name in named or level < detect_amplitude:
+            continue
+        if name in apart or any(abs(p.hz - hz) <= LINE_IN_LOBE_HZ for p in out):
+            out.append(SpectrumPeak(hz, level, name, (), fitted=True))
+    out.sort(key=lambda pk: pk.amplitude, reverse=True)
+    return tuple(out)
 
 
 def spectrum(values: np.ndarray, sample_rate_hz: float, rotation_hz: float | None = None,
@@ -83,10 +149,13 @@ def spectrum(values: np.ndarray, sample_rate_hz: float, rotation_hz: float | Non
         lobe = psd[max(i - 2, 0): i + 3]  # Hann main lobe: +/- 2 bins
         amplitude = math.sqrt(2.0 * float(lobe.sum()) * df)  # Parseval over the main lobe
         hz = refine_peak_hz(freqs, psd, int(i))
-        peaks.append(SpectrumPeak(hz, amplitude,
-                                  label_peak(hz, rotation_hz, line_hz, max(2.0 * df, 0.01 * hz))))
+        names = peak_names(hz, rotation_hz, line_hz, max(2.0 * df, 0.01 * hz)) or ("other",)
+        peaks.append(SpectrumPeak(hz, amplitude, names[0], names[1:]))
     peaks.sort(key=lambda pk: pk.amplitude, reverse=True)
-    return Spectrum(freqs, np.sqrt(psd), df, segments, tuple(peaks[:max_peaks]))
+    # a tone of amplitude A has a Hann-window peak density of about A^2 / (2 ENBW df),
+    # ENBW = 1.5 bins (Harris, Proc. IEEE 66(1), 1978): the smallest A that passes min_snr
+    detect = min_snr * math.sqrt(2.0 * HANN_ENBW_BINS * df * floor)
+    return Spectrum(freqs, np.sqrt(psd), df, segments, tuple(peaks[:max_peaks]), detect)
 
 
 def refine_peak_hz(freqs: np.ndarray, psd: np.ndarray, i: int) -> float:

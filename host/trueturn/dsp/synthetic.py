@@ -58,7 +58,7 @@ class SyntheticRun:
     first_edge_rev: float = 0.3
     block_conversions: int = 118  # whole sets of 1 or 2 channels, the most a frame holds
     double_edges_after: tuple[int, ...] = ()  # edge numbers followed by a spurious edge
-    missing_edges: tuple[int, ...] = ()  # edge numbers never sent
+    missing_edges: tuple[int, ...] = ()  # edge numbers never sent (lost on the link: counted)
     lost_blocks: tuple[int, ...] = ()  # sample block numbers never sent
     send_identity: bool = True
     seed: int = 0

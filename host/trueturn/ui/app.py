@@ -885,8 +885,7 @@ class TrueturnApp(App):
                 waiting = [r for r in (meter.readings.get(n) for n in proc.setup.sensors)
                            if r is not None and not proc.settled(r)]
                 if waiting:
-                    own = [w for w in meter.warnings
-                           if any(w.startswith(f"{r.sensor}:") for r in waiting)]
+                    own = [w for r in waiting for w in meter.pickup_warnings(r.sensor)]
                     why = own[0] if own else "waiting for enough steady revolutions"
                     lines.append(f"[yellow]Not ready: {why}[/]")
                 lines.append("Stop at once on a warning below. [b]a[/b]: stop this run now "

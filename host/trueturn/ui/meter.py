@@ -8,12 +8,12 @@ when a new run begins. No signal processing of its own.
 from __future__ import annotations
 
 import math
-import re
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
 from trueturn.dsp.averaging import SteadinessLimits
+from trueturn.dsp.findings import TACH_LINE, Code, Finding, describe
 from trueturn.dsp.meter import LiveAnalyzer
 from trueturn.dsp.units import PickupProfile
 from trueturn.model import Reading
@@ -25,26 +25,10 @@ SPECTRUM_BINS = 76  # one sparkline column each, fits 80 columns
 METER_LIMITS = SteadinessLimits(max_confidence_deg=180.0)
 PHASE_LIMIT_DEG = SteadinessLimits().max_confidence_deg
 
-# The DSP's tach warnings (trueturn.dsp.meter stream_warnings) in a few plain words each,
-# in the order a person should look at them.
-_TACH_WORDS: tuple[tuple[str, str], ...] = (
-    ("no steady tach signal", "no tach edges: rotor at rest, or the tach does not see its mark"),
-    ("tach edge(s) missed", "missed tach edges{n}: the mark was not seen every turn"),
-    ("extra tach edge(s)", "extra tach edges{n}: a second mark, scratch or flicker"),
-    ("tach timing is uneven", "uneven tach edges: clean the mark, tighten the sensor"),
-)
-
-
-def tach_faults(warnings: Sequence[str]) -> tuple[str, ...]:
-    """The tach's trouble in plain words, from the DSP's warning lines (empty: tach fine)."""
-    out = []
-    for key, words in _TACH_WORDS:
-        line = next((w for w in warnings if key in w), None)
-        if line is None:
-            continue
-        count = re.match(r"\s*(\d+)", line)
-        out.append(words.format(n=f" ({count.group(1)})" if count else ""))
-    return tuple(out)
+def tach_faults(findings: Sequence[Finding]) -> tuple[Finding, ...]:
+    """The findings for the app's tach line, in the order a person should look at them
+    (empty: tach fine); chosen by code (trueturn.dsp.findings.TACH_LINE)."""
+    return tuple(f for code in TACH_LINE for f in findings if f.code is code)
 
 
 @dataclass
@@ -58,8 +42,14 @@ class MeterView:
     spectrum_amplitude: list[float] = field(default_factory=list)
     spectrum_max_hz: float = 0.0
     peaks: list[tuple[float, float, str]] = field(default_factory=list)
-    warnings: list[str] = field(default_factory=list)
+    warnings: list[str] = field(default_factory=list)  # the findings in words
     tach_faults: tuple[str, ...] = ()  # plain words, see :func:`tach_faults`
+    findings: list[Finding] = field(default_factory=list)
+
+    def pickup_warnings(self, sensor: str) -> list[str]:
+        """The words of the findings about one pickup (by the finding's pickup, not by
+        reading the sentence)."""
+        return [describe(f) for f in self.findings if f.pickup == sensor]
 
 
 class _Msg:
@@ -137,17 +127,18 @@ class MeterAdapter:
         speed = a.speed_rpm
         out.speed_rpm = speed if math.isfinite(speed) else None
         for r in readings:
-            faults = tach_faults(r.warnings)
+            faults = tach_faults(r.findings)
             out.readings[r.sensor] = Reading(
                 r.sensor, r.amplitude, r.unit, r.phase_deg, r.confidence_deg, r.revolutions,
                 r.steady, r.speed_rpm, r.confidence_radius
                 if math.isfinite(r.confidence_radius) else None,
-                no_tach=any(f.startswith("no tach") for f in faults))
+                no_tach=any(f.code is Code.NO_TACH for f in faults))
             out.unit = r.unit
-            out.warnings += [w for w in r.warnings if w not in out.warnings]
-        if not readings:  # no revolution yet: the stream's own warnings (no tach, ...)
-            out.warnings += [w for w in a.stream_warnings() if "stream_config" not in w]
-        out.tach_faults = tach_faults(out.warnings)
+            out.findings += [f for f in r.findings if f not in out.findings]
+        if not readings:  # no revolution yet: the stream's own findings (no tach, ...)
+            out.findings += [f for f in a.stream_findings() if f.code is not Code.NO_STREAM]
+        out.warnings = [describe(f) for f in out.findings]
+        out.tach_faults = tuple(describe(f, brief=True) for f in tach_faults(out.findings))
         if self.spectrum_wanted:
             self._spectrum(out)
         return out
@@ -170,5 +161,5 @@ class MeterAdapter:
                 bins[k] = max(bins[k], float(v))
         out.spectrum_amplitude = bins
         out.spectrum_max_hz = top
-        out.peaks = [(p.hz, p.amplitude, p.label) for p in
+        out.peaks = [(p.hz, p.amplitude, " + ".join((p.label, *p.also))) for p in
                      sorted(spec.peaks, key=lambda p: -p.amplitude)]

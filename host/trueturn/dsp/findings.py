@@ -1,0 +1,235 @@
+"""Findings: what the measurement noticed, as data (a code, the pickup, counts, details).
+
+The meter and the capture analysis return :class:`Finding` values; :func:`describe` is the
+one place that puts them into words (the full sentence for ``trueturn analyze`` and the
+app's warning list, or a few plain words with ``brief=True`` for the app's tach line).
+Consumers choose by :class:`Code`, never by parsing a sentence. The codes are listed, with
+what each means, in host/trueturn/dsp/README.md ("Findings").
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterable
+from dataclasses import dataclass, field
+from enum import Enum
+from typing import Any
+
+
+class Code(str, Enum):
+    """What a finding is about (its value is the stable JSON code)."""
+
+    # the stream as a whole
+    NO_STREAM = "no_stream"                          # no stream set-up: no usable samples
+    NO_IDENTITY = "no_identity"                      # defaults assumed for ADC and clock
+    NO_WHOLE_REVOLUTION = "no_whole_revolution"      # tach edges but no revolution with samples
+    SEVERAL_STREAMS = "several_streams"              # only the last stream is analysed
+    LONG_CAPTURE = "long_capture"                    # only the last revolutions are averaged
+    INCOMPLETE_CAPTURE = "incomplete_capture"        # less signal than was asked for
+    MAINS_SETTING = "mains_setting"                  # a strong peak at the other mains frequency
+    # the tach sensor (the mark, the sensor, its mount)
+    NO_TACH = "no_tach"                              # samples but no steady tach signal
+    TACH_EXTRA_EDGES = "tach_extra_edges"            # double triggers ignored
+    TACH_MISSED_EDGES = "tach_missed_edges"          # the sensor did not see the mark
+    TACH_UNEVEN = "tach_uneven"                      # edges knocked early or late
+    # the USB link (frames lost or damaged between the board and the host)
+    LINK_TACH_LOST = "link_tach_lost"                # tach edges the board saw, lost on the link
+    LINK_SAMPLES_LOST = "link_samples_lost"          # revolutions left out for lost samples
+    LINK_FRAMES_LOST = "link_frames_lost"            # frames lost on the link, by kind
+    LINK_UNSEEN_LOSS = "link_unseen_loss"            # 256 x k frames at once (seq wrapped)
+    LINK_DAMAGED_FRAMES = "link_damaged_frames"      # CRC / framing / value errors skipped
+    BOARD_RESTART = "board_restart"                  # the board restarted during the capture
+    TIMEBASE_FROM_BLOCKS = "timebase_from_blocks"    # stream_config lost, blocks place samples
+    # the board's ADC
+    ADC_LATE_REFUSED = "adc_late_refused"            # late conversions without a gap: refused
+    ADC_LATE = "adc_late"                            # late conversions, dropped with their revs
+    CLIPPED = "clipped"                              # samples at the ADC limits
+    ADC_REFERENCE_REFUSED = "adc_reference_refused"  # reference outside the usable range
+    # one pickup's reading
+    UNCALIBRATED = "uncalibrated"                    # no sensitivity: shown in volts
+    FEW_REVOLUTIONS = "few_revolutions"              # fewer than the minimum averaged
+    SPEED_VARIES = "speed_varies"                    # speed spread above the limit
+    VECTOR_DRIFTING = "vector_drifting"              # first and second half disagree
+    PHASE_UNCERTAIN = "phase_uncertain"              # phase confidence above the aim
+    NOT_ABOVE_SCATTER = "not_above_scatter"          # the 95 % circle covers the origin
+    ORDER_ON_MAINS = "order_on_mains"                # an order too close to a hum frequency
+
+
+# The codes that are about the tach sensor itself.
+TACH_CODES = frozenset({Code.NO_TACH, Code.TACH_EXTRA_EDGES, Code.TACH_MISSED_EDGES,
+                        Code.TACH_UNEVEN})
+# The app's "Tach:" line: the tach codes and tach edges lost on the link, in the order a
+# person should look at them.
+TACH_LINE = (Code.NO_TACH, Code.TACH_MISSED_EDGES, Code.LINK_TACH_LOST, Code.TACH_EXTRA_EDGES,
+             Code.TACH_UNEVEN)
+# The codes that block a reading from being steady (see averaging.steadiness).
+BLOCKING_CODES = frozenset({Code.FEW_REVOLUTIONS, Code.SPEED_VARIES, Code.VECTOR_DRIFTING,
+                            Code.PHASE_UNCERTAIN, Code.NOT_ABOVE_SCATTER})
+
+
+@dataclass(frozen=True)
+class Finding:
+    """One thing the measurement noticed.
+
+    ``pickup``: the pickup's name, or None for the stream as a whole; ``count``: how many
+    (edges, revolutions, frames, samples...; see the code in dsp/README.md); ``details``:
+    the numbers behind it (e.g. ``spread_pct`` and ``limit_pct``), JSON-ready;
+    ``blocking``: the reading is not steady because of it (False: a note).
+    """
+
+    code: Code
+    pickup: str | None = None
+    count: int | None = None
+    details: dict[str, Any] = field(default_factory=dict)
+    blocking: bool = False
+
+    def to_json(self) -> dict[str, Any]:
+        out: dict[str, Any] = {"code": self.code.value, "pickup": self.pickup}
+        if self.count is not None:
+            out["count"] = self.count
+        for key, value in self.details.items():
+            out[key] = (None if isinstance(value, float) and not math.isfinite(value)
+                        else value)
+        if self.blocking:
+            out["blocking"] = True
+        return out
+
+
+def _n(f: Finding, key: str, default: Any = 0) -> Any:
+    return f.details.get(key, default)
+
+
+def _sentence(f: Finding) -> str:
+    """The full sentence for one finding (without the pickup prefix)."""
+    c, n = f.code, f.count
+    if c is Code.NO_STREAM:
+        return "no stream_config message: the capture holds no usable samples"
+    if c is Code.NO_IDENTITY:
+        return (f"no identity message: assumed a {_n(f, 'adc_bits')}-bit ADC, "
+                f"{_n(f, 'reference_mv') / 1000:.3f} V reference, {_n(f, 'tick_hz')} Hz "
+                "clock and no aperture delay")
+    if c is Code.NO_WHOLE_REVOLUTION:
+        return "no whole revolution with samples in the capture"
+    if c is Code.SEVERAL_STREAMS:
+        return f"{n} streams with samples in the capture; only the last is analysed"
+    if c is Code.LONG_CAPTURE:
+        return f"long capture: the last {n} revolutions are averaged"
+    if c is Code.INCOMPLETE_CAPTURE:
+        return (f"incomplete capture: {_n(f, 'recorded_s'):.2f} of the "
+                f"{_n(f, 'requested_s'):g} s asked for were recorded (the link was lost, the "
+                "board restarted or the recording was stopped)")
+    if c is Code.MAINS_SETTING:
+        return (f"a strong {_n(f, 'other_mains_hz'):g} Hz peak; is the mains setting "
+                f"({_n(f, 'mains_hz'):g} Hz) right for this place?")
+    if c is Code.NO_TACH:
+        return ("no steady tach signal: check the tach sensor, its aim and the reflective "
+                "mark")
+    if c is Code.TACH_EXTRA_EDGES:
+        return f"{n} extra tach edge(s) ignored (second mark, scratch or flicker?)"
+    if c is Code.TACH_MISSED_EDGES:
+        return f"{n} tach edge(s) missed; those revolutions were left out"
+    if c is Code.TACH_UNEVEN:
+        return (f"tach timing is uneven (edges scatter by {_n(f, 'scatter_deg'):.1f} deg rms, "
+                f"{n} revolution(s) left out): clean or renew the reflective mark, check the "
+                "sensor's distance and that its mount is tight; speed and phase readings "
+                "wander with it")
+    if c is Code.LINK_TACH_LOST:
+        return (f"{n} tach edge(s) the board saw were lost on the USB link (frames dropped); "
+                "those revolutions were left out")
+    if c is Code.LINK_SAMPLES_LOST:
+        return f"{n} revolution(s) left out for lost samples (USB link dropped data)"
+    if c is Code.LINK_FRAMES_LOST:
+        parts = []
+        if _n(f, "samples"):
+            parts.append(f"{_n(f, 'samples')} sample(s)")
+        if _n(f, "tach_edges"):
+            parts.append(f"{_n(f, 'tach_edges')} tach edge(s)")
+        held = ("they held " + " and ".join(parts)) if parts else \
+            "they held no samples and no tach edges: the readings are unaffected"
+        return f"{n} frame(s) lost on the USB link; {held}"
+    if c is Code.LINK_UNSEEN_LOSS:
+        return (f"at least {n} frames lost at once on the USB link, a whole number of 256 "
+                "that the frame sequence number cannot show; found by the "
+                + " and ".join(w for w, k in (("sample index", "samples"),
+                                             ("tach edge count", "tach_edges"))
+                               if _n(f, k)) + "; the revolutions across it were left out")
+    if c is Code.LINK_DAMAGED_FRAMES:
+        refused = _n(f, "bad_values")
+        return (f"{n} damaged frame(s) skipped (CRC or framing errors"
+                + (f"; {refused} with values no board sends" if refused else "") + ")")
+    if c is Code.BOARD_RESTART:
+        return "the board restarted during the capture; only the last stream is analysed"
+    if c is Code.TIMEBASE_FROM_BLOCKS:
+        return ("a stream's stream_config message was lost; its sample times were taken "
+                "from the sample blocks")
+    if c is Code.ADC_LATE_REFUSED:
+        return (f"refused: the board counted {n} late ADC conversion(s) (adc_late) in this "
+                "stream but no gap in the sample indices: sample times may be shifted; update "
+                "the firmware")
+    if c is Code.ADC_LATE:
+        return (f"{n} late ADC conversion(s) on the board (adc_late): the samples around "
+                "them were dropped and their revolutions left out")
+    if c is Code.ADC_REFERENCE_REFUSED:
+        return (f"refused: the ADC reference {_n(f, 'field')} is {_n(f, 'reference_mv')} mV, "
+                f"outside {_n(f, 'min_mv')}..{_n(f, 'max_mv')} mV: the board's USB supply is "
+                "out of range (try another USB port, cable or a powered hub)")
+    if c is Code.CLIPPED:
+        return (f"{n} sample(s) at the ADC limits: the pickup signal clips; reduce its gain "
+                "or move it")
+    if c is Code.UNCALIBRATED:
+        return "no sensitivity known, shown in volts"
+    if c is Code.FEW_REVOLUTIONS:
+        return f"only {n} revolutions averaged (need {_n(f, 'minimum')})"
+    if c is Code.SPEED_VARIES:
+        return (f"speed varies by {_n(f, 'spread_pct'):.1f} % "
+                f"(limit {_n(f, 'limit_pct'):g} %)")
+    if c is Code.VECTOR_DRIFTING:
+        return "1x vector still changing (first and second half disagree)"
+    if c in (Code.PHASE_UNCERTAIN, Code.NOT_ABOVE_SCATTER):
+        text = ("1x is not above the scatter (noise, or a very small 1x)"
+                if c is Code.NOT_ABOVE_SCATTER else
+                f"phase uncertain by +/-{_n(f, 'confidence_deg'):.1f} deg "
+                f"(aim {_n(f, 'limit_deg'):g} deg)")
+        if not f.blocking:
+            text += (f"; settled after {n} revolutions, so the 1x is small compared with the "
+                     "scatter")
+        return text
+    if c is Code.ORDER_ON_MAINS:
+        order = _n(f, "order", 0)
+        what = f"{order}x" if order else "an order"
+        return (f"{what} is too close to {_n(f, 'hum_hz'):g} Hz, a mains hum frequency: any "
+                "hum there adds to it (a slightly different speed separates them)")
+    raise ValueError(f"no words for finding {c!r}")  # pragma: no cover - every code has words
+
+
+# A few plain words for the app's tach line (``describe(..., brief=True)``).
+_BRIEF = {
+    Code.NO_TACH: "no tach edges: rotor at rest, or the tach does not see its mark",
+    Code.TACH_MISSED_EDGES: "missed tach edges{n}: the mark was not seen every turn",
+    Code.TACH_EXTRA_EDGES: "extra tach edges{n}: a second mark, scratch or flicker",
+    Code.TACH_UNEVEN: "uneven tach edges: clean the mark, tighten the sensor",
+    Code.LINK_TACH_LOST: "tach edges lost on the USB link{n}: check the cable and the port",
+}
+
+
+def describe(finding: Finding, brief: bool = False) -> str:
+    """The words for one finding: the one place findings become sentences.
+
+    ``brief``: a few plain words where the app has them (the tach codes), else the sentence.
+    A finding about one pickup starts with its name.
+    """
+    if brief and finding.code in _BRIEF:
+        count = f" ({finding.count})" if finding.count else ""
+        return _BRIEF[finding.code].format(n=count)
+    text = _sentence(finding)
+    return f"{finding.pickup}: {text}" if finding.pickup else text
+
+
+def unique(findings: Iterable[Finding]) -> list[Finding]:
+    """``findings`` without repeats, in order (a stream finding shared by every pickup's
+    reading is listed once)."""
+    seen: list[Finding] = []
+    for f in findings:
+        if f not in seen:
+            seen.append(f)
+    return seen

@@ -69,3 +69,48 @@ def test_the_app_session_configures_the_profiles_pickups_only() -> None:
             load_catalogue().limit("board_tick_hz").min // 2000)
     finally:
         session.close()
+
+
+@pytest.mark.parametrize("bootloader, flags", [("old", ["external"]),
+                                               ("new", ["external", "from_bootloader"])])
+@pytest.mark.parametrize("scheme", ["sim", "emu"])
+def test_a_port_that_resets_the_board_says_why_it_started(scheme: str, bootloader: str,
+                                                          flags: list[str]) -> None:
+    # Opening a Uno/Nano port pulls the reset pin (EXTRF); the old Nano bootloader leaves
+    # MCUSR to the firmware, optiboot clears it and passes it in r2 (from memory): either way
+    # the identity's reset_flags say external (firmware/README.md, "Watchdog and bootloaders").
+    from trueturn.link.ports import open_port
+
+    if scheme == "emu":
+        require_tools("avr-gcc", "gcc", "make")
+        make("emu")
+    bits = {name: 1 << bit for bit, name in load_catalogue().reset_flags.items()}
+    port = open_port(f"{scheme}://bench-grinder?realtime=1&reset_on_open=1&bootloader={bootloader}",
+                     timeout_s=0.05)
+    try:
+        decoder = StreamDecoder()
+        identity = None
+        for _ in range(800):
+            for m in decoder.feed(port.read(4096)):
+                if isinstance(m, Message) and m.name == "identity":
+                    identity = m
+            if identity is not None:
+                break
+        assert identity is not None
+        assert identity["reset_flags"] == sum(bits[f] for f in flags)
+    finally:
+        port.close()
+
+
+def test_a_simulated_board_restart_reports_a_brown_out() -> None:
+    from trueturn.link.ports import open_port
+
+    port = open_port("sim://bench-grinder?realtime=0", timeout_s=0.05)
+    try:
+        port.rig.reset()
+        items = StreamDecoder().feed(port.read(20000))
+        idents = [m for m in items if isinstance(m, Message) and m.name == "identity"]
+        brown_out = next(b for b, n in load_catalogue().reset_flags.items() if n == "brown_out")
+        assert idents[-1]["reset_flags"] == 1 << brown_out
+    finally:
+        port.close()

@@ -183,6 +183,9 @@ class VirtualBoard:
         self.bootloader_bytes = 0  # bytes the host sent into the bootloader's window
         if self.options.reset_on_open:
             self._boot_at = self.tick + self._bootloader_wait_ticks
+            # the reset pin started it; the newer bootloader passes the flags on (SPEC 4.1)
+            self._reset_flags = RESET_FLAGS["external"] | (
+                RESET_FLAGS["from_bootloader"] if self.options.bootloader == "new" else 0)
         elif self.options.reset_on_open is False:
             # running for a while already: its power-up identity went out long ago
             self._boot_tick = self.tick - int(RUNNING_UPTIME_S * TICK_HZ)

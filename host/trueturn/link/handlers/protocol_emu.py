@@ -56,6 +56,11 @@ _USAGE = ('expected "emu://SCENARIO[?realtime=0|1&seconds=S&seed=N&rpm=R&noise=F
 CHATTER_EDGES = 10
 CHATTER_GAP_CYCLES = 160
 
+#: What a bootloader leaves after the reset of opening the port (firmware/README.md,
+#: "Watchdog and bootloaders"): the old Nano bootloader keeps MCUSR (EXTRF); optiboot clears it
+#: and passes it in r2.
+RESET_PRESETS = {"old": ["--mcusr", "2"], "new": ["--mcusr", "0", "--r2", "2"]}
+
 #: The firmware folder of a source checkout (override with TRUETURN_FIRMWARE_DIR).
 FIRMWARE_DIR = Path(os.environ.get("TRUETURN_FIRMWARE_DIR")
                     or Path(__file__).resolve().parents[4] / "firmware")
@@ -142,6 +147,9 @@ class Serial(VirtualLineSerial):
             argv += ["--seconds", repr(options["seconds"])]
         if options["tach"] == "chatter":
             argv += ["--tach-chatter", f"{CHATTER_EDGES},{CHATTER_GAP_CYCLES}"]
+        if options["reset_on_open"]:
+            # the reset pin (DTR) started the board; what its bootloader leaves the firmware
+            argv += RESET_PRESETS[options["bootloader"]]
         argv.append(str(elf))
         self._argv = argv
         self._report_path = report

@@ -45,6 +45,7 @@ from trueturn.errors import UserError
 from trueturn.link.boards import BOOTLOADER_WAIT_S
 from trueturn.link.handlers.virtual import VirtualLineSerial
 from trueturn.sim.board import (
+    RESET_FLAGS,
     STEP_TICKS,
     TACH_FAULTS,
     TICK_HZ,
@@ -69,16 +70,18 @@ class Rig(VirtualBoard):
             self.unplugged = True
 
     def reset(self) -> None:
-        """Restart the board as a brown-out or watchdog would, keeping the rotor as it is.
+        """Restart the board as a brown-out would, keeping the rotor as it is.
 
         What the board had not sent yet is lost; its sequence numbers, uptime, edge count and
-        stream settings start again from power-up (identity with seq 0, idle, defaults).
+        stream settings start again from power-up (identity with seq 0 and reset_flags
+        brown_out, idle, defaults).
         """
         with self.lock:
             self._out.clear()
             self._rx.clear()
             self._rx_discarding = False
             self._boot_at = None
+            self._reset_flags = RESET_FLAGS["brown_out"]
             self._power_up()
 
 

@@ -4,7 +4,7 @@ VENV   ?= .venv
 PY     := $(VENV)/bin/python
 STAMP  := $(VENV)/.installed
 
-.PHONY: demo test test-python lint bench firmware clean
+.PHONY: demo test test-python lint bench firmware firmware-image clean
 
 $(STAMP): pyproject.toml
 	test -x $(PY) || $(PYTHON) -m venv $(VENV)
@@ -32,6 +32,16 @@ bench: $(STAMP)
 
 firmware:
 	$(MAKE) -C firmware
+
+# The image shipped inside the Python package for `trueturn flash` (package data). Run after
+# every firmware change and commit the file: tests/test_firmware_image.py rebuilds it with
+# avr-gcc and fails while the shipped copy differs.
+IMAGE := host/trueturn/firmware/trueturn.hex
+firmware-image:
+	$(MAKE) -C firmware build/trueturn.hex
+	mkdir -p $(dir $(IMAGE))
+	cp firmware/build/trueturn.hex $(IMAGE)
+	@echo "wrote $(IMAGE) (commit it with the firmware change)"
 
 clean:
 	$(MAKE) -C firmware clean

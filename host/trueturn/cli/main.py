@@ -18,6 +18,8 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "ui": ("cmd_ui", "open the app on a board or a virtual rig"),
     "ports": ("cmd_ports", "list serial ports and mark likely boards"),
     "record": ("cmd_record", "record the board's stream to a capture file"),
+    "check": ("cmd_check", "the bring-up check of a wired board: link, pickups, tach"),
+    "flash": ("cmd_flash", "write the firmware shipped with trueturn to the board (avrdude)"),
     "dump": ("cmd_dump", "print the messages in a capture or frame file as JSON lines"),
     "analyze": ("cmd_analyze", "phase-locked 1x amplitude and phase from a capture"),
     "solve": ("cmd_solve", "compute correction masses from balancing runs"),

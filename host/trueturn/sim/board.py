@@ -81,6 +81,7 @@ class BoardOptions:
     #: for a while: no identity at open, its status every second.
     reset_on_open: bool | None = None
     bootloader: str = "new"  # a key of trueturn.link.boards.BOOTLOADER_WAIT_S
+    floating_channel: int | None = None  # this input (0-based) has nothing connected
 
 
 #: ``sim://NAME?tach=...``: what a worn set-up does to the once-per-rev signal. Each fault hits
@@ -111,6 +112,10 @@ def tach_holdoff_ticks(last_period_ticks: int) -> int:
                max(TACH_HOLDOFF_MIN_TICKS, (last_period_ticks & 0xFFFFFFFF) >> TACH_HOLDOFF_SHIFT))
 TACH_FAULT_SHARE = 0.1
 
+#: ``floating=N``: an input with nothing connected reads mostly the charge the ADC's sample
+#: capacitor kept from the conversion before it (a ghost copy of the other channel); the
+#: share kept is our invented figure for the demo, the rest is the pin drifting at mid-rail.
+FLOATING_CARRY = 0.9
 #: ``reset_on_open=0``: how long the board has been running when the port opens.
 RUNNING_UPTIME_S = 60.0
 
@@ -627,6 +632,8 @@ class VirtualBoard:
         index = np.arange(first, last + 1, dtype=np.int64)
         ticks = s.start_tick + index * period
         volts = self._voltages(index % s.channels, ticks, theta_at(ticks), omega)
+        if self.options.floating_channel is not None:
+            self._float(volts, index % s.channels)
         counts = np.clip(np.rint(volts / ADC_REFERENCE_V * ADC_COUNTS_PER_REFERENCE), 0,
                          ADC_MAX_COUNT).astype(int)
         block = MAX_BLOCK_SAMPLES - MAX_BLOCK_SAMPLES % s.channels
@@ -643,6 +650,20 @@ class VirtualBoard:
                                 "period_ticks": period, "samples": s.pending}))
                 s.pending = []
                 s.pending_first = i + 1
+
+    def _float(self, volts: np.ndarray, channel: np.ndarray) -> None:
+        """The floating input's conversions: the previous conversion's voltage, mostly."""
+        prev = getattr(self, "_last_volts", ADC_REFERENCE_V / 2)
+        mid = ADC_REFERENCE_V / 2
+        floating = channel == self.options.floating_channel
+        noise = self.rng.normal(0.0, 0.001, int(floating.sum()))
+        k = 0
+        for j in range(len(volts)):
+            if floating[j]:
+                volts[j] = FLOATING_CARRY * prev + (1.0 - FLOATING_CARRY) * mid + noise[k]
+                k += 1
+            prev = volts[j]
+        self._last_volts = prev
 
     def _voltages(self, channel: np.ndarray, ticks: np.ndarray, theta: np.ndarray,
                   omega: float) -> np.ndarray:

@@ -23,6 +23,9 @@
                    0: the board does not reset (DTR not wired) and has run for a minute:
                    no identity at open, its status every second. Without the option the
                    board powers up as the port opens (identity at once).
+``floating=1|2``   that pickup input has nothing connected: it reads a ghost copy of the
+                   conversion before it (trueturn.sim.board.FLOATING_CARRY), as an open
+                   AVR ADC input does.
 ``bootloader=new|old``  with reset_on_open=1: the newer bootloader (waits about 0.5 s) or
                    the old Nano one (about 1.5 s); trueturn.link.boards.BOOTLOADER_WAIT_S.
 
@@ -56,7 +59,7 @@ from trueturn.sim.scenario import load_scenario
 
 _USAGE = ('expected "sim://NAME[?realtime=0|1&pace=F&seed=N&rpm=R&motor=on|off&noise=F'
           '&unbalance=as-found|none&tick0=T&tach=none|missing|double|knocked|off|chatter'
-          '&reset_on_open=0|1&bootloader=new|old]"')
+          '&reset_on_open=0|1&bootloader=new|old&floating=1|2]"')
 
 
 class Rig(VirtualBoard):
@@ -160,6 +163,10 @@ class Serial(VirtualLineSerial):
                     if value not in BOOTLOADER_WAIT_S:
                         raise ValueError(f"bootloader must be one of {', '.join(BOOTLOADER_WAIT_S)}")
                     opts.bootloader = value
+                elif key == "floating":
+                    if value not in ("1", "2"):
+                        raise ValueError("floating must be 1 or 2 (the pickup input left open)")
+                    opts.floating_channel = int(value) - 1
                 elif key == "tick0":
                     opts.tick0 = int(value) % (1 << 32)
                 else:

@@ -280,3 +280,47 @@ def test_sample_instants_and_volts_by_the_spec_formulas() -> None:
         meter.feed(m)
     assert meter.volts_per_count * block["samples"][k] == pytest.approx(volts, rel=1e-12)
     assert ident["adc_reference_kind"] in {int(c) for c in RAW["reference_kinds"]}
+
+
+def _identity_values(reset_flags: int) -> dict:
+    from trueturn.link.catalogue import load_catalogue
+
+    cat = load_catalogue()
+    return {"protocol_version": cat.protocol_version, "definition_hash": cat.definition_hash,
+            "firmware_major": 1, "firmware_minor": 1, "firmware_patch": 0, "board_id": 1,
+            "tick_hz": 2_000_000, "adc_bits": 10, "adc_reference_mv": 4900,
+            "adc_reference_kind": 1, "aperture_delay_ticks": 16, "max_channels": 2,
+            "channel0_pin": 0, "channel1_pin": 1, "tach_pin": 8, "reset_flags": reset_flags}
+
+
+def test_a_requested_identity_is_told_from_a_reset_by_the_reply_before_it() -> None:
+    # SPEC 5: an identity right after the board's ok to identify (0x81) was asked for, also in
+    # a capture that holds only the board's bytes; any other identity is a reset, with its cause
+    from trueturn.link.codec import LinkEvent, StreamDecoder, encode_frame
+
+    asked = [encode_frame("identity", 0, _identity_values(0x02)),
+             encode_frame("reply", 1, {"command_type": 0x81, "command_seq": 5, "error": 0}),
+             encode_frame("identity", 2, _identity_values(0x02))]
+    events = [i for i in StreamDecoder().feed(b"".join(asked)) if isinstance(i, LinkEvent)]
+    assert events == []
+    unasked = [encode_frame("identity", 0, _identity_values(0x02)),
+               encode_frame("reply", 1, {"command_type": 0x84, "command_seq": 5, "error": 0}),
+               encode_frame("identity", 0, _identity_values(0x10))]
+    events = [i for i in StreamDecoder().feed(b"".join(unasked)) if isinstance(i, LinkEvent)]
+    assert [e.kind for e in events] == ["board_reset"] and "stall_restart" in events[0].detail
+
+
+def test_repeated_and_backward_tach_counts_lose_nothing() -> None:
+    # SPEC 5: a step of 0 is the same edge again, a step of 32768 or more went backwards;
+    # only 1 < step < 32768 counts step - 1 lost edges
+    from trueturn.link.codec import StreamDecoder, encode_frame
+
+    counts = [10, 11, 11, 14, 3, 4]
+    wire = b"".join(encode_frame("tach", i, {"tick": 1000 * (i + 1), "edge_count": c})
+                    for i, c in enumerate(counts))
+    d = StreamDecoder()
+    d.feed(wire)
+    assert d.counters.tach_edges_lost == 2  # 12 and 13
+    ours = SpecDecoder()
+    ours.feed(wire)
+    assert ours.edges_lost == 2

@@ -36,7 +36,7 @@ from trueturn.balance.iso21940 import (  # noqa: E402
     refer_to_bearings,
 )
 from trueturn.balance.trial_mass import size_trial_mass  # noqa: E402
-from trueturn.sim import Bearing, CorrectionPlane, Mass, Pickup, RigidRotor  # noqa: E402
+from trueturn.sim import CorrectionPlane, Mass, Pickup, RigidRotor, Support  # noqa: E402
 
 ROTORS = 200
 MAX_RUNS = 10
@@ -61,7 +61,7 @@ def random_rotor(rng: np.random.Generator) -> tuple[RigidRotor, float]:
     rotor = RigidRotor(
         mass_kg=mass, transverse_inertia_kg_m2=mass * span ** 2 * 1e-6 * rng.uniform(0.05, 0.15),
         polar_inertia_kg_m2=0.5 * mass * (radius * 1e-3) ** 2, centre_of_mass_axial_mm=cg,
-        bearings=[Bearing(-span / 2, k, k * 0.8, c, c), Bearing(span / 2, k * 1.1, k * 0.9, c, c)],
+        bearings=[Support(-span / 2, k, k * 0.8, c, c), Support(span / 2, k * 1.1, k * 0.9, c, c)],
         planes=[CorrectionPlane("left", -span / 2 + inset, radius),
                 CorrectionPlane("right", span / 2 - inset, radius)],
         pickups=[Pickup("inboard", 0, 90.0), Pickup("outboard", 1, 90.0)],

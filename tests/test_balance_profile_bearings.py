@@ -4,6 +4,7 @@ the verdict was judged. Uses the invented demo job tests/data/demo_bench_grinder
 from __future__ import annotations
 
 import copy
+import dataclasses
 from pathlib import Path
 
 import pytest
@@ -23,7 +24,7 @@ def job():
 
 def test_old_profile_without_bearings_loads_and_is_judged_in_the_planes(job):
     assert job.machine.bearings == [] and job.machine.bearing_positions_mm() is None
-    assert job.machine.cg_axial_position_mm is None
+    assert job.machine.cg_axial_mm is None
     assert not verdict_at_bearings(job)
     assert "not judged at the bearings" in markdown_report(job)
 
@@ -31,11 +32,11 @@ def test_old_profile_without_bearings_loads_and_is_judged_in_the_planes(job):
 def test_profile_with_bearings_round_trips(job):
     machine = copy.deepcopy(job.machine)
     machine.bearings = [Bearing("motor end", 60.0), Bearing("free end", 230.0)]
-    machine.cg_axial_position_mm = 140.0
-    machine.planes[0].max_mass_g = 12.0
+    machine.cg_axial_mm = 140.0
+    machine.planes[0] = dataclasses.replace(machine.planes[0], max_mass_g=12.0)
     again = parse_document(document_text("machine", machine), "machine", "m.yaml")
     assert again.bearing_positions_mm() == (60.0, 230.0)
-    assert again.cg_axial_position_mm == 140.0 and again.planes[0].max_mass_g == 12.0
+    assert again.cg_axial_mm == 140.0 and again.planes[0].max_mass_g == 12.0
 
 
 @pytest.mark.parametrize(("bearings", "needle"), [

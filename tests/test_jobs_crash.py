@@ -25,11 +25,11 @@ from trueturn.jobs import (
     PendingStep,
     Pickup,
     Plane,
-    Reading,
-    Run,
+    RunEntry,
     Workspace,
 )
 from trueturn.jobs.store import read_document
+from trueturn.model import Reading
 
 pytestmark = pytest.mark.skipif(not hasattr(os, "fork") or sys.platform == "darwin",
                                 reason="needs fork() (POSIX, Linux)")
@@ -48,13 +48,13 @@ def lathe() -> MachineProfile:
                  Pickup("tailstock", sensitivity_mv_per_g=100.0)])
 
 
-def make_run(index: int) -> Run:
+def make_run(index: int) -> RunEntry:
     """A run whose numbers are a function of its index, so the parent can check content."""
     readings = [Reading(sensor=name, amplitude=index + k / 10, unit="mm/s pk",
                         phase_deg=(37.0 * index + 90 * k) % 360, confidence_deg=1.5,
                         revolutions=32, speed_rpm=600.0) for k, name in
                 enumerate(("headstock", "tailstock"))]
-    return Run(index=index, kind="initial" if index == 1 else "trim",
+    return RunEntry(index=index, kind="initial" if index == 1 else "trim",
                time=f"2026-11-30T12:{index % 60:02d}:00Z", speed_rpm=600.0, readings=readings,
                notes="x" * (200 * index))  # grows the file so writes take a little longer
 

@@ -8,6 +8,7 @@ from __future__ import annotations
 import contextlib
 import copy
 import csv
+import dataclasses
 import io
 import math
 import re
@@ -209,8 +210,8 @@ def test_plot_uses_the_dsp_confidence_radius_when_stored(job: JobRecord) -> None
 
     with_radius = copy.deepcopy(job)
     for run in with_radius.runs:
-        for reading in run.readings:
-            reading.confidence_radius = reading.amplitude / 2
+        run.readings = [dataclasses.replace(r, confidence_radius=r.amplitude / 2)
+                        for r in run.readings]
     svg = ET.fromstring(polar_svg(with_radius, "left bearing"))
     for g in (g for g in svg.iter(f"{SVG}g") if g.get("class") == "run-vector"):
         line = g.find(f"{SVG}line")

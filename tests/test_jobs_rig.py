@@ -31,7 +31,7 @@ from trueturn.dsp.units import PickupProfile
 from trueturn.jobs import (
     CoefficientSet,
     Confirmation,
-    Correction,
+    CorrectionEntry,
     InfluenceEntry,
     JobRecord,
     MachineProfile,
@@ -40,9 +40,8 @@ from trueturn.jobs import (
     Pickup,
     Plane,
     PlaneVerdict,
-    Reading,
-    Run,
-    Verdict,
+    RunEntry,
+    VerdictEntry,
     Workspace,
 )
 from trueturn.jobs.records import now_iso
@@ -50,6 +49,7 @@ from trueturn.jobs.report import html_report
 from trueturn.jobs.store import read_document
 from trueturn.link.codec import Message, StreamDecoder, encode_frame
 from trueturn.link.ports import open_port
+from trueturn.model import Reading
 from trueturn.sim import Mass
 
 pytestmark = pytest.mark.skipif(not hasattr(os, "fork") or sys.platform == "darwin",
@@ -68,7 +68,7 @@ def profile_of(rig) -> MachineProfile:  # noqa: ANN001 - the sim rig object
         name="Virtual bench grinder", rotor_kind="simulated grinder arbor",
         rotor_mass_kg=rotor.mass_kg, speed_min_rpm=round(nominal * 0.95),
         speed_max_rpm=round(nominal * 1.05), max_speed_rpm=round(nominal * 1.1), rotation="cw",
-        planes=[Plane(p.name, radius_mm=p.radius_mm, axial_position_mm=p.axial_mm)
+        planes=[Plane(p.name, radius_mm=p.radius_mm, axial_mm=p.axial_mm)
                 for p in rotor.planes],
         pickups=[Pickup(p.name, sensitivity_mv_per_g=1000 * e.sensitivity_v_per_g)
                  for p, e in zip(rotor.pickups, scenario.electrical, strict=True)],
@@ -96,7 +96,7 @@ def measure(port) -> list[Reading]:  # noqa: ANN001 - a pyserial port with a rig
             for r in meter.readings()]
 
 
-def vector(run: Run, sensors: list[str]) -> np.ndarray:
+def vector(run: RunEntry, sensors: list[str]) -> np.ndarray:
     return np.array([phasor(run.reading(s).amplitude, run.reading(s).phase_deg) for s in sensors])
 
 
@@ -117,7 +117,7 @@ def run_now(ws: Workspace, job: JobRecord, port, kind: str, label: str) -> None:
     rig.motor_start()
     rig.advance_s(rig.scenario.motor.spin_up_s * 3)
     readings = measure(port)
-    ws.append_run(job, Run(index=job.next_run_index, kind=kind, time=now_iso(),  # type: ignore[arg-type]
+    ws.append_run(job, RunEntry(index=job.next_run_index, kind=kind, time=now_iso(),  # type: ignore[arg-type]
                            speed_rpm=float(np.mean([r.speed_rpm for r in readings])),
                            readings=readings, label=label))
 
@@ -152,7 +152,7 @@ def next_step(ws: Workspace, job: JobRecord, port) -> bool:  # noqa: ANN001
     elif done == 3 and job.pending is None:
         h = influence(job)
         w = -np.linalg.solve(h, vector(job.runs[0], sensors))
-        corrections = [Correction(plane, *amplitude_phase(complex(w[j])))
+        corrections = [CorrectionEntry(plane, *amplitude_phase(complex(w[j])))
                        for j, plane in enumerate(planes)]
         job.runs[2].corrections = corrections
         job.influence = CoefficientSet(
@@ -177,7 +177,7 @@ def next_step(ws: Workspace, job: JobRecord, port) -> bool:  # noqa: ANN001
         verdicts = [PlaneVerdict(p.name, float(residual_g[j] * p.radius_mm), u_per / 2,
                                  bool(residual_g[j] * p.radius_mm <= u_per / 2))
                     for j, p in enumerate(job.machine.planes)]
-        ws.close_job(job, Verdict(GRADE, job.runs[3].speed_rpm, 4, verdicts,
+        ws.close_job(job, VerdictEntry(GRADE, job.runs[3].speed_rpm, 4, verdicts,
                                   all(v.passed for v in verdicts)))
         return False
     return True

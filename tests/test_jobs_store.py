@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import contextlib
 import copy
+import dataclasses
 import io
 import os
 from pathlib import Path
@@ -26,8 +27,7 @@ from trueturn.jobs import (
     Pickup,
     Plane,
     PlaneLayout,
-    Reading,
-    Run,
+    RunEntry,
     SchemaError,
     Workspace,
 )
@@ -41,6 +41,7 @@ from trueturn.jobs.store import (
     read_document,
     resolve_workspace,
 )
+from trueturn.model import Reading
 
 DEMO_JOB = Path(__file__).parent / "data" / "demo_bench_grinder_job.yaml"
 
@@ -60,8 +61,8 @@ def reading(sensor: str = "motor", amplitude: float = 3.1, phase_deg: float = 40
                    confidence_deg=2.5, revolutions=48, speed_rpm=1420.0)
 
 
-def run(index: int, kind: str = "initial") -> Run:
-    return Run(index=index, kind=kind, time="2026-11-30T10:00:00Z", speed_rpm=1420.0,
+def run(index: int, kind: str = "initial") -> RunEntry:
+    return RunEntry(index=index, kind=kind, time="2026-11-30T10:00:00Z", speed_rpm=1420.0,
                readings=[reading()])
 
 
@@ -85,13 +86,13 @@ def test_profile_round_trip_keeps_every_field(tmp_path: Path) -> None:
     assert path == tmp_path / "machines" / "shop-fan-500.yaml"
     loaded = ws.load_machine("Shop fan 500")
     assert loaded == profile
-    assert loaded.planes[0].layout.position_angles_deg() == [0, 72, 144, 216, 288]
+    assert loaded.planes[0].layout.position_angles_deg() == (0, 72, 144, 216, 288)
     assert ws.machine_names() == ["Shop fan 500"]
 
 
 def test_equal_layout_positions() -> None:
     layout = PlaneLayout(kind="equal", positions=8, offset_deg=10.0)
-    assert layout.position_angles_deg() == [10.0, 55.0, 100.0, 145.0, 190.0, 235.0, 280.0, 325.0]
+    assert layout.position_angles_deg() == (10.0, 55.0, 100.0, 145.0, 190.0, 235.0, 280.0, 325.0)
 
 
 # --------------------------------------------------------------------------------------------
@@ -155,8 +156,7 @@ def test_reading_units_cover_every_dsp_unit_label() -> None:
     import typing
 
     from trueturn.dsp.units import UNITS
-    from trueturn.jobs.profiles import VIBRATION_UNIT_LABELS
-    from trueturn.jobs.records import VibrationUnit
+    from trueturn.model.units import VIBRATION_UNIT_LABELS, VibrationUnit
 
     assert set(UNITS) <= set(VIBRATION_UNIT_LABELS)
     assert typing.get_args(VibrationUnit) == VIBRATION_UNIT_LABELS
@@ -197,18 +197,33 @@ def test_newer_schema_is_refused_in_one_line() -> None:
 
 
 def test_older_schema_goes_through_the_migrations(monkeypatch: pytest.MonkeyPatch) -> None:
-    """A version-1 file read by a version-2 tool is lifted by ``MIGRATIONS['job'][1]``."""
+    """A file of this version read by the next version's tool is lifted by its migration."""
     def rename_operator(data: dict) -> dict:
         data = dict(data)
         data["operator"] = data.pop("technician", "")
         return data
 
-    monkeypatch.setattr(store_module, "SCHEMA_VERSION", 2)
-    monkeypatch.setitem(store_module.MIGRATIONS, "job", {1: rename_operator})
+    now = store_module.SCHEMA_VERSION
+    monkeypatch.setattr(store_module, "SCHEMA_VERSION", now + 1)
+    monkeypatch.setitem(store_module.MIGRATIONS, "job",
+                        {**store_module.MIGRATIONS["job"], now: rename_operator})
     text = demo_text().replace("operator: J. Example", "technician: J. Example")
     job = parse_document(text, "job", "old.yaml")
     assert job.operator == "J. Example"
-    assert document_text("job", job).splitlines()[1] == "schema_version: 2"
+    assert document_text("job", job).splitlines()[1] == f"schema_version: {now + 1}"
+
+
+def test_a_version_1_job_reads_with_the_axial_positions_renamed() -> None:
+    """Version 1 named axial positions ``axial_position_mm`` and the removal flag ``removal``;
+    version 2 uses the model's names. The shipped version-1 demo job still reads, with the
+    same numbers, and is written back as version 2 with the new names."""
+    old = (Path(__file__).parent / "data" / "demo_bench_grinder_job.yaml").read_text()
+    assert "schema_version: 1" in old and "axial_position_mm: 290.0" in old
+    job = parse_document(old, "job", "demo.yaml")
+    assert [p.axial_mm for p in job.machine.planes] == [0.0, 290.0]
+    text = document_text("job", job)
+    assert "schema_version: 2" in text and "axial_position_mm" not in text
+    assert parse_document(text, "job", "again.yaml").machine.planes == job.machine.planes
 
 
 def test_cli_prints_one_line_and_exits_2_for_a_broken_job(tmp_path: Path) -> None:
@@ -329,7 +344,7 @@ def test_a_job_that_would_not_read_back_is_never_written(tmp_path: Path) -> None
     job = ws.new_job(shop_fan(), when="2026-11-30T09:00:00Z")
     before = ws.job_path(job.job_id).read_bytes()
     bad = run(1)
-    bad.readings[0].unit = "furlongs/fortnight"  # type: ignore[assignment]
+    bad.readings[0] = dataclasses.replace(bad.readings[0], unit="furlongs/fortnight")
     with pytest.raises(SchemaError, match=r"\(not saved\):\d+: runs\[0\]\.readings\[0\]\.unit"):
         ws.append_run(job, bad)
     assert ws.job_path(job.job_id).read_bytes() == before

@@ -16,6 +16,7 @@ Johnston, "Vector Mechanics for Engineers: Statics", ch. 2, law of sines).
 from __future__ import annotations
 
 import copy
+import dataclasses
 import json
 import math
 import xml.etree.ElementTree as ET
@@ -174,7 +175,8 @@ def report_direction(angle_deg: float, rotation: str) -> tuple[float, float]:
     pickup = job.machine.pickups[0].name
     reading = job.runs[0].reading(pickup)
     assert reading is not None
-    reading.phase_deg = angle_deg
+    k = job.runs[0].readings.index(reading)
+    job.runs[0].readings[k] = dataclasses.replace(reading, phase_deg=angle_deg)
     svg = ET.fromstring(polar_svg(job, pickup))
     group = next(g for g in svg.iter(f"{SVG}g") if g.get("class") == "run-vector"
                  and g.get("data-run") == str(job.runs[0].index))

@@ -10,11 +10,11 @@ from scipy.integrate import solve_ivp
 
 from trueturn.angles import amplitude_phase, angle_difference_deg
 from trueturn.sim.rotor import (
-    Bearing,
     CorrectionPlane,
     Mass,
     Pickup,
     RigidRotor,
+    Support,
     rpm_to_rad_s,
     unbalance_force_n,
 )
@@ -22,7 +22,7 @@ from trueturn.sim.rotor import (
 
 def symmetric_rotor(k: float = 2e5, c: float = 60.0, mass_kg: float = 5.0) -> RigidRotor:
     """Equal isotropic bearings at +-100 mm, one plane at the centre of mass."""
-    bearing = [Bearing(-100.0, k, k, c, c), Bearing(100.0, k, k, c, c)]
+    bearing = [Support(-100.0, k, k, c, c), Support(100.0, k, k, c, c)]
     return RigidRotor(
         mass_kg=mass_kg, transverse_inertia_kg_m2=0.02, polar_inertia_kg_m2=0.0,
         centre_of_mass_axial_mm=0.0, bearings=bearing,
@@ -106,7 +106,7 @@ def general_rotor(nonlinearity: float = 0.0) -> RigidRotor:
     return RigidRotor(
         mass_kg=3.2, transverse_inertia_kg_m2=0.015, polar_inertia_kg_m2=0.006,
         centre_of_mass_axial_mm=40.0,
-        bearings=[Bearing(0.0, 3e5, 1.5e5, 80.0, 50.0), Bearing(150.0, 2e5, 4e5, 40.0, 90.0)],
+        bearings=[Support(0.0, 3e5, 1.5e5, 80.0, 50.0), Support(150.0, 2e5, 4e5, 40.0, 90.0)],
         planes=[CorrectionPlane("left", -60.0, 75.0), CorrectionPlane("right", 210.0, 75.0)],
         pickups=[Pickup("A", 0, 0.0), Pickup("B", 1, 60.0)],
         nonlinearity=nonlinearity, tach_direction_deg=25.0,

@@ -8,6 +8,7 @@ correction the procedure asks the person to place must cut the modelled 1x.
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 
 import pytest
 
@@ -415,7 +416,8 @@ def test_a_silent_tach_proves_little_after_a_board_reset() -> None:
 
 def test_removal_where_the_profile_allows_it() -> None:
     rig = Rig("shop-fan", Mode.ONE_PLANE)
-    rig.profile.planes[0].removal = True  # a plane whose maker allows drilling (invented)
+    # a plane whose maker allows drilling (invented)
+    rig.profile.planes[0] = replace(rig.profile.planes[0], removal_allowed=True)
     rig.setup = setup_from_profile(rig.profile, Mode.ONE_PLANE)
     rig.proc = Procedure(rig.setup, BalanceEngine())
     for _ in range(2):

@@ -161,7 +161,7 @@ def parse_readings(doc: Any, source: str = "READINGS") -> BalanceInput:
         limit = None if max_mass is None else _number(max_mass, f"{at}.max_mass_g", positive=True)
         axial = item.get("axial_mm")
         axial_mm = None if axial is None else _number(axial, f"{at}.axial_mm")
-        planes.append(Plane(name, radius, limit, axial_mm))
+        planes.append(Plane(name, radius, axial_mm, max_mass_g=limit))
     if not planes:
         raise UserError(f"{source}: planes: at least one correction plane is needed")
 

@@ -4,24 +4,23 @@ from trueturn.jobs.profiles import MachineProfile, Pickup, Plane, PlaneLayout, T
 from trueturn.jobs.records import (
     CoefficientSet,
     Confirmation,
-    Correction,
+    CorrectionEntry,
     Event,
     InfluenceEntry,
     JobRecord,
     MassChange,
     PendingStep,
     PlaneVerdict,
-    Reading,
-    Run,
+    RunEntry,
     SplitPart,
-    Verdict,
+    VerdictEntry,
 )
 from trueturn.jobs.schema import SchemaError
 from trueturn.jobs.store import SCHEMA_VERSION, Workspace
 
 __all__ = [
-    "CoefficientSet", "Confirmation", "Correction", "Event", "InfluenceEntry", "JobRecord",
+    "CoefficientSet", "Confirmation", "CorrectionEntry", "Event", "InfluenceEntry", "JobRecord",
     "MachineProfile", "MassChange", "PendingStep", "Pickup", "Plane", "PlaneLayout",
-    "PlaneVerdict", "Reading", "Run", "SCHEMA_VERSION", "SchemaError", "SplitPart",
-    "TachSetup", "Units", "Verdict", "Workspace",
+    "PlaneVerdict", "RunEntry", "SCHEMA_VERSION", "SchemaError", "SplitPart",
+    "TachSetup", "Units", "VerdictEntry", "Workspace",
 ]

@@ -11,10 +11,11 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Literal
 
-from trueturn.angles import Rotation, wrap_deg
+from trueturn.angles import Rotation
 from trueturn.constants import MM_PER_INCH
-from trueturn.jobs.schema import limits
-from trueturn.positions import equally_spaced_deg
+from trueturn.model.fields import limits
+from trueturn.model.rotor import Bearing, Plane
+from trueturn.model.rotor import PlaneLayout as PlaneLayout  # the profile's planes use it
 
 MassUnit = Literal["g", "oz"]
 LengthUnit = Literal["mm", "in"]
@@ -32,61 +33,6 @@ class Units:
     mass: MassUnit = "g"
     length: LengthUnit = "mm"
     vibration: VelocityUnit = "mm/s"
-
-
-@dataclass
-class PlaneLayout:
-    """Where weights can go in a plane.
-
-    ``equal``: ``positions`` equally spaced holes/slots, the first at ``offset_deg``;
-    ``angles``: an explicit list (bolt holes, blade roots); ``free``: anywhere on the circle.
-    """
-
-    kind: Literal["equal", "angles", "free"] = "free"
-    positions: int | None = field(default=None, metadata=limits(minimum=1, maximum=360))
-    offset_deg: float = 0.0
-    angles_deg: list[float] = field(default_factory=list)
-
-    def _checks(self) -> list[tuple[str, str]]:
-        if self.kind == "equal" and self.positions is None:
-            return [("positions", "layout 'equal' needs the number of positions")]
-        if self.kind == "angles" and not self.angles_deg:
-            return [("angles_deg", "layout 'angles' needs at least one angle")]
-        return []
-
-    def position_angles_deg(self) -> list[float]:
-        """Angles of the numbered positions (position k+1 at index k); empty for ``free``."""
-        if self.kind == "equal" and self.positions:
-            return list(equally_spaced_deg(self.positions, self.offset_deg))
-        if self.kind == "angles":
-            return [wrap_deg(a) for a in self.angles_deg]
-        return []
-
-
-@dataclass
-class Plane:
-    """A correction plane: where on the rotor weights are attached or removed."""
-
-    name: str = field(metadata=limits(nonempty=True))
-    radius_mm: float = field(metadata=limits(above=0))
-    axial_position_mm: float = 0.0
-    layout: PlaneLayout = field(default_factory=PlaneLayout)
-    # Drilling or grinding material out of this plane is allowed (a flywheel rim, a pulley
-    # web). Default: not allowed - grinding wheels, cutterhead bodies and fan blades must
-    # never be drilled; the app then offers only added mass.
-    removal: bool = False
-    max_mass_g: float | None = field(default=None, metadata=limits(above=0))
-
-
-@dataclass
-class Bearing:
-    """A bearing (support) of the rotor; ``axial_position_mm`` uses the planes' origin.
-
-    The ISO 21940-11 verdict is judged at the two bearings when the profile names them.
-    """
-
-    name: str = field(metadata=limits(nonempty=True))
-    axial_position_mm: float = 0.0
 
 
 @dataclass
@@ -136,21 +82,22 @@ class MachineProfile:
     #: the verdict is then judged in the correction planes, and says so)
     bearings: list[Bearing] = field(default_factory=list)
     #: axial position of the rotor's centre of mass (planes' origin); None: midway
-    cg_axial_position_mm: float | None = None
+    cg_axial_mm: float | None = None
 
     def _checks(self) -> list[tuple[str, str]]:
         problems: list[tuple[str, str]] = []
         if self.bearings:
             if len(self.bearings) != 2:
                 problems.append(("bearings", "give exactly two bearings (or none)"))
-            elif self.bearings[0].axial_position_mm == self.bearings[1].axial_position_mm:
+            elif self.bearings[0].axial_mm == self.bearings[1].axial_mm:
                 problems.append(("bearings", "the two bearings must be at different positions"))
             elif self.bearings[0].name == self.bearings[1].name:
                 problems.append(("bearings", f"name {self.bearings[0].name!r} is used twice"))
-            elif len(self.planes) == 2 and (self.planes[0].axial_position_mm
-                                            == self.planes[1].axial_position_mm):
+            elif any(p.axial_mm is None for p in self.planes):
+                problems.append(("planes", "with bearings, give each plane its axial_mm"))
+            elif len(self.planes) == 2 and self.planes[0].axial_mm == self.planes[1].axial_mm:
                 problems.append(("planes", "with bearings, the two planes need different "
-                                           "axial_position_mm"))
+                                           "axial_mm"))
         if self.speed_min_rpm > self.speed_max_rpm:
             problems.append(("speed_min_rpm", "must not exceed speed_max_rpm"))
         if self.speed_max_rpm > self.max_speed_rpm:
@@ -172,7 +119,7 @@ class MachineProfile:
         """Axial positions of the two bearings, or None in a profile that does not give them."""
         if len(self.bearings) != 2:
             return None
-        return (self.bearings[0].axial_position_mm, self.bearings[1].axial_position_mm)
+        return (self.bearings[0].axial_mm, self.bearings[1].axial_mm)
 
     def plane(self, name: str) -> Plane:
         """The plane called ``name`` (KeyError if there is none)."""
@@ -196,13 +143,6 @@ def format_length(length_mm: float, unit: LengthUnit) -> str:
     return f"{length_mm:.1f} mm"
 
 
-#: Units a stored reading may carry. The first group are the DSP layer's labels, detector
-#: included (trueturn.dsp.units.UNITS; a test keeps the two lists in step); the bare forms
-#: are accepted for hand-written files and mean "detector not stated".
-VIBRATION_UNIT_LABELS: tuple[str, ...] = (
-    "mm/s rms", "mm/s pk", "in/s pk", "in/s rms", "um pk-pk", "mil pk-pk", "g pk", "m/s2 pk",
-    "V pk", "mm/s", "in/s", "um", "mil", "g", "m/s2", "V",
-)
 
 #: length-dependent base unit -> (quantity, factor to the metric base of that quantity)
 _BASES: dict[str, tuple[str, float]] = {

@@ -14,38 +14,15 @@ from dataclasses import dataclass, field
 from typing import Literal
 
 from trueturn.jobs.profiles import MachineProfile
-from trueturn.jobs.schema import limits
-
-VibrationUnit = Literal["mm/s rms", "mm/s pk", "in/s pk", "in/s rms", "um pk-pk", "mil pk-pk",
-                        "g pk", "m/s2 pk", "V pk", "mm/s", "in/s", "um", "mil", "g", "m/s2", "V"]
-RunKind = Literal["initial", "trial", "correction", "trim", "check"]
+from trueturn.model import Reading, RunKind
+from trueturn.model.fields import limits
+from trueturn.model.units import VibrationUnit
 
 
 def now_iso() -> str:
     """The current UTC time as ISO 8601 text with a ``Z`` (seconds resolution)."""
     return dt.datetime.now(dt.timezone.utc).replace(microsecond=0).isoformat().replace(
         "+00:00", "Z")
-
-
-@dataclass
-class Reading:
-    """One pickup's 1x vector in one run (from the DSP layer).
-
-    ``unit`` is the DSP layer's label with its detector (``'mm/s rms'``, ``'g pk'``, ...).
-    ``phase_deg`` is the lag of the 1x positive peak after the tach event;
-    ``confidence_deg`` the half-width of its confidence interval, ``confidence_radius`` (if
-    the DSP layer gave one) the radius of the confidence circle in ``unit``.
-    """
-
-    sensor: str = field(metadata=limits(nonempty=True))
-    amplitude: float = field(metadata=limits(minimum=0))
-    unit: VibrationUnit
-    #: null when no phase was measured (no tach: the amplitude-only method), never a guess
-    phase_deg: float | None = field(metadata=limits(minimum=0, below=360))
-    confidence_deg: float = field(metadata=limits(minimum=0, maximum=180))
-    revolutions: int = field(metadata=limits(minimum=0))
-    speed_rpm: float = field(metadata=limits(above=0))
-    confidence_radius: float | None = field(default=None, metadata=limits(minimum=0))
 
 
 @dataclass
@@ -73,7 +50,7 @@ class SplitPart:
 
 
 @dataclass
-class Correction:
+class CorrectionEntry:
     """A correction computed after a run: add (or remove) ``mass_g`` at ``angle_deg``."""
 
     plane: str = field(metadata=limits(nonempty=True))
@@ -127,7 +104,7 @@ class Event:
 
 
 @dataclass
-class Run:
+class RunEntry:
     """One measurement run, with what was done on the rotor before it and computed after it."""
 
     index: int = field(metadata=limits(minimum=1))
@@ -138,7 +115,7 @@ class Run:
     label: str = ""
     changes: list[MassChange] = field(default_factory=list)
     confirmations: list[Confirmation] = field(default_factory=list)
-    corrections: list[Correction] = field(default_factory=list)
+    corrections: list[CorrectionEntry] = field(default_factory=list)
     events: list[Event] = field(default_factory=list)
     notes: str = ""
 
@@ -168,7 +145,7 @@ class PlaneVerdict:
 
 
 @dataclass
-class Verdict:
+class VerdictEntry:
     """The balance quality verdict computed by the engine after a run."""
 
     grade: float = field(metadata=limits(above=0))
@@ -231,10 +208,10 @@ class JobRecord:
     speed_rpm: float | None = field(default=None, metadata=limits(above=0))
     operator: str = ""
     customer: str = ""
-    runs: list[Run] = field(default_factory=list)
+    runs: list[RunEntry] = field(default_factory=list)
     pending: PendingStep | None = None
     influence: CoefficientSet | None = None
-    verdict: Verdict | None = None
+    verdict: VerdictEntry | None = None
     notes: str = ""
 
     def _checks(self) -> list[tuple[str, str]]:

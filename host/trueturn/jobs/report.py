@@ -25,7 +25,8 @@ from trueturn.jobs.profiles import (
     format_length,
     format_mass,
 )
-from trueturn.jobs.records import JobRecord, Reading, Run
+from trueturn.jobs.records import JobRecord, RunEntry
+from trueturn.model import Reading
 from trueturn.positions import degrees_text, number_of, position_text
 
 #: Okabe & Ito (2008) colour-blind-safe palette; one colour per run, in order.
@@ -117,7 +118,7 @@ def polar_svg(job: JobRecord, sensor: str, size_px: int = 320) -> str:
     """Polar plot of every run's 1x vector of ``sensor`` with its confidence circle."""
     machine = job.machine
     rotation = machine.rotation
-    points: list[tuple[Run, float, float, float, str]] = []
+    points: list[tuple[RunEntry, float, float, float, str]] = []
     unit = machine.units.vibration
     for run in job.runs:
         reading = run.reading(sensor)
@@ -227,7 +228,7 @@ def _machine_rows(job: JobRecord) -> list[tuple[str, str]]:
     u = m.units
     planes = "; ".join(
         f"{p.name}: radius {format_length(p.radius_mm, u.length)}, "
-        f"at {format_length(p.axial_position_mm, u.length)}, " + (
+        + (f"at {format_length(p.axial_mm, u.length)}, " if p.axial_mm is not None else "") + (
             f"{p.layout.positions} positions from {_deg(p.layout.offset_deg)}"
             if p.layout.kind == "equal" else
             f"positions at {', '.join(_deg(a) for a in p.layout.angles_deg)}"

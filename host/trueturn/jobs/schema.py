@@ -27,6 +27,7 @@ from typing import Any, Literal, Union
 import yaml
 
 from trueturn.errors import UserError
+from trueturn.model.fields import limits
 
 __all__ = [
     "SchemaError",
@@ -114,15 +115,6 @@ def load_yaml_text(text: str, source: str) -> Any:
         raise SchemaError(f"{source}:1: not valid YAML: {str(exc).splitlines()[0]}") from None
 
 
-def limits(*, minimum: float | None = None, maximum: float | None = None,
-           above: float | None = None, below: float | None = None,
-           nonempty: bool = False) -> dict[str, Any]:
-    """Field metadata: inclusive ``minimum``/``maximum``, exclusive ``above``/``below``,
-    ``nonempty`` for text and lists."""
-    return {"minimum": minimum, "maximum": maximum, "above": above, "below": below,
-            "nonempty": nonempty}
-
-
 class _Context:
     """Where a value came from: file name, dotted field path, line."""
 
@@ -187,6 +179,11 @@ def _convert(tp: Any, value: Any, ctx: _Context, meta: typing.Mapping[str, Any])
         return _convert(args[0], value, ctx, meta)
     if value is None:
         ctx.fail("must have a value")
+    if isinstance(tp, type) and issubclass(tp, enum.Enum):
+        choices = [m.value for m in tp]
+        if isinstance(value, bool) or value not in choices:
+            ctx.fail(f"{_describe(value)} is not one of: {', '.join(str(c) for c in choices)}")
+        return tp(value)
     if origin is Literal:
         choices = typing.get_args(tp)
         if isinstance(value, bool) or value not in choices:

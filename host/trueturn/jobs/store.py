@@ -28,7 +28,14 @@ from typing import Any
 
 from trueturn.errors import UserError
 from trueturn.jobs.profiles import MachineProfile
-from trueturn.jobs.records import CoefficientSet, JobRecord, PendingStep, Run, Verdict, now_iso
+from trueturn.jobs.records import (
+    CoefficientSet,
+    JobRecord,
+    PendingStep,
+    RunEntry,
+    VerdictEntry,
+    now_iso,
+)
 from trueturn.jobs.schema import (
     LineDict,
     Migration,
@@ -41,10 +48,43 @@ from trueturn.jobs.schema import (
 
 #: Version of the file format this code writes. Bump it when a stored field changes meaning
 #: or name, and add a function to ``MIGRATIONS`` that lifts the previous version by one.
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
+
+
+def _renamed(mapping: Any, old: str, new: str) -> None:
+    """Rename key ``old`` to ``new`` in a mapping read from a file (its line kept)."""
+    if isinstance(mapping, dict) and old in mapping and new not in mapping:
+        mapping[new] = mapping.pop(old)
+        lines = getattr(mapping, "key_lines", None)
+        if lines is not None and old in lines:
+            lines[new] = lines.pop(old)
+
+
+def _machine_1_to_2(data: dict[str, Any]) -> dict[str, Any]:
+    """Version 2 names axial positions ``axial_mm`` as readings files and the model do
+    (was ``axial_position_mm``; the centre of mass ``cg_axial_mm``) and a plane's removal
+    flag ``removal_allowed`` (was ``removal``)."""
+    planes, bearings = data.get("planes"), data.get("bearings")
+    for plane in planes if isinstance(planes, list) else []:  # else the validator says why
+        _renamed(plane, "axial_position_mm", "axial_mm")
+        _renamed(plane, "removal", "removal_allowed")
+    for bearing in bearings if isinstance(bearings, list) else []:
+        _renamed(bearing, "axial_position_mm", "axial_mm")
+    _renamed(data, "cg_axial_position_mm", "cg_axial_mm")
+    return data
+
+
+def _job_1_to_2(data: dict[str, Any]) -> dict[str, Any]:
+    """A job carries its machine profile: the same renames there."""
+    if isinstance(data.get("machine"), dict):
+        _machine_1_to_2(data["machine"])
+    return data
+
 
 #: ``MIGRATIONS[kind][n]`` turns the data of a version-``n`` file into version ``n + 1``.
-MIGRATIONS: dict[str, dict[int, Migration]] = {"machine": {}, "job": {}, "coefficients": {}}
+MIGRATIONS: dict[str, dict[int, Migration]] = {
+    "machine": {1: _machine_1_to_2}, "job": {1: _job_1_to_2},
+    "coefficients": {1: lambda data: data}}
 
 WORKSPACE_ENV = "TRUETURN_WORKSPACE"
 _TEMP_PREFIX = ".tt-"
@@ -364,7 +404,7 @@ class Workspace:
     def load_job(self, ref: str | os.PathLike[str]) -> JobRecord:
         return read_document(self.find_job(ref), "job")
 
-    def append_run(self, job: JobRecord, run: Run,
+    def append_run(self, job: JobRecord, run: RunEntry,
                    path: str | os.PathLike[str] | None = None) -> Path:
         """Add a completed run (its pending hands-on work folded in) and save at once.
 
@@ -398,7 +438,7 @@ class Workspace:
         job.pending = pending
         return self.save_job(job, path)
 
-    def close_job(self, job: JobRecord, verdict: Verdict | None = None,
+    def close_job(self, job: JobRecord, verdict: VerdictEntry | None = None,
                   path: str | os.PathLike[str] | None = None) -> Path:
         if verdict is not None:
             job.verdict = verdict

@@ -2,9 +2,11 @@
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 from trueturn.angles import amplitude_phase, phasor
+from trueturn.model.fields import limits
+from trueturn.model.units import VibrationUnit
 
 
 @dataclass(frozen=True)
@@ -29,7 +31,8 @@ class Phasor:
 class Reading:
     """The 1x of one pickup averaged over a run.
 
-    ``unit`` is the DSP layer's label with its detector (``'g pk'``, ``'mm/s rms'``).
+    ``unit`` is the DSP layer's label with its detector (``'g pk'``, ``'mm/s rms'``); the
+    limits in the fields' metadata are checked when a reading is read from a file.
     ``phase_deg`` is the lag of the 1x positive peak after the tach event (None: not known,
     e.g. the amplitude-only method). ``confidence_radius`` is the radius (in ``unit``) of
     the circle holding the true phasor with about 95 % probability, ``confidence_deg`` the
@@ -38,15 +41,15 @@ class Reading:
     reference during the run, so the phase means nothing.
     """
 
-    sensor: str
-    amplitude: float
-    unit: str
-    phase_deg: float | None
-    confidence_deg: float = 180.0
-    revolutions: int = 0
+    sensor: str = field(metadata=limits(nonempty=True))
+    amplitude: float = field(metadata=limits(minimum=0))
+    unit: VibrationUnit
+    phase_deg: float | None = field(metadata=limits(minimum=0, below=360))
+    confidence_deg: float = field(default=180.0, metadata=limits(minimum=0, maximum=180))
+    revolutions: int = field(default=0, metadata=limits(minimum=0))
     steady: bool = True
-    speed_rpm: float | None = None
-    confidence_radius: float | None = None
+    speed_rpm: float | None = field(default=None, metadata=limits(above=0))
+    confidence_radius: float | None = field(default=None, metadata=limits(minimum=0))
     clipped: bool = False
     no_tach: bool = False
 

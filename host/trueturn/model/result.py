@@ -25,12 +25,6 @@ class Correction:
     def vector_g(self) -> complex:
         return phasor(self.mass_g, self.angle_deg)
 
-    @property
-    def unbalance_gmm(self) -> float:
-        if self.radius_mm is None:
-            raise ValueError(f"plane {self.plane}: radius unknown")
-        return self.mass_g * self.radius_mm
-
 
 class TolerancePlanes(str, Enum):
     """Where residual unbalance was compared with its permissible share."""

@@ -1,31 +1,72 @@
-"""The rotor as the balancing math needs it: correction planes and bearings."""
+"""The rotor as every layer sees it: correction planes, where masses can go, the bearings."""
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
+from typing import Literal
+
+from trueturn.angles import wrap_deg
+from trueturn.model.fields import limits
+from trueturn.positions import equally_spaced_deg
+
+
+@dataclass(frozen=True)
+class PlaneLayout:
+    """Where weights can go in a plane.
+
+    ``equal``: ``positions`` equally spaced holes/slots, position 1 at ``offset_deg``;
+    ``angles``: an explicit list (bolt holes, blade roots), position 1 first; ``free``:
+    anywhere on the circle.
+    """
+
+    kind: Literal["equal", "angles", "free"] = "free"
+    positions: int | None = field(default=None, metadata=limits(minimum=1, maximum=360))
+    offset_deg: float = 0.0
+    angles_deg: list[float] = field(default_factory=list)
+
+    def _checks(self) -> list[tuple[str, str]]:
+        if self.kind == "equal" and self.positions is None:
+            return [("positions", "layout 'equal' needs the number of positions")]
+        if self.kind == "angles" and not self.angles_deg:
+            return [("angles_deg", "layout 'angles' needs at least one angle")]
+        return []
+
+    def position_angles_deg(self) -> tuple[float, ...]:
+        """Angles of the numbered positions (position k+1 at index k); empty for ``free``."""
+        if self.kind == "equal" and self.positions:
+            return equally_spaced_deg(self.positions, self.offset_deg)
+        if self.kind == "angles":
+            return tuple(wrap_deg(a) for a in self.angles_deg)
+        return ()
 
 
 @dataclass(frozen=True)
 class Plane:
     """A correction plane: where masses go, at ``radius_mm`` from the axis.
 
-    ``axial_mm``: along the shaft (the bearings' origin; None: not given);
-    ``position_angles_deg``: the blades/holes a mass can go on, position 1 first (empty: any
-    angle); ``removal_allowed``: the machine profile allows drilling/grinding material out
-    here; ``max_mass_g``: the largest correction the plane takes (None: no limit given).
+    ``axial_mm``: along the shaft, from the origin the bearings use (None: not given);
+    ``layout``: the blades/holes a mass can go on; ``removal_allowed``: the machine's maker
+    allows drilling or grinding material out here (a flywheel rim, a pulley web; never a
+    grinding wheel, a cutterhead body or a fan blade); ``max_mass_g``: the largest
+    correction the plane takes (None: no limit given).
     """
 
-    name: str
-    radius_mm: float
-    max_mass_g: float | None = None
+    name: str = field(metadata=limits(nonempty=True))
+    radius_mm: float = field(metadata=limits(above=0))
     axial_mm: float | None = None
-    position_angles_deg: tuple[float, ...] = ()
+    layout: PlaneLayout = field(default_factory=PlaneLayout)
     removal_allowed: bool = False
+    max_mass_g: float | None = field(default=None, metadata=limits(above=0))
+
+    @property
+    def position_angles_deg(self) -> tuple[float, ...]:
+        """Angles of the plane's positions, position 1 first (empty: any angle)."""
+        return self.layout.position_angles_deg()
 
 
 @dataclass(frozen=True)
 class Bearing:
     """A bearing (support) of the rotor at ``axial_mm`` (same origin as the planes')."""
 
-    name: str
-    axial_mm: float
+    name: str = field(metadata=limits(nonempty=True))
+    axial_mm: float = 0.0

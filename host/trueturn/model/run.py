@@ -16,6 +16,9 @@ class RunKind(str, Enum):
     AS_FOUND = "initial"
     TRIAL = "trial"
     CHECK = "check"
+    #: checks named after what preceded them (job files may use them; the app says "check")
+    CORRECTION = "correction"
+    TRIM = "trim"
 
 
 @dataclass(frozen=True)

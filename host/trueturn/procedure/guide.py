@@ -319,7 +319,6 @@ class Procedure:
         self.trims_done = 0
         self.events: list[SafetyEvent] = []
         self.confirmations: list[tuple[float, str]] = []
-        self.log: list[str] = []
         self._pending_run_events: list[SafetyEvent] = []
         self._alarmed: set[str] = set()
         self._force_text: tuple[str, ...] = ()
@@ -499,7 +498,6 @@ class Procedure:
             # acknowledges it, then a gated hands-on step waits for standstill.
             self.alarm = new[0]
             self.step = replace(self.step, phase=RunPhase.STOPPED)
-            self.log.append(f"run stopped: {self.step.run_label} ({new[0].kind})")
         return new
 
     def settled(self, r: Reading) -> bool:
@@ -567,11 +565,9 @@ class Procedure:
             # a run of the coefficient set measured again: it replaces the first one
             self.runs[self._redo_index] = run
             self._redo_index = None
-            self.log.append(f"run measured again: {run.label}")
             self._to_correction()
             return run
         self.runs.append(run)
-        self.log.append(f"run recorded: {run.label}")
         self._advance_after_run(run)
         return run
 
@@ -589,7 +585,6 @@ class Procedure:
         event = SafetyEvent(kind, detail, now_s)
         self._pending_run_events.append(event)
         self.events.append(event)
-        self.log.append(f"run incomplete: {self.step.run_label} ({detail})")
         if kind == "link-lost":
             self.step = replace(self.step, phase=RunPhase.INTERRUPTED)
         return True
@@ -608,7 +603,6 @@ class Procedure:
             raise GateRefused("no run to stop")
         event = SafetyEvent("aborted", f"{self.step.run_label}: {reason}", now_s)
         self.events.append(event)
-        self.log.append(f"run aborted: {self.step.run_label} ({reason})")
         self._inspect_step(f"Run stopped ({self.step.run_label}): inspect the rotor")
         return event
 

@@ -40,7 +40,7 @@ class Mass:
 
 
 @dataclass(frozen=True)
-class Bearing:
+class Support:
     """One support: axial position and its horizontal/vertical stiffness and damping."""
 
     axial_mm: float
@@ -92,7 +92,7 @@ class RigidRotor:
     transverse_inertia_kg_m2: float
     polar_inertia_kg_m2: float
     centre_of_mass_axial_mm: float
-    bearings: list[Bearing]
+    bearings: list[Support]
     planes: list[CorrectionPlane]
     pickups: list[Pickup]
     nonlinearity: float = 0.0

@@ -20,11 +20,11 @@ from trueturn.errors import UserError
 from trueturn.positions import equally_spaced_deg
 from trueturn.sim.rotor import (
     STANDARD_GRAVITY_M_S2,
-    Bearing,
     CorrectionPlane,
     Mass,
     Pickup,
     RigidRotor,
+    Support,
 )
 
 ADC_REFERENCE_V = 5.0
@@ -214,7 +214,7 @@ def parse_scenario(raw: Any, source: str) -> Scenario:
         b = _mapping(b, w)
         k = _num(b, "stiffness_n_per_m", w, b.get("stiffness_h_n_per_m"))
         c = _num(b, "damping_ns_per_m", w, b.get("damping_h_ns_per_m"))
-        bearings.append(Bearing(axial_mm=_num(b, "axial_mm", w),
+        bearings.append(Support(axial_mm=_num(b, "axial_mm", w),
                                 stiffness_h_n_per_m=_num(b, "stiffness_h_n_per_m", w, k),
                                 stiffness_v_n_per_m=_num(b, "stiffness_v_n_per_m", w, k),
                                 damping_h_ns_per_m=_num(b, "damping_h_ns_per_m", w, c),

@@ -718,7 +718,7 @@ class TrueturnApp(App):
                 for i, name in enumerate(meter.sensors):
                     r = run.readings.get(name)
                     if r is not None and r.phase_deg is not None:
-                        points.append(PolarPoint(r.amplitude, r.phase_deg, str(k + 1 % 10),
+                        points.append(PolarPoint(r.amplitude, r.phase_deg, str((k + 1) % 10),  # one digit: run 10 shows 0
                                                  STYLES[i % len(STYLES)], current=False))
         c = snap.counters
         lines += [f"link: {c.get('frames_bad', 0)} bad frames, {c.get('frames_lost', 0)} lost,",

@@ -4,13 +4,15 @@ after every hands-on step and every run, closed with the verdict and an HTML rep
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 from pathlib import Path
 
 from trueturn.jobs import records as rec
-from trueturn.jobs.profiles import VIBRATION_UNIT_LABELS, MachineProfile
+from trueturn.jobs.profiles import MachineProfile
 from trueturn.jobs.report import html_report
 from trueturn.jobs.store import Workspace, atomic_write_text, write_document
 from trueturn.model import Run, RunKind, SafetyEvent
+from trueturn.model.units import VIBRATION_UNIT_LABELS
 from trueturn.positions import number_of
 from trueturn.procedure.guide import MassChange, Mode, Procedure
 from trueturn.procedure.standstill import StandstillEvidence
@@ -101,12 +103,11 @@ class JobKeeper:
     def run(self, proc: Procedure, run: Run) -> None:
         if self.job is None:
             return
-        kind = (run.kind or RunKind.CHECK).value  # the procedure says why it ran
-        readings = [rec.Reading(r.sensor, r.amplitude, r.unit,  # type: ignore[arg-type]
-                                None if r.phase_deg is None else r.phase_deg % 360.0,
-                                min(180.0, r.confidence_deg), r.revolutions,
-                                r.speed_rpm or run.speed_rpm or 0.0,
-                                confidence_radius=r.confidence_radius)
+        kind = run.kind or RunKind.CHECK  # the procedure says why it ran
+        # the model's readings as measured; only what the file's limits need is folded in
+        readings = [replace(r, phase_deg=None if r.phase_deg is None else r.phase_deg % 360.0,
+                            confidence_deg=min(180.0, r.confidence_deg),
+                            speed_rpm=r.speed_rpm or run.speed_rpm)
                     for r in run.readings.values()]
         corrections = []
         if proc.step.kind == "correction" and proc.solution is not None:
@@ -114,11 +115,11 @@ class JobKeeper:
                 parts = [rec.SplitPart(number_of(p.position), p.angle_deg, abs(p.mass_g))
                          for p in proc.solution.parts
                          if p.plane == c.plane and p.position is not None]
-                corrections.append(rec.Correction(
+                corrections.append(rec.CorrectionEntry(
                     c.plane, c.mass_g, c.angle_deg, "remove" if proc.removal else "add",
                     proc.plane(c.plane).radius_mm, parts))
         events = [rec.Event(rec.now_iso(), e.kind, e.detail) for e in run.events]
-        record = rec.Run(index=self.job.next_run_index, kind=kind,  # type: ignore[arg-type]
+        record = rec.RunEntry(index=self.job.next_run_index, kind=kind,
                          time=rec.now_iso(), speed_rpm=run.speed_rpm, readings=readings,
                          label=run.label, confirmations=self._new_confirmations(proc),
                          corrections=corrections, events=events,
@@ -160,7 +161,7 @@ class JobKeeper:
                       for name, res, per, within in v.rows()]
             note = " ".join([verdict_note(v, proc.setup.speed_rpm),
                              *(VERDICT_FLAG_WORDS[f] + "." for f in v.flags)])
-            self.job.verdict = rec.Verdict(proc.setup.grade_mm_per_s, proc.setup.speed_rpm,
+            self.job.verdict = rec.VerdictEntry(proc.setup.grade_mm_per_s, proc.setup.speed_rpm,
                                            len(self.job.runs), planes, v.passed, note=note)
         self._keep_coefficients(proc)
         self.job.status = "closed"

@@ -8,8 +8,6 @@ from typing import TYPE_CHECKING
 from trueturn.balance.readings import SavedCoefficient
 from trueturn.jobs.profiles import Bearing, MachineProfile, Pickup, Plane, PlaneLayout
 from trueturn.jobs.records import CoefficientSet
-from trueturn.model import Bearing as ModelBearing
-from trueturn.model import Plane as ModelPlane
 from trueturn.positions import number_of, position_text
 from trueturn.procedure.guide import MassChange, Mode, Procedure, ProcedureSetup
 
@@ -36,7 +34,7 @@ def profile_from_scenario(scenario: Scenario) -> MachineProfile:
         else:
             plane_layout = PlaneLayout()
         planes.append(Plane(cp.name, cp.radius_mm, cp.axial_mm, plane_layout,
-                            removal=bool(layout is not None and layout.removal)))
+                            removal_allowed=bool(layout is not None and layout.removal)))
     pickups = [Pickup(p.name, e.sensitivity_v_per_g * 1000.0, e.zero_g_v * 1000.0,
                       direction="vertical" if abs(p.direction_deg - 90.0) < 1 else "horizontal")
                for p, e in zip(scenario.rotor.pickups, scenario.electrical, strict=False)]
@@ -48,7 +46,7 @@ def profile_from_scenario(scenario: Scenario) -> MachineProfile:
         target_grade=DEMO_GRADE_MM_S,
         bearings=[Bearing(f"bearing {i + 1}", b.axial_mm)
                   for i, b in enumerate(scenario.rotor.bearings)],
-        cg_axial_position_mm=scenario.rotor.centre_of_mass_axial_mm,
+        cg_axial_mm=scenario.rotor.centre_of_mass_axial_mm,
         notes="Simulated rig for the demo; all numbers are invented.")
 
 
@@ -64,10 +62,7 @@ def setup_from_profile(profile: MachineProfile, mode: Mode, standstill_s: float 
         coefficients = tuple(SavedCoefficient(e.sensor, e.plane, e.amp, e.phase_deg,
                                               saved.speed_rpm) for e in saved.entries)
     bearings = profile.bearing_positions_mm()
-    planes = tuple(ModelPlane(p.name, p.radius_mm, p.max_mass_g,
-                              p.axial_position_mm if bearings else None,
-                              tuple(p.layout.position_angles_deg()), p.removal)
-                   for p in profile.planes)
+    planes = tuple(profile.planes)
     return ProcedureSetup(
         machine=profile.name, mode=mode, planes=planes,
         sensors=tuple(p.name for p in profile.pickups), rotor_mass_kg=profile.rotor_mass_kg,
@@ -77,9 +72,8 @@ def setup_from_profile(profile: MachineProfile, mode: Mode, standstill_s: float 
         saved_planes=tuple(dict.fromkeys(c.plane for c in coefficients)),
         profile_planes=len(profile.planes),
         saved_coefficients=coefficients,
-        bearings=tuple(ModelBearing(b.name, b.axial_position_mm) for b in profile.bearings)
-        if bearings else (),
-        cg_axial_mm=profile.cg_axial_position_mm)
+        bearings=tuple(profile.bearings) if bearings else (),
+        cg_axial_mm=profile.cg_axial_mm)
 
 
 def describe_change(change: MassChange, proc: Procedure, engine: BalanceEngine) -> str:

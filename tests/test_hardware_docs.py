@@ -71,7 +71,8 @@ def test_schematic_is_valid_svg_and_shows_the_pin_map() -> None:
     assert root.tag == f"{SVG_NS}svg"
     assert len(root.get("viewBox", "").split()) == 4
     texts = " ".join("".join(el.itertext()) for el in root.iter(f"{SVG_NS}text"))
-    for label in ("A0", "A1", "D8", "5V", "GND", "PICKUP_1", "PICKUP_2", "TACH", "1 kΩ", "1 µF"):
+    for label in ("A0", "A1", "D8", "5V", "GND", "PICKUP_1", "PICKUP_2", "TACH", "1 kΩ", "470 nF",
+                  "10 kΩ", "X OUT"):
         assert label in texts, f"schematic.svg has no label {label!r}"
 
 
@@ -129,6 +130,44 @@ def test_phase_lag_and_gain_table() -> None:
         lag_deg = float(cells[2].rstrip("°"))
         assert lag_deg == pytest.approx(math.degrees(math.atan(f_hz / fc_hz)), abs=0.06)
         assert float(cells[3]) == pytest.approx(1 / math.sqrt(1 + (f_hz / fc_hz) ** 2), abs=6e-4)
+
+
+def test_lag_drift_per_ten_percent_of_rc() -> None:
+    # First-order low-pass lag atan(f/fc) (same source): at the corner a 10 % larger R*C
+    # moves it by atan(1.1) - 45 deg; at a fifth of the corner by (x/(1+x^2)) ln 1.1 rad.
+    text = " ".join(WIRING_TEXT.split())
+    m = re.search(r"moves the lag by \*\*([\d.]+)°\*\*.*?at a fifth of the corner it moves by "
+                  r"([\d.]+)°", text)
+    assert m, "the lag drift sentence is gone from WIRING.md"
+    assert float(m.group(1)) == pytest.approx(math.degrees(math.atan(1.1)) - 45.0, abs=0.06)
+    x = 0.2
+    assert float(m.group(2)) == pytest.approx(math.degrees(x / (1 + x * x) * math.log(1.1)),
+                                              abs=0.006)
+    assert "24,000 rpm (a 1x of 400 Hz)" in text and "at least 5 times the highest 1x" in text
+
+
+def test_fast_filter_table() -> None:
+    rows = _table(WIRING_TEXT, "| pickup output | r | c |")
+    fc_hz = 1 / (2 * math.pi * _quantity(rows[1][1], "Ω") * _quantity(rows[1][2], "F"))
+    table = _table(WIRING_TEXT, "| 1x frequency (fc 2340.5 hz) | speed |")
+    assert fc_hz >= 5 * max(_quantity(r[0], "Hz") for r in table)  # the five-times rule
+    for cells in table:
+        f_hz = _quantity(cells[0], "Hz")
+        assert _quantity(cells[1], "rpm") == pytest.approx(60 * f_hz)
+        assert float(cells[2].rstrip("°")) == pytest.approx(
+            math.degrees(math.atan(f_hz / fc_hz)), abs=0.06)
+        assert float(cells[3]) == pytest.approx(1 / math.sqrt(1 + (f_hz / fc_hz) ** 2), abs=6e-4)
+
+
+def test_module_plus_board_rc_figures() -> None:
+    # 33 kOhm (32 inside the chip + 1 at the board) into 1.1 uF (module 0.1 + board 1 uF)
+    fc_hz = 1 / (2 * math.pi * 33e3 * 1.1e-6)
+    text = " ".join(WIRING_TEXT.split())
+    m = re.search(r"corner at about ([\d.]+) Hz \(33 kΩ into 1\.1 µF\) and cut a 60 Hz 1x about "
+                  r"(\d+) times", text)
+    assert m
+    assert float(m.group(1)) == pytest.approx(fc_hz, abs=0.06)
+    assert float(m.group(2)) == pytest.approx(math.sqrt(1 + (60 / fc_hz) ** 2), abs=0.5)
 
 
 def test_module_as_sold_figures() -> None:

@@ -15,7 +15,6 @@ from pathlib import Path
 
 import yaml
 from textual import events
-from textual.keys import _character_to_key
 from textual.pilot import Pilot
 from textual.widgets import Input, Static
 
@@ -51,23 +50,22 @@ def make_app(scenario: str, tmp_path: Path) -> TrueturnApp:
 
 
 async def press(app: TrueturnApp, pilot: Pilot, *keys: str) -> None:
+    """Keys as the terminal would send them, posted with Textual's public ``post_message``
+    and a short pause after each (``Pilot.press`` and ``Pilot.pause()`` wait for the app to
+    go idle, which this app, fed by its board thread, seldom is: minutes per test)."""
     for key in keys:
-        event = events.Key(key, key if len(key) == 1 else None)
-        event.set_sender(app)
-        assert app._driver is not None
-        app._driver.send_message(event)
+        app.post_message(events.Key(key, key if len(key) == 1 else None))
         await pilot.pause(0.02)
-    await pilot._wait_for_screen()
+
+
+#: Textual's key names for the few printable characters the tests type (textual.keys)
+KEY_NAMES = {" ": "space", ".": "full_stop", "-": "minus", "/": "slash", ",": "comma"}
 
 
 async def type_text(app: TrueturnApp, pilot: Pilot, text: str) -> None:
     for ch in text:
-        event = events.Key(_character_to_key(ch) if not ch.isalnum() else ch, ch)
-        event.set_sender(app)
-        assert app._driver is not None
-        app._driver.send_message(event)
+        app.post_message(events.Key(KEY_NAMES.get(ch, ch), ch))
         await pilot.pause(0.01)
-    await pilot._wait_for_screen()
 
 
 async def wait_for(pilot: Pilot, condition, timeout_s: float = 60.0) -> None:  # type: ignore[no-untyped-def]

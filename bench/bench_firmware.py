@@ -40,8 +40,8 @@ def _sizes() -> dict[str, int]:
 def _run_stream(seconds: float, scenario: str = "bench-grinder") -> tuple[dict, dict, float]:
     """Run the firmware streaming 2 x 4 kSps for `seconds`; return (report, counters, wall)."""
     from trueturn.link.codec import StreamDecoder, encode_frame
-    from trueturn.link.handlers.protocol_emu import harness_args
     from trueturn.sim import signal_spec
+    from trueturn.sim.handlers.protocol_emu import harness_args
 
     configure = encode_frame("configure", 1, {"rate_hz": 4000, "channels": 2, "tach_edge": 1})
     start = encode_frame("start", 2)

@@ -216,7 +216,7 @@ def _run_harness(extra: list[str], seconds: float, scenario: str = "bench-grinde
     from pathlib import Path
 
     from firmware_helpers import ELF, HARNESS
-    from trueturn.link.handlers.protocol_emu import harness_args
+    from trueturn.sim.handlers.protocol_emu import harness_args
 
     spec = signal_spec(scenario, channels=channels, **spec_options)
     start = encode_frame("start", 1).hex()

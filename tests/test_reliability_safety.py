@@ -37,7 +37,7 @@ BANNED_MODULES = {"pickle", "cPickle", "marshal", "shelve", "socket", "socketser
 WRITERS = {
     HOST / "jobs" / "store.py": "atomic_write_bytes: temp file beside the target, fsync, rename",
     HOST / "link" / "capture.py": "CaptureWriter: the capture file named by record -o",
-    HOST / "link" / "handlers" / "protocol_emu.py": "the emulator's log, in its own "
+    HOST / "sim" / "handlers" / "protocol_emu.py": "the emulator's log, in its own "
                                                     "tempfile.TemporaryDirectory (removed)",
 }
 

@@ -347,7 +347,7 @@ class FakeClock:
 def test_realtime_pacing_follows_the_wall_clock(monkeypatch: pytest.MonkeyPatch) -> None:
     # The handler's clock is replaced, so the pacing is checked exactly and the result does
     # not depend on how busy the machine is.
-    import trueturn.link.handlers.protocol_sim as handler
+    import trueturn.sim.handlers.protocol_sim as handler
 
     clock = FakeClock()
     monkeypatch.setattr(handler, "time", clock)

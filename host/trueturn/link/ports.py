@@ -15,7 +15,9 @@ from trueturn.link.problems import PortError, check_port_name, classify_error
 KNOWN_BRIDGES: dict[tuple[int, int], str] = {
     vid_pid: f"{chip.name}, {chip.boards}" for chip in CHIPS for vid_pid in chip.vid_pids}
 
-URL_HANDLER_PACKAGE = "trueturn.link.handlers"
+#: packages pyserial searches for ``protocol_<scheme>`` modules, by name: the simulated
+#: and emulated boards live with the simulator, which link never imports
+URL_HANDLER_PACKAGES = ("trueturn.sim.handlers",)
 
 
 @dataclass(frozen=True)
@@ -34,8 +36,9 @@ class PortInfo:
 
 def register_url_handlers() -> None:
     """Make ``sim://`` and ``emu://`` (modules ``protocol_sim``/``protocol_emu``) known to pyserial."""
-    if URL_HANDLER_PACKAGE not in serial.protocol_handler_packages:
-        serial.protocol_handler_packages.append(URL_HANDLER_PACKAGE)
+    for package in URL_HANDLER_PACKAGES:
+        if package not in serial.protocol_handler_packages:
+            serial.protocol_handler_packages.append(package)
 
 
 def port_info(device: str, description: str, vid: int | None, pid: int | None) -> PortInfo:

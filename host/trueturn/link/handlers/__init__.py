@@ -1,1 +1,1 @@
-"""pyserial URL handlers: pyserial imports ``protocol_<scheme>`` from this package."""
+"""The virtual serial port that the simulator's URL handlers (``trueturn.sim.handlers``) build on."""

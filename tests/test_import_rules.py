@@ -1,0 +1,107 @@
+"""The layers of ARCHITECTURE.md as rules on the import graph, read from the source (ast).
+
+* No package reaches into another's internals: no ``_private`` name is imported across
+  packages.
+* No import cycle between the packages of ``trueturn``.
+
+Common practice, no source: layering rules checked by reading the import statements.
+"""
+
+from __future__ import annotations
+
+import ast
+from pathlib import Path
+
+PACKAGE = Path(__file__).resolve().parents[1] / "host" / "trueturn"
+
+PURE = {"model", "dsp", "balance", "procedure", "angles", "positions", "errors"}
+IO_LAYERS = {"link", "sim", "jobs", "ui", "cli"}
+IO_LIBRARIES = {"textual", "serial", "yaml", "socket", "subprocess"}
+MODEL_NOUNS = {"Reading", "PlacedMass", "Correction", "Verdict", "Run", "RunKind",
+               "MassKind", "Bearing", "SafetyEvent", "Phasor"}
+
+
+def _modules() -> list[tuple[str, Path, ast.Module]]:
+    out = []
+    for path in sorted(PACKAGE.rglob("*.py")):
+        rel = path.relative_to(PACKAGE)
+        top = rel.parts[0].removesuffix(".py")
+        out.append((top, path, ast.parse(path.read_text(encoding="utf-8"), str(path))))
+    return out
+
+
+def _imports(tree: ast.Module) -> list[tuple[str, list[str], int]]:
+    """(module imported, names imported, line) for every import, at any depth."""
+    found = []
+    for node in ast.walk(tree):
+        if isinstance(node, ast.Import):
+            found += [(a.name, [], node.lineno) for a in node.names]
+        elif isinstance(node, ast.ImportFrom) and node.module and node.level == 0:
+            found.append((node.module, [a.name for a in node.names], node.lineno))
+    return found
+
+
+def _package_of(module: str) -> str | None:
+    parts = module.split(".")
+    return parts[1] if parts[0] == "trueturn" and len(parts) > 1 else None
+
+
+def test_no_private_name_is_imported_across_packages() -> None:
+    bad = []
+    for top, path, tree in _modules():
+        for module, names, line in _imports(tree):
+            target = _package_of(module)
+            if target is None or target == top:
+                continue
+            private = [n for n in names if n.startswith("_")]
+            private += [p for p in module.split(".") if p.startswith("_")]
+            if private:
+                bad.append(f"{path.relative_to(PACKAGE)}:{line}: {module} {private}")
+    assert not bad, "\n".join(bad)
+
+
+def _graph() -> dict[str, set[str]]:
+    graph: dict[str, set[str]] = {}
+    for top, _, tree in _modules():
+        for module, _, _ in _imports(tree):
+            target = _package_of(module)
+            if target is not None and target != top:
+                graph.setdefault(top, set()).add(target)
+    return graph
+
+
+def _cycle(graph: dict[str, set[str]]) -> list[str] | None:
+    """One cycle of the graph, or None (depth-first search with colours)."""
+    state: dict[str, int] = {}
+    stack: list[str] = []
+
+    def visit(node: str) -> list[str] | None:
+        state[node] = 1
+        stack.append(node)
+        for nxt in sorted(graph.get(node, ())):
+            if state.get(nxt) == 1:
+                return stack[stack.index(nxt):] + [nxt]
+            if nxt not in state:
+                found = visit(nxt)
+                if found:
+                    return found
+        stack.pop()
+        state[node] = 2
+        return None
+
+    for node in sorted(graph):
+        if node not in state:
+            found = visit(node)
+            if found:
+                return found
+    return None
+
+
+def test_the_cycle_finder_finds_a_cycle() -> None:
+    assert _cycle({"a": {"b"}, "b": {"c"}, "c": {"a"}}) == ["a", "b", "c", "a"]
+    assert _cycle({"a": {"b"}, "b": {"c"}}) is None
+
+
+def test_no_import_cycle_between_packages() -> None:
+    cycle = _cycle(_graph())
+    assert cycle is None, " -> ".join(cycle or [])

@@ -10,8 +10,11 @@ import pytest
 from scipy import optimize
 
 from trueturn.dsp.order import (
+    _solve_spd,
     estimate_orders,
     fit_block,
+    fit_blocks,
+    fit_even,
     group_for,
     revolution_basis,
     solve_orders,
@@ -246,3 +249,40 @@ def test_grouped_phase_efficiency_against_cramer_rao(snr_db: float) -> None:
     crlb_std = math.sqrt(2 * sigma**2 / (n_used * amp**2))
     ratio = float(np.sqrt(np.mean(np.square(errors)))) / crlb_std
     assert 0.85 < ratio < 1.15
+
+
+@pytest.mark.parametrize("group", [1, 2, 4])
+def test_evenly_spaced_fit_equals_the_searched_fit(group: int) -> None:
+    # fit_even finds each revolution's samples by arithmetic (the meter's usual case); it
+    # must give what fit_blocks gives (itself checked against numpy.linalg.lstsq above) on
+    # the same samples: two pickups interleaved on one ADC, the second a conversion later
+    tones = (49.9, 50.0, 50.1, 99.8, 100.0, 100.2)
+    ticks, y, edges = _record(31.0, 8, 8000.0, {1: 4 + 1j, 2: 0.5j, 3: 0.2}, {50.03: 9 + 2j},
+                              sigma=0.7, seed=8, drift=0.02)
+    # the samples stop inside the last revolution (it has fewer, the batch's end)
+    cut = int(np.searchsorted(ticks, edges[-1])) - 90
+    a_ticks, b_ticks = ticks[:cut:2], ticks[1:cut:2]
+    a, b = y[:cut:2], y[1:cut:2] * 0.5 + 1.0
+    starts, ends = edges[1:-1], edges[2:]  # the first revolution starts after the samples do
+    searched = fit_blocks([a_ticks, b_ticks], [a, b], starts, ends, TICK_HZ, (1, 2, 3), tones,
+                          int(edges[0]), group)
+    even = fit_even([a, b], [int(a_ticks[0]), int(b_ticks[0])], int(a_ticks[1] - a_ticks[0]),
+                    starts, ends, TICK_HZ, (1, 2, 3), tones, int(edges[0]), group)
+    for s, e in zip(searched, even, strict=True):
+        for name in ("coef_y", "coef_n", "schur_nn", "schur_ny", "resid_yy", "gram_aa",
+                     "gram_an", "gram_nn", "gram_ay", "gram_ny"):
+            np.testing.assert_allclose(getattr(e, name), getattr(s, name), rtol=1e-9,
+                                       atol=1e-9 * np.abs(getattr(s, name)).max())
+        np.testing.assert_array_equal(e.sample_counts, s.sample_counts)
+        np.testing.assert_array_equal(e.observations, s.observations)
+
+
+def test_batched_elimination_matches_numpy_solve() -> None:
+    # reference: numpy.linalg.solve (LAPACK gesv, partial pivoting) on random symmetric
+    # positive definite systems, conditioned like the per-revolution normal equations
+    rng = np.random.default_rng(3)
+    x = rng.normal(size=(50, 40, 7)) * np.array([5, 1, 1, 0.3, 0.3, 0.1, 0.1])
+    a = np.matmul(x.transpose(0, 2, 1), x)
+    b = rng.normal(size=(50, 7, 13))
+    np.testing.assert_allclose(_solve_spd(a, b), np.linalg.solve(a, b), rtol=1e-10,
+                               atol=1e-12)

@@ -37,7 +37,14 @@ from trueturn.dsp.averaging import (
     vector_stats,
 )
 from trueturn.dsp.findings import Code, Finding, describe
-from trueturn.dsp.order import ROW_FIELDS, BlockFit, fit_blocks, group_for, solve_orders
+from trueturn.dsp.order import (
+    ROW_FIELDS,
+    BlockFit,
+    fit_blocks,
+    fit_even,
+    group_for,
+    solve_orders,
+)
 from trueturn.dsp.shaft import Revolution, TachTracker, extend_tick
 from trueturn.dsp.spectrum import Spectrum, name_by_levels, spectrum
 from trueturn.dsp.units import (
@@ -159,6 +166,12 @@ class _RowStore:
             self.arrays = {k: np.array(v[-self.limit:]) for k, v in block.items()}
             self.count = self.limit
             return
+        if not self.arrays and new:
+            # the first block is kept as it is (no copy: the caller hands it over); the next
+            # one grows the store into arrays of its own
+            self.arrays = dict(block)
+            self.count = new
+            return
         if not self.arrays:
             cap = min(self.limit, max(256, 2 * new))
             self.arrays = {k: np.zeros((cap,) + v.shape[1:], v.dtype) for k, v in block.items()}
@@ -226,6 +239,7 @@ class LiveAnalyzer:
         self.streams = 0  # streams that carried samples (a configure-only one does not count)
         self.tach = TachTracker()
         self.timebase_from_blocks = 0  # streams whose stream_config never arrived
+        self.block_max = 0  # the most samples one block held
         self._edge_count: int | None = None  # the last tach message's edge_count
         self._last_status: MessageLike | None = None
         self._reset_stream(None)
@@ -284,8 +298,15 @@ class LiveAnalyzer:
         if name == "tach":
             count = int(msg["edge_count"])
             # the board counts every edge it takes (16 bits, SPEC 4.5): a jump is edges the
-            # USB link lost, not edges the sensor missed
-            lost = (count - self._edge_count - 1) & 0xFFFF if self._edge_count is not None else 0
+            # USB link lost, not edges the sensor missed; the same count again is the same
+            # edge (SPEC 5, no loss, nothing new), a count going back started again
+            lost = 0
+            if self._edge_count is not None:
+                step = (count - self._edge_count) & 0xFFFF
+                if step == 0:
+                    return False
+                if step < 0x8000:
+                    lost = step - 1
             self._edge_count = count
             if self.config is not None:
                 tick = extend_tick(int(msg["tick"]), self._latest_tick)
@@ -293,7 +314,9 @@ class LiveAnalyzer:
                 if rev is not None:
                     self._pending.append(rev)
                     self._pending_ends.append(rev.end_tick)
-                    return self._ready_count() > 0
+                    # (its samples usually come with the next block: nothing ready yet)
+                    return self._latest_tick >= self._pending_ends[0] and \
+                        self._ready_count() > 0
             return False
         if name == "status":
             self._status(msg)
@@ -361,39 +384,46 @@ class LiveAnalyzer:
         return self.start_tick + index * self.period_ticks + self.aperture_ticks
 
     def _samples(self, msg: MessageLike) -> bool:
-        start, period, ch = int(msg["start_tick"]), int(msg["period_ticks"]), int(msg["channels"])
-        if self.config is None or (start, period, ch) != (
-                self.start_tick & 0xFFFFFFFF, self.period_ticks, self.channels):
+        v = getattr(msg, "values", msg)  # the field dict of a codec Message: fewer calls
+        start, period, ch = v["start_tick"], v["period_ticks"], v["channels"]
+        if self.config is None or start != self.start_tick & 0xFFFFFFFF or \
+                period != self.period_ticks or ch != self.channels:
             # SPEC 4.4: every block carries its stream's timebase, so a lost (or unrecorded)
             # stream_config costs nothing: the block starts the stream it belongs to
             self.timebase_from_blocks += 1
-            self._reset_stream(_BlockTimebase(start, period, ch, self.tick_hz))
-        first = int(msg["first_index"])
-        if self._next_index is not None:
-            first = extend_tick(first, self._next_index)
-            if first < self._next_index:
-                return False  # repeated or stale block
-            if first > self._next_index:
-                self._gaps.append((self._sample_tick(self._next_index), self._sample_tick(first)))
-                self._fresh.clear()
-                self._ring.clear()
-        if self._next_index is None:
+            self._reset_stream(_BlockTimebase(int(start), int(period), int(ch), self.tick_hz))
+        first = int(v["first_index"])
+        expected = self._next_index
+        if expected is None:
             self.streams += 1
+        elif first != expected & 0xFFFFFFFF:  # (the usual block follows on: no arithmetic)
+            first = extend_tick(first, expected)
+            if first < expected:
+                return False  # repeated or stale block
+            self._gaps.append((self._sample_tick(expected), self._sample_tick(first)))
+            self._fresh.clear()
+            self._ring.clear()
+        else:
+            first = expected
         # kept as received (a numpy array from the codec: no copy); converted to float in
         # bulk when revolutions are fitted, counted for clipping and put in the spectrum ring
         # in bulk too (per-block numpy calls cost more than the arithmetic at 2 x 4 kSps)
-        values = np.asarray(msg["samples"])
+        values = np.asarray(v["samples"])
         n = values.size - values.size % ch
         if n != values.size:
             values = values[:n]
         self._next_index = first + n
         self.samples_seen += n
+        if n > self.block_max:
+            self.block_max = n
         self._chunks.append((first, values))
         self._fresh.append(values)
         if len(self._fresh) >= 64:
             self._flush_fresh()
-        self._latest_tick = self._sample_tick(self._next_index)
-        ready = self._ready_count()
+        self._latest_tick = self.start_tick + (first + n) * self.period_ticks + \
+            self.aperture_ticks
+        ready = self._ready_count() if self._pending and \
+            self._latest_tick >= self._pending_ends[0] else 0
         if ready >= self.batch_revs:
             self._process()
         elif not self._pending:
@@ -450,6 +480,19 @@ class LiveAnalyzer:
         while chunks and chunks[0][0] + chunks[0][1].size <= keep_index:
             chunks.popleft()
 
+    def _contiguous(self) -> tuple[int, np.ndarray] | None:
+        """(first conversion index, values) of the held samples when no index is missing
+        between them (they are then evenly spaced in time), else None."""
+        chunks = self._chunks
+        if not chunks:
+            return None
+        expected = chunks[0][0]
+        for first, values in chunks:
+            if first != expected:
+                return None
+            expected = first + values.size
+        return chunks[0][0], np.concatenate([v for _, v in chunks]).astype(float)
+
     def _channel_samples(self) -> tuple[np.ndarray, np.ndarray]:
         """(conversion indices, values) of every held sample, oldest first."""
         firsts = np.array([f for f, _ in self._chunks], dtype=np.int64)
@@ -471,7 +514,7 @@ class LiveAnalyzer:
         for rev in ready:
             if any(g0 < rev.end_tick and g1 > rev.start_tick for g0, g1 in self._gaps):
                 self.revs_with_gaps += 1
-            elif rev.number in self.tach.uneven:
+            elif self.tach.is_uneven(rev.number):
                 self.revs_uneven += 1
             else:
                 use.append(rev)
@@ -481,15 +524,25 @@ class LiveAnalyzer:
         if kept:
             starts = np.array([r.start_tick for r in kept], dtype=np.int64)
             ends = np.array([r.end_tick for r in kept], dtype=np.int64)
-            index, values = self._channel_samples()
-            ticks = self.start_tick + index * self.period_ticks + self.aperture_ticks
             ch = self.channels
-            phase = int(index[0] % ch)
-            sels = [slice((c - phase) % ch, None, ch) for c in range(ch)]
             samples_per_rev = float((ends - starts).min()) / (ch * self.period_ticks)
-            fits = fit_blocks([ticks[s] for s in sels], [values[s] for s in sels], starts, ends,
-                              self.tick_hz, self.orders, self._nuisance_hz(), self.start_tick,
-                              group_for(samples_per_rev))
+            group = group_for(samples_per_rev)
+            contiguous = self._contiguous()
+            if contiguous is not None:  # the usual case: no sample lost in what is held
+                first, values = contiguous
+                offsets = [(c - first) % ch for c in range(ch)]
+                fits = fit_even([values[o::ch] for o in offsets],
+                                [self._sample_tick(first + o) for o in offsets],
+                                ch * self.period_ticks, starts, ends, self.tick_hz,
+                                self.orders, self._nuisance_hz(), self.start_tick, group)
+            else:
+                index, values = self._channel_samples()
+                ticks = self.start_tick + index * self.period_ticks + self.aperture_ticks
+                phase = int(index[0] % ch)
+                sels = [slice((c - phase) % ch, None, ch) for c in range(ch)]
+                fits = fit_blocks([ticks[s] for s in sels], [values[s] for s in sels], starts,
+                                  ends, self.tick_hz, self.orders, self._nuisance_hz(),
+                                  self.start_tick, group)
             for c, fit in enumerate(fits):
                 self._rows[c].append({name: getattr(fit, name) for name in ROW_FIELDS})
             self._periods.append({"ticks": ends - starts})

@@ -281,20 +281,65 @@ def fit_blocks(sample_ticks: list[np.ndarray], values: list[np.ndarray], starts:
         gram[odd] = _dense_gram(ticks_flat, values_all, row_starts[odd], row_ends[odd],
                                 lo[odd], counts[odd], tick_hz, orders, nuisance_hz,
                                 origin_tick)
+    return _finish(gram, observations, counts, n_ch, n_revs, orders, nuisance_hz)
+
+
+def fit_even(values: list[np.ndarray], first_ticks: list[int], step_ticks: int,
+             starts: np.ndarray, ends: np.ndarray, tick_hz: float,
+             orders: tuple[int, ...] = (1, 2, 3), nuisance_hz: tuple[float, ...] = (),
+             origin_tick: int = 0, group: int = 1) -> list[BlockFit]:
+    """:func:`fit_blocks` for pickups whose samples are all evenly spaced: sample k of
+    pickup c at tick ``first_ticks[c] + k * step_ticks`` (a stream without lost samples, as
+    the meter holds it). Each revolution's samples are found by arithmetic instead of a
+    search, and every revolution is fitted from its sums of ``group`` samples
+    (:func:`_gram`); the result is that of :func:`fit_blocks` on the same samples.
+    """
+    starts = np.asarray(starts, dtype=np.int64)
+    ends = np.asarray(ends, dtype=np.int64)
+    n_revs = len(starts)
+    n_ch = len(values)
+    lo_rows, counts_rows, first_rows = [], [], []
+    offset = 0
+    for c in range(n_ch):
+        size = len(values[c])
+        t0 = int(first_ticks[c])
+        lo = np.clip(-((t0 - starts) // step_ticks), 0, size)  # first sample at or after
+        hi = np.clip(-((t0 - ends) // step_ticks), 0, size)
+        lo_rows.append(lo + offset)
+        counts_rows.append(hi - lo)
+        first_rows.append(t0 + lo * step_ticks)
+        offset += size
+    values_all = np.concatenate([np.asarray(v, dtype=float) for v in values]) if n_ch else \
+        np.zeros(0)
+    lo, counts, first = (np.concatenate(x) for x in (lo_rows, counts_rows, first_rows))
+    step = np.full(len(lo), step_ticks, dtype=np.int64)
+    gram, observations = _gram(values_all, lo, first, step, np.tile(starts, n_ch),
+                               np.tile(ends, n_ch), counts, tick_hz, orders, nuisance_hz,
+                               origin_tick, group)
+    return _finish(gram, observations, counts, n_ch, n_revs, orders, nuisance_hz)
+
+
+def _finish(gram: np.ndarray, observations: np.ndarray, counts: np.ndarray, n_ch: int,
+            n_revs: int, orders: tuple[int, ...],
+            nuisance_hz: tuple[float, ...]) -> list[BlockFit]:
+    """Per-revolution statistics from the normal equations ``gram`` (rows: pickup by
+    pickup, revolution by revolution), split into one :class:`BlockFit` per pickup."""
+    p = 1 + 2 * len(orders)
+    q = 2 * len(nuisance_hz)
     aa = gram[:, :p, :p]
     rhs = gram[:, :p, p:]
     ok = observations >= 2 * p
     aa_safe = np.where(ok[:, None, None], aa, np.eye(p))
-    solved = np.linalg.solve(aa_safe, rhs)  # (R, p, q + 1)
+    solved = _solve_spd(aa_safe, rhs)  # (R, p, q + 1)
     coef_n = solved[:, :, :q]
     coef_y = solved[:, :, q]
     na = gram[:, p:p + q, :p]
     schur_nn = gram[:, p:p + q, p:p + q] - np.matmul(na, coef_n)
     schur_ny = gram[:, p:p + q, -1] - np.einsum("rqp,rp->rq", na, coef_y)
     resid_yy = gram[:, -1, -1] - np.einsum("rp,rp->r", rhs[:, :, q], coef_y)
-    blocks = [coef_n, schur_nn, schur_ny, resid_yy, gram[:, :p, :p].copy(),
-              gram[:, :p, p:p + q].copy(), gram[:, p:p + q, p:p + q].copy(),
-              gram[:, :p, -1].copy(), gram[:, p:p + q, -1].copy()]
+    # views into gram: the meter's row store copies them, nothing else writes to gram
+    blocks = [coef_n, schur_nn, schur_ny, resid_yy, gram[:, :p, :p], gram[:, :p, p:p + q],
+              gram[:, p:p + q, p:p + q], gram[:, :p, -1], gram[:, p:p + q, -1]]
     bad = ~ok
     if bad.any():
         coef_y[bad] = np.nan
@@ -306,6 +351,27 @@ def fit_blocks(sample_ticks: list[np.ndarray], values: list[np.ndarray], starts:
         fits.append(BlockFit(tuple(orders), tuple(nuisance_hz), coef_y[r],
                              *(arr[r] for arr in blocks), counts[r], observations[r]))
     return fits
+
+
+def _solve_spd(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """``x`` with ``a[r] x[r] = b[r]`` for a batch of symmetric positive definite ``a``
+    (R, p, p) and right-hand sides ``b`` (R, p, k): Gaussian elimination without pivoting,
+    which is stable for such matrices (Golub & Van Loan, *Matrix Computations*, 4th ed.,
+    2013, section 4.2, from memory), one step for the whole batch at a time (the batch is
+    hundreds of small systems: per-matrix LAPACK calls cost more than the arithmetic).
+    """
+    a = np.array(a, dtype=float)
+    x = np.array(b, dtype=float)
+    p = a.shape[1]
+    for k in range(p - 1):
+        factor = a[:, k + 1:, k] / a[:, k, k][:, None]  # (R, p - k - 1)
+        a[:, k + 1:, k + 1:] -= factor[:, :, None] * a[:, None, k, k + 1:]
+        x[:, k + 1:] -= factor[:, :, None] * x[:, None, k]
+    for k in range(p - 1, -1, -1):
+        if k < p - 1:
+            x[:, k] -= np.matmul(a[:, k:k + 1, k + 1:], x[:, k + 1:])[:, 0]
+        x[:, k] /= a[:, k, k][:, None]
+    return x
 
 
 def _evenly_spaced(ticks: np.ndarray, lo: np.ndarray,
@@ -366,13 +432,22 @@ def _dirichlet(angle: np.ndarray, n: np.ndarray) -> np.ndarray:
     return np.where(tiny, n, np.sin(half * n) / np.where(tiny, 1.0, sin_half))
 
 
-def _progression(start_rad: np.ndarray, step_rad: np.ndarray, n: int) -> np.ndarray:
-    """``exp(i (start + step j))`` for j < n, one row per element of ``start``/``step``, by
-    running products (relative error about n x 1e-16)."""
-    z = np.empty((len(start_rad), n), dtype=complex)
-    z[:, 0] = np.exp(1j * start_rad)
-    z[:, 1:] = np.exp(1j * step_rad)[:, None]
-    return np.cumprod(z, axis=1, out=z)
+def _progression(start_rad: np.ndarray, step_rad: np.ndarray, n: int,
+                 scale: np.ndarray | None = None) -> np.ndarray:
+    """``scale * exp(i (start + step j))`` for j < n, one row per element of
+    ``start``/``step`` (and ``scale``), by products (doubling: relative error about
+    log2(n) x 1e-16)."""
+    z = np.empty((n, len(start_rad)), dtype=complex)  # built along the first axis
+    z[0] = np.exp(1j * start_rad) if scale is None else scale * np.exp(1j * start_rad)
+    step = np.exp(1j * step_rad)
+    done = 1
+    while done < n:  # doubling: rows [done, 2 done) are rows [0, done) times step^done
+        take = min(done, n - done)
+        np.multiply(z[:take], step, out=z[done:done + take])
+        done += take
+        if done < n:
+            step = step * step
+    return z.T
 
 
 def _gram(values: np.ndarray, lo: np.ndarray, first_ticks: np.ndarray,
@@ -399,60 +474,56 @@ def _gram(values: np.ndarray, lo: np.ndarray, first_ticks: np.ndarray,
     q = 2 * len(nuisance_hz)
     m = p + q + 1
     n_groups = max(-(-int(counts.max()) // group), 1)
-    slots = np.arange(n_groups * group)
-    y = values[np.minimum(lo[:, None] + slots, len(values) - 1)]
-    y[slots >= counts[:, None]] = 0.0
-    # group sizes (a row's last group may be short, later ones empty)
-    size = np.clip(counts[:, None] - group * np.arange(n_groups), 0, group)  # (R, G)
-    period = (ends - starts).astype(float)[:, None]
+    period = (ends - starts).astype(float)
     columns = np.empty((m, n_rows * n_groups))
     cols = columns.reshape(m, n_rows, n_groups)
-    cols[0] = 1.0
-    # Each column at the group centres k = group j + (group - 1)/2 is exp(i (a + b k)): a
-    # geometric progression along j (products, no sine or cosine per value); a row's
-    # short last group has its centre elsewhere and is set on its own.
+    root = math.sqrt(group)
+    # Group sums of the values from one running sum: sum over [s, e) = c[e] - c[s], a
+    # group's start s = lo + group j, its end at most the revolution's (exact to ~1e-16 of
+    # the running total: counts of 10-bit samples over a batch, far below the noise)
+    running = np.empty(values.size + 1)
+    running[0] = 0.0
+    np.cumsum(values, out=running[1:])
+    stop = (lo + counts)[:, None]  # a revolution's end: groups past it are empty (0 sums)
+    begin = np.minimum(lo[:, None] + group * np.arange(n_groups), stop)  # (R, G)
+    end = np.minimum(begin + group, stop)
+    cols[-1] = (running[end] - running[begin]) / root
+    # Each column is a constant or exp(i (a + b k)) at sample k; its sum over a group of n
+    # samples centred at k0 is exp(i (a + b k0)) D_n(b) (Dirichlet kernel): for the whole
+    # groups a geometric progression along j carrying the factor D_group(b)/sqrt(group) in
+    # its first term (products, no sine or cosine per value); a row's short last group has
+    # its centre elsewhere and its own factor, set on its own; empty groups are zeroed.
     rows = np.nonzero(counts % group)[0]
     last = counts[rows] // group
-    rem = (counts[rows] % group).astype(float)[:, None]
+    rem = (counts[rows] % group).astype(float)
     centre_full = 0.5 * (group - 1)
-    centre_short = group * last + 0.5 * (rem[:, 0] - 1)
-    rad_shaft = (2.0 * math.pi) * (first_ticks - starts)[:, None] / period  # at sample 0
-    rad_step = (2.0 * math.pi) * step_ticks[:, None] / period  # per sample
-    rad_time = (first_ticks - origin_tick).astype(float)[:, None] / tick_hz  # seconds
-    sec_step = step_ticks[:, None] / tick_hz
+    centre_short = group * last + 0.5 * (rem - 1)
+    cols[0] = root
+    cols[0, rows, last] = np.sqrt(rem)
+    cols[-1, rows, last] *= root / np.sqrt(rem)
+    rad_shaft = (2.0 * math.pi) * (first_ticks - starts) / period  # at sample 0
+    rad_step = (2.0 * math.pi) * step_ticks / period  # per sample
+    rad_time = (first_ticks - origin_tick).astype(float) / tick_hz  # seconds
+    sec_step = step_ticks / tick_hz
     col = 1
-    for h in orders:
-        a, b = h * rad_shaft[:, 0], h * rad_step[:, 0]
-        z = _progression(a + b * centre_full, b * group, n_groups)
-        z[rows, last] = np.exp(1j * (a[rows] + b[rows] * centre_short))
+    steps = [(h * rad_shaft, h * rad_step) for h in orders]
+    steps += [(2.0 * math.pi * f * rad_time, 2.0 * math.pi * f * sec_step) for f in nuisance_hz]
+    for a, b in steps:
+        z = _progression(a + b * centre_full, b * group, n_groups,
+                         _dirichlet(b, float(group)) / root)
+        if len(rows):
+            br = b[rows]
+            z[rows, last] = (_dirichlet(br, rem) / np.sqrt(rem)) * np.exp(
+                1j * (a[rows] + br * centre_short))
         cols[col], cols[col + 1] = z.real, z.imag
         col += 2
-    for f in nuisance_hz:
-        w = 2.0 * math.pi * f
-        a, b = w * rad_time[:, 0], w * sec_step[:, 0]
-        z = _progression(a + b * centre_full, b * group, n_groups)
-        z[rows, last] = np.exp(1j * (a[rows] + b[rows] * centre_short))
-        cols[col], cols[col + 1] = z.real, z.imag
-        col += 2
-    # Scale each group's values to (sum of n samples) / sqrt(n): unit noise variance per
-    # observation. Whole groups share one factor per row and column; a row's short last
-    # group gets its own; empty groups (past a revolution's end) are zero.
-    step_rad = (2.0 * math.pi) * step_ticks[:, None]
-    col_rad = [np.zeros((n_rows, 1))]  # per-sample angle step of each complex column
-    if orders:
-        col_rad.append(step_rad / period * np.repeat(np.asarray(orders, dtype=float), 2))
-    if q:
-        col_rad.append(step_rad / tick_hz * np.repeat(np.asarray(nuisance_hz, dtype=float), 2))
-    angle = np.concatenate(col_rad, axis=1)  # (R, p + q); the constant's sum is n = D_n(0)
-    short = cols[:-1, rows, last] * (_dirichlet(angle[rows], rem) / np.sqrt(rem)).T
-    cols[:-1] *= (_dirichlet(angle, float(group)) / math.sqrt(group)).T[:, :, None]
-    cols[:-1, rows, last] = short
-    cols[:-1] *= (size > 0)[None]
-    sums = y.reshape(n_rows, n_groups, group).sum(axis=2) / math.sqrt(group)
-    sums[rows, last] *= math.sqrt(group) / np.sqrt(rem[:, 0])
-    cols[-1] = sums
+    filled = np.minimum(counts, group * n_groups)
+    empty = np.arange(n_groups)[None, :] * group >= filled[:, None]  # (R, G)
+    if empty.any():
+        cols[:, empty] = 0.0
     per_rev = columns.reshape(m, n_rows, n_groups).transpose(1, 0, 2)  # (R, m, G)
-    return np.matmul(per_rev, per_rev.transpose(0, 2, 1)), np.count_nonzero(size, axis=1)
+    return np.matmul(per_rev, per_rev.transpose(0, 2, 1)), n_groups - np.count_nonzero(
+        empty, axis=1)
 
 
 def solve_orders(fit: BlockFit) -> OrderEstimate:
@@ -466,10 +537,15 @@ def solve_orders(fit: BlockFit) -> OrderEstimate:
     the solve is a minimum-norm least squares, so only the fitted waveform matters.
     """
     good = np.isfinite(fit.coef_y).all(axis=1)
-    coef_y, coef_n = fit.coef_y[good], fit.coef_n[good]
-    schur_nn, schur_ny, resid_yy = fit.schur_nn[good], fit.schur_ny[good], fit.resid_yy[good]
-    sample_counts = fit.sample_counts[good]
-    observations = fit.observations[good]
+
+    def used(rows: np.ndarray) -> np.ndarray:  # no copy when every revolution is good
+        return rows if all_good else rows[good]
+
+    all_good = bool(good.all())
+    coef_y, coef_n = used(fit.coef_y), used(fit.coef_n)
+    schur_nn, schur_ny, resid_yy = used(fit.schur_nn), used(fit.schur_ny), used(fit.resid_yy)
+    sample_counts = used(fit.sample_counts)
+    observations = used(fit.observations)
     q = coef_n.shape[2]
     p = coef_y.shape[1]
     gamma = np.zeros(q)
@@ -477,11 +553,11 @@ def solve_orders(fit: BlockFit) -> OrderEstimate:
     nn = np.zeros((q, q))
     if q and len(coef_y):
         # window model: synchronous coefficients common to all revolutions, tones shared
-        aa = fit.gram_aa[good].sum(axis=0)
-        an = fit.gram_an[good].sum(axis=0)
-        nn = fit.gram_nn[good].sum(axis=0)
-        ay = fit.gram_ay[good].sum(axis=0)
-        ny = fit.gram_ny[good].sum(axis=0)
+        aa = used(fit.gram_aa).sum(axis=0)
+        an = used(fit.gram_an).sum(axis=0)
+        nn = used(fit.gram_nn).sum(axis=0)
+        ay = used(fit.gram_ay).sum(axis=0)
+        ny = used(fit.gram_ny).sum(axis=0)
         w = np.linalg.lstsq(aa, np.concatenate([an, ay[:, None]], axis=1), rcond=None)[0]
         s_nn = nn - an.T @ w[:, :q]
         s_ny = ny - an.T @ w[:, q]
@@ -496,10 +572,12 @@ def solve_orders(fit: BlockFit) -> OrderEstimate:
         if keep.any():
             gamma[keep] = np.linalg.lstsq(s_nn[np.ix_(keep, keep)], s_ny[keep], rcond=1e-10)[0]
     beta = coef_y - np.einsum("rpq,q->rp", coef_n, gamma)
-    resid = resid_yy - 2 * np.einsum("rq,q->r", schur_ny, gamma) \
-        + np.einsum("q,rqk,k->r", gamma, schur_nn, gamma)
+    # residual energy summed over the revolutions (only the sum is needed: the sums of the
+    # per-revolution terms, contracted with gamma once)
+    resid = float(resid_yy.sum()) - 2.0 * float(schur_ny.sum(axis=0) @ gamma) \
+        + float(gamma @ schur_nn.sum(axis=0) @ gamma)
     dof = max(int(observations.sum()) - p * len(beta) - int(np.count_nonzero(gamma)), 1)
-    noise_rms = math.sqrt(max(float(resid.sum()), 0.0) / dof)
+    noise_rms = math.sqrt(max(resid, 0.0) / dof)
     phasors = beta[:, 1::2] + 1j * beta[:, 2::2]
     nuisance = {f: complex(gamma[2 * k], gamma[2 * k + 1])
                 for k, f in enumerate(fit.nuisance_hz) if f not in dropped}

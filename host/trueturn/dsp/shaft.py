@@ -38,6 +38,7 @@ import functools
 import math
 from collections import deque
 from dataclasses import dataclass
+from typing import NamedTuple
 
 import numpy as np
 
@@ -74,9 +75,11 @@ def hz_to_rpm(frequency_hz: float) -> float:
     return frequency_hz * 60.0
 
 
-@dataclass(frozen=True)
-class Revolution:
-    """One whole revolution between two accepted tach edges (64-bit ticks, end exclusive)."""
+class Revolution(NamedTuple):
+    """One whole revolution between two accepted tach edges (64-bit ticks, end exclusive).
+
+    Immutable; a named tuple (one is made every revolution in the meter's hot path).
+    """
 
     number: int
     start_tick: int
@@ -119,6 +122,7 @@ class TachTracker:
         self.max_uneven_run = max_uneven_run
         self.uneven_revolutions = 0
         self.uneven: deque[int] = deque(maxlen=max_flags)  # numbers of uneven revolutions
+        self._uneven_set: set[int] = set()  # the same, for lookups
         self._residuals: deque[float] = deque(maxlen=64)  # (period - predicted) / predicted
         self._anchor: float | None = None  # where the time line puts the last edge (ticks)
         self._run: list[int] = []  # numbers of the revolutions of the open run
@@ -181,10 +185,10 @@ class TachTracker:
             self.flags.append(EdgeFlag(tick, "double", 0.0))
             self.double_edges += 1
             return None
-        reference = self.reference_period_ticks
-        if reference is None:
+        if not self._periods:
             return self._learn(tick, period)
-        ratio = period / reference
+        recent = list(self._periods)
+        ratio = period / _median(recent)  # against the reference_period_ticks
         if ratio < self.double_ratio:
             self.double_edges += 1
             self.flags.append(EdgeFlag(tick, "double", ratio))
@@ -199,7 +203,7 @@ class TachTracker:
             self._anchor = float(tick)
             self._rejected(tick)
             return None
-        residual, predicted = self._residual(period)
+        residual, predicted = self._residual(period, recent)
         self._rejected_in_row = 0
         self._periods.append(period)
         self._last_edge = tick
@@ -216,10 +220,10 @@ class TachTracker:
         rms = math.sqrt(sum(r * r for r in self._residuals) / len(self._residuals))
         return 360.0 * rms / math.sqrt(2.0)
 
-    def _residual(self, period: int) -> tuple[float | None, float | None]:
-        """(``period`` against the one the recent periods predict, as a fraction of it;
+    def _residual(self, period: int,
+                  recent: list[int]) -> tuple[float | None, float | None]:
+        """(``period`` against the one the ``recent`` periods predict, as a fraction of it;
         the prediction in ticks), or (None, None) while fewer than four are known."""
-        recent = list(self._periods)
         n = len(recent)
         if n < 4:
             return None, None
@@ -277,9 +281,16 @@ class TachTracker:
         self._anchor = expected  # an off edge does not move the time line
 
     def _mark(self, number: int) -> None:
-        if number not in self.uneven:
+        if number not in self._uneven_set:
+            if len(self.uneven) == self.uneven.maxlen:
+                self._uneven_set.discard(self.uneven[0])
             self.uneven.append(number)
+            self._uneven_set.add(number)
             self.uneven_revolutions += 1
+
+    def is_uneven(self, number: int) -> bool:
+        """Revolution ``number`` starts or ends at an off edge (a set lookup)."""
+        return number in self._uneven_set
 
     def _emit(self, start: int, end: int) -> Revolution:
         rev = Revolution(self.revolutions, start, end)

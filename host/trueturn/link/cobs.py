@@ -38,6 +38,34 @@ def cobs_decode(encoded: bytes) -> bytes:
     """Invert :func:`cobs_encode`; raise :class:`CobsError` on a malformed body."""
     if 0 in encoded:
         raise CobsError("zero byte inside a COBS body")
+    return cobs_unstuff(encoded)
+
+
+def cobs_unstuff(encoded: bytes) -> bytes:
+    """:func:`cobs_decode` of a body known to hold no zero byte (split at the delimiters).
+
+    Every code byte after the first stands where the decoded data has a zero, unless a
+    block before it was full (code 255, no zero follows it): so the usual body decodes by
+    walking its few code bytes, writing a zero at each and dropping the first.
+    """
+    length = len(encoded)
+    out = bytearray(encoded)
+    pos = 0
+    while pos < length:
+        code = encoded[pos]
+        if code == 255:
+            return _unstuff_blocks(encoded)
+        pos += code
+        if pos < length:
+            out[pos] = 0
+    if pos > length:
+        raise CobsError("COBS block runs past the end of the frame")
+    del out[0]
+    return bytes(out)
+
+
+def _unstuff_blocks(encoded: bytes) -> bytes:
+    """:func:`cobs_unstuff` block by block (bodies with full 254-byte blocks)."""
     parts: list[bytes] = []
     append = parts.append
     pos = 0

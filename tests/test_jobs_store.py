@@ -345,7 +345,7 @@ def test_a_job_that_would_not_read_back_is_never_written(tmp_path: Path) -> None
     before = ws.job_path(job.job_id).read_bytes()
     bad = run(1)
     bad.readings[0] = dataclasses.replace(bad.readings[0], unit="furlongs/fortnight")
-    with pytest.raises(SchemaError, match=r"\(not saved\):\d+: runs\[0\]\.readings\[0\]\.unit"):
+    with pytest.raises(SchemaError, match=r"\(not saved\): runs\[0\]\.readings\[0\]\.unit"):
         ws.append_run(job, bad)
     assert ws.job_path(job.job_id).read_bytes() == before
     assert job.runs == [] and job.next_run_index == 1  # the job in memory is unchanged too

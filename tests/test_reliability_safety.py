@@ -63,13 +63,13 @@ def _name(node: ast.AST) -> str:
 
 
 def test_the_line_keeping_loader_is_a_safe_loader() -> None:
-    from trueturn.jobs.schema import _LineLoader
+    from trueturn.yamltext import _LineLoader
 
     safe = (yaml.SafeLoader,) + ((yaml.CSafeLoader,) if hasattr(yaml, "CSafeLoader") else ())
     assert issubclass(_LineLoader, safe)
     # a Python object tag is refused, not constructed
     from trueturn.errors import UserError
-    from trueturn.jobs.schema import load_yaml_text
+    from trueturn.yamltext import load_yaml_text
     with pytest.raises(UserError):
         load_yaml_text("!!python/object/apply:os.system ['echo hi']\n", "x.yaml")
 

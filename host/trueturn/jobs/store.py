@@ -36,15 +36,8 @@ from trueturn.jobs.records import (
     VerdictEntry,
     now_iso,
 )
-from trueturn.jobs.schema import (
-    LineDict,
-    Migration,
-    SchemaError,
-    dump_yaml_text,
-    from_data,
-    load_yaml_text,
-    to_data,
-)
+from trueturn.schema import Migration, SchemaError, from_data, to_data
+from trueturn.yamltext import LineDict, dump_yaml_text, load_yaml_text
 
 #: Version of the file format this code writes. Bump it when a stored field changes meaning
 #: or name, and add a function to ``MIGRATIONS`` that lifts the previous version by one.

@@ -115,3 +115,78 @@ def test_trial_mass_json():
 def test_other_bad_input_is_one_line_exit_2(argv):
     code, _, err = run_cli(argv)
     assert code == 2 and len(err.strip().splitlines()) == 1
+
+
+# -- READINGS through the one validator (trueturn.schema): file:line: field.path: problem ----
+
+def _line_of(text: str, needle: str, after: int = 0) -> int:
+    """1-based line of the first line containing ``needle`` after line ``after``."""
+    for number, line in enumerate(text.splitlines(), start=1):
+        if number > after and needle in line:
+            return number
+    raise AssertionError(needle)
+
+
+@pytest.mark.parametrize(("change", "path", "key", "problem"), [
+    (lambda d: d["runs"][1]["added"][0].__setitem__("angle_deg", 400),
+     "runs[1].added[0].angle_deg", "angle_deg: 400", "must be within -360..360"),
+    (lambda d: d["runs"][1]["added"][0].__setitem__("plane", "flywheel"),
+     "runs[1].added[0].plane", "plane: flywheel", "unknown plane 'flywheel'"),
+    (lambda d: d["planes"][1].__setitem__("radius_mm", -40),
+     "planes[1].radius_mm", "radius_mm: -40", "must be greater than 0, got -40"),
+    (lambda d: d["planes"][0].__setitem__("radius_m", 5),
+     "planes[0].radius_m", "radius_m: 5", "unknown field"),
+    (lambda d: d["runs"][2]["readings"]["right-bearing"].pop("phase_deg"),
+     "runs[2].readings.right-bearing", "right-bearing:", "phase_deg is missing here"),
+    (lambda d: d.__setitem__("speed_exponent", 9), "speed_exponent", "speed_exponent: 9",
+     "expected 0...6"),
+])
+def test_readings_mistakes_name_file_line_and_field(tmp_path, readings_file, change, path,
+                                                     key, problem):
+    _, doc, _ = readings_file
+    change(doc)
+    text = yaml.safe_dump(doc, sort_keys=False)
+    file = tmp_path / "bad.yaml"
+    file.write_text(text)
+    code, out, err = run_cli(["solve", str(file)])
+    assert code == 2 and out == "" and err.count("\n") == 1
+    # the line of the key: after the run or plane it belongs to
+    owner = {"runs": "- label: trial right" if "runs[2]" in path else "- label: trial left",
+             "plan": "- name: left" if "[0]" in path else "- name: right",
+             "spee": "speed_exponent"}[path[:4]]
+    line = _line_of(text, key, _line_of(text, owner) - 1)
+    assert f"bad.yaml:{line}: {path}: {problem}" in err, err
+
+
+def test_readings_bearings_must_be_two_at_different_positions(tmp_path, readings_file):
+    _, doc, _ = readings_file
+    for i, plane in enumerate(doc["planes"]):
+        plane["axial_mm"] = -150.0 + 300.0 * i
+    cases = [([{"axial_mm": -60}], "bearings: exactly two bearings are needed, got 1"),
+             ([{"axial_mm": 5}, {"axial_mm": 5}],
+              "bearings[1].axial_mm: the two bearings must be at different axial_mm"),
+             ([{"name": "x", "axial_mm": -60}, {"name": "x", "axial_mm": 60}],
+              "bearings[1].name: bearing 'x' given twice"),
+             ([{"axial_mm": -60}, {"axial_mm": 60}], None)]
+    for bearings, problem in cases:
+        doc["bearings"] = bearings
+        path = tmp_path / "b.yaml"
+        path.write_text(yaml.safe_dump(doc))
+        code, _, err = run_cli(["solve", str(path)])
+        if problem is None:
+            assert code == 0, err
+        else:
+            assert code == 2 and problem in err and err.count("\n") == 1, err
+
+
+def test_numbered_planes_and_pickups_still_read(tmp_path):
+    # names a person may write as bare numbers (YAML reads them as integers)
+    doc = {"planes": [{"name": 1, "radius_mm": 50}], "sensors": [{"name": 1}],
+           "runs": [{"readings": {1: {"amp": 4.0, "phase_deg": 30}}},
+                    {"added": [{"plane": 1, "mass_g": 5, "angle_deg": -90}],
+                     "readings": {1: {"amp": 6.0, "phase_deg": 80}}}]}
+    path = tmp_path / "n.yaml"
+    path.write_text(yaml.safe_dump(doc))
+    code, out, err = run_cli(["solve", str(path), "--json"])
+    assert code == 0, err
+    assert json.loads(out)["corrections"][0]["plane"] == "1"

@@ -1,45 +1,46 @@
 """The balancing input (planes, pickups, runs, optional saved coefficients) as dataclasses.
 
-:func:`parse_readings` turns the already-loaded READINGS document (a dict from YAML or JSON)
-into :class:`BalanceInput`, checking every field and naming the first problem in one line
-(:class:`trueturn.errors.UserError`). No file access here: the caller loads the document.
-Angles follow :mod:`trueturn.angles` (counted against rotation from the reference mark).
+:func:`parse_readings` turns the already-loaded READINGS document (plain data from YAML or
+JSON) into :class:`BalanceInput` through the one validator (:mod:`trueturn.schema`): the
+document's shape is :class:`ReadingsDocument`, and the first problem comes back as one line
+``file:line: field.path: problem`` (:class:`trueturn.schema.SchemaError`, a
+:class:`trueturn.errors.UserError`). No file access here: the caller loads the document.
+Angles follow :mod:`trueturn.angles` (counted against rotation from the reference mark); an
+angle is accepted in -360..360 degrees and taken modulo 360.
 """
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field
 from typing import Any
 
-from trueturn.angles import phasor, wrap_deg
-from trueturn.errors import UserError
+from trueturn.angles import phasor
 from trueturn.model import Bearing, PlacedMass, Plane, Reading, Run
+from trueturn.model.rotor import PlaneLayout
+from trueturn.schema import SchemaError, angle_limits, from_data, limits
 
 
 @dataclass(frozen=True)
 class Sensor:
     """A pickup; ``weight`` scales its importance in the least-squares correction."""
 
-    name: str
-    weight: float = 1.0
+    name: str = field(metadata=limits(nonempty=True))
+    weight: float = field(default=1.0, metadata=limits(above=0))
 
 
 @dataclass(frozen=True)
 class SavedCoefficient:
     """One saved influence coefficient: reading units per gram at the plane's radius."""
 
-    sensor: str
-    plane: str
-    amp_per_g: float
-    phase_deg: float
-    speed_rpm: float | None = None
+    sensor: str = field(metadata=limits(nonempty=True))
+    plane: str = field(metadata=limits(nonempty=True))
+    amp_per_g: float = field(metadata=limits(above=0))
+    phase_deg: float = field(metadata=angle_limits())
+    speed_rpm: float | None = field(default=None, metadata=limits(above=0))
 
     @property
     def vector(self) -> complex:
         return phasor(self.amp_per_g, self.phase_deg)
-
-
 @dataclass(frozen=True)
 class Tolerance:
     """Optional ISO 21940-11 target for a pass/fail verdict on the last run.
@@ -83,219 +84,234 @@ class BalanceInput:
         raise KeyError(name)
 
 
-def _number(value: Any, where: str, *, positive: bool = False, nonneg: bool = False) -> float:
-    if isinstance(value, bool) or not isinstance(value, (int, float)):
-        raise UserError(f"{where}: expected a number, got {value!r}")
-    number = float(value)
-    if not math.isfinite(number):
-        raise UserError(f"{where}: must be a finite number, got {value!r}")
-    if positive and number <= 0:
-        raise UserError(f"{where}: must be greater than 0, got {value!r}")
-    if nonneg and number < 0:
-        raise UserError(f"{where}: must not be negative, got {value!r}")
-    return number
+# -- the READINGS document as a person writes it (balance/README.md, "READINGS") ------------
 
 
-def _angle(value: Any, where: str) -> float:
-    """An angle as a person or an instrument writes it, 0..360 or -180..180 degrees, taken
-    modulo 360; beyond a full turn either way it is more likely a typo and is refused."""
-    number = _number(value, where)
-    if not -360.0 <= number <= 360.0:
-        raise UserError(f"{where}: must be within -360..360 degrees (from the reference mark, "
-                        f"against rotation), got {value!r}")
-    return wrap_deg(number)
+@dataclass(frozen=True)
+class AddedMass:
+    """A mass on the rotor in a run, relative to the as-found rotor."""
+
+    plane: str = field(metadata=limits(nonempty=True))
+    mass_g: float = field(metadata=limits(above=0))
+    angle_deg: float = field(metadata=angle_limits())
 
 
-def _mapping(value: Any, where: str) -> dict:
-    if not isinstance(value, dict):
-        raise UserError(f"{where}: expected a mapping (key: value), got {type(value).__name__}")
-    return value
+@dataclass(frozen=True)
+class ReadingEntry:
+    """One pickup's 1x in a run: ``amp`` in the document's ``unit``, ``confidence`` the radius
+    of its 95 % circle (same unit), ``clipped`` the capture hit the ADC limits."""
+
+    amp: float = field(metadata=limits(minimum=0))
+    phase_deg: float | None = field(default=None, metadata=angle_limits())
+    confidence: float | None = field(default=None, metadata=limits(minimum=0))
+    clipped: bool = False
 
 
-def _list(value: Any, where: str) -> list:
-    if not isinstance(value, list):
-        raise UserError(f"{where}: expected a list, got {type(value).__name__}")
-    return value
+@dataclass(frozen=True)
+class RunReadings:
+    """One run: what was added, at what speed, and every pickup's reading by name."""
+
+    readings: dict[str, ReadingEntry]
+    label: str | None = None
+    added: list[AddedMass] | None = None
+    speed_rpm: float | None = field(default=None, metadata=limits(above=0))
 
 
-def _require(mapping: dict, key: str, where: str) -> Any:
-    if key not in mapping or mapping[key] is None:
-        raise UserError(f"{where}: missing field '{key}'")
-    return mapping[key]
+@dataclass(frozen=True)
+class BearingAt:
+    """A bearing's axial position (same origin as the planes' ``axial_mm``); unnamed bearings
+    are called A and B."""
+
+    axial_mm: float
+    name: str | None = field(default=None, metadata=limits(nonempty=True))
 
 
-def _name(value: Any, where: str) -> str:
-    if not isinstance(value, (str, int)) or str(value).strip() == "":
-        raise UserError(f"{where}: expected a non-empty name, got {value!r}")
-    return str(value)
+@dataclass(frozen=True)
+class ToleranceEntry:
+    """The ISO 21940-11 target: ``grade`` in mm/s (G 6.3 -> 6.3), ``speed_rpm`` the maximum
+    service speed (left out: the last run's speed stands in, flagged)."""
+
+    rotor_mass_kg: float = field(metadata=limits(above=0))
+    grade: float = field(metadata=limits(above=0))
+    speed_rpm: float | None = field(default=None, metadata=limits(above=0))
+    cg_from_first_plane_mm: float | None = None
+    plane_distance_mm: float | None = field(default=None, metadata=limits(above=0))
+    cg_axial_mm: float | None = None
 
 
-def parse_masses(items: Any, where: str, plane_names: set[str]) -> tuple[PlacedMass, ...]:
-    """Parse a list of ``{plane, mass_g, angle_deg}``; unknown planes are refused."""
-    masses = []
-    for i, item in enumerate(_list(items if items is not None else [], where)):
-        at = f"{where}[{i}]"
-        item = _mapping(item, at)
-        plane = _name(_require(item, "plane", at), f"{at}.plane")
-        if plane not in plane_names:
-            known = ", ".join(sorted(plane_names))
-            raise UserError(f"{at}.plane: unknown plane '{plane}' (planes: {known})")
-        mass_g = _number(_require(item, "mass_g", at), f"{at}.mass_g", positive=True)
-        angle = _angle(_require(item, "angle_deg", at), f"{at}.angle_deg")
-        masses.append(PlacedMass(plane, mass_g, angle))
-    return tuple(masses)
+def _names(items: list[Any]) -> str:
+    return ", ".join(str(i) for i in items)
+
+
+@dataclass(frozen=True)
+class ReadingsDocument:
+    """A READINGS document: planes, pickups and runs, optional weights, saved coefficients,
+    bearings, tolerance and speed exponent. ``_checks`` holds the rules across fields."""
+
+    planes: list[Plane]
+    sensors: list[Sensor]
+    runs: list[RunReadings]
+    unit: str = ""
+    weights: dict[str, float] | None = None
+    influence: list[SavedCoefficient] | None = None
+    bearings: list[BearingAt] | None = None
+    tolerance: ToleranceEntry | None = None
+    #: local slope p of the 1x with speed (1x ~ speed**p)
+    speed_exponent: float | None = None
+
+    def _checks(self) -> list[tuple[str, str]]:
+        """The first rule broken, as (field path, problem)."""
+        for check in (self._check_planes, self._check_sensors, self._check_runs,
+                      self._check_influence, self._check_bearings, self._check_rest):
+            problems = check()
+            if problems:
+                return problems[:1]
+        return []
+
+    def _check_planes(self) -> list[tuple[str, str]]:
+        if not self.planes:
+            return [("planes", "at least one correction plane is needed")]
+        seen: set[str] = set()
+        for i, plane in enumerate(self.planes):
+            if plane.name in seen:
+                return [(f"planes[{i}].name", f"plane '{plane.name}' given twice")]
+            seen.add(plane.name)
+            if plane.layout != PlaneLayout():
+                return [(f"planes[{i}].layout", "solve places masses at any angle; split a "
+                         "correction onto positions with 'trueturn split'")]
+            if plane.removal_allowed:
+                return [(f"planes[{i}].removal_allowed", "solve gives masses to add; drill "
+                         "out at the opposite angle with 'trueturn split --remove'")]
+        return []
+
+    def _check_sensors(self) -> list[tuple[str, str]]:
+        if not self.sensors:
+            return [("sensors", "at least one pickup is needed")]
+        seen: set[str] = set()
+        for i, sensor in enumerate(self.sensors):
+            if sensor.name in seen:
+                return [(f"sensors[{i}].name", f"sensor '{sensor.name}' given twice")]
+            seen.add(sensor.name)
+        for key, weight in (self.weights or {}).items():
+            if key not in seen:
+                return [(f"weights.{key}", f"unknown sensor '{key}' "
+                         f"(sensors: {_names(sorted(seen))})")]
+            if not weight > 0:
+                return [(f"weights.{key}", f"must be greater than 0, got {weight:g}")]
+        return []
+
+    def _check_runs(self) -> list[tuple[str, str]]:
+        if not self.runs:
+            return [("runs", "at least one run is needed")]
+        planes = [p.name for p in self.planes]
+        sensors = [s.name for s in self.sensors]
+        for i, run in enumerate(self.runs):
+            for j, mass in enumerate(run.added or []):
+                if mass.plane not in planes:
+                    return [(f"runs[{i}].added[{j}].plane", f"unknown plane '{mass.plane}' "
+                             f"(planes: {_names(sorted(planes))})")]
+            for key in run.readings:
+                if key not in sensors:
+                    return [(f"runs[{i}].readings.{key}", f"unknown sensor '{key}' "
+                             f"(sensors: {_names(sensors)})")]
+            for name in sensors:
+                if name not in run.readings:
+                    return [(f"runs[{i}].readings", f"missing sensor '{name}'")]
+        with_phase = [(i, name, r.phase_deg is not None) for i, run in enumerate(self.runs)
+                      for name, r in run.readings.items()]
+        given = sum(has for _, _, has in with_phase)
+        if 0 < given < len(with_phase):
+            # point at the odd one out: the first reading on the minority side
+            odd = given * 2 < len(with_phase)
+            i, name, _ = next(w for w in with_phase if w[2] == odd)
+            where = f"runs[{i}].readings.{name}"
+            if odd:
+                return [(f"{where}.phase_deg", "given here but not in most other readings "
+                         "(give it everywhere, or nowhere for the amplitude-only method)")]
+            return [(where, "phase_deg is missing here but given in other readings (give "
+                     "it everywhere, or nowhere for the amplitude-only method)")]
+        return []
+
+    def _check_influence(self) -> list[tuple[str, str]]:
+        planes = {p.name for p in self.planes}
+        sensors = {s.name for s in self.sensors}
+        for i, saved in enumerate(self.influence or []):
+            if saved.sensor not in sensors:
+                return [(f"influence[{i}].sensor", f"unknown sensor '{saved.sensor}' "
+                         f"(sensors: {_names(sorted(sensors))})")]
+            if saved.plane not in planes:
+                return [(f"influence[{i}].plane", f"unknown plane '{saved.plane}' "
+                         f"(planes: {_names(sorted(planes))})")]
+        return []
+
+    def _check_bearings(self) -> list[tuple[str, str]]:
+        if self.bearings is None:
+            return []
+        if len(self.bearings) != 2:
+            return [("bearings", f"exactly two bearings are needed, got {len(self.bearings)}")]
+        first, second = self.bearing_list()
+        if first.axial_mm == second.axial_mm:
+            return [("bearings[1].axial_mm", "the two bearings must be at different axial_mm")]
+        if first.name == second.name:
+            return [("bearings[1].name", f"bearing '{second.name}' given twice")]
+        for i, plane in enumerate(self.planes):
+            if plane.axial_mm is None:
+                return [(f"planes[{i}].axial_mm", "missing field (needed with bearings, to "
+                         "refer residuals to the bearing planes)")]
+        for i, plane in enumerate(self.planes):
+            if any(p.axial_mm == plane.axial_mm for p in self.planes[:i]):
+                return [(f"planes[{i}].axial_mm", "two planes at the same axial_mm")]
+        return []
+
+    def _check_rest(self) -> list[tuple[str, str]]:
+        if (self.tolerance is not None and self.tolerance.speed_rpm is None
+                and self.runs[-1].speed_rpm is None):
+            return [("tolerance.speed_rpm", "missing field (the maximum service speed; the "
+                     "last run gives no speed_rpm either)")]
+        p = self.speed_exponent
+        if p is not None and not 0.0 <= p <= 6.0:
+            return [("speed_exponent", f"expected 0...6 (1x ~ speed**p; usually 2...4), "
+                     f"got {p:g}")]
+        return []
+
+    def bearing_list(self) -> tuple[Bearing, ...]:
+        """The bearings as the model's nouns (unnamed ones called A and B)."""
+        return tuple(Bearing(b.name if b.name is not None else "AB"[i % 2], b.axial_mm)
+                     for i, b in enumerate(self.bearings or []))
+
+    def balance_input(self) -> BalanceInput:
+        """The checked document as the balancing engine's input."""
+        weights = self.weights or {}
+        sensors = tuple(Sensor(s.name, weights.get(s.name, s.weight)) for s in self.sensors)
+        runs = []
+        for i, run in enumerate(self.runs):
+            added = tuple(PlacedMass(m.plane, m.mass_g, m.angle_deg) for m in run.added or [])
+            readings = {s.name: Reading(s.name, run.readings[s.name].amp, self.unit,  # type: ignore[arg-type]
+                                        run.readings[s.name].phase_deg,
+                                        speed_rpm=run.speed_rpm,
+                                        confidence_radius=run.readings[s.name].confidence,
+                                        clipped=run.readings[s.name].clipped)
+                        for s in sensors}
+            label = run.label if run.label is not None else f"run {i + 1}"
+            runs.append(Run(label, added, readings, run.speed_rpm))
+        tolerance = None
+        if self.tolerance is not None:
+            t = self.tolerance
+            speed = t.speed_rpm if t.speed_rpm is not None else self.runs[-1].speed_rpm
+            assert speed is not None  # _check_rest
+            tolerance = Tolerance(t.rotor_mass_kg, t.grade, speed, t.cg_from_first_plane_mm,
+                                  t.plane_distance_mm, t.cg_axial_mm,
+                                  speed_from_last_run=t.speed_rpm is None)
+        return BalanceInput(tuple(self.planes), sensors, tuple(runs),
+                            tuple(self.influence or ()), tolerance, self.bearing_list(),
+                            self.speed_exponent)
 
 
 def parse_readings(doc: Any, source: str = "READINGS") -> BalanceInput:
-    """Check and convert a READINGS document; the first problem raises a one-line UserError."""
-    doc = _mapping(doc, source)
-    planes: list[Plane] = []
-    for i, item in enumerate(_list(_require(doc, "planes", source), f"{source}: planes")):
-        at = f"{source}: planes[{i}]"
-        item = _mapping(item, at)
-        name = _name(_require(item, "name", at), f"{at}.name")
-        if any(p.name == name for p in planes):
-            raise UserError(f"{at}.name: plane '{name}' given twice")
-        radius = _number(_require(item, "radius_mm", at), f"{at}.radius_mm", positive=True)
-        max_mass = item.get("max_mass_g")
-        limit = None if max_mass is None else _number(max_mass, f"{at}.max_mass_g", positive=True)
-        axial = item.get("axial_mm")
-        axial_mm = None if axial is None else _number(axial, f"{at}.axial_mm")
-        planes.append(Plane(name, radius, axial_mm, max_mass_g=limit))
-    if not planes:
-        raise UserError(f"{source}: planes: at least one correction plane is needed")
-
-    sensors: list[Sensor] = []
-    for i, item in enumerate(_list(_require(doc, "sensors", source), f"{source}: sensors")):
-        at = f"{source}: sensors[{i}]"
-        item = _mapping(item, at)
-        name = _name(_require(item, "name", at), f"{at}.name")
-        if any(s.name == name for s in sensors):
-            raise UserError(f"{at}.name: sensor '{name}' given twice")
-        weight = item.get("weight", 1.0)
-        sensors.append(Sensor(name, _number(weight, f"{at}.weight", positive=True)))
-    if not sensors:
-        raise UserError(f"{source}: sensors: at least one pickup is needed")
-
-    if doc.get("weights") is not None:
-        at = f"{source}: weights"
-        given = _mapping(doc["weights"], at)
-        names = {s.name for s in sensors}
-        for key in given:
-            if str(key) not in names:
-                raise UserError(f"{at}: unknown sensor '{key}' (sensors: {', '.join(sorted(names))})")
-        sensors = [Sensor(s.name, _number(given[s.name], f"{at}.{s.name}", positive=True))
-                   if s.name in given else s for s in sensors]
-
-    plane_names = {p.name for p in planes}
-    sensor_names = [s.name for s in sensors]
-    unit = str(doc.get("unit", ""))
-    runs: list[Run] = []
-    for i, item in enumerate(_list(_require(doc, "runs", source), f"{source}: runs")):
-        at = f"{source}: runs[{i}]"
-        item = _mapping(item, at)
-        label = str(item.get("label", f"run {i + 1}"))
-        added = parse_masses(item.get("added", []), f"{at}.added", plane_names)
-        speed = item.get("speed_rpm")
-        speed_rpm = None if speed is None else _number(speed, f"{at}.speed_rpm", positive=True)
-        raw = _mapping(_require(item, "readings", at), f"{at}.readings")
-        for key in raw:
-            if str(key) not in sensor_names:
-                raise UserError(f"{at}.readings: unknown sensor '{key}' "
-                                f"(sensors: {', '.join(sensor_names)})")
-        readings: dict[str, Reading] = {}
-        for name in sensor_names:
-            if name not in raw:
-                raise UserError(f"{at}.readings: missing sensor '{name}'")
-            r_at = f"{at}.readings.{name}"
-            r = _mapping(raw[name], r_at)
-            amp = _number(_require(r, "amp", r_at), f"{r_at}.amp", nonneg=True)
-            phase = r.get("phase_deg")
-            phase_deg = None if phase is None else _angle(phase, f"{r_at}.phase_deg")
-            conf = r.get("confidence")
-            confidence = None if conf is None else _number(conf, f"{r_at}.confidence", nonneg=True)
-            clipped = r.get("clipped", False)
-            if not isinstance(clipped, bool):
-                raise UserError(f"{r_at}.clipped: expected true or false, got {clipped!r}")
-            readings[name] = Reading(name, amp, unit, phase_deg, speed_rpm=speed_rpm,
-                                     confidence_radius=confidence, clipped=clipped)
-        runs.append(Run(label, added, readings, speed_rpm))
-    if not runs:
-        raise UserError(f"{source}: runs: at least one run is needed")
-    with_phase = [r.phase_deg is not None for run in runs for r in run.readings.values()]
-    if any(with_phase) and not all(with_phase):
-        raise UserError(f"{source}: runs: phase_deg is given in some readings but not in others "
-                        "(give it everywhere, or nowhere for the amplitude-only method)")
-
-    saved: list[SavedCoefficient] = []
-    for i, item in enumerate(_list(doc.get("influence") or [], f"{source}: influence")):
-        at = f"{source}: influence[{i}]"
-        item = _mapping(item, at)
-        sensor = _name(_require(item, "sensor", at), f"{at}.sensor")
-        if sensor not in sensor_names:
-            raise UserError(f"{at}.sensor: unknown sensor '{sensor}'")
-        plane = _name(_require(item, "plane", at), f"{at}.plane")
-        if plane not in plane_names:
-            raise UserError(f"{at}.plane: unknown plane '{plane}'")
-        amp = _number(_require(item, "amp_per_g", at), f"{at}.amp_per_g", positive=True)
-        phase = _angle(_require(item, "phase_deg", at), f"{at}.phase_deg")
-        speed = item.get("speed_rpm")
-        speed_rpm = None if speed is None else _number(speed, f"{at}.speed_rpm", positive=True)
-        saved.append(SavedCoefficient(sensor, plane, amp, phase, speed_rpm))
-
-    bearings: list[Bearing] = []
-    if doc.get("bearings") is not None:
-        items = _list(doc["bearings"], f"{source}: bearings")
-        if len(items) != 2:
-            raise UserError(f"{source}: bearings: exactly two bearings are needed, got {len(items)}")
-        for i, item in enumerate(items):
-            at = f"{source}: bearings[{i}]"
-            item = _mapping(item, at)
-            name = _name(item.get("name", "AB"[i]), f"{at}.name")
-            bearings.append(Bearing(name, _number(_require(item, "axial_mm", at), f"{at}.axial_mm")))
-        if bearings[0].axial_mm == bearings[1].axial_mm:
-            raise UserError(f"{source}: bearings: the two bearings must be at different axial_mm")
-        if bearings[0].name == bearings[1].name:
-            raise UserError(f"{source}: bearings[1].name: bearing '{bearings[1].name}' given twice")
-        for i, plane in enumerate(planes):
-            if plane.axial_mm is None:
-                raise UserError(f"{source}: planes[{i}]: missing field 'axial_mm' (needed with "
-                                "bearings, to refer residuals to the bearing planes)")
-        if len(planes) > 1 and len({p.axial_mm for p in planes}) < len(planes):
-            raise UserError(f"{source}: planes: two planes at the same axial_mm")
-
-    tolerance = None
-    if doc.get("tolerance") is not None:
-        at = f"{source}: tolerance"
-        t = _mapping(doc["tolerance"], at)
-        run_speed = runs[-1].speed_rpm
-        speed = t.get("speed_rpm")
-        from_last_run = speed is None
-        if from_last_run:
-            speed = run_speed
-        if speed is None:
-            raise UserError(f"{at}: missing field 'speed_rpm' (the maximum service speed; the "
-                            "last run gives no speed_rpm either)")
-        cg = t.get("cg_from_first_plane_mm")
-        dist = t.get("plane_distance_mm")
-        cg_axial = t.get("cg_axial_mm")
-        tolerance = Tolerance(
-            rotor_mass_kg=_number(_require(t, "rotor_mass_kg", at), f"{at}.rotor_mass_kg",
-                                  positive=True),
-            grade_mm_s=_number(_require(t, "grade", at), f"{at}.grade", positive=True),
-            speed_rpm=_number(speed, f"{at}.speed_rpm", positive=True),
-            cg_from_first_plane_mm=None if cg is None else _number(cg, f"{at}.cg_from_first_plane_mm"),
-            plane_distance_mm=None if dist is None else _number(dist, f"{at}.plane_distance_mm",
-                                                                 positive=True),
-            cg_axial_mm=None if cg_axial is None else _number(cg_axial, f"{at}.cg_axial_mm"),
-            speed_from_last_run=from_last_run,
-        )
-    exponent = doc.get("speed_exponent")
-    speed_exponent = None
-    if exponent is not None:
-        speed_exponent = _number(exponent, f"{source}: speed_exponent")
-        if not 0.0 <= speed_exponent <= 6.0:
-            raise UserError(f"{source}: speed_exponent: expected 0...6 (1x ~ speed**p; "
-                            f"usually 2...4), got {exponent!r}")
-    return BalanceInput(tuple(planes), tuple(sensors), tuple(runs), tuple(saved), tolerance,
-                        tuple(bearings), speed_exponent)
+    """Check and convert a READINGS document (plain data, with lines when loaded by
+    :func:`trueturn.yamltext.load_yaml_text`); the first problem raises a one-line
+    :class:`trueturn.schema.SchemaError` ``source:line: field.path: problem``."""
+    if doc is None:
+        raise SchemaError(f"{source}:1: (top): the document is empty")
+    document: ReadingsDocument = from_data(ReadingsDocument, doc, source)
+    return document.balance_input()

@@ -7,8 +7,6 @@ import sys
 from pathlib import Path
 from typing import Any
 
-import yaml
-
 from trueturn.angles import amplitude_phase
 from trueturn.balance import parse_readings, solve
 from trueturn.balance.influence import Correction
@@ -16,6 +14,7 @@ from trueturn.balance.iso21940 import TolerancePlanes, VerdictFlag
 from trueturn.balance.solve import SolveReport
 from trueturn.cli.common import print_json
 from trueturn.errors import UserError
+from trueturn.yamltext import load_yaml_text
 
 CAUTION = ("Caution: before attaching, moving or removing any mass, switch the machine off, "
            "lock it out and wait until it has stopped (the tach must show standstill). Fasten "
@@ -35,20 +34,15 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
 
 
 def load_document(path: str) -> Any:
-    """Read a YAML/JSON document; any problem becomes one line naming the file."""
+    """Read a YAML/JSON document keeping its lines; any problem becomes one line naming the
+    file (``file:line: problem``)."""
     try:
         text = sys.stdin.read() if path == "-" else Path(path).read_text(encoding="utf-8")
     except OSError as exc:
         raise UserError(f"{path}: cannot read ({exc.strerror or exc})") from None
     except UnicodeDecodeError:
-        raise UserError(f"{path}: not a text file (YAML or JSON in UTF-8 expected)") from None
-    try:
-        return yaml.safe_load(text)
-    except yaml.YAMLError as exc:
-        mark = getattr(exc, "problem_mark", None)
-        where = f" line {mark.line + 1}" if mark is not None else ""
-        problem = getattr(exc, "problem", None) or "not valid YAML/JSON"
-        raise UserError(f"{path}:{where} {problem}") from None
+        raise UserError(f"{path}:1: not a text file (YAML or JSON in UTF-8 expected)") from None
+    return load_yaml_text(text, "stdin" if path == "-" else path)
 
 
 def _r(value: float | None, digits: int = 4) -> float | None:

@@ -112,3 +112,28 @@ def test_a_capture_that_starts_with_a_requested_identity_is_no_restart(capture) 
         "identity", (messages[start + 100].seq) & 0xFF, identity) + \
         b"".join(b + b"\x00" for b in bodies[start + 101:])
     assert "board_restart" in _codes(analyze_capture(unasked, mains_hz=60))
+
+
+def test_lost_frames_do_not_make_a_whole_capture_incomplete(capture, tmp_path) -> None:
+    # `record` was asked for 8 s and got them; frames lost on the way are link loss, said
+    # as such, not "incomplete capture" (that is for a stream that stopped early)
+    import json
+
+    from trueturn.link.capture import CaptureWriter
+
+    metadata, bodies, _ = capture
+    path = tmp_path / "lossy.cap"
+    with CaptureWriter(path, {k: v for k, v in metadata.items() if k != "format_version"}) as w:
+        w.write(b"".join(b + b"\x00" for i, b in enumerate(bodies) if not 300 <= i < 556))
+    code, out, err = run_cli(["analyze", str(path), "--json"])
+    assert code == 0, err
+    data = json.loads(out)
+    codes = {f["code"] for f in data["findings"]}
+    assert "link_unseen_loss" in codes and "incomplete_capture" not in codes
+    # the same capture cut short is incomplete, and says so
+    short = tmp_path / "short.cap"
+    with CaptureWriter(short, {k: v for k, v in metadata.items() if k != "format_version"}) as w:
+        w.write(b"".join(b + b"\x00" for b in bodies[:len(bodies) // 2]))
+    code, out, err = run_cli(["analyze", str(short), "--json"])
+    assert code == 0, err
+    assert "incomplete_capture" in {f["code"] for f in json.loads(out)["findings"]}

@@ -10,7 +10,6 @@ import pytest
 from scipy import optimize
 
 from trueturn.dsp.order import (
-    _solve_spd,
     estimate_orders,
     fit_block,
     fit_blocks,
@@ -275,14 +274,3 @@ def test_evenly_spaced_fit_equals_the_searched_fit(group: int) -> None:
                                        atol=1e-9 * np.abs(getattr(s, name)).max())
         np.testing.assert_array_equal(e.sample_counts, s.sample_counts)
         np.testing.assert_array_equal(e.observations, s.observations)
-
-
-def test_batched_elimination_matches_numpy_solve() -> None:
-    # reference: numpy.linalg.solve (LAPACK gesv, partial pivoting) on random symmetric
-    # positive definite systems, conditioned like the per-revolution normal equations
-    rng = np.random.default_rng(3)
-    x = rng.normal(size=(50, 40, 7)) * np.array([5, 1, 1, 0.3, 0.3, 0.1, 0.1])
-    a = np.matmul(x.transpose(0, 2, 1), x)
-    b = rng.normal(size=(50, 7, 13))
-    np.testing.assert_allclose(_solve_spd(a, b), np.linalg.solve(a, b), rtol=1e-10,
-                               atol=1e-12)

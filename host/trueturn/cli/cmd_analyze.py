@@ -154,14 +154,26 @@ def _incomplete(metadata: dict[str, Any], raw: bytes) -> Finding | None:
     wanted_s = requested.get("seconds") if isinstance(requested, dict) else None
     if isinstance(wanted_s, bool) or not isinstance(wanted_s, (int, float)) or wanted_s <= 0:
         return None
-    samples = 0
-    per_second = 0
+    # the time the last stream's sample indices span (SPEC 4.4: every block carries its
+    # stream's start and period): frames lost on the way do not shorten it, only a stream
+    # that stopped early does
+    identity = metadata.get("identity")
+    tick_hz = identity.get("tick_hz") if isinstance(identity, dict) else None
+    start = first = end = None
+    period = 0
     for item in StreamDecoder().feed(raw):
-        if isinstance(item, Message) and item.name == "stream_config":
-            samples, per_second = 0, item["rate_hz"] * item["channels"]
-        elif isinstance(item, Message) and item.name == "samples":
-            samples += len(item["samples"])
-    got_s = samples / per_second if per_second else 0.0
+        if not isinstance(item, Message):
+            continue
+        if item.name == "identity":
+            tick_hz = item["tick_hz"]
+        elif item.name == "samples":
+            if first is None or item["start_tick"] != start:
+                start, first, period = item["start_tick"], item["first_index"], \
+                    item["period_ticks"]
+            end = item["first_index"] + len(item["samples"])
+    got_s = 0.0
+    if first is not None and end is not None and isinstance(tick_hz, int) and tick_hz > 0:
+        got_s = ((end - first) & 0xFFFFFFFF) * period / tick_hz
     if got_s >= 0.98 * wanted_s:
         return None
     return Finding(Code.INCOMPLETE_CAPTURE, details={"recorded_s": round(got_s, 3),

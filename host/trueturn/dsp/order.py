@@ -330,7 +330,7 @@ def _finish(gram: np.ndarray, observations: np.ndarray, counts: np.ndarray, n_ch
     rhs = gram[:, :p, p:]
     ok = observations >= 2 * p
     aa_safe = np.where(ok[:, None, None], aa, np.eye(p))
-    solved = _solve_spd(aa_safe, rhs)  # (R, p, q + 1)
+    solved = np.linalg.solve(aa_safe, rhs)  # (R, p, q + 1)
     coef_n = solved[:, :, :q]
     coef_y = solved[:, :, q]
     na = gram[:, p:p + q, :p]
@@ -351,27 +351,6 @@ def _finish(gram: np.ndarray, observations: np.ndarray, counts: np.ndarray, n_ch
         fits.append(BlockFit(tuple(orders), tuple(nuisance_hz), coef_y[r],
                              *(arr[r] for arr in blocks), counts[r], observations[r]))
     return fits
-
-
-def _solve_spd(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """``x`` with ``a[r] x[r] = b[r]`` for a batch of symmetric positive definite ``a``
-    (R, p, p) and right-hand sides ``b`` (R, p, k): Gaussian elimination without pivoting,
-    which is stable for such matrices (Golub & Van Loan, *Matrix Computations*, 4th ed.,
-    2013, section 4.2, from memory), one step for the whole batch at a time (the batch is
-    hundreds of small systems: per-matrix LAPACK calls cost more than the arithmetic).
-    """
-    a = np.array(a, dtype=float)
-    x = np.array(b, dtype=float)
-    p = a.shape[1]
-    for k in range(p - 1):
-        factor = a[:, k + 1:, k] / a[:, k, k][:, None]  # (R, p - k - 1)
-        a[:, k + 1:, k + 1:] -= factor[:, :, None] * a[:, None, k, k + 1:]
-        x[:, k + 1:] -= factor[:, :, None] * x[:, None, k]
-    for k in range(p - 1, -1, -1):
-        if k < p - 1:
-            x[:, k] -= np.matmul(a[:, k:k + 1, k + 1:], x[:, k + 1:])[:, 0]
-        x[:, k] /= a[:, k, k][:, None]
-    return x
 
 
 def _evenly_spaced(ticks: np.ndarray, lo: np.ndarray,

@@ -63,9 +63,13 @@ def test_a_copied_and_edited_scenario_loads_by_path(tmp_path: Path) -> None:
 
 
 @pytest.mark.parametrize(("text", "needle"), [
-    ("rotor: [unclosed", "not valid YAML"),
-    ("- just a list", "expected a mapping"),
-    ("name: x\nrotor: {mass_kg: 1}\n", "bearings: expected a non-empty list"),
+    ("rotor: [unclosed", "bad.yaml:2: not valid YAML"),
+    ("- just a list", "bad.yaml:1: (top): must be a mapping of fields"),
+    ("name: x\nrotor: {mass_kg: 1}\n", "bad.yaml:2: rotor.transverse_inertia_kg_m2: missing field"),
+    ("rotor: {mass_kg: 1, transverse_inertia_kg_m2: 0.1}\nbearings: []\nplanes: []\n"
+     "pickups: []\nmotor: {mains_hz: 60}\n", "bad.yaml:2: bearings: expected a non-empty list"),
+    ("rotor: {mass_kg: 1, transverse_inertia_kg_m2: 0.1, mass_g: 3}\n",
+     "bad.yaml:1: rotor.mass_g: unknown field"),
 ])
 def test_bad_scenario_files_give_one_line(tmp_path: Path, text: str, needle: str) -> None:
     path = tmp_path / "bad.yaml"
@@ -80,12 +84,24 @@ def test_bad_values_in_a_copied_scenario(tmp_path: Path) -> None:
     raw["motor"]["mains_hz"] = 55
     path = tmp_path / "odd.yaml"
     path.write_text(yaml.safe_dump(raw), encoding="utf-8")
-    with pytest.raises(UserError, match="mains_hz must be 50 or 60"):
+    text = path.read_text(encoding="utf-8")
+    line = 1 + text.splitlines().index("  mains_hz: 55")
+    with pytest.raises(UserError, match=rf"odd.yaml:{line}: motor.mains_hz: must be 50 or 60"):
         load_scenario(str(path))
     raw["motor"]["mains_hz"] = 60
     raw["as_found"][0]["plane"] = "middle"
     path.write_text(yaml.safe_dump(raw), encoding="utf-8")
-    with pytest.raises(UserError, match="plane 'middle' is not one of"):
+    with pytest.raises(UserError, match=r"as_found\[0\].plane: plane 'middle' is not one of"):
+        load_scenario(str(path))
+    raw["as_found"][0]["plane"] = "left-wheel"
+    raw["pickups"][1]["bearing"] = 2
+    path.write_text(yaml.safe_dump(raw), encoding="utf-8")
+    with pytest.raises(UserError, match=r"pickups\[1\].bearing: names bearing 2, the rotor has 2"):
+        load_scenario(str(path))
+    raw["pickups"][1]["bearing"] = 1
+    raw["bearings"][0]["stiffness_h_n_per_m"] = 2e12
+    path.write_text(yaml.safe_dump(raw), encoding="utf-8")
+    with pytest.raises(UserError, match=r"bearings\[0\].stiffness_h_n_per_m: must be at most"):
         load_scenario(str(path))
 
 

@@ -42,6 +42,8 @@ def load_document(path: str) -> Any:
         raise UserError(f"{path}: cannot read ({exc.strerror or exc})") from None
     except UnicodeDecodeError:
         raise UserError(f"{path}:1: not a text file (YAML or JSON in UTF-8 expected)") from None
+    except ValueError:  # a name the system cannot take (a NUL byte)
+        raise UserError(f"{path!r}: not a file name") from None
     return load_yaml_text(text, "stdin" if path == "-" else path)
 
 

@@ -7,17 +7,16 @@ invented for the demo and describes no real machine.
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass, field
 from importlib import resources
 from pathlib import Path
-from typing import Any
+from typing import Any, Literal
 
 import numpy as np
-import yaml
 
 from trueturn.errors import UserError
 from trueturn.positions import equally_spaced_deg
+from trueturn.schema import SchemaError, from_data, limits
 from trueturn.sim.rotor import (
     STANDARD_GRAVITY_M_S2,
     CorrectionPlane,
@@ -26,6 +25,15 @@ from trueturn.sim.rotor import (
     RigidRotor,
     Support,
 )
+from trueturn.yamltext import load_yaml_text
+
+# No quantity in a scenario comes near this; beyond it the model's arithmetic overflows.
+LARGEST_VALUE = 1e12
+#: Field limits of the scenario's quantities: any size up to LARGEST_VALUE, not negative, or
+#: above zero.
+ANY = limits(minimum=-LARGEST_VALUE, maximum=LARGEST_VALUE)
+NON_NEGATIVE = limits(minimum=0, maximum=LARGEST_VALUE)
+POSITIVE = limits(above=0, maximum=LARGEST_VALUE)
 
 ADC_REFERENCE_V = 5.0
 # ATmega328P datasheet, ADC conversion result: ADC = Vin * 1024 / Vref, at most 1023.
@@ -46,18 +54,33 @@ class Motor:
     """Drive of the rotor: an induction motor on the mains (optionally through a belt) or a
     variable-speed drive; slow speed wander and start/stop times."""
 
-    kind: str  # "induction" or "variable"
-    mains_hz: float
-    poles: int = 2
-    slip: float = 0.0  # fraction below synchronous speed at the scenario's load
-    load_wander: float = 0.0  # relative wander of the slip (load-dependent speed)
-    pulley_ratio: float = 1.0  # rotor speed / motor speed
-    speed_rpm: float = 0.0  # variable drive: default set speed
+    mains_hz: float = field(metadata=POSITIVE)
+    kind: Literal["induction", "variable"] = "induction"
+    poles: int = field(default=2, metadata=limits(minimum=1, maximum=LARGEST_VALUE))
+    #: fraction below synchronous speed at the scenario's load
+    slip: float = field(default=0.0, metadata=limits(minimum=0, below=1))
+    #: relative wander of the slip (load-dependent speed)
+    load_wander: float = field(default=0.0, metadata=NON_NEGATIVE)
+    pulley_ratio: float = field(default=1.0, metadata=POSITIVE)  # rotor speed / motor speed
+    speed_rpm: float = field(default=0.0, metadata=NON_NEGATIVE)  # variable drive: set speed
     speed_range_rpm: tuple[float, float] | None = None
-    drift_fraction: float = 0.0  # variable drive: relative slow speed wander
-    drift_period_s: float = 20.0
-    spin_up_s: float = 3.0
-    coast_down_s: float = 8.0
+    #: variable drive: relative slow speed wander
+    drift_fraction: float = field(default=0.0, metadata=NON_NEGATIVE)
+    drift_period_s: float = field(default=20.0, metadata=POSITIVE)
+    spin_up_s: float = field(default=3.0, metadata=POSITIVE)
+    coast_down_s: float = field(default=8.0, metadata=POSITIVE)
+
+    def _checks(self) -> list[tuple[str, str]]:
+        if self.mains_hz not in (50.0, 60.0):
+            return [("mains_hz", f"must be 50 or 60, got {self.mains_hz:g}")]
+        if self.speed_range_rpm is not None:
+            low, high = self.speed_range_rpm
+            if not 0 < low <= high <= LARGEST_VALUE:
+                return [("speed_range_rpm", "must be [low, high] with 0 < low <= high")]
+        if self.nominal_speed_rpm() <= 0:
+            return [("speed_rpm", f"the rotor speed comes out as "
+                     f"{self.nominal_speed_rpm():g} rpm")]
+        return []
 
     def nominal_speed_rpm(self) -> float:
         """Steady rotor speed with no wander: synchronous speed less slip, through the belt."""
@@ -72,24 +95,30 @@ class Tone:
     """A component of every pickup signal: a harmonic of shaft speed (``order``), a tone at a
     non-integer order (belt), or a fixed frequency (``hz``); amplitude in g."""
 
-    amplitude_g: float
-    phase_deg: float = 0.0
-    order: float | None = None
-    hz: float | None = None
+    amplitude_g: float = field(metadata=NON_NEGATIVE)
+    phase_deg: float = field(default=0.0, metadata=ANY)
+    order: float | None = field(default=None, metadata=NON_NEGATIVE)
+    hz: float | None = field(default=None, metadata=NON_NEGATIVE)
     label: str = ""
+
+    def _checks(self) -> list[tuple[str, str]]:
+        if (self.order is None) == (self.hz is None):
+            return [("order", "give exactly one of 'order' or 'hz'")]
+        return []
 
 
 @dataclass(frozen=True)
 class ShopSignals:
     """What real shops add to the 1x: noise, mains hum, harmonics, other tones, tach jitter."""
 
-    noise_rms_g: float = 0.0
-    hum_line_v: float = 0.0  # mains hum at line frequency, volts at the ADC
-    hum_double_v: float = 0.0  # and at twice line frequency
+    noise_rms_g: float = field(default=0.0, metadata=NON_NEGATIVE)
+    #: mains hum at line frequency, volts at the ADC
+    hum_line_v: float = field(default=0.0, metadata=NON_NEGATIVE)
+    hum_double_v: float = field(default=0.0, metadata=NON_NEGATIVE)  # and at twice it
     harmonics: tuple[Tone, ...] = ()
     tones: tuple[Tone, ...] = ()
-    tach_jitter_us: float = 0.0
-    tach_mark_width_deg: float = 10.0
+    tach_jitter_us: float = field(default=0.0, metadata=NON_NEGATIVE)
+    tach_mark_width_deg: float = field(default=10.0, metadata=NON_NEGATIVE)
 
 
 @dataclass(frozen=True)
@@ -143,175 +172,151 @@ def list_scenarios() -> list[str]:
     return sorted(p.stem for p in scenario_dir().glob("*.yaml"))
 
 
-# No quantity in a scenario comes near this; beyond it the model's arithmetic overflows.
-LARGEST_VALUE = 1e12
-# Quantities that must be above zero, and those that must not be negative.
-POSITIVE_KEYS = {"mass_kg", "transverse_inertia_kg_m2", "stiffness_n_per_m",
-                 "stiffness_h_n_per_m", "stiffness_v_n_per_m", "radius_mm",
-                 "sensitivity_v_per_g", "poles", "pulley_ratio", "drift_period_s",
-                 "spin_up_s", "coast_down_s", "mains_hz"}
-NON_NEGATIVE_KEYS = {"damping_ns_per_m", "damping_h_ns_per_m", "damping_v_ns_per_m",
-                     "polar_inertia_kg_m2", "mass_g", "positions", "slip", "load_wander",
-                     "speed_rpm", "drift_fraction", "noise_rms_g", "hum_line_v",
-                     "hum_double_v", "tach_jitter_us", "tach_mark_width_deg", "amplitude_g",
-                     "nonlinearity", "order", "hz", "zero_g_v"}
+# -- the scenario file as a person writes it (sim/README.md, "Add a scenario") --------------
 
 
-def _num(section: dict[str, Any], key: str, where: str, default: float | None = None) -> float:
-    value = section.get(key, default)
-    if value is None:
-        raise UserError(f"{where}: missing '{key}'")
-    if isinstance(value, bool) or not isinstance(value, (int, float)) or not math.isfinite(value):
-        raise UserError(f"{where}: '{key}' must be a number, got {value!r}")
-    if abs(value) > LARGEST_VALUE:
-        raise UserError(f"{where}: '{key}' is out of range ({value:g})")
-    if key in POSITIVE_KEYS and not value > 0:
-        raise UserError(f"{where}: '{key}' must be greater than 0, got {value:g}")
-    if key in NON_NEGATIVE_KEYS and value < 0:
-        raise UserError(f"{where}: '{key}' must not be negative, got {value:g}")
-    return float(value)
+@dataclass(frozen=True)
+class RotorSection:
+    """``rotor:`` the rigid body (the bearings, planes and pickups are their own sections)."""
+
+    mass_kg: float = field(metadata=POSITIVE)
+    transverse_inertia_kg_m2: float = field(metadata=POSITIVE)
+    polar_inertia_kg_m2: float = field(default=0.0, metadata=NON_NEGATIVE)
+    centre_of_mass_axial_mm: float = field(default=0.0, metadata=ANY)
+    nonlinearity: float = field(default=0.0, metadata=NON_NEGATIVE)
+    tach_direction_deg: float = field(default=0.0, metadata=ANY)
 
 
-def _mapping(value: Any, where: str) -> dict[str, Any]:
-    if not isinstance(value, dict):
-        raise UserError(f"{where}: expected a mapping of keys to values")
-    return value
+@dataclass(frozen=True)
+class BearingSection:
+    """A support: ``stiffness_n_per_m`` and ``damping_ns_per_m`` for both directions, or the
+    ``_h_``/``_v_`` values (a missing ``_v_`` value takes the ``_h_`` one)."""
 
+    axial_mm: float = field(metadata=ANY)
+    stiffness_n_per_m: float | None = field(default=None, metadata=POSITIVE)
+    stiffness_h_n_per_m: float | None = field(default=None, metadata=POSITIVE)
+    stiffness_v_n_per_m: float | None = field(default=None, metadata=POSITIVE)
+    damping_ns_per_m: float | None = field(default=None, metadata=NON_NEGATIVE)
+    damping_h_ns_per_m: float | None = field(default=None, metadata=NON_NEGATIVE)
+    damping_v_ns_per_m: float | None = field(default=None, metadata=NON_NEGATIVE)
 
-def _list(value: Any, where: str) -> list[Any]:
-    if not isinstance(value, list) or not value:
-        raise UserError(f"{where}: expected a non-empty list")
-    return value
-
-
-def _optional_list(value: Any, where: str) -> list[Any]:
-    if value is None:
+    def _checks(self) -> list[tuple[str, str]]:
+        if self.stiffness_n_per_m is None and self.stiffness_h_n_per_m is None:
+            return [("stiffness_n_per_m", "missing field (or give stiffness_h_n_per_m)")]
+        if self.damping_ns_per_m is None and self.damping_h_ns_per_m is None:
+            return [("damping_ns_per_m", "missing field (or give damping_h_ns_per_m)")]
         return []
-    if not isinstance(value, list):
-        raise UserError(f"{where}: expected a list")
-    return value
+
+    def support(self) -> Support:
+        k = self.stiffness_n_per_m if self.stiffness_n_per_m is not None else \
+            self.stiffness_h_n_per_m
+        c = self.damping_ns_per_m if self.damping_ns_per_m is not None else \
+            self.damping_h_ns_per_m
+        assert k is not None and c is not None  # _checks
+        return Support(
+            axial_mm=self.axial_mm,
+            stiffness_h_n_per_m=k if self.stiffness_h_n_per_m is None else self.stiffness_h_n_per_m,
+            stiffness_v_n_per_m=k if self.stiffness_v_n_per_m is None else self.stiffness_v_n_per_m,
+            damping_h_ns_per_m=c if self.damping_h_ns_per_m is None else self.damping_h_ns_per_m,
+            damping_v_ns_per_m=c if self.damping_v_ns_per_m is None else self.damping_v_ns_per_m)
 
 
-def _tone(raw: Any, where: str) -> Tone:
-    raw = _mapping(raw, where)
-    order = raw.get("order")
-    hz = raw.get("hz")
-    if (order is None) == (hz is None):
-        raise UserError(f"{where}: give exactly one of 'order' or 'hz'")
-    return Tone(amplitude_g=_num(raw, "amplitude_g", where), phase_deg=_num(raw, "phase_deg", where, 0.0),
-                order=None if order is None else _num(raw, "order", where),
-                hz=None if hz is None else _num(raw, "hz", where), label=str(raw.get("label", "")))
+@dataclass(frozen=True)
+class PlaneSection:
+    """A correction plane: where it is, its radius, and where weights can go."""
+
+    name: str = field(metadata=limits(nonempty=True))
+    axial_mm: float = field(metadata=ANY)
+    radius_mm: float = field(metadata=POSITIVE)
+    removal: bool = False
+    positions: int = field(default=0, metadata=limits(minimum=0, maximum=360))
+    first_position_deg: float = field(default=0.0, metadata=ANY)
+    note: str = ""
+
+
+@dataclass(frozen=True)
+class PickupSection:
+    """An accelerometer on bearing ``bearing`` (0 = the first listed), its direction and its
+    electrical output."""
+
+    name: str = field(metadata=limits(nonempty=True))
+    bearing: int = field(metadata=limits(minimum=0))
+    direction_deg: float = field(metadata=ANY)
+    sensitivity_v_per_g: float = field(default=0.3, metadata=POSITIVE)
+    zero_g_v: float = field(default=1.65, metadata=NON_NEGATIVE)
+
+
+@dataclass(frozen=True)
+class ScenarioFile:
+    """A scenario file's shape; ``_checks`` holds the rules across sections."""
+
+    rotor: RotorSection
+    bearings: list[BearingSection]
+    planes: list[PlaneSection]
+    pickups: list[PickupSection]
+    motor: Motor
+    name: str | None = None
+    title: str | None = None
+    description: str = ""
+    as_found: list[Mass] | None = None
+    signals: ShopSignals | None = None
+
+    def _checks(self) -> list[tuple[str, str]]:
+        for section in ("bearings", "planes", "pickups"):
+            if not getattr(self, section):
+                return [(section, "expected a non-empty list")]
+        names = [p.name for p in self.planes]
+        for i, name in enumerate(names):
+            if name in names[:i]:
+                return [(f"planes[{i}].name", f"plane '{name}' given twice")]
+        for i, pickup in enumerate(self.pickups):
+            if pickup.bearing >= len(self.bearings):
+                return [(f"pickups[{i}].bearing", f"names bearing {pickup.bearing}, the rotor "
+                         f"has {len(self.bearings)} (numbered from 0)")]
+        for i, mass in enumerate(self.as_found or []):
+            if mass.plane not in names:
+                return [(f"as_found[{i}].plane",
+                         f"plane {mass.plane!r} is not one of {', '.join(names)}")]
+        return []
+
+    def scenario(self, fallback_name: str, source: str) -> Scenario:
+        """The checked file as the simulator's :class:`Scenario`."""
+        r = self.rotor
+        rotor = RigidRotor(
+            mass_kg=r.mass_kg, transverse_inertia_kg_m2=r.transverse_inertia_kg_m2,
+            polar_inertia_kg_m2=r.polar_inertia_kg_m2,
+            centre_of_mass_axial_mm=r.centre_of_mass_axial_mm,
+            bearings=[b.support() for b in self.bearings],
+            planes=[CorrectionPlane(p.name, p.axial_mm, p.radius_mm) for p in self.planes],
+            pickups=[Pickup(p.name, p.bearing, p.direction_deg) for p in self.pickups],
+            nonlinearity=r.nonlinearity, tach_direction_deg=r.tach_direction_deg)
+        name = self.name or fallback_name
+        return Scenario(
+            name=name, title=self.title or name, description=self.description.strip(),
+            rotor=rotor,
+            electrical=[PickupElectrical(p.sensitivity_v_per_g, p.zero_g_v) for p in self.pickups],
+            as_found=list(self.as_found or []), motor=self.motor,
+            signals=self.signals or ShopSignals(),
+            layouts={p.name: PlaneLayout(p.positions, p.first_position_deg, p.note, p.removal)
+                     for p in self.planes},
+            source=source)
 
 
 def parse_scenario(raw: Any, source: str) -> Scenario:
-    """Build a :class:`Scenario` from the YAML mapping; any mistake is one UserError line."""
-    top = _mapping(raw, source)
-    name = str(top.get("name") or Path(source).stem)
-    rotor_raw = _mapping(top.get("rotor"), f"{source}: rotor")
-    bearings = []
-    for i, b in enumerate(_list(top.get("bearings"), f"{source}: bearings")):
-        w = f"{source}: bearings[{i}]"
-        b = _mapping(b, w)
-        k = _num(b, "stiffness_n_per_m", w, b.get("stiffness_h_n_per_m"))
-        c = _num(b, "damping_ns_per_m", w, b.get("damping_h_ns_per_m"))
-        bearings.append(Support(axial_mm=_num(b, "axial_mm", w),
-                                stiffness_h_n_per_m=_num(b, "stiffness_h_n_per_m", w, k),
-                                stiffness_v_n_per_m=_num(b, "stiffness_v_n_per_m", w, k),
-                                damping_h_ns_per_m=_num(b, "damping_h_ns_per_m", w, c),
-                                damping_v_ns_per_m=_num(b, "damping_v_ns_per_m", w, c)))
-    planes, layouts = [], {}
-    for i, p in enumerate(_list(top.get("planes"), f"{source}: planes")):
-        w = f"{source}: planes[{i}]"
-        p = _mapping(p, w)
-        if not p.get("name"):
-            raise UserError(f"{w}: missing 'name'")
-        planes.append(CorrectionPlane(str(p["name"]), _num(p, "axial_mm", w), _num(p, "radius_mm", w)))
-        removal = p.get("removal", False)
-        if not isinstance(removal, bool):
-            raise UserError(f"{w}: removal must be true or false")
-        layouts[str(p["name"])] = PlaneLayout(int(_num(p, "positions", w, 0)),
-                                              _num(p, "first_position_deg", w, 0.0),
-                                              str(p.get("note", "")), removal)
-    pickups, electrical = [], []
-    for i, p in enumerate(_list(top.get("pickups"), f"{source}: pickups")):
-        w = f"{source}: pickups[{i}]"
-        p = _mapping(p, w)
-        if not p.get("name"):
-            raise UserError(f"{w}: missing 'name'")
-        pickups.append(Pickup(str(p["name"]), int(_num(p, "bearing", w)), _num(p, "direction_deg", w)))
-        electrical.append(PickupElectrical(_num(p, "sensitivity_v_per_g", w, 0.3),
-                                           _num(p, "zero_g_v", w, 1.65)))
+    """Build a :class:`Scenario` from the loaded YAML through the one validator
+    (:mod:`trueturn.schema`); any mistake is one line ``file:line: field.path: problem``."""
+    if raw is None:
+        raise SchemaError(f"{source}:1: (top): the file is empty")
+    document: ScenarioFile = from_data(ScenarioFile, raw, source)
     try:
-        rotor = RigidRotor(
-            mass_kg=_num(rotor_raw, "mass_kg", f"{source}: rotor"),
-            transverse_inertia_kg_m2=_num(rotor_raw, "transverse_inertia_kg_m2", f"{source}: rotor"),
-            polar_inertia_kg_m2=_num(rotor_raw, "polar_inertia_kg_m2", f"{source}: rotor", 0.0),
-            centre_of_mass_axial_mm=_num(rotor_raw, "centre_of_mass_axial_mm", f"{source}: rotor", 0.0),
-            bearings=bearings, planes=planes, pickups=pickups,
-            nonlinearity=_num(rotor_raw, "nonlinearity", f"{source}: rotor", 0.0),
-            tach_direction_deg=_num(rotor_raw, "tach_direction_deg", f"{source}: rotor", 0.0),
-        )
-    except ValueError as exc:
-        raise UserError(f"{source}: {exc}") from None
-    as_found = []
-    for i, m in enumerate(_optional_list(top.get("as_found"), f"{source}: as_found")):
-        w = f"{source}: as_found[{i}]"
-        m = _mapping(m, w)
-        if not isinstance(m.get("plane"), str) or m["plane"] not in layouts:
-            raise UserError(f"{w}: plane {m.get('plane')!r} is not one of {', '.join(layouts)}")
-        as_found.append(Mass(str(m["plane"]), _num(m, "mass_g", w), _num(m, "angle_deg", w)))
-    mw = f"{source}: motor"
-    mo = _mapping(top.get("motor"), mw)
-    kind = str(mo.get("kind", "induction"))
-    if kind not in ("induction", "variable"):
-        raise UserError(f"{mw}: kind must be 'induction' or 'variable', got {kind!r}")
-    mains_hz = _num(mo, "mains_hz", mw)
-    if mains_hz not in (50.0, 60.0):
-        raise UserError(f"{mw}: mains_hz must be 50 or 60")
-    rng = mo.get("speed_range_rpm")
-    if rng is not None:
-        if not isinstance(rng, list) or len(rng) != 2:
-            raise UserError(f"{mw}: speed_range_rpm must be [low, high]")
-        low = _num({"low": rng[0]}, "low", f"{mw}: speed_range_rpm")
-        high = _num({"high": rng[1]}, "high", f"{mw}: speed_range_rpm")
-        if not 0 < low <= high:
-            raise UserError(f"{mw}: speed_range_rpm must be [low, high] with 0 < low <= high")
-        rng = [low, high]
-    if not 0 <= _num(mo, "slip", mw, 0.0) < 1:
-        raise UserError(f"{mw}: slip must be a fraction below 1")
-    motor = Motor(kind=kind, mains_hz=mains_hz, poles=int(_num(mo, "poles", mw, 2)),
-                  slip=_num(mo, "slip", mw, 0.0), load_wander=_num(mo, "load_wander", mw, 0.0),
-                  pulley_ratio=_num(mo, "pulley_ratio", mw, 1.0),
-                  speed_rpm=_num(mo, "speed_rpm", mw, 0.0),
-                  speed_range_rpm=None if rng is None else (float(rng[0]), float(rng[1])),
-                  drift_fraction=_num(mo, "drift_fraction", mw, 0.0),
-                  drift_period_s=_num(mo, "drift_period_s", mw, 20.0),
-                  spin_up_s=_num(mo, "spin_up_s", mw, 3.0),
-                  coast_down_s=_num(mo, "coast_down_s", mw, 8.0))
-    if motor.nominal_speed_rpm() <= 0:
-        raise UserError(f"{mw}: the rotor speed comes out as {motor.nominal_speed_rpm():g} rpm")
-    sw = f"{source}: signals"
-    si = _mapping(top.get("signals") or {}, sw)
-    signals = ShopSignals(
-        noise_rms_g=_num(si, "noise_rms_g", sw, 0.0),
-        hum_line_v=_num(si, "hum_line_v", sw, 0.0),
-        hum_double_v=_num(si, "hum_double_v", sw, 0.0),
-        harmonics=tuple(_tone(t, f"{sw}: harmonics[{i}]") for i, t in enumerate(
-            _optional_list(si.get("harmonics"), f"{sw}: harmonics"))),
-        tones=tuple(_tone(t, f"{sw}: tones[{i}]") for i, t in enumerate(
-            _optional_list(si.get("tones"), f"{sw}: tones"))),
-        tach_jitter_us=_num(si, "tach_jitter_us", sw, 0.0),
-        tach_mark_width_deg=_num(si, "tach_mark_width_deg", sw, 10.0),
-    )
-    scenario = Scenario(name=name, title=str(top.get("title", name)),
-                        description=str(top.get("description", "")).strip(), rotor=rotor,
-                        electrical=electrical, as_found=as_found, motor=motor, signals=signals,
-                        layouts=layouts, source=source)
-    _check_model(scenario)
+        scenario = document.scenario(Path(source).stem, source)
+    except ValueError as exc:  # the model's own guards; the validator should have said it
+        raise SchemaError(f"{source}:{getattr(raw, 'line', 1)}: rotor: {exc}") from None
+    _check_model(scenario, getattr(raw, "key_lines", {}).get("rotor", 1))
     return scenario
 
 
-def _check_model(scenario: Scenario) -> None:
+def _check_model(scenario: Scenario, line: int = 1) -> None:
     """Values each fine alone can still make a model with no finite response: say so."""
     try:
         with np.errstate(all="ignore"):
@@ -322,8 +327,8 @@ def _check_model(scenario: Scenario) -> None:
     except (ValueError, ArithmeticError, np.linalg.LinAlgError):
         finite = False
     if not finite:
-        raise UserError(f"{scenario.source}: the rotor model has no finite response; check "
-                        "the masses, inertias, stiffnesses and positions")
+        raise SchemaError(f"{scenario.source}:{line}: rotor: the model has no finite response; "
+                          "check the masses, inertias, stiffnesses and positions")
 
 
 def load_scenario(name_or_path: str | Path) -> Scenario:
@@ -334,14 +339,13 @@ def load_scenario(name_or_path: str | Path) -> Scenario:
         path = scenario_dir() / f"{text_name}.yaml"
         if not path.is_file():
             raise UserError(f"no scenario called {text_name!r}; known: {', '.join(list_scenarios())}")
+    source = path.name if path.parent == scenario_dir() else str(path)
     try:
-        raw = yaml.safe_load(path.read_text(encoding="utf-8"))
+        text = path.read_text(encoding="utf-8")
     except FileNotFoundError:
         raise UserError(f"scenario file {text_name} does not exist") from None
-    except (OSError, UnicodeDecodeError) as exc:
-        raise UserError(f"cannot read scenario {text_name}: {exc}") from None
-    except yaml.YAMLError as exc:
-        mark = getattr(exc, "problem_mark", None)
-        where = f" at line {mark.line + 1}" if mark is not None else ""
-        raise UserError(f"scenario {text_name} is not valid YAML{where}") from None
-    return parse_scenario(raw, path.name if path.parent == scenario_dir() else str(path))
+    except UnicodeDecodeError:
+        raise SchemaError(f"{source}:1: not a text file (YAML in UTF-8 expected)") from None
+    except OSError as exc:
+        raise UserError(f"cannot read scenario {text_name}: {exc.strerror or exc}") from None
+    return parse_scenario(load_yaml_text(text, source), source)

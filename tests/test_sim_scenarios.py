@@ -103,6 +103,11 @@ def test_bad_values_in_a_copied_scenario(tmp_path: Path) -> None:
     path.write_text(yaml.safe_dump(raw), encoding="utf-8")
     with pytest.raises(UserError, match=r"bearings\[0\].stiffness_h_n_per_m: must be at most"):
         load_scenario(str(path))
+    raw["bearings"][0]["stiffness_h_n_per_m"] = 55000
+    raw["as_found"][0]["mass_g"] = -3.2
+    path.write_text(yaml.safe_dump(raw), encoding="utf-8")
+    with pytest.raises(UserError, match=r"as_found\[0\].mass_g: must not be negative"):
+        load_scenario(str(path))
 
 
 def test_signal_spec_follows_the_contract() -> None:

@@ -28,15 +28,22 @@ from dataclasses import dataclass, field
 import numpy as np
 
 from trueturn.constants import STANDARD_GRAVITY_M_S2
+from trueturn.model.fields import limits
+
+#: No quantity of a simulated machine comes near this; beyond it the model's arithmetic
+#: overflows (the limit of every number a scenario file gives).
+LARGEST_VALUE = 1e12
 
 
 @dataclass(frozen=True)
 class Mass:
-    """A point mass on the rotor: plane name, grams, and angle in the project convention."""
+    """A point mass on the rotor: plane name, grams, and angle in the project convention.
 
-    plane: str
-    mass_g: float
-    angle_deg: float
+    The field limits are checked when a scenario file is read (its ``as_found`` list)."""
+
+    plane: str = field(metadata=limits(nonempty=True))
+    mass_g: float = field(metadata=limits(minimum=0, maximum=LARGEST_VALUE))
+    angle_deg: float = field(metadata=limits(minimum=-LARGEST_VALUE, maximum=LARGEST_VALUE))
 
 
 @dataclass(frozen=True)

@@ -18,6 +18,7 @@ from trueturn.errors import UserError
 from trueturn.positions import equally_spaced_deg
 from trueturn.schema import SchemaError, from_data, limits
 from trueturn.sim.rotor import (
+    LARGEST_VALUE,
     STANDARD_GRAVITY_M_S2,
     CorrectionPlane,
     Mass,
@@ -27,8 +28,6 @@ from trueturn.sim.rotor import (
 )
 from trueturn.yamltext import load_yaml_text
 
-# No quantity in a scenario comes near this; beyond it the model's arithmetic overflows.
-LARGEST_VALUE = 1e12
 #: Field limits of the scenario's quantities: any size up to LARGEST_VALUE, not negative, or
 #: above zero.
 ANY = limits(minimum=-LARGEST_VALUE, maximum=LARGEST_VALUE)

@@ -361,6 +361,57 @@ def test_job_in_a_file_of_the_persons_choosing(tmp_path: Path) -> None:
     assert ws.load_job(str(own)).runs == [run(1)]
 
 
+def test_a_job_created_at_a_path_is_held_there_for_every_save(tmp_path: Path) -> None:
+    ws = Workspace(tmp_path / "ws")
+    own = tmp_path / "customer" / "fan job.yaml"
+    job = ws.new_job(shop_fan(), when="2026-11-30T09:00:00Z", notes="four-run", path=own)
+    assert job.job_id == "fan job" and ws.path_of(job) == own
+    ws.record_pending(job, PendingStep(notes="hub cleaned"))
+    assert ws.append_run(job, run(1)) == own
+    assert ws.close_job(job) == own
+    saved = read_document(own, "job")
+    assert saved.status == "closed" and saved.notes == "four-run"
+    assert saved.runs[0].notes == "hub cleaned" and saved.pending is None  # the notes merge
+    assert not ws.jobs_dir.exists()
+    with pytest.raises(UserError, match="exists"):
+        ws.new_job(shop_fan(), path=own)  # never overwrites
+
+
+def test_a_job_read_from_elsewhere_is_saved_back_there(tmp_path: Path) -> None:
+    ws = Workspace(tmp_path / "ws")
+    own = tmp_path / "fan.yaml"
+    ws.new_job(shop_fan(), when="2026-11-30T09:00:00Z", path=own)
+    again = Workspace(tmp_path / "ws").resume_job(str(own))
+    ws_again = Workspace(tmp_path / "ws")
+    job = ws_again.load_job(str(own))
+    ws_again.append_run(job, run(1))
+    assert read_document(own, "job").runs == [run(1)] and again.runs == []
+    assert not ws.jobs_dir.exists()
+    # a workspace job stays a workspace job
+    mine = ws.new_job(shop_fan(), when="2026-11-30T09:00:00Z")
+    loaded = ws.load_job(mine.job_id)
+    assert ws.path_of(loaded) == ws.job_path(mine.job_id)
+
+
+def test_failed_pending_and_closing_saves_leave_the_job_unchanged(tmp_path: Path) -> None:
+    ws = Workspace(tmp_path)
+    job = ws.new_job(shop_fan(), when="2026-11-30T09:00:00Z")
+    ws.append_run(job, run(1))
+    before_text = ws.job_path(job.job_id).read_bytes()
+    before = copy.deepcopy(job)
+    bad_part = MassChange("attach", "hub", -1.0, 0.0)  # refused by the file's limits
+    with pytest.raises(SchemaError, match="mass_g"):
+        ws.record_pending(job, PendingStep(changes=[bad_part]))
+    assert job == before
+    from trueturn.jobs import PlaneVerdict, VerdictEntry
+    late = VerdictEntry(6.3, 1450.0, after_run=5, planes=[PlaneVerdict("hub", 10.0, 20.0, True)],
+                        passed=True)  # run 5 never was
+    with pytest.raises(SchemaError, match="verdict: refers to run 5"):
+        ws.close_job(job, late)
+    assert job == before and job.status == "open" and job.verdict is None
+    assert ws.job_path(job.job_id).read_bytes() == before_text
+
+
 # --------------------------------------------------------------------------------------------
 # Our YAML writer against PyYAML's reader (reference library: PyYAML, pure-Python SafeLoader
 # and libyaml CSafeLoader)

@@ -305,10 +305,18 @@ class JobSummary:
 
 
 class Workspace:
-    """Machine profiles, jobs and coefficients under one folder (created on first save)."""
+    """Machine profiles, jobs and coefficients under one folder (created on first save).
+
+    A job normally lives in ``jobs/<job-id>.yaml``; a job created at a path of the person's
+    choosing (``new_job(..., path=...)``, the app's ``--job FILE``) or loaded from a file
+    elsewhere is *held* at that path: every later save of that job object (a run, pending
+    hands-on work, closing) goes back to it, with the same checks, rollback and merging.
+    """
 
     def __init__(self, root: str | os.PathLike[str]) -> None:
         self.root = Path(root)
+        # id(job) -> (job, path): jobs saved outside jobs/ (the job is kept so the id stays its)
+        self._held: dict[int, tuple[JobRecord, Path]] = {}
 
     @classmethod
     def open(cls, option: str | os.PathLike[str] | None = None) -> Workspace:
@@ -355,27 +363,53 @@ class Workspace:
 
     def new_job(self, profile: MachineProfile, *, method: str = "single-plane",
                 speed_rpm: float | None = None, operator: str = "", customer: str = "",
-                when: str | None = None) -> JobRecord:
-        """Create, save and return a new open job for ``profile`` with a fresh id."""
+                notes: str = "", when: str | None = None,
+                path: str | os.PathLike[str] | None = None) -> JobRecord:
+        """Create, save and return a new open job for ``profile``.
+
+        Without ``path`` it gets a fresh id in the workspace's jobs folder; with ``path`` it
+        is named after the file (its stem), held there, and an existing file is never
+        overwritten.
+        """
         created = when or now_iso()
-        stem = f"{created[:10]}-{slug(profile.name)}"
-        number = 1
-        while self.job_path(f"{stem}-{number:03d}").exists():
-            number += 1
-        job = JobRecord(job_id=f"{stem}-{number:03d}", machine=profile, created=created,
+        if path is not None:
+            target = Path(path)
+            if target.exists():
+                raise UserError(f"{target} exists: a new job never overwrites a file; "
+                                "give a new name")
+            job_id = target.stem
+        else:
+            stem = f"{created[:10]}-{slug(profile.name)}"
+            number = 1
+            while self.job_path(f"{stem}-{number:03d}").exists():
+                number += 1
+            job_id = f"{stem}-{number:03d}"
+        job = JobRecord(job_id=job_id, machine=profile, created=created,
                         updated=created, method=method, speed_rpm=speed_rpm,  # type: ignore[arg-type]
-                        operator=operator, customer=customer)
-        self.save_job(job)
+                        operator=operator, customer=customer, notes=notes)
+        self.save_job(job, path)
+        if path is not None:
+            self._held[id(job)] = (job, Path(path))
         return job
 
-    def save_job(self, job: JobRecord, path: str | os.PathLike[str] | None = None) -> Path:
-        """Save ``job`` atomically (call after every run and every hands-on step).
+    def path_of(self, job: JobRecord) -> Path:
+        """Where ``job`` is saved: the file it is held at, else ``jobs/<job-id>.yaml``."""
+        held = self._held.get(id(job))
+        if held is not None and held[0] is job:
+            return held[1]
+        return self.job_path(job.job_id)
 
-        ``path`` keeps the job in a file of the person's choosing instead of the workspace.
-        """
+    def save_job(self, job: JobRecord, path: str | os.PathLike[str] | None = None) -> Path:
+        """Save ``job`` atomically (call after every run and every hands-on step) to ``path``,
+        else where it is held (:meth:`path_of`); if the save fails, ``job`` is unchanged."""
+        before = job.updated
         job.updated = now_iso()
-        target = Path(path) if path is not None else self.job_path(job.job_id)
-        written = write_document(target, "job", job)
+        target = Path(path) if path is not None else self.path_of(job)
+        try:
+            written = write_document(target, "job", job)
+        except BaseException:
+            job.updated = before
+            raise
         remove_stale_temps(target.parent)
         return written
 
@@ -395,7 +429,13 @@ class Workspace:
         return path
 
     def load_job(self, ref: str | os.PathLike[str]) -> JobRecord:
-        return read_document(self.find_job(ref), "job")
+        """Read a job by id or path; a job read from a file outside the jobs folder (or named
+        otherwise) is held there, so saving it writes that file back."""
+        path = self.find_job(ref)
+        job: JobRecord = read_document(path, "job")
+        if path.parent.resolve() != self.jobs_dir.resolve() or path.stem != job.job_id:
+            self._held[id(job)] = (job, path)
+        return job
 
     def append_run(self, job: JobRecord, run: RunEntry,
                    path: str | os.PathLike[str] | None = None) -> Path:
@@ -427,16 +467,29 @@ class Workspace:
 
     def record_pending(self, job: JobRecord, pending: PendingStep,
                        path: str | os.PathLike[str] | None = None) -> Path:
-        """Keep hands-on work done since the last run (so a crash does not forget a trial weight)."""
+        """Keep hands-on work done since the last run (so a crash does not forget a trial
+        weight): ``pending`` replaces the job's pending step. If the save fails, ``job`` is
+        left as it was."""
+        before = job.pending
         job.pending = pending
-        return self.save_job(job, path)
+        try:
+            return self.save_job(job, path)
+        except BaseException:
+            job.pending = before
+            raise
 
     def close_job(self, job: JobRecord, verdict: VerdictEntry | None = None,
                   path: str | os.PathLike[str] | None = None) -> Path:
+        """Close ``job`` with ``verdict`` and save it; if the save fails, it stays open."""
+        before = (job.verdict, job.status)
         if verdict is not None:
             job.verdict = verdict
         job.status = "closed"
-        return self.save_job(job, path)
+        try:
+            return self.save_job(job, path)
+        except BaseException:
+            job.verdict, job.status = before
+            raise
 
     def resume_job(self, ref: str | os.PathLike[str]) -> JobRecord:
         """Reload an open job after an unplug or crash; it continues at ``next_run_index``."""

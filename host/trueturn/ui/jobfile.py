@@ -1,5 +1,8 @@
-"""Adapter: keep the procedure's record in a job file (``trueturn.jobs``), saved atomically
-after every hands-on step and every run, closed with the verdict and an HTML report."""
+"""Keep the procedure's record in a job file (``trueturn.jobs``) through the one persistence
+path, :class:`trueturn.jobs.store.Workspace`: saved atomically after every hands-on step and
+every run (a failed save leaves the job as it was), pending work folded into the next run
+with its notes, closed with the verdict and an HTML report. The job lives in the workspace,
+or in the file given with ``--job`` (the workspace holds it there)."""
 
 from __future__ import annotations
 
@@ -10,15 +13,13 @@ from pathlib import Path
 from trueturn.jobs import records as rec
 from trueturn.jobs.profiles import MachineProfile
 from trueturn.jobs.report import html_report
-from trueturn.jobs.store import Workspace, atomic_write_text, write_document
+from trueturn.jobs.store import Workspace, atomic_write_text
 from trueturn.model import Run, RunKind, SafetyEvent
 from trueturn.model.units import VIBRATION_UNIT_LABELS
 from trueturn.positions import number_of
 from trueturn.procedure.guide import MassChange, Mode, Procedure
 from trueturn.procedure.standstill import StandstillEvidence
 from trueturn.ui.texts import VERDICT_FLAG_WORDS, verdict_note
-
-# The meter's unit names -> the job file's unit names (amplitudes are stored as measured).
 
 
 class JobKeeper:
@@ -34,61 +35,54 @@ class JobKeeper:
         self.report_path: Path | None = None
         self._confirmed = 0
 
-    def _save(self) -> None:
-        assert self.job is not None
-        if self.job_file is not None:
-            self.job.updated = rec.now_iso()
-            self.path = write_document(self.job_file, "job", self.job)
-        else:
-            self.path = self.workspace.save_job(self.job)
-
     def start(self, proc: Procedure) -> None:
         method = {Mode.TWO_PLANE: "two-plane", Mode.SAVED_TRIM: "trim"}.get(
             proc.setup.mode, "single-plane")
-        created = rec.now_iso()
+        notes = ("amplitude-only procedure (four-run method)"
+                 if proc.setup.mode is Mode.AMPLITUDE_ONLY else "")
         if self.job_file is None:
             self.workspace.save_machine(self.profile)
-            self.job = self.workspace.new_job(self.profile, method=method,
-                                              speed_rpm=proc.setup.speed_rpm)
-        else:
-            self.job = rec.JobRecord(job_id=self.job_file.stem, machine=self.profile,
-                                     created=created, updated=created,
-                                     method=method,  # type: ignore[arg-type]
-                                     speed_rpm=proc.setup.speed_rpm)
-        if proc.setup.mode is Mode.AMPLITUDE_ONLY:
-            self.job.notes = "amplitude-only procedure (four-run method)"
+        self.job = self.workspace.new_job(self.profile, method=method,
+                                          speed_rpm=proc.setup.speed_rpm, notes=notes,
+                                          path=self.job_file)
+        self.path = self.workspace.path_of(self.job)
         self._confirmed = 0
-        self._save()
 
     def _new_confirmations(self, proc: Procedure) -> list[rec.Confirmation]:
         """The confirmations given since the last save, each with the standstill evidence
-        seen at that moment (nothing written as a constant)."""
+        seen at that moment (nothing written as a constant); counted as kept by
+        :meth:`_kept` once the save that holds them succeeded."""
         out = []
         for k in range(self._confirmed, len(proc.confirmations)):
             t, text = proc.confirmations[k]
             ev = proc.evidence_log[k] if k < len(proc.evidence_log) else None
             out.append(confirmation_record(text, t, ev))
-        self._confirmed = len(proc.confirmations)
         return out
+
+    def _kept(self, path: Path, confirmations: list[rec.Confirmation]) -> None:
+        self.path = path
+        self._confirmed += len(confirmations)
 
     def hands_on(self, proc: Procedure, changes: tuple[MassChange, ...]) -> None:
         """Keep the confirmed hands-on work as pending (a crash does not forget a weight)."""
         if self.job is None:
             return
         pending = self.job.pending or rec.PendingStep()
+        added = []
         for change in changes:
             m = change.mass
             if m is None or change.action == "mount-pickups":
                 continue
             action = "attach" if change.action == "attach" else "remove"
-            pending.changes.append(rec.MassChange(
+            added.append(rec.MassChange(
                 action, m.plane, abs(m.mass_g), m.angle_deg, purpose=m.kind.value,
                 position=None if m.position is None else number_of(m.position),
                 radius_mm=proc.plane(m.plane).radius_mm,
                 part="drilled out" if m.removal else "", time=rec.now_iso()))
-        pending.confirmations += self._new_confirmations(proc)
-        self.job.pending = pending
-        self._save()
+        confirmations = self._new_confirmations(proc)
+        step = replace(pending, changes=[*pending.changes, *added],
+                       confirmations=[*pending.confirmations, *confirmations])
+        self._kept(self.workspace.record_pending(self.job, step), confirmations)
 
     def event(self, event: SafetyEvent) -> None:
         """A run stopped (alarm or by the person) is not kept, but its event is: saved at
@@ -96,9 +90,9 @@ class JobKeeper:
         if self.job is None or event.kind not in ("overspeed", "runaway", "aborted"):
             return  # link-lost and board-restart travel with the run that completes
         pending = self.job.pending or rec.PendingStep()
-        pending.events.append(rec.Event(rec.now_iso(), event.kind, event.detail))
-        self.job.pending = pending
-        self._save()
+        step = replace(pending, events=[*pending.events,
+                                        rec.Event(rec.now_iso(), event.kind, event.detail)])
+        self.path = self.workspace.record_pending(self.job, step)
 
     def run(self, proc: Procedure, run: Run) -> None:
         if self.job is None:
@@ -119,21 +113,13 @@ class JobKeeper:
                     c.plane, c.mass_g, c.angle_deg, "remove" if proc.removal else "add",
                     proc.plane(c.plane).radius_mm, parts))
         events = [rec.Event(rec.now_iso(), e.kind, e.detail) for e in run.events]
+        confirmations = self._new_confirmations(proc)
         record = rec.RunEntry(index=self.job.next_run_index, kind=kind,
-                         time=rec.now_iso(), speed_rpm=run.speed_rpm, readings=readings,
-                         label=run.label, confirmations=self._new_confirmations(proc),
-                         corrections=corrections, events=events,
-                         notes="; ".join(run.forces_confirmed))
-        if self.job_file is None:
-            self.workspace.append_run(self.job, record)
-        else:
-            if self.job.pending is not None:
-                record.changes = self.job.pending.changes + record.changes
-                record.confirmations = self.job.pending.confirmations + record.confirmations
-                record.events = self.job.pending.events + record.events
-                self.job.pending = None
-            self.job.runs.append(record)
-        self._save()
+                              time=rec.now_iso(), speed_rpm=run.speed_rpm, readings=readings,
+                              label=run.label, confirmations=confirmations,
+                              corrections=corrections, events=events,
+                              notes="; ".join(run.forces_confirmed))
+        self._kept(self.workspace.append_run(self.job, record), confirmations)
 
     def _keep_coefficients(self, proc: Procedure) -> None:
         """Store the influence coefficients (refitted over every run) for later trims."""
@@ -156,17 +142,16 @@ class JobKeeper:
         if self.job is None:
             return None
         v = proc.verdict
+        verdict = None
         if v is not None:
             planes = [rec.PlaneVerdict(name, res, per, within)
                       for name, res, per, within in v.rows()]
             note = " ".join([verdict_note(v, proc.setup.speed_rpm),
                              *(VERDICT_FLAG_WORDS[f] + "." for f in v.flags)])
-            self.job.verdict = rec.VerdictEntry(proc.setup.grade_mm_per_s, proc.setup.speed_rpm,
-                                           len(self.job.runs), planes, v.passed, note=note)
+            verdict = rec.VerdictEntry(proc.setup.grade_mm_per_s, proc.setup.speed_rpm,
+                                       len(self.job.runs), planes, v.passed, note=note)
         self._keep_coefficients(proc)
-        self.job.status = "closed"
-        self._save()
-        assert self.path is not None
+        self.path = self.workspace.close_job(self.job, verdict)
         self.report_path = self.path.with_suffix(".html")
         atomic_write_text(self.report_path, html_report(self.job))
         return self.path

@@ -2,51 +2,56 @@
 
 Screens: :class:`ConnectScreen` (board identity, refusal of a mismatched firmware),
 :class:`BenchScreen` (three views: meter, spectrum, guide; a status strip always on top),
-:class:`TextPage` (keys, cautions). All blocking I/O runs in a thread worker that pumps
-the :class:`~trueturn.ui.session.LinkSession`; the screen polls a snapshot ten times a second.
+:class:`TextPage` (keys, cautions). The guide shows one widget per step kind
+(:mod:`trueturn.ui.steps`). All blocking I/O runs in thread workers that pump the message
+source (a :class:`~trueturn.ui.session.LinkSession`) and tell the app what happened with
+messages (:class:`LinkLost`, :class:`Reconnected`...); the screen polls a snapshot ten
+times a second. The message source and the host clock are given to the app
+(``TrueturnApp(config, clock=..., source=...)``), the real ones by default.
 """
 
 from __future__ import annotations
 
-import contextlib
-import math
 import statistics
 import time
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from pathlib import Path
 
-from textual import work
+from textual import on, work
 from textual.app import App, ComposeResult
 from textual.binding import Binding
 from textual.containers import Container, Vertical
+from textual.message import Message
 from textual.screen import Screen
-from textual.widgets import ContentSwitcher, Footer, ProgressBar, Sparkline, Static
+from textual.widgets import ContentSwitcher, Footer, Sparkline, Static
 from textual.worker import get_current_worker
 
-from trueturn.angles import wrap_deg
 from trueturn.errors import UserError
 from trueturn.jobs.profiles import MachineProfile
 from trueturn.jobs.records import CoefficientSet
 from trueturn.link.session import GreetPhase
-from trueturn.model.result import WITHHOLDING_FLAGS
-from trueturn.positions import number_of, position_text
 from trueturn.procedure.engine import BalanceEngine
 from trueturn.procedure.guide import (
     GateRefused,
+    HandsOn,
+    HandsOnPhase,
+    Measure,
     Mode,
     Procedure,
+    RunPhase,
     SafetyEvent,
-    standstill_basis_words,
-    standstill_refusal,
+    ShowCorrection,
+    ShowVerdict,
 )
 from trueturn.procedure.standstill import StandstillState
 from trueturn.ui.jobfile import JobKeeper
-from trueturn.ui.machine import describe_change, setup_from_profile
+from trueturn.ui.machine import setup_from_profile
 from trueturn.ui.machines import MachinePicker
 from trueturn.ui.rig import DemoRig
-from trueturn.ui.session import LinkProblem, LinkSession, Snapshot
-from trueturn.ui.texts import CAUTIONS, VERDICT_FLAG_WORDS, keys_markup, verdict_note
-from trueturn.ui.widgets import PolarPlot, PolarPoint
+from trueturn.ui.session import Clock, LinkProblem, LinkSession, SessionFactory, Snapshot
+from trueturn.ui.steps import GuideContext, GuideView
+from trueturn.ui.texts import CAUTIONS, keys_markup
+from trueturn.ui.widgets import MarkupText, PolarPlot, PolarPoint
 
 #: What the screen says while the port opens (trueturn.link.session.BoardSession.greet).
 GREET_PHASE_TEXT = {
@@ -73,7 +78,43 @@ class AppConfig:
     standstill_s: float = 3.0
     revolutions_per_run: int = 30
     rate_hz: int = 2000
-    extra: dict[str, object] = field(default_factory=dict)
+
+
+# ---- what the link workers tell the screens (posted from their threads) -------------------
+class GreetProgress(Message, bubble=False):
+    """The port is open and the board is being greeted (``phase``)."""
+
+    def __init__(self, phase: GreetPhase) -> None:
+        super().__init__()
+        self.phase = phase
+
+
+class BoardAnswered(Message, bubble=False):
+    """The board told who it is (the session holds the identity)."""
+
+
+class LinkRefused(Message, bubble=False):
+    """The port cannot be used (``text``: why, in one line)."""
+
+    def __init__(self, text: str) -> None:
+        super().__init__()
+        self.text = text
+
+
+class LinkLost(LinkRefused):
+    """The port failed while streaming."""
+
+
+class ReconnectFailed(LinkRefused):
+    """Reopening the port failed, or another firmware answered."""
+
+
+class Reconnected(Message, bubble=False):
+    """The port is open again and streaming; ``old_rig``: the simulated rig before it."""
+
+    def __init__(self, old_rig: object) -> None:
+        super().__init__()
+        self.old_rig = old_rig
 
 
 class TextPage(Screen):
@@ -113,24 +154,26 @@ class ConnectScreen(Screen):
 
     @work(thread=True, exclusive=True, group="link-open")
     def open_link(self) -> None:
-        app = self.trueturn
         try:
-            identity = app.session.open(
-                on_phase=lambda phase: self.app.call_from_thread(self.show_phase, phase))
+            self.trueturn.session.open(
+                on_phase=lambda phase: self.post_message(GreetProgress(phase)))
         except LinkProblem as exc:
-            self.app.call_from_thread(self.show_problem, str(exc))
+            self.post_message(LinkRefused(str(exc)))
             return
-        self.app.call_from_thread(self.show_identity)
-        del identity
+        self.post_message(BoardAnswered())
 
-    def show_phase(self, phase: GreetPhase) -> None:
+    @on(GreetProgress)
+    def show_phase(self, event: GreetProgress) -> None:
         self.query_one("#connect-body", Static).update(
-            f"Opening {self.trueturn.config.url} …\n\n{GREET_PHASE_TEXT[phase]}")
+            f"Opening {self.trueturn.config.url} …\n\n{GREET_PHASE_TEXT[event.phase]}")
 
-    def show_problem(self, text: str) -> None:
+    @on(LinkRefused)
+    def show_problem(self, event: LinkRefused) -> None:
         self.query_one("#connect-body", Static).update(
-            f"[b red]Cannot use {self.trueturn.config.url}[/]\n\n{text}\n\nPress q to quit.")
+            f"[b red]Cannot use {self.trueturn.config.url}[/]\n\n{event.text}\n\n"
+            "Press q to quit.")
 
+    @on(BoardAnswered)
     def show_identity(self) -> None:
         ident = self.trueturn.session.identity
         assert ident is not None
@@ -189,18 +232,15 @@ class BenchScreen(Screen):
     ]
 
     def compose(self) -> ComposeResult:
-        yield Static("", id="status")
+        yield MarkupText(id="status")
         with ContentSwitcher(initial="guide-view", id="views"):
             with Container(id="meter-view"):
-                yield Static("", id="meter-table")
+                yield MarkupText(id="meter-table")
                 yield PolarPlot(id="polar")
             with Vertical(id="spectrum-view"):
                 yield Sparkline([0.0], id="spark")
-                yield Static("", id="peaks")
-            with Vertical(id="guide-view"):
-                yield Static("", id="guide-body")
-                yield ProgressBar(total=100, show_eta=False, id="progress")
-                yield Static("", id="guide-msg")
+                yield MarkupText(id="peaks")
+            yield GuideView(id="guide-view")
         yield Footer()
 
     @property
@@ -255,18 +295,19 @@ class TrueturnApp(App):
     ENABLE_COMMAND_PALETTE = False
     BINDINGS = [Binding("ctrl+c", "quit", "Quit", show=False)]
 
-    def __init__(self, config: AppConfig) -> None:
+    def __init__(self, config: AppConfig, *, clock: Clock = time.monotonic,
+                 source: SessionFactory = LinkSession.for_machine) -> None:
+        """``clock``: the host's monotonic clock (the board's data are fresh or stale by
+        it); ``source``: makes the message source for ``config.url`` (a real port,
+        ``sim://`` or ``emu://``; a test may hand in its own)."""
         super().__init__()
         self.config = config
-        profile = config.profile
-        self.session = LinkSession(
-            config.url, channels=len(profile.pickups), rate_hz=config.rate_hz,
-            standstill_s=config.standstill_s,
-            sensor_names=tuple(p.name for p in profile.pickups), mains_hz=profile.mains_hz,
-            pickups=profile.pickups)
+        self.session = source(config.url, config.profile, rate_hz=config.rate_hz,
+                              standstill_s=config.standstill_s, clock=clock)
         self.engine = BalanceEngine()
         self.rig = DemoRig(self.session) if config.demo else None
-        self.keeper = JobKeeper(profile, workspace=config.workspace, job_file=config.job_file)
+        self.keeper = JobKeeper(config.profile, workspace=config.workspace,
+                                job_file=config.job_file)
         self.procedure: Procedure | None = None
         self.message = ""
         self.quit_armed = False  # q pressed once during a run: a second q quits
@@ -302,14 +343,15 @@ class TrueturnApp(App):
                 handled = self.session.pump()
             except LinkProblem as exc:
                 if not worker.is_cancelled:  # not a port we closed ourselves on quit
-                    with contextlib.suppress(RuntimeError):
-                        self.call_from_thread(self.lost_link, str(exc))
+                    self.post_message(LinkLost(str(exc)))
                 return
             # Sleep a little every time: a fast virtual rig must not starve the screen.
             time.sleep(0.0 if handled else 0.003)
 
-    def lost_link(self, text: str) -> None:
+    @on(LinkLost)
+    def lost_link(self, event: LinkLost) -> None:
         """The port failed: say so at once, drop the run in progress, keep the job as saved."""
+        text = event.text
         self.link_error = text
         self.session.watch.reset()  # nothing is proven about the rotor any more
         self.session.reset_meter()  # a partial average is never kept
@@ -333,29 +375,36 @@ class TrueturnApp(App):
     @work(thread=True, exclusive=True, group="link-open")
     def reopen_link(self, old_rig: object) -> None:
         try:
-            identity = self.session.reconnect(on_phase=lambda phase: self.call_from_thread(
-                self.reconnect_phase, phase))
+            identity = self.session.reconnect(
+                on_phase=lambda phase: self.post_message(GreetProgress(phase)))
             if identity.matches:
                 self.session.start()
         except LinkProblem as exc:
-            self.call_from_thread(self.reconnect_failed, f"reconnect failed: {exc}")
+            self.post_message(ReconnectFailed(f"reconnect failed: {exc}"))
             return
         if not identity.matches:
-            self.call_from_thread(self.reconnect_failed, "Refused: " + identity.mismatch_text())
+            self.post_message(ReconnectFailed("Refused: " + identity.mismatch_text()))
             return
-        self.call_from_thread(self.reconnected, old_rig)
+        self.post_message(Reconnected(old_rig))
 
-    def reconnect_phase(self, phase: GreetPhase) -> None:
-        self.message = f"Reconnecting to {self.config.url}: {GREET_PHASE_TEXT[phase]}"
+    @on(GreetProgress)
+    def reconnect_phase(self, event: GreetProgress) -> None:
+        self.message = f"Reconnecting to {self.config.url}: {GREET_PHASE_TEXT[event.phase]}"
         self.tick()
 
-    def reconnect_failed(self, text: str) -> None:
+    @on(ReconnectFailed)
+    def reconnect_failed(self, event: ReconnectFailed) -> None:
         self.reconnecting = False
-        self.link_error = text
+        self.link_error = event.text
         self.message = "Still no link: press l to try again, or q to quit (the job is saved)."
         self.tick()
 
+    @on(Reconnected)
+    def on_reconnected(self, event: Reconnected) -> None:
+        self.reconnected(event.old_rig)
+
     def reconnected(self, old_rig: object) -> None:
+        """The port is open and streaming again: resume the step (a run starts over)."""
         self.reconnecting = False
         self.link_error = ""
         self.restarts_seen = self.session.restarts
@@ -365,7 +414,7 @@ class TrueturnApp(App):
         assert ident is not None
         self.message = f"Reconnected: {ident.board} fw {ident.firmware}."
         proc = self.procedure
-        if proc is not None and proc.step.kind == "run" and proc.step.phase == "interrupted":
+        if proc is not None and running(proc, RunPhase.INTERRUPTED):
             proc.resume_run()
             self.alarm = None
             self.message += f" Run {len(proc.runs) + 1} ({proc.step.run_label}) starts over."
@@ -387,9 +436,8 @@ class TrueturnApp(App):
 
     async def action_quit(self) -> None:
         proc = self.procedure
-        running = proc is not None and proc.step.kind == "run" and \
-            proc.step.phase in ("running", "stopped")
-        if running and not self.quit_armed:
+        mid_run = proc is not None and running(proc, RunPhase.RUNNING, RunPhase.STOPPED)
+        if mid_run and not self.quit_armed:
             self.quit_armed = True
             self.message = ("A run is in progress: press q again to quit (nothing of this run "
                             "is kept; the job is saved up to the last complete run), or a to "
@@ -487,7 +535,7 @@ class TrueturnApp(App):
     def abort_run(self) -> None:
         """a stops the run at any moment: nothing of it is kept; inspect the rotor next."""
         proc = self.procedure
-        if proc is None or proc.step.kind != "run":
+        if proc is None or not isinstance(proc.step, Measure):
             self.message = "No run to stop."
             self.tick()
             return
@@ -508,24 +556,31 @@ class TrueturnApp(App):
             self.message = "Choose the procedure first: 1, 2 or 3."
             self.tick()
             return
-        now = self.session.watch.now_s or 0.0
-        step = proc.step
         try:
-            if proc.alarm is not None:
+            self._confirm(proc, self.session.watch.now_s or 0.0)
+        except GateRefused as exc:
+            self.message = f"Refused: {exc}"
+        self.tick()
+
+    def _confirm(self, proc: Procedure, now: float) -> None:
+        """Enter on the step shown: the step's type says what it confirms."""
+        too_small = proc.too_small_trial
+        match proc.step:
+            case _ if proc.alarm is not None:
                 alarm = proc.acknowledge_alarm()
                 self.alarm = None
                 self.message = (f"Alarm acknowledged ({alarm.kind}). Wait for standstill, then "
                                 "inspect the rotor before it runs again.")
-            elif step.kind == "hands-on" and step.phase == "lockout":
+            case HandsOn(phase=HandsOnPhase.LOCKOUT):
                 proc.lock_out(now)
                 self.message = "Locked out. Do the work now, then tick the list."
-            elif step.kind == "hands-on":
+            case HandsOn():
                 changes = proc.hands_on_done(now)
                 if self.rig is not None:
                     self.rig.apply(changes, proc)
                 self.keeper.hands_on(proc, changes)
                 self.message = ""
-            elif step.kind == "run" and step.phase == "arming":
+            case Measure(phase=RunPhase.ARMING):
                 proc.arm_run(True, now)
                 self.quit_armed = False
                 self.session.reset_meter()
@@ -535,31 +590,27 @@ class TrueturnApp(App):
                     self.message = "Demo: the virtual motor is starting."
                 else:
                     self.message = "Switch the machine on now and stand clear."
-            elif step.kind == "run" and step.phase == "interrupted":
+            case Measure(phase=RunPhase.INTERRUPTED):
                 self.message = "The run was interrupted: press l to reconnect; it starts over."
-            elif step.kind == "run":
+            case Measure():
                 self.message = "Measuring: wait for the bar to fill (the reading must be steady)."
-            elif (step.kind == "correction" and proc.too_small_trial is not None
-                  and proc.too_small_trial.suggested_g is not None):
+            case ShowCorrection() if too_small is not None and too_small.suggested_g is not None:
                 larger = proc.redo_trial_larger()
                 self.message = (f"Redo the trial on {larger.plane} with {larger.mass_g:.1f} g: "
                                 "the hands-on step comes first.")
-            elif step.kind == "correction" and proc.problem:
+            case ShowCorrection() if proc.problem:
                 proc.repeat_run()
                 self.message = "Run again: confirm the forces to start."
-            elif step.kind == "correction":
+            case ShowCorrection():
                 proc.accept_correction()
                 self.message = ""
-            elif step.kind == "verdict" and not proc.finished:
+            case ShowVerdict() if not proc.finished:
                 proc.finish()
                 self.keeper.finish(proc)
                 self._saved_cache.clear()
                 self.message = "Job closed and saved (report beside it). Press q to quit."
-            else:
+            case _:
                 self.message = "The job is finished. Press q to quit."
-        except GateRefused as exc:
-            self.message = f"Refused: {exc}"
-        self.tick()
 
     def run_off_speed_again(self) -> None:
         """e: measure again the coefficient run that was furthest off speed."""
@@ -592,8 +643,7 @@ class TrueturnApp(App):
             self.message = "This is a real machine: use its own switch."
         else:
             proc = self.procedure
-            if on and proc is not None and (proc.step.kind != "run" or
-                                            proc.step.phase != "running"):
+            if on and proc is not None and not running(proc, RunPhase.RUNNING):
                 self.message = "Refused: start the motor from a run step (confirm the forces)."
             else:
                 self.rig.motor(on)
@@ -616,7 +666,7 @@ class TrueturnApp(App):
         if proc is not None and proc.check_ticks():
             self.message = "Ticks cleared: standstill is no longer proven."
         self._run_logic(snap)
-        bench.query_one("#status", Static).update(self._status_text(snap))
+        bench.query_one("#status", MarkupText).text = self._status_text(snap)
         if current == "meter-view":
             self._draw_meter(bench, snap)
         elif current == "spectrum-view":
@@ -626,8 +676,7 @@ class TrueturnApp(App):
 
     def _run_logic(self, snap: Snapshot) -> None:
         proc = self.procedure
-        if proc is None or proc.step.kind != "run" or proc.step.phase != "running" \
-                or self.link_error:
+        if proc is None or not running(proc, RunPhase.RUNNING) or self.link_error:
             return
         meter = snap.meter
         now = snap.board_time_s
@@ -728,7 +777,7 @@ class TrueturnApp(App):
             lines += [f"[yellow]Tach: {f}[/]" for f in meter.tach_faults[:2]]
         elif meter.warnings:
             lines.append(f"[yellow]{meter.warnings[-1]}[/]")
-        bench.query_one("#meter-table", Static).update("\n".join(lines))
+        bench.query_one("#meter-table", MarkupText).text = "\n".join(lines)
         bench.query_one("#polar", PolarPlot).show(points, meter.unit,
                                                     self.config.profile.rotation)
 
@@ -743,223 +792,24 @@ class TrueturnApp(App):
             lines.append(f"  {hz:7.1f}   {amp:10.4f}   {label}")
         if not meter.peaks:
             lines.append("  (collecting…)")
-        bench.query_one("#peaks", Static).update("\n".join(lines))
+        bench.query_one("#peaks", MarkupText).text = "\n".join(lines)
 
     def _draw_guide(self, bench: BenchScreen, snap: Snapshot) -> None:
-        body = bench.query_one("#guide-body", Static)
-        bar = bench.query_one("#progress", ProgressBar)
-        msg = bench.query_one("#guide-msg", Static)
+        """Hand the guide what it shows; its panels repaint only what changed."""
         proc = self.procedure
-        bar.set_class(False, "shown")
-        if self.alarm is not None and proc is not None and proc.step.kind == "run":
-            msg.set_class(True, "alarm")
-            msg.update(f"{self.alarm.detail} (x stops the demo motor)" if self.rig else
-                       self.alarm.detail)
-        else:
-            msg.set_class(False, "alarm")
-            msg.update(self.message)
-        if proc is None:
-            body.update("\n".join(self._link_lines(None)) if self.link_error
-                        else self._setup_text())
-            return
-        body.update(self._step_text(proc, snap))
-        if proc.step.kind == "run" and proc.step.phase == "running":
-            bar.set_class(True, "shown")
-            done = proc.progress(snap.meter.readings)
-            if not proc.ready(snap.meter.readings):
-                done = min(done, 0.95)  # full only when every pickup has settled
-            bar.update(progress=100 * done)
-
-    def _link_lines(self, proc: Procedure | None) -> list[str]:
-        """What the guide says while the link is down."""
-        lines = [f"[b red]LINK LOST[/]: {self.link_error}"]
-        if proc is not None:
-            n = len(proc.runs)
-            lines.append(f"Job saved up to the last complete run ({n} runs): {self.keeper.path}")
-            step = proc.step
-            if step.kind == "run" and step.phase == "interrupted":
-                lines.append(f"Run {n + 1} ({step.run_label}) is incomplete: nothing of it "
-                             "was kept; it starts over after reconnecting.")
-        lines.append("Check the USB cable and the board, then press [b]l[/b] to "
-                     "reconnect (the same port).")
-        return lines
-
-    def _setup_text(self) -> str:
-        prof = self.config.profile
-        planes = ", ".join(f"{p.name} (r {p.radius_mm:g} mm)" for p in prof.planes)
-        return "\n".join([
-            f"[b]Machine[/b] {prof.name}: {prof.rotor_kind}, {prof.rotor_mass_kg:g} kg, "
-            f"max {prof.max_speed_rpm:.0f} rpm",
-            f"  planes: {planes}",
-            f"  pickups: {', '.join(p.name for p in prof.pickups)} · target G {prof.target_grade:g}",
-            "", "[b]Choose the procedure[/b]",
-            "  [b]1[/b]  one plane (narrow rotor: fan, pulley, single wheel)",
-            "  [b]2[/b]  two planes (long rotor or two wheels)",
-            "  [b]3[/b]  amplitude only: four-run method, no phase needed",
-            "  [b]4[/b]  one-run trim with the coefficients of an earlier job" +
-            ("" if self.saved_coefficients() else " [dim](none saved yet)[/dim]"), "",
-            "  [b]p[/b]  pick another saved machine, or create one", "",
-            "Every hands-on step waits for tach standstill and your checklist.",
-            "Press [b]c[/b] for the cautions first."])
-
-    def _step_text(self, proc: Procedure, snap: Snapshot) -> str:
-        step = proc.step
-        n = len(proc.runs)
-        head = f"[b]{step.title}[/b]   [dim](runs so far: {n})[/dim]"
-        lines = [head]
-        if self.link_error:
-            return "\n".join(lines + self._link_lines(proc))
-        ev = snap.evidence
-        turning = ev is not None and ev.state is StandstillState.TURNING
-        if step.kind == "hands-on":
-            for change in step.changes:
-                lines.append("  " + describe_change(change, proc, self.engine))
-            if not step.changes:
-                lines.append("  Look the rotor over: weights, fasteners, pickups, tach mark.")
-            items = proc.checklist()
-            if ev is not None and ev.proven:
-                lines.append(f"[green]Standstill proven: {standstill_basis_words(ev)}.[/green]")
-            elif ev is not None:
-                how = "press [b]x[/b] (demo motor off)" if self.rig else \
-                    "switch the machine off"
-                line = standstill_refusal(ev)
-                style = "yellow" if ev.state is StandstillState.CHECKING else "b red"
-                lines.append(f"[{style}]Not at proven standstill: {line}.[/]")
-                if ev.state in (StandstillState.TURNING, StandstillState.TACH_FAULT):
-                    lines.append(f"[b red]Stop: {how}.[/]")
-            if step.phase == "lockout":
-                lines.append("Before you reach in, tick each item ([b]Space[/b]):")
-            else:
-                lines.append("Do the work now. When it is done, tick each item ([b]Space[/b]):")
-            for i, item in enumerate(items):
-                box = "\\[x]" if i in proc.ticked else "\\[ ]"
-                lines.append(f"  {box} {item}")
-            lines.append("[dim]c: cautions. Follow the machine maker's instructions for "
-                         "fastening and removal.[/dim]")
-            lines.append("[b]Enter[/b]: " + ("locked out, I will work on the rotor"
-                                             if step.phase == "lockout" else
-                                             "done, safe to run"))
-        elif step.kind == "run":
-            if step.phase == "stopped":
-                alarm = proc.alarm
-                lines += [f"[b red]STOPPED: {alarm.detail if alarm else 'alarm'}[/]",
-                          "Nothing of this run is kept.",
-                          "Switch the machine off" + (" (the demo motor is off)."
-                                                      if self.rig else " now."),
-                          "[b]Enter[/b]: I have seen the alarm; inspect the rotor next"]
-            elif step.phase == "arming":
-                speed = proc.force_speed_rpm
-                why = "" if speed <= proc.setup.speed_rpm else \
-                    f" (measured {speed:.0f} rpm last run, above the planned speed)"
-                lines.append(f"Planned speed {proc.setup.speed_rpm:.0f} rpm "
-                             f"(max {proc.setup.max_speed_rpm:.0f}). Forces at "
-                             f"{speed:.0f} rpm{why}. Masses on the rotor:")
-                forces = proc.forces()
-                for m, f in forces:
-                    kind = "remove" if m.removal else m.kind
-                    lines.append(f"  {kind} {abs(m.mass_g):.2f} g on {m.plane} at "
-                                 f"{m.angle_deg:.0f}°: [b]{f:.1f} N[/b] outward")
-                if not forces:
-                    lines.append("  none added")
-                lines += ["Guards on, everyone out of the plane of rotation.",
-                          "[b]Enter[/b]: I confirm these forces; start the run" +
-                          (" (starts the virtual motor)" if self.rig else ""),
-                          "[b]a[/b]: not now, go back and inspect the rotor"]
-            else:
-                meter = snap.meter
-                lines.append(f"Measuring at {meter.speed_rpm or 0:.0f} rpm; averaging "
-                             f"{proc.setup.revolutions_per_run} steady revolutions.")
-                for name in proc.setup.sensors:
-                    r = meter.readings.get(name)
-                    if r is None:
-                        lines.append(f"  {name}: waiting")
-                        continue
-                    ph = f"{r.phase_deg:.0f}°" if r.phase_deg is not None else "—"
-                    st = "[green]steady[/]" if r.steady else "[yellow]settling[/]"
-                    lines.append(f"  {name}: {r.amplitude:.3f} {r.unit} at {ph} "
-                                 f"±{r.confidence_deg:.0f}°, {r.revolutions} rev, {st}")
-                if not self.tach_live(snap):
-                    lines.append(f"[b red]No tach edge for {snap.quiet_s:.1f} s (spinning up? "
-                                 "tach not seeing its mark?): nothing is kept meanwhile.[/]")
-                lines += [f"[yellow]Tach: {f}[/]" for f in meter.tach_faults[:2]]
-                waiting = [r for r in (meter.readings.get(n) for n in proc.setup.sensors)
-                           if r is not None and not proc.settled(r)]
-                if waiting:
-                    own = [w for r in waiting for w in meter.pickup_warnings(r.sensor)]
-                    why = own[0] if own else "waiting for enough steady revolutions"
-                    lines.append(f"[yellow]Not ready: {why}[/]")
-                lines.append("Stop at once on a warning below. [b]a[/b]: stop this run now "
-                             "(nothing of it is kept)")
-        elif step.kind == "correction" and proc.problem:
-            lines.append(f"[b red]No correction from these runs:[/] {proc.problem}")
-            small = proc.too_small_trial
-            if small is not None and small.suggested_g is not None:
-                lines.append(f"[b]Enter[/b]: redo the trial on {small.plane} with "
-                             f"{math.ceil(small.suggested_g * 10) / 10:.1f} g instead of "
-                             f"{small.trial_g:.2f} g (the other runs are kept)")
-            else:
-                lines += ["Check that the pickups and the tach did not move, that the trial "
-                          "mass is on the rotor, and that the machine ran at its usual speed.",
-                          "[b]Enter[/b]: measure the last run again"]
-        elif step.kind == "correction":
-            sol = proc.solution
-            assert sol is not None
-            lines.append(f"Method: {sol.method}")
-            for c in sol.corrections:
-                # removal: the same mass taken out opposite the add angle
-                verb, at = (("remove", wrap_deg(c.angle_deg + 180.0)) if proc.removal
-                            else ("add", c.angle_deg))
-                lines.append(f"  {c.plane}: {verb} [b]{c.mass_g:.2f} g[/b] at {at:.0f}°")
-            lines.append("Parts to place:")
-            for p in sol.parts:
-                lines.append("  " + describe_change_part(p, proc))
-            for w in sol.warnings[:2]:
-                lines.append(f"[yellow]{w}[/]")
-            for off in sol.off_speed:
-                way = "slow" if off.deviation < 0 else "fast"
-                lines.append(f"[yellow]Run '{off.label}' was {100 * abs(off.deviation):.1f} % "
-                             f"{way}: this correction might cut the 1x by only "
-                             f"{100 * max(off.worst_cut, 0.0):.0f} %.[/]")
-            if sol.off_speed and not proc.trims_done:
-                lines.append("[b]e[/b]: run it again at the usual speed first")
-            if proc.removal_allowed:
-                lines.append("[b]r[/b]: " + ("add mass instead" if proc.removal else
-                                             "remove material instead (drill/grind)") +
-                             "   [b]Enter[/b]: go and place the parts")
-            else:
-                lines.append("[b]Enter[/b]: go and place the parts (removing material is not "
-                             "allowed on this rotor)")
-        elif step.kind == "verdict":
-            v = proc.verdict
-            assert v is not None
-            word = "[b green]PASS[/]" if v.passed else "[b red]NOT YET[/]"
-            where = "at the bearings" if v.at_bearings else "in the correction planes"
-            lines.append(f"{word}: ISO 21940-11, grade G {proc.setup.grade_mm_per_s:g} at the "
-                         f"maximum service speed {v.speed_rpm or proc.setup.speed_rpm:.0f} rpm, "
-                         f"judged {where}, {len(proc.runs)} runs")
-            for label, res, per, _ in v.rows():
-                lines.append(f"  {label}: residual {res:.1f} g·mm, permissible {per:.1f} g·mm")
-            lines.append(verdict_note(v, proc.setup.speed_rpm))
-            for f in v.flags:
-                style = "b red" if f in WITHHOLDING_FLAGS else "yellow"
-                lines.append(f"[{style}]{VERDICT_FLAG_WORDS[f]}[/]")
-            if v.worse_pickups:
-                lines.append(f"[b red]Worse than as found at {', '.join(v.worse_pickups)}.[/]")
-            if turning:
-                lines.append("[b]Switch the machine off[/b]" +
-                             (" (x for the demo motor)." if self.rig else "."))
-            if proc.finished:
-                lines.append(f"Saved: {self.keeper.path}")
-                if self.keeper.report_path:
-                    lines.append(f"Report: {self.keeper.report_path}")
-            else:
-                lines.append("[b]Enter[/b]: close the job and write the report")
-        return "\n".join(lines)
+        alarm = ""
+        if self.alarm is not None and proc is not None and isinstance(proc.step, Measure):
+            alarm = (f"{self.alarm.detail} (x stops the demo motor)" if self.rig else
+                     self.alarm.detail)
+        ctx = GuideContext(
+            profile=self.config.profile, engine=self.engine, demo=self.rig is not None,
+            tach_live=self.tach_live(snap), link_error=self.link_error,
+            saved_trim=proc is None and self.saved_coefficients() is not None,
+            job_path=self.keeper.path, report_path=self.keeper.report_path,
+            message=self.message, alarm=alarm)
+        bench.query_one("#guide-view", GuideView).show(proc, snap, ctx)
 
 
-def describe_change_part(p, proc: Procedure) -> str:  # type: ignore[no-untyped-def]
-    """One correction part as a line (position, angle, mass, add or remove)."""
-    where = position_text(number_of(p.position), p.angle_deg) if p.position is not None \
-        else f"{p.angle_deg:.0f}°"
-    verb = "remove" if p.removal else "add"
-    return f"{p.plane}: {verb} {abs(p.mass_g):.2f} g at {where}"
+def running(proc: Procedure, *phases: RunPhase) -> bool:
+    """The procedure is at a run in one of ``phases``."""
+    return isinstance(proc.step, Measure) and proc.step.phase in phases

@@ -89,11 +89,11 @@ def describe_change(change: MassChange, proc: Procedure, engine: BalanceEngine) 
         else f"{m.angle_deg:.0f}° from the mark, against rotation"
     force = engine.force_n(abs(m.mass_g), plane.radius_mm, proc.setup.speed_rpm)
     if change.action == "detach":
-        return f"Take off the {m.kind} mass {abs(m.mass_g):.2f} g from {m.plane} at {where}."
+        return f"Take off the {m.kind.value} mass {abs(m.mass_g):.2f} g from {m.plane} at {where}."
     if m.removal:
         return (f"Remove {abs(m.mass_g):.2f} g of material from {m.plane} at {where}, "
                 f"r {plane.radius_mm:g} mm (where the maker allows).")
-    text = (f"Attach {m.kind} mass [b]{m.mass_g:.2f} g[/b] on {m.plane} at {where}, "
+    text = (f"Attach {m.kind.value} mass [b]{m.mass_g:.2f} g[/b] on {m.plane} at {where}, "
             f"r {plane.radius_mm:g} mm: {force:.1f} N at {proc.setup.speed_rpm:.0f} rpm")
     if m.kind == "trial":
         ratio = engine.trial_mass(proc.setup, plane).force_ratio

@@ -10,14 +10,16 @@ board's clock for the tach standstill watch.
 from __future__ import annotations
 
 import threading
+import time
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
-from typing import Any
+from typing import Any, Protocol
 
 import serial
 
 from trueturn.dsp.motion import MotionMonitor
 from trueturn.errors import UserError
+from trueturn.jobs.profiles import MachineProfile
 from trueturn.link.catalogue import load_catalogue
 from trueturn.link.codec import LinkEvent, Message, StreamDecoder
 from trueturn.link.ports import open_port
@@ -28,6 +30,9 @@ from trueturn.ui.meter import MeterAdapter, MeterView
 #: The catalogue's board_ids in words (emu:// runs the board's own firmware: it says atmega328p)
 BOARD_WORDS = {"atmega328p": "ATmega328P board", "simulated": "simulated board"}
 MOTION_JUDGE_S = 0.2  # board seconds between two judgements of the pickups' motion
+
+#: a monotonic host clock in seconds (the freshness of the board's data is judged on it)
+Clock = Callable[[], float]
 
 
 class LinkProblem(Exception):
@@ -76,12 +81,25 @@ class Snapshot:
     restarts: int = 0  # board restarts seen and recovered from (stream started again)
 
 
+class SessionFactory(Protocol):
+    """Makes the app's message source (:meth:`LinkSession.for_machine` and its kin)."""
+
+    def __call__(self, url: str, profile: MachineProfile, *, rate_hz: int,
+                 standstill_s: float, clock: Clock) -> LinkSession: ...
+
+
 class LinkSession:
-    """One open port: identity check, configure, start, then :meth:`pump` in a worker."""
+    """One open port: identity check, configure, start, then :meth:`pump` in a worker.
+
+    The app's message source: it gets one through a :class:`SessionFactory`
+    (:meth:`for_machine` by default), so a test can hand it a subclass that holds the
+    board's messages back or answers with another identity.
+    """
 
     def __init__(self, url: str, channels: int = 2, rate_hz: int = 2000,
                  standstill_s: float = 3.0, sensor_names: tuple[str, ...] = ("A", "B"),
-                 mains_hz: float = 60.0, pickups: Sequence[Any] = ()) -> None:
+                 mains_hz: float = 60.0, pickups: Sequence[Any] = (),
+                 clock: Clock = time.monotonic) -> None:
         self.url = url
         self.channels = channels
         self.rate_hz = rate_hz
@@ -89,7 +107,7 @@ class LinkSession:
         self.decoder = StreamDecoder(self.catalogue)
         self.meter = MeterAdapter(sensor_names[:channels], mains_hz=mains_hz,
                                   pickups=list(pickups)[:channels])
-        self.watch = StandstillWatch(standstill_s)
+        self.watch = StandstillWatch(standstill_s, clock=clock)
         self.mains_hz = mains_hz
         self.motion: MotionMonitor | None = None  # the pickups' evidence, from stream_config
         self._motion_judged_s = -1e9
@@ -109,6 +127,14 @@ class LinkSession:
         self._status: dict[str, int] = {}
         self._streaming = False
         self.restarts = 0
+
+    @classmethod
+    def for_machine(cls, url: str, profile: MachineProfile, *, rate_hz: int = 2000,
+                    standstill_s: float = 3.0, clock: Clock = time.monotonic) -> LinkSession:
+        """A session on ``url`` measuring the pickups of the machine ``profile``."""
+        return cls(url, channels=len(profile.pickups), rate_hz=rate_hz,
+                   standstill_s=standstill_s, sensor_names=tuple(p.name for p in profile.pickups),
+                   mains_hz=profile.mains_hz, pickups=profile.pickups, clock=clock)
 
     # ---- opening ------------------------------------------------------------------------
     def open(self, timeout_s: float = 3.0,

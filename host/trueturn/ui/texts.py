@@ -86,3 +86,59 @@ def keys_markup() -> str:
     lines += ["", "The mouse works too: click a key in the bar at the bottom.",
               "[dim]Press Escape to go back.[/dim]"]
     return "\n".join(lines)
+
+
+# ---- the guide's fixed lines (trueturn.ui.steps; numbers are filled in there) ----------
+SETUP_CHOICES = (
+    "[b]Choose the procedure[/b]",
+    "  [b]1[/b]  one plane (narrow rotor: fan, pulley, single wheel)",
+    "  [b]2[/b]  two planes (long rotor or two wheels)",
+    "  [b]3[/b]  amplitude only: four-run method, no phase needed",
+)
+SETUP_TRIM = "  [b]4[/b]  one-run trim with the coefficients of an earlier job"
+SETUP_NO_TRIM = " [dim](none saved yet)[/dim]"
+SETUP_FOOTER = (
+    "  [b]p[/b]  pick another saved machine, or create one", "",
+    "Every hands-on step waits for tach standstill and your checklist.",
+    "Press [b]c[/b] for the cautions first.",
+)
+
+LOOK_OVER = "  Look the rotor over: weights, fasteners, pickups, tach mark."
+STOP_DEMO = "press [b]x[/b] (demo motor off)"
+STOP_MACHINE = "switch the machine off"
+TICK_BEFORE = "Before you reach in, tick each item ([b]Space[/b]):"
+TICK_AFTER = "Do the work now. When it is done, tick each item ([b]Space[/b]):"
+MAKER_NOTE = ("[dim]c: cautions. Follow the machine maker's instructions for fastening and "
+              "removal.[/dim]")
+ENTER_LOCKED_OUT = "[b]Enter[/b]: locked out, I will work on the rotor"
+ENTER_DONE = "[b]Enter[/b]: done, safe to run"
+
+RUN_NOTHING_KEPT = "Nothing of this run is kept."
+RUN_SWITCH_OFF_DEMO = "Switch the machine off (the demo motor is off)."
+RUN_SWITCH_OFF = "Switch the machine off now."
+ENTER_ALARM_SEEN = "[b]Enter[/b]: I have seen the alarm; inspect the rotor next"
+NO_MASS_ADDED = "  none added"
+GUARDS_ON = "Guards on, everyone out of the plane of rotation."
+ENTER_FORCES = "[b]Enter[/b]: I confirm these forces; start the run"
+ENTER_FORCES_DEMO = " (starts the virtual motor)"
+A_NOT_NOW = "[b]a[/b]: not now, go back and inspect the rotor"
+NOT_READY_WHY = "waiting for enough steady revolutions"
+A_STOP_RUN = ("Stop at once on a warning below. [b]a[/b]: stop this run now (nothing of it is "
+              "kept)")
+
+CHECK_THE_RIG = ("Check that the pickups and the tach did not move, that the trial mass is on "
+                 "the rotor, and that the machine ran at its usual speed.")
+ENTER_MEASURE_AGAIN = "[b]Enter[/b]: measure the last run again"
+PARTS_TO_PLACE = "Parts to place:"
+E_RUN_AGAIN = "[b]e[/b]: run it again at the usual speed first"
+R_ADD_INSTEAD = "[b]r[/b]: add mass instead"
+R_REMOVE_INSTEAD = "[b]r[/b]: remove material instead (drill/grind)"
+ENTER_PLACE = "   [b]Enter[/b]: go and place the parts"
+ENTER_PLACE_NO_REMOVAL = ("[b]Enter[/b]: go and place the parts (removing material is not "
+                          "allowed on this rotor)")
+
+SWITCH_OFF_VERDICT = "[b]Switch the machine off[/b]"
+ENTER_CLOSE_JOB = "[b]Enter[/b]: close the job and write the report"
+
+LINK_CHECK = ("Check the USB cable and the board, then press [b]l[/b] to reconnect (the same "
+              "port).")

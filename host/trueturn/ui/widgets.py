@@ -1,4 +1,5 @@
-"""Small widgets of our own: a braille polar plot of 1x vectors and a spectrum strip.
+"""Small widgets of our own: a braille polar plot of 1x vectors, and markup text that
+repaints only when it changes.
 
 Braille cells give 2x4 dots per character, enough for a readable polar plot in a corner of
 an 80x24 terminal. The plot places angles with the one mapping of the project,
@@ -15,7 +16,10 @@ import math
 from dataclasses import dataclass
 
 from rich.text import Text
+from textual.content import Content
+from textual.reactive import reactive
 from textual.widget import Widget
+from textual.widgets import Static
 
 from trueturn.angles import Rotation, screen_xy
 
@@ -72,6 +76,16 @@ class BrailleCanvas:
             if r < self.rows - 1:
                 out.append("\n")
         return out
+
+
+class MarkupText(Static):
+    """Console markup held in a reactive attribute: set ``text``; the widget repaints only
+    when the text differs from what it shows."""
+
+    text: reactive[str] = reactive("")
+
+    def render(self) -> Content:
+        return Content.from_markup(self.text)
 
 
 @dataclass(frozen=True)

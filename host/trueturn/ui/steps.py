@@ -1,0 +1,508 @@
+"""The guide: one widget per step kind of the procedure, chosen by the step's type.
+
+:class:`GuideView` holds a :class:`~textual.widgets.ContentSwitcher` with one panel per
+kind of :data:`trueturn.procedure.guide.Step` (:class:`HandsOnPanel`, :class:`RunPanel`,
+:class:`CorrectionPanel`, :class:`VerdictPanel`), one for choosing the procedure
+(:class:`SetupPanel`) and one for a lost link (:class:`LinkLostPanel`), then the run's
+progress bar and the message line.
+
+Each panel takes what it shows from the procedure and the latest snapshot
+(``show(proc, snap, ctx)``) into ``reactive`` attributes and draws only from them
+(``render``): Textual repaints a panel when one of its attributes changes, not every
+refresh, and a hidden panel never draws. No procedure logic here: the panels ask the
+procedure (``checklist``, ``forces``, ``settled``...) and put its answers into words; the
+fixed words live in :mod:`trueturn.ui.texts`.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from pathlib import Path
+
+from textual.app import ComposeResult
+from textual.containers import Vertical
+from textual.content import Content
+from textual.reactive import reactive
+from textual.widgets import ContentSwitcher, ProgressBar, Static
+
+from trueturn.angles import wrap_deg
+from trueturn.jobs.profiles import MachineProfile
+from trueturn.model import Correction, PlacedMass, Reading, Verdict
+from trueturn.model.result import WITHHOLDING_FLAGS
+from trueturn.positions import number_of, position_text
+from trueturn.procedure.engine import BalanceEngine
+from trueturn.procedure.guide import (
+    HandsOn,
+    HandsOnPhase,
+    Measure,
+    OffSpeed,
+    Procedure,
+    RunPhase,
+    ShowCorrection,
+    ShowVerdict,
+    Step,
+    TooSmallTrial,
+    standstill_basis_words,
+    standstill_refusal,
+)
+from trueturn.procedure.standstill import StandstillEvidence, StandstillState
+from trueturn.ui import texts
+from trueturn.ui.machine import describe_change
+from trueturn.ui.session import Snapshot
+from trueturn.ui.texts import VERDICT_FLAG_WORDS, verdict_note
+from trueturn.ui.widgets import MarkupText
+
+
+@dataclass(frozen=True)
+class GuideContext:
+    """What the guide shows besides the procedure and the snapshot (from the app)."""
+
+    profile: MachineProfile
+    engine: BalanceEngine
+    demo: bool = False  # a simulated rig: x stops its motor
+    tach_live: bool = True  # a tach edge lately (a run keeps nothing without one)
+    link_error: str = ""  # the link is lost: why
+    saved_trim: bool = False  # coefficients of an earlier job are saved for this machine
+    job_path: Path | None = None
+    report_path: Path | None = None
+    message: str = ""
+    alarm: str = ""  # an alarm held until acknowledged: shown instead of the message
+
+
+class StepPanel(Static):
+    """A panel of the guide: draws its lines from its reactive attributes while shown."""
+
+    DEFAULT_CSS = "StepPanel { height: 1fr; padding: 0 1; }"
+
+    shown: reactive[bool] = reactive(False)
+    demo: reactive[bool] = reactive(False)
+
+    def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
+        """Take what this panel draws (only attributes: the drawing is :meth:`render`)."""
+        self.demo = ctx.demo
+
+    def lines(self) -> list[str]:
+        raise NotImplementedError
+
+    def render(self) -> Content:
+        if not self.shown:
+            return Content("")
+        return Content.from_markup("\n".join(self.lines()))
+
+
+class SetupPanel(StepPanel):
+    """Before a procedure is chosen: the machine and the procedures to choose from."""
+
+    profile: reactive[MachineProfile | None] = reactive(None)
+    saved_trim: reactive[bool] = reactive(False)
+
+    def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
+        super().show(proc, snap, ctx)
+        self.profile = ctx.profile
+        self.saved_trim = ctx.saved_trim
+
+    def lines(self) -> list[str]:
+        prof = self.profile
+        if prof is None:
+            return []
+        planes = ", ".join(f"{p.name} (r {p.radius_mm:g} mm)" for p in prof.planes)
+        return [
+            f"[b]Machine[/b] {prof.name}: {prof.rotor_kind}, {prof.rotor_mass_kg:g} kg, "
+            f"max {prof.max_speed_rpm:.0f} rpm",
+            f"  planes: {planes}",
+            f"  pickups: {', '.join(p.name for p in prof.pickups)} · target G "
+            f"{prof.target_grade:g}",
+            "", *texts.SETUP_CHOICES,
+            texts.SETUP_TRIM + ("" if self.saved_trim else texts.SETUP_NO_TRIM), "",
+            *texts.SETUP_FOOTER]
+
+
+class ProcedurePanel(StepPanel):
+    """A panel that shows one step of a chosen procedure, under the step's title."""
+
+    title: reactive[str] = reactive("")
+    runs: reactive[int] = reactive(0)
+
+    def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
+        super().show(proc, snap, ctx)
+        assert proc is not None
+        self.title = proc.step.title
+        self.runs = len(proc.runs)
+
+    def lines(self) -> list[str]:
+        return [f"[b]{self.title}[/b]   [dim](runs so far: {self.runs})[/dim]", *self.body()]
+
+    def body(self) -> list[str]:
+        raise NotImplementedError
+
+
+class LinkLostPanel(StepPanel):
+    """The link is down: what it means for the job and the run, and how to reconnect."""
+
+    title: reactive[str] = reactive("")
+    runs: reactive[int | None] = reactive(None)  # None: no procedure chosen yet
+    error: reactive[str] = reactive("")
+    job_path: reactive[Path | None] = reactive(None)
+    interrupted: reactive[str] = reactive("")  # the label of the run cut off, if any
+
+    def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
+        super().show(proc, snap, ctx)
+        self.error = ctx.link_error
+        self.job_path = ctx.job_path
+        self.title = proc.step.title if proc is not None else ""
+        self.runs = len(proc.runs) if proc is not None else None
+        step = proc.step if proc is not None else None
+        self.interrupted = step.run_label if (isinstance(step, Measure) and
+                                              step.phase is RunPhase.INTERRUPTED) else ""
+
+    def lines(self) -> list[str]:
+        lines = []
+        n = self.runs
+        if n is not None:
+            lines.append(f"[b]{self.title}[/b]   [dim](runs so far: {n})[/dim]")
+        lines.append(f"[b red]LINK LOST[/]: {self.error}")
+        if n is not None:
+            lines.append(f"Job saved up to the last complete run ({n} runs): {self.job_path}")
+            if self.interrupted:
+                lines.append(f"Run {n + 1} ({self.interrupted}) is incomplete: nothing of it "
+                             "was kept; it starts over after reconnecting.")
+        lines.append(texts.LINK_CHECK)
+        return lines
+
+
+class HandsOnPanel(ProcedurePanel):
+    """A hands-on step: the work, the standstill evidence, the gate's checklist."""
+
+    phase: reactive[HandsOnPhase] = reactive(HandsOnPhase.LOCKOUT)
+    work: reactive[tuple[str, ...]] = reactive(())
+    items: reactive[tuple[str, ...]] = reactive(())
+    ticked: reactive[frozenset[int]] = reactive(frozenset())
+    evidence: reactive[StandstillEvidence | None] = reactive(None)
+
+    def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
+        super().show(proc, snap, ctx)
+        assert proc is not None and isinstance(proc.step, HandsOn)
+        step = proc.step
+        self.phase = step.phase
+        self.work = tuple("  " + describe_change(c, proc, ctx.engine) for c in step.changes)
+        self.items = proc.checklist()
+        self.ticked = frozenset(proc.ticked)
+        self.evidence = snap.evidence
+
+    def body(self) -> list[str]:
+        lines = list(self.work) or [texts.LOOK_OVER]
+        ev = self.evidence
+        if ev is not None and ev.proven:
+            lines.append(f"[green]Standstill proven: {standstill_basis_words(ev)}.[/green]")
+        elif ev is not None:
+            style = "yellow" if ev.state is StandstillState.CHECKING else "b red"
+            lines.append(f"[{style}]Not at proven standstill: {standstill_refusal(ev)}.[/]")
+            if ev.state in (StandstillState.TURNING, StandstillState.TACH_FAULT):
+                how = texts.STOP_DEMO if self.demo else texts.STOP_MACHINE
+                lines.append(f"[b red]Stop: {how}.[/]")
+        lockout = self.phase is HandsOnPhase.LOCKOUT
+        lines.append(texts.TICK_BEFORE if lockout else texts.TICK_AFTER)
+        for i, item in enumerate(self.items):
+            box = "\\[x]" if i in self.ticked else "\\[ ]"
+            lines.append(f"  {box} {item}")
+        lines.append(texts.MAKER_NOTE)
+        lines.append(texts.ENTER_LOCKED_OUT if lockout else texts.ENTER_DONE)
+        return lines
+
+
+@dataclass(frozen=True)
+class ForcePlan:
+    """What a run's confirmation shows: each mass's force at the speed forces are shown at."""
+
+    planned_rpm: float
+    max_rpm: float
+    at_rpm: float
+    forces: tuple[tuple[PlacedMass, float], ...]
+
+
+class RunPanel(ProcedurePanel):
+    """A run: the forces to confirm, the live readings while measuring, or the alarm."""
+
+    phase: reactive[RunPhase] = reactive(RunPhase.ARMING)
+    plan: reactive[ForcePlan | None] = reactive(None)
+    alarm: reactive[str] = reactive("")
+    speed_rpm: reactive[float] = reactive(0.0)
+    revolutions: reactive[int] = reactive(0)
+    readings: reactive[tuple[tuple[str, Reading | None], ...]] = reactive(())
+    tach_silent_s: reactive[float | None] = reactive(None)  # None: the tach is seen
+    tach_faults: reactive[tuple[str, ...]] = reactive(())
+    not_ready: reactive[str] = reactive("")
+
+    def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
+        super().show(proc, snap, ctx)
+        assert proc is not None and isinstance(proc.step, Measure)
+        self.phase = proc.step.phase
+        if self.phase is RunPhase.STOPPED:
+            self.alarm = proc.alarm.detail if proc.alarm else "alarm"
+        elif self.phase is RunPhase.ARMING:
+            self.plan = ForcePlan(proc.setup.speed_rpm, proc.setup.max_speed_rpm,
+                                  proc.force_speed_rpm, tuple(proc.forces()))
+        else:
+            meter = snap.meter
+            sensors = proc.setup.sensors
+            self.speed_rpm = meter.speed_rpm or 0.0
+            self.revolutions = proc.setup.revolutions_per_run
+            self.readings = tuple((name, meter.readings.get(name)) for name in sensors)
+            self.tach_silent_s = None if ctx.tach_live else snap.quiet_s
+            self.tach_faults = tuple(meter.tach_faults[:2])
+            waiting = [r for _, r in self.readings if r is not None and not proc.settled(r)]
+            own = [w for r in waiting for w in meter.pickup_warnings(r.sensor)]
+            self.not_ready = (own[0] if own else texts.NOT_READY_WHY) if waiting else ""
+
+    def body(self) -> list[str]:
+        if self.phase is RunPhase.STOPPED:
+            return [f"[b red]STOPPED: {self.alarm}[/]", texts.RUN_NOTHING_KEPT,
+                    texts.RUN_SWITCH_OFF_DEMO if self.demo else texts.RUN_SWITCH_OFF,
+                    texts.ENTER_ALARM_SEEN]
+        if self.phase is RunPhase.ARMING:
+            return self._arming()
+        return self._measuring()
+
+    def _arming(self) -> list[str]:
+        plan = self.plan
+        if plan is None:
+            return []
+        why = "" if plan.at_rpm <= plan.planned_rpm else \
+            f" (measured {plan.at_rpm:.0f} rpm last run, above the planned speed)"
+        lines = [f"Planned speed {plan.planned_rpm:.0f} rpm (max {plan.max_rpm:.0f}). Forces at "
+                 f"{plan.at_rpm:.0f} rpm{why}. Masses on the rotor:"]
+        for m, f in plan.forces:
+            kind = "remove" if m.removal else m.kind.value
+            lines.append(f"  {kind} {abs(m.mass_g):.2f} g on {m.plane} at {m.angle_deg:.0f}°: "
+                         f"[b]{f:.1f} N[/b] outward")
+        if not plan.forces:
+            lines.append(texts.NO_MASS_ADDED)
+        return lines + [texts.GUARDS_ON,
+                        texts.ENTER_FORCES + (texts.ENTER_FORCES_DEMO if self.demo else ""),
+                        texts.A_NOT_NOW]
+
+    def _measuring(self) -> list[str]:
+        lines = [f"Measuring at {self.speed_rpm:.0f} rpm; averaging {self.revolutions} steady "
+                 "revolutions."]
+        for name, r in self.readings:
+            if r is None:
+                lines.append(f"  {name}: waiting")
+                continue
+            ph = f"{r.phase_deg:.0f}°" if r.phase_deg is not None else "—"
+            st = "[green]steady[/]" if r.steady else "[yellow]settling[/]"
+            lines.append(f"  {name}: {r.amplitude:.3f} {r.unit} at {ph} "
+                         f"±{r.confidence_deg:.0f}°, {r.revolutions} rev, {st}")
+        if self.tach_silent_s is not None:
+            lines.append(f"[b red]No tach edge for {self.tach_silent_s:.1f} s (spinning up? "
+                         "tach not seeing its mark?): nothing is kept meanwhile.[/]")
+        lines += [f"[yellow]Tach: {f}[/]" for f in self.tach_faults]
+        if self.not_ready:
+            lines.append(f"[yellow]Not ready: {self.not_ready}[/]")
+        lines.append(texts.A_STOP_RUN)
+        return lines
+
+
+def describe_part(p: PlacedMass) -> str:
+    """One correction part as a line (position, angle, mass, add or remove)."""
+    where = position_text(number_of(p.position), p.angle_deg) if p.position is not None \
+        else f"{p.angle_deg:.0f}°"
+    verb = "remove" if p.removal else "add"
+    return f"{p.plane}: {verb} {abs(p.mass_g):.2f} g at {where}"
+
+
+class CorrectionPanel(ProcedurePanel):
+    """The correction and the parts to place, or why no correction can be given."""
+
+    problem: reactive[str] = reactive("")
+    redo: reactive[TooSmallTrial | None] = reactive(None)
+    method: reactive[str] = reactive("")
+    corrections: reactive[tuple[Correction, ...]] = reactive(())
+    parts: reactive[tuple[PlacedMass, ...]] = reactive(())
+    warnings: reactive[tuple[str, ...]] = reactive(())
+    off_speed: reactive[tuple[OffSpeed, ...]] = reactive(())
+    offer_again: reactive[bool] = reactive(False)  # e: run the off-speed run again first
+    removal: reactive[bool] = reactive(False)
+    removal_allowed: reactive[bool] = reactive(False)
+
+    def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
+        super().show(proc, snap, ctx)
+        assert proc is not None and isinstance(proc.step, ShowCorrection)
+        self.problem = proc.problem
+        small = proc.too_small_trial
+        self.redo = small if small is not None and small.suggested_g is not None else None
+        sol = proc.solution
+        if not proc.problem and sol is not None:
+            # the solution's pieces, not the solution: its coefficients are opaque arrays
+            self.method = sol.method
+            self.corrections = sol.corrections
+            self.parts = sol.parts
+            self.warnings = sol.warnings[:2]
+            self.off_speed = sol.off_speed
+            self.offer_again = bool(sol.off_speed) and not proc.trims_done
+        self.removal = proc.removal
+        self.removal_allowed = proc.removal_allowed
+
+    def body(self) -> list[str]:
+        if self.problem:
+            lines = [f"[b red]No correction from these runs:[/] {self.problem}"]
+            small = self.redo
+            if small is not None and small.suggested_g is not None:
+                lines.append(f"[b]Enter[/b]: redo the trial on {small.plane} with "
+                             f"{math.ceil(small.suggested_g * 10) / 10:.1f} g instead of "
+                             f"{small.trial_g:.2f} g (the other runs are kept)")
+            else:
+                lines += [texts.CHECK_THE_RIG, texts.ENTER_MEASURE_AGAIN]
+            return lines
+        lines = [f"Method: {self.method}"]
+        for c in self.corrections:
+            # removal: the same mass taken out opposite the add angle
+            verb, at = (("remove", wrap_deg(c.angle_deg + 180.0)) if self.removal
+                        else ("add", c.angle_deg))
+            lines.append(f"  {c.plane}: {verb} [b]{c.mass_g:.2f} g[/b] at {at:.0f}°")
+        lines.append(texts.PARTS_TO_PLACE)
+        lines += ["  " + describe_part(p) for p in self.parts]
+        lines += [f"[yellow]{w}[/]" for w in self.warnings]
+        for off in self.off_speed:
+            way = "slow" if off.deviation < 0 else "fast"
+            lines.append(f"[yellow]Run '{off.label}' was {100 * abs(off.deviation):.1f} % "
+                         f"{way}: this correction might cut the 1x by only "
+                         f"{100 * max(off.worst_cut, 0.0):.0f} %.[/]")
+        if self.offer_again:
+            lines.append(texts.E_RUN_AGAIN)
+        if self.removal_allowed:
+            lines.append((texts.R_ADD_INSTEAD if self.removal else texts.R_REMOVE_INSTEAD)
+                         + texts.ENTER_PLACE)
+        else:
+            lines.append(texts.ENTER_PLACE_NO_REMOVAL)
+        return lines
+
+
+class VerdictPanel(ProcedurePanel):
+    """The verdict against the grade (ISO 21940-11), then where the job was saved."""
+
+    verdict: reactive[Verdict | None] = reactive(None)
+    grade: reactive[float] = reactive(0.0)
+    service_rpm: reactive[float] = reactive(0.0)
+    turning: reactive[bool] = reactive(False)
+    finished: reactive[bool] = reactive(False)
+    job_path: reactive[Path | None] = reactive(None)
+    report_path: reactive[Path | None] = reactive(None)
+
+    def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
+        super().show(proc, snap, ctx)
+        assert proc is not None and isinstance(proc.step, ShowVerdict)
+        self.verdict = proc.verdict
+        self.grade = proc.setup.grade_mm_per_s
+        self.service_rpm = proc.setup.speed_rpm
+        ev = snap.evidence
+        self.turning = ev is not None and ev.state is StandstillState.TURNING
+        self.finished = proc.finished
+        self.job_path = ctx.job_path
+        self.report_path = ctx.report_path
+
+    def body(self) -> list[str]:
+        v = self.verdict
+        if v is None:
+            return []
+        word = "[b green]PASS[/]" if v.passed else "[b red]NOT YET[/]"
+        where = "at the bearings" if v.at_bearings else "in the correction planes"
+        lines = [f"{word}: ISO 21940-11, grade G {self.grade:g} at the maximum service speed "
+                 f"{v.speed_rpm or self.service_rpm:.0f} rpm, judged {where}, {self.runs} runs"]
+        for label, res, per, _ in v.rows():
+            lines.append(f"  {label}: residual {res:.1f} g·mm, permissible {per:.1f} g·mm")
+        lines.append(verdict_note(v, self.service_rpm))
+        for f in v.flags:
+            style = "b red" if f in WITHHOLDING_FLAGS else "yellow"
+            lines.append(f"[{style}]{VERDICT_FLAG_WORDS[f]}[/]")
+        if v.worse_pickups:
+            lines.append(f"[b red]Worse than as found at {', '.join(v.worse_pickups)}.[/]")
+        if self.turning:
+            lines.append(texts.SWITCH_OFF_VERDICT +
+                         (" (x for the demo motor)." if self.demo else "."))
+        if self.finished:
+            lines.append(f"Saved: {self.job_path}")
+            if self.report_path:
+                lines.append(f"Report: {self.report_path}")
+        else:
+            lines.append(texts.ENTER_CLOSE_JOB)
+        return lines
+
+
+def panel_for(step: Step) -> str:
+    """The id of the panel that shows a step, by the step's type (the tagged union)."""
+    match step:
+        case HandsOn():
+            return "hands-on-panel"
+        case Measure():
+            return "run-panel"
+        case ShowCorrection():
+            return "correction-panel"
+        case ShowVerdict():
+            return "verdict-panel"
+    raise TypeError(f"no panel for {type(step).__name__}")
+
+
+class MessageLine(MarkupText):
+    """The guide's message line; an alarm is shown in its place, in red, until acknowledged."""
+
+    alarm: reactive[bool] = reactive(False)
+
+    def watch_alarm(self, alarm: bool) -> None:
+        self.set_class(alarm, "alarm")
+
+
+class GuideView(Vertical):
+    """The guide: the current step's panel, the run's progress bar, the message line."""
+
+    #: the id of the panel shown
+    panel: reactive[str] = reactive("setup-panel", init=False)
+    #: the run's progress 0..1 while measuring (None: no bar)
+    progress: reactive[float | None] = reactive(None, init=False)
+
+    def compose(self) -> ComposeResult:
+        with ContentSwitcher(initial="setup-panel", id="step-panels"):
+            yield SetupPanel(id="setup-panel")
+            yield HandsOnPanel(id="hands-on-panel")
+            yield RunPanel(id="run-panel")
+            yield CorrectionPanel(id="correction-panel")
+            yield VerdictPanel(id="verdict-panel")
+            yield LinkLostPanel(id="link-panel")
+        yield ProgressBar(total=100, show_eta=False, id="progress")
+        yield MessageLine(id="guide-msg")
+
+    def on_mount(self) -> None:
+        self.query_one("#setup-panel", StepPanel).shown = True
+
+    def watch_panel(self, old: str, new: str) -> None:
+        self.query_one("#step-panels", ContentSwitcher).current = new
+        self.query_one(f"#{old}", StepPanel).shown = False
+        self.query_one(f"#{new}", StepPanel).shown = True
+
+    def watch_progress(self, done: float | None) -> None:
+        bar = self.query_one("#progress", ProgressBar)
+        bar.set_class(done is not None, "shown")
+        if done is not None:
+            bar.update(progress=100 * done)
+
+    def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
+        """Show the procedure's current step (or the set-up, or the lost link)."""
+        if ctx.link_error:
+            self.panel = "link-panel"
+        elif proc is None:
+            self.panel = "setup-panel"
+        else:
+            self.panel = panel_for(proc.step)
+        self.query_one(f"#{self.panel}", StepPanel).show(proc, snap, ctx)
+        msg = self.query_one("#guide-msg", MessageLine)
+        msg.alarm = bool(ctx.alarm)
+        msg.text = ctx.alarm or ctx.message
+        step = proc.step if proc is not None else None
+        if isinstance(step, Measure) and step.phase is RunPhase.RUNNING:
+            assert proc is not None
+            done = proc.progress(snap.meter.readings)
+            if not proc.ready(snap.meter.readings):
+                done = min(done, 0.95)  # full only when every pickup has settled
+            self.progress = done
+        else:
+            self.progress = None

@@ -105,3 +105,15 @@ def test_the_cycle_finder_finds_a_cycle() -> None:
 def test_no_import_cycle_between_packages() -> None:
     cycle = _cycle(_graph())
     assert cycle is None, " -> ".join(cycle or [])
+
+
+def test_pure_layers_import_no_io_library() -> None:
+    # the pure layers (and the validator they share, trueturn/schema.py) use no I/O library
+    bad = []
+    for top, path, tree in _modules():
+        if top not in PURE | {"schema"}:
+            continue
+        for module, _, line in _imports(tree):
+            if module.split(".")[0] in IO_LIBRARIES:
+                bad.append(f"{path.relative_to(PACKAGE)}:{line}: {module}")
+    assert not bad, "\n".join(bad)

@@ -1,30 +1,37 @@
 """The Textual app driven headless with Pilot at 80x24 against sim:// rigs.
 
-Keys are sent the way the terminal sends them (events.Key through the driver); Pilot.press
-itself would wait for the process to go idle, which a virtual rig running as fast as
-possible never does. Physics truth for the honest residual: the rig's exact 1x response
-(trueturn.sim board.exact_response_1x) with the weights the app put on it.
+Keys are posted to the app as the terminal's key events (App.post_message, public); Pilot.press
+itself would wait for the app to go idle, which an app fed by a virtual rig running as fast
+as possible seldom is. Where a test needs the board to misbehave in a way the rig cannot,
+it hands the app its own message source (a LinkSession subclass) and host clock
+(``TrueturnApp(config, clock=..., source=...)``). Physics truth for the honest residual:
+the rig's exact 1x response (trueturn.sim board.exact_response_1x) with the weights the app
+put on it.
 """
 
 from __future__ import annotations
 
 import asyncio
 import math
+import threading
 import time
+from collections.abc import Callable
 from pathlib import Path
 
 import yaml
 from textual import events
 from textual.pilot import Pilot
-from textual.widgets import Input, Static
+from textual.widgets import ContentSwitcher, Input, Static
 
 from trueturn.jobs.store import read_document
 from trueturn.link.catalogue import load_catalogue
-from trueturn.procedure.guide import Mode
+from trueturn.link.session import GreetPhase
+from trueturn.procedure.guide import HandsOn, Mode
 from trueturn.sim.scenario import scenario_dir
 from trueturn.ui.app import AppConfig, TrueturnApp
 from trueturn.ui.launch import scenario_profile
-from trueturn.ui.session import BoardIdentity
+from trueturn.ui.session import BoardIdentity, LinkSession, SessionFactory
+from trueturn.ui.steps import StepPanel, panel_for
 from trueturn.ui.texts import KEYS
 
 SIZE = (80, 24)
@@ -42,11 +49,57 @@ def quick_scenario(name: str, tmp_path: Path) -> str:
     return str(path)
 
 
-def make_app(scenario: str, tmp_path: Path) -> TrueturnApp:
-    source = quick_scenario(scenario, tmp_path)
-    config = AppConfig(f"sim://{source}?realtime=0&motor=off", scenario_profile(source),
+def make_app(scenario: str, tmp_path: Path, clock: Callable[[], float] = time.monotonic,
+             source: SessionFactory = LinkSession.for_machine) -> TrueturnApp:
+    path = quick_scenario(scenario, tmp_path)
+    config = AppConfig(f"sim://{path}?realtime=0&motor=off", scenario_profile(path),
                        demo=True, workspace=tmp_path / "ws")
-    return TrueturnApp(config)
+    return TrueturnApp(config, clock=clock, source=source)
+
+
+class OtherFirmware(LinkSession):
+    """A message source whose board answers with another protocol definition (while
+    ``other`` is True; then like the real one)."""
+
+    other = True
+
+    def open(self, timeout_s: float = 3.0,
+             on_phase: Callable[[GreetPhase], None] | None = None) -> BoardIdentity:
+        if not self.other:
+            return super().open(timeout_s, on_phase)
+        host = self.catalogue
+        self.identity = BoardIdentity(2, 0x12345678, "0.0.9", "simulated board", 2_000_000, 2,
+                                      host.protocol_version, host.definition_hash)
+        return self.identity
+
+
+class HeldBoard(LinkSession):
+    """A message source that can hold the board's messages back, the port staying open
+    (a stalled USB hub, a board hung mid-stream): :meth:`hold` returns once no read is in
+    flight, so nothing arrives after it."""
+
+    def __init__(self, *args: object, **kwargs: object) -> None:
+        super().__init__(*args, **kwargs)  # type: ignore[arg-type]
+        self._gate = threading.Lock()
+        self.held = False
+
+    def hold(self, held: bool = True) -> None:
+        with self._gate:
+            self.held = held
+
+    def pump(self) -> int:
+        with self._gate:
+            return 0 if self.held else super().pump()
+
+
+class FakeClock:
+    """The host's monotonic clock, moved only by the test."""
+
+    def __init__(self) -> None:
+        self.now_s = 0.0
+
+    def __call__(self) -> float:
+        return self.now_s
 
 
 async def press(app: TrueturnApp, pilot: Pilot, *keys: str) -> None:
@@ -85,6 +138,11 @@ def screen_text(app: TrueturnApp) -> str:
     return "\n".join(str(w.render()) for w in app.screen.query(Static))
 
 
+def drawn_panels(app: TrueturnApp) -> list[str]:
+    """The guide's panels that draw anything (hidden ones must draw nothing)."""
+    return [p.id or "" for p in app.screen.query(StepPanel) if str(p.render())]
+
+
 async def through_hands_on_gates(app: TrueturnApp, pilot: Pilot, wait_s: float = 60.0) -> None:
     """Wait for proven standstill, then tick the lock-out list, Enter, the done list, Enter."""
     await wait_for(pilot, lambda: "Standstill proven" in screen_text(app), wait_s)
@@ -112,6 +170,15 @@ async def follow_the_screens(app: TrueturnApp, pilot: Pilot, mode_key: str) -> i
     for _ in range(40):
         step = proc.step
         text = screen_text(app)
+        # one panel per step kind, chosen by the step's type; the others draw nothing
+        assert app.screen.query_one("#step-panels", ContentSwitcher).current == \
+            panel_for(step)
+        assert drawn_panels(app) == [panel_for(step)]
+        if isinstance(step, HandsOn):  # masses named by their kind's word ("trial")
+            for change in step.changes:
+                m = change.mass
+                if m is not None and change.action == "attach" and not m.removal:
+                    assert f"Attach {m.kind.value} mass" in text
         if step.kind == "hands-on" and step.phase == "lockout":
             if "Not at proven standstill" in text:
                 await key("x")
@@ -257,17 +324,9 @@ def test_key_screens_by_their_text(tmp_path: Path) -> None:
     asyncio.run(scenario())
 
 
-def test_mismatched_firmware_is_refused_naming_both(tmp_path: Path, monkeypatch) -> None:  # type: ignore[no-untyped-def]
-    app = make_app("bench-grinder", tmp_path)
+def test_mismatched_firmware_is_refused_naming_both(tmp_path: Path) -> None:
+    app = make_app("bench-grinder", tmp_path, source=OtherFirmware.for_machine)
     host = app.session.catalogue
-
-    def fake_open(timeout_s: float = 3.0, on_phase: object = None) -> BoardIdentity:
-        app.session.identity = BoardIdentity(2, 0x12345678, "0.0.9", "simulated board",
-                                              2_000_000, 2, host.protocol_version,
-                                              host.definition_hash)
-        return app.session.identity
-
-    monkeypatch.setattr(app.session, "open", fake_open)
 
     async def scenario() -> None:
         async with app.run_test(size=SIZE) as pilot:
@@ -376,5 +435,38 @@ def test_a_run_is_stopped_with_a_and_q_asks_first(tmp_path: Path) -> None:
             # The inspection waits for standstill, then the same run comes again.
             await through_hands_on_gates(app, pilot)
             assert proc.step.kind == "run" and proc.step.run_label == "as found"
+            await press(app, pilot, "q")
+    asyncio.run(scenario())
+
+
+def test_a_board_gone_quiet_drops_the_ticks_and_shuts_the_gates(tmp_path: Path) -> None:
+    # The port stays open but nothing arrives (a hung board or hub): standstill cannot be
+    # proven without fresh data (procedure.standstill: data older than 1 s of host time is
+    # stale; common practice, no source), so the ticks already given are dropped and Space
+    # is refused until data flow again. The host clock is the test's: it moves 5 s at once.
+    clock = FakeClock()
+
+    async def scenario() -> None:
+        app = make_app("bench-grinder", tmp_path, clock=clock, source=HeldBoard.for_machine)
+        board = app.session
+        assert isinstance(board, HeldBoard)
+        async with app.run_test(size=SIZE) as pilot:
+            await connect(app, pilot)
+            await press(app, pilot, "2")
+            await wait_for(pilot, lambda: "Standstill proven" in screen_text(app), 60)
+            await press(app, pilot, "space")
+            proc = app.procedure
+            assert proc is not None and proc.ticked == {0}
+            board.hold()
+            clock.now_s += 5.0
+            await wait_for(pilot, lambda: "NO DATA" in widget_text(app, "status"), 5)
+            await wait_for(pilot, lambda: "Ticks cleared" in screen_text(app), 5)
+            assert proc.ticked == set() and "Standstill proven" not in screen_text(app)
+            await press(app, pilot, "space", "space", "enter")
+            assert proc.ticked == set() and proc.step.phase == "lockout"
+            assert "Refused: no fresh data from the board" in screen_text(app)
+            board.hold(False)  # data again: the same rotor, still at rest
+            await through_hands_on_gates(app, pilot, 20)
+            assert proc.step.kind == "run"
             await press(app, pilot, "q")
     asyncio.run(scenario())

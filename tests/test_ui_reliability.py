@@ -19,6 +19,7 @@ from textual.pilot import Pilot
 
 from test_ui_app import (
     SIZE,
+    OtherFirmware,
     connect,
     make_app,
     press,
@@ -33,7 +34,6 @@ from trueturn.jobs.store import read_document
 from trueturn.procedure.guide import GateRefused, Mode
 from trueturn.ui.app import TrueturnApp
 from trueturn.ui.meter import tach_faults
-from trueturn.ui.session import BoardIdentity
 
 
 def said_by(app: TrueturnApp, method: str) -> list[str]:
@@ -162,32 +162,27 @@ def test_board_restart_mid_run_restarts_the_stream_and_the_run(tmp_path: Path) -
     asyncio.run(scenario())
 
 
-def test_reconnect_to_a_mismatched_firmware_is_refused_naming_both(tmp_path: Path,
-                                                                   monkeypatch) -> None:  # type: ignore[no-untyped-def]
+def test_reconnect_to_a_mismatched_firmware_is_refused_naming_both(tmp_path: Path) -> None:
     async def scenario() -> None:
-        app = make_app("bench-grinder", tmp_path)
-        host = app.session.catalogue
+        app = make_app("bench-grinder", tmp_path, source=OtherFirmware.for_machine)
+        session = app.session
+        assert isinstance(session, OtherFirmware)
+        session.other = False  # the board we started with
+        host = session.catalogue
         async with app.run_test(size=SIZE) as pilot:
             await connect(app, pilot)
-            app.session.rig.unplug()
+            session.rig.unplug()
             await wait_for(pilot, lambda: "LINK LOST" in screen_text(app), 10)
-
-            def other_firmware(timeout_s: float = 3.0, on_phase: object = None) -> BoardIdentity:
-                app.session.identity = BoardIdentity(1, 0x0BADF00D, "0.0.9", "simulated board",
-                                                      2_000_000, 2, host.protocol_version,
-                                                      host.definition_hash)
-                return app.session.identity
-
-            monkeypatch.setattr(app.session, "open", other_firmware)
+            session.other = True  # another firmware answers on the same port
             await press(app, pilot, "l")
             await wait_for(pilot, lambda: "Refused" in screen_text(app), 10)
             text = screen_text(app)
-            assert "0badf00d" in text and f"{host.definition_hash:08x}" in text
-            assert app.link_error and not app.session.snapshot().streaming
-            monkeypatch.undo()
+            assert "12345678" in text and f"{host.definition_hash:08x}" in text
+            assert app.link_error and not session.snapshot().streaming
+            session.other = False
             await press(app, pilot, "l")
             await wait_for(pilot, lambda: "Reconnected" in screen_text(app), 20)
-            assert app.session.snapshot().streaming
+            assert session.snapshot().streaming
             await press(app, pilot, "q")
     asyncio.run(scenario())
 

@@ -82,7 +82,7 @@ class MarkupText(Static):
     """Console markup held in a reactive attribute: set ``text``; the widget repaints only
     when the text differs from what it shows."""
 
-    text: reactive[str] = reactive("")
+    text: reactive[str] = reactive("", layout=True)  # its height may change with it
 
     def render(self) -> Content:
         return Content.from_markup(self.text)

@@ -44,6 +44,7 @@ from trueturn.procedure.guide import (
     ShowVerdict,
 )
 from trueturn.procedure.standstill import StandstillState
+from trueturn.ui import texts
 from trueturn.ui.jobfile import JobKeeper
 from trueturn.ui.machine import setup_from_profile
 from trueturn.ui.machines import MachinePicker
@@ -359,13 +360,13 @@ class TrueturnApp(App):
         if proc is not None and proc.interrupt_run("link-lost", text,
                                                    self.session.watch.now_s or 0.0):
             self.alarm = None
-        self.message = "LINK LOST: check the USB cable and the board, then press l to reconnect."
+        self.message = texts.LINK_LOST_SAY
         self.tick()
 
     def reconnect(self) -> None:
         """Open the same port again, identify, restart the stream, resume the step."""
         if not self.link_error:
-            self.message = "The link is up: nothing to reconnect."
+            self.message = texts.LINK_UP
         elif not self.reconnecting:
             self.reconnecting = True
             self.message = f"Reconnecting to {self.config.url} …"
@@ -396,7 +397,7 @@ class TrueturnApp(App):
     def reconnect_failed(self, event: ReconnectFailed) -> None:
         self.reconnecting = False
         self.link_error = event.text
-        self.message = "Still no link: press l to try again, or q to quit (the job is saved)."
+        self.message = texts.STILL_NO_LINK
         self.tick()
 
     @on(Reconnected)
@@ -439,9 +440,7 @@ class TrueturnApp(App):
         mid_run = proc is not None and running(proc, RunPhase.RUNNING, RunPhase.STOPPED)
         if mid_run and not self.quit_armed:
             self.quit_armed = True
-            self.message = ("A run is in progress: press q again to quit (nothing of this run "
-                            "is kept; the job is saved up to the last complete run), or a to "
-                            "stop the run.")
+            self.message = texts.QUIT_MID_RUN
             self.tick()
             return
         self.workers.cancel_group(self, "link-pump")
@@ -457,9 +456,8 @@ class TrueturnApp(App):
     # ---- the person's actions -----------------------------------------------------------
     def pick_machine(self) -> None:
         if self.procedure is not None or self.rig is not None:
-            self.message = ("The demo rig is the simulated machine; other machines are for a "
-                            "real board." if self.rig is not None else
-                            "The machine is fixed once a job has started (quit to change it).")
+            self.message = (texts.DEMO_ONE_MACHINE if self.rig is not None else
+                            texts.MACHINE_FIXED)
             self.tick()
             return
         picker = MachinePicker(self.keeper.workspace, self.session.channels,
@@ -536,7 +534,7 @@ class TrueturnApp(App):
         """a stops the run at any moment: nothing of it is kept; inspect the rotor next."""
         proc = self.procedure
         if proc is None or not isinstance(proc.step, Measure):
-            self.message = "No run to stop."
+            self.message = texts.NO_RUN_TO_STOP
             self.tick()
             return
         event = proc.abort_run(self.session.watch.now_s or 0.0)
@@ -545,15 +543,15 @@ class TrueturnApp(App):
         self.keeper.event(event)
         if self.rig is not None:
             self.rig.motor(False)
-            self.message = "Run stopped: the virtual motor is off. Wait for standstill."
+            self.message = texts.RUN_STOPPED_DEMO
         else:
-            self.message = "Run stopped: switch the machine off and wait for standstill."
+            self.message = texts.RUN_STOPPED
         self.tick()
 
     def confirm(self) -> None:
         proc = self.procedure
         if proc is None:
-            self.message = "Choose the procedure first: 1, 2 or 3."
+            self.message = texts.CHOOSE_FIRST
             self.tick()
             return
         try:
@@ -573,7 +571,7 @@ class TrueturnApp(App):
                                 "inspect the rotor before it runs again.")
             case HandsOn(phase=HandsOnPhase.LOCKOUT):
                 proc.lock_out(now)
-                self.message = "Locked out. Do the work now, then tick the list."
+                self.message = texts.LOCKED_OUT
             case HandsOn():
                 changes = proc.hands_on_done(now)
                 if self.rig is not None:
@@ -587,20 +585,20 @@ class TrueturnApp(App):
                 self.alarm = None
                 if self.rig is not None:
                     self.rig.motor(True)
-                    self.message = "Demo: the virtual motor is starting."
+                    self.message = texts.MOTOR_STARTING_DEMO
                 else:
-                    self.message = "Switch the machine on now and stand clear."
+                    self.message = texts.SWITCH_ON
             case Measure(phase=RunPhase.INTERRUPTED):
-                self.message = "The run was interrupted: press l to reconnect; it starts over."
+                self.message = texts.RUN_INTERRUPTED
             case Measure():
-                self.message = "Measuring: wait for the bar to fill (the reading must be steady)."
+                self.message = texts.MEASURING
             case ShowCorrection() if too_small is not None and too_small.suggested_g is not None:
                 larger = proc.redo_trial_larger()
                 self.message = (f"Redo the trial on {larger.plane} with {larger.mass_g:.1f} g: "
                                 "the hands-on step comes first.")
             case ShowCorrection() if proc.problem:
                 proc.repeat_run()
-                self.message = "Run again: confirm the forces to start."
+                self.message = texts.RUN_AGAIN
             case ShowCorrection():
                 proc.accept_correction()
                 self.message = ""
@@ -608,9 +606,9 @@ class TrueturnApp(App):
                 proc.finish()
                 self.keeper.finish(proc)
                 self._saved_cache.clear()
-                self.message = "Job closed and saved (report beside it). Press q to quit."
+                self.message = texts.JOB_CLOSED
             case _:
-                self.message = "The job is finished. Press q to quit."
+                self.message = texts.JOB_FINISHED
 
     def run_off_speed_again(self) -> None:
         """e: measure again the coefficient run that was furthest off speed."""
@@ -632,19 +630,18 @@ class TrueturnApp(App):
             return
         try:
             proc.set_removal(not proc.removal)
-            self.message = ("Correction as material to remove." if proc.removal
-                            else "Correction as mass to add.")
+            self.message = texts.AS_REMOVAL if proc.removal else texts.AS_ADDITION
         except GateRefused as exc:
             self.message = f"Refused: {exc}"
         self.tick()
 
     def motor(self, on: bool) -> None:
         if self.rig is None:
-            self.message = "This is a real machine: use its own switch."
+            self.message = texts.REAL_MACHINE_SWITCH
         else:
             proc = self.procedure
             if on and proc is not None and not running(proc, RunPhase.RUNNING):
-                self.message = "Refused: start the motor from a run step (confirm the forces)."
+                self.message = texts.MOTOR_FROM_RUN
             else:
                 self.rig.motor(on)
                 self.message = "Demo: virtual motor " + ("on." if on else "off, coasting down.")
@@ -664,7 +661,7 @@ class TrueturnApp(App):
             self.board_restarted()
         proc = self.procedure
         if proc is not None and proc.check_ticks():
-            self.message = "Ticks cleared: standstill is no longer proven."
+            self.message = texts.TICKS_CLEARED
         self._run_logic(snap)
         bench.query_one("#status", MarkupText).text = self._status_text(snap)
         if current == "meter-view":

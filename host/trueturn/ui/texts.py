@@ -142,3 +142,30 @@ ENTER_CLOSE_JOB = "[b]Enter[/b]: close the job and write the report"
 
 LINK_CHECK = ("Check the USB cable and the board, then press [b]l[/b] to reconnect (the same "
               "port).")
+
+
+# ---- the app's messages (the line under the guide) -------------------------------------
+LINK_LOST_SAY = "LINK LOST: check the USB cable and the board, then press l to reconnect."
+LINK_UP = "The link is up: nothing to reconnect."
+STILL_NO_LINK = "Still no link: press l to try again, or q to quit (the job is saved)."
+QUIT_MID_RUN = ("A run is in progress: press q again to quit (nothing of this run is kept; the "
+                "job is saved up to the last complete run), or a to stop the run.")
+DEMO_ONE_MACHINE = "The demo rig is the simulated machine; other machines are for a real board."
+MACHINE_FIXED = "The machine is fixed once a job has started (quit to change it)."
+NO_RUN_TO_STOP = "No run to stop."
+RUN_STOPPED_DEMO = "Run stopped: the virtual motor is off. Wait for standstill."
+RUN_STOPPED = "Run stopped: switch the machine off and wait for standstill."
+CHOOSE_FIRST = "Choose the procedure first: 1, 2, 3 or 4."
+LOCKED_OUT = "Locked out. Do the work now, then tick the list."
+MOTOR_STARTING_DEMO = "Demo: the virtual motor is starting."
+SWITCH_ON = "Switch the machine on now and stand clear."
+RUN_INTERRUPTED = "The run was interrupted: press l to reconnect; it starts over."
+MEASURING = "Measuring: wait for the bar to fill (the reading must be steady)."
+RUN_AGAIN = "Run again: confirm the forces to start."
+JOB_CLOSED = "Job closed and saved (report beside it). Press q to quit."
+JOB_FINISHED = "The job is finished. Press q to quit."
+AS_REMOVAL = "Correction as material to remove."
+AS_ADDITION = "Correction as mass to add."
+REAL_MACHINE_SWITCH = "This is a real machine: use its own switch."
+MOTOR_FROM_RUN = "Refused: start the motor from a run step (confirm the forces)."
+TICKS_CLEARED = "Ticks cleared: standstill is no longer proven."

@@ -3,7 +3,7 @@
 Screens: :class:`ConnectScreen` (board identity, refusal of a mismatched firmware),
 :class:`BenchScreen` (three views: meter, spectrum, guide; a status strip always on top),
 :class:`TextPage` (keys, cautions). The guide shows one widget per step kind
-(:mod:`trueturn.ui.steps`). All blocking I/O runs in thread workers that pump the message
+(:mod:`trueturn.ui.steps`), the other views are in :mod:`trueturn.ui.views`. All blocking I/O runs in thread workers that pump the message
 source (a :class:`~trueturn.ui.session.LinkSession`) and tell the app what happened with
 messages (:class:`LinkLost`, :class:`Reconnected`...); the screen polls a snapshot ten
 times a second. The message source and the host clock are given to the app
@@ -20,10 +20,9 @@ from pathlib import Path
 from textual import on, work
 from textual.app import App, ComposeResult
 from textual.binding import Binding
-from textual.containers import Container, Vertical
 from textual.message import Message
 from textual.screen import Screen
-from textual.widgets import ContentSwitcher, Footer, Sparkline, Static
+from textual.widgets import ContentSwitcher, Footer, Static
 from textual.worker import get_current_worker
 
 from trueturn.errors import UserError
@@ -43,7 +42,6 @@ from trueturn.procedure.guide import (
     ShowCorrection,
     ShowVerdict,
 )
-from trueturn.procedure.standstill import StandstillState
 from trueturn.ui import texts
 from trueturn.ui.jobfile import JobKeeper
 from trueturn.ui.machine import setup_from_profile
@@ -52,7 +50,7 @@ from trueturn.ui.rig import DemoRig
 from trueturn.ui.session import Clock, LinkProblem, LinkSession, SessionFactory, Snapshot
 from trueturn.ui.steps import GuideContext, GuideView
 from trueturn.ui.texts import CAUTIONS, keys_markup
-from trueturn.ui.widgets import MarkupText, PolarPlot, PolarPoint
+from trueturn.ui.views import MeterView, SpectrumView, StatusStrip
 
 #: What the screen says while the port opens (trueturn.link.session.BoardSession.greet).
 GREET_PHASE_TEXT = {
@@ -63,7 +61,6 @@ GREET_PHASE_TEXT = {
 
 TICK_S = 0.1
 TACH_SILENT_S = 2.0  # no tach edge for this long while data arrive: the tach is not seen
-STYLES = ("cyan", "magenta", "yellow", "green")
 
 
 @dataclass
@@ -233,14 +230,10 @@ class BenchScreen(Screen):
     ]
 
     def compose(self) -> ComposeResult:
-        yield MarkupText(id="status")
+        yield StatusStrip(id="status")
         with ContentSwitcher(initial="guide-view", id="views"):
-            with Container(id="meter-view"):
-                yield MarkupText(id="meter-table")
-                yield PolarPlot(id="polar")
-            with Vertical(id="spectrum-view"):
-                yield Sparkline([0.0], id="spark")
-                yield MarkupText(id="peaks")
+            yield MeterView(id="meter-view")
+            yield SpectrumView(id="spectrum-view")
             yield GuideView(id="guide-view")
         yield Footer()
 
@@ -663,11 +656,16 @@ class TrueturnApp(App):
         if proc is not None and proc.check_ticks():
             self.message = texts.TICKS_CLEARED
         self._run_logic(snap)
-        bench.query_one("#status", MarkupText).text = self._status_text(snap)
+        bench.query_one("#status", StatusStrip).show(
+            snap, machine=self.config.profile.name, demo=self.config.demo,
+            identity=self.session.identity, link_error=self.link_error,
+            reconnecting=self.reconnecting)
         if current == "meter-view":
-            self._draw_meter(bench, snap)
+            bench.query_one("#meter-view", MeterView).show(
+                snap, self.procedure.runs if self.procedure is not None else [],
+                self.config.profile.rotation)
         elif current == "spectrum-view":
-            self._draw_spectrum(bench, snap)
+            bench.query_one("#spectrum-view", SpectrumView).show(snap)
         else:
             self._draw_guide(bench, snap)
 
@@ -708,89 +706,6 @@ class TrueturnApp(App):
         return self.session.watch.last_edge_s is not None and snap.quiet_s < TACH_SILENT_S
 
     # ---- drawing ------------------------------------------------------------------------
-    def _status_text(self, snap: Snapshot) -> str:
-        ident = self.session.identity
-        board = f"{ident.board} fw {ident.firmware} · protocol v{ident.protocol_version}" \
-            if ident else "no board"
-        speed = snap.meter.speed_rpm
-        ev = snap.evidence
-        state = ev.state if ev is not None else StandstillState.NO_DATA
-        if self.link_error:
-            motion = "[b red]LINK LOST[/] · l: reconnect" if not self.reconnecting else \
-                "[b yellow]reconnecting…[/]"
-        elif state is StandstillState.PROVEN:
-            motion = (f"[green]STANDSTILL[/] (tach silent {ev.tach_silent_s:.0f} s, "
-                      "pickups quiet)")
-        elif state is StandstillState.TURNING:
-            motion = f"[b red]TURNING {speed or 0:.0f} rpm[/]"
-        elif state is StandstillState.TACH_FAULT:
-            hz = ev.seen_hz
-            motion = "[b red]TACH FAULT[/]: pickups see " + (
-                f"{hz:.0f} Hz (~{60 * hz:.0f} rpm)" if hz is not None else "vibration")
-        elif state is StandstillState.NO_DATA:
-            motion = "[b red]NO DATA[/]: standstill cannot be proven"
-        else:
-            motion = f"[yellow]checking standstill… {ev.wait_s:.0f} s to go[/]"
-        c = snap.counters
-        lost = (f"lost: {c.get('samples_lost', 0) + snap.board_samples_dropped} samples, "
-                f"{c.get('frames_lost', 0) + c.get('frames_bad', 0) + snap.board_frames_dropped}"
-                f" frames")
-        if c.get("board_resets", 0):
-            lost += f", board restarts: {c['board_resets']}"
-        demo = " [b]DEMO[/b]" if self.config.demo else ""
-        return f"{self.config.profile.name}{demo} · {board}\n{motion} · {lost}"
-
-    def _draw_meter(self, bench: BenchScreen, snap: Snapshot) -> None:
-        meter = snap.meter
-        lines = [f"[b]Live 1x[/b]   speed {meter.speed_rpm or 0:.0f} rpm", ""]
-        points: list[PolarPoint] = []
-        for i, name in enumerate(meter.sensors):
-            r = meter.readings.get(name)
-            style = STYLES[i % len(STYLES)]
-            tag = chr(ord("A") + i)
-            if r is None:
-                lines += [f"[{style}]{tag} {name}[/]", "  waiting for whole revolutions…", ""]
-                continue
-            ready = "[green]READY[/]" if r.steady else "[yellow]settling[/]"
-            phase = f"{r.phase_deg:5.0f}°" if r.phase_deg is not None else "  —  "
-            lines += [f"[{style}]{tag} {name}[/]  {ready}",
-                      f"  {r.amplitude:8.3f} {r.unit}  phase {phase} ±{r.confidence_deg:.0f}°",
-                      f"  {r.revolutions} rev averaged", ""]
-            if r.phase_deg is not None:
-                points.append(PolarPoint(r.amplitude, r.phase_deg, tag, style))
-        proc = self.procedure
-        if proc is not None:
-            for k, run in enumerate(proc.runs):
-                for i, name in enumerate(meter.sensors):
-                    r = run.readings.get(name)
-                    if r is not None and r.phase_deg is not None:
-                        points.append(PolarPoint(r.amplitude, r.phase_deg, str((k + 1) % 10),  # one digit: run 10 shows 0
-                                                 STYLES[i % len(STYLES)], current=False))
-        c = snap.counters
-        lines += [f"link: {c.get('frames_bad', 0)} bad frames, {c.get('frames_lost', 0)} lost,",
-                  f"{c.get('samples_lost', 0)} samples lost, board dropped "
-                  f"{snap.board_samples_dropped}"]
-        if meter.tach_faults:
-            lines += [f"[yellow]Tach: {f}[/]" for f in meter.tach_faults[:2]]
-        elif meter.warnings:
-            lines.append(f"[yellow]{meter.warnings[-1]}[/]")
-        bench.query_one("#meter-table", MarkupText).text = "\n".join(lines)
-        bench.query_one("#polar", PolarPlot).show(points, meter.unit,
-                                                    self.config.profile.rotation)
-
-    def _draw_spectrum(self, bench: BenchScreen, snap: Snapshot) -> None:
-        meter = snap.meter
-        spark = bench.query_one("#spark", Sparkline)
-        spark.data = list(meter.spectrum_amplitude) or [0.0]
-        top = meter.spectrum_max_hz
-        lines = [f"[b]Spectrum[/b] 0 … {top:.0f} Hz (left to right)", "",
-                 "  freq Hz   amplitude      label"]
-        for hz, amp, label in meter.peaks[:8]:
-            lines.append(f"  {hz:7.1f}   {amp:10.4f}   {label}")
-        if not meter.peaks:
-            lines.append("  (collecting…)")
-        bench.query_one("#peaks", MarkupText).text = "\n".join(lines)
-
     def _draw_guide(self, bench: BenchScreen, snap: Snapshot) -> None:
         """Hand the guide what it shows; its panels repaint only what changed."""
         proc = self.procedure

@@ -104,21 +104,19 @@ class PolarPlot(Widget):
 
     DEFAULT_CSS = "PolarPlot { width: 1fr; height: 1fr; min-width: 20; min-height: 8; }"
 
-    def __init__(self, *, id: str | None = None) -> None:  # noqa: A002 - Textual's name
-        super().__init__(id=id)
-        self.points: list[PolarPoint] = []
-        self.unit = ""
-        self.rotation: Rotation = "cw"
+    points: reactive[tuple[PolarPoint, ...]] = reactive(())
+    unit: reactive[str] = reactive("")
+    rotation: reactive[Rotation] = reactive("cw")
 
     def show(self, points: list[PolarPoint], unit: str, rotation: Rotation) -> None:
-        """Draw ``points``; ``rotation`` as seen from the pickup side (the machine profile)."""
-        self.points = points
+        """Draw ``points``; ``rotation`` as seen from the pickup side (the machine profile).
+        The plot repaints only when one of them changed."""
+        self.points = tuple(points)
         self.unit = unit
         self.rotation = rotation
-        self.refresh()
 
     def render(self) -> Text:
-        return polar_text(self.points, self.unit, self.rotation, self.size.width,
+        return polar_text(list(self.points), self.unit, self.rotation, self.size.width,
                           self.size.height)
 
 

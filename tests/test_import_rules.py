@@ -1,8 +1,15 @@
 """The layers of ARCHITECTURE.md as rules on the import graph, read from the source (ast).
 
+* The math and the procedure are pure: ``model``, ``dsp``, ``balance`` and ``procedure``
+  (with the one-module conventions ``angles``, ``positions``, ``errors``, ``constants``,
+  ``schema``) import no I/O layer (``link``, ``sim``, ``jobs``, ``ui``, ``cli``) and no
+  Textual, pyserial or YAML - except the wire format's definition, ``link.catalogue`` and
+  its pure ``link.codec`` (bytes in, messages out), which dsp measures from.
 * No package reaches into another's internals: no ``_private`` name is imported across
   packages.
 * No import cycle between the packages of ``trueturn``.
+* Each core noun is defined once: one class of each name in ``trueturn.model`` and none of
+  that name elsewhere (a layer may specialise one, e.g. dsp's ``PickupReading(Reading)``).
 
 Common practice, no source: layering rules checked by reading the import statements.
 """
@@ -14,11 +21,13 @@ from pathlib import Path
 
 PACKAGE = Path(__file__).resolve().parents[1] / "host" / "trueturn"
 
-PURE = {"model", "dsp", "balance", "procedure", "angles", "positions", "errors"}
+PURE = {"model", "dsp", "balance", "procedure", "angles", "positions", "errors", "constants",
+        "schema"}
+PROTOCOL_DEFINITION = {"trueturn.link.catalogue", "trueturn.link.codec"}
 IO_LAYERS = {"link", "sim", "jobs", "ui", "cli"}
 IO_LIBRARIES = {"textual", "serial", "yaml", "socket", "subprocess"}
 MODEL_NOUNS = {"Reading", "PlacedMass", "Correction", "Verdict", "Run", "RunKind",
-               "MassKind", "Bearing", "SafetyEvent", "Phasor"}
+               "MassKind", "Bearing", "SafetyEvent", "Phasor", "Plane"}
 
 
 def _modules() -> list[tuple[str, Path, ast.Module]]:
@@ -44,6 +53,20 @@ def _imports(tree: ast.Module) -> list[tuple[str, list[str], int]]:
 def _package_of(module: str) -> str | None:
     parts = module.split(".")
     return parts[1] if parts[0] == "trueturn" and len(parts) > 1 else None
+
+
+def test_math_and_procedure_import_no_io_layer_and_no_io_library() -> None:
+    bad = []
+    for top, path, tree in _modules():
+        if top not in PURE:
+            continue
+        for module, _, line in _imports(tree):
+            target = _package_of(module)
+            if module in PROTOCOL_DEFINITION:
+                continue  # the wire format's definition and its pure codec: data, not I/O
+            if target in IO_LAYERS or module.split(".")[0] in IO_LIBRARIES:
+                bad.append(f"{path.relative_to(PACKAGE)}:{line}: imports {module}")
+    assert not bad, "\n".join(bad)
 
 
 def test_no_private_name_is_imported_across_packages() -> None:
@@ -117,3 +140,14 @@ def test_pure_layers_import_no_io_library() -> None:
             if module.split(".")[0] in IO_LIBRARIES:
                 bad.append(f"{path.relative_to(PACKAGE)}:{line}: {module}")
     assert not bad, "\n".join(bad)
+
+
+def test_each_core_noun_is_defined_once_in_the_model() -> None:
+    where: dict[str, list[str]] = {}
+    for _, path, tree in _modules():
+        for node in ast.walk(tree):
+            if isinstance(node, ast.ClassDef) and node.name in MODEL_NOUNS:
+                where.setdefault(node.name, []).append(str(path.relative_to(PACKAGE)))
+    twice = {name: paths for name, paths in where.items()
+             if len(paths) != 1 or not paths[0].startswith("model/")}
+    assert not twice, twice

@@ -2,7 +2,7 @@
 steadiness, spectrum and units. Pure numpy/scipy; see host/trueturn/dsp/README.md."""
 
 from trueturn.dsp.analysis import Analysis, analyze_capture
-from trueturn.dsp.meter import LiveAnalyzer, Reading
+from trueturn.dsp.meter import LiveAnalyzer, PickupReading
 from trueturn.dsp.units import PickupProfile
 
-__all__ = ["Analysis", "LiveAnalyzer", "PickupProfile", "Reading", "analyze_capture"]
+__all__ = ["Analysis", "LiveAnalyzer", "PickupProfile", "PickupReading", "analyze_capture"]

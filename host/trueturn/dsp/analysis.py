@@ -14,7 +14,7 @@ from typing import Any
 
 from trueturn.dsp.averaging import SteadinessLimits
 from trueturn.dsp.findings import Code, Finding, describe, unique
-from trueturn.dsp.meter import LiveAnalyzer, Reading
+from trueturn.dsp.meter import LiveAnalyzer, PickupReading
 from trueturn.dsp.spectrum import SpectrumPeak
 from trueturn.dsp.units import PickupProfile
 from trueturn.link.codec import LinkEvent, Message, StreamDecoder
@@ -54,7 +54,7 @@ class Analysis:
     """Everything ``trueturn analyze`` reports about one capture."""
 
     speed_rpm: float
-    readings: tuple[Reading, ...]
+    readings: tuple[PickupReading, ...]
     spectra: tuple[PickupPeaks, ...]
     warnings: tuple[str, ...]
     link: dict[str, Any]

@@ -1,4 +1,4 @@
-"""The streaming meter: decoded messages in, one :class:`Reading` per pickup out.
+"""The streaming meter: decoded messages in, one :class:`PickupReading` per pickup out.
 
 :class:`LiveAnalyzer` takes identity, stream_config, samples and tach messages one at a
 time (duck-typed: anything with ``.name`` and ``[field]``, e.g.
@@ -55,6 +55,7 @@ from trueturn.dsp.units import (
     default_unit,
 )
 from trueturn.link.catalogue import load_catalogue
+from trueturn.model import Reading
 
 DEFAULT_TICK_HZ = load_catalogue().limit("board_tick_hz").min
 DEFAULT_ADC_BITS = 10
@@ -85,20 +86,13 @@ class Harmonic:
 
 
 @dataclass(frozen=True)
-class Reading:
-    """The 1x reading of one pickup over the averaged revolutions."""
+class PickupReading(Reading):
+    """The 1x reading of one pickup over the averaged revolutions (a :class:`model.Reading`,
+    so every layer takes it as it is), with what the meter knows besides: the channel, the
+    2x/3x, the noise and hum, the findings, and what the 95 % circle is made of."""
 
-    sensor: str
-    channel: int
-    amplitude: float
-    unit: str
-    phase_deg: float
-    confidence_deg: float
-    confidence_radius: float
-    revolutions: int
-    steady: bool
-    speed_rpm: float
-    warnings: tuple[str, ...]
+    channel: int = 0
+    warnings: tuple[str, ...] = ()
     harmonics: tuple[Harmonic, ...] = ()
     noise_rms_v: float = math.nan
     hum_v: dict[float, float] = field(default_factory=dict)
@@ -112,8 +106,18 @@ class Reading:
     @property
     def phasor(self) -> complex:
         """``amplitude * exp(i phase)`` (see trueturn.angles)."""
-        return self.amplitude * complex(math.cos(math.radians(self.phase_deg)),
-                                        math.sin(math.radians(self.phase_deg)))
+        return self.vector
+
+    def as_reading(self) -> Reading:
+        """The plain reading other layers keep (a job file stores this), unknowns as None."""
+        return Reading(
+            self.sensor, self.amplitude, self.unit, self.phase_deg, self.confidence_deg,
+            self.revolutions, self.steady,
+            self.speed_rpm if self.speed_rpm is not None and math.isfinite(self.speed_rpm)
+            else None,
+            self.confidence_radius if self.confidence_radius is not None
+            and math.isfinite(self.confidence_radius) else None,
+            self.clipped, self.no_tach)
 
 
 class _Ring:
@@ -645,10 +649,10 @@ class LiveAnalyzer:
             return math.nan
         return 60.0 * self.tick_hz / float(self._periods.last(1)["ticks"][0])
 
-    def readings(self, last: int | None = None) -> list[Reading]:
+    def readings(self, last: int | None = None) -> list[PickupReading]:
         """One reading per pickup over the last ``last`` (default ``max_revs``) revolutions."""
         self._process()
-        out: list[Reading] = []
+        out: list[PickupReading] = []
         if self.adc_late_unexplained or self.reference_problem:
             return out
         stream = tuple(self.stream_findings())
@@ -658,7 +662,7 @@ class LiveAnalyzer:
             out.append(self._reading(c, last, stream))
         return out
 
-    def _reading(self, c: int, last: int | None, stream: tuple[Finding, ...]) -> Reading:
+    def _reading(self, c: int, last: int | None, stream: tuple[Finding, ...]) -> PickupReading:
         rows = self._stacked(c, last)
         est = solve_orders(BlockFit(self.orders, self._nuisance_hz(), **rows))
         good = np.isfinite(rows["coef_y"]).all(axis=1)
@@ -705,7 +709,7 @@ class LiveAnalyzer:
             if math.isfinite(mean_hz) else 0.0
         radius = vstats.confidence_radius + vstats.amplitude * bias_rad
         window_s = float(self._stacked_ticks(last)[-len(good):][good].sum()) / self.tick_hz
-        return Reading(
+        return PickupReading(
             sensor=profile.name, channel=c, amplitude=vstats.amplitude, unit=used_unit,
             phase_deg=vstats.phase_deg,
             confidence_deg=subtended_deg(radius, vstats.amplitude),
@@ -714,6 +718,7 @@ class LiveAnalyzer:
             warnings=tuple(describe(f) for f in findings), harmonics=tuple(harmonics),
             noise_rms_v=est.noise_rms * vpc,
             hum_v=hum_v, findings=tuple(findings),
+            no_tach=any(f.code is Code.NO_TACH for f in findings),
             confidence_random=vstats.confidence_radius, timing_bias_deg=math.degrees(bias_rad),
             window_s=window_s,
         )

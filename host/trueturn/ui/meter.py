@@ -127,12 +127,7 @@ class MeterAdapter:
         speed = a.speed_rpm
         out.speed_rpm = speed if math.isfinite(speed) else None
         for r in readings:
-            faults = tach_faults(r.findings)
-            out.readings[r.sensor] = Reading(
-                r.sensor, r.amplitude, r.unit, r.phase_deg, r.confidence_deg, r.revolutions,
-                r.steady, r.speed_rpm, r.confidence_radius
-                if math.isfinite(r.confidence_radius) else None,
-                no_tach=any(f.code is Code.NO_TACH for f in faults))
+            out.readings[r.sensor] = r.as_reading()
             out.unit = r.unit
             out.findings += [f for f in r.findings if f not in out.findings]
         if not readings:  # no revolution yet: the stream's own findings (no tach, ...)

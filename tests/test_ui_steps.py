@@ -1,0 +1,158 @@
+"""The guide's step panels (trueturn.ui.steps) through the public Pilot API, fed by the pure
+procedure driven on the demo rotors' physics (test_ui_procedure.Rig): the branches a demo
+balance seldom reaches (an alarm, a trial too small, an off-speed run, removal, a verdict
+that withholds the pass, a lost link) say what the procedure will do.
+
+What counts as right is the procedure's own answer (the mass it will ask for, the angle it
+will drill at), read back from the procedure, never re-typed; common practice, no source.
+"""
+
+from __future__ import annotations
+
+import asyncio
+import re
+from dataclasses import replace
+
+from textual.app import App, ComposeResult
+from textual.widgets import ContentSwitcher
+
+from test_ui_procedure import Rig, _TinyTrialEngine
+from trueturn.angles import wrap_deg
+from trueturn.model import VerdictFlag
+from trueturn.procedure.engine import BalanceEngine
+from trueturn.procedure.guide import Mode, Procedure, RunPhase
+from trueturn.ui.machine import setup_from_profile
+from trueturn.ui.meter import MeterView as MeterReadings
+from trueturn.ui.session import Snapshot
+from trueturn.ui.steps import GuideContext, GuideView, MessageLine, StepPanel, panel_for
+from trueturn.ui.texts import VERDICT_FLAG_WORDS
+
+SIZE = (80, 24)
+
+
+class GuideApp(App):
+    """Only the guide, as the bench screen holds it."""
+
+    def compose(self) -> ComposeResult:
+        yield GuideView(id="guide-view")
+
+
+def snapshot(rig: Rig) -> Snapshot:
+    ev = rig.proc.watch.evidence()
+    return Snapshot(meter=MeterReadings(rig.setup.sensors), standstill=ev.proven,
+                    evidence=ev, quiet_s=ev.tach_silent_s, board_time_s=rig.t)
+
+
+def shown(rig: Rig, **context: object) -> dict[str, str]:
+    """Show the procedure's step in a fresh guide; what is on screen, by part."""
+
+    async def look() -> dict[str, str]:
+        app = GuideApp()
+        async with app.run_test(size=SIZE) as pilot:
+            guide = app.query_one(GuideView)
+            ctx = GuideContext(rig.profile, BalanceEngine(), demo=True, **context)  # type: ignore[arg-type]
+            guide.show(rig.proc, snapshot(rig), ctx)
+            await pilot.pause()
+            drawn = [p for p in app.query(StepPanel) if str(p.render())]
+            msg = app.query_one(MessageLine)
+            return {"current": app.query_one(ContentSwitcher).current or "",
+                    "drawn": ",".join(p.id or "" for p in drawn),
+                    "text": "\n".join(str(p.render()) for p in drawn),
+                    "message": str(msg.render()),
+                    "alarm": "yes" if msg.has_class("alarm") else "no"}
+    return asyncio.run(look())
+
+
+def test_an_alarm_stops_the_run_in_red_until_acknowledged() -> None:
+    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+    rig.hands_on()
+    rig.run()  # as found
+    rig.hands_on()  # trial mass on
+    rig.proc.arm_run(True, rig.t)
+    over = rig.setup.max_speed_rpm + 50
+    (alarm, *_) = rig.proc.observe(rig.readings(), over, rig.t)
+    seen = shown(rig, alarm=alarm.detail)
+    assert seen["current"] == seen["drawn"] == "run-panel"
+    assert f"STOPPED: {alarm.detail}" in seen["text"]
+    assert "Nothing of this run is kept." in seen["text"]
+    assert "I have seen the alarm" in seen["text"]
+    assert seen["message"] == alarm.detail and seen["alarm"] == "yes"
+    rig.proc.acknowledge_alarm()
+    seen = shown(rig)
+    assert seen["drawn"] == "hands-on-panel" and seen["alarm"] == "no"
+    assert "Stopped (overspeed): inspect the rotor" in seen["text"]
+
+
+def test_a_trial_too_small_offers_the_mass_the_procedure_will_ask_for() -> None:
+    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+    rig.proc = Procedure(rig.setup, _TinyTrialEngine())
+    for _ in range(3):  # set-up, as found, trial left, trial right
+        rig.hands_on()
+        rig.run()
+    small = rig.proc.too_small_trial
+    assert small is not None
+    text = shown(rig)["text"]
+    assert "No correction from these runs:" in text
+    offer = re.search(r"Enter: redo the trial on (\S+) with ([\d.]+) g instead of ([\d.]+) g",
+                      text)
+    assert offer is not None, text
+    larger = rig.proc.redo_trial_larger()
+    assert offer[1] == larger.plane
+    assert float(offer[2]) == larger.mass_g and float(offer[3]) == round(small.trial_g, 2)
+
+
+def test_an_off_speed_run_is_named_and_can_be_run_again() -> None:
+    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+    rig.hands_on()
+    rig.run()  # as found
+    rig.hands_on()
+    rig.proc.arm_run(True, rig.t)
+    rig.spin(2.0, rig.setup.speed_rpm * 0.98)
+    rig.proc.record(rig.readings(scale=0.98 ** 2), rig.setup.speed_rpm * 0.98, rig.t)
+    rig.coast(rig.setup.speed_rpm)
+    rig.hands_on()
+    rig.run()
+    text = shown(rig)["text"]
+    assert "Run 'trial left-wheel' was 2.0 % slow" in text
+    assert "e: run it again at the usual speed first" in text
+    assert "removing material is not allowed on this rotor" in text
+
+
+def test_removal_is_shown_opposite_the_addition_where_the_profile_allows_it() -> None:
+    rig = Rig("shop-fan", Mode.ONE_PLANE)
+    # a plane whose maker allows drilling (invented)
+    rig.profile.planes[0] = replace(rig.profile.planes[0], removal_allowed=True)
+    rig.setup = setup_from_profile(rig.profile, Mode.ONE_PLANE)
+    rig.proc = Procedure(rig.setup, BalanceEngine())
+    for _ in range(2):
+        rig.hands_on()
+        rig.run()
+    assert "r: remove material instead (drill/grind)" in shown(rig)["text"]
+    rig.proc.set_removal(True)
+    text = shown(rig)["text"]
+    assert "r: add mass instead" in text
+    (c,) = rig.proc.solution.corrections
+    # the one removal rule (PlacedMass.as_addition): removing at theta = adding at theta+180
+    assert f"{c.plane}: remove {c.mass_g:.2f} g at {wrap_deg(c.angle_deg + 180):.0f}°" in text
+    assert all(f"{p.plane}: remove {p.mass_g:.2f} g" in text for p in rig.proc.solution.parts)
+
+
+def test_a_verdict_that_withholds_the_pass_says_why() -> None:
+    rig = Rig("bench-grinder", Mode.ONE_PLANE)  # one plane of a two-plane rotor
+    rig.complete()
+    text = shown(rig)["text"]
+    assert "NOT YET: ISO 21940-11" in text and "PASS" not in text
+    assert VERDICT_FLAG_WORDS[VerdictFlag.PARTIAL_PLANES] in text
+    assert "Enter: close the job and write the report" in text
+
+
+def test_a_lost_link_mid_run_says_nothing_of_the_run_is_kept() -> None:
+    rig = Rig("shop-fan", Mode.ONE_PLANE)
+    rig.hands_on()
+    rig.proc.arm_run(True, rig.t)
+    assert rig.proc.interrupt_run("link-lost", "cable pulled", rig.t)
+    assert rig.proc.step.phase is RunPhase.INTERRUPTED
+    seen = shown(rig, link_error="the port vanished")
+    assert seen["drawn"] == "link-panel" and panel_for(rig.proc.step) == "run-panel"
+    assert "LINK LOST: the port vanished" in seen["text"]
+    assert "Run 1 (as found) is incomplete: nothing of it was kept" in seen["text"]

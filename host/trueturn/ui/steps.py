@@ -178,7 +178,9 @@ class HandsOnPanel(ProcedurePanel):
     work: reactive[tuple[str, ...]] = reactive(())
     items: reactive[tuple[str, ...]] = reactive(())
     ticked: reactive[frozenset[int]] = reactive(frozenset())
-    evidence: reactive[StandstillEvidence | None] = reactive(None)
+    #: the standstill evidence in words: as shown (whole seconds, rounded levels), so the
+    #: panel repaints when the words change, not with every new sample
+    standstill: reactive[tuple[str, ...]] = reactive(())
 
     def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
         super().show(proc, snap, ctx)
@@ -188,19 +190,23 @@ class HandsOnPanel(ProcedurePanel):
         self.work = tuple("  " + describe_change(c, proc, ctx.engine) for c in step.changes)
         self.items = proc.checklist()
         self.ticked = frozenset(proc.ticked)
-        self.evidence = snap.evidence
+        self.standstill = self.evidence_words(snap.evidence)
+
+    def evidence_words(self, ev: StandstillEvidence | None) -> tuple[str, ...]:
+        """What proved standstill, or why it is not proven (and to stop the machine)."""
+        if ev is None:
+            return ()
+        if ev.proven:
+            return (f"[green]Standstill proven: {standstill_basis_words(ev)}.[/green]",)
+        style = "yellow" if ev.state is StandstillState.CHECKING else "b red"
+        lines = [f"[{style}]Not at proven standstill: {standstill_refusal(ev)}.[/]"]
+        if ev.state in (StandstillState.TURNING, StandstillState.TACH_FAULT):
+            how = texts.STOP_DEMO if self.demo else texts.STOP_MACHINE
+            lines.append(f"[b red]Stop: {how}.[/]")
+        return tuple(lines)
 
     def body(self) -> list[str]:
-        lines = list(self.work) or [texts.LOOK_OVER]
-        ev = self.evidence
-        if ev is not None and ev.proven:
-            lines.append(f"[green]Standstill proven: {standstill_basis_words(ev)}.[/green]")
-        elif ev is not None:
-            style = "yellow" if ev.state is StandstillState.CHECKING else "b red"
-            lines.append(f"[{style}]Not at proven standstill: {standstill_refusal(ev)}.[/]")
-            if ev.state in (StandstillState.TURNING, StandstillState.TACH_FAULT):
-                how = texts.STOP_DEMO if self.demo else texts.STOP_MACHINE
-                lines.append(f"[b red]Stop: {how}.[/]")
+        lines = [*(self.work or (texts.LOOK_OVER,)), *self.standstill]
         lockout = self.phase is HandsOnPhase.LOCKOUT
         lines.append(texts.TICK_BEFORE if lockout else texts.TICK_AFTER)
         for i, item in enumerate(self.items):

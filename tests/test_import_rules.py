@@ -130,18 +130,6 @@ def test_no_import_cycle_between_packages() -> None:
     assert cycle is None, " -> ".join(cycle or [])
 
 
-def test_pure_layers_import_no_io_library() -> None:
-    # the pure layers (and the validator they share, trueturn/schema.py) use no I/O library
-    bad = []
-    for top, path, tree in _modules():
-        if top not in PURE | {"schema"}:
-            continue
-        for module, _, line in _imports(tree):
-            if module.split(".")[0] in IO_LIBRARIES:
-                bad.append(f"{path.relative_to(PACKAGE)}:{line}: {module}")
-    assert not bad, "\n".join(bad)
-
-
 def test_each_core_noun_is_defined_once_in_the_model() -> None:
     where: dict[str, list[str]] = {}
     for _, path, tree in _modules():

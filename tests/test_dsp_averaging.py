@@ -76,3 +76,28 @@ def test_small_settled_1x_is_ready_with_a_note() -> None:
     ok, notes = steadiness(vector_stats(small), speeds)
     assert ok and not notes[0].blocking and notes[0].count == 200
     assert "settled after 200 revolutions" in describe(notes[0])
+
+
+def test_a_speed_still_changing_is_not_steady_but_scatter_around_a_steady_mean_is() -> None:
+    """The 1x of rotating unbalance goes as speed^p, p about 2...4 (forced response of a
+    single-degree-of-freedom system, from memory: any vibration textbook): a run whose
+    second half is 0.5 % faster than its first belongs to no one speed (its 1x moved by
+    1...2 %), while revolution-to-revolution scatter of +/-0.5 % around a steady mean moves
+    the averaged 1x only by p (p - 1) / 2 * (relative spread)^2, under 0.01 %."""
+    rng = np.random.default_rng(3)
+    good = 2.0 * np.exp(1j * 0.5) + 0.02 * (rng.normal(size=40) + 1j * rng.normal(size=40))
+    rising = np.linspace(1800.0 * (1 - 0.005), 1800.0 * (1 + 0.005), 40)  # halves 0.5 % apart
+    ok, reasons = steadiness(vector_stats(good), rising, pickup="left")
+    codes = [r.code for r in reasons]
+    assert not ok and codes == [Code.SPEED_DRIFTING]
+    drift = reasons[0].details["drift_pct"]
+    half = 20
+    want = 100 * (rising[half:].mean() - rising[:half].mean()) / rising[:half].mean()
+    assert drift == pytest.approx(want, rel=1e-3) and drift > 0.3
+    assert "speed still rising" in describe(reasons[0])
+    assert steadiness(vector_stats(good), rising[::-1])[1][0].details["drift_pct"] < -0.3
+    scatter = 1800.0 * (1 + 0.005 * rng.uniform(-1, 1, 40))  # +/-0.5 %, no trend
+    ok, reasons = steadiness(vector_stats(good), scatter)
+    assert ok and reasons == ()
+    slow_drift = np.linspace(1800.0, 1800.0 * 1.002, 40)  # halves 0.1 % apart: fine
+    assert steadiness(vector_stats(good), slow_drift)[0]

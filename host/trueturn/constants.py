@@ -12,3 +12,10 @@ STANDARD_GRAVITY_M_S2 = 9.80665
 MM_PER_INCH = 25.4
 #: Micrometres per mil (1 mil = 0.001 in, exact).
 UM_PER_MIL = 25.4
+
+#: Two speeds further apart than this fraction give 1x readings that cannot be compared as
+#: "the same speed": the unbalance response goes as speed^p with p about 2...4 (rotating
+#: unbalance, forced response of a single-degree-of-freedom system, from memory: any
+#: vibration textbook), so 0.3 % moves the 1x by 0.6...1.2 %, about the resolution of a good
+#: reading. Used between runs (balance.speed) and between the halves of one run (dsp).
+SPEED_MATCH_FRACTION = 0.003

@@ -28,10 +28,11 @@ import numpy as np
 
 from trueturn.balance.influence import SPEED_MATCH, Solution, speed_groups
 from trueturn.balance.readings import BalanceInput
+from trueturn.constants import SPEED_MATCH_FRACTION
 from trueturn.model import Run
 
 #: runs further than this fraction from their group's reference speed are reported
-SPEED_WARN_FRACTION = 0.003
+SPEED_WARN_FRACTION = SPEED_MATCH_FRACTION
 #: the range of the response's speed exponent p (1x ~ speed**p) used for the estimate
 EXPONENT_RANGE: tuple[float, float] = (2.0, 4.0)
 

@@ -17,6 +17,7 @@ from functools import lru_cache
 import numpy as np
 from scipy import stats
 
+from trueturn.constants import SPEED_MATCH_FRACTION
 from trueturn.dsp.findings import Code, Finding
 
 
@@ -93,8 +94,15 @@ class SteadinessLimits:
     """When a reading is ready: enough revolutions, steady speed, tight or settled vector.
 
     Defaults are common practice, no source: a 5 degree phase confidence is well inside
-    what a trial-weight run can resolve, 2 % speed spread keeps the rotor's response
-    (resonances) from shifting noticeably on a small machine. A small 1x (a rotor already
+    what a trial-weight run can resolve. Speed, two checks: the mean speed of the second
+    half of the averaged revolutions may differ from the first half's by at most
+    ``max_speed_drift_pct`` (0.3 %, :data:`trueturn.constants.SPEED_MATCH_FRACTION`, the same
+    ground as between runs: the 1x goes as speed^2...4, so a machine still speeding up or
+    slowing down gives a reading that belongs to no one speed); and the spread of single
+    revolutions (max - min) at most ``max_speed_spread_pct`` (2 %), a gross check on an
+    unstable drive or tach - revolution-to-revolution scatter around a steady mean biases
+    the averaged 1x only to second order (p (p - 1) / 2 times the squared relative spread,
+    under 0.1 % at 2 %), so it is not a bound on the reading's accuracy. A small 1x (a rotor already
     well balanced, at the check run) may never reach 5 degrees: after
     ``settled_revolutions`` without drift the reading is ready anyway, with its confidence
     radius saying how uncertain it is (the balance layer judges it against the tolerance).
@@ -102,6 +110,7 @@ class SteadinessLimits:
 
     min_revolutions: int = 8
     max_speed_spread_pct: float = 2.0
+    max_speed_drift_pct: float = 100.0 * SPEED_MATCH_FRACTION
     max_confidence_deg: float = 5.0
     settled_revolutions: int = 64
 
@@ -127,6 +136,14 @@ def steadiness(vector: VectorStats, speeds_rpm: np.ndarray,
             blocking.append(Finding(Code.SPEED_VARIES, pickup, int(speeds.size),
                                     {"spread_pct": round(spread, 3),
                                      "limit_pct": lim.max_speed_spread_pct}, blocking=True))
+    half = speeds.size // 2
+    if half >= 2:
+        first, second = float(speeds[:half].mean()), float(speeds[speeds.size - half:].mean())
+        drift = 100.0 * (second - first) / first
+        if abs(drift) > lim.max_speed_drift_pct:
+            blocking.append(Finding(Code.SPEED_DRIFTING, pickup, int(speeds.size),
+                                    {"drift_pct": round(drift, 3),
+                                     "limit_pct": lim.max_speed_drift_pct}, blocking=True))
     if vector.drifting:
         blocking.append(Finding(Code.VECTOR_DRIFTING, pickup, vector.revolutions,
                                 {"drift": vector.drift, "drift_radius": vector.drift_radius},

@@ -49,6 +49,7 @@ class Code(str, Enum):
     UNCALIBRATED = "uncalibrated"                    # no sensitivity: shown in volts
     FEW_REVOLUTIONS = "few_revolutions"              # fewer than the minimum averaged
     SPEED_VARIES = "speed_varies"                    # speed spread above the limit
+    SPEED_DRIFTING = "speed_drifting"                # mean speed moved between the halves
     VECTOR_DRIFTING = "vector_drifting"              # first and second half disagree
     PHASE_UNCERTAIN = "phase_uncertain"              # phase confidence above the aim
     NOT_ABOVE_SCATTER = "not_above_scatter"          # the 95 % circle covers the origin
@@ -63,7 +64,8 @@ TACH_CODES = frozenset({Code.NO_TACH, Code.TACH_EXTRA_EDGES, Code.TACH_MISSED_ED
 TACH_LINE = (Code.NO_TACH, Code.TACH_MISSED_EDGES, Code.LINK_TACH_LOST, Code.TACH_EXTRA_EDGES,
              Code.TACH_UNEVEN)
 # The codes that block a reading from being steady (see averaging.steadiness).
-BLOCKING_CODES = frozenset({Code.FEW_REVOLUTIONS, Code.SPEED_VARIES, Code.VECTOR_DRIFTING,
+BLOCKING_CODES = frozenset({Code.FEW_REVOLUTIONS, Code.SPEED_VARIES, Code.SPEED_DRIFTING,
+                            Code.VECTOR_DRIFTING,
                             Code.PHASE_UNCERTAIN, Code.NOT_ABOVE_SCATTER})
 
 
@@ -183,6 +185,11 @@ def _sentence(f: Finding) -> str:
     if c is Code.SPEED_VARIES:
         return (f"speed varies by {_n(f, 'spread_pct'):.1f} % "
                 f"(limit {_n(f, 'limit_pct'):g} %)")
+    if c is Code.SPEED_DRIFTING:
+        drift = _n(f, "drift_pct")
+        return (f"speed still {'rising' if drift > 0 else 'falling'}: the second half ran "
+                f"{abs(drift):.2f} % {'faster' if drift > 0 else 'slower'} than the first "
+                f"(limit {_n(f, 'limit_pct'):g} %); wait for a steady speed")
     if c is Code.VECTOR_DRIFTING:
         return "1x vector still changing (first and second half disagree)"
     if c in (Code.PHASE_UNCERTAIN, Code.NOT_ABOVE_SCATTER):

@@ -89,8 +89,12 @@ def impaired_stream(n_frames: int, rng: random.Random) -> tuple[bytes, int, int,
     hit = np.asarray(owner)[np.searchsorted(ends, flips // 8, side="right")]
     corrupted = truncated | {int(i) for i in hit if i >= 0}
     # one clean frame closes the stream, as the next frame of a live stream would: a loss
-    # at the very end cannot be seen from sequence numbers before a later frame arrives
-    return stream.tobytes() + _frame(n_frames), impaired, int(flips.size), len(corrupted)
+    # at the very end cannot be seen from sequence numbers before a later frame arrives;
+    # and one opens it, as the board's identity opens a live stream: a loss of the very
+    # first frame cannot be seen without a frame before it
+    opening = encode_frame("pong", 0xFF, {"token": 0, "tick": 0})
+    return (opening + stream.tobytes() + _frame(n_frames), impaired, int(flips.size),
+            len(corrupted))
 
 
 def fuzz_stream(n_frames: int) -> dict[str, float]:
@@ -112,6 +116,8 @@ def fuzz_stream(n_frames: int) -> dict[str, float]:
         for item in items:
             if not isinstance(item, Message):
                 continue
+            if item.name == "pong" and item.seq == 0xFF and item.values["token"] == 0:
+                continue  # the opening frame
             first = item.values.get("first_index", -1)
             ok = (item.name == "samples" and first % SAMPLES_PER_FRAME == 0
                   and 0 <= first <= n_frames * SAMPLES_PER_FRAME  # the closing frame too

@@ -4,7 +4,7 @@ VENV   ?= .venv
 PY     := $(VENV)/bin/python
 STAMP  := $(VENV)/.installed
 
-.PHONY: demo test test-python lint bench firmware firmware-image clean
+.PHONY: demo test test-python lint typecheck bench firmware firmware-image clean
 
 $(STAMP): pyproject.toml
 	test -x $(PY) || $(PYTHON) -m venv $(VENV)
@@ -19,6 +19,7 @@ test: $(STAMP)
 	$(MAKE) -C firmware test
 	$(MAKE) -C firmware
 	$(PY) -m ruff check host tests bench
+	$(PY) -m mypy
 	$(PY) -m pytest -q
 
 test-python: $(STAMP)
@@ -26,6 +27,10 @@ test-python: $(STAMP)
 
 lint: $(STAMP)
 	$(PY) -m ruff check host tests bench
+
+# mypy, set up in pyproject.toml [tool.mypy] (files, strictness); cache in build/mypy_cache
+typecheck: $(STAMP)
+	$(PY) -m mypy
 
 bench: $(STAMP)
 	$(PY) bench/run_all.py

@@ -149,9 +149,9 @@ def _convert(tp: Any, value: Any, ctx: _Context, meta: typing.Mapping[str, Any])
             ctx.fail(f"{_describe(value)} is not one of: {', '.join(str(c) for c in choices)}")
         return tp(value)
     if origin is Literal:
-        choices = typing.get_args(tp)
-        if isinstance(value, bool) or value not in choices:
-            listed = ", ".join(str(c) for c in choices)
+        allowed = typing.get_args(tp)
+        if isinstance(value, bool) or value not in allowed:
+            listed = ", ".join(str(c) for c in allowed)
             ctx.fail(f"{_describe(value)} is not one of: {listed}")
         return value
     if origin is list:
@@ -162,17 +162,17 @@ def _convert(tp: Any, value: Any, ctx: _Context, meta: typing.Mapping[str, Any])
         _check_limits(items, meta, ctx)
         return items
     if origin is tuple:
-        args = typing.get_args(tp)
+        fields = typing.get_args(tp)
         if not isinstance(value, list):
             ctx.fail(f"must be a list, got {_describe(value)}")
-        if len(args) == 2 and args[1] is Ellipsis:
-            items = _items(args[0], value, ctx)
+        if len(fields) == 2 and fields[1] is Ellipsis:
+            items = _items(fields[0], value, ctx)
         else:
-            if len(value) != len(args):
-                ctx.fail(f"must be a list of {len(args)} values, got {len(value)}")
+            if len(value) != len(fields):
+                ctx.fail(f"must be a list of {len(fields)} values, got {len(value)}")
             item_lines = getattr(value, "item_lines", [])
             items = [_convert(a, v, ctx.child(i, item_lines[i] if i < len(item_lines) else None),
-                              {}) for i, (a, v) in enumerate(zip(args, value, strict=True))]
+                              {}) for i, (a, v) in enumerate(zip(fields, value, strict=True))]
         _check_limits(items, meta, ctx)
         return tuple(items)
     if origin is dict:
@@ -192,7 +192,7 @@ def _convert(tp: Any, value: Any, ctx: _Context, meta: typing.Mapping[str, Any])
             out[name] = _convert(item_type, item, ctx.child(name, key_lines.get(key)), {})
         _check_limits(out, meta, ctx)
         return out
-    if dataclasses.is_dataclass(tp):
+    if isinstance(tp, type) and dataclasses.is_dataclass(tp):
         return _from_mapping(tp, value, ctx)
     if tp is str:
         if isinstance(value, (dt.datetime, dt.date)):

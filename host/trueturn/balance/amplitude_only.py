@@ -45,7 +45,8 @@ SAME_ANSWER = 0.05
 MAX_FIT_SCATTER = 0.10
 
 
-def _fit(w: np.ndarray, v: np.ndarray, weights: np.ndarray, u0: complex, t0: np.ndarray):
+def _fit(w: np.ndarray, v: np.ndarray, weights: np.ndarray, u0: complex, t0: np.ndarray
+         ) -> tuple[complex, np.ndarray, float, np.ndarray]:
     """Nonlinear least squares of V[k, s] = t_s |u + w_k| from one start."""
     scale = np.maximum(v.max(axis=0), 1e-30)
 

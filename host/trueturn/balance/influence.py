@@ -17,7 +17,7 @@ Angles follow :mod:`trueturn.angles`.
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -126,9 +126,10 @@ def speed_groups(runs: Sequence[Run]) -> list[float | None]:
         raise UserError("runs: speed_rpm is given in some runs but not in others")
     groups: list[float] = []
     for s in speeds:
+        assert s is not None  # every run has a speed (checked above)
         if not any(abs(s - g) <= SPEED_MATCH * g for g in groups):
             groups.append(s)
-    return groups
+    return [g for g in groups]
 
 
 def _group_of(speed: float | None, groups: Sequence[float | None]) -> float | None:
@@ -308,7 +309,12 @@ def correction_for(r0: np.ndarray, matrix: np.ndarray, channel_weights: np.ndarr
     return z, over
 
 
-def _uncertainty(inp: BalanceInput, fit, nominal: np.ndarray, weights: np.ndarray,
+#: Re-fit of the as-found vectors and the coefficient matrix with some readings replaced
+#: (run index, pickup) -> reading phasor; ``None`` keeps the readings as measured.
+_Refit = Callable[[dict[tuple[int, str], complex] | None], tuple[np.ndarray, np.ndarray]]
+
+
+def _uncertainty(inp: BalanceInput, fit: _Refit, nominal: np.ndarray, weights: np.ndarray,
                  limits: Sequence[float | None]) -> tuple[list[float], list[float]] | None:
     """95 % half-widths of each correction's mass and angle, Monte Carlo over the readings'
     confidence circles (fixed seed, reproducible)."""
@@ -322,7 +328,7 @@ def _uncertainty(inp: BalanceInput, fit, nominal: np.ndarray, weights: np.ndarra
     rng = np.random.default_rng(20211)
     draws = []
     for _ in range(MONTE_CARLO_DRAWS):
-        override = {}
+        override: dict[tuple[int, str], complex] = {}
         for k, run in enumerate(inp.runs):
             for name, r in run.readings.items():
                 s = sigma.get((k, name), 0.0)
@@ -407,11 +413,13 @@ def solve_with_phase(inp: BalanceInput) -> Solution:
     if inp.influence:
         model = model_from_saved(inp.influence, planes, sensors, inp.runs)
 
-        def fit(override=None):
+        def fit(override: dict[tuple[int, str], complex] | None = None
+                ) -> tuple[np.ndarray, np.ndarray]:
             return as_found_with_model(model, inp.runs, planes, override), model.matrix
         method = "trim with saved influence coefficients"
     else:
-        def fit(override=None):
+        def fit(override: dict[tuple[int, str], complex] | None = None
+                ) -> tuple[np.ndarray, np.ndarray]:
             r0_, m_ = fit_influence(inp.runs, planes, sensors, override)
             return r0_, m_.matrix
         _, model = fit_influence(inp.runs, planes, sensors)

@@ -66,8 +66,9 @@ def solve(inp: BalanceInput) -> SolveReport:
     report = SolveReport(solution, speed=speed, correction_findings=findings)
     if len(solution.corrections) == 2:
         first, second = solution.corrections
-        report.static_couple = static_couple(first.vector_g * first.radius_mm,
-                                             second.vector_g * second.radius_mm)
+        radius_mm = {p.name: p.radius_mm for p in inp.planes}
+        report.static_couple = static_couple(first.vector_g * radius_mm[first.plane],
+                                             second.vector_g * radius_mm[second.plane])
     tol = inp.tolerance
     if tol is not None and solution.residual_now_gmm is not None:
         report.u_per_gmm = permissible_unbalance_gmm(tol.grade_mm_s, tol.speed_rpm,
@@ -96,9 +97,11 @@ def tolerance_verdict(inp: BalanceInput, solution: Solution, u_per_gmm: float) -
     tol = inp.tolerance
     assert tol is not None and solution.residual_now_gmm is not None
     if inp.bearings and solution.residual_now_vector_gmm is not None:
-        planes_mm = [p.axial_mm for p in inp.planes]
-        assert all(z is not None for z in planes_mm)  # parse_readings requires them
-        return bearing_verdict(solution.residual_now_vector_gmm, planes_mm,  # type: ignore[arg-type]
+        planes_mm: list[float] = []
+        for p in inp.planes:
+            assert p.axial_mm is not None  # parse_readings requires them with bearings
+            planes_mm.append(p.axial_mm)
+        return bearing_verdict(solution.residual_now_vector_gmm, planes_mm,
                                [b.axial_mm for b in inp.bearings], u_per_gmm, tol.cg_axial_mm,
                                bearing_names=[b.name for b in inp.bearings],
                                speed_rpm=tol.speed_rpm)

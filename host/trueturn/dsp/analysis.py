@@ -61,8 +61,8 @@ class Analysis:
     findings: tuple[Finding, ...] = ()  # the warnings as data, in the same order
 
     def to_json(self) -> dict[str, Any]:
-        def num(x: float, digits: int = 6) -> float | None:
-            return None if not math.isfinite(x) else round(float(x), digits)
+        def num(x: float | None, digits: int = 6) -> float | None:
+            return None if x is None or not math.isfinite(x) else round(float(x), digits)
 
         return {
             "speed_rpm": num(self.speed_rpm, 3),
@@ -117,7 +117,7 @@ def analyze_capture(raw: bytes, revs: int | None = None, mains_hz: float | None 
     feed = meter.feed
     for start in range(0, len(raw), chunk):
         for item in decoder.feed(raw[start:start + chunk]):
-            if item.__class__ is LinkEvent:
+            if isinstance(item, LinkEvent):
                 if item.kind == "board_reset":
                     found.append(Finding(Code.BOARD_RESTART))
                 elif item.kind == "stream_config_missing" and meter.config is not None:
@@ -144,10 +144,10 @@ def analyze_capture(raw: bytes, revs: int | None = None, mains_hz: float | None 
         if meter.config is not None and meter.tach.revolutions:
             found.append(Finding(Code.NO_WHOLE_REVOLUTION))
     spectra = []
-    for ch, spec in enumerate(meter.spectra()):
-        if spec is not None:
+    for ch, pickup_spectrum in enumerate(meter.spectra()):
+        if pickup_spectrum is not None:
             spectra.append(PickupPeaks(meter.profile(ch).name, meter.spectrum_unit(ch),
-                                       spec.resolution_hz, spec.peaks))
+                                       pickup_spectrum.resolution_hz, pickup_spectrum.peaks))
     if mains_hz in (50.0, 60.0):
         other_mains = 110.0 - mains_hz
         for spec in spectra:
@@ -172,7 +172,7 @@ class _BoardLosses:
         self.block_max = 0
 
     def status(self, msg: Message) -> None:
-        now = {k: int(msg[k]) for k in self.total}
+        now = {k: int(msg.values[k]) for k in self.total}
         if self.last is not None and all(now[k] >= v for k, v in self.last.items()):
             for k in self.total:
                 self.total[k] += now[k] - self.last[k]

@@ -71,7 +71,8 @@ TIMING_BIAS_TICKS = 1.5
 
 
 class MessageLike(Protocol):
-    name: str
+    @property
+    def name(self) -> str: ...
 
     def __getitem__(self, key: str) -> Any: ...
 
@@ -559,11 +560,12 @@ class LiveAnalyzer:
         if not self.mains_hz:
             return {}
         nyquist = self.rate_hz / 2.0
-        groups = {}
+        groups: dict[float, tuple[float, ...]] = {}
         for multiple in (1, 2):
             base = multiple * self.mains_hz
             spread = multiple * self.hum_spread_hz
-            comb = (base - spread, base, base + spread) if spread > 0 else (base,)
+            comb: tuple[float, ...] = (base - spread, base, base + spread) if spread > 0 \
+                else (base,)
             comb = tuple(f for f in comb if 0 < f < nyquist)
             if comb:
                 groups[base] = comb

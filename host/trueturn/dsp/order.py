@@ -254,11 +254,11 @@ def fit_blocks(sample_ticks: list[np.ndarray], values: list[np.ndarray], starts:
     for c, ticks in enumerate(ticks_all):
         lo = np.searchsorted(ticks, starts, side="left")
         counts = np.searchsorted(ticks, ends, side="left") - lo
-        even, step = _evenly_spaced(ticks, lo, counts) if group > 1 else \
+        even, step_c = _evenly_spaced(ticks, lo, counts) if group > 1 else \
             (np.zeros(n_revs, dtype=bool), 0)
         lo_rows.append(lo + offsets[c])
         counts_rows.append(counts)
-        step_rows.append(np.full(n_revs, step, dtype=np.int64))
+        step_rows.append(np.full(n_revs, step_c, dtype=np.int64))
         even_rows.append(even)
         first_rows.append(ticks[np.minimum(lo, max(len(ticks) - 1, 0))] if len(ticks) else
                           np.zeros(n_revs, dtype=np.int64))
@@ -349,7 +349,7 @@ def _finish(gram: np.ndarray, observations: np.ndarray, counts: np.ndarray, n_ch
     for c in range(n_ch):
         r = slice(c * n_revs, (c + 1) * n_revs)
         fits.append(BlockFit(tuple(orders), tuple(nuisance_hz), coef_y[r],
-                             *(arr[r] for arr in blocks), counts[r], observations[r]))
+                             *(arr[r] for arr in (*blocks, counts, observations))))
     return fits
 
 
@@ -402,7 +402,7 @@ def _dense_gram(sample_ticks: np.ndarray, values: np.ndarray, starts: np.ndarray
     return np.matmul(per_rev, per_rev.transpose(0, 2, 1))
 
 
-def _dirichlet(angle: np.ndarray, n: np.ndarray) -> np.ndarray:
+def _dirichlet(angle: np.ndarray, n: np.ndarray | float) -> np.ndarray:
     """``D_n(b) = sin(n b/2) / sin(b/2)``, so that ``sum_{k<n} exp(i b k) = exp(i b (n-1)/2)
     D_n(b)`` (Dirichlet kernel; n at b = 0, where the quotient is 0/0)."""
     half = 0.5 * angle

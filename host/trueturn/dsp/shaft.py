@@ -37,6 +37,7 @@ from __future__ import annotations
 import functools
 import math
 from collections import deque
+from collections.abc import Sequence
 from dataclasses import dataclass
 from typing import NamedTuple
 
@@ -322,7 +323,7 @@ class TachTracker:
             self._rejected_in_row = 0
 
 
-def _median(values: list[float]) -> float:
+def _median(values: Sequence[float]) -> float:
     """Median as :func:`statistics.median` gives it (mean of the middle two for even n)."""
     ordered = sorted(values)
     mid = len(ordered) // 2

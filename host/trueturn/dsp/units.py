@@ -25,6 +25,7 @@ from typing import Any, Literal
 import numpy as np
 
 from trueturn.constants import MM_PER_INCH, STANDARD_GRAVITY_M_S2, UM_PER_MIL  # noqa: F401
+from trueturn.model.units import VibrationUnit, is_vibration_unit
 
 Quantity = Literal["volts", "acceleration", "velocity", "displacement"]
 
@@ -95,18 +96,18 @@ def default_unit(profile: PickupProfile) -> str:
 
 
 def conversion_factors(profile: PickupProfile, frequency_hz: float | np.ndarray,
-                       unit: str) -> tuple[Any, str]:
+                       unit: str) -> tuple[Any, VibrationUnit]:
     """Complex factors taking a volts phasor (peak) at ``frequency_hz`` to ``unit``.
 
     Compensates the profile's input chain. An uncalibrated pickup asked for a physical unit
     gives volts (the returned unit says so); the caller warns.
     """
-    if unit not in UNITS:
+    if unit not in UNITS or not is_vibration_unit(unit):
         raise ValueError(f"unknown unit {unit!r}; choose one of {', '.join(UNITS)}")
     f = np.asarray(frequency_hz, dtype=float)
     factor = 1.0 / np.asarray(chain_response(profile, f))
     quantity, scale = UNITS[unit]
-    used = unit
+    used: VibrationUnit = unit
     if quantity == "volts" or not profile.calibrated:
         used = "V pk"
     else:
@@ -122,7 +123,7 @@ def conversion_factors(profile: PickupProfile, frequency_hz: float | np.ndarray,
 
 
 def convert_phasor(volts_phasor: complex, profile: PickupProfile, frequency_hz: float,
-                   unit: str) -> tuple[complex, str]:
+                   unit: str) -> tuple[complex, VibrationUnit]:
     """A phasor in volts (peak) at ``frequency_hz`` -> (phasor in ``unit``, unit used)."""
     factor, used = conversion_factors(profile, frequency_hz, unit)
     return complex(volts_phasor * factor), used

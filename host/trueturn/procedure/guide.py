@@ -206,7 +206,7 @@ class RunPhase(str, Enum):
 class HandsOn:
     """The person works on the rotor: ``changes`` to make, between two gates."""
 
-    kind: ClassVar[str] = "hands-on"
+    kind: ClassVar[Literal["hands-on"]] = "hands-on"
     title: str
     changes: tuple[MassChange, ...] = ()
     phase: HandsOnPhase = HandsOnPhase.LOCKOUT
@@ -216,7 +216,7 @@ class HandsOn:
 class Measure:
     """A run: the machine spins while the pickups are averaged."""
 
-    kind: ClassVar[str] = "run"
+    kind: ClassVar[Literal["run"]] = "run"
     title: str
     run_label: str
     run_kind: RunKind
@@ -227,7 +227,7 @@ class Measure:
 class ShowCorrection:
     """The correction (or the reason there is none) is shown."""
 
-    kind: ClassVar[str] = "correction"
+    kind: ClassVar[Literal["correction"]] = "correction"
     title: str
 
 
@@ -235,7 +235,7 @@ class ShowCorrection:
 class ShowVerdict:
     """The verdict is shown; the job closes."""
 
-    kind: ClassVar[str] = "verdict"
+    kind: ClassVar[Literal["verdict"]] = "verdict"
     title: str
 
 

@@ -239,13 +239,13 @@ def test_late_adc_conversions_without_a_gap_are_refused() -> None:
     # be wrong. The meter must give no reading and say why (issue 14, item 1).
     raw, _ = synthesize(RUN)
     meter = LiveAnalyzer()
-    meter.feed_all(_with_status(_messages(raw), adc_overruns_end=2))
+    _feed_all(meter, _with_status(_messages(raw), adc_overruns_end=2))
     meter.end_of_stream()
     assert meter.readings() == []
     assert any(w.startswith("refused:") and "adc_late" in w for w in meter.stream_warnings())
     # the same capture with no late conversion counted gives readings
     clean = LiveAnalyzer()
-    clean.feed_all(_with_status(_messages(raw), adc_overruns_end=0))
+    _feed_all(clean, _with_status(_messages(raw), adc_overruns_end=0))
     clean.end_of_stream()
     assert len(clean.readings()) == 2
     assert not any("adc_late" in w for w in clean.stream_warnings())
@@ -257,7 +257,7 @@ def test_late_adc_conversions_with_their_gap_are_flagged_and_left_out() -> None:
     run = SyntheticRun(**{**RUN.__dict__, "lost_blocks": (30,)})
     raw, truth = synthesize(run)
     meter = LiveAnalyzer()
-    meter.feed_all(_with_status(_messages(raw), adc_overruns_end=1))
+    _feed_all(meter, _with_status(_messages(raw), adc_overruns_end=1))
     meter.end_of_stream()
     readings = meter.readings()
     assert len(readings) == 2 and meter.revs_with_gaps >= 1
@@ -318,3 +318,8 @@ def test_the_circle_covers_a_tach_captured_one_tick_late() -> None:
         assert r.confidence_random < 0.25 * one_tick  # the scatter alone cannot show it
         assert abs(r.phasor - want) > r.confidence_random
         assert abs(r.phasor - want) <= r.confidence_radius
+
+
+def _feed_all(meter, messages) -> None:  # type: ignore[no-untyped-def]
+    for msg in messages:
+        meter.feed(msg)

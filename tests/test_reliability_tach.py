@@ -251,3 +251,24 @@ def test_runs_of_knocked_edges_are_cleaned_and_the_average_stays_in_its_circle(
     for r in result.readings:
         assert r.revolutions == 50 and r.steady, r.warnings
         assert abs(r.phasor - _truth(r.channel)) <= SLACK * r.confidence_radius, r
+
+
+def test_chatter_the_board_ignored_is_said_and_the_reading_kept(tmp_path: Path) -> None:
+    """A tach that chatters is cleaned by the board's hold-off (status.tach_suppressed,
+    SPEC): analyze keeps the reading and says so, with the count, so the person can fix the
+    sensor; a clean tach says nothing of it."""
+    found = {}
+    for name, extra in (("clean", ""), ("chatter", "&tach=chatter")):
+        cap = tmp_path / f"{name}.cap"
+        code, _, err = run_cli(["record", "--port", f"sim://bench-grinder?realtime=0{extra}",
+                                "--seconds", "4", "-o", str(cap), "--quiet"])
+        assert code == 0, err
+        code, text, err = run_cli(["analyze", "--json", str(cap)])
+        assert code == 0, err
+        found[name] = json.loads(text)
+    chatter = [f for f in found["chatter"]["findings"]
+               if f["code"] == "tach_chatter_suppressed"]
+    assert len(chatter) == 1 and chatter[0]["count"] > 0
+    assert not any(f["code"].startswith("tach_c") for f in found["clean"]["findings"])
+    for a, b in zip(found["clean"]["pickups"], found["chatter"]["pickups"], strict=True):
+        assert b["steady"] == a["steady"] and abs(b["phase_deg"] - a["phase_deg"]) < 1.0

@@ -44,6 +44,8 @@ class Code(str, Enum):
     ADC_LATE_REFUSED = "adc_late_refused"            # late conversions without a gap: refused
     ADC_LATE = "adc_late"                            # late conversions, dropped with their revs
     CLIPPED = "clipped"                              # samples at the ADC limits
+    TACH_CHATTER_SUPPRESSED = "tach_chatter_suppressed"  # the board's hold-off ate edges
+    TACH_CAPTURE_OVERWRITTEN = "tach_capture_overwritten"  # two edges inside one latency
     ADC_REFERENCE_REFUSED = "adc_reference_refused"  # reference outside the usable range
     # one pickup's reading
     UNCALIBRATED = "uncalibrated"                    # no sensitivity: shown in volts
@@ -62,7 +64,8 @@ TACH_CODES = frozenset({Code.NO_TACH, Code.TACH_EXTRA_EDGES, Code.TACH_MISSED_ED
 # The app's "Tach:" line: the tach codes and tach edges lost on the link, in the order a
 # person should look at them.
 TACH_LINE = (Code.NO_TACH, Code.TACH_MISSED_EDGES, Code.LINK_TACH_LOST, Code.TACH_EXTRA_EDGES,
-             Code.TACH_UNEVEN)
+             Code.TACH_UNEVEN,
+             Code.TACH_CHATTER_SUPPRESSED)
 # The codes that block a reading from being steady (see averaging.steadiness).
 BLOCKING_CODES = frozenset({Code.FEW_REVOLUTIONS, Code.SPEED_VARIES, Code.SPEED_DRIFTING,
                             Code.VECTOR_DRIFTING,
@@ -175,6 +178,14 @@ def _sentence(f: Finding) -> str:
         return (f"refused: the ADC reference {_n(f, 'field')} is {_n(f, 'reference_mv')} mV, "
                 f"outside {_n(f, 'min_mv')}..{_n(f, 'max_mv')} mV: the board's USB supply is "
                 "out of range (try another USB port, cable or a powered hub)")
+    if c is Code.TACH_CHATTER_SUPPRESSED:
+        return (f"the tach chattered: the board's hold-off ignored {n} extra edge(s) "
+                "(status.tach_suppressed); the readings are kept, but a tach module with "
+                "hysteresis (or a Schmitt buffer) and a short shielded cable make it clean")
+    if c is Code.TACH_CAPTURE_OVERWRITTEN:
+        return (f"{n} tach edge time(s) were overwritten by a second edge within the "
+                "board's interrupt latency (status.capture_overwrites): those revolutions' "
+                "start may be late by a few microseconds; fix the tach chatter")
     if c is Code.CLIPPED:
         return (f"{n} sample(s) at the ADC limits: the pickup signal clips; reduce its gain "
                 "or move it")
@@ -216,6 +227,8 @@ _BRIEF = {
     Code.TACH_EXTRA_EDGES: "extra tach edges{n}: a second mark, scratch or flicker",
     Code.TACH_UNEVEN: "uneven tach edges: clean the mark, tighten the sensor",
     Code.LINK_TACH_LOST: "tach edges lost on the USB link{n}: check the cable and the port",
+    Code.TACH_CHATTER_SUPPRESSED: "tach chatter ignored by the board{n}: readings kept; "
+                                  "a tach module with hysteresis would be cleaner",
 }
 
 

@@ -23,7 +23,7 @@ import bisect
 import dataclasses
 import math
 from collections import deque
-from collections.abc import Iterable, Sequence
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any, Protocol
 
@@ -49,7 +49,6 @@ from trueturn.dsp.shaft import Revolution, TachTracker, extend_tick
 from trueturn.dsp.spectrum import Spectrum, name_by_levels, spectrum
 from trueturn.dsp.units import (
     PickupProfile,
-    chain_response,
     conversion_factors,
     convert_phasor,
     default_unit,
@@ -346,7 +345,8 @@ class LiveAnalyzer:
         if self.config is None or self._next_index is None:
             self._board_base = counters  # before the stream's first sample block
             return
-        if self._board_base is None or any(counters[k] < v for k, v in self._board_base.items()):
+        if self._board_base is None or any(counters.get(k, 0) < v
+                                           for k, v in self._board_base.items()):
             self._board_base = counters  # first status of the stream, or the board restarted
         self._board_now = counters
 
@@ -355,7 +355,7 @@ class LiveAnalyzer:
         during this stream, as far as the status messages received tell."""
         if self._board_base is None or self._board_now is None:
             return {}
-        return {k: v - self._board_base[k] for k, v in self._board_now.items()}
+        return {k: v - self._board_base.get(k, v) for k, v in self._board_now.items()}
 
     @property
     def adc_late_unexplained(self) -> bool:
@@ -380,10 +380,6 @@ class LiveAnalyzer:
         came back in step."""
         self._ended = True
         self.tach.close_run()
-
-    def feed_all(self, messages: Iterable[MessageLike]) -> None:
-        for msg in messages:
-            self.feed(msg)
 
     def _sample_tick(self, index: int) -> int:
         return self.start_tick + index * self.period_ticks + self.aperture_ticks
@@ -619,6 +615,11 @@ class LiveAnalyzer:
             out.append(Finding(Code.ADC_LATE_REFUSED, count=losses["adc_overruns"]))
         elif losses.get("adc_overruns", 0) > 0:
             out.append(Finding(Code.ADC_LATE, count=losses["adc_overruns"]))
+        if losses.get("tach_suppressed", 0) > 0:
+            out.append(Finding(Code.TACH_CHATTER_SUPPRESSED, count=losses["tach_suppressed"]))
+        if losses.get("capture_overwrites", 0) > 0:
+            out.append(Finding(Code.TACH_CAPTURE_OVERWRITTEN,
+                               count=losses["capture_overwrites"]))
         if self.clipped_samples:
             out.append(Finding(Code.CLIPPED, count=self.clipped_samples))
         return out
@@ -773,11 +774,16 @@ class _BlockTimebase:
         return self.values[key]
 
 
+#: board counters followed over a stream; the last two exist from protocol 3 on
+BOARD_COUNTERS = ("adc_overruns", "samples_dropped", "frames_dropped", "tach_suppressed",
+                  "capture_overwrites")
+
+
 def _board_counters(msg: MessageLike) -> dict[str, int]:
-    return {k: int(msg[k]) for k in ("adc_overruns", "samples_dropped", "frames_dropped")}
-
-
-def chain_phase_deg(profile: PickupProfile, frequency_hz: float) -> float:
-    """Phase lag (degrees) of the profile's known input chain at ``frequency_hz``."""
-    z = chain_response(profile, frequency_hz)
-    return math.degrees(math.atan2(z.imag, z.real))
+    out = {}
+    for k in BOARD_COUNTERS:
+        try:
+            out[k] = int(msg[k])
+        except (KeyError, TypeError, ValueError):
+            continue  # a status from an older protocol
+    return out

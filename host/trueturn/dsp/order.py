@@ -194,23 +194,6 @@ def tone_basis(times_s: np.ndarray, tones_hz: tuple[float, ...],
     return out
 
 
-def assign_revolutions(sample_ticks: np.ndarray, starts: np.ndarray,
-                       ends: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """(sample position, revolution number, slot within the revolution) of every sample
-    inside [start, end) of a revolution.
-
-    ``sample_ticks`` must be sorted; revolutions must not overlap.
-    """
-    lo = np.searchsorted(sample_ticks, starts, side="left")
-    hi = np.searchsorted(sample_ticks, ends, side="left")
-    counts = hi - lo
-    total = int(counts.sum())
-    rev = np.repeat(np.arange(len(starts)), counts)
-    first_out = np.cumsum(counts) - counts
-    slot = np.arange(total) - np.repeat(first_out, counts)
-    return slot + np.repeat(lo, counts), rev, slot
-
-
 def fit_block(sample_ticks: np.ndarray, values: np.ndarray, starts: np.ndarray,
               ends: np.ndarray, tick_hz: float, orders: tuple[int, ...] = (1, 2, 3),
               nuisance_hz: tuple[float, ...] = (), origin_tick: int = 0,

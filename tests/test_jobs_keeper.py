@@ -66,6 +66,7 @@ def without_times(data: Any) -> Any:
 def test_a_job_file_is_kept_exactly_like_a_workspace_job(tmp_path: Path) -> None:
     rig = Rig("bench-grinder", Mode.TWO_PLANE)
     job_file = tmp_path / "customer" / "grinder 2026.yaml"
+    job_file.parent.mkdir()  # the person's folder: trueturn creates only the workspace's own
     in_workspace = JobKeeper(rig.profile, workspace=tmp_path / "ws")
     in_file = JobKeeper(rig.profile, workspace=tmp_path / "ws2", job_file=job_file)
     for keeper in (in_workspace, in_file):

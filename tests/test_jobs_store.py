@@ -245,6 +245,7 @@ def test_cli_prints_one_line_and_exits_2_for_a_broken_job(tmp_path: Path) -> Non
 
 def test_atomic_write_replaces_and_leaves_no_temp(tmp_path: Path) -> None:
     target = tmp_path / "a" / "job.yaml"
+    target.parent.mkdir()  # a save never creates the folder it was given (trueturn.files)
     atomic_write_text(target, "one\n")
     atomic_write_text(target, "two\n")
     assert target.read_text() == "two\n"
@@ -355,6 +356,7 @@ def test_job_in_a_file_of_the_persons_choosing(tmp_path: Path) -> None:
     ws = Workspace(tmp_path / "ws")
     job = ws.new_job(shop_fan(), when="2026-11-30T09:00:00Z")
     own = tmp_path / "customer" / "fan-job.yaml"
+    own.parent.mkdir()  # the person's folder exists: trueturn creates only its own folders
     ws.append_run(job, run(1), path=own)
     ws.close_job(job, path=own)
     assert read_document(own, "job").status == "closed"
@@ -364,6 +366,7 @@ def test_job_in_a_file_of_the_persons_choosing(tmp_path: Path) -> None:
 def test_a_job_created_at_a_path_is_held_there_for_every_save(tmp_path: Path) -> None:
     ws = Workspace(tmp_path / "ws")
     own = tmp_path / "customer" / "fan job.yaml"
+    own.parent.mkdir()
     job = ws.new_job(shop_fan(), when="2026-11-30T09:00:00Z", notes="four-run", path=own)
     assert job.job_id == "fan job" and ws.path_of(job) == own
     ws.record_pending(job, PendingStep(notes="hub cleaned"))

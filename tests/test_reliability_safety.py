@@ -5,7 +5,7 @@
 * no eval/exec/compile of text, no pickle/marshal/shelve;
 * no network at all: no sockets, servers or HTTP clients;
 * no shell=True in subprocess calls;
-* files are written by two helpers only (the atomic writer of jobs/store.py and the capture
+* files are written by two helpers only (the atomic writer of trueturn/files.py and the capture
   writer of link/capture.py; emu:// keeps its harness log in a private temporary folder), and a run of the writing commands leaves files only where the
   person pointed or in the workspace.
 
@@ -35,7 +35,7 @@ BANNED_MODULES = {"pickle", "cPickle", "marshal", "shelve", "socket", "socketser
                   "requests", "httpx", "aiohttp", "asyncio.base_events"}
 # Modules allowed to write files, and what they write.
 WRITERS = {
-    HOST / "jobs" / "store.py": "atomic_write_bytes: temp file beside the target, fsync, rename",
+    HOST / "files.py": "atomic_write_bytes: temp file beside the target, fsync, rename",
     HOST / "link" / "capture.py": "CaptureWriter: the capture file named by record -o",
     HOST / "sim" / "handlers" / "protocol_emu.py": "the emulator's log, in its own "
                                                     "tempfile.TemporaryDirectory (removed)",

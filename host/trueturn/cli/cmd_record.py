@@ -8,6 +8,7 @@ fast simulation (``sim://NAME?realtime=0``) records S seconds of signal in less.
 from __future__ import annotations
 
 import argparse
+import contextlib
 import datetime as dt
 import sys
 import time
@@ -18,8 +19,9 @@ import serial
 
 from trueturn import __version__
 from trueturn.cli.common import print_json
-from trueturn.errors import UserError
-from trueturn.link.capture import CaptureWriter
+from trueturn.errors import UserError, one_line
+from trueturn.files import check_output
+from trueturn.link.capture import CaptureWriteError, CaptureWriter
 from trueturn.link.catalogue import load_catalogue
 from trueturn.link.codec import LinkEvent, Message, decode_frame
 from trueturn.link.ports import open_port
@@ -110,11 +112,7 @@ def run(args: argparse.Namespace) -> int:
         raise UserError(f"--rate-hz must be {limits['rate_hz'].span()}, got {args.rate_hz}")
     if args.channels is not None and args.channels not in limits["channels"]:
         raise UserError(f"--channels must be {limits['channels'].span()}, got {args.channels}")
-    out_path = Path(args.output)
-    if out_path.is_dir():
-        raise UserError(f"{out_path} is a folder; give a file name, e.g. {out_path}/run1.cap")
-    if not out_path.parent.exists():
-        raise UserError(f"folder {out_path.parent} does not exist")
+    out_path = check_output(args.output)  # before the port opens: the one output rule
     try:
         port = open_port(args.port)
     except (serial.SerialException, OSError, ValueError) as exc:
@@ -157,13 +155,14 @@ def _record(port: serial.SerialBase, args: argparse.Namespace, out_path: Path) -
     metadata.update(rig)
     try:
         writer = CaptureWriter(out_path, metadata)
+        writer.write(from_identity(b"".join(early)))
     except OSError as exc:
-        raise UserError(f"cannot write {out_path}: {exc.strerror or exc}") from None
-    writer.write(from_identity(b"".join(early)))
+        raise UserError(f"cannot write {one_line(out_path)}: {exc.strerror or exc}") from None
     edge = 1 if args.tach_edge == "rising" else 0
     samples = 0
     tach_edges = 0
     interrupted = False
+    target = max(1, int(round(args.seconds * args.rate_hz)) * args.channels)  # until started
     try:
         session.configure(args.rate_hz, args.channels, edge)
         config = session.start()
@@ -200,6 +199,12 @@ def _record(port: serial.SerialBase, args: argparse.Namespace, out_path: Path) -
                           f"{args.seconds:g} s  frames {c.frames_ok}  lost {c.frames_lost} "
                           f"frames, {c.samples_lost} samples", args.quiet)
         session.stop()
+    except CaptureWriteError as exc:  # a full disk: the file so far is a valid capture
+        with contextlib.suppress(UserError, OSError, serial.SerialException):
+            session.send("stop")
+        raise UserError(f"cannot write {one_line(out_path)} ({exc.reason}); "
+                        f"{_kept(samples, target, args.seconds, out_path)}; free some space "
+                        "and record again") from None
     except KeyboardInterrupt:
         interrupted = True
         try:

@@ -7,7 +7,7 @@ import sys
 from pathlib import Path
 from typing import TYPE_CHECKING
 
-from trueturn.errors import UserError
+from trueturn.errors import UserError, one_line
 
 if TYPE_CHECKING:
     from trueturn.jobs.store import Workspace
@@ -38,45 +38,59 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
+    from trueturn.files import atomic_write_text, check_output
     from trueturn.jobs.records import now_iso
-    from trueturn.jobs.report import html_report, markdown_report, readings_csv
-    from trueturn.jobs.store import Workspace, atomic_write_text
+    from trueturn.jobs.report import (
+        html_report,
+        markdown_report,
+        readings_csv,
+        report_file_name,
+    )
+    from trueturn.jobs.store import Workspace
 
     workspace = Workspace.open(args.workspace)
     if args.list:
         return _list_jobs(workspace, args.machine)
     if not args.job:
         raise UserError("give a job file or job id (or --list to see the jobs)")
+    # outputs checked before any work, so a bad -o or --csv is said first and nothing is
+    # half-written (trueturn.files: regular files only, no links, the folder must exist)
+    if args.output and args.output != "-":
+        check_output(args.output, stdout_dash=True)
+    if args.csv:
+        check_output(args.csv)
     job = workspace.load_job(args.job)
     fmt = args.format
     if fmt is None:
         fmt = "md" if args.output and Path(args.output).suffix.lower() == ".md" else "html"
     generated = now_iso()
     text = html_report(job, generated) if fmt == "html" else markdown_report(job, generated)
-    output = args.output or f"{job.job_id}.{fmt}"
+    # without -o, the name comes from the job id made safe: never a path the file chooses
+    output = args.output or report_file_name(job.job_id, fmt)
     if output == "-":
         sys.stdout.write(text)
     else:
-        if Path(output).is_dir():
-            raise UserError(f"{output} is a folder; give a file name with -o")
         atomic_write_text(output, text)
-        print(f"wrote {output}", file=sys.stderr)
+        print(f"wrote {one_line(output)}", file=sys.stderr)
     if args.csv:
         atomic_write_text(args.csv, readings_csv(job))
-        print(f"wrote {args.csv}", file=sys.stderr)
+        print(f"wrote {one_line(args.csv)}", file=sys.stderr)
     return 0
 
 
 def _list_jobs(workspace: Workspace, machine: str | None) -> int:
-    """Print one line per job (the machine's history with ``machine``)."""
-    summaries = workspace.history(machine) if machine else workspace.job_summaries()
-    if not summaries:
-        where = f" for machine {machine!r}" if machine else ""
-        print(f"no jobs{where} in {workspace.jobs_dir}", file=sys.stderr)
+    """Print one line per job (the machine's history with ``machine``); a file that cannot
+    be read is listed as unreadable, and the listing goes on."""
+    summaries, unreadable = workspace.scan_jobs(machine)
+    if not summaries and not unreadable:
+        where = f" for machine {one_line(machine)!r}" if machine else ""
+        print(f"no jobs{where} in {one_line(workspace.jobs_dir)}", file=sys.stderr)
         return 0
     verdicts = {True: "within grade", False: "over grade", None: "-"}
-    width = max(len(s.job_id) for s in summaries)
+    width = max((len(s.job_id) for s in summaries), default=0)
     for s in summaries:
-        print(f"{s.job_id:<{width}}  {s.created}  {s.status:<6}  {s.runs:>2} runs  "
-              f"{verdicts[s.passed]}")
+        print(f"{one_line(s.job_id):<{width}}  {one_line(s.created)}  {one_line(s.status):<6}  "
+              f"{s.runs:>2} runs  {verdicts[s.passed]}")
+    for path, why in unreadable:
+        print(f"{one_line(path.name)}  unreadable: {one_line(why)}")
     return 0

@@ -49,8 +49,12 @@ def run(args: argparse.Namespace) -> int:
                         f"{args.first_deg:g}")
     if args.tiles and args.rim:
         raise UserError("choose --tiles (a big ring) or --rim (a strip), not both")
+    output = args.output if not (args.tiles and args.output == "ring.svg") else "ring.html"
+    if output != "-":
+        from trueturn.files import check_output
+
+        check_output(output, stdout_dash=True)  # said before any drawing
     if args.tiles:
-        output = args.output if args.output != "ring.svg" else "ring.html"
         page, tiles = ring_tiles_html(args.diameter_mm, args.positions, args.first_deg,
                                       args.rotation, args.title)
         _write(output, page)
@@ -80,7 +84,7 @@ def run(args: argparse.Namespace) -> int:
 
 
 def _write(output: str, text: str) -> None:
-    from trueturn.jobs.store import atomic_write_text
+    from trueturn.files import atomic_write_text
 
     if output == "-":
         sys.stdout.write(text)

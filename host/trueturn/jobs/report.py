@@ -16,6 +16,7 @@ import csv
 import html
 import io
 import math
+import re
 from collections.abc import Iterable, Sequence
 
 from trueturn.angles import Rotation, screen_xy
@@ -547,8 +548,20 @@ def html_report(job: JobRecord, generated: str = "") -> str:
 # Markdown and CSV
 
 
+_MD_SPECIAL = str.maketrans({c: "\\" + c for c in "\\`*_[]|#"})
+
+
+def _md_text(text: object) -> str:
+    """Text from a job file as Markdown that shows it literally: HTML escaped as entities
+    (``<script>`` shows as text, a Markdown renderer passes raw HTML through otherwise), the
+    Markdown punctuation that makes links, emphasis, code or tables backslash-escaped
+    (CommonMark 0.30, "Backslash escapes": any ASCII punctuation may be escaped), one line."""
+    one = " ".join(str(text).splitlines())
+    return html.escape(one, quote=False).translate(_MD_SPECIAL)
+
+
 def _md_cell(text: str) -> str:
-    return str(text).replace("|", "\\|").replace("\n", " ")
+    return _md_text(text)
 
 
 def _md_table(header: Sequence[str], rows: Sequence[Sequence[str]]) -> str:
@@ -560,17 +573,18 @@ def _md_table(header: Sequence[str], rows: Sequence[Sequence[str]]) -> str:
 
 def markdown_report(job: JobRecord, generated: str = "") -> str:
     """The report as Markdown tables (no plots; the HTML report has them)."""
-    out = [f"# Balancing report: {job.machine.name}", "",
-           f"Job {job.job_id}" + (f"; report generated {generated}" if generated else "")
+    out = [f"# Balancing report: {_md_text(job.machine.name)}", "",
+           f"Job {_md_text(job.job_id)}" + (f"; report generated {generated}" if generated else "")
            + " by trueturn. Plots are in the HTML report.", "",
            "## Machine and job", "",
            _md_table(["Item", "Value"], _machine_rows(job) + _job_rows(job)), "",
-           "## Result", "", _verdict_line(job)[1], ""]
+           "## Result", "", _md_text(_verdict_line(job)[1]), ""]
     rows = verdict_rows(job)
     if rows:
         out += [_md_table(["Bearing" if verdict_at_bearings(job) else "Plane",
                            "Residual unbalance", "Permissible (U_per)", "Verdict"], rows),
-                "", f"U_per per ISO 21940-11 at the maximum service speed, {_verdict_where(job)}.",
+                "", f"U_per per ISO 21940-11 at the maximum service speed, "
+                f"{_md_text(_verdict_where(job))}.",
                 ""]
     out += ["## Before and after", "",
             _md_table(["Pickup", "Before", "Phase", "After", "Phase", "Change"],
@@ -599,8 +613,8 @@ def markdown_report(job: JobRecord, generated: str = "") -> str:
         out += [_md_table(["Run", "Time (UTC)", "Event", "Detail"], rows), ""]
     notes = [job.notes] + [f"Run {r.index}: {r.notes}" for r in job.runs if r.notes]
     if any(notes):
-        out += ["## Notes", "", *[f"- {n}" for n in notes if n], ""]
-    out += ["## Cautions", "", *[f"- {c}" for c in CAUTIONS], ""]
+        out += ["## Notes", "", *[f"- {_md_text(n)}" for n in notes if n], ""]
+    out += ["## Cautions", "", *[f"- {_md_text(c)}" for c in CAUTIONS], ""]
     return "\n".join(out)
 
 
@@ -608,14 +622,35 @@ CSV_COLUMNS = ("job_id", "run", "kind", "label", "time", "sensor", "amplitude", 
                "phase_deg", "confidence_deg", "revolutions", "speed_rpm")
 
 
+_FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+
+
+def csv_text_cell(text: object) -> str:
+    """A text cell a spreadsheet shows as text: one starting like a formula (``=``, ``+``,
+    ``-``, ``@``, tab, carriage return) gets a leading apostrophe (OWASP, "CSV Injection":
+    the recommended guard). Numbers are written by ``repr`` and never guarded."""
+    value = str(text)
+    return "'" + value if value.startswith(_FORMULA_START) else value
+
+
+def report_file_name(job_id: str, fmt: str) -> str:
+    """The default file name of a job's report, made from its id but never a path: only
+    letters, digits, '.', '_' and '-' kept (others become '-'), no leading dot or dash, at
+    most 100 characters; a job file cannot choose where its report goes."""
+    stem = re.sub(r"[^A-Za-z0-9._-]+", "-", job_id).lstrip(".-")[:100] or "report"
+    return f"{stem}.{fmt}"
+
+
 def readings_csv(job: JobRecord) -> str:
-    """Every reading of every run, one row each, in the units stored."""
+    """Every reading of every run, one row each, in the units stored (text cells guarded
+    against spreadsheet formulas by :func:`csv_text_cell`)."""
     buffer = io.StringIO()
     writer = csv.writer(buffer, lineterminator="\n")
     writer.writerow(CSV_COLUMNS)
     for run in job.runs:
         for r in run.readings:
-            writer.writerow([job.job_id, run.index, run.kind, run.label, run.time, r.sensor,
-                             repr(r.amplitude), r.unit, repr(r.phase_deg), repr(r.confidence_deg),
+            t = csv_text_cell
+            writer.writerow([t(job.job_id), run.index, t(run.kind), t(run.label), t(run.time),
+                             t(r.sensor), repr(r.amplitude), t(r.unit), repr(r.phase_deg), repr(r.confidence_deg),
                              r.revolutions, repr(r.speed_rpm)])
     return buffer.getvalue()

@@ -20,13 +20,20 @@ import contextlib
 import os
 import re
 import sys
-import tempfile
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 from trueturn.errors import UserError
+from trueturn.files import (  # noqa: F401 - re-exported
+    TEMP_PREFIX,
+    TEMP_SUFFIX,
+    atomic_write_bytes,
+    atomic_write_text,
+    fsync_directory,
+    read_text_file,
+)
 from trueturn.jobs.profiles import MachineProfile
 from trueturn.jobs.records import (
     CoefficientSet,
@@ -80,75 +87,17 @@ MIGRATIONS: dict[str, dict[int, Migration]] = {
     "coefficients": {1: lambda data: data}}
 
 WORKSPACE_ENV = "TRUETURN_WORKSPACE"
-_TEMP_PREFIX = ".tt-"
-_TEMP_SUFFIX = ".tmp"
 
 
 # --------------------------------------------------------------------------------------------
-# Atomic files
-
-
-def fsync_directory(folder: Path) -> None:
-    """Make a rename in ``folder`` durable (POSIX; a no-op where folders cannot be opened)."""
-    if os.name != "posix":
-        return
-    fd = os.open(folder, os.O_RDONLY)
-    try:
-        os.fsync(fd)
-    finally:
-        os.close(fd)
-
-
-def atomic_write_bytes(path: str | os.PathLike[str], data: bytes) -> Path:
-    """Write ``data`` to ``path`` atomically: temp file in the same folder, fsync, rename."""
-    target = Path(path)
-    folder = target.parent if str(target.parent) else Path(".")
-    try:
-        folder.mkdir(parents=True, exist_ok=True)
-        fd, temp_name = tempfile.mkstemp(prefix=f"{_TEMP_PREFIX}{target.name}.",
-                                         suffix=_TEMP_SUFFIX, dir=folder)
-    except OSError as exc:
-        raise UserError(f"cannot write {target}: {exc.strerror or exc}") from None
-    try:
-        with os.fdopen(fd, "wb") as handle:
-            handle.write(data)
-            handle.flush()
-            os.fsync(handle.fileno())
-        if target.exists():
-            with contextlib.suppress(OSError):
-                os.chmod(temp_name, target.stat().st_mode & 0o7777)
-        else:
-            with contextlib.suppress(OSError):
-                os.chmod(temp_name, 0o666 & ~_umask())
-        os.replace(temp_name, target)
-        fsync_directory(folder)
-    except OSError as exc:
-        with contextlib.suppress(OSError):
-            os.unlink(temp_name)
-        raise UserError(f"cannot write {target}: {exc.strerror or exc}") from None
-    except BaseException:
-        with contextlib.suppress(OSError):
-            os.unlink(temp_name)
-        raise
-    return target
-
-
-def atomic_write_text(path: str | os.PathLike[str], text: str) -> Path:
-    """:func:`atomic_write_bytes` for UTF-8 text."""
-    return atomic_write_bytes(path, text.encode("utf-8"))
-
-
-def _umask() -> int:
-    mask = os.umask(0)
-    os.umask(mask)
-    return mask
+# Atomic files: the one rule for writing a file is in trueturn.files (re-exported here)
 
 
 def remove_stale_temps(folder: Path, older_than_s: float = 60.0) -> int:
     """Delete temp files left by a save that was killed; return how many went."""
     removed = 0
     now = time.time()
-    for temp in folder.glob(f"{_TEMP_PREFIX}*{_TEMP_SUFFIX}"):
+    for temp in folder.glob(f"{TEMP_PREFIX}*{TEMP_SUFFIX}"):
         with contextlib.suppress(OSError):
             if now - temp.stat().st_mtime > older_than_s:
                 temp.unlink()
@@ -231,15 +180,7 @@ def _keep_lines(original: Any, body: dict[str, Any]) -> LineDict:
 
 def read_document(path: Path, kind: str) -> Any:
     """Load a document file; a missing or unreadable file is a one-line UserError."""
-    try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise UserError(f"{path}: no such file") from None
-    except UnicodeDecodeError:
-        raise SchemaError(f"{path}:1: not a text file") from None
-    except OSError as exc:
-        raise UserError(f"{path}: cannot read ({exc.strerror or exc})") from None
-    return parse_document(text, kind, str(path))
+    return parse_document(read_text_file(path), kind, str(path))
 
 
 def write_document(path: Path, kind: str, obj: Any) -> Path:
@@ -333,11 +274,25 @@ class Workspace:
 
     # machines ------------------------------------------------------------------------------
 
+    def _own_folder(self, target: Path) -> None:
+        """Create the workspace's own folder for ``target`` (``machines/`` or ``jobs/``,
+        with the workspace above them); a folder the person named is never created."""
+        folder = target.parent
+        if folder not in (self.machines_dir, self.jobs_dir) or folder.is_dir():
+            return
+        try:
+            folder.mkdir(parents=True, exist_ok=True)
+        except OSError as exc:
+            raise UserError(f"cannot use the workspace {self.root}: cannot create {folder} "
+                            f"({exc.strerror or exc})") from None
+
     def machine_path(self, name: str) -> Path:
         return self.machines_dir / f"{slug(name)}.yaml"
 
     def save_machine(self, profile: MachineProfile) -> Path:
-        return write_document(self.machine_path(profile.name), "machine", profile)
+        path = self.machine_path(profile.name)
+        self._own_folder(path)
+        return write_document(path, "machine", profile)
 
     def load_machine(self, name: str) -> MachineProfile:
         path = self.machine_path(name)
@@ -406,6 +361,7 @@ class Workspace:
         job.updated = now_iso()
         target = Path(path) if path is not None else self.path_of(job)
         try:
+            self._own_folder(target)
             written = write_document(target, "job", job)
         except BaseException:
             job.updated = before
@@ -498,25 +454,40 @@ class Workspace:
             raise UserError(f"job {job.job_id} is closed; nothing to resume")
         return job
 
+    def scan_jobs(self, machine_name: str | None = None
+                  ) -> tuple[list[JobSummary], list[tuple[Path, str]]]:
+        """The jobs in the workspace (of one machine with ``machine_name``), oldest first,
+        and the files that could not be read with why, so one bad file never hides the
+        others. A symbolic link is not followed (listed as not read): the listing shows
+        only what the jobs folder itself holds."""
+        wanted = slug(machine_name) if machine_name is not None else None
+        found: list[JobSummary] = []
+        unreadable: list[tuple[Path, str]] = []
+        try:
+            paths = sorted(self.jobs_dir.glob("*.yaml"))
+        except OSError as exc:
+            raise UserError(f"cannot list {self.jobs_dir}: {exc.strerror or exc}") from None
+        for path in paths:
+            if path.is_symlink():
+                unreadable.append((path, "a symbolic link (not followed)"))
+                continue
+            try:
+                job: JobRecord = read_document(path, "job")
+            except UserError as exc:
+                unreadable.append((path, str(exc)))
+                continue
+            if wanted is None or slug(job.machine.name) == wanted:
+                found.append(JobSummary(job.job_id, job.created, job.status, len(job.runs),
+                                        job.verdict.passed if job.verdict else None, path))
+        return sorted(found, key=lambda s: (s.created, s.job_id)), unreadable
+
     def job_summaries(self) -> list[JobSummary]:
-        """Every job in the workspace, oldest first (unreadable files raise one line)."""
-        out = []
-        for path in sorted(self.jobs_dir.glob("*.yaml")):
-            job: JobRecord = read_document(path, "job")
-            out.append(JobSummary(job.job_id, job.created, job.status, len(job.runs),
-                                  job.verdict.passed if job.verdict else None, path))
-        return sorted(out, key=lambda s: (s.created, s.job_id))
+        """Every readable job in the workspace, oldest first (see :meth:`scan_jobs`)."""
+        return self.scan_jobs()[0]
 
     def history(self, machine_name: str) -> list[JobSummary]:
-        """The jobs of one machine, oldest first."""
-        wanted = slug(machine_name)
-        result = []
-        for path in sorted(self.jobs_dir.glob("*.yaml")):
-            job: JobRecord = read_document(path, "job")
-            if slug(job.machine.name) == wanted:
-                result.append(JobSummary(job.job_id, job.created, job.status, len(job.runs),
-                                         job.verdict.passed if job.verdict else None, path))
-        return sorted(result, key=lambda s: (s.created, s.job_id))
+        """The readable jobs of one machine, oldest first."""
+        return self.scan_jobs(machine_name)[0]
 
     # influence coefficients -----------------------------------------------------------------
 
@@ -537,6 +508,7 @@ class Workspace:
                 if abs(s.speed_rpm - coefficients.speed_rpm) > same_speed_pct / 100 * s.speed_rpm]
         kept.append(coefficients)
         kept.sort(key=lambda s: s.speed_rpm)
+        self._own_folder(self.coefficients_path(machine_name))
         return write_document(self.coefficients_path(machine_name), "coefficients",
                               CoefficientFile(machine=machine_name, sets=kept))
 

@@ -89,9 +89,37 @@ def _linear_start(w: np.ndarray, v: np.ndarray) -> list[complex]:
 
 def fit_amplitude_only(w: np.ndarray, v: np.ndarray, weights: np.ndarray | None = None
                        ) -> tuple[list[tuple[complex, np.ndarray, float]], np.ndarray]:
-    """All distinct fits ``(u, t, cost)`` best first, and the Jacobian of the best one.
+    """All distinct fits of ``V[k, s] = t_s |u + w_k|``, best first, and the best one's Jacobian.
 
-    ``w``: complex masses per run (K,), ``v``: amplitudes (K, S).
+    Starts from the linear circle construction in ``V^2`` and eight more around the trial
+    size; each start is refined by nonlinear least squares; fits closer than 5 % of their
+    size are one answer.
+
+    Parameters
+    ----------
+    w : numpy.ndarray
+        Complex mass on the plane in each run, relative to as found, shape (K,); grams at the
+        plane's radius (angle in the :mod:`trueturn.angles` convention).
+    v : numpy.ndarray
+        1x amplitude per run and pickup, shape (K, S), reading units.
+    weights : numpy.ndarray or None, default None
+        Weight per pickup, shape (S,); None weighs them equally.
+
+    Returns
+    -------
+    fits : list of (complex, numpy.ndarray, float)
+        Each distinct answer as ``(u, t, cost)``: the as-found unbalance as a complex mass
+        (g), the pickups' sensitivities (reading units per g) and the weighted sum of squared
+        relative misfits, lowest cost first.
+    jacobian : numpy.ndarray
+        Jacobian of the best fit's residuals, shape (K S, 2 + S).
+
+    References
+    ----------
+    .. [1] The four-run method (as found plus one trial at 0, 120 and 240 deg), e.g. the vector
+       construction in V. Wowk, "Machinery Vibration: Balancing", and the review of balancing
+       methods by W. C. Foiles, P. E. Allaire and E. J. Gunter (from memory).
+    .. [2] Nonlinear least squares by ``scipy.optimize.least_squares`` (Levenberg-Marquardt).
     """
     weights = np.ones(v.shape[1]) if weights is None else weights
     size = float(np.max(np.abs(w))) or 1.0
@@ -120,7 +148,34 @@ def _is_four_run(w: np.ndarray) -> bool:
 
 
 def solve_amplitude_only(inp: BalanceInput) -> Solution:
-    """Correction for one plane from amplitudes only; reports ambiguity."""
+    """Correction for one plane from amplitudes only (no tach); reports ambiguous answers.
+
+    Parameters
+    ----------
+    inp : BalanceInput
+        The checked input: one plane, runs at one speed, readings without phase.
+
+    Returns
+    -------
+    Solution
+        The correction (g, degrees, with 95 % half-widths when the readings carry confidence
+        radii), candidates that fit equally well (``ambiguous``), the fit scatter per pickup
+        (reading units), ``inconsistent`` when it exceeds 10 % of the readings, warnings, and
+        the residual of the last run (g·mm).
+
+    Raises
+    ------
+    UserError
+        When there is not exactly one plane, the runs are at several speeds, fewer than three
+        runs (or three distinct trial positions) remain, or every reading is zero.
+
+    References
+    ----------
+    .. [1] The four-run method (as found plus one trial at 0, 120 and 240 deg), e.g. the vector
+       construction in V. Wowk, "Machinery Vibration: Balancing", and the review of balancing
+       methods by W. C. Foiles, P. E. Allaire and E. J. Gunter (from memory).
+    .. [2] The 10 % fit-scatter limit: common practice, no source.
+    """
     last_clipped = any(r.clipped for r in inp.runs[-1].readings.values())
     if len(inp.planes) != 1:
         raise UserError("amplitude-only method (no phase_deg): supports exactly one plane, "

@@ -68,7 +68,20 @@ class InfluenceModel:
     matrix: np.ndarray
 
     def as_saved(self) -> list[SavedCoefficient]:
-        """The coefficients in the form READINGS accepts back under ``influence``."""
+        """The coefficients in the form READINGS accepts back under ``influence``.
+
+        Returns
+        -------
+        list of SavedCoefficient
+            One per channel (pickup at a speed) and plane: amplitude in reading units per gram at
+            the plane's radius, phase in degrees, speed in rpm (None for a single speed).
+
+        References
+        ----------
+        .. [1] Influence-coefficient method: E. L. Thearle, "Dynamic Balancing of Rotating
+           Machinery in the Field", Trans. ASME (1934), two-plane field balancing, here
+           generalised by least squares (from memory).
+        """
         out = []
         for c, channel in enumerate(self.channels):
             for j, plane in enumerate(self.planes):
@@ -109,7 +122,25 @@ class Solution:
 # ----------------------------------------------------------------------------- helpers
 
 def mass_vector(masses: Sequence[PlacedMass], planes: Sequence[Plane]) -> np.ndarray:
-    """Complex vector sum of the masses per plane (grams at the plane's radius)."""
+    """Complex vector sum of the masses per plane.
+
+    Parameters
+    ----------
+    masses : sequence of PlacedMass
+        Masses on the rotor (g, degrees), each naming its plane.
+    planes : sequence of Plane
+        The correction planes, in the order of the result.
+
+    Returns
+    -------
+    numpy.ndarray
+        Complex mass per plane, shape (N,), grams at the plane's radius (angle in the
+        :mod:`trueturn.angles` convention).
+
+    References
+    ----------
+    .. [1] Vector sum of centrifugal forces at a common radius (common practice, no source).
+    """
     names = [p.name for p in planes]
     out = np.zeros(len(names), dtype=complex)
     for m in masses:
@@ -118,7 +149,27 @@ def mass_vector(masses: Sequence[PlacedMass], planes: Sequence[Plane]) -> np.nda
 
 
 def speed_groups(runs: Sequence[Run]) -> list[float | None]:
-    """The distinct speeds of the runs (within 3 %), in order of first appearance."""
+    """The distinct speeds of the runs (within 3 %), in order of first appearance.
+
+    Parameters
+    ----------
+    runs : sequence of Run
+        The runs, each with ``speed_rpm`` (rpm) or None.
+
+    Returns
+    -------
+    list of float or None
+        The first speed of each group, rpm; ``[None]`` when no run gives a speed.
+
+    Raises
+    ------
+    UserError
+        When some runs give a speed and others do not.
+
+    References
+    ----------
+    .. [1] Grouping runs within 3 % as one speed: common practice, no source.
+    """
     speeds = [r.speed_rpm for r in runs]
     if all(s is None for s in speeds):
         return [None]
@@ -148,7 +199,22 @@ def _describe(masses: Sequence[PlacedMass]) -> str:
 
 
 def trial_handling(runs: Sequence[Run]) -> str:
-    """'removed', 'left on', 'mixed' or 'none': what happened to trial masses between runs."""
+    """What happened to trial masses between runs.
+
+    Parameters
+    ----------
+    runs : sequence of Run
+        The runs in order, each with the masses on the rotor relative to as found.
+
+    Returns
+    -------
+    str
+        ``'removed'``, ``'left on'``, ``'mixed'`` or ``'none'``.
+
+    References
+    ----------
+    .. [1] Bookkeeping of the run sequence (common practice, no source).
+    """
     seen = set()
     for prev, cur in zip(runs, runs[1:], strict=False):
         if not prev.masses or list(prev.masses) == list(cur.masses):
@@ -176,8 +242,42 @@ def fit_influence(runs: Sequence[Run], planes: Sequence[Plane], sensors: Sequenc
                   ) -> tuple[np.ndarray, InfluenceModel]:
     """As-found vectors ``R0[c]`` and coefficients ``A[c, j]`` from runs, by least squares.
 
-    Each speed needs at least N+1 runs whose mass vectors (with a constant term) have full
-    rank, e.g. the classic sequence: as-found, then one trial per plane (removed or left on).
+    Solves ``R_k[c] = R0[c] + sum_j A[c, j] W_k[j]`` for every channel (a pickup at a speed)
+    with ``numpy.linalg.lstsq``. Each speed needs at least N+1 runs whose mass vectors (with a
+    constant term) have full rank, e.g. the classic sequence: as found, then one trial per
+    plane (removed or left on). Clipped readings are left out.
+
+    Parameters
+    ----------
+    runs : sequence of Run
+        The runs: masses relative to as found (g, degrees) and 1x readings per pickup.
+    planes : sequence of Plane
+        The correction planes.
+    sensors : sequence of str
+        The pickups' names, in the order of the channels.
+    readings_override : dict or None, default None
+        ``(run index, pickup) -> reading phasor`` used instead of the measured readings (the
+        Monte Carlo of the uncertainty); None uses the readings.
+
+    Returns
+    -------
+    r0 : numpy.ndarray
+        As-found 1x per channel, complex, reading units.
+    model : InfluenceModel
+        Coefficients per channel and plane, reading units per gram at the plane's radius.
+
+    Raises
+    ------
+    SingularSystemError
+        When a speed has too few runs, or the mass changes cannot separate the planes (also
+        after leaving out a pickup's clipped readings).
+
+    References
+    ----------
+    .. [1] Influence-coefficient method: E. L. Thearle, "Dynamic Balancing of Rotating
+       Machinery in the Field", Trans. ASME (1934), two-plane field balancing, here
+       generalised by least squares (from memory).
+    .. [2] Linear least squares, ``numpy.linalg.lstsq`` (LAPACK ``gelsd``).
     """
     groups = speed_groups(runs)
     n_planes = len(planes)
@@ -225,7 +325,36 @@ def _check_design(design: np.ndarray, n_planes: int, planes: Sequence[Plane], at
 
 def model_from_saved(saved: Sequence[SavedCoefficient], planes: Sequence[Plane],
                      sensors: Sequence[str], runs: Sequence[Run]) -> InfluenceModel:
-    """Rebuild an :class:`InfluenceModel` for the speeds of ``runs`` from saved coefficients."""
+    """Rebuild an :class:`InfluenceModel` for the speeds of ``runs`` from saved coefficients.
+
+    Parameters
+    ----------
+    saved : sequence of SavedCoefficient
+        Coefficients saved from an earlier solve (reading units per gram, degrees, rpm).
+    planes : sequence of Plane
+        The correction planes.
+    sensors : sequence of str
+        The pickups' names.
+    runs : sequence of Run
+        The runs whose speeds need coefficients.
+
+    Returns
+    -------
+    InfluenceModel
+        The coefficients per channel and plane.
+
+    Raises
+    ------
+    UserError
+        When no coefficients were saved near a run's speed (3 %), or a pickup/plane pair has
+        none.
+
+    References
+    ----------
+    .. [1] Influence-coefficient method: E. L. Thearle, "Dynamic Balancing of Rotating
+       Machinery in the Field", Trans. ASME (1934), two-plane field balancing, here
+       generalised by least squares (from memory). Saved coefficients for a one-run trim: common practice, no source.
+    """
     saved_speeds = sorted({s.speed_rpm for s in saved}, key=lambda v: -1 if v is None else v)
     channels, rows = [], []
     for g in speed_groups(runs):
@@ -252,7 +381,35 @@ def model_from_saved(saved: Sequence[SavedCoefficient], planes: Sequence[Plane],
 def as_found_with_model(model: InfluenceModel, runs: Sequence[Run], planes: Sequence[Plane],
                         readings_override: dict[tuple[int, str], complex] | None = None
                         ) -> np.ndarray:
-    """``R0[c]`` from any runs given known coefficients: mean of ``R_k - A W_k`` (trim)."""
+    """``R0[c]`` from any runs given known coefficients: mean of ``R_k - A W_k`` (trim).
+
+    Parameters
+    ----------
+    model : InfluenceModel
+        Known coefficients, reading units per gram.
+    runs : sequence of Run
+        The runs (usually one: the as-found run of a trim).
+    planes : sequence of Plane
+        The correction planes.
+    readings_override : dict or None, default None
+        ``(run index, pickup) -> reading phasor`` used instead of the measured readings.
+
+    Returns
+    -------
+    numpy.ndarray
+        As-found 1x per channel of ``model``, complex, reading units.
+
+    Raises
+    ------
+    UserError
+        When every reading of a channel is clipped.
+
+    References
+    ----------
+    .. [1] Influence-coefficient method: E. L. Thearle, "Dynamic Balancing of Rotating
+       Machinery in the Field", Trans. ASME (1934), two-plane field balancing, here
+       generalised by least squares (from memory).
+    """
     groups = [c.speed_rpm for c in model.channels]
     sums = np.zeros(len(model.channels), dtype=complex)
     counts = np.zeros(len(model.channels))
@@ -276,7 +433,36 @@ def as_found_with_model(model: InfluenceModel, runs: Sequence[Run], planes: Sequ
 
 def correction_for(r0: np.ndarray, matrix: np.ndarray, channel_weights: np.ndarray,
                    max_mass_g: Sequence[float | None]) -> tuple[np.ndarray, list[int]]:
-    """Weighted least-squares correction ``C`` and the planes whose mass limit was applied."""
+    """Weighted least-squares correction ``C`` and the planes whose mass limit was applied.
+
+    Minimises ``sum_c w_c^2 |R0[c] + A[c, :] C|^2``; when a plane's correction exceeds its
+    limit, again subject to ``|C_j| <= max_mass_g[j]`` (SLSQP).
+
+    Parameters
+    ----------
+    r0 : numpy.ndarray
+        As-found 1x per channel, complex, reading units, shape (M,).
+    matrix : numpy.ndarray
+        Influence coefficients, reading units per gram, shape (M, N).
+    channel_weights : numpy.ndarray
+        Weight per channel, shape (M,).
+    max_mass_g : sequence of float or None
+        Mass limit per plane, g (None: no limit).
+
+    Returns
+    -------
+    correction : numpy.ndarray
+        Complex correction per plane, grams at the plane's radius, shape (N,).
+    limited : list of int
+        Indices of the planes whose limit changed the answer.
+
+    References
+    ----------
+    .. [1] Linear least squares, ``numpy.linalg.lstsq``; with limits, sequential least-squares
+       programming, ``scipy.optimize.minimize(method="SLSQP")``, D. Kraft, "A software
+       package for sequential quadratic programming", Technical Report DFVLR-FB 88-28,
+       DLR Oberpfaffenhofen, 1988.
+    """
     aw = matrix * channel_weights[:, None]
     bw = -r0 * channel_weights
     c, *_ = np.linalg.lstsq(aw, bw, rcond=None)
@@ -407,7 +593,38 @@ def _corrections(planes: Sequence[Plane], c: np.ndarray,
 
 
 def solve_with_phase(inp: BalanceInput) -> Solution:
-    """Corrections from phase-and-amplitude readings (fresh coefficients or a saved-set trim)."""
+    """Corrections from phase-and-amplitude readings (fresh coefficients or a saved-set trim).
+
+    Parameters
+    ----------
+    inp : BalanceInput
+        The checked input with phase readings; ``influence`` given for a trim.
+
+    Returns
+    -------
+    Solution
+        Corrections per plane (g, degrees, with 95 % half-widths by Monte Carlo over the
+        readings' confidence circles when they carry radii), the predicted residual per
+        channel, condition number, warnings, coefficients to save, and the residual unbalance
+        of the last run (g·mm).
+
+    Raises
+    ------
+    SingularSystemError
+        When there are fewer channels than planes, or the pickups cannot tell the planes
+        apart (condition number above 1e8).
+    UserError
+        As the functions it calls (e.g. ``NoInformationError`` for a trial that changed the
+        1x less than the readings resolve).
+
+    References
+    ----------
+    .. [1] Influence-coefficient method: E. L. Thearle, "Dynamic Balancing of Rotating
+       Machinery in the Field", Trans. ASME (1934), two-plane field balancing, here
+       generalised by least squares (from memory).
+    .. [2] Uncertainty by Monte Carlo propagation of the readings' 95 % circles (fixed seed):
+       common practice, no source.
+    """
     sensors = [s.name for s in inp.sensors]
     planes = inp.planes
     if inp.influence:
@@ -475,21 +692,87 @@ def solve_with_phase(inp: BalanceInput) -> Solution:
 
 
 def clipped_readings(runs: Sequence[Run]) -> list[tuple[str, str]]:
-    """(run label, sensor) of every reading flagged clipped."""
+    """(run label, pickup) of every reading flagged clipped.
+
+    Parameters
+    ----------
+    runs : sequence of Run
+        The runs.
+
+    Returns
+    -------
+    list of (str, str)
+        Run label and pickup name of each clipped reading, in run order.
+
+    References
+    ----------
+    .. [1] A reading at the ADC limits is not linear in the unbalance and is left out (common
+       practice, no source).
+    """
     return [(run.label, name) for run in runs for name, r in run.readings.items() if r.clipped]
 
 
 def residual_unbalance_gmm(model: InfluenceModel, run: Run, planes: Sequence[Plane],
                            channel_weights: np.ndarray | None = None) -> list[float]:
-    """Residual unbalance per plane (g·mm) estimated from a run's measured 1x vectors through
-    the influence coefficients: the least-squares correction still needed, times radius."""
+    """Residual unbalance per plane estimated from a run's measured 1x through the coefficients.
+
+    The magnitudes of :func:`residual_unbalance_vectors_gmm`.
+
+    Parameters
+    ----------
+    model : InfluenceModel
+        Influence coefficients, reading units per gram.
+    run : Run
+        The run whose residual is wanted (usually the last).
+    planes : sequence of Plane
+        The correction planes (their radii, mm).
+    channel_weights : numpy.ndarray or None, default None
+        Weight per channel; None weighs them equally.
+
+    Returns
+    -------
+    list of float
+        Residual unbalance per plane, g·mm.
+
+    References
+    ----------
+    .. [1] Influence-coefficient method: E. L. Thearle, "Dynamic Balancing of Rotating
+       Machinery in the Field", Trans. ASME (1934), two-plane field balancing, here
+       generalised by least squares (from memory).
+    """
     return [abs(u) for u in residual_unbalance_vectors_gmm(model, run, planes, channel_weights)]
 
 
 def residual_unbalance_vectors_gmm(model: InfluenceModel, run: Run, planes: Sequence[Plane],
                                    channel_weights: np.ndarray | None = None) -> list[complex]:
-    """Residual unbalance per plane as phasors (g·mm): minus the least-squares correction
-    still needed (grams at the plane's radius), times radius — the heavy spot's angle."""
+    """Residual unbalance per plane as phasors: minus the correction still needed, times radius.
+
+    The least-squares correction for the run's 1x (grams at the plane's radius) is the
+    negative of the unbalance left; times the radius it is the residual unbalance, its angle
+    the heavy spot's.
+
+    Parameters
+    ----------
+    model : InfluenceModel
+        Influence coefficients, reading units per gram.
+    run : Run
+        The run whose residual is wanted.
+    planes : sequence of Plane
+        The correction planes (their radii, mm).
+    channel_weights : numpy.ndarray or None, default None
+        Weight per channel; None weighs them equally.
+
+    Returns
+    -------
+    list of complex
+        Residual unbalance per plane, g·mm phasors.
+
+    References
+    ----------
+    .. [1] Influence-coefficient method: E. L. Thearle, "Dynamic Balancing of Rotating
+       Machinery in the Field", Trans. ASME (1934), two-plane field balancing, here
+       generalised by least squares (from memory).
+    """
     groups = sorted({c.speed_rpm for c in model.channels}, key=lambda v: -1 if v is None else v)
     g = _group_of(run.speed_rpm, groups)
     rows = [c for c, ch in enumerate(model.channels) if ch.speed_rpm == g]
@@ -504,9 +787,32 @@ def trial_size_factor(before: dict[str, complex], after: dict[str, complex],
                       confidence: dict[str, float] | None = None) -> float:
     """How many times bigger a trial mass should have been (1.0 = big enough).
 
-    Right after one trial run: the trial changed the 1x from ``before`` to ``after``
-    (phasors per pickup). It is big enough when on some pickup the change is at least 25 %
-    of the level before and at least three confidence radii (common practice, no source).
+    Right after one trial run: the trial changed the 1x from ``before`` to ``after``. It is big
+    enough when on some pickup the change is at least 25 % of the level before and at least
+    three confidence radii.
+
+    Parameters
+    ----------
+    before : dict of str to complex
+        1x per pickup before the trial, reading units (phasors).
+    after : dict of str to complex
+        1x per pickup with the trial, reading units.
+    confidence : dict of str to float or None, default None
+        95 % confidence radius per pickup, reading units.
+
+    Returns
+    -------
+    float
+        The factor, at least 1.0.
+
+    Raises
+    ------
+    UserError
+        When the trial changed no pickup's 1x at all.
+
+    References
+    ----------
+    .. [1] The 25 % and three-radii thresholds: common practice, no source.
     """
     factor = np.inf
     for name, b in before.items():

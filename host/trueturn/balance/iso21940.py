@@ -81,19 +81,83 @@ GRADES: tuple[Grade, ...] = (
 
 
 def angular_speed_rad_s(speed_rpm: float) -> float:
-    """omega = 2 pi n / 60."""
+    """Angular speed ``omega = 2 pi n / 60``.
+
+    Parameters
+    ----------
+    speed_rpm : float
+        Rotational speed ``n``, rpm.
+
+    Returns
+    -------
+    float
+        Angular speed, rad/s.
+
+    References
+    ----------
+    .. [1] Definition of the radian per second and the revolution per minute (SI units;
+       common practice, no source).
+    """
     return 2.0 * math.pi * speed_rpm / 60.0
 
 
 def permissible_eccentricity_um(grade_mm_s: float, speed_rpm: float) -> float:
-    """e_per = G / omega (ISO 21940-11:2016), in micrometres."""
+    """Permissible specific unbalance ``e_per = G / omega`` at the maximum service speed.
+
+    Parameters
+    ----------
+    grade_mm_s : float
+        Balance quality grade G, mm/s (e.g. 6.3 for G 6.3).
+    speed_rpm : float
+        Maximum service speed, rpm.
+
+    Returns
+    -------
+    float
+        ``e_per``, micrometres (g·mm per kg of rotor).
+
+    Raises
+    ------
+    UserError
+        When the grade or the speed is not a finite number above 0.
+
+    References
+    ----------
+    .. [1] ISO 21940-11:2016, Mechanical vibration -- Rotor balancing -- Part 11: Procedures
+       and tolerances for rotors with rigid behaviour (formerly ISO 1940-1).
+    """
     if not (0 < grade_mm_s < math.inf and 0 < speed_rpm < math.inf):
         raise UserError("grade and speed must be greater than 0")
     return 1000.0 * grade_mm_s / angular_speed_rad_s(speed_rpm)
 
 
 def permissible_unbalance_gmm(grade_mm_s: float, speed_rpm: float, rotor_mass_kg: float) -> float:
-    """U_per = e_per * m (ISO 21940-11:2016), in g·mm (µm · kg = g · mm)."""
+    """Permissible residual unbalance ``U_per = e_per m`` of the whole rotor.
+
+    Parameters
+    ----------
+    grade_mm_s : float
+        Balance quality grade G, mm/s.
+    speed_rpm : float
+        Maximum service speed, rpm.
+    rotor_mass_kg : float
+        Mass of the rotor, kg.
+
+    Returns
+    -------
+    float
+        ``U_per``, g·mm (um times kg).
+
+    Raises
+    ------
+    UserError
+        When the rotor mass, the grade or the speed is not a finite number above 0.
+
+    References
+    ----------
+    .. [1] ISO 21940-11:2016, Mechanical vibration -- Rotor balancing -- Part 11: Procedures
+       and tolerances for rotors with rigid behaviour (formerly ISO 1940-1).
+    """
     if not 0 < rotor_mass_kg < math.inf:
         raise UserError("rotor mass must be greater than 0")
     return permissible_eccentricity_um(grade_mm_s, speed_rpm) * rotor_mass_kg
@@ -101,9 +165,37 @@ def permissible_unbalance_gmm(grade_mm_s: float, speed_rpm: float, rotor_mass_kg
 
 def allocate_two_planes(u_per_gmm: float, plane_distance_mm: float | None = None,
                         cg_from_first_plane_mm: float | None = None) -> tuple[float, float]:
-    """U_per shared between two planes by the lever rule, each share within 0.3...0.7.
+    """``U_per`` shared between two correction planes by the lever rule, each share 0.3...0.7.
 
-    Without geometry the centre of mass is taken midway: half each.
+    Without geometry the centre of mass is taken midway: half each. Used when the bearings are
+    not known (the verdict is then flagged ``not_at_bearings``).
+
+    Parameters
+    ----------
+    u_per_gmm : float
+        Permissible residual unbalance of the rotor, g·mm.
+    plane_distance_mm : float or None, default None
+        Distance between the two planes, mm.
+    cg_from_first_plane_mm : float or None, default None
+        Centre of mass measured from the first plane towards the second, mm.
+
+    Returns
+    -------
+    tuple of (float, float)
+        Permissible residual unbalance of the first and the second plane, g·mm.
+
+    Raises
+    ------
+    UserError
+        When only one of the distances is given, the plane distance is not above 0, or the
+        centre of mass lies outside the two planes.
+
+    References
+    ----------
+    .. [1] ISO 21940-11:2016, Mechanical vibration -- Rotor balancing -- Part 11: Procedures
+       and tolerances for rotors with rigid behaviour (formerly ISO 1940-1).
+       Clause 7, allocation of ``U_per`` to the tolerance planes (from memory -- check
+       against the standard).
     """
     if plane_distance_mm is None or cg_from_first_plane_mm is None:
         if (plane_distance_mm is None) != (cg_from_first_plane_mm is None):
@@ -122,7 +214,31 @@ def allocate_two_planes(u_per_gmm: float, plane_distance_mm: float | None = None
 
 
 def verdict(residual_gmm: Sequence[float], permissible_gmm: Sequence[float]) -> Verdict:
-    """Pass when every plane's residual is within its share of U_per."""
+    """Pass when every plane's residual is within its share of ``U_per`` (correction planes).
+
+    Parameters
+    ----------
+    residual_gmm : sequence of float
+        Residual unbalance per plane, g·mm.
+    permissible_gmm : sequence of float
+        Permissible residual unbalance per plane, g·mm (same order).
+
+    Returns
+    -------
+    Verdict
+        Pass or fail with the residuals and shares, flagged ``not_at_bearings`` (the standard's
+        tolerance planes are the bearing planes).
+
+    Raises
+    ------
+    ValueError
+        When the two sequences differ in length (a programming error, not a user's).
+
+    References
+    ----------
+    .. [1] ISO 21940-11:2016, Mechanical vibration -- Rotor balancing -- Part 11: Procedures
+       and tolerances for rotors with rigid behaviour (formerly ISO 1940-1).
+    """
     if len(residual_gmm) != len(permissible_gmm):
         raise ValueError("one permissible value per plane")
     ok = all(r <= p for r, p in zip(residual_gmm, permissible_gmm, strict=True))
@@ -153,7 +269,29 @@ def bearing_lever_arms(plane_axial_mm: Sequence[float], bearing_axial_mm: Sequen
         R_A = U (z_B - z) / L,   R_B = U (z - z_A) / L.
 
     Both arms lie in 0...1 for a plane between the bearings; outside, one exceeds 1 and the
-    other is negative (the far bearing is pulled the other way). Rigid-body statics.
+    other is negative (the far bearing is pulled the other way).
+
+    Parameters
+    ----------
+    plane_axial_mm : sequence of float
+        Axial position of each correction plane, mm (any common origin).
+    bearing_axial_mm : sequence of float
+        Axial positions of bearing A and bearing B, mm (same origin; exactly two).
+
+    Returns
+    -------
+    tuple of (tuple of float, tuple of float)
+        The arms to bearing A and to bearing B, one per plane (dimensionless).
+
+    Raises
+    ------
+    UserError
+        When there are not two bearings, they coincide, or a position is not finite.
+
+    References
+    ----------
+    .. [1] Rigid-body statics: equilibrium of forces and moments on a beam on two supports
+       (any statics textbook; common practice, no single source).
     """
     z_a, z_b, span = _bearing_span(bearing_axial_mm)
     zs = [float(z) for z in plane_axial_mm]
@@ -164,15 +302,37 @@ def bearing_lever_arms(plane_axial_mm: Sequence[float], bearing_axial_mm: Sequen
 
 def refer_to_bearings(residual_gmm: Sequence[complex], plane_axial_mm: Sequence[float],
                       bearing_axial_mm: Sequence[float]) -> tuple[complex, complex]:
-    """Residual unbalance vectors (g·mm, complex) in the correction planes referred to the
-    two bearing planes: ``(U_A, U_B)`` with ``U_A + U_B = sum U_j`` (force balance) and
-    ``z_A U_A + z_B U_B = sum z_j U_j`` (moment balance). Rigid-body statics.
+    """Residual unbalance vectors in the correction planes referred to the two bearing planes.
+
+    ``(U_A, U_B)`` with ``U_A + U_B = sum U_j`` (force balance) and ``z_A U_A + z_B U_B =
+    sum z_j U_j`` (moment balance).
 
     Parameters
     ----------
-    residual_gmm : residual unbalance per correction plane, magnitude and angle as a phasor
-    plane_axial_mm : axial position of each correction plane, mm (any common origin)
-    bearing_axial_mm : axial positions of bearing A and bearing B, mm (same origin)
+    residual_gmm : sequence of complex
+        Residual unbalance per correction plane as a phasor (magnitude and angle), g·mm.
+    plane_axial_mm : sequence of float
+        Axial position of each correction plane, mm (any common origin).
+    bearing_axial_mm : sequence of float
+        Axial positions of bearing A and bearing B, mm (same origin).
+
+    Returns
+    -------
+    tuple of (complex, complex)
+        The residual unbalance referred to bearing A and to bearing B, g·mm phasors.
+
+    Raises
+    ------
+    UserError
+        When the planes and their positions differ in number, or the bearings are unusable
+        (:func:`bearing_lever_arms`).
+
+    References
+    ----------
+    .. [1] ISO 21940-11:2016, clause 4: the bearing planes are the reference planes for
+       unbalance tolerances (sentence checked against a public excerpt, clause number from
+       memory).
+    .. [2] Rigid-body statics (force and moment balance; common practice, no single source).
     """
     if len(residual_gmm) != len(plane_axial_mm):
         raise UserError("one axial position per correction plane is needed")
@@ -184,9 +344,35 @@ def refer_to_bearings(residual_gmm: Sequence[complex], plane_axial_mm: Sequence[
 
 def worst_case_at_bearings(residual_gmm: Sequence[float], plane_axial_mm: Sequence[float],
                            bearing_axial_mm: Sequence[float]) -> tuple[float, float]:
-    """Bearing-plane residuals when only magnitudes are known: every plane's share in phase
-    (``sum |arm_j| |U_j|``), the largest value the unknown angles could give (triangle
-    inequality on :func:`refer_to_bearings`)."""
+    """Bearing-plane residuals when only magnitudes are known: every plane's share in phase.
+
+    ``sum |arm_j| |U_j|`` per bearing: the largest value the unknown angles could give
+    (triangle inequality on :func:`refer_to_bearings`).
+
+    Parameters
+    ----------
+    residual_gmm : sequence of float
+        Residual unbalance magnitude per correction plane, g·mm.
+    plane_axial_mm : sequence of float
+        Axial position of each correction plane, mm.
+    bearing_axial_mm : sequence of float
+        Axial positions of bearing A and bearing B, mm.
+
+    Returns
+    -------
+    tuple of (float, float)
+        Worst-case residual at bearing A and at bearing B, g·mm.
+
+    Raises
+    ------
+    UserError
+        When the planes and their positions differ in number.
+
+    References
+    ----------
+    .. [1] Triangle inequality ``|sum a_j U_j| <= sum |a_j| |U_j|`` applied to the rigid-body
+       referral (common practice, no source).
+    """
     if len(residual_gmm) != len(plane_axial_mm):
         raise UserError("one axial position per correction plane is needed")
     arm_a, arm_b = bearing_lever_arms(plane_axial_mm, bearing_axial_mm)
@@ -197,7 +383,26 @@ def worst_case_at_bearings(residual_gmm: Sequence[float], plane_axial_mm: Sequen
 
 def plane_arrangement(plane_axial_mm: Sequence[float], bearing_axial_mm: Sequence[float]
                       ) -> PlaneArrangement:
-    """Inboard, outboard, overhung or mixed: where the correction planes are."""
+    """Inboard, outboard, overhung or mixed: where the correction planes are against the bearings.
+
+    Parameters
+    ----------
+    plane_axial_mm : sequence of float
+        Axial position of each correction plane, mm.
+    bearing_axial_mm : sequence of float
+        Axial positions of the two bearings, mm (same origin).
+
+    Returns
+    -------
+    PlaneArrangement
+        ``INBOARD`` (all between the bearings), ``OUTBOARD`` (outside, on both sides),
+        ``OVERHUNG`` (outside, on one side) or ``MIXED``.
+
+    References
+    ----------
+    .. [1] Geometry only (axial positions compared); the usual names of the arrangements
+       (common practice, no source).
+    """
     z_a, z_b, _ = _bearing_span(bearing_axial_mm)
     low, high = min(z_a, z_b), max(z_a, z_b)
     tol = 1e-9 * max(1.0, abs(high - low))
@@ -214,11 +419,34 @@ def plane_arrangement(plane_axial_mm: Sequence[float], bearing_axial_mm: Sequenc
 def allocate_to_bearings(u_per_gmm: float, bearing_axial_mm: Sequence[float],
                          cg_axial_mm: float | None = None
                          ) -> tuple[tuple[float, float], tuple[VerdictFlag, ...]]:
-    """U_per shared between bearing A and bearing B by the lever rule, each share within
-    0.3...0.7 of U_per (ISO 21940-11:2016 clause 7, from memory).
+    """``U_per`` shared between bearing A and bearing B by the lever rule, each share 0.3...0.7.
 
-    Returns the two shares and the flags that apply (centre of mass assumed midway, or
-    outside the bearings).
+    Parameters
+    ----------
+    u_per_gmm : float
+        Permissible residual unbalance of the rotor, g·mm.
+    bearing_axial_mm : sequence of float
+        Axial positions of bearing A and bearing B, mm.
+    cg_axial_mm : float or None, default None
+        Axial position of the centre of mass, mm (same origin); None takes it midway.
+
+    Returns
+    -------
+    tuple of ((float, float), tuple of VerdictFlag)
+        The permissible residual unbalance at bearing A and at bearing B, g·mm, and the flags
+        that apply (``cg_assumed_midway``, ``cg_outside_bearings``).
+
+    Raises
+    ------
+    UserError
+        When the bearings are unusable or the centre of mass is not a finite number.
+
+    References
+    ----------
+    .. [1] ISO 21940-11:2016, Mechanical vibration -- Rotor balancing -- Part 11: Procedures
+       and tolerances for rotors with rigid behaviour (formerly ISO 1940-1).
+       Clause 7, lever rule with each share within 0.3...0.7 of ``U_per`` (from memory --
+       check against the standard).
     """
     z_a, z_b, span = _bearing_span(bearing_axial_mm)
     if cg_axial_mm is None:
@@ -242,15 +470,51 @@ def bearing_verdict(residual_gmm: Sequence[complex | float], plane_axial_mm: Seq
                     speed_rpm: float | None = None) -> Verdict:
     """ISO 21940-11 verdict at the bearing planes.
 
-    The correction-plane residuals (phasors, g·mm) are referred to the bearings by
-    :func:`refer_to_bearings` (or :func:`worst_case_at_bearings` when ``angles_known`` is
-    False and only magnitudes are given) and compared with the lever-rule shares of
-    ``u_per_gmm`` (:func:`allocate_to_bearings`). Pass when both bearings are within.
+    The correction-plane residuals are referred to the bearings by :func:`refer_to_bearings`
+    (or :func:`worst_case_at_bearings` when ``angles_known`` is False and only magnitudes are
+    given) and compared with the lever-rule shares of ``u_per_gmm``
+    (:func:`allocate_to_bearings`). Pass when both bearings are within.
+
+    Parameters
+    ----------
+    residual_gmm : sequence of complex or float
+        Residual unbalance per correction plane, g·mm (phasors; magnitudes when
+        ``angles_known`` is False).
+    plane_axial_mm : sequence of float
+        Axial position of each correction plane, mm.
+    bearing_axial_mm : sequence of float
+        Axial positions of bearing A and bearing B, mm.
+    u_per_gmm : float
+        Permissible residual unbalance of the rotor, g·mm.
+    cg_axial_mm : float or None, default None
+        Axial position of the centre of mass, mm; None takes it midway.
+    angles_known : bool, default True
+        False when only magnitudes are known: the worst case is judged (flag
+        ``worst_case_phasing``).
+    bearing_names : sequence of str, default ("bearing A", "bearing B")
+        Labels of the two tolerance planes.
+    speed_rpm : float or None, default None
+        The speed the grade was judged at (the maximum service speed), rpm; carried in the
+        verdict.
+
+    Returns
+    -------
+    Verdict
+        Pass or fail with the residual and permissible unbalance per bearing (g·mm), the
+        residual angles (degrees, None in the worst case), the plane arrangement and flags.
+
+    Raises
+    ------
+    UserError
+        When ``u_per_gmm`` is not a finite number above 0 (and as the functions it calls).
 
     References
     ----------
-    ISO 21940-11:2016, clause 4 (bearing planes as tolerance planes) and clause 7
-    (allocation to tolerance planes, from memory); rigid-body statics for the referral.
+    .. [1] ISO 21940-11:2016, Mechanical vibration -- Rotor balancing -- Part 11: Procedures
+       and tolerances for rotors with rigid behaviour (formerly ISO 1940-1).
+       Clause 4 (bearing planes as tolerance planes) and clause 7 (allocation to
+       tolerance planes, from memory).
+    .. [2] Rigid-body statics for the referral (common practice, no single source).
     """
     if not 0 < u_per_gmm < math.inf:
         raise UserError("permissible unbalance must be greater than 0")
@@ -276,7 +540,31 @@ def bearing_verdict(residual_gmm: Sequence[complex | float], plane_axial_mm: Seq
 
 def per_plane_permissible(u_per_gmm: float, n_planes: int, plane_distance_mm: float | None = None,
                           cg_from_first_plane_mm: float | None = None) -> list[float]:
-    """U_per for one plane (all of it) or two planes (allocated); N > 2: equal shares."""
+    """``U_per`` for one plane (all of it) or two planes (allocated); more planes: equal shares.
+
+    Parameters
+    ----------
+    u_per_gmm : float
+        Permissible residual unbalance of the rotor, g·mm.
+    n_planes : int
+        Number of correction planes.
+    plane_distance_mm : float or None, default None
+        Distance between two planes, mm (two planes only).
+    cg_from_first_plane_mm : float or None, default None
+        Centre of mass from the first plane, mm (two planes only).
+
+    Returns
+    -------
+    list of float
+        Permissible residual unbalance per plane, g·mm.
+
+    References
+    ----------
+    .. [1] ISO 21940-11:2016, Mechanical vibration -- Rotor balancing -- Part 11: Procedures
+       and tolerances for rotors with rigid behaviour (formerly ISO 1940-1).
+       Clause 7 for two planes (from memory); equal shares for more than two planes are
+       common practice, no source.
+    """
     if n_planes == 1:
         return [u_per_gmm]
     if n_planes == 2:

@@ -78,6 +78,27 @@ class BalanceInput:
         return all(r.phase_deg is not None for run in self.runs for r in run.readings.values())
 
     def plane(self, name: str) -> Plane:
+        """The correction plane of that name.
+
+        Parameters
+        ----------
+        name : str
+            The plane's name.
+
+        Returns
+        -------
+        Plane
+            The plane (radius, mass limit, axial position).
+
+        Raises
+        ------
+        KeyError
+            When no plane has that name (a programming error: names are checked on input).
+
+        References
+        ----------
+        .. [1] Lookup only; common practice, no source.
+        """
         for plane in self.planes:
             if plane.name == name:
                 return plane
@@ -275,12 +296,35 @@ class ReadingsDocument:
         return []
 
     def bearing_list(self) -> tuple[Bearing, ...]:
-        """The bearings as the model's nouns (unnamed ones called A and B)."""
+        """The bearings as the model's nouns (unnamed ones called A and B).
+
+        Returns
+        -------
+        tuple of Bearing
+            Each bearing with its name and axial position, mm; empty when none are given.
+
+        References
+        ----------
+        .. [1] ISO 21940-11:2016, clause 4: the bearing planes are the tolerance planes (why they
+           are asked for; from memory).
+        """
         return tuple(Bearing(b.name if b.name is not None else "AB"[i % 2], b.axial_mm)
                      for i, b in enumerate(self.bearings or []))
 
     def balance_input(self) -> BalanceInput:
-        """The checked document as the balancing engine's input."""
+        """The checked document as the balancing engine's input.
+
+        Returns
+        -------
+        BalanceInput
+            Planes, pickups with their weights, runs (masses in g at degrees, 1x readings in the
+            document's unit, speeds in rpm), saved coefficients, tolerance (the last run's speed
+            standing in for the maximum service speed when none is given, flagged) and bearings.
+
+        References
+        ----------
+        .. [1] The READINGS format: balance/README.md (ours; no external source).
+        """
         weights = self.weights or {}
         sensors = tuple(Sensor(s.name, weights.get(s.name, s.weight)) for s in self.sensors)
         runs = []
@@ -308,9 +352,31 @@ class ReadingsDocument:
 
 
 def parse_readings(doc: Any, source: str = "READINGS") -> BalanceInput:
-    """Check and convert a READINGS document (plain data, with lines when loaded by
-    :func:`trueturn.yamltext.load_yaml_text`); the first problem raises a one-line
-    :class:`trueturn.schema.SchemaError` ``source:line: field.path: problem``."""
+    """Check and convert a READINGS document into the balancing engine's input.
+
+    Parameters
+    ----------
+    doc : Any
+        The document as plain data (mappings, lists, numbers, text), with lines when loaded
+        by :func:`trueturn.yamltext.load_yaml_text`.
+    source : str, default "READINGS"
+        The file's name for the messages.
+
+    Returns
+    -------
+    BalanceInput
+        The checked input (:meth:`ReadingsDocument.balance_input`).
+
+    Raises
+    ------
+    SchemaError
+        On the first problem, one line ``source:line: field.path: problem`` (a
+        :class:`~trueturn.errors.UserError`: exit 2).
+
+    References
+    ----------
+    .. [1] The READINGS format: balance/README.md (ours; no external source).
+    """
     if doc is None:
         raise SchemaError(f"{source}:1: (top): the document is empty")
     document: ReadingsDocument = from_data(ReadingsDocument, doc, source)

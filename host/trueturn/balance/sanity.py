@@ -79,13 +79,37 @@ class CorrectionFinding:
 def check_trial_information(plane: str, trial_g: float, effects: Sequence[float],
                             levels: Sequence[float], uncertainties: Sequence[float | None],
                             ) -> None:
-    """Refuse a plane whose trial effect is unresolved on every pickup.
+    """Refuse a plane whose trial changed the 1x less than the readings resolve, on every pickup.
+
+    A change is resolved when it exceeds the 95 % radius of the change (the readings' own
+    radii added in quadrature, computed by the caller); without radii, when it exceeds 1 % of
+    the level before the trial.
 
     Parameters
     ----------
-    effects : magnitude of the trial's change of the 1x per channel (reading units)
-    levels : the 1x level per channel before the trial (reading units)
-    uncertainties : 95 % radius of that change per channel (None: unknown, then the 1 % rule)
+    plane : str
+        Name of the plane whose trial is judged.
+    trial_g : float
+        The trial mass, g; a trial of 0 g or less is not judged.
+    effects : sequence of float
+        Magnitude of the trial's change of the 1x per pickup, reading units.
+    levels : sequence of float
+        The 1x level per pickup before the trial, reading units.
+    uncertainties : sequence of float or None
+        95 % radius of that change per pickup, reading units (None: unknown, then the 1 %
+        rule).
+
+    Raises
+    ------
+    NoInformationError
+        When no pickup resolves the change; it names a trial mass about three times the
+        uncertainty (``suggested_g``), or None when the trial changed nothing at all.
+
+    References
+    ----------
+    .. [1] JCGM 100:2008 (GUM), Evaluation of measurement data -- Guide to the expression of
+       uncertainty in measurement: independent uncertainties combine in quadrature.
+    .. [2] The 1 % repeatability floor and the factor 3: common practice, no source.
     """
     if trial_g <= 0:
         return
@@ -109,7 +133,32 @@ def check_trial_information(plane: str, trial_g: float, effects: Sequence[float]
 
 def check_corrections(masses_g: Sequence[float], planes: Sequence[str],
                       rotor_mass_kg: float | None) -> list[CorrectionFinding]:
-    """Refuse absurd corrections (:class:`AbsurdCorrectionError`); flag large ones."""
+    """Refuse absurd corrections; flag large ones.
+
+    Parameters
+    ----------
+    masses_g : sequence of float
+        Correction mass per plane, g.
+    planes : sequence of str
+        The planes' names, same order.
+    rotor_mass_kg : float or None
+        Mass of the rotor, kg; None when unknown (then only the 100 kg limit applies).
+
+    Returns
+    -------
+    list of CorrectionFinding
+        Corrections above 1 % of the rotor's mass, flagged ``large_share_of_rotor``.
+
+    Raises
+    ------
+    AbsurdCorrectionError
+        When a correction is not finite, above 10 % of the rotor's mass, or above 100 kg with
+        no rotor mass known.
+
+    References
+    ----------
+    .. [1] The 1 % and 10 % limits: common practice, no source.
+    """
     findings = []
     for plane, mass_g in zip(planes, masses_g, strict=True):
         if not math.isfinite(mass_g):

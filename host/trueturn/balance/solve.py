@@ -46,10 +46,37 @@ class SolveReport:
 
 
 def solve(inp: BalanceInput) -> SolveReport:
-    """Compute corrections for a checked READINGS input.
+    """Corrections for a checked READINGS input, with the optional tolerance verdict.
 
-    Runs at slightly different speeds are normalised when ``inp.speed_exponent`` is known,
-    otherwise reported with an error estimate (:mod:`trueturn.balance.speed`).
+    Phase readings go to the influence-coefficient method, amplitudes only to the
+    amplitude-only method. Runs at slightly different speeds are normalised when
+    ``inp.speed_exponent`` is known, otherwise reported with an error estimate
+    (:mod:`trueturn.balance.speed`).
+
+    Parameters
+    ----------
+    inp : BalanceInput
+        The checked input (:func:`trueturn.balance.readings.parse_readings`).
+
+    Returns
+    -------
+    SolveReport
+        The solution, the speed error estimate, correction findings, the static/couple split
+        (two planes) and, when the input has a tolerance, ``U_per`` (g·mm) and the verdict.
+
+    Raises
+    ------
+    UserError
+        As the methods it calls: an input they cannot solve, a trial with no information
+        (``NoInformationError``) or an absurd correction (``AbsurdCorrectionError``).
+
+    References
+    ----------
+    .. [1] Influence-coefficient method (:func:`trueturn.balance.influence.solve_with_phase`)
+       and the four-run method (:func:`trueturn.balance.amplitude_only.solve_amplitude_only`);
+       see their references.
+    .. [2] ISO 21940-11:2016, Mechanical vibration -- Rotor balancing -- Part 11: Procedures
+       and tolerances for rotors with rigid behaviour (the verdict).
     """
     solver = solve_with_phase if inp.has_phase else solve_amplitude_only
     if inp.speed_exponent is not None:
@@ -93,7 +120,32 @@ def solve(inp: BalanceInput) -> SolveReport:
 
 
 def tolerance_verdict(inp: BalanceInput, solution: Solution, u_per_gmm: float) -> Verdict:
-    """ISO 21940-11 verdict on the residual of the last run: at the bearings when known."""
+    """ISO 21940-11 verdict on the residual of the last run: at the bearings when known.
+
+    The residual of the last run is minus the least-squares correction still needed, times
+    the plane's radius, as a phasor. With bearings (and the planes' axial positions) it is
+    referred to the bearing planes; otherwise judged in the correction planes, flagged
+    ``not_at_bearings``.
+
+    Parameters
+    ----------
+    inp : BalanceInput
+        The checked input; its ``tolerance`` must be given.
+    solution : Solution
+        The solution, with its residual of the last run.
+    u_per_gmm : float
+        Permissible residual unbalance of the rotor at the maximum service speed, g·mm.
+
+    Returns
+    -------
+    Verdict
+        Pass or fail with residual and permissible unbalance per tolerance plane, g·mm.
+
+    References
+    ----------
+    .. [1] ISO 21940-11:2016, clause 4 (bearing planes as tolerance planes) and clause 7
+       (allocation of ``U_per``, from memory); see :func:`trueturn.balance.iso21940.bearing_verdict`.
+    """
     tol = inp.tolerance
     assert tol is not None and solution.residual_now_gmm is not None
     if inp.bearings and solution.residual_now_vector_gmm is not None:

@@ -79,7 +79,28 @@ def _reference_speeds(runs: Sequence[Run]) -> list[float | None]:
 
 def off_speed_runs(runs: Sequence[Run], warn_fraction: float = SPEED_WARN_FRACTION
                    ) -> list[OffSpeedRun]:
-    """Runs more than ``warn_fraction`` from their group's reference speed."""
+    """Runs more than ``warn_fraction`` from their speed group's reference speed.
+
+    Parameters
+    ----------
+    runs : sequence of Run
+        The runs, each with its ``speed_rpm`` (rpm) or None.
+    warn_fraction : float, default 0.003
+        Largest deviation left unreported (fraction of the reference speed).
+
+    Returns
+    -------
+    list of OffSpeedRun
+        Each off-speed run with its deviation and the reading error ``(n / n_ref) ** p - 1``
+        for p = 2 and p = 4.
+
+    References
+    ----------
+    .. [1] 1x response to a rotating unbalance ~ speed^p, p = 2...4 (forced response of a
+       single-degree-of-freedom system; from memory: W. T. Thomson, "Theory of Vibration with
+       Applications", rotating unbalance).
+    .. [2] The 0.3 % limit (``constants.SPEED_MATCH_FRACTION``): common practice, no source.
+    """
     out = []
     for k, (run, ref) in enumerate(zip(runs, _reference_speeds(runs), strict=True)):
         if run.speed_rpm is None or ref is None:
@@ -94,8 +115,28 @@ def off_speed_runs(runs: Sequence[Run], warn_fraction: float = SPEED_WARN_FRACTI
 
 
 def normalise_speeds(inp: BalanceInput, exponent: float) -> BalanceInput:
-    """Readings rescaled to their group's reference speed: ``R * (n_ref / n) ** exponent``
-    (amplitude and confidence radius; phase unchanged)."""
+    """Readings rescaled to their group's reference speed: ``R (n_ref / n) ** exponent``.
+
+    Amplitude and confidence radius are scaled; the phase is unchanged.
+
+    Parameters
+    ----------
+    inp : BalanceInput
+        The checked input.
+    exponent : float
+        The response's speed exponent p (1x ~ speed ** p), e.g. from a coast-down sweep.
+
+    Returns
+    -------
+    BalanceInput
+        A copy with every off-reference run's readings rescaled.
+
+    References
+    ----------
+    .. [1] 1x response to a rotating unbalance ~ speed^p, p = 2...4 (forced response of a
+       single-degree-of-freedom system; from memory: W. T. Thomson, "Theory of Vibration with
+       Applications", rotating unbalance).
+    """
     runs = []
     for run, ref in zip(inp.runs, _reference_speeds(inp.runs), strict=True):
         if run.speed_rpm is None or ref is None or run.speed_rpm == ref:
@@ -116,8 +157,31 @@ def speed_error_estimate(inp: BalanceInput, solution: Solution,
                          ) -> SpeedErrorEstimate | None:
     """Re-solve with readings normalised at p = 2 and p = 4; None when no run is off speed.
 
-    ``solution`` is the answer given (from ``inp`` as it is, or normalised with a known
-    exponent); ``solver`` the function that produced it (phase or amplitude-only).
+    Parameters
+    ----------
+    inp : BalanceInput
+        The checked input, as measured.
+    solution : Solution
+        The answer given (from ``inp`` as it is, or normalised with a known exponent).
+    solver : callable
+        The function that produced it (phase or amplitude-only), ``BalanceInput -> Solution``.
+    normalised_with_exponent : float or None, default None
+        The exponent the given answer was normalised with, if any (carried in the result).
+
+    Returns
+    -------
+    SpeedErrorEstimate or None
+        Per plane the largest vector change of the correction (g) and that change as a
+        fraction of the correction, and the worst 1x cut the given correction would still
+        achieve; None when every run is within 0.3 % of its group's speed.
+
+    References
+    ----------
+    .. [1] 1x response to a rotating unbalance ~ speed^p, p = 2...4 (forced response of a
+       single-degree-of-freedom system; from memory: W. T. Thomson, "Theory of Vibration with
+       Applications", rotating unbalance).
+    .. [2] Re-solving over the plausible range of p as a sensitivity check: common practice,
+       no source.
     """
     off = off_speed_runs(inp.runs)
     if not off:

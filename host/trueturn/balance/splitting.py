@@ -56,6 +56,12 @@ def split(mass_g: float, angle_deg: float, positions_deg: Sequence[float]) -> li
         One part if the correction falls on a position, else two parts on the neighbouring
         positions (less than 180 deg apart) whose vector sum is the correction.
 
+    Raises
+    ------
+    UserError
+        When the mass is negative or not finite, an angle is not finite, no positions are
+        given, or the neighbouring positions are 180 deg or more apart.
+
     Notes
     -----
     With the correction at ``theta`` between positions ``a`` and ``b`` (gap ``g = b - a``), the
@@ -99,7 +105,25 @@ def split(mass_g: float, angle_deg: float, positions_deg: Sequence[float]) -> li
 
 
 def combine(masses: Sequence[tuple[float, float]]) -> tuple[float, float]:
-    """One mass equivalent to several ``(mass_g, angle_deg)`` at the same radius."""
+    """One mass equivalent to several masses at the same radius (their vector sum).
+
+    Parameters
+    ----------
+    masses : sequence of (float, float)
+        Each mass as ``(mass_g, angle_deg)``: grams, and degrees in the :mod:`trueturn.angles`
+        convention.
+
+    Returns
+    -------
+    tuple of (float, float)
+        The equivalent mass, g, and its angle, degrees in 0...360.
+
+    References
+    ----------
+    .. [1] Vector addition of centrifugal forces at a common radius and speed (parallelogram
+       law), e.g. F. P. Beer, E. R. Johnston, "Vector Mechanics for Engineers: Statics", ch. 2
+       (from memory).
+    """
     total = sum((phasor(m, a) for m, a in masses), 0j)
     return amplitude_phase(total)
 
@@ -117,7 +141,46 @@ class Removal:
 
 def removal(mass_g: float, angle_deg: float, drill_diameter_mm: float, density_g_cm3: float,
             point_angle_deg: float = DEFAULT_POINT_ANGLE_DEG) -> Removal:
-    """Remove ``mass_g`` opposite to an addition at ``angle_deg`` with one drilled hole."""
+    """Remove ``mass_g`` opposite an addition at ``angle_deg`` with one drilled hole.
+
+    Parameters
+    ----------
+    mass_g : float
+        Mass that would be added, g (not below 0); the same mass is removed.
+    angle_deg : float
+        Angle where it would be added, degrees; the hole goes 180 deg opposite.
+    drill_diameter_mm : float
+        Drill diameter, mm (greater than 0).
+    density_g_cm3 : float
+        Density of the rotor's material, g/cm^3 (greater than 0).
+    point_angle_deg : float, default 118.0
+        Included angle of the drill point, degrees (between 0 and 180).
+
+    Returns
+    -------
+    Removal
+        The hole's angle (degrees), mass (g), volume (mm^3), the depth of its full-diameter
+        part and the depth to the drill point's tip (mm).
+
+    Raises
+    ------
+    UserError
+        When the mass is negative or not finite, the diameter or density is not above 0, or
+        the point angle is outside 0...180 deg.
+
+    Notes
+    -----
+    Volume ``V = m / rho``; the drill point is a cone of height ``h = r / tan(point/2)`` and
+    volume ``pi r^2 h / 3``; a hole smaller than that cone is a cone alone.
+
+    References
+    ----------
+    .. [1] Removal at the opposite angle: equivalence of a negative mass at ``theta`` with a
+       positive one at ``theta + 180 deg`` (vector sum of centrifugal forces; common practice,
+       no source).
+    .. [2] Volume of a cylinder and of a cone (elementary geometry); 118 deg as the common
+       twist-drill point angle (common practice, no source).
+    """
     if not math.isfinite(mass_g) or mass_g < 0:
         raise UserError(f"mass must be a finite number not below 0, got {mass_g:g}")
     if not (0 < drill_diameter_mm < math.inf and 0 < density_g_cm3 < math.inf):

@@ -24,7 +24,28 @@ class StaticCouple:
 
 
 def static_couple(first_gmm: complex, second_gmm: complex) -> StaticCouple:
-    """Split two plane vectors into the static resultant and the couple pair."""
+    """Split two plane unbalance vectors into the static resultant and the couple pair.
+
+    Parameters
+    ----------
+    first_gmm : complex
+        Unbalance (or correction) in the first plane as a phasor, g·mm (magnitude, and angle
+        in the :mod:`trueturn.angles` convention).
+    second_gmm : complex
+        The same in the second plane, g·mm.
+
+    Returns
+    -------
+    StaticCouple
+        The static resultant ``S = U1 + U2`` (g·mm and degrees) and the couple ``K = (U1 - U2)
+        / 2`` in the first plane (g·mm and degrees; the second plane carries ``-K``), so that
+        ``U1 = S/2 + K`` and ``U2 = S/2 - K``.
+
+    References
+    ----------
+    .. [1] ISO 21940-2, Mechanical vibration -- Rotor balancing -- Part 2: Vocabulary
+       (static, couple and dynamic unbalance; title and edition from memory).
+    """
     s, s_angle = amplitude_phase(first_gmm + second_gmm)
     k, k_angle = amplitude_phase((first_gmm - second_gmm) / 2)
     return StaticCouple(s, s_angle, k, k_angle)

@@ -31,14 +31,64 @@ class TrialMass:
 
 
 def centrifugal_force_n(mass_g: float, radius_mm: float, speed_rpm: float) -> float:
-    """Centrifugal force F = m·r·ω² of a mass at a radius, in newtons."""
+    """Centrifugal force ``F = m r omega^2`` of a mass at a radius.
+
+    Parameters
+    ----------
+    mass_g : float
+        The mass, g.
+    radius_mm : float
+        Its distance from the axis, mm.
+    speed_rpm : float
+        Rotational speed, rpm.
+
+    Returns
+    -------
+    float
+        The force, N.
+
+    References
+    ----------
+    .. [1] Centripetal force of a point mass in uniform circular motion, ``F = m omega^2 r``
+       (any mechanics textbook; common practice, no single source).
+    """
     return mass_g / 1000.0 * radius_mm / 1000.0 * angular_speed_rad_s(speed_rpm) ** 2
 
 
 def size_trial_mass(rotor_mass_kg: float, radius_mm: float, speed_rpm: float,
                     force_ratio: float = DEFAULT_FORCE_RATIO,
                     max_mass_g: float | None = None) -> TrialMass:
-    """Trial mass whose centrifugal force is ``force_ratio`` of the rotor's weight, capped."""
+    """Trial mass whose centrifugal force is ``force_ratio`` of the rotor's weight, capped.
+
+    Parameters
+    ----------
+    rotor_mass_kg : float
+        Mass of the rotor, kg (greater than 0).
+    radius_mm : float
+        Radius at which the trial mass sits, mm (greater than 0).
+    speed_rpm : float
+        Speed of the trial run, rpm (greater than 0).
+    force_ratio : float, default 0.10
+        Wanted centrifugal force of the trial mass over the rotor's weight ``M g``.
+    max_mass_g : float or None, default None
+        Cap on the trial mass, g; None caps at 1 % of the rotor mass.
+
+    Returns
+    -------
+    TrialMass
+        The mass (g), its force (N), the force over the rotor weight and over the mass's own
+        weight (``r omega^2 / g``), whether it was capped, and a warning when it was.
+
+    Raises
+    ------
+    UserError
+        When a mass, radius, speed, ratio or cap is not a finite number above 0.
+
+    References
+    ----------
+    .. [1] The 10 % rule (trial force about a tenth of the rotor weight) and the 1 % cap:
+       common practice, no source.
+    """
     for name, value in (("rotor mass", rotor_mass_kg), ("radius", radius_mm),
                         ("speed", speed_rpm), ("force ratio", force_ratio)):
         if not 0 < value < math.inf:

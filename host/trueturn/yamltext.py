@@ -76,10 +76,78 @@ _LineLoader.add_constructor(yaml.resolver.BaseResolver.DEFAULT_MAPPING_TAG, _con
 _LineLoader.add_constructor(yaml.resolver.BaseResolver.DEFAULT_SEQUENCE_TAG, _construct_sequence)
 
 
+# Numbers with an exponent as people and JSON write them (1e-3, 2.5E6, 1.5e3): YAML 1.1
+# reads a float only with a dot and a signed exponent (1.0e-3, 1.5e+3), so PyYAML's resolver
+# took ``1e-3`` for text; YAML 1.2's core schema (section 10.3.2) reads them all as floats.
+_LineLoader.add_implicit_resolver(
+    "tag:yaml.org,2002:float",
+    re.compile(r"^[-+]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)[eE][-+]?[0-9]+$"),
+    list("-+0123456789."))
+
+#: Limits on what a document may expand to, checked on the parsed node graph before any
+#: Python object is built: a few kilobytes of aliases (``&a [*b, *b, ...]``, the "billion
+#: laughs") otherwise expand to gigabytes in whatever walks the data, and an alias to itself
+#: never ends. Our largest documents (a job of 1000 runs) are some 10^5 nodes deep 10.
+MAX_NODES = 2_000_000
+MAX_DEPTH = 64
+
+
+def _check_graph(node: yaml.Node, source: str) -> None:
+    """Refuse a node graph that expands past :data:`MAX_NODES` nodes or :data:`MAX_DEPTH`
+    levels, or that contains itself (an alias inside its own anchor); one line each."""
+    size: dict[int, int] = {}
+    depth: dict[int, int] = {}
+    on_path: set[int] = set()
+    stack: list[tuple[yaml.Node, bool]] = [(node, False)]
+
+    def children(n: yaml.Node) -> list[yaml.Node]:
+        if isinstance(n, yaml.SequenceNode):
+            return list(n.value)
+        if isinstance(n, yaml.MappingNode):
+            return [part for pair in n.value for part in pair]
+        return []
+
+    while stack:
+        current, done = stack.pop()
+        key = id(current)
+        if done:
+            on_path.discard(key)
+            kids = children(current)
+            size[key] = 1 + sum(size[id(k)] for k in kids)
+            depth[key] = 1 + max((depth[id(k)] for k in kids), default=0)
+            line = current.start_mark.line + 1
+            if size[key] > MAX_NODES:
+                raise SchemaError(f"{source}:{line}: expands to more than {MAX_NODES:,} values "
+                                  "(aliases repeating aliases?); not a document trueturn reads")
+            if depth[key] > MAX_DEPTH:
+                raise SchemaError(f"{source}:{line}: nested more than {MAX_DEPTH} levels deep")
+            continue
+        if key in size:
+            continue
+        if key in on_path:
+            raise SchemaError(f"{source}:{current.start_mark.line + 1}: an alias refers to "
+                              "the value that contains it (a loop)")
+        on_path.add(key)
+        stack.append((current, True))
+        stack.extend((k, False) for k in children(current) if id(k) not in size)
+        if len(on_path) > MAX_DEPTH:
+            raise SchemaError(f"{source}:{current.start_mark.line + 1}: nested more than "
+                              f"{MAX_DEPTH} levels deep")
+
+
 def load_yaml_text(text: str, source: str) -> Any:
-    """Parse YAML (or JSON) text; a syntax error becomes one :class:`SchemaError` line."""
+    """Parse YAML (or JSON) text; a syntax error, a document nested too deep or expanding
+    too far through aliases becomes one :class:`SchemaError` line."""
     try:
-        return yaml.load(text, Loader=_LineLoader)  # noqa: S506 - a SafeLoader subclass
+        loader = _LineLoader(text)
+        try:
+            node = loader.get_single_node()
+            if node is None:
+                return None
+            _check_graph(node, source)
+            return loader.construct_document(node)
+        finally:
+            loader.dispose()
     except yaml.MarkedYAMLError as exc:
         mark = exc.problem_mark or exc.context_mark
         line = mark.line + 1 if mark is not None else 1

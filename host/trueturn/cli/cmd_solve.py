@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import argparse
 import sys
-from pathlib import Path
 from typing import Any
 
 from trueturn.angles import amplitude_phase
@@ -14,6 +13,7 @@ from trueturn.balance.iso21940 import TolerancePlanes, VerdictFlag
 from trueturn.balance.solve import SolveReport
 from trueturn.cli.common import print_json
 from trueturn.errors import UserError
+from trueturn.files import MAX_TEXT_BYTES, read_text_file
 from trueturn.yamltext import load_yaml_text
 
 CAUTION = ("Caution: before attaching, moving or removing any mass, switch the machine off, "
@@ -36,14 +36,15 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
 def load_document(path: str) -> Any:
     """Read a YAML/JSON document keeping its lines; any problem becomes one line naming the
     file (``file:line: problem``)."""
+    if path != "-":
+        return load_yaml_text(read_text_file(path), path)  # regular file, size limit
     try:
-        text = sys.stdin.read() if path == "-" else Path(path).read_text(encoding="utf-8")
-    except OSError as exc:
-        raise UserError(f"{path}: cannot read ({exc.strerror or exc})") from None
+        text = sys.stdin.read(MAX_TEXT_BYTES + 1)
     except UnicodeDecodeError:
-        raise UserError(f"{path}:1: not a text file (YAML or JSON in UTF-8 expected)") from None
-    except ValueError:  # a name the system cannot take (a NUL byte)
-        raise UserError(f"{path!r}: not a file name") from None
+        raise UserError("stdin:1: not text (YAML or JSON in UTF-8 expected)") from None
+    if len(text) > MAX_TEXT_BYTES:
+        raise UserError(f"stdin: more than {MAX_TEXT_BYTES // (1024 * 1024)} MB; not a "
+                        "readings file")
     return load_yaml_text(text, "stdin" if path == "-" else path)
 
 

@@ -15,6 +15,7 @@ from typing import Any, Literal
 import numpy as np
 
 from trueturn.errors import UserError
+from trueturn.files import read_text_file
 from trueturn.positions import equally_spaced_deg
 from trueturn.schema import SchemaError, from_data, limits
 from trueturn.sim.rotor import (
@@ -339,12 +340,5 @@ def load_scenario(name_or_path: str | Path) -> Scenario:
         if not path.is_file():
             raise UserError(f"no scenario called {text_name!r}; known: {', '.join(list_scenarios())}")
     source = path.name if path.parent == scenario_dir() else str(path)
-    try:
-        text = path.read_text(encoding="utf-8")
-    except FileNotFoundError:
-        raise UserError(f"scenario file {text_name} does not exist") from None
-    except UnicodeDecodeError:
-        raise SchemaError(f"{source}:1: not a text file (YAML in UTF-8 expected)") from None
-    except OSError as exc:
-        raise UserError(f"cannot read scenario {text_name}: {exc.strerror or exc}") from None
+    text = read_text_file(path)  # a regular file, at most files.MAX_TEXT_BYTES
     return parse_scenario(load_yaml_text(text, source), source)

@@ -61,6 +61,21 @@ class Analysis:
     findings: tuple[Finding, ...] = ()  # the warnings as data, in the same order
 
     def to_json(self) -> dict[str, Any]:
+        """The analysis as the JSON contract of ``trueturn analyze --json``.
+
+        Returns
+        -------
+        dict
+            ``speed_rpm``, ``pickups`` (amplitude in its ``unit``, phase and confidence in
+            degrees, confidence radius in the unit, orders, noise and hum in volts), spectrum
+            peaks (Hz, amplitude), ``confidence`` (what the 95 % circle covers), ``warnings``,
+            ``findings`` and the link counters; non-finite numbers as null.
+
+        References
+        ----------
+        .. [1] dsp/README.md, "What the 95 % circle covers" and "Findings" (ours; no external
+           source).
+        """
         def num(x: float | None, digits: int = 6) -> float | None:
             return None if x is None or not math.isfinite(x) else round(float(x), digits)
 
@@ -98,8 +113,38 @@ def analyze_capture(raw: bytes, revs: int | None = None, mains_hz: float | None 
                     identity: dict[str, Any] | None = None) -> Analysis:
     """Analyse the received bytes of one capture over its last ``revs`` good revolutions.
 
-    ``identity``: the board's identity fields as saved in a capture header, used when the
-    bytes themselves start after the identity message (an identity in the bytes wins).
+    Decodes with :class:`trueturn.link.codec.StreamDecoder` and runs the same
+    :class:`~trueturn.dsp.meter.LiveAnalyzer` as the live app, so a capture gives exactly what
+    the meter showed.
+
+    Parameters
+    ----------
+    raw : bytes
+        The bytes as received from the board.
+    revs : int or None, default None
+        Revolutions averaged; None averages every revolution up to a limit (then says so).
+    mains_hz : float or None, default 50.0
+        Mains frequency, Hz (hum at it and twice it is fitted out); None fits no hum.
+    profiles : sequence of PickupProfile, default ()
+        One per channel: name, sensitivity (V/g), low-pass corners (Hz), delay (us).
+    unit : str or None, default None
+        A key of :data:`trueturn.dsp.units.UNITS`; None takes each profile's default.
+    limits : SteadinessLimits or None, default None
+        When a reading is steady; None takes the defaults.
+    identity : dict or None, default None
+        The board's identity fields as saved in a capture header, used when the bytes start
+        after the identity message (an identity in the bytes wins).
+
+    Returns
+    -------
+    Analysis
+        Mean speed (rpm), readings per pickup, labelled spectrum peaks, findings and their
+        words, and the link counters.
+
+    References
+    ----------
+    .. [1] See :mod:`trueturn.dsp.order` (Kay 1993; Fyfe & Munck 1997), :mod:`trueturn.dsp.averaging`
+       (Victor & Mast 1991) and :mod:`trueturn.dsp.spectrum` (Welch 1967), all from memory.
     """
     meter = LiveAnalyzer(profiles=profiles, unit=unit, mains_hz=mains_hz,
                          max_revs=revs or ALL_REVS, limits=limits, batch_revs=BATCH_REVS)
@@ -180,13 +225,30 @@ class _BoardLosses:
 
 
 def link_findings(link: dict[str, Any], board: _BoardLosses | None = None) -> list[Finding]:
-    """Findings about the USB link from the decoder's counters (``LinkCounters.to_json``).
+    """Findings about the USB link from the decoder's counters.
 
     Lost frames are said with what they held (samples, tach edges, or neither: then the
-    readings are unaffected). A loss of a whole number of 256 frames leaves the 8-bit
-    sequence number in step; it is found when the sample indices and the tach edge count
-    need more lost frames than the sequence number shows (after what the board itself
-    said it dropped: ``samples_dropped`` and ``frames_dropped`` in status), and said.
+    readings are unaffected). A loss of a whole number of 256 frames leaves the 8-bit sequence
+    number in step; it is found when the sample indices and the tach edge count need more lost
+    frames than the sequence number shows (after what the board itself said it dropped:
+    ``samples_dropped`` and ``frames_dropped`` in status), and said.
+
+    Parameters
+    ----------
+    link : dict
+        The decoder's counters (``LinkCounters.to_json``).
+    board : _BoardLosses or None, default None
+        What the board itself dropped, from its status messages; None when unknown.
+
+    Returns
+    -------
+    list of Finding
+        ``link_damaged_frames``, ``link_unseen_loss`` and ``link_frames_lost`` as they apply.
+
+    References
+    ----------
+    .. [1] protocol/SPEC.md (sequence numbers, sample indices, edge counts, status counters;
+       ours).
     """
     out: list[Finding] = []
     bad = int(link.get("frames_bad", 0))

@@ -89,6 +89,19 @@ class Finding:
     blocking: bool = False
 
     def to_json(self) -> dict[str, Any]:
+        """The finding as JSON-ready data (``analyze --json``, ``findings``).
+
+        Returns
+        -------
+        dict
+            ``code``, ``pickup`` (None for the stream), ``count`` when known, every detail (a
+            non-finite number as None), and ``blocking: true`` when it blocks.
+
+        References
+        ----------
+        .. [1] The finding codes and their JSON form: dsp/README.md, "Findings" (ours; no external
+           source).
+        """
         out: dict[str, Any] = {"code": self.code.value, "pickup": self.pickup}
         if self.count is not None:
             out["count"] = self.count
@@ -235,8 +248,24 @@ _BRIEF = {
 def describe(finding: Finding, brief: bool = False) -> str:
     """The words for one finding: the one place findings become sentences.
 
-    ``brief``: a few plain words where the app has them (the tach codes), else the sentence.
     A finding about one pickup starts with its name.
+
+    Parameters
+    ----------
+    finding : Finding
+        The finding.
+    brief : bool, default False
+        A few plain words where the app has them (the tach codes), else the sentence.
+
+    Returns
+    -------
+    str
+        The sentence (or the brief words).
+
+    References
+    ----------
+    .. [1] The finding codes and their JSON form: dsp/README.md, "Findings" (ours; no external
+       source).
     """
     if brief and finding.code in _BRIEF:
         count = f" ({finding.count})" if finding.count else ""
@@ -246,8 +275,23 @@ def describe(finding: Finding, brief: bool = False) -> str:
 
 
 def unique(findings: Iterable[Finding]) -> list[Finding]:
-    """``findings`` without repeats, in order (a stream finding shared by every pickup's
-    reading is listed once)."""
+    """Findings without repeats, in order (a stream finding shared by every pickup is listed once).
+
+    Parameters
+    ----------
+    findings : iterable of Finding
+        The findings, possibly repeated.
+
+    Returns
+    -------
+    list of Finding
+        The first of each equal finding, in order.
+
+    References
+    ----------
+    .. [1] The finding codes and their JSON form: dsp/README.md, "Findings" (ours; no external
+       source).
+    """
     seen: list[Finding] = []
     for f in findings:
         if f not in seen:

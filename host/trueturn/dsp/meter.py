@@ -109,7 +109,18 @@ class PickupReading(Reading):
         return self.vector
 
     def as_reading(self) -> Reading:
-        """The plain reading other layers keep (a job file stores this), unknowns as None."""
+        """The plain reading other layers keep (a job file stores this), unknowns as None.
+
+        Returns
+        -------
+        Reading
+            Amplitude in ``unit``, phase (degrees, lag), confidence (degrees and radius in
+            ``unit``), revolutions, steadiness and speed (rpm); non-finite values as None.
+
+        References
+        ----------
+        .. [1] The shared nouns: model/README.md (ours; no external source).
+        """
         return Reading(
             self.sensor, self.amplitude, self.unit, self.phase_deg, self.confidence_deg,
             self.revolutions, self.steady,
@@ -292,9 +303,26 @@ class LiveAnalyzer:
     def feed(self, msg: MessageLike) -> bool:
         """Take one decoded message; True when the readings should be refreshed.
 
-        That is when a revolution's samples are complete (about one 15 ms sample block after
-        its closing tach edge at 2 x 4 kSps), and at least once per second of stream time
-        even without revolutions, so a stalled tach or a very slow shaft still shows.
+        That is when a revolution's samples are complete (about one 15 ms sample block after its
+        closing tach edge at 2 x 4 kSps), and at least once per second of stream time even without
+        revolutions, so a stalled tach or a very slow shaft still shows.
+
+        Parameters
+        ----------
+        msg : MessageLike
+            A decoded message (identity, stream_config, samples, tach, status; others ignored).
+
+        Returns
+        -------
+        bool
+            True when :meth:`readings` has something new.
+
+        References
+        ----------
+        .. [1] protocol/SPEC.md (the messages, their counters and timebase; ours).
+        .. [2] Order fit and averaging: see :mod:`trueturn.dsp.order` (S. M. Kay, "Fundamentals of
+           Statistical Signal Processing: Estimation Theory", 1993, from memory) and
+           :mod:`trueturn.dsp.averaging` (circular T^2, Victor & Mast 1991, from memory).
         """
         name = msg.name
         if name == "samples":
@@ -351,8 +379,19 @@ class LiveAnalyzer:
         self._board_now = counters
 
     def board_losses(self) -> dict[str, int]:
-        """How much each board counter (adc_overruns, samples_dropped, frames_dropped) rose
-        during this stream, as far as the status messages received tell."""
+        """How much each board counter rose during this stream, as far as status messages tell.
+
+        Returns
+        -------
+        dict of str to int
+            Rise of ``adc_overruns``, ``samples_dropped``, ``frames_dropped``,
+            ``tach_suppressed`` and ``capture_overwrites`` (those the board sends); empty before
+            two status messages of the stream.
+
+        References
+        ----------
+        .. [1] protocol/SPEC.md (the messages, their counters and timebase; ours). Section 4.6 (status: totals since reset).
+        """
         if self._board_base is None or self._board_now is None:
             return {}
         return {k: v - self._board_base.get(k, v) for k, v in self._board_now.items()}
@@ -375,9 +414,16 @@ class LiveAnalyzer:
                 "USB supply is out of range (try another USB port, cable or a powered hub)")
 
     def end_of_stream(self) -> None:
-        """No more messages will come (the end of a capture): stop holding back the newest
-        revolution for the edge after it, and leave out a run of off tach edges that never
-        came back in step."""
+        """No more messages will come (the end of a capture).
+
+        Stops holding back the newest revolution for the edge after it, and leaves out a run of
+        off tach edges that never came back in step.
+
+        References
+        ----------
+        .. [1] Theil-Sen time line of the tach edges: see :class:`trueturn.dsp.shaft.TachTracker`
+           (common practice, no source).
+        """
         self._ended = True
         self.tach.close_run()
 
@@ -576,12 +622,38 @@ class LiveAnalyzer:
         return (self.reference_mv / 1000.0) / (1 << self.adc_bits)
 
     def profile(self, channel: int) -> PickupProfile:
+        """The pickup profile of a channel.
+
+        Parameters
+        ----------
+        channel : int
+            Channel index, from 0.
+
+        Returns
+        -------
+        PickupProfile
+            The profile given for it, or an uncalibrated one named "pickup N" (N from 1).
+
+        References
+        ----------
+        .. [1] Lookup only; common practice, no source.
+        """
         if channel < len(self.profiles):
             return self.profiles[channel]
         return PickupProfile(name=f"pickup {channel + 1}")
 
     def stream_findings(self) -> list[Finding]:
-        """Problems with the stream as a whole (tach, link, set-up), as data."""
+        """Problems with the stream as a whole (tach, link, set-up), as data.
+
+        Returns
+        -------
+        list of Finding
+            Stream findings (pickup None), in a fixed order; see dsp/README.md, "Findings".
+
+        References
+        ----------
+        .. [1] protocol/SPEC.md (the messages, their counters and timebase; ours).
+        """
         out: list[Finding] = []
         self._flush_fresh()
         if self.config is None:
@@ -625,7 +697,17 @@ class LiveAnalyzer:
         return out
 
     def stream_warnings(self) -> list[str]:
-        """:meth:`stream_findings` in words, one line each."""
+        """:meth:`stream_findings` in words, one line each.
+
+        Returns
+        -------
+        list of str
+            One sentence per finding (:func:`trueturn.dsp.findings.describe`).
+
+        References
+        ----------
+        .. [1] protocol/SPEC.md (the messages, their counters and timebase; ours).
+        """
         return [describe(f) for f in self.stream_findings()]
 
     def _stacked(self, channel: int, last: int | None) -> dict[str, np.ndarray]:
@@ -639,7 +721,22 @@ class LiveAnalyzer:
         return self._periods.last(n)["ticks"]
 
     def speeds_rpm(self, last: int | None = None) -> np.ndarray:
-        """Speed of each averaged revolution (rpm), oldest first."""
+        """Speed of each averaged revolution, oldest first.
+
+        Parameters
+        ----------
+        last : int or None, default None
+            Number of revolutions; None (or more than ``max_revs``) gives ``max_revs``.
+
+        Returns
+        -------
+        numpy.ndarray
+            Speeds, rpm (``60 tick_hz / period_ticks``).
+
+        References
+        ----------
+        .. [1] Definition of rev/min (common practice, no source).
+        """
         n = min(last or self.max_revs, self.max_revs)
         if not len(self._periods):
             return np.zeros(0)
@@ -653,7 +750,31 @@ class LiveAnalyzer:
         return 60.0 * self.tick_hz / float(self._periods.last(1)["ticks"][0])
 
     def readings(self, last: int | None = None) -> list[PickupReading]:
-        """One reading per pickup over the last ``last`` (default ``max_revs``) revolutions."""
+        """One reading per pickup over the last ``last`` revolutions.
+
+        Each reading is the mean of the per-revolution 1x phasors with its 95 % circle (random
+        part plus a timing-bias bound), its steadiness verdict and findings, converted to the
+        asked unit at the measured speed.
+
+        Parameters
+        ----------
+        last : int or None, default None
+            Number of revolutions averaged; None gives ``max_revs``.
+
+        Returns
+        -------
+        list of PickupReading
+            One per pickup with a revolution to average; empty when readings are refused (a
+            late-ADC or reference problem, see :meth:`stream_findings`).
+
+        References
+        ----------
+        .. [2] Order fit and averaging: see :mod:`trueturn.dsp.order` (S. M. Kay, "Fundamentals of
+           Statistical Signal Processing: Estimation Theory", 1993, from memory) and
+           :mod:`trueturn.dsp.averaging` (circular T^2, Victor & Mast 1991, from memory).
+        .. [3] dsp/README.md, "What the 95 % circle covers" (the timing bias bound: 1.5 ticks at
+           1x; ours).
+        """
         self._process()
         out: list[PickupReading] = []
         if self.adc_late_unexplained or self.reference_problem:
@@ -727,7 +848,25 @@ class LiveAnalyzer:
         )
 
     def spectra(self, resolution_hz: float = 1.0) -> list[Spectrum | None]:
-        """Welch spectrum (volts, or g for a calibrated pickup) of each pickup's recent samples."""
+        """Welch spectrum of each pickup's recent samples, peaks named by the fitted levels.
+
+        Parameters
+        ----------
+        resolution_hz : float, default 1.0
+            Wanted bin width, Hz.
+
+        Returns
+        -------
+        list of Spectrum or None
+            Per pickup, in g for a calibrated pickup, else volts (peak amplitudes); None for a
+            pickup with fewer than 64 recent samples.
+
+        References
+        ----------
+        .. [1] P. D. Welch, "The use of fast Fourier transform for the estimation of power
+           spectra", IEEE Trans. Audio Electroacoust. 15(2), 1967; see
+           :func:`trueturn.dsp.spectrum.spectrum`.
+        """
         out: list[Spectrum | None] = []
         rot_hz = None
         if len(self._periods):
@@ -757,6 +896,22 @@ class LiveAnalyzer:
         return out
 
     def spectrum_unit(self, channel: int) -> str:
+        """The unit of a channel's spectrum peaks.
+
+        Parameters
+        ----------
+        channel : int
+            Channel index, from 0.
+
+        Returns
+        -------
+        str
+            ``"g pk"`` for a calibrated pickup, ``"V pk"`` otherwise.
+
+        References
+        ----------
+        .. [1] Common practice, no source.
+        """
         return "g pk" if self.profile(channel).calibrated else "V pk"
 
 

@@ -71,17 +71,56 @@ class PickupMotion:
 
 def noise_floor_g_rms(g_per_count: float, rate_hz: float,
                       density_g: float = SENSOR_NOISE_DENSITY_G) -> float:
-    """Expected RMS of a still pickup: quantisation (q / sqrt(12)) and sensor noise over the
-    band up to Nyquist, added in power (Widrow and Kollar, Quantization Noise, 2008, for the
-    q/sqrt(12) model; from memory)."""
+    """Expected RMS of a still pickup: quantisation and sensor noise up to Nyquist, in power.
+
+    Parameters
+    ----------
+    g_per_count : float
+        One ADC count in g (or volts for an uncalibrated pickup).
+    rate_hz : float
+        Per-channel sample rate, Hz.
+    density_g : float, default 150e-6
+        Sensor noise density, g/sqrt(Hz) (ADXL335-class typical).
+
+    Returns
+    -------
+    float
+        The floor, g RMS (or volts).
+
+    References
+    ----------
+    .. [1] B. Widrow, I. Kollar, "Quantization Noise", Cambridge University Press, 2008: the
+       ``q / sqrt(12)`` model (from memory).
+    .. [2] ADXL335 datasheet, "Noise density", 150 ug/sqrt(Hz) typical (from memory).
+    """
     quantisation = g_per_count / math.sqrt(12.0)
     sensor = density_g * math.sqrt(rate_hz / 2.0)
     return math.hypot(quantisation, sensor)
 
 
 def quiet_limit_g_rms(floor_g_rms: float, running_g_rms: float | None = None) -> float:
-    """The broadband limit: twice the floor, at most ``ABSOLUTE_LIMIT_G_RMS``; with a known
-    running level, at most a quarter of it, but never below twice the floor."""
+    """The broadband level below which a pickup is quiet.
+
+    Twice the floor, at most 20 mg RMS; with a known running level, at most a quarter of it,
+    but never below twice the floor.
+
+    Parameters
+    ----------
+    floor_g_rms : float
+        The pickup's noise floor, g RMS (:func:`noise_floor_g_rms`).
+    running_g_rms : float or None, default None
+        The level of the machine running, g RMS, when known.
+
+    Returns
+    -------
+    float
+        The limit, g RMS.
+
+    References
+    ----------
+    .. [1] Common practice, no source (the limits are this module's choices; see its
+       docstring for what the method cannot see).
+    """
     near_floor = FLOOR_FACTOR * floor_g_rms
     limit = max(near_floor, ABSOLUTE_LIMIT_G_RMS)
     if running_g_rms is not None and running_g_rms > 0:
@@ -94,12 +133,35 @@ def motion_spectrum(values: np.ndarray, rate_hz: float, mains_hz: float | None,
                     ) -> tuple[float, tuple[float, float] | None]:
     """Broadband level and the strongest line that is not mains hum, from one Welch spectrum.
 
-    Returns ``(level_rms, line)``: the RMS over the band from ``LOWEST_HZ`` up, with the hum
-    bands left out (Parseval: the sum of the density times the bin width), and the strongest
-    line as (Hz, peak amplitude) or None. Welch's averaged periodogram (Hann, 50 % overlap);
-    a line must stand ``PERIODIC_SNR`` times (amplitude) above the median level and reach
-    ``PERIODIC_MIN_G``; its amplitude is the power over the Hann main lobe, as in
-    :mod:`trueturn.dsp.spectrum`.
+    The RMS over the band from ``LOWEST_HZ`` up with the hum bands left out (Parseval: the sum
+    of the density times the bin width); a line must stand ``PERIODIC_SNR`` times (amplitude)
+    above the median level and reach ``PERIODIC_MIN_G``; its amplitude is the power over the
+    Hann main lobe, as in :mod:`trueturn.dsp.spectrum`.
+
+    Parameters
+    ----------
+    values : numpy.ndarray
+        One pickup's samples, g (or volts).
+    rate_hz : float
+        Sample rate, Hz.
+    mains_hz : float or None
+        Mains frequency, Hz; None leaves no band out.
+    resolution_hz : float, default 0.5
+        Wanted bin width, Hz.
+
+    Returns
+    -------
+    level_rms : float
+        Broadband RMS, g (or volts); the plain standard deviation below 64 samples.
+    line : tuple of (float, float) or None
+        The strongest line as (Hz, g peak), or None.
+
+    References
+    ----------
+    .. [1] P. D. Welch, "The use of fast Fourier transform for the estimation of power
+       spectra", IEEE Trans. Audio Electroacoust. 15(2), 1967; ``scipy.signal.welch``.
+    .. [2] PSD peak thresholds as in :func:`trueturn.dsp.spectrum.spectrum`: common practice,
+       no source.
     """
     x = np.asarray(values, dtype=float)
     if x.size < 64:
@@ -149,12 +211,31 @@ class MotionMonitor:
         self.running_g_rms: list[float | None] = [None] * len(names)
 
     def clear(self) -> None:
+        """Forget every held sample (a gap: the window starts afresh); the running level is kept.
+
+        References
+        ----------
+        .. [2] The floor factor 2, the 20 mg ceiling and the quarter of the running level:
+           common practice, no source.
+        """
         for ring in self._rings:
             ring.clear()
         self._counts = [0] * len(self.names)
 
     def feed(self, interleaved_counts: np.ndarray, channels: int) -> None:
-        """One block of samples, channel-interleaved as in the protocol's samples message."""
+        """Hold one block of samples, channel-interleaved as in the protocol's samples message.
+
+        Parameters
+        ----------
+        interleaved_counts : numpy.ndarray
+            ADC counts, channel 0 first in each conversion.
+        channels : int
+            Number of interleaved channels.
+
+        References
+        ----------
+        .. [1] protocol/SPEC.md, the samples message (ours).
+        """
         values = np.asarray(interleaved_counts)
         n = values.size - values.size % channels
         for c in range(min(channels, len(self.names))):
@@ -166,16 +247,44 @@ class MotionMonitor:
                 self._counts[c] -= ring.popleft().size
 
     def seconds(self) -> float:
-        """Signal held for the pickup with the least (seconds)."""
+        """Signal held for the pickup with the least.
+
+        Returns
+        -------
+        float
+            Seconds of samples held.
+
+        References
+        ----------
+        .. [2] The floor factor 2, the 20 mg ceiling and the quarter of the running level:
+           common practice, no source.
+        """
         return min(self._counts, default=0) / self.rate_hz if self.rate_hz else 0.0
 
     def levels(self) -> list[float]:
-        """Broadband level of each pickup over what is held (hum left out; g or volts)."""
+        """Broadband level of each pickup over what is held (hum left out).
+
+        Returns
+        -------
+        list of float
+            Level per pickup, g RMS (or volts).
+
+        References
+        ----------
+        .. [1] P. D. Welch, "The use of fast Fourier transform for the estimation of power
+           spectra", IEEE Trans. Audio Electroacoust. 15(2), 1967; ``scipy.signal.welch``.
+        """
         return [motion_spectrum(self._values(c), self.rate_hz, self.mains_hz)[0]
                 for c in range(len(self.names))]
 
     def remember_running_level(self) -> None:
-        """The present levels are a running machine's (call at the end of a recorded run)."""
+        """Take the present levels as a running machine's (call at the end of a recorded run).
+
+        References
+        ----------
+        .. [2] The floor factor 2, the 20 mg ceiling and the quarter of the running level:
+           common practice, no source.
+        """
         self.running_g_rms = [v if math.isfinite(v) else None for v in self.levels()]
 
     def _values(self, c: int) -> np.ndarray:
@@ -186,7 +295,21 @@ class MotionMonitor:
         return x[-self.size:]
 
     def judge(self) -> tuple[PickupMotion, ...]:
-        """Each pickup's evidence over what is held (possibly less than the full window)."""
+        """Each pickup's evidence of motion over what is held (possibly less than the full window).
+
+        Returns
+        -------
+        tuple of PickupMotion
+            Per pickup: broadband level and its quiet limit (g RMS or volts), the strongest line
+            that is not hum (Hz, g peak) or None, and the seconds judged.
+
+        References
+        ----------
+        .. [1] P. D. Welch, "The use of fast Fourier transform for the estimation of power
+           spectra", IEEE Trans. Audio Electroacoust. 15(2), 1967; ``scipy.signal.welch``.
+        .. [2] The floor factor 2, the 20 mg ceiling and the quarter of the running level:
+           common practice, no source.
+        """
         out = []
         for c, name in enumerate(self.names):
             x = self._values(c)

@@ -45,7 +45,27 @@ MAX_GROUP = 4
 
 
 def group_for(samples_per_rev: float) -> int:
-    """The samples summed per fitted value: up to MAX_GROUP, keeping MIN_GROUPS_PER_REV."""
+    """The number of samples summed per fitted value.
+
+    Up to ``MAX_GROUP`` (4), doubling while at least ``MIN_GROUPS_PER_REV`` (20) sums per
+    revolution remain: the 1x then keeps over 99 % of its information (sinc^2 of 1/20).
+
+    Parameters
+    ----------
+    samples_per_rev : float
+        Samples of one pickup per revolution.
+
+    Returns
+    -------
+    int
+        1, 2 or 4.
+
+    References
+    ----------
+    .. [3] Sum of a geometric progression of phasors, ``sum_k exp(i b k) = exp(i b (n-1)/2)
+       sin(n b/2) / sin(b/2)`` (Dirichlet kernel; common practice, no source): the sums of
+       ``group`` samples obey the same linear model, weighted 1/n.
+    """
     group = 1
     while group < MAX_GROUP and samples_per_rev >= 2 * group * MIN_GROUPS_PER_REV:
         group *= 2
@@ -91,7 +111,25 @@ ROW_FIELDS = ("coef_y", "coef_n", "schur_nn", "schur_ny", "resid_yy", "gram_aa",
 
 
 def join_fits(fits: list[BlockFit], last: int | None = None) -> BlockFit:
-    """Stack the revolutions of several blocks (same orders, tones and time origin)."""
+    """Stack the revolutions of several blocks (same orders, tones and time origin).
+
+    Parameters
+    ----------
+    fits : list of BlockFit
+        The blocks, oldest first.
+    last : int or None, default None
+        Keep only the last ``last`` revolutions; None keeps all.
+
+    Returns
+    -------
+    BlockFit
+        One block holding every (or the last) revolution's statistics.
+
+    References
+    ----------
+    .. [1] S. M. Kay, "Fundamentals of Statistical Signal Processing: Estimation Theory",
+       Prentice Hall, 1993, ch. 4 and 8 (linear model, least squares; from memory).
+    """
     rows = {name: np.concatenate([getattr(f, name) for f in fits]) for name in ROW_FIELDS}
     if last is not None:
         rows = {k: v[-last:] for k, v in rows.items()}
@@ -119,8 +157,26 @@ class OrderEstimate:
     samples: int = 0
 
     def tone_amplitude(self, tones_hz: tuple[float, ...]) -> float:
-        """Peak amplitude of the fitted waveform of some nuisance tones together (a comb
-        around one hum frequency), from its mean power over the window."""
+        """Peak amplitude of the fitted waveform of some nuisance tones together.
+
+        A comb around one hum frequency, from its mean power over the window:
+        ``sqrt(2 gamma' G gamma / n)``.
+
+        Parameters
+        ----------
+        tones_hz : tuple of float
+            The tones, Hz (members of ``nuisance_hz``).
+
+        Returns
+        -------
+        float
+            Peak amplitude, input unit; 0 when none of the tones was fitted.
+
+        References
+        ----------
+        .. [1] S. M. Kay, "Fundamentals of Statistical Signal Processing: Estimation Theory",
+           Prentice Hall, 1993, ch. 4 and 8 (linear model, least squares; from memory).
+        """
         cols = [c for k, f in enumerate(self.nuisance_hz) if f in tones_hz
                 for c in (2 * k, 2 * k + 1)]
         if not cols or not self.samples:
@@ -132,9 +188,29 @@ class OrderEstimate:
 
 def revolution_basis(theta_rad: np.ndarray, orders: tuple[int, ...],
                      out: np.ndarray | None = None) -> np.ndarray:
-    """Columns ``[1, cos(h theta), sin(h theta) for h in orders]`` (n, 1 + 2 len(orders)).
+    """Design columns ``[1, cos(h theta), sin(h theta) for h in orders]``.
 
-    ``out``: an array (or a column slice of one) of that shape to fill instead.
+    Parameters
+    ----------
+    theta_rad : numpy.ndarray
+        Shaft angle of each sample, rad, shape (n,).
+    orders : tuple of int
+        The orders (1 for 1x...).
+    out : numpy.ndarray or None, default None
+        An array (or a column slice of one) of shape (n, 1 + 2 len(orders)) to fill instead.
+
+    Returns
+    -------
+    numpy.ndarray
+        The columns, shape (n, 1 + 2 len(orders)).
+
+    References
+    ----------
+    .. [1] S. M. Kay, "Fundamentals of Statistical Signal Processing: Estimation Theory",
+       Prentice Hall, 1993, ch. 4 and 8 (linear model, least squares; from memory).
+    .. [2] K. R. Fyfe, E. D. S. Munck, "Analysis of computed order tracking", Mech. Syst.
+       Signal Process. 11(2), 1997 (angle-domain order tracking; here fitted directly at the
+       sample angles; from memory).
     """
     if out is None:
         out = np.empty((theta_rad.shape[0], 1 + 2 * len(orders)))
@@ -154,11 +230,29 @@ def revolution_basis(theta_rad: np.ndarray, orders: tuple[int, ...],
 
 def tone_basis(times_s: np.ndarray, tones_hz: tuple[float, ...],
                out: np.ndarray | None = None) -> np.ndarray:
-    """Columns ``[cos(2 pi f t), sin(2 pi f t) for f in tones_hz]`` (n, 2 len(tones_hz)).
+    """Design columns ``[cos(2 pi f t), sin(2 pi f t) for f in tones_hz]``.
 
-    Related tones (twice another, or another plus a difference already at hand, as in a
-    comb ``f, f +/- d``) are built by complex products instead of new exponentials.
-    ``out``: an array (or a column slice of one) of that shape to fill instead.
+    Related tones (twice another, or another plus a difference already at hand, as in a comb
+    ``f, f +/- d``) are built by complex products instead of new exponentials.
+
+    Parameters
+    ----------
+    times_s : numpy.ndarray
+        Sample times from the time origin, s, shape (n,).
+    tones_hz : tuple of float
+        The tones, Hz.
+    out : numpy.ndarray or None, default None
+        An array (or a column slice of one) of shape (n, 2 len(tones_hz)) to fill instead.
+
+    Returns
+    -------
+    numpy.ndarray
+        The columns, shape (n, 2 len(tones_hz)).
+
+    References
+    ----------
+    .. [1] S. M. Kay, "Fundamentals of Statistical Signal Processing: Estimation Theory",
+       Prentice Hall, 1993, ch. 4 and 8 (linear model, least squares; from memory).
     """
     if out is None:
         out = np.empty((times_s.shape[0], 2 * len(tones_hz)))
@@ -198,13 +292,44 @@ def fit_block(sample_ticks: np.ndarray, values: np.ndarray, starts: np.ndarray,
               ends: np.ndarray, tick_hz: float, orders: tuple[int, ...] = (1, 2, 3),
               nuisance_hz: tuple[float, ...] = (), origin_tick: int = 0,
               group: int = 1) -> BlockFit:
-    """Per-revolution least-squares statistics for the revolutions [starts[r], ends[r]).
+    """Per-revolution least-squares statistics of one pickup for the revolutions ``[starts, ends)``.
 
-    ``sample_ticks`` (sorted, 64-bit, aperture delay included) and ``values`` are one
-    pickup's samples; ``origin_tick`` fixes the time origin of the nuisance tones and must be
-    the same for every block that is later combined. A revolution with fewer observations
-    than twice the number of unknowns gets NaN coefficients (left out by
-    :func:`solve_orders`). ``group``: see :func:`fit_blocks`.
+    A revolution with fewer observations than twice the number of unknowns gets NaN
+    coefficients (left out by :func:`solve_orders`).
+
+    Parameters
+    ----------
+    sample_ticks : numpy.ndarray
+        Sample times, board timer ticks (sorted, 64-bit, aperture delay included).
+    values : numpy.ndarray
+        The samples, any unit (ADC counts, volts).
+    starts : numpy.ndarray
+        Tick of the tach edge that starts each revolution.
+    ends : numpy.ndarray
+        Tick of the tach edge that ends each revolution.
+    tick_hz : float
+        The board's timer tick rate, Hz.
+    orders : tuple of int, default (1, 2, 3)
+        The orders fitted.
+    nuisance_hz : tuple of float, default ()
+        Known non-synchronous tones (mains hum), Hz.
+    origin_tick : int, default 0
+        Time origin of the tones, ticks; the same for every block later combined.
+    group : int, default 1
+        Samples summed per fitted value (:func:`fit_blocks`).
+
+    Returns
+    -------
+    BlockFit
+        Normal-equation blocks and per-revolution coefficients.
+
+    References
+    ----------
+    .. [1] S. M. Kay, "Fundamentals of Statistical Signal Processing: Estimation Theory",
+       Prentice Hall, 1993, ch. 4 and 8 (linear model, least squares; from memory).
+    .. [2] K. R. Fyfe, E. D. S. Munck, "Analysis of computed order tracking", Mech. Syst.
+       Signal Process. 11(2), 1997 (angle-domain order tracking; here fitted directly at the
+       sample angles; from memory).
     """
     return fit_blocks([sample_ticks], [values], starts, ends, tick_hz, orders, nuisance_hz,
                       origin_tick, group)[0]
@@ -218,8 +343,45 @@ def fit_blocks(sample_ticks: list[np.ndarray], values: list[np.ndarray], starts:
 
     ``group`` > 1 fits the sums of that many consecutive samples wherever a revolution's
     samples are evenly spaced (the normal case: one ADC clock, no lost samples inside): an
-    unbiased fit that costs about ``group`` times less (:func:`_gram`); other revolutions,
-    and all of them with ``group = 1``, are fitted sample by sample.
+    unbiased fit that costs about ``group`` times less; other revolutions, and all of them
+    with ``group = 1``, are fitted sample by sample.
+
+    Parameters
+    ----------
+    sample_ticks : list of numpy.ndarray
+        Sample times per pickup, board timer ticks.
+    values : list of numpy.ndarray
+        The samples per pickup, any unit.
+    starts : numpy.ndarray
+        Tick of the tach edge that starts each revolution.
+    ends : numpy.ndarray
+        Tick of the tach edge that ends each revolution.
+    tick_hz : float
+        The board's timer tick rate, Hz.
+    orders : tuple of int, default (1, 2, 3)
+        The orders fitted.
+    nuisance_hz : tuple of float, default ()
+        Known non-synchronous tones, Hz.
+    origin_tick : int, default 0
+        Time origin of the tones, ticks.
+    group : int, default 1
+        Samples summed per fitted value (:func:`group_for`).
+
+    Returns
+    -------
+    list of BlockFit
+        One per pickup.
+
+    References
+    ----------
+    .. [1] S. M. Kay, "Fundamentals of Statistical Signal Processing: Estimation Theory",
+       Prentice Hall, 1993, ch. 4 and 8 (linear model, least squares; from memory).
+    .. [2] K. R. Fyfe, E. D. S. Munck, "Analysis of computed order tracking", Mech. Syst.
+       Signal Process. 11(2), 1997 (angle-domain order tracking; here fitted directly at the
+       sample angles; from memory).
+    .. [3] Sum of a geometric progression of phasors, ``sum_k exp(i b k) = exp(i b (n-1)/2)
+       sin(n b/2) / sin(b/2)`` (Dirichlet kernel; common practice, no source): the sums of
+       ``group`` samples obey the same linear model, weighted 1/n.
     """
     starts = np.asarray(starts, dtype=np.int64)
     ends = np.asarray(ends, dtype=np.int64)
@@ -271,11 +433,48 @@ def fit_even(values: list[np.ndarray], first_ticks: list[int], step_ticks: int,
              starts: np.ndarray, ends: np.ndarray, tick_hz: float,
              orders: tuple[int, ...] = (1, 2, 3), nuisance_hz: tuple[float, ...] = (),
              origin_tick: int = 0, group: int = 1) -> list[BlockFit]:
-    """:func:`fit_blocks` for pickups whose samples are all evenly spaced: sample k of
-    pickup c at tick ``first_ticks[c] + k * step_ticks`` (a stream without lost samples, as
-    the meter holds it). Each revolution's samples are found by arithmetic instead of a
-    search, and every revolution is fitted from its sums of ``group`` samples
-    (:func:`_gram`); the result is that of :func:`fit_blocks` on the same samples.
+    """:func:`fit_blocks` for pickups whose samples are all evenly spaced.
+
+    Sample k of pickup c is at tick ``first_ticks[c] + k step_ticks`` (a stream without lost
+    samples, as the meter holds it). Each revolution's samples are found by arithmetic instead
+    of a search, and every revolution is fitted from its sums of ``group`` samples; the result
+    is that of :func:`fit_blocks` on the same samples.
+
+    Parameters
+    ----------
+    values : list of numpy.ndarray
+        The samples per pickup, any unit.
+    first_ticks : list of int
+        Tick of each pickup's first sample (aperture delay included).
+    step_ticks : int
+        Ticks between consecutive samples of one pickup.
+    starts : numpy.ndarray
+        Tick of the tach edge that starts each revolution.
+    ends : numpy.ndarray
+        Tick of the tach edge that ends each revolution.
+    tick_hz : float
+        The board's timer tick rate, Hz.
+    orders : tuple of int, default (1, 2, 3)
+        The orders fitted.
+    nuisance_hz : tuple of float, default ()
+        Known non-synchronous tones, Hz.
+    origin_tick : int, default 0
+        Time origin of the tones, ticks.
+    group : int, default 1
+        Samples summed per fitted value.
+
+    Returns
+    -------
+    list of BlockFit
+        One per pickup.
+
+    References
+    ----------
+    .. [1] S. M. Kay, "Fundamentals of Statistical Signal Processing: Estimation Theory",
+       Prentice Hall, 1993, ch. 4 and 8 (linear model, least squares; from memory).
+    .. [3] Sum of a geometric progression of phasors, ``sum_k exp(i b k) = exp(i b (n-1)/2)
+       sin(n b/2) / sin(b/2)`` (Dirichlet kernel; common practice, no source): the sums of
+       ``group`` samples obey the same linear model, weighted 1/n.
     """
     starts = np.asarray(starts, dtype=np.int64)
     ends = np.asarray(ends, dtype=np.int64)
@@ -492,11 +691,33 @@ def solve_orders(fit: BlockFit) -> OrderEstimate:
     """Per-revolution order phasors with the nuisance tones fitted over all the revolutions.
 
     ``fit`` may be stacked from several blocks (:func:`join_fits`). Revolutions with NaN
-    coefficients (too few samples) are left out. A tone that the window cannot tell apart
-    from the synchronous model (less than half its energy left after projecting the model
-    out: it lies within about half a beat per window of an order) is dropped and reported.
-    Tones may be close together (a comb around a hum frequency that is not exactly known);
-    the solve is a minimum-norm least squares, so only the fitted waveform matters.
+    coefficients (too few samples) are left out. A tone that the window cannot tell apart from
+    the synchronous model (less than half its energy left after projecting the model out: it
+    lies within about half a beat per window of an order) is dropped and reported. Tones may
+    be close together (a comb around a hum frequency that is not exactly known); the solve is
+    a minimum-norm least squares, so only the fitted waveform matters.
+
+    Parameters
+    ----------
+    fit : BlockFit
+        The per-revolution statistics (:func:`fit_blocks`, :func:`join_fits`).
+
+    Returns
+    -------
+    OrderEstimate
+        Phasors per revolution and order (peak, input unit, phase as lag per
+        :mod:`trueturn.angles`), DC, residual noise RMS, dropped tones (Hz) and the fitted
+        tone phasors.
+
+    References
+    ----------
+    .. [1] S. M. Kay, "Fundamentals of Statistical Signal Processing: Estimation Theory",
+       Prentice Hall, 1993, ch. 4 and 8 (linear model, least squares; from memory).
+    .. [2] K. R. Fyfe, E. D. S. Munck, "Analysis of computed order tracking", Mech. Syst.
+       Signal Process. 11(2), 1997 (angle-domain order tracking; here fitted directly at the
+       sample angles; from memory).
+    .. [3] Frisch-Waugh-Lovell partition of a linear model (nuisance columns projected out;
+       from memory: any econometrics textbook).
     """
     good = np.isfinite(fit.coef_y).all(axis=1)
 
@@ -550,7 +771,38 @@ def solve_orders(fit: BlockFit) -> OrderEstimate:
 def estimate_orders(sample_ticks: np.ndarray, values: np.ndarray, starts: np.ndarray,
                     ends: np.ndarray, tick_hz: float, orders: tuple[int, ...] = (1, 2, 3),
                     nuisance_hz: tuple[float, ...] = ()) -> OrderEstimate:
-    """One-shot :func:`fit_block` + :func:`solve_orders` for a whole record."""
+    """One-shot :func:`fit_block` and :func:`solve_orders` for a whole record of one pickup.
+
+    Parameters
+    ----------
+    sample_ticks : numpy.ndarray
+        Sample times, board timer ticks.
+    values : numpy.ndarray
+        The samples, any unit.
+    starts : numpy.ndarray
+        Tick of the tach edge that starts each revolution.
+    ends : numpy.ndarray
+        Tick of the tach edge that ends each revolution.
+    tick_hz : float
+        The board's timer tick rate, Hz.
+    orders : tuple of int, default (1, 2, 3)
+        The orders fitted.
+    nuisance_hz : tuple of float, default ()
+        Known non-synchronous tones, Hz.
+
+    Returns
+    -------
+    OrderEstimate
+        As :func:`solve_orders`.
+
+    References
+    ----------
+    .. [1] S. M. Kay, "Fundamentals of Statistical Signal Processing: Estimation Theory",
+       Prentice Hall, 1993, ch. 4 and 8 (linear model, least squares; from memory).
+    .. [2] K. R. Fyfe, E. D. S. Munck, "Analysis of computed order tracking", Mech. Syst.
+       Signal Process. 11(2), 1997 (angle-domain order tracking; here fitted directly at the
+       sample angles; from memory).
+    """
     origin = int(starts[0]) if len(starts) else 0
     fit = fit_block(np.asarray(sample_ticks, dtype=np.int64), np.asarray(values, dtype=float),
                     starts, ends, tick_hz, orders, nuisance_hz, origin)

@@ -54,25 +54,89 @@ ANCHOR_GAIN = 0.5
 def extend_tick(tick_u32: int, reference_tick: int) -> int:
     """The 64-bit tick nearest ``reference_tick`` whose low 32 bits are ``tick_u32``.
 
-    The board's Timer1 count is extended to 32 bits (wraps every 35.8 min at 2 MHz); the
-    host keeps one unwrapped time line by placing each new value next to a recent one.
+    The board's Timer1 count is extended to 32 bits (wraps every 35.8 min at 2 MHz); the host
+    keeps one unwrapped time line by placing each new value next to a recent one.
+
+    Parameters
+    ----------
+    tick_u32 : int
+        The board's 32-bit tick count, board timer ticks.
+    reference_tick : int
+        A recent unwrapped tick, board timer ticks (64-bit).
+
+    Returns
+    -------
+    int
+        The unwrapped tick within half a wrap of ``reference_tick``, board timer ticks.
+
+    References
+    ----------
+    .. [1] Serial-number arithmetic (unwrapping a counter by the nearest value; as RFC 1982
+       does for sequence numbers, from memory); protocol/SPEC.md for the board's clock.
     """
     delta = (tick_u32 - reference_tick + (TICK_WRAP >> 1)) % TICK_WRAP - (TICK_WRAP >> 1)
     return reference_tick + delta
 
 
 def speed_rpm_from_period(period_ticks: float, tick_hz: float) -> float:
-    """Shaft speed in rev/min from one revolution's length in ticks."""
+    """Shaft speed from one revolution's length.
+
+    Parameters
+    ----------
+    period_ticks : float
+        Length of one revolution, board timer ticks.
+    tick_hz : float
+        The board's timer tick rate, Hz.
+
+    Returns
+    -------
+    float
+        Speed, rpm (``60 tick_hz / period_ticks``).
+
+    References
+    ----------
+    .. [1] Definition of rev/min (common practice, no source).
+    """
     return 60.0 * tick_hz / period_ticks
 
 
 def rpm_to_hz(speed_rpm: float) -> float:
-    """Rotation frequency in Hz (1x) of a speed in rev/min; 3000 rpm is 50 Hz."""
+    """Rotation frequency (1x) of a speed; 3000 rpm is 50 Hz.
+
+    Parameters
+    ----------
+    speed_rpm : float
+        Speed, rpm.
+
+    Returns
+    -------
+    float
+        Rotation frequency, Hz.
+
+    References
+    ----------
+    .. [1] Definition of rev/min (common practice, no source).
+    """
     return speed_rpm / 60.0
 
 
 def hz_to_rpm(frequency_hz: float) -> float:
-    """Speed in rev/min of a rotation frequency in Hz."""
+    """Speed of a rotation frequency.
+
+    Parameters
+    ----------
+    frequency_hz : float
+        Rotation frequency, Hz.
+
+    Returns
+    -------
+    float
+        Speed, rpm.
+
+    References
+    ----------
+    .. [1] Definition of rev/min (common practice, no source).
+    """
     return frequency_hz * 60.0
 
 
@@ -91,6 +155,22 @@ class Revolution(NamedTuple):
         return self.end_tick - self.start_tick
 
     def speed_rpm(self, tick_hz: float) -> float:
+        """The revolution's mean speed.
+
+        Parameters
+        ----------
+        tick_hz : float
+            The board's timer tick rate, Hz.
+
+        Returns
+        -------
+        float
+            Speed, rpm.
+
+        References
+        ----------
+        .. [1] Definition of rev/min (common practice, no source).
+        """
         return speed_rpm_from_period(self.period_ticks, tick_hz)
 
 
@@ -153,7 +233,13 @@ class TachTracker:
         return self._last_edge
 
     def reset(self) -> None:
-        """Forget the edge history (a new stream)."""
+        """Forget the edge history (a new stream); the counters are kept.
+
+        References
+        ----------
+        .. [1] Double and missed edges by the period ratio against the median of recent periods
+           (0.7 and 1.5): common practice, no source.
+        """
         self._periods.clear()
         self._residuals.clear()
         self._run.clear()
@@ -164,11 +250,31 @@ class TachTracker:
         self._rejected_in_row = 0
 
     def add_edge(self, tick: int, lost_before: int = 0) -> Revolution | None:
-        """Take one edge (64-bit tick); return the revolution it completes, if any.
+        """Take one tach edge; return the revolution it completes, if any.
 
-        ``lost_before``: edges the board counted before this one that never arrived (lost on
-        the USB link): the interval across them is no revolution and the edges are counted
-        in ``link_lost_edges``, not as missed by the sensor.
+        Parameters
+        ----------
+        tick : int
+            The edge's time, unwrapped board timer ticks (:func:`extend_tick`).
+        lost_before : int, default 0
+            Edges the board counted before this one that never arrived (lost on the USB link):
+            the interval across them is no revolution and the edges are counted in
+            ``link_lost_edges``, not as missed by the sensor.
+
+        Returns
+        -------
+        Revolution or None
+            The revolution ended by this edge (start and end in ticks), or None when the edge is
+            a double trigger, closes an interval with missed or lost edges, or starts the
+            history.
+
+        References
+        ----------
+        .. [1] Double and missed edges by the period ratio against the median of recent periods
+           (0.7 and 1.5): common practice, no source.
+        .. [2] Theil-Sen line for the predicted period (median of pairwise slopes; H. Theil 1950,
+           P. K. Sen 1968, from memory); the time line moved halfway by each good edge (an alpha
+           tracker): common practice, no source.
         """
         last = self._last_edge
         if lost_before > 0 and last is not None:
@@ -243,8 +349,17 @@ class TachTracker:
         return self._run[0] if self._run else None
 
     def close_run(self) -> None:
-        """End an open run without its way back (a gap in the edges, the end of the data):
-        its revolutions are left out, as they may hold knocked edges."""
+        """End an open run of off edges without its way back.
+
+        Called at a gap in the edges or the end of the data: the run's revolutions are left out,
+        as they may hold knocked edges.
+
+        References
+        ----------
+        .. [2] Theil-Sen line for the predicted period (median of pairwise slopes; H. Theil 1950,
+           P. K. Sen 1968, from memory); the time line moved halfway by each good edge (an alpha
+           tracker): common practice, no source.
+        """
         for number in self._run:
             self._mark(number)
         self._run.clear()
@@ -290,7 +405,24 @@ class TachTracker:
             self.uneven_revolutions += 1
 
     def is_uneven(self, number: int) -> bool:
-        """Revolution ``number`` starts or ends at an off edge (a set lookup)."""
+        """Whether revolution ``number`` starts or ends at an off edge (a set lookup).
+
+        Parameters
+        ----------
+        number : int
+            The revolution's number (:attr:`Revolution.number`).
+
+        Returns
+        -------
+        bool
+            True when the revolution is left out for a knocked edge.
+
+        References
+        ----------
+        .. [2] Theil-Sen line for the predicted period (median of pairwise slopes; H. Theil 1950,
+           P. K. Sen 1968, from memory); the time line moved halfway by each good edge (an alpha
+           tracker): common practice, no source.
+        """
         return number in self._uneven_set
 
     def _emit(self, start: int, end: int) -> Revolution:
@@ -344,5 +476,25 @@ def _theil_sen_table(n: int) -> tuple[tuple[tuple[int, int, int], ...], float]:
 
 
 def shaft_angle_rad(ticks: np.ndarray, start_tick: int, end_tick: int) -> np.ndarray:
-    """Shaft angle (rad, 0 at the tach edge, increasing with rotation) within one revolution."""
+    """Shaft angle within one revolution, linear in time between the two tach edges.
+
+    Parameters
+    ----------
+    ticks : numpy.ndarray
+        Sample times, board timer ticks.
+    start_tick : int
+        The tach edge that starts the revolution, ticks (angle 0).
+    end_tick : int
+        The tach edge that ends it, ticks (angle 2 pi).
+
+    Returns
+    -------
+    numpy.ndarray
+        Shaft angle, rad (0 at the tach edge, increasing with rotation).
+
+    References
+    ----------
+    .. [1] Order tracking by resampling on a once-per-rev reference with constant speed within
+       a revolution (computed order tracking; common practice, no source).
+    """
     return (2.0 * math.pi / (end_tick - start_tick)) * (np.asarray(ticks, dtype=float) - start_tick)

@@ -52,9 +52,32 @@ class Spectrum:
 
 def peak_names(hz: float, rotation_hz: float | None, line_hz: float | None,
                tolerance_hz: float) -> tuple[str, ...]:
-    """Every name of 1x..3x, line and 2x line within ``tolerance_hz`` of ``hz``, nearest
-    first (orders first where two are about as near: ``LABELS`` order within a quarter of
-    the tolerance); empty when none fits."""
+    """Every name of 1x...3x, line and 2x line within ``tolerance_hz`` of a frequency.
+
+    Nearest first (orders first where two are about as near: ``LABELS`` order within a quarter
+    of the tolerance).
+
+    Parameters
+    ----------
+    hz : float
+        The peak's frequency, Hz.
+    rotation_hz : float or None
+        Rotation frequency (1x), Hz; None or 0 when unknown.
+    line_hz : float or None
+        Mains frequency, Hz; None or 0 when unknown.
+    tolerance_hz : float
+        Largest distance for a name to fit, Hz.
+
+    Returns
+    -------
+    tuple of str
+        The names that fit, best first; empty when none fits.
+
+    References
+    ----------
+    .. [1] Naming peaks by the nearest order of the rotation frequency and of the mains
+       frequency (1x, 2x, 3x, line, twice line): common practice, no source.
+    """
     candidates: list[tuple[float, str]] = []
     if rotation_hz:
         candidates += [(abs(hz - h * rotation_hz), f"{h}x") for h in (1, 2, 3)]
@@ -71,10 +94,31 @@ def peak_names(hz: float, rotation_hz: float | None, line_hz: float | None,
 
 def label_peak(hz: float, rotation_hz: float | None, line_hz: float | None,
                tolerance_hz: float) -> str:
-    """Name a peak by the nearest of 1x..3x and line, 2x line within ``tolerance_hz``.
+    """Name a peak by the nearest of 1x...3x and line, 2x line within ``tolerance_hz``.
 
-    Orders win over line labels when both fit (the spectrum cannot tell them apart; the
-    meter names the stronger from the order fit, see :func:`name_by_levels`).
+    Orders win over line labels when both fit (the spectrum cannot tell them apart; the meter
+    names the stronger from the order fit, see :func:`name_by_levels`).
+
+    Parameters
+    ----------
+    hz : float
+        The peak's frequency, Hz.
+    rotation_hz : float or None
+        Rotation frequency (1x), Hz.
+    line_hz : float or None
+        Mains frequency, Hz.
+    tolerance_hz : float
+        Largest distance for a name to fit, Hz.
+
+    Returns
+    -------
+    str
+        The best name, or ``"other"``.
+
+    References
+    ----------
+    .. [1] Naming peaks by the nearest order of the rotation frequency and of the mains
+       frequency (1x, 2x, 3x, line, twice line): common practice, no source.
     """
     names = peak_names(hz, rotation_hz, line_hz, tolerance_hz)
     return names[0] if names else "other"
@@ -83,14 +127,41 @@ def label_peak(hz: float, rotation_hz: float | None, line_hz: float | None,
 def name_by_levels(peaks: tuple[SpectrumPeak, ...], levels: dict[str, float],
                    line_hz: float | None, rotation_hz: float | None, resolution_hz: float,
                    detect_amplitude: float) -> tuple[SpectrumPeak, ...]:
-    """Peaks named with the levels an order fit measured (``levels``: name -> amplitude in
-    the spectrum's unit, for the orders and the mains lines it fitted).
+    """Peaks named with the levels an order fit measured.
 
-    Names whose frequencies lie within ``resolution_hz`` of each other coincide: the
-    spectrum sees one peak, and the name with the higher fitted level comes first (both are
-    listed). A fitted mains line further from the peak than that (inside its main lobe, so
-    not a peak of its own: the 60 Hz line beside a 1x at 58.9 Hz) is listed at its own
-    frequency with its fitted level (``fitted``) when it reaches ``detect_amplitude``.
+    Names whose frequencies lie within ``resolution_hz`` of each other coincide: the spectrum
+    sees one peak, and the name with the higher fitted level comes first (both are listed). A
+    fitted mains line further from the peak than that (inside its main lobe, so not a peak of
+    its own: the 60 Hz line beside a 1x at 58.9 Hz) is listed at its own frequency with its
+    fitted level (``fitted``) when it reaches ``detect_amplitude``.
+
+    Parameters
+    ----------
+    peaks : tuple of SpectrumPeak
+        The spectrum's peaks (:func:`spectrum`).
+    levels : dict of str to float
+        Name (``"1x"``, ``"line"``...) -> amplitude the order fit measured, in the spectrum's
+        unit (peak).
+    line_hz : float or None
+        Mains frequency, Hz.
+    rotation_hz : float or None
+        Rotation frequency (1x), Hz.
+    resolution_hz : float
+        The spectrum's bin width, Hz.
+    detect_amplitude : float
+        The smallest tone amplitude the spectrum lists as a peak, spectrum's unit.
+
+    Returns
+    -------
+    tuple of SpectrumPeak
+        The peaks renamed and completed, largest first.
+
+    References
+    ----------
+    .. [1] Naming peaks by the nearest order of the rotation frequency and of the mains
+       frequency (1x, 2x, 3x, line, twice line): common practice, no source.
+    .. [2] Hann main lobe of +/- 2 bins: F. J. Harris, "On the use of windows for harmonic
+       analysis with the discrete Fourier transform", Proc. IEEE 66(1), 1978.
     """
     nominal = {"line": line_hz, "2x line": 2 * line_hz if line_hz else None}
     if rotation_hz:
@@ -129,7 +200,44 @@ def spectrum(values: np.ndarray, sample_rate_hz: float, rotation_hz: float | Non
 
     ``resolution_hz`` sets the segment length (rounded up to a power of two, shortened when
     the record is short). Peaks must stand ``min_snr`` times (amplitude) above the median
-    level; the ``max_peaks`` largest are returned, largest first.
+    level; the ``max_peaks`` largest are returned, largest first. A peak's amplitude is
+    ``sqrt(2 sum(PSD) df)`` over its main lobe (Parseval; no scalloping loss).
+
+    Parameters
+    ----------
+    values : numpy.ndarray
+        The samples, any unit (volts, g...).
+    sample_rate_hz : float
+        Sample rate, Hz.
+    rotation_hz : float or None, default None
+        Rotation frequency (1x), Hz, for the labels.
+    line_hz : float or None, default None
+        Mains frequency, Hz, for the labels.
+    resolution_hz : float, default 1.0
+        Wanted bin width, Hz.
+    max_peaks : int, default 8
+        Most peaks returned.
+    min_snr : float, default 6.0
+        Amplitude ratio a peak needs over the median level.
+
+    Returns
+    -------
+    Spectrum
+        Frequencies (Hz), amplitude spectral density (unit/sqrt(Hz)), bin width (Hz), number
+        of segments, the labelled peaks (peak amplitude, input unit) and the smallest
+        amplitude that would be listed.
+
+    Raises
+    ------
+    ValueError
+        When fewer than 16 samples are given.
+
+    References
+    ----------
+    .. [1] P. D. Welch, "The use of fast Fourier transform for the estimation of power
+       spectra", IEEE Trans. Audio Electroacoust. 15(2), 1967; ``scipy.signal.welch``.
+    .. [2] F. J. Harris, "On the use of windows for harmonic analysis with the discrete
+       Fourier transform", Proc. IEEE 66(1), 1978 (Hann window, ENBW 1.5 bins).
     """
     x = np.asarray(values, dtype=float)
     n = x.size
@@ -159,7 +267,27 @@ def spectrum(values: np.ndarray, sample_rate_hz: float, rotation_hz: float | Non
 
 
 def refine_peak_hz(freqs: np.ndarray, psd: np.ndarray, i: int) -> float:
-    """Peak frequency by a parabola through the log power of the three top bins."""
+    """Peak frequency by a parabola through the log power of the three top bins.
+
+    Parameters
+    ----------
+    freqs : numpy.ndarray
+        Bin frequencies, Hz (evenly spaced).
+    psd : numpy.ndarray
+        Power spectral density per bin, unit^2/Hz.
+    i : int
+        Index of the highest bin of the peak.
+
+    Returns
+    -------
+    float
+        The interpolated frequency, Hz (the bin's own at the ends or with a zero bin).
+
+    References
+    ----------
+    .. [1] Quadratic interpolation of the log spectrum around a peak: common practice, no
+       source.
+    """
     if i <= 0 or i >= psd.size - 1 or min(psd[i - 1: i + 2]) <= 0:
         return float(freqs[i])
     a, b, c = np.log(psd[i - 1: i + 2])

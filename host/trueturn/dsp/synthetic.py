@@ -81,14 +81,50 @@ class SyntheticTruth:
 
 
 def revolutions_at(run: SyntheticRun, t_s: np.ndarray) -> np.ndarray:
-    """Shaft revolutions turned since the first tach edge at times ``t_s`` after index 0."""
+    """Shaft revolutions turned since the first tach edge at the given times.
+
+    With a linear speed drift ``d`` over the run the speed is ``f0 ((1 - d) + 2 d t / T)``,
+    integrated to ``f0 ((1 - d) t + d t^2 / T)``.
+
+    Parameters
+    ----------
+    run : SyntheticRun
+        The run: speed (rpm), drift fraction, duration (s), phase of the first edge (rev).
+    t_s : numpy.ndarray
+        Times after sample index 0, s.
+
+    Returns
+    -------
+    numpy.ndarray
+        Revolutions turned (0 at the first tach edge), same shape.
+
+    References
+    ----------
+    .. [1] Integral of a linearly ramped frequency (elementary calculus; common practice, no
+       source).
+    """
     f0 = run.speed_rpm / 60.0
     d = run.drift_fraction
     return f0 * ((1.0 - d) * t_s + d * t_s * t_s / run.duration_s) - run.first_edge_rev
 
 
 def edge_times_s(run: SyntheticRun) -> np.ndarray:
-    """Times (s after index 0) at which the shaft passes the mark: revolutions_at == k."""
+    """Times at which the shaft passes the mark: where :func:`revolutions_at` is a whole number.
+
+    Parameters
+    ----------
+    run : SyntheticRun
+        The run.
+
+    Returns
+    -------
+    numpy.ndarray
+        Edge times after sample index 0, s (the roots of the quadratic when the speed drifts).
+
+    References
+    ----------
+    .. [1] Roots of a quadratic (elementary algebra; common practice, no source).
+    """
     f0 = run.speed_rpm / 60.0
     d = run.drift_fraction
     total = float(revolutions_at(run, np.array([run.duration_s]))[0])
@@ -101,7 +137,26 @@ def edge_times_s(run: SyntheticRun) -> np.ndarray:
 
 
 def synthesize(run: SyntheticRun) -> tuple[bytes, SyntheticTruth]:
-    """Frame bytes (identity, stream_config, samples and tach in time order) and the truth."""
+    """Frame bytes a board would send for the run, and the exact truth behind them.
+
+    Parameters
+    ----------
+    run : SyntheticRun
+        Speed, drift, pickups' order components and tones (ADC counts), noise, tach faults,
+        lost blocks.
+
+    Returns
+    -------
+    data : bytes
+        Protocol frames (identity, stream_config, samples and tach in time order).
+    truth : SyntheticTruth
+        Tach edge ticks, the order phasors per pickup (ADC counts) and the mean speed (rpm).
+
+    References
+    ----------
+    .. [1] protocol/SPEC.md (the frame format; ours); signals are exact sums of cosines, no
+       physics (common practice for known-truth tests, no source).
+    """
     rng = np.random.default_rng(run.seed)
     period = run.period_ticks
     ch = run.channels

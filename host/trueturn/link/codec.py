@@ -10,7 +10,7 @@ import struct
 from collections.abc import Iterator, Sequence
 from dataclasses import dataclass, field
 from functools import lru_cache
-from typing import Any, NamedTuple
+from typing import Any, NamedTuple, overload
 
 import numpy as np
 
@@ -64,7 +64,13 @@ class RestArray(Sequence[int]):
     def __len__(self) -> int:
         return len(self._array)
 
-    def __getitem__(self, index):  # type: ignore[no-untyped-def, override]
+    @overload
+    def __getitem__(self, index: int) -> int: ...
+
+    @overload
+    def __getitem__(self, index: slice) -> list[int]: ...
+
+    def __getitem__(self, index: int | slice) -> int | list[int]:
         if isinstance(index, slice):
             return self._array[index].tolist()
         return int(self._array[index])

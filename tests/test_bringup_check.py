@@ -166,7 +166,10 @@ def test_levels_and_rails() -> None:
 
 @pytest.mark.parametrize(("kind", "mv", "code", "passed"), [
     (1, 4950, "measured", True), (1, 3900, "low", False), (1, 6000, "high", False),
-    (0, 5000, "nominal", True),
+    (0, 5000, "nominal", True), (1, 3300, "low", False),
+    # 2 = the AREF build's AREF pin against the bandgap (limits.usable_aref_mv 2000..5500):
+    # 3298 mV is what a 3.3 V pin reads, 1101 mV an open pin (the bandgap at full scale)
+    (2, 3298, "aref", True), (2, 1101, "aref_low", False), (2, 5600, "aref_high", False),
 ])
 def test_reference_judged_from_the_measured_avcc(kind: int, mv: int, code: str,
                                                  passed: bool) -> None:

@@ -43,7 +43,22 @@
 /* every board of ours ticks at the catalogue's board_tick_hz (the host relies on it) */
 typedef char tt_tick_hz_is_the_catalogues[(TT_TICK_HZ == TT_LIMIT_BOARD_TICK_HZ_MIN) ? 1 : -1];
 #define TT_ADC_BITS 10u
-/* ADC reference: AVCC (the USB rail, 4.6-5.1 V), measured against the 1.1 V bandgap. */
+/* ADC reference, measured against the 1.1 V bandgap. The standard build: AVCC (the USB rail,
+ * 4.6-5.1 V; ADMUX REFS1:0 = 01). Built with TT_ADC_REF_AREF=1 (`make ADC_REF=aref`): the
+ * external AREF pin (REFS1:0 = 00, internal reference off), e.g. the pickups' 3.3 V rail. Such
+ * an image never selects AVCC: with a voltage on AREF that would short it to AVCC (ATmega328P
+ * datasheet, "ADC Voltage Reference"; from memory). The bandgap is an input of the multiplexer
+ * whatever the reference, so AREF is measured as AVCC is: 1100 mV * 1024 / ADC(bandgap). */
+#ifndef TT_ADC_REF_AREF
+#define TT_ADC_REF_AREF 0
+#endif
+#if TT_ADC_REF_AREF
+#define TT_ADMUX_REF 0u                   /* REFS1:0 = 00: AREF */
+#define TT_REF_KIND TT_REF_AREF_VS_BANDGAP
+#else
+#define TT_ADMUX_REF _BV(REFS0)           /* REFS1:0 = 01: AVCC */
+#define TT_REF_KIND TT_REF_AVCC_VS_BANDGAP
+#endif
 #define TT_ADMUX_BANDGAP 0x0Eu            /* MUX3..0 = 1110: the internal 1.1 V (VBG) */
 #define TT_BANDGAP_SETTLE_TICKS 2000u     /* 1 ms after switching to the bandgap */
 #define TT_AVCC_DISCARD 2u                /* conversions thrown away after the switch */
@@ -232,7 +247,7 @@ ISR(ADC_vect)
      * "Changing Channel or Reference Selection": safe after a conversion, before the flag
      * used as trigger source is cleared); a skip always resumes at channel 0. */
     if (skipped != 0u) {
-        ADMUX = _BV(REFS0) | TT_PICKUP_1_ADC_CHANNEL;
+        ADMUX = TT_ADMUX_REF | TT_PICKUP_1_ADC_CHANNEL;
     } else if (g_adc_two_channels) {
         ADMUX ^= 1u;    /* A0 <-> A1 */
     }
@@ -329,7 +344,7 @@ static void send_identity(void)
     v.tick_hz = TT_TICK_HZ;
     v.adc_bits = TT_ADC_BITS;
     v.adc_reference_mv = g_avcc_mv;
-    v.adc_reference_kind = TT_REF_AVCC_VS_BANDGAP;
+    v.adc_reference_kind = TT_REF_KIND;
     v.reset_flags = g_reset_flags;
     v.aperture_delay_ticks = TT_APERTURE_DELAY_TICKS;
     v.max_channels = TT_MAX_CHANNELS;
@@ -353,7 +368,7 @@ static void send_stream_config(void)
 
 /* ---------------- sampling ---------------- */
 
-/* AVCC, the ADC reference, against the internal 1.1 V bandgap (core/tt_health.h): polled
+/* The ADC reference (AVCC, or AREF in an AREF build) against the internal 1.1 V bandgap (core/tt_health.h): polled
  * conversions with the ADC interrupt off, only while no stream runs. About 2 ms. */
 static void measure_avcc(void)
 {
@@ -363,7 +378,7 @@ static void measure_avcc(void)
         /* a conversion still running (at most 25 ADC clocks = 100 us) */
     }
     ADCSRA = _BV(ADEN) | _BV(ADIF) | _BV(ADPS2) | _BV(ADPS1); /* no trigger, no interrupt */
-    ADMUX = _BV(REFS0) | TT_ADMUX_BANDGAP;
+    ADMUX = TT_ADMUX_REF | TT_ADMUX_BANDGAP;
     until = now_ticks() + TT_BANDGAP_SETTLE_TICKS;
     while (!tt_deadline_passed(now_ticks(), until)) {
         /* the bandgap input settles (common practice, no source: 1 ms and two conversions) */
@@ -376,7 +391,7 @@ static void measure_avcc(void)
             sum += ADC;
         }
     }
-    ADMUX = _BV(REFS0) | TT_PICKUP_1_ADC_CHANNEL;
+    ADMUX = TT_ADMUX_REF | TT_PICKUP_1_ADC_CHANNEL;
     ADCSRA = _BV(ADEN) | _BV(ADIF) | _BV(ADIE) | _BV(ADPS2) | _BV(ADPS1);
     g_avcc_mv = tt_avcc_mv(sum, TT_AVCC_SAMPLES);
 }
@@ -403,7 +418,7 @@ static void start_stream(void)
         g_adc_two_channels = g_setup.channels == 2u;
         g_stream_fault = 0;
         g_error_flags = 0; /* SPEC 4.6: the flags describe this stream */
-        ADMUX = _BV(REFS0) | TT_PICKUP_1_ADC_CHANNEL;
+        ADMUX = TT_ADMUX_REF | TT_PICKUP_1_ADC_CHANNEL;
         g_start_tick = now_ticks() + TT_START_LEAD_TICKS;
         if (g_start_tick == 0u) {
             g_start_tick = 1u; /* SPEC 4.3: start_tick 0 means "no stream" */
@@ -590,11 +605,11 @@ static void board_init(void)
     TT_TACH_DDR &= (uint8_t)~_BV(TT_TACH_BIT);
     TT_TACH_PORT |= _BV(TT_TACH_BIT); /* pull-up: open-collector tach modules need one */
 
-    /* ADC: AVCC reference, right-aligned, A0, 250 kHz ADC clock (prescaler 64), interrupt
-     * on. The first conversion after enabling takes 25 ADC clocks; do it now (its result is
+    /* ADC: this build's reference (TT_ADMUX_REF), right-aligned, A0, 250 kHz ADC clock
+     * (prescaler 64), interrupt on. The first conversion after enabling takes 25 ADC clocks; do it now (its result is
      * ignored while disarmed) so every stream conversion takes the normal 13.5. */
     DIDR0 = TT_PICKUP_DIDR_BITS;
-    ADMUX = _BV(REFS0) | TT_PICKUP_1_ADC_CHANNEL;
+    ADMUX = TT_ADMUX_REF | TT_PICKUP_1_ADC_CHANNEL;
     ADCSRB = _BV(ADTS2) | _BV(ADTS0); /* auto-trigger source: Timer1 compare match B */
     ADCSRA = _BV(ADEN) | _BV(ADIE) | _BV(ADPS2) | _BV(ADPS1) | _BV(ADSC);
 

@@ -8,7 +8,7 @@
 #include <stdint.h>
 
 #define TT_PROTOCOL_VERSION 3u
-#define TT_DEFINITION_HASH 0x198D3D2FUL
+#define TT_DEFINITION_HASH 0xFF5DA4E1UL
 #define TT_MAX_FRAME_BYTES 254u
 #define TT_HEADER_BYTES 2u
 #define TT_CRC_BYTES 2u
@@ -57,6 +57,7 @@
 /* identity.adc_reference_kind */
 #define TT_REF_NOMINAL 0u
 #define TT_REF_AVCC_VS_BANDGAP 1u
+#define TT_REF_AREF_VS_BANDGAP 2u
 
 /* identity.board_id */
 #define TT_BOARD_ATMEGA328P 1u
@@ -81,6 +82,8 @@
 #define TT_LIMIT_ADC_REFERENCE_MV_MAX 10000u
 #define TT_LIMIT_USABLE_REFERENCE_MV_MIN 4000u
 #define TT_LIMIT_USABLE_REFERENCE_MV_MAX 5500u
+#define TT_LIMIT_USABLE_AREF_MV_MIN 2000u
+#define TT_LIMIT_USABLE_AREF_MV_MAX 5500u
 
 /* 0x01 identity (device): Who the board is and how it samples. Sent at boot and in reply to identify. */
 #define TT_MSG_IDENTITY 0x01u

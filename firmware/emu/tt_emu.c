@@ -6,7 +6,9 @@
  *     --speed-rpm X         shaft speed (default 1800)
  *     --first-edge-s X      time of the first tach edge after the timer starts (0.001)
  *     --jitter-rms-s X      gaussian jitter of the tach edges (0)
- *     --ref-v X             ADC reference, volts (5.0)
+ *     --ref-v X             AVCC, the ADC reference of the standard build, volts (5.0)
+ *     --aref-v X            a voltage on the AREF pin (the AREF build's reference), volts
+ *                           (default: none; AREF then follows AVCC as on a board without it)
  *     --seed N              noise seed (1)
  *     --channel OFF,NOISE   add a pickup channel: offset and noise rms, volts (up to 2)
  *     --order CH,K,AMP,PH   order-K component on channel CH: amplitude V, phase lag deg
@@ -140,7 +142,7 @@ struct script_item {
 
 static struct {
     avr_t *avr;
-    double speed_rpm, first_edge_s, jitter_rms_s, ref_v, seconds;
+    double speed_rpm, first_edge_s, jitter_rms_s, ref_v, aref_v, seconds;
     int realtime, n_channels;
     uint64_t seed;
     struct channel ch[MAX_CH];
@@ -263,10 +265,21 @@ static double theta_at(double t)
     return 2.0 * M_PI * (E.speed_rpm / 60.0) * (t - E.first_edge_s);
 }
 
+/* The reference the firmware selected (ADMUX REFS1:0 at data address 0x7C; ATmega328P
+ * datasheet, "ADMUX"): 00 AREF, 01 AVCC, 11 the internal 1.1 V. */
+static double reference_v(void)
+{
+    switch (E.avr->data[0x7C] >> 6) {
+    case 0: return E.aref_v > 0.0 ? E.aref_v : E.ref_v;
+    case 3: return 1.1;
+    default: return E.ref_v;
+    }
+}
+
 static uint32_t channel_millivolts(int c, double t)
 {
     const struct channel *ch = &E.ch[c];
-    double v = ch->offset_v, theta = theta_at(t), counts;
+    double v = ch->offset_v, theta = theta_at(t), counts, ref_v = reference_v();
     uint32_t n;
     int i;
     for (i = 0; i < ch->n_orders; i++)
@@ -275,12 +288,12 @@ static uint32_t channel_millivolts(int c, double t)
         v += ch->tones[i].amplitude_v * cos(2.0 * M_PI * ch->tones[i].key * t - ch->tones[i].phase_rad);
     if (ch->noise_rms_v > 0.0) v += ch->noise_rms_v * rng_gauss();
     /* ADC = Vin * 1024 / Vref (ATmega328P datasheet, "ADC Conversion Result"), clamped */
-    counts = floor(v * 1024.0 / E.ref_v);
+    counts = floor(v * 1024.0 / ref_v);
     if (counts < 0.0) counts = 0.0;
     if (counts > 1023.0) counts = 1023.0;
     n = (uint32_t)counts;
-    /* simavr scales millivolts as mV * 1023 / AVCC: pick the mV that gives exactly n */
-    return (uint32_t)((n * (uint32_t)lround(E.ref_v * 1000.0) + 1022u) / 1023u);
+    /* simavr scales millivolts as mV * 1023 / Vref: pick the mV that gives exactly n */
+    return (uint32_t)((n * (uint32_t)lround(ref_v * 1000.0) + 1022u) / 1023u);
 }
 
 /* ---------------- Timer1 pieces simavr lacks ---------------- */
@@ -685,7 +698,7 @@ static void write_report(void)
 
 static void usage(void)
 {
-    fprintf(stderr, "usage: tt_emu [--speed-rpm X] [--first-edge-s X] [--jitter-rms-s X] [--ref-v X] "
+    fprintf(stderr, "usage: tt_emu [--speed-rpm X] [--first-edge-s X] [--jitter-rms-s X] [--ref-v X] [--aref-v X] "
                     "[--seed N] [--channel OFF,NOISE]... [--order CH,K,AMP,PH]... [--tone CH,HZ,AMP,PH]... "
                     "[--seconds X] [--realtime] [--report PATH] [--script HEX@S]... [--irq-off S,US]... "
                     "[--tach-chatter N,GAP] [--mcusr HEX] [--r2 HEX] [--wdt-running] [--stall S]... "
@@ -756,6 +769,7 @@ int main(int argc, char **argv)
         else if (!strcmp(a, "--first-edge-s")) E.first_edge_s = atof(v);
         else if (!strcmp(a, "--jitter-rms-s")) E.jitter_rms_s = atof(v);
         else if (!strcmp(a, "--ref-v")) E.ref_v = atof(v);
+        else if (!strcmp(a, "--aref-v")) E.aref_v = atof(v);
         else if (!strcmp(a, "--seed")) E.seed = strtoull(v, NULL, 0) * 2654435761ULL + 1u;
         else if (!strcmp(a, "--seconds")) E.seconds = atof(v);
         else if (!strcmp(a, "--report")) E.report_path = v;
@@ -814,6 +828,7 @@ int main(int argc, char **argv)
     avr_load_firmware(E.avr, &fw);
     E.avr->frequency = F_CPU_HZ;
     E.avr->vcc = E.avr->avcc = E.avr->aref = (uint32_t)lround(E.ref_v * 1000.0);
+    if (E.aref_v > 0.0) E.avr->aref = (uint32_t)lround(E.aref_v * 1000.0);
 
     /* UART 0 <-> host, without simavr's console echo */
     {

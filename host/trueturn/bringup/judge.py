@@ -65,6 +65,10 @@ _CAT = load_catalogue()
 REFERENCE_KINDS = {name: code for code, name in _CAT.reference_kinds.items()}
 AVCC_RANGE_V = (_CAT.limit("usable_reference_mv").min / 1000.0,
                 _CAT.limit("usable_reference_mv").max / 1000.0)
+#: The AREF build (firmware ``make ADC_REF=aref``): the external AREF pin, measured against the
+#: bandgap like AVCC, within limits.usable_aref_mv (an open pin reads about 1.1 V).
+AREF_RANGE_V = (_CAT.limit("usable_aref_mv").min / 1000.0,
+                _CAT.limit("usable_aref_mv").max / 1000.0)
 #: Link: any loss at all on a bench lead fails (every frame carries a CRC and a sequence).
 LINK_MAX_ERROR_RATE = 0.0
 
@@ -275,9 +279,14 @@ def tach_duty(rising_ticks: Sequence[int], falling_ticks: Sequence[int]) -> floa
 
 
 def _reference(data: BringupData, ref_v: float) -> Finding:
-    """The ADC reference (AVCC): measured by the board against its bandgap (protocol 3
-    ``adc_reference_kind``), or only the nominal value."""
+    """The ADC reference: AVCC (or, in the AREF build, the AREF pin) measured by the board
+    against its bandgap (protocol 3 ``adc_reference_kind``), or only the nominal value."""
     kind = int(data.identity.get("adc_reference_kind", REFERENCE_KINDS["nominal"]))  # type: ignore[call-overload]
+    if kind == REFERENCE_KINDS["aref_vs_bandgap"]:
+        values = {"reference_v": ref_v, "low_v": AREF_RANGE_V[0], "high_v": AREF_RANGE_V[1]}
+        ok = AREF_RANGE_V[0] <= ref_v <= AREF_RANGE_V[1]
+        return Finding(Item.REFERENCE, ok, "aref" if ok else
+                       ("aref_low" if ref_v < AREF_RANGE_V[0] else "aref_high"), None, values)
     values = {"reference_v": ref_v, "low_v": AVCC_RANGE_V[0], "high_v": AVCC_RANGE_V[1]}
     if kind != REFERENCE_KINDS["avcc_vs_bandgap"]:
         return Finding(Item.REFERENCE, True, "nominal", None, values)

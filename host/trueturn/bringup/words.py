@@ -37,6 +37,17 @@ def finding_text(f: Finding) -> tuple[str, str]:
                 "use a short USB lead straight into the laptop (no hub), another USB port; "
                 "keep the lead away from the motor's wires")
     if it is Item.REFERENCE:
+        if code.startswith("aref"):
+            seen = (f"AREF measured {v['reference_v']:.2f} V (the firmware's AREF build; the "
+                    "board's bandgap makes this ±9 %)")
+            if code == "aref":
+                return seen, ""
+            if code == "aref_low":
+                return (seen + f", below {v['low_v']:.1f} V",
+                        "AREF is open or not fed: wire AREF to the pickups' 3.3 V rail "
+                        "(hardware/WIRING.md), or flash the standard image")
+            return (seen + f", above {v['high_v']:.1f} V",
+                    "AREF must not exceed the board's 5 V: feed it from the pickups' 3.3 V rail")
         if code == "nominal":
             return (f"the ADC measures against AVCC, {v['reference_v']:.2f} V as designed (not "
                     "measured): readings in volts move with the USB supply", "")

@@ -188,9 +188,14 @@ def _sentence(f: Finding) -> str:
         return (f"{n} late ADC conversion(s) on the board (adc_late): the samples around "
                 "them were dropped and their revolutions left out")
     if c is Code.ADC_REFERENCE_REFUSED:
-        return (f"refused: the ADC reference {_n(f, 'field')} is {_n(f, 'reference_mv')} mV, "
-                f"outside {_n(f, 'min_mv')}..{_n(f, 'max_mv')} mV: the board's USB supply is "
-                "out of range (try another USB port, cable or a powered hub)")
+        head = (f"refused: the ADC reference {_n(f, 'field')} is {_n(f, 'reference_mv')} mV, "
+                f"outside {_n(f, 'min_mv')}..{_n(f, 'max_mv')} mV: ")
+        if f.details.get("aref"):
+            return head + ("the firmware's AREF build reads its AREF pin: wire AREF to the "
+                           "pickups' 3.3 V rail (hardware/WIRING.md), or flash the standard "
+                           "image for a board without it")
+        return head + ("the board's USB supply is out of range (try another USB port, cable "
+                       "or a powered hub)")
     if c is Code.TACH_CHATTER_SUPPRESSED:
         return (f"the tach chattered: the board's hold-off ignored {n} extra edge(s) "
                 "(status.tach_suppressed); the readings are kept, but a tach module with "

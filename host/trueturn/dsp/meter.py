@@ -53,14 +53,18 @@ from trueturn.dsp.units import (
     convert_phasor,
     default_unit,
 )
-from trueturn.link.catalogue import load_catalogue
+from trueturn.link.catalogue import Limit, load_catalogue
 from trueturn.model import Reading
 
 DEFAULT_TICK_HZ = load_catalogue().limit("board_tick_hz").min
 DEFAULT_ADC_BITS = 10
 DEFAULT_REFERENCE_MV = 5000
-#: ADC references the meter converts with (SPEC 4.10): outside, readings are refused
+#: ADC references the meter converts with (SPEC 4.10): outside, readings are refused. The
+#: standard build's AVCC (and a nominal reference) within usable_reference_mv; the AREF build's
+#: external reference (identity.adc_reference_kind aref_vs_bandgap) within usable_aref_mv.
 USABLE_REFERENCE_MV = load_catalogue().limit("usable_reference_mv")
+USABLE_AREF_MV = load_catalogue().limit("usable_aref_mv")
+AREF_KIND = {name: code for code, name in load_catalogue().reference_kinds.items()}["aref_vs_bandgap"]
 MAX_REVOLUTION_S = 10.0  # slowest shaft measured: 6 rpm
 TACH_SCATTER_WARN_DEG = 0.5  # tach edges scattering more than this are worth a word
 # Timing bias bound, in board ticks: the input capture holds the tick in which the tach edge
@@ -249,6 +253,7 @@ class LiveAnalyzer:
         self.reference_mv = DEFAULT_REFERENCE_MV  # the one in use (SPEC 4.10)
         self.reference_field = "identity.adc_reference_mv"  # where it came from
         self._identity_reference_mv = DEFAULT_REFERENCE_MV
+        self.reference_kind = 0  # identity.adc_reference_kind (0 nominal until one is seen)
         self.aperture_ticks = 0
         self.identity_seen = False
         self.streams = 0  # streams that carried samples (a configure-only one does not count)
@@ -360,6 +365,10 @@ class LiveAnalyzer:
             self.tick_hz = int(msg["tick_hz"])
             self.adc_bits = int(msg["adc_bits"])
             self._identity_reference_mv = int(msg["adc_reference_mv"])
+            try:
+                self.reference_kind = int(msg["adc_reference_kind"])
+            except KeyError:
+                self.reference_kind = 0
             if self.config is None or self.reference_field.startswith("identity"):
                 self.reference_mv = self._identity_reference_mv
                 self.reference_field = "identity.adc_reference_mv"
@@ -404,14 +413,25 @@ class LiveAnalyzer:
         return self.board_losses().get("adc_overruns", 0) > 0 and not self._gaps
 
     @property
+    def usable_reference(self) -> Limit:
+        """The references counts are converted with (SPEC 4.10): limits.usable_aref_mv for the
+        AREF build's external reference, else limits.usable_reference_mv (AVCC)."""
+        return USABLE_AREF_MV if self.reference_kind == AREF_KIND else USABLE_REFERENCE_MV
+
+    @property
     def reference_problem(self) -> str | None:
-        """Why counts cannot become volts (SPEC 4.10): the ADC reference outside
-        limits.usable_reference_mv, the field named; None when it is usable."""
-        if self.reference_mv in USABLE_REFERENCE_MV:
+        """Why counts cannot become volts (SPEC 4.10): the ADC reference outside its usable
+        limit, the field named (the words of findings.describe); None when it is usable."""
+        if self.reference_mv in self.usable_reference:
             return None
-        return (f"refused: the ADC reference {self.reference_field} is {self.reference_mv} mV, "
-                f"outside {USABLE_REFERENCE_MV.min}..{USABLE_REFERENCE_MV.max} mV: the board's "
-                "USB supply is out of range (try another USB port, cable or a powered hub)")
+        return describe(self._reference_finding())
+
+    def _reference_finding(self) -> Finding:
+        usable = self.usable_reference
+        return Finding(Code.ADC_REFERENCE_REFUSED, details={
+            "field": self.reference_field, "reference_mv": self.reference_mv,
+            "min_mv": usable.min, "max_mv": usable.max,
+            "aref": int(self.reference_kind == AREF_KIND)})
 
     def end_of_stream(self) -> None:
         """No more messages will come (the end of a capture).
@@ -679,9 +699,7 @@ class LiveAnalyzer:
         if self.revs_with_gaps:
             out.append(Finding(Code.LINK_SAMPLES_LOST, count=self.revs_with_gaps))
         if self.reference_problem:
-            out.append(Finding(Code.ADC_REFERENCE_REFUSED, details={
-                "field": self.reference_field, "reference_mv": self.reference_mv,
-                "min_mv": USABLE_REFERENCE_MV.min, "max_mv": USABLE_REFERENCE_MV.max}))
+            out.append(self._reference_finding())
         losses = self.board_losses()
         if self.adc_late_unexplained:
             out.append(Finding(Code.ADC_LATE_REFUSED, count=losses["adc_overruns"]))

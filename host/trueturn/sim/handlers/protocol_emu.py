@@ -25,6 +25,10 @@ Options (all optional):
                   0: the board does not reset on open and runs already: its power-up
                   identity went out before the port opened (the first frame is dropped).
                   Without the option the firmware starts as the port opens.
+``aref=MV``       run the AREF build of the firmware (``make -C firmware ADC_REF=aref``,
+                  firmware/build-aref/) with MV millivolts on its AREF pin (e.g. 3300: the
+                  pickups' 3.3 V rail; 1000: a pin left open reads the bandgap at full scale).
+                  Without it: the standard AVCC build.
 
 After :meth:`Serial.close`, ``port.report`` holds the harness report: simulated and wall
 seconds, CPU cycles spent in each interrupt handler and the interrupt load.
@@ -50,7 +54,7 @@ from trueturn.link.boards import BOOTLOADER_WAIT_S
 from trueturn.link.handlers.virtual import VirtualLineSerial
 
 _USAGE = ('expected "emu://SCENARIO[?realtime=0|1&seconds=S&seed=N&rpm=R&noise=F&channels=1|2'
-          '&tach=none|chatter&reset_on_open=0|1&bootloader=new|old]"')
+          '&tach=none|chatter&reset_on_open=0|1&bootloader=new|old&aref=MV]"')
 #: ``tach=chatter``: extra edges after each real one and their spacing in CPU cycles
 #: (trueturn.sim.board.TACH_CHATTER_EDGES, TACH_CHATTER_GAP_TICKS x 8 cycles per tick)
 CHATTER_EDGES = 10
@@ -66,18 +70,27 @@ FIRMWARE_DIR = Path(os.environ.get("TRUETURN_FIRMWARE_DIR")
                     or Path(__file__).resolve().parents[4] / "firmware")
 
 
-def firmware_paths(firmware_dir: Path = FIRMWARE_DIR) -> tuple[Path, Path]:
-    """(ELF, harness) paths inside the firmware folder."""
-    return firmware_dir / "build" / "trueturn.elf", firmware_dir / "build" / "tt_emu"
+#: The firmware's build variants (firmware/Makefile ``ADC_REF``) and their output folders.
+BUILD_DIRS = {"avcc": "build", "aref": "build-aref"}
 
 
-def ensure_built(firmware_dir: Path = FIRMWARE_DIR) -> tuple[Path, Path]:
-    """Bring the ELF and the harness up to date with ``make -C firmware emu`` (a no-op when
-    nothing changed); without make or a Makefile, use what is built."""
-    elf, harness = firmware_paths(firmware_dir)
-    hint = f"the emulator is not built: run `make -C {firmware_dir} emu`"
+def firmware_paths(firmware_dir: Path = FIRMWARE_DIR, adc_ref: str = "avcc") -> tuple[Path, Path]:
+    """(ELF, harness) paths inside the firmware folder, for the build variant ``adc_ref``."""
+    build = firmware_dir / BUILD_DIRS[adc_ref]
+    return build / "trueturn.elf", build / "tt_emu"
+
+
+def ensure_built(firmware_dir: Path = FIRMWARE_DIR, adc_ref: str = "avcc") -> tuple[Path, Path]:
+    """Bring the ELF and the harness up to date with ``make -C firmware ADC_REF=... emu`` (a
+    no-op when nothing changed); without make or a Makefile, use what is built."""
+    elf, harness = firmware_paths(firmware_dir, adc_ref)
+    if not (firmware_dir / "Makefile").is_file() and not (elf.is_file() and harness.is_file()):
+        raise SerialException(f"emu:// runs the firmware of a source checkout, and {firmware_dir} "
+                              "is not one: run from a checkout or set TRUETURN_FIRMWARE_DIR to "
+                              "its firmware/ folder")
+    hint = f"the emulator is not built: run `make -C {firmware_dir} ADC_REF={adc_ref} emu`"
     if (firmware_dir / "Makefile").is_file() and shutil.which("make") is not None:
-        done = subprocess.run(["make", "-s", "-C", str(firmware_dir), "emu"],
+        done = subprocess.run(["make", "-s", "-C", str(firmware_dir), f"ADC_REF={adc_ref}", "emu"],
                               capture_output=True, text=True, check=False)
         if done.returncode != 0:
             last = (done.stderr.strip().splitlines() or ["make failed"])[-1]
@@ -137,7 +150,7 @@ class Serial(VirtualLineSerial):
             self.spec = signal_spec(name, channels=options.pop("channels"), **options.pop("spec"))
         except (UserError, ValueError, OSError) as exc:
             raise SerialException(f"emu://{name}: {exc}") from None
-        elf, harness = ensure_built()
+        elf, harness = ensure_built(adc_ref="aref" if options["aref_mv"] else "avcc")
         self._tmpdir = tempfile.TemporaryDirectory(prefix="trueturn-emu-")
         report = Path(self._tmpdir.name) / "report.json"
         argv = [str(harness), *harness_args(self.spec), "--report", str(report)]
@@ -145,6 +158,8 @@ class Serial(VirtualLineSerial):
             argv.append("--realtime")
         if options["seconds"]:
             argv += ["--seconds", repr(options["seconds"])]
+        if options["aref_mv"]:
+            argv += ["--aref-v", repr(options["aref_mv"] / 1000.0)]
         if options["tach"] == "chatter":
             argv += ["--tach-chatter", f"{CHATTER_EDGES},{CHATTER_GAP_CYCLES}"]
         if options["reset_on_open"]:
@@ -201,7 +216,7 @@ class Serial(VirtualLineSerial):
         if not name:
             raise SerialException(f"{_USAGE}: scenario name missing")
         opts: dict[str, Any] = {"realtime": True, "seconds": 0.0, "channels": 2, "spec": {},
-                                "tach": "none", "reset_on_open": None, "bootloader": "new"}
+                                "tach": "none", "reset_on_open": None, "bootloader": "new", "aref_mv": 0}
         try:
             for key, values in urllib.parse.parse_qs(parts.query, strict_parsing=bool(parts.query)).items():
                 value = values[-1]
@@ -221,6 +236,10 @@ class Serial(VirtualLineSerial):
                     opts["tach"] = {"none": "none", "chatter": "chatter"}[value]
                 elif key == "reset_on_open":
                     opts["reset_on_open"] = {"1": True, "0": False}[value]
+                elif key == "aref":
+                    opts["aref_mv"] = int(value)
+                    if not 500 <= opts["aref_mv"] <= 5500:
+                        raise ValueError(value)
                 elif key == "bootloader":
                     opts["bootloader"] = {b: b for b in BOOTLOADER_WAIT_S}[value]
                 else:

@@ -5,12 +5,15 @@ from __future__ import annotations
 import argparse
 from typing import Any
 
+from trueturn.balance.iso21940 import per_plane_permissible, permissible_unbalance_gmm
+from trueturn.balance.parts import PartsFit, best_combination
 from trueturn.balance.splitting import (
     DEFAULT_POINT_ANGLE_DEG,
     combine,
     removal,
     split,
 )
+from trueturn.cli.cmd_grade import parse_grade
 from trueturn.cli.common import print_json
 from trueturn.errors import UserError
 from trueturn.positions import degrees_text, equally_spaced_deg, position_text
@@ -50,6 +53,23 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                         help="material density for --remove, g/cm³ (default 7.85, steel)")
     parser.add_argument("--point-deg", type=float, default=DEFAULT_POINT_ANGLE_DEG,
                         help="drill point angle, degrees (default 118)")
+    have = parser.add_argument_group(
+        "the weights you have", "place the correction as the best combination of the parts "
+        "you own (exact branch-and-bound search; the unbalance left is reported)")
+    have.add_argument("--have-g", type=float, nargs="+", metavar="MASS_G",
+                      help="mass of each part you own, g, one per piece (0.5 0.5 1.0 2.0)")
+    have.add_argument("--stack", type=int, default=None,
+                      help="most parts one position takes (default 1)")
+    have.add_argument("--radius-mm", type=float,
+                      help="radius of the positions, mm (for the unbalance left, g·mm)")
+    have.add_argument("--grade", type=parse_grade,
+                      help="balance quality grade G to judge the unbalance left against "
+                           "(with --speed-rpm and --rotor-mass-kg)")
+    have.add_argument("--speed-rpm", type=float, help="maximum service speed, rpm")
+    have.add_argument("--rotor-mass-kg", type=float, help="mass of the rotor, kg")
+    have.add_argument("--planes", type=int, choices=(1, 2), default=1,
+                      help="correction planes of the rotor: 2 gives this plane half of U_per "
+                           "(default 1)")
     parser.add_argument("--json", action="store_true", help="machine-readable output")
     parser.set_defaults(run=run)
 
@@ -79,6 +99,13 @@ def run(args: argparse.Namespace) -> int:
         if value is not None and not -360.0 <= value <= 360.0:
             raise UserError(f"{option}: angles are -360..360 degrees from the reference mark, "
                             f"against rotation; got {value:g}")
+    if args.have_g is None:
+        for flag in ("stack", "radius_mm", "grade", "speed_rpm", "rotor_mass_kg"):
+            if getattr(args, flag) is not None:
+                raise UserError(f"--{flag.replace('_', '-')} goes with --have-g (the parts "
+                                "you own)")
+    elif args.remove:
+        raise UserError("--have-g places parts you add; it does not go with --remove")
     if args.remove:
         if args.drill_mm is None:
             raise UserError("--remove needs --drill-mm")
@@ -91,6 +118,10 @@ def run(args: argparse.Namespace) -> int:
         positions = list(args.at_deg)
     else:
         positions = [angle_deg]
+    if args.have_g is not None:
+        if not (args.positions or args.at_deg):
+            raise UserError("--have-g needs the rotor's positions (--positions N or --at-deg)")
+        return _run_have(args, mass_g, angle_deg, positions)
     parts = split(mass_g, angle_deg, positions)
     out: dict[str, Any] = {"mode": "remove" if args.remove else "add",
                            "correction": {"mass_g": round(mass_g, 6), "angle_deg": round(angle_deg, 3)},
@@ -123,3 +154,83 @@ def run(args: argparse.Namespace) -> int:
           "confirmed); check that drilling does not weaken the part and follow the "
           "manufacturer's instructions.")
     return 0
+
+
+def _allowed_gmm(args: argparse.Namespace) -> float | None:
+    """U_per for this plane (ISO 21940-11) when the grade inputs are given, else None."""
+    given = {"--grade": args.grade, "--speed-rpm": args.speed_rpm,
+             "--rotor-mass-kg": args.rotor_mass_kg}
+    if all(v is None for v in given.values()):
+        return None
+    for flag, value in given.items():
+        if value is None:
+            raise UserError(f"missing {flag}: the grade needs --grade, --speed-rpm and "
+                            "--rotor-mass-kg")
+        if not 0 < value < float("inf"):
+            raise UserError(f"{flag} must be greater than 0, got {value:g}")
+    u_per = permissible_unbalance_gmm(args.grade, args.speed_rpm, args.rotor_mass_kg)
+    return per_plane_permissible(u_per, args.planes)[0]
+
+
+def _run_have(args: argparse.Namespace, mass_g: float, angle_deg: float,
+              positions: list[float]) -> int:
+    """The correction made from the parts the person owns (balance.parts)."""
+    if args.radius_mm is None:
+        raise UserError("--have-g needs --radius-mm (the radius of the positions) to give the "
+                        "unbalance left in g·mm")
+    if not 0 < args.radius_mm < float("inf"):
+        raise UserError(f"--radius-mm must be greater than 0, got {args.radius_mm:g}")
+    stack = 1 if args.stack is None else args.stack
+    if stack < 1:
+        raise UserError(f"--stack must be at least 1 part per position, got {stack}")
+    allowed = _allowed_gmm(args)
+    fit: PartsFit = best_combination(mass_g, angle_deg, positions, args.have_g, stack)
+    residual_gmm = fit.residual_gmm(args.radius_mm)
+    out: dict[str, Any] = {
+        "mode": "parts", "method": "branch and bound, exact unless proven_best is false",
+        "correction": {"mass_g": round(mass_g, 6), "angle_deg": round(angle_deg, 3)},
+        "stack": stack, "radius_mm": args.radius_mm,
+        "parts": [{"position": u.number, "angle_deg": round(u.angle_deg, 3),
+                   "masses_g": list(u.masses_g), "mass_g": round(u.mass_g, 6)}
+                  for u in fit.uses],
+        "unused_g": list(fit.unused_g),
+        "residual_g": round(fit.residual_g, 6),
+        "residual_angle_deg": round(fit.residual_angle_deg, 3),
+        "residual_gmm": round(residual_gmm, 6),
+        "proven_best": fit.proven_best,
+        "grade": None,
+    }
+    if allowed is not None:
+        out["grade"] = {"grade_mm_s": args.grade, "speed_rpm": args.speed_rpm,
+                        "rotor_mass_kg": args.rotor_mass_kg, "planes": args.planes,
+                        "allowed_gmm": round(allowed, 6), "within": residual_gmm <= allowed}
+    if args.json:
+        print_json(out)
+        return 0
+    print(f"correction to add: {mass_g:.4g} g at {degrees_text(angle_deg)}")
+    if fit.uses:
+        words = ", ".join(_use_text(u.masses_g, u.number, u.angle_deg) for u in fit.uses)
+    else:
+        words = "nothing (any part you have would leave more unbalance than adding none)"
+    line = f"best with your parts: {words}; leaves {residual_gmm:.3g} g·mm"
+    if allowed is not None:
+        line += f", allowed {allowed:.3g} g·mm ({'within' if out['grade']['within'] else 'NOT within'} G {args.grade:g})"
+    print(line)
+    if fit.unused_g:
+        print("left over: " + ", ".join(f"{m:g} g" for m in fit.unused_g))
+    if not fit.proven_best:
+        print("note: the search stopped at its limit; this is the best found, not proven the "
+              "best (the unbalance left is exact for the parts shown)")
+    print("Caution: fasten every part securely; work only with the machine switched off, "
+          "locked out and at standstill (tach confirmed), and follow the manufacturer's "
+          "instructions.")
+    return 0
+
+
+def _use_text(masses_g: tuple[float, ...], number: int, angle_deg: float) -> str:
+    """``'2 × 0.5 g + 1 g at position 3 (120°)'``."""
+    groups: dict[float, int] = {}
+    for m in masses_g:
+        groups[m] = groups.get(m, 0) + 1
+    what = " + ".join(f"{n} × {m:g} g" if n > 1 else f"{m:g} g" for m, n in groups.items())
+    return f"{what} at {position_text(number, angle_deg)}"

@@ -1,0 +1,157 @@
+"""The weights you have (issue #22 item 3): balance.parts.best_combination against an
+exhaustive search on small cases, and `trueturn split --have-g`.
+
+The reference is an independent brute force: every assignment of every part to a position or
+to the drawer (itertools.product), the stack limit applied, the residual |T - sum| computed
+with numpy. Method under test: depth-first branch and bound (Land & Doig 1960) with the
+triangle-inequality bound and symmetry breaking for identical parts.
+"""
+
+from __future__ import annotations
+
+import itertools
+import json
+import math
+
+import numpy as np
+import pytest
+
+from cli_helpers import run_cli
+from trueturn.balance.iso21940 import permissible_unbalance_gmm
+from trueturn.balance.parts import best_combination
+from trueturn.errors import UserError
+from trueturn.positions import equally_spaced_deg
+
+
+def _exhaustive(mass_g: float, angle_deg: float, positions_deg: list[float],
+                parts_g: list[float], stack: int) -> float:
+    """Least |T - placed| over all (N+1)^K assignments (brute force, numpy)."""
+    target = mass_g * np.exp(1j * np.radians(angle_deg))
+    units = np.exp(1j * np.radians(np.asarray(positions_deg, dtype=float)))
+    n = len(positions_deg)
+    best = abs(target)
+    for assignment in itertools.product(range(n + 1), repeat=len(parts_g)):
+        counts = np.bincount(assignment, minlength=n + 1)
+        if (counts[:n] > stack).any():
+            continue
+        placed = sum(m * units[j] for m, j in zip(parts_g, assignment, strict=True) if j < n)
+        best = min(best, abs(target - placed))
+    return float(best)
+
+
+def _placed_residual(fit, mass_g: float, angle_deg: float) -> float:
+    target = mass_g * np.exp(1j * np.radians(angle_deg))
+    placed = sum(m * np.exp(1j * np.radians(u.angle_deg)) for u in fit.uses for m in u.masses_g)
+    return float(abs(placed - target))
+
+
+CASES = [
+    # mass_g, angle_deg, positions, parts_g, stack
+    (3.3, 100.0, 6, [0.5, 0.5, 1.0, 2.0], 1),
+    (3.3, 100.0, 6, [0.5, 0.5, 1.0, 2.0], 2),
+    (1.7, 359.0, 3, [0.4, 0.4, 0.4, 1.2, 0.9], 2),
+    (6.0, 45.0, 4, [2.0, 2.0, 2.0, 2.0], 3),
+    (0.2, 10.0, 8, [1.0, 2.0], 1),          # every part too big: best is to add nothing
+    (9.0, 200.0, 5, [0.5, 1.0, 1.5], 1),     # too little in the drawer: all of it, the right way
+]
+
+
+@pytest.mark.parametrize(("mass_g", "angle_deg", "count", "parts", "stack"), CASES)
+def test_matches_exhaustive_search(mass_g, angle_deg, count, parts, stack):
+    # reference: exhaustive enumeration of every assignment (independent implementation)
+    positions = list(equally_spaced_deg(count, 15.0))
+    fit = best_combination(mass_g, angle_deg, positions, parts, stack)
+    expected = _exhaustive(mass_g, angle_deg, positions, parts, stack)
+    assert fit.proven_best
+    assert fit.residual_g == pytest.approx(expected, abs=1e-9)
+    # the reported residual is the true one of the combination reported
+    assert _placed_residual(fit, mass_g, angle_deg) == pytest.approx(fit.residual_g, abs=1e-9)
+    # only the parts given, each once; none over the stack limit
+    used = sorted([m for u in fit.uses for m in u.masses_g] + list(fit.unused_g))
+    assert used == sorted(parts)
+    assert all(len(u.masses_g) <= stack for u in fit.uses)
+
+
+def test_random_small_cases_match_exhaustive_search():
+    # reference: exhaustive enumeration, 40 random kits (fixed seed), irregular positions
+    rng = np.random.default_rng(22)
+    for _ in range(40):
+        n = int(rng.integers(2, 6))
+        positions = sorted(rng.uniform(0, 360, n).round(1).tolist())
+        parts = rng.choice([0.3, 0.5, 0.5, 1.0, 1.7, 2.0], int(rng.integers(1, 6))).tolist()
+        stack = int(rng.integers(1, 3))
+        mass_g, angle_deg = float(rng.uniform(0, 5)), float(rng.uniform(0, 360))
+        fit = best_combination(mass_g, angle_deg, positions, parts, stack)
+        assert fit.proven_best
+        assert fit.residual_g == pytest.approx(
+            _exhaustive(mass_g, angle_deg, positions, parts, stack), abs=1e-9)
+
+
+def test_ties_go_to_fewer_parts():
+    # a correction of exactly 1 g at position 1: one 1 g part, not 0.5 + 0.5 (both exact)
+    fit = best_combination(1.0, 0.0, [0.0, 120.0, 240.0], [0.5, 0.5, 1.0], stack=2)
+    assert fit.residual_g == pytest.approx(0.0, abs=1e-12)
+    assert [(u.number, u.masses_g) for u in fit.uses] == [(1, (1.0,))]
+
+
+def test_node_limit_returns_the_true_residual_unproven():
+    positions = list(equally_spaced_deg(12))
+    parts = [0.5] * 4 + [1.0] * 4 + [2.0] * 3 + [5.0]
+    fit = best_combination(7.7, 77.0, positions, parts, stack=3, node_limit=50)
+    assert not fit.proven_best
+    assert _placed_residual(fit, 7.7, 77.0) == pytest.approx(fit.residual_g, abs=1e-9)
+
+
+@pytest.mark.parametrize("kwargs", [
+    {"parts_g": [0.5, -1.0]}, {"parts_g": [0.0]}, {"parts_g": [math.nan]}, {"parts_g": []},
+    {"positions_deg": []}, {"stack": 0}, {"mass_g": -1.0},
+])
+def test_refuses_bad_input(kwargs):
+    args = {"mass_g": 1.0, "angle_deg": 0.0, "positions_deg": [0.0, 180.0],
+            "parts_g": [1.0], "stack": 1, **kwargs}
+    with pytest.raises(UserError):
+        best_combination(**args)
+
+
+def test_cli_have_g_uses_only_the_given_parts_and_reports_residual():
+    code, out, _ = run_cli(["split", "--mass-g", "3.3", "--angle-deg", "100", "--positions", "6",
+                            "--radius-mm", "50", "--have-g", "0.5", "0.5", "1.0", "2.0",
+                            "--stack", "2", "--json"])
+    assert code == 0
+    data = json.loads(out)
+    expected = _exhaustive(3.3, 100.0, list(equally_spaced_deg(6)), [0.5, 0.5, 1.0, 2.0], 2)
+    assert data["residual_gmm"] == pytest.approx(expected * 50.0, abs=1e-4)
+    assert data["proven_best"] is True
+    placed = sorted(m for p in data["parts"] for m in p["masses_g"])
+    assert sorted(placed + data["unused_g"]) == [0.5, 0.5, 1.0, 2.0]
+    assert all(1 <= p["position"] <= 6 for p in data["parts"])
+
+
+def test_cli_have_g_against_the_grade():
+    # ISO 21940-11:2016: U_per = 1000 * G * m / omega (g·mm, m in kg, omega in rad/s)
+    argv = ["split", "--mass-g", "3.3", "--angle-deg", "100", "--positions", "6",
+            "--radius-mm", "50", "--have-g", "0.5", "0.5", "1.0", "2.0", "--stack", "2",
+            "--grade", "6.3", "--speed-rpm", "3000", "--rotor-mass-kg", "2"]
+    code, out, _ = run_cli([*argv, "--json"])
+    data = json.loads(out)
+    allowed = 1000 * 6.3 * 2 / (3000 * 2 * math.pi / 60)
+    assert data["grade"]["allowed_gmm"] == pytest.approx(allowed, rel=1e-6)
+    assert allowed == pytest.approx(permissible_unbalance_gmm(6.3, 3000, 2), rel=1e-12)
+    assert data["grade"]["within"] is (data["residual_gmm"] <= allowed)
+    code, text, _ = run_cli(argv)
+    assert code == 0 and "best with your parts" in text and "allowed" in text
+
+
+@pytest.mark.parametrize(("argv", "needle"), [
+    (["--have-g", "0.5", "--positions", "6"], "--radius-mm"),
+    (["--have-g", "0.5", "--radius-mm", "50"], "positions"),
+    (["--have-g", "-0.5", "--positions", "6", "--radius-mm", "50"], "greater than 0"),
+    (["--have-g", "0.5", "--positions", "6", "--radius-mm", "50", "--stack", "0"], "stack"),
+    (["--stack", "2", "--positions", "6"], "--have-g"),
+    (["--have-g", "0.5", "--positions", "6", "--radius-mm", "50", "--grade", "6.3"],
+     "--speed-rpm"),
+])
+def test_cli_have_g_mistakes_are_one_line(argv, needle):
+    code, _, err = run_cli(["split", "--mass-g", "3", "--angle-deg", "10", *argv])
+    assert code == 2
+    assert needle in err and "Traceback" not in err and err.strip().count("\n") == 0

@@ -17,6 +17,7 @@ from trueturn.link.flashing import (
     avrdude_command,
     board_choice,
     check_flash_port,
+    check_image,
     find_avrdude,
     firmware_image,
     run_avrdude,
@@ -41,6 +42,10 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     parser.add_argument("--baud", type=int, default=None,
                         help="bootloader speed instead of the board's (e.g. 57600 for an "
                              "ATmega328 with the old bootloader)")
+    parser.add_argument("--image", metavar="FILE", default=None,
+                        help="an Intel HEX image of your own build instead of the shipped one, "
+                             "e.g. the AREF variant: make -C firmware ADC_REF=aref, then "
+                             "--image firmware/build-aref/trueturn.hex (hardware/FLASHING.md)")
     parser.add_argument("--dry-run", action="store_true",
                         help="print the exact avrdude command and do nothing")
     parser.add_argument("--no-check", action="store_true",
@@ -53,7 +58,7 @@ def run(args: argparse.Namespace) -> int:
     board = board_choice(args.board)
     if args.baud is not None and not 1200 <= args.baud <= 2_000_000:
         raise UserError(f"--baud must be 1200..2000000, got {args.baud}")
-    image = firmware_image()
+    image = check_image(args.image) if args.image is not None else firmware_image()
     if not image.is_file():
         raise UserError(f"the firmware image {image} is missing from this installation: "
                         "reinstall trueturn (or run `make firmware-image` in a checkout)")

@@ -28,6 +28,72 @@ def firmware_image() -> Path:
     return Path(str(resources.files("trueturn") / "firmware" / IMAGE_NAME))
 
 
+#: The highest flash address an image may write: 32 KB less the 2 KB the old Nano
+#: bootloader takes (the largest of our boards'; Optiboot takes 512 B) -- from memory.
+IMAGE_LIMIT_BYTES = 0x7800
+#: A custom image file read at most this large (a 30 KB image is about 85 KB of Intel HEX).
+IMAGE_MAX_FILE_BYTES = 1024 * 1024
+
+
+def check_image(path: str | os.PathLike[str]) -> Path:
+    """``path`` if it is an Intel HEX flash image that fits below the bootloader, else one
+    line naming the file and line (a custom build for ``trueturn flash --image``).
+
+    Intel HEX (Intel, "Hexadecimal Object File Format Specification", rev. A, 1988): records
+    ``:LLAAAATT<data>CC``, the checksum the two's complement of the byte sum; types 00 data,
+    01 end of file, 02/04 segment and linear extended address (03/05: start address, ignored
+    by avrdude). The file must end with the end-of-file record.
+    """
+    from trueturn.errors import UserError
+    from trueturn.files import read_text_file
+
+    name = os.fspath(path)
+    try:
+        text = read_text_file(path, max_bytes=IMAGE_MAX_FILE_BYTES)
+    except UserError as exc:
+        raise UserError(f"--image: {exc}") from None
+    base = 0
+    top = 0
+    ended = False
+    for number, line in enumerate(text.splitlines(), 1):
+        line = line.strip()
+        if not line:
+            continue
+        where = f"--image {name}:{number}"
+        if ended:
+            raise UserError(f"{where}: a record after the end-of-file record")
+        try:
+            if not line.startswith(":") or len(line) % 2 == 0:
+                raise ValueError
+            raw = bytes.fromhex(line[1:])
+        except ValueError:
+            raise UserError(f"{where}: not an Intel HEX record (a .hex file from "
+                            "avr-objcopy -O ihex, as `make -C firmware` writes)") from None
+        if len(raw) < 5 or raw[0] != len(raw) - 5:
+            raise UserError(f"{where}: the record's length byte does not match")
+        if sum(raw) & 0xFF:
+            raise UserError(f"{where}: checksum wrong (the file is damaged)")
+        kind = raw[3]
+        if kind == 0x00:
+            top = max(top, base + int.from_bytes(raw[1:3], "big") + raw[0])
+        elif kind == 0x01:
+            ended = True
+        elif kind == 0x02:
+            base = int.from_bytes(raw[4:6], "big") << 4
+        elif kind == 0x04:
+            base = int.from_bytes(raw[4:6], "big") << 16
+        elif kind not in (0x03, 0x05):
+            raise UserError(f"{where}: unknown record type {kind:02X}")
+    if not ended:
+        raise UserError(f"--image {name}: no end-of-file record (the file is cut short)")
+    if top == 0:
+        raise UserError(f"--image {name}: no data")
+    if top > IMAGE_LIMIT_BYTES:
+        raise UserError(f"--image {name}: {top} bytes reach past {IMAGE_LIMIT_BYTES} (the "
+                        "bootloader's area): not an image for this board")
+    return Path(path)
+
+
 def avrdude_command(port: str, board: FlashBoard, image: Path, *, avrdude: str = "avrdude",
                     baud: int | None = None) -> list[str]:
     """The avrdude command that writes ``image`` through the board's serial bootloader.

@@ -20,6 +20,8 @@ from cli_helpers import run_cli
 from trueturn.balance.iso21940 import permissible_unbalance_gmm
 from trueturn.balance.parts import best_combination
 from trueturn.errors import UserError
+from trueturn.jobs import MachineProfile, Pickup, Plane, PlaneLayout, Workspace
+from trueturn.model.mass import OwnedParts, PartStock
 from trueturn.positions import equally_spaced_deg
 
 
@@ -155,3 +157,48 @@ def test_cli_have_g_mistakes_are_one_line(argv, needle):
     code, _, err = run_cli(["split", "--mass-g", "3", "--angle-deg", "10", *argv])
     assert code == 2
     assert needle in err and "Traceback" not in err and err.strip().count("\n") == 0
+
+
+def _fan_with_parts(parts: OwnedParts | None) -> MachineProfile:
+    """An invented single-plane shop fan (demo numbers) with the parts in its drawer."""
+    return MachineProfile(
+        name="Fan with washers", rotor_kind="5-blade fan", rotor_mass_kg=1.9,
+        speed_min_rpm=1300, speed_max_rpm=1450, max_speed_rpm=1500, rotation="ccw",
+        planes=[Plane("hub", radius_mm=120.0,
+                      layout=PlaneLayout(kind="angles", angles_deg=[0, 72, 144, 216, 288]))],
+        pickups=[Pickup("motor", sensitivity_mv_per_g=330.0)], correction_parts=parts)
+
+
+def test_profile_keeps_the_owned_parts_and_split_uses_them(tmp_path):
+    kit = OwnedParts([PartStock(0.5, 2, "M5 washer"), PartStock(1.0), PartStock(2.0)], stack=2)
+    ws = Workspace(tmp_path)
+    ws.save_machine(_fan_with_parts(kit))
+    assert ws.load_machine("Fan with washers").correction_parts == kit
+    code, out, err = run_cli(["split", "--mass-g", "2.2", "--angle-deg", "100", "--machine",
+                              "Fan with washers", "--workspace", str(tmp_path), "--json"])
+    assert code == 0, err
+    data = json.loads(out)
+    expected = _exhaustive(2.2, 100.0, [0, 72, 144, 216, 288], [0.5, 0.5, 1.0, 2.0], 2)
+    assert data["residual_gmm"] == pytest.approx(expected * 120.0, abs=1e-4)
+    # the profile's grade at its maximum service speed (ISO 21940-11:2016, U_per = e_per * m)
+    assert data["grade"]["allowed_gmm"] == pytest.approx(
+        permissible_unbalance_gmm(6.3, 1450, 1.9), abs=1e-5)
+
+
+def test_profile_without_parts_reads_as_before_and_splits_any_mass(tmp_path):
+    ws = Workspace(tmp_path)
+    ws.save_machine(_fan_with_parts(None))
+    assert "correction_parts" not in ws.machine_path("Fan with washers").read_text() or \
+        ws.load_machine("Fan with washers").correction_parts is None
+    code, out, _ = run_cli(["split", "--mass-g", "2.2", "--angle-deg", "100", "--machine",
+                            "Fan with washers", "--workspace", str(tmp_path), "--json"])
+    data = json.loads(out)
+    assert code == 0 and data["mode"] == "add" and len(data["parts"]) == 2
+
+
+def test_profile_refuses_too_many_pieces(tmp_path):
+    ws = Workspace(tmp_path)
+    path = ws.save_machine(_fan_with_parts(OwnedParts([PartStock(0.5, 3)])))
+    path.write_text(path.read_text().replace("count: 3", "count: 41"))
+    with pytest.raises(UserError, match="count"):
+        ws.load_machine("Fan with washers")

@@ -33,6 +33,7 @@ from dataclasses import dataclass
 
 from trueturn.angles import amplitude_phase, phasor, wrap_deg
 from trueturn.errors import UserError
+from trueturn.model.mass import MAX_OWNED_PARTS
 from trueturn.positions import number_of
 
 #: Nodes visited before the search gives its best so far (unproven). 200 000 nodes take
@@ -41,8 +42,8 @@ from trueturn.positions import number_of
 #: not a timed test).
 DEFAULT_NODE_LIMIT = 200_000
 
-#: Most parts a search takes (a drawer of 40 washers is described by fewer, heavier ones).
-MAX_PARTS = 40
+#: Most parts a search takes (the profile's limit, model.mass.MAX_OWNED_PARTS).
+MAX_PARTS = MAX_OWNED_PARTS
 
 
 @dataclass(frozen=True)

@@ -70,11 +70,58 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     have.add_argument("--planes", type=int, choices=(1, 2), default=1,
                       help="correction planes of the rotor: 2 gives this plane half of U_per "
                            "(default 1)")
+    have.add_argument("--machine", metavar="NAME",
+                      help="take the positions, radius, owned parts (correction_parts) and "
+                           "grade from this machine profile; options given here win")
+    have.add_argument("--plane", metavar="NAME",
+                      help="with --machine: the correction plane (needed when it has two)")
+    have.add_argument("--workspace", metavar="DIR",
+                      help="workspace folder (default: $TRUETURN_WORKSPACE or the user data "
+                           "folder)")
     parser.add_argument("--json", action="store_true", help="machine-readable output")
     parser.set_defaults(run=run)
 
 
+def _from_machine(args: argparse.Namespace) -> None:
+    """Fill what the command line left out from the machine profile (``--machine``)."""
+    from trueturn.jobs.store import Workspace
+
+    if args.machine is None:
+        if args.plane is not None:
+            raise UserError("--plane goes with --machine")
+        return
+    profile = Workspace.open(args.workspace).load_machine(args.machine)
+    if args.plane is None:
+        if len(profile.planes) != 1:
+            names = ", ".join(p.name for p in profile.planes)
+            raise UserError(f"machine {profile.name!r} has two planes ({names}): give --plane")
+        plane = profile.planes[0]
+    else:
+        try:
+            plane = profile.plane(args.plane)
+        except KeyError:
+            raise UserError(f"machine {profile.name!r} has no plane {args.plane!r}") from None
+    if args.positions is None and not args.at_deg:
+        angles = plane.position_angles_deg
+        if not angles:
+            raise UserError(f"plane {plane.name!r} takes a mass at any angle (layout 'free'): "
+                            "there is nothing to split onto")
+        args.at_deg = list(angles)
+    if args.have_g is None and profile.correction_parts is not None:
+        args.have_g = profile.correction_parts.masses_g()
+        if args.stack is None:
+            args.stack = profile.correction_parts.stack
+    if args.have_g is not None:
+        if args.radius_mm is None:
+            args.radius_mm = plane.radius_mm
+        if args.grade is None and args.speed_rpm is None and args.rotor_mass_kg is None:
+            args.grade, args.speed_rpm = profile.target_grade, profile.speed_max_rpm
+            args.rotor_mass_kg = profile.rotor_mass_kg
+            args.planes = len(profile.planes)
+
+
 def run(args: argparse.Namespace) -> int:
+    _from_machine(args)
     if args.combine:
         if args.mass_g is not None or args.angle_deg is not None:
             raise UserError("give either --combine or --mass-g/--angle-deg, not both")

@@ -14,6 +14,7 @@ from typing import Literal
 from trueturn.angles import Rotation
 from trueturn.constants import MM_PER_INCH
 from trueturn.model.fields import limits
+from trueturn.model.mass import OwnedParts
 from trueturn.model.rotor import Bearing, Plane
 from trueturn.model.rotor import PlaneLayout as PlaneLayout  # the profile's planes use it
 
@@ -83,6 +84,9 @@ class MachineProfile:
     bearings: list[Bearing] = field(default_factory=list)
     #: axial position of the rotor's centre of mass (planes' origin); None: midway
     cg_axial_mm: float | None = None
+    #: the correction parts the person owns (None: any mass can be made); optional, so
+    #: files of schema version 2 without it read as before (no migration)
+    correction_parts: OwnedParts | None = None
 
     def _checks(self) -> list[tuple[str, str]]:
         problems: list[tuple[str, str]] = []

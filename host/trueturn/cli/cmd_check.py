@@ -59,7 +59,7 @@ class _Edges:
         self.last_tick: int | None = None
 
     def add(self, msg: Message) -> int:
-        tick32 = int(msg["tick"])
+        tick32 = int(msg.values["tick"])
         tick = tick32 if self.last_tick is None else extend_tick(tick32, self.last_tick)
         self.last_tick = tick
         return tick
@@ -81,7 +81,7 @@ def _gather(session: BoardSession, seconds: float, channels: int) -> BringupData
             if not isinstance(item, Message):
                 continue
             if item.name == "samples" and into is rising:
-                samples.extend(item["samples"])
+                samples.extend(item.values["samples"])
             elif item.name == "tach" and into is not None:
                 into.append(edges.add(item))
             elif item.name == "status":

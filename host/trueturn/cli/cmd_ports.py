@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import sys
 from dataclasses import asdict
+from typing import Any
 
 from trueturn.cli.common import print_json
 from trueturn.link.boards import CHIPS, LINK_BAUD, BaudResult
@@ -33,7 +34,7 @@ def baud_words(result: BaudResult) -> str:
 
 
 def _chips(as_json: bool) -> int:
-    rows = []
+    rows: list[dict[str, Any]] = []
     for chip in CHIPS:
         b = chip.baud(LINK_BAUD)
         rows.append({"chip": chip.key, "name": chip.name, "boards": chip.boards,

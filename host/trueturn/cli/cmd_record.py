@@ -129,7 +129,7 @@ def _kept(samples: int, target: int, seconds: float, out_path: Path) -> str:
             f"{seconds:g} s) in {out_path}")
 
 
-def _record(port: serial.SerialBase, args: argparse.Namespace, out_path: Path) -> int:
+def _record(port: serial.Serial, args: argparse.Namespace, out_path: Path) -> int:
     early: list[bytes] = []
     writer: CaptureWriter | None = None
 
@@ -178,7 +178,7 @@ def _record(port: serial.SerialBase, args: argparse.Namespace, out_path: Path) -
             for item in items:
                 if isinstance(item, Message):
                     if item.name == "samples":
-                        samples += len(item["samples"])
+                        samples += len(item.values["samples"])
                         last_data = time.monotonic()
                     elif item.name == "tach":
                         tach_edges += 1

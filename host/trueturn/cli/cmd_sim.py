@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+from typing import Any
 
 from trueturn.cli.common import print_json
 from trueturn.errors import UserError
@@ -44,7 +45,7 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
 
 
 def run_list(args: argparse.Namespace) -> int:
-    rows = []
+    rows: list[dict[str, Any]] = []
     for name in list_scenarios():
         sc = load_scenario(name)
         rows.append({"name": name, "title": sc.title, "speed_rpm": round(sc.speed_rpm, 1),

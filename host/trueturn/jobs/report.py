@@ -120,7 +120,7 @@ def polar_svg(job: JobRecord, sensor: str, size_px: int = 320) -> str:
     machine = job.machine
     rotation = machine.rotation
     points: list[tuple[RunEntry, float, float, float, str]] = []
-    unit = machine.units.vibration
+    unit: str = machine.units.vibration
     for run in job.runs:
         reading = run.reading(sensor)
         if reading is None or reading.phase_deg is None:
@@ -266,7 +266,7 @@ def _job_rows(job: JobRecord) -> list[tuple[str, str]]:
 
 def before_after_rows(job: JobRecord) -> list[list[str]]:
     """Per pickup: before (first run) and after (last run) amplitude and phase, and the change."""
-    rows = []
+    rows: list[list[str]] = []
     if not job.runs:
         return rows
     first, last = job.runs[0], job.runs[-1]
@@ -522,7 +522,7 @@ def html_report(job: JobRecord, generated: str = "") -> str:
     if not job.runs and job.pending is None:
         parts.append('<p>No runs recorded yet.</p>')
     rows = influence_rows(job)
-    if rows:
+    if rows and job.influence is not None:
         parts += ['<h2>Saved influence coefficients</h2>',
                   _html_table(["Pickup", "Plane", "Amplitude", "Phase"], rows, "influence"),
                   f'<p class="note">Measured at {job.influence.speed_rpm:g} rpm; kept for '

@@ -160,8 +160,8 @@ def parse_document(text: str, kind: str, source: str) -> Any:
     if found_kind != kind:
         raise SchemaError(f"{source}:{lines.get('kind', 1)}: kind: expected {kind!r}, "
                           f"got {found_kind!r}")
-    body = _keep_lines(data, {k: v for k, v in data.items()
-                              if k not in ("schema_version", "kind")})
+    body: dict[str, Any] = _keep_lines(data, {k: v for k, v in data.items()
+                                              if k not in ("schema_version", "kind")})
     for step in range(version, SCHEMA_VERSION):
         migrate = MIGRATIONS[kind].get(step)
         if migrate is None:

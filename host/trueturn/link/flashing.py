@@ -150,7 +150,7 @@ def classify_avrdude(port: str, board: FlashBoard, output: str) -> PortProblem:
 
 
 def run_avrdude(command: list[str], port: str, board: FlashBoard,
-                echo: Callable[[str], None] = lambda line: sys.stderr.write(line)) -> None:
+                echo: Callable[[str], object] = lambda line: sys.stderr.write(line)) -> None:
     """Run avrdude, echoing its output as it comes; raise PortError if it fails."""
     try:
         proc = subprocess.Popen(command, stdout=subprocess.PIPE, stderr=subprocess.STDOUT,

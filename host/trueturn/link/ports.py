@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import os
 from dataclasses import dataclass
+from typing import Any
 
 import serial
 from serial.tools import list_ports
@@ -60,7 +61,7 @@ def list_board_ports() -> list[PortInfo]:
     return found
 
 
-def open_port(url: str, baudrate: int = LINK_BAUD, timeout_s: float = 0.1) -> serial.SerialBase:
+def open_port(url: str, baudrate: int = LINK_BAUD, timeout_s: float = 0.1) -> serial.Serial:
     """Open a real port (``/dev/ttyUSB0``, ``COM3``) or a URL (``sim://bench-grinder``).
 
     A port that cannot be opened raises :class:`~trueturn.link.problems.PortError` saying
@@ -72,7 +73,7 @@ def open_port(url: str, baudrate: int = LINK_BAUD, timeout_s: float = 0.1) -> se
     if named is not None:
         raise PortError(named)
     virtual = "://" in url
-    extra = {"exclusive": True} if os.name == "posix" and not virtual else {}
+    extra: dict[str, Any] = {"exclusive": True} if os.name == "posix" and not virtual else {}
     try:
         return serial.serial_for_url(url, baudrate=baudrate, timeout=timeout_s, **extra)
     except PortError:

@@ -83,7 +83,7 @@ def mismatch_message(identity: dict[str, Any], catalogue: Catalogue,
 class BoardSession:
     """Commands and stream over an open pyserial port (see trueturn.link.ports.open_port)."""
 
-    def __init__(self, port: serial.SerialBase, catalogue: Catalogue | None = None,
+    def __init__(self, port: serial.Serial, catalogue: Catalogue | None = None,
                  on_bytes: Callable[[bytes], None] | None = None) -> None:
         self.port = port
         self.catalogue = catalogue or load_catalogue()
@@ -150,7 +150,8 @@ class BoardSession:
                 if (isinstance(item, Message) and item.name == "reply"
                         and item["command_type"] == type_id and item["command_seq"] == seq):
                     if item["error"]:
-                        code = self.catalogue.error_codes.get(item["error"], str(item["error"]))
+                        error = int(item.values["error"])
+                        code = self.catalogue.error_codes.get(error, str(error))
                         raise BoardError(f"board refused {name}: {code}")
                     replied = True
                 elif expect is not None and isinstance(item, Message) and item.name == expect:
@@ -170,7 +171,7 @@ class BoardSession:
 
     # -- the usual conversation ------------------------------------------------------------
     def greet(self, *, quiet_s: float = BOOT_QUIET_S, answer_s: float = 3.0,
-              on_phase: Callable[[GreetPhase], None] | None = None) -> dict[str, Any]:
+              on_phase: Callable[[GreetPhase], object] | None = None) -> dict[str, Any]:
         """Open the conversation right after the port opened, the way a real board needs.
 
         Opening a Uno's or Nano's port pulses DTR, which resets the board into its
@@ -207,7 +208,7 @@ class BoardSession:
                     running = True
                     streaming = streaming or item.name == "samples" or (
                         item.name == "status" and self.catalogue.device_states.get(
-                            item["state"]) == "streaming")
+                            int(item.values["state"])) == "streaming")
             self._refuse_noise(time.monotonic() - started)
         self.greeting = Greeting.RUNNING if running else Greeting.QUIET
         if on_phase is not None:

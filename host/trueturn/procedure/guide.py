@@ -351,6 +351,11 @@ class Procedure:
         return LOCKOUT_CHECKLIST if self.step.phase == "lockout" else DONE_CHECKLIST
 
     @property
+    def run_label(self) -> str | None:
+        """The label of the run the procedure is at; None at a step that is no run."""
+        return self.step.run_label if isinstance(self.step, Measure) else None
+
+    @property
     def force_speed_rpm(self) -> float:
         """The speed forces are shown at: the higher of the planned and the last measured."""
         return max(self.setup.speed_rpm, self.last_speed_rpm)

@@ -25,6 +25,7 @@ from __future__ import annotations
 
 import math
 import threading
+from collections.abc import Callable
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -621,7 +622,8 @@ class VirtualBoard:
         if window_hit:
             self._counters["tach_suppressed"] += 1
 
-    def _sample_events(self, t0_tick: int, t1_tick: int, theta_at, omega: float,
+    def _sample_events(self, t0_tick: int, t1_tick: int,
+                       theta_at: Callable[[np.ndarray | int], np.ndarray], omega: float,
                        events: list) -> None:
         s = self._stream
         period = s.period_ticks
@@ -696,7 +698,9 @@ class VirtualBoard:
                     if not self.running:  # a fixed-frequency tone comes from the live motor
                         continue
                     v = v + amp_v * np.cos(TWO_PI * h.hz * t_s[sel] - ph)
-                elif not float(h.order).is_integer():  # belt, motor through a pulley
+                    continue
+                assert h.order is not None  # Tone: exactly one of order and hz (the validator)
+                if not float(h.order).is_integer():  # belt, motor through a pulley
                     turns_phase = (h.order * (self._turns % 1_000_000)) % 1.0 * TWO_PI
                     v = v + amp_v * speed_ratio_sq * np.cos(h.order * th + turns_phase - ph)
                 else:

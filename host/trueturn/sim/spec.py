@@ -102,7 +102,9 @@ def signal_spec(scenario_name: str | Scenario, channels: int = 2, **overrides: A
             ph = (h.phase_deg + math.degrees(CHANNEL_PHASE_STEP_RAD * ch)) % 360.0
             if h.hz is not None:
                 tones.append({"hz": h.hz, "amplitude_v": amp_v, "phase_deg": ph})
-            elif float(h.order).is_integer():
+                continue
+            assert h.order is not None  # Tone: exactly one of order and hz (the validator)
+            if float(h.order).is_integer():
                 orders.append({"order": int(h.order), "amplitude_v": amp_v * speed_ratio_sq,
                                "phase_deg": ph})
             else:  # a non-synchronous component at steady speed is a fixed frequency

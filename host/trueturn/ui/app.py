@@ -411,7 +411,7 @@ class TrueturnApp(App):
         if proc is not None and running(proc, RunPhase.INTERRUPTED):
             proc.resume_run()
             self.alarm = None
-            self.message += f" Run {len(proc.runs) + 1} ({proc.step.run_label}) starts over."
+            self.message += f" Run {len(proc.runs) + 1} ({proc.run_label}) starts over."
         self.pump_link()
         self.tick()
 
@@ -423,7 +423,7 @@ class TrueturnApp(App):
                                                    self.session.watch.now_s or 0.0):
             self.alarm = None
             self.message = (f"{note[0].upper()}{note[1:]}; run {len(proc.runs) + 1} "
-                            f"({proc.step.run_label}) starts over.")
+                            f"({proc.run_label}) starts over.")
         else:
             self.message = (f"{note[0].upper()}{note[1:]}; streaming again. Standstill must "
                             "be proven afresh by the tach.")
@@ -688,7 +688,8 @@ class TrueturnApp(App):
         live = self.tach_live(snap)
         if proc.ready(meter.readings, live):
             # The run's speed: the mean over the averaged revolutions of its readings.
-            speeds = [r.speed_rpm for r in meter.readings.values() if r.speed_rpm > 0]
+            speeds = [r.speed_rpm for r in meter.readings.values()
+                      if r.speed_rpm is not None and r.speed_rpm > 0]
             run = proc.record(meter.readings, statistics.fmean(speeds), now, live)
             self.keeper.run(proc, run)
             self.session.remember_running_level()

@@ -9,6 +9,7 @@ from __future__ import annotations
 import math
 from dataclasses import replace
 from pathlib import Path
+from typing import Literal
 
 from trueturn.jobs import records as rec
 from trueturn.jobs.profiles import MachineProfile
@@ -73,7 +74,8 @@ class JobKeeper:
             m = change.mass
             if m is None or change.action == "mount-pickups":
                 continue
-            action = "attach" if change.action == "attach" else "remove"
+            action: Literal["attach", "remove"] = \
+                "attach" if change.action == "attach" else "remove"
             added.append(rec.MassChange(
                 action, m.plane, abs(m.mass_g), m.angle_deg, purpose=m.kind.value,
                 position=None if m.position is None else number_of(m.position),
@@ -114,6 +116,7 @@ class JobKeeper:
                     proc.plane(c.plane).radius_mm, parts))
         events = [rec.Event(rec.now_iso(), e.kind, e.detail) for e in run.events]
         confirmations = self._new_confirmations(proc)
+        assert run.speed_rpm is not None  # Procedure.record: every run has its measured speed
         record = rec.RunEntry(index=self.job.next_run_index, kind=kind,
                               time=rec.now_iso(), speed_rpm=run.speed_rpm, readings=readings,
                               label=run.label, confirmations=confirmations,

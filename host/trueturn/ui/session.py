@@ -138,7 +138,7 @@ class LinkSession:
 
     # ---- opening ------------------------------------------------------------------------
     def open(self, timeout_s: float = 3.0,
-             on_phase: Callable[[GreetPhase], None] | None = None) -> BoardIdentity:
+             on_phase: Callable[[GreetPhase], object] | None = None) -> BoardIdentity:
         """Open the port, wait for the board to start (a Uno or Nano resets when its port
         opens: :meth:`BoardSession.greet`), check its identity; raise :class:`LinkProblem`.
 
@@ -208,7 +208,7 @@ class LinkSession:
         self._motion_judged_s = -1e9
 
     def reconnect(self, timeout_s: float = 3.0,
-                  on_phase: Callable[[GreetPhase], None] | None = None) -> BoardIdentity:
+                  on_phase: Callable[[GreetPhase], object] | None = None) -> BoardIdentity:
         """Open the same port again after a lost link and check who answers (like
         :meth:`open`: a mismatched firmware comes back with ``matches`` False)."""
         self.close()
@@ -323,8 +323,9 @@ class LinkSession:
         volts_per_count = reference_mv / 1000.0 / (1 << int(ident["adc_bits"]))
         scales, units = [], []
         for profile in self.meter.profiles:
-            calibrated = profile.sensitivity_v_per_g is not None and profile.sensitivity_v_per_g > 0
-            scales.append(volts_per_count / profile.sensitivity_v_per_g if calibrated
+            sensitivity = profile.sensitivity_v_per_g
+            calibrated = sensitivity is not None and sensitivity > 0
+            scales.append(volts_per_count / sensitivity if sensitivity is not None and calibrated
                           else volts_per_count)
             units.append("g" if calibrated else "V")
         running = self.motion.running_g_rms if self.motion is not None else None

@@ -8,12 +8,13 @@ from serial.serialutil import SerialBase, SerialException
 class VirtualLineSerial(SerialBase):
     """A pyserial port whose far end is a program: no DTR/RTS/break, modem lines always ready."""
 
-    def _check_can_open(self) -> None:
-        """pyserial's rule for open(): not open already, and a port (URL) is set."""
+    def _check_can_open(self) -> str:
+        """pyserial's rule for open(): not open already, and a port (URL) is set; the URL."""
         if self.is_open:
             raise SerialException("Port is already open.")
-        if self._port is None:
+        if self.port is None:
             raise SerialException("Port must be configured before it can be used.")
+        return self.port
 
     def _update_dtr_state(self) -> None:
         """No DTR line (a virtual board is not reset by opening the port)."""

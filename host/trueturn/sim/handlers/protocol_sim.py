@@ -41,8 +41,9 @@ from __future__ import annotations
 
 import time
 import urllib.parse
+from typing import TYPE_CHECKING, Any
 
-from serial.serialutil import PortNotOpenError, SerialException, to_bytes
+from serial.serialutil import PortNotOpenError, SerialException
 
 from trueturn.errors import UserError
 from trueturn.link.boards import BOOTLOADER_WAIT_S
@@ -56,6 +57,9 @@ from trueturn.sim.board import (
     VirtualBoard,
 )
 from trueturn.sim.scenario import load_scenario
+
+if TYPE_CHECKING:
+    from typing_extensions import Buffer  # what pyserial's stubs take (PEP 688)
 
 _USAGE = ('expected "sim://NAME[?realtime=0|1&pace=F&seed=N&rpm=R&motor=on|off&noise=F'
           '&unbalance=as-found|none&tick0=T&tach=none|missing|double|knocked|off|chatter'
@@ -91,7 +95,7 @@ class Rig(VirtualBoard):
 class Serial(VirtualLineSerial):
     """A serial port whose other end is the simulated board of a scenario."""
 
-    def __init__(self, *args, **kwargs) -> None:
+    def __init__(self, *args: Any, **kwargs: Any) -> None:
         self.rig: Rig | None = None
         self.realtime = True
         self.pace = 1.0
@@ -102,8 +106,7 @@ class Serial(VirtualLineSerial):
     # --- pyserial plumbing ------------------------------------------------------------------
 
     def open(self) -> None:
-        self._check_can_open()
-        name, options = self.from_url(self.port)
+        name, options = self.from_url(self._check_can_open())
         try:
             scenario = load_scenario(name)
             self.rig = Rig(scenario, options)
@@ -201,7 +204,8 @@ class Serial(VirtualLineSerial):
 
     def read(self, size: int = 1) -> bytes:
         rig = self._check()
-        deadline = None if self._timeout is None else time.monotonic() + self._timeout
+        timeout = self.timeout
+        deadline = None if timeout is None else time.monotonic() + timeout
         data = bytearray()
         while len(data) < size:
             self._sync()
@@ -217,11 +221,11 @@ class Serial(VirtualLineSerial):
             self._check()
         return bytes(data)
 
-    def write(self, data: bytes) -> int:
-        self._check()
-        payload = to_bytes(data)
+    def write(self, data: Buffer, /) -> int:
+        rig = self._check()
+        payload = bytes(data)  # as pyserial's to_bytes: any buffer, never text
         self._sync()
-        self.rig.receive(payload)
+        rig.receive(payload)
         return len(payload)
 
     def reset_input_buffer(self) -> None:

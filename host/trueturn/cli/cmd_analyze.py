@@ -7,14 +7,14 @@ import dataclasses
 import math
 from typing import Any
 
-from trueturn.cli.common import load_capture, print_json
-from trueturn.dsp.analysis import Analysis, analyze_capture
+from trueturn.cli.common import open_capture, print_json
+from trueturn.dsp.analysis import ALL_REVS, Analysis, analyze_capture
 from trueturn.dsp.findings import Code, Finding, describe
 from trueturn.dsp.spectrum import SpectrumPeak
 from trueturn.dsp.units import UNITS, PickupProfile
-from trueturn.errors import UserError
+from trueturn.errors import UserError, one_line
 from trueturn.link.catalogue import load_catalogue
-from trueturn.link.codec import Message, StreamDecoder
+from trueturn.link.codec import LinkEvent, Message
 
 # Option value -> unit label of trueturn.dsp.units.UNITS
 UNIT_CHOICES = {
@@ -100,26 +100,31 @@ def _profiles(args: argparse.Namespace, metadata: dict[str, Any]) -> list[Pickup
 def run(args: argparse.Namespace) -> int:
     if args.revs is not None and args.revs < 2:
         raise UserError("--revs must be at least 2")
-    metadata, raw = load_capture(args.capture)
-    mains = args.mains_hz
-    if mains is None:
-        stored = metadata.get("mains_hz")
-        mains = float(stored) if stored in (50, 60, 50.0, 60.0) else 50.0
-    unit = UNIT_CHOICES[args.unit] if args.unit else None
-    assert unit is None or unit in UNITS
-    stored_identity = metadata.get("identity")
-    result = analyze_capture(raw, revs=args.revs, mains_hz=mains,
-                             profiles=_profiles(args, metadata), unit=unit,
-                             identity=stored_identity if isinstance(stored_identity, dict)
-                             else None)
-    _check_protocol(args.capture, metadata, raw)
-    short = _incomplete(metadata, raw)
+    if args.revs is not None and args.revs > ALL_REVS:  # the window held in memory
+        raise UserError(f"--revs must be at most {ALL_REVS} (the most one analysis averages)")
+    with open_capture(args.capture) as reader:
+        metadata = reader.metadata
+        mains = args.mains_hz
+        if mains is None:
+            stored = metadata.get("mains_hz")
+            mains = float(stored) if stored in (50, 60) else 50.0
+        unit = UNIT_CHOICES[args.unit] if args.unit else None
+        assert unit is None or unit in UNITS
+        stored_identity = metadata.get("identity")
+        watch = _Watch(metadata)
+        # streamed from the file: memory is bounded by the averaging window, not the file
+        result = analyze_capture(reader.chunks(), revs=args.revs, mains_hz=mains,
+                                 profiles=_profiles(args, metadata), unit=unit,
+                                 identity=stored_identity if isinstance(stored_identity, dict)
+                                 else None, observe=watch)
+    _check_protocol(args.capture, watch.identities)
+    short = watch.incomplete(metadata)
     if short:
         result = dataclasses.replace(result, warnings=(describe(short), *result.warnings),
                                      findings=(short, *result.findings))
     if not result.readings:
         why = result.warnings[0] if result.warnings else "no samples and tach edges found"
-        raise UserError(f"{args.capture}: no 1x reading could be made ({why})")
+        raise UserError(f"{one_line(args.capture)}: no 1x reading could be made ({why})")
     if args.json:
         print_json(result.to_json())
     else:
@@ -127,57 +132,65 @@ def run(args: argparse.Namespace) -> int:
     return 0
 
 
-def _check_protocol(name: str, metadata: dict[str, Any], raw: bytes) -> None:
+class _Watch:
+    """What ``analyze`` checks besides the analysis, seen in the same pass over the bytes:
+    the identities (header and stream) and the time the last stream's samples span."""
+
+    def __init__(self, metadata: dict[str, Any]) -> None:
+        self.identities: list[dict[str, Any]] = []
+        header = metadata.get("identity")
+        if isinstance(header, dict):
+            self.identities.append(header)
+        self.tick_hz = header.get("tick_hz") if isinstance(header, dict) else None
+        self.start = self.first = self.end = None
+        self.period = 0
+
+    def __call__(self, item: Message | LinkEvent) -> None:
+        if not isinstance(item, Message):
+            return
+        if item.name == "samples":
+            if self.first is None or item["start_tick"] != self.start:
+                self.start, self.first = item["start_tick"], item["first_index"]
+                self.period = item["period_ticks"]
+            self.end = item["first_index"] + len(item["samples"])
+        elif item.name == "identity":
+            self.tick_hz = item["tick_hz"]
+            if len(self.identities) < 8:
+                self.identities.append(item.values)
+
+    def incomplete(self, metadata: dict[str, Any]) -> Finding | None:
+        """A finding when the capture holds less signal than ``record`` was asked for (the
+        cable was pulled, the board restarted or the recording was interrupted)."""
+        requested = metadata.get("requested")
+        wanted_s = requested.get("seconds") if isinstance(requested, dict) else None
+        if isinstance(wanted_s, bool) or not isinstance(wanted_s, (int, float)) or wanted_s <= 0:
+            return None
+        # the time the last stream's sample indices span (SPEC 4.4: every block carries its
+        # stream's start and period): frames lost on the way do not shorten it, only a
+        # stream that stopped early does
+        got_s = 0.0
+        if (self.first is not None and self.end is not None and isinstance(self.tick_hz, int)
+                and self.tick_hz > 0):
+            got_s = ((self.end - self.first) & 0xFFFFFFFF) * self.period / self.tick_hz
+        if got_s >= 0.98 * wanted_s:
+            return None
+        return Finding(Code.INCOMPLETE_CAPTURE, details={"recorded_s": round(got_s, 3),
+                                                         "requested_s": wanted_s})
+
+
+def _check_protocol(name: str, identities: list[dict[str, Any]]) -> None:
     """Refuse a capture from a board speaking other definitions, naming both (SPEC.md §5)."""
     catalogue = load_catalogue()
-    identities = [metadata.get("identity")]
-    for item in StreamDecoder(catalogue).feed(raw[:4096]):
-        if isinstance(item, Message) and item.name == "identity":
-            identities.append(item.values)
     for identity in identities:
-        if not isinstance(identity, dict):
-            continue
         version, digest = identity.get("protocol_version"), identity.get("definition_hash")
         if not isinstance(version, int) or not isinstance(digest, int):
             continue
         if (version, digest) != (catalogue.protocol_version, catalogue.definition_hash):
-            raise UserError(f"{name} was recorded from a board speaking protocol {version} "
-                            f"(definitions {digest:#010x}); this trueturn reads protocol "
-                            f"{catalogue.protocol_version} ({catalogue.definition_hash:#010x}): "
-                            "analyze it with the trueturn version that recorded it")
-
-
-def _incomplete(metadata: dict[str, Any], raw: bytes) -> Finding | None:
-    """A finding when the capture holds less signal than ``record`` was asked for (the
-    cable was pulled, the board restarted or the recording was interrupted)."""
-    requested = metadata.get("requested")
-    wanted_s = requested.get("seconds") if isinstance(requested, dict) else None
-    if isinstance(wanted_s, bool) or not isinstance(wanted_s, (int, float)) or wanted_s <= 0:
-        return None
-    # the time the last stream's sample indices span (SPEC 4.4: every block carries its
-    # stream's start and period): frames lost on the way do not shorten it, only a stream
-    # that stopped early does
-    identity = metadata.get("identity")
-    tick_hz = identity.get("tick_hz") if isinstance(identity, dict) else None
-    start = first = end = None
-    period = 0
-    for item in StreamDecoder().feed(raw):
-        if not isinstance(item, Message):
-            continue
-        if item.name == "identity":
-            tick_hz = item["tick_hz"]
-        elif item.name == "samples":
-            if first is None or item["start_tick"] != start:
-                start, first, period = item["start_tick"], item["first_index"], \
-                    item["period_ticks"]
-            end = item["first_index"] + len(item["samples"])
-    got_s = 0.0
-    if first is not None and end is not None and isinstance(tick_hz, int) and tick_hz > 0:
-        got_s = ((end - first) & 0xFFFFFFFF) * period / tick_hz
-    if got_s >= 0.98 * wanted_s:
-        return None
-    return Finding(Code.INCOMPLETE_CAPTURE, details={"recorded_s": round(got_s, 3),
-                                                     "requested_s": wanted_s})
+            raise UserError(f"{one_line(name)} was recorded from a board speaking protocol "
+                            f"{version} (definitions {digest:#010x}); this trueturn reads "
+                            f"protocol {catalogue.protocol_version} "
+                            f"({catalogue.definition_hash:#010x}): analyze it with the "
+                            "trueturn version that recorded it")
 
 
 def _peak_label(peak: SpectrumPeak) -> str:

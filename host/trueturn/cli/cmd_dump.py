@@ -6,7 +6,7 @@ import argparse
 import json
 import sys
 
-from trueturn.cli.common import load_capture
+from trueturn.cli.common import open_capture
 from trueturn.link.codec import LinkEvent, StreamDecoder
 
 
@@ -23,20 +23,22 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
 
 
 def run(args: argparse.Namespace) -> int:
-    metadata, raw = load_capture(args.file)
     out = sys.stdout
-    if not metadata.get("plain"):
-        out.write(json.dumps({"capture": metadata}) + "\n")
-    # a plain frame file (e.g. protocol/vectors) may hold frames of either direction
-    decoder = StreamDecoder(from_board=not metadata.get("plain"))
-    for item in decoder.feed(raw):
-        if isinstance(item, LinkEvent):
-            record = {"event": item.kind, "detail": item.detail, "count": item.count}
-        else:
-            record = item.to_json()
-            if args.no_samples and "samples" in record:
-                record["samples"] = len(record["samples"])
-        out.write(json.dumps(record) + "\n")
+    with open_capture(args.file) as reader:  # streamed: memory does not grow with the file
+        metadata = reader.metadata
+        if not reader.plain:
+            out.write(json.dumps({"capture": metadata}) + "\n")
+        # a plain frame file (e.g. protocol/vectors) may hold frames of either direction
+        decoder = StreamDecoder(from_board=not reader.plain)
+        for chunk in reader.chunks():
+            for item in decoder.feed(chunk):
+                if isinstance(item, LinkEvent):
+                    record = {"event": item.kind, "detail": item.detail, "count": item.count}
+                else:
+                    record = item.to_json()
+                    if args.no_samples and "samples" in record:
+                        record["samples"] = len(record["samples"])
+                out.write(json.dumps(record) + "\n")
     if decoder.pending_bytes:
         out.write(json.dumps({"event": "truncated", "detail":
                               f"{decoder.pending_bytes} bytes after the last delimiter"}) + "\n")

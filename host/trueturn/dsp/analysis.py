@@ -8,7 +8,7 @@ the meter showed. The JSON form is the contract of ``trueturn analyze --json``.
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
+from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from typing import Any
 
@@ -107,10 +107,12 @@ class Analysis:
         }
 
 
-def analyze_capture(raw: bytes, revs: int | None = None, mains_hz: float | None = 50.0,
+def analyze_capture(raw: bytes | Iterable[bytes], revs: int | None = None,
+                    mains_hz: float | None = 50.0,
                     profiles: Sequence[PickupProfile] = (), unit: str | None = None,
                     limits: SteadinessLimits | None = None,
-                    identity: dict[str, Any] | None = None) -> Analysis:
+                    identity: dict[str, Any] | None = None,
+                    observe: Callable[[Message | LinkEvent], None] | None = None) -> Analysis:
     """Analyse the received bytes of one capture over its last ``revs`` good revolutions.
 
     Decodes with :class:`trueturn.link.codec.StreamDecoder` and runs the same
@@ -119,8 +121,8 @@ def analyze_capture(raw: bytes, revs: int | None = None, mains_hz: float | None 
 
     Parameters
     ----------
-    raw : bytes
-        The bytes as received from the board.
+    raw : bytes or iterable of bytes
+        The bytes as received from the board, whole or in pieces.
     revs : int or None, default None
         Revolutions averaged; None averages every revolution up to a limit (then says so).
     mains_hz : float or None, default 50.0
@@ -134,6 +136,9 @@ def analyze_capture(raw: bytes, revs: int | None = None, mains_hz: float | None 
     identity : dict or None, default None
         The board's identity fields as saved in a capture header, used when the bytes start
         after the identity message (an identity in the bytes wins).
+    observe : callable or None, default None
+        Called with every decoded message and link event, in order, before the meter takes
+        it; None calls nothing.
 
     Returns
     -------
@@ -160,8 +165,12 @@ def analyze_capture(raw: bytes, revs: int | None = None, mains_hz: float | None 
     board = _BoardLosses()
     chunk = 1 << 16
     feed = meter.feed
-    for start in range(0, len(raw), chunk):
-        for item in decoder.feed(raw[start:start + chunk]):
+    pieces: Iterable[bytes] = ((raw[start:start + chunk] for start in range(0, len(raw), chunk))
+                               if isinstance(raw, (bytes, bytearray, memoryview)) else raw)
+    for piece in pieces:
+        for item in decoder.feed(piece):
+            if observe is not None:
+                observe(item)
             if isinstance(item, LinkEvent):
                 if item.kind == "board_reset":
                     found.append(Finding(Code.BOARD_RESTART))

@@ -15,7 +15,7 @@ import time
 
 import pytest
 
-from firmware_helpers import make, require_tools
+from firmware_helpers import REPO, make, require_tools
 from trueturn.dsp import analyze_capture
 from trueturn.dsp.findings import Code, describe
 from trueturn.link.catalogue import load_catalogue
@@ -99,3 +99,21 @@ def test_standard_image_stays_avcc() -> None:
     identity = _first(raw, "identity")
     assert identity["adc_reference_kind"] == KINDS["avcc_vs_bandgap"]
     assert identity["adc_reference_mv"] == _bandgap_mv(5000)
+
+
+def test_wiring_gain_error_table_is_the_formula() -> None:
+    # hardware/WIRING.md, "The gain error, in numbers": counts per g = 0.33 V/g x 1024 / AVCC
+    # (ADC = Vin * 1024 / Vref, datasheet; 330 mV/g at 3.3 V, the module's figure as WIRING
+    # gives it, from memory), the error against the 5.000 V figure
+    text = (REPO / "hardware" / "WIRING.md").read_text(encoding="utf-8")
+    table = text[text.index("### The gain error, in numbers"):text.index("### The AREF build")]
+    rows = [r.strip("|").split("|") for r in table.splitlines()
+            if r.startswith("| ") and r[2].isdigit()]
+    assert len(rows) == 4
+    at_5v = 0.33 * 1024 / 5.0
+    for avcc, counts, error in rows:
+        v = float(avcc.strip().removesuffix(" V"))
+        assert float(counts) == round(0.33 * 1024 / v, 1)
+        assert float(error.strip().removesuffix(" %").replace("−", "-")) == \
+            round(100 * (0.33 * 1024 / v / at_5v - 1), 1)
+    assert "102.4" in text and round(0.33 * 1024 / 3.3, 1) == 102.4

@@ -45,13 +45,16 @@ import threading
 import time
 import urllib.parse
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-from serial.serialutil import PortNotOpenError, SerialException, to_bytes
+from serial.serialutil import PortNotOpenError, SerialException
 
 from trueturn.errors import UserError
 from trueturn.link.boards import BOOTLOADER_WAIT_S
 from trueturn.link.handlers.virtual import VirtualLineSerial
+
+if TYPE_CHECKING:
+    from typing_extensions import Buffer  # what pyserial's stubs take (PEP 688)
 
 _USAGE = ('expected "emu://SCENARIO[?realtime=0|1&seconds=S&seed=N&rpm=R&noise=F&channels=1|2'
           '&tach=none|chatter&reset_on_open=0|1&bootloader=new|old&aref=MV]"')
@@ -142,8 +145,7 @@ class Serial(VirtualLineSerial):
     # --- pyserial plumbing ------------------------------------------------------------------
 
     def open(self) -> None:
-        self._check_can_open()
-        name, options = self.from_url(self.port)
+        name, options = self.from_url(self._check_can_open())
         from trueturn.sim import signal_spec  # late import: sim pulls in numpy/scipy
 
         try:
@@ -327,7 +329,8 @@ class Serial(VirtualLineSerial):
     def read(self, size: int = 1) -> bytes:
         if not self.is_open:
             raise PortNotOpenError()
-        deadline = None if self._timeout is None else time.monotonic() + self._timeout
+        timeout = self.timeout
+        deadline = None if timeout is None else time.monotonic() + timeout
         with self._cond:
             while len(self._buffer) < size and not self._eof:
                 remaining = None if deadline is None else deadline - time.monotonic()
@@ -338,10 +341,10 @@ class Serial(VirtualLineSerial):
             del self._buffer[:size]
         return data
 
-    def write(self, data: bytes | bytearray | memoryview) -> int:
+    def write(self, data: Buffer, /) -> int:
         if not self.is_open:
             raise PortNotOpenError()
-        payload = to_bytes(data)
+        payload = bytes(data)  # as pyserial's to_bytes: any buffer, never text
         with self._cond:
             if self._boot_at is not None:  # the bootloader swallows it and waits again
                 self.bootloader_bytes += len(payload)

@@ -19,8 +19,13 @@ from trueturn.balance.iso21940 import (
     permissible_unbalance_gmm,
     verdict,
 )
-from trueturn.cli.common import print_json
+from trueturn.cli.common import number, print_json
 from trueturn.errors import UserError
+
+# The largest grade and residual taken: ISO 21940-11's table ends at G 4000; a residual of
+# 10^9 g·mm is a tonne at a metre (common practice, no source: beyond any kit's rotor).
+MAX_GRADE_MM_S = 10_000.0
+MAX_RESIDUAL_GMM = 1e9
 
 
 def parse_grade(text: str) -> float:
@@ -30,8 +35,9 @@ def parse_grade(text: str) -> float:
         value = float(cleaned)
     except ValueError:
         raise argparse.ArgumentTypeError(f"not a balance grade: {text!r} (e.g. 6.3 or G6.3)") from None
-    if not 0 < value < float("inf"):
-        raise argparse.ArgumentTypeError(f"grade must be a finite number greater than 0, got {text!r}")
+    if not 0 < value <= MAX_GRADE_MM_S:
+        raise argparse.ArgumentTypeError(f"grade must be a number above 0 and at most "
+                                         f"{MAX_GRADE_MM_S:g} mm/s, got {text!r}")
     return value
 
 
@@ -44,9 +50,10 @@ def parse_residual(text: str) -> tuple[float, float | None]:
     except ValueError:
         raise argparse.ArgumentTypeError(
             f"not a residual: {text!r} (g·mm, or g·mm@angle_deg such as 37@180)") from None
-    if not 0 <= mag < math.inf or (angle is not None and not -360 <= angle <= 360):
+    if not 0 <= mag <= MAX_RESIDUAL_GMM or (angle is not None and not -360 <= angle <= 360):
         raise argparse.ArgumentTypeError(
-            f"residual must be >= 0 g·mm with an angle within -360..360°, got {text!r}")
+            f"residual must be 0 to {MAX_RESIDUAL_GMM:g} g·mm with an angle within "
+            f"-360..360°, got {text!r}")
     return mag, angle
 
 
@@ -57,24 +64,24 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                     "(e_per = G/omega, U_per = e_per*m at the maximum service speed), judged at "
                     "the bearing planes when their positions are given (residuals referred by "
                     "rigid-rotor statics), otherwise shared between the correction planes.")
-    parser.add_argument("--rotor-mass-kg", type=float, help="mass of the rotor, kg")
-    parser.add_argument("--speed-rpm", type=float, help="maximum service speed, rpm")
+    parser.add_argument("--rotor-mass-kg", type=number("rotor_mass_kg"), help="mass of the rotor, kg")
+    parser.add_argument("--speed-rpm", type=number("speed_rpm"), help="maximum service speed, rpm")
     parser.add_argument("--grade", type=parse_grade, help="balance quality grade G, mm/s (e.g. 6.3)")
     parser.add_argument("--planes", type=int, default=2, choices=(1, 2),
                         help="number of correction planes (default 2)")
-    parser.add_argument("--plane-distance-mm", type=float,
+    parser.add_argument("--plane-distance-mm", type=number("distance_mm"),
                         help="distance between the two correction planes, mm")
-    parser.add_argument("--cg-from-first-plane-mm", type=float,
+    parser.add_argument("--cg-from-first-plane-mm", type=number("axial_mm"),
                         help="distance of the centre of mass from the first plane, mm")
     parser.add_argument("--residual-gmm", type=parse_residual, nargs="+", metavar="U[@DEG]",
                         help="residual unbalance per correction plane, g·mm, optionally at an "
                              "angle (37@180), for a pass/fail verdict")
-    parser.add_argument("--plane-axial-mm", type=float, nargs="+", metavar="Z",
+    parser.add_argument("--plane-axial-mm", type=number("axial_mm"), nargs="+", metavar="Z",
                         help="axial position of each correction plane, mm (with --bearing-axial-mm)")
-    parser.add_argument("--bearing-axial-mm", type=float, nargs=2, metavar=("ZA", "ZB"),
+    parser.add_argument("--bearing-axial-mm", type=number("axial_mm"), nargs=2, metavar=("ZA", "ZB"),
                         help="axial positions of the two bearings, mm (same origin): the verdict "
                              "is then judged at the bearing planes (ISO 21940-11)")
-    parser.add_argument("--cg-axial-mm", type=float,
+    parser.add_argument("--cg-axial-mm", type=number("axial_mm"),
                         help="axial position of the rotor's centre of mass, mm (default: "
                              "midway between the bearings)")
     parser.add_argument("--list", action="store_true", help="print the grade table and exit")

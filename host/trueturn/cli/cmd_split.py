@@ -14,7 +14,7 @@ from trueturn.balance.splitting import (
     split,
 )
 from trueturn.cli.cmd_grade import parse_grade
-from trueturn.cli.common import print_json
+from trueturn.cli.common import number, print_json
 from trueturn.errors import UserError
 from trueturn.positions import degrees_text, equally_spaced_deg, position_text
 
@@ -22,9 +22,11 @@ from trueturn.positions import degrees_text, equally_spaced_deg, position_text
 def _mass_at(text: str) -> tuple[float, float]:
     try:
         mass, angle = text.split("@")
-        return float(mass), float(angle)
+        return number("mass_g_or_zero")(mass), number("angle_deg")(angle)
     except ValueError:
         raise argparse.ArgumentTypeError(f"expected MASS_G@ANGLE_DEG, got {text!r}") from None
+    except argparse.ArgumentTypeError as exc:
+        raise argparse.ArgumentTypeError(f"{text!r}: {exc}") from None
 
 
 def add_parser(sub: argparse._SubParsersAction) -> None:
@@ -35,38 +37,38 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                     "masses into one; or remove material opposite instead of adding. Angles "
                     "count from the reference mark against rotation; positions are numbered "
                     "from 1 in the same direction, as on the printed ring.")
-    parser.add_argument("--mass-g", type=float, help="correction mass, g")
-    parser.add_argument("--angle-deg", type=float, help="correction angle, degrees")
+    parser.add_argument("--mass-g", type=number("mass_g_or_zero"), help="correction mass, g")
+    parser.add_argument("--angle-deg", type=number("angle_deg"), help="correction angle, degrees")
     parser.add_argument("--combine", type=_mass_at, nargs="+", metavar="MASS_G@ANGLE_DEG",
                         help="use the vector sum of these masses as the correction")
     where = parser.add_mutually_exclusive_group()
-    where.add_argument("--positions", type=int, help="number of equally spaced positions")
-    where.add_argument("--at-deg", type=float, nargs="+", metavar="ANGLE",
+    where.add_argument("--positions", type=number("positions", whole=True), help="number of equally spaced positions")
+    where.add_argument("--at-deg", type=number("angle_deg"), nargs="+", metavar="ANGLE",
                        help="explicit position angles, degrees, position 1 first")
-    parser.add_argument("--first-deg", type=float,
+    parser.add_argument("--first-deg", type=number("angle_deg"),
                         help="angle of position 1 for --positions (default 0), as for "
                              "`trueturn ring`")
     parser.add_argument("--remove", action="store_true",
                         help="drill material out at the opposite angle instead of adding")
-    parser.add_argument("--drill-mm", type=float, help="drill diameter for --remove, mm")
-    parser.add_argument("--density-g-cm3", type=float, default=7.85,
+    parser.add_argument("--drill-mm", type=number("drill_mm"), help="drill diameter for --remove, mm")
+    parser.add_argument("--density-g-cm3", type=number("density_g_cm3"), default=7.85,
                         help="material density for --remove, g/cm³ (default 7.85, steel)")
-    parser.add_argument("--point-deg", type=float, default=DEFAULT_POINT_ANGLE_DEG,
+    parser.add_argument("--point-deg", type=number("point_deg"), default=DEFAULT_POINT_ANGLE_DEG,
                         help="drill point angle, degrees (default 118)")
     have = parser.add_argument_group(
         "the weights you have", "place the correction as the best combination of the parts "
         "you own (exact branch-and-bound search; the unbalance left is reported)")
-    have.add_argument("--have-g", type=float, nargs="+", metavar="MASS_G",
+    have.add_argument("--have-g", type=number("mass_g"), nargs="+", metavar="MASS_G",
                       help="mass of each part you own, g, one per piece (0.5 0.5 1.0 2.0)")
-    have.add_argument("--stack", type=int, default=None,
+    have.add_argument("--stack", type=number("stack", whole=True), default=None,
                       help="most parts one position takes (default 1)")
-    have.add_argument("--radius-mm", type=float,
+    have.add_argument("--radius-mm", type=number("radius_mm"),
                       help="radius of the positions, mm (for the unbalance left, g·mm)")
     have.add_argument("--grade", type=parse_grade,
                       help="balance quality grade G to judge the unbalance left against "
                            "(with --speed-rpm and --rotor-mass-kg)")
-    have.add_argument("--speed-rpm", type=float, help="maximum service speed, rpm")
-    have.add_argument("--rotor-mass-kg", type=float, help="mass of the rotor, kg")
+    have.add_argument("--speed-rpm", type=number("speed_rpm"), help="maximum service speed, rpm")
+    have.add_argument("--rotor-mass-kg", type=number("rotor_mass_kg"), help="mass of the rotor, kg")
     have.add_argument("--planes", type=int, choices=(1, 2), default=1,
                       help="correction planes of the rotor: 2 gives this plane half of U_per "
                            "(default 1)")

@@ -5,7 +5,7 @@ from __future__ import annotations
 import argparse
 
 from trueturn.balance.trial_mass import DEFAULT_FORCE_RATIO, size_trial_mass
-from trueturn.cli.common import print_json
+from trueturn.cli.common import number, print_json
 
 
 def add_parser(sub: argparse._SubParsersAction) -> None:
@@ -13,13 +13,13 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
         "trial-mass", help="size a trial mass",
         description="Trial mass whose centrifugal force is about 10 % of the rotor's weight "
                     "(common practice), capped at 1 % of the rotor mass or --max-mass-g.")
-    parser.add_argument("--rotor-mass-kg", type=float, required=True, help="rotor mass, kg")
-    parser.add_argument("--radius-mm", type=float, required=True,
+    parser.add_argument("--rotor-mass-kg", type=number("rotor_mass_kg"), required=True, help="rotor mass, kg")
+    parser.add_argument("--radius-mm", type=number("radius_mm"), required=True,
                         help="radius at which the trial mass sits, mm")
-    parser.add_argument("--speed-rpm", type=float, required=True, help="balancing speed, rpm")
-    parser.add_argument("--force-ratio", type=float, default=DEFAULT_FORCE_RATIO,
+    parser.add_argument("--speed-rpm", type=number("speed_rpm"), required=True, help="balancing speed, rpm")
+    parser.add_argument("--force-ratio", type=number("force_ratio"), default=DEFAULT_FORCE_RATIO,
                         help="centrifugal force as a fraction of the rotor weight (default 0.1)")
-    parser.add_argument("--max-mass-g", type=float, help="largest trial mass you can fit, g")
+    parser.add_argument("--max-mass-g", type=number("mass_g"), help="largest trial mass you can fit, g")
     parser.add_argument("--json", action="store_true", help="machine-readable output")
     parser.set_defaults(run=run)
 

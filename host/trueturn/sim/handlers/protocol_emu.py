@@ -37,6 +37,7 @@ seconds, CPU cycles spent in each interrupt handler and the interrupt load.
 from __future__ import annotations
 
 import json
+import math
 import os
 import shutil
 import subprocess
@@ -75,6 +76,14 @@ FIRMWARE_DIR = Path(os.environ.get("TRUETURN_FIRMWARE_DIR")
 
 #: The firmware's build variants (firmware/Makefile ``ADC_REF``) and their output folders.
 BUILD_DIRS = {"avcc": "build", "aref": "build-aref"}
+
+
+def _finite(value: str, low: float, high: float) -> float:
+    """A URL option's number within ``low..high``; nan, inf and the like are a ValueError."""
+    number = float(value)
+    if not (math.isfinite(number) and low <= number <= high):
+        raise ValueError(value)
+    return number
 
 
 def firmware_paths(firmware_dir: Path = FIRMWARE_DIR, adc_ref: str = "avcc") -> tuple[Path, Path]:
@@ -214,7 +223,8 @@ class Serial(VirtualLineSerial):
         parts = urllib.parse.urlsplit(url)
         if parts.scheme != "emu":
             raise SerialException(f"{_USAGE}, not starting with emu:// ({url!r})")
-        name = (parts.netloc + parts.path).strip("/") or ""
+        # emu://NAME, emu://folder/file.yaml, emu:///abs/path.yaml (the leading / kept)
+        name = (parts.netloc + parts.path if parts.netloc else parts.path).rstrip("/")
         if not name:
             raise SerialException(f"{_USAGE}: scenario name missing")
         opts: dict[str, Any] = {"realtime": True, "seconds": 0.0, "channels": 2, "spec": {},
@@ -225,15 +235,15 @@ class Serial(VirtualLineSerial):
                 if key == "realtime":
                     opts["realtime"] = {"1": True, "0": False}[value]
                 elif key == "seconds":
-                    opts["seconds"] = float(value)
+                    opts["seconds"] = _finite(value, 0.0, 86_400.0)
                 elif key == "channels":
                     opts["channels"] = {"1": 1, "2": 2}[value]
                 elif key == "seed":
-                    opts["spec"]["seed"] = int(value)
+                    opts["spec"]["seed"] = int(_finite(value, 0, 2**32 - 1))
                 elif key == "rpm":
-                    opts["spec"]["speed_rpm"] = float(value)
+                    opts["spec"]["speed_rpm"] = _finite(value, 1.0, 200_000.0)
                 elif key == "noise":
-                    opts["spec"]["noise_scale"] = float(value)
+                    opts["spec"]["noise_scale"] = _finite(value, 0.0, 1000.0)
                 elif key == "tach":
                     opts["tach"] = {"none": "none", "chatter": "chatter"}[value]
                 elif key == "reset_on_open":

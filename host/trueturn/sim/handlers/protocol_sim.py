@@ -39,6 +39,7 @@ fresh identity with seq 0, stream stopped, uptime from zero).
 
 from __future__ import annotations
 
+import math
 import time
 import urllib.parse
 from typing import TYPE_CHECKING, Any
@@ -139,19 +140,16 @@ class Serial(VirtualLineSerial):
                 if key == "realtime":
                     self.realtime = _flag(value)
                 elif key == "pace":
-                    self.pace = float(value)
-                    if not self.pace > 0:
-                        raise ValueError("pace must be positive")
+                    self.pace = _number(key, value, 0.01, 1000.0)
                 elif key == "seed":
-                    opts.seed = int(value)
+                    opts.seed = int(_number(key, value, 0, 2**32 - 1, whole=True))
                 elif key == "rpm":
-                    opts.speed_rpm = float(value)
-                    if not opts.speed_rpm > 0:  # 0 must not fall back to the nominal speed
-                        raise ValueError("rpm must be positive")
+                    # 0 must not fall back to the nominal speed: at least 1 rpm
+                    opts.speed_rpm = _number(key, value, 1.0, 200_000.0)
                 elif key == "motor":
                     opts.motor_on = _flag(value)
                 elif key == "noise":
-                    opts.noise_scale = float(value)
+                    opts.noise_scale = _number(key, value, 0.0, 1000.0)
                 elif key == "unbalance":
                     if value not in ("as-found", "none"):
                         raise ValueError("unbalance must be as-found or none")
@@ -171,7 +169,7 @@ class Serial(VirtualLineSerial):
                         raise ValueError("floating must be 1 or 2 (the pickup input left open)")
                     opts.floating_channel = int(value) - 1
                 elif key == "tick0":
-                    opts.tick0 = int(value) % (1 << 32)
+                    opts.tick0 = int(_number(key, value, 0, 2**32 - 1, whole=True))
                 else:
                     raise ValueError(f"unknown option {key!r}")
         except ValueError as exc:
@@ -259,3 +257,15 @@ def _flag(value: str) -> bool:
     if low in ("0", "off", "no", "false"):
         return False
     raise ValueError(f"expected 1/0 or on/off, got {value!r}")
+
+
+def _number(key: str, value: str, low: float, high: float, whole: bool = False) -> float:
+    """A URL option's number, finite and within ``low..high`` (nan, inf or 1e300 would
+    reach the physics as a ZeroDivisionError, an endless loop or an overflow)."""
+    try:
+        number = int(value) if whole else float(value)
+    except ValueError:
+        raise ValueError(f"{key} must be a number, got {value!r}") from None
+    if not (math.isfinite(number) and low <= number <= high):
+        raise ValueError(f"{key} must be {low:.12g}..{high:.12g}, got {value!r}")
+    return float(number)

@@ -176,11 +176,11 @@ def header_problem(metadata: dict[str, Any]) -> str | None:
             name = pickup.get("name", "")
             if not isinstance(name, str) or len(name) > 100:
                 return f"pickups[{n}].name: not a name of up to 100 characters"
-            for key, low, high in (("sensitivity_v_per_g", 1e-9, 1e6), ("zero_g_v", -100, 100),
-                                   ("delay_us", -1e6, 1e6)):
+            for key, bottom, top in (("sensitivity_v_per_g", 1e-9, 1e6), ("zero_g_v", -100, 100),
+                                     ("delay_us", -1e6, 1e6)):
                 value = pickup.get(key)
-                if value is not None and not _finite(value, low, high):
-                    return f"pickups[{n}].{key}: {value!r} is not a number {low:g}..{high:g}"
+                if value is not None and not _finite(value, bottom, top):
+                    return f"pickups[{n}].{key}: {value!r} is not a number {bottom:g}..{top:g}"
             corners = pickup.get("lowpass_corners_hz", [])
             if not isinstance(corners, list) or len(corners) > 8 or not all(
                     _finite(c, 1e-3, 1e9) for c in corners):

@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import json
 import sys
+from typing import Any
 
 from trueturn.cli.common import open_capture
 from trueturn.link.codec import LinkEvent, StreamDecoder
@@ -32,6 +33,7 @@ def run(args: argparse.Namespace) -> int:
         decoder = StreamDecoder(from_board=not reader.plain)
         for chunk in reader.chunks():
             for item in decoder.feed(chunk):
+                record: dict[str, Any]
                 if isinstance(item, LinkEvent):
                     record = {"event": item.kind, "detail": item.detail, "count": item.count}
                 else:

@@ -353,7 +353,8 @@ def model_from_saved(saved: Sequence[SavedCoefficient], planes: Sequence[Plane],
     ----------
     .. [1] Influence-coefficient method: E. L. Thearle, "Dynamic Balancing of Rotating
        Machinery in the Field", Trans. ASME (1934), two-plane field balancing, here
-       generalised by least squares (from memory). Saved coefficients for a one-run trim: common practice, no source.
+       generalised by least squares (from memory). Saved coefficients for a one-run
+       trim: common practice, no source.
     """
     saved_speeds = sorted({s.speed_rpm for s in saved}, key=lambda v: -1 if v is None else v)
     channels, rows = [], []

@@ -144,7 +144,8 @@ def tolerance_verdict(inp: BalanceInput, solution: Solution, u_per_gmm: float) -
     References
     ----------
     .. [1] ISO 21940-11:2016, clause 4 (bearing planes as tolerance planes) and clause 7
-       (allocation of ``U_per``, from memory); see :func:`trueturn.balance.iso21940.bearing_verdict`.
+       (allocation of ``U_per``, from memory); see
+       :func:`trueturn.balance.iso21940.bearing_verdict`.
     """
     tol = inp.tolerance
     assert tol is not None and solution.residual_now_gmm is not None

@@ -399,7 +399,8 @@ class LiveAnalyzer:
 
         References
         ----------
-        .. [1] protocol/SPEC.md (the messages, their counters and timebase; ours). Section 4.6 (status: totals since reset).
+        .. [1] protocol/SPEC.md (the messages, their counters and timebase; ours).
+           Section 4.6 (status: totals since reset).
         """
         if self._board_base is None or self._board_now is None:
             return {}

@@ -222,6 +222,12 @@ def format_table(result: Analysis) -> str:
             peaks = ", ".join(f"{p.hz:.1f} Hz {p.amplitude:.3g} [{_peak_label(p)}]"
                               for p in spec.peaks)
             lines.append(f"{spec.sensor} spectrum peaks ({spec.unit}): {peaks}")
+    if result.severity:
+        lines += ["", "overall severity (ISO 10816-1 Class I zones, boundaries from memory):"]
+        lines += [f"  - {describe(v.as_finding())}" for v in result.severity]
+    if result.unbalance:
+        lines += ["", f"is it unbalance? {describe(result.unbalance[0])}"]
+        lines += [f"  - {describe(f)}" for f in result.unbalance[1:]]
     if result.readings:
         bias = max(r.timing_bias_deg for r in result.readings)
         unresolved = max(1.0 / r.window_s for r in result.readings if r.window_s > 0) \

@@ -15,7 +15,16 @@ from typing import Any
 from trueturn.dsp.averaging import SteadinessLimits
 from trueturn.dsp.findings import Code, Finding, describe, unique
 from trueturn.dsp.meter import LiveAnalyzer, PickupReading
-from trueturn.dsp.spectrum import SpectrumPeak
+from trueturn.dsp.severity import (
+    BAND_HZ,
+    ZONE_BOUNDARIES_MM_S,
+    ZONES_SOURCE,
+    Severity,
+    band_velocity_rms,
+    pickup_severity,
+)
+from trueturn.dsp.spectrum import Spectrum, SpectrumPeak
+from trueturn.dsp.unbalance import pickup_evidence, verdict
 from trueturn.dsp.units import PickupProfile
 from trueturn.link.codec import LinkEvent, Message, StreamDecoder
 
@@ -59,6 +68,10 @@ class Analysis:
     warnings: tuple[str, ...]
     link: dict[str, Any]
     findings: tuple[Finding, ...] = ()  # the warnings as data, in the same order
+    #: overall severity per pickup (dsp/severity.py)
+    severity: tuple[Severity, ...] = ()
+    #: is it unbalance? the verdict first, then each pickup's evidence (dsp/unbalance.py)
+    unbalance: tuple[Finding, ...] = ()
 
     def to_json(self) -> dict[str, Any]:
         """The analysis as the JSON contract of ``trueturn analyze --json``.
@@ -69,7 +82,10 @@ class Analysis:
             ``speed_rpm``, ``pickups`` (amplitude in its ``unit``, phase and confidence in
             degrees, confidence radius in the unit, orders, noise and hum in volts), spectrum
             peaks (Hz, amplitude), ``confidence`` (what the 95 % circle covers), ``warnings``,
-            ``findings`` and the link counters; non-finite numbers as null.
+            ``findings``, the link counters, ``severity`` (per pickup: broadband velocity
+            RMS in mm/s and its zone, or null with ``refused``; ``severity_scale``: band,
+            boundaries and their source) and ``unbalance`` (``verdict`` and its coded
+            ``evidence``, each with words); non-finite numbers as null.
 
         References
         ----------
@@ -103,6 +119,20 @@ class Analysis:
             "confidence": CONFIDENCE_SCOPE,
             "warnings": list(self.warnings),
             "findings": [f.to_json() for f in self.findings],
+            "severity": [{"pickup": v.pickup, "velocity_rms_mm_s": num(v.velocity_rms_mm_s, 4),
+                          "zone": v.zone.value if v.zone else None,
+                          "refused": v.refused.value if v.refused else None}
+                         for v in self.severity],
+            "severity_scale": {"band_hz": list(BAND_HZ),
+                               "zone_boundaries_mm_s": dict(zip(("A/B", "B/C", "C/D"),
+                                                                ZONE_BOUNDARIES_MM_S,
+                                                                strict=True)),
+                               "source": ZONES_SOURCE},
+            "unbalance": None if not self.unbalance else {
+                "verdict": self.unbalance[0].code.value,
+                "words": describe(self.unbalance[0]),
+                "evidence": [{**f.to_json(), "words": describe(f)}
+                             for f in self.unbalance[1:]]},
             "link": self.link,
         }
 
@@ -165,12 +195,8 @@ def analyze_capture(raw: bytes | Iterable[bytes], revs: int | None = None,
     board = _BoardLosses()
     chunk = 1 << 16
     feed = meter.feed
-    if isinstance(raw, (bytes, bytearray, memoryview)):
-        whole = bytes(raw)  # bytes as they are; a bytearray or a view copied once
-        pieces: Iterable[bytes] = (whole[start:start + chunk]
-                                   for start in range(0, len(whole), chunk))
-    else:
-        pieces = raw
+    pieces: Iterable[bytes] = ((raw[start:start + chunk] for start in range(0, len(raw), chunk))
+                               if isinstance(raw, (bytes, bytearray, memoryview)) else raw)
     for piece in pieces:
         for item in decoder.feed(piece):
             if observe is not None:
@@ -202,7 +228,8 @@ def analyze_capture(raw: bytes | Iterable[bytes], revs: int | None = None,
         if meter.config is not None and meter.tach.revolutions:
             found.append(Finding(Code.NO_WHOLE_REVOLUTION))
     spectra = []
-    for ch, pickup_spectrum in enumerate(meter.spectra()):
+    full_spectra = meter.spectra()
+    for ch, pickup_spectrum in enumerate(full_spectra):
         if pickup_spectrum is not None:
             spectra.append(PickupPeaks(meter.profile(ch).name, meter.spectrum_unit(ch),
                                        pickup_spectrum.resolution_hz, pickup_spectrum.peaks))
@@ -215,8 +242,35 @@ def analyze_capture(raw: bytes | Iterable[bytes], revs: int | None = None,
     speed = float(meter.speeds_rpm().mean()) if meter.tach.revolutions and len(
         meter.speeds_rpm()) else math.nan
     found = unique(found)
+    severity, unbalance = _judge(meter, full_spectra, readings, speed)
     return Analysis(speed, readings, tuple(spectra), tuple(describe(f) for f in found),
-                    c.to_json(), tuple(found))
+                    c.to_json(), tuple(found), severity, unbalance)
+
+
+def _judge(meter: LiveAnalyzer, spectra: Sequence[Spectrum | None],
+           readings: Sequence[PickupReading], speed_rpm: float
+           ) -> tuple[tuple[Severity, ...], tuple[Finding, ...]]:
+    """Each pickup's severity and the unbalance verdict with its evidence (issue #22)."""
+    severity: list[Severity] = []
+    evidence: list[Finding] = []
+    by_name = {r.sensor: r for r in readings}
+    judged = 0
+    for ch, spec in enumerate(spectra):
+        if spec is None:
+            continue
+        name = meter.profile(ch).name
+        calibrated = meter.profile(ch).calibrated
+        severity.append(pickup_severity(name, spec.frequencies_hz,
+                                        spec.asd if calibrated else None, meter.rate_hz,
+                                        speed_rpm))
+        if not (math.isfinite(speed_rpm) and speed_rpm > 0) or meter.rate_hz / 2 < BAND_HZ[1]:
+            continue
+        reading = by_name.get(name)
+        evidence += pickup_evidence(name, spec.peaks,
+                                    band_velocity_rms(spec.frequencies_hz, spec.asd),
+                                    reading.findings if reading else None, speed_rpm / 60.0)
+        judged += 1
+    return tuple(severity), (verdict(evidence, judged), *evidence)
 
 
 class _BoardLosses:

@@ -56,6 +56,15 @@ class Code(str, Enum):
     PHASE_UNCERTAIN = "phase_uncertain"              # phase confidence above the aim
     NOT_ABOVE_SCATTER = "not_above_scatter"          # the 95 % circle covers the origin
     ORDER_ON_MAINS = "order_on_mains"                # an order too close to a hum frequency
+    # is it unbalance? (dsp/unbalance.py: evidence per pickup with ``ok``, then one verdict)
+    ONE_X_SHARE = "one_x_share"                      # 1x against the broadband velocity
+    PHASE_STEADINESS = "phase_steadiness"            # 1x phase steady within the run
+    TWO_X_RATIO = "two_x_ratio"                      # 2x against 1x (misalignment, looseness)
+    NONSYNC_PEAK = "nonsync_peak"                    # the strongest peak at no order
+    UNBALANCE_LIKELY = "unbalance_likely"            # every rule passed: balancing should help
+    BALANCING_MAY_NOT_HELP = "balancing_may_not_help"  # a rule failed: look elsewhere first
+    UNBALANCE_UNDECIDED = "unbalance_undecided"      # too little evidence to judge
+    SEVERITY = "severity"                            # broadband velocity and zone (severity.py)
 
 
 # The codes that are about the tach sensor itself.
@@ -235,7 +244,75 @@ def _sentence(f: Finding) -> str:
         what = f"{order}x" if order else "an order"
         return (f"{what} is too close to {_n(f, 'hum_hz'):g} Hz, a mains hum frequency: any "
                 "hum there adds to it (a slightly different speed separates them)")
+    if c in _UNBALANCE_CODES:
+        return _unbalance_sentence(f)
     raise ValueError(f"no words for finding {c!r}")  # pragma: no cover - every code has words
+
+
+_UNBALANCE_CODES = frozenset({Code.ONE_X_SHARE, Code.PHASE_STEADINESS, Code.TWO_X_RATIO,
+                              Code.NONSYNC_PEAK, Code.UNBALANCE_LIKELY,
+                              Code.BALANCING_MAY_NOT_HELP, Code.UNBALANCE_UNDECIDED,
+                              Code.SEVERITY})
+
+# What each evidence code means when its rule fails, for the verdict's sentence.
+_FAILED_RULE = {"one_x_share": "1x not dominant", "phase_steadiness": "1x phase not steady",
+                "two_x_ratio": "strong 2x", "nonsync_peak": "a strong peak at no shaft order"}
+# The meaning of each evaluation zone (ISO 20816-1 / ISO 10816-1, dsp/severity.py).
+_ZONE_MEANING = {"A": "as newly commissioned machines",
+                 "B": "acceptable for unrestricted long-term operation",
+                 "C": "unsatisfactory for long-term continuous operation",
+                 "D": "severe enough to cause damage"}
+_REFUSED = {"uncalibrated": "no sensitivity known, so no velocity from volts",
+            "band_not_sampled": "the sample rate does not reach 1000 Hz",
+            "speed_too_low": "below 600 rpm the 1x falls outside 10-1000 Hz"}
+
+
+def _pct(x: Any) -> str:
+    return "?" if x is None else f"{100.0 * x:.0f} %"
+
+
+def _unbalance_sentence(f: Finding) -> str:
+    """Words for the unbalance evidence and verdict (rules: dsp/unbalance.py)."""
+    c, ok = f.code, bool(_n(f, "ok", True))
+    if c is Code.ONE_X_SHARE:
+        head = f"1x is {_pct(_n(f, 'share', None))} of the overall vibration velocity"
+        if ok:
+            return f"{head} (unbalance-like: at least {_pct(_n(f, 'limit'))})"
+        return (f"{head} (below {_pct(_n(f, 'limit'))}): most of the vibration is not at 1x; "
+                "balancing alone may not help")
+    if c is Code.PHASE_STEADINESS:
+        if ok:
+            return "1x phase steady within the run (unbalance-like)"
+        return ("1x phase not steady within the run: a loose part, a rub or a beat with a "
+                "nearby speed; tighten and check first, balancing may not help")
+    if c is Code.TWO_X_RATIO:
+        head = f"2x is {_pct(_n(f, 'ratio'))} of 1x"
+        if ok:
+            return f"{head} (no strong 2x)"
+        return f"{head}: check alignment and mounting bolts first; balancing may not help"
+    if c is Code.NONSYNC_PEAK:
+        order = _n(f, "order", None)
+        where = f"{_n(f, 'hz'):.1f} Hz" + (f" ({order:.2f}x, no order)" if order else "")
+        head = f"the strongest peak at no shaft order, {where}, is {_pct(_n(f, 'ratio'))} of 1x"
+        if ok:
+            return head
+        return (f"{head}: bearings, belts or another machine shake it too; balancing may not "
+                "help with that")
+    if c is Code.UNBALANCE_LIKELY:
+        return ("looks like unbalance: 1x dominant and steady, no strong 2x or other peaks "
+                "(rules of the trade); balancing should help")
+    if c is Code.BALANCING_MAY_NOT_HELP:
+        return ("not only unbalance (" + ", ".join(
+            _FAILED_RULE.get(w, w) for w in _n(f, "because", [])) + "): find and fix that "
+            "cause first; balancing may not help")
+    if c is Code.SEVERITY:
+        zone = _n(f, "zone", None)
+        if zone is None:
+            return ("overall severity not given: "
+                    + _REFUSED.get(_n(f, "refused", ""), "cannot be measured"))
+        return (f"overall {_n(f, 'velocity_rms_mm_s'):.2f} mm/s rms (10-1000 Hz): zone {zone}, "
+                f"{_ZONE_MEANING.get(zone, '')}")
+    return "cannot judge whether this is unbalance (no spectrum or no 1x reading)"
 
 
 # A few plain words for the app's tach line (``describe(..., brief=True)``).

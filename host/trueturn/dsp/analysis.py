@@ -195,8 +195,12 @@ def analyze_capture(raw: bytes | Iterable[bytes], revs: int | None = None,
     board = _BoardLosses()
     chunk = 1 << 16
     feed = meter.feed
-    pieces: Iterable[bytes] = ((raw[start:start + chunk] for start in range(0, len(raw), chunk))
-                               if isinstance(raw, (bytes, bytearray, memoryview)) else raw)
+    if isinstance(raw, (bytes, bytearray, memoryview)):
+        whole = bytes(raw)  # bytes as they are; a bytearray or a view copied once
+        pieces: Iterable[bytes] = (whole[start:start + chunk]
+                                   for start in range(0, len(whole), chunk))
+    else:
+        pieces = raw
     for piece in pieces:
         for item in decoder.feed(piece):
             if observe is not None:

@@ -26,7 +26,7 @@ from textual.widgets import ContentSwitcher, Input, Static
 from trueturn.jobs.store import read_document
 from trueturn.link.catalogue import load_catalogue
 from trueturn.link.session import GreetPhase
-from trueturn.procedure.guide import HandsOn, Mode
+from trueturn.procedure.guide import HandsOn, Measure, Mode
 from trueturn.sim.scenario import scenario_dir
 from trueturn.ui.app import AppConfig, TrueturnApp
 from trueturn.ui.launch import scenario_profile
@@ -105,7 +105,10 @@ class FakeClock:
 async def press(app: TrueturnApp, pilot: Pilot, *keys: str) -> None:
     """Keys as the terminal would send them, posted with Textual's public ``post_message``
     and a short pause after each (``Pilot.press`` and ``Pilot.pause()`` wait for the app to
-    go idle, which this app, fed by its board thread, seldom is: minutes per test)."""
+    go idle, which this app, fed by its board thread, seldom is: minutes per test).
+
+    The pause does not promise the keys were handled (a loaded machine may take longer):
+    a test looks for their effect with :func:`wait_for`, never right after pressing."""
     for key in keys:
         app.post_message(events.Key(key, key if len(key) == 1 else None))
         await pilot.pause(0.02)
@@ -144,9 +147,17 @@ def drawn_panels(app: TrueturnApp) -> list[str]:
 
 
 async def through_hands_on_gates(app: TrueturnApp, pilot: Pilot, wait_s: float = 60.0) -> None:
-    """Wait for proven standstill, then tick the lock-out list, Enter, the done list, Enter."""
+    """Wait for proven standstill, then tick the lock-out list, Enter, the done list, Enter;
+    return once the run that follows is shown."""
     await wait_for(pilot, lambda: "Standstill proven" in screen_text(app), wait_s)
     await press(app, pilot, "space", "space", "enter", "space", "space", "space", "space", "enter")
+    await wait_for(pilot, lambda: app.procedure is not None
+                   and isinstance(app.procedure.step, Measure), 10)
+
+
+async def shows(app: TrueturnApp, pilot: Pilot, text: str) -> None:
+    """Wait until ``text`` is on the screen (the keys pressed before it were handled)."""
+    await wait_for(pilot, lambda: text in screen_text(app), 10)
 
 
 async def connect(app: TrueturnApp, pilot: Pilot) -> None:
@@ -199,7 +210,9 @@ async def follow_the_screens(app: TrueturnApp, pilot: Pilot, mode_key: str) -> i
             await key("enter")
             await wait_for(pilot, lambda: "Report:" in screen_text(app), 10)
             return keys
-        await pilot.pause(0.02)
+        # the keys were handled: the step moved on, or a gate refused and said why
+        await wait_for(pilot, lambda s=step: proc.step is not s or
+                       app.message.startswith("Refused"), 10)
     raise AssertionError("no verdict after 40 steps")
 
 
@@ -280,14 +293,14 @@ def test_confirm_while_the_rotor_turns_is_refused(tmp_path: Path) -> None:
             assert proc.step.kind == "hands-on" and proc.step.phase == "lockout"
             assert "Not at proven standstill" in screen_text(app)
             await press(app, pilot, "space", "space", "enter")
+            await shows(app, pilot, "Refused: the tach sees the rotor turning")
             assert proc.step.phase == "lockout"
-            assert "Refused: the tach sees the rotor turning" in screen_text(app)
             assert app.rig.masses()[2:] == []  # nothing was put on the rotor
             # Starting the motor outside a run is refused too.
             await press(app, pilot, "x")
             await wait_for(pilot, lambda: "Standstill proven" in screen_text(app))
             await press(app, pilot, "o")
-            assert "Refused" in screen_text(app)
+            await shows(app, pilot, "Refused: start the motor from a run step")
             await press(app, pilot, "q")
     asyncio.run(scenario())
 
@@ -301,12 +314,14 @@ def test_key_screens_by_their_text(tmp_path: Path) -> None:
             version = load_catalogue().protocol_version
             assert f"Protocol         v{version}" in text and "simulated board" in text
             await press(app, pilot, "c")
-            assert "manufacturer" in screen_text(app) and "licensed" in screen_text(app)
+            await shows(app, pilot, "manufacturer")
+            assert "licensed" in screen_text(app)
             await press(app, pilot, "escape")
             await press(app, pilot, "enter")
             await wait_for(pilot, lambda: app.bench is not None and app.bench.is_mounted)
             await wait_for(pilot, lambda: "Choose the procedure" in screen_text(app), 5)
             await press(app, pilot, "question_mark")
+            await shows(app, pilot, "The mouse works too")
             text = screen_text(app)
             for key, _ in KEYS:
                 assert key in text
@@ -386,9 +401,9 @@ def test_a_pulled_cable_is_reported_and_blocks_the_gates(tmp_path: Path) -> None
             await wait_for(pilot, lambda: "LINK LOST" in screen_text(app), 10)
             # No data, no standstill proof: the gate stays shut.
             await press(app, pilot, "space", "space", "enter")
+            await shows(app, pilot, "Refused: no fresh data from the board")
             proc = app.procedure
             assert proc is not None and proc.step.phase == "lockout"
-            assert "Refused: no fresh data from the board" in screen_text(app)
             await press(app, pilot, "q")
     asyncio.run(scenario())
 
@@ -406,9 +421,9 @@ def test_a_dark_tach_on_a_running_machine_is_a_tach_fault_on_screen(tmp_path: Pa
             await wait_for(pilot, lambda: "TACH FAULT" in screen_text(app), 30)
             assert "STANDSTILL" not in screen_text(app)
             await press(app, pilot, "space", "space", "enter")
+            await shows(app, pilot, "Refused: TACH FAULT")
             proc = app.procedure
             assert proc is not None and proc.ticked == set() and proc.step.phase == "lockout"
-            assert "Refused: TACH FAULT" in screen_text(app)
             await press(app, pilot, "q")
     asyncio.run(scenario())
 
@@ -426,10 +441,10 @@ def test_a_run_is_stopped_with_a_and_q_asks_first(tmp_path: Path) -> None:
             await press(app, pilot, "enter")  # forces confirmed: the motor starts
             await wait_for(pilot, lambda: "TURNING" in screen_text(app))
             await press(app, pilot, "q")  # mid-run: asks first
-            assert "press q again" in screen_text(app)
+            await shows(app, pilot, "press q again")
             await press(app, pilot, "a")
+            await shows(app, pilot, "Run stopped")
             assert proc.step.kind == "hands-on" and proc.runs == []
-            assert "Run stopped" in screen_text(app)
             job = read_document(app.keeper.path, "job")
             assert job.runs == [] and [e.kind for e in job.pending.events] == ["aborted"]
             # The inspection waits for standstill, then the same run comes again.
@@ -456,15 +471,16 @@ def test_a_board_gone_quiet_drops_the_ticks_and_shuts_the_gates(tmp_path: Path) 
             await wait_for(pilot, lambda: "Standstill proven" in screen_text(app), 60)
             await press(app, pilot, "space")
             proc = app.procedure
-            assert proc is not None and proc.ticked == {0}
+            await wait_for(pilot, lambda: proc is not None and proc.ticked == {0}, 10)
+            assert proc is not None
             board.hold()
             clock.now_s += 5.0
             await wait_for(pilot, lambda: "NO DATA" in widget_text(app, "status"), 5)
             await wait_for(pilot, lambda: "Ticks cleared" in screen_text(app), 5)
             assert proc.ticked == set() and "Standstill proven" not in screen_text(app)
             await press(app, pilot, "space", "space", "enter")
+            await shows(app, pilot, "Refused: no fresh data from the board")
             assert proc.ticked == set() and proc.step.phase == "lockout"
-            assert "Refused: no fresh data from the board" in screen_text(app)
             board.hold(False)  # data again: the same rotor, still at rest
             await through_hands_on_gates(app, pilot, 20)
             assert proc.step.kind == "run"

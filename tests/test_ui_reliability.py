@@ -109,7 +109,9 @@ def test_unplug_mid_run_keeps_the_job_and_reconnect_resumes_the_run(tmp_path: Pa
             assert job.status == "open" and len(job.runs) == 1
             assert app.keeper.workspace.resume_job(app.keeper.path).job_id == job.job_id
             await press(app, pilot, "enter")  # confirming does nothing but say why
-            assert proc.step.phase == "interrupted" and "press l" in screen_text(app)
+            await wait_for(pilot, lambda: "The run was interrupted: press l" in
+                           screen_text(app), 10)
+            assert proc.step.phase == "interrupted"
             # the reconnect key reopens the same port and the same run starts over
             said = said_by(app, "reconnected")
             await press(app, pilot, "l")

@@ -43,6 +43,7 @@ MAX_RUNS = 10
 GRADE = 6.3
 AS_FOUND_LOW, AS_FOUND_HIGH = 3.0, 12.0   # as-found unbalance per plane, in G 6.3 shares
 REL_NOISE, FLOOR_M_S2 = 0.01, 0.003
+CIRCLE95 = float(np.sqrt(-2.0 * np.log(0.05)))
 MASS_ERR, ANGLE_ERR_DEG = 0.02, 2.0
 TRIAL_MARGIN = 2.0
 
@@ -86,9 +87,12 @@ class Shop:
     def measure(self, extra: list[Mass] = ()) -> dict:
         out = {}
         for name, v in self.rotor.response_1x(self.speed, self.true_masses + list(extra)).items():
-            v = v + (REL_NOISE * abs(v) + FLOOR_M_S2) * complex(self.rng.normal(), self.rng.normal())
+            sigma = REL_NOISE * abs(v) + FLOOR_M_S2  # per component, like the meter's scatter
+            v = v + sigma * complex(self.rng.normal(), self.rng.normal())
             amp, phase = amplitude_phase(v)
-            out[name] = {"amp": amp, "phase_deg": phase}
+            # the 95 % circle the meter reports with every reading (dsp.averaging): a 2-D
+            # normal's radius holding 95 %, sqrt(-2 ln 0.05) = 2.448 sigma
+            out[name] = {"amp": amp, "phase_deg": phase, "confidence": CIRCLE95 * sigma}
         return out
 
     def true_1x(self) -> float:

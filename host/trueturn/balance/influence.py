@@ -117,6 +117,9 @@ class Solution:
     clipped: list[tuple[str, str]] = field(default_factory=list)
     #: the last run (the one the verdict is on) has a clipped reading: no PASS
     clipped_last_run: bool = False
+    #: the last run's residual vectors (g·mm, draws x planes) redrawn with every reading
+    #: moved within its 95 % circle: the verdict's uncertainty (None when unknown)
+    residual_now_draws_gmm: np.ndarray | None = None
 
 
 # ----------------------------------------------------------------------------- helpers
@@ -502,8 +505,10 @@ _Refit = Callable[[dict[tuple[int, str], complex] | None], tuple[np.ndarray, np.
 
 
 def _uncertainty(inp: BalanceInput, fit: _Refit, nominal: np.ndarray, weights: np.ndarray,
-                 limits: Sequence[float | None]) -> tuple[list[float], list[float]] | None:
-    """95 % half-widths of each correction's mass and angle, Monte Carlo over the readings'
+                 limits: Sequence[float | None], model: InfluenceModel,
+                 planes: Sequence[Plane]) -> tuple[list[float], list[float], np.ndarray] | None:
+    """95 % half-widths of each correction's mass and angle, and the last run's residual
+    unbalance vectors drawn alongside (draws x planes, g·mm), Monte Carlo over the readings'
     confidence circles (fixed seed, reproducible)."""
     sigma = {}
     for k, run in enumerate(inp.runs):
@@ -514,6 +519,8 @@ def _uncertainty(inp: BalanceInput, fit: _Refit, nominal: np.ndarray, weights: n
         return None
     rng = np.random.default_rng(20211)
     draws = []
+    residuals = []
+    last = len(inp.runs) - 1
     for _ in range(MONTE_CARLO_DRAWS):
         override: dict[tuple[int, str], complex] = {}
         for k, run in enumerate(inp.runs):
@@ -523,13 +530,16 @@ def _uncertainty(inp: BalanceInput, fit: _Refit, nominal: np.ndarray, weights: n
         r0, matrix = fit(override)
         c, _ = correction_for(r0, matrix, weights, limits)
         draws.append(c)
+        drawn = {name: override[(last, name)] for name in inp.runs[last].readings}
+        residuals.append(_residual_vectors(model.channels, matrix, drawn,
+                                           inp.runs[last].speed_rpm, planes, weights))
     d = np.array(draws)
     mass_pm = np.percentile(np.abs(np.abs(d) - np.abs(nominal)), 95, axis=0)
     radius95 = np.percentile(np.abs(d - nominal), 95, axis=0)
     ratio = np.clip(radius95 / np.maximum(np.abs(nominal), 1e-30), 0.0, 1.0)
     angle_pm = np.degrees(np.arcsin(ratio))
     angle_pm[radius95 >= np.abs(nominal)] = 180.0
-    return [float(v) for v in mass_pm], [float(v) for v in angle_pm]
+    return [float(v) for v in mass_pm], [float(v) for v in angle_pm], np.array(residuals)
 
 
 def _largest_confidence(inp: BalanceInput) -> dict[str, float]:
@@ -669,7 +679,8 @@ def solve_with_phase(inp: BalanceInput) -> Solution:
                         f"(without the limit it would be {abs(free[j]):.3g} g)")
     if not inp.influence:
         warnings += _trial_warnings(inp, r0, model)
-    pm = _uncertainty(inp, fit, c, weights, limits)
+    drawn = _uncertainty(inp, fit, c, weights, limits, model, planes)
+    pm = drawn[:2] if drawn is not None else None
     predicted = r0 + matrix @ c
     now = inp.runs[-1].masses
     keep = c - mass_vector(now, planes)
@@ -689,6 +700,7 @@ def solve_with_phase(inp: BalanceInput) -> Solution:
                                                                weights),
         clipped=clipped_readings(inp.runs),
         clipped_last_run=any(r.clipped for r in inp.runs[-1].readings.values()),
+        residual_now_draws_gmm=drawn[2] if drawn is not None else None,
     )
 
 
@@ -774,14 +786,24 @@ def residual_unbalance_vectors_gmm(model: InfluenceModel, run: Run, planes: Sequ
        Machinery in the Field", Trans. ASME (1934), two-plane field balancing, here
        generalised by least squares (from memory).
     """
-    groups = sorted({c.speed_rpm for c in model.channels}, key=lambda v: -1 if v is None else v)
-    g = _group_of(run.speed_rpm, groups)
-    rows = [c for c, ch in enumerate(model.channels) if ch.speed_rpm == g]
     w = np.ones(len(model.channels)) if channel_weights is None else channel_weights
-    y = np.array([run.readings[model.channels[c].sensor].vector for c in rows])
-    a = model.matrix[rows] * w[rows][:, None]
-    d, *_ = np.linalg.lstsq(a, -y * w[rows], rcond=None)
-    return [complex(-d[j] * p.radius_mm) for j, p in enumerate(planes)]
+    vectors = {name: r.vector for name, r in run.readings.items()}
+    return [complex(v) for v in _residual_vectors(model.channels, model.matrix, vectors,
+                                                  run.speed_rpm, planes, w)]
+
+
+def _residual_vectors(channels: Sequence[Channel], matrix: np.ndarray,
+                      vectors: dict[str, complex], speed_rpm: float | None,
+                      planes: Sequence[Plane], weights: np.ndarray) -> np.ndarray:
+    """Residual unbalance per plane (g·mm phasors) that explains a run's 1x ``vectors``
+    through ``matrix``: the weighted least-squares correction still needed, sign reversed."""
+    groups = sorted({c.speed_rpm for c in channels}, key=lambda v: -1 if v is None else v)
+    g = _group_of(speed_rpm, groups)
+    rows = [c for c, ch in enumerate(channels) if ch.speed_rpm == g]
+    y = np.array([vectors[channels[c].sensor] for c in rows])
+    a = matrix[rows] * weights[rows][:, None]
+    d, *_ = np.linalg.lstsq(a, -y * weights[rows], rcond=None)
+    return -d * np.array([p.radius_mm for p in planes])
 
 
 def trial_size_factor(before: dict[str, complex], after: dict[str, complex],

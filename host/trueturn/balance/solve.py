@@ -10,11 +10,14 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field, replace
 
+import numpy as np
+
 from trueturn.balance.amplitude_only import solve_amplitude_only
 from trueturn.balance.influence import Solution, solve_with_phase
 from trueturn.balance.iso21940 import (
     Verdict,
     VerdictFlag,
+    bearing_lever_arms,
     bearing_verdict,
     per_plane_permissible,
     permissible_unbalance_gmm,
@@ -149,18 +152,59 @@ def tolerance_verdict(inp: BalanceInput, solution: Solution, u_per_gmm: float) -
     """
     tol = inp.tolerance
     assert tol is not None and solution.residual_now_gmm is not None
+    draws = solution.residual_now_draws_gmm
     if inp.bearings and solution.residual_now_vector_gmm is not None:
         planes_mm: list[float] = []
         for p in inp.planes:
             assert p.axial_mm is not None  # parse_readings requires them with bearings
             planes_mm.append(p.axial_mm)
-        return bearing_verdict(solution.residual_now_vector_gmm, planes_mm,
-                               [b.axial_mm for b in inp.bearings], u_per_gmm, tol.cg_axial_mm,
-                               bearing_names=[b.name for b in inp.bearings],
-                               speed_rpm=tol.speed_rpm)
-    shares = per_plane_permissible(u_per_gmm, len(inp.planes), tol.plane_distance_mm,
-                                   tol.cg_from_first_plane_mm)
-    v = verdict(solution.residual_now_gmm, shares)
-    return Verdict(v.passed, v.residual_gmm, v.permissible_gmm,
-                   tuple(p.name for p in inp.planes), u_per_gmm=u_per_gmm,
-                   speed_rpm=tol.speed_rpm, flags=v.flags)
+        bearings_mm = [b.axial_mm for b in inp.bearings]
+        v = bearing_verdict(solution.residual_now_vector_gmm, planes_mm, bearings_mm,
+                            u_per_gmm, tol.cg_axial_mm,
+                            bearing_names=[b.name for b in inp.bearings],
+                            speed_rpm=tol.speed_rpm)
+        if draws is not None:
+            arms = np.array(bearing_lever_arms(planes_mm, bearings_mm))  # bearings x planes
+            draws = draws @ arms.T  # each draw referred to the bearings (linear statics)
+    else:
+        shares = per_plane_permissible(u_per_gmm, len(inp.planes), tol.plane_distance_mm,
+                                       tol.cg_from_first_plane_mm)
+        plain = verdict(solution.residual_now_gmm, shares)
+        v = Verdict(plain.passed, plain.residual_gmm, plain.permissible_gmm,
+                    tuple(p.name for p in inp.planes), u_per_gmm=u_per_gmm,
+                    speed_rpm=tol.speed_rpm, flags=plain.flags)
+    return guard_band(v, draws)
+
+
+def guard_band(v: Verdict, draws: np.ndarray | None) -> Verdict:
+    """The verdict with the residual's 95 % upper bound per tolerance plane; a pass on the
+    estimate whose bound reaches past a share becomes ``not_proven``.
+
+    Parameters
+    ----------
+    v : Verdict
+        The verdict on the residual estimate.
+    draws : numpy.ndarray or None
+        Residual vectors per tolerance plane (draws x planes, g·mm), the last run's readings
+        redrawn within their 95 % circles (and the coefficients refitted with them); None:
+        the uncertainty is not known and the verdict is left as it is.
+
+    Returns
+    -------
+    Verdict
+        With ``residual_upper_gmm`` (95th percentile of each plane's drawn magnitude, never
+        below the estimate) and, when a bound exceeds its share, ``not_proven``.
+
+    References
+    ----------
+    .. [1] ISO 14253-1:2017, decision rules for proving conformance with specifications:
+       conformance is proven when the measurement result with its expanded uncertainty lies
+       inside the specification zone (from memory).
+    """
+    if draws is None or len(draws) == 0:
+        return v
+    upper = np.maximum(np.percentile(np.abs(draws), 95, axis=0), np.asarray(v.residual_gmm))
+    v = replace(v, residual_upper_gmm=tuple(float(u) for u in upper))
+    if v.passed and any(u > p for u, p in zip(upper, v.permissible_gmm, strict=True)):
+        v = v.with_flags(VerdictFlag.NOT_PROVEN)
+    return v

@@ -165,6 +165,7 @@ def verdict_json(report: SolveReport) -> dict[str, Any]:
         "tolerance_planes": v.tolerance_planes.value, "labels": list(v.labels),
         "per_plane_gmm": [_r(x) for x in v.permissible_gmm],
         "residual_now_gmm": [_r(x) for x in v.residual_gmm], "pass": v.passed,
+        "residual_upper_95_gmm": [_r(x) for x in v.residual_upper_gmm] or None,
         "flags": [f.value for f in v.flags]}
     if v.tolerance_planes is TolerancePlanes.BEARINGS:
         out["per_bearing_gmm"] = out["residual_now_gmm"]
@@ -193,6 +194,9 @@ VERDICT_FLAG_TEXT = {
     VerdictFlag.INCONSISTENT: "the amplitudes do not fit one answer: no pass can be given",
     VerdictFlag.CLIPPED: "the last run has a clipped reading (it reads low): no pass can be "
                          "given; repeat it with the pickup's gain reduced",
+    VerdictFlag.NOT_PROVEN: "within on the estimate, but the residual's 95 % upper bound "
+                            "reaches past the allowance: not proven; a longer run (more "
+                            "revolutions) or a trim gives the margin",
 }
 
 
@@ -206,8 +210,10 @@ def verdict_text(report: SolveReport) -> list[str]:
     lines = [f"ISO 21940-11 residual of the last run, {where} (U_per {report.u_per_gmm:.4g} g·mm"
              f"{speed}):"]
     labels = v.labels or tuple(f"plane {i + 1}" for i in range(len(v.residual_gmm)))
-    for name, r, p in zip(labels, v.residual_gmm, v.permissible_gmm, strict=True):
-        lines.append(f"  {name:<14} {r:.4g} of {p:.4g} g·mm")
+    uppers = v.residual_upper_gmm or (None,) * len(v.residual_gmm)
+    for name, r, p, u in zip(labels, v.residual_gmm, v.permissible_gmm, uppers, strict=True):
+        bound = f" (95 % upper bound {u:.4g})" if u is not None else ""
+        lines.append(f"  {name:<14} {r:.4g} of {p:.4g} g·mm{bound}")
     if v.arrangement is not None:
         lines.append(f"  correction planes {v.arrangement.value} of the bearings")
     lines.append("  -> " + ("PASS" if v.passed else "not yet within tolerance"))

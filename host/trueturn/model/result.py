@@ -65,12 +65,15 @@ class VerdictFlag(str, Enum):
     WORSE_THAN_AS_FOUND = "worse_than_as_found"
     #: fewer planes corrected than the machine has: the whole rotor cannot be shown within
     PARTIAL_PLANES = "partial_planes"
+    #: the estimate is within, but the residual's 95 % upper bound reaches past the
+    #: allowance: conformance not proven (ISO 14253-1 decision rule, from memory)
+    NOT_PROVEN = "not_proven"
 
 
 #: flags that withhold a pass whatever the residuals say
 WITHHOLDING_FLAGS = frozenset({VerdictFlag.AMBIGUOUS, VerdictFlag.INCONSISTENT,
                                VerdictFlag.CLIPPED, VerdictFlag.WORSE_THAN_AS_FOUND,
-                               VerdictFlag.PARTIAL_PLANES})
+                               VerdictFlag.PARTIAL_PLANES, VerdictFlag.NOT_PROVEN})
 
 
 @dataclass(frozen=True)
@@ -82,7 +85,11 @@ class Verdict:
     ``residual_angle_deg`` is None per plane where only a magnitude is known; ``speed_rpm``
     is the maximum service speed the grade was judged at (None: not stated);
     ``planes_passed``: every residual within its share, before the flags that withhold a
-    pass; ``passed``: the verdict as given. ``worse_pickups``: pickups whose 1x grew since
+    pass; ``passed``: the verdict as given. A pass needs the residual's 95 % upper bound
+    (``residual_upper_gmm``, when known) within the share too: conformance is proven only
+    when the measured value and its uncertainty are inside the allowance (the decision rule
+    of ISO 14253-1, from memory), so a marginal rotor gets ``not_proven``, never a PASS
+    that the true residual would fail. ``worse_pickups``: pickups whose 1x grew since
     the as-found run (flag ``worse_than_as_found``).
     """
 
@@ -98,6 +105,8 @@ class Verdict:
     flags: tuple[VerdictFlag, ...] = ()
     grade_mm_s: float | None = None
     worse_pickups: tuple[str, ...] = ()
+    #: the residual's 95 % upper bound per tolerance plane, g·mm (empty: not known)
+    residual_upper_gmm: tuple[float, ...] = ()
 
     @property
     def planes_passed(self) -> bool:

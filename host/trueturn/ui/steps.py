@@ -415,8 +415,10 @@ class VerdictPanel(ProcedurePanel):
         where = "at the bearings" if v.at_bearings else "in the correction planes"
         lines = [f"{word}: ISO 21940-11, grade G {self.grade:g} at the maximum service speed "
                  f"{v.speed_rpm or self.service_rpm:.0f} rpm, judged {where}, {self.runs} runs"]
-        for label, res, per, _ in v.rows():
-            lines.append(f"  {label}: residual {res:.1f} g·mm, permissible {per:.1f} g·mm")
+        uppers = v.residual_upper_gmm or (None,) * len(v.residual_gmm)
+        for (label, res, per, _), upper in zip(v.rows(), uppers, strict=True):
+            bound = f" (95 % up to {upper:.1f})" if upper is not None else ""
+            lines.append(f"  {label}: residual {res:.1f} g·mm{bound}, permissible {per:.1f} g·mm")
         lines.append(verdict_note(v, self.service_rpm))
         for f in v.flags:
             style = "b red" if f in WITHHOLDING_FLAGS else "yellow"

@@ -66,6 +66,9 @@ VERDICT_FLAG_WORDS: dict[VerdictFlag, str] = {
                          "given",
     VerdictFlag.WORSE_THAN_AS_FOUND: "a pickup reads worse than as found (beyond both "
                                      "readings' 95 % circles): not passed",
+    VerdictFlag.NOT_PROVEN: "within on the estimate, but its 95 % upper bound reaches past "
+                            "the allowance: not proven; a trim (or a longer check run) gives "
+                            "the margin",
     VerdictFlag.PARTIAL_PLANES: "one plane of a multi-plane rotor was corrected: the other "
                                 "plane's residual is not measured, so the whole rotor cannot "
                                 "be shown within the grade; balance both planes (2)",

@@ -61,7 +61,7 @@ SPANS: dict[str, tuple[float, float, str, bool]] = {
     "mass_g": (0.0, 10_000.0, "g", True),
     "mass_g_or_zero": (0.0, 10_000.0, "g", False),
     "angle_deg": (-360.0, 360.0, "degrees", False),
-    "radius_mm": (0.0, 5_000.0, "mm", True),
+    "radius_mm": (1.0, 5_000.0, "mm", False),
     "speed_rpm": (1.0, 200_000.0, "rpm", False),
     "rotor_mass_kg": (0.001, 100_000.0, "kg", False),
     "drill_mm": (0.1, 100.0, "mm", False),

@@ -458,7 +458,9 @@ def test_a_board_gone_quiet_drops_the_ticks_and_shuts_the_gates(tmp_path: Path) 
     # The port stays open but nothing arrives (a hung board or hub): standstill cannot be
     # proven without fresh data (procedure.standstill: data older than 1 s of host time is
     # stale; common practice, no source), so the ticks already given are dropped and Space
-    # is refused until data flow again. The host clock is the test's: it moves 5 s at once.
+    # is refused until data flow again. The host clock is the test's: it moves 2 s at once
+    # (stale after 1 s; a lost link only after ui.session.LINK_SILENCE_S, 3 s:
+    # tests/test_ui_hardening.py).
     clock = FakeClock()
 
     async def scenario() -> None:
@@ -474,7 +476,7 @@ def test_a_board_gone_quiet_drops_the_ticks_and_shuts_the_gates(tmp_path: Path) 
             await wait_for(pilot, lambda: proc is not None and proc.ticked == {0}, 10)
             assert proc is not None
             board.hold()
-            clock.now_s += 5.0
+            clock.now_s += 2.0
             await wait_for(pilot, lambda: "NO DATA" in widget_text(app, "status"), 5)
             await wait_for(pilot, lambda: "Ticks cleared" in screen_text(app), 5)
             assert proc.ticked == set() and "Standstill proven" not in screen_text(app)

@@ -339,6 +339,11 @@ class TrueturnApp(App):
                 if not worker.is_cancelled:  # not a port we closed ourselves on quit
                     self.post_message(LinkLost(str(exc)))
                 return
+            silence = None if handled else self.session.silence()
+            if silence is not None:  # the port is open but the board says nothing
+                if not worker.is_cancelled:
+                    self.post_message(LinkLost(silence))
+                return
             # Sleep a little every time: a fast virtual rig must not starve the screen.
             time.sleep(0.0 if handled else 0.003)
 

@@ -30,6 +30,11 @@ from trueturn.ui.meter import MeterAdapter, MeterView
 #: The catalogue's board_ids in words (emu:// runs the board's own firmware: it says atmega328p)
 BOARD_WORDS = {"atmega328p": "ATmega328P board", "simulated": "simulated board"}
 MOTION_JUDGE_S = 0.2  # board seconds between two judgements of the pickups' motion
+#: A streaming board sends samples every few milliseconds; nothing at all for this long (host
+#: clock) with the port still open is a lost link (a hung board, a stalled USB hub or
+#: adapter): the same bound as ``trueturn record`` (cmd_record.STALL_TIMEOUT_S). Standstill
+#: evidence goes stale long before (procedure.standstill: 1 s).
+LINK_SILENCE_S = 3.0
 
 #: a monotonic host clock in seconds (the freshness of the board's data is judged on it)
 Clock = Callable[[], float]
@@ -126,6 +131,8 @@ class LinkSession:
         self._events: list[str] = []
         self._status: dict[str, int] = {}
         self._streaming = False
+        self._heard_s: float | None = None  # host time of the last message (while streaming)
+        self._clock = clock
         self.restarts = 0
 
     @classmethod
@@ -182,7 +189,19 @@ class LinkSession:
             raise LinkProblem(str(exc)) from None
         with self._state:
             self._use_config(config)
+        self._heard_s = self._clock()
         self._streaming = True
+
+    def silence(self) -> str | None:
+        """Why the link counts as lost although the port is open: nothing heard from the
+        streaming board for :data:`LINK_SILENCE_S` of host time; None while it talks."""
+        if not self._streaming or self._heard_s is None:
+            return None
+        quiet_s = self._clock() - self._heard_s
+        if quiet_s <= LINK_SILENCE_S:
+            return None
+        return (f"nothing from the board on {self.url} for {quiet_s:.0f} s with the port "
+                "open (a hung board, a stalled USB hub or adapter)")
 
     def _configure_and_start(self) -> dict[str, Any]:
         assert self.identity is not None and self.board is not None
@@ -266,6 +285,8 @@ class LinkSession:
             raise LinkProblem(f"the link to {self.url} was lost: {exc}") from None
         with self._state:
             handled, restarted = self._handle_items(items)
+        if items:
+            self._heard_s = self._clock()
         if restarted:
             self._restart_after_reset()
         return handled

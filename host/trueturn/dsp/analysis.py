@@ -270,9 +270,11 @@ def _judge(meter: LiveAnalyzer, spectra: Sequence[Spectrum | None],
         if not (math.isfinite(speed_rpm) and speed_rpm > 0) or meter.rate_hz / 2 < BAND_HZ[1]:
             continue
         reading = by_name.get(name)
+        if reading is None:
+            continue  # no 1x reading at this pickup: nothing to judge it by
         evidence += pickup_evidence(name, spec.peaks,
                                     band_velocity_rms(spec.frequencies_hz, spec.asd),
-                                    reading.findings if reading else None, speed_rpm / 60.0)
+                                    reading.findings, speed_rpm / 60.0)
         judged += 1
     return tuple(severity), (verdict(evidence, judged), *evidence)
 

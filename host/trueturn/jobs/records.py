@@ -103,6 +103,45 @@ class Event:
     detail: str = ""
 
 
+#: The codes of the unbalance evidence and verdict (dsp/findings.py Code values).
+EvidenceCode = Literal["one_x_share", "phase_steadiness", "two_x_ratio", "nonsync_peak"]
+VerdictCode = Literal["unbalance_likely", "balancing_may_not_help", "unbalance_undecided"]
+
+
+@dataclass
+class SeverityEntry:
+    """A pickup's overall severity in one run (dsp/severity.py): broadband velocity RMS
+    over 10-1000 Hz and its zone (ISO 10816-1 Class I boundaries, from memory); both None
+    with ``refused`` when the instrument could not give them."""
+
+    sensor: str = field(metadata=limits(nonempty=True))
+    velocity_rms_mm_s: float | None = field(default=None, metadata=limits(minimum=0))
+    zone: Literal["A", "B", "C", "D"] | None = None
+    refused: Literal["uncalibrated", "band_not_sampled", "speed_too_low"] | None = None
+
+
+@dataclass
+class EvidenceEntry:
+    """One rule of the unbalance judgement at one pickup (dsp/unbalance.py): passed or not,
+    with its number (``share`` of 1x in the overall, or ``ratio`` to 1x) and, for a
+    non-synchronous peak, its frequency and order."""
+
+    code: EvidenceCode
+    sensor: str = field(metadata=limits(nonempty=True))
+    ok: bool = True
+    value: float | None = None
+    hz: float | None = None
+    order: float | None = None
+
+
+@dataclass
+class UnbalanceEntry:
+    """Is it unbalance? The verdict of one run and the evidence behind it."""
+
+    verdict: VerdictCode
+    evidence: list[EvidenceEntry] = field(default_factory=list)
+
+
 @dataclass
 class RunEntry:
     """One measurement run, with what was done on the rotor before it and computed after it."""
@@ -118,6 +157,10 @@ class RunEntry:
     corrections: list[CorrectionEntry] = field(default_factory=list)
     events: list[Event] = field(default_factory=list)
     notes: str = ""
+    #: overall severity per pickup and the unbalance judgement (issue #22); optional, so
+    #: version-2 files without them read as before (no migration)
+    severity: list[SeverityEntry] = field(default_factory=list)
+    unbalance: UnbalanceEntry | None = None
 
     def reading(self, sensor: str) -> Reading | None:
         """This run's reading of ``sensor``, or None."""

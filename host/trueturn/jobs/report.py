@@ -13,6 +13,7 @@ rotor turning clockwise has its angles drawn counter-clockwise. Positions are nu
 from __future__ import annotations
 
 import csv
+import dataclasses
 import html
 import io
 import math
@@ -20,6 +21,9 @@ import re
 from collections.abc import Iterable, Sequence
 
 from trueturn.angles import Rotation, screen_xy
+from trueturn.dsp.findings import describe
+from trueturn.dsp.severity import ZONES_SOURCE
+from trueturn.jobs.condition import evidence_finding, severity_finding, verdict_finding
 from trueturn.jobs.profiles import (
     MachineProfile,
     convert_vibration,
@@ -280,6 +284,48 @@ def before_after_rows(job: JobRecord) -> list[list[str]]:
     return rows
 
 
+def condition_rows(job: JobRecord) -> list[list[str]]:
+    """Per run that kept them: each pickup's overall severity and zone, and the verdict."""
+    rows: list[list[str]] = []
+    for run in job.runs:
+        verdict = describe(verdict_finding(run.unbalance)) if run.unbalance else "-"
+        for k, entry in enumerate(run.severity):
+            if entry.velocity_rms_mm_s is None:
+                level = "-"
+                zone = describe(dataclasses.replace(severity_finding(entry), pickup=None))
+            else:
+                level, zone = f"{entry.velocity_rms_mm_s:.2f} mm/s rms", entry.zone or "-"
+            rows.append([str(run.index) if k == 0 else "", entry.sensor, level, zone,
+                         verdict if k == 0 else ""])
+        if not run.severity and run.unbalance:
+            rows.append([str(run.index), "-", "-", "-", verdict])
+    return rows
+
+
+def condition_notes(job: JobRecord) -> list[str]:
+    """The as-found run's failing evidence, and a balanced rotor left in a bad zone, in words."""
+    notes: list[str] = []
+    first = next((r for r in job.runs if r.unbalance is not None), None)
+    if first is not None and first.unbalance is not None:
+        failing = [describe(evidence_finding(e)) for e in first.unbalance.evidence if not e.ok]
+        if failing:
+            notes.append(f"Run {first.index}: " + "; ".join(failing) + ".")
+    last = job.runs[-1] if job.runs else None
+    bad = [e for e in last.severity if e.zone in ("C", "D")] if last else []
+    if last is not None and bad and job.verdict is not None and job.verdict.passed:
+        where = ", ".join(f"{e.sensor} zone {e.zone}" for e in bad)
+        notes.append(f"The rotor meets its balance grade, but after run {last.index} the machine "
+                     f"still vibrates too much overall ({where}): the rest is not unbalance; "
+                     "check mounting, alignment, belts and bearings.")
+    elif last is not None and bad:
+        where = ", ".join(f"{e.sensor} zone {e.zone}" for e in bad)
+        notes.append(f"After run {last.index} the overall vibration is in a bad zone ({where}).")
+    return notes
+
+
+CONDITION_HEADER = ["Run", "Pickup", "Overall (10-1000 Hz)", "Zone", "Is it unbalance?"]
+
+
 def run_rows(job: JobRecord) -> tuple[list[str], list[list[str]]]:
     """One row per run; a pickup's unit goes in its column header when all its runs share it."""
     sensors = [p.name for p in job.machine.pickups]
@@ -498,6 +544,12 @@ def html_report(job: JobRecord, generated: str = "") -> str:
     parts += ['<h2>Before and after</h2>',
               _html_table(["Pickup", "Before", "Phase", "After", "Phase", "Change"],
                           before_after_rows(job), "before-after")]
+    rows = condition_rows(job)
+    if rows:
+        parts += ['<h2>Machine condition</h2>', _html_table(CONDITION_HEADER, rows, "condition"),
+                  *[f'<p class="note">{_e(n)}</p>' for n in condition_notes(job)],
+                  f'<p class="note">Zones: {_e(ZONES_SOURCE)}. The unbalance judgement follows '
+                  'rules of the trade (common practice, no source).</p>']
     figures = []
     if job.runs:
         for pickup in m.pickups:
@@ -589,6 +641,12 @@ def markdown_report(job: JobRecord, generated: str = "") -> str:
     out += ["## Before and after", "",
             _md_table(["Pickup", "Before", "Phase", "After", "Phase", "Change"],
                       before_after_rows(job)), ""]
+    rows = condition_rows(job)
+    if rows:
+        out += ["## Machine condition", "", _md_table(CONDITION_HEADER, rows), "",
+                *[f"{_md_text(n)}\n" for n in condition_notes(job)],
+                f"Zones: {_md_text(ZONES_SOURCE)}. The unbalance judgement follows rules of the "
+                "trade (common practice, no source).", ""]
     header, rows = run_rows(job)
     out += ["## Runs", "", _md_table(header, rows), ""]
     out += ["## Corrections and parts", ""]

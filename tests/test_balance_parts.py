@@ -147,7 +147,7 @@ def test_cli_have_g_against_the_grade():
 @pytest.mark.parametrize(("argv", "needle"), [
     (["--have-g", "0.5", "--positions", "6"], "--radius-mm"),
     (["--have-g", "0.5", "--radius-mm", "50"], "positions"),
-    (["--have-g", "-0.5", "--positions", "6", "--radius-mm", "50"], "greater than 0"),
+    (["--have-g", "-0.5", "--positions", "6", "--radius-mm", "50"], "above 0"),
     (["--have-g", "0.5", "--positions", "6", "--radius-mm", "50", "--stack", "0"], "stack"),
     (["--stack", "2", "--positions", "6"], "--have-g"),
     (["--have-g", "0.5", "--positions", "6", "--radius-mm", "50", "--grade", "6.3"],

@@ -66,7 +66,8 @@ def _per_channel(text: str | None, what: str, positive: bool = True) -> list[flo
 
 def _profiles(args: argparse.Namespace, metadata: dict[str, Any]) -> list[PickupProfile]:
     """Pickup profiles from the capture metadata (``pickups``), overridden by options."""
-    stored = metadata.get("pickups") if isinstance(metadata.get("pickups"), list) else []
+    pickups = metadata.get("pickups")
+    stored: list[Any] = pickups if isinstance(pickups, list) else []
     sens = _per_channel(args.sensitivity_v_per_g, "--sensitivity-v-per-g")
     corners = _per_channel(args.lowpass_hz, "--lowpass-hz")
     names = args.names.split(",") if args.names else []
@@ -141,20 +142,23 @@ class _Watch:
         header = metadata.get("identity")
         if isinstance(header, dict):
             self.identities.append(header)
-        self.tick_hz = header.get("tick_hz") if isinstance(header, dict) else None
-        self.start = self.first = self.end = None
+        self.tick_hz: Any = header.get("tick_hz") if isinstance(header, dict) else None
+        self.start: int | None = None
+        self.first: int | None = None
+        self.end: int | None = None
         self.period = 0
 
     def __call__(self, item: Message | LinkEvent) -> None:
         if not isinstance(item, Message):
             return
         if item.name == "samples":
-            if self.first is None or item["start_tick"] != self.start:
-                self.start, self.first = item["start_tick"], item["first_index"]
-                self.period = item["period_ticks"]
-            self.end = item["first_index"] + len(item["samples"])
+            v = item.values
+            if self.first is None or v["start_tick"] != self.start:
+                self.start, self.first = int(v["start_tick"]), int(v["first_index"])
+                self.period = int(v["period_ticks"])
+            self.end = int(v["first_index"]) + len(v["samples"])
         elif item.name == "identity":
-            self.tick_hz = item["tick_hz"]
+            self.tick_hz = item.values["tick_hz"]
             if len(self.identities) < 8:
                 self.identities.append(item.values)
 

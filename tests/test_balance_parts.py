@@ -89,6 +89,57 @@ def test_random_small_cases_match_exhaustive_search():
             _exhaustive(mass_g, angle_deg, positions, parts, stack), abs=1e-9)
 
 
+def _exhaustive_enough(mass_g, angle_deg, positions_deg, parts_g, stack, enough_g):
+    """(parts used, residual) of the best assignment under the good-enough rule: the fewest
+    parts leaving at most enough_g (then the least residual); else the least residual."""
+    target = mass_g * np.exp(1j * np.radians(angle_deg))
+    units = np.exp(1j * np.radians(np.asarray(positions_deg, dtype=float)))
+    n = len(positions_deg)
+    results = []
+    for assignment in itertools.product(range(n + 1), repeat=len(parts_g)):
+        counts = np.bincount(assignment, minlength=n + 1)
+        if (counts[:n] > stack).any():
+            continue
+        placed = sum(m * units[j] for m, j in zip(parts_g, assignment, strict=True) if j < n)
+        results.append((int(counts[:n].sum()), float(abs(target - placed))))
+    within = [r for r in results if r[1] <= enough_g + 1e-9]
+    if within:
+        fewest = min(u for u, _ in within)
+        return fewest, min(r for u, r in within if u == fewest)
+    return None, min(r for _, r in results)
+
+
+def test_good_enough_takes_the_fewest_parts_matching_exhaustive_search():
+    # reference: exhaustive enumeration under the same rule, 40 random kits (fixed seed)
+    rng = np.random.default_rng(2022)
+    for _ in range(40):
+        n = int(rng.integers(3, 6))
+        positions = list(equally_spaced_deg(n, float(rng.uniform(0, 90))))
+        parts = rng.choice([0.3, 0.5, 0.5, 1.0, 2.0], int(rng.integers(2, 6))).tolist()
+        stack = int(rng.integers(1, 3))
+        mass_g, angle_deg = float(rng.uniform(0.5, 4)), float(rng.uniform(0, 360))
+        enough_g = float(rng.uniform(0.05, 1.0))
+        fit = best_combination(mass_g, angle_deg, positions, parts, stack, enough_g=enough_g)
+        used = sum(len(u.masses_g) for u in fit.uses)
+        want_used, want_residual = _exhaustive_enough(mass_g, angle_deg, positions, parts,
+                                                      stack, enough_g)
+        assert fit.proven_best
+        assert fit.residual_g == pytest.approx(want_residual, abs=1e-9)
+        if want_used is not None:
+            assert used == want_used and fit.residual_g <= enough_g + 1e-9
+
+
+def test_cli_within_gmm_uses_fewer_parts_than_the_least_residual():
+    argv = ["split", "--mass-g", "7.7", "--angle-deg", "77", "--positions", "12",
+            "--radius-mm", "40", "--have-g", "0.5", "0.5", "1", "1", "2", "2", "5", "--stack",
+            "3", "--json"]
+    least = json.loads(run_cli(argv)[1])
+    enough = json.loads(run_cli([*argv, "--within-gmm", "20"])[1])
+    count = lambda d: sum(len(p["masses_g"]) for p in d["parts"])  # noqa: E731
+    assert enough["residual_gmm"] <= 20 and enough["within_gmm"] == 20
+    assert count(enough) < count(least) and least["residual_gmm"] <= enough["residual_gmm"]
+
+
 def test_ties_go_to_fewer_parts():
     # a correction of exactly 1 g at position 1: one 1 g part, not 0.5 + 0.5 (both exact)
     fit = best_combination(1.0, 0.0, [0.0, 120.0, 240.0], [0.5, 0.5, 1.0], stack=2)

@@ -6,7 +6,10 @@ plane's radius), the angles of the positions where parts can go, the masses of t
 the person owns (one entry per piece: two 0.5 g washers are ``[0.5, 0.5]``) and how many may
 stack on one position, :func:`best_combination` chooses for every part a position or the
 drawer so that the unbalance left, ``|correction - sum of the placed parts' vectors|``, is
-as small as it can be; among equally good choices the one with the fewest parts wins.
+as small as it can be; among equally good choices the one with the fewest parts wins. With
+``enough_g`` given (e.g. a share of the grade's allowance), the fewest parts that leave at
+most that much win instead (then the smaller residual among those), and only if no choice
+gets there, the smallest residual.
 
 Method: an exact depth-first **branch and bound** over the assignment of each part (largest
 first) to one of the positions or to the drawer -- a multiple-choice, capacity-limited
@@ -112,7 +115,8 @@ class PartsFit:
 
 def best_combination(mass_g: float, angle_deg: float, positions_deg: Sequence[float],
                      parts_g: Sequence[float], stack: int = 1,
-                     node_limit: int = DEFAULT_NODE_LIMIT) -> PartsFit:
+                     node_limit: int = DEFAULT_NODE_LIMIT,
+                     enough_g: float | None = None) -> PartsFit:
     """Place owned parts on the positions to leave the least unbalance.
 
     Parameters
@@ -129,6 +133,9 @@ def best_combination(mass_g: float, angle_deg: float, positions_deg: Sequence[fl
         Most parts one position takes (1: one part per hole or blade).
     node_limit : int, default DEFAULT_NODE_LIMIT
         Search nodes before the best so far is returned unproven.
+    enough_g : float or None, default None
+        A residual (g at the radius) that is good enough: the fewest parts that leave at
+        most this win; None minimises the residual alone.
 
     Returns
     -------
@@ -141,7 +148,8 @@ def best_combination(mass_g: float, angle_deg: float, positions_deg: Sequence[fl
     UserError
         When the correction or a part mass is not a finite number (parts greater than 0,
         the correction not below 0), an angle is not finite, no positions are given, more
-        than ``MAX_PARTS`` parts are given, or ``stack`` or ``node_limit`` is below 1.
+        than ``MAX_PARTS`` parts are given, ``stack`` or ``node_limit`` is below 1, or
+        ``enough_g`` is negative or not finite.
 
     Notes
     -----
@@ -149,7 +157,9 @@ def best_combination(mass_g: float, angle_deg: float, positions_deg: Sequence[fl
     angle_deg)`` over assignments ``p(k)`` of part ``k`` to a position or to none, at most
     ``stack`` parts per position; ties (within 1e-9 of the scale) go to fewer parts. Exact
     depth-first branch and bound, bound ``|r| - sum of the parts left`` (triangle
-    inequality), identical parts in non-decreasing choice order (symmetry breaking).
+    inequality), identical parts in non-decreasing choice order (symmetry breaking). With
+    ``enough_g``: once a combination within it is known, a branch is cut when it already
+    uses as many parts or when its bound cannot reach ``enough_g``.
 
     References
     ----------
@@ -176,6 +186,9 @@ def best_combination(mass_g: float, angle_deg: float, positions_deg: Sequence[fl
         raise UserError(f"stack must be at least 1 part per position, got {stack}")
     if node_limit < 1:
         raise UserError(f"node limit must be at least 1, got {node_limit}")
+    if enough_g is not None and not 0 <= enough_g < math.inf:
+        raise UserError(f"a good-enough residual must be a finite number not below 0, "
+                        f"got {enough_g:g}")
 
     parts = sorted((float(m) for m in parts_g), reverse=True)
     n_pos = len(positions_deg)
@@ -192,11 +205,21 @@ def best_combination(mass_g: float, angle_deg: float, positions_deg: Sequence[fl
     nodes = 0
     stopped = False
 
+    def fits(size: float) -> bool:
+        return enough_g is not None and size <= enough_g + tol
+
+    def better(size: float, used: int) -> bool:
+        if fits(size) != fits(best[0]):
+            return fits(size)
+        if fits(size):  # both good enough: fewer parts, then the smaller residual
+            return used < best[1] or (used == best[1] and size < best[0] - tol)
+        return size < best[0] - tol or (size <= best[0] + tol and used < best[1])
+
     def visit(k: int, residual: complex, used: int) -> None:
         nonlocal nodes, stopped
         nodes += 1
         size = abs(residual)
-        if size < best[0] - tol or (size <= best[0] + tol and used < best[1]):
+        if better(size, used):
             best[0], best[1] = size, used
             best_choice[:] = choice
         if k == len(parts) or size <= tol:
@@ -205,7 +228,11 @@ def best_combination(mass_g: float, angle_deg: float, positions_deg: Sequence[fl
             stopped = True
             return
         m = parts[k]
-        if size - m - left_after[k] > best[0] + tol:
+        reach = size - m - left_after[k]  # the least residual any branch below can leave
+        if fits(best[0]):
+            if used >= best[1] or not fits(reach):
+                return  # more parts, or never good enough
+        elif reach > best[0] + tol:
             return  # even all parts left laid straight against the residual fall short
         lowest = choice[k - 1] if k > 0 and parts[k - 1] == m else 0
         options = [(abs(residual - m * units[j]), j) for j in range(lowest, n_pos)

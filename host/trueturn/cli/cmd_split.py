@@ -29,6 +29,17 @@ def _mass_at(text: str) -> tuple[float, float]:
         raise argparse.ArgumentTypeError(f"{text!r}: {exc}") from None
 
 
+def _gmm(text: str) -> float:
+    """A residual unbalance in g·mm: finite, 0 ... 1e9 (the cap ``grade`` uses)."""
+    try:
+        value = float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"expected g·mm, got {text!r}") from None
+    if not 0.0 <= value <= 1e9:
+        raise argparse.ArgumentTypeError(f"must be a number from 0 to 1e9 g·mm, got {text}")
+    return value
+
+
 def add_parser(sub: argparse._SubParsersAction) -> None:
     parser = sub.add_parser(
         "split", help="split a correction onto the rotor's positions",
@@ -72,6 +83,9 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     have.add_argument("--planes", type=int, choices=(1, 2), default=1,
                       help="correction planes of the rotor: 2 gives this plane half of U_per "
                            "(default 1)")
+    have.add_argument("--within-gmm", type=_gmm, metavar="U",
+                      help="good enough: use the fewest parts that leave at most U g·mm "
+                           "(default: the least unbalance, whatever the number of parts)")
     have.add_argument("--machine", metavar="NAME",
                       help="take the positions, radius, owned parts (correction_parts) and "
                            "grade from this machine profile; options given here win")
@@ -149,7 +163,8 @@ def run(args: argparse.Namespace) -> int:
             raise UserError(f"{option}: angles are -360..360 degrees from the reference mark, "
                             f"against rotation; got {value:g}")
     if args.have_g is None:
-        for flag in ("stack", "radius_mm", "grade", "speed_rpm", "rotor_mass_kg"):
+        for flag in ("stack", "radius_mm", "grade", "speed_rpm", "rotor_mass_kg",
+                     "within_gmm"):
             if getattr(args, flag) is not None:
                 raise UserError(f"--{flag.replace('_', '-')} goes with --have-g (the parts "
                                 "you own)")
@@ -233,12 +248,14 @@ def _run_have(args: argparse.Namespace, mass_g: float, angle_deg: float,
     if stack < 1:
         raise UserError(f"--stack must be at least 1 part per position, got {stack}")
     allowed = _allowed_gmm(args)
-    fit: PartsFit = best_combination(mass_g, angle_deg, positions, args.have_g, stack)
+    enough_g = None if args.within_gmm is None else args.within_gmm / args.radius_mm
+    fit: PartsFit = best_combination(mass_g, angle_deg, positions, args.have_g, stack,
+                                     enough_g=enough_g)
     residual_gmm = fit.residual_gmm(args.radius_mm)
     out: dict[str, Any] = {
         "mode": "parts", "method": "branch and bound, exact unless proven_best is false",
         "correction": {"mass_g": round(mass_g, 6), "angle_deg": round(angle_deg, 3)},
-        "stack": stack, "radius_mm": args.radius_mm,
+        "stack": stack, "radius_mm": args.radius_mm, "within_gmm": args.within_gmm,
         "parts": [{"position": u.number, "angle_deg": round(u.angle_deg, 3),
                    "masses_g": list(u.masses_g), "mass_g": round(u.mass_g, 6)}
                   for u in fit.uses],

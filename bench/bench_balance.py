@@ -36,7 +36,7 @@ from trueturn.balance.iso21940 import (  # noqa: E402
     refer_to_bearings,
 )
 from trueturn.balance.trial_mass import size_trial_mass  # noqa: E402
-from trueturn.sim import CorrectionPlane, Mass, Pickup, RigidRotor, Support  # noqa: E402
+from trueturn.sim import CorrectionPlane, Mass, PickupMount, RigidRotor, Support  # noqa: E402
 
 ROTORS = 200
 MAX_RUNS = 10
@@ -65,7 +65,7 @@ def random_rotor(rng: np.random.Generator) -> tuple[RigidRotor, float]:
         bearings=[Support(-span / 2, k, k * 0.8, c, c), Support(span / 2, k * 1.1, k * 0.9, c, c)],
         planes=[CorrectionPlane("left", -span / 2 + inset, radius),
                 CorrectionPlane("right", span / 2 - inset, radius)],
-        pickups=[Pickup("inboard", 0, 90.0), Pickup("outboard", 1, 90.0)],
+        pickups=[PickupMount("inboard", 0, 90.0), PickupMount("outboard", 1, 90.0)],
         nonlinearity=rng.uniform(0.005, 0.03),
     )
     return rotor, speed

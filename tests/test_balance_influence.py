@@ -212,13 +212,13 @@ def test_three_planes_on_a_rigid_rotor_are_refused_as_singular():
     # physics: a rigid rotor responds only to the resultant force and moment of the
     # unbalance, so three planes cannot be told apart (rank 2); the engine must say so
     from balance_sim_helpers import readings
-    from trueturn.sim import CorrectionPlane, Mass, Pickup
+    from trueturn.sim import CorrectionPlane, Mass, PickupMount
     from trueturn.sim.scenario import load_scenario
     sc = load_scenario("jointer-head")
     rotor = sc.rotor
     rotor.nonlinearity = 0.0
     rotor.planes.append(CorrectionPlane("middle", 0.0, 30.0))
-    rotor.pickups += [Pickup("h0", 0, 0.0), Pickup("h1", 1, 0.0)]   # 4 pickups >= 3 planes
+    rotor.pickups += [PickupMount("h0", 0, 0.0), PickupMount("h1", 1, 0.0)]   # 4 pickups >= 3 planes
     rotor.__post_init__()
     runs = []
     for added in ([], *[[Mass(p.name, 2.0, 0.0)] for p in rotor.planes]):

@@ -27,7 +27,7 @@ PROTOCOL_DEFINITION = {"trueturn.link.catalogue", "trueturn.link.codec"}
 IO_LAYERS = {"link", "sim", "jobs", "ui", "cli"}
 IO_LIBRARIES = {"textual", "serial", "yaml", "socket", "subprocess"}
 MODEL_NOUNS = {"Reading", "PlacedMass", "Correction", "Verdict", "Run", "RunKind",
-               "MassKind", "Bearing", "SafetyEvent", "Phasor", "Plane"}
+               "MassKind", "Bearing", "SafetyEvent", "Phasor", "Plane", "PlaneLayout", "Pickup"}
 
 
 def _modules() -> list[tuple[str, Path, ast.Module]]:

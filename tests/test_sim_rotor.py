@@ -12,7 +12,7 @@ from trueturn.angles import amplitude_phase, angle_difference_deg
 from trueturn.sim.rotor import (
     CorrectionPlane,
     Mass,
-    Pickup,
+    PickupMount,
     RigidRotor,
     Support,
     rpm_to_rad_s,
@@ -27,7 +27,7 @@ def symmetric_rotor(k: float = 2e5, c: float = 60.0, mass_kg: float = 5.0) -> Ri
         mass_kg=mass_kg, transverse_inertia_kg_m2=0.02, polar_inertia_kg_m2=0.0,
         centre_of_mass_axial_mm=0.0, bearings=bearing,
         planes=[CorrectionPlane("mid", 0.0, 80.0)],
-        pickups=[Pickup("h0", 0, 0.0), Pickup("v1", 1, 90.0)],
+        pickups=[PickupMount("h0", 0, 0.0), PickupMount("v1", 1, 90.0)],
     )
 
 
@@ -77,7 +77,7 @@ def test_phase_follows_heavy_spot_below_resonance(angle_deg: float) -> None:
     rotor = RigidRotor(
         mass_kg=5.0, transverse_inertia_kg_m2=0.02, polar_inertia_kg_m2=0.0,
         centre_of_mass_axial_mm=0.0, bearings=stiff.bearings, planes=stiff.planes,
-        pickups=[Pickup("p", 0, 30.0)], tach_direction_deg=10.0)
+        pickups=[PickupMount("p", 0, 30.0)], tach_direction_deg=10.0)
     _, phase = amplitude_phase(rotor.response_1x(600.0, [Mass("mid", 2.0, angle_deg)])["p"])
     assert angle_difference_deg(phase, angle_deg + 30.0 - 10.0 + 180.0) == pytest.approx(0.0, abs=0.05)
 
@@ -108,7 +108,7 @@ def general_rotor(nonlinearity: float = 0.0) -> RigidRotor:
         centre_of_mass_axial_mm=40.0,
         bearings=[Support(0.0, 3e5, 1.5e5, 80.0, 50.0), Support(150.0, 2e5, 4e5, 40.0, 90.0)],
         planes=[CorrectionPlane("left", -60.0, 75.0), CorrectionPlane("right", 210.0, 75.0)],
-        pickups=[Pickup("A", 0, 0.0), Pickup("B", 1, 60.0)],
+        pickups=[PickupMount("A", 0, 0.0), PickupMount("B", 1, 60.0)],
         nonlinearity=nonlinearity, tach_direction_deg=25.0,
     )
 

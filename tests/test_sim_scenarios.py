@@ -39,14 +39,14 @@ def test_scenarios_have_the_features_the_issue_asks_for() -> None:
     # Induction motor: below synchronous speed by the slip (3600 rpm for 2 poles at 60 Hz).
     assert 3400 < grinder.speed_rpm < 3600
     fan = load_scenario("shop-fan")
-    assert len(fan.rotor.planes) == 1 and fan.layouts["blades"].positions == 6
-    assert fan.layouts["blades"].angles_deg() == [0, 60, 120, 180, 240, 300]
+    assert len(fan.rotor.planes) == 1 and fan.balancing_planes["blades"].layout.positions == 6
+    assert fan.balancing_planes["blades"].position_angles_deg == (0, 60, 120, 180, 240, 300)
     lathe = load_scenario("lathe-faceplate")
     assert lathe.motor.kind == "variable" and lathe.motor.speed_range_rpm == (600, 1500)
     assert lathe.motor.mains_hz == 50
     jointer = load_scenario("jointer-head")
     assert jointer.motor.pulley_ratio != 1 and len(jointer.rotor.planes) == 2
-    assert all(lay.positions == 4 for lay in jointer.layouts.values())
+    assert all(p.layout.positions == 4 for p in jointer.balancing_planes.values())
     assert any(t.order is not None and not float(t.order).is_integer()
                for t in jointer.signals.tones)  # the belt: a non-synchronous component
 

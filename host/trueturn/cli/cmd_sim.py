@@ -84,8 +84,8 @@ def run_describe(args: argparse.Namespace) -> int:
     m = sc.motor
     print(f"speed {args.rpm or sc.speed_rpm:.1f} rpm, {m.kind} drive, mains {m.mains_hz:g} Hz")
     for p in sc.rotor.planes:
-        lay = sc.layouts[p.name]
-        where = (f"{lay.positions} fixed positions from {lay.first_position_deg:g} deg"
+        lay = sc.balancing_planes[p.name].layout
+        where = (f"{lay.positions} fixed positions from {lay.offset_deg:g} deg"
                  if lay.positions else "any angle")
         print(f"plane {p.name}: at {p.axial_mm:g} mm, radius {p.radius_mm:g} mm, {where}")
     print("exact steady 1x (as-found unbalance, rising tach edge):")

@@ -15,7 +15,7 @@ from trueturn.angles import Rotation
 from trueturn.constants import MM_PER_INCH
 from trueturn.model.fields import limits
 from trueturn.model.mass import OwnedParts
-from trueturn.model.rotor import Bearing, Plane
+from trueturn.model.rotor import Bearing, Pickup, Plane
 from trueturn.model.rotor import PlaneLayout as PlaneLayout  # the profile's planes use it
 
 MassUnit = Literal["g", "oz"]
@@ -34,18 +34,6 @@ class Units:
     mass: MassUnit = "g"
     length: LengthUnit = "mm"
     vibration: VelocityUnit = "mm/s"
-
-
-@dataclass
-class Pickup:
-    """A vibration pickup (accelerometer) and how it is mounted."""
-
-    name: str = field(metadata=limits(nonempty=True))
-    sensitivity_mv_per_g: float = field(metadata=limits(above=0))
-    zero_offset_mv: float = 0.0
-    mounting: str = ""
-    direction: Literal["horizontal", "vertical", "axial", "other"] = "horizontal"
-    near_plane: str | None = None
 
 
 @dataclass

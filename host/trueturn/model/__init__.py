@@ -16,7 +16,7 @@ from trueturn.model.result import (
     Verdict,
     VerdictFlag,
 )
-from trueturn.model.rotor import Bearing, Plane
+from trueturn.model.rotor import Bearing, Pickup, Plane, PlaneLayout
 from trueturn.model.run import Run, RunKind, SafetyEvent
 
 __all__ = [
@@ -24,9 +24,11 @@ __all__ = [
     "Correction",
     "MassKind",
     "Phasor",
+    "Pickup",
     "PlacedMass",
     "Plane",
     "PlaneArrangement",
+    "PlaneLayout",
     "Reading",
     "Run",
     "RunKind",

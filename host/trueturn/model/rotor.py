@@ -70,3 +70,17 @@ class Bearing:
 
     name: str = field(metadata=limits(nonempty=True))
     axial_mm: float = 0.0
+
+
+@dataclass(frozen=True)
+class Pickup:
+    """A vibration pickup (accelerometer): its sensitivity and zero-g output (from the
+    module's datasheet or the flip calibration, hardware/CALIBRATION.md) and how it is
+    mounted; the ``name`` keys its readings everywhere."""
+
+    name: str = field(metadata=limits(nonempty=True))
+    sensitivity_mv_per_g: float = field(metadata=limits(above=0))
+    zero_offset_mv: float = 0.0
+    mounting: str = ""
+    direction: Literal["horizontal", "vertical", "axial", "other"] = "horizontal"
+    near_plane: str | None = None

@@ -6,9 +6,9 @@
 * :mod:`trueturn.sim.spec`: exact 1x in board units, and ``signal_spec`` for the emulator.
 """
 
-from trueturn.sim.rotor import CorrectionPlane, Mass, Pickup, RigidRotor, Support
+from trueturn.sim.rotor import CorrectionPlane, Mass, PickupMount, RigidRotor, Support
 from trueturn.sim.scenario import Scenario, list_scenarios, load_scenario
 from trueturn.sim.spec import Exact1x, describe, exact_1x, signal_spec
 
-__all__ = ["CorrectionPlane", "Support", "Exact1x", "Mass", "Pickup", "RigidRotor", "Scenario",
+__all__ = ["CorrectionPlane", "Support", "Exact1x", "Mass", "PickupMount", "RigidRotor", "Scenario",
            "describe", "exact_1x", "list_scenarios", "load_scenario", "signal_spec"]

@@ -234,7 +234,7 @@ class VirtualBoard:
     def set_masses(self, masses: list[Mass]) -> None:
         """Replace all added weights."""
         for m in masses:
-            if m.plane not in self.scenario.layouts:
+            if m.plane not in self.scenario.balancing_planes:
                 self._bad_plane(m.plane)
         with self.lock:
             self._added = list(masses)
@@ -308,7 +308,7 @@ class VirtualBoard:
 
     def _bad_plane(self, plane: str) -> None:
         raise ValueError(f"no correction plane named {plane!r}; planes are "
-                         f"{', '.join(self.scenario.layouts)}")
+                         f"{', '.join(self.scenario.balancing_planes)}")
 
     # --- byte interface ----------------------------------------------------------------------
 

@@ -67,7 +67,7 @@ class CorrectionPlane:
 
 
 @dataclass(frozen=True)
-class Pickup:
+class PickupMount:
     """An accelerometer on bearing ``bearing`` sensing along ``direction_deg`` (0 = horizontal)."""
 
     name: str
@@ -101,7 +101,7 @@ class RigidRotor:
     centre_of_mass_axial_mm: float
     bearings: list[Support]
     planes: list[CorrectionPlane]
-    pickups: list[Pickup]
+    pickups: list[PickupMount]
     nonlinearity: float = 0.0
     tach_direction_deg: float = 0.0
     _plane_index: dict[str, int] = field(init=False, repr=False, compare=False)

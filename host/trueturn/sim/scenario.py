@@ -16,14 +16,14 @@ import numpy as np
 
 from trueturn.errors import UserError
 from trueturn.files import read_text_file
-from trueturn.positions import equally_spaced_deg
+from trueturn.model import Plane, PlaneLayout
 from trueturn.schema import SchemaError, from_data, limits
 from trueturn.sim.rotor import (
     LARGEST_VALUE,
     STANDARD_GRAVITY_M_S2,
     CorrectionPlane,
     Mass,
-    Pickup,
+    PickupMount,
     RigidRotor,
     Support,
 )
@@ -121,23 +121,6 @@ class ShopSignals:
     tach_mark_width_deg: float = field(default=10.0, metadata=NON_NEGATIVE)
 
 
-@dataclass(frozen=True)
-class PlaneLayout:
-    """Where weights can go in a plane: anywhere (``positions`` 0) or ``positions`` fixed
-    spots (blades, tapped holes) evenly spaced from ``first_position_deg``."""
-
-    positions: int = 0
-    first_position_deg: float = 0.0
-    note: str = ""
-    removal: bool = False  # drilling/grinding material out is allowed in this plane
-
-    def angles_deg(self) -> list[float]:
-        """Angles of positions 1..N (entry k is position k + 1); empty when anywhere."""
-        if not self.positions:
-            return []
-        return list(equally_spaced_deg(self.positions, self.first_position_deg))
-
-
 @dataclass
 class Scenario:
     """One invented machine, ready for the virtual board and ``trueturn sim describe``."""
@@ -150,7 +133,10 @@ class Scenario:
     as_found: list[Mass]
     motor: Motor
     signals: ShopSignals
-    layouts: dict[str, PlaneLayout] = field(default_factory=dict)
+    #: the correction planes as a person balances them (model nouns): radius, axial
+    #: position, the positions a mass can go on, whether removal is allowed
+    balancing_planes: dict[str, Plane] = field(default_factory=dict)
+    plane_notes: dict[str, str] = field(default_factory=dict)
     source: str = ""
 
     @property
@@ -288,7 +274,7 @@ class ScenarioFile:
             centre_of_mass_axial_mm=r.centre_of_mass_axial_mm,
             bearings=[b.support() for b in self.bearings],
             planes=[CorrectionPlane(p.name, p.axial_mm, p.radius_mm) for p in self.planes],
-            pickups=[Pickup(p.name, p.bearing, p.direction_deg) for p in self.pickups],
+            pickups=[PickupMount(p.name, p.bearing, p.direction_deg) for p in self.pickups],
             nonlinearity=r.nonlinearity, tach_direction_deg=r.tach_direction_deg)
         name = self.name or fallback_name
         return Scenario(
@@ -297,8 +283,11 @@ class ScenarioFile:
             electrical=[PickupElectrical(p.sensitivity_v_per_g, p.zero_g_v) for p in self.pickups],
             as_found=list(self.as_found or []), motor=self.motor,
             signals=self.signals or ShopSignals(),
-            layouts={p.name: PlaneLayout(p.positions, p.first_position_deg, p.note, p.removal)
-                     for p in self.planes},
+            balancing_planes={p.name: Plane(
+                p.name, p.radius_mm, p.axial_mm,
+                PlaneLayout("equal", p.positions, p.first_position_deg) if p.positions
+                else PlaneLayout(), removal_allowed=p.removal) for p in self.planes},
+            plane_notes={p.name: p.note for p in self.planes},
             source=source)
 
 

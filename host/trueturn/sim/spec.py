@@ -146,8 +146,9 @@ def describe(scenario: Scenario, speed_rpm: float | None = None) -> dict[str, An
                   "nonlinearity": r.nonlinearity, "tach_direction_deg": r.tach_direction_deg,
                   "rigid_body_modes_hz": [round(f, 2) for f in r.natural_frequencies_hz()]},
         "bearings": [b.__dict__ for b in r.bearings],
-        "planes": [{**p.__dict__, "positions_deg": sc.layouts[p.name].angles_deg(),
-                    "note": sc.layouts[p.name].note} for p in r.planes],
+        "planes": [{**p.__dict__,
+                    "positions_deg": list(sc.balancing_planes[p.name].position_angles_deg),
+                    "note": sc.plane_notes.get(p.name, "")} for p in r.planes],
         "pickups": [{**p.__dict__, "channel": i, **sc.electrical[i].__dict__}
                     for i, p in enumerate(r.pickups)],
         "as_found": [m.__dict__ for m in sc.as_found],

@@ -6,7 +6,7 @@ from __future__ import annotations
 from typing import TYPE_CHECKING
 
 from trueturn.balance.readings import SavedCoefficient
-from trueturn.jobs.profiles import Bearing, MachineProfile, Pickup, Plane, PlaneLayout
+from trueturn.jobs.profiles import Bearing, MachineProfile, Pickup
 from trueturn.jobs.records import CoefficientSet
 from trueturn.positions import number_of, position_text
 from trueturn.procedure.guide import MassChange, Mode, Procedure, ProcedureSetup
@@ -26,15 +26,7 @@ def profile_from_scenario(scenario: Scenario) -> MachineProfile:
         low, high = motor.speed_range_rpm
     else:
         low, high = speed * 0.97, speed * 1.01
-    planes = []
-    for cp in scenario.rotor.planes:
-        layout = scenario.layouts.get(cp.name)
-        if layout is not None and layout.positions:
-            plane_layout = PlaneLayout("equal", layout.positions, layout.first_position_deg)
-        else:
-            plane_layout = PlaneLayout()
-        planes.append(Plane(cp.name, cp.radius_mm, cp.axial_mm, plane_layout,
-                            removal_allowed=bool(layout is not None and layout.removal)))
+    planes = [scenario.balancing_planes[cp.name] for cp in scenario.rotor.planes]
     pickups = [Pickup(p.name, e.sensitivity_v_per_g * 1000.0, e.zero_g_v * 1000.0,
                       direction="vertical" if abs(p.direction_deg - 90.0) < 1 else "horizontal")
                for p, e in zip(scenario.rotor.pickups, scenario.electrical, strict=False)]

@@ -1,4 +1,4 @@
-"""Field limits carried as dataclass metadata, so the one validator (``trueturn.jobs.schema``)
+"""Field limits carried as dataclass metadata, so the one validator (``trueturn.schema``)
 checks every noun of the model the same way when it is read from a file."""
 
 from __future__ import annotations

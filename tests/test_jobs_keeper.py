@@ -99,8 +99,10 @@ def _to_the_first_run(rig: Rig) -> None:
     raise AssertionError(f"no run step: {rig.proc.step}")
 
 
-def test_a_failed_save_leaves_the_job_file_and_the_job_as_they_were(
+def test_a_failed_save_leaves_the_file_and_keeps_every_step_in_memory(
         tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # issue #18 item 3: a full disk never loses a step: the file stays as it was (atomic
+    # save), the job in memory holds the run, and the next save writes the whole job
     rig = Rig("shop-fan", Mode.ONE_PLANE)
     job_file = tmp_path / "fan.yaml"
     keeper = JobKeeper(rig.profile, workspace=tmp_path / "ws", job_file=job_file)
@@ -117,15 +119,15 @@ def test_a_failed_save_leaves_the_job_file_and_the_job_as_they_were(
         raise UserError(f"cannot write {path}: No space left on device")
 
     monkeypatch.setattr(store, "atomic_write_text", disk_full)
-    with pytest.raises(UserError, match="No space left"):
-        rig.run()  # the run is measured; keeping it fails
-    run = rig.proc.runs[-1]
+    rig.run()  # the run is measured; the file cannot take it, the job in memory does
+    assert keeper.unsaved is not None and "No space left" in keeper.unsaved
     assert job_file.read_bytes() == before
-    assert keeper.job.runs == [] and keeper.job.pending is pending
-    assert keeper.job.pending.notes == NOTE and keeper.job.pending.confirmations
+    assert len(keeper.job.runs) == 1 and keeper.job.pending is None
+    with pytest.raises(UserError, match="No space left"):
+        keeper.save()
 
     monkeypatch.setattr(store, "atomic_write_text", real_write)
-    keeper.run(rig.proc, run)  # the app keeps it on the next try
+    assert keeper.save() == job_file and keeper.unsaved is None  # space freed: saved
     saved = read_document(job_file, "job")
     assert len(saved.runs) == 1 and saved.pending is None
     assert saved.runs[0].notes.startswith(NOTE)
@@ -134,6 +136,32 @@ def test_a_failed_save_leaves_the_job_file_and_the_job_as_they_were(
     kept = saved.runs[0].confirmations
     assert kept[:len(pending.confirmations)] == pending.confirmations
     assert len(kept) == len(rig.proc.confirmations) > len(pending.confirmations)
+
+
+def test_an_unwritable_workspace_keeps_the_job_in_memory_until_another_folder(
+        tmp_path: Path) -> None:
+    # issue #18 item 3: a file where the workspace folder should be
+    rig = Rig("shop-fan", Mode.ONE_PLANE)
+    blocked = tmp_path / "ws"
+    blocked.write_text("not a folder\n")
+    keeper = JobKeeper(rig.profile, workspace=blocked)
+    keeper.start(rig.proc)
+    assert keeper.job is not None and keeper.unsaved is not None
+    assert "cannot" in keeper.unsaved
+    follow(rig, [keeper], note_after_first_hands_on=NOTE)
+    _to_the_first_run(rig)
+    rig.run()
+    assert len(keeper.job.runs) == 1 and keeper.unsaved is not None
+    elsewhere = tmp_path / "elsewhere"
+    elsewhere.mkdir()
+    with pytest.raises(UserError, match="not a folder"):
+        keeper.move_to(tmp_path / "missing")
+    path = keeper.move_to(elsewhere)
+    assert keeper.unsaved is None and path.parent == elsewhere / "jobs"
+    saved = read_document(path, "job")
+    assert len(saved.runs) == 1 and saved.runs[0].notes.startswith(NOTE)
+    assert (elsewhere / "machines").is_dir()
+    assert blocked.read_text() == "not a folder\n"
 
 
 def test_a_new_job_file_never_overwrites_one(tmp_path: Path) -> None:

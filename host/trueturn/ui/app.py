@@ -47,6 +47,7 @@ from trueturn.ui.jobfile import JobKeeper
 from trueturn.ui.machine import setup_from_profile
 from trueturn.ui.machines import MachinePicker
 from trueturn.ui.rig import DemoRig
+from trueturn.ui.savefolder import SaveFolderPrompt
 from trueturn.ui.session import Clock, LinkProblem, LinkSession, SessionFactory, Snapshot
 from trueturn.ui.steps import GuideContext, GuideView
 from trueturn.ui.texts import CAUTIONS, keys_markup
@@ -223,6 +224,7 @@ class BenchScreen(Screen):
         Binding("o", "motor(True)", "Motor on", show=False),
         Binding("x", "motor(False)", "Motor off", show=False),
         Binding("l", "reconnect", "Reconnect", show=False),
+        Binding("w", "save_elsewhere", "Save elsewhere", show=False),
         Binding("c", "app.cautions", "Cautions"),
         Binding("question_mark", "app.keys", "Keys"),
         Binding("f1", "app.keys", "Keys", show=False),
@@ -279,6 +281,9 @@ class BenchScreen(Screen):
 
     def action_reconnect(self) -> None:
         self.trueturn.reconnect()
+
+    def action_save_elsewhere(self) -> None:
+        self.trueturn.save_elsewhere()
 
 
 class TrueturnApp(App):
@@ -436,14 +441,36 @@ class TrueturnApp(App):
     async def action_quit(self) -> None:
         proc = self.procedure
         mid_run = proc is not None and running(proc, RunPhase.RUNNING, RunPhase.STOPPED)
-        if mid_run and not self.quit_armed:
+        if (mid_run or self.keeper.unsaved) and not self.quit_armed:
             self.quit_armed = True
-            self.message = texts.QUIT_MID_RUN
+            self.message = texts.QUIT_UNSAVED if self.keeper.unsaved else texts.QUIT_MID_RUN
             self.tick()
             return
         self.workers.cancel_group(self, "link-pump")
         self.session.close()
-        self.exit()
+        self.exit(return_code=1 if self.keeper.unsaved else 0)  # a job not saved: not a success
+
+    def save_elsewhere(self) -> None:
+        """w: the workspace cannot be written; ask for another folder and save there."""
+        if not self.keeper.unsaved:
+            self.message = texts.NOTHING_TO_SAVE
+            self.tick()
+            return
+        here = (self.keeper.job_file.parent if self.keeper.job_file is not None
+                else self.keeper.workspace.root)  # Enter as it is: try the same place again
+        self.push_screen(SaveFolderPrompt(self.keeper.unsaved, here), self._save_in)
+
+    def _save_in(self, folder: Path | None) -> None:
+        if folder is None:
+            return
+        try:
+            path = self.keeper.move_to(folder)
+        except UserError as exc:
+            self.keeper.unsaved = str(exc)
+        else:
+            self.quit_armed = False
+            self.message = f"Saved in {path}."
+        self.tick()
 
     def action_cautions(self) -> None:
         self.push_screen(TextPage(CAUTIONS, "cautions"))
@@ -724,7 +751,9 @@ class TrueturnApp(App):
             tach_live=self.tach_live(snap), link_error=self.link_error,
             saved_trim=proc is None and self.saved_coefficients() is not None,
             job_path=self.keeper.path, report_path=self.keeper.report_path,
-            message=self.message, alarm=alarm)
+            message=(texts.not_saved(self.keeper.unsaved)
+                     if self.keeper.unsaved and not self.quit_armed else self.message),
+            alarm=alarm)
         bench.query_one("#guide-view", GuideView).show(proc, snap, ctx)
 
 

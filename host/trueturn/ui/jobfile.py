@@ -7,10 +7,12 @@ or in the file given with ``--job`` (the workspace holds it there)."""
 from __future__ import annotations
 
 import math
+import os
 from dataclasses import replace
 from pathlib import Path
 from typing import Literal
 
+from trueturn.errors import UserError
 from trueturn.jobs import records as rec
 from trueturn.jobs.profiles import MachineProfile
 from trueturn.jobs.report import html_report
@@ -23,8 +25,23 @@ from trueturn.procedure.standstill import StandstillEvidence
 from trueturn.ui.texts import VERDICT_FLAG_WORDS, verdict_note
 
 
+class _InMemory(Workspace):
+    """The same record-keeping as :class:`Workspace` (pending work folded into runs, the
+    rules of a closed job) with saves that write nothing: what the keeper falls back on when
+    the disk refuses, so the job in memory holds every step until it can be saved."""
+
+    def save_job(self, job: rec.JobRecord, path: str | os.PathLike[str] | None = None) -> Path:
+        job.updated = rec.now_iso()
+        return Path(path) if path is not None else self.path_of(job)
+
+
 class JobKeeper:
-    """One job per procedure: created at the start, updated after every step."""
+    """One job per procedure: created at the start, updated after every step.
+
+    Storage faults (a file where the workspace folder should be, a full disk, no
+    permission) never lose a step: the step is kept in the job in memory, ``unsaved`` says
+    why the file is behind, every later save writes the whole job again, and
+    :meth:`move_to` saves it in another folder the person chooses."""
 
     def __init__(self, profile: MachineProfile, workspace: Path | None = None,
                  job_file: Path | None = None) -> None:
@@ -34,20 +51,89 @@ class JobKeeper:
         self.job: rec.JobRecord | None = None
         self.path: Path | None = None
         self.report_path: Path | None = None
+        self.unsaved: str | None = None  # why the job file is behind the job in memory
         self._confirmed = 0
+
+    def _save(self, action: str, *args: object) -> Path | None:
+        """``Workspace.<action>(*args)``; if the disk refuses, the same in memory only, and
+        ``unsaved`` says why (the file stays as it was: the store rolls a failed save back)."""
+        try:
+            path: Path = getattr(self.workspace, action)(*args)
+        except UserError as exc:
+            getattr(_InMemory(self.workspace.root), action)(*args)
+            self.unsaved = str(exc)
+            return None
+        self.unsaved = None
+        return path
+
+    def save(self) -> Path:
+        """Save the whole job in memory where it belongs (after a storage fault was fixed);
+        one-line UserError if it still cannot be saved."""
+        if self.job is None:
+            raise UserError("no job yet: nothing to save")
+        if self.job_file is None:
+            self.workspace.save_machine(self.profile)
+        self.path = self.workspace.save_job(self.job, self._where())
+        if self.job.status == "closed":
+            self.report_path = self.path.with_suffix(".html")
+            atomic_write_text(self.report_path, html_report(self.job))
+        self.unsaved = None
+        return self.path
+
+    def _where(self) -> Path | None:
+        """The job's file when the person named one (``--job``), else the workspace's."""
+        return self.job_file
+
+    def move_to(self, folder: Path) -> Path:
+        """Save the job in memory (every step so far) in another folder: the workspace
+        there, or the same file name there for a ``--job`` file; one-line UserError if it
+        cannot be saved there either (the job stays in memory)."""
+        if self.job is None:
+            raise UserError("no job yet: nothing to save")
+        folder = Path(folder).expanduser()
+        here = self.job_file.parent if self.job_file is not None else self.workspace.root
+        if folder.resolve() == here.resolve():
+            return self.save()  # the same place again (space was freed): save there
+        if not folder.is_dir():
+            raise UserError(f"{folder} is not a folder")
+        workspace = Workspace(folder)
+        job_file = folder / self.job_file.name if self.job_file is not None else None
+        target = job_file or workspace.job_path(self.job.job_id)
+        if target.exists():
+            raise UserError(f"{target} exists: choose another folder (a file is never "
+                            "overwritten by another job)")
+        if job_file is None:
+            workspace.save_machine(self.profile)
+        path = workspace.save_job(self.job, job_file)
+        if self.job.status == "closed":
+            report = path.with_suffix(".html")
+            atomic_write_text(report, html_report(self.job))
+            self.report_path = report
+        self.workspace, self.job_file, self.path, self.unsaved = workspace, job_file, path, None
+        return path
 
     def start(self, proc: Procedure) -> None:
         method = {Mode.TWO_PLANE: "two-plane", Mode.SAVED_TRIM: "trim"}.get(
             proc.setup.mode, "single-plane")
         notes = ("amplitude-only procedure (four-run method)"
                  if proc.setup.mode is Mode.AMPLITUDE_ONLY else "")
-        if self.job_file is None:
-            self.workspace.save_machine(self.profile)
-        self.job = self.workspace.new_job(self.profile, method=method,
-                                          speed_rpm=proc.setup.speed_rpm, notes=notes,
-                                          path=self.job_file)
-        self.path = self.workspace.path_of(self.job)
         self._confirmed = 0
+        try:
+            if self.job_file is None:
+                self.workspace.save_machine(self.profile)
+            self.job = self.workspace.new_job(self.profile, method=method,
+                                              speed_rpm=proc.setup.speed_rpm, notes=notes,
+                                              path=self.job_file)
+        except UserError as exc:
+            if self.job_file is not None and self.job_file.exists():
+                raise  # a new job never overwrites a file: the person names another
+            self.job = _InMemory(self.workspace.root).new_job(
+                self.profile, method=method, speed_rpm=proc.setup.speed_rpm, notes=notes)
+            self.unsaved = str(exc)
+            self.path = self.job_file or self.workspace.job_path(self.job.job_id)
+            return
+        self.unsaved = None
+        self.path = self.workspace.path_of(self.job)
 
     def _new_confirmations(self, proc: Procedure) -> list[rec.Confirmation]:
         """The confirmations given since the last save, each with the standstill evidence
@@ -60,8 +146,9 @@ class JobKeeper:
             out.append(confirmation_record(text, t, ev))
         return out
 
-    def _kept(self, path: Path, confirmations: list[rec.Confirmation]) -> None:
-        self.path = path
+    def _kept(self, path: Path | None, confirmations: list[rec.Confirmation]) -> None:
+        """The confirmations are in the job (saved, or in memory while ``unsaved``)."""
+        self.path = path or self.path
         self._confirmed += len(confirmations)
 
     def hands_on(self, proc: Procedure, changes: tuple[MassChange, ...]) -> None:
@@ -84,7 +171,7 @@ class JobKeeper:
         confirmations = self._new_confirmations(proc)
         step = replace(pending, changes=[*pending.changes, *added],
                        confirmations=[*pending.confirmations, *confirmations])
-        self._kept(self.workspace.record_pending(self.job, step), confirmations)
+        self._kept(self._save("record_pending", self.job, step, self._where()), confirmations)
 
     def event(self, event: SafetyEvent) -> None:
         """A run stopped (alarm or by the person) is not kept, but its event is: saved at
@@ -94,7 +181,7 @@ class JobKeeper:
         pending = self.job.pending or rec.PendingStep()
         step = replace(pending, events=[*pending.events,
                                         rec.Event(rec.now_iso(), event.kind, event.detail)])
-        self.path = self.workspace.record_pending(self.job, step)
+        self.path = self._save("record_pending", self.job, step, self._where()) or self.path
 
     def run(self, proc: Procedure, run: Run) -> None:
         if self.job is None:
@@ -122,7 +209,7 @@ class JobKeeper:
                               label=run.label, confirmations=confirmations,
                               corrections=corrections, events=events,
                               notes="; ".join(run.forces_confirmed))
-        self._kept(self.workspace.append_run(self.job, record), confirmations)
+        self._kept(self._save("append_run", self.job, record, self._where()), confirmations)
 
     def _keep_coefficients(self, proc: Procedure) -> None:
         """Store the influence coefficients (refitted over every run) for later trims."""
@@ -138,7 +225,10 @@ class JobKeeper:
                                           entries, job_id=self.job.job_id,
                                           created=rec.now_iso())
         self.job.influence = coefficients
-        self.workspace.save_coefficients(self.profile.name, coefficients)
+        try:  # kept in the job too: a failure here loses nothing of the job
+            self.workspace.save_coefficients(self.profile.name, coefficients)
+        except UserError as exc:
+            self.unsaved = str(exc)
 
     def finish(self, proc: Procedure) -> Path | None:
         """Close the job with the verdict and write the HTML report beside it."""
@@ -154,9 +244,16 @@ class JobKeeper:
             verdict = rec.VerdictEntry(proc.setup.grade_mm_per_s, proc.setup.speed_rpm,
                                        len(self.job.runs), planes, v.passed, note=note)
         self._keep_coefficients(proc)
-        self.path = self.workspace.close_job(self.job, verdict)
-        self.report_path = self.path.with_suffix(".html")
-        atomic_write_text(self.report_path, html_report(self.job))
+        saved = self._save("close_job", self.job, verdict, self._where())
+        if saved is None:
+            return None
+        self.path = saved
+        try:
+            report = self.path.with_suffix(".html")
+            atomic_write_text(report, html_report(self.job))
+            self.report_path = report
+        except UserError as exc:
+            self.unsaved = f"the job is saved but not its report: {exc}"
         return self.path
 
 

@@ -20,8 +20,9 @@ def scenario_profile(name: str) -> MachineProfile:
 
 
 def _run(config: AppConfig) -> int:
-    TrueturnApp(config).run()
-    return 0
+    app = TrueturnApp(config)
+    app.run()
+    return app.return_code or 0  # 1: the job could not be saved, or the app failed
 
 
 def launch_sim(scenario: str, workspace: str | Path | None = None, pace: float = 1.0,

@@ -39,6 +39,7 @@ KEYS: list[tuple[str, str]] = [
     ("o", "Demo rig: switch the virtual motor on"),
     ("x", "Demo rig: switch the virtual motor off"),
     ("l", "Link lost: reconnect to the same port (the run starts over)"),
+    ("w", "Job not saved (disk full, workspace not writable): save it in another folder"),
     ("c", "Cautions (safety notes)"),
     ("? / F1", "This list of keys"),
     ("Escape", "Close this screen / go back"),
@@ -172,3 +173,15 @@ AS_ADDITION = "Correction as mass to add."
 REAL_MACHINE_SWITCH = "This is a real machine: use its own switch."
 MOTOR_FROM_RUN = "Refused: start the motor from a run step (confirm the forces)."
 TICKS_CLEARED = "Ticks cleared: standstill is no longer proven."
+
+
+# ---- storage faults (issue #18: the job is kept in memory until it can be saved) ---------
+def not_saved(why: str) -> str:
+    """The message while the job file is behind the job in memory."""
+    return (f"NOT SAVED: {why}. Every step is kept in memory: press w to save the job in "
+            "another folder.")
+
+
+QUIT_UNSAVED = ("The job is not saved: press w to save it in another folder, or q again to "
+                "quit without saving it.")
+NOTHING_TO_SAVE = "The job is saved: nothing to move."

@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import importlib
 import sys
+import warnings
 from collections.abc import Sequence
 
 from trueturn import __version__
@@ -30,6 +31,9 @@ COMMANDS: dict[str, tuple[str, str]] = {
     "ring": ("cmd_ring", "print a 1:1 angle ring for a rotor"),
     "sim": ("cmd_sim", "list and describe the simulated machines"),
 }
+
+
+APP_COMMANDS = {"demo", "ui"}  # the commands that open the app
 
 
 class _Parser(argparse.ArgumentParser):
@@ -70,7 +74,17 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser = build_parser(only=chosen or "")
     args = parser.parse_args(argv)
     try:
-        return int(args.run(args) or 0)
+        with warnings.catch_warnings():
+            # numpy's floating-point warnings (overflow, invalid value, division by zero) mean
+            # a number may be wrong: refuse in one line rather than print it (or the warning).
+            # Not around the app (its threads share the filters; it shows numbers itself).
+            if args.command not in APP_COMMANDS:
+                warnings.simplefilter("error", RuntimeWarning)
+            return int(args.run(args) or 0)
+    except RuntimeWarning as exc:
+        print(f"trueturn {args.command}: the numbers could not be computed "
+              f"({one_line(exc)}); check the values given", file=sys.stderr)
+        return 2
     except UserError as exc:
         print(f"trueturn {args.command}: {one_line(exc)}", file=sys.stderr)
         return 2

@@ -214,8 +214,12 @@ def build(folder: Path) -> list[Case]:
         "--grade", "6.3", "--residual-gmm", "1e300", "1")
     add("split --combine nan", "split", "--combine", "3@nan", "4@10", "--positions", "4")
     add("analyze --revs huge", "analyze", str(f / "noframes.cap"), "--revs", "100000000000")
-    add("analyze --sensitivity nan", "analyze", str(f / "noframes.cap"),
-        "--sensitivity-v-per-g", "nan")
+    for option, value in (("--sensitivity-v-per-g", "nan"), ("--sensitivity-v-per-g", "1e300"),
+                          ("--sensitivity-v-per-g", "1e-300"), ("--lowpass-hz", "1e300"),
+                          ("--lowpass-hz", "1e-300"), ("--lowpass-hz", "1,inf")):
+        add(f"analyze {option} {value}", "analyze", str(f / "noframes.cap"), option, value)
+    for rpm in ("1e300", "1e-300", "nan", "-inf"):
+        add(f"sim describe --rpm {rpm}", "sim", "describe", "bench-grinder", "--rpm", rpm)
 
     # virtual rigs with absurd options
     for option in ("noise=nan", "pace=inf", "pace=0", "rpm=1e300", "rpm=0", "seed=-1",

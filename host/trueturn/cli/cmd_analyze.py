@@ -52,15 +52,18 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     parser.set_defaults(run=run)
 
 
-def _per_channel(text: str | None, what: str, positive: bool = True) -> list[float]:
+def _per_channel(text: str | None, what: str, span: tuple[float, float]) -> list[float]:
+    """Comma-separated positive numbers within ``span`` (as the capture header's own)."""
     if not text:
         return []
     try:
         values = [float(v) for v in text.split(",")]
     except ValueError:
         raise UserError(f"{what} must be numbers separated by commas, got {text!r}") from None
-    if positive and any(not (v > 0 and math.isfinite(v)) for v in values):
+    if any(not (v > 0 and math.isfinite(v)) for v in values):
         raise UserError(f"{what} must be positive, got {text!r}")
+    if any(not span[0] <= v <= span[1] for v in values):
+        raise UserError(f"{what} must be {span[0]:g} to {span[1]:g}, got {text!r}")
     return values
 
 
@@ -68,8 +71,8 @@ def _profiles(args: argparse.Namespace, metadata: dict[str, Any]) -> list[Pickup
     """Pickup profiles from the capture metadata (``pickups``), overridden by options."""
     pickups = metadata.get("pickups")
     stored: list[Any] = pickups if isinstance(pickups, list) else []
-    sens = _per_channel(args.sensitivity_v_per_g, "--sensitivity-v-per-g")
-    corners = _per_channel(args.lowpass_hz, "--lowpass-hz")
+    sens = _per_channel(args.sensitivity_v_per_g, "--sensitivity-v-per-g", (1e-6, 1e3))
+    corners = _per_channel(args.lowpass_hz, "--lowpass-hz", (0.1, 1e6))
     names = args.names.split(",") if args.names else []
     count = max(len(stored), len(sens), len(corners), len(names), 2)
     out = []

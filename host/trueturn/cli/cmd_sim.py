@@ -65,8 +65,8 @@ def _check_rpm(sc: Scenario, rpm: float | None) -> None:
     if rpm is None:
         return
     rng = sc.motor.speed_range_rpm
-    if not rpm > 0:
-        raise UserError(f"--rpm must be positive, got {rpm:g}")
+    if not 1 <= rpm <= 200_000:  # cli.common.SPANS["speed_rpm"]; nan and inf refused too
+        raise UserError(f"--rpm must be 1 to 200000 rpm, got {rpm:g}")
     if rng is not None and not rng[0] <= rpm <= rng[1]:
         raise UserError(f"--rpm {rpm:g} is outside {sc.name}'s range {rng[0]:g}-{rng[1]:g} rpm")
 

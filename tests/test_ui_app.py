@@ -125,12 +125,12 @@ async def type_text(app: TrueturnApp, pilot: Pilot, text: str) -> None:
 
 
 async def wait_for(pilot: Pilot, condition, timeout_s: float = 60.0) -> None:  # type: ignore[no-untyped-def]
+    """Until ``condition()`` holds (looked at once before the first pause)."""
     deadline = time.monotonic() + timeout_s
-    while time.monotonic() < deadline:
+    while not condition():
+        if time.monotonic() > deadline:
+            raise AssertionError("timed out waiting for the app")
         await pilot.pause(0.05)
-        if condition():
-            return
-    raise AssertionError("timed out waiting for the app")
 
 
 def widget_text(app: TrueturnApp, widget_id: str) -> str:

@@ -36,6 +36,10 @@ from trueturn.dsp.spectrum import refine_peak_hz
 SENSOR_NOISE_DENSITY_G = 150e-6
 FLOOR_FACTOR = 2.0  # a still pickup sits at its floor; twice the floor is "near" it
 ABSOLUTE_LIMIT_G_RMS = 0.02  # above 20 mg rms broadband a pickup is never called quiet
+#: a pickup with more than 1 % of its samples at an ADC limit is stuck, clipped or unwired:
+#: a still, working accelerometer sits near its zero-g output, mid-range (common practice,
+#: no source); such a signal says nothing about motion, so it can never vouch for standstill
+RAIL_FRACTION_LIMIT = 0.01
 RUNNING_FRACTION = 0.25  # with a known running level: quiet means below a quarter of it
 PERIODIC_SNR = 6.0  # a line 6x (amplitude) above the median level, as dsp.spectrum's peaks
 PERIODIC_MIN_G = 0.003  # and at least 3 mg peak: smaller lines are not taken for motion
@@ -63,10 +67,18 @@ class PickupMotion:
     periodic_g: float | None
     seconds: float
     unit: str = "g"
+    #: share of the samples at the ADC's limits (0 or full scale); None: not known
+    at_rail_fraction: float | None = None
+
+    @property
+    def live(self) -> bool:
+        """The signal can show motion: not stuck at, or clipped against, an ADC limit."""
+        return self.at_rail_fraction is None or self.at_rail_fraction <= RAIL_FRACTION_LIMIT
 
     @property
     def quiet(self) -> bool:
-        return self.periodic_hz is None and self.level_g_rms <= self.limit_g_rms
+        """Evidence of standstill: a live signal with no line but hum, near its floor."""
+        return self.live and self.periodic_hz is None and self.level_g_rms <= self.limit_g_rms
 
 
 def noise_floor_g_rms(g_per_count: float, rate_hz: float,
@@ -199,8 +211,9 @@ class MotionMonitor:
 
     def __init__(self, names: tuple[str, ...], g_per_count: tuple[float, ...], rate_hz: float,
                  mains_hz: float | None, units: tuple[str, ...] | None = None,
-                 window_s: float = WINDOW_S) -> None:
+                 window_s: float = WINDOW_S, adc_max_count: int | None = None) -> None:
         self.names = names
+        self.adc_max_count = adc_max_count  # full scale; None: the rails are not checked
         self.g_per_count = g_per_count
         self.rate_hz = float(rate_hz)
         self.mains_hz = mains_hz
@@ -287,12 +300,21 @@ class MotionMonitor:
         """
         self.running_g_rms = [v if math.isfinite(v) else None for v in self.levels()]
 
-    def _values(self, c: int) -> np.ndarray:
+    def _counts_held(self, c: int) -> np.ndarray:
         ring = self._rings[c]
         if not ring:
             return np.zeros(0)
-        x = np.concatenate(list(ring)).astype(float) * self.g_per_count[c]
-        return x[-self.size:]
+        return np.concatenate(list(ring))[-self.size:]
+
+    def _values(self, c: int) -> np.ndarray:
+        return self._counts_held(c).astype(float) * self.g_per_count[c]
+
+    def _at_rail(self, c: int) -> float | None:
+        """Share of the held samples at 0 or full scale (None when the scale is unknown)."""
+        counts = self._counts_held(c)
+        if self.adc_max_count is None or counts.size == 0:
+            return None
+        return float(np.mean((counts <= 0) | (counts >= self.adc_max_count)))
 
     def judge(self) -> tuple[PickupMotion, ...]:
         """Each pickup's evidence of motion over what is held (possibly less than the full window).
@@ -318,5 +340,6 @@ class MotionMonitor:
             level, line = motion_spectrum(x, self.rate_hz, self.mains_hz)
             out.append(PickupMotion(
                 name, level, limit, None if line is None else line[0],
-                None if line is None else line[1], x.size / self.rate_hz, self.units[c]))
+                None if line is None else line[1], x.size / self.rate_hz, self.units[c],
+                self._at_rail(c)))
         return tuple(out)

@@ -264,6 +264,12 @@ def standstill_refusal(ev: StandstillEvidence) -> str:
         return (f"the tach went silent while the pickups saw the machine run: standstill "
                 f"needs {ev.tach_hold_needed_s:.0f} s of quiet pickups and tach "
                 f"({ev.wait_s:.0f} s to go); then fix the tach")
+    dead = [p for p in ev.pickups if not p.live]
+    if dead:
+        p = dead[0]
+        return (f"pickup {p.name} reads at the ADC limit ({100 * (p.at_rail_fraction or 0):.0f} % "
+                "of its samples: stuck, clipped or unwired), so it cannot vouch for standstill; "
+                "check its wiring and supply")
     if ev.moving_pickups:
         p = ev.moving_pickups[0]
         return (f"the pickups are not quiet ({p.name}: {p.level_g_rms:.3f} {p.unit} rms, "

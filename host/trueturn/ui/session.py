@@ -351,7 +351,8 @@ class LinkSession:
             units.append("g" if calibrated else "V")
         running = self.motion.running_g_rms if self.motion is not None else None
         self.motion = MotionMonitor(self.meter.sensors, tuple(scales), rate_hz, self.mains_hz,
-                                    tuple(units))
+                                    tuple(units),
+                                    adc_max_count=(1 << int(ident["adc_bits"])) - 1)
         if running is not None and len(running) == len(self.meter.sensors):
             self.motion.running_g_rms = running
         self._motion_next_index = None

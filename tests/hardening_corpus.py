@@ -147,6 +147,9 @@ def build(folder: Path) -> list[Case]:
     add("demo deep scenario", "demo", str(f / "scenario-deep.yaml"))
     add("demo alias bomb", "demo", str(DATA / "alias-bomb-readings.yaml"))
     add("ui sim://deep", "ui", "--port", f"sim://{f / 'scenario-deep.yaml'}")
+    for label in ("fifo", "link", "dangling-link", "folder", "missing-folder"):
+        add(f"ui --job {label}", "ui", "--port", SIM, "--job", str(outputs[label]),
+            untouched=keep)
 
     # odd inputs into every command that reads a file
     for path in odd_inputs:

@@ -25,6 +25,8 @@ from test_ui_app import (
     widget_text,
 )
 from trueturn.jobs.store import read_document
+from trueturn.ui.app import AppConfig, LinkLost, TrueturnApp
+from trueturn.ui.launch import scenario_profile
 from trueturn.ui.session import LINK_SILENCE_S
 
 
@@ -95,5 +97,32 @@ def test_a_silent_board_is_a_lost_link_and_l_reconnects(tmp_path: Path) -> None:
             await wait_for(pilot, lambda: not app.link_error, 30)
             await wait_for(pilot, lambda: "Reconnected" in screen_text(app), 10)
             assert "LINK LOST" not in widget_text(app, "status")
+            await press(app, pilot, "q")
+    asyncio.run(scenario())
+
+
+def test_a_refusal_with_brackets_is_shown_as_text(tmp_path: Path) -> None:
+    # the port's refusal repeats the URL form "sim://NAME[?realtime=0|1&...]": shown as
+    # words, not read as Rich markup (a MarkupError closed the app before)
+    config = AppConfig("sim://bench-grinder?pace=abc", scenario_profile("bench-grinder"),
+                       demo=True, workspace=tmp_path / "ws")
+
+    async def scenario() -> None:
+        app = TrueturnApp(config)
+        async with app.run_test(size=SIZE) as pilot:
+            await wait_for(pilot, lambda: "pace must be a number" in screen_text(app), 20)
+            assert "Cannot use sim://bench-grinder?pace=abc" in screen_text(app)
+            await press(app, pilot, "q")
+    asyncio.run(scenario())
+
+
+def test_a_lost_link_with_brackets_in_its_words_is_shown_as_text(tmp_path: Path) -> None:
+    async def scenario() -> None:
+        app = make_app("bench-grinder", tmp_path)
+        async with app.run_test(size=SIZE) as pilot:
+            await connect(app, pilot)
+            app.post_message(LinkLost("[Errno 5] Input/output error on sim://x[?pace=F|1]"))
+            await wait_for(pilot, lambda: "[Errno 5] Input/output error on sim://x[?pace=F|1]"
+                           in screen_text(app), 10)
             await press(app, pilot, "q")
     asyncio.run(scenario())

@@ -20,6 +20,7 @@ from pathlib import Path
 from textual import on, work
 from textual.app import App, ComposeResult
 from textual.binding import Binding
+from textual.content import Content
 from textual.message import Message
 from textual.screen import Screen
 from textual.widgets import ContentSwitcher, Footer, Static
@@ -168,9 +169,9 @@ class ConnectScreen(Screen):
 
     @on(LinkRefused)
     def show_problem(self, event: LinkRefused) -> None:
-        self.query_one("#connect-body", Static).update(
-            f"[b red]Cannot use {self.trueturn.config.url}[/]\n\n{event.text}\n\n"
-            "Press q to quit.")
+        self.query_one("#connect-body", Static).update(Content.assemble(  # text, not markup
+            (f"Cannot use {self.trueturn.config.url}", "bold red"),
+            f"\n\n{event.text}\n\nPress q to quit."))
 
     @on(BoardAnswered)
     def show_identity(self) -> None:
@@ -748,11 +749,12 @@ class TrueturnApp(App):
                      self.alarm.detail)
         ctx = GuideContext(
             profile=self.config.profile, engine=self.engine, demo=self.rig is not None,
-            tach_live=self.tach_live(snap), link_error=self.link_error,
+            tach_live=self.tach_live(snap), link_error=texts.plain(self.link_error),
             saved_trim=proc is None and self.saved_coefficients() is not None,
             job_path=self.keeper.path, report_path=self.keeper.report_path,
-            message=(texts.not_saved(self.keeper.unsaved)
-                     if self.keeper.unsaved and not self.quit_armed else self.message),
+            message=texts.plain(texts.not_saved(self.keeper.unsaved)
+                                if self.keeper.unsaved and not self.quit_armed
+                                else self.message),
             alarm=alarm)
         bench.query_one("#guide-view", GuideView).show(proc, snap, ctx)
 

@@ -2,9 +2,11 @@
 
 from __future__ import annotations
 
+import os
 from pathlib import Path
 
 from trueturn.errors import UserError
+from trueturn.files import check_output
 from trueturn.jobs.profiles import MachineProfile
 from trueturn.jobs.store import Workspace
 from trueturn.link.ports import list_board_ports
@@ -28,8 +30,8 @@ def _run(config: AppConfig) -> int:
 def launch_sim(scenario: str, workspace: str | Path | None = None, pace: float = 1.0,
                demo: bool = True) -> int:
     """The app on ``sim://SCENARIO`` with the motor off at power-up."""
-    if not pace > 0:
-        raise UserError(f"--pace must be greater than 0, got {pace:g}")
+    if not 0.01 <= pace <= 1000:  # as sim://...?pace= takes it; nan and inf refused too
+        raise UserError(f"--pace must be 0.01 to 1000, got {pace:g}")
     profile = scenario_profile(scenario)
     url = f"sim://{scenario}?motor=off" + (f"&pace={pace:g}" if pace != 1.0 else "")
     return _run(AppConfig(url, profile, demo=demo,
@@ -67,9 +69,11 @@ def launch_port(port: str | None, job: str | None = None, machine: str | None = 
             raise UserError("no board found on any USB serial port: plug it in, or give "
                             "--port (try: trueturn ports), or try: trueturn demo")
         port = found[0].device
-    if job is not None and Path(job).exists():
+    if job is not None and os.path.lexists(job):
         raise UserError(f"{job} exists: the app writes a new job file and never overwrites "
                         "one; give a new name (use --machine to pick the machine)")
+    if job is not None:
+        check_output(job)  # the one rule for files: its folder exists, a regular name
     profile = choose_profile(port, job, machine, workspace)
     scheme = _scheme(port)
     return _run(AppConfig(port, profile, demo=scheme == "sim",

@@ -6,9 +6,9 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from rich.markup import escape
 from textual.app import ComposeResult
 from textual.binding import Binding
+from textual.content import Content
 from textual.screen import ModalScreen
 from textual.widgets import Footer, Input, Static
 
@@ -24,9 +24,10 @@ class SaveFolderPrompt(ModalScreen[Path | None]):
         self.suggestion = suggestion
 
     def compose(self) -> ComposeResult:
-        yield Static(f"[b]The job is not saved[/b]: {escape(self.why)}\nEvery step is kept "
-                     "in memory. Type a folder to save it in (Enter: save, Escape: cancel).",
-                     classes="form-title", markup=True)
+        yield Static(Content.assemble(  # the reason is text, never markup
+            ("The job is not saved", "bold"),
+            f": {self.why}\nEvery step is kept in memory. Type a folder to save it in "
+            "(Enter: save, Escape: cancel)."), classes="form-title")
         yield Input(value=str(self.suggestion), id="save-folder-path")
         yield Footer()
 

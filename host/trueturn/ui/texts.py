@@ -176,6 +176,13 @@ TICKS_CLEARED = "Ticks cleared: standstill is no longer proven."
 
 
 # ---- storage faults (issue #18: the job is kept in memory until it can be saved) ---------
+def plain(text: str) -> str:
+    """Words from outside (an error, a path, a URL) made safe to put into console markup:
+    every ``[`` escaped, so ``[Errno 2]`` or ``sim://NAME[?...]`` show as written (Textual's
+    own escape leaves ``[?`` alone, and its parser then fails)."""
+    return text.replace("[", "\\[")
+
+
 def not_saved(why: str) -> str:
     """The message while the job file is behind the job in memory."""
     return (f"NOT SAVED: {why}. Every step is kept in memory: press w to save the job in "

@@ -146,6 +146,9 @@ def build(folder: Path) -> list[Case]:
     add("report job with nan mass", "report", str(f / "job-nan-mass.yaml"), "-o", "-")
     add("demo deep scenario", "demo", str(f / "scenario-deep.yaml"))
     add("demo alias bomb", "demo", str(DATA / "alias-bomb-readings.yaml"))
+    for pace in ("nan", "inf", "0", "1e300", "-1"):
+        add(f"demo --pace {pace}", "demo", "bench-grinder", "--pace", pace,
+            "--workspace", str(f / "demo-ws"))
     add("ui sim://deep", "ui", "--port", f"sim://{f / 'scenario-deep.yaml'}")
     for label in ("fifo", "link", "dangling-link", "folder", "missing-folder"):
         add(f"ui --job {label}", "ui", "--port", SIM, "--job", str(outputs[label]),

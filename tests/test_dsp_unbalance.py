@@ -176,3 +176,27 @@ def test_bench_grinder_is_judged_unbalance_and_its_severity_matches_its_1x(tmp_p
         orders = math.sqrt(sum(o["amplitude"] ** 2 for o in pickup["orders"]))
         assert s["velocity_rms_mm_s"] == pytest.approx(orders, rel=0.03)
         assert s["zone"] == zone_of(s["velocity_rms_mm_s"]).value
+
+
+def test_the_guide_says_it_before_the_first_trial(tmp_path):
+    """What the app shows after the as-found run (ui.texts.condition_lines, from the same
+    analysis the live meter makes): on the misaligned belt drive the warning and the failing
+    rule, on the bench grinder that balancing should help."""
+    from trueturn.dsp.analysis import analyze_capture
+    from trueturn.link.capture import read_capture
+    from trueturn.ui.texts import condition_lines
+
+    shown = {}
+    for scenario in ("belt-misaligned", "bench-grinder"):
+        cap = tmp_path / f"{scenario}.cap"
+        code, _, err = run_cli(["record", "--port", f"sim://{scenario}?realtime=0&seed=3",
+                                "--seconds", "6", "-o", str(cap)])
+        assert code == 0, err
+        meta, raw = read_capture(cap)
+        result = analyze_capture(raw)
+        shown[scenario] = "\n".join(condition_lines(result.severity, result.unbalance,
+                                                    as_found=True))
+    assert "balancing may not help" in shown["belt-misaligned"]
+    assert "strong 2x" in shown["belt-misaligned"]
+    assert "balancing should help" in shown["bench-grinder"]
+    assert "may not help" not in shown["bench-grinder"]

@@ -242,6 +242,16 @@ def test_two_plane_bench_grinder_to_a_pass_verdict(tmp_path: Path) -> None:
             assert job.status == "closed" and job.verdict.passed
             assert [p.plane for p in job.verdict.planes] == ["bearing 1", "bearing 2"]
             assert [r.kind for r in job.runs] == ["initial", "trial", "trial", "check"]
+            # Is it unbalance, and how bad overall (issue #22): measured in the as-found and
+            # the check run, kept in the job; the demo grinder is plain unbalance.
+            first, last = job.runs[0], job.runs[-1]
+            assert first.unbalance is not None and first.unbalance.verdict == "unbalance_likely"
+            assert {s.sensor for s in first.severity} == set(proc.setup.sensors)
+            assert all(s.velocity_rms_mm_s and s.zone for s in first.severity)
+            assert last.severity and not job.runs[1].severity  # not in trial runs
+            # a balanced rotor: the overall level fell with the 1x
+            assert all(b.velocity_rms_mm_s < a.velocity_rms_mm_s
+                       for a, b in zip(first.severity, last.severity, strict=True))
             assert job.influence is not None  # kept for a later one-run trim
             # readings are stored with the DSP layer's unit label, detector included
             shown = next(iter(proc.runs[-1].readings.values())).unit

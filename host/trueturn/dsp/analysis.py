@@ -251,6 +251,31 @@ def analyze_capture(raw: bytes | Iterable[bytes], revs: int | None = None,
                     c.to_json(), tuple(found), severity, unbalance)
 
 
+def machine_condition(meter: LiveAnalyzer) -> tuple[tuple[Severity, ...], tuple[Finding, ...]]:
+    """Each pickup's overall severity and the unbalance verdict, from what ``meter`` holds.
+
+    Parameters
+    ----------
+    meter : LiveAnalyzer
+        The live meter of a run (its spectra and 1x readings are computed here).
+
+    Returns
+    -------
+    tuple
+        ``(severity, unbalance)``: per pickup a :class:`Severity`; the verdict finding
+        first, then each pickup's evidence (empty when nothing could be judged).
+
+    References
+    ----------
+    .. [1] ISO 10816-1:1995 Annex B / ISO 20816-1 evaluation zones and the common-practice
+       rules of :mod:`trueturn.dsp.unbalance` (see there; from memory where marked).
+    """
+    readings = meter.readings()
+    speeds = meter.speeds_rpm()
+    speed = float(speeds.mean()) if meter.tach.revolutions and len(speeds) else math.nan
+    return _judge(meter, meter.spectra(), readings, speed)
+
+
 def _judge(meter: LiveAnalyzer, spectra: Sequence[Spectrum | None],
            readings: Sequence[PickupReading], speed_rpm: float
            ) -> tuple[tuple[Severity, ...], tuple[Finding, ...]]:

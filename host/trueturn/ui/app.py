@@ -30,6 +30,7 @@ from trueturn.errors import UserError
 from trueturn.jobs.profiles import MachineProfile
 from trueturn.jobs.records import CoefficientSet
 from trueturn.link.session import GreetPhase
+from trueturn.model import RunKind
 from trueturn.procedure.engine import BalanceEngine
 from trueturn.procedure.guide import (
     GateRefused,
@@ -310,6 +311,7 @@ class TrueturnApp(App):
                                 job_file=config.job_file)
         self.procedure: Procedure | None = None
         self.message = ""
+        self.condition: tuple[str, ...] = ()  # the machine's condition, in words
         self.quit_armed = False  # q pressed once during a run: a second q quits
         self.alarm: SafetyEvent | None = None
         self.snap: Snapshot | None = None
@@ -724,7 +726,13 @@ class TrueturnApp(App):
             speeds = [r.speed_rpm for r in meter.readings.values()
                       if r.speed_rpm is not None and r.speed_rpm > 0]
             run = proc.record(meter.readings, statistics.fmean(speeds), now, live)
-            self.keeper.run(proc, run)
+            condition = None
+            if run.kind in (RunKind.AS_FOUND, RunKind.CHECK):
+                # is it unbalance, and how bad overall (as found, and after each check)
+                condition = self.session.machine_condition()
+                self.condition = texts.condition_lines(*condition, as_found=(
+                    run.kind is RunKind.AS_FOUND))
+            self.keeper.run(proc, run, condition)
             self.session.remember_running_level()
             self.quit_armed = False
             stop = "press x to switch the virtual motor off" if self.rig else \
@@ -752,6 +760,7 @@ class TrueturnApp(App):
             tach_live=self.tach_live(snap), link_error=texts.plain(self.link_error),
             saved_trim=proc is None and self.saved_coefficients() is not None,
             job_path=self.keeper.path, report_path=self.keeper.report_path,
+            condition=self.condition if proc is not None else (),
             message=texts.plain(texts.not_saved(self.keeper.unsaved)
                                 if self.keeper.unsaved and not self.quit_armed
                                 else self.message),

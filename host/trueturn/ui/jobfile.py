@@ -8,12 +8,16 @@ from __future__ import annotations
 
 import math
 import os
+from collections.abc import Sequence
 from dataclasses import replace
 from pathlib import Path
 from typing import Literal
 
+from trueturn.dsp.findings import Finding
+from trueturn.dsp.severity import Severity
 from trueturn.errors import UserError
 from trueturn.jobs import records as rec
+from trueturn.jobs.condition import severity_entries, unbalance_entry
 from trueturn.jobs.profiles import MachineProfile
 from trueturn.jobs.report import html_report
 from trueturn.jobs.store import Workspace, atomic_write_text
@@ -183,7 +187,10 @@ class JobKeeper:
                                         rec.Event(rec.now_iso(), event.kind, event.detail)])
         self.path = self._save("record_pending", self.job, step, self._where()) or self.path
 
-    def run(self, proc: Procedure, run: Run) -> None:
+    def run(self, proc: Procedure, run: Run,
+            condition: tuple[Sequence[Severity], Sequence[Finding]] | None = None) -> None:
+        """Keep a completed run; ``condition``: the machine's severity and the unbalance
+        verdict measured in it (as found and check runs)."""
         if self.job is None:
             return
         kind = run.kind or RunKind.CHECK  # the procedure says why it ran
@@ -209,6 +216,9 @@ class JobKeeper:
                               label=run.label, confirmations=confirmations,
                               corrections=corrections, events=events,
                               notes="; ".join(run.forces_confirmed))
+        if condition is not None:
+            record.severity = severity_entries(condition[0])
+            record.unbalance = unbalance_entry(condition[1])
         self._kept(self._save("append_run", self.job, record, self._where()), confirmations)
 
     def _keep_coefficients(self, proc: Procedure) -> None:

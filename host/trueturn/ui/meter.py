@@ -12,9 +12,11 @@ from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
+from trueturn.dsp.analysis import machine_condition
 from trueturn.dsp.averaging import SteadinessLimits
 from trueturn.dsp.findings import TACH_LINE, Code, Finding, describe
 from trueturn.dsp.meter import LiveAnalyzer
+from trueturn.dsp.severity import Severity
 from trueturn.dsp.units import PickupProfile
 from trueturn.model import Reading
 
@@ -115,6 +117,10 @@ class MeterAdapter:
         elif msg.name == "identity":
             self._identity = _Msg("identity", msg.values)
         self.analyzer.feed(msg)
+
+    def condition(self) -> tuple[tuple[Severity, ...], tuple[Finding, ...]]:
+        """The machine's overall severity and the unbalance verdict from this run so far."""
+        return machine_condition(self.analyzer)
 
     def reset(self) -> None:
         """Forget the averaged revolutions (a new run starts)."""

@@ -388,6 +388,12 @@ class LinkSession:
                 self.motion = None
                 self._new_motion(rate_hz)
 
+    def machine_condition(self) -> tuple[tuple[Any, ...], tuple[Any, ...]]:
+        """The machine's overall severity per pickup and the unbalance verdict from the run
+        just averaged (call before :meth:`reset_meter`)."""
+        with self._state:
+            return self.meter.condition()
+
     def reset_meter(self) -> None:
         """Start averaging afresh (a new run)."""
         with self._state:

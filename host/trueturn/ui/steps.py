@@ -68,6 +68,7 @@ class GuideContext:
     report_path: Path | None = None
     message: str = ""
     alarm: str = ""  # an alarm held until acknowledged: shown instead of the message
+    condition: tuple[str, ...] = ()  # the machine's condition from the last as-found/check run
 
 
 class StepPanel(Static):
@@ -123,15 +124,18 @@ class ProcedurePanel(StepPanel):
 
     title: reactive[str] = reactive("")
     runs: reactive[int] = reactive(0)
+    condition: reactive[tuple[str, ...]] = reactive(())
 
     def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
         super().show(proc, snap, ctx)
         assert proc is not None
         self.title = proc.step.title
         self.runs = len(proc.runs)
+        self.condition = ctx.condition
 
     def lines(self) -> list[str]:
-        return [f"[b]{self.title}[/b]   [dim](runs so far: {self.runs})[/dim]", *self.body()]
+        return [f"[b]{self.title}[/b]   [dim](runs so far: {self.runs})[/dim]", *self.body(),
+                *self.condition]
 
     def body(self) -> list[str]:
         raise NotImplementedError

@@ -2,6 +2,10 @@
 
 from __future__ import annotations
 
+from collections.abc import Sequence
+
+from trueturn.dsp.findings import Code, Finding, describe
+from trueturn.dsp.severity import Severity
 from trueturn.model import Verdict, VerdictFlag
 
 CAUTIONS = "\n".join([
@@ -192,3 +196,27 @@ def not_saved(why: str) -> str:
 QUIT_UNSAVED = ("The job is not saved: press w to save it in another folder, or q again to "
                 "quit without saving it.")
 NOTHING_TO_SAVE = "The job is saved: nothing to move."
+
+
+def condition_lines(severity: Sequence[Severity], unbalance: Sequence[Finding],
+                    as_found: bool) -> tuple[str, ...]:
+    """The machine's condition for the guide: each pickup's overall level and zone, then
+    whether it looks like unbalance with the evidence that failed (as found), or plainly
+    that the machine is still rough after a check run (zones C and D)."""
+    when = "as found" if as_found else "at the last check"
+    lines = [f"[b]Machine condition ({when}):[/b]"]
+    lines += [f"  {describe(s.as_finding())}" for s in severity]  # names its pickup
+    if unbalance:
+        verdict = unbalance[0]
+        failing = [f for f in unbalance[1:] if not f.details.get("ok", True)]
+        if verdict.code is Code.BALANCING_MAY_NOT_HELP:
+            lines.append(f"[b yellow]{describe(verdict)}[/]")
+            lines += [f"[yellow]  {describe(f)}[/]" for f in failing]
+        elif as_found:
+            lines.append(f"  {describe(verdict)}")
+    rough = [s.pickup for s in severity if s.zone is not None and s.zone.value in ("C", "D")]
+    if rough and not as_found:
+        lines.append(f"[yellow]Still zone C/D at {', '.join(rough)}: the rotor may be within "
+                     "its grade while the machine is not; look at mounting, alignment, "
+                     "bearings and belts.[/]")
+    return tuple(lines)

@@ -681,6 +681,7 @@ def solve_with_phase(inp: BalanceInput) -> Solution:
         warnings += _trial_warnings(inp, r0, model)
     drawn = _uncertainty(inp, fit, c, weights, limits, model, planes)
     pm = drawn[:2] if drawn is not None else None
+    residual_now = residual_unbalance_vectors_gmm(model, inp.runs[-1], planes, weights)
     predicted = r0 + matrix @ c
     now = inp.runs[-1].masses
     keep = c - mass_vector(now, planes)
@@ -695,9 +696,8 @@ def solve_with_phase(inp: BalanceInput) -> Solution:
         corrections_keeping_current=_corrections(planes, keep),
         influence=model,
         as_found={ch.key: complex(v) for ch, v in zip(model.channels, r0, strict=True)},
-        residual_now_gmm=residual_unbalance_gmm(model, inp.runs[-1], planes, weights),
-        residual_now_vector_gmm=residual_unbalance_vectors_gmm(model, inp.runs[-1], planes,
-                                                               weights),
+        residual_now_gmm=[abs(u) for u in residual_now],
+        residual_now_vector_gmm=residual_now,
         clipped=clipped_readings(inp.runs),
         clipped_last_run=any(r.clipped for r in inp.runs[-1].readings.values()),
         residual_now_draws_gmm=drawn[2] if drawn is not None else None,
@@ -723,37 +723,6 @@ def clipped_readings(runs: Sequence[Run]) -> list[tuple[str, str]]:
        practice, no source).
     """
     return [(run.label, name) for run in runs for name, r in run.readings.items() if r.clipped]
-
-
-def residual_unbalance_gmm(model: InfluenceModel, run: Run, planes: Sequence[Plane],
-                           channel_weights: np.ndarray | None = None) -> list[float]:
-    """Residual unbalance per plane estimated from a run's measured 1x through the coefficients.
-
-    The magnitudes of :func:`residual_unbalance_vectors_gmm`.
-
-    Parameters
-    ----------
-    model : InfluenceModel
-        Influence coefficients, reading units per gram.
-    run : Run
-        The run whose residual is wanted (usually the last).
-    planes : sequence of Plane
-        The correction planes (their radii, mm).
-    channel_weights : numpy.ndarray or None, default None
-        Weight per channel; None weighs them equally.
-
-    Returns
-    -------
-    list of float
-        Residual unbalance per plane, g·mm.
-
-    References
-    ----------
-    .. [1] Influence-coefficient method: E. L. Thearle, "Dynamic Balancing of Rotating
-       Machinery in the Field", Trans. ASME (1934), two-plane field balancing, here
-       generalised by least squares (from memory).
-    """
-    return [abs(u) for u in residual_unbalance_vectors_gmm(model, run, planes, channel_weights)]
 
 
 def residual_unbalance_vectors_gmm(model: InfluenceModel, run: Run, planes: Sequence[Plane],

@@ -309,9 +309,8 @@ class MotionMonitor:
     def _values(self, c: int) -> np.ndarray:
         return self._counts_held(c).astype(float) * self.g_per_count[c]
 
-    def _at_rail(self, c: int) -> float | None:
-        """Share of the held samples at 0 or full scale (None when the scale is unknown)."""
-        counts = self._counts_held(c)
+    def _at_rail(self, counts: np.ndarray) -> float | None:
+        """Share of ``counts`` at 0 or full scale (None when the scale is unknown)."""
         if self.adc_max_count is None or counts.size == 0:
             return None
         return float(np.mean((counts <= 0) | (counts >= self.adc_max_count)))
@@ -334,12 +333,13 @@ class MotionMonitor:
         """
         out = []
         for c, name in enumerate(self.names):
-            x = self._values(c)
+            counts = self._counts_held(c)
+            x = counts.astype(float) * self.g_per_count[c]
             floor = noise_floor_g_rms(self.g_per_count[c], self.rate_hz)
             limit = quiet_limit_g_rms(floor, self.running_g_rms[c])
             level, line = motion_spectrum(x, self.rate_hz, self.mains_hz)
             out.append(PickupMotion(
                 name, level, limit, None if line is None else line[0],
                 None if line is None else line[1], x.size / self.rate_hz, self.units[c],
-                self._at_rail(c)))
+                self._at_rail(counts)))
         return tuple(out)

@@ -6,6 +6,7 @@ from __future__ import annotations
 import os
 import shutil
 import subprocess
+import time
 from pathlib import Path
 
 import pytest
@@ -36,3 +37,22 @@ def make(*targets: str) -> None:
                           capture_output=True, text=True, check=False)
     if done.returncode != 0:
         pytest.fail(f"make -C firmware {' '.join(targets)} failed:\n{done.stdout}\n{done.stderr}")
+
+
+def record_stream(url: str, size_bytes: int = 40_000, wall_s: float = 60.0) -> bytes:
+    """Start the stream of the board behind ``url`` and return its first ``size_bytes``
+    bytes (at least), failing when it stops sending within ``wall_s`` of wall time."""
+    from trueturn.link.codec import encode_frame
+    from trueturn.link.ports import open_port
+
+    port = open_port(url, timeout_s=0.05)
+    try:
+        port.write(encode_frame("start", 1))
+        raw = bytearray()
+        deadline = time.monotonic() + wall_s
+        while len(raw) < size_bytes and time.monotonic() < deadline:
+            raw += port.read(65536)
+    finally:
+        port.close()
+    assert len(raw) >= size_bytes, "the emulated board stopped sending"
+    return bytes(raw)

@@ -6,14 +6,11 @@ the firmware's nonzero aperture delay) as the meter uses it."""
 from __future__ import annotations
 
 import math
-import time
 
 import pytest
 
-from firmware_helpers import make, require_tools
+from firmware_helpers import make, record_stream, require_tools
 from trueturn.dsp import analyze_capture
-from trueturn.link.codec import encode_frame
-from trueturn.link.ports import open_port
 from trueturn.sim import signal_spec
 
 SLACK = 1.5  # as in test_dsp_meter.py: 1.5 x the 95 % radius, a 0.1 % tail
@@ -25,22 +22,8 @@ def built() -> None:
     make("emu")
 
 
-def _record(url: str, size_bytes: int, wall_s: float = 60.0) -> bytes:
-    port = open_port(url, timeout_s=0.05)
-    try:
-        port.write(encode_frame("start", 1))
-        raw = bytearray()
-        deadline = time.monotonic() + wall_s
-        while len(raw) < size_bytes and time.monotonic() < deadline:
-            raw += port.read(65536)
-    finally:
-        port.close()
-    assert len(raw) >= size_bytes, "the emulated board stopped sending"
-    return bytes(raw)
-
-
 def test_firmware_capture_recovers_signal_spec() -> None:
-    raw = _record("emu://bench-grinder?realtime=0", 40_000)  # about 2 s of 2 x 4 kSps
+    raw = record_stream("emu://bench-grinder?realtime=0", 40_000)  # about 2 s of 2 x 4 kSps
     spec = signal_spec("bench-grinder", channels=2)
     result = analyze_capture(raw, mains_hz=60.0)
     assert result.link["frames_bad"] == 0 and result.link["samples_lost"] == 0

@@ -11,16 +11,14 @@ bandgap input gives floor(1100 * 1024 / Vref)) and "ADMUX" (REFS1:0 = 00 externa
 from __future__ import annotations
 
 import math
-import time
 
 import pytest
 
-from firmware_helpers import REPO, make, require_tools
+from firmware_helpers import REPO, make, record_stream, require_tools
 from trueturn.dsp import analyze_capture
 from trueturn.dsp.findings import Code, describe
 from trueturn.link.catalogue import load_catalogue
-from trueturn.link.codec import Message, StreamDecoder, encode_frame
-from trueturn.link.ports import open_port
+from trueturn.link.codec import Message, StreamDecoder
 from trueturn.sim import signal_spec
 
 KINDS = {name: code for code, name in load_catalogue().reference_kinds.items()}
@@ -32,20 +30,6 @@ def built() -> None:
     require_tools("avr-gcc", "gcc", "make")
     make("emu")
     make("ADC_REF=aref", "emu")
-
-
-def _record(url: str, size_bytes: int = 40_000, wall_s: float = 60.0) -> bytes:
-    port = open_port(url, timeout_s=0.05)
-    try:
-        port.write(encode_frame("start", 1))
-        raw = bytearray()
-        deadline = time.monotonic() + wall_s
-        while len(raw) < size_bytes and time.monotonic() < deadline:
-            raw += port.read(65536)
-    finally:
-        port.close()
-    assert len(raw) >= size_bytes, "the emulated board stopped sending"
-    return bytes(raw)
 
 
 def _first(raw: bytes, name: str) -> Message:
@@ -60,7 +44,7 @@ def _bandgap_mv(ref_mv: float) -> int:
 
 
 def test_aref_build_reports_its_kind_and_the_host_converts_with_it() -> None:
-    raw = _record("emu://bench-grinder?realtime=0&aref=3300")
+    raw = record_stream("emu://bench-grinder?realtime=0&aref=3300")
     identity, config = _first(raw, "identity"), _first(raw, "stream_config")
     assert identity["adc_reference_kind"] == KINDS["aref_vs_bandgap"]
     assert identity["adc_reference_mv"] == _bandgap_mv(3300) == 3298
@@ -81,7 +65,7 @@ def test_aref_build_reports_its_kind_and_the_host_converts_with_it() -> None:
 
 def test_aref_pin_left_open_is_refused_naming_the_field() -> None:
     # an open AREF pin (here 1.0 V, below the bandgap): the bandgap reads full scale (1023)
-    raw = _record("emu://bench-grinder?realtime=0&aref=1000")
+    raw = record_stream("emu://bench-grinder?realtime=0&aref=1000")
     identity = _first(raw, "identity")
     assert identity["adc_reference_kind"] == KINDS["aref_vs_bandgap"]
     assert identity["adc_reference_mv"] == round(1100 * 1024 / 1023.5)  # 1101 mV
@@ -95,7 +79,7 @@ def test_aref_pin_left_open_is_refused_naming_the_field() -> None:
 
 
 def test_standard_image_stays_avcc() -> None:
-    raw = _record("emu://bench-grinder?realtime=0", size_bytes=2_000)
+    raw = record_stream("emu://bench-grinder?realtime=0", size_bytes=2_000)
     identity = _first(raw, "identity")
     assert identity["adc_reference_kind"] == KINDS["avcc_vs_bandgap"]
     assert identity["adc_reference_mv"] == _bandgap_mv(5000)

@@ -11,7 +11,7 @@ from trueturn.cli.common import open_capture, print_json
 from trueturn.dsp.analysis import ALL_REVS, Analysis, analyze_capture
 from trueturn.dsp.findings import Code, Finding, describe
 from trueturn.dsp.spectrum import SpectrumPeak
-from trueturn.dsp.units import UNITS, PickupProfile
+from trueturn.dsp.units import UNITS, PickupProfile, pickup_profile
 from trueturn.errors import UserError, one_line
 from trueturn.link.catalogue import load_catalogue
 from trueturn.link.codec import LinkEvent, Message
@@ -49,6 +49,13 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                         help="corner of a first-order RC low-pass in front of the ADC, per "
                              "channel; its phase lag at 1x is compensated")
     parser.add_argument("--names", metavar="NAME[,NAME2]", help="pickup names, per channel")
+    parser.add_argument("--machine", metavar="NAME",
+                        help="take the pickups (names, sensitivity, zero-g output, RC low-pass "
+                             "corner) from this machine profile instead of the capture's "
+                             "header; the options above win")
+    parser.add_argument("--workspace", metavar="DIR",
+                        help="with --machine: workspace folder (default: $TRUETURN_WORKSPACE "
+                             "or the user data folder)")
     parser.set_defaults(run=run)
 
 
@@ -67,9 +74,30 @@ def _per_channel(text: str | None, what: str, span: tuple[float, float]) -> list
     return values
 
 
+def _machine_pickups(args: argparse.Namespace) -> list[dict[str, Any]] | None:
+    """The pickups of the machine profile named by ``--machine`` in the header's terms."""
+    if args.machine is None:
+        if args.workspace is not None:
+            raise UserError("--workspace goes with --machine")
+        return None
+    from trueturn.jobs.store import Workspace  # only with --machine (as cmd_split)
+
+    machine = Workspace.open(args.workspace).load_machine(args.machine)
+    out = []
+    for pickup in machine.pickups:
+        profile = pickup_profile(pickup.name, pickup)
+        out.append({"name": profile.name, "sensitivity_v_per_g": profile.sensitivity_v_per_g,
+                    "zero_g_v": profile.zero_g_v,
+                    "lowpass_corners_hz": list(profile.lowpass_corners_hz)})
+    return out
+
+
 def _profiles(args: argparse.Namespace, metadata: dict[str, Any]) -> list[PickupProfile]:
-    """Pickup profiles from the capture metadata (``pickups``), overridden by options."""
-    pickups = metadata.get("pickups")
+    """Pickup profiles from the machine profile (``--machine``) or else the capture
+    metadata (``pickups``), overridden by options."""
+    pickups = _machine_pickups(args)
+    if pickups is None:
+        pickups = metadata.get("pickups")
     stored: list[Any] = pickups if isinstance(pickups, list) else []
     sens = _per_channel(args.sensitivity_v_per_g, "--sensitivity-v-per-g", (1e-6, 1e3))
     corners = _per_channel(args.lowpass_hz, "--lowpass-hz", (0.1, 1e6))

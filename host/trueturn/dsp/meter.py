@@ -49,6 +49,7 @@ from trueturn.dsp.shaft import Revolution, TachTracker, extend_tick
 from trueturn.dsp.spectrum import Spectrum, name_by_levels, spectrum
 from trueturn.dsp.units import (
     PickupProfile,
+    chain_response,
     conversion_factors,
     convert_phasor,
     default_unit,
@@ -877,8 +878,10 @@ class LiveAnalyzer:
         Returns
         -------
         list of Spectrum or None
-            Per pickup, in g for a calibrated pickup, else volts (peak amplitudes); None for a
-            pickup with fewer than 64 recent samples.
+            Per pickup, in g for a calibrated pickup, else volts (peak amplitudes), the
+            profile's input chain (RC low-pass corners, delay) taken out of the density and
+            the peaks as from the readings; None for a pickup with fewer than 64 recent
+            samples.
 
         References
         ----------
@@ -911,7 +914,7 @@ class LiveAnalyzer:
                                        self.mains_hz, rot_hz, spec.resolution_hz,
                                        spec.detect_amplitude)
                 spec = dataclasses.replace(spec, peaks=named)
-            out.append(spec)
+            out.append(undo_chain(spec, profile))
         return out
 
     def spectrum_unit(self, channel: int) -> str:
@@ -932,6 +935,37 @@ class LiveAnalyzer:
         .. [1] Common practice, no source.
         """
         return "g pk" if self.profile(channel).calibrated else "V pk"
+
+
+def undo_chain(spec: Spectrum, profile: PickupProfile) -> Spectrum:
+    """A spectrum with the pickup's known input chain taken out: density and peak amplitudes
+    divided by the chain's gain ``|H(f)|`` at their frequency (for an RC low-pass
+    ``1/sqrt(1 + (f/fc)^2)``, :func:`trueturn.dsp.units.chain_response`).
+
+    Parameters
+    ----------
+    spec : Spectrum
+        As measured at the ADC.
+    profile : PickupProfile
+        The pickup's low-pass corners and delay (a delay changes no amplitude).
+
+    Returns
+    -------
+    Spectrum
+        The same spectrum when the profile has no low-pass corner, else the corrected one
+        (the detection threshold stays as measured).
+
+    References
+    ----------
+    .. [1] First-order RC low-pass ``|H| = 1/sqrt(1 + (f/fc)^2)`` (any circuits textbook, e.g.
+       P. Horowitz, W. Hill, "The Art of Electronics", 3rd ed., 2015, ch. 1; from memory).
+    """
+    if not profile.lowpass_corners_hz:
+        return spec
+    gain = np.abs(np.asarray(chain_response(profile, spec.frequencies_hz)))
+    peaks = tuple(dataclasses.replace(p, amplitude=p.amplitude / abs(chain_response(profile, p.hz)))
+                  for p in spec.peaks)
+    return dataclasses.replace(spec, asd=spec.asd / gain, peaks=peaks)
 
 
 class _BlockTimebase:

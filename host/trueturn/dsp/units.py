@@ -25,6 +25,7 @@ from typing import Any, Literal
 import numpy as np
 
 from trueturn.constants import MM_PER_INCH, STANDARD_GRAVITY_M_S2, UM_PER_MIL  # noqa: F401
+from trueturn.model.rotor import Pickup
 from trueturn.model.units import VibrationUnit, is_vibration_unit
 
 Quantity = Literal["volts", "acceleration", "velocity", "displacement"]
@@ -68,6 +69,34 @@ class PickupProfile:
     @property
     def calibrated(self) -> bool:
         return self.sensitivity_v_per_g is not None and self.sensitivity_v_per_g > 0
+
+
+def pickup_profile(name: str, pickup: Pickup | None) -> PickupProfile:
+    """The DSP's profile of a machine profile's pickup (:class:`trueturn.model.Pickup`).
+
+    Parameters
+    ----------
+    name : str
+        The name its readings carry.
+    pickup : Pickup or None
+        Sensitivity (mV/g, taken to V/g), zero-g output (mV) and the RC low-pass corner (Hz,
+        or None); None gives an uncalibrated profile (readings in volts).
+
+    Returns
+    -------
+    PickupProfile
+        With ``lowpass_corners_hz`` holding the corner, so every reading, spectrum and
+        severity of the pickup takes the filter's gain and lag out (:func:`chain_response`).
+
+    References
+    ----------
+    .. [1] Lookup only; units as named (common practice, no source).
+    """
+    if pickup is None:
+        return PickupProfile(name)
+    corners = (float(pickup.lowpass_corner_hz),) if pickup.lowpass_corner_hz else ()
+    return PickupProfile(name, pickup.sensitivity_mv_per_g / 1000.0,
+                         pickup.zero_offset_mv / 1000.0 or None, corners)
 
 
 def counts_to_volts(counts: float, adc_bits: int, reference_mv: float) -> float:

@@ -76,7 +76,10 @@ class Bearing:
 class Pickup:
     """A vibration pickup (accelerometer): its sensitivity and zero-g output (from the
     module's datasheet or the flip calibration, hardware/CALIBRATION.md) and how it is
-    mounted; the ``name`` keys its readings everywhere."""
+    mounted; the ``name`` keys its readings everywhere. ``lowpass_corner_hz``: the corner
+    of the first-order RC low-pass between the pickup and the ADC (the module's output
+    capacitor or an anti-alias filter, hardware/WIRING.md), None when there is none worth
+    correcting; every reading of the pickup takes its gain and lag out."""
 
     name: str = field(metadata=limits(nonempty=True))
     sensitivity_mv_per_g: float = field(metadata=limits(above=0))
@@ -84,3 +87,4 @@ class Pickup:
     mounting: str = ""
     direction: Literal["horizontal", "vertical", "axial", "other"] = "horizontal"
     near_plane: str | None = None
+    lowpass_corner_hz: float | None = field(default=None, metadata=limits(above=0))

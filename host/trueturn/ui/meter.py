@@ -17,7 +17,7 @@ from trueturn.dsp.averaging import SteadinessLimits
 from trueturn.dsp.findings import TACH_LINE, Code, Finding, describe
 from trueturn.dsp.meter import LiveAnalyzer
 from trueturn.dsp.severity import Severity
-from trueturn.dsp.units import PickupProfile
+from trueturn.dsp.units import pickup_profile
 from trueturn.model import Reading
 
 SPECTRUM_BINS = 76  # one sparkline column each, fits 80 columns
@@ -76,11 +76,7 @@ class MeterAdapter:
         profiles = []
         for i, name in enumerate(self.sensors):
             p = pickups[i] if i < len(pickups) else None
-            if p is not None and getattr(p, "sensitivity_mv_per_g", 0) > 0:
-                profiles.append(PickupProfile(name, p.sensitivity_mv_per_g / 1000.0,
-                                              p.zero_offset_mv / 1000.0 or None))
-            else:
-                profiles.append(PickupProfile(name))
+            profiles.append(pickup_profile(name, p))
         self.profiles = tuple(profiles)
         self._identity: _Msg | None = None
         self._config: _Msg | None = None

@@ -17,9 +17,12 @@ from trueturn.dsp.findings import Code, Finding, describe, unique
 from trueturn.dsp.meter import LiveAnalyzer, PickupReading
 from trueturn.dsp.severity import (
     BAND_HZ,
+    LOW_SPEED_BAND_HZ,
+    LOW_SPEED_BELOW_RPM,
     ZONE_BOUNDARIES_MM_S,
     ZONES_SOURCE,
     Severity,
+    band_for,
     band_velocity_rms,
     pickup_severity,
 )
@@ -83,8 +86,8 @@ class Analysis:
             degrees, confidence radius in the unit, orders, noise and hum in volts), spectrum
             peaks (Hz, amplitude), ``confidence`` (what the 95 % circle covers), ``warnings``,
             ``findings``, the link counters, ``severity`` (per pickup: broadband velocity
-            RMS in mm/s and its zone, or null with ``refused``; ``severity_scale``: band,
-            boundaries and their source) and ``unbalance`` (``verdict`` and its coded
+            RMS in mm/s, the ``band_hz`` it was measured over and its zone, or null with
+            ``refused``; ``severity_scale``: the bands, boundaries and their source) and ``unbalance`` (``verdict`` and its coded
             ``evidence``, each with words); non-finite numbers as null.
 
         References
@@ -121,9 +124,12 @@ class Analysis:
             "findings": [f.to_json() for f in self.findings],
             "severity": [{"pickup": v.pickup, "velocity_rms_mm_s": num(v.velocity_rms_mm_s, 4),
                           "zone": v.zone.value if v.zone else None,
+                          "band_hz": list(v.band_hz) if v.band_hz else None,
                           "refused": v.refused.value if v.refused else None}
                          for v in self.severity],
             "severity_scale": {"band_hz": list(BAND_HZ),
+                               "low_speed_band_hz": list(LOW_SPEED_BAND_HZ),
+                               "low_speed_below_rpm": LOW_SPEED_BELOW_RPM,
                                "zone_boundaries_mm_s": dict(zip(("A/B", "B/C", "C/D"),
                                                                 ZONE_BOUNDARIES_MM_S,
                                                                 strict=True)),
@@ -292,13 +298,14 @@ def _judge(meter: LiveAnalyzer, spectra: Sequence[Spectrum | None],
         severity.append(pickup_severity(name, spec.frequencies_hz,
                                         spec.asd if calibrated else None, meter.rate_hz,
                                         speed_rpm))
-        if not (math.isfinite(speed_rpm) and speed_rpm > 0) or meter.rate_hz / 2 < BAND_HZ[1]:
+        band = band_for(speed_rpm, spec.resolution_hz) if math.isfinite(speed_rpm) else None
+        if band is None or meter.rate_hz / 2 < band[1]:
             continue
         reading = by_name.get(name)
         if reading is None:
             continue  # no 1x reading at this pickup: nothing to judge it by
         evidence += pickup_evidence(name, spec.peaks,
-                                    band_velocity_rms(spec.frequencies_hz, spec.asd),
+                                    band_velocity_rms(spec.frequencies_hz, spec.asd, band),
                                     reading.findings, speed_rpm / 60.0)
         judged += 1
     return tuple(severity), (verdict(evidence, judged), *evidence)

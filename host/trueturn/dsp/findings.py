@@ -264,7 +264,8 @@ _ZONE_MEANING = {"A": "as newly commissioned machines",
                  "D": "severe enough to cause damage"}
 _REFUSED = {"uncalibrated": "no sensitivity known, so no velocity from volts",
             "band_not_sampled": "the sample rate does not reach 1000 Hz",
-            "speed_too_low": "below 600 rpm the 1x falls outside 10-1000 Hz"}
+            "speed_too_low": "the 1x is too slow even for the 2-1000 Hz band used below "
+                             "600 rpm"}
 
 
 def _pct(x: Any) -> str:
@@ -310,8 +311,9 @@ def _unbalance_sentence(f: Finding) -> str:
         if zone is None:
             return ("overall severity not given: "
                     + _REFUSED.get(_n(f, "refused", ""), "cannot be measured"))
-        return (f"overall {_n(f, 'velocity_rms_mm_s'):.2f} mm/s rms (10-1000 Hz): zone {zone}, "
-                f"{_ZONE_MEANING.get(zone, '')}")
+        low, high = _n(f, "band_hz", None) or (10.0, 1000.0)  # kept before bands were said
+        return (f"overall {_n(f, 'velocity_rms_mm_s'):.2f} mm/s rms ({low:g}-{high:g} Hz): "
+                f"zone {zone}, {_ZONE_MEANING.get(zone, '')}")
     return "cannot judge whether this is unbalance (no spectrum or no 1x reading)"
 
 

@@ -30,7 +30,9 @@ _LIMITS = {Code.ONE_X_SHARE: ("share", ONE_X_SHARE_MIN), Code.TWO_X_RATIO: ("rat
 def severity_entries(severity: Sequence[Severity]) -> list[SeverityEntry]:
     """Each pickup's severity as a job keeps it."""
     return [SeverityEntry(s.pickup, s.velocity_rms_mm_s, s.zone.value if s.zone else None,
-                          s.refused.value if s.refused else None) for s in severity]
+                          s.refused.value if s.refused else None,
+                          s.band_hz if s.velocity_rms_mm_s is not None else None)
+            for s in severity]
 
 
 def unbalance_entry(unbalance: Sequence[Finding]) -> UnbalanceEntry | None:
@@ -51,7 +53,7 @@ def severity_finding(entry: SeverityEntry) -> Finding:
     """A kept severity as a finding, for :func:`trueturn.dsp.findings.describe`."""
     return Finding(Code.SEVERITY, entry.sensor, details={
         "velocity_rms_mm_s": entry.velocity_rms_mm_s, "zone": entry.zone,
-        "refused": entry.refused})
+        "band_hz": list(entry.band_hz) if entry.band_hz else None, "refused": entry.refused})
 
 
 def evidence_finding(entry: EvidenceEntry) -> Finding:

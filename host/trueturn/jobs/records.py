@@ -111,13 +111,15 @@ VerdictCode = Literal["unbalance_likely", "balancing_may_not_help", "unbalance_u
 @dataclass
 class SeverityEntry:
     """A pickup's overall severity in one run (dsp/severity.py): broadband velocity RMS
-    over 10-1000 Hz and its zone (ISO 10816-1 Class I boundaries, from memory); both None
-    with ``refused`` when the instrument could not give them."""
+    over ``band_hz`` (10-1000 Hz, 2-1000 Hz below 600 rpm; None in files written before the
+    band was kept: 10-1000 Hz) and its zone (ISO 10816-1 Class I boundaries, from memory);
+    both None with ``refused`` when the instrument could not give them."""
 
     sensor: str = field(metadata=limits(nonempty=True))
     velocity_rms_mm_s: float | None = field(default=None, metadata=limits(minimum=0))
     zone: Literal["A", "B", "C", "D"] | None = None
     refused: Literal["uncalibrated", "band_not_sampled", "speed_too_low"] | None = None
+    band_hz: tuple[float, float] | None = None
 
 
 @dataclass

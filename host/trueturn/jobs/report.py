@@ -294,7 +294,9 @@ def condition_rows(job: JobRecord) -> list[list[str]]:
                 level = "-"
                 zone = describe(dataclasses.replace(severity_finding(entry), pickup=None))
             else:
-                level, zone = f"{entry.velocity_rms_mm_s:.2f} mm/s rms", entry.zone or "-"
+                low, high = entry.band_hz or (10.0, 1000.0)  # files from before bands were kept
+                level = f"{entry.velocity_rms_mm_s:.2f} mm/s rms ({low:g}-{high:g} Hz)"
+                zone = entry.zone or "-"
             rows.append([str(run.index) if k == 0 else "", entry.sensor, level, zone,
                          verdict if k == 0 else ""])
         if not run.severity and run.unbalance:
@@ -323,7 +325,7 @@ def condition_notes(job: JobRecord) -> list[str]:
     return notes
 
 
-CONDITION_HEADER = ["Run", "Pickup", "Overall (10-1000 Hz)", "Zone", "Is it unbalance?"]
+CONDITION_HEADER = ["Run", "Pickup", "Overall (band)", "Zone", "Is it unbalance?"]
 
 
 def run_rows(job: JobRecord) -> tuple[list[str], list[list[str]]]:

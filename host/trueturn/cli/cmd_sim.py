@@ -7,6 +7,7 @@ from typing import Any
 
 from trueturn.cli.common import print_json
 from trueturn.errors import UserError
+from trueturn.sim.board import run_times
 from trueturn.sim.scenario import Scenario, list_scenarios, load_scenario
 from trueturn.sim.spec import describe, exact_1x, signal_spec
 
@@ -88,6 +89,11 @@ def run_describe(args: argparse.Namespace) -> int:
         where = (f"{lay.positions} fixed positions from {lay.offset_deg:g} deg"
                  if lay.positions else "any angle")
         print(f"plane {p.name}: at {p.axial_mm:g} mm, radius {p.radius_mm:g} mm, {where}")
+    print("support resonances (synchronous critical speeds): "
+          + ", ".join(f"{f:.0f}" for f in sc.rotor.critical_speeds_rpm()) + " rpm")
+    times = run_times(sc, "coastdown")
+    print(f"coast-down: record {times['record_s']:g} s from \"sim://{sc.name}?run=coastdown\" "
+          f"(motor off after {times['switch_s']:g} s)")
     print("exact steady 1x (as-found unbalance, rising tach edge):")
     for e in exact_1x(sc, args.rpm):
         print(f"  ch{e.channel} {e.pickup}: {e.amplitude_counts:.2f} counts = {e.amplitude_v:.4f} V "

@@ -83,6 +83,47 @@ class BoardOptions:
     reset_on_open: bool | None = None
     bootloader: str = "new"  # a key of trueturn.link.boards.BOOTLOADER_WAIT_S
     floating_channel: int | None = None  # this input (0-based) has nothing connected
+    run: str = "steady"  # a key of RUNS: what the motor does after power-up
+
+
+#: ``sim://NAME?run=...``: what the motor does after power-up (see :func:`run_times`).
+RUNS = {
+    "steady": "runs at speed from power-up (or stands still with motor=off)",
+    "coastdown": "at speed, then the motor is switched off and the rotor coasts to a stop",
+    "runup": "at standstill, then the motor is switched on and runs the rotor up to speed",
+}
+
+
+def coast_stop_s(coast_down_s: float) -> float:
+    """Seconds from nominal speed to standstill in the coast-down model of ``_next_omega``.
+
+    ``dw/dt = -w/tau - f`` with ``tau = T/2`` and ``f = w_nom/(2T)`` (T the scenario's
+    ``coast_down_s``) gives ``w(t) = (w_nom + f tau) exp(-t/tau) - f tau``, zero when
+    ``exp(-t/tau) = (w_nom/4)/(5 w_nom/4)``: ``t = tau ln 5 = 0.80 T``.
+    """
+    return coast_down_s / 2.0 * math.log(5.0)
+
+
+def run_times(scenario: Scenario, run: str) -> dict[str, float]:
+    """When a ``run=`` switches the motor and how long a recording should be, seconds.
+
+    ``coastdown``: at speed for a third of the coast-down time, so that a recording of
+    ``record_s`` (switch plus the coast to a stop plus 1 s) is about a quarter at speed.
+    ``runup``: at standstill for a quarter of the recording, then the spin-up (the drive
+    pulls the speed to its target with time constant ``spin_up_s/4``: within 0.5 % after
+    ``ln(200) spin_up_s/4``), then a second at speed.
+    """
+    motor = scenario.motor
+    if run == "coastdown":
+        sweep_s = coast_stop_s(motor.coast_down_s)
+        switch_s = sweep_s / 3.0
+    elif run == "runup":
+        sweep_s = math.log(200.0) * motor.spin_up_s / 4.0
+        switch_s = sweep_s / 3.0
+    else:
+        return {"switch_s": 0.0, "sweep_s": 0.0, "record_s": 0.0}
+    return {"switch_s": round(switch_s, 3), "sweep_s": round(sweep_s, 3),
+            "record_s": round(switch_s + sweep_s + 1.0, 1)}
 
 
 #: ``sim://NAME?tach=...``: what a worn set-up does to the once-per-rev signal. Each fault hits
@@ -163,7 +204,15 @@ class VirtualBoard:
                              "rpm= is for variable-speed scenarios")
         self.target_speed_rpm = self.options.speed_rpm or motor.nominal_speed_rpm()
         self._check_speed(self.target_speed_rpm)
-        self.running = self.options.motor_on
+        if self.options.run not in RUNS:
+            raise ValueError(f"run must be one of {', '.join(RUNS)}")
+        self.running = self.options.motor_on if self.options.run == "steady" \
+            else self.options.run == "coastdown"
+        #: the tick at which a run= switches the motor (None: no switch ahead)
+        self._switch_tick: int | None = None
+        if self.options.run != "steady":
+            switch_s = run_times(scenario, self.options.run)["switch_s"]
+            self._switch_tick = self.tick + int(round(switch_s * TICK_HZ))
         self._omega = rpm_to_rad_s(self.target_speed_rpm) if self.running else 0.0
         self._theta = float(self.rng.uniform(0, TWO_PI))  # shaft angle, rad, 0 = mark at tach
         self._turns = 0  # whole turns before self._theta (non-integer orders need the total)
@@ -182,7 +231,8 @@ class VirtualBoard:
         self._reset_flags = RESET_FLAGS["power_on"]
         self._rx = bytearray()
         self._rx_discarding = False
-        self._response_cache: tuple[float, tuple[Mass, ...], np.ndarray] | None = None
+        # the last two responses solved (a step's two ends)
+        self._response_cache: list[tuple[float, tuple[Mass, ...], np.ndarray]] = []
         if self.options.bootloader not in BOOTLOADER_WAIT_S:
             raise ValueError(f"bootloader must be one of {', '.join(BOOTLOADER_WAIT_S)}")
         self._boot_at: int | None = None  # in the bootloader until this tick
@@ -263,11 +313,13 @@ class VirtualBoard:
         """Switch the virtual motor on; the rotor spins up over the scenario's spin-up time."""
         with self.lock:
             self.running = True
+            self._switch_tick = None  # the person took over from a run=
 
     def motor_stop(self) -> None:
         """Switch the motor off; the rotor coasts down and stops (no more tach edges)."""
         with self.lock:
             self.running = False
+            self._switch_tick = None  # the person took over from a run=
 
     def set_speed_rpm(self, speed_rpm: float) -> None:
         """Set the drive speed (variable-speed scenarios only, within their range)."""
@@ -352,6 +404,12 @@ class VirtualBoard:
                 n = min(STEP_TICKS, tick - self.tick)
                 if self._boot_at is not None:
                     n = max(1, min(n, self._boot_at - self.tick))
+                if self._switch_tick is not None:
+                    if self.tick >= self._switch_tick:  # run=: the motor switches now
+                        self.running = self.options.run == "runup"
+                        self._switch_tick = None
+                    else:
+                        n = max(1, min(n, self._switch_tick - self.tick))
                 self._step(n)
                 if self._boot_at is not None and self.tick >= self._boot_at:
                     self._boot_at = None
@@ -512,8 +570,9 @@ class VirtualBoard:
         """1x volts phasors (project convention) at each channel for the present weights."""
         # The response changes slowly with speed: re-solve when the speed moves by 0.05 rpm.
         key = (round(omega * 60.0 / TWO_PI / 0.05) * 0.05, tuple(self.all_masses()))
-        if self._response_cache is not None and self._response_cache[:2] == key:
-            return self._response_cache[2]
+        for cached in self._response_cache:
+            if cached[:2] == key:
+                return cached[2]
         sc = self.scenario
         if omega <= 0:
             volts = np.zeros(len(sc.rotor.pickups), dtype=complex)
@@ -521,7 +580,8 @@ class VirtualBoard:
             resp = sc.rotor.response_1x(key[0], list(key[1]))
             volts = np.array([sc.pickup_volts(resp[p.name], i)
                               for i, p in enumerate(sc.rotor.pickups)])
-        self._response_cache = (key[0], key[1], volts)
+        self._response_cache = [self._response_cache[-1], (key[0], key[1], volts)] \
+            if self._response_cache else [(key[0], key[1], volts)]
         return volts
 
     def _step(self, n_ticks: int) -> None:
@@ -541,7 +601,7 @@ class VirtualBoard:
         self._tach_events(t0_tick, t1_tick, theta0, omega0, accel, events)
         s = self._stream
         if s.streaming:
-            self._sample_events(t0_tick, t1_tick, theta_at, 0.5 * (omega0 + omega1), events)
+            self._sample_events(t0_tick, t1_tick, theta_at, omega0, omega1, events)
         while self._next_status_tick < t1_tick:
             events.append((self._next_status_tick, 2, "status", {}))
             self._next_status_tick += STATUS_PERIOD_TICKS
@@ -623,8 +683,8 @@ class VirtualBoard:
             self._counters["tach_suppressed"] += 1
 
     def _sample_events(self, t0_tick: int, t1_tick: int,
-                       theta_at: Callable[[np.ndarray | int], np.ndarray], omega: float,
-                       events: list) -> None:
+                       theta_at: Callable[[np.ndarray | int], np.ndarray], omega0: float,
+                       omega1: float, events: list) -> None:
         s = self._stream
         period = s.period_ticks
         first = max(s.next_index, -(-(t0_tick - s.start_tick) // period))
@@ -633,7 +693,9 @@ class VirtualBoard:
             return
         index = np.arange(first, last + 1, dtype=np.int64)
         ticks = s.start_tick + index * period
-        volts = self._voltages(index % s.channels, ticks, theta_at(ticks), omega)
+        share = (ticks - t0_tick) / float(t1_tick - t0_tick)  # of the step, per sample
+        volts = self._voltages(index % s.channels, ticks, theta_at(ticks), omega0, omega1,
+                               share)
         if self.options.floating_channel is not None:
             self._float(volts, index % s.channels)
         counts = np.clip(np.rint(volts / ADC_REFERENCE_V * ADC_COUNTS_PER_REFERENCE), 0,
@@ -668,13 +730,19 @@ class VirtualBoard:
         self._last_volts = prev
 
     def _voltages(self, channel: np.ndarray, ticks: np.ndarray, theta: np.ndarray,
-                  omega: float) -> np.ndarray:
+                  omega0: float, omega1: float, share: np.ndarray) -> np.ndarray:
+        """Each conversion's volts; the 1x is the steady response at the speed of the moment
+        (quasi-steady: interpolated across the step between the responses at its two ends,
+        so a coast-down or run-up sweeps the response smoothly; the build-up of a lightly
+        damped resonance during a fast sweep is not modelled)."""
         sc = self.scenario
         sig = sc.signals
         scale = self.options.noise_scale
         t_s = ticks.astype(np.float64) / TICK_HZ
         out = np.zeros(len(ticks))
-        one_x = self._pickup_phasors_v(omega)
+        omega = 0.5 * (omega0 + omega1)
+        one_x0 = self._pickup_phasors_v(omega0)
+        one_x1 = one_x0 if omega1 == omega0 else self._pickup_phasors_v(omega1)
         speed_ratio_sq = (omega / rpm_to_rad_s(sc.speed_rpm)) ** 2
         line = sc.motor.mains_hz
         for ch in range(int(channel.max()) + 1 if len(channel) else 0):
@@ -685,9 +753,10 @@ class VirtualBoard:
                 continue
             el = sc.electrical[ch]
             v_per_g = el.sensitivity_v_per_g
-            p = one_x[ch]
-            # A cos(theta - phi) with the project phasor A e^{i phi}
-            v = el.zero_g_v + np.abs(p) * np.cos(th - np.angle(p))
+            w = share[sel]
+            p = one_x0[ch] + w * (one_x1[ch] - one_x0[ch])
+            # A cos(theta - phi) with the project phasor p = A e^{i phi}
+            v = el.zero_g_v + np.real(p) * np.cos(th) + np.imag(p) * np.sin(th)
             for k, h in enumerate(sig.harmonics + sig.tones):
                 amp_v = h.amplitude_g * v_per_g * scale
                 if not amp_v:

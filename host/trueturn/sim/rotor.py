@@ -26,6 +26,7 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
+import scipy.linalg
 
 from trueturn.constants import STANDARD_GRAVITY_M_S2
 from trueturn.model.fields import limits
@@ -212,6 +213,28 @@ class RigidRotor:
     def plane(self, name: str) -> CorrectionPlane:
         """The correction plane called ``name``."""
         return self.planes[self._plane_index[name]]
+
+    def critical_speeds_rpm(self) -> list[float]:
+        """Undamped synchronous critical speeds (rpm): where a 1x forcing meets a natural
+        frequency of the rotor on its supports, gyroscopic coupling included.
+
+        With the whirl at the shaft speed ``w`` the gyroscopic term ``i w G(w)`` is
+        ``-w^2 (-i Gp)`` (``G`` grows with ``w``), so the undamped 1x response is unbounded
+        where ``det(K - w^2 (M - i Gp)) = 0``: the generalised eigenvalues ``w^2`` of
+        ``(K, M - i Gp)``, a Hermitian pencil with real eigenvalues. A tilt mode whose polar
+        inertia exceeds its transverse inertia (a disc) has no forward critical speed (no
+        positive eigenvalue). From memory: Vance, *Rotordynamics of Turbomachinery*,
+        synchronous critical speeds of a rigid rotor on flexible supports.
+        """
+        dyn0, _ = self._matrices(0.0)
+        mass = np.diag([self.mass_kg, self.transverse_inertia_kg_m2,
+                        self.mass_kg, self.transverse_inertia_kg_m2]).astype(complex)
+        mass[1, 3] -= 1j * self.polar_inertia_kg_m2
+        mass[3, 1] += 1j * self.polar_inertia_kg_m2
+        eig = scipy.linalg.eigvals(dyn0.real, mass)
+        out = [float(math.sqrt(e.real)) * 60.0 / (2 * math.pi) for e in eig
+               if np.isfinite(e) and e.real > 0 and abs(e.imag) <= 1e-9 * abs(e.real)]
+        return sorted(out)
 
     def natural_frequencies_hz(self, speed_rpm: float = 0.0) -> list[float]:
         """Undamped natural frequencies (Hz) of the rigid-body modes, gyroscopics ignored."""

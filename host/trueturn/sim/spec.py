@@ -16,6 +16,7 @@ from typing import Any
 from trueturn.angles import amplitude_phase
 from trueturn.errors import UserError
 from trueturn.link.catalogue import load_catalogue
+from trueturn.sim.board import run_times
 from trueturn.sim.rotor import STANDARD_GRAVITY_M_S2, Mass
 from trueturn.sim.scenario import (
     ADC_COUNTS_PER_REFERENCE,
@@ -145,6 +146,11 @@ def describe(scenario: Scenario, speed_rpm: float | None = None) -> dict[str, An
                   "centre_of_mass_axial_mm": r.centre_of_mass_axial_mm,
                   "nonlinearity": r.nonlinearity, "tach_direction_deg": r.tach_direction_deg,
                   "rigid_body_modes_hz": [round(f, 2) for f in r.natural_frequencies_hz()]},
+        # the support resonances a 1x sweep meets (synchronous critical speeds, gyroscopic
+        # coupling included; RigidRotor.critical_speeds_rpm)
+        "resonances_rpm": [round(f, 1) for f in r.critical_speeds_rpm()],
+        # sim://NAME?run=coastdown|runup: when the motor switches and how long to record
+        "runs": {run: run_times(sc, run) for run in ("coastdown", "runup")},
         "bearings": [b.__dict__ for b in r.bearings],
         "planes": [{**p.__dict__,
                     "positions_deg": list(sc.balancing_planes[p.name].position_angles_deg),

@@ -26,6 +26,10 @@
 ``floating=1|2``   that pickup input has nothing connected: it reads a ghost copy of the
                    conversion before it (trueturn.sim.board.FLOATING_CARRY), as an open
                    AVR ADC input does.
+``run=steady|coastdown|runup``  what the motor does: runs at speed (default);
+                   coastdown: at speed, then switched off, the rotor coasting to a stop;
+                   runup: at standstill, then switched on (trueturn.sim.board.run_times says
+                   when, and how long a recording covers it: ``trueturn sim describe``).
 ``bootloader=new|old``  with reset_on_open=1: the newer bootloader (waits about 0.5 s) or
                    the old Nano one (about 1.5 s); trueturn.link.boards.BOOTLOADER_WAIT_S.
 
@@ -51,6 +55,7 @@ from trueturn.link.boards import BOOTLOADER_WAIT_S
 from trueturn.link.handlers.virtual import VirtualLineSerial
 from trueturn.sim.board import (
     RESET_FLAGS,
+    RUNS,
     STEP_TICKS,
     TACH_FAULTS,
     TICK_HZ,
@@ -64,7 +69,7 @@ if TYPE_CHECKING:
 
 _USAGE = ('expected "sim://NAME[?realtime=0|1&pace=F&seed=N&rpm=R&motor=on|off&noise=F'
           '&unbalance=as-found|none&tick0=T&tach=none|missing|double|knocked|off|chatter'
-          '&reset_on_open=0|1&bootloader=new|old&floating=1|2]"')
+          '&reset_on_open=0|1&bootloader=new|old&floating=1|2&run=steady|coastdown|runup]"')
 
 
 class Rig(VirtualBoard):
@@ -168,10 +173,16 @@ class Serial(VirtualLineSerial):
                     if value not in ("1", "2"):
                         raise ValueError("floating must be 1 or 2 (the pickup input left open)")
                     opts.floating_channel = int(value) - 1
+                elif key == "run":
+                    if value not in RUNS:
+                        raise ValueError(f"run must be one of {', '.join(RUNS)}")
+                    opts.run = value
                 elif key == "tick0":
                     opts.tick0 = int(_number(key, value, 0, 2**32 - 1, whole=True))
                 else:
                     raise ValueError(f"unknown option {key!r}")
+            if opts.run != "steady" and "motor" in urllib.parse.parse_qs(query):
+                raise ValueError("give run= or motor=, not both (a run switches the motor)")
         except ValueError as exc:
             raise SerialException(f"{_USAGE}: {exc}") from None
         return name, opts

@@ -806,6 +806,48 @@ class LiveAnalyzer:
             out.append(self._reading(c, last, stream))
         return out
 
+    def revolution_vectors(self, c: int, unit: str | None = None
+                           ) -> tuple[np.ndarray, np.ndarray, np.ndarray, str]:
+        """Each held revolution's own 1x at one pickup, for a sweep (:mod:`trueturn.dsp.sweep`).
+
+        Parameters
+        ----------
+        c : int
+            Channel index, from 0.
+        unit : str or None, default None
+            A key of :data:`trueturn.dsp.units.UNITS`; None takes the meter's unit or the
+            profile's default.
+
+        Returns
+        -------
+        tuple
+            ``(speeds_rpm, phasors, sigmas, unit_used)``: per revolution (oldest first) its
+            speed (rpm), its 1x phasor converted at its own speed, and the standard error of
+            each of the phasor's components from the fit's residual noise,
+            ``noise sqrt(2 / samples)`` (both in ``unit_used``).
+
+        References
+        ----------
+        .. [1] Least-squares sinusoid amplitude variance ``2 sigma^2 / N`` per component in
+           white noise (S. M. Kay, "Fundamentals of Statistical Signal Processing: Estimation
+           Theory", 1993; from memory); order fit as :meth:`readings`.
+        """
+        self._process()
+        empty = np.zeros(0)
+        if c >= self.channels or not len(self._rows[c]):
+            return empty, empty.astype(complex), empty, unit or self.unit or "V pk"
+        rows = self._stacked(c, None)
+        est = solve_orders(BlockFit(self.orders, self._nuisance_hz(), **rows))
+        good = np.isfinite(rows["coef_y"]).all(axis=1)
+        speeds = self.speeds_rpm()[-len(good):][good]
+        profile = self.profile(c)
+        factors, used = conversion_factors(profile, speeds / 60.0,
+                                           unit or self.unit or default_unit(profile))
+        vectors = est.phasors[:, self.orders.index(1)] * self.volts_per_count * factors
+        counts = np.maximum(rows["sample_counts"][good].astype(float), 1.0)
+        sigmas = est.noise_rms * self.volts_per_count * np.abs(factors) * np.sqrt(2.0 / counts)
+        return speeds, vectors, sigmas, used
+
     def _reading(self, c: int, last: int | None, stream: tuple[Finding, ...]) -> PickupReading:
         rows = self._stacked(c, last)
         est = solve_orders(BlockFit(self.orders, self._nuisance_hz(), **rows))

@@ -1,0 +1,465 @@
+"""Coast-down and run-up sweeps: the 1x against speed, support resonances and their damping.
+
+A capture whose speed changes (the motor switched off and the rotor coasting down, or a
+run-up) holds the machine's 1x response at every speed it passed. Each revolution's 1x
+phasor comes from the same tach-synchronous least-squares fit as a steady reading
+(:mod:`trueturn.dsp.order`); this module takes those per-revolution phasors and speeds and
+
+* bins them on a logarithmic speed grid (:data:`BIN_FRACTION` wide: 0.5 %) and averages the
+  phasors in each bin: the sweep's points (amplitude and phase per pickup, with a 95 %
+  circle from the fit's own noise);
+* finds the support resonances (critical speeds) per pickup by the **half-power
+  bandwidth** method on the response per unit unbalance force, and their damping ratio;
+* gives the local slope of the response with speed (amplitude exponent
+  ``d ln|H| / d ln n`` and phase slope ``d phi / d ln n``) for normalising runs taken a
+  little apart in speed (:mod:`trueturn.balance.speed`).
+
+Unbalance forcing grows with speed squared (``F = m e omega^2``), so the measured 1x is
+divided by ``n^2`` before the half-power method; an accelerometer adds ``omega^2`` more
+(acceleration = ``omega^2`` x displacement) and a velocity reading ``omega``: the response is
+divided by ``n^4`` (acceleration, and volts of an accelerometer), ``n^3`` (velocity) or
+``n^2`` (displacement). What is left is the support's receptance (displacement per unit
+force) times a constant, to which the single-degree-of-freedom half-power rule applies:
+``zeta = (n2^2 - n1^2) / (4 nr^2)`` with ``n1``, ``n2`` the speeds where the normalised
+amplitude is ``1/sqrt(2)`` of its peak at ``nr`` (about ``(n2 - n1) / (2 nr)`` for light
+damping).
+
+The method assumes well separated, lightly damped modes (each peak dominated by one mode)
+and a sweep slow enough that the response is steady at each speed; a fast sweep through
+a lightly damped resonance lags and lowers its peak. The damping is given only when at
+least :data:`MIN_POINTS_IN_BAND` measured points lie inside the half-power band;
+otherwise it is null (the sweep went through the resonance too fast to resolve it).
+
+References
+----------
+.. [1] D. J. Ewins, *Modal Testing: Theory, Practice and Application*, 2nd ed., Research
+   Studies Press, 2000, sec. 4.2 (SDOF modal analysis: the peak-amplitude / half-power
+   method) (from memory).
+.. [2] S. S. Rao, *Mechanical Vibrations*, sec. "Response of a damped system under
+   rotating unbalance" and "quality factor and bandwidth" (from memory).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.signal import find_peaks
+
+from trueturn.dsp.units import UNITS
+
+#: width of one speed bin, as a fraction of the speed (log-spaced bins): fine enough that a
+#: resonance with 5 % damping (half-power band 10 % wide) spans about 20 bins
+BIN_FRACTION = 0.005
+#: a capture is a sweep when its fastest good revolution is at least this much faster than
+#: its slowest (a steady run wanders by well under 1 %; common practice, no source)
+MIN_SWEEP_RATIO = 1.3
+#: and when it gives at least this many points (the issue's ">= 20 points" on a coast-down)
+MIN_SWEEP_POINTS = 10
+#: a point's 1x is used for resonances and slopes only when its amplitude is at least this
+#: many times its 95 % circle (phase then known within +/-30 degrees): below that the
+#: normalised response (divided by up to n^4) is noise
+MIN_SIGNAL_TO_CIRCLE = 2.0
+#: half-power: a peak must stand at least sqrt(2) above the valleys on both sides
+HALF_POWER_LOG = 0.5 * math.log(2.0)
+#: the damping is given only when the half-power band holds this many measured points
+MIN_POINTS_IN_BAND = 3
+#: a single-degree-of-freedom resonance turns the phase by 90 degrees between its half-power
+#: points (180 through the whole resonance); a peak whose phase turns by less than half that
+#: across its band is two modes' responses adding up, not a resonance, and is not reported
+MIN_PHASE_TURN_DEG = 45.0
+#: 95 % radius of a circular normal scatter, in standard deviations per component:
+#: sqrt(-2 ln 0.05) (Rayleigh quantile)
+CIRCLE_95_PER_SIGMA = math.sqrt(-2.0 * math.log(0.05))
+#: local slope: points within this fraction below/above the speed are fitted
+SLOPE_WINDOW_FRACTION = 0.04
+MIN_SLOPE_POINTS = 3
+
+#: what the normalisation divides by, per quantity of the reading's unit: force ~ n^2 times
+#: the pickup's own omega^k (volts: an accelerometer's output, as acceleration)
+NORMALISING_POWER = {"volts": 4, "acceleration": 4, "velocity": 3, "displacement": 2}
+
+
+@dataclass(frozen=True)
+class SweepValue:
+    """One pickup's 1x at one sweep point: amplitude (the sweep's unit), phase (degrees,
+    lag after the tach edge, :mod:`trueturn.angles`), 95 % circle radius (unit)."""
+
+    name: str
+    amplitude: float
+    phase_deg: float
+    confidence_radius: float
+
+    @property
+    def usable(self) -> bool:
+        """Whether the 1x stands clear of its circle (:data:`MIN_SIGNAL_TO_CIRCLE`)."""
+        return self.amplitude >= MIN_SIGNAL_TO_CIRCLE * self.confidence_radius
+
+
+@dataclass(frozen=True)
+class SweepPoint:
+    """The mean speed (rpm) of one speed bin, the revolutions in it and each pickup's 1x."""
+
+    speed_rpm: float
+    revolutions: int
+    pickups: tuple[SweepValue, ...]
+
+    def value(self, name: str) -> SweepValue | None:
+        return next((v for v in self.pickups if v.name == name), None)
+
+
+@dataclass(frozen=True)
+class Resonance:
+    """A support resonance found at one pickup by the half-power method.
+
+    ``speed_rpm`` the peak of the normalised response; ``damping_ratio`` from the band
+    ``lower_rpm``..``upper_rpm`` (None, with the band's edges None, when fewer than
+    :data:`MIN_POINTS_IN_BAND` points lie in it or an edge is outside the sweep);
+    ``points_in_band`` the measured points inside; ``peak_ratio`` how far the peak stands
+    above the lower of its two valleys (amplitude ratio).
+    """
+
+    speed_rpm: float
+    pickup: str
+    damping_ratio: float | None
+    lower_rpm: float | None
+    upper_rpm: float | None
+    points_in_band: int
+    peak_ratio: float
+    method: str = "half_power"
+
+
+@dataclass(frozen=True)
+class SpeedSlope:
+    """The local response slope at ``speed_rpm`` at one pickup: ``amplitude_exponent``
+    ``p = d ln|H| / d ln n`` (1x ~ n^p nearby) and ``phase_deg_per_ln_speed``
+    ``q = d phi / d ln n`` (phase lag in degrees; the phase at ``n2`` is about
+    ``phi(n1) + q ln(n2/n1)``), from ``points`` sweep points."""
+
+    pickup: str
+    speed_rpm: float
+    amplitude_exponent: float
+    phase_deg_per_ln_speed: float
+    points: int
+
+
+@dataclass(frozen=True)
+class Sweep:
+    """A sweep: its unit, points (slowest first), resonances, and whether it is one.
+
+    ``is_sweep`` False: the capture's speed did not change enough (``low_rpm``/``high_rpm``
+    say how much it did); the points are still given, no resonance is looked for.
+    """
+
+    unit: str
+    points: tuple[SweepPoint, ...]
+    resonances: tuple[Resonance, ...]
+    low_rpm: float
+    high_rpm: float
+    is_sweep: bool
+
+
+def bin_revolutions(speeds_rpm: np.ndarray, phasors: Mapping[str, np.ndarray],
+                    sigmas: Mapping[str, np.ndarray], unit: str = "V pk",
+                    bin_fraction: float = BIN_FRACTION) -> tuple[SweepPoint, ...]:
+    """Average per-revolution 1x phasors on a logarithmic speed grid.
+
+    Parameters
+    ----------
+    speeds_rpm : numpy.ndarray
+        Each revolution's mean speed, rpm, shape (R,).
+    phasors : mapping of str to numpy.ndarray
+        Per pickup name, each revolution's 1x phasor (complex, shape (R,)), in ``unit``.
+    sigmas : mapping of str to numpy.ndarray
+        Per pickup name, each revolution's standard error per component (unit), shape (R,).
+    unit : str, default "V pk"
+        The unit of the phasors (a key of :data:`trueturn.dsp.units.UNITS`).
+    bin_fraction : float, default 0.005
+        Width of a speed bin as a fraction of the speed.
+
+    Returns
+    -------
+    tuple of SweepPoint
+        One per non-empty bin, slowest first: mean speed, revolutions, and per pickup the
+        mean phasor's amplitude, phase and 95 % circle (``2.45 sqrt(sum sigma^2) / n``).
+
+    Raises
+    ------
+    ValueError
+        When the arrays' lengths differ, ``bin_fraction`` is not positive, a speed is not
+        positive and finite, or ``unit`` is unknown.
+
+    References
+    ----------
+    .. [1] Tach-synchronous (order-tracked) 1x per revolution averaged over a speed bin:
+       common practice of run-up/coast-down (Bode) measurement, no source.
+    .. [2] 95 % radius of a circular normal scatter, ``sigma sqrt(-2 ln 0.05)`` (Rayleigh
+       distribution quantile; from memory).
+    """
+    speeds = np.asarray(speeds_rpm, dtype=float)
+    if not bin_fraction > 0:
+        raise ValueError(f"bin_fraction must be positive, got {bin_fraction!r}")
+    if unit not in UNITS:
+        raise ValueError(f"unknown unit {unit!r}")
+    if speeds.size and not (np.isfinite(speeds).all() and (speeds > 0).all()):
+        raise ValueError("speeds_rpm must be positive and finite")
+    for name in phasors:
+        if len(phasors[name]) != speeds.size or len(sigmas[name]) != speeds.size:
+            raise ValueError(f"pickup {name!r}: phasors and sigmas need one value per speed")
+    if not speeds.size:
+        return ()
+    index = np.floor(np.log(speeds) / math.log1p(bin_fraction)).astype(np.int64)
+    points = []
+    for b in np.unique(index):
+        sel = index == b
+        n = int(sel.sum())
+        values = []
+        for name in phasors:
+            mean = complex(np.asarray(phasors[name])[sel].mean())
+            sigma = math.sqrt(float(np.sum(np.asarray(sigmas[name])[sel] ** 2))) / n
+            values.append(SweepValue(name, abs(mean),
+                                     math.degrees(math.atan2(mean.imag, mean.real)) % 360.0,
+                                     CIRCLE_95_PER_SIGMA * sigma))
+        points.append(SweepPoint(float(speeds[sel].mean()), n, tuple(values)))
+    return tuple(points)
+
+
+def normalised_response(speeds_rpm: np.ndarray, amplitudes: np.ndarray,
+                        unit: str) -> np.ndarray:
+    """The 1x per unit unbalance force, up to a constant: ``|R| / n^k``.
+
+    ``k`` is 2 for the force (``m e omega^2``) plus the pickup's own power of omega:
+    4 for acceleration (and volts, taken as an accelerometer's output), 3 for velocity,
+    2 for displacement (:data:`NORMALISING_POWER`).
+
+    Parameters
+    ----------
+    speeds_rpm : numpy.ndarray
+        Speeds, rpm.
+    amplitudes : numpy.ndarray
+        1x amplitudes in ``unit``.
+    unit : str
+        A key of :data:`trueturn.dsp.units.UNITS`.
+
+    Returns
+    -------
+    numpy.ndarray
+        ``amplitudes / (speeds_rpm / 1000) ** k`` (the 1000 keeps the numbers readable).
+
+    References
+    ----------
+    .. [1] S. S. Rao, *Mechanical Vibrations*, rotating unbalance: ``X = m e omega^2 /
+       sqrt((k - M omega^2)^2 + (c omega)^2)`` (from memory).
+    """
+    if unit not in UNITS:
+        raise ValueError(f"unknown unit {unit!r}")
+    power = NORMALISING_POWER[UNITS[unit][0]]
+    return np.asarray(amplitudes, dtype=float) / (np.asarray(speeds_rpm, dtype=float)
+                                                  / 1000.0) ** power
+
+
+def half_power_resonances(speeds_rpm: np.ndarray, response: np.ndarray,
+                          pickup: str = "", phases_deg: np.ndarray | None = None
+                          ) -> list[Resonance]:
+    """Resonances of a normalised response by the half-power bandwidth method.
+
+    A peak counts when it stands at least ``sqrt(2)`` above the lowest point between it
+    and a higher peak (or the end of the data) on both sides (its prominence, found with
+    :func:`scipy.signal.find_peaks` on ``ln response``). Its speed is the vertex of the
+    parabola through the peak point and its two neighbours (``ln response`` against
+    ``ln n``); the half-power speeds ``n1``, ``n2`` are where ``ln response`` falls
+    ``ln sqrt(2)`` below that vertex, linearly interpolated between the measured points;
+    ``zeta = (n2^2 - n1^2) / (4 nr^2)``.
+
+    Parameters
+    ----------
+    speeds_rpm : numpy.ndarray
+        Speeds of the usable points, rpm, increasing.
+    response : numpy.ndarray
+        The normalised response there (:func:`normalised_response`), positive.
+    pickup : str, default ""
+        The pickup's name, carried into each :class:`Resonance`.
+    phases_deg : numpy.ndarray or None, default None
+        The 1x phase at each point, degrees. When given, a peak whose phase turns by less
+        than :data:`MIN_PHASE_TURN_DEG` between its half-power points (or, when the band is
+        not resolved, between the points either side of the peak) is left out.
+
+    Returns
+    -------
+    list of Resonance
+        Slowest first; damping None when the band holds fewer than
+        :data:`MIN_POINTS_IN_BAND` points.
+
+    Raises
+    ------
+    ValueError
+        When the speeds do not increase or the response is not positive and finite.
+
+    References
+    ----------
+    .. [1] D. J. Ewins, *Modal Testing: Theory, Practice and Application*, 2nd ed., 2000,
+       sec. 4.2, peak-amplitude (half-power) method: ``eta_r = (omega_b^2 - omega_a^2) /
+       (2 omega_r^2)``, ``zeta = eta / 2`` (from memory).
+    .. [2] S. S. Rao, *Mechanical Vibrations*, quality factor and bandwidth:
+       ``Q = 1 / (2 zeta) ~ omega_n / (omega_2 - omega_1)`` (from memory).
+    """
+    n = np.asarray(speeds_rpm, dtype=float)
+    r = np.asarray(response, dtype=float)
+    if n.size != r.size:
+        raise ValueError("speeds_rpm and response need the same length")
+    if n.size < 3:
+        return []
+    if not (np.all(np.diff(n) > 0) and np.isfinite(r).all() and (r > 0).all()):
+        raise ValueError("speeds must increase and the response must be positive and finite")
+    log_r = np.log(r)
+    log_n = np.log(n)
+    peaks, props = find_peaks(log_r, prominence=HALF_POWER_LOG)
+    out = []
+    for k, i in enumerate(peaks):
+        top_log_n, top = _vertex(log_n[i - 1:i + 2], log_r[i - 1:i + 2])
+        level = top - HALF_POWER_LOG
+        lower = _crossing(log_n, log_r, i, level, -1)
+        upper = _crossing(log_n, log_r, i, level, +1)
+        speed = math.exp(top_log_n)
+        inside = 0
+        zeta = None
+        if lower is not None and upper is not None:
+            inside = int(np.count_nonzero((log_n >= lower) & (log_n <= upper)))
+            if inside >= MIN_POINTS_IN_BAND:
+                zeta = (math.exp(2 * upper) - math.exp(2 * lower)) / (4.0 * speed * speed)
+        if phases_deg is not None:
+            unwrapped = np.degrees(np.unwrap(np.radians(np.asarray(phases_deg, dtype=float))))
+            if zeta is not None and lower is not None and upper is not None:
+                turn = float(np.interp(upper, log_n, unwrapped) - np.interp(lower, log_n,
+                                                                             unwrapped))
+            else:
+                turn = float(unwrapped[min(i + 1, len(n) - 1)] - unwrapped[i - 1])
+            if abs(turn) < MIN_PHASE_TURN_DEG:
+                continue
+        out.append(Resonance(
+            speed_rpm=speed, pickup=pickup, damping_ratio=zeta,
+            lower_rpm=math.exp(lower) if zeta is not None and lower is not None else None,
+            upper_rpm=math.exp(upper) if zeta is not None and upper is not None else None,
+            points_in_band=inside, peak_ratio=math.exp(float(props["prominences"][k]))))
+    return out
+
+
+def _vertex(x: np.ndarray, y: np.ndarray) -> tuple[float, float]:
+    """Vertex (x, y) of the parabola through three points (the middle one the highest)."""
+    coef = np.polyfit(x, y, 2)
+    if coef[0] >= 0:  # not a maximum (cannot happen for a strict local peak): the point
+        return float(x[1]), float(y[1])
+    xv = -coef[1] / (2.0 * coef[0])
+    xv = min(max(xv, float(x[0])), float(x[2]))  # stays between the neighbours
+    return float(xv), float(np.polyval(coef, xv))
+
+
+def _crossing(x: np.ndarray, y: np.ndarray, start: int, level: float, step: int) -> float | None:
+    """Where ``y`` first falls below ``level`` walking from ``start`` by ``step``, linearly
+    interpolated in ``x``; None when it never does within the data."""
+    a = start
+    while 0 <= a + step < len(y):
+        b = a + step
+        if y[b] < level:
+            if y[a] < level:  # the start itself is below (a vertex far above a sparse peak)
+                return float(x[a])
+            t = (y[a] - level) / (y[a] - y[b])
+            return float(x[a] + t * (x[b] - x[a]))
+        a = b
+    return None
+
+
+def local_slope(points: Sequence[SweepPoint], pickup: str, speed_rpm: float,
+                window_fraction: float = SLOPE_WINDOW_FRACTION) -> SpeedSlope | None:
+    """The response's local slope with speed at one pickup, from the sweep points nearby.
+
+    A least-squares line of ``ln|R|`` and of the unwrapped phase against ``ln n`` through
+    the usable points within ``window_fraction`` of ``speed_rpm`` (either side).
+
+    Parameters
+    ----------
+    points : sequence of SweepPoint
+        The sweep, slowest first.
+    pickup : str
+        The pickup's name.
+    speed_rpm : float
+        Where the slope is wanted, rpm.
+    window_fraction : float, default 0.04
+        Half-width of the window, fraction of ``speed_rpm``.
+
+    Returns
+    -------
+    SpeedSlope or None
+        None when fewer than :data:`MIN_SLOPE_POINTS` usable points lie in the window or
+        they span less than 0.5 % in speed.
+
+    References
+    ----------
+    .. [1] Least-squares straight line (any statistics text); the local power law
+       ``|H| ~ n^p`` as the tangent of ``ln|H|`` against ``ln n`` (common practice, no
+       source).
+    """
+    if not (math.isfinite(speed_rpm) and speed_rpm > 0):
+        return None
+    lo, hi = speed_rpm * (1 - window_fraction), speed_rpm * (1 + window_fraction)
+    chosen = [(p.speed_rpm, v) for p in points if lo <= p.speed_rpm <= hi
+              for v in (p.value(pickup),) if v is not None and v.usable and v.amplitude > 0]
+    if len(chosen) < MIN_SLOPE_POINTS:
+        return None
+    x = np.log([s for s, _ in chosen])
+    if x.max() - x.min() < math.log(1.005):
+        return None
+    amp = np.log([v.amplitude for _, v in chosen])
+    phase = np.unwrap(np.radians([v.phase_deg for _, v in chosen]))
+    p = float(np.polyfit(x, amp, 1)[0])
+    q = math.degrees(float(np.polyfit(x, phase, 1)[0]))
+    return SpeedSlope(pickup, speed_rpm, p, q, len(chosen))
+
+
+def analyse_sweep(speeds_rpm: np.ndarray, phasors: Mapping[str, np.ndarray],
+                  sigmas: Mapping[str, np.ndarray], unit: str = "V pk",
+                  min_ratio: float = MIN_SWEEP_RATIO) -> Sweep:
+    """Bin a capture's per-revolution 1x into a sweep and find its resonances per pickup.
+
+    Parameters
+    ----------
+    speeds_rpm : numpy.ndarray
+        Each revolution's speed, rpm.
+    phasors : mapping of str to numpy.ndarray
+        Per pickup, each revolution's 1x phasor in ``unit``.
+    sigmas : mapping of str to numpy.ndarray
+        Per pickup, each revolution's standard error per component, ``unit``.
+    unit : str, default "V pk"
+        A key of :data:`trueturn.dsp.units.UNITS`.
+    min_ratio : float, default 1.3
+        The fastest revolution must be this many times the slowest for a sweep.
+
+    Returns
+    -------
+    Sweep
+        The points, slowest first, and the resonances (none unless it is a sweep).
+
+    References
+    ----------
+    .. [1] See :func:`bin_revolutions` and :func:`half_power_resonances` (Ewins 2000, Rao);
+       the phase turn through a resonance: Ewins, sec. 2.2 (SDOF phase), from memory.
+    """
+    points = bin_revolutions(speeds_rpm, phasors, sigmas, unit)
+    speeds = np.asarray(speeds_rpm, dtype=float)
+    low = float(speeds.min()) if speeds.size else math.nan
+    high = float(speeds.max()) if speeds.size else math.nan
+    is_sweep = bool(speeds.size) and high >= min_ratio * low and len(points) >= MIN_SWEEP_POINTS
+    found: list[Resonance] = []
+    if is_sweep:
+        for name in phasors:
+            used = [(p.speed_rpm, v.amplitude, v.phase_deg) for p in points
+                    for v in (p.value(name),) if v is not None and v.usable and v.amplitude > 0]
+            if len(used) < 3:
+                continue
+            n = np.array([u[0] for u in used])
+            found += half_power_resonances(n, normalised_response(
+                n, np.array([u[1] for u in used]), unit), name, np.array([u[2] for u in used]))
+    found.sort(key=lambda r: (r.speed_rpm, r.pickup))
+    return Sweep(unit, points, tuple(found), low, high, is_sweep)

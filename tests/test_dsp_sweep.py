@@ -1,0 +1,151 @@
+"""Sweeps (dsp/sweep.py): resonance speed and damping against the closed-form response of a
+single-degree-of-freedom system to a rotating unbalance, and the local slope.
+
+Sources:
+- S. S. Rao, *Mechanical Vibrations*, "Response of a damped system under rotating
+  unbalance": ``M X / (m e) = r^2 / ((1 - r^2) + i 2 zeta r)``, ``r = omega / omega_n``
+  (from memory); the accelerometer sees ``omega^2 X``.
+- D. J. Ewins, *Modal Testing: Theory, Practice and Application* (2000), sec. 4.2: the
+  half-power points and ``eta = (omega_b^2 - omega_a^2) / (2 omega_r^2)`` (from memory).
+- The issue's acceptance: natural speed within 2 %, damping within 20 %.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+
+from trueturn.dsp.sweep import (
+    MIN_SIGNAL_TO_CIRCLE,
+    analyse_sweep,
+    bin_revolutions,
+    half_power_resonances,
+    local_slope,
+    normalised_response,
+)
+
+
+def sdof_acceleration(speeds_rpm: np.ndarray, natural_rpm: float, zeta: float) -> np.ndarray:
+    """Rao's rotating-unbalance response as acceleration phasors (project convention: the
+    phasor of Re(X e^{i w t}) is conj(X), phase = lag)."""
+    r = np.asarray(speeds_rpm) / natural_rpm
+    x = r ** 2 / ((1 - r ** 2) + 2j * zeta * r)
+    return np.conj(-(np.asarray(speeds_rpm) / 1000.0) ** 2 * x)
+
+
+def coast(natural_rpm: float, zeta: float, step: float, noise: float = 0.0,
+          seed: int = 0) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """One 'revolution' per speed, log-spaced ``step`` apart, from 0.3 to 3.6 x natural."""
+    speeds = natural_rpm * 0.3 * np.exp(np.arange(0.0, math.log(12.0), step))
+    rng = np.random.default_rng(seed)
+    clean = sdof_acceleration(speeds, natural_rpm, zeta)
+    noisy = clean + noise * (rng.normal(size=speeds.size) + 1j * rng.normal(size=speeds.size))
+    return speeds, noisy, np.full(speeds.size, max(noise, 1e-12))
+
+
+@pytest.mark.parametrize("zeta", [0.02, 0.05, 0.1])
+@pytest.mark.parametrize("natural_rpm", [850.0, 1000.0, 2400.0])
+def test_half_power_recovers_natural_speed_and_damping_of_rao_sdof(natural_rpm: float,
+                                                                    zeta: float) -> None:
+    # Rao (rotating unbalance) + Ewins (half-power); acceptance: 2 % and 20 %
+    speeds, a, sig = coast(natural_rpm, zeta, 0.004)
+    sweep = analyse_sweep(speeds, {"p": a}, {"p": sig}, "g pk")
+    assert sweep.is_sweep
+    [res] = sweep.resonances
+    assert res.speed_rpm == pytest.approx(natural_rpm, rel=0.02)
+    assert res.damping_ratio == pytest.approx(zeta, rel=0.20)
+    assert res.lower_rpm < res.speed_rpm < res.upper_rpm
+
+
+def test_half_power_with_noise_still_within_the_acceptance() -> None:
+    # 1 % noise on the peak-free part of the curve at 1 point per 0.5 % (Rao + Ewins)
+    speeds, a, sig = coast(1000.0, 0.05, 0.005, noise=0.002, seed=3)
+    sweep = analyse_sweep(speeds, {"p": a}, {"p": sig}, "g pk")
+    near = [r for r in sweep.resonances if abs(r.speed_rpm / 1000.0 - 1) < 0.2]
+    assert len(near) == 1
+    assert near[0].speed_rpm == pytest.approx(1000.0, rel=0.02)
+    assert near[0].damping_ratio == pytest.approx(0.05, rel=0.20)
+    # no resonance invented elsewhere from the noise (low speeds are below the circle)
+    assert len(sweep.resonances) == 1
+
+
+def test_a_band_too_coarse_gives_no_damping() -> None:
+    # 2 % damping: half-power band 4 % wide; points 3 % apart leave it unresolved
+    speeds, a, sig = coast(1000.0, 0.02, 0.03)
+    [res] = half_power_resonances(speeds, normalised_response(speeds, np.abs(a), "g pk"))
+    assert res.damping_ratio is None and res.points_in_band < 3
+    assert res.speed_rpm == pytest.approx(1000.0, rel=0.05)
+
+
+def test_normalisation_powers() -> None:
+    # unbalance force ~ n^2, and acceleration = omega^2 x, velocity = omega x (kinematics)
+    n = np.array([1000.0, 2000.0])
+    assert normalised_response(n, np.array([1.0, 16.0]), "g pk")[1] == pytest.approx(1.0)
+    assert normalised_response(n, np.array([1.0, 8.0]), "mm/s rms")[1] == pytest.approx(1.0)
+    assert normalised_response(n, np.array([1.0, 4.0]), "um pk-pk")[1] == pytest.approx(1.0)
+    assert normalised_response(n, np.array([1.0, 16.0]), "V pk")[1] == pytest.approx(1.0)
+    with pytest.raises(ValueError, match="unknown unit"):
+        normalised_response(n, n, "furlongs")
+
+
+def test_two_modes_adding_up_without_a_phase_turn_are_not_a_resonance() -> None:
+    # a hump in amplitude whose phase hardly moves is no single-degree-of-freedom resonance
+    # (Ewins sec. 2.2: the phase turns by 90 deg between the half-power points)
+    speeds = 1000.0 * np.exp(np.arange(-0.7, 0.7, 0.005))
+    hump = 1.0 + 2.0 * np.exp(-((np.log(speeds / 1000.0)) / 0.1) ** 2)
+    amplitude = hump * (speeds / 1000.0) ** 4
+    phase = np.full(speeds.size, 30.0)
+    assert half_power_resonances(speeds, normalised_response(speeds, amplitude, "g pk"))
+    assert not half_power_resonances(speeds, normalised_response(speeds, amplitude, "g pk"),
+                                     phases_deg=phase)
+
+
+def test_steady_capture_is_not_a_sweep() -> None:
+    rng = np.random.default_rng(1)
+    speeds = 3000.0 * (1 + 0.003 * rng.standard_normal(400))
+    a = np.full(400, 0.5 + 0.2j)
+    sweep = analyse_sweep(speeds, {"p": a}, {"p": np.full(400, 0.01)}, "g pk")
+    assert not sweep.is_sweep and not sweep.resonances
+    assert sweep.high_rpm / sweep.low_rpm < 1.3
+
+
+def test_bins_average_vectors_and_give_a_95_percent_circle() -> None:
+    speeds = np.array([1000.0, 1001.0, 1002.0, 1100.0])
+    a = np.array([1 + 0j, 1j, -1 + 0j, 2 + 0j])
+    points = bin_revolutions(speeds, {"p": a}, {"p": np.full(4, 0.1)}, "g pk")
+    assert [p.revolutions for p in points] == [3, 1]
+    first = points[0].value("p")
+    assert first is not None
+    assert first.amplitude == pytest.approx(abs((1 + 1j - 1) / 3))
+    assert first.phase_deg == pytest.approx(90.0)
+    # sigma of a mean of 3: 0.1 / sqrt 3; 95 % radius sqrt(-2 ln 0.05) sigma (Rayleigh)
+    assert first.confidence_radius == pytest.approx(math.sqrt(-2 * math.log(0.05)) * 0.1 / math.sqrt(3))
+    assert first.usable == (first.amplitude >= MIN_SIGNAL_TO_CIRCLE * first.confidence_radius)
+    with pytest.raises(ValueError, match="one value per speed"):
+        bin_revolutions(speeds, {"p": a[:2]}, {"p": np.full(4, 0.1)})
+
+
+@pytest.mark.parametrize("ratio", [0.5, 0.9, 1.1, 2.0])
+def test_local_slope_is_the_closed_form_derivative(ratio: float) -> None:
+    # d ln|A| / d ln n and d phase / d ln n of Rao's response, differentiated numerically
+    # (central difference) for the truth
+    natural, zeta = 1000.0, 0.05
+    speeds, a, sig = coast(natural, zeta, 0.002)
+    sweep = analyse_sweep(speeds, {"p": a}, {"p": sig}, "g pk")
+    at = ratio * natural
+    slope = local_slope(sweep.points, "p", at, window_fraction=0.012)
+    assert slope is not None
+    h = 1e-5
+    up, down = sdof_acceleration(np.array([at * (1 + h)]), natural, zeta)[0], \
+        sdof_acceleration(np.array([at * (1 - h)]), natural, zeta)[0]
+    p_true = (math.log(abs(up)) - math.log(abs(down))) / (math.log1p(h) - math.log1p(-h))
+    q_true = math.degrees(np.angle(up / down)) / (math.log1p(h) - math.log1p(-h))
+    assert slope.amplitude_exponent == pytest.approx(p_true, abs=0.05 * abs(p_true) + 0.05)
+    assert slope.phase_deg_per_ln_speed == pytest.approx(q_true, abs=0.05 * abs(q_true) + 2.0)
+    # far below and far above the resonance the acceleration goes as n^4 and n^2
+    if ratio == 0.5:
+        assert 3.5 < slope.amplitude_exponent < 5.0
+    if ratio == 2.0:
+        assert 1.0 < slope.amplitude_exponent < 2.5

@@ -54,6 +54,8 @@ STEP_TICKS = 100_000  # at most 50 ms of simulated time per generation step
 STATUS_PERIOD_TICKS = TICK_HZ
 START_DELAY_TICKS = 200  # first conversion of a stream, after the start command
 STANDSTILL_RAD_S = 0.05  # below this the virtual shaft is taken as stopped
+#: a step whose speed changes by more than this (0.5 rpm) follows the 1x across it (a sweep)
+SWEEP_STEP_RAD_S = 0.5 * 2.0 * math.pi / 60.0
 SENSOR_FLOOR_G = 0.004  # a still accelerometer's own noise, rms over the sampled band
 TWO_PI = 2.0 * math.pi
 
@@ -741,8 +743,11 @@ class VirtualBoard:
         t_s = ticks.astype(np.float64) / TICK_HZ
         out = np.zeros(len(ticks))
         omega = 0.5 * (omega0 + omega1)
-        one_x0 = self._pickup_phasors_v(omega0)
-        one_x1 = one_x0 if omega1 == omega0 else self._pickup_phasors_v(omega1)
+        if abs(omega1 - omega0) > SWEEP_STEP_RAD_S:  # run-up or coast-down: follow the speed
+            one_x0 = self._pickup_phasors_v(omega0)
+            one_x1 = self._pickup_phasors_v(omega1)
+        else:  # steady (slow wander): the response at the step's mean speed
+            one_x0 = one_x1 = self._pickup_phasors_v(omega)
         speed_ratio_sq = (omega / rpm_to_rad_s(sc.speed_rpm)) ** 2
         line = sc.motor.mains_hz
         for ch in range(int(channel.max()) + 1 if len(channel) else 0):
@@ -753,8 +758,8 @@ class VirtualBoard:
                 continue
             el = sc.electrical[ch]
             v_per_g = el.sensitivity_v_per_g
-            w = share[sel]
-            p = one_x0[ch] + w * (one_x1[ch] - one_x0[ch])
+            p = one_x0[ch] if one_x1 is one_x0 else \
+                one_x0[ch] + share[sel] * (one_x1[ch] - one_x0[ch])
             # A cos(theta - phi) with the project phasor p = A e^{i phi}
             v = el.zero_g_v + np.real(p) * np.cos(th) + np.imag(p) * np.sin(th)
             for k, h in enumerate(sig.harmonics + sig.tones):

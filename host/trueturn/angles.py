@@ -13,7 +13,8 @@ Users whose rotor is numbered the other way (with rotation) choose that at the e
 
 Pictures (the app's live polar plot, the report's plots, the printed ring) all place an angle
 with :func:`screen_xy`: the plane drawn as the person sees it from the side they look at it
-from (the pickup side for a machine profile, the printed side for a ring), 0 deg (the
+from (the machine's front for a machine profile, a plane's face for the placement picture
+(:func:`seen_rotation`), the printed side for a ring), 0 deg (the
 reference mark) at the top, angles growing against rotation. A rotor that turns clockwise as
 seen therefore has its angles growing counter-clockwise on the picture: 90 deg on the left.
 """
@@ -28,6 +29,9 @@ import numpy as np
 Numbering = Literal["against", "with"]
 #: Direction of rotation as seen by the person looking at the picture's side of the plane.
 Rotation = Literal["cw", "ccw"]
+#: The end of the machine a correction plane's face is looked at (and its ring laid on)
+#: from: the ``front``, where a machine profile's rotation is seen, or the ``back``.
+Face = Literal["front", "back"]
 
 
 def wrap_deg(angle_deg: float) -> float:
@@ -68,6 +72,38 @@ def from_user_angle_deg(user_angle_deg: float, numbering: Numbering = "against")
 def to_user_angle_deg(angle_deg: float, numbering: Numbering = "against") -> float:
     """Convert an internal angle to the numbering the person uses on their rotor."""
     return from_user_angle_deg(angle_deg, numbering)
+
+
+def seen_rotation(rotation: Rotation, face: Face) -> Rotation:
+    """The direction of rotation as seen looking at a plane's ``face``.
+
+    Parameters
+    ----------
+    rotation : {"cw", "ccw"}
+        Direction of rotation as seen from the machine's front (a machine profile's).
+    face : {"front", "back"}
+        The end the plane is looked at from.
+
+    Returns
+    -------
+    {"cw", "ccw"}
+        ``rotation`` from the front; the other way from the back: looking along the shaft
+        from the opposite end mirrors the picture, so a turn that is clockwise from one end
+        is counter-clockwise from the other (elementary geometry).
+
+    Notes
+    -----
+    Angles themselves do not change with the side (they count from the mark against
+    rotation, the order points pass a fixed pickup); only the picture mirrors. Give
+    :func:`screen_xy` this rotation to draw a plane as seen from its face.
+    """
+    if face not in ("front", "back"):
+        raise ValueError(f"face must be 'front' or 'back', got {face!r}")
+    if rotation not in ("cw", "ccw"):
+        raise ValueError(f"rotation must be 'cw' or 'ccw', got {rotation!r}")
+    if face == "front":
+        return rotation
+    return "ccw" if rotation == "cw" else "cw"
 
 
 def screen_xy(angle_deg: float, rotation: Rotation) -> tuple[float, float]:

@@ -49,7 +49,9 @@ class TachSetup:
 class MachineProfile:
     """One machine: rotor, speeds, planes, pickups, tach, mains and target grade.
 
-    ``rotation`` is the direction of rotation as seen from the pickup side.
+    ``rotation`` is the direction of rotation as seen from the machine's front (the end the
+    person works from; the pickup side): each plane says which end its face is seen from
+    (``Plane.face``); from the back the rotation looks reversed.
     ``target_grade`` is the balance quality grade G of ISO 21940-11 in mm/s (e.g. 6.3).
     """
 

@@ -181,10 +181,12 @@ def polar_svg(job: JobRecord, sensor: str, size_px: int = 320) -> str:
 
 
 def plane_svg(job: JobRecord, plane_name: str, size_px: int = 170) -> str:
-    """The plane seen from the pickup side: reference mark, positions, parts on the rotor."""
+    """The plane seen from its face (``Plane.face``; from the back the rotation looks
+    reversed, like on the app's placement picture and the plane's ring): reference mark,
+    positions, parts on the rotor."""
     machine = job.machine
     plane = machine.plane(plane_name)
-    rotation = machine.rotation
+    rotation = plane.rotation_seen(machine.rotation)
     c = size_px / 2
     r = c - 22
     out = [f'<svg xmlns="http://www.w3.org/2000/svg" class="plane" viewBox="0 0 {size_px} '
@@ -559,7 +561,7 @@ def html_report(job: JobRecord, generated: str = "") -> str:
                            f'{_e(pickup.name)} per run (numbers = run), circle = phase '
                            f'confidence.</figcaption></figure>')
     figures += [f'<figure class="small">{plane_svg(job, p.name)}<figcaption>{_e(p.name)}, seen '
-                f'from the pickup side: {_e(parts_text(job, p.name))}.</figcaption></figure>'
+                f'from the {p.face}: {_e(parts_text(job, p.name))}.</figcaption></figure>'
                 for p in m.planes]
     parts += ['<div class="figures">', *figures, '</div>']
     header, rows = run_rows(job)

@@ -5,7 +5,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Literal
 
-from trueturn.angles import wrap_deg
+from trueturn.angles import Face, Rotation, seen_rotation, wrap_deg
 from trueturn.model.fields import limits
 from trueturn.positions import equally_spaced_deg
 
@@ -48,7 +48,11 @@ class Plane:
     ``layout``: the blades/holes a mass can go on; ``removal_allowed``: the machine's maker
     allows drilling or grinding material out here (a flywheel rim, a pulley web; never a
     grinding wheel, a cutterhead body or a fan blade); ``max_mass_g``: the largest
-    correction the plane takes (None: no limit given).
+    correction the plane takes (None: no limit given); ``face``: the end of the machine
+    this plane's face is looked at, worked on and its ring laid on from: ``front`` (the
+    end the machine profile's rotation is seen from) or ``back`` (the far end of a rotor
+    between bearings, the second wheel of a bench grinder): the rotation looks reversed
+    there and so does every picture of the plane (:func:`trueturn.angles.seen_rotation`).
     """
 
     name: str = field(metadata=limits(nonempty=True))
@@ -57,6 +61,12 @@ class Plane:
     layout: PlaneLayout = field(default_factory=PlaneLayout)
     removal_allowed: bool = False
     max_mass_g: float | None = field(default=None, metadata=limits(above=0))
+    face: Face = "front"
+
+    def rotation_seen(self, rotation: Rotation) -> Rotation:
+        """The direction of rotation as seen looking at this plane's face, given the
+        machine's ``rotation`` as seen from its front."""
+        return seen_rotation(rotation, self.face)
 
     @property
     def position_angles_deg(self) -> tuple[float, ...]:

@@ -14,6 +14,7 @@ from typing import Any, Literal
 
 import numpy as np
 
+from trueturn.angles import Face
 from trueturn.errors import UserError
 from trueturn.files import read_text_file
 from trueturn.model import Plane, PlaneLayout
@@ -218,6 +219,7 @@ class PlaneSection:
     positions: int = field(default=0, metadata=limits(minimum=0, maximum=360))
     first_position_deg: float = field(default=0.0, metadata=ANY)
     note: str = ""
+    face: Face = "front"  # the end the plane's face is seen from (model.Plane.face)
 
 
 @dataclass(frozen=True)
@@ -286,7 +288,7 @@ class ScenarioFile:
             balancing_planes={p.name: Plane(
                 p.name, p.radius_mm, p.axial_mm,
                 PlaneLayout("equal", p.positions, p.first_position_deg) if p.positions
-                else PlaneLayout(), removal_allowed=p.removal) for p in self.planes},
+                else PlaneLayout(), removal_allowed=p.removal, face=p.face) for p in self.planes},
             plane_notes={p.name: p.note for p in self.planes},
             source=source)
 

@@ -48,6 +48,7 @@ from trueturn.ui import texts
 from trueturn.ui.jobfile import JobKeeper
 from trueturn.ui.machine import setup_from_profile
 from trueturn.ui.machines import MachinePicker
+from trueturn.ui.placement import marking_markup
 from trueturn.ui.rig import DemoRig
 from trueturn.ui.savefolder import SaveFolderPrompt
 from trueturn.ui.session import Clock, LinkProblem, LinkSession, SessionFactory, Snapshot
@@ -227,6 +228,11 @@ class BenchScreen(Screen):
         Binding("x", "motor(False)", "Motor off", show=False),
         Binding("l", "reconnect", "Reconnect", show=False),
         Binding("w", "save_elsewhere", "Save elsewhere", show=False),
+        Binding("h", "marking", "Rings", show=False),
+        Binding("pagedown", "scroll_guide(1)", show=False),
+        Binding("pageup", "scroll_guide(-1)", show=False),
+        Binding("down", "scroll_guide(0.25)", show=False),
+        Binding("up", "scroll_guide(-0.25)", show=False),
         Binding("c", "app.cautions", "Cautions"),
         Binding("question_mark", "app.keys", "Keys"),
         Binding("f1", "app.keys", "Keys", show=False),
@@ -286,6 +292,16 @@ class BenchScreen(Screen):
 
     def action_save_elsewhere(self) -> None:
         self.trueturn.save_elsewhere()
+
+    def action_marking(self) -> None:
+        """h: the rings to print for this rotor and how to mark its planes."""
+        app = self.trueturn
+        proc = app.procedure
+        planes = proc.planes_used if proc is not None else tuple(app.config.profile.planes)
+        app.push_screen(TextPage(marking_markup(app.config.profile, planes), "marking"))
+
+    def action_scroll_guide(self, pages: float) -> None:
+        self.query_one("#guide-view", GuideView).scroll_step(pages)
 
 
 class TrueturnApp(App):

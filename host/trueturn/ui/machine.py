@@ -91,3 +91,28 @@ def describe_change(change: MassChange, proc: Procedure, engine: BalanceEngine) 
         ratio = engine.trial_mass(proc.setup, plane).force_ratio
         text += f" (about {ratio:.0%} of the rotor's weight)"
     return text + "."
+
+
+def brief_work(changes: tuple[MassChange, ...], proc: Procedure,
+               engine: BalanceEngine) -> tuple[str, ...]:
+    """The work of a hands-on step in a few lines, for when the placement pictures
+    (:mod:`trueturn.ui.placement`) show each part's place and mass: what to do and the
+    largest force a part will pull with at the planned speed."""
+    rpm = proc.setup.speed_rpm
+    lines = []
+    if any(c.action == "detach" for c in changes):
+        lines.append("First take off what the picture marks [b]take off[/b].")
+    attach = [c.mass for c in changes if c.action == "attach" and c.mass is not None]
+    for kind in dict.fromkeys(m.kind for m in attach):
+        masses = [m for m in attach if m.kind == kind]
+        force = max(engine.force_n(abs(m.mass_g), proc.plane(m.plane).radius_mm, rpm)
+                    for m in masses)
+        verb = ("Remove material where the maker allows, as pictured" if masses[0].removal
+                else f"Attach {kind.value} mass as pictured")
+        text = (f"{verb}: {len(masses)} part{'s' if len(masses) > 1 else ''}, "
+                f"up to {force:.1f} N at {rpm:.0f} rpm")
+        if kind == "trial":
+            ratio = engine.trial_mass(proc.setup, proc.plane(masses[0].plane)).force_ratio
+            text += f" (about {ratio:.0%} of the rotor's weight)"
+        lines.append(text + ".")
+    return tuple("  " + line for line in lines)

@@ -48,7 +48,8 @@ from trueturn.procedure.guide import (
 )
 from trueturn.procedure.standstill import StandstillEvidence, StandstillState
 from trueturn.ui import texts
-from trueturn.ui.machine import describe_change
+from trueturn.ui.machine import brief_work, describe_change
+from trueturn.ui.placement import PlacementView, pictures_for
 from trueturn.ui.session import Snapshot
 from trueturn.ui.texts import VERDICT_FLAG_WORDS, verdict_note
 from trueturn.ui.widgets import MarkupText
@@ -74,7 +75,7 @@ class GuideContext:
 class StepPanel(Static):
     """A panel of the guide: draws its lines from its reactive attributes while shown."""
 
-    DEFAULT_CSS = "StepPanel { height: 1fr; padding: 0 1; }"
+    DEFAULT_CSS = "StepPanel { height: auto; padding: 0 1; }"
 
     shown: reactive[bool] = reactive(False)
     demo: reactive[bool] = reactive(False)
@@ -191,7 +192,10 @@ class HandsOnPanel(ProcedurePanel):
         assert proc is not None and isinstance(proc.step, HandsOn)
         step = proc.step
         self.phase = step.phase
-        self.work = tuple("  " + describe_change(c, proc, ctx.engine) for c in step.changes)
+        if any(c.mass is not None for c in step.changes):  # pictured: the parts are drawn
+            self.work = brief_work(step.changes, proc, ctx.engine)
+        else:
+            self.work = tuple("  " + describe_change(c, proc, ctx.engine) for c in step.changes)
         self.items = proc.checklist()
         self.ticked = frozenset(proc.ticked)
         self.standstill = self.evidence_words(snap.evidence)
@@ -210,7 +214,7 @@ class HandsOnPanel(ProcedurePanel):
         return tuple(lines)
 
     def body(self) -> list[str]:
-        lines = [*(self.work or (texts.LOOK_OVER,)), *self.standstill]
+        lines = [*(self.work or (texts.LOOK_OVER,)), texts.H_MARKING, *self.standstill]
         lockout = self.phase is HandsOnPhase.LOCKOUT
         lines.append(texts.TICK_BEFORE if lockout else texts.TICK_AFTER)
         for i, item in enumerate(self.items):
@@ -465,7 +469,10 @@ class MessageLine(MarkupText):
 
 
 class GuideView(Vertical):
-    """The guide: the current step's panel, the run's progress bar, the message line."""
+    """The guide: the placement pictures at a hands-on step, the current step's panel (it
+    scrolls when it is longer than the screen), the run's progress bar, the message line."""
+
+    DEFAULT_CSS = "GuideView #step-panels { height: 1fr; overflow-y: auto; }"
 
     #: the id of the panel shown
     panel: reactive[str] = reactive("setup-panel", init=False)
@@ -473,6 +480,7 @@ class GuideView(Vertical):
     progress: reactive[float | None] = reactive(None, init=False)
 
     def compose(self) -> ComposeResult:
+        yield PlacementView(id="placement")
         with ContentSwitcher(initial="setup-panel", id="step-panels"):
             yield SetupPanel(id="setup-panel")
             yield HandsOnPanel(id="hands-on-panel")
@@ -491,6 +499,11 @@ class GuideView(Vertical):
         self.query_one(f"#{old}", StepPanel).shown = False
         self.query_one(f"#{new}", StepPanel).shown = True
 
+    def scroll_step(self, pages: float) -> None:
+        """Scroll the step's panel by ``pages`` screenfuls (negative: up)."""
+        panels = self.query_one("#step-panels", ContentSwitcher)
+        panels.scroll_relative(y=pages * max(1, panels.size.height - 1), animate=False)
+
     def watch_progress(self, done: float | None) -> None:
         bar = self.query_one("#progress", ProgressBar)
         bar.set_class(done is not None, "shown")
@@ -506,6 +519,11 @@ class GuideView(Vertical):
         else:
             self.panel = panel_for(proc.step)
         self.query_one(f"#{self.panel}", StepPanel).show(proc, snap, ctx)
+        hands_on = proc.step if proc is not None and not ctx.link_error else None
+        self.query_one("#placement", PlacementView).show(
+            pictures_for(hands_on.changes, proc.planes_used, ctx.profile.rotation)
+            if isinstance(hands_on, HandsOn) and proc is not None else (),
+            ctx.profile.units.mass)
         msg = self.query_one("#guide-msg", MessageLine)
         msg.alarm = bool(ctx.alarm)
         msg.text = ctx.alarm or ctx.message

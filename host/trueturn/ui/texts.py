@@ -44,6 +44,8 @@ KEYS: list[tuple[str, str]] = [
     ("x", "Demo rig: switch the virtual motor off"),
     ("l", "Link lost: reconnect to the same port (the run starts over)"),
     ("w", "Job not saved (disk full, workspace not writable): save it in another folder"),
+    ("h", "Guide: rings to print for this rotor, their faces, carrying the 0° mark"),
+    ("PgDn PgUp ↓ ↑", "Guide: scroll a step longer than the screen"),
     ("c", "Cautions (safety notes)"),
     ("? / F1", "This list of keys"),
     ("Escape", "Close this screen / go back"),
@@ -120,6 +122,7 @@ MAKER_NOTE = ("[dim]c: cautions. Follow the machine maker's instructions for fas
               "removal.[/dim]")
 ENTER_LOCKED_OUT = "[b]Enter[/b]: locked out, I will work on the rotor"
 ENTER_DONE = "[b]Enter[/b]: done, safe to run"
+H_MARKING = "  [b]h[/b]: rings to print, the face each goes on, carrying the 0° mark"
 
 RUN_NOTHING_KEPT = "Nothing of this run is kept."
 RUN_SWITCH_OFF_DEMO = "Switch the machine off (the demo motor is off)."

@@ -12,19 +12,30 @@ from dataclasses import dataclass, field
 from typing import Literal
 
 from trueturn.angles import Rotation
-from trueturn.constants import MM_PER_INCH
 from trueturn.model.fields import limits
 from trueturn.model.mass import OwnedParts
 from trueturn.model.rotor import Bearing, Pickup, Plane
 from trueturn.model.rotor import PlaneLayout as PlaneLayout  # the profile's planes use it
-
-MassUnit = Literal["g", "oz"]
-LengthUnit = Literal["mm", "in"]
-VelocityUnit = Literal["mm/s", "in/s"]
-
-#: Exact definitions (international yard and pound agreement, 1959; NIST SP 811, Appendix B).
-MM_PER_IN = MM_PER_INCH
-G_PER_OZ = 28.349523125
+from trueturn.model.units import (  # the one definition of each; re-exported for the report
+    G_PER_OZ as G_PER_OZ,
+)
+from trueturn.model.units import (
+    MM_PER_IN as MM_PER_IN,
+)
+from trueturn.model.units import (
+    LengthUnit,
+    MassUnit,
+    UnitChoice,
+    VelocityUnit,
+    length_text,
+    mass_text,
+)
+from trueturn.model.units import (
+    convert_vibration as convert_vibration,
+)
+from trueturn.model.units import (
+    split_unit as split_unit,
+)
 
 
 @dataclass
@@ -34,6 +45,11 @@ class Units:
     mass: MassUnit = "g"
     length: LengthUnit = "mm"
     vibration: VelocityUnit = "mm/s"
+
+    def choice(self) -> UnitChoice:
+        """The same choice as the model's :class:`~trueturn.model.units.UnitChoice` (the
+        conversions and words are there)."""
+        return UnitChoice(self.mass, self.length, self.vibration)
 
 
 @dataclass
@@ -125,43 +141,9 @@ class MachineProfile:
 
 def format_mass(mass_g: float, unit: MassUnit) -> str:
     """A mass in the person's unit: ``'3.20 g'`` or ``'0.113 oz'``."""
-    if unit == "oz":
-        return f"{mass_g / G_PER_OZ:.3f} oz"
-    return f"{mass_g:.2f} g"
+    return mass_text(mass_g, unit)
 
 
 def format_length(length_mm: float, unit: LengthUnit) -> str:
     """A length in the person's unit: ``'75.0 mm'`` or ``'2.953 in'``."""
-    if unit == "in":
-        return f"{length_mm / MM_PER_IN:.3f} in"
-    return f"{length_mm:.1f} mm"
-
-
-
-#: length-dependent base unit -> (quantity, factor to the metric base of that quantity)
-_BASES: dict[str, tuple[str, float]] = {
-    "mm/s": ("velocity", 1.0),
-    "in/s": ("velocity", MM_PER_IN),
-    "um": ("displacement", 1.0),
-    "mil": ("displacement", MM_PER_IN),  # 1 mil = 0.001 in = 25.4 um
-}
-
-
-def split_unit(label: str) -> tuple[str, str]:
-    """``'mm/s rms'`` -> ``('mm/s', 'rms')``; ``'mm/s'`` -> ``('mm/s', '')``."""
-    base, _, detector = label.partition(" ")
-    return base, detector
-
-
-def convert_vibration(amplitude: float, from_unit: str, preferred: VelocityUnit,
-                      length: LengthUnit = "mm") -> tuple[float, str]:
-    """Show a reading in the person's units: velocity in ``preferred`` (mm/s or in/s),
-    displacement in um (``length`` mm) or mil (``length`` in); the detector (rms, pk, pk-pk)
-    is kept as measured, never converted. Acceleration and volts stay as stored."""
-    base, detector = split_unit(from_unit)
-    if base not in _BASES:
-        return amplitude, from_unit
-    quantity, factor = _BASES[base]
-    target = preferred if quantity == "velocity" else ("mil" if length == "in" else "um")
-    value = amplitude * factor / _BASES[target][1]
-    return value, f"{target} {detector}".strip()
+    return length_text(length_mm, unit)

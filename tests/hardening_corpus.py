@@ -201,13 +201,31 @@ def build(folder: Path) -> list[Case]:
                    "--speed-rpm": ["1e300", "1e-300"],
                    "--grade": ["1e300", "G1e-400", "nan"],
                    "--plane-distance-mm": ["1e300", "0", "nan"]}),
+        # imperial twins (#17): the same spans; metric and imperial of one quantity together
+        "trial-mass #imperial": (["--rotor-mass-lb", "10", "--radius-in", "3", "--speed-rpm",
+                                 "3450"],
+                                {"--rotor-mass-lb": ["1e-300", "1e300", "0", "nan"],
+                                 "--radius-in": ["1e-300", "1e300", "inf"],
+                                 "--max-mass-oz": ["0", "-1", "nan"],
+                                 "--rotor-mass-kg": ["4"], "--radius-mm": ["75"]}),
+        "split #imperial": (["--mass-oz", "0.1", "--angle-deg", "10", "--positions", "4"],
+                           {"--mass-oz": ["nan", "inf", "-1", "1e300"],
+                            "--mass-g": ["3"],
+                            "--drill-in": ["1e-300", "3.7e12", "0", "nan"],
+                            "--have-oz": ["0", "nan"], "--radius-in": ["1e300"],
+                            "--rotor-mass-lb": ["inf"]}),
+        "grade #imperial": (["--rotor-mass-lb", "10", "--speed-rpm", "3450", "--grade", "6.3"],
+                           {"--rotor-mass-lb": ["1e300", "1e-300", "nan"],
+                            "--rotor-mass-kg": ["4"],
+                            "--plane-distance-in": ["1e300", "0", "nan"],
+                            "--cg-axial-in": ["nan", "1e300"]}),
         "ring": (["--diameter-mm", "100", "--positions", "4", "-o", str(f / "ring.svg")],
                  {"--diameter-mm": ["1e-300", "3.7e12", "nan"],
                   "--positions": ["100000000", "0"],
                   "--first-deg": ["1e300", "nan"]}),
     }
     for command, (base, options) in numbers.items():
-        words = command.split()
+        words = command.partition("#")[0].split()  # '#...' names a second set of a command
         for option, values in options.items():
             for value in values:
                 argv = list(base)
@@ -218,6 +236,10 @@ def build(folder: Path) -> list[Case]:
                 add(f"{command} {option} {value}", words[0], *argv, *words[1:])
     add("grade residual 1e300", "grade", "--rotor-mass-kg", "4", "--speed-rpm", "3450",
         "--grade", "6.3", "--residual-gmm", "1e300", "1")
+    add("grade residual ozin 1e300", "grade", "--rotor-mass-lb", "4", "--speed-rpm", "3450",
+        "--grade", "6.3", "--residual-ozin", "1e300", "1")
+    add("grade residual gmm and ozin", "grade", "--rotor-mass-lb", "4", "--speed-rpm", "3450",
+        "--grade", "6.3", "--residual-ozin", "1", "1", "--residual-gmm", "1", "1")
     add("split --combine nan", "split", "--combine", "3@nan", "4@10", "--positions", "4")
     add("analyze --revs huge", "analyze", str(f / "noframes.cap"), "--revs", "100000000000")
     for option, value in (("--sensitivity-v-per-g", "nan"), ("--sensitivity-v-per-g", "1e300"),

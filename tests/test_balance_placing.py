@@ -109,3 +109,20 @@ def test_centrifugal_force_worked_number():
     assert centrifugal_force_n(1.0, 100.0, 3000.0) == pytest.approx(9.8696, rel=1e-4)
     # doubling the speed quadruples the force
     assert centrifugal_force_n(1.0, 100.0, 6000.0) == pytest.approx(4 * 9.8696, rel=1e-4)
+
+
+def test_negligible_parts_against_the_tolerance_and_the_scale():
+    # issue #17: 2 g at 1° between positions at 0° and 90°: the 90° part is
+    # 2 sin(1°) / sin(90°) = 0.0349 g (law of sines), 2.62 g·mm at 75 mm. Against a plane
+    # allowance of 40 g·mm a tenth is 4 g·mm: negligible (10:1 rule, common practice, no
+    # source); against 20 g·mm (a tenth: 2 g·mm) it must be placed.
+    from trueturn.balance.splitting import negligible_parts, split
+
+    parts = split(2.0, 1.0, [0.0, 90.0, 180.0, 270.0])
+    small = min(parts, key=lambda p: p.mass_g)
+    assert small.mass_g == pytest.approx(2 * math.sin(math.radians(1.0)))
+    assert negligible_parts(parts, 0.01, 75.0, 40.0) == (small,)
+    assert negligible_parts(parts, 0.01, 75.0, 20.0) == ()
+    assert negligible_parts(parts, 0.1, None, None) == (small,)  # below half of 0.1 g
+    # the largest part is never dropped by the tolerance rule, however large the allowance
+    assert len(negligible_parts(parts, 0.01, 75.0, 1e9)) == 1

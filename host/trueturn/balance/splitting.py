@@ -104,6 +104,58 @@ def split(mass_g: float, angle_deg: float, positions_deg: Sequence[float]) -> li
     return [Part(i, wrap_deg(positions_deg[i]), m_a), Part(j, wrap_deg(positions_deg[j]), m_b)]
 
 
+#: A split part may be left out when leaving it out costs at most this share of the plane's
+#: permissible residual unbalance: the 10:1 rule of thumb between a tolerance and what is
+#: negligible against it (as for a gauge's resolution; common practice, no source).
+NEGLIGIBLE_SHARE_OF_TOLERANCE = 0.1
+
+
+def negligible_parts(parts: Sequence[Part], resolution_g: float, radius_mm: float | None = None,
+                     allowed_gmm: float | None = None) -> tuple[Part, ...]:
+    """The parts of one split correction that need not be placed.
+
+    A part is negligible when it rounds to nothing at the scale's resolution (below half of
+    ``resolution_g``), or, when the plane's radius and permissible residual unbalance are
+    known, when leaving it out adds at most :data:`NEGLIGIBLE_SHARE_OF_TOLERANCE` of that
+    allowance (``m r``, smallest parts first, their sum counted). The largest part is never
+    left out by the tolerance rule: a correction is placed or refused whole, not dropped.
+
+    Parameters
+    ----------
+    parts : sequence of Part
+        The parts of one correction (:func:`split`).
+    resolution_g : float
+        The scale's resolution, g (0.01 g for a pocket scale).
+    radius_mm : float, optional
+        Radius of the positions, mm.
+    allowed_gmm : float, optional
+        Permissible residual unbalance of the plane, g·mm (ISO 21940-11 share).
+
+    Returns
+    -------
+    tuple of Part
+        The negligible parts (a subset of ``parts``).
+
+    References
+    ----------
+    .. [1] Leaving a part of mass m at radius r out adds at most m r to the residual
+       unbalance (triangle inequality); the 10:1 ratio of tolerance to negligible is a
+       gauging rule of thumb (common practice, no source).
+    """
+    out = [p for p in parts if p.mass_g < resolution_g / 2]
+    if radius_mm is None or allowed_gmm is None or len(parts) < 2:
+        return tuple(out)
+    budget = NEGLIGIBLE_SHARE_OF_TOLERANCE * allowed_gmm - sum(p.mass_g for p in out) * radius_mm
+    largest = max(parts, key=lambda p: p.mass_g)
+    for p in sorted(parts, key=lambda p: p.mass_g):
+        if p in out or p is largest:
+            continue
+        if p.mass_g * radius_mm <= budget:
+            out.append(p)
+            budget -= p.mass_g * radius_mm
+    return tuple(out)
+
+
 def combine(masses: Sequence[tuple[float, float]]) -> tuple[float, float]:
     """One mass equivalent to several masses at the same radius (their vector sum).
 

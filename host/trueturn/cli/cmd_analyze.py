@@ -28,7 +28,7 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
         "analyze", help="1x amplitude and phase per pickup, speed and spectrum from a capture",
         description="Read a capture (from `trueturn record`), track the shaft angle from the "
                     "tach and report, per pickup, the 1x vector averaged over whole "
-                    "revolutions with its 95 %% confidence, whether the reading is steady, "
+                    "revolutions with its 95 % confidence, whether the reading is steady, "
                     "and the labelled spectrum peaks. Phase is the lag of the 1x positive "
                     "peak after the tach edge, 0-360 degrees.")
     parser.add_argument("capture", help="capture file (or a plain file of frames)")

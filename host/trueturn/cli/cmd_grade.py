@@ -19,8 +19,16 @@ from trueturn.balance.iso21940 import (
     permissible_unbalance_gmm,
     verdict,
 )
-from trueturn.cli.common import number, print_json
+from trueturn.cli.common import add_quantity, json_in_units, number, print_json, read_units
 from trueturn.errors import UserError
+from trueturn.model.units import (
+    IMPERIAL,
+    UnitChoice,
+    length_text,
+    rotor_mass_text,
+    unbalance_text,
+    unbalance_to_gmm,
+)
 
 # The largest grade and residual taken: ISO 21940-11's table ends at G 4000; a residual of
 # 10^9 g·mm is a tonne at a metre (common practice, no source: beyond any kit's rotor).
@@ -64,32 +72,39 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                     "(e_per = G/omega, U_per = e_per*m at the maximum service speed), judged at "
                     "the bearing planes when their positions are given (residuals referred by "
                     "rigid-rotor statics), otherwise shared between the correction planes.")
-    parser.add_argument("--rotor-mass-kg", type=number("rotor_mass_kg"), help="mass of the rotor, kg")
+    add_quantity(parser, "rotor-mass", "rotor_mass", "mass of the rotor")
     parser.add_argument("--speed-rpm", type=number("speed_rpm"), help="maximum service speed, rpm")
     parser.add_argument("--grade", type=parse_grade, help="balance quality grade G, mm/s (e.g. 6.3)")
     parser.add_argument("--planes", type=int, default=2, choices=(1, 2),
                         help="number of correction planes (default 2)")
-    parser.add_argument("--plane-distance-mm", type=number("distance_mm"),
-                        help="distance between the two correction planes, mm")
-    parser.add_argument("--cg-from-first-plane-mm", type=number("axial_mm"),
-                        help="distance of the centre of mass from the first plane, mm")
-    parser.add_argument("--residual-gmm", type=parse_residual, nargs="+", metavar="U[@DEG]",
-                        help="residual unbalance per correction plane, g·mm, optionally at an "
-                             "angle (37@180), for a pass/fail verdict")
-    parser.add_argument("--plane-axial-mm", type=number("axial_mm"), nargs="+", metavar="Z",
-                        help="axial position of each correction plane, mm (with --bearing-axial-mm)")
-    parser.add_argument("--bearing-axial-mm", type=number("axial_mm"), nargs=2, metavar=("ZA", "ZB"),
-                        help="axial positions of the two bearings, mm (same origin): the verdict "
-                             "is then judged at the bearing planes (ISO 21940-11)")
-    parser.add_argument("--cg-axial-mm", type=number("axial_mm"),
-                        help="axial position of the rotor's centre of mass, mm (default: "
-                             "midway between the bearings)")
+    add_quantity(parser, "plane-distance", "distance",
+                 "distance between the two correction planes")
+    add_quantity(parser, "cg-from-first-plane", "axial",
+                 "distance of the centre of mass from the first plane")
+    residual = parser.add_mutually_exclusive_group()
+    residual.add_argument("--residual-gmm", type=parse_residual, nargs="+", metavar="U[@DEG]",
+                          help="residual unbalance per correction plane, g·mm, optionally at "
+                               "an angle (37@180), for a pass/fail verdict")
+    residual.add_argument("--residual-ozin", type=parse_residual, nargs="+", metavar="U[@DEG]",
+                          help="the same in oz·in")
+    add_quantity(parser, "plane-axial", "axial", "axial position of each correction plane "
+                 "(with --bearing-axial-mm/-in)", nargs="+", metavar="Z")
+    add_quantity(parser, "bearing-axial", "axial", "axial positions of the two bearings (same "
+                 "origin): the verdict is then judged at the bearing planes (ISO 21940-11)",
+                 nargs=2, metavar=("ZA", "ZB"))
+    add_quantity(parser, "cg-axial", "axial", "axial position of the rotor's centre of mass "
+                 "(default: midway between the bearings)")
     parser.add_argument("--list", action="store_true", help="print the grade table and exit")
     parser.add_argument("--json", action="store_true", help="machine-readable output")
     parser.set_defaults(run=run)
 
 
 def run(args: argparse.Namespace) -> int:
+    shown = read_units(args)
+    if args.residual_ozin is not None:
+        args.residual_gmm = [(unbalance_to_gmm(m, "oz", "in"), a) for m, a in args.residual_ozin]
+        shown = IMPERIAL
+    args.shown = shown
     if args.list:
         if args.json:
             print_json([{"grade_mm_s": g.grade_mm_s, "examples": g.examples,
@@ -100,8 +115,8 @@ def run(args: argparse.Namespace) -> int:
                 print(f"G {g.grade_mm_s:<6g} {g.examples}")
             print(f"source: {GRADES_SOURCE}")
         return 0
-    for flag, value in (("--rotor-mass-kg", args.rotor_mass_kg), ("--speed-rpm", args.speed_rpm),
-                        ("--grade", args.grade)):
+    for flag, value in (("--rotor-mass-kg (or -lb)", args.rotor_mass_kg),
+                        ("--speed-rpm", args.speed_rpm), ("--grade", args.grade)):
         if value is None:
             raise UserError(f"missing {flag}")
         if not 0 < value < float("inf"):
@@ -112,7 +127,8 @@ def run(args: argparse.Namespace) -> int:
         return _run_bearings(args, e_um, u_gmm)
     for flag in ("plane_axial_mm", "cg_axial_mm"):
         if getattr(args, flag) is not None:
-            raise UserError(f"--{flag.replace('_', '-')} needs --bearing-axial-mm")
+            raise UserError(f"--{flag.replace('_', '-')} (or -in) needs --bearing-axial-mm "
+                            "(or -in)")
     shares = per_plane_permissible(u_gmm, args.planes, args.plane_distance_mm,
                                    args.cg_from_first_plane_mm)
     out: dict[str, Any] = {"e_per_um": round(e_um, 6), "U_per_gmm": round(u_gmm, 6),
@@ -127,17 +143,22 @@ def run(args: argparse.Namespace) -> int:
         out["pass"] = v.passed
         out["flags"] = [f.value for f in v.flags]
     if args.json:
-        print_json(out)
+        print_json(json_in_units(out, shown))
         return 0
     _header(args, e_um, u_gmm, standard)
     print("tolerance planes: the correction planes (give --bearing-axial-mm and "
           "--plane-axial-mm to judge at the bearings, as ISO 21940-11 does)")
     for i, share in enumerate(shares):
-        print(f"  plane {i + 1}: {share:.4g} g·mm")
+        print(f"  plane {i + 1}: {_u(share, shown)}")
     if args.residual_gmm is not None:
         print("verdict: " + ("PASS" if out["pass"] else "not within tolerance"))
     print("The machine's manufacturer or your contract may require a different grade.")
     return 0
+
+
+def _u(unbalance_gmm: float, shown: UnitChoice) -> str:
+    """An unbalance in the units the person typed."""
+    return unbalance_text(unbalance_gmm, shown.mass, shown.length)
 
 
 def _standard(grade_mm_s: float) -> Grade | None:
@@ -145,14 +166,15 @@ def _standard(grade_mm_s: float) -> Grade | None:
 
 
 def _header(args: argparse.Namespace, e_um: float, u_gmm: float, standard: Grade | None) -> None:
+    shown: UnitChoice = args.shown
     print(f"grade G {args.grade:g} at {args.speed_rpm:g} rpm (maximum service speed), rotor "
-          f"{args.rotor_mass_kg:g} kg (ISO 21940-11:2016)")
+          f"{rotor_mass_text(args.rotor_mass_kg, shown.rotor_mass)} (ISO 21940-11:2016)")
     if standard is None:
         print("note: not one of the standard grades G 0.4 ... G 4000")
     else:
         print(f"typical rotors: {standard.examples}")
     print(f"permissible specific unbalance e_per: {e_um:.4g} µm")
-    print(f"permissible residual unbalance U_per: {u_gmm:.4g} g·mm")
+    print(f"permissible residual unbalance U_per: {_u(u_gmm, shown)}")
 
 
 FLAG_TEXT = {
@@ -212,16 +234,18 @@ def _run_bearings(args: argparse.Namespace, e_um: float, u_gmm: float) -> int:
     out["flags"] = flags
     if v is not None:
         out["pass"] = v.passed
+    shown: UnitChoice = args.shown
     if args.json:
-        print_json(out)
+        print_json(json_in_units(out, shown))
         return 0
     _header(args, e_um, u_gmm, standard)
-    print(f"tolerance planes: the bearings at {z_a:g} and {z_b:g} mm (ISO 21940-11:2016, "
-          "clause 4; allocation by the lever rule, clause 7)")
+    print(f"tolerance planes: the bearings at {length_text(z_a, shown.length)} and "
+          f"{length_text(z_b, shown.length)} (ISO 21940-11:2016, clause 4; allocation by the "
+          "lever rule, clause 7)")
     for i, (name, share) in enumerate(zip(("A", "B"), shares, strict=True)):
-        line = f"  bearing {name}: permitted {share:.4g} g·mm"
+        line = f"  bearing {name}: permitted {_u(share, shown)}"
         if v is not None:
-            line += f", residual referred here {v.residual_gmm[i]:.4g} g·mm"
+            line += f", residual referred here {_u(v.residual_gmm[i], shown)}"
         print(line)
     if v is not None and v.arrangement is not None:
         print(f"correction planes: {v.arrangement.value}")

@@ -10,12 +10,21 @@ from trueturn.balance.parts import PartsFit, best_combination
 from trueturn.balance.splitting import (
     DEFAULT_POINT_ANGLE_DEG,
     combine,
+    negligible_parts,
     removal,
     split,
 )
 from trueturn.cli.cmd_grade import parse_grade
-from trueturn.cli.common import number, print_json
+from trueturn.cli.common import add_quantity, json_in_units, number, print_json, read_units
 from trueturn.errors import UserError
+from trueturn.model.units import (
+    MASS_DECIMALS,
+    UnitChoice,
+    length_text,
+    mass_text,
+    mass_to_g,
+    unbalance_text,
+)
 from trueturn.positions import degrees_text, equally_spaced_deg, position_text
 
 
@@ -48,7 +57,8 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                     "masses into one; or remove material opposite instead of adding. Angles "
                     "count from the reference mark against rotation; positions are numbered "
                     "from 1 in the same direction, as on the printed ring.")
-    parser.add_argument("--mass-g", type=number("mass_g_or_zero"), help="correction mass, g")
+    add_quantity(parser, "mass", "mass", "correction mass",
+                 spans=("mass_g_or_zero", "mass_oz_or_zero"))
     parser.add_argument("--angle-deg", type=number("angle_deg"), help="correction angle, degrees")
     parser.add_argument("--combine", type=_mass_at, nargs="+", metavar="MASS_G@ANGLE_DEG",
                         help="use the vector sum of these masses as the correction")
@@ -61,7 +71,7 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                              "`trueturn ring`")
     parser.add_argument("--remove", action="store_true",
                         help="drill material out at the opposite angle instead of adding")
-    parser.add_argument("--drill-mm", type=number("drill_mm"), help="drill diameter for --remove, mm")
+    add_quantity(parser, "drill", "drill", "drill diameter for --remove")
     parser.add_argument("--density-g-cm3", type=number("density_g_cm3"), default=7.85,
                         help="material density for --remove, g/cm³ (default 7.85, steel)")
     parser.add_argument("--point-deg", type=number("point_deg"), default=DEFAULT_POINT_ANGLE_DEG,
@@ -69,17 +79,17 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     have = parser.add_argument_group(
         "the weights you have", "place the correction as the best combination of the parts "
         "you own (exact branch-and-bound search; the unbalance left is reported)")
-    have.add_argument("--have-g", type=number("mass_g"), nargs="+", metavar="MASS_G",
-                      help="mass of each part you own, g, one per piece (0.5 0.5 1.0 2.0)")
+    add_quantity(parser, "have", "mass", "mass of each part you own, one per piece "
+                 "(0.5 0.5 1.0 2.0)", within=have, nargs="+", metavar="MASS")
     have.add_argument("--stack", type=number("stack", whole=True), default=None,
                       help="most parts one position takes (default 1)")
-    have.add_argument("--radius-mm", type=number("radius_mm"),
-                      help="radius of the positions, mm (for the unbalance left, g·mm)")
+    add_quantity(parser, "radius", "radius", "radius of the positions (for the unbalance "
+                 "left)", within=have)
     have.add_argument("--grade", type=parse_grade,
                       help="balance quality grade G to judge the unbalance left against "
                            "(with --speed-rpm and --rotor-mass-kg)")
     have.add_argument("--speed-rpm", type=number("speed_rpm"), help="maximum service speed, rpm")
-    have.add_argument("--rotor-mass-kg", type=number("rotor_mass_kg"), help="mass of the rotor, kg")
+    add_quantity(parser, "rotor-mass", "rotor_mass", "mass of the rotor", within=have)
     have.add_argument("--planes", type=int, choices=(1, 2), default=1,
                       help="correction planes of the rotor: 2 gives this plane half of U_per "
                            "(default 1)")
@@ -98,14 +108,15 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     parser.set_defaults(run=run)
 
 
-def _from_machine(args: argparse.Namespace) -> None:
-    """Fill what the command line left out from the machine profile (``--machine``)."""
+def _from_machine(args: argparse.Namespace) -> UnitChoice | None:
+    """Fill what the command line left out from the machine profile (``--machine``); the
+    profile's units."""
     from trueturn.jobs.store import Workspace
 
     if args.machine is None:
         if args.plane is not None:
             raise UserError("--plane goes with --machine")
-        return
+        return None
     profile = Workspace.open(args.workspace).load_machine(args.machine)
     if args.plane is None:
         if len(profile.planes) != 1:
@@ -134,10 +145,15 @@ def _from_machine(args: argparse.Namespace) -> None:
             args.grade, args.speed_rpm = profile.target_grade, profile.speed_max_rpm
             args.rotor_mass_kg = profile.rotor_mass_kg
             args.planes = len(profile.planes)
+    return profile.units.choice()
 
 
 def run(args: argparse.Namespace) -> int:
-    _from_machine(args)
+    shown = read_units(args)
+    machine_units = _from_machine(args)
+    if machine_units is not None and machine_units.mass == "oz":
+        shown = machine_units  # the machine's own units, unless the command line gave some
+    args.shown = shown
     if args.combine:
         if args.mass_g is not None or args.angle_deg is not None:
             raise UserError("give either --combine or --mass-g/--angle-deg, not both")
@@ -187,12 +203,15 @@ def run(args: argparse.Namespace) -> int:
             raise UserError("--have-g needs the rotor's positions (--positions N or --at-deg)")
         return _run_have(args, mass_g, angle_deg, positions)
     parts = split(mass_g, angle_deg, positions)
+    resolution_g = mass_to_g(10.0 ** -MASS_DECIMALS[shown.mass], shown.mass)
+    left_out = negligible_parts(parts, resolution_g)
     out: dict[str, Any] = {"mode": "remove" if args.remove else "add",
                            "correction": {"mass_g": round(mass_g, 6), "angle_deg": round(angle_deg, 3)},
                            "parts": []}
     for p in parts:
         item: dict[str, Any] = {"position": p.number if (args.positions or args.at_deg) else None,
-                                "angle_deg": round(p.angle_deg, 3), "mass_g": round(p.mass_g, 6)}
+                                "angle_deg": round(p.angle_deg, 3), "mass_g": round(p.mass_g, 6),
+                                "negligible": p in left_out}
         if args.remove:
             hole = removal(p.mass_g, (p.angle_deg + 180.0) % 360.0, args.drill_mm,
                            args.density_g_cm3, args.point_deg)
@@ -200,23 +219,32 @@ def run(args: argparse.Namespace) -> int:
             item["depth_to_tip_mm"] = round(hole.depth_to_tip_mm, 3)
         out["parts"].append(item)
     if args.json:
-        print_json(out)
+        print_json(json_in_units(out, shown))
         return 0
     verb = "remove" if args.remove else "add"
-    print(f"correction to {verb}: {mass_g:.4g} g at {degrees_text(angle_deg)}")
+    print(f"correction to {verb}: {mass_text(mass_g, shown.mass)} at {degrees_text(angle_deg)}")
     for item in out["parts"]:
         if item["position"] is not None:
             where = position_text(item["position"], item["angle_deg"])
         else:
             where = f"at {degrees_text(item['angle_deg'])}"
-        text = f"  {where}: {verb} {item['mass_g']:.4g} g"
+        if item["negligible"]:
+            print(f"  ({where}: {mass_text(item['mass_g'], shown.mass)}, below what the scale "
+                  "weighs: nothing to place)")
+            continue
+        text = f"  {where}: {verb} {mass_text(item['mass_g'], shown.mass)}"
         if args.remove:
-            text += (f" — {args.drill_mm:g} mm drill, {item['depth_full_diameter_mm']:.2f} mm at full "
-                     f"diameter ({item['depth_to_tip_mm']:.2f} mm to the tip)")
+            text += (f" — {length_text(args.drill_mm, shown.length)} drill, "
+                     f"{length_text(item['depth_full_diameter_mm'], shown.length)} at full "
+                     f"diameter ({length_text(item['depth_to_tip_mm'], shown.length)} to the "
+                     "tip)")
         print(text)
-    print("Caution: work only with the machine switched off, locked out and at standstill (tach "
-          "confirmed); check that drilling does not weaken the part and follow the "
-          "manufacturer's instructions.")
+    if args.remove:
+        print("Caution: work only with the machine switched off, locked out and at standstill "
+              "(tach confirmed); check that drilling does not weaken the part and follow the "
+              "manufacturer's instructions.")
+    else:
+        print(ADD_CAUTION)
     return 0
 
 
@@ -271,32 +299,42 @@ def _run_have(args: argparse.Namespace, mass_g: float, angle_deg: float,
                         "rotor_mass_kg": args.rotor_mass_kg, "planes": args.planes,
                         "allowed_gmm": round(allowed, 6), "within": residual_gmm <= allowed}
     if args.json:
-        print_json(out)
+        print_json(json_in_units(out, args.shown))
         return 0
-    print(f"correction to add: {mass_g:.4g} g at {degrees_text(angle_deg)}")
+    shown: UnitChoice = args.shown
+    print(f"correction to add: {mass_text(mass_g, shown.mass)} at {degrees_text(angle_deg)}")
     if fit.uses:
-        words = ", ".join(_use_text(u.masses_g, u.number, u.angle_deg) for u in fit.uses)
+        words = ", ".join(_use_text(u.masses_g, u.number, u.angle_deg, shown)
+                          for u in fit.uses)
     else:
         words = "nothing (any part you have would leave more unbalance than adding none)"
-    line = f"best with your parts: {words}; leaves {residual_gmm:.3g} g·mm"
+    line = (f"best with your parts: {words}; leaves "
+            f"{unbalance_text(residual_gmm, shown.mass, shown.length)}")
     if allowed is not None:
-        line += f", allowed {allowed:.3g} g·mm ({'within' if out['grade']['within'] else 'NOT within'} G {args.grade:g})"
+        within = "within" if out["grade"]["within"] else "NOT within"
+        line += (f", allowed {unbalance_text(allowed, shown.mass, shown.length)} ({within} "
+                 f"G {args.grade:g})")
     print(line)
     if fit.unused_g:
-        print("left over: " + ", ".join(f"{m:g} g" for m in fit.unused_g))
+        print("left over: " + ", ".join(mass_text(m, shown.mass) for m in fit.unused_g))
     if not fit.proven_best:
         print("note: the search stopped at its limit; this is the best found, not proven the "
               "best (the unbalance left is exact for the parts shown)")
-    print("Caution: fasten every part securely; work only with the machine switched off, "
-          "locked out and at standstill (tach confirmed), and follow the manufacturer's "
-          "instructions.")
+    print(ADD_CAUTION)
     return 0
 
 
-def _use_text(masses_g: tuple[float, ...], number: int, angle_deg: float) -> str:
-    """``'2 × 0.5 g + 1 g at position 3 (120°)'``."""
+ADD_CAUTION = ("Caution: fasten every part securely; work only with the machine switched off, "
+               "locked out and at standstill (tach confirmed), and follow the manufacturer's "
+               "instructions.")
+
+
+def _use_text(masses_g: tuple[float, ...], number: int, angle_deg: float,
+              shown: UnitChoice) -> str:
+    """``'2 × 0.50 g + 1.00 g at position 3 (120°)'``."""
     groups: dict[float, int] = {}
     for m in masses_g:
         groups[m] = groups.get(m, 0) + 1
-    what = " + ".join(f"{n} × {m:g} g" if n > 1 else f"{m:g} g" for m, n in groups.items())
+    what = " + ".join(f"{n} × {mass_text(m, shown.mass)}" if n > 1 else mass_text(m, shown.mass)
+                      for m, n in groups.items())
     return f"{what} at {position_text(number, angle_deg)}"

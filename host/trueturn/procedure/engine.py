@@ -12,10 +12,11 @@ from __future__ import annotations
 from collections.abc import Sequence
 from dataclasses import replace
 
+from trueturn.balance.iso21940 import per_plane_permissible, permissible_unbalance_gmm
 from trueturn.balance.readings import BalanceInput, SavedCoefficient, Sensor, Tolerance
 from trueturn.balance.sanity import NoInformationError
 from trueturn.balance.solve import SolveReport, solve
-from trueturn.balance.splitting import split
+from trueturn.balance.splitting import negligible_parts, split
 from trueturn.balance.trial_mass import (
     STANDARD_GRAVITY_M_S2,
     centrifugal_force_n,
@@ -34,7 +35,8 @@ from trueturn.procedure.guide import (
     planes_for,
 )
 
-MIN_PART_FRACTION = 0.02  # a split share under 2 % of the correction is left out
+#: the resolution parts are weighed and listed to, g (a pocket scale: 0.01 g)
+PART_RESOLUTION_G = 0.01
 
 
 class BalanceEngine:
@@ -93,6 +95,11 @@ class BalanceEngine:
         """The parts a person places: each correction split onto the plane's positions;
         removal takes the same mass out opposite (:meth:`PlacedMass.as_addition` undoes it)."""
         parts: list[PlacedMass] = []
+        # a split part is left out when it is negligible against the plane's share of the
+        # tolerance (balance.splitting.negligible_parts: at most a tenth of it)
+        u_per = permissible_unbalance_gmm(setup.grade_mm_per_s, setup.speed_rpm,
+                                          setup.rotor_mass_kg)
+        allowed = per_plane_permissible(u_per, max(setup.profile_planes, len(setup.planes)))[0]
         for c in corrections:
             if c.mass_g <= 0:
                 continue
@@ -107,8 +114,9 @@ class BalanceEngine:
                 pieces = split(whole.mass_g, whole.angle_deg, plane.position_angles_deg)
             except UserError as exc:
                 raise GateRefused(f"plane {plane.name}: {exc}") from None
+            left_out = negligible_parts(pieces, PART_RESOLUTION_G, plane.radius_mm, allowed)
             for piece in pieces:
-                if piece.mass_g >= max(0.005, MIN_PART_FRACTION * c.mass_g):
+                if piece not in left_out:
                     parts.append(replace(whole, mass_g=round(piece.mass_g, 2),
                                          angle_deg=piece.angle_deg, position=piece.index))
         return tuple(parts)

@@ -1,0 +1,120 @@
+"""The math commands in imperial units: inputs in lb, in, oz; answers in the same units
+(issue #17 item 3), and small CLI wording fixes (item 10)."""
+
+from __future__ import annotations
+
+import json
+import math
+
+import pytest
+
+from cli_helpers import run_cli
+from trueturn.cli.main import COMMANDS
+
+# NIST SP 811 (2008), Appendix B (exact): 1 lb = 0.45359237 kg, 1 in = 25.4 mm,
+# 1 oz = 28.349523125 g, 1 lbf = 4.4482216152605 N (1 lb under 9.80665 m/s²).
+OZ_G, IN_MM, LB_KG, LBF_N = 28.349523125, 25.4, 0.45359237, 4.4482216152605
+
+
+def test_trial_mass_in_imperial_answers_in_oz_and_lbf():
+    code, out, err = run_cli(["trial-mass", "--rotor-mass-lb", "10", "--radius-in", "3",
+                              "--speed-rpm", "3450", "--json"])
+    assert code == 0, err
+    data = json.loads(out)
+    assert "mass_g" not in data and data["radius_in"] == 3.0
+    # 10 % of a 10 lb rotor's weight is 1 lbf by the definition of the pound-force
+    assert data["force_lbf"] == pytest.approx(1.0, abs=1e-6)
+    # m = F / (r omega²): closed form, computed here in SI independently of the command
+    omega = 3450 * 2 * math.pi / 60
+    mass_kg = LBF_N / (3 * IN_MM / 1000 * omega**2)
+    assert data["mass_oz"] == pytest.approx(mass_kg * 1000 / OZ_G, rel=1e-5)
+    code, text, _ = run_cli(["trial-mass", "--rotor-mass-lb", "10", "--radius-in", "3",
+                             "--speed-rpm", "3450"])
+    first = text.splitlines()[0]
+    assert first == f"trial mass: {mass_kg * 1000 / OZ_G:.3f} oz at 3.000 in"
+    assert "1.00 lbf" in text and " g " not in text
+
+
+def test_metric_and_imperial_answers_agree():
+    _, metric, _ = run_cli(["trial-mass", "--rotor-mass-kg", str(10 * LB_KG), "--radius-mm",
+                            str(3 * IN_MM), "--speed-rpm", "3450", "--json"])
+    _, imperial, _ = run_cli(["trial-mass", "--rotor-mass-lb", "10", "--radius-in", "3",
+                              "--speed-rpm", "3450", "--json"])
+    m, i = json.loads(metric), json.loads(imperial)
+    assert i["mass_oz"] * OZ_G == pytest.approx(m["mass_g"], rel=1e-5)
+    assert i["force_n"] == pytest.approx(m["force_n"])
+
+
+@pytest.mark.parametrize("argv", [
+    ["trial-mass", "--rotor-mass-lb", "10", "--rotor-mass-kg", "4", "--radius-in", "3",
+     "--speed-rpm", "3450"],
+    ["split", "--mass-g", "1", "--mass-oz", "0.1", "--angle-deg", "0", "--positions", "4"],
+    ["grade", "--rotor-mass-lb", "10", "--speed-rpm", "3450", "--grade", "6.3",
+     "--residual-gmm", "1", "1", "--residual-ozin", "1", "1"],
+])
+def test_metric_and_imperial_of_one_quantity_is_one_line(argv):
+    code, out, err = run_cli(argv)
+    assert code == 2 and out == "" and len(err.strip().splitlines()) == 1
+    assert "not allowed with" in err
+
+
+def test_grade_in_imperial_gives_oz_in():
+    # ISO 21940-11:2016: U_per = G m / omega; the same rotor in kg and lb, U_per in g·mm and
+    # oz·in agree through 1 oz·in = 28.349523125 × 25.4 g·mm
+    _, metric, _ = run_cli(["grade", "--rotor-mass-kg", str(10 * LB_KG), "--speed-rpm", "3450",
+                            "--grade", "6.3", "--json"])
+    code, imperial, err = run_cli(["grade", "--rotor-mass-lb", "10", "--speed-rpm", "3450",
+                                   "--grade", "6.3", "--json"])
+    assert code == 0, err
+    m, i = json.loads(metric), json.loads(imperial)
+    assert i["U_per_ozin"] == pytest.approx(m["U_per_gmm"] / (OZ_G * IN_MM), abs=1e-6)
+    assert i["per_plane_ozin"][0] == pytest.approx(m["per_plane_gmm"][0] / (OZ_G * IN_MM),
+                                                   abs=1e-6)
+    _, text, _ = run_cli(["grade", "--rotor-mass-lb", "10", "--speed-rpm", "3450", "--grade",
+                          "6.3", "--residual-ozin", "0.01", "0.01"])
+    assert "rotor 10.0 lb" in text and "oz·in" in text and "g·mm" not in text
+    assert "verdict: PASS" in text
+
+
+def test_split_rounds_to_the_scale_and_cautions_fit_the_work():
+    # a pocket scale reads 0.01 g (common practice, no source): 0.7375 g shows as 0.74 g
+    code, out, _ = run_cli(["split", "--mass-g", "0.7375", "--angle-deg", "0", "--positions",
+                            "4"])
+    assert code == 0 and "add 0.74 g" in out and "0.7375" not in out
+    assert "drill" not in out and "fasten" in out  # adding: no drilling caution
+    _, out, _ = run_cli(["split", "--mass-g", "0.7375", "--angle-deg", "0", "--positions", "4",
+                         "--remove", "--drill-mm", "5"])
+    assert "drilling does not weaken" in out
+
+
+def test_split_leaves_out_a_part_below_the_scale():
+    # 1 g at 0.2° between 0° and 90°: the part at 90° is 1 g sin(0.2°)/sin(90°) = 0.0035 g
+    # (law of sines), below the 0.01 g a pocket scale weighs
+    code, out, _ = run_cli(["split", "--mass-g", "1", "--angle-deg", "0.2", "--positions", "4"])
+    assert code == 0
+    assert "add 1.00 g" in out and "add 0.00 g" not in out
+    assert "nothing to place" in out
+    _, data, _ = run_cli(["split", "--mass-g", "1", "--angle-deg", "0.2", "--positions", "4",
+                          "--json"])
+    parts = json.loads(data)["parts"]
+    assert [p["negligible"] for p in parts] == [False, True]
+    assert parts[1]["mass_g"] == pytest.approx(math.sin(math.radians(0.2)), abs=1e-6)
+
+
+def test_split_in_ounces_and_inches():
+    code, out, err = run_cli(["split", "--mass-oz", "0.05", "--angle-deg", "45", "--positions",
+                              "4", "--remove", "--drill-in", "0.25", "--json"])
+    assert code == 0, err
+    data = json.loads(out)
+    assert data["correction"]["mass_oz"] == pytest.approx(0.05)
+    # 45° between 0° and 90°: two equal parts of m sin 45° / sin 90° (law of sines)
+    assert [p["mass_oz"] for p in data["parts"]] == pytest.approx([0.05 / math.sqrt(2)] * 2,
+                                                                  abs=1e-6)
+    assert all("depth_to_tip_in" in p for p in data["parts"])
+
+
+@pytest.mark.parametrize("command", sorted(COMMANDS))
+def test_help_never_shows_a_doubled_percent(command):
+    # argparse formats help= strings with %, but a description only when it holds %(prog)
+    code, out, _ = run_cli([command, "--help"])
+    assert code == 0 and "%%" not in out

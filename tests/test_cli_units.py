@@ -72,7 +72,7 @@ def test_grade_in_imperial_gives_oz_in():
                                                    abs=1e-6)
     _, text, _ = run_cli(["grade", "--rotor-mass-lb", "10", "--speed-rpm", "3450", "--grade",
                           "6.3", "--residual-ozin", "0.01", "0.01"])
-    assert "rotor 10.0 lb" in text and "oz·in" in text and "g·mm" not in text
+    assert "rotor 10 lb" in text and "oz·in" in text and "g·mm" not in text
     assert "verdict: PASS" in text
 
 

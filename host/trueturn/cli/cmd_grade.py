@@ -25,7 +25,7 @@ from trueturn.model.units import (
     IMPERIAL,
     UnitChoice,
     length_text,
-    rotor_mass_text,
+    rotor_mass_from_kg,
     unbalance_text,
     unbalance_to_gmm,
 )
@@ -158,7 +158,7 @@ def run(args: argparse.Namespace) -> int:
 
 def _u(unbalance_gmm: float, shown: UnitChoice) -> str:
     """An unbalance in the units the person typed."""
-    return unbalance_text(unbalance_gmm, shown.mass, shown.length)
+    return unbalance_text(unbalance_gmm, shown.mass, shown.length, digits=4)
 
 
 def _standard(grade_mm_s: float) -> Grade | None:
@@ -168,7 +168,8 @@ def _standard(grade_mm_s: float) -> Grade | None:
 def _header(args: argparse.Namespace, e_um: float, u_gmm: float, standard: Grade | None) -> None:
     shown: UnitChoice = args.shown
     print(f"grade G {args.grade:g} at {args.speed_rpm:g} rpm (maximum service speed), rotor "
-          f"{rotor_mass_text(args.rotor_mass_kg, shown.rotor_mass)} (ISO 21940-11:2016)")
+          f"{rotor_mass_from_kg(args.rotor_mass_kg, shown.rotor_mass):.4g} {shown.rotor_mass} "
+          "(ISO 21940-11:2016)")
     if standard is None:
         print("note: not one of the standard grades G 0.4 ... G 4000")
     else:

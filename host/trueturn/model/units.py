@@ -211,10 +211,10 @@ def force_text(force_n: float, unit: ForceUnit, sep: str = " ") -> str:
 
 
 def unbalance_text(unbalance_gmm: float, mass: MassUnit, length: LengthUnit,
-                   sep: str = " ") -> str:
-    """An unbalance to 3 significant figures: ``'125 g·mm'``, ``'0.174 oz·in'``."""
+                   sep: str = " ", digits: int = 3) -> str:
+    """An unbalance to ``digits`` significant figures: ``'125 g·mm'``, ``'0.174 oz·in'``."""
     value = unbalance_from_gmm(unbalance_gmm, mass, length)
-    return f"{significant_text(value)}{sep}{mass}·{length}"
+    return f"{significant_text(value, digits)}{sep}{mass}·{length}"
 
 
 def vibration_text(amplitude: float, unit: str, choice: UnitChoice, sep: str = " ",

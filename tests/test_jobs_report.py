@@ -72,7 +72,7 @@ def test_html_is_well_formed_and_self_contained(job: JobRecord) -> None:
 
 def test_before_after_table_per_pickup(page: ET.Element, job: JobRecord) -> None:
     rows = table(page, "before-after")
-    assert rows[0] == ["Pickup", "Before", "Phase", "After", "Phase", "Change"]
+    assert rows[0] == ["Pickup", "Before (run 1)", "Phase", "After (run 4)", "Phase", "Change"]
     assert [r[0] for r in rows[1:]] == ["left bearing", "right bearing"]
     first, last = job.runs[0].readings[0], job.runs[-1].readings[0]
     assert rows[1][1] == f"{first.amplitude:.3f} mm/s rms"
@@ -150,8 +150,9 @@ def test_units_follow_the_machine_preferences(job: JobRecord) -> None:
 def test_markdown_has_the_same_tables(job: JobRecord) -> None:
     text = markdown_report(job)
     assert text.startswith("# Balancing report: Bench grinder 200 mm")
-    assert "| Pickup | Before | Phase | After | Phase | Change |" in text
+    assert "| Pickup | Before (run 1) | Phase | After (run 4) | Phase | Change |" in text
     assert "| left bearing | 2.653 mm/s rms | 313.3\u00b0 \u00b1 1.6\u00b0 |" in text
+    assert "## Sign-off" in text and "Machine serial number: ____" in text
     assert "## Cautions" in text and "<svg" not in text
 
 
@@ -172,6 +173,8 @@ def test_report_of_a_new_job_without_runs(tmp_path: Path, job: JobRecord) -> Non
     assert "No verdict recorded yet." in "".join(page.itertext())
     assert table(page, "before-after") == [["Pickup", "Before", "Phase", "After", "Phase",
                                             "Change"]]
+    grade = dict(tuple(r) for r in table(page, "kv grade"))
+    assert grade["Service speed"].endswith("(highest working speed of the profile)")
     assert "No runs recorded yet." in "".join(page.itertext())
     assert len(table(page, "runs")) == 1
     text = markdown_report(fresh)
@@ -219,3 +222,119 @@ def test_plot_uses_the_dsp_confidence_radius_when_stored(job: JobRecord) -> None
                            (float(line.get("x2")), float(line.get("y2"))))
         circle = next(c for c in g.iter(f"{SVG}circle") if c.get("class") == "confidence")
         assert float(circle.get("r")) == pytest.approx(max(length / 2, 0.8), abs=0.02)
+
+
+def test_an_open_job_shows_no_trial_run_as_after(job: JobRecord) -> None:
+    # An open job stopped after its trial-weight run: the trial reading is a measurement
+    # step, so nothing may stand in the "After" column, and the page says why.
+    open_job = dataclasses.replace(copy.deepcopy(job), status="open", verdict=None,
+                                   runs=copy.deepcopy(job.runs[:2]))
+    assert open_job.runs[1].kind == "trial"
+    page = ET.fromstring(html_report(open_job))
+    rows = table(page, "before-after")
+    assert rows[0][3] == "After"
+    assert all(row[3] == "-" and row[4] == "-" and row[5] == "-" for row in rows[1:])
+    assert "trial-weight runs are measurement steps" in "".join(page.itertext())
+    assert "| - | - | - |" in markdown_report(open_job)
+
+
+def test_e_per_u_per_and_the_service_speed(page: ET.Element, job: JobRecord) -> None:
+    # ISO 21940-11:2016, 5.2/Annex: e_per = G / omega with omega at the maximum service speed,
+    # U_per = e_per * m (G in mm/s, omega = 2 pi n / 60 in rad/s; e_per in um = g mm / kg).
+    assert job.verdict is not None
+    omega = 2 * math.pi * job.verdict.speed_rpm / 60
+    e_per_um = 1000 * job.verdict.grade / omega
+    grade = dict(tuple(r) for r in table(page, "kv grade"))
+    assert grade["Service speed"] == f"{job.verdict.speed_rpm:g} rpm"
+    assert grade["e_per"] == f"{e_per_um:.3g} \u00b5m (g\u00b7mm/kg)" == "20.4 \u00b5m (g\u00b7mm/kg)"
+    assert grade["U_per (whole rotor)"] == f"{e_per_um * job.machine.rotor_mass_kg:.1f} g\u00b7mm"
+
+
+def test_one_phase_format_and_times_with_their_zone(page: ET.Element) -> None:
+    phases = [row[2] for row in table(page, "before-after")[1:]]
+    phases += [row[4] for row in table(page, "before-after")[1:]]
+    phases += [row[3] for row in table(page, "influence")[1:]]
+    for row in table(page, "runs")[1:]:
+        phases += [cell.split(" at ", 1)[1] for cell in row[4:6]]
+    assert len(phases) == 2 + 2 + 4 + 8
+    for phase in phases:  # "202.0 deg", never "202 deg" beside "313.3 deg"
+        assert re.fullmatch(r"\d{1,3}\.\d\u00b0( \u00b1 \d+\.\d\u00b0)?", phase), phase
+    job_rows = {r[0]: r[1] for t in page.iter(f"{XHTML}table") if t.get("class") == "kv"
+                for r in (["".join(c.itertext()) for c in row] for row in t.iter(f"{XHTML}tr"))}
+    assert job_rows["Started"] == "2026-11-28 14:02 UTC"
+    assert "report generated 2026-12-01 10:00 UTC" in "".join(page.itertext())
+
+
+def test_times_in_other_zones_are_shown_in_utc() -> None:
+    from trueturn.jobs.report import short_time, time_text
+
+    # ISO 8601 offsets: 15:02+01:00 is 14:02 UTC
+    assert time_text("2026-11-28T15:02:10+01:00") == "2026-11-28 14:02 UTC"
+    assert short_time("2026-11-28T14:02:10Z") == "2026-11-28 14:02"
+    assert time_text("2026-11-28T14:02:10") == "2026-11-28 14:02 (zone?)"  # never called UTC
+    assert time_text("yesterday") == "yesterday"
+
+
+def test_imperial_job_uses_its_units_throughout(job: JobRecord) -> None:
+    imperial = copy.deepcopy(job)
+    imperial.machine.units.vibration = "in/s"
+    imperial.machine.units.mass = "oz"
+    imperial.machine.units.length = "in"
+    imperial.notes = ""  # the person's own words may name any unit
+    imperial.machine.name = "Bench grinder 8 in"
+    page = ET.fromstring(html_report(imperial))
+    text = "".join(next(page.iter(f"{XHTML}body")).itertext())
+    # no metric figure left: unbalance, rotor mass, lengths, vibration, influence
+    for metric in ("g\u00b7mm", " kg", " mm ", "mm/s", " \u00b5m", " per g"):
+        assert metric not in text.replace("g\u00b7mm/kg", ""), metric
+    verdict = table(page, "verdict")
+    # 1 oz in = 28.349523125 g x 25.4 mm = 720.08 g mm (NIST SP 811 B.8)
+    number, unit = verdict[1][2].split(" ")
+    assert unit == "oz\u00b7in" and float(number) == pytest.approx(24.5 / (28.349523125 * 25.4),
+                                                                   rel=2e-3)
+    assert verdict[1][1].split(" ")[1] == "oz\u00b7in"
+    grade = dict(tuple(r) for r in table(page, "kv grade"))
+    # 1 lb = 0.45359237 kg (NIST SP 811 B.8); 1 mil = 25.4 um
+    assert grade["Rotor mass"] == f"{2.4 / 0.45359237:.3g} lb" == "5.29 lb"
+    assert grade["e_per"].endswith(" mil")
+    influence = table(page, "influence")
+    assert influence[1][2].endswith("in/s rms per oz")
+    assert float(influence[1][2].split()[0]) == pytest.approx(0.5843 / 25.4 * 28.349523125,
+                                                              rel=1e-3)
+
+
+def test_page_footer_carries_the_job_id_safely(job: JobRecord) -> None:
+    from trueturn.jobs.report import page_css
+
+    odd = dataclasses.replace(job, job_id='x"; } body { display: none } </style><b>')
+    text = html_report(odd)
+    style = text[text.index("<style>"):text.index("</style>")]
+    css = page_css(odd.job_id)
+    assert css in style and "<" not in css and css.count('"') == 10
+    assert "counter(page)" in css and "counter(pages)" in css
+    # CSS Syntax Level 3, 4.3.7: \000022 followed by a space is the character '"'
+    assert "x\\000022 \\00003b  \\00007d  body" in css
+
+
+def test_report_has_lines_for_serial_number_and_signature(page: ET.Element) -> None:
+    rows = table(page, "signoff")
+    assert [r[0] for r in rows] == ["Machine serial number", "Balanced by (name)", "Signature",
+                                    "Date"]
+    assert all(r[1] == "" for r in rows)
+
+
+def test_runs_differ_by_shape_and_labels_keep_off_the_markers(job: JobRecord) -> None:
+    from trueturn.jobs.report import polar_svg
+
+    for pickup in job.machine.pickups:
+        svg = ET.fromstring(polar_svg(job, pickup.name))
+        groups = [g for g in svg.iter(f"{SVG}g") if g.get("class") == "run-vector"]
+        assert len({g.get("data-shape") for g in groups}) == len(groups)
+        tips = []
+        for g in groups:
+            line = g.find(f"{SVG}line")
+            tips.append((float(line.get("x2")), float(line.get("y2"))))
+        for label in (t for t in svg.iter(f"{SVG}text") if t.get("class") == "label"):
+            x, y = float(label.get("x")), float(label.get("y")) - 4.0  # centre of a 12-unit digit
+            # every marker (8 units across) at least a marker and half a digit away
+            assert min(math.dist((x, y), tip) for tip in tips) > 4 + 4

@@ -4,6 +4,12 @@ The report shows what the job stores (readings, corrections, verdict); it comput
 but unit conversions and plot geometry. The HTML uses no network resources and no scripts;
 its print styles fit A4 (210 mm) and US Letter (216 mm) paper with 12 mm margins.
 
+Units: everything a person reads is in the machine profile's units (``units.mass``,
+``units.length``, ``units.vibration``): masses in g or oz, lengths in mm or in, unbalance in
+g·mm or oz·in, the rotor's mass in kg or lb, eccentricity in µm or mil, vibration in mm/s or
+in/s; the CSV keeps the stored values. Phases are always shown with one decimal; times are
+shown in UTC and say so.
+
 Plot orientation: the one mapping of angles.screen_xy, the same as the app's live plot and the
 printed ring: 0 deg at the top; angles grow against rotation as seen from the pickup side, so a
 rotor turning clockwise has its angles drawn counter-clockwise. Positions are numbered from 1
@@ -19,19 +25,25 @@ import io
 import math
 import re
 from collections.abc import Iterable, Sequence
+from datetime import datetime, timezone
 
-from trueturn.angles import Rotation, screen_xy
+from trueturn.angles import Rotation, screen_xy, wrap_deg
+from trueturn.balance.iso21940 import permissible_eccentricity_um, permissible_unbalance_gmm
+from trueturn.constants import UM_PER_MIL
 from trueturn.dsp.findings import describe
 from trueturn.dsp.severity import ZONES_SOURCE
 from trueturn.jobs.condition import evidence_finding, severity_finding, verdict_finding
 from trueturn.jobs.profiles import (
+    G_PER_OZ,
     MachineProfile,
+    Units,
     convert_vibration,
     format_length,
     format_mass,
 )
 from trueturn.jobs.records import JobRecord, RunEntry
 from trueturn.model import Reading
+from trueturn.model import units as model_units
 from trueturn.positions import degrees_text, number_of, position_text
 
 #: Okabe & Ito (2008) colour-blind-safe palette; one colour per run, in order.
@@ -62,11 +74,39 @@ def _e(text: object) -> str:
 _deg = degrees_text
 
 
+def _utc(iso: str) -> datetime | None:
+    """An ISO 8601 time with a zone (``Z`` or ``+hh:mm``) as a UTC datetime; None without."""
+    try:
+        when = datetime.fromisoformat(iso.strip().replace("Z", "+00:00"))
+    except ValueError:
+        return None
+    return when.astimezone(timezone.utc) if when.tzinfo is not None else None
+
+
 def short_time(iso: str) -> str:
-    """``'2026-11-28T14:02:10Z'`` shown as ``'2026-11-28 14:02'`` (other text unchanged)."""
-    if len(iso) >= 16 and iso[10] == "T":
-        return iso[:10] + " " + iso[11:16]
-    return iso
+    """A stored time for a column headed "(UTC)": ``'2026-11-28T14:02:10Z'`` -> ``'2026-11-28
+    14:02'``; a time with another offset is converted to UTC first; a time without a zone is
+    shown as written with "(zone?)" after it, and text that is no time unchanged."""
+    when = _utc(iso)
+    if when is not None:
+        return when.strftime("%Y-%m-%d %H:%M")
+    try:
+        datetime.fromisoformat(iso.strip())
+    except ValueError:
+        return iso
+    return iso.strip().replace("T", " ")[:16] + " (zone?)"
+
+
+def time_text(iso: str) -> str:
+    """A stored time shown on its own, with its zone: ``'2026-11-28 14:02 UTC'``."""
+    text = short_time(iso)
+    return text + " UTC" if _utc(iso) is not None else text
+
+
+def phase_text(phase_deg: float) -> str:
+    """A measured phase, always with one decimal: ``'202.0\u00b0'`` (one format everywhere)."""
+    value = wrap_deg(phase_deg)
+    return f"{0.0 if round(value, 1) >= 360.0 else value:.1f}\u00b0"
 
 
 def reading_text(reading: Reading, machine: MachineProfile) -> tuple[str, str]:
@@ -76,7 +116,31 @@ def reading_text(reading: Reading, machine: MachineProfile) -> tuple[str, str]:
     digits = 3 if amplitude < 10 else 1
     return (f"{amplitude:.{digits}f} {unit}",
             "no phase" if reading.phase_deg is None else
-            f"{_deg(reading.phase_deg)} \u00b1 {reading.confidence_deg:.1f}\u00b0")
+            f"{phase_text(reading.phase_deg)} \u00b1 {reading.confidence_deg:.1f}\u00b0")
+
+
+def unbalance_text(unbalance_gmm: float, units: Units) -> str:
+    """An unbalance (mass x radius) in the profile's mass and length units: ``'7.6 g·mm'``,
+    ``'0.0106 oz·in'`` (model.units does the conversion)."""
+    if units.mass == "g" and units.length == "mm":
+        return f"{unbalance_gmm:.1f} g\u00b7mm"
+    return model_units.unbalance_text(unbalance_gmm, units.mass, units.length)
+
+
+def rotor_mass_text(mass_kg: float, units: Units) -> str:
+    """The rotor's mass: kg, or lb when the masses are in oz (model.units.UnitChoice)."""
+    choice = units.choice()
+    if choice.rotor_mass == "kg":
+        return f"{mass_kg:g} kg"
+    return model_units.rotor_mass_text(mass_kg, choice.rotor_mass)
+
+
+def eccentricity_text(e_um: float, units: Units) -> str:
+    """A permissible specific unbalance (eccentricity): µm (= g·mm/kg), or mil (0.001 in)
+    when lengths are in inches."""
+    if units.length == "in":
+        return f"{model_units.significant_text(e_um / UM_PER_MIL)} mil"
+    return f"{e_um:.3g} \u00b5m (g\u00b7mm/kg)"
 
 
 def _reduction(before: Reading, after: Reading) -> str:
@@ -119,8 +183,85 @@ def confidence_radius(amplitude: float, confidence_deg: float) -> float:
     return amplitude * math.sin(math.radians(min(confidence_deg, 90.0)))
 
 
-def polar_svg(job: JobRecord, sensor: str, size_px: int = 320) -> str:
-    """Polar plot of every run's 1x vector of ``sensor`` with its confidence circle."""
+#: Printed width of a polar plot and of a plane picture (two plots side by side fit the
+#: 186 mm of A4 between 12 mm margins). With the viewBox widths below, 1 user unit is
+#: 86/320 = 0.269 mm and 56/170 = 0.329 mm, so a 10-unit tick label prints at 7.6 pt and
+#: 7.4 pt (1 pt = 25.4/72 mm): the 7 pt floor of the printed report.
+POLAR_WIDTH_MM = 86.0
+POLAR_VIEW = 320
+PLANE_WIDTH_MM = 56.0
+PLANE_VIEW = 170
+#: Smallest printed text of the report, pt.
+MIN_TEXT_PT = 7.0
+
+#: One marker shape per run (with the colour and a dash pattern), so runs stay apart in
+#: greyscale: circle, square, triangle, diamond, triangle down, pentagon, hexagon.
+RUN_SHAPES = ("circle", "square", "triangle", "diamond", "triangle-down", "pentagon", "hexagon")
+RUN_DASHES = ("", "7 3", "2 2.5", "9 3 2 3", "4 4", "1 3", "12 3")
+_SHAPE_SIDES = {"square": (4, 45.0), "triangle": (3, 0.0), "diamond": (4, 0.0),
+                "triangle-down": (3, 180.0), "pentagon": (5, 0.0), "hexagon": (6, 30.0)}
+
+
+def run_style(i: int) -> tuple[str, str, str]:
+    """(colour, marker shape, dash pattern) of the ``i``-th run drawn on a plot."""
+    return (RUN_COLOURS[i % len(RUN_COLOURS)], RUN_SHAPES[i % len(RUN_SHAPES)],
+            RUN_DASHES[i % len(RUN_DASHES)])
+
+
+def marker_svg(shape: str, x: float, y: float, size: float, colour: str,
+               extra: str = "") -> str:
+    """A filled marker of ``shape`` centred on (x, y), ``size`` across, with a white rim."""
+    common = f'fill="{colour}" stroke="#fff" stroke-width="0.8"{extra}'
+    if shape == "circle":
+        return f'<circle cx="{x:.2f}" cy="{y:.2f}" r="{size / 2:.2f}" {common}/>'
+    sides, turn = _SHAPE_SIDES[shape]
+    r = size / 2 * (1.25 if sides == 3 else 1.1)
+    pts = " ".join(f"{x + r * math.sin(math.radians(turn + k * 360 / sides)):.2f},"
+                   f"{y - r * math.cos(math.radians(turn + k * 360 / sides)):.2f}"
+                   for k in range(sides))
+    return f'<polygon points="{pts}" {common}/>'
+
+
+Box = tuple[float, float, float, float]  # x0, y0, x1, y1
+
+
+def _overlaps(a: Box, b: Box) -> bool:
+    return a[0] < b[2] and b[0] < a[2] and a[1] < b[3] and b[1] < a[3]
+
+
+def _text_box(x: float, y_baseline: float, text: str, size: float) -> Box:
+    """Estimated box of middle-anchored text (DejaVu Sans digits are 0.64 em wide)."""
+    half = 0.33 * size * len(text)
+    return (x - half, y_baseline - 0.78 * size, x + half, y_baseline + 0.22 * size)
+
+
+def place_label(x: float, y: float, text: str, size: float, avoid: list[Box],
+                outward: tuple[float, float], limits: Box) -> tuple[float, float]:
+    """Baseline point for a label beside the marker at (x, y): the first of 16 spots round
+    it (outward first, then turning both ways, then further out) whose box hits nothing in
+    ``avoid`` and stays inside ``limits``; the outward spot if none is free. Common
+    practice, no source: greedy label placement."""
+    ox, oy = outward
+    base = math.atan2(oy, ox)
+    tries = []
+    for distance in (1.05 * size, 1.7 * size):
+        for k in (0, 1, -1, 2, -2, 3, -3, 4):
+            a = base + k * math.pi / 4
+            tries.append((x + distance * math.cos(a), y + distance * math.sin(a) + 0.3 * size))
+    for tx, ty in tries:
+        box = _text_box(tx, ty, text, size)
+        if (box[0] >= limits[0] and box[1] >= limits[1] and box[2] <= limits[2]
+                and box[3] <= limits[3] and not any(_overlaps(box, b) for b in avoid)):
+            return tx, ty
+    return tries[0]
+
+
+def polar_svg(job: JobRecord, sensor: str, size_px: int = POLAR_VIEW) -> str:
+    """Polar plot of every run's 1x vector of ``sensor`` with its confidence circle.
+
+    Each run has its colour, marker shape and dash pattern (:func:`run_style`); run numbers
+    are placed clear of every marker and of each other and drawn last, on a white halo.
+    """
     machine = job.machine
     rotation = machine.rotation
     points: list[tuple[RunEntry, float, float, float, str]] = []
@@ -141,78 +282,131 @@ def polar_svg(job: JobRecord, sensor: str, size_px: int = 320) -> str:
     rings = max(1, math.ceil(extent / step))
     full = rings * step
     c = size_px / 2
-    plot_r = c - 34
+    plot_r = c - 36
     scale = plot_r / full
-    out = [f'<svg xmlns="http://www.w3.org/2000/svg" class="polar" viewBox="0 0 {size_px} '
-           f'{size_px + 18}" role="img" aria-label="1x vectors of {_e(sensor)}">',
+    legend_rows = math.ceil(len(points) / 4) if points else 0
+    height = size_px + 6 + 18 * legend_rows
+    width_mm = POLAR_WIDTH_MM * size_px / POLAR_VIEW
+    out = [f'<svg xmlns="http://www.w3.org/2000/svg" class="polar" width="{width_mm:g}mm" '
+           f'height="{width_mm * height / size_px:.2f}mm" viewBox="0 0 {size_px} {height}" '
+           f'role="img" aria-label="1x vectors of {_e(sensor)}">',
            f'<title>1x vectors, {_e(sensor)}</title>']
     for k in range(1, rings + 1):
         out.append(f'<circle cx="{c:.1f}" cy="{c:.1f}" r="{k * step * scale:.2f}" '
                    f'fill="none" stroke="#bbb" stroke-width="0.7"/>')
-        lx, ly = _xy(c, c, k * step * scale, 45.0 if rotation == "ccw" else 315.0, "ccw")
-        out.append(f'<text x="{lx + 2:.1f}" y="{ly - 2:.1f}" class="tick">{k * step:g}</text>')
     for angle in range(0, 360, 30):
         x1, y1 = _xy(c, c, 0, angle, rotation)
         x2, y2 = _xy(c, c, plot_r, angle, rotation)
         out.append(f'<line x1="{x1:.1f}" y1="{y1:.1f}" x2="{x2:.1f}" y2="{y2:.1f}" '
                    f'stroke="#ddd" stroke-width="0.7"/>')
-        tx, ty = _xy(c, c, plot_r + 14, angle, rotation)
-        out.append(f'<text x="{tx:.1f}" y="{ty + 4:.1f}" text-anchor="middle" '
+        tx, ty = _xy(c, c, plot_r + 17, angle, rotation)
+        out.append(f'<text x="{tx:.1f}" y="{ty + 3.5:.1f}" text-anchor="middle" '
                    f'class="tick">{angle}\u00b0</text>')
+    markers: list[Box] = []
+    tips = []
     for i, (run, amplitude, phase_deg, conf_r, _) in enumerate(points):
-        colour = RUN_COLOURS[i % len(RUN_COLOURS)]
+        colour, shape, dash = run_style(i)
         tx, ty = _xy(c, c, amplitude * scale, phase_deg, rotation)
-        out.append(f'<g class="run-vector" data-run="{run.index}">')
-        out.append(f'<circle class="confidence" cx="{tx:.2f}" cy="{ty:.2f}" '
-                   f'r="{max(conf_r * scale, 0.8):.2f}" fill="{colour}" fill-opacity="0.15" '
-                   f'stroke="{colour}" stroke-width="0.8"/>')
+        tips.append((run, tx, ty, colour))
+        dashes = f' stroke-dasharray="{dash}"' if dash else ""
+        out.append(f'<g class="run-vector" data-run="{run.index}" data-shape="{shape}">')
         out.append(f'<line x1="{c:.1f}" y1="{c:.1f}" x2="{tx:.2f}" y2="{ty:.2f}" '
-                   f'stroke="{colour}" stroke-width="2"/>')
-        out.append(f'<circle cx="{tx:.2f}" cy="{ty:.2f}" r="2.5" fill="{colour}"/>')
-        lx, ly = _xy(c, c, amplitude * scale + 9, phase_deg, rotation)
-        out.append(f'<text x="{lx:.1f}" y="{ly + 4:.1f}" text-anchor="middle" '
-                   f'class="label" fill="{colour}">{run.index}</text>')
+                   f'stroke="{colour}" stroke-width="2"{dashes}/>')
+        out.append(f'<circle class="confidence" cx="{tx:.2f}" cy="{ty:.2f}" '
+                   f'r="{max(conf_r * scale, 0.8):.2f}" fill="{colour}" fill-opacity="0.12" '
+                   f'stroke="{colour}" stroke-width="0.8"{dashes}/>')
+        out.append(marker_svg(shape, tx, ty, 8.0, colour, ' class="marker"'))
         out.append("</g>")
-    arrow = "\u21bb" if rotation == "cw" else "\u21ba"
-    out.append(f'<text x="4" y="{size_px + 12}" class="tick">{_e(unit)}; rotor turns {arrow} '
-               f'({rotation}) seen from the pickup side</text>')
+        markers.append((tx - 5, ty - 5, tx + 5, ty + 5))
+    # ring values along a quiet diagonal, then the run numbers: both kept off the markers
+    placed: list[Box] = list(markers)
+    tick_angle = 45.0 if rotation == "ccw" else 315.0
+    for k in range(1, rings + 1):
+        lx, ly = _xy(c, c, k * step * scale, tick_angle, "ccw")
+        label = f"{k * step:g}"
+        box = (lx + 2, ly - 10, lx + 2 + 6.4 * len(label), ly)
+        if any(_overlaps(box, b) for b in markers):
+            continue  # a marker sits there; the other rings still give the scale
+        placed.append(box)
+        out.append(f'<text x="{lx + 2:.1f}" y="{ly - 2:.1f}" class="tick ring-value">'
+                   f'{label}</text>')
+    for run, tx, ty, colour in tips:
+        ox, oy = tx - c, ty - c
+        norm = math.hypot(ox, oy)
+        outward = (ox / norm, oy / norm) if norm > 1e-6 else (0.0, -1.0)
+        lx, ly = place_label(tx, ty, str(run.index), 12.0, placed, outward,
+                             (0.0, 0.0, float(size_px), float(size_px)))
+        placed.append(_text_box(lx, ly, str(run.index), 12.0))
+        out.append(f'<text x="{lx:.1f}" y="{ly:.1f}" text-anchor="middle" class="label" '
+                   f'data-run="{run.index}" fill="{colour}">{run.index}</text>')
+    for i, (run, *_rest) in enumerate(points):
+        colour, shape, dash = run_style(i)
+        x = 10 + (i % 4) * 78
+        y = size_px + 4 + 18 * (i // 4)
+        out.append(f'<g class="legend" data-run="{run.index}">')
+        out.append(f'<line x1="{x:g}" y1="{y + 8:g}" x2="{x + 22:g}" y2="{y + 8:g}" '
+                   f'stroke="{colour}" stroke-width="2"'
+                   + (f' stroke-dasharray="{dash}"' if dash else "") + '/>')
+        out.append(marker_svg(shape, x + 22, y + 8, 8.0, colour))
+        out.append(f'<text x="{x + 31:g}" y="{y + 12:g}" class="tick">run {run.index}</text>')
+        out.append("</g>")
     out.append("</svg>")
     return "\n".join(out)
 
 
-def plane_svg(job: JobRecord, plane_name: str, size_px: int = 170) -> str:
+def plane_svg(job: JobRecord, plane_name: str, size_px: int = PLANE_VIEW) -> str:
     """The plane seen from its face (``Plane.face``; from the back the rotation looks
     reversed, like on the app's placement picture and the plane's ring): reference mark,
-    positions, parts on the rotor."""
+    positions, parts on the rotor.
+
+    Position numbers are thinned (every 2nd, 3rd, ...) when they would touch; parts are
+    drawn as a filled circle (correction) or a filled square (trial) so they differ in
+    greyscale too.
+    """
     machine = job.machine
     plane = machine.plane(plane_name)
     rotation = plane.rotation_seen(machine.rotation)
     c = size_px / 2
     r = c - 22
-    out = [f'<svg xmlns="http://www.w3.org/2000/svg" class="plane" viewBox="0 0 {size_px} '
-           f'{size_px}" role="img" aria-label="parts on {_e(plane_name)}">',
+    width_mm = PLANE_WIDTH_MM * size_px / PLANE_VIEW
+    out = [f'<svg xmlns="http://www.w3.org/2000/svg" class="plane" width="{width_mm:g}mm" '
+           f'height="{width_mm:g}mm" viewBox="0 0 {size_px} {size_px}" role="img" '
+           f'aria-label="parts on {_e(plane_name)}">',
            f'<title>Parts on {_e(plane_name)}</title>',
            f'<circle cx="{c}" cy="{c}" r="{r}" fill="none" stroke="#555" stroke-width="1.2"/>',
            f'<circle cx="{c}" cy="{c}" r="3" fill="#555"/>']
     mx, my = _xy(c, c, r + 4, 0.0, rotation)
     out.append(f'<path d="M {mx:.1f} {my:.1f} l -6 -10 l 12 0 z" fill="#000"/>')
     out.append(f'<text x="{mx + 8:.1f}" y="{my - 2:.1f}" class="tick">0\u00b0 mark</text>')
-    for k, angle in enumerate(plane.layout.position_angles_deg()):
+    angles = plane.layout.position_angles_deg()
+    label_r = r - 14
+    gap = min((abs((b - a + 180.0) % 360.0 - 180.0) for a, b in
+               zip(angles, angles[1:] + angles[:1], strict=True)), default=360.0)
+    stride = 1
+    while stride < len(angles) and math.radians(gap * stride) * label_r < 16.0:
+        stride += 1
+    for k, angle in enumerate(angles):
         x1, y1 = _xy(c, c, r - 5, angle, rotation)
         x2, y2 = _xy(c, c, r + 5, angle, rotation)
         out.append(f'<line x1="{x1:.1f}" y1="{y1:.1f}" x2="{x2:.1f}" y2="{y2:.1f}" '
                    f'stroke="#555" stroke-width="1"/>')
-        tx, ty = _xy(c, c, r - 14, angle, rotation)
-        out.append(f'<text x="{tx:.1f}" y="{ty + 3:.1f}" text-anchor="middle" '
-                   f'class="tick">{number_of(k)}</text>')
+        if k % stride == 0:
+            tx, ty = _xy(c, c, label_r, angle, rotation)
+            out.append(f'<text x="{tx:.1f}" y="{ty + 3.5:.1f}" text-anchor="middle" '
+                       f'class="tick">{number_of(k)}</text>')
     for part in job.parts_on_rotor():
         if part.plane != plane_name:
             continue
         px, py = _xy(c, c, r, part.angle_deg, rotation)
-        colour = "#D55E00" if part.purpose == "trial" else "#0072B2"
-        out.append(f'<circle class="part" cx="{px:.1f}" cy="{py:.1f}" r="5" fill="{colour}">'
-                   f'<title>{_e(format_mass(part.mass_g, machine.units.mass))} at '
-                   f'{_deg(part.angle_deg)}</title></circle>')
+        trial = part.purpose == "trial"
+        tip = (f'<title>{_e(format_mass(part.mass_g, machine.units.mass))} at '
+               f'{_deg(part.angle_deg)}{" (trial)" if trial else ""}</title>')
+        if trial:
+            out.append(f'<rect class="part trial" x="{px - 5:.1f}" y="{py - 5:.1f}" width="10" '
+                       f'height="10" fill="#D55E00" stroke="#fff" stroke-width="0.8">{tip}</rect>')
+        else:
+            out.append(f'<circle class="part" cx="{px:.1f}" cy="{py:.1f}" r="5.5" '
+                       f'fill="#0072B2" stroke="#fff" stroke-width="0.8">{tip}</circle>')
     out.append("</svg>")
     return "\n".join(out)
 
@@ -245,7 +439,7 @@ def _machine_rows(job: JobRecord) -> list[tuple[str, str]]:
                         + (f", {p.mounting}" if p.mounting else "") for p in m.pickups)
     return [
         ("Machine", m.name),
-        ("Rotor", f"{m.rotor_kind}, {m.rotor_mass_kg:g} kg"),
+        ("Rotor", f"{m.rotor_kind}, {rotor_mass_text(m.rotor_mass_kg, u)}"),
         ("Speed", f"{m.speed_min_rpm:g}-{m.speed_max_rpm:g} rpm, never above "
                   f"{m.max_speed_rpm:g} rpm"),
         ("Rotation", f"{m.rotation}, seen from the pickup side"),
@@ -259,8 +453,8 @@ def _machine_rows(job: JobRecord) -> list[tuple[str, str]]:
 
 def _job_rows(job: JobRecord) -> list[tuple[str, str]]:
     rows = [("Job", job.job_id), ("Status", job.status), ("Method", job.method),
-            ("Started", short_time(job.created)),
-            ("Last saved", short_time(job.updated or job.created))]
+            ("Started", time_text(job.created)),
+            ("Last saved", time_text(job.updated or job.created))]
     if job.speed_rpm:
         rows.append(("Balancing speed", f"{job.speed_rpm:g} rpm"))
     if job.operator:
@@ -270,15 +464,46 @@ def _job_rows(job: JobRecord) -> list[tuple[str, str]]:
     return rows
 
 
+#: Run kinds measured with the corrections on the rotor: only these give an "After" figure
+#: (a trial-weight run is a measurement step, never a result).
+AFTER_KINDS = ("correction", "trim", "check")
+
+
+def after_run(job: JobRecord) -> RunEntry | None:
+    """The run the "After" column shows: the last run made with corrections on the rotor
+    (kind correction, trim or check) after the first run; None when there is none yet (an
+    open job between its trial runs has no "After")."""
+    if len(job.runs) < 2:
+        return None
+    return next((r for r in reversed(job.runs[1:]) if r.kind in AFTER_KINDS), None)
+
+
+def before_after_header(job: JobRecord) -> list[str]:
+    """The before/after table's header; the columns name their runs."""
+    first = f"Before (run {job.runs[0].index})" if job.runs else "Before"
+    last = after_run(job)
+    return ["Pickup", first, "Phase", f"After (run {last.index})" if last else "After",
+            "Phase", "Change"]
+
+
+def before_after_note(job: JobRecord) -> str:
+    """Why the "After" column is empty, in words (empty when it is not)."""
+    if len(job.runs) >= 1 and after_run(job) is None:
+        return ("No run with corrections on the rotor yet, so no \"After\" figures: trial-weight "
+                "runs are measurement steps, not results.")
+    return ""
+
+
 def before_after_rows(job: JobRecord) -> list[list[str]]:
-    """Per pickup: before (first run) and after (last run) amplitude and phase, and the change."""
+    """Per pickup: before (first run) and after (the last run with corrections on, see
+    :func:`after_run`) amplitude and phase, and the change."""
     rows: list[list[str]] = []
     if not job.runs:
         return rows
-    first, last = job.runs[0], job.runs[-1]
+    first, last = job.runs[0], after_run(job)
     for pickup in job.machine.pickups:
         before = first.reading(pickup.name)
-        after = last.reading(pickup.name) if len(job.runs) > 1 else None
+        after = last.reading(pickup.name) if last is not None else None
         b = reading_text(before, job.machine) if before else ("-", "-")
         a = reading_text(after, job.machine) if after else ("-", "-")
         change = _reduction(before, after) if before and after else "-"
@@ -297,7 +522,10 @@ def condition_rows(job: JobRecord) -> list[list[str]]:
                 zone = describe(dataclasses.replace(severity_finding(entry), pickup=None))
             else:
                 low, high = entry.band_hz or (10.0, 1000.0)  # files from before bands were kept
-                level = f"{entry.velocity_rms_mm_s:.2f} mm/s rms ({low:g}-{high:g} Hz)"
+                value, unit = convert_vibration(entry.velocity_rms_mm_s, "mm/s rms",
+                                                job.machine.units.vibration)
+                level = (f"{value:.{2 if unit.startswith('mm') else 3}f} {unit} "
+                         f"({low:g}-{high:g} Hz)")
                 zone = entry.zone or "-"
             rows.append([str(run.index) if k == 0 else "", entry.sensor, level, zone,
                          verdict if k == 0 else ""])
@@ -398,14 +626,16 @@ def verdict_rows(job: JobRecord) -> list[list[str]]:
         return []
     rows = []
     for pv in job.verdict.planes:
+        units = job.machine.units
         try:
             radius = job.machine.plane(pv.plane).radius_mm
-            at_radius = (f" ({format_mass(pv.residual_gmm / radius, job.machine.units.mass)} at "
-                         f"{format_length(radius, job.machine.units.length)})")
+            at_radius = (f" ({format_mass(pv.residual_gmm / radius, units.mass)} at "
+                         f"{format_length(radius, units.length)})")
         except KeyError:
             at_radius = ""
-        rows.append([pv.plane, f"{pv.residual_gmm:.1f} g\u00b7mm{at_radius}",
-                     f"{pv.permissible_gmm:.1f} g\u00b7mm", "within" if pv.passed else "OVER"])
+        rows.append([pv.plane, f"{unbalance_text(pv.residual_gmm, units)}{at_radius}",
+                     unbalance_text(pv.permissible_gmm, units),
+                     "within" if pv.passed else "OVER"])
     return rows
 
 
@@ -429,11 +659,39 @@ def event_rows(job: JobRecord) -> list[list[str]]:
 
 
 def influence_rows(job: JobRecord) -> list[list[str]]:
+    """Saved influence coefficients, vibration per unit mass in the profile's units."""
     if job.influence is None:
         return []
-    u = job.influence.unit
-    return [[e.sensor, e.plane, f"{e.amp:.4g} {u} per g", _deg(e.phase_deg)]
-            for e in job.influence.entries]
+    units = job.machine.units
+    per = G_PER_OZ if units.mass == "oz" else 1.0  # per oz = per g x g per oz
+    rows = []
+    for e in job.influence.entries:
+        amp, unit = convert_vibration(e.amp * per, job.influence.unit, units.vibration,
+                                      units.length)
+        rows.append([e.sensor, e.plane, f"{amp:.4g} {unit} per {units.mass}",
+                     phase_text(e.phase_deg)])
+    return rows
+
+
+def grade_rows(job: JobRecord) -> list[tuple[str, str]]:
+    """The ISO 21940-11 target: grade G, service speed, e_per and U_per of the whole rotor.
+
+    ISO 21940-11:2016: e_per = G / omega at the maximum service speed, U_per = e_per * m
+    (computed by trueturn.balance.iso21940). The speed is the verdict's when there is one,
+    else the profile's highest working speed.
+    """
+    m = job.machine
+    v = job.verdict
+    grade = v.grade if v is not None else m.target_grade
+    speed = v.speed_rpm if v is not None else m.speed_max_rpm
+    e_per = permissible_eccentricity_um(grade, speed)
+    u_per = permissible_unbalance_gmm(grade, speed, m.rotor_mass_kg)
+    return [("Balance quality grade", f"G {grade:g} (ISO 21940-11)"),
+            ("Service speed", f"{speed:g} rpm" + ("" if v is not None else
+                                                   " (highest working speed of the profile)")),
+            ("Rotor mass", rotor_mass_text(m.rotor_mass_kg, m.units)),
+            ("e_per", eccentricity_text(e_per, m.units)),
+            ("U_per (whole rotor)", unbalance_text(u_per, m.units))]
 
 
 # --------------------------------------------------------------------------------------------
@@ -447,33 +705,59 @@ h1 { font-size: 15pt; margin: 0 0 2mm 0; }
 h2 { font-size: 11pt; margin: 3mm 0 1mm 0; border-bottom: 0.4mm solid #444; }
 table { border-collapse: collapse; width: 100%; margin: 1mm 0 1.5mm 0; font-size: 7.8pt; }
 th, td { border: 0.25mm solid #bbb; padding: 0.4mm 1.2mm; text-align: left; vertical-align: top; }
+td { overflow-wrap: anywhere; }
 th { background: #eee; }
-table.kv th { width: 26mm; }
+table.kv th { width: 30mm; }
 table.runs td:nth-child(2), table.confirmations td:nth-child(2), table.events td:nth-child(2)
   { white-space: nowrap; }
-.figures { display: flex; flex-wrap: wrap; gap: 2mm; align-items: flex-start; }
+.figures { display: flex; flex-wrap: wrap; gap: 3mm; align-items: flex-start; }
 .figures > div { min-width: 0; }
-figure { margin: 0; flex: 0 0 30%; }
-figure.small { flex: 0 0 18%; }
-figure svg { width: 100%; height: auto; }
-figcaption { font-size: 7pt; color: #333; }
+figure { margin: 0; flex: 0 1 auto; max-width: 100%; }
+figure svg { display: block; max-width: 100%; height: auto; }
+figure.polar-fig { width: 88mm; }
+figure.plane-fig { width: 58mm; }
+figcaption { font-size: 7.5pt; color: #333; }
 svg text { font-family: "DejaVu Sans", Arial, sans-serif; }
-svg .tick { font-size: 10px; fill: #444; }
-svg .label { font-size: 12px; font-weight: bold; }
+svg .tick { font-size: 10px; fill: #333; }
+svg .label { font-size: 12px; font-weight: bold; paint-order: stroke; stroke: #fff;
+             stroke-width: 3px; stroke-linejoin: round; }
 .pass { color: #006b3c; font-weight: bold; }
 .fail { color: #b00020; font-weight: bold; }
-.cautions { border: 0.5mm solid #b00020; padding: 1mm 3mm; }
+.cautions { border: 0.5mm solid #b00020; padding: 1mm 3mm; font-size: 8pt; }
+.cautions ul { margin: 0; padding-left: 5mm; }
 .cautions li { margin: 0.5mm 0; }
 .note { font-size: 7.8pt; color: #333; margin: 1mm 0; }
-.cautions { font-size: 8pt; }
-@page { margin: 12mm; }
+table.signoff td { height: 9mm; vertical-align: bottom; }
+table.signoff th { width: 40mm; vertical-align: bottom; }
 @media print {
-  body { margin: 0; max-width: none; }
+  /* 1 mm short of the page box on each side: Chromium rounds the page to whole CSS pixels
+     and would clip a right-hand border that ends exactly on the edge */
+  body { margin: 0 1mm; max-width: none; }
   h2 { break-after: avoid; }
-  table, figure, .cautions { break-inside: avoid; }
+  table, figure, .cautions, .signoff { break-inside: avoid; }
   thead { display: table-header-group; }
 }
 """
+
+
+def _css_string(text: str) -> str:
+    """``text`` as a quoted CSS string: every character but letters, digits, space, '.', '-'
+    and '_' written as a CSS escape (CSS Syntax Level 3, 4.3.7), so no job id can end the
+    string, the rule or the style element."""
+    safe = "".join(ch if ch.isascii() and (ch.isalnum() or ch in " .-_") else f"\\{ord(ch):06x} "
+                   for ch in text)  # the space after six hex digits ends the escape
+    return f'"{safe}"'
+
+
+def page_css(job_id: str) -> str:
+    """Paper margins and the footer on every printed page: the job id and "page n of m"
+    (CSS Paged Media Level 3 margin boxes, printed by Chromium 131 and later; a browser
+    without them prints the page without the footer)."""
+    return ("@page { margin: 12mm 12mm 14mm 12mm; "
+            "@bottom-left { content: " + _css_string(f"trueturn balancing report, job {job_id}")
+            + "; font: 7.5pt \"DejaVu Sans\", Arial, sans-serif; color: #333; } "
+            '@bottom-right { content: "page " counter(page) " of " counter(pages); '
+            'font: 7.5pt "DejaVu Sans", Arial, sans-serif; color: #333; } }')
 
 
 def _html_table(header: Sequence[str], rows: Sequence[Sequence[str]], css_class: str = "") -> str:
@@ -514,6 +798,11 @@ def _verdict_line(job: JobRecord) -> tuple[str, str]:
             f"grade G {v.grade:g} ({v.standard}).")
 
 
+def signoff_rows(job: JobRecord) -> list[str]:
+    """The lines left blank for a person to fill in by hand on the printed report."""
+    return ["Machine serial number", "Balanced by (name)", "Signature", "Date"]
+
+
 def html_report(job: JobRecord, generated: str = "") -> str:
     """The whole report as one self-contained HTML page (polyglot: also well-formed XML)."""
     m = job.machine
@@ -523,31 +812,37 @@ def html_report(job: JobRecord, generated: str = "") -> str:
         '<head><meta charset="utf-8"/>',
         '<meta name="viewport" content="width=device-width, initial-scale=1"/>',
         f'<title>Balancing report {_e(job.job_id)}</title>',
-        f'<style>{_CSS}</style></head>',
+        f'<style>{_CSS}{page_css(job.job_id)}\n</style></head>',
         '<body>',
         f'<h1>Balancing report: {_e(m.name)}</h1>',
         f'<p class="note">Job {_e(job.job_id)}'
-        + (f"; report generated {_e(generated)}" if generated else "") + ' by trueturn.</p>',
+        + (f"; report generated {_e(time_text(generated))}" if generated else "")
+        + ' by trueturn. Times are UTC.</p>',
         '<h2>Machine and job</h2>',
-        '<div class="figures"><div style="flex:1 1 88mm">', _html_kv(_machine_rows(job)),
-        '</div><div style="flex:1 1 60mm">', _html_kv(_job_rows(job)), '</div></div>',
+        '<div class="figures"><div style="flex:1 1 100mm">', _html_kv(_machine_rows(job)),
+        '</div><div style="flex:1 1 70mm">', _html_kv(_job_rows(job)), '</div></div>',
     ]
     css, line = _verdict_line(job)
-    parts += ['<h2>Result</h2>', f'<p id="verdict" class="{css}">{_e(line)}</p>']
+    parts += ['<h2>Result</h2>', f'<p id="verdict" class="{css}">{_e(line)}</p>',
+              '<div class="figures"><div style="flex:1 1 70mm">',
+              _html_kv(grade_rows(job)).replace('class="kv"', 'class="kv grade"'),
+              '</div><div style="flex:1 1 100mm">']
     rows = verdict_rows(job)
     if rows:
         parts.append(_html_table(["Bearing" if verdict_at_bearings(job) else "Plane",
                                   "Residual unbalance", "Permissible (U_per)",
                                   "Verdict"], rows, "verdict"))
-        parts.append('<p class="note">Permissible residual unbalance per ISO 21940-11: '
-                     'U_per = 1000 \u00b7 G \u00b7 m / \u03c9 (g\u00b7mm, G in mm/s, m in kg, '
-                     '\u03c9 in rad/s, at the maximum service speed), '
-                     + _e(_verdict_where(job)) + '.'
-                     + (f" {_e(job.verdict.note)}" if job.verdict and job.verdict.note else "")
-                     + '</p>')
+    parts.append('</div></div>')
+    parts.append('<p class="note">Permissible residual unbalance per ISO 21940-11: '
+                 'e_per = G / \u03c9 and U_per = e_per \u00b7 m, at the maximum service speed'
+                 + ('; ' + _e(_verdict_where(job)) if rows else '') + '.'
+                 + (f" {_e(job.verdict.note)}" if job.verdict and job.verdict.note else "")
+                 + '</p>')
     parts += ['<h2>Before and after</h2>',
-              _html_table(["Pickup", "Before", "Phase", "After", "Phase", "Change"],
-                          before_after_rows(job), "before-after")]
+              _html_table(before_after_header(job), before_after_rows(job), "before-after")]
+    note = before_after_note(job)
+    if note:
+        parts.append(f'<p class="note" id="no-after">{_e(note)}</p>')
     rows = condition_rows(job)
     if rows:
         parts += ['<h2>Machine condition</h2>', _html_table(CONDITION_HEADER, rows, "condition"),
@@ -555,13 +850,16 @@ def html_report(job: JobRecord, generated: str = "") -> str:
                   f'<p class="note">Zones: {_e(ZONES_SOURCE)}. The unbalance judgement follows '
                   'rules of the trade (common practice, no source).</p>']
     figures = []
+    arrow = "\u21bb" if m.rotation == "cw" else "\u21ba"
     if job.runs:
         for pickup in m.pickups:
-            figures.append(f'<figure>{polar_svg(job, pickup.name)}<figcaption>1x vector of '
-                           f'{_e(pickup.name)} per run (numbers = run), circle = phase '
-                           f'confidence.</figcaption></figure>')
-    figures += [f'<figure class="small">{plane_svg(job, p.name)}<figcaption>{_e(p.name)}, seen '
-                f'from the {p.face}: {_e(parts_text(job, p.name))}.</figcaption></figure>'
+            figures.append(
+                f'<figure class="polar-fig">{polar_svg(job, pickup.name)}<figcaption>1x vector '
+                f'of {_e(pickup.name)} per run in {_e(m.units.vibration)} (number, shape and '
+                f'line = run; circle = phase confidence); the rotor turns {arrow} ({m.rotation}) '
+                'seen from the pickup side.</figcaption></figure>')
+    figures += [f'<figure class="plane-fig">{plane_svg(job, p.name)}<figcaption>{_e(p.name)}, '
+                f'seen from the {p.face}: {_e(parts_text(job, p.name))}.</figcaption></figure>'
                 for p in m.planes]
     parts += ['<div class="figures">', *figures, '</div>']
     header, rows = run_rows(job)
@@ -596,7 +894,12 @@ def html_report(job: JobRecord, generated: str = "") -> str:
     if notes:
         parts += ['<h2>Notes</h2>', *[f'<p class="note">{_e(n)}</p>' for n in notes]]
     parts += ['<h2>Cautions</h2>', '<div class="cautions"><ul>',
-              *[f'<li>{_e(c)}</li>' for c in CAUTIONS], '</ul></div>', '</body>', '</html>']
+              *[f'<li>{_e(c)}</li>' for c in CAUTIONS], '</ul></div>',
+              '<h2>Sign-off</h2>',
+              '<table class="signoff"><tbody>'
+              + "".join(f"<tr><th>{_e(k)}</th><td></td></tr>" for k in signoff_rows(job))
+              + '</tbody></table>',
+              '</body>', '</html>']
     return "\n".join(parts) + "\n"
 
 
@@ -630,11 +933,13 @@ def _md_table(header: Sequence[str], rows: Sequence[Sequence[str]]) -> str:
 def markdown_report(job: JobRecord, generated: str = "") -> str:
     """The report as Markdown tables (no plots; the HTML report has them)."""
     out = [f"# Balancing report: {_md_text(job.machine.name)}", "",
-           f"Job {_md_text(job.job_id)}" + (f"; report generated {generated}" if generated else "")
-           + " by trueturn. Plots are in the HTML report.", "",
+           f"Job {_md_text(job.job_id)}"
+           + (f"; report generated {time_text(generated)}" if generated else "")
+           + " by trueturn. Times are UTC. Plots are in the HTML report.", "",
            "## Machine and job", "",
            _md_table(["Item", "Value"], _machine_rows(job) + _job_rows(job)), "",
-           "## Result", "", _md_text(_verdict_line(job)[1]), ""]
+           "## Result", "", _md_text(_verdict_line(job)[1]), "",
+           _md_table(["Item", "Value"], grade_rows(job)), ""]
     rows = verdict_rows(job)
     if rows:
         out += [_md_table(["Bearing" if verdict_at_bearings(job) else "Plane",
@@ -643,8 +948,9 @@ def markdown_report(job: JobRecord, generated: str = "") -> str:
                 f"{_md_text(_verdict_where(job))}.",
                 ""]
     out += ["## Before and after", "",
-            _md_table(["Pickup", "Before", "Phase", "After", "Phase", "Change"],
-                      before_after_rows(job)), ""]
+            _md_table(before_after_header(job), before_after_rows(job)), ""]
+    if before_after_note(job):
+        out += [_md_text(before_after_note(job)), ""]
     rows = condition_rows(job)
     if rows:
         out += ["## Machine condition", "", _md_table(CONDITION_HEADER, rows), "",
@@ -677,6 +983,8 @@ def markdown_report(job: JobRecord, generated: str = "") -> str:
     if any(notes):
         out += ["## Notes", "", *[f"- {_md_text(n)}" for n in notes if n], ""]
     out += ["## Cautions", "", *[f"- {_md_text(c)}" for c in CAUTIONS], ""]
+    out += ["## Sign-off", "", *[f"{k}: ______________________________\n"
+                                 for k in signoff_rows(job)]]
     return "\n".join(out)
 
 

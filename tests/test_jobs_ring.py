@@ -10,6 +10,7 @@ from __future__ import annotations
 import contextlib
 import io
 import math
+import re
 import xml.etree.ElementTree as ET
 from pathlib import Path
 
@@ -189,16 +190,28 @@ def test_tiles_cover_the_big_ring_at_1_to_1_on_sheet_sized_windows(diameter_mm: 
     )
 
     page, tiles = ring_tiles_html(diameter_mm, 12)
-    whole = parse(ring_svg(diameter_mm, 12)[0])
+    whole = parse(ring_svg(diameter_mm, 12, furniture=False)[0])
     width, height = float(whole.get("width")[:-2]), float(whole.get("height")[:-2])
-    sheets = list(ET.fromstring(page).iter(f"{SVG}svg"))
-    assert len(sheets) == len(tiles)
-    for sheet in sheets:
-        x, y, w, h = map(float, sheet.get("viewBox").split())
-        assert (float(sheet.get("width")[:-2]), float(sheet.get("height")[:-2])) == (w, h)  # 1:1
-        assert w <= min(A4_PRINTABLE_MM[0], LETTER_PRINTABLE_MM[0])
-        assert h <= min(A4_PRINTABLE_MM[1], LETTER_PRINTABLE_MM[1])
-        assert marks(sheet) == marks(whole)  # the same drawing seen through each window
+    pages = [s for s in ET.fromstring(page).iter(f"{SVG}svg") if s.get("class") == "sheet-page"]
+    assert len(pages) == len(tiles)
+    sheets = []
+    for sheet_page in pages:
+        # the sheet: 1 user unit = 1 mm, and it fits A4 and Letter inside 12 mm margins
+        _, _, pw, ph = map(float, sheet_page.get("viewBox").split())
+        assert (float(sheet_page.get("width")[:-2]), float(sheet_page.get("height")[:-2])) == (
+            pw, ph)
+        assert pw <= min(A4_PRINTABLE_MM[0], LETTER_PRINTABLE_MM[0])
+        assert ph <= min(A4_PRINTABLE_MM[1], LETTER_PRINTABLE_MM[1])
+        window = next(s for s in sheet_page.iter(f"{SVG}svg") if s.get("class") == "window")
+        x, y, w, h = map(float, window.get("viewBox").split())
+        assert (float(window.get("width")), float(window.get("height"))) == (w, h)  # 1:1
+        # the sheet's own label, check box and caution sit above the window, never on it
+        band = [t for t in sheet_page if t.tag == f"{SVG}text"]
+        assert band and all(float(t.get("y")) < float(window.get("y")) for t in band)
+        texts = "".join("".join(t.itertext()) for t in band)
+        assert "Caution" in texts and "50 mm" in texts
+        assert marks(window) == marks(whole)  # the same drawing seen through each window
+        sheets.append(window)
     # The windows cover the whole drawing, neighbours sharing the overlap band.
     xs = sorted({t.x_mm for t in tiles})
     ys = sorted({t.y_mm for t in tiles})
@@ -214,9 +227,125 @@ def test_cli_tiles(tmp_path: Path) -> None:
     with contextlib.redirect_stderr(io.StringIO()):
         assert main(["ring", "--diameter-mm", "300", "--positions", "6", "--tiles",
                      "-o", str(out)]) == 0
-    assert len(list(ET.parse(out).getroot().iter(f"{SVG}svg"))) == 4
+    root = ET.parse(out).getroot()
+    assert len([s for s in root.iter(f"{SVG}svg") if s.get("class") == "sheet-page"]) == 4
+    text = "".join(root.itertext())
+    assert "--tiles" not in text  # the hint to tile is for the one-sheet drawing only
+    assert "This box must measure exactly 100 mm" not in text  # each sheet has its own 50 mm
     err = io.StringIO()
     with contextlib.redirect_stderr(err):
         assert main(["ring", "--diameter-mm", "300", "--positions", "6", "--tiles", "--rim",
                      "-o", str(tmp_path / "x")]) == 2
     assert err.getvalue().count("\n") == 1
+
+
+def text_sizes_mm(root: ET.Element) -> dict[str, float]:
+    """Font size (mm = user units) of each CSS class in the ring's style element."""
+    style = "".join(next(root.iter(f"{SVG}style")).itertext())
+    return {m.group(1): float(m.group(2))
+            for m in re.finditer(r"\.(\w+) \{ font-size: ([\d.]+)px;", style)}
+
+
+def text_boxes(root: ET.Element) -> list[tuple[str, tuple[float, float, float, float]]]:
+    """(text, estimated box) of every text: DejaVu Sans advance at most 0.62 em (0.68 bold),
+    cap height 0.73 em (common practice, no source; the Chromium test measures the real ones)."""
+    sizes = text_sizes_mm(root)
+    out = []
+    for t in root.iter(f"{SVG}text"):
+        text = "".join(t.itertext())
+        css = (t.get("class") or "").split()
+        size = sizes[css[0]]
+        width = len(text) * size * (0.68 if "pos" in css else 0.62)
+        x, y = float(t.get("x")), float(t.get("y"))
+        x0 = x - width / 2 if t.get("text-anchor") == "middle" else x
+        out.append((text, (x0, y - 0.73 * size, x0 + width, y)))
+    return out
+
+
+# the crowded and small rings of issue #17 item 9, and ordinary ones
+CASES = [(20.0, 4), (50.0, 36), (50.0, 3), (20.0, 36), (150.0, 12), (80.0, 7), (203.2, 16)]
+
+
+@pytest.mark.parametrize(("diameter_mm", "positions"), CASES)
+def test_every_text_is_at_least_7_pt_and_none_overprints(diameter_mm: float,
+                                                         positions: int) -> None:
+    root = parse(ring_svg(diameter_mm, positions, title="Shop fan, motor side")[0])
+    # 7 pt = 7 x 25.4 / 72 mm = 2.47 mm (1 pt = 1/72 in, 1 in = 25.4 mm)
+    assert min(text_sizes_mm(root).values()) >= 7 * 25.4 / 72
+    boxes = text_boxes(root)
+    for i, (a, box_a) in enumerate(boxes):
+        for b, box_b in boxes[i + 1:]:
+            overlap = (box_a[0] < box_b[2] and box_b[0] < box_a[2] and box_a[1] < box_b[3]
+                       and box_b[1] < box_a[3])
+            assert not overlap, (a, b)
+    width = float(root.get("width")[:-2])
+    assert all(0 <= box[0] and box[2] <= width for _, box in boxes)  # nothing off the sheet
+
+
+def test_crowded_ring_numbers_outside_or_fewer_and_says_so() -> None:
+    _, roomy = ring_svg(150.0, 12)
+    assert (roomy.numbers_at, roomy.number_every, roomy.notes) == ("inside", 1, ())
+    _, fifty = ring_svg(50.0, 36)  # 4.4 mm apart: numbers go outside the rim, all of them
+    assert (fifty.numbers_at, fifty.number_every) == ("outside", 1)
+    text, tiny = ring_svg(20.0, 36)  # 1.7 mm apart: not every one can carry its number
+    assert tiny.number_every > 1 and len(tiny.notes) == 1
+    assert "every" in tiny.notes[0] and "1.7 mm apart" in tiny.notes[0]
+    numbered = [t.get("data-position") for t in parse(text).iter(f"{SVG}text")
+                if t.get("class") == "pos"]
+    assert numbered == [str(n) for n in range(1, 37, tiny.number_every)]
+    assert len(marks(parse(text))) == 36  # every position still has its mark
+
+
+def test_irregular_angles_as_a_job_file_gives_them() -> None:
+    angles = [0.0, 40.0, 95.0, 180.0, 270.0, 300.0]
+    text, layout = ring_svg(120.0, None, rotation="ccw", angles_deg=angles)
+    root = parse(text)
+    cx, cy = centre(root)
+    found = marks(root)
+    assert [m[0] for m in found] == [1, 2, 3, 4, 5, 6]
+    for (_, x1, y1, _, _), angle in zip(found, angles, strict=True):
+        # ccw rotor: angles grow clockwise on paper from the top (angles.screen_xy)
+        paper = math.degrees(math.atan2(x1 - cx, -(y1 - cy))) % 360
+        assert paper == pytest.approx(angle, abs=1e-3)
+    assert layout.irregular and layout.spacing_mm == pytest.approx(math.pi * 120 * 30 / 360)
+    listed = "".join("".join(t.itertext()) for t in root.iter(f"{SVG}text")
+                     if "angle-list" in (t.get("class") or ""))
+    assert "2 at 40\u00b0" in listed and "6 at 300\u00b0" in listed
+    with pytest.raises(ValueError, match="same angle"):
+        ring_svg(120.0, None, angles_deg=[0.0, 90.0, 450.0 - 360.0])
+
+
+def test_long_titles_are_wrapped_not_cut() -> None:
+    from trueturn.jobs.ring import TITLE_LINES_MAX
+
+    title = " ".join(["Left wheel of the bench grinder in bay three, flange side"] * 2)
+    root = parse(ring_svg(60.0, 6, title=title)[0])
+    lines = ["".join(t.itertext()) for t in root.iter(f"{SVG}text")
+             if "title" in (t.get("class") or "")]
+    assert 1 < len(lines) <= TITLE_LINES_MAX and " ".join(lines) == title
+    very = parse(ring_svg(60.0, 6, title=title * 4)[0])
+    lines = ["".join(t.itertext()) for t in very.iter(f"{SVG}text")
+             if "title" in (t.get("class") or "")]
+    assert len(lines) == TITLE_LINES_MAX and lines[-1].endswith("\u2026")
+    width = float(root.get("width")[:-2])
+    assert all(box[2] <= width for _, box in text_boxes(root))
+
+
+def test_cli_irregular_angles_and_crowded_note(tmp_path: Path) -> None:
+    out = tmp_path / "ring.svg"
+    with contextlib.redirect_stderr(io.StringIO()):
+        assert main(["ring", "--diameter-mm", "120", "--angles", "0,40,95,180", "-o",
+                     str(out)]) == 0
+    assert [m[0] for m in marks(ET.parse(out).getroot())] == [1, 2, 3, 4]
+    err = io.StringIO()
+    with contextlib.redirect_stderr(err):
+        assert main(["ring", "--diameter-mm", "20", "--positions", "36", "-o", str(out)]) == 0
+    notes = [line for line in err.getvalue().splitlines() if line.startswith("note:")]
+    assert len(notes) == 1 and "every" in notes[0]
+    for bad in (["--angles", "0,x,90"], ["--angles", "0,90", "--positions", "2"],
+                ["--angles", "0,90,90"], []):
+        err = io.StringIO()
+        with contextlib.redirect_stderr(err):
+            assert main(["ring", "--diameter-mm", "100", *bad, "-o", str(tmp_path / "x.svg")]) == 2
+        assert err.getvalue().count("\n") == 1, bad
+    assert not (tmp_path / "x.svg").exists()

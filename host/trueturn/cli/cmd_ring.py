@@ -17,8 +17,12 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                     "rotation, and a 100 mm box to check the printed scale.")
     parser.add_argument("--diameter-mm", type=float, required=True, metavar="D",
                         help="outer diameter of the ring = rotor face or rim diameter, mm")
-    parser.add_argument("--positions", type=int, required=True, metavar="N",
+    parser.add_argument("--positions", type=int, metavar="N",
                         help="number of equally spaced weight positions")
+    parser.add_argument("--angles", metavar="DEG,DEG,...",
+                        help="irregular positions instead: their angles from the reference "
+                             "mark, position 1 first (as a plane's 'layout: angles' in a job "
+                             "file), e.g. 0,40,95,180,270")
     parser.add_argument("--first-deg", type=float, default=0.0, metavar="DEG",
                         help="angle of position 1 from the reference mark (default 0)")
     parser.add_argument("--rotation", choices=("cw", "ccw"), default="cw",
@@ -37,12 +41,46 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     parser.set_defaults(run=run)
 
 
+def _angles(text: str) -> list[float]:
+    """``'0,40,95'`` as degrees; a UserError naming the bad item."""
+    out = []
+    for item in text.replace(" ", "").split(","):
+        try:
+            value = float(item)
+        except ValueError:
+            raise UserError(f"--angles: {item!r} is not an angle in degrees (give e.g. "
+                            "0,40,95,180)") from None
+        if not math.isfinite(value) or not -360.0 <= value <= 360.0:
+            raise UserError(f"--angles: {item} must be -360..360 degrees from the reference "
+                            "mark")
+        out.append(value)
+    return out
+
+
 def run(args: argparse.Namespace) -> int:
-    from trueturn.jobs.ring import ring_svg, ring_tiles_html, strip_svg
+    from trueturn.jobs.ring import (
+        min_gap_deg,
+        plan_ring,
+        ring_svg,
+        ring_tiles_html,
+        strip_svg,
+    )
 
     if not math.isfinite(args.diameter_mm) or not 10.0 <= args.diameter_mm <= 2000.0:
         raise UserError(f"--diameter-mm {args.diameter_mm:g}: must be between 10 and 2000 mm")
-    if not 1 <= args.positions <= 360:
+    angles = None
+    if args.angles is not None:
+        if args.positions is not None or args.first_deg != 0.0:
+            raise UserError("give either --angles or --positions (with --first-deg), not both")
+        angles = _angles(args.angles)
+        if not 1 <= len(angles) <= 360:
+            raise UserError(f"--angles: {len(angles)} angles; give 1 to 360")
+        if len(angles) > 1 and min_gap_deg(angles) < 0.1:
+            raise UserError("--angles: two positions are on the same angle")
+    elif args.positions is None:
+        raise UserError("give --positions N (equally spaced) or --angles DEG,DEG,... "
+                        "(irregular)")
+    elif not 1 <= args.positions <= 360:
         raise UserError(f"--positions {args.positions}: must be between 1 and 360")
     if not math.isfinite(args.first_deg) or not -360.0 <= args.first_deg <= 360.0:
         raise UserError(f"--first-deg must be -360..360 degrees from the reference mark, got "
@@ -56,14 +94,18 @@ def run(args: argparse.Namespace) -> int:
         check_output(output, stdout_dash=True)  # said before any drawing
     if args.tiles:
         page, tiles = ring_tiles_html(args.diameter_mm, args.positions, args.first_deg,
-                                      args.rotation, args.title)
+                                      args.rotation, args.title, angles)
         _write(output, page)
         if output != "-":
             print(f"wrote {output}: {len(tiles)} sheet(s) to print at 100 % and tape together",
                   file=sys.stderr)
+        for note in plan_ring(args.diameter_mm, args.positions, args.first_deg, args.rotation,
+                              args.title, angles).notes:
+            print(f"note: {note}", file=sys.stderr)
         return 0
     if args.rim:
-        text, strip = strip_svg(args.diameter_mm, args.positions, args.first_deg, args.title)
+        text, strip = strip_svg(args.diameter_mm, args.positions, args.first_deg, args.title,
+                                angles)
         _write(args.output, text)
         if args.output != "-":
             print(f"wrote {args.output}: strip {strip.length_mm:.1f} mm long in {strip.rows} "
@@ -71,12 +113,15 @@ def run(args: argparse.Namespace) -> int:
                   file=sys.stderr)
         return 0
     text, layout = ring_svg(args.diameter_mm, args.positions, args.first_deg, args.rotation,
-                            args.title)
+                            args.title, angles)
     _write(args.output, text)
     if args.output != "-":
+        apart = "apart" if angles is None else "apart at the closest"
         print(f"wrote {args.output}: {layout.width_mm:.0f} x {layout.height_mm:.0f} mm, "
-              f"positions {layout.spacing_mm:.2f} mm apart on the rim; print at 100 %",
+              f"positions {layout.spacing_mm:.2f} mm {apart} on the rim; print at 100 %",
               file=sys.stderr)
+    for note in layout.notes:
+        print(f"note: {note}", file=sys.stderr)
     if not layout.fits_a4_and_letter:
         print("note: larger than an A4/Letter sheet; use --tiles for sheets to tape together, "
               "or --rim for a strip", file=sys.stderr)

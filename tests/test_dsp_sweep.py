@@ -149,3 +149,35 @@ def test_local_slope_is_the_closed_form_derivative(ratio: float) -> None:
         assert 3.5 < slope.amplitude_exponent < 5.0
     if ratio == 2.0:
         assert 1.0 < slope.amplitude_exponent < 2.5
+
+
+def test_one_x_not_rising_below_resonance_says_balancing_may_not_help() -> None:
+    # common practice, no source: an unbalance's displacement grows as n^2 below resonance
+    # (Rao); a 1x that stays flat there (runout of the shaft under the pickup, an electrical
+    # 1x) is not unbalance-like
+    from trueturn.dsp.findings import Code, describe
+    from trueturn.dsp.sweep import rise_below_first_resonance
+    from trueturn.dsp.unbalance import sweep_evidence, verdict
+    speeds, a, sig = coast(1000.0, 0.05, 0.004)
+    unbalance = analyse_sweep(speeds, {"p": a}, {"p": sig}, "g pk")
+    rise = rise_below_first_resonance(unbalance, "p")
+    # the truth: the log-log slope of Rao's |r^2 / (1 - r^2 + 2i zeta r)| over the same points
+    below = speeds[speeds <= 700.0]
+    r = below / 1000.0
+    truth = np.polyfit(np.log(below), np.log(np.abs(r ** 2 / (1 - r ** 2 + 0.1j * r))), 1)[0]
+    assert rise is not None and rise[0] == pytest.approx(truth, abs=0.05)
+    assert 2.0 < truth < 3.0
+    assert sweep_evidence("p", *rise).details["ok"]
+    # the same resonance, but below it a 1x whose displacement is flat (acceleration ~ n^2)
+    flat = a + 0.05 * (speeds / 1000.0) ** 2 * np.exp(1j)
+    flat[speeds < 700] = 0.05 * (speeds[speeds < 700] / 1000.0) ** 2 * np.exp(1j)
+    other = analyse_sweep(speeds, {"p": flat}, {"p": sig}, "g pk")
+    rise = rise_below_first_resonance(other, "p")
+    assert rise is not None and abs(rise[0]) < 0.3
+    evidence = sweep_evidence("p", *rise)
+    assert not evidence.details["ok"]
+    judged = verdict([evidence], 0)
+    assert judged.code is Code.BALANCING_MAY_NOT_HELP
+    assert judged.details["because"] == ["one_x_rises_with_speed"]
+    assert "not rising with speed" in describe(judged)
+    assert "less than speed^1" in describe(evidence)

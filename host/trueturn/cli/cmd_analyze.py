@@ -49,6 +49,10 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                         help="corner of a first-order RC low-pass in front of the ADC, per "
                              "channel; its phase lag at 1x is compensated")
     parser.add_argument("--names", metavar="NAME[,NAME2]", help="pickup names, per channel")
+    parser.add_argument("--sweep", action="store_true",
+                        help="a coast-down or run-up: the 1x against speed per pickup, the "
+                             "support resonances with their damping (half-power bandwidth) "
+                             "and the response slope at the balancing speed")
     parser.add_argument("--machine", metavar="NAME",
                         help="take the pickups (names, sensitivity, zero-g output, RC low-pass "
                              "corner) from this machine profile instead of the capture's "
@@ -148,7 +152,7 @@ def run(args: argparse.Namespace) -> int:
         result = analyze_capture(reader.chunks(), revs=args.revs, mains_hz=mains,
                                  profiles=_profiles(args, metadata), unit=unit,
                                  identity=stored_identity if isinstance(stored_identity, dict)
-                                 else None, observe=watch)
+                                 else None, observe=watch, sweep=args.sweep)
     _check_protocol(args.capture, watch.identities)
     short = watch.incomplete(metadata)
     if short:
@@ -272,6 +276,51 @@ def format_table(result: Analysis) -> str:
                       "timing; not covered: a vibration within "
                       f"{unresolved:.2g} Hz of 1x, the pickup sensitivity and ADC reference, "
                       "filters beyond the pickup profile, the tach sensor's own delay"]
+    if result.sweep is not None:
+        lines += ["", *format_sweep(result)]
     if result.warnings:
         lines += ["", "warnings:"] + [f"  - {w}" for w in result.warnings]
     return "\n".join(lines)
+
+
+#: the most sweep rows the table shows (the JSON has every point)
+SWEEP_ROWS = 40
+
+
+def format_sweep(result: Analysis) -> list[str]:
+    """The sweep's readable form: a thinned table of the 1x against speed, the resonances
+    and the response slope at the balancing speed."""
+    sw = result.sweep
+    assert sw is not None
+    if not sw.is_sweep:
+        return [f"sweep: none (the speed stayed within {sw.low_rpm:.0f}-{sw.high_rpm:.0f} rpm)"]
+    step = max(1, -(-len(sw.points) // SWEEP_ROWS))
+    names = [v.name for v in sw.points[0].pickups] if sw.points else []
+    shown = "" if step == 1 else f", every {step}th shown (--json has all)"
+    lines = [f"sweep: 1x ({sw.unit}) at {len(sw.points)} speeds from {sw.low_rpm:.0f} to "
+             f"{sw.high_rpm:.0f} rpm{shown}; '?' = not above its noise"]
+    rows = [("rpm", *names)]
+    for p in sw.points[::step]:
+        cells = []
+        for name in names:
+            v = p.value(name)
+            cells.append("-" if v is None else
+                         f"{v.amplitude:.3g} @ {v.phase_deg:.0f} deg{'' if v.usable else ' ?'}")
+        rows.append((f"{p.speed_rpm:.0f}", *cells))
+    widths = [max(len(r[i]) for r in rows) for i in range(len(rows[0]))]
+    lines += ["  " + "  ".join(c.ljust(w) for c, w in zip(r, widths, strict=True)).rstrip()
+              for r in rows]
+    lines.append("support resonances (half-power bandwidth on the 1x per unit unbalance force):")
+    if not sw.resonances:
+        lines.append("  none found in the sweep")
+    for r in sw.resonances:
+        damping = ("damping not resolved (the speed passed the resonance in fewer than 3 "
+                   "points)" if r.damping_ratio is None else
+                   f"damping {100 * r.damping_ratio:.1f} % (half-power {r.lower_rpm:.0f}-"
+                   f"{r.upper_rpm:.0f} rpm, {r.points_in_band} points)")
+        lines.append(f"  - {r.pickup}: {r.speed_rpm:.0f} rpm, {damping}")
+    for k in result.speed_slopes:
+        lines.append(f"response slope at {k.speed_rpm:.0f} rpm, {k.pickup}: 1x ~ speed^"
+                     f"{k.amplitude_exponent:.2f}, phase {k.phase_deg_per_ln_speed:+.1f} deg "
+                     "per unit of ln(speed)")
+    return lines

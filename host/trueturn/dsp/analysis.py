@@ -12,6 +12,8 @@ from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass
 from typing import Any
 
+import numpy as np
+
 from trueturn.dsp.averaging import SteadinessLimits
 from trueturn.dsp.findings import Code, Finding, describe, unique
 from trueturn.dsp.meter import LiveAnalyzer, PickupReading
@@ -27,7 +29,19 @@ from trueturn.dsp.severity import (
     pickup_severity,
 )
 from trueturn.dsp.spectrum import Spectrum, SpectrumPeak
-from trueturn.dsp.unbalance import pickup_evidence, verdict
+from trueturn.dsp.sweep import (
+    BIN_FRACTION,
+    MIN_SWEEP_RATIO,
+    RESONANCE_MARGIN,
+    SpeedSlope,
+    Sweep,
+    analyse_sweep,
+    balancing_speed_rpm,
+    local_slope,
+    near_resonances,
+    rise_below_first_resonance,
+)
+from trueturn.dsp.unbalance import pickup_evidence, sweep_evidence, verdict
 from trueturn.dsp.units import PickupProfile
 from trueturn.link.codec import LinkEvent, Message, StreamDecoder
 
@@ -75,6 +89,10 @@ class Analysis:
     severity: tuple[Severity, ...] = ()
     #: is it unbalance? the verdict first, then each pickup's evidence (dsp/unbalance.py)
     unbalance: tuple[Finding, ...] = ()
+    #: ``analyze --sweep``: the 1x against speed and the resonances (dsp/sweep.py)
+    sweep: Sweep | None = None
+    #: the sweep's local response slope per pickup at the balancing speed
+    speed_slopes: tuple[SpeedSlope, ...] = ()
 
     def to_json(self) -> dict[str, Any]:
         """The analysis as the JSON contract of ``trueturn analyze --json``.
@@ -140,6 +158,39 @@ class Analysis:
                 "evidence": [{**f.to_json(), "words": describe(f)}
                              for f in self.unbalance[1:]]},
             "link": self.link,
+            **(self._sweep_json(num) if self.sweep is not None else {}),
+        }
+
+    def _sweep_json(self, num: Callable[..., float | None]) -> dict[str, Any]:
+        """The sweep's part of ``analyze --sweep --json`` (dsp/sweep.py)."""
+        sw = self.sweep
+        assert sw is not None
+        return {
+            "sweep": [{"speed_rpm": num(p.speed_rpm, 2), "revolutions": p.revolutions,
+                       "pickups": [{"name": v.name, "amplitude": num(v.amplitude),
+                                    "phase_deg": num(v.phase_deg, 2),
+                                    "confidence_radius": num(v.confidence_radius),
+                                    "usable": v.usable} for v in p.pickups]}
+                      for p in sw.points],
+            "resonances": [{"speed_rpm": num(r.speed_rpm, 1), "pickup": r.pickup,
+                            "damping_ratio": num(r.damping_ratio, 4),
+                            "half_power_rpm": None if r.lower_rpm is None or r.upper_rpm is None
+                            else [num(r.lower_rpm, 1), num(r.upper_rpm, 1)],
+                            "points_in_band": r.points_in_band,
+                            "peak_ratio": num(r.peak_ratio, 3), "method": r.method}
+                           for r in sw.resonances],
+            "sweep_info": {"unit": sw.unit, "is_sweep": sw.is_sweep,
+                           "low_rpm": num(sw.low_rpm, 1), "high_rpm": num(sw.high_rpm, 1),
+                           "min_ratio": MIN_SWEEP_RATIO, "bin_fraction": BIN_FRACTION,
+                           "balancing_speed_rpm": num(balancing_speed_rpm(sw) or math.nan, 1),
+                           "resonance_margin": RESONANCE_MARGIN,
+                           "method": "half-power bandwidth on the 1x per unit unbalance force "
+                                     "(divided by speed^2 and the pickup's own power of "
+                                     "speed); Ewins, Modal Testing, sec. 4.2"},
+            "speed_slopes": [{"pickup": k.pickup, "speed_rpm": num(k.speed_rpm, 1),
+                              "amplitude_exponent": num(k.amplitude_exponent, 4),
+                              "phase_deg_per_ln_speed": num(k.phase_deg_per_ln_speed, 3),
+                              "points": k.points} for k in self.speed_slopes],
         }
 
 
@@ -148,7 +199,8 @@ def analyze_capture(raw: bytes | Iterable[bytes], revs: int | None = None,
                     profiles: Sequence[PickupProfile] = (), unit: str | None = None,
                     limits: SteadinessLimits | None = None,
                     identity: dict[str, Any] | None = None,
-                    observe: Callable[[Message | LinkEvent], None] | None = None) -> Analysis:
+                    observe: Callable[[Message | LinkEvent], None] | None = None,
+                    sweep: bool = False) -> Analysis:
     """Analyse the received bytes of one capture over its last ``revs`` good revolutions.
 
     Decodes with :class:`trueturn.link.codec.StreamDecoder` and runs the same
@@ -175,6 +227,10 @@ def analyze_capture(raw: bytes | Iterable[bytes], revs: int | None = None,
     observe : callable or None, default None
         Called with every decoded message and link event, in order, before the meter takes
         it; None calls nothing.
+    sweep : bool, default False
+        Also bin every revolution's 1x against speed and look for support resonances
+        (:mod:`trueturn.dsp.sweep`); finds ``no_speed_change`` when the speed hardly moved
+        and ``near_resonance`` when the balancing speed is close to one.
 
     Returns
     -------
@@ -251,10 +307,43 @@ def analyze_capture(raw: bytes | Iterable[bytes], revs: int | None = None,
                     "other_mains_hz": other_mains, "mains_hz": mains_hz}))
     speed = float(meter.speeds_rpm().mean()) if meter.tach.revolutions and len(
         meter.speeds_rpm()) else math.nan
+    swept = _sweep(meter, unit) if sweep and readings else None
+    slopes: list[SpeedSlope] = []
+    if swept is not None:
+        at = balancing_speed_rpm(swept)
+        if not swept.is_sweep:
+            found.append(Finding(Code.NO_SPEED_CHANGE, details={
+                "low_rpm": round(swept.low_rpm, 1), "high_rpm": round(swept.high_rpm, 1),
+                "ratio_needed": MIN_SWEEP_RATIO}))
+        elif at is not None:
+            for res in near_resonances(at, swept.resonances):
+                found.append(Finding(Code.NEAR_RESONANCE, res.pickup, details={
+                    "speed_rpm": round(at, 1), "resonance_rpm": round(res.speed_rpm, 1),
+                    "damping_ratio": None if res.damping_ratio is None
+                    else round(res.damping_ratio, 4), "margin": RESONANCE_MARGIN}))
+        if at is not None:
+            for reading in readings:
+                slope = local_slope(swept.points, reading.sensor, at)
+                if slope is not None:
+                    slopes.append(slope)
     found = unique(found)
-    severity, unbalance = _judge(meter, full_spectra, readings, speed)
+    severity, unbalance = _judge(meter, full_spectra, readings, speed, swept)
     return Analysis(speed, readings, tuple(spectra), tuple(describe(f) for f in found),
-                    c.to_json(), tuple(found), severity, unbalance)
+                    c.to_json(), tuple(found), severity, unbalance, swept, tuple(slopes))
+
+
+def _sweep(meter: LiveAnalyzer, unit: str | None) -> Sweep:
+    """Every held revolution's 1x binned against speed (dsp/sweep.py), in one unit for all
+    pickups (volts when they differ, e.g. one without a sensitivity)."""
+    channels = range(meter.channels)
+    vectors = [meter.revolution_vectors(c, unit) for c in channels]
+    if len({v[3] for v in vectors}) > 1:
+        vectors = [meter.revolution_vectors(c, "V pk") for c in channels]
+    speeds = vectors[0][0] if vectors else np.zeros(0)
+    kept = [(c, v) for c, v in zip(channels, vectors, strict=True) if len(v[0]) == len(speeds)]
+    return analyse_sweep(speeds, {meter.profile(c).name: v[1] for c, v in kept},
+                         {meter.profile(c).name: v[2] for c, v in kept},
+                         vectors[0][3] if vectors else "V pk")
 
 
 def machine_condition(meter: LiveAnalyzer) -> tuple[tuple[Severity, ...], tuple[Finding, ...]]:
@@ -283,9 +372,18 @@ def machine_condition(meter: LiveAnalyzer) -> tuple[tuple[Severity, ...], tuple[
 
 
 def _judge(meter: LiveAnalyzer, spectra: Sequence[Spectrum | None],
-           readings: Sequence[PickupReading], speed_rpm: float
+           readings: Sequence[PickupReading], speed_rpm: float, sweep: Sweep | None = None
            ) -> tuple[tuple[Severity, ...], tuple[Finding, ...]]:
-    """Each pickup's severity and the unbalance verdict with its evidence (issue #22)."""
+    """Each pickup's severity and the unbalance verdict with its evidence (issue #22).
+
+    With a sweep (``analyze --sweep`` of a coast-down or run-up) no severity is given and
+    the spectrum rules are left out: both need a steady run (a coast-down's last seconds
+    are at standstill); the sweep's own rule (1x rising with speed below the first
+    resonance) is judged instead."""
+    if sweep is not None and sweep.is_sweep:
+        rises = [(r.sensor, rise_below_first_resonance(sweep, r.sensor)) for r in readings]
+        found = [sweep_evidence(name, *rise) for name, rise in rises if rise is not None]
+        return (), (verdict(found, 0), *found)
     severity: list[Severity] = []
     evidence: list[Finding] = []
     by_name = {r.sensor: r for r in readings}

@@ -65,6 +65,10 @@ class Code(str, Enum):
     BALANCING_MAY_NOT_HELP = "balancing_may_not_help"  # a rule failed: look elsewhere first
     UNBALANCE_UNDECIDED = "unbalance_undecided"      # too little evidence to judge
     SEVERITY = "severity"                            # broadband velocity and zone (severity.py)
+    ONE_X_RISES_WITH_SPEED = "one_x_rises_with_speed"  # a sweep: 1x grows below resonance
+    # sweeps (dsp/sweep.py: ``analyze --sweep``)
+    NO_SPEED_CHANGE = "no_speed_change"              # asked for a sweep, the speed hardly moved
+    NEAR_RESONANCE = "near_resonance"                # balancing speed close to a resonance
 
 
 # The codes that are about the tach sensor itself.
@@ -244,6 +248,21 @@ def _sentence(f: Finding) -> str:
         what = f"{order}x" if order else "an order"
         return (f"{what} is too close to {_n(f, 'hum_hz'):g} Hz, a mains hum frequency: any "
                 "hum there adds to it (a slightly different speed separates them)")
+    if c is Code.NO_SPEED_CHANGE:
+        return (f"no usable speed change for a sweep: the speed stayed within "
+                f"{_n(f, 'low_rpm'):.0f}-{_n(f, 'high_rpm'):.0f} rpm (a sweep needs the "
+                f"fastest revolution {_n(f, 'ratio_needed'):g} x the slowest); record while "
+                "the machine coasts down (switch the motor off once recording at speed) or "
+                "runs up")
+    if c is Code.NEAR_RESONANCE:
+        zeta = _n(f, "damping_ratio", None)
+        damping = f", damping {100 * zeta:.1f} %" if zeta is not None else ""
+        return (f"the balancing speed {_n(f, 'speed_rpm'):.0f} rpm is within "
+                f"{100 * _n(f, 'margin'):.0f} % of a support resonance at "
+                f"{_n(f, 'resonance_rpm'):.0f} rpm{damping}: near it the 1x changes fast "
+                "with speed, so readings taken a little apart in speed disagree and the "
+                "correction is touchy; balance at a speed further away if the machine "
+                "allows, keep every run at the same speed, and expect trim runs")
     if c in _UNBALANCE_CODES:
         return _unbalance_sentence(f)
     raise ValueError(f"no words for finding {c!r}")  # pragma: no cover - every code has words
@@ -252,11 +271,12 @@ def _sentence(f: Finding) -> str:
 _UNBALANCE_CODES = frozenset({Code.ONE_X_SHARE, Code.PHASE_STEADINESS, Code.TWO_X_RATIO,
                               Code.NONSYNC_PEAK, Code.UNBALANCE_LIKELY,
                               Code.BALANCING_MAY_NOT_HELP, Code.UNBALANCE_UNDECIDED,
-                              Code.SEVERITY})
+                              Code.SEVERITY, Code.ONE_X_RISES_WITH_SPEED})
 
 # What each evidence code means when its rule fails, for the verdict's sentence.
 _FAILED_RULE = {"one_x_share": "1x not dominant", "phase_steadiness": "1x phase not steady",
-                "two_x_ratio": "strong 2x", "nonsync_peak": "a strong peak at no shaft order"}
+                "two_x_ratio": "strong 2x", "nonsync_peak": "a strong peak at no shaft order",
+                "one_x_rises_with_speed": "1x not rising with speed"}
 # The meaning of each evaluation zone (ISO 20816-1 / ISO 10816-1, dsp/severity.py).
 _ZONE_MEANING = {"A": "as newly commissioned machines",
                  "B": "acceptable for unrestricted long-term operation",
@@ -299,6 +319,14 @@ def _unbalance_sentence(f: Finding) -> str:
             return head
         return (f"{head}: bearings, belts or another machine shake it too; balancing may not "
                 "help with that")
+    if c is Code.ONE_X_RISES_WITH_SPEED:
+        head = (f"below the first resonance the 1x displacement grows as speed^"
+                f"{_n(f, 'exponent'):.1f} over {_n(f, 'points')} sweep points")
+        if ok:
+            return f"{head} (unbalance-like: at least speed^{_n(f, 'limit'):g})"
+        return (f"{head}, less than speed^{_n(f, 'limit'):g}: an unbalance force grows as "
+                "speed^2; a bent shaft, runout at the pickup, an electrical or another "
+                "machine's vibration may be at work; balancing may not help")
     if c is Code.UNBALANCE_LIKELY:
         return ("looks like unbalance: 1x dominant and steady, no strong 2x or other peaks "
                 "(rules of the trade); balancing should help")

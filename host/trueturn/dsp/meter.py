@@ -823,7 +823,7 @@ class LiveAnalyzer:
         tuple
             ``(speeds_rpm, phasors, sigmas, unit_used)``: per revolution (oldest first) its
             speed (rpm), its 1x phasor converted at its own speed, and the standard error of
-            each of the phasor's components from the fit's residual noise,
+            each of the phasor's components from that revolution's own residual noise,
             ``noise sqrt(2 / samples)`` (both in ``unit_used``).
 
         References
@@ -845,7 +845,12 @@ class LiveAnalyzer:
                                            unit or self.unit or default_unit(profile))
         vectors = est.phasors[:, self.orders.index(1)] * self.volts_per_count * factors
         counts = np.maximum(rows["sample_counts"][good].astype(float), 1.0)
-        sigmas = est.noise_rms * self.volts_per_count * np.abs(factors) * np.sqrt(2.0 / counts)
+        # each revolution's own residual (hum left in: a little conservative), so a noisy
+        # stretch (a resonance passed fast, clipping) does not blur the quiet ones
+        fitted = rows["coef_y"].shape[1]
+        noise = np.sqrt(np.maximum(rows["resid_yy"][good], 0.0)
+                        / np.maximum(rows["observations"][good] - fitted, 1.0))
+        sigmas = noise * self.volts_per_count * np.abs(factors) * np.sqrt(2.0 / counts)
         return speeds, vectors, sigmas, used
 
     def _reading(self, c: int, last: int | None, stream: tuple[Finding, ...]) -> PickupReading:

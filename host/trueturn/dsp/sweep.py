@@ -73,9 +73,12 @@ MIN_PHASE_TURN_DEG = 45.0
 #: 95 % radius of a circular normal scatter, in standard deviations per component:
 #: sqrt(-2 ln 0.05) (Rayleigh quantile)
 CIRCLE_95_PER_SIGMA = math.sqrt(-2.0 * math.log(0.05))
-#: local slope: points within this fraction below/above the speed are fitted
-SLOPE_WINDOW_FRACTION = 0.04
+#: local slope: points within this fraction below/above the speed are fitted, and the
+#: exponent is refused when its standard error is above MAX_SLOPE_SE (0.15: at 0.5 % speed
+#: apart that leaves under 0.1 % error in the normalised amplitude)
+SLOPE_WINDOW_FRACTION = 0.08
 MIN_SLOPE_POINTS = 3
+MAX_SLOPE_SE = 0.15
 
 #: what the normalisation divides by, per quantity of the reading's unit: force ~ n^2 times
 #: the pickup's own omega^k (volts: an accelerometer's output, as acceleration)
@@ -107,6 +110,22 @@ class SweepPoint:
     pickups: tuple[SweepValue, ...]
 
     def value(self, name: str) -> SweepValue | None:
+        """One pickup's 1x at this point.
+
+        Parameters
+        ----------
+        name : str
+            The pickup's name.
+
+        Returns
+        -------
+        SweepValue or None
+            Its value, or None when the point has no such pickup.
+
+        References
+        ----------
+        .. [1] Lookup only; common practice, no source.
+        """
         return next((v for v in self.pickups if v.name == name), None)
 
 
@@ -136,13 +155,15 @@ class SpeedSlope:
     """The local response slope at ``speed_rpm`` at one pickup: ``amplitude_exponent``
     ``p = d ln|H| / d ln n`` (1x ~ n^p nearby) and ``phase_deg_per_ln_speed``
     ``q = d phi / d ln n`` (phase lag in degrees; the phase at ``n2`` is about
-    ``phi(n1) + q ln(n2/n1)``), from ``points`` sweep points."""
+    ``phi(n1) + q ln(n2/n1)``), each with its standard error, from ``points`` sweep points."""
 
     pickup: str
     speed_rpm: float
     amplitude_exponent: float
     phase_deg_per_ln_speed: float
     points: int
+    amplitude_exponent_se: float = 0.0
+    phase_deg_per_ln_speed_se: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -372,11 +393,14 @@ def _crossing(x: np.ndarray, y: np.ndarray, start: int, level: float, step: int)
 
 
 def local_slope(points: Sequence[SweepPoint], pickup: str, speed_rpm: float,
-                window_fraction: float = SLOPE_WINDOW_FRACTION) -> SpeedSlope | None:
+                window_fraction: float = SLOPE_WINDOW_FRACTION,
+                max_exponent_se: float = MAX_SLOPE_SE) -> SpeedSlope | None:
     """The response's local slope with speed at one pickup, from the sweep points nearby.
 
-    A least-squares line of ``ln|R|`` and of the unwrapped phase against ``ln n`` through
-    the usable points within ``window_fraction`` of ``speed_rpm`` (either side).
+    A weighted least-squares line of ``ln|R|`` and of the unwrapped phase against ``ln n``
+    through the usable points within ``window_fraction`` of ``speed_rpm`` (either side),
+    each point weighted by its inverse variance (its 95 % circle over the amplitude gives
+    the standard error of both ``ln|R|`` and the phase in radians).
 
     Parameters
     ----------
@@ -386,19 +410,23 @@ def local_slope(points: Sequence[SweepPoint], pickup: str, speed_rpm: float,
         The pickup's name.
     speed_rpm : float
         Where the slope is wanted, rpm.
-    window_fraction : float, default 0.04
+    window_fraction : float, default 0.08
         Half-width of the window, fraction of ``speed_rpm``.
+    max_exponent_se : float, default 0.15
+        Refuse (None) when the exponent's standard error is larger.
 
     Returns
     -------
     SpeedSlope or None
-        None when fewer than :data:`MIN_SLOPE_POINTS` usable points lie in the window or
-        they span less than 0.5 % in speed.
+        None when fewer than :data:`MIN_SLOPE_POINTS` usable points lie in the window,
+        they span less than 0.5 % in speed, or the exponent is not known within
+        ``max_exponent_se``.
 
     References
     ----------
-    .. [1] Least-squares straight line (any statistics text); the local power law
-       ``|H| ~ n^p`` as the tangent of ``ln|H|`` against ``ln n`` (common practice, no
+    .. [1] Weighted least-squares straight line and the standard error of its slope
+       (``sqrt(1 / sum w (x - xw)^2)``; any statistics text, from memory); the local power
+       law ``|H| ~ n^p`` as the tangent of ``ln|H|`` against ``ln n`` (common practice, no
        source).
     """
     if not (math.isfinite(speed_rpm) and speed_rpm > 0):
@@ -413,9 +441,34 @@ def local_slope(points: Sequence[SweepPoint], pickup: str, speed_rpm: float,
         return None
     amp = np.log([v.amplitude for _, v in chosen])
     phase = np.unwrap(np.radians([v.phase_deg for _, v in chosen]))
-    p = float(np.polyfit(x, amp, 1)[0])
-    q = math.degrees(float(np.polyfit(x, phase, 1)[0]))
-    return SpeedSlope(pickup, speed_rpm, p, q, len(chosen))
+    # standard error of ln|R| and of the phase (rad): sigma / |R|, sigma = radius / 2.45
+    se = np.array([max(v.confidence_radius / CIRCLE_95_PER_SIGMA, 1e-12 * v.amplitude)
+                   / v.amplitude for _, v in chosen])
+    w = 1.0 / se ** 2
+    xw = float(np.sum(w * x) / np.sum(w))
+    sxx = float(np.sum(w * (x - xw) ** 2))
+    if not sxx > 0:
+        return None
+    p = float(np.sum(w * (x - xw) * amp) / sxx)
+    q = float(np.sum(w * (x - xw) * phase) / sxx)
+    # the scatter about the line scales the error when it is larger than the noise says
+    # (a curving response inside the window); at least the noise's own error
+    dof = max(len(x) - 2, 1)
+    chi_amp = float(np.sum(w * (amp - _line(x, amp, w, p)) ** 2)) / dof
+    chi_phase = float(np.sum(w * (phase - _line(x, phase, w, q)) ** 2)) / dof
+    p_se = math.sqrt(max(chi_amp, 1.0) / sxx)
+    q_se = math.sqrt(max(chi_phase, 1.0) / sxx)
+    if p_se > max_exponent_se:
+        return None
+    return SpeedSlope(pickup, speed_rpm, p, math.degrees(q), len(chosen), p_se,
+                      math.degrees(q_se))
+
+
+def _line(x: np.ndarray, y: np.ndarray, w: np.ndarray, slope: float) -> np.ndarray:
+    """The weighted least-squares line of slope ``slope`` through (x, y), at x."""
+    xw = float(np.sum(w * x) / np.sum(w))
+    yw = float(np.sum(w * y) / np.sum(w))
+    return yw + slope * (x - xw)
 
 
 def analyse_sweep(speeds_rpm: np.ndarray, phasors: Mapping[str, np.ndarray],
@@ -463,3 +516,113 @@ def analyse_sweep(speeds_rpm: np.ndarray, phasors: Mapping[str, np.ndarray],
                 n, np.array([u[1] for u in used]), unit), name, np.array([u[2] for u in used]))
     found.sort(key=lambda r: (r.speed_rpm, r.pickup))
     return Sweep(unit, points, tuple(found), low, high, is_sweep)
+
+
+#: the balancing speed should stay this far (fraction of the resonance speed, either side)
+#: from a support resonance: near one the 1x changes fast with speed and the influence
+#: coefficients with it. Separation margins of 15-20 % are the usual shop and design rule
+#: (from memory: API 684-style separation margins; common practice, no single source); we
+#: take the cautious end, 20 %.
+RESONANCE_MARGIN = 0.20
+#: a point holding at least this many revolutions is part of a steady run (the balancing
+#: speed of a coast-down is where it ran before the motor was switched off)
+STEADY_POINT_REVS = 8
+#: "well below" the first resonance: at 0.7 of it a single-degree-of-freedom response is
+#: amplified less than 2x (1 / (1 - 0.7^2) = 1.96)
+BELOW_RESONANCE_FRACTION = 0.7
+#: the rise is judged on at least this many usable points spanning at least this speed ratio
+MIN_RISE_POINTS = 5
+MIN_RISE_SPAN = 1.3
+
+
+def balancing_speed_rpm(sweep: Sweep) -> float | None:
+    """The speed the machine ran steadily at during the capture: the point holding the most
+    revolutions, when it holds at least :data:`STEADY_POINT_REVS`; None otherwise.
+
+    Parameters
+    ----------
+    sweep : Sweep
+        The sweep.
+
+    Returns
+    -------
+    float or None
+        Speed, rpm.
+
+    References
+    ----------
+    .. [1] Ours: a coast-down starts from the running speed (no external source).
+    """
+    if not sweep.points:
+        return None
+    best = max(sweep.points, key=lambda p: p.revolutions)
+    return best.speed_rpm if best.revolutions >= STEADY_POINT_REVS else None
+
+
+def near_resonances(speed_rpm: float, resonances: Sequence[Resonance],
+                    margin: float = RESONANCE_MARGIN) -> list[Resonance]:
+    """The resonances within ``margin`` of ``speed_rpm`` (fraction of the resonance speed).
+
+    Parameters
+    ----------
+    speed_rpm : float
+        The balancing speed, rpm.
+    resonances : sequence of Resonance
+        Resonances found by :func:`half_power_resonances`.
+    margin : float, default 0.20
+        The separation margin, fraction of the resonance speed.
+
+    Returns
+    -------
+    list of Resonance
+        Those with ``|speed - resonance| <= margin * resonance``.
+
+    References
+    ----------
+    .. [1] Separation margin of 15-20 % between running and critical speeds (from memory:
+       API 684-style margins; common practice, no single source).
+    """
+    return [r for r in resonances if abs(speed_rpm - r.speed_rpm) <= margin * r.speed_rpm]
+
+
+def rise_below_first_resonance(sweep: Sweep, pickup: str) -> tuple[float, int] | None:
+    """How the 1x displacement grows with speed well below the first resonance at a pickup.
+
+    A least-squares line of ``ln|R|`` against ``ln n`` through the usable points below
+    :data:`BELOW_RESONANCE_FRACTION` of the lowest resonance found at that pickup, turned
+    into the displacement exponent (the reading's own power of omega taken off: 2 for
+    acceleration and volts, 1 for velocity). An unbalance force grows as ``n^2``, and so
+    does the displacement it causes below a resonance.
+
+    Parameters
+    ----------
+    sweep : Sweep
+        The sweep (must be one, with a resonance at the pickup).
+    pickup : str
+        The pickup's name.
+
+    Returns
+    -------
+    tuple or None
+        ``(exponent, points)``; None when no resonance was found at the pickup or fewer
+        than :data:`MIN_RISE_POINTS` usable points span :data:`MIN_RISE_SPAN` below it.
+
+    References
+    ----------
+    .. [1] S. S. Rao, *Mechanical Vibrations*, rotating unbalance: well below resonance
+       ``X ~ m e omega^2 / k`` (from memory).
+    """
+    own = [r.speed_rpm for r in sweep.resonances if r.pickup == pickup]
+    if not sweep.is_sweep or not own:
+        return None
+    top = BELOW_RESONANCE_FRACTION * min(own)
+    chosen = [(p.speed_rpm, v.amplitude) for p in sweep.points if p.speed_rpm <= top
+              for v in (p.value(pickup),) if v is not None and v.usable and v.amplitude > 0]
+    if len(chosen) < MIN_RISE_POINTS:
+        return None
+    x = np.log([s for s, _ in chosen])
+    if x.max() - x.min() < math.log(MIN_RISE_SPAN):
+        return None
+    slope = float(np.polyfit(x, np.log([a for _, a in chosen]), 1)[0])
+    own_power = NORMALISING_POWER[UNITS[sweep.unit][0]] - 2
+    return slope - own_power, len(chosen)

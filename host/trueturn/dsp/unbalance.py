@@ -17,8 +17,12 @@ will not cure it. Before a trial run the as-found run is judged, per pickup, on:
 Every level is compared as velocity (the acceleration peaks of the spectrum divided by
 ``2 pi f``), so the ratios do not depend on whether the pickup is calibrated. The thresholds
 are **common practice, no source**: shop rules of thumb of vibration analysis, each given a
-reason beside it. Not judged here (they need more than one run): repeatability of the phase
-between two starts, and amplitude rising with speed (a sweep).
+reason beside it. With a sweep (``analyze --sweep``, :mod:`trueturn.dsp.sweep`) one more:
+
+* **1x rising with speed** below the first resonance (:func:`sweep_evidence`): an unbalance
+  force grows as speed squared.
+
+Not judged here (it needs more than one run): repeatability of the phase between two starts.
 """
 
 from __future__ import annotations
@@ -41,6 +45,12 @@ TWO_X_RATIO_MAX = 0.5
 #: bearings, belts, a neighbouring machine or a resonance share the vibration, and balancing
 #: cannot touch them. Common practice, no source.
 NONSYNC_RATIO_MAX = 0.5
+
+#: A sweep's 1x displacement well below the first resonance must grow at least as speed^1:
+#: an unbalance force grows as speed^2 and so does the displacement it causes there; 1 is
+#: halfway (in log) between that and a flat response (runout, a bent shaft, electrical),
+#: leaving room for a second source adding to it. Common practice, no source.
+RISE_EXPONENT_MIN = 1.0
 
 #: The reading's findings that say the 1x phase did not stay put within the run.
 _UNSTEADY_PHASE = (Code.VECTOR_DRIFTING, Code.PHASE_UNCERTAIN)
@@ -117,6 +127,36 @@ def pickup_evidence(pickup: str, peaks: Sequence[SpectrumPeak], overall_velocity
                 "limit": NONSYNC_RATIO_MAX, "hz": round(worst.hz, 2),
                 "order": round(worst.hz / rotation_hz, 3) if rotation_hz > 0 else None}))
     return out
+
+
+def sweep_evidence(pickup: str, exponent: float, points: int) -> Finding:
+    """The sweep's evidence at one pickup: does the 1x rise with speed as unbalance does?
+
+    Parameters
+    ----------
+    pickup : str
+        The pickup's name.
+    exponent : float
+        How the 1x displacement grows with speed below the first resonance (``~ n^p``;
+        :func:`trueturn.dsp.sweep.rise_below_first_resonance`).
+    points : int
+        The sweep points it was fitted on.
+
+    Returns
+    -------
+    Finding
+        ``one_x_rises_with_speed`` with ``ok`` (``p >= RISE_EXPONENT_MIN``), the exponent,
+        the limit and the points.
+
+    References
+    ----------
+    .. [1] Common practice, no source: unbalance response grows with speed (force ``m e
+       omega^2``; below resonance ``X ~ m e omega^2 / k``, Rao, *Mechanical Vibrations*,
+       rotating unbalance, from memory).
+    """
+    return Finding(Code.ONE_X_RISES_WITH_SPEED, pickup, details={
+        "ok": bool(exponent >= RISE_EXPONENT_MIN), "exponent": round(exponent, 3),
+        "limit": RISE_EXPONENT_MIN, "points": points})
 
 
 def verdict(evidence: Sequence[Finding], pickups: int) -> Finding:

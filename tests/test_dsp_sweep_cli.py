@@ -1,0 +1,162 @@
+"""`trueturn analyze --sweep` of coast-downs and run-ups recorded from the simulator.
+
+Checks against the outside world:
+- the issue's acceptance: a coast-down of sim://bench-grinder finds the rubber-feet
+  resonance within 5 % of the model's (``sim describe --json`` ``resonances_rpm``);
+- the damping against the model's own modal damping, ``zeta = -Re(s) / |s|`` of the
+  state-space eigenvalue nearest the critical speed (textbook definition, from memory:
+  Ewins, *Modal Testing*, sec. 2.2), computed here independently of dsp/sweep.py;
+- the swept 1x against the model's exact steady response at the same speed
+  (``RigidRotor.response_1x``), so the sweep measures what the physics says.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+
+import numpy as np
+import pytest
+import yaml
+
+from cli_helpers import run_cli
+from trueturn.angles import angle_difference_deg
+from trueturn.constants import STANDARD_GRAVITY_M_S2
+from trueturn.sim.board import run_times
+from trueturn.sim.scenario import load_scenario, scenario_dir
+
+
+def _record(tmp_path: Path, scenario: str, run: str, name: str, seconds: float | None = None,
+            extra: str = "") -> Path:
+    sc = load_scenario(scenario)
+    seconds = seconds or run_times(sc, run)["record_s"]
+    out = tmp_path / f"{name}.cap"
+    query = f"realtime=0&seed=5{extra}" + (f"&run={run}" if run != "steady" else "")
+    code, _, err = run_cli(["record", "--port", f"sim://{scenario}?{query}", "--seconds",
+                            f"{seconds:g}", "-o", str(out), "--quiet"])
+    assert code == 0, err
+    return out
+
+
+def _analyze(path: Path, *extra: str) -> dict:
+    code, out, err = run_cli(["analyze", str(path), "--sweep", "--json", *extra])
+    assert code == 0, err
+    return json.loads(out)
+
+
+def modal_damping(scenario: str, critical_rpm: float) -> float:
+    """-Re(s)/|s| of the rotor's state-space eigenvalue nearest the critical speed."""
+    rotor = load_scenario(scenario).rotor
+    w = critical_rpm * 2 * math.pi / 60
+    dyn, _ = rotor._matrices(w)  # K + i w (C + G) - w^2 M
+    m = np.diag([rotor.mass_kg, rotor.transverse_inertia_kg_m2] * 2)
+    k = dyn.real + w * w * m
+    cg = dyn.imag / w
+    a = np.block([[np.zeros((4, 4)), np.eye(4)],
+                  [-np.linalg.solve(m, k), -np.linalg.solve(m, cg)]])
+    s = np.linalg.eigvals(a)
+    s = s[s.imag > 0]
+    nearest = s[np.argmin(np.abs(s.imag - w))]
+    return float(-nearest.real / abs(nearest))
+
+
+@pytest.fixture(scope="module")
+def grinder_coast(tmp_path_factory: pytest.TempPathFactory) -> dict:
+    return _analyze(_record(tmp_path_factory.mktemp("cd"), "bench-grinder", "coastdown", "cd"),
+                    "--unit", "g")
+
+
+def test_grinder_coastdown_finds_the_rubber_feet_resonance(grinder_coast: dict) -> None:
+    data = grinder_coast
+    assert data["sweep_info"]["is_sweep"]
+    assert len(data["sweep"]) >= 20  # the issue: >= 20 points on a full coast-down
+    code, out, _ = run_cli(["sim", "describe", "bench-grinder", "--json"])
+    first = json.loads(out)["resonances_rpm"][0]
+    at_first = [r for r in data["resonances"] if abs(r["speed_rpm"] / first - 1) <= 0.05]
+    # both pickups see the rocking mode; the issue's acceptance: within 5 %
+    assert {r["pickup"] for r in at_first} == {"left-bearing", "right-bearing"}
+    zeta = modal_damping("bench-grinder", first)
+    for r in at_first:
+        # the coast-down passes the half-power band in 3 points: the damping is coarse
+        assert r["damping_ratio"] == pytest.approx(zeta, rel=0.5)
+    # every resonance reported lies near one of the model's critical speeds
+    model = json.loads(out)["resonances_rpm"]
+    for r in data["resonances"]:
+        assert min(abs(r["speed_rpm"] / m - 1) for m in model) <= 0.05, r
+
+
+def test_grinder_coastdown_sweep_agrees_with_the_model(grinder_coast: dict) -> None:
+    sc = load_scenario("bench-grinder")
+    checked = 0
+    for point in grinder_coast["sweep"][::5]:
+        exact = sc.rotor.response_1x(point["speed_rpm"], sc.as_found)
+        for v in point["pickups"]:
+            if not v["usable"] or v["amplitude"] < 10 * v["confidence_radius"]:
+                continue
+            true = exact[v["name"]]
+            assert v["amplitude"] == pytest.approx(abs(true) / STANDARD_GRAVITY_M_S2, rel=0.06)
+            assert abs(angle_difference_deg(v["phase_deg"],
+                                            math.degrees(np.angle(true)) % 360)) < 5.0
+            checked += 1
+    assert checked >= 20
+
+
+def test_grinder_coastdown_slope_and_no_steady_judgement(grinder_coast: dict) -> None:
+    data = grinder_coast
+    # the local slope at the running speed, against the model's derivative
+    sc = load_scenario("bench-grinder")
+    for k in data["speed_slopes"]:
+        n, h = k["speed_rpm"], 1e-4
+        up = sc.rotor.response_1x(n * (1 + h), sc.as_found)[k["pickup"]]
+        down = sc.rotor.response_1x(n * (1 - h), sc.as_found)[k["pickup"]]
+        p_true = math.log(abs(up) / abs(down)) / (2 * h)
+        assert abs(k["amplitude_exponent"] - p_true) < 3 * k.get("amplitude_exponent_se", 0.1) + 0.1
+    assert len(data["speed_slopes"]) == 2
+    # a coast-down is no steady run: no severity zone from its standstill tail
+    assert data["severity"] == []
+    assert not any(f["code"] == "near_resonance" for f in data["findings"])
+
+
+def test_steady_capture_says_there_is_no_sweep(tmp_path: Path) -> None:
+    data = _analyze(_record(tmp_path, "bench-grinder", "steady", "steady", seconds=3.0))
+    assert not data["sweep_info"]["is_sweep"] and data["resonances"] == []
+    assert any(f["code"] == "no_speed_change" for f in data["findings"])
+    assert any("no usable speed change" in w for w in data["warnings"])
+    # text form says so too
+    code, out, _ = run_cli(["analyze", str(tmp_path / "steady.cap"), "--sweep"])
+    assert code == 0 and "sweep: none" in out
+
+
+def test_running_close_to_a_resonance_is_found(tmp_path: Path) -> None:
+    # the grinder on stiffer feet: its rocking mode near 3000 rpm, 15 % below the running
+    # speed, inside the 20 % margin (an invented variant for this test)
+    raw = yaml.safe_load((scenario_dir() / "bench-grinder.yaml").read_text(encoding="utf-8"))
+    for b in raw["bearings"]:
+        for key in ("stiffness_h_n_per_m", "stiffness_v_n_per_m"):
+            b[key] *= (3000.0 / 823.2) ** 2
+    raw["name"] = "stiff-grinder"
+    for m in raw["as_found"]:  # less unbalance: the pickups stay inside +/-3 g at resonance
+        m["mass_g"] *= 0.25
+    path = tmp_path / "stiff-grinder.yaml"
+    path.write_text(yaml.safe_dump(raw), encoding="utf-8")
+    critical = load_scenario(str(path)).rotor.critical_speeds_rpm()[0]
+    assert critical == pytest.approx(3000.0, rel=0.01)
+    data = _analyze(_record(tmp_path, str(path), "coastdown", "stiff"))
+    near = [f for f in data["findings"] if f["code"] == "near_resonance"]
+    assert near and all(abs(f["resonance_rpm"] / critical - 1) < 0.05 for f in near)
+    assert any("within 20 % of a support resonance" in w for w in data["warnings"])
+    # below 0.7 of that resonance the displacement of an unbalance rises as speed^2 times the
+    # amplification 1/(1 - r^2), which grows from about 1.0 to 2.0 there (Rao): 2...3.2
+    rises = [e for e in data["unbalance"]["evidence"] if e["code"] == "one_x_rises_with_speed"]
+    assert rises and all(e["ok"] and 2.0 < e["exponent"] < 3.2 for e in rises)
+
+
+def test_runup_gives_a_sweep(tmp_path: Path) -> None:
+    data = _analyze(_record(tmp_path, "bench-grinder", "runup", "up"))
+    assert data["sweep_info"]["is_sweep"] and len(data["sweep"]) >= 10
+    # an induction motor runs up in about two seconds: the resonance passes in too few
+    # revolutions for its damping; whatever is reported sits near a model critical speed
+    model = load_scenario("bench-grinder").rotor.critical_speeds_rpm()
+    for r in data["resonances"]:
+        assert min(abs(r["speed_rpm"] / m - 1) for m in model) <= 0.1, r

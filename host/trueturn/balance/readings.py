@@ -29,6 +29,19 @@ class Sensor:
 
 
 @dataclass(frozen=True)
+class SpeedSlopeEntry:
+    """A pickup's measured local response slope (from a coast-down sweep, ``trueturn
+    analyze --sweep``): 1x ~ speed**amplitude_exponent nearby, and its phase lag growing by
+    ``phase_deg_per_ln_speed`` per unit of ln(speed). Near a resonance the exponent may be
+    far from 2...4, even negative (above it); the phase slope is then large too."""
+
+    sensor: str = field(metadata=limits(nonempty=True))
+    amplitude_exponent: float = field(metadata=limits(minimum=-30.0, maximum=30.0))
+    phase_deg_per_ln_speed: float = field(default=0.0,
+                                          metadata=limits(minimum=-5000.0, maximum=5000.0))
+
+
+@dataclass(frozen=True)
 class SavedCoefficient:
     """One saved influence coefficient: reading units per gram at the plane's radius."""
 
@@ -72,6 +85,9 @@ class BalanceInput:
     #: local slope p of the 1x with speed (1x ~ speed**p), e.g. from a coast-down sweep;
     #: when given, readings are normalised to their group's reference speed
     speed_exponent: float | None = None
+    #: per pickup, the measured local slope (amplitude exponent and phase slope) from a
+    #: sweep; when given it is used instead of speed_exponent
+    speed_slopes: tuple[SpeedSlopeEntry, ...] = ()
 
     @property
     def has_phase(self) -> bool:
@@ -179,6 +195,8 @@ class ReadingsDocument:
     tolerance: ToleranceEntry | None = None
     #: local slope p of the 1x with speed (1x ~ speed**p)
     speed_exponent: float | None = None
+    #: per pickup, the measured local slope of amplitude and phase (a coast-down sweep)
+    speed_slopes: list[SpeedSlopeEntry] | None = None
 
     def _checks(self) -> list[tuple[str, str]]:
         """The first rule broken, as (field path, problem)."""
@@ -289,6 +307,18 @@ class ReadingsDocument:
                 and self.runs[-1].speed_rpm is None):
             return [("tolerance.speed_rpm", "missing field (the maximum service speed; the "
                      "last run gives no speed_rpm either)")]
+        sensors = [x.name for x in self.sensors]
+        seen: set[str] = set()
+        for i, slope in enumerate(self.speed_slopes or []):
+            if slope.sensor not in sensors:
+                return [(f"speed_slopes[{i}].sensor", f"unknown sensor '{slope.sensor}' "
+                         f"(sensors: {_names(sensors)})")]
+            if slope.sensor in seen:
+                return [(f"speed_slopes[{i}].sensor", f"sensor '{slope.sensor}' given twice")]
+            seen.add(slope.sensor)
+        if self.speed_slopes and len(seen) != len(sensors):
+            missing = [x for x in sensors if x not in seen]
+            return [("speed_slopes", f"give every sensor's slope (missing: {_names(missing)})")]
         p = self.speed_exponent
         if p is not None and not 0.0 <= p <= 6.0:
             return [("speed_exponent", f"expected 0...6 (1x ~ speed**p; usually 2...4), "
@@ -348,7 +378,7 @@ class ReadingsDocument:
                                   speed_from_last_run=t.speed_rpm is None)
         return BalanceInput(tuple(self.planes), sensors, tuple(runs),
                             tuple(self.influence or ()), tolerance, self.bearing_list(),
-                            self.speed_exponent)
+                            self.speed_exponent, tuple(self.speed_slopes or ()))
 
 
 def parse_readings(doc: Any, source: str = "READINGS") -> BalanceInput:

@@ -28,6 +28,7 @@ from trueturn.balance.sanity import CorrectionFinding, check_corrections
 from trueturn.balance.speed import (
     SpeedErrorEstimate,
     normalise_speeds,
+    normalise_with_slopes,
     off_speed_runs,
     speed_error_estimate,
 )
@@ -53,7 +54,8 @@ def solve(inp: BalanceInput) -> SolveReport:
 
     Phase readings go to the influence-coefficient method, amplitudes only to the
     amplitude-only method. Runs at slightly different speeds are normalised when
-    ``inp.speed_exponent`` is known, otherwise reported with an error estimate
+    each pickup's measured slope (``inp.speed_slopes``) or ``inp.speed_exponent`` is known,
+    otherwise reported with an error estimate
     (:mod:`trueturn.balance.speed`).
 
     Parameters
@@ -82,7 +84,12 @@ def solve(inp: BalanceInput) -> SolveReport:
        and tolerances for rotors with rigid behaviour (the verdict).
     """
     solver = solve_with_phase if inp.has_phase else solve_amplitude_only
-    if inp.speed_exponent is not None:
+    if inp.speed_slopes:
+        solution = solver(normalise_with_slopes(inp))
+        off = off_speed_runs(inp.runs)
+        speed = (SpeedErrorEstimate(tuple(off), (), (), 1.0, normalised_with_slopes=True)
+                 if off else None)
+    elif inp.speed_exponent is not None:
         solution = solver(normalise_speeds(inp, inp.speed_exponent))
         off = off_speed_runs(inp.runs)
         speed = (SpeedErrorEstimate(tuple(off), (), (), 1.0, inp.speed_exponent)

@@ -14,6 +14,10 @@ trial's apparent effect and on the influence coefficients.
   reference speed of their group (the first run of the group, usually "as found").
 * :func:`normalise_speeds` rescales every reading to its group's reference speed with a
   known local slope ``p`` (e.g. measured on a coast-down sweep).
+* :func:`normalise_with_slopes` does the same with each pickup's measured local slope of
+  amplitude *and* phase (``analyze --sweep``): near a resonance the exponent is far from
+  2...4 (even negative above it) and the phase moves too, so only the measured slope
+  compares runs a fraction of a percent apart correctly.
 * :func:`speed_error_estimate` re-solves with the readings normalised at ``p = 2`` and
   ``p = 4`` and reports how far the correction moves: the estimated error of not knowing the
   slope (common practice, no source: a sensitivity check by re-solving).
@@ -21,13 +25,14 @@ trial's apparent effect and on the influence coefficients.
 
 from __future__ import annotations
 
+import math
 from collections.abc import Callable, Sequence
 from dataclasses import dataclass, replace
 
 import numpy as np
 
 from trueturn.balance.influence import SPEED_MATCH, Solution, speed_groups
-from trueturn.balance.readings import BalanceInput
+from trueturn.balance.readings import BalanceInput, SpeedSlopeEntry
 from trueturn.constants import SPEED_MATCH_FRACTION
 from trueturn.model import Run
 
@@ -62,6 +67,8 @@ class SpeedErrorEstimate:
     correction_change_fraction: tuple[float, ...]
     worst_cut_fraction: float
     normalised_with_exponent: float | None = None
+    #: True when the readings were normalised with each pickup's measured slope
+    normalised_with_slopes: bool = False
 
 
 def _reference_speeds(runs: Sequence[Run]) -> list[float | None]:
@@ -147,6 +154,58 @@ def normalise_speeds(inp: BalanceInput, exponent: float) -> BalanceInput:
                                   confidence_radius=None if r.confidence_radius is None
                                   else r.confidence_radius * scale)
                     for name, r in run.readings.items()}
+        runs.append(replace(run, readings=readings))
+    return replace(inp, runs=tuple(runs))
+
+
+def normalise_with_slopes(inp: BalanceInput,
+                          slopes: Sequence[SpeedSlopeEntry] | None = None) -> BalanceInput:
+    """Readings carried to their group's reference speed with each pickup's local slope.
+
+    A reading ``R`` at speed ``n`` becomes ``R exp(-(p + i q) ln(n / n_ref))`` with ``p`` the
+    amplitude exponent (``|R| ~ n^p``) and ``q`` the phase slope in radians per unit of
+    ``ln n`` (the phase lag at ``n`` is ``phi_ref + q ln(n / n_ref)``): the first-order
+    Taylor step of ``ln R`` in ``ln n``. Amplitude, phase and confidence radius change;
+    a reading without a phase keeps none.
+
+    Parameters
+    ----------
+    inp : BalanceInput
+        The checked input.
+    slopes : sequence of SpeedSlopeEntry or None, default None
+        One per sensor; None takes ``inp.speed_slopes``.
+
+    Returns
+    -------
+    BalanceInput
+        A copy with every off-reference run's readings carried to the reference speed.
+
+    References
+    ----------
+    .. [1] Local log-log (power-law) slope of the 1x with speed, measured on a coast-down
+       sweep (:mod:`trueturn.dsp.sweep`); a first-order Taylor expansion of ``ln R`` in
+       ``ln n`` (common practice, no source).
+    """
+    by_sensor = {s.sensor: s for s in (inp.speed_slopes if slopes is None else slopes)}
+    runs = []
+    for run, ref in zip(inp.runs, _reference_speeds(inp.runs), strict=True):
+        if run.speed_rpm is None or ref is None or run.speed_rpm == ref:
+            runs.append(run)
+            continue
+        step = math.log(run.speed_rpm / ref)
+        readings = {}
+        for name, r in run.readings.items():
+            slope = by_sensor.get(name)
+            if slope is None:
+                readings[name] = r
+                continue
+            scale = math.exp(-slope.amplitude_exponent * step)
+            turn = math.degrees(-math.radians(slope.phase_deg_per_ln_speed) * step)
+            readings[name] = replace(
+                r, amplitude=r.amplitude * scale,
+                phase_deg=None if r.phase_deg is None else (r.phase_deg + turn) % 360.0,
+                confidence_radius=None if r.confidence_radius is None
+                else r.confidence_radius * scale)
         runs.append(replace(run, readings=readings))
     return replace(inp, runs=tuple(runs))
 

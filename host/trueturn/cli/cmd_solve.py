@@ -120,7 +120,10 @@ def speed_warnings(report: SolveReport) -> list[str]:
                      f"{way} its group's {r.reference_rpm:g} rpm: its 1x reads about "
                      f"{low:.1f}...{high:.1f} % {'low' if r.deviation < 0 else 'high'} "
                      "(1x ~ speed^2...speed^4)")
-    if est.normalised_with_exponent is not None:
+    if est.normalised_with_slopes:
+        lines.append("readings carried to each group's reference speed with each pickup's "
+                     "measured slope of amplitude and phase (speed_slopes)")
+    elif est.normalised_with_exponent is not None:
         lines.append(f"readings normalised to each group's reference speed with 1x ~ "
                      f"speed^{est.normalised_with_exponent:g} (speed_exponent)")
     elif est.correction_change_fraction:
@@ -153,7 +156,8 @@ def speed_json(report: SolveReport) -> dict[str, Any] | None:
             "correction_change_g": [_r(x) for x in est.correction_change_g],
             "correction_change_fraction": [_r(x) for x in est.correction_change_fraction],
             "worst_cut_fraction": _r(est.worst_cut_fraction),
-            "normalised_with_exponent": est.normalised_with_exponent}
+            "normalised_with_exponent": est.normalised_with_exponent,
+            "normalised_with_slopes": est.normalised_with_slopes}
 
 
 def verdict_json(report: SolveReport) -> dict[str, Any]:

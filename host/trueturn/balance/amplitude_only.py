@@ -269,9 +269,12 @@ def solve_amplitude_only(inp: BalanceInput) -> Solution:
     correction = Correction(plane.name, mass, angle, plane.radius_mm,
                             None if pm is None else pm[0], None if pm is None else pm[1])
     now = inp.runs[-1].masses
-    keep_mass, keep_angle = amplitude_phase(-best_u - mass_vector(now, inp.planes)[0])
+    # plain floats: the trim goes into the job file as it is (numpy scalars would not)
+    keep_mass, keep_angle = (float(x) for x in
+                             amplitude_phase(-best_u - mass_vector(now, inp.planes)[0]))
     cond = float(np.linalg.cond(jac)) if jac.size else None
-    candidates = [[Correction(plane.name, *amplitude_phase(-d[0]), plane.radius_mm)] for d in rivals]
+    rival_parts = [[float(x) for x in amplitude_phase(-d[0])] for d in rivals]
+    candidates = [[Correction(plane.name, m, a, plane.radius_mm)] for m, a in rival_parts]
     method = "amplitude-only (four-run method)" if _is_four_run(w) else "amplitude-only (least squares)"
     return Solution(
         method=method,

@@ -346,13 +346,17 @@ def _sweep(meter: LiveAnalyzer, unit: str | None) -> Sweep:
                          vectors[0][3] if vectors else "V pk")
 
 
-def machine_condition(meter: LiveAnalyzer) -> tuple[tuple[Severity, ...], tuple[Finding, ...]]:
+def machine_condition(meter: LiveAnalyzer, speed_rpm: float | None = None
+                      ) -> tuple[tuple[Severity, ...], tuple[Finding, ...]]:
     """Each pickup's overall severity and the unbalance verdict, from what ``meter`` holds.
 
     Parameters
     ----------
     meter : LiveAnalyzer
         The live meter of a run (its spectra and 1x readings are computed here).
+    speed_rpm : float or None, default None
+        The shaft speed when the tach cannot give it (the spectrum's, :mod:`.tachless`);
+        None: the tach's.
 
     Returns
     -------
@@ -368,6 +372,8 @@ def machine_condition(meter: LiveAnalyzer) -> tuple[tuple[Severity, ...], tuple[
     readings = meter.readings()
     speeds = meter.speeds_rpm()
     speed = float(speeds.mean()) if meter.tach.revolutions and len(speeds) else math.nan
+    if speed_rpm is not None and not meter.tach.revolutions:
+        speed = speed_rpm
     return _judge(meter, meter.spectra(), readings, speed)
 
 

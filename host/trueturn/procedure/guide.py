@@ -15,7 +15,10 @@ Safety gates (ARCHITECTURE.md, "Safety"):
 
 * every hands-on step opens with a lock-out gate and closes with a done gate; both need
   standstill confirmed by the tach (no edge for ``standstill_s`` of board time, with data
-  still arriving) plus every item of the gate's checklist ticked;
+  still arriving) and the pickups (:mod:`trueturn.procedure.standstill`) plus every item of
+  the gate's checklist ticked; the amplitude-only procedure runs without a tach, and its
+  standstill rests on every pickup live and quiet for the long hold (the watch is told,
+  ``StandstillWatch.set_tach_absent``);
 * every run needs the person to confirm the centrifugal force of the masses on the rotor at
   the planned speed;
 * while the rotor turns, overspeed (profile max) and runaway vibration (``runaway_factor``
@@ -260,7 +263,7 @@ def standstill_refusal(ev: StandstillEvidence) -> str:
         return "the tach sees the rotor turning: stop the machine and wait"
     if state is StandstillState.TACH_FAULT:
         return tach_fault_words(ev) + ": nothing hands-on until the tach and the pickups agree"
-    if ev.tach_fault_latched:
+    if ev.tach_fault_latched and not ev.tach_absent:
         return (f"the tach went silent while the pickups saw the machine run: standstill "
                 f"needs {ev.tach_hold_needed_s:.0f} s of quiet pickups and tach "
                 f"({ev.wait_s:.0f} s to go); then fix the tach")
@@ -276,6 +279,10 @@ def standstill_refusal(ev: StandstillEvidence) -> str:
                 f"limit {p.limit_g_rms:.3f}): wait for the machine to settle")
     if not ev.pickups:
         return "the pickups' signal is not judged yet: wait a moment"
+    if ev.tach_absent:
+        return (f"checking standstill: {ev.wait_s:.1f} s to go (no tach on this machine: the "
+                f"pickups must stay quiet and live {ev.tach_hold_needed_s:.0f} s, quiet "
+                f"{ev.pickups_quiet_s:.1f} s so far)")
     return (f"checking standstill: {ev.wait_s:.1f} s to go (tach silent "
             f"{ev.tach_silent_s:.1f} s, pickups quiet {ev.pickups_quiet_s:.1f} s, "
             f"{ev.tach_hold_needed_s:.0f} s needed)")
@@ -293,6 +300,9 @@ def tach_fault_words(ev: StandstillEvidence) -> str:
 def standstill_basis_words(ev: StandstillEvidence) -> str:
     """What proved standstill, for the screen (e.g. tach silent 3 s, seen working ...)."""
     levels = ", ".join(f"{p.name} {p.level_g_rms:.3f} {p.unit} rms" for p in ev.pickups)
+    if ev.tach_absent:
+        return (f"no tach on this machine: every pickup live and quiet "
+                f"{ev.pickups_quiet_s:.0f} s: {levels}")
     if ev.tach_trusted:
         seen = (f", last edge {ev.last_edge_age_s:.0f} s ago at "
                 f"{ev.last_speed_rpm:.0f} rpm" if ev.last_speed_rpm else "")
@@ -317,6 +327,8 @@ class Procedure:
         self.setup = setup
         self.engine = engine
         self.watch = watch or StandstillWatch(setup.standstill_s)
+        # the amplitude-only procedure is the one for machines without a tach
+        self.watch.set_tach_absent(setup.mode is Mode.AMPLITUDE_ONLY)
         self.runs: list[Run] = []
         self.on_rotor: list[PlacedMass] = []
         self.removal = False
@@ -335,7 +347,9 @@ class Procedure:
         self.alarm: SafetyEvent | None = None  # held until acknowledged
         self.last_speed_rpm = 0.0  # the highest speed measured during the last run
         self.evidence_log: list[StandstillEvidence] = []  # parallel to confirmations
-        self.step: Step = HandsOn("Set up: mount the pickups and the tach",
+        self.step: Step = HandsOn("Set up: mount the pickups (no tach needed)"
+                                  if setup.mode is Mode.AMPLITUDE_ONLY else
+                                  "Set up: mount the pickups and the tach",
                                   (MassChange("mount-pickups"),))
         self.finished = False
 
@@ -520,11 +534,13 @@ class Procedure:
         """
         if not r.steady or r.revolutions < self.setup.revolutions_per_run:
             return False
-        if r.no_tach:
-            return False
+        if r.no_tach and self.setup.mode is not Mode.AMPLITUDE_ONLY:
+            return False  # the amplitude-only method needs no phase, the others do
         if self.setup.mode is Mode.AMPLITUDE_ONLY:
             base = self.as_found()
             if base is None or r.confidence_radius is None:
+                if r.no_tach and r.confidence_radius is not None:  # the spectrum's reading
+                    return r.confidence_radius <= SMALL_VECTOR_FRACTION * r.amplitude
                 return r.confidence_deg <= self.setup.phase_limit_deg
             ref = base.readings.get(r.sensor)
             limit = SMALL_VECTOR_FRACTION * (ref.amplitude if ref else r.amplitude)
@@ -543,9 +559,12 @@ class Procedure:
 
         Never while the tach is silent (``tach_live`` False: no edge lately while data
         arrive) or a reading says there is no tach: without the once-per-rev reference a 1x
-        phase means nothing.
+        phase means nothing. The amplitude-only procedure needs no tach: its readings come
+        from the spectrum (:mod:`trueturn.dsp.tachless`).
         """
-        if self.step.kind != "run" or self.step.phase != "running" or not tach_live:
+        if self.step.kind != "run" or self.step.phase != "running":
+            return False
+        if not tach_live and self.setup.mode is not Mode.AMPLITUDE_ONLY:
             return False
         return all(name in readings and self.settled(readings[name])
                    for name in self.setup.sensors)

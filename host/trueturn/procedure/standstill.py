@@ -20,6 +20,14 @@ order it is checked:
    pickups must stay quiet, and the tach silent, for ``untrusted_hold_s`` (longer, so a rotor
    coasting below what the pickups can see has stopped).
 
+**No tach at all** (``tach_absent``: the amplitude-only procedure, made for machines without
+one): the tach's silence is no evidence and no fault. Standstill then rests on the pickups
+alone: every pickup live (not stuck at or clipped against an ADC limit) and quiet, without a
+break, for ``untrusted_hold_s`` (the long hold: a rotor coasting below what the pickups can
+see has stopped by then), plus the person's confirmation at every gate (basis
+``PICKUPS_NO_TACH``). Edges, should any come, are still believed when they say the rotor
+turns.
+
 Disagreement is a fault, not a standstill: a silent tach while the pickups show a running
 machine is ``TACH_FAULT`` (latched until the tach is seen working again). Edges from the tach
 are believed when they say the rotor turns (``TURNING``), whatever the pickups say: a refusal
@@ -68,6 +76,7 @@ class Basis(str, Enum):
 
     TACH_AND_PICKUPS = "tach-and-pickups"  # trusted tach silent + pickups quiet
     PICKUPS_LONG_HOLD = "pickups-long-hold"  # tach not trusted: longer quiet on both
+    PICKUPS_NO_TACH = "pickups-no-tach"  # no tach on the machine: live pickups quiet, long hold
 
 
 @dataclass(frozen=True)
@@ -87,6 +96,7 @@ class StandstillEvidence:
     pickups_quiet_s: float  # board time the pickups have been quiet without a break
     pickups: tuple[PickupMotion, ...]  # the latest judgement of each pickup
     data_fresh: bool
+    tach_absent: bool = False  # no tach on this machine: the pickups are the evidence
 
     @property
     def proven(self) -> bool:
@@ -127,7 +137,16 @@ class StandstillWatch:
         self.clock = clock
         self.stale_s = stale_s
         self.untrusted_hold_s = max(untrusted_hold_s, hold_s)
+        #: the machine has no tach (amplitude-only procedure): kept across :meth:`reset`
+        self.tach_absent = False
         self.reset()
+
+    def set_tach_absent(self, absent: bool) -> None:
+        """Judge without a tach (``absent``), or with one again; a fault latched by a
+        silent tach means nothing on a machine that has none."""
+        self.tach_absent = absent
+        if absent:
+            self.fault_latched = False
 
     def reset(self) -> None:
         """Forget everything (new stream, board reset, link lost)."""
@@ -182,7 +201,7 @@ class StandstillWatch:
         self.pickups = pickups
         self.pickups_at_s = board_time_s
         self._window_start_s = board_time_s - min((p.seconds for p in pickups), default=0.0)
-        if not quiet and self._line_after_silence():
+        if not quiet and not self.tach_absent and self._line_after_silence():
             self.fault_latched = True
             self._edges_since_fault = 0
 
@@ -238,7 +257,7 @@ class StandstillWatch:
         need = self.hold_s
         if self.last_period_s is not None and self.last_edge_s is not None:
             need = max(need, PERIODS_HELD * self.last_period_s)
-        if not trusted:
+        if not trusted or self.tach_absent:
             need = max(need, self.untrusted_hold_s)
         motion_fresh = (self.pickups_at_s is not None and bool(self.pickups)
                         and now - self.pickups_at_s <= MOTION_STALE_S)
@@ -250,15 +269,17 @@ class StandstillWatch:
             state = StandstillState.NO_DATA
         elif self.last_edge_s is not None and silent < TURNING_WINDOW_S:
             state = StandstillState.TURNING
-        elif pickups_moving and self._line_after_silence():
+        elif pickups_moving and not self.tach_absent and self._line_after_silence():
             state = StandstillState.TACH_FAULT
-        elif silent >= need and quiet_for >= need and not pickups_moving:
+        elif (silent >= need and quiet_for >= need and not pickups_moving
+              and all(p.live for p in self.pickups)):
             state = StandstillState.PROVEN
         else:
             state = StandstillState.CHECKING
         basis = None
         if state is StandstillState.PROVEN:
-            basis = Basis.TACH_AND_PICKUPS if trusted else Basis.PICKUPS_LONG_HOLD
+            basis = (Basis.PICKUPS_NO_TACH if self.tach_absent else
+                     Basis.TACH_AND_PICKUPS if trusted else Basis.PICKUPS_LONG_HOLD)
         speed = 60.0 / self.last_period_s if self.last_period_s else None
         return StandstillEvidence(
             state=state, basis=basis, board_time_s=now, tach_silent_s=silent,
@@ -267,7 +288,7 @@ class StandstillWatch:
             last_edge_age_s=None if self.last_edge_s is None else max(0.0,
                                                                       now - self.last_edge_s),
             pickups_quiet_s=quiet_for, pickups=self.pickups if motion_fresh else (),
-            data_fresh=fresh)
+            data_fresh=fresh, tach_absent=self.tach_absent)
 
     @property
     def standstill(self) -> bool:

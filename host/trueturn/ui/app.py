@@ -26,6 +26,7 @@ from textual.screen import Screen
 from textual.widgets import ContentSwitcher, Footer, Static
 from textual.worker import get_current_worker
 
+from trueturn.dsp.tachless import speed_band_hz
 from trueturn.errors import UserError
 from trueturn.jobs.profiles import MachineProfile
 from trueturn.jobs.records import CoefficientSet
@@ -529,6 +530,9 @@ class TrueturnApp(App):
         except ValueError as exc:
             self.message = str(exc)
             return
+        # amplitude only: no tach needed, speed and 1x from the spectrum (dsp.tachless)
+        self.session.use_tachless(speed_band_hz(setup.speed_rpm, setup.max_speed_rpm)
+                                  if mode is Mode.AMPLITUDE_ONLY else None)
         self.keeper.start(self.procedure)
         self.message = ""
         if self.procedure.partial_planes:

@@ -17,6 +17,7 @@ from trueturn.dsp.averaging import SteadinessLimits
 from trueturn.dsp.findings import TACH_LINE, Code, Finding, describe
 from trueturn.dsp.meter import LiveAnalyzer
 from trueturn.dsp.severity import Severity
+from trueturn.dsp.tachless import TachlessMeter
 from trueturn.dsp.units import pickup_profile
 from trueturn.model import Reading
 
@@ -82,6 +83,8 @@ class MeterAdapter:
         self._config: _Msg | None = None
         self.spectrum_wanted = False
         self.analyzer = self._new()
+        #: without a tach (amplitude-only procedure): speed and 1x from the spectrum
+        self.tachless: TachlessMeter | None = None
 
     def for_machine(self, sensor_names: Sequence[str], mains_hz: float,
                     pickups: Sequence[Any]) -> MeterAdapter:
@@ -89,7 +92,20 @@ class MeterAdapter:
         other = MeterAdapter(sensor_names, mains_hz, pickups, self.max_revs)
         other._identity, other._config = self._identity, self._config
         other.analyzer = other._new()
+        if self.tachless is not None:
+            other.use_tachless(self.tachless.band_hz)
         return other
+
+    def use_tachless(self, band_hz: tuple[float, float] | None) -> None:
+        """Read speed and 1x amplitude from the spectrum in ``band_hz`` (no tach: the
+        amplitude-only procedure), or from the tach again (None)."""
+        if band_hz is None:
+            self.tachless = None
+            return
+        self.tachless = TachlessMeter(self.profiles, band_hz, self.mains_hz)
+        for msg in (self._identity, self._config):
+            if msg is not None:
+                self.tachless.feed(msg)
 
     def _new(self) -> LiveAnalyzer:
         a = LiveAnalyzer(self.profiles, mains_hz=self.mains_hz, max_revs=self.max_revs,
@@ -102,10 +118,14 @@ class MeterAdapter:
     def identity(self, values: dict[str, Any]) -> None:
         self._identity = _Msg("identity", values)
         self.analyzer.feed(self._identity)
+        if self.tachless is not None:
+            self.tachless.feed(self._identity)
 
     def stream_config(self, values: dict[str, Any]) -> None:
         self._config = _Msg("stream_config", values)
         self.analyzer.feed(self._config)
+        if self.tachless is not None:
+            self.tachless.feed(self._config)
 
     def feed(self, msg: Any) -> None:
         if msg.name == "stream_config":
@@ -113,14 +133,19 @@ class MeterAdapter:
         elif msg.name == "identity":
             self._identity = _Msg("identity", msg.values)
         self.analyzer.feed(msg)
+        if self.tachless is not None:
+            self.tachless.feed(msg)
 
     def condition(self) -> tuple[tuple[Severity, ...], tuple[Finding, ...]]:
         """The machine's overall severity and the unbalance verdict from this run so far."""
-        return machine_condition(self.analyzer)
+        tachless = self.tachless.speed_rpm if self.tachless is not None else math.nan
+        return machine_condition(self.analyzer, tachless if math.isfinite(tachless) else None)
 
     def reset(self) -> None:
         """Forget the averaged revolutions (a new run starts)."""
         self.analyzer = self._new()
+        if self.tachless is not None:
+            self.tachless.reset()
 
     def view(self) -> MeterView:
         a = self.analyzer
@@ -134,6 +159,13 @@ class MeterAdapter:
             out.findings += [f for f in r.findings if f not in out.findings]
         if not readings:  # no revolution yet: the stream's own findings (no tach, ...)
             out.findings += [f for f in a.stream_findings() if f.code is not Code.NO_STREAM]
+        if self.tachless is not None:
+            # no tach by design: the spectrum's readings, and no tach finding to fix
+            out.readings = {r.sensor: r for r in self.tachless.readings()}
+            speed = self.tachless.speed_rpm
+            out.speed_rpm = speed if math.isfinite(speed) else None
+            out.unit = next((r.unit for r in out.readings.values()), out.unit)
+            out.findings = [f for f in out.findings if f.code is not Code.NO_TACH]
         out.warnings = [describe(f) for f in out.findings]
         out.tach_faults = tuple(describe(f, brief=True) for f in tach_faults(out.findings))
         if self.spectrum_wanted:

@@ -388,6 +388,12 @@ class LinkSession:
                 self.motion = None
                 self._new_motion(rate_hz)
 
+    def use_tachless(self, band_hz: tuple[float, float] | None) -> None:
+        """Measure without a tach (speed and 1x from the spectrum in ``band_hz``: the
+        amplitude-only procedure), or with the tach again (None)."""
+        with self._state:
+            self.meter.use_tachless(band_hz)
+
     def machine_condition(self) -> tuple[tuple[Any, ...], tuple[Any, ...]]:
         """The machine's overall severity per pickup and the unbalance verdict from the run
         just averaged (call before :meth:`reset_meter`)."""

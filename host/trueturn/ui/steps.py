@@ -36,6 +36,7 @@ from trueturn.procedure.guide import (
     HandsOn,
     HandsOnPhase,
     Measure,
+    Mode,
     OffSpeed,
     Procedure,
     RunPhase,
@@ -208,7 +209,8 @@ class HandsOnPanel(ProcedurePanel):
             return (f"[green]Standstill proven: {standstill_basis_words(ev)}.[/green]",)
         style = "yellow" if ev.state is StandstillState.CHECKING else "b red"
         lines = [f"[{style}]Not at proven standstill: {standstill_refusal(ev)}.[/]"]
-        if ev.state in (StandstillState.TURNING, StandstillState.TACH_FAULT):
+        if ev.state in (StandstillState.TURNING, StandstillState.TACH_FAULT) or (
+                ev.tach_absent and ev.moving_pickups):
             how = texts.STOP_DEMO if self.demo else texts.STOP_MACHINE
             lines.append(f"[b red]Stop: {how}.[/]")
         return tuple(lines)
@@ -245,6 +247,7 @@ class RunPanel(ProcedurePanel):
     revolutions: reactive[int] = reactive(0)
     readings: reactive[tuple[tuple[str, Reading | None], ...]] = reactive(())
     tach_silent_s: reactive[float | None] = reactive(None)  # None: the tach is seen
+    no_tach: reactive[bool] = reactive(False)  # amplitude only: speed and 1x from the spectrum
     tach_faults: reactive[tuple[str, ...]] = reactive(())
     not_ready: reactive[str] = reactive("")
 
@@ -263,7 +266,8 @@ class RunPanel(ProcedurePanel):
             self.speed_rpm = meter.speed_rpm or 0.0
             self.revolutions = proc.setup.revolutions_per_run
             self.readings = tuple((name, meter.readings.get(name)) for name in sensors)
-            self.tach_silent_s = None if ctx.tach_live else snap.quiet_s
+            self.no_tach = proc.setup.mode is Mode.AMPLITUDE_ONLY
+            self.tach_silent_s = None if ctx.tach_live or self.no_tach else snap.quiet_s
             self.tach_faults = tuple(meter.tach_faults[:2])
             waiting = [r for _, r in self.readings if r is not None and not proc.settled(r)]
             own = [w for r in waiting for w in meter.pickup_warnings(r.sensor)]
@@ -297,11 +301,19 @@ class RunPanel(ProcedurePanel):
                         texts.A_NOT_NOW]
 
     def _measuring(self) -> list[str]:
-        lines = [f"Measuring at {self.speed_rpm:.0f} rpm; averaging {self.revolutions} steady "
-                 "revolutions."]
+        if self.no_tach:
+            lines = [texts.no_tach_measuring(self.speed_rpm)]
+        else:
+            lines = [f"Measuring at {self.speed_rpm:.0f} rpm; averaging {self.revolutions} "
+                     "steady revolutions."]
         for name, r in self.readings:
             if r is None:
                 lines.append(f"  {name}: waiting")
+                continue
+            if r.no_tach:
+                st = "[green]steady[/]" if r.steady else "[yellow]settling[/]"
+                pm = f"±{r.confidence_radius:.3f}" if r.confidence_radius is not None else "±?"
+                lines.append(f"  {name}: 1x {r.amplitude:.3f} {pm} {r.unit} (95 %), {st}")
                 continue
             ph = f"{r.phase_deg:.0f}°" if r.phase_deg is not None else "—"
             st = "[green]steady[/]" if r.steady else "[yellow]settling[/]"

@@ -223,3 +223,9 @@ def condition_lines(severity: Sequence[Severity], unbalance: Sequence[Finding],
                      "its grade while the machine is not; look at mounting, alignment, "
                      "bearings and belts.[/]")
     return tuple(lines)
+
+
+def no_tach_measuring(speed_rpm: float) -> str:
+    """The run line of the amplitude-only procedure: there is no tach (dsp.tachless)."""
+    speed = f"about {speed_rpm:.0f} rpm" if speed_rpm > 0 else "the speed not found yet"
+    return f"No tach: speed from the spectrum ({speed}), 1x from its peak, no phase."

@@ -1,0 +1,430 @@
+"""Tach-less 1x: running speed and 1x amplitude from the spectrum (amplitude-only balancing).
+
+Without a once-per-rev reference there is no shaft angle and no phase; the four-run method
+(:mod:`trueturn.balance.amplitude_only`) needs only the 1x amplitude at a steady speed. The
+samples of each pickup are cut into back-to-back segments of ``SEGMENT_S`` seconds; in each:
+
+* **speed**: the strongest line of the Hann-windowed periodogram (summed over the pickups)
+  inside the expected running-speed band of the machine profile (the planned speed
+  ``±BAND_FRACTION``, at most the machine's maximum), the mains line and its double left out
+  (``MAINS_GUARD_HZ``); the top bin is refined by a parabola through the log power of its
+  neighbours and then by a local fit: the frequency that maximises the windowed DTFT power
+  within half a bin of it (the periodogram maximum, the maximum-likelihood frequency of one
+  tone in white noise [1]_). The segment counts only when its two halves give the same
+  speed within ``SPEED_AGREE`` (no spin-up or coast-down inside it).
+* **1x amplitude**: the windowed DTFT at that frequency, corrected for the window's coherent
+  gain, ``A = 2 |sum w x e^{-i w n}| / sum w`` [2]_ (exact at the fitted frequency: no
+  scalloping loss). Its noise has, per real and imaginary part, the variance
+  ``v = 2 S / (sum w)^2`` with ``S`` the periodogram's noise level beside the line (median of
+  the bins within ``NOISE_SPAN_HZ``, the line's lobe and the mains lines left out, divided
+  by ln 2: the median of an exponential variable) — the window's equivalent noise bandwidth
+  at work [2]_; ``A^2 - 2 v`` removes the noise's upward bias of the squared amplitude
+  (Rice [3]_).
+
+The reading averages the newest run of consecutive good segments whose speeds agree with the
+newest within ``SPEED_AGREE`` (at most ``MAX_SEGMENTS``); it is steady from ``MIN_SEGMENTS``
+on. Its 95 % uncertainty: the standard error of the mean amplitude, from the segments'
+scatter (Student-t inflated for few segments) but never below the estimator's own noise
+variance ``v / K``; it travels as ``confidence_radius``, a circle of ``CIRCLE95_SIGMAS``
+standard errors, as the influence-coefficient readings' circles do (the amplitude alone is
+inside ``±1.96/2.45`` of it with 95 %).
+
+Limits, said plainly: a running speed within ``MAINS_GUARD_HZ`` of the mains line (or its
+double) cannot be told from hum without a tach and gives no reading; a line stronger than
+the 1x inside the band (a belt, a neighbour machine) would be taken for it — the band is the
+profile's, so keep the planned speed right; speed wander within a segment widens the line a
+little and reads a little low, the same in every run at that speed.
+
+References
+----------
+.. [1] D. C. Rife, R. R. Boorstyn, "Single-tone parameter estimation from discrete-time
+   observations", IEEE Trans. Inf. Theory 20(5), 1974 (the periodogram maximum is the ML
+   frequency; from memory).
+.. [2] F. J. Harris, "On the use of windows for harmonic analysis with the discrete Fourier
+   transform", Proc. IEEE 66(1), 1978 (coherent gain, equivalent noise bandwidth; from
+   memory).
+.. [3] S. O. Rice, "Mathematical analysis of random noise", Bell Syst. Tech. J. 23, 1944
+   (the amplitude of a sine in Gaussian noise; from memory).
+"""
+
+from __future__ import annotations
+
+import math
+from collections import deque
+from collections.abc import Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+from scipy import signal, stats
+from scipy.optimize import minimize_scalar
+
+from trueturn.dsp.spectrum import refine_peak_hz
+from trueturn.dsp.units import PickupProfile, conversion_factors, default_unit
+from trueturn.model import Reading
+
+SEGMENT_S = 4.0  # 0.25 Hz bins: a 1x 1 Hz from the mains line is 4 bins from it
+MIN_SEGMENTS = 4
+MAX_SEGMENTS = 8
+BAND_FRACTION = 0.10  # the 1x is searched within +/-10 % of the planned speed
+MAINS_GUARD_HZ = 0.5  # two bins of SEGMENT_S each side of the mains line and its double
+SPEED_AGREE = 0.01  # halves of a segment, and segments averaged, agree within 1 %
+NOISE_SPAN_HZ = 10.0  # the noise level is read within this much of the line
+LOBE_GUARD_BINS = 4  # the Hann main lobe is +/-2 bins; twice that is left out
+PAD = 8  # zero padding of the coarse search
+#: a 95 % circle holds a 2-D normal within this many per-axis sigmas (sqrt(-2 ln 0.05))
+CIRCLE95_SIGMAS = math.sqrt(-2.0 * math.log(0.05))
+NORMAL95 = 1.959963984540054  # two-sided 95 % quantile of the normal distribution
+
+
+def speed_band_hz(planned_rpm: float, max_rpm: float | None = None) -> tuple[float, float]:
+    """The band the 1x is searched in: the planned speed +/- ``BAND_FRACTION``, at most the
+    machine's maximum speed.
+
+    Parameters
+    ----------
+    planned_rpm : float
+        The speed the machine is run at (machine profile), rpm.
+    max_rpm : float or None, default None
+        The machine's maximum speed, rpm.
+
+    Returns
+    -------
+    (float, float)
+        Lowest and highest frequency, Hz.
+
+    References
+    ----------
+    .. [1] Common practice, no source (an induction motor runs a few percent below
+       synchronous speed; a variable drive is set to the planned speed).
+    """
+    if not (planned_rpm > 0 and math.isfinite(planned_rpm)):
+        raise ValueError(f"planned_rpm must be positive, got {planned_rpm!r}")
+    high = planned_rpm * (1.0 + BAND_FRACTION)
+    if max_rpm is not None and max_rpm > 0:
+        high = min(high, max(max_rpm, planned_rpm))
+    return planned_rpm * (1.0 - BAND_FRACTION) / 60.0, high / 60.0
+
+
+def _dtft(x: np.ndarray, rate_hz: float, f_hz: float) -> np.ndarray:
+    """``sum_n x[..., n] exp(-i 2 pi f n / fs)`` along the last axis."""
+    n = np.arange(x.shape[-1])
+    return np.asarray(x @ np.exp(-2j * math.pi * f_hz / rate_hz * n))
+
+
+def _excluded(freqs: np.ndarray, mains_hz: float | None) -> np.ndarray:
+    out = np.zeros(freqs.shape, dtype=bool)
+    if mains_hz:
+        for line in (mains_hz, 2.0 * mains_hz):
+            out |= np.abs(freqs - line) < MAINS_GUARD_HZ
+    return out
+
+
+def strongest_line_hz(windowed: np.ndarray, rate_hz: float, band_hz: tuple[float, float],
+                      mains_hz: float | None = None) -> float | None:
+    """The strongest line in a band of windowed segments, refined by a local fit.
+
+    Parameters
+    ----------
+    windowed : numpy.ndarray
+        Windowed samples (DC removed before windowing), shape (channels, n).
+    rate_hz : float
+        Per-channel sample rate, Hz.
+    band_hz : (float, float)
+        The band searched, Hz.
+    mains_hz : float or None, default None
+        The mains frequency; it and its double are left out (+/- ``MAINS_GUARD_HZ``).
+
+    Returns
+    -------
+    float or None
+        The frequency maximising the summed windowed periodogram, Hz; None when the band
+        holds no bin (outside the sampled band, or all of it on the mains line).
+
+    References
+    ----------
+    .. [1] D. C. Rife, R. R. Boorstyn, "Single-tone parameter estimation from discrete-time
+       observations", IEEE Trans. Inf. Theory 20(5), 1974 (periodogram maximum = ML
+       frequency; from memory).
+    """
+    n = windowed.shape[-1]
+    power = (np.abs(np.fft.rfft(windowed, n=PAD * n, axis=-1)) ** 2).sum(axis=0)
+    freqs = np.fft.rfftfreq(PAD * n, 1.0 / rate_hz)
+    usable = (freqs >= band_hz[0]) & (freqs <= band_hz[1]) & ~_excluded(freqs, mains_hz)
+    if not usable.any():
+        return None
+    i = int(np.flatnonzero(usable)[np.argmax(power[usable])])
+    coarse = refine_peak_hz(freqs, power, i)
+    half_bin = 0.5 * rate_hz / n
+
+    def minus_power(f: float) -> float:
+        return -float((np.abs(_dtft(windowed, rate_hz, f)) ** 2).sum())
+
+    fit = minimize_scalar(minus_power, bounds=(coarse - half_bin, coarse + half_bin),
+                          method="bounded", options={"xatol": 1e-6 * rate_hz / n})
+    best = float(fit.x) if fit.success else coarse
+    return best if band_hz[0] <= best <= band_hz[1] else None
+
+
+@dataclass(frozen=True)
+class SegmentLine:
+    """One segment's line: frequency (Hz), per pickup the bias-corrected amplitude (peak,
+    volts) and the per-part noise variance ``v`` of the complex amplitude (V^2)."""
+
+    frequency_hz: float
+    amplitudes_v: tuple[float, ...]
+    noise_var_v2: tuple[float, ...]
+
+
+def segment_line(volts: np.ndarray, rate_hz: float, band_hz: tuple[float, float],
+                 mains_hz: float | None = None) -> SegmentLine | None:
+    """The 1x line of one segment: speed from the spectrum, amplitude from its peak.
+
+    Parameters
+    ----------
+    volts : numpy.ndarray
+        Samples, shape (channels, n), volts.
+    rate_hz : float
+        Per-channel sample rate, Hz.
+    band_hz : (float, float)
+        Where the 1x is searched, Hz (:func:`speed_band_hz`).
+    mains_hz : float or None, default None
+        Mains frequency (left out of the search).
+
+    Returns
+    -------
+    SegmentLine or None
+        None when no line is found in the band, or the segment's two halves disagree on
+        the speed by more than ``SPEED_AGREE`` (the speed changed inside it).
+
+    References
+    ----------
+    .. [1] F. J. Harris, "On the use of windows for harmonic analysis with the discrete
+       Fourier transform", Proc. IEEE 66(1), 1978 (Hann window, coherent gain, equivalent
+       noise bandwidth; from memory).
+    .. [2] S. O. Rice, "Mathematical analysis of random noise", Bell Syst. Tech. J. 23, 1944
+       (from memory).
+    """
+    x = np.atleast_2d(np.asarray(volts, dtype=float))
+    n = x.shape[-1]
+    if n < 64:
+        return None
+    x = x - x.mean(axis=-1, keepdims=True)
+    window = signal.get_window("hann", n)
+    f_hz = strongest_line_hz(x * window, rate_hz, band_hz, mains_hz)
+    if f_hz is None:
+        return None
+    halves = []
+    for part in (x[:, : n // 2], x[:, n // 2:]):
+        w_half = signal.get_window("hann", part.shape[-1])
+        centred = part - part.mean(axis=-1, keepdims=True)
+        halves.append(strongest_line_hz(centred * w_half, rate_hz, band_hz, mains_hz))
+    if any(h is None or abs(h - f_hz) > SPEED_AGREE * f_hz for h in halves):
+        return None
+    gain = float(window.sum())
+    z = 2.0 * _dtft(x * window, rate_hz, f_hz) / gain
+    # the noise level beside the line: median of the plain periodogram's bins / ln 2
+    spectrum = np.abs(np.fft.rfft(x * window, axis=-1)) ** 2
+    freqs = np.fft.rfftfreq(n, 1.0 / rate_hz)
+    bin_hz = rate_hz / n
+    near = (np.abs(freqs - f_hz) <= NOISE_SPAN_HZ) & (np.abs(freqs - f_hz) > LOBE_GUARD_BINS
+                                                       * bin_hz)
+    near &= ~_excluded(freqs, mains_hz)
+    noise = (np.median(spectrum[:, near], axis=-1) / math.log(2.0) if near.any()
+             else np.zeros(x.shape[0]))
+    var = 2.0 * noise / gain ** 2
+    amp2 = np.abs(z) ** 2 - 2.0 * var
+    return SegmentLine(f_hz, tuple(float(math.sqrt(max(a, 0.0))) for a in amp2),
+                       tuple(float(v) for v in var))
+
+
+def amplitude_uncertainty(amplitudes: np.ndarray, noise_var: np.ndarray) -> float:
+    """Standard error of the mean of the segments' amplitudes, for a 95 % statement.
+
+    Parameters
+    ----------
+    amplitudes : numpy.ndarray
+        One amplitude per segment (K of them).
+    noise_var : numpy.ndarray
+        Each segment's per-part noise variance of the complex amplitude (same unit, squared).
+
+    Returns
+    -------
+    float
+        ``max(t_{0.975, K-1} / 1.96 * s / sqrt(K), sqrt(mean(v) / K))``: the scatter's
+        standard error, Student-t inflated for few segments, never below the estimator's own
+        noise (inf for one segment).
+
+    References
+    ----------
+    .. [1] Student's t interval of a mean (any statistics text; from memory).
+    .. [2] F. J. Harris, Proc. IEEE 66(1), 1978 (the noise variance of a windowed DFT
+       amplitude; from memory).
+    """
+    k = len(amplitudes)
+    if k < 2:
+        return math.inf
+    scatter = float(np.std(amplitudes, ddof=1)) / math.sqrt(k)
+    inflate = float(stats.t.ppf(0.975, k - 1)) / NORMAL95
+    floor = math.sqrt(float(np.mean(noise_var)) / k)
+    return max(inflate * scatter, floor)
+
+
+class TachlessMeter:
+    """Streaming tach-less meter: sample messages in, one :class:`Reading` per pickup out.
+
+    Memory is bounded: the samples of the segment being filled and the last
+    ``MAX_SEGMENTS`` segment results.
+
+    Parameters
+    ----------
+    profiles : sequence of PickupProfile
+        One per channel (sensitivity, RC low-pass corners: the readings are corrected for
+        them as the order-tracked ones are).
+    band_hz : (float, float)
+        Where the 1x is searched (:func:`speed_band_hz`).
+    mains_hz : float or None, default None
+        Mains frequency.
+    unit : str or None, default None
+        Reading unit (a key of :data:`trueturn.dsp.units.UNITS`); None: each profile's default.
+    segment_s : float, default SEGMENT_S
+        Segment length, s.
+    """
+
+    def __init__(self, profiles: Sequence[PickupProfile], band_hz: tuple[float, float],
+                 mains_hz: float | None = None, unit: str | None = None,
+                 segment_s: float = SEGMENT_S) -> None:
+        if not (0 < band_hz[0] < band_hz[1]):
+            raise ValueError(f"band_hz must be (low, high) with 0 < low < high, got {band_hz!r}")
+        if not segment_s > 0:
+            raise ValueError(f"segment_s must be positive, got {segment_s!r}")
+        self.profiles = tuple(profiles)
+        self.band_hz = band_hz
+        self.mains_hz = mains_hz
+        self.unit = unit
+        self.segment_s = segment_s
+        self.adc_bits = 10
+        self.reference_mv = 5000.0
+        self._stream_reference_mv = 0.0
+        self.rate_hz = 0.0
+        self.channels = 0
+        self._parts: list[np.ndarray] = []
+        self._held = 0
+        self._next_index: int | None = None
+        self.segments: deque[SegmentLine | None] = deque(maxlen=MAX_SEGMENTS)
+
+    def reset(self) -> None:
+        """Forget everything measured (a new run).
+
+        References
+        ----------
+        .. [1] Bookkeeping only; common practice, no source.
+        """
+        self._parts = []
+        self._held = 0
+        self._next_index = None
+        self.segments.clear()
+
+    def feed(self, msg: Any) -> None:
+        """Take one decoded message (identity, stream_config, samples; others ignored).
+
+        Parameters
+        ----------
+        msg : Message
+            A decoded message (``name`` and values by key, :mod:`trueturn.link.codec`).
+
+        References
+        ----------
+        .. [1] protocol/SPEC.md (the messages and the ADC transfer; ours).
+        """
+        name = getattr(msg, "name", "")
+        if name == "identity":
+            self.adc_bits = int(msg["adc_bits"])
+            self.reference_mv = float(msg["adc_reference_mv"])
+        elif name == "stream_config":
+            self.rate_hz = float(msg["rate_hz"])
+            self.channels = int(msg["channels"])
+            try:
+                self._stream_reference_mv = float(msg["adc_reference_mv"] or 0)
+            except (KeyError, TypeError, ValueError):
+                self._stream_reference_mv = 0.0
+            self.reset()
+        elif name == "samples" and self.channels and self.rate_hz > 0:
+            self._samples(int(msg["first_index"]), msg["samples"])
+
+    @property
+    def volts_per_count(self) -> float:
+        mv = self._stream_reference_mv or self.reference_mv
+        return mv / 1000.0 / (1 << self.adc_bits)
+
+    def _samples(self, first_index: int, samples: Sequence[int]) -> None:
+        if self._next_index is not None and first_index != self._next_index:
+            self._parts, self._held = [], 0  # a gap: the segment starts afresh
+        values = np.asarray(samples, dtype=float)
+        self._next_index = first_index + len(values)
+        self._parts.append(values)
+        self._held += len(values)
+        need = int(round(self.segment_s * self.rate_hz)) * self.channels
+        while self._held >= need:
+            joined = np.concatenate(self._parts)
+            block, rest = joined[:need], joined[need:]
+            self._parts, self._held = ([rest], len(rest)) if len(rest) else ([], 0)
+            volts = block.reshape(-1, self.channels).T * self.volts_per_count
+            self.segments.append(segment_line(volts, self.rate_hz, self.band_hz,
+                                              self.mains_hz))
+
+    def _run(self) -> list[SegmentLine]:
+        """The newest consecutive good segments whose speeds agree with the newest."""
+        out: list[SegmentLine] = []
+        for seg in reversed(self.segments):
+            if seg is None or (out and abs(seg.frequency_hz - out[0].frequency_hz)
+                               > SPEED_AGREE * out[0].frequency_hz):
+                break
+            out.append(seg)
+        return out[::-1]
+
+    @property
+    def speed_rpm(self) -> float:
+        """The speed of the newest good segment, rpm (NaN before one)."""
+        newest = self.segments[-1] if self.segments else None
+        return 60.0 * newest.frequency_hz if newest is not None else math.nan
+
+    def readings(self) -> list[Reading]:
+        """One reading per pickup over the newest agreeing segments (none before one).
+
+        Returns
+        -------
+        list of Reading
+            Amplitude in the unit (chain-corrected at each segment's speed), no phase,
+            ``confidence_radius`` = ``CIRCLE95_SIGMAS`` standard errors
+            (:func:`amplitude_uncertainty`), revolutions turned over the segments averaged,
+            steady from ``MIN_SEGMENTS`` agreeing segments, ``no_tach`` True.
+
+        References
+        ----------
+        .. [1] See the module docstring (Rife & Boorstyn 1974, Harris 1978, Rice 1944; from
+           memory).
+        """
+        run = self._run()
+        if not run:
+            return []
+        freqs = np.array([s.frequency_hz for s in run])
+        out = []
+        for c in range(min(self.channels, len(run[0].amplitudes_v))):
+            profile = self.profiles[c] if c < len(self.profiles) else \
+                PickupProfile(f"pickup {c + 1}")
+            unit = self.unit or default_unit(profile)
+            factors, used = conversion_factors(profile, freqs, unit)
+            scale = np.abs(np.asarray(factors))
+            amps = np.array([s.amplitudes_v[c] for s in run]) * scale
+            var = np.array([s.noise_var_v2[c] for s in run]) * scale ** 2
+            amplitude = float(amps.mean())
+            sigma = amplitude_uncertainty(amps, var)
+            out.append(Reading(
+                profile.name, amplitude, used, None, 180.0,
+                revolutions=int(freqs.sum() * self.segment_s),
+                steady=len(run) >= MIN_SEGMENTS,
+                speed_rpm=float(60.0 * freqs.mean()),
+                confidence_radius=CIRCLE95_SIGMAS * sigma if math.isfinite(sigma) else None,
+                no_tach=True))
+        return out

@@ -4,7 +4,8 @@ Every tach edge starts a revolution at shaft angle 0 (the reference mark passing
 Between two accepted edges the angle is interpolated linearly in time (constant speed within
 one revolution; at 3 % drift over a few seconds the error is far below 0.01 degrees).
 
-Bad edges are found by the period ratio (new period / median of recent good periods):
+Bad edges are found by the period ratio (new period / the period the recent good ones
+predict, a Theil-Sen line; their median while fewer than four are known):
 a ratio well below 1 is a double trigger (a scratch, a second reflective spot, noise) and the
 edge is dropped; a ratio near 2 or more means edges were missed and the long interval is not
 used as a revolution. Both are counted and flagged, never silently averaged in.
@@ -295,7 +296,12 @@ class TachTracker:
         if not self._periods:
             return self._learn(tick, period)
         recent = list(self._periods)
-        ratio = period / _median(recent)  # against the reference_period_ticks
+        # against the period the recent ones predict (a coast-down's last turns lengthen by
+        # 10 % or more each, which a median of nine would take for missed edges); the
+        # median (reference_period_ticks) while fewer than four are known
+        predicted = self._predicted(recent)
+        ratio = period / (predicted if predicted is not None and predicted > 0
+                          else _median(recent))
         if ratio < self.double_ratio:
             self.double_edges += 1
             self.flags.append(EdgeFlag(tick, "double", ratio))
@@ -331,17 +337,25 @@ class TachTracker:
                   recent: list[int]) -> tuple[float | None, float | None]:
         """(``period`` against the one the ``recent`` periods predict, as a fraction of it;
         the prediction in ticks), or (None, None) while fewer than four are known."""
-        n = len(recent)
-        if n < 4:
+        predicted = self._predicted(recent)
+        if predicted is None:
             return None, None
-        pairs, inflation = _theil_sen_table(n)
-        # Theil-Sen line through the recent periods (robust to the odd bad edge), one step on
-        slope = _median([(recent[j] - recent[i]) / d for i, j, d in pairs])
-        intercept = _median([p - slope * i for i, p in enumerate(recent)])
-        predicted = intercept + slope * n
+        _, inflation = _theil_sen_table(len(recent))
         residual = (period - predicted) / predicted
         self._residuals.append(residual / inflation)
         return residual, predicted
+
+    @staticmethod
+    def _predicted(recent: list[int]) -> float | None:
+        """The next period by a Theil-Sen line through ``recent`` (None below four)."""
+        n = len(recent)
+        if n < 4:
+            return None
+        pairs, _ = _theil_sen_table(n)
+        # Theil-Sen line through the recent periods (robust to the odd bad edge), one step on
+        slope = _median([(recent[j] - recent[i]) / d for i, j, d in pairs])
+        intercept = _median([p - slope * i for i, p in enumerate(recent)])
+        return intercept + slope * n
 
     @property
     def undecided_from(self) -> int | None:
@@ -389,7 +403,9 @@ class TachTracker:
             # the revolutions. Otherwise the edges wander (heavy jitter): leave them out.
             steps = np.diff(np.abs(self._run_offsets))
             same_side = all(o * offset > 0 for o in self._run_offsets)
-            if same_side and (steps >= 0).all():
+            # growing, or levelling off as the prediction catches up (a motor switched off:
+            # within a quarter of the off limit, far below a knocked edge's 5-15 degrees)
+            if same_side and (steps >= -0.25 * self.uneven_fraction).all():
                 self._run.clear()
             self.close_run()
             self._anchor = float(rev.end_tick)

@@ -382,12 +382,12 @@ def test_create_a_machine_in_the_app(tmp_path: Path) -> None:
             await wait_for(pilot, lambda: "n: new machine" in screen_text(app), 5)
             await press(app, pilot, "n")
             await wait_for(pilot, lambda: "Machine name" in screen_text(app), 5)
-            fields = ["Lathe 2", "faceplate", "12", "900", "1200", "1", "150", "8", "300",
-                      "50", "6.3"]
-            for k, text in enumerate(fields):
-                field = app.screen.query(Input)[k]
+            fields = {"name": "Lathe 2", "kind": "faceplate", "mass": "12", "speed": "900",
+                      "max_speed": "1200", "p1_radius": "150", "p1_positions": "8"}
+            for key, text in fields.items():
+                field = app.screen.query_one(f"#f-{key}", Input)
                 field.value = ""
-                if k == 0:  # typed like a person; the rest filled in directly
+                if key == "name":  # typed like a person; the rest filled in directly
                     field.focus()
                     await type_text(app, pilot, text)
                 else:

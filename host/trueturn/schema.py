@@ -29,14 +29,16 @@ import re
 import types
 import typing
 from collections.abc import Callable
+from enum import Enum
 from typing import Any, Literal, Union
 
 from trueturn.angles import wrap_deg
 from trueturn.errors import UserError
-from trueturn.model.fields import limits
+from trueturn.model.fields import Rule, limits
 
 __all__ = [
     "SchemaError",
+    "Problem",
     "limits",
     "angle_limits",
     "from_data",
@@ -49,8 +51,51 @@ Migration = Callable[[dict[str, Any]], dict[str, Any]]
 _TURN_KEY = "angle_within_turn"
 
 
+class Problem(str, Enum):
+    """What is wrong with a value, as data (a screen words it; a file error says it in
+    :attr:`SchemaError.args`)."""
+
+    MISSING = "missing"  # a required field is not there, or null
+    UNKNOWN_FIELD = "unknown-field"
+    EMPTY = "empty"  # text or list that must not be empty
+    NOT_A_NUMBER = "not-a-number"
+    NOT_FINITE = "not-finite"
+    NOT_WHOLE = "not-whole"  # a whole number was expected
+    NOT_TEXT = "not-text"
+    NOT_YES_NO = "not-yes-no"  # true or false
+    NOT_ONE_OF = "not-one-of"  # values["choices"]
+    NOT_A_LIST = "not-a-list"
+    WRONG_LENGTH = "wrong-length"
+    NOT_A_MAPPING = "not-a-mapping"
+    NOT_A_NAME = "not-a-name"
+    TWICE = "twice"  # a key given twice
+    NOT_ABOVE = "not-above"  # values["limit"], values["got"]
+    NOT_BELOW = "not-below"
+    UNDER_MINIMUM = "under-minimum"
+    NEGATIVE = "negative"
+    OVER_MAXIMUM = "over-maximum"
+    OUTSIDE_TURN = "outside-turn"  # an angle beyond -360..360
+    RULE = "rule"  # a rule across fields: :attr:`SchemaError.rule` (None: no code given)
+
+
 class SchemaError(UserError):
-    """A file that cannot be read as the expected document; the message is one line."""
+    """A file that cannot be read as the expected document; the message is one line.
+
+    The same fact as data, for a screen to put into its own words: ``path`` (the dotted
+    field path, ``planes[0].radius_mm``), ``problem`` (a :class:`Problem`), ``values``
+    (``got``, ``limit``, ``choices``...), for a rule across fields ``rule``, and ``detail``,
+    the file's wording of the problem alone.
+    """
+
+    def __init__(self, message: str, path: str = "", problem: Problem | None = None,
+                 values: dict[str, Any] | None = None, rule: Rule | None = None,
+                 detail: str = "") -> None:
+        super().__init__(message)
+        self.detail = detail or message  # the problem alone, without file, line and field
+        self.path = path
+        self.problem = problem
+        self.values = values or {}
+        self.rule = rule
 
 
 def angle_limits() -> dict[str, Any]:
@@ -66,11 +111,14 @@ class _Context:
     def __init__(self, source: str, path: str, line: int) -> None:
         self.source, self.path, self.line = source, path, line
 
-    def fail(self, message: str, line: int | None = None, path: str | None = None) -> typing.NoReturn:
+    def fail(self, message: str, problem: Problem, line: int | None = None,
+             path: str | None = None, rule: Rule | None = None,
+             **values: Any) -> typing.NoReturn:
         where = path if path is not None else self.path
         at = line or self.line
         place = f"{self.source}:{at}" if at else self.source
-        raise SchemaError(f"{place}: {where or '(top)'}: {message}")
+        raise SchemaError(f"{place}: {where or '(top)'}: {message}", where, problem, values,
+                          rule, message)
 
     def child(self, name: str | int, line: int | None) -> _Context:
         if isinstance(name, int):
@@ -87,18 +135,23 @@ def _describe(value: Any) -> str:
 
 def _check_limits(value: Any, meta: typing.Mapping[str, Any], ctx: _Context) -> None:
     if meta.get("nonempty") and len(value) == 0:
-        ctx.fail("must not be empty")
+        ctx.fail("must not be empty", Problem.EMPTY)
     if isinstance(value, (int, float)) and not isinstance(value, bool):
         if meta.get("above") is not None and not value > meta["above"]:
-            ctx.fail(f"must be greater than {meta['above']:g}, got {value:g}")
+            ctx.fail(f"must be greater than {meta['above']:g}, got {value:g}", Problem.NOT_ABOVE,
+                     limit=meta["above"], got=value)
         if meta.get("below") is not None and not value < meta["below"]:
-            ctx.fail(f"must be less than {meta['below']:g}, got {value:g}")
+            ctx.fail(f"must be less than {meta['below']:g}, got {value:g}", Problem.NOT_BELOW,
+                     limit=meta["below"], got=value)
         if meta.get("minimum") is not None and value < meta["minimum"]:
             if meta["minimum"] == 0:
-                ctx.fail(f"must not be negative, got {value:g}")
-            ctx.fail(f"must be at least {meta['minimum']:g}, got {value:g}")
+                ctx.fail(f"must not be negative, got {value:g}", Problem.NEGATIVE, limit=0,
+                         got=value)
+            ctx.fail(f"must be at least {meta['minimum']:g}, got {value:g}",
+                     Problem.UNDER_MINIMUM, limit=meta["minimum"], got=value)
         if meta.get("maximum") is not None and value > meta["maximum"]:
-            ctx.fail(f"must be at most {meta['maximum']:g}, got {value:g}")
+            ctx.fail(f"must be at most {meta['maximum']:g}, got {value:g}", Problem.OVER_MAXIMUM,
+                     limit=meta["maximum"], got=value)
 
 
 _FIELDS: dict[type, dict[str, tuple[Any, typing.Mapping[str, Any], bool]]] = {}
@@ -142,34 +195,37 @@ def _convert(tp: Any, value: Any, ctx: _Context, meta: typing.Mapping[str, Any])
             raise TypeError(f"unsupported union {tp}")
         return _convert(args[0], value, ctx, meta)
     if value is None:
-        ctx.fail("must have a value")
+        ctx.fail("must have a value", Problem.MISSING)
     if isinstance(tp, type) and issubclass(tp, enum.Enum):
         choices = [m.value for m in tp]
         if isinstance(value, bool) or value not in choices:
-            ctx.fail(f"{_describe(value)} is not one of: {', '.join(str(c) for c in choices)}")
+            ctx.fail(f"{_describe(value)} is not one of: {', '.join(str(c) for c in choices)}",
+                     Problem.NOT_ONE_OF, got=value, choices=tuple(choices))
         return tp(value)
     if origin is Literal:
         allowed = typing.get_args(tp)
         if isinstance(value, bool) or value not in allowed:
             listed = ", ".join(str(c) for c in allowed)
-            ctx.fail(f"{_describe(value)} is not one of: {listed}")
+            ctx.fail(f"{_describe(value)} is not one of: {listed}", Problem.NOT_ONE_OF,
+                     got=value, choices=tuple(allowed))
         return value
     if origin is list:
         (item_type,) = typing.get_args(tp)
         if not isinstance(value, list):
-            ctx.fail(f"must be a list, got {_describe(value)}")
+            ctx.fail(f"must be a list, got {_describe(value)}", Problem.NOT_A_LIST, got=value)
         items = _items(item_type, value, ctx)
         _check_limits(items, meta, ctx)
         return items
     if origin is tuple:
         fields = typing.get_args(tp)
         if not isinstance(value, list):
-            ctx.fail(f"must be a list, got {_describe(value)}")
+            ctx.fail(f"must be a list, got {_describe(value)}", Problem.NOT_A_LIST, got=value)
         if len(fields) == 2 and fields[1] is Ellipsis:
             items = _items(fields[0], value, ctx)
         else:
             if len(value) != len(fields):
-                ctx.fail(f"must be a list of {len(fields)} values, got {len(value)}")
+                ctx.fail(f"must be a list of {len(fields)} values, got {len(value)}",
+                         Problem.WRONG_LENGTH, limit=len(fields), got=len(value))
             item_lines = getattr(value, "item_lines", [])
             items = [_convert(a, v, ctx.child(i, item_lines[i] if i < len(item_lines) else None),
                               {}) for i, (a, v) in enumerate(zip(fields, value, strict=True))]
@@ -180,15 +236,18 @@ def _convert(tp: Any, value: Any, ctx: _Context, meta: typing.Mapping[str, Any])
         if key_type is not str:
             raise TypeError(f"unsupported mapping {tp}")
         if not isinstance(value, dict):
-            ctx.fail(f"must be a mapping of names to values, got {_describe(value)}")
+            ctx.fail(f"must be a mapping of names to values, got {_describe(value)}",
+                     Problem.NOT_A_MAPPING, got=value)
         key_lines: dict[Any, int] = getattr(value, "key_lines", {})
         out: dict[str, Any] = {}
         for key, item in value.items():
             name = _name_of(key)
             if name is None or not name.strip():
-                ctx.fail(f"{_describe(key)} is not a name", line=key_lines.get(key))
+                ctx.fail(f"{_describe(key)} is not a name", Problem.NOT_A_NAME,
+                         line=key_lines.get(key), got=key)
             if name in out:
-                ctx.fail(f"'{name}' appears twice", line=key_lines.get(key))
+                ctx.fail(f"'{name}' appears twice", Problem.TWICE, line=key_lines.get(key),
+                         got=name)
             out[name] = _convert(item_type, item, ctx.child(name, key_lines.get(key)), {})
         _check_limits(out, meta, ctx)
         return out
@@ -199,28 +258,31 @@ def _convert(tp: Any, value: Any, ctx: _Context, meta: typing.Mapping[str, Any])
             return value.isoformat()
         text = _name_of(value)
         if text is None:
-            ctx.fail(f"must be text, got {_describe(value)}")
+            ctx.fail(f"must be text, got {_describe(value)}", Problem.NOT_TEXT, got=value)
         _check_limits(text.strip() if meta.get("nonempty") else text, meta, ctx)
         return text
     if tp is bool:
         if not isinstance(value, bool):
-            ctx.fail(f"must be true or false, got {_describe(value)}")
+            ctx.fail(f"must be true or false, got {_describe(value)}", Problem.NOT_YES_NO,
+                     got=value)
         return value
     if tp is int:
         if isinstance(value, bool) or not isinstance(value, int):
-            ctx.fail(f"must be a whole number, got {_describe(value)}")
+            ctx.fail(f"must be a whole number, got {_describe(value)}", Problem.NOT_WHOLE,
+                     got=value)
         _check_limits(value, meta, ctx)
         return value
     if tp is float:
         if isinstance(value, bool) or not isinstance(value, (int, float)):
-            ctx.fail(f"must be a number, got {_describe(value)}")
+            ctx.fail(f"must be a number, got {_describe(value)}", Problem.NOT_A_NUMBER,
+                     got=value)
         if not math.isfinite(value):
-            ctx.fail(f"must be a finite number, got {value}")
+            ctx.fail(f"must be a finite number, got {value}", Problem.NOT_FINITE, got=value)
         _check_limits(value, meta, ctx)
         if meta.get(_TURN_KEY):
             if not -360.0 <= value <= 360.0:
                 ctx.fail(f"must be within -360..360 degrees (from the reference mark, against "
-                         f"rotation), got {value:g}")
+                         f"rotation), got {value:g}", Problem.OUTSIDE_TURN, got=value)
             return wrap_deg(float(value))
         return float(value)
     if tp is Any:
@@ -257,7 +319,8 @@ def _line_of(value: Any, path: str, line: int) -> int:
 
 def _from_mapping(cls: type, value: Any, ctx: _Context) -> Any:
     if not isinstance(value, dict):
-        ctx.fail(f"must be a mapping of fields, got {_describe(value)}")
+        ctx.fail(f"must be a mapping of fields, got {_describe(value)}", Problem.NOT_A_MAPPING,
+                 got=value)
     own_line = getattr(value, "line", 0) or ctx.line
     key_lines: dict[Any, int] = getattr(value, "key_lines", {})
     fields = _field_table(cls)
@@ -265,12 +328,13 @@ def _from_mapping(cls: type, value: Any, ctx: _Context) -> Any:
         if key not in fields:
             known = ", ".join(fields)
             ctx.child(str(key), key_lines.get(key, own_line)).fail(
-                f"unknown field (known fields: {known})")
+                f"unknown field (known fields: {known})", Problem.UNKNOWN_FIELD)
     kwargs: dict[str, Any] = {}
     for name, (hint, meta, required) in fields.items():
         if name not in value:
             if required:
-                ctx.child(name, own_line).fail("missing field", line=ctx.line or own_line)
+                ctx.child(name, own_line).fail("missing field", Problem.MISSING,
+                                               line=ctx.line or own_line)
             continue
         kwargs[name] = _convert(hint, value[name], ctx.child(name, key_lines.get(name, own_line)),
                                 meta)
@@ -278,7 +342,8 @@ def _from_mapping(cls: type, value: Any, ctx: _Context) -> Any:
     checks = getattr(obj, "_checks", None)
     if checks is not None:
         for field_path, message in checks():
-            ctx.child(field_path, _line_of(value, field_path, own_line)).fail(message)
+            ctx.child(field_path, _line_of(value, field_path, own_line)).fail(
+                str(message), Problem.RULE, rule=message if isinstance(message, Rule) else None)
     return obj
 
 

@@ -12,7 +12,7 @@ from dataclasses import dataclass, field
 from typing import Literal
 
 from trueturn.angles import Rotation
-from trueturn.model.fields import limits
+from trueturn.model.fields import Rule, RuleCode, limits
 from trueturn.model.mass import OwnedParts
 from trueturn.model.rotor import Bearing, Pickup, Plane
 from trueturn.model.rotor import PlaneLayout as PlaneLayout  # the profile's planes use it
@@ -94,35 +94,55 @@ class MachineProfile:
     #: files of schema version 2 without it read as before (no migration)
     correction_parts: OwnedParts | None = None
 
-    def _checks(self) -> list[tuple[str, str]]:
-        problems: list[tuple[str, str]] = []
+    def _checks(self) -> list[tuple[str, str | Rule]]:
+        problems: list[tuple[str, str | Rule]] = []
         if self.bearings:
             if len(self.bearings) != 2:
-                problems.append(("bearings", "give exactly two bearings (or none)"))
+                problems.append(("bearings", Rule(RuleCode.TWO_OR_NONE,
+                                                  "give exactly two bearings (or none)")))
             elif self.bearings[0].axial_mm == self.bearings[1].axial_mm:
-                problems.append(("bearings", "the two bearings must be at different positions"))
+                problems.append(("bearings", Rule(
+                    RuleCode.MUST_DIFFER, "the two bearings must be at different positions",
+                    value=f"{self.bearings[0].axial_mm:g}")))
             elif self.bearings[0].name == self.bearings[1].name:
-                problems.append(("bearings", f"name {self.bearings[0].name!r} is used twice"))
-            elif any(p.axial_mm is None for p in self.planes):
-                problems.append(("planes", "with bearings, give each plane its axial_mm"))
-            elif len(self.planes) == 2 and self.planes[0].axial_mm == self.planes[1].axial_mm:
-                problems.append(("planes", "with bearings, the two planes need different "
-                                           "axial_mm"))
+                problems.append(("bearings", Rule(
+                    RuleCode.NAME_TWICE, f"name {self.bearings[0].name!r} is used twice",
+                    value=self.bearings[0].name)))
+            else:
+                missing = [i for i, p in enumerate(self.planes) if p.axial_mm is None]
+                if missing:
+                    problems.append((f"planes[{missing[0]}].axial_mm", Rule(
+                        RuleCode.NEEDED, "with bearings, give each plane its axial_mm",
+                        other="bearings")))
+                elif len(self.planes) == 2 and self.planes[0].axial_mm == self.planes[1].axial_mm:
+                    problems.append(("planes[1].axial_mm", Rule(
+                        RuleCode.MUST_DIFFER, "with bearings, the two planes need different "
+                        "axial_mm", other="planes[0].axial_mm",
+                        value=f"{self.planes[1].axial_mm:g}")))
         if self.speed_min_rpm > self.speed_max_rpm:
-            problems.append(("speed_min_rpm", "must not exceed speed_max_rpm"))
+            problems.append(("speed_min_rpm", Rule(RuleCode.NOT_MORE_THAN,
+                                                   "must not exceed speed_max_rpm",
+                                                   other="speed_max_rpm")))
         if self.speed_max_rpm > self.max_speed_rpm:
-            problems.append(("speed_max_rpm", "must not exceed max_speed_rpm"))
+            problems.append(("speed_max_rpm", Rule(RuleCode.NOT_MORE_THAN,
+                                                   "must not exceed max_speed_rpm",
+                                                   other="max_speed_rpm")))
         if len(self.planes) > 2:
-            problems.append(("planes", "at most two correction planes are supported"))
+            problems.append(("planes", Rule(RuleCode.AT_MOST_TWO, "at most two correction "
+                                            "planes are supported")))
         for what, names in (("planes", [p.name for p in self.planes]),
                             ("pickups", [p.name for p in self.pickups])):
-            duplicates = sorted({n for n in names if names.count(n) > 1})
+            duplicates = [i for i, n in enumerate(names) if n in names[:i]]
             if duplicates:
-                problems.append((what, f"name {duplicates[0]!r} is used twice"))
+                i = duplicates[0]
+                problems.append((f"{what}[{i}].name", Rule(
+                    RuleCode.NAME_TWICE, f"name {names[i]!r} is used twice", value=names[i])))
         plane_names = {p.name for p in self.planes}
         for i, pickup in enumerate(self.pickups):
             if pickup.near_plane is not None and pickup.near_plane not in plane_names:
-                problems.append((f"pickups[{i}]", f"near_plane {pickup.near_plane!r} is not a plane"))
+                problems.append((f"pickups[{i}].near_plane", Rule(
+                    RuleCode.UNKNOWN_NAME, f"near_plane {pickup.near_plane!r} is not a plane",
+                    other="planes", value=pickup.near_plane)))
         return problems
 
     def bearing_positions_mm(self) -> tuple[float, float] | None:

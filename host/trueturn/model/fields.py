@@ -3,6 +3,8 @@ checks every noun of the model the same way when it is read from a file."""
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+from enum import Enum
 from typing import Any
 
 
@@ -13,3 +15,30 @@ def limits(*, minimum: float | None = None, maximum: float | None = None,
     ``nonempty`` for text and lists."""
     return {"minimum": minimum, "maximum": maximum, "above": above, "below": below,
             "nonempty": nonempty}
+
+
+class RuleCode(str, Enum):
+    """Which rule across fields a value breaks (``_checks`` of a model dataclass)."""
+
+    NOT_MORE_THAN = "not-more-than"  # the field must not exceed ``other``
+    TWO_OR_NONE = "two-or-none"  # give exactly two entries, or none
+    MUST_DIFFER = "must-differ"  # the entries' positions must differ
+    NEEDED = "needed"  # the field must be given (because of ``other``)
+    AT_MOST_TWO = "at-most-two"  # at most two entries
+    NAME_TWICE = "name-twice"  # a name (``value``) is used twice
+    UNKNOWN_NAME = "unknown-name"  # ``value`` names nothing in ``other``
+
+
+@dataclass(frozen=True)
+class Rule:
+    """A broken rule across fields as data: ``code``, the field it is judged against
+    (``other``, a field path beside the one named) and the value in question. ``text`` is
+    the wording for a file (field keys); a screen words the code itself."""
+
+    code: RuleCode
+    text: str
+    other: str = ""
+    value: str = ""
+
+    def __str__(self) -> str:
+        return self.text

@@ -6,7 +6,7 @@ from dataclasses import dataclass, field
 from typing import Literal
 
 from trueturn.angles import Face, Rotation, seen_rotation, wrap_deg
-from trueturn.model.fields import limits
+from trueturn.model.fields import Rule, RuleCode, limits
 from trueturn.positions import equally_spaced_deg
 
 
@@ -24,11 +24,13 @@ class PlaneLayout:
     offset_deg: float = 0.0
     angles_deg: list[float] = field(default_factory=list)
 
-    def _checks(self) -> list[tuple[str, str]]:
+    def _checks(self) -> list[tuple[str, str | Rule]]:
         if self.kind == "equal" and self.positions is None:
-            return [("positions", "layout 'equal' needs the number of positions")]
+            return [("positions", Rule(RuleCode.NEEDED, "layout 'equal' needs the number of "
+                                       "positions", other="kind"))]
         if self.kind == "angles" and not self.angles_deg:
-            return [("angles_deg", "layout 'angles' needs at least one angle")]
+            return [("angles_deg", Rule(RuleCode.NEEDED, "layout 'angles' needs at least one "
+                                        "angle", other="kind"))]
         return []
 
     def position_angles_deg(self) -> tuple[float, ...]:

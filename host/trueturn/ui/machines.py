@@ -1,89 +1,355 @@
-"""Pick a saved machine profile, or create one with a short form (workspace ``machines/``).
+"""Pick a saved machine profile, create one, or edit one (workspace ``machines/``).
 
-The form asks only what the procedure needs; everything is checked by the jobs layer's own
-schema (one line naming the field), then saved atomically in the workspace.
+The form covers what the procedure and the pictures need: the rotor, its speeds and the
+direction it turns (seen from the front), each correction plane (radius, position along the
+shaft, the end it is worked from, its positions: any angle, a count with the angle of
+position 1, or a list of irregular angles; whether material may be removed; the largest mass
+it takes, which caps a trial), the bearings' positions, and each pickup's sensitivity and
+input filter corner. Editing starts from the saved profile and keeps what the form does not
+show (tach, units, notes, parts, ...).
+
+Nothing is checked here: the text is turned into the profile's data as it is (a word where a
+number belongs stays a word) and the one validator, :mod:`trueturn.schema`, judges it. Its
+coded answer (:class:`~trueturn.schema.SchemaError`: field path, problem, values, rule) is
+put into plain words naming the field as the form labels it (:func:`form_error_words`).
 """
 
 from __future__ import annotations
 
+import re
 from collections.abc import Callable
+from dataclasses import dataclass
+from typing import Any
 
+from rich.text import Text
 from textual.app import ComposeResult
 from textual.binding import Binding
-from textual.containers import Grid
+from textual.containers import Grid, VerticalScroll
 from textual.screen import ModalScreen
 from textual.widgets import Footer, Input, Label, OptionList, Static
 from textual.widgets.option_list import Option
 
 from trueturn.errors import UserError
 from trueturn.jobs.profiles import MachineProfile
-from trueturn.jobs.schema import from_data
+from trueturn.jobs.schema import from_data, to_data
 from trueturn.jobs.store import Workspace
+from trueturn.model.fields import RuleCode
+from trueturn.schema import Problem, SchemaError
 
 NEW = "__new__"
-
-# (field id, label, default) of the new-machine form.
-FORM: list[tuple[str, str, str]] = [
-    ("name", "Machine name", ""),
-    ("kind", "What it is (e.g. table saw arbor)", ""),
-    ("mass", "Rotor mass, kg", ""),
-    ("speed", "Service speed, rpm", ""),
-    ("max_speed", "Maximum safe speed, rpm", ""),
-    ("planes", "Correction planes (1 or 2)", "1"),
-    ("radius", "Weight radius, mm", ""),
-    ("positions", "Fixed positions per plane (0 = any angle)", "0"),
-    ("sensitivity", "Pickup sensitivity, mV/g", "300"),
-    ("mains", "Mains frequency, Hz (50 or 60)", "50"),
-    ("grade", "Target grade G, mm/s", "6.3"),
-]
+MAX_PLANES = 2
 
 
-def profile_from_form(values: dict[str, str], pickups: int) -> MachineProfile:
-    """Build and check a profile from the form's text fields (UserError naming the field)."""
-    def number(key: str) -> float:
-        text = values.get(key, "").strip()
-        try:
-            return float(text)
-        except ValueError:
-            label = next(lab for k, lab, _ in FORM if k == key)
-            raise UserError(f"{label}: '{text}' is not a number") from None
+@dataclass(frozen=True)
+class FormField:
+    """One line of the machine form: its id, the label the person reads, the default."""
 
-    planes = int(number("planes"))
-    if planes not in (1, 2):
-        raise UserError("Correction planes: 1 or 2")
-    positions = int(number("positions"))
-    layout = {"kind": "equal", "positions": positions} if positions > 0 else {"kind": "free"}
-    speed = number("speed")
-    data = {
-        "name": values.get("name", "").strip(), "rotor_kind": values.get("kind", "").strip(),
-        "rotor_mass_kg": number("mass"), "speed_min_rpm": speed, "speed_max_rpm": speed,
-        "max_speed_rpm": number("max_speed"), "rotation": "cw",
-        "planes": [{"name": f"plane {k + 1}", "radius_mm": number("radius"), "layout": layout}
-                   for k in range(planes)],
-        "pickups": [{"name": f"pickup {k + 1}", "sensitivity_mv_per_g": number("sensitivity")}
-                    for k in range(pickups)],
-        "mains_hz": int(number("mains")), "target_grade": number("grade"),
-    }
-    return from_data(MachineProfile, data, "new machine form")
+    key: str
+    label: str
+    default: str = ""
+
+
+def form_fields(pickups: int) -> list[FormField]:
+    """The form's fields, in order, for a board streaming ``pickups`` channels."""
+    fields = [
+        FormField("name", "Machine name"),
+        FormField("kind", "What it is (e.g. table saw arbor)"),
+        FormField("mass", "Rotor mass, kg"),
+        FormField("speed", "Service speed, rpm"),
+        FormField("speed_min", "Lowest service speed, rpm (blank: same)"),
+        FormField("max_speed", "Maximum safe speed, rpm"),
+        FormField("rotation", "Turns, seen from the front (cw or ccw)", "cw"),
+        FormField("bearings", "Bearings along the shaft, mm (two, or blank)"),
+    ]
+    for k in range(1, MAX_PLANES + 1):
+        p = f"Plane {k}"
+        fields += [
+            FormField(f"p{k}_name", f"{p}: name" + (" (blank: one plane)" if k > 1 else ""),
+                      "plane 1" if k == 1 else ""),
+            FormField(f"p{k}_radius", f"{p}: weight radius, mm"),
+            FormField(f"p{k}_axial", f"{p}: position along the shaft, mm"),
+            FormField(f"p{k}_face", f"{p}: worked from the front or back", "front"),
+            FormField(f"p{k}_positions", f"{p}: positions (0 any, 6, or 0,100,200)", "0"),
+            FormField(f"p{k}_offset", f"{p}: position 1 at, deg from the mark", "0"),
+            FormField(f"p{k}_removal", f"{p}: removing material allowed (yes/no)", "no"),
+            FormField(f"p{k}_limit", f"{p}: largest mass (trial limit), g"),
+        ]
+    for j in range(1, pickups + 1):
+        fields += [FormField(f"k{j}_sens", f"Pickup {j}: sensitivity, mV/g", "300"),
+                   FormField(f"k{j}_corner", f"Pickup {j}: input filter corner, Hz (or none)")]
+    fields += [FormField("mains", "Mains frequency, Hz (50 or 60)", "50"),
+               FormField("grade", "Target grade G, mm/s", "6.3")]
+    return fields
+
+
+# ---- text to data (no judging: that is the schema's) ---------------------------------------
+
+_NUMBER = re.compile(r"[+-]?(\d+\.?\d*|\.\d+)([eE][+-]?\d+)?")
+
+
+def _value(text: str) -> Any:
+    """A number where the text is one (a whole number as int), else the text itself, for
+    the schema to judge; blank: None."""
+    text = text.strip()
+    if not text:
+        return None
+    if _NUMBER.fullmatch(text):
+        number = float(text)
+        return int(number) if number.is_integer() and "." not in text and "e" not in \
+            text.lower() else number
+    return text
+
+
+def _values(text: str) -> list[Any]:
+    """A list typed as ``0, 100, 200`` (commas or spaces)."""
+    return [_value(t) for t in re.split(r"[,\s;]+", text.strip()) if t]
+
+
+def _yes_no(text: str) -> Any:
+    word = text.strip().lower()
+    if word in ("yes", "y", "true"):
+        return True
+    if word in ("no", "n", "false"):
+        return False
+    return text.strip()
+
+
+def _none_word(text: str) -> Any:
+    return None if text.strip().lower() in ("", "none", "no", "-") else _value(text)
+
+
+def _layout(positions: str, offset: str) -> dict[str, Any]:
+    items = _values(positions)
+    if len(items) > 1:
+        return {"kind": "angles", "angles_deg": items}
+    if not items or items[0] == 0:
+        return {"kind": "free"}
+    off = _value(offset)
+    return {"kind": "equal", "positions": items[0],
+            **({"offset_deg": off} if off is not None else {})}
+
+
+def _set(data: dict[str, Any], key: str, value: Any) -> None:
+    """Put ``value`` at ``key``; None removes it (the field's default, or 'missing')."""
+    if value is None:
+        data.pop(key, None)
+    else:
+        data[key] = value
+
+
+def form_data(values: dict[str, str], pickups: int,
+              base: MachineProfile | None = None) -> tuple[dict[str, Any], dict[str, str]]:
+    """The profile's data from the form's text, on top of ``base`` (editing), and which form
+    field each data path came from (``{"planes[0].radius_mm": "p1_radius", ...}``)."""
+    data: dict[str, Any] = to_data(base) if base is not None else {}
+    source: dict[str, str] = {}
+
+    def put(target: dict[str, Any], key: str, path: str, field_key: str, value: Any) -> None:
+        _set(target, key, value)
+        source[path] = field_key
+
+    put(data, "name", "name", "name", values.get("name", "").strip() or None)
+    put(data, "rotor_kind", "rotor_kind", "kind", values.get("kind", "").strip() or None)
+    put(data, "rotor_mass_kg", "rotor_mass_kg", "mass", _value(values.get("mass", "")))
+    speed = _value(values.get("speed", ""))
+    put(data, "speed_max_rpm", "speed_max_rpm", "speed", speed)
+    low = _value(values.get("speed_min", ""))
+    put(data, "speed_min_rpm", "speed_min_rpm", "speed_min", speed if low is None else low)
+    put(data, "max_speed_rpm", "max_speed_rpm", "max_speed", _value(values.get("max_speed", "")))
+    put(data, "rotation", "rotation", "rotation", values.get("rotation", "").strip() or None)
+    old_bearings = data.get("bearings") or []
+    bearings = [{"name": (old_bearings[i]["name"] if i < len(old_bearings) and
+                          len(old_bearings) == 2 else f"bearing {i + 1}"), "axial_mm": v}
+                for i, v in enumerate(_values(values.get("bearings", "")))]
+    put(data, "bearings", "bearings", "bearings", bearings)
+    old_planes = data.get("planes") or []
+    planes: list[dict[str, Any]] = []
+    for k in range(1, MAX_PLANES + 1):
+        name = values.get(f"p{k}_name", "").strip()
+        if k > 1 and not name:
+            break
+        i = len(planes)
+        plane: dict[str, Any] = dict(old_planes[i]) if i < len(old_planes) else {}
+        at = f"planes[{i}]"
+        put(plane, "name", f"{at}.name", f"p{k}_name", name or None)
+        put(plane, "radius_mm", f"{at}.radius_mm", f"p{k}_radius",
+            _value(values.get(f"p{k}_radius", "")))
+        put(plane, "axial_mm", f"{at}.axial_mm", f"p{k}_axial",
+            _value(values.get(f"p{k}_axial", "")))
+        put(plane, "face", f"{at}.face", f"p{k}_face",
+            values.get(f"p{k}_face", "").strip().lower() or None)
+        put(plane, "layout", f"{at}.layout", f"p{k}_positions",
+            _layout(values.get(f"p{k}_positions", ""), values.get(f"p{k}_offset", "")))
+        source[f"{at}.layout.offset_deg"] = f"p{k}_offset"
+        put(plane, "removal_allowed", f"{at}.removal_allowed", f"p{k}_removal",
+            _yes_no(values.get(f"p{k}_removal", "")))
+        put(plane, "max_mass_g", f"{at}.max_mass_g", f"p{k}_limit",
+            _value(values.get(f"p{k}_limit", "")))
+        planes.append(plane)
+    put(data, "planes", "planes", "p1_name", planes)
+    old_pickups = data.get("pickups") or []
+    out_pickups: list[dict[str, Any]] = []
+    for j in range(pickups):
+        pickup: dict[str, Any] = (dict(old_pickups[j]) if j < len(old_pickups)
+                                  else {"name": f"pickup {j + 1}"})
+        at = f"pickups[{j}]"
+        put(pickup, "sensitivity_mv_per_g", f"{at}.sensitivity_mv_per_g", f"k{j + 1}_sens",
+            _value(values.get(f"k{j + 1}_sens", "")))
+        put(pickup, "lowpass_corner_hz", f"{at}.lowpass_corner_hz", f"k{j + 1}_corner",
+            _none_word(values.get(f"k{j + 1}_corner", "")))
+        source[at] = f"k{j + 1}_sens"
+        out_pickups.append(pickup)
+    put(data, "pickups", "pickups", "k1_sens" if pickups else "name", out_pickups)
+    put(data, "mains_hz", "mains_hz", "mains", _value(values.get("mains", "")))
+    put(data, "target_grade", "target_grade", "grade", _value(values.get("grade", "")))
+    return data, source
+
+
+def form_values(profile: MachineProfile, pickups: int) -> dict[str, str]:
+    """The form's text for a saved profile (to edit it)."""
+    def num(value: float | None) -> str:
+        return "" if value is None else f"{value:g}"
+
+    values = {f.key: f.default for f in form_fields(pickups)}
+    values.update(name=profile.name, kind=profile.rotor_kind, mass=num(profile.rotor_mass_kg),
+                  speed=num(profile.speed_max_rpm), max_speed=num(profile.max_speed_rpm),
+                  speed_min="" if profile.speed_min_rpm == profile.speed_max_rpm else
+                  num(profile.speed_min_rpm), rotation=profile.rotation,
+                  bearings=", ".join(num(b.axial_mm) for b in profile.bearings),
+                  mains=str(profile.mains_hz), grade=num(profile.target_grade))
+    for k, plane in enumerate(profile.planes[:MAX_PLANES], start=1):
+        lay = plane.layout
+        positions = ("0" if lay.kind == "free" else str(lay.positions) if lay.kind == "equal"
+                     else ", ".join(num(a) for a in lay.angles_deg))
+        values.update({f"p{k}_name": plane.name, f"p{k}_radius": num(plane.radius_mm),
+                       f"p{k}_axial": num(plane.axial_mm), f"p{k}_face": plane.face,
+                       f"p{k}_positions": positions, f"p{k}_offset": num(lay.offset_deg),
+                       f"p{k}_removal": "yes" if plane.removal_allowed else "no",
+                       f"p{k}_limit": num(plane.max_mass_g)})
+    for j, pickup in enumerate(profile.pickups[:pickups], start=1):
+        values[f"k{j}_sens"] = num(pickup.sensitivity_mv_per_g)
+        values[f"k{j}_corner"] = ("none" if pickup.lowpass_corner_hz is None
+                                  else num(pickup.lowpass_corner_hz))
+    return values
+
+
+# ---- the schema's coded answer in the form's words -----------------------------------------
+
+class FormError(UserError):
+    """A mistake in the form: ``field`` (the form field's key) and the words to show."""
+
+    def __init__(self, field: str, words: str) -> None:
+        super().__init__(words)
+        self.field = field
+
+
+def field_of(path: str, source: dict[str, str]) -> str | None:
+    """The form field a data path came from: the path itself or its nearest parent."""
+    while path:
+        if path in source:
+            return source[path]
+        path = re.sub(r"(\.[^.\[\]]+|\[\d+\])$", "", path)
+    return None
+
+
+def _n(value: Any) -> str:
+    return f"{value:g}" if isinstance(value, (int, float)) and not isinstance(value, bool) \
+        else f"'{value}'"
+
+
+def form_error_words(exc: SchemaError, label: Callable[[str], str]) -> str:
+    """The validator's coded error in plain words; ``label(path)``: how the form names the
+    field a data path came from."""
+    name = label(exc.path)
+    got, limit = exc.values.get("got"), exc.values.get("limit")
+    problem = exc.problem
+    if problem in (Problem.MISSING, Problem.EMPTY):
+        return f"{name}: please fill this in."
+    if problem in (Problem.NOT_A_NUMBER, Problem.NOT_FINITE):
+        return f"{name}: {_n(got)} is not a number."
+    if problem is Problem.NOT_WHOLE:
+        return f"{name}: give a whole number ({_n(got)} is not one)."
+    if problem is Problem.NOT_YES_NO:
+        return f"{name}: answer yes or no."
+    if problem is Problem.NOT_ONE_OF:
+        choices = " or ".join(str(c) for c in exc.values.get("choices", ()))
+        return f"{name}: write {choices}, not {_n(got)}."
+    if problem is Problem.NOT_ABOVE:
+        return f"{name}: must be more than {_n(limit)} (you gave {_n(got)})."
+    if problem is Problem.NOT_BELOW:
+        return f"{name}: must be less than {_n(limit)} (you gave {_n(got)})."
+    if problem is Problem.UNDER_MINIMUM:
+        return f"{name}: must be at least {_n(limit)} (you gave {_n(got)})."
+    if problem is Problem.NEGATIVE:
+        return f"{name}: must not be negative (you gave {_n(got)})."
+    if problem is Problem.OVER_MAXIMUM:
+        return f"{name}: must be at most {_n(limit)} (you gave {_n(got)})."
+    if problem is Problem.OUTSIDE_TURN:
+        return f"{name}: give angles within one turn, -360 to 360 (you gave {_n(got)})."
+    rule = exc.rule
+    if rule is not None:
+        other = label(rule.other) if rule.other else ""
+        match rule.code:
+            case RuleCode.NOT_MORE_THAN:
+                return f"{name} must not be more than {other}."
+            case RuleCode.TWO_OR_NONE:
+                return f"{name}: give two positions, or leave it blank."
+            case RuleCode.MUST_DIFFER:
+                return (f"{name}: must differ from {other} (both {rule.value})." if other
+                        else f"{name}: the two must be at different places (both {rule.value}).")
+            case RuleCode.NEEDED:
+                return f"{name}: please fill this in ({other} needs it)."
+            case RuleCode.AT_MOST_TWO:
+                return f"{name}: at most two planes."
+            case RuleCode.NAME_TWICE:
+                return f"{name}: the name '{rule.value}' is used twice."
+            case RuleCode.UNKNOWN_NAME:
+                return f"{name}: '{rule.value}' is not one of the planes."
+    return f"{name}: {exc.detail}"
+
+
+def profile_from_form(values: dict[str, str], pickups: int,
+                      base: MachineProfile | None = None) -> MachineProfile:
+    """Build the profile from the form's text through the one validator; a mistake is a
+    :class:`FormError` naming the form field in plain words."""
+    data, source = form_data(values, pickups, base)
+    labels = {f.key: f.label for f in form_fields(pickups)}
+
+    def label(path: str) -> str:
+        key = field_of(path, source)
+        return labels[key] if key in labels else path
+
+    try:
+        return from_data(MachineProfile, data, "machine form")
+    except SchemaError as exc:
+        key = field_of(exc.path, source) or "name"
+        raise FormError(key, form_error_words(exc, label)) from None
 
 
 class MachineForm(ModalScreen[MachineProfile | None]):
-    """A one-screen form for a new machine."""
+    """The machine form: a new machine, or ``editing`` a saved one (it scrolls at 80x24)."""
 
     BINDINGS = [Binding("escape", "cancel", "Cancel"), Binding("ctrl+s", "save", "Save")]
 
-    def __init__(self, workspace: Workspace, pickups: int) -> None:
+    def __init__(self, workspace: Workspace, pickups: int,
+                 editing: MachineProfile | None = None) -> None:
         super().__init__(id="machine-form")
         self.workspace = workspace
         self.pickups = pickups
+        self.editing = editing
+        self.fields = form_fields(pickups)
 
     def compose(self) -> ComposeResult:
-        yield Static("[b]New machine[/b]  (Tab: next field, Ctrl+S or Enter on the last: "
-                     "save, Escape: cancel)", classes="form-title")
-        with Grid(classes="form"):
-            for key, label, default in FORM:
-                yield Label(label)
-                yield Input(value=default, id=f"f-{key}")
+        what = (Text.assemble(("Edit machine ", "bold"), (self.editing.name, "bold"))
+                if self.editing is not None else Text("New machine", "bold"))
+        what.append("  (Tab: next field, Ctrl+S: save, Escape: cancel)")
+        yield Static(what, classes="form-title")
+        values = (form_values(self.editing, self.pickups) if self.editing is not None
+                  else {f.key: f.default for f in self.fields})
+        with VerticalScroll(id="form-scroll"), Grid(classes="form"):
+            for f in self.fields:
+                yield Label(f.label)
+                yield Input(value=values[f.key], id=f"f-{f.key}")
         yield Static("", id="form-msg")
         yield Footer()
 
@@ -94,13 +360,32 @@ class MachineForm(ModalScreen[MachineProfile | None]):
         else:
             self.focus_next()
 
+    def values(self) -> dict[str, str]:
+        return {f.key: self.query_one(f"#f-{f.key}", Input).value for f in self.fields}
+
     def action_save(self) -> None:
-        values = {key: self.query_one(f"#f-{key}", Input).value for key, _, _ in FORM}
+        message = self.query_one("#form-msg", Static)
         try:
-            profile = profile_from_form(values, self.pickups)
+            profile = profile_from_form(self.values(), self.pickups, self.editing)
+        except FormError as exc:
+            message.update(Text(str(exc), "bold red"))  # words from the person: not markup
+            self.query_one(f"#f-{exc.field}", Input).focus()
+            return
+        try:
+            path = self.workspace.machine_path(profile.name)
+            mine = (self.editing is not None
+                    and path == self.workspace.machine_path(self.editing.name))
+            if path.exists() and not mine:
+                raise FormError("name", f"Machine name: a machine called '{profile.name}' is "
+                                "saved already; pick it and press e to edit it, or give "
+                                "another name.")
             self.workspace.save_machine(profile)
+        except FormError as exc:
+            message.update(Text(str(exc), "bold red"))
+            self.query_one("#f-name", Input).focus()
+            return
         except (UserError, OSError) as exc:
-            self.query_one("#form-msg", Static).update(f"[b red]{exc}[/]")
+            message.update(Text(str(exc), "bold red"))
             return
         self.dismiss(profile)
 
@@ -111,7 +396,8 @@ class MachineForm(ModalScreen[MachineProfile | None]):
 class MachinePicker(ModalScreen[MachineProfile | None]):
     """The saved machines with as many pickups as the board streams, and 'new machine'."""
 
-    BINDINGS = [Binding("escape", "cancel", "Cancel"), Binding("n", "new", "New machine")]
+    BINDINGS = [Binding("escape", "cancel", "Cancel"), Binding("n", "new", "New machine"),
+                Binding("e", "edit", "Edit machine")]
 
     def __init__(self, workspace: Workspace, pickups: int, current: MachineProfile) -> None:
         super().__init__(id="machine-picker")
@@ -121,7 +407,8 @@ class MachinePicker(ModalScreen[MachineProfile | None]):
         self.note = ""
 
     def compose(self) -> ComposeResult:
-        yield Static("[b]Machine[/b]  (Enter: use it, n: new machine, Escape: back)",
+        yield Static("[b]Machine[/b]  (Enter: use it, e: edit it, n: new machine, Escape: "
+                     "back)",
                      classes="form-title")
         options = [Option(f"{self.current.name}  (now)", id=f"now:{self.current.name}")]
         try:
@@ -160,6 +447,31 @@ class MachinePicker(ModalScreen[MachineProfile | None]):
     def action_new(self) -> None:
         done: Callable[[MachineProfile | None], None] = self._created
         self.app.push_screen(MachineForm(self.workspace, self.pickups), done)
+
+    def action_edit(self) -> None:
+        """e: edit the machine highlighted (the one in use, or a saved one)."""
+        listing = self.query_one("#machine-list", OptionList)
+        index = listing.highlighted
+        option_id = (listing.get_option_at_index(index).id or "") if index is not None else ""
+        note = self.query_one("#picker-msg", Static)
+        if option_id.startswith("now:"):
+            profile = self.current
+        elif option_id.startswith("saved:"):
+            try:
+                profile = self.workspace.load_machine(option_id.split(":", 1)[1])
+            except UserError as exc:
+                note.update(Text(str(exc), "bold red"))
+                return
+        else:
+            note.update("Highlight a machine to edit (n: a new one).")
+            return
+        if len(profile.pickups) != self.pickups:
+            note.update(Text(f"{profile.name} has {len(profile.pickups)} pickup(s); the board "
+                             f"streams {self.pickups}: edit its file, or restart with trueturn "
+                             "ui --machine", "bold red"))
+            return
+        done: Callable[[MachineProfile | None], None] = self._created
+        self.app.push_screen(MachineForm(self.workspace, self.pickups, profile), done)
 
     def _created(self, profile: MachineProfile | None) -> None:
         if profile is not None:

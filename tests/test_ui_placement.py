@@ -325,3 +325,18 @@ def test_the_report_draws_a_back_plane_mirrored_like_its_ring() -> None:
     for part, x in zip(parts, front, strict=True):
         want_x, _ = expected_xy(part.angle_deg, clockwise_as_seen=clockwise)
         assert (x > 0) == (want_x > 0) or abs(want_x) < 0.05
+
+
+def test_the_ring_of_a_plane_with_irregular_positions_marks_each_one(tmp_path: Path) -> None:
+    rig = Rig("jointer-head", Mode.TWO_PLANE)
+    angles = [0.0, 40.0, 95.0, 180.0, 270.0]  # invented bolt circle
+    plane = dataclasses.replace(rig.profile.planes[1],
+                                layout=PlaneLayout("angles", angles_deg=angles))
+    out = tmp_path / "ring.svg"
+    code, _, err = run_cli([*ring_arguments(rig.profile, plane)[:-1], str(out)])
+    assert code == 0, err
+    root = ET.fromstring(out.read_text(encoding="utf-8"))
+    marks = {int(li.get("data-position", "0")): float(li.get("data-angle-deg", "nan"))
+             for li in root.iter(f"{SVG}line") if li.get("class") == "position-mark"}
+    assert marks == {n: a for n, a in enumerate(angles, start=1)}
+    assert root.get("data-rotation") == "ccw"  # the back face of a cw machine

@@ -246,8 +246,8 @@ def ring_arguments(profile: MachineProfile, plane: Plane) -> list[str]:
     angles = plane.position_angles_deg
     if plane.layout.kind == "equal" and angles:
         where = ["--positions", str(len(angles)), "--first-deg", f"{angles[0]:g}"]
-    elif angles:  # irregular: the ring marks position 1; the others by their degrees
-        where = ["--positions", "1", "--first-deg", f"{angles[0]:g}"]
+    elif angles:  # irregular: each position at its angle, position 1 first
+        where = ["--angles", ",".join(f"{a:g}" for a in angles)]
     else:  # any angle: the degree scale is what counts
         where = ["--positions", "1"]
     safe = "".join(ch if ch.isalnum() else "-" for ch in f"{profile.name}-{plane.name}")
@@ -271,10 +271,6 @@ def marking_markup(profile: MachineProfile, planes: Sequence[Plane]) -> str:
         lines.append(f"[b]{_escape(plane.name)}[/b]: seen from the {side}, the rotor turns "
                      f"{ARROW[seen]} {seen}.")
         lines.append("  trueturn " + _escape(shlex.join(ring_arguments(profile, plane))))
-        if plane.layout.kind == "angles":
-            listed = ", ".join(f"{n} at {degrees_text(a)}" for n, a in
-                               enumerate(plane.position_angles_deg, start=1))
-            lines.append(f"  Irregular positions: {_escape(listed)} (by the ring's degrees).")
     faces = {p.face for p in planes}
     lines += ["", "[b]Carrying the 0\u00b0 mark[/b]: 0\u00b0 is the reference mark the tach "
               "sees. On every plane 0\u00b0 lies on the same line along the rotor: lay a "

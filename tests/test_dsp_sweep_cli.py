@@ -160,3 +160,27 @@ def test_runup_gives_a_sweep(tmp_path: Path) -> None:
     model = load_scenario("bench-grinder").rotor.critical_speeds_rpm()
     for r in data["resonances"]:
         assert min(abs(r["speed_rpm"] / m - 1) for m in model) <= 0.1, r
+
+
+def test_plot_writes_bode_and_polar_svg(tmp_path: Path) -> None:
+    import xml.etree.ElementTree as ET
+    capture = _record(tmp_path, "bench-grinder", "coastdown", "cd")
+    svg = tmp_path / "sweep.svg"
+    code, out, err = run_cli(["analyze", str(capture), "--sweep", "--json", "--plot", str(svg)])
+    assert code == 0, err
+    data = json.loads(out)
+    root = ET.parse(svg).getroot()  # well-formed XML
+    ns = "{http://www.w3.org/2000/svg}"
+    dots = [c for c in root.iter(f"{ns}circle") if c.get("class") in ("point", "noise")]
+    # every point of every pickup in three panels (amplitude, phase, polar)
+    assert len(dots) == 3 * sum(len(p["pickups"]) for p in data["sweep"])
+    width, height = float(root.get("width")), float(root.get("height"))
+    assert all(0 <= float(c.get("cx")) <= width and 0 <= float(c.get("cy")) <= height
+               for c in dots)
+    labels = [t.text for t in root.iter(f"{ns}text") if t.get("class") == "resonance"]
+    assert len(labels) == len(data["resonances"]) and all("rpm" in t for t in labels)
+    # user mistakes: one line, non-zero, nothing written
+    code, _, err = run_cli(["analyze", str(capture), "--plot", str(tmp_path / "x.svg")])
+    assert code != 0 and "give --sweep too" in err and not (tmp_path / "x.svg").exists()
+    code, _, err = run_cli(["analyze", str(capture), "--sweep", "--plot", str(tmp_path)])
+    assert code != 0 and err.count("\n") <= 1

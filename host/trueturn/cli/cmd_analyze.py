@@ -5,6 +5,7 @@ from __future__ import annotations
 import argparse
 import dataclasses
 import math
+from pathlib import Path
 from typing import Any
 
 from trueturn.cli.common import open_capture, print_json
@@ -13,6 +14,8 @@ from trueturn.dsp.findings import Code, Finding, describe
 from trueturn.dsp.spectrum import SpectrumPeak
 from trueturn.dsp.units import UNITS, PickupProfile, pickup_profile
 from trueturn.errors import UserError, one_line
+from trueturn.files import atomic_write_text, check_output
+from trueturn.jobs.sweep_plot import sweep_svg
 from trueturn.link.catalogue import load_catalogue
 from trueturn.link.codec import LinkEvent, Message
 
@@ -53,6 +56,9 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                         help="a coast-down or run-up: the 1x against speed per pickup, the "
                              "support resonances with their damping (half-power bandwidth) "
                              "and the response slope at the balancing speed")
+    parser.add_argument("--plot", metavar="FILE.svg",
+                        help="with --sweep: write the Bode (amplitude and phase against speed) "
+                             "and polar plots of the sweep to this SVG file")
     parser.add_argument("--machine", metavar="NAME",
                         help="take the pickups (names, sensitivity, zero-g output, RC low-pass "
                              "corner) from this machine profile instead of the capture's "
@@ -138,6 +144,11 @@ def run(args: argparse.Namespace) -> int:
         raise UserError("--revs must be at least 2")
     if args.revs is not None and args.revs > ALL_REVS:  # the window held in memory
         raise UserError(f"--revs must be at most {ALL_REVS} (the most one analysis averages)")
+    plot_path = None
+    if args.plot is not None:
+        if not args.sweep:
+            raise UserError("--plot draws a sweep: give --sweep too")
+        plot_path = check_output(args.plot)  # before the work: the one output rule
     with open_capture(args.capture) as reader:
         metadata = reader.metadata
         mains = args.mains_hz
@@ -161,6 +172,13 @@ def run(args: argparse.Namespace) -> int:
     if not result.readings:
         why = result.warnings[0] if result.warnings else "no samples and tach edges found"
         raise UserError(f"{one_line(args.capture)}: no 1x reading could be made ({why})")
+    if plot_path is not None and result.sweep is not None:
+        try:
+            atomic_write_text(plot_path, sweep_svg(result.sweep, f"1x against speed, "
+                                                   f"{Path(args.capture).name}"))
+        except OSError as exc:
+            raise UserError(f"cannot write {one_line(plot_path)}: "
+                            f"{exc.strerror or exc}") from None
     if args.json:
         print_json(result.to_json())
     else:

@@ -238,7 +238,7 @@ class TachTracker:
 
         References
         ----------
-        .. [1] Double and missed edges by the period ratio against the median of recent periods
+        .. [1] Double and missed edges by the period ratio against the predicted period
            (0.7 and 1.5): common practice, no source.
         """
         self._periods.clear()
@@ -271,7 +271,7 @@ class TachTracker:
 
         References
         ----------
-        .. [1] Double and missed edges by the period ratio against the median of recent periods
+        .. [1] Double and missed edges by the period ratio against the predicted period
            (0.7 and 1.5): common practice, no source.
         .. [2] Theil-Sen line for the predicted period (median of pairwise slopes; H. Theil 1950,
            P. K. Sen 1968, from memory); the time line moved halfway by each good edge (an alpha

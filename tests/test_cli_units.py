@@ -118,3 +118,33 @@ def test_help_never_shows_a_doubled_percent(command):
     # argparse formats help= strings with %, but a description only when it holds %(prog)
     code, out, _ = run_cli([command, "--help"])
     assert code == 0 and "%%" not in out
+
+
+ONE_TRIAL_LEFT_ON = """
+planes: [{name: rotor, radius_mm: 75}]
+sensors: [{name: motor}]
+runs:
+  - label: as found
+    added: []
+    readings: {motor: {amp: 4.0, phase_deg: 30}}
+  - label: trial
+    added: [{plane: rotor, mass_g: 5, angle_deg: 0}]
+    readings: {motor: {amp: 6.0, phase_deg: 80}}
+"""
+
+
+def test_solve_says_the_trial_was_left_on_and_an_exact_fit_predicts_zero(tmp_path):
+    # one plane, one pickup, one trial: two readings, one unknown coefficient and one
+    # correction - the fit is exact, so the predicted 1x is 0 (influence-coefficient method,
+    # any balancing text); the trial is on the rotor in the last run: left on
+    path = tmp_path / "readings.yaml"
+    path.write_text(ONE_TRIAL_LEFT_ON, encoding="utf-8")
+    code, out, err = run_cli(["solve", str(path)])
+    assert code == 0, err
+    assert "(trial masses between runs: left on)" in out
+    predicted = out.split("Predicted 1x after the correction:")[1].splitlines()[1]
+    assert predicted.split() == ["motor", "0", "(numerically", "zero)"]
+    assert "e-1" not in out
+    data = json.loads(run_cli(["solve", str(path), "--json"])[1])
+    assert data["trial_masses"] == "left on"
+    assert data["predicted_residual"]["motor"] == {"amp": 0.0, "phase_deg": None}

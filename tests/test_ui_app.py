@@ -199,7 +199,9 @@ async def follow_the_screens(app: TrueturnApp, pilot: Pilot, mode_key: str) -> i
             assert "Do the work now" in screen_text(app)
             await key("space", "space", "space", "space", "enter")
         elif step.kind == "run" and step.phase == "arming":
-            assert " N outward" in screen_text(app) or "none added" in screen_text(app)
+            # forces in the machine's unit: N, or lbf for an imperial profile
+            assert " N outward" in screen_text(app) or " lbf outward" in screen_text(app) \
+                or "none added" in screen_text(app)
             runs = len(proc.runs)
             await key("enter")
             await wait_for(pilot, lambda n=runs: len(proc.runs) > n)

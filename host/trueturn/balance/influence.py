@@ -212,7 +212,9 @@ def trial_handling(runs: Sequence[Run]) -> str:
     Returns
     -------
     str
-        ``'removed'``, ``'left on'``, ``'mixed'`` or ``'none'``.
+        ``'removed'``, ``'left on'``, ``'mixed'`` or ``'none'`` (no trial mass was ever on
+        the rotor). A trial still on the rotor in the last run counts as left on, even when
+        it is the only one (as found, then one trial run).
 
     References
     ----------
@@ -234,7 +236,9 @@ def trial_handling(runs: Sequence[Run]) -> str:
         elif not kept:
             seen.add("removed")
     if not seen:
-        return "none"
+        # one trial run and its mass still on in the last run: left on (this used to read
+        # 'none', as only changes between two runs with masses were counted)
+        return "left on" if runs and len(runs[-1].masses) > 0 else "none"
     return seen.pop() if len(seen) == 1 else "mixed"
 
 

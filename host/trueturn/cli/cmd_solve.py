@@ -60,7 +60,24 @@ def _correction_json(c: Correction) -> dict[str, Any]:
     return out
 
 
-def _phasor_json(value: complex, has_phase: bool) -> dict[str, Any]:
+#: A predicted 1x below this fraction of the largest as-found 1x is rounding noise of the
+#: least-squares solve (float64 resolves about 1e-16 of the inputs): it is shown as 0,
+#: without a phase (an exact fit, as many unknowns as readings, predicts exactly 0).
+NUMERICALLY_ZERO_FRACTION = 1e-9
+
+
+def _negligible(value: complex, scale: float) -> bool:
+    return abs(value) <= NUMERICALLY_ZERO_FRACTION * scale
+
+
+def _scale(report: SolveReport) -> float:
+    """The largest as-found 1x: what a predicted 1x is compared with."""
+    return max((abs(v) for v in (report.solution.as_found or {}).values()), default=0.0)
+
+
+def _phasor_json(value: complex, has_phase: bool, scale: float = 0.0) -> dict[str, Any]:
+    if _negligible(value, scale):
+        return {"amp": 0.0, "phase_deg": None}
     amp, phase = amplitude_phase(value)
     return {"amp": _r(amp, 6), "phase_deg": _r(phase, 2) if has_phase else None}
 
@@ -71,7 +88,8 @@ def report_json(report: SolveReport, has_phase: bool) -> dict[str, Any]:
     out: dict[str, Any] = {
         "method": s.method,
         "corrections": [_correction_json(c) for c in s.corrections],
-        "predicted_residual": {k: _phasor_json(v, has_phase) for k, v in s.predicted_residual.items()},
+        "predicted_residual": {k: _phasor_json(v, has_phase, _scale(report))
+                               for k, v in s.predicted_residual.items()},
         "condition_number": _r(s.condition_number, 3),
         "warnings": list(s.warnings) + speed_warnings(report) + size_warnings(report),
         "trial_masses": s.trial_masses,
@@ -257,6 +275,9 @@ def report_text(report: SolveReport, has_phase: bool) -> str:
     else:
         lines += ["", "Predicted 1x after the correction:"]
         for key, value in s.predicted_residual.items():
+            if _negligible(value, _scale(report)):
+                lines.append(f"  {key:<14} {0:10g}   (numerically zero)")
+                continue
             amp, phase = amplitude_phase(value)
             lines.append(f"  {key:<14} {amp:10.4g}" + (f" at {phase:6.1f}°" if has_phase else ""))
     if s.condition_number is not None:

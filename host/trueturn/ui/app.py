@@ -138,7 +138,7 @@ class ConnectScreen(Screen):
     """Open the port, show who answered, refuse a mismatched firmware."""
 
     BINDINGS = [Binding("enter", "go", "Continue"), Binding("q", "app.quit", "Quit"),
-                Binding("c", "app.cautions", "Cautions")]
+                Binding("c", "app.cautions", "Cautions"), Binding("r", "retry", "Try again")]
 
     def compose(self) -> ComposeResult:
         yield Static("", id="connect-body")
@@ -147,7 +147,17 @@ class ConnectScreen(Screen):
     def on_mount(self) -> None:
         app = self.trueturn
         self.ok = False
+        self.refused = False  # the port could not be used: r tries again
         self.query_one("#connect-body", Static).update(f"Opening {app.config.url} …")
+        self.open_link()
+
+    def action_retry(self) -> None:
+        """r after a refusal: open the port again (a board plugged in late, a port freed)."""
+        if not self.refused:
+            return
+        self.refused = False
+        self.query_one("#connect-body", Static).update(Content.assemble(
+            f"Opening {self.trueturn.config.url} … ", texts.CONNECT_TRYING))
         self.open_link()
 
     @property
@@ -172,9 +182,10 @@ class ConnectScreen(Screen):
 
     @on(LinkRefused)
     def show_problem(self, event: LinkRefused) -> None:
+        self.refused = True
         self.query_one("#connect-body", Static).update(Content.assemble(  # text, not markup
             (f"Cannot use {self.trueturn.config.url}", "bold red"),
-            f"\n\n{event.text}\n\nPress q to quit."))
+            f"\n\n{event.text}\n\n{texts.CONNECT_RETRY}"))
 
     @on(BoardAnswered)
     def show_identity(self) -> None:
@@ -217,8 +228,7 @@ class BenchScreen(Screen):
         Binding("s", "view('spectrum-view')", "Spectrum"),
         Binding("g", "view('guide-view')", "Guide"),
         Binding("enter", "confirm", "Confirm"),
-        Binding("1", "choose(1)", show=False), Binding("2", "choose(2)", show=False),
-        Binding("3", "choose(3)", show=False), Binding("4", "choose(4)", show=False),
+        *(Binding(key, f"choose({key})", show=False) for key in texts.MODE_KEYS),
         Binding("space", "tick", "Tick", show=False),
         Binding("backspace", "untick", "Untick", show=False),
         Binding("a", "abort", "Stop run", show=False),
@@ -555,8 +565,7 @@ class TrueturnApp(App):
     def choose_item(self, item: int) -> None:
         """1-4 choose the procedure (only while none is chosen: they never tick a list)."""
         if self.procedure is None:
-            mode = {1: Mode.ONE_PLANE, 2: Mode.TWO_PLANE, 3: Mode.AMPLITUDE_ONLY,
-                    4: Mode.SAVED_TRIM}.get(item)
+            mode = texts.MODE_KEYS.get(str(item))
             if mode is not None:
                 self.choose_mode(mode)
         self.tick()
@@ -642,8 +651,9 @@ class TrueturnApp(App):
                 self.message = texts.MEASURING
             case ShowCorrection() if too_small is not None and too_small.suggested_g is not None:
                 larger = proc.redo_trial_larger()
-                self.message = (f"Redo the trial on {larger.plane} with {larger.mass_g:.1f} g: "
-                                "the hands-on step comes first.")
+                shown = texts.Shown(self.config.profile.units.choice())
+                self.message = (f"Redo the trial on {larger.plane} with "
+                                f"{shown.mass(larger.mass_g)}: the hands-on step comes first.")
             case ShowCorrection() if proc.problem:
                 proc.repeat_run()
                 self.message = texts.RUN_AGAIN
@@ -718,7 +728,7 @@ class TrueturnApp(App):
         if current == "meter-view":
             bench.query_one("#meter-view", MeterView).show(
                 snap, self.procedure.runs if self.procedure is not None else [],
-                self.config.profile.rotation)
+                self.config.profile.rotation, texts.Shown(self.config.profile.units.choice()))
         elif current == "spectrum-view":
             bench.query_one("#spectrum-view", SpectrumView).show(snap)
         else:

@@ -10,6 +10,7 @@ from trueturn.jobs.profiles import Bearing, MachineProfile, Pickup
 from trueturn.jobs.records import CoefficientSet
 from trueturn.positions import number_of, position_text
 from trueturn.procedure.guide import MassChange, Mode, Procedure, ProcedureSetup
+from trueturn.ui.texts import Shown
 
 if TYPE_CHECKING:
     from trueturn.procedure.engine import BalanceEngine
@@ -68,8 +69,11 @@ def setup_from_profile(profile: MachineProfile, mode: Mode, standstill_s: float 
         cg_axial_mm=profile.cg_axial_mm)
 
 
-def describe_change(change: MassChange, proc: Procedure, engine: BalanceEngine) -> str:
-    """One line for a hands-on action, with the mass's force at the planned speed."""
+def describe_change(change: MassChange, proc: Procedure, engine: BalanceEngine,
+                    shown: Shown | None = None) -> str:
+    """One line for a hands-on action, with the mass's force at the planned speed, in the
+    machine's units (``shown``; metric when not given)."""
+    u = shown or Shown()
     if change.action == "mount-pickups":
         names = ", ".join(proc.setup.sensors)
         if proc.setup.mode is Mode.AMPLITUDE_ONLY:
@@ -85,12 +89,14 @@ def describe_change(change: MassChange, proc: Procedure, engine: BalanceEngine) 
         else f"{m.angle_deg:.0f}° from the mark, against rotation"
     force = engine.force_n(abs(m.mass_g), plane.radius_mm, proc.setup.speed_rpm)
     if change.action == "detach":
-        return f"Take off the {m.kind.value} mass {abs(m.mass_g):.2f} g from {m.plane} at {where}."
+        return (f"Take off the {m.kind.value} mass {u.mass(abs(m.mass_g))} from {m.plane} at "
+                f"{where}.")
     if m.removal:
-        return (f"Remove {abs(m.mass_g):.2f} g of material from {m.plane} at {where}, "
-                f"r {plane.radius_mm:g} mm (where the maker allows).")
-    text = (f"Attach {m.kind.value} mass [b]{m.mass_g:.2f} g[/b] on {m.plane} at {where}, "
-            f"r {plane.radius_mm:g} mm: {force:.1f} N at {proc.setup.speed_rpm:.0f} rpm")
+        return (f"Remove {u.mass(abs(m.mass_g))} of material from {m.plane} at {where}, "
+                f"r {u.length(plane.radius_mm)} (where the maker allows).")
+    text = (f"Attach {m.kind.value} mass [b]{u.mass(m.mass_g)}[/b] on {m.plane} at {where}, "
+            f"r {u.length(plane.radius_mm)}: {u.force(force)} at "
+            f"{u.speed(proc.setup.speed_rpm)}")
     if m.kind == "trial":
         ratio = engine.trial_mass(proc.setup, plane).force_ratio
         text += f" (about {ratio:.0%} of the rotor's weight)"
@@ -98,10 +104,12 @@ def describe_change(change: MassChange, proc: Procedure, engine: BalanceEngine) 
 
 
 def brief_work(changes: tuple[MassChange, ...], proc: Procedure,
-               engine: BalanceEngine) -> tuple[str, ...]:
+               engine: BalanceEngine, shown: Shown | None = None) -> tuple[str, ...]:
     """The work of a hands-on step in a few lines, for when the placement pictures
     (:mod:`trueturn.ui.placement`) show each part's place and mass: what to do and the
-    largest force a part will pull with at the planned speed."""
+    largest force a part will pull with at the planned speed (in the machine's units,
+    ``shown``; metric when not given)."""
+    u = shown or Shown()
     rpm = proc.setup.speed_rpm
     lines = []
     if any(c.action == "detach" for c in changes):
@@ -114,7 +122,7 @@ def brief_work(changes: tuple[MassChange, ...], proc: Procedure,
         verb = ("Remove material where the maker allows, as pictured" if masses[0].removal
                 else f"Attach {kind.value} mass as pictured")
         text = (f"{verb}: {len(masses)} part{'s' if len(masses) > 1 else ''}, "
-                f"up to {force:.1f} N at {rpm:.0f} rpm")
+                f"up to {u.force(force)} at {u.speed(rpm)}")
         if kind == "trial":
             ratio = engine.trial_mass(proc.setup, proc.plane(masses[0].plane)).force_ratio
             text += f" (about {ratio:.0%} of the rotor's weight)"

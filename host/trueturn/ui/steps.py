@@ -52,8 +52,8 @@ from trueturn.ui import texts
 from trueturn.ui.machine import brief_work, describe_change
 from trueturn.ui.placement import PlacementView, pictures_for
 from trueturn.ui.session import Snapshot
-from trueturn.ui.texts import VERDICT_FLAG_WORDS, verdict_note
-from trueturn.ui.widgets import MarkupText
+from trueturn.ui.texts import VERDICT_FLAG_WORDS, Shown, verdict_note
+from trueturn.ui.widgets import MarkupText, markup
 
 
 @dataclass(frozen=True)
@@ -80,10 +80,13 @@ class StepPanel(Static):
 
     shown: reactive[bool] = reactive(False)
     demo: reactive[bool] = reactive(False)
+    #: numbers in the machine's units (its profile), each kept with its unit
+    units: reactive[Shown] = reactive(Shown())
 
     def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
         """Take what this panel draws (only attributes: the drawing is :meth:`render`)."""
         self.demo = ctx.demo
+        self.units = Shown(ctx.profile.units.choice())
 
     def lines(self) -> list[str]:
         raise NotImplementedError
@@ -91,7 +94,7 @@ class StepPanel(Static):
     def render(self) -> Content:
         if not self.shown:
             return Content("")
-        return Content.from_markup("\n".join(self.lines()))
+        return markup("\n".join(self.lines()))
 
 
 class SetupPanel(StepPanel):
@@ -109,15 +112,15 @@ class SetupPanel(StepPanel):
         prof = self.profile
         if prof is None:
             return []
-        planes = ", ".join(f"{p.name} (r {p.radius_mm:g} mm)" for p in prof.planes)
+        u = self.units
+        planes = ", ".join(f"{p.name} (r {u.length(p.radius_mm)})" for p in prof.planes)
         return [
-            f"[b]Machine[/b] {prof.name}: {prof.rotor_kind}, {prof.rotor_mass_kg:g} kg, "
-            f"max {prof.max_speed_rpm:.0f} rpm",
+            f"[b]Machine[/b] {prof.name}: {prof.rotor_kind}, {u.rotor_mass(prof.rotor_mass_kg)}, "
+            f"max {u.speed(prof.max_speed_rpm)}",
             f"  planes: {planes}",
             f"  pickups: {', '.join(p.name for p in prof.pickups)} · target G "
             f"{prof.target_grade:g}",
-            "", *texts.SETUP_CHOICES,
-            texts.SETUP_TRIM + ("" if self.saved_trim else texts.SETUP_NO_TRIM), "",
+            "", *texts.setup_choices(self.saved_trim), "",
             *texts.SETUP_FOOTER]
 
 
@@ -127,6 +130,7 @@ class ProcedurePanel(StepPanel):
     title: reactive[str] = reactive("")
     runs: reactive[int] = reactive(0)
     condition: reactive[tuple[str, ...]] = reactive(())
+    as_found: reactive[str] = reactive("")  # the as-found 1x, once measured
 
     def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
         super().show(proc, snap, ctx)
@@ -134,10 +138,13 @@ class ProcedurePanel(StepPanel):
         self.title = proc.step.title
         self.runs = len(proc.runs)
         self.condition = ctx.condition
+        base = proc.as_found()
+        self.as_found = "" if base is None else texts.as_found_line(
+            base.readings, proc.setup.sensors, self.units)
 
     def lines(self) -> list[str]:
-        return [f"[b]{self.title}[/b]   [dim](runs so far: {self.runs})[/dim]", *self.body(),
-                *self.condition]
+        return [f"[b]{self.title}[/b]   [dim](runs so far: {self.runs})[/dim]",
+                *([self.as_found] if self.as_found else []), *self.body(), *self.condition]
 
     def body(self) -> list[str]:
         raise NotImplementedError
@@ -194,9 +201,10 @@ class HandsOnPanel(ProcedurePanel):
         step = proc.step
         self.phase = step.phase
         if any(c.mass is not None for c in step.changes):  # pictured: the parts are drawn
-            self.work = brief_work(step.changes, proc, ctx.engine)
+            self.work = brief_work(step.changes, proc, ctx.engine, self.units)
         else:
-            self.work = tuple("  " + describe_change(c, proc, ctx.engine) for c in step.changes)
+            self.work = tuple("  " + describe_change(c, proc, ctx.engine, self.units)
+                              for c in step.changes)
         self.items = proc.checklist()
         self.ticked = frozenset(proc.ticked)
         self.standstill = self.evidence_words(snap.evidence)
@@ -288,12 +296,13 @@ class RunPanel(ProcedurePanel):
             return []
         why = "" if plan.at_rpm <= plan.planned_rpm else \
             f" (measured {plan.at_rpm:.0f} rpm last run, above the planned speed)"
-        lines = [f"Planned speed {plan.planned_rpm:.0f} rpm (max {plan.max_rpm:.0f}). Forces at "
-                 f"{plan.at_rpm:.0f} rpm{why}. Masses on the rotor:"]
+        u = self.units
+        lines = [f"Planned speed {u.speed(plan.planned_rpm)} (max {plan.max_rpm:.0f}). Forces "
+                 f"at {u.speed(plan.at_rpm)}{why}. Masses on the rotor:"]
         for m, f in plan.forces:
             kind = "remove" if m.removal else m.kind.value
-            lines.append(f"  {kind} {abs(m.mass_g):.2f} g on {m.plane} at {m.angle_deg:.0f}°: "
-                         f"[b]{f:.1f} N[/b] outward")
+            lines.append(f"  {kind} {u.mass(abs(m.mass_g))} on {m.plane} at "
+                         f"{m.angle_deg:.0f}°: [b]{u.force(f)}[/b] outward")
         if not plan.forces:
             lines.append(texts.NO_MASS_ADDED)
         return lines + [texts.GUARDS_ON,
@@ -304,20 +313,23 @@ class RunPanel(ProcedurePanel):
         if self.no_tach:
             lines = [texts.no_tach_measuring(self.speed_rpm)]
         else:
-            lines = [f"Measuring at {self.speed_rpm:.0f} rpm; averaging {self.revolutions} "
-                     "steady revolutions."]
+            lines = [f"Measuring at {self.units.speed(self.speed_rpm)}; averaging "
+                     f"{self.revolutions} steady revolutions."]
         for name, r in self.readings:
             if r is None:
                 lines.append(f"  {name}: waiting")
                 continue
             if r.no_tach:
                 st = "[green]steady[/]" if r.steady else "[yellow]settling[/]"
-                pm = f"±{r.confidence_radius:.3f}" if r.confidence_radius is not None else "±?"
-                lines.append(f"  {name}: 1x {r.amplitude:.3f} {pm} {r.unit} (95 %), {st}")
+                amplitude, unit = self.units.vibration_value(r.amplitude, r.unit)
+                radius = (self.units.vibration_value(r.confidence_radius, r.unit)[0]
+                          if r.confidence_radius is not None else None)
+                pm = f"±{radius:.3f}" if radius is not None else "±?"
+                lines.append(f"  {name}: 1x {amplitude:.3f} {pm} {unit} (95 %), {st}")
                 continue
             ph = f"{r.phase_deg:.0f}°" if r.phase_deg is not None else "—"
             st = "[green]steady[/]" if r.steady else "[yellow]settling[/]"
-            lines.append(f"  {name}: {r.amplitude:.3f} {r.unit} at {ph} "
+            lines.append(f"  {name}: {self.units.vibration(r.amplitude, r.unit)} at {ph} "
                          f"±{r.confidence_deg:.0f}°, {r.revolutions} rev, {st}")
         if self.tach_silent_s is not None:
             lines.append(f"[b red]No tach edge for {self.tach_silent_s:.1f} s (spinning up? "
@@ -329,12 +341,12 @@ class RunPanel(ProcedurePanel):
         return lines
 
 
-def describe_part(p: PlacedMass) -> str:
+def describe_part(p: PlacedMass, shown: Shown = texts.METRIC_SHOWN) -> str:
     """One correction part as a line (position, angle, mass, add or remove)."""
     where = position_text(number_of(p.position), p.angle_deg) if p.position is not None \
         else f"{p.angle_deg:.0f}°"
     verb = "remove" if p.removal else "add"
-    return f"{p.plane}: {verb} {abs(p.mass_g):.2f} g at {where}"
+    return f"{p.plane}: {verb} {shown.mass(abs(p.mass_g))} at {where}"
 
 
 class CorrectionPanel(ProcedurePanel):
@@ -374,9 +386,10 @@ class CorrectionPanel(ProcedurePanel):
             lines = [f"[b red]No correction from these runs:[/] {self.problem}"]
             small = self.redo
             if small is not None and small.suggested_g is not None:
+                u = self.units
                 lines.append(f"[b]Enter[/b]: redo the trial on {small.plane} with "
-                             f"{math.ceil(small.suggested_g * 10) / 10:.1f} g instead of "
-                             f"{small.trial_g:.2f} g (the other runs are kept)")
+                             f"{u.mass(math.ceil(small.suggested_g * 10) / 10)} instead of "
+                             f"{u.mass(small.trial_g)} (the other runs are kept)")
             else:
                 lines += [texts.CHECK_THE_RIG, texts.ENTER_MEASURE_AGAIN]
             return lines
@@ -385,9 +398,9 @@ class CorrectionPanel(ProcedurePanel):
             # removal: the same mass taken out opposite the add angle
             verb, at = (("remove", wrap_deg(c.angle_deg + 180.0)) if self.removal
                         else ("add", c.angle_deg))
-            lines.append(f"  {c.plane}: {verb} [b]{c.mass_g:.2f} g[/b] at {at:.0f}°")
+            lines.append(f"  {c.plane}: {verb} [b]{self.units.mass(c.mass_g)}[/b] at {at:.0f}°")
         lines.append(texts.PARTS_TO_PLACE)
-        lines += ["  " + describe_part(p) for p in self.parts]
+        lines += ["  " + describe_part(p, self.units) for p in self.parts]
         lines += [f"[yellow]{w}[/]" for w in self.warnings]
         for off in self.off_speed:
             way = "slow" if off.deviation < 0 else "fast"
@@ -433,13 +446,15 @@ class VerdictPanel(ProcedurePanel):
             return []
         word = "[b green]PASS[/]" if v.passed else "[b red]NOT YET[/]"
         where = "at the bearings" if v.at_bearings else "in the correction planes"
+        u = self.units
         lines = [f"{word}: ISO 21940-11, grade G {self.grade:g} at the maximum service speed "
-                 f"{v.speed_rpm or self.service_rpm:.0f} rpm, judged {where}, {self.runs} runs"]
+                 f"{u.speed(v.speed_rpm or self.service_rpm)}, judged {where}, {self.runs} runs"]
         uppers = v.residual_upper_gmm or (None,) * len(v.residual_gmm)
         for (label, res, per, _), upper in zip(v.rows(), uppers, strict=True):
-            bound = f" (95 % up to {upper:.1f})" if upper is not None else ""
-            lines.append(f"  {label}: residual {res:.1f} g·mm{bound}, permissible {per:.1f} g·mm")
-        lines.append(verdict_note(v, self.service_rpm))
+            bound = f" (95 % up to {u.unbalance(upper)})" if upper is not None else ""
+            lines.append(f"  {label}: residual {u.unbalance(res)}{bound}, permissible "
+                         f"{u.unbalance(per)}")
+        lines.append(verdict_note(v, self.service_rpm, u))
         for f in v.flags:
             style = "b red" if f in WITHHOLDING_FLAGS else "yellow"
             lines.append(f"[{style}]{VERDICT_FLAG_WORDS[f]}[/]")

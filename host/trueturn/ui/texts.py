@@ -2,11 +2,61 @@
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
 
 from trueturn.dsp.findings import Code, Finding, describe
 from trueturn.dsp.severity import Severity
-from trueturn.model import Verdict, VerdictFlag
+from trueturn.model import Reading, Verdict, VerdictFlag
+from trueturn.model.units import (
+    METRIC,
+    NBSP,
+    UnitChoice,
+    convert_vibration,
+    force_text,
+    length_text,
+    mass_text,
+    rotor_mass_text,
+    unbalance_text,
+    vibration_text,
+)
+from trueturn.procedure.guide import Mode
+
+
+@dataclass(frozen=True)
+class Shown:
+    """Numbers as the app shows them: in the machine's units (its profile's ``units``,
+    converted by :mod:`trueturn.model.units`), each number kept with its unit by a no-break
+    space (:class:`trueturn.ui.widgets.UnitsKept` never breaks a line there)."""
+
+    units: UnitChoice = METRIC
+    sep: str = NBSP  # between a number and its unit (a plain space for text kept in files)
+
+    def mass(self, mass_g: float) -> str:
+        return mass_text(mass_g, self.units.mass, self.sep)
+
+    def length(self, length_mm: float) -> str:
+        return length_text(length_mm, self.units.length, self.sep)
+
+    def rotor_mass(self, mass_kg: float) -> str:
+        return rotor_mass_text(mass_kg, self.units.rotor_mass, self.sep)
+
+    def force(self, force_n: float) -> str:
+        return force_text(force_n, self.units.force, self.sep)
+
+    def unbalance(self, unbalance_gmm: float) -> str:
+        return unbalance_text(unbalance_gmm, self.units.mass, self.units.length, self.sep)
+
+    def speed(self, speed_rpm: float) -> str:
+        return f"{speed_rpm:.0f}{self.sep}rpm"
+
+    def vibration(self, amplitude: float, unit: str, width: int = 0) -> str:
+        """A reading's amplitude in the machine's vibration unit, detector kept."""
+        return vibration_text(amplitude, unit, self.units, self.sep, width)
+
+    def vibration_value(self, amplitude: float, unit: str) -> tuple[float, str]:
+        """(amplitude, unit) in the machine's vibration unit, for a plot's scale."""
+        return convert_vibration(amplitude, unit, self.units.vibration, self.units.length)
 
 CAUTIONS = "\n".join([
     "[b]Cautions — read before every job[/b]", "",
@@ -28,11 +78,27 @@ CAUTIONS = "\n".join([
     "[dim]Press Escape to go back.[/dim]",
 ])
 
+#: The procedures as the set-up lists them: key n chooses the n-th, in this order.
+MODE_WORDS: dict[Mode, str] = {
+    Mode.ONE_PLANE: "one plane (narrow rotor: fan, pulley, single wheel)",
+    Mode.TWO_PLANE: "two planes (long rotor or two wheels)",
+    Mode.AMPLITUDE_ONLY: "amplitude only: four-run method, no phase needed",
+    Mode.SAVED_TRIM: "one-run trim with the coefficients of an earlier job",
+}
+#: key -> procedure, derived from the list above (the keys the set-up and the messages name)
+MODE_KEYS: dict[str, Mode] = {str(n): mode for n, mode in enumerate(MODE_WORDS, start=1)}
+
+
+def key_list(keys: Sequence[str]) -> str:
+    """``'1, 2, 3 or 4'``."""
+    return keys[0] if len(keys) == 1 else f"{', '.join(keys[:-1])} or {keys[-1]}"
+
+
 KEYS: list[tuple[str, str]] = [
     ("m", "Meter: live 1x amplitude, phase, speed, polar plot"),
     ("s", "Spectrum with labelled peaks"),
     ("g", "Guide: the balancing procedure"),
-    ("1 2 3 4", "Set-up: one plane / two planes / amplitude only / one-run trim"),
+    (" ".join(MODE_KEYS), "Set-up: one plane / two planes / amplitude only / one-run trim"),
     ("p", "Set-up: pick a saved machine or create a new one"),
     ("Space", "Guide: tick the next checklist item (only at proven standstill)"),
     ("Backspace", "Guide: take back the last tick"),
@@ -82,12 +148,32 @@ VERDICT_FLAG_WORDS: dict[VerdictFlag, str] = {
 }
 
 
-def verdict_note(v: Verdict, service_speed_rpm: float) -> str:
-    """Where and at which speed the grade was judged, with the formula used."""
+#: numbers in metric units with their units (the default), and the same with plain spaces
+#: for text kept in files
+METRIC_SHOWN = Shown()
+PLAIN_SHOWN = Shown(sep=" ")
+
+
+def verdict_note(v: Verdict, service_speed_rpm: float, shown: Shown = PLAIN_SHOWN) -> str:
+    """Where and at which speed the grade was judged, with the formula used (plain spaces
+    unless ``shown`` says otherwise: the job file keeps this note)."""
     where = "at the bearings" if v.at_bearings else "in the correction planes"
-    u_per = f"U_per {v.u_per_gmm:.1f} g·mm " if v.u_per_gmm is not None else ""
-    return (f"permissible {u_per}at {v.speed_rpm or service_speed_rpm:.0f} rpm, shared "
+    u_per = f"U_per {shown.unbalance(v.u_per_gmm)} " if v.u_per_gmm is not None else ""
+    return (f"permissible {u_per}at {shown.speed(v.speed_rpm or service_speed_rpm)}, shared "
             f"{where} (ISO 21940-11: e_per = G/omega, U_per = e_per * m)")
+
+
+def as_found_line(readings: Mapping[str, Reading], sensors: Sequence[str],
+                  shown: Shown) -> str:
+    """The as-found 1x of every pickup on one line, for the guide after the as-found run."""
+    parts = []
+    for name in sensors:
+        r = readings.get(name)
+        if r is None:
+            continue
+        phase = f" at {r.phase_deg:.0f}°" if r.phase_deg is not None else ""
+        parts.append(f"{name} {shown.vibration(r.amplitude, r.unit)}{phase}")
+    return f"[dim]As found:[/dim] {'; '.join(parts)}" if parts else ""
 
 
 def keys_markup() -> str:
@@ -99,14 +185,18 @@ def keys_markup() -> str:
 
 
 # ---- the guide's fixed lines (trueturn.ui.steps; numbers are filled in there) ----------
-SETUP_CHOICES = (
-    "[b]Choose the procedure[/b]",
-    "  [b]1[/b]  one plane (narrow rotor: fan, pulley, single wheel)",
-    "  [b]2[/b]  two planes (long rotor or two wheels)",
-    "  [b]3[/b]  amplitude only: four-run method, no phase needed",
-)
-SETUP_TRIM = "  [b]4[/b]  one-run trim with the coefficients of an earlier job"
+SETUP_TITLE = "[b]Choose the procedure[/b]"
 SETUP_NO_TRIM = " [dim](none saved yet)[/dim]"
+
+
+def setup_choices(saved_trim: bool) -> list[str]:
+    """The set-up's list of procedures, one line per key (the trim says when none is saved)."""
+    lines = [SETUP_TITLE]
+    for key, mode in MODE_KEYS.items():
+        note = SETUP_NO_TRIM if mode is Mode.SAVED_TRIM and not saved_trim else ""
+        lines.append(f"  [b]{key}[/b]  {MODE_WORDS[mode]}{note}")
+    return lines
+
 SETUP_FOOTER = (
     "  [b]p[/b]  pick another saved machine, or create one", "",
     "Every hands-on step waits for tach standstill and your checklist.",
@@ -151,6 +241,9 @@ ENTER_PLACE_NO_REMOVAL = ("[b]Enter[/b]: go and place the parts (removing materi
 SWITCH_OFF_VERDICT = "[b]Switch the machine off[/b]"
 ENTER_CLOSE_JOB = "[b]Enter[/b]: close the job and write the report"
 
+CONNECT_RETRY = ("Check the cable, the port's name and that no other program holds the port; "
+                 "press r to try again, or q to quit.")
+CONNECT_TRYING = "Trying again…"
 LINK_CHECK = ("Check the USB cable and the board, then press [b]l[/b] to reconnect (the same "
               "port).")
 
@@ -166,7 +259,7 @@ MACHINE_FIXED = "The machine is fixed once a job has started (quit to change it)
 NO_RUN_TO_STOP = "No run to stop."
 RUN_STOPPED_DEMO = "Run stopped: the virtual motor is off. Wait for standstill."
 RUN_STOPPED = "Run stopped: switch the machine off and wait for standstill."
-CHOOSE_FIRST = "Choose the procedure first: 1, 2, 3 or 4."
+CHOOSE_FIRST = f"Choose the procedure first: {key_list(list(MODE_KEYS))}."
 LOCKED_OUT = "Locked out. Do the work now, then tick the list."
 MOTOR_STARTING_DEMO = "Demo: the virtual motor is starting."
 SWITCH_ON = "Switch the machine on now and stand clear."

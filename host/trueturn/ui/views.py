@@ -15,6 +15,7 @@ from trueturn.angles import Rotation
 from trueturn.model import Run
 from trueturn.procedure.standstill import StandstillState
 from trueturn.ui.session import BoardIdentity, Snapshot
+from trueturn.ui.texts import METRIC_SHOWN, Shown
 from trueturn.ui.widgets import MarkupText, PolarPlot, PolarPoint
 
 STYLES = ("cyan", "magenta", "yellow", "green")  # pickup A, B, ... on the meter and the plot
@@ -64,9 +65,11 @@ class MeterView(Container):
         yield MarkupText(id="meter-table")
         yield PolarPlot(id="polar")
 
-    def show(self, snap: Snapshot, runs: list[Run], rotation: Rotation) -> None:
+    def show(self, snap: Snapshot, runs: list[Run], rotation: Rotation,
+             shown: Shown = METRIC_SHOWN) -> None:
+        """Draw the live 1x and the job's runs; numbers in the machine's units (``shown``)."""
         meter = snap.meter
-        lines = [f"[b]Live 1x[/b]   speed {meter.speed_rpm or 0:.0f} rpm", ""]
+        lines = [f"[b]Live 1x[/b]   speed {shown.speed(meter.speed_rpm or 0)}", ""]
         points: list[PolarPoint] = []
         for i, name in enumerate(meter.sensors):
             r = meter.readings.get(name)
@@ -78,16 +81,19 @@ class MeterView(Container):
             ready = "[green]READY[/]" if r.steady else "[yellow]settling[/]"
             phase = f"{r.phase_deg:5.0f}°" if r.phase_deg is not None else "  —  "
             lines += [f"[{style}]{tag} {name}[/]  {ready}",
-                      f"  {r.amplitude:8.3f} {r.unit}  phase {phase} ±{r.confidence_deg:.0f}°",
+                      f"  {shown.vibration(r.amplitude, r.unit, width=8)}  phase {phase} "
+                      f"±{r.confidence_deg:.0f}°",
                       f"  {r.revolutions} rev averaged", ""]
             if r.phase_deg is not None:
-                points.append(PolarPoint(r.amplitude, r.phase_deg, tag, style))
+                amplitude, _ = shown.vibration_value(r.amplitude, r.unit)
+                points.append(PolarPoint(amplitude, r.phase_deg, tag, style))
         for k, run in enumerate(runs):
             for i, name in enumerate(meter.sensors):
                 r = run.readings.get(name)
                 if r is not None and r.phase_deg is not None:
                     # one digit per run: run 10 shows 0
-                    points.append(PolarPoint(r.amplitude, r.phase_deg, str((k + 1) % 10),
+                    amplitude, _ = shown.vibration_value(r.amplitude, r.unit)
+                    points.append(PolarPoint(amplitude, r.phase_deg, str((k + 1) % 10),
                                              STYLES[i % len(STYLES)], current=False))
         c = snap.counters
         lines += [f"link: {c.get('frames_bad', 0)} bad frames, {c.get('frames_lost', 0)} lost,",
@@ -98,7 +104,8 @@ class MeterView(Container):
         elif meter.warnings:
             lines.append(f"[yellow]{meter.warnings[-1]}[/]")
         self.query_one("#meter-table", MarkupText).text = "\n".join(lines)
-        self.query_one("#polar", PolarPlot).show(points, meter.unit, rotation)
+        self.query_one("#polar", PolarPlot).show(
+            points, shown.vibration_value(1.0, meter.unit)[1] if meter.unit else "", rotation)
 
 
 class SpectrumView(Vertical):

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import Any
 
 from rich.text import Text
 from textual.content import Content
@@ -22,6 +23,7 @@ from textual.widget import Widget
 from textual.widgets import Static
 
 from trueturn.angles import Rotation, screen_xy
+from trueturn.model.units import NBSP
 
 BRAILLE_BASE = 0x2800
 # Dot bit for (column 0..1, row 0..3) inside one braille cell (Unicode braille patterns).
@@ -78,14 +80,59 @@ class BrailleCanvas:
         return out
 
 
+class UnitsKept(Content):
+    """Content whose lines break only at ordinary spaces, never at a no-break space: a
+    number stays on the line of its unit (``0.60`` + NBSP + ``g``), whatever the width.
+
+    Textual wraps at any whitespace, the no-break space included, so this content breaks
+    its lines itself (greedy, at ASCII spaces) before Textual draws them, and shows every
+    no-break space as a space. ``str()`` gives the text with plain spaces, as shown."""
+
+    @classmethod
+    def of(cls, content: Content) -> UnitsKept:
+        return cls(content.plain, list(content.spans))
+
+    def __str__(self) -> str:
+        return self.plain.replace(NBSP, " ")
+
+    def wrapped(self, width: int) -> Content:
+        """The lines broken at ordinary spaces to at most ``width`` cells (a word longer
+        than that is left to Textual), no-break spaces shown as spaces."""
+        lines: list[Content] = []
+        for line in self.split(allow_blank=True):
+            text, cuts, start = line.plain, [], 0
+            while width > 0 and len(text) - start > width:
+                cut = text.rfind(" ", start, start + width + 1)
+                if cut <= start:
+                    break
+                cuts.append(cut + 1)
+                start = cut + 1
+            pieces = line.divide(cuts)
+            lines += [p.rstrip(" ") for p in pieces[:-1]] + pieces[-1:]
+        joined = Content("\n").join(lines)
+        return Content(joined.plain.replace(NBSP, " "), list(joined.spans))
+
+    def get_height(self, rules: Any, width: int) -> int:
+        return self.wrapped(width).get_height(rules, width)
+
+    def render_strips(self, width: int, height: int | None, style: Any,
+                      options: Any) -> list[Any]:
+        return self.wrapped(width).render_strips(width, height, style, options)
+
+
+def markup(text: str) -> UnitsKept:
+    """Console markup as content that keeps numbers with their units (:class:`UnitsKept`)."""
+    return UnitsKept.of(Content.from_markup(text))
+
+
 class MarkupText(Static):
     """Console markup held in a reactive attribute: set ``text``; the widget repaints only
-    when the text differs from what it shows."""
+    when the text differs from what it shows. Numbers stay with their units."""
 
     text: reactive[str] = reactive("", layout=True)  # its height may change with it
 
     def render(self) -> Content:
-        return Content.from_markup(self.text)
+        return markup(self.text)
 
 
 @dataclass(frozen=True)

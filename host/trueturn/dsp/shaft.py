@@ -316,7 +316,7 @@ class TachTracker:
             self._anchor = float(tick)
             self._rejected(tick)
             return None
-        residual, predicted = self._residual(period, recent)
+        residual, predicted = self._residual(period, recent, predicted)
         self._rejected_in_row = 0
         self._periods.append(period)
         self._last_edge = tick
@@ -333,11 +333,11 @@ class TachTracker:
         rms = math.sqrt(sum(r * r for r in self._residuals) / len(self._residuals))
         return 360.0 * rms / math.sqrt(2.0)
 
-    def _residual(self, period: int,
-                  recent: list[int]) -> tuple[float | None, float | None]:
-        """(``period`` against the one the ``recent`` periods predict, as a fraction of it;
-        the prediction in ticks), or (None, None) while fewer than four are known."""
-        predicted = self._predicted(recent)
+    def _residual(self, period: int, recent: list[int],
+                  predicted: float | None) -> tuple[float | None, float | None]:
+        """(``period`` against ``predicted``, the one the ``recent`` periods predict, as a
+        fraction of it; the prediction in ticks), or (None, None) while fewer than four are
+        known."""
         if predicted is None:
             return None, None
         _, inflation = _theil_sen_table(len(recent))

@@ -113,7 +113,9 @@ def reading_text(reading: Reading, machine: MachineProfile) -> tuple[str, str]:
     """(amplitude with unit, phase with confidence) in the person's chosen units."""
     amplitude, unit = convert_vibration(reading.amplitude, reading.unit, machine.units.vibration,
                                         machine.units.length)
-    digits = 3 if amplitude < 10 else 1
+    # at least 3 significant figures below 10 (0.104 in/s, 0.00496 in/s), one decimal above
+    digits = 1 if amplitude >= 10 else 3 if amplitude <= 0 else max(
+        3, 2 - math.floor(math.log10(amplitude)))
     return (f"{amplitude:.{digits}f} {unit}",
             "no phase" if reading.phase_deg is None else
             f"{phase_text(reading.phase_deg)} \u00b1 {reading.confidence_deg:.1f}\u00b0")
@@ -379,7 +381,7 @@ def plane_svg(job: JobRecord, plane_name: str, size_px: int = PLANE_VIEW) -> str
     out.append(f'<path d="M {mx:.1f} {my:.1f} l -6 -10 l 12 0 z" fill="#000"/>')
     out.append(f'<text x="{mx + 8:.1f}" y="{my - 2:.1f}" class="tick">0\u00b0 mark</text>')
     angles = plane.layout.position_angles_deg()
-    label_r = r - 14
+    label_r = r - 16
     gap = min((abs((b - a + 180.0) % 360.0 - 180.0) for a, b in
                zip(angles, angles[1:] + angles[:1], strict=True)), default=360.0)
     stride = 1

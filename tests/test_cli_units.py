@@ -148,3 +148,49 @@ def test_solve_says_the_trial_was_left_on_and_an_exact_fit_predicts_zero(tmp_pat
     data = json.loads(run_cli(["solve", str(path), "--json"])[1])
     assert data["trial_masses"] == "left on"
     assert data["predicted_residual"]["motor"] == {"amp": 0.0, "phase_deg": None}
+
+
+TWO_TRIALS = """
+planes: [{name: rotor, radius_%(r)s: %(radius)s}]
+sensors: [{name: motor}, {name: fan}]
+runs:
+  - label: as found
+    added: []
+    readings: {motor: {amp: 4.0, phase_deg: 30}, fan: {amp: 3.0, phase_deg: 100}}
+  - label: trial
+    added: [{plane: rotor, mass_%(m)s: %(mass)s, angle_deg: 0}]
+    readings: {motor: {amp: 6.0, phase_deg: 80}, fan: {amp: 2.5, phase_deg: 160}}
+tolerance: {rotor_mass_%(w)s: %(rotor)s, grade: 6.3, speed_rpm: 3450}
+"""
+
+
+def test_solve_reads_an_imperial_file_and_answers_in_oz(tmp_path):
+    # the same runs in metric and in imperial units (NIST SP 811 factors, exact) give the same
+    # correction: converted back, the oz answer equals the g answer
+    metric = tmp_path / "metric.yaml"
+    metric.write_text(TWO_TRIALS % {"r": "mm", "radius": 76.2, "m": "g", "mass": 5.0,
+                                    "w": "kg", "rotor": 4.5359237}, encoding="utf-8")
+    imperial = tmp_path / "imperial.yaml"
+    imperial.write_text(TWO_TRIALS % {"r": "in", "radius": 3, "m": "oz", "mass": 5.0 / OZ_G,
+                                      "w": "lb", "rotor": 10}, encoding="utf-8")
+    m = json.loads(run_cli(["solve", str(metric), "--json"])[1])
+    code, out, err = run_cli(["solve", str(imperial), "--json"])
+    assert code == 0, err
+    i = json.loads(out)
+    assert i["corrections"][0]["mass_oz"] * OZ_G == pytest.approx(
+        m["corrections"][0]["mass_g"], rel=1e-3)
+    assert "mass_g" not in i["corrections"][0]
+    assert i["tolerance"]["U_per_ozin"] * OZ_G * IN_MM == pytest.approx(
+        m["tolerance"]["U_per_gmm"], rel=1e-3)
+    _, text, _ = run_cli(["solve", str(imperial)])
+    assert " oz at " in text and "oz·in" in text and " g at " not in text and "g·mm" not in text
+
+
+def test_solve_refuses_a_field_given_both_ways(tmp_path):
+    path = tmp_path / "both.yaml"
+    path.write_text(ONE_TRIAL_LEFT_ON.replace("radius_mm: 75", "radius_mm: 75, radius_in: 3"),
+                    encoding="utf-8")
+    code, out, err = run_cli(["solve", str(path)])
+    assert code == 2 and out == ""
+    assert err.strip() == f"trueturn solve: {path}:2: radius_in: give radius_mm or radius_in, " \
+        "not both"

@@ -11,10 +11,21 @@ from trueturn.balance import parse_readings, solve
 from trueturn.balance.influence import Correction
 from trueturn.balance.iso21940 import TolerancePlanes, VerdictFlag
 from trueturn.balance.solve import SolveReport
-from trueturn.cli.common import print_json
+from trueturn.cli.common import json_in_units, print_json
 from trueturn.errors import UserError
 from trueturn.files import MAX_TEXT_BYTES, read_text_file
-from trueturn.yamltext import load_yaml_text
+from trueturn.model.units import (
+    IMPERIAL,
+    METRIC,
+    UnitChoice,
+    length_to_mm,
+    mass_from_g,
+    mass_to_g,
+    rotor_mass_to_kg,
+    significant_text,
+    unbalance_from_gmm,
+)
+from trueturn.yamltext import LineDict, LineList, load_yaml_text
 
 CAUTION = ("Caution: before attaching, moving or removing any mass, switch the machine off, "
            "lock it out and wait until it has stopped (the tach must show standstill). Fasten "
@@ -27,7 +38,10 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
         "solve", help="compute correction masses from balancing runs",
         description="Compute where and how much mass to add from balancing runs in a READINGS "
                     "file (YAML or JSON; see host/trueturn/balance/README.md). Readings with "
-                    "phase use influence coefficients; amplitudes only use the four-run method.")
+                    "phase use influence coefficients; amplitudes only use the four-run method. "
+                    "A file in imperial units (mass_oz, radius_in, axial_in, rotor_mass_lb, "
+                    "... in place of mass_g, radius_mm, axial_mm, rotor_mass_kg) is answered "
+                    "in oz, in and oz·in.")
     parser.add_argument("readings", metavar="READINGS", help="YAML or JSON file, '-' for stdin")
     parser.add_argument("--json", action="store_true", help="machine-readable output")
     parser.set_defaults(run=run)
@@ -46,6 +60,52 @@ def load_document(path: str) -> Any:
         raise UserError(f"stdin: more than {MAX_TEXT_BYTES // (1024 * 1024)} MB; not a "
                         "readings file")
     return load_yaml_text(text, "stdin" if path == "-" else path)
+
+
+#: imperial field of a READINGS file -> (its metric field, the conversion to it)
+IMPERIAL_FIELDS: dict[str, tuple[str, Any]] = {
+    "mass_oz": ("mass_g", lambda v: mass_to_g(v, "oz")),
+    "max_mass_oz": ("max_mass_g", lambda v: mass_to_g(v, "oz")),
+    "radius_in": ("radius_mm", lambda v: length_to_mm(v, "in")),
+    "axial_in": ("axial_mm", lambda v: length_to_mm(v, "in")),
+    "cg_axial_in": ("cg_axial_mm", lambda v: length_to_mm(v, "in")),
+    "plane_distance_in": ("plane_distance_mm", lambda v: length_to_mm(v, "in")),
+    "cg_from_first_plane_in": ("cg_from_first_plane_mm", lambda v: length_to_mm(v, "in")),
+    "rotor_mass_lb": ("rotor_mass_kg", lambda v: rotor_mass_to_kg(v, "lb")),
+}
+
+
+def metric_document(doc: Any, source: str) -> tuple[Any, bool]:
+    """The READINGS document with every imperial field (``mass_oz``, ``radius_in``, ...)
+    converted into its metric field (lines kept for the messages), and whether it had any.
+    A number that is not one is left for the schema to refuse; a field given both ways is
+    refused here, naming its line."""
+    found = False
+
+    def walk(node: Any) -> Any:
+        nonlocal found
+        if isinstance(node, LineList):
+            out_list = LineList(walk(item) for item in node)
+            out_list.line, out_list.item_lines = node.line, list(node.item_lines)
+            return out_list
+        if not isinstance(node, LineDict):
+            return node
+        out = LineDict()
+        out.line = node.line
+        for key, value in node.items():
+            line = node.key_lines.get(key, node.line)
+            if isinstance(key, str) and key in IMPERIAL_FIELDS:
+                metric, convert = IMPERIAL_FIELDS[key]
+                if metric in node:
+                    raise UserError(f"{source}:{line}: {key}: give {metric} or {key}, not both")
+                found = True
+                ok = isinstance(value, (int, float)) and not isinstance(value, bool)
+                key, value = metric, (convert(value) if ok else value)
+            out[key] = walk(value)
+            out.key_lines[key] = line
+        return out
+
+    return walk(doc), found
 
 
 def _r(value: float | None, digits: int = 4) -> float | None:
@@ -222,20 +282,30 @@ VERDICT_FLAG_TEXT = {
 }
 
 
-def verdict_text(report: SolveReport) -> list[str]:
+def _unbalance(gmm: float | None, shown: UnitChoice) -> str:
+    """An unbalance number (4 significant figures) in the units answered in."""
+    if gmm is None:
+        return "?"
+    if shown == METRIC:
+        return f"{gmm:.4g}"
+    return significant_text(unbalance_from_gmm(gmm, shown.mass, shown.length), 4)
+
+
+def verdict_text(report: SolveReport, shown: UnitChoice = METRIC) -> list[str]:
     """The verdict in words: one line per tolerance plane, then the flags."""
     v = report.verdict
     assert v is not None
     where = "at the bearings" if v.tolerance_planes is TolerancePlanes.BEARINGS else \
         "in the correction planes"
     speed = f" at {v.speed_rpm:g} rpm" if v.speed_rpm else ""
-    lines = [f"ISO 21940-11 residual of the last run, {where} (U_per {report.u_per_gmm:.4g} g·mm"
-             f"{speed}):"]
+    lines = [f"ISO 21940-11 residual of the last run, {where} (U_per "
+             f"{_unbalance(report.u_per_gmm, shown)} {shown.unbalance}{speed}):"]
     labels = v.labels or tuple(f"plane {i + 1}" for i in range(len(v.residual_gmm)))
     uppers = v.residual_upper_gmm or (None,) * len(v.residual_gmm)
     for name, r, p, u in zip(labels, v.residual_gmm, v.permissible_gmm, uppers, strict=True):
-        bound = f" (95 % upper bound {u:.4g})" if u is not None else ""
-        lines.append(f"  {name:<14} {r:.4g} of {p:.4g} g·mm{bound}")
+        bound = f" (95 % upper bound {_unbalance(u, shown)})" if u is not None else ""
+        lines.append(f"  {name:<14} {_unbalance(r, shown)} of {_unbalance(p, shown)} "
+                     f"{shown.unbalance}{bound}")
     if v.arrangement is not None:
         lines.append(f"  correction planes {v.arrangement.value} of the bearings")
     lines.append("  -> " + ("PASS" if v.passed else "not yet within tolerance"))
@@ -244,30 +314,34 @@ def verdict_text(report: SolveReport) -> list[str]:
     return lines
 
 
-def _line(c: Correction) -> str:
-    text = f"  {c.plane:<14} {c.mass_g:8.3f} g at {c.angle_deg:6.1f}°"
+def _line(c: Correction, shown: UnitChoice = METRIC) -> str:
+    digits = 3 if shown.mass == "g" else 4  # 0.001 g, 0.0001 oz (0.003 g)
+    mass = mass_from_g(c.mass_g, shown.mass)
+    text = f"  {c.plane:<14} {mass:8.{digits}f} {shown.mass} at {c.angle_deg:6.1f}°"
     if c.mass_g_pm is not None:
-        text += f"   (± {c.mass_g_pm:.3g} g, ± {c.angle_deg_pm:.0f}°, 95 %)"
+        text += (f"   (± {mass_from_g(c.mass_g_pm, shown.mass):.3g} {shown.mass}, "
+                 f"± {c.angle_deg_pm:.0f}°, 95 %)")
     return text
 
 
-def report_text(report: SolveReport, has_phase: bool) -> str:
+def report_text(report: SolveReport, has_phase: bool, shown: UnitChoice = METRIC) -> str:
     s = report.solution
     lines = [f"method: {s.method}",
              "",
              "Add to the as-found rotor (every trial mass removed):"]
-    lines += [_line(c) for c in s.corrections]
+    lines += [_line(c, shown) for c in s.corrections]
     if s.on_rotor_now:
-        now = ", ".join(f"{m.mass_g:g} g at {m.angle_deg:g}° in {m.plane}" for m in s.on_rotor_now)
+        now = ", ".join(f"{mass_from_g(m.mass_g, shown.mass):g} {shown.mass} at "
+                        f"{m.angle_deg:g}° in {m.plane}" for m in s.on_rotor_now)
         lines += ["", f"Or, leaving the trial masses of the last run on ({now}), add:"]
-        lines += [_line(c) for c in s.corrections_keeping_current]
+        lines += [_line(c, shown) for c in s.corrections_keeping_current]
     else:
         lines += ["", "No trial mass was on the rotor in the last run: add the masses above."]
     lines.append(f"(trial masses between runs: {s.trial_masses})")
     if s.candidates:
         lines += ["", "Other answers that fit equally well:"]
         for cand in s.candidates:
-            lines += [_line(c) for c in cand]
+            lines += [_line(c, shown) for c in cand]
     if s.fit_scatter is not None:
         lines += ["", "Fit scatter of the amplitudes (RMS misfit, the floor of what can be "
                       "predicted; not a prediction):"]
@@ -284,11 +358,13 @@ def report_text(report: SolveReport, has_phase: bool) -> str:
         lines.append(f"condition number: {s.condition_number:.3g}")
     if report.static_couple is not None:
         sc = report.static_couple
-        lines.append(f"static part: {sc.static_gmm:.4g} g·mm at {sc.static_angle_deg:.1f}°; couple: "
-                     f"{sc.couple_gmm:.4g} g·mm per plane at {sc.couple_angle_deg:.1f}° / "
+        u = shown.unbalance
+        lines.append(f"static part: {_unbalance(sc.static_gmm, shown)} {u} at "
+                     f"{sc.static_angle_deg:.1f}°; couple: {_unbalance(sc.couple_gmm, shown)} "
+                     f"{u} per plane at {sc.couple_angle_deg:.1f}° / "
                      f"{(sc.couple_angle_deg + 180) % 360:.1f}°")
     if report.verdict is not None:
-        lines += verdict_text(report)
+        lines += verdict_text(report, shown)
     for w in [*s.warnings, *speed_warnings(report), *size_warnings(report)]:
         lines.append(f"warning: {w}")
     lines += ["", CAUTION]
@@ -296,15 +372,17 @@ def report_text(report: SolveReport, has_phase: bool) -> str:
 
 
 def run(args: argparse.Namespace) -> int:
-    doc = load_document(args.readings)
     name = "stdin" if args.readings == "-" else args.readings
+    doc, imperial = metric_document(load_document(args.readings), name)
+    shown = IMPERIAL if imperial else METRIC
     inp = parse_readings(doc, name)
     try:
         report = solve(inp)
     except UserError as exc:
         raise UserError(f"{name}: {exc}") from None
     if args.json:
-        print_json(report_json(report, inp.has_phase))
+        data = report_json(report, inp.has_phase)
+        print_json(json_in_units(data, shown) if imperial else data)
     else:
-        print(report_text(report, inp.has_phase))
+        print(report_text(report, inp.has_phase, shown))
     return 0

@@ -182,7 +182,8 @@ def read_units(args: argparse.Namespace) -> UnitChoice:
 
 #: JSON key endings (the unit in the name) and how a value in that unit is shown in others
 _JSON_UNITS: tuple[tuple[str, str], ...] = (("_gmm", "unbalance"), ("_kg", "rotor_mass"),
-                                            ("_mm", "length"), ("_g", "mass"))
+                                            ("_mm", "length"), ("_g", "mass"),
+                                            ("_g_pm", "mass"))  # a ± in grams
 
 
 def json_in_units(data: Any, shown: UnitChoice) -> Any:
@@ -199,7 +200,9 @@ def json_in_units(data: Any, shown: UnitChoice) -> Any:
         for ending, what in _JSON_UNITS:
             if key.endswith(ending) and not key.endswith("_per_g") and \
                     not isinstance(value, (dict, bool, str)):
+                tail = "_pm" if ending.endswith("_pm") else ""
                 key, value = _key_in_units(key[: -len(ending)], what, value, shown)
+                key += tail
                 break
         else:
             value = json_in_units(value, shown)

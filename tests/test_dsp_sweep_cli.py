@@ -113,6 +113,9 @@ def test_grinder_coastdown_slope_and_no_steady_judgement(grinder_coast: dict) ->
         p_true = math.log(abs(up) / abs(down)) / (2 * h)
         assert abs(k["amplitude_exponent"] - p_true) < 3 * k.get("amplitude_exponent_se", 0.1) + 0.1
     assert len(data["speed_slopes"]) == 2
+    assert all(k["amplitude_exponent_se"] is not None for k in data["speed_slopes"])
+    if data["unbalance"]["verdict"] == "unbalance_undecided":
+        assert "from a sweep" in data["unbalance"]["words"]
     # a coast-down is no steady run: no severity zone from its standstill tail
     assert data["severity"] == []
     assert not any(f["code"] == "near_resonance" for f in data["findings"])

@@ -189,7 +189,9 @@ class Analysis:
                                      "speed); Ewins, Modal Testing, sec. 4.2"},
             "speed_slopes": [{"pickup": k.pickup, "speed_rpm": num(k.speed_rpm, 1),
                               "amplitude_exponent": num(k.amplitude_exponent, 4),
+                              "amplitude_exponent_se": num(k.amplitude_exponent_se, 4),
                               "phase_deg_per_ln_speed": num(k.phase_deg_per_ln_speed, 3),
+                              "phase_deg_per_ln_speed_se": num(k.phase_deg_per_ln_speed_se, 3),
                               "points": k.points} for k in self.speed_slopes],
         }
 
@@ -389,7 +391,10 @@ def _judge(meter: LiveAnalyzer, spectra: Sequence[Spectrum | None],
     if sweep is not None and sweep.is_sweep:
         rises = [(r.sensor, rise_below_first_resonance(sweep, r.sensor)) for r in readings]
         found = [sweep_evidence(name, *rise) for name, rise in rises if rise is not None]
-        return (), (verdict(found, 0), *found)
+        said = verdict(found, 0)
+        if said.code is Code.UNBALANCE_UNDECIDED:  # say why: a sweep, not a missing spectrum
+            said = Finding(Code.UNBALANCE_UNDECIDED, details={"sweep": True})
+        return (), (said, *found)
     severity: list[Severity] = []
     evidence: list[Finding] = []
     by_name = {r.sensor: r for r in readings}

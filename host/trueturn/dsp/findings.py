@@ -342,6 +342,10 @@ def _unbalance_sentence(f: Finding) -> str:
         low, high = _n(f, "band_hz", None) or (10.0, 1000.0)  # kept before bands were said
         return (f"overall {_n(f, 'velocity_rms_mm_s'):.2f} mm/s rms ({low:g}-{high:g} Hz): "
                 f"zone {zone}, {_ZONE_MEANING.get(zone, '')}")
+    if _n(f, "sweep", False):
+        return ("cannot judge whether this is unbalance from a sweep: the spectrum rules need "
+                "a steady run (analyze one without --sweep), and the 1x was not measured far "
+                "enough below the first resonance to see it rise with speed")
     return "cannot judge whether this is unbalance (no spectrum or no 1x reading)"
 
 

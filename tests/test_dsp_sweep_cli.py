@@ -187,3 +187,27 @@ def test_plot_writes_bode_and_polar_svg(tmp_path: Path) -> None:
     assert code != 0 and "give --sweep too" in err and not (tmp_path / "x.svg").exists()
     code, _, err = run_cli(["analyze", str(capture), "--sweep", "--plot", str(tmp_path)])
     assert code != 0 and err.count("\n") <= 1
+
+
+def test_record_until_stop_ends_a_coastdown_at_standstill(tmp_path: Path) -> None:
+    # the motor off after switch_s, the rotor stops after tau ln 5 (sim.board.coast_stop_s);
+    # --until-stop ends 3 s of signal after the last tach edge, well before --seconds 60
+    sc = load_scenario("bench-grinder")
+    times = run_times(sc, "coastdown")
+    out = tmp_path / "cd.cap"
+    code, stdout, err = run_cli(["record", "--port", "sim://bench-grinder?realtime=0&run=coastdown",
+                                 "--seconds", "60", "--until-stop", "-o", str(out), "--quiet",
+                                 "--json"])
+    assert code == 0, err
+    summary = json.loads(stdout)
+    assert summary["stopped_at_standstill"] and "the rotor stopped" in err
+    expected = times["switch_s"] + times["sweep_s"] + 3.0
+    assert summary["seconds"] == pytest.approx(expected, abs=1.5)
+    data = _analyze(out)
+    assert not any(f["code"] == "incomplete_capture" for f in data["findings"])
+    assert data["sweep_info"]["is_sweep"]
+    # a steady run never stops: --seconds ends it, as before
+    code, stdout, err = run_cli(["record", "--port", "sim://bench-grinder?realtime=0",
+                                 "--seconds", "2", "--until-stop", "-o", str(tmp_path / "s.cap"),
+                                 "--quiet", "--json"])
+    assert code == 0 and not json.loads(stdout)["stopped_at_standstill"]

@@ -222,6 +222,8 @@ class _Watch:
         wanted_s = requested.get("seconds") if isinstance(requested, dict) else None
         if isinstance(wanted_s, bool) or not isinstance(wanted_s, (int, float)) or wanted_s <= 0:
             return None
+        if isinstance(requested, dict) and requested.get("until_stop") is True:
+            return None  # record --until-stop: --seconds was the longest, not the length
         # the time the last stream's sample indices span (SPEC 4.4: every block carries its
         # stream's start and period): frames lost on the way do not shorten it, only a
         # stream that stopped early does

@@ -29,6 +29,10 @@ from trueturn.link.session import BoardSession, LinkLost
 from trueturn.sim.scenario import load_scenario
 
 STALL_TIMEOUT_S = 3.0  # no samples for this long: the stream is gone
+#: --until-stop: the rotor counts as stopped for the recording after this much signal with
+#: no tach edge once edges were seen (3 s: a turn at 20 rpm; the end of a coast-down, not
+#: the proven standstill a hands-on step needs, trueturn.procedure.standstill)
+UNTIL_STOP_QUIET_S = 3.0
 PROGRESS_EVERY_S = 0.25
 
 
@@ -50,6 +54,11 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                              "no open input is recorded as a channel")
     parser.add_argument("--tach-edge", choices=("rising", "falling"), default="rising",
                         help="tach edge that marks the reference (default rising)")
+    parser.add_argument("--until-stop", action="store_true",
+                        help="for a coast-down: end the recording once the rotor has stopped "
+                             f"(tach edges seen, then none for {UNTIL_STOP_QUIET_S:g} s of "
+                             "signal); --seconds is then the longest it records. Not a safety "
+                             "standstill: never reach in on it")
     parser.add_argument("--json", action="store_true", help="print a JSON summary on stdout")
     parser.add_argument("--quiet", action="store_true", help="no progress line")
     parser.set_defaults(run=run)
@@ -150,7 +159,8 @@ def _record(port: serial.Serial, args: argparse.Namespace, out_path: Path) -> in
         "port": args.port, "started_utc": dt.datetime.now(dt.timezone.utc).isoformat(),
         "trueturn_version": __version__, "identity": identity,
         "requested": {"seconds": args.seconds, "rate_hz": args.rate_hz,
-                      "channels": args.channels, "tach_edge": args.tach_edge},
+                      "channels": args.channels, "tach_edge": args.tach_edge,
+                      **({"until_stop": True} if args.until_stop else {})},
     }
     metadata.update(rig)
     try:
@@ -162,6 +172,8 @@ def _record(port: serial.Serial, args: argparse.Namespace, out_path: Path) -> in
     samples = 0
     tach_edges = 0
     interrupted = False
+    stopped = False  # --until-stop: the rotor stopped before --seconds
+    last_edge_samples: int | None = None  # samples received when the last tach edge came
     target = max(1, int(round(args.seconds * args.rate_hz)) * args.channels)  # until started
     try:
         session.configure(args.rate_hz, args.channels, edge)
@@ -169,7 +181,8 @@ def _record(port: serial.Serial, args: argparse.Namespace, out_path: Path) -> in
         target = int(round(args.seconds * config["rate_hz"])) * config["channels"]
         last_data = time.monotonic()
         last_progress = 0.0
-        while samples < target:
+        quiet_samples = int(UNTIL_STOP_QUIET_S * config["rate_hz"]) * config["channels"]
+        while samples < target and not stopped:
             try:
                 items = session.read()
             except LinkLost as exc:
@@ -182,12 +195,16 @@ def _record(port: serial.Serial, args: argparse.Namespace, out_path: Path) -> in
                         last_data = time.monotonic()
                     elif item.name == "tach":
                         tach_edges += 1
+                        last_edge_samples = samples
                 elif isinstance(item, LinkEvent) and item.kind == "board_reset":
                     # The board restarted (brown-out, loose cable, watchdog): its stream has
                     # stopped and its clock restarted, so this recording cannot go on.
                     raise UserError(f"{item.detail}; {_kept(samples, target, args.seconds, out_path)}"
                                     "; check the USB cable and the board's power, then record "
                                     "again")
+            if args.until_stop and last_edge_samples is not None and \
+                    samples - last_edge_samples >= quiet_samples:
+                stopped = True
             now = time.monotonic()
             if now - last_data > STALL_TIMEOUT_S:
                 raise UserError(f"no samples from {args.port} for {STALL_TIMEOUT_S:g} s; "
@@ -217,9 +234,13 @@ def _record(port: serial.Serial, args: argparse.Namespace, out_path: Path) -> in
     seconds = samples / (args.rate_hz * args.channels)
     summary = {"file": str(out_path), "seconds": round(seconds, 3),
                "rate_hz": args.rate_hz, "channels": args.channels, "samples": samples,
-               "tach_edges": tach_edges, "interrupted": interrupted, "link": c.to_json()}
+               "tach_edges": tach_edges, "interrupted": interrupted,
+               "stopped_at_standstill": stopped, "link": c.to_json()}
     if not args.quiet:
         sys.stderr.write("\n" if sys.stderr.isatty() else "")
+    if stopped:
+        print(f"the rotor stopped (no tach edge for {UNTIL_STOP_QUIET_S:g} s): recording ended",
+              file=sys.stderr)
     print(f"{'interrupted, kept' if interrupted else 'wrote'} {out_path}: {seconds:.2f} s, "
           f"{args.channels} ch x {args.rate_hz} Hz, {tach_edges} tach edges; link: "
           f"{c.frames_ok} frames, {c.frames_bad} bad, {c.frames_lost} lost, "

@@ -27,16 +27,19 @@ import os
 import re
 import shutil
 import subprocess
+import xml.etree.ElementTree as ET
+from collections import Counter
 from pathlib import Path
 
 import pytest
 
 from trueturn.jobs import JobRecord
 from trueturn.jobs.report import html_report
-from trueturn.jobs.ring import plan_tiles, ring_svg, ring_tiles_html
+from trueturn.jobs.ring import plan_tiles, ring_svg, ring_tiles_html, strip_svg
 from trueturn.jobs.store import read_document
 
 DEMO_JOB = Path(__file__).parent / "data" / "demo_bench_grinder_job.yaml"
+SVG = "{http://www.w3.org/2000/svg}"
 PT_PER_MM = 72 / 25.4  # PDF user space is 1/72 in; 1 in = 25.4 mm
 PAPER_MM = {"A4": (210.0, 297.0), "letter": (215.9, 279.4)}  # ISO 216; ANSI/ASME Y14.1
 REPORT_MARGIN_MM = 12.0
@@ -159,6 +162,16 @@ def overlapping(words: list[Word]) -> list[tuple[str, str]]:
                     and min(a.y1, b.y1) - max(a.y0, b.y0) > 0.1):
                 pairs.append((a.text, b.text))
     return pairs
+
+
+def merged_words(svg_text: str, words: list[Word]) -> list[str]:
+    """Words of the SVG's texts that the PDF does not have on their own: two texts printed
+    so close that their glyphs touch come out as one word (``100110``), which a box overlap
+    test cannot see."""
+    wanted = Counter(token for t in ET.fromstring(svg_text.encode()).iter(f"{SVG}text")
+                     for token in "".join(t.itertext()).split())
+    printed = Counter(w.text for w in words)
+    return sorted(token for token, n in wanted.items() if printed[token] < n)
 
 
 def smallest_pt(words: list[Word], known: Word, known_pt: float) -> float:
@@ -331,6 +344,7 @@ def test_ring_prints_at_scale_legible_and_without_overprint(
     header = next(w for w in page.words if w.text == "trueturn")  # 3 mm = 8.5 pt
     assert smallest_pt(page.words, header, 3.0 * PT_PER_MM) >= MIN_PT - 0.1
     assert not overlapping(page.words)
+    assert not merged_words(text, page.words)
     assert all(5.0 <= w.x0 and w.x1 <= width - 5.0 for w in page.words)  # on the sheet
     page_pixels(pdf, 1)  # kept as PNG for a look
 
@@ -360,3 +374,24 @@ def test_tiled_ring_sheets_print_whole_with_their_own_check(paper: str,
         assert ruler_length_mm(words, "0", "5", 6) == pytest.approx(50.0, rel=0.005)
         assert not overlapping(words), number
         page_pixels(pdf, number, dpi=50)
+
+
+@pytest.mark.parametrize("paper", ["A4", "letter"])
+@pytest.mark.parametrize(("diameter_mm", "positions"), [(120.0, 8), (50.0, 36)])
+def test_rim_strip_prints_at_scale_without_overprint(diameter_mm: float, positions: int,
+                                                     paper: str, tmp_path: Path) -> None:
+    text, layout = strip_svg(diameter_mm, positions, title="Pulley rim, belt side")
+    source = tmp_path / f"strip-{diameter_mm:g}-{positions}.svg"
+    source.write_text(text, encoding="utf-8")
+    pdf = print_pdf(source, paper, tmp_path)
+    pages = pdf_pages(pdf)
+    assert len(pages) == 1
+    page = pages[0]
+    width, _ = PAPER_MM[paper]
+    assert ruler_length_mm(page.words, "0", "10", 11) == pytest.approx(100.0, rel=0.005)
+    header = next(w for w in page.words if w.text == "trueturn")  # 3 mm = 8.5 pt
+    assert smallest_pt(page.words, header, 3.0 * PT_PER_MM) >= MIN_PT - 0.1
+    assert not overlapping(page.words)
+    assert not merged_words(text, page.words)
+    assert all(5.0 <= w.x0 and w.x1 <= width - 5.0 for w in page.words)
+    page_pixels(pdf, 1)

@@ -863,9 +863,11 @@ def html_report(job: JobRecord, generated: str = "") -> str:
     figures += [f'<figure class="plane-fig">{plane_svg(job, p.name)}<figcaption>{_e(p.name)}, '
                 f'seen from the {p.face}: {_e(parts_text(job, p.name))}.</figcaption></figure>'
                 for p in m.planes]
-    parts += ['<div class="figures">', *figures, '</div>']
     header, rows = run_rows(job)
+    # the runs table before the plots: it fits under the result on the first page, and the
+    # plots (about 95 mm tall) start the next one instead of leaving half a page empty
     parts += ['<h2>Runs</h2>', _html_table(header, rows, "runs")]
+    parts += ['<div class="figures">', *figures, '</div>']
     rows = correction_rows(job)
     parts.append('<h2>Corrections and parts</h2>')
     if rows:

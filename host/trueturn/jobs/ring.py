@@ -556,10 +556,15 @@ def strip_svg(diameter_mm: float, positions: int | None, first_deg: float = 0.0,
     x0 = MARGIN_MM
     step = lay_ring.tick_step_deg
     gap_mm = length * min_gap_deg(lay.position_angles_deg) / 360.0
+    widest = text_width_mm(str(positions), 3.4, bold=True)
+    # numbers right of their mark inside the strip when they fit before the next mark, else
+    # centred under the strip, every 2nd, 3rd, ... so that they do not touch
+    numbers_below = gap_mm < 0.8 + widest + 0.6
     number_every = 1
-    while (number_every < positions
-           and gap_mm * number_every < text_width_mm(str(positions), 3.4, bold=True) + 1.0):
+    while numbers_below and number_every < positions and gap_mm * number_every < widest + 1.0:
         number_every += 1
+    deg_every = next((e for e in (10, 30, 45, 90)
+                      if length * e / 360.0 >= text_width_mm("350", MIN_TEXT_MM) + 1.5), 90)
     out = [
         '<?xml version="1.0" encoding="UTF-8"?>',
         f'<svg xmlns="http://www.w3.org/2000/svg" width="{lay.width_mm:g}mm" '
@@ -589,7 +594,8 @@ def strip_svg(diameter_mm: float, positions: int | None, first_deg: float = 0.0,
                    'stroke-dasharray="1 1"/>')
         out.append(f'<text x="{x0 + seg + STRIP_TAB_MM / 2:.2f}" y="{y + 8:g}" '
                    f'text-anchor="middle" class="small">{tab_text}</text>')
-        out.append(f'<text x="{x0 + seg / 2:.2f}" y="{y + STRIP_HEIGHT_MM + 2.6:g}" '
+        arrow_y = y + STRIP_HEIGHT_MM + (7.2 if numbers_below else 2.6)
+        out.append(f'<text x="{x0 + seg / 2:.2f}" y="{arrow_y:g}" '
                    'text-anchor="middle" class="small">\u2190 rim moves this way \u2190</text>')
         for deg in range(0, 360, step):
             s = deg / 360.0 * length
@@ -599,9 +605,10 @@ def strip_svg(diameter_mm: float, positions: int | None, first_deg: float = 0.0,
             tick = 4.0 if deg % 10 == 0 else 2.8 if deg % 5 == 0 else 1.6
             out.append(f'<line class="degree-tick" data-deg="{deg}" x1="{x:.4f}" y1="{y:g}" '
                        f'x2="{x:.4f}" y2="{y + tick:g}" stroke="#000" stroke-width="0.15"/>')
-            if deg % 10 == 0:
-                out.append(f'<text x="{x:.3f}" y="{y + 6.2:g}" text-anchor="middle" '
-                           f'class="deg">{deg}</text>')
+            if deg % deg_every == 0 and x + 2.0 < x0 + seg:
+                anchor = ' text-anchor="middle"' if deg else ""  # 0: clear of the left edge
+                out.append(f'<text x="{x + (0.5 if deg == 0 else 0.0):.3f}" y="{y + 6.2:g}"'
+                           f'{anchor} class="deg">{deg}</text>')
         for k, angle in enumerate(lay.position_angles_deg):
             s = angle / 360.0 * length
             if not start - 1e-9 <= s < start + seg - 1e-9:
@@ -610,7 +617,10 @@ def strip_svg(diameter_mm: float, positions: int | None, first_deg: float = 0.0,
             out.append(f'<line class="position-mark" data-position="{number_of(k)}" '
                        f'data-angle-deg="{angle:g}" x1="{x:.4f}" y1="{y + 7:g}" x2="{x:.4f}" '
                        f'y2="{y + STRIP_HEIGHT_MM:g}" stroke="#000" stroke-width="0.45"/>')
-            if k % number_every == 0:
+            if k % number_every == 0 and numbers_below:
+                out.append(f'<text x="{x:.3f}" y="{y + STRIP_HEIGHT_MM + 3.2:g}" '
+                           f'text-anchor="middle" class="pos">{number_of(k)}</text>')
+            elif k % number_every == 0:
                 out.append(f'<text x="{x + 0.8:.3f}" y="{y + STRIP_HEIGHT_MM - 1.2:g}" '
                            f'class="pos">{number_of(k)}</text>')
         out.append("</g>")

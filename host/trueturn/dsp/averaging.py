@@ -170,6 +170,74 @@ def vector_stats(vectors: np.ndarray, level: float = 0.95) -> VectorStats:
                        subtended_deg(radius, abs(mean)), drift, drift_radius)
 
 
+#: the alternating part of the per-revolution 1x vectors counts as a half-order line only
+#: beyond this level of the circular T^2 test: a reading without one is paired by chance
+#: once in a thousand (and is then still right, only its circle a little wider)
+HALF_ORDER_LEVEL = 0.999
+MIN_PAIRS = 4
+
+
+@dataclass(frozen=True)
+class PairedVectors:
+    """Per-revolution vectors, or their means over consecutive pairs when a half-order line
+    was found (``paired``); ``alternating``: the mean alternating part (the line's leak into
+    one revolution's 1x), 0 when not tested."""
+
+    vectors: np.ndarray
+    paired: bool
+    alternating: complex = 0j
+
+
+def pair_half_order(vectors: np.ndarray) -> PairedVectors:
+    """Average over whole pairs of revolutions when a line at 0.5x leaks into the 1x.
+
+    A tone at exactly half the running speed (a 2:1 belt or gear, a half-speed rub) is
+    ``cos(theta/2 + phi)``: over one revolution it is no sine of the shaft angle, and its
+    least-squares projection onto the 1x columns changes sign from one revolution to the
+    next (``cos`` of ``theta/2 + pi`` is ``-cos``). The per-revolution 1x vectors are then
+    ``z_k = mu + (-1)^k e + noise``: the mean over an even number of revolutions is unbiased,
+    but the scatter (and so the 95 % circle) carries ``|e|`` and the reading may never be
+    steady. Choice (issue #22): rather than a joint least-squares fit of a 0.5x column
+    (which needs the parity of every revolution across gaps and fails when a belt slips a
+    little, so the line is not exactly at 0.5x), the 1x is averaged over whole pairs of
+    consecutive revolutions, where the leak cancels exactly for a locked line and nearly
+    for one within a few percent of 0.5x; the statistics then run on the pair means.
+    Pairing is chosen only when the alternating part ``d_k = (z_2k - z_2k+1)/2`` has a mean
+    the circular T^2 test puts beyond chance (``HALF_ORDER_LEVEL``), so an ordinary reading
+    keeps its revolution-by-revolution circle.
+
+    Parameters
+    ----------
+    vectors : numpy.ndarray
+        One complex 1x phasor per revolution, oldest first.
+
+    Returns
+    -------
+    PairedVectors
+        The newest even number of revolutions as pair means (the oldest one dropped when
+        odd) when a half-order line was found, else the vectors as given.
+
+    References
+    ----------
+    .. [1] Circular T^2 statistic: J. D. Victor, J. Mast, Electroencephalogr. Clin.
+       Neurophysiol. 78 (1991) 378-388 (from memory).
+    .. [2] Projection of ``cos(theta/2)`` on one period of ``cos theta, sin theta``: the
+       integrals over [0, 2 pi) (elementary calculus; common practice, no source).
+    """
+    z = np.asarray(vectors, dtype=complex)
+    pairs = z.size // 2
+    if pairs < MIN_PAIRS:
+        return PairedVectors(z, False)
+    even = z[z.size - 2 * pairs:].reshape(pairs, 2)
+    d = 0.5 * (even[:, 0] - even[:, 1])
+    d_mean = complex(d.mean())
+    var = float((np.abs(d - d_mean) ** 2).sum() / (pairs - 1))
+    t2 = pairs * abs(d_mean) ** 2 / var if var > 0 else (math.inf if d_mean else 0.0)
+    if t2 <= f_quantile(HALF_ORDER_LEVEL, 2, 2 * pairs - 2):
+        return PairedVectors(z, False, d_mean)
+    return PairedVectors(even.mean(axis=1), True, d_mean)
+
+
 @dataclass(frozen=True)
 class SteadinessLimits:
     """When a reading is ready: enough revolutions, steady speed, tight or settled vector.

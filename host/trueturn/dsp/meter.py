@@ -32,6 +32,7 @@ import numpy as np
 from trueturn.dsp.averaging import (
     SteadinessLimits,
     VectorStats,
+    pair_half_order,
     steadiness,
     subtended_deg,
     vector_stats,
@@ -870,9 +871,18 @@ class LiveAnalyzer:
                                     details={"asked_unit": unit}))
         k1 = self.orders.index(1)
         vectors = est.phasors[:, k1] * vpc * factors
-        vstats: VectorStats = vector_stats(vectors)
+        # a line at 0.5x alternates in the per-revolution 1x: then whole pairs of revolutions
+        paired = pair_half_order(vectors)
+        vstats: VectorStats = vector_stats(paired.vectors)
+        used_revs = len(vectors)
+        if paired.paired:
+            used_revs = 2 * len(paired.vectors)
+            vstats = dataclasses.replace(vstats, revolutions=used_revs)
         steady, reasons = steadiness(vstats, speeds, self.limits, profile.name)
         findings += reasons
+        if paired.paired:  # a note, after what blocks the reading
+            findings.append(Finding(Code.HALF_ORDER, profile.name, details={
+                "level": abs(paired.alternating), "unit": used_unit}))
         mean_hz = float(freqs_hz.mean()) if freqs_hz.size else math.nan
         groups = self._hum_groups()
         for base, comb in groups.items():
@@ -884,7 +894,8 @@ class LiveAnalyzer:
         harmonics = []
         levels: dict[str, float] = {}  # volts pk, as the spectrum sees them (no chain)
         for k, h in enumerate(self.orders):
-            mean_v = complex(est.phasors[:, k].mean()) * vpc if len(est.phasors) else 0j
+            mean_v = complex(est.phasors[len(est.phasors) - used_revs:, k].mean()) * vpc \
+                if len(est.phasors) else 0j
             levels[f"{h}x"] = abs(mean_v)
             value, _ = convert_phasor(mean_v, profile, h * mean_hz, unit) \
                 if math.isfinite(mean_hz) else (0j, unit)

@@ -20,9 +20,13 @@ from trueturn.link.codec import encode_frame
 
 @dataclass(frozen=True)
 class OrderComponent:
-    """``amplitude_counts * cos(order * theta - phase)``: positive peak ``phase/order`` after the mark."""
+    """``amplitude_counts * cos(order * theta - phase)``: positive peak ``phase/order`` after the mark.
 
-    order: int
+    ``order`` 0.5 is a line locked at half the running speed (a 2:1 belt or gear), theta
+    counted from the first edge on, so it alternates in sign from one revolution to the next.
+    """
+
+    order: float
     amplitude_counts: float
     phase_deg: float
 
@@ -76,7 +80,7 @@ class SyntheticTruth:
     """Exact values behind a synthetic stream."""
 
     edge_ticks: list[int] = field(default_factory=list)
-    order_phasors: list[dict[int, complex]] = field(default_factory=list)
+    order_phasors: list[dict[float, complex]] = field(default_factory=list)
     mean_speed_rpm: float = 0.0
 
 

@@ -18,6 +18,7 @@ import numpy as np
 import pytest
 from scipy import signal
 
+from trueturn.dsp.findings import Code, describe
 from trueturn.dsp.synthetic import OrderComponent, SyntheticRun, ToneComponent, synthesize
 from trueturn.dsp.tachless import (
     CIRCLE95_SIGMAS,
@@ -145,3 +146,15 @@ def test_band_and_inputs_are_checked() -> None:
         speed_band_hz(0.0)
     with pytest.raises(ValueError, match="band_hz"):
         TachlessMeter([], (60.0, 50.0))
+
+
+def test_no_line_in_the_band_is_said_and_no_reading_is_made() -> None:
+    # the machine runs at 3540 rpm but the profile plans 2400: nothing in the band, no
+    # reading (never the strongest line elsewhere), and the finding says why
+    run = SyntheticRun(speed_rpm=3540.0, duration_s=5.0, noise_counts=3.0, seed=2,
+                       missing_edges=tuple(range(10_000)))
+    meter = _meter_on(run, speed_band_hz(2400.0, 2600.0))
+    assert meter.readings() == []
+    (finding,) = meter.stream_findings()
+    assert finding.code is Code.NO_SPEED_LINE
+    assert "between 2160 and 2600 rpm" in describe(finding)

@@ -57,6 +57,7 @@ class Code(str, Enum):
     NOT_ABOVE_SCATTER = "not_above_scatter"          # the 95 % circle covers the origin
     ORDER_ON_MAINS = "order_on_mains"                # an order too close to a hum frequency
     HALF_ORDER = "half_order"                        # a line at 0.5x: averaged over rev pairs
+    NO_SPEED_LINE = "no_speed_line"                  # no tach, and no steady line in the band
     # is it unbalance? (dsp/unbalance.py: evidence per pickup with ``ok``, then one verdict)
     ONE_X_SHARE = "one_x_share"                      # 1x against the broadband velocity
     PHASE_STEADINESS = "phase_steadiness"            # 1x phase steady within the run
@@ -264,6 +265,11 @@ def _sentence(f: Finding) -> str:
                 "with speed, so readings taken a little apart in speed disagree and the "
                 "correction is touchy; balance at a speed further away if the machine "
                 "allows, keep every run at the same speed, and expect trim runs")
+    if c is Code.NO_SPEED_LINE:
+        return (f"no steady line between {_n(f, 'low_rpm'):.0f} and {_n(f, 'high_rpm'):.0f} rpm "
+                "in the last 4 s: without a tach the speed comes from the spectrum, so run the "
+                "machine steadily at its planned speed (a speed still changing, or on the "
+                "mains line, gives no reading)")
     if c is Code.HALF_ORDER:
         return (f"a line at half the running speed ({_n(f, 'level'):.3g} {f.details.get('unit', '')}"
                 " in the 1x fit; a 2:1 belt or gear, a rub?): the 1x is averaged over whole "

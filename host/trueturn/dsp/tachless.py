@@ -29,8 +29,13 @@ variance ``v / K``; it travels as ``confidence_radius``, a circle of ``CIRCLE95_
 standard errors, as the influence-coefficient readings' circles do (the amplitude alone is
 inside ``±1.96/2.45`` of it with 95 %).
 
+A segment counts only when its line stands ``LINE_SNR_POWER`` (power) above the noise beside
+it at one pickup at least.
+
 Limits, said plainly: a running speed within ``MAINS_GUARD_HZ`` of the mains line (or its
-double) cannot be told from hum without a tach and gives no reading; a line stronger than
+double) cannot be told from hum without a tach and gives no reading; neither does a 1x lost
+in the noise at every pickup (a rotor already very well balanced: without a tach its speed
+cannot be found; the finding ``no_speed_line`` says so); a line stronger than
 the 1x inside the band (a belt, a neighbour machine) would be taken for it — the band is the
 profile's, so keep the planned speed right; speed wander within a segment widens the line a
 little and reads a little low, the same in every run at that speed.
@@ -59,6 +64,7 @@ import numpy as np
 from scipy import signal, stats
 from scipy.optimize import minimize_scalar
 
+from trueturn.dsp.findings import Code, Finding
 from trueturn.dsp.spectrum import refine_peak_hz
 from trueturn.dsp.units import PickupProfile, conversion_factors, default_unit
 from trueturn.model import Reading
@@ -72,6 +78,9 @@ SPEED_AGREE = 0.01  # halves of a segment, and segments averaged, agree within 1
 NOISE_SPAN_HZ = 10.0  # the noise level is read within this much of the line
 LOBE_GUARD_BINS = 4  # the Hann main lobe is +/-2 bins; twice that is left out
 PAD = 8  # zero padding of the coarse search
+#: a line stands this far (power) above the noise beside it at one pickup at least: noise
+#: alone reaches it in a bin with probability exp(-16), about 1e-7 (an exponential variable)
+LINE_SNR_POWER = 16.0
 #: a 95 % circle holds a 2-D normal within this many per-axis sigmas (sqrt(-2 ln 0.05))
 CIRCLE95_SIGMAS = math.sqrt(-2.0 * math.log(0.05))
 NORMAL95 = 1.959963984540054  # two-sided 95 % quantile of the normal distribution
@@ -233,7 +242,10 @@ def segment_line(volts: np.ndarray, rate_hz: float, band_hz: tuple[float, float]
     noise = (np.median(spectrum[:, near], axis=-1) / math.log(2.0) if near.any()
              else np.zeros(x.shape[0]))
     var = 2.0 * noise / gain ** 2
-    amp2 = np.abs(z) ** 2 - 2.0 * var
+    power = np.abs(z) ** 2
+    if not np.any(power >= LINE_SNR_POWER * 2.0 * var):
+        return None  # the strongest bin of noise, not a line
+    amp2 = power - 2.0 * var
     return SegmentLine(f_hz, tuple(float(math.sqrt(max(a, 0.0))) for a in amp2),
                        tuple(float(v) for v in var))
 
@@ -382,6 +394,23 @@ class TachlessMeter:
                 break
             out.append(seg)
         return out[::-1]
+
+    def stream_findings(self) -> list[Finding]:
+        """``no_speed_line`` when the newest segment held no steady line in the band.
+
+        Returns
+        -------
+        list of Finding
+            Empty, or one finding (pickup None) with the band in rpm.
+
+        References
+        ----------
+        .. [1] See the module docstring (the segment's rules; ours).
+        """
+        if not self.segments or self.segments[-1] is not None:
+            return []
+        return [Finding(Code.NO_SPEED_LINE, details={"low_rpm": 60.0 * self.band_hz[0],
+                                                     "high_rpm": 60.0 * self.band_hz[1]})]
 
     @property
     def speed_rpm(self) -> float:

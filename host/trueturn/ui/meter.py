@@ -166,6 +166,7 @@ class MeterAdapter:
             out.speed_rpm = speed if math.isfinite(speed) else None
             out.unit = next((r.unit for r in out.readings.values()), out.unit)
             out.findings = [f for f in out.findings if f.code is not Code.NO_TACH]
+            out.findings += self.tachless.stream_findings()
         out.warnings = [describe(f) for f in out.findings]
         out.tach_faults = tuple(describe(f, brief=True) for f in tach_faults(out.findings))
         if self.spectrum_wanted:

@@ -27,6 +27,7 @@ from textual.reactive import reactive
 from textual.widgets import ContentSwitcher, ProgressBar, Static
 
 from trueturn.angles import wrap_deg
+from trueturn.dsp.findings import Code, describe
 from trueturn.jobs.profiles import MachineProfile
 from trueturn.model import Correction, PlacedMass, Reading, Verdict
 from trueturn.model.result import WITHHOLDING_FLAGS
@@ -256,6 +257,7 @@ class RunPanel(ProcedurePanel):
     readings: reactive[tuple[tuple[str, Reading | None], ...]] = reactive(())
     tach_silent_s: reactive[float | None] = reactive(None)  # None: the tach is seen
     no_tach: reactive[bool] = reactive(False)  # amplitude only: speed and 1x from the spectrum
+    no_line: reactive[str] = reactive("")  # no tach, and no steady line in the speed band
     tach_faults: reactive[tuple[str, ...]] = reactive(())
     not_ready: reactive[str] = reactive("")
 
@@ -277,6 +279,8 @@ class RunPanel(ProcedurePanel):
             self.no_tach = proc.setup.mode is Mode.AMPLITUDE_ONLY
             self.tach_silent_s = None if ctx.tach_live or self.no_tach else snap.quiet_s
             self.tach_faults = tuple(meter.tach_faults[:2])
+            self.no_line = next((describe(f) for f in meter.findings
+                                 if f.code is Code.NO_SPEED_LINE), "")
             waiting = [r for _, r in self.readings if r is not None and not proc.settled(r)]
             own = [w for r in waiting for w in meter.pickup_warnings(r.sensor)]
             self.not_ready = (own[0] if own else texts.NOT_READY_WHY) if waiting else ""
@@ -335,6 +339,8 @@ class RunPanel(ProcedurePanel):
             lines.append(f"[b red]No tach edge for {self.tach_silent_s:.1f} s (spinning up? "
                          "tach not seeing its mark?): nothing is kept meanwhile.[/]")
         lines += [f"[yellow]Tach: {f}[/]" for f in self.tach_faults]
+        if self.no_tach and self.no_line:
+            lines.append(f"[yellow]{self.no_line}[/]")
         if self.not_ready:
             lines.append(f"[yellow]Not ready: {self.not_ready}[/]")
         lines.append(texts.A_STOP_RUN)

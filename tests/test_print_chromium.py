@@ -276,6 +276,8 @@ def test_report_plot_labels_clear_of_markers_in_chromium(job: JobRecord, tmp_pat
     clashes = [line for line in lines if line.startswith("clash")]
     assert not clashes
     assert any(line.startswith("labels ") and int(line.split()[1]) >= 4 for line in lines)
+    assert sum(int(line.split()[1]) for line in lines if line.startswith("parts ")) == len(
+        job.parts_on_rotor())
 
 
 _PROBE = """<pre id="probe"></pre><script>
@@ -295,6 +297,13 @@ for (const svg of document.querySelectorAll('svg.polar, svg.plane')) {
     labels.forEach((b, j) => { if (j > i && hit(a, b)) out.push('clash label ' + i + ' label ' + j); });
   });
   if (svg.classList.contains('polar')) out.push('labels ' + labels.length);
+  if (svg.classList.contains('plane')) {  // position numbers clear of the parts drawn on the rim
+    const parts = [...svg.querySelectorAll('.part')].map(m => m.getBoundingClientRect());
+    [...svg.querySelectorAll('text')].map(t => t.getBoundingClientRect()).forEach((a, i) => {
+      parts.forEach((m, j) => { if (hit(a, m)) out.push('clash plane text ' + i + ' part ' + j); });
+    });
+    out.push('parts ' + parts.length);
+  }
 }
 document.getElementById('probe').textContent = out.join('\\n');
 </script>"""

@@ -230,10 +230,10 @@ def _number_placement(radius: float, band: float, angles: tuple[float, ...]
 
 def plan_ring(diameter_mm: float, positions: int | None, first_deg: float = 0.0,
               rotation: Rotation = "cw", title: str = "",
-              angles_deg: Sequence[float] | None = None) -> RingLayout:
+              angles_deg: Sequence[float] | None = None, furniture: bool = True) -> RingLayout:
     """Size the drawing for a ring of ``diameter_mm`` with numbered marks: ``positions``
     equally spaced from ``first_deg``, or the irregular list ``angles_deg`` (position 1
-    first)."""
+    first); ``furniture``: leave room under it for the check box and the caution."""
     if not (math.isfinite(diameter_mm) and 10.0 <= diameter_mm <= 2000.0):
         raise ValueError("diameter must be between 10 and 2000 mm")
     if rotation not in ("cw", "ccw"):
@@ -254,7 +254,7 @@ def plan_ring(diameter_mm: float, positions: int | None, first_deg: float = 0.0,
     if irregular:
         list_lines = len(_angle_list_lines(angles, width))
     height = (MARGIN_MM + header + above + diameter_mm + outside + 4.0
-              + list_lines * _line_height("small") + 34.0 + MARGIN_MM)
+              + list_lines * _line_height("small") + (34.0 if furniture else 0.0) + MARGIN_MM)
     centre = (width / 2.0, MARGIN_MM + header + above + radius)
     notes = []
     gap_mm = math.pi * diameter_mm * min_gap_deg(angles) / 360.0
@@ -290,7 +290,7 @@ def ring_svg(diameter_mm: float, positions: int | None, first_deg: float = 0.0,
     than a sheet) the hint to print it in tiles; :func:`ring_tiles_html` draws its own on
     every sheet instead.
     """
-    lay = plan_ring(diameter_mm, positions, first_deg, rotation, title, angles_deg)
+    lay = plan_ring(diameter_mm, positions, first_deg, rotation, title, angles_deg, furniture)
     r = diameter_mm / 2.0
     cx, cy = lay.centre_mm
     band = lay.band_mm

@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import json
 import math
+import re
 
 import pytest
 
@@ -194,3 +195,15 @@ def test_solve_refuses_a_field_given_both_ways(tmp_path):
     assert code == 2 and out == ""
     assert err.strip() == f"trueturn solve: {path}:2: radius_in: give radius_mm or radius_in, " \
         "not both"
+
+
+def test_solve_warns_of_a_large_correction_in_the_units_of_the_file(tmp_path):
+    # a 0.5 lb rotor asking for about 9 g (0.3 oz): over 1 % of the rotor's mass (common
+    # practice, no source) is flagged, in oz for an imperial file
+    path = tmp_path / "large.yaml"
+    path.write_text(TWO_TRIALS % {"r": "in", "radius": 3, "m": "oz", "mass": 0.2,
+                                  "w": "lb", "rotor": 0.5}, encoding="utf-8")
+    code, out, err = run_cli(["solve", str(path)])
+    assert code == 0, err
+    large = [line for line in out.splitlines() if "LARGE CORRECTION" in line]
+    assert large and re.search(r"\d oz is", large[0]) and " g is" not in large[0]

@@ -142,7 +142,8 @@ def _phasor_json(value: complex, has_phase: bool, scale: float = 0.0) -> dict[st
     return {"amp": _r(amp, 6), "phase_deg": _r(phase, 2) if has_phase else None}
 
 
-def report_json(report: SolveReport, has_phase: bool) -> dict[str, Any]:
+def report_json(report: SolveReport, has_phase: bool,
+                shown: UnitChoice = METRIC) -> dict[str, Any]:
     """The stable JSON contract of `solve` (plus extra fields documented in the README)."""
     s = report.solution
     out: dict[str, Any] = {
@@ -151,7 +152,7 @@ def report_json(report: SolveReport, has_phase: bool) -> dict[str, Any]:
         "predicted_residual": {k: _phasor_json(v, has_phase, _scale(report))
                                for k, v in s.predicted_residual.items()},
         "condition_number": _r(s.condition_number, 3),
-        "warnings": list(s.warnings) + speed_warnings(report) + size_warnings(report),
+        "warnings": list(s.warnings) + speed_warnings(report) + size_warnings(report, shown),
         "trial_masses": s.trial_masses,
         "on_rotor_now": [{"plane": m.plane, "mass_g": m.mass_g, "angle_deg": m.angle_deg}
                          for m in s.on_rotor_now],
@@ -214,11 +215,13 @@ def speed_warnings(report: SolveReport) -> list[str]:
     return lines
 
 
-def size_warnings(report: SolveReport) -> list[str]:
+def size_warnings(report: SolveReport, shown: UnitChoice = METRIC) -> list[str]:
     """Corrections large against the rotor's mass, loudly; clipped readings left out."""
     clipped = [f"run '{label}', pickup {sensor}: the reading clipped and was left out of the "
                "coefficients; reduce the pickup's gain" for label, sensor in report.solution.clipped]
-    return clipped + [f"LARGE CORRECTION: plane {f.plane}: {f.mass_g:.4g} g is {100 * f.share_of_rotor:.2g} % "
+    return clipped + [f"LARGE CORRECTION: plane {f.plane}: "
+                      f"{mass_from_g(f.mass_g, shown.mass):.4g} {shown.mass} is "
+                      f"{100 * f.share_of_rotor:.2g} % "
             "of the rotor's mass; check the runs before fitting it, and that the plane can hold "
             "it at speed" for f in report.correction_findings]
 
@@ -365,7 +368,7 @@ def report_text(report: SolveReport, has_phase: bool, shown: UnitChoice = METRIC
                      f"{(sc.couple_angle_deg + 180) % 360:.1f}°")
     if report.verdict is not None:
         lines += verdict_text(report, shown)
-    for w in [*s.warnings, *speed_warnings(report), *size_warnings(report)]:
+    for w in [*s.warnings, *speed_warnings(report), *size_warnings(report, shown)]:
         lines.append(f"warning: {w}")
     lines += ["", CAUTION]
     return "\n".join(lines)
@@ -381,7 +384,7 @@ def run(args: argparse.Namespace) -> int:
     except UserError as exc:
         raise UserError(f"{name}: {exc}") from None
     if args.json:
-        data = report_json(report, inp.has_phase)
+        data = report_json(report, inp.has_phase, shown)
         print_json(json_in_units(data, shown) if imperial else data)
     else:
         print(report_text(report, inp.has_phase, shown))

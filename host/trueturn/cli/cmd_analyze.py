@@ -1,4 +1,5 @@
-"""``trueturn analyze CAPTURE``: order-tracked 1x amplitude and phase per pickup from a capture."""
+"""``trueturn analyze CAPTURE [SECOND_START]``: order-tracked 1x amplitude and phase per pickup
+from a capture; with a second start of the same machine, whether its 1x repeats."""
 
 from __future__ import annotations
 
@@ -9,7 +10,7 @@ from pathlib import Path
 from typing import Any
 
 from trueturn.cli.common import open_capture, print_json
-from trueturn.dsp.analysis import ALL_REVS, Analysis, analyze_capture
+from trueturn.dsp.analysis import ALL_REVS, Analysis, analyze_capture, compare_starts
 from trueturn.dsp.findings import Code, Finding, describe
 from trueturn.dsp.spectrum import SpectrumPeak
 from trueturn.dsp.units import UNITS, PickupProfile, pickup_profile
@@ -35,6 +36,11 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                     "and the labelled spectrum peaks. Phase is the lag of the 1x positive "
                     "peak after the tach edge, 0-360 degrees.")
     parser.add_argument("capture", help="capture file (or a plain file of frames)")
+    parser.add_argument("second", nargs="?", metavar="SECOND_START",
+                        help="a capture of a second start of the same machine, as found, "
+                             "after a stop: is its 1x the same (within a tenth of the 1x "
+                             "beyond both 95 %% circles)? A steady unbalance repeats; a 1x "
+                             "that moves points at a part that shifts. Same speed within 3 %%")
     parser.add_argument("--revs", type=int, metavar="N",
                         help="average the last N good revolutions (default: all)")
     parser.add_argument("--json", action="store_true", help="print JSON instead of a table")
@@ -149,7 +155,31 @@ def run(args: argparse.Namespace) -> int:
         if not args.sweep:
             raise UserError("--plot draws a sweep: give --sweep too")
         plot_path = check_output(args.plot)  # before the work: the one output rule
-    with open_capture(args.capture) as reader:
+    result = _analyze_file(args.capture, args)
+    if args.second is not None:
+        second = _analyze_file(args.second, args)
+        try:
+            result = compare_starts(result, second)
+        except ValueError as exc:
+            raise UserError(f"{one_line(args.capture)} and {one_line(args.second)}: "
+                            f"{exc}") from None
+    if plot_path is not None and result.sweep is not None:
+        try:
+            atomic_write_text(plot_path, sweep_svg(result.sweep, f"1x against speed, "
+                                                   f"{Path(args.capture).name}"))
+        except OSError as exc:
+            raise UserError(f"cannot write {one_line(plot_path)}: "
+                            f"{exc.strerror or exc}") from None
+    if args.json:
+        print_json(result.to_json())
+    else:
+        print(format_table(result))
+    return 0
+
+
+def _analyze_file(name: str, args: argparse.Namespace) -> Analysis:
+    """One capture analysed with the options given; refused when it gives no 1x reading."""
+    with open_capture(name) as reader:
         metadata = reader.metadata
         mains = args.mains_hz
         if mains is None:
@@ -164,26 +194,15 @@ def run(args: argparse.Namespace) -> int:
                                  profiles=_profiles(args, metadata), unit=unit,
                                  identity=stored_identity if isinstance(stored_identity, dict)
                                  else None, observe=watch, sweep=args.sweep)
-    _check_protocol(args.capture, watch.identities)
+    _check_protocol(name, watch.identities)
     short = watch.incomplete(metadata)
     if short:
         result = dataclasses.replace(result, warnings=(describe(short), *result.warnings),
                                      findings=(short, *result.findings))
     if not result.readings:
         why = result.warnings[0] if result.warnings else "no samples and tach edges found"
-        raise UserError(f"{one_line(args.capture)}: no 1x reading could be made ({why})")
-    if plot_path is not None and result.sweep is not None:
-        try:
-            atomic_write_text(plot_path, sweep_svg(result.sweep, f"1x against speed, "
-                                                   f"{Path(args.capture).name}"))
-        except OSError as exc:
-            raise UserError(f"cannot write {one_line(plot_path)}: "
-                            f"{exc.strerror or exc}") from None
-    if args.json:
-        print_json(result.to_json())
-    else:
-        print(format_table(result))
-    return 0
+        raise UserError(f"{one_line(name)}: no 1x reading could be made ({why})")
+    return result
 
 
 class _Watch:
@@ -284,6 +303,15 @@ def format_table(result: Analysis) -> str:
     if result.severity:
         lines += ["", "overall severity (ISO 10816-1 Class I zones, boundaries from memory):"]
         lines += [f"  - {describe(v.as_finding())}" for v in result.severity]
+    second = result.second_start
+    if second is not None:
+        lines += ["", f"second start: {second.speed_rpm:.1f} rpm"]
+        lines += [f"  {r.sensor}: {r.amplitude:.4g} {r.unit} at {r.phase_deg:.1f} deg"
+                  for r in second.readings]
+        lines += [f"  {name}: not compared ("
+                  + ("no reading in both starts" if why == "no_reading" else
+                     "no phase, or the 95% circles are too wide to tell") + ")"
+                  for name, why in second.not_compared]
     if result.unbalance:
         lines += ["", f"is it unbalance? {describe(result.unbalance[0])}"]
         lines += [f"  - {describe(f)}" for f in result.unbalance[1:]]

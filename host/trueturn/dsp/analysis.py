@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Callable, Iterable, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
@@ -41,9 +41,17 @@ from trueturn.dsp.sweep import (
     near_resonances,
     rise_below_first_resonance,
 )
-from trueturn.dsp.unbalance import pickup_evidence, sweep_evidence, verdict
+from trueturn.dsp.unbalance import (
+    REPEAT_SPEED_TOLERANCE,
+    pickup_evidence,
+    repeat_evidence,
+    same_speed,
+    sweep_evidence,
+    verdict,
+)
 from trueturn.dsp.units import PickupProfile
 from trueturn.link.codec import LinkEvent, Message, StreamDecoder
+from trueturn.model import Reading
 
 # What each pickup's 95 % circle (confidence_radius) covers and what it does not
 # (dsp/README.md, "What the 95 % circle covers"); part of the JSON contract.
@@ -76,6 +84,17 @@ class PickupPeaks:
 
 
 @dataclass(frozen=True)
+class SecondStart:
+    """A second start of the machine as found, compared with the first (issue #22):
+    its speed and readings, and the pickups not compared with why (``no_reading``: none in
+    one of the starts; ``cannot_tell``: no phase, or 95 % circles wider than the rule)."""
+
+    speed_rpm: float
+    readings: tuple[PickupReading, ...]
+    not_compared: tuple[tuple[str, str], ...] = ()
+
+
+@dataclass(frozen=True)
 class Analysis:
     """Everything ``trueturn analyze`` reports about one capture."""
 
@@ -93,6 +112,8 @@ class Analysis:
     sweep: Sweep | None = None
     #: the sweep's local response slope per pickup at the balancing speed
     speed_slopes: tuple[SpeedSlope, ...] = ()
+    #: a second start compared with this one (:func:`compare_starts`); None: not made
+    second_start: SecondStart | None = None
 
     def to_json(self) -> dict[str, Any]:
         """The analysis as the JSON contract of ``trueturn analyze --json``.
@@ -106,7 +127,10 @@ class Analysis:
             ``findings``, the link counters, ``severity`` (per pickup: broadband velocity
             RMS in mm/s, the ``band_hz`` it was measured over and its zone, or null with
             ``refused``; ``severity_scale``: the bands, boundaries and their source) and ``unbalance`` (``verdict`` and its coded
-            ``evidence``, each with words); non-finite numbers as null.
+            ``evidence``, each with words) and ``second_start`` (null, or the second
+            start's speed and 1x per pickup and the pickups ``not_compared``, with why;
+            its ``phase_repeatable`` evidence is in ``unbalance``); non-finite numbers as
+            null.
 
         References
         ----------
@@ -157,6 +181,14 @@ class Analysis:
                 "words": describe(self.unbalance[0]),
                 "evidence": [{**f.to_json(), "words": describe(f)}
                              for f in self.unbalance[1:]]},
+            "second_start": None if self.second_start is None else {
+                "speed_rpm": num(self.second_start.speed_rpm, 3),
+                "pickups": [{"name": r.sensor, "amplitude": num(r.amplitude), "unit": r.unit,
+                             "phase_deg": num(r.phase_deg, 3),
+                             "confidence_radius": num(r.confidence_radius)}
+                            for r in self.second_start.readings],
+                "not_compared": [{"pickup": name, "why": why}
+                                 for name, why in self.second_start.not_compared]},
             "link": self.link,
             **(self._sweep_json(num) if self.sweep is not None else {}),
         }
@@ -346,6 +378,95 @@ def _sweep(meter: LiveAnalyzer, unit: str | None) -> Sweep:
     return analyse_sweep(speeds, {meter.profile(c).name: v[1] for c, v in kept},
                          {meter.profile(c).name: v[2] for c, v in kept},
                          vectors[0][3] if vectors else "V pk")
+
+
+def compare_starts(first: Analysis, second: Analysis) -> Analysis:
+    """The first start's analysis with a second start of the machine compared with it.
+
+    Each pickup's 1x in the two starts is judged by
+    :func:`trueturn.dsp.unbalance.repeat_evidence`; the ``phase_repeatable`` evidence joins
+    the first start's unbalance evidence and the verdict is judged again over all of it.
+
+    Parameters
+    ----------
+    first : Analysis
+        The (first) as-found start.
+    second : Analysis
+        A later start of the same machine, as found, after a stop.
+
+    Returns
+    -------
+    Analysis
+        ``first`` with ``second_start`` and the new unbalance verdict and evidence.
+
+    Raises
+    ------
+    ValueError
+        When the two starts ran at different speeds (beyond
+        :data:`~trueturn.dsp.unbalance.REPEAT_SPEED_TOLERANCE`) or read a pickup in
+        different units: then they cannot be compared.
+
+    References
+    ----------
+    .. [1] Common practice, no source: a steady unbalance gives the same 1x after a stop and
+       restart (:mod:`trueturn.dsp.unbalance`).
+    """
+    if not same_speed(first.speed_rpm, second.speed_rpm):
+        raise ValueError(f"the two starts ran at {first.speed_rpm:.0f} and "
+                         f"{second.speed_rpm:.0f} rpm: a second start is compared at the same "
+                         f"speed (within {100 * REPEAT_SPEED_TOLERANCE:g} %)")
+    unbalance, not_compared = judge_second_start(first.unbalance, first.readings,
+                                                 second.readings)
+    return replace(first, unbalance=unbalance, second_start=SecondStart(
+        second.speed_rpm, second.readings, not_compared))
+
+
+def judge_second_start(unbalance: Sequence[Finding], first: Sequence[Reading],
+                       second: Sequence[Reading]
+                       ) -> tuple[tuple[Finding, ...], tuple[tuple[str, str], ...]]:
+    """The unbalance judgement of a first start with a second start's 1x compared.
+
+    Parameters
+    ----------
+    unbalance : sequence of Finding
+        The first start's verdict and evidence (:func:`analyze_capture`,
+        :func:`machine_condition`).
+    first, second : sequence of Reading
+        Each pickup's 1x in the two starts (same speed: the caller checks it with
+        :func:`trueturn.dsp.unbalance.same_speed`).
+
+    Returns
+    -------
+    tuple
+        ``(unbalance, not_compared)``: the verdict judged again over the first start's
+        evidence and each pickup's ``phase_repeatable`` evidence, then that evidence; and
+        the pickups not compared with why (``no_reading`` or ``cannot_tell``).
+
+    Raises
+    ------
+    ValueError
+        When a pickup reads in different units in the two starts.
+
+    References
+    ----------
+    .. [1] Common practice, no source (:func:`trueturn.dsp.unbalance.repeat_evidence`).
+    """
+    others = {r.sensor: r for r in second}
+    repeat: list[Finding] = []
+    not_compared: list[tuple[str, str]] = []
+    for r in first:
+        other = others.get(r.sensor)
+        found = repeat_evidence(r, other) if other is not None else None
+        if found is not None:
+            repeat.append(found)
+        else:
+            not_compared.append((r.sensor, "no_reading" if other is None else "cannot_tell"))
+    names = {r.sensor for r in first}
+    not_compared += [(name, "no_reading") for name in others if name not in names]
+    evidence = [*unbalance[1:], *repeat]
+    judged = len({f.pickup for f in evidence if f.code is Code.ONE_X_SHARE})
+    judgement = (verdict(evidence, judged), *evidence) if evidence else tuple(unbalance)
+    return tuple(judgement), tuple(not_compared)
 
 
 def machine_condition(meter: LiveAnalyzer, speed_rpm: float | None = None

@@ -63,6 +63,7 @@ class Code(str, Enum):
     PHASE_STEADINESS = "phase_steadiness"            # 1x phase steady within the run
     TWO_X_RATIO = "two_x_ratio"                      # 2x against 1x (misalignment, looseness)
     NONSYNC_PEAK = "nonsync_peak"                    # the strongest peak at no order
+    PHASE_REPEATABLE = "phase_repeatable"            # 1x the same after a stop and restart
     UNBALANCE_LIKELY = "unbalance_likely"            # every rule passed: balancing should help
     BALANCING_MAY_NOT_HELP = "balancing_may_not_help"  # a rule failed: look elsewhere first
     UNBALANCE_UNDECIDED = "unbalance_undecided"      # too little evidence to judge
@@ -280,19 +281,23 @@ def _sentence(f: Finding) -> str:
 
 
 _UNBALANCE_CODES = frozenset({Code.ONE_X_SHARE, Code.PHASE_STEADINESS, Code.TWO_X_RATIO,
-                              Code.NONSYNC_PEAK, Code.UNBALANCE_LIKELY,
+                              Code.NONSYNC_PEAK, Code.PHASE_REPEATABLE, Code.UNBALANCE_LIKELY,
                               Code.BALANCING_MAY_NOT_HELP, Code.UNBALANCE_UNDECIDED,
                               Code.SEVERITY, Code.ONE_X_RISES_WITH_SPEED})
 
 # What each evidence code means when its rule fails, for the verdict's sentence.
 _FAILED_RULE = {"one_x_share": "1x not dominant", "phase_steadiness": "1x phase not steady",
                 "two_x_ratio": "strong 2x", "nonsync_peak": "a strong peak at no shaft order",
-                "one_x_rises_with_speed": "1x not rising with speed"}
+                "one_x_rises_with_speed": "1x not rising with speed",
+                "phase_repeatable": "1x not the same after a restart"}
 # The meaning of each evaluation zone (ISO 20816-1 / ISO 10816-1, dsp/severity.py).
 _ZONE_MEANING = {"A": "as newly commissioned machines",
                  "B": "acceptable for unrestricted long-term operation",
                  "C": "unsatisfactory for long-term continuous operation",
                  "D": "severe enough to cause damage"}
+# The zones in a few words, for the app's guide (``describe(..., brief=True)``).
+_ZONE_BRIEF = {"A": "as new", "B": "fine for long-term use", "C": "not for long-term use",
+               "D": "may cause damage"}
 _REFUSED = {"uncalibrated": "no sensitivity known, so no velocity from volts",
             "band_not_sampled": "the sample rate does not reach 1000 Hz",
             "speed_too_low": "the 1x is too slow even for the 2-1000 Hz band used below "
@@ -338,6 +343,17 @@ def _unbalance_sentence(f: Finding) -> str:
         return (f"{head}, less than speed^{_n(f, 'limit'):g}: an unbalance force grows as "
                 "speed^2; a bent shaft, runout at the pickup, an electrical or another "
                 "machine's vibration may be at work; balancing may not help")
+    if c is Code.PHASE_REPEATABLE:
+        first, second = _n(f, "phases_deg", None) or (math.nan, math.nan)
+        ratio = _n(f, "amplitude_ratio", None)
+        size = f", amplitude x{ratio:.2f}" if ratio is not None else ""
+        head = (f"1x at {first:.0f}° then {second:.0f}° after a restart "
+                f"({abs(_n(f, 'phase_change_deg', 0.0)):.0f}° apart{size})")
+        if ok:
+            return f"{head}: repeatable, as an unbalance is"
+        return (f"{head}: it moved between starts - a part that shifts (loose pulley, key, "
+                "hub or set screw), a rub or a thermal bow; fix that first, balancing may not "
+                "help")
     if c is Code.UNBALANCE_LIKELY:
         return ("looks like unbalance: 1x dominant and steady, no strong 2x or other peaks "
                 "(rules of the trade); balancing should help")
@@ -369,6 +385,7 @@ _BRIEF = {
     Code.LINK_TACH_LOST: "tach edges lost on the USB link{n}: check the cable and the port",
     Code.TACH_CHATTER_SUPPRESSED: "tach chatter ignored by the board{n}: readings kept; "
                                   "a tach module with hysteresis would be cleaner",
+    Code.UNBALANCE_LIKELY: "looks like unbalance (rules of the trade): balancing should help",
 }
 
 
@@ -382,7 +399,8 @@ def describe(finding: Finding, brief: bool = False) -> str:
     finding : Finding
         The finding.
     brief : bool, default False
-        A few plain words where the app has them (the tach codes), else the sentence.
+        A few plain words where the app has them (the tach codes; a severity with a zone,
+        without its band; the unbalance verdict; a repeated 1x), else the sentence.
 
     Returns
     -------
@@ -394,6 +412,17 @@ def describe(finding: Finding, brief: bool = False) -> str:
     .. [1] The finding codes and their JSON form: dsp/README.md, "Findings" (ours; no external
        source).
     """
+    if brief and finding.code is Code.SEVERITY and _n(finding, "zone", None) is not None:
+        zone = _n(finding, "zone")
+        text = (f"overall {_n(finding, 'velocity_rms_mm_s'):.2f} mm/s rms, zone {zone} "
+                f"({_ZONE_BRIEF.get(zone, '')})")
+        return f"{finding.pickup}: {text}" if finding.pickup else text
+    if brief and finding.code is Code.PHASE_REPEATABLE and _n(finding, "ok", False):
+        ratio = _n(finding, "amplitude_ratio", None)
+        size = f", x{ratio:.2f}" if ratio is not None else ""
+        text = (f"1x repeats after a restart "
+                f"({abs(_n(finding, 'phase_change_deg', 0.0)):.0f}° apart{size})")
+        return f"{finding.pickup}: {text}" if finding.pickup else text
     if brief and finding.code in _BRIEF:
         count = f" ({finding.count})" if finding.count else ""
         return _BRIEF[finding.code].format(n=count)

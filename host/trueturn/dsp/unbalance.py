@@ -14,6 +14,13 @@ will not cure it. Before a trial run the as-found run is judged, per pickup, on:
 * **non-synchronous peaks**: a strong peak at no order of the shaft (nor the mains) points at
   bearings, belts or another machine.
 
+and, when the machine was started a second time as found (a stop and a restart, same speed):
+
+* **1x repeatable between two starts**: the two starts' 1x vectors agree within a tenth of
+  the 1x beyond their 95 % circles (:func:`repeat_evidence`) -- a steady unbalance gives the
+  same 1x, within a few degrees, after a restart; a 1x that moves between starts points at a
+  part that shifts (a loose pulley, key or hub), a rub, or a thermal bow.
+
 Every level is compared as velocity (the acceleration peaks of the spectrum divided by
 ``2 pi f``), so the ratios do not depend on whether the pickup is calibrated. The thresholds
 are **common practice, no source**: shop rules of thumb of vibration analysis, each given a
@@ -21,8 +28,6 @@ reason beside it. With a sweep (``analyze --sweep``, :mod:`trueturn.dsp.sweep`) 
 
 * **1x rising with speed** below the first resonance (:func:`sweep_evidence`): an unbalance
   force grows as speed squared.
-
-Not judged here (it needs more than one run): repeatability of the phase between two starts.
 """
 
 from __future__ import annotations
@@ -30,8 +35,10 @@ from __future__ import annotations
 import math
 from collections.abc import Sequence
 
+from trueturn.angles import angle_difference_deg
 from trueturn.dsp.findings import Code, Finding
 from trueturn.dsp.spectrum import SpectrumPeak
+from trueturn.model import Reading
 
 #: 1x velocity at least this fraction of the broadband velocity RMS (amplitude ratio; 0.7 is
 #: half the vibration energy): below it, taking the 1x away leaves more than half of the
@@ -51,11 +58,22 @@ NONSYNC_RATIO_MAX = 0.5
 #: halfway (in log) between that and a flat response (runout, a bent shaft, electrical),
 #: leaving room for a second source adding to it. Common practice, no source.
 RISE_EXPONENT_MIN = 1.0
+#: Two starts' 1x vectors may differ by this fraction of the 1x beyond their 95 % circles:
+#: 0.1 is about 6 degrees of phase at the same amplitude, or a 10 % change of amplitude at
+#: the same phase -- "the same phase within a few degrees after a restart", as the trade says
+#: of a steady unbalance. A wider test would pass a part that shifts a little every start; a
+#: narrower one would fail the ordinary change of a warm machine. Common practice, no source.
+REPEAT_DIFFERENCE_MAX = 0.1
+#: Two starts are compared only at the same speed within this fraction (3 %: an induction
+#: motor's slip under load moves it about 1-2 %); the 1x of one rotor changes with speed,
+#: most near a resonance. Common practice, no source.
+REPEAT_SPEED_TOLERANCE = 0.03
 
 #: The reading's findings that say the 1x phase did not stay put within the run.
 _UNSTEADY_PHASE = (Code.VECTOR_DRIFTING, Code.PHASE_UNCERTAIN)
 #: The codes of the evidence, in the order they are listed.
-EVIDENCE_CODES = (Code.ONE_X_SHARE, Code.PHASE_STEADINESS, Code.TWO_X_RATIO, Code.NONSYNC_PEAK)
+EVIDENCE_CODES = (Code.ONE_X_SHARE, Code.PHASE_STEADINESS, Code.TWO_X_RATIO, Code.NONSYNC_PEAK,
+                  Code.PHASE_REPEATABLE)
 
 
 def _velocity(peak: SpectrumPeak) -> float:
@@ -157,6 +175,87 @@ def sweep_evidence(pickup: str, exponent: float, points: int) -> Finding:
     return Finding(Code.ONE_X_RISES_WITH_SPEED, pickup, details={
         "ok": bool(exponent >= RISE_EXPONENT_MIN), "exponent": round(exponent, 3),
         "limit": RISE_EXPONENT_MIN, "points": points})
+def repeat_evidence(first: Reading, second: Reading) -> Finding | None:
+    """Whether one pickup's 1x repeated between two starts of the machine as found.
+
+    Parameters
+    ----------
+    first, second : Reading
+        The pickup's 1x in the first and in the second start (same unit, same speed within
+        :data:`REPEAT_SPEED_TOLERANCE`: the caller checks the speeds).
+
+    Returns
+    -------
+    Finding or None
+        Code ``phase_repeatable`` with ``ok``, both phases (``phases_deg``), the phase
+        change (``phase_change_deg``, signed, -180...180), ``amplitude_ratio`` (second over
+        first), the vector ``difference`` and its ``limit`` (both as fractions of the mean
+        1x amplitude; the limit is :data:`REPEAT_DIFFERENCE_MAX` plus both 95 % circles).
+        None when it cannot be told: a reading without a phase or a 95 % circle, a 1x of
+        zero, or circles so wide that together they exceed the allowed difference.
+
+    Raises
+    ------
+    ValueError
+        When the readings are of different pickups or units.
+
+    Notes
+    -----
+    The difference of two independent estimates lies within the sum of their 95 % circles
+    with at least 95 % probability (a conservative bound: the root of the sum of squares is
+    the exact one for circular Gaussian errors). The vector difference judges phase and
+    amplitude together: at equal amplitudes a phase change of ``d`` degrees is a difference
+    of ``2 sin(d/2)``, so 0.1 is 5.7 degrees.
+
+    References
+    ----------
+    .. [1] Common practice, no source: a steady unbalance repeats its 1x amplitude and phase
+       after a stop and restart; a phase that wanders between starts points at looseness, a
+       shifting part or a thermal bow.
+    """
+    if first.sensor != second.sensor or first.unit != second.unit:
+        raise ValueError(f"compare one pickup in one unit: {first.sensor} ({first.unit}) and "
+                         f"{second.sensor} ({second.unit})")
+    if (first.phase_deg is None or second.phase_deg is None
+            or first.confidence_radius is None or second.confidence_radius is None):
+        return None
+    scale = 0.5 * (first.amplitude + second.amplitude)
+    if not scale > 0:
+        return None
+    margin = (first.confidence_radius + second.confidence_radius) / scale
+    if margin > REPEAT_DIFFERENCE_MAX:
+        return None  # the circles alone are wider than the rule: it cannot tell
+    difference = abs(second.vector - first.vector) / scale
+    limit = REPEAT_DIFFERENCE_MAX + margin
+    return Finding(Code.PHASE_REPEATABLE, first.sensor, details={
+        "ok": bool(difference <= limit),
+        "phases_deg": [round(first.phase_deg, 1), round(second.phase_deg, 1)],
+        "phase_change_deg": round(angle_difference_deg(second.phase_deg, first.phase_deg), 1),
+        "amplitude_ratio": round(second.amplitude / first.amplitude, 3)
+        if first.amplitude > 0 else None,
+        "difference": round(difference, 4), "limit": round(limit, 4)})
+
+
+def same_speed(first_rpm: float, second_rpm: float) -> bool:
+    """Two starts ran at the same speed within :data:`REPEAT_SPEED_TOLERANCE`.
+
+    Parameters
+    ----------
+    first_rpm, second_rpm : float
+        The two starts' mean speeds, rpm.
+
+    Returns
+    -------
+    bool
+        True when both are finite, positive and within the tolerance of each other.
+
+    References
+    ----------
+    .. [1] Common practice, no source (see :data:`REPEAT_SPEED_TOLERANCE`).
+    """
+    if not (0 < first_rpm < math.inf and 0 < second_rpm < math.inf):
+        return False
+    return abs(second_rpm - first_rpm) <= REPEAT_SPEED_TOLERANCE * max(first_rpm, second_rpm)
 
 
 def verdict(evidence: Sequence[Finding], pickups: int) -> Finding:
@@ -189,3 +288,26 @@ def verdict(evidence: Sequence[Finding], pickups: int) -> Finding:
     if pickups > 0 and len(judged) == pickups * len(needed):
         return Finding(Code.UNBALANCE_LIKELY)
     return Finding(Code.UNBALANCE_UNDECIDED)
+
+
+def failing_rules(unbalance: Sequence[Finding]) -> tuple[str, ...]:
+    """The codes of the rules that failed, from a verdict and its evidence.
+
+    Parameters
+    ----------
+    unbalance : sequence of Finding
+        The verdict first, then the evidence (as :func:`verdict` callers keep them).
+
+    Returns
+    -------
+    tuple of str
+        The failing evidence codes (sorted, each once) when the verdict is
+        ``balancing_may_not_help``; empty otherwise.
+
+    References
+    ----------
+    .. [1] Common practice, no source (see the module's rules).
+    """
+    if not unbalance or unbalance[0].code is not Code.BALANCING_MAY_NOT_HELP:
+        return ()
+    return tuple(sorted({f.code.value for f in unbalance[1:] if not f.details.get("ok", True)}))

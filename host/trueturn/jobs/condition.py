@@ -12,6 +12,7 @@ from __future__ import annotations
 from collections.abc import Sequence
 from typing import cast
 
+from trueturn.angles import angle_difference_deg
 from trueturn.dsp.findings import Code, Finding
 from trueturn.dsp.severity import Severity
 from trueturn.dsp.unbalance import NONSYNC_RATIO_MAX, ONE_X_SHARE_MIN, TWO_X_RATIO_MAX
@@ -25,6 +26,8 @@ from trueturn.jobs.records import (
 
 _LIMITS = {Code.ONE_X_SHARE: ("share", ONE_X_SHARE_MIN), Code.TWO_X_RATIO: ("ratio", TWO_X_RATIO_MAX),
            Code.NONSYNC_PEAK: ("ratio", NONSYNC_RATIO_MAX)}
+#: the repeat rule's limit depends on the readings' 95 % circles: kept with the entry
+_REPEAT = Code.PHASE_REPEATABLE
 
 
 def severity_entries(severity: Sequence[Severity]) -> list[SeverityEntry]:
@@ -41,11 +44,15 @@ def unbalance_entry(unbalance: Sequence[Finding]) -> UnbalanceEntry | None:
         return None
     evidence = []
     for f in unbalance[1:]:
-        key = _LIMITS.get(f.code, ("", 0.0))[0]
+        key = "difference" if f.code is _REPEAT else _LIMITS.get(f.code, ("", 0.0))[0]
         code = cast(EvidenceCode, f.code.value)
+        phases = f.details.get("phases_deg")
         evidence.append(EvidenceEntry(code, f.pickup or "", bool(f.details.get("ok")),
                                       f.details.get(key), f.details.get("hz"),
-                                      f.details.get("order")))
+                                      f.details.get("order"),
+                                      (float(phases[0]), float(phases[1])) if phases else None,
+                                      f.details.get("amplitude_ratio"),
+                                      f.details.get("limit") if f.code is _REPEAT else None))
     return UnbalanceEntry(cast(VerdictCode, unbalance[0].code.value), evidence)
 
 
@@ -65,6 +72,11 @@ def evidence_finding(entry: EvidenceEntry) -> Finding:
         details.update({key: entry.value, "limit": limit})
     if code is Code.NONSYNC_PEAK:
         details.update({"hz": entry.hz or 0.0, "order": entry.order})
+    if code is _REPEAT:
+        phases = list(entry.phases_deg) if entry.phases_deg else None
+        change = (angle_difference_deg(phases[1], phases[0]) if phases else None)
+        details.update({"difference": entry.value, "limit": entry.limit, "phases_deg": phases,
+                        "phase_change_deg": change, "amplitude_ratio": entry.amplitude_ratio})
     return Finding(code, entry.sensor, details=details)
 
 

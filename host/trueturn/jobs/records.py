@@ -104,7 +104,8 @@ class Event:
 
 
 #: The codes of the unbalance evidence and verdict (dsp/findings.py Code values).
-EvidenceCode = Literal["one_x_share", "phase_steadiness", "two_x_ratio", "nonsync_peak"]
+EvidenceCode = Literal["one_x_share", "phase_steadiness", "two_x_ratio", "nonsync_peak",
+                       "phase_repeatable"]
 VerdictCode = Literal["unbalance_likely", "balancing_may_not_help", "unbalance_undecided"]
 
 
@@ -125,8 +126,10 @@ class SeverityEntry:
 @dataclass
 class EvidenceEntry:
     """One rule of the unbalance judgement at one pickup (dsp/unbalance.py): passed or not,
-    with its number (``share`` of 1x in the overall, or ``ratio`` to 1x) and, for a
-    non-synchronous peak, its frequency and order."""
+    with its number (``share`` of 1x in the overall, ``ratio`` to 1x, or the ``difference``
+    of two starts' 1x) and, for a non-synchronous peak, its frequency and order; for two
+    starts, both phases, the second amplitude over the first and the limit (it depends on
+    the readings' 95 % circles)."""
 
     code: EvidenceCode
     sensor: str = field(metadata=limits(nonempty=True))
@@ -134,6 +137,9 @@ class EvidenceEntry:
     value: float | None = None
     hz: float | None = None
     order: float | None = None
+    phases_deg: tuple[float, float] | None = None
+    amplitude_ratio: float | None = field(default=None, metadata=limits(minimum=0))
+    limit: float | None = field(default=None, metadata=limits(minimum=0))
 
 
 @dataclass
@@ -142,6 +148,33 @@ class UnbalanceEntry:
 
     verdict: VerdictCode
     evidence: list[EvidenceEntry] = field(default_factory=list)
+
+
+@dataclass
+class SecondStartEntry:
+    """The machine started a second time as found, after a stop (issue #22): is the 1x the
+    same? Its readings and overall severity; the verdict over both starts is the as-found
+    run's ``unbalance`` (with ``phase_repeatable`` evidence)."""
+
+    time: str = field(metadata=limits(nonempty=True))
+    speed_rpm: float = field(metadata=limits(above=0))
+    readings: list[Reading] = field(metadata=limits(nonempty=True))
+    severity: list[SeverityEntry] = field(default_factory=list)
+
+
+#: Why a job was stopped before a balance verdict (the person chose to stop there).
+StopReason = Literal["balancing_may_not_help"]
+
+
+@dataclass
+class StopEntry:
+    """The job was stopped before a verdict, by the person's choice: ``reason``, the failing
+    rules ``because`` (the unbalance evidence codes), after which run and when."""
+
+    reason: StopReason
+    after_run: int = field(metadata=limits(minimum=1))
+    time: str = field(metadata=limits(nonempty=True))
+    because: list[EvidenceCode] = field(default_factory=list)
 
 
 @dataclass
@@ -163,6 +196,8 @@ class RunEntry:
     #: version-2 files without them read as before (no migration)
     severity: list[SeverityEntry] = field(default_factory=list)
     unbalance: UnbalanceEntry | None = None
+    #: the as-found run only: a second start compared with it (optional, issue #22)
+    second_start: SecondStartEntry | None = None
 
     def reading(self, sensor: str) -> Reading | None:
         """This run's reading of ``sensor``, or None."""
@@ -258,6 +293,8 @@ class JobRecord:
     influence: CoefficientSet | None = None
     verdict: VerdictEntry | None = None
     notes: str = ""
+    #: stopped before a verdict by the person's choice, and why (optional, issue #22)
+    stopped: StopEntry | None = None
 
     def _checks(self) -> list[tuple[str, str]]:
         problems: list[tuple[str, str]] = []
@@ -275,6 +312,8 @@ class JobRecord:
                     problems.append((f"runs[{i}]", f"plane {name!r} is not a plane of the machine"))
         if self.verdict is not None and self.verdict.after_run > len(self.runs):
             problems.append(("verdict", f"refers to run {self.verdict.after_run}, which is not recorded"))
+        if self.stopped is not None and self.stopped.after_run > len(self.runs):
+            problems.append(("stopped", f"refers to run {self.stopped.after_run}, which is not recorded"))
         return problems
 
     @property

@@ -41,7 +41,7 @@ from trueturn.jobs.profiles import (
     format_length,
     format_mass,
 )
-from trueturn.jobs.records import JobRecord, RunEntry
+from trueturn.jobs.records import EvidenceEntry, JobRecord, RunEntry, UnbalanceEntry
 from trueturn.model import Reading
 from trueturn.model import units as model_units
 from trueturn.positions import degrees_text, number_of, position_text
@@ -533,6 +533,23 @@ def condition_rows(job: JobRecord) -> list[list[str]]:
                          verdict if k == 0 else ""])
         if not run.severity and run.unbalance:
             rows.append([str(run.index), "-", "-", "-", verdict])
+        rows += second_start_rows(run)
+    return rows
+
+
+def second_start_rows(run: RunEntry) -> list[list[str]]:
+    """A second start as found (kept with run 1): each pickup's 1x and overall level."""
+    second = run.second_start
+    if second is None:
+        return []
+    rows = []
+    for k, r in enumerate(second.readings):
+        phase = f" at {r.phase_deg:.0f}\u00b0" if r.phase_deg is not None else ""
+        level = next((f"{e.velocity_rms_mm_s:.2f} mm/s rms" for e in second.severity
+                      if e.sensor == r.sensor and e.velocity_rms_mm_s is not None), "-")
+        rows.append([f"{run.index}, 2nd start" if k == 0 else "", r.sensor, level,
+                     next((e.zone or "-" for e in second.severity if e.sensor == r.sensor), "-"),
+                     f"1x {r.amplitude:.3g} {r.unit}{phase} ({second.speed_rpm:.0f} rpm)"])
     return rows
 
 
@@ -544,6 +561,13 @@ def condition_notes(job: JobRecord) -> list[str]:
         failing = [describe(evidence_finding(e)) for e in first.unbalance.evidence if not e.ok]
         if failing:
             notes.append(f"Run {first.index}: " + "; ".join(failing) + ".")
+        repeated = [describe(evidence_finding(e)) for e in first.unbalance.evidence
+                    if e.ok and e.code == "phase_repeatable"]
+        if repeated:
+            notes.append(f"Run {first.index}, started twice: " + "; ".join(repeated) + ".")
+    stopped = stopped_line(job)
+    if stopped is not None:
+        notes.append(stopped)
     last = job.runs[-1] if job.runs else None
     bad = [e for e in last.severity if e.zone in ("C", "D")] if last else []
     if last is not None and bad and job.verdict is not None and job.verdict.passed:
@@ -790,8 +814,22 @@ def _verdict_where(job: JobRecord) -> str:
             "profile, so not judged at the bearings)")
 
 
+def stopped_line(job: JobRecord) -> str | None:
+    """Why the person stopped the job before a verdict (issue #22), or None."""
+    stop = job.stopped
+    if stop is None:
+        return None
+    why = describe(verdict_finding(UnbalanceEntry("balancing_may_not_help", [
+        EvidenceEntry(code, "-", ok=False) for code in stop.because])))
+    return (f"Stopped after run {stop.after_run} by the person's choice ({short_time(stop.time)}): "
+            f"{why}. No balance verdict: the machine was not balanced.")
+
+
 def _verdict_line(job: JobRecord) -> tuple[str, str]:
     v = job.verdict
+    stopped = stopped_line(job)
+    if v is None and stopped is not None:
+        return "fail", stopped
     if v is None:
         return "none", "No verdict recorded yet."
     word = "meets" if v.passed else "does NOT meet"

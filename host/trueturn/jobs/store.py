@@ -40,9 +40,13 @@ from trueturn.jobs.records import (
     JobRecord,
     PendingStep,
     RunEntry,
+    SecondStartEntry,
+    StopEntry,
+    UnbalanceEntry,
     VerdictEntry,
     now_iso,
 )
+from trueturn.model import RunKind
 from trueturn.schema import Migration, SchemaError, from_data, to_data
 from trueturn.yamltext import LineDict, dump_yaml_text, load_yaml_text
 
@@ -445,6 +449,37 @@ class Workspace:
             return self.save_job(job, path)
         except BaseException:
             job.verdict, job.status = before
+            raise
+
+    def record_second_start(self, job: JobRecord, second: SecondStartEntry,
+                            unbalance: UnbalanceEntry | None,
+                            path: str | os.PathLike[str] | None = None) -> Path:
+        """Keep a second start of the machine as found with the as-found run (run 1), and
+        the unbalance judgement over both starts; if the save fails, ``job`` is left as it
+        was."""
+        if not job.runs or job.runs[0].kind != RunKind.AS_FOUND:
+            raise ValueError("a second start belongs to the as-found run (run 1)")
+        if job.status != "open":
+            raise UserError(f"job {job.job_id} is closed; start a new job to measure again")
+        first = job.runs[0]
+        before = (first.second_start, first.unbalance)
+        first.second_start, first.unbalance = second, unbalance or first.unbalance
+        try:
+            return self.save_job(job, path)
+        except BaseException:
+            first.second_start, first.unbalance = before
+            raise
+
+    def stop_job(self, job: JobRecord, stop: StopEntry,
+                 path: str | os.PathLike[str] | None = None) -> Path:
+        """Close ``job`` without a verdict, by the person's choice, keeping why; if the save
+        fails, it stays open."""
+        before = (job.stopped, job.status)
+        job.stopped, job.status = stop, "closed"
+        try:
+            return self.save_job(job, path)
+        except BaseException:
+            job.stopped, job.status = before
             raise
 
     def resume_job(self, ref: str | os.PathLike[str]) -> JobRecord:

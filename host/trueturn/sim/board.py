@@ -200,6 +200,10 @@ class VirtualBoard:
         self._stream = _Stream()
         self._added: list[Mass] = []
         self._hidden = list(scenario.as_found) if self.options.unbalance != "none" else []
+        self._shifted: list[Mass] = []  # loose parts where they settled at the last start
+        # their own stream: where they settle depends on the seed and the number of starts,
+        # not on how much signal was made in between
+        self._loose_rng = np.random.default_rng(self.options.seed + 104729)
         motor = scenario.motor
         if self.options.speed_rpm is not None and motor.kind != "variable":
             raise ValueError(f"{scenario.name} runs at a fixed speed (induction motor); "
@@ -220,6 +224,7 @@ class VirtualBoard:
         self._turns = 0  # whole turns before self._theta (non-integer orders need the total)
         self._drift_phases = self.rng.uniform(0, TWO_PI, size=2)
         self._tone_phases = self.rng.uniform(0, TWO_PI, size=8)
+        self._settle_loose_parts()
         self._edges_seen = 0
         self._last_edge_tick = self.tick  # as the firmware's 0 at reset
         self._holdoff_until = self.tick
@@ -307,13 +312,26 @@ class VirtualBoard:
         self.set_masses([])
 
     def all_masses(self) -> list[Mass]:
-        """Hidden as-found unbalance plus the added weights (for tests and honest demos)."""
+        """Hidden as-found unbalance (loose parts where they settled last) plus the added
+        weights (for tests and honest demos)."""
         with self.lock:
-            return self._hidden + self._added
+            return self._hidden + self._shifted + self._added
+
+    def _settle_loose_parts(self) -> None:
+        """Each loose part of the scenario settles at a new angle (at power-up and at every
+        start from standstill)."""
+        if self.options.unbalance == "none":
+            return
+        self._shifted = [Mass(p.plane, p.mass_g, p.angle_deg + float(
+            self._loose_rng.uniform(-p.wander_deg, p.wander_deg)))
+            for p in self.scenario.shifting]
 
     def motor_start(self) -> None:
-        """Switch the virtual motor on; the rotor spins up over the scenario's spin-up time."""
+        """Switch the virtual motor on; the rotor spins up over the scenario's spin-up time.
+        A loose part settles at a new angle when the rotor starts from standstill."""
         with self.lock:
+            if not self.running and self._omega == 0.0:
+                self._settle_loose_parts()
             self.running = True
             self._switch_tick = None  # the person took over from a run=
 

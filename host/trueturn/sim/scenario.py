@@ -122,6 +122,19 @@ class ShopSignals:
     tach_mark_width_deg: float = field(default=10.0, metadata=NON_NEGATIVE)
 
 
+@dataclass(frozen=True)
+class ShiftingPart:
+    """A part loose on the rotor -- a pulley on a worn key, a hub on its set screw -- that
+    settles at a new angle at every start: ``mass_g`` on ``plane``, at an angle drawn anew
+    (uniformly) within ``angle_deg`` +/- ``wander_deg`` each time the motor is switched on.
+    The 1x then moves between starts, which balancing cannot cure (issue #22)."""
+
+    plane: str = field(metadata=limits(nonempty=True))
+    mass_g: float = field(metadata=limits(above=0, maximum=LARGEST_VALUE))
+    angle_deg: float = field(default=0.0, metadata=ANY)
+    wander_deg: float = field(default=180.0, metadata=limits(minimum=0, maximum=180))
+
+
 @dataclass
 class Scenario:
     """One invented machine, ready for the virtual board and ``trueturn sim describe``."""
@@ -139,6 +152,8 @@ class Scenario:
     balancing_planes: dict[str, Plane] = field(default_factory=dict)
     plane_notes: dict[str, str] = field(default_factory=dict)
     source: str = ""
+    #: parts that settle at a new angle at every start (a loose pulley); none in most
+    shifting: tuple[ShiftingPart, ...] = ()
 
     @property
     def speed_rpm(self) -> float:
@@ -248,6 +263,7 @@ class ScenarioFile:
     description: str = ""
     as_found: list[Mass] | None = None
     signals: ShopSignals | None = None
+    shifting: list[ShiftingPart] | None = None
 
     def _checks(self) -> list[tuple[str, str]]:
         for section in ("bearings", "planes", "pickups"):
@@ -265,6 +281,10 @@ class ScenarioFile:
             if mass.plane not in names:
                 return [(f"as_found[{i}].plane",
                          f"plane {mass.plane!r} is not one of {', '.join(names)}")]
+        for i, part in enumerate(self.shifting or []):
+            if part.plane not in names:
+                return [(f"shifting[{i}].plane",
+                         f"plane {part.plane!r} is not one of {', '.join(names)}")]
         return []
 
     def scenario(self, fallback_name: str, source: str) -> Scenario:
@@ -290,7 +310,7 @@ class ScenarioFile:
                 PlaneLayout("equal", p.positions, p.first_position_deg) if p.positions
                 else PlaneLayout(), removal_allowed=p.removal, face=p.face) for p in self.planes},
             plane_notes={p.name: p.note for p in self.planes},
-            source=source)
+            source=source, shifting=tuple(self.shifting or ()))
 
 
 def parse_scenario(raw: Any, source: str) -> Scenario:

@@ -234,6 +234,7 @@ def test_the_guide_says_it_before_the_first_trial(tmp_path):
         shown[scenario] = "\n".join(condition_lines(result.severity, result.unbalance,
                                                     as_found=True))
     assert "balancing may not help" in shown["belt-misaligned"]
-    assert "strong 2x" in shown["belt-misaligned"]
+    assert "2x is" in shown["belt-misaligned"]
+    assert "Not only unbalance" in shown["belt-misaligned"]
     assert "balancing should help" in shown["bench-grinder"]
     assert "may not help" not in shown["bench-grinder"]

@@ -11,6 +11,13 @@ Sequence (influence-coefficient method with a tach; four-run method without one)
     -> correction (split onto positions, add or remove) -> attach correction -> check run
     -> verdict against the grade -> trim (hands-on + check run) until pass or trims run out
 
+Is it unbalance? (issue #22) After the as-found run, before the first trial mass goes on, a
+second start as found may be measured (offered, never required: :meth:`Procedure.start_again`
+after a stop; the app compares the two starts' 1x). When the app's judgement says balancing
+may not help (:meth:`Procedure.as_found_judged`), the procedure asks first
+(:class:`ShowDoubt`): stop the job here (:meth:`Procedure.stop_here`, the reason kept) or go
+on anyway (:meth:`Procedure.go_on`).
+
 Safety gates (ARCHITECTURE.md, "Safety"):
 
 * every hands-on step opens with a lock-out gate and closes with a done gate; both need
@@ -242,8 +249,42 @@ class ShowVerdict:
     title: str
 
 
+@dataclass(frozen=True)
+class ShowDoubt:
+    """After the as-found run the machine does not look like plain unbalance: the person
+    chooses to stop the job here or to go on anyway. ``because``: the failing rules (the
+    evidence codes of :mod:`trueturn.dsp.unbalance`)."""
+
+    kind: ClassVar[Literal["doubt"]] = "doubt"
+    title: str
+    because: tuple[str, ...] = ()
+
+
+@dataclass(frozen=True)
+class Stopped:
+    """The job was stopped before a verdict, by the person's choice (see
+    :attr:`Procedure.stopped`)."""
+
+    kind: ClassVar[Literal["stopped"]] = "stopped"
+    title: str
+
+
+@dataclass(frozen=True)
+class EarlyStop:
+    """Why and when the person stopped the job before a verdict: ``reason`` (a code),
+    ``because`` (the failing rules' codes), after how many runs, at which board time."""
+
+    reason: Literal["balancing_may_not_help"]
+    because: tuple[str, ...]
+    after_run: int
+    time_s: float
+
+
+#: the label of a second start of the machine as found (it is kept beside the runs)
+SECOND_START_LABEL = "as found, second start"
+
 #: one screenful of the procedure: a tagged union of frozen steps
-Step = HandsOn | Measure | ShowCorrection | ShowVerdict
+Step = HandsOn | Measure | ShowCorrection | ShowVerdict | ShowDoubt | Stopped
 
 
 def planes_for(setup: ProcedureSetup) -> tuple[Plane, ...]:
@@ -352,6 +393,13 @@ class Procedure:
                                   "Set up: mount the pickups and the tach",
                                   (MassChange("mount-pickups"),))
         self.finished = False
+        #: is it unbalance? (issue #22): a second start as found, the rules that failed (as
+        #: the app judged them), and the person's choice to stop before a verdict
+        self.second_start: Run | None = None
+        self.doubt: tuple[str, ...] = ()
+        self.stopped: EarlyStop | None = None
+        self._before_trials: Step | None = None  # the first trial's hands-on step
+        self._return_step: Step | None = None  # where a second start goes back to
 
     # ---- what to show -------------------------------------------------------------------
     @property
@@ -591,6 +639,12 @@ class Procedure:
         run = Run(step.run_label, tuple(self.on_rotor),
                   {s: readings[s] for s in self.setup.sensors}, speed_rpm, step.run_kind,
                   now_s, self._force_text, tuple(self._pending_run_events))
+        if self._return_step is not None:
+            # the second start as found: kept beside the runs; back to where it was offered
+            self.second_start = run
+            self.step, self._return_step = self._return_step, None
+            self.ticked = set()
+            return run
         if self._redo_index is not None:
             # a run of the coefficient set measured again: it replaces the first one
             self.runs[self._redo_index] = run
@@ -650,6 +704,11 @@ class Procedure:
     def _inspect_step(self, title: str) -> None:
         self.ticked = set()
         self._pending_run_events = []
+        if self._return_step is not None:
+            # a second start stopped: it was optional, so it is dropped; the step it was
+            # offered at comes back (the trial's hands-on step opens with the lock-out gate)
+            self.step, self._return_step = self._return_step, None
+            return
         self.step = HandsOn(title)
 
     # ---- correction step ----------------------------------------------------------------
@@ -734,6 +793,60 @@ class Procedure:
         word = "Trim" if self.trims_done else "Correction"
         self.step = HandsOn(f"{word}: place the parts", tuple(changes))
 
+    # ---- is it unbalance? (issue #22) --------------------------------------------------
+    @property
+    def offers_second_start(self) -> bool:
+        """A second start as found may be measured now (optional): after the as-found run of
+        a procedure by correction planes, before the first trial mass goes on."""
+        return (self.second_start is None and len(self.runs) == 1 and not self.finished
+                and self._return_step is None
+                and self.setup.mode in (Mode.ONE_PLANE, Mode.TWO_PLANE)
+                and (isinstance(self.step, ShowDoubt) or self.step == self._before_trials))
+
+    def start_again(self) -> None:
+        """Measure a second start of the machine as found (the app compares its 1x with the
+        first start's). Only from standstill: the point is a stop and a restart."""
+        if not self.offers_second_start:
+            raise GateRefused("a second start as found is offered after the as-found run, "
+                              "before the first trial mass goes on")
+        ev = self.watch.evidence()
+        if not ev.proven:
+            raise GateRefused("the second start is compared after a stop: "
+                              + standstill_refusal(ev))
+        self._return_step = self.step
+        self.ticked = set()
+        self.step = Measure("Second start, as found", SECOND_START_LABEL, RunKind.AS_FOUND)
+
+    def as_found_judged(self, because: tuple[str, ...]) -> None:
+        """The app's judgement of the as-found run (or of both starts): the codes of the
+        rules that failed (empty: none failed or nothing could be judged). When any failed,
+        the person is asked before the first trial mass goes on (:class:`ShowDoubt`)."""
+        self.doubt = tuple(because)
+        if self.finished or len(self.runs) != 1 or self._before_trials is None:
+            return
+        if because and (self.step == self._before_trials or isinstance(self.step, ShowDoubt)):
+            self.step = ShowDoubt("Balancing may not help", self.doubt)
+        elif not because and isinstance(self.step, ShowDoubt):
+            self.step = self._before_trials
+
+    def go_on(self) -> None:
+        """The person goes on with the balancing although it may not help."""
+        if not isinstance(self.step, ShowDoubt) or self._before_trials is None:
+            raise GateRefused("nothing to go on from")
+        self.step = self._before_trials
+
+    def stop_here(self, now_s: float) -> EarlyStop:
+        """The person stops the job here because balancing may not help; the job closes
+        without a verdict, with the reason kept."""
+        if not isinstance(self.step, ShowDoubt):
+            raise GateRefused("the job can be stopped here only when balancing may not help "
+                              "(after the as-found run)")
+        self.stopped = EarlyStop("balancing_may_not_help", self.step.because, len(self.runs),
+                                 now_s)
+        self.step = Stopped("Job stopped: balancing may not help")
+        self.finished = True
+        return self.stopped
+
     def finish(self) -> None:
         """Close the procedure after the verdict."""
         if self.step.kind != "verdict":
@@ -787,6 +900,8 @@ class Procedure:
             label, plane, offset = trials[n_runs - 1]
             changes.append(MassChange("attach", self._trial_mass(plane, offset)))
             self.step = HandsOn(f"Attach the trial mass for: {label}", tuple(changes))
+            if n_runs == 1:
+                self._before_trials = self.step
             return
         if n_runs == len(trials) + 1:
             self._to_correction()

@@ -26,12 +26,16 @@ from textual.screen import Screen
 from textual.widgets import ContentSwitcher, Footer, Static
 from textual.worker import get_current_worker
 
+from trueturn.dsp.analysis import judge_second_start
+from trueturn.dsp.findings import Finding
+from trueturn.dsp.severity import Severity
 from trueturn.dsp.tachless import speed_band_hz
+from trueturn.dsp.unbalance import failing_rules, same_speed
 from trueturn.errors import UserError
 from trueturn.jobs.profiles import MachineProfile
 from trueturn.jobs.records import CoefficientSet
 from trueturn.link.session import GreetPhase
-from trueturn.model import RunKind
+from trueturn.model import Run, RunKind
 from trueturn.procedure.engine import BalanceEngine
 from trueturn.procedure.guide import (
     GateRefused,
@@ -43,6 +47,7 @@ from trueturn.procedure.guide import (
     RunPhase,
     SafetyEvent,
     ShowCorrection,
+    ShowDoubt,
     ShowVerdict,
 )
 from trueturn.ui import texts
@@ -235,6 +240,8 @@ class BenchScreen(Screen):
         Binding("r", "removal", "Add/remove", show=False),
         Binding("e", "again", "Run again", show=False),
         Binding("p", "machine", "Machine", show=False),
+        Binding("n", "second_start", "Start again", show=False),
+        Binding("k", "stop_job", "Stop job", show=False),
         Binding("o", "motor(True)", "Motor on", show=False),
         Binding("x", "motor(False)", "Motor off", show=False),
         Binding("l", "reconnect", "Reconnect", show=False),
@@ -295,6 +302,12 @@ class BenchScreen(Screen):
     def action_machine(self) -> None:
         self.trueturn.pick_machine()
 
+    def action_second_start(self) -> None:
+        self.trueturn.second_start()
+
+    def action_stop_job(self) -> None:
+        self.trueturn.stop_job()
+
     def action_motor(self, on: bool) -> None:
         self.trueturn.motor(on)
 
@@ -339,6 +352,8 @@ class TrueturnApp(App):
         self.procedure: Procedure | None = None
         self.message = ""
         self.condition: tuple[str, ...] = ()  # the machine's condition, in words
+        #: the as-found run's severity and unbalance judgement (a second start joins it)
+        self.as_found_condition: tuple[tuple[Severity, ...], tuple[Finding, ...]] | None = None
         self.quit_armed = False  # q pressed once during a run: a second q quits
         self.alarm: SafetyEvent | None = None
         self.snap: Snapshot | None = None
@@ -660,6 +675,9 @@ class TrueturnApp(App):
             case ShowCorrection():
                 proc.accept_correction()
                 self.message = ""
+            case ShowDoubt():
+                proc.go_on()
+                self.message = texts.GOING_ON
             case ShowVerdict() if not proc.finished:
                 proc.finish()
                 self.keeper.finish(proc)
@@ -667,6 +685,34 @@ class TrueturnApp(App):
                 self.message = texts.JOB_CLOSED
             case _:
                 self.message = texts.JOB_FINISHED
+
+    def second_start(self) -> None:
+        """n: start the machine once more as found, after a stop: does the 1x repeat?"""
+        proc = self.procedure
+        if proc is None:
+            return
+        try:
+            proc.start_again()
+            self.message = texts.SECOND_START
+        except GateRefused as exc:
+            self.message = f"Refused: {exc}"
+        self.tick()
+
+    def stop_job(self) -> None:
+        """k: stop the job here because balancing may not help (offered after the as-found
+        run); the job closes with the reason kept, and its report is written."""
+        proc = self.procedure
+        if proc is None:
+            return
+        try:
+            proc.stop_here(self.session.watch.now_s or 0.0)
+        except GateRefused as exc:
+            self.message = f"Refused: {exc}"
+        else:
+            self.keeper.stop(proc)
+            self._saved_cache.clear()
+            self.message = texts.JOB_STOPPED
+        self.tick()
 
     def run_off_speed_again(self) -> None:
         """e: measure again the coefficient run that was furthest off speed."""
@@ -757,12 +803,19 @@ class TrueturnApp(App):
                       if r.speed_rpm is not None and r.speed_rpm > 0]
             run = proc.record(meter.readings, statistics.fmean(speeds), now, live)
             condition = None
-            if run.kind in (RunKind.AS_FOUND, RunKind.CHECK):
+            note = ""
+            if run is proc.second_start:
+                note = self._judge_second_start(proc, run)
+            elif run.kind in (RunKind.AS_FOUND, RunKind.CHECK):
                 # is it unbalance, and how bad overall (as found, and after each check)
                 condition = self.session.machine_condition()
                 self.condition = texts.condition_lines(*condition, as_found=(
                     run.kind is RunKind.AS_FOUND))
-            self.keeper.run(proc, run, condition)
+            if run is not proc.second_start:
+                self.keeper.run(proc, run, condition)
+            if condition is not None and run.kind is RunKind.AS_FOUND:
+                self.as_found_condition = condition
+                proc.as_found_judged(failing_rules(condition[1]))
             self.session.remember_running_level()
             self.quit_armed = False
             stop = "press x to switch the virtual motor off" if self.rig else \
@@ -772,6 +825,28 @@ class TrueturnApp(App):
             over = [why[e.kind] for e in run.events if e.kind in why]
             if over:
                 self.message += f" It started over after {over[-1]}."
+            if note:
+                self.message += f" {note}"
+
+    def _judge_second_start(self, proc: Procedure, run: Run) -> str:
+        """A second start as found: compare its 1x with the first start's (issue #22), keep
+        it with the as-found run, and let the procedure ask when balancing may not help;
+        returns a note for the message line (empty, or why the starts were not compared)."""
+        severity, _ = self.session.machine_condition()
+        first = proc.runs[0]
+        kept = self.as_found_condition or ((), ())
+        unbalance = kept[1]
+        note = ""
+        if same_speed(first.speed_rpm or 0.0, run.speed_rpm or 0.0):
+            unbalance = judge_second_start(unbalance, list(first.readings.values()),
+                                           list(run.readings.values()))[0]
+        else:
+            note = texts.second_start_off_speed(first.speed_rpm or 0.0, run.speed_rpm or 0.0)
+        self.as_found_condition = (kept[0], unbalance)
+        self.condition = texts.condition_lines(kept[0], unbalance, as_found=True)
+        self.keeper.second_start(run, severity, unbalance)
+        proc.as_found_judged(failing_rules(unbalance))
+        return note
 
     def tach_live(self, snap: Snapshot) -> bool:
         """The tach is being seen: an edge within the last ``TACH_SILENT_S`` of board time."""

@@ -11,7 +11,7 @@ import os
 from collections.abc import Sequence
 from dataclasses import replace
 from pathlib import Path
-from typing import Literal
+from typing import Literal, cast
 
 from trueturn.dsp.findings import Finding
 from trueturn.dsp.severity import Severity
@@ -221,6 +221,47 @@ class JobKeeper:
             record.unbalance = unbalance_entry(condition[1])
         self._kept(self._save("append_run", self.job, record, self._where()), confirmations)
 
+    def second_start(self, run: Run, severity: Sequence[Severity],
+                     unbalance: Sequence[Finding]) -> None:
+        """Keep a second start as found with the as-found run, and the unbalance judgement
+        over both starts (issue #22)."""
+        if self.job is None or not self.job.runs:
+            return
+        assert run.speed_rpm is not None  # Procedure.record: every run has its measured speed
+        readings = [replace(r, phase_deg=None if r.phase_deg is None else r.phase_deg % 360.0,
+                            confidence_deg=min(180.0, r.confidence_deg),
+                            speed_rpm=r.speed_rpm or run.speed_rpm)
+                    for r in run.readings.values()]
+        entry = rec.SecondStartEntry(rec.now_iso(), run.speed_rpm, readings,
+                                     severity_entries(severity))
+        self.path = self._save("record_second_start", self.job, entry,
+                               unbalance_entry(unbalance), self._where()) or self.path
+
+    def stop(self, proc: Procedure) -> Path | None:
+        """Close the job without a verdict because the person stopped it (the reason kept),
+        and write the HTML report beside it."""
+        if self.job is None or proc.stopped is None:
+            return None
+        because = [cast(rec.EvidenceCode, c) for c in proc.stopped.because]
+        entry = rec.StopEntry(proc.stopped.reason, max(1, proc.stopped.after_run),
+                              rec.now_iso(), because)
+        saved = self._save("stop_job", self.job, entry, self._where())
+        if saved is None:
+            return None
+        self.path = saved
+        self._write_report()
+        return self.path
+
+    def _write_report(self) -> None:
+        """The HTML report beside the closed job (a failure is said, the job stays saved)."""
+        assert self.job is not None and self.path is not None
+        try:
+            report = self.path.with_suffix(".html")
+            atomic_write_text(report, html_report(self.job))
+            self.report_path = report
+        except UserError as exc:
+            self.unsaved = f"the job is saved but not its report: {exc}"
+
     def _keep_coefficients(self, proc: Procedure) -> None:
         """Store the influence coefficients (refitted over every run) for later trims."""
         assert self.job is not None
@@ -258,12 +299,7 @@ class JobKeeper:
         if saved is None:
             return None
         self.path = saved
-        try:
-            report = self.path.with_suffix(".html")
-            atomic_write_text(report, html_report(self.job))
-            self.report_path = report
-        except UserError as exc:
-            self.unsaved = f"the job is saved but not its report: {exc}"
+        self._write_report()
         return self.path
 
 

@@ -27,7 +27,7 @@ from textual.reactive import reactive
 from textual.widgets import ContentSwitcher, ProgressBar, Static
 
 from trueturn.angles import wrap_deg
-from trueturn.dsp.findings import Code, describe
+from trueturn.dsp.findings import Code, Finding, describe
 from trueturn.jobs.profiles import MachineProfile
 from trueturn.model import Correction, PlacedMass, Reading, Verdict
 from trueturn.model.result import WITHHOLDING_FLAGS
@@ -42,8 +42,10 @@ from trueturn.procedure.guide import (
     Procedure,
     RunPhase,
     ShowCorrection,
+    ShowDoubt,
     ShowVerdict,
     Step,
+    Stopped,
     TooSmallTrial,
     standstill_basis_words,
     standstill_refusal,
@@ -195,6 +197,8 @@ class HandsOnPanel(ProcedurePanel):
     #: the standstill evidence in words: as shown (whole seconds, rounded levels), so the
     #: panel repaints when the words change, not with every new sample
     standstill: reactive[tuple[str, ...]] = reactive(())
+    #: a second start as found is offered (before the first trial mass goes on)
+    offer_second_start: reactive[bool] = reactive(False)
 
     def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
         super().show(proc, snap, ctx)
@@ -209,6 +213,9 @@ class HandsOnPanel(ProcedurePanel):
         self.items = proc.checklist()
         self.ticked = frozenset(proc.ticked)
         self.standstill = self.evidence_words(snap.evidence)
+        # offered once the rotor is at proven standstill (a second start needs a stop)
+        self.offer_second_start = (proc.offers_second_start and snap.evidence is not None
+                                   and snap.evidence.proven)
 
     def evidence_words(self, ev: StandstillEvidence | None) -> tuple[str, ...]:
         """What proved standstill, or why it is not proven (and to stop the machine)."""
@@ -226,6 +233,8 @@ class HandsOnPanel(ProcedurePanel):
 
     def body(self) -> list[str]:
         lines = [*(self.work or (texts.LOOK_OVER,)), texts.H_MARKING, *self.standstill]
+        if self.offer_second_start:
+            lines.append(texts.N_SECOND_START)
         lockout = self.phase is HandsOnPhase.LOCKOUT
         lines.append(texts.TICK_BEFORE if lockout else texts.TICK_AFTER)
         for i, item in enumerate(self.items):
@@ -478,6 +487,55 @@ class VerdictPanel(ProcedurePanel):
         return lines
 
 
+class DoubtPanel(ProcedurePanel):
+    """After the as-found run, when balancing may not help: stop the job here or go on (the
+    failing rules are in the machine's condition below)."""
+
+    offer_second_start: reactive[bool] = reactive(False)
+
+    def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
+        super().show(proc, snap, ctx)
+        assert proc is not None and isinstance(proc.step, ShowDoubt)
+        self.offer_second_start = proc.offers_second_start
+
+    def body(self) -> list[str]:
+        lines = list(texts.DOUBT_BODY)
+        if self.offer_second_start:
+            lines.append(texts.N_SECOND_START)
+        return lines
+
+
+class StoppedPanel(ProcedurePanel):
+    """The person stopped the job before a verdict: why, and where it was saved."""
+
+    because: reactive[str] = reactive("")
+    turning: reactive[bool] = reactive(False)
+    job_path: reactive[Path | None] = reactive(None)
+    report_path: reactive[Path | None] = reactive(None)
+
+    def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
+        super().show(proc, snap, ctx)
+        assert proc is not None and isinstance(proc.step, Stopped)
+        stop = proc.stopped
+        self.because = describe(Finding(Code.BALANCING_MAY_NOT_HELP, details={
+            "because": list(stop.because)})) if stop is not None else ""
+        ev = snap.evidence
+        self.turning = ev is not None and ev.state is StandstillState.TURNING
+        self.job_path = ctx.job_path
+        self.report_path = ctx.report_path
+
+    def body(self) -> list[str]:
+        lines = [f"Stopped after {self.runs} run(s) by your choice: {self.because}."]
+        if self.turning:
+            lines.append(texts.SWITCH_OFF_VERDICT +
+                         (" (x for the demo motor)." if self.demo else "."))
+        lines.append(f"Saved: {self.job_path}")
+        if self.report_path:
+            lines.append(f"Report: {self.report_path}")
+        lines.append(texts.STOPPED_NEXT)
+        return lines
+
+
 def panel_for(step: Step) -> str:
     """The id of the panel that shows a step, by the step's type (the tagged union)."""
     match step:
@@ -489,6 +547,10 @@ def panel_for(step: Step) -> str:
             return "correction-panel"
         case ShowVerdict():
             return "verdict-panel"
+        case ShowDoubt():
+            return "doubt-panel"
+        case Stopped():
+            return "stopped-panel"
     raise TypeError(f"no panel for {type(step).__name__}")
 
 
@@ -520,6 +582,8 @@ class GuideView(Vertical):
             yield RunPanel(id="run-panel")
             yield CorrectionPanel(id="correction-panel")
             yield VerdictPanel(id="verdict-panel")
+            yield DoubtPanel(id="doubt-panel")
+            yield StoppedPanel(id="stopped-panel")
             yield LinkLostPanel(id="link-panel")
         yield ProgressBar(total=100, show_eta=False, id="progress")
         yield MessageLine(id="guide-msg")

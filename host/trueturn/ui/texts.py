@@ -106,8 +106,9 @@ KEYS: list[tuple[str, str]] = [
     ("Enter", "Guide: confirm the step shown (gates refuse while unsafe); acknowledge an alarm"),
     ("r", "Guide: remove material instead of adding mass (correction step)"),
     ("e", "Guide: run again the run that was off speed, before placing the correction"),
-    ("o", "Demo rig: switch the virtual motor on"),
-    ("x", "Demo rig: switch the virtual motor off"),
+    ("n", "Guide: start once more as found, after a stop (does the 1x repeat? optional)"),
+    ("k", "Guide: stop the job here when balancing may not help (the reason is kept)"),
+    ("o / x", "Demo rig: switch the virtual motor on / off"),
     ("l", "Link lost: reconnect to the same port (the run starts over)"),
     ("w", "Job not saved (disk full, workspace not writable): save it in another folder"),
     ("h", "Guide: rings to print for this rotor, their faces, carrying the 0° mark"),
@@ -238,6 +239,16 @@ ENTER_PLACE = "   [b]Enter[/b]: go and place the parts"
 ENTER_PLACE_NO_REMOVAL = ("[b]Enter[/b]: go and place the parts (removing material is not "
                           "allowed on this rotor)")
 
+N_SECOND_START = ("[b]n[/b]: first start it once more as found, after a stop: does the 1x "
+                  "repeat? (optional)")
+DOUBT_BODY = (
+    "Weights cure unbalance only. Find and fix the cause below first (mounting bolts,",
+    "alignment, belts, bearings, a loose part); then balance in a new job.",
+    "[b]k[/b]: stop the job here (the reason is kept in the job and its report)",
+    "[b]Enter[/b]: go on with the balancing anyway",
+)
+STOPPED_NEXT = "Find and fix that cause, then balance in a new job. Press q to quit."
+
 SWITCH_OFF_VERDICT = "[b]Switch the machine off[/b]"
 ENTER_CLOSE_JOB = "[b]Enter[/b]: close the job and write the report"
 
@@ -267,6 +278,10 @@ RUN_INTERRUPTED = "The run was interrupted: press l to reconnect; it starts over
 MEASURING = "Measuring: wait for the bar to fill (the reading must be steady)."
 RUN_AGAIN = "Run again: confirm the forces to start."
 JOB_CLOSED = "Job closed and saved (report beside it). Press q to quit."
+JOB_STOPPED = "Job stopped and saved with the reason (report beside it). Press q to quit."
+GOING_ON = "Going on with the balancing: it may not cure all of the vibration."
+SECOND_START = ("Second start as found: confirm the forces, then start the machine; its 1x is "
+                "compared with the first start's.")
 JOB_FINISHED = "The job is finished. Press q to quit."
 AS_REMOVAL = "Correction as material to remove."
 AS_ADDITION = "Correction as mass to add."
@@ -294,22 +309,38 @@ QUIT_UNSAVED = ("The job is not saved: press w to save it in another folder, or 
 NOTHING_TO_SAVE = "The job is saved: nothing to move."
 
 
+MAY_NOT_HELP_HEAD = "[b yellow]Not only unbalance: balancing may not help. Find and fix first:[/]"
+
+
+def second_start_off_speed(first_rpm: float, second_rpm: float) -> str:
+    """The message when the two starts ran at different speeds (then not compared)."""
+    return (f"The second start ran at {second_rpm:.0f} rpm, the first at {first_rpm:.0f}: "
+            "not compared (the 1x changes with speed).")
+
+
 def condition_lines(severity: Sequence[Severity], unbalance: Sequence[Finding],
                     as_found: bool) -> tuple[str, ...]:
     """The machine's condition for the guide: each pickup's overall level and zone, then
     whether it looks like unbalance with the evidence that failed (as found), or plainly
     that the machine is still rough after a check run (zones C and D)."""
     when = "as found" if as_found else "at the last check"
-    lines = [f"[b]Machine condition ({when}):[/b]"]
-    lines += [f"  {describe(s.as_finding())}" for s in severity]  # names its pickup
+    band = next((s.band_hz for s in severity if s.band_hz and s.zone is not None), None)
+    over = f"; overall = velocity {band[0]:g}-{band[1]:g} Hz" if band else ""
+    lines = [f"[b]Machine condition ({when}{over}):[/b]"]
+    # the brief words name the pickup and fit one line (a refusal keeps its reason)
+    lines += [f"  {describe(s.as_finding(), brief=True)}" for s in severity]
     if unbalance:
         verdict = unbalance[0]
         failing = [f for f in unbalance[1:] if not f.details.get("ok", True)]
         if verdict.code is Code.BALANCING_MAY_NOT_HELP:
-            lines.append(f"[b yellow]{describe(verdict)}[/]")
+            # one line (the failing rules below say what): the guide is 80x24
+            lines.append(MAY_NOT_HELP_HEAD if failing else f"[b yellow]{describe(verdict)}[/]")
             lines += [f"[yellow]  {describe(f)}[/]" for f in failing]
         elif as_found:
-            lines.append(f"  {describe(verdict)}")
+            lines.append(f"  {describe(verdict, brief=True)}")
+            # a second start that repeated: said briefly (a moved 1x is in the failing lines)
+            lines += [f"  {describe(f, brief=True)}" for f in unbalance[1:]
+                      if f.code is Code.PHASE_REPEATABLE and f.details.get("ok")]
     rough = [s.pickup for s in severity if s.zone is not None and s.zone.value in ("C", "D")]
     if rough and not as_found:
         lines.append(f"[yellow]Still zone C/D at {', '.join(rough)}: the rotor may be within "

@@ -240,6 +240,11 @@ def build(folder: Path) -> list[Case]:
         "--grade", "6.3", "--residual-ozin", "1e300", "1")
     add("grade residual gmm and ozin", "grade", "--rotor-mass-lb", "4", "--speed-rpm", "3450",
         "--grade", "6.3", "--residual-ozin", "1", "1", "--residual-gmm", "1", "1")
+    add("split --combine-oz nan", "split", "--combine-oz", "0.1@nan", "0.2@10", "--positions",
+        "4")
+    add("split --combine-oz 1e300", "split", "--combine-oz", "1e300@0", "--positions", "4")
+    add("split --combine and --combine-oz", "split", "--combine", "3@0", "--combine-oz",
+        "0.1@90", "--positions", "4")
     add("split --combine nan", "split", "--combine", "3@nan", "4@10", "--positions", "4")
     add("analyze --revs huge", "analyze", str(f / "noframes.cap"), "--revs", "100000000000")
     for option, value in (("--sensitivity-v-per-g", "nan"), ("--sensitivity-v-per-g", "1e300"),

@@ -207,3 +207,15 @@ def test_solve_warns_of_a_large_correction_in_the_units_of_the_file(tmp_path):
     assert code == 0, err
     large = [line for line in out.splitlines() if "LARGE CORRECTION" in line]
     assert large and re.search(r"\d oz is", large[0]) and " g is" not in large[0]
+
+
+def test_split_combines_masses_given_in_oz():
+    # two equal masses 90° apart add to m√2 at 45° (vector sum)
+    code, out, err = run_cli(["split", "--combine-oz", "0.1@0", "0.1@90", "--positions", "4",
+                              "--json"])
+    assert code == 0, err
+    data = json.loads(out)
+    assert data["correction"] == {"mass_oz": pytest.approx(0.1 * math.sqrt(2)),
+                                  "angle_deg": pytest.approx(45.0)}
+    _, text, _ = run_cli(["split", "--combine-oz", "0.1@0", "0.1@90", "--positions", "4"])
+    assert "correction to add: 0.141 oz at 45°" in text

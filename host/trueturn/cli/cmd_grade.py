@@ -49,20 +49,24 @@ def parse_grade(text: str) -> float:
     return value
 
 
-def parse_residual(text: str) -> tuple[float, float | None]:
-    """'37' -> (37, None); '37@180' -> (37, 180): g·mm, optionally at an angle in degrees."""
+def parse_residual(text: str, unit: str = "g·mm") -> tuple[float, float | None]:
+    """'37' -> (37, None); '37@180' -> (37, 180): ``unit``, optionally at an angle in degrees."""
     mag_text, sep, angle_text = text.partition("@")
     try:
         mag = float(mag_text)
         angle = float(angle_text) if sep else None
     except ValueError:
         raise argparse.ArgumentTypeError(
-            f"not a residual: {text!r} (g·mm, or g·mm@angle_deg such as 37@180)") from None
+            f"not a residual: {text!r} ({unit}, or {unit}@angle_deg such as 37@180)") from None
     if not 0 <= mag <= MAX_RESIDUAL_GMM or (angle is not None and not -360 <= angle <= 360):
         raise argparse.ArgumentTypeError(
-            f"residual must be 0 to {MAX_RESIDUAL_GMM:g} g·mm with an angle within "
+            f"residual must be 0 to {MAX_RESIDUAL_GMM:g} {unit} with an angle within "
             f"-360..360°, got {text!r}")
     return mag, angle
+
+
+def _parse_residual_ozin(text: str) -> tuple[float, float | None]:
+    return parse_residual(text, "oz·in")
 
 
 def add_parser(sub: argparse._SubParsersAction) -> None:
@@ -85,7 +89,8 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     residual.add_argument("--residual-gmm", type=parse_residual, nargs="+", metavar="U[@DEG]",
                           help="residual unbalance per correction plane, g·mm, optionally at "
                                "an angle (37@180), for a pass/fail verdict")
-    residual.add_argument("--residual-ozin", type=parse_residual, nargs="+", metavar="U[@DEG]",
+    residual.add_argument("--residual-ozin", type=_parse_residual_ozin, nargs="+",
+                          metavar="U[@DEG]",
                           help="the same in oz·in")
     add_quantity(parser, "plane-axial", "axial", "axial position of each correction plane "
                  "(with --bearing-axial-mm/-in)", nargs="+", metavar="Z")

@@ -18,7 +18,9 @@ from trueturn.cli.cmd_grade import parse_grade
 from trueturn.cli.common import add_quantity, json_in_units, number, print_json, read_units
 from trueturn.errors import UserError
 from trueturn.model.units import (
+    IMPERIAL,
     MASS_DECIMALS,
+    MassUnit,
     UnitChoice,
     length_text,
     mass_text,
@@ -28,14 +30,21 @@ from trueturn.model.units import (
 from trueturn.positions import degrees_text, equally_spaced_deg, position_text
 
 
-def _mass_at(text: str) -> tuple[float, float]:
+def _mass_at(text: str, unit: MassUnit = "g") -> tuple[float, float]:
+    """``'MASS@ANGLE'`` -> (grams, degrees); MASS in ``unit``."""
     try:
         mass, angle = text.split("@")
-        return number("mass_g_or_zero")(mass), number("angle_deg")(angle)
+        value = number(f"mass_{unit}_or_zero")(mass)
+        return mass_to_g(value, unit), number("angle_deg")(angle)
     except ValueError:
-        raise argparse.ArgumentTypeError(f"expected MASS_G@ANGLE_DEG, got {text!r}") from None
+        raise argparse.ArgumentTypeError(f"expected MASS_{unit.upper()}@ANGLE_DEG, got "
+                                         f"{text!r}") from None
     except argparse.ArgumentTypeError as exc:
         raise argparse.ArgumentTypeError(f"{text!r}: {exc}") from None
+
+
+def _oz_at(text: str) -> tuple[float, float]:
+    return _mass_at(text, "oz")
 
 
 def _gmm(text: str) -> float:
@@ -60,8 +69,11 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     add_quantity(parser, "mass", "mass", "correction mass",
                  spans=("mass_g_or_zero", "mass_oz_or_zero"))
     parser.add_argument("--angle-deg", type=number("angle_deg"), help="correction angle, degrees")
-    parser.add_argument("--combine", type=_mass_at, nargs="+", metavar="MASS_G@ANGLE_DEG",
-                        help="use the vector sum of these masses as the correction")
+    combining = parser.add_mutually_exclusive_group()
+    combining.add_argument("--combine", type=_mass_at, nargs="+", metavar="MASS_G@ANGLE_DEG",
+                           help="use the vector sum of these masses as the correction")
+    combining.add_argument("--combine-oz", type=_oz_at, nargs="+", metavar="MASS_OZ@ANGLE_DEG",
+                           help="the same with the masses in oz")
     where = parser.add_mutually_exclusive_group()
     where.add_argument("--positions", type=number("positions", whole=True), help="number of equally spaced positions")
     where.add_argument("--at-deg", type=number("angle_deg"), nargs="+", metavar="ANGLE",
@@ -153,6 +165,8 @@ def run(args: argparse.Namespace) -> int:
     machine_units = _from_machine(args)
     if machine_units is not None and machine_units.mass == "oz":
         shown = machine_units  # the machine's own units, unless the command line gave some
+    if args.combine_oz is not None:
+        args.combine, shown = args.combine_oz, IMPERIAL  # in grams already (_oz_at)
     args.shown = shown
     if args.combine:
         if args.mass_g is not None or args.angle_deg is not None:

@@ -731,7 +731,7 @@ h1 { font-size: 15pt; margin: 0 0 2mm 0; }
 h2 { font-size: 11pt; margin: 3mm 0 1mm 0; border-bottom: 0.4mm solid #444; }
 table { border-collapse: collapse; width: 100%; margin: 1mm 0 1.5mm 0; font-size: 7.8pt; }
 th, td { border: 0.25mm solid #bbb; padding: 0.4mm 1.2mm; text-align: left; vertical-align: top; }
-td { overflow-wrap: anywhere; }
+td { overflow-wrap: break-word; }
 th { background: #eee; }
 table.kv th { width: 30mm; }
 table.runs td:nth-child(2), table.confirmations td:nth-child(2), table.events td:nth-child(2)
@@ -779,22 +779,45 @@ def page_css(job_id: str) -> str:
     """Paper margins and the footer on every printed page: the job id and "page n of m"
     (CSS Paged Media Level 3 margin boxes, printed by Chromium 131 and later; a browser
     without them prints the page without the footer)."""
+    # a footer line has room for about 90 characters at 7.5 pt beside "page n of m": a very
+    # long id keeps its start and its end (where the running number is); page 1 has it all
+    shown = job_id if len(job_id) <= 64 else job_id[:40] + "\u2026" + job_id[-20:]
     return ("@page { margin: 12mm 12mm 14mm 12mm; "
-            "@bottom-left { content: " + _css_string(f"trueturn balancing report, job {job_id}")
+            "@bottom-left { content: " + _css_string(f"trueturn balancing report, job {shown}")
             + "; font: 7.5pt \"DejaVu Sans\", Arial, sans-serif; color: #333; } "
             '@bottom-right { content: "page " counter(page) " of " counter(pages); '
-            'font: 7.5pt "DejaVu Sans", Arial, sans-serif; color: #333; } }')
+            'font: 7.5pt "DejaVu Sans", Arial, sans-serif; color: #333; white-space: nowrap; } }')
+
+
+#: A word longer than this gets a line-break opportunity every BREAK_EVERY characters.
+LONG_WORD = 18
+BREAK_EVERY = 10
+
+
+def _cell(text: object) -> str:
+    """Cell text escaped, its very long words given break opportunities (``<wbr/>``), so a
+    long part name or id wraps inside its column instead of widening the table past the
+    paper; short words are never broken."""
+    out = []
+    for piece in re.split(r"(\s+)", str(text)):
+        if len(piece) > LONG_WORD:
+            out.append("<wbr/>".join(_e(piece[i:i + BREAK_EVERY])
+                                     for i in range(0, len(piece), BREAK_EVERY)))
+        else:
+            out.append(_e(piece))
+    return "".join(out)
 
 
 def _html_table(header: Sequence[str], rows: Sequence[Sequence[str]], css_class: str = "") -> str:
     cls = f' class="{css_class}"' if css_class else ""
     head = "".join(f"<th>{_e(h)}</th>" for h in header)
-    body = "".join("<tr>" + "".join(f"<td>{_e(c)}</td>" for c in row) + "</tr>" for row in rows)
+    body = "".join("<tr>" + "".join(f"<td>{_cell(c)}</td>" for c in row) + "</tr>"
+                   for row in rows)
     return f"<table{cls}><thead><tr>{head}</tr></thead><tbody>{body}</tbody></table>"
 
 
 def _html_kv(rows: Sequence[tuple[str, str]]) -> str:
-    body = "".join(f"<tr><th>{_e(k)}</th><td>{_e(v)}</td></tr>" for k, v in rows)
+    body = "".join(f"<tr><th>{_e(k)}</th><td>{_cell(v)}</td></tr>" for k, v in rows)
     return f'<table class="kv"><tbody>{body}</tbody></table>'
 
 

@@ -156,11 +156,18 @@ class ConnectScreen(Screen):
         self.query_one("#connect-body", Static).update(f"Opening {app.config.url} …")
         self.open_link()
 
+    def check_action(self, action: str, parameters: tuple[object, ...]) -> bool | None:
+        """``r`` (try again) is offered only after the port could not be used."""
+        if action == "retry":
+            return getattr(self, "refused", False)
+        return True
+
     def action_retry(self) -> None:
         """r after a refusal: open the port again (a board plugged in late, a port freed)."""
         if not self.refused:
             return
         self.refused = False
+        self.refresh_bindings()
         self.query_one("#connect-body", Static).update(Content.assemble(
             f"Opening {self.trueturn.config.url} … ", texts.CONNECT_TRYING))
         self.open_link()
@@ -188,6 +195,7 @@ class ConnectScreen(Screen):
     @on(LinkRefused)
     def show_problem(self, event: LinkRefused) -> None:
         self.refused = True
+        self.refresh_bindings()
         self.query_one("#connect-body", Static).update(Content.assemble(  # text, not markup
             (f"Cannot use {self.trueturn.config.url}", "bold red"),
             f"\n\n{event.text}\n\n{texts.CONNECT_RETRY}"))

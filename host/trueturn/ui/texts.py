@@ -113,6 +113,7 @@ KEYS: list[tuple[str, str]] = [
     ("w", "Job not saved (disk full, workspace not writable): save it in another folder"),
     ("h", "Guide: rings to print for this rotor, their faces, carrying the 0° mark"),
     ("PgDn PgUp ↓ ↑", "Guide: scroll a step longer than the screen"),
+    ("r", "Connect: try the port again when it could not be opened"),
     ("c", "Cautions (safety notes)"),
     ("? / F1", "This list of keys"),
     ("Escape", "Close this screen / go back"),

@@ -207,3 +207,23 @@ def test_tach_tracker_takes_a_coast_down_for_a_speed_change_not_bad_edges() -> N
     assert tracker.missing_edges == 0 and tracker.double_edges == 0
     assert tracker.uneven_revolutions == 0 and tracker.restarts == 0
     assert tracker.revolutions == len(times) - 2  # the first two edges learn the period
+
+
+@pytest.mark.parametrize("zeta", [0.02, 0.05])
+def test_sdof_fit_recovers_a_coarsely_sampled_resonance(zeta: float) -> None:
+    # points 3 % apart: the half-power band of 2 % damping holds 1-2 of them; the SDOF curve
+    # fit (Ewins sec. 4.3-4.4) uses amplitude and phase and recovers Rao's fn and zeta
+    speeds, a, sig = coast(1000.0, zeta, 0.03, noise=1e-4, seed=2)
+    sweep = analyse_sweep(speeds, {"p": a}, {"p": sig}, "g pk", min_ratio=1.3)
+    [res] = [r for r in sweep.resonances if abs(r.speed_rpm / 1000 - 1) < 0.1]
+    assert res.fit_speed_rpm == pytest.approx(1000.0, rel=0.01)
+    assert res.fit_damping_ratio == pytest.approx(zeta, rel=0.10)
+
+
+def test_sdof_fit_refuses_what_is_not_one_mode() -> None:
+    from trueturn.dsp.sweep import sdof_fit
+    n = np.linspace(800.0, 1200.0, 15)
+    rng = np.random.default_rng(0)
+    z = rng.normal(size=15) + 1j * rng.normal(size=15)  # no resonance at all
+    assert sdof_fit(n, z, np.full(15, 1e-3), 1000.0) is None
+    assert sdof_fit(n[:3], z[:3], np.full(3, 1e-3), 1000.0) is None  # too few points

@@ -80,6 +80,9 @@ def test_grinder_coastdown_finds_the_rubber_feet_resonance(grinder_coast: dict) 
     for r in at_first:
         # the coast-down passes the half-power band in 3 points: the damping is coarse
         assert r["damping_ratio"] == pytest.approx(zeta, rel=0.5)
+        # the SDOF curve fit uses the phase too: close to the model's mode
+        assert r["sdof_fit"]["speed_rpm"] == pytest.approx(first, rel=0.01)
+        assert r["sdof_fit"]["damping_ratio"] == pytest.approx(zeta, rel=0.15)
     # every resonance reported lies near one of the model's critical speeds
     model = json.loads(out)["resonances_rpm"]
     for r in data["resonances"]:

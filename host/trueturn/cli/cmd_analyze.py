@@ -366,6 +366,9 @@ def format_sweep(result: Analysis) -> list[str]:
                    "points)" if r.damping_ratio is None else
                    f"damping {100 * r.damping_ratio:.1f} % (half-power {r.lower_rpm:.0f}-"
                    f"{r.upper_rpm:.0f} rpm, {r.points_in_band} points)")
+        if r.fit_speed_rpm is not None and r.fit_damping_ratio is not None:
+            damping += (f"; SDOF fit {r.fit_speed_rpm:.0f} rpm, damping "
+                        f"{100 * r.fit_damping_ratio:.1f} %")
         lines.append(f"  - {r.pickup}: {r.speed_rpm:.0f} rpm, {damping}")
     for k in result.speed_slopes:
         lines.append(f"response slope at {k.speed_rpm:.0f} rpm, {k.pickup}: 1x ~ speed^"

@@ -209,7 +209,10 @@ class Analysis:
                             "half_power_rpm": None if r.lower_rpm is None or r.upper_rpm is None
                             else [num(r.lower_rpm, 1), num(r.upper_rpm, 1)],
                             "points_in_band": r.points_in_band,
-                            "peak_ratio": num(r.peak_ratio, 3), "method": r.method}
+                            "peak_ratio": num(r.peak_ratio, 3), "method": r.method,
+                            "sdof_fit": None if r.fit_speed_rpm is None else {
+                                "speed_rpm": num(r.fit_speed_rpm, 1),
+                                "damping_ratio": num(r.fit_damping_ratio, 4)}}
                            for r in sw.resonances],
             "sweep_info": {"unit": sw.unit, "is_sweep": sw.is_sweep,
                            "low_rpm": num(sw.low_rpm, 1), "high_rpm": num(sw.high_rpm, 1),
@@ -218,7 +221,9 @@ class Analysis:
                            "resonance_margin": RESONANCE_MARGIN,
                            "method": "half-power bandwidth on the 1x per unit unbalance force "
                                      "(divided by speed^2 and the pickup's own power of "
-                                     "speed); Ewins, Modal Testing, sec. 4.2"},
+                                     "speed); Ewins, Modal Testing, sec. 4.2; cross-checked "
+                                     "by an SDOF curve fit to the complex response "
+                                     "(sdof_fit; Ewins sec. 4.3-4.4)"},
             "speed_slopes": [{"pickup": k.pickup, "speed_rpm": num(k.speed_rpm, 1),
                               "amplitude_exponent": num(k.amplitude_exponent, 4),
                               "amplitude_exponent_se": num(k.amplitude_exponent_se, 4),

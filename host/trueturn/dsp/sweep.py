@@ -43,9 +43,10 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
+from scipy.optimize import least_squares
 from scipy.signal import find_peaks
 
 from trueturn.dsp.units import UNITS
@@ -148,6 +149,10 @@ class Resonance:
     points_in_band: int
     peak_ratio: float
     method: str = "half_power"
+    #: the cross-check: natural speed (rpm) and damping of a single-degree-of-freedom curve
+    #: fit to the complex response around the peak (:func:`sdof_fit`), None when it failed
+    fit_speed_rpm: float | None = None
+    fit_damping_ratio: float | None = None
 
 
 @dataclass(frozen=True)
@@ -367,6 +372,85 @@ def half_power_resonances(speeds_rpm: np.ndarray, response: np.ndarray,
     return out
 
 
+#: the SDOF fit uses the usable points within this factor of the resonance speed
+FIT_SPAN = 1.2
+MIN_FIT_POINTS = 5
+#: and is kept when its residual is at most this fraction of the largest response fitted
+MAX_FIT_RESIDUAL = 0.1
+
+
+def sdof_fit(speeds_rpm: np.ndarray, response: np.ndarray, sigmas: np.ndarray,
+             guess_rpm: float, guess_zeta: float = 0.05) -> tuple[float, float] | None:
+    """Natural speed and damping ratio of an SDOF curve fitted to a complex response.
+
+    Model (receptance of one mode plus a constant for the others, in rpm):
+    ``z(n) = A / (nn^2 - n^2 + 2 i zeta nn n) + B`` with complex ``A``, ``B``; for given
+    ``nn`` and ``zeta`` the complex constants are linear and solved exactly (variable
+    projection), ``nn`` and ``zeta`` by :func:`scipy.optimize.least_squares`, each point
+    weighted by ``1 / sigma``. Uses amplitude *and* phase, so a resonance passed in a few
+    points is still fitted.
+
+    Parameters
+    ----------
+    speeds_rpm : numpy.ndarray
+        Speeds of the points, rpm.
+    response : numpy.ndarray
+        The complex response per unit unbalance force there (standard ``e^{i omega t}``
+        convention: the conjugate of a project phasor, divided by the speed's power).
+    sigmas : numpy.ndarray
+        Each point's standard error, same unit.
+    guess_rpm : float
+        Start for ``nn`` (the half-power peak), rpm; ``nn`` stays within 20 % of it.
+    guess_zeta : float, default 0.05
+        Start for ``zeta`` (kept within 0.001...0.5).
+
+    Returns
+    -------
+    tuple or None
+        ``(nn_rpm, zeta)``; None with fewer than :data:`MIN_FIT_POINTS` points, no
+        convergence, or an RMS misfit above :data:`MAX_FIT_RESIDUAL` of the largest
+        response (not one mode).
+
+    References
+    ----------
+    .. [1] D. J. Ewins, *Modal Testing: Theory, Practice and Application*, 2nd ed., 2000,
+       sec. 4.3-4.4 (SDOF curve fitting with residual terms; circle fit) (from memory).
+    .. [2] G. H. Golub, V. Pereyra, "The differentiation of pseudo-inverses and nonlinear
+       least squares problems whose variables separate", SIAM J. Numer. Anal. 10(2), 1973
+       (variable projection; from memory).
+    """
+    n = np.asarray(speeds_rpm, dtype=float)
+    z = np.asarray(response, dtype=complex)
+    w = 1.0 / np.maximum(np.asarray(sigmas, dtype=float), 1e-12 * float(np.abs(z).max(initial=1.0)))
+    if n.size < MIN_FIT_POINTS or not guess_rpm > 0:
+        return None
+    scale = guess_rpm
+
+    def design(params: np.ndarray) -> np.ndarray:
+        nn, zeta = params[0] * scale, params[1]
+        return np.stack([1.0 / (nn * nn - n * n + 2j * zeta * nn * n) * scale * scale,
+                         np.ones_like(n, dtype=complex)], axis=1)
+
+    def misfit(params: np.ndarray) -> np.ndarray:
+        m = design(params) * w[:, None]
+        coef = np.linalg.lstsq(m, z * w, rcond=None)[0]
+        r = m @ coef - z * w
+        return np.concatenate([r.real, r.imag])
+
+    start = np.array([1.0, min(max(guess_zeta, 0.002), 0.4)])
+    try:
+        fit = least_squares(misfit, start, bounds=([1 / FIT_SPAN, 0.001], [FIT_SPAN, 0.5]))
+    except (ValueError, np.linalg.LinAlgError):
+        return None
+    if not fit.success:
+        return None
+    coef = np.linalg.lstsq(design(fit.x), z, rcond=None)[0]
+    rms = float(np.sqrt(np.mean(np.abs(design(fit.x) @ coef - z) ** 2)))
+    if rms > MAX_FIT_RESIDUAL * float(np.abs(z).max()):
+        return None
+    return float(fit.x[0] * scale), float(fit.x[1])
+
+
 def _vertex(x: np.ndarray, y: np.ndarray) -> tuple[float, float]:
     """Vertex (x, y) of the parabola through three points (the middle one the highest)."""
     coef = np.polyfit(x, y, 2)
@@ -390,6 +474,26 @@ def _crossing(x: np.ndarray, y: np.ndarray, start: int, level: float, step: int)
             return float(x[a] + t * (x[b] - x[a]))
         a = b
     return None
+
+
+def _with_fit(res: Resonance, points: Sequence[SweepPoint], name: str, unit: str
+              ) -> Resonance:
+    """The resonance with the SDOF fit's cross-check filled in (when it succeeds)."""
+    near = [(p.speed_rpm, v) for p in points
+            if res.speed_rpm / FIT_SPAN <= p.speed_rpm <= res.speed_rpm * FIT_SPAN
+            for v in (p.value(name),) if v is not None and v.usable]
+    if len(near) < MIN_FIT_POINTS:
+        return res
+    n = np.array([s for s, _ in near])
+    power = NORMALISING_POWER[UNITS[unit][0]]
+    divide = (n / 1000.0) ** power
+    # standard convention: the conjugate of the project phasor (phase = lag)
+    z = np.array([v.amplitude * np.exp(-1j * math.radians(v.phase_deg)) for _, v in near])
+    sig = np.array([v.confidence_radius / CIRCLE_95_PER_SIGMA for _, v in near])
+    fit = sdof_fit(n, z / divide, sig / divide, res.speed_rpm, res.damping_ratio or 0.05)
+    if fit is None:
+        return res
+    return replace(res, fit_speed_rpm=fit[0], fit_damping_ratio=fit[1])
 
 
 def local_slope(points: Sequence[SweepPoint], pickup: str, speed_rpm: float,
@@ -512,8 +616,9 @@ def analyse_sweep(speeds_rpm: np.ndarray, phasors: Mapping[str, np.ndarray],
             if len(used) < 3:
                 continue
             n = np.array([u[0] for u in used])
-            found += half_power_resonances(n, normalised_response(
+            peaks = half_power_resonances(n, normalised_response(
                 n, np.array([u[1] for u in used]), unit), name, np.array([u[2] for u in used]))
+            found += [_with_fit(r, points, name, unit) for r in peaks]
     found.sort(key=lambda r: (r.speed_rpm, r.pickup))
     return Sweep(unit, points, tuple(found), low, high, is_sweep)
 

@@ -239,7 +239,7 @@ def test_an_open_job_shows_no_trial_run_as_after(job: JobRecord) -> None:
 
 
 def test_e_per_u_per_and_the_service_speed(page: ET.Element, job: JobRecord) -> None:
-    # ISO 21940-11:2016, 5.2/Annex: e_per = G / omega with omega at the maximum service speed,
+    # ISO 21940-11:2016 (grade G = e_per * omega): e_per = G / omega at the maximum service speed,
     # U_per = e_per * m (G in mm/s, omega = 2 pi n / 60 in rad/s; e_per in um = g mm / kg).
     assert job.verdict is not None
     omega = 2 * math.pi * job.verdict.speed_rpm / 60

@@ -33,7 +33,9 @@ class SpeedSlopeEntry:
     """A pickup's measured local response slope (from a coast-down sweep, ``trueturn
     analyze --sweep``): 1x ~ speed**amplitude_exponent nearby, and its phase lag growing by
     ``phase_deg_per_ln_speed`` per unit of ln(speed). Near a resonance the exponent may be
-    far from 2...4, even negative (above it); the phase slope is then large too."""
+    far from 2...4, even negative (above it); the phase slope is then large too. The
+    exponent belongs to the readings' unit (acceleration's is velocity's plus 1,
+    displacement's plus 2); the phase slope does not depend on it."""
 
     sensor: str = field(metadata=limits(nonempty=True))
     amplitude_exponent: float = field(metadata=limits(minimum=-30.0, maximum=30.0))

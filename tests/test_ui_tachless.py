@@ -18,7 +18,9 @@ from test_ui_app import (
     follow_the_screens,
     press,
     quick_scenario,
+    screen_text,
     unbalance_now,
+    wait_for,
 )
 from trueturn.jobs.store import read_document
 from trueturn.procedure.standstill import Basis
@@ -40,7 +42,13 @@ def test_amplitude_only_with_no_tach_reaches_a_correction_that_cuts_the_1x(tmp_p
         async with app.run_test(size=SIZE) as pilot:
             await connect(app, pilot)
             before = unbalance_now(app)
-            await follow_the_screens(app, pilot, "3")
+            await press(app, pilot, "3")
+            # the guide says the tach is absent, and on what standstill rests
+            await wait_for(pilot, lambda: "Standstill proven: no tach on this machine"
+                           in screen_text(app), 90)
+            assert "no tach is needed" in screen_text(app)
+            assert "STANDSTILL (no tach; pickups quiet" in screen_text(app)
+            await follow_the_screens(app, pilot, "3")  # (3 again: ignored, chosen already)
             proc = app.procedure
             assert proc is not None and proc.verdict is not None
             job = read_document(app.keeper.path, "job")

@@ -77,9 +77,8 @@ def describe_change(change: MassChange, proc: Procedure, engine: BalanceEngine,
     if change.action == "mount-pickups":
         names = ", ".join(proc.setup.sensors)
         if proc.setup.mode is Mode.AMPLITUDE_ONLY:
-            return (f"Mount the pickups ({names}) firmly on the bearing housings. No tach: "
-                    "the amplitude-only method reads the speed from the spectrum; mark "
-                    "positions 0°, 120° and 240° on the rotor for the trial mass.")
+            return (f"Mount the pickups ({names}) firmly on the bearing housings; no tach "
+                    "is needed (speed from the spectrum).")
         return (f"Mount the pickups ({names}) firmly on the bearing housings and aim the tach "
                 "at its reflective mark (0° = the mark).")
     m = change.mass

@@ -337,8 +337,8 @@ class RunPanel(ProcedurePanel):
                 amplitude, unit = self.units.vibration_value(r.amplitude, r.unit)
                 radius = (self.units.vibration_value(r.confidence_radius, r.unit)[0]
                           if r.confidence_radius is not None else None)
-                pm = f"±{radius:.3f}" if radius is not None else "±?"
-                lines.append(f"  {name}: 1x {amplitude:.3f} {pm} {unit} (95 %), {st}")
+                pm = f" ±{radius:.3f}" if radius is not None else ""  # none from 1 segment
+                lines.append(f"  {name}: 1x {amplitude:.3f}{pm} {unit} (95 %), {st}")
                 continue
             ph = f"{r.phase_deg:.0f}°" if r.phase_deg is not None else "—"
             st = "[green]steady[/]" if r.steady else "[yellow]settling[/]"

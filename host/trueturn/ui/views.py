@@ -37,9 +37,14 @@ class StatusStrip(MarkupText):
                 "[b yellow]reconnecting…[/]"
         elif ev is None or state is StandstillState.NO_DATA:
             motion = "[b red]NO DATA[/]: standstill cannot be proven"
+        elif state is StandstillState.PROVEN and ev.tach_absent:
+            motion = f"[green]STANDSTILL[/] (no tach; pickups quiet {ev.pickups_quiet_s:.0f} s)"
         elif state is StandstillState.PROVEN:
             motion = (f"[green]STANDSTILL[/] (tach silent {ev.tach_silent_s:.0f} s, "
                       "pickups quiet)")
+        elif ev.tach_absent and ev.moving_pickups:
+            motion = (f"[b red]TURNING ~{speed:.0f} rpm[/] (pickups, no tach)" if speed else
+                      "[b red]MOVING[/] (the pickups see vibration; no tach)")
         elif state is StandstillState.TURNING:
             motion = f"[b red]TURNING {speed or 0:.0f} rpm[/]"
         elif state is StandstillState.TACH_FAULT:

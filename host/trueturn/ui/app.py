@@ -563,9 +563,7 @@ class TrueturnApp(App):
         except ValueError as exc:
             self.message = str(exc)
             return
-        # amplitude only: no tach needed, speed and 1x from the spectrum (dsp.tachless)
-        self.session.use_tachless(speed_band_hz(setup.speed_rpm, setup.max_speed_rpm)
-                                  if mode is Mode.AMPLITUDE_ONLY else None)
+        self._measure_for(self.procedure)
         self.keeper.start(self.procedure)
         self.message = ""
         if self.procedure.partial_planes:
@@ -573,6 +571,13 @@ class TrueturnApp(App):
                             f"{len(self.config.profile.planes)} correction planes; balancing "
                             "one of them cannot show the whole rotor within its grade. "
                             "Quit and choose 2 for both planes.")
+
+    def _measure_for(self, proc: Procedure) -> None:
+        """Amplitude only: no tach needed, speed and 1x from the spectrum (dsp.tachless);
+        else from the tach (idempotent: the refresh calls it for a procedure made any way)."""
+        setup = proc.setup
+        self.session.use_tachless(speed_band_hz(setup.speed_rpm, setup.max_speed_rpm)
+                                  if setup.mode is Mode.AMPLITUDE_ONLY else None)
 
     def saved_coefficients(self) -> CoefficientSet | None:
         """Influence coefficients an earlier job kept for this machine near this speed."""
@@ -772,6 +777,8 @@ class TrueturnApp(App):
             self.restarts_seen = snap.restarts
             self.board_restarted()
         proc = self.procedure
+        if proc is not None:
+            self._measure_for(proc)
         if proc is not None and proc.check_ticks():
             self.message = texts.TICKS_CLEARED
         self._run_logic(snap)

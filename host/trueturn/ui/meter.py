@@ -102,6 +102,8 @@ class MeterAdapter:
         if band_hz is None:
             self.tachless = None
             return
+        if self.tachless is not None and self.tachless.band_hz == band_hz:
+            return  # already so: keep what is measured
         self.tachless = TachlessMeter(self.profiles, band_hz, self.mains_hz)
         for msg in (self._identity, self._config):
             if msg is not None:

@@ -362,7 +362,9 @@ def format_sweep(result: Analysis) -> list[str]:
     if not sw.resonances:
         lines.append("  none found in the sweep")
     for r in sw.resonances:
-        damping = ("damping not resolved (the speed passed the resonance in fewer than 3 "
+        damping = ("not one mode alone (others nearby): no damping given"
+                   if r.single_mode is False else
+                   "damping not resolved (the speed passed the resonance in fewer than 3 "
                    "points)" if r.damping_ratio is None else
                    f"damping {100 * r.damping_ratio:.1f} % (half-power {r.lower_rpm:.0f}-"
                    f"{r.upper_rpm:.0f} rpm, {r.points_in_band} points)")

@@ -210,6 +210,7 @@ class Analysis:
                             else [num(r.lower_rpm, 1), num(r.upper_rpm, 1)],
                             "points_in_band": r.points_in_band,
                             "peak_ratio": num(r.peak_ratio, 3), "method": r.method,
+                            "single_mode": r.single_mode,
                             "sdof_fit": None if r.fit_speed_rpm is None else {
                                 "speed_rpm": num(r.fit_speed_rpm, 1),
                                 "damping_ratio": num(r.fit_damping_ratio, 4)}}

@@ -19,6 +19,7 @@ import copy
 import dataclasses
 import math
 import xml.etree.ElementTree as ET
+from dataclasses import replace
 from pathlib import Path
 
 import pytest
@@ -34,6 +35,7 @@ from trueturn.jobs.records import JobRecord
 from trueturn.jobs.report import plane_svg
 from trueturn.jobs.store import read_document
 from trueturn.model import Plane, PlaneLayout
+from trueturn.positions import equally_spaced_deg
 from trueturn.procedure.engine import BalanceEngine
 from trueturn.procedure.guide import HandsOn, HandsOnPhase, Mode
 from trueturn.ui.placement import (
@@ -46,6 +48,7 @@ from trueturn.ui.placement import (
     PartMark,
     PlacementView,
     PlanePicture,
+    fits_legend,
     picture_lines,
     ring_arguments,
 )
@@ -155,7 +158,8 @@ class GuideApp(App):
         yield GuideView(id="guide-view")
 
 
-def guide_pictures(rig: Rig, size: tuple[int, int]) -> tuple[list[Text], dict[str, int]]:
+def guide_pictures(rig: Rig, size: tuple[int, int],
+                   condition: tuple[str, ...] = ()) -> tuple[list[Text], dict[str, int]]:
     """The placement view's lines at the procedure's step, and where things are on screen."""
 
     async def look() -> tuple[list[Text], dict[str, int]]:
@@ -163,7 +167,7 @@ def guide_pictures(rig: Rig, size: tuple[int, int]) -> tuple[list[Text], dict[st
         async with app.run_test(size=size) as pilot:
             guide = app.query_one(GuideView)
             guide.show(rig.proc, snapshot(rig), GuideContext(rig.profile, BalanceEngine(),
-                                                             demo=True))
+                                                             demo=True, condition=condition))
             await pilot.pause()
             view = app.query_one(PlacementView)
             panels = app.query_one("#step-panels")
@@ -243,7 +247,11 @@ def test_the_pictures_fit_80x24_above_a_step_that_scrolls() -> None:
     assert all(line.cell_len <= place["width"] for line in lines)
     assert 2 * BLOCK_COLS + GAP_COLS <= 80 - 2  # two planes side by side, inside the padding
     assert place["panels_top"] == PICTURE_ROWS  # the step's text starts below
-    # a step longer than its window scrolls to its last line (Enter), nothing is cut off
+    # every line of the two-plane correction step is in sight, or scrolled into it
+    assert place["scroll"] == max(0, place["text"] - place["window"]) == place["scrolled"]
+    # with the machine's condition under it (lines invented here) the step is longer than
+    # its window: it scrolls to its last line, nothing is cut off
+    _, place = guide_pictures(rig, (80, 21), tuple(f"condition line {k}" for k in range(5)))
     assert place["text"] > place["window"]
     assert place["scroll"] == place["text"] - place["window"] == place["scrolled"]
 
@@ -340,3 +348,13 @@ def test_the_ring_of_a_plane_with_irregular_positions_marks_each_one(tmp_path: P
              for li in root.iter(f"{SVG}line") if li.get("class") == "position-mark"}
     assert marks == {n: a for n, a in enumerate(angles, start=1)}
     assert root.get("data-rotation") == "ccw"  # the back face of a cw machine
+
+
+def test_more_parts_than_the_legend_holds_are_listed_in_full_below() -> None:
+    parts = tuple(PartMark(a, "add", 1.0, n) for n, a in enumerate((0.0, 60.0, 120.0, 180.0),
+                                                                    start=1))
+    pic = PlanePicture("rim", 90.0, "front", "cw", equally_spaced_deg(6), parts)
+    assert not fits_legend([pic]) and fits_legend([replace(pic, parts=parts[:3])])
+    legend = "\n".join(line.plain for line in picture_lines(pic))
+    assert "1 add 1.00 g" in legend and "+2 more: see below" in legend
+    assert len(lit(picture_lines(pic), PART_STYLE["add"])) == 4  # all four lit on the circle

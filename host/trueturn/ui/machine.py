@@ -6,6 +6,7 @@ from __future__ import annotations
 from typing import TYPE_CHECKING
 
 from trueturn.balance.readings import SavedCoefficient
+from trueturn.constants import STANDARD_GRAVITY_M_S2
 from trueturn.jobs.profiles import Bearing, MachineProfile, Pickup
 from trueturn.jobs.records import CoefficientSet
 from trueturn.positions import number_of, position_text
@@ -106,8 +107,9 @@ def brief_work(changes: tuple[MassChange, ...], proc: Procedure,
                engine: BalanceEngine, shown: Shown | None = None) -> tuple[str, ...]:
     """The work of a hands-on step in a few lines, for when the placement pictures
     (:mod:`trueturn.ui.placement`) show each part's place and mass: what to do and the
-    largest force a part will pull with at the planned speed (in the machine's units,
-    ``shown``; metric when not given)."""
+    largest force a part will pull with at the planned speed (F = m r omega^2, in the
+    machine's units, ``shown``; metric when not given), for a trial also as a share of the
+    rotor's weight."""
     u = shown or Shown()
     rpm = proc.setup.speed_rpm
     lines = []
@@ -120,10 +122,10 @@ def brief_work(changes: tuple[MassChange, ...], proc: Procedure,
                     for m in masses)
         verb = ("Remove material where the maker allows, as pictured" if masses[0].removal
                 else f"Attach {kind.value} mass as pictured")
-        text = (f"{verb}: {len(masses)} part{'s' if len(masses) > 1 else ''}, "
-                f"up to {u.force(force)} at {u.speed(rpm)}")
+        many = f"{len(masses)} parts, up to " if len(masses) > 1 else ""
+        text = f"{verb}: {many}{u.force(force)} at {u.speed(rpm)}"
         if kind == "trial":
-            ratio = engine.trial_mass(proc.setup, proc.plane(masses[0].plane)).force_ratio
-            text += f" (about {ratio:.0%} of the rotor's weight)"
+            share = force / (proc.setup.rotor_mass_kg * STANDARD_GRAVITY_M_S2)
+            text += f" ({share:.0%} of rotor weight)"
         lines.append(text + ".")
     return tuple("  " + line for line in lines)

@@ -163,28 +163,42 @@ def _circle(pic: PlanePicture) -> list[Text]:
     return list(canvas.render().split("\n"))
 
 
+#: legend rows: the plane, the face and rotation, the mark and radius, the parts, the key
+PART_ROWS = PICTURE_ROWS - 4
+HINT = "h: rings, marking"
+
+
+def fits_legend(pictures: Sequence[PlanePicture]) -> bool:
+    """Every part of every picture is listed beside its circle (else the step's text lists
+    them all in full)."""
+    return all(len(p.parts) <= PART_ROWS for p in pictures)
+
+
+def _part_line(part: PartMark, mass_unit: MassUnit) -> Text:
+    line = Text()
+    line.append(part.tag, PART_STYLE[part.action])
+    line.append(f" {PART_WORDS[part.action]} {format_mass(part.mass_g, mass_unit)}")
+    if part.number is None:  # any angle: the angle is the place
+        at = degrees_text(part.angle_deg)
+        line.append(f" at {at}" if line.cell_len + 4 + len(at) <= LEGEND_COLS else f" {at}")
+    return line
+
+
 def _legend(pic: PlanePicture, mass_unit: MassUnit) -> list[Text]:
-    """The lines beside the circle: the plane, the face and rotation, the parts."""
+    """The lines beside the circle: the plane, the face and rotation, the parts, the key
+    to the rings."""
     lines = [Text(pic.plane, "bold"),
              Text(f"from the {pic.face} {ARROW[pic.rotation]} {pic.rotation}"),
              Text(f"{MARK} = 0\u00b0 mark, r {pic.radius_mm:g} mm", "grey70")]
-    rows = PICTURE_ROWS - len(lines)
     parts = list(pic.parts)
-    if len(parts) > rows:
-        parts, more = parts[:rows - 1], len(parts) - rows + 1
+    if len(parts) > PART_ROWS:
+        shown = [_part_line(p, mass_unit) for p in parts[:PART_ROWS - 1]]
+        shown.append(Text(f"+{len(parts) - PART_ROWS + 1} more: see below", "grey70"))
     else:
-        more = 0
-    for part in parts:
-        line = Text()
-        line.append(part.tag, PART_STYLE[part.action])
-        line.append(f" {PART_WORDS[part.action]} {format_mass(part.mass_g, mass_unit)}")
-        if part.number is None:
-            line.append(f" at {degrees_text(part.angle_deg)}")
-        lines.append(line)
-    if more:
-        lines.append(Text(f"+{more} more: see below", "grey70"))
-    if not pic.parts:
-        lines.append(Text("nothing to place here", "grey70"))
+        shown = [_part_line(p, mass_unit) for p in parts] or [
+            Text("nothing to place here", "grey70")]
+    lines += shown + [Text("")] * (PART_ROWS - len(shown))
+    lines.append(Text(HINT, "grey70"))
     for line in lines:
         line.truncate(LEGEND_COLS, overflow="ellipsis")
     return lines

@@ -53,7 +53,7 @@ from trueturn.procedure.guide import (
 from trueturn.procedure.standstill import StandstillEvidence, StandstillState
 from trueturn.ui import texts
 from trueturn.ui.machine import brief_work, describe_change
-from trueturn.ui.placement import PlacementView, pictures_for
+from trueturn.ui.placement import PlacementView, fits_legend, pictures_for
 from trueturn.ui.session import Snapshot
 from trueturn.ui.texts import VERDICT_FLAG_WORDS, Shown, verdict_note
 from trueturn.ui.widgets import MarkupText, markup
@@ -205,7 +205,9 @@ class HandsOnPanel(ProcedurePanel):
         assert proc is not None and isinstance(proc.step, HandsOn)
         step = proc.step
         self.phase = step.phase
-        if any(c.mass is not None for c in step.changes):  # pictured: the parts are drawn
+        pictured = pictures_for(step.changes, proc.planes_used, ctx.profile.rotation)
+        if any(c.mass is not None for c in step.changes) and fits_legend(pictured):
+            # the pictures list the parts
             self.work = brief_work(step.changes, proc, ctx.engine, self.units)
         else:
             self.work = tuple("  " + describe_change(c, proc, ctx.engine, self.units)
@@ -232,7 +234,7 @@ class HandsOnPanel(ProcedurePanel):
         return tuple(lines)
 
     def body(self) -> list[str]:
-        lines = [*(self.work or (texts.LOOK_OVER,)), texts.H_MARKING, *self.standstill]
+        lines = [*(self.work or (texts.LOOK_OVER,)), *self.standstill]
         if self.offer_second_start:
             lines.append(texts.N_SECOND_START)
         lockout = self.phase is HandsOnPhase.LOCKOUT

@@ -210,11 +210,9 @@ STOP_DEMO = "press [b]x[/b] (demo motor off)"
 STOP_MACHINE = "switch the machine off"
 TICK_BEFORE = "Before you reach in, tick each item ([b]Space[/b]):"
 TICK_AFTER = "Do the work now. When it is done, tick each item ([b]Space[/b]):"
-MAKER_NOTE = ("[dim]c: cautions. Follow the machine maker's instructions for fastening and "
-              "removal.[/dim]")
+MAKER_NOTE = "[dim]c: cautions. Fasten and remove only as the machine's maker instructs.[/dim]"
 ENTER_LOCKED_OUT = "[b]Enter[/b]: locked out, I will work on the rotor"
 ENTER_DONE = "[b]Enter[/b]: done, safe to run"
-H_MARKING = "  [b]h[/b]: rings to print, the face each goes on, carrying the 0° mark"
 
 RUN_NOTHING_KEPT = "Nothing of this run is kept."
 RUN_SWITCH_OFF_DEMO = "Switch the machine off (the demo motor is off)."

@@ -59,6 +59,12 @@ class CorrectionEntry:
     action: Literal["add", "remove"] = "add"
     radius_mm: float | None = field(default=None, metadata=limits(above=0))
     split: list[SplitPart] = field(default_factory=list)
+    #: made from the parts the person owns (issue #22): the unbalance the chosen parts
+    #: leave, the plane's share of the allowance (g·mm), and whether the search proved the
+    #: combination best; None when any mass could be made
+    kit_residual_gmm: float | None = field(default=None, metadata=limits(minimum=0))
+    kit_allowed_gmm: float | None = field(default=None, metadata=limits(minimum=0))
+    kit_proven_best: bool | None = None
 
 
 @dataclass

@@ -647,6 +647,27 @@ def correction_rows(job: JobRecord) -> list[list[str]]:
     return rows
 
 
+def kit_notes(job: JobRecord) -> list[str]:
+    """Corrections made from the parts the person owns (issue #22): what each leaves
+    against its share of the allowance, in words."""
+    notes = []
+    for run in job.runs:
+        for corr in run.corrections:
+            if corr.kit_residual_gmm is None:
+                continue
+            u = job.machine.units
+            allowed = (f", allowed {unbalance_text(corr.kit_allowed_gmm, u)}" if
+                       corr.kit_allowed_gmm is not None else "")
+            within = ("" if corr.kit_allowed_gmm is None else
+                      " (within)" if corr.kit_residual_gmm <= corr.kit_allowed_gmm else
+                      " (over: more or other parts are needed)")
+            proven = "" if corr.kit_proven_best is not False else \
+                " The search stopped before it could prove this the best combination."
+            notes.append(f"After run {run.index}, {corr.plane}: best with your parts, it leaves "
+                         f"{unbalance_text(corr.kit_residual_gmm, u)}{allowed}{within}.{proven}")
+    return notes
+
+
 def verdict_rows(job: JobRecord) -> list[list[str]]:
     if job.verdict is None:
         return []
@@ -934,6 +955,7 @@ def html_report(job: JobRecord, generated: str = "") -> str:
     if rows:
         parts.append(_html_table(["When", "Plane", "Action", "Mass", "Angle", "Split onto positions"],
                                  rows, "corrections"))
+        parts += [f'<p class="note">{_e(n)}</p>' for n in kit_notes(job)]
     rows = change_rows(job)
     if rows:
         parts.append(_html_table(["When", "Action", "Purpose", "Plane", "Mass", "Angle", "Position",
@@ -1029,6 +1051,7 @@ def markdown_report(job: JobRecord, generated: str = "") -> str:
     if rows:
         out += [_md_table(["When", "Plane", "Action", "Mass", "Angle", "Split onto positions"],
                           rows), ""]
+        out += [f"{_md_text(n)}\n" for n in kit_notes(job)]
     rows = change_rows(job)
     if rows:
         out += [_md_table(["When", "Action", "Purpose", "Plane", "Mass", "Angle", "Position",

@@ -12,7 +12,9 @@ from __future__ import annotations
 from collections.abc import Sequence
 from dataclasses import replace
 
+from trueturn.angles import wrap_deg
 from trueturn.balance.iso21940 import per_plane_permissible, permissible_unbalance_gmm
+from trueturn.balance.parts import best_combination
 from trueturn.balance.readings import BalanceInput, SavedCoefficient, Sensor, Tolerance
 from trueturn.balance.sanity import NoInformationError
 from trueturn.balance.solve import SolveReport, solve
@@ -26,6 +28,7 @@ from trueturn.errors import UserError
 from trueturn.model import Correction, MassKind, PlacedMass, Plane, Run, Verdict
 from trueturn.procedure.guide import (
     GateRefused,
+    KitFit,
     Mode,
     OffSpeed,
     ProcedureSetup,
@@ -37,6 +40,10 @@ from trueturn.procedure.guide import (
 
 #: the resolution parts are weighed and listed to, g (a pocket scale: 0.01 g)
 PART_RESOLUTION_G = 0.01
+#: A plane that takes a mass at any angle, corrected from the person's parts: the parts go
+#: at the correction's angle or in steps of this from it (12 places: enough to split a
+#: mass between two neighbours, few enough for the exact search). Ours, no source.
+ANY_ANGLE_STEP_DEG = 30.0
 
 
 class BalanceEngine:
@@ -121,20 +128,71 @@ class BalanceEngine:
                                          angle_deg=piece.angle_deg, position=piece.index))
         return tuple(parts)
 
+    def _kit_parts(self, setup: ProcedureSetup, corrections: Sequence[Correction],
+                   kind: MassKind, runs: Sequence[Run]
+                   ) -> tuple[tuple[PlacedMass, ...], tuple[KitFit, ...]]:
+        """The correction made from the parts the person owns (issue #22): plane by plane
+        from one drawer, the best combination on the plane's positions
+        (:func:`trueturn.balance.parts.best_combination`; a plane that takes any angle: the
+        correction's angle and every :data:`ANY_ANGLE_STEP_DEG` from it). Parts already on
+        the rotor as corrections are out of the drawer. Each plane says what it is left with
+        against its share of the allowance."""
+        drawer = list(setup.owned_parts_g)
+        for m in runs[-1].masses if runs else ():
+            if m.kind in (MassKind.CORRECTION, MassKind.TRIM) and not m.removal:
+                same = next((g for g in drawer if abs(g - m.mass_g) < PART_RESOLUTION_G), None)
+                if same is not None:
+                    drawer.remove(same)
+        u_per = permissible_unbalance_gmm(setup.grade_mm_per_s, setup.speed_rpm,
+                                          setup.rotor_mass_kg)
+        allowed = per_plane_permissible(u_per, max(setup.profile_planes, len(setup.planes)))[0]
+        parts: list[PlacedMass] = []
+        fits: list[KitFit] = []
+        for c in corrections:
+            if c.mass_g <= 0:
+                continue
+            plane = next(p for p in setup.planes if p.name == c.plane)
+            fixed = bool(plane.position_angles_deg)
+            positions = plane.position_angles_deg if fixed else tuple(
+                wrap_deg(c.angle_deg + ANY_ANGLE_STEP_DEG * k)
+                for k in range(round(360 / ANY_ANGLE_STEP_DEG)))
+            if not drawer:  # nothing left to place: the whole correction is what is left
+                fits.append(KitFit(c.plane, c.mass_g * plane.radius_mm, allowed, True, 0))
+                continue
+            try:
+                fit = best_combination(c.mass_g, c.angle_deg, positions, drawer,
+                                       setup.owned_stack)
+            except UserError as exc:
+                raise GateRefused(f"plane {plane.name}: {exc}") from None
+            for use in fit.uses:
+                for grams in use.masses_g:
+                    parts.append(PlacedMass(c.plane, grams, use.angle_deg,
+                                            use.position if fixed else None, kind))
+                    drawer.remove(grams)
+            fits.append(KitFit(c.plane, fit.residual_gmm(plane.radius_mm), allowed,
+                               fit.proven_best, len(drawer) + sum(len(u.masses_g)
+                                                                  for u in fit.uses)))
+        return tuple(parts), tuple(fits)
+
     def _solution(self, setup: ProcedureSetup, report: SolveReport,
-                  corrections: Sequence[Correction], kind: MassKind, removal: bool) -> Solution:
+                  corrections: Sequence[Correction], kind: MassKind, removal: bool,
+                  runs: Sequence[Run] = ()) -> Solution:
         sol = report.solution
         off: tuple[OffSpeed, ...] = ()
         if report.speed is not None:
             off = tuple(OffSpeed(o.index, o.label, o.deviation, report.speed.worst_cut_fraction)
                         for o in report.speed.off_speed)
-        return Solution(tuple(corrections), self._parts(setup, corrections, kind, removal),
-                        sol.method, tuple(sol.warnings), sol.influence, off)
+        if setup.owned_parts_g and not removal:
+            parts, kit = self._kit_parts(setup, corrections, kind, runs)
+        else:
+            parts, kit = self._parts(setup, corrections, kind, removal), ()
+        return Solution(tuple(corrections), parts, sol.method, tuple(sol.warnings),
+                        sol.influence, off, kit)
 
     def solve(self, setup: ProcedureSetup, runs: Sequence[Run], removal: bool) -> Solution:
         report = self._report(self._input(setup, runs, with_tolerance=False))
         return self._solution(setup, report, report.solution.corrections, MassKind.CORRECTION,
-                              removal)
+                              removal, runs)
 
     def assess(self, setup: ProcedureSetup, runs: Sequence[Run],
                removal: bool) -> tuple[Verdict, Solution]:
@@ -144,5 +202,5 @@ class BalanceEngine:
         assert report.verdict is not None
         verdict = replace(report.verdict, grade_mm_s=setup.grade_mm_per_s)
         trim = self._solution(setup, report, sol.corrections_keeping_current, MassKind.TRIM,
-                              removal)
+                              removal, runs)
         return verdict, trim

@@ -145,6 +145,10 @@ class ProcedureSetup:
     #: the two bearings: the ISO 21940-11 verdict is judged there
     bearings: tuple[Bearing, ...] = ()
     cg_axial_mm: float | None = None  # the rotor's centre of mass (None: midway)
+    #: the correction parts the person owns, one entry per piece, g (empty: any mass), and
+    #: the most of them one position takes (machine profile, ``correction_parts``)
+    owned_parts_g: tuple[float, ...] = ()
+    owned_stack: int = 1
 
 
 @dataclass(frozen=True)
@@ -157,6 +161,19 @@ class MassChange:
 
 
 @dataclass(frozen=True)
+class KitFit:
+    """A plane's correction made from the parts the person owns (issue #22): the unbalance
+    it leaves (g·mm) against the plane's share of the allowance (ISO 21940-11), and whether
+    the search proved the combination the best there is."""
+
+    plane: str
+    residual_gmm: float
+    allowed_gmm: float
+    proven_best: bool
+    parts_in_drawer: int = 1  # parts of the kit left to choose from (0: none placed)
+
+
+@dataclass(frozen=True)
 class Solution:
     """Engine output: corrections, the parts to place, and the engine's notes."""
 
@@ -166,6 +183,8 @@ class Solution:
     warnings: tuple[str, ...] = ()
     coefficients: object = None  # opaque to the procedure; kept for trims and the verdict
     off_speed: tuple[OffSpeed, ...] = ()  # coefficient runs taken off their group's speed
+    #: the parts came from the person's kit (machine profile): what each plane is left with
+    kit: tuple[KitFit, ...] = ()
 
 
 @dataclass(frozen=True)

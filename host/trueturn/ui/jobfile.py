@@ -205,9 +205,12 @@ class JobKeeper:
                 parts = [rec.SplitPart(number_of(p.position), p.angle_deg, abs(p.mass_g))
                          for p in proc.solution.parts
                          if p.plane == c.plane and p.position is not None]
+                kit = next((k for k in proc.solution.kit if k.plane == c.plane), None)
                 corrections.append(rec.CorrectionEntry(
                     c.plane, c.mass_g, c.angle_deg, "remove" if proc.removal else "add",
-                    proc.plane(c.plane).radius_mm, parts))
+                    proc.plane(c.plane).radius_mm, parts,
+                    kit.residual_gmm if kit else None, kit.allowed_gmm if kit else None,
+                    kit.proven_best if kit else None))
         events = [rec.Event(rec.now_iso(), e.kind, e.detail) for e in run.events]
         confirmations = self._new_confirmations(proc)
         assert run.speed_rpm is not None  # Procedure.record: every run has its measured speed

@@ -36,6 +36,7 @@ from trueturn.procedure.engine import BalanceEngine
 from trueturn.procedure.guide import (
     HandsOn,
     HandsOnPhase,
+    KitFit,
     Measure,
     Mode,
     OffSpeed,
@@ -377,6 +378,7 @@ class CorrectionPanel(ProcedurePanel):
     warnings: reactive[tuple[str, ...]] = reactive(())
     off_speed: reactive[tuple[OffSpeed, ...]] = reactive(())
     offer_again: reactive[bool] = reactive(False)  # e: run the off-speed run again first
+    kit: reactive[tuple[KitFit, ...]] = reactive(())  # made from the person's parts
     removal: reactive[bool] = reactive(False)
     removal_allowed: reactive[bool] = reactive(False)
 
@@ -394,6 +396,7 @@ class CorrectionPanel(ProcedurePanel):
             self.parts = sol.parts
             self.warnings = sol.warnings[:2]
             self.off_speed = sol.off_speed
+            self.kit = sol.kit
             self.offer_again = bool(sol.off_speed) and not proc.trims_done
         self.removal = proc.removal
         self.removal_allowed = proc.removal_allowed
@@ -418,6 +421,14 @@ class CorrectionPanel(ProcedurePanel):
             lines.append(f"  {c.plane}: {verb} [b]{self.units.mass(c.mass_g)}[/b] at {at:.0f}°")
         lines.append(texts.PARTS_TO_PLACE)
         lines += ["  " + describe_part(p, self.units) for p in self.parts]
+        for k in self.kit:
+            style = "green" if k.residual_gmm <= k.allowed_gmm else "yellow"
+            proven = "" if k.proven_best else " (search stopped: not proven best)"
+            head = ("no part of your kit is left, which" if not k.parts_in_drawer
+                    else "best with your parts, it")
+            lines.append(f"[{style}]{k.plane}: {head} leaves "
+                         f"{self.units.unbalance(k.residual_gmm)}, allowed "
+                         f"{self.units.unbalance(k.allowed_gmm)}{proven}[/]")
         lines += [f"[yellow]{w}[/]" for w in self.warnings]
         for off in self.off_speed:
             way = "slow" if off.deviation < 0 else "fast"

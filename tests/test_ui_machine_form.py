@@ -93,8 +93,11 @@ def test_irregular_position_angles_are_kept_in_their_order() -> None:
     ({"p1_positions": "400"}, "p1_positions", "must be at most 360 (you gave 400)"),
     ({"bearings": "40"}, "bearings", "give two positions, or leave it blank"),
     ({"bearings": "40, 40"}, "bearings", "different places (both 40)"),
-    ({"p1_axial": ""}, "p1_axial", "please fill this in"),
-    ({"p2_axial": "-90"}, "p2_axial", "must differ from Plane 1: position along the shaft"),
+    ({"p1_axial": ""}, "p1_axial",
+     "Plane 1: position along the shaft, mm: please fill this in (needed with the bearings' "
+     "positions)."),
+    ({"p2_axial": "-90"}, "p2_axial", "must differ from plane 1's position along the shaft "
+     "(both -90)"),
     ({"p2_face": "side"}, "p2_face", "write front or back, not 'side'"),
     ({"p2_removal": "maybe"}, "p2_removal", "answer yes or no"),
     ({"p2_limit": "0"}, "p2_limit", "must be more than 0 (you gave 0)"),

@@ -307,7 +307,8 @@ def test_h_shows_the_rings_and_how_to_carry_the_mark_in_the_app(tmp_path: Path) 
             await wait_for(pilot, lambda: app.screen.id == "marking", 10)
             page = str(app.screen.query_one(".page").render())
             assert "--rotation ccw" in page and "--rotation cw" in page
-            assert "Carrying the 0\u00b0 mark" in page and "The back face" in page
+            assert "0\u00b0 on every plane" in page and "A back face" in page
+            assert app.screen.max_scroll_y == 0  # the whole page fits 80x24
             await press(app, pilot, "escape")
             await wait_for(pilot, lambda: app.screen.id == "bench", 10)
             await press(app, pilot, "q")

@@ -47,6 +47,11 @@ class FormField:
     key: str
     label: str
     default: str = ""
+    short: str = ""  # the field named inside a sentence (default: the label)
+
+    @property
+    def named(self) -> str:
+        return self.short or self.label
 
 
 def form_fields(pickups: int) -> list[FormField]:
@@ -59,7 +64,8 @@ def form_fields(pickups: int) -> list[FormField]:
         FormField("speed_min", "Lowest service speed, rpm (blank: same)"),
         FormField("max_speed", "Maximum safe speed, rpm"),
         FormField("rotation", "Turns, seen from the front (cw or ccw)", "cw"),
-        FormField("bearings", "Bearings along the shaft, mm (two, or blank)"),
+        FormField("bearings", "Bearings along the shaft, mm (two, or blank)",
+                  short="the bearings' positions"),
     ]
     for k in range(1, MAX_PLANES + 1):
         p = f"Plane {k}"
@@ -67,7 +73,8 @@ def form_fields(pickups: int) -> list[FormField]:
             FormField(f"p{k}_name", f"{p}: name" + (" (blank: one plane)" if k > 1 else ""),
                       "plane 1" if k == 1 else ""),
             FormField(f"p{k}_radius", f"{p}: weight radius, mm"),
-            FormField(f"p{k}_axial", f"{p}: position along the shaft, mm"),
+            FormField(f"p{k}_axial", f"{p}: position along the shaft, mm",
+                      short=f"plane {k}'s position along the shaft"),
             FormField(f"p{k}_face", f"{p}: worked from the front or back", "front"),
             FormField(f"p{k}_positions", f"{p}: positions (0 any, 6, or 0,100,200)", "0"),
             FormField(f"p{k}_offset", f"{p}: position 1 at, deg from the mark", "0"),
@@ -257,10 +264,13 @@ def _n(value: Any) -> str:
         else f"'{value}'"
 
 
-def form_error_words(exc: SchemaError, label: Callable[[str], str]) -> str:
-    """The validator's coded error in plain words; ``label(path)``: how the form names the
-    field a data path came from."""
+def form_error_words(exc: SchemaError, label: Callable[[str], str],
+                     named: Callable[[str], str] | None = None) -> str:
+    """The validator's coded error in plain words; ``label(path)``: how the form labels the
+    field a data path came from, ``named(path)``: how a sentence names it (default: the
+    label)."""
     name = label(exc.path)
+    named = named or label
     got, limit = exc.values.get("got"), exc.values.get("limit")
     problem = exc.problem
     if problem in (Problem.MISSING, Problem.EMPTY):
@@ -288,7 +298,7 @@ def form_error_words(exc: SchemaError, label: Callable[[str], str]) -> str:
         return f"{name}: give angles within one turn, -360 to 360 (you gave {_n(got)})."
     rule = exc.rule
     if rule is not None:
-        other = label(rule.other) if rule.other else ""
+        other = named(rule.other) if rule.other else ""
         match rule.code:
             case RuleCode.NOT_MORE_THAN:
                 return f"{name} must not be more than {other}."
@@ -298,7 +308,7 @@ def form_error_words(exc: SchemaError, label: Callable[[str], str]) -> str:
                 return (f"{name}: must differ from {other} (both {rule.value})." if other
                         else f"{name}: the two must be at different places (both {rule.value}).")
             case RuleCode.NEEDED:
-                return f"{name}: please fill this in ({other} needs it)."
+                return f"{name}: please fill this in (needed with {other})."
             case RuleCode.AT_MOST_TWO:
                 return f"{name}: at most two planes."
             case RuleCode.NAME_TWICE:
@@ -313,17 +323,21 @@ def profile_from_form(values: dict[str, str], pickups: int,
     """Build the profile from the form's text through the one validator; a mistake is a
     :class:`FormError` naming the form field in plain words."""
     data, source = form_data(values, pickups, base)
-    labels = {f.key: f.label for f in form_fields(pickups)}
+    fields = {f.key: f for f in form_fields(pickups)}
 
     def label(path: str) -> str:
         key = field_of(path, source)
-        return labels[key] if key in labels else path
+        return fields[key].label if key in fields else path
+
+    def named(path: str) -> str:
+        key = field_of(path, source)
+        return fields[key].named if key in fields else path
 
     try:
         return from_data(MachineProfile, data, "machine form")
     except SchemaError as exc:
         key = field_of(exc.path, source) or "name"
-        raise FormError(key, form_error_words(exc, label)) from None
+        raise FormError(key, form_error_words(exc, label, named)) from None
 
 
 class MachineForm(ModalScreen[MachineProfile | None]):

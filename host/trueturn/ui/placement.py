@@ -17,6 +17,7 @@ columns in 7 rows.
 
 from __future__ import annotations
 
+import re
 import shlex
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -264,41 +265,34 @@ def ring_arguments(profile: MachineProfile, plane: Plane) -> list[str]:
         where = ["--angles", ",".join(f"{a:g}" for a in angles)]
     else:  # any angle: the degree scale is what counts
         where = ["--positions", "1"]
-    safe = "".join(ch if ch.isalnum() else "-" for ch in f"{profile.name}-{plane.name}")
+    safe = re.sub(r"[^a-z0-9]+", "-", f"{profile.name}-{plane.name}".lower()).strip("-")
     return ["ring", "--diameter-mm", f"{2 * plane.radius_mm:g}", *where,
             "--rotation", plane.rotation_seen(profile.rotation),
-            "--title", f"{profile.name}: {plane.name} ({plane.face} face)",
-            "-o", f"ring-{safe.strip('-').lower()}.svg"]
+            "--title", f"{profile.name}, {plane.name}, {plane.face} face",
+            "-o", f"ring-{safe}.svg"]
 
 
 def marking_markup(profile: MachineProfile, planes: Sequence[Plane]) -> str:
     """The page of how to mark this rotor: a ring per plane and on which face it goes,
     carrying the 0 deg mark to the second plane (console markup)."""
-    lines = [f"[b]Marking {_escape(profile.name)}: rings and the 0\u00b0 mark[/b]", "",
-             "Print one ring per plane at 100 % (check its 100 mm box), cut it out and lay "
-             "it on the plane's face, printed side towards you, 0\u00b0 on the mark. "
-             "Only with the machine stopped and unplugged; take the rings off before a run.",
-             ""]
+    lines = [f"[b]Marking {_escape(profile.name)}: a ring per plane, and the 0\u00b0 "
+             "mark[/b]",
+             "Print at 100 % (check the 100 mm box), cut out, lay on the plane's face printed "
+             "side up, 0\u00b0 on the mark. Rotor stopped and unplugged; rings off before a "
+             "run.", ""]
     for plane in planes:
         seen = plane.rotation_seen(profile.rotation)
-        side = "front" if plane.face == "front" else "back"
-        lines.append(f"[b]{_escape(plane.name)}[/b]: seen from the {side}, the rotor turns "
-                     f"{ARROW[seen]} {seen}.")
+        lines.append(f"[b]{_escape(plane.name)}[/b], seen from the {plane.face} (turns "
+                     f"{ARROW[seen]} {seen}):")
         lines.append("  trueturn " + _escape(shlex.join(ring_arguments(profile, plane))))
-    faces = {p.face for p in planes}
-    lines += ["", "[b]Carrying the 0\u00b0 mark[/b]: 0\u00b0 is the reference mark the tach "
-              "sees. On every plane 0\u00b0 lies on the same line along the rotor: lay a "
-              "straightedge on the rotor parallel to the shaft through the mark (or measure "
-              "the same arc from a keyway both ends share) and mark that line on each "
-              "plane's face."]
-    if "back" in faces:
-        lines += ["", "[b]The back face[/b]: standing at the back end, the rotor turns the "
-                  "other way, so its ring is printed for that side (the --rotation above) and "
-                  "its numbers run the other way round on paper. Laid on the back face, "
-                  "printed side out, each number lands on the same spot of the rotor as the "
-                  "app means; a ring printed for the front and laid on the back would put "
-                  "every correction on its mirror image."]
-    lines += ["", "[dim]Press Escape to go back.[/dim]"]
+    lines += ["", "[b]0\u00b0 on every plane[/b] is the reference mark the tach sees, carried "
+              "along the rotor parallel to the shaft: a straightedge through the mark, or the "
+              "same arc from a keyway both ends share; mark that line on each face."]
+    if any(p.face == "back" for p in planes):
+        lines += ["[b]A back face[/b]: seen from there the rotor turns the other way, so its "
+                  "ring is printed for that side (its --rotation above). A ring printed for "
+                  "the front and laid on the back would put every correction on its mirror "
+                  "image."]
     return "\n".join(lines)
 
 

@@ -149,7 +149,7 @@ class Rig:
             mass = Mass(m.plane, -grams if m.removal else grams, m.angle_deg)
             if c.action == "attach":
                 self.masses.append(mass)
-            else:
+            elif c.action == "detach":
                 self.masses.remove(mass)
 
     def run(self) -> None:

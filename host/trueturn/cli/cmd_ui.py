@@ -12,8 +12,9 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                     "Without --port the first port that looks like a board is used.")
     parser.add_argument("--port", help="serial port (/dev/ttyUSB0, COM3), sim://NAME or "
                                        "emu://NAME")
-    parser.add_argument("--job", help="new job file to write (YAML; never overwritten); "
-                                      "default: a new job in the workspace")
+    parser.add_argument("--job", help="job file: a new name starts a new job there; an "
+                                      "open job's file continues that job (a closed one is "
+                                      "refused); default: a new job in the workspace")
     parser.add_argument("--machine", help="machine profile name in the workspace")
     parser.add_argument("--workspace", help="folder for machines and jobs")
     parser.set_defaults(run=run)

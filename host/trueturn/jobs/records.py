@@ -26,8 +26,24 @@ def now_iso() -> str:
 
 
 @dataclass
+class SuggestedMass:
+    """What the procedure suggested for a part the person fitted otherwise (issue #17)."""
+
+    mass_g: float = field(metadata=limits(above=0))
+    angle_deg: float = field(metadata=limits(minimum=0, below=360))
+    position: int | None = field(default=None, metadata=limits(minimum=1))
+    hole: bool = False
+
+
+@dataclass
 class MassChange:
-    """A part attached to or removed from a plane (trial weight, correction part, drilled spot)."""
+    """A part attached to or removed from a plane (trial weight, correction part, drilled spot).
+
+    ``mass_g``, ``angle_deg``, ``position`` and ``hole`` are what was fitted; ``hole``:
+    material was taken out at ``angle_deg`` (drilled or ground) instead of a weight added;
+    ``suggested``: what the procedure asked for, present only when the fitted part differs.
+    Both are optional, so version-2 files without them read as before (no migration).
+    """
 
     action: Literal["attach", "remove"]
     plane: str = field(metadata=limits(nonempty=True))
@@ -38,6 +54,8 @@ class MassChange:
     radius_mm: float | None = field(default=None, metadata=limits(above=0))
     part: str = ""
     time: str | None = None
+    hole: bool = False
+    suggested: SuggestedMass | None = None
 
 
 @dataclass
@@ -204,6 +222,9 @@ class RunEntry:
     unbalance: UnbalanceEntry | None = None
     #: the as-found run only: a second start compared with it (optional, issue #22)
     second_start: SecondStartEntry | None = None
+    #: the index of an earlier run this one measured again (a trial redone larger, a run
+    #: off speed, a reading that could not be used): the later one counts (issue #17)
+    replaces: int | None = field(default=None, metadata=limits(minimum=1))
 
     def reading(self, sensor: str) -> Reading | None:
         """This run's reading of ``sensor``, or None."""
@@ -218,6 +239,8 @@ class PendingStep:
     confirmations: list[Confirmation] = field(default_factory=list)
     notes: str = ""
     events: list[Event] = field(default_factory=list)  # e.g. a run stopped, not kept
+    #: the rotor was set up to measure this earlier run again (issue #17)
+    redo_of: int | None = field(default=None, metadata=limits(minimum=1))
 
 
 @dataclass
@@ -309,6 +332,9 @@ class JobRecord:
         for i, run in enumerate(self.runs):
             if run.index != i + 1:
                 problems.append((f"runs[{i}]", f"run index {run.index} out of order, expected {i + 1}"))
+            if run.replaces is not None and run.replaces >= run.index:
+                problems.append((f"runs[{i}].replaces",
+                                 f"must name an earlier run, got {run.replaces}"))
             for reading in run.readings:
                 if reading.sensor not in sensors:
                     problems.append((f"runs[{i}]", f"sensor {reading.sensor!r} is not a pickup of the machine"))

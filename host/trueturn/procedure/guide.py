@@ -35,6 +35,7 @@ Safety gates (ARCHITECTURE.md, "Safety"):
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass, replace
 from enum import Enum
 from typing import ClassVar, Literal, Protocol
@@ -80,6 +81,9 @@ DONE_CHECKLIST: tuple[str, ...] = (
     "Guards and covers are back on",
     "Everyone is clear of the plane of rotation",
 )
+
+#: the first step of a resumed job whose next step is a run
+RESUME_CHECK_TITLE = "Resumed job: check the rotor"
 
 DEFAULT_STANDSTILL_S = 3.0
 DEFAULT_RUNAWAY_FACTOR = 3.0
@@ -153,10 +157,16 @@ class ProcedureSetup:
 
 @dataclass(frozen=True)
 class MassChange:
-    """One hands-on action: attach a mass or take one off (``detach``)."""
+    """One hands-on action: attach a mass or take one off (``detach``); ``check``: see that
+    a mass the job lists is still on the rotor (a resumed job).
 
-    action: Literal["attach", "detach", "mount-pickups"]
+    ``suggested``: what the procedure asked for, kept when the person entered a different
+    fitted mass (:meth:`Procedure.fit`); ``mass`` is then what was fitted.
+    """
+
+    action: Literal["attach", "detach", "mount-pickups", "check"]
     mass: PlacedMass | None = None
+    suggested: PlacedMass | None = None
 
 
 
@@ -185,6 +195,21 @@ class Solution:
     off_speed: tuple[OffSpeed, ...] = ()  # coefficient runs taken off their group's speed
     #: the parts came from the person's kit (machine profile): what each plane is left with
     kit: tuple[KitFit, ...] = ()
+
+
+@dataclass(frozen=True)
+class KeptRun:
+    """A run as a job kept it, to rebuild a procedure from (:meth:`Procedure.restore`).
+
+    ``number``: the job's run number (1, 2, ...); ``replaces``: the number of an earlier
+    run this one measured again (None: a new run); ``removal``: the correction parts placed
+    before it were taken out as material (None: no correction part was placed before it).
+    """
+
+    run: Run
+    number: int
+    replaces: int | None = None
+    removal: bool | None = None
 
 
 @dataclass(frozen=True)
@@ -419,8 +444,77 @@ class Procedure:
         self.stopped: EarlyStop | None = None
         self._before_trials: Step | None = None  # the first trial's hands-on step
         self._return_step: Step | None = None  # where a second start goes back to
+        #: the number of each kept run (1, 2, ... in the order measured; parallel to runs)
+        self.run_numbers: list[int] = []
+        #: the number of the run the last kept run measured again (None: a new run)
+        self.last_replaced: int | None = None
+        self._measured = 0  # runs kept so far, including those measured again since
+        self._repeat_of: int | None = None  # repeat_run: the number of the run dropped
+        #: fitted-mass entries at the open hands-on step: (item, before, after), for undo
+        self._fits: list[tuple[int, MassChange, MassChange]] = []
+        self.resumed = False  # rebuilt from a job's runs (:meth:`restore`)
+        self._after_check: Step | None = None  # a resumed job: the step after the check
+
+    @classmethod
+    def restore(cls, setup: ProcedureSetup, engine: Engine, runs: Sequence[KeptRun],
+                on_rotor: Sequence[PlacedMass], rotor_set: bool, redo_of: int | None = None,
+                watch: StandstillWatch | None = None) -> Procedure:
+        """Rebuild the procedure of an open job from the runs it kept (readings and the
+        masses on the rotor in each), without the person: the engine solves them again as
+        it did live, so the trims counted, the correction and the verdict come out as
+        they were.
+
+        ``on_rotor``: what the job says is on the rotor now; ``rotor_set``: the hands-on
+        work after the last run was confirmed (the job holds it as pending), so a run comes
+        next; ``redo_of``: that work set the rotor up to measure run ``redo_of`` again.
+
+        No standstill is carried over: ``watch`` is fresh and proves it again before any
+        hands-on step. A resumed job whose next step is a run first asks, at a gated
+        hands-on step, to check that the rotor carries what the job lists (anyone may have
+        touched it while the app was closed). Raises ValueError when the runs contradict
+        each other.
+        """
+        proc = cls(setup, engine, watch)
+        proc.resumed = True
+        for kept in runs:
+            if kept.removal is not None:
+                proc.removal = kept.removal and proc.removal_allowed
+            proc.on_rotor = list(kept.run.masses)
+            if kept.replaces is not None:
+                if kept.replaces not in proc.run_numbers:
+                    raise ValueError(f"run {kept.number} measures run {kept.replaces} "
+                                     "again, which the job does not hold")
+                k = proc.run_numbers.index(kept.replaces)
+                if k == len(proc.runs) - 1:  # the last run measured again (repeat_run)
+                    proc.runs.pop()
+                    proc._repeat_of = proc.run_numbers.pop()
+                else:  # a run of the coefficient set measured again (_redo)
+                    proc._redo_index = k
+            proc._keep(kept.run, kept.number)
+        proc.on_rotor = list(on_rotor)
+        if not proc.runs or not rotor_set or isinstance(proc.step, ShowVerdict):
+            return proc  # the step after the last run (the set-up when none was kept)
+        if redo_of is not None and redo_of in proc.run_numbers:
+            proc._redo_index = proc.run_numbers.index(redo_of)
+            redo = proc.runs[proc._redo_index]
+            proc.problem, proc.too_small_trial = "", None
+            proc.step = Measure(f"Run again: {redo.label}", redo.label,
+                                redo.kind or RunKind.CHECK)
+        elif isinstance(proc.step, ShowCorrection) and proc.problem:
+            proc.repeat_run()
+        else:
+            proc._advance_after_hands_on()
+        proc._after_check = proc.step
+        proc.step = HandsOn(RESUME_CHECK_TITLE,
+                            tuple(MassChange("check", m) for m in proc.on_rotor))
+        return proc
 
     # ---- what to show -------------------------------------------------------------------
+    @property
+    def checking_resumed_rotor(self) -> bool:
+        """The step is the check of a resumed job's rotor (its ``check`` items)."""
+        return self._after_check is not None and isinstance(self.step, HandsOn)
+
     @property
     def planes_used(self) -> tuple[Plane, ...]:
         return planes_for(self.setup)
@@ -540,8 +634,92 @@ class Procedure:
                 self.on_rotor.remove(change.mass)
         self._confirm(now_s, f"done, safe to run: {self.step.title}", ev)
         self.ticked = set()
+        self._fits = []
+        if self._after_check is not None:  # a resumed job: the rotor was checked
+            self.step, self._after_check = self._after_check, None
+            return changes
         self._advance_after_hands_on()
         return changes
+
+    # ---- what was actually fitted ---------------------------------------------------------
+    def fittable(self) -> tuple[int, ...]:
+        """The items of the open hands-on step that put a mass on the rotor (the ones
+        :meth:`fit` edits), in the step's order."""
+        if not isinstance(self.step, HandsOn):
+            return ()
+        return tuple(k for k, c in enumerate(self.step.changes)
+                     if c.action == "attach" and c.mass is not None)
+
+    def fit(self, item: int, *, mass_g: float | None = None, position: int | None = None,
+            angle_deg: float | None = None, removal: bool | None = None) -> MassChange:
+        """Enter what was actually fitted for item ``item`` of the open hands-on step
+        (before the run): its mass, its position (index into the plane's positions) or,
+        on a plane without positions, its angle, and a weight or a hole (``removal``,
+        where the profile allows it). The run and every calculation after it use the
+        fitted mass; the suggestion is kept beside it. Refused with one line when the
+        entry is not possible; :meth:`undo_fit` takes the last entry back."""
+        step = self.step
+        if not isinstance(step, HandsOn):
+            raise GateRefused("a fitted mass is entered at the hands-on step that places it")
+        if item not in self.fittable():
+            raise GateRefused("that item puts no mass on the rotor")
+        change = step.changes[item]
+        old = change.mass
+        assert old is not None
+        plane = self.plane(old.plane)
+        new = old
+        if mass_g is not None:
+            if not (math.isfinite(mass_g) and mass_g > 0):
+                raise GateRefused("the fitted mass must be more than 0 g")
+            if plane.max_mass_g is not None and mass_g > plane.max_mass_g:
+                raise GateRefused(f"{mass_g:g} g is more than {plane.name} takes "
+                                  f"({plane.max_mass_g:g} g, machine profile)")
+            new = replace(new, mass_g=mass_g)
+        angles = plane.position_angles_deg
+        if position is not None:
+            if not angles:
+                raise GateRefused(f"{plane.name} has no numbered positions: give the angle")
+            if not 0 <= position < len(angles):
+                raise GateRefused(f"{plane.name} has positions 1 to {len(angles)}")
+            new = replace(new, position=position, angle_deg=angles[position])
+        if angle_deg is not None:
+            if angles:
+                raise GateRefused(f"{plane.name} takes masses at its numbered positions only: "
+                                  "give the position")
+            if not math.isfinite(angle_deg):
+                raise GateRefused("the angle must be a number of degrees")
+            new = replace(new, angle_deg=wrap_deg(angle_deg), position=None)
+        if removal is not None:
+            if removal and old.kind is MassKind.TRIAL:
+                raise GateRefused("a trial mass comes off again after its run: fit it as a "
+                                  "weight, not a hole")
+            if removal and not plane.removal_allowed:
+                raise GateRefused(f"removing material is not allowed on {plane.name} "
+                                  "(machine profile)")
+            new = replace(new, removal=removal)
+        suggested = change.suggested or old
+        fitted = MassChange("attach", new, None if new == suggested else suggested)
+        changes = list(step.changes)
+        changes[item] = fitted
+        self.step = replace(step, changes=tuple(changes))
+        self._fits.append((item, change, fitted))
+        return fitted
+
+    def undo_fit(self) -> MassChange:
+        """Take back the last fitted-mass entry of the open hands-on step; returns the item
+        as it is again."""
+        step = self.step
+        if not self._fits or not isinstance(step, HandsOn):
+            raise GateRefused("no fitted mass entered at this step: nothing to undo")
+        item, before, after = self._fits[-1]
+        if item >= len(step.changes) or step.changes[item] is not after:
+            self._fits = []
+            raise GateRefused("no fitted mass entered at this step: nothing to undo")
+        self._fits.pop()
+        changes = list(step.changes)
+        changes[item] = before
+        self.step = replace(step, changes=tuple(changes))
+        return before
 
     # ---- runs ---------------------------------------------------------------------------
     def arm_run(self, force_acknowledged: bool, now_s: float) -> None:
@@ -664,15 +842,29 @@ class Procedure:
             self.step, self._return_step = self._return_step, None
             self.ticked = set()
             return run
+        self._keep(run, self._measured + 1)
+        return run
+
+    def _keep(self, run: Run, number: int) -> None:
+        """Keep run ``number`` (a new one, or one measured again) and move on."""
+        self._measured = max(self._measured, number)
         if self._redo_index is not None:
             # a run of the coefficient set measured again: it replaces the first one
+            self.last_replaced = self.run_numbers[self._redo_index]
             self.runs[self._redo_index] = run
+            self.run_numbers[self._redo_index] = number
             self._redo_index = None
             self._to_correction()
-            return run
+            return
+        self.last_replaced, self._repeat_of = self._repeat_of, None
         self.runs.append(run)
+        self.run_numbers.append(number)
         self._advance_after_run(run)
-        return run
+
+    @property
+    def redo_of(self) -> int | None:
+        """The number of the run the rotor is being set up to measure again (None: none)."""
+        return None if self._redo_index is None else self.run_numbers[self._redo_index]
 
     def interrupt_run(self, kind: Literal["link-lost", "board-restart"], detail: str,
                       now_s: float) -> bool:
@@ -747,6 +939,7 @@ class Procedure:
         if self.step.kind != "correction" or not self.problem or not self.runs:
             raise GateRefused("there is no run to repeat")
         last = self.runs.pop()
+        self._repeat_of = self.run_numbers.pop()
         self.problem = ""
         self.step = Measure(f"Repeat: {last.label}", last.label, last.kind or RunKind.CHECK)
 

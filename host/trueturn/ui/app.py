@@ -41,6 +41,7 @@ from trueturn.procedure.guide import (
     GateRefused,
     HandsOn,
     HandsOnPhase,
+    MassChange,
     Measure,
     Mode,
     Procedure,
@@ -51,10 +52,18 @@ from trueturn.procedure.guide import (
     ShowVerdict,
 )
 from trueturn.ui import texts
+from trueturn.ui.fitted import FitEntry, FittedForm
 from trueturn.ui.jobfile import JobKeeper
 from trueturn.ui.machine import setup_from_profile
 from trueturn.ui.machines import MachinePicker
 from trueturn.ui.placement import marking_markup
+from trueturn.ui.resume import (
+    OpenJob,
+    find_open_job,
+    refuse_changed_profile,
+    restore_procedure,
+    rotor_lines,
+)
 from trueturn.ui.rig import DemoRig
 from trueturn.ui.savefolder import SaveFolderPrompt
 from trueturn.ui.session import Clock, LinkProblem, LinkSession, SessionFactory, Snapshot
@@ -83,6 +92,8 @@ class AppConfig:
     workspace: Path | None = None
     job_file: Path | None = None
     mode: Mode | None = None
+    resume_job: Path | None = None  # an open job file to continue (``ui --job FILE``)
+    start_note: str = ""  # said once the bench shows (e.g. the job's own profile is used)
     standstill_s: float = 3.0
     revolutions_per_run: int = 30
     rate_hz: int = 2000
@@ -259,6 +270,8 @@ class BenchScreen(Screen):
         Binding("pageup", "scroll_guide(-1)", show=False),
         Binding("down", "scroll_guide(0.25)", show=False),
         Binding("up", "scroll_guide(-0.25)", show=False),
+        Binding("f", "fitted", "Fitted", show=False),
+        Binding("u", "undo_fitted", "Undo fitted", show=False),
         Binding("c", "app.cautions", "Cautions"),
         Binding("question_mark", "app.keys", "Keys"),
         Binding("f1", "app.keys", "Keys", show=False),
@@ -334,6 +347,11 @@ class BenchScreen(Screen):
 
     def action_scroll_guide(self, pages: float) -> None:
         self.query_one("#guide-view", GuideView).scroll_step(pages)
+    def action_fitted(self) -> None:
+        self.trueturn.enter_fitted()
+
+    def action_undo_fitted(self) -> None:
+        self.trueturn.undo_fitted()
 
 
 class TrueturnApp(App):
@@ -370,6 +388,7 @@ class TrueturnApp(App):
         self.restarts_seen = 0
         self.bench: BenchScreen | None = None
         self._saved_cache: dict[str, CoefficientSet | None] = {}
+        self.open_job: OpenJob | None = None  # offered at the set-up (Enter continues it)
 
     # ---- lifecycle ----------------------------------------------------------------------
     def on_mount(self) -> None:
@@ -384,8 +403,13 @@ class TrueturnApp(App):
         self.pump_link()
         self.bench = BenchScreen(id="bench")
         self.switch_screen(self.bench)
-        if self.config.mode is not None:
+        self.message = self.config.start_note
+        if self.config.resume_job is not None:
+            self.continue_job(self.config.resume_job)
+        elif self.config.mode is not None:
             self.choose_mode(self.config.mode)
+        else:
+            self.open_job = find_open_job(self.keeper.workspace, self.config.profile)
 
     @work(thread=True, exclusive=True, group="link-pump")
     def pump_link(self) -> None:
@@ -552,6 +576,64 @@ class TrueturnApp(App):
         self.session.use_machine([p.name for p in profile.pickups], profile.mains_hz,
                                  profile.pickups)
         self.message = f"Machine: {profile.name}"
+        self.open_job = find_open_job(self.keeper.workspace, profile)
+        self.tick()
+
+    def continue_job(self, path: Path) -> None:
+        """Continue the open job in ``path``: its procedure rebuilt from its runs, at the
+        step after the last one; on a demo rig the simulated rotor gets the job's masses
+        (the stand-in for a real rotor that kept them while the app was closed)."""
+        try:
+            job = self.keeper.workspace.resume_job(path)
+            refuse_changed_profile(job, self.config.profile, "the machine's profile now")
+            proc = restore_procedure(job, self.engine, self.session.watch,
+                                     self.config.standstill_s, self.config.revolutions_per_run)
+        except UserError as exc:
+            self.message = str(exc)
+            return
+        self.procedure, self.open_job = proc, None
+        self.keeper.resume(job, path)
+        if self.rig is not None:
+            self.rig.apply(tuple(MassChange("attach", m) for m in proc.on_rotor))
+        self.message = texts.resumed(job.job_id, len(job.runs),
+                                     rotor_lines(job, tuple(proc.on_rotor)))
+
+    def enter_fitted(self) -> None:
+        """f: at a hands-on step, enter what was actually fitted for one of its masses."""
+        proc = self.procedure
+        items = proc.fittable() if proc is not None else ()
+        if proc is None or not items:
+            self.message = texts.NOTHING_TO_FIT
+            self.tick()
+            return
+        self.push_screen(FittedForm(proc, items, self.shown()), self._fitted)
+
+    def _fitted(self, entry: FitEntry | None) -> None:
+        proc = self.procedure
+        if entry is None or proc is None:
+            return
+        try:
+            change = proc.fit(entry.item, mass_g=entry.mass_g, position=entry.position,
+                              angle_deg=entry.angle_deg, removal=entry.removal)
+            self.message = texts.fitted_words(change, shown=self.shown())
+        except GateRefused as exc:
+            self.message = f"Refused: {exc}"
+        self.tick()
+
+    def shown(self) -> texts.Shown:
+        """Numbers in the machine's units (its profile's)."""
+        return texts.Shown(self.config.profile.units.choice())
+
+    def undo_fitted(self) -> None:
+        """u: take back the last fitted-mass entry of this hands-on step."""
+        proc = self.procedure
+        if proc is None:
+            return
+        try:
+            change = proc.undo_fit()
+            self.message = texts.fitted_words(change, undone=True, shown=self.shown())
+        except GateRefused as exc:
+            self.message = f"Refused: {exc}"
         self.tick()
 
     def choose_mode(self, mode: Mode) -> None:
@@ -564,7 +646,7 @@ class TrueturnApp(App):
             self.message = str(exc)
             return
         self._measure_for(self.procedure)
-        self.keeper.start(self.procedure)
+        self.keeper.start(self.procedure, saved)
         self.message = ""
         if self.procedure.partial_planes:
             self.message = (f"Note: {self.config.profile.name} has "
@@ -636,7 +718,11 @@ class TrueturnApp(App):
     def confirm(self) -> None:
         proc = self.procedure
         if proc is None:
-            self.message = texts.CHOOSE_FIRST
+            offer = self.open_job
+            if offer is not None and not offer.refusal:
+                self.continue_job(offer.path)
+            else:
+                self.message = offer.refusal if offer is not None else texts.CHOOSE_FIRST
             self.tick()
             return
         try:
@@ -880,6 +966,7 @@ class TrueturnApp(App):
             tach_live=self.tach_live(snap), link_error=texts.plain(self.link_error),
             saved_trim=proc is None and self.saved_coefficients() is not None,
             job_path=self.keeper.path, report_path=self.keeper.report_path,
+            open_job=texts.open_job_lines(self.open_job) if proc is None else (),
             condition=self.condition if proc is not None else (),
             message=texts.plain(texts.not_saved(self.keeper.unsaved)
                                 if self.keeper.unsaved and not self.quit_armed

@@ -116,11 +116,11 @@ class JobKeeper:
         self.workspace, self.job_file, self.path, self.unsaved = workspace, job_file, path, None
         return path
 
-    def start(self, proc: Procedure) -> None:
-        method = {Mode.TWO_PLANE: "two-plane", Mode.SAVED_TRIM: "trim"}.get(
-            proc.setup.mode, "single-plane")
-        notes = ("amplitude-only procedure (four-run method)"
-                 if proc.setup.mode is Mode.AMPLITUDE_ONLY else "")
+    def start(self, proc: Procedure, saved: rec.CoefficientSet | None = None) -> None:
+        """A new job for ``proc``; ``saved``: the coefficients a one-run trim uses (kept in
+        the job, so the trim can be resumed with the very same ones)."""
+        method = METHOD_OF_MODE[proc.setup.mode]
+        notes = AMPLITUDE_NOTE if proc.setup.mode is Mode.AMPLITUDE_ONLY else ""
         self._confirmed = 0
         try:
             if self.job_file is None:
@@ -138,6 +138,16 @@ class JobKeeper:
             return
         self.unsaved = None
         self.path = self.workspace.path_of(self.job)
+        if saved is not None and proc.setup.mode is Mode.SAVED_TRIM:
+            self.job.influence = saved
+            self.path = self._save("save_job", self.job, self._where()) or self.path
+
+    def resume(self, job: rec.JobRecord, path: Path) -> None:
+        """Keep on with an open job read from ``path`` (its runs are the procedure's)."""
+        self.job, self.path, self.report_path, self._confirmed = job, path, None, 0
+        if self.job_file is None and path.resolve() != self.workspace.job_path(
+                job.job_id).resolve():
+            self.job_file = path  # a job named otherwise is saved back where it was read
 
     def _new_confirmations(self, proc: Procedure) -> list[rec.Confirmation]:
         """The confirmations given since the last save, each with the standstill evidence
@@ -163,18 +173,24 @@ class JobKeeper:
         added = []
         for change in changes:
             m = change.mass
-            if m is None or change.action == "mount-pickups":
+            if m is None or change.action not in ("attach", "detach"):
                 continue
             action: Literal["attach", "remove"] = \
                 "attach" if change.action == "attach" else "remove"
+            s = change.suggested
+            suggested = None if s is None else rec.SuggestedMass(
+                abs(s.mass_g), s.angle_deg,
+                None if s.position is None else number_of(s.position), s.removal)
             added.append(rec.MassChange(
                 action, m.plane, abs(m.mass_g), m.angle_deg, purpose=m.kind.value,
                 position=None if m.position is None else number_of(m.position),
                 radius_mm=proc.plane(m.plane).radius_mm,
-                part="drilled out" if m.removal else "", time=rec.now_iso()))
+                part="drilled out" if m.removal else "", time=rec.now_iso(),
+                hole=m.removal, suggested=suggested))
         confirmations = self._new_confirmations(proc)
         step = replace(pending, changes=[*pending.changes, *added],
-                       confirmations=[*pending.confirmations, *confirmations])
+                       confirmations=[*pending.confirmations, *confirmations],
+                       redo_of=proc.redo_of)
         self._kept(self._save("record_pending", self.job, step, self._where()), confirmations)
 
     def event(self, event: SafetyEvent) -> None:
@@ -218,7 +234,8 @@ class JobKeeper:
                               time=rec.now_iso(), speed_rpm=run.speed_rpm, readings=readings,
                               label=run.label, confirmations=confirmations,
                               corrections=corrections, events=events,
-                              notes="; ".join(run.forces_confirmed))
+                              notes="; ".join(run.forces_confirmed),
+                              replaces=proc.last_replaced)
         if condition is not None:
             record.severity = severity_entries(condition[0])
             record.unbalance = unbalance_entry(condition[1])
@@ -304,6 +321,14 @@ class JobKeeper:
         self.path = saved
         self._write_report()
         return self.path
+
+
+#: the note of an amplitude-only job (files before "four-run" said only this)
+AMPLITUDE_NOTE = "amplitude-only procedure (four-run method)"
+#: the job file's word for each procedure (JobRecord.method)
+METHOD_OF_MODE: dict[Mode, Literal["single-plane", "two-plane", "four-run", "trim"]] = {
+    Mode.ONE_PLANE: "single-plane", Mode.TWO_PLANE: "two-plane",
+    Mode.AMPLITUDE_ONLY: "four-run", Mode.SAVED_TRIM: "trim"}
 
 
 def confirmation_record(step: str, board_time_s: float,

@@ -11,6 +11,7 @@ from trueturn.jobs.profiles import MachineProfile
 from trueturn.jobs.store import Workspace
 from trueturn.link.ports import list_board_ports
 from trueturn.ui.app import AppConfig, TrueturnApp
+from trueturn.ui.resume import refuse_changed_profile
 
 
 def scenario_profile(name: str) -> MachineProfile:
@@ -69,13 +70,43 @@ def launch_port(port: str | None, job: str | None = None, machine: str | None = 
             raise UserError("no board found on any USB serial port: plug it in, or give "
                             "--port (try: trueturn ports), or try: trueturn demo")
         port = found[0].device
+    scheme = _scheme(port)
     if job is not None and os.path.lexists(job):
-        raise UserError(f"{job} exists: the app writes a new job file and never overwrites "
-                        "one; give a new name (use --machine to pick the machine)")
+        profile, note = resume_profile(port, job, machine, workspace)
+        return _run(AppConfig(port, profile, demo=scheme == "sim",
+                              workspace=Path(workspace) if workspace else None,
+                              job_file=Path(job), resume_job=Path(job), start_note=note))
     if job is not None:
         check_output(job)  # the one rule for files: its folder exists, a regular name
     profile = choose_profile(port, job, machine, workspace)
-    scheme = _scheme(port)
     return _run(AppConfig(port, profile, demo=scheme == "sim",
                           workspace=Path(workspace) if workspace else None,
                           job_file=Path(job) if job else None))
+
+
+def resume_profile(port: str, job_file: str, machine: str | None,
+                   workspace: str | None) -> tuple[MachineProfile, str]:
+    """The machine to continue an existing job file on, and what to say about it.
+
+    The job carries the profile it was started with. The machine as saved now (``--machine``,
+    the virtual rig's scenario, or the workspace's machine of the job's name) must be that
+    profile: a changed one is refused, naming what changed. A machine no longer saved is
+    continued with the job's own copy, said once. A closed job is refused in one line.
+    """
+    if not os.path.isfile(job_file):
+        raise UserError(f"{job_file} is not a job file (a regular file)")
+    ws = Workspace.open(workspace)
+    job = ws.resume_job(job_file)  # one line for a closed job or a file it cannot read
+    if machine is not None:
+        refuse_changed_profile(job, ws.load_machine(machine), f"machine {machine!r}")
+        return job.machine, ""
+    if _scheme(port) in ("sim", "emu"):
+        name = port.split("://", 1)[1].split("?", 1)[0]
+        refuse_changed_profile(job, scenario_profile(name), f"the virtual rig {name!r}")
+        return job.machine, ""
+    if ws.machine_path(job.machine.name).is_file():
+        refuse_changed_profile(job, ws.load_machine(job.machine.name),
+                               f"machine {job.machine.name!r} in {ws.machines_dir}")
+        return job.machine, ""
+    return job.machine, (f"Machine {job.machine.name!r} is not saved in {ws.machines_dir}: "
+                         "the job continues with the profile it was started with.")

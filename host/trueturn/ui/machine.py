@@ -9,6 +9,7 @@ from trueturn.balance.readings import SavedCoefficient
 from trueturn.constants import STANDARD_GRAVITY_M_S2
 from trueturn.jobs.profiles import Bearing, MachineProfile, Pickup
 from trueturn.jobs.records import CoefficientSet
+from trueturn.model import PlacedMass
 from trueturn.positions import number_of, position_text
 from trueturn.procedure.guide import MassChange, Mode, Procedure, ProcedureSetup
 from trueturn.ui.texts import Shown
@@ -91,19 +92,26 @@ def describe_change(change: MassChange, proc: Procedure, engine: BalanceEngine,
     where = position_text(number_of(m.position), m.angle_deg) if m.position is not None \
         else f"{m.angle_deg:.0f}° from the mark, against rotation"
     force = engine.force_n(abs(m.mass_g), plane.radius_mm, proc.setup.speed_rpm)
+    if change.action == "check":
+        what = "a hole of" if m.removal else f"the {m.kind.value} mass"
+        at = (position_text(number_of(m.position), m.angle_deg) if m.position is not None
+              else f"{m.angle_deg:.0f}°")
+        return f"Check: {what} {u.mass(abs(m.mass_g))} on {m.plane} at {at}."
     if change.action == "detach":
         return (f"Take off the {m.kind.value} mass {u.mass(abs(m.mass_g))} from {m.plane} at "
                 f"{where}.")
+    fitted = "" if change.suggested is None else \
+        f" [yellow](fitted; suggested {u.mass(abs(change.suggested.mass_g))})[/]"
     if m.removal:
         return (f"Remove {u.mass(abs(m.mass_g))} of material from {m.plane} at {where}, "
-                f"r {u.length(plane.radius_mm)} (where the maker allows).")
+                f"r {u.length(plane.radius_mm)} (where the maker allows){fitted}.")
     text = (f"Attach {m.kind.value} mass [b]{u.mass(m.mass_g)}[/b] on {m.plane} at {where}, "
             f"r {u.length(plane.radius_mm)}: {u.force(force)} at "
             f"{u.speed(proc.setup.speed_rpm)}")
-    if m.kind == "trial":
+    if m.kind == "trial" and change.suggested is None:
         ratio = engine.trial_mass(proc.setup, plane).force_ratio
         text += f" (about {ratio:.0%} of the rotor's weight)"
-    return text + "."
+    return text + fitted + "."
 
 
 def brief_work(changes: tuple[MassChange, ...], proc: Procedure,
@@ -132,3 +140,22 @@ def brief_work(changes: tuple[MassChange, ...], proc: Procedure,
             text += f" ({share:.0%} of rotor weight)"
         lines.append(text + ".")
     return tuple("  " + line for line in lines)
+
+
+def fitted_lines(changes: tuple[MassChange, ...], shown: Shown | None = None) -> tuple[str, ...]:
+    """A line for each part entered as fitted otherwise than suggested (issue #17)."""
+    u = shown or Shown()
+    lines = []
+    for c in changes:
+        m, s = c.mass, c.suggested
+        if m is None or s is None:
+            continue
+        what = "hole" if m.removal else m.kind.value
+        lines.append(f"  [yellow]Fitted: {what} {u.mass(abs(m.mass_g))} on {m.plane} at "
+                     f"{_where(m)} (suggested {u.mass(abs(s.mass_g))} at {_where(s)})[/]")
+    return tuple(lines)
+
+
+def _where(m: PlacedMass) -> str:
+    return (position_text(number_of(m.position)) if m.position is not None
+            else f"{m.angle_deg:.0f}°")

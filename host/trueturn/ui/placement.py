@@ -34,7 +34,7 @@ from trueturn.positions import degrees_text, number_of
 from trueturn.procedure.guide import MassChange
 from trueturn.ui.widgets import BrailleCanvas
 
-PartAction = Literal["add", "remove", "take-off"]
+PartAction = Literal["add", "remove", "take-off", "check"]  # check: on it already (a resumed job)
 
 #: the picture's size in terminal cells: the circle, the legend beside it, one plane's block
 CIRCLE_COLS, PICTURE_ROWS = 16, 7
@@ -51,13 +51,16 @@ PART_STYLE: dict[PartAction, str] = {
     "add": "bold black on green",
     "remove": "bold white on red",
     "take-off": "bold black on yellow",
+    "check": "bold black on cyan",
 }
 #: an unlit position's number (the rim and its ticks are grey50)
 POSITION_STYLE = "grey74"
-SPOKE_STYLE: dict[PartAction, str] = {"add": "green", "remove": "red", "take-off": "yellow"}
-PART_WORDS: dict[PartAction, str] = {"add": "add", "remove": "drill out", "take-off": "take off"}
+SPOKE_STYLE: dict[PartAction, str] = {"add": "green", "remove": "red", "take-off": "yellow",
+                                      "check": "cyan"}
+PART_WORDS: dict[PartAction, str] = {"add": "add", "remove": "drill out", "take-off": "take off",
+                                     "check": "check on"}
 #: the lit tag of a part on a plane without positions (any angle)
-FREE_TAG: dict[PartAction, str] = {"add": "+", "remove": "o", "take-off": "x"}
+FREE_TAG: dict[PartAction, str] = {"add": "+", "remove": "o", "take-off": "x", "check": "c"}
 MARK = "\u25bc"  # the reference mark, pointing at 0 deg on the rim
 ARROW: dict[Rotation, str] = {"cw": "\u21bb", "ccw": "\u21ba"}
 
@@ -96,6 +99,7 @@ def part_of(change: MassChange) -> PartMark | None:
     if m is None or change.action == "mount-pickups":
         return None
     action: PartAction = ("take-off" if change.action == "detach" else
+                          "check" if change.action == "check" else
                           "remove" if m.removal else "add")
     number = number_of(m.position) if m.position is not None else None
     return PartMark(m.angle_deg, action, abs(m.mass_g), number)

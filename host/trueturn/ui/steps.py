@@ -53,7 +53,7 @@ from trueturn.procedure.guide import (
 )
 from trueturn.procedure.standstill import StandstillEvidence, StandstillState
 from trueturn.ui import texts
-from trueturn.ui.machine import brief_work, describe_change
+from trueturn.ui.machine import brief_work, describe_change, fitted_lines
 from trueturn.ui.placement import PlacementView, fits_legend, pictures_for
 from trueturn.ui.session import Snapshot
 from trueturn.ui.texts import VERDICT_FLAG_WORDS, Shown, verdict_note
@@ -75,6 +75,7 @@ class GuideContext:
     message: str = ""
     alarm: str = ""  # an alarm held until acknowledged: shown instead of the message
     condition: tuple[str, ...] = ()  # the machine's condition from the last as-found/check run
+    open_job: tuple[str, ...] = ()  # the set-up's offer of an open job (texts.open_job_lines)
 
 
 class StepPanel(Static):
@@ -106,11 +107,13 @@ class SetupPanel(StepPanel):
 
     profile: reactive[MachineProfile | None] = reactive(None)
     saved_trim: reactive[bool] = reactive(False)
+    open_job: reactive[tuple[str, ...]] = reactive(())
 
     def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
         super().show(proc, snap, ctx)
         self.profile = ctx.profile
         self.saved_trim = ctx.saved_trim
+        self.open_job = ctx.open_job
 
     def lines(self) -> list[str]:
         prof = self.profile
@@ -124,7 +127,7 @@ class SetupPanel(StepPanel):
             f"  planes: {planes}",
             f"  pickups: {', '.join(p.name for p in prof.pickups)} · target G "
             f"{prof.target_grade:g}",
-            "", *texts.setup_choices(self.saved_trim), "",
+            *(self.open_job or ("",)), *texts.setup_choices(self.saved_trim), "",
             *texts.SETUP_FOOTER]
 
 
@@ -200,19 +203,25 @@ class HandsOnPanel(ProcedurePanel):
     standstill: reactive[tuple[str, ...]] = reactive(())
     #: a second start as found is offered (before the first trial mass goes on)
     offer_second_start: reactive[bool] = reactive(False)
+    fittable: reactive[bool] = reactive(False)  # f enters what was fitted (issue #17)
 
     def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
         super().show(proc, snap, ctx)
         assert proc is not None and isinstance(proc.step, HandsOn)
         step = proc.step
         self.phase = step.phase
-        pictured = pictures_for(step.changes, proc.planes_used, ctx.profile.rotation)
-        if any(c.mass is not None for c in step.changes) and fits_legend(pictured):
+        changes = step.changes
+        u = self.units
+        pictured = pictures_for(changes, proc.planes_used, ctx.profile.rotation)
+        if proc.checking_resumed_rotor:  # what the job says is on the rotor, item by item
+            checks = tuple("  " + describe_change(c, proc, ctx.engine, u) for c in changes)
+            self.work = (texts.RESUMED_CHECK, *(checks or ("  nothing added to the rotor",)))
+        elif any(c.mass is not None for c in changes) and fits_legend(pictured):
             # the pictures list the parts
-            self.work = brief_work(step.changes, proc, ctx.engine, self.units)
+            self.work = (*brief_work(changes, proc, ctx.engine, u), *fitted_lines(changes, u))
         else:
-            self.work = tuple("  " + describe_change(c, proc, ctx.engine, self.units)
-                              for c in step.changes)
+            self.work = tuple("  " + describe_change(c, proc, ctx.engine, u) for c in changes)
+        self.fittable = bool(proc.fittable())
         self.items = proc.checklist()
         self.ticked = frozenset(proc.ticked)
         self.standstill = self.evidence_words(snap.evidence)
@@ -244,7 +253,8 @@ class HandsOnPanel(ProcedurePanel):
             box = "\\[x]" if i in self.ticked else "\\[ ]"
             lines.append(f"  {box} {item}")
         lines.append(texts.MAKER_NOTE)
-        lines.append(texts.ENTER_LOCKED_OUT if lockout else texts.ENTER_DONE)
+        lines.append((texts.ENTER_LOCKED_OUT if lockout else texts.ENTER_DONE)
+                     + (texts.FIT_KEYS if self.fittable else ""))
         return lines
 
 

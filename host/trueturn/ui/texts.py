@@ -4,6 +4,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 from trueturn.dsp.findings import Code, Finding, describe
 from trueturn.dsp.severity import Severity
@@ -20,7 +21,12 @@ from trueturn.model.units import (
     unbalance_text,
     vibration_text,
 )
+from trueturn.positions import number_of, position_text
 from trueturn.procedure.guide import Mode
+
+if TYPE_CHECKING:
+    from trueturn.procedure.guide import MassChange
+    from trueturn.ui.resume import OpenJob
 
 
 @dataclass(frozen=True)
@@ -99,11 +105,14 @@ KEYS: list[tuple[str, str]] = [
     ("s", "Spectrum with labelled peaks"),
     ("g", "Guide: the balancing procedure"),
     (" ".join(MODE_KEYS), "Set-up: one plane / two planes / amplitude only / one-run trim"),
+    ("Enter", "Set-up: continue the open job offered (1-4 start a new one)"),
     ("p", "Set-up: pick a saved machine or create a new one"),
     ("Space", "Guide: tick the next checklist item (only at proven standstill)"),
     ("Backspace", "Guide: take back the last tick"),
     ("a", "Guide: stop the run now (nothing of it is kept; inspect the rotor next)"),
     ("Enter", "Guide: confirm the step shown (gates refuse while unsafe); acknowledge an alarm"),
+    ("f", "Guide: enter what you actually fitted (mass, position, weight or hole)"),
+    ("u", "Guide: undo the last fitted-mass entry"),
     ("r", "Guide: remove material instead of adding mass (correction step)"),
     ("e", "Guide: run again the run that was off speed, before placing the correction"),
     ("n", "Guide: start once more as found, after a stop (does the 1x repeat? optional)"),
@@ -352,3 +361,51 @@ def no_tach_measuring(speed_rpm: float) -> str:
     """The run line of the amplitude-only procedure: there is no tach (dsp.tachless)."""
     speed = f"about {speed_rpm:.0f} rpm" if speed_rpm > 0 else "the speed not found yet"
     return f"No tach: speed from the spectrum ({speed}), 1x from its peak, no phase."
+
+
+# ---- resuming a job and what was fitted (issue #17) --------------------------------------
+NOTHING_TO_FIT = ("Nothing to enter: what was fitted is entered at the hands-on step that "
+                  "places a mass, before its run.")
+FIT_KEYS = "   [b]f[/b]: what you fitted  [b]u[/b]: undo"
+RESUMED_CHECK = "[yellow]The rotor may have been touched meanwhile: check it carries this:[/]"
+
+
+def open_job_lines(offer: OpenJob | None) -> tuple[str, ...]:
+    """The set-up's offer of an open job: its runs, what is on the rotor, the key."""
+    if offer is None:
+        return ()
+    job = offer.job
+    head = (f"[b]Open job[/b] {plain(job.job_id)}: {runs_words(len(job.runs))} kept"
+            f"{', the work after it confirmed' if job.pending is not None else ''}")
+    if offer.refusal:
+        return (head, f"  [yellow]{plain(offer.refusal)}[/]")
+    return (head, *(f"  on the rotor: {plain(line)}" for line in offer.lines),
+            "  [b]Enter[/b]  continue it (1-4 start a new job; it stays open)")
+
+
+def runs_words(runs: int) -> str:
+    return f"{runs} run" + ("" if runs == 1 else "s")
+
+
+def resumed(job_id: str, runs: int, rotor: Sequence[str]) -> str:
+    """The message after an open job was taken up again."""
+    return (f"Resumed job {job_id} after {runs_words(runs)}. On the rotor: "
+            f"{'; '.join(rotor)}. Standstill is proven afresh before any hands-on step.")
+
+
+def fitted_words(change: MassChange, undone: bool = False, shown: Shown | None = None) -> str:
+    """The message after a fitted-mass entry (or its undo): what is fitted, and what was
+    suggested, in the machine's units."""
+    u = shown or Shown()
+    m, s = change.mass, change.suggested
+    assert m is not None
+    where = (position_text(number_of(m.position)) if m.position is not None
+             else f"{m.angle_deg:.0f}°")
+    what = "hole" if m.removal else m.kind.value
+    text = (f"{'Undone, back to' if undone else 'Fitted'}: {what} {u.mass(abs(m.mass_g))} on "
+            f"{m.plane} at {where}")
+    if s is None:
+        return text + " (as suggested)."
+    at = (position_text(number_of(s.position)) if s.position is not None
+          else f"{s.angle_deg:.0f}°")
+    return text + f" (suggested {u.mass(abs(s.mass_g))} at {at}); the runs use what is fitted."

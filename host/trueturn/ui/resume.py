@@ -1,0 +1,201 @@
+"""Continue an open job: rebuild its procedure from the runs the job file kept (issue #17).
+
+The job file is the record: its runs (readings, the masses on the rotor in each), the
+hands-on work confirmed since the last run (``pending``) and, for a one-run trim, the
+coefficients it uses. :func:`restore_procedure` turns them into the model's runs and masses
+and lets :meth:`trueturn.procedure.guide.Procedure.restore` solve them again; nothing of the
+screens is replayed and nothing about standstill is carried over (a fresh watch proves it
+again before any hands-on step).
+
+The machine: a job carries the profile it was measured with, and its coefficients and
+positions mean something only with that profile. :func:`profile_change` names what differs
+from the machine as saved now: a job is never continued on a changed profile (a lowered
+speed limit or a plane that may no longer be drilled must not be overruled by an old copy);
+a machine no longer saved is continued with the job's own copy, said in one line.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+from trueturn.errors import UserError
+from trueturn.jobs import records as rec
+from trueturn.jobs.profiles import MachineProfile
+from trueturn.jobs.store import Workspace
+from trueturn.model import MassKind, PlacedMass, Plane, Run
+from trueturn.positions import index_of, number_of, position_text
+from trueturn.procedure.guide import Engine, KeptRun, Mode, Procedure
+from trueturn.procedure.standstill import StandstillWatch
+from trueturn.schema import to_data
+from trueturn.ui.jobfile import AMPLITUDE_NOTE, METHOD_OF_MODE
+from trueturn.ui.machine import setup_from_profile
+from trueturn.ui.texts import Shown
+
+MODE_OF_METHOD = {method: mode for mode, method in METHOD_OF_MODE.items()}
+#: how close a part taken off must be to a part put on to be that part (as
+#: JobRecord.parts_on_rotor matches them)
+SAME_MASS_G = 0.01
+SAME_ANGLE_DEG = 0.5
+
+
+def job_mode(job: rec.JobRecord) -> Mode:
+    """The procedure a job was started with."""
+    if job.method == "single-plane" and job.notes == AMPLITUDE_NOTE:
+        return Mode.AMPLITUDE_ONLY  # written so before the job file said "four-run"
+    return MODE_OF_METHOD[job.method]
+
+
+def profile_change(job: rec.JobRecord, profile: MachineProfile) -> list[str]:
+    """The fields of ``profile`` that differ from the copy the job was started with."""
+    now, then = to_data(profile), to_data(job.machine)
+    return [k for k in dict.fromkeys([*then, *now]) if now.get(k) != then.get(k)]
+
+
+def refuse_changed_profile(job: rec.JobRecord, profile: MachineProfile, where: str) -> None:
+    """One-line UserError when ``profile`` (the machine as saved now) is not the job's."""
+    changed = profile_change(job, profile)
+    if job.machine.name != profile.name:
+        raise UserError(f"job {job.job_id} is a job of machine {job.machine.name!r}, and "
+                        f"{where} is {profile.name!r}: continue it on its own machine")
+    if changed:
+        raise UserError(
+            f"job {job.job_id} was started on machine {job.machine.name!r} as it was then; "
+            f"{where} differs ({', '.join(changed[:4])}): a job is continued only on the "
+            "same profile - start a new job")
+
+
+def _placed(change: rec.MassChange, planes: dict[str, Plane]) -> PlacedMass:
+    plane = planes.get(change.plane)
+    if plane is None:
+        raise UserError(f"the job names plane {change.plane!r}, which its machine lacks")
+    position = None
+    if change.position is not None:
+        try:
+            position = index_of(change.position, len(plane.position_angles_deg))
+        except ValueError as exc:
+            raise UserError(f"{change.plane}: {exc}") from None
+    kind = MassKind(change.purpose) if change.purpose != "other" else MassKind.CORRECTION
+    hole = change.hole or change.part == "drilled out"  # files written before ``hole``
+    return PlacedMass(change.plane, change.mass_g, change.angle_deg, position, kind, hole)
+
+
+def _apply(on_rotor: list[PlacedMass], changes: list[rec.MassChange],
+           planes: dict[str, Plane], where: str) -> None:
+    """The hands-on work of one step, in order, on the list of masses on the rotor."""
+    for change in changes:
+        mass = _placed(change, planes)
+        if change.action == "attach":
+            on_rotor.append(mass)
+            continue
+        for k in range(len(on_rotor) - 1, -1, -1):
+            m = on_rotor[k]
+            if (m.plane == mass.plane and abs(m.mass_g - mass.mass_g) < SAME_MASS_G
+                    and abs((m.angle_deg - mass.angle_deg + 180) % 360 - 180) < SAME_ANGLE_DEG):
+                del on_rotor[k]
+                break
+        else:
+            raise UserError(f"{where} takes off {mass.mass_g:g} g on {mass.plane}, which the "
+                            "job never put on: the job cannot be continued")
+
+
+@dataclass(frozen=True)
+class RotorState:
+    """What a job says is on the rotor now, and its runs as the procedure keeps them."""
+
+    runs: tuple[KeptRun, ...]
+    on_rotor: tuple[PlacedMass, ...]
+
+
+def rotor_state(job: rec.JobRecord) -> RotorState:
+    """Replay the job's recorded hands-on work and runs (data only, no engine)."""
+    planes = {p.name: p for p in job.machine.planes}
+    on_rotor: list[PlacedMass] = []
+    kept = []
+    for entry in job.runs:
+        _apply(on_rotor, entry.changes, planes, f"run {entry.index}")
+        parts = [c for c in entry.changes if c.action == "attach"
+                 and c.purpose in ("correction", "trim")]
+        removal = any(_placed(c, planes).removal for c in parts) if parts else None
+        run = Run(entry.label or entry.kind.value, tuple(on_rotor),
+                  {r.sensor: r for r in entry.readings}, entry.speed_rpm, entry.kind)
+        kept.append(KeptRun(run, entry.index, entry.replaces, removal))
+    if job.pending is not None:
+        _apply(on_rotor, job.pending.changes, planes, "the work since the last run")
+    return RotorState(tuple(kept), tuple(on_rotor))
+
+
+def describe_mass(m: PlacedMass, shown: Shown) -> str:
+    """``trial 0.60 g at position 2 (90°)`` / ``hole 1.20 g at 200°``."""
+    where = (position_text(number_of(m.position), m.angle_deg) if m.position is not None
+             else f"{m.angle_deg:.0f}°")
+    what = "hole" if m.removal else m.kind.value
+    return f"{what} {shown.mass(abs(m.mass_g))} at {where}"
+
+
+def rotor_lines(job: rec.JobRecord, on_rotor: tuple[PlacedMass, ...]) -> list[str]:
+    """What is on the rotor now, one line per plane (every plane of the machine)."""
+    shown = Shown(job.machine.units.choice())
+    lines = []
+    for plane in job.machine.planes:
+        here = [describe_mass(m, shown) for m in on_rotor if m.plane == plane.name]
+        lines.append(f"{plane.name}: {', '.join(here) if here else 'nothing added'}")
+    return lines
+
+
+def restore_procedure(job: rec.JobRecord, engine: Engine, watch: StandstillWatch | None,
+                      standstill_s: float = 3.0, revolutions_per_run: int = 30) -> Procedure:
+    """The procedure of an open job, at the step after its last run (one-line UserError
+    when it cannot be continued)."""
+    if job.status != "open":
+        raise UserError(f"job {job.job_id} is closed; nothing to resume (start a new job)")
+    mode = job_mode(job)
+    if mode is Mode.SAVED_TRIM and job.influence is None:
+        raise UserError(f"job {job.job_id} does not keep the coefficients its trim used: "
+                        "start a new trim")
+    state = rotor_state(job)
+    try:
+        setup = setup_from_profile(job.machine, mode, standstill_s, revolutions_per_run,
+                                   job.influence if mode is Mode.SAVED_TRIM else None)
+        pending = job.pending
+        return Procedure.restore(setup, engine, state.runs, state.on_rotor,
+                                 rotor_set=pending is not None,
+                                 redo_of=pending.redo_of if pending is not None else None,
+                                 watch=watch)
+    except ValueError as exc:
+        raise UserError(f"job {job.job_id} cannot be continued: {exc}") from None
+
+
+@dataclass(frozen=True)
+class OpenJob:
+    """An open job of this machine the app offers to continue."""
+
+    path: Path
+    job: rec.JobRecord
+    lines: tuple[str, ...]  # what is on the rotor now, per plane
+    refusal: str = ""  # why it cannot be continued (empty: it can)
+
+
+def find_open_job(workspace: Workspace, profile: MachineProfile) -> OpenJob | None:
+    """The latest open job of ``profile``'s machine in the workspace that got past its
+    set-up (a run kept or hands-on work confirmed); None when there is none."""
+    try:
+        summaries, _ = workspace.scan_jobs(profile.name)
+    except UserError:
+        return None
+    for summary in reversed(summaries):
+        if summary.status != "open":
+            continue
+        try:
+            job = workspace.load_job(summary.path)
+        except UserError:
+            continue
+        if not job.runs and job.pending is None:
+            continue
+        try:
+            state = rotor_state(job)
+            refuse_changed_profile(job, profile, "the machine's profile now")
+        except UserError as exc:
+            return OpenJob(summary.path, job, (), str(exc))
+        return OpenJob(summary.path, job, tuple(rotor_lines(job, state.on_rotor)))
+    return None

@@ -35,6 +35,7 @@ from trueturn.jobs.records import JobRecord
 from trueturn.jobs.report import plane_svg
 from trueturn.jobs.store import read_document
 from trueturn.model import Plane, PlaneLayout
+from trueturn.model.units import IMPERIAL
 from trueturn.positions import equally_spaced_deg
 from trueturn.procedure.engine import BalanceEngine
 from trueturn.procedure.guide import HandsOn, HandsOnPhase, Mode
@@ -359,3 +360,12 @@ def test_more_parts_than_the_legend_holds_are_listed_in_full_below() -> None:
     legend = "\n".join(line.plain for line in picture_lines(pic))
     assert "1 add 1.00 g" in legend and "+2 more: see below" in legend
     assert len(lit(picture_lines(pic), PART_STYLE["add"])) == 4  # all four lit on the circle
+
+
+def test_an_imperial_machine_sees_ounces_and_inches_on_the_picture() -> None:
+    pic = PlanePicture("rim", 30.0, "front", "cw", equally_spaced_deg(4),
+                       (PartMark(90.0, "add", 28.349523125, 2),))
+    legend = "\n".join(line.plain for line in picture_lines(pic, IMPERIAL))
+    # 1 in = 25.4 mm and 1 oz = 28.349523125 g exactly (NIST SP 811, Appendix B)
+    assert f"r {30.0 / 25.4:.3f} in" in legend and "2 add 1.000 oz" in legend
+    assert " mm" not in legend and " g" not in legend

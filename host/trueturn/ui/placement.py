@@ -28,8 +28,9 @@ from textual.reactive import reactive
 from textual.widget import Widget
 
 from trueturn.angles import Face, Rotation, screen_xy
-from trueturn.jobs.profiles import MachineProfile, MassUnit, format_mass
+from trueturn.jobs.profiles import MachineProfile
 from trueturn.model import Plane
+from trueturn.model.units import METRIC, UnitChoice, length_text, mass_text
 from trueturn.positions import degrees_text, number_of
 from trueturn.procedure.guide import MassChange
 from trueturn.ui.widgets import BrailleCanvas
@@ -179,28 +180,29 @@ def fits_legend(pictures: Sequence[PlanePicture]) -> bool:
     return all(len(p.parts) <= PART_ROWS for p in pictures)
 
 
-def _part_line(part: PartMark, mass_unit: MassUnit) -> Text:
+def _part_line(part: PartMark, units: UnitChoice) -> Text:
     line = Text()
     line.append(part.tag, PART_STYLE[part.action])
-    line.append(f" {PART_WORDS[part.action]} {format_mass(part.mass_g, mass_unit)}")
+    line.append(f" {PART_WORDS[part.action]} {mass_text(part.mass_g, units.mass)}")
     if part.number is None:  # any angle: the angle is the place
         at = degrees_text(part.angle_deg)
         line.append(f" at {at}" if line.cell_len + 4 + len(at) <= LEGEND_COLS else f" {at}")
     return line
 
 
-def _legend(pic: PlanePicture, mass_unit: MassUnit) -> list[Text]:
+def _legend(pic: PlanePicture, units: UnitChoice) -> list[Text]:
     """The lines beside the circle: the plane, the face and rotation, the parts, the key
     to the rings."""
     lines = [Text(pic.plane, "bold"),
              Text(f"from the {pic.face} {ARROW[pic.rotation]} {pic.rotation}"),
-             Text(f"{MARK} = 0\u00b0 mark, r {pic.radius_mm:g} mm", "grey70")]
+             Text(f"{MARK} 0\u00b0 mark, r {length_text(pic.radius_mm, units.length)}",
+                  "grey70")]
     parts = list(pic.parts)
     if len(parts) > PART_ROWS:
-        shown = [_part_line(p, mass_unit) for p in parts[:PART_ROWS - 1]]
+        shown = [_part_line(p, units) for p in parts[:PART_ROWS - 1]]
         shown.append(Text(f"+{len(parts) - PART_ROWS + 1} more: see below", "grey70"))
     else:
-        shown = [_part_line(p, mass_unit) for p in parts] or [
+        shown = [_part_line(p, units) for p in parts] or [
             Text("nothing to place here", "grey70")]
     lines += shown + [Text("")] * (PART_ROWS - len(shown))
     lines.append(Text(HINT, "grey70"))
@@ -209,9 +211,9 @@ def _legend(pic: PlanePicture, mass_unit: MassUnit) -> list[Text]:
     return lines
 
 
-def picture_lines(pic: PlanePicture, mass_unit: MassUnit = "g") -> list[Text]:
+def picture_lines(pic: PlanePicture, units: UnitChoice = METRIC) -> list[Text]:
     """One plane's block: ``PICTURE_ROWS`` lines of ``BLOCK_COLS`` cells."""
-    circle, legend = _circle(pic), _legend(pic, mass_unit)
+    circle, legend = _circle(pic), _legend(pic, units)
     out = []
     for row in range(PICTURE_ROWS):
         line = circle[row].copy()
@@ -224,9 +226,9 @@ def picture_lines(pic: PlanePicture, mass_unit: MassUnit = "g") -> list[Text]:
     return out
 
 
-def pictures_text(pictures: Sequence[PlanePicture], mass_unit: MassUnit = "g") -> Text:
+def pictures_text(pictures: Sequence[PlanePicture], units: UnitChoice = METRIC) -> Text:
     """The pictures side by side (``PICTURE_ROWS`` lines)."""
-    blocks = [picture_lines(p, mass_unit) for p in pictures]
+    blocks = [picture_lines(p, units) for p in pictures]
     out = Text()
     for row in range(PICTURE_ROWS if blocks else 0):
         for k, block in enumerate(blocks):
@@ -244,16 +246,16 @@ class PlacementView(Widget):
     DEFAULT_CSS = f"PlacementView {{ height: {PICTURE_ROWS}; padding: 0 1; display: none; }}"
 
     pictures: reactive[tuple[PlanePicture, ...]] = reactive(())
-    mass_unit: reactive[MassUnit] = reactive("g")
+    units: reactive[UnitChoice] = reactive(METRIC)
 
-    def show(self, pictures: tuple[PlanePicture, ...], mass_unit: MassUnit) -> None:
+    def show(self, pictures: tuple[PlanePicture, ...], units: UnitChoice) -> None:
         """Draw ``pictures`` (none: the view is hidden)."""
         self.pictures = pictures
-        self.mass_unit = mass_unit
+        self.units = units
         self.display = bool(pictures)
 
     def render(self) -> Text:
-        return pictures_text(self.pictures, self.mass_unit)
+        return pictures_text(self.pictures, self.units)
 
 
 # ---- the printable ring for each plane, and how to mark the rotor ---------------------------

@@ -643,7 +643,7 @@ class GuideView(Vertical):
         self.query_one("#placement", PlacementView).show(
             pictures_for(hands_on.changes, proc.planes_used, ctx.profile.rotation)
             if isinstance(hands_on, HandsOn) and proc is not None else (),
-            ctx.profile.units.mass)
+            ctx.profile.units.choice())
         msg = self.query_one("#guide-msg", MessageLine)
         msg.alarm = bool(ctx.alarm)
         msg.text = ctx.alarm or ctx.message

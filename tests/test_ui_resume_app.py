@@ -43,16 +43,27 @@ from trueturn.ui.launch import resume_profile
 from trueturn.ui.steps import StepPanel
 
 
-def assert_fits(app: TrueturnApp, whole: bool = False) -> None:
+def laid_out(app: TrueturnApp) -> bool:
+    """The guide's panel shown is as tall as its text (a form: always)."""
+    panels = [p for p in app.screen.query(StepPanel) if p.shown]
+    if not panels:
+        return True
+    room = panels[0].content_size
+    return panels[0].get_content_height(room, app.size, room.width) <= room.height
+
+
+async def assert_fits(app: TrueturnApp, pilot: Pilot, whole: bool = False) -> None:
     """The screen fits 80x24: a form's fields all lie on the screen; the guide's step is
-    either within its window or scrolls to its last line, nothing cut off (the placement
-    pictures above it take their rows, tests/test_ui_placement.py); ``whole``: the step
-    fits its window without scrolling."""
+    laid out whole (nothing of its text hidden - waited for, as layout follows the text by
+    a refresh) and either within its window or it scrolls to its last line, nothing cut
+    off (the placement pictures above it take their rows, tests/test_ui_placement.py);
+    ``whole``: the step fits its window without scrolling."""
     assert app.size == SIZE
     fields = list(app.screen.query(Input))
     if fields:
         assert all(f.region.bottom <= SIZE[1] - 1 for f in fields)  # above the footer
         return
+    await wait_for(pilot, lambda: laid_out(app), 10)
     panels = app.screen.query_one("#step-panels")
     (panel,) = [p for p in app.screen.query(StepPanel) if p.shown]
     window = panels.scrollable_content_region.height
@@ -74,14 +85,14 @@ async def as_found_then_trial_step(app: TrueturnApp, pilot: Pilot) -> None:
     await press(app, pilot, "x")
     await wait_for(pilot, lambda: isinstance(proc.step, HandsOn) and proc.fittable(), 10)
     await wait_for(pilot, lambda: "f: what you fitted" in screen_text(app), 10)
-    assert_fits(app)  # the rotor still turning: the longest hands-on screen
+    await assert_fits(app, pilot)  # the rotor still turning: the longest hands-on screen
 
 
 async def enter_fitted_mass(app: TrueturnApp, pilot: Pilot, mass: str) -> None:
     await press(app, pilot, "f")
     await wait_for(pilot, lambda: isinstance(app.screen, FittedForm)
                    and isinstance(app.focused, Input), 10)
-    assert_fits(app)
+    await assert_fits(app, pilot)
     await type_text(app, pilot, mass)
     await press(app, pilot, "enter")
     await shows(app, pilot, "Fitted: trial")
@@ -100,7 +111,7 @@ def test_quit_with_a_trial_on_and_continue_the_job(tmp_path: Path) -> None:
             await enter_fitted_mass(app, pilot, "0.55")  # the washer on the bench
             panel = str(app.screen.query_one("#hands-on-panel", StepPanel).render())
             assert "Fitted: trial 0.55 g on left-wheel at 0° (suggested 0.60 g at 0°)" in panel
-            assert_fits(app)
+            await assert_fits(app, pilot)
             await through_hands_on_gates(app, pilot)
             assert [m.mass_g for m in proc.on_rotor] == [0.55]
             await press(app, pilot, "q")  # quit with the trial on, before its run
@@ -114,7 +125,7 @@ def test_quit_with_a_trial_on_and_continue_the_job(tmp_path: Path) -> None:
             text = screen_text(app)
             assert "on the rotor: left-wheel: trial 0.55 g at 0°" in text
             assert "on the rotor: right-wheel: nothing added" in text
-            assert_fits(app, whole=True)
+            await assert_fits(app, pilot, whole=True)
             await press(app, pilot, "enter")
             await wait_for(pilot, lambda: app.procedure is not None, 10)
             proc = app.procedure
@@ -123,7 +134,7 @@ def test_quit_with_a_trial_on_and_continue_the_job(tmp_path: Path) -> None:
             # the demo rotor carries the job's trial again, as the real one would
             assert Mass("left-wheel", 0.55, 0.0) in app.rig.masses()  # type: ignore[union-attr]
             await shows(app, pilot, "Check: the trial mass 0.55 g on left-wheel")
-            assert_fits(app)
+            await assert_fits(app, pilot)
             # nothing carried across the restart: Enter waits for the gate's own evidence
             await through_hands_on_gates(app, pilot)
             assert isinstance(proc.step, Measure) and proc.step.run_label == "trial left-wheel"
@@ -182,7 +193,7 @@ def test_ui_job_file_continues_that_job(tmp_path: Path) -> None:
             step = proc.step
             assert isinstance(step, HandsOn) and "trial" in step.title
             await shows(app, pilot, "Resumed job")
-            assert_fits(app)
+            await assert_fits(app, pilot)
             await follow_the_screens(app, pilot, "1")
             assert proc.verdict is not None
             await press(app, pilot, "q")

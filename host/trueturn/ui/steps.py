@@ -597,6 +597,8 @@ class GuideView(Vertical):
     #: the run's progress 0..1 while measuring (None: no bar)
     progress: reactive[float | None] = reactive(None, init=False)
 
+    _drawn: tuple[str, tuple[int, ...]] = ("", ())  # the shown panel's lines, by length
+
     def compose(self) -> ComposeResult:
         yield PlacementView(id="placement")
         with ContentSwitcher(initial="setup-panel", id="step-panels"):
@@ -638,7 +640,15 @@ class GuideView(Vertical):
             self.panel = "setup-panel"
         else:
             self.panel = panel_for(proc.step)
-        self.query_one(f"#{self.panel}", StepPanel).show(proc, snap, ctx)
+        panel = self.query_one(f"#{self.panel}", StepPanel)
+        panel.show(proc, snap, ctx)
+        # A panel is as tall as its text (height auto): one whose lines changed in number
+        # or length is laid out again, or it keeps the height of its first, empty, drawing
+        # (the set-up showed one line of its list). Digits that change in place do not.
+        drawn = (self.panel, tuple(len(line) for line in panel.lines()) if panel.shown else ())
+        if drawn != self._drawn:
+            self._drawn = drawn
+            panel.refresh(layout=True)
         hands_on = proc.step if proc is not None and not ctx.link_error else None
         self.query_one("#placement", PlacementView).show(
             pictures_for(hands_on.changes, proc.planes_used, ctx.profile.rotation)

@@ -279,3 +279,58 @@ def test_a_fitted_correction_part_is_kept_through_a_restart(tmp_path: Path) -> N
     assert rig.proc.checking_resumed_rotor
     rig.hands_on()
     assert isinstance(rig.proc.step, Measure) and rig.proc.step.run_label == "check"
+
+
+def test_an_amplitude_only_job_resumes_with_its_own_method(tmp_path: Path) -> None:
+    """Four-run method: quit with the second trial position on; the rebuilt procedure
+    keeps the method (the job says four-run) and gives the uninterrupted answer."""
+    straight = Rig("shop-fan", Mode.AMPLITUDE_ONLY)
+    rig = Rig("shop-fan", Mode.AMPLITUDE_ONLY)
+    keeper = keep_job(rig, tmp_path)
+    for r in (straight, rig):
+        r.hands_on()
+        r.run()  # as found
+        r.hands_on()
+        r.run()  # trial at 0 deg
+        r.hands_on()  # the trial moved to 120 deg
+    assert read_document(keeper.path, "job").method == "four-run"  # type: ignore[arg-type]
+    restart(rig, keeper)
+    assert rig.proc.setup.mode is Mode.AMPLITUDE_ONLY and rig.proc.checking_resumed_rotor
+    rig.hands_on()
+    assert rig.proc.run_label == straight.proc.run_label == "trial blades at 120 deg"
+    for r in (straight, rig):
+        r.complete()
+    assert [r.label for r in rig.proc.runs] == [r.label for r in straight.proc.runs]
+    assert rig.proc.solution is not None and straight.proc.solution is not None
+    assert rig.proc.on_rotor == straight.proc.on_rotor  # the same parts were placed
+
+
+def test_a_trim_job_resumes_with_the_coefficients_it_started_with(tmp_path: Path) -> None:
+    from trueturn.jobs.records import CoefficientSet, InfluenceEntry
+    from trueturn.procedure.guide import Procedure
+    from trueturn.ui.machine import setup_from_profile
+
+    first = Rig("bench-grinder", Mode.TWO_PLANE)
+    first.complete()
+    model = first.proc.solution.coefficients  # type: ignore[union-attr]
+    saved = CoefficientSet(first.setup.speed_rpm, "m/s2", [
+        InfluenceEntry(c.sensor, c.plane, c.amp_per_g, c.phase_deg % 360.0)
+        for c in model.as_saved()])  # type: ignore[attr-defined]
+    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+    rig.setup = setup_from_profile(rig.profile, Mode.SAVED_TRIM, saved=saved)
+    rig.proc = Procedure(rig.setup, BalanceEngine())
+    keeper = JobKeeper(rig.profile, workspace=tmp_path / "ws")
+    keeper.start(rig.proc, saved)
+    follow(rig, [keeper])
+    before = rig.response()
+    rig.hands_on()
+    rig.run()  # as found: the trim is shown
+    assert isinstance(rig.proc.step, ShowCorrection)
+    shown = rig.proc.solution
+    restart(rig, keeper)
+    assert rig.proc.setup.mode is Mode.SAVED_TRIM
+    assert rig.proc.solution is not None and shown is not None
+    assert rig.proc.solution.parts == shown.parts
+    rig.complete()
+    assert rig.proc.verdict is not None and rig.proc.verdict.passed
+    rig.assert_cut(before)

@@ -166,14 +166,23 @@ async def connect(app: TrueturnApp, pilot: Pilot) -> None:
     await wait_for(pilot, lambda: "Choose the procedure" in screen_text(app), 10)
 
 
-async def follow_the_screens(app: TrueturnApp, pilot: Pilot, mode_key: str) -> int:
-    """Do what the guide says, as a person would; return the keys pressed."""
+async def follow_the_screens(app: TrueturnApp, pilot: Pilot, mode_key: str,
+                             seen: list[str] | None = None) -> int:
+    """Do what the guide says, as a person would; return the keys pressed.
+
+    ``seen`` (when given) collects the screen as it stood at every step and after every key,
+    so a test can look at each screen the person met without sampling on a timer."""
     keys = 0
+
+    def look() -> None:
+        if seen is not None:
+            seen.append(screen_text(app))
 
     async def key(*k: str) -> None:
         nonlocal keys
         keys += len(k)
         await press(app, pilot, *k)
+        look()
 
     await key(mode_key)
     proc = app.procedure
@@ -181,6 +190,8 @@ async def follow_the_screens(app: TrueturnApp, pilot: Pilot, mode_key: str) -> i
     for _ in range(40):
         step = proc.step
         text = screen_text(app)
+        if seen is not None:
+            seen.append(text)
         # one panel per step kind, chosen by the step's type; the others draw nothing
         assert app.screen.query_one("#step-panels", ContentSwitcher).current == \
             panel_for(step)
@@ -211,6 +222,7 @@ async def follow_the_screens(app: TrueturnApp, pilot: Pilot, mode_key: str) -> i
         elif step.kind == "verdict":
             await key("enter")
             await wait_for(pilot, lambda: "Report:" in screen_text(app), 10)
+            look()
             return keys
         # the keys were handled: the step moved on, or a gate refused and said why
         await wait_for(pilot, lambda s=step: proc.step is not s or

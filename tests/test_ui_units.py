@@ -66,16 +66,8 @@ def test_an_imperial_machine_is_shown_in_oz_in_and_in_s_on_every_screen(tmp_path
         async with app.run_test(size=SIZE) as pilot:
             await connect(app, pilot)
             assert "lb" in screen_text(app) and " in)" in screen_text(app)  # set-up
-
-            async def sample() -> None:
-                while True:
-                    seen.append(screen_text(app))
-                    await asyncio.sleep(0.05)
-
-            sampler = asyncio.create_task(sample())
-            await follow_the_screens(app, pilot, "1")
-            sampler.cancel()
-            seen.append(screen_text(app))
+            # every screen met at every step and after every key (no timer sampling)
+            await follow_the_screens(app, pilot, "1", seen)
             text = "\n".join(seen)
             # every kind of step drew its numbers in the profile's units
             # guide: the hands-on step (its pictures' legend names the mass)

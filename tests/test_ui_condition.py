@@ -77,7 +77,7 @@ def test_belt_drive_is_asked_first_and_stopping_keeps_why(tmp_path: Path) -> Non
             await wait_for(pilot, lambda: isinstance(proc.step, Stopped)
                            and "Report:" in screen_text(app), 10)
             text = screen_text(app)
-            assert "Stopped after 1 run(s) by your choice" in text and "strong 2x" in text
+            assert "Stopped after the as-found run by your choice" in text and "strong 2x" in text
             panel_fits(app)
             job = read_document(app.keeper.path, "job")
             assert job.status == "closed" and job.verdict is None
@@ -126,8 +126,8 @@ def test_a_second_start_of_the_loose_flange_shows_the_1x_moved(tmp_path: Path) -
             assert "balancing should help" in screen_text(app)
             panel_fits(app, "Attach the trial mass")
             await wait_for(pilot, lambda: "Standstill proven" in screen_text(app), 60)
-            await wait_for(pilot, lambda: "n: first start it once more" in screen_text(app), 10)
-            panel_fits(app, "n: first start")
+            await wait_for(pilot, lambda: "n: optional: start it again" in screen_text(app), 10)
+            panel_fits(app, "n: optional: start")
             await press(app, pilot, "n")
             await wait_for(pilot, lambda: isinstance(proc.step, Measure), 10)
             await press(app, pilot, "enter")  # the forces: start the second run
@@ -161,8 +161,8 @@ def test_a_second_start_of_the_grinder_repeats_and_the_trial_follows(tmp_path: P
             assert proc is not None
             await wait_for(pilot, lambda: len(proc.runs) == 1, 90)
             await press(app, pilot, "x")
-            await wait_for(pilot, lambda: "n: first start it once more" in screen_text(app), 60)
-            panel_fits(app, "n: first start")
+            await wait_for(pilot, lambda: "n: optional: start it again" in screen_text(app), 60)
+            panel_fits(app, "n: optional: start")
             trial_step = proc.step
             await press(app, pilot, "n")
             await wait_for(pilot, lambda: isinstance(proc.step, Measure), 10)
@@ -172,7 +172,7 @@ def test_a_second_start_of_the_grinder_repeats_and_the_trial_follows(tmp_path: P
             await press(app, pilot, "x")
             await wait_for(pilot, lambda: "1x repeats after a restart" in screen_text(app), 10)
             assert proc.step == trial_step and "balancing should help" in screen_text(app)
-            assert "n: first start" not in screen_text(app)  # once
+            assert "n: optional: start" not in screen_text(app)  # once
             panel_fits(app, "Attach the trial mass")
             await wait_for(pilot, lambda: "Standstill proven" in screen_text(app), 60)
             panel_fits(app, "Attach the trial mass")

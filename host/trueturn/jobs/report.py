@@ -565,9 +565,6 @@ def condition_notes(job: JobRecord) -> list[str]:
                     if e.ok and e.code == "phase_repeatable"]
         if repeated:
             notes.append(f"Run {first.index}, started twice: " + "; ".join(repeated) + ".")
-    stopped = stopped_line(job)
-    if stopped is not None:
-        notes.append(stopped)
     last = job.runs[-1] if job.runs else None
     bad = [e for e in last.severity if e.zone in ("C", "D")] if last else []
     if last is not None and bad and job.verdict is not None and job.verdict.passed:

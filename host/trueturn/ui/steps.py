@@ -519,7 +519,9 @@ class DoubtPanel(ProcedurePanel):
     def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
         super().show(proc, snap, ctx)
         assert proc is not None and isinstance(proc.step, ShowDoubt)
-        self.offer_second_start = proc.offers_second_start
+        # offered once the rotor is at proven standstill (a second start needs a stop)
+        self.offer_second_start = (proc.offers_second_start and snap.evidence is not None
+                                   and snap.evidence.proven)
 
     def body(self) -> list[str]:
         lines = list(texts.DOUBT_BODY)
@@ -548,7 +550,8 @@ class StoppedPanel(ProcedurePanel):
         self.report_path = ctx.report_path
 
     def body(self) -> list[str]:
-        lines = [f"Stopped after {self.runs} run(s) by your choice: {self.because}."]
+        runs = "the as-found run" if self.runs == 1 else f"{self.runs} runs"
+        lines = [f"Stopped after {runs} by your choice: {self.because}."]
         if self.turning:
             lines.append(texts.SWITCH_OFF_VERDICT +
                          (" (x for the demo motor)." if self.demo else "."))

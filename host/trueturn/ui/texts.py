@@ -247,11 +247,10 @@ ENTER_PLACE = "   [b]Enter[/b]: go and place the parts"
 ENTER_PLACE_NO_REMOVAL = ("[b]Enter[/b]: go and place the parts (removing material is not "
                           "allowed on this rotor)")
 
-N_SECOND_START = ("[b]n[/b]: first start it once more as found, after a stop: does the 1x "
-                  "repeat? (optional)")
+N_SECOND_START = "[b]n[/b]: optional: start it again as found after a stop: does the 1x repeat?"
 DOUBT_BODY = (
-    "Weights cure unbalance only. Find and fix the cause below first (mounting bolts,",
-    "alignment, belts, bearings, a loose part); then balance in a new job.",
+    "Weights cure unbalance only. Find and fix the cause below first (mounting",
+    "bolts, alignment, belts, bearings, a loose part); then balance in a new job.",
     "[b]k[/b]: stop the job here (the reason is kept in the job and its report)",
     "[b]Enter[/b]: go on with the balancing anyway",
 )

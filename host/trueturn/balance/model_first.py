@@ -1,0 +1,687 @@
+"""Influence coefficients predicted from the machine profile, refined by every run.
+
+Two questions are answered here, both pure math:
+
+1. **What will a gram in a plane do?** (:func:`predict_influence`) The rotor is taken as
+   rigid on two flexible supports and replaced by two masses at the bearings that keep its
+   mass and centre of mass (the dynamically equivalent two-mass rotor, exact when the
+   transverse inertia is ``M d_A d_B``). Each bearing is then a single-degree-of-freedom
+   system forced by its lever-rule share of the rotating unbalance force
+   ``m r omega^2``; its acceleration per newton is
+   ``(1/m_b) r^2 / (r^2 - 1 - 2 i zeta r)``, ``r = omega / omega_n`` (rotating-unbalance
+   forced response; from memory: Den Hartog, *Mechanical Vibrations*, 4th ed., 1956,
+   §3.3; the rigid rotor on flexible supports as in Vance, *Rotordynamics of
+   Turbomachinery*, 1988, ch. 2). The response lags the force by the support's lag
+   (about 180 deg for acceleration well below the resonance, about 0 well above) and the
+   force passes the pickup ``beta`` degrees after the mark passes the tach.
+
+   What can honestly be predicted: the **magnitude** from the rotor's mass alone (above the
+   resonance the supports stop mattering: ``a = F / m_b``); the **phase** only when the
+   support's resonance and damping are known from a coast-down or run-up sweep *and* the
+   pickup's angle from the tach was measured. Without both, or close to a resonance (where
+   the phase turns fastest), the prediction is flagged with the reasons it cannot be
+   trusted and the procedure falls back to trial runs. The uncertainty is a Monte Carlo
+   over the inputs' own uncertainties plus a model error for the two-mass simplification.
+
+2. **What do the runs say?** (:class:`CoefficientEstimate`) Recursive least squares over
+   every run, each reading weighted by its own 95 % circle, starting from the prediction as
+   the prior (or from nothing, when the prediction is not trusted): the correction run
+   itself refines the coefficients, so it also serves as the trial (Ljung, *System
+   Identification: Theory for the User*, 2nd ed., 1999, §11.2, RLS as the Kalman filter of
+   a constant parameter vector; from memory). The influence-coefficient model itself:
+   Thearle, "Dynamic balancing of rotating machinery in the field", Trans. ASME 56 (1934);
+   Goodman, "A least-squares method for computing balance corrections", J. Eng. Ind. 86
+   (1964).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass, field
+from enum import Enum
+
+import numpy as np
+
+from trueturn.balance.iso21940 import angular_speed_rad_s
+
+#: 95 % circle of a circular complex Gaussian: radius = sqrt(-2 ln 0.05) sigma (2.448 sigma)
+CIRCLE95 = math.sqrt(-2.0 * math.log(0.05))
+#: relative model error of the two-mass simplification, 1 sigma, per coefficient: the
+#: real transverse inertia differs from ``M d_A d_B``, supports are not isotropic, the
+#: lever shares couple the bearings. Our choice, calibrated on random rigid rotors
+#: (tests/test_balance_model_first.py checks the coverage against the full 4-DOF model).
+MODEL_REL_SIGMA = 0.12
+#: 1 sigma of a pickup angle measured by eye with a protractor, degrees (our choice)
+PICKUP_ANGLE_SIGMA_DEG = 4.0
+#: 1 sigma of the damping ratio a sweep gives, as a log factor (about x/÷ 1.6 at 95 %)
+DAMPING_LOG_SIGMA = 0.25
+#: running within this fraction of a resonance speed is "near" (a separation margin of
+#: about 15 %: common practice for critical speeds, from memory; no single source)
+NEAR_RESONANCE_FRACTION = 0.15
+#: the model's first correction is offered only when, in 95 % of its draws, it leaves at
+#: most this share of the as-found 1x (our choice: a correction that surely halves the 1x
+#: saves a run; one that may not is no better than a trial)
+MAX_RESIDUAL_FRACTION_95 = 0.5
+#: readings taken runs apart differ by more than their scatter (speed wander of +/-0.5 %
+#: moves the 1x by ~1-2 %, mounts are mildly nonlinear): a floor on each reading's
+#: relative 1 sigma (our choice)
+READING_REL_FLOOR = 0.02
+
+
+class Distrust(str, Enum):
+    """Why a predicted coefficient set cannot carry a first correction (then: trials)."""
+
+    NO_SWEEP = "no-sweep"                # the support's resonance/damping is not known
+    STIFFNESS_UNKNOWN = "stiffness-unknown"  # the sweep found no resonance below the speed
+    NO_PICKUP_ANGLE = "no-pickup-angle"  # the pickup's angle from the tach is not known
+    NO_BEARINGS = "no-bearings"          # bearing and plane positions are not all known
+    NEAR_RESONANCE = "near-resonance"    # the speed is close to a support resonance
+    SWEEP_MISFIT = "sweep-misfit"        # the sweep's resonance fit does not fit its data
+    TOO_UNCERTAIN = "too-uncertain"      # the correction might not even halve the 1x
+
+
+@dataclass(frozen=True)
+class SupportResonance:
+    """A support resonance seen by one pickup, from a coast-down or run-up sweep.
+
+    ``speed_rpm`` the resonance, ``damping_ratio`` its damping (half-power or circle fit),
+    ``speed_rel_95`` the 95 % relative uncertainty of the resonance speed, ``fits`` False
+    when the sweep's fit did not match its own data."""
+
+    speed_rpm: float
+    damping_ratio: float
+    speed_rel_95: float = 0.05
+    fits: bool = True
+
+
+@dataclass(frozen=True)
+class PickupPlacement:
+    """Where a pickup sits: on bearing ``bearing`` (0 or 1), sensing along a direction
+    ``angle_from_tach_deg`` degrees *with* rotation from the tach's direction (None: not
+    measured, so no phase can be predicted)."""
+
+    name: str
+    bearing: int
+    angle_from_tach_deg: float | None = None
+
+
+@dataclass(frozen=True)
+class RotorLayout:
+    """What the machine profile says about the rotor: mass, the two bearings' and each
+    plane's axial positions (one origin, mm), plane radii, centre of mass (None: midway)."""
+
+    rotor_mass_kg: float
+    bearings_axial_mm: tuple[float, float]
+    planes_axial_mm: tuple[float, ...]
+    planes_radius_mm: tuple[float, ...]
+    cg_axial_mm: float | None = None
+    transverse_inertia_kg_m2: float | None = None
+
+
+@dataclass(frozen=True)
+class PredictedInfluence:
+    """Predicted influence coefficients (pickups x planes, reading units per gram at the
+    plane's radius, angle 0) with their uncertainty.
+
+    ``magnitude_only`` True: only ``magnitude`` means anything (no phase could be
+    predicted). ``covariance[i]`` is the complex covariance (planes x planes) of pickup
+    i's row; ``phase_95_deg`` and ``magnitude_rel_95`` are per-entry 95 % spreads;
+    ``residual_fraction_95`` the share of the as-found 1x the model's own correction
+    would leave in 95 % of the draws (None without an as-found reading or a phase);
+    ``distrust`` the reasons the prediction must not carry a correction (empty: trusted).
+    """
+
+    sensors: tuple[str, ...]
+    matrix: np.ndarray
+    magnitude: np.ndarray
+    covariance: tuple[np.ndarray, ...]
+    phase_95_deg: np.ndarray
+    magnitude_rel_95: np.ndarray
+    magnitude_only: bool
+    residual_fraction_95: float | None
+    distrust: tuple[Distrust, ...] = ()
+
+    @property
+    def trusted(self) -> bool:
+        """True when a first correction may be computed from this prediction alone."""
+        return not self.distrust
+
+
+def free_rotor_prediction(sensors: Sequence[str], rotor_mass_kg: float,
+                          planes_radius_mm: Sequence[float], speed_rpm: float
+                          ) -> PredictedInfluence:
+    """Magnitude only, when bearing and plane positions are not known.
+
+    A free rigid rotor pushed through its centre of mass: ``a = m r omega^2 / M`` per
+    pickup (the mass-controlled limit; tilting is left out).
+
+    Parameters
+    ----------
+    sensors : sequence of str
+        Pickup names.
+    rotor_mass_kg : float
+        Rotor mass, kg (> 0).
+    planes_radius_mm : sequence of float
+        Each plane's radius, mm.
+    speed_rpm : float
+        Speed, rpm (> 0).
+
+    Returns
+    -------
+    PredictedInfluence
+        ``magnitude_only`` True, distrusted for ``no-bearings`` and ``no-sweep``.
+
+    Raises
+    ------
+    ValueError
+        When the mass or the speed is not a finite number above 0.
+
+    References
+    ----------
+    .. [1] Newton's second law for a rigid body, ``F = M a`` (any mechanics text).
+    """
+    if not 0 < rotor_mass_kg < math.inf or not 0 < speed_rpm < math.inf:
+        raise ValueError("rotor_mass_kg and speed_rpm must be > 0")
+    omega = angular_speed_rad_s(speed_rpm)
+    row = np.array([1e-6 * r * omega**2 / rotor_mass_kg for r in planes_radius_mm])
+    n_s, n_p = len(sensors), len(row)
+    return PredictedInfluence(tuple(sensors), np.full((n_s, n_p), np.nan + 0j),
+                              np.tile(row, (n_s, 1)),
+                              tuple(np.diag(np.full(n_p, np.inf + 0j)) for _ in sensors),
+                              np.full((n_s, n_p), 180.0), np.full((n_s, n_p), np.inf), True,
+                              None, (Distrust.NO_BEARINGS, Distrust.NO_SWEEP))
+
+
+def _lever_masses(layout: RotorLayout) -> np.ndarray:
+    """The rotor's mass shared between the two bearings by rigid-rotor statics (kg)."""
+    z_a, z_b = layout.bearings_axial_mm
+    span = z_b - z_a
+    z_cg = _cg(layout)
+    return layout.rotor_mass_kg * np.array([(z_b - z_cg) / span, (z_cg - z_a) / span])
+
+
+def _cg(layout: RotorLayout) -> float:
+    z_a, z_b = layout.bearings_axial_mm
+    return layout.cg_axial_mm if layout.cg_axial_mm is not None else 0.5 * (z_a + z_b)
+
+
+def estimated_transverse_inertia_kg_m2(layout: RotorLayout) -> float:
+    """The rotor's transverse moment of inertia about its centre of mass, guessed.
+
+    Used when the profile does not give it: a uniform slender rod as long as the bearings
+    and planes reach, ``M L^2 / 12`` (with a wide uncertainty band).
+
+    Parameters
+    ----------
+    layout : RotorLayout
+        Mass, bearing and plane positions.
+
+    Returns
+    -------
+    float
+        kg m^2.
+
+    References
+    ----------
+    .. [1] Moment of inertia of a slender rod about its centre, ``m L^2 / 12`` (from
+       memory: any statics text).
+    """
+    reach = [*layout.bearings_axial_mm, *layout.planes_axial_mm]
+    length_m = (max(reach) - min(reach)) * 1e-3
+    return layout.rotor_mass_kg * length_m**2 / 12.0
+
+
+def stiffness_from_resonances(mass_kg: float, inertia_kg_m2: float, d_a_m: float, d_b_m: float,
+                              resonances_rad_s: Sequence[float],
+                              mass_ratio: float) -> tuple[float, float]:
+    """Bearing stiffnesses of a rigid rotor whose rigid-body modes sit at the resonances.
+
+    The undamped modes of ``diag(M, I) q'' + K q = 0`` (translation and tilt, one
+    direction) with ``K = sum_b k_b [[1, d_b], [d_b, d_b^2]]`` satisfy
+    ``det(M^-1 K) = l1 l2`` and ``tr(M^-1 K) = l1 + l2`` (``l = omega_n^2``):
+    ``k_A k_B = l1 l2 M I / L^2`` and ``alpha_A k_A + alpha_B k_B = l1 + l2`` with
+    ``alpha_b = 1/M + d_b^2/I``, a quadratic in ``k_A``; of its two roots the one closer
+    to ``k_A/k_B = mass_ratio`` is kept. With one resonance the ratio is taken as
+    ``mass_ratio`` and the measured one is the lower mode (a coast-down from the running
+    speed sees only the modes below it).
+
+    Parameters
+    ----------
+    mass_kg : float
+        Rotor mass, kg.
+    inertia_kg_m2 : float
+        Transverse moment of inertia about the centre of mass, kg m^2.
+    d_a_m, d_b_m : float
+        Bearing positions from the centre of mass, m (``d_a_m < d_b_m``).
+    resonances_rad_s : sequence of float
+        Measured resonances, rad/s (one or two are used: the lowest).
+    mass_ratio : float
+        ``k_A / k_B`` to prefer (the lever-rule mass shares' ratio).
+
+    Returns
+    -------
+    (float, float)
+        ``k_A, k_B`` in N/m.
+
+    References
+    ----------
+    .. [1] Vance, *Rotordynamics of Turbomachinery*, 1988, ch. 2 (rigid rotor on flexible
+       supports, its two rigid-body modes; from memory).
+    """
+    span = d_b_m - d_a_m
+    alpha_a = 1.0 / mass_kg + d_a_m**2 / inertia_kg_m2
+    alpha_b = 1.0 / mass_kg + d_b_m**2 / inertia_kg_m2
+    lam = sorted(w**2 for w in resonances_rad_s)
+    if len(lam) >= 2:
+        total, product = lam[0] + lam[1], lam[0] * lam[1] * mass_kg * inertia_kg_m2 / span**2
+        disc = max(total**2 - 4.0 * alpha_a * alpha_b * product, 0.0)
+        roots = [(total + s * math.sqrt(disc)) / (2.0 * alpha_a) for s in (1.0, -1.0)]
+        pairs = [(k_a, product / k_a) for k_a in roots if k_a > 0]
+        if pairs:
+            return min(pairs, key=lambda kk: abs(math.log(kk[0] / kk[1] / mass_ratio)))
+    # one resonance: k_A = mass_ratio k_B, scaled so that the lower mode is the measured one
+    k_a, k_b = mass_ratio, 1.0
+    stiff = np.array([[k_a + k_b, k_a * d_a_m + k_b * d_b_m],
+                      [k_a * d_a_m + k_b * d_b_m, k_a * d_a_m**2 + k_b * d_b_m**2]])
+    low = float(min(np.linalg.eigvals(np.linalg.solve(np.diag([mass_kg, inertia_kg_m2]),
+                                                      stiff)).real))
+    scale = lam[0] / low
+    return k_a * scale, k_b * scale
+
+
+def rigid_rotor_coefficients(mass_kg: float, inertia_kg_m2: float, d_bearings_m: np.ndarray,
+                             k_n_per_m: np.ndarray, c_ns_per_m: np.ndarray, d_planes_m: np.ndarray,
+                             radius_mm: np.ndarray, d_pickup_m: float, omega_rad_s: float
+                             ) -> np.ndarray:
+    """1x acceleration per gram of a rigid rotor on two spring-damper supports.
+
+    One direction: translation and tilt about the centre of mass,
+    ``(K + i omega C - omega^2 diag(M, I)) q = F``, output ``[1, d] q``, acceleration
+    ``-omega^2`` times it, conjugated into the lag convention (before the pickup's angle
+    from the tach). Gyroscopic coupling is left out (it is part of the model error).
+
+    Parameters
+    ----------
+    mass_kg, inertia_kg_m2 : float
+        Rotor mass (kg) and transverse inertia about the centre of mass (kg m^2).
+    d_bearings_m : ndarray
+        The two bearings' positions from the centre of mass, m.
+    k_n_per_m, c_ns_per_m : ndarray
+        Each bearing's stiffness (N/m) and damping (N s/m).
+    d_planes_m : ndarray
+        Each plane's position from the centre of mass, m.
+    radius_mm : ndarray
+        Each plane's radius, mm.
+    d_pickup_m : float
+        The pickup's bearing position from the centre of mass, m.
+    omega_rad_s : float
+        Speed, rad/s.
+
+    Returns
+    -------
+    ndarray
+        Per plane, the complex coefficient (m/s^2 per gram at the plane's radius, angle 0).
+
+    References
+    ----------
+    .. [1] Vance, *Rotordynamics of Turbomachinery*, 1988, ch. 2 (from memory).
+    .. [2] Den Hartog, *Mechanical Vibrations*, 1956, §3.3 (the symmetric case; checked in
+       tests/test_balance_model_first.py).
+    """
+    stiff = np.zeros((2, 2))
+    damp = np.zeros((2, 2))
+    for d, k, c in zip(d_bearings_m, k_n_per_m, c_ns_per_m, strict=True):
+        shape = np.array([[1.0, d], [d, d * d]])
+        stiff += k * shape
+        damp += c * shape
+    dyn = stiff + 1j * omega_rad_s * damp - omega_rad_s**2 * np.diag([mass_kg, inertia_kg_m2])
+    force = 1e-3 * radius_mm * 1e-3 * omega_rad_s**2
+    forcing = np.vstack([force, force * d_planes_m])
+    disp = np.array([1.0, d_pickup_m]) @ np.linalg.solve(dyn, forcing)
+    return np.conj(-(omega_rad_s**2) * disp)
+
+
+def predict_influence(layout: RotorLayout, pickups: Sequence[PickupPlacement], speed_rpm: float,
+                      resonances: Mapping[str, Sequence[SupportResonance]] | None = None,
+                      as_found: Mapping[str, complex] | None = None,
+                      draws: int = 300, seed: int = 0) -> PredictedInfluence:
+    """Influence coefficients of a rigid rotor on two flexible supports, with uncertainty.
+
+    Parameters
+    ----------
+    layout : RotorLayout
+        Rotor mass, bearing and plane positions, radii, centre of mass, and the transverse
+        inertia when known (else :func:`estimated_transverse_inertia_kg_m2`, wide band).
+    pickups : sequence of PickupPlacement
+        Each pickup's bearing and its angle from the tach (None: not measured).
+    speed_rpm : float
+        The balancing speed, rpm (> 0).
+    resonances : mapping of str to sequence of SupportResonance, or None
+        Per pickup, the support resonances a coast-down sweep found below the running
+        speed (a pickup missing: no sweep; an empty list: a sweep that found none, so the
+        supports are stiffer than the running speed needs and their stiffness is unknown).
+    as_found : mapping of str to complex or None, default None
+        The as-found 1x per pickup (phasors, reading units): with it, the share of the 1x
+        the model's own correction would leave is estimated (``residual_fraction_95``).
+    draws : int, default 300
+        Monte Carlo draws for the uncertainty (fixed ``seed``: the same answer every time).
+    seed : int, default 0
+
+    Returns
+    -------
+    PredictedInfluence
+
+    Raises
+    ------
+    ValueError
+        When a mass, speed, radius or bearing span is not positive, a pickup names a
+        bearing other than 0 or 1, or the planes' positions and radii differ in number.
+
+    Notes
+    -----
+    Magnitude without the support stiffness: the free rigid body (mass-controlled limit,
+    well above both rigid-body modes), ``a = F (1/M + d_j d_i / I)``; below the modes the
+    true response is smaller. Uncertainty: draws of each resonance speed (its 95 % band),
+    the damping (log-normal), the transverse inertia (log-normal, wide when estimated),
+    the pickup angle, and a relative model error (:data:`MODEL_REL_SIGMA`: gyroscopics,
+    anisotropy, a mount that is not a spring).
+
+    References
+    ----------
+    .. [1] Vance, J. M., *Rotordynamics of Turbomachinery*, Wiley, 1988, ch. 2 (rigid rotor
+       on flexible supports; from memory).
+    .. [2] Den Hartog, *Mechanical Vibrations*, 4th ed., 1956, §3.3 (rotating unbalance;
+       from memory).
+    """
+    if not 0 < layout.rotor_mass_kg < math.inf:
+        raise ValueError(f"rotor_mass_kg must be > 0, got {layout.rotor_mass_kg!r}")
+    if not 0 < speed_rpm < math.inf:
+        raise ValueError(f"speed_rpm must be > 0, got {speed_rpm!r}")
+    if len(layout.planes_axial_mm) != len(layout.planes_radius_mm):
+        raise ValueError("planes_axial_mm and planes_radius_mm differ in length")
+    if any(not 0 < r < math.inf for r in layout.planes_radius_mm):
+        raise ValueError("planes_radius_mm must all be > 0")
+    if layout.bearings_axial_mm[1] == layout.bearings_axial_mm[0]:
+        raise ValueError("the two bearings must be at different positions")
+    for p in pickups:
+        if p.bearing not in (0, 1):
+            raise ValueError(f"pickup {p.name!r}: bearing must be 0 or 1, got {p.bearing!r}")
+    resonances = {k: tuple(v) for k, v in (resonances or {}).items()}
+    omega = angular_speed_rad_s(speed_rpm)
+    masses = _lever_masses(layout)
+    distrust: list[Distrust] = []
+    if np.any(masses <= 0):
+        distrust.append(Distrust.NO_BEARINGS)   # centre of mass outside the bearings
+        masses = np.maximum(masses, 0.05 * layout.rotor_mass_kg)
+    z_cg = _cg(layout)
+    d_bear = (np.array(layout.bearings_axial_mm) - z_cg) * 1e-3
+    d_pl = (np.array(layout.planes_axial_mm) - z_cg) * 1e-3
+    radius = np.array(layout.planes_radius_mm, dtype=float)
+    inertia = layout.transverse_inertia_kg_m2 or estimated_transverse_inertia_kg_m2(layout)
+    inertia_sigma = 0.05 if layout.transverse_inertia_kg_m2 else 0.35
+    force = 1e-3 * radius * 1e-3 * omega**2
+    n_p, n_s = len(radius), len(pickups)
+    free = np.array([np.abs(force * (1.0 / layout.rotor_mass_kg
+                                     + d_pl * d_bear[p.bearing] / inertia)) for p in pickups])
+    if any(p.name not in resonances for p in pickups):
+        distrust.append(Distrust.NO_SWEEP)
+    elif any(not resonances[p.name] for p in pickups):
+        distrust.append(Distrust.STIFFNESS_UNKNOWN)
+    if any(p.angle_from_tach_deg is None for p in pickups):
+        distrust.append(Distrust.NO_PICKUP_ANGLE)
+    if any(not r.fits for rs in resonances.values() for r in rs):
+        distrust.append(Distrust.SWEEP_MISFIT)
+    have_phase = not ({Distrust.NO_SWEEP, Distrust.STIFFNESS_UNKNOWN, Distrust.NO_PICKUP_ANGLE}
+                      & set(distrust))
+    rng = np.random.default_rng(seed)
+    model_err = 1.0 + MODEL_REL_SIGMA * (rng.normal(size=(draws, n_s, n_p))
+                                         + 1j * rng.normal(size=(draws, n_s, n_p))) / math.sqrt(2)
+    if not have_phase:
+        inertia_draws = inertia * np.exp(inertia_sigma * rng.normal(size=draws))
+        samples = np.array([[np.abs(force * (1.0 / layout.rotor_mass_kg
+                                             + d_pl * d_bear[p.bearing] / i_t)) for p in pickups]
+                            for i_t in inertia_draws]) * np.abs(model_err)
+        mag_rel = np.percentile(np.abs(samples / free[None] - 1.0), 95, axis=0)
+        cov = tuple(np.diag(np.full(n_p, np.inf + 0j)) for _ in range(n_s))
+        return PredictedInfluence(tuple(p.name for p in pickups), np.full((n_s, n_p), np.nan + 0j),
+                                  free, cov, np.full((n_s, n_p), 180.0), mag_rel, True, None,
+                                  tuple(dict.fromkeys(distrust)))
+    mass_ratio = float(masses[0] / masses[1])
+
+    def one(i: int, p: PickupPlacement, res_scale: float, zeta_scale: float, i_t: float,
+            angle_err_deg: float) -> tuple[np.ndarray, list[float]]:
+        rs = resonances[p.name]
+        k_a, k_b = stiffness_from_resonances(
+            layout.rotor_mass_kg, i_t, float(d_bear[0]), float(d_bear[1]),
+            [angular_speed_rad_s(r.speed_rpm) * res_scale for r in rs], mass_ratio)
+        zeta = min(r.damping_ratio for r in rs) * zeta_scale
+        k = np.array([k_a, k_b])
+        c = 2.0 * zeta * np.sqrt(k * masses)
+        h = rigid_rotor_coefficients(layout.rotor_mass_kg, i_t, d_bear, k, c, d_pl, radius,
+                                     float(d_bear[p.bearing]), omega)
+        assert p.angle_from_tach_deg is not None
+        modes = np.linalg.eigvals(np.linalg.solve(
+            np.diag([layout.rotor_mass_kg, i_t]),
+            sum(kb * np.array([[1.0, d], [d, d * d]]) for kb, d in zip(k, d_bear, strict=True))))
+        speeds = [float(math.sqrt(max(m.real, 0.0))) * 30.0 / math.pi for m in modes]
+        return h * np.exp(1j * math.radians(p.angle_from_tach_deg + angle_err_deg)), speeds
+
+    nominal = np.empty((n_s, n_p), dtype=complex)
+    for i, p in enumerate(pickups):
+        nominal[i], mode_rpm = one(i, p, 1.0, 1.0, inertia, 0.0)
+        zeta = min(r.damping_ratio for r in resonances[p.name])
+        if any(abs(speed_rpm / m - 1.0) < max(NEAR_RESONANCE_FRACTION, 2.0 * zeta)
+               for m in mode_rpm if m > 0):
+            distrust.append(Distrust.NEAR_RESONANCE)
+    drawn = np.empty((draws, n_s, n_p), dtype=complex)
+    for d in range(draws):
+        i_t = inertia * math.exp(inertia_sigma * rng.normal())
+        for i, p in enumerate(pickups):
+            rel95 = max(r.speed_rel_95 for r in resonances[p.name])
+            drawn[d, i] = one(i, p, 1.0 + rel95 / 1.96 * rng.normal(),
+                              math.exp(DAMPING_LOG_SIGMA * rng.normal()), i_t,
+                              PICKUP_ANGLE_SIGMA_DEG * rng.normal())[0]
+    drawn *= model_err
+    dev = drawn - nominal[None]
+    cov = tuple(np.einsum("dj,dk->jk", dev[:, i, :], dev[:, i, :].conj()) / draws
+                for i in range(n_s))
+    ratio = drawn / nominal[None]
+    phase95 = np.percentile(np.abs(np.degrees(np.angle(ratio))), 95, axis=0)
+    mag95 = np.percentile(np.abs(np.abs(ratio) - 1.0), 95, axis=0)
+    residual95 = None
+    if as_found is not None and all(p.name in as_found for p in pickups):
+        r0 = np.array([as_found[p.name] for p in pickups])
+        c_nom, *_ = np.linalg.lstsq(nominal, -r0, rcond=None)
+        left = np.linalg.norm(r0[None] + drawn @ c_nom, axis=1) / max(
+            float(np.linalg.norm(r0)), 1e-30)
+        residual95 = float(np.percentile(left, 95))
+        if residual95 > MAX_RESIDUAL_FRACTION_95:
+            distrust.append(Distrust.TOO_UNCERTAIN)
+    return PredictedInfluence(tuple(p.name for p in pickups), nominal, np.abs(nominal), cov,
+                              phase95, mag95, False, residual95, tuple(dict.fromkeys(distrust)))
+
+
+@dataclass
+class CoefficientEstimate:
+    """Influence coefficients and the as-found 1x, refined run by run (recursive least
+    squares, each reading weighted by its 95 % circle).
+
+    Per pickup i the unknowns are ``theta_i = [b_i, H_i1 .. H_in]``: the 1x of the
+    as-found rotor and the pickup's influence coefficients; a run with the mass vector
+    ``u`` (grams at each plane's radius as phasors, relative to the as-found rotor) reads
+    ``y_i = b_i + H_i . u + e``. The prior is the prediction (its mean and covariance) when
+    one is given, else flat; each run updates every pickup's ``theta`` and covariance ``P``
+    (the Kalman filter of a constant parameter vector, kept in information form:
+    ``P^-1 += phi* phi^T / s2``, ``P^-1 theta += phi* y / s2``; the same estimate as the
+    gain form ``K = P phi* / (phi^T P phi* + s2)`` without its round-off when the prior is
+    flat).
+
+    References
+    ----------
+    .. [1] Ljung, L., *System Identification: Theory for the User*, 2nd ed., Prentice Hall,
+       1999, §11.2 (recursive least squares; from memory).
+    .. [2] Goodman, T. P., "A least-squares method for computing balance corrections",
+       *J. Eng. Ind.* 86(3), 1964 (influence coefficients by least squares; from memory).
+    """
+
+    sensors: tuple[str, ...]
+    n_planes: int
+    theta: np.ndarray = field(init=False)             # pickups x (1 + planes)
+    covariance: np.ndarray = field(init=False)        # pickups x (1+n) x (1+n)
+    runs_used: int = field(init=False, default=0)
+    _information: np.ndarray = field(init=False, repr=False)   # P^-1 per pickup
+    _moment: np.ndarray = field(init=False, repr=False)        # P^-1 theta per pickup
+
+    def __post_init__(self) -> None:
+        n = 1 + self.n_planes
+        self.theta = np.zeros((len(self.sensors), n), dtype=complex)
+        self.covariance = np.array([np.diag(np.full(n, np.inf + 0j)) for _ in self.sensors])
+        self._information = np.zeros((len(self.sensors), n, n), dtype=complex)
+        self._moment = np.zeros((len(self.sensors), n), dtype=complex)
+
+    @classmethod
+    def from_prediction(cls, prediction: PredictedInfluence) -> CoefficientEstimate:
+        """Start from a predicted set: its mean and covariance as the prior.
+
+        Parameters
+        ----------
+        prediction : PredictedInfluence
+            A prediction with no phase (``magnitude_only``) gives a flat prior.
+
+        Returns
+        -------
+        CoefficientEstimate
+
+        References
+        ----------
+        .. [1] Ljung, *System Identification*, 2nd ed., 1999, §11.2 (the prior as the
+           initial ``theta`` and ``P``; from memory).
+        """
+        est = cls(prediction.sensors, prediction.matrix.shape[1])
+        if not prediction.magnitude_only:
+            for i, cov in enumerate(prediction.covariance):
+                scale = float(np.real(np.trace(cov))) / cov.shape[0] or 1.0
+                info = np.linalg.inv(cov + 1e-9 * scale * np.eye(cov.shape[0]))
+                est._information[i, 1:, 1:] = info
+                est._moment[i, 1:] = info @ prediction.matrix[i]
+            est._solve()
+        return est
+
+    def _solve(self) -> None:
+        """theta = P m, P = (information)^+ (the recursion in information form: the same
+        estimate as the covariance form, without its round-off under a flat prior)."""
+        for i in range(len(self.sensors)):
+            info = 0.5 * (self._information[i] + self._information[i].conj().T)
+            self.theta[i] = np.linalg.lstsq(info, self._moment[i], rcond=1e-12)[0]
+            self.covariance[i] = np.linalg.pinv(info, rcond=1e-12, hermitian=True)
+
+    def update(self, masses_g: Sequence[complex], readings: Mapping[str, complex],
+               confidence_95: Mapping[str, float | None]) -> None:
+        """Take one run into the estimate.
+
+        Parameters
+        ----------
+        masses_g : sequence of complex
+            Per plane, the masses on the rotor in this run relative to as found (phasors,
+            grams at the plane's radius).
+        readings : mapping of str to complex
+            The 1x per pickup (phasors, reading units).
+        confidence_95 : mapping of str to float or None
+            Each reading's 95 % circle radius (None: :data:`READING_REL_FLOOR` of the
+            reading alone).
+
+        Raises
+        ------
+        ValueError
+            When ``masses_g`` does not have one entry per plane.
+
+        References
+        ----------
+        .. [1] Ljung, *System Identification*, 2nd ed., 1999, §11.2 (weighted RLS; from
+           memory).
+        """
+        u = np.asarray(masses_g, dtype=complex)
+        if u.shape != (self.n_planes,):
+            raise ValueError(f"masses_g needs {self.n_planes} entries, got {u.shape}")
+        phi = np.concatenate([[1.0 + 0j], u])
+        for i, name in enumerate(self.sensors):
+            y = complex(readings[name])
+            radius = confidence_95.get(name) or 0.0
+            sigma = max(radius / CIRCLE95, READING_REL_FLOOR * abs(y), 1e-300)
+            # y = phi^T theta + e: information += conj(phi) phi^T / s2, moment += conj(phi) y / s2
+            self._information[i] += np.outer(phi.conj(), phi) / sigma**2
+            self._moment[i] += phi.conj() * y / sigma**2
+        self._solve()
+        self.runs_used += 1
+
+    @property
+    def matrix(self) -> np.ndarray:
+        """The influence coefficients now (pickups x planes)."""
+        return self.theta[:, 1:]
+
+    @property
+    def as_found(self) -> np.ndarray:
+        """The as-found 1x per pickup now (its estimate from every run)."""
+        return self.theta[:, 0]
+
+    def correction_g(self) -> np.ndarray:
+        """Masses that cancel the as-found 1x in the least-squares sense.
+
+        Returns
+        -------
+        ndarray
+            ``c = -H^+ b`` per plane (phasors, grams at each plane's radius), relative to
+            the as-found rotor.
+
+        References
+        ----------
+        .. [1] Goodman, "A least-squares method for computing balance corrections", 1964
+           (from memory).
+        """
+        c, *_ = np.linalg.lstsq(self.matrix, -self.as_found, rcond=None)
+        return c
+
+    def residual_g(self, last_reading: Mapping[str, complex], confidence_95: Mapping[str, float | None],
+                   draws: int = 400, seed: int = 1) -> tuple[np.ndarray, np.ndarray]:
+        """The unbalance still on the rotor after the last run, with a 95 % upper bound.
+
+        Parameters
+        ----------
+        last_reading : mapping of str to complex
+            The last run's 1x per pickup.
+        confidence_95 : mapping of str to float or None
+            Its 95 % circle radii.
+        draws : int, default 400
+            Monte Carlo draws (over ``P`` and the reading's circle).
+        seed : int, default 1
+            Fixed: the same answer every time.
+
+        Returns
+        -------
+        (ndarray, ndarray)
+            The nominal residual per plane (complex, grams at each plane's radius; the
+            correction still needed) and the 95th percentile of its magnitude per plane.
+
+        References
+        ----------
+        .. [1] Monte Carlo propagation of distributions, JCGM 101:2008 (GUM Supplement 1).
+        """
+        y = np.array([complex(last_reading[s]) for s in self.sensors])
+        nominal, *_ = np.linalg.lstsq(self.matrix, -y, rcond=None)
+        rng = np.random.default_rng(seed)
+        n = 1 + self.n_planes
+        n_s = len(self.sensors)
+        # circular complex Gaussian draws with each pickup's covariance: V sqrt(W) z
+        roots = []
+        for i in range(n_s):
+            w, v = np.linalg.eigh(self.covariance[i])
+            roots.append(v * np.sqrt(np.maximum(w, 0.0))[None, :])
+        z = (rng.normal(size=(draws, n_s, n)) + 1j * rng.normal(size=(draws, n_s, n))) / math.sqrt(2)
+        theta = self.theta[None] + np.einsum("ijk,dik->dij", np.array(roots), z)
+        sigma = np.array([max((confidence_95.get(s) or 0.0) / CIRCLE95,
+                              READING_REL_FLOOR * abs(y[i])) for i, s in enumerate(self.sensors)])
+        yd = y[None] + sigma[None] * (rng.normal(size=(draws, n_s)) + 1j * rng.normal(size=(draws, n_s)))
+        mags = np.array([np.abs(np.linalg.lstsq(theta[d, :, 1:], -yd[d], rcond=None)[0])
+                         for d in range(draws)])
+        return nominal, np.percentile(mags, 95, axis=0)

@@ -551,34 +551,40 @@ def test_the_grade_is_judged_at_the_bearings_at_the_service_speed() -> None:
 class _TinyTrialEngine(BalanceEngine):
     """Suggests a trial mass a fiftieth of the usual: its effect is lost in the scatter."""
 
-    def trial_mass(self, setup, plane):  # type: ignore[no-untyped-def]
-        s = super().trial_mass(setup, plane)
+    def trial_mass(self, setup, plane, runs=()):  # type: ignore[no-untyped-def]
+        s = super().trial_mass(setup, plane, runs)
         return type(s)(s.plane, s.mass_g / 50.0, s.angle_deg, s.position, s.force_n / 50.0,
                        s.force_ratio / 50.0)
 
 
 def test_a_trial_too_small_to_be_seen_is_redone_with_a_larger_mass() -> None:
+    # issue #20 item 3: the effect is checked right after each trial run, before moving on
     rig = Rig("bench-grinder", Mode.TWO_PLANE)
     rig.proc = Procedure(rig.setup, _TinyTrialEngine())
     before = rig.response()
-    for _ in range(3):  # set-up, as found, trial left, trial right
+    for _ in range(2):  # set-up, as found, trial left
         rig.hands_on()
         rig.run()
     proc = rig.proc
-    assert proc.step.kind == "correction" and proc.problem
+    assert len(proc.runs) == 2 and proc.step.kind == "correction" and proc.problem
     small = proc.too_small_trial
     assert small is not None and small.suggested_g is not None
-    # the suggestion: about 3x the uncertainty over the effect seen (trueturn.balance.sanity)
+    assert small.plane == "left-wheel"
+    # a fiftieth of a trial that is seen: the suggestion is many times larger
     assert small.suggested_g > 5 * small.trial_g
+    with pytest.raises(GateRefused):
+        proc.accept_correction()
     larger = proc.redo_trial_larger()
     assert larger.plane == small.plane and larger.mass_g >= small.suggested_g
-    assert proc.step.kind == "hands-on"  # the other plane's trial comes off, this one on
+    assert proc.step.kind == "hands-on"  # the small trial comes off, the larger one on
     rig.hands_on()
     assert proc.step.kind == "run" and proc.step.run_label == f"trial {small.plane}"
     rig.run()
-    # the second trial may also have been too small: redo it as well
-    while proc.too_small_trial is not None:
-        proc.redo_trial_larger()
+    # then on to the other plane's trial (sized from what the first one showed); it may
+    # be too small as well (the engine here shrinks every suggestion): redo it too
+    while proc.step.kind != "correction" or proc.too_small_trial is not None:
+        if proc.too_small_trial is not None:
+            proc.redo_trial_larger()
         rig.hands_on()
         rig.run()
     assert proc.step.kind == "correction" and not proc.problem and len(proc.runs) == 3

@@ -3,17 +3,27 @@
 No arithmetic of balancing here and no conversion of nouns: the procedure's runs, readings
 and masses are the model's (:mod:`trueturn.model`), which the engine takes as they are.
 Methods used: influence coefficients by least squares over all runs, the amplitude-only
-(four-run) method, trial-mass sizing by the 10 %-of-rotor-weight rule, splitting onto
+(four-run) method, trial masses sized to be seen (from the as-found reading and a predicted sensitivity,
+the 10 %-of-rotor-weight rule before any run), splitting onto
 positions, ISO 21940-11 permissible unbalance judged at the bearings when they are known.
 """
 
 from __future__ import annotations
 
+import math
 from collections.abc import Sequence
 from dataclasses import replace
 
 from trueturn.angles import wrap_deg
+from trueturn.balance.influence import trial_size_factor
 from trueturn.balance.iso21940 import per_plane_permissible, permissible_unbalance_gmm
+from trueturn.balance.model_first import (
+    PickupPlacement,
+    PredictedInfluence,
+    RotorLayout,
+    free_rotor_prediction,
+    predict_influence,
+)
 from trueturn.balance.parts import best_combination
 from trueturn.balance.readings import BalanceInput, SavedCoefficient, Sensor, Tolerance
 from trueturn.balance.sanity import NoInformationError
@@ -21,11 +31,13 @@ from trueturn.balance.solve import SolveReport, solve
 from trueturn.balance.splitting import negligible_parts, split
 from trueturn.balance.trial_mass import (
     STANDARD_GRAVITY_M_S2,
+    TrialMass,
     centrifugal_force_n,
     size_trial_mass,
+    suggest_trial,
 )
 from trueturn.errors import UserError
-from trueturn.model import Correction, MassKind, PlacedMass, Plane, Run, Verdict
+from trueturn.model import Correction, MassKind, PlacedMass, Plane, Run, RunKind, Verdict
 from trueturn.procedure.guide import (
     GateRefused,
     KitFit,
@@ -44,20 +56,95 @@ PART_RESOLUTION_G = 0.01
 #: at the correction's angle or in steps of this from it (12 places: enough to split a
 #: mass between two neighbours, few enough for the exact search). Ours, no source.
 ANY_ANGLE_STEP_DEG = 30.0
+TRIAL_REDO_MARGIN = 1.5   # a redone trial: 1.5x what the effect check asks (our choice)
 
 
 class BalanceEngine:
     """The :class:`trueturn.procedure.guide.Engine` backed by ``trueturn.balance``."""
 
     # ---- sizes and forces ---------------------------------------------------------------
-    def trial_mass(self, setup: ProcedureSetup, plane: Plane) -> TrialSuggestion:
-        t = size_trial_mass(setup.rotor_mass_kg, plane.radius_mm, setup.speed_rpm)
-        mass_g = max(0.1, round(t.mass_g, 1))  # what a kitchen scale can weigh
+    def prediction(self, setup: ProcedureSetup) -> PredictedInfluence:
+        """Predicted sensitivities from the profile (no sweep yet: magnitude only, the free
+        rigid rotor; :mod:`trueturn.balance.model_first`)."""
+        planes = setup.planes
+        if len(setup.bearings) == 2 and all(p.axial_mm is not None for p in planes):
+            layout = RotorLayout(setup.rotor_mass_kg,
+                                 (setup.bearings[0].axial_mm, setup.bearings[1].axial_mm),
+                                 tuple(float(p.axial_mm or 0.0) for p in planes),
+                                 tuple(p.radius_mm for p in planes), setup.cg_axial_mm)
+            # which bearing a pickup sits on is not in the profile: in order, first -> first
+            pickups = [PickupPlacement(s, min(i, 1)) for i, s in enumerate(setup.sensors)]
+            return predict_influence(layout, pickups, setup.speed_rpm)
+        return free_rotor_prediction(setup.sensors, setup.rotor_mass_kg,
+                                     [p.radius_mm for p in planes], setup.speed_rpm)
+
+    def trial_mass(self, setup: ProcedureSetup, plane: Plane,
+                   runs: Sequence[Run] = ()) -> TrialSuggestion:
+        """The trial for ``plane``: before any run the 10 % force rule; after the as-found
+        run sized to be seen (:func:`trueturn.balance.trial_mass.suggest_trial`) from the
+        as-found reading, saved coefficients of the plane or the predicted sensitivity,
+        scaled by what an earlier trial of this job showed."""
+        t = self._sized_trial(setup, plane, runs)
+        mass_g = max(0.1, math.ceil(t.mass_g * 10.0) / 10.0)  # what a kitchen scale weighs
         position = 0 if plane.position_angles_deg else None
         angle = plane.position_angles_deg[0] if plane.position_angles_deg else 0.0
         force = self.force_n(mass_g, plane.radius_mm, setup.speed_rpm)
         weight_n = setup.rotor_mass_kg * STANDARD_GRAVITY_M_S2
         return TrialSuggestion(plane.name, mass_g, angle, position, force, force / weight_n)
+
+    def _sized_trial(self, setup: ProcedureSetup, plane: Plane, runs: Sequence[Run]) -> TrialMass:
+        as_found = next((r for r in runs if r.kind == RunKind.AS_FOUND), None)
+        if as_found is None or any(s not in as_found.readings for s in setup.sensors):
+            return size_trial_mass(setup.rotor_mass_kg, plane.radius_mm, setup.speed_rpm)
+        names = list(setup.sensors)
+        planes = list(setup.planes)
+        j = planes.index(plane)
+        prediction = self.prediction(setup)
+        saved = {c.sensor: c.amp_per_g for c in setup.saved_coefficients
+                 if isinstance(c, SavedCoefficient) and c.plane == plane.name}
+        scale = None
+        for run in runs:     # an earlier trial of this job: what it showed against the model
+            trials = [m for m in run.masses if m.kind == MassKind.TRIAL]
+            if run.kind != RunKind.TRIAL or len(trials) != 1 or trials[0].plane == plane.name:
+                continue
+            k = next(i for i, p in enumerate(planes) if p.name == trials[0].plane)
+            # the smallest ratio over the pickups: the prediction's pattern across planes
+            # is rough, so the next trial errs on the large side (bench_balance measured)
+            seen = min(abs(run.readings[n].vector - as_found.readings[n].vector)
+                       / abs(trials[0].mass_g) / float(prediction.magnitude[i, k])
+                       for i, n in enumerate(names) if n in run.readings)
+            scale = seen if seen > 0 else scale
+        return suggest_trial([as_found.readings[n].amplitude for n in names],
+                             [as_found.readings[n].confidence_radius for n in names],
+                             prediction, j, setup.rotor_mass_kg, plane.radius_mm,
+                             setup.speed_rpm, scale,
+                             [saved[n] for n in names] if all(n in saved for n in names) else None,
+                             plane.max_mass_g)
+
+    def trial_effect(self, setup: ProcedureSetup, runs: Sequence[Run]) -> TooSmallTrial | None:
+        """Right after a trial run: a trial whose change of the 1x is under 25 % of the
+        as-found level on every pickup, or under three of its confidence radii
+        (:func:`trueturn.balance.influence.trial_size_factor`), with the mass that would be
+        seen (1.5 times what the factor asks: the same sizing margin again)."""
+        as_found = next((r for r in runs if r.kind == RunKind.AS_FOUND), None)
+        last = runs[-1] if runs else None
+        if as_found is None or last is None or last.kind != RunKind.TRIAL:
+            return None
+        trials = [m for m in last.masses if m.kind == MassKind.TRIAL]
+        if len(trials) != 1:
+            return None
+        before = {n: r.vector for n, r in as_found.readings.items() if n in last.readings}
+        after = {n: last.readings[n].vector for n in before}
+        confidence = {n: max(last.readings[n].confidence_radius or 0.0,
+                             as_found.readings[n].confidence_radius or 0.0) for n in before}
+        try:
+            factor = trial_size_factor(before, after, confidence)
+        except UserError:
+            return TooSmallTrial(trials[0].plane, abs(trials[0].mass_g), None)
+        if factor <= 1.0:
+            return None
+        return TooSmallTrial(trials[0].plane, abs(trials[0].mass_g),
+                             abs(trials[0].mass_g) * factor * TRIAL_REDO_MARGIN)
 
     def force_n(self, mass_g: float, radius_mm: float, speed_rpm: float) -> float:
         """Centrifugal force F = m r omega^2 (newtons)."""

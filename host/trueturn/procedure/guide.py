@@ -227,7 +227,14 @@ class TrialSuggestion:
 class Engine(Protocol):
     """What the procedure asks the balancing layer (:mod:`trueturn.procedure.engine`)."""
 
-    def trial_mass(self, setup: ProcedureSetup, plane: Plane) -> TrialSuggestion: ...
+    def trial_mass(self, setup: ProcedureSetup, plane: Plane,
+                   runs: Sequence[Run] = ()) -> TrialSuggestion:
+        """The trial for ``plane``, sized from the runs so far (the as-found one)."""
+        ...
+
+    def trial_effect(self, setup: ProcedureSetup, runs: Sequence[Run]) -> TooSmallTrial | None:
+        """Right after a trial run: the trial if it changed the 1x too little to be seen."""
+        ...
 
     def force_n(self, mass_g: float, radius_mm: float, speed_rpm: float) -> float: ...
 
@@ -850,11 +857,15 @@ class Procedure:
         self._measured = max(self._measured, number)
         if self._redo_index is not None:
             # a run of the coefficient set measured again: it replaces the first one
-            self.last_replaced = self.run_numbers[self._redo_index]
-            self.runs[self._redo_index] = run
-            self.run_numbers[self._redo_index] = number
+            index = self._redo_index
+            self.last_replaced = self.run_numbers[index]
+            self.runs[index] = run
+            self.run_numbers[index] = number
             self._redo_index = None
-            self._to_correction()
+            if run.kind == RunKind.TRIAL and index == len(self.runs) - 1:
+                self._advance_after_run(run)     # the latest trial: check it again, go on
+            else:
+                self._to_correction()
             return
         self.last_replaced, self._repeat_of = self._repeat_of, None
         self.runs.append(run)
@@ -1077,7 +1088,7 @@ class Procedure:
         return [(f"trial {p.name}", p, 0.0) for p in self.planes_used]
 
     def _trial_mass(self, plane: Plane, offset_deg: float) -> PlacedMass:
-        s = self.engine.trial_mass(self.setup, plane)
+        s = self.engine.trial_mass(self.setup, plane, self.runs)
         angle = wrap_deg(s.angle_deg + offset_deg)
         position = s.position
         if plane.position_angles_deg and offset_deg:
@@ -1103,9 +1114,34 @@ class Procedure:
             label = "check" if not self.trims_done else f"check after trim {self.trims_done}"
             self.step = Measure(f"Check run: {label}", label, RunKind.CHECK)
 
+    def _trial_too_small(self) -> bool:
+        """Right after a trial run (tach procedures): check its effect against the as-found
+        reading and its uncertainty; when it is too small to be seen, stop at a redo offer
+        (:meth:`redo_trial_larger`) before moving on. Returns True when it stopped."""
+        if self.setup.mode not in (Mode.ONE_PLANE, Mode.TWO_PLANE):
+            return False
+        last = self.runs[-1] if self.runs else None
+        if last is None or last.kind != RunKind.TRIAL:
+            return False
+        small = self.engine.trial_effect(self.setup, self.runs)
+        if small is None:
+            return False
+        self.step = ShowCorrection("Trial too small to be seen")
+        self.too_small_trial = small
+        self.problem = (f"the trial on {small.plane} ({small.trial_g:.1f} g) changed the 1x "
+                        "too little to be seen"
+                        + (f": redo it with about {small.suggested_g:.1f} g"
+                           if small.suggested_g is not None else
+                           ": no change at all - is the trial mass on the rotor?"))
+        return True
+
     def _advance_after_run(self, run: Run) -> None:
         trials = self._runs_needed()
         n_runs = len(self.runs)
+        if n_runs <= len(trials) + 1 and self._trial_too_small():
+            return
+        self.problem = ""
+        self.too_small_trial = None
         if n_runs <= len(trials):
             # Next: move the trial mass (off the previous plane/angle, onto the next one).
             changes = [MassChange("detach", m) for m in self.on_rotor if m.kind == "trial"]

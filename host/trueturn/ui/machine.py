@@ -109,7 +109,7 @@ def describe_change(change: MassChange, proc: Procedure, engine: BalanceEngine,
             f"r {u.length(plane.radius_mm)}: {u.force(force)} at "
             f"{u.speed(proc.setup.speed_rpm)}")
     if m.kind == "trial" and change.suggested is None:
-        ratio = engine.trial_mass(proc.setup, plane).force_ratio
+        ratio = force / (proc.setup.rotor_mass_kg * STANDARD_GRAVITY_M_S2)
         text += f" (about {ratio:.0%} of the rotor's weight)"
     return text + fitted + "."
 

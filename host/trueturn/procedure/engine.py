@@ -94,7 +94,10 @@ class BalanceEngine:
 
     def _sized_trial(self, setup: ProcedureSetup, plane: Plane, runs: Sequence[Run]) -> TrialMass:
         as_found = next((r for r in runs if r.kind == RunKind.AS_FOUND), None)
-        if as_found is None or any(s not in as_found.readings for s in setup.sensors):
+        if (as_found is None or setup.mode is Mode.AMPLITUDE_ONLY
+                or any(s not in as_found.readings for s in setup.sensors)):
+            # before any run, and for the four-run method (amplitudes only; its three trials
+            # at 0/120/240 deg have their own size check), the 10 % force rule as before
             return size_trial_mass(setup.rotor_mass_kg, plane.radius_mm, setup.speed_rpm)
         names = list(setup.sensors)
         planes = list(setup.planes)

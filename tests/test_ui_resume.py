@@ -111,9 +111,16 @@ def test_fitted_entries_are_checked_and_undone_last_first() -> None:
     proc.fit(item, mass_g=0.7)
     rig.hands_on()
     with pytest.raises(GateRefused):
-        proc.undo_fit()  # the step is done: the run uses what was fitted
-    assert isinstance(proc.step, Measure)
-    with pytest.raises(GateRefused, match="hands-on step"):
+        proc.undo_fit()  # the step is done: its entries stand
+    assert isinstance(proc.step, Measure) and proc.fittable() == (0,)
+    # before the run starts, the mass just put on can still be entered as fitted
+    on = proc.fit(0, mass_g=0.65)
+    assert on.mass is not None and proc.on_rotor == [on.mass]
+    assert on.suggested == original.mass
+    assert proc.undo_fit().mass == replace(original.mass, mass_g=0.7)  # type: ignore[arg-type]
+    assert [m.mass_g for m in proc.on_rotor] == [0.7]
+    proc.arm_run(True, rig.t)
+    with pytest.raises(GateRefused, match="before its run starts"):
         proc.fit(0, mass_g=1.0)
 
 
@@ -149,10 +156,15 @@ def test_the_job_file_keeps_the_suggested_and_the_fitted_mass(tmp_path: Path) ->
     item = rig.proc.fittable()[0]
     suggested = step.changes[item].mass
     assert suggested is not None
-    rig.proc.fit(item, mass_g=0.55, angle_deg=30.0)
+    rig.proc.fit(item, mass_g=0.5, angle_deg=30.0)
     rig.hands_on()
+    # entered again before the run starts: the pending record follows
+    before = rig.proc.fit_target(0)
+    after = rig.proc.fit(0, mass_g=0.55)
+    keeper.refit(rig.proc, before, after)
     assert keeper.path is not None
     job = read_document(keeper.path, "job")
+    assert len(job.pending.changes) == 1
     change = job.pending.changes[0]
     assert (change.mass_g, change.angle_deg, change.position) == (0.55, 30.0, None)
     assert change.suggested is not None

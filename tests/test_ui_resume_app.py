@@ -90,8 +90,9 @@ async def as_found_then_trial_step(app: TrueturnApp, pilot: Pilot) -> None:
 
 async def enter_fitted_mass(app: TrueturnApp, pilot: Pilot, mass: str) -> None:
     await press(app, pilot, "f")
+    # the mass field takes the keys (one part: the form puts the cursor there)
     await wait_for(pilot, lambda: isinstance(app.screen, FittedForm)
-                   and isinstance(app.focused, Input), 10)
+                   and isinstance(app.focused, Input) and app.focused.id == "fit-mass", 10)
     await assert_fits(app, pilot)
     await type_text(app, pilot, mass)
     await press(app, pilot, "enter")
@@ -101,6 +102,7 @@ async def enter_fitted_mass(app: TrueturnApp, pilot: Pilot, mass: str) -> None:
 #: the washer fitted instead of the suggested trial (the grinder's trial sized to be seen
 #: from its as-found run is about 1.9 g, #20; a washer a little lighter is still seen)
 FITTED = 1.75
+OTHER = 1.70  # entered at the run's confirmation, then undone
 
 
 def test_quit_with_a_trial_on_and_continue_the_job(tmp_path: Path) -> None:
@@ -124,6 +126,17 @@ def test_quit_with_a_trial_on_and_continue_the_job(tmp_path: Path) -> None:
             await assert_fits(app, pilot)
             await through_hands_on_gates(app, pilot)
             assert [m.mass_g for m in proc.on_rotor] == [FITTED]
+            # before the run starts: entered again (OTHER), then undone (FITTED); the demo
+            # rotor and the job's pending step follow
+            await shows(app, pilot, "f: what you fitted")
+            await enter_fitted_mass(app, pilot, f"{OTHER:.2f}")
+            assert Mass("left-wheel", OTHER, 0.0) in app.rig.masses()  # type: ignore[union-attr]
+            assert read_document(app.keeper.path, "job").pending.changes[0].mass_g == OTHER
+            await press(app, pilot, "u")
+            await shows(app, pilot, f"Undone, back to: trial {FITTED:.2f} g")
+            assert Mass("left-wheel", FITTED, 0.0) in app.rig.masses()  # type: ignore[union-attr]
+            assert Mass("left-wheel", OTHER, 0.0) not in app.rig.masses()  # type: ignore[union-attr]
+            assert read_document(app.keeper.path, "job").pending.changes[0].mass_g == FITTED
             await press(app, pilot, "q")  # quit with the trial on, before its run
 
     async def second() -> None:

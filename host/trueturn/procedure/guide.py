@@ -459,6 +459,9 @@ class Procedure:
         self._repeat_of: int | None = None  # repeat_run: the number of the run dropped
         #: fitted-mass entries at the open hands-on step: (item, before, after), for undo
         self._fits: list[tuple[int, MassChange, MassChange]] = []
+        #: the masses the hands-on step just done put on: still enterable as fitted until
+        #: the run they are for starts
+        self._placed: list[MassChange] = []
         self.resumed = False  # rebuilt from a job's runs (:meth:`restore`)
         self._after_check: Step | None = None  # a resumed job: the step after the check
 
@@ -642,6 +645,7 @@ class Procedure:
         self._confirm(now_s, f"done, safe to run: {self.step.title}", ev)
         self.ticked = set()
         self._fits = []
+        self._placed = [c for c in changes if c.action == "attach" and c.mass is not None]
         if self._after_check is not None:  # a resumed job: the rotor was checked
             self.step, self._after_check = self._after_check, None
             return changes
@@ -650,12 +654,34 @@ class Procedure:
 
     # ---- what was actually fitted ---------------------------------------------------------
     def fittable(self) -> tuple[int, ...]:
-        """The items of the open hands-on step that put a mass on the rotor (the ones
-        :meth:`fit` edits), in the step's order."""
-        if not isinstance(self.step, HandsOn):
-            return ()
-        return tuple(k for k, c in enumerate(self.step.changes)
-                     if c.action == "attach" and c.mass is not None)
+        """The items :meth:`fit` edits: at a hands-on step, its changes that put a mass on
+        the rotor (indexes into its changes); at a run not started yet, the masses the
+        hands-on step before it put on (indexes into :meth:`fit_target`'s list)."""
+        if isinstance(self.step, HandsOn):
+            return tuple(k for k, c in enumerate(self.step.changes)
+                         if c.action == "attach" and c.mass is not None)
+        if isinstance(self.step, Measure) and self.step.phase is RunPhase.ARMING:
+            return tuple(range(len(self._placed)))
+        return ()
+
+    def fit_target(self, item: int) -> MassChange:
+        """The change item ``item`` of :meth:`fittable` stands for, as it is now."""
+        if isinstance(self.step, HandsOn):
+            return self.step.changes[item]
+        return self._placed[item]
+
+    def _put(self, item: int, change: MassChange) -> None:
+        """Item ``item`` is now ``change``: in the hands-on step, or on the rotor."""
+        step = self.step
+        if isinstance(step, HandsOn):
+            changes = list(step.changes)
+            changes[item] = change
+            self.step = replace(step, changes=tuple(changes))
+            return
+        old = self._placed[item].mass
+        assert old is not None and change.mass is not None
+        self.on_rotor[self.on_rotor.index(old)] = change.mass
+        self._placed[item] = change
 
     def fit(self, item: int, *, mass_g: float | None = None, position: int | None = None,
             angle_deg: float | None = None, removal: bool | None = None) -> MassChange:
@@ -665,12 +691,13 @@ class Procedure:
         where the profile allows it). The run and every calculation after it use the
         fitted mass; the suggestion is kept beside it. Refused with one line when the
         entry is not possible; :meth:`undo_fit` takes the last entry back."""
-        step = self.step
-        if not isinstance(step, HandsOn):
-            raise GateRefused("a fitted mass is entered at the hands-on step that places it")
-        if item not in self.fittable():
+        items = self.fittable()
+        if not items:
+            raise GateRefused("a fitted mass is entered at the hands-on step that places it, "
+                              "or before its run starts")
+        if item not in items:
             raise GateRefused("that item puts no mass on the rotor")
-        change = step.changes[item]
+        change = self.fit_target(item)
         old = change.mass
         assert old is not None
         plane = self.plane(old.plane)
@@ -706,26 +733,27 @@ class Procedure:
             new = replace(new, removal=removal)
         suggested = change.suggested or old
         fitted = MassChange("attach", new, None if new == suggested else suggested)
-        changes = list(step.changes)
-        changes[item] = fitted
-        self.step = replace(step, changes=tuple(changes))
+        self._put(item, fitted)
         self._fits.append((item, change, fitted))
         return fitted
+
+    @property
+    def last_fit(self) -> MassChange | None:
+        """What the last fitted-mass entry made of its item (:meth:`undo_fit` takes it
+        back); None when there is nothing to undo."""
+        return self._fits[-1][2] if self._fits else None
 
     def undo_fit(self) -> MassChange:
         """Take back the last fitted-mass entry of the open hands-on step; returns the item
         as it is again."""
-        step = self.step
-        if not self._fits or not isinstance(step, HandsOn):
+        if not self._fits:
             raise GateRefused("no fitted mass entered at this step: nothing to undo")
         item, before, after = self._fits[-1]
-        if item >= len(step.changes) or step.changes[item] is not after:
+        if item not in self.fittable() or self.fit_target(item) is not after:
             self._fits = []
             raise GateRefused("no fitted mass entered at this step: nothing to undo")
         self._fits.pop()
-        changes = list(step.changes)
-        changes[item] = before
-        self.step = replace(step, changes=tuple(changes))
+        self._put(item, before)
         return before
 
     # ---- runs ---------------------------------------------------------------------------
@@ -738,6 +766,7 @@ class Procedure:
         text = tuple(f"{m.mass_g:.2f} g on {m.plane}: {f:.1f} N at "
                      f"{self.force_speed_rpm:.0f} rpm" for m, f in self.forces())
         self._force_text = text
+        self._fits, self._placed = [], []  # the run starts with the masses as entered
         self._confirm(now_s, f"force confirmed before: {self.step.run_label}",
                       self.watch.evidence())
         self.step = replace(self.step, phase=RunPhase.RUNNING)

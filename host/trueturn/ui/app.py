@@ -613,12 +613,24 @@ class TrueturnApp(App):
         if entry is None or proc is None:
             return
         try:
+            before = proc.fit_target(entry.item)
             change = proc.fit(entry.item, mass_g=entry.mass_g, position=entry.position,
                               angle_deg=entry.angle_deg, removal=entry.removal)
             self.message = texts.fitted_words(change, shown=self.shown())
-        except GateRefused as exc:
+        except (GateRefused, IndexError) as exc:
             self.message = f"Refused: {exc}"
+        else:
+            self._refitted(proc, before, change)
         self.tick()
+
+    def _refitted(self, proc: Procedure, before: MassChange, after: MassChange) -> None:
+        """A mass already on the rotor (its run not started) was entered otherwise: the
+        job's pending step and, in the demo, the simulated rotor follow."""
+        if isinstance(proc.step, HandsOn):
+            return  # nothing is on the rotor yet: the step's done gate applies it
+        self.keeper.refit(proc, before, after)
+        if self.rig is not None:
+            self.rig.apply((MassChange("detach", before.mass), MassChange("attach", after.mass)))
 
     def shown(self) -> texts.Shown:
         """Numbers in the machine's units (its profile's)."""
@@ -630,10 +642,14 @@ class TrueturnApp(App):
         if proc is None:
             return
         try:
+            now = proc.last_fit
             change = proc.undo_fit()
             self.message = texts.fitted_words(change, undone=True, shown=self.shown())
         except GateRefused as exc:
             self.message = f"Refused: {exc}"
+        else:
+            if now is not None:
+                self._refitted(proc, now, change)
         self.tick()
 
     def choose_mode(self, mode: Mode) -> None:

@@ -22,7 +22,7 @@ from textual.widgets import Footer, Input, Label, Static
 from trueturn.model import PlacedMass
 from trueturn.model.units import MassUnit, mass_to_g
 from trueturn.positions import index_of, number_of, position_text
-from trueturn.procedure.guide import HandsOn, Procedure
+from trueturn.procedure.guide import Procedure
 from trueturn.ui.texts import Shown
 
 
@@ -55,10 +55,9 @@ def read_entry(proc: Procedure, items: Sequence[int], part: str, mass: str, wher
     if not 1 <= number <= len(items):
         raise FitFormError(f"part: a number 1 to {len(items)}, got {number}")
     item = items[number - 1]
-    step = proc.step
-    if not isinstance(step, HandsOn):
-        raise FitFormError("the hands-on step is over")
-    mass_now = step.changes[item].mass
+    if item not in proc.fittable():
+        raise FitFormError("the step is over: nothing to enter now")
+    mass_now = proc.fit_target(item).mass
     assert mass_now is not None
     plane = proc.plane(mass_now.plane)
     mass_g = position = angle = None
@@ -108,10 +107,9 @@ class FittedForm(ModalScreen[FitEntry | None]):
         self.shown = shown or Shown()
 
     def _masses(self) -> list[PlacedMass]:
-        step = self.proc.step
-        changes = step.changes if isinstance(step, HandsOn) else ()
-        return [m for i in self.items if i < len(changes)
-                for m in (changes[i].mass,) if m is not None]
+        live = self.proc.fittable()
+        return [m for i in self.items if i in live
+                for m in (self.proc.fit_target(i).mass,) if m is not None]
 
     def _part_lines(self) -> list[str]:
         lines = []

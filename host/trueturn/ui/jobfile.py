@@ -170,28 +170,31 @@ class JobKeeper:
         if self.job is None:
             return
         pending = self.job.pending or rec.PendingStep()
-        added = []
-        for change in changes:
-            m = change.mass
-            if m is None or change.action not in ("attach", "detach"):
-                continue
-            action: Literal["attach", "remove"] = \
-                "attach" if change.action == "attach" else "remove"
-            s = change.suggested
-            suggested = None if s is None else rec.SuggestedMass(
-                abs(s.mass_g), s.angle_deg,
-                None if s.position is None else number_of(s.position), s.removal)
-            added.append(rec.MassChange(
-                action, m.plane, abs(m.mass_g), m.angle_deg, purpose=m.kind.value,
-                position=None if m.position is None else number_of(m.position),
-                radius_mm=proc.plane(m.plane).radius_mm,
-                part="drilled out" if m.removal else "", time=rec.now_iso(),
-                hole=m.removal, suggested=suggested))
+        added = [mass_record(proc, change) for change in changes
+                 if change.mass is not None and change.action in ("attach", "detach")]
         confirmations = self._new_confirmations(proc)
         step = replace(pending, changes=[*pending.changes, *added],
                        confirmations=[*pending.confirmations, *confirmations],
                        redo_of=proc.redo_of)
         self._kept(self._save("record_pending", self.job, step, self._where()), confirmations)
+
+    def refit(self, proc: Procedure, before: MassChange, after: MassChange) -> None:
+        """A mass the last hands-on step put on was entered as fitted otherwise before its
+        run started: the pending step records what is on the rotor now."""
+        if self.job is None or self.job.pending is None or before.mass is None:
+            return
+        m = before.mass
+        changes = list(self.job.pending.changes)
+        for k in range(len(changes) - 1, -1, -1):
+            c = changes[k]
+            if (c.action == "attach" and c.plane == m.plane and c.mass_g == abs(m.mass_g)
+                    and c.angle_deg == m.angle_deg and c.hole == m.removal):
+                changes[k] = replace(mass_record(proc, after), time=c.time)
+                break
+        else:
+            return
+        step = replace(self.job.pending, changes=changes)
+        self.path = self._save("record_pending", self.job, step, self._where()) or self.path
 
     def event(self, event: SafetyEvent) -> None:
         """A run stopped (alarm or by the person) is not kept, but its event is: saved at
@@ -321,6 +324,23 @@ class JobKeeper:
         self.path = saved
         self._write_report()
         return self.path
+
+
+def mass_record(proc: Procedure, change: MassChange) -> rec.MassChange:
+    """The job file's record of a mass put on (attach) or taken off (detach): what is
+    fitted, and what was suggested when it differs."""
+    m = change.mass
+    assert m is not None
+    action: Literal["attach", "remove"] = "attach" if change.action == "attach" else "remove"
+    s = change.suggested
+    suggested = None if s is None else rec.SuggestedMass(
+        abs(s.mass_g), s.angle_deg, None if s.position is None else number_of(s.position),
+        s.removal)
+    return rec.MassChange(
+        action, m.plane, abs(m.mass_g), m.angle_deg, purpose=m.kind.value,
+        position=None if m.position is None else number_of(m.position),
+        radius_mm=proc.plane(m.plane).radius_mm, part="drilled out" if m.removal else "",
+        time=rec.now_iso(), hole=m.removal, suggested=suggested)
 
 
 #: the note of an amplitude-only job (files before "four-run" said only this)

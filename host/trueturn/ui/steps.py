@@ -282,6 +282,7 @@ class RunPanel(ProcedurePanel):
     no_line: reactive[str] = reactive("")  # no tach, and no steady line in the speed band
     tach_faults: reactive[tuple[str, ...]] = reactive(())
     not_ready: reactive[str] = reactive("")
+    fittable: reactive[bool] = reactive(False)  # f: the masses just put on, as fitted (#17)
 
     def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
         super().show(proc, snap, ctx)
@@ -292,6 +293,7 @@ class RunPanel(ProcedurePanel):
         elif self.phase is RunPhase.ARMING:
             self.plan = ForcePlan(proc.setup.speed_rpm, proc.setup.max_speed_rpm,
                                   proc.force_speed_rpm, tuple(proc.forces()))
+            self.fittable = bool(proc.fittable())
         else:
             meter = snap.meter
             sensors = proc.setup.sensors
@@ -333,7 +335,7 @@ class RunPanel(ProcedurePanel):
             lines.append(texts.NO_MASS_ADDED)
         return lines + [texts.GUARDS_ON,
                         texts.ENTER_FORCES + (texts.ENTER_FORCES_DEMO if self.demo else ""),
-                        texts.A_NOT_NOW]
+                        texts.A_NOT_NOW + (texts.FIT_KEYS if self.fittable else "")]
 
     def _measuring(self) -> list[str]:
         if self.no_tach:

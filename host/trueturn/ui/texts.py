@@ -364,7 +364,7 @@ def no_tach_measuring(speed_rpm: float) -> str:
 
 # ---- resuming a job and what was fitted (issue #17) --------------------------------------
 NOTHING_TO_FIT = ("Nothing to enter: what was fitted is entered at the hands-on step that "
-                  "places a mass, before its run.")
+                  "places a mass, or before its run starts.")
 FIT_KEYS = "   [b]f[/b]: what you fitted  [b]u[/b]: undo"
 RESUMED_CHECK = "[yellow]The rotor may have been touched meanwhile: check it carries this:[/]"
 

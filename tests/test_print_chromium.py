@@ -23,6 +23,7 @@ from __future__ import annotations
 import copy
 import dataclasses
 import html
+import math
 import os
 import re
 import shutil
@@ -31,12 +32,16 @@ import xml.etree.ElementTree as ET
 from collections import Counter
 from pathlib import Path
 
+import numpy as np
 import pytest
 
+from trueturn.dsp.coast import SweepOutcome
+from trueturn.dsp.sweep import analyse_sweep
 from trueturn.jobs import JobRecord
 from trueturn.jobs.report import html_report
 from trueturn.jobs.ring import plan_tiles, ring_svg, ring_tiles_html, strip_svg
 from trueturn.jobs.store import read_document
+from trueturn.jobs.sweeps import sweep_entry
 
 DEMO_JOB = Path(__file__).parent / "data" / "demo_bench_grinder_job.yaml"
 SVG = "{http://www.w3.org/2000/svg}"
@@ -211,6 +216,40 @@ def long_words(job: JobRecord) -> JobRecord:
 def test_report_prints_whole_on_the_paper(job: JobRecord, paper: str, which: str,
                                           tmp_path: Path) -> None:
     chosen = {"metric": job, "imperial": imperial(job), "long": long_words(job)}[which]
+    # the demo job: two plots, four runs, eight part changes
+    check_printed_report(chosen, paper, which, tmp_path, range(2, 5))
+
+
+def with_sweep(job: JobRecord) -> JobRecord:
+    """The demo job with a coast-down kept after its first run: the response of a
+    single-degree-of-freedom support to a rotating unbalance (S. S. Rao, Mechanical
+    Vibrations, rotating unbalance, from memory) seen by an accelerometer at both pickups,
+    natural speed 1000 rpm, 4 % damping, 3600 rpm down to 300 rpm."""
+    other = copy.deepcopy(job)
+    speeds = np.repeat(1000.0 * 0.3 * np.exp(np.arange(0.0, math.log(12.0), 0.004)), 3)
+    r = speeds / 1000.0
+    response = np.conj(-(speeds / 1000.0) ** 2 * r ** 2 / ((1 - r ** 2) + 2j * 0.04 * r))
+    names = [p.name for p in other.machine.pickups]
+    sweep = analyse_sweep(speeds, {n: response * (1 + 0.2 * k) for k, n in enumerate(names)},
+                          {n: np.full(speeds.size, 1e-3) for n in names}, "g pk")
+    assert sweep.resonances  # what the table is about
+    other.runs[0].sweeps = [sweep_entry(SweepOutcome("coastdown", sweep, 3600.0, ()))]
+    return other
+
+
+@pytest.mark.parametrize("paper", ["A4", "letter"])
+def test_report_with_a_sweep_prints_whole_on_the_paper(job: JobRecord, paper: str,
+                                                       tmp_path: Path) -> None:
+    chosen = with_sweep(job)
+    text = html_report(chosen)
+    assert 'id="sweeps"' in text and 'class="resonances"' in text
+    check_printed_report(chosen, paper, "sweep", tmp_path, range(2, 6))
+
+
+def check_printed_report(chosen: JobRecord, paper: str, which: str, tmp_path: Path,
+                         page_counts: range) -> None:
+    """Print the report; every page the paper's size with its footer, every word inside the
+    margins, at 7 pt or more and clear of the others, nothing painted past the margins."""
     source = tmp_path / f"report-{which}.html"
     source.write_text(html_report(chosen, generated="2026-12-01T10:00:00Z"), encoding="utf-8")
     pdf = print_pdf(source, paper, tmp_path)
@@ -226,7 +265,7 @@ def test_report_prints_whole_on_the_paper(job: JobRecord, paper: str, which: str
         # the id, or for a very long one its start and its end (with the running number)
         assert chosen.job_id in footer or (chosen.job_id[:30] in footer
                                            and chosen.job_id[-15:] in footer)
-    assert 2 <= len(pages) <= 4  # the demo job: two plots, four runs, eight part changes
+    assert len(pages) in page_counts
     title = next(w for w in pages[0].words if w.text == "Balancing")  # the 15 pt heading
     for number, page in enumerate(pages, start=1):
         # every word inside the 12 mm margins (0.2 mm for the glyphs' side bearings)

@@ -12,9 +12,8 @@ from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, replace
 from typing import Any
 
-import numpy as np
-
 from trueturn.dsp.averaging import SteadinessLimits
+from trueturn.dsp.coast import meter_sweep, sweep_findings
 from trueturn.dsp.findings import Code, Finding, describe, unique
 from trueturn.dsp.meter import LiveAnalyzer, PickupReading
 from trueturn.dsp.severity import (
@@ -35,10 +34,8 @@ from trueturn.dsp.sweep import (
     RESONANCE_MARGIN,
     SpeedSlope,
     Sweep,
-    analyse_sweep,
     balancing_speed_rpm,
     local_slope,
-    near_resonances,
     rise_below_first_resonance,
 )
 from trueturn.dsp.unbalance import (
@@ -347,20 +344,11 @@ def analyze_capture(raw: bytes | Iterable[bytes], revs: int | None = None,
                     "other_mains_hz": other_mains, "mains_hz": mains_hz}))
     speed = float(meter.speeds_rpm().mean()) if meter.tach.revolutions and len(
         meter.speeds_rpm()) else math.nan
-    swept = _sweep(meter, unit) if sweep and readings else None
+    swept = meter_sweep(meter, unit) if sweep and readings else None
     slopes: list[SpeedSlope] = []
     if swept is not None:
-        at = balancing_speed_rpm(swept)
-        if not swept.is_sweep:
-            found.append(Finding(Code.NO_SPEED_CHANGE, details={
-                "low_rpm": round(swept.low_rpm, 1), "high_rpm": round(swept.high_rpm, 1),
-                "ratio_needed": MIN_SWEEP_RATIO}))
-        elif at is not None:
-            for res in near_resonances(at, swept.resonances):
-                found.append(Finding(Code.NEAR_RESONANCE, res.pickup, details={
-                    "speed_rpm": round(at, 1), "resonance_rpm": round(res.speed_rpm, 1),
-                    "damping_ratio": None if res.damping_ratio is None
-                    else round(res.damping_ratio, 4), "margin": RESONANCE_MARGIN}))
+        at, said = sweep_findings(swept)
+        found += said
         if at is not None:
             for reading in readings:
                 slope = local_slope(swept.points, reading.sensor, at)
@@ -370,20 +358,6 @@ def analyze_capture(raw: bytes | Iterable[bytes], revs: int | None = None,
     severity, unbalance = _judge(meter, full_spectra, readings, speed, swept)
     return Analysis(speed, readings, tuple(spectra), tuple(describe(f) for f in found),
                     c.to_json(), tuple(found), severity, unbalance, swept, tuple(slopes))
-
-
-def _sweep(meter: LiveAnalyzer, unit: str | None) -> Sweep:
-    """Every held revolution's 1x binned against speed (dsp/sweep.py), in one unit for all
-    pickups (volts when they differ, e.g. one without a sensitivity)."""
-    channels = range(meter.channels)
-    vectors = [meter.revolution_vectors(c, unit) for c in channels]
-    if len({v[3] for v in vectors}) > 1:
-        vectors = [meter.revolution_vectors(c, "V pk") for c in channels]
-    speeds = vectors[0][0] if vectors else np.zeros(0)
-    kept = [(c, v) for c, v in zip(channels, vectors, strict=True) if len(v[0]) == len(speeds)]
-    return analyse_sweep(speeds, {meter.profile(c).name: v[1] for c, v in kept},
-                         {meter.profile(c).name: v[2] for c, v in kept},
-                         vectors[0][3] if vectors else "V pk")
 
 
 def compare_starts(first: Analysis, second: Analysis) -> Analysis:

@@ -400,7 +400,8 @@ def describe(finding: Finding, brief: bool = False) -> str:
         The finding.
     brief : bool, default False
         A few plain words where the app has them (the tach codes; a severity with a zone,
-        without its band; the unbalance verdict; a repeated 1x), else the sentence.
+        without its band; the unbalance verdict; a repeated 1x; a resonance near the
+        balancing speed), else the sentence.
 
     Returns
     -------
@@ -422,6 +423,11 @@ def describe(finding: Finding, brief: bool = False) -> str:
         size = f", x{ratio:.2f}" if ratio is not None else ""
         text = (f"1x repeats after a restart "
                 f"({abs(_n(finding, 'phase_change_deg', 0.0)):.0f}° apart{size})")
+        return f"{finding.pickup}: {text}" if finding.pickup else text
+    if brief and finding.code is Code.NEAR_RESONANCE:
+        text = (f"balancing speed {_n(finding, 'speed_rpm'):.0f} rpm within "
+                f"{100 * _n(finding, 'margin'):.0f} % of a resonance at "
+                f"{_n(finding, 'resonance_rpm'):.0f} rpm")
         return f"{finding.pickup}: {text}" if finding.pickup else text
     if brief and finding.code in _BRIEF:
         count = f" ({finding.count})" if finding.count else ""

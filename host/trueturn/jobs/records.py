@@ -202,6 +202,62 @@ class StopEntry:
 
 
 @dataclass
+class SweepValueEntry:
+    """One pickup's 1x at one sweep point: amplitude (the sweep's unit), phase (degrees,
+    lag after the tach edge), 95 % circle radius (unit)."""
+
+    pickup: str = field(metadata=limits(nonempty=True))
+    amplitude: float = field(metadata=limits(minimum=0))
+    phase_deg: float = field(metadata=limits(minimum=0, below=360))
+    confidence_radius: float = field(metadata=limits(minimum=0))
+
+
+@dataclass
+class SweepPointEntry:
+    """One speed bin of a sweep: its mean speed, the revolutions in it, each pickup's 1x."""
+
+    speed_rpm: float = field(metadata=limits(above=0))
+    revolutions: int = field(metadata=limits(minimum=1))
+    pickups: list[SweepValueEntry] = field(metadata=limits(nonempty=True))
+
+
+@dataclass
+class ResonanceEntry:
+    """A support resonance found at one pickup (dsp/sweep.py, half-power bandwidth): its
+    speed, damping ratio and half-power band (None when not resolved), the measured points in
+    the band, how far the peak stands above its valleys, and the one-mode curve fit's check."""
+
+    speed_rpm: float = field(metadata=limits(above=0))
+    pickup: str = field(metadata=limits(nonempty=True))
+    damping_ratio: float | None = field(default=None, metadata=limits(above=0))
+    lower_rpm: float | None = field(default=None, metadata=limits(above=0))
+    upper_rpm: float | None = field(default=None, metadata=limits(above=0))
+    points_in_band: int = field(default=0, metadata=limits(minimum=0))
+    peak_ratio: float = field(default=1.0, metadata=limits(minimum=0))
+    method: Literal["half_power"] = "half_power"
+    fit_speed_rpm: float | None = field(default=None, metadata=limits(above=0))
+    fit_damping_ratio: float | None = field(default=None, metadata=limits(above=0))
+    single_mode: bool | None = None
+
+
+@dataclass
+class SweepEntry:
+    """A coast-down or run-up met after (or before) a run (issue #20): the 1x against speed
+    per pickup, in ``unit`` (a dsp unit label), slowest point first, and the resonances
+    found; ``balancing_rpm`` the steady speed it started from (coast-down) or reached
+    (run-up), None when it held no steady stretch."""
+
+    kind: Literal["coastdown", "runup"]
+    time: str = field(metadata=limits(nonempty=True))
+    unit: str = field(metadata=limits(nonempty=True))
+    low_rpm: float = field(metadata=limits(above=0))
+    high_rpm: float = field(metadata=limits(above=0))
+    points: list[SweepPointEntry] = field(metadata=limits(nonempty=True))
+    resonances: list[ResonanceEntry] = field(default_factory=list)
+    balancing_rpm: float | None = field(default=None, metadata=limits(above=0))
+
+
+@dataclass
 class RunEntry:
     """One measurement run, with what was done on the rotor before it and computed after it."""
 
@@ -225,6 +281,9 @@ class RunEntry:
     #: the index of an earlier run this one measured again (a trial redone larger, a run
     #: off speed, a reading that could not be used): the later one counts (issue #17)
     replaces: int | None = field(default=None, metadata=limits(minimum=1))
+    #: the run-up before it and the coast-down after it, when the app saw them (issue #20);
+    #: optional, so files without them read as before (no migration)
+    sweeps: list[SweepEntry] = field(default_factory=list)
 
     def reading(self, sensor: str) -> Reading | None:
         """This run's reading of ``sensor``, or None."""

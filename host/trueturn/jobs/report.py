@@ -30,7 +30,8 @@ from datetime import datetime, timezone
 from trueturn.angles import Rotation, screen_xy, wrap_deg
 from trueturn.balance.iso21940 import permissible_eccentricity_um, permissible_unbalance_gmm
 from trueturn.constants import UM_PER_MIL
-from trueturn.dsp.findings import describe
+from trueturn.dsp.coast import sweep_findings
+from trueturn.dsp.findings import Code, describe
 from trueturn.dsp.severity import ZONES_SOURCE
 from trueturn.jobs.condition import evidence_finding, severity_finding, verdict_finding
 from trueturn.jobs.profiles import (
@@ -42,6 +43,8 @@ from trueturn.jobs.profiles import (
     format_mass,
 )
 from trueturn.jobs.records import EvidenceEntry, JobRecord, RunEntry, UnbalanceEntry
+from trueturn.jobs.sweep_plot import sweep_svg
+from trueturn.jobs.sweeps import sweep_of
 from trueturn.model import Reading
 from trueturn.model import units as model_units
 from trueturn.positions import degrees_text, number_of, position_text
@@ -760,6 +763,7 @@ figure { margin: 0; flex: 0 1 auto; max-width: 100%; }
 figure svg { display: block; max-width: 100%; height: auto; }
 figure.polar-fig { width: 88mm; }
 figure.plane-fig { width: 58mm; }
+figure.sweep-fig { width: 100%; break-inside: avoid; }
 figcaption { font-size: 7.5pt; color: #333; }
 svg text { font-family: "DejaVu Sans", Arial, sans-serif; }
 svg .tick { font-size: 10px; fill: #333; }
@@ -879,6 +883,65 @@ def _verdict_line(job: JobRecord) -> tuple[str, str]:
             f"grade G {v.grade:g} ({v.standard}).")
 
 
+#: the sweep picture's label size in its own units: drawn 1002 units wide and shrunk to the
+#: A4 text width (186 mm = 703 CSS px), 14 units print at 14 x 703 / 1002 = 9.8 px = 7.4 pt
+SWEEP_FONT_PX = 14.0
+SWEEP_KIND_WORDS = {"coastdown": "coast-down after", "runup": "run-up to"}
+
+
+def resonance_rows(job: JobRecord) -> list[list[str]]:
+    """One row per resonance of every sweep the job keeps: run, sweep, pickup, speed,
+    damping, half-power band, the one-mode fit's check."""
+    rows = []
+    for run in job.runs:
+        for sw in run.sweeps:
+            for r in sw.resonances:
+                damping = ("not resolved" if r.damping_ratio is None
+                           else f"{100 * r.damping_ratio:.1f} %")
+                band = ("-" if r.lower_rpm is None or r.upper_rpm is None
+                        else f"{r.lower_rpm:.0f}-{r.upper_rpm:.0f} rpm")
+                check = ("-" if r.single_mode is None else "not one mode" if not r.single_mode
+                         else f"{r.fit_speed_rpm:.0f} rpm, {100 * (r.fit_damping_ratio or 0):.1f} %")
+                rows.append([f"{run.index} {run.label}".strip(),
+                             SWEEP_KIND_WORDS[sw.kind].split()[0], r.pickup,
+                             f"{r.speed_rpm:.0f} rpm", damping, band, check])
+    return rows
+
+
+def sweep_section(job: JobRecord) -> list[str]:
+    """The coast-downs and run-ups kept with the runs (issue #20): each one's Bode and polar
+    plot, the resonances table and, when the balancing speed sits near a resonance, the
+    warning in the findings' words; nothing when the job keeps none."""
+    kept = [(run, sw) for run in job.runs for sw in run.sweeps]
+    if not kept:
+        return []
+    parts = ['<h2 id="sweeps">Coast-down and run-up sweeps</h2>']
+    warnings: list[str] = []
+    for run, sw in kept:
+        sweep = sweep_of(sw)
+        title = f"{SWEEP_KIND_WORDS[sw.kind]} run {run.index}"
+        parts.append(f'<figure class="sweep-fig">'
+                     f'{sweep_svg(sweep, title, job.machine.rotation, SWEEP_FONT_PX)}'
+                     f'<figcaption>Bode plot (1x amplitude and phase lag against speed) and '
+                     f'polar plot of the {_e(SWEEP_KIND_WORDS[sw.kind])} run {run.index}: '
+                     f'{len(sw.points)} speeds from {sw.low_rpm:.0f} to {sw.high_rpm:.0f} rpm, '
+                     f'in {_e(sw.unit)}.</figcaption></figure>')
+        warnings += [describe(f) for f in sweep_findings(sweep)[1]
+                     if f.code is Code.NEAR_RESONANCE]
+    rows = resonance_rows(job)
+    if rows:
+        parts.append(_html_table(["Run", "Sweep", "Pickup", "Resonance", "Damping",
+                                  "Half-power band", "One-mode fit"], rows, "resonances"))
+    else:
+        parts.append('<p class="note">No resonance found in the sweeps.</p>')
+    parts += [f'<p class="note warning">{_e(w)}</p>' for w in dict.fromkeys(warnings)]
+    parts.append('<p class="note">Resonances by the half-power bandwidth method on the 1x '
+                 'per unit unbalance force (D. J. Ewins, Modal Testing, 2000, sec. 4.2), '
+                 'checked by a one-mode curve fit; damping is given only when at least three '
+                 'measured speeds lie in the half-power band.</p>')
+    return parts
+
+
 def signoff_rows(job: JobRecord) -> list[str]:
     """The lines left blank for a person to fill in by hand on the printed report."""
     return ["Machine serial number", "Balanced by (name)", "Signature", "Date"]
@@ -947,6 +1010,7 @@ def html_report(job: JobRecord, generated: str = "") -> str:
     # plots (about 95 mm tall) start the next one instead of leaving half a page empty
     parts += ['<h2>Runs</h2>', _html_table(header, rows, "runs")]
     parts += ['<div class="figures">', *figures, '</div>']
+    parts += sweep_section(job)
     rows = correction_rows(job)
     parts.append('<h2>Corrections and parts</h2>')
     if rows:

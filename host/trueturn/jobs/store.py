@@ -42,6 +42,7 @@ from trueturn.jobs.records import (
     RunEntry,
     SecondStartEntry,
     StopEntry,
+    SweepEntry,
     UnbalanceEntry,
     VerdictEntry,
     now_iso,
@@ -423,6 +424,23 @@ class Workspace:
             job.runs.pop()
             (job.pending, job.updated, run.changes, run.confirmations, run.notes,
              run.events) = before
+            raise
+
+    def record_sweep(self, job: JobRecord, run_index: int, sweep: SweepEntry,
+                     path: str | os.PathLike[str] | None = None) -> Path:
+        """Keep a coast-down or run-up with the run it followed or led to (issue #20) and
+        save at once; a closed job takes it too (the coast-down of its last run ends after
+        the verdict was closed, and is a measurement of that run). If the save fails,
+        ``job`` is left as it was."""
+        if not 1 <= run_index <= len(job.runs):
+            raise ValueError(f"run {run_index} is not recorded in job {job.job_id}")
+        run = job.runs[run_index - 1]
+        before = list(run.sweeps)
+        run.sweeps = [*(s for s in run.sweeps if s.kind != sweep.kind), sweep]
+        try:
+            return self.save_job(job, path)
+        except BaseException:
+            run.sweeps = before
             raise
 
     def record_pending(self, job: JobRecord, pending: PendingStep,

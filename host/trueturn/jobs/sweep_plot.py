@@ -8,8 +8,7 @@ grey: their phase means little. Angles on the polar plot go through
 :func:`trueturn.angles.screen_xy` (0 deg at the top, the lag increasing the way the rotor
 turns as drawn); without a machine profile the picture assumes a counter-clockwise rotor.
 
-Kept apart from :mod:`trueturn.jobs.report` so the report can take it in when a job holds a
-sweep (it does not yet).
+Kept apart from :mod:`trueturn.jobs.report`, which draws the sweeps a job keeps with it.
 """
 
 from __future__ import annotations
@@ -43,7 +42,7 @@ def _nice(value: float) -> float:
 
 
 def sweep_svg(sweep: Sweep, title: str = "1x against speed",
-              rotation: Rotation = "ccw") -> str:
+              rotation: Rotation = "ccw", font_px: float = 11.0) -> str:
     """The sweep as a standalone SVG document (Bode amplitude and phase, and polar).
 
     Parameters
@@ -54,6 +53,9 @@ def sweep_svg(sweep: Sweep, title: str = "1x against speed",
         The picture's title.
     rotation : {"ccw", "cw"}, default "ccw"
         The rotor's direction as seen on the polar plot.
+    font_px : float, default 11
+        The labels' size in the picture's units (the report asks for more, so that the
+        picture shrunk to the paper's width still prints its labels at 7 pt or more).
 
     Returns
     -------
@@ -65,9 +67,9 @@ def sweep_svg(sweep: Sweep, title: str = "1x against speed",
     height = 40 + ROW_HEIGHT * max(1, len(names)) + 30
     out = [f'<svg xmlns="http://www.w3.org/2000/svg" width="{width}" height="{height}" '
            f'viewBox="0 0 {width} {height}" role="img" aria-label="{_e(title)}" '
-           'font-family="sans-serif" font-size="11">',
+           f'font-family="sans-serif" font-size="{font_px:g}">',
            f'<title>{_e(title)}</title>',
-           f'<text x="{MARGIN}" y="22" font-size="14">{_e(title)} ({_e(sweep.unit)}; '
+           f'<text x="{MARGIN}" y="22" font-size="{font_px + 3:g}">{_e(title)} ({_e(sweep.unit)}; '
            'hollow grey: below its noise)</text>']
     if not sweep.points:
         out.append(f'<text x="{MARGIN}" y="60">no revolutions to plot</text></svg>')
@@ -91,13 +93,13 @@ def sweep_svg(sweep: Sweep, title: str = "1x against speed",
 
         # --- amplitude against speed
         out.append(_frame(x0, top + 10, panel_h, f"{name}: amplitude ({sweep.unit})",
-                          f"0 .. {amp_top:g}", lo, hi))
+                          f"0 .. {amp_top:g}", lo, hi, font_px))
         out.append(_series([(sx(s, x0), top + 10 + panel_h * (1 - v.amplitude / amp_top),
                              v.usable) for s, v in values], colour))
         # --- phase against speed (lag, 0-360)
         x1 = x0 + PANEL_WIDTH + MARGIN
         out.append(_frame(x1, top + 10, panel_h, f"{name}: phase lag (deg)", "0 .. 360",
-                          lo, hi))
+                          lo, hi, font_px))
         out.append(_series([(sx(s, x1), top + 10 + panel_h * (1 - v.phase_deg / 360.0),
                              v.usable) for s, v in values], colour, joined=False))
         for k, r in enumerate(resonances):
@@ -108,7 +110,7 @@ def sweep_svg(sweep: Sweep, title: str = "1x against speed",
             damping = ("damping not resolved" if r.damping_ratio is None
                        else f"damping {100 * r.damping_ratio:.1f} %")
             out.append(f'<text class="resonance" x="{sx(r.speed_rpm, x0) + 3:.1f}" '
-                       f'y="{top + 24 + 13 * k}">{r.speed_rpm:.0f} rpm, {damping}</text>')
+                       f'y="{top + 13 + 1.2 * font_px * (k + 1):.1f}">{r.speed_rpm:.0f} rpm, {damping}</text>')
         # --- polar: the vectors from slowest to fastest
         cx = x1 + PANEL_WIDTH + MARGIN + POLAR_SIZE / 2
         cy = top + 10 + panel_h / 2
@@ -117,8 +119,9 @@ def sweep_svg(sweep: Sweep, title: str = "1x against speed",
                    'stroke="#bbb"/>')
         for angle in (0, 90, 180, 270):
             tx, ty = screen_xy(angle, rotation)
-            out.append(f'<text x="{cx + (radius + 12) * tx:.1f}" '
-                       f'y="{cy + (radius + 12) * ty + 4:.1f}" text-anchor="middle" '
+            out.append(f'<text x="{cx + (radius + font_px + 1) * tx:.1f}" '
+                       f'y="{cy + (radius + font_px + 1) * ty + font_px / 3:.1f}" '
+                       'text-anchor="middle" '
                        f'fill="#666">{angle}\u00b0</text>')
         polar = []
         for _, v in values:
@@ -126,20 +129,22 @@ def sweep_svg(sweep: Sweep, title: str = "1x against speed",
             scale = radius * v.amplitude / amp_top
             polar.append((cx + scale * ux, cy + scale * uy, v.usable))
         out.append(_series(polar, colour))
-        out.append(f'<text x="{cx:.1f}" y="{top + panel_h + 40:.1f}" text-anchor="middle">'
+        out.append(f'<text x="{cx:.1f}" y="{top + panel_h + 26 + 1.3 * font_px:.1f}" '
+                   'text-anchor="middle">'
                    f'{_e(name)}: polar, ring {amp_top:g}</text>')
     out.append("</svg>")
     return "\n".join(out)
 
 
 def _frame(left: float, top: float, height: float, label: str, scale: str,
-           lo: float, hi: float) -> str:
+           lo: float, hi: float, font_px: float = 11.0) -> str:
     """A panel's box, its label, scale and speed axis ends."""
     return (f'<rect x="{left}" y="{top}" width="{PANEL_WIDTH}" height="{height}" fill="none" '
             f'stroke="#888"/>'
             f'<text x="{left}" y="{top - 3}">{_e(label)}, {scale}</text>'
-            f'<text x="{left}" y="{top + height + 14}">{lo:.0f} rpm</text>'
-            f'<text x="{left + PANEL_WIDTH}" y="{top + height + 14}" text-anchor="end">'
+            f'<text x="{left}" y="{top + height + font_px + 3:g}">{lo:.0f} rpm</text>'
+            f'<text x="{left + PANEL_WIDTH}" y="{top + height + font_px + 3:g}" '
+            'text-anchor="end">'
             f'{hi:.0f} rpm</text>')
 
 

@@ -27,7 +27,8 @@ from textual.widgets import ContentSwitcher, Footer, Static
 from textual.worker import get_current_worker
 
 from trueturn.dsp.analysis import judge_second_start
-from trueturn.dsp.findings import Finding
+from trueturn.dsp.coast import SweepOutcome
+from trueturn.dsp.findings import Finding, describe
 from trueturn.dsp.severity import Severity
 from trueturn.dsp.tachless import speed_band_hz
 from trueturn.dsp.unbalance import failing_rules, same_speed
@@ -68,6 +69,7 @@ from trueturn.ui.rig import DemoRig
 from trueturn.ui.savefolder import SaveFolderPrompt
 from trueturn.ui.session import Clock, LinkProblem, LinkSession, SessionFactory, Snapshot
 from trueturn.ui.steps import GuideContext, GuideView
+from trueturn.ui.sweepview import ShownSweep, SweepView
 from trueturn.ui.texts import CAUTIONS, keys_markup
 from trueturn.ui.views import MeterView, SpectrumView, StatusStrip
 
@@ -250,6 +252,7 @@ class BenchScreen(Screen):
     BINDINGS = [
         Binding("m", "view('meter-view')", "Meter"),
         Binding("s", "view('spectrum-view')", "Spectrum"),
+        Binding("v", "view('sweep-view')", "Sweep", show=False),
         Binding("g", "view('guide-view')", "Guide"),
         Binding("enter", "confirm", "Confirm"),
         *(Binding(key, f"choose({key})", show=False) for key in texts.MODE_KEYS),
@@ -283,6 +286,7 @@ class BenchScreen(Screen):
         with ContentSwitcher(initial="guide-view", id="views"):
             yield MeterView(id="meter-view")
             yield SpectrumView(id="spectrum-view")
+            yield SweepView(id="sweep-view")
             yield GuideView(id="guide-view")
         yield Footer()
 
@@ -389,6 +393,12 @@ class TrueturnApp(App):
         self.bench: BenchScreen | None = None
         self._saved_cache: dict[str, CoefficientSet | None] = {}
         self.open_job: OpenJob | None = None  # offered at the set-up (Enter continues it)
+        #: sweeps (issue #20): the last one met, the job's run the recording belongs to,
+        #: and whether it is a coast-down ending at standstill
+        self.sweep_shown: ShownSweep | None = None
+        self.sweep_run: int | None = None
+        self.sweep_label = ""
+        self.sweep_coasting = False
 
     # ---- lifecycle ----------------------------------------------------------------------
     def on_mount(self) -> None:
@@ -769,6 +779,7 @@ class TrueturnApp(App):
                 proc.arm_run(True, now)
                 self.quit_armed = False
                 self.session.reset_meter()
+                self.start_sweep(None, coasting=False)  # the run-up
                 self.alarm = None
                 if self.rig is not None:
                     self.rig.motor(True)
@@ -884,6 +895,9 @@ class TrueturnApp(App):
         if proc is not None and proc.check_ticks():
             self.message = texts.TICKS_CLEARED
         self._run_logic(snap)
+        if self.sweep_coasting and snap.standstill:
+            self.sweep_coasting = False
+            self.keep_sweep(self.session.finish_sweep())
         bench.query_one("#status", StatusStrip).show(
             snap, machine=self.config.profile.name, demo=self.config.demo,
             identity=self.session.identity, link_error=self.link_error,
@@ -894,6 +908,9 @@ class TrueturnApp(App):
                 self.config.profile.rotation, texts.Shown(self.config.profile.units.choice()))
         elif current == "spectrum-view":
             bench.query_one("#spectrum-view", SpectrumView).show(snap)
+        elif current == "sweep-view":
+            bench.query_one("#sweep-view", SweepView).show(
+                self.sweep_shown, snap.meter.sensors, self.shown())
         else:
             self._draw_guide(bench, snap)
 
@@ -930,6 +947,7 @@ class TrueturnApp(App):
                     run.kind is RunKind.AS_FOUND))
             if run is not proc.second_start:
                 self.keeper.run(proc, run, condition)
+            self.start_sweep(run, coasting=True)  # the run-up ends, the coast-down follows
             if condition is not None and run.kind is RunKind.AS_FOUND:
                 self.as_found_condition = condition
                 proc.as_found_judged(failing_rules(condition[1]))
@@ -944,6 +962,37 @@ class TrueturnApp(App):
                 self.message += f" It started over after {over[-1]}."
             if note:
                 self.message += f" {note}"
+
+    # ---- sweeps (issue #20) ---------------------------------------------------------------
+    def start_sweep(self, run: Run | None, coasting: bool) -> None:
+        """Keep each revolution's 1x from now: a run-up (at arming, ``run`` None) or the
+        coast-down after ``run``; the recording going on till now is finished and kept
+        first (at ``run``'s end: its run-up, kept with it)."""
+        if run is not None:
+            job = self.keeper.job
+            proc = self.procedure
+            kept = job is not None and bool(job.runs) and (
+                proc is None or run is not proc.second_start)
+            self.sweep_run = len(job.runs) if kept and job is not None else None
+            self.sweep_label = run.label
+        self.keep_sweep(self.session.start_sweep())
+        if run is None:
+            self.sweep_run, self.sweep_label = None, ""
+        self.sweep_coasting = coasting
+
+    def keep_sweep(self, outcome: SweepOutcome | None) -> None:
+        """Show a finished sweep, and keep it with its run in the job."""
+        if outcome is None:
+            return
+        self.sweep_shown = ShownSweep(outcome, self.sweep_label)
+        if self.sweep_run is not None:
+            self.keeper.sweep(self.sweep_run, outcome)
+
+    def sweep_warnings(self) -> tuple[str, ...]:
+        """The last sweep's findings (a resonance near the balancing speed), in words."""
+        if self.sweep_shown is None:
+            return ()
+        return tuple(describe(f) for f in self.sweep_shown.outcome.findings)
 
     def _judge_second_start(self, proc: Procedure, run: Run) -> str:
         """A second start as found: compare its 1x with the first start's (issue #22), keep
@@ -983,7 +1032,7 @@ class TrueturnApp(App):
             saved_trim=proc is None and self.saved_coefficients() is not None,
             job_path=self.keeper.path, report_path=self.keeper.report_path,
             open_job=texts.open_job_lines(self.open_job) if proc is None else (),
-            condition=self.condition if proc is not None else (),
+            condition=(*self.condition, *self.sweep_warnings()) if proc is not None else (),
             message=texts.plain(texts.not_saved(self.keeper.unsaved)
                                 if self.keeper.unsaved and not self.quit_armed
                                 else self.message),

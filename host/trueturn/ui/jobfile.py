@@ -13,6 +13,7 @@ from dataclasses import replace
 from pathlib import Path
 from typing import Literal, cast
 
+from trueturn.dsp.coast import SweepOutcome
 from trueturn.dsp.findings import Finding
 from trueturn.dsp.severity import Severity
 from trueturn.errors import UserError
@@ -21,6 +22,7 @@ from trueturn.jobs.condition import severity_entries, unbalance_entry
 from trueturn.jobs.profiles import MachineProfile
 from trueturn.jobs.report import html_report
 from trueturn.jobs.store import Workspace, atomic_write_text
+from trueturn.jobs.sweeps import sweep_entry
 from trueturn.model import Run, RunKind, SafetyEvent
 from trueturn.model.units import VIBRATION_UNIT_LABELS
 from trueturn.positions import number_of
@@ -259,6 +261,19 @@ class JobKeeper:
                                      severity_entries(severity))
         self.path = self._save("record_second_start", self.job, entry,
                                unbalance_entry(unbalance), self._where()) or self.path
+
+    def sweep(self, run_index: int, outcome: SweepOutcome) -> None:
+        """Keep a coast-down or run-up with run ``run_index`` of the job (issue #20); a
+        closed job's report is written again with it."""
+        if self.job is None or not 1 <= run_index <= len(self.job.runs):
+            return
+        saved = self._save("record_sweep", self.job, run_index, sweep_entry(outcome),
+                           self._where())
+        if saved is None:
+            return
+        self.path = saved
+        if self.job.status == "closed":
+            self._write_report()
 
     def stop(self, proc: Procedure) -> Path | None:
         """Close the job without a verdict because the person stopped it (the reason kept),

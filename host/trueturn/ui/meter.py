@@ -14,6 +14,7 @@ from typing import Any
 
 from trueturn.dsp.analysis import machine_condition
 from trueturn.dsp.averaging import SteadinessLimits
+from trueturn.dsp.coast import SweepRecorder
 from trueturn.dsp.findings import TACH_LINE, Code, Finding, describe
 from trueturn.dsp.meter import LiveAnalyzer
 from trueturn.dsp.severity import Severity
@@ -85,6 +86,8 @@ class MeterAdapter:
         self.analyzer = self._new()
         #: without a tach (amplitude-only procedure): speed and 1x from the spectrum
         self.tachless: TachlessMeter | None = None
+        #: each revolution's 1x kept across a coast-down or run-up (issue #20), or None
+        self.sweep: SweepRecorder | None = None
 
     def for_machine(self, sensor_names: Sequence[str], mains_hz: float,
                     pickups: Sequence[Any]) -> MeterAdapter:
@@ -137,6 +140,21 @@ class MeterAdapter:
         self.analyzer.feed(msg)
         if self.tachless is not None:
             self.tachless.feed(msg)
+        if self.sweep is not None:
+            self.sweep.feed(msg)
+
+    def start_sweep(self) -> SweepRecorder | None:
+        """Keep every revolution's 1x from now on (a coast-down or run-up may follow);
+        returns the recorder of the recording going on till now (finish it), or None."""
+        done = self.sweep
+        self.sweep = SweepRecorder(self.profiles, self.mains_hz,
+                                   [m for m in (self._identity, self._config) if m is not None])
+        return done
+
+    def stop_sweep(self) -> SweepRecorder | None:
+        """Stop keeping revolutions; the recorder (finish it), or None."""
+        done, self.sweep = self.sweep, None
+        return done
 
     def condition(self) -> tuple[tuple[Severity, ...], tuple[Finding, ...]]:
         """The machine's overall severity and the unbalance verdict from this run so far."""

@@ -17,6 +17,7 @@ from typing import Any, Protocol
 
 import serial
 
+from trueturn.dsp.coast import SweepOutcome
 from trueturn.dsp.motion import MotionMonitor
 from trueturn.errors import UserError
 from trueturn.jobs.profiles import MachineProfile
@@ -404,6 +405,24 @@ class LinkSession:
         """Start averaging afresh (a new run)."""
         with self._state:
             self.meter.reset()
+
+    def start_sweep(self) -> SweepOutcome | None:
+        """Keep each revolution's 1x from now on for a sweep (:meth:`MeterAdapter.start_sweep`);
+        returns the recording this one replaces, as a sweep, or None."""
+        with self._state:
+            done = self.meter.start_sweep()
+        return done.finish() if done is not None else None  # the fits outside the lock
+
+    def finish_sweep(self) -> SweepOutcome | None:
+        """The recording since :meth:`start_sweep` as a sweep, or None; stops recording."""
+        with self._state:
+            done = self.meter.stop_sweep()
+        return done.finish() if done is not None else None
+
+    @property
+    def sweeping(self) -> bool:
+        """A sweep is being recorded."""
+        return self.meter.sweep is not None
 
     def snapshot(self) -> Snapshot:
         """A copy of the live state for the screens."""

@@ -103,6 +103,7 @@ def key_list(keys: Sequence[str]) -> str:
 KEYS: list[tuple[str, str]] = [
     ("m", "Meter: live 1x amplitude, phase, speed, polar plot"),
     ("s", "Spectrum with labelled peaks"),
+    ("v", "Sweep: the last coast-down or run-up, 1x against speed, resonances"),
     ("g", "Guide: the balancing procedure"),
     (" ".join(MODE_KEYS), "Set-up: one plane / two planes / amplitude only / one-run trim"),
     ("Enter", "Set-up: continue the open job offered (1-4 start a new one)"),

@@ -1,0 +1,173 @@
+"""Sweeps met while a meter is connected: each revolution's 1x kept from a start to a stop.
+
+The app's run meter averages a sliding window and starts afresh for every run, so it cannot
+hold a whole coast-down. A :class:`SweepRecorder` is a second, bounded store fed the same
+messages: every revolution's 1x per pickup, the last :data:`MAX_SWEEP_REVS` of them, from
+the moment it is started (a run's end, with the machine still at speed; or the arming of a
+run, at standstill) to the moment it is finished (standstill proven; or the run recorded).
+:meth:`SweepRecorder.finish` then bins them against speed and finds the support resonances
+(:func:`trueturn.dsp.sweep.analyse_sweep`), and says as findings whether the balancing
+speed sits near one (:func:`sweep_findings`, the same findings as ``analyze --sweep``).
+
+References
+----------
+.. [1] The sweep itself: :mod:`trueturn.dsp.sweep` (half-power bandwidth, Ewins 2000,
+   sec. 4.2; from memory).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass
+from typing import Literal
+
+import numpy as np
+
+from trueturn.dsp.findings import Code, Finding
+from trueturn.dsp.meter import LiveAnalyzer, MessageLike
+from trueturn.dsp.sweep import (
+    MIN_SWEEP_RATIO,
+    RESONANCE_MARGIN,
+    Sweep,
+    analyse_sweep,
+    balancing_speed_rpm,
+    near_resonances,
+)
+from trueturn.dsp.units import PickupProfile
+
+#: the most revolutions one recorder keeps (the oldest go first): 4000 revolutions are
+#: 67 s at 3600 rpm, longer than a small machine's coast-down, and about 1 MB of fit rows
+#: (2 pickups x ~16 numbers x 8 bytes per revolution); the coast-down's end is what counts
+MAX_SWEEP_REVS = 4000
+#: revolutions fitted together while nobody asks (bounds the samples held between fits)
+BATCH_REVS = 32
+
+SweepKind = Literal["coastdown", "runup"]
+
+
+@dataclass(frozen=True)
+class SweepOutcome:
+    """A finished recording that was a sweep: ``kind`` (the speed at its end below its
+    start: a coast-down), the sweep, the balancing speed (its steady part, rpm; None when it
+    held no steady stretch) and the findings about it (``near_resonance``)."""
+
+    kind: SweepKind
+    sweep: Sweep
+    balancing_rpm: float | None
+    findings: tuple[Finding, ...]
+
+
+def meter_sweep(meter: LiveAnalyzer, unit: str | None = None) -> Sweep:
+    """Every revolution a meter holds, its 1x binned against speed (:mod:`trueturn.dsp.sweep`),
+    in one unit for all pickups (volts when they differ, e.g. one without a sensitivity).
+
+    Parameters
+    ----------
+    meter : LiveAnalyzer
+        The meter holding the revolutions.
+    unit : str or None, default None
+        A key of :data:`trueturn.dsp.units.UNITS`; None: the meter's own.
+
+    Returns
+    -------
+    Sweep
+        See :func:`trueturn.dsp.sweep.analyse_sweep`.
+
+    References
+    ----------
+    .. [1] :func:`trueturn.dsp.sweep.analyse_sweep` (half-power method; Ewins 2000).
+    """
+    channels = range(meter.channels)
+    vectors = [meter.revolution_vectors(c, unit) for c in channels]
+    if len({v[3] for v in vectors}) > 1:
+        vectors = [meter.revolution_vectors(c, "V pk") for c in channels]
+    speeds = vectors[0][0] if vectors else np.zeros(0)
+    kept = [(c, v) for c, v in zip(channels, vectors, strict=True) if len(v[0]) == len(speeds)]
+    return analyse_sweep(speeds, {meter.profile(c).name: v[1] for c, v in kept},
+                         {meter.profile(c).name: v[2] for c, v in kept},
+                         vectors[0][3] if vectors else "V pk")
+
+
+def sweep_findings(sweep: Sweep) -> tuple[float | None, list[Finding]]:
+    """The balancing speed of a sweep and what to say about it: ``no_speed_change`` when it
+    is not a sweep, ``near_resonance`` (per pickup) when the balancing speed lies within
+    :data:`trueturn.dsp.sweep.RESONANCE_MARGIN` of a resonance found.
+
+    Parameters
+    ----------
+    sweep : Sweep
+        The sweep.
+
+    Returns
+    -------
+    tuple
+        ``(balancing_rpm, findings)``; the speed None when the sweep held no steady part.
+
+    References
+    ----------
+    .. [1] Separation margin of 15-20 % between running and critical speeds (from memory:
+       API 684-style margins; common practice, no single source).
+    """
+    at = balancing_speed_rpm(sweep)
+    found: list[Finding] = []
+    if not sweep.is_sweep:
+        found.append(Finding(Code.NO_SPEED_CHANGE, details={
+            "low_rpm": round(sweep.low_rpm, 1), "high_rpm": round(sweep.high_rpm, 1),
+            "ratio_needed": MIN_SWEEP_RATIO}))
+    elif at is not None:
+        for res in near_resonances(at, sweep.resonances):
+            found.append(Finding(Code.NEAR_RESONANCE, res.pickup, details={
+                "speed_rpm": round(at, 1), "resonance_rpm": round(res.speed_rpm, 1),
+                "damping_ratio": None if res.damping_ratio is None
+                else round(res.damping_ratio, 4), "margin": RESONANCE_MARGIN}))
+    return at, found
+
+
+class SweepRecorder:
+    """Each revolution's 1x per pickup from :meth:`feed` until :meth:`finish` (bounded).
+
+    Parameters
+    ----------
+    profiles : sequence of PickupProfile
+        The pickups, one per channel (as the run meter's).
+    mains_hz : float or None
+        The mains frequency (its hum is fitted out, as in the run meter).
+    preamble : iterable of message
+        The identity and stream set-up already seen (a recorder starts mid-stream).
+    max_revs : int, default MAX_SWEEP_REVS
+        The most revolutions kept.
+    """
+
+    def __init__(self, profiles: Sequence[PickupProfile], mains_hz: float | None,
+                 preamble: Iterable[MessageLike] = (), max_revs: int = MAX_SWEEP_REVS) -> None:
+        if max_revs < 1:
+            raise ValueError(f"max_revs must be at least 1, got {max_revs!r}")
+        self.analyzer = LiveAnalyzer(profiles, mains_hz=mains_hz, max_revs=max_revs,
+                                     batch_revs=BATCH_REVS)
+        for msg in preamble:
+            self.analyzer.feed(msg)
+
+    def feed(self, msg: MessageLike) -> None:
+        """One decoded message (the same ones the run meter gets)."""
+        self.analyzer.feed(msg)
+
+    def finish(self) -> SweepOutcome | None:
+        """The recording as a sweep, or None when it is none (the speed changed by less
+        than :data:`trueturn.dsp.sweep.MIN_SWEEP_RATIO`, or too few revolutions).
+
+        Returns
+        -------
+        SweepOutcome or None
+            The sweep, its kind, balancing speed and findings.
+
+        References
+        ----------
+        .. [1] :func:`meter_sweep`, :func:`sweep_findings`.
+        """
+        sweep = meter_sweep(self.analyzer)
+        if not sweep.is_sweep:
+            return None
+        speeds = self.analyzer.speeds_rpm()
+        kind: SweepKind = "coastdown" if float(speeds[-1]) < float(speeds[0]) else "runup"
+        at, found = sweep_findings(sweep)
+        return SweepOutcome(kind, sweep, at, tuple(found))

@@ -1,0 +1,45 @@
+"""A sweep (:class:`trueturn.dsp.sweep.Sweep`) to the job file's entry and back.
+
+The job keeps the sweep's points and resonances as plain numbers (:class:`SweepEntry`); the
+report draws them again with :func:`trueturn.jobs.sweep_plot.sweep_svg`, which takes a
+:class:`Sweep`. Nothing is computed here: the two forms carry the same numbers (phases
+folded into 0-360, as the file's limits ask).
+"""
+
+from __future__ import annotations
+
+from trueturn.dsp.coast import SweepOutcome
+from trueturn.dsp.sweep import Resonance, Sweep, SweepPoint, SweepValue
+from trueturn.jobs.records import (
+    ResonanceEntry,
+    SweepEntry,
+    SweepPointEntry,
+    SweepValueEntry,
+    now_iso,
+)
+
+
+def sweep_entry(outcome: SweepOutcome) -> SweepEntry:
+    """The job file's entry for a finished sweep (its points and resonances)."""
+    sweep = outcome.sweep
+    points = [SweepPointEntry(p.speed_rpm, p.revolutions, [
+        SweepValueEntry(v.name, v.amplitude, v.phase_deg % 360.0, v.confidence_radius)
+        for v in p.pickups]) for p in sweep.points if p.pickups]
+    resonances = [ResonanceEntry(
+        r.speed_rpm, r.pickup, r.damping_ratio, r.lower_rpm, r.upper_rpm, r.points_in_band,
+        r.peak_ratio, "half_power", r.fit_speed_rpm, r.fit_damping_ratio, r.single_mode)
+        for r in sweep.resonances]
+    return SweepEntry(outcome.kind, now_iso(), sweep.unit, sweep.low_rpm, sweep.high_rpm,
+                      points, resonances, outcome.balancing_rpm)
+
+
+def sweep_of(entry: SweepEntry) -> Sweep:
+    """The kept entry as the DSP layer's :class:`Sweep` again (to draw it)."""
+    points = tuple(SweepPoint(p.speed_rpm, p.revolutions, tuple(
+        SweepValue(v.pickup, v.amplitude, v.phase_deg, v.confidence_radius)
+        for v in p.pickups)) for p in entry.points)
+    resonances = tuple(Resonance(
+        r.speed_rpm, r.pickup, r.damping_ratio, r.lower_rpm, r.upper_rpm, r.points_in_band,
+        r.peak_ratio, r.method, r.fit_speed_rpm, r.fit_damping_ratio, r.single_mode)
+        for r in entry.resonances)
+    return Sweep(entry.unit, points, resonances, entry.low_rpm, entry.high_rpm, True)

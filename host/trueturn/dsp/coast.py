@@ -47,9 +47,10 @@ SweepKind = Literal["coastdown", "runup"]
 
 @dataclass(frozen=True)
 class SweepOutcome:
-    """A finished recording that was a sweep: ``kind`` (the speed at its end below its
-    start: a coast-down), the sweep, the balancing speed (its steady part, rpm; None when it
-    held no steady stretch) and the findings about it (``near_resonance``)."""
+    """A finished recording that was a sweep: ``kind`` (a coast-down when it ended below
+    its fastest speed by :data:`trueturn.dsp.sweep.MIN_SWEEP_RATIO`, else a run-up), the
+    sweep, the balancing speed (its steady part, rpm; None when it held no steady stretch)
+    and the findings about it (``near_resonance``)."""
 
     kind: SweepKind
     sweep: Sweep
@@ -168,6 +169,8 @@ class SweepRecorder:
         if not sweep.is_sweep:
             return None
         speeds = self.analyzer.speeds_rpm()
-        kind: SweepKind = "coastdown" if float(speeds[-1]) < float(speeds[0]) else "runup"
+        # ending well below its fastest: a coast-down (also when a run-up came before it)
+        kind: SweepKind = ("coastdown" if float(speeds[-1]) * MIN_SWEEP_RATIO
+                           < float(speeds.max()) else "runup")
         at, found = sweep_findings(sweep)
         return SweepOutcome(kind, sweep, at, tuple(found))

@@ -149,7 +149,17 @@ class SweepRecorder:
             self.analyzer.feed(msg)
 
     def feed(self, msg: MessageLike) -> None:
-        """One decoded message (the same ones the run meter gets)."""
+        """Take one decoded message (the same ones the run meter gets).
+
+        Parameters
+        ----------
+        msg : MessageLike
+            A decoded message (identity, stream_config, samples, tach, status).
+
+        References
+        ----------
+        .. [1] :meth:`trueturn.dsp.meter.LiveAnalyzer.feed` (protocol/SPEC.md; ours).
+        """
         self.analyzer.feed(msg)
 
     def finish(self) -> SweepOutcome | None:

@@ -120,9 +120,12 @@ def test_quit_with_a_trial_on_and_continue_the_job(tmp_path: Path) -> None:
             await press(app, pilot, "u")  # undo: back to the suggestion
             await shows(app, pilot, f"Undone, back to: trial {suggested.mass_g:.2f} g")
             await enter_fitted_mass(app, pilot, f"{FITTED:.2f}")  # the washer on the bench
-            panel = str(app.screen.query_one("#hands-on-panel", StepPanel).render())
-            assert (f"Fitted: trial {FITTED:.2f} g on left-wheel at 0° (suggested "
-                    f"{suggested.mass_g:.2f} g at 0°)") in panel
+            # the panel is drawn again on the app's next refresh (the status line says it
+            # first): wait for that drawing rather than read it at once
+            fitted_line = (f"Fitted: trial {FITTED:.2f} g on left-wheel at 0° (suggested "
+                           f"{suggested.mass_g:.2f} g at 0°)")
+            await wait_for(pilot, lambda: fitted_line in str(
+                app.screen.query_one("#hands-on-panel", StepPanel).render()), 10)
             await assert_fits(app, pilot)
             await through_hands_on_gates(app, pilot)
             assert [m.mass_g for m in proc.on_rotor] == [FITTED]

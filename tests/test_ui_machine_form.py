@@ -233,3 +233,16 @@ def test_a_new_machine_never_replaces_a_saved_one(tmp_path: Path) -> None:
             await press(app, pilot, "q")
     asyncio.run(scenario())
     assert workspace.machine_path("Fan 7").read_bytes() == before
+
+
+def test_the_pickups_angle_from_the_tach_is_optional_and_said_in_words() -> None:
+    # Pickup.angle_from_tach_deg, counted against rotation (trueturn/angles.py)
+    p = profile_from_form(typed(k1_angle="90", k2_angle="-30"), 2)
+    assert [k.angle_from_tach_deg for k in p.pickups] == [90.0, 330.0]
+    assert form_values(p, 2)["k2_angle"] == "330"
+    assert [k.angle_from_tach_deg for k in profile_from_form(typed(), 2).pickups] == [None, None]
+    with pytest.raises(FormError) as caught:
+        profile_from_form(typed(k2_angle="400"), 2)
+    assert caught.value.field == "k2_angle"
+    assert str(caught.value).startswith(LABELS["k2_angle"]) and "400" in str(caught.value)
+    assert not FILE_KEYS.search(str(caught.value))

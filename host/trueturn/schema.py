@@ -34,7 +34,8 @@ from typing import Any, Literal, Union
 
 from trueturn.angles import wrap_deg
 from trueturn.errors import UserError
-from trueturn.model.fields import Rule, limits
+from trueturn.model.fields import ANGLE_WITHIN_TURN_KEY as _TURN_KEY
+from trueturn.model.fields import Rule, angle_limits, limits
 
 __all__ = [
     "SchemaError",
@@ -47,9 +48,6 @@ __all__ = [
 ]
 
 Migration = Callable[[dict[str, Any]], dict[str, Any]]
-
-_TURN_KEY = "angle_within_turn"
-
 
 class Problem(str, Enum):
     """What is wrong with a value, as data (a screen words it; a file error says it in
@@ -96,13 +94,6 @@ class SchemaError(UserError):
         self.problem = problem
         self.values = values or {}
         self.rule = rule
-
-
-def angle_limits() -> dict[str, Any]:
-    """Field metadata for an angle as a person or an instrument writes it: 0..360 or
-    -180..180 degrees, taken modulo 360 (:func:`trueturn.angles.wrap_deg`); beyond a full
-    turn either way it is more likely a typo and is refused."""
-    return {**limits(), _TURN_KEY: True}
 
 
 class _Context:
@@ -281,8 +272,8 @@ def _convert(tp: Any, value: Any, ctx: _Context, meta: typing.Mapping[str, Any])
         _check_limits(value, meta, ctx)
         if meta.get(_TURN_KEY):
             if not -360.0 <= value <= 360.0:
-                ctx.fail(f"must be within -360..360 degrees (from the reference mark, against "
-                         f"rotation), got {value:g}", Problem.OUTSIDE_TURN, got=value)
+                ctx.fail(f"must be within -360..360 degrees (counted against rotation), "
+                         f"got {value:g}", Problem.OUTSIDE_TURN, got=value)
             return wrap_deg(float(value))
         return float(value)
     if tp is Any:

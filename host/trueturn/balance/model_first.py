@@ -105,6 +105,16 @@ class PickupPlacement:
     bearing: int
     angle_from_tach_deg: float | None = None
 
+    @classmethod
+    def from_profile(cls, name: str, bearing: int,
+                     angle_against_rotation_deg: float | None) -> PickupPlacement:
+        """From a machine profile's ``Pickup.angle_from_tach_deg``, which is counted
+        against rotation (the house convention, trueturn/angles.py): the same direction
+        counted with rotation is ``360 - angle``."""
+        angle = (None if angle_against_rotation_deg is None
+                 else (-angle_against_rotation_deg) % 360.0)
+        return cls(name, bearing, angle)
+
 
 @dataclass(frozen=True)
 class RotorLayout:

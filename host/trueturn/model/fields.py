@@ -7,6 +7,16 @@ from dataclasses import dataclass
 from enum import Enum
 from typing import Any
 
+#: metadata key: an angle as a person writes it, checked within one turn either way
+ANGLE_WITHIN_TURN_KEY = "angle_within_turn"
+
+
+def angle_limits() -> dict[str, Any]:
+    """Field metadata for an angle as a person or an instrument writes it: 0..360 or
+    -180..180 degrees, taken modulo 360 (:func:`trueturn.angles.wrap_deg`); beyond a full
+    turn either way it is more likely a typo and is refused (by ``trueturn.schema``)."""
+    return {**limits(), ANGLE_WITHIN_TURN_KEY: True}
+
 
 def limits(*, minimum: float | None = None, maximum: float | None = None,
            above: float | None = None, below: float | None = None,

@@ -6,7 +6,7 @@ from dataclasses import dataclass, field
 from typing import Literal
 
 from trueturn.angles import Face, Rotation, seen_rotation, wrap_deg
-from trueturn.model.fields import Rule, RuleCode, limits
+from trueturn.model.fields import Rule, RuleCode, angle_limits, limits
 from trueturn.positions import equally_spaced_deg
 
 
@@ -91,7 +91,16 @@ class Pickup:
     mounted; the ``name`` keys its readings everywhere. ``lowpass_corner_hz``: the corner
     of the first-order RC low-pass between the pickup and the ADC (the module's output
     capacitor or an anti-alias filter, hardware/WIRING.md), None when there is none worth
-    correcting; every reading of the pickup takes its gain and lag out."""
+    correcting; every reading of the pickup takes its gain and lag out.
+
+    ``angle_from_tach_deg`` (optional, for the first correction from a model): where the
+    pickup looks from, as an angle around the shaft seen from the front. Start at the line
+    from the shaft's centre to the tach sensor and count, in degrees, AGAINST the direction
+    of rotation (the house convention, trueturn/angles.py) to the direction the pickup's
+    sensing axis points (its arrow, away from the shaft). A pickup on the tach's side,
+    pointing the same way, is 0; one a quarter turn back from the tach (the side the rotor
+    comes from) is 90. None: not measured (then no phase can be predicted, and the model
+    cannot give a correction without trial runs)."""
 
     name: str = field(metadata=limits(nonempty=True))
     sensitivity_mv_per_g: float = field(metadata=limits(above=0))
@@ -100,3 +109,4 @@ class Pickup:
     direction: Literal["horizontal", "vertical", "axial", "other"] = "horizontal"
     near_plane: str | None = None
     lowpass_corner_hz: float | None = field(default=None, metadata=limits(above=0))
+    angle_from_tach_deg: float | None = field(default=None, metadata=angle_limits())

@@ -28,6 +28,7 @@ from dataclasses import dataclass, field
 import numpy as np
 import scipy.linalg
 
+from trueturn.angles import wrap_deg
 from trueturn.constants import STANDARD_GRAVITY_M_S2
 from trueturn.model.fields import limits
 
@@ -213,6 +214,13 @@ class RigidRotor:
     def plane(self, name: str) -> CorrectionPlane:
         """The correction plane called ``name``."""
         return self.planes[self._plane_index[name]]
+
+    def angle_from_tach_deg(self, pickup: PickupMount) -> float:
+        """The pickup's true angle from the tach as a machine profile gives it
+        (``Pickup.angle_from_tach_deg``: from the tach to the pickup's sensing direction,
+        counted against rotation). This model's fixed angles grow with rotation (see
+        :meth:`_plane_forcing`), so it is ``tach - direction``."""
+        return wrap_deg(self.tach_direction_deg - pickup.direction_deg)
 
     def critical_speeds_rpm(self) -> list[float]:
         """Undamped synchronous critical speeds (rpm): where a 1x forcing meets a natural

@@ -155,7 +155,8 @@ def describe(scenario: Scenario, speed_rpm: float | None = None) -> dict[str, An
         "planes": [{**p.__dict__,
                     "positions_deg": list(sc.balancing_planes[p.name].position_angles_deg),
                     "note": sc.plane_notes.get(p.name, "")} for p in r.planes],
-        "pickups": [{**p.__dict__, "channel": i, **sc.electrical[i].__dict__}
+        "pickups": [{**p.__dict__, "channel": i, **sc.electrical[i].__dict__,
+                     "angle_from_tach_deg": r.angle_from_tach_deg(p)}
                     for i, p in enumerate(r.pickups)],
         "as_found": [m.__dict__ for m in sc.as_found],
         "board": {"tick_hz": TICK_HZ, "adc_bits": 10, "adc_reference_v": ADC_REFERENCE_V,

@@ -31,7 +31,8 @@ def profile_from_scenario(scenario: Scenario) -> MachineProfile:
         low, high = speed * 0.97, speed * 1.01
     planes = [scenario.balancing_planes[cp.name] for cp in scenario.rotor.planes]
     pickups = [Pickup(p.name, e.sensitivity_v_per_g * 1000.0, e.zero_g_v * 1000.0,
-                      direction="vertical" if abs(p.direction_deg - 90.0) < 1 else "horizontal")
+                      direction="vertical" if abs(p.direction_deg - 90.0) < 1 else "horizontal",
+                      angle_from_tach_deg=scenario.rotor.angle_from_tach_deg(p))
                for p, e in zip(scenario.rotor.pickups, scenario.electrical, strict=False)]
     return MachineProfile(
         name=f"{scenario.name} (demo)", rotor_kind=scenario.title,

@@ -54,6 +54,14 @@ class FormField:
         return self.short or self.label
 
 
+#: a blank field's hint, by the field key's tail (pickup fields ``k<j>_<tail>``)
+PLACEHOLDERS = {
+    # Pickup.angle_from_tach_deg: from the line shaft -> tach to the pickup's arrow,
+    # counted against rotation (trueturn/angles.py); blank: not measured
+    "angle": "blank: not measured (then trial runs)",
+}
+
+
 def form_fields(pickups: int) -> list[FormField]:
     """The form's fields, in order, for a board streaming ``pickups`` channels."""
     fields = [
@@ -83,7 +91,9 @@ def form_fields(pickups: int) -> list[FormField]:
         ]
     for j in range(1, pickups + 1):
         fields += [FormField(f"k{j}_sens", f"Pickup {j}: sensitivity, mV/g", "300"),
-                   FormField(f"k{j}_corner", f"Pickup {j}: input filter corner, Hz (or none)")]
+                   FormField(f"k{j}_corner", f"Pickup {j}: input filter corner, Hz (or none)"),
+                   FormField(f"k{j}_angle", f"Pickup {j}: deg from tach, against rotation",
+                             short=f"pickup {j}'s angle from the tach")]
     fields += [FormField("mains", "Mains frequency, Hz (50 or 60)", "50"),
                FormField("grade", "Target grade G, mm/s", "6.3")]
     return fields
@@ -204,6 +214,8 @@ def form_data(values: dict[str, str], pickups: int,
             _value(values.get(f"k{j + 1}_sens", "")))
         put(pickup, "lowpass_corner_hz", f"{at}.lowpass_corner_hz", f"k{j + 1}_corner",
             _none_word(values.get(f"k{j + 1}_corner", "")))
+        put(pickup, "angle_from_tach_deg", f"{at}.angle_from_tach_deg", f"k{j + 1}_angle",
+            _none_word(values.get(f"k{j + 1}_angle", "")))
         source[at] = f"k{j + 1}_sens"
         out_pickups.append(pickup)
     put(data, "pickups", "pickups", "k1_sens" if pickups else "name", out_pickups)
@@ -237,6 +249,7 @@ def form_values(profile: MachineProfile, pickups: int) -> dict[str, str]:
         values[f"k{j}_sens"] = num(pickup.sensitivity_mv_per_g)
         values[f"k{j}_corner"] = ("none" if pickup.lowpass_corner_hz is None
                                   else num(pickup.lowpass_corner_hz))
+        values[f"k{j}_angle"] = num(pickup.angle_from_tach_deg)
     return values
 
 
@@ -363,7 +376,9 @@ class MachineForm(ModalScreen[MachineProfile | None]):
         with VerticalScroll(id="form-scroll"), Grid(classes="form"):
             for f in self.fields:
                 yield Label(f.label)
-                yield Input(value=values[f.key], id=f"f-{f.key}")
+                yield Input(value=values[f.key], id=f"f-{f.key}",
+                            placeholder=PLACEHOLDERS.get(f.key[3:] if f.key[0] == "k" else "",
+                                                         ""))
         yield Static("", id="form-msg")
         yield Footer()
 

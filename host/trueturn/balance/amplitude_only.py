@@ -37,6 +37,7 @@ from trueturn.balance.influence import (
 from trueturn.balance.readings import BalanceInput
 from trueturn.balance.sanity import check_trial_information
 from trueturn.errors import UserError
+from trueturn.model.units import mass_text
 
 #: two fitted answers closer than this fraction of their size are the same answer
 SAME_ANSWER = 0.05
@@ -211,7 +212,7 @@ def solve_amplitude_only(inp: BalanceInput) -> Solution:
         [float(np.max(np.abs(v[1:, s] - v[0, s]))) for s in range(len(names))],
         [float(v[0, s]) for s in range(len(names))],
         [float(np.sqrt(2.0) * conf[:, s].max()) if conf[:, s].any() else None
-         for s in range(len(names))])
+         for s in range(len(names))], inp.mass_unit)
     weights = np.array([s.weight for s in inp.sensors])
     distinct, jac = fit_amplitude_only(w, v, weights)
     best_u, best_t, best_cost = distinct[0]
@@ -220,7 +221,8 @@ def solve_amplitude_only(inp: BalanceInput) -> Solution:
     warnings = []
     ambiguous = bool(rivals)
     if ambiguous:
-        alts = "; ".join(f"{abs(d[0]):.3g} g at {amplitude_phase(-d[0])[1]:.0f}°" for d in rivals)
+        alts = "; ".join(f"{mass_text(abs(d[0]), inp.mass_unit)} at "
+                         f"{amplitude_phase(-d[0])[1]:.0f}°" for d in rivals)
         warnings.append("ambiguous: the amplitudes fit more than one answer equally well "
                         f"(also {alts}); add a run with the trial mass at another position")
     if len(w) < 4:
@@ -231,9 +233,10 @@ def solve_amplitude_only(inp: BalanceInput) -> Solution:
     change = trial_g / max(abs(best_u), 1e-30)
     if change < MIN_TRIAL_CHANGE:
         factor = MIN_TRIAL_CHANGE / change
-        warnings.append(f"plane {plane.name}: the trial mass ({trial_g:.3g} g) changes the 1x by "
-                        f"only about {100 * change:.0f} %; use a trial mass about {factor:.1f}× "
-                        f"bigger (about {trial_g * factor:.3g} g)")
+        warnings.append(f"plane {plane.name}: the trial mass ({mass_text(trial_g, inp.mass_unit)})"
+                        f" changes the 1x by only about {100 * change:.0f} %; use a trial mass "
+                        f"about {factor:.1f}× bigger (about "
+                        f"{mass_text(trial_g * factor, inp.mass_unit)})")
     fit_rms = np.sqrt(np.mean((best_t[None, :] * np.abs(best_u + w)[:, None] - v) ** 2, axis=0))
     pm = None
     sig = np.array([[(r.readings[n].confidence_radius or 0.0) / CIRCLE95_SIGMAS for n in names]

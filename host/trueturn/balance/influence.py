@@ -28,6 +28,7 @@ from trueturn.balance.readings import BalanceInput, SavedCoefficient
 from trueturn.balance.sanity import check_trial_information
 from trueturn.errors import UserError
 from trueturn.model import Correction, PlacedMass, Plane, Run
+from trueturn.model.units import mass_text
 
 #: a 95 % confidence circle holds a 2-D normal within this many per-axis sigmas
 #: (sqrt(-2 ln 0.05), Rayleigh distribution quantile).
@@ -588,8 +589,9 @@ def _trial_warnings(inp: BalanceInput, r0: np.ndarray, model: InfluenceModel) ->
             reasons.append(f"its effect is under {MIN_TRIAL_CONFIDENCES:g}× the readings' confidence radius")
         if reasons:
             warnings.append(
-                f"plane {plane.name}: the trial mass ({trial_g:.3g} g) {' and '.join(reasons)}; "
-                f"use a trial mass about {factor:.1f}× bigger (about {trial_g * factor:.3g} g)")
+                f"plane {plane.name}: the trial mass ({mass_text(trial_g, inp.mass_unit)}) "
+                f"{' and '.join(reasons)}; use a trial mass about {factor:.1f}× bigger "
+                f"(about {mass_text(trial_g * factor, inp.mass_unit)})")
     return warnings
 
 
@@ -604,7 +606,7 @@ def _refuse_uninformative_trials(inp: BalanceInput, r0: np.ndarray, model: Influ
         # the change of a reading: two independent 95 % circles add in quadrature
         unc = [float(np.sqrt(2.0) * conf[ch.sensor]) if ch.sensor in conf else None
                for ch in model.channels]
-        check_trial_information(plane.name, trial_g, effects, levels, unc)
+        check_trial_information(plane.name, trial_g, effects, levels, unc, inp.mass_unit)
 
 
 def _corrections(planes: Sequence[Plane], c: np.ndarray,
@@ -689,8 +691,11 @@ def solve_with_phase(inp: BalanceInput) -> Solution:
                         "the answer is sensitive to reading errors (move a pickup or a plane)")
     free, _ = correction_for(r0, matrix, weights, [None] * len(planes))
     for j in limited:
-        warnings.append(f"plane {planes[j].name}: correction limited to {planes[j].max_mass_g:g} g "
-                        f"(without the limit it would be {abs(free[j]):.3g} g)")
+        limit_g = planes[j].max_mass_g
+        assert limit_g is not None  # only a plane with a limit is limited
+        warnings.append(f"plane {planes[j].name}: correction limited to "
+                        f"{mass_text(limit_g, inp.mass_unit)} (without the limit it would be "
+                        f"{mass_text(abs(free[j]), inp.mass_unit)})")
     if not inp.influence:
         warnings += _trial_warnings(inp, r0, model)
     drawn = _uncertainty(inp, fit, c, weights, limits, model, planes)

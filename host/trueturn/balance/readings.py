@@ -17,6 +17,7 @@ from typing import Any
 from trueturn.angles import phasor
 from trueturn.model import Bearing, PlacedMass, Plane, Reading, Run
 from trueturn.model.rotor import PlaneLayout
+from trueturn.model.units import MassUnit
 from trueturn.schema import SchemaError, angle_limits, from_data, limits
 
 
@@ -90,6 +91,9 @@ class BalanceInput:
     #: per pickup, the measured local slope (amplitude exponent and phase slope) from a
     #: sweep; when given it is used instead of speed_exponent
     speed_slopes: tuple[SpeedSlopeEntry, ...] = ()
+    #: the unit the person sees masses in (the machine profile's, or the readings file's):
+    #: the math is in grams; only the warnings' words use it
+    mass_unit: MassUnit = "g"
 
     @property
     def has_phase(self) -> bool:

@@ -23,6 +23,7 @@ from dataclasses import dataclass
 from enum import Enum
 
 from trueturn.errors import UserError
+from trueturn.model.units import MassUnit, mass_text
 
 #: without confidence radii: a change under this fraction of the 1x level is no information
 MIN_RESOLVED_CHANGE = 0.01
@@ -78,7 +79,7 @@ class CorrectionFinding:
 
 def check_trial_information(plane: str, trial_g: float, effects: Sequence[float],
                             levels: Sequence[float], uncertainties: Sequence[float | None],
-                            ) -> None:
+                            mass_unit: MassUnit = "g") -> None:
     """Refuse a plane whose trial changed the 1x less than the readings resolve, on every pickup.
 
     A change is resolved when it exceeds the 95 % radius of the change (the readings' own
@@ -98,6 +99,8 @@ def check_trial_information(plane: str, trial_g: float, effects: Sequence[float]
     uncertainties : sequence of float or None
         95 % radius of that change per pickup, reading units (None: unknown, then the 1 %
         rule).
+    mass_unit : {"g", "oz"}, default "g"
+        The unit the refusal names masses in (the person's); the facts stay in grams.
 
     Raises
     ------
@@ -123,11 +126,12 @@ def check_trial_information(plane: str, trial_g: float, effects: Sequence[float]
     if factor <= MAX_SUGGESTED_FACTOR:
         suggested = trial_g * factor
         raise NoInformationError(
-            f"plane {plane}: the trial mass ({trial_g:.3g} g) changed the 1x by less than the "
-            f"readings can resolve: no information, no answer; redo the trial with about "
-            f"{suggested:.3g} g", plane, trial_g, suggested)
+            f"plane {plane}: the trial mass ({mass_text(trial_g, mass_unit)}) changed the 1x by "
+            f"less than the readings can resolve: no information, no answer; redo the trial "
+            f"with about {mass_text(suggested, mass_unit)}", plane, trial_g, suggested)
     raise NoInformationError(
-        f"plane {plane}: the trial mass ({trial_g:.3g} g) did not change the 1x at all: is it "
+        f"plane {plane}: the trial mass ({mass_text(trial_g, mass_unit)}) did not change the "
+        "1x at all: is it "
         "on the rotor, and in the plane named?", plane, trial_g, None)
 
 

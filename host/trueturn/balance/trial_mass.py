@@ -24,6 +24,7 @@ from trueturn.balance.iso21940 import angular_speed_rad_s
 from trueturn.balance.model_first import Distrust, PredictedInfluence
 from trueturn.constants import STANDARD_GRAVITY_M_S2
 from trueturn.errors import UserError
+from trueturn.model.units import MassUnit, mass_text
 
 DEFAULT_FORCE_RATIO = 0.10
 DEFAULT_CAP_FRACTION = 0.01
@@ -80,7 +81,7 @@ def centrifugal_force_n(mass_g: float, radius_mm: float, speed_rpm: float) -> fl
 
 def size_trial_mass(rotor_mass_kg: float, radius_mm: float, speed_rpm: float,
                     force_ratio: float = DEFAULT_FORCE_RATIO,
-                    max_mass_g: float | None = None) -> TrialMass:
+                    max_mass_g: float | None = None, mass_unit: MassUnit = "g") -> TrialMass:
     """Trial mass whose centrifugal force is ``force_ratio`` of the rotor's weight, capped.
 
     Parameters
@@ -95,6 +96,8 @@ def size_trial_mass(rotor_mass_kg: float, radius_mm: float, speed_rpm: float,
         Wanted centrifugal force of the trial mass over the rotor's weight ``M g``.
     max_mass_g : float or None, default None
         Cap on the trial mass, g; None caps at 1 % of the rotor mass.
+    mass_unit : {"g", "oz"}, default "g"
+        The unit the warnings name masses in (the person's); the result stays in grams.
 
     Returns
     -------
@@ -126,8 +129,9 @@ def size_trial_mass(rotor_mass_kg: float, radius_mm: float, speed_rpm: float,
     mass_g = min(wanted_g, cap_g)
     if capped:
         why = "the limit you gave" if max_mass_g is not None else "1 % of the rotor mass"
-        warnings.append(f"the rule asks for {wanted_g:.3g} g, capped at {cap_g:.3g} g ({why}); "
-                        "its effect may be small: check the trial-effect warning after the run")
+        warnings.append(f"the rule asks for {mass_text(wanted_g, mass_unit)}, capped at "
+                        f"{mass_text(cap_g, mass_unit)} ({why}); its effect may be small: "
+                        "check the trial-effect warning after the run")
     force_n = centrifugal_force_n(mass_g, radius_mm, speed_rpm)
     return TrialMass(mass_g, force_n, force_n / (rotor_mass_kg * STANDARD_GRAVITY_M_S2),
                      accel / STANDARD_GRAVITY_M_S2, capped, warnings)

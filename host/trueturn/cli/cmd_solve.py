@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import dataclasses
 import sys
 from typing import Any
 
@@ -378,7 +379,8 @@ def run(args: argparse.Namespace) -> int:
     name = "stdin" if args.readings == "-" else args.readings
     doc, imperial = metric_document(load_document(args.readings), name)
     shown = IMPERIAL if imperial else METRIC
-    inp = parse_readings(doc, name)
+    # the engine's warnings and refusals name masses in the file's unit
+    inp = dataclasses.replace(parse_readings(doc, name), mass_unit=shown.mass)
     try:
         report = solve(inp)
     except UserError as exc:

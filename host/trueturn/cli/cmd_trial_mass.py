@@ -37,7 +37,7 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
 def run(args: argparse.Namespace) -> int:
     shown = read_units(args)
     t = size_trial_mass(args.rotor_mass_kg, args.radius_mm, args.speed_rpm,
-                        args.force_ratio, args.max_mass_g)
+                        args.force_ratio, args.max_mass_g, shown.mass)
     if args.json:
         print_json({f"mass_{shown.mass}": round(mass_from_g(t.mass_g, shown.mass), 9),
                     f"radius_{shown.length}": round(length_from_mm(args.radius_mm,

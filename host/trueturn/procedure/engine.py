@@ -175,7 +175,8 @@ class BalanceEngine:
         saved = tuple(c for c in setup.saved_coefficients if isinstance(c, SavedCoefficient))
         return BalanceInput(planes, tuple(Sensor(s) for s in setup.sensors), tuple(runs),
                             influence=saved, tolerance=tolerance,
-                            bearings=setup.bearings if at_bearings else ())
+                            bearings=setup.bearings if at_bearings else (),
+                            mass_unit=setup.units.mass)
 
     def _report(self, inp: BalanceInput) -> SolveReport:
         """Solve, turning the engine's refusals into gate refusals (with the facts kept)."""

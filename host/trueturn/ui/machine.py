@@ -72,7 +72,8 @@ def setup_from_profile(profile: MachineProfile, mode: Mode, standstill_s: float 
         cg_axial_mm=profile.cg_axial_mm,
         owned_parts_g=tuple(profile.correction_parts.masses_g())
         if profile.correction_parts is not None else (),
-        owned_stack=profile.correction_parts.stack if profile.correction_parts else 1)
+        owned_stack=profile.correction_parts.stack if profile.correction_parts else 1,
+        units=profile.units.choice())
 
 
 def describe_change(change: MassChange, proc: Procedure, engine: BalanceEngine,

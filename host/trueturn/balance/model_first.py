@@ -109,8 +109,27 @@ class PickupPlacement:
     def from_profile(cls, name: str, bearing: int,
                      angle_against_rotation_deg: float | None) -> PickupPlacement:
         """From a machine profile's ``Pickup.angle_from_tach_deg``, which is counted
-        against rotation (the house convention, trueturn/angles.py): the same direction
-        counted with rotation is ``360 - angle``."""
+        against rotation (the house convention, trueturn/angles.py).
+
+        Parameters
+        ----------
+        name : str
+            The pickup's name.
+        bearing : int
+            The bearing it sits on (0 or 1).
+        angle_against_rotation_deg : float or None
+            The profile's angle from the tach to the pickup, degrees against rotation;
+            None when not measured.
+
+        Returns
+        -------
+        PickupPlacement
+            The same direction counted with rotation (``360 - angle``, modulo a turn).
+
+        References
+        ----------
+        .. [1] Angle convention: trueturn/angles.py (our own; common practice, no source).
+        """
         angle = (None if angle_against_rotation_deg is None
                  else (-angle_against_rotation_deg) % 360.0)
         return cls(name, bearing, angle)

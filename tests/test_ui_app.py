@@ -216,6 +216,13 @@ async def follow_the_screens(app: TrueturnApp, pilot: Pilot, mode_key: str,
             runs = len(proc.runs)
             await key("enter")
             await wait_for(pilot, lambda n=runs: len(proc.runs) > n)
+        elif step.kind == "correction" and proc.awaiting_sweep:
+            # model-first: its coast-down comes first (the demo's motor is switched off)
+            assert "needs this run's coast-down" in screen_text(app)
+            await key("x")
+            await wait_for(pilot, lambda: not proc.awaiting_sweep, 180)
+            look()
+            continue
         elif step.kind == "correction":
             assert "Parts to place" in screen_text(app)
             await key("enter")

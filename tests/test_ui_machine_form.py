@@ -246,3 +246,13 @@ def test_the_pickups_angle_from_the_tach_is_optional_and_said_in_words() -> None
     assert caught.value.field == "k2_angle"
     assert str(caught.value).startswith(LABELS["k2_angle"]) and "400" in str(caught.value)
     assert not FILE_KEYS.search(str(caught.value))
+
+
+def test_the_rotors_inertia_across_the_shaft_is_optional() -> None:
+    p = profile_from_form(typed(inertia="0.055"), 2)
+    assert p.transverse_inertia_kg_m2 == 0.055 and form_values(p, 2)["inertia"] == "0.055"
+    assert profile_from_form(typed(), 2).transverse_inertia_kg_m2 is None
+    with pytest.raises(FormError) as caught:
+        profile_from_form(typed(inertia="-1"), 2)
+    assert caught.value.field == "inertia" and "must be more than 0" in str(caught.value)
+    assert not FILE_KEYS.search(str(caught.value))

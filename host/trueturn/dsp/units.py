@@ -231,6 +231,44 @@ def conversion_factors(profile: PickupProfile, frequency_hz: float | np.ndarray,
     return (complex(factor) if np.ndim(factor) == 0 else factor), used
 
 
+def from_acceleration_factor(unit: str, frequency_hz: float) -> complex | None:
+    """The complex factor taking an acceleration phasor (m/s^2 peak, phase as lag) at
+    ``frequency_hz`` to ``unit``; None for volts (no physical quantity to convert to).
+
+    Parameters
+    ----------
+    unit : str
+        A key of :data:`UNITS`.
+    frequency_hz : float
+        Frequency of the order, Hz (> 0).
+
+    Returns
+    -------
+    complex or None
+
+    Raises
+    ------
+    ValueError
+        When ``unit`` is not a key of :data:`UNITS` or the frequency is not above 0.
+
+    References
+    ----------
+    .. [1] Sinusoidal kinematics ``v = a / omega``, ``x = a / omega^2`` (velocity 90 deg,
+       displacement 180 deg after acceleration; from memory).
+    """
+    if unit not in UNITS:
+        raise ValueError(f"unknown unit {unit!r}; choose one of {', '.join(UNITS)}")
+    if not 0 < frequency_hz < math.inf:
+        raise ValueError(f"frequency_hz must be > 0, got {frequency_hz!r}")
+    quantity, scale = UNITS[unit]
+    if quantity == "volts":
+        return None
+    omega = 2.0 * math.pi * frequency_hz
+    power = {"acceleration": 0, "velocity": 1, "displacement": 2}[quantity]
+    turn = complex(np.exp(1j * np.radians(PHASE_FROM_ACCELERATION_DEG[quantity])))
+    return scale / omega**power * turn
+
+
 def convert_phasor(volts_phasor: complex, profile: PickupProfile, frequency_hz: float,
                    unit: str) -> tuple[complex, VibrationUnit]:
     """A phasor in volts (peak) at ``frequency_hz`` in ``unit``.

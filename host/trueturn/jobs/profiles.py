@@ -93,6 +93,11 @@ class MachineProfile:
     #: the correction parts the person owns (None: any mass can be made); optional, so
     #: files of schema version 2 without it read as before (no migration)
     correction_parts: OwnedParts | None = None
+    #: the rotor's moment of inertia about a line across the shaft through its centre of
+    #: mass, kg m^2 (optional; None: not known). The model-first correction needs it for
+    #: two planes: how the rotor rocks on its supports (guessed as a slender rod otherwise,
+    #: which is mostly too uncertain to spare a trial run)
+    transverse_inertia_kg_m2: float | None = field(default=None, metadata=limits(above=0))
 
     def _checks(self) -> list[tuple[str, str | Rule]]:
         problems: list[tuple[str, str | Rule]] = []

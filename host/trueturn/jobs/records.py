@@ -364,7 +364,9 @@ class JobRecord:
     """One balancing job on one machine: runs in order, pending hands-on work, outcome.
 
     ``method``: ``single-plane`` / ``two-plane`` influence coefficients, ``four-run``
-    (amplitude only, no phase), or ``trim`` (one run with saved coefficients).
+    (amplitude only, no phase), ``trim`` (one run with saved coefficients), or
+    ``model-first`` (a first correction from a model of the rotor, trials when it cannot be
+    trusted).
     """
 
     job_id: str = field(metadata=limits(nonempty=True))
@@ -372,7 +374,8 @@ class JobRecord:
     created: str = field(metadata=limits(nonempty=True))
     updated: str = ""
     status: Literal["open", "closed"] = "open"
-    method: Literal["single-plane", "two-plane", "four-run", "trim"] = "single-plane"
+    method: Literal["single-plane", "two-plane", "four-run", "trim",
+                    "model-first"] = "single-plane"
     speed_rpm: float | None = field(default=None, metadata=limits(above=0))
     operator: str = ""
     customer: str = ""

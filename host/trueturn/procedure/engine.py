@@ -14,13 +14,19 @@ import math
 from collections.abc import Sequence
 from dataclasses import replace
 
+import numpy as np
+
 from trueturn.angles import wrap_deg
-from trueturn.balance.influence import trial_size_factor
+from trueturn.balance.influence import mass_vector, trial_size_factor
 from trueturn.balance.iso21940 import per_plane_permissible, permissible_unbalance_gmm
 from trueturn.balance.model_first import (
+    CoefficientEstimate,
+    Distrust,
     PickupPlacement,
     PredictedInfluence,
     RotorLayout,
+    SupportResonance,
+    correction_spread,
     free_rotor_prediction,
     predict_influence,
 )
@@ -36,12 +42,15 @@ from trueturn.balance.trial_mass import (
     size_trial_mass,
     suggest_trial,
 )
+from trueturn.dsp.coast import SweepOutcome
+from trueturn.dsp.units import from_acceleration_factor
 from trueturn.errors import UserError
 from trueturn.model import Correction, MassKind, PlacedMass, Plane, Run, RunKind, Verdict
 from trueturn.procedure.guide import (
     GateRefused,
     KitFit,
     Mode,
+    ModelAnswer,
     OffSpeed,
     ProcedureSetup,
     Solution,
@@ -57,6 +66,39 @@ PART_RESOLUTION_G = 0.01
 #: mass between two neighbours, few enough for the exact search). Ours, no source.
 ANY_ANGLE_STEP_DEG = 30.0
 TRIAL_REDO_MARGIN = 1.5   # a redone trial: 1.5x what the effect check asks (our choice)
+#: the method a model-first correction is said to come from
+MODEL_METHOD = ("influence coefficients predicted by the rigid rotor on flexible supports, "
+                "refined by every run (recursive least squares)")
+
+
+def resonances_from_sweep(outcome: SweepOutcome | None, sensors: Sequence[str],
+                          speed_rpm: float) -> dict[str, list[SupportResonance]] | None:
+    """The support resonances a coast-down found below ``speed_rpm``, per pickup, as the
+    model takes them; None when there was no sweep (nothing recorded, or the speed did not
+    change enough).
+
+    A resonance is taken with its half-power damping (or the one-mode fit's). A peak that
+    one mode does not explain (``single_mode`` False: modes close together) or that has no
+    damping is left out of the supports' stiffness; a pickup whose every peak is so is
+    marked as a sweep that does not fit (the model then does not trust itself). Each
+    speed's 95 % band: 5 % (the half-power method's usual reading error; our choice).
+    """
+    if outcome is None or not outcome.sweep.is_sweep:
+        return None
+    out: dict[str, list[SupportResonance]] = {s: [] for s in sensors}
+    unclear: dict[str, list[float]] = {s: [] for s in sensors}
+    for r in outcome.sweep.resonances:
+        if r.pickup not in out or r.speed_rpm >= speed_rpm:
+            continue
+        damping = r.damping_ratio if r.damping_ratio is not None else r.fit_damping_ratio
+        if damping is None or r.single_mode is False:
+            unclear[r.pickup].append(r.speed_rpm)
+        else:
+            out[r.pickup].append(SupportResonance(r.speed_rpm, damping))
+    for name, speeds in unclear.items():
+        if speeds and not out[name]:
+            out[name] = [SupportResonance(min(speeds), 0.05, fits=False)]
+    return out
 
 
 class BalanceEngine:
@@ -295,3 +337,110 @@ class BalanceEngine:
         trim = self._solution(setup, report, sol.corrections_keeping_current, MassKind.TRIM,
                               removal, runs)
         return verdict, trim
+
+    # ---- model-first (issue #20 item 4) ---------------------------------------------------
+    def model_first(self, setup: ProcedureSetup, runs: Sequence[Run],
+                    resonances: object) -> ModelAnswer:
+        """The model's answer after the as-found run (``runs[0]``) and its sweep.
+
+        Influence coefficients predicted from the profile and the sweep's support
+        resonances (:func:`trueturn.balance.model_first.predict_influence`: a rigid rotor
+        on two flexible supports; Vance 1988, ch. 2, from memory), turned into the
+        readings' unit at the as-found run's speed, refined by the as-found run (RLS with
+        the prediction as prior, :class:`~trueturn.balance.model_first.CoefficientEstimate`)
+        and solved into a correction with its 95 % spread in mass and angle. Not trusted
+        (trials follow) for the prediction's own reasons, or when a pickup reads volts.
+        Which bearing a pickup sits on is not in the profile: in order, first -> first.
+        """
+        as_found = runs[0]
+        names = list(setup.sensors)
+        planes = planes_for(setup)
+        speed = as_found.speed_rpm or setup.speed_rpm
+        factors = [from_acceleration_factor(as_found.readings[n].unit, speed / 60.0)
+                   for n in names]
+        if any(f is None for f in factors):
+            return ModelAnswer(False, (Distrust.UNCALIBRATED.value,))
+        if len(setup.bearings) != 2 or any(p.axial_mm is None for p in planes):
+            return ModelAnswer(False, (Distrust.NO_BEARINGS.value,))
+        factor = np.array(factors, dtype=complex)
+        layout = RotorLayout(setup.rotor_mass_kg,
+                             (setup.bearings[0].axial_mm, setup.bearings[1].axial_mm),
+                             tuple(float(p.axial_mm or 0.0) for p in planes),
+                             tuple(p.radius_mm for p in planes), setup.cg_axial_mm,
+                             setup.transverse_inertia_kg_m2)
+        angles = setup.pickup_angles_deg
+        placements = [PickupPlacement.from_profile(n, min(i, 1),
+                                                   angles[i] if i < len(angles) else None)
+                      for i, n in enumerate(names)]
+        sweep: dict[str, list[SupportResonance]] | None = None
+        if isinstance(resonances, dict):
+            sweep = {str(k): [r for r in v if isinstance(r, SupportResonance)]
+                     for k, v in resonances.items()}
+        accel = {n: as_found.readings[n].vector / factor[i] for i, n in enumerate(names)}
+        pred = predict_influence(layout, placements, speed, sweep, accel)
+        if not pred.trusted:
+            return ModelAnswer(False, tuple(d.value for d in pred.distrust),
+                               residual_fraction_95=pred.residual_fraction_95)
+        prior = replace(pred, matrix=pred.matrix * factor[:, None],
+                        magnitude=pred.magnitude * np.abs(factor)[:, None],
+                        covariance=tuple(c * abs(factor[i]) ** 2
+                                         for i, c in enumerate(pred.covariance)))
+        estimate = self._estimate(setup, runs, prior)
+        _, mass95, angle95 = correction_spread(estimate)
+        solution = self._model_solution(setup, runs, estimate, False)
+        return ModelAnswer(True, (), tuple(float(m) for m in mass95),
+                           tuple(float(a) for a in angle95), pred.residual_fraction_95, prior,
+                           solution)
+
+    def _estimate(self, setup: ProcedureSetup, runs: Sequence[Run],
+                  prior: object) -> CoefficientEstimate:
+        """The prior refined by every run (masses relative to the as-found run's)."""
+        if not isinstance(prior, PredictedInfluence):
+            raise GateRefused("the model's prediction is not known (a resumed job): start a "
+                              "new job")
+        planes = planes_for(setup)
+        estimate = CoefficientEstimate.from_prediction(prior)
+        base = mass_vector(runs[0].masses, planes)
+        for run in runs:
+            estimate.update(mass_vector(run.masses, planes) - base,
+                            {n: run.readings[n].vector for n in setup.sensors},
+                            {n: run.readings[n].confidence_radius for n in setup.sensors})
+        return estimate
+
+    def _model_solution(self, setup: ProcedureSetup, runs: Sequence[Run],
+                        estimate: CoefficientEstimate, removal: bool) -> Solution:
+        saved = self._as_saved(setup, runs, estimate)
+        sol = self.solve(replace(setup, saved_coefficients=saved), runs, removal)
+        return replace(sol, method=MODEL_METHOD)
+
+    def _as_saved(self, setup: ProcedureSetup, runs: Sequence[Run],
+                  estimate: CoefficientEstimate) -> tuple[SavedCoefficient, ...]:
+        """The estimate's coefficients as a saved set at the as-found run's speed, so the
+        correction, the parts and the verdict come from the same code as every mode's."""
+        matrix = estimate.matrix
+        out = []
+        for i, n in enumerate(setup.sensors):
+            for j, p in enumerate(planes_for(setup)):
+                h = complex(matrix[i, j])
+                if not abs(h) > 0:
+                    raise GateRefused(f"the model gives {p.name} no effect at {n}: use trial runs")
+                out.append(SavedCoefficient(n, p.name, abs(h),
+                                            wrap_deg(math.degrees(math.atan2(h.imag, h.real))),
+                                            runs[0].speed_rpm))
+        return tuple(out)
+
+    def model_solve(self, setup: ProcedureSetup, runs: Sequence[Run], removal: bool,
+                    prior: object) -> Solution:
+        """The model's correction from the prior refined by ``runs``."""
+        return self._model_solution(setup, runs, self._estimate(setup, runs, prior), removal)
+
+    def model_assess(self, setup: ProcedureSetup, runs: Sequence[Run], removal: bool,
+                     prior: object) -> tuple[Verdict, Solution]:
+        """Verdict on the last run with the coefficients refined by every run (the
+        correction run serves as the trial), judged as every mode's (ISO 21940-11 at the
+        bearings, the residual's 95 % bound), and the trim still needed."""
+        estimate = self._estimate(setup, runs, prior)
+        saved = self._as_saved(setup, runs, estimate)
+        verdict, trim = self.assess(replace(setup, saved_coefficients=saved), list(runs),
+                                    removal)
+        return verdict, replace(trim, method=MODEL_METHOD)

@@ -85,6 +85,9 @@ class Mode(str, Enum):
     TWO_PLANE = "two-plane"
     AMPLITUDE_ONLY = "amplitude-only"
     SAVED_TRIM = "saved-trim"  # one run, with influence coefficients saved by an earlier job
+    #: the as-found run and its coast-down, then a first correction predicted by a model of
+    #: the rotor (no trial run) when the model can be trusted, else trial runs as by planes
+    MODEL_FIRST = "model-first"
 
 
 # Gate checklists. Wording is ours; the items are the usual shop cautions.
@@ -170,6 +173,11 @@ class ProcedureSetup:
     #: the most of them one position takes (machine profile, ``correction_parts``)
     owned_parts_g: tuple[float, ...] = ()
     owned_stack: int = 1
+    #: per pickup, its angle from the tach counted against rotation (machine profile,
+    #: ``Pickup.angle_from_tach_deg``; None: not measured); model-first needs it
+    pickup_angles_deg: tuple[float | None, ...] = ()
+    #: the rotor's transverse moment of inertia, kg m^2 (machine profile; None: not known)
+    transverse_inertia_kg_m2: float | None = None
     #: the units the person sees (machine profile): the procedure's own sentences (refusals,
     #: the redo, the forces confirmed) name masses and forces in them; the facts stay g, N
     units: UnitChoice = METRIC
@@ -226,6 +234,28 @@ class Solution:
 
 
 @dataclass(frozen=True)
+class ModelAnswer:
+    """What the model of the rotor says after the as-found run and its coast-down
+    (model-first, issue #20 item 4).
+
+    ``trusted``: a first correction may be placed with no trial run; else ``distrust``
+    gives why not (the codes of ``trueturn.balance.model_first.Distrust``) and the job goes
+    on with trial runs. ``mass_95_g`` / ``angle_95_deg``: per plane, the 95 % +/- of the
+    model's correction; ``residual_fraction_95``: the share of the as-found 1x the
+    correction leaves in 95 % of the model's draws (None: not estimated); ``prior``: the
+    prediction every later run refines (opaque to the procedure); ``solution``: the
+    correction (None when not trusted)."""
+
+    trusted: bool
+    distrust: tuple[str, ...] = ()
+    mass_95_g: tuple[float, ...] = ()
+    angle_95_deg: tuple[float, ...] = ()
+    residual_fraction_95: float | None = None
+    prior: object = None
+    solution: Solution | None = None
+
+
+@dataclass(frozen=True)
 class KeptRun:
     """A run as a job kept it, to rebuild a procedure from (:meth:`Procedure.restore`).
 
@@ -271,6 +301,23 @@ class Engine(Protocol):
     def assess(self, setup: ProcedureSetup, runs: list[Run],
                removal: bool) -> tuple[Verdict, Solution]:
         """Verdict on the last run, and the trim that would still be needed."""
+        ...
+
+    def model_first(self, setup: ProcedureSetup, runs: Sequence[Run],
+                    resonances: object) -> ModelAnswer:
+        """Model-first: the model's answer after the as-found run (``runs[0]``) and the
+        sweep's support resonances per pickup (None: no sweep)."""
+        ...
+
+    def model_solve(self, setup: ProcedureSetup, runs: Sequence[Run], removal: bool,
+                    prior: object) -> Solution:
+        """Model-first: the correction from the prior refined by ``runs``."""
+        ...
+
+    def model_assess(self, setup: ProcedureSetup, runs: Sequence[Run], removal: bool,
+                     prior: object) -> tuple[Verdict, Solution]:
+        """Model-first: verdict on the last run with the coefficients refined by every run,
+        and the trim still needed."""
         ...
 
 
@@ -370,6 +417,8 @@ def planes_for(setup: ProcedureSetup) -> tuple[Plane, ...]:
     """The correction planes a procedure works in."""
     if setup.mode is Mode.SAVED_TRIM:
         return tuple(p for p in setup.planes if p.name in setup.saved_planes)
+    if setup.mode is Mode.MODEL_FIRST:
+        return setup.planes[:2]
     return setup.planes[:2] if setup.mode is Mode.TWO_PLANE else setup.planes[:1]
 
 
@@ -491,6 +540,10 @@ class Procedure:
         #: the run they are for starts
         self._placed: list[MassChange] = []
         self.resumed = False  # rebuilt from a job's runs (:meth:`restore`)
+        #: model-first: the model's answer (None: not yet), and whether the job went on
+        #: with trial runs because the model could not be trusted
+        self.model: ModelAnswer | None = None
+        self.fallback = False
         self._after_check: Step | None = None  # a resumed job: the step after the check
 
     @classmethod
@@ -1035,7 +1088,7 @@ class Procedure:
         t = self.too_small_trial
         if self.step.kind != "correction" or t is None or t.suggested_g is None:
             raise GateRefused("there is no trial to redo with a larger mass")
-        if self.setup.mode not in (Mode.ONE_PLANE, Mode.TWO_PLANE):
+        if not self._by_trials:
             raise GateRefused("redo the trials with a larger mass from a new job")
         found = [(k, m) for k, r in enumerate(self.runs) for m in r.masses
                  if m.kind == "trial" and m.plane == t.plane]
@@ -1070,12 +1123,48 @@ class Procedure:
         """Go on to the hands-on step that places the correction parts."""
         if self.step.kind == "correction" and self.problem:
             raise GateRefused(f"no correction: {self.problem}")
+        if self.awaiting_sweep:
+            raise GateRefused("the model waits for the coast-down: let the machine run down "
+                              "to a stop")
         if self.step.kind != "correction" or self.solution is None:
             raise GateRefused("no correction is waiting")
         changes = [MassChange("detach", m) for m in self.on_rotor if m.kind == "trial"]
         changes += [MassChange("attach", p) for p in self.solution.parts]
         word = "Trim" if self.trims_done else "Correction"
         self.step = HandsOn(f"{word}: place the parts", tuple(changes))
+
+    # ---- model-first (issue #20 item 4) --------------------------------------------------
+    @property
+    def awaiting_sweep(self) -> bool:
+        """Model-first, after the as-found run: the model waits for the coast-down's
+        support resonances (:meth:`sweep_analysed`)."""
+        return (self.setup.mode is Mode.MODEL_FIRST and self.model is None
+                and len(self.runs) == 1 and not self.fallback
+                and isinstance(self.step, ShowCorrection) and not self.problem)
+
+    def sweep_analysed(self, resonances: object) -> ModelAnswer:
+        """The as-found run's sweep is analysed: ``resonances`` per pickup (the engine's
+        type; None: no sweep could be had). The model either gives the first correction
+        (no trial run) or says why it cannot be trusted, and the job goes on with a trial
+        run per plane; the as-found run is kept either way."""
+        if not self.awaiting_sweep:
+            raise GateRefused("the model's answer is given once, after the as-found run")
+        answer = self.engine.model_first(self.setup, self.runs[:1], resonances)
+        self.model = answer
+        if answer.trusted and answer.solution is not None:
+            self.solution = answer.solution
+            self.step = ShowCorrection("Correction from the model")
+            return answer
+        self.fallback = True
+        self.solution = None
+        self._advance_after_run(self.runs[0])
+        return answer
+
+    def _assess(self) -> tuple[Verdict, Solution]:
+        if self.setup.mode is Mode.MODEL_FIRST and not self.fallback and self.model is not None:
+            return self.engine.model_assess(self.setup, self.runs, self.removal,
+                                            self.model.prior)
+        return self.engine.assess(self.setup, self.runs, self.removal)
 
     # ---- is it unbalance? (issue #22) --------------------------------------------------
     @property
@@ -1146,6 +1235,8 @@ class Procedure:
         if mode is Mode.AMPLITUDE_ONLY:
             p = self.setup.planes[0]
             return [(f"trial {p.name} at {a:.0f} deg", p, a) for a in (0.0, 120.0, 240.0)]
+        if mode is Mode.MODEL_FIRST and not self.fallback:
+            return []  # the correction run serves as the trial
         return [(f"trial {p.name}", p, 0.0) for p in self.planes_used]
 
     def _trial_mass(self, plane: Plane, offset_deg: float) -> PlacedMass:
@@ -1179,7 +1270,7 @@ class Procedure:
         """Right after a trial run (tach procedures): check its effect against the as-found
         reading and its uncertainty; when it is too small to be seen, stop at a redo offer
         (:meth:`redo_trial_larger`) before moving on. Returns True when it stopped."""
-        if self.setup.mode not in (Mode.ONE_PLANE, Mode.TWO_PLANE):
+        if not self._by_trials:
             return False
         last = self.runs[-1] if self.runs else None
         if last is None or last.kind != RunKind.TRIAL:
@@ -1196,9 +1287,22 @@ class Procedure:
                            ": no change at all - is the trial mass on the rotor?"))
         return True
 
+    @property
+    def _by_trials(self) -> bool:
+        """The job measures a trial run per plane (by planes, or model-first fallen back)."""
+        return (self.setup.mode in (Mode.ONE_PLANE, Mode.TWO_PLANE)
+                or (self.setup.mode is Mode.MODEL_FIRST and self.fallback))
+
     def _advance_after_run(self, run: Run) -> None:
         trials = self._runs_needed()
         n_runs = len(self.runs)
+        if (self.setup.mode is Mode.MODEL_FIRST and n_runs == 1 and self.model is None
+                and not self.fallback):
+            # the coast-down after this run gives the supports' resonances: wait for it
+            self.problem = ""
+            self.solution = None
+            self.step = ShowCorrection("Correction from the model")
+            return
         if n_runs <= len(trials) + 1 and self._trial_too_small():
             return
         self.problem = ""
@@ -1217,7 +1321,7 @@ class Procedure:
             return
         # A check run: verdict, and the trim still needed.
         try:
-            verdict, trim = self.engine.assess(self.setup, self.runs, self.removal)
+            verdict, trim = self._assess()
             self.verdict = self._whole_machine(verdict, run)
         except GateRefused as exc:
             self.step = ShowCorrection("Check run not usable")
@@ -1268,6 +1372,10 @@ class Procedure:
 
     def _solve(self) -> Solution:
         if self.trims_done == 0:
+            if (self.setup.mode is Mode.MODEL_FIRST and not self.fallback
+                    and self.model is not None):
+                return self.engine.model_solve(self.setup, self.runs[:1], self.removal,
+                                               self.model.prior)
             return self.engine.solve(self.setup, self.runs[: len(self._runs_needed()) + 1],
                                      self.removal)
-        return self.engine.assess(self.setup, self.runs, self.removal)[1]
+        return self._assess()[1]

@@ -37,7 +37,7 @@ from trueturn.jobs.profiles import MachineProfile
 from trueturn.jobs.records import CoefficientSet
 from trueturn.link.session import GreetPhase
 from trueturn.model import Run, RunKind
-from trueturn.procedure.engine import BalanceEngine
+from trueturn.procedure.engine import BalanceEngine, resonances_from_sweep
 from trueturn.procedure.guide import (
     GateRefused,
     HandsOn,
@@ -897,7 +897,12 @@ class TrueturnApp(App):
         self._run_logic(snap)
         if self.sweep_coasting and snap.standstill:
             self.sweep_coasting = False
-            self.keep_sweep(self.session.finish_sweep())
+            outcome = self.session.finish_sweep()
+            self.keep_sweep(outcome)
+            if proc is not None and proc.awaiting_sweep:
+                # model-first: the as-found run's coast-down gives the supports' resonances
+                proc.sweep_analysed(resonances_from_sweep(
+                    outcome, proc.setup.sensors, proc.runs[0].speed_rpm or proc.setup.speed_rpm))
         bench.query_one("#status", StatusStrip).show(
             snap, machine=self.config.profile.name, demo=self.config.demo,
             identity=self.session.identity, link_error=self.link_error,
@@ -988,6 +993,13 @@ class TrueturnApp(App):
         if self.sweep_run is not None:
             self.keeper.sweep(self.sweep_run, outcome)
 
+    def model_words(self) -> tuple[str, ...]:
+        """Model-first: why the model was not trusted, while the trials it led to go on."""
+        proc = self.procedure
+        if proc is None or proc.model is None or proc.model.trusted or proc.verdict is not None:
+            return ()
+        return (texts.model_refused(proc.model.distrust),)
+
     def sweep_warnings(self) -> tuple[str, ...]:
         """The last sweep's findings (a resonance near the balancing speed), in words."""
         if self.sweep_shown is None:
@@ -1032,7 +1044,8 @@ class TrueturnApp(App):
             saved_trim=proc is None and self.saved_coefficients() is not None,
             job_path=self.keeper.path, report_path=self.keeper.report_path,
             open_job=texts.open_job_lines(self.open_job) if proc is None else (),
-            condition=(*self.condition, *self.sweep_warnings()) if proc is not None else (),
+            condition=(*self.condition, *self.sweep_warnings(), *self.model_words())
+            if proc is not None else (),
             message=texts.plain(texts.not_saved(self.keeper.unsaved)
                                 if self.keeper.unsaved and not self.quit_armed
                                 else self.message),

@@ -361,9 +361,10 @@ def mass_record(proc: Procedure, change: MassChange) -> rec.MassChange:
 #: the note of an amplitude-only job (files before "four-run" said only this)
 AMPLITUDE_NOTE = "amplitude-only procedure (four-run method)"
 #: the job file's word for each procedure (JobRecord.method)
-METHOD_OF_MODE: dict[Mode, Literal["single-plane", "two-plane", "four-run", "trim"]] = {
+METHOD_OF_MODE: dict[Mode, Literal["single-plane", "two-plane", "four-run", "trim",
+                                  "model-first"]] = {
     Mode.ONE_PLANE: "single-plane", Mode.TWO_PLANE: "two-plane",
-    Mode.AMPLITUDE_ONLY: "four-run", Mode.SAVED_TRIM: "trim"}
+    Mode.AMPLITUDE_ONLY: "four-run", Mode.SAVED_TRIM: "trim", Mode.MODEL_FIRST: "model-first"}
 
 
 def confirmation_record(step: str, board_time_s: float,

@@ -43,6 +43,7 @@ def profile_from_scenario(scenario: Scenario) -> MachineProfile:
         bearings=[Bearing(f"bearing {i + 1}", b.axial_mm)
                   for i, b in enumerate(scenario.rotor.bearings)],
         cg_axial_mm=scenario.rotor.centre_of_mass_axial_mm,
+        transverse_inertia_kg_m2=scenario.rotor.transverse_inertia_kg_m2,
         notes="Simulated rig for the demo; all numbers are invented.")
 
 
@@ -73,7 +74,9 @@ def setup_from_profile(profile: MachineProfile, mode: Mode, standstill_s: float 
         owned_parts_g=tuple(profile.correction_parts.masses_g())
         if profile.correction_parts is not None else (),
         owned_stack=profile.correction_parts.stack if profile.correction_parts else 1,
-        units=profile.units.choice())
+        units=profile.units.choice(),
+        pickup_angles_deg=tuple(p.angle_from_tach_deg for p in profile.pickups),
+        transverse_inertia_kg_m2=profile.transverse_inertia_kg_m2)
 
 
 def describe_change(change: MassChange, proc: Procedure, engine: BalanceEngine,

@@ -59,6 +59,9 @@ PLACEHOLDERS = {
     # Pickup.angle_from_tach_deg: from the line shaft -> tach to the pickup's arrow,
     # counted against rotation (trueturn/angles.py); blank: not measured
     "angle": "blank: not measured (then trial runs)",
+    # MachineProfile.transverse_inertia_kg_m2 (about a line across the shaft through the
+    # centre of mass); blank: not known
+    "inertia": "blank: not known (then trial runs)",
 }
 
 
@@ -74,6 +77,8 @@ def form_fields(pickups: int) -> list[FormField]:
         FormField("rotation", "Turns, seen from the front (cw or ccw)", "cw"),
         FormField("bearings", "Bearings along the shaft, mm (two, or blank)",
                   short="the bearings' positions"),
+        FormField("inertia", "Rotor inertia across the shaft, kg m2",
+                  short="the rotor's inertia across the shaft"),
     ]
     for k in range(1, MAX_PLANES + 1):
         p = f"Plane {k}"
@@ -174,6 +179,8 @@ def form_data(values: dict[str, str], pickups: int,
     put(data, "speed_min_rpm", "speed_min_rpm", "speed_min", speed if low is None else low)
     put(data, "max_speed_rpm", "max_speed_rpm", "max_speed", _value(values.get("max_speed", "")))
     put(data, "rotation", "rotation", "rotation", values.get("rotation", "").strip() or None)
+    put(data, "transverse_inertia_kg_m2", "transverse_inertia_kg_m2", "inertia",
+        _none_word(values.get("inertia", "")))
     old_bearings = data.get("bearings") or []
     bearings = [{"name": (old_bearings[i]["name"] if i < len(old_bearings) and
                           len(old_bearings) == 2 else f"bearing {i + 1}"), "axial_mm": v}
@@ -235,7 +242,8 @@ def form_values(profile: MachineProfile, pickups: int) -> dict[str, str]:
                   speed_min="" if profile.speed_min_rpm == profile.speed_max_rpm else
                   num(profile.speed_min_rpm), rotation=profile.rotation,
                   bearings=", ".join(num(b.axial_mm) for b in profile.bearings),
-                  mains=str(profile.mains_hz), grade=num(profile.target_grade))
+                  mains=str(profile.mains_hz), grade=num(profile.target_grade),
+                  inertia=num(profile.transverse_inertia_kg_m2))
     for k, plane in enumerate(profile.planes[:MAX_PLANES], start=1):
         lay = plane.layout
         positions = ("0" if lay.kind == "free" else str(lay.positions) if lay.kind == "equal"
@@ -377,8 +385,7 @@ class MachineForm(ModalScreen[MachineProfile | None]):
             for f in self.fields:
                 yield Label(f.label)
                 yield Input(value=values[f.key], id=f"f-{f.key}",
-                            placeholder=PLACEHOLDERS.get(f.key[3:] if f.key[0] == "k" else "",
-                                                         ""))
+                            placeholder=PLACEHOLDERS.get(f.key.split("_")[-1], ""))
         yield Static("", id="form-msg")
         yield Footer()
 

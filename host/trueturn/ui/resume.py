@@ -150,6 +150,9 @@ def restore_procedure(job: rec.JobRecord, engine: Engine, watch: StandstillWatch
     if job.status != "open":
         raise UserError(f"job {job.job_id} is closed; nothing to resume (start a new job)")
     mode = job_mode(job)
+    if mode is Mode.MODEL_FIRST:
+        raise UserError(f"job {job.job_id} is a model-first job, whose model is not kept in the "
+                        "job: start a new job")
     if mode is Mode.SAVED_TRIM and job.influence is None:
         raise UserError(f"job {job.job_id} does not keep the coefficients its trim used: "
                         "start a new trim")

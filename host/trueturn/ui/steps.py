@@ -393,10 +393,21 @@ class CorrectionPanel(ProcedurePanel):
     kit: reactive[tuple[KitFit, ...]] = reactive(())  # made from the person's parts
     removal: reactive[bool] = reactive(False)
     removal_allowed: reactive[bool] = reactive(False)
+    #: model-first: waiting for the coast-down; the model's 95 % +/- per plane (mass g,
+    #: angle deg) and the share of the 1x it leaves, shown with its first correction
+    waiting_sweep: reactive[bool] = reactive(False)
+    model_spread: reactive[tuple[tuple[float, float], ...]] = reactive(())
+    model_left: reactive[float | None] = reactive(None)
 
     def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
         super().show(proc, snap, ctx)
         assert proc is not None and isinstance(proc.step, ShowCorrection)
+        self.waiting_sweep = proc.awaiting_sweep
+        model = proc.model
+        first = model is not None and model.trusted and not proc.trims_done
+        self.model_spread = (tuple(zip(model.mass_95_g, model.angle_95_deg, strict=True))
+                             if first and model is not None else ())
+        self.model_left = model.residual_fraction_95 if first and model is not None else None
         self.problem = proc.problem
         small = proc.too_small_trial
         self.redo = small if small is not None and small.suggested_g is not None else None
@@ -425,12 +436,21 @@ class CorrectionPanel(ProcedurePanel):
             else:
                 lines += [texts.CHECK_THE_RIG, texts.ENTER_MEASURE_AGAIN]
             return lines
-        lines = [f"Method: {self.method}"]
-        for c in self.corrections:
+        if self.waiting_sweep:
+            return [texts.MODEL_WAITING]
+        spread = self.model_spread
+        lines = [texts.MODEL_TRUSTED] if spread else [f"Method: {self.method}"]
+        for j, c in enumerate(self.corrections):
             # removal: the same mass taken out opposite the add angle
             verb, at = (("remove", wrap_deg(c.angle_deg + 180.0)) if self.removal
                         else ("add", c.angle_deg))
-            lines.append(f"  {c.plane}: {verb} [b]{self.units.mass(c.mass_g)}[/b] at {at:.0f}°")
+            sure = (f" ± {self.units.mass(spread[j][0])}, ± {spread[j][1]:.0f}° (95 %)"
+                    if j < len(spread) else "")
+            lines.append(f"  {c.plane}: {verb} [b]{self.units.mass(c.mass_g)}[/b] at "
+                         f"{at:.0f}°{sure}")
+        if spread and self.model_left is not None:
+            lines.append(f"  It leaves at most {100 * self.model_left:.0f} % of the 1x in "
+                         "95 % of the model's draws.")
         lines.append(texts.PARTS_TO_PLACE)
         lines += ["  " + describe_part(p, self.units) for p in self.parts]
         for k in self.kit:

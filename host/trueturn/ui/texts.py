@@ -90,6 +90,7 @@ MODE_WORDS: dict[Mode, str] = {
     Mode.TWO_PLANE: "two planes (long rotor or two wheels)",
     Mode.AMPLITUDE_ONLY: "amplitude only: four-run method, no phase needed",
     Mode.SAVED_TRIM: "one-run trim with the coefficients of an earlier job",
+    Mode.MODEL_FIRST: "model first: a correction from the coast-down, no trial",
 }
 #: key -> procedure, derived from the list above (the keys the set-up and the messages name)
 MODE_KEYS: dict[str, Mode] = {str(n): mode for n, mode in enumerate(MODE_WORDS, start=1)}
@@ -105,7 +106,7 @@ KEYS: list[tuple[str, str]] = [
     ("s", "Spectrum with labelled peaks"),
     ("v", "Sweep: the last coast-down or run-up, 1x against speed, resonances"),
     ("g", "Guide: the balancing procedure"),
-    (" ".join(MODE_KEYS), "Set-up: one plane / two planes / amplitude only / one-run trim"),
+    (" ".join(MODE_KEYS), "Set-up: one plane / two planes / amplitude only / trim / model"),
     ("Enter", "Set-up: continue the open job offered (1-4 start a new one)"),
     ("p", "Set-up: pick a saved machine or create a new one"),
     ("Space", "Guide: tick the next checklist item (only at proven standstill)"),
@@ -211,8 +212,8 @@ def setup_choices(saved_trim: bool) -> list[str]:
 
 SETUP_FOOTER = (
     "  [b]p[/b]  pick another saved machine, or create one", "",
-    "Every hands-on step waits for tach standstill and your checklist.",
-    "Press [b]c[/b] for the cautions first.",
+    # one line (the set-up with an open job offered fits 80x24 with five procedures)
+    "Hands-on steps wait for proven standstill and your checklist. [b]c[/b]: cautions.",
 )
 
 LOOK_OVER = "  Look the rotor over: weights, fasteners, pickups, tach mark."
@@ -236,6 +237,33 @@ A_NOT_NOW = "[b]a[/b]: not now, go back and inspect the rotor"
 NOT_READY_WHY = "waiting for enough steady revolutions"
 A_STOP_RUN = ("Stop at once on a warning below. [b]a[/b]: stop this run now (nothing of it is "
               "kept)")
+
+# ---- model-first (issue #20 item 4) --------------------------------------------------------
+MODEL_WAITING = ("The model needs this run's coast-down: switch the machine off and let it "
+                 "run down to a stop by itself (no brake). Nothing hands-on until it stands "
+                 "still.")
+#: why the model cannot be trusted, by ``balance.model_first.Distrust`` code
+DISTRUST_WORDS: dict[str, str] = {
+    "no-sweep": "no coast-down was recorded",
+    "stiffness-unknown": "the coast-down found no resonance of the supports",
+    "no-pickup-angle": "a pickup's angle from the tach is not in the machine profile",
+    "no-bearings": "the bearings' or planes' positions are not in the machine profile",
+    "near-resonance": "the balancing speed is near a resonance of the supports",
+    "sweep-misfit": "the coast-down's resonance does not fit one mode",
+    "too-uncertain": "its correction might not even halve the 1x",
+    "uncalibrated": "a pickup reads volts (no sensitivity in the profile)",
+}
+
+
+def model_refused(codes: Sequence[str]) -> str:
+    """One line: why the model gives no correction, and what happens instead."""
+    why = "; ".join(DISTRUST_WORDS.get(c, c) for c in codes) or "no reason given"
+    return f"Model not trusted ({why}): a trial run per plane follows; the as-found run is kept."
+
+
+MODEL_TRUSTED = ("From the model, no trial run: the coast-down fits, the pickups' angles are "
+                 "known, the speed is clear of resonances. The check run refines it.")
+
 
 CHECK_THE_RIG = ("Check that the pickups and the tach did not move, that the trial mass is on "
                  "the rotor, and that the machine ran at its usual speed.")

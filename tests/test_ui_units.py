@@ -113,7 +113,7 @@ def test_the_guide_shows_the_as_found_readings_after_that_run(tmp_path: Path) ->
 def test_the_procedure_keys_come_from_the_modes(tmp_path: Path) -> None:
     # every procedure has its key, in order, and the message names them all
     assert list(texts.MODE_KEYS.values()) == list(Mode)
-    assert texts.CHOOSE_FIRST == "Choose the procedure first: 1, 2, 3 or 4."
+    assert texts.CHOOSE_FIRST == "Choose the procedure first: 1, 2, 3, 4 or 5."
 
     async def scenario() -> None:
         app = make_app("bench-grinder", tmp_path)

@@ -699,7 +699,7 @@ class TrueturnApp(App):
         return self._saved_cache[prof.name]
 
     def choose_item(self, item: int) -> None:
-        """1-4 choose the procedure (only while none is chosen: they never tick a list)."""
+        """1-5 choose the procedure (only while none is chosen: they never tick a list)."""
         if self.procedure is None:
             mode = texts.MODE_KEYS.get(str(item))
             if mode is not None:

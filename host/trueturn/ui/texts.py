@@ -107,7 +107,7 @@ KEYS: list[tuple[str, str]] = [
     ("v", "Sweep: the last coast-down or run-up, 1x against speed, resonances"),
     ("g", "Guide: the balancing procedure"),
     (" ".join(MODE_KEYS), "Set-up: one plane / two planes / amplitude only / trim / model"),
-    ("Enter", "Set-up: continue the open job offered (1-4 start a new one)"),
+    ("Enter", "Set-up: continue the open job offered (1-5 start a new one)"),
     ("p", "Set-up: pick a saved machine or create a new one"),
     ("Space", "Guide: tick the next checklist item (only at proven standstill)"),
     ("Backspace", "Guide: take back the last tick"),
@@ -408,7 +408,7 @@ def open_job_lines(offer: OpenJob | None) -> tuple[str, ...]:
     if offer.refusal:
         return (head, f"  [yellow]{plain(offer.refusal)}[/]")
     return (head, *(f"  on the rotor: {plain(line)}" for line in offer.lines),
-            "  [b]Enter[/b]  continue it (1-4 start a new job; it stays open)")
+            "  [b]Enter[/b]  continue it (1-5 start a new job; it stays open)")
 
 
 def runs_words(runs: int) -> str:

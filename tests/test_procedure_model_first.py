@@ -167,3 +167,26 @@ def test_the_sweeps_resonances_as_the_model_takes_them() -> None:
     flat = replace(sweep, is_sweep=False)
     assert resonances_from_sweep(SweepOutcome("runup", flat, None, ()), ("a",), 3500.0) is None
     assert resonances_from_sweep(None, ("a",), 3500.0) is None
+
+
+@pytest.mark.parametrize("angles", [True, False])
+def test_when_balancing_may_not_help_the_question_comes_first(angles: bool) -> None:
+    # issue #22: the app's judgement of the as-found run (rule codes of dsp.unbalance) comes
+    # before the model's answer; the person is asked before any mass goes on
+    rig = Rig("bench-grinder", Mode.MODEL_FIRST)
+    if not angles:
+        rig.setup = replace(rig.setup, pickup_angles_deg=(None, None))
+        rig.proc = Procedure(rig.setup, BalanceEngine())
+    rig.hands_on()
+    rig.run()
+    proc = rig.proc
+    proc.as_found_judged(("phase_repeatable",))
+    assert proc.awaiting_sweep
+    proc.sweep_analysed(coast_down_resonances(rig))
+    assert proc.step.kind == "doubt"
+    with pytest.raises(GateRefused):
+        proc.accept_correction()
+    proc.go_on()
+    assert proc.step.kind == ("correction" if angles else "hands-on")
+    rig.complete()
+    assert proc.verdict is not None and proc.verdict.passed

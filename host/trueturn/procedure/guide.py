@@ -1154,10 +1154,15 @@ class Procedure:
         if answer.trusted and answer.solution is not None:
             self.solution = answer.solution
             self.step = ShowCorrection("Correction from the model")
-            return answer
-        self.fallback = True
-        self.solution = None
-        self._advance_after_run(self.runs[0])
+        else:
+            self.fallback = True
+            self.solution = None
+            self._advance_after_run(self.runs[0])
+        # is it unbalance? (issue #22): the app's judgement of the as-found run came before
+        # the model's answer; when a rule failed, ask before the first mass goes on
+        self._before_trials = self.step
+        if self.doubt:
+            self.step = ShowDoubt("Balancing may not help", self.doubt)
         return answer
 
     def _assess(self) -> tuple[Verdict, Solution]:

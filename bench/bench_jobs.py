@@ -58,8 +58,11 @@ def _median_s(action, repeats: int) -> float:
 def _printed_pages(html: str, paper: str, chromium: str, folder: Path) -> int:
     """Pages of ``html`` printed by headless Chromium on ``paper`` (A4 or Letter)."""
     page = folder / f"report-{paper}.html"
-    page.write_text(html.replace("@page { margin: 12mm; }",
-                                 f"@page {{ size: {paper}; margin: 12mm; }}"), encoding="utf-8")
+    # the paper size in a rule of its own ahead of the report's @page (margins, footers):
+    # the report's rule no longer reads "@page { margin: 12mm; }", which this replaced, so
+    # both papers had printed on Chromium's default
+    page.write_text(html.replace("<style>", f"<style>@page {{ size: {paper}; }} ", 1),
+                    encoding="utf-8")
     pdf = folder / f"report-{paper}.pdf"
     subprocess.run([chromium, "--headless", "--no-sandbox", "--disable-gpu",
                     "--no-pdf-header-footer", f"--print-to-pdf={pdf}", page.as_uri()],
@@ -68,11 +71,18 @@ def _printed_pages(html: str, paper: str, chromium: str, folder: Path) -> int:
     return len(re.findall(rb"/Type\s*/Page(?!s)", pdf.read_bytes()))
 
 
+#: The demo job's report on paper, at most this many sheets of each size. The goal was 2
+#: before issues #17 (plots large enough for 7 pt text, sign-off lines, page footers), #20
+#: (sweeps) and #22 (the machine's condition) asked for more on paper.
+MAX_PAGES = 3
+PAGES_GOAL = f"<= {MAX_PAGES}"
+
+
 def _page_rows() -> list[Row]:
     chromium = next((c for c in ("chromium", "chromium-browser", "google-chrome")
                      if shutil.which(c)), None)
     if chromium is None:
-        return [Row("demo report printed pages", "chromium not installed", "<= 2", None)]
+        return [Row("demo report printed pages", "chromium not installed", PAGES_GOAL, None)]
     out = []
     html = html_report(read_document(DEMO_JOB, "job"))
     with tempfile.TemporaryDirectory() as tmp:
@@ -80,14 +90,15 @@ def _page_rows() -> list[Row]:
             try:
                 pages = _printed_pages(html, paper, chromium, Path(tmp))
             except (subprocess.SubprocessError, OSError) as exc:
-                out.append(Row(f"demo report printed pages, {paper}", f"failed: {exc}", "<= 2",
-                               None))
+                out.append(Row(f"demo report printed pages, {paper}", f"failed: {exc}",
+                               PAGES_GOAL, None))
                 continue
             if pages == 0:  # page objects inside compressed streams: not countable here
-                out.append(Row(f"demo report printed pages, {paper}", "not countable", "<= 2",
+                out.append(Row(f"demo report printed pages, {paper}", "not countable", PAGES_GOAL,
                                None))
                 continue
-            out.append(Row(f"demo report printed pages, {paper}", str(pages), "<= 2", pages <= 2))
+            out.append(Row(f"demo report printed pages, {paper}", str(pages), PAGES_GOAL,
+                           pages <= MAX_PAGES))
     return out
 
 

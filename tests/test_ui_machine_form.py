@@ -256,3 +256,15 @@ def test_the_rotors_inertia_across_the_shaft_is_optional() -> None:
         profile_from_form(typed(inertia="-1"), 2)
     assert caught.value.field == "inertia" and "must be more than 0" in str(caught.value)
     assert not FILE_KEYS.search(str(caught.value))
+
+
+def test_the_bearing_a_pickup_sits_on_is_optional() -> None:
+    p = profile_from_form(typed(k1_bearing="2", k2_bearing="2"), 2)
+    assert [k.on_bearing for k in p.pickups] == [2, 2]
+    assert form_values(p, 2)["k1_bearing"] == "2"
+    with pytest.raises(FormError) as caught:
+        profile_from_form(typed(k1_bearing="3"), 2)
+    assert caught.value.field == "k1_bearing" and "at most 2" in str(caught.value)
+    with pytest.raises(FormError) as caught:
+        profile_from_form(typed(k1_bearing="1", bearings="", p1_axial="", p2_axial=""), 2)
+    assert caught.value.field == "bearings" and not FILE_KEYS.search(str(caught.value))

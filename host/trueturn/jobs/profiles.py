@@ -144,6 +144,12 @@ class MachineProfile:
                     RuleCode.NAME_TWICE, f"name {names[i]!r} is used twice", value=names[i])))
         plane_names = {p.name for p in self.planes}
         for i, pickup in enumerate(self.pickups):
+            if pickup.on_bearing is not None and len(self.bearings) != 2:
+                problems.append(("bearings", Rule(
+                    RuleCode.NEEDED, "bearings are needed when a pickup names its bearing",
+                    other=f"pickups[{i}].on_bearing")))
+                break
+        for i, pickup in enumerate(self.pickups):
             if pickup.near_plane is not None and pickup.near_plane not in plane_names:
                 problems.append((f"pickups[{i}].near_plane", Rule(
                     RuleCode.UNKNOWN_NAME, f"near_plane {pickup.near_plane!r} is not a plane",

@@ -100,7 +100,11 @@ class Pickup:
     sensing axis points (its arrow, away from the shaft). A pickup on the tach's side,
     pointing the same way, is 0; one a quarter turn back from the tach (the side the rotor
     comes from) is 90. None: not measured (then no phase can be predicted, and the model
-    cannot give a correction without trial runs)."""
+    cannot give a correction without trial runs).
+
+    ``on_bearing`` (optional): the bearing the pickup sits on, numbered from 1 in the
+    profile's order of bearings (None: not said; the model-first correction then takes the
+    pickups in order, the first on the first bearing)."""
 
     name: str = field(metadata=limits(nonempty=True))
     sensitivity_mv_per_g: float = field(metadata=limits(above=0))
@@ -110,3 +114,4 @@ class Pickup:
     near_plane: str | None = None
     lowpass_corner_hz: float | None = field(default=None, metadata=limits(above=0))
     angle_from_tach_deg: float | None = field(default=None, metadata=angle_limits())
+    on_bearing: int | None = field(default=None, metadata=limits(minimum=1, maximum=2))

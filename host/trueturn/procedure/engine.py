@@ -350,7 +350,8 @@ class BalanceEngine:
         the prediction as prior, :class:`~trueturn.balance.model_first.CoefficientEstimate`)
         and solved into a correction with its 95 % spread in mass and angle. Not trusted
         (trials follow) for the prediction's own reasons, or when a pickup reads volts.
-        Which bearing a pickup sits on is not in the profile: in order, first -> first.
+        A pickup whose bearing the profile does not name is taken in order (the first on
+        the first bearing).
         """
         as_found = runs[0]
         names = list(setup.sensors)
@@ -369,9 +370,13 @@ class BalanceEngine:
                              tuple(p.radius_mm for p in planes), setup.cg_axial_mm,
                              setup.transverse_inertia_kg_m2)
         angles = setup.pickup_angles_deg
-        placements = [PickupPlacement.from_profile(n, min(i, 1),
-                                                   angles[i] if i < len(angles) else None)
-                      for i, n in enumerate(names)]
+        on = setup.pickup_bearings
+        placements = []
+        for i, n in enumerate(names):
+            said = on[i] if i < len(on) else None
+            placements.append(PickupPlacement.from_profile(
+                n, said if said is not None else min(i, 1),
+                angles[i] if i < len(angles) else None))
         sweep: dict[str, list[SupportResonance]] | None = None
         if isinstance(resonances, dict):
             sweep = {str(k): [r for r in v if isinstance(r, SupportResonance)]

@@ -176,6 +176,9 @@ class ProcedureSetup:
     #: per pickup, its angle from the tach counted against rotation (machine profile,
     #: ``Pickup.angle_from_tach_deg``; None: not measured); model-first needs it
     pickup_angles_deg: tuple[float | None, ...] = ()
+    #: per pickup, the bearing it sits on, 0 or 1 (machine profile ``on_bearing`` - 1;
+    #: None: not said, taken in order)
+    pickup_bearings: tuple[int | None, ...] = ()
     #: the rotor's transverse moment of inertia, kg m^2 (machine profile; None: not known)
     transverse_inertia_kg_m2: float | None = None
     #: the units the person sees (machine profile): the procedure's own sentences (refusals,

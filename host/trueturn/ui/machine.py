@@ -32,7 +32,8 @@ def profile_from_scenario(scenario: Scenario) -> MachineProfile:
     planes = [scenario.balancing_planes[cp.name] for cp in scenario.rotor.planes]
     pickups = [Pickup(p.name, e.sensitivity_v_per_g * 1000.0, e.zero_g_v * 1000.0,
                       direction="vertical" if abs(p.direction_deg - 90.0) < 1 else "horizontal",
-                      angle_from_tach_deg=scenario.rotor.angle_from_tach_deg(p))
+                      angle_from_tach_deg=scenario.rotor.angle_from_tach_deg(p),
+                      on_bearing=p.bearing + 1)
                for p, e in zip(scenario.rotor.pickups, scenario.electrical, strict=False)]
     return MachineProfile(
         name=f"{scenario.name} (demo)", rotor_kind=scenario.title,
@@ -76,6 +77,8 @@ def setup_from_profile(profile: MachineProfile, mode: Mode, standstill_s: float 
         owned_stack=profile.correction_parts.stack if profile.correction_parts else 1,
         units=profile.units.choice(),
         pickup_angles_deg=tuple(p.angle_from_tach_deg for p in profile.pickups),
+        pickup_bearings=tuple(None if p.on_bearing is None else p.on_bearing - 1
+                              for p in profile.pickups),
         transverse_inertia_kg_m2=profile.transverse_inertia_kg_m2)
 
 

@@ -62,6 +62,8 @@ PLACEHOLDERS = {
     # MachineProfile.transverse_inertia_kg_m2 (about a line across the shaft through the
     # centre of mass); blank: not known
     "inertia": "blank: not known (then trial runs)",
+    # Pickup.on_bearing; blank: the pickups in order (first on the first bearing)
+    "bearing": "blank: in order",
 }
 
 
@@ -98,7 +100,9 @@ def form_fields(pickups: int) -> list[FormField]:
         fields += [FormField(f"k{j}_sens", f"Pickup {j}: sensitivity, mV/g", "300"),
                    FormField(f"k{j}_corner", f"Pickup {j}: input filter corner, Hz (or none)"),
                    FormField(f"k{j}_angle", f"Pickup {j}: deg from tach, against rotation",
-                             short=f"pickup {j}'s angle from the tach")]
+                             short=f"pickup {j}'s angle from the tach"),
+                   FormField(f"k{j}_bearing", f"Pickup {j}: on bearing (1 or 2)",
+                             short=f"pickup {j}'s bearing")]
     fields += [FormField("mains", "Mains frequency, Hz (50 or 60)", "50"),
                FormField("grade", "Target grade G, mm/s", "6.3")]
     return fields
@@ -223,6 +227,8 @@ def form_data(values: dict[str, str], pickups: int,
             _none_word(values.get(f"k{j + 1}_corner", "")))
         put(pickup, "angle_from_tach_deg", f"{at}.angle_from_tach_deg", f"k{j + 1}_angle",
             _none_word(values.get(f"k{j + 1}_angle", "")))
+        put(pickup, "on_bearing", f"{at}.on_bearing", f"k{j + 1}_bearing",
+            _none_word(values.get(f"k{j + 1}_bearing", "")))
         source[at] = f"k{j + 1}_sens"
         out_pickups.append(pickup)
     put(data, "pickups", "pickups", "k1_sens" if pickups else "name", out_pickups)
@@ -258,6 +264,7 @@ def form_values(profile: MachineProfile, pickups: int) -> dict[str, str]:
         values[f"k{j}_corner"] = ("none" if pickup.lowpass_corner_hz is None
                                   else num(pickup.lowpass_corner_hz))
         values[f"k{j}_angle"] = num(pickup.angle_from_tach_deg)
+        values[f"k{j}_bearing"] = "" if pickup.on_bearing is None else str(pickup.on_bearing)
     return values
 
 

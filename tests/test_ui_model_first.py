@@ -83,3 +83,30 @@ def test_without_pickup_angles_the_app_says_why_and_runs_trials(tmp_path: Path) 
             assert unbalance_now(app) < 0.1 * before
             await press(app, pilot, "q")
     asyncio.run(scenario())
+
+
+def test_the_model_first_screens_fit_80x24(tmp_path: Path) -> None:
+    # the wait for the coast-down fits whole; the model's correction is laid out whole and
+    # scrolls to its last line, nothing cut off (assert_fits, tests/test_ui_resume_app.py)
+    from test_ui_app import through_hands_on_gates, wait_for
+    from test_ui_resume_app import assert_fits
+
+    async def scenario() -> None:
+        app = grinder_app(tmp_path)
+        async with app.run_test(size=SIZE) as pilot:
+            await connect(app, pilot)
+            await assert_fits(app, pilot)   # the set-up with five procedures
+            await press(app, pilot, "5")
+            await through_hands_on_gates(app, pilot)
+            await press(app, pilot, "enter")   # the as-found run
+            proc = app.procedure
+            assert proc is not None
+            await wait_for(pilot, lambda: len(proc.runs) == 1, 120)
+            await wait_for(pilot, lambda: "needs this run's coast-down" in screen_text(app))
+            await assert_fits(app, pilot, whole=True)
+            await press(app, pilot, "x")
+            await wait_for(pilot, lambda: not proc.awaiting_sweep, 180)
+            await wait_for(pilot, lambda: "(95 %)" in screen_text(app))
+            await assert_fits(app, pilot)
+            await press(app, pilot, "q")
+    asyncio.run(scenario())

@@ -232,8 +232,12 @@ def test_no_tach_run_is_never_accepted_and_says_why(tmp_path: Path) -> None:
                            0.95 * proc.setup.speed_rpm, 20)
             await wait_for(pilot, lambda: "No tach edge for" in screen_text(app), 10)
             await wait_for(pilot, lambda: app.session.snapshot().board_time_s > 8.0, 20)
-            text = screen_text(app)
-            assert "Tach: no tach edges" in text
+            # the screen is drawn on the app's next refresh after the meter has judged: wait
+            # for that drawing (reading it at once raced the refresh and failed under load)
+            await wait_for(pilot, lambda: "Tach: no tach edges" in screen_text(app), 10)
+            # the rotor turns: the status line never says standstill, the tach is at fault
+            await wait_for(pilot, lambda: "TACH FAULT" in screen_text(app), 10)
+            assert "STANDSTILL" not in screen_text(app)
             assert proc.runs == [] and proc.step.phase == "running"
             await press(app, pilot, "q")
     asyncio.run(scenario())

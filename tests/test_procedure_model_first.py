@@ -211,3 +211,48 @@ def test_the_model_puts_each_pickup_on_the_bearing_the_profile_names() -> None:
     # the check run that follows still refines the coefficients and the job reaches PASS
     rig.complete()
     assert rig.proc.verdict is not None and rig.proc.verdict.passed
+
+
+def test_the_verdict_bound_carries_the_models_own_uncertainty() -> None:
+    # The verdict after a model-first correction judges the residual through coefficients
+    # that are an estimate: the prediction refined by two runs. With two planes and two
+    # pickups, two runs cannot pin the coefficients down on their own, so the prior's
+    # width must reach the verdict's 95 % bound (ISO 14253-1 decision rule, from memory;
+    # Monte Carlo propagation, JCGM 101:2008). Same rig, same correction, same check run,
+    # judged against a share set between the two bounds: with the model's stated
+    # uncertainty the rotor passes; with the prior made 100 times less certain the same
+    # readings are "not proven", where judging through the estimate as if it were exact
+    # (the saved-set path, the app before this test) still says PASS.
+    from trueturn.balance.model_first import PredictedInfluence
+    from trueturn.model.result import VerdictFlag
+
+    rig = Rig("bench-grinder", Mode.MODEL_FIRST)
+    as_found_and_sweep(rig, coast_down_resonances(rig))
+    proc = rig.proc
+    assert proc.model is not None and proc.model.trusted
+    prior = proc.model.prior
+    assert isinstance(prior, PredictedInfluence)
+    proc.accept_correction()
+    rig.hands_on()              # the model's correction goes on
+    rig.run()                   # the check run
+    assert [r.label for r in proc.runs][0] == "as found" and len(proc.runs) == 2
+    engine = BalanceEngine()
+    runs = list(proc.runs)
+    wide = replace(prior, covariance=tuple(1e4 * c for c in prior.covariance))
+    narrow_v, _ = engine.model_assess(rig.setup, runs, False, prior)
+    wide_v, _ = engine.model_assess(rig.setup, runs, False, wide)
+    narrow_upper, wide_upper = max(narrow_v.residual_upper_gmm), max(wide_v.residual_upper_gmm)
+    assert wide_upper > 1.15 * narrow_upper > max(narrow_v.residual_gmm)
+    # the grade whose share (equal in both bearings here) sits between the two bounds
+    share = 0.5 * (narrow_upper + wide_upper)
+    setup = replace(rig.setup, grade_mm_per_s=rig.setup.grade_mm_per_s * share
+                    / narrow_v.permissible_gmm[0])
+    passed, _ = engine.model_assess(setup, runs, False, prior)
+    assert passed.passed and VerdictFlag.NOT_PROVEN not in passed.flags, passed
+    judged, _ = engine.model_assess(setup, runs, False, wide)
+    assert not judged.passed and VerdictFlag.NOT_PROVEN in judged.flags, judged
+    # the old way: the estimate's coefficients taken as exact (a saved set) passes
+    estimate = engine._estimate(setup, runs, wide)
+    saved = engine._as_saved(setup, runs, estimate)
+    exact, _ = engine.assess(replace(setup, saved_coefficients=saved), runs, False)
+    assert exact.passed, exact

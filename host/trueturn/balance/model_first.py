@@ -672,6 +672,55 @@ class CoefficientEstimate:
         c, *_ = np.linalg.lstsq(self.matrix, -self.as_found, rcond=None)
         return c
 
+    def residual_draws_g(self, last_reading: Mapping[str, complex],
+                         confidence_95: Mapping[str, float | None], draws: int = 400,
+                         seed: int = 1) -> tuple[np.ndarray, np.ndarray]:
+        """The correction still needed after the last run, nominal and drawn.
+
+        Parameters
+        ----------
+        last_reading : mapping of str to complex
+            The last run's 1x per pickup.
+        confidence_95 : mapping of str to float or None
+            Its 95 % circle radii.
+        draws : int, default 400
+            Monte Carlo draws: the coefficients and as-found 1x from the estimate's
+            covariance ``P`` (the prior's and every run's uncertainty), the reading within
+            its circle (with :data:`READING_REL_FLOOR` as a floor).
+        seed : int, default 1
+            Fixed: the same answer every time.
+
+        Returns
+        -------
+        (ndarray, ndarray)
+            The nominal correction still needed per plane (complex, grams at each plane's
+            radius) and its draws (draws x planes).
+
+        References
+        ----------
+        .. [1] Monte Carlo propagation of distributions, JCGM 101:2008 (GUM Supplement 1).
+        """
+        y = np.array([complex(last_reading[s]) for s in self.sensors])
+        nominal, *_ = np.linalg.lstsq(self.matrix, -y, rcond=None)
+        rng = np.random.default_rng(seed)
+        n = 1 + self.n_planes
+        n_s = len(self.sensors)
+        # circular complex Gaussian draws with each pickup's covariance: V sqrt(W) z
+        roots = []
+        for i in range(n_s):
+            w, v = np.linalg.eigh(self.covariance[i])
+            if not np.all(np.isfinite(w)):
+                return nominal, np.full((draws, self.n_planes), np.inf + 0j)
+            roots.append(v * np.sqrt(np.maximum(w, 0.0))[None, :])
+        z = (rng.normal(size=(draws, n_s, n)) + 1j * rng.normal(size=(draws, n_s, n))) / math.sqrt(2)
+        theta = self.theta[None] + np.einsum("ijk,dik->dij", np.array(roots), z)
+        sigma = np.array([max((confidence_95.get(s) or 0.0) / CIRCLE95,
+                              READING_REL_FLOOR * abs(y[i])) for i, s in enumerate(self.sensors)])
+        yd = y[None] + sigma[None] * (rng.normal(size=(draws, n_s)) + 1j * rng.normal(size=(draws, n_s)))
+        drawn = np.array([np.linalg.lstsq(theta[d, :, 1:], -yd[d], rcond=None)[0]
+                          for d in range(draws)])
+        return nominal, drawn
+
     def residual_g(self, last_reading: Mapping[str, complex], confidence_95: Mapping[str, float | None],
                    draws: int = 400, seed: int = 1) -> tuple[np.ndarray, np.ndarray]:
         """The unbalance still on the rotor after the last run, with a 95 % upper bound.
@@ -697,24 +746,8 @@ class CoefficientEstimate:
         ----------
         .. [1] Monte Carlo propagation of distributions, JCGM 101:2008 (GUM Supplement 1).
         """
-        y = np.array([complex(last_reading[s]) for s in self.sensors])
-        nominal, *_ = np.linalg.lstsq(self.matrix, -y, rcond=None)
-        rng = np.random.default_rng(seed)
-        n = 1 + self.n_planes
-        n_s = len(self.sensors)
-        # circular complex Gaussian draws with each pickup's covariance: V sqrt(W) z
-        roots = []
-        for i in range(n_s):
-            w, v = np.linalg.eigh(self.covariance[i])
-            roots.append(v * np.sqrt(np.maximum(w, 0.0))[None, :])
-        z = (rng.normal(size=(draws, n_s, n)) + 1j * rng.normal(size=(draws, n_s, n))) / math.sqrt(2)
-        theta = self.theta[None] + np.einsum("ijk,dik->dij", np.array(roots), z)
-        sigma = np.array([max((confidence_95.get(s) or 0.0) / CIRCLE95,
-                              READING_REL_FLOOR * abs(y[i])) for i, s in enumerate(self.sensors)])
-        yd = y[None] + sigma[None] * (rng.normal(size=(draws, n_s)) + 1j * rng.normal(size=(draws, n_s)))
-        mags = np.array([np.abs(np.linalg.lstsq(theta[d, :, 1:], -yd[d], rcond=None)[0])
-                         for d in range(draws)])
-        return nominal, np.percentile(mags, 95, axis=0)
+        nominal, drawn = self.residual_draws_g(last_reading, confidence_95, draws, seed)
+        return nominal, np.percentile(np.abs(drawn), 95, axis=0)
 
 
 def correction_spread(estimate: CoefficientEstimate, draws: int = 400, seed: int = 2

@@ -8,6 +8,7 @@ otherwise in the correction planes, flagged :attr:`VerdictFlag.NOT_AT_BEARINGS`.
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass, field, replace
 
 import numpy as np
@@ -210,8 +211,49 @@ def guard_band(v: Verdict, draws: np.ndarray | None) -> Verdict:
     """
     if draws is None or len(draws) == 0:
         return v
-    upper = np.maximum(np.percentile(np.abs(draws), 95, axis=0), np.asarray(v.residual_gmm))
+    mags = np.abs(draws)
+    unknown = ~np.all(np.isfinite(mags), axis=0)   # a draw that is not a number: no bound
+    upper = np.percentile(np.where(np.isfinite(mags), mags, 0.0), 95, axis=0)
+    upper = np.maximum(np.where(unknown, np.inf, upper), np.asarray(v.residual_gmm))
+    if v.residual_upper_gmm:
+        # a bound already known (another source of uncertainty): the wider one holds
+        upper = np.maximum(upper, np.asarray(v.residual_upper_gmm))
     v = replace(v, residual_upper_gmm=tuple(float(u) for u in upper))
     if v.passed and any(u > p for u, p in zip(upper, v.permissible_gmm, strict=True)):
         v = v.with_flags(VerdictFlag.NOT_PROVEN)
     return v
+
+
+def plane_draws_to_tolerance_planes(v: Verdict, draws_gmm: np.ndarray,
+                                    plane_axial_mm: Sequence[float | None],
+                                    bearing_axial_mm: Sequence[float]) -> np.ndarray:
+    """Residual draws in the correction planes (draws x planes, g·mm phasors) carried to
+    the verdict's tolerance planes: the bearings by rigid-rotor statics when the verdict is
+    judged there, else as they are.
+
+    Parameters
+    ----------
+    v : Verdict
+        The verdict the draws are for.
+    draws_gmm : numpy.ndarray
+        Residual unbalance vectors per correction plane, g·mm.
+    plane_axial_mm, bearing_axial_mm : sequence of float
+        The planes' and the two bearings' axial positions (needed at the bearings).
+
+    Returns
+    -------
+    numpy.ndarray
+        Draws x tolerance planes, g·mm.
+
+    References
+    ----------
+    .. [1] ISO 21940-11:2016, clause 4 (bearing planes as tolerance planes; from memory);
+       :func:`trueturn.balance.iso21940.bearing_lever_arms`.
+    """
+    if not v.at_bearings:
+        return draws_gmm
+    planes = [float(z) for z in plane_axial_mm if z is not None]
+    if len(planes) != draws_gmm.shape[1]:
+        raise ValueError("every plane's axial position is needed at the bearings")
+    arms = np.array(bearing_lever_arms(planes, list(bearing_axial_mm)))  # bearings x planes
+    return draws_gmm @ arms.T

@@ -33,7 +33,12 @@ from trueturn.balance.model_first import (
 from trueturn.balance.parts import best_combination
 from trueturn.balance.readings import BalanceInput, SavedCoefficient, Sensor, Tolerance
 from trueturn.balance.sanity import NoInformationError
-from trueturn.balance.solve import SolveReport, solve
+from trueturn.balance.solve import (
+    SolveReport,
+    guard_band,
+    plane_draws_to_tolerance_planes,
+    solve,
+)
 from trueturn.balance.splitting import negligible_parts, split
 from trueturn.balance.trial_mass import (
     STANDARD_GRAVITY_M_S2,
@@ -448,4 +453,18 @@ class BalanceEngine:
         saved = self._as_saved(setup, runs, estimate)
         verdict, trim = self.assess(replace(setup, saved_coefficients=saved), list(runs),
                                     removal)
+        # the saved set's guard band holds the last readings' circles only; the
+        # coefficients themselves are an estimate (the prediction refined by few runs):
+        # their covariance widens the bound, so a model that is confidently wrong can
+        # never carry a PASS (ISO 14253-1 decision rule, from memory; JCGM 101:2008)
+        last = runs[-1]
+        _, drawn_g = estimate.residual_draws_g(
+            {n: last.readings[n].vector for n in setup.sensors},
+            {n: last.readings[n].confidence_radius for n in setup.sensors})
+        planes = planes_for(setup)
+        radius_mm = np.array([p.radius_mm for p in planes])
+        draws_gmm = plane_draws_to_tolerance_planes(
+            verdict, -drawn_g * radius_mm[None, :], [p.axial_mm for p in planes],
+            [b.axial_mm for b in setup.bearings])
+        verdict = guard_band(verdict, draws_gmm)
         return verdict, replace(trim, method=MODEL_METHOD)

@@ -72,3 +72,29 @@ def test_choice_derives_force_rotor_mass_and_unbalance():
     assert (IMPERIAL.force, IMPERIAL.rotor_mass, IMPERIAL.unbalance) == ("lbf", "lb", "oz·in")
     assert (METRIC.force, METRIC.rotor_mass, METRIC.unbalance) == ("N", "kg", "g·mm")
     assert math.isclose(units.force_from_n(100.0, METRIC.force), 100.0)
+
+
+def test_the_choice_words_masses_and_forces_for_every_layer():
+    # the one wording the procedure and the app share (issue #20 follow-up); factors exact
+    # (NIST SP 811, 2008, B.8/B.9: 1 oz = 28.349523125 g, 1 lbf = 4.4482216152605 N)
+    assert IMPERIAL.mass_words(28.349523125 * 0.0264) == "0.026 oz"
+    assert METRIC.mass_words(0.7375) == "0.74 g"
+    assert IMPERIAL.force_words(4.4482216152605 * 12.3, sep=NBSP) == f"12.3{NBSP}lbf"
+    assert METRIC.force_words(54.8) == "54.8 N"
+    assert units.UnitChoice("oz", "mm", "mm/s").force_words(4.4482216152605) == "1.00 lbf"
+
+
+@pytest.mark.parametrize("suggested_g", [0.004, 0.05, 0.3101, 1.234, 12.0, 0.74])
+def test_a_mass_for_a_person_is_rounded_up_to_a_whole_step_of_the_scale(suggested_g):
+    # one step for every mass rounded up for a person: what the app shows, 0.01 g or
+    # 0.001 oz (a pocket scale, common practice, no source); 1 oz = 28.349523125 g exact
+    # (NIST SP 811, B.8). Checked in the person's unit by integer arithmetic on the steps.
+    g = units.ceil_to_scale_g(suggested_g, "g")
+    hundredths = round(g * 100)
+    assert g == pytest.approx(hundredths / 100, abs=1e-12)
+    assert hundredths == max(1, math.ceil(suggested_g * 100 - 1e-9))
+    assert units.mass_text(g, "g") == f"{hundredths / 100:.2f} g"  # the words show it exactly
+    oz = units.ceil_to_scale_g(suggested_g, "oz") / 28.349523125
+    thousandths = round(oz * 1000)
+    assert oz == pytest.approx(thousandths / 1000, abs=1e-12)
+    assert thousandths == max(1, math.ceil(suggested_g / 28.349523125 * 1000 - 1e-9))

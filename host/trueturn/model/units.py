@@ -93,6 +93,15 @@ class UnitChoice:
     def unbalance(self) -> str:
         return f"{self.mass}·{self.length}"
 
+    def mass_words(self, mass_g: float, sep: str = " ") -> str:
+        """A mass in these units at the scale's resolution (:func:`mass_text`): ``'0.74 g'``,
+        ``'0.026 oz'``. The one wording of a mass for every layer that speaks to a person."""
+        return mass_text(mass_g, self.mass, sep)
+
+    def force_words(self, force_n: float, sep: str = " ") -> str:
+        """A force in these units (N, or lbf with ounces; :func:`force_text`)."""
+        return force_text(force_n, self.force, sep)
+
 
 METRIC = UnitChoice()
 IMPERIAL = UnitChoice("oz", "in", "in/s")
@@ -193,6 +202,25 @@ def mass_text(mass_g: float, unit: MassUnit, sep: str = " ") -> str:
 def rounded_mass_g(mass_g: float, unit: MassUnit) -> float:
     """``mass_g`` rounded to what :func:`mass_text` shows, back in grams."""
     return mass_to_g(round(mass_from_g(mass_g, unit), MASS_DECIMALS[unit]), unit)
+
+
+def ceil_to_scale_g(mass_g: float, unit: MassUnit) -> float:
+    """``mass_g`` rounded up to a whole step of the scale in the person's unit, back in
+    grams: a trial (or a redone one) is never lighter than suggested, never zero.
+
+    The step is the resolution every mass is shown with (:data:`MASS_DECIMALS`: 0.01 g,
+    0.001 oz), the one rule wherever a mass is rounded up for a person. Why not 0.1 g (a
+    kitchen scale): the app already shows and the solver rounds every correction to 0.01 g,
+    so it assumes a pocket scale reading 0.01 g (the usual tool for fans and wheels,
+    whose corrections are fractions of a gram; common practice, no source); a 0.1 g step
+    would round a 0.31 g trial up to 0.40 g (+29 %) and, in grams only, be 3.5 times coarser
+    than the 0.001 oz (0.028 g) step a person in ounces gets on the same scale. A person
+    whose scale is coarser rounds up once more and enters what was fitted (the fitted mass,
+    not the suggestion, is what the runs use).
+    """
+    step = 10.0 ** -MASS_DECIMALS[unit]
+    steps = max(1, math.ceil(round(mass_from_g(mass_g, unit) / step, 9)))
+    return mass_to_g(steps * step, unit)
 
 
 def length_text(length_mm: float, unit: LengthUnit, sep: str = " ") -> str:

@@ -51,6 +51,7 @@ from trueturn.dsp.coast import SweepOutcome
 from trueturn.dsp.units import from_acceleration_factor
 from trueturn.errors import UserError
 from trueturn.model import Correction, MassKind, PlacedMass, Plane, Run, RunKind, Verdict
+from trueturn.model.units import ceil_to_scale_g
 from trueturn.procedure.guide import (
     GateRefused,
     KitFit,
@@ -132,7 +133,7 @@ class BalanceEngine:
         as-found reading, saved coefficients of the plane or the predicted sensitivity,
         scaled by what an earlier trial of this job showed."""
         t = self._sized_trial(setup, plane, runs)
-        mass_g = max(0.1, math.ceil(t.mass_g * 10.0) / 10.0)  # what a kitchen scale weighs
+        mass_g = ceil_to_scale_g(t.mass_g, setup.units.mass)  # a whole step of the scale
         position = 0 if plane.position_angles_deg else None
         angle = plane.position_angles_deg[0] if plane.position_angles_deg else 0.0
         force = self.force_n(mass_g, plane.radius_mm, setup.speed_rpm)

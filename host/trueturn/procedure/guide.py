@@ -54,28 +54,12 @@ from trueturn.model import (
     Verdict,
     VerdictFlag,
 )
-from trueturn.model.units import (
-    MASS_DECIMALS,
-    METRIC,
-    MassUnit,
-    UnitChoice,
-    force_text,
-    mass_from_g,
-    mass_text,
-    mass_to_g,
-)
+from trueturn.model.units import METRIC, UnitChoice, ceil_to_scale_g
 from trueturn.procedure.standstill import (
     StandstillEvidence,
     StandstillState,
     StandstillWatch,
 )
-
-
-def ceil_to_scale_g(mass_g: float, unit: MassUnit) -> float:
-    """``mass_g`` rounded up to what a pocket scale weighs in the person's unit (0.1 g, or
-    0.001 oz), back in grams: a redone trial is never lighter than suggested."""
-    step = 0.1 if unit == "g" else 10.0 ** -MASS_DECIMALS[unit]
-    return mass_to_g(math.ceil(round(mass_from_g(mass_g, unit) / step, 9)) * step, unit)
 
 
 class Mode(str, Enum):
@@ -184,14 +168,6 @@ class ProcedureSetup:
     #: the units the person sees (machine profile): the procedure's own sentences (refusals,
     #: the redo, the forces confirmed) name masses and forces in them; the facts stay g, N
     units: UnitChoice = METRIC
-
-    def mass_words(self, mass_g: float) -> str:
-        """A mass in the person's unit, at the scale's resolution."""
-        return mass_text(mass_g, self.units.mass)
-
-    def force_words(self, force_n: float) -> str:
-        """A force in the person's unit (N, or lbf with ounces)."""
-        return force_text(force_n, self.units.force)
 
 
 @dataclass(frozen=True)
@@ -790,8 +766,8 @@ class Procedure:
             if not (math.isfinite(mass_g) and mass_g > 0):
                 raise GateRefused(f"the fitted mass must be more than 0 {self.setup.units.mass}")
             if plane.max_mass_g is not None and mass_g > plane.max_mass_g:
-                raise GateRefused(f"{self.setup.mass_words(mass_g)} is more than {plane.name} "
-                                  f"takes ({self.setup.mass_words(plane.max_mass_g)}, machine "
+                raise GateRefused(f"{self.setup.units.mass_words(mass_g)} is more than {plane.name} "
+                                  f"takes ({self.setup.units.mass_words(plane.max_mass_g)}, machine "
                                   "profile)")
             new = replace(new, mass_g=mass_g)
         angles = plane.position_angles_deg
@@ -848,8 +824,8 @@ class Procedure:
             raise GateRefused("no run is waiting to be started")
         if not force_acknowledged:
             raise GateRefused("confirm the centrifugal force of the masses first")
-        text = tuple(f"{self.setup.mass_words(m.mass_g)} on {m.plane}: "
-                     f"{self.setup.force_words(f)} at "
+        text = tuple(f"{self.setup.units.mass_words(m.mass_g)} on {m.plane}: "
+                     f"{self.setup.units.force_words(f)} at "
                      f"{self.force_speed_rpm:.0f} rpm" for m, f in self.forces())
         self._force_text = text
         self._fits, self._placed = [], []  # the run starts with the masses as entered
@@ -1102,12 +1078,12 @@ class Procedure:
         limit = self.plane(t.plane).max_mass_g
         if limit is not None and mass_g > limit:
             raise GateRefused(f"the trial on {t.plane} would need "
-                              f"{self.setup.mass_words(mass_g)}, more than the plane takes "
-                              f"({self.setup.mass_words(limit)}, machine profile)")
+                              f"{self.setup.units.mass_words(mass_g)}, more than the plane takes "
+                              f"({self.setup.units.mass_words(limit)}, machine profile)")
         larger = replace(old, mass_g=mass_g)
         masses = tuple(larger if m == old else m for m in self.runs[index].masses)
         self._redo(index, masses,
-                   f"Redo {self.runs[index].label} with {self.setup.mass_words(mass_g)}")
+                   f"Redo {self.runs[index].label} with {self.setup.units.mass_words(mass_g)}")
         return larger
 
     def repeat_off_speed_run(self) -> OffSpeed:
@@ -1288,11 +1264,12 @@ class Procedure:
             return False
         self.step = ShowCorrection("Trial too small to be seen")
         self.too_small_trial = small
-        self.problem = (f"the trial on {small.plane} ({self.setup.mass_words(small.trial_g)}) "
-                        "changed the 1x too little to be seen"
-                        + (f": redo it with about {self.setup.mass_words(small.suggested_g)}"
-                           if small.suggested_g is not None else
-                           ": no change at all - is the trial mass on the rotor?"))
+        words = self.setup.units.mass_words
+        redo = (f": redo it with {words(ceil_to_scale_g(small.suggested_g, self.setup.units.mass))}"
+                if small.suggested_g is not None else
+                ": no change at all - is the trial mass on the rotor?")
+        self.problem = (f"the trial on {small.plane} ({words(small.trial_g)}) "
+                        f"changed the 1x too little to be seen{redo}")
         return True
 
     @property

@@ -16,7 +16,6 @@ fixed words live in :mod:`trueturn.ui.texts`.
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -31,6 +30,7 @@ from trueturn.dsp.findings import Code, Finding, describe
 from trueturn.jobs.profiles import MachineProfile
 from trueturn.model import Correction, PlacedMass, Reading, Verdict
 from trueturn.model.result import WITHHOLDING_FLAGS
+from trueturn.model.units import ceil_to_scale_g
 from trueturn.positions import number_of, position_text
 from trueturn.procedure.engine import BalanceEngine
 from trueturn.procedure.guide import (
@@ -431,7 +431,7 @@ class CorrectionPanel(ProcedurePanel):
             if small is not None and small.suggested_g is not None:
                 u = self.units
                 lines.append(f"[b]Enter[/b]: redo the trial on {small.plane} with "
-                             f"{u.mass(math.ceil(small.suggested_g * 10) / 10)} instead of "
+                             f"{u.mass(ceil_to_scale_g(small.suggested_g, u.units.mass))} instead of "
                              f"{u.mass(small.trial_g)} (the other runs are kept)")
             else:
                 lines += [texts.CHECK_THE_RIG, texts.ENTER_MEASURE_AGAIN]

@@ -14,9 +14,7 @@ from trueturn.model.units import (
     NBSP,
     UnitChoice,
     convert_vibration,
-    force_text,
     length_text,
-    mass_text,
     rotor_mass_text,
     unbalance_text,
     vibration_text,
@@ -39,7 +37,7 @@ class Shown:
     sep: str = NBSP  # between a number and its unit (a plain space for text kept in files)
 
     def mass(self, mass_g: float) -> str:
-        return mass_text(mass_g, self.units.mass, self.sep)
+        return self.units.mass_words(mass_g, self.sep)
 
     def length(self, length_mm: float) -> str:
         return length_text(length_mm, self.units.length, self.sep)
@@ -48,7 +46,7 @@ class Shown:
         return rotor_mass_text(mass_kg, self.units.rotor_mass, self.sep)
 
     def force(self, force_n: float) -> str:
-        return force_text(force_n, self.units.force, self.sep)
+        return self.units.force_words(force_n, self.sep)
 
     def unbalance(self, unbalance_gmm: float) -> str:
         return unbalance_text(unbalance_gmm, self.units.mass, self.units.length, self.sep)

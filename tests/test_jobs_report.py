@@ -18,8 +18,11 @@ from pathlib import Path
 
 import pytest
 
+from test_ui_procedure import Rig
+from test_ui_resume import keep_job, trial_step
 from trueturn.cli.main import main
 from trueturn.jobs import JobRecord, Workspace
+from trueturn.jobs.records import SuggestedMass
 from trueturn.jobs.report import (
     CAUTIONS,
     confidence_radius,
@@ -28,6 +31,7 @@ from trueturn.jobs.report import (
     readings_csv,
 )
 from trueturn.jobs.store import read_document
+from trueturn.procedure.guide import Mode
 
 DEMO_JOB = Path(__file__).parent / "data" / "demo_bench_grinder_job.yaml"
 XHTML = "{http://www.w3.org/1999/xhtml}"
@@ -338,3 +342,58 @@ def test_runs_differ_by_shape_and_labels_keep_off_the_markers(job: JobRecord) ->
             x, y = float(label.get("x")), float(label.get("y")) - 4.0  # centre of a 12-unit digit
             # every marker (8 units across) at least a marker and half a digit away
             assert min(math.dist((x, y), tip) for tip in tips) > 4 + 4
+
+
+def _fitted_otherwise(job: JobRecord) -> JobRecord:
+    """The demo job with its first correction part fitted otherwise: the person weighed a
+    1.70 g part where the procedure asked for 1.83 g on position 1 (the job keeps both,
+    issue #17)."""
+    fitted = copy.deepcopy(job)
+    change = next(ch for run in fitted.runs for ch in run.changes
+                  if ch.action == "attach" and ch.purpose == "correction")
+    change.mass_g = 1.7
+    change.suggested = SuggestedMass(mass_g=1.83, angle_deg=0.0, position=1)
+    return fitted
+
+
+def test_the_changes_show_the_suggested_mass_beside_the_fitted_one(job: JobRecord) -> None:
+    page = ET.fromstring(html_report(_fitted_otherwise(job)))
+    changes = table(page, "changes")
+    assert changes[0][-1] == "Suggested" and changes[0][4] == "Mass"
+    differing = [row for row in changes[1:] if row[-1] != "-"]
+    assert len(differing) == 1
+    assert (differing[0][4], differing[0][-1]) == ("1.70 g", "1.83 g at position 1 (0\u00b0)")
+    # a job where every part went on as suggested has no such column
+    plain = table(ET.fromstring(html_report(job)), "changes")
+    assert "Suggested" not in plain[0]
+    assert "| Suggested |" in markdown_report(_fitted_otherwise(job))
+
+
+def test_the_suggested_mass_is_in_the_profiles_units(job: JobRecord) -> None:
+    imperial = _fitted_otherwise(job)
+    imperial.machine.units.mass = "oz"
+    imperial.machine.units.length = "in"
+    changes = table(ET.fromstring(html_report(imperial)), "changes")
+    row = next(r for r in changes[1:] if r[-1] != "-")
+    # 1 oz (avoirdupois) = 28.349523125 g exactly (NIST SP 811, 2008, B.8): 1.70 g is
+    # 0.0600 oz, 1.83 g is 0.0646 oz, each at the scale's 0.001 oz
+    assert row[4] == f"{1.7 / 28.349523125:.3f} oz" == "0.060 oz"
+    assert row[-1] == f"{1.83 / 28.349523125:.3f} oz at position 1 (0\u00b0)" == \
+        "0.065 oz at position 1 (0\u00b0)"
+
+
+def test_a_part_fitted_otherwise_in_the_app_reaches_the_report(tmp_path: Path) -> None:
+    # the whole path: the procedure's suggestion, the person's entry, the job file, the report
+    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+    keeper = keep_job(rig, tmp_path)
+    step = trial_step(rig)
+    item = rig.proc.fittable()[0]
+    suggested = step.changes[item].mass
+    assert suggested is not None
+    rig.proc.fit(item, mass_g=0.5, angle_deg=30.0)
+    rig.hands_on()  # confirmed: the keeper writes the part, as fitted, into the job
+    assert keeper.path is not None
+    changes = table(ET.fromstring(html_report(read_document(keeper.path, "job"))), "changes")
+    assert changes[0][-1] == "Suggested"
+    assert changes[1][4:6] == ["0.50 g", "30\u00b0"]
+    assert changes[1][-1].startswith(f"{suggested.mass_g:.2f} g at ")

@@ -42,7 +42,7 @@ from trueturn.jobs.profiles import (
     format_length,
     format_mass,
 )
-from trueturn.jobs.records import EvidenceEntry, JobRecord, RunEntry, UnbalanceEntry
+from trueturn.jobs.records import EvidenceEntry, JobRecord, MassChange, RunEntry, UnbalanceEntry
 from trueturn.jobs.sweep_plot import sweep_svg
 from trueturn.jobs.sweeps import sweep_of
 from trueturn.model import Reading
@@ -615,23 +615,37 @@ def run_rows(job: JobRecord) -> tuple[list[str], list[list[str]]]:
     return header, rows
 
 
-def change_rows(job: JobRecord) -> list[list[str]]:
+#: the changes table's columns; "Suggested" only when a part was fitted otherwise
+CHANGE_HEADER = ["When", "Action", "Purpose", "Plane", "Mass", "Angle", "Position", "Radius",
+                 "Part"]
+
+
+def suggested_text(change: MassChange, units: Units) -> str:
+    """What the procedure suggested for a part fitted otherwise (issue #17), in the profile's
+    units: ``'3.05 g at position 2 (90°)'``, ``'hole 0.110 oz at 40°'``; ``'-'`` when the part
+    was fitted as suggested (the job keeps a suggestion only where they differ)."""
+    s = change.suggested
+    if s is None:
+        return "-"
+    where = position_text(s.position, s.angle_deg) if s.position else _deg(s.angle_deg)
+    return f"{'hole ' if s.hole else ''}{units.choice().mass_words(s.mass_g)} at {where}"
+
+
+def change_rows(job: JobRecord) -> tuple[list[str], list[list[str]]]:
+    """The parts put on and taken off (the header, the rows): what was fitted, and beside
+    it what was suggested where the two differ (a column only when some part differs)."""
     u = job.machine.units
-    rows = []
-    for run in job.runs:
-        for ch in run.changes:
-            rows.append([f"before run {run.index}", ch.action, ch.purpose, ch.plane,
-                         format_mass(ch.mass_g, u.mass), _deg(ch.angle_deg),
-                         str(ch.position) if ch.position else "-",
-                         format_length(ch.radius_mm, u.length) if ch.radius_mm else "-",
-                         ch.part or "-"])
+    changes = [(f"before run {run.index}", ch) for run in job.runs for ch in run.changes]
     if job.pending is not None:
-        for ch in job.pending.changes:
-            rows.append(["pending", ch.action, ch.purpose, ch.plane, format_mass(ch.mass_g, u.mass),
-                         _deg(ch.angle_deg), str(ch.position) if ch.position else "-",
-                         format_length(ch.radius_mm, u.length) if ch.radius_mm else "-",
-                         ch.part or "-"])
-    return rows
+        changes += [("pending", ch) for ch in job.pending.changes]
+    differ = any(ch.suggested is not None for _, ch in changes)
+    rows = []
+    for when, ch in changes:
+        row = [when, ch.action, ch.purpose, ch.plane, format_mass(ch.mass_g, u.mass),
+               _deg(ch.angle_deg), str(ch.position) if ch.position else "-",
+               format_length(ch.radius_mm, u.length) if ch.radius_mm else "-", ch.part or "-"]
+        rows.append(row + [suggested_text(ch, u)] if differ else row)
+    return CHANGE_HEADER + ["Suggested"] if differ else CHANGE_HEADER, rows
 
 
 def correction_rows(job: JobRecord) -> list[list[str]]:
@@ -1017,10 +1031,9 @@ def html_report(job: JobRecord, generated: str = "") -> str:
         parts.append(_html_table(["When", "Plane", "Action", "Mass", "Angle", "Split onto positions"],
                                  rows, "corrections"))
         parts += [f'<p class="note">{_e(n)}</p>' for n in kit_notes(job)]
-    rows = change_rows(job)
+    header, rows = change_rows(job)
     if rows:
-        parts.append(_html_table(["When", "Action", "Purpose", "Plane", "Mass", "Angle", "Position",
-                                  "Radius", "Part"], rows, "changes"))
+        parts.append(_html_table(header, rows, "changes"))
     if not job.runs and job.pending is None:
         parts.append('<p>No runs recorded yet.</p>')
     rows = influence_rows(job)
@@ -1113,10 +1126,9 @@ def markdown_report(job: JobRecord, generated: str = "") -> str:
         out += [_md_table(["When", "Plane", "Action", "Mass", "Angle", "Split onto positions"],
                           rows), ""]
         out += [f"{_md_text(n)}\n" for n in kit_notes(job)]
-    rows = change_rows(job)
+    header, rows = change_rows(job)
     if rows:
-        out += [_md_table(["When", "Action", "Purpose", "Plane", "Mass", "Angle", "Position",
-                           "Radius", "Part"], rows), ""]
+        out += [_md_table(header, rows), ""]
     rows = influence_rows(job)
     if rows:
         out += ["## Saved influence coefficients", "",

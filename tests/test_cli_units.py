@@ -52,6 +52,8 @@ def test_metric_and_imperial_answers_agree():
     ["split", "--mass-g", "1", "--mass-oz", "0.1", "--angle-deg", "0", "--positions", "4"],
     ["grade", "--rotor-mass-lb", "10", "--speed-rpm", "3450", "--grade", "6.3",
      "--residual-gmm", "1", "1", "--residual-ozin", "1", "1"],
+    ["split", "--mass-g", "7.7", "--angle-deg", "77", "--positions", "12", "--radius-mm", "40",
+     "--have-g", "1", "2", "--within-gmm", "20", "--within-ozin", "0.03"],
 ])
 def test_metric_and_imperial_of_one_quantity_is_one_line(argv):
     code, out, err = run_cli(argv)
@@ -219,3 +221,48 @@ def test_split_combines_masses_given_in_oz():
                                   "angle_deg": pytest.approx(45.0)}
     _, text, _ = run_cli(["split", "--combine-oz", "0.1@0", "0.1@90", "--positions", "4"])
     assert "correction to add: 0.141 oz at 45°" in text
+
+
+#: `split` from the parts you own: 7.7 g at 77° onto 12 positions at r = 40 mm, a kit of
+#: 0.5 ... 5 g parts stacked up to 3 (tests/test_balance_parts.py's case), in both units
+_KIT_G = ["0.5", "0.5", "1", "1", "2", "2", "5"]
+
+
+def _kit_argv(imperial: bool, within: float) -> list[str]:
+    if not imperial:
+        return ["split", "--mass-g", "7.7", "--angle-deg", "77", "--positions", "12",
+                "--radius-mm", "40", "--have-g", *_KIT_G, "--stack", "3",
+                "--within-gmm", repr(within), "--json"]
+    return ["split", "--mass-oz", repr(7.7 / OZ_G), "--angle-deg", "77", "--positions", "12",
+            "--radius-in", repr(40 / IN_MM), "--have-oz", *(repr(float(m) / OZ_G) for m in _KIT_G),
+            "--stack", "3", "--within-ozin", repr(within / (OZ_G * IN_MM)), "--json"]
+
+
+@pytest.mark.parametrize("within_gmm", [20.0, 45.0])
+def test_split_within_ozin_is_the_imperial_twin_of_within_gmm(within_gmm):
+    # 1 oz·in = 28.349523125 g x 25.4 mm = 720.077887375 g·mm exactly (NIST SP 811, B.8)
+    code, metric, err = run_cli(_kit_argv(False, within_gmm))
+    assert code == 0, err
+    code, imperial, err = run_cli(_kit_argv(True, within_gmm))
+    assert code == 0, err
+    m, i = json.loads(metric), json.loads(imperial)
+    assert "within_gmm" not in i and "residual_gmm" not in i  # answered in the units typed
+    assert i["within_ozin"] * OZ_G * IN_MM == pytest.approx(within_gmm, rel=1e-6)
+    assert i["residual_ozin"] * OZ_G * IN_MM == pytest.approx(m["residual_gmm"], rel=1e-6)
+    # the same parts on the same positions: the same good-enough rule in either unit
+    assert [(p["position"], len(p["masses_oz"])) for p in i["parts"]] == \
+        [(p["position"], len(p["masses_g"])) for p in m["parts"]]
+    assert m["residual_gmm"] <= within_gmm
+    code, text, _ = run_cli(_kit_argv(True, within_gmm)[:-1])
+    assert code == 0 and "oz·in" in text and "g·mm" not in text and " g " not in text
+
+
+def test_split_within_ozin_alone_is_one_line_naming_it():
+    code, out, err = run_cli(["split", "--mass-oz", "0.27", "--angle-deg", "77",
+                              "--positions", "12", "--within-ozin", "0.03"])
+    assert code == 2 and out == "" and len(err.strip().splitlines()) == 1
+    assert "--within-ozin goes with --have-g or --have-oz" in err
+    code, out, err = run_cli(["split", "--mass-oz", "0.27", "--angle-deg", "77", "--positions",
+                              "12", "--radius-in", "1.5", "--have-oz", "0.1", "--within-ozin",
+                              "-0.5"])
+    assert code == 2 and len(err.strip().splitlines()) == 1 and "--within-ozin" in err

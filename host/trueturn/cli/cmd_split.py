@@ -15,7 +15,14 @@ from trueturn.balance.splitting import (
     split,
 )
 from trueturn.cli.cmd_grade import parse_grade
-from trueturn.cli.common import add_quantity, json_in_units, number, print_json, read_units
+from trueturn.cli.common import (
+    add_quantity,
+    json_in_units,
+    number,
+    option_typed,
+    print_json,
+    read_units,
+)
 from trueturn.errors import UserError
 from trueturn.model.units import (
     IMPERIAL,
@@ -45,17 +52,6 @@ def _mass_at(text: str, unit: MassUnit = "g") -> tuple[float, float]:
 
 def _oz_at(text: str) -> tuple[float, float]:
     return _mass_at(text, "oz")
-
-
-def _gmm(text: str) -> float:
-    """A residual unbalance in g·mm: finite, 0 ... 1e9 (the cap ``grade`` uses)."""
-    try:
-        value = float(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"expected g·mm, got {text!r}") from None
-    if not 0.0 <= value <= 1e9:
-        raise argparse.ArgumentTypeError(f"must be a number from 0 to 1e9 g·mm, got {text}")
-    return value
 
 
 def add_parser(sub: argparse._SubParsersAction) -> None:
@@ -105,9 +101,9 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
     have.add_argument("--planes", type=int, choices=(1, 2), default=1,
                       help="correction planes of the rotor: 2 gives this plane half of U_per "
                            "(default 1)")
-    have.add_argument("--within-gmm", type=_gmm, metavar="U",
-                      help="good enough: use the fewest parts that leave at most U g·mm "
-                           "(default: the least unbalance, whatever the number of parts)")
+    add_quantity(parser, "within", "unbalance", "unbalance good enough to stop at: the fewest "
+                 "parts that leave at most U (default: the least unbalance, whatever the "
+                 "number of parts)", within=have, metavar="U")
     have.add_argument("--machine", metavar="NAME",
                       help="take the positions, radius, owned parts (correction_parts) and "
                            "grade from this machine profile; options given here win")
@@ -193,13 +189,14 @@ def run(args: argparse.Namespace) -> int:
             raise UserError(f"{option}: angles are -360..360 degrees from the reference mark, "
                             f"against rotation; got {value:g}")
     if args.have_g is None:
-        for flag in ("stack", "radius_mm", "grade", "speed_rpm", "rotor_mass_kg",
+        for name in ("stack", "radius_mm", "grade", "speed_rpm", "rotor_mass_kg",
                      "within_gmm"):
-            if getattr(args, flag) is not None:
-                raise UserError(f"--{flag.replace('_', '-')} goes with --have-g (the parts "
-                                "you own)")
+            if getattr(args, name) is not None:
+                raise UserError(f"{option_typed(args, name)} goes with --have-g or --have-oz "
+                                "(the parts you own)")
     elif args.remove:
-        raise UserError("--have-g places parts you add; it does not go with --remove")
+        raise UserError(f"{option_typed(args, 'have_g')} places parts you add; it does not go "
+                        "with --remove")
     if args.remove:
         if args.drill_mm is None:
             raise UserError("--remove needs --drill-mm")
@@ -214,7 +211,8 @@ def run(args: argparse.Namespace) -> int:
         positions = [angle_deg]
     if args.have_g is not None:
         if not (args.positions or args.at_deg):
-            raise UserError("--have-g needs the rotor's positions (--positions N or --at-deg)")
+            raise UserError(f"{option_typed(args, 'have_g')} needs the rotor's positions "
+                            "(--positions N or --at-deg)")
         return _run_have(args, mass_g, angle_deg, positions)
     parts = split(mass_g, angle_deg, positions)
     resolution_g = mass_to_g(10.0 ** -MASS_DECIMALS[shown.mass], shown.mass)
@@ -282,8 +280,8 @@ def _run_have(args: argparse.Namespace, mass_g: float, angle_deg: float,
               positions: list[float]) -> int:
     """The correction made from the parts the person owns (balance.parts)."""
     if args.radius_mm is None:
-        raise UserError("--have-g needs --radius-mm (the radius of the positions) to give the "
-                        "unbalance left in g·mm")
+        raise UserError(f"{option_typed(args, 'have_g')} needs --radius-mm or --radius-in (the "
+                        "radius of the positions) to give the unbalance left")
     if not 0 < args.radius_mm < float("inf"):
         raise UserError(f"--radius-mm must be greater than 0, got {args.radius_mm:g}")
     stack = 1 if args.stack is None else args.stack

@@ -23,6 +23,7 @@ from trueturn.model.units import (
     rotor_mass_from_kg,
     rotor_mass_to_kg,
     unbalance_from_gmm,
+    unbalance_to_gmm,
 )
 
 if TYPE_CHECKING:
@@ -93,6 +94,9 @@ SPANS: dict[str, tuple[float, float, str, bool]] = {
     "drill_in": (0.004, 4.0, "in", False),
     "axial_in": (-4_000.0, 4_000.0, "in", False),
     "distance_in": (0.0, 4_000.0, "in", True),
+    # an unbalance (mass x radius): 0 ... 1e9 g·mm, the cap `grade` uses; about 1.4e6 oz·in
+    "unbalance_gmm": (0.0, 1e9, "g·mm", False),
+    "unbalance_ozin": (0.0, 1e6, "oz·in", False),
 }
 
 
@@ -132,6 +136,8 @@ class _Pair:
     metric: str  # unit suffix of the metric option (its span is SPANS[f"{kind}_{metric}"])
     imperial: str
     to_metric: Callable[[float], float]
+    #: the units as the help says them, when the suffixes are not words (gmm: g·mm)
+    said: tuple[str, str] | None = None
 
 
 _PAIRS: dict[str, _Pair] = {
@@ -141,6 +147,8 @@ _PAIRS: dict[str, _Pair] = {
     "drill": _Pair("mm", "in", lambda v: length_to_mm(v, "in")),
     "axial": _Pair("mm", "in", lambda v: length_to_mm(v, "in")),
     "distance": _Pair("mm", "in", lambda v: length_to_mm(v, "in")),
+    "unbalance": _Pair("gmm", "ozin", lambda v: unbalance_to_gmm(v, "oz", "in"),
+                       said=("g·mm", "oz·in")),
 }
 
 
@@ -153,13 +161,26 @@ def add_quantity(parser: Any, flag: str, kind: str, help_text: str, *,
     parser's argument group to list them in."""
     pair = _PAIRS[kind]
     metric_span, imperial_span = spans or (f"{kind}_{pair.metric}", f"{kind}_{pair.imperial}")
+    metric_said, imperial_said = pair.said or (pair.metric, pair.imperial)
     group = (within or parser).add_mutually_exclusive_group(required=required)
     group.add_argument(f"--{flag}-{pair.metric}", type=number(metric_span),
-                       help=f"{help_text}, {pair.metric}", **options)
+                       help=f"{help_text}, {metric_said}", **options)
     group.add_argument(f"--{flag}-{pair.imperial}", type=number(imperial_span),
-                       help=f"the same in {pair.imperial}", **options)
+                       help=f"the same in {imperial_said}", **options)
     known = parser.get_default("_quantities") or ()
     parser.set_defaults(_quantities=(*known, (flag.replace("-", "_"), kind)))
+
+
+def option_typed(args: argparse.Namespace, name: str) -> str:
+    """The option the person typed for the value ``args.<name>`` (its metric name, as the
+    command reads it), for a message that names what was typed: ``'within_gmm'`` ->
+    ``'--within-ozin'`` when the imperial twin was typed, else ``'--within-gmm'``."""
+    for quantity, kind in getattr(args, "_quantities", ()):
+        pair = _PAIRS[kind]
+        if name == f"{quantity}_{pair.metric}" and \
+                getattr(args, f"{quantity}_{pair.imperial}", None) is not None:
+            return f"--{quantity.replace('_', '-')}-{pair.imperial}"
+    return f"--{name.replace('_', '-')}"
 
 
 def read_units(args: argparse.Namespace) -> UnitChoice:

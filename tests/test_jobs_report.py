@@ -19,7 +19,7 @@ from pathlib import Path
 import pytest
 
 from test_ui_procedure import Rig
-from test_ui_resume import keep_job, trial_step
+from test_ui_resume import fit_otherwise
 from trueturn.cli.main import main
 from trueturn.jobs import JobRecord, Workspace
 from trueturn.jobs.records import SuggestedMass
@@ -385,12 +385,7 @@ def test_the_suggested_mass_is_in_the_profiles_units(job: JobRecord) -> None:
 def test_a_part_fitted_otherwise_in_the_app_reaches_the_report(tmp_path: Path) -> None:
     # the whole path: the procedure's suggestion, the person's entry, the job file, the report
     rig = Rig("bench-grinder", Mode.TWO_PLANE)
-    keeper = keep_job(rig, tmp_path)
-    step = trial_step(rig)
-    item = rig.proc.fittable()[0]
-    suggested = step.changes[item].mass
-    assert suggested is not None
-    rig.proc.fit(item, mass_g=0.5, angle_deg=30.0)
+    keeper, suggested = fit_otherwise(rig, tmp_path, mass_g=0.5, angle_deg=30.0)
     rig.hands_on()  # confirmed: the keeper writes the part, as fitted, into the job
     assert keeper.path is not None
     changes = table(ET.fromstring(html_report(read_document(keeper.path, "job"))), "changes")

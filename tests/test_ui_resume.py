@@ -26,6 +26,7 @@ from test_jobs_keeper import follow
 from test_ui_procedure import Rig
 from trueturn.errors import UserError
 from trueturn.jobs.store import read_document
+from trueturn.model import PlacedMass
 from trueturn.procedure.engine import BalanceEngine
 from trueturn.procedure.guide import GateRefused, HandsOn, Measure, Mode, ShowCorrection
 from trueturn.procedure.standstill import StandstillWatch
@@ -149,14 +150,21 @@ def keep_job(rig: Rig, tmp_path: Path) -> JobKeeper:
     return keeper
 
 
-def test_the_job_file_keeps_the_suggested_and_the_fitted_mass(tmp_path: Path) -> None:
-    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+def fit_otherwise(rig: Rig, tmp_path: Path, **fitted: float) -> tuple[JobKeeper, PlacedMass]:
+    """A kept job up to its first trial, fitted otherwise than suggested (``fitted``: the
+    arguments of Procedure.fit); the keeper and the suggested mass."""
     keeper = keep_job(rig, tmp_path)
     step = trial_step(rig)
     item = rig.proc.fittable()[0]
     suggested = step.changes[item].mass
     assert suggested is not None
-    rig.proc.fit(item, mass_g=0.5, angle_deg=30.0)
+    rig.proc.fit(item, **fitted)
+    return keeper, suggested
+
+
+def test_the_job_file_keeps_the_suggested_and_the_fitted_mass(tmp_path: Path) -> None:
+    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+    keeper, suggested = fit_otherwise(rig, tmp_path, mass_g=0.5, angle_deg=30.0)
     rig.hands_on()
     # entered again before the run starts: the pending record follows
     before = rig.proc.fit_target(0)

@@ -4,8 +4,9 @@ correction from the model with no trial run when it can be trusted, else trial r
 Checked against the simulator's physics (its 4-DOF rotor and the scenario's hidden
 unbalance, sim/rotor.py; not our estimator). The model: rigid rotor on flexible supports
 (Vance, *Rotordynamics of Turbomachinery*, 1988, ch. 2; from memory). The sweep is stood in
-for by the simulator's own rigid-body modes in each pickup's direction (what a coast-down
-from the running speed finds: tests/test_dsp_sweep.py checks the app's sweep finds them);
+for by the simulator's own synchronous critical speeds in each pickup's direction (tilt
+inertia less the polar one; what a coast-down from the running speed finds:
+tests/test_dsp_sweep.py checks the app's sweep finds them);
 damping 3 % as the scenario's supports have (c ~ 0.03 * 2 sqrt(k m); our reading of the
 scenario file).
 """
@@ -17,6 +18,7 @@ from dataclasses import replace
 
 import numpy as np
 import pytest
+import scipy.linalg
 
 from test_ui_procedure import Rig
 from trueturn.angles import wrap_deg
@@ -37,8 +39,13 @@ def coast_down_resonances(rig: Rig) -> dict[str, list[SupportResonance]]:
             d = b.axial_mm * 1e-3 - zc
             k = b.stiffness_v_n_per_m if vertical else b.stiffness_h_n_per_m
             stiff += k * np.array([[1.0, d], [d, d * d]])
-        inertia = np.diag([rotor.mass_kg, rotor.transverse_inertia_kg_m2])
-        modes = np.sqrt(np.linalg.eigvals(np.linalg.solve(inertia, stiff)).real) * 30 / math.pi
+        # the 1x whirl meets the tilt inertia I_t - I_p (gyroscopic stiffening): the
+        # synchronous critical speeds are what a coast-down passes through
+        inertia = np.diag([rotor.mass_kg,
+                           rotor.transverse_inertia_kg_m2 - rotor.polar_inertia_kg_m2])
+        lam = [e.real for e in scipy.linalg.eigvals(stiff, inertia)
+               if np.isfinite(e) and e.real > 0]
+        modes = [math.sqrt(v) * 30 / math.pi for v in lam]
         out[p.name] = [SupportResonance(float(m), 0.03) for m in sorted(modes)
                        if m < rig.setup.speed_rpm]
     return out
@@ -208,9 +215,47 @@ def test_the_model_puts_each_pickup_on_the_bearing_the_profile_names() -> None:
     assert rig.proc.solution is not None
     assert any(abs(c.mass_g - hidden[c.plane].mass_g) > 0.3 * hidden[c.plane].mass_g
                for c in rig.proc.solution.corrections)
-    # the check run that follows still refines the coefficients and the job reaches PASS
+    # the check run that follows refutes the model (its 1x far outside the prediction):
+    # the model's masses come off, trials follow, and the job reaches PASS; no run ever
+    # shook the machine harder than twice the as-found 1x
+    as_found = max(abs(v) for v in rig.response().values())
     rig.complete()
+    assert rig.proc.model is not None and rig.proc.model.refuted_at is not None
     assert rig.proc.verdict is not None and rig.proc.verdict.passed
+    assert [r.label for r in rig.proc.runs][:3] == ["as found", "trial left-wheel",
+                                                    "trial right-wheel"]
+    assert all(r.readings[n].amplitude < 2.0 * as_found for r in rig.proc.runs
+               for n in r.readings)
+
+
+def test_a_check_run_that_refutes_the_model_takes_its_correction_off() -> None:
+    # a pickup angle mis-measured by 150 deg: the model is sure of a correction that is
+    # far off; the check run's 1x lies far outside its prediction (normalised innovation,
+    # Bar-Shalom et al. 2001, section 5.4; from memory), the model is dropped before any
+    # trim from it, the next hands-on step takes the model's masses off and puts the
+    # first trial on, gated like every hands-on step
+    rig = Rig("bench-grinder", Mode.MODEL_FIRST)
+    angles = tuple((a or 0.0) + 150.0 for a in rig.setup.pickup_angles_deg)
+    rig.setup = replace(rig.setup, pickup_angles_deg=angles)
+    rig.proc = Procedure(rig.setup, BalanceEngine())
+    before = rig.response()
+    as_found_and_sweep(rig, coast_down_resonances(rig))
+    proc = rig.proc
+    assert proc.model is not None and proc.model.trusted
+    proc.accept_correction()
+    rig.hands_on()
+    placed = [m for m in proc.on_rotor if m.kind.value == "correction"]
+    assert placed
+    rig.run()
+    assert proc.model.refuted_at in rig.setup.sensors and "refuted" in proc.model.distrust
+    assert not proc.model.trusted and proc.fallback and proc.verdict is None
+    assert proc.step.kind == "hands-on" and "trial" in proc.step.title
+    detached = [c.mass for c in proc.step.changes if c.action == "detach"]
+    assert sorted(detached, key=str) == sorted(placed, key=str)
+    assert [r.label for r in proc.runs] == ["as found"]
+    rig.complete()
+    assert proc.verdict is not None and proc.verdict.passed
+    rig.assert_cut(before)
 
 
 def test_the_verdict_bound_carries_the_models_own_uncertainty() -> None:

@@ -258,6 +258,16 @@ def test_the_rotors_inertia_across_the_shaft_is_optional() -> None:
     assert not FILE_KEYS.search(str(caught.value))
 
 
+def test_the_rotors_inertia_about_the_shaft_is_optional() -> None:
+    # the model-first correction's gyroscopic stiffening (a disc's rocking) needs it
+    p = profile_from_form(typed(polar="0.03"), 2)
+    assert p.polar_inertia_kg_m2 == 0.03 and form_values(p, 2)["polar"] == "0.03"
+    assert profile_from_form(typed(), 2).polar_inertia_kg_m2 is None
+    with pytest.raises(FormError) as caught:
+        profile_from_form(typed(polar="0"), 2)
+    assert caught.value.field == "polar" and "must be more than 0" in str(caught.value)
+
+
 def test_the_bearing_a_pickup_sits_on_is_optional() -> None:
     p = profile_from_form(typed(k1_bearing="2", k2_bearing="2"), 2)
     assert [k.on_bearing for k in p.pickups] == [2, 2]

@@ -110,3 +110,13 @@ def test_the_model_first_screens_fit_80x24(tmp_path: Path) -> None:
             await assert_fits(app, pilot)
             await press(app, pilot, "q")
     asyncio.run(scenario())
+
+
+def test_every_reason_the_model_is_not_trusted_has_words() -> None:
+    # facts travel as codes (balance.model_first.Distrust); the app words each one
+    from trueturn.balance.model_first import Distrust
+    from trueturn.ui import texts
+
+    assert {d.value for d in Distrust} <= set(texts.DISTRUST_WORDS)
+    line = texts.model_refused(("refuted",))
+    assert "masses come off" in line and "trial run" in line

@@ -42,6 +42,7 @@ from dataclasses import dataclass, field
 from enum import Enum
 
 import numpy as np
+import scipy.linalg
 
 from trueturn.balance.iso21940 import angular_speed_rad_s
 
@@ -63,6 +64,11 @@ NEAR_RESONANCE_FRACTION = 0.15
 #: most this share of the as-found 1x (our choice: a correction that surely halves the 1x
 #: saves a run; one that may not is no better than a trial)
 MAX_RESIDUAL_FRACTION_95 = 0.5
+#: a run whose 1x is this improbable under the model's own prediction (its normalised
+#: innovation's tail probability; a circular complex Gaussian's |e|^2 / var is
+#: exponential) refutes the prior: the model is dropped and the runs speak alone (our
+#: choice: one in a thousand)
+REFUTE_TAIL_PROBABILITY = 1e-3
 #: readings taken runs apart differ by more than their scatter (speed wander of +/-0.5 %
 #: moves the 1x by ~1-2 %, mounts are mildly nonlinear): a floor on each reading's
 #: relative 1 sigma (our choice)
@@ -79,6 +85,7 @@ class Distrust(str, Enum):
     NEAR_RESONANCE = "near-resonance"    # the speed is close to a support resonance
     SWEEP_MISFIT = "sweep-misfit"        # the sweep's resonance fit does not fit its data
     TOO_UNCERTAIN = "too-uncertain"      # the correction might not even halve the 1x
+    REFUTED = "refuted"                  # a run's 1x fell far outside the model's prediction
     UNCALIBRATED = "uncalibrated"        # a pickup reads volts: no unit to predict in
 
 
@@ -147,6 +154,7 @@ class RotorLayout:
     planes_radius_mm: tuple[float, ...]
     cg_axial_mm: float | None = None
     transverse_inertia_kg_m2: float | None = None
+    polar_inertia_kg_m2: float | None = None
 
 
 @dataclass(frozen=True)
@@ -262,6 +270,60 @@ def estimated_transverse_inertia_kg_m2(layout: RotorLayout) -> float:
     return layout.rotor_mass_kg * length_m**2 / 12.0
 
 
+def estimated_polar_inertia_kg_m2(layout: RotorLayout) -> float:
+    """The rotor's polar moment of inertia (about the shaft), guessed.
+
+    Used when the profile does not give it: a solid disc as wide as the largest
+    correction radius, ``M r^2 / 2`` (with a wide uncertainty band: a rotor whose mass sits
+    nearer the shaft has less, a rim-heavy one up to ``M r^2``).
+
+    Parameters
+    ----------
+    layout : RotorLayout
+        Mass and plane radii.
+
+    Returns
+    -------
+    float
+        kg m^2.
+
+    References
+    ----------
+    .. [1] Moment of inertia of a solid disc about its axis, ``m r^2 / 2``; of a thin ring,
+       ``m r^2`` (from memory: any statics text).
+    """
+    radius_m = max(layout.planes_radius_mm) * 1e-3
+    return 0.5 * layout.rotor_mass_kg * radius_m**2
+
+
+def synchronous_tilt_inertia_kg_m2(transverse_kg_m2: float, polar_kg_m2: float) -> float:
+    """The tilt inertia a 1x (synchronous, forward) whirl meets: ``I_t - I_p``.
+
+    A spinning rotor whirling at its own speed feels the gyroscopic moment
+    ``I_p Omega omega`` with ``omega = Omega``, which stiffens the forward tilt mode as if
+    the transverse inertia were ``I_t - I_p`` (exact for isotropic supports). A disc
+    (``I_p >= I_t``) has no forward tilt critical speed at all: its effective inertia is
+    zero or negative.
+
+    Parameters
+    ----------
+    transverse_kg_m2, polar_kg_m2 : float
+        Transverse (about a line across the shaft through the centre of mass) and polar
+        moments of inertia, kg m^2.
+
+    Returns
+    -------
+    float
+        kg m^2; may be 0 or negative.
+
+    References
+    ----------
+    .. [1] Vance, *Rotordynamics of Turbomachinery*, 1988, ch. 2 (synchronous critical
+       speeds of a rigid rotor on flexible supports, gyroscopic stiffening; from memory).
+    """
+    return transverse_kg_m2 - polar_kg_m2
+
+
 def stiffness_from_resonances(mass_kg: float, inertia_kg_m2: float, d_a_m: float, d_b_m: float,
                               resonances_rad_s: Sequence[float],
                               mass_ratio: float) -> tuple[float, float]:
@@ -281,7 +343,10 @@ def stiffness_from_resonances(mass_kg: float, inertia_kg_m2: float, d_a_m: float
     mass_kg : float
         Rotor mass, kg.
     inertia_kg_m2 : float
-        Transverse moment of inertia about the centre of mass, kg m^2.
+        The tilt inertia the 1x whirl meets, kg m^2: the transverse moment of inertia
+        about the centre of mass less the polar one
+        (:func:`synchronous_tilt_inertia_kg_m2`; zero or less for a disc, whose tilt has
+        no 1x critical speed).
     d_a_m, d_b_m : float
         Bearing positions from the centre of mass, m (``d_a_m < d_b_m``).
     resonances_rad_s : sequence of float
@@ -300,22 +365,23 @@ def stiffness_from_resonances(mass_kg: float, inertia_kg_m2: float, d_a_m: float
        supports, its two rigid-body modes; from memory).
     """
     span = d_b_m - d_a_m
-    alpha_a = 1.0 / mass_kg + d_a_m**2 / inertia_kg_m2
-    alpha_b = 1.0 / mass_kg + d_b_m**2 / inertia_kg_m2
     lam = sorted(w**2 for w in resonances_rad_s)
-    if len(lam) >= 2:
+    if len(lam) >= 2 and inertia_kg_m2 > 0.0:
+        alpha_a = 1.0 / mass_kg + d_a_m**2 / inertia_kg_m2
+        alpha_b = 1.0 / mass_kg + d_b_m**2 / inertia_kg_m2
         total, product = lam[0] + lam[1], lam[0] * lam[1] * mass_kg * inertia_kg_m2 / span**2
         disc = max(total**2 - 4.0 * alpha_a * alpha_b * product, 0.0)
         roots = [(total + s * math.sqrt(disc)) / (2.0 * alpha_a) for s in (1.0, -1.0)]
         pairs = [(k_a, product / k_a) for k_a in roots if k_a > 0]
         if pairs:
             return min(pairs, key=lambda kk: abs(math.log(kk[0] / kk[1] / mass_ratio)))
-    # one resonance: k_A = mass_ratio k_B, scaled so that the lower mode is the measured one
+    # one resonance (or a disc, whose tilt has no 1x critical: an inertia of zero or less):
+    # k_A = mass_ratio k_B, scaled so that the lowest positive mode is the measured one
     k_a, k_b = mass_ratio, 1.0
     stiff = np.array([[k_a + k_b, k_a * d_a_m + k_b * d_b_m],
                       [k_a * d_a_m + k_b * d_b_m, k_a * d_a_m**2 + k_b * d_b_m**2]])
-    low = float(min(np.linalg.eigvals(np.linalg.solve(np.diag([mass_kg, inertia_kg_m2]),
-                                                      stiff)).real))
+    eig = scipy.linalg.eigvals(stiff, np.diag([mass_kg, inertia_kg_m2]))
+    low = min(float(e.real) for e in eig if np.isfinite(e) and e.real > 0)
     scale = lam[0] / low
     return k_a * scale, k_b * scale
 
@@ -329,12 +395,14 @@ def rigid_rotor_coefficients(mass_kg: float, inertia_kg_m2: float, d_bearings_m:
     One direction: translation and tilt about the centre of mass,
     ``(K + i omega C - omega^2 diag(M, I)) q = F``, output ``[1, d] q``, acceleration
     ``-omega^2`` times it, conjugated into the lag convention (before the pickup's angle
-    from the tach). Gyroscopic coupling is left out (it is part of the model error).
+    from the tach). Gyroscopic stiffening enters through ``inertia_kg_m2``: pass the tilt
+    inertia the 1x whirl meets, ``I_t - I_p`` (:func:`synchronous_tilt_inertia_kg_m2`).
 
     Parameters
     ----------
     mass_kg, inertia_kg_m2 : float
-        Rotor mass (kg) and transverse inertia about the centre of mass (kg m^2).
+        Rotor mass (kg) and the tilt inertia about the centre of mass the 1x whirl meets
+        (kg m^2; the transverse inertia less the polar one, may be 0 or negative).
     d_bearings_m : ndarray
         The two bearings' positions from the centre of mass, m.
     k_n_per_m, c_ns_per_m : ndarray
@@ -382,7 +450,9 @@ def predict_influence(layout: RotorLayout, pickups: Sequence[PickupPlacement], s
     ----------
     layout : RotorLayout
         Rotor mass, bearing and plane positions, radii, centre of mass, and the transverse
-        inertia when known (else :func:`estimated_transverse_inertia_kg_m2`, wide band).
+        and polar inertias when known (else :func:`estimated_transverse_inertia_kg_m2` and
+        :func:`estimated_polar_inertia_kg_m2`, wide bands). The 1x whirl meets the tilt
+        inertia ``I_t - I_p`` (:func:`synchronous_tilt_inertia_kg_m2`).
     pickups : sequence of PickupPlacement
         Each pickup's bearing and its angle from the tach (None: not measured).
     speed_rpm : float
@@ -413,9 +483,10 @@ def predict_influence(layout: RotorLayout, pickups: Sequence[PickupPlacement], s
     Magnitude without the support stiffness: the free rigid body (mass-controlled limit,
     well above both rigid-body modes), ``a = F (1/M + d_j d_i / I)``; below the modes the
     true response is smaller. Uncertainty: draws of each resonance speed (its 95 % band),
-    the damping (log-normal), the transverse inertia (log-normal, wide when estimated),
-    the pickup angle, and a relative model error (:data:`MODEL_REL_SIGMA`: gyroscopics,
-    anisotropy, a mount that is not a spring).
+    the damping (log-normal), the transverse and polar inertias (log-normal, wide when
+    estimated), the pickup angle, and a relative model error (:data:`MODEL_REL_SIGMA`:
+    anisotropic supports, whose two directions the 1x whirl couples, a mount that is not a
+    spring).
 
     References
     ----------
@@ -450,6 +521,10 @@ def predict_influence(layout: RotorLayout, pickups: Sequence[PickupPlacement], s
     radius = np.array(layout.planes_radius_mm, dtype=float)
     inertia = layout.transverse_inertia_kg_m2 or estimated_transverse_inertia_kg_m2(layout)
     inertia_sigma = 0.05 if layout.transverse_inertia_kg_m2 else 0.35
+    # the 1x whirl meets I_t - I_p (gyroscopic stiffening); I_p guessed from the largest
+    # radius when not given (a solid disc), with a wide band (log sigma 0.4: x/÷ 2.2 at 95 %)
+    polar = layout.polar_inertia_kg_m2 or estimated_polar_inertia_kg_m2(layout)
+    polar_sigma = 0.05 if layout.polar_inertia_kg_m2 else 0.4
     force = 1e-3 * radius * 1e-3 * omega**2
     n_p, n_s = len(radius), len(pickups)
     free = np.array([np.abs(force * (1.0 / layout.rotor_mass_kg
@@ -491,22 +566,27 @@ def predict_influence(layout: RotorLayout, pickups: Sequence[PickupPlacement], s
         h = rigid_rotor_coefficients(layout.rotor_mass_kg, i_t, d_bear, k, c, d_pl, radius,
                                      float(d_bear[p.bearing]), omega)
         assert p.angle_from_tach_deg is not None
-        modes = np.linalg.eigvals(np.linalg.solve(
-            np.diag([layout.rotor_mass_kg, i_t]),
-            sum(kb * np.array([[1.0, d], [d, d * d]]) for kb, d in zip(k, d_bear, strict=True))))
-        speeds = [float(math.sqrt(max(m.real, 0.0))) * 30.0 / math.pi for m in modes]
+        modes = scipy.linalg.eigvals(
+            sum(kb * np.array([[1.0, d], [d, d * d]]) for kb, d in zip(k, d_bear, strict=True)),
+            np.diag([layout.rotor_mass_kg, i_t]))
+        # the 1x critical speeds: positive modes only (a disc's tilt has none)
+        speeds = [float(math.sqrt(m.real)) * 30.0 / math.pi for m in modes
+                  if np.isfinite(m) and m.real > 0]
         return h * np.exp(1j * math.radians(p.angle_from_tach_deg + angle_err_deg)), speeds
 
     nominal = np.empty((n_s, n_p), dtype=complex)
     for i, p in enumerate(pickups):
-        nominal[i], mode_rpm = one(i, p, 1.0, 1.0, inertia, 0.0)
+        nominal[i], mode_rpm = one(i, p, 1.0, 1.0,
+                                   synchronous_tilt_inertia_kg_m2(inertia, polar), 0.0)
         zeta = min(r.damping_ratio for r in resonances[p.name])
         if any(abs(speed_rpm / m - 1.0) < max(NEAR_RESONANCE_FRACTION, 2.0 * zeta)
                for m in mode_rpm if m > 0):
             distrust.append(Distrust.NEAR_RESONANCE)
     drawn = np.empty((draws, n_s, n_p), dtype=complex)
     for d in range(draws):
-        i_t = inertia * math.exp(inertia_sigma * rng.normal())
+        i_t = synchronous_tilt_inertia_kg_m2(
+            inertia * math.exp(inertia_sigma * rng.normal()),
+            polar * math.exp(polar_sigma * rng.normal()))
         for i, p in enumerate(pickups):
             rel95 = max(r.speed_rel_95 for r in resonances[p.name])
             drawn[d, i] = one(i, p, 1.0 + rel95 / 1.96 * rng.normal(),
@@ -560,8 +640,17 @@ class CoefficientEstimate:
     theta: np.ndarray = field(init=False)             # pickups x (1 + planes)
     covariance: np.ndarray = field(init=False)        # pickups x (1+n) x (1+n)
     runs_used: int = field(init=False, default=0)
-    _information: np.ndarray = field(init=False, repr=False)   # P^-1 per pickup
-    _moment: np.ndarray = field(init=False, repr=False)        # P^-1 theta per pickup
+    #: a run's reading fell outside what the prior predicted (the normalised innovation
+    #: test): the prior is dropped, the runs alone speak
+    prior_refuted: bool = field(init=False, default=False)
+    #: the pickup and the run (0-based) that refuted it, and the innovation's surprise
+    #: ``|e|^2 / var`` (exponentially distributed when the model holds)
+    refuted_by: tuple[str, int, float] | None = field(init=False, default=None)
+    _information: np.ndarray = field(init=False, repr=False)   # P^-1 per pickup (runs)
+    _moment: np.ndarray = field(init=False, repr=False)        # P^-1 theta per pickup (runs)
+    _prior_information: np.ndarray = field(init=False, repr=False)
+    _prior_moment: np.ndarray = field(init=False, repr=False)
+    _has_prior: bool = field(init=False, default=False, repr=False)
 
     def __post_init__(self) -> None:
         n = 1 + self.n_planes
@@ -569,6 +658,8 @@ class CoefficientEstimate:
         self.covariance = np.array([np.diag(np.full(n, np.inf + 0j)) for _ in self.sensors])
         self._information = np.zeros((len(self.sensors), n, n), dtype=complex)
         self._moment = np.zeros((len(self.sensors), n), dtype=complex)
+        self._prior_information = np.zeros((len(self.sensors), n, n), dtype=complex)
+        self._prior_moment = np.zeros((len(self.sensors), n), dtype=complex)
 
     @classmethod
     def from_prediction(cls, prediction: PredictedInfluence) -> CoefficientEstimate:
@@ -593,17 +684,21 @@ class CoefficientEstimate:
             for i, cov in enumerate(prediction.covariance):
                 scale = float(np.real(np.trace(cov))) / cov.shape[0] or 1.0
                 info = np.linalg.inv(cov + 1e-9 * scale * np.eye(cov.shape[0]))
-                est._information[i, 1:, 1:] = info
-                est._moment[i, 1:] = info @ prediction.matrix[i]
+                est._prior_information[i, 1:, 1:] = info
+                est._prior_moment[i, 1:] = info @ prediction.matrix[i]
+            est._has_prior = True
             est._solve()
         return est
 
     def _solve(self) -> None:
         """theta = P m, P = (information)^+ (the recursion in information form: the same
         estimate as the covariance form, without its round-off under a flat prior)."""
+        use_prior = self._has_prior and not self.prior_refuted
         for i in range(len(self.sensors)):
-            info = 0.5 * (self._information[i] + self._information[i].conj().T)
-            self.theta[i] = np.linalg.lstsq(info, self._moment[i], rcond=1e-12)[0]
+            total = self._information[i] + (self._prior_information[i] if use_prior else 0.0)
+            moment = self._moment[i] + (self._prior_moment[i] if use_prior else 0.0)
+            info = 0.5 * (total + total.conj().T)
+            self.theta[i] = np.linalg.lstsq(info, moment, rcond=1e-12)[0]
             self.covariance[i] = np.linalg.pinv(info, rcond=1e-12, hermitian=True)
 
     def update(self, masses_g: Sequence[complex], readings: Mapping[str, complex],
@@ -635,15 +730,48 @@ class CoefficientEstimate:
         if u.shape != (self.n_planes,):
             raise ValueError(f"masses_g needs {self.n_planes} entries, got {u.shape}")
         phi = np.concatenate([[1.0 + 0j], u])
+        sigmas = {}
+        for name in self.sensors:
+            radius = confidence_95.get(name) or 0.0
+            sigmas[name] = max(radius / CIRCLE95, READING_REL_FLOOR * abs(complex(readings[name])),
+                               1e-300)
+        if self._has_prior and not self.prior_refuted and self.runs_used >= 1:
+            self._test_innovation(phi, readings, sigmas)
         for i, name in enumerate(self.sensors):
             y = complex(readings[name])
-            radius = confidence_95.get(name) or 0.0
-            sigma = max(radius / CIRCLE95, READING_REL_FLOOR * abs(y), 1e-300)
+            sigma = sigmas[name]
             # y = phi^T theta + e: information += conj(phi) phi^T / s2, moment += conj(phi) y / s2
             self._information[i] += np.outer(phi.conj(), phi) / sigma**2
             self._moment[i] += phi.conj() * y / sigma**2
         self._solve()
         self.runs_used += 1
+
+    def _test_innovation(self, phi: np.ndarray, readings: Mapping[str, complex],
+                         sigmas: Mapping[str, float]) -> None:
+        """Does this run's reading fit what the estimate so far predicts? Normalised
+        innovation squared ``|y - phi^T theta|^2 / (s^2 + phi^H P phi)``: for a circular
+        complex Gaussian it is exponentially distributed, so a value beyond
+        ``ln(1 / REFUTE_TAIL_PROBABILITY)`` refutes the prior (Bar-Shalom, Li and
+        Kirubarajan, *Estimation with Applications to Tracking and Navigation*, 2001,
+        §5.4, filter consistency by the normalised innovation; from memory)."""
+        limit = math.log(1.0 / REFUTE_TAIL_PROBABILITY)
+        for i, name in enumerate(self.sensors):
+            predicted = complex(phi @ self.theta[i])
+            spread = float(np.real(phi.conj() @ self.covariance[i] @ phi))
+            var = sigmas[name] ** 2 + max(spread, 0.0)
+            surprise = abs(complex(readings[name]) - predicted) ** 2 / var
+            if surprise > limit:
+                self.prior_refuted = True
+                self.refuted_by = (name, self.runs_used, surprise)
+                return
+
+    @property
+    def determined_by_runs(self) -> bool:
+        """True when the runs alone pin every coefficient and the as-found 1x down (the
+        mass vectors span every plane): an estimate with no prior is then meaningful."""
+        n = 1 + self.n_planes
+        return all(np.linalg.matrix_rank(0.5 * (info + info.conj().T), tol=None) == n
+                   for info in self._information)
 
     @property
     def matrix(self) -> np.ndarray:

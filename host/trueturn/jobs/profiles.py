@@ -98,6 +98,10 @@ class MachineProfile:
     #: two planes: how the rotor rocks on its supports (guessed as a slender rod otherwise,
     #: which is mostly too uncertain to spare a trial run)
     transverse_inertia_kg_m2: float | None = field(default=None, metadata=limits(above=0))
+    #: the rotor's moment of inertia about the shaft, kg m^2 (optional; None: guessed as a
+    #: solid disc as wide as the largest correction radius). The model-first correction
+    #: needs it for the gyroscopic stiffening of a disc's rocking (a fan, a wheel)
+    polar_inertia_kg_m2: float | None = field(default=None, metadata=limits(above=0))
 
     def _checks(self) -> list[tuple[str, str | Rule]]:
         problems: list[tuple[str, str | Rule]] = []

@@ -57,6 +57,7 @@ from trueturn.procedure.guide import (
     KitFit,
     Mode,
     ModelAnswer,
+    ModelRefuted,
     OffSpeed,
     ProcedureSetup,
     Solution,
@@ -374,7 +375,7 @@ class BalanceEngine:
                              (setup.bearings[0].axial_mm, setup.bearings[1].axial_mm),
                              tuple(float(p.axial_mm or 0.0) for p in planes),
                              tuple(p.radius_mm for p in planes), setup.cg_axial_mm,
-                             setup.transverse_inertia_kg_m2)
+                             setup.transverse_inertia_kg_m2, setup.polar_inertia_kg_m2)
         angles = setup.pickup_angles_deg
         on = setup.pickup_bearings
         placements = []
@@ -416,6 +417,12 @@ class BalanceEngine:
             estimate.update(mass_vector(run.masses, planes) - base,
                             {n: run.readings[n].vector for n in setup.sensors},
                             {n: run.readings[n].confidence_radius for n in setup.sensors})
+        if estimate.prior_refuted and not estimate.determined_by_runs:
+            # a run fell far outside the model's prediction and the runs alone cannot
+            # stand: no number from this model is shown (trials follow)
+            assert estimate.refuted_by is not None
+            sensor, _, surprise = estimate.refuted_by
+            raise ModelRefuted(sensor, surprise)
         return estimate
 
     def _model_solution(self, setup: ProcedureSetup, runs: Sequence[Run],

@@ -165,6 +165,8 @@ class ProcedureSetup:
     pickup_bearings: tuple[int | None, ...] = ()
     #: the rotor's transverse moment of inertia, kg m^2 (machine profile; None: not known)
     transverse_inertia_kg_m2: float | None = None
+    #: the rotor's polar moment of inertia, kg m^2 (machine profile; None: guessed)
+    polar_inertia_kg_m2: float | None = None
     #: the units the person sees (machine profile): the procedure's own sentences (refusals,
     #: the redo, the forces confirmed) name masses and forces in them; the facts stay g, N
     units: UnitChoice = METRIC
@@ -212,6 +214,19 @@ class Solution:
     kit: tuple[KitFit, ...] = ()
 
 
+class ModelRefuted(GateRefused):
+    """Model-first: a run's 1x fell far outside what the model predicted, and the runs so
+    far cannot pin the coefficients down without it. ``sensor``: the pickup;
+    ``surprise``: its normalised innovation ``|e|^2 / var`` (exponentially distributed when
+    the model holds; :data:`trueturn.balance.model_first.REFUTE_TAIL_PROBABILITY`)."""
+
+    def __init__(self, sensor: str, surprise: float) -> None:
+        super().__init__(f"the 1x at {sensor} is far outside the model's prediction "
+                         f"(normalised innovation {surprise:.0f}): the model is dropped")
+        self.sensor = sensor
+        self.surprise = surprise
+
+
 @dataclass(frozen=True)
 class ModelAnswer:
     """What the model of the rotor says after the as-found run and its coast-down
@@ -232,6 +247,9 @@ class ModelAnswer:
     residual_fraction_95: float | None = None
     prior: object = None
     solution: Solution | None = None
+    #: the pickup whose reading refuted the model after its correction went on (then
+    #: ``trusted`` is False, ``distrust`` ends with "refuted", trials follow)
+    refuted_at: str | None = None
 
 
 @dataclass(frozen=True)
@@ -1308,6 +1326,9 @@ class Procedure:
         try:
             verdict, trim = self._assess()
             self.verdict = self._whole_machine(verdict, run)
+        except ModelRefuted as exc:
+            self._model_refuted(exc)
+            return
         except GateRefused as exc:
             self.step = ShowCorrection("Check run not usable")
             self.problem = str(exc)
@@ -1318,6 +1339,27 @@ class Procedure:
             self.trims_done += 1
             self.solution = trim
             self.step = ShowCorrection(f"Trim {self.trims_done}")
+
+    def _model_refuted(self, exc: ModelRefuted) -> None:
+        """Model-first: the run just kept refutes the model and the runs cannot stand without
+        it. The model's masses come off, the job goes on with a trial run per plane (the
+        as-found run kept); the refuting run stays in the record (the job has it) but no
+        longer in the coefficient set, so the trials' numbering is the fallback's own."""
+        assert self.model is not None
+        self.model = replace(self.model, trusted=False, refuted_at=exc.sensor,
+                             distrust=(*self.model.distrust, "refuted"))
+        self.fallback = True
+        self.solution = None
+        self.verdict = None
+        self.trims_done = 0
+        del self.runs[1:]
+        del self.run_numbers[1:]
+        self._advance_after_run(self.runs[0])
+        off = tuple(MassChange("detach", m) for m in self.on_rotor
+                    if m.kind in (MassKind.CORRECTION, MassKind.TRIM))
+        if isinstance(self.step, HandsOn):
+            self.step = replace(self.step, changes=(*off, *self.step.changes))
+        self._before_trials = self.step
 
     def _to_correction(self) -> None:
         """The coefficient runs are complete: solve, or say why no correction can be given."""

@@ -45,6 +45,7 @@ def profile_from_scenario(scenario: Scenario) -> MachineProfile:
                   for i, b in enumerate(scenario.rotor.bearings)],
         cg_axial_mm=scenario.rotor.centre_of_mass_axial_mm,
         transverse_inertia_kg_m2=scenario.rotor.transverse_inertia_kg_m2,
+        polar_inertia_kg_m2=scenario.rotor.polar_inertia_kg_m2 or None,
         notes="Simulated rig for the demo; all numbers are invented.")
 
 
@@ -79,7 +80,8 @@ def setup_from_profile(profile: MachineProfile, mode: Mode, standstill_s: float 
         pickup_angles_deg=tuple(p.angle_from_tach_deg for p in profile.pickups),
         pickup_bearings=tuple(None if p.on_bearing is None else p.on_bearing - 1
                               for p in profile.pickups),
-        transverse_inertia_kg_m2=profile.transverse_inertia_kg_m2)
+        transverse_inertia_kg_m2=profile.transverse_inertia_kg_m2,
+        polar_inertia_kg_m2=profile.polar_inertia_kg_m2)
 
 
 def describe_change(change: MassChange, proc: Procedure, engine: BalanceEngine,

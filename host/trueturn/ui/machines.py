@@ -62,6 +62,8 @@ PLACEHOLDERS = {
     # MachineProfile.transverse_inertia_kg_m2 (about a line across the shaft through the
     # centre of mass); blank: not known
     "inertia": "blank: not known (then trial runs)",
+    # MachineProfile.polar_inertia_kg_m2 (about the shaft); blank: guessed as a solid disc
+    "polar": "blank: guessed (a disc as wide as the planes)",
     # Pickup.on_bearing; blank: the pickups in order (first on the first bearing)
     "bearing": "blank: in order",
 }
@@ -81,6 +83,8 @@ def form_fields(pickups: int) -> list[FormField]:
                   short="the bearings' positions"),
         FormField("inertia", "Rotor inertia across the shaft, kg m2",
                   short="the rotor's inertia across the shaft"),
+        FormField("polar", "Rotor inertia about the shaft, kg m2",
+                  short="the rotor's inertia about the shaft"),
     ]
     for k in range(1, MAX_PLANES + 1):
         p = f"Plane {k}"
@@ -185,6 +189,8 @@ def form_data(values: dict[str, str], pickups: int,
     put(data, "rotation", "rotation", "rotation", values.get("rotation", "").strip() or None)
     put(data, "transverse_inertia_kg_m2", "transverse_inertia_kg_m2", "inertia",
         _none_word(values.get("inertia", "")))
+    put(data, "polar_inertia_kg_m2", "polar_inertia_kg_m2", "polar",
+        _none_word(values.get("polar", "")))
     old_bearings = data.get("bearings") or []
     bearings = [{"name": (old_bearings[i]["name"] if i < len(old_bearings) and
                           len(old_bearings) == 2 else f"bearing {i + 1}"), "axial_mm": v}
@@ -249,7 +255,8 @@ def form_values(profile: MachineProfile, pickups: int) -> dict[str, str]:
                   num(profile.speed_min_rpm), rotation=profile.rotation,
                   bearings=", ".join(num(b.axial_mm) for b in profile.bearings),
                   mains=str(profile.mains_hz), grade=num(profile.target_grade),
-                  inertia=num(profile.transverse_inertia_kg_m2))
+                  inertia=num(profile.transverse_inertia_kg_m2),
+                  polar=num(profile.polar_inertia_kg_m2))
     for k, plane in enumerate(profile.planes[:MAX_PLANES], start=1):
         lay = plane.layout
         positions = ("0" if lay.kind == "free" else str(lay.positions) if lay.kind == "equal"

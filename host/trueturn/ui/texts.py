@@ -250,6 +250,7 @@ DISTRUST_WORDS: dict[str, str] = {
     "sweep-misfit": "the coast-down's resonance does not fit one mode",
     "too-uncertain": "its correction might not even halve the 1x",
     "uncalibrated": "a pickup reads volts (no sensitivity in the profile)",
+    "refuted": "the check run's 1x fell far outside its prediction, so its masses come off",
 }
 
 

@@ -7,7 +7,8 @@ Checks against the outside world: the unbalance left is recomputed here as the v
 ``|correction - sum of the placed parts|`` times the radius (U = m r, ISO 21940-2, from
 memory); the parts used must be a sub-multiset of the kit (the drawer); the allowance is
 ISO 21940-11 ``U_per = 1000 G m / omega`` shared per plane (checked against the closed form
-in test_balance_iso21940). Physics truth: the demo rotor's modelled 1x (invented scenario).
+in test_balance_iso21940). A kit shared by two planes: the worse plane's unbalance left
+against every assignment of the parts (brute force, test_balance_parts.exhaustive_joint). Physics truth: the demo rotor's modelled 1x (invented scenario).
 """
 
 from __future__ import annotations
@@ -18,16 +19,18 @@ from pathlib import Path
 
 import pytest
 
+from test_balance_parts import exhaustive_joint, plane_by_plane
 from test_ui_procedure import Rig
 from test_ui_steps import shown
 from trueturn.angles import phasor
+from trueturn.balance.parts import PlaneTarget
 from trueturn.jobs.records import CorrectionEntry
 from trueturn.jobs.report import html_report, kit_notes, markdown_report
 from trueturn.jobs.store import read_document
 from trueturn.model import MassKind
 from trueturn.model.mass import OwnedParts, PartStock
 from trueturn.model.units import unbalance_text
-from trueturn.procedure.engine import BalanceEngine
+from trueturn.procedure.engine import ANY_ANGLE_STEP_DEG, BalanceEngine
 from trueturn.procedure.guide import Mode, Procedure
 from trueturn.ui.machine import setup_from_profile
 
@@ -83,7 +86,7 @@ BIG_KIT = OwnedParts([PartStock(0.5, 6), PartStock(1.0, 4), PartStock(2.0, 2)], 
 @pytest.mark.parametrize(("name", "mode", "kit"), [("shop-fan", Mode.ONE_PLANE, KIT),
                                                    ("bench-grinder", Mode.TWO_PLANE, BIG_KIT)])
 def test_the_kit_cuts_the_modelled_1x_and_trims_use_what_is_left_in_the_drawer(name, mode, kit):
-    # two planes share one drawer (plane by plane): together they never use more than it holds
+    # two planes share one drawer (jointly): together they never use more than it holds
     rig = _rig_with_kit(name, mode, kit)
     before = rig.response()
     rig.complete()
@@ -93,6 +96,34 @@ def test_the_kit_cuts_the_modelled_1x_and_trims_use_what_is_left_in_the_drawer(n
     after = rig.response()
     for name in before:  # physics: the parts from the kit cut the 1x (a coarse kit: 70 %)
         assert abs(after[name]) < 0.3 * abs(before[name]), name
+
+
+def test_two_planes_share_the_kit_jointly_not_one_by_one():
+    # the grinder's two wheels need about 3.2 g and 2.1 g; the kit holds a 2 g and a 1.2 g
+    # part, two to a place. One by one, the first wheel would take both (3.2 g: nearly
+    # nothing left) and the second none (2.1 g x 50 mm left, far over the allowance).
+    # Shared, each gets one and the worse wheel is left about half as much.
+    kit = OwnedParts([PartStock(2.0, 1), PartStock(1.2, 1)], stack=2)
+    rig = _rig_with_kit("bench-grinder", Mode.TWO_PLANE, kit)
+    _to_correction(rig)
+    sol = rig.proc.solution
+    assert sol is not None and len(sol.kit) == 2
+    targets = [PlaneTarget(c.mass_g, c.angle_deg,
+                           tuple(c.angle_deg + ANY_ANGLE_STEP_DEG * k for k in range(12)),
+                           rig.proc.plane(c.plane).radius_mm)
+               for c in sol.corrections]
+    # independent: the unbalance each wheel is left with, from the parts placed (U = m r)
+    left = []
+    for c, t in zip(sol.corrections, targets, strict=True):
+        placed = sum(phasor(p.mass_g, p.angle_deg) for p in sol.parts if p.plane == c.plane)
+        left.append(abs(phasor(c.mass_g, c.angle_deg) - placed) * t.radius_mm)
+    assert [k.residual_gmm for k in sol.kit] == pytest.approx(left, rel=1e-6)
+    # the best sharing there is: every assignment of the two parts tried (brute force)
+    worst, _ = exhaustive_joint(targets, kit.masses_g(), kit.stack)
+    assert max(left) == pytest.approx(worst, rel=1e-9)
+    one_by_one = plane_by_plane(targets, kit.masses_g(), kit.stack)
+    assert max(one_by_one) > 1.5 * max(left)
+    assert all(any(p.plane == c.plane for p in sol.parts) for c in sol.corrections)
 
 
 def test_a_kit_too_coarse_is_said_over_the_allowance():

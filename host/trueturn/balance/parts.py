@@ -9,7 +9,9 @@ drawer so that the unbalance left, ``|correction - sum of the placed parts' vect
 as small as it can be; among equally good choices the one with the fewest parts wins. With
 ``enough_g`` given (e.g. a share of the grade's allowance), the fewest parts that leave at
 most that much win instead (then the smaller residual among those), and only if no choice
-gets there, the smallest residual.
+gets there, the smallest residual. A kit shared by two planes is placed jointly
+(:func:`best_joint_combination`): the least left on the worse plane, not the first plane's
+pick with the second left what remains.
 
 Method: an exact depth-first **branch and bound** over the assignment of each part (largest
 first) to one of the positions or to the drawer -- a multiple-choice, capacity-limited
@@ -169,11 +171,112 @@ def best_combination(mass_g: float, angle_deg: float, positions_deg: Sequence[fl
        Implementations", Wiley, 1990 (depth-first branch and bound for knapsack-type
        problems; from memory).
     """
-    if not math.isfinite(mass_g) or mass_g < 0:
-        raise UserError(f"mass must be a finite number not below 0, got {mass_g:g}")
-    if not math.isfinite(angle_deg) or not all(math.isfinite(p) for p in positions_deg):
+    target = PlaneTarget(mass_g, angle_deg, tuple(positions_deg))
+    _check(target, parts_g, stack, node_limit)
+    if enough_g is not None and not 0 <= enough_g < math.inf:
+        raise UserError(f"a good-enough residual must be a finite number not below 0, "
+                        f"got {enough_g:g}")
+    return _search((target,), parts_g, stack, node_limit, enough_g)[0]
+
+
+@dataclass(frozen=True)
+class PlaneTarget:
+    """One plane's correction for :func:`best_joint_combination`: ``mass_g`` at
+    ``angle_deg`` (g at the plane's radius), the angles of its positions, and its radius,
+    which weighs the unbalance each plane is left with (g·mm) against the others'."""
+
+    mass_g: float
+    angle_deg: float
+    positions_deg: tuple[float, ...]
+    radius_mm: float = 1.0
+
+
+def best_joint_combination(targets: Sequence[PlaneTarget], parts_g: Sequence[float],
+                           stack: int = 1,
+                           node_limit: int = DEFAULT_NODE_LIMIT) -> tuple[PartsFit, ...]:
+    """Share one kit of owned parts between several planes: the least unbalance left on
+    the worse plane, then the least in total, then the fewest parts.
+
+    Filling the planes one by one lets the first take the parts that suit it best and
+    leaves the second with what is left, however much better the second would have done
+    with them (a kit of 2 g and 1 g for corrections of 1.6 g and 2 g: the first plane
+    takes the 2 g part and leaves 0.4 g, the second is left 1 g short; shared jointly the
+    two leave 0.6 g and none). Here every part may go on any position of any plane or stay
+    in the drawer, and the search starts from the plane-by-plane answer (each plane's
+    search under the same node limit), so the joint one is never worse than it, even when
+    the search stops at its node limit.
+
+    Parameters
+    ----------
+    targets : sequence of PlaneTarget
+        Each plane's correction, positions and radius (radius greater than 0).
+    parts_g : sequence of float
+        Mass of each part the person owns, g (one entry per piece, each greater than 0).
+    stack : int, default 1
+        Most parts one position takes.
+    node_limit : int, default DEFAULT_NODE_LIMIT
+        Search nodes before the best so far is returned unproven.
+
+    Returns
+    -------
+    tuple of PartsFit
+        One per target, in order: its parts, the unbalance it is left with, and whether
+        the sharing is proven best; ``unused_g`` is what the planes together leave in the
+        drawer.
+
+    Raises
+    ------
+    UserError
+        As :func:`best_combination`, for any target; also when no target is given or a
+        radius is not a finite number greater than 0.
+
+    Notes
+    -----
+    Objective, lexicographic with ties within 1e-9 of the scale: ``max_p r_p |T_p -
+    sum_{k on p} m_k exp(i phi(k))|`` (the worse plane's unbalance left, g·mm: each plane
+    is judged against the same share of the allowance, ISO 21940-11), then the sum over
+    the planes, then the parts used. The same exact branch and bound as
+    :func:`best_combination` over the choice of a plane's position or the drawer for each
+    part; bound: each plane's residual shortened by all the parts not yet placed. The
+    first best is the plane-by-plane answer (:func:`best_combination` in turn on what
+    the planes before left).
+
+    References
+    ----------
+    .. [1] A. H. Land, A. G. Doig, "An automatic method of solving discrete programming
+       problems", Econometrica 28(3), 1960 (branch and bound).
+    """
+    if not targets:
+        raise UserError("no planes given")
+    for t in targets:
+        _check(t, parts_g, stack, node_limit)
+        if not 0 < t.radius_mm < math.inf:
+            raise UserError(f"radius must be a finite number greater than 0, got "
+                            f"{t.radius_mm:g}")
+    drawer = list(parts_g)
+    seed: list[tuple[int, int]] = []  # (plane, position) per part placed, plane by plane
+    parts_seed: list[float] = []
+    for p, t in enumerate(targets):
+        if not drawer:
+            break
+        fit = _search((t,), drawer, stack, node_limit, None)[0]
+        for use in fit.uses:
+            for m in use.masses_g:
+                drawer.remove(m)
+                parts_seed.append(m)
+                seed.append((p, use.position))
+    return _search(tuple(targets), parts_g, stack, node_limit, None,
+                   list(zip(parts_seed, seed, strict=True)))
+
+
+def _check(target: PlaneTarget, parts_g: Sequence[float], stack: int, node_limit: int) -> None:
+    """The inputs' guards, one :class:`UserError` each."""
+    if not math.isfinite(target.mass_g) or target.mass_g < 0:
+        raise UserError(f"mass must be a finite number not below 0, got {target.mass_g:g}")
+    if not math.isfinite(target.angle_deg) or \
+            not all(math.isfinite(p) for p in target.positions_deg):
         raise UserError("angles must be finite numbers")
-    if not positions_deg:
+    if not target.positions_deg:
         raise UserError("no positions given: owned parts go on the rotor's positions")
     if not parts_g:
         raise UserError("no parts given")
@@ -186,80 +289,124 @@ def best_combination(mass_g: float, angle_deg: float, positions_deg: Sequence[fl
         raise UserError(f"stack must be at least 1 part per position, got {stack}")
     if node_limit < 1:
         raise UserError(f"node limit must be at least 1, got {node_limit}")
-    if enough_g is not None and not 0 <= enough_g < math.inf:
-        raise UserError(f"a good-enough residual must be a finite number not below 0, "
-                        f"got {enough_g:g}")
 
+
+def _search(targets: tuple[PlaneTarget, ...], parts_g: Sequence[float], stack: int,
+            node_limit: int, enough_g: float | None,
+            seed: Sequence[tuple[float, tuple[int, int]]] = ()) -> tuple[PartsFit, ...]:
+    """The branch and bound of :func:`best_combination` (one target, ``enough_g``) and
+    :func:`best_joint_combination` (``seed``: parts already known to go (plane,
+    position), the first best). Inputs checked by the callers."""
     parts = sorted((float(m) for m in parts_g), reverse=True)
-    n_pos = len(positions_deg)
-    units = [phasor(1.0, p) for p in positions_deg]
-    target = phasor(mass_g, angle_deg)
+    # every (plane, position) a part may take; the drawer is the choice after the last
+    options = [(p, j) for p, t in enumerate(targets) for j in range(len(t.positions_deg))]
+    units = [phasor(1.0, targets[p].positions_deg[j]) for p, j in options]
+    weight = [t.radius_mm for t in targets]
     left_after = [sum(parts[k:]) for k in range(1, len(parts) + 1)]  # mass left after part k
-    tol = 1e-9 * (mass_g + sum(parts))
-    drawer = n_pos  # the choice index of "not used"
+    tol = 1e-9 * sum(t.radius_mm * (t.mass_g + sum(parts)) for t in targets)
+    drawer = len(options)
+
+    def sizes(residuals: Sequence[complex]) -> list[float]:
+        return [w * abs(r) for w, r in zip(weight, residuals, strict=True)]
 
     choice = [drawer] * len(parts)
-    load = [0] * n_pos
+    load = [0] * len(options)
+    residuals = [phasor(t.mass_g, t.angle_deg) for t in targets]
+    start = sizes(residuals)
     best_choice = list(choice)
-    best = [abs(target), 0]  # residual, parts used
+    best = [max(start), sum(start), 0]  # worse plane, total, parts used
+    if seed:
+        free = list(range(len(parts)))
+        seeded = list(residuals)
+        for m, where in seed:
+            k = next(i for i in free if parts[i] == m)
+            free.remove(k)
+            best_choice[k] = options.index(where)
+            seeded[where[0]] -= m * units[best_choice[k]]
+        at_seed = sizes(seeded)
+        best[:] = [max(at_seed), sum(at_seed), len(seed)]
     nodes = 0
     stopped = False
 
     def fits(size: float) -> bool:
         return enough_g is not None and size <= enough_g + tol
 
-    def better(size: float, used: int) -> bool:
-        if fits(size) != fits(best[0]):
-            return fits(size)
-        if fits(size):  # both good enough: fewer parts, then the smaller residual
-            return used < best[1] or (used == best[1] and size < best[0] - tol)
-        return size < best[0] - tol or (size <= best[0] + tol and used < best[1])
+    def better(worst: float, total: float, used: int) -> bool:
+        if fits(worst) != fits(best[0]):
+            return fits(worst)
+        if fits(worst):  # both good enough: fewer parts, then the smaller residual
+            return used < best[2] or (used == best[2] and worst < best[0] - tol)
+        if abs(worst - best[0]) > tol:
+            return worst < best[0]
+        if abs(total - best[1]) > tol:
+            return total < best[1]
+        return used < best[2]
 
-    def visit(k: int, residual: complex, used: int) -> None:
+    plane_of = [p for p, _ in options]
+    now = sizes(residuals)  # each plane's unbalance left, kept in step with ``residuals``
+    planes = range(len(targets))
+    single = len(targets) == 1
+
+    def visit(k: int, used: int) -> None:
         nonlocal nodes, stopped
         nodes += 1
-        size = abs(residual)
-        if better(size, used):
-            best[0], best[1] = size, used
+        worst = max(now)
+        total = worst if single else sum(now)
+        if better(worst, total, used):
+            best[:] = [worst, total, used]
             best_choice[:] = choice
-        if k == len(parts) or size <= tol:
+        if k == len(parts) or worst <= tol:
             return  # leaving the rest in the drawer cannot do better
         if nodes >= node_limit:
             stopped = True
             return
         m = parts[k]
-        reach = size - m - left_after[k]  # the least residual any branch below can leave
+        # the least the worse plane can be left with below: every part left laid straight
+        # against each plane's residual at once (a bound, never reached for two planes)
+        rest = m + left_after[k]
+        reach = now[0] - weight[0] * rest if single else \
+            max([now[p] - weight[p] * rest for p in planes])
         if fits(best[0]):
-            if used >= best[1] or not fits(reach):
+            if used >= best[2] or not fits(reach):
                 return  # more parts, or never good enough
         elif reach > best[0] + tol:
-            return  # even all parts left laid straight against the residual fall short
+            return
         lowest = choice[k - 1] if k > 0 and parts[k - 1] == m else 0
-        options = [(abs(residual - m * units[j]), j) for j in range(lowest, n_pos)
-                   if load[j] < stack]
-        options.sort()
-        for _, j in options:
-            choice[k] = j
-            load[j] += 1
-            visit(k + 1, residual - m * units[j], used + 1)
-            load[j] -= 1
+        tried = []
+        for c in range(lowest, drawer):
+            if load[c] < stack:
+                p = plane_of[c]
+                after = weight[p] * abs(residuals[p] - m * units[c])
+                tried.append((after - now[p], c, after))
+        tried.sort()  # nearest first: the choice that shortens a residual most
+        for _, c, after in tried:
+            p = plane_of[c]
+            was, was_size = residuals[p], now[p]
+            choice[k] = c
+            load[c] += 1
+            residuals[p] -= m * units[c]
+            now[p] = after
+            visit(k + 1, used + 1)
+            residuals[p], now[p] = was, was_size
+            load[c] -= 1
             choice[k] = drawer
             if stopped:
                 return
-        visit(k + 1, residual, used)  # this part stays in the drawer
+        visit(k + 1, used)  # this part stays in the drawer
 
-    visit(0, target, 0)
+    visit(0, 0)
 
-    placed = 0j
-    by_position: dict[int, list[float]] = {}
-    unused: list[float] = []
-    for m, j in zip(parts, best_choice, strict=True):
-        if j == drawer:
-            unused.append(m)
-        else:
-            by_position.setdefault(j, []).append(m)
-            placed += m * units[j]
-    uses = tuple(PartUse(j, wrap_deg(positions_deg[j]), tuple(by_position[j]))
-                 for j in sorted(by_position))
-    residual_g, residual_angle = amplitude_phase(placed - target)
-    return PartsFit(uses, tuple(unused), residual_g, residual_angle, not stopped, nodes)
+    unused = tuple(m for m, c in zip(parts, best_choice, strict=True) if c == drawer)
+    fits_out = []
+    for p, t in enumerate(targets):
+        by_position: dict[int, list[float]] = {}
+        placed = 0j
+        for m, c in zip(parts, best_choice, strict=True):
+            if c != drawer and options[c][0] == p:
+                by_position.setdefault(options[c][1], []).append(m)
+                placed += m * units[c]
+        uses = tuple(PartUse(j, wrap_deg(t.positions_deg[j]), tuple(by_position[j]))
+                     for j in sorted(by_position))
+        residual_g, residual_angle = amplitude_phase(placed - phasor(t.mass_g, t.angle_deg))
+        fits_out.append(PartsFit(uses, unused, residual_g, residual_angle, not stopped, nodes))
+    return tuple(fits_out)

@@ -30,7 +30,7 @@ from trueturn.balance.model_first import (
     free_rotor_prediction,
     predict_influence,
 )
-from trueturn.balance.parts import best_combination
+from trueturn.balance.parts import PlaneTarget, best_joint_combination
 from trueturn.balance.readings import BalanceInput, SavedCoefficient, Sensor, Tolerance
 from trueturn.balance.sanity import NoInformationError
 from trueturn.balance.solve import (
@@ -271,11 +271,12 @@ class BalanceEngine:
     def _kit_parts(self, setup: ProcedureSetup, corrections: Sequence[Correction],
                    kind: MassKind, runs: Sequence[Run]
                    ) -> tuple[tuple[PlacedMass, ...], tuple[KitFit, ...]]:
-        """The correction made from the parts the person owns (issue #22): plane by plane
-        from one drawer, the best combination on the plane's positions
-        (:func:`trueturn.balance.parts.best_combination`; a plane that takes any angle: the
-        correction's angle and every :data:`ANY_ANGLE_STEP_DEG` from it). Parts already on
-        the rotor as corrections are out of the drawer. Each plane says what it is left with
+        """The correction made from the parts the person owns (issue #22): one drawer
+        shared by the planes jointly, the least unbalance left on the worse plane
+        (:func:`trueturn.balance.parts.best_joint_combination`; a plane that takes any
+        angle: the correction's angle and every :data:`ANY_ANGLE_STEP_DEG` from it), not
+        the first plane's pick with the second left what remains. Parts already on the
+        rotor as corrections are out of the drawer. Each plane says what it is left with
         against its share of the allowance."""
         drawer = list(setup.owned_parts_g)
         for m in runs[-1].masses if runs else ():
@@ -286,32 +287,35 @@ class BalanceEngine:
         u_per = permissible_unbalance_gmm(setup.grade_mm_per_s, setup.speed_rpm,
                                           setup.rotor_mass_kg)
         allowed = per_plane_permissible(u_per, max(setup.profile_planes, len(setup.planes)))[0]
-        parts: list[PlacedMass] = []
-        fits: list[KitFit] = []
+        wanted: list[tuple[Correction, Plane]] = []
+        targets: list[PlaneTarget] = []
         for c in corrections:
             if c.mass_g <= 0:
                 continue
             plane = next(p for p in setup.planes if p.name == c.plane)
-            fixed = bool(plane.position_angles_deg)
-            positions = plane.position_angles_deg if fixed else tuple(
+            positions = plane.position_angles_deg or tuple(
                 wrap_deg(c.angle_deg + ANY_ANGLE_STEP_DEG * k)
                 for k in range(round(360 / ANY_ANGLE_STEP_DEG)))
-            if not drawer:  # nothing left to place: the whole correction is what is left
-                fits.append(KitFit(c.plane, c.mass_g * plane.radius_mm, allowed, True, 0))
-                continue
-            try:
-                fit = best_combination(c.mass_g, c.angle_deg, positions, drawer,
-                                       setup.owned_stack)
-            except UserError as exc:
-                raise GateRefused(f"plane {plane.name}: {exc}") from None
+            wanted.append((c, plane))
+            targets.append(PlaneTarget(c.mass_g, c.angle_deg, tuple(positions), plane.radius_mm))
+        if not drawer:  # nothing left to place: the whole correction is what is left
+            return (), tuple(KitFit(c.plane, c.mass_g * plane.radius_mm, allowed, True, 0)
+                             for c, plane in wanted)
+        if not targets:
+            return (), ()
+        try:
+            shared = best_joint_combination(targets, drawer, setup.owned_stack)
+        except UserError as exc:
+            raise GateRefused(f"correction parts: {exc}") from None
+        parts: list[PlacedMass] = []
+        fits: list[KitFit] = []
+        for (c, plane), fit in zip(wanted, shared, strict=True):
             for use in fit.uses:
-                for grams in use.masses_g:
-                    parts.append(PlacedMass(c.plane, grams, use.angle_deg,
-                                            use.position if fixed else None, kind))
-                    drawer.remove(grams)
+                parts += [PlacedMass(c.plane, grams, use.angle_deg,
+                                     use.position if plane.position_angles_deg else None, kind)
+                          for grams in use.masses_g]
             fits.append(KitFit(c.plane, fit.residual_gmm(plane.radius_mm), allowed,
-                               fit.proven_best, len(drawer) + sum(len(u.masses_g)
-                                                                  for u in fit.uses)))
+                               fit.proven_best, len(drawer)))
         return tuple(parts), tuple(fits)
 
     def _solution(self, setup: ProcedureSetup, report: SolveReport,

@@ -89,6 +89,23 @@ class Distrust(str, Enum):
     UNCALIBRATED = "uncalibrated"        # a pickup reads volts: no unit to predict in
 
 
+#: each :class:`Distrust` reason worded for a person (the app's line and the report)
+DISTRUST_WORDS: dict[str, str] = {
+    Distrust.NO_SWEEP.value: "no coast-down was recorded",
+    Distrust.STIFFNESS_UNKNOWN.value: "the coast-down found no resonance of the supports",
+    Distrust.NO_PICKUP_ANGLE.value: "a pickup's angle from the tach is not in the machine "
+                                    "profile",
+    Distrust.NO_BEARINGS.value: "the bearings' or planes' positions are not in the machine "
+                                "profile",
+    Distrust.NEAR_RESONANCE.value: "the balancing speed is near a resonance of the supports",
+    Distrust.SWEEP_MISFIT.value: "the coast-down's resonance does not fit one mode",
+    Distrust.TOO_UNCERTAIN.value: "its correction might not even halve the 1x",
+    Distrust.REFUTED.value: "the check run's 1x fell far outside its prediction, so its "
+                            "masses come off",
+    Distrust.UNCALIBRATED.value: "a pickup reads volts (no sensitivity in the profile)",
+}
+
+
 @dataclass(frozen=True)
 class SupportResonance:
     """A support resonance seen by one pickup, from a coast-down or run-up sweep.
@@ -184,6 +201,29 @@ class PredictedInfluence:
     def trusted(self) -> bool:
         """True when a first correction may be computed from this prediction alone."""
         return not self.distrust
+
+
+def circle95_radius(variance: float) -> float:
+    """The 95 % circle radius of a circular complex Gaussian with ``E|z - mean|^2`` equal
+    to ``variance`` (each part's sigma is ``sqrt(variance / 2)``).
+
+    Parameters
+    ----------
+    variance : float
+        The diagonal entry of a complex covariance (>= 0; inf: nothing known).
+
+    Returns
+    -------
+    float
+        ``CIRCLE95 * sqrt(variance / 2)`` (inf for an infinite variance).
+
+    References
+    ----------
+    .. [1] The circular complex normal distribution: ``|z|^2 / sigma^2`` is chi-squared with
+       2 degrees of freedom, so ``P(|z| <= r) = 1 - exp(-r^2 / (2 sigma^2))`` (any
+       probability text; from memory).
+    """
+    return CIRCLE95 * math.sqrt(max(float(variance), 0.0) / 2.0)
 
 
 def free_rotor_prediction(sensors: Sequence[str], rotor_mass_kg: float,

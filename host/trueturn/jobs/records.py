@@ -13,6 +13,7 @@ import datetime as dt
 from dataclasses import dataclass, field
 from typing import Literal
 
+from trueturn.balance.model_first import Distrust
 from trueturn.jobs.profiles import MachineProfile
 from trueturn.model import Reading, RunKind
 from trueturn.model.fields import limits
@@ -202,6 +203,99 @@ class StopEntry:
 
 
 @dataclass
+class WentOnEntry:
+    """The person was asked whether to go on although balancing may not help (issue #22)
+    and went on: after which run, when, and the failing rules ``because`` at the time. A
+    job that keeps it does not ask again when it is continued."""
+
+    after_run: int = field(metadata=limits(minimum=1))
+    time: str = field(metadata=limits(nonempty=True))
+    because: list[EvidenceCode] = field(default_factory=list)
+
+
+@dataclass
+class ModelCoefficientEntry:
+    """One influence coefficient of the model (model-first, issue #20 item 4): the 1x of
+    ``sensor`` per gram at ``plane``'s radius at angle 0, as amplitude (the job's reading
+    unit per gram) and phase, with its 95 % circle radius as a share of the amplitude
+    (None: not bounded)."""
+
+    sensor: str = field(metadata=limits(nonempty=True))
+    plane: str = field(metadata=limits(nonempty=True))
+    amp: float = field(metadata=limits(minimum=0))
+    phase_deg: float = field(metadata=limits(minimum=0, below=360))
+    spread_rel_95: float | None = field(default=None, metadata=limits(minimum=0))
+
+
+@dataclass
+class ModelCovarianceEntry:
+    """The complex covariance of one pickup's predicted coefficients (planes x planes in the
+    order of :attr:`ModelEntry.planes`), real and imaginary parts, (unit per gram)^2."""
+
+    sensor: str = field(metadata=limits(nonempty=True))
+    real: list[list[float]] = field(metadata=limits(nonempty=True))
+    imag: list[list[float]] = field(metadata=limits(nonempty=True))
+
+
+@dataclass
+class ModelRefinementEntry:
+    """The model's coefficients after run ``after_run`` refined them (recursive least
+    squares over the runs ``runs``, the job's run numbers, the as-found run first)."""
+
+    after_run: int = field(metadata=limits(minimum=1))
+    runs: list[int] = field(metadata=limits(nonempty=True))
+    coefficients: list[ModelCoefficientEntry] = field(metadata=limits(nonempty=True))
+
+
+@dataclass
+class ModelEntry:
+    """What the model of the rotor answered after the as-found run ``after_run`` and its
+    coast-down (model-first, issue #20 item 4), kept so the job can be continued with the
+    very same model and reported.
+
+    ``trusted`` False: the reasons ``distrust`` and the job went on with trial runs (no
+    coefficients kept). Trusted: the predicted coefficients (``predicted``, the prior of
+    every later refinement) with their complex covariance per pickup (``covariance``),
+    the first correction's 95 % +/- per plane (``mass_95_g``, ``angle_95_deg``, in the
+    order of ``planes``), the share of the as-found 1x it leaves in 95 % of the model's
+    draws, and after each later run the coefficients refined (``refined``).
+    """
+
+    after_run: int = field(metadata=limits(minimum=1))
+    time: str = field(metadata=limits(nonempty=True))
+    trusted: bool
+    distrust: list[Distrust] = field(default_factory=list)
+    residual_fraction_95: float | None = field(default=None, metadata=limits(minimum=0))
+    planes: list[str] = field(default_factory=list)
+    mass_95_g: list[float] = field(default_factory=list)
+    angle_95_deg: list[float] = field(default_factory=list)
+    predicted: list[ModelCoefficientEntry] = field(default_factory=list)
+    covariance: list[ModelCovarianceEntry] = field(default_factory=list)
+    refined: list[ModelRefinementEntry] = field(default_factory=list)
+
+    def _checks(self) -> list[tuple[str, str]]:
+        problems: list[tuple[str, str]] = []
+        n = len(self.planes)
+        if self.trusted and (not n or not self.predicted or not self.covariance):
+            problems.append(("predicted", "a trusted model keeps its planes, coefficients "
+                             "and covariance"))
+        if self.trusted and self.distrust:
+            problems.append(("distrust", "a trusted model has no reason not to be trusted"))
+        for name in ("mass_95_g", "angle_95_deg"):
+            if len(getattr(self, name)) not in (0, n):
+                problems.append((name, f"needs one value per plane ({n})"))
+        for i, cov in enumerate(self.covariance):
+            for part in (cov.real, cov.imag):
+                if len(part) != n or any(len(row) != n for row in part):
+                    problems.append((f"covariance[{i}]", f"must be {n} x {n}"))
+                    break
+        for i, c in enumerate(self.predicted):
+            if c.plane not in self.planes:
+                problems.append((f"predicted[{i}].plane", f"{c.plane!r} is not in planes"))
+        return problems
+
+
+@dataclass
 class SweepValueEntry:
     """One pickup's 1x at one sweep point: amplitude (the sweep's unit), phase (degrees,
     lag after the tach edge), 95 % circle radius (unit)."""
@@ -386,6 +480,11 @@ class JobRecord:
     notes: str = ""
     #: stopped before a verdict by the person's choice, and why (optional, issue #22)
     stopped: StopEntry | None = None
+    #: went on although balancing may not help (optional, issue #22): not asked again
+    went_on: WentOnEntry | None = None
+    #: model-first: the model's answer and its refinements (optional, issue #20 item 4;
+    #: files without it read as before, no migration)
+    model: ModelEntry | None = None
 
     def _checks(self) -> list[tuple[str, str]]:
         problems: list[tuple[str, str]] = []
@@ -408,6 +507,13 @@ class JobRecord:
             problems.append(("verdict", f"refers to run {self.verdict.after_run}, which is not recorded"))
         if self.stopped is not None and self.stopped.after_run > len(self.runs):
             problems.append(("stopped", f"refers to run {self.stopped.after_run}, which is not recorded"))
+        if self.went_on is not None and self.went_on.after_run > len(self.runs):
+            problems.append(("went_on", f"refers to run {self.went_on.after_run}, which is not "
+                             "recorded"))
+        if self.model is not None:
+            last = max([self.model.after_run, *(r.after_run for r in self.model.refined)])
+            if last > len(self.runs):
+                problems.append(("model", f"refers to run {last}, which is not recorded"))
         return problems
 
     @property

@@ -38,6 +38,7 @@ from trueturn.jobs.profiles import MachineProfile
 from trueturn.jobs.records import (
     CoefficientSet,
     JobRecord,
+    ModelEntry,
     PendingStep,
     RunEntry,
     SecondStartEntry,
@@ -45,6 +46,7 @@ from trueturn.jobs.records import (
     SweepEntry,
     UnbalanceEntry,
     VerdictEntry,
+    WentOnEntry,
     now_iso,
 )
 from trueturn.model import RunKind
@@ -498,6 +500,34 @@ class Workspace:
             return self.save_job(job, path)
         except BaseException:
             job.stopped, job.status = before
+            raise
+
+    def record_model(self, job: JobRecord, model: ModelEntry,
+                     path: str | os.PathLike[str] | None = None) -> Path:
+        """Keep the model's answer, or its latest refinement (model-first, issue #20 item 4):
+        ``model`` replaces the job's; saved at once. If the save fails, ``job`` is left as
+        it was."""
+        if job.status != "open":
+            raise UserError(f"job {job.job_id} is closed; its model is kept as it was")
+        before = job.model
+        job.model = model
+        try:
+            return self.save_job(job, path)
+        except BaseException:
+            job.model = before
+            raise
+
+    def record_went_on(self, job: JobRecord, went_on: WentOnEntry,
+                       path: str | os.PathLike[str] | None = None) -> Path:
+        """Keep that the person went on although balancing may not help (issue #22), so a
+        continued job does not ask again; saved at once. If the save fails, ``job`` is left
+        as it was."""
+        before = job.went_on
+        job.went_on = went_on
+        try:
+            return self.save_job(job, path)
+        except BaseException:
+            job.went_on = before
             raise
 
     def resume_job(self, ref: str | os.PathLike[str]) -> JobRecord:

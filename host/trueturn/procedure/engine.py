@@ -408,6 +408,12 @@ class BalanceEngine:
                            tuple(float(a) for a in angle95), pred.residual_fraction_95, prior,
                            solution)
 
+    def model_estimate(self, setup: ProcedureSetup, runs: Sequence[Run],
+                       prior: object) -> CoefficientEstimate:
+        """The prior refined by ``runs`` by recursive least squares (the estimate every
+        model-first correction and verdict comes from; the job keeps its coefficients)."""
+        return self._estimate(setup, runs, prior)
+
     def _estimate(self, setup: ProcedureSetup, runs: Sequence[Run],
                   prior: object) -> CoefficientEstimate:
         """The prior refined by every run (masses relative to the as-found run's)."""

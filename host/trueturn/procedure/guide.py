@@ -88,6 +88,11 @@ DONE_CHECKLIST: tuple[str, ...] = (
 
 #: the first step of a resumed job whose next step is a run
 RESUME_CHECK_TITLE = "Resumed job: check the rotor"
+#: a resumed model-first job whose as-found run's coast-down was not kept (the app was
+#: closed before it ended): the model needs it, so the as-found run is measured again
+MODEL_SWEEP_LOST = ("the model needs the as-found run's coast-down, which was not recorded "
+                    "before the app closed: run the machine as found once more and let it "
+                    "coast down")
 
 DEFAULT_STANDSTILL_S = 3.0
 DEFAULT_RUNAWAY_FACTOR = 3.0
@@ -315,6 +320,12 @@ class Engine(Protocol):
                      prior: object) -> tuple[Verdict, Solution]:
         """Model-first: verdict on the last run with the coefficients refined by every run,
         and the trim still needed."""
+        ...
+
+    def model_estimate(self, setup: ProcedureSetup, runs: Sequence[Run],
+                       prior: object) -> object:
+        """Model-first: the prior refined by ``runs`` (the engine's type; the job keeps
+        its coefficients)."""
         ...
 
 
@@ -546,7 +557,8 @@ class Procedure:
     @classmethod
     def restore(cls, setup: ProcedureSetup, engine: Engine, runs: Sequence[KeptRun],
                 on_rotor: Sequence[PlacedMass], rotor_set: bool, redo_of: int | None = None,
-                watch: StandstillWatch | None = None) -> Procedure:
+                watch: StandstillWatch | None = None, model: ModelAnswer | None = None,
+                doubt: tuple[str, ...] = (), went_on: bool = False) -> Procedure:
         """Rebuild the procedure of an open job from the runs it kept (readings and the
         masses on the rotor in each), without the person: the engine solves them again as
         it did live, so the trims counted, the correction and the verdict come out as
@@ -561,9 +573,19 @@ class Procedure:
         hands-on step, to check that the rotor carries what the job lists (anyone may have
         touched it while the app was closed). Raises ValueError when the runs contradict
         each other.
+
+        Model-first: ``model`` is the model's answer the job kept (its prior, or why it was
+        not trusted: then the trials it fell back to); without it, after the as-found run,
+        the model still needs that run's coast-down, so the as-found run is measured again
+        (its coast-down is the sweep). ``doubt``: the rules the as-found run failed (is it
+        unbalance? issue #22); unless the person ``went_on`` already, or hands-on work was
+        done since, the question comes again before any mass goes on.
         """
         proc = cls(setup, engine, watch)
         proc.resumed = True
+        if setup.mode is Mode.MODEL_FIRST and model is not None:
+            proc.model = model
+            proc.fallback = not model.trusted
         for kept in runs:
             if kept.removal is not None:
                 proc.removal = kept.removal and proc.removal_allowed
@@ -580,6 +602,15 @@ class Procedure:
                     proc._redo_index = k
             proc._keep(kept.run, kept.number)
         proc.on_rotor = list(on_rotor)
+        proc.doubt = tuple(doubt)
+        if len(proc.runs) == 1 and setup.mode is Mode.MODEL_FIRST:
+            if proc.awaiting_sweep:  # the coast-down that the model needs was not kept
+                proc.problem = MODEL_SWEEP_LOST
+            elif not proc.fallback and not proc.problem:
+                proc._before_trials = proc.step  # the model's correction: nothing on yet
+        if (not rotor_set and proc.doubt and not went_on and len(proc.runs) == 1
+                and proc._before_trials is not None and proc.step == proc._before_trials):
+            proc.step = ShowDoubt("Balancing may not help", proc.doubt)
         if not proc.runs or not rotor_set or isinstance(proc.step, ShowVerdict):
             return proc  # the step after the last run (the set-up when none was kept)
         if redo_of is not None and redo_of in proc.run_numbers:
@@ -1363,7 +1394,9 @@ class Procedure:
 
     def _to_correction(self) -> None:
         """The coefficient runs are complete: solve, or say why no correction can be given."""
-        self.step = ShowCorrection("Correction")
+        by_model = (self.setup.mode is Mode.MODEL_FIRST and not self.fallback
+                    and not self.trims_done)
+        self.step = ShowCorrection("Correction from the model" if by_model else "Correction")
         self.problem = ""
         self.too_small_trial = None
         try:

@@ -60,6 +60,7 @@ from trueturn.ui.machines import MachinePicker
 from trueturn.ui.placement import marking_markup
 from trueturn.ui.resume import (
     OpenJob,
+    as_found_unbalance,
     find_open_job,
     refuse_changed_profile,
     restore_procedure,
@@ -603,6 +604,8 @@ class TrueturnApp(App):
             return
         self.procedure, self.open_job = proc, None
         self.keeper.resume(job, path)
+        if isinstance(proc.step, ShowDoubt):  # asked again: the failing rules, as found
+            self.condition = texts.condition_lines((), as_found_unbalance(job), as_found=True)
         if self.rig is not None:
             self.rig.apply(tuple(MassChange("attach", m) for m in proc.on_rotor))
         self.message = texts.resumed(job.job_id, len(job.runs),
@@ -803,6 +806,7 @@ class TrueturnApp(App):
                 self.message = ""
             case ShowDoubt():
                 proc.go_on()
+                self.keeper.went_on(proc)  # a continued job does not ask again
                 self.message = texts.GOING_ON
             case ShowVerdict() if not proc.finished:
                 proc.finish()
@@ -903,6 +907,7 @@ class TrueturnApp(App):
                 # model-first: the as-found run's coast-down gives the supports' resonances
                 proc.sweep_analysed(resonances_from_sweep(
                     outcome, proc.setup.sensors, proc.runs[0].speed_rpm or proc.setup.speed_rpm))
+                self.keeper.model(proc)  # a continued job uses the very same model
         bench.query_one("#status", StatusStrip).show(
             snap, machine=self.config.profile.name, demo=self.config.demo,
             identity=self.session.identity, link_error=self.link_error,

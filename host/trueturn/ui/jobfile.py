@@ -13,6 +13,15 @@ from dataclasses import replace
 from pathlib import Path
 from typing import Literal, cast
 
+import numpy as np
+
+from trueturn.angles import amplitude_phase
+from trueturn.balance.model_first import (
+    CoefficientEstimate,
+    Distrust,
+    PredictedInfluence,
+    circle95_radius,
+)
 from trueturn.dsp.coast import SweepOutcome
 from trueturn.dsp.findings import Finding
 from trueturn.dsp.severity import Severity
@@ -26,7 +35,7 @@ from trueturn.jobs.sweeps import sweep_entry
 from trueturn.model import Run, RunKind, SafetyEvent
 from trueturn.model.units import VIBRATION_UNIT_LABELS
 from trueturn.positions import number_of
-from trueturn.procedure.guide import MassChange, Mode, Procedure
+from trueturn.procedure.guide import GateRefused, MassChange, Mode, Procedure, planes_for
 from trueturn.procedure.standstill import StandstillEvidence
 from trueturn.ui.texts import VERDICT_FLAG_WORDS, verdict_note
 
@@ -244,6 +253,7 @@ class JobKeeper:
         if condition is not None:
             record.severity = severity_entries(condition[0])
             record.unbalance = unbalance_entry(condition[1])
+        self._refine_model(proc, run)
         self._kept(self._save("append_run", self.job, record, self._where()), confirmations)
 
     def second_start(self, run: Run, severity: Sequence[Severity],
@@ -274,6 +284,44 @@ class JobKeeper:
         self.path = saved
         if self.job.status == "closed":
             self._write_report()
+
+    def model(self, proc: Procedure) -> None:
+        """Keep the model's answer after the as-found run's coast-down (model-first, issue
+        #20 item 4): its prior and spread when trusted, else why not (the job goes on with
+        trials), so the job can be continued with the very same model."""
+        if self.job is None or proc.model is None or not proc.runs:
+            return
+        entry = model_record(proc)
+        self.path = self._save("record_model", self.job, entry, self._where()) or self.path
+
+    def went_on(self, proc: Procedure) -> None:
+        """Keep that the person went on although balancing may not help (issue #22): a
+        continued job does not ask again."""
+        if self.job is None or not proc.runs:
+            return
+        because = [cast(rec.EvidenceCode, c) for c in proc.doubt]
+        entry = rec.WentOnEntry(max(1, proc.run_numbers[-1]), rec.now_iso(), because)
+        self.path = self._save("record_went_on", self.job, entry, self._where()) or self.path
+
+    def _refine_model(self, proc: Procedure, run: Run) -> None:
+        """A run the model's coefficients took in (model-first, trusted): the coefficients
+        refined by every run so far join the job's model entry, saved with the run."""
+        job = self.job
+        if (job is None or job.model is None or not job.model.trusted or proc.model is None
+                or proc.fallback or run.kind is RunKind.AS_FOUND or run not in proc.runs):
+            return
+        try:
+            estimate = proc.engine.model_estimate(proc.setup, proc.runs, proc.model.prior)
+        except (GateRefused, KeyError, ValueError):
+            return  # no estimate from these runs: the run is kept all the same
+        if not isinstance(estimate, CoefficientEstimate):
+            return
+        covariance = estimate.covariance[:, 1:, 1:]
+        entries = coefficient_entries(estimate.sensors, job.model.planes, estimate.matrix,
+                                      np.real(np.diagonal(covariance, axis1=1, axis2=2)))
+        refined = rec.ModelRefinementEntry(job.next_run_index, list(proc.run_numbers),
+                                           entries)
+        job.model = replace(job.model, refined=[*job.model.refined, refined])
 
     def stop(self, proc: Procedure) -> Path | None:
         """Close the job without a verdict because the person stopped it (the reason kept),
@@ -339,6 +387,44 @@ class JobKeeper:
         self.path = saved
         self._write_report()
         return self.path
+
+
+def coefficient_entries(sensors: Sequence[str], planes: Sequence[str], matrix: np.ndarray,
+                        variance: np.ndarray) -> list[rec.ModelCoefficientEntry]:
+    """The job file's entries of a coefficient matrix (pickups x planes, complex) with each
+    one's 95 % circle as a share of its amplitude (``variance``: ``E|dH|^2`` per entry;
+    inf: not bounded)."""
+    out = []
+    for i, sensor in enumerate(sensors):
+        for j, plane in enumerate(planes):
+            h = complex(matrix[i, j])
+            amp, phase = amplitude_phase(h)
+            radius = circle95_radius(float(variance[i, j]))
+            spread = radius / amp if amp > 0 and math.isfinite(radius) else None
+            out.append(rec.ModelCoefficientEntry(sensor, plane, amp, phase % 360.0, spread))
+    return out
+
+
+def model_record(proc: Procedure) -> rec.ModelEntry:
+    """The job file's entry of the model's answer (model-first, issue #20 item 4): trusted,
+    its prior (coefficients and complex covariance per pickup, in the readings' unit per
+    gram) and the first correction's 95 % +/-; else the reasons it was not trusted."""
+    model = proc.model
+    assert model is not None
+    distrust = [Distrust(d) for d in model.distrust]
+    after = proc.run_numbers[0] if proc.run_numbers else 1
+    prior = model.prior
+    if not model.trusted or not isinstance(prior, PredictedInfluence):
+        return rec.ModelEntry(after, rec.now_iso(), False, distrust,
+                              model.residual_fraction_95)
+    planes = [p.name for p in planes_for(proc.setup)]
+    variance = np.array([np.real(np.diagonal(c)) for c in prior.covariance])
+    covariance = [rec.ModelCovarianceEntry(s, np.real(c).tolist(), np.imag(c).tolist())
+                  for s, c in zip(prior.sensors, prior.covariance, strict=True)]
+    return rec.ModelEntry(after, rec.now_iso(), True, [], model.residual_fraction_95, planes,
+                          list(model.mass_95_g), list(model.angle_95_deg),
+                          coefficient_entries(prior.sensors, planes, prior.matrix, variance),
+                          covariance)
 
 
 def mass_record(proc: Procedure, change: MassChange) -> rec.MassChange:

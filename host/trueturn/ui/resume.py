@@ -19,13 +19,20 @@ from __future__ import annotations
 from dataclasses import dataclass
 from pathlib import Path
 
+import numpy as np
+
+from trueturn.angles import phasor
+from trueturn.balance.model_first import PredictedInfluence
+from trueturn.dsp.findings import Finding
+from trueturn.dsp.unbalance import failing_rules
 from trueturn.errors import UserError
 from trueturn.jobs import records as rec
+from trueturn.jobs.condition import evidence_finding, verdict_finding
 from trueturn.jobs.profiles import MachineProfile
 from trueturn.jobs.store import Workspace
 from trueturn.model import MassKind, PlacedMass, Plane, Run
 from trueturn.positions import index_of, number_of, position_text
-from trueturn.procedure.guide import Engine, KeptRun, Mode, Procedure
+from trueturn.procedure.guide import Engine, KeptRun, Mode, ModelAnswer, Procedure, planes_for
 from trueturn.procedure.standstill import StandstillWatch
 from trueturn.schema import to_data
 from trueturn.ui.jobfile import AMPLITUDE_NOTE, METHOD_OF_MODE
@@ -143,6 +150,50 @@ def rotor_lines(job: rec.JobRecord, on_rotor: tuple[PlacedMass, ...]) -> list[st
     return lines
 
 
+def as_found_unbalance(job: rec.JobRecord) -> tuple[Finding, ...]:
+    """The as-found run's judgement (is it unbalance? issue #22) as the job kept it, the
+    verdict first and its evidence after, as findings (empty when none was kept)."""
+    judged = job.runs[0].unbalance if job.runs else None
+    if judged is None:
+        return ()
+    return (verdict_finding(judged), *(evidence_finding(e) for e in judged.evidence))
+
+
+def as_found_doubt(job: rec.JobRecord) -> tuple[str, ...]:
+    """The rules the as-found run failed (over both starts, when a second was measured)
+    when its judgement said balancing may not help; empty otherwise - as
+    :func:`trueturn.dsp.unbalance.failing_rules` gives them live."""
+    return failing_rules(as_found_unbalance(job))
+
+
+def model_answer(entry: rec.ModelEntry, job: rec.JobRecord) -> ModelAnswer:
+    """The model's answer as the job kept it (model-first, issue #20 item 4): its prior
+    rebuilt from the kept coefficients and covariance, so every later correction and
+    verdict comes out as it did live; one-line UserError when the entry does not fit the
+    job's pickups and planes."""
+    distrust = tuple(d.value for d in entry.distrust)
+    if not entry.trusted:
+        return ModelAnswer(False, distrust, residual_fraction_95=entry.residual_fraction_95)
+    sensors = tuple(p.name for p in job.machine.pickups)
+    table = {(c.sensor, c.plane): c for c in entry.predicted}
+    covariance = {c.sensor: c for c in entry.covariance}
+    try:
+        matrix = np.array([[phasor(table[s, p].amp, table[s, p].phase_deg)
+                            for p in entry.planes] for s in sensors])
+        cov = tuple(np.array(covariance[s].real) + 1j * np.array(covariance[s].imag)
+                    for s in sensors)
+    except KeyError as exc:
+        raise UserError(f"job {job.job_id}: its model lacks {exc.args[0]}: the job cannot be "
+                        "continued") from None
+    spread = np.array([[table[s, p].spread_rel_95 if table[s, p].spread_rel_95 is not None
+                        else np.inf for p in entry.planes] for s in sensors])
+    prior = PredictedInfluence(sensors, matrix, np.abs(matrix), cov,
+                               np.degrees(np.arcsin(np.minimum(spread, 1.0))), spread, False,
+                               entry.residual_fraction_95)
+    return ModelAnswer(True, (), tuple(entry.mass_95_g), tuple(entry.angle_95_deg),
+                       entry.residual_fraction_95, prior)
+
+
 def restore_procedure(job: rec.JobRecord, engine: Engine, watch: StandstillWatch | None,
                       standstill_s: float = 3.0, revolutions_per_run: int = 30) -> Procedure:
     """The procedure of an open job, at the step after its last run (one-line UserError
@@ -150,9 +201,12 @@ def restore_procedure(job: rec.JobRecord, engine: Engine, watch: StandstillWatch
     if job.status != "open":
         raise UserError(f"job {job.job_id} is closed; nothing to resume (start a new job)")
     mode = job_mode(job)
-    if mode is Mode.MODEL_FIRST:
-        raise UserError(f"job {job.job_id} is a model-first job, whose model is not kept in the "
-                        "job: start a new job")
+    model = None
+    if mode is Mode.MODEL_FIRST and job.model is not None:
+        model = model_answer(job.model, job)
+    elif mode is Mode.MODEL_FIRST and len(job.runs) > 1:
+        raise UserError(f"job {job.job_id} is a model-first job written before the job kept "
+                        "its model: start a new job")
     if mode is Mode.SAVED_TRIM and job.influence is None:
         raise UserError(f"job {job.job_id} does not keep the coefficients its trim used: "
                         "start a new trim")
@@ -160,11 +214,16 @@ def restore_procedure(job: rec.JobRecord, engine: Engine, watch: StandstillWatch
     try:
         setup = setup_from_profile(job.machine, mode, standstill_s, revolutions_per_run,
                                    job.influence if mode is Mode.SAVED_TRIM else None)
+        if job.model is not None and job.model.trusted and job.model.planes != [
+                p.name for p in planes_for(setup)]:
+            raise ValueError(f"its model covers planes {', '.join(job.model.planes)}, not the "
+                             "machine's")
         pending = job.pending
         return Procedure.restore(setup, engine, state.runs, state.on_rotor,
                                  rotor_set=pending is not None,
                                  redo_of=pending.redo_of if pending is not None else None,
-                                 watch=watch)
+                                 watch=watch, model=model, doubt=as_found_doubt(job),
+                                 went_on=job.went_on is not None)
     except ValueError as exc:
         raise UserError(f"job {job.job_id} cannot be continued: {exc}") from None
 

@@ -6,6 +6,7 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
+from trueturn.balance.model_first import DISTRUST_WORDS
 from trueturn.dsp.findings import Code, Finding, describe
 from trueturn.dsp.severity import Severity
 from trueturn.model import Reading, Verdict, VerdictFlag
@@ -240,20 +241,6 @@ A_STOP_RUN = ("Stop at once on a warning below. [b]a[/b]: stop this run now (not
 MODEL_WAITING = ("The model needs this run's coast-down: switch the machine off and let it "
                  "run down to a stop by itself (no brake). Nothing hands-on until it stands "
                  "still.")
-#: why the model cannot be trusted, by ``balance.model_first.Distrust`` code
-DISTRUST_WORDS: dict[str, str] = {
-    "no-sweep": "no coast-down was recorded",
-    "stiffness-unknown": "the coast-down found no resonance of the supports",
-    "no-pickup-angle": "a pickup's angle from the tach is not in the machine profile",
-    "no-bearings": "the bearings' or planes' positions are not in the machine profile",
-    "near-resonance": "the balancing speed is near a resonance of the supports",
-    "sweep-misfit": "the coast-down's resonance does not fit one mode",
-    "too-uncertain": "its correction might not even halve the 1x",
-    "uncalibrated": "a pickup reads volts (no sensitivity in the profile)",
-    "refuted": "the check run's 1x fell far outside its prediction, so its masses come off",
-}
-
-
 def model_refused(codes: Sequence[str]) -> str:
     """One line: why the model gives no correction, and what happens instead."""
     why = "; ".join(DISTRUST_WORDS.get(c, c) for c in codes) or "no reason given"

@@ -1,0 +1,342 @@
+"""A model-first job continued from its file (issues #17, #20 item 4, #22), without Textual.
+
+The procedure runs on the simulated bench of tests/test_ui_procedure.py (the demo
+scenarios' rotor physics); the coast-down is stood in for by the simulator's own rigid-body
+modes (tests/test_procedure_model_first.py, coast_down_resonances). Outside checks:
+
+* physics truth: the masses placed cut the modelled 1x at every pickup to a tenth
+  (trueturn.sim.rotor, the same rotor law the demo runs on) and the job reaches PASS;
+* the kept prior against an independent calculation: the first correction recomputed
+  here with numpy from the job file's coefficients and covariance alone - recursive least
+  squares with a Gaussian prior is the posterior mean ``(P0^-1 + phi^H phi / s2)^-1
+  (P0^-1 h0 + phi^H y / s2)`` (Ljung, *System Identification*, 2nd ed., 1999, §11.2,
+  from memory), the correction ``-H^+ b`` (Goodman 1964, least squares; from memory).
+Resume itself is bookkeeping (common practice, no source): a job continued from its file
+gives the very correction and verdict the uninterrupted procedure gives (to 1e-9).
+"""
+
+from __future__ import annotations
+
+from dataclasses import replace
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pytest
+
+from test_jobs_keeper import follow
+from test_procedure_model_first import coast_down_resonances
+from test_ui_procedure import Rig
+from trueturn.angles import phasor
+from trueturn.balance.model_first import CIRCLE95, READING_REL_FLOOR
+from trueturn.dsp.findings import Code, Finding
+from trueturn.dsp.unbalance import failing_rules
+from trueturn.errors import UserError
+from trueturn.jobs.store import Workspace, read_document, write_document
+from trueturn.procedure.engine import BalanceEngine
+from trueturn.procedure.guide import (
+    MODEL_SWEEP_LOST,
+    HandsOn,
+    Measure,
+    Mode,
+    Procedure,
+    ShowCorrection,
+    ShowDoubt,
+)
+from trueturn.procedure.standstill import StandstillWatch
+from trueturn.ui.jobfile import JobKeeper
+from trueturn.ui.resume import as_found_doubt, restore_procedure
+
+#: the app's judgement of a machine with a strong 2x (a made-up ratio, demo only)
+DOUBTFUL = (Finding(Code.BALANCING_MAY_NOT_HELP),
+            Finding(Code.TWO_X_RATIO, "left", details={"ok": False, "ratio": 0.6}),
+            Finding(Code.ONE_X_SHARE, "left", details={"ok": True, "share": 0.8}))
+
+
+def keep_job(rig: Rig, tmp_path: Path, judged: tuple[Finding, ...] = ()) -> JobKeeper:
+    """A job kept as the app keeps it: every hands-on step, every run (the as-found one
+    with the app's judgement ``judged``), the model's answer and the answer to the
+    question whether to go on."""
+    keeper = JobKeeper(rig.profile, workspace=tmp_path / "ws")
+    keeper.start(rig.proc)
+    wire(rig, keeper, judged)
+    return keeper
+
+
+def wire(rig: Rig, keeper: JobKeeper, judged: tuple[Finding, ...] = ()) -> None:
+    follow(rig, [])  # the hands-on steps: as the app keeps them (below, with the runs)
+    proc = rig.proc
+    done, record = proc.hands_on_done, proc.record
+    analysed, go_on = proc.sweep_analysed, proc.go_on
+
+    def hands_on_done(*args: Any) -> Any:
+        changes = done(*args)
+        keeper.hands_on(proc, changes)
+        return changes
+
+    def record_run(*args: Any, **kwargs: Any) -> Any:
+        run = record(*args, **kwargs)
+        as_found = len(proc.runs) == 1 and run is proc.runs[0]
+        keeper.run(proc, run, ((), judged) if as_found and judged else None)
+        if as_found and judged:
+            proc.as_found_judged(failing_rules(judged))
+        return run
+
+    def sweep_analysed(resonances: object) -> Any:
+        answer = analysed(resonances)
+        keeper.model(proc)
+        return answer
+
+    def went_on() -> None:
+        go_on()
+        keeper.went_on(proc)
+
+    proc.hands_on_done = hands_on_done  # type: ignore[method-assign]
+    proc.record = record_run  # type: ignore[method-assign]
+    proc.sweep_analysed = sweep_analysed  # type: ignore[method-assign]
+    proc.go_on = went_on  # type: ignore[method-assign]
+
+
+def restart(rig: Rig, keeper: JobKeeper) -> None:
+    """The app closes and starts again: the procedure rebuilt from the job file alone."""
+    assert keeper.path is not None
+    job = keeper.workspace.resume_job(keeper.path)
+    rig.proc = restore_procedure(job, BalanceEngine(), StandstillWatch(3.0))
+    keeper.resume(job, keeper.path)
+    wire(rig, keeper)
+
+
+def without_pickup_angles(rig: Rig) -> None:
+    """The profile does not say the pickups' angles from the tach: the model is not
+    trusted (no phase can be predicted) and trials follow."""
+    rig.setup = replace(rig.setup, pickup_angles_deg=(None, None))
+    rig.proc = Procedure(rig.setup, BalanceEngine())
+
+
+def same_solution(a: Procedure, b: Procedure) -> None:
+    assert a.solution is not None and b.solution is not None
+    assert a.step.title == b.step.title
+    for c, s in zip(a.solution.corrections, b.solution.corrections, strict=True):
+        assert c.plane == s.plane
+        assert c.mass_g == pytest.approx(s.mass_g, rel=1e-9)
+        assert c.angle_deg == pytest.approx(s.angle_deg, abs=1e-9)
+    assert [(p.plane, p.position) for p in a.solution.parts] == \
+        [(p.plane, p.position) for p in b.solution.parts]
+    for p, q in zip(a.solution.parts, b.solution.parts, strict=True):
+        assert p.mass_g == pytest.approx(q.mass_g, rel=1e-9)
+
+
+@pytest.mark.parametrize("quit_at", ["correction", "placed"])
+def test_a_trusted_model_job_resumes_with_the_uninterrupted_correction(
+        tmp_path: Path, quit_at: str) -> None:
+    straight = Rig("bench-grinder", Mode.MODEL_FIRST)
+    rig = Rig("bench-grinder", Mode.MODEL_FIRST)
+    keeper = keep_job(rig, tmp_path)
+    before = rig.response()
+    for r in (straight, rig):
+        r.hands_on()
+        r.run()  # as found
+        r.proc.sweep_analysed(coast_down_resonances(r))
+        assert r.proc.model is not None and r.proc.model.trusted
+    if quit_at == "placed":
+        for r in (straight, rig):
+            r.proc.accept_correction()
+            r.hands_on()  # the model's correction is on; its check run comes next
+    restart(rig, keeper)
+    proc = rig.proc
+    assert proc.resumed and proc.model is not None and proc.model.trusted
+    assert proc.model.mass_95_g == straight.proc.model.mass_95_g  # type: ignore[union-attr]
+    if quit_at == "correction":
+        assert isinstance(proc.step, ShowCorrection) and not proc.problem
+        same_solution(proc, straight.proc)
+        for r in (straight, rig):
+            r.proc.accept_correction()
+            r.hands_on()
+    else:
+        assert proc.checking_resumed_rotor and proc.on_rotor == straight.proc.on_rotor
+        rig.hands_on()  # standstill proven afresh, the rotor checked
+    assert isinstance(proc.step, Measure) and proc.step.run_label == "check"
+    for r in (straight, rig):
+        r.run()  # the check run: it refines the coefficients (it serves as the trial)
+    # the verdict and the trim from the refined coefficients: the same as uninterrupted
+    assert proc.verdict is not None and straight.proc.verdict is not None
+    assert proc.verdict.passed == straight.proc.verdict.passed
+    for a, b in zip(proc.verdict.rows(), straight.proc.verdict.rows(), strict=True):
+        assert a[1] == pytest.approx(b[1], rel=1e-9)
+    rig.complete()
+    assert proc.verdict.passed
+    rig.assert_cut(before)  # physics truth
+    job = read_document(keeper.path, "job")  # type: ignore[arg-type]
+    assert job.model is not None and job.model.trusted
+    # every check run refined the model, each from every run so far
+    assert [r.after_run for r in job.model.refined] == [r.index for r in job.runs[1:]]
+    assert [r.runs for r in job.model.refined][0] == [1, 2]
+    assert job.model.refined[-1].runs == [r.index for r in job.runs]
+
+
+def test_the_kept_prior_gives_the_first_correction_by_an_independent_calculation(
+        tmp_path: Path) -> None:
+    rig = Rig("bench-grinder", Mode.MODEL_FIRST)
+    keeper = keep_job(rig, tmp_path)
+    rig.hands_on()
+    rig.run()
+    rig.proc.sweep_analysed(coast_down_resonances(rig))
+    job = read_document(keeper.path, "job")  # type: ignore[arg-type]
+    model = job.model
+    assert model is not None and model.planes == ["left-wheel", "right-wheel"]
+    sensors = [p.name for p in job.machine.pickups]
+    table = {(c.sensor, c.plane): phasor(c.amp, c.phase_deg) for c in model.predicted}
+    covs = {c.sensor: np.array(c.real) + 1j * np.array(c.imag) for c in model.covariance}
+    b, h = [], []
+    for s in sensors:
+        reading = job.runs[0].reading(s)
+        y = phasor(reading.amplitude, reading.phase_deg)
+        sigma = max(reading.confidence_radius / CIRCLE95, READING_REL_FLOOR * abs(y))
+        # unknowns [b, h1, h2]: flat prior on b, the kept prior on h; one run with u = 0
+        info = np.zeros((3, 3), dtype=complex)
+        info[1:, 1:] = np.linalg.inv(covs[s])
+        moment = np.zeros(3, dtype=complex)
+        moment[1:] = info[1:, 1:] @ np.array([table[s, p] for p in model.planes])
+        phi = np.array([1.0, 0.0, 0.0])
+        info += np.outer(phi, phi) / sigma**2
+        moment += phi * y / sigma**2
+        theta = np.linalg.solve(info, moment)
+        b.append(theta[0])
+        h.append(theta[1:])
+    c, *_ = np.linalg.lstsq(np.array(h), -np.array(b), rcond=None)
+    shown = rig.proc.solution
+    assert shown is not None
+    for j, corr in enumerate(shown.corrections):
+        assert corr.mass_g == pytest.approx(abs(c[j]), rel=1e-6)
+        assert (corr.angle_deg - np.degrees(np.angle(c[j])) + 180) % 360 - 180 == \
+            pytest.approx(0.0, abs=1e-4)
+
+
+def test_a_model_not_trusted_resumes_with_its_trials(tmp_path: Path) -> None:
+    straight = Rig("bench-grinder", Mode.MODEL_FIRST)
+    rig = Rig("bench-grinder", Mode.MODEL_FIRST)
+    for r in (straight, rig):
+        without_pickup_angles(r)
+    keeper = keep_job(rig, tmp_path)
+    before = rig.response()
+    for r in (straight, rig):
+        r.hands_on()
+        r.run()
+        r.proc.sweep_analysed(coast_down_resonances(r))
+        r.hands_on()  # the first trial is on
+    job = read_document(keeper.path, "job")  # type: ignore[arg-type]
+    assert job.model is not None and not job.model.trusted
+    assert [d.value for d in job.model.distrust] == ["no-pickup-angle"]
+    assert job.model.predicted == [] and job.model.covariance == []
+    restart(rig, keeper)
+    proc = rig.proc
+    assert proc.fallback and proc.model is not None
+    assert proc.model.distrust == straight.proc.model.distrust  # type: ignore[union-attr]
+    assert proc.checking_resumed_rotor
+    rig.hands_on()
+    assert isinstance(proc.step, Measure) and proc.step.run_label == "trial left-wheel"
+    for r in (straight, rig):
+        r.run()
+        r.hands_on()
+        r.run()
+    same_solution(proc, straight.proc)
+    rig.complete()
+    assert proc.verdict is not None and proc.verdict.passed
+    rig.assert_cut(before)
+
+
+def test_quit_before_the_coast_down_measures_the_as_found_run_again(tmp_path: Path) -> None:
+    rig = Rig("bench-grinder", Mode.MODEL_FIRST)
+    keeper = keep_job(rig, tmp_path)
+    before = rig.response()
+    rig.hands_on()
+    rig.run()  # as found; the app closes while the machine coasts down
+    restart(rig, keeper)
+    proc = rig.proc
+    assert isinstance(proc.step, ShowCorrection) and proc.problem == MODEL_SWEEP_LOST
+    assert not proc.awaiting_sweep
+    proc.repeat_run()
+    assert isinstance(proc.step, Measure) and proc.step.run_label == "as found"
+    rig.run()
+    assert proc.awaiting_sweep and proc.runs[0] is not None and proc.run_numbers == [2]
+    proc.sweep_analysed(coast_down_resonances(rig))
+    assert proc.model is not None and proc.model.trusted
+    restart(rig, keeper)  # once more: run 2 replaces run 1, the model kept after run 2
+    assert rig.proc.run_numbers == [2] and rig.proc.model is not None
+    rig.complete()
+    assert rig.proc.verdict is not None and rig.proc.verdict.passed
+    rig.assert_cut(before)
+
+
+@pytest.mark.parametrize("answered", [False, True])
+def test_balancing_may_not_help_is_asked_again_unless_it_was_answered(
+        tmp_path: Path, answered: bool) -> None:
+    rig = Rig("bench-grinder", Mode.MODEL_FIRST)
+    keeper = keep_job(rig, tmp_path, DOUBTFUL)
+    rig.hands_on()
+    rig.run()
+    rig.proc.sweep_analysed(coast_down_resonances(rig))
+    assert isinstance(rig.proc.step, ShowDoubt)
+    if answered:
+        rig.proc.go_on()
+    job = read_document(keeper.path, "job")  # type: ignore[arg-type]
+    assert as_found_doubt(job) == failing_rules(DOUBTFUL) == ("two_x_ratio",)
+    assert (job.went_on is not None) is answered
+    restart(rig, keeper)
+    proc = rig.proc
+    if answered:
+        assert isinstance(proc.step, ShowCorrection) and proc.solution is not None
+        assert job.went_on.because == ["two_x_ratio"]  # type: ignore[union-attr]
+    else:
+        assert isinstance(proc.step, ShowDoubt) and proc.step.because == ("two_x_ratio",)
+        proc.go_on()
+        assert isinstance(proc.step, ShowCorrection)
+        restart(rig, keeper)  # answered now: not asked a third time
+        assert isinstance(rig.proc.step, ShowCorrection)
+    rig.complete()
+    assert rig.proc.verdict is not None and rig.proc.verdict.passed
+
+
+@pytest.mark.parametrize("answered", [False, True])
+def test_the_question_comes_again_in_the_procedures_by_planes(tmp_path: Path,
+                                                             answered: bool) -> None:
+    rig = Rig("shop-fan", Mode.ONE_PLANE)
+    keeper = keep_job(rig, tmp_path, DOUBTFUL)
+    rig.hands_on()
+    rig.run()
+    assert isinstance(rig.proc.step, ShowDoubt)
+    if answered:
+        rig.proc.go_on()
+    trial = rig.proc._before_trials
+    restart(rig, keeper)
+    step = rig.proc.step
+    if answered:
+        assert step == trial and isinstance(step, HandsOn)
+    else:
+        assert isinstance(step, ShowDoubt)
+        rig.proc.stop_here(rig.t)  # the person stops here this time
+        assert rig.proc.finished
+
+
+def test_old_job_files_without_the_model_still_load(tmp_path: Path) -> None:
+    """A model-first job written before the job kept its model: it loads and reports; with
+    more than its as-found run it cannot be continued (one line, no traceback)."""
+    rig = Rig("bench-grinder", Mode.MODEL_FIRST)
+    keeper = keep_job(rig, tmp_path)
+    rig.hands_on()
+    rig.run()
+    rig.proc.sweep_analysed(coast_down_resonances(rig))
+    rig.proc.accept_correction()
+    rig.hands_on()
+    rig.run()
+    assert keeper.path is not None
+    job = read_document(keeper.path, "job")
+    old = tmp_path / "old.yaml"
+    job.model, job.went_on = None, None
+    write_document(old, "job", job)
+    text = old.read_text()
+    assert "model:" not in text and "went_on" not in text
+    again = Workspace(tmp_path / "ws").load_job(old)
+    assert again.model is None and len(again.runs) == 2
+    with pytest.raises(UserError, match="before the job kept its model"):
+        restore_procedure(again, BalanceEngine(), None)

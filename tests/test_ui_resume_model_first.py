@@ -30,6 +30,7 @@ from test_ui_procedure import Rig
 from trueturn.angles import phasor
 from trueturn.balance.model_first import CIRCLE95, READING_REL_FLOOR
 from trueturn.dsp.findings import Code, Finding
+from trueturn.dsp.severity import NoSeverity, Severity, Zone
 from trueturn.dsp.unbalance import failing_rules
 from trueturn.errors import UserError
 from trueturn.jobs.store import Workspace, read_document, write_document
@@ -45,12 +46,18 @@ from trueturn.procedure.guide import (
 )
 from trueturn.procedure.standstill import StandstillWatch
 from trueturn.ui.jobfile import JobKeeper
-from trueturn.ui.resume import as_found_doubt, restore_procedure
+from trueturn.ui.resume import as_found_condition, as_found_doubt, restore_procedure
+from trueturn.ui.texts import condition_lines
 
 #: the app's judgement of a machine with a strong 2x (a made-up ratio, demo only)
 DOUBTFUL = (Finding(Code.BALANCING_MAY_NOT_HELP),
             Finding(Code.TWO_X_RATIO, "left", details={"ok": False, "ratio": 0.6}),
             Finding(Code.ONE_X_SHARE, "left", details={"ok": True, "share": 0.8}))
+
+
+#: the overall levels the app measured with it (made-up, demo only)
+LEVELS = (Severity("left", 5.8, Zone.D), Severity("right", None, None, None,
+                                                   NoSeverity.UNCALIBRATED))
 
 
 def keep_job(rig: Rig, tmp_path: Path, judged: tuple[Finding, ...] = ()) -> JobKeeper:
@@ -77,7 +84,7 @@ def wire(rig: Rig, keeper: JobKeeper, judged: tuple[Finding, ...] = ()) -> None:
     def record_run(*args: Any, **kwargs: Any) -> Any:
         run = record(*args, **kwargs)
         as_found = len(proc.runs) == 1 and run is proc.runs[0]
-        keeper.run(proc, run, ((), judged) if as_found and judged else None)
+        keeper.run(proc, run, (LEVELS, judged) if as_found and judged else None)
         if as_found and judged:
             proc.as_found_judged(failing_rules(judged))
         return run
@@ -254,8 +261,9 @@ def test_quit_before_the_coast_down_measures_the_as_found_run_again(tmp_path: Pa
     restart(rig, keeper)
     proc = rig.proc
     assert isinstance(proc.step, ShowCorrection) and proc.problem == MODEL_SWEEP_LOST
-    assert not proc.awaiting_sweep
+    assert not proc.awaiting_sweep and proc.sweep_lost
     proc.repeat_run()
+    assert not proc.sweep_lost
     assert isinstance(proc.step, Measure) and proc.step.run_label == "as found"
     rig.run()
     assert proc.awaiting_sweep and proc.runs[0] is not None and proc.run_numbers == [2]
@@ -281,6 +289,9 @@ def test_balancing_may_not_help_is_asked_again_unless_it_was_answered(
         rig.proc.go_on()
     job = read_document(keeper.path, "job")  # type: ignore[arg-type]
     assert as_found_doubt(job) == failing_rules(DOUBTFUL) == ("two_x_ratio",)
+    # the app words the machine's condition of a continued job as it did live
+    assert condition_lines(*as_found_condition(job), as_found=True) == \
+        condition_lines(LEVELS, DOUBTFUL, as_found=True)
     assert (job.went_on is not None) is answered
     restart(rig, keeper)
     proc = rig.proc

@@ -552,6 +552,9 @@ class Procedure:
         #: with trial runs because the model could not be trusted
         self.model: ModelAnswer | None = None
         self.fallback = False
+        #: a resumed model-first job lacks its as-found run's coast-down: the problem shown
+        #: asks to measure the as-found run again (:meth:`repeat_run`)
+        self.sweep_lost = False
         self._after_check: Step | None = None  # a resumed job: the step after the check
 
     @classmethod
@@ -605,7 +608,7 @@ class Procedure:
         proc.doubt = tuple(doubt)
         if len(proc.runs) == 1 and setup.mode is Mode.MODEL_FIRST:
             if proc.awaiting_sweep:  # the coast-down that the model needs was not kept
-                proc.problem = MODEL_SWEEP_LOST
+                proc.problem, proc.sweep_lost = MODEL_SWEEP_LOST, True
             elif not proc.fallback and not proc.problem:
                 proc._before_trials = proc.step  # the model's correction: nothing on yet
         if (not rotor_set and proc.doubt and not went_on and len(proc.runs) == 1
@@ -1091,7 +1094,7 @@ class Procedure:
             raise GateRefused("there is no run to repeat")
         last = self.runs.pop()
         self._repeat_of = self.run_numbers.pop()
-        self.problem = ""
+        self.problem, self.sweep_lost = "", False
         self.step = Measure(f"Repeat: {last.label}", last.label, last.kind or RunKind.CHECK)
 
     def _redo(self, index: int, masses: tuple[PlacedMass, ...], title: str) -> None:

@@ -60,7 +60,7 @@ from trueturn.ui.machines import MachinePicker
 from trueturn.ui.placement import marking_markup
 from trueturn.ui.resume import (
     OpenJob,
-    as_found_unbalance,
+    as_found_condition,
     find_open_job,
     refuse_changed_profile,
     restore_procedure,
@@ -604,8 +604,9 @@ class TrueturnApp(App):
             return
         self.procedure, self.open_job = proc, None
         self.keeper.resume(job, path)
-        if isinstance(proc.step, ShowDoubt):  # asked again: the failing rules, as found
-            self.condition = texts.condition_lines((), as_found_unbalance(job), as_found=True)
+        if len(proc.runs) == 1:  # the machine's condition as found, as shown live
+            self.as_found_condition = as_found_condition(job)
+            self.condition = texts.condition_lines(*self.as_found_condition, as_found=True)
         if self.rig is not None:
             self.rig.apply(tuple(MassChange("attach", m) for m in proc.on_rotor))
         self.message = texts.resumed(job.job_id, len(job.runs),

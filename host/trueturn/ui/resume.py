@@ -24,6 +24,7 @@ import numpy as np
 from trueturn.angles import phasor
 from trueturn.balance.model_first import PredictedInfluence
 from trueturn.dsp.findings import Finding
+from trueturn.dsp.severity import BAND_HZ, NoSeverity, Severity, Zone
 from trueturn.dsp.unbalance import failing_rules
 from trueturn.errors import UserError
 from trueturn.jobs import records as rec
@@ -157,6 +158,16 @@ def as_found_unbalance(job: rec.JobRecord) -> tuple[Finding, ...]:
     if judged is None:
         return ()
     return (verdict_finding(judged), *(evidence_finding(e) for e in judged.evidence))
+
+
+def as_found_condition(job: rec.JobRecord) -> tuple[tuple[Severity, ...], tuple[Finding, ...]]:
+    """The as-found run's overall severity per pickup and its judgement as the job kept
+    them, in the form the app holds them live (for its words and a second start)."""
+    first = job.runs[0] if job.runs else None
+    severity = tuple(Severity(e.sensor, e.velocity_rms_mm_s, Zone(e.zone) if e.zone else None,
+                              e.band_hz or BAND_HZ, NoSeverity(e.refused) if e.refused else None)
+                     for e in (first.severity if first is not None else []))
+    return severity, as_found_unbalance(job)
 
 
 def as_found_doubt(job: rec.JobRecord) -> tuple[str, ...]:

@@ -384,6 +384,7 @@ class CorrectionPanel(ProcedurePanel):
 
     problem: reactive[str] = reactive("")
     redo: reactive[TooSmallTrial | None] = reactive(None)
+    sweep_lost: reactive[bool] = reactive(False)  # model-first: measure as found again
     method: reactive[str] = reactive("")
     corrections: reactive[tuple[Correction, ...]] = reactive(())
     parts: reactive[tuple[PlacedMass, ...]] = reactive(())
@@ -409,6 +410,7 @@ class CorrectionPanel(ProcedurePanel):
                              if first and model is not None else ())
         self.model_left = model.residual_fraction_95 if first and model is not None else None
         self.problem = proc.problem
+        self.sweep_lost = proc.sweep_lost
         small = proc.too_small_trial
         self.redo = small if small is not None and small.suggested_g is not None else None
         sol = proc.solution
@@ -433,6 +435,8 @@ class CorrectionPanel(ProcedurePanel):
                 lines.append(f"[b]Enter[/b]: redo the trial on {small.plane} with "
                              f"{u.mass(ceil_to_scale_g(small.suggested_g, u.units.mass))} instead of "
                              f"{u.mass(small.trial_g)} (the other runs are kept)")
+            elif self.sweep_lost:
+                lines.append(texts.ENTER_MEASURE_AGAIN)
             else:
                 lines += [texts.CHECK_THE_RIG, texts.ENTER_MEASURE_AGAIN]
             return lines

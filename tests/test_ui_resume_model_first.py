@@ -351,3 +351,52 @@ def test_old_job_files_without_the_model_still_load(tmp_path: Path) -> None:
     assert again.model is None and len(again.runs) == 2
     with pytest.raises(UserError, match="before the job kept its model"):
         restore_procedure(again, BalanceEngine(), None)
+
+
+@pytest.mark.parametrize("quit_at", ["refuted", "trial-on"])
+def test_a_refuted_model_resumes_with_the_trials_it_fell_back_to(tmp_path: Path,
+                                                                 quit_at: str) -> None:
+    """A pickup angle mis-measured by 150 deg: the check run refutes the model (as in
+    tests/test_procedure_model_first.py); quit then, or with the first trial on: the job
+    continues exactly as the uninterrupted one, to PASS."""
+    rigs = []
+    for _ in range(2):
+        r = Rig("bench-grinder", Mode.MODEL_FIRST)
+        angles = tuple((a or 0.0) + 150.0 for a in r.setup.pickup_angles_deg)
+        r.setup = replace(r.setup, pickup_angles_deg=angles)
+        r.proc = Procedure(r.setup, BalanceEngine())
+        rigs.append(r)
+    straight, rig = rigs
+    keeper = keep_job(rig, tmp_path)
+    before = rig.response()
+    for r in rigs:
+        r.hands_on()
+        r.run()
+        r.proc.sweep_analysed(coast_down_resonances(r))
+        r.proc.accept_correction()
+        r.hands_on()
+        r.run()  # the check run refutes the model
+        assert r.proc.model is not None and r.proc.model.refuted_at is not None
+        if quit_at == "trial-on":
+            r.hands_on()  # the model's masses off, the first trial on
+    job = read_document(keeper.path, "job")  # type: ignore[arg-type]
+    assert job.model.trusted and job.model.refuted_by_run == 2  # type: ignore[union-attr]
+    assert job.model.refuted_at == straight.proc.model.refuted_at  # type: ignore[union-attr]
+    restart(rig, keeper)
+    proc = rig.proc
+    assert proc.model is not None and proc.model.refuted_at == straight.proc.model.refuted_at
+    assert proc.fallback and proc.on_rotor == straight.proc.on_rotor
+    if quit_at == "refuted":
+        assert proc.step == straight.proc.step  # take the model's masses off, trial on
+    else:
+        assert proc.checking_resumed_rotor
+        rig.hands_on()
+        assert proc.step == straight.proc.step
+    for r in rigs:
+        r.complete()
+    assert [r.label for r in proc.runs] == [r.label for r in straight.proc.runs]
+    assert proc.verdict is not None and straight.proc.verdict is not None
+    for a, b in zip(proc.verdict.rows(), straight.proc.verdict.rows(), strict=True):
+        assert a[1] == pytest.approx(b[1], rel=1e-9)
+    assert proc.verdict.passed
+    rig.assert_cut(before)

@@ -258,7 +258,8 @@ class ModelEntry:
     every later refinement) with their complex covariance per pickup (``covariance``),
     the first correction's 95 % +/- per plane (``mass_95_g``, ``angle_95_deg``, in the
     order of ``planes``), the share of the as-found 1x it leaves in 95 % of the model's
-    draws, and after each later run the coefficients refined (``refined``).
+    draws, after each later run the coefficients refined (``refined``), and the run that
+    refuted the model, if one did.
     """
 
     after_run: int = field(metadata=limits(minimum=1))
@@ -272,6 +273,10 @@ class ModelEntry:
     predicted: list[ModelCoefficientEntry] = field(default_factory=list)
     covariance: list[ModelCovarianceEntry] = field(default_factory=list)
     refined: list[ModelRefinementEntry] = field(default_factory=list)
+    #: a later run's 1x fell far outside the prediction: that run and the pickup (the job
+    #: went on with trials, the model's masses taken off; a continued job finds the same)
+    refuted_by_run: int | None = field(default=None, metadata=limits(minimum=1))
+    refuted_at: str | None = None
 
     def _checks(self) -> list[tuple[str, str]]:
         problems: list[tuple[str, str]] = []
@@ -511,7 +516,8 @@ class JobRecord:
             problems.append(("went_on", f"refers to run {self.went_on.after_run}, which is not "
                              "recorded"))
         if self.model is not None:
-            last = max([self.model.after_run, *(r.after_run for r in self.model.refined)])
+            last = max([self.model.after_run, *(r.after_run for r in self.model.refined),
+                        self.model.refuted_by_run or 0])
             if last > len(self.runs):
                 problems.append(("model", f"refers to run {last}, which is not recorded"))
         return problems

@@ -305,10 +305,17 @@ class JobKeeper:
 
     def _refine_model(self, proc: Procedure, run: Run) -> None:
         """A run the model's coefficients took in (model-first, trusted): the coefficients
-        refined by every run so far join the job's model entry, saved with the run."""
+        refined by every run so far join the job's model entry, saved with the run; a run
+        that refuted the model is kept there as such."""
         job = self.job
         if (job is None or job.model is None or not job.model.trusted or proc.model is None
-                or proc.fallback or run.kind is RunKind.AS_FOUND or run not in proc.runs):
+                or run.kind is RunKind.AS_FOUND):
+            return
+        if proc.model.refuted_at is not None and job.model.refuted_by_run is None:
+            job.model = replace(job.model, refuted_by_run=job.next_run_index,
+                                refuted_at=proc.model.refuted_at)
+            return
+        if proc.fallback or run not in proc.runs:
             return
         try:
             estimate = proc.engine.model_estimate(proc.setup, proc.runs, proc.model.prior)

@@ -358,19 +358,23 @@ def format_sweep(result: Analysis) -> list[str]:
     widths = [max(len(r[i]) for r in rows) for i in range(len(rows[0]))]
     lines += ["  " + "  ".join(c.ljust(w) for c, w in zip(r, widths, strict=True)).rstrip()
               for r in rows]
-    lines.append("support resonances (half-power bandwidth on the 1x per unit unbalance force):")
+    lines.append("support resonances (peak of the 1x per unit unbalance force; damping by an "
+                 "SDOF fit to amplitude and phase):")
     if not sw.resonances:
         lines.append("  none found in the sweep")
     for r in sw.resonances:
+        low, high = r.damping_ratio_95 or (math.nan, math.nan)
         damping = ("not one mode alone (others nearby): no damping given"
                    if r.single_mode is False else
-                   "damping not resolved (the speed passed the resonance in fewer than 3 "
-                   "points)" if r.damping_ratio is None else
-                   f"damping {100 * r.damping_ratio:.1f} % (half-power {r.lower_rpm:.0f}-"
-                   f"{r.upper_rpm:.0f} rpm, {r.points_in_band} points)")
-        if r.fit_speed_rpm is not None and r.fit_damping_ratio is not None:
-            damping += (f"; SDOF fit {r.fit_speed_rpm:.0f} rpm, damping "
-                        f"{100 * r.fit_damping_ratio:.1f} %")
+                   "damping not resolved (too few revolutions near it, or the fit cannot "
+                   "tell it within a factor 1.5)" if r.damping_ratio is None else
+                   f"damping {100 * r.damping_ratio:.1f} % (95 %: {100 * low:.1f}-"
+                   f"{100 * high:.1f} %, SDOF fit, natural speed {r.fit_speed_rpm:.0f} rpm)"
+                   if r.method == "sdof_fit" and r.fit_speed_rpm is not None else
+                   f"damping {100 * r.damping_ratio:.1f} % ({r.method})")
+        if r.lower_rpm is not None and r.upper_rpm is not None:
+            damping += (f"; half-power {r.lower_rpm:.0f}-{r.upper_rpm:.0f} rpm, "
+                        f"{r.points_in_band} points")
         lines.append(f"  - {r.pickup}: {r.speed_rpm:.0f} rpm, {damping}")
     for k in result.speed_slopes:
         lines.append(f"response slope at {k.speed_rpm:.0f} rpm, {k.pickup}: 1x ~ speed^"

@@ -203,6 +203,10 @@ class Analysis:
                       for p in sw.points],
             "resonances": [{"speed_rpm": num(r.speed_rpm, 1), "pickup": r.pickup,
                             "damping_ratio": num(r.damping_ratio, 4),
+                            "damping_ratio_95": None if r.damping_ratio_95 is None
+                            else [num(r.damping_ratio_95[0], 4),
+                                  num(r.damping_ratio_95[1], 4)],
+                            "half_power_damping_ratio": num(r.half_power_damping_ratio, 4),
                             "half_power_rpm": None if r.lower_rpm is None or r.upper_rpm is None
                             else [num(r.lower_rpm, 1), num(r.upper_rpm, 1)],
                             "points_in_band": r.points_in_band,
@@ -217,11 +221,16 @@ class Analysis:
                            "min_ratio": MIN_SWEEP_RATIO, "bin_fraction": BIN_FRACTION,
                            "balancing_speed_rpm": num(balancing_speed_rpm(sw) or math.nan, 1),
                            "resonance_margin": RESONANCE_MARGIN,
-                           "method": "half-power bandwidth on the 1x per unit unbalance force "
-                                     "(divided by speed^2 and the pickup's own power of "
-                                     "speed); Ewins, Modal Testing, sec. 4.2; cross-checked "
-                                     "by an SDOF curve fit to the complex response "
-                                     "(sdof_fit; Ewins sec. 4.3-4.4)"},
+                           "method": "resonance speed: peak of the 1x per unit unbalance "
+                                     "force (divided by speed^2 and the pickup's own power "
+                                     "of speed), half-power bandwidth (Ewins, Modal "
+                                     "Testing, sec. 4.2); damping_ratio: sdof_fit, a "
+                                     "least-squares fit of one SDOF mode with residual "
+                                     "terms to the complex 1x (amplitude and phase) of "
+                                     "each revolution near the peak, averaged across the "
+                                     "revolution's speed change (Ewins sec. 4.3-4.4), "
+                                     "damping_ratio_95 from the fit's covariance; null "
+                                     "when not resolved"},
             "speed_slopes": [{"pickup": k.pickup, "speed_rpm": num(k.speed_rpm, 1),
                               "amplitude_exponent": num(k.amplitude_exponent, 4),
                               "amplitude_exponent_se": num(k.amplitude_exponent_se, 4),

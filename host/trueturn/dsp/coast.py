@@ -32,6 +32,7 @@ from trueturn.dsp.sweep import (
     analyse_sweep,
     balancing_speed_rpm,
     near_resonances,
+    revolution_spans_rpm,
 )
 from trueturn.dsp.units import PickupProfile
 
@@ -86,7 +87,8 @@ def meter_sweep(meter: LiveAnalyzer, unit: str | None = None) -> Sweep:
     kept = [(c, v) for c, v in zip(channels, vectors, strict=True) if len(v[0]) == len(speeds)]
     return analyse_sweep(speeds, {meter.profile(c).name: v[1] for c, v in kept},
                          {meter.profile(c).name: v[2] for c, v in kept},
-                         vectors[0][3] if vectors else "V pk")
+                         vectors[0][3] if vectors else "V pk",
+                         spans_rpm=revolution_spans_rpm(speeds))
 
 
 def sweep_findings(sweep: Sweep) -> tuple[float | None, list[Finding]]:

@@ -8,8 +8,10 @@ phasor comes from the same tach-synchronous least-squares fit as a steady readin
 * bins them on a logarithmic speed grid (:data:`BIN_FRACTION` wide: 0.5 %) and averages the
   phasors in each bin: the sweep's points (amplitude and phase per pickup, with a 95 %
   circle from the fit's own noise);
-* finds the support resonances (critical speeds) per pickup by the **half-power
-  bandwidth** method on the response per unit unbalance force, and their damping ratio;
+* finds the support resonances (critical speeds) per pickup as the peaks of the response
+  per unit unbalance force (**half-power bandwidth** method), and their damping ratio with a
+  95 % interval by a **least-squares fit of one SDOF mode** (with residual terms) to the
+  complex 1x, amplitude and phase, of the revolutions near each peak (method ``sdof_fit``);
 * gives the local slope of the response with speed (amplitude exponent
   ``d ln|H| / d ln n`` and phase slope ``d phi / d ln n``) for normalising runs taken a
   little apart in speed (:mod:`trueturn.balance.speed`).
@@ -24,11 +26,17 @@ force) times a constant, to which the single-degree-of-freedom half-power rule a
 amplitude is ``1/sqrt(2)`` of its peak at ``nr`` (about ``(n2 - n1) / (2 nr)`` for light
 damping).
 
-The method assumes well separated, lightly damped modes (each peak dominated by one mode)
-and a sweep slow enough that the response is steady at each speed; a fast sweep through
-a lightly damped resonance lags and lowers its peak. The damping is given only when at
-least :data:`MIN_POINTS_IN_BAND` measured points lie inside the half-power band;
-otherwise it is null (the sweep went through the resonance too fast to resolve it).
+The half-power damping needs at least :data:`MIN_POINTS_IN_BAND` measured points inside
+the band, which a fast coast-down does not give (one revolution can span the whole band of
+a lightly damped mode, and its 1x is the mean across it, which widens the peak); it is kept
+as a cross-check. The fit uses every revolution near the peak, amplitude and phase, models
+each revolution's mean across its speed change, and gives the damping's 95 % interval from
+its covariance; the damping is null ("not resolved") when that interval is wider than
+:data:`MAX_DAMPING_FACTOR_95` either side, and when one mode does not explain the peak.
+
+Both methods assume well separated, lightly damped modes (each peak dominated by one mode)
+and a sweep slow enough that the response is steady at each speed; a fast sweep through a
+lightly damped resonance lags and lowers its peak.
 
 References
 ----------
@@ -37,6 +45,7 @@ References
    method) (from memory).
 .. [2] S. S. Rao, *Mechanical Vibrations*, sec. "Response of a damped system under
    rotating unbalance" and "quality factor and bandwidth" (from memory).
+.. [3] Ewins 2000, sec. 4.3-4.4 (SDOF circle fit and curve fit, residual terms; from memory).
 """
 
 from __future__ import annotations
@@ -46,6 +55,7 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, replace
 
 import numpy as np
+from scipy import stats
 from scipy.optimize import least_squares
 from scipy.signal import find_peaks
 
@@ -132,13 +142,17 @@ class SweepPoint:
 
 @dataclass(frozen=True)
 class Resonance:
-    """A support resonance found at one pickup by the half-power method.
+    """A support resonance found at one pickup.
 
-    ``speed_rpm`` the peak of the normalised response; ``damping_ratio`` from the band
-    ``lower_rpm``..``upper_rpm`` (None, with the band's edges None, when fewer than
+    ``speed_rpm`` the peak of the normalised response (half-power method); the band
+    ``lower_rpm``..``upper_rpm`` where it falls to ``1/sqrt(2)`` (None when fewer than
     :data:`MIN_POINTS_IN_BAND` points lie in it or an edge is outside the sweep);
     ``points_in_band`` the measured points inside; ``peak_ratio`` how far the peak stands
-    above the lower of its two valleys (amplitude ratio).
+    above the lower of its two valleys (amplitude ratio). ``damping_ratio`` and ``method``:
+    from :func:`half_power_resonances` alone the half-power damping (``"half_power"``);
+    from :func:`analyse_sweep` the SDOF fit's (``"sdof_fit"``, :func:`fit_sdof_response`)
+    with its 95 % interval ``damping_ratio_95``, None ("not resolved") when the fit cannot
+    tell it within :data:`MAX_DAMPING_FACTOR_95`.
     """
 
     speed_rpm: float
@@ -149,13 +163,18 @@ class Resonance:
     points_in_band: int
     peak_ratio: float
     method: str = "half_power"
-    #: the cross-check: natural speed (rpm) and damping of a single-degree-of-freedom curve
-    #: fit to the complex response around the peak (:func:`sdof_fit`), None when it failed
+    #: the single-degree-of-freedom fit (:func:`fit_sdof_response`): natural speed (rpm)
+    #: and damping, None when it failed or did not resolve the damping
     fit_speed_rpm: float | None = None
     fit_damping_ratio: float | None = None
     #: True: one mode explains the peak (the fit agrees); False: it does not (two or more
     #: modes close together), so no damping is given; None: too few points to tell
     single_mode: bool | None = None
+    #: the damping's 95 % interval (low, high), given with every damping of the fit
+    damping_ratio_95: tuple[float, float] | None = None
+    #: the half-power method's own damping (the cross-check; None: fewer than
+    #: :data:`MIN_POINTS_IN_BAND` points in its band, or an edge outside the sweep)
+    half_power_damping_ratio: float | None = None
 
 
 @dataclass(frozen=True)
@@ -375,8 +394,8 @@ def half_power_resonances(speeds_rpm: np.ndarray, response: np.ndarray,
     return out
 
 
-#: the SDOF fit uses the usable points within this factor of the resonance speed
-FIT_SPAN = 1.2
+#: the SDOF fit uses the revolutions within this factor of the resonance speed
+FIT_SPAN = 1.1
 MIN_FIT_POINTS = 5
 #: and is kept when its RMS misfit is at most this fraction of the largest response fitted:
 #: a lone mode of the virtual grinder misses by 3-4 % (its neighbours within 20 % and its
@@ -385,59 +404,139 @@ MAX_FIT_RESIDUAL = 0.05
 #: the fit's natural speed must lie within this fraction of the half-power peak; otherwise
 #: the peak is two or more modes together and no damping is given for it
 MAX_FIT_PEAK_GAP = 0.05
+#: and its misfit at most this many times the points' own noise (the square root of the
+#: reduced chi-square): a lone mode of the virtual grinder and shop fan misses by 2-5 times
+#: (its neighbours, its nonlinearity), two equal Rao modes 10 % apart with little noise by
+#: thousands of times (measured here; our choice)
+MAX_NOISE_SCALE = 10.0
+#: the damping is given (resolved) only when its 95 % interval lies within this factor of
+#: the estimate on both sides (0.67x ... 1.5x); a wider interval is "not resolved" (our
+#: choice: a damping known only within a factor of 1.5 moves a model's response near the
+#: resonance by as much, more than the model's other uncertainties)
+MAX_DAMPING_FACTOR_95 = 1.5
+#: Gauss-Legendre nodes for the mean of the response across one revolution's speed change
+REVOLUTION_NODES = 16
+#: the method's name in results and JSON
+SDOF_FIT_METHOD = "sdof_fit"
 
 
-def sdof_fit(speeds_rpm: np.ndarray, response: np.ndarray, sigmas: np.ndarray,
-             guess_rpm: float, guess_zeta: float = 0.05) -> tuple[float, float] | None:
-    """Natural speed and damping ratio of an SDOF curve fitted to a complex response.
+@dataclass(frozen=True)
+class SdofFit:
+    """A single-degree-of-freedom fit to a complex response (:func:`fit_sdof_response`).
 
-    Model (receptance of one mode plus a constant for the others, in rpm):
-    ``z(n) = A / (nn^2 - n^2 + 2 i zeta nn n) + B`` with complex ``A``, ``B``; for given
-    ``nn`` and ``zeta`` the complex constants are linear and solved exactly (variable
-    projection), ``nn`` and ``zeta`` by :func:`scipy.optimize.least_squares`, each point
-    weighted by ``1 / sigma``. Uses amplitude *and* phase, so a resonance passed in a few
-    points is still fitted.
+    ``speed_rpm`` the natural speed and ``damping_ratio`` zeta, each with its 95 % interval
+    (``*_95``, low and high); ``points`` fitted; ``misfit`` the RMS misfit over the largest
+    response fitted; ``noise_scale`` the square root of the reduced chi-square (how much
+    larger than the points' own noise the misfit is; the intervals are widened by it when
+    above 1).
+    """
+
+    speed_rpm: float
+    damping_ratio: float
+    speed_rpm_95: tuple[float, float]
+    damping_ratio_95: tuple[float, float]
+    points: int
+    misfit: float
+    noise_scale: float
+
+    @property
+    def damping_resolved(self) -> bool:
+        """Whether the damping's 95 % interval lies within :data:`MAX_DAMPING_FACTOR_95` of
+        the estimate on both sides."""
+        low, high = self.damping_ratio_95
+        return (low * MAX_DAMPING_FACTOR_95 >= self.damping_ratio
+                and high <= MAX_DAMPING_FACTOR_95 * self.damping_ratio)
+
+
+def fit_sdof_response(speeds_rpm: np.ndarray, response: np.ndarray, sigmas: np.ndarray,
+                      guess_rpm: float, guess_zeta: float = 0.05,
+                      spans_rpm: np.ndarray | None = None, power: int = 0
+                      ) -> SdofFit | None:
+    """Least-squares fit of one SDOF mode with residual terms to a complex response.
+
+    Model (receptance of one mode plus the other modes' residual terms, in rpm):
+    ``z(n) = A nn^2 / (nn^2 - n^2 + 2 i zeta nn n) + B + C (nn / n)^2`` with complex ``A``
+    (the mode), ``B`` (stiffness-like residual of the modes above) and ``C`` (mass-like
+    residual of the modes below) [1]_. Amplitude *and* phase are fitted, so a resonance
+    passed in a few points is still resolved. For given ``nn`` and ``zeta`` the complex
+    constants are linear and solved exactly (variable projection [2]_); ``nn`` and
+    ``ln zeta`` by :func:`scipy.optimize.least_squares`, each point weighted by
+    ``1 / sigma``.
+
+    A point that is one revolution of a sweep is the mean of the response across the
+    revolution's speed change (``spans_rpm``; the per-revolution 1x fit averages it): the
+    model is averaged alike (Gauss-Legendre, :data:`REVOLUTION_NODES` nodes), the raw reading
+    being ``n^power`` times the normalised response. On a fast coast-down one revolution
+    can span the whole half-power band of a lightly damped mode; the half-power method then
+    reads the band too wide.
+
+    The uncertainty: the covariance of ``(nn, ln zeta)`` from the fit's Jacobian,
+    ``s^2 (J^T J)^-1``, with ``s^2`` the reduced chi-square when above 1 (a misfit larger
+    than the noise widens the interval), and Student's t with the fit's degrees of freedom
+    [3]_; the 95 % interval of ``zeta`` is ``exp(ln zeta +/- t se)``.
 
     Parameters
     ----------
     speeds_rpm : numpy.ndarray
-        Speeds of the points, rpm.
+        Speeds of the points, rpm (each revolution's mean speed).
     response : numpy.ndarray
         The complex response per unit unbalance force there (standard ``e^{i omega t}``
         convention: the conjugate of a project phasor, divided by the speed's power).
     sigmas : numpy.ndarray
-        Each point's standard error, same unit.
+        Each point's standard error per component, same unit.
     guess_rpm : float
         Start for ``nn`` (the half-power peak), rpm; ``nn`` stays within 20 % of it.
     guess_zeta : float, default 0.05
         Start for ``zeta`` (kept within 0.001...0.5).
+    spans_rpm : numpy.ndarray or None, default None
+        Each point's speed change across its revolution, rpm; None or 0: a point sample
+        (a steady reading at that speed).
+    power : int, default 0
+        The normalisation's power of speed (:data:`NORMALISING_POWER`): the reading is
+        ``n^power`` times the response, which weighs the mean across a revolution.
 
     Returns
     -------
-    tuple or None
-        ``(nn_rpm, zeta)``; None with fewer than :data:`MIN_FIT_POINTS` points, no
-        convergence, or an RMS misfit above :data:`MAX_FIT_RESIDUAL` (5 %) of the largest
-        response (not one mode).
+    SdofFit or None
+        None with fewer than :data:`MIN_FIT_POINTS` points or too few for the parameters,
+        no convergence, an RMS misfit above :data:`MAX_FIT_RESIDUAL` (5 %) of the largest
+        response or above :data:`MAX_NOISE_SCALE` times the points' noise (not one mode).
 
     References
     ----------
     .. [1] D. J. Ewins, *Modal Testing: Theory, Practice and Application*, 2nd ed., 2000,
-       sec. 4.3-4.4 (SDOF curve fitting with residual terms; circle fit) (from memory).
+       sec. 4.3-4.4 (SDOF modal analysis: circle fit and curve fit; residual terms, the
+       mass-like ``-1 / (omega^2 M_R)`` and stiffness-like ``1 / K_R``) (from memory).
     .. [2] G. H. Golub, V. Pereyra, "The differentiation of pseudo-inverses and nonlinear
        least squares problems whose variables separate", SIAM J. Numer. Anal. 10(2), 1973
        (variable projection; from memory).
+    .. [3] W. H. Press et al., *Numerical Recipes*, 3rd ed., 2007, sec. 15.5-15.6 (the
+       covariance of a nonlinear least-squares fit; confidence limits) (from memory).
     """
     n = np.asarray(speeds_rpm, dtype=float)
     z = np.asarray(response, dtype=complex)
-    w = 1.0 / np.maximum(np.asarray(sigmas, dtype=float), 1e-12 * float(np.abs(z).max(initial=1.0)))
-    if n.size < MIN_FIT_POINTS or not guess_rpm > 0:
+    if n.size < MIN_FIT_POINTS or not guess_rpm > 0 or z.size != n.size:
         return None
+    sig = np.maximum(np.asarray(sigmas, dtype=float),
+                     1e-12 * float(np.abs(z).max(initial=1.0)))
+    w = 1.0 / sig
+    spans = np.zeros(n.size) if spans_rpm is None else np.abs(np.asarray(spans_rpm, float))
+    nodes, weights = np.polynomial.legendre.leggauss(REVOLUTION_NODES)
+    # each point's speeds across its revolution (rows) and the reading's weight there
+    at = n[:, None] + 0.5 * spans[:, None] * nodes[None, :]
+    at = np.maximum(at, 1e-3 * n[:, None])
+    lift = (at / n[:, None]) ** power * (0.5 * weights[None, :])
     scale = guess_rpm
+    linear = 3  # complex A, B, C
+    dof = 2 * n.size - 2 - 2 * linear
+    if dof < 1:
+        return None
 
     def design(params: np.ndarray) -> np.ndarray:
-        nn, zeta = params[0] * scale, params[1]
-        return np.stack([1.0 / (nn * nn - n * n + 2j * zeta * nn * n) * scale * scale,
-                         np.ones_like(n, dtype=complex)], axis=1)
+        nn, zeta = params[0] * scale, math.exp(params[1])
+        mode = nn * nn / (nn * nn - at * at + 2j * zeta * nn * at)
+        return np.stack([np.sum(lift * mode, axis=1), np.sum(lift, axis=1).astype(complex),
+                         np.sum(lift * (nn / at) ** 2, axis=1).astype(complex)], axis=1)
 
     def misfit(params: np.ndarray) -> np.ndarray:
         m = design(params) * w[:, None]
@@ -445,18 +544,68 @@ def sdof_fit(speeds_rpm: np.ndarray, response: np.ndarray, sigmas: np.ndarray,
         r = m @ coef - z * w
         return np.concatenate([r.real, r.imag])
 
-    start = np.array([1.0, min(max(guess_zeta, 0.002), 0.4)])
+    low_zeta, high_zeta = math.log(0.001), math.log(0.5)
+    start = np.array([1.0, min(max(math.log(max(guess_zeta, 1e-6)), low_zeta + 0.5),
+                               high_zeta - 0.5)])
     try:
-        fit = least_squares(misfit, start, bounds=([1 / FIT_SPAN, 0.001], [FIT_SPAN, 0.5]))
+        fit = least_squares(misfit, start, bounds=([1 / FIT_SPAN, low_zeta],
+                                                   [FIT_SPAN, high_zeta]), x_scale=[0.01, 0.3])
     except (ValueError, np.linalg.LinAlgError):
         return None
     if not fit.success:
         return None
-    coef = np.linalg.lstsq(design(fit.x), z, rcond=None)[0]
+    coef = np.linalg.lstsq(design(fit.x) * w[:, None], z * w, rcond=None)[0]
     rms = float(np.sqrt(np.mean(np.abs(design(fit.x) @ coef - z) ** 2)))
     if rms > MAX_FIT_RESIDUAL * float(np.abs(z).max()):
         return None
-    return float(fit.x[0] * scale), float(fit.x[1])
+    chi2 = float(2.0 * fit.cost) / dof
+    if chi2 > MAX_NOISE_SCALE ** 2:
+        return None
+    jac = np.asarray(fit.jac, dtype=float)
+    try:
+        cov = np.linalg.inv(jac.T @ jac) * max(chi2, 1.0)
+    except np.linalg.LinAlgError:
+        return None
+    if not (np.isfinite(cov).all() and cov[0, 0] >= 0 and cov[1, 1] >= 0):
+        return None
+    t95 = float(stats.t.ppf(0.975, dof))
+    nn = float(fit.x[0] * scale)
+    nn_half = t95 * math.sqrt(float(cov[0, 0])) * scale
+    zeta = math.exp(float(fit.x[1]))
+    zeta_factor = math.exp(t95 * math.sqrt(float(cov[1, 1])))
+    return SdofFit(nn, zeta, (nn - nn_half, nn + nn_half), (zeta / zeta_factor,
+                                                            zeta * zeta_factor),
+                   int(n.size), rms / float(np.abs(z).max()), math.sqrt(chi2))
+
+
+def sdof_fit(speeds_rpm: np.ndarray, response: np.ndarray, sigmas: np.ndarray,
+             guess_rpm: float, guess_zeta: float = 0.05) -> tuple[float, float] | None:
+    """Natural speed and damping ratio of point samples, by :func:`fit_sdof_response`.
+
+    Parameters
+    ----------
+    speeds_rpm : numpy.ndarray
+        Speeds of the points, rpm.
+    response : numpy.ndarray
+        The complex response per unit unbalance force (standard convention).
+    sigmas : numpy.ndarray
+        Each point's standard error, same unit.
+    guess_rpm : float
+        Start for the natural speed, rpm.
+    guess_zeta : float, default 0.05
+        Start for zeta.
+
+    Returns
+    -------
+    tuple or None
+        ``(nn_rpm, zeta)``, or None when :func:`fit_sdof_response` gives none.
+
+    References
+    ----------
+    .. [1] See :func:`fit_sdof_response` (Ewins 2000, sec. 4.3-4.4).
+    """
+    fit = fit_sdof_response(speeds_rpm, response, sigmas, guess_rpm, guess_zeta)
+    return None if fit is None else (fit.speed_rpm, fit.damping_ratio)
 
 
 def _vertex(x: np.ndarray, y: np.ndarray) -> tuple[float, float]:
@@ -484,28 +633,69 @@ def _crossing(x: np.ndarray, y: np.ndarray, start: int, level: float, step: int)
     return None
 
 
-def _with_fit(res: Resonance, points: Sequence[SweepPoint], name: str, unit: str
-              ) -> Resonance:
-    """The resonance with the SDOF fit's cross-check filled in; when the fit fails or puts
-    the mode more than :data:`MAX_FIT_PEAK_GAP` from the peak, the peak is not one mode and
-    its damping is withdrawn (``single_mode`` False)."""
-    near = [(p.speed_rpm, v) for p in points
-            if res.speed_rpm / FIT_SPAN <= p.speed_rpm <= res.speed_rpm * FIT_SPAN
-            for v in (p.value(name),) if v is not None and v.usable]
-    if len(near) < MIN_FIT_POINTS:
-        return res
-    n = np.array([s for s, _ in near])
+def _with_fit(res: Resonance, speeds_rpm: np.ndarray, phasors: np.ndarray,
+              sigmas: np.ndarray, spans_rpm: np.ndarray | None, unit: str) -> Resonance:
+    """The resonance with its damping from the SDOF fit (:func:`fit_sdof_response`) to the
+    revolutions within :data:`FIT_SPAN` of the peak.
+
+    The half-power damping moves to ``half_power_damping_ratio`` (the cross-check). When
+    the fit fails or puts the mode more than :data:`MAX_FIT_PEAK_GAP` from the peak, the
+    peak is not one mode (``single_mode`` False) and no damping is given; when the fit's
+    95 % interval is wider than :data:`MAX_DAMPING_FACTOR_95` allows, or too few
+    revolutions lie near the peak, the damping is not resolved (None, ``single_mode``
+    None: the data cannot tell)."""
+    n = np.asarray(speeds_rpm, dtype=float)
+    values = np.asarray(phasors, dtype=complex)
+    sig = np.asarray(sigmas, dtype=float)
+    near = ((n >= res.speed_rpm / FIT_SPAN) & (n <= res.speed_rpm * FIT_SPAN)
+            & np.isfinite(values) & np.isfinite(sig) & (sig > 0))
+    unresolved = replace(res, damping_ratio=None, method=SDOF_FIT_METHOD,
+                         half_power_damping_ratio=res.damping_ratio)
+    if int(near.sum()) < MIN_FIT_POINTS:
+        return unresolved
+    n = n[near]
     power = NORMALISING_POWER[UNITS[unit][0]]
     divide = (n / 1000.0) ** power
     # standard convention: the conjugate of the project phasor (phase = lag)
-    z = np.array([v.amplitude * np.exp(-1j * math.radians(v.phase_deg)) for _, v in near])
-    sig = np.array([v.confidence_radius / CIRCLE_95_PER_SIGMA for _, v in near])
-    fit = sdof_fit(n, z / divide, sig / divide, res.speed_rpm, res.damping_ratio or 0.05)
-    if fit is None or abs(fit[0] / res.speed_rpm - 1) > MAX_FIT_PEAK_GAP:
+    z = np.conj(values[near]) / divide
+    fit = fit_sdof_response(n, z, sig[near] / divide, res.speed_rpm,
+                            res.damping_ratio or 0.03,
+                            None if spans_rpm is None else np.asarray(spans_rpm)[near], power)
+    if fit is None or abs(fit.speed_rpm / res.speed_rpm - 1) > MAX_FIT_PEAK_GAP:
         # not one mode: the peak stays (the response is high there), no damping is given
-        return replace(res, damping_ratio=None, lower_rpm=None, upper_rpm=None,
-                       single_mode=False)
-    return replace(res, fit_speed_rpm=fit[0], fit_damping_ratio=fit[1], single_mode=True)
+        return replace(unresolved, single_mode=False)
+    if not fit.damping_resolved:
+        return unresolved
+    return replace(unresolved, damping_ratio=fit.damping_ratio,
+                   damping_ratio_95=fit.damping_ratio_95, fit_speed_rpm=fit.speed_rpm,
+                   fit_damping_ratio=fit.damping_ratio, single_mode=True)
+
+
+def revolution_spans_rpm(speeds_rpm: np.ndarray) -> np.ndarray:
+    """Each revolution's speed change across itself, from its neighbours' mean speeds.
+
+    The speed at a revolution's start is about the mean of its own and the previous
+    revolution's mean speeds, at its end the mean with the next one's: the change is half
+    the central difference, ``(n[i+1] - n[i-1]) / 2`` (one-sided at the ends).
+
+    Parameters
+    ----------
+    speeds_rpm : numpy.ndarray
+        Consecutive revolutions' mean speeds, rpm, oldest first.
+
+    Returns
+    -------
+    numpy.ndarray
+        The absolute speed change across each revolution, rpm (zeros for fewer than two).
+
+    References
+    ----------
+    .. [1] Central differences (:func:`numpy.gradient`); common practice, no source.
+    """
+    n = np.asarray(speeds_rpm, dtype=float)
+    if n.size < 2:
+        return np.zeros(n.size)
+    return np.abs(np.gradient(n))
 
 
 def local_slope(points: Sequence[SweepPoint], pickup: str, speed_rpm: float,
@@ -589,8 +779,14 @@ def _line(x: np.ndarray, y: np.ndarray, w: np.ndarray, slope: float) -> np.ndarr
 
 def analyse_sweep(speeds_rpm: np.ndarray, phasors: Mapping[str, np.ndarray],
                   sigmas: Mapping[str, np.ndarray], unit: str = "V pk",
-                  min_ratio: float = MIN_SWEEP_RATIO) -> Sweep:
+                  min_ratio: float = MIN_SWEEP_RATIO,
+                  spans_rpm: np.ndarray | None = None) -> Sweep:
     """Bin a capture's per-revolution 1x into a sweep and find its resonances per pickup.
+
+    Each resonance is found by the half-power method on the binned points
+    (:func:`half_power_resonances`) and its damping, with a 95 % interval, by the SDOF fit
+    to the revolutions near it (:func:`fit_sdof_response`, method ``"sdof_fit"``), or none
+    ("not resolved") when the fit cannot tell it.
 
     Parameters
     ----------
@@ -604,6 +800,9 @@ def analyse_sweep(speeds_rpm: np.ndarray, phasors: Mapping[str, np.ndarray],
         A key of :data:`trueturn.dsp.units.UNITS`.
     min_ratio : float, default 1.3
         The fastest revolution must be this many times the slowest for a sweep.
+    spans_rpm : numpy.ndarray or None, default None
+        Each revolution's speed change across itself, rpm (:func:`revolution_spans_rpm`
+        for consecutive revolutions); None: each value is a point sample at its speed.
 
     Returns
     -------
@@ -612,8 +811,9 @@ def analyse_sweep(speeds_rpm: np.ndarray, phasors: Mapping[str, np.ndarray],
 
     References
     ----------
-    .. [1] See :func:`bin_revolutions` and :func:`half_power_resonances` (Ewins 2000, Rao);
-       the phase turn through a resonance: Ewins, sec. 2.2 (SDOF phase), from memory.
+    .. [1] See :func:`bin_revolutions`, :func:`half_power_resonances` and
+       :func:`fit_sdof_response` (Ewins 2000, Rao); the phase turn through a resonance:
+       Ewins, sec. 2.2 (SDOF phase), from memory.
     """
     points = bin_revolutions(speeds_rpm, phasors, sigmas, unit)
     speeds = np.asarray(speeds_rpm, dtype=float)
@@ -630,7 +830,8 @@ def analyse_sweep(speeds_rpm: np.ndarray, phasors: Mapping[str, np.ndarray],
             n = np.array([u[0] for u in used])
             peaks = half_power_resonances(n, normalised_response(
                 n, np.array([u[1] for u in used]), unit), name, np.array([u[2] for u in used]))
-            found += [_with_fit(r, points, name, unit) for r in peaks]
+            found += [_with_fit(r, speeds, np.asarray(phasors[name]),
+                                np.asarray(sigmas[name]), spans_rpm, unit) for r in peaks]
     found.sort(key=lambda r: (r.speed_rpm, r.pickup))
     return Sweep(unit, points, tuple(found), low, high, is_sweep)
 

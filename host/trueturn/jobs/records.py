@@ -322,9 +322,10 @@ class SweepPointEntry:
 
 @dataclass
 class ResonanceEntry:
-    """A support resonance found at one pickup (dsp/sweep.py, half-power bandwidth): its
-    speed, damping ratio and half-power band (None when not resolved), the measured points in
-    the band, how far the peak stands above its valleys, and the one-mode curve fit's check."""
+    """A support resonance found at one pickup (dsp/sweep.py): its speed (half-power peak),
+    damping ratio (None when not resolved) by ``method`` with its 95 % interval, the
+    half-power band and the measured points in it, how far the peak stands above its
+    valleys, and the one-mode curve fit's values."""
 
     speed_rpm: float = field(metadata=limits(above=0))
     pickup: str = field(metadata=limits(nonempty=True))
@@ -333,10 +334,14 @@ class ResonanceEntry:
     upper_rpm: float | None = field(default=None, metadata=limits(above=0))
     points_in_band: int = field(default=0, metadata=limits(minimum=0))
     peak_ratio: float = field(default=1.0, metadata=limits(minimum=0))
-    method: Literal["half_power"] = "half_power"
+    method: Literal["half_power", "sdof_fit"] = "half_power"
     fit_speed_rpm: float | None = field(default=None, metadata=limits(above=0))
     fit_damping_ratio: float | None = field(default=None, metadata=limits(above=0))
     single_mode: bool | None = None
+    #: the damping's 95 % interval (method sdof_fit) and the half-power method's own damping
+    damping_ratio_95_low: float | None = field(default=None, metadata=limits(above=0))
+    damping_ratio_95_high: float | None = field(default=None, metadata=limits(above=0))
+    half_power_damping_ratio: float | None = field(default=None, metadata=limits(above=0))
 
 
 @dataclass

@@ -27,7 +27,11 @@ def sweep_entry(outcome: SweepOutcome) -> SweepEntry:
         for v in p.pickups]) for p in sweep.points if p.pickups]
     resonances = [ResonanceEntry(
         r.speed_rpm, r.pickup, r.damping_ratio, r.lower_rpm, r.upper_rpm, r.points_in_band,
-        r.peak_ratio, "half_power", r.fit_speed_rpm, r.fit_damping_ratio, r.single_mode)
+        r.peak_ratio, "sdof_fit" if r.method == "sdof_fit" else "half_power", r.fit_speed_rpm,
+        r.fit_damping_ratio, r.single_mode,
+        None if r.damping_ratio_95 is None else r.damping_ratio_95[0],
+        None if r.damping_ratio_95 is None else r.damping_ratio_95[1],
+        r.half_power_damping_ratio)
         for r in sweep.resonances]
     return SweepEntry(outcome.kind, now_iso(), sweep.unit, sweep.low_rpm, sweep.high_rpm,
                       points, resonances, outcome.balancing_rpm)
@@ -40,6 +44,8 @@ def sweep_of(entry: SweepEntry) -> Sweep:
         for v in p.pickups)) for p in entry.points)
     resonances = tuple(Resonance(
         r.speed_rpm, r.pickup, r.damping_ratio, r.lower_rpm, r.upper_rpm, r.points_in_band,
-        r.peak_ratio, r.method, r.fit_speed_rpm, r.fit_damping_ratio, r.single_mode)
+        r.peak_ratio, r.method, r.fit_speed_rpm, r.fit_damping_ratio, r.single_mode,
+        None if r.damping_ratio_95_low is None or r.damping_ratio_95_high is None
+        else (r.damping_ratio_95_low, r.damping_ratio_95_high), r.half_power_damping_ratio)
         for r in entry.resonances)
     return Sweep(entry.unit, points, resonances, entry.low_rpm, entry.high_rpm, True)

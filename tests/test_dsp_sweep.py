@@ -24,6 +24,7 @@ from trueturn.dsp.sweep import (
     half_power_resonances,
     local_slope,
     normalised_response,
+    revolution_spans_rpm,
 )
 
 
@@ -338,3 +339,67 @@ def test_sdof_fit_models_the_revolution_average() -> None:
     for r in naive.resonances:
         # ignoring the average either misfits (no damping) or reads it clearly too high
         assert r.damping_ratio is None or r.damping_ratio > 1.1 * 0.01
+
+
+def swept_coast(natural_rpm: float, zeta: float, rate_rpm_s: float, noise_of_peak: float,
+                seed: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """A real coast-down through Den Hartog's SDOF (rotating unbalance on a spring-damper):
+    ``x'' + 2 zeta wn x' + wn^2 x = w(t)^2 e^{i theta(t)}`` integrated in time by
+    :func:`scipy.integrate.solve_ivp` (the build-up and lag of a fast sweep included, as
+    F. M. Lewis, Trans. ASME 1932, describes; from memory), speed falling at a constant
+    ``rate_rpm_s`` from 1.4 to 0.7 x natural. Per revolution its mean speed and 1x phasor
+    (project convention: conj of the mean of ``x e^{-i theta}``) with complex normal noise."""
+    from scipy.integrate import solve_ivp
+
+    wn = natural_rpm * math.pi / 30.0
+    rate = rate_rpm_s * math.pi / 30.0
+    w0 = 1.4 * wn
+    stop_s = (w0 - 0.7 * wn) / rate
+
+    def motion(t: float, y: np.ndarray) -> list[float]:
+        w = w0 - rate * t
+        x, v = y[0] + 1j * y[1], y[2] + 1j * y[3]
+        acc = w * w * np.exp(1j * (w0 * t - 0.5 * rate * t * t)) - 2 * zeta * wn * v - wn * wn * x
+        return [v.real, v.imag, acc.real, acc.imag]
+
+    x0 = w0 ** 2 / (wn ** 2 - w0 ** 2 + 2j * zeta * wn * w0)  # steady at the start
+    t = np.arange(0.0, stop_s, 1 / 6000.0)
+    sol = solve_ivp(motion, (0.0, stop_s), [x0.real, x0.imag, -w0 * x0.imag, w0 * x0.real],
+                    t_eval=t, rtol=1e-9, atol=1e-12, max_step=5e-4)
+    x = sol.y[0] + 1j * sol.y[1]
+    theta = w0 * t - 0.5 * rate * t * t
+    turn = np.floor(theta / (2 * math.pi)).astype(int)
+    speeds, phasors = [], []
+    for k in range(int(turn.max())):
+        sel = turn == k
+        speeds.append(60.0 / (t[sel][-1] - t[sel][0] + 1 / 6000.0))
+        phasors.append(np.conj(np.mean(x[sel] * np.exp(-1j * theta[sel]))))
+    a = np.array(phasors)
+    sigma = noise_of_peak * float(np.abs(a).max())
+    rng = np.random.default_rng(seed)
+    a = a + sigma * (rng.normal(size=a.size) + 1j * rng.normal(size=a.size))
+    return np.array(speeds), a, np.full(a.size, sigma)
+
+
+def test_a_fast_coast_down_is_fitted_with_its_build_up_and_lag() -> None:
+    # the grinder's rubber-feet mode at its coast-down rate: 3 % damping at 823 rpm passed at
+    # 284 rpm/s (sweep rate / (zeta wn)^2 about 4.4): the 1x lags, its peak falls about 9 %
+    # below the mode and a steady model reads the damping about 3 times too high. The swept
+    # model (the build-up computed along the revolutions' own speeds) recovers Den Hartog's
+    # zeta within its interval, or says not resolved; it never gives the steady reading.
+    covered = resolved = 0
+    for seed in range(6):
+        speeds, a, sig = swept_coast(823.0, 0.03, 284.0, 0.003, seed)
+        sweep = analyse_sweep(speeds, {"p": a}, {"p": sig}, "um pk-pk",
+                              spans_rpm=revolution_spans_rpm(speeds))
+        assert sweep.resonances
+        for res in sweep.resonances:
+            if res.damping_ratio is None:
+                continue
+            resolved += 1
+            assert res.swept is True
+            assert res.damping_ratio_95 is not None
+            covered += res.damping_ratio_95[0] <= 0.03 <= res.damping_ratio_95[1]
+            assert res.fit_speed_rpm == pytest.approx(823.0, rel=0.02)
+    assert resolved >= 5
+    assert covered >= resolved - 1  # 95 % nominal: at most one miss in six

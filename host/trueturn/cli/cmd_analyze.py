@@ -369,7 +369,8 @@ def format_sweep(result: Analysis) -> list[str]:
                    "damping not resolved (too few revolutions near it, or the fit cannot "
                    "tell it within a factor 1.5)" if r.damping_ratio is None else
                    f"damping {100 * r.damping_ratio:.1f} % (95 %: {100 * low:.1f}-"
-                   f"{100 * high:.1f} %, SDOF fit, natural speed {r.fit_speed_rpm:.0f} rpm)"
+                   f"{100 * high:.1f} %, SDOF fit{' with the sweep build-up' if r.swept else ''}"
+                   f", natural speed {r.fit_speed_rpm:.0f} rpm)"
                    if r.method == "sdof_fit" and r.fit_speed_rpm is not None else
                    f"damping {100 * r.damping_ratio:.1f} % ({r.method})")
         if r.lower_rpm is not None and r.upper_rpm is not None:

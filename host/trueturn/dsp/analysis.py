@@ -207,6 +207,7 @@ class Analysis:
                             else [num(r.damping_ratio_95[0], 4),
                                   num(r.damping_ratio_95[1], 4)],
                             "half_power_damping_ratio": num(r.half_power_damping_ratio, 4),
+                            "swept": r.swept,
                             "half_power_rpm": None if r.lower_rpm is None or r.upper_rpm is None
                             else [num(r.lower_rpm, 1), num(r.upper_rpm, 1)],
                             "points_in_band": r.points_in_band,
@@ -229,6 +230,8 @@ class Analysis:
                                      "terms to the complex 1x (amplitude and phase) of "
                                      "each revolution near the peak, averaged across the "
                                      "revolution's speed change (Ewins sec. 4.3-4.4), "
+                                     "or with the sweep's build-up and lag (swept: true; "
+                                     "Lewis 1932) when that fits better; "
                                      "damping_ratio_95 from the fit's covariance; null "
                                      "when not resolved"},
             "speed_slopes": [{"pickup": k.pickup, "speed_rpm": num(k.speed_rpm, 1),

@@ -55,7 +55,7 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, replace
 
 import numpy as np
-from scipy import stats
+from scipy import signal, stats
 from scipy.optimize import least_squares
 from scipy.signal import find_peaks
 
@@ -175,6 +175,9 @@ class Resonance:
     #: the half-power method's own damping (the cross-check; None: fewer than
     #: :data:`MIN_POINTS_IN_BAND` points in its band, or an edge outside the sweep)
     half_power_damping_ratio: float | None = None
+    #: the fit's model: True the swept response (build-up and lag of a fast sweep,
+    #: :func:`swept_mode_response`), False the steady one; None without a damping
+    swept: bool | None = None
 
 
 @dataclass(frozen=True)
@@ -418,6 +421,19 @@ MAX_DAMPING_FACTOR_95 = 1.5
 REVOLUTION_NODES = 16
 #: the method's name in results and JSON
 SDOF_FIT_METHOD = "sdof_fit"
+#: time steps per revolution when the swept (transient) response is computed
+SWEPT_SAMPLES_PER_REV = 64
+#: the swept model's history starts where the speed came within this factor of the peak
+#: (the build-up before the fitted revolutions; further out the response is steady)
+LEAD_SPAN = 1.3
+#: the fit's natural speed may lie this far from the half-power peak (a fast sweep's peak
+#: lags the mode by several percent)
+FIT_SPEED_RANGE = 1.2
+#: the steady and the swept model are told apart when the misfit of one (over the points'
+#: noise, :attr:`SdofFit.noise_scale`, at least 1) is at least this many times the
+#: other's (our choice; on the simulator's steady coast-downs the swept model misses by
+#: far more, on a real fast sweep the steady one does)
+MODEL_CHOICE_RATIO = 1.5
 
 
 @dataclass(frozen=True)
@@ -428,7 +444,7 @@ class SdofFit:
     (``*_95``, low and high); ``points`` fitted; ``misfit`` the RMS misfit over the largest
     response fitted; ``noise_scale`` the square root of the reduced chi-square (how much
     larger than the points' own noise the misfit is; the intervals are widened by it when
-    above 1).
+    above 1); ``chi2`` and ``dof`` the chi-square and its degrees of freedom.
     """
 
     speed_rpm: float
@@ -438,6 +454,8 @@ class SdofFit:
     points: int
     misfit: float
     noise_scale: float
+    chi2: float = 0.0
+    dof: int = 1
 
     @property
     def damping_resolved(self) -> bool:
@@ -448,16 +466,87 @@ class SdofFit:
                 and high <= MAX_DAMPING_FACTOR_95 * self.damping_ratio)
 
 
+def swept_mode_response(natural_rpm: float, zeta: float, history_rpm: np.ndarray,
+                        power: int = 0, samples_per_rev: int = SWEPT_SAMPLES_PER_REV
+                        ) -> np.ndarray:
+    """One SDOF mode's per-revolution 1x through a sweep, build-up and lag included.
+
+    The modal equation ``x'' + 2 zeta wn x' + wn^2 x = wn^2 (w / wn)^2 e^{i theta(t)}``
+    (a rotating unbalance force on an isotropic support) is driven along the speed history:
+    consecutive revolutions of mean speeds ``history_rpm`` (oldest first, each lasting
+    ``60 / n`` s), the speed linear between the revolutions' middles. It is solved on a
+    uniform time grid by the bilinear transform prewarped at ``wn`` (:func:`scipy.signal.
+    lfilter`), starting from the steady response at the first revolution's speed. Each
+    revolution's 1x is the mean of ``x e^{-i theta}`` (times ``(w / w_i)^(power - 2)``, the
+    reading's own power of speed) over the revolution, divided by ``(w_i / wn)^2``: for a
+    slow sweep it tends to the steady ``nn^2 / (nn^2 - n^2 + 2 i zeta nn n)``.
+
+    Parameters
+    ----------
+    natural_rpm : float
+        The mode's natural speed, rpm.
+    zeta : float
+        Its damping ratio.
+    history_rpm : numpy.ndarray
+        Consecutive revolutions' mean speeds, rpm, oldest first.
+    power : int, default 0
+        The normalisation's power of speed (:data:`NORMALISING_POWER`).
+    samples_per_rev : int, default 64
+        Time steps per (fastest) revolution.
+
+    Returns
+    -------
+    numpy.ndarray
+        Complex, one per revolution of ``history_rpm``.
+
+    References
+    ----------
+    .. [1] F. M. Lewis, "Vibration during acceleration through a critical speed", Trans.
+       ASME 54, 1932 (the lag and lowered peak of a swept resonance; from memory).
+    .. [2] A. V. Oppenheim, R. W. Schafer, *Discrete-Time Signal Processing*, bilinear
+       transformation with frequency prewarping (from memory).
+    """
+    n = np.asarray(history_rpm, dtype=float)
+    w_rev = n * (math.pi / 30.0)
+    durations = 60.0 / n
+    ends = np.cumsum(durations)
+    mids = ends - 0.5 * durations
+    dt = float(durations.min()) / samples_per_rev
+    t = np.arange(0.0, float(ends[-1]), dt)
+    w = np.interp(t, mids, w_rev)
+    theta = np.concatenate([[0.0], np.cumsum(0.5 * (w[1:] + w[:-1]) * dt)])
+    wn = natural_rpm * math.pi / 30.0
+    warped = 2.0 / dt * math.tan(wn * dt / 2.0)  # prewarp: the digital resonance at wn
+    b, a = signal.bilinear([wn * wn], [1.0, 2.0 * zeta * warped, warped * warped], 1.0 / dt)
+    b, a = np.real(b), np.real(a)
+    force = (w / wn) ** 2 * np.exp(1j * theta)
+    # steady state of the transposed direct form before the first sample (input z0^k)
+    z0 = complex(np.exp(1j * w[0] * dt))
+    gain = complex(np.polyval(b[::-1], 1 / z0) / np.polyval(a[::-1], 1 / z0))
+    u1, u2 = force[0] / z0, force[0] / (z0 * z0)
+    s2 = b[2] * u1 - a[2] * gain * u1
+    s1 = b[1] * u1 - a[1] * gain * u1 + b[2] * u2 - a[2] * gain * u2
+    x = signal.lfilter(b, a, force, zi=np.array([s1, s2]))[0]
+    rev = np.minimum(np.searchsorted(ends, t, side="right"), n.size - 1)
+    demod = x * np.exp(-1j * theta) * (w / w_rev[rev]) ** (power - 2)
+    count = np.maximum(np.bincount(rev, minlength=n.size), 1)
+    mean = (np.bincount(rev, demod.real, n.size) + 1j * np.bincount(rev, demod.imag, n.size)) \
+        / count
+    return mean / (w_rev / wn) ** 2
+
+
 def fit_sdof_response(speeds_rpm: np.ndarray, response: np.ndarray, sigmas: np.ndarray,
                       guess_rpm: float, guess_zeta: float = 0.05,
-                      spans_rpm: np.ndarray | None = None, power: int = 0
-                      ) -> SdofFit | None:
+                      spans_rpm: np.ndarray | None = None, power: int = 0,
+                      history_rpm: np.ndarray | None = None,
+                      history_index: np.ndarray | None = None) -> SdofFit | None:
     """Least-squares fit of one SDOF mode with residual terms to a complex response.
 
     Model (receptance of one mode plus the other modes' residual terms, in rpm):
-    ``z(n) = A nn^2 / (nn^2 - n^2 + 2 i zeta nn n) + B + C (nn / n)^2`` with complex ``A``
-    (the mode), ``B`` (stiffness-like residual of the modes above) and ``C`` (mass-like
-    residual of the modes below) [1]_. Amplitude *and* phase are fitted, so a resonance
+    ``z(n) = A nn^2 / (nn^2 - n^2 + 2 i zeta nn n) + B + C (nn / n)^2 + D (n / nn)^2`` with
+    complex ``A`` (the mode), ``B + D (n / nn)^2`` (stiffness-like residual of the modes
+    above, to second order in speed) and ``C`` (mass-like residual of the modes below)
+    [1]_. Amplitude *and* phase are fitted, so a resonance
     passed in a few points is still resolved. For given ``nn`` and ``zeta`` the complex
     constants are linear and solved exactly (variable projection [2]_); ``nn`` and
     ``ln zeta`` by :func:`scipy.optimize.least_squares`, each point weighted by
@@ -494,6 +583,11 @@ def fit_sdof_response(speeds_rpm: np.ndarray, response: np.ndarray, sigmas: np.n
     power : int, default 0
         The normalisation's power of speed (:data:`NORMALISING_POWER`): the reading is
         ``n^power`` times the response, which weighs the mean across a revolution.
+    history_rpm, history_index : numpy.ndarray or None, default None
+        When given, the mode's term is the swept response (build-up and lag,
+        :func:`swept_mode_response`) along ``history_rpm`` (consecutive revolutions, oldest
+        first), the points being its revolutions ``history_index``; the residual terms stay
+        steady.
 
     Returns
     -------
@@ -527,16 +621,20 @@ def fit_sdof_response(speeds_rpm: np.ndarray, response: np.ndarray, sigmas: np.n
     at = np.maximum(at, 1e-3 * n[:, None])
     lift = (at / n[:, None]) ** power * (0.5 * weights[None, :])
     scale = guess_rpm
-    linear = 3  # complex A, B, C
+    linear = 4  # complex A, B, C, D
     dof = 2 * n.size - 2 - 2 * linear
     if dof < 1:
         return None
 
     def design(params: np.ndarray) -> np.ndarray:
         nn, zeta = params[0] * scale, math.exp(params[1])
-        mode = nn * nn / (nn * nn - at * at + 2j * zeta * nn * at)
-        return np.stack([np.sum(lift * mode, axis=1), np.sum(lift, axis=1).astype(complex),
-                         np.sum(lift * (nn / at) ** 2, axis=1).astype(complex)], axis=1)
+        if history_rpm is None or history_index is None:
+            mode = np.sum(lift * (nn * nn / (nn * nn - at * at + 2j * zeta * nn * at)), axis=1)
+        else:
+            mode = swept_mode_response(nn, zeta, history_rpm, power)[history_index]
+        return np.stack([mode, np.sum(lift, axis=1).astype(complex),
+                         np.sum(lift * (nn / at) ** 2, axis=1).astype(complex),
+                         np.sum(lift * (at / nn) ** 2, axis=1).astype(complex)], axis=1)
 
     def misfit(params: np.ndarray) -> np.ndarray:
         m = design(params) * w[:, None]
@@ -548,8 +646,9 @@ def fit_sdof_response(speeds_rpm: np.ndarray, response: np.ndarray, sigmas: np.n
     start = np.array([1.0, min(max(math.log(max(guess_zeta, 1e-6)), low_zeta + 0.5),
                                high_zeta - 0.5)])
     try:
-        fit = least_squares(misfit, start, bounds=([1 / FIT_SPAN, low_zeta],
-                                                   [FIT_SPAN, high_zeta]), x_scale=[0.01, 0.3])
+        fit = least_squares(misfit, start, bounds=([1 / FIT_SPEED_RANGE, low_zeta],
+                                                   [FIT_SPEED_RANGE, high_zeta]),
+                            x_scale=[0.01, 0.3])
     except (ValueError, np.linalg.LinAlgError):
         return None
     if not fit.success:
@@ -575,7 +674,8 @@ def fit_sdof_response(speeds_rpm: np.ndarray, response: np.ndarray, sigmas: np.n
     zeta_factor = math.exp(t95 * math.sqrt(float(cov[1, 1])))
     return SdofFit(nn, zeta, (nn - nn_half, nn + nn_half), (zeta / zeta_factor,
                                                             zeta * zeta_factor),
-                   int(n.size), rms / float(np.abs(z).max()), math.sqrt(chi2))
+                   int(n.size), rms / float(np.abs(z).max()), math.sqrt(chi2),
+                   float(2.0 * fit.cost), dof)
 
 
 def sdof_fit(speeds_rpm: np.ndarray, response: np.ndarray, sigmas: np.ndarray,
@@ -638,37 +738,71 @@ def _with_fit(res: Resonance, speeds_rpm: np.ndarray, phasors: np.ndarray,
     """The resonance with its damping from the SDOF fit (:func:`fit_sdof_response`) to the
     revolutions within :data:`FIT_SPAN` of the peak.
 
+    With revolutions (``spans_rpm`` given) passed in one stretch of time, two models are
+    fitted: the steady response (each revolution's mean across its speed change) and the
+    swept one (:func:`swept_mode_response`: the build-up and lag of a fast sweep, fitted
+    from :data:`LEAD_SPAN` before the peak). The one with the smaller misfit over the noise
+    is taken; when the other's is less than :data:`MODEL_CHOICE_RATIO` times larger (the
+    data cannot tell them apart) and their damping intervals do not overlap, the damping
+    is not resolved.
+
     The half-power damping moves to ``half_power_damping_ratio`` (the cross-check). When
-    the fit fails or puts the mode more than :data:`MAX_FIT_PEAK_GAP` from the peak, the
-    peak is not one mode (``single_mode`` False) and no damping is given; when the fit's
-    95 % interval is wider than :data:`MAX_DAMPING_FACTOR_95` allows, or too few
-    revolutions lie near the peak, the damping is not resolved (None, ``single_mode``
-    None: the data cannot tell)."""
-    n = np.asarray(speeds_rpm, dtype=float)
+    no model fits, or the steady one puts the mode more than :data:`MAX_FIT_PEAK_GAP` from
+    the peak (a swept peak lies after the mode, in the sweep's direction), the peak is not
+    one mode (``single_mode`` False) and no damping is given; when the fit's 95 % interval
+    is wider than :data:`MAX_DAMPING_FACTOR_95` allows, or too few revolutions lie near the
+    peak, the damping is not resolved (None, ``single_mode`` None: the data cannot tell)."""
+    n_all = np.asarray(speeds_rpm, dtype=float)
     values = np.asarray(phasors, dtype=complex)
     sig = np.asarray(sigmas, dtype=float)
-    near = ((n >= res.speed_rpm / FIT_SPAN) & (n <= res.speed_rpm * FIT_SPAN)
-            & np.isfinite(values) & np.isfinite(sig) & (sig > 0))
+    good = np.isfinite(values) & np.isfinite(sig) & (sig > 0)
+    near = (n_all >= res.speed_rpm / FIT_SPAN) & (n_all <= res.speed_rpm * FIT_SPAN) & good
     unresolved = replace(res, damping_ratio=None, method=SDOF_FIT_METHOD,
                          half_power_damping_ratio=res.damping_ratio)
     if int(near.sum()) < MIN_FIT_POINTS:
         return unresolved
-    n = n[near]
     power = NORMALISING_POWER[UNITS[unit][0]]
-    divide = (n / 1000.0) ** power
-    # standard convention: the conjugate of the project phasor (phase = lag)
-    z = np.conj(values[near]) / divide
-    fit = fit_sdof_response(n, z, sig[near] / divide, res.speed_rpm,
-                            res.damping_ratio or 0.03,
-                            None if spans_rpm is None else np.asarray(spans_rpm)[near], power)
-    if fit is None or abs(fit.speed_rpm / res.speed_rpm - 1) > MAX_FIT_PEAK_GAP:
+    guess = res.damping_ratio or 0.03
+
+    def fit_on(index: np.ndarray, swept: bool) -> SdofFit | None:
+        n = n_all[index]
+        divide = (n / 1000.0) ** power
+        # standard convention: the conjugate of the project phasor (phase = lag)
+        z = np.conj(values[index]) / divide
+        spans = None if spans_rpm is None else np.asarray(spans_rpm, dtype=float)[index]
+        return fit_sdof_response(n, z, sig[index] / divide, res.speed_rpm, guess, spans, power,
+                                 n if swept else None, np.arange(n.size) if swept else None)
+
+    index = np.flatnonzero(near)
+    steady = fit_on(index, False)
+    if steady is not None and abs(steady.speed_rpm / res.speed_rpm - 1) > MAX_FIT_PEAK_GAP:
+        steady = None
+    swept = None
+    if spans_rpm is not None and np.all(np.diff(index) == 1):
+        # one stretch of time: the swept model takes the revolutions from where the speed
+        # came within LEAD_SPAN (a swept peak lags the mode in the sweep's direction)
+        first = int(index[0])
+        while (first > 0 and good[first - 1]
+               and res.speed_rpm / LEAD_SPAN <= n_all[first - 1] <= res.speed_rpm * LEAD_SPAN):
+            first -= 1
+        swept = fit_on(np.arange(first, int(index[-1]) + 1), True)
+    fits = [f for f in (steady, swept) if f is not None]
+    if not fits:
         # not one mode: the peak stays (the response is high there), no damping is given
         return replace(unresolved, single_mode=False)
+    fit = min(fits, key=lambda f: f.noise_scale)
+    if len(fits) == 2:
+        other = max(fits, key=lambda f: f.noise_scale)
+        apart = (other.damping_ratio_95[1] < fit.damping_ratio_95[0]
+                 or fit.damping_ratio_95[1] < other.damping_ratio_95[0])
+        if other.noise_scale < MODEL_CHOICE_RATIO * max(fit.noise_scale, 1.0) and apart:
+            return unresolved  # steady or swept: the data cannot tell, and it matters
     if not fit.damping_resolved:
         return unresolved
     return replace(unresolved, damping_ratio=fit.damping_ratio,
                    damping_ratio_95=fit.damping_ratio_95, fit_speed_rpm=fit.speed_rpm,
-                   fit_damping_ratio=fit.damping_ratio, single_mode=True)
+                   fit_damping_ratio=fit.damping_ratio, single_mode=True,
+                   swept=fit is swept)
 
 
 def revolution_spans_rpm(speeds_rpm: np.ndarray) -> np.ndarray:

@@ -342,6 +342,8 @@ class ResonanceEntry:
     damping_ratio_95_low: float | None = field(default=None, metadata=limits(above=0))
     damping_ratio_95_high: float | None = field(default=None, metadata=limits(above=0))
     half_power_damping_ratio: float | None = field(default=None, metadata=limits(above=0))
+    #: the fit's model: True the swept response (build-up and lag), False the steady one
+    swept: bool | None = None
 
 
 @dataclass

@@ -31,7 +31,7 @@ def sweep_entry(outcome: SweepOutcome) -> SweepEntry:
         r.fit_damping_ratio, r.single_mode,
         None if r.damping_ratio_95 is None else r.damping_ratio_95[0],
         None if r.damping_ratio_95 is None else r.damping_ratio_95[1],
-        r.half_power_damping_ratio)
+        r.half_power_damping_ratio, r.swept)
         for r in sweep.resonances]
     return SweepEntry(outcome.kind, now_iso(), sweep.unit, sweep.low_rpm, sweep.high_rpm,
                       points, resonances, outcome.balancing_rpm)
@@ -46,6 +46,7 @@ def sweep_of(entry: SweepEntry) -> Sweep:
         r.speed_rpm, r.pickup, r.damping_ratio, r.lower_rpm, r.upper_rpm, r.points_in_band,
         r.peak_ratio, r.method, r.fit_speed_rpm, r.fit_damping_ratio, r.single_mode,
         None if r.damping_ratio_95_low is None or r.damping_ratio_95_high is None
-        else (r.damping_ratio_95_low, r.damping_ratio_95_high), r.half_power_damping_ratio)
+        else (r.damping_ratio_95_low, r.damping_ratio_95_high), r.half_power_damping_ratio,
+        r.swept)
         for r in entry.resonances)
     return Sweep(entry.unit, points, resonances, entry.low_rpm, entry.high_rpm, True)

@@ -78,11 +78,14 @@ def test_grinder_coastdown_finds_the_rubber_feet_resonance(grinder_coast: dict) 
     assert {r["pickup"] for r in at_first} == {"left-bearing", "right-bearing"}
     zeta = modal_damping("bench-grinder", first)
     for r in at_first:
-        # the coast-down passes the half-power band in 3 points: the damping is coarse
-        assert r["damping_ratio"] == pytest.approx(zeta, rel=0.5)
-        # the SDOF curve fit uses the phase too: close to the model's mode
+        # the coast-down passes the half-power band in 3 points: the half-power damping is
+        # coarse (the cross-check); the SDOF fit uses every revolution, amplitude and phase
+        assert r["half_power_damping_ratio"] == pytest.approx(zeta, rel=0.5)
+        assert r["method"] == "sdof_fit"
         assert r["sdof_fit"]["speed_rpm"] == pytest.approx(first, rel=0.01)
-        assert r["sdof_fit"]["damping_ratio"] == pytest.approx(zeta, rel=0.15)
+        assert r["damping_ratio"] == r["sdof_fit"]["damping_ratio"]
+        low, high = r["damping_ratio_95"]
+        assert low <= zeta <= high  # within its own 95 % interval
     # every resonance reported lies near one of the model's critical speeds
     model = json.loads(out)["resonances_rpm"]
     for r in data["resonances"]:
@@ -214,3 +217,33 @@ def test_record_until_stop_ends_a_coastdown_at_standstill(tmp_path: Path) -> Non
                                  "--seconds", "2", "--until-stop", "-o", str(tmp_path / "s.cap"),
                                  "--quiet", "--json"])
     assert code == 0 and not json.loads(stdout)["stopped_at_standstill"]
+
+
+def test_grinder_coastdowns_resolve_the_damping_within_its_interval(tmp_path: Path) -> None:
+    # five seeds of the grinder's coast-down: the rubber-feet mode's damping is resolved at
+    # both pickups in most (the half-power band holds only 2-3 points), and its 95 %
+    # interval holds the model's modal damping (coverage: 95 % nominal, at most one miss)
+    sc = load_scenario("bench-grinder")
+    first = sc.rotor.critical_speeds_rpm()[0]
+    zeta = modal_damping("bench-grinder", first)
+    found = resolved = covered = 0
+    for seed in range(1, 6):
+        out = tmp_path / f"cd{seed}.cap"
+        code, _, err = run_cli(["record", "--port", f"sim://bench-grinder?realtime=0&seed={seed}"
+                                "&run=coastdown", "--seconds",
+                                f"{run_times(sc, 'coastdown')['record_s']:g}", "-o", str(out),
+                                "--quiet"])
+        assert code == 0, err
+        for r in _analyze(out)["resonances"]:
+            if abs(r["speed_rpm"] / first - 1) > 0.05:
+                continue
+            found += 1
+            if r["damping_ratio"] is None:
+                assert r["damping_ratio_95"] is None
+                continue
+            resolved += 1
+            low, high = r["damping_ratio_95"]
+            covered += low <= zeta <= high
+    assert found == 10  # both pickups, every seed
+    assert resolved >= 8
+    assert covered >= resolved - 1

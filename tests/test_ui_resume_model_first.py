@@ -400,3 +400,103 @@ def test_a_refuted_model_resumes_with_the_trials_it_fell_back_to(tmp_path: Path,
         assert a[1] == pytest.approx(b[1], rel=1e-9)
     assert proc.verdict.passed
     rig.assert_cut(before)
+
+
+# ---- the report (issue #20 item 4): what the model said, and how the check run refined it --
+
+
+def posterior(prior_h: np.ndarray, prior_cov: np.ndarray,
+              runs: list[tuple[np.ndarray, complex, float]]) -> np.ndarray:
+    """Independent: the Gaussian posterior mean of ``[b, h]`` (flat prior on the as-found
+    1x ``b``, ``N(prior_h, prior_cov)`` on the coefficients) from readings
+    ``y = phi^T [b, h] + e``, ``e`` circular with per-part sigma ``s``: information
+    ``P0^-1 + sum conj(phi) phi^T / s^2`` (Ljung 1999, §11.2; from memory)."""
+    n = 1 + len(prior_h)
+    info = np.zeros((n, n), dtype=complex)
+    moment = np.zeros(n, dtype=complex)
+    info[1:, 1:] = np.linalg.inv(prior_cov)
+    moment[1:] = info[1:, 1:] @ prior_h
+    for phi, y, s in runs:
+        info += np.outer(phi.conj(), phi) / s**2
+        moment += phi.conj() * y / s**2
+    return np.linalg.solve(info, moment)
+
+
+def finished_model_job(tmp_path: Path, angles: bool = True) -> JobKeeper:
+    rig = Rig("bench-grinder", Mode.MODEL_FIRST)
+    if not angles:
+        without_pickup_angles(rig)
+    keeper = keep_job(rig, tmp_path)
+    rig.hands_on()
+    rig.run()
+    rig.proc.sweep_analysed(coast_down_resonances(rig))
+    rig.complete()
+    keeper.finish(rig.proc)
+    return keeper
+
+
+def test_the_report_says_what_the_model_said_and_how_the_check_run_refined_it(
+        tmp_path: Path) -> None:
+    import xml.etree.ElementTree as ET
+
+    from trueturn.jobs.report import html_report, markdown_report, model_lines, model_rows
+
+    keeper = finished_model_job(tmp_path)
+    job = read_document(keeper.path, "job")  # type: ignore[arg-type]
+    model = job.model
+    assert model is not None and model.trusted and model.refined
+    first = model.refined[0]
+    # the refined coefficients kept are the posterior of the kept prior and the two runs,
+    # computed here independently (to 1e-6 of the coefficient)
+    sensors = [p.name for p in job.machine.pickups]
+    prior = {(c.sensor, c.plane): phasor(c.amp, c.phase_deg) for c in model.predicted}
+    covs = {c.sensor: np.array(c.real) + 1j * np.array(c.imag) for c in model.covariance}
+    kept = {(c.sensor, c.plane): phasor(c.amp, c.phase_deg) for c in first.coefficients}
+    u = np.zeros(len(model.planes), dtype=complex)
+    for ch in job.runs[1].changes:  # the correction placed before the check run
+        if ch.action == "attach":
+            u[model.planes.index(ch.plane)] += phasor(ch.mass_g, ch.angle_deg)
+    for s in sensors:
+        runs = []
+        for k, phi in ((0, np.array([1.0, 0.0, 0.0], dtype=complex)),
+                       (1, np.concatenate([[1.0 + 0j], u]))):
+            r = job.runs[k].reading(s)
+            y = phasor(r.amplitude, r.phase_deg)
+            runs.append((phi, y, max(r.confidence_radius / CIRCLE95,
+                                     READING_REL_FLOOR * abs(y))))
+        theta = posterior(np.array([prior[s, p] for p in model.planes]), covs[s], runs)
+        for j, p in enumerate(model.planes):
+            assert abs(kept[s, p] - theta[1 + j]) <= 1e-6 * abs(theta[1 + j])
+    # the check run added information: the correction's 95 % spread narrowed
+    assert all(a < b for a, b in zip(first.mass_95_g, model.mass_95_g, strict=True))
+    lines = model_lines(job)
+    mass = job.machine.units.choice().mass_words
+    assert f"left-wheel \u00b1 {mass(model.mass_95_g[0])}" in lines[0]
+    assert f"{100 * model.residual_fraction_95:.0f} % of the as-found 1x" in lines[0]
+    assert lines[1].startswith("Run 2 (the check run") and "runs 1, 2" in lines[1]
+    moved = max(abs(kept[k] - prior[k]) / abs(prior[k]) for k in prior)
+    assert f"moved by up to {100 * moved:.0f} %" in lines[1]
+    assert len(model_rows(job)) == len(sensors) * len(model.planes)
+    html = html_report(job)
+    ET.fromstring(html.split("\n", 1)[1])  # well-formed (polyglot XHTML)
+    assert 'id="model"' in html and "Predicted (95 %)" in html
+    assert "## Model first" in markdown_report(job)
+
+
+def test_the_report_words_each_reason_the_model_was_not_trusted(tmp_path: Path) -> None:
+    from trueturn.balance.model_first import DISTRUST_WORDS, Distrust
+    from trueturn.jobs.records import ModelEntry
+    from trueturn.jobs.report import html_report, model_lines
+
+    keeper = finished_model_job(tmp_path, angles=False)
+    job = read_document(keeper.path, "job")  # type: ignore[arg-type]
+    (line,) = model_lines(job)
+    assert DISTRUST_WORDS["no-pickup-angle"] in line and "trial run per plane" in line
+    for code in Distrust:  # every reason has words for a person, none shows as a code
+        job.model = ModelEntry(1, "2026-01-01T00:00:00Z", False, [code])
+        (line,) = model_lines(job)
+        assert DISTRUST_WORDS[code.value] in line and code.value not in line.split("(")[0]
+    job.model = None  # a job written before jobs kept their model
+    assert "not kept in this job" in html_report(job)
+    job.method = "two-plane"
+    assert model_lines(job) == []

@@ -240,11 +240,15 @@ class ModelCovarianceEntry:
 @dataclass
 class ModelRefinementEntry:
     """The model's coefficients after run ``after_run`` refined them (recursive least
-    squares over the runs ``runs``, the job's run numbers, the as-found run first)."""
+    squares over the runs ``runs``, the job's run numbers, the as-found run first), and the
+    95 % +/- of the whole correction they give per plane (mass, angle; the planes of
+    :attr:`ModelEntry.planes`), to set beside the first correction's."""
 
     after_run: int = field(metadata=limits(minimum=1))
     runs: list[int] = field(metadata=limits(nonempty=True))
     coefficients: list[ModelCoefficientEntry] = field(metadata=limits(nonempty=True))
+    mass_95_g: list[float] = field(default_factory=list)
+    angle_95_deg: list[float] = field(default_factory=list)
 
 
 @dataclass

@@ -27,8 +27,9 @@ import re
 from collections.abc import Iterable, Sequence
 from datetime import datetime, timezone
 
-from trueturn.angles import Rotation, screen_xy, wrap_deg
+from trueturn.angles import Rotation, phasor, screen_xy, wrap_deg
 from trueturn.balance.iso21940 import permissible_eccentricity_um, permissible_unbalance_gmm
+from trueturn.balance.model_first import DISTRUST_WORDS
 from trueturn.constants import UM_PER_MIL
 from trueturn.dsp.coast import sweep_findings
 from trueturn.dsp.findings import Code, describe
@@ -42,7 +43,14 @@ from trueturn.jobs.profiles import (
     format_length,
     format_mass,
 )
-from trueturn.jobs.records import EvidenceEntry, JobRecord, MassChange, RunEntry, UnbalanceEntry
+from trueturn.jobs.records import (
+    EvidenceEntry,
+    JobRecord,
+    MassChange,
+    ModelCoefficientEntry,
+    RunEntry,
+    UnbalanceEntry,
+)
 from trueturn.jobs.sweep_plot import sweep_svg
 from trueturn.jobs.sweeps import sweep_of
 from trueturn.model import Reading
@@ -956,6 +964,129 @@ def sweep_section(job: JobRecord) -> list[str]:
     return parts
 
 
+# ---- model first (issue #20 item 4): what the model said and how the runs refined it --------
+MODEL_HEADER = ["Pickup", "Plane", "Predicted (95 %)", "Refined (95 %)", "Moved"]
+
+
+def _coefficient_text(c: ModelCoefficientEntry, job: JobRecord, unit: str) -> str:
+    """``0.31 mm/s rms per g at 88.5° ± 24 %``: a model coefficient in the profile's units."""
+    units = job.machine.units
+    per = G_PER_OZ if units.mass == "oz" else 1.0  # per oz = per g x g per oz
+    amp, shown = convert_vibration(c.amp * per, unit, units.vibration, units.length)
+    spread = ("" if c.spread_rel_95 is None
+              else f" \u00b1 {100 * c.spread_rel_95:.0f} %")
+    return f"{amp:.3g} {shown} per {units.mass} at {phase_text(c.phase_deg)}{spread}"
+
+
+def _moved(before: ModelCoefficientEntry, after: ModelCoefficientEntry) -> tuple[float, float]:
+    """How far a refined coefficient lies from the predicted one: the share of the
+    prediction's amplitude (the vector difference) and the angle turned, degrees."""
+    h0 = phasor(before.amp, before.phase_deg)
+    h1 = phasor(after.amp, after.phase_deg)
+    share = abs(h1 - h0) / before.amp if before.amp > 0 else math.inf
+    return share, abs((after.phase_deg - before.phase_deg + 180.0) % 360.0 - 180.0)
+
+
+def model_lines(job: JobRecord) -> list[str]:
+    """What the model of the rotor said (model-first, issue #20 item 4), in a few sentences:
+    trusted with its first correction's 95 % +/- and the 1x it was predicted to leave, or
+    the reasons it was not trusted; whether a run refuted it; how much the first check run
+    refined its coefficients. Empty for a job of another method."""
+    if job.method != "model-first":
+        return []
+    model = job.model
+    if model is None:
+        return ["Model first: the model's answer is not kept in this job (written before jobs "
+                "kept it, or closed before the as-found run's coast-down was analysed)."]
+    if not model.trusted:
+        why = "; ".join(DISTRUST_WORDS.get(d.value, d.value) for d in model.distrust)
+        return [f"Model first: the model was not trusted ({why or 'no reason given'}), so a "
+                "trial run per plane was measured instead; the as-found run was kept."]
+    mass = job.machine.units.choice().mass_words
+    spread = "; ".join(f"{plane} \u00b1 {mass(m)}, \u00b1 {a:.0f}\u00b0"
+                       for plane, m, a in zip(model.planes, model.mass_95_g,
+                                              model.angle_95_deg, strict=False))
+    lines = ["Model first: the first correction came from influence coefficients predicted "
+             "by a rigid rotor on flexible supports (the machine profile and the as-found "
+             "coast-down), with no trial run"
+             + (f"; its 95 % spread: {spread}" if spread else "")
+             + (f"; predicted to leave at most {100 * model.residual_fraction_95:.0f} % of "
+                "the as-found 1x in 95 % of the model's draws"
+                if model.residual_fraction_95 is not None else "") + "."]
+    if model.refuted_by_run is not None:
+        lines.append(f"Run {model.refuted_by_run} refuted the model: the 1x at "
+                     f"{model.refuted_at or 'a pickup'} fell far outside its prediction, so "
+                     "its masses came off and a trial run per plane followed.")
+    if model.refined:
+        first = model.refined[0]
+        table = {(c.sensor, c.plane): c for c in model.predicted}
+        moved = [_moved(table[c.sensor, c.plane], c) for c in first.coefficients
+                 if (c.sensor, c.plane) in table]
+        now = "; ".join(f"{plane} \u00b1 {mass(m)}, \u00b1 {a:.0f}\u00b0"
+                        for plane, m, a in zip(model.planes, first.mass_95_g,
+                                               first.angle_95_deg, strict=False))
+        narrowed = (f"; the whole correction (what is on plus any trim) is now known to "
+                    f"{now} (95 %)" if now and spread else "")
+        lines.append(
+            f"Run {first.after_run} (the check run after the correction, which served as the "
+            f"trial) refined the coefficients by recursive least squares over runs "
+            f"{', '.join(str(r) for r in first.runs)}: they moved by up to "
+            f"{100 * max(m for m, _ in moved):.0f} % and {max(a for _, a in moved):.0f}\u00b0 "
+            f"from the prediction{narrowed}." if moved else
+            f"Run {first.after_run} refined the coefficients.")
+    elif model.refuted_by_run is None:
+        lines.append("No check run has refined the model yet.")
+    return lines
+
+
+def model_rows(job: JobRecord) -> list[list[str]]:
+    """Each predicted coefficient beside itself as the first check run refined it (the job's
+    reading unit converted to the profile's, per the profile's mass unit)."""
+    model = job.model
+    if job.method != "model-first" or model is None or not model.trusted:
+        return []
+    unit = job.runs[model.after_run - 1].readings[0].unit if job.runs else ""
+    refined = ({(c.sensor, c.plane): c for c in model.refined[0].coefficients}
+               if model.refined else {})
+    rows = []
+    for c in model.predicted:
+        later = refined.get((c.sensor, c.plane))
+        if later is None:
+            rows.append([c.sensor, c.plane, _coefficient_text(c, job, unit), "-", "-"])
+            continue
+        share, turned = _moved(c, later)
+        rows.append([c.sensor, c.plane, _coefficient_text(c, job, unit),
+                     _coefficient_text(later, job, unit),
+                     f"{100 * share:.0f} %, {turned:.0f}\u00b0"])
+    return rows
+
+
+def model_section(job: JobRecord) -> list[str]:
+    """The model's part of the HTML report (model-first jobs only): its answer in words and
+    its coefficients before and after the first check run."""
+    lines = model_lines(job)
+    if not lines:
+        return []
+    parts = ['<h2 id="model">Model first</h2>',
+             *[f'<p class="note">{_e(line)}</p>' for line in lines]]
+    rows = model_rows(job)
+    if rows:
+        parts.append(_html_table(MODEL_HEADER, rows, "model"))
+    return parts
+
+
+def model_markdown(job: JobRecord) -> list[str]:
+    """The model's part of the Markdown report (model-first jobs only)."""
+    lines = model_lines(job)
+    if not lines:
+        return []
+    out = ["## Model first", "", *[f"{_md_text(line)}\n" for line in lines]]
+    rows = model_rows(job)
+    if rows:
+        out += [_md_table(MODEL_HEADER, rows), ""]
+    return out
+
+
 def signoff_rows(job: JobRecord) -> list[str]:
     """The lines left blank for a person to fill in by hand on the printed report."""
     return ["Machine serial number", "Balanced by (name)", "Signature", "Date"]
@@ -1025,6 +1156,7 @@ def html_report(job: JobRecord, generated: str = "") -> str:
     parts += ['<h2>Runs</h2>', _html_table(header, rows, "runs")]
     parts += ['<div class="figures">', *figures, '</div>']
     parts += sweep_section(job)
+    parts += model_section(job)
     rows = correction_rows(job)
     parts.append('<h2>Corrections and parts</h2>')
     if rows:
@@ -1120,6 +1252,7 @@ def markdown_report(job: JobRecord, generated: str = "") -> str:
                 "trade (common practice, no source).", ""]
     header, rows = run_rows(job)
     out += ["## Runs", "", _md_table(header, rows), ""]
+    out += model_markdown(job)
     out += ["## Corrections and parts", ""]
     rows = correction_rows(job)
     if rows:

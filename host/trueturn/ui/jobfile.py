@@ -21,6 +21,7 @@ from trueturn.balance.model_first import (
     Distrust,
     PredictedInfluence,
     circle95_radius,
+    correction_spread,
 )
 from trueturn.dsp.coast import SweepOutcome
 from trueturn.dsp.findings import Finding
@@ -326,8 +327,12 @@ class JobKeeper:
         covariance = estimate.covariance[:, 1:, 1:]
         entries = coefficient_entries(estimate.sensors, job.model.planes, estimate.matrix,
                                       np.real(np.diagonal(covariance, axis1=1, axis2=2)))
-        refined = rec.ModelRefinementEntry(job.next_run_index, list(proc.run_numbers),
-                                           entries)
+        _, mass95, angle95 = correction_spread(estimate)
+        bounded = bool(np.all(np.isfinite(mass95)))  # else: not bounded, nothing kept
+        refined = rec.ModelRefinementEntry(
+            job.next_run_index, list(proc.run_numbers), entries,
+            [float(m) for m in mass95] if bounded else [],
+            [float(a) for a in angle95] if bounded else [])
         job.model = replace(job.model, refined=[*job.model.refined, refined])
 
     def stop(self, proc: Procedure) -> Path | None:

@@ -5,10 +5,20 @@ Each rotor: 1-20 kg, bearings 150-500 mm apart, correction planes inside them, r
 1000-3600 rpm, a mild amplitude nonlinearity, and an as-found unbalance of 3-12 times the
 G 6.3 share per plane. Mountings alternate: stiff (both rigid-body modes 1.6-4x above the
 running speed) and soft (rubber feet: the lowest mode at 0.25-0.6x the running speed).
-Every run is taken at a speed that wanders +/-0.5 % from the set speed. Realistic errors:
-readings with 1 % of the 1x plus a 0.003 m/s^2 floor (complex Gaussian), every mass placed
-within 2 % of its mass and 2 degrees (1 sigma). Not yet: captures through the DSP (the
-readings are synthetic; see issue #20 item 5).
+Every run is taken at a speed that wanders +/-0.5 % from the set speed.
+
+Readings come out of the DSP (issue #20 item 5): each run's capture is synthesized as the
+bytes a board would send (dsp.synthetic) and analysed by dsp.analyze_capture, as the app's
+meter analyses a live stream (30 revolutions, when the app keeps a run; 60 when not
+settled by then). In each capture: the rotor
+model's 1x at the run's speed on both pickups (0.3 V/g on a 1.65 V zero, 10-bit ADC on
+5 V, as every packaged scenario's pickups), the speed drifting +/-0.1 % across it, a 2x,
+mains hum at the line frequency and twice it, and broadband noise - their levels drawn per
+rotor within the packaged scenarios' ranges (``CAPTURE_RANGES``). Each reading's amplitude,
+phase and 95 % circle are the DSP's; each run carries the speed the DSP measured, and the
+classic procedures' input carries each pickup's local response slope from the as-found
+coast-down (``speed_slopes``; the rotor model's slope with a sweep's error). Every mass
+placed within 2 % of its mass and 2 degrees (1 sigma).
 
 Procedures measured:
 
@@ -28,13 +38,16 @@ Procedures measured:
   residual's 95 % upper bound within the share of every plane.
 
 Figures: runs to reach G 6.3 (median and 95th percentile), 1x reduction after the first
-computed correction, one-run trims with saved coefficients, and how often a rotor said to
-be within G 6.3 was not.
+computed correction, one-run trims with saved coefficients, how often a rotor said to be
+within G 6.3 was not, and how often the true 1x lay inside the reading's 95 % circle.
 """
 
 from __future__ import annotations
 
+import math
 import sys
+from collections.abc import Sequence
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
@@ -61,20 +74,238 @@ from trueturn.balance.model_first import (  # noqa: E402
 )
 from trueturn.balance.sanity import NoInformationError  # noqa: E402
 from trueturn.balance.trial_mass import size_trial_mass, suggest_trial  # noqa: E402
+from trueturn.constants import STANDARD_GRAVITY_M_S2  # noqa: E402
+from trueturn.dsp import analyze_capture  # noqa: E402
+from trueturn.dsp.averaging import SteadinessLimits  # noqa: E402
+from trueturn.dsp.findings import Code  # noqa: E402
+from trueturn.dsp.sweep import MAX_SLOPE_SE, SLOPE_WINDOW_FRACTION  # noqa: E402
+from trueturn.dsp.synthetic import (  # noqa: E402
+    OrderComponent,
+    SyntheticRun,
+    ToneComponent,
+    synthesize,
+)
+from trueturn.dsp.units import PickupProfile  # noqa: E402
+from trueturn.errors import UserError  # noqa: E402
 from trueturn.procedure.engine import TRIAL_REDO_MARGIN  # noqa: E402
+from trueturn.procedure.guide import DEFAULT_PHASE_LIMIT_DEG, SMALL_VECTOR_FRACTION  # noqa: E402
 from trueturn.sim import CorrectionPlane, Mass, PickupMount, RigidRotor, Support  # noqa: E402
+from trueturn.sim.scenario import ADC_COUNTS_PER_REFERENCE, ADC_REFERENCE_V  # noqa: E402
 
 ROTORS = 200
 ROTORS_MODEL = 100
 MAX_RUNS = 10
 GRADE = 6.3
 AS_FOUND_LOW, AS_FOUND_HIGH = 3.0, 12.0   # as-found unbalance per plane, in G 6.3 shares
-REL_NOISE, FLOOR_M_S2 = 0.01, 0.003
-CIRCLE95 = float(np.sqrt(-2.0 * np.log(0.05)))
 MASS_ERR, ANGLE_ERR_DEG = 0.02, 2.0
 TRIAL_MARGIN = 2.0
 SPEED_WANDER = 0.005                      # +/-0.5 % between runs
 SWEEP_SPEED_ERR, SWEEP_DAMPING_ERR = 0.02, 0.2
+
+# -- the captures: what a board would send for each run, analysed by the DSP --------------
+# every packaged scenario's pickups (sim/scenarios/*.yaml): 0.3 V/g on a 1.65 V zero, an
+# analog MEMS accelerometer of the +/-3 g class on 3.3 V
+SENSITIVITY_V_PER_G, ZERO_G_V = 0.3, 1.65
+# Some random rotors shake far harder than a +/-3 g pickup can follow (the as-found 1x
+# reaches tens of g on soft mountings near a mode); the person fits a less sensitive pickup
+# of the same kind: analog MEMS pickups also come in about +/-16 g (0.06 V/g) and +/-200 g
+# (0.0065 V/g) classes at 3.3 V (typical datasheet sensitivities, from memory)
+LOUDER_PICKUPS_V_PER_G = (0.06, 0.0065)
+# ...the most sensitive whose swing holds this many times the as-found 1x (room for trials)
+PICKUP_HEADROOM = 2.0
+RATE_HZ = 4000                 # the board's default: 2 channels at 4000 Hz each (sim/board.py)
+# The app keeps a run by itself as soon as its readings are ready (ui/app.py _run_logic):
+# steady over revolutions_per_run = 30 revolutions and settled (procedure.guide.settled:
+# the phase within DEFAULT_PHASE_LIMIT_DEG, or a circle within SMALL_VECTOR_FRACTION of
+# the as-found 1x); until then the meter keeps averaging its last 60 (MeterAdapter
+# max_revs): a reading not settled at 30 is taken over 60
+REVS_PER_READING = 30
+REVS_METER_WINDOW = 60
+# the app's meter: "steady" without the 5 degree phase limit, which the procedure applies
+# (ui/meter.py METER_LIMITS)
+METER_LIMITS = SteadinessLimits(max_confidence_deg=180.0)
+# +/-0.1 % across a capture: the bench grinder's slip wander (load_wander 0.15 of a 1.7 %
+# slip over a 17 s period: +/-0.26 % of speed) changes the speed by at most ~0.1 % in the
+# 1-4 s a reading takes
+DRIFT_WITHIN = 0.001
+# Each rotor's shop, drawn uniformly within what the packaged scenarios use
+# (sim/scenarios/*.yaml, signals): noise_rms_g 0.01 (lathe-faceplate) ... 0.03
+# (jointer-head); hum_line_v 0.004 ... 0.008 (lathe-faceplate); hum_double_v 0.002 ...
+# 0.003; the 2x 0.01 ... 0.04 g (belt-misaligned's 0.3 g 2x is its misalignment, left
+# out); mains 50 or 60 Hz.
+CAPTURE_RANGES = {"noise_rms_g": (0.01, 0.03), "hum_line_v": (0.004, 0.008),
+                  "hum_double_v": (0.002, 0.003), "harmonic_2x_g": (0.01, 0.04)}
+MAINS_HZ = (50.0, 60.0)
+# The local response slope a coast-down gives (dsp.sweep.local_slope): a line through the
+# sweep's points within SLOPE_WINDOW_FRACTION below the running speed (a coast-down has
+# none above it), with a standard error of MAX_SLOPE_SE on the exponent and MAX_SLOPE_SE
+# rad on the phase slope (the same weights give both): the largest error the app accepts
+# a measured slope with, so the worst slope the app would use
+SLOPE_POINTS = 9
+VOLTS_PER_COUNT = ADC_REFERENCE_V / ADC_COUNTS_PER_REFERENCE
+
+
+@dataclass(frozen=True)
+class CaptureSignals:
+    """What one rotor's shop adds to the 1x in every capture (per pickup: hum and 2x
+    phases differ between leads and mounting points)."""
+
+    noise_rms_g: float
+    mains_hz: float
+    sensitivity_v_per_g: float
+    hum_line_v: float
+    hum_double_v: float
+    harmonic_2x_g: float
+    phases_deg: tuple[tuple[float, float, float], ...]   # per pickup: 2x, hum, double hum
+
+    @staticmethod
+    def draw(rng: np.random.Generator, as_found_1x_m_s2: float,
+             pickups: int = 2) -> CaptureSignals:
+        """Levels drawn uniformly within CAPTURE_RANGES, mains 50 or 60 Hz, random phases;
+        the pickups chosen for the rotor's largest as-found 1x (pickup_for)."""
+        levels = {k: float(rng.uniform(*v)) for k, v in CAPTURE_RANGES.items()}
+        return CaptureSignals(mains_hz=float(rng.choice(MAINS_HZ)), phases_deg=tuple(
+            tuple(float(a) for a in rng.uniform(0, 360, 3)) for _ in range(pickups)),
+            sensitivity_v_per_g=pickup_for(as_found_1x_m_s2), **levels)
+
+
+def pickup_for(as_found_1x_m_s2: float) -> float:
+    """The pickup (V/g) a person fits: the scenarios' 0.3 V/g unless its swing (ZERO_G_V
+    either side of the zero) cannot hold PICKUP_HEADROOM times the as-found 1x (its first
+    run would read "clipped"), then the most sensitive of LOUDER_PICKUPS_V_PER_G that can
+    (the least sensitive when none can)."""
+    need_g = PICKUP_HEADROOM * as_found_1x_m_s2 / STANDARD_GRAVITY_M_S2
+    for v_per_g in (SENSITIVITY_V_PER_G, *LOUDER_PICKUPS_V_PER_G):
+        if need_g * v_per_g <= ZERO_G_V:
+            return v_per_g
+    return LOUDER_PICKUPS_V_PER_G[-1]
+
+
+def counts_of_m_s2(accel_m_s2: complex, v_per_g: float = SENSITIVITY_V_PER_G) -> complex:
+    """A 1x acceleration phasor (m/s^2) as ADC counts: the pickup's volts
+    (``a / g0 * sensitivity``) over the ADC's volts per count (ATmega328P datasheet, ADC
+    conversion result: ADC = Vin * 1024 / Vref)."""
+    return accel_m_s2 / STANDARD_GRAVITY_M_S2 * v_per_g / VOLTS_PER_COUNT
+
+
+def counts_of_g(level_g: float, v_per_g: float = SENSITIVITY_V_PER_G) -> float:
+    """A level in g as ADC counts (as :func:`counts_of_m_s2`)."""
+    return level_g * v_per_g / VOLTS_PER_COUNT
+
+
+def capture_bytes(response_m_s2: Sequence[complex], speed_rpm: float,
+                  signals: CaptureSignals, drift_fraction: float, seed: int,
+                  first_edge_rev: float = 0.3, revs: int = REVS_PER_READING) -> bytes:
+    """The bytes a board would send over one reading: each pickup's 1x ``response_m_s2``
+    (project phasors, trueturn.angles: ``|p| cos(theta - arg p)``, theta from the tach
+    mark, as sim/board.py drives its channels) with the shop's 2x, hum and noise, the speed
+    ramping by ``drift_fraction`` either side of ``speed_rpm``; long enough for
+    ``revs`` whole revolutions."""
+    duration_s = (revs + 2) * 60.0 / speed_rpm / (1.0 - abs(drift_fraction))
+    orders, tones = [], []
+    for p, (ph2, ph_hum, ph_double) in zip(response_m_s2, signals.phases_deg, strict=True):
+        one_x = counts_of_m_s2(p, signals.sensitivity_v_per_g)
+        orders.append((OrderComponent(1, abs(one_x), math.degrees(math.atan2(one_x.imag,
+                                                                             one_x.real))),
+                       OrderComponent(2, counts_of_g(signals.harmonic_2x_g,
+                                                     signals.sensitivity_v_per_g), ph2)))
+        tones.append((ToneComponent(signals.mains_hz, signals.hum_line_v / VOLTS_PER_COUNT,
+                                    ph_hum),
+                      ToneComponent(2 * signals.mains_hz,
+                                    signals.hum_double_v / VOLTS_PER_COUNT, ph_double)))
+    run = SyntheticRun(speed_rpm=speed_rpm, duration_s=duration_s, rate_hz=RATE_HZ,
+                       channels=len(orders), orders=tuple(orders), tones=tuple(tones),
+                       noise_counts=counts_of_g(signals.noise_rms_g,
+                                                signals.sensitivity_v_per_g),
+                       dc_counts=ZERO_G_V / VOLTS_PER_COUNT, drift_fraction=drift_fraction,
+                       first_edge_rev=first_edge_rev, seed=seed)
+    return synthesize(run)[0]
+
+
+def read_capture(data: bytes, names: Sequence[str], mains_hz: float,
+                 v_per_g: float = SENSITIVITY_V_PER_G,
+                 revs: int = REVS_PER_READING) -> tuple[dict, float]:
+    """The DSP's readings of one capture in m/s^2 (trueturn.dsp.analyze_capture with each
+    pickup's sensitivity) as the bench's readings, and the speed it measured (rpm).
+
+    A capture whose samples hit the ADC limits (the DSP's ``clipped`` finding, said for the
+    stream, not per pickup) marks every reading clipped, so the engine leaves them out of
+    the coefficients and gives no pass on them."""
+    analysis = analyze_capture(
+        data, revs=revs, mains_hz=mains_hz, unit="m/s2 pk", limits=METER_LIMITS,
+        profiles=[PickupProfile(n, v_per_g, ZERO_G_V) for n in names])
+    clipped = any(f.code is Code.CLIPPED for f in analysis.findings)
+    out = {}
+    for r in analysis.readings:
+        if r.phase_deg is None or not (r.confidence_radius is not None
+                                       and math.isfinite(r.confidence_radius)):
+            raise RuntimeError(f"the DSP gave no phase or circle for {r.sensor}: "
+                               f"{analysis.warnings}")
+        out[r.sensor] = {"amp": r.amplitude, "phase_deg": r.phase_deg,
+                         "confidence": r.confidence_radius,
+                         "confidence_deg": r.confidence_deg,
+                         "clipped": bool(r.clipped) or clipped,
+                         # the DSP's warning that hum shares the 1x's frequency (its circle
+                         # does not cover that: analysis.CONFIDENCE_SCOPE)
+                         "one_x_on_mains": any(f.code is Code.ORDER_ON_MAINS
+                                               and f.details.get("order") == 1
+                                               for f in r.findings),
+                         "steady": bool(r.steady)}
+    if set(out) != set(names):
+        raise RuntimeError(f"the DSP read {sorted(out)}, not {list(names)}: {analysis.warnings}")
+    return out, float(analysis.speed_rpm)
+
+
+def settled(reading: dict, as_found_amp: float | None) -> bool:
+    """The app keeps it (procedure.guide.Guide.settled): steady, and the phase within the
+    limit or the circle within SMALL_VECTOR_FRACTION of the as-found 1x."""
+    ref = reading["amp"] if as_found_amp is None else as_found_amp
+    return reading["steady"] and (reading["confidence_deg"] <= DEFAULT_PHASE_LIMIT_DEG
+                                  or reading["confidence"] <= SMALL_VECTOR_FRACTION * ref)
+
+
+def kept_reading(response_m_s2: dict[str, complex], speed_rpm: float,
+                 signals: CaptureSignals, drift_fraction: float, seed: int,
+                 first_edge_rev: float, as_found_amp: dict[str, float] | None = None
+                 ) -> tuple[dict, float]:
+    """One run's readings as the app keeps them: over REVS_PER_READING revolutions when
+    every pickup's is settled by then, else over the meter's REVS_METER_WINDOW (the same
+    run, longer). ``response_m_s2`` by pickup name, in channel order."""
+    names = list(response_m_s2)
+    for revs in (REVS_PER_READING, REVS_METER_WINDOW):
+        data = capture_bytes(list(response_m_s2.values()), speed_rpm, signals, drift_fraction,
+                             seed, first_edge_rev, revs)
+        readings, measured_rpm = read_capture(data, names, signals.mains_hz,
+                                              signals.sensitivity_v_per_g, revs)
+        if all(settled(r, as_found_amp[n] if as_found_amp else None)
+               for n, r in readings.items()):
+            break
+    return readings, measured_rpm
+
+
+class CircleTally:
+    """How often the true 1x lay inside the DSP's 95 % circle (all readings, and those
+    without the DSP's warning of hum on the 1x), and how many readings clipped (all rotors
+    and procedures together)."""
+
+    inside = total = inside_quiet = total_quiet = clipped = 0
+
+    @classmethod
+    def reset(cls) -> None:
+        cls.inside = cls.total = cls.inside_quiet = cls.total_quiet = cls.clipped = 0
+
+    @classmethod
+    def add(cls, readings: dict, truth: dict[str, complex]) -> None:
+        for name, r in readings.items():
+            if r["clipped"]:    # said to read low: no circle to hold
+                cls.clipped += 1
+                continue
+            inside = abs(phasor(r["amp"], r["phase_deg"]) - truth[name]) <= r["confidence"]
+            cls.total += 1
+            cls.inside += inside
+            if not r["one_x_on_mains"]:
+                cls.total_quiet += 1
+                cls.inside_quiet += inside
 
 
 def random_rotor(rng: np.random.Generator, soft: bool = False,
@@ -107,29 +338,50 @@ def random_rotor(rng: np.random.Generator, soft: bool = False,
 
 
 class Shop:
-    """A rotor on the bench: true masses (with placement errors) and noisy readings."""
+    """A rotor on the bench: true masses (with placement errors) and readings of captures
+    analysed by the DSP."""
 
-    def __init__(self, rotor: RigidRotor, speed: float, as_found: list[Mass], rng) -> None:
+    def __init__(self, rotor: RigidRotor, speed: float, as_found: list[Mass], rng,
+                 signals: CaptureSignals | None = None) -> None:
         self.rotor, self.speed, self.rng = rotor, speed, rng
+        self.signals = signals or CaptureSignals.draw(
+            rng, max(abs(v) for v in rotor.response_1x(speed, as_found).values()),
+            len(rotor.pickups))
         self.true_masses = list(as_found)
         self.runs: list[dict] = []
         self.added: list[dict] = []        # what the person believes they added
+        self.extra_runs = 0                # runs repeated with a less sensitive pickup
+        self.as_found_amp: dict[str, float] | None = None   # the first run's, for settled()
 
     def place(self, plane: str, mass_g: float, angle_deg: float) -> Mass:
         return Mass(plane, mass_g * (1 + MASS_ERR * self.rng.normal()),
                     angle_deg + ANGLE_ERR_DEG * self.rng.normal())
 
-    def measure(self, extra: list[Mass] = ()) -> dict:
-        out = {}
-        speed = self.speed * (1 + self.rng.uniform(-SPEED_WANDER, SPEED_WANDER))
-        for name, v in self.rotor.response_1x(speed, self.true_masses + list(extra)).items():
-            sigma = REL_NOISE * abs(v) + FLOOR_M_S2  # per component, like the meter's scatter
-            v = v + sigma * complex(self.rng.normal(), self.rng.normal())
-            amp, phase = amplitude_phase(v)
-            # the 95 % circle the meter reports with every reading (dsp.averaging): a 2-D
-            # normal's radius holding 95 %, sqrt(-2 ln 0.05) = 2.448 sigma
-            out[name] = {"amp": amp, "phase_deg": phase, "confidence": CIRCLE95 * sigma}
-        return out
+    def measure(self, extra: Sequence[Mass] = ()) -> dict:
+        """One run: its capture through the DSP. Readings by pickup (``amp``, ``phase_deg``,
+        ``confidence``: the 95 % circle's radius, m/s^2) and the measured ``speed_rpm``.
+
+        A clipped run is run again with the next less sensitive pickup, as the engine asks
+        ("repeat the clipped run(s) with the pickup's gain reduced"): one more run each
+        time (``extra_runs``); the readings stay in m/s^2, so the earlier runs still count.
+        """
+        names = [p.name for p in self.rotor.pickups]
+        while True:
+            speed = self.speed * (1 + self.rng.uniform(-SPEED_WANDER, SPEED_WANDER))
+            truth = self.rotor.response_1x(speed, self.true_masses + list(extra))
+            readings, measured_rpm = kept_reading(
+                {n: truth[n] for n in names}, speed, self.signals,
+                float(self.rng.uniform(-DRIFT_WITHIN, DRIFT_WITHIN)),
+                int(self.rng.integers(1 << 31)), float(self.rng.uniform(0, 1)),
+                self.as_found_amp)
+            CircleTally.add(readings, truth)
+            louder = [v for v in LOUDER_PICKUPS_V_PER_G if v < self.signals.sensitivity_v_per_g]
+            if not louder or not any(r["clipped"] for r in readings.values()):
+                if self.as_found_amp is None:
+                    self.as_found_amp = {n: r["amp"] for n, r in readings.items()}
+                return {"readings": readings, "speed_rpm": measured_rpm}
+            self.signals = replace(self.signals, sensitivity_v_per_g=louder[0])
+            self.extra_runs += 1
 
     def true_1x(self) -> float:
         return float(np.linalg.norm(list(self.rotor.response_1x(self.speed, self.true_masses).values())))
@@ -149,14 +401,50 @@ class Shop:
         return all(abs(r) <= s for r, s in zip(at, shares, strict=True))
 
 
-def document(shop: Shop, runs: list[dict], tolerance: dict | None, influence=None) -> dict:
+def run_entry(label: str, added: list[dict], measured: dict) -> dict:
+    """A run as the app keeps it: what was added, the readings and the measured speed."""
+    return {"label": label, "added": added, **measured}
+
+
+def document(shop: Shop, runs: list[dict], tolerance: dict | None, influence=None,
+             slopes: list[dict] | None = None) -> dict:
+    """The READINGS document (balance/README.md) of the runs so far."""
+    keep = ("amp", "phase_deg", "confidence", "clipped")
     doc = {"planes": [{"name": p.name, "radius_mm": p.radius_mm} for p in shop.rotor.planes],
-           "sensors": [{"name": p.name} for p in shop.rotor.pickups], "runs": runs}
+           "sensors": [{"name": p.name} for p in shop.rotor.pickups],
+           "runs": [{"label": r["label"], "added": r["added"], "speed_rpm": r["speed_rpm"],
+                     "readings": {n: {k: v[k] for k in keep} for n, v in r["readings"].items()}}
+                    for r in runs]}
     if tolerance:
         doc["tolerance"] = tolerance
     if influence:
         doc["influence"] = influence
+    if slopes:
+        doc["speed_slopes"] = slopes
     return doc
+
+
+def speed_slopes(rotor: RigidRotor, speed: float, masses: list[Mass], rng) -> list[dict] | None:
+    """Each pickup's local response slope as the as-found coast-down gives it
+    (dsp.sweep.local_slope: a line of ln|1x| and of the unwrapped phase against ln speed
+    through the points within SLOPE_WINDOW_FRACTION below the running speed), here through
+    the rotor model's 1x, with the largest standard error the app accepts (MAX_SLOPE_SE on
+    the exponent, MAX_SLOPE_SE rad on the phase slope); None when a slope falls outside
+    what a READINGS document takes (balance.readings.SpeedSlopeEntry), as a sweep too
+    close to a resonance would give none."""
+    speeds = speed * np.linspace(1.0 - SLOPE_WINDOW_FRACTION, 1.0, SLOPE_POINTS)
+    responses = [rotor.response_1x(float(n), masses) for n in speeds]
+    x = np.log(speeds)
+    out = []
+    for p in rotor.pickups:
+        v = np.array([r[p.name] for r in responses])
+        exponent = float(np.polyfit(x, np.log(np.abs(v)), 1)[0]) + MAX_SLOPE_SE * rng.normal()
+        phase = float(np.polyfit(x, np.unwrap(np.angle(v)), 1)[0]) + MAX_SLOPE_SE * rng.normal()
+        if abs(exponent) > 30 or abs(math.degrees(phase)) > 5000:
+            return None
+        out.append({"sensor": p.name, "amplitude_exponent": exponent,
+                    "phase_deg_per_ln_speed": math.degrees(phase)})
+    return out
 
 
 def layout_of(rotor: RigidRotor) -> RotorLayout:
@@ -218,8 +506,10 @@ def one_rotor(rng: np.random.Generator, sizing: str, soft: bool) -> dict:
     shop = Shop(rotor, speed, as_found, rng)
     tolerance = {"rotor_mass_kg": rotor.mass_kg, "grade": GRADE, "speed_rpm": speed}
     before = shop.true_1x()
-    runs = [{"label": "as found", "added": [], "readings": shop.measure()}]
+    runs = [run_entry("as found", [], shop.measure())]
     as_found_1x = phasors_of(runs[0]["readings"])
+    # the coast-down after the as-found run gives each pickup's slope (issue #20 item 2)
+    slopes = speed_slopes(rotor, speed, shop.true_masses, rng)
     # the coast-down after the as-found run gives the sweep (issue #20 item 1)
     sweep = sweep_resonances(rotor, speed, rng)
     prediction = predict_influence(layout_of(rotor), placements(rotor), speed, sweep)
@@ -234,10 +524,10 @@ def one_rotor(rng: np.random.Generator, sizing: str, soft: bool) -> dict:
                                   float(sizing)).mass_g
     for j, p in enumerate(rotor.planes):
         angle = 90.0 * j
-        readings = shop.measure([shop.place(p.name, trial_g, angle)])
-        runs.append({"label": f"trial {p.name}",
-                     "added": [{"plane": p.name, "mass_g": trial_g, "angle_deg": angle}],
-                     "readings": readings})
+        runs.append(run_entry(f"trial {p.name}",
+                              [{"plane": p.name, "mass_g": trial_g, "angle_deg": angle}],
+                              shop.measure([shop.place(p.name, trial_g, angle)])))
+        readings = runs[-1]["readings"]
         after = phasors_of(readings)
         confidence = {k: v["confidence"] for k, v in readings.items()}
         factor = trial_size_factor(as_found_1x, after, confidence)
@@ -246,10 +536,10 @@ def one_rotor(rng: np.random.Generator, sizing: str, soft: bool) -> dict:
             # the app checks the effect right after the run and redoes the trial larger
             # (procedure.engine.TRIAL_REDO_MARGIN) before moving on: one more run
             trial_g *= factor * TRIAL_REDO_MARGIN
-            readings = shop.measure([shop.place(p.name, trial_g, angle)])
-            runs[-1] = {"label": f"trial {p.name}",
-                        "added": [{"plane": p.name, "mass_g": trial_g, "angle_deg": angle}],
-                        "readings": readings}
+            runs[-1] = run_entry(f"trial {p.name}",
+                                 [{"plane": p.name, "mass_g": trial_g, "angle_deg": angle}],
+                                 shop.measure([shop.place(p.name, trial_g, angle)]))
+            readings = runs[-1]["readings"]
             after = phasors_of(readings)
             redo_runs += 1
         if sizing == "default" and j + 1 < len(rotor.planes):
@@ -270,22 +560,26 @@ def one_rotor(rng: np.random.Generator, sizing: str, soft: bool) -> dict:
         nonlocal n_runs, redone
         while True:
             try:
-                return solve(parse_readings(document(shop, runs, tolerance)))
+                return solve(parse_readings(document(shop, runs, tolerance, slopes=slopes)))
             except NoInformationError as exc:
-                if n_runs >= MAX_RUNS:
+                if n_runs + shop.extra_runs >= MAX_RUNS:
                     return None
                 j = next(k for k, p in enumerate(rotor.planes) if p.name == exc.plane)
                 mass_g = exc.suggested_g or 10 * runs[1 + j]["added"][0]["mass_g"]
                 extra = [shop.place(exc.plane, mass_g, 90.0 * j)]
                 # the person takes the correction off for the redo and puts it back after
-                runs[1 + j] = {"label": f"trial {exc.plane}",
-                               "added": [{"plane": exc.plane, "mass_g": mass_g,
-                                          "angle_deg": 90.0 * j}],
-                               "readings": Shop(rotor, speed, as_found, rng).measure(extra)}
-                n_runs += 1
+                again = Shop(rotor, speed, as_found, rng, shop.signals)
+                again.as_found_amp = shop.as_found_amp
+                runs[1 + j] = run_entry(f"trial {exc.plane}",
+                                        [{"plane": exc.plane, "mass_g": mass_g,
+                                          "angle_deg": 90.0 * j}], again.measure(extra))
+                shop.signals = again.signals
+                n_runs += 1 + again.extra_runs
                 redone += 1
+            except UserError:
+                return None     # refused (e.g. a run clipped on every pickup there is)
 
-    while n_runs < MAX_RUNS:
+    while n_runs + shop.extra_runs < MAX_RUNS:
         report = solved()
         if report is None:
             break
@@ -296,8 +590,7 @@ def one_rotor(rng: np.random.Generator, sizing: str, soft: bool) -> dict:
                 shop.true_masses.append(shop.place(c.plane, c.mass_g, c.angle_deg))
         shop.added = [{"plane": c.plane, "mass_g": c.mass_g, "angle_deg": c.angle_deg}
                       for c in sol.corrections]
-        runs.append({"label": f"check {n_runs + 1}", "added": list(shop.added),
-                     "readings": shop.measure()})
+        runs.append(run_entry(f"check {n_runs + 1}", list(shop.added), shop.measure()))
         n_runs += 1
         if first_reduction is None:
             first_reduction = 1 - shop.true_1x() / before
@@ -317,13 +610,16 @@ def one_rotor(rng: np.random.Generator, sizing: str, soft: bool) -> dict:
     shop.true_masses = [Mass(p.name, shares[j] * rng.uniform(AS_FOUND_LOW, AS_FOUND_HIGH) / p.radius_mm,
                              rng.uniform(0, 360)) for j, p in enumerate(rotor.planes)]
     before_trim = shop.true_1x()
-    trim = solve(parse_readings(document(
-        shop, [{"label": "as found", "added": [], "readings": shop.measure()}], None, saved)))
-    for c in trim.solution.corrections:
+    try:
+        trim = solve(parse_readings(document(
+            shop, [run_entry("as found", [], shop.measure())], None, saved)))
+    except UserError:
+        trim = None     # refused (a clipped reading on every pickup there is)
+    for c in trim.solution.corrections if trim else ():
         shop.true_masses.append(shop.place(c.plane, c.mass_g, c.angle_deg))
-    trim_reduction = 1 - shop.true_1x() / before_trim
+    trim_reduction = 1 - shop.true_1x() / before_trim if trim else np.nan
     passed = report.verdict is not None and report.verdict.passed
-    return {"runs": n_runs if passed else MAX_RUNS + 1,
+    return {"runs": n_runs + shop.extra_runs if passed else MAX_RUNS + 1,
             "first_reduction": first_reduction, "trim_reduction": trim_reduction,
             "true_pass": true_pass, "true_pass_bearings": true_pass_bearings,
             "too_small": too_small, "trials": len(rotor.planes), "redone": redone}
@@ -340,7 +636,7 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool) -> di
     shop = Shop(rotor, speed, as_found, rng)
     names = [p.name for p in rotor.pickups]
     before = shop.true_1x()
-    first = shop.measure()
+    first = shop.measure()["readings"]
     r0 = phasors_of(first)
     sweep = sweep_resonances(rotor, speed, rng)
     prediction = predict_influence(layout_of(rotor), placements(rotor), speed, sweep, r0)
@@ -363,7 +659,7 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool) -> di
             trial_g = trial_for_effect(shop, j, first, sizing, scale)
             angle = 90.0 * j
             for _attempt in range(2):   # the effect checked right after the run; one redo
-                readings = shop.measure([shop.place(p.name, trial_g, angle)])
+                readings = shop.measure([shop.place(p.name, trial_g, angle)])["readings"]
                 u = np.zeros(n_planes, dtype=complex)
                 u[j] = phasor(trial_g, angle)
                 take(readings, u)      # a small trial still tells something: kept
@@ -378,7 +674,7 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool) -> di
             scale = float(seen)
     first_reduction = None
     said_pass = False
-    while n_runs < MAX_RUNS:
+    while n_runs + shop.extra_runs < MAX_RUNS:
         want = estimate.correction_g()
         add = want - on_rotor
         for j, p in enumerate(rotor.planes):
@@ -386,7 +682,7 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool) -> di
             if mass_g > 0:
                 shop.true_masses.append(shop.place(p.name, mass_g, angle))
         on_rotor = want
-        readings = shop.measure()
+        readings = shop.measure()["readings"]
         take(readings, on_rotor)
         n_runs += 1
         if first_reduction is None:
@@ -397,7 +693,8 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool) -> di
             said_pass = True
             break
     true_pass = all(r <= s for r, s in zip(shop.true_residual_gmm(), shares, strict=True))
-    return {"runs": n_runs if said_pass else MAX_RUNS + 1, "first_reduction": first_reduction,
+    return {"runs": n_runs + shop.extra_runs if said_pass else MAX_RUNS + 1,
+            "first_reduction": first_reduction,
             "true_pass": true_pass, "trusted": prediction.trusted, "names": names}
 
 
@@ -463,11 +760,31 @@ def _model_first_figures() -> list[Row]:
     return rows_out
 
 
+def _circle_figures() -> list[Row]:
+    """How often the true 1x lay inside the DSP's 95 % circle, over every reading above
+    (clipped ones left out: they say they read low)."""
+    t = CircleTally
+    inside = t.inside / t.total if t.total else math.nan
+    quiet = t.inside_quiet / t.total_quiet if t.total_quiet else math.nan
+    return [
+        Row("balance [DSP captures]: true 1x inside the reading's 95 % circle",
+            f"{100 * inside:.1f} % of {t.total}", "93-97 %", bool(0.93 <= inside <= 0.97)),
+        Row("balance [DSP captures]: true 1x inside the 95 % circle, readings without the "
+            "DSP's warning of hum on the 1x", f"{100 * quiet:.1f} % of {t.total_quiet}",
+            "93-97 %", bool(0.93 <= quiet <= 0.97)),
+        Row("balance [DSP captures]: readings clipped (the run repeated with a less "
+            "sensitive pickup)", f"{100 * t.clipped / max(t.total + t.clipped, 1):.2f} %",
+            "-", None),
+    ]
+
+
 def rows() -> list[Row]:
     """Figures for the default trials (sized to be seen), the 10 % and 30 % force rules, and
-    the model-first procedure."""
+    the model-first procedure; then the captures' 95 % circles."""
+    CircleTally.reset()
     return (_classic_figures("default", "default") + _classic_figures("0.1", "trial 10 % of weight")
-            + _classic_figures("0.3", "trial 30 % of weight") + _model_first_figures())
+            + _classic_figures("0.3", "trial 30 % of weight") + _model_first_figures()
+            + _circle_figures())
 
 
 if __name__ == "__main__":

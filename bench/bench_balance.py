@@ -30,12 +30,17 @@ Procedures measured:
   .size_trial_for_effect from the as-found reading and the free-rotor sensitivity of
   balance.model_first; the second plane's trial scaled by what the first showed), as the
   app does.
-* ``[model first]``: as found with a coast-down sweep (the support resonances below the
-  running speed with a 2 % (1 sigma) error on the speed and 20 % on the damping, standing in
-  for dsp's sweep analysis), coefficients predicted by balance.model_first; when trusted, the
-  first correction with no trial, every later run refining the coefficients (recursive least
-  squares); when not, trials sized to be seen, then the same refinement. Its verdict: the
-  residual's 95 % upper bound within the share of every plane.
+* ``[model first]``: as found with a coast-down sweep (the synchronous critical speeds below
+  the running speed, gyroscopic stiffening included, with a 2 % (1 sigma) error on the speed
+  and 20 % on the damping, standing in for dsp's sweep analysis), coefficients predicted by
+  balance.model_first from what a profile says (mass, bearing and plane positions, radii,
+  centre of mass; not the inertias, which the model guesses); when trusted, the first
+  correction with no trial, every later run refining the coefficients (recursive least
+  squares), until a run falls far outside the model's prediction and the runs cannot stand
+  alone: then, as in the app, the model's masses come off and trials follow; when not
+  trusted, trials sized to be seen, then corrections from the runs alone. Its verdict: the
+  residual's 95 % upper bound within the share of every plane. The rotor's polar inertia
+  is drawn between 0.25 and 0.75 M r^2.
 
 Figures: runs to reach G 6.3 (median and 95th percentile), 1x reduction after the first
 computed correction, one-run trims with saved coefficients, how often a rotor said to be
@@ -51,6 +56,7 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
+import scipy.linalg
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
@@ -334,6 +340,10 @@ def random_rotor(rng: np.random.Generator, soft: bool = False,
         pickups=[PickupMount("inboard", 0, 90.0), PickupMount("outboard", 1, 90.0)],
         nonlinearity=rng.uniform(0.005, 0.03),
     )
+    # the mass about the shaft: between a rotor whose mass sits near the shaft and a
+    # rim-heavy one (0.25-0.75 M r^2; a solid disc is 0.5), drawn last so the rest of the
+    # rotor is the same for the same seed
+    rotor.polar_inertia_kg_m2 = mass * (radius * 1e-3) ** 2 * rng.uniform(0.25, 0.75)
     return rotor, speed
 
 
@@ -461,8 +471,8 @@ def placements(rotor: RigidRotor) -> list[PickupPlacement]:
 
 
 def sweep_resonances(rotor: RigidRotor, speed: float, rng) -> dict[str, list[SupportResonance]]:
-    """What a coast-down from the running speed finds per pickup: the rigid-body modes in the
-    pickup's direction below the running speed, with a sweep's errors."""
+    """What a coast-down from the running speed finds per pickup: the synchronous critical
+    speeds in the pickup's direction below the running speed, with a sweep's errors."""
     out = {}
     zc = rotor.centre_of_mass_axial_mm * 1e-3
     for p in rotor.pickups:
@@ -472,8 +482,13 @@ def sweep_resonances(rotor: RigidRotor, speed: float, rng) -> dict[str, list[Sup
             d = b.axial_mm * 1e-3 - zc
             k = b.stiffness_v_n_per_m if vertical else b.stiffness_h_n_per_m
             stiff += k * np.array([[1.0, d], [d, d * d]])
-        inertia = np.diag([rotor.mass_kg, rotor.transverse_inertia_kg_m2])
-        modes_rpm = np.sqrt(np.linalg.eigvals(np.linalg.solve(inertia, stiff)).real) * 30 / np.pi
+        # the 1x whirl meets the tilt inertia I_t - I_p (gyroscopic stiffening): the
+        # synchronous critical speeds are what a coast-down passes through
+        inertia = np.diag([rotor.mass_kg,
+                           rotor.transverse_inertia_kg_m2 - rotor.polar_inertia_kg_m2])
+        modes_rpm = [float(np.sqrt(e.real)) * 30 / np.pi
+                     for e in scipy.linalg.eigvals(stiff, inertia)
+                     if np.isfinite(e) and e.real > 0]
         damping = 0.03   # c = 0.03 * 2 sqrt(k m): about 3 % of critical
         out[p.name] = [SupportResonance(float(m) * (1 + SWEEP_SPEED_ERR * rng.normal()),
                                         damping * float(np.exp(SWEEP_DAMPING_ERR * rng.normal())))
@@ -627,7 +642,10 @@ def one_rotor(rng: np.random.Generator, sizing: str, soft: bool) -> dict:
 
 def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool) -> dict:
     """As found (+ sweep) -> predicted coefficients -> a correction with no trial when the
-    model is trusted (else trials sized to be seen) -> every run refines (RLS)."""
+    model is trusted, every run refining them (RLS); a run far outside the model's
+    prediction that the runs cannot stand without refutes it: its masses come off and
+    trials follow, as in the app (procedure.guide.ModelRefuted). Not trusted: trials sized
+    to be seen, then corrections from the runs alone (the app's classic solve)."""
     rotor, speed = random_rotor(rng, soft, n_planes)
     u_per = permissible_unbalance_gmm(GRADE, speed, rotor.mass_kg)
     shares = per_plane_permissible(u_per, n_planes)
@@ -640,29 +658,66 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool) -> di
     r0 = phasors_of(first)
     sweep = sweep_resonances(rotor, speed, rng)
     prediction = predict_influence(layout_of(rotor), placements(rotor), speed, sweep, r0)
-    estimate = CoefficientEstimate.from_prediction(prediction)
-    on_rotor = np.zeros(n_planes, dtype=complex)     # what the person believes is on it
-
-    def take(readings: dict, masses: np.ndarray) -> None:
-        estimate.update(masses, phasors_of(readings),
-                        {k: v["confidence"] for k, v in readings.items()})
-
-    take(first, on_rotor)
+    zeros = np.zeros(n_planes, dtype=complex)
     n_runs = 1
-    if not prediction.trusted:
+    first_reduction = None
+    refuted = False
+
+    def take(est: CoefficientEstimate, readings: dict, masses: np.ndarray) -> None:
+        est.update(masses, phasors_of(readings), {k: v["confidence"] for k, v in readings.items()})
+
+    def corrections(est: CoefficientEstimate, on_rotor: np.ndarray) -> tuple[np.ndarray, bool]:
+        """Correction runs until the verdict (the residual's 95 % bound within every
+        plane's share) or the run limit; False when the model was refuted on the way."""
+        nonlocal n_runs, first_reduction
+        while n_runs + shop.extra_runs < MAX_RUNS:
+            want = est.correction_g()
+            add = want - on_rotor
+            for j, p in enumerate(rotor.planes):
+                mass_g, angle = amplitude_phase(complex(add[j]))
+                if mass_g > 0:
+                    shop.true_masses.append(shop.place(p.name, mass_g, angle))
+            on_rotor = want
+            readings = shop.measure()["readings"]
+            take(est, readings, on_rotor)
+            n_runs += 1
+            if first_reduction is None:
+                first_reduction = 1 - shop.true_1x() / before
+            if est.prior_refuted and not est.determined_by_runs:
+                return on_rotor, False
+            _, upper95_g = est.residual_g(phasors_of(readings),
+                                          {k: v["confidence"] for k, v in readings.items()})
+            if all(upper95_g[j] * p.radius_mm <= shares[j] for j, p in enumerate(rotor.planes)):
+                return on_rotor, True
+        return on_rotor, False
+
+    said_pass = False
+    if prediction.trusted:
+        estimate = CoefficientEstimate.from_prediction(prediction)
+        take(estimate, first, zeros)
+        _, said_pass = corrections(estimate, zeros)
+        refuted = estimate.prior_refuted and not estimate.determined_by_runs
+        if refuted:
+            # the person takes the model's masses off: the rotor is as found again
+            shop.true_masses = list(as_found)
+    if not prediction.trusted or refuted:
+        estimate = CoefficientEstimate(tuple(names), n_planes)   # the runs alone
+        take(estimate, first, zeros)
         sizing = prediction if not prediction.magnitude_only and not (
             {Distrust.NEAR_RESONANCE, Distrust.SWEEP_MISFIT} & set(prediction.distrust)) \
             else predict_influence(layout_of(rotor), placements(rotor), speed,
                                    {n: sweep[n] for n in names if not sweep[n]} or None)
         scale = None
         for j, p in enumerate(rotor.planes):
+            if n_runs + shop.extra_runs >= MAX_RUNS:
+                break
             trial_g = trial_for_effect(shop, j, first, sizing, scale)
             angle = 90.0 * j
             for _attempt in range(2):   # the effect checked right after the run; one redo
                 readings = shop.measure([shop.place(p.name, trial_g, angle)])["readings"]
                 u = np.zeros(n_planes, dtype=complex)
                 u[j] = phasor(trial_g, angle)
-                take(readings, u)      # a small trial still tells something: kept
+                take(estimate, readings, u)   # a small trial still tells something: kept
                 n_runs += 1
                 factor = trial_size_factor(r0, phasors_of(readings),
                                            {k: v["confidence"] for k, v in readings.items()})
@@ -672,30 +727,12 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool) -> di
             seen = min(abs(phasors_of(readings)[n] - r0[n]) / trial_g / sizing.magnitude[i, j]
                        for i, n in enumerate(names))
             scale = float(seen)
-    first_reduction = None
-    said_pass = False
-    while n_runs + shop.extra_runs < MAX_RUNS:
-        want = estimate.correction_g()
-        add = want - on_rotor
-        for j, p in enumerate(rotor.planes):
-            mass_g, angle = amplitude_phase(complex(add[j]))
-            if mass_g > 0:
-                shop.true_masses.append(shop.place(p.name, mass_g, angle))
-        on_rotor = want
-        readings = shop.measure()["readings"]
-        take(readings, on_rotor)
-        n_runs += 1
-        if first_reduction is None:
-            first_reduction = 1 - shop.true_1x() / before
-        _, upper95_g = estimate.residual_g(phasors_of(readings),
-                                           {k: v["confidence"] for k, v in readings.items()})
-        if all(upper95_g[j] * p.radius_mm <= shares[j] for j, p in enumerate(rotor.planes)):
-            said_pass = True
-            break
+        _, said_pass = corrections(estimate, zeros)
     true_pass = all(r <= s for r, s in zip(shop.true_residual_gmm(), shares, strict=True))
     return {"runs": n_runs + shop.extra_runs if said_pass else MAX_RUNS + 1,
-            "first_reduction": first_reduction,
-            "true_pass": true_pass, "trusted": prediction.trusted, "names": names}
+            "first_reduction": first_reduction if first_reduction is not None else 0.0,
+            "true_pass": true_pass, "trusted": prediction.trusted, "refuted": refuted,
+            "names": names}
 
 
 def _classic_figures(sizing: str, label: str) -> list[Row]:

@@ -234,13 +234,12 @@ def read_capture(data: bytes, names: Sequence[str], mains_hz: float,
     """The DSP's readings of one capture in m/s^2 (trueturn.dsp.analyze_capture with each
     pickup's sensitivity) as the bench's readings, and the speed it measured (rpm).
 
-    A capture whose samples hit the ADC limits (the DSP's ``clipped`` finding, said for the
-    stream, not per pickup) marks every reading clipped, so the engine leaves them out of
-    the coefficients and gives no pass on them."""
+    A reading whose pickup's samples hit the ADC limits within its window reads clipped
+    (``PickupReading.clipped``, per pickup), so the engine leaves it out of the
+    coefficients and gives no pass on its run."""
     analysis = analyze_capture(
         data, revs=revs, mains_hz=mains_hz, unit="m/s2 pk", limits=METER_LIMITS,
         profiles=[PickupProfile(n, v_per_g, ZERO_G_V) for n in names])
-    clipped = any(f.code is Code.CLIPPED for f in analysis.findings)
     out = {}
     for r in analysis.readings:
         if r.phase_deg is None or not (r.confidence_radius is not None
@@ -250,7 +249,7 @@ def read_capture(data: bytes, names: Sequence[str], mains_hz: float,
         out[r.sensor] = {"amp": r.amplitude, "phase_deg": r.phase_deg,
                          "confidence": r.confidence_radius,
                          "confidence_deg": r.confidence_deg,
-                         "clipped": bool(r.clipped) or clipped,
+                         "clipped": bool(r.clipped),
                          # the DSP's warning that hum shares the 1x's frequency (its circle
                          # does not cover that: analysis.CONFIDENCE_SCOPE)
                          "one_x_on_mains": any(f.code is Code.ORDER_ON_MAINS

@@ -108,6 +108,9 @@ class PickupReading(Reading):
     confidence_random: float = math.nan  # radius from the scatter alone
     timing_bias_deg: float = 0.0  # phase bound of tach capture and aperture rounding
     window_s: float = math.nan  # time spanned by the averaged revolutions
+    #: samples of this channel at an ADC rail (count 0 or 2^bits - 1) within the averaged
+    #: revolutions; ``clipped`` is True when there is any (the 1x then reads low)
+    clipped_samples: int = 0
 
     @property
     def phasor(self) -> complex:
@@ -289,6 +292,8 @@ class LiveAnalyzer:
         self._pending: list[Revolution] = []
         self._pending_ends: list[int] = []
         self._rows = [_RowStore(self.max_revs) for _ in range(self.channels)]
+        # per channel, each fitted revolution's samples at an ADC rail (aligned with _rows)
+        self._clips = [_RowStore(self.max_revs) for _ in range(self.channels)]
         self._periods = _RowStore(self.max_revs)
         ring_len = max(64, int(self.spectrum_seconds * self.rate_hz)) * max(self.channels, 1)
         self._ring = _Ring(ring_len)
@@ -601,10 +606,15 @@ class LiveAnalyzer:
             if contiguous is not None:  # the usual case: no sample lost in what is held
                 first, values = contiguous
                 offsets = [(c - first) % ch for c in range(ch)]
-                fits = fit_even([values[o::ch] for o in offsets],
-                                [self._sample_tick(first + o) for o in offsets],
+                per_channel = [values[o::ch] for o in offsets]
+                first_ticks = [self._sample_tick(first + o) for o in offsets]
+                fits = fit_even(per_channel, first_ticks,
                                 ch * self.period_ticks, starts, ends, self.tick_hz,
                                 self.orders, self._nuisance_hz(), self.start_tick, group)
+                step = ch * self.period_ticks
+                clips = [_rail_counts(self._at_rail(x), np.ceil((starts - t0) / step),
+                                      np.ceil((ends - t0) / step))
+                         for x, t0 in zip(per_channel, first_ticks, strict=True)]
             else:
                 index, values = self._channel_samples()
                 ticks = self.start_tick + index * self.period_ticks + self.aperture_ticks
@@ -613,12 +623,21 @@ class LiveAnalyzer:
                 fits = fit_blocks([ticks[s] for s in sels], [values[s] for s in sels], starts,
                                   ends, self.tick_hz, self.orders, self._nuisance_hz(),
                                   self.start_tick, group)
+                clips = [_rail_counts(self._at_rail(values[s]),
+                                      np.searchsorted(ticks[s], starts, "left"),
+                                      np.searchsorted(ticks[s], ends, "left")) for s in sels]
             for c, fit in enumerate(fits):
                 self._rows[c].append({name: getattr(fit, name) for name in ROW_FIELDS})
+                self._clips[c].append({"at_rail": clips[c]})
             self._periods.append({"ticks": ends - starts})
         keep_from = min(self._pending[0].start_tick if self._pending else ready[-1].end_tick,
                         ready[-1].end_tick)
         self._trim(keep_from)
+
+    def _at_rail(self, values: np.ndarray) -> np.ndarray:
+        """True where a sample is at an ADC rail: 0 or 2^bits - 1 counts (the ATmega328P's
+        10-bit result runs 0..1023; datasheet, "ADC Conversion Result")."""
+        return (values <= 0) | (values >= (1 << self.adc_bits) - 1)
 
     def _hum_groups(self) -> dict[float, tuple[float, ...]]:
         """Hum frequency -> the comb of tones fitted for it (below the Nyquist frequency)."""
@@ -911,6 +930,10 @@ class LiveAnalyzer:
             if math.isfinite(mean_hz) else 0.0
         radius = vstats.confidence_radius + vstats.amplitude * bias_rad
         window_s = float(self._stacked_ticks(last)[-len(good):][good].sum()) / self.tick_hz
+        # the reading's own window: every averaged revolution (a revolution left out of the
+        # average as not finite still counts: its samples were at the rail all the same)
+        at_rail = int(self._clips[c].last(len(good))["at_rail"].sum()) if len(good) else 0
+        # (the words stay the stream's CLIPPED finding, already among these findings)
         return PickupReading(
             sensor=profile.name, channel=c, amplitude=vstats.amplitude, unit=used_unit,
             phase_deg=vstats.phase_deg,
@@ -922,7 +945,7 @@ class LiveAnalyzer:
             hum_v=hum_v, findings=tuple(findings),
             no_tach=any(f.code is Code.NO_TACH for f in findings),
             confidence_random=vstats.confidence_radius, timing_bias_deg=math.degrees(bias_rad),
-            window_s=window_s,
+            window_s=window_s, clipped=at_rail > 0, clipped_samples=at_rail,
         )
 
     def spectra(self, resolution_hz: float = 1.0) -> list[Spectrum | None]:
@@ -1024,6 +1047,16 @@ def undo_chain(spec: Spectrum, profile: PickupProfile) -> Spectrum:
     peaks = tuple(dataclasses.replace(p, amplitude=p.amplitude / abs(chain_response(profile, p.hz)))
                   for p in spec.peaks)
     return dataclasses.replace(spec, asd=spec.asd / gain, peaks=peaks)
+
+
+def _rail_counts(at_rail: np.ndarray, lo: np.ndarray, hi: np.ndarray) -> np.ndarray:
+    """How many of ``at_rail`` are True in each index range ``[lo, hi)`` (clamped to the
+    array), by a cumulative sum: one pass however many revolutions."""
+    cum = np.concatenate(([0], np.cumsum(at_rail, dtype=np.int64)))
+    size = at_rail.size
+    lo_i = np.clip(np.asarray(lo), 0, size).astype(np.int64)
+    hi_i = np.clip(np.asarray(hi), 0, size).astype(np.int64)
+    return np.maximum(cum[hi_i] - cum[lo_i], 0)
 
 
 class _BlockTimebase:

@@ -131,6 +131,9 @@ KEYS: list[tuple[str, str]] = [
 ]
 
 
+#: beside a live reading whose pickup hit an ADC rail in its window (it reads low)
+CLIPPED_MARK = " [b red]CLIPPED[/]"
+
 #: the verdict's flags in the app's words (the machine profile is where the person fixes
 #: what is missing)
 VERDICT_FLAG_WORDS: dict[VerdictFlag, str] = {

@@ -15,7 +15,7 @@ from trueturn.angles import Rotation
 from trueturn.model import Run
 from trueturn.procedure.standstill import StandstillState
 from trueturn.ui.session import BoardIdentity, Snapshot
-from trueturn.ui.texts import METRIC_SHOWN, Shown
+from trueturn.ui.texts import CLIPPED_MARK, METRIC_SHOWN, Shown
 from trueturn.ui.widgets import MarkupText, PolarPlot, PolarPoint
 
 STYLES = ("cyan", "magenta", "yellow", "green")  # pickup A, B, ... on the meter and the plot
@@ -84,6 +84,8 @@ class MeterView(Container):
                 lines += [f"[{style}]{tag} {name}[/]", "  waiting for whole revolutions…", ""]
                 continue
             ready = "[green]READY[/]" if r.steady else "[yellow]settling[/]"
+            if r.clipped:  # reads low: the engine leaves it out and gives no pass on it
+                ready += CLIPPED_MARK
             phase = f"{r.phase_deg:5.0f}°" if r.phase_deg is not None else "  —  "
             lines += [f"[{style}]{tag} {name}[/]  {ready}",
                       f"  {shown.vibration(r.amplitude, r.unit, width=8)}  phase {phase} "

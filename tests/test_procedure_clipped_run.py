@@ -1,0 +1,128 @@
+"""A run whose pickup clipped is said so by the meter, per reading, and never carries a PASS
+(issue #20): the whole chain on the simulator - the virtual bench grinder streams protocol
+bytes (sim://, fast mode), trueturn.dsp's meter reads them, the guided two-plane procedure
+balances on those readings.
+
+The check run is taken while a loose part rattles at twice the running speed, loud enough to
+drive both pickups past the ADC's range (a scenario copy with a 6 g 2x, sim/README.md "Add a
+scenario"; 6 g at 0.3 V/g is 1.8 V, beyond the 1.65 V either side of the pickup's zero: the
+10-bit result saturates at 0 and 1023, ATmega328P datasheet, "ADC Conversion Result"). The
+1x left after the correction is small, so the clipped run would read within the grade:
+the flag is what stops a confidently wrong PASS (ISO 21940-11's verdict needs a true
+reading; the engine's rule, balance/influence.py ``clipped_last_run``).
+"""
+
+from __future__ import annotations
+
+import statistics
+from dataclasses import replace
+from pathlib import Path
+
+import pytest
+import yaml
+
+from test_ui_procedure import Rig
+from trueturn.dsp.meter import LiveAnalyzer
+from trueturn.dsp.units import PickupProfile
+from trueturn.link.codec import Message, StreamDecoder, encode_frame
+from trueturn.link.ports import open_port
+from trueturn.model import Reading, RunKind, VerdictFlag
+from trueturn.procedure.guide import Mode
+from trueturn.sim import Mass
+from trueturn.sim.scenario import load_scenario
+
+SCENARIOS = Path(__file__).resolve().parents[1] / "host" / "trueturn" / "sim" / "scenarios"
+
+
+def rattling_copy(folder: Path) -> Path:
+    """The bench grinder with a loose part: a 6 g 2x at both pickups (demo numbers)."""
+    doc = yaml.safe_load((SCENARIOS / "bench-grinder.yaml").read_text())
+    doc["name"] = "bench-grinder-rattle"
+    doc["signals"]["harmonics"] = [{"order": 2, "amplitude_g": 6.0, "phase_deg": 110.0}]
+    path = folder / "bench-grinder-rattle.yaml"
+    path.write_text(yaml.safe_dump(doc, sort_keys=False))
+    return path
+
+
+def measure(url: str, added: list[Mass], seconds: float = 3.0) -> dict[str, Reading]:
+    """The sim rig with ``added`` on it brought to speed, streamed for ``seconds``; the
+    meter's readings as the procedure takes them (as the app does: ``as_reading``)."""
+    port = open_port(url)
+    try:
+        rig = port.rig
+        rig.set_masses(added)
+        rig.motor_start()
+        rig.advance_s(rig.scenario.motor.spin_up_s * 3)
+        profiles = [PickupProfile(p.name, sensitivity_v_per_g=e.sensitivity_v_per_g,
+                                  zero_g_v=e.zero_g_v)
+                    for p, e in zip(rig.scenario.rotor.pickups, rig.scenario.electrical,
+                                    strict=True)]
+        meter = LiveAnalyzer(profiles=profiles, unit="m/s2 pk",
+                             mains_hz=rig.scenario.motor.mains_hz, max_revs=100)
+        port.write(encode_frame("start", 1))
+        rig.advance_s(seconds)
+        port.write(encode_frame("stop", 2))
+        for item in StreamDecoder().feed(rig.take_output()):
+            if isinstance(item, Message):
+                meter.feed(item)
+        meter.end_of_stream()
+        return {r.sensor: r.as_reading() for r in meter.readings()}
+    finally:
+        port.close()
+
+
+class SimRig(Rig):
+    """The procedure's bench with every reading measured by the meter on the sim's stream;
+    ``check_url``: where the check run (a run after a correction) is measured."""
+
+    def __init__(self, check_url: str) -> None:
+        super().__init__("bench-grinder", Mode.TWO_PLANE)
+        self.url = "sim://bench-grinder?realtime=0&seed=11"
+        self.check_url = check_url
+        self.measured: list[dict[str, Reading]] = []
+
+    def run(self) -> None:
+        hidden = load_scenario("bench-grinder").as_found
+        added = [m for m in self.masses if m not in hidden]
+        corrected = any(m.kind == "correction" for m in self.proc.on_rotor)
+        self.proc.arm_run(True, self.t)
+        self.spin(2.0, self.setup.speed_rpm)
+        readings = measure(self.check_url if corrected else self.url, added)
+        self.measured.append(readings)
+        assert self.proc.ready(readings), readings
+        speed = statistics.fmean(r.speed_rpm or 0.0 for r in readings.values())
+        self.proc.record(readings, speed, self.t)
+        self.coast(self.setup.speed_rpm)
+
+
+@pytest.fixture(scope="module")
+def clipped_job(tmp_path_factory: pytest.TempPathFactory) -> SimRig:
+    folder = tmp_path_factory.mktemp("scenario")
+    rig = SimRig(f"sim://{rattling_copy(folder)}?realtime=0&seed=11")
+    rig.complete()
+    return rig
+
+
+def test_the_meter_flags_each_clipped_reading_and_only_those(clipped_job: SimRig) -> None:
+    proc = clipped_job.proc
+    kinds = [run.kind for run in proc.runs]
+    assert kinds[:3] == [RunKind.AS_FOUND, RunKind.TRIAL, RunKind.TRIAL]
+    assert RunKind.CHECK in kinds
+    for run, measured in zip(proc.runs, clipped_job.measured, strict=True):
+        rattled = run.kind is RunKind.CHECK
+        assert all(r.clipped is rattled for r in measured.values()), (run.label, measured)
+        # the run the procedure keeps carries the flag (the job file stores Reading.clipped)
+        assert all(r.clipped is rattled for r in run.readings.values())
+
+
+def test_a_clipped_check_run_never_passes(clipped_job: SimRig) -> None:
+    proc = clipped_job.proc
+    verdict = proc.verdict
+    assert verdict is not None and not verdict.passed
+    assert VerdictFlag.CLIPPED in verdict.flags
+    # without the flag the same readings would have passed: the 1x under the rattle is
+    # small (the correction worked), so only the flag stops a confidently wrong PASS
+    runs = [*proc.runs[:-1], replace(proc.runs[-1], readings={
+        n: replace(r, clipped=False) for n, r in proc.runs[-1].readings.items()})]
+    unflagged, _ = proc.engine.assess(proc.setup, runs, proc.removal)
+    assert unflagged.passed and VerdictFlag.CLIPPED not in unflagged.flags

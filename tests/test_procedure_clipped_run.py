@@ -27,7 +27,7 @@ from trueturn.dsp.units import PickupProfile
 from trueturn.link.codec import Message, StreamDecoder, encode_frame
 from trueturn.link.ports import open_port
 from trueturn.model import Reading, RunKind, VerdictFlag
-from trueturn.procedure.guide import Mode
+from trueturn.procedure.guide import CLIPPED_CHECK_RUN, GateRefused, Mode
 from trueturn.sim import Mass
 from trueturn.sim.scenario import load_scenario
 
@@ -73,13 +73,16 @@ def measure(url: str, added: list[Mass], seconds: float = 3.0) -> dict[str, Read
 
 class SimRig(Rig):
     """The procedure's bench with every reading measured by the meter on the sim's stream;
-    ``check_url``: where the check run (a run after a correction) is measured."""
+    ``check_url``: where the first check run (the first run after the correction) is
+    measured; later runs are measured on the grinder as it is (the loose part tightened)."""
 
     def __init__(self, check_url: str) -> None:
         super().__init__("bench-grinder", Mode.TWO_PLANE)
         self.url = "sim://bench-grinder?realtime=0&seed=11"
         self.check_url = check_url
         self.measured: list[dict[str, Reading]] = []
+        self.before = self.response()
+        self.checks = 0  # check runs measured so far
 
     def run(self) -> None:
         hidden = load_scenario("bench-grinder").as_found
@@ -87,7 +90,9 @@ class SimRig(Rig):
         corrected = any(m.kind == "correction" for m in self.proc.on_rotor)
         self.proc.arm_run(True, self.t)
         self.spin(2.0, self.setup.speed_rpm)
-        readings = measure(self.check_url if corrected else self.url, added)
+        first_check = corrected and not self.checks
+        self.checks += corrected
+        readings = measure(self.check_url if first_check else self.url, added)
         self.measured.append(readings)
         assert self.proc.ready(readings), readings
         speed = statistics.fmean(r.speed_rpm or 0.0 for r in readings.values())
@@ -96,33 +101,52 @@ class SimRig(Rig):
 
 
 @pytest.fixture(scope="module")
-def clipped_job(tmp_path_factory: pytest.TempPathFactory) -> SimRig:
+def rattled(tmp_path_factory: pytest.TempPathFactory) -> SimRig:
+    """The two-plane job up to the check run taken while the loose part rattled."""
     folder = tmp_path_factory.mktemp("scenario")
     rig = SimRig(f"sim://{rattling_copy(folder)}?realtime=0&seed=11")
-    rig.complete()
+    for _ in range(20):
+        if rig.proc.problem or rig.proc.step.kind == "verdict":
+            break
+        kind = rig.proc.step.kind
+        if kind == "hands-on":
+            rig.hands_on()
+        elif kind == "run":
+            rig.run()
+        else:
+            rig.proc.accept_correction()
     return rig
 
 
-def test_the_meter_flags_each_clipped_reading_and_only_those(clipped_job: SimRig) -> None:
-    proc = clipped_job.proc
-    kinds = [run.kind for run in proc.runs]
-    assert kinds[:3] == [RunKind.AS_FOUND, RunKind.TRIAL, RunKind.TRIAL]
-    assert RunKind.CHECK in kinds
-    for run, measured in zip(proc.runs, clipped_job.measured, strict=True):
-        rattled = run.kind is RunKind.CHECK
-        assert all(r.clipped is rattled for r in measured.values()), (run.label, measured)
+def test_the_meter_flags_each_clipped_reading_and_only_those(rattled: SimRig) -> None:
+    proc = rattled.proc
+    assert [run.kind for run in proc.runs] == [RunKind.AS_FOUND, RunKind.TRIAL, RunKind.TRIAL,
+                                               RunKind.CHECK]
+    for run, measured in zip(proc.runs, rattled.measured, strict=True):
+        rattling = run.kind is RunKind.CHECK
+        assert all(r.clipped is rattling for r in measured.values()), (run.label, measured)
         # the run the procedure keeps carries the flag (the job file stores Reading.clipped)
-        assert all(r.clipped is rattled for r in run.readings.values())
+        assert all(r.clipped is rattling for r in run.readings.values())
 
 
-def test_a_clipped_check_run_never_passes(clipped_job: SimRig) -> None:
-    proc = clipped_job.proc
-    verdict = proc.verdict
-    assert verdict is not None and not verdict.passed
-    assert VerdictFlag.CLIPPED in verdict.flags
-    # without the flag the same readings would have passed: the 1x under the rattle is
-    # small (the correction worked), so only the flag stops a confidently wrong PASS
+def test_a_clipped_check_run_is_neither_passed_nor_trimmed_from(rattled: SimRig) -> None:
+    proc = rattled.proc
+    # the engine withholds the pass (VerdictFlag.CLIPPED) ...
+    verdict, _ = proc.engine.assess(proc.setup, proc.runs, proc.removal)
+    assert not verdict.passed and VerdictFlag.CLIPPED in verdict.flags
+    # ... which without the flag the same readings would have had: the 1x under the rattle
+    # is small (the correction worked), so only the flag stops a confidently wrong PASS
     runs = [*proc.runs[:-1], replace(proc.runs[-1], readings={
         n: replace(r, clipped=False) for n, r in proc.runs[-1].readings.items()})]
     unflagged, _ = proc.engine.assess(proc.setup, runs, proc.removal)
     assert unflagged.passed and VerdictFlag.CLIPPED not in unflagged.flags
+    # the procedure gives no verdict and no trim from it: the run is measured again
+    assert proc.step.kind == "correction" and proc.problem == CLIPPED_CHECK_RUN
+    assert proc.verdict is None and proc.trims_done == 0
+    with pytest.raises(GateRefused, match="no correction"):
+        proc.accept_correction()
+    proc.repeat_run()
+    rattled.run()   # the loose part tightened: the same rotor measured cleanly
+    assert not any(r.clipped for r in proc.runs[-1].readings.values())
+    assert proc.verdict is not None and proc.verdict.passed
+    rattled.assert_cut(rattled.before)

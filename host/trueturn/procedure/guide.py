@@ -93,6 +93,11 @@ RESUME_CHECK_TITLE = "Resumed job: check the rotor"
 MODEL_SWEEP_LOST = ("the model needs the as-found run's coast-down, which was not recorded "
                     "before the app closed: run the machine as found once more and let it "
                     "coast down")
+#: a check run with a clipped reading (a pickup reached an ADC rail: its 1x reads low) can
+#: neither be judged nor trimmed from: it is measured again once the cause is fixed
+CLIPPED_CHECK_RUN = ("a pickup's signal reached the end of the ADC's range in this run, so "
+                     "its 1x reads low and neither a verdict nor a trim can come from it: "
+                     "reduce that pickup's gain (or find what rattles) and measure again")
 
 DEFAULT_STANDSTILL_S = 3.0
 DEFAULT_RUNAWAY_FACTOR = 3.0
@@ -1359,6 +1364,11 @@ class Procedure:
         # A check run: verdict, and the trim still needed.
         try:
             verdict, trim = self._assess()
+            if VerdictFlag.CLIPPED in verdict.flags:
+                # a trim from a reading that reads low would be wrong too: measure again
+                self.step = ShowCorrection("Check run not usable")
+                self.problem = CLIPPED_CHECK_RUN
+                return
             self.verdict = self._whole_machine(verdict, run)
         except ModelRefuted as exc:
             self._model_refuted(exc)

@@ -349,10 +349,13 @@ def from_data(cls: type, data: Any, source: str, path: str = "") -> Any:
 def to_data(obj: Any) -> Any:
     """Plain dicts/lists/numbers of a dataclass tree, in field order; ``None`` left out where
     the field has a default (a required field that may be null is written as null); an
-    enum as its value."""
+    enum as its value; a field marked ``metadata={"transient": True}`` (known in memory
+    only) left out."""
     if dataclasses.is_dataclass(obj) and not isinstance(obj, type):
         out: dict[str, Any] = {}
         for f in dataclasses.fields(obj):
+            if f.metadata.get("transient"):
+                continue
             value = getattr(obj, f.name)
             required = (f.default is dataclasses.MISSING
                         and f.default_factory is dataclasses.MISSING)

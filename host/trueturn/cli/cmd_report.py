@@ -60,6 +60,11 @@ def run(args: argparse.Namespace) -> int:
     if args.csv:
         check_output(args.csv)
     job = workspace.load_job(args.job)
+    for run in job.runs:
+        for sw in run.sweeps:
+            if sw.points_problem is not None:  # the report says it too, in place of the plot
+                print(f"note: the {sw.kind} of run {run.index} is reported without its plot: "
+                      f"{one_line(sw.points_problem)}", file=sys.stderr)
     fmt = args.format
     if fmt is None:
         fmt = "md" if args.output and Path(args.output).suffix.lower() == ".md" else "html"

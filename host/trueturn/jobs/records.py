@@ -362,9 +362,38 @@ class SweepEntry:
     unit: str = field(metadata=limits(nonempty=True))
     low_rpm: float = field(metadata=limits(above=0))
     high_rpm: float = field(metadata=limits(above=0))
-    points: list[SweepPointEntry] = field(metadata=limits(nonempty=True))
+    #: the points; in the job file only when ``points_file`` is not given (files before it,
+    #: or a job saved while a side file could not be written)
+    points: list[SweepPointEntry] = field(default_factory=list)
     resonances: list[ResonanceEntry] = field(default_factory=list)
     balancing_rpm: float | None = field(default=None, metadata=limits(above=0))
+    #: the side file beside the job that holds the points (:class:`SweepPointsFile`), written
+    #: once when the sweep was kept, so a save of the job does not grow with its sweeps
+    points_file: str | None = field(default=None, metadata=limits(nonempty=True))
+    #: why the points could not be read from ``points_file`` (never saved; set on loading)
+    points_problem: str | None = field(default=None, init=False, compare=False,
+                                       metadata={"transient": True})
+
+    def _checks(self) -> list[tuple[str, str]]:
+        problems: list[tuple[str, str]] = []
+        if self.points_file is None and not self.points:
+            problems.append(("points", "must not be empty (or give points_file)"))
+        name = self.points_file
+        if name is not None and (name != name.strip() or name.startswith(".")
+                                 or any(c in name for c in "/\\:\0")):
+            problems.append(("points_file", f"must be a file name beside the job, got {name!r}"))
+        return problems
+
+
+@dataclass
+class SweepPointsFile:
+    """The points of one kept sweep, in a side file beside its job (``kind: sweep``):
+    which job, run and sweep they belong to, and the points as :class:`SweepEntry` has them."""
+
+    job_id: str = field(metadata=limits(nonempty=True))
+    run: int = field(metadata=limits(minimum=1))
+    sweep: Literal["coastdown", "runup"]
+    points: list[SweepPointEntry] = field(metadata=limits(nonempty=True))
 
 
 @dataclass

@@ -940,8 +940,13 @@ def sweep_section(job: JobRecord) -> list[str]:
     parts = ['<h2 id="sweeps">Coast-down and run-up sweeps</h2>']
     warnings: list[str] = []
     for run, sw in kept:
-        sweep = sweep_of(sw)
         title = f"{SWEEP_KIND_WORDS[sw.kind]} run {run.index}"
+        if not sw.points:  # its side file could not be read (the job still loads)
+            parts.append(f'<p class="note warning">No plot of the {_e(title)}: its points '
+                         f'could not be read ({_e(sw.points_problem or "not kept")}); its '
+                         'resonances below are as found when it was kept.</p>')
+            continue
+        sweep = sweep_of(sw)
         parts.append(f'<figure class="sweep-fig">'
                      f'{sweep_svg(sweep, title, job.machine.rotation, SWEEP_FONT_PX)}'
                      f'<figcaption>Bode plot (1x amplitude and phase lag against speed) and '

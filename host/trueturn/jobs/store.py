@@ -5,6 +5,7 @@ Layout (``root`` is the workspace folder)::
     machines/<machine-slug>.yaml               machine profile
     machines/<machine-slug>.coefficients.yaml  saved influence coefficients, one set per speed
     jobs/<job-id>.yaml                         job record (a copy of the profile inside)
+    jobs/<job-id>.run-<n>-<sweep>.sweep.yml    the points of a kept sweep (beside its job)
 
 Every file starts with ``schema_version`` and ``kind``. Files written by an older version are
 migrated on load (``MIGRATIONS``); files from a newer version are refused with one line.
@@ -21,7 +22,7 @@ import os
 import re
 import sys
 import time
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
@@ -44,6 +45,7 @@ from trueturn.jobs.records import (
     SecondStartEntry,
     StopEntry,
     SweepEntry,
+    SweepPointsFile,
     UnbalanceEntry,
     VerdictEntry,
     WentOnEntry,
@@ -91,7 +93,7 @@ def _job_1_to_2(data: dict[str, Any]) -> dict[str, Any]:
 #: ``MIGRATIONS[kind][n]`` turns the data of a version-``n`` file into version ``n + 1``.
 MIGRATIONS: dict[str, dict[int, Migration]] = {
     "machine": {1: _machine_1_to_2}, "job": {1: _job_1_to_2},
-    "coefficients": {1: lambda data: data}}
+    "coefficients": {1: lambda data: data}, "sweep": {1: lambda data: data}}
 
 WORKSPACE_ENV = "TRUETURN_WORKSPACE"
 
@@ -127,12 +129,14 @@ _KIND_CLASS: dict[str, type] = {
     "machine": MachineProfile,
     "job": JobRecord,
     "coefficients": CoefficientFile,
+    "sweep": SweepPointsFile,
 }
 
 _HEADERS = {
     "machine": "trueturn machine profile. Angles from the reference mark against rotation.",
     "job": "trueturn job record, saved after every run. Edit with care: the tool checks it.",
     "coefficients": "trueturn saved influence coefficients (amp per gram, phase_deg).",
+    "sweep": "trueturn sweep points of one run, kept beside its job file. Keep them together.",
 }
 
 
@@ -196,6 +200,66 @@ def write_document(path: Path, kind: str, obj: Any) -> Path:
     data = to_data(obj)
     from_data(_KIND_CLASS[kind], data, f"{path} (not saved)")  # the same checks as loading
     return atomic_write_text(path, _document_text_of_data(kind, data))
+
+
+# --------------------------------------------------------------------------------------------
+# Sweep points beside their job (issue #20): written once, so a job's save stays small
+
+SWEEP_POINTS_SUFFIX = ".sweep.yml"  # not *.yaml: never taken for a job in the jobs folder
+
+
+def sweep_points_name(job_path: Path, run_index: int, kind: str) -> str:
+    """The file name, beside the job file ``job_path``, of one kept sweep's points."""
+    return f"{job_path.stem}.run-{run_index}-{kind}{SWEEP_POINTS_SUFFIX}"
+
+
+def _write_sweep_points(job: JobRecord, target: Path) -> None:
+    """Write the points of each sweep held in memory whose side file beside ``target`` is
+    not there yet (a sweep just kept, a job saved in another folder), atomically and before
+    the job that names it, so a job file only ever names side files that were written; each
+    is written once, and a later save of the job costs a file check per sweep."""
+    for run in job.runs:
+        for sw in run.sweeps:
+            if not sw.points:
+                continue  # its side file could not be read: the job keeps naming it
+            name = sweep_points_name(target, run.index, sw.kind)
+            if sw.points_file == name and (target.parent / name).is_file():
+                continue
+            write_document(target.parent / name, "sweep",
+                           SweepPointsFile(job.job_id, run.index, sw.kind, sw.points))
+            sw.points_file = name
+
+
+def _without_kept_points(job: JobRecord) -> JobRecord:
+    """``job`` as its file holds it: the points of a sweep kept in a side file left out."""
+    if not any(sw.points_file and sw.points for run in job.runs for sw in run.sweeps):
+        return job
+    runs = [replace(run, sweeps=[replace(sw, points=[]) if sw.points_file else sw
+                                 for sw in run.sweeps]) if run.sweeps else run
+            for run in job.runs]
+    return replace(job, runs=runs)
+
+
+def _read_sweep_points(job: JobRecord, path: Path) -> None:
+    """Fill in the points of each sweep of ``job`` (read from ``path``) from its side file;
+    one that cannot be read, or belongs to another job, run or sweep, leaves the sweep
+    without points and says why in one line (``points_problem``): the job itself loads."""
+    for run in job.runs:
+        for sw in run.sweeps:
+            if sw.points or sw.points_file is None:
+                continue
+            side = path.parent / sw.points_file
+            try:
+                kept: SweepPointsFile = read_document(side, "sweep")
+            except UserError as exc:
+                sw.points_problem = str(exc)
+                continue
+            if (kept.job_id, kept.run, kept.sweep) != (job.job_id, run.index, sw.kind):
+                sw.points_problem = (f"{side}: holds the {kept.sweep} of run {kept.run} of job "
+                                     f"{kept.job_id}, not the {sw.kind} of run {run.index} "
+                                     f"of job {job.job_id}")
+                continue
+            sw.points = kept.points
 
 
 # --------------------------------------------------------------------------------------------
@@ -367,11 +431,15 @@ class Workspace:
         before = job.updated
         job.updated = now_iso()
         target = Path(path) if path is not None else self.path_of(job)
+        named = [(sw, sw.points_file) for run in job.runs for sw in run.sweeps]
         try:
             self._own_folder(target)
-            written = write_document(target, "job", job)
+            _write_sweep_points(job, target)
+            written = write_document(target, "job", _without_kept_points(job))
         except BaseException:
             job.updated = before
+            for sw, name in named:
+                sw.points_file = name
             raise
         remove_stale_temps(target.parent)
         return written
@@ -396,6 +464,7 @@ class Workspace:
         otherwise) is held there, so saving it writes that file back."""
         path = self.find_job(ref)
         job: JobRecord = read_document(path, "job")
+        _read_sweep_points(job, path)
         if path.parent.resolve() != self.jobs_dir.resolve() or path.stem != job.job_id:
             self._held[id(job)] = (job, path)
         return job
@@ -547,7 +616,7 @@ class Workspace:
         found: list[JobSummary] = []
         unreadable: list[tuple[Path, str]] = []
         try:
-            paths = sorted(self.jobs_dir.glob("*.yaml"))
+            paths = sorted(self.jobs_dir.glob("*.yaml"))  # not the sweeps' *.sweep.yml
         except OSError as exc:
             raise UserError(f"cannot list {self.jobs_dir}: {exc.strerror or exc}") from None
         for path in paths:

@@ -18,20 +18,24 @@ import math
 import re
 from pathlib import Path
 
+import pytest
 import yaml
 
 from cli_helpers import run_cli
+from test_jobs_sweep_points import Writes
 from test_ui_app import (
     SIZE,
     connect,
+    make_app,
     press,
     screen_text,
+    shows,
     through_hands_on_gates,
     wait_for,
     widget_text,
 )
 from trueturn.jobs.report import html_report
-from trueturn.jobs.store import read_document
+from trueturn.jobs.store import Workspace, read_document
 from trueturn.sim.scenario import scenario_dir
 from trueturn.ui.app import AppConfig, TrueturnApp
 from trueturn.ui.launch import scenario_profile
@@ -89,7 +93,7 @@ def test_a_coast_down_is_kept_shown_and_reported_with_its_resonance(tmp_path: Pa
             assert len(lines) <= view.content_size.height, text
             assert view.region.bottom <= SIZE[1] - 1  # the footer's line stays free
             # kept with the run it followed, in the job file
-            job = read_document(app.keeper.path, "job")
+            job = Workspace(tmp_path / "ws").load_job(app.keeper.path)
             sweeps = {s.kind: s for s in job.runs[0].sweeps}
             kept = sweeps["coastdown"]
             assert len(kept.points) >= 20  # the issue: >= 20 points on a full coast-down
@@ -148,3 +152,54 @@ def test_a_balancing_speed_near_a_resonance_is_warned_in_the_guide(tmp_path: Pat
                            widget_text(app, "sweep-view"), 10)
             await press(app, pilot, "q")
     asyncio.run(scenario())
+
+
+def test_a_runs_end_saves_the_job_once_and_a_resumed_job_keeps_its_sweeps(
+        tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # the run and the run-up that led to it are kept in one save of the job (one atomic
+    # write, its run-up's points written once beside it); counted, never timed
+    writes = Writes(monkeypatch)
+
+    async def first() -> None:
+        app = make_app("bench-grinder", tmp_path)
+        async with app.run_test(size=SIZE) as pilot:
+            await connect(app, pilot)
+            await press(app, pilot, "2")
+            await through_hands_on_gates(app, pilot)
+            proc = app.procedure
+            assert proc is not None and app.keeper.path is not None
+            job_name = app.keeper.path.name
+            stem = app.keeper.path.stem
+            writes.names.clear()
+            await press(app, pilot, "enter")  # arm the as-found run: the motor starts
+            await wait_for(pilot, lambda: len(proc.runs) == 1, 120)
+            # the run is recorded and saved in the same refresh
+            assert writes.names == [f"{stem}.run-1-runup.sweep.yml", job_name]
+            job = read_document(app.keeper.path, "job")
+            assert [s.kind for s in job.runs[0].sweeps] == ["runup"]
+            await press(app, pilot, "x")  # the motor off: the coast-down is kept at standstill
+            await wait_for(pilot, lambda: app.sweep_shown is not None
+                           and app.sweep_shown.outcome.kind == "coastdown", 180)
+            assert writes.names[2:] == [f"{stem}.run-1-coastdown.sweep.yml", job_name]
+            await press(app, pilot, "q")
+
+    async def second() -> None:
+        app = make_app("bench-grinder", tmp_path)  # the same workspace: the job is offered
+        async with app.run_test(size=SIZE) as pilot:
+            await connect(app, pilot)
+            await shows(app, pilot, "Open job")
+            await press(app, pilot, "enter")
+            await wait_for(pilot, lambda: app.procedure is not None, 10)
+            job = app.keeper.job
+            assert job is not None and len(job.runs) == 1
+            kept = {s.kind: s for s in job.runs[0].sweeps}
+            assert sorted(kept) == ["coastdown", "runup"]
+            assert all(s.points and s.points_problem is None for s in kept.values())
+            assert len(kept["coastdown"].points) >= 20  # the issue: >= 20 on a coast-down
+            report = html_report(job)
+            assert report.count('<figure class="sweep-fig">') == 2
+            assert "No plot of the" not in report
+            await press(app, pilot, "q")
+
+    asyncio.run(first())
+    asyncio.run(second())

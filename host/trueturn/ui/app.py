@@ -956,9 +956,12 @@ class TrueturnApp(App):
                 condition = self.session.machine_condition()
                 self.condition = texts.condition_lines(*condition, as_found=(
                     run.kind is RunKind.AS_FOUND))
+            # the run-up ends, the coast-down follows; the run is kept with its run-up in
+            # one save
+            runup = self.session.start_sweep()
             if run is not proc.second_start:
-                self.keeper.run(proc, run, condition)
-            self.start_sweep(run, coasting=True)  # the run-up ends, the coast-down follows
+                self.keeper.run(proc, run, condition, runup)
+            self.start_sweep(run, coasting=True, ended=runup)
             if condition is not None and run.kind is RunKind.AS_FOUND:
                 self.as_found_condition = condition
                 proc.as_found_judged(failing_rules(condition[1]))
@@ -975,20 +978,24 @@ class TrueturnApp(App):
                 self.message += f" {note}"
 
     # ---- sweeps (issue #20) ---------------------------------------------------------------
-    def start_sweep(self, run: Run | None, coasting: bool) -> None:
+    def start_sweep(self, run: Run | None, coasting: bool,
+                    ended: SweepOutcome | None = None) -> None:
         """Keep each revolution's 1x from now: a run-up (at arming, ``run`` None) or the
         coast-down after ``run``; the recording going on till now is finished and kept
-        first (at ``run``'s end: its run-up, kept with it)."""
-        if run is not None:
+        first; at ``run``'s end the recording was already finished (``ended``, its run-up)
+        and kept with the run (:meth:`JobKeeper.run`), here only shown."""
+        if run is None:
+            self.keep_sweep(self.session.start_sweep())
+            self.sweep_run, self.sweep_label = None, ""
+        else:
             job = self.keeper.job
             proc = self.procedure
             kept = job is not None and bool(job.runs) and (
                 proc is None or run is not proc.second_start)
             self.sweep_run = len(job.runs) if kept and job is not None else None
             self.sweep_label = run.label
-        self.keep_sweep(self.session.start_sweep())
-        if run is None:
-            self.sweep_run, self.sweep_label = None, ""
+            if ended is not None:
+                self.sweep_shown = ShownSweep(ended, run.label)
         self.sweep_coasting = coasting
 
     def keep_sweep(self, outcome: SweepOutcome | None) -> None:

@@ -219,9 +219,11 @@ class JobKeeper:
         self.path = self._save("record_pending", self.job, step, self._where()) or self.path
 
     def run(self, proc: Procedure, run: Run,
-            condition: tuple[Sequence[Severity], Sequence[Finding]] | None = None) -> None:
+            condition: tuple[Sequence[Severity], Sequence[Finding]] | None = None,
+            runup: SweepOutcome | None = None) -> None:
         """Keep a completed run; ``condition``: the machine's severity and the unbalance
-        verdict measured in it (as found and check runs)."""
+        verdict measured in it (as found and check runs); ``runup``: the run-up that led to
+        it (issue #20), kept with it in the same save."""
         if self.job is None:
             return
         kind = run.kind or RunKind.CHECK  # the procedure says why it ran
@@ -244,13 +246,16 @@ class JobKeeper:
                     kit.proven_best if kit else None))
         events = [rec.Event(rec.now_iso(), e.kind, e.detail) for e in run.events]
         confirmations = self._new_confirmations(proc)
+        runups = [sweep_entry(runup)] if runup is not None else []
+        runups = [s for s in runups if s.points]
         assert run.speed_rpm is not None  # Procedure.record: every run has its measured speed
         record = rec.RunEntry(index=self.job.next_run_index, kind=kind,
                               time=rec.now_iso(), speed_rpm=run.speed_rpm, readings=readings,
                               label=run.label, confirmations=confirmations,
                               corrections=corrections, events=events,
                               notes="; ".join(run.forces_confirmed),
-                              replaces=proc.last_replaced)
+                              replaces=proc.last_replaced,
+                              sweeps=runups)
         if condition is not None:
             record.severity = severity_entries(condition[0])
             record.unbalance = unbalance_entry(condition[1])

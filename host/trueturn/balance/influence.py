@@ -619,13 +619,16 @@ def _corrections(planes: Sequence[Plane], c: np.ndarray,
     return out
 
 
-def solve_with_phase(inp: BalanceInput) -> Solution:
+def solve_with_phase(inp: BalanceInput, *, uncertainty: bool = True) -> Solution:
     """Corrections from phase-and-amplitude readings (fresh coefficients or a saved-set trim).
 
     Parameters
     ----------
     inp : BalanceInput
         The checked input with phase readings; ``influence`` given for a trim.
+    uncertainty : bool, default True
+        Draw the Monte Carlo half-widths; False leaves them out (None), for a re-solve that
+        only wants the corrections themselves (the speed error estimate's).
 
     Returns
     -------
@@ -698,7 +701,7 @@ def solve_with_phase(inp: BalanceInput) -> Solution:
                         f"{mass_text(abs(free[j]), inp.mass_unit)})")
     if not inp.influence:
         warnings += _trial_warnings(inp, r0, model)
-    drawn = _uncertainty(inp, fit, c, weights, limits, model, planes)
+    drawn = _uncertainty(inp, fit, c, weights, limits, model, planes) if uncertainty else None
     pm = drawn[:2] if drawn is not None else None
     residual_now = residual_unbalance_vectors_gmm(model, inp.runs[-1], planes, weights)
     predicted = r0 + matrix @ c

@@ -10,6 +10,7 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass, field, replace
+from functools import partial
 
 import numpy as np
 
@@ -97,7 +98,9 @@ def solve(inp: BalanceInput) -> SolveReport:
                  if off else None)
     else:
         solution = solver(inp)
-        speed = speed_error_estimate(inp, solution, solver)
+        # its re-solves want the corrections only: not the Monte Carlo half-widths again
+        quick = partial(solve_with_phase, uncertainty=False) if inp.has_phase else solver
+        speed = speed_error_estimate(inp, solution, quick)
     rotor_kg = inp.tolerance.rotor_mass_kg if inp.tolerance is not None else None
     findings = check_corrections([c.mass_g for c in solution.corrections],
                                  [c.plane for c in solution.corrections], rotor_kg)

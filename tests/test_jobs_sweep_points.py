@@ -244,3 +244,16 @@ def test_sigkill_while_keeping_sweeps_never_names_a_missing_side_file(tmp_path: 
                       kill_points.AFTER_RENAME}
     final = ws.load_job(job.job_id)
     assert all(sw.points for run in final.runs for sw in run.sweeps)
+
+
+def test_a_job_saved_in_another_folder_takes_its_sweeps_with_it(tmp_path: Path) -> None:
+    # as the app's "save elsewhere" after a storage fault (JobKeeper.move_to): the side
+    # files are written again beside the job's new file, from the points in memory
+    ws = Workspace(tmp_path / "ws")
+    job = ws.new_job(lathe(), when="2026-11-30T12:00:00Z")
+    ws.append_run(job, with_runup(1))
+    elsewhere = Workspace(tmp_path / "usb")
+    (tmp_path / "usb").mkdir()
+    moved = elsewhere.save_job(job, tmp_path / "usb" / "fan.yaml")
+    assert (tmp_path / "usb" / "fan.run-1-runup.sweep.yml").is_file()
+    assert bare(elsewhere.load_job(moved).runs[0].sweeps) == [make_sweep("runup", 1)]

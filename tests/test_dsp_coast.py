@@ -144,7 +144,7 @@ def test_the_job_keeps_a_sweep_with_its_run_and_never_half_writes_it(tmp_path: P
                                                  for r in sweep.resonances))
     entry = sweep_entry(SweepOutcome("coastdown", renamed, 1420.0, ()))
     path = ws.record_sweep(job, 1, entry)
-    again = read_document(path, "job")
+    again = ws.load_job(path)  # the points read back from their side file beside the job
     kept = again.runs[0].sweeps[0]
     assert kept == entry
     assert sweep_of(kept).resonances == renamed.resonances

@@ -230,6 +230,22 @@ def _write_sweep_points(job: JobRecord, target: Path) -> None:
             sw.points_file = name
 
 
+def _as_new(sweeps: list[SweepEntry]) -> list[tuple[SweepEntry, str | None]]:
+    """Sweeps handed to the store are new: their points are written (and checked) whatever
+    side file an entry copied from another names; returns the names, to put back if the
+    save fails."""
+    named = [(sw, sw.points_file) for sw in sweeps]
+    for sw in sweeps:
+        if sw.points:
+            sw.points_file = None
+    return named
+
+
+def _named_again(named: list[tuple[SweepEntry, str | None]]) -> None:
+    for sw, name in named:
+        sw.points_file = name
+
+
 def _without_kept_points(job: JobRecord) -> JobRecord:
     """``job`` as its file holds it: the points of a sweep kept in a side file left out."""
     if not any(sw.points_file and sw.points for run in job.runs for sw in run.sweeps):
@@ -481,6 +497,7 @@ class Workspace:
             raise UserError(f"job {job.job_id} is closed; start a new job to measure again")
         before = (job.pending, job.updated, run.changes, run.confirmations, run.notes,
                   run.events)
+        named = _as_new(run.sweeps)
         if job.pending is not None:
             run.changes = job.pending.changes + run.changes
             run.confirmations = job.pending.confirmations + run.confirmations
@@ -495,6 +512,7 @@ class Workspace:
             job.runs.pop()
             (job.pending, job.updated, run.changes, run.confirmations, run.notes,
              run.events) = before
+            _named_again(named)
             raise
 
     def record_sweep(self, job: JobRecord, run_index: int, sweep: SweepEntry,
@@ -507,11 +525,13 @@ class Workspace:
             raise ValueError(f"run {run_index} is not recorded in job {job.job_id}")
         run = job.runs[run_index - 1]
         before = list(run.sweeps)
+        named = _as_new([sweep])
         run.sweeps = [*(s for s in run.sweeps if s.kind != sweep.kind), sweep]
         try:
             return self.save_job(job, path)
         except BaseException:
             run.sweeps = before
+            _named_again(named)
             raise
 
     def record_pending(self, job: JobRecord, pending: PendingStep,

@@ -781,6 +781,7 @@ def _model_first_figures() -> list[Row]:
         said = [r for r in results if r["runs"] <= MAX_RUNS]
         false_pass = float(np.mean([not r["true_pass"] for r in said])) if said else 0.0
         trusted = float(np.mean([r["trusted"] for r in results]))
+        refuted = float(np.mean([r["refuted"] for r in results]))
         rows_out += [
             Row(f"balance [model first]: runs to reach G {GRADE:g}, {words} (median)",
                 f"{np.median(runs):g} runs", f"median {goal}", bool(np.median(runs) <= goal)),
@@ -788,6 +789,8 @@ def _model_first_figures() -> list[Row]:
                 f"{np.percentile(runs, 95):g} runs", "-", None),
             Row(f"balance [model first]: {words}, rotors whose model was trusted (no trial run)",
                 f"{100 * trusted:.0f} %", "-", None),
+            Row(f"balance [model first]: {words}, rotors whose model a run refuted (its masses "
+                "off, trials followed)", f"{100 * refuted:.0f} %", "-", None),
             Row(f"balance [model first]: {words}, 1x reduction after the first correction (median)",
                 f"{100 * np.median(first):.1f} %", "-", None),
             Row(f"balance [model first]: {words}, said within G {GRADE:g} but the true residual "

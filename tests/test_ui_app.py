@@ -215,7 +215,9 @@ async def follow_the_screens(app: TrueturnApp, pilot: Pilot, mode_key: str,
                 or "none added" in screen_text(app)
             runs = len(proc.runs)
             await key("enter")
-            await wait_for(pilot, lambda n=runs: len(proc.runs) > n)
+            # kept and on to the next step (a run kept is one more run; model-first, a
+            # run that refutes the model sets the model's runs aside)
+            await wait_for(pilot, lambda n=runs: len(proc.runs) > n or proc.step.kind != "run")
         elif step.kind == "correction" and proc.awaiting_sweep:
             # model-first: its coast-down comes first (the demo's motor is switched off)
             assert "needs this run's coast-down" in screen_text(app)

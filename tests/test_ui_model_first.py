@@ -24,7 +24,8 @@ from trueturn.ui.app import AppConfig, TrueturnApp
 from trueturn.ui.launch import scenario_profile
 
 
-def grinder_app(tmp_path: Path, angles: bool = True) -> TrueturnApp:
+def grinder_app(tmp_path: Path, angles: bool = True,
+                angle_error_deg: float = 0.0) -> TrueturnApp:
     """The demo grinder as shipped, its spin-up shortened (the coast-down kept: the sweep)."""
     raw = yaml.safe_load((scenario_dir() / "bench-grinder.yaml").read_text(encoding="utf-8"))
     raw["motor"]["spin_up_s"] = 1.0
@@ -34,6 +35,10 @@ def grinder_app(tmp_path: Path, angles: bool = True) -> TrueturnApp:
     if not angles:
         profile = replace(profile, pickups=[replace(k, angle_from_tach_deg=None)
                                             for k in profile.pickups])
+    if angle_error_deg:
+        profile = replace(profile, pickups=[
+            replace(k, angle_from_tach_deg=((k.angle_from_tach_deg or 0.0) + angle_error_deg)
+                    % 360.0) for k in profile.pickups])
     config = AppConfig(f"sim://{path}?realtime=0&motor=off", profile, demo=True,
                        workspace=tmp_path / "ws")
     return TrueturnApp(config)
@@ -120,3 +125,30 @@ def test_every_reason_the_model_is_not_trusted_has_words() -> None:
     assert {d.value for d in Distrust} <= set(texts.DISTRUST_WORDS)
     line = texts.model_refused(("refuted",))
     assert "masses come off" in line and "trial run" in line
+
+
+def test_a_check_run_that_refutes_the_model_in_the_app(tmp_path: Path) -> None:
+    # the profile's pickup angles mis-measured by 150 deg: the model is sure of a wrong
+    # correction; the check run's 1x falls far outside its prediction, the app says the
+    # model is dropped and why, the next hands-on step takes the model's parts off with
+    # the trial, and trials lead to a PASS the physics agrees with
+    async def scenario() -> None:
+        app = grinder_app(tmp_path, angle_error_deg=150.0)
+        async with app.run_test(size=SIZE) as pilot:
+            await connect(app, pilot)
+            before = unbalance_now(app)
+            seen: list[str] = []
+            await follow_the_screens(app, pilot, "5", seen)
+            proc = app.procedure
+            assert proc is not None and proc.model is not None
+            assert proc.model.refuted_at is not None and not proc.model.trusted
+            assert any("From the model, no trial run" in s for s in seen)
+            assert any("check run's 1x fell far outside its prediction" in s for s in seen)
+            assert [r.label for r in proc.runs][:3] == ["as found", "trial left-wheel",
+                                                        "trial right-wheel"]
+            assert proc.verdict is not None and proc.verdict.passed
+            assert unbalance_now(app) < 0.1 * before
+            job = read_document(app.keeper.path, "job")
+            assert job.verdict.passed and len(job.runs) > len(proc.runs)   # the record keeps it
+            await press(app, pilot, "q")
+    asyncio.run(scenario())

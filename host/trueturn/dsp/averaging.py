@@ -102,6 +102,46 @@ def confidence_radius(scatter_var: float, n: int, level: float = 0.95) -> float:
     return math.sqrt(f_quantile(level, 2, 2 * n - 2) * scatter_var / n)
 
 
+def combined_radius(vector: VectorStats, extra_variance: float, level: float = 0.95) -> float:
+    """The confidence radius of a mean whose error also holds a part the scatter cannot show.
+
+    The scatter gives ``s^2 / n``, the mean's complex variance (:func:`confidence_radius`); a
+    part common to all the vectors (the hum fit's error, :mod:`trueturn.dsp.order`) with a
+    largest variance ``v`` along any direction adds at most ``2 v`` to it. The radius is
+    ``sqrt(F_level(2, 2n - 2) (s^2 / n + 2 v))``: for circular Gaussian parts it is exact
+    but for the F quantile, which the scatter's degrees of freedom make a little wider than
+    needed for the other part (conservative).
+
+    Parameters
+    ----------
+    vector : VectorStats
+        The statistics of the vectors (:func:`vector_stats`).
+    extra_variance : float
+        ``v``, in the vectors' unit squared (0: the scatter's radius as it is).
+    level : float, default 0.95
+        Coverage of the circle.
+
+    Returns
+    -------
+    float
+        The radius, in the vectors' unit; infinite below two vectors.
+
+    References
+    ----------
+    .. [1] Circular T^2 statistic: J. D. Victor, J. Mast, Electroencephalogr. Clin.
+       Neurophysiol. 78 (1991) 378-388 (from memory); variances of independent parts add.
+    .. [2] S. M. Kay, "Fundamentals of Statistical Signal Processing: Estimation Theory",
+       Prentice Hall, 1993, ch. 4 and 8 (the fit's covariance; from memory).
+    """
+    n = vector.revolutions
+    if n < 2 or not math.isfinite(vector.confidence_radius):
+        return math.inf
+    if not extra_variance > 0:
+        return vector.confidence_radius
+    quantile = f_quantile(level, 2, 2 * n - 2)
+    return math.sqrt(vector.confidence_radius ** 2 + quantile * 2.0 * extra_variance)
+
+
 def subtended_deg(radius: float, amplitude: float) -> float:
     """Half-angle that a circle of ``radius`` around a point ``amplitude`` from 0 subtends.
 

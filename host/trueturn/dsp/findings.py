@@ -56,6 +56,7 @@ class Code(str, Enum):
     PHASE_UNCERTAIN = "phase_uncertain"              # phase confidence above the aim
     NOT_ABOVE_SCATTER = "not_above_scatter"          # the 95 % circle covers the origin
     ORDER_ON_MAINS = "order_on_mains"                # an order too close to a hum frequency
+    #                                                  (blocks the 1x when the line is dropped)
     HALF_ORDER = "half_order"                        # a line at 0.5x: averaged over rev pairs
     NO_SPEED_LINE = "no_speed_line"                  # no tach, and no steady line in the band
     # is it unbalance? (dsp/unbalance.py: evidence per pickup with ``ok``, then one verdict)
@@ -249,8 +250,13 @@ def _sentence(f: Finding) -> str:
     if c is Code.ORDER_ON_MAINS:
         order = _n(f, "order", 0)
         what = f"{order}x" if order else "an order"
-        return (f"{what} is too close to {_n(f, 'hum_hz'):g} Hz, a mains hum frequency: any "
+        text = (f"{what} is too close to {_n(f, 'hum_hz'):g} Hz, a mains hum frequency: any "
                 "hum there adds to it (a slightly different speed separates them)")
+        needed = _n(f, "revolutions_needed", None)
+        if needed and f.blocking:
+            text += (f"; the reading waits: this window cannot tell the 1x from the hum - average "
+                     f"at least {needed} revolutions (one {_n(f, 'beat_hz'):.2g} Hz beat)")
+        return text
     if c is Code.NO_SPEED_CHANGE:
         return (f"no usable speed change for a sweep: the speed stayed within "
                 f"{_n(f, 'low_rpm'):.0f}-{_n(f, 'high_rpm'):.0f} rpm (a sweep needs the "

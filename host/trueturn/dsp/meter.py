@@ -32,6 +32,7 @@ import numpy as np
 from trueturn.dsp.averaging import (
     SteadinessLimits,
     VectorStats,
+    combined_radius,
     pair_half_order,
     steadiness,
     subtended_deg,
@@ -105,7 +106,8 @@ class PickupReading(Reading):
     findings: tuple[Finding, ...] = ()  # the warnings as data (trueturn.dsp.findings)
     # What the 95 % circle is made of (dsp/README.md, "What the 95 % circle covers"):
     # the random part from the revolutions' scatter, plus a bound on the timing bias
-    confidence_random: float = math.nan  # radius from the scatter alone
+    confidence_random: float = math.nan  # the random part: scatter and hum fit together
+    confidence_scatter: float = math.nan  # radius from the scatter alone
     timing_bias_deg: float = 0.0  # phase bound of tach capture and aperture rounding
     window_s: float = math.nan  # time spanned by the averaged revolutions
     #: samples of this channel at an ADC rail (count 0 or 2^bits - 1) within the averaged
@@ -655,6 +657,35 @@ class LiveAnalyzer:
                 groups[base] = comb
         return groups
 
+    def _on_mains(self, dropped_hz: tuple[float, ...], mean_hz: float,
+                  pickup: str) -> list[Finding]:
+        """An ``order_on_mains`` finding per hum frequency whose fitted tones were dropped
+        (:func:`trueturn.dsp.order.solve_orders`: less than about half a beat per window
+        from an order). When the mains line itself (the comb's middle tone) is dropped next
+        to the 1x it blocks the reading: the hum adds to the 1x in full and no circle can
+        hold it. A comb's outer tone alone (they follow a grid a few hundredths of a hertz
+        off over long windows) leaves the line fitted: a note (its circle held 95-100 % of
+        true errors 1 Hz from the line, grid 0.04 Hz off, tests/test_dsp_hum_circle.py).
+        ``revolutions_needed``: one beat between the 1x and the nearest dropped tone, the
+        window that tells them apart (Dirichlet kernel: a tone ``df`` from an order is
+        orthogonal to it over a window of ``1/df``; common practice, no source)."""
+        out = []
+        for base, comb in self._hum_groups().items():
+            gone = [f for f in comb if f in dropped_hz]
+            if not gone:
+                continue
+            order = round(base / mean_hz) if mean_hz > 0 else 0
+            order = order if order in self.orders else 0
+            details: dict[str, Any] = {"order": order, "hum_hz": base}
+            if order == 1:
+                beat_hz = min(abs(f - mean_hz) for f in gone)
+                details["beat_hz"] = round(beat_hz, 4)
+                details["revolutions_needed"] = (math.ceil(mean_hz / beat_hz) if beat_hz > 0
+                                                 else None)
+            out.append(Finding(Code.ORDER_ON_MAINS, pickup, details=details,
+                               blocking=order == 1 and base in gone))
+        return out
+
     def _nuisance_hz(self) -> tuple[float, ...]:
         return tuple(f for comb in self._hum_groups().values() for f in comb)
 
@@ -893,23 +924,30 @@ class LiveAnalyzer:
         # a line at 0.5x alternates in the per-revolution 1x: then whole pairs of revolutions
         paired = pair_half_order(vectors)
         vstats: VectorStats = vector_stats(paired.vectors)
+        scatter_radius = vstats.confidence_radius
+        # what the hum fit adds to the mean and the scatter does not show (dsp/README.md,
+        # "What the 95 % circle covers"): part of the random radius, so of the steadiness too
+        scale = vpc * float(np.abs(factors).mean()) if len(factors) else vpc
+        random_radius = combined_radius(vstats, est.order_unseen_variance(1) * scale ** 2)
+        vstats = dataclasses.replace(
+            vstats, confidence_radius=random_radius,
+            confidence_deg=subtended_deg(random_radius, vstats.amplitude))
         used_revs = len(vectors)
         if paired.paired:
             used_revs = 2 * len(paired.vectors)
             vstats = dataclasses.replace(vstats, revolutions=used_revs)
         steady, reasons = steadiness(vstats, speeds, self.limits, profile.name)
-        findings += reasons
+        mean_hz = float(freqs_hz.mean()) if freqs_hz.size else math.nan
+        groups = self._hum_groups()
+        on_mains = self._on_mains(est.dropped_hz, mean_hz, profile.name)
+        # the 1x on a hum line it cannot be told from blocks the reading (its circle could
+        # not hold the hum's share); blocking findings first, then notes
+        blocking = [f for f in (*reasons, *on_mains) if f.blocking]
+        steady = steady and not blocking
+        findings += blocking + [f for f in (*reasons, *on_mains) if not f.blocking]
         if paired.paired:  # a note, after what blocks the reading
             findings.append(Finding(Code.HALF_ORDER, profile.name, details={
                 "level": abs(paired.alternating), "unit": used_unit}))
-        mean_hz = float(freqs_hz.mean()) if freqs_hz.size else math.nan
-        groups = self._hum_groups()
-        for base, comb in groups.items():
-            if not any(f in est.dropped_hz for f in comb):
-                continue
-            order = round(base / mean_hz) if mean_hz > 0 else 0
-            findings.append(Finding(Code.ORDER_ON_MAINS, profile.name, details={
-                "order": order if order in self.orders else 0, "hum_hz": base}))
         harmonics = []
         levels: dict[str, float] = {}  # volts pk, as the spectrum sees them (no chain)
         for k, h in enumerate(self.orders):
@@ -925,10 +963,11 @@ class LiveAnalyzer:
         for base, level in hum_v.items():
             levels["line" if base == self.mains_hz else "2x line"] = level
         self._levels[c] = levels
-        # the 95 % circle: the random part plus the timing bias bound, added (conservative)
+        # the 95 % circle: the random part (the scatter, and what the hum fit adds that the
+        # scatter does not show), plus the timing bias bound, added (conservative)
         bias_rad = 2.0 * math.pi * mean_hz * TIMING_BIAS_TICKS / self.tick_hz \
             if math.isfinite(mean_hz) else 0.0
-        radius = vstats.confidence_radius + vstats.amplitude * bias_rad
+        radius = random_radius + vstats.amplitude * bias_rad
         window_s = float(self._stacked_ticks(last)[-len(good):][good].sum()) / self.tick_hz
         # the reading's own window: every averaged revolution (a revolution left out of the
         # average as not finite still counts: its samples were at the rail all the same)
@@ -944,7 +983,8 @@ class LiveAnalyzer:
             noise_rms_v=est.noise_rms * vpc,
             hum_v=hum_v, findings=tuple(findings),
             no_tach=any(f.code is Code.NO_TACH for f in findings),
-            confidence_random=vstats.confidence_radius, timing_bias_deg=math.degrees(bias_rad),
+            confidence_random=random_radius, confidence_scatter=scatter_radius,
+            timing_bias_deg=math.degrees(bias_rad),
             window_s=window_s, clipped=at_rail > 0, clipped_samples=at_rail,
         )
 

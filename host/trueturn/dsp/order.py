@@ -143,6 +143,10 @@ class OrderEstimate:
     ``phasors`` (R, len(orders)) complex, peak amplitude in the input unit; ``dc`` (R,);
     ``noise_rms`` the residual standard deviation; ``dropped_hz`` nuisance tones that could
     not be separated from the orders; ``nuisance`` the fitted tone phasors (amplitude, peak).
+    ``unseen_cov`` (p, p), p = 1 + 2 len(orders) in the order ``[dc, a_1, b_1, a_2, ...]``:
+    the covariance of the mean of the per-revolution coefficients that the fitted tones add
+    and the scatter between revolutions does not show (:func:`unseen_covariance`), input
+    unit squared; zeros without tones.
     """
 
     orders: tuple[int, ...]
@@ -155,6 +159,34 @@ class OrderEstimate:
     gamma: np.ndarray = field(default_factory=lambda: np.zeros(0))
     nuisance_gram: np.ndarray = field(default_factory=lambda: np.zeros((0, 0)))
     samples: int = 0
+    unseen_cov: np.ndarray = field(default_factory=lambda: np.zeros((0, 0)))
+
+    def order_unseen_variance(self, order: int) -> float:
+        """The largest variance, along any direction of the complex plane, that the tone fit
+        adds to the mean phasor of one order beyond what the revolutions' scatter shows.
+
+        Parameters
+        ----------
+        order : int
+            One of ``orders``.
+
+        Returns
+        -------
+        float
+            The larger eigenvalue of the 2 x 2 block of ``unseen_cov`` for the order's cosine
+            and sine coefficients, input unit squared; 0 when nothing was fitted.
+
+        References
+        ----------
+        .. [1] S. M. Kay, "Fundamentals of Statistical Signal Processing: Estimation Theory",
+           Prentice Hall, 1993, ch. 4 and 8 (covariance of a linear least-squares estimate;
+           from memory).
+        """
+        if self.unseen_cov.size == 0:
+            return 0.0
+        k = 1 + 2 * self.orders.index(order)
+        block = self.unseen_cov[k:k + 2, k:k + 2]
+        return max(float(np.linalg.eigvalsh(0.5 * (block + block.T))[-1]), 0.0)
 
     def tone_amplitude(self, tones_hz: tuple[float, ...]) -> float:
         """Peak amplitude of the fitted waveform of some nuisance tones together.
@@ -734,6 +766,7 @@ def solve_orders(fit: BlockFit) -> OrderEstimate:
     gamma = np.zeros(q)
     dropped: list[float] = []
     nn = np.zeros((q, q))
+    unseen = np.zeros((p, p))
     if q and len(coef_y):
         # window model: synchronous coefficients common to all revolutions, tones shared
         aa = used(fit.gram_aa).sum(axis=0)
@@ -753,7 +786,10 @@ def solve_orders(fit: BlockFit) -> OrderEstimate:
                 keep[cols] = False
                 dropped.append(f)
         if keep.any():
-            gamma[keep] = np.linalg.lstsq(s_nn[np.ix_(keep, keep)], s_ny[keep], rcond=1e-10)[0]
+            # the minimum-norm solution (close tones of a comb may be nearly collinear)
+            s_pinv = np.linalg.pinv(s_nn[np.ix_(keep, keep)], rcond=1e-10, hermitian=True)
+            gamma[keep] = s_pinv @ s_ny[keep]
+            unseen = unseen_covariance(coef_n[:, :, keep], w[:, :q][:, keep], s_pinv)
     beta = coef_y - np.einsum("rpq,q->rp", coef_n, gamma)
     # residual energy summed over the revolutions (only the sum is needed: the sums of the
     # per-revolution terms, contracted with gamma once)
@@ -765,7 +801,65 @@ def solve_orders(fit: BlockFit) -> OrderEstimate:
     nuisance = {f: complex(gamma[2 * k], gamma[2 * k + 1])
                 for k, f in enumerate(fit.nuisance_hz) if f not in dropped}
     return OrderEstimate(fit.orders, phasors, beta[:, 0], noise_rms, tuple(dropped), nuisance,
-                         tuple(fit.nuisance_hz), gamma, nn, int(sample_counts.sum()))
+                         tuple(fit.nuisance_hz), gamma, nn, int(sample_counts.sum()),
+                         unseen * noise_rms ** 2)
+
+
+def unseen_covariance(coef_n: np.ndarray, window_coef_n: np.ndarray,
+                      schur_pinv: np.ndarray) -> np.ndarray:
+    """What the fitted tones add to the error of the mean per-revolution coefficients and
+    the scatter between revolutions does not show, per unit noise variance.
+
+    Revolution r's coefficients are ``beta_r = b_r - C_r gamma``, with ``b_r`` its own fit
+    without tones, ``C_r`` (p, q) its fit of each tone column and ``gamma`` the tones fitted
+    over the window with the synchronous part common to all revolutions (:func:`solve_orders`).
+    In white noise of variance sigma^2 every piece is linear in the noise, and with
+    ``W`` the window's fit of the tone columns (the Gram-weighted mean of ``C_r``), ``S`` the
+    tones' Schur complement, ``C`` the mean of ``C_r`` and ``D_r = C_r - C``:
+
+    * ``Cov(mean beta) = sigma^2 [sum A_r^-1 / R^2 + W S^-1 W' - (C - W) S^-1 (C - W)']``
+      (``A_r`` a revolution's Gram matrix of the synchronous columns);
+    * the scatter of the ``beta_r`` divided by R has the expectation
+      ``sigma^2 [sum A_r^-1 / R^2 - sum D_r S^-1 D_r' / (R (R - 1))]``.
+
+    The difference, returned here, is the share of the tones' fitting error that is common
+    to all revolutions: large when an order lies within about one beat per window of a tone
+    (the 1x of a 2-pole motor 1 Hz below its own mains over half a second), where the circle
+    from the scatter alone holds far less than it says.
+
+    Parameters
+    ----------
+    coef_n : numpy.ndarray
+        ``C_r`` of the fitted tone columns, shape (R, p, k).
+    window_coef_n : numpy.ndarray
+        ``W``, shape (p, k).
+    schur_pinv : numpy.ndarray
+        The (pseudo-)inverse of ``S``, shape (k, k), as used for the tones' fit.
+
+    Returns
+    -------
+    numpy.ndarray
+        Shape (p, p), to be multiplied by the noise variance; symmetric.
+
+    References
+    ----------
+    .. [1] S. M. Kay, "Fundamentals of Statistical Signal Processing: Estimation Theory",
+       Prentice Hall, 1993, ch. 4 and 8 (covariance ``sigma^2 (H'H)^-1`` of a linear
+       least-squares estimate; from memory).
+    .. [2] Frisch-Waugh-Lovell partition of a linear model (from memory: any econometrics
+       textbook); the expectation of a sample covariance of linear functions of Gaussian
+       noise (elementary; common practice, no source).
+    """
+    n_revs, p = coef_n.shape[0], coef_n.shape[1]
+    if n_revs == 0 or coef_n.shape[2] == 0:
+        return np.zeros((p, p))
+    mean_c = coef_n.mean(axis=0)
+    offset = mean_c - window_coef_n
+    out = window_coef_n @ schur_pinv @ window_coef_n.T - offset @ schur_pinv @ offset.T
+    if n_revs > 1:
+        dev = coef_n - mean_c
+        out += np.einsum("rpk,kl,rql->pq", dev, schur_pinv, dev) / (n_revs * (n_revs - 1))
+    return 0.5 * (out + out.T)
 
 
 def estimate_orders(sample_ticks: np.ndarray, values: np.ndarray, starts: np.ndarray,

@@ -539,26 +539,13 @@ class Workspace:
         """Keep hands-on work done since the last run (so a crash does not forget a trial
         weight): ``pending`` replaces the job's pending step. If the save fails, ``job`` is
         left as it was."""
-        before = job.pending
-        job.pending = pending
-        try:
-            return self.save_job(job, path)
-        except BaseException:
-            job.pending = before
-            raise
+        return self._save_with(job, path, pending=pending)
 
     def close_job(self, job: JobRecord, verdict: VerdictEntry | None = None,
                   path: str | os.PathLike[str] | None = None) -> Path:
         """Close ``job`` with ``verdict`` and save it; if the save fails, it stays open."""
-        before = (job.verdict, job.status)
-        if verdict is not None:
-            job.verdict = verdict
-        job.status = "closed"
-        try:
-            return self.save_job(job, path)
-        except BaseException:
-            job.verdict, job.status = before
-            raise
+        return self._save_with(job, path, verdict=job.verdict if verdict is None else verdict,
+                               status="closed")
 
     def record_second_start(self, job: JobRecord, second: SecondStartEntry,
                             unbalance: UnbalanceEntry | None,
@@ -583,13 +570,7 @@ class Workspace:
                  path: str | os.PathLike[str] | None = None) -> Path:
         """Close ``job`` without a verdict, by the person's choice, keeping why; if the save
         fails, it stays open."""
-        before = (job.stopped, job.status)
-        job.stopped, job.status = stop, "closed"
-        try:
-            return self.save_job(job, path)
-        except BaseException:
-            job.stopped, job.status = before
-            raise
+        return self._save_with(job, path, stopped=stop, status="closed")
 
     def record_model(self, job: JobRecord, model: ModelEntry,
                      path: str | os.PathLike[str] | None = None) -> Path:
@@ -598,25 +579,27 @@ class Workspace:
         it was."""
         if job.status != "open":
             raise UserError(f"job {job.job_id} is closed; its model is kept as it was")
-        before = job.model
-        job.model = model
-        try:
-            return self.save_job(job, path)
-        except BaseException:
-            job.model = before
-            raise
+        return self._save_with(job, path, model=model)
 
     def record_went_on(self, job: JobRecord, went_on: WentOnEntry,
                        path: str | os.PathLike[str] | None = None) -> Path:
         """Keep that the person went on although balancing may not help (issue #22), so a
         continued job does not ask again; saved at once. If the save fails, ``job`` is left
         as it was."""
-        before = job.went_on
-        job.went_on = went_on
+        return self._save_with(job, path, went_on=went_on)
+
+    def _save_with(self, job: JobRecord, path: str | os.PathLike[str] | None,
+                   **fields: object) -> Path:
+        """Set ``fields`` on ``job`` and save it; if the save fails (or is interrupted),
+        every field is put back as it was, so the job in memory matches the file."""
+        before = {name: getattr(job, name) for name in fields}
+        for name, value in fields.items():
+            setattr(job, name, value)
         try:
             return self.save_job(job, path)
         except BaseException:
-            job.went_on = before
+            for name, value in before.items():
+                setattr(job, name, value)
             raise
 
     def resume_job(self, ref: str | os.PathLike[str]) -> JobRecord:

@@ -1,6 +1,7 @@
 """Virtual rigs: rotor physics, invented demo machines, and a simulated board (``sim://``).
 
 * :mod:`trueturn.sim.rotor`: rigid rotor on two bearings, exact steady 1x response.
+* :mod:`trueturn.sim.transient`: the same rotor integrated in time (run-up, coast-down).
 * :mod:`trueturn.sim.scenario`: the invented machines (YAML), ``load_scenario``.
 * :mod:`trueturn.sim.board`: the virtual board speaking protocol v1.
 * :mod:`trueturn.sim.spec`: exact 1x in board units, and ``signal_spec`` for the emulator.

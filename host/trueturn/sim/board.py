@@ -42,6 +42,7 @@ from trueturn.sim.scenario import (
     ADC_REFERENCE_V,
     Scenario,
 )
+from trueturn.sim.transient import RotorMotion, nonlinear_accel
 
 _CAT = load_catalogue()
 TICK_HZ = _CAT.limit("board_tick_hz").min  # every board of ours ticks at this rate
@@ -54,8 +55,12 @@ STEP_TICKS = 100_000  # at most 50 ms of simulated time per generation step
 STATUS_PERIOD_TICKS = TICK_HZ
 START_DELAY_TICKS = 200  # first conversion of a stream, after the start command
 STANDSTILL_RAD_S = 0.05  # below this the virtual shaft is taken as stopped
-#: a step whose speed changes by more than this (0.5 rpm) follows the 1x across it (a sweep)
-SWEEP_STEP_RAD_S = 0.5 * 2.0 * math.pi / 60.0
+#: the rotor's motion is integrated on the conversions' instants and at least this often
+#: (1 ms: the speed taken constant within an interval costs a phase error of at most
+#: Omega' h^2 / 8, 4e-6 rad at the bench grinder's coast-down rate; trueturn.sim.transient)
+MOTION_GRID_TICKS = TICK_HZ // 1000
+#: a rotor standing still whose motion has decayed below this (m, m/s) is at rest
+REST_LIMIT = 1e-15
 SENSOR_FLOOR_G = 0.004  # a still accelerometer's own noise, rms over the sampled band
 TWO_PI = 2.0 * math.pi
 
@@ -225,6 +230,11 @@ class VirtualBoard:
         self._drift_phases = self.rng.uniform(0, TWO_PI, size=2)
         self._tone_phases = self.rng.uniform(0, TWO_PI, size=8)
         self._settle_loose_parts()
+        # the rotor's vibration, integrated in time; steady at power-up (trueturn.sim.transient)
+        self._motion = RotorMotion(scenario.rotor)
+        self._motion.settle(scenario.rotor.unbalance_phasors(self.all_masses()), self._theta,
+                            self._omega)
+        self._accel = 0.0  # the last step's angular acceleration, rad/s^2
         self._edges_seen = 0
         self._last_edge_tick = self.tick  # as the firmware's 0 at reset
         self._holdoff_until = self.tick
@@ -238,8 +248,6 @@ class VirtualBoard:
         self._reset_flags = RESET_FLAGS["power_on"]
         self._rx = bytearray()
         self._rx_discarding = False
-        # the last two responses solved (a step's two ends)
-        self._response_cache: list[tuple[float, tuple[Mass, ...], np.ndarray]] = []
         if self.options.bootloader not in BOOTLOADER_WAIT_S:
             raise ValueError(f"bootloader must be one of {', '.join(BOOTLOADER_WAIT_S)}")
         self._boot_at: int | None = None  # in the bootloader until this tick
@@ -370,6 +378,17 @@ class VirtualBoard:
         """The model's steady 1x acceleration (m/s^2, project phasors) with the present weights."""
         return self.scenario.rotor.response_1x(speed_rpm or self.target_speed_rpm,
                                                self.all_masses())
+
+    def vibration_1x(self) -> dict[str, complex]:
+        """The rotor's 1x at this instant as each pickup feels it (m/s^2, project phasors),
+        from the motion integrated in time (:mod:`trueturn.sim.transient`) through the
+        model's amplitude-dependent gain. Steady running: :meth:`exact_response_1x` at the
+        present speed; during a sweep the build-up and lag of the moment."""
+        with self.lock:
+            turned = nonlinear_accel(self._motion.one_x(self._theta, self._omega, self._accel),
+                                     self.scenario.rotor.nonlinearity)
+            return {p.name: complex(np.conj(v))
+                    for p, v in zip(self.scenario.rotor.pickups, turned, strict=True)}
 
     def _check_speed(self, speed_rpm: float) -> None:
         rng = self.scenario.motor.speed_range_rpm
@@ -586,24 +605,6 @@ class VirtualBoard:
         new = omega * math.exp(-dt_s / tau) - friction * dt_s
         return new if new > STANDSTILL_RAD_S else 0.0
 
-    def _pickup_phasors_v(self, omega: float) -> np.ndarray:
-        """1x volts phasors (project convention) at each channel for the present weights."""
-        # The response changes slowly with speed: re-solve when the speed moves by 0.05 rpm.
-        key = (round(omega * 60.0 / TWO_PI / 0.05) * 0.05, tuple(self.all_masses()))
-        for cached in self._response_cache:
-            if cached[:2] == key:
-                return cached[2]
-        sc = self.scenario
-        if omega <= 0:
-            volts = np.zeros(len(sc.rotor.pickups), dtype=complex)
-        else:
-            resp = sc.rotor.response_1x(key[0], list(key[1]))
-            volts = np.array([sc.pickup_volts(resp[p.name], i)
-                              for i, p in enumerate(sc.rotor.pickups)])
-        self._response_cache = [self._response_cache[-1], (key[0], key[1], volts)] \
-            if self._response_cache else [(key[0], key[1], volts)]
-        return volts
-
     def _step(self, n_ticks: int) -> None:
         t0_tick = self.tick
         t1_tick = t0_tick + n_ticks
@@ -620,8 +621,11 @@ class VirtualBoard:
         events: list[tuple[int, int, str, dict]] = []  # (tick, order, name, values)
         self._tach_events(t0_tick, t1_tick, theta0, omega0, accel, events)
         s = self._stream
-        if s.streaming:
-            self._sample_events(t0_tick, t1_tick, theta_at, omega0, omega1, events)
+        sampled = self._sample_ticks(t0_tick, t1_tick) if s.streaming else None
+        vibration = self._move_rotor(t0_tick, t1_tick, theta_at, omega0, omega1, accel,
+                                     None if sampled is None else sampled[1])
+        if sampled is not None:
+            self._sample_events(*sampled, theta_at, omega0, omega1, vibration, events)
         while self._next_status_tick < t1_tick:
             events.append((self._next_status_tick, 2, "status", {}))
             self._next_status_tick += STATUS_PERIOD_TICKS
@@ -641,6 +645,7 @@ class VirtualBoard:
             self._turns += turns
             self._theta = theta_end - turns * TWO_PI
         self._omega = omega1
+        self._accel = accel
         self.tick = t1_tick
 
     def _tach_events(self, t0_tick: int, t1_tick: int, theta0: float, omega0: float,
@@ -702,20 +707,51 @@ class VirtualBoard:
         if window_hit:
             self._counters["tach_suppressed"] += 1
 
-    def _sample_events(self, t0_tick: int, t1_tick: int,
-                       theta_at: Callable[[np.ndarray | int], np.ndarray], omega0: float,
-                       omega1: float, events: list) -> None:
+    def _sample_ticks(self, t0_tick: int, t1_tick: int) -> tuple[np.ndarray, np.ndarray] | None:
+        """The stream's conversions in this step: (indices, ticks), None when there is none."""
         s = self._stream
         period = s.period_ticks
         first = max(s.next_index, -(-(t0_tick - s.start_tick) // period))
         last = (t1_tick - 1 - s.start_tick) // period  # inclusive
         if last < first:
-            return
+            return None
         index = np.arange(first, last + 1, dtype=np.int64)
-        ticks = s.start_tick + index * period
-        share = (ticks - t0_tick) / float(t1_tick - t0_tick)  # of the step, per sample
+        return index, s.start_tick + index * period
+
+    def _move_rotor(self, t0_tick: int, t1_tick: int,
+                    theta_at: Callable[[np.ndarray | int], np.ndarray], omega0: float,
+                    omega1: float, accel: float, sample_ticks: np.ndarray | None
+                    ) -> np.ndarray | None:
+        """Integrate the rotor's vibration over the step (:mod:`trueturn.sim.transient`);
+        the pickups' complex accelerations (m/s^2, pickups x conversions) at the
+        conversions' instants, None when the step has none."""
+        motion = self._motion
+        motion.set_unbalance(self.scenario.rotor.unbalance_phasors(self.all_masses()),
+                             self._theta, omega0)
+        if omega0 == 0.0 and omega1 == 0.0 and motion.at_rest:
+            return None if sample_ticks is None else \
+                np.zeros((len(self.scenario.rotor.pickups), len(sample_ticks)), dtype=complex)
+        grid = np.union1d(np.arange(t0_tick, t1_tick, MOTION_GRID_TICKS, dtype=np.int64),
+                          [t1_tick] if sample_ticks is None else
+                          np.append(sample_ticks, t1_tick))
+        tau = (grid - t0_tick) / TICK_HZ
+        vibration = motion.advance(tau, theta_at(grid), omega0 + accel * tau, accel,
+                                   0.5 * (omega0 + omega1))
+        if omega1 == 0.0 and float(np.abs(motion.state).max()) < REST_LIMIT:
+            motion.state[:] = 0.0
+        if sample_ticks is None:
+            return None
+        return vibration[:, np.searchsorted(grid, sample_ticks)]
+
+    def _sample_events(self, index: np.ndarray, ticks: np.ndarray,
+                       theta_at: Callable[[np.ndarray | int], np.ndarray], omega0: float,
+                       omega1: float, vibration: np.ndarray | None, events: list) -> None:
+        s = self._stream
+        period = s.period_ticks
+        last = int(index[-1])
+        assert vibration is not None  # integrated on these conversions (_move_rotor)
         volts = self._voltages(index % s.channels, ticks, theta_at(ticks), omega0, omega1,
-                               share)
+                               vibration)
         if self.options.floating_channel is not None:
             self._float(volts, index % s.channels)
         counts = np.clip(np.rint(volts / ADC_REFERENCE_V * ADC_COUNTS_PER_REFERENCE), 0,
@@ -750,22 +786,17 @@ class VirtualBoard:
         self._last_volts = prev
 
     def _voltages(self, channel: np.ndarray, ticks: np.ndarray, theta: np.ndarray,
-                  omega0: float, omega1: float, share: np.ndarray) -> np.ndarray:
-        """Each conversion's volts; the 1x is the steady response at the speed of the moment
-        (quasi-steady: interpolated across the step between the responses at its two ends,
-        so a coast-down or run-up sweeps the response smoothly; the build-up of a lightly
-        damped resonance during a fast sweep is not modelled)."""
+                  omega0: float, omega1: float, vibration: np.ndarray) -> np.ndarray:
+        """Each conversion's volts: the rotor's vibration at that instant (``vibration``,
+        the pickups' complex accelerations integrated in time, :mod:`trueturn.sim.transient`:
+        steady at constant speed, building up and lagging through a resonance passed
+        quickly) through the model's amplitude-dependent gain, plus the shop's signals."""
         sc = self.scenario
         sig = sc.signals
         scale = self.options.noise_scale
         t_s = ticks.astype(np.float64) / TICK_HZ
         out = np.zeros(len(ticks))
         omega = 0.5 * (omega0 + omega1)
-        if abs(omega1 - omega0) > SWEEP_STEP_RAD_S:  # run-up or coast-down: follow the speed
-            one_x0 = self._pickup_phasors_v(omega0)
-            one_x1 = self._pickup_phasors_v(omega1)
-        else:  # steady (slow wander): the response at the step's mean speed
-            one_x0 = one_x1 = self._pickup_phasors_v(omega)
         speed_ratio_sq = (omega / rpm_to_rad_s(sc.speed_rpm)) ** 2
         line = sc.motor.mains_hz
         for ch in range(int(channel.max()) + 1 if len(channel) else 0):
@@ -776,10 +807,8 @@ class VirtualBoard:
                 continue
             el = sc.electrical[ch]
             v_per_g = el.sensitivity_v_per_g
-            p = one_x0[ch] if one_x1 is one_x0 else \
-                one_x0[ch] + share[sel] * (one_x1[ch] - one_x0[ch])
-            # A cos(theta - phi) with the project phasor p = A e^{i phi}
-            v = el.zero_g_v + np.real(p) * np.cos(th) + np.imag(p) * np.sin(th)
+            accel = nonlinear_accel(vibration[ch, sel], sc.rotor.nonlinearity)
+            v = el.zero_g_v + np.real(accel) * sc.pickup_volts(1.0, ch)
             for k, h in enumerate(sig.harmonics + sig.tones):
                 amp_v = h.amplitude_g * v_per_g * scale
                 if not amp_v:

@@ -14,7 +14,9 @@ Turbomachinery*, rigid rotor on flexible supports):
   force ``m*r*omega^2`` and a moment about the centre of mass.
 
 The equations are solved exactly in the frequency domain (one complex 4x4 linear solve per
-speed). Angles follow :mod:`trueturn.angles`: a mass angle is counted from the reference mark
+speed): the steady response. The virtual board integrates the same equations in time
+(:mod:`trueturn.sim.transient`) so a run-up or coast-down shows the build-up and lag of a
+resonance passed quickly. Angles follow :mod:`trueturn.angles`: a mass angle is counted from the reference mark
 against rotation, a phase is the lag of the 1x positive peak after the tach event. The
 rotor turns in the positive sense of the fixed frame; a pickup direction and the tach
 direction are fixed angles around the shaft, 0 = horizontal, counted with rotation.
@@ -123,8 +125,11 @@ class RigidRotor:
 
     # --- the linear model -------------------------------------------------------------------
 
-    def _matrices(self, omega: float) -> tuple[np.ndarray, np.ndarray]:
-        """Dynamic stiffness ``K + i*omega*(C + G) - omega^2*M`` for DOFs [x, a, y, b]."""
+    def equations_of_motion(self, omega: float
+                            ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
+        """``M``, ``C + G(omega)`` and ``K`` (4 x 4, DOFs [x, a, y, b]) of
+        ``M q'' + (C + G) q' + K q = f``, and the pickups' output map (pickups x 4: a
+        pickup's displacement is its row times ``q``)."""
         zc = self.centre_of_mass_axial_mm * 1e-3
         mass = np.diag([self.mass_kg, self.transverse_inertia_kg_m2,
                         self.mass_kg, self.transverse_inertia_kg_m2])
@@ -137,18 +142,21 @@ class RigidRotor:
             stiff[2:4, 2:4] += b.stiffness_v_n_per_m * shape
             damp[0:2, 0:2] += b.damping_h_ns_per_m * shape
             damp[2:4, 2:4] += b.damping_v_ns_per_m * shape
-        gyro = np.zeros((4, 4))
         # It*a'' + Ip*Omega*b' ; It*b'' - Ip*Omega*a'' (forward whirl is stiffened); Omega = omega
-        gyro[1, 3] = self.polar_inertia_kg_m2 * omega
-        gyro[3, 1] = -self.polar_inertia_kg_m2 * omega
-        dyn = stiff + 1j * omega * (damp + gyro) - omega**2 * mass
+        damp[1, 3] += self.polar_inertia_kg_m2 * omega
+        damp[3, 1] -= self.polar_inertia_kg_m2 * omega
         # Output map: pickup displacement = row . [x, a, y, b]
         out = np.zeros((len(self.pickups), 4))
         for i, p in enumerate(self.pickups):
             d = self.bearings[p.bearing].axial_mm * 1e-3 - zc
             c, s = math.cos(math.radians(p.direction_deg)), math.sin(math.radians(p.direction_deg))
             out[i] = [c, c * d, s, s * d]
-        return dyn, out
+        return mass, damp, stiff, out
+
+    def _matrices(self, omega: float) -> tuple[np.ndarray, np.ndarray]:
+        """Dynamic stiffness ``K + i*omega*(C + G) - omega^2*M`` for DOFs [x, a, y, b]."""
+        mass, damp, stiff, out = self.equations_of_motion(omega)
+        return stiff + 1j * omega * damp - omega**2 * mass, out
 
     def _plane_forcing(self, omega: float) -> np.ndarray:
         """Generalised force per plane (4 x planes) for 1 g at the plane radius at angle 0.

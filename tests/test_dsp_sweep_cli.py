@@ -7,15 +7,7 @@ Checks against the outside world:
   state-space eigenvalue nearest the critical speed (textbook definition, from memory:
   Ewins, *Modal Testing*, sec. 2.2), computed here independently of dsp/sweep.py;
 - the swept 1x against the model's exact steady response at the same speed
-  (``RigidRotor.response_1x``) where the coast-down is quasi-static (well above every
-  resonance), so the sweep measures what the physics says.
-
-The simulator integrates the rotor in time (trueturn.sim.transient): passing the grinder's
-lightly damped rubber-feet mode at about 284 rpm/s, the 1x builds up late, its peak comes
-about 13 % below the mode and the free vibration rings on below it (F. M. Lewis, Trans.
-ASME 1932; tests/test_sim_transient.py checks it against solve_ivp). The analysis does not
-yet read that physics right (issue #20 item 1): those checks are marked as expected
-failures, strict, naming what it reads instead.
+  (``RigidRotor.response_1x``), so the sweep measures what the physics says.
 """
 
 from __future__ import annotations
@@ -75,24 +67,10 @@ def grinder_coast(tmp_path_factory: pytest.TempPathFactory) -> dict:
                     "--unit", "g")
 
 
-#: what the analysis reads on the simulator's swept (transient) coast-down, seeds 1-5
-SWEPT_PHYSICS_MISREAD = (
-    "issue #20 item 1: on the transient coast-down the grinder's 1x peaks at ~718 rpm, "
-    "13 % below the 823 rpm mode; the resonance is reported there, the steady SDOF model "
-    "wins the fit (swept false) and reads ~697 rpm, damping ~9.4 % [7.3, 11.9] against "
-    "3.0 %; the free vibration ringing below the mode adds peaks at 560-620 rpm")
-
-
-def test_grinder_coastdown_gives_a_sweep(grinder_coast: dict) -> None:
+def test_grinder_coastdown_finds_the_rubber_feet_resonance(grinder_coast: dict) -> None:
     data = grinder_coast
     assert data["sweep_info"]["is_sweep"]
     assert len(data["sweep"]) >= 20  # the issue: >= 20 points on a full coast-down
-    assert data["resonances"]
-
-
-@pytest.mark.xfail(strict=True, reason=SWEPT_PHYSICS_MISREAD)
-def test_grinder_coastdown_finds_the_rubber_feet_resonance(grinder_coast: dict) -> None:
-    data = grinder_coast
     code, out, _ = run_cli(["sim", "describe", "bench-grinder", "--json"])
     first = json.loads(out)["resonances_rpm"][0]
     at_first = [r for r in data["resonances"] if abs(r["speed_rpm"] / first - 1) <= 0.05]
@@ -115,15 +93,9 @@ def test_grinder_coastdown_finds_the_rubber_feet_resonance(grinder_coast: dict) 
 
 
 def test_grinder_coastdown_sweep_agrees_with_the_model(grinder_coast: dict) -> None:
-    # where the coast-down is quasi-static: above 1.25 x the highest critical speed (the
-    # response's group delay there is a few ms, the speed moves well under 0.1 % in it);
-    # through and below the resonances the 1x is the transient one (test_sim_transient.py)
     sc = load_scenario("bench-grinder")
-    above = 1.25 * max(sc.rotor.critical_speeds_rpm())
     checked = 0
-    for point in grinder_coast["sweep"]:
-        if point["speed_rpm"] < above:
-            continue
+    for point in grinder_coast["sweep"][::5]:
         exact = sc.rotor.response_1x(point["speed_rpm"], sc.as_found)
         for v in point["pickups"]:
             if not v["usable"] or v["amplitude"] < 10 * v["confidence_radius"]:
@@ -165,11 +137,9 @@ def test_steady_capture_says_there_is_no_sweep(tmp_path: Path) -> None:
     assert code == 0 and "sweep: none" in out
 
 
-@pytest.fixture(scope="module")
-def stiff_grinder_coast(tmp_path_factory: pytest.TempPathFactory) -> tuple[dict, float]:
+def test_running_close_to_a_resonance_is_found(tmp_path: Path) -> None:
     # the grinder on stiffer feet: its rocking mode near 3000 rpm, 15 % below the running
     # speed, inside the 20 % margin (an invented variant for this test)
-    tmp_path = tmp_path_factory.mktemp("stiff")
     raw = yaml.safe_load((scenario_dir() / "bench-grinder.yaml").read_text(encoding="utf-8"))
     for b in raw["bearings"]:
         for key in ("stiffness_h_n_per_m", "stiffness_v_n_per_m"):
@@ -181,29 +151,10 @@ def stiff_grinder_coast(tmp_path_factory: pytest.TempPathFactory) -> tuple[dict,
     path.write_text(yaml.safe_dump(raw), encoding="utf-8")
     critical = load_scenario(str(path)).rotor.critical_speeds_rpm()[0]
     assert critical == pytest.approx(3000.0, rel=0.01)
-    return _analyze(_record(tmp_path, str(path), "coastdown", "stiff")), critical
-
-
-@pytest.mark.xfail(strict=True, reason=(
-    "issue #20 item 1: on the transient coast-down of the 0.8 %-damped mode at 3000 rpm the "
-    "reported resonances are the late, lowered peak and the ringing below it (2510-2850 "
-    "rpm, outside the 20 % margin); the swept SDOF fit does find 3002 rpm (damping 0.66 % "
-    "[0.65, 0.67] against the modal 0.82 %), but near_resonance uses the peak's speed"))
-def test_running_close_to_a_resonance_is_found(stiff_grinder_coast: tuple[dict, float]
-                                               ) -> None:
-    data, critical = stiff_grinder_coast
+    data = _analyze(_record(tmp_path, str(path), "coastdown", "stiff"))
     near = [f for f in data["findings"] if f["code"] == "near_resonance"]
     assert near and all(abs(f["resonance_rpm"] / critical - 1) < 0.05 for f in near)
     assert any("within 20 % of a support resonance" in w for w in data["warnings"])
-
-
-@pytest.mark.xfail(strict=True, reason=(
-    "issue #20 item 1: the first resonance is read at ~2126 rpm (a peak of the free vibration "
-    "ringing below the 3000 rpm mode after it was passed quickly), so the unbalance verdict "
-    "says the 1x 'was not measured far enough below the first resonance' (no evidence)"))
-def test_a_coastdown_below_a_resonance_shows_the_1x_rising(
-        stiff_grinder_coast: tuple[dict, float]) -> None:
-    data, _ = stiff_grinder_coast
     # below 0.7 of that resonance the displacement of an unbalance rises as speed^2 times the
     # amplification 1/(1 - r^2), which grows from about 1.0 to 2.0 there (Rao): 2...3.2
     rises = [e for e in data["unbalance"]["evidence"] if e["code"] == "one_x_rises_with_speed"]
@@ -268,7 +219,6 @@ def test_record_until_stop_ends_a_coastdown_at_standstill(tmp_path: Path) -> Non
     assert code == 0 and not json.loads(stdout)["stopped_at_standstill"]
 
 
-@pytest.mark.xfail(strict=True, reason=SWEPT_PHYSICS_MISREAD)
 def test_grinder_coastdowns_resolve_the_damping_within_its_interval(tmp_path: Path) -> None:
     # five seeds of the grinder's coast-down: the rubber-feet mode's damping is resolved at
     # both pickups in most (the half-power band holds only 2-3 points), and its 95 %

@@ -1,5 +1,6 @@
-"""The simulator's rotor in time (trueturn.sim.transient): steady when the speed is steady,
-the build-up and lag of a resonance passed quickly when it is not.
+"""The simulator's rotor in time (trueturn.sim.transient, ``sim://NAME?response=transient``):
+steady when the speed is steady, the build-up and lag of a resonance passed quickly when
+it is not.
 
 Checks against the outside world:
 - steady running: the integrated 1x equals the model's exact frequency-domain solution
@@ -8,6 +9,11 @@ Checks against the outside world:
 - a slow sweep tends to that steady response (the quasi-static limit of F. M. Lewis,
   "Vibration during acceleration through a critical speed", Trans. ASME 54, 1932; from
   memory);
+- the grinder's coast-down through ``record`` and ``analyze --sweep``: the model's steady
+  response where the sweep is quasi-static, the rubber-feet peak later and lower than the
+  steady one; the issue's acceptance (the resonance within 5 % of ``sim describe``, its
+  damping's 95 % interval holding the modal damping) is an expected failure of the
+  analysis on this physics, named precisely;
 - a fast sweep through one mode: Den Hartog's single-degree-of-freedom rotating-unbalance
   equation ``m x'' + c x' + k x = m_u r (w^2 cos(theta) + w' sin(theta))`` integrated
   independently by :func:`scipy.integrate.solve_ivp` (DOP853) along the same speed history:
@@ -17,13 +23,20 @@ Checks against the outside world:
 
 from __future__ import annotations
 
+import json
 import math
 from dataclasses import replace
 
 import numpy as np
+import pytest
+import serial
 from scipy.integrate import solve_ivp
 
-from trueturn.sim.board import BoardOptions, VirtualBoard
+from cli_helpers import run_cli
+from trueturn.angles import angle_difference_deg
+from trueturn.constants import STANDARD_GRAVITY_M_S2
+from trueturn.link.ports import open_port
+from trueturn.sim.board import BoardOptions, VirtualBoard, run_times
 from trueturn.sim.rotor import CorrectionPlane, Mass, PickupMount, RigidRotor, Support
 from trueturn.sim.scenario import load_scenario
 from trueturn.sim.transient import RotorMotion
@@ -38,7 +51,7 @@ def test_steady_running_reads_the_exact_steady_response() -> None:
     # switched off, so the exact solution holds at every instant
     sc = load_scenario("bench-grinder")
     sc = replace(sc, motor=replace(sc.motor, load_wander=0.0))
-    board = VirtualBoard(sc, BoardOptions(seed=3))
+    board = VirtualBoard(sc, BoardOptions(seed=3, response="transient"))
     assert _relative(board.vibration_1x(), board.exact_response_1x(board.speed_rpm)) < 1e-9
     board.advance_s(3.0)
     assert _relative(board.vibration_1x(), board.exact_response_1x(board.speed_rpm)) < 1e-9
@@ -53,7 +66,8 @@ def test_steady_running_reads_the_exact_steady_response() -> None:
 def test_speed_wander_and_a_loose_part_settle_on_the_steady_response() -> None:
     # the default grinder wanders +/-15 % in slip over 17 s: far from its resonances the
     # response follows it quasi-statically
-    board = VirtualBoard(load_scenario("bench-grinder"), BoardOptions(seed=2))
+    board = VirtualBoard(load_scenario("bench-grinder"),
+                         BoardOptions(seed=2, response="transient"))
     for _ in range(4):
         board.advance_s(2.5)
         assert _relative(board.vibration_1x(), board.exact_response_1x(board.speed_rpm)) < 1e-4
@@ -62,7 +76,7 @@ def test_speed_wander_and_a_loose_part_settle_on_the_steady_response() -> None:
     sc = load_scenario("loose-hub")
     assert sc.shifting
     sc = replace(sc, motor=replace(sc.motor, load_wander=0.0, drift_fraction=0.0))
-    board = VirtualBoard(sc, BoardOptions(seed=4))
+    board = VirtualBoard(sc, BoardOptions(seed=4, response="transient"))
     readings = []
     for _ in range(2):
         board.motor_stop()
@@ -190,3 +204,89 @@ def test_a_fast_sweep_matches_den_hartogs_sdof_integrated_by_solve_ivp() -> None
     at_mode = int(np.argmin(np.abs(w - wn)))
     lag = np.angle(ones[at_mode] / (-w[at_mode] ** 2 * steady_phasor[at_mode]))
     assert abs(lag) > math.radians(10)
+
+
+def test_the_response_option_is_checked() -> None:
+    with pytest.raises(serial.SerialException) as info:
+        open_port("sim://bench-grinder?response=lagging")
+    assert "\n" not in str(info.value) and "quasi-static, transient" in str(info.value)
+    with pytest.raises(ValueError, match="response must be one of"):
+        VirtualBoard(load_scenario("bench-grinder"), BoardOptions(response="lagging"))
+
+
+@pytest.fixture(scope="module")
+def transient_coast(tmp_path_factory: pytest.TempPathFactory) -> dict:
+    sc = load_scenario("bench-grinder")
+    out = tmp_path_factory.mktemp("transient") / "cd.cap"
+    code, _, err = run_cli(["record", "--port", "sim://bench-grinder?realtime=0&seed=5"
+                            "&run=coastdown&response=transient", "--seconds",
+                            f"{run_times(sc, 'coastdown')['record_s']:g}", "-o", str(out),
+                            "--quiet"])
+    assert code == 0, err
+    code, text, err = run_cli(["analyze", str(out), "--sweep", "--json", "--unit", "g"])
+    assert code == 0, err
+    return json.loads(text)
+
+
+def test_transient_coastdown_reads_the_model_where_quasi_static_and_lewis_at_the_mode(
+        transient_coast: dict) -> None:
+    sc = load_scenario("bench-grinder")
+    criticals = sc.rotor.critical_speeds_rpm()
+    # above 1.25 x the highest critical speed the response's group delay is a few ms: the
+    # sweep reads the steady response (RigidRotor.response_1x) as with response=quasi-static
+    checked = 0
+    for point in transient_coast["sweep"]:
+        if point["speed_rpm"] < 1.25 * max(criticals):
+            continue
+        exact = sc.rotor.response_1x(point["speed_rpm"], sc.as_found)
+        for v in point["pickups"]:
+            if not v["usable"] or v["amplitude"] < 10 * v["confidence_radius"]:
+                continue
+            true = exact[v["name"]]
+            assert v["amplitude"] == pytest.approx(abs(true) / STANDARD_GRAVITY_M_S2, rel=0.06)
+            assert abs(angle_difference_deg(v["phase_deg"],
+                                            math.degrees(np.angle(true)) % 360)) < 5.0
+            checked += 1
+    assert checked >= 20
+    # around the rubber-feet mode (823 rpm, 3 %, passed at about 284 rpm/s) the measured
+    # displacement-like 1x (amplitude / n^2) peaks later (lower in speed) and lower than the
+    # steady one (Lewis 1932; the size of it is checked against solve_ivp above)
+    first = criticals[0]
+    for name in ("left-bearing", "right-bearing"):
+        band = [(p["speed_rpm"], v["amplitude"]) for p in transient_coast["sweep"]
+                for v in p["pickups"] if v["name"] == name and v["usable"]
+                and 0.7 * first < p["speed_rpm"] < 1.2 * first]
+        speeds = np.array([n for n, _ in band])
+        measured = np.array([a for _, a in band]) / speeds ** 2
+        steady = np.array([abs(sc.rotor.response_1x(n, sc.as_found)[name])
+                           / STANDARD_GRAVITY_M_S2 for n in speeds]) / speeds ** 2
+        assert speeds[np.argmax(measured)] < 0.95 * speeds[np.argmax(steady)]
+        assert measured.max() < 0.95 * steady.max()
+
+
+@pytest.mark.xfail(strict=True, reason=(
+    "issue #20 item 1: on the transient coast-down (seed 5) the grinder's 1x peaks about "
+    "13 % below the 823 rpm mode; the resonance is reported there (717.5/718.2 rpm), the "
+    "steady SDOF model wins the fit (swept false) and reads 697 rpm and damping 9.0/9.1 % "
+    "[7.1, 11.4/11.7] against the modal 3.0 %; the free vibration ringing on below the mode "
+    "adds a peak at 621 rpm with no damping"))
+def test_transient_coastdown_finds_the_rubber_feet_mode_and_its_damping(
+        transient_coast: dict) -> None:
+    # the issue's acceptance on the transient physics: within 5 % of the model's first
+    # critical speed at both pickups, the damping resolved with its 95 % interval holding the
+    # modal 3.0 % (-Re(s)/|s|, tests/test_dsp_sweep_cli.py modal_damping), and no resonance
+    # reported away from a critical speed
+    from test_dsp_sweep_cli import modal_damping
+
+    sc = load_scenario("bench-grinder")
+    criticals = sc.rotor.critical_speeds_rpm()
+    zeta = modal_damping("bench-grinder", criticals[0])
+    at_first = [r for r in transient_coast["resonances"]
+                if abs(r["speed_rpm"] / criticals[0] - 1) <= 0.05]
+    assert {r["pickup"] for r in at_first} == {"left-bearing", "right-bearing"}
+    for r in at_first:
+        assert r["damping_ratio"] is not None
+        low, high = r["damping_ratio_95"]
+        assert low <= zeta <= high
+    for r in transient_coast["resonances"]:
+        assert min(abs(r["speed_rpm"] / m - 1) for m in criticals) <= 0.05, r

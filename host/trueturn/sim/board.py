@@ -55,7 +55,10 @@ STEP_TICKS = 100_000  # at most 50 ms of simulated time per generation step
 STATUS_PERIOD_TICKS = TICK_HZ
 START_DELAY_TICKS = 200  # first conversion of a stream, after the start command
 STANDSTILL_RAD_S = 0.05  # below this the virtual shaft is taken as stopped
-#: the rotor's motion is integrated on the conversions' instants and at least this often
+#: response=quasi-static: a step whose speed changes by more than this (0.5 rpm) follows the
+#: steady 1x across it (a sweep)
+SWEEP_STEP_RAD_S = 0.5 * 2.0 * math.pi / 60.0
+#: response=transient: the rotor's motion is integrated on the conversions' instants and at least this often
 #: (1 ms: the speed taken constant within an interval costs a phase error of at most
 #: Omega' h^2 / 8, 4e-6 rad at the bench grinder's coast-down rate; trueturn.sim.transient)
 MOTION_GRID_TICKS = TICK_HZ // 1000
@@ -91,6 +94,7 @@ class BoardOptions:
     bootloader: str = "new"  # a key of trueturn.link.boards.BOOTLOADER_WAIT_S
     floating_channel: int | None = None  # this input (0-based) has nothing connected
     run: str = "steady"  # a key of RUNS: what the motor does after power-up
+    response: str = "quasi-static"  # a key of RESPONSES: how the rotor follows the speed
 
 
 #: ``sim://NAME?run=...``: what the motor does after power-up (see :func:`run_times`).
@@ -132,6 +136,14 @@ def run_times(scenario: Scenario, run: str) -> dict[str, float]:
     return {"switch_s": round(switch_s, 3), "sweep_s": round(sweep_s, 3),
             "record_s": round(switch_s + sweep_s + 1.0, 1)}
 
+
+#: ``sim://NAME?response=...``: how the rotor's 1x follows a changing speed.
+RESPONSES = {
+    "quasi-static": "the steady 1x of the speed of the moment (no build-up, no lag)",
+    "transient": "the rotor's motion integrated in time (trueturn.sim.transient): through a "
+                 "lightly damped resonance passed quickly the 1x builds up late, peaks later "
+                 "and lower and rings on after it",
+}
 
 #: ``sim://NAME?tach=...``: what a worn set-up does to the once-per-rev signal. Each fault hits
 #: about one edge in ten (its own random stream, so the signals stay as without it).
@@ -217,6 +229,8 @@ class VirtualBoard:
         self._check_speed(self.target_speed_rpm)
         if self.options.run not in RUNS:
             raise ValueError(f"run must be one of {', '.join(RUNS)}")
+        if self.options.response not in RESPONSES:
+            raise ValueError(f"response must be one of {', '.join(RESPONSES)}")
         self.running = self.options.motor_on if self.options.run == "steady" \
             else self.options.run == "coastdown"
         #: the tick at which a run= switches the motor (None: no switch ahead)
@@ -235,6 +249,7 @@ class VirtualBoard:
         self._motion.settle(scenario.rotor.unbalance_phasors(self.all_masses()), self._theta,
                             self._omega)
         self._accel = 0.0  # the last step's angular acceleration, rad/s^2
+        self._transient = self.options.response == "transient"
         self._edges_seen = 0
         self._last_edge_tick = self.tick  # as the firmware's 0 at reset
         self._holdoff_until = self.tick
@@ -248,6 +263,8 @@ class VirtualBoard:
         self._reset_flags = RESET_FLAGS["power_on"]
         self._rx = bytearray()
         self._rx_discarding = False
+        # the last two responses solved (a step's two ends)
+        self._response_cache: list[tuple[float, tuple[Mass, ...], np.ndarray]] = []
         if self.options.bootloader not in BOOTLOADER_WAIT_S:
             raise ValueError(f"bootloader must be one of {', '.join(BOOTLOADER_WAIT_S)}")
         self._boot_at: int | None = None  # in the bootloader until this tick
@@ -383,8 +400,12 @@ class VirtualBoard:
         """The rotor's 1x at this instant as each pickup feels it (m/s^2, project phasors),
         from the motion integrated in time (:mod:`trueturn.sim.transient`) through the
         model's amplitude-dependent gain. Steady running: :meth:`exact_response_1x` at the
-        present speed; during a sweep the build-up and lag of the moment."""
+        present speed; during a sweep the build-up and lag of the moment (with
+        ``response=quasi-static``: the steady response at the present speed)."""
         with self.lock:
+            if not self._transient:
+                return self.scenario.rotor.response_1x(self.speed_rpm, self.all_masses()) \
+                    if self._omega > 0 else {p.name: 0j for p in self.scenario.rotor.pickups}
             turned = nonlinear_accel(self._motion.one_x(self._theta, self._omega, self._accel),
                                      self.scenario.rotor.nonlinearity)
             return {p.name: complex(np.conj(v))
@@ -605,6 +626,24 @@ class VirtualBoard:
         new = omega * math.exp(-dt_s / tau) - friction * dt_s
         return new if new > STANDSTILL_RAD_S else 0.0
 
+    def _pickup_phasors_v(self, omega: float) -> np.ndarray:
+        """1x volts phasors (project convention) at each channel for the present weights."""
+        # The response changes slowly with speed: re-solve when the speed moves by 0.05 rpm.
+        key = (round(omega * 60.0 / TWO_PI / 0.05) * 0.05, tuple(self.all_masses()))
+        for cached in self._response_cache:
+            if cached[:2] == key:
+                return cached[2]
+        sc = self.scenario
+        if omega <= 0:
+            volts = np.zeros(len(sc.rotor.pickups), dtype=complex)
+        else:
+            resp = sc.rotor.response_1x(key[0], list(key[1]))
+            volts = np.array([sc.pickup_volts(resp[p.name], i)
+                              for i, p in enumerate(sc.rotor.pickups)])
+        self._response_cache = [self._response_cache[-1], (key[0], key[1], volts)] \
+            if self._response_cache else [(key[0], key[1], volts)]
+        return volts
+
     def _step(self, n_ticks: int) -> None:
         t0_tick = self.tick
         t1_tick = t0_tick + n_ticks
@@ -623,9 +662,11 @@ class VirtualBoard:
         s = self._stream
         sampled = self._sample_ticks(t0_tick, t1_tick) if s.streaming else None
         vibration = self._move_rotor(t0_tick, t1_tick, theta_at, omega0, omega1, accel,
-                                     None if sampled is None else sampled[1])
+                                     None if sampled is None else sampled[1]) \
+            if self._transient else None
         if sampled is not None:
-            self._sample_events(*sampled, theta_at, omega0, omega1, vibration, events)
+            self._sample_events(*sampled, t0_tick, t1_tick, theta_at, omega0, omega1,
+                                vibration, events)
         while self._next_status_tick < t1_tick:
             events.append((self._next_status_tick, 2, "status", {}))
             self._next_status_tick += STATUS_PERIOD_TICKS
@@ -743,15 +784,15 @@ class VirtualBoard:
             return None
         return vibration[:, np.searchsorted(grid, sample_ticks)]
 
-    def _sample_events(self, index: np.ndarray, ticks: np.ndarray,
+    def _sample_events(self, index: np.ndarray, ticks: np.ndarray, t0_tick: int, t1_tick: int,
                        theta_at: Callable[[np.ndarray | int], np.ndarray], omega0: float,
                        omega1: float, vibration: np.ndarray | None, events: list) -> None:
         s = self._stream
         period = s.period_ticks
         last = int(index[-1])
-        assert vibration is not None  # integrated on these conversions (_move_rotor)
+        share = (ticks - t0_tick) / float(t1_tick - t0_tick)  # of the step, per sample
         volts = self._voltages(index % s.channels, ticks, theta_at(ticks), omega0, omega1,
-                               vibration)
+                               share, vibration)
         if self.options.floating_channel is not None:
             self._float(volts, index % s.channels)
         counts = np.clip(np.rint(volts / ADC_REFERENCE_V * ADC_COUNTS_PER_REFERENCE), 0,
@@ -786,17 +827,30 @@ class VirtualBoard:
         self._last_volts = prev
 
     def _voltages(self, channel: np.ndarray, ticks: np.ndarray, theta: np.ndarray,
-                  omega0: float, omega1: float, vibration: np.ndarray) -> np.ndarray:
-        """Each conversion's volts: the rotor's vibration at that instant (``vibration``,
-        the pickups' complex accelerations integrated in time, :mod:`trueturn.sim.transient`:
+                  omega0: float, omega1: float, share: np.ndarray,
+                  vibration: np.ndarray | None) -> np.ndarray:
+        """Each conversion's volts, the rotor's 1x plus the shop's signals.
+
+        ``response=transient`` (``vibration`` given): the rotor's vibration at that instant,
+        the pickups' complex accelerations integrated in time (:mod:`trueturn.sim.transient`:
         steady at constant speed, building up and lagging through a resonance passed
-        quickly) through the model's amplitude-dependent gain, plus the shop's signals."""
+        quickly), through the model's amplitude-dependent gain. ``response=quasi-static``:
+        the steady response at the speed of the moment (interpolated across the step between
+        the responses at its two ends, so a coast-down or run-up sweeps the response
+        smoothly; no build-up, no lag)."""
         sc = self.scenario
         sig = sc.signals
         scale = self.options.noise_scale
         t_s = ticks.astype(np.float64) / TICK_HZ
         out = np.zeros(len(ticks))
         omega = 0.5 * (omega0 + omega1)
+        if vibration is not None:
+            one_x0 = one_x1 = np.zeros(0, dtype=complex)
+        elif abs(omega1 - omega0) > SWEEP_STEP_RAD_S:  # run-up or coast-down: follow the speed
+            one_x0 = self._pickup_phasors_v(omega0)
+            one_x1 = self._pickup_phasors_v(omega1)
+        else:  # steady (slow wander): the response at the step's mean speed
+            one_x0 = one_x1 = self._pickup_phasors_v(omega)
         speed_ratio_sq = (omega / rpm_to_rad_s(sc.speed_rpm)) ** 2
         line = sc.motor.mains_hz
         for ch in range(int(channel.max()) + 1 if len(channel) else 0):
@@ -807,8 +861,14 @@ class VirtualBoard:
                 continue
             el = sc.electrical[ch]
             v_per_g = el.sensitivity_v_per_g
-            accel = nonlinear_accel(vibration[ch, sel], sc.rotor.nonlinearity)
-            v = el.zero_g_v + np.real(accel) * sc.pickup_volts(1.0, ch)
+            if vibration is not None:
+                accel = nonlinear_accel(vibration[ch, sel], sc.rotor.nonlinearity)
+                v = el.zero_g_v + np.real(accel) * sc.pickup_volts(1.0, ch)
+            else:
+                p = one_x0[ch] if one_x1 is one_x0 else \
+                    one_x0[ch] + share[sel] * (one_x1[ch] - one_x0[ch])
+                # A cos(theta - phi) with the project phasor p = A e^{i phi}
+                v = el.zero_g_v + np.real(p) * np.cos(th) + np.imag(p) * np.sin(th)
             for k, h in enumerate(sig.harmonics + sig.tones):
                 amp_v = h.amplitude_g * v_per_g * scale
                 if not amp_v:

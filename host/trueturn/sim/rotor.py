@@ -15,8 +15,10 @@ Turbomachinery*, rigid rotor on flexible supports):
 
 The equations are solved exactly in the frequency domain (one complex 4x4 linear solve per
 speed): the steady response. The virtual board integrates the same equations in time
-(:mod:`trueturn.sim.transient`) so a run-up or coast-down shows the build-up and lag of a
-resonance passed quickly. Angles follow :mod:`trueturn.angles`: a mass angle is counted from the reference mark
+(:mod:`trueturn.sim.transient`, ``sim://NAME?response=transient``) so a run-up or coast-down
+shows the build-up and lag of a resonance passed quickly.
+
+Angles follow :mod:`trueturn.angles`: a mass angle is counted from the reference mark
 against rotation, a phase is the lag of the 1x positive peak after the tach event. The
 rotor turns in the positive sense of the fixed frame; a pickup direction and the tach
 direction are fixed angles around the shaft, 0 = horizontal, counted with rotation.

@@ -51,6 +51,9 @@ from trueturn.sim.rotor import RigidRotor
 #: intervals is cut into pieces over which the slowest remaining mode decays by at most that
 #: much (the cumulative sums below stay far from overflow: e^30 = 1e13)
 DECAY_LIMIT = 30.0
+#: below this ``|(i W - lambda) h|`` an interval's gain is taken through ``expm1`` (the
+#: direct difference of exponentials would lose ``1e-16 / |x|`` of its precision)
+SMALL_EXPONENT = 1e-3
 #: the eigenvector basis is refused (ValueError) beyond this condition number: a defective
 #: state matrix (two modes merged exactly) has no modal form
 MAX_MODAL_CONDITION = 1e10
@@ -82,6 +85,18 @@ class RotorMotion:
         self._unbalance = np.zeros(len(rotor.planes), dtype=complex)
         self._force_per_rad2 = np.zeros(4, dtype=complex)  # F1
         self._modes_at: float | None = None
+        # the speed-independent parts of the state matrix and the output, once
+        mass, damp, stiff, out = rotor.equations_of_motion(0.0)
+        inv_mass = np.linalg.inv(mass)
+        gyro = rotor.equations_of_motion(1.0)[1] - damp  # G per rad/s
+        self._a_still = np.block([[np.zeros((4, 4)), np.eye(4)],
+                                  [-inv_mass @ stiff, -inv_mass @ damp]])
+        self._a_per_rad_s = np.block([[np.zeros((4, 8))],
+                                      [np.zeros((4, 4)), -inv_mass @ gyro]])
+        self._to_state = np.vstack([np.zeros((4, 4)), inv_mass])
+        self._to_accel = out @ inv_mass  # pickups x 4: acceleration per generalised force
+        self._cy_still = self._to_accel @ np.hstack([-stiff, -damp])
+        self._cy_per_rad_s = self._to_accel @ np.hstack([np.zeros((4, 4)), -gyro])
         self._modes: tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray, np.ndarray,
                            np.ndarray] | None = None
 
@@ -141,18 +156,16 @@ class RotorMotion:
         ``(lam, V, V^-1, [0; M^-1], Cy, M^-1 out-wise)`` with ``accel = Cy z + Dy f``."""
         if self._modes is not None and self._modes_at == omega_rad_s:
             return self._modes
-        mass, damp, stiff, out = self.rotor.equations_of_motion(omega_rad_s)
-        inv_mass = np.linalg.inv(mass)
-        a = np.block([[np.zeros((4, 4)), np.eye(4)], [-inv_mass @ stiff, -inv_mass @ damp]])
+        a = self._a_still + omega_rad_s * self._a_per_rad_s
         lam, vec = np.linalg.eig(a)
-        if np.linalg.cond(vec) > MAX_MODAL_CONDITION:
+        vec_inv = np.linalg.inv(vec)
+        # the 1-norm condition number, from the inverse at hand (numpy.linalg.cond's value)
+        if np.abs(vec).sum(axis=0).max() * np.abs(vec_inv).sum(axis=0).max() \
+                > MAX_MODAL_CONDITION:
             raise ValueError("the rotor's state matrix has no modal form at "
                              f"{omega_rad_s * 30 / math.pi:.1f} rpm (two modes merge)")
-        vec_inv = np.linalg.inv(vec)
-        to_accel = out @ inv_mass  # pickups x 4: acceleration per generalised force
-        cy = to_accel @ np.hstack([-stiff, -damp])
-        self._modes = (lam, vec, vec_inv, np.vstack([np.zeros((4, 4)), inv_mass]), cy,
-                       to_accel)
+        cy = self._cy_still + omega_rad_s * self._cy_per_rad_s
+        self._modes = (lam, vec, vec_inv, self._to_state, cy, self._to_accel)
         self._modes_at = omega_rad_s
         return self._modes
 
@@ -189,12 +202,17 @@ class RotorMotion:
             mean_w = np.where(dt > 0, dtheta / np.where(dt > 0, dt, 1.0), omega_rad_s[1:])
             drive = (mean_w ** 2 - 1j * accel_rad_s2) * np.exp(1j * theta_rad[:-1])
             b = vec_inv @ (to_state @ self._force_per_rad2)  # modal force per (rad/s)^2
-            decay = np.exp(np.outer(lam, dt))  # e^{lambda h}, modes x intervals
-            x = (1j * mean_w[None, :] - lam[:, None]) * dt[None, :]
-            small = np.abs(x) < 0.5
-            safe = np.where(small, 1.0, 1j * mean_w[None, :] - lam[:, None])
-            gain = np.where(small, decay * dt[None, :] * _phi1(np.where(small, x, 0.0)),
-                            (np.exp(1j * mean_w * dt)[None, :] - decay) / safe)
+            if dt.min() == dt.max():  # a uniform grid (the conversions): one e^{lambda h}
+                decay = np.repeat(np.exp(lam * dt[0])[:, None], len(dt), axis=1)
+            else:
+                decay = np.exp(np.outer(lam, dt))  # e^{lambda h}, modes x intervals
+            gap = 1j * mean_w[None, :] - lam[:, None]
+            gain = (np.exp(1j * mean_w * dt)[None, :] - decay) / np.where(gap == 0, 1.0, gap)
+            # the difference cancels where (i W - lambda) h is tiny (relative error 1e-16/|x|)
+            x = gap * dt[None, :]
+            small = np.abs(x) < SMALL_EXPONENT
+            if small.any():
+                gain[small] = (decay * dt[None, :])[small] * _phi1(x[small])
             beta = b[:, None] * gain * drive[None, :]
             # a mode too fast for the intervals follows its forcing: its particular solution
             fast = -lam.real * float(dt.max()) > DECAY_LIMIT

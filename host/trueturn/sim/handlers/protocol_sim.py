@@ -30,6 +30,10 @@
                    coastdown: at speed, then switched off, the rotor coasting to a stop;
                    runup: at standstill, then switched on (trueturn.sim.board.run_times says
                    when, and how long a recording covers it: ``trueturn sim describe``).
+``response=quasi-static|transient``  how the rotor's 1x follows a changing speed: the steady
+                   response of the speed of the moment (default), or the rotor's motion
+                   integrated in time, so a lightly damped resonance passed quickly builds
+                   up late, peaks later and lower and rings on (trueturn.sim.transient).
 ``bootloader=new|old``  with reset_on_open=1: the newer bootloader (waits about 0.5 s) or
                    the old Nano one (about 1.5 s); trueturn.link.boards.BOOTLOADER_WAIT_S.
 
@@ -55,6 +59,7 @@ from trueturn.link.boards import BOOTLOADER_WAIT_S
 from trueturn.link.handlers.virtual import VirtualLineSerial
 from trueturn.sim.board import (
     RESET_FLAGS,
+    RESPONSES,
     RUNS,
     STEP_TICKS,
     TACH_FAULTS,
@@ -69,7 +74,8 @@ if TYPE_CHECKING:
 
 _USAGE = ('expected "sim://NAME[?realtime=0|1&pace=F&seed=N&rpm=R&motor=on|off&noise=F'
           '&unbalance=as-found|none&tick0=T&tach=none|missing|double|knocked|off|chatter'
-          '&reset_on_open=0|1&bootloader=new|old&floating=1|2&run=steady|coastdown|runup]"')
+          '&reset_on_open=0|1&bootloader=new|old&floating=1|2&run=steady|coastdown|runup'
+          '&response=quasi-static|transient]"')
 
 
 class Rig(VirtualBoard):
@@ -177,6 +183,10 @@ class Serial(VirtualLineSerial):
                     if value not in RUNS:
                         raise ValueError(f"run must be one of {', '.join(RUNS)}")
                     opts.run = value
+                elif key == "response":
+                    if value not in RESPONSES:
+                        raise ValueError(f"response must be one of {', '.join(RESPONSES)}")
+                    opts.response = value
                 elif key == "tick0":
                     opts.tick0 = int(_number(key, value, 0, 2**32 - 1, whole=True))
                 else:

@@ -124,11 +124,32 @@ async def type_text(app: TrueturnApp, pilot: Pilot, text: str) -> None:
         await pilot.pause(0.01)
 
 
+def _rig_seconds(pilot: Pilot) -> float | None:
+    """The simulated rig's own clock (None: no simulated rig)."""
+    session = getattr(pilot.app, "session", None)
+    rig = getattr(session, "rig", None) if session is not None else None
+    value = getattr(rig, "time_s", None)
+    return float(value) if isinstance(value, (int, float)) else None
+
+
+#: a hang (nothing moves at all) fails after this many times the wait's own limit
+HANG_FACTOR = 10.0
+
+
 async def wait_for(pilot: Pilot, condition, timeout_s: float = 60.0) -> None:  # type: ignore[no-untyped-def]
-    """Until ``condition()`` holds (looked at once before the first pause)."""
-    deadline = time.monotonic() + timeout_s
+    """Until ``condition()`` holds (looked at once before the first pause).
+
+    Given up only when ``timeout_s`` has passed both on the wall clock and on the simulated
+    rig's own clock (when there is one): a loaded machine slows the app and the rig it
+    drives, not what the app must show after so many seconds of the machine's time; a hang
+    fails after :data:`HANG_FACTOR` times the limit on the wall clock."""
+    started = time.monotonic()
+    rig_started = _rig_seconds(pilot)
     while not condition():
-        if time.monotonic() > deadline:
+        wall = time.monotonic() - started
+        rig_now = _rig_seconds(pilot)
+        rig_done = rig_started is None or rig_now is None or rig_now - rig_started > timeout_s
+        if (wall > timeout_s and rig_done) or wall > HANG_FACTOR * timeout_s:
             raise AssertionError("timed out waiting for the app")
         await pilot.pause(0.05)
 

@@ -11,12 +11,14 @@ from __future__ import annotations
 from trueturn.dsp.coast import SweepOutcome
 from trueturn.dsp.sweep import Resonance, Sweep, SweepPoint, SweepValue
 from trueturn.jobs.records import (
+    JobRecord,
     ResonanceEntry,
     SweepEntry,
     SweepPointEntry,
     SweepValueEntry,
     now_iso,
 )
+from trueturn.model import RunKind
 
 
 def sweep_entry(outcome: SweepOutcome) -> SweepEntry:
@@ -50,3 +52,14 @@ def sweep_of(entry: SweepEntry) -> Sweep:
         r.swept)
         for r in entry.resonances)
     return Sweep(entry.unit, points, resonances, entry.low_rpm, entry.high_rpm, True)
+
+
+def slope_sweeps(job: JobRecord) -> list[Sweep]:
+    """The job's kept sweeps in the order the speed slopes are taken from them: the as-found
+    run's coast-down first (it starts at the balancing speed, from the rotor as found), then
+    every other sweep, the latest first."""
+    kept = [(run, sw) for run in reversed(job.runs) for sw in reversed(run.sweeps)]
+    first = [sw for run, sw in kept
+             if run.kind == RunKind.AS_FOUND and sw.kind == "coastdown"][:1]
+    rest = [sw for _, sw in kept if not any(sw is f for f in first)]
+    return [sweep_of(sw) for sw in [*first, *rest]]

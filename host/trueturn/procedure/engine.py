@@ -11,7 +11,7 @@ positions, ISO 21940-11 permissible unbalance judged at the bearings when they a
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import replace
 
 import numpy as np
@@ -31,7 +31,13 @@ from trueturn.balance.model_first import (
     predict_influence,
 )
 from trueturn.balance.parts import PlaneTarget, best_joint_combination
-from trueturn.balance.readings import BalanceInput, SavedCoefficient, Sensor, Tolerance
+from trueturn.balance.readings import (
+    BalanceInput,
+    SavedCoefficient,
+    Sensor,
+    SpeedSlopeEntry,
+    Tolerance,
+)
 from trueturn.balance.sanity import NoInformationError
 from trueturn.balance.solve import (
     SolveReport,
@@ -48,7 +54,8 @@ from trueturn.balance.trial_mass import (
     suggest_trial,
 )
 from trueturn.dsp.coast import SweepOutcome
-from trueturn.dsp.units import from_acceleration_factor
+from trueturn.dsp.sweep import MAX_SLOPE_SE, Sweep, local_slope
+from trueturn.dsp.units import UNITS, from_acceleration_factor
 from trueturn.errors import UserError
 from trueturn.model import Correction, MassKind, PlacedMass, Plane, Run, RunKind, Verdict
 from trueturn.model.units import ceil_to_scale_g
@@ -106,6 +113,63 @@ def resonances_from_sweep(outcome: SweepOutcome | None, sensors: Sequence[str],
         if speeds and not out[name]:
             out[name] = [SupportResonance(min(speeds), 0.05, fits=False)]
     return out
+
+
+#: how a reading's speed exponent differs from acceleration's (velocity = acceleration /
+#: omega, displacement = acceleration / omega^2; volts are an accelerometer's output)
+EXPONENT_FROM_ACCELERATION = {"volts": 0.0, "acceleration": 0.0, "velocity": -1.0,
+                              "displacement": -2.0}
+
+
+def speed_slopes_from_sweeps(sweeps: Sequence[Sweep], units: Mapping[str, str],
+                             speed_rpm: float, max_exponent_se: float = MAX_SLOPE_SE
+                             ) -> tuple[SpeedSlopeEntry, ...]:
+    """Each pickup's local slope of the 1x with speed at ``speed_rpm``, from the first of
+    ``sweeps`` that measured it well enough at every pickup; empty when none did.
+
+    Parameters
+    ----------
+    sweeps : sequence of Sweep
+        Candidates in order of preference (the job's as-found coast-down first).
+    units : mapping of str to str
+        Per pickup (every one the solve uses), the unit of its readings: the exponent is
+        carried from the sweep's unit to it (velocity's is acceleration's less 1,
+        displacement's less 2; the phase slope is the same in every unit).
+    speed_rpm : float
+        Where the slope is wanted (the speed the runs are compared at), rpm.
+    max_exponent_se : float, default dsp.sweep.MAX_SLOPE_SE
+        A pickup whose exponent's standard error is larger has no slope from that sweep
+        (:func:`trueturn.dsp.sweep.local_slope`: 0.15, under 0.1 % error in a reading
+        carried 0.5 % in speed).
+
+    Returns
+    -------
+    tuple of SpeedSlopeEntry
+        One per pickup of ``units`` (all or none, so no run is half normalised).
+
+    References
+    ----------
+    .. [1] Local power law of the 1x with speed, tangent of ``ln|H|`` against ``ln n`` by
+       weighted least squares (:func:`trueturn.dsp.sweep.local_slope`; common practice, no
+       source); sinusoidal kinematics for the units (``v = a / omega``, ``x = a / omega^2``).
+    """
+    for sweep in sweeps:
+        if not sweep.points or sweep.unit not in UNITS:
+            continue
+        base = EXPONENT_FROM_ACCELERATION[UNITS[sweep.unit][0]]
+        out = []
+        for name, unit in units.items():
+            slope = local_slope(sweep.points, name, speed_rpm,
+                                max_exponent_se=max_exponent_se)
+            if slope is None or unit not in UNITS:
+                break
+            shift = EXPONENT_FROM_ACCELERATION[UNITS[unit][0]] - base
+            out.append(SpeedSlopeEntry(name, slope.amplitude_exponent + shift,
+                                       slope.phase_deg_per_ln_speed))
+        else:
+            if out:
+                return tuple(out)
+    return ()
 
 
 class BalanceEngine:
@@ -222,10 +286,15 @@ class BalanceEngine:
             tolerance = Tolerance(setup.rotor_mass_kg, setup.grade_mm_per_s, setup.speed_rpm,
                                   cg_axial_mm=setup.cg_axial_mm)
         saved = tuple(c for c in setup.saved_coefficients if isinstance(c, SavedCoefficient))
+        # the coast-down's measured slopes, every pickup's or none (phase-less four-run
+        # method: the amplitude exponent alone is used, the phase slope has nothing to turn)
+        slopes = tuple(s for s in setup.speed_slopes if isinstance(s, SpeedSlopeEntry))
+        if {s.sensor for s in slopes} != set(setup.sensors):
+            slopes = ()
         return BalanceInput(planes, tuple(Sensor(s) for s in setup.sensors), tuple(runs),
                             influence=saved, tolerance=tolerance,
                             bearings=setup.bearings if at_bearings else (),
-                            mass_unit=setup.units.mass)
+                            speed_slopes=slopes, mass_unit=setup.units.mass)
 
     def _report(self, inp: BalanceInput) -> SolveReport:
         """Solve, turning the engine's refusals into gate refusals (with the facts kept)."""
@@ -323,15 +392,19 @@ class BalanceEngine:
                   runs: Sequence[Run] = ()) -> Solution:
         sol = report.solution
         off: tuple[OffSpeed, ...] = ()
+        normalised: tuple[OffSpeed, ...] = ()
         if report.speed is not None:
             off = tuple(OffSpeed(o.index, o.label, o.deviation, report.speed.worst_cut_fraction)
                         for o in report.speed.off_speed)
+            if report.speed.normalised_with_slopes:
+                # compared at one speed with the measured slope: no estimate, no repeat
+                off, normalised = (), off
         if setup.owned_parts_g and not removal:
             parts, kit = self._kit_parts(setup, corrections, kind, runs)
         else:
             parts, kit = self._parts(setup, corrections, kind, removal), ()
         return Solution(tuple(corrections), parts, sol.method, tuple(sol.warnings),
-                        sol.influence, off, kit)
+                        sol.influence, off, kit, normalised)
 
     def solve(self, setup: ProcedureSetup, runs: Sequence[Run], removal: bool) -> Solution:
         report = self._report(self._input(setup, runs, with_tolerance=False))

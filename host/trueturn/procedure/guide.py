@@ -180,6 +180,11 @@ class ProcedureSetup:
     #: the units the person sees (machine profile): the procedure's own sentences (refusals,
     #: the redo, the forces confirmed) name masses and forces in them; the facts stay g, N
     units: UnitChoice = METRIC
+    #: per pickup, the local slope of the 1x with speed measured on the job's coast-down
+    #: (the engine's type, opaque here; :func:`trueturn.procedure.engine.
+    #: speed_slopes_from_sweeps`): runs a fraction of a percent apart in speed are then
+    #: compared at one speed; empty: not measured well enough (the speed error estimate)
+    speed_slopes: tuple[object, ...] = ()
 
 
 @dataclass(frozen=True)
@@ -222,6 +227,9 @@ class Solution:
     off_speed: tuple[OffSpeed, ...] = ()  # coefficient runs taken off their group's speed
     #: the parts came from the person's kit (machine profile): what each plane is left with
     kit: tuple[KitFit, ...] = ()
+    #: coefficient runs off their group's speed that were carried to it with the measured
+    #: slope (``ProcedureSetup.speed_slopes``): compared at one speed, nothing to repeat
+    speed_normalised: tuple[OffSpeed, ...] = ()
 
 
 class ModelRefuted(GateRefused):
@@ -1092,6 +1100,12 @@ class Procedure:
                               "profile): add mass instead")
         self.removal = removal
         self.solution = self._solve()
+
+    def set_speed_slopes(self, slopes: Sequence[object]) -> None:
+        """Take each pickup's measured speed slope (a sweep was kept; empty: none measured
+        well enough): every later solve and verdict compares the runs at one speed with
+        it (the engine's type, opaque here)."""
+        self.setup = replace(self.setup, speed_slopes=tuple(slopes))
 
     def repeat_run(self) -> None:
         """Drop the last run and measure it again (after a problem with its readings)."""

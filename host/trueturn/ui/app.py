@@ -62,6 +62,7 @@ from trueturn.ui.resume import (
     OpenJob,
     as_found_condition,
     find_open_job,
+    job_speed_slopes,
     refuse_changed_profile,
     restore_procedure,
     rotor_lines,
@@ -1005,6 +1006,11 @@ class TrueturnApp(App):
         self.sweep_shown = ShownSweep(outcome, self.sweep_label)
         if self.sweep_run is not None:
             self.keeper.sweep(self.sweep_run, outcome)
+            job, proc = self.keeper.job, self.procedure
+            if job is not None and proc is not None:
+                # the runs are compared at one speed with the slopes the kept sweeps
+                # measured (a continued job takes the very same: ui.resume)
+                proc.set_speed_slopes(job_speed_slopes(job))
 
     def model_words(self) -> tuple[str, ...]:
         """Model-first: why the model was not trusted, while the trials it led to go on."""

@@ -16,7 +16,7 @@ a machine no longer saved is continued with the job's own copy, said in one line
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
@@ -31,8 +31,10 @@ from trueturn.jobs import records as rec
 from trueturn.jobs.condition import evidence_finding, verdict_finding
 from trueturn.jobs.profiles import MachineProfile
 from trueturn.jobs.store import Workspace
-from trueturn.model import MassKind, PlacedMass, Plane, Run
+from trueturn.jobs.sweeps import slope_sweeps
+from trueturn.model import MassKind, PlacedMass, Plane, Run, RunKind
 from trueturn.positions import index_of, number_of, position_text
+from trueturn.procedure.engine import speed_slopes_from_sweeps
 from trueturn.procedure.guide import Engine, KeptRun, Mode, ModelAnswer, Procedure, planes_for
 from trueturn.procedure.standstill import StandstillWatch
 from trueturn.schema import to_data
@@ -205,6 +207,20 @@ def model_answer(entry: rec.ModelEntry, job: rec.JobRecord) -> ModelAnswer:
                        entry.residual_fraction_95, prior)
 
 
+def job_speed_slopes(job: rec.JobRecord) -> tuple[object, ...]:
+    """Each pickup's speed slope from the sweeps the job kept (the as-found run's
+    coast-down first, then the latest), at the as-found run's speed in its readings' units;
+    empty before an as-found run, or when no sweep measured every pickup's slope well
+    enough (:func:`trueturn.procedure.engine.speed_slopes_from_sweeps`). The live app and a
+    continued job take them from the same kept sweeps, so they solve alike."""
+    as_found = [r for r in job.runs if r.kind == RunKind.AS_FOUND]
+    if not as_found:
+        return ()
+    latest = as_found[-1]
+    units = {r.sensor: str(r.unit) for r in latest.readings}
+    return speed_slopes_from_sweeps(slope_sweeps(job), units, latest.speed_rpm)
+
+
 def restore_procedure(job: rec.JobRecord, engine: Engine, watch: StandstillWatch | None,
                       standstill_s: float = 3.0, revolutions_per_run: int = 30) -> Procedure:
     """The procedure of an open job, at the step after its last run (one-line UserError
@@ -225,6 +241,7 @@ def restore_procedure(job: rec.JobRecord, engine: Engine, watch: StandstillWatch
     try:
         setup = setup_from_profile(job.machine, mode, standstill_s, revolutions_per_run,
                                    job.influence if mode is Mode.SAVED_TRIM else None)
+        setup = replace(setup, speed_slopes=job_speed_slopes(job))  # as the live app had
         if job.model is not None and job.model.trusted and job.model.planes != [
                 p.name for p in planes_for(setup)]:
             raise ValueError(f"its model covers planes {', '.join(job.model.planes)}, not the "

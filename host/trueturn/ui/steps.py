@@ -390,6 +390,7 @@ class CorrectionPanel(ProcedurePanel):
     parts: reactive[tuple[PlacedMass, ...]] = reactive(())
     warnings: reactive[tuple[str, ...]] = reactive(())
     off_speed: reactive[tuple[OffSpeed, ...]] = reactive(())
+    speed_normalised: reactive[tuple[OffSpeed, ...]] = reactive(())
     offer_again: reactive[bool] = reactive(False)  # e: run the off-speed run again first
     kit: reactive[tuple[KitFit, ...]] = reactive(())  # made from the person's parts
     removal: reactive[bool] = reactive(False)
@@ -421,6 +422,7 @@ class CorrectionPanel(ProcedurePanel):
             self.parts = sol.parts
             self.warnings = sol.warnings[:2]
             self.off_speed = sol.off_speed
+            self.speed_normalised = sol.speed_normalised
             self.kit = sol.kit
             self.offer_again = bool(sol.off_speed) and not proc.trims_done
         self.removal = proc.removal
@@ -471,6 +473,10 @@ class CorrectionPanel(ProcedurePanel):
             lines.append(f"[yellow]Run '{off.label}' was {100 * abs(off.deviation):.1f} % "
                          f"{way}: this correction might cut the 1x by only "
                          f"{100 * max(off.worst_cut, 0.0):.0f} %.[/]")
+        for off in self.speed_normalised:
+            way = "slow" if off.deviation < 0 else "fast"
+            lines.append(f"Run '{off.label}' {100 * abs(off.deviation):.1f} % {way}: "
+                         "compared at one speed (coast-down slope).")
         if self.offer_again:
             lines.append(texts.E_RUN_AGAIN)
         if self.removal_allowed:

@@ -10,6 +10,9 @@ scenario"; 6 g at 0.3 V/g is 1.8 V, beyond the 1.65 V either side of the pickup'
 1x left after the correction is small, so the clipped run would read within the grade:
 the flag is what stops a confidently wrong PASS (ISO 21940-11's verdict needs a true
 reading; the engine's rule, balance/influence.py ``clipped_last_run``).
+
+Model first (issue #20 item 4): a clipped as-found reading gives no model correction (the
+model starts from it), and a clipped check run neither refutes the model nor is judged.
 """
 
 from __future__ import annotations
@@ -27,7 +30,7 @@ from trueturn.dsp.units import PickupProfile
 from trueturn.link.codec import Message, StreamDecoder, encode_frame
 from trueturn.link.ports import open_port
 from trueturn.model import Reading, RunKind, VerdictFlag
-from trueturn.procedure.guide import CLIPPED_CHECK_RUN, GateRefused, Mode
+from trueturn.procedure.guide import CLIPPED_CHECK_RUN, GateRefused, Mode, ModelRefuted
 from trueturn.sim import Mass
 from trueturn.sim.scenario import load_scenario
 
@@ -150,3 +153,61 @@ def test_a_clipped_check_run_is_neither_passed_nor_trimmed_from(rattled: SimRig)
     assert not any(r.clipped for r in proc.runs[-1].readings.values())
     assert proc.verdict is not None and proc.verdict.passed
     rattled.assert_cut(rattled.before)
+
+
+class FlaggedRig(Rig):
+    """The procedure bench (the rotor model's exact 1x) with the runs numbered in
+    ``clipped`` read as a meter reads a pickup that something loose drives past the ADC's
+    range: flagged, the 1x that of the loose part (as loud as the as-found 1x, a third of a
+    turn away; demo numbers) cut by the rail."""
+
+    def __init__(self, mode: Mode, clipped: set[int]) -> None:
+        super().__init__("bench-grinder", mode)
+        self.clipped = clipped
+        self.runs_measured = 0
+
+    def readings(self, scale: float = 1.0) -> dict[str, Reading]:
+        out = super().readings(scale)
+        if self.runs_measured in self.clipped:
+            loud = self.scenario.rotor.response_1x(self.setup.speed_rpm,
+                                                   list(self.scenario.as_found))
+            out = {n: replace(r, amplitude=0.8 * abs(loud[n]),
+                              phase_deg=((r.phase_deg or 0.0) + 120.0) % 360.0, clipped=True)
+                   for n, r in out.items()}
+        self.runs_measured += 1
+        return out
+
+
+def test_model_first_does_not_start_from_a_clipped_as_found_run() -> None:
+    # the model's first correction comes from the as-found 1x alone: read low, it would be
+    # confidently wrong, so the model is not trusted and trials follow (their solve leaves
+    # the clipped reading out)
+    from test_procedure_model_first import as_found_and_sweep, coast_down_resonances
+    rig = FlaggedRig(Mode.MODEL_FIRST, {0})
+    as_found_and_sweep(rig, coast_down_resonances(rig))
+    model = rig.proc.model
+    assert model is not None and not model.trusted and model.distrust == ("clipped",)
+    assert rig.proc.step.kind == "hands-on" and "trial" in rig.proc.step.title
+
+
+def test_a_clipped_check_run_neither_refutes_the_model_nor_passes() -> None:
+    from test_procedure_model_first import as_found_and_sweep, coast_down_resonances
+    rig = FlaggedRig(Mode.MODEL_FIRST, {1})
+    before = rig.response()
+    as_found_and_sweep(rig, coast_down_resonances(rig))
+    proc = rig.proc
+    assert proc.model is not None and proc.model.trusted
+    proc.accept_correction()
+    rig.hands_on()
+    rig.run()   # the check run, clipped: its 1x far from what the model predicts
+    assert proc.model.trusted and not proc.fallback  # a low reading refutes nothing
+    assert proc.problem == CLIPPED_CHECK_RUN and proc.verdict is None
+    # unflagged, the same readings would have dropped the model (what the flag prevents)
+    unflagged = [*proc.runs[:-1], replace(proc.runs[-1], readings={
+        n: replace(r, clipped=False) for n, r in proc.runs[-1].readings.items()})]
+    with pytest.raises(ModelRefuted):
+        proc.engine.model_estimate(proc.setup, unflagged, proc.model.prior)
+    proc.repeat_run()
+    rig.run()   # measured again, clean
+    assert proc.verdict is not None and proc.verdict.passed
+    rig.assert_cut(before)

@@ -87,6 +87,7 @@ class Distrust(str, Enum):
     TOO_UNCERTAIN = "too-uncertain"      # the correction might not even halve the 1x
     REFUTED = "refuted"                  # a run's 1x fell far outside the model's prediction
     UNCALIBRATED = "uncalibrated"        # a pickup reads volts: no unit to predict in
+    CLIPPED = "clipped"                  # an as-found reading clipped: its 1x reads low
 
 
 #: each :class:`Distrust` reason worded for a person (the app's line and the report)
@@ -103,6 +104,8 @@ DISTRUST_WORDS: dict[str, str] = {
     Distrust.REFUTED.value: "the check run's 1x fell far outside its prediction, so its "
                             "masses come off",
     Distrust.UNCALIBRATED.value: "a pickup reads volts (no sensitivity in the profile)",
+    Distrust.CLIPPED.value: "a pickup's as-found signal reached the end of the ADC's range "
+                            "(its 1x reads low)",
 }
 
 

@@ -445,6 +445,10 @@ class BalanceEngine:
                    for n in names]
         if any(f is None for f in factors):
             return ModelAnswer(False, (Distrust.UNCALIBRATED.value,))
+        if any(as_found.readings[n].clipped for n in names):
+            # the model starts from the as-found 1x: one that reads low gives a wrong first
+            # correction with a confident spread (the trials' solve leaves it out instead)
+            return ModelAnswer(False, (Distrust.CLIPPED.value,))
         if len(setup.bearings) != 2 or any(p.axial_mm is None for p in planes):
             return ModelAnswer(False, (Distrust.NO_BEARINGS.value,))
         factor = np.array(factors, dtype=complex)
@@ -496,7 +500,11 @@ class BalanceEngine:
         planes = planes_for(setup)
         estimate = CoefficientEstimate.from_prediction(prior)
         base = mass_vector(runs[0].masses, planes)
-        for run in runs:
+        for k, run in enumerate(runs):
+            if k and any(run.readings[n].clipped for n in setup.sensors):
+                # a clipped reading reads low: never in the coefficients (as the trials'
+                # solve), nor can it refute the model; its run gives no verdict either
+                continue
             estimate.update(mass_vector(run.masses, planes) - base,
                             {n: run.readings[n].vector for n in setup.sensors},
                             {n: run.readings[n].confidence_radius for n in setup.sensors})

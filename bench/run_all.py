@@ -29,6 +29,9 @@ def main(argv: list[str]) -> int:
         spec = importlib.util.spec_from_file_location(script.stem, script)
         assert spec and spec.loader
         module = importlib.util.module_from_spec(spec)
+        # registered before it runs: a dataclass with string annotations looks its module
+        # up in sys.modules (Python 3.11 dataclasses), else the script fails to load
+        sys.modules[script.stem] = module
         started = time.perf_counter()
         try:
             spec.loader.exec_module(module)

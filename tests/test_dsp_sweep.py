@@ -342,31 +342,43 @@ def test_sdof_fit_models_the_revolution_average() -> None:
 
 
 def swept_coast(natural_rpm: float, zeta: float, rate_rpm_s: float, noise_of_peak: float,
-                seed: int) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+                seed: int, low_fraction: float = 0.7,
+                second: tuple[float, float] | None = None
+                ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """A real coast-down through Den Hartog's SDOF (rotating unbalance on a spring-damper):
     ``x'' + 2 zeta wn x' + wn^2 x = w(t)^2 e^{i theta(t)}`` integrated in time by
     :func:`scipy.integrate.solve_ivp` (the build-up and lag of a fast sweep included, as
     F. M. Lewis, Trans. ASME 1932, describes; from memory), speed falling at a constant
-    ``rate_rpm_s`` from 1.4 to 0.7 x natural. Per revolution its mean speed and 1x phasor
-    (project convention: conj of the mean of ``x e^{-i theta}``) with complex normal noise."""
+    ``rate_rpm_s`` from 1.4 to ``low_fraction`` x natural; ``second`` (natural rpm, zeta)
+    adds a second such mode, with its own equation, to the motion. Per revolution its mean
+    speed and 1x phasor (project convention: conj of the mean of ``x e^{-i theta}``) with
+    complex normal noise."""
     from scipy.integrate import solve_ivp
 
     wn = natural_rpm * math.pi / 30.0
     rate = rate_rpm_s * math.pi / 30.0
     w0 = 1.4 * wn
-    stop_s = (w0 - 0.7 * wn) / rate
-
-    def motion(t: float, y: np.ndarray) -> list[float]:
-        w = w0 - rate * t
-        x, v = y[0] + 1j * y[1], y[2] + 1j * y[3]
-        acc = w * w * np.exp(1j * (w0 * t - 0.5 * rate * t * t)) - 2 * zeta * wn * v - wn * wn * x
-        return [v.real, v.imag, acc.real, acc.imag]
-
-    x0 = w0 ** 2 / (wn ** 2 - w0 ** 2 + 2j * zeta * wn * w0)  # steady at the start
+    stop_s = (w0 - low_fraction * wn) / rate
     t = np.arange(0.0, stop_s, 1 / 6000.0)
-    sol = solve_ivp(motion, (0.0, stop_s), [x0.real, x0.imag, -w0 * x0.imag, w0 * x0.real],
-                    t_eval=t, rtol=1e-9, atol=1e-12, max_step=5e-4)
-    x = sol.y[0] + 1j * sol.y[1]
+
+    def one_mode(mode_rpm: float, mode_zeta: float) -> np.ndarray:
+        wm = mode_rpm * math.pi / 30.0
+
+        def motion(time_s: float, y: np.ndarray) -> list[float]:
+            w = w0 - rate * time_s
+            x, v = y[0] + 1j * y[1], y[2] + 1j * y[3]
+            acc = (w * w * np.exp(1j * (w0 * time_s - 0.5 * rate * time_s * time_s))
+                   - 2 * mode_zeta * wm * v - wm * wm * x)
+            return [v.real, v.imag, acc.real, acc.imag]
+
+        x0 = w0 ** 2 / (wm ** 2 - w0 ** 2 + 2j * mode_zeta * wm * w0)  # steady at the start
+        sol = solve_ivp(motion, (0.0, stop_s), [x0.real, x0.imag, -w0 * x0.imag, w0 * x0.real],
+                        t_eval=t, rtol=1e-9, atol=1e-12, max_step=5e-4)
+        return sol.y[0] + 1j * sol.y[1]
+
+    x = one_mode(natural_rpm, zeta)
+    if second is not None:
+        x = x + one_mode(*second)
     theta = w0 * t - 0.5 * rate * t * t
     turn = np.floor(theta / (2 * math.pi)).astype(int)
     speeds, phasors = [], []
@@ -403,3 +415,40 @@ def test_a_fast_coast_down_is_fitted_with_its_build_up_and_lag() -> None:
             assert res.fit_speed_rpm == pytest.approx(823.0, rel=0.02)
     assert resolved >= 5
     assert covered >= resolved - 1  # 95 % nominal: at most one miss in six
+
+
+def test_the_ringing_after_a_fast_passage_is_no_resonance() -> None:
+    # Den Hartog's SDOF (823 rpm, 3 %) coasted at 284 rpm/s on down to 0.4 x its natural
+    # speed: the free vibration left by the fast passage beats against the falling 1x
+    # (Lewis 1932) and the normalised response shows two more peaks below the mode, whose
+    # phase keeps turning. They are no resonance: the swept model of the mode explains them.
+    # A real second mode down there (560 rpm) is kept.
+    for seed in range(3):
+        speeds, a, sig = swept_coast(823.0, 0.03, 284.0, 0.003, seed, low_fraction=0.4)
+        sweep = analyse_sweep(speeds, {"p": a}, {"p": sig}, "um pk-pk",
+                              spans_rpm=revolution_spans_rpm(speeds))
+        used = [(p.speed_rpm, v.amplitude, v.phase_deg) for p in sweep.points
+                for v in p.pickups if v.usable]
+        n = np.array([u[0] for u in used])
+        peaks = half_power_resonances(n, normalised_response(
+            n, np.array([u[1] for u in used]), "um pk-pk"), "p", np.array([u[2] for u in used]))
+        assert len([p for p in peaks if p.speed_rpm < 0.8 * 823.0]) >= 2  # the ringing shows
+        [res] = sweep.resonances
+        assert res.speed_rpm == pytest.approx(823.0, rel=0.02)
+        assert res.peak_rpm is not None and res.peak_rpm < 0.92 * 823.0  # the lagged peak
+        assert res.swept is True and res.damping_ratio_95 is not None
+        assert res.damping_ratio_95[0] <= 0.03 <= res.damping_ratio_95[1]
+        assert res.sweep_rate_parameter is not None and res.sweep_rate_parameter > 1.0
+        speeds, a, sig = swept_coast(823.0, 0.03, 284.0, 0.003, seed, low_fraction=0.4,
+                                     second=(560.0, 0.03))
+        sweep = analyse_sweep(speeds, {"p": a}, {"p": sig}, "um pk-pk",
+                              spans_rpm=revolution_spans_rpm(speeds))
+        assert any(r.speed_rpm < 0.8 * 823.0 for r in sweep.resonances)  # the second mode
+        for r in sweep.resonances:
+            if r.damping_ratio is None:
+                continue
+            # the first mode's fit reaches into the second's swept response, which its steady
+            # residual terms model only roughly: about 8 % high, at the edge of its interval
+            # (a known limit of the one-mode fit, not hidden here)
+            assert r.speed_rpm == pytest.approx(823.0, rel=0.02)
+            assert r.damping_ratio == pytest.approx(0.03, rel=0.1)

@@ -214,6 +214,8 @@ class Analysis:
                                   num(r.damping_ratio_95[1], 4)],
                             "half_power_damping_ratio": num(r.half_power_damping_ratio, 4),
                             "swept": r.swept,
+                            "peak_rpm": num(r.peak_rpm, 1),
+                            "sweep_rate_parameter": num(r.sweep_rate_parameter, 3),
                             "half_power_rpm": None if r.lower_rpm is None or r.upper_rpm is None
                             else [num(r.lower_rpm, 1), num(r.upper_rpm, 1)],
                             "points_in_band": r.points_in_band,
@@ -228,18 +230,23 @@ class Analysis:
                            "min_ratio": MIN_SWEEP_RATIO, "bin_fraction": BIN_FRACTION,
                            "balancing_speed_rpm": num(balancing_speed_rpm(sw) or math.nan, 1),
                            "resonance_margin": RESONANCE_MARGIN,
-                           "method": "resonance speed: peak of the 1x per unit unbalance "
-                                     "force (divided by speed^2 and the pickup's own power "
+                           "method": "peaks of the 1x per unit unbalance force "
+                                     "(divided by speed^2 and the pickup's own power "
                                      "of speed), half-power bandwidth (Ewins, Modal "
-                                     "Testing, sec. 4.2); damping_ratio: sdof_fit, a "
+                                     "Testing, sec. 4.2); speed_rpm: the SDOF fit's "
+                                     "natural speed when it resolved the mode, else the "
+                                     "peak (peak_rpm); damping_ratio: sdof_fit, a "
                                      "least-squares fit of one SDOF mode with residual "
                                      "terms to the complex 1x (amplitude and phase) of "
-                                     "each revolution near the peak, averaged across the "
+                                     "each revolution near it, averaged across the "
                                      "revolution's speed change (Ewins sec. 4.3-4.4), "
-                                     "or with the sweep's build-up and lag (swept: true; "
-                                     "Lewis 1932) when that fits better; "
-                                     "damping_ratio_95 from the fit's covariance; null "
-                                     "when not resolved"},
+                                     "or with the sweep's build-up, lag and ringing "
+                                     "(swept: true; Lewis 1932), taken when the "
+                                     "sweep_rate_parameter |d omega/dt| / (zeta omega_n)^2 "
+                                     "is at least 1 unless the response plainly followed "
+                                     "the speed; peaks that the ringing after a mode "
+                                     "explains are left out; damping_ratio_95 from the "
+                                     "fit's covariance; null when not resolved"},
             "speed_slopes": [{"pickup": k.pickup, "speed_rpm": num(k.speed_rpm, 1),
                               "amplitude_exponent": num(k.amplitude_exponent, 4),
                               "amplitude_exponent_se": num(k.amplitude_exponent_se, 4),

@@ -27,6 +27,7 @@ from trueturn.dsp.findings import Code, Finding
 from trueturn.dsp.meter import LiveAnalyzer, MessageLike
 from trueturn.dsp.sweep import (
     MIN_SWEEP_RATIO,
+    NORMALISING_POWER,
     RESONANCE_MARGIN,
     Sweep,
     analyse_sweep,
@@ -61,7 +62,9 @@ class SweepOutcome:
 
 def meter_sweep(meter: LiveAnalyzer, unit: str | None = None) -> Sweep:
     """Every revolution a meter holds, its 1x binned against speed (:mod:`trueturn.dsp.sweep`),
-    in one unit for all pickups (volts when they differ, e.g. one without a sensitivity).
+    in one unit for all pickups (volts when they differ, e.g. one without a sensitivity);
+    the pickups are accelerometers (their 1x converted to the unit at each revolution's
+    speed), which the swept model of a fast sweep is told.
 
     Parameters
     ----------
@@ -88,13 +91,16 @@ def meter_sweep(meter: LiveAnalyzer, unit: str | None = None) -> Sweep:
     return analyse_sweep(speeds, {meter.profile(c).name: v[1] for c, v in kept},
                          {meter.profile(c).name: v[2] for c, v in kept},
                          vectors[0][3] if vectors else "V pk",
-                         spans_rpm=revolution_spans_rpm(speeds))
+                         spans_rpm=revolution_spans_rpm(speeds),
+                         sensed_power=NORMALISING_POWER["acceleration"])
 
 
 def sweep_findings(sweep: Sweep) -> tuple[float | None, list[Finding]]:
     """The balancing speed of a sweep and what to say about it: ``no_speed_change`` when it
     is not a sweep, ``near_resonance`` (per pickup) when the balancing speed lies within
-    :data:`trueturn.dsp.sweep.RESONANCE_MARGIN` of a resonance found.
+    :data:`trueturn.dsp.sweep.RESONANCE_MARGIN` of a resonance found: of its fitted natural
+    speed when the fit resolved it (a fast sweep's peak lies well after the mode), else of
+    its peak (``peak_rpm`` in the details).
 
     Parameters
     ----------
@@ -121,6 +127,7 @@ def sweep_findings(sweep: Sweep) -> tuple[float | None, list[Finding]]:
         for res in near_resonances(at, sweep.resonances):
             found.append(Finding(Code.NEAR_RESONANCE, res.pickup, details={
                 "speed_rpm": round(at, 1), "resonance_rpm": round(res.speed_rpm, 1),
+                "peak_rpm": None if res.peak_rpm is None else round(res.peak_rpm, 1),
                 "damping_ratio": None if res.damping_ratio is None
                 else round(res.damping_ratio, 4), "margin": RESONANCE_MARGIN}))
     return at, found

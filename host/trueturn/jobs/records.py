@@ -326,7 +326,8 @@ class SweepPointEntry:
 
 @dataclass
 class ResonanceEntry:
-    """A support resonance found at one pickup (dsp/sweep.py): its speed (half-power peak),
+    """A support resonance found at one pickup (dsp/sweep.py): its speed (the fitted mode's
+    when resolved, else the half-power peak),
     damping ratio (None when not resolved) by ``method`` with its 95 % interval, the
     half-power band and the measured points in it, how far the peak stands above its
     valleys, and the one-mode curve fit's values."""
@@ -348,6 +349,10 @@ class ResonanceEntry:
     half_power_damping_ratio: float | None = field(default=None, metadata=limits(above=0))
     #: the fit's model: True the swept response (build-up and lag), False the steady one
     swept: bool | None = None
+    #: the observed peak (``speed_rpm`` is the fitted mode's when the fit resolved it) and
+    #: the sweep-rate parameter ``|d omega/dt| / (zeta omega_n)^2`` there (Lewis 1932)
+    peak_rpm: float | None = field(default=None, metadata=limits(above=0))
+    sweep_rate_parameter: float | None = field(default=None, metadata=limits(minimum=0))
 
 
 @dataclass

@@ -33,7 +33,7 @@ def sweep_entry(outcome: SweepOutcome) -> SweepEntry:
         r.fit_damping_ratio, r.single_mode,
         None if r.damping_ratio_95 is None else r.damping_ratio_95[0],
         None if r.damping_ratio_95 is None else r.damping_ratio_95[1],
-        r.half_power_damping_ratio, r.swept)
+        r.half_power_damping_ratio, r.swept, r.peak_rpm, r.sweep_rate_parameter)
         for r in sweep.resonances]
     return SweepEntry(outcome.kind, now_iso(), sweep.unit, sweep.low_rpm, sweep.high_rpm,
                       points, resonances, outcome.balancing_rpm)
@@ -49,7 +49,7 @@ def sweep_of(entry: SweepEntry) -> Sweep:
         r.peak_ratio, r.method, r.fit_speed_rpm, r.fit_damping_ratio, r.single_mode,
         None if r.damping_ratio_95_low is None or r.damping_ratio_95_high is None
         else (r.damping_ratio_95_low, r.damping_ratio_95_high), r.half_power_damping_ratio,
-        r.swept)
+        r.swept, r.peak_rpm, r.sweep_rate_parameter)
         for r in entry.resonances)
     return Sweep(entry.unit, points, resonances, entry.low_rpm, entry.high_rpm, True)
 

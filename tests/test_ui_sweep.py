@@ -154,10 +154,10 @@ def test_a_balancing_speed_near_a_resonance_is_warned_in_the_guide(tmp_path: Pat
     asyncio.run(scenario())
 
 
-def test_a_runs_end_saves_the_job_once_and_a_resumed_job_keeps_its_sweeps(
+def test_a_runs_end_saves_the_run_at_once_and_a_resumed_job_keeps_its_sweeps(
         tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
-    # the run and the run-up that led to it are kept in one save of the job (one atomic
-    # write, its run-up's points written once beside it); counted, never timed
+    # the run is kept in one save of the job at once; the run-up that led to it follows
+    # once fitted (its points written once beside the job); counted, never timed
     writes = Writes(monkeypatch)
 
     async def first() -> None:
@@ -173,14 +173,18 @@ def test_a_runs_end_saves_the_job_once_and_a_resumed_job_keeps_its_sweeps(
             writes.names.clear()
             await press(app, pilot, "enter")  # arm the as-found run: the motor starts
             await wait_for(pilot, lambda: len(proc.runs) == 1, 120)
-            # the run is recorded and saved in the same refresh
-            assert writes.names == [f"{stem}.run-1-runup.sweep.yml", job_name]
+            # the run is saved in the refresh that records it; its run-up, fitted off the
+            # refresh, follows: its points once beside the job, then the job naming them
+            assert writes.names[:1] == [job_name]
+            await wait_for(pilot, lambda: app.sweeps_pending == 0 and len(writes.names) >= 3)
+            assert writes.names == [job_name, f"{stem}.run-1-runup.sweep.yml", job_name]
             job = read_document(app.keeper.path, "job")
             assert [s.kind for s in job.runs[0].sweeps] == ["runup"]
             await press(app, pilot, "x")  # the motor off: the coast-down is kept at standstill
             await wait_for(pilot, lambda: app.sweep_shown is not None
                            and app.sweep_shown.outcome.kind == "coastdown", 180)
-            assert writes.names[2:] == [f"{stem}.run-1-coastdown.sweep.yml", job_name]
+            await wait_for(pilot, lambda: app.sweeps_pending == 0)
+            assert writes.names[3:] == [f"{stem}.run-1-coastdown.sweep.yml", job_name]
             await press(app, pilot, "q")
 
     async def second() -> None:

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import statistics
 import time
+from collections.abc import Callable
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -27,7 +28,7 @@ from textual.widgets import ContentSwitcher, Footer, Static
 from textual.worker import get_current_worker
 
 from trueturn.dsp.analysis import judge_second_start
-from trueturn.dsp.coast import SweepOutcome
+from trueturn.dsp.coast import SweepOutcome, SweepRecorder
 from trueturn.dsp.findings import Finding, describe
 from trueturn.dsp.severity import Severity
 from trueturn.dsp.tachless import speed_band_hz
@@ -401,6 +402,7 @@ class TrueturnApp(App):
         self.sweep_run: int | None = None
         self.sweep_label = ""
         self.sweep_coasting = False
+        self.sweeps_pending = 0  # recordings being fitted off the refresh (_finish_sweep)
 
     # ---- lifecycle ----------------------------------------------------------------------
     def on_mount(self) -> None:
@@ -903,13 +905,8 @@ class TrueturnApp(App):
         self._run_logic(snap)
         if self.sweep_coasting and snap.standstill:
             self.sweep_coasting = False
-            outcome = self.session.finish_sweep()
-            self.keep_sweep(outcome)
-            if proc is not None and proc.awaiting_sweep:
-                # model-first: the as-found run's coast-down gives the supports' resonances
-                proc.sweep_analysed(resonances_from_sweep(
-                    outcome, proc.setup.sensors, proc.runs[0].speed_rpm or proc.setup.speed_rpm))
-                self.keeper.model(proc)  # a continued job uses the very same model
+            self._finish_sweep(self.session.stop_sweep_recording(), self.sweep_run,
+                               self.sweep_label, self._coast_down_analysed)
         bench.query_one("#status", StatusStrip).show(
             snap, machine=self.config.profile.name, demo=self.config.demo,
             identity=self.session.identity, link_error=self.link_error,
@@ -957,12 +954,13 @@ class TrueturnApp(App):
                 condition = self.session.machine_condition()
                 self.condition = texts.condition_lines(*condition, as_found=(
                     run.kind is RunKind.AS_FOUND))
-            # the run-up ends, the coast-down follows; the run is kept with its run-up in
-            # one save
-            runup = self.session.start_sweep()
+            # the run-up ends, the coast-down follows; the run is kept at once, its run-up
+            # when its fits are done (off the refresh: they take most of a second)
+            runup = self.session.start_sweep_recording()
             if run is not proc.second_start:
-                self.keeper.run(proc, run, condition, runup)
-            self.start_sweep(run, coasting=True, ended=runup)
+                self.keeper.run(proc, run, condition)
+            self.start_sweep(run, coasting=True)
+            self._finish_sweep(runup, self.sweep_run, run.label)
             if condition is not None and run.kind is RunKind.AS_FOUND:
                 self.as_found_condition = condition
                 proc.as_found_judged(failing_rules(condition[1]))
@@ -979,14 +977,13 @@ class TrueturnApp(App):
                 self.message += f" {note}"
 
     # ---- sweeps (issue #20) ---------------------------------------------------------------
-    def start_sweep(self, run: Run | None, coasting: bool,
-                    ended: SweepOutcome | None = None) -> None:
+    def start_sweep(self, run: Run | None, coasting: bool) -> None:
         """Keep each revolution's 1x from now: a run-up (at arming, ``run`` None) or the
-        coast-down after ``run``; the recording going on till now is finished and kept
-        first; at ``run``'s end the recording was already finished (``ended``, its run-up)
-        and kept with the run (:meth:`JobKeeper.run`), here only shown."""
+        coast-down after ``run``; the recording going on till now is finished (off the
+        refresh) and kept first; at ``run``'s end its run-up was handed over already."""
         if run is None:
-            self.keep_sweep(self.session.start_sweep())
+            self._finish_sweep(self.session.start_sweep_recording(), self.sweep_run,
+                               self.sweep_label)
             self.sweep_run, self.sweep_label = None, ""
         else:
             job = self.keeper.job
@@ -995,17 +992,58 @@ class TrueturnApp(App):
                 proc is None or run is not proc.second_start)
             self.sweep_run = len(job.runs) if kept and job is not None else None
             self.sweep_label = run.label
-            if ended is not None:
-                self.sweep_shown = ShownSweep(ended, run.label)
         self.sweep_coasting = coasting
 
-    def keep_sweep(self, outcome: SweepOutcome | None) -> None:
-        """Show a finished sweep, and keep it with its run in the job."""
+    def keep_sweep(self, outcome: SweepOutcome | None, run_number: int | None = None,
+                   label: str | None = None) -> None:
+        """Show a finished sweep, and keep it with its run (``run_number``, 1-based; default:
+        the sweep's run now) in the job."""
         if outcome is None:
             return
-        self.sweep_shown = ShownSweep(outcome, self.sweep_label)
-        if self.sweep_run is not None:
-            self.keeper.sweep(self.sweep_run, outcome)
+        if label is None:
+            run_number, label = self.sweep_run, self.sweep_label
+        self.sweep_shown = ShownSweep(outcome, label)
+        if run_number is not None:
+            self.keeper.sweep(run_number, outcome)
+
+    def _finish_sweep(self, recording: SweepRecorder | None, run_number: int | None,
+                      label: str,
+                      then: Callable[[SweepOutcome | None], None] | None = None) -> None:
+        """Fit a finished recording off the screen's refresh (a thread: the resonance fits
+        take most of a second), then, back on the app's thread, show it, keep it with run
+        ``run_number`` and call ``then`` with it. Pending fits are counted
+        (:attr:`sweeps_pending`) so nothing waits on a sweep that never comes."""
+        if recording is None:
+            if then is not None:
+                then(None)
+            return
+        self.sweeps_pending += 1
+
+        def done(outcome: SweepOutcome | None) -> None:
+            self.sweeps_pending -= 1
+            self.keep_sweep(outcome, run_number, label)
+            if then is not None:
+                then(outcome)
+            self.tick()  # what changed is drawn now, as after a key
+
+        def fit() -> None:
+            try:
+                outcome = recording.finish()
+            except Exception:  # noqa: BLE001 - a failed fit is a sweep not kept, said
+                outcome = None
+                self.call_from_thread(setattr, self, "message",
+                                      "A sweep could not be analysed; it was not kept.")
+            self.call_from_thread(done, outcome)
+
+        self.run_worker(fit, thread=True, group="sweeps", exit_on_error=False)
+
+    def _coast_down_analysed(self, outcome: SweepOutcome | None) -> None:
+        """Model-first: the as-found run's coast-down gives the supports' resonances."""
+        proc = self.procedure
+        if proc is not None and proc.awaiting_sweep:
+            proc.sweep_analysed(resonances_from_sweep(
+                outcome, proc.setup.sensors, proc.runs[0].speed_rpm or proc.setup.speed_rpm))
+            self.keeper.model(proc)  # a continued job uses the very same model
             job, proc = self.keeper.job, self.procedure
             if job is not None and proc is not None:
                 # the runs are compared at one speed with the slopes the kept sweeps

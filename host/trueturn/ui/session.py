@@ -17,7 +17,7 @@ from typing import Any, Protocol
 
 import serial
 
-from trueturn.dsp.coast import SweepOutcome
+from trueturn.dsp.coast import SweepRecorder
 from trueturn.dsp.motion import MotionMonitor
 from trueturn.errors import UserError
 from trueturn.jobs.profiles import MachineProfile
@@ -406,18 +406,18 @@ class LinkSession:
         with self._state:
             self.meter.reset()
 
-    def start_sweep(self) -> SweepOutcome | None:
+    def start_sweep_recording(self) -> SweepRecorder | None:
         """Keep each revolution's 1x from now on for a sweep (:meth:`MeterAdapter.start_sweep`);
-        returns the recording this one replaces, as a sweep, or None."""
+        returns the recording this one replaces, unfinished (its fits take most of a second:
+        the app finishes it off the screen's refresh, :meth:`SweepRecorder.finish`), or None."""
         with self._state:
-            done = self.meter.start_sweep()
-        return done.finish() if done is not None else None  # the fits outside the lock
+            return self.meter.start_sweep()
 
-    def finish_sweep(self) -> SweepOutcome | None:
-        """The recording since :meth:`start_sweep` as a sweep, or None; stops recording."""
+    def stop_sweep_recording(self) -> SweepRecorder | None:
+        """Stop recording; the recording since :meth:`start_sweep_recording`, unfinished, or
+        None."""
         with self._state:
-            done = self.meter.stop_sweep()
-        return done.finish() if done is not None else None
+            return self.meter.stop_sweep()
 
     @property
     def sweeping(self) -> bool:

@@ -39,6 +39,7 @@ from trueturn.jobs.store import Workspace, read_document
 from trueturn.sim.scenario import scenario_dir
 from trueturn.ui.app import AppConfig, TrueturnApp
 from trueturn.ui.launch import scenario_profile
+from trueturn.ui.resume import job_speed_slopes
 
 
 def model_resonances_rpm(path: Path) -> list[float]:
@@ -185,6 +186,10 @@ def test_a_runs_end_saves_the_run_at_once_and_a_resumed_job_keeps_its_sweeps(
                            and app.sweep_shown.outcome.kind == "coastdown", 180)
             await wait_for(pilot, lambda: app.sweeps_pending == 0)
             assert writes.names[3:] == [f"{stem}.run-1-coastdown.sweep.yml", job_name]
+            # the kept sweeps give the solve each pickup's slope with speed (issue #20
+            # item 2), as a continued job gets them (ui.resume.job_speed_slopes)
+            assert proc.setup.speed_slopes
+            assert proc.setup.speed_slopes == job_speed_slopes(app.keeper.job)
             await press(app, pilot, "q")
 
     async def second() -> None:

@@ -1005,6 +1005,11 @@ class TrueturnApp(App):
         self.sweep_shown = ShownSweep(outcome, label)
         if run_number is not None:
             self.keeper.sweep(run_number, outcome)
+            job, proc = self.keeper.job, self.procedure
+            if job is not None and proc is not None:
+                # the runs are compared at one speed with the slopes the kept sweeps
+                # measured (a continued job takes the very same: ui.resume)
+                proc.set_speed_slopes(job_speed_slopes(job))
 
     def _finish_sweep(self, recording: SweepRecorder | None, run_number: int | None,
                       label: str,
@@ -1044,11 +1049,6 @@ class TrueturnApp(App):
             proc.sweep_analysed(resonances_from_sweep(
                 outcome, proc.setup.sensors, proc.runs[0].speed_rpm or proc.setup.speed_rpm))
             self.keeper.model(proc)  # a continued job uses the very same model
-            job, proc = self.keeper.job, self.procedure
-            if job is not None and proc is not None:
-                # the runs are compared at one speed with the slopes the kept sweeps
-                # measured (a continued job takes the very same: ui.resume)
-                proc.set_speed_slopes(job_speed_slopes(job))
 
     def model_words(self) -> tuple[str, ...]:
         """Model-first: why the model was not trusted, while the trials it led to go on."""

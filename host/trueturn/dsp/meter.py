@@ -76,6 +76,12 @@ TACH_SCATTER_WARN_DEG = 0.5  # tach edges scattering more than this are worth a 
 TIMING_BIAS_TICKS = 1.5
 
 
+
+#: the speed counts as steady for the spectrum while every revolution stays within this
+#: fraction of the first settled one (our choice: a motor's load wander stays well inside,
+#: a run-up or coast-down leaves it within a few revolutions)
+STEADY_SPECTRUM_FRACTION = 0.02
+
 class MessageLike(Protocol):
     @property
     def name(self) -> str: ...
@@ -297,6 +303,10 @@ class LiveAnalyzer:
         # per channel, each fitted revolution's samples at an ADC rail (aligned with _rows)
         self._clips = [_RowStore(self.max_revs) for _ in range(self.channels)]
         self._periods = _RowStore(self.max_revs)
+        # how long the speed has held within STEADY_SPECTRUM_FRACTION of one value: the
+        # spectrum looks at no samples from before (a run-up's sweeping 1x is no peak)
+        self._steady_ref_rpm: float | None = None
+        self._steady_s = 0.0
         ring_len = max(64, int(self.spectrum_seconds * self.rate_hz)) * max(self.channels, 1)
         self._ring = _Ring(ring_len)
         self._latest_tick = self.start_tick
@@ -632,6 +642,12 @@ class LiveAnalyzer:
                 self._rows[c].append({name: getattr(fit, name) for name in ROW_FIELDS})
                 self._clips[c].append({"at_rail": clips[c]})
             self._periods.append({"ticks": ends - starts})
+            for period_s in (ends - starts) / float(self.tick_hz):
+                rpm = 60.0 / float(period_s)
+                if (self._steady_ref_rpm is None
+                        or abs(rpm / self._steady_ref_rpm - 1.0) > STEADY_SPECTRUM_FRACTION):
+                    self._steady_ref_rpm, self._steady_s = rpm, 0.0
+                self._steady_s += float(period_s)
         keep_from = min(self._pending[0].start_tick if self._pending else ready[-1].end_tick,
                         ready[-1].end_tick)
         self._trim(keep_from)
@@ -1017,8 +1033,15 @@ class LiveAnalyzer:
             rot_hz = float(recent.mean()) / 60.0
         self._flush_fresh()
         interleaved = self._ring.values()
+        steady = None
+        if len(self._periods):
+            # only the samples since the speed settled: a run-up or coast-down in the window
+            # smears the 1x into bins below it, a "peak at no shaft order" that is not there
+            steady = max(1, int(self._steady_s * self.rate_hz))
         for c in range(self.channels):
             values = interleaved[c::self.channels]
+            if steady is not None and steady < values.size:
+                values = values[-steady:]
             if values.size < 64:
                 out.append(None)
                 continue

@@ -335,6 +335,8 @@ NOTHING_TO_SAVE = "The job is saved: nothing to move."
 
 
 MAY_NOT_HELP_HEAD = "[b yellow]Not only unbalance: balancing may not help. Find and fix first:[/]"
+#: after a check run, still rough (zone C/D), and what is left is not mostly unbalance
+LEFT_NOT_UNBALANCE_HEAD = "[b yellow]What is left is not mostly unbalance:[/]"
 
 
 def second_start_off_speed(first_rpm: float, second_rpm: float) -> str:
@@ -354,10 +356,16 @@ def condition_lines(severity: Sequence[Severity], unbalance: Sequence[Finding],
     lines = [f"[b]Machine condition ({when}{over}):[/b]"]
     # the brief words name the pickup and fit one line (a refusal keeps its reason)
     lines += [f"  {describe(s.as_finding(), brief=True)}" for s in severity]
-    if unbalance:
+    rough = [s.pickup for s in severity if s.zone is not None and s.zone.value in ("C", "D")]
+    if unbalance and (as_found or rough):
+        # after a check run in zone A/B what is left is rightly not unbalance (the 1x is
+        # gone): the rules speak only while the machine is still rough
         verdict = unbalance[0]
         failing = [f for f in unbalance[1:] if not f.details.get("ok", True)]
-        if verdict.code is Code.BALANCING_MAY_NOT_HELP:
+        if verdict.code is Code.BALANCING_MAY_NOT_HELP and not as_found:
+            lines.append(LEFT_NOT_UNBALANCE_HEAD)
+            lines += [f"[yellow]  {describe(f)}[/]" for f in failing]
+        elif verdict.code is Code.BALANCING_MAY_NOT_HELP:
             # one line (the failing rules below say what): the guide is 80x24
             lines.append(MAY_NOT_HELP_HEAD if failing else f"[b yellow]{describe(verdict)}[/]")
             lines += [f"[yellow]  {describe(f)}[/]" for f in failing]
@@ -366,7 +374,6 @@ def condition_lines(severity: Sequence[Severity], unbalance: Sequence[Finding],
             # a second start that repeated: said briefly (a moved 1x is in the failing lines)
             lines += [f"  {describe(f, brief=True)}" for f in unbalance[1:]
                       if f.code is Code.PHASE_REPEATABLE and f.details.get("ok")]
-    rough = [s.pickup for s in severity if s.zone is not None and s.zone.value in ("C", "D")]
     if rough and not as_found:
         lines.append(f"[yellow]Still zone C/D at {', '.join(rough)}: the rotor may be within "
                      "its grade while the machine is not; look at mounting, alignment, "

@@ -195,3 +195,17 @@ def test_a_run_kept_soon_after_its_run_up_is_judged_on_steady_samples(
         adapter.feed(item)
     _, unbalance = adapter.condition()
     assert unbalance and unbalance[0].code is Code.UNBALANCE_LIKELY, unbalance[0]
+
+
+def test_a_coast_down_begun_at_the_runs_end_takes_the_runs_speed() -> None:
+    # the person may switch off the moment the run is kept: the coast-down then holds no
+    # steady part (no point of STEADY_POINT_REVS revolutions), and its balancing speed is
+    # the run's own measured speed (else none, and no near-resonance could be judged)
+    from trueturn.dsp.sweep import Resonance
+
+    points = tuple(SweepPoint(s, 3, ()) for s in (900.0, 1500.0, 2400.0, 3300.0))
+    res = Resonance(3000.0, "left", 0.03, None, None, 0, 2.0)
+    quick = Sweep("g pk", points, (res,), 900.0, 3300.0, True)
+    assert sweep_findings(quick) == (None, [])
+    at, found = sweep_findings(quick, run_speed_rpm=3480.0)
+    assert at == 3480.0 and [f.code for f in found] == [Code.NEAR_RESONANCE]

@@ -95,7 +95,8 @@ def meter_sweep(meter: LiveAnalyzer, unit: str | None = None) -> Sweep:
                          sensed_power=NORMALISING_POWER["acceleration"])
 
 
-def sweep_findings(sweep: Sweep) -> tuple[float | None, list[Finding]]:
+def sweep_findings(sweep: Sweep, run_speed_rpm: float | None = None
+                   ) -> tuple[float | None, list[Finding]]:
     """The balancing speed of a sweep and what to say about it: ``no_speed_change`` when it
     is not a sweep, ``near_resonance`` (per pickup) when the balancing speed lies within
     :data:`trueturn.dsp.sweep.RESONANCE_MARGIN` of a resonance found: of its fitted natural
@@ -106,11 +107,15 @@ def sweep_findings(sweep: Sweep) -> tuple[float | None, list[Finding]]:
     ----------
     sweep : Sweep
         The sweep.
+    run_speed_rpm : float or None, default None
+        The balancing speed measured by the run the sweep belongs to, taken when the sweep
+        itself holds no steady part (a coast-down begun right at the run's end).
 
     Returns
     -------
     tuple
-        ``(balancing_rpm, findings)``; the speed None when the sweep held no steady part.
+        ``(balancing_rpm, findings)``; the speed None when neither the sweep held a steady
+        part nor a run's speed was given.
 
     References
     ----------
@@ -118,6 +123,8 @@ def sweep_findings(sweep: Sweep) -> tuple[float | None, list[Finding]]:
        API 684-style margins; common practice, no single source).
     """
     at = balancing_speed_rpm(sweep)
+    if at is None:
+        at = run_speed_rpm
     found: list[Finding] = []
     if not sweep.is_sweep:
         found.append(Finding(Code.NO_SPEED_CHANGE, details={
@@ -171,9 +178,12 @@ class SweepRecorder:
         """
         self.analyzer.feed(msg)
 
-    def finish(self) -> SweepOutcome | None:
+    def finish(self, run_speed_rpm: float | None = None) -> SweepOutcome | None:
         """The recording as a sweep, or None when it is none (the speed changed by less
         than :data:`trueturn.dsp.sweep.MIN_SWEEP_RATIO`, or too few revolutions).
+
+        ``run_speed_rpm``: the speed of the run the recording belongs to, the balancing
+        speed when the recording holds no steady part (:func:`sweep_findings`).
 
         Returns
         -------
@@ -191,5 +201,5 @@ class SweepRecorder:
         # ending well below its fastest: a coast-down (also when a run-up came before it)
         kind: SweepKind = ("coastdown" if float(speeds[-1]) * MIN_SWEEP_RATIO
                            < float(speeds.max()) else "runup")
-        at, found = sweep_findings(sweep)
+        at, found = sweep_findings(sweep, run_speed_rpm)
         return SweepOutcome(kind, sweep, at, tuple(found))

@@ -401,6 +401,7 @@ class TrueturnApp(App):
         self.sweep_shown: ShownSweep | None = None
         self.sweep_run: int | None = None
         self.sweep_label = ""
+        self.sweep_speed_rpm: float | None = None  # the speed of the run the sweep follows
         self.sweep_coasting = False
         self.sweeps_pending = 0  # recordings being fitted off the refresh (_finish_sweep)
 
@@ -906,7 +907,8 @@ class TrueturnApp(App):
         if self.sweep_coasting and snap.standstill:
             self.sweep_coasting = False
             self._finish_sweep(self.session.stop_sweep_recording(), self.sweep_run,
-                               self.sweep_label, self._coast_down_analysed)
+                               self.sweep_label, self._coast_down_analysed,
+                               self.sweep_speed_rpm)
         bench.query_one("#status", StatusStrip).show(
             snap, machine=self.config.profile.name, demo=self.config.demo,
             identity=self.session.identity, link_error=self.link_error,
@@ -960,7 +962,7 @@ class TrueturnApp(App):
             if run is not proc.second_start:
                 self.keeper.run(proc, run, condition)
             self.start_sweep(run, coasting=True)
-            self._finish_sweep(runup, self.sweep_run, run.label)
+            self._finish_sweep(runup, self.sweep_run, run.label, None, run.speed_rpm)
             if condition is not None and run.kind is RunKind.AS_FOUND:
                 self.as_found_condition = condition
                 proc.as_found_judged(failing_rules(condition[1]))
@@ -984,7 +986,7 @@ class TrueturnApp(App):
         if run is None:
             self._finish_sweep(self.session.start_sweep_recording(), self.sweep_run,
                                self.sweep_label)
-            self.sweep_run, self.sweep_label = None, ""
+            self.sweep_run, self.sweep_label, self.sweep_speed_rpm = None, "", None
         else:
             job = self.keeper.job
             proc = self.procedure
@@ -992,6 +994,7 @@ class TrueturnApp(App):
                 proc is None or run is not proc.second_start)
             self.sweep_run = len(job.runs) if kept and job is not None else None
             self.sweep_label = run.label
+            self.sweep_speed_rpm = run.speed_rpm
         self.sweep_coasting = coasting
 
     def keep_sweep(self, outcome: SweepOutcome | None, run_number: int | None = None,
@@ -1013,7 +1016,8 @@ class TrueturnApp(App):
 
     def _finish_sweep(self, recording: SweepRecorder | None, run_number: int | None,
                       label: str,
-                      then: Callable[[SweepOutcome | None], None] | None = None) -> None:
+                      then: Callable[[SweepOutcome | None], None] | None = None,
+                      run_speed_rpm: float | None = None) -> None:
         """Fit a finished recording off the screen's refresh (a thread: the resonance fits
         take most of a second), then, back on the app's thread, show it, keep it with run
         ``run_number`` and call ``then`` with it. Pending fits are counted
@@ -1033,7 +1037,7 @@ class TrueturnApp(App):
 
         def fit() -> None:
             try:
-                outcome = recording.finish()
+                outcome = recording.finish(run_speed_rpm)
             except Exception:  # noqa: BLE001 - a failed fit is a sweep not kept, said
                 outcome = None
                 self.call_from_thread(setattr, self, "message",

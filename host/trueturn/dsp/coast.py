@@ -182,8 +182,11 @@ class SweepRecorder:
         """The recording as a sweep, or None when it is none (the speed changed by less
         than :data:`trueturn.dsp.sweep.MIN_SWEEP_RATIO`, or too few revolutions).
 
-        ``run_speed_rpm``: the speed of the run the recording belongs to, the balancing
-        speed when the recording holds no steady part (:func:`sweep_findings`).
+        Parameters
+        ----------
+        run_speed_rpm : float or None, default None
+            The speed of the run the recording belongs to: the balancing speed when the
+            recording holds no steady part (:func:`sweep_findings`).
 
         Returns
         -------

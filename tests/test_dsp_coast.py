@@ -46,9 +46,8 @@ def _record(tmp_path: Path, run: str, seconds: float) -> Path:
     return out
 
 
-def _recorded(path: Path, max_revs: int | None = None) -> SweepOutcome | None:
-    """The capture through the app's meter adapter, the sweep started once the stream runs
-    (mid-stream, as after a run), finished at the end."""
+def _adapter_and_messages(path: Path) -> tuple[MeterAdapter, list]:
+    """The app's meter adapter for the grinder, and the capture's decoded messages."""
     metadata, raw = read_capture(path)
     profile = scenario_profile("bench-grinder")
     adapter = MeterAdapter([p.name for p in profile.pickups], profile.mains_hz,
@@ -56,10 +55,15 @@ def _recorded(path: Path, max_revs: int | None = None) -> SweepOutcome | None:
     adapter.identity(metadata["identity"])
     decoder = StreamDecoder()
     decoder.assume_identity(metadata["identity"])
+    return adapter, [m for m in decoder.feed(raw) if not isinstance(m, LinkEvent)]
+
+
+def _recorded(path: Path, max_revs: int | None = None) -> SweepOutcome | None:
+    """The capture through the app's meter adapter, the sweep started once the stream runs
+    (mid-stream, as after a run), finished at the end."""
+    adapter, messages = _adapter_and_messages(path)
     started = False
-    for item in decoder.feed(raw):
-        if isinstance(item, LinkEvent):
-            continue
+    for item in messages:
         adapter.feed(item)
         if not started and item.name == "samples":
             assert adapter.start_sweep() is None  # nothing was being recorded
@@ -180,18 +184,8 @@ def test_a_run_kept_soon_after_its_run_up_is_judged_on_steady_samples(
     # meter now looks only at samples since the speed settled.
     from trueturn.dsp.findings import Code
 
-    out = tmp_path / "runup.cap"
-    code, _, err = run_cli(["record", "--port", "sim://bench-grinder?realtime=0&seed=3&run=runup",
-                            "--seconds", f"{seconds:g}", "-o", str(out), "--quiet"])
-    assert code == 0, err
-    metadata, raw = read_capture(out)
-    profile = scenario_profile("bench-grinder")
-    adapter = MeterAdapter([p.name for p in profile.pickups], profile.mains_hz,
-                           profile.pickups)
-    adapter.identity(metadata["identity"])
-    decoder = StreamDecoder()
-    decoder.assume_identity(metadata["identity"])
-    for item in decoder.feed(raw):
+    adapter, messages = _adapter_and_messages(_record(tmp_path, "runup", seconds))
+    for item in messages:
         adapter.feed(item)
     _, unbalance = adapter.condition()
     assert unbalance and unbalance[0].code is Code.UNBALANCE_LIKELY, unbalance[0]

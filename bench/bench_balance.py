@@ -56,7 +56,6 @@ from dataclasses import dataclass, replace
 from pathlib import Path
 
 import numpy as np
-import scipy.linalg
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
@@ -473,25 +472,12 @@ def sweep_resonances(rotor: RigidRotor, speed: float, rng) -> dict[str, list[Sup
     """What a coast-down from the running speed finds per pickup: the synchronous critical
     speeds in the pickup's direction below the running speed, with a sweep's errors."""
     out = {}
-    zc = rotor.centre_of_mass_axial_mm * 1e-3
     for p in rotor.pickups:
-        vertical = abs(np.sin(np.radians(p.direction_deg))) > 0.5
-        stiff = np.zeros((2, 2))
-        for b in rotor.bearings:
-            d = b.axial_mm * 1e-3 - zc
-            k = b.stiffness_v_n_per_m if vertical else b.stiffness_h_n_per_m
-            stiff += k * np.array([[1.0, d], [d, d * d]])
-        # the 1x whirl meets the tilt inertia I_t - I_p (gyroscopic stiffening): the
-        # synchronous critical speeds are what a coast-down passes through
-        inertia = np.diag([rotor.mass_kg,
-                           rotor.transverse_inertia_kg_m2 - rotor.polar_inertia_kg_m2])
-        modes_rpm = [float(np.sqrt(e.real)) * 30 / np.pi
-                     for e in scipy.linalg.eigvals(stiff, inertia)
-                     if np.isfinite(e) and e.real > 0]
+        modes_rpm = rotor.direction_criticals_rpm(p)
         damping = 0.03   # c = 0.03 * 2 sqrt(k m): about 3 % of critical
         out[p.name] = [SupportResonance(float(m) * (1 + SWEEP_SPEED_ERR * rng.normal()),
                                         damping * float(np.exp(SWEEP_DAMPING_ERR * rng.normal())))
-                       for m in sorted(modes_rpm) if m < speed]
+                       for m in modes_rpm if m < speed]
     return out
 
 

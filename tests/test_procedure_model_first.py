@@ -16,9 +16,7 @@ from __future__ import annotations
 import math
 from dataclasses import replace
 
-import numpy as np
 import pytest
-import scipy.linalg
 
 from test_ui_procedure import Rig
 from trueturn.angles import wrap_deg
@@ -28,27 +26,11 @@ from trueturn.procedure.guide import GateRefused, Mode, Procedure
 
 
 def coast_down_resonances(rig: Rig) -> dict[str, list[SupportResonance]]:
-    """The rigid-body modes below the running speed in each pickup's direction."""
+    """The synchronous critical speeds below the running speed in each pickup's direction
+    (the simulator's own, RigidRotor.direction_criticals_rpm)."""
     rotor = rig.scenario.rotor
-    zc = rotor.centre_of_mass_axial_mm * 1e-3
-    out = {}
-    for p in rotor.pickups:
-        vertical = abs(math.sin(math.radians(p.direction_deg))) > 0.5
-        stiff = np.zeros((2, 2))
-        for b in rotor.bearings:
-            d = b.axial_mm * 1e-3 - zc
-            k = b.stiffness_v_n_per_m if vertical else b.stiffness_h_n_per_m
-            stiff += k * np.array([[1.0, d], [d, d * d]])
-        # the 1x whirl meets the tilt inertia I_t - I_p (gyroscopic stiffening): the
-        # synchronous critical speeds are what a coast-down passes through
-        inertia = np.diag([rotor.mass_kg,
-                           rotor.transverse_inertia_kg_m2 - rotor.polar_inertia_kg_m2])
-        lam = [e.real for e in scipy.linalg.eigvals(stiff, inertia)
-               if np.isfinite(e) and e.real > 0]
-        modes = [math.sqrt(v) * 30 / math.pi for v in lam]
-        out[p.name] = [SupportResonance(float(m), 0.03) for m in sorted(modes)
-                       if m < rig.setup.speed_rpm]
-    return out
+    return {p.name: [SupportResonance(m, 0.03) for m in rotor.direction_criticals_rpm(p)
+                     if m < rig.setup.speed_rpm] for p in rotor.pickups}
 
 
 def as_found_and_sweep(rig: Rig, resonances: object) -> None:

@@ -254,6 +254,27 @@ class RigidRotor:
                if np.isfinite(e) and e.real > 0 and abs(e.imag) <= 1e-9 * abs(e.real)]
         return sorted(out)
 
+    def direction_criticals_rpm(self, pickup: PickupMount) -> list[float]:
+        """The synchronous critical speeds (rpm, slowest first) of the rigid-body modes in
+        ``pickup``'s direction alone: translation and tilt on that direction's bearing
+        stiffnesses (horizontal or vertical, whichever the pickup is nearer), the tilt
+        meeting ``I_t - I_p`` (gyroscopic stiffening of the 1x whirl; a disc's tilt has
+        none). What a coast-down seen by that pickup passes through, without the coupling
+        of anisotropic supports that :meth:`critical_speeds_rpm` keeps. From memory: Vance,
+        *Rotordynamics of Turbomachinery*, synchronous critical speeds of a rigid rotor."""
+        zc = self.centre_of_mass_axial_mm * 1e-3
+        vertical = abs(math.sin(math.radians(pickup.direction_deg))) > 0.5
+        stiff = np.zeros((2, 2))
+        for b in self.bearings:
+            d = b.axial_mm * 1e-3 - zc
+            k = b.stiffness_v_n_per_m if vertical else b.stiffness_h_n_per_m
+            stiff += k * np.array([[1.0, d], [d, d * d]])
+        inertia = np.diag([self.mass_kg,
+                           self.transverse_inertia_kg_m2 - self.polar_inertia_kg_m2])
+        return sorted(math.sqrt(e.real) * 30.0 / math.pi
+                      for e in scipy.linalg.eigvals(stiff, inertia)
+                      if np.isfinite(e) and e.real > 0)
+
     def natural_frequencies_hz(self, speed_rpm: float = 0.0) -> list[float]:
         """Undamped natural frequencies (Hz) of the rigid-body modes, gyroscopics ignored."""
         dyn0, _ = self._matrices(0.0)

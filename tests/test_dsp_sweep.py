@@ -452,3 +452,28 @@ def test_the_ringing_after_a_fast_passage_is_no_resonance() -> None:
             # (a known limit of the one-mode fit, not hidden here)
             assert r.speed_rpm == pytest.approx(823.0, rel=0.02)
             assert r.damping_ratio == pytest.approx(0.03, rel=0.1)
+
+
+def test_a_neighbouring_mode_widens_the_damping_interval_to_hold_the_truth() -> None:
+    # Den Hartog's SDOF modes at 823 rpm and 560 rpm (3 % each, solve_ivp, Lewis's fast
+    # coast-down at 284 rpm/s): the first mode's swept window (its ringing, to 1.5x below
+    # it) reaches into the second mode's build-up, which its steady residual terms model only
+    # roughly, and its damping reads about 8 % high. The misfit runs smoothly along the
+    # revolutions, so the interval widens (fewer effective points) and, with the one-mode
+    # model's own error, holds the true 3 % at about its nominal rate; before it missed in
+    # all six seeds (its low end 3.005-3.052 %).
+    resolved = covered = 0
+    for seed in range(6):
+        speeds, a, sig = swept_coast(823.0, 0.03, 284.0, 0.003, seed, low_fraction=0.4,
+                                     second=(560.0, 0.03))
+        sweep = analyse_sweep(speeds, {"p": a}, {"p": sig}, "um pk-pk",
+                              spans_rpm=revolution_spans_rpm(speeds))
+        [first] = [r for r in sweep.resonances if abs(r.speed_rpm / 823.0 - 1) <= 0.02]
+        if first.damping_ratio is None:
+            continue
+        resolved += 1
+        assert first.damping_ratio_95 is not None
+        covered += first.damping_ratio_95[0] <= 0.03 <= first.damping_ratio_95[1]
+    assert resolved >= 5
+    assert covered >= resolved - 1
+

@@ -137,9 +137,9 @@ def test_steady_capture_says_there_is_no_sweep(tmp_path: Path) -> None:
     assert code == 0 and "sweep: none" in out
 
 
-def test_running_close_to_a_resonance_is_found(tmp_path: Path) -> None:
-    # the grinder on stiffer feet: its rocking mode near 3000 rpm, 15 % below the running
-    # speed, inside the 20 % margin (an invented variant for this test)
+def _stiff_grinder(folder: Path) -> Path:
+    """The grinder on stiffer feet: its rocking mode near 3000 rpm, 15 % below the running
+    speed, inside the 20 % margin (an invented variant for these tests)."""
     raw = yaml.safe_load((scenario_dir() / "bench-grinder.yaml").read_text(encoding="utf-8"))
     for b in raw["bearings"]:
         for key in ("stiffness_h_n_per_m", "stiffness_v_n_per_m"):
@@ -147,8 +147,13 @@ def test_running_close_to_a_resonance_is_found(tmp_path: Path) -> None:
     raw["name"] = "stiff-grinder"
     for m in raw["as_found"]:  # less unbalance: the pickups stay inside +/-3 g at resonance
         m["mass_g"] *= 0.25
-    path = tmp_path / "stiff-grinder.yaml"
+    path = folder / "stiff-grinder.yaml"
     path.write_text(yaml.safe_dump(raw), encoding="utf-8")
+    return path
+
+
+def test_running_close_to_a_resonance_is_found(tmp_path: Path) -> None:
+    path = _stiff_grinder(tmp_path)
     critical = load_scenario(str(path)).rotor.critical_speeds_rpm()[0]
     assert critical == pytest.approx(3000.0, rel=0.01)
     data = _analyze(_record(tmp_path, str(path), "coastdown", "stiff"))
@@ -246,4 +251,40 @@ def test_grinder_coastdowns_resolve_the_damping_within_its_interval(tmp_path: Pa
             covered += low <= zeta <= high
     assert found == 10  # both pickups, every seed
     assert resolved >= 8
+    assert covered >= resolved - 1
+
+
+def test_stiff_grinder_damping_intervals_hold_the_modal_damping(tmp_path: Path) -> None:
+    # the stiff variant's rocking mode (3000 rpm, modal damping 0.83 % from the state-space
+    # eigenvalues, Ewins sec. 2.2) passed at about 645 rpm/s: its half-power band is about
+    # 50 rpm wide and the simulator's 50 ms steps move the speed by 30 rpm. Six seeds, both
+    # pickups: the damping is resolved and its 95 % interval holds the modal damping at
+    # about its nominal rate (binomial: at most one miss in twelve). Before the steps
+    # followed the response inside them the fit read 0.90-0.95 % and missed in every seed;
+    # the fit's reading itself within 12 % (the mounting's amplitude-dependent gain reads it
+    # about 5 % low, the per-revolution 1x of so fast a sweep about 3 % more).
+    path = _stiff_grinder(tmp_path)
+    sc = load_scenario(str(path))
+    critical = sc.rotor.critical_speeds_rpm()[0]
+    zeta = modal_damping(str(path), critical)
+    assert zeta == pytest.approx(0.0083, rel=0.02)
+    resolved = covered = 0
+    for seed in range(1, 7):
+        out = tmp_path / f"stiff{seed}.cap"
+        code, _, err = run_cli(["record", "--port", f"sim://{path}?realtime=0&seed={seed}"
+                                "&run=coastdown", "--seconds",
+                                f"{run_times(sc, 'coastdown')['record_s']:g}", "-o", str(out),
+                                "--quiet"])
+        assert code == 0, err
+        near = [r for r in _analyze(out)["resonances"]
+                if abs(r["speed_rpm"] / critical - 1) <= 0.05]
+        assert {r["pickup"] for r in near} == {"left-bearing", "right-bearing"}
+        for r in near:
+            if r["damping_ratio"] is None:
+                continue
+            resolved += 1
+            assert r["damping_ratio"] == pytest.approx(zeta, rel=0.12)
+            low, high = r["damping_ratio_95"]
+            covered += low <= zeta <= high
+    assert resolved >= 10
     assert covered >= resolved - 1

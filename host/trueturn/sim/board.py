@@ -56,7 +56,7 @@ STATUS_PERIOD_TICKS = TICK_HZ
 START_DELAY_TICKS = 200  # first conversion of a stream, after the start command
 STANDSTILL_RAD_S = 0.05  # below this the virtual shaft is taken as stopped
 #: response=quasi-static: a step whose speed changes by more than this (0.5 rpm) follows the
-#: steady 1x across it (a sweep)
+#: steady 1x across it (a sweep), interpolated between responses at most this far apart
 SWEEP_STEP_RAD_S = 0.5 * 2.0 * math.pi / 60.0
 #: response=transient: the rotor's motion is integrated on the conversions' instants and at least this often
 #: (1 ms: the speed taken constant within an interval costs a phase error of at most
@@ -836,21 +836,28 @@ class VirtualBoard:
         steady at constant speed, building up and lagging through a resonance passed
         quickly), through the model's amplitude-dependent gain. ``response=quasi-static``:
         the steady response at the speed of the moment (interpolated across the step between
-        the responses at its two ends, so a coast-down or run-up sweeps the response
-        smoothly; no build-up, no lag)."""
+        the responses at speeds at most :data:`SWEEP_STEP_RAD_S` apart, so a coast-down or
+        run-up sweeps the response smoothly and a resonance passed within one step keeps its
+        shape; no build-up, no lag)."""
         sc = self.scenario
         sig = sc.signals
         scale = self.options.noise_scale
         t_s = ticks.astype(np.float64) / TICK_HZ
         out = np.zeros(len(ticks))
         omega = 0.5 * (omega0 + omega1)
+        # the 1x volts phasor at nodes across the step (rows; the speed is linear in time
+        # within it): one node at the mean speed when steady, else nodes at most
+        # SWEEP_STEP_RAD_S apart (a straight chord between the step's two ends would cut
+        # across a lightly damped resonance passed within one step and widen its peak)
         if vibration is not None:
-            one_x0 = one_x1 = np.zeros(0, dtype=complex)
+            nodes = np.zeros((1, 0), dtype=complex)
         elif abs(omega1 - omega0) > SWEEP_STEP_RAD_S:  # run-up or coast-down: follow the speed
-            one_x0 = self._pickup_phasors_v(omega0)
-            one_x1 = self._pickup_phasors_v(omega1)
+            count = math.ceil(abs(omega1 - omega0) / SWEEP_STEP_RAD_S)
+            nodes = np.array([self._pickup_phasors_v(omega0 + (omega1 - omega0) * j / count)
+                              for j in range(count + 1)])
         else:  # steady (slow wander): the response at the step's mean speed
-            one_x0 = one_x1 = self._pickup_phasors_v(omega)
+            nodes = self._pickup_phasors_v(omega)[None, :]
+        node_at = np.arange(nodes.shape[0], dtype=float)
         speed_ratio_sq = (omega / rpm_to_rad_s(sc.speed_rpm)) ** 2
         line = sc.motor.mains_hz
         for ch in range(int(channel.max()) + 1 if len(channel) else 0):
@@ -865,8 +872,12 @@ class VirtualBoard:
                 accel = nonlinear_accel(vibration[ch, sel], sc.rotor.nonlinearity)
                 v = el.zero_g_v + np.real(accel) * sc.pickup_volts(1.0, ch)
             else:
-                p = one_x0[ch] if one_x1 is one_x0 else \
-                    one_x0[ch] + share[sel] * (one_x1[ch] - one_x0[ch])
+                if nodes.shape[0] == 1:
+                    p = nodes[0, ch]
+                else:
+                    where = share[sel] * (nodes.shape[0] - 1)
+                    p = (np.interp(where, node_at, nodes[:, ch].real)
+                         + 1j * np.interp(where, node_at, nodes[:, ch].imag))
                 # A cos(theta - phi) with the project phasor p = A e^{i phi}
                 v = el.zero_g_v + np.real(p) * np.cos(th) + np.imag(p) * np.sin(th)
             for k, h in enumerate(sig.harmonics + sig.tones):

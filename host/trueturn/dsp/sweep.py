@@ -523,7 +523,9 @@ def swept_mode_response(natural_rpm: float, zeta: float, history_rpm: np.ndarray
     consecutive revolutions of mean speeds ``history_rpm`` (oldest first, each lasting
     ``60 / n`` s), the speed linear between the revolutions' middles. It is solved on a
     uniform time grid by the bilinear transform prewarped at ``wn`` (:func:`scipy.signal.
-    lfilter`), starting from the steady response at the first revolution's speed. Each
+    lfilter`, its coefficients in closed form by :func:`bilinear_sdof`; the grid and
+    ``e^{i theta}`` computed once per history), starting from the steady response at the
+    first revolution's speed. Each
     revolution's 1x is the mean of what the pickup senses (``x``, ``x'`` or ``x''``, the
     ringing at the mode's own frequency included) times ``e^{-i theta}`` over the
     revolution, brought back to a displacement as a steady reading is (divided by
@@ -560,7 +562,106 @@ def swept_mode_response(natural_rpm: float, zeta: float, history_rpm: np.ndarray
     .. [2] A. V. Oppenheim, R. W. Schafer, *Discrete-Time Signal Processing*, bilinear
        transformation with frequency prewarping (from memory).
     """
-    n = np.asarray(history_rpm, dtype=float)
+    grid = _swept_grid(np.asarray(history_rpm, dtype=float), samples_per_rev)
+    dt, w, turn = grid.dt_s, grid.speed_rad_s, grid.turn
+    wn = natural_rpm * math.pi / 30.0
+    b, a = bilinear_sdof(wn, zeta, dt)
+    force = (w / wn) ** 2 * turn
+    # steady state of the transposed direct form before the first sample (input z0^k)
+    z0 = complex(np.exp(1j * w[0] * dt))
+    gain = complex(np.polyval(b[::-1], 1 / z0) / np.polyval(a[::-1], 1 / z0))
+    u1, u2 = force[0] / z0, force[0] / (z0 * z0)
+    s2 = b[2] * u1 - a[2] * gain * u1
+    s1 = b[1] * u1 - a[1] * gain * u1 + b[2] * u2 - a[2] * gain * u2
+    x = signal.lfilter(b, a, force, zi=np.array([s1, s2]))[0]
+    # what the pickup reads: displacement, velocity or acceleration of the motion itself
+    # (ringing at the mode's own frequency included), scaled as a steady reading's
+    # ``(i w_rev)^k x`` so that it tends to the displacement's 1x when steady
+    own = max((power if sensed_power is None else sensed_power) - 2, 0)
+    reading = x
+    if own >= 1:
+        velocity = np.gradient(x, dt)
+        reading = velocity / (1j * grid.rev_speed_rad_s)
+        if own >= 2:
+            accel = wn * wn * force - 2.0 * zeta * wn * velocity - wn * wn * x
+            reading = accel / (-(grid.rev_speed_rad_s ** 2))
+    demod = reading * grid.unturn
+    revs = grid.w_rev.size
+    mean = (np.bincount(grid.rev, demod.real, revs) + 1j * np.bincount(grid.rev, demod.imag,
+                                                                        revs)) / grid.count
+    return mean / (grid.w_rev / wn) ** 2
+
+
+def bilinear_sdof(natural_rad_s: float, zeta: float, dt_s: float
+                  ) -> tuple[np.ndarray, np.ndarray]:
+    """Digital filter of ``wn^2 / (s^2 + 2 zeta wn s + wn^2)`` by the bilinear transform
+    prewarped at ``wn``, in closed form.
+
+    With ``c = 2 / dt`` and the prewarped ``W = c tan(wn dt / 2)`` (the digital resonance
+    then lies at ``wn`` exactly), substituting ``s = c (1 - z^-1) / (1 + z^-1)`` into
+    ``wn^2 / (s^2 + 2 zeta W s + W^2)`` gives
+    ``b = wn^2 [1, 2, 1]``, ``a = [c^2 + 2 zeta W c + W^2, 2 (W^2 - c^2),
+    c^2 - 2 zeta W c + W^2]``, both divided by ``a[0]``: the coefficients
+    :func:`scipy.signal.bilinear` computes with polynomial algebra, here with a few
+    multiplications.
+
+    Parameters
+    ----------
+    natural_rad_s : float
+        The mode's natural frequency ``wn``, rad/s.
+    zeta : float
+        Its damping ratio.
+    dt_s : float
+        The time step, s.
+
+    Returns
+    -------
+    tuple of numpy.ndarray
+        ``(b, a)`` for :func:`scipy.signal.lfilter`, ``a[0] = 1``.
+
+    References
+    ----------
+    .. [1] A. V. Oppenheim, R. W. Schafer, *Discrete-Time Signal Processing*, the bilinear
+       transformation and frequency prewarping (from memory).
+    """
+    c = 2.0 / dt_s
+    warped = c * math.tan(natural_rad_s * dt_s / 2.0)
+    damp = 2.0 * zeta * warped * c
+    a0 = c * c + damp + warped * warped
+    b = np.array([1.0, 2.0, 1.0]) * (natural_rad_s * natural_rad_s / a0)
+    a = np.array([1.0, 2.0 * (warped * warped - c * c) / a0,
+                  (c * c - damp + warped * warped) / a0])
+    return b, a
+
+
+@dataclass(frozen=True)
+class _SweptGrid:
+    """The uniform time grid of a speed history (:func:`swept_mode_response`): step, the
+    shaft's speed and ``e^{i theta}`` / ``e^{-i theta}`` at each step, its revolution, the
+    steps per revolution, the revolutions' speeds (rad/s) and that speed at each step."""
+
+    dt_s: float
+    speed_rad_s: np.ndarray
+    turn: np.ndarray
+    unturn: np.ndarray
+    rev: np.ndarray
+    count: np.ndarray
+    w_rev: np.ndarray
+    rev_speed_rad_s: np.ndarray
+
+
+#: the last few speed histories' grids: one fit asks for the same history hundreds of times
+_GRID_CACHE: dict[tuple[bytes, int], _SweptGrid] = {}
+_GRID_CACHE_SIZE = 4
+
+
+def _swept_grid(n: np.ndarray, samples_per_rev: int) -> _SweptGrid:
+    """The time grid of consecutive revolutions of mean speeds ``n`` (rpm), each lasting
+    ``60 / n`` s, the speed linear between the revolutions' middles (cached)."""
+    key = (n.tobytes(), int(samples_per_rev))
+    cached = _GRID_CACHE.get(key)
+    if cached is not None:
+        return cached
     w_rev = n * (math.pi / 30.0)
     durations = 60.0 / n
     ends = np.cumsum(durations)
@@ -569,35 +670,14 @@ def swept_mode_response(natural_rpm: float, zeta: float, history_rpm: np.ndarray
     t = np.arange(0.0, float(ends[-1]), dt)
     w = np.interp(t, mids, w_rev)
     theta = np.concatenate([[0.0], np.cumsum(0.5 * (w[1:] + w[:-1]) * dt)])
-    wn = natural_rpm * math.pi / 30.0
-    warped = 2.0 / dt * math.tan(wn * dt / 2.0)  # prewarp: the digital resonance at wn
-    b, a = signal.bilinear([wn * wn], [1.0, 2.0 * zeta * warped, warped * warped], 1.0 / dt)
-    b, a = np.real(b), np.real(a)
-    force = (w / wn) ** 2 * np.exp(1j * theta)
-    # steady state of the transposed direct form before the first sample (input z0^k)
-    z0 = complex(np.exp(1j * w[0] * dt))
-    gain = complex(np.polyval(b[::-1], 1 / z0) / np.polyval(a[::-1], 1 / z0))
-    u1, u2 = force[0] / z0, force[0] / (z0 * z0)
-    s2 = b[2] * u1 - a[2] * gain * u1
-    s1 = b[1] * u1 - a[1] * gain * u1 + b[2] * u2 - a[2] * gain * u2
-    x = signal.lfilter(b, a, force, zi=np.array([s1, s2]))[0]
     rev = np.minimum(np.searchsorted(ends, t, side="right"), n.size - 1)
-    # what the pickup reads: displacement, velocity or acceleration of the motion itself
-    # (ringing at the mode's own frequency included), scaled as a steady reading's
-    # ``(i w_rev)^k x`` so that it tends to the displacement's 1x when steady
-    own = max((power if sensed_power is None else sensed_power) - 2, 0)
-    reading = x
-    if own >= 1:
-        velocity = np.gradient(x, dt)
-        reading = velocity / (1j * w_rev[rev])
-        if own >= 2:
-            accel = wn * wn * force - 2.0 * zeta * wn * velocity - wn * wn * x
-            reading = accel / (-(w_rev[rev] ** 2))
-    demod = reading * np.exp(-1j * theta)
-    count = np.maximum(np.bincount(rev, minlength=n.size), 1)
-    mean = (np.bincount(rev, demod.real, n.size) + 1j * np.bincount(rev, demod.imag, n.size)) \
-        / count
-    return mean / (w_rev / wn) ** 2
+    turn = np.exp(1j * theta)
+    grid = _SweptGrid(dt, w, turn, np.conj(turn), rev,
+                      np.maximum(np.bincount(rev, minlength=n.size), 1), w_rev, w_rev[rev])
+    if len(_GRID_CACHE) >= _GRID_CACHE_SIZE:
+        _GRID_CACHE.pop(next(iter(_GRID_CACHE)))
+    _GRID_CACHE[key] = grid
+    return grid
 
 
 def fit_sdof_response(speeds_rpm: np.ndarray, response: np.ndarray, sigmas: np.ndarray,

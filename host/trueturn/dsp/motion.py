@@ -12,6 +12,12 @@ noise floor. Two tests, both on the last few seconds of each pickup:
   (ADC quantisation plus the sensor's noise density over the sampled band), tightened to a
   quarter of the running level when that is known (never below the floor).
 
+A line is also told apart as **free vibration** (:func:`free_vibration`): after a rotor stops,
+its lightly damped supports ring on at their own frequency, the envelope falling as
+``e^{-zeta omega_n t}`` (the bench grinder's rubber feet: 13.8 Hz, 3 %, down by e every
+0.38 s). That is motion (the pickup is not quiet) but not a turning rotor, so the standstill
+judgement does not take it for a machine running behind a silent tach.
+
 Limits of the method, said plainly (common practice, no source): a rotor turning so slowly
 that its 1x is below the noise floor (a few hundred rpm on a well-balanced rotor, since the
 1x force grows with the square of speed) looks still to the pickups; a rotor turning at
@@ -69,6 +75,9 @@ class PickupMotion:
     unit: str = "g"
     #: share of the samples at the ADC's limits (0 or full scale); None: not known
     at_rail_fraction: float | None = None
+    #: the line is a free vibration dying out (:func:`free_vibration`): a structure ringing
+    #: after its rotor stopped, not a turning rotor. Still motion: the pickup is not quiet.
+    ringing: bool = False
 
     @property
     def live(self) -> bool:
@@ -199,6 +208,133 @@ def motion_spectrum(values: np.ndarray, rate_hz: float, mains_hz: float | None,
     if psd[best] < floor * PERIODIC_SNR ** 2 or amplitude < PERIODIC_MIN_G:
         return level, None
     return level, (refine_peak_hz(freqs, psd, best), amplitude)
+
+
+#: free vibration (:func:`free_vibration`): the band kept around the line, Hz either side:
+#: 15 % of the line's frequency, at least 1.5 Hz, at most half of it. A mode damped by 5 %
+#: rings over a half-power band of +-5 % of its frequency (Rao 2.6); narrow enough to
+#: leave out a neighbouring mode (the shop fan's 10.2 and 14.2 Hz ring together: in one
+#: band their mix would seem to drift), wide enough that the filter's own transient dies
+#: out fast: it is left out of the fits, from each end, until it has fallen by
+#: RING_SETTLE_E_FOLDS e-folds at its slowest pole's rate (0.4 s at 14 Hz).
+RING_BAND_MIN_HZ = 1.5
+RING_BAND_FRACTION = 0.15
+RING_SETTLE_E_FOLDS = 4.0
+#: the envelope of a ring-down falls to at most half over the span fitted ...
+RING_FADE = 0.5
+#: ... as an exponential (log-envelope straight line, coefficient of determination) ...
+RING_MIN_R2 = 0.95
+#: ... at one frequency: over the span it changes by at most 2 %. A turning rotor's 1x moves
+#: with its speed: a rotor still coasting after a trusted tach's last edge slows by 5 % or
+#: more per turn (trueturn.procedure.standstill.STEADY_RATIO), so over the five turns or
+#: more fitted its line moves by a quarter or more (common practice, no source).
+RING_MAX_DRIFT = 0.02
+#: the span fitted holds at least this many cycles of the line and this many seconds
+RING_MIN_CYCLES = 5.0
+RING_MIN_SPAN_S = 0.25
+
+
+@dataclass(frozen=True)
+class FreeVibration:
+    """A line's envelope and frequency fitted over the span where it stands out.
+
+    ``decay_per_s``: ``sigma`` in ``A e^{-sigma t}`` (a damped mode: ``zeta omega_n``);
+    ``frequency_hz``: its mean frequency; ``drift``: the share by which the frequency moved
+    over ``span_s``; ``fade``: the envelope at the span's end over its start, from the fit;
+    ``r2``: how well ``ln A`` follows a straight line.
+    """
+
+    decay_per_s: float
+    frequency_hz: float
+    drift: float
+    fade: float
+    r2: float
+    span_s: float
+
+    @property
+    def rings_down(self) -> bool:
+        """A free vibration dying out: an exponential envelope that falls by more than half
+        at a frequency that stays put. A turning rotor cannot make this: at a steady speed
+        its lines keep their level, and a rotor that slows moves them down in frequency."""
+        return (self.fade <= RING_FADE and self.r2 >= RING_MIN_R2
+                and abs(self.drift) <= RING_MAX_DRIFT)
+
+
+def free_vibration(values: np.ndarray, rate_hz: float, line_hz: float,
+                   min_amplitude: float = PERIODIC_MIN_G) -> FreeVibration | None:
+    """Fit a line's envelope and phase in time: is it a ring-down (free vibration)?
+
+    After the forcing stops, a viscously damped mode vibrates freely as
+    ``X e^{-zeta omega_n t} cos(omega_d t - phi)``: at one frequency, its envelope falling
+    exponentially (the logarithmic decrement). The band around ``line_hz`` is kept
+    (Butterworth, forward and backward: no phase shift), its analytic signal (Hilbert
+    transform) gives the envelope and the phase at every sample; over the samples whose
+    envelope reaches ``min_amplitude`` (a filter's settling time in from each end left out)
+    ``ln(envelope)`` is fitted by a straight line (``-sigma``) and the phase by a parabola
+    (frequency and its drift).
+
+    Parameters
+    ----------
+    values : numpy.ndarray
+        One pickup's samples, g (or volts).
+    rate_hz : float
+        Sample rate, Hz.
+    line_hz : float
+        The line's frequency (:func:`motion_spectrum`), Hz.
+    min_amplitude : float, default PERIODIC_MIN_G
+        The envelope (peak) below which samples are left out of the fits.
+
+    Returns
+    -------
+    FreeVibration or None
+        None when the line stands out over too short a span (fewer than
+        ``RING_MIN_CYCLES`` cycles or ``RING_MIN_SPAN_S``) or its band does not fit below
+        Nyquist: nothing is then said about it.
+
+    References
+    ----------
+    .. [1] S. S. Rao, "Mechanical Vibrations", 2.6 (free vibration with viscous damping,
+       logarithmic decrement) (from memory).
+    .. [2] M. Feldman, "Hilbert Transform Applications in Mechanical Vibration", Wiley,
+       2011: envelope and instantaneous frequency of a free vibration from its analytic
+       signal (from memory); ``scipy.signal.hilbert``, ``scipy.signal.sosfiltfilt``.
+    """
+    x = np.asarray(values, dtype=float)
+    half_hz = min(max(RING_BAND_MIN_HZ, RING_BAND_FRACTION * line_hz), 0.5 * line_hz)
+    low_hz, high_hz = line_hz - half_hz, line_hz + half_hz
+    if x.size < 64 or low_hz <= 0 or high_hz >= 0.45 * rate_hz:
+        return None
+    zeros, poles, gain = signal.butter(2, [low_hz, high_hz], btype="bandpass", fs=rate_hz,
+                                       output="zpk")
+    sos = signal.zpk2sos(zeros, poles, gain)
+    analytic = signal.hilbert(signal.sosfiltfilt(sos, x - float(np.mean(x))))
+    envelope = np.abs(analytic)
+    time_s = np.arange(x.size) / rate_hz
+    # the filter's own transient, from each end: its slowest pole's decay, per sample
+    slowest = float(-np.log(np.abs(poles)).min())
+    settle = int(math.ceil(RING_SETTLE_E_FOLDS / slowest))
+    use = np.zeros(x.size, dtype=bool)
+    use[settle: x.size - settle] = True
+    use &= envelope >= min_amplitude
+    if not use.any():
+        return None
+    t = time_s[use]
+    span_s = float(t[-1] - t[0])
+    if span_s < max(RING_MIN_SPAN_S, RING_MIN_CYCLES / line_hz):
+        return None
+    log_env = np.log(envelope[use])
+    slope, intercept = np.polyfit(t, log_env, 1)
+    spread = float(np.sum((log_env - log_env.mean()) ** 2))
+    r2 = 1.0 - float(np.sum((log_env - (slope * t + intercept)) ** 2)) / spread \
+        if spread > 0 else 0.0
+    centred = t - t.mean()
+    curve, rate, _ = np.polyfit(centred, np.unwrap(np.angle(analytic))[use], 2)
+    frequency_hz = float(rate) / (2.0 * math.pi)
+    if frequency_hz <= 0:
+        return None
+    drift = float(2.0 * curve * span_s / (2.0 * math.pi)) / frequency_hz
+    return FreeVibration(decay_per_s=-float(slope), frequency_hz=frequency_hz, drift=drift,
+                         fade=math.exp(float(slope) * span_s), r2=r2, span_s=span_s)
 
 
 class MotionMonitor:
@@ -338,8 +474,9 @@ class MotionMonitor:
             floor = noise_floor_g_rms(self.g_per_count[c], self.rate_hz)
             limit = quiet_limit_g_rms(floor, self.running_g_rms[c])
             level, line = motion_spectrum(x, self.rate_hz, self.mains_hz)
+            ring = None if line is None else free_vibration(x, self.rate_hz, line[0])
             out.append(PickupMotion(
                 name, level, limit, None if line is None else line[0],
                 None if line is None else line[1], x.size / self.rate_hz, self.units[c],
-                self._at_rail(counts)))
+                self._at_rail(counts), ringing=ring is not None and ring.rings_down))
         return tuple(out)

@@ -29,7 +29,11 @@ see has stopped by then), plus the person's confirmation at every gate (basis
 turns.
 
 Disagreement is a fault, not a standstill: a silent tach while the pickups show a running
-machine is ``TACH_FAULT`` (latched until the tach is seen working again). Edges from the tach
+machine is ``TACH_FAULT`` (latched until the tach is seen working again). A line the pickups
+judge a ring-down (``PickupMotion.ringing``: free vibration at a steady frequency, its
+envelope dying out exponentially, as a machine's supports ring after its rotor stopped) is
+no running machine: no fault, but no standstill either while it lasts (the pickups are not
+quiet), so a stop is proven on the tach and the pickups once the ringing has died out. Edges from the tach
 are believed when they say the rotor turns (``TURNING``), whatever the pickups say: a refusal
 is always safe.
 
@@ -42,6 +46,7 @@ from __future__ import annotations
 
 import math
 import time
+from collections import deque
 from collections.abc import Callable
 from dataclasses import dataclass
 from enum import Enum
@@ -59,6 +64,11 @@ MOTION_STALE_S = 2.0  # pickup judgements older than this (board time) are not e
 # silence then proves nothing and the long hold applies.
 ABRUPT_STOP_RPM = 60.0
 STEADY_RATIO = 1.05
+#: a line within this of a ring-down the pickups saw since the tach's last edge, and no
+#: stronger than it was, is that ring fading on: near the pickups' floor there is too little
+#: of it to fit again (the Welch resolution of trueturn.dsp.motion)
+RING_SAME_HZ = 0.5
+RINGS_KEPT = 64
 
 
 class StandstillState(str, Enum):
@@ -161,6 +171,8 @@ class StandstillWatch:
         self._edges_since_fault = 0
         self.pickups: tuple[PickupMotion, ...] = ()
         self.pickups_at_s: float | None = None
+        #: (Hz, g) of the lines seen ringing down since the tach's last edge (the latest)
+        self._rings: deque[tuple[float, float]] = deque(maxlen=RINGS_KEPT)
         self.quiet_since_s: float | None = None
         self._moving_at_s = -math.inf
         self._window_start_s = -math.inf
@@ -180,6 +192,7 @@ class StandstillWatch:
             self.prev_period_s = self.last_period_s
             self.last_period_s = board_time_s - self.last_edge_s
         self.last_edge_s = board_time_s
+        self._rings.clear()  # the rotor turns: what rang before this edge is past
         self.edges_seen += 1
         if self.fault_latched:
             self._edges_since_fault += 1
@@ -189,6 +202,8 @@ class StandstillWatch:
     def motion(self, board_time_s: float, pickups: tuple[PickupMotion, ...]) -> None:
         """The pickups' judgement over the window ending at this board time."""
         self.data(board_time_s)
+        self._rings.extend((p.periodic_hz, p.periodic_g or 0.0) for p in pickups
+                           if p.ringing and p.periodic_hz is not None)
         quiet = bool(pickups) and all(p.quiet for p in pickups)
         if not quiet:
             self.quiet_since_s = None
@@ -208,15 +223,23 @@ class StandstillWatch:
     def _line_after_silence(self) -> bool:
         """The pickups see a line in a window that began after the tach fell silent (so the
         line is not the tail of a coast-down the tach already saw) and the silence is longer
-        than the hold: the two disagree."""
-        if not self._any_line(self.pickups) or self.tach_silent_s() < self.hold_s:
+        than the hold: the two disagree. A line ringing down (free vibration of a stopped
+        machine's supports) does not count: a turning rotor cannot make one."""
+        if not self._running_line() or self.tach_silent_s() < self.hold_s:
             return False
         silent_since = self.last_edge_s if self.last_edge_s is not None else self.first_s
         return silent_since is None or self._window_start_s >= silent_since
 
-    @staticmethod
-    def _any_line(pickups: tuple[PickupMotion, ...]) -> bool:
-        return any(p.periodic_hz is not None for p in pickups)
+    def _running_line(self) -> bool:
+        """The pickups see a line that may be a turning rotor's: any line but a ring-down,
+        or the fainter tail of a ring-down seen since the tach's last edge."""
+        return any(p.periodic_hz is not None and not p.ringing and not self._fading_ring(p)
+                   for p in self.pickups)
+
+    def _fading_ring(self, pickup: PickupMotion) -> bool:
+        hz, g = pickup.periodic_hz, pickup.periodic_g or 0.0
+        return hz is not None and any(abs(hz - ring_hz) <= RING_SAME_HZ and g <= ring_g
+                                      for ring_hz, ring_g in self._rings)
 
     # ---- judgement -----------------------------------------------------------------------
     def tach_silent_s(self) -> float:

@@ -24,7 +24,6 @@ Checks against the outside world:
 
 from __future__ import annotations
 
-import json
 import math
 from dataclasses import replace
 from pathlib import Path
@@ -32,16 +31,21 @@ from pathlib import Path
 import numpy as np
 import pytest
 import serial
-import yaml
 from scipy.integrate import solve_ivp
 
-from cli_helpers import run_cli
+from sweep_helpers import (
+    analyze_sweep,
+    first_mode_over_seeds,
+    modal_damping,
+    record_run,
+    stiff_grinder,
+)
 from trueturn.angles import angle_difference_deg
 from trueturn.constants import STANDARD_GRAVITY_M_S2
 from trueturn.link.ports import open_port
-from trueturn.sim.board import BoardOptions, VirtualBoard, run_times
+from trueturn.sim.board import BoardOptions, VirtualBoard
 from trueturn.sim.rotor import CorrectionPlane, Mass, PickupMount, RigidRotor, Support
-from trueturn.sim.scenario import load_scenario, scenario_dir
+from trueturn.sim.scenario import load_scenario
 from trueturn.sim.transient import RotorMotion
 
 
@@ -219,16 +223,8 @@ def test_the_response_option_is_checked() -> None:
 
 @pytest.fixture(scope="module")
 def transient_coast(tmp_path_factory: pytest.TempPathFactory) -> dict:
-    sc = load_scenario("bench-grinder")
-    out = tmp_path_factory.mktemp("transient") / "cd.cap"
-    code, _, err = run_cli(["record", "--port", "sim://bench-grinder?realtime=0&seed=5"
-                            "&run=coastdown&response=transient", "--seconds",
-                            f"{run_times(sc, 'coastdown')['record_s']:g}", "-o", str(out),
-                            "--quiet"])
-    assert code == 0, err
-    code, text, err = run_cli(["analyze", str(out), "--sweep", "--json", "--unit", "g"])
-    assert code == 0, err
-    return json.loads(text)
+    return analyze_sweep(record_run(tmp_path_factory.mktemp("transient"), "bench-grinder",
+                                    "coastdown", "transient", "cd"), "--unit", "g")
 
 
 def test_transient_coastdown_reads_the_model_where_quasi_static_and_lewis_at_the_mode(
@@ -275,8 +271,6 @@ def test_transient_coastdown_finds_the_rubber_feet_mode_and_its_damping(
     # with the sweep's build-up (swept: the sweep-rate parameter well above 1), the peak
     # itself late (Lewis), and no resonance reported away from a critical speed (the
     # ringing below the mode is no resonance)
-    from test_dsp_sweep_cli import modal_damping
-
     sc = load_scenario("bench-grinder")
     criticals = sc.rotor.critical_speeds_rpm()
     zeta = modal_damping("bench-grinder", criticals[0])
@@ -299,25 +293,12 @@ def test_transient_coastdowns_over_seeds_hold_the_mode_or_say_not_resolved(
     # at both pickups every time; its damping resolved in most and then its 95 % interval
     # holds the modal damping (never a wrong tight interval); nothing reported away from a
     # critical speed
-    from test_dsp_sweep_cli import modal_damping
-
-    sc = load_scenario("bench-grinder")
-    criticals = sc.rotor.critical_speeds_rpm()
+    criticals = load_scenario("bench-grinder").rotor.critical_speeds_rpm()
     zeta = modal_damping("bench-grinder", criticals[0])
     found = resolved = 0
-    for seed in (1, 2, 3, 4, 6):
-        out = tmp_path / f"cd{seed}.cap"
-        code, _, err = run_cli(["record", "--port", f"sim://bench-grinder?realtime=0&seed={seed}"
-                                "&run=coastdown&response=transient", "--seconds",
-                                f"{run_times(sc, 'coastdown')['record_s']:g}", "-o", str(out),
-                                "--quiet"])
-        assert code == 0, err
-        code, text, err = run_cli(["analyze", str(out), "--sweep", "--json", "--unit", "g"])
-        assert code == 0, err
-        for r in json.loads(text)["resonances"]:
-            assert min(abs(r["speed_rpm"] / m - 1) for m in criticals) <= 0.05, (seed, r)
-            if abs(r["speed_rpm"] / criticals[0] - 1) > 0.05:
-                continue
+    for seed, at_first in first_mode_over_seeds(tmp_path, "bench-grinder", "transient",
+                                                (1, 2, 3, 4, 6), "--unit", "g"):
+        for r in at_first:
             found += 1
             if r["damping_ratio"] is None:
                 continue
@@ -334,29 +315,10 @@ def test_transient_stiff_coastdown_warns_at_the_fitted_mode(tmp_path: Path) -> N
     # comes about 5 % late, the near-resonance finding names the fitted mode, within 1 % of
     # the model's critical speed; the damping, when given, within a factor 1.1 of the modal
     # damping and its interval holding it
-    from test_dsp_sweep_cli import modal_damping
-
-    raw = yaml.safe_load((scenario_dir() / "bench-grinder.yaml").read_text(encoding="utf-8"))
-    for b in raw["bearings"]:
-        for key in ("stiffness_h_n_per_m", "stiffness_v_n_per_m"):
-            b[key] *= (3000.0 / 823.2) ** 2
-    raw["name"] = "stiff-grinder"
-    for m in raw["as_found"]:
-        m["mass_g"] *= 0.25
-    path = tmp_path / "stiff-grinder.yaml"
-    path.write_text(yaml.safe_dump(raw), encoding="utf-8")
-    sc = load_scenario(str(path))
-    critical = sc.rotor.critical_speeds_rpm()[0]
+    path = stiff_grinder(tmp_path)
+    critical = load_scenario(str(path)).rotor.critical_speeds_rpm()[0]
     zeta = modal_damping(str(path), critical)
-    out = tmp_path / "stiff.cap"
-    code, _, err = run_cli(["record", "--port", f"sim://{path}?realtime=0&seed=5&run=coastdown"
-                            "&response=transient", "--seconds",
-                            f"{run_times(sc, 'coastdown')['record_s']:g}", "-o", str(out),
-                            "--quiet"])
-    assert code == 0, err
-    code, text, err = run_cli(["analyze", str(out), "--sweep", "--json"])
-    assert code == 0, err
-    data = json.loads(text)
+    data = analyze_sweep(record_run(tmp_path, str(path), "coastdown", "transient", "stiff"))
     near = [f for f in data["findings"] if f["code"] == "near_resonance"]
     assert {f["pickup"] for f in near} == {"left-bearing", "right-bearing"}
     assert all(abs(f["resonance_rpm"] / critical - 1) < 0.01 for f in near)

@@ -127,9 +127,15 @@ def test_a_balancing_speed_near_a_resonance_is_warned_in_the_guide(tmp_path: Pat
     first_mode = model_resonances_rpm(path)[0]
     assert 2800 < first_mode < 3200
 
+    # Steady physics, said explicitly (response=quasi-static): this is about the guide's
+    # words for a resonance the sweep resolved. With the rotor's motion in time
+    # (response=transient) the app's kept coast-down of this variant had no near-resonance
+    # finding, though `analyze --sweep` of a recorded one finds the mode at 3002 rpm and
+    # warns: not understood yet, one of the things that keep the transient physics from
+    # being the simulator's default (issue #20).
     async def scenario() -> None:
-        config = AppConfig(f"sim://{path}?realtime=0&motor=off", scenario_profile(str(path)),
-                           demo=True, workspace=tmp_path / "ws")
+        config = AppConfig(f"sim://{path}?realtime=0&motor=off&response=quasi-static",
+                           scenario_profile(str(path)), demo=True, workspace=tmp_path / "ws")
         app = TrueturnApp(config)
         async with app.run_test(size=SIZE) as pilot:
             await connect(app, pilot)

@@ -78,12 +78,13 @@ from trueturn.balance.model_first import (  # noqa: E402
     predict_influence,
 )
 from trueturn.balance.sanity import NoInformationError  # noqa: E402
+from trueturn.balance.support_fit import SweepCurve  # noqa: E402
 from trueturn.balance.trial_mass import size_trial_mass, suggest_trial  # noqa: E402
 from trueturn.constants import STANDARD_GRAVITY_M_S2  # noqa: E402
 from trueturn.dsp import analyze_capture  # noqa: E402
 from trueturn.dsp.averaging import SteadinessLimits  # noqa: E402
 from trueturn.dsp.findings import Code  # noqa: E402
-from trueturn.dsp.sweep import MAX_SLOPE_SE, SLOPE_WINDOW_FRACTION  # noqa: E402
+from trueturn.dsp.sweep import BIN_FRACTION, MAX_SLOPE_SE, SLOPE_WINDOW_FRACTION  # noqa: E402
 from trueturn.dsp.synthetic import (  # noqa: E402
     OrderComponent,
     SyntheticRun,
@@ -106,6 +107,10 @@ MASS_ERR, ANGLE_ERR_DEG = 0.02, 2.0
 TRIAL_MARGIN = 2.0
 SPEED_WANDER = 0.005                      # +/-0.5 % between runs
 SWEEP_SPEED_ERR, SWEEP_DAMPING_ERR = 0.02, 0.2
+# the coast-down's curve (sweep_curve): points from the running speed down to a quarter of
+# it, one per speed bin of the app's sweep (dsp.sweep.BIN_FRACTION: 0.5 % of speed)
+SWEEP_CURVE_LOW = 0.25
+SWEEP_CURVE_POINTS = math.ceil(math.log(1.0 / SWEEP_CURVE_LOW) / BIN_FRACTION)
 
 # -- the captures: what a board would send for each run, analysed by the DSP --------------
 # every packaged scenario's pickups (sim/scenarios/*.yaml): 0.3 V/g on a 1.65 V zero, an
@@ -481,6 +486,27 @@ def sweep_resonances(rotor: RigidRotor, speed: float, rng) -> dict[str, list[Sup
     return out
 
 
+def sweep_curve(shop: Shop, rng) -> SweepCurve | None:
+    """What the app's coast-down gives the support fit (procedure.engine.curve_from_sweep):
+    the as-found 1x at SWEEP_CURVE_POINTS speeds from the running speed down to
+    SWEEP_CURVE_LOW of it, through the rotor model (its nonlinear mount included), each
+    point with the scatter the DSP's sweep points show on the simulator's grinder (95 %
+    circles of 0.1-0.25 m/s^2 at a 0.3 V/g pickup: 1 sigma 0.04-0.1 m/s^2, scaled by the
+    pickup actually fitted, plus 0.3 % of the 1x). None when a point would pass the
+    pickup's range: the app then fits no curve (the recording clipped)."""
+    speeds = shop.speed * np.geomspace(1.0, SWEEP_CURVE_LOW, SWEEP_CURVE_POINTS)
+    names = [p.name for p in shop.rotor.pickups]
+    truth = np.array([[shop.rotor.response_1x(float(n), shop.true_masses)[k] for k in names]
+                      for n in speeds])
+    full_scale = ZERO_G_V / shop.signals.sensitivity_v_per_g * STANDARD_GRAVITY_M_S2
+    if np.abs(truth).max() >= full_scale:
+        return None
+    sigma = (rng.uniform(0.04, 0.1) * SENSITIVITY_V_PER_G / shop.signals.sensitivity_v_per_g
+             + 0.003 * np.abs(truth))
+    noisy = truth + sigma * (rng.normal(size=truth.shape) + 1j * rng.normal(size=truth.shape))
+    return SweepCurve(speeds, noisy, sigma)
+
+
 def phasors_of(readings: dict) -> dict[str, complex]:
     return {k: phasor(v["amp"], v["phase_deg"]) for k, v in readings.items()}
 
@@ -642,7 +668,8 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool) -> di
     first = shop.measure()["readings"]
     r0 = phasors_of(first)
     sweep = sweep_resonances(rotor, speed, rng)
-    prediction = predict_influence(layout_of(rotor), placements(rotor), speed, sweep, r0)
+    prediction = predict_influence(layout_of(rotor), placements(rotor), speed, sweep, r0,
+                                   curve=sweep_curve(shop, rng))
     zeros = np.zeros(n_planes, dtype=complex)
     n_runs = 1
     first_reduction = None

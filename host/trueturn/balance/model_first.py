@@ -45,6 +45,15 @@ import numpy as np
 import scipy.linalg
 
 from trueturn.balance.iso21940 import angular_speed_rad_s
+from trueturn.balance.support_fit import (
+    InertiaPrior,
+    SupportGeometry,
+    SupportModelFit,
+    SweepCurve,
+    fit_draws,
+    fit_support_model,
+    support_model_coefficients,
+)
 
 #: 95 % circle of a circular complex Gaussian: radius = sqrt(-2 ln 0.05) sigma (2.448 sigma)
 CIRCLE95 = math.sqrt(-2.0 * math.log(0.05))
@@ -73,6 +82,21 @@ REFUTE_TAIL_PROBABILITY = 1e-3
 #: moves the 1x by ~1-2 %, mounts are mildly nonlinear): a floor on each reading's
 #: relative 1 sigma (our choice)
 READING_REL_FLOOR = 0.02
+#: relative model error of the support model fitted to a whole sweep
+#: (:mod:`trueturn.balance.support_fit`), 1 sigma per coefficient: what the fit's own
+#: covariance does not hold (a mount's nonlinearity, supports not along the pickups).
+#: Our choice, calibrated on random rigid rotors of the simulator's four-degree-of-freedom
+#: model with nonlinear mounts (tests/test_balance_support_fit.py checks the coverage)
+FIT_MODEL_REL_SIGMA = 0.05
+#: with a fitted support model, running within this fraction of one of its critical
+#: speeds (or within twice its damping ratio) is "near": the fit knows the mode from the
+#: curve, and its draws carry the run-to-run speed wander, so only the half-power band is
+#: refused outright (our choice)
+FIT_NEAR_RESONANCE_FRACTION = 0.05
+#: the run-to-run speed wander a first correction must survive (an induction motor's slip
+#: with load and supply: about +/-0.5 %; from memory, no single source): each draw of a
+#: fitted prediction is taken at a speed within it
+SPEED_WANDER_FRACTION = 0.005
 
 
 class Distrust(str, Enum):
@@ -486,7 +510,8 @@ def rigid_rotor_coefficients(mass_kg: float, inertia_kg_m2: float, d_bearings_m:
 def predict_influence(layout: RotorLayout, pickups: Sequence[PickupPlacement], speed_rpm: float,
                       resonances: Mapping[str, Sequence[SupportResonance]] | None = None,
                       as_found: Mapping[str, complex] | None = None,
-                      draws: int = 300, seed: int = 0) -> PredictedInfluence:
+                      draws: int = 300, seed: int = 0,
+                      curve: SweepCurve | None = None) -> PredictedInfluence:
     """Influence coefficients of a rigid rotor on two flexible supports, with uncertainty.
 
     Parameters
@@ -510,6 +535,12 @@ def predict_influence(layout: RotorLayout, pickups: Sequence[PickupPlacement], s
     draws : int, default 300
         Monte Carlo draws for the uncertainty (fixed ``seed``: the same answer every time).
     seed : int, default 0
+    curve : SweepCurve or None, default None
+        The as-found sweep's every point (pickups in the order of ``pickups``, m/s^2):
+        with it, the supports are fitted to the whole curve
+        (:func:`trueturn.balance.support_fit.fit_support_model`: stiffness along and
+        across, damping, the inertias) and the prediction's uncertainty is the fit's own
+        covariance; a curve too short to fit leaves the ``resonances`` route.
 
     Returns
     -------
@@ -580,9 +611,23 @@ def predict_influence(layout: RotorLayout, pickups: Sequence[PickupPlacement], s
         distrust.append(Distrust.NO_PICKUP_ANGLE)
     if any(not r.fits for rs in resonances.values() for r in rs):
         distrust.append(Distrust.SWEEP_MISFIT)
+    rng = np.random.default_rng(seed)
+    if curve is not None and Distrust.NO_PICKUP_ANGLE not in distrust \
+            and Distrust.NO_BEARINGS not in distrust:
+        geometry = SupportGeometry(
+            layout.rotor_mass_kg, masses, d_bear, d_pl, radius,
+            np.array([d_bear[p.bearing] for p in pickups]),
+            np.array([float(p.angle_from_tach_deg or 0.0) for p in pickups]))
+        fit = fit_support_model(
+            geometry, curve, InertiaPrior(inertia, inertia_sigma, polar, polar_sigma),
+            tuple(r.speed_rpm for rs in resonances.values() for r in rs))
+        if fit is not None:
+            kept: list[Distrust] = [d for d in distrust if d not in (
+                Distrust.NO_SWEEP, Distrust.STIFFNESS_UNKNOWN, Distrust.SWEEP_MISFIT)]
+            return _prediction_from_fit(fit, geometry, pickups, speed_rpm, as_found, draws,
+                                        rng, kept)
     have_phase = not ({Distrust.NO_SWEEP, Distrust.STIFFNESS_UNKNOWN, Distrust.NO_PICKUP_ANGLE}
                       & set(distrust))
-    rng = np.random.default_rng(seed)
     model_err = 1.0 + MODEL_REL_SIGMA * (rng.normal(size=(draws, n_s, n_p))
                                          + 1j * rng.normal(size=(draws, n_s, n_p))) / math.sqrt(2)
     if not have_phase:
@@ -636,6 +681,84 @@ def predict_influence(layout: RotorLayout, pickups: Sequence[PickupPlacement], s
                               math.exp(DAMPING_LOG_SIGMA * rng.normal()), i_t,
                               PICKUP_ANGLE_SIGMA_DEG * rng.normal())[0]
     drawn *= model_err
+    return _from_draws(pickups, nominal, drawn, as_found, distrust)
+
+
+def fitted_criticals_rpm(fit: SupportModelFit, geometry: SupportGeometry) -> list[float]:
+    """The undamped synchronous critical speeds of a fitted support model, both directions.
+
+    Per direction, the modes of ``diag(m, I_t - I_p) q'' + K q = 0`` (the tilt meets
+    ``I_t - I_p``, :func:`synchronous_tilt_inertia_kg_m2`; a disc's tilt has none).
+
+    Parameters
+    ----------
+    fit : SupportModelFit
+    geometry : SupportGeometry
+
+    Returns
+    -------
+    list of float
+        rpm, positive modes only.
+
+    References
+    ----------
+    .. [1] Vance, *Rotordynamics of Turbomachinery*, 1988, ch. 2 (from memory).
+    """
+    k = np.exp(fit.theta[:4]).reshape(2, 2)
+    tilt = synchronous_tilt_inertia_kg_m2(math.exp(fit.theta[5]), math.exp(fit.theta[6]))
+    out = []
+    for direction in range(2):
+        stiff = sum(k[b, direction] * np.array([[1.0, d], [d, d * d]])
+                    for b, d in enumerate(geometry.bearings_m))
+        modes = scipy.linalg.eigvals(stiff, np.diag([geometry.mass_kg, tilt]))
+        out += [float(math.sqrt(m.real)) * 30.0 / math.pi for m in modes
+                if np.isfinite(m) and m.real > 0]
+    return sorted(out)
+
+
+def _prediction_from_fit(fit: SupportModelFit, geometry: SupportGeometry,
+                         pickups: Sequence[PickupPlacement], speed_rpm: float,
+                         as_found: Mapping[str, complex] | None, draws: int,
+                         rng: np.random.Generator, distrust: list[Distrust]
+                         ) -> PredictedInfluence:
+    """:func:`predict_influence` from a support model fitted to the whole sweep: the
+    coefficients at ``speed_rpm`` with the fit's uncertainty (draws of its parameters, the
+    pickups' angles and :data:`FIT_MODEL_REL_SIGMA`)."""
+    omega = np.array([angular_speed_rad_s(speed_rpm)])
+    nominal = support_model_coefficients(fit.theta, geometry, omega)[0]
+    n_s, n_p = nominal.shape
+    zeta = math.exp(float(fit.theta[4]))
+    if any(abs(speed_rpm / m - 1.0) < max(FIT_NEAR_RESONANCE_FRACTION, 2.0 * zeta)
+           for m in fitted_criticals_rpm(fit, geometry)):
+        distrust.append(Distrust.NEAR_RESONANCE)
+    if fit.covariance is None:
+        # the sweep cannot tell the parameters apart: no spread to give, so no trust
+        distrust.append(Distrust.TOO_UNCERTAIN)
+        cov = tuple(np.diag(np.full(n_p, np.inf + 0j)) for _ in range(n_s))
+        return PredictedInfluence(tuple(p.name for p in pickups), nominal, np.abs(nominal),
+                                  cov, np.full((n_s, n_p), 180.0), np.full((n_s, n_p), np.inf),
+                                  False, None, tuple(dict.fromkeys(distrust)))
+    wander = 1.0 + SPEED_WANDER_FRACTION * rng.uniform(-1.0, 1.0, size=draws)
+    drawn = np.array([support_model_coefficients(t, geometry, omega * w)[0]
+                      for t, w in zip(fit_draws(fit, draws, rng), wander, strict=True)])
+    angle_err = np.exp(1j * np.radians(PICKUP_ANGLE_SIGMA_DEG * rng.normal(size=(draws, n_s))))
+    # the model's error: at least FIT_MODEL_REL_SIGMA, else what it missed by on its sweep
+    rel_sigma = max(FIT_MODEL_REL_SIGMA, fit.relative_misfit)
+    model_err = 1.0 + rel_sigma * (
+        rng.normal(size=(draws, n_s, n_p)) + 1j * rng.normal(size=(draws, n_s, n_p))) / math.sqrt(2)
+    drawn = drawn * angle_err[..., None] * model_err
+    return _from_draws(pickups, nominal, drawn, as_found, distrust)
+
+
+def _from_draws(pickups: Sequence[PickupPlacement], nominal: np.ndarray, drawn: np.ndarray,
+                as_found: Mapping[str, complex] | None,
+                distrust: list[Distrust]) -> PredictedInfluence:
+    """The prediction's spread from Monte Carlo draws of its coefficients: each pickup's
+    complex covariance, the 95 % phase and magnitude spreads, and the share of the
+    as-found 1x the nominal correction would leave in 95 % of the draws (over
+    :data:`MAX_RESIDUAL_FRACTION_95`: not trusted)."""
+    draws = drawn.shape[0]
+    n_s = nominal.shape[0]
     dev = drawn - nominal[None]
     cov = tuple(np.einsum("dj,dk->jk", dev[:, i, :], dev[:, i, :].conj()) / draws
                 for i in range(n_s))

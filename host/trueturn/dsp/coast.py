@@ -58,6 +58,9 @@ class SweepOutcome:
     sweep: Sweep
     balancing_rpm: float | None
     findings: tuple[Finding, ...]
+    #: samples at the ADC's ends while recording (a resonance driving a pickup past its
+    #: range): some points' 1x then reads low, so the curve is not fitted point by point
+    clipped_samples: int = 0
 
 
 def meter_sweep(meter: LiveAnalyzer, unit: str | None = None) -> Sweep:
@@ -205,4 +208,4 @@ class SweepRecorder:
         kind: SweepKind = ("coastdown" if float(speeds[-1]) * MIN_SWEEP_RATIO
                            < float(speeds.max()) else "runup")
         at, found = sweep_findings(sweep, run_speed_rpm)
-        return SweepOutcome(kind, sweep, at, tuple(found))
+        return SweepOutcome(kind, sweep, at, tuple(found), self.analyzer.clipped_samples)

@@ -12,14 +12,15 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping, Sequence
-from dataclasses import replace
+from dataclasses import dataclass, replace
 
 import numpy as np
 
-from trueturn.angles import wrap_deg
+from trueturn.angles import phasor, wrap_deg
 from trueturn.balance.influence import mass_vector, trial_size_factor
 from trueturn.balance.iso21940 import per_plane_permissible, permissible_unbalance_gmm
 from trueturn.balance.model_first import (
+    CIRCLE95,
     CoefficientEstimate,
     Distrust,
     PickupPlacement,
@@ -46,6 +47,7 @@ from trueturn.balance.solve import (
     solve,
 )
 from trueturn.balance.splitting import negligible_parts, split
+from trueturn.balance.support_fit import SweepCurve
 from trueturn.balance.trial_mass import (
     STANDARD_GRAVITY_M_S2,
     TrialMass,
@@ -113,6 +115,81 @@ def resonances_from_sweep(outcome: SweepOutcome | None, sensors: Sequence[str],
         if speeds and not out[name]:
             out[name] = [SupportResonance(min(speeds), 0.05, fits=False)]
     return out
+
+
+@dataclass(frozen=True)
+class SweepEvidence:
+    """What the as-found run's coast-down tells the model: the support resonances per
+    pickup (:func:`resonances_from_sweep`) and the whole curve (None: not usable)."""
+
+    resonances: dict[str, list[SupportResonance]]
+    curve: SweepCurve | None
+
+
+def curve_from_sweep(outcome: SweepOutcome, sensors: Sequence[str]) -> SweepCurve | None:
+    """The sweep's every point as the support fit takes it: acceleration (m/s^2) per
+    pickup in the order of ``sensors``, each part's 1 sigma from the point's 95 % circle.
+
+    None when a pickup is missing from the sweep, its unit is volts (no acceleration to
+    convert to), or the recording clipped (a point's 1x would read low unseen).
+
+    Parameters
+    ----------
+    outcome : SweepOutcome
+    sensors : sequence of str
+
+    Returns
+    -------
+    SweepCurve or None
+
+    References
+    ----------
+    .. [1] Sinusoidal kinematics for the units (:func:`trueturn.dsp.units.from_acceleration_factor`);
+       the circular Gaussian's 95 % radius, 2.448 sigma (:data:`CIRCLE95`).
+    """
+    sweep = outcome.sweep
+    if outcome.clipped_samples or not sweep.points or sweep.unit not in UNITS:
+        return None
+    speeds, values, sigmas = [], [], []
+    for point in sweep.points:
+        factor = from_acceleration_factor(sweep.unit, point.speed_rpm / 60.0) \
+            if point.speed_rpm > 0 else None
+        found = [point.value(s) for s in sensors]
+        if factor is None:
+            return None
+        if any(v is None for v in found):
+            continue
+        speeds.append(point.speed_rpm)
+        values.append([phasor(v.amplitude, v.phase_deg) / factor for v in found if v])
+        sigmas.append([v.confidence_radius / CIRCLE95 / abs(factor) for v in found if v])
+    if not speeds:
+        return None
+    return SweepCurve(np.array(speeds), np.array(values, dtype=complex), np.array(sigmas))
+
+
+def sweep_evidence(outcome: SweepOutcome | None, sensors: Sequence[str],
+                   speed_rpm: float) -> SweepEvidence | None:
+    """The resonances below ``speed_rpm`` (:func:`resonances_from_sweep`) and the curve
+    (:func:`curve_from_sweep`) of an as-found coast-down; None when there was no sweep.
+
+    Parameters
+    ----------
+    outcome : SweepOutcome or None
+    sensors : sequence of str
+    speed_rpm : float
+
+    Returns
+    -------
+    SweepEvidence or None
+
+    References
+    ----------
+    .. [1] :mod:`trueturn.balance.support_fit` (the curve's use; ours).
+    """
+    resonances = resonances_from_sweep(outcome, sensors, speed_rpm)
+    if resonances is None or outcome is None:
+        return None
+    return SweepEvidence(resonances, curve_from_sweep(outcome, sensors))
 
 
 #: how a reading's speed exponent differs from acceleration's (velocity = acceleration /
@@ -466,11 +543,15 @@ class BalanceEngine:
                 n, said if said is not None else min(i, 1),
                 angles[i] if i < len(angles) else None))
         sweep: dict[str, list[SupportResonance]] | None = None
+        curve: SweepCurve | None = None
+        if isinstance(resonances, SweepEvidence):
+            curve = resonances.curve
+            resonances = resonances.resonances
         if isinstance(resonances, dict):
             sweep = {str(k): [r for r in v if isinstance(r, SupportResonance)]
                      for k, v in resonances.items()}
         accel = {n: as_found.readings[n].vector / factor[i] for i, n in enumerate(names)}
-        pred = predict_influence(layout, placements, speed, sweep, accel)
+        pred = predict_influence(layout, placements, speed, sweep, accel, curve=curve)
         if not pred.trusted:
             return ModelAnswer(False, tuple(d.value for d in pred.distrust),
                                residual_fraction_95=pred.residual_fraction_95)

@@ -38,7 +38,7 @@ from trueturn.jobs.profiles import MachineProfile
 from trueturn.jobs.records import CoefficientSet
 from trueturn.link.session import GreetPhase
 from trueturn.model import Run, RunKind
-from trueturn.procedure.engine import BalanceEngine, resonances_from_sweep
+from trueturn.procedure.engine import BalanceEngine, sweep_evidence
 from trueturn.procedure.guide import (
     GateRefused,
     HandsOn,
@@ -1050,7 +1050,7 @@ class TrueturnApp(App):
         """Model-first: the as-found run's coast-down gives the supports' resonances."""
         proc = self.procedure
         if proc is not None and proc.awaiting_sweep:
-            proc.sweep_analysed(resonances_from_sweep(
+            proc.sweep_analysed(sweep_evidence(
                 outcome, proc.setup.sensors, proc.runs[0].speed_rpm or proc.setup.speed_rpm))
             self.keeper.model(proc)  # a continued job uses the very same model
 

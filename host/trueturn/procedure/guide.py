@@ -1192,14 +1192,18 @@ class Procedure:
                 and len(self.runs) == 1 and not self.fallback
                 and isinstance(self.step, ShowCorrection) and not self.problem)
 
-    def sweep_analysed(self, resonances: object) -> ModelAnswer:
+    def sweep_analysed(self, resonances: object,
+                       answer: ModelAnswer | None = None) -> ModelAnswer:
         """The as-found run's sweep is analysed: ``resonances`` per pickup (the engine's
         type; None: no sweep could be had). The model either gives the first correction
         (no trial run) or says why it cannot be trusted, and the job goes on with a trial
-        run per plane; the as-found run is kept either way."""
+        run per plane; the as-found run is kept either way. ``answer``: the engine's
+        answer to the same sweep and as-found run, computed beforehand (off the screen's
+        thread; the engine is pure), else computed here."""
         if not self.awaiting_sweep:
             raise GateRefused("the model's answer is given once, after the as-found run")
-        answer = self.engine.model_first(self.setup, self.runs[:1], resonances)
+        if answer is None:
+            answer = self.engine.model_first(self.setup, self.runs[:1], resonances)
         self.model = answer
         if answer.trusted and answer.solution is not None:
             self.solution = answer.solution

@@ -46,6 +46,7 @@ from trueturn.procedure.guide import (
     MassChange,
     Measure,
     Mode,
+    ModelAnswer,
     Procedure,
     RunPhase,
     SafetyEvent,
@@ -85,6 +86,15 @@ GREET_PHASE_TEXT = {
 
 TICK_S = 0.1
 TACH_SILENT_S = 2.0  # no tach edge for this long while data arrive: the tach is not seen
+
+
+@dataclass(frozen=True)
+class PreparedModel:
+    """The model-first answer to a coast-down, computed in the sweep's thread: the
+    sweep's evidence and the engine's answer to it."""
+
+    evidence: object
+    answer: ModelAnswer
 
 
 @dataclass
@@ -908,7 +918,7 @@ class TrueturnApp(App):
             self.sweep_coasting = False
             self._finish_sweep(self.session.stop_sweep_recording(), self.sweep_run,
                                self.sweep_label, self._coast_down_analysed,
-                               self.sweep_speed_rpm)
+                               self.sweep_speed_rpm, self._model_answer)
         bench.query_one("#status", StatusStrip).show(
             snap, machine=self.config.profile.name, demo=self.config.demo,
             identity=self.session.identity, link_error=self.link_error,
@@ -1016,42 +1026,69 @@ class TrueturnApp(App):
 
     def _finish_sweep(self, recording: SweepRecorder | None, run_number: int | None,
                       label: str,
-                      then: Callable[[SweepOutcome | None], None] | None = None,
-                      run_speed_rpm: float | None = None) -> None:
+                      then: Callable[[SweepOutcome | None, object], None] | None = None,
+                      run_speed_rpm: float | None = None,
+                      prepare: Callable[[SweepOutcome | None], object] | None = None) -> None:
         """Fit a finished recording off the screen's refresh (a thread: the resonance fits
         take most of a second), then, back on the app's thread, show it, keep it with run
-        ``run_number`` and call ``then`` with it. Pending fits are counted
-        (:attr:`sweeps_pending`) so nothing waits on a sweep that never comes."""
+        ``run_number`` and call ``then`` with it and what ``prepare`` made of it in the
+        thread (a pure computation; None when it failed, so ``then`` does it itself).
+        Pending fits are counted (:attr:`sweeps_pending`) so nothing waits on a sweep
+        that never comes."""
         if recording is None:
             if then is not None:
-                then(None)
+                then(None, None)
             return
         self.sweeps_pending += 1
 
-        def done(outcome: SweepOutcome | None) -> None:
+        def done(outcome: SweepOutcome | None, prepared: object) -> None:
             self.sweeps_pending -= 1
             self.keep_sweep(outcome, run_number, label)
             if then is not None:
-                then(outcome)
+                then(outcome, prepared)
             self.tick()  # what changed is drawn now, as after a key
 
         def fit() -> None:
+            prepared = None
             try:
                 outcome = recording.finish(run_speed_rpm)
             except Exception:  # noqa: BLE001 - a failed fit is a sweep not kept, said
                 outcome = None
                 self.call_from_thread(setattr, self, "message",
                                       "A sweep could not be analysed; it was not kept.")
-            self.call_from_thread(done, outcome)
+            if prepare is not None:
+                try:
+                    prepared = prepare(outcome)
+                except Exception:  # noqa: BLE001 - done again on the app's thread, said there
+                    prepared = None
+            self.call_from_thread(done, outcome, prepared)
 
         self.run_worker(fit, thread=True, group="sweeps", exit_on_error=False)
 
-    def _coast_down_analysed(self, outcome: SweepOutcome | None) -> None:
-        """Model-first: the as-found run's coast-down gives the supports' resonances."""
+    def _model_answer(self, outcome: SweepOutcome | None) -> object:
+        """Model-first, in the sweep's thread: the model's answer to the as-found run's
+        coast-down (the support fit to its whole curve takes seconds), computed from the
+        set-up and the as-found run alone, which cannot change while the model is awaited;
+        None when the procedure is not waiting for it."""
+        proc = self.procedure
+        if proc is None or not proc.awaiting_sweep:
+            return None
+        evidence = sweep_evidence(outcome, proc.setup.sensors,
+                                  proc.runs[0].speed_rpm or proc.setup.speed_rpm)
+        return PreparedModel(evidence, proc.engine.model_first(proc.setup, proc.runs[:1],
+                                                                 evidence))
+
+    def _coast_down_analysed(self, outcome: SweepOutcome | None, prepared: object) -> None:
+        """Model-first: the as-found run's coast-down gives the supports' resonances and
+        curve (the answer prepared in the sweep's thread, else computed here)."""
         proc = self.procedure
         if proc is not None and proc.awaiting_sweep:
-            proc.sweep_analysed(sweep_evidence(
-                outcome, proc.setup.sensors, proc.runs[0].speed_rpm or proc.setup.speed_rpm))
+            if isinstance(prepared, PreparedModel):
+                proc.sweep_analysed(prepared.evidence, prepared.answer)
+            else:
+                proc.sweep_analysed(sweep_evidence(
+                    outcome, proc.setup.sensors,
+                    proc.runs[0].speed_rpm or proc.setup.speed_rpm))
             self.keeper.model(proc)  # a continued job uses the very same model
 
     def model_words(self) -> tuple[str, ...]:

@@ -858,7 +858,10 @@ def unseen_covariance(coef_n: np.ndarray, window_coef_n: np.ndarray,
     out = window_coef_n @ schur_pinv @ window_coef_n.T - offset @ schur_pinv @ offset.T
     if n_revs > 1:
         dev = coef_n - mean_c
-        out += np.einsum("rpk,kl,rql->pq", dev, schur_pinv, dev) / (n_revs * (n_revs - 1))
+        # sum_r D_r S+ D_r': one matrix product, then one contraction over r and the tones
+        # (a three-operand einsum would loop over every index at once)
+        out += np.tensordot(dev @ schur_pinv, dev, axes=([0, 2], [0, 2])) / (
+            n_revs * (n_revs - 1))
     return 0.5 * (out + out.T)
 
 

@@ -248,6 +248,18 @@ def _sentence(f: Finding) -> str:
                      "scatter")
         return text
     if c is Code.ORDER_ON_MAINS:
+        state = _mains_state(f)
+        if state == "beyond":
+            seconds = _n(f, "seconds_needed", None)
+            takes = (f"one beat takes {seconds:.0f} s of signal" if seconds is not None
+                     else "they do not beat at all")
+            return (f"{_mains_apart(f)} cannot be told from the hum at this speed: {takes}, "
+                    f"more than the {_n(f, 'window_max_s'):g} s over which the hum's fit and the "
+                    f"motor's speed hold steady enough. {_MAINS_WAY_OUT}")
+        if state == "waiting":
+            return (f"{_mains_apart(f)}: the reading waits for one beat - averaging "
+                    f"{_n(f, 'revolutions_needed')} revolutions, {_n(f, 'revolutions_held')} "
+                    "so far; keep the machine running steadily")
         order = _n(f, "order", 0)
         what = f"{order}x" if order else "an order"
         text = (f"{what} is too close to {_n(f, 'hum_hz'):g} Hz, a mains hum frequency: any "
@@ -407,7 +419,7 @@ def describe(finding: Finding, brief: bool = False) -> str:
     brief : bool, default False
         A few plain words where the app has them (the tach codes; a severity with a zone,
         without its band; the unbalance verdict; a repeated 1x; a resonance near the
-        balancing speed), else the sentence.
+        balancing speed; a 1x waiting out, or too near, a mains line), else the sentence.
 
     Returns
     -------
@@ -435,11 +447,48 @@ def describe(finding: Finding, brief: bool = False) -> str:
                 f"{100 * _n(finding, 'margin'):.0f} % of a resonance at "
                 f"{_n(finding, 'resonance_rpm'):.0f} rpm")
         return f"{finding.pickup}: {text}" if finding.pickup else text
+    if brief and finding.code is Code.ORDER_ON_MAINS and _mains_state(finding):
+        if _mains_state(finding) == "waiting":
+            text = (f"{_mains_apart(finding)}: needs "
+                    f"{_n(finding, 'revolutions_needed')} revolutions, "
+                    f"{_n(finding, 'revolutions_held')} so far")
+        else:
+            text = (f"{_mains_apart(finding)}: cannot be told apart at this speed. "
+                    f"{_MAINS_WAY_OUT_BRIEF}")
+        return f"{finding.pickup}: {text}" if finding.pickup else text
     if brief and finding.code in _BRIEF:
         count = f" ({finding.count})" if finding.count else ""
         return _BRIEF[finding.code].format(n=count)
     text = _sentence(finding)
     return f"{finding.pickup}: {text}" if finding.pickup else text
+
+
+# What a person can do when the 1x cannot be told from a mains hum line (common practice,
+# no source): move the 1x away from the line, or take the hum off the pickup signals (it is
+# picked up on the leads, or comes in through a ground loop with the mains-powered laptop).
+_MAINS_WAY_OUT = ("Run it at another speed if the machine allows (another pulley, a variable "
+                  "drive), or cut the hum: shorter, shielded pickup leads away from the motor's "
+                  "power cables, and the laptop on its battery (common practice)")
+_MAINS_WAY_OUT_BRIEF = ("Run at another speed if the machine allows, or cut the hum: short "
+                        "shielded leads, laptop on battery")
+
+
+def _mains_state(f: Finding) -> str:
+    """A blocking ``order_on_mains`` on the 1x: "beyond" when the beat is too slow to wait
+    out (``revolutions_needed`` over ``revolutions_max``), "waiting" while the live meter
+    gathers the revolutions (``revolutions_held``); else ""."""
+    needed = f.details.get("revolutions_needed")
+    most = f.details.get("revolutions_max")
+    if not f.blocking or most is None:
+        return ""
+    if needed is None or needed > most:  # (None: no beat at all)
+        return "beyond"
+    return "waiting" if "revolutions_held" in f.details else ""
+
+
+def _mains_apart(f: Finding) -> str:
+    """"1x 0.4 Hz from the 60 Hz hum" (the 1x from the line itself)."""
+    return f"1x {_n(f, 'offset_hz'):.2g} Hz from the {_n(f, 'hum_hz'):g} Hz hum"
 
 
 def unique(findings: Iterable[Finding]) -> list[Finding]:

@@ -77,6 +77,60 @@ TIMING_BIAS_TICKS = 1.5
 
 
 
+#: The longest window the live meter averages to tell a 1x from a mains hum line next to it
+#: (``order_on_mains`` with ``revolutions_needed``: one beat between them): 6 s of signal, a
+#: beat of at least 1/6 Hz, so the 1x at least about 0.27 Hz from the line (past the hum
+#: comb's +/-0.1 Hz). Why no longer: the hum is fitted as a comb of fixed tones 0.05 Hz
+#: apart (:data:`MAINS_COMB_STEPS`), which follows a grid a few hundredths of a hertz off
+#: only while its tones drift apart by well under half a cycle over the window (0.3 cycle at
+#: 6 s); beyond that the grid's offset leaks into the 1x past its circle (measured: 0.25 Hz
+#: from the line over 6.7 s, grid 0.02 Hz off, hum three times the 1x: errors 1.3 times the
+#: circle). And the beat must stay well above the motor's own speed wander within the window
+#: (an induction motor's slip follows its load: about 0.1 % of 3600 rpm is 0.06 Hz; common
+#: practice, from memory). Nearer the line the reading is refused with what the person can
+#: do (another speed, less hum) rather than waited for. The meter then holds at most
+#: :func:`mains_hold_revs` revolutions (722 on 60 Hz mains, about 9.5 kB each per pickup:
+#: 14 MB at two pickups).
+MAINS_WINDOW_MAX_S = 6.0
+#: The hum comb of a meter that waits out a mains line, in steps of its spread: five tones
+#: 0.05 Hz apart at the line (0.1 Hz at twice it). Three tones 0.1 Hz apart follow a grid a
+#: few hundredths of a hertz off over a window of a second or two, not over the several
+#: seconds of a wait: with the grid 0.02 Hz off and a hum three times the 1x, 0.3-0.4 Hz
+#: from the line, the 1x read over one beat was 0.5-1.7 counts off against a circle of 0.1
+#: (tones 0.1 Hz apart keep about a quarter cycle of phase between them over 2.5 s, 0.05 Hz
+#: apart over 5 s); with these five it lay within its circle (tests/test_dsp_mains_wait.py).
+MAINS_COMB_STEPS = (-1.0, -0.5, 0.0, 0.5, 1.0)
+#: a longer reading is fitted again after this fraction of its window is new (the app
+#: refreshes ten times a second; a 1200-revolution fit takes tens of milliseconds)
+MAINS_REFIT_FRACTION = 0.05
+
+
+def mains_hold_revs(mains_hz: float | None, hum_spread_hz: float = 0.1) -> int:
+    """The revolutions a meter that waits out a mains line holds: :data:`MAINS_WINDOW_MAX_S`
+    of the fastest 1x that can lie next to a hum line (twice the line plus its comb's
+    spread); 0 without mains.
+
+    Parameters
+    ----------
+    mains_hz : float or None
+        The line frequency, Hz.
+    hum_spread_hz : float, default 0.1
+        The hum comb's spread at the line (twice it at twice the line), Hz.
+
+    Returns
+    -------
+    int
+        Revolutions.
+
+    References
+    ----------
+    .. [1] Common practice, no source (see :data:`MAINS_WINDOW_MAX_S`).
+    """
+    if not mains_hz:
+        return 0
+    return math.ceil(MAINS_WINDOW_MAX_S * 2.0 * (mains_hz + hum_spread_hz))
+
+
 #: the speed counts as steady for the spectrum while every revolution stays within this
 #: fraction of the first settled one (our choice: a motor's load wander stays well inside,
 #: a run-up or coast-down leaves it within a few revolutions)
@@ -243,15 +297,22 @@ class LiveAnalyzer:
     ``hum_spread_hz``: the grid is never exactly at 50/60 Hz, so each hum frequency is fitted
     as a comb of three tones ``f, f +/- spread`` (twice the spread at 2x line), which follows
     a grid off by a few hundredths of a hertz over a window of a few seconds; 0 fits one tone.
+    ``wait_out_mains``: when the 1x over ``max_revs`` cannot be told from a mains line
+    (``order_on_mains`` blocking, with ``revolutions_needed``), :meth:`readings` averages the
+    revolutions it needs instead, up to :data:`MAINS_WINDOW_MAX_S` of signal (the meter then
+    holds up to :func:`mains_hold_revs` revolutions); until it has them the finding says how
+    many it holds (``revolutions_held``); its hum comb then has five tones
+    (:data:`MAINS_COMB_STEPS`).
     """
 
     def __init__(self, profiles: Sequence[PickupProfile] = (), unit: str | None = None,
                  mains_hz: float | None = 50.0, max_revs: int = 100,
                  orders: tuple[int, ...] = (1, 2, 3), limits: SteadinessLimits | None = None,
                  spectrum_seconds: float = 4.0, batch_revs: int = 256,
-                 hum_spread_hz: float = 0.1) -> None:
+                 hum_spread_hz: float = 0.1, wait_out_mains: bool = False) -> None:
         if 1 not in orders:
             raise ValueError("orders must include 1")
+        self.wait_out_mains = wait_out_mains
         self.profiles = tuple(profiles)
         self.unit = unit
         self.mains_hz = mains_hz
@@ -261,6 +322,9 @@ class LiveAnalyzer:
         self.spectrum_seconds = spectrum_seconds
         self.batch_revs = batch_revs
         self.hum_spread_hz = hum_spread_hz
+        #: the revolutions held (the longest window a reading may average)
+        self.hold_revs = max(max_revs, mains_hold_revs(mains_hz, hum_spread_hz)) \
+            if wait_out_mains else max_revs
         self.tick_hz = DEFAULT_TICK_HZ
         self.adc_bits = DEFAULT_ADC_BITS
         self.reference_mv = DEFAULT_REFERENCE_MV  # the one in use (SPEC 4.10)
@@ -299,10 +363,13 @@ class LiveAnalyzer:
         self._gaps: deque[tuple[int, int]] = deque(maxlen=64)
         self._pending: list[Revolution] = []
         self._pending_ends: list[int] = []
-        self._rows = [_RowStore(self.max_revs) for _ in range(self.channels)]
+        self._rows = [_RowStore(self.hold_revs) for _ in range(self.channels)]
         # per channel, each fitted revolution's samples at an ADC rail (aligned with _rows)
-        self._clips = [_RowStore(self.max_revs) for _ in range(self.channels)]
-        self._periods = _RowStore(self.max_revs)
+        self._clips = [_RowStore(self.hold_revs) for _ in range(self.channels)]
+        self._periods = _RowStore(self.hold_revs)
+        self._revs_fitted = 0  # every revolution fitted in this stream (the rows slide)
+        # per channel: (window, revolutions fitted then, reading) of the last longer reading
+        self._long: dict[int, tuple[int, int, PickupReading]] = {}
         # how long the speed has held within STEADY_SPECTRUM_FRACTION of one value: the
         # spectrum looks at no samples from before (a run-up's sweeping 1x is no peak)
         self._steady_ref_rpm: float | None = None
@@ -642,6 +709,7 @@ class LiveAnalyzer:
                 self._rows[c].append({name: getattr(fit, name) for name in ROW_FIELDS})
                 self._clips[c].append({"at_rail": clips[c]})
             self._periods.append({"ticks": ends - starts})
+            self._revs_fitted += len(kept)
             for period_s in (ends - starts) / float(self.tick_hz):
                 rpm = 60.0 / float(period_s)
                 if (self._steady_ref_rpm is None
@@ -663,10 +731,13 @@ class LiveAnalyzer:
             return {}
         nyquist = self.rate_hz / 2.0
         groups: dict[float, tuple[float, ...]] = {}
+        # waiting out a line means windows of up to MAINS_WINDOW_MAX_S: the comb then has
+        # tones half the spread apart too (MAINS_COMB_STEPS)
+        steps = MAINS_COMB_STEPS if self.wait_out_mains else (-1.0, 0.0, 1.0)
         for multiple in (1, 2):
             base = multiple * self.mains_hz
             spread = multiple * self.hum_spread_hz
-            comb: tuple[float, ...] = (base - spread, base, base + spread) if spread > 0 \
+            comb: tuple[float, ...] = tuple(base + k * spread for k in steps) if spread > 0 \
                 else (base,)
             comb = tuple(f for f in comb if 0 < f < nyquist)
             if comb:
@@ -684,7 +755,10 @@ class LiveAnalyzer:
         true errors 1 Hz from the line, grid 0.04 Hz off, tests/test_dsp_hum_circle.py).
         ``revolutions_needed``: one beat between the 1x and the nearest dropped tone, the
         window that tells them apart (Dirichlet kernel: a tone ``df`` from an order is
-        orthogonal to it over a window of ``1/df``; common practice, no source)."""
+        orthogonal to it over a window of ``1/df``; common practice, no source);
+        ``revolutions_max``: the most worth averaging at this speed (:data:`MAINS_WINDOW_MAX_S`
+        of signal, at most the revolutions held when the meter waits out the line);
+        ``offset_hz``: the 1x from the line itself."""
         out = []
         for base, comb in self._hum_groups().items():
             gone = [f for f in comb if f in dropped_hz]
@@ -698,6 +772,15 @@ class LiveAnalyzer:
                 details["beat_hz"] = round(beat_hz, 4)
                 details["revolutions_needed"] = (math.ceil(mean_hz / beat_hz) if beat_hz > 0
                                                  else None)
+                # the longest window worth waiting for (MAINS_WINDOW_MAX_S), and what the
+                # app's meter can hold
+                most = math.floor(MAINS_WINDOW_MAX_S * mean_hz)
+                if self.wait_out_mains:
+                    most = min(most, self.hold_revs)
+                details["revolutions_max"] = most
+                details["seconds_needed"] = round(1.0 / beat_hz, 1) if beat_hz > 0 else None
+                details["window_max_s"] = MAINS_WINDOW_MAX_S
+                details["offset_hz"] = round(abs(mean_hz - base), 3)
             out.append(Finding(Code.ORDER_ON_MAINS, pickup, details=details,
                                blocking=order == 1 and base in gone))
         return out
@@ -798,11 +881,11 @@ class LiveAnalyzer:
         return [describe(f) for f in self.stream_findings()]
 
     def _stacked(self, channel: int, last: int | None) -> dict[str, np.ndarray]:
-        n = min(last or self.max_revs, self.max_revs)
+        n = min(last or self.max_revs, self.hold_revs)
         return self._rows[channel].last(n)
 
     def _stacked_ticks(self, last: int | None) -> np.ndarray:
-        n = min(last or self.max_revs, self.max_revs)
+        n = min(last or self.max_revs, self.hold_revs)
         if not len(self._periods):
             return np.zeros(0, dtype=np.int64)
         return self._periods.last(n)["ticks"]
@@ -813,7 +896,7 @@ class LiveAnalyzer:
         Parameters
         ----------
         last : int or None, default None
-            Number of revolutions; None (or more than ``max_revs``) gives ``max_revs``.
+            Number of revolutions; None gives ``max_revs`` (at most the revolutions held).
 
         Returns
         -------
@@ -824,7 +907,7 @@ class LiveAnalyzer:
         ----------
         .. [1] Definition of rev/min (common practice, no source).
         """
-        n = min(last or self.max_revs, self.max_revs)
+        n = min(last or self.max_revs, self.hold_revs)
         if not len(self._periods):
             return np.zeros(0)
         return 60.0 * self.tick_hz / self._periods.last(n)["ticks"].astype(float)
@@ -870,8 +953,36 @@ class LiveAnalyzer:
         for c in range(self.channels):
             if not len(self._rows[c]):
                 continue
-            out.append(self._reading(c, last, stream))
+            reading = self._reading(c, last, stream)
+            if self.wait_out_mains and last is None:
+                reading = self._waited_out(c, reading, stream)
+            out.append(reading)
         return out
+
+    def _waited_out(self, c: int, reading: PickupReading,
+                    stream: tuple[Finding, ...]) -> PickupReading:
+        """The reading over the revolutions its 1x needs to be told from a mains line
+        (``order_on_mains`` blocking, ``revolutions_needed`` within ``revolutions_max``),
+        once that many are held; until then ``reading`` with the finding saying how many are
+        (``revolutions_held``). A longer reading is fitted again only after
+        :data:`MAINS_REFIT_FRACTION` of its window is new."""
+        held = len(self._rows[c])
+        window = 0
+        for _ in range(3):  # a longer window may move the speed, so the beat, a little
+            needed = _mains_wait(reading)
+            if needed is None or needed <= window:
+                return reading
+            if held < needed:
+                return _with_held(reading, held)
+            window = needed
+            cached = self._long.get(c)
+            if cached is not None and cached[0] == window and \
+                    self._revs_fitted - cached[1] < max(1, MAINS_REFIT_FRACTION * window):
+                reading = cached[2]
+            else:
+                reading = self._reading(c, window, stream)
+                self._long[c] = (window, self._revs_fitted, reading)
+        return reading
 
     def revolution_vectors(self, c: int, unit: str | None = None
                            ) -> tuple[np.ndarray, np.ndarray, np.ndarray, str]:
@@ -1079,6 +1190,28 @@ class LiveAnalyzer:
         .. [1] Common practice, no source.
         """
         return "g pk" if self.profile(channel).calibrated else "V pk"
+
+
+def _mains_wait(reading: PickupReading) -> int | None:
+    """The revolutions a reading's 1x needs to be told from the mains line that blocks it,
+    when that is worth waiting for (within ``revolutions_max``); else None."""
+    for f in reading.findings:
+        if f.code is Code.ORDER_ON_MAINS and f.blocking:
+            needed = f.details.get("revolutions_needed")
+            most = f.details.get("revolutions_max")
+            if needed is not None and most is not None and needed <= most:
+                return int(needed)
+    return None
+
+
+def _with_held(reading: PickupReading, held: int) -> PickupReading:
+    """``reading`` with its blocking ``order_on_mains`` saying how many revolutions are held
+    (the meter is waiting for the rest)."""
+    findings = tuple(
+        dataclasses.replace(f, details={**f.details, "revolutions_held": held})
+        if f.code is Code.ORDER_ON_MAINS and f.blocking else f for f in reading.findings)
+    return dataclasses.replace(reading, findings=findings,
+                               warnings=tuple(describe(f) for f in findings))
 
 
 def undo_chain(spec: Spectrum, profile: PickupProfile) -> Spectrum:

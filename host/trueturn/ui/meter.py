@@ -113,8 +113,10 @@ class MeterAdapter:
                 self.tachless.feed(msg)
 
     def _new(self) -> LiveAnalyzer:
+        # a 1x next to a mains line waits for the revolutions that tell them apart (up to
+        # dsp.meter.MAINS_WINDOW_MAX_S), not for ever
         a = LiveAnalyzer(self.profiles, mains_hz=self.mains_hz, max_revs=self.max_revs,
-                         limits=METER_LIMITS)
+                         limits=METER_LIMITS, wait_out_mains=True)
         for msg in (self._identity, self._config):
             if msg is not None:
                 a.feed(msg)

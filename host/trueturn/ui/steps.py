@@ -16,6 +16,7 @@ fixed words live in :mod:`trueturn.ui.texts`.
 
 from __future__ import annotations
 
+import dataclasses
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -282,6 +283,9 @@ class RunPanel(ProcedurePanel):
     no_line: reactive[str] = reactive("")  # no tach, and no steady line in the speed band
     tach_faults: reactive[tuple[str, ...]] = reactive(())
     not_ready: reactive[str] = reactive("")
+    #: pickups whose 1x the hum line next to it hides: True while the meter waits it out,
+    #: False when it cannot (trueturn.dsp.findings: order_on_mains)
+    on_hum: reactive[tuple[tuple[str, bool], ...]] = reactive(())
     fittable: reactive[bool] = reactive(False)  # f: the masses just put on, as fitted (#17)
 
     def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
@@ -298,7 +302,13 @@ class RunPanel(ProcedurePanel):
             meter = snap.meter
             sensors = proc.setup.sensors
             self.speed_rpm = meter.speed_rpm or 0.0
-            self.revolutions = proc.setup.revolutions_per_run
+            hum = [f for f in meter.findings
+                   if f.code is Code.ORDER_ON_MAINS and f.blocking and f.pickup in sensors]
+            self.on_hum = tuple((str(f.pickup), "revolutions_held" in f.details) for f in hum)
+            # a 1x next to the hum line is averaged over one beat (dsp.meter)
+            self.revolutions = max([proc.setup.revolutions_per_run] + [
+                int(f.details["revolutions_needed"]) for f in hum
+                if "revolutions_held" in f.details])
             self.readings = tuple((name, meter.readings.get(name)) for name in sensors)
             self.no_tach = proc.setup.mode is Mode.AMPLITUDE_ONLY
             self.tach_silent_s = None if ctx.tach_live or self.no_tach else snap.quiet_s
@@ -307,7 +317,12 @@ class RunPanel(ProcedurePanel):
                                  if f.code is Code.NO_SPEED_LINE), "")
             waiting = [r for _, r in self.readings if r is not None and not proc.settled(r)]
             own = [w for r in waiting for w in meter.pickup_warnings(r.sensor)]
-            self.not_ready = (own[0] if own else texts.NOT_READY_WHY) if waiting else ""
+            # a 1x next to a mains line says first what the reading waits for, on one line
+            # (the pickups' lines above say which are settling)
+            mains = [describe(dataclasses.replace(f, pickup=None), brief=True)
+                     for r in waiting for f in meter.findings
+                     if f.pickup == r.sensor and f.code is Code.ORDER_ON_MAINS and f.blocking]
+            self.not_ready = ((mains or own or [texts.NOT_READY_WHY])[0]) if waiting else ""
 
     def body(self) -> list[str]:
         if self.phase is RunPhase.STOPPED:
@@ -356,6 +371,13 @@ class RunPanel(ProcedurePanel):
                 lines.append(f"  {name}: 1x {amplitude:.3f}{pm} {unit} (95 %), {st}")
                 continue
             ph = f"{r.phase_deg:.0f}°" if r.phase_deg is not None else "—"
+            hum = dict(self.on_hum)
+            if name in hum and not r.steady:  # its circle cannot hold the hum: none shown
+                st = ("[yellow]hum not separated yet[/]" if hum[name] else
+                      "[red]hum not separable[/]")
+                lines.append(f"  {name}: {self.units.vibration(r.amplitude, r.unit)} at {ph}, "
+                             f"{r.revolutions} rev, {st}")
+                continue
             st = "[green]steady[/]" if r.steady else "[yellow]settling[/]"
             lines.append(f"  {name}: {self.units.vibration(r.amplitude, r.unit)} at {ph} "
                          f"±{r.confidence_deg:.0f}°, {r.revolutions} rev, {st}")
@@ -698,6 +720,11 @@ class GuideView(Vertical):
             done = proc.progress(snap.meter.readings)
             if not proc.ready(snap.meter.readings):
                 done = min(done, 0.95)  # full only when every pickup has settled
+            for f in snap.meter.findings:  # a 1x waiting out a mains line: its own count
+                held, needed = f.details.get("revolutions_held"), \
+                    f.details.get("revolutions_needed")
+                if f.code is Code.ORDER_ON_MAINS and held is not None and needed:
+                    done = min(done, 0.95 * held / needed)
             self.progress = done
         else:
             self.progress = None

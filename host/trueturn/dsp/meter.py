@@ -80,26 +80,29 @@ TIMING_BIAS_TICKS = 1.5
 #: The longest window the live meter averages to tell a 1x from a mains hum line next to it
 #: (``order_on_mains`` with ``revolutions_needed``: one beat between them): 6 s of signal, a
 #: beat of at least 1/6 Hz, so the 1x at least about 0.27 Hz from the line (past the hum
-#: comb's +/-0.1 Hz). Why no longer: the hum is fitted as a comb of fixed tones 0.05 Hz
+#: comb's +/-0.1 Hz). Why no longer: the hum is fitted as a comb of fixed tones 1/30 Hz
 #: apart (:data:`MAINS_COMB_STEPS`), which follows a grid a few hundredths of a hertz off
-#: only while its tones drift apart by well under half a cycle over the window (0.3 cycle at
-#: 6 s); beyond that the grid's offset leaks into the 1x past its circle (measured: 0.25 Hz
-#: from the line over 6.7 s, grid 0.02 Hz off, hum three times the 1x: errors 1.3 times the
+#: only while its tones drift apart by well under half a cycle over the window (0.2 cycle at
+#: 6 s); beyond that the grid's offset leaks into the 1x past its circle (measured with five
+#: tones 0.05 Hz apart: 0.25 Hz from the line over 6.7 s, grid 0.02 Hz off, hum three times
+#: the 1x: errors 1.3 times the
 #: circle). And the beat must stay well above the motor's own speed wander within the window
 #: (an induction motor's slip follows its load: about 0.1 % of 3600 rpm is 0.06 Hz; common
 #: practice, from memory). Nearer the line the reading is refused with what the person can
 #: do (another speed, less hum) rather than waited for. The meter then holds at most
-#: :func:`mains_hold_revs` revolutions (722 on 60 Hz mains, about 9.5 kB each per pickup:
-#: 14 MB at two pickups).
+#: :func:`mains_hold_revs` revolutions (722 on 60 Hz mains, about 16.7 kB each per pickup:
+#: 24 MB at two pickups).
 MAINS_WINDOW_MAX_S = 6.0
-#: The hum comb of a meter that waits out a mains line, in steps of its spread: five tones
-#: 0.05 Hz apart at the line (0.1 Hz at twice it). Three tones 0.1 Hz apart follow a grid a
+#: The hum comb of a meter that waits out a mains line, in steps of its spread: seven tones
+#: 1/30 Hz apart at the line (1/15 Hz at twice it). Three tones 0.1 Hz apart follow a grid a
 #: few hundredths of a hertz off over a window of a second or two, not over the several
 #: seconds of a wait: with the grid 0.02 Hz off and a hum three times the 1x, 0.3-0.4 Hz
-#: from the line, the 1x read over one beat was 0.5-1.7 counts off against a circle of 0.1
-#: (tones 0.1 Hz apart keep about a quarter cycle of phase between them over 2.5 s, 0.05 Hz
-#: apart over 5 s); with these five it lay within its circle (tests/test_dsp_mains_wait.py).
-MAINS_COMB_STEPS = (-1.0, -0.5, 0.0, 0.5, 1.0)
+#: from the line, the 1x read over one beat was 0.5-1.7 counts off against a circle of 0.1.
+#: Measured 0.3 Hz from the line, hum three times the 1x, grid 0.03 Hz off: five tones 0.05
+#: Hz apart held the true 1x in 56 of 60 seeds, seven in 59 of 60 (tests/test_dsp_mains_wait.py,
+#: bench/bench_dsp.py); each revolution then keeps about 16.7 kB per pickup (three tones:
+#: 4.4 kB) and a reading over 60 revolutions costs about 6 ms instead of 4 (one BLAS thread).
+MAINS_COMB_STEPS = (-1.0, -2.0 / 3.0, -1.0 / 3.0, 0.0, 1.0 / 3.0, 2.0 / 3.0, 1.0)
 #: a longer reading is fitted again after this fraction of its window is new (the app
 #: refreshes ten times a second; a 1200-revolution fit takes tens of milliseconds)
 MAINS_REFIT_FRACTION = 0.05
@@ -301,7 +304,7 @@ class LiveAnalyzer:
     (``order_on_mains`` blocking, with ``revolutions_needed``), :meth:`readings` averages the
     revolutions it needs instead, up to :data:`MAINS_WINDOW_MAX_S` of signal (the meter then
     holds up to :func:`mains_hold_revs` revolutions); until it has them the finding says how
-    many it holds (``revolutions_held``); its hum comb then has five tones
+    many it holds (``revolutions_held``); its hum comb then has seven tones
     (:data:`MAINS_COMB_STEPS`).
     """
 

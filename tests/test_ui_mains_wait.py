@@ -20,7 +20,15 @@ from pathlib import Path
 
 import yaml
 
-from test_ui_app import SIZE, connect, press, screen_text, through_hands_on_gates, wait_for
+from test_ui_app import (
+    SIZE,
+    connect,
+    press,
+    screen_text,
+    through_hands_on_gates,
+    wait_for,
+    widget_text,
+)
 from trueturn.dsp.findings import Code
 from trueturn.sim.scenario import scenario_dir
 from trueturn.ui.app import AppConfig, TrueturnApp
@@ -104,6 +112,13 @@ def test_a_1x_next_to_the_hum_is_waited_out_and_the_run_kept(tmp_path: Path) -> 
             line = next(line for line in text.splitlines() if WAITING.search(line))
             assert line.startswith("Not ready: 1x") and len(line) <= SIZE[0] - 2, line
             assert "hum not separated yet" in text
+            # the meter view says it too, and shows no circle for a 1x it cannot separate
+            await press(app, pilot, "m")
+            await wait_for(pilot, lambda: "hum not separated" in widget_text(app, "meter-table"),
+                           10)
+            table = widget_text(app, "meter-table")
+            assert WAITING.search(table) and "±" not in table
+            await press(app, pilot, "g")
             source.go_on()
             await wait_for(pilot, lambda: bool(proc.runs), 60)
             run = proc.runs[0]

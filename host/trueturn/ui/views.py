@@ -7,11 +7,14 @@ that changed.
 
 from __future__ import annotations
 
+import dataclasses
+
 from textual.app import ComposeResult
 from textual.containers import Container, Vertical
 from textual.widgets import Sparkline
 
 from trueturn.angles import Rotation
+from trueturn.dsp.findings import Code, describe
 from trueturn.model import Run
 from trueturn.procedure.standstill import StandstillState
 from trueturn.ui.session import BoardIdentity, Snapshot
@@ -84,12 +87,17 @@ class MeterView(Container):
                 lines += [f"[{style}]{tag} {name}[/]", "  waiting for whole revolutions…", ""]
                 continue
             ready = "[green]READY[/]" if r.steady else "[yellow]settling[/]"
+            # its circle cannot hold the hum line next to its 1x: no ± shown
+            on_hum = not r.steady and any(f.code is Code.ORDER_ON_MAINS and f.blocking
+                                          and f.pickup == name for f in meter.findings)
+            if on_hum:
+                ready = "[yellow]hum not separated[/]"
             if r.clipped:  # reads low: the engine leaves it out and gives no pass on it
                 ready += CLIPPED_MARK
             phase = f"{r.phase_deg:5.0f}°" if r.phase_deg is not None else "  —  "
             lines += [f"[{style}]{tag} {name}[/]  {ready}",
                       f"  {shown.vibration(r.amplitude, r.unit, width=8)}  phase {phase} "
-                      f"±{r.confidence_deg:.0f}°",
+                      + ("" if on_hum else f"±{r.confidence_deg:.0f}°"),
                       f"  {r.revolutions} rev averaged", ""]
             if r.phase_deg is not None:
                 amplitude, _ = shown.vibration_value(r.amplitude, r.unit)
@@ -106,8 +114,13 @@ class MeterView(Container):
         lines += [f"link: {c.get('frames_bad', 0)} bad frames, {c.get('frames_lost', 0)} lost,",
                   f"{c.get('samples_lost', 0)} samples lost, board dropped "
                   f"{snap.board_samples_dropped}"]
+        # a 1x the hum line next to it hides says so first (what the reading waits for)
+        hum = next((f for f in meter.findings
+                    if f.code is Code.ORDER_ON_MAINS and f.blocking), None)
         if meter.tach_faults:
             lines += [f"[yellow]Tach: {f}[/]" for f in meter.tach_faults[:2]]
+        elif hum is not None:
+            lines.append(f"[yellow]{describe(dataclasses.replace(hum, pickup=None), brief=True)}[/]")
         elif meter.warnings:
             lines.append(f"[yellow]{meter.warnings[-1]}[/]")
         self.query_one("#meter-table", MarkupText).text = "\n".join(lines)

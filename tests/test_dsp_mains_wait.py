@@ -141,7 +141,11 @@ def test_a_meter_that_does_not_wait_stays_blocked() -> None:
     taken, _ = take(raw, wait=False)
     assert taken.reading is None
     f = mains_finding(taken.before[-1])
+    # (a capture analysed says how long a recording would do: one beat, about 5 s)
     assert f is not None and "at least" in describe(f)
+    seconds = f.details["seconds_needed"]
+    assert seconds == pytest.approx(1.0 / f.details["beat_hz"], abs=0.1)
+    assert f"{seconds:g} s of signal" in describe(f)
 
 
 def test_waiting_says_what_for_in_one_short_line() -> None:

@@ -266,8 +266,10 @@ def _sentence(f: Finding) -> str:
                 "hum there adds to it (a slightly different speed separates them)")
         needed = _n(f, "revolutions_needed", None)
         if needed and f.blocking:
+            seconds = _n(f, "seconds_needed", None)
+            record = f", {seconds:g} s of signal" if seconds is not None else ""
             text += (f"; the reading waits: this window cannot tell the 1x from the hum - average "
-                     f"at least {needed} revolutions (one {_n(f, 'beat_hz'):.2g} Hz beat)")
+                     f"at least {needed} revolutions (one {_n(f, 'beat_hz'):.2g} Hz beat{record})")
         return text
     if c is Code.NO_SPEED_CHANGE:
         return (f"no usable speed change for a sweep: the speed stayed within "

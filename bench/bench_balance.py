@@ -809,6 +809,16 @@ def _model_first_figures() -> list[Row]:
             Row(f"balance [model first]: {words}, said within G {GRADE:g} but the true residual "
                 "was not", f"{100 * false_pass:.1f} %", "<= 1 %", false_pass <= 0.01),
         ]
+        # the two halves apart: a soft mount's coast-down passes its resonances and tells
+        # the supports; a stiff one's 1x rises as speed^4 with little curvature to see
+        for soft, mount in ((True, "soft mounts"), (False, "stiff mounts")):
+            half = [r for k, r in enumerate(results) if bool(k % 2) == soft]
+            rows_out += [
+                Row(f"balance [model first]: runs to reach G {GRADE:g}, {words}, {mount} "
+                    "(median)", f"{np.median([r['runs'] for r in half]):g} runs", "-", None),
+                Row(f"balance [model first]: {words}, {mount}, rotors whose model was trusted",
+                    f"{100 * np.mean([r['trusted'] for r in half]):.0f} %", "-", None),
+            ]
     return rows_out
 
 

@@ -129,10 +129,12 @@ def test_a_balancing_speed_near_a_resonance_is_warned_in_the_guide(tmp_path: Pat
 
     # Steady physics, said explicitly (response=quasi-static): this is about the guide's
     # words for a resonance the sweep resolved. With the rotor's motion in time
-    # (response=transient) the app's kept coast-down of this variant had no near-resonance
-    # finding, though `analyze --sweep` of a recorded one finds the mode at 3002 rpm and
-    # warns: not understood yet, one of the things that keep the transient physics from
-    # being the simulator's default (issue #20).
+    # (response=transient) the app's kept coast-down of this variant reported only the
+    # late peak (2908-2916 rpm, both pickups) and no near-resonance finding in 4 of 5
+    # runs, the mode at 3002 rpm with the finding in the other (the coast-down the app
+    # keeps depends on when the person switches off), though `analyze --sweep` of a
+    # recorded one finds 3002 rpm and warns every time: what keeps the transient physics
+    # from being the simulator's default (issue #20).
     async def scenario() -> None:
         config = AppConfig(f"sim://{path}?realtime=0&motor=off&response=quasi-static",
                            scenario_profile(str(path)), demo=True, workspace=tmp_path / "ws")

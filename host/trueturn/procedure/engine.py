@@ -292,7 +292,17 @@ class BalanceEngine:
         names = list(setup.sensors)
         planes = list(setup.planes)
         j = planes.index(plane)
+        # the prediction is acceleration per gram (m/s^2 pk); the readings are in their own
+        # unit (mm/s rms on most profiles): the sizes are compared in the readings' unit
+        speed = as_found.speed_rpm or setup.speed_rpm
+        factors = [from_acceleration_factor(as_found.readings[n].unit, speed / 60.0)
+                   for n in names]
+        if any(f is None for f in factors):
+            # volts: no sensitivity to predict a change in; the 10 % force rule
+            return size_trial_mass(setup.rotor_mass_kg, plane.radius_mm, setup.speed_rpm)
         prediction = self.prediction(setup)
+        prediction = replace(prediction, magnitude=prediction.magnitude * np.abs(
+            np.array(factors, dtype=complex))[:, None])
         saved = {c.sensor: c.amp_per_g for c in setup.saved_coefficients
                  if isinstance(c, SavedCoefficient) and c.plane == plane.name}
         scale = None

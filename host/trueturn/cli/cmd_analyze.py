@@ -193,7 +193,8 @@ def _analyze_file(name: str, args: argparse.Namespace) -> Analysis:
         result = analyze_capture(reader.chunks(), revs=args.revs, mains_hz=mains,
                                  profiles=_profiles(args, metadata), unit=unit,
                                  identity=stored_identity if isinstance(stored_identity, dict)
-                                 else None, observe=watch, sweep=args.sweep)
+                                 else None, observe=watch, sweep=args.sweep,
+                                 again=reader.chunks)
     _check_protocol(name, watch.identities)
     short = watch.incomplete(metadata)
     if short:

@@ -15,7 +15,7 @@ from typing import Any
 from trueturn.dsp.averaging import SteadinessLimits
 from trueturn.dsp.coast import meter_sweep, sweep_findings
 from trueturn.dsp.findings import Code, Finding, describe, unique
-from trueturn.dsp.meter import LiveAnalyzer, PickupReading
+from trueturn.dsp.meter import LiveAnalyzer, PickupReading, near_mains_line
 from trueturn.dsp.severity import (
     BAND_HZ,
     LOW_SPEED_BAND_HZ,
@@ -262,12 +262,17 @@ def analyze_capture(raw: bytes | Iterable[bytes], revs: int | None = None,
                     limits: SteadinessLimits | None = None,
                     identity: dict[str, Any] | None = None,
                     observe: Callable[[Message | LinkEvent], None] | None = None,
-                    sweep: bool = False) -> Analysis:
+                    sweep: bool = False,
+                    again: Callable[[], Iterable[bytes]] | None = None) -> Analysis:
     """Analyse the received bytes of one capture over its last ``revs`` good revolutions.
 
     Decodes with :class:`trueturn.link.codec.StreamDecoder` and runs the same
-    :class:`~trueturn.dsp.meter.LiveAnalyzer` as the live app, so a capture gives exactly what
-    the meter showed.
+    :class:`~trueturn.dsp.meter.LiveAnalyzer` as the live app. A 1x within
+    :data:`~trueturn.dsp.meter.MAINS_NEAR_HZ` of a hum line is read again as the app's meter
+    waits out a mains line (``wait_out_mains``: the hum as a seven-tone comb): over at most
+    :data:`~trueturn.dsp.meter.MAINS_WINDOW_MAX_S` of signal, the last of the capture
+    (finding ``mains_window``), and, when that window cannot tell the 1x from the line, over
+    the revolutions one beat needs if the capture holds them.
 
     Parameters
     ----------
@@ -293,6 +298,10 @@ def analyze_capture(raw: bytes | Iterable[bytes], revs: int | None = None,
         Also bin every revolution's 1x against speed and look for support resonances
         (:mod:`trueturn.dsp.sweep`); finds ``no_speed_change`` when the speed hardly moved
         and ``near_resonance`` when the balancing speed is close to one.
+    again : callable or None, default None
+        Gives the same bytes once more (a capture file read again from its start), for a
+        1x next to a mains line, read a second time; None: pieces of ``raw`` that are not
+        one bytes object are kept as they come (memory: the whole capture).
 
     Returns
     -------
@@ -305,13 +314,18 @@ def analyze_capture(raw: bytes | Iterable[bytes], revs: int | None = None,
     .. [1] See :mod:`trueturn.dsp.order` (Kay 1993; Fyfe & Munck 1997), :mod:`trueturn.dsp.averaging`
        (Victor & Mast 1991) and :mod:`trueturn.dsp.spectrum` (Welch 1967), all from memory.
     """
-    meter = LiveAnalyzer(profiles=profiles, unit=unit, mains_hz=mains_hz,
-                         max_revs=revs or ALL_REVS, limits=limits, batch_revs=BATCH_REVS)
-    if identity:
-        try:
-            meter.feed(Message("identity", 0, dict(identity)))
-        except (KeyError, TypeError, ValueError):
-            pass  # an incomplete header copy: rely on the bytes
+    def new_meter(wait_out_mains: bool) -> LiveAnalyzer:
+        made = LiveAnalyzer(profiles=profiles, unit=unit, mains_hz=mains_hz,
+                            max_revs=revs or ALL_REVS, limits=limits, batch_revs=BATCH_REVS,
+                            wait_out_mains=wait_out_mains)
+        if identity:
+            try:
+                made.feed(Message("identity", 0, dict(identity)))
+            except (KeyError, TypeError, ValueError):
+                pass  # an incomplete header copy: rely on the bytes
+        return made
+
+    meter = new_meter(False)
     decoder = StreamDecoder()
     if identity:
         decoder.assume_identity(identity)
@@ -319,12 +333,14 @@ def analyze_capture(raw: bytes | Iterable[bytes], revs: int | None = None,
     board = _BoardLosses()
     chunk = 1 << 16
     feed = meter.feed
+    kept: list[bytes] = []  # the pieces, for a second reading next to a mains line
+    whole = b""
     if isinstance(raw, (bytes, bytearray, memoryview)):
         whole = bytes(raw)  # bytes as they are; a bytearray or a view copied once
         pieces: Iterable[bytes] = (whole[start:start + chunk]
                                    for start in range(0, len(whole), chunk))
     else:
-        pieces = raw
+        pieces = raw if again is not None else _keeping(raw, kept)
     for piece in pieces:
         for item in decoder.feed(piece):
             if observe is not None:
@@ -341,6 +357,29 @@ def analyze_capture(raw: bytes | Iterable[bytes], revs: int | None = None,
     meter.end_of_stream()
     board.block_max = meter.block_max
     readings = tuple(meter.readings())
+    if mains_hz and any(r.speed_rpm is not None
+                        and near_mains_line(r.speed_rpm / 60.0, mains_hz) is not None
+                        for r in readings):
+        # a 1x next to a hum line is read again as the app's meter reads it
+        # (wait_out_mains): the hum as a seven-tone comb, over at most MAINS_WINDOW_MAX_S
+        # (the comb follows an off grid only that long; finding mains_window), or over the
+        # revolutions one beat needs when the window cannot tell them apart and the capture
+        # holds them. Elsewhere the readings stay as they were (three tones, every revolution)
+        meter = new_meter(True)
+        redecoder = StreamDecoder()
+        if identity:
+            redecoder.assume_identity(identity)
+        replay: Iterable[bytes] = kept
+        if whole:
+            replay = (whole[start:start + chunk] for start in range(0, len(whole), chunk))
+        elif again is not None:
+            replay = again()
+        for piece in replay:
+            for item in redecoder.feed(piece):
+                if isinstance(item, Message):
+                    meter.feed(item)
+        meter.end_of_stream()
+        readings = tuple(meter.readings())
     found = unique(found)
     c = decoder.counters
     found += link_findings(c.to_json(), board)
@@ -383,6 +422,13 @@ def analyze_capture(raw: bytes | Iterable[bytes], revs: int | None = None,
     severity, unbalance = _judge(meter, full_spectra, readings, speed, swept)
     return Analysis(speed, readings, tuple(spectra), tuple(describe(f) for f in found),
                     c.to_json(), tuple(found), severity, unbalance, swept, tuple(slopes))
+
+
+def _keeping(pieces: Iterable[bytes], kept: list[bytes]) -> Iterable[bytes]:
+    """``pieces`` as they come, each also appended to ``kept``."""
+    for piece in pieces:
+        kept.append(bytes(piece))
+        yield kept[-1]
 
 
 def compare_starts(first: Analysis, second: Analysis) -> Analysis:

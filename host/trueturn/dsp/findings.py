@@ -58,6 +58,7 @@ class Code(str, Enum):
     ORDER_ON_MAINS = "order_on_mains"                # an order too close to a hum frequency
     #                                                  (blocks the 1x when the line is dropped)
     HALF_ORDER = "half_order"                        # a line at 0.5x: averaged over rev pairs
+    MAINS_WINDOW = "mains_window"                    # 1x near a hum line: read over its last 6 s
     NO_SPEED_LINE = "no_speed_line"                  # no tach, and no steady line in the band
     # is it unbalance? (dsp/unbalance.py: evidence per pickup with ``ok``, then one verdict)
     ONE_X_SHARE = "one_x_share"                      # 1x against the broadband velocity
@@ -271,6 +272,12 @@ def _sentence(f: Finding) -> str:
             text += (f"; the reading waits: this window cannot tell the 1x from the hum - average "
                      f"at least {needed} revolutions (one {_n(f, 'beat_hz'):.2g} Hz beat{record})")
         return text
+    if c is Code.MAINS_WINDOW:
+        return (f"{_mains_apart(f)}: read over the last {_n(f, 'revolutions_read')} of "
+                f"{_n(f, 'revolutions_offered')} revolutions ({_n(f, 'window_max_s'):g} s of "
+                "signal), as long as the hum's fit follows the mains grid; the rest is left "
+                "out (a speed at least "
+                f"{_n(f, 'near_hz'):g} Hz from the line averages all of it)")
     if c is Code.NO_SPEED_CHANGE:
         return (f"no usable speed change for a sweep: the speed stayed within "
                 f"{_n(f, 'low_rpm'):.0f}-{_n(f, 'high_rpm'):.0f} rpm (a sweep needs the "

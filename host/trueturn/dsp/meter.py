@@ -106,6 +106,15 @@ MAINS_COMB_STEPS = (-1.0, -2.0 / 3.0, -1.0 / 3.0, 0.0, 1.0 / 3.0, 2.0 / 3.0, 1.0
 #: a longer reading is fitted again after this fraction of its window is new (the app
 #: refreshes ten times a second; a 1200-revolution fit takes tens of milliseconds)
 MAINS_REFIT_FRACTION = 0.05
+#: A 1x nearer than this to a mains hum line is read over at most :data:`MAINS_WINDOW_MAX_S`
+#: of signal by a meter that waits out the line (``trueturn analyze`` reads a whole capture
+#: that way): over a longer window the hum comb no longer follows a grid a few hundredths of
+#: a hertz off and what it leaves leaks into the 1x past its circle. Measured with the seven
+#: tones over 20 s captures, hum three times the 1x, grid 0.03 Hz off: 0.6 Hz from the line
+#: 52 of 60 seeds inside the circle, 0.8 Hz 57, 1 Hz 60 (three tones, 0.4 Hz from the line,
+#: 10 s: 0 of 31); over the last 6 s 97-99 of 100 at 0.3-0.5 Hz
+#: (tests/test_analysis_mains_window.py).
+MAINS_NEAR_HZ = 1.0
 
 
 def mains_hold_revs(mains_hz: float | None, hum_spread_hz: float = 0.1) -> int:
@@ -132,6 +141,32 @@ def mains_hold_revs(mains_hz: float | None, hum_spread_hz: float = 0.1) -> int:
     if not mains_hz:
         return 0
     return math.ceil(MAINS_WINDOW_MAX_S * 2.0 * (mains_hz + hum_spread_hz))
+
+
+def near_mains_line(one_x_hz: float, mains_hz: float | None) -> float | None:
+    """The hum line (the mains frequency or twice it) within :data:`MAINS_NEAR_HZ` of a 1x,
+    the nearer one; None when neither is (or no mains, or no speed).
+
+    Parameters
+    ----------
+    one_x_hz : float
+        The 1x (the shaft's speed), Hz.
+    mains_hz : float or None
+        The line frequency, Hz.
+
+    Returns
+    -------
+    float or None
+        The hum line's nominal frequency, Hz.
+
+    References
+    ----------
+    .. [1] Common practice, no source (see :data:`MAINS_NEAR_HZ`).
+    """
+    if not mains_hz or not math.isfinite(one_x_hz):
+        return None
+    base = min((mains_hz, 2.0 * mains_hz), key=lambda b: abs(one_x_hz - b))
+    return base if abs(one_x_hz - base) < MAINS_NEAR_HZ else None
 
 
 #: the speed counts as steady for the spectrum while every revolution stays within this
@@ -373,6 +408,8 @@ class LiveAnalyzer:
         self._revs_fitted = 0  # every revolution fitted in this stream (the rows slide)
         # per channel: (window, revolutions fitted then, reading) of the last longer reading
         self._long: dict[int, tuple[int, int, PickupReading]] = {}
+        # per channel: the same for a reading shortened next to a hum line (_near_mains)
+        self._near: dict[int, tuple[int, int, PickupReading]] = {}
         # how long the speed has held within STEADY_SPECTRUM_FRACTION of one value: the
         # spectrum looks at no samples from before (a run-up's sweeping 1x is no peak)
         self._steady_ref_rpm: float | None = None
@@ -958,17 +995,47 @@ class LiveAnalyzer:
                 continue
             reading = self._reading(c, last, stream)
             if self.wait_out_mains and last is None:
+                reading = self._near_mains(c, reading, stream)
                 reading = self._waited_out(c, reading, stream)
             out.append(reading)
         return out
+
+    def _near_mains(self, c: int, reading: PickupReading,
+                    stream: tuple[Finding, ...]) -> PickupReading:
+        """A reading longer than :data:`MAINS_WINDOW_MAX_S` whose 1x lies within
+        :data:`MAINS_NEAR_HZ` of a hum line, read again over its last
+        :data:`MAINS_WINDOW_MAX_S` of signal (the hum comb follows an off grid only that
+        long), with a ``mains_window`` note saying so; else ``reading``."""
+        mean_hz = reading.speed_rpm / 60.0 if reading.speed_rpm is not None else math.nan
+        if not math.isfinite(mean_hz) or reading.window_s <= MAINS_WINDOW_MAX_S:
+            return reading
+        base = near_mains_line(mean_hz, self.mains_hz)
+        if base is None:
+            return reading
+        window = math.floor(MAINS_WINDOW_MAX_S * mean_hz)
+        cached = self._near.get(c)
+        if cached is not None and cached[0] == window and \
+                self._revs_fitted - cached[1] < max(1, MAINS_REFIT_FRACTION * window):
+            return cached[2]
+        shorter = self._reading(c, window, stream)
+        note = Finding(Code.MAINS_WINDOW, reading.sensor, details={
+            "order": 1, "hum_hz": base, "offset_hz": round(abs(mean_hz - base), 3),
+            "revolutions_read": shorter.revolutions, "revolutions_offered": reading.revolutions,
+            "window_max_s": MAINS_WINDOW_MAX_S, "near_hz": MAINS_NEAR_HZ})
+        findings = (*shorter.findings, note)
+        shorter = dataclasses.replace(shorter, findings=findings,
+                                      warnings=tuple(describe(f) for f in findings))
+        self._near[c] = (window, self._revs_fitted, shorter)
+        return shorter
 
     def _waited_out(self, c: int, reading: PickupReading,
                     stream: tuple[Finding, ...]) -> PickupReading:
         """The reading over the revolutions its 1x needs to be told from a mains line
         (``order_on_mains`` blocking, ``revolutions_needed`` within ``revolutions_max``),
         once that many are held; until then ``reading`` with the finding saying how many are
-        (``revolutions_held``). A longer reading is fitted again only after
-        :data:`MAINS_REFIT_FRACTION` of its window is new."""
+        (``revolutions_held``), or as it is once the stream has ended (nothing more will
+        come: the finding says how long a recording would do). A longer reading is fitted
+        again only after :data:`MAINS_REFIT_FRACTION` of its window is new."""
         held = len(self._rows[c])
         window = 0
         for _ in range(3):  # a longer window may move the speed, so the beat, a little
@@ -976,7 +1043,7 @@ class LiveAnalyzer:
             if needed is None or needed <= window:
                 return reading
             if held < needed:
-                return _with_held(reading, held)
+                return reading if self._ended else _with_held(reading, held)
             window = needed
             cached = self._long.get(c)
             if cached is not None and cached[0] == window and \

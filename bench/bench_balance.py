@@ -71,7 +71,6 @@ from trueturn.balance.iso21940 import (  # noqa: E402
 )
 from trueturn.balance.model_first import (  # noqa: E402
     CoefficientEstimate,
-    Distrust,
     PickupPlacement,
     RotorLayout,
     SupportResonance,
@@ -715,10 +714,10 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool) -> di
     if not prediction.trusted or refuted:
         estimate = CoefficientEstimate(tuple(names), n_planes)   # the runs alone
         take(estimate, first, zeros)
-        sizing = prediction if not prediction.magnitude_only and not (
-            {Distrust.NEAR_RESONANCE, Distrust.SWEEP_MISFIT} & set(prediction.distrust)) \
-            else predict_influence(layout_of(rotor), placements(rotor), speed,
-                                   {n: sweep[n] for n in names if not sweep[n]} or None)
+        # the trials are sized as the app sizes them (procedure.engine._sized_trial: the
+        # profile's free rigid rotor, magnitude only, no sweep), not from the model it
+        # distrusts nor from the sweep, which the app's trial sizing does not see
+        sizing = predict_influence(layout_of(rotor), placements(rotor), speed)
         scale = None
         for j, p in enumerate(rotor.planes):
             if n_runs + shop.extra_runs >= MAX_RUNS:

@@ -71,6 +71,7 @@ from trueturn.balance.iso21940 import (  # noqa: E402
 )
 from trueturn.balance.model_first import (  # noqa: E402
     CoefficientEstimate,
+    Distrust,
     PickupPlacement,
     RotorLayout,
     SupportResonance,
@@ -506,6 +507,18 @@ def sweep_curve(shop: Shop, rng) -> SweepCurve | None:
     return SweepCurve(speeds, noisy, sigma)
 
 
+def trial_prediction(rotor: RigidRotor, speed: float, sweep: dict[str, list[SupportResonance]]):
+    """The sensitivity the app sizes a trial from (procedure.engine._trial_prediction):
+    the rigid rotor on supports with the coast-down's resonances when it says only a
+    magnitude for a stiff mount or nothing speaks against it, else the free rigid rotor."""
+    pred = predict_influence(layout_of(rotor), placements(rotor), speed, sweep)
+    if pred.magnitude_only and Distrust.STIFFNESS_UNKNOWN in pred.distrust:
+        return pred
+    if not pred.magnitude_only and not pred.distrust:
+        return pred
+    return predict_influence(layout_of(rotor), placements(rotor), speed)
+
+
 def phasors_of(readings: dict) -> dict[str, complex]:
     return {k: phasor(v["amp"], v["phase_deg"]) for k, v in readings.items()}
 
@@ -535,12 +548,9 @@ def one_rotor(rng: np.random.Generator, sizing: str, soft: bool) -> dict:
     as_found_1x = phasors_of(runs[0]["readings"])
     # the coast-down after the as-found run gives each pickup's slope (issue #20 item 2)
     slopes = speed_slopes(rotor, speed, shop.true_masses, rng)
-    # the coast-down after the as-found run gives the sweep (issue #20 item 1); the draw is
-    # kept so the rotors stay the same, but the app's trial sizing does not see the sweep
-    # (procedure.engine._sized_trial: the profile's free rigid rotor, magnitude only), so
-    # neither does the bench's
-    sweep_resonances(rotor, speed, rng)
-    prediction = predict_influence(layout_of(rotor), placements(rotor), speed)
+    # the coast-down after the as-found run gives the sweep (issue #20 item 1), and the
+    # trials are sized with its resonances as the app sizes them
+    prediction = trial_prediction(rotor, speed, sweep_resonances(rotor, speed, rng))
     too_small = 0
     redo_runs = 0
     if sizing == "default":
@@ -715,10 +725,9 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool) -> di
     if not prediction.trusted or refuted:
         estimate = CoefficientEstimate(tuple(names), n_planes)   # the runs alone
         take(estimate, first, zeros)
-        # the trials are sized as the app sizes them (procedure.engine._sized_trial: the
-        # profile's free rigid rotor, magnitude only, no sweep), not from the model it
-        # distrusts nor from the sweep, which the app's trial sizing does not see
-        sizing = predict_influence(layout_of(rotor), placements(rotor), speed)
+        # the trials are sized as the app sizes them: with the sweep's resonances, not
+        # from the model it distrusts
+        sizing = trial_prediction(rotor, speed, sweep)
         scale = None
         for j, p in enumerate(rotor.planes):
             if n_runs + shop.extra_runs >= MAX_RUNS:

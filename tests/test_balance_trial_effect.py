@@ -151,3 +151,35 @@ def test_the_trial_is_the_same_in_every_unit_the_readings_come_in(unit: str) -> 
                 in_m_s2, rel=1e-9)
             sizes.add(round(in_m_s2, 6))
     assert len(sizes) >= 3   # the sizing decided some of them, not only a floor or a cap
+
+
+def test_the_apps_trials_are_sized_with_the_coast_downs_resonances() -> None:
+    # issue #20 item 3: the trial is sized from the predicted sensitivity, with the sweep's
+    # resonances when the job kept a coast-down (bench/bench_balance.py sizes its trials so).
+    # A coast-down that found no resonance below the speed says the mount is stiff, where
+    # the free rotor overstates the sensitivity: the force floor holds; one that found the
+    # grinder's rubber-feet modes gives the rotor on its supports (the same trial whether
+    # the readings are in m/s^2 or mm/s: the unit fix above)
+    from dataclasses import replace
+
+    from trueturn.balance.model_first import SupportResonance
+    from trueturn.procedure.engine import BalanceEngine
+
+    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+    rig.hands_on()
+    rig.run()
+    runs = list(rig.proc.runs)
+    engine = BalanceEngine()
+    setup = rig.setup
+    plane = setup.planes[0]
+    quiet = replace(runs[0], readings={n: replace(r, amplitude=r.amplitude * 0.2,
+                                                  confidence_radius=r.confidence_radius * 0.2)
+                                       for n, r in runs[0].readings.items()})
+    none = engine.trial_mass(setup, plane, [quiet]).mass_g
+    stiff = replace(setup, support_resonances={n: [] for n in setup.sensors})
+    floor = size_trial_mass(setup.rotor_mass_kg, plane.radius_mm, setup.speed_rpm, 0.30).mass_g
+    assert engine.trial_mass(stiff, plane, [quiet]).mass_g >= floor * (1 - 1e-9) > none
+    soft = replace(setup, support_resonances={
+        n: [SupportResonance(823.0, 0.03), SupportResonance(1230.0, 0.03)]
+        for n in setup.sensors})
+    assert engine.trial_mass(soft, plane, [quiet]).mass_g != pytest.approx(none)

@@ -249,6 +249,53 @@ def speed_slopes_from_sweeps(sweeps: Sequence[Sweep], units: Mapping[str, str],
     return ()
 
 
+def _layout_and_placements(setup: ProcedureSetup) -> tuple[RotorLayout, list[PickupPlacement]]:
+    """What the profile says of the rotor and where each pickup sits, as the model takes
+    them (a pickup whose bearing the profile does not name: in order, the first on the
+    first bearing). The profile must give both bearings and every plane's position."""
+    planes = planes_for(setup)
+    layout = RotorLayout(setup.rotor_mass_kg,
+                         (setup.bearings[0].axial_mm, setup.bearings[1].axial_mm),
+                         tuple(float(p.axial_mm or 0.0) for p in planes),
+                         tuple(p.radius_mm for p in planes), setup.cg_axial_mm,
+                         setup.transverse_inertia_kg_m2, setup.polar_inertia_kg_m2)
+    angles = setup.pickup_angles_deg
+    on = setup.pickup_bearings
+    placements = []
+    for i, n in enumerate(setup.sensors):
+        said = on[i] if i < len(on) else None
+        placements.append(PickupPlacement.from_profile(
+            n, said if said is not None else min(i, 1), angles[i] if i < len(angles) else None))
+    return layout, placements
+
+
+def resonances_of_sweeps(sweeps: Sequence[Sweep], sensors: Sequence[str],
+                         speed_rpm: float) -> dict[str, list[SupportResonance]] | None:
+    """The support resonances below ``speed_rpm`` from the first of ``sweeps`` that is a
+    sweep (the job's as-found coast-down first, :func:`trueturn.jobs.sweeps.slope_sweeps`),
+    as :func:`resonances_from_sweep` takes them; None when none is.
+
+    Parameters
+    ----------
+    sweeps : sequence of Sweep
+    sensors : sequence of str
+    speed_rpm : float
+
+    Returns
+    -------
+    dict of str to list of SupportResonance, or None
+
+    References
+    ----------
+    .. [1] :func:`resonances_from_sweep` (ours).
+    """
+    for sweep in sweeps:
+        if sweep.is_sweep:
+            return resonances_from_sweep(SweepOutcome("coastdown", sweep, None, ()), sensors,
+                                         speed_rpm)
+    return None
+
+
 class BalanceEngine:
     """The :class:`trueturn.procedure.guide.Engine` backed by ``trueturn.balance``."""
 
@@ -267,6 +314,24 @@ class BalanceEngine:
             return predict_influence(layout, pickups, setup.speed_rpm)
         return free_rotor_prediction(setup.sensors, setup.rotor_mass_kg,
                                      [p.radius_mm for p in planes], setup.speed_rpm)
+
+    def _trial_prediction(self, setup: ProcedureSetup) -> PredictedInfluence:
+        """The sensitivity a trial is sized from: with the as-found coast-down's support
+        resonances (``setup.support_resonances``) the rigid rotor on its supports, kept
+        when it says only a magnitude (a stiff mount: no resonance below the speed, the
+        force floor applies) or when nothing speaks against it; else (near a resonance, no
+        pickup angle for a phase, no sweep) the free rigid rotor of :meth:`prediction`."""
+        res = setup.support_resonances
+        planes = planes_for(setup)
+        if (isinstance(res, dict) and len(setup.bearings) == 2
+                and all(p.axial_mm is not None for p in planes)):
+            layout, placements = _layout_and_placements(setup)
+            pred = predict_influence(layout, placements, setup.speed_rpm, res)
+            if pred.magnitude_only and Distrust.STIFFNESS_UNKNOWN in pred.distrust:
+                return pred
+            if not pred.magnitude_only and not pred.distrust:
+                return pred
+        return self.prediction(setup)
 
     def trial_mass(self, setup: ProcedureSetup, plane: Plane,
                    runs: Sequence[Run] = ()) -> TrialSuggestion:
@@ -300,7 +365,7 @@ class BalanceEngine:
         if any(f is None for f in factors):
             # volts: no sensitivity to predict a change in; the 10 % force rule
             return size_trial_mass(setup.rotor_mass_kg, plane.radius_mm, setup.speed_rpm)
-        prediction = self.prediction(setup)
+        prediction = self._trial_prediction(setup)
         prediction = replace(prediction, magnitude=prediction.magnitude * np.abs(
             np.array(factors, dtype=complex))[:, None])
         saved = {c.sensor: c.amp_per_g for c in setup.saved_coefficients
@@ -539,19 +604,7 @@ class BalanceEngine:
         if len(setup.bearings) != 2 or any(p.axial_mm is None for p in planes):
             return ModelAnswer(False, (Distrust.NO_BEARINGS.value,))
         factor = np.array(factors, dtype=complex)
-        layout = RotorLayout(setup.rotor_mass_kg,
-                             (setup.bearings[0].axial_mm, setup.bearings[1].axial_mm),
-                             tuple(float(p.axial_mm or 0.0) for p in planes),
-                             tuple(p.radius_mm for p in planes), setup.cg_axial_mm,
-                             setup.transverse_inertia_kg_m2, setup.polar_inertia_kg_m2)
-        angles = setup.pickup_angles_deg
-        on = setup.pickup_bearings
-        placements = []
-        for i, n in enumerate(names):
-            said = on[i] if i < len(on) else None
-            placements.append(PickupPlacement.from_profile(
-                n, said if said is not None else min(i, 1),
-                angles[i] if i < len(angles) else None))
+        layout, placements = _layout_and_placements(setup)
         sweep: dict[str, list[SupportResonance]] | None = None
         curve: SweepCurve | None = None
         if isinstance(resonances, SweepEvidence):

@@ -185,6 +185,10 @@ class ProcedureSetup:
     #: speed_slopes_from_sweeps`): runs a fraction of a percent apart in speed are then
     #: compared at one speed; empty: not measured well enough (the speed error estimate)
     speed_slopes: tuple[object, ...] = ()
+    #: the support resonances the as-found coast-down found, per pickup (the engine's
+    #: type, opaque here; :func:`trueturn.procedure.engine.resonances_of_sweeps`): the
+    #: trials are sized with them; None: no sweep kept
+    support_resonances: object = None
 
 
 @dataclass(frozen=True)
@@ -1106,6 +1110,11 @@ class Procedure:
         well enough): every later solve and verdict compares the runs at one speed with
         it (the engine's type, opaque here)."""
         self.setup = replace(self.setup, speed_slopes=tuple(slopes))
+
+    def set_support_resonances(self, resonances: object) -> None:
+        """Take the support resonances the job's sweeps found (the engine's type; None:
+        none kept): later trials are sized with them."""
+        self.setup = replace(self.setup, support_resonances=resonances)
 
     def repeat_run(self) -> None:
         """Drop the last run and measure it again (after a problem with its readings)."""

@@ -65,6 +65,7 @@ from trueturn.ui.resume import (
     as_found_condition,
     find_open_job,
     job_speed_slopes,
+    job_support_resonances,
     refuse_changed_profile,
     restore_procedure,
     rotor_lines,
@@ -1023,6 +1024,7 @@ class TrueturnApp(App):
                 # the runs are compared at one speed with the slopes the kept sweeps
                 # measured (a continued job takes the very same: ui.resume)
                 proc.set_speed_slopes(job_speed_slopes(job))
+                proc.set_support_resonances(job_support_resonances(job))
 
     def _finish_sweep(self, recording: SweepRecorder | None, run_number: int | None,
                       label: str,

@@ -34,7 +34,7 @@ from trueturn.jobs.store import Workspace
 from trueturn.jobs.sweeps import slope_sweeps
 from trueturn.model import MassKind, PlacedMass, Plane, Run, RunKind
 from trueturn.positions import index_of, number_of, position_text
-from trueturn.procedure.engine import speed_slopes_from_sweeps
+from trueturn.procedure.engine import resonances_of_sweeps, speed_slopes_from_sweeps
 from trueturn.procedure.guide import Engine, KeptRun, Mode, ModelAnswer, Procedure, planes_for
 from trueturn.procedure.standstill import StandstillWatch
 from trueturn.schema import to_data
@@ -221,6 +221,19 @@ def job_speed_slopes(job: rec.JobRecord) -> tuple[object, ...]:
     return speed_slopes_from_sweeps(slope_sweeps(job), units, latest.speed_rpm)
 
 
+def job_support_resonances(job: rec.JobRecord) -> object:
+    """The support resonances the job's kept sweeps found (the as-found run's coast-down
+    first), below the as-found run's speed, as the trials are sized with them
+    (:func:`trueturn.procedure.engine.resonances_of_sweeps`); None before an as-found run
+    or without a sweep. The live app and a continued job take them alike."""
+    as_found = [r for r in job.runs if r.kind == RunKind.AS_FOUND]
+    if not as_found:
+        return None
+    latest = as_found[-1]
+    return resonances_of_sweeps(slope_sweeps(job), [r.sensor for r in latest.readings],
+                                latest.speed_rpm)
+
+
 def restore_procedure(job: rec.JobRecord, engine: Engine, watch: StandstillWatch | None,
                       standstill_s: float = 3.0, revolutions_per_run: int = 30) -> Procedure:
     """The procedure of an open job, at the step after its last run (one-line UserError
@@ -241,7 +254,8 @@ def restore_procedure(job: rec.JobRecord, engine: Engine, watch: StandstillWatch
     try:
         setup = setup_from_profile(job.machine, mode, standstill_s, revolutions_per_run,
                                    job.influence if mode is Mode.SAVED_TRIM else None)
-        setup = replace(setup, speed_slopes=job_speed_slopes(job))  # as the live app had
+        setup = replace(setup, speed_slopes=job_speed_slopes(job),   # as the live app had
+                        support_resonances=job_support_resonances(job))
         if job.model is not None and job.model.trusted and job.model.planes != [
                 p.name for p in planes_for(setup)]:
             raise ValueError(f"its model covers planes {', '.join(job.model.planes)}, not the "

@@ -34,7 +34,7 @@ from trueturn.procedure.engine import BalanceEngine, speed_slopes_from_sweeps
 from trueturn.procedure.guide import Mode, ShowCorrection
 from trueturn.procedure.standstill import StandstillWatch
 from trueturn.ui.jobfile import JobKeeper
-from trueturn.ui.resume import job_speed_slopes, restore_procedure
+from trueturn.ui.resume import job_speed_slopes, job_support_resonances, restore_procedure
 
 #: as found at speed, the trials 0.5 % fast and 0.5 % slow (the issue's wander between runs)
 APART = (1.0, 1.005, 0.995)
@@ -101,6 +101,7 @@ def to_correction(rig: SpeedRig, keeper: JobKeeper | None = None,
         keeper.sweep(1, sweep)  # what ui.app keep_sweep does at the coast-down's end
         assert keeper.job is not None
         rig.proc.set_speed_slopes(job_speed_slopes(keeper.job))
+        rig.proc.set_support_resonances(job_support_resonances(keeper.job))  # as keep_sweep
     for _ in range(4):
         rig.hands_on()
         rig.run()
@@ -177,6 +178,7 @@ def test_a_continued_job_compares_the_runs_with_the_same_slopes(
     keeper.sweep(1, coast_down)
     assert keeper.job is not None
     rig.proc.set_speed_slopes(job_speed_slopes(keeper.job))
+    rig.proc.set_support_resonances(job_support_resonances(keeper.job))
     rig.hands_on()   # the first trial on; then the app closes
     assert keeper.path is not None
     job = keeper.workspace.resume_job(keeper.path)

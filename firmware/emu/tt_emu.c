@@ -40,6 +40,9 @@
  * (pulse 1/36 rev wide); v(t) = offset + sum amp cos(k theta - ph) + sum amp cos(2 pi f t - ph)
  * + gaussian noise; 10-bit counts of the reference, clamped. t = 0 is the instant Timer1
  * starts counting (tick 0).
+ * The noise and the tach jitter are keyed by the sample's instant and the edge's number (see
+ * gauss_at), so the signal is one function of simulated time for a given seed: how fast the
+ * host runs moves when its commands arrive, never what the board sees at a given cycle.
  *
  * simavr 1.6 leaves out what the firmware relies on, so the harness supplies it:
  *  - ADC auto-trigger from Timer1 compare-match B (simavr implements only free running):
@@ -208,20 +211,35 @@ static void on_sigterm(int sig)
 
 /* ---------------- small helpers ---------------- */
 
-static uint64_t rng_next(void)
+/* Random numbers as a function of what they belong to, never of the order they are drawn in:
+ * each is a hash of (seed, stream, counter), the counter being the tach edge's number or the
+ * pickup sample's CPU cycle. A host's commands reach the board at a simulated time that follows
+ * its wall clock (stdin is read every POLL_CYCLES, even without --realtime), so when the stream
+ * starts depends on how loaded the host machine is; drawn from one sequence, the ADC noise of
+ * the conversions before an edge would then change that edge's jitter (a loaded host moved the
+ * median tach period by more than a tick). Keyed like this, every tach edge lands at the same
+ * cycle and every sample instant gets the same noise whatever the host's speed. */
+enum { STREAM_TACH_JITTER = 0, STREAM_NOISE_CH0 = 1 /* + channel */ };
+
+#define GOLDEN_GAMMA 0x9E3779B97F4A7C15ULL
+
+static uint64_t mix64(uint64_t z)
 {
-    /* xorshift64* (Vigna, "An experimental exploration of Marsaglia's xorshift generators") */
-    E.seed ^= E.seed >> 12;
-    E.seed ^= E.seed << 25;
-    E.seed ^= E.seed >> 27;
-    return E.seed * 0x2545F4914F6CDD1DULL;
+    /* the SplitMix64 output function (Steele, Lea, Flood, "Fast splittable pseudorandom number
+     * generators", OOPSLA 2014), a bijective 64-bit mixer */
+    z = (z ^ (z >> 30)) * 0xBF58476D1CE4E5B9ULL;
+    z = (z ^ (z >> 27)) * 0x94D049BB133111EBULL;
+    return z ^ (z >> 31);
 }
 
-static double rng_gauss(void)
+static double gauss_at(unsigned stream, uint64_t counter)
 {
-    /* Box-Muller */
-    double u1 = ((double)(rng_next() >> 11) + 1.0) / 9007199254740993.0;
-    double u2 = (double)(rng_next() >> 11) / 9007199254740992.0;
+    /* Box-Muller on two uniforms from the counter's two SplitMix64 outputs of the stream's key */
+    uint64_t key = mix64(E.seed + GOLDEN_GAMMA * (uint64_t)(stream + 1u));
+    uint64_t a = mix64(key + GOLDEN_GAMMA * (2u * counter + 1u));
+    uint64_t b = mix64(key + GOLDEN_GAMMA * (2u * counter + 2u));
+    double u1 = ((double)(a >> 11) + 1.0) / 9007199254740993.0;
+    double u2 = (double)(b >> 11) / 9007199254740992.0;
     return sqrt(-2.0 * log(u1)) * cos(2.0 * M_PI * u2);
 }
 
@@ -276,7 +294,9 @@ static double reference_v(void)
     }
 }
 
-static uint32_t channel_millivolts(int c, double t)
+/* The pickup voltage of channel c at t seconds (sample_cycle: the same instant in CPU cycles
+ * since t = 0, the key of its noise) as the 10-bit count it converts to. */
+static uint32_t channel_millivolts(int c, double t, uint64_t sample_cycle)
 {
     const struct channel *ch = &E.ch[c];
     double v = ch->offset_v, theta = theta_at(t), counts, ref_v = reference_v();
@@ -286,7 +306,7 @@ static uint32_t channel_millivolts(int c, double t)
         v += ch->orders[i].amplitude_v * cos(ch->orders[i].key * theta - ch->orders[i].phase_rad);
     for (i = 0; i < ch->n_tones; i++)
         v += ch->tones[i].amplitude_v * cos(2.0 * M_PI * ch->tones[i].key * t - ch->tones[i].phase_rad);
-    if (ch->noise_rms_v > 0.0) v += ch->noise_rms_v * rng_gauss();
+    if (ch->noise_rms_v > 0.0) v += ch->noise_rms_v * gauss_at(STREAM_NOISE_CH0 + (unsigned)c, sample_cycle);
     /* ADC = Vin * 1024 / Vref (ATmega328P datasheet, "ADC Conversion Result"), clamped */
     counts = floor(v * 1024.0 / ref_v);
     if (counts < 0.0) counts = 0.0;
@@ -396,7 +416,8 @@ static void schedule_tach(void)
 {
     double period_s = 60.0 / E.speed_rpm;
     double edge_s = E.first_edge_s + (double)E.tach_n * period_s;
-    if (E.jitter_rms_s > 0.0) edge_s += E.jitter_rms_s * rng_gauss();
+    if (E.jitter_rms_s > 0.0)
+        edge_s += E.jitter_rms_s * gauss_at(STREAM_TACH_JITTER, (uint64_t)E.tach_n);
     if (edge_s < 0.0) edge_s = 0.0;
     E.tach_edge_cycle = (double)E.t0_cycle + edge_s * F_CPU_HZ;
     if (E.tach_edge_cycle < (double)E.avr->cycle + 1.0) E.tach_edge_cycle = (double)E.avr->cycle + 1.0;
@@ -516,6 +537,7 @@ static void adc_conversion_started(struct avr_irq_t *irq, uint32_t value, void *
         uint32_t v;
     } e;
     double t;
+    uint64_t sample_cycle;
     int src;
     (void)irq;
     (void)param;
@@ -525,8 +547,9 @@ static void adc_conversion_started(struct avr_irq_t *irq, uint32_t value, void *
     E.conversions_started++;
     if (e.mux.kind != ADC_MUX_SINGLE) return; /* the bandgap: simavr's own 1100 mV */
     if (src < 0 || src >= E.n_channels) return;
-    t = ((double)(E.avr->cycle - E.t0_cycle) + APERTURE_CYCLES) / F_CPU_HZ;
-    avr_raise_irq(E.adc_irq + ADC_IRQ_ADC0 + src, channel_millivolts(src, t));
+    sample_cycle = E.avr->cycle - E.t0_cycle + APERTURE_CYCLES;
+    t = (double)sample_cycle / F_CPU_HZ;
+    avr_raise_irq(E.adc_irq + ADC_IRQ_ADC0 + src, channel_millivolts(src, t, sample_cycle));
 }
 
 /* ---------------- fault injection: interrupts held off ---------------- */

@@ -74,6 +74,13 @@ class Code(str, Enum):
     # sweeps (dsp/sweep.py: ``analyze --sweep``)
     NO_SPEED_CHANGE = "no_speed_change"              # asked for a sweep, the speed hardly moved
     NEAR_RESONANCE = "near_resonance"                # balancing speed close to a resonance
+    # bump tests at standstill (dsp/bump.py: ``analyze --bump``)
+    NO_TAPS = "no_taps"                              # no tap found in the recording
+    TAP_CLIPPED = "tap_clipped"                      # a tap drove a pickup to an ADC rail
+    SINGLE_TAP = "single_tap"                        # modes from one tap alone
+    MODE_UNCONFIRMED = "mode_unconfirmed"            # a mode only one of several taps showed
+    STEADY_LINE = "steady_line"                      # a line that does not decay: running?
+    SPEED_NEAR_MODE = "speed_near_mode"              # running speed within 15 % of a mode
 
 
 # The codes that are about the tach sensor itself.
@@ -293,6 +300,28 @@ def _sentence(f: Finding) -> str:
                 "with speed, so readings taken a little apart in speed disagree and the "
                 "correction is touchy; balance at a speed further away if the machine "
                 "allows, keep every run at the same speed, and expect trim runs")
+    if c is Code.NO_TAPS:
+        return ("no tap found: strike the bearing housing (never the rotor) with a soft "
+                "mallet a few times, about 2 s apart, while recording the stopped machine")
+    if c is Code.TAP_CLIPPED:
+        return (f"tap {_n(f, 'tap')} at {_n(f, 'time_s'):.2f} s drove the pickup to the ADC "
+                f"limit ({n} samples); its decay is fitted after the last one - strike softer")
+    if c is Code.SINGLE_TAP:
+        return ("the modes come from one tap alone: their uncertainty holds the noise only, "
+                "not how taps differ; tap a few more times for a check")
+    if c is Code.MODE_UNCONFIRMED:
+        return (f"a ringing at {_n(f, 'frequency_hz'):.1f} Hz was seen in one of "
+                f"{_n(f, 'taps_usable')} taps only; not reported as a mode")
+    if c is Code.STEADY_LINE:
+        return (f"a steady line at {_n(f, 'frequency_hz'):.1f} Hz "
+                f"({_n(f, 'speed_rpm'):.0f} rpm) that does not decay after the taps: is the "
+                "machine running? A bump test needs it stopped and locked out")
+    if c is Code.SPEED_NEAR_MODE:
+        return (f"the running speed {_n(f, 'speed_rpm'):.0f} rpm is within "
+                f"{100 * _n(f, 'margin'):.0f} % of a natural frequency at "
+                f"{_n(f, 'frequency_hz'):.1f} Hz ({_n(f, 'mode_rpm'):.0f} rpm, damping "
+                f"{100 * _n(f, 'damping_ratio'):.1f} %): running there rings the structure; "
+                "keep the speed further away if the machine allows, or ask the manufacturer")
     if c is Code.NO_SPEED_LINE:
         return (f"no steady line between {_n(f, 'low_rpm'):.0f} and {_n(f, 'high_rpm'):.0f} rpm "
                 "in the last 4 s: without a tach the speed comes from the spectrum, so run the "

@@ -97,7 +97,7 @@ def test_run_options_in_the_url() -> None:
         assert port.rig.standstill
     finally:
         port.close()
-    assert set(RUNS) == {"steady", "coastdown", "runup"}
+    assert set(RUNS) == {"steady", "coastdown", "runup", "bump"}
     for bad, needle in (("run=sideways", "run must be one of"),
                         ("run=coastdown&motor=off", "not both")):
         with pytest.raises(Exception, match=needle):

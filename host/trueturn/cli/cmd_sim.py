@@ -94,6 +94,12 @@ def run_describe(args: argparse.Namespace) -> int:
     times = run_times(sc, "coastdown")
     print(f"coast-down: record {times['record_s']:g} s from \"sim://{sc.name}?run=coastdown\" "
           f"(motor off after {times['switch_s']:g} s)")
+    bump = run_times(sc, "bump")
+    print("natural frequencies at standstill (damping): "
+          + ", ".join(f"{m.natural_frequency_hz:.1f} Hz ({100 * m.damping_ratio:.1f} %)"
+                      for m in sc.rotor.modes_at_rest()))
+    print(f"bump test: record {bump['record_s']:g} s from \"sim://{sc.name}?run=bump\" "
+          f"(a tap every {bump['tap_period_s']:g} s from {bump['first_tap_s']:g} s)")
     print("exact steady 1x (as-found unbalance, rising tach edge):")
     for e in exact_1x(sc, args.rpm):
         print(f"  ch{e.channel} {e.pickup}: {e.amplitude_counts:.2f} counts = {e.amplitude_v:.4f} V "

@@ -18,8 +18,9 @@ Method
   merged in time.
 * **Free decay.** After a tap the fit starts ``CONTACT_GUARD_S`` past the tap's peak (the
   mallet's contact; a soft mallet touches for a few milliseconds) and past the last sample
-  at an ADC rail (finding ``tap_clipped``), and ends before the next tap, where the signal
-  has sunk back into the background, or ``MAX_DECAY_S`` after the tap.
+  at an ADC rail (finding ``tap_clipped``), and ends before the next tap (or a gap in the
+  samples), at most ``MAX_DECAY_S`` after the tap: a lightly damped mode rings on long
+  after a strong, well damped one has gone.
 * **Modes of one decay.** The window is low-passed and decimated (``scipy.signal.decimate``,
   a zero-phase FIR: a linear filter keeps the poles of a sum of exponentials; its edge
   transient is cut off) to at most ``FIT_SAMPLES`` samples while the highest line that
@@ -66,7 +67,7 @@ manufacturer's instructions come first (see the README).
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
+from collections.abc import Iterable, Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -74,7 +75,10 @@ import numpy as np
 from scipy import linalg, optimize, signal
 
 from trueturn.dsp.findings import Code, Finding
+from trueturn.dsp.meter import DEFAULT_ADC_BITS, DEFAULT_REFERENCE_MV, DEFAULT_TICK_HZ
 from trueturn.dsp.motion import RING_FADE, free_vibration, motion_spectrum, noise_floor_g_rms
+from trueturn.dsp.units import PickupProfile
+from trueturn.link.codec import Message, StreamDecoder
 
 #: a tap rises above TAP_FACTOR x the background RMS ...
 TAP_FACTOR = 10.0
@@ -94,16 +98,19 @@ CONTACT_GUARD_S = 0.005
 #: the longest and shortest decay fitted, seconds
 MAX_DECAY_S = 2.0
 MIN_DECAY_S = 0.1
-#: the decay's end: where its RMS over BLOCK_S has sunk to END_FACTOR x the background
-END_FACTOR = 2.0
 #: at most this many samples per fit (after decimation); the matrix pencil's SVD is
 #: O(N^3) and the extra samples of a long window add little once the decay is gone
 FIT_SAMPLES = 600
 #: the matrix pencil looks at the first PENCIL_SAMPLES of them: its poles only start the
-#: least-squares fit, which uses all (the SVD costs O(N^3))
-PENCIL_SAMPLES = 300
+#: least-squares fit, which uses all (the SVD costs O(N^3), and a multithreaded BLAS on a
+#: busy laptop turns a 200 x 101 SVD from milliseconds into a second; 100 x 51 stays fast)
+PENCIL_SAMPLES = 150
 #: the least-squares fit stops after this many evaluations per parameter
-FIT_EVALUATIONS = 40
+FIT_EVALUATIONS = 20
+#: the short window's poles add a frequency only this far from every long window's pole
+MERGE_FRACTION = 0.1
+#: a starting pole whose amplitude is under KEEP_SNR x the noise is left out of the fit
+KEEP_SNR = 2.0
 #: the decimating low-pass FIR's order per step of decimation (see _fit_window)
 FIR_ORDER_PER_STEP = 8
 #: a decimated window keeps the highest line that stands out below this share of its rate
@@ -362,7 +369,7 @@ def matrix_pencil(y: np.ndarray, noise_rms: float, max_order: int = MAX_ORDER) -
     if pencil < 2:
         return np.zeros(0, dtype=complex)
     hankel = linalg.hankel(y[: n - pencil], y[n - pencil - 1:])
-    _, values, vh = linalg.svd(hankel, full_matrices=False)
+    _, values, vh = linalg.svd(hankel, full_matrices=False, lapack_driver="gesvd")
     edge = ORDER_MARGIN * noise_rms * (math.sqrt(n - pencil) + math.sqrt(pencil + 1))
     order = min(int(np.count_nonzero(values > edge)), max_order, pencil - 1)
     if order == 0:
@@ -377,7 +384,7 @@ def _basis(params: np.ndarray, kinds: Sequence[bool], t: np.ndarray) -> np.ndarr
     cols = []
     i = 0
     for oscillating in kinds:
-        decay = np.exp(-params[i] * t)
+        decay = np.exp(np.clip(-params[i] * t, -700.0, 50.0))  # a wandering trial stays finite
         if oscillating:
             cols += [decay * np.cos(params[i + 1] * t), decay * np.sin(params[i + 1] * t)]
             i += 2
@@ -559,12 +566,11 @@ def _combine(pickup: str, group: list[tuple[int, PoleFit]]) -> BumpMode:
 
 
 def _windows(onsets: list[int], x: np.ndarray, rail: np.ndarray | None, rate_hz: float,
-             background: float) -> list[tuple[int, int, int]]:
+             lost: np.ndarray | None = None) -> list[tuple[int, int, int]]:
     """(start, end, clipped samples) of each tap's free decay in one pickup."""
     out = []
     guard = int(round(CONTACT_GUARD_S * rate_hz))
     search = max(1, int(round(PEAK_SEARCH_S * rate_hz)))
-    block = max(4, int(round(BLOCK_S * rate_hz)))
     longest = int(round(MAX_DECAY_S * rate_hz))
     dev = np.abs(x)
     for k, onset in enumerate(onsets):
@@ -577,19 +583,18 @@ def _windows(onsets: list[int], x: np.ndarray, rail: np.ndarray | None, rate_hz:
             clipped = int(hits.size)
             if clipped:
                 start = max(start, onset + int(hits[-1]) + 1 + guard)
-        # the end: the last block still louder than END_FACTOR x the background (+ a block)
-        if stop - start > block:
-            rms = _block_rms(x[start:stop], block)
-            loud = np.flatnonzero(rms > END_FACTOR * background)
-            if loud.size:
-                stop = min(stop, start + (int(loud[-1]) + 2) * block)
+        if lost is not None:
+            gaps = np.flatnonzero(lost[start:stop])
+            if gaps.size:
+                stop = start + int(gaps[0])
         out.append((start, stop, clipped))
     return out
 
 
 def bump_test(values: Sequence[np.ndarray], rate_hz: float, names: Sequence[str],
               mains_hz: float | None = None, units_per_count: Sequence[float] | None = None,
-              at_rail: Sequence[np.ndarray] | None = None) -> BumpResult:
+              at_rail: Sequence[np.ndarray] | None = None,
+              lost: np.ndarray | None = None) -> BumpResult:
     """Natural frequencies and damping ratios from a recording of taps at standstill.
 
     Parameters
@@ -607,6 +612,9 @@ def bump_test(values: Sequence[np.ndarray], rate_hz: float, names: Sequence[str]
         its quantisation and the sensor's noise (:func:`noise_floor_g_rms`).
     at_rail : sequence of numpy.ndarray or None, default None
         Per pickup, True where a sample sits at an ADC limit (finding ``tap_clipped``).
+    lost : numpy.ndarray or None, default None
+        True where the samples were lost on the link (filled in by the caller): a decay
+        window stops before the first.
 
     Returns
     -------
@@ -656,14 +664,11 @@ def bump_test(values: Sequence[np.ndarray], rate_hz: float, names: Sequence[str]
     modes: list[BumpMode] = []
     single = False
     for c, (name, x) in enumerate(zip(names, centred, strict=False)):
-        block = max(4, int(round(BLOCK_S * rate_hz)))
-        background = max(float(np.percentile(_block_rms(x, block), BACKGROUND_PERCENTILE)),
-                         floors[c])
         estimates: list[tuple[int, PoleFit]] = []
         lines: list[tuple[int, PoleFit]] = []
         usable = 0
         for k, (start, stop, clipped) in enumerate(
-                _windows(onsets, x, rails[c] if rails else None, rate_hz, background)):
+                _windows(onsets, x, rails[c] if rails else None, rate_hz, lost)):
             if clipped:
                 clipped_by_tap[k].append(name)
                 findings.append(Finding(Code.TAP_CLIPPED, pickup=name, count=clipped,
@@ -716,34 +721,69 @@ def _continuous_poles(z: np.ndarray, dt_s: float) -> list[complex]:
 
 
 def _merge_poles(first: list[complex], more: list[complex]) -> list[complex]:
-    """``first`` and every pole of ``more`` not within MATCH_FRACTION of one of them."""
+    """``first`` and every oscillating pole of ``more`` with no pole of ``first`` within
+    MERGE_FRACTION of its frequency (a short window's poles are coarse: they only add
+    what the long window missed)."""
     out = list(first)
     for s in more:
-        if all(abs(s - r) > MATCH_FRACTION * max(abs(s), abs(r)) for r in out):
+        if s.imag > 0 and all(abs(s.imag - r.imag) > MERGE_FRACTION * s.imag for r in out):
             out.append(s)
     return out
 
 
-def _fit_window(window: np.ndarray, rate_hz: float, noise_rms: float) -> list[PoleFit]:
-    """One decay window, decimated as the Method says: starting poles by the matrix pencil
-    over the decimated window's first PENCIL_SAMPLES and over their first quarter (a mode that dies within a
-    few tens of milliseconds is lost among the noise of a long window's singular values),
-    then the least-squares fit (:func:`fit_decay`)."""
-    q = _decimation(window, rate_hz)
+def _clear_poles(y: np.ndarray, dt_s: float, poles: list[complex], noise_rms: float
+                 ) -> list[complex]:
+    """The poles whose linear least-squares amplitude at the start reaches KEEP_SNR x the
+    noise (the rest fit noise, and slow the nonlinear fit down)."""
+    if not poles:
+        return poles
+    t = np.arange(y.size) * dt_s
+    params: list[float] = []
+    kinds: list[bool] = []
+    for s in poles:
+        kinds.append(s.imag > 0)
+        params += [-s.real, s.imag] if s.imag > 0 else [-s.real]
+    coef = _amplitudes(_basis(np.array(params), kinds, t), y)
+    kept = []
+    j = 0
+    for s, oscillating in zip(poles, kinds, strict=True):
+        size = math.hypot(coef[j], coef[j + 1]) if oscillating else abs(coef[j])
+        j += 2 if oscillating else 1
+        if size >= KEEP_SNR * noise_rms:
+            kept.append(s)
+    return kept
+
+
+def _decimated(window: np.ndarray, q: int, noise_rms: float) -> tuple[np.ndarray, float]:
+    """``window`` low-passed and decimated by ``q``, its filter's edge transients cut off,
+    and the white noise's RMS in it.
+
+    A short windowed-sinc low-pass (order FIR_ORDER_PER_STEP x q; as scipy.signal.decimate's
+    FIR, shorter): it only has to take noise out, since every line kept lies below
+    DECIMATED_BAND of the new rate, far from where the filter's wide transition lets noise
+    alias; its edge transient (half its length) is cut off, the less the shorter it is.
+    White noise through the filter keeps ``sum(h^2)`` of its variance."""
     if q == 1:
-        y, sigma = window[: FIT_SAMPLES], noise_rms
-    else:
-        # a short windowed-sinc low-pass (order FIR_ORDER_PER_STEP x q): it only has to take
-        # noise out, since every line that stands out lies below DECIMATED_BAND of the new
-        # rate, far from where the filter's wide transition lets noise alias; its edge
-        # transient (half its length) is cut off, the less the shorter it is
-        order = FIR_ORDER_PER_STEP * q
-        taps = signal.firwin(order + 1, 1.0 / q, window="hamming")
-        y = signal.resample_poly(window, 1, q, window=taps)
-        cut = order // (2 * q) + 1
-        y = y[cut: y.size - cut][:FIT_SAMPLES]
-        # white noise through the filter keeps sum(h^2) of its variance
-        sigma = noise_rms * math.sqrt(float(np.sum(taps ** 2)))
+        return window, noise_rms
+    order = FIR_ORDER_PER_STEP * q
+    taps = signal.firwin(order + 1, 1.0 / q, window="hamming")
+    y = signal.resample_poly(window, 1, q, window=taps)
+    cut = order // (2 * q) + 1
+    return y[cut: y.size - cut], noise_rms * math.sqrt(float(np.sum(taps ** 2)))
+
+
+def _fit_window(window: np.ndarray, rate_hz: float, noise_rms: float) -> list[PoleFit]:
+    """One decay window, decimated as the Method says, then fitted (:func:`fit_decay`).
+
+    The starting poles come from the matrix pencil over the first PENCIL_SAMPLES of the
+    decimated window, over their first quarter (a mode that dies within a few tens of
+    milliseconds is lost among the noise of a longer span's singular values), and over the
+    first PENCIL_SAMPLES of the window decimated 2, 4, ... times more (each adding the poles
+    below its own band the others missed: a lightly damped low mode rings on long after a
+    hum line forced a high rate)."""
+    q = _decimation(window, rate_hz)
+    y, sigma = _decimated(window, q, noise_rms)
+    y = y[:FIT_SAMPLES]
     if y.size < 16:
         return []
     dt = q / rate_hz
@@ -752,7 +792,17 @@ def _fit_window(window: np.ndarray, rate_hz: float, noise_rms: float) -> list[Po
     if pencil.size >= 64:
         poles = _merge_poles(poles, _continuous_poles(
             matrix_pencil(pencil[: pencil.size // 4], sigma), dt))
-    return fit_decay(y, dt, poles)
+    step = q
+    while window.size // step > PENCIL_SAMPLES + 2 * FIR_ORDER_PER_STEP:
+        step *= 2
+        band_rad_s = 2.0 * math.pi * DECIMATED_BAND * rate_hz / step
+        if band_rad_s < 2.0 * math.pi * MIN_FREQUENCY_HZ:
+            break
+        coarse, coarse_sigma = _decimated(window, step, noise_rms)
+        found = _continuous_poles(matrix_pencil(coarse[:PENCIL_SAMPLES], coarse_sigma),
+                                  step / rate_hz)
+        poles = _merge_poles(poles, [s for s in found if s.imag <= band_rad_s])
+    return fit_decay(y, dt, _clear_poles(y, dt, poles, sigma))
 
 
 def running_speed_findings(result: BumpResult, speed_rpm: float,
@@ -789,3 +839,114 @@ def running_speed_findings(result: BumpResult, speed_rpm: float,
                 "damping_ratio": round(m.damping_ratio, 4), "margin": margin,
                 "separation": round(separation, 4)}))
     return out
+
+
+@dataclass(frozen=True)
+class BumpCapture:
+    """A recording analysed as a bump test (:func:`analyze_bump_capture`).
+
+    ``result`` the bump test (None when the capture holds no usable samples);
+    ``tach_edges`` the tach edges in the last stream (a bump test needs none: a rotor at
+    standstill); ``rate_hz`` per-pickup sample rate; ``seconds`` of samples; ``lost`` samples
+    missing from the stream (windows stop before a gap); ``units`` per pickup (``g`` or
+    ``V`` for an uncalibrated one).
+    """
+
+    result: BumpResult | None
+    tach_edges: int
+    rate_hz: float
+    seconds: float
+    lost: int
+    units: tuple[str, ...]
+
+
+def analyze_bump_capture(raw: Iterable[bytes], profiles: Sequence[PickupProfile] = (),
+                         mains_hz: float | None = None,
+                         identity: dict[str, Any] | None = None) -> BumpCapture:
+    """Decode a capture's bytes and run :func:`bump_test` on its last stream.
+
+    Parameters
+    ----------
+    raw : iterable of bytes
+        The bytes as received from the board, in pieces.
+    profiles : sequence of PickupProfile, default ()
+        Per channel: name, sensitivity (V/g; None keeps volts), zero-g output.
+    mains_hz : float or None, default None
+        Mains frequency (hum); None: 50 and 60 Hz are both taken as hum.
+    identity : dict or None, default None
+        The board's identity from the capture header, when the bytes start after it.
+
+    Returns
+    -------
+    BumpCapture
+        The bump test and what the capture says besides (tach edges, rate, lost samples).
+
+    References
+    ----------
+    .. [1] protocol/catalogue.yaml, the samples and identity messages (ours).
+    """
+    decoder = StreamDecoder()
+    bits, reference_mv = DEFAULT_ADC_BITS, float(DEFAULT_REFERENCE_MV)
+    tick_hz = float(DEFAULT_TICK_HZ)
+
+    def take_identity(values: dict[str, Any]) -> tuple[int, float, float]:
+        return (int(values.get("adc_bits", bits)),
+                float(values.get("adc_reference_mv", reference_mv)),
+                float(values.get("tick_hz", tick_hz)))
+
+    if identity:
+        decoder.assume_identity(identity)
+        try:
+            bits, reference_mv, tick_hz = take_identity(identity)
+        except (TypeError, ValueError):
+            pass
+    blocks: list[tuple[int, list[int]]] = []
+    stream: tuple[int, int, int] | None = None  # start_tick, period_ticks, channels
+    edges = 0
+    for piece in raw:
+        for item in decoder.feed(piece):
+            if not isinstance(item, Message):
+                continue
+            if item.name == "identity":
+                bits, reference_mv, tick_hz = take_identity(item.values)
+            elif item.name == "stream_config" and item.values.get("adc_reference_mv"):
+                reference_mv = float(item.values["adc_reference_mv"])
+            elif item.name == "tach":
+                edges += 1
+            elif item.name == "samples":
+                v = item.values
+                key = (int(v["start_tick"]), int(v["period_ticks"]), int(v["channels"]))
+                if key != stream:  # a new stream: only the last is analysed
+                    stream, blocks, edges = key, [], 0
+                blocks.append((int(v["first_index"]), list(v["samples"])))
+    if stream is None or not blocks:
+        return BumpCapture(None, edges, math.nan, 0.0, 0, ())
+    _, period, channels = stream
+    first = blocks[0][0]
+    last = max(i + len(s) for i, s in blocks)
+    flat = np.full(last - first, -1, dtype=np.int64)
+    for i, s in blocks:
+        flat[i - first: i - first + len(s)] = s
+    counts = flat[: flat.size - flat.size % channels].reshape(-1, channels)
+    rate_hz = tick_hz / (period * channels)
+    full_scale = (1 << bits) - 1
+    volts_per_count = reference_mv / 1000.0 / (1 << bits)
+    values, rails, units, per_count, names = [], [], [], [], []
+    lost_mask: np.ndarray = np.asarray((counts < 0).any(axis=1))
+    for c in range(channels):
+        profile = profiles[c] if c < len(profiles) else PickupProfile(f"ch{c + 1}")
+        raw_counts = counts[:, c].astype(float)
+        sensitivity = profile.sensitivity_v_per_g
+        scale = volts_per_count / sensitivity if sensitivity else volts_per_count
+        assert scale > 0
+        kept = raw_counts[~lost_mask]
+        fill = float(np.median(kept)) if kept.size else 0.0
+        values.append(np.where(lost_mask, fill, raw_counts) * scale)
+        rails.append((~lost_mask) & ((raw_counts <= 0) | (raw_counts >= full_scale)))
+        units.append("g" if profile.calibrated else "V")
+        per_count.append(scale)
+        names.append(profile.name)
+    result = bump_test(values, rate_hz, names, mains_hz=mains_hz, units_per_count=per_count,
+                       at_rail=rails, lost=lost_mask)
+    return BumpCapture(result, edges, rate_hz, counts.shape[0] / rate_hz,
+                       int(lost_mask.sum()) * channels, tuple(units))

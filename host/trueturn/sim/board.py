@@ -30,6 +30,7 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
+from trueturn.constants import STANDARD_GRAVITY_M_S2
 from trueturn.link.boards import BOOTLOADER_WAIT_S
 from trueturn.link.catalogue import load_catalogue
 from trueturn.link.cobs import CobsError, cobs_decode
@@ -102,7 +103,21 @@ RUNS = {
     "steady": "runs at speed from power-up (or stands still with motor=off)",
     "coastdown": "at speed, then the motor is switched off and the rotor coasts to a stop",
     "runup": "at standstill, then the motor is switched on and runs the rotor up to speed",
+    "bump": "at standstill (tach dark), a bearing housing struck every ~2 s, the pickups' "
+            "housings in turn: a bump test (the rotor's free response on its supports)",
 }
+
+#: ``run=bump``: the first tap this long after power-up, then one every BUMP_PERIOD_S
+#: (give or take BUMP_JITTER_S: a person's rhythm), BUMP_TAPS of them in a recording of
+#: ``run_times(...)["record_s"]``; each tap's impulse is sized so that no pickup's
+#: free response exceeds BUMP_PEAK_G x a share from BUMP_SHARE (a soft mallet, a hand that
+#: does not strike the same twice): under the ADC's +-5.5 g at 0.3 V/g (invented figures)
+BUMP_FIRST_S = 1.0
+BUMP_PERIOD_S = 2.0
+BUMP_JITTER_S = 0.2
+BUMP_TAPS = 5
+BUMP_PEAK_G = 2.0
+BUMP_SHARE = (0.6, 1.0)
 
 
 def coast_stop_s(coast_down_s: float) -> float:
@@ -123,8 +138,14 @@ def run_times(scenario: Scenario, run: str) -> dict[str, float]:
     ``runup``: at standstill for a quarter of the recording, then the spin-up (the drive
     pulls the speed to its target with time constant ``spin_up_s/4``: within 0.5 % after
     ``ln(200) spin_up_s/4``), then a second at speed.
+    ``bump``: no switch (the motor stays off); the recording holds ``BUMP_TAPS`` taps, the
+    first ``first_tap_s`` after power-up, then one every ``tap_period_s``.
     """
     motor = scenario.motor
+    if run == "bump":
+        return {"switch_s": 0.0, "sweep_s": 0.0,
+                "record_s": round(BUMP_FIRST_S + BUMP_TAPS * BUMP_PERIOD_S, 1),
+                "first_tap_s": BUMP_FIRST_S, "tap_period_s": BUMP_PERIOD_S}
     if run == "coastdown":
         sweep_s = coast_stop_s(motor.coast_down_s)
         switch_s = sweep_s / 3.0
@@ -235,7 +256,13 @@ class VirtualBoard:
             else self.options.run == "coastdown"
         #: the tick at which a run= switches the motor (None: no switch ahead)
         self._switch_tick: int | None = None
-        if self.options.run != "steady":
+        #: run=bump: the tick of the next tap, how many so far, their own random stream
+        self._tap_tick: int | None = None
+        self._taps = 0
+        self._tap_rng = np.random.default_rng(self.options.seed + 15485863)
+        if self.options.run == "bump":
+            self._tap_tick = self.tick + int(round(BUMP_FIRST_S * TICK_HZ))
+        elif self.options.run != "steady":
             switch_s = run_times(scenario, self.options.run)["switch_s"]
             self._switch_tick = self.tick + int(round(switch_s * TICK_HZ))
         self._omega = rpm_to_rad_s(self.target_speed_rpm) if self.running else 0.0
@@ -249,7 +276,8 @@ class VirtualBoard:
         self._motion.settle(scenario.rotor.unbalance_phasors(self.all_masses()), self._theta,
                             self._omega)
         self._accel = 0.0  # the last step's angular acceleration, rad/s^2
-        self._transient = self.options.response == "transient"
+        # a bump test is the rotor's free response: always integrated in time
+        self._transient = self.options.response == "transient" or self.options.run == "bump"
         self._edges_seen = 0
         self._last_edge_tick = self.tick  # as the firmware's 0 at reset
         self._holdoff_until = self.tick
@@ -470,10 +498,33 @@ class VirtualBoard:
                         self._switch_tick = None
                     else:
                         n = max(1, min(n, self._switch_tick - self.tick))
+                if self._tap_tick is not None:
+                    if self.tick >= self._tap_tick:  # run=bump: a tap now
+                        self._tap()
+                    n = max(1, min(n, self._tap_tick - self.tick))
                 self._step(n)
                 if self._boot_at is not None and self.tick >= self._boot_at:
                     self._boot_at = None
                     self._power_up()
+
+    def _tap(self) -> None:
+        """run=bump: strike the housing of the next pickup in turn along its direction (a
+        1 N s impulse scaled as BUMP_PEAK_G says), and set the next tap's tick."""
+        rotor = self.scenario.rotor
+        if rotor.pickups:
+            struck = rotor.pickups[self._taps % len(rotor.pickups)]
+            out = rotor.equations_of_motion(0.0)[3]
+            modes = rotor.modes_at_rest(struck.name)
+            # the sum of the modes' envelopes bounds each pickup's peak (m/s^2 per N s)
+            bound = max((sum(m.accel_per_impulse[p.name] for m in modes)
+                         for p in rotor.pickups), default=0.0)
+            if bound > 0:
+                share = float(self._tap_rng.uniform(*BUMP_SHARE))
+                impulse_n_s = BUMP_PEAK_G * STANDARD_GRAVITY_M_S2 * share / bound
+                self._motion.strike(out[rotor.pickups.index(struck)] * impulse_n_s)
+        self._taps += 1
+        jitter = float(self._tap_rng.uniform(-BUMP_JITTER_S, BUMP_JITTER_S))
+        self._tap_tick = self.tick + int(round((BUMP_PERIOD_S + jitter) * TICK_HZ))
 
     def advance_s(self, seconds: float) -> None:
         """Run for ``seconds`` of simulated time."""

@@ -282,3 +282,56 @@ class RigidRotor:
                         self.mass_kg, self.transverse_inertia_kg_m2])
         eig = np.linalg.eigvals(np.linalg.solve(mass, dyn0.real))
         return sorted(float(math.sqrt(max(e.real, 0.0)) / (2 * math.pi)) for e in eig)
+
+    def modes_at_rest(self, struck: str | None = None) -> list[RestMode]:
+        """The damped modes of the rotor on its supports at standstill, slowest first.
+
+        The eigenvalues ``lambda`` of the state matrix ``[[0, I], [-M^-1 K, -M^-1 C]]``
+        (:meth:`equations_of_motion` at zero speed: no gyroscopic coupling) in complex
+        conjugate pairs: natural frequency ``|lambda| / 2 pi``, damping ratio
+        ``-Re(lambda) / |lambda|`` (Rao, *Mechanical Vibrations*, free vibration with
+        viscous damping; Ewins, *Modal Testing*, non-proportional damping: complex modes;
+        from memory). With ``struck`` (a pickup's name) each mode also gives the
+        acceleration amplitude (m/s^2, the envelope at t = 0+) it starts with at every pickup
+        after an impulse of 1 N s at that pickup along its sensing direction (a mallet's tap
+        on the housing where the pickup sits): the free response is
+        ``accel(t) = Re(sum_k 2 c_k e^{lambda_k t})`` over the pairs, ``c_k`` the modal
+        residue ``out M^-1 [-K, -C] v_k (V^-1 z0)_k`` with ``z0 = [0; M^-1 out_struck']``.
+        """
+        mass, damp, stiff, out = self.equations_of_motion(0.0)
+        n = mass.shape[0]
+        inv_mass = np.linalg.inv(mass)
+        state = np.block([[np.zeros((n, n)), np.eye(n)],
+                          [-inv_mass @ stiff, -inv_mass @ damp]])
+        lam, vec = scipy.linalg.eig(state)
+        residues = None
+        if struck is not None:
+            names = [p.name for p in self.pickups]
+            if struck not in names:
+                raise ValueError(f"no pickup called {struck!r}; pickups are {', '.join(names)}")
+            start = np.concatenate([np.zeros(n), inv_mass @ out[names.index(struck)]])
+            modal = np.linalg.solve(vec, start.astype(complex))
+            to_accel = out @ inv_mass @ np.hstack([-stiff, -damp])
+            residues = (to_accel @ vec) * modal[None, :]  # pickups x modes
+        modes = []
+        for k, value in enumerate(lam):
+            if value.imag <= 0 or not np.isfinite(value):
+                continue  # one of each pair; overdamped (real) motion is no mode
+            size = abs(value)
+            seen = {} if residues is None else {
+                p.name: float(2.0 * abs(residues[i, k])) for i, p in enumerate(self.pickups)}
+            modes.append(RestMode(natural_frequency_hz=float(size / (2.0 * math.pi)),
+                                  damping_ratio=float(-value.real / size),
+                                  accel_per_impulse=seen))
+        return sorted(modes, key=lambda m: m.natural_frequency_hz)
+
+
+@dataclass(frozen=True)
+class RestMode:
+    """A damped mode at standstill (:meth:`RigidRotor.modes_at_rest`): natural frequency
+    (Hz), damping ratio, and per pickup the acceleration amplitude (m/s^2) a 1 N s impulse
+    at the struck pickup starts it with (empty when no pickup was struck)."""
+
+    natural_frequency_hz: float
+    damping_ratio: float
+    accel_per_impulse: dict[str, float] = field(default_factory=dict)

@@ -149,8 +149,13 @@ def describe(scenario: Scenario, speed_rpm: float | None = None) -> dict[str, An
         # the support resonances a 1x sweep meets (synchronous critical speeds, gyroscopic
         # coupling included; RigidRotor.critical_speeds_rpm)
         "resonances_rpm": [round(f, 1) for f in r.critical_speeds_rpm()],
-        # sim://NAME?run=coastdown|runup: when the motor switches and how long to record
-        "runs": {run: run_times(sc, run) for run in ("coastdown", "runup")},
+        # sim://NAME?run=coastdown|runup|bump: when the motor switches, how long to record
+        "runs": {run: run_times(sc, run) for run in ("coastdown", "runup", "bump")},
+        # the damped modes at standstill, what a bump test (run=bump) rings
+        # (RigidRotor.modes_at_rest: eigenvalues of the state matrix at zero speed)
+        "standstill_modes": [{"natural_frequency_hz": round(m.natural_frequency_hz, 4),
+                              "damping_ratio": round(m.damping_ratio, 5)}
+                             for m in r.modes_at_rest()],
         "bearings": [b.__dict__ for b in r.bearings],
         "planes": [{**p.__dict__,
                     "positions_deg": list(sc.balancing_planes[p.name].position_angles_deg),

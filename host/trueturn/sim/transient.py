@@ -148,6 +148,27 @@ class RotorMotion:
         """True when the rotor does not move at all (nothing left to integrate)."""
         return not self.state.any()
 
+    def strike(self, impulse: np.ndarray) -> None:
+        """A mallet's tap at standstill: an impulse (N s, generalised on the model's
+        degrees of freedom, e.g. a pickup's row of the output map times the impulse) added
+        to the velocities, ``q' += M^-1 P``.
+
+        The state stays the analytic form of the motion: the tap's modal coordinates
+        ``V^-1 [0; M^-1 P]`` are kept, doubled, on the modes of positive frequency only (a
+        real, overdamped mode as it is), so ``Re(state)`` is the real free response and
+        ``|out accel|`` its envelope, which the model's amplitude-dependent gain
+        (:func:`nonlinear_accel`) reads as it reads a steady 1x amplitude.
+
+        Parameters
+        ----------
+        impulse : numpy.ndarray
+            The generalised impulse, N s (N m s on a tilt).
+        """
+        lam, vec, vec_inv, to_state, _, _ = self._modal_form(0.0)
+        modal = vec_inv @ (to_state @ np.asarray(impulse, dtype=complex))
+        weight = np.where(lam.imag > 0, 2.0, np.where(lam.imag < 0, 0.0, 1.0))
+        self.state = self.state + vec @ (weight * modal)
+
     # --- the modal form at one speed ----------------------------------------------------------
 
     def _modal_form(self, omega_rad_s: float) -> tuple[np.ndarray, np.ndarray, np.ndarray,

@@ -26,10 +26,13 @@
 ``floating=1|2``   that pickup input has nothing connected: it reads a ghost copy of the
                    conversion before it (trueturn.sim.board.FLOATING_CARRY), as an open
                    AVR ADC input does.
-``run=steady|coastdown|runup``  what the motor does: runs at speed (default);
+``run=steady|coastdown|runup|bump``  what the motor does: runs at speed (default);
                    coastdown: at speed, then switched off, the rotor coasting to a stop;
                    runup: at standstill, then switched on (trueturn.sim.board.run_times says
-                   when, and how long a recording covers it: ``trueturn sim describe``).
+                   when, and how long a recording covers it: ``trueturn sim describe``);
+                   bump: at standstill (tach dark), a pickup's housing struck every ~2 s,
+                   the pickups in turn (a bump test: the rotor's free response on its
+                   supports, always integrated in time; trueturn.sim.board.BUMP_*).
 ``response=quasi-static|transient``  how the rotor's 1x follows a changing speed: the steady
                    response of the speed of the moment (default), or the rotor's motion
                    integrated in time, so a lightly damped resonance passed quickly builds
@@ -74,7 +77,7 @@ if TYPE_CHECKING:
 
 _USAGE = ('expected "sim://NAME[?realtime=0|1&pace=F&seed=N&rpm=R&motor=on|off&noise=F'
           '&unbalance=as-found|none&tick0=T&tach=none|missing|double|knocked|off|chatter'
-          '&reset_on_open=0|1&bootloader=new|old&floating=1|2&run=steady|coastdown|runup'
+          '&reset_on_open=0|1&bootloader=new|old&floating=1|2&run=steady|coastdown|runup|bump'
           '&response=quasi-static|transient]"')
 
 

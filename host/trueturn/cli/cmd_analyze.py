@@ -9,8 +9,9 @@ import math
 from pathlib import Path
 from typing import Any
 
-from trueturn.cli.common import open_capture, print_json
+from trueturn.cli.common import number, open_capture, print_json
 from trueturn.dsp.analysis import ALL_REVS, Analysis, analyze_capture, compare_starts
+from trueturn.dsp.bump import BumpResult, analyze_bump_capture, running_speed_findings
 from trueturn.dsp.findings import Code, Finding, describe
 from trueturn.dsp.spectrum import SpectrumPeak
 from trueturn.dsp.units import UNITS, PickupProfile, pickup_profile
@@ -62,6 +63,14 @@ def add_parser(sub: argparse._SubParsersAction) -> None:
                         help="a coast-down or run-up: the 1x against speed per pickup, the "
                              "support resonances with their damping (half-power bandwidth) "
                              "and the response slope at the balancing speed")
+    parser.add_argument("--bump", action="store_true",
+                        help="a bump test: a recording of the STOPPED machine (power locked "
+                             "out) while its bearing housing is tapped with a soft mallet "
+                             "every 2 s or so - never the rotor: the natural frequencies "
+                             "and damping per pickup (matrix pencil method); see the README")
+    parser.add_argument("--speed-rpm", type=number("speed_rpm"), metavar="N",
+                        help="with --bump: the running speed, rpm; warns when it lies within "
+                             "15 %% of a natural frequency")
     parser.add_argument("--plot", metavar="FILE.svg",
                         help="with --sweep: write the Bode (amplitude and phase against speed) "
                              "and polar plots of the sweep to this SVG file")
@@ -146,6 +155,11 @@ def _profiles(args: argparse.Namespace, metadata: dict[str, Any]) -> list[Pickup
 
 
 def run(args: argparse.Namespace) -> int:
+    if args.bump:
+        return run_bump(args)
+    if args.speed_rpm is not None:
+        raise UserError("--speed-rpm goes with --bump (the running speed to compare with the "
+                        "natural frequencies)")
     if args.revs is not None and args.revs < 2:
         raise UserError("--revs must be at least 2")
     if args.revs is not None and args.revs > ALL_REVS:  # the window held in memory
@@ -383,3 +397,82 @@ def format_sweep(result: Analysis) -> list[str]:
                      f"{k.amplitude_exponent:.2f}, phase {k.phase_deg_per_ln_speed:+.1f} deg "
                      "per unit of ln(speed)")
     return lines
+
+
+#: a bump-test recording with this many tach edges or more was made on a turning rotor
+BUMP_TACH_EDGES_REFUSED = 2
+
+
+def run_bump(args: argparse.Namespace) -> int:
+    """``analyze FILE --bump``: the bump test of a recording at standstill (dsp/bump.py)."""
+    for flag, given in (("--sweep", args.sweep), ("--plot", args.plot is not None),
+                        ("a second capture", args.second is not None),
+                        ("--revs", args.revs is not None), ("--unit", args.unit is not None),
+                        ("--lowpass-hz", args.lowpass_hz is not None)):
+        if given:
+            raise UserError(f"--bump reads one recording of taps at standstill; {flag} does "
+                            "not go with it")
+    name = args.capture
+    with open_capture(name) as reader:
+        metadata = reader.metadata
+        mains = args.mains_hz
+        if mains is None:
+            stored = metadata.get("mains_hz")
+            mains = float(stored) if stored in (50, 60) else None
+        identity = metadata.get("identity")
+        found = analyze_bump_capture(reader.chunks(), _profiles(args, metadata), mains,
+                                     identity if isinstance(identity, dict) else None)
+    result = found.result
+    if result is None:
+        raise UserError(f"{one_line(name)}: no samples in the capture")
+    if found.tach_edges >= BUMP_TACH_EDGES_REFUSED:
+        raise UserError(f"{one_line(name)}: {found.tach_edges} tach edges: the rotor was "
+                        "turning; a bump test is recorded on a stopped machine, power locked "
+                        "out")
+    steady = next((f for f in result.findings if f.code is Code.STEADY_LINE), None)
+    if steady is not None:
+        raise UserError(f"{one_line(name)}: {describe(steady)}")
+    if not result.taps:
+        raise UserError(f"{one_line(name)}: {describe(Finding(Code.NO_TAPS))}")
+    findings = list(result.findings)
+    if args.speed_rpm is not None:
+        findings += running_speed_findings(result, args.speed_rpm)
+    if args.json:
+        data = result.to_json()
+        data["findings"] = [f.to_json() for f in findings]
+        data["warnings"] = [describe(f) for f in findings]
+        data["sample_rate_hz"] = round(found.rate_hz, 3)
+        data["seconds"] = round(found.seconds, 3)
+        data["units"] = list(found.units)
+        if args.speed_rpm is not None:
+            data["speed_rpm"] = args.speed_rpm
+        print_json({"bump": data})
+        return 0
+    print(format_bump(result, findings, found.units, found.rate_hz, found.seconds))
+    return 0
+
+
+def format_bump(result: BumpResult, findings: list[Finding], units: tuple[str, ...],
+                rate_hz: float, seconds: float) -> str:
+    """The bump test's readable form: the taps, the modes per pickup, the warnings."""
+    times = ", ".join(f"{t.time_s:.1f}" for t in result.taps)
+    lines = [f"bump test: {len(result.taps)} tap(s) at {times} s "
+             f"({seconds:.1f} s at {rate_hz:g} Hz per pickup)", ""]
+    if result.modes:
+        width = max(len(m.pickup) for m in result.modes)
+        lines.append(f"{'pickup':<{width}}  natural frequency        as speed     "
+                     "damping ratio        taps")
+        for m in result.modes:
+            lines.append(f"{m.pickup:<{width}}  {m.frequency_hz:8.2f} ± "
+                         f"{m.frequency_se_hz:<6.2g} Hz {m.speed_rpm:7.0f} rpm  "
+                         f"{100 * m.damping_ratio:6.2f} ± {100 * m.damping_se:<5.2g} %  "
+                         f"{m.taps}")
+        lines.append("(± one standard error; damping as a percentage of critical)")
+    else:
+        lines.append("no mode stood out of the taps' free decays")
+    if findings:
+        lines += ["", "warnings:", *(f"  - {describe(f)}" for f in findings)]
+    lines += ["", "A bump test is a hands-on step: the rotor proven at standstill and the "
+                  "power locked out; strike the housing, never the rotor; the "
+                  "manufacturer's instructions come first."]
+    return "\n".join(lines)

@@ -149,9 +149,51 @@ def slope_rows() -> list[Row]:
                 " / ".join(f"{errors[k]:.3f} g" for k in errors), "-", None)]
 
 
+def bump_rows(seeds: int) -> list[Row]:
+    """Bump tests (``sim://NAME?run=bump``, ``analyze --bump``) on every packaged scenario
+    against the model's damped modes at standstill (RigidRotor.modes_at_rest). A model mode
+    counts as seen by a pickup as in tests/test_sim_bump.py (a tap starts it there with at
+    least 5 % of the tap's summed envelopes)."""
+    from test_sim_bump import seen_modes
+    from trueturn.sim.scenario import list_scenarios
+
+    errors: list[float] = []
+    missed: list[str] = []
+    seen_total = found_total = 0
+    with tempfile.TemporaryDirectory() as folder:
+        for name in list_scenarios():
+            sc = load_scenario(name)
+            model = [m.natural_frequency_hz for m in sc.rotor.modes_at_rest()]
+            seen = seen_modes(name)
+            for seed in range(1, seeds + 1):
+                cap = str(Path(folder) / f"{name}-{seed}.cap")
+                _quiet(["record", "--port", f"sim://{name}?realtime=0&seed={seed}&run=bump",
+                        "--seconds", f"{run_times(sc, 'bump')['record_s']:g}", "-o", cap,
+                        "--quiet"])
+                modes = json.loads(_quiet(["analyze", cap, "--bump", "--json"]))["bump"]["modes"]
+                errors += [min(abs(m["frequency_hz"] / f - 1) for f in model) for m in modes]
+                for pickup, frequencies in seen.items():
+                    for f in frequencies:
+                        seen_total += 1
+                        if any(m["pickup"] == pickup and abs(m["frequency_hz"] / f - 1) <= 0.03
+                               for m in modes):
+                            found_total += 1
+                        elif f"{name} {f:.0f} Hz" not in missed:
+                            missed.append(f"{name} {f:.0f} Hz")
+    worst = max(errors) if errors else math.inf
+    return [
+        Row(f"bump test: natural frequency error on the simulator's scenarios (max), "
+            f"{len(errors)} modes found over {seeds} seeds", f"{100 * worst:.2f} %", "<= 3 %",
+            worst <= 0.03),
+        Row("bump test: modes the pickups see that were found (within 3 %)"
+            + (f"; missed: {', '.join(missed)}" if missed else ""),
+            f"{found_total}/{seen_total}", "-", None),
+    ]
+
+
 def rows() -> list[Row]:
     seeds = int(os.environ.get("BENCH_SWEEP_SEEDS", "5"))
-    return coastdown_rows(seeds) + sdof_rows() + slope_rows()
+    return coastdown_rows(seeds) + sdof_rows() + slope_rows() + bump_rows(seeds)
 
 
 if __name__ == "__main__":

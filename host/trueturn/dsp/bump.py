@@ -523,9 +523,12 @@ def _is_hum(frequency_hz: float, mains_hz: float | None) -> bool:
 
 def _is_steady_line(p: PoleFit, rate_hz: float, noise_rms: float,
                     mains_hz: float | None) -> bool:
-    """A clear line that does not decay and is not hum: a machine running?"""
+    """A clear line that does not decay and is not hum: a machine running? (A very lightly
+    damped mode whose window is too short to halve it decays significantly: it is neither
+    this nor a mode.)"""
     return (MIN_FREQUENCY_HZ <= p.frequency_hz <= MAX_FREQUENCY_FRACTION * rate_hz
             and p.amplitude >= MODE_SNR * noise_rms and p.fade > RING_FADE
+            and p.decay_per_s <= DECAY_SIGNIFICANCE * p.decay_se
             and not _is_hum(p.frequency_hz, mains_hz))
 
 

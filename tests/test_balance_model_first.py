@@ -102,7 +102,8 @@ def test_prediction_against_the_four_dof_rotor_within_its_own_band() -> None:
                              tuple(p.axial_mm for p in rotor.planes),
                              tuple(p.radius_mm for p in rotor.planes),
                              rotor.centre_of_mass_axial_mm,
-                             polar_inertia_kg_m2=rotor.polar_inertia_kg_m2)
+                             polar_inertia_kg_m2=rotor.polar_inertia_kg_m2,
+                       mounted_mass_kg=rotor.mounted_mass_kg)
         modes = [m for m in _modes_rpm(rotor) if m < speed]
         sweep = {p.name: [SupportResonance(m, 0.03) for m in modes] for p in rotor.pickups}
         pred = predict_influence(layout, [PickupPlacement(p.name, p.bearing, 0.0)
@@ -309,7 +310,8 @@ def test_gyroscopic_stiffening_of_disc_rotors(with_polar: bool) -> None:
                              tuple(p.axial_mm for p in rotor.planes),
                              tuple(p.radius_mm for p in rotor.planes),
                              rotor.centre_of_mass_axial_mm, rotor.transverse_inertia_kg_m2,
-                             rotor.polar_inertia_kg_m2 if with_polar else 1e-9)
+                             rotor.polar_inertia_kg_m2 if with_polar else 1e-9,
+                       mounted_mass_kg=rotor.mounted_mass_kg)
         sweep = _coast_down_peaks(rotor, speed)
         pred = predict_influence(layout, [PickupPlacement(p.name, p.bearing, 0.0)
                                           for p in rotor.pickups], speed, sweep)

@@ -72,7 +72,8 @@ def _rotor(rng: np.random.Generator, soft: bool, n_planes: int,
 def _layout(rotor: RigidRotor) -> RotorLayout:
     return RotorLayout(rotor.mass_kg, (rotor.bearings[0].axial_mm, rotor.bearings[1].axial_mm),
                        tuple(p.axial_mm for p in rotor.planes),
-                       tuple(p.radius_mm for p in rotor.planes), rotor.centre_of_mass_axial_mm)
+                       tuple(p.radius_mm for p in rotor.planes), rotor.centre_of_mass_axial_mm,
+                       mounted_mass_kg=rotor.mounted_mass_kg)
 
 
 def _placements(rotor: RigidRotor) -> list[PickupPlacement]:
@@ -147,9 +148,10 @@ def test_the_symmetric_limit_is_den_hartogs_rotating_unbalance() -> None:
 
 def test_a_clean_soft_sweep_gives_back_the_unbalance() -> None:
     # a soft mount, a linear rotor, a quiet sweep: the coefficients at speed come out
-    # within the prediction's own 95 % spreads in size and phase, and those spreads are a
-    # few per cent and degrees (the priors on the inertias are the profile's guesses, not
-    # the truth; the simulator's supports are not along the pickups' damping model)
+    # within the prediction's own 95 % spreads in size and phase, and those spreads are
+    # tens of per cent and a few degrees (the priors on the inertias are the profile's
+    # guesses, not the truth; the simulator's supports are not along the pickups' damping
+    # model)
     rng = np.random.default_rng(5)
     rotor, speed = _rotor(rng, True, 2)
     masses = [Mass("left", 3.0, 40.0), Mass("right", 2.0, 250.0)]
@@ -159,7 +161,9 @@ def test_a_clean_soft_sweep_gives_back_the_unbalance() -> None:
     ratio = rotor.influence_matrix(speed) / prediction.matrix
     assert np.all(np.abs(np.abs(ratio) - 1) <= prediction.magnitude_rel_95)
     assert np.all(np.abs(np.degrees(np.angle(ratio))) <= prediction.phase_95_deg)
-    assert np.all(prediction.magnitude_rel_95 < 0.2) and np.all(prediction.phase_95_deg < 15)
+    # the size's band: mostly the mass on the mounts' own 10 % (log, 1 sigma:
+    # model_first.MOUNTED_MASS_LOG_SIGMA), about 20 % at 95 %, which no sweep can narrow
+    assert np.all(prediction.magnitude_rel_95 < 0.3) and np.all(prediction.phase_95_deg < 15)
 
 
 def _honesty(n_planes: int, rotors: int, seed: int) -> tuple[int, int, int]:
@@ -192,7 +196,9 @@ def _honesty(n_planes: int, rotors: int, seed: int) -> tuple[int, int, int]:
 @pytest.mark.parametrize("n_planes", [1, 2])
 def test_a_trusted_prediction_keeps_its_95_percent_bound(n_planes: int) -> None:
     trusted, over, failed = _honesty(n_planes, 40, 100 + n_planes)
-    assert trusted >= 12                      # most soft mounts are trusted
+    # half the soft mounts or more are trusted (each prediction's size carries the mass on
+    # the mounts' own uncertainty, model_first.MOUNTED_MASS_LOG_SIGMA)
+    assert trusted >= 10
     # at most 5 % above the bound: with ~20 trusted, 3 or more would be p < 0.08 (binomial)
     assert over <= max(2, math.ceil(0.1 * trusted)), (trusted, over)
     assert failed <= 1, (trusted, failed)

@@ -35,7 +35,8 @@ def test_profile_angle_gives_the_simulators_phase(name: str) -> None:
     layout = RotorLayout(rotor.mass_kg, tuple(b.axial_mm for b in rotor.bearings),  # type: ignore[arg-type]
                          tuple(p.axial_mm for p in rotor.planes),
                          tuple(p.radius_mm for p in rotor.planes),
-                         rotor.centre_of_mass_axial_mm, rotor.transverse_inertia_kg_m2)
+                         rotor.centre_of_mass_axial_mm, rotor.transverse_inertia_kg_m2,
+                       mounted_mass_kg=rotor.mounted_mass_kg)
     modes = [m for m in rotor.critical_speeds_rpm() if m < speed]
     placements = [PickupPlacement.from_profile(k.name, m.bearing, k.angle_from_tach_deg)
                   for k, m in zip(profile.pickups, rotor.pickups, strict=True)]

@@ -268,6 +268,17 @@ def test_the_rotors_inertia_about_the_shaft_is_optional() -> None:
     assert caught.value.field == "polar" and "must be more than 0" in str(caught.value)
 
 
+def test_the_weight_on_the_mounts_is_optional_and_never_below_the_rotors() -> None:
+    # MachineProfile.mounted_mass_kg: the model-first correction's size rests on it
+    p = profile_from_form(typed(mounted="18.5"), 2)
+    assert p.mounted_mass_kg == 18.5 and form_values(p, 2)["mounted"] == "18.5"
+    assert profile_from_form(typed(), 2).mounted_mass_kg is None
+    with pytest.raises(FormError) as caught:
+        profile_from_form(typed(mass="6", mounted="4"), 2)
+    assert caught.value.field == "mounted"
+    assert "must not be less than" in str(caught.value) and "Rotor mass" in str(caught.value)
+
+
 def test_the_bearing_a_pickup_sits_on_is_optional() -> None:
     p = profile_from_form(typed(k1_bearing="2", k2_bearing="2"), 2)
     assert [k.on_bearing for k in p.pickups] == [2, 2]

@@ -38,7 +38,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from enum import Enum
 
 import numpy as np
@@ -97,6 +97,15 @@ FIT_NEAR_RESONANCE_FRACTION = 0.05
 #: with load and supply: about +/-0.5 %; from memory, no single source): each draw of a
 #: fitted prediction is taken at a speed within it
 SPEED_WANDER_FRACTION = 0.005
+#: 1 sigma (log) of the mass on the mounts when the profile gives it: a weighing on a
+#: household scale, and what else moves with the mounts (cables, a guard, the bench top)
+#: (our choice)
+MOUNTED_MASS_LOG_SIGMA = 0.1
+#: without it, the mounts may carry anything from the rotor alone (a rotor in bearings on a
+#: heavy base) to this many times its mass (a motor's housing, a fan's frame, a grinder's
+#: body; our choice, no source): drawn log-uniform, the prediction's magnitude that much
+#: in doubt
+MOUNTED_MASS_MAX_FACTOR = 4.0
 
 
 class Distrust(str, Enum):
@@ -111,6 +120,7 @@ class Distrust(str, Enum):
     TOO_UNCERTAIN = "too-uncertain"      # the correction might not even halve the 1x
     REFUTED = "refuted"                  # a run's 1x fell far outside the model's prediction
     UNCALIBRATED = "uncalibrated"        # a pickup reads volts: no unit to predict in
+    NO_MOUNTED_MASS = "no-mounted-mass"  # what the mounts carry is not known: no magnitude
     CLIPPED = "clipped"                  # an as-found reading clipped: its 1x reads low
 
 
@@ -128,6 +138,8 @@ DISTRUST_WORDS: dict[str, str] = {
     Distrust.REFUTED.value: "the check run's 1x fell far outside its prediction, so its "
                             "masses come off",
     Distrust.UNCALIBRATED.value: "a pickup reads volts (no sensitivity in the profile)",
+    Distrust.NO_MOUNTED_MASS.value: "the machine profile does not say what the mounts carry "
+                                    "(the weight of everything that shakes with the rotor)",
     Distrust.CLIPPED.value: "a pickup's as-found signal reached the end of the ADC's range "
                             "(its 1x reads low)",
 }
@@ -190,7 +202,9 @@ class PickupPlacement:
 @dataclass(frozen=True)
 class RotorLayout:
     """What the machine profile says about the rotor: mass, the two bearings' and each
-    plane's axial positions (one origin, mm), plane radii, centre of mass (None: midway)."""
+    plane's axial positions (one origin, mm), plane radii, centre of mass (None: midway),
+    the inertias when known, and ``mounted_mass_kg``: everything that shakes with the rotor
+    on its mounts (the rotor with its housing, frame or pedestals; None: not known)."""
 
     rotor_mass_kg: float
     bearings_axial_mm: tuple[float, float]
@@ -199,6 +213,53 @@ class RotorLayout:
     cg_axial_mm: float | None = None
     transverse_inertia_kg_m2: float | None = None
     polar_inertia_kg_m2: float | None = None
+    mounted_mass_kg: float | None = None
+
+
+def mounted_body(layout: RotorLayout) -> RotorLayout:
+    """What the supports carry, as a layout: the rotor's, with the mass on the mounts.
+
+    A rotor turns inside a housing, frame or pedestals that shake with it on the mounts;
+    the unbalance force ``m r omega^2`` moves all of it, so the 1x per gram is set by the
+    mass on the mounts, not the rotor's (Newton's second law; the rigid machine on
+    flexible mounts as in Den Hartog, *Mechanical Vibrations*, 4th ed., 1956, §3.3, from
+    memory). Assumed, stated: the housing's centre of mass is the rotor's and its mass is
+    spread like the rotor's, so the rocking inertia grows in the same ratio; the polar
+    inertia (the gyroscopic coupling) stays the rotor's. Without ``mounted_mass_kg`` the
+    rotor alone (the largest response any machine with this rotor can have).
+
+    Parameters
+    ----------
+    layout : RotorLayout
+
+    Returns
+    -------
+    RotorLayout
+        ``rotor_mass_kg`` the mass on the mounts, ``transverse_inertia_kg_m2`` scaled
+        with it (when given), ``polar_inertia_kg_m2`` the rotor's (given or
+        :func:`estimated_polar_inertia_kg_m2`), ``mounted_mass_kg`` as given.
+    """
+    polar = layout.polar_inertia_kg_m2 or estimated_polar_inertia_kg_m2(layout)
+    if layout.mounted_mass_kg is None or layout.mounted_mass_kg <= layout.rotor_mass_kg:
+        return replace(layout, polar_inertia_kg_m2=polar)
+    scale = layout.mounted_mass_kg / layout.rotor_mass_kg
+    transverse = layout.transverse_inertia_kg_m2
+    return replace(layout, rotor_mass_kg=layout.mounted_mass_kg,
+                   transverse_inertia_kg_m2=transverse * scale if transverse else None,
+                   polar_inertia_kg_m2=polar)
+
+
+def mounted_mass_factors(layout: RotorLayout, draws: int,
+                         rng: np.random.Generator) -> np.ndarray:
+    """Per Monte Carlo draw, the 1x per gram relative to the nominal body's: the mass on
+    the mounts is ``mounted_mass_kg`` within :data:`MOUNTED_MASS_LOG_SIGMA` (log-normal),
+    or, not given, anywhere from the rotor's to :data:`MOUNTED_MASS_MAX_FACTOR` times it
+    (log-uniform). A sweep cannot tell it: the unbalance, the mass, the stiffness and
+    the damping scaled together draw the same curve, and the 1x per gram scales as one
+    over the mass."""
+    if layout.mounted_mass_kg is not None:
+        return np.exp(-MOUNTED_MASS_LOG_SIGMA * rng.normal(size=draws))
+    return np.exp(-rng.uniform(0.0, math.log(MOUNTED_MASS_MAX_FACTOR), size=draws))
 
 
 @dataclass(frozen=True)
@@ -584,24 +645,26 @@ def predict_influence(layout: RotorLayout, pickups: Sequence[PickupPlacement], s
             raise ValueError(f"pickup {p.name!r}: bearing must be 0 or 1, got {p.bearing!r}")
     resonances = {k: tuple(v) for k, v in (resonances or {}).items()}
     omega = angular_speed_rad_s(speed_rpm)
-    masses = _lever_masses(layout)
+    # what the mounts carry and the unbalance force shakes (mounted_body)
+    body = mounted_body(layout)
+    masses = _lever_masses(body)
     distrust: list[Distrust] = []
     if np.any(masses <= 0):
         distrust.append(Distrust.NO_BEARINGS)   # centre of mass outside the bearings
-        masses = np.maximum(masses, 0.05 * layout.rotor_mass_kg)
+        masses = np.maximum(masses, 0.05 * body.rotor_mass_kg)
     z_cg = _cg(layout)
     d_bear = (np.array(layout.bearings_axial_mm) - z_cg) * 1e-3
     d_pl = (np.array(layout.planes_axial_mm) - z_cg) * 1e-3
     radius = np.array(layout.planes_radius_mm, dtype=float)
-    inertia = layout.transverse_inertia_kg_m2 or estimated_transverse_inertia_kg_m2(layout)
+    inertia = body.transverse_inertia_kg_m2 or estimated_transverse_inertia_kg_m2(body)
     inertia_sigma = 0.05 if layout.transverse_inertia_kg_m2 else 0.35
     # the 1x whirl meets I_t - I_p (gyroscopic stiffening); I_p guessed from the largest
     # radius when not given (a solid disc), with a wide band (log sigma 0.4: x/÷ 2.2 at 95 %)
-    polar = layout.polar_inertia_kg_m2 or estimated_polar_inertia_kg_m2(layout)
+    polar = body.polar_inertia_kg_m2 or estimated_polar_inertia_kg_m2(layout)
     polar_sigma = 0.05 if layout.polar_inertia_kg_m2 else 0.4
     force = 1e-3 * radius * 1e-3 * omega**2
     n_p, n_s = len(radius), len(pickups)
-    free = np.array([np.abs(force * (1.0 / layout.rotor_mass_kg
+    free = np.array([np.abs(force * (1.0 / body.rotor_mass_kg
                                      + d_pl * d_bear[p.bearing] / inertia)) for p in pickups])
     if any(p.name not in resonances for p in pickups):
         distrust.append(Distrust.NO_SWEEP)
@@ -611,11 +674,14 @@ def predict_influence(layout: RotorLayout, pickups: Sequence[PickupPlacement], s
         distrust.append(Distrust.NO_PICKUP_ANGLE)
     if any(not r.fits for rs in resonances.values() for r in rs):
         distrust.append(Distrust.SWEEP_MISFIT)
+    if layout.mounted_mass_kg is None:
+        distrust.append(Distrust.NO_MOUNTED_MASS)
     rng = np.random.default_rng(seed)
+    mass_factor = mounted_mass_factors(layout, draws, rng)
     if curve is not None and Distrust.NO_PICKUP_ANGLE not in distrust \
             and Distrust.NO_BEARINGS not in distrust:
         geometry = SupportGeometry(
-            layout.rotor_mass_kg, masses, d_bear, d_pl, radius,
+            body.rotor_mass_kg, masses, d_bear, d_pl, radius,
             np.array([d_bear[p.bearing] for p in pickups]),
             np.array([float(p.angle_from_tach_deg or 0.0) for p in pickups]))
         fit = fit_support_model(
@@ -625,16 +691,17 @@ def predict_influence(layout: RotorLayout, pickups: Sequence[PickupPlacement], s
             kept: list[Distrust] = [d for d in distrust if d not in (
                 Distrust.NO_SWEEP, Distrust.STIFFNESS_UNKNOWN, Distrust.SWEEP_MISFIT)]
             return _prediction_from_fit(fit, geometry, pickups, speed_rpm, as_found, draws,
-                                        rng, kept)
+                                        rng, kept, mass_factor)
     have_phase = not ({Distrust.NO_SWEEP, Distrust.STIFFNESS_UNKNOWN, Distrust.NO_PICKUP_ANGLE}
                       & set(distrust))
     model_err = 1.0 + MODEL_REL_SIGMA * (rng.normal(size=(draws, n_s, n_p))
                                          + 1j * rng.normal(size=(draws, n_s, n_p))) / math.sqrt(2)
     if not have_phase:
         inertia_draws = inertia * np.exp(inertia_sigma * rng.normal(size=draws))
-        samples = np.array([[np.abs(force * (1.0 / layout.rotor_mass_kg
+        samples = np.array([[np.abs(force * (1.0 / body.rotor_mass_kg
                                              + d_pl * d_bear[p.bearing] / i_t)) for p in pickups]
-                            for i_t in inertia_draws]) * np.abs(model_err)
+                            for i_t in inertia_draws]) * np.abs(model_err) \
+            * mass_factor[:, None, None]
         mag_rel = np.percentile(np.abs(samples / free[None] - 1.0), 95, axis=0)
         cov = tuple(np.diag(np.full(n_p, np.inf + 0j)) for _ in range(n_s))
         return PredictedInfluence(tuple(p.name for p in pickups), np.full((n_s, n_p), np.nan + 0j),
@@ -646,17 +713,17 @@ def predict_influence(layout: RotorLayout, pickups: Sequence[PickupPlacement], s
             angle_err_deg: float) -> tuple[np.ndarray, list[float]]:
         rs = resonances[p.name]
         k_a, k_b = stiffness_from_resonances(
-            layout.rotor_mass_kg, i_t, float(d_bear[0]), float(d_bear[1]),
+            body.rotor_mass_kg, i_t, float(d_bear[0]), float(d_bear[1]),
             [angular_speed_rad_s(r.speed_rpm) * res_scale for r in rs], mass_ratio)
         zeta = min(r.damping_ratio for r in rs) * zeta_scale
         k = np.array([k_a, k_b])
         c = 2.0 * zeta * np.sqrt(k * masses)
-        h = rigid_rotor_coefficients(layout.rotor_mass_kg, i_t, d_bear, k, c, d_pl, radius,
+        h = rigid_rotor_coefficients(body.rotor_mass_kg, i_t, d_bear, k, c, d_pl, radius,
                                      float(d_bear[p.bearing]), omega)
         assert p.angle_from_tach_deg is not None
         modes = scipy.linalg.eigvals(
             sum(kb * np.array([[1.0, d], [d, d * d]]) for kb, d in zip(k, d_bear, strict=True)),
-            np.diag([layout.rotor_mass_kg, i_t]))
+            np.diag([body.rotor_mass_kg, i_t]))
         # the 1x critical speeds: positive modes only (a disc's tilt has none)
         speeds = [float(math.sqrt(m.real)) * 30.0 / math.pi for m in modes
                   if np.isfinite(m) and m.real > 0]
@@ -680,7 +747,7 @@ def predict_influence(layout: RotorLayout, pickups: Sequence[PickupPlacement], s
             drawn[d, i] = one(i, p, 1.0 + rel95 / 1.96 * rng.normal(),
                               math.exp(DAMPING_LOG_SIGMA * rng.normal()), i_t,
                               PICKUP_ANGLE_SIGMA_DEG * rng.normal())[0]
-    drawn *= model_err
+    drawn *= model_err * mass_factor[:, None, None]
     return _from_draws(pickups, nominal, drawn, as_found, distrust)
 
 
@@ -719,11 +786,12 @@ def fitted_criticals_rpm(fit: SupportModelFit, geometry: SupportGeometry) -> lis
 def _prediction_from_fit(fit: SupportModelFit, geometry: SupportGeometry,
                          pickups: Sequence[PickupPlacement], speed_rpm: float,
                          as_found: Mapping[str, complex] | None, draws: int,
-                         rng: np.random.Generator, distrust: list[Distrust]
-                         ) -> PredictedInfluence:
+                         rng: np.random.Generator, distrust: list[Distrust],
+                         mass_factor: np.ndarray) -> PredictedInfluence:
     """:func:`predict_influence` from a support model fitted to the whole sweep: the
     coefficients at ``speed_rpm`` with the fit's uncertainty (draws of its parameters, the
-    pickups' angles and :data:`FIT_MODEL_REL_SIGMA`)."""
+    pickups' angles, :data:`FIT_MODEL_REL_SIGMA` and the mass on the mounts,
+    ``mass_factor``: :func:`mounted_mass_factors`)."""
     omega = np.array([angular_speed_rad_s(speed_rpm)])
     nominal = support_model_coefficients(fit.theta, geometry, omega)[0]
     n_s, n_p = nominal.shape
@@ -746,7 +814,7 @@ def _prediction_from_fit(fit: SupportModelFit, geometry: SupportGeometry,
     rel_sigma = max(FIT_MODEL_REL_SIGMA, fit.relative_misfit)
     model_err = 1.0 + rel_sigma * (
         rng.normal(size=(draws, n_s, n_p)) + 1j * rng.normal(size=(draws, n_s, n_p))) / math.sqrt(2)
-    drawn = drawn * angle_err[..., None] * model_err
+    drawn = drawn * angle_err[..., None] * model_err * mass_factor[:, None, None]
     return _from_draws(pickups, nominal, drawn, as_found, distrust)
 
 

@@ -102,6 +102,12 @@ class MachineProfile:
     #: solid disc as wide as the largest correction radius). The model-first correction
     #: needs it for the gyroscopic stiffening of a disc's rocking (a fan, a wheel)
     polar_inertia_kg_m2: float | None = field(default=None, metadata=limits(above=0))
+    #: everything that shakes with the rotor on its mounts, kg: for a machine on its own
+    #: feet or rubber mounts the whole machine's weight (a household scale will do); for a
+    #: rotor in bearings bolted to a heavy base, about the rotor's (optional; None: not
+    #: known). The unbalance force shakes all of it, so the model-first correction needs it
+    #: to say how far a gram moves the 1x; a coast-down cannot tell it
+    mounted_mass_kg: float | None = field(default=None, metadata=limits(above=0))
 
     def _checks(self) -> list[tuple[str, str | Rule]]:
         problems: list[tuple[str, str | Rule]] = []
@@ -128,6 +134,10 @@ class MachineProfile:
                         RuleCode.MUST_DIFFER, "with bearings, the two planes need different "
                         "axial_mm", other="planes[0].axial_mm",
                         value=f"{self.planes[1].axial_mm:g}")))
+        if self.mounted_mass_kg is not None and self.mounted_mass_kg < self.rotor_mass_kg:
+            problems.append(("mounted_mass_kg", Rule(
+                RuleCode.NOT_LESS_THAN, "must not be less than the rotor's mass (the mounts "
+                "carry the rotor too)", other="rotor_mass_kg")))
         if self.speed_min_rpm > self.speed_max_rpm:
             problems.append(("speed_min_rpm", Rule(RuleCode.NOT_MORE_THAN,
                                                    "must not exceed speed_max_rpm",

@@ -31,6 +31,7 @@ class RuleCode(str, Enum):
     """Which rule across fields a value breaks (``_checks`` of a model dataclass)."""
 
     NOT_MORE_THAN = "not-more-than"  # the field must not exceed ``other``
+    NOT_LESS_THAN = "not-less-than"  # the field must not fall below ``other``
     TWO_OR_NONE = "two-or-none"  # give exactly two entries, or none
     MUST_DIFFER = "must-differ"  # the entries' positions must differ
     NEEDED = "needed"  # the field must be given (because of ``other``)

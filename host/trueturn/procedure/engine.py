@@ -258,7 +258,8 @@ def _layout_and_placements(setup: ProcedureSetup) -> tuple[RotorLayout, list[Pic
                          (setup.bearings[0].axial_mm, setup.bearings[1].axial_mm),
                          tuple(float(p.axial_mm or 0.0) for p in planes),
                          tuple(p.radius_mm for p in planes), setup.cg_axial_mm,
-                         setup.transverse_inertia_kg_m2, setup.polar_inertia_kg_m2)
+                         setup.transverse_inertia_kg_m2, setup.polar_inertia_kg_m2,
+                         setup.mounted_mass_kg)
     angles = setup.pickup_angles_deg
     on = setup.pickup_bearings
     placements = []
@@ -308,11 +309,13 @@ class BalanceEngine:
             layout = RotorLayout(setup.rotor_mass_kg,
                                  (setup.bearings[0].axial_mm, setup.bearings[1].axial_mm),
                                  tuple(float(p.axial_mm or 0.0) for p in planes),
-                                 tuple(p.radius_mm for p in planes), setup.cg_axial_mm)
+                                 tuple(p.radius_mm for p in planes), setup.cg_axial_mm,
+                                 mounted_mass_kg=setup.mounted_mass_kg)
             # which bearing a pickup sits on is not in the profile: in order, first -> first
             pickups = [PickupPlacement(s, min(i, 1)) for i, s in enumerate(setup.sensors)]
             return predict_influence(layout, pickups, setup.speed_rpm)
-        return free_rotor_prediction(setup.sensors, setup.rotor_mass_kg,
+        # the free body: what the mounts carry when the profile says it, else the rotor
+        return free_rotor_prediction(setup.sensors, setup.mounted_mass_kg or setup.rotor_mass_kg,
                                      [p.radius_mm for p in planes], setup.speed_rpm)
 
     def _trial_prediction(self, setup: ProcedureSetup) -> PredictedInfluence:
@@ -320,7 +323,9 @@ class BalanceEngine:
         resonances (``setup.support_resonances``) the rigid rotor on its supports, kept
         when it says only a magnitude (a stiff mount: no resonance below the speed, the
         force floor applies) or when nothing speaks against it; else (near a resonance, no
-        pickup angle for a phase, no sweep) the free rigid rotor of :meth:`prediction`."""
+        pickup angle for a phase, no sweep) the free rigid rotor of :meth:`prediction`. A
+        profile without the mass on the mounts sizes from the rotor alone (its largest
+        response, so the smallest trial: the check after the run asks for more)."""
         res = setup.support_resonances
         planes = planes_for(setup)
         if (isinstance(res, dict) and len(setup.bearings) == 2
@@ -329,7 +334,7 @@ class BalanceEngine:
             pred = predict_influence(layout, placements, setup.speed_rpm, res)
             if pred.magnitude_only and Distrust.STIFFNESS_UNKNOWN in pred.distrust:
                 return pred
-            if not pred.magnitude_only and not pred.distrust:
+            if not pred.magnitude_only and not set(pred.distrust) - {Distrust.NO_MOUNTED_MASS}:
                 return pred
         return self.prediction(setup)
 

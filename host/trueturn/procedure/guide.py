@@ -177,6 +177,9 @@ class ProcedureSetup:
     transverse_inertia_kg_m2: float | None = None
     #: the rotor's polar moment of inertia, kg m^2 (machine profile; None: guessed)
     polar_inertia_kg_m2: float | None = None
+    #: everything that shakes with the rotor on its mounts, kg (machine profile; None: not
+    #: known, so the model cannot say how much a gram moves the 1x)
+    mounted_mass_kg: float | None = None
     #: the units the person sees (machine profile): the procedure's own sentences (refusals,
     #: the redo, the forces confirmed) name masses and forces in them; the facts stay g, N
     units: UnitChoice = METRIC

@@ -99,6 +99,14 @@ class RigidRotor:
     phase at each pickup: ``a -> a * (1 + nonlinearity * |a|/g * exp(i*30 deg))``, a stand-in
     for a mount that stiffens or loosens with amplitude, so influence coefficients measured
     with different trial weights differ slightly, as they do on real machines.
+
+    ``housing_mass_kg`` and ``housing_transverse_inertia_kg_m2`` (default 0: the rotor alone
+    sits on the supports) are what moves with the rotor on its mounts without turning: a
+    motor's housing, a fan's frame, the pedestals. The housing is rigid, fixed to the
+    bearings, with its centre of mass at the rotor's; it adds to the mass and the rocking
+    inertia the supports carry (so a gram of unbalance shakes the machine less) but not to
+    the unbalance, the gyroscopic coupling or the ISO 21940-11 tolerance, which are the
+    rotor's.
     """
 
     mass_kg: float
@@ -110,11 +118,15 @@ class RigidRotor:
     pickups: list[PickupMount]
     nonlinearity: float = 0.0
     tach_direction_deg: float = 0.0
+    housing_mass_kg: float = 0.0
+    housing_transverse_inertia_kg_m2: float = 0.0
     _plane_index: dict[str, int] = field(init=False, repr=False, compare=False)
 
     def __post_init__(self) -> None:
         if self.mass_kg <= 0 or self.transverse_inertia_kg_m2 <= 0:
             raise ValueError("rotor mass and transverse inertia must be positive")
+        if self.housing_mass_kg < 0 or self.housing_transverse_inertia_kg_m2 < 0:
+            raise ValueError("the housing's mass and inertia must not be negative")
         if len(self.bearings) < 1:
             raise ValueError("a rotor needs at least one bearing")
         if len({p.name for p in self.planes}) != len(self.planes):
@@ -127,14 +139,28 @@ class RigidRotor:
 
     # --- the linear model -------------------------------------------------------------------
 
+    @property
+    def mounted_mass_kg(self) -> float:
+        """What the supports carry and shake: the rotor and its housing, kg."""
+        return self.mass_kg + self.housing_mass_kg
+
+    @property
+    def mounted_transverse_inertia_kg_m2(self) -> float:
+        """The rocking inertia the supports carry: the rotor's and its housing's, kg m^2."""
+        return self.transverse_inertia_kg_m2 + self.housing_transverse_inertia_kg_m2
+
+    def _mass_matrix(self) -> np.ndarray:
+        """``diag(m, I_t, m, I_t)`` of everything on the supports (DOFs [x, a, y, b])."""
+        m, i_t = self.mounted_mass_kg, self.mounted_transverse_inertia_kg_m2
+        return np.diag([m, i_t, m, i_t])
+
     def equations_of_motion(self, omega: float
                             ) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
         """``M``, ``C + G(omega)`` and ``K`` (4 x 4, DOFs [x, a, y, b]) of
         ``M q'' + (C + G) q' + K q = f``, and the pickups' output map (pickups x 4: a
         pickup's displacement is its row times ``q``)."""
         zc = self.centre_of_mass_axial_mm * 1e-3
-        mass = np.diag([self.mass_kg, self.transverse_inertia_kg_m2,
-                        self.mass_kg, self.transverse_inertia_kg_m2])
+        mass = self._mass_matrix()
         stiff = np.zeros((4, 4))
         damp = np.zeros((4, 4))
         for b in self.bearings:
@@ -245,8 +271,7 @@ class RigidRotor:
         synchronous critical speeds of a rigid rotor on flexible supports.
         """
         dyn0, _ = self._matrices(0.0)
-        mass = np.diag([self.mass_kg, self.transverse_inertia_kg_m2,
-                        self.mass_kg, self.transverse_inertia_kg_m2]).astype(complex)
+        mass = self._mass_matrix().astype(complex)
         mass[1, 3] -= 1j * self.polar_inertia_kg_m2
         mass[3, 1] += 1j * self.polar_inertia_kg_m2
         eig = scipy.linalg.eigvals(dyn0.real, mass)
@@ -269,8 +294,8 @@ class RigidRotor:
             d = b.axial_mm * 1e-3 - zc
             k = b.stiffness_v_n_per_m if vertical else b.stiffness_h_n_per_m
             stiff += k * np.array([[1.0, d], [d, d * d]])
-        inertia = np.diag([self.mass_kg,
-                           self.transverse_inertia_kg_m2 - self.polar_inertia_kg_m2])
+        inertia = np.diag([self.mounted_mass_kg,
+                           self.mounted_transverse_inertia_kg_m2 - self.polar_inertia_kg_m2])
         return sorted(math.sqrt(e.real) * 30.0 / math.pi
                       for e in scipy.linalg.eigvals(stiff, inertia)
                       if np.isfinite(e) and e.real > 0)
@@ -278,8 +303,7 @@ class RigidRotor:
     def natural_frequencies_hz(self, speed_rpm: float = 0.0) -> list[float]:
         """Undamped natural frequencies (Hz) of the rigid-body modes, gyroscopics ignored."""
         dyn0, _ = self._matrices(0.0)
-        mass = np.diag([self.mass_kg, self.transverse_inertia_kg_m2,
-                        self.mass_kg, self.transverse_inertia_kg_m2])
+        mass = self._mass_matrix()
         eig = np.linalg.eigvals(np.linalg.solve(mass, dyn0.real))
         return sorted(float(math.sqrt(max(e.real, 0.0)) / (2 * math.pi)) for e in eig)
 

@@ -187,6 +187,10 @@ class RotorSection:
     centre_of_mass_axial_mm: float = field(default=0.0, metadata=ANY)
     nonlinearity: float = field(default=0.0, metadata=NON_NEGATIVE)
     tach_direction_deg: float = field(default=0.0, metadata=ANY)
+    #: what moves with the rotor on its mounts without turning (a motor's housing, a fan's
+    #: frame): RigidRotor.housing_mass_kg; 0: the rotor alone on its supports
+    housing_mass_kg: float = field(default=0.0, metadata=NON_NEGATIVE)
+    housing_transverse_inertia_kg_m2: float = field(default=0.0, metadata=NON_NEGATIVE)
 
 
 @dataclass(frozen=True)
@@ -297,7 +301,9 @@ class ScenarioFile:
             bearings=[b.support() for b in self.bearings],
             planes=[CorrectionPlane(p.name, p.axial_mm, p.radius_mm) for p in self.planes],
             pickups=[PickupMount(p.name, p.bearing, p.direction_deg) for p in self.pickups],
-            nonlinearity=r.nonlinearity, tach_direction_deg=r.tach_direction_deg)
+            nonlinearity=r.nonlinearity, tach_direction_deg=r.tach_direction_deg,
+            housing_mass_kg=r.housing_mass_kg,
+            housing_transverse_inertia_kg_m2=r.housing_transverse_inertia_kg_m2)
         name = self.name or fallback_name
         return Scenario(
             name=name, title=self.title or name, description=self.description.strip(),

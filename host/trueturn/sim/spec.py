@@ -145,6 +145,8 @@ def describe(scenario: Scenario, speed_rpm: float | None = None) -> dict[str, An
                   "polar_inertia_kg_m2": r.polar_inertia_kg_m2,
                   "centre_of_mass_axial_mm": r.centre_of_mass_axial_mm,
                   "nonlinearity": r.nonlinearity, "tach_direction_deg": r.tach_direction_deg,
+                  "housing_mass_kg": r.housing_mass_kg,
+                  "housing_transverse_inertia_kg_m2": r.housing_transverse_inertia_kg_m2,
                   "rigid_body_modes_hz": [round(f, 2) for f in r.natural_frequencies_hz()]},
         # the support resonances a 1x sweep meets (synchronous critical speeds, gyroscopic
         # coupling included; RigidRotor.critical_speeds_rpm)

@@ -46,6 +46,8 @@ def profile_from_scenario(scenario: Scenario) -> MachineProfile:
         cg_axial_mm=scenario.rotor.centre_of_mass_axial_mm,
         transverse_inertia_kg_m2=scenario.rotor.transverse_inertia_kg_m2,
         polar_inertia_kg_m2=scenario.rotor.polar_inertia_kg_m2 or None,
+        # the simulated machine's weight on its mounts: the rotor and its housing
+        mounted_mass_kg=scenario.rotor.mass_kg + scenario.rotor.housing_mass_kg,
         notes="Simulated rig for the demo; all numbers are invented.")
 
 
@@ -81,7 +83,8 @@ def setup_from_profile(profile: MachineProfile, mode: Mode, standstill_s: float 
         pickup_bearings=tuple(None if p.on_bearing is None else p.on_bearing - 1
                               for p in profile.pickups),
         transverse_inertia_kg_m2=profile.transverse_inertia_kg_m2,
-        polar_inertia_kg_m2=profile.polar_inertia_kg_m2)
+        polar_inertia_kg_m2=profile.polar_inertia_kg_m2,
+        mounted_mass_kg=profile.mounted_mass_kg)
 
 
 def describe_change(change: MassChange, proc: Procedure, engine: BalanceEngine,

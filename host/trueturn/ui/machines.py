@@ -62,6 +62,8 @@ PLACEHOLDERS = {
     # MachineProfile.transverse_inertia_kg_m2 (about a line across the shaft through the
     # centre of mass); blank: not known
     "inertia": "blank: not known (then trial runs)",
+    # MachineProfile.mounted_mass_kg (everything that shakes on the mounts); blank: not known
+    "mounted": "blank: not known (then trial runs)",
     # MachineProfile.polar_inertia_kg_m2 (about the shaft); blank: guessed as a solid disc
     "polar": "blank: guessed (a disc as wide as the planes)",
     # Pickup.on_bearing; blank: the pickups in order (first on the first bearing)
@@ -75,6 +77,8 @@ def form_fields(pickups: int) -> list[FormField]:
         FormField("name", "Machine name"),
         FormField("kind", "What it is (e.g. table saw arbor)"),
         FormField("mass", "Rotor mass, kg"),
+        FormField("mounted", "Weight on the mounts (machine with rotor), kg",
+                  short="the weight on the mounts"),
         FormField("speed", "Service speed, rpm"),
         FormField("speed_min", "Lowest service speed, rpm (blank: same)"),
         FormField("max_speed", "Maximum safe speed, rpm"),
@@ -191,6 +195,8 @@ def form_data(values: dict[str, str], pickups: int,
         _none_word(values.get("inertia", "")))
     put(data, "polar_inertia_kg_m2", "polar_inertia_kg_m2", "polar",
         _none_word(values.get("polar", "")))
+    put(data, "mounted_mass_kg", "mounted_mass_kg", "mounted",
+        _none_word(values.get("mounted", "")))
     old_bearings = data.get("bearings") or []
     bearings = [{"name": (old_bearings[i]["name"] if i < len(old_bearings) and
                           len(old_bearings) == 2 else f"bearing {i + 1}"), "axial_mm": v}
@@ -256,7 +262,8 @@ def form_values(profile: MachineProfile, pickups: int) -> dict[str, str]:
                   bearings=", ".join(num(b.axial_mm) for b in profile.bearings),
                   mains=str(profile.mains_hz), grade=num(profile.target_grade),
                   inertia=num(profile.transverse_inertia_kg_m2),
-                  polar=num(profile.polar_inertia_kg_m2))
+                  polar=num(profile.polar_inertia_kg_m2),
+                  mounted=num(profile.mounted_mass_kg))
     for k, plane in enumerate(profile.planes[:MAX_PLANES], start=1):
         lay = plane.layout
         positions = ("0" if lay.kind == "free" else str(lay.positions) if lay.kind == "equal"
@@ -337,6 +344,8 @@ def form_error_words(exc: SchemaError, label: Callable[[str], str],
         match rule.code:
             case RuleCode.NOT_MORE_THAN:
                 return f"{name} must not be more than {other}."
+            case RuleCode.NOT_LESS_THAN:
+                return f"{name} must not be less than {other}."
             case RuleCode.TWO_OR_NONE:
                 return f"{name}: give two positions, or leave it blank."
             case RuleCode.MUST_DIFFER:

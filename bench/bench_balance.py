@@ -5,6 +5,8 @@ Each rotor: 1-20 kg, bearings 150-500 mm apart, correction planes inside them, r
 1000-3600 rpm, a mild amplitude nonlinearity, and an as-found unbalance of 3-12 times the
 G 6.3 share per plane. Mountings alternate: stiff (both rigid-body modes 1.6-4x above the
 running speed) and soft (rubber feet: the lowest mode at 0.25-0.6x the running speed).
+Each sits in a housing (frame, pedestals) of 0-2x its mass that shakes with it on the
+mounts; the profile gives the machine's weight on its mounts, weighed within 3 %.
 Every run is taken at a speed that wanders +/-0.5 % from the set speed.
 
 Readings come out of the DSP (issue #20 item 5): each run's capture is synthesized as the
@@ -106,6 +108,10 @@ AS_FOUND_LOW, AS_FOUND_HIGH = 3.0, 12.0   # as-found unbalance per plane, in G 6
 MASS_ERR, ANGLE_ERR_DEG = 0.02, 2.0
 TRIAL_MARGIN = 2.0
 SPEED_WANDER = 0.005                      # +/-0.5 % between runs
+# what shakes with the rotor on its mounts: a housing of 0-2x the rotor's mass; the profile
+# gives the machine's weight on its mounts, weighed on a household scale within 3 % (1 sigma)
+HOUSING_MAX = 2.0
+WEIGHING_ERR = 0.03
 SWEEP_SPEED_ERR, SWEEP_DAMPING_ERR = 0.02, 0.2
 # the coast-down's curve (sweep_curve): points from the running speed down to a quarter of
 # it, one per speed bin of the app's sweep (dsp.sweep.BIN_FRACTION: 0.5 % of speed)
@@ -347,6 +353,17 @@ def random_rotor(rng: np.random.Generator, soft: bool = False,
     # rim-heavy one (0.25-0.75 M r^2; a solid disc is 0.5), drawn last so the rest of the
     # rotor is the same for the same seed
     rotor.polar_inertia_kg_m2 = mass * (radius * 1e-3) ** 2 * rng.uniform(0.25, 0.75)
+    # what shakes with it on the mounts: a housing, frame or pedestals of up to twice the
+    # rotor's mass (HOUSING_MAX), its rocking inertia spread like the rotor's within a
+    # factor 0.7-1.4; the supports stiffened and damped alike, so the modes stay where the
+    # mounting put them (drawn last, as the polar inertia)
+    housing = rng.uniform(0.0, HOUSING_MAX)
+    rotor.housing_mass_kg = housing * mass
+    rotor.housing_transverse_inertia_kg_m2 = (housing * rotor.transverse_inertia_kg_m2
+                                              * rng.uniform(0.7, 1.4))
+    rotor.bearings = [Support(b.axial_mm, *(v * (1 + housing) for v in (
+        b.stiffness_h_n_per_m, b.stiffness_v_n_per_m, b.damping_h_ns_per_m,
+        b.damping_v_ns_per_m))) for b in rotor.bearings]
     return rotor, speed
 
 
@@ -460,12 +477,20 @@ def speed_slopes(rotor: RigidRotor, speed: float, masses: list[Mass], rng) -> li
     return out
 
 
+def weighed_kg(rotor: RigidRotor) -> float:
+    """The machine's weight on its mounts as the person weighed it: within WEIGHING_ERR
+    (1 sigma) of the truth, the same for the same rotor."""
+    z = np.random.default_rng(int(rotor.mass_kg * 1e9)).normal()
+    return rotor.mounted_mass_kg * (1.0 + WEIGHING_ERR * float(z))
+
+
 def layout_of(rotor: RigidRotor) -> RotorLayout:
     """What a machine profile would say: mass, bearing and plane positions, radii, centre
-    of mass (not the transverse inertia: profiles do not carry it)."""
+    of mass, the machine's weight on its mounts (weighed_kg; not the inertias)."""
     return RotorLayout(rotor.mass_kg, (rotor.bearings[0].axial_mm, rotor.bearings[1].axial_mm),
                        tuple(p.axial_mm for p in rotor.planes),
-                       tuple(p.radius_mm for p in rotor.planes), rotor.centre_of_mass_axial_mm)
+                       tuple(p.radius_mm for p in rotor.planes), rotor.centre_of_mass_axial_mm,
+                       mounted_mass_kg=max(weighed_kg(rotor), rotor.mass_kg))
 
 
 def placements(rotor: RigidRotor) -> list[PickupPlacement]:

@@ -26,9 +26,12 @@ import pytest
 from trueturn.balance.model_first import (
     Distrust,
     PickupPlacement,
+    PredictedInfluence,
     RotorLayout,
+    SupportResonance,
     _cg,
     _lever_masses,
+    _with_rivals,
     predict_influence,
 )
 from trueturn.balance.support_fit import (
@@ -221,6 +224,42 @@ def test_a_stiff_mount_with_a_quiet_1x_is_not_trusted() -> None:
                                    curve=curve)
     assert not prediction.trusted
     assert Distrust.TOO_UNCERTAIN in prediction.distrust
+
+
+def test_a_fitted_mode_the_sweep_did_not_show_is_not_trusted() -> None:
+    # our rule (model_first._unseen_resonances): the fit's critical speed inside the
+    # sweep's clear span must be one the sweep's peak finding saw; a soft mount's fit
+    # passes with its own resonances, and fails when told the sweep found none there
+    rng = np.random.default_rng(5)
+    rotor, speed = _rotor(rng, True, 2)
+    masses = [Mass("left", 3.0, 40.0), Mass("right", 2.0, 250.0)]
+    curve = _curve(rotor, speed, masses, rng, 0.01)
+    seen = {p.name: [SupportResonance(m, 0.04) for m in rotor.direction_criticals_rpm(p)
+                     if m < speed] for p in rotor.pickups}
+    assert any(seen.values())
+    told = predict_influence(_layout(rotor), _placements(rotor), speed, seen, curve=curve)
+    assert Distrust.UNSEEN_RESONANCE not in told.distrust
+    none_seen = {p.name: [] for p in rotor.pickups}
+    blind = predict_influence(_layout(rotor), _placements(rotor), speed, none_seen, curve=curve)
+    assert Distrust.UNSEEN_RESONANCE in blind.distrust and not blind.trusted
+
+
+def test_a_rival_fit_widens_the_prediction_and_can_refuse_it() -> None:
+    # a second minimum the sweep cannot rule out (SupportModelFit.rivals): the spreads
+    # reach it, and a rival under which the offered correction would leave more than
+    # half the 1x (model_first.MAX_RESIDUAL_FRACTION_95) refuses the prediction
+    nominal = np.array([[1.0 + 0.0j], [0.5j]])
+    base = PredictedInfluence(("a", "b"), nominal, np.abs(nominal),
+                              (np.array([[1e-4 + 0j]]), np.array([[1e-4 + 0j]])),
+                              np.full((2, 1), 3.0), np.full((2, 1), 0.05), False, 0.1)
+    as_found = {"a": 2.0 + 0j, "b": 1.0j}
+    near = _with_rivals(base, [nominal * 1.2], as_found)
+    assert near.trusted and np.allclose(near.magnitude_rel_95, 0.2)
+    assert near.residual_fraction_95 == pytest.approx(0.2)
+    assert near.covariance[0][0, 0].real == pytest.approx(1e-4 + 0.04)
+    flipped = _with_rivals(base, [-nominal], as_found)
+    assert Distrust.TOO_UNCERTAIN in flipped.distrust
+    assert np.allclose(flipped.phase_95_deg, 180.0)
 
 
 def test_a_curve_too_short_leaves_the_resonance_route() -> None:

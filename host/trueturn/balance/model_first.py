@@ -122,6 +122,7 @@ class Distrust(str, Enum):
     UNCALIBRATED = "uncalibrated"        # a pickup reads volts: no unit to predict in
     NO_MOUNTED_MASS = "no-mounted-mass"  # what the mounts carry is not known: no magnitude
     CLIPPED = "clipped"                  # an as-found reading clipped: its 1x reads low
+    UNSEEN_RESONANCE = "unseen-resonance"  # the fit puts a resonance the sweep did not show
 
 
 #: each :class:`Distrust` reason worded for a person (the app's line and the report)
@@ -140,6 +141,8 @@ DISTRUST_WORDS: dict[str, str] = {
     Distrust.UNCALIBRATED.value: "a pickup reads volts (no sensitivity in the profile)",
     Distrust.NO_MOUNTED_MASS.value: "the machine profile does not say what the mounts carry "
                                     "(the weight of everything that shakes with the rotor)",
+    Distrust.UNSEEN_RESONANCE.value: "the model fitted to the coast-down puts a resonance "
+                                     "where the coast-down showed none",
     Distrust.CLIPPED.value: "a pickup's as-found signal reached the end of the ADC's range "
                             "(its 1x reads low)",
 }
@@ -690,6 +693,9 @@ def predict_influence(layout: RotorLayout, pickups: Sequence[PickupPlacement], s
         if fit is not None:
             kept: list[Distrust] = [d for d in distrust if d not in (
                 Distrust.NO_SWEEP, Distrust.STIFFNESS_UNKNOWN, Distrust.SWEEP_MISFIT)]
+            if all(p.name in resonances for p in pickups) and _unseen_resonances(
+                    fit, geometry, resonances):
+                kept.append(Distrust.UNSEEN_RESONANCE)
             return _prediction_from_fit(fit, geometry, pickups, speed_rpm, as_found, draws,
                                         rng, kept, mass_factor)
     have_phase = not ({Distrust.NO_SWEEP, Distrust.STIFFNESS_UNKNOWN, Distrust.NO_PICKUP_ANGLE}
@@ -751,7 +757,8 @@ def predict_influence(layout: RotorLayout, pickups: Sequence[PickupPlacement], s
     return _from_draws(pickups, nominal, drawn, as_found, distrust)
 
 
-def fitted_criticals_rpm(fit: SupportModelFit, geometry: SupportGeometry) -> list[float]:
+def fitted_criticals_rpm(fit: SupportModelFit, geometry: SupportGeometry,
+                         directions: Sequence[int] = (0, 1)) -> list[float]:
     """The undamped synchronous critical speeds of a fitted support model, both directions.
 
     Per direction, the modes of ``diag(m, I_t - I_p) q'' + K q = 0`` (the tilt meets
@@ -774,13 +781,35 @@ def fitted_criticals_rpm(fit: SupportModelFit, geometry: SupportGeometry) -> lis
     k = np.exp(fit.theta[:4]).reshape(2, 2)
     tilt = synchronous_tilt_inertia_kg_m2(math.exp(fit.theta[5]), math.exp(fit.theta[6]))
     out = []
-    for direction in range(2):
+    for direction in directions:
         stiff = sum(k[b, direction] * np.array([[1.0, d], [d, d * d]])
                     for b, d in enumerate(geometry.bearings_m))
         modes = scipy.linalg.eigvals(stiff, np.diag([geometry.mass_kg, tilt]))
         out += [float(math.sqrt(m.real)) * 30.0 / math.pi for m in modes
                 if np.isfinite(m) and m.real > 0]
     return sorted(out)
+
+
+#: a fitted critical speed within this fraction of one the sweep's own peak finding saw is
+#: that one (the peak finding's speed is within a few per cent; our choice)
+SEEN_RESONANCE_FRACTION = 0.1
+
+
+def _unseen_resonances(fit: SupportModelFit, geometry: SupportGeometry,
+                       seen: Mapping[str, Sequence[SupportResonance]]) -> list[float]:
+    """The fit's critical speeds (rpm) in a direction some pickup senses that lie within
+    the sweep's clear span yet match no resonance the sweep's peak finding saw (within
+    :data:`SEEN_RESONANCE_FRACTION`). Two analyses of one curve disagree: the fit has put
+    a mode where the points show no peak, trading it against what the model lacks (a
+    mount's nonlinearity, say); its prediction is then an extrapolation, not a
+    measurement (our rule)."""
+    first = math.radians(float(geometry.pickup_angles_deg[0]))
+    sensed = sorted({0 if abs(math.cos(math.radians(float(a)) - first)) >= 0.5 else 1
+                     for a in geometry.pickup_angles_deg})
+    low, high = fit.clear_span_rpm
+    speeds = [r.speed_rpm for rs in seen.values() for r in rs]
+    return [c for c in fitted_criticals_rpm(fit, geometry, sensed) if low <= c <= high
+            and not any(abs(c / s - 1.0) <= SEEN_RESONANCE_FRACTION for s in speeds if s > 0)]
 
 
 def _prediction_from_fit(fit: SupportModelFit, geometry: SupportGeometry,
@@ -815,7 +844,48 @@ def _prediction_from_fit(fit: SupportModelFit, geometry: SupportGeometry,
     model_err = 1.0 + rel_sigma * (
         rng.normal(size=(draws, n_s, n_p)) + 1j * rng.normal(size=(draws, n_s, n_p))) / math.sqrt(2)
     drawn = drawn * angle_err[..., None] * model_err * mass_factor[:, None, None]
-    return _from_draws(pickups, nominal, drawn, as_found, distrust)
+    rivals = [support_model_coefficients(t, geometry, omega)[0] for t in fit.rivals]
+    return _with_rivals(_from_draws(pickups, nominal, drawn, as_found, distrust), rivals,
+                        as_found)
+
+
+def _with_rivals(prediction: PredictedInfluence, rivals: Sequence[np.ndarray],
+                 as_found: Mapping[str, complex] | None) -> PredictedInfluence:
+    """The prediction made to hold the fits the sweep cannot rule out
+    (:attr:`SupportModelFit.rivals`, each a coefficient matrix at the speed): its 95 %
+    spreads and covariance widened to reach each, and not trusted
+    (:data:`Distrust.TOO_UNCERTAIN`) when the correction it offers would leave more than
+    :data:`MAX_RESIDUAL_FRACTION_95` of the as-found 1x were a rival the machine (without
+    an as-found reading: when a rival lies outside its spreads). A multimodal posterior's
+    modes, each taken as possible (our rule; the Laplace approximation at one mode alone
+    misses the others)."""
+    if not rivals:
+        return prediction
+    nominal = prediction.matrix
+    mag95, phase95 = prediction.magnitude_rel_95.copy(), prediction.phase_95_deg.copy()
+    cov = [c.copy() for c in prediction.covariance]
+    residual95 = prediction.residual_fraction_95
+    doubt = False
+    r0 = (np.array([as_found[n] for n in prediction.sensors])
+          if as_found is not None and all(n in as_found for n in prediction.sensors) else None)
+    c_nom = None if r0 is None else np.linalg.lstsq(nominal, -r0, rcond=None)[0]
+    for h in rivals:
+        ratio = h / nominal
+        off_mag, off_phase = np.abs(np.abs(ratio) - 1.0), np.abs(np.degrees(np.angle(ratio)))
+        if r0 is not None and c_nom is not None:
+            left = float(np.linalg.norm(r0 + h @ c_nom) / max(float(np.linalg.norm(r0)), 1e-30))
+            residual95 = max(residual95 or 0.0, left)
+            doubt |= left > MAX_RESIDUAL_FRACTION_95
+        else:
+            doubt |= bool(np.any(off_mag > mag95) or np.any(off_phase > phase95))
+        mag95, phase95 = np.maximum(mag95, off_mag), np.maximum(phase95, off_phase)
+        for i in range(nominal.shape[0]):
+            dev = h[i] - nominal[i]
+            cov[i] = cov[i] + np.outer(dev, dev.conj())
+    distrust = prediction.distrust + ((Distrust.TOO_UNCERTAIN,) if doubt else ())
+    return replace(prediction, covariance=tuple(cov), magnitude_rel_95=mag95,
+                               phase_95_deg=phase95, residual_fraction_95=residual95,
+                               distrust=tuple(dict.fromkeys(distrust)))
 
 
 def _from_draws(pickups: Sequence[PickupPlacement], nominal: np.ndarray, drawn: np.ndarray,

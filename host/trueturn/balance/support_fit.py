@@ -68,6 +68,14 @@ MIN_CURVE_SPAN = 1.25
 START_FRACTIONS = (0.25, 0.5, 0.8, 1.3, 2.0, 3.5)
 #: bounds of the natural speed k/m may imply, as fractions of the top speed
 LOWEST_FRACTION, HIGHEST_FRACTION = 0.03, 30.0
+#: a local minimum whose chi^2 exceeds the best's by at most this much (times the misfit
+#: per degree of freedom when above 1) is a rival the sweep cannot rule out: for seven
+#: parameters a chi^2 difference of 20 has a tail probability of about 0.5 % (chi-squared
+#: table), and the model is not the machine, so a better chi^2 alone does not decide
+#: (our choice)
+RIVAL_CHI2 = 20.0
+#: minima within this of each other in every log parameter are the same one
+RIVAL_SAME_LOG = 0.05
 
 
 @dataclass(frozen=True)
@@ -128,6 +136,12 @@ class SupportModelFit:
     #: the fitted curve's RMS relative deviation from the points (noise included): how far
     #: the model is from the machine along its own sweep
     relative_misfit: float = 0.0
+    #: other parameter sets a start ended in whose chi^2 lies within :data:`RIVAL_CHI2` of
+    #: the best (scaled by the misfit, like the covariance): the curve fits them nearly as
+    #: well, so a prediction must hold them too
+    rivals: tuple[np.ndarray, ...] = ()
+    #: the lowest and highest speed (rpm) with a point clear of its noise on some pickup
+    clear_span_rpm: tuple[float, float] = (0.0, math.inf)
 
 
 def support_model_coefficients(theta: np.ndarray, geometry: SupportGeometry,
@@ -291,6 +305,7 @@ def fit_support_model(geometry: SupportGeometry, curve: SweepCurve, inertia: Ine
     starts = [top * f for f in START_FRACTIONS] + [
         r * math.pi / 30.0 for r in start_natural_rpm if r > 0]
     best = None
+    ends: list[tuple[float, np.ndarray]] = []
     with np.errstate(all="ignore"):
         for w_n in starts:
             log_k = math.log(m * w_n**2 / 2)
@@ -301,8 +316,10 @@ def fit_support_model(geometry: SupportGeometry, curve: SweepCurve, inertia: Ine
                                                       method="trf")
             except (np.linalg.LinAlgError, ValueError):
                 continue
-            if np.isfinite(result.cost) and (best is None or result.cost < best.cost):
-                best = result
+            if np.isfinite(result.cost):
+                ends.append((float(result.cost), np.asarray(result.x, dtype=float)))
+                if best is None or result.cost < best.cost:
+                    best = result
     if best is None:
         return None
     theta = best.x
@@ -321,8 +338,13 @@ def fit_support_model(geometry: SupportGeometry, curve: SweepCurve, inertia: Ine
             covariance = None
     except np.linalg.LinAlgError:
         covariance = None
+    # other minima the starts ended in, nearly as good: the sweep cannot rule them out
+    reach = RIVAL_CHI2 / 2.0 * max(misfit, 1.0)
+    rivals = tuple(x for c, x in ends if c - float(best.cost) <= reach
+                   and float(np.max(np.abs(x - theta))) > RIVAL_SAME_LOG)
+    heard = speeds[np.any(clear, axis=1)]
     return SupportModelFit(theta, covariance, u, misfit, int(speeds.size), lower, upper,
-                           relative)
+                           relative, rivals, (float(heard.min()), float(heard.max())))
 
 
 def fit_draws(fit: SupportModelFit, draws: int, rng: np.random.Generator) -> np.ndarray:

@@ -790,26 +790,23 @@ def fitted_criticals_rpm(fit: SupportModelFit, geometry: SupportGeometry,
     return sorted(out)
 
 
-#: a fitted critical speed within this fraction of one the sweep's own peak finding saw is
-#: that one (the peak finding's speed is within a few per cent; our choice)
-SEEN_RESONANCE_FRACTION = 0.1
-
-
 def _unseen_resonances(fit: SupportModelFit, geometry: SupportGeometry,
                        seen: Mapping[str, Sequence[SupportResonance]]) -> list[float]:
-    """The fit's critical speeds (rpm) in a direction some pickup senses that lie within
-    the sweep's clear span yet match no resonance the sweep's peak finding saw (within
-    :data:`SEEN_RESONANCE_FRACTION`). Two analyses of one curve disagree: the fit has put
-    a mode where the points show no peak, trading it against what the model lacks (a
+    """When the sweep's peak finding saw no resonance at all below the speed (a stiff
+    mount), the fit's critical speeds (rpm) in a direction some pickup senses that lie
+    within the sweep's clear span. Two analyses of one curve disagree: the fit has put a
+    mode where the points show no peak, trading it against what the model lacks (a
     mount's nonlinearity, say); its prediction is then an extrapolation, not a
-    measurement (our rule)."""
+    measurement (our rule). A sweep that did show a resonance may well hide a weaker one
+    (a rocking mode the unbalance hardly excites) that the fit finds by the curve's
+    shape, so then nothing is said."""
+    if any(seen.values()):
+        return []
     first = math.radians(float(geometry.pickup_angles_deg[0]))
     sensed = sorted({0 if abs(math.cos(math.radians(float(a)) - first)) >= 0.5 else 1
                      for a in geometry.pickup_angles_deg})
     low, high = fit.clear_span_rpm
-    speeds = [r.speed_rpm for rs in seen.values() for r in rs]
-    return [c for c in fitted_criticals_rpm(fit, geometry, sensed) if low <= c <= high
-            and not any(abs(c / s - 1.0) <= SEEN_RESONANCE_FRACTION for s in speeds if s > 0)]
+    return [c for c in fitted_criticals_rpm(fit, geometry, sensed) if low <= c <= high]
 
 
 def _prediction_from_fit(fit: SupportModelFit, geometry: SupportGeometry,

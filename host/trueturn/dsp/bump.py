@@ -49,9 +49,11 @@ Method
   ``MATCH_FRACTION``, one per tap). With two taps or more a mode needs two agreeing taps
   (else finding ``mode_unconfirmed``); its frequency and damping are the means, their
   standard errors the larger of the tap-to-tap scatter's (``s / sqrt(n)``) and the fits' own
-  (``sqrt(sum se_i^2) / n``). A recording with one usable tap gives that tap's fit alone
-  (finding ``single_tap``: the standard error then holds the noise only, not how taps
-  differ).
+  (``sqrt(sum se_i^2) / n``), never below ``FREQUENCY_REL_FLOOR`` (0.2 %) and
+  ``DAMPING_REL_FLOOR`` (5 %) of the value: repeated taps say how well they repeat, not
+  how far the mode moves with how hard it rings. A recording with one usable tap gives
+  that tap's fit alone (finding ``single_tap``: the standard error then holds the noise
+  and the floors only, not how taps differ).
 
 Limits (said plainly): the structure must be linear and still (a rotor turning behind a
 dark tach puts a line that does not decay: finding ``steady_line``); modes closer than
@@ -139,6 +141,12 @@ MAINS_FREQUENCIES_HZ = (50.0, 60.0)
 #: the running speed is near a mode within this share of it: the usual 15 % separation
 #: (common practice, no source; as balance.model_first.NEAR_RESONANCE_FRACTION)
 RUNNING_SPEED_MARGIN = 0.15
+#: floors on a mode's standard errors, relative: the taps' own scatter says how well they
+#: repeat, not how far the machine's mode is from that number on another day; a mount's
+#: stiffness moves with how hard it rings and with temperature (our choice; common
+#: practice, no source)
+FREQUENCY_REL_FLOOR = 0.002
+DAMPING_REL_FLOOR = 0.05
 
 
 @dataclass(frozen=True)
@@ -563,6 +571,8 @@ def _combine(pickup: str, group: list[tuple[int, PoleFit]]) -> BumpMode:
     if n >= 2:
         fit_f = max(fit_f, float(np.std(f, ddof=1)) / math.sqrt(n))
         fit_z = max(fit_z, float(np.std(z, ddof=1)) / math.sqrt(n))
+    fit_f = max(fit_f, FREQUENCY_REL_FLOOR * float(f.mean()))
+    fit_z = max(fit_z, DAMPING_REL_FLOOR * float(z.mean()))
     return BumpMode(pickup=pickup, frequency_hz=float(f.mean()), frequency_se_hz=fit_f,
                     damping_ratio=float(z.mean()), damping_se=fit_z, taps=n,
                     amplitude=float(np.mean([e.amplitude for _, e in group])))

@@ -307,8 +307,8 @@ def _sentence(f: Finding) -> str:
         return (f"tap {_n(f, 'tap')} at {_n(f, 'time_s'):.2f} s drove the pickup to the ADC "
                 f"limit ({n} samples); its decay is fitted after the last one - strike softer")
     if c is Code.SINGLE_TAP:
-        return ("the modes come from one tap alone: their uncertainty holds the noise only, "
-                "not how taps differ; tap a few more times for a check")
+        return ("the modes come from one tap alone: their uncertainty holds the noise and a "
+                "floor, not how taps differ; tap a few more times for a check")
     if c is Code.MODE_UNCONFIRMED:
         return (f"a ringing at {_n(f, 'frequency_hz'):.1f} Hz was seen in one of "
                 f"{_n(f, 'taps_usable')} taps only; not reported as a mode")

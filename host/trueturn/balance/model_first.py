@@ -229,7 +229,9 @@ def mounted_body(layout: RotorLayout) -> RotorLayout:
     memory). Assumed, stated: the housing's centre of mass is the rotor's and its mass is
     spread like the rotor's, so the rocking inertia grows in the same ratio; the polar
     inertia (the gyroscopic coupling) stays the rotor's. Without ``mounted_mass_kg`` the
-    rotor alone (the largest response any machine with this rotor can have).
+    rotor alone (the largest response any machine with this rotor can have). The same
+    body as the simulator's rotor with a housing (``RigidRotor.housing_mass_kg``), checked
+    against Newton's second law in tests/test_balance_mounted_mass.py.
 
     Parameters
     ----------
@@ -241,6 +243,11 @@ def mounted_body(layout: RotorLayout) -> RotorLayout:
         ``rotor_mass_kg`` the mass on the mounts, ``transverse_inertia_kg_m2`` scaled
         with it (when given), ``polar_inertia_kg_m2`` the rotor's (given or
         :func:`estimated_polar_inertia_kg_m2`), ``mounted_mass_kg`` as given.
+
+    References
+    ----------
+    .. [1] Den Hartog, J. P., *Mechanical Vibrations*, 4th ed., 1956, §3.3 (rotating
+       unbalance on a sprung mass; from memory).
     """
     polar = layout.polar_inertia_kg_m2 or estimated_polar_inertia_kg_m2(layout)
     if layout.mounted_mass_kg is None or layout.mounted_mass_kg <= layout.rotor_mass_kg:
@@ -254,12 +261,33 @@ def mounted_body(layout: RotorLayout) -> RotorLayout:
 
 def mounted_mass_factors(layout: RotorLayout, draws: int,
                          rng: np.random.Generator) -> np.ndarray:
-    """Per Monte Carlo draw, the 1x per gram relative to the nominal body's: the mass on
-    the mounts is ``mounted_mass_kg`` within :data:`MOUNTED_MASS_LOG_SIGMA` (log-normal),
-    or, not given, anywhere from the rotor's to :data:`MOUNTED_MASS_MAX_FACTOR` times it
-    (log-uniform). A sweep cannot tell it: the unbalance, the mass, the stiffness and
-    the damping scaled together draw the same curve, and the 1x per gram scales as one
-    over the mass."""
+    """Per Monte Carlo draw, the 1x per gram relative to the nominal body's.
+
+    The mass on the mounts is ``mounted_mass_kg`` within :data:`MOUNTED_MASS_LOG_SIGMA`
+    (log-normal), or, not given, anywhere from the rotor's to
+    :data:`MOUNTED_MASS_MAX_FACTOR` times it (log-uniform). A sweep cannot tell it: the
+    unbalance, the mass, the stiffness and the damping scaled together draw the same
+    curve, and the 1x per gram scales as one over the mass.
+
+    Parameters
+    ----------
+    layout : RotorLayout
+        Its ``mounted_mass_kg`` (None: not known).
+    draws : int
+        How many draws.
+    rng : numpy.random.Generator
+
+    Returns
+    -------
+    numpy.ndarray
+        (draws,) factors on the nominal body's coefficients (:func:`mounted_body`).
+
+    References
+    ----------
+    .. [1] Similarity of the equations of motion: ``M q'' + C q' + K q = F`` is unchanged
+       when ``M``, ``C``, ``K`` and ``F`` are scaled alike (any vibration text; from
+       memory). Sigma and range: our choice.
+    """
     if layout.mounted_mass_kg is not None:
         return np.exp(-MOUNTED_MASS_LOG_SIGMA * rng.normal(size=draws))
     return np.exp(-rng.uniform(0.0, math.log(MOUNTED_MASS_MAX_FACTOR), size=draws))
@@ -768,6 +796,8 @@ def fitted_criticals_rpm(fit: SupportModelFit, geometry: SupportGeometry,
     ----------
     fit : SupportModelFit
     geometry : SupportGeometry
+    directions : sequence of int, default (0, 1)
+        Along (0) and across (1) the first pickup: which directions' modes to list.
 
     Returns
     -------

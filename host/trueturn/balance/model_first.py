@@ -889,30 +889,39 @@ def _with_rivals(prediction: PredictedInfluence, rivals: Sequence[np.ndarray],
     if not rivals:
         return prediction
     nominal = prediction.matrix
-    mag95, phase95 = prediction.magnitude_rel_95.copy(), prediction.phase_95_deg.copy()
-    cov = [c.copy() for c in prediction.covariance]
+    h = np.array(rivals)
+    ratio = h / nominal[None]
+    off_mag = np.abs(np.abs(ratio) - 1.0).max(axis=0)
+    off_phase = np.abs(np.degrees(np.angle(ratio))).max(axis=0)
     residual95 = prediction.residual_fraction_95
-    doubt = False
-    r0 = (np.array([as_found[n] for n in prediction.sensors])
-          if as_found is not None and all(n in as_found for n in prediction.sensors) else None)
-    c_nom = None if r0 is None else np.linalg.lstsq(nominal, -r0, rcond=None)[0]
-    for h in rivals:
-        ratio = h / nominal
-        off_mag, off_phase = np.abs(np.abs(ratio) - 1.0), np.abs(np.degrees(np.angle(ratio)))
-        if r0 is not None and c_nom is not None:
-            left = float(np.linalg.norm(r0 + h @ c_nom) / max(float(np.linalg.norm(r0)), 1e-30))
-            residual95 = max(residual95 or 0.0, left)
-            doubt |= left > MAX_RESIDUAL_FRACTION_95
-        else:
-            doubt |= bool(np.any(off_mag > mag95) or np.any(off_phase > phase95))
-        mag95, phase95 = np.maximum(mag95, off_mag), np.maximum(phase95, off_phase)
-        for i in range(nominal.shape[0]):
-            dev = h[i] - nominal[i]
-            cov[i] = cov[i] + np.outer(dev, dev.conj())
+    left = _left_fractions(prediction.sensors, nominal, h, as_found)
+    if left is None:
+        doubt = bool(np.any(off_mag > prediction.magnitude_rel_95)
+                     or np.any(off_phase > prediction.phase_95_deg))
+    else:
+        residual95 = max(residual95 or 0.0, float(left.max()))
+        doubt = bool(left.max() > MAX_RESIDUAL_FRACTION_95)
+    dev = h - nominal[None]
+    cov = tuple(c + np.einsum("rj,rk->jk", dev[:, i, :], dev[:, i, :].conj())
+                for i, c in enumerate(prediction.covariance))
     distrust = prediction.distrust + ((Distrust.TOO_UNCERTAIN,) if doubt else ())
-    return replace(prediction, covariance=tuple(cov), magnitude_rel_95=mag95,
-                               phase_95_deg=phase95, residual_fraction_95=residual95,
-                               distrust=tuple(dict.fromkeys(distrust)))
+    return replace(prediction, covariance=cov,
+                   magnitude_rel_95=np.maximum(prediction.magnitude_rel_95, off_mag),
+                   phase_95_deg=np.maximum(prediction.phase_95_deg, off_phase),
+                   residual_fraction_95=residual95, distrust=tuple(dict.fromkeys(distrust)))
+
+
+def _left_fractions(sensors: Sequence[str], nominal: np.ndarray, coefficients: np.ndarray,
+                    as_found: Mapping[str, complex] | None) -> np.ndarray | None:
+    """The share of the as-found 1x the nominal coefficients' correction would leave were
+    each of ``coefficients`` (sets x pickups x planes) the machine's; None without an
+    as-found reading on every pickup."""
+    if as_found is None or not all(n in as_found for n in sensors):
+        return None
+    r0 = np.array([as_found[n] for n in sensors])
+    c_nom, *_ = np.linalg.lstsq(nominal, -r0, rcond=None)
+    return np.linalg.norm(r0[None] + coefficients @ c_nom, axis=1) / max(
+        float(np.linalg.norm(r0)), 1e-30)
 
 
 def _from_draws(pickups: Sequence[PickupPlacement], nominal: np.ndarray, drawn: np.ndarray,
@@ -931,11 +940,8 @@ def _from_draws(pickups: Sequence[PickupPlacement], nominal: np.ndarray, drawn: 
     phase95 = np.percentile(np.abs(np.degrees(np.angle(ratio))), 95, axis=0)
     mag95 = np.percentile(np.abs(np.abs(ratio) - 1.0), 95, axis=0)
     residual95 = None
-    if as_found is not None and all(p.name in as_found for p in pickups):
-        r0 = np.array([as_found[p.name] for p in pickups])
-        c_nom, *_ = np.linalg.lstsq(nominal, -r0, rcond=None)
-        left = np.linalg.norm(r0[None] + drawn @ c_nom, axis=1) / max(
-            float(np.linalg.norm(r0)), 1e-30)
+    left = _left_fractions([p.name for p in pickups], nominal, drawn, as_found)
+    if left is not None:
         residual95 = float(np.percentile(left, 95))
         if residual95 > MAX_RESIDUAL_FRACTION_95:
             distrust.append(Distrust.TOO_UNCERTAIN)

@@ -3,6 +3,10 @@ PYTHON ?= python3
 VENV   ?= .venv
 PY     := $(VENV)/bin/python
 STAMP  := $(VENV)/.installed
+# numpy's BLAS in one thread: our matrices are tiny (4x4 solves, a few hundred rows), and
+# on a two-core machine BLAS threads cost more than they save (the support-fit honesty
+# tests ran 43 s threaded, 27 s in one thread, 2026-12-03); the app sets the same
+export OPENBLAS_NUM_THREADS ?= 1
 
 .PHONY: demo test test-python lint typecheck bench firmware firmware-image clean
 

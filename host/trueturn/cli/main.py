@@ -4,12 +4,18 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import os
 import sys
 import warnings
 from collections.abc import Sequence
 
 from trueturn import __version__
 from trueturn.errors import UserError, one_line
+
+# numpy's BLAS in one thread, set before any command imports numpy: our matrices are tiny
+# (4x4 solves, a few hundred rows), BLAS threads cost more than they save on a two-core
+# laptop and contend with the serial reader (measured on the support fit, 2026-12-03)
+os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
 
 # Subcommand name -> (module in trueturn.cli defining ``add_parser(subparsers)``, one-line help).
 # Only the chosen command's module is imported, so `trueturn dump` does not pay for scipy or

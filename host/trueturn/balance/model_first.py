@@ -691,7 +691,8 @@ def predict_influence(layout: RotorLayout, pickups: Sequence[PickupPlacement], s
     inertia_sigma = 0.05 if layout.transverse_inertia_kg_m2 else 0.35
     # the 1x whirl meets I_t - I_p (gyroscopic stiffening); I_p guessed from the largest
     # radius when not given (a solid disc), with a wide band (log sigma 0.4: x/÷ 2.2 at 95 %)
-    polar = body.polar_inertia_kg_m2 or estimated_polar_inertia_kg_m2(layout)
+    polar = body.polar_inertia_kg_m2   # mounted_body: the layout's, else the estimate
+    assert polar is not None
     polar_sigma = 0.05 if layout.polar_inertia_kg_m2 else 0.4
     force = 1e-3 * radius * 1e-3 * omega**2
     n_p, n_s = len(radius), len(pickups)

@@ -249,11 +249,13 @@ def speed_slopes_from_sweeps(sweeps: Sequence[Sweep], units: Mapping[str, str],
     return ()
 
 
-def _layout_and_placements(setup: ProcedureSetup) -> tuple[RotorLayout, list[PickupPlacement]]:
+def _layout_and_placements(setup: ProcedureSetup, planes: Sequence[Plane] | None = None
+                           ) -> tuple[RotorLayout, list[PickupPlacement]]:
     """What the profile says of the rotor and where each pickup sits, as the model takes
     them (a pickup whose bearing the profile does not name: in order, the first on the
-    first bearing). The profile must give both bearings and every plane's position."""
-    planes = planes_for(setup)
+    first bearing), for ``planes`` (default: the procedure's, :func:`planes_for`). The
+    profile must give both bearings and every plane's position."""
+    planes = planes_for(setup) if planes is None else tuple(planes)
     layout = RotorLayout(setup.rotor_mass_kg,
                          (setup.bearings[0].axial_mm, setup.bearings[1].axial_mm),
                          tuple(float(p.axial_mm or 0.0) for p in planes),
@@ -306,14 +308,8 @@ class BalanceEngine:
         rigid rotor; :mod:`trueturn.balance.model_first`)."""
         planes = setup.planes
         if len(setup.bearings) == 2 and all(p.axial_mm is not None for p in planes):
-            layout = RotorLayout(setup.rotor_mass_kg,
-                                 (setup.bearings[0].axial_mm, setup.bearings[1].axial_mm),
-                                 tuple(float(p.axial_mm or 0.0) for p in planes),
-                                 tuple(p.radius_mm for p in planes), setup.cg_axial_mm,
-                                 mounted_mass_kg=setup.mounted_mass_kg)
-            # which bearing a pickup sits on is not in the profile: in order, first -> first
-            pickups = [PickupPlacement(s, min(i, 1)) for i, s in enumerate(setup.sensors)]
-            return predict_influence(layout, pickups, setup.speed_rpm)
+            layout, placements = _layout_and_placements(setup, planes)
+            return predict_influence(layout, placements, setup.speed_rpm)
         # the free body: what the mounts carry when the profile says it, else the rotor
         return free_rotor_prediction(setup.sensors, setup.mounted_mass_kg or setup.rotor_mass_kg,
                                      [p.radius_mm for p in planes], setup.speed_rpm)

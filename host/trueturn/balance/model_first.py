@@ -46,12 +46,16 @@ import scipy.linalg
 
 from trueturn.balance.iso21940 import angular_speed_rad_s
 from trueturn.balance.support_fit import (
+    STANDSTILL_REL_FLOOR,
     InertiaPrior,
+    StandstillMode,
     SupportGeometry,
     SupportModelFit,
     SweepCurve,
     fit_draws,
     fit_support_model,
+    sensed_directions,
+    standstill_frequencies_hz,
     support_model_coefficients,
 )
 
@@ -106,6 +110,10 @@ MOUNTED_MASS_LOG_SIGMA = 0.1
 #: body; our choice, no source): drawn log-uniform, the prediction's magnitude that much
 #: in doubt
 MOUNTED_MASS_MAX_FACTOR = 4.0
+#: a fitted standstill frequency within this many of a tap's relative errors (floored at
+#: support_fit.STANDSTILL_REL_FLOOR) of a mode the tap found is that mode (about 3 sigma:
+#: our choice)
+TAP_MATCH_SIGMA = 3.0
 
 
 class Distrust(str, Enum):
@@ -603,7 +611,9 @@ def predict_influence(layout: RotorLayout, pickups: Sequence[PickupPlacement], s
                       resonances: Mapping[str, Sequence[SupportResonance]] | None = None,
                       as_found: Mapping[str, complex] | None = None,
                       draws: int = 300, seed: int = 0,
-                      curve: SweepCurve | None = None) -> PredictedInfluence:
+                      curve: SweepCurve | None = None,
+                      standstill: Mapping[str, Sequence[StandstillMode]] | None = None
+                      ) -> PredictedInfluence:
     """Influence coefficients of a rigid rotor on two flexible supports, with uncertainty.
 
     Parameters
@@ -633,6 +643,12 @@ def predict_influence(layout: RotorLayout, pickups: Sequence[PickupPlacement], s
         (:func:`trueturn.balance.support_fit.fit_support_model`: stiffness along and
         across, damping, the inertias) and the prediction's uncertainty is the fit's own
         covariance; a curve too short to fit leaves the ``resonances`` route.
+    standstill : mapping of str to sequence of StandstillMode, or None, default None
+        Per pickup, the natural frequencies a tap (bump) test found at standstill
+        (:class:`trueturn.balance.support_fit.StandstillMode`): with a ``curve``, the fit
+        is held to them (a stiff mount's coast-down cannot tell its stiffness, a tap
+        can), and a fitted resonance a tap found is not "unseen"
+        (:data:`Distrust.UNSEEN_RESONANCE`). Without a curve they are not used.
 
     Returns
     -------
@@ -716,14 +732,15 @@ def predict_influence(layout: RotorLayout, pickups: Sequence[PickupPlacement], s
             body.rotor_mass_kg, masses, d_bear, d_pl, radius,
             np.array([d_bear[p.bearing] for p in pickups]),
             np.array([float(p.angle_from_tach_deg or 0.0) for p in pickups]))
+        tapped = tuple(tuple((standstill or {}).get(p.name, ())) for p in pickups)
         fit = fit_support_model(
             geometry, curve, InertiaPrior(inertia, inertia_sigma, polar, polar_sigma),
-            tuple(r.speed_rpm for rs in resonances.values() for r in rs))
+            tuple(r.speed_rpm for rs in resonances.values() for r in rs), tapped)
         if fit is not None:
             kept: list[Distrust] = [d for d in distrust if d not in (
                 Distrust.NO_SWEEP, Distrust.STIFFNESS_UNKNOWN, Distrust.SWEEP_MISFIT)]
             if all(p.name in resonances for p in pickups) and _unseen_resonances(
-                    fit, geometry, resonances):
+                    fit, geometry, resonances, tapped):
                 kept.append(Distrust.UNSEEN_RESONANCE)
             return _prediction_from_fit(fit, geometry, pickups, speed_rpm, as_found, draws,
                                         rng, kept, mass_factor)
@@ -822,7 +839,8 @@ def fitted_criticals_rpm(fit: SupportModelFit, geometry: SupportGeometry,
 
 
 def _unseen_resonances(fit: SupportModelFit, geometry: SupportGeometry,
-                       seen: Mapping[str, Sequence[SupportResonance]]) -> list[float]:
+                       seen: Mapping[str, Sequence[SupportResonance]],
+                       tapped: Sequence[Sequence[StandstillMode]] = ()) -> list[float]:
     """When the sweep's peak finding saw no resonance at all below the speed (a stiff
     mount), the fit's critical speeds (rpm) in a direction some pickup senses that lie
     within the sweep's clear span. Two analyses of one curve disagree: the fit has put a
@@ -830,14 +848,40 @@ def _unseen_resonances(fit: SupportModelFit, geometry: SupportGeometry,
     mount's nonlinearity, say); its prediction is then an extrapolation, not a
     measurement (our rule). A sweep that did show a resonance may well hide a weaker one
     (a rocking mode the unbalance hardly excites) that the fit finds by the curve's
-    shape, so then nothing is said."""
+    shape, so then nothing is said. A critical whose direction a tap test measured is
+    seen too: the tap found each of that direction's standstill modes (within
+    :data:`TAP_MATCH_SIGMA` of its error, floored at
+    :data:`~trueturn.balance.support_fit.STANDSTILL_REL_FLOOR`), so the fit's mode there
+    is a measurement, not a guess."""
     if any(seen.values()):
         return []
     first = math.radians(float(geometry.pickup_angles_deg[0]))
     sensed = sorted({0 if abs(math.cos(math.radians(float(a)) - first)) >= 0.5 else 1
                      for a in geometry.pickup_angles_deg})
     low, high = fit.clear_span_rpm
-    return [c for c in fitted_criticals_rpm(fit, geometry, sensed) if low <= c <= high]
+    at_rest = standstill_frequencies_hz(fit.theta, geometry)
+    out = []
+    for direction in sensed:
+        if _tap_found_all(at_rest[direction], direction, geometry, tapped):
+            continue
+        out += [c for c in fitted_criticals_rpm(fit, geometry, (direction,)) if low <= c <= high]
+    return sorted(out)
+
+
+def _tap_found_all(model_hz: np.ndarray, direction: int, geometry: SupportGeometry,
+                   tapped: Sequence[Sequence[StandstillMode]]) -> bool:
+    """Whether a tap on pickups that see ``direction`` found every one of the fitted
+    model's standstill frequencies there (``model_hz``), each within
+    :data:`TAP_MATCH_SIGMA` of a found mode's relative error (floored at
+    :data:`~trueturn.balance.support_fit.STANDSTILL_REL_FLOOR`)."""
+    found = [mode for i, modes in enumerate(tapped) if i < geometry.pickup_angles_deg.size
+             and direction in sensed_directions(geometry, i) for mode in modes
+             if 0 < mode.frequency_hz < math.inf and 0 <= mode.frequency_se_hz < math.inf]
+    if not found or model_hz.size == 0:
+        return False
+    return all(any(abs(math.log(f / m.frequency_hz)) <= TAP_MATCH_SIGMA * max(
+        m.frequency_se_hz / m.frequency_hz, STANDSTILL_REL_FLOOR) for m in found)
+        for f in model_hz if f > 0)
 
 
 def _prediction_from_fit(fit: SupportModelFit, geometry: SupportGeometry,

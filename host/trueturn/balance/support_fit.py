@@ -39,9 +39,11 @@ References
 from __future__ import annotations
 
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
+import scipy.linalg
 import scipy.optimize
 
 #: parameters, in order: ln k (bearing 0, along), ln k (bearing 0, across), ln k (bearing 1,
@@ -74,6 +76,15 @@ START_FRACTIONS = (0.25, 0.5, 0.8, 1.3, 2.0, 3.5)
 #: equal to 3 digits)
 FIT_XTOL = 1e-4
 FIT_FTOL = 1e-5
+#: a standstill mode's relative 1 sigma floor in the fit: a tap's frequency is measured to
+#: a fraction of a percent (dsp.bump.FREQUENCY_REL_FLOOR), but the model is not the
+#: machine (a housing that is not quite rigid, mounts whose stiffness changes a little
+#: between a tap's small motion and the running 1x, the lever-rule masses), so the fit is
+#: held to the tap no closer than this (our choice, no source)
+STANDSTILL_REL_FLOOR = 0.03
+#: a pickup within this angle (degrees) of the first pickup's direction, or of across
+#: it, sees only that direction's modes; between, it sees both (our choice)
+DIRECTION_TOLERANCE_DEG = 15.0
 #: bounds of the natural speed k/m may imply, as fractions of the top speed
 LOWEST_FRACTION, HIGHEST_FRACTION = 0.03, 30.0
 #: a local minimum whose chi^2 exceeds the best's by at most this much (times the misfit
@@ -97,6 +108,15 @@ class SweepCurve:
     speeds_rpm: np.ndarray
     phasors_m_s2: np.ndarray
     sigma_m_s2: np.ndarray
+
+
+@dataclass(frozen=True)
+class StandstillMode:
+    """A natural frequency a tap (bump) test found at standstill on one pickup: frequency
+    (Hz) and its standard error (Hz), as :class:`trueturn.dsp.bump.BumpMode` gives them."""
+
+    frequency_hz: float
+    frequency_se_hz: float
 
 
 @dataclass(frozen=True)
@@ -215,6 +235,77 @@ def support_model_coefficients(theta: np.ndarray, geometry: SupportGeometry,
     return np.conj(-(w**2) * np.einsum("pq,sqj->spj", out, disp))
 
 
+def standstill_frequencies_hz(theta: np.ndarray, geometry: SupportGeometry
+                               ) -> tuple[np.ndarray, np.ndarray]:
+    """The support model's undamped natural frequencies at standstill, along and across the
+    first pickup's direction.
+
+    With the shaft at rest there is no gyroscopic coupling, so each direction's
+    translation and tilt are the generalised eigenproblem ``K q = w^2 M q`` with
+    ``M = diag(m, I_t)`` (the full transverse inertia, not the 1x whirl's ``I_t - I_p``)
+    and ``K`` the two supports' ``k [[1, d], [d, d^2]]`` in that direction.
+
+    Parameters
+    ----------
+    theta : ndarray
+        The :data:`N_PARAMETERS` parameters (logarithms).
+    geometry : SupportGeometry
+
+    Returns
+    -------
+    tuple of ndarray
+        Along, across: each direction's two frequencies (Hz), lowest first.
+
+    References
+    ----------
+    .. [1] The undamped free vibration of a multi-degree-of-freedom system, the
+       eigenvalue problem of ``K`` and ``M`` (any vibration text, e.g. Rao, *Mechanical
+       Vibrations*; from memory).
+    """
+    k = np.exp(np.asarray(theta[:4], dtype=float)).reshape(2, 2)
+    mass = np.diag([geometry.mass_kg, math.exp(float(theta[5]))])
+    out = []
+    for direction in (0, 1):
+        stiff = np.zeros((2, 2))
+        for b in range(2):
+            d = float(geometry.bearings_m[b])
+            stiff += k[b, direction] * np.array([[1.0, d], [d, d * d]])
+        w2 = scipy.linalg.eigh(stiff, mass, eigvals_only=True)
+        out.append(np.sqrt(np.clip(w2, 0.0, None)) / (2.0 * math.pi))
+    return out[0], out[1]
+
+
+def sensed_directions(geometry: SupportGeometry, pickup: int) -> tuple[int, ...]:
+    """Which directions' modes a pickup sees: along the first pickup's (0), across it (1),
+    or both when it points between (:data:`DIRECTION_TOLERANCE_DEG`)."""
+    turn = math.radians(float(geometry.pickup_angles_deg[pickup])
+                        - float(geometry.pickup_angles_deg[0]))
+    near = math.cos(math.radians(DIRECTION_TOLERANCE_DEG))
+    if abs(math.cos(turn)) >= near:
+        return (0,)
+    if abs(math.sin(turn)) >= near:
+        return (1,)
+    return (0, 1)
+
+
+def _standstill_residuals(theta: np.ndarray, geometry: SupportGeometry,
+                          modes: Sequence[Sequence[StandstillMode]]) -> list[float]:
+    """Per measured mode: the log distance to the nearest of the model's standstill
+    frequencies its pickup sees, in units of its relative standard error (at least
+    :data:`STANDSTILL_REL_FLOOR`)."""
+    along, across = standstill_frequencies_hz(theta, geometry)
+    blocks = (along, across)
+    out = []
+    for pickup, found in enumerate(modes):
+        model = np.concatenate([blocks[d] for d in sensed_directions(geometry, pickup)])
+        model = np.log(np.clip(model, 1e-9, None))
+        for mode in found:
+            gap = model - math.log(mode.frequency_hz)
+            rel = max(mode.frequency_se_hz / mode.frequency_hz, STANDSTILL_REL_FLOOR)
+            out.append(float(gap[np.argmin(np.abs(gap))]) / rel)
+    return out
+
+
 def _usable(curve: SweepCurve) -> tuple[np.ndarray, np.ndarray, np.ndarray] | None:
     """The curve's points where a pickup's 1x is clear of its noise, and their sigmas
     (with :data:`POINT_REL_FLOOR`; a value not clear gets an infinite sigma, weight 0);
@@ -240,7 +331,9 @@ def _usable(curve: SweepCurve) -> tuple[np.ndarray, np.ndarray, np.ndarray] | No
 
 
 def fit_support_model(geometry: SupportGeometry, curve: SweepCurve, inertia: InertiaPrior,
-                      start_natural_rpm: tuple[float, ...] = ()) -> SupportModelFit | None:
+                      start_natural_rpm: tuple[float, ...] = (),
+                      standstill: Sequence[Sequence[StandstillMode]] = ()
+                      ) -> SupportModelFit | None:
     """Fit the supports' stiffness, damping and the rotor's inertias to a sweep.
 
     Parameters
@@ -254,6 +347,13 @@ def fit_support_model(geometry: SupportGeometry, curve: SweepCurve, inertia: Ine
         across stiffness's about the along one :data:`ACROSS_STIFFNESS_LOG_SIGMA`.
     start_natural_rpm : tuple of float, default ()
         Resonances the sweep's peak finding saw: extra starting points.
+    standstill : sequence of sequences of StandstillMode, default ()
+        Per pickup (the geometry's order; empty: none), the natural frequencies a tap
+        test found at standstill: each is a residual, the log distance to the nearest
+        standstill frequency of the model that pickup's direction sees
+        (:func:`standstill_frequencies_hz`, :func:`sensed_directions`) over its relative
+        standard error, floored at :data:`STANDSTILL_REL_FLOOR`; and a starting point.
+        A stiff mount's coast-down cannot tell its stiffness; a tap can.
 
     Returns
     -------
@@ -281,6 +381,10 @@ def fit_support_model(geometry: SupportGeometry, curve: SweepCurve, inertia: Ine
     if used is None:
         return None
     speeds, values, sigma = used
+    # a mode with no finite positive frequency or a bad error says nothing: left out
+    standstill = tuple(tuple(mode for mode in found
+                             if 0 < mode.frequency_hz < math.inf
+                             and 0 <= mode.frequency_se_hz < math.inf) for found in standstill)
     omegas = speeds * math.pi / 30.0
     n_planes = geometry.radii_mm.size
     top = float(omegas.max())
@@ -308,10 +412,13 @@ def fit_support_model(geometry: SupportGeometry, curve: SweepCurve, inertia: Ine
                  (theta[4] - math.log(DAMPING_PRIOR)) / DAMPING_PRIOR_LOG_SIGMA,
                  (theta[5] - log_it) / inertia.transverse_log_sigma,
                  (theta[6] - log_ip) / inertia.polar_log_sigma]
-        return np.concatenate([e.real, e.imag, prior])
+        return np.concatenate([e.real, e.imag, prior,
+                               _standstill_residuals(theta, geometry, standstill)])
 
     starts = [top * f for f in START_FRACTIONS] + [
-        r * math.pi / 30.0 for r in start_natural_rpm if r > 0]
+        r * math.pi / 30.0 for r in start_natural_rpm if r > 0] + [
+        2.0 * math.pi * mode.frequency_hz for found in standstill for mode in found
+        if mode.frequency_hz > 0]
     best = None
     ends: list[tuple[float, np.ndarray]] = []
     with np.errstate(all="ignore"):

@@ -277,7 +277,24 @@ def standstill_frequencies_hz(theta: np.ndarray, geometry: SupportGeometry
 
 def sensed_directions(geometry: SupportGeometry, pickup: int) -> tuple[int, ...]:
     """Which directions' modes a pickup sees: along the first pickup's (0), across it (1),
-    or both when it points between (:data:`DIRECTION_TOLERANCE_DEG`)."""
+    or both when it points between (:data:`DIRECTION_TOLERANCE_DEG`).
+
+    Parameters
+    ----------
+    geometry : SupportGeometry
+    pickup : int
+        The pickup's index in ``geometry.pickup_angles_deg``.
+
+    Returns
+    -------
+    tuple of int
+        ``(0,)``, ``(1,)`` or ``(0, 1)``.
+
+    References
+    ----------
+    .. [1] A pickup reads the projection of the motion on its sensing direction
+       (common practice, no source); the tolerance is our choice.
+    """
     turn = math.radians(float(geometry.pickup_angles_deg[pickup])
                         - float(geometry.pickup_angles_deg[0]))
     near = math.cos(math.radians(DIRECTION_TOLERANCE_DEG))

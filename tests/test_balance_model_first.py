@@ -5,11 +5,13 @@ implementation (the simulator's exact four-degree-of-freedom rotor)."""
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 
 import numpy as np
 import pytest
 
 from trueturn.balance.model_first import (
+    MAX_RESIDUAL_FRACTION_95,
     CoefficientEstimate,
     Distrust,
     PickupPlacement,
@@ -155,11 +157,15 @@ def test_reasons_for_distrust() -> None:
 def test_a_clean_prediction_far_from_resonance_is_trusted() -> None:
     sweep = {"a": [SupportResonance(600.0, 0.05, 0.02)], "b": [SupportResonance(600.0, 0.05, 0.02)]}
     layout = RotorLayout(6.0, (-100.0, 100.0), (-40.0, 40.0), (60.0, 60.0), 0.0,
-                         transverse_inertia_kg_m2=6.0 * 0.1 * 0.1)
+                         transverse_inertia_kg_m2=6.0 * 0.1 * 0.1, mounted_mass_kg=6.0)
     pred = predict_influence(layout, _pickups(), 3000.0, sweep,
                              {"a": 1.0 + 0.5j, "b": 0.8 - 0.2j})
-    assert pred.residual_fraction_95 is not None
-    assert pred.trusted == (pred.residual_fraction_95 <= 0.5)
+    assert pred.residual_fraction_95 is not None and pred.trusted
+    assert pred.residual_fraction_95 <= MAX_RESIDUAL_FRACTION_95
+    # what the mounts carry unknown: no magnitude to trust, however small the spread
+    unknown = predict_influence(replace(layout, mounted_mass_kg=None), _pickups(), 3000.0,
+                                sweep, {"a": 1.0 + 0.5j, "b": 0.8 - 0.2j})
+    assert unknown.distrust == (Distrust.NO_MOUNTED_MASS,)
 
 
 @pytest.mark.parametrize("bad", [dict(speed_rpm=0.0), dict(speed_rpm=math.nan)])

@@ -24,6 +24,7 @@ import numpy as np
 import pytest
 
 from trueturn.balance.model_first import (
+    MAX_RESIDUAL_FRACTION_95,
     Distrust,
     PickupPlacement,
     PredictedInfluence,
@@ -172,7 +173,8 @@ def test_a_clean_soft_sweep_gives_back_the_unbalance() -> None:
 def _honesty(n_planes: int, rotors: int, seed: int) -> tuple[int, int, int]:
     """Over random rotors (soft and stiff, nonlinear mounts): how many predictions were
     trusted, how many of those left more of the as-found 1x than their 95 % bound, and
-    how many trusted ones failed to halve it."""
+    how many trusted ones left more than any trusted prediction may promise
+    (model_first.MAX_RESIDUAL_FRACTION_95: what a trial sized to be seen may leave)."""
     rng = np.random.default_rng(seed)
     trusted = over = failed = 0
     for k in range(rotors):
@@ -192,7 +194,7 @@ def _honesty(n_planes: int, rotors: int, seed: int) -> tuple[int, int, int]:
         left = np.linalg.norm(list(after.values())) / np.linalg.norm(list(r0.values()))
         assert prediction.residual_fraction_95 is not None
         over += left > prediction.residual_fraction_95
-        failed += left > 0.5
+        failed += left > MAX_RESIDUAL_FRACTION_95
     return trusted, over, failed
 
 
@@ -247,7 +249,8 @@ def test_a_fitted_mode_the_sweep_did_not_show_is_not_trusted() -> None:
 def test_a_rival_fit_widens_the_prediction_and_can_refuse_it() -> None:
     # a second minimum the sweep cannot rule out (SupportModelFit.rivals): the spreads
     # reach it, and a rival under which the offered correction would leave more than
-    # half the 1x (model_first.MAX_RESIDUAL_FRACTION_95) refuses the prediction
+    # 150 % of the 1x (model_first.MAX_RESIDUAL_FRACTION_95, what a trial may leave) or
+    # change it by less than a trial must (MIN_EFFECT_FRACTION_05, 25 %) refuses it
     nominal = np.array([[1.0 + 0.0j], [0.5j]])
     base = PredictedInfluence(("a", "b"), nominal, np.abs(nominal),
                               (np.array([[1e-4 + 0j]]), np.array([[1e-4 + 0j]])),
@@ -258,8 +261,17 @@ def test_a_rival_fit_widens_the_prediction_and_can_refuse_it() -> None:
     assert near.residual_fraction_95 == pytest.approx(0.2)
     assert near.covariance[0][0, 0].real == pytest.approx(1e-4 + 0.04)
     flipped = _with_rivals(base, [-nominal], as_found)
-    assert Distrust.TOO_UNCERTAIN in flipped.distrust
+    assert Distrust.TOO_UNCERTAIN in flipped.distrust      # leaves |1 + 1| = 200 %
     assert np.allclose(flipped.phase_95_deg, 180.0)
+    # lagging 90 deg: leaves |1 - 1j| = 141 % (within what a trial may leave) and changes
+    # the 1x by 100 %: a correction run that measures the coefficients as a trial would
+    turned = _with_rivals(base, [nominal * 1j], as_found)
+    assert turned.trusted and turned.residual_fraction_95 == pytest.approx(math.sqrt(2))
+    # a machine a tenth as responsive as the model: the correction changes the 1x by 10 %
+    # (leaving 90 %), too little to be seen
+    dull = _with_rivals(base, [nominal * 0.1], as_found)
+    assert dull.distrust == (Distrust.UNSEEN_EFFECT,)
+    assert dull.residual_fraction_95 == pytest.approx(0.9)
 
 
 def test_a_curve_too_short_leaves_the_resonance_route() -> None:

@@ -20,7 +20,7 @@ import pytest
 
 from test_ui_procedure import Rig
 from trueturn.angles import wrap_deg
-from trueturn.balance.model_first import SupportResonance
+from trueturn.balance.model_first import MAX_RESIDUAL_FRACTION_95, SupportResonance
 from trueturn.procedure.engine import BalanceEngine
 from trueturn.procedure.guide import GateRefused, Mode, Procedure
 
@@ -113,19 +113,29 @@ def test_no_sweep_falls_back_to_trials() -> None:
     assert rig.proc.fallback and rig.proc.step.kind == "hands-on"
 
 
-def test_without_the_rotors_inertia_the_model_says_it_is_too_uncertain() -> None:
+def test_without_the_rotors_inertia_the_correction_run_serves_as_the_trial() -> None:
     # the slender-rod guess of the inertia (model_first.estimated_transverse_inertia_kg_m2)
-    # is far from the grinder's: the model's own Monte Carlo says the correction might not
-    # halve the 1x, so it does not offer one
+    # is far from the grinder's: the model's own Monte Carlo says its correction may leave
+    # more than the as-found 1x, yet within what a trial sized to be seen may do
+    # (model_first.MAX_RESIDUAL_FRACTION_95), so it is offered: its check run measures
+    # the coefficients as a trial would (RLS, Ljung 1999 §11.2) and the next correction
+    # reaches the grade, one run before the classic planes + 2 (as found, one trial per
+    # plane, the correction: Thearle 1934)
+    known = Rig("bench-grinder", Mode.MODEL_FIRST)
+    as_found_and_sweep(known, coast_down_resonances(known))
     rig = Rig("bench-grinder", Mode.MODEL_FIRST)
     rig.setup = replace(rig.setup, transverse_inertia_kg_m2=None)
     rig.proc = Procedure(rig.setup, BalanceEngine())
     as_found_and_sweep(rig, coast_down_resonances(rig))
-    model = rig.proc.model
-    assert model is not None and model.distrust == ("too-uncertain",)
-    assert model.residual_fraction_95 is not None and model.residual_fraction_95 > 0.5
+    model, sure = rig.proc.model, known.proc.model
+    assert model is not None and sure is not None and model.trusted and sure.trusted
+    assert model.residual_fraction_95 is not None and sure.residual_fraction_95 is not None
+    assert 1.0 < model.residual_fraction_95 <= MAX_RESIDUAL_FRACTION_95
+    assert model.residual_fraction_95 > 2 * sure.residual_fraction_95
+    assert min(model.angle_95_deg) > max(sure.angle_95_deg)
     rig.complete()
     assert rig.proc.verdict is not None and rig.proc.verdict.passed
+    assert len(rig.proc.runs) < len(rig.setup.planes) + 2
 
 
 def test_acceleration_to_the_readings_unit_is_sinusoidal_kinematics() -> None:

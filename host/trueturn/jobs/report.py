@@ -1017,7 +1017,9 @@ def model_lines(job: JobRecord) -> list[str]:
              + (f"; its 95 % spread: {spread}" if spread else "")
              + (f"; predicted to leave at most {100 * model.residual_fraction_95:.0f} % of "
                 "the as-found 1x in 95 % of the model's draws"
-                if model.residual_fraction_95 is not None else "") + "."]
+                if model.residual_fraction_95 is not None else "")
+             + ("; as that may exceed the as-found 1x, its check run also served as the trial"
+                if (model.residual_fraction_95 or 0.0) > 1.0 else "") + "."]
     if model.refuted_by_run is not None:
         lines.append(f"Run {model.refuted_by_run} refuted the model: the 1x at "
                      f"{model.refuted_at or 'a pickup'} fell far outside its prediction, so "

@@ -479,6 +479,8 @@ class CorrectionPanel(ProcedurePanel):
         if spread and self.model_left is not None:
             lines.append(f"  It leaves at most {100 * self.model_left:.0f} % of the 1x in "
                          "95 % of the model's draws.")
+            if self.model_left > 1.0:
+                lines.append(texts.MODEL_MAY_RAISE)
         lines.append(texts.PARTS_TO_PLACE)
         lines += ["  " + describe_part(p, self.units) for p in self.parts]
         for k in self.kit:

@@ -251,7 +251,10 @@ def model_refused(codes: Sequence[str]) -> str:
 
 
 MODEL_TRUSTED = ("From the model, no trial run: the coast-down fits, the pickups' angles are "
-                 "known, the speed is clear of resonances. The check run refines it.")
+                 "known, the speed is off the resonances' peaks. The check run refines it.")
+#: after the model's 95 % share when it may exceed the as-found 1x (model_first's bound)
+MODEL_MAY_RAISE = ("  It may not lower the 1x: the check run then measures the coefficients, "
+                   "as a trial run would, and the next correction comes from the runs.")
 
 
 CHECK_THE_RIG = ("Check that the pickups and the tach did not move, that the trial mass is on "

@@ -899,6 +899,39 @@ def analyze_bump_capture(raw: Iterable[bytes], profiles: Sequence[PickupProfile]
     .. [1] protocol/catalogue.yaml, the samples and identity messages (ours).
     """
     decoder = StreamDecoder()
+    if identity:
+        decoder.assume_identity(identity)
+    messages = (item for piece in raw for item in decoder.feed(piece)
+                if isinstance(item, Message))
+    return analyze_bump_messages(messages, profiles, mains_hz, identity)
+
+
+def analyze_bump_messages(messages: Iterable[Message], profiles: Sequence[PickupProfile] = (),
+                          mains_hz: float | None = None,
+                          identity: dict[str, Any] | None = None) -> BumpCapture:
+    """Run :func:`bump_test` on the last stream of decoded messages (a capture's, or the
+    app's recording of a tap test).
+
+    Parameters
+    ----------
+    messages : iterable of Message
+        Decoded board messages in order (identity, stream_config, samples, tach).
+    profiles : sequence of PickupProfile, default ()
+        Per channel: name, sensitivity (V/g; None keeps volts), zero-g output.
+    mains_hz : float or None, default None
+        Mains frequency (hum); None: 50 and 60 Hz are both taken as hum.
+    identity : dict or None, default None
+        The board's identity, when the messages start after it.
+
+    Returns
+    -------
+    BumpCapture
+        The bump test and what the messages say besides (tach edges, rate, lost samples).
+
+    References
+    ----------
+    .. [1] protocol/catalogue.yaml, the samples and identity messages (ours).
+    """
     bits, reference_mv = DEFAULT_ADC_BITS, float(DEFAULT_REFERENCE_MV)
     tick_hz = float(DEFAULT_TICK_HZ)
 
@@ -908,7 +941,6 @@ def analyze_bump_capture(raw: Iterable[bytes], profiles: Sequence[PickupProfile]
                 float(values.get("tick_hz", tick_hz)))
 
     if identity:
-        decoder.assume_identity(identity)
         try:
             bits, reference_mv, tick_hz = take_identity(identity)
         except (TypeError, ValueError):
@@ -916,22 +948,19 @@ def analyze_bump_capture(raw: Iterable[bytes], profiles: Sequence[PickupProfile]
     blocks: list[tuple[int, list[int]]] = []
     stream: tuple[int, int, int] | None = None  # start_tick, period_ticks, channels
     edges = 0
-    for piece in raw:
-        for item in decoder.feed(piece):
-            if not isinstance(item, Message):
-                continue
-            if item.name == "identity":
-                bits, reference_mv, tick_hz = take_identity(item.values)
-            elif item.name == "stream_config" and item.values.get("adc_reference_mv"):
-                reference_mv = float(item.values["adc_reference_mv"])
-            elif item.name == "tach":
-                edges += 1
-            elif item.name == "samples":
-                v = item.values
-                key = (int(v["start_tick"]), int(v["period_ticks"]), int(v["channels"]))
-                if key != stream:  # a new stream: only the last is analysed
-                    stream, blocks, edges = key, [], 0
-                blocks.append((int(v["first_index"]), list(v["samples"])))
+    for item in messages:
+        if item.name == "identity":
+            bits, reference_mv, tick_hz = take_identity(item.values)
+        elif item.name == "stream_config" and item.values.get("adc_reference_mv"):
+            reference_mv = float(item.values["adc_reference_mv"])
+        elif item.name == "tach":
+            edges += 1
+        elif item.name == "samples":
+            v = item.values
+            key = (int(v["start_tick"]), int(v["period_ticks"]), int(v["channels"]))
+            if key != stream:  # a new stream: only the last is analysed
+                stream, blocks, edges = key, [], 0
+            blocks.append((int(v["first_index"]), list(v["samples"])))
     if stream is None or not blocks:
         return BumpCapture(None, edges, math.nan, 0.0, 0, ())
     _, period, channels = stream

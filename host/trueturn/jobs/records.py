@@ -252,6 +252,26 @@ class ModelRefinementEntry:
 
 
 @dataclass
+class TapModeEntry:
+    """A natural frequency a tap test found at standstill on ``sensor`` (Hz) and its
+    standard error (Hz), as :class:`trueturn.dsp.bump.BumpMode` gives them."""
+
+    sensor: str = field(metadata=limits(nonempty=True))
+    frequency_hz: float = field(metadata=limits(above=0))
+    frequency_se_hz: float = field(metadata=limits(minimum=0))
+
+
+@dataclass
+class TapEntry:
+    """The tap (bump) test at standstill that informed the model (model-first on a stiff
+    mount): when, how many taps were found, and the modes per pickup."""
+
+    time: str = field(metadata=limits(nonempty=True))
+    taps: int = field(metadata=limits(minimum=1))
+    modes: list[TapModeEntry] = field(metadata=limits(nonempty=True))
+
+
+@dataclass
 class ModelEntry:
     """What the model of the rotor answered after the as-found run ``after_run`` and its
     coast-down (model-first, issue #20 item 4), kept so the job can be continued with the
@@ -281,6 +301,9 @@ class ModelEntry:
     #: went on with trials, the model's masses taken off; a continued job finds the same)
     refuted_by_run: int | None = field(default=None, metadata=limits(minimum=1))
     refuted_at: str | None = None
+    #: the tap test at standstill the model was computed with (optional: files without it
+    #: read as before, no migration)
+    tap: TapEntry | None = None
 
     def _checks(self) -> list[tuple[str, str]]:
         problems: list[tuple[str, str]] = []

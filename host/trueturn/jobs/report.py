@@ -49,6 +49,7 @@ from trueturn.jobs.records import (
     MassChange,
     ModelCoefficientEntry,
     RunEntry,
+    TapEntry,
     UnbalanceEntry,
 )
 from trueturn.jobs.sweep_plot import sweep_svg
@@ -1003,10 +1004,11 @@ def model_lines(job: JobRecord) -> list[str]:
     if model is None:
         return ["Model first: the model's answer is not kept in this job (written before jobs "
                 "kept it, or closed before the as-found run's coast-down was analysed)."]
+    tap = [tap_line(model.tap)] if model.tap is not None else []
     if not model.trusted:
         why = "; ".join(DISTRUST_WORDS.get(d.value, d.value) for d in model.distrust)
         return [f"Model first: the model was not trusted ({why or 'no reason given'}), so a "
-                "trial run per plane was measured instead; the as-found run was kept."]
+                "trial run per plane was measured instead; the as-found run was kept.", *tap]
     mass = job.machine.units.choice().mass_words
     spread = "; ".join(f"{plane} \u00b1 {mass(m)}, \u00b1 {a:.0f}\u00b0"
                        for plane, m, a in zip(model.planes, model.mass_95_g,
@@ -1019,7 +1021,7 @@ def model_lines(job: JobRecord) -> list[str]:
                 "the as-found 1x in 95 % of the model's draws"
                 if model.residual_fraction_95 is not None else "")
              + ("; as that may exceed the as-found 1x, its check run also served as the trial"
-                if (model.residual_fraction_95 or 0.0) > 1.0 else "") + "."]
+                if (model.residual_fraction_95 or 0.0) > 1.0 else "") + ".", *tap]
     if model.refuted_by_run is not None:
         lines.append(f"Run {model.refuted_by_run} refuted the model: the 1x at "
                      f"{model.refuted_at or 'a pickup'} fell far outside its prediction, so "
@@ -1044,6 +1046,18 @@ def model_lines(job: JobRecord) -> list[str]:
     elif model.refuted_by_run is None:
         lines.append("No check run has refined the model yet.")
     return lines
+
+
+def tap_line(tap: TapEntry) -> str:
+    """``A tap test at standstill (5 taps, ...) informed the model: front 29.5 ± 0.1 Hz``:
+    the one line a report gives the tap test, each mode with its standard error."""
+    by_sensor: dict[str, list[str]] = {}
+    for m in tap.modes:
+        by_sensor.setdefault(m.sensor, []).append(
+            f"{m.frequency_hz:.1f} \u00b1 {m.frequency_se_hz:.1f} Hz")
+    modes = "; ".join(f"{sensor} {', '.join(found)}" for sensor, found in by_sensor.items())
+    return (f"A tap test at standstill ({tap.taps} taps, {tap.time}) informed the model of the "
+            f"supports: {modes}.")
 
 
 def model_rows(job: JobRecord) -> list[list[str]]:

@@ -47,7 +47,7 @@ from trueturn.balance.solve import (
     solve,
 )
 from trueturn.balance.splitting import negligible_parts, split
-from trueturn.balance.support_fit import SweepCurve
+from trueturn.balance.support_fit import StandstillMode, SweepCurve
 from trueturn.balance.trial_mass import (
     STANDARD_GRAVITY_M_S2,
     TrialMass,
@@ -55,7 +55,9 @@ from trueturn.balance.trial_mass import (
     size_trial_mass,
     suggest_trial,
 )
+from trueturn.dsp.bump import BumpResult
 from trueturn.dsp.coast import SweepOutcome
+from trueturn.dsp.findings import Code
 from trueturn.dsp.sweep import MAX_SLOPE_SE, Sweep, local_slope
 from trueturn.dsp.units import UNITS, from_acceleration_factor
 from trueturn.errors import UserError
@@ -70,6 +72,7 @@ from trueturn.procedure.guide import (
     OffSpeed,
     ProcedureSetup,
     Solution,
+    TapOutcome,
     TooSmallTrial,
     TrialSuggestion,
     planes_for,
@@ -190,6 +193,78 @@ def sweep_evidence(outcome: SweepOutcome | None, sensors: Sequence[str],
     if resonances is None or outcome is None:
         return None
     return SweepEvidence(resonances, curve_from_sweep(outcome, sensors))
+
+
+#: the reasons a stiff mount's model is not trusted that a tap test can answer: the
+#: supports' stiffness (the coast-down found no resonance, so the fit cannot tell it and
+#: its draws say too uncertain or its correction too small to see, or it puts a resonance
+#: the coast-down did not show)
+TAP_ANSWERS = frozenset({Distrust.STIFFNESS_UNKNOWN, Distrust.UNSEEN_RESONANCE,
+                         Distrust.TOO_UNCERTAIN, Distrust.UNSEEN_EFFECT})
+
+
+def tap_may_help(resonances: Mapping[str, Sequence[SupportResonance]] | None,
+                 curve: SweepCurve | None, distrust: Sequence[Distrust]) -> bool:
+    """A tap (bump) test at standstill may make the model trustworthy: the coast-down was
+    a sweep that found no support resonance below the speed at any pickup (a stiff mount),
+    its curve can be fitted (the fit is what the tap's modes hold,
+    :func:`trueturn.balance.model_first.predict_influence` ``standstill``), and every
+    reason not to trust the model is the supports' unknown stiffness (:data:`TAP_ANSWERS`).
+
+    Parameters
+    ----------
+    resonances : mapping of str to sequence of SupportResonance, or None
+        Per pickup, what the coast-down found below the speed (None: no sweep).
+    curve : SweepCurve or None
+        The coast-down's curve (None: not usable).
+    distrust : sequence of Distrust
+        Why the model is not trusted.
+
+    Returns
+    -------
+    bool
+
+    References
+    ----------
+    .. [1] A rigid rotor's support modes lie above the running speed on a stiff mount, so a
+       coast-down from it never passes them; struck at standstill it rings at them (bump
+       test; common practice, no source).
+    """
+    return (resonances is not None and curve is not None and bool(distrust)
+            and not any(resonances.values()) and set(distrust) <= TAP_ANSWERS)
+
+
+def tap_outcome(result: BumpResult | None, tach_edges: int, time_s: float) -> TapOutcome:
+    """A tap test's recording as the procedure takes it: the modes per pickup
+    (:class:`~trueturn.balance.support_fit.StandstillMode`), the taps found, the tach
+    edges, and whether a line that does not decay was found (``steady_line``: a rotor
+    turning behind a dark tach).
+
+    Parameters
+    ----------
+    result : BumpResult or None
+        :func:`trueturn.dsp.bump.analyze_bump_capture`'s ``result`` (None: no samples).
+    tach_edges : int
+        Tach edges in the recording.
+    time_s : float
+        Board time at the recording's end, s.
+
+    Returns
+    -------
+    TapOutcome
+
+    References
+    ----------
+    .. [1] :mod:`trueturn.dsp.bump` (matrix pencil and variable projection; see there).
+    """
+    if result is None:
+        return TapOutcome({}, 0, tach_edges, False, time_s)
+    modes: dict[str, list[StandstillMode]] = {}
+    for m in result.modes:
+        modes.setdefault(m.pickup, []).append(StandstillMode(m.frequency_hz, m.frequency_se_hz))
+    steady = any(f.code is Code.STEADY_LINE for f in result.findings)
+    return TapOutcome({k: tuple(v) for k, v in modes.items()}, len(result.taps), tach_edges,
+                      steady, time_s)
 
 
 #: how a reading's speed exponent differs from acceleration's (velocity = acceleration /
@@ -577,7 +652,9 @@ class BalanceEngine:
 
     # ---- model-first (issue #20 item 4) ---------------------------------------------------
     def model_first(self, setup: ProcedureSetup, runs: Sequence[Run],
-                    resonances: object) -> ModelAnswer:
+                    resonances: object,
+                    standstill: Mapping[str, Sequence[StandstillMode]] | None = None
+                    ) -> ModelAnswer:
         """The model's answer after the as-found run (``runs[0]``) and its sweep.
 
         Influence coefficients predicted from the profile and the sweep's support
@@ -615,10 +692,15 @@ class BalanceEngine:
             sweep = {str(k): [r for r in v if isinstance(r, SupportResonance)]
                      for k, v in resonances.items()}
         accel = {n: as_found.readings[n].vector / factor[i] for i, n in enumerate(names)}
-        pred = predict_influence(layout, placements, speed, sweep, accel, curve=curve)
+        pred = predict_influence(layout, placements, speed, sweep, accel, curve=curve,
+                                 standstill=standstill)
+        tapped = standstill is not None
         if not pred.trusted:
             return ModelAnswer(False, tuple(d.value for d in pred.distrust),
-                               residual_fraction_95=pred.residual_fraction_95)
+                               residual_fraction_95=pred.residual_fraction_95,
+                               tap_may_help=not tapped and tap_may_help(sweep, curve,
+                                                                        pred.distrust),
+                               tapped=tapped)
         prior = replace(pred, matrix=pred.matrix * factor[:, None],
                         magnitude=pred.magnitude * np.abs(factor)[:, None],
                         covariance=tuple(c * abs(factor[i]) ** 2
@@ -628,7 +710,7 @@ class BalanceEngine:
         solution = self._model_solution(setup, runs, estimate, False)
         return ModelAnswer(True, (), tuple(float(m) for m in mass95),
                            tuple(float(a) for a in angle95), pred.residual_fraction_95, prior,
-                           solution)
+                           solution, tapped=tapped)
 
     def model_estimate(self, setup: ProcedureSetup, runs: Sequence[Run],
                        prior: object) -> CoefficientEstimate:

@@ -35,12 +35,13 @@ Safety gates (ARCHITECTURE.md, "Safety"):
 from __future__ import annotations
 
 import math
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, replace
 from enum import Enum
 from typing import ClassVar, Literal, Protocol
 
 from trueturn.angles import angle_difference_deg, wrap_deg
+from trueturn.balance.support_fit import StandstillMode
 from trueturn.model import (
     Bearing,
     Correction,
@@ -84,6 +85,14 @@ DONE_CHECKLIST: tuple[str, ...] = (
     "Tools, rags and loose parts are off the machine",
     "Guards and covers are back on",
     "Everyone is clear of the plane of rotation",
+)
+
+#: the tap test's gate (model-first on a stiff mount): the lock-out's items and where to
+#: strike (common practice, no source: a soft mallet on the housing, never the rotor)
+TAP_CHECKLIST: tuple[str, ...] = (
+    *LOCKOUT_CHECKLIST,
+    "I strike the bearing housing or the frame, never the rotor, a weight or a pickup",
+    "Guards stay on and I keep my hands clear of the wheel",
 )
 
 #: the first step of a resumed job whose next step is a run
@@ -275,6 +284,47 @@ class ModelAnswer:
     #: the pickup whose reading refuted the model after its correction went on (then
     #: ``trusted`` is False, ``distrust`` ends with "refuted", trials follow)
     refuted_at: str | None = None
+    #: not trusted on a stiff mount (the coast-down found no support resonance below the
+    #: speed, yet its curve could be fitted): a tap test at standstill may pin the
+    #: supports' stiffness (:class:`TapTest`)
+    tap_may_help: bool = False
+    #: the answer was computed with a tap test's standstill modes
+    tapped: bool = False
+
+
+class TapRefusal(str, Enum):
+    """Why a tap test's recording cannot inform the model (the person redoes or skips)."""
+
+    TURNING = "turning"      # the tach saw edges or a line did not decay: the rotor turned
+    NO_TAPS = "no-taps"      # no tap was found in the recording
+    NO_MODES = "no-modes"    # taps, but no ringing the taps agree on at any pickup
+
+
+@dataclass(frozen=True)
+class TapOutcome:
+    """What a tap (bump) test's recording gave (the app's analysis by
+    :func:`trueturn.dsp.bump.analyze_bump_capture`, turned into this by
+    :func:`trueturn.procedure.engine.tap_outcome`): per pickup the natural frequencies the
+    taps agree on, the taps found, the tach edges in the recording and whether a line that
+    does not decay was seen (a rotor turning behind a dark tach); ``time_s``: board time
+    at the recording's end."""
+
+    modes: dict[str, tuple[StandstillMode, ...]]
+    taps: int
+    tach_edges: int = 0
+    steady_line: bool = False
+    time_s: float = 0.0
+
+    @property
+    def refusal(self) -> TapRefusal | None:
+        """Why the recording cannot be used (None: it can)."""
+        if self.tach_edges or self.steady_line:
+            return TapRefusal.TURNING
+        if not self.taps:
+            return TapRefusal.NO_TAPS
+        if not any(self.modes.values()):
+            return TapRefusal.NO_MODES
+        return None
 
 
 @dataclass(frozen=True)
@@ -326,9 +376,12 @@ class Engine(Protocol):
         ...
 
     def model_first(self, setup: ProcedureSetup, runs: Sequence[Run],
-                    resonances: object) -> ModelAnswer:
+                    resonances: object,
+                    standstill: Mapping[str, Sequence[StandstillMode]] | None = None
+                    ) -> ModelAnswer:
         """Model-first: the model's answer after the as-found run (``runs[0]``) and the
-        sweep's support resonances per pickup (None: no sweep)."""
+        sweep's support resonances per pickup (None: no sweep); ``standstill``: a tap
+        test's modes per pickup."""
         ...
 
     def model_solve(self, setup: ProcedureSetup, runs: Sequence[Run], removal: bool,
@@ -414,6 +467,28 @@ class ShowDoubt:
     because: tuple[str, ...] = ()
 
 
+class TapPhase(str, Enum):
+    """The optional tap test: offered (start it behind the lock-out gate, or skip it),
+    tapping (the recording runs; the person strikes, then says done), or refused (the
+    recording gave nothing usable: redo it behind the gate, or skip)."""
+
+    OFFERED = "offered"
+    TAPPING = "tapping"
+    REFUSED = "refused"
+
+
+@dataclass(frozen=True)
+class TapTest:
+    """Model-first on a stiff mount: the model is not trusted from the coast-down alone; a
+    tap (bump) test at standstill may pin the supports' stiffness. Optional: skipping it
+    goes on with trial runs. ``refused``: why the last recording was not used."""
+
+    kind: ClassVar[Literal["tap"]] = "tap"
+    title: str
+    phase: TapPhase = TapPhase.OFFERED
+    refused: TapRefusal | None = None
+
+
 @dataclass(frozen=True)
 class Stopped:
     """The job was stopped before a verdict, by the person's choice (see
@@ -438,7 +513,7 @@ class EarlyStop:
 SECOND_START_LABEL = "as found, second start"
 
 #: one screenful of the procedure: a tagged union of frozen steps
-Step = HandsOn | Measure | ShowCorrection | ShowVerdict | ShowDoubt | Stopped
+Step = HandsOn | Measure | ShowCorrection | ShowVerdict | ShowDoubt | TapTest | Stopped
 
 
 def planes_for(setup: ProcedureSetup) -> tuple[Plane, ...]:
@@ -576,12 +651,19 @@ class Procedure:
         #: asks to measure the as-found run again (:meth:`repeat_run`)
         self.sweep_lost = False
         self._after_check: Step | None = None  # a resumed job: the step after the check
+        #: model-first on a stiff mount: the coast-down's evidence (the engine's type,
+        #: opaque) the model is recomputed from with a tap test's modes, the tap test
+        #: that informed the model (None: none), and the board time its recording began
+        self._sweep: object = None
+        self.tap: TapOutcome | None = None
+        self._tap_started_s: float | None = None
 
     @classmethod
     def restore(cls, setup: ProcedureSetup, engine: Engine, runs: Sequence[KeptRun],
                 on_rotor: Sequence[PlacedMass], rotor_set: bool, redo_of: int | None = None,
                 watch: StandstillWatch | None = None, model: ModelAnswer | None = None,
-                doubt: tuple[str, ...] = (), went_on: bool = False) -> Procedure:
+                doubt: tuple[str, ...] = (), went_on: bool = False,
+                tap: TapOutcome | None = None) -> Procedure:
         """Rebuild the procedure of an open job from the runs it kept (readings and the
         masses on the rotor in each), without the person: the engine solves them again as
         it did live, so the trims counted, the correction and the verdict come out as
@@ -600,7 +682,10 @@ class Procedure:
         Model-first: ``model`` is the model's answer the job kept (its prior, or why it was
         not trusted: then the trials it fell back to); without it, after the as-found run,
         the model still needs that run's coast-down, so the as-found run is measured again
-        (its coast-down is the sweep). ``doubt``: the rules the as-found run failed (is it
+        (its coast-down is the sweep). ``tap``: the tap test that informed the model, kept
+        with it (the model's answer already holds its effect). A job kept at the tap test's
+        offer (its coast-down evidence is not kept) goes on with trials. ``doubt``: the
+        rules the as-found run failed (is it
         unbalance? issue #22); unless the person ``went_on`` already, or hands-on work was
         done since, the question comes again before any mass goes on.
         """
@@ -609,6 +694,7 @@ class Procedure:
         if setup.mode is Mode.MODEL_FIRST and model is not None:
             proc.model = model
             proc.fallback = not model.trusted
+            proc.tap = tap
         for kept in runs:
             if kept.removal is not None:
                 proc.removal = kept.removal and proc.removal_allowed
@@ -669,6 +755,8 @@ class Procedure:
 
     def checklist(self) -> tuple[str, ...]:
         """The checklist of the current gate (empty when no checklist gate is open)."""
+        if isinstance(self.step, TapTest):
+            return () if self.step.phase is TapPhase.TAPPING else TAP_CHECKLIST
         if self.step.kind != "hands-on":
             return ()
         return LOCKOUT_CHECKLIST if self.step.phase == "lockout" else DONE_CHECKLIST
@@ -1216,20 +1304,80 @@ class Procedure:
             raise GateRefused("the model's answer is given once, after the as-found run")
         if answer is None:
             answer = self.engine.model_first(self.setup, self.runs[:1], resonances)
+        self._sweep = resonances
+        self._take_answer(answer, offer_tap=True)
+        # is it unbalance? (issue #22): the app's judgement of the as-found run came before
+        # the model's answer; when a rule failed, ask before the first mass goes on
+        if self.doubt:
+            self.step = ShowDoubt("Balancing may not help", self.doubt)
+        return answer
+
+    def _take_answer(self, answer: ModelAnswer, offer_tap: bool) -> None:
+        """The model's answer decides the next step: its correction when trusted; the
+        optional tap test when it may help (a stiff mount, ``offer_tap``); else trials."""
         self.model = answer
         if answer.trusted and answer.solution is not None:
             self.solution = answer.solution
             self.step = ShowCorrection("Correction from the model")
+        elif offer_tap and answer.tap_may_help:
+            self.solution = None
+            self.step = TapTest("Tap test at standstill (optional)")
         else:
             self.fallback = True
             self.solution = None
             self._advance_after_run(self.runs[0])
-        # is it unbalance? (issue #22): the app's judgement of the as-found run came before
-        # the model's answer; when a rule failed, ask before the first mass goes on
         self._before_trials = self.step
-        if self.doubt:
-            self.step = ShowDoubt("Balancing may not help", self.doubt)
-        return answer
+
+    # ---- the tap test (model-first on a stiff mount) -------------------------------------
+    def begin_tap(self, now_s: float) -> None:
+        """The person starts the tap test (or a redo): a hands-on step at the machine, so
+        only at proven standstill with every item of :data:`TAP_CHECKLIST` ticked; the
+        confirmation is kept with its evidence. The app records from now on."""
+        step = self.step
+        if not isinstance(step, TapTest) or step.phase is TapPhase.TAPPING:
+            raise GateRefused("no tap test is waiting to be started")
+        ev = self._require_standstill()
+        self._require_ticks(TAP_CHECKLIST)
+        self._confirm(now_s, f"lock-out before: {step.title}", ev)
+        self.ticked = set()
+        self._tap_started_s = now_s
+        self.step = replace(step, phase=TapPhase.TAPPING, refused=None)
+
+    def tap_answer(self, outcome: TapOutcome) -> ModelAnswer:
+        """The model's answer with the tap test's modes (pure: the app computes it off the
+        screen's thread, the support fit takes seconds; :meth:`tap_recorded` takes it)."""
+        return self.engine.model_first(self.setup, self.runs[:1], self._sweep,
+                                       standstill=outcome.modes)
+
+    def tap_recorded(self, outcome: TapOutcome,
+                     answer: ModelAnswer | None = None) -> TapRefusal | None:
+        """The tap test's recording is analysed. Refused (returned, the step says why; redo
+        or skip) when the rotor turned - a tach edge since :meth:`begin_tap`, or a line
+        that does not decay - or no tap or no mode was found. Else the model is computed
+        again held to the tapped modes (``answer``: computed beforehand by
+        :meth:`tap_answer`): trusted, its correction; not, trials."""
+        step = self.step
+        if not isinstance(step, TapTest) or step.phase is not TapPhase.TAPPING:
+            raise GateRefused("no tap test is being recorded")
+        edge = self.watch.last_edge_s
+        turned = edge is not None and edge > (self._tap_started_s or 0.0)
+        refusal = TapRefusal.TURNING if turned else outcome.refusal
+        if refusal is not None:
+            self.step = replace(step, phase=TapPhase.REFUSED, refused=refusal)
+            return refusal
+        if answer is None:
+            answer = self.tap_answer(outcome)
+        self.tap = outcome
+        self._take_answer(answer, offer_tap=False)
+        return None
+
+    def skip_tap(self) -> None:
+        """The person skips the tap test (at any moment of it): trial runs follow."""
+        if not isinstance(self.step, TapTest):
+            raise GateRefused("no tap test is offered")
+        self.ticked = set()
+        assert self.model is not None
+        self._take_answer(replace(self.model, tap_may_help=False), offer_tap=False)
 
     def _assess(self) -> tuple[Verdict, Solution]:
         if self.setup.mode is Mode.MODEL_FIRST and not self.fallback and self.model is not None:

@@ -394,6 +394,23 @@ class VirtualBoard:
             self.running = False
             self._switch_tick = None  # the person took over from a run=
 
+    def tap_test(self, on: bool) -> None:
+        """Someone strikes the bearing housings in turn every ~2 s from now (``on``; as
+        ``run=bump`` does from power-up), or stops. Refused while the rotor turns: a tap
+        test is made at standstill. The rotor's free response is integrated in time."""
+        with self.lock:
+            if on and (self.running or self._omega > 0.0):
+                raise ValueError("a tap test is made at standstill: the rotor turns")
+            if on:
+                self._motion.settle(self.scenario.rotor.unbalance_phasors(self.all_masses()),
+                                    self._theta, 0.0)
+                self._transient = True
+                self._tap_tick = self.tick + int(round(BUMP_FIRST_S * TICK_HZ))
+            else:
+                self._tap_tick = None
+                self._transient = (self.options.response == "transient"
+                                   or self.options.run == "bump")
+
     def set_speed_rpm(self, speed_rpm: float) -> None:
         """Set the drive speed (variable-speed scenarios only, within their range)."""
         with self.lock:

@@ -28,6 +28,7 @@ from textual.widgets import ContentSwitcher, Footer, Static
 from textual.worker import get_current_worker
 
 from trueturn.dsp.analysis import judge_second_start
+from trueturn.dsp.bump import analyze_bump_messages
 from trueturn.dsp.coast import SweepOutcome, SweepRecorder
 from trueturn.dsp.findings import Finding, describe
 from trueturn.dsp.severity import Severity
@@ -38,7 +39,7 @@ from trueturn.jobs.profiles import MachineProfile
 from trueturn.jobs.records import CoefficientSet
 from trueturn.link.session import GreetPhase
 from trueturn.model import Run, RunKind
-from trueturn.procedure.engine import BalanceEngine, sweep_evidence
+from trueturn.procedure.engine import BalanceEngine, sweep_evidence, tap_outcome
 from trueturn.procedure.guide import (
     GateRefused,
     HandsOn,
@@ -53,6 +54,9 @@ from trueturn.procedure.guide import (
     ShowCorrection,
     ShowDoubt,
     ShowVerdict,
+    TapOutcome,
+    TapPhase,
+    TapTest,
 )
 from trueturn.ui import texts
 from trueturn.ui.fitted import FitEntry, FittedForm
@@ -72,7 +76,14 @@ from trueturn.ui.resume import (
 )
 from trueturn.ui.rig import DemoRig
 from trueturn.ui.savefolder import SaveFolderPrompt
-from trueturn.ui.session import Clock, LinkProblem, LinkSession, SessionFactory, Snapshot
+from trueturn.ui.session import (
+    Clock,
+    LinkProblem,
+    LinkSession,
+    SessionFactory,
+    Snapshot,
+    TapRecording,
+)
 from trueturn.ui.steps import GuideContext, GuideView
 from trueturn.ui.sweepview import ShownSweep, SweepView
 from trueturn.ui.texts import CAUTIONS, keys_markup
@@ -278,6 +289,7 @@ class BenchScreen(Screen):
         Binding("p", "machine", "Machine", show=False),
         Binding("n", "second_start", "Start again", show=False),
         Binding("k", "stop_job", "Stop job", show=False),
+        Binding("t", "skip_tap", "Skip tap test", show=False),
         Binding("o", "motor(True)", "Motor on", show=False),
         Binding("x", "motor(False)", "Motor off", show=False),
         Binding("l", "reconnect", "Reconnect", show=False),
@@ -347,6 +359,9 @@ class BenchScreen(Screen):
     def action_stop_job(self) -> None:
         self.trueturn.stop_job()
 
+    def action_skip_tap(self) -> None:
+        self.trueturn.skip_tap()
+
     def action_motor(self, on: bool) -> None:
         self.trueturn.motor(on)
 
@@ -415,6 +430,7 @@ class TrueturnApp(App):
         self.sweep_speed_rpm: float | None = None  # the speed of the run the sweep follows
         self.sweep_coasting = False
         self.sweeps_pending = 0  # recordings being fitted off the refresh (_finish_sweep)
+        self.tap_analysing = False  # a tap test's recording is being analysed (a thread)
 
     # ---- lifecycle ----------------------------------------------------------------------
     def on_mount(self) -> None:
@@ -820,6 +836,14 @@ class TrueturnApp(App):
             case ShowCorrection():
                 proc.accept_correction()
                 self.message = ""
+            case TapTest(phase=TapPhase.TAPPING):
+                self.finish_tap(proc)
+            case TapTest():
+                proc.begin_tap(now)
+                self.session.start_tap_recording()
+                if self.rig is not None:
+                    self.rig.taps(True)
+                self.message = ""
             case ShowDoubt():
                 proc.go_on()
                 self.keeper.went_on(proc)  # a continued job does not ask again
@@ -831,6 +855,75 @@ class TrueturnApp(App):
                 self.message = texts.JOB_CLOSED
             case _:
                 self.message = texts.JOB_FINISHED
+
+    # ---- the tap test (model-first on a stiff mount) ---------------------------------------
+    def skip_tap(self) -> None:
+        """t: skip the tap test (offered, refused or recording): trial runs follow."""
+        proc = self.procedure
+        if proc is None or self.tap_analysing:
+            return
+        try:
+            proc.skip_tap()
+        except GateRefused as exc:
+            self.message = f"Refused: {exc}"
+        else:
+            self._stop_taps()
+            self.message = texts.TAP_SKIPPED
+        self.tick()
+
+    def _stop_taps(self) -> object:
+        """End the tap test's recording (and the demo's mallet); the recording, or None."""
+        recording = self.session.stop_tap_recording()
+        if self.rig is not None:
+            self.rig.taps(False)
+        return recording
+
+    def finish_tap(self, proc: Procedure) -> None:
+        """Enter while recording: the taps are done; analyse them off the screen's refresh
+        (the bump test's fits and the support fit take seconds), then hand the procedure
+        the outcome and the model's answer with it."""
+        if self.tap_analysing:
+            return
+        recording = self._stop_taps()
+        if not isinstance(recording, TapRecording):
+            return
+        self.tap_analysing = True
+
+        def analyse() -> None:
+            capture = analyze_bump_messages(recording.messages, recording.profiles,
+                                            recording.mains_hz, recording.identity)
+            outcome = tap_outcome(capture.result, capture.tach_edges, recording.time_s)
+            answer = None
+            if outcome.refusal is None:
+                answer = proc.tap_answer(outcome)
+            self.call_from_thread(self._tap_analysed, proc, outcome, answer)
+
+        self.run_worker(analyse, thread=True, group="tap", exit_on_error=False)
+
+    def _tap_analysed(self, proc: Procedure, outcome: TapOutcome,
+                      answer: ModelAnswer | None) -> None:
+        self.tap_analysing = False
+        if proc is not self.procedure:
+            return
+        try:
+            refusal = proc.tap_recorded(outcome, answer)
+        except GateRefused as exc:
+            self.message = f"Refused: {exc}"
+        else:
+            if refusal is None:
+                self.keeper.model(proc)  # a continued job uses the very same model
+                self.message = " ".join(texts.tap_lines(
+                    outcome, proc.model.trusted if proc.model is not None else None))
+            else:
+                self.message = f"Tap test not used: {texts.TAP_REFUSED[refusal]}."
+        self.tick()
+
+    def tap_status(self) -> str:
+        """The tap test's recording in words (empty: none)."""
+        if self.tap_analysing:
+            return texts.TAP_ANALYSING
+        seconds = self.session.tap_recording_s
+        return "" if seconds is None else f"Recording: {seconds:.0f} s kept so far."
 
     def second_start(self) -> None:
         """n: start the machine once more as found, after a stop: does the 1x repeat?"""
@@ -1096,9 +1189,12 @@ class TrueturnApp(App):
     def model_words(self) -> tuple[str, ...]:
         """Model-first: why the model was not trusted, while the trials it led to go on."""
         proc = self.procedure
-        if proc is None or proc.model is None or proc.model.trusted or proc.verdict is not None:
+        if proc is None or proc.model is None or proc.verdict is not None:
             return ()
-        return (texts.model_refused(proc.model.distrust),)
+        tap = texts.tap_lines(proc.tap, proc.model.trusted)
+        if proc.model.trusted or isinstance(proc.step, TapTest):
+            return tap
+        return (texts.model_refused(proc.model.distrust), *tap)
 
     def sweep_warnings(self) -> tuple[str, ...]:
         """The last sweep's findings (a resonance near the balancing speed), in words."""
@@ -1149,7 +1245,7 @@ class TrueturnApp(App):
             message=texts.plain(texts.not_saved(self.keeper.unsaved)
                                 if self.keeper.unsaved and not self.quit_armed
                                 else self.message),
-            alarm=alarm)
+            alarm=alarm, tap_status=self.tap_status())
         bench.query_one("#guide-view", GuideView).show(proc, snap, ctx)
 
 

@@ -36,7 +36,14 @@ from trueturn.jobs.sweeps import sweep_entry
 from trueturn.model import Run, RunKind, SafetyEvent
 from trueturn.model.units import VIBRATION_UNIT_LABELS
 from trueturn.positions import number_of
-from trueturn.procedure.guide import GateRefused, MassChange, Mode, Procedure, planes_for
+from trueturn.procedure.guide import (
+    GateRefused,
+    MassChange,
+    Mode,
+    Procedure,
+    TapOutcome,
+    planes_for,
+)
 from trueturn.procedure.standstill import StandstillEvidence
 from trueturn.ui.texts import VERDICT_FLAG_WORDS, verdict_note
 
@@ -431,9 +438,10 @@ def model_record(proc: Procedure) -> rec.ModelEntry:
     distrust = [Distrust(d) for d in model.distrust]
     after = proc.run_numbers[0] if proc.run_numbers else 1
     prior = model.prior
+    tap = tap_record(proc.tap) if proc.tap is not None else None
     if not model.trusted or not isinstance(prior, PredictedInfluence):
         return rec.ModelEntry(after, rec.now_iso(), False, distrust,
-                              model.residual_fraction_95)
+                              model.residual_fraction_95, tap=tap)
     planes = [p.name for p in planes_for(proc.setup)]
     variance = np.array([np.real(np.diagonal(c)) for c in prior.covariance])
     covariance = [rec.ModelCovarianceEntry(s, np.real(c).tolist(), np.imag(c).tolist())
@@ -441,7 +449,15 @@ def model_record(proc: Procedure) -> rec.ModelEntry:
     return rec.ModelEntry(after, rec.now_iso(), True, [], model.residual_fraction_95, planes,
                           list(model.mass_95_g), list(model.angle_95_deg),
                           coefficient_entries(prior.sensors, planes, prior.matrix, variance),
-                          covariance)
+                          covariance, tap=tap)
+
+
+def tap_record(tap: TapOutcome) -> rec.TapEntry:
+    """The job file's entry of the tap test that informed the model: when, the taps, the
+    modes per pickup."""
+    return rec.TapEntry(rec.now_iso(), tap.taps,
+                        [rec.TapModeEntry(sensor, m.frequency_hz, m.frequency_se_hz)
+                         for sensor, modes in tap.modes.items() for m in modes])
 
 
 def mass_record(proc: Procedure, change: MassChange) -> rec.MassChange:

@@ -23,6 +23,7 @@ import numpy as np
 
 from trueturn.angles import phasor
 from trueturn.balance.model_first import PredictedInfluence
+from trueturn.balance.support_fit import StandstillMode
 from trueturn.dsp.findings import Finding
 from trueturn.dsp.severity import BAND_HZ, NoSeverity, Severity, Zone
 from trueturn.dsp.unbalance import failing_rules
@@ -35,7 +36,15 @@ from trueturn.jobs.sweeps import slope_sweeps
 from trueturn.model import MassKind, PlacedMass, Plane, Run, RunKind
 from trueturn.positions import index_of, number_of, position_text
 from trueturn.procedure.engine import resonances_of_sweeps, speed_slopes_from_sweeps
-from trueturn.procedure.guide import Engine, KeptRun, Mode, ModelAnswer, Procedure, planes_for
+from trueturn.procedure.guide import (
+    Engine,
+    KeptRun,
+    Mode,
+    ModelAnswer,
+    Procedure,
+    TapOutcome,
+    planes_for,
+)
 from trueturn.procedure.standstill import StandstillWatch
 from trueturn.schema import to_data
 from trueturn.ui.jobfile import AMPLITUDE_NOTE, METHOD_OF_MODE
@@ -185,8 +194,10 @@ def model_answer(entry: rec.ModelEntry, job: rec.JobRecord) -> ModelAnswer:
     verdict comes out as it did live; one-line UserError when the entry does not fit the
     job's pickups and planes."""
     distrust = tuple(d.value for d in entry.distrust)
+    tapped = entry.tap is not None
     if not entry.trusted:
-        return ModelAnswer(False, distrust, residual_fraction_95=entry.residual_fraction_95)
+        return ModelAnswer(False, distrust, residual_fraction_95=entry.residual_fraction_95,
+                           tapped=tapped)
     sensors = tuple(p.name for p in job.machine.pickups)
     table = {(c.sensor, c.plane): c for c in entry.predicted}
     covariance = {c.sensor: c for c in entry.covariance}
@@ -204,7 +215,18 @@ def model_answer(entry: rec.ModelEntry, job: rec.JobRecord) -> ModelAnswer:
                                np.degrees(np.arcsin(np.minimum(spread, 1.0))), spread, False,
                                entry.residual_fraction_95)
     return ModelAnswer(True, (), tuple(entry.mass_95_g), tuple(entry.angle_95_deg),
-                       entry.residual_fraction_95, prior)
+                       entry.residual_fraction_95, prior, tapped=tapped)
+
+
+def kept_tap(entry: rec.ModelEntry | None) -> TapOutcome | None:
+    """The tap test the job's model was computed with, as the procedure holds it (None:
+    none was made)."""
+    if entry is None or entry.tap is None:
+        return None
+    modes: dict[str, list[StandstillMode]] = {}
+    for m in entry.tap.modes:
+        modes.setdefault(m.sensor, []).append(StandstillMode(m.frequency_hz, m.frequency_se_hz))
+    return TapOutcome({k: tuple(v) for k, v in modes.items()}, entry.tap.taps)
 
 
 def job_speed_slopes(job: rec.JobRecord) -> tuple[object, ...]:
@@ -265,7 +287,7 @@ def restore_procedure(job: rec.JobRecord, engine: Engine, watch: StandstillWatch
                                  rotor_set=pending is not None,
                                  redo_of=pending.redo_of if pending is not None else None,
                                  watch=watch, model=model, doubt=as_found_doubt(job),
-                                 went_on=job.went_on is not None)
+                                 went_on=job.went_on is not None, tap=kept_tap(job.model))
     except ValueError as exc:
         raise UserError(f"job {job.job_id} cannot be continued: {exc}") from None
 

@@ -40,6 +40,10 @@ class DemoRig:
     def motor(self, on: bool) -> None:
         self.session.rig_call("motor_start" if on else "motor_stop")
 
+    def taps(self, on: bool) -> None:
+        """The demo's stand-in for a person tapping the housings (a tap test), or not."""
+        self.session.rig_call("tap_test", on)
+
     def carry_over(self, old_rig: object) -> None:
         """A reopened ``sim://`` port is a fresh virtual board: give it the rotor as it was
         (the weights the person put on, the motor on or off) - a pulled cable changes

@@ -41,6 +41,26 @@ LINK_SILENCE_S = 3.0
 Clock = Callable[[], float]
 
 
+#: the messages a tap test's recording keeps (dsp.bump.analyze_bump_messages reads them)
+TAP_MESSAGES = frozenset({"stream_config", "samples", "tach"})
+#: at most this many sample blocks in a tap test's recording (a few minutes at 2 kHz: a
+#: recording left running does not grow without bound; our choice)
+TAP_MAX_MESSAGES = 20000
+
+
+@dataclass(frozen=True)
+class TapRecording:
+    """A tap test's recording (decoded messages) with what its analysis needs: the
+    pickups' profiles, the mains frequency, the board's identity, and the board time at
+    its end."""
+
+    messages: tuple[Message, ...]
+    profiles: tuple[Any, ...]
+    mains_hz: float
+    identity: dict[str, Any] | None
+    time_s: float
+
+
 class LinkProblem(Exception):
     """The port cannot be used (cannot open, no identity, wrong firmware); one line."""
 
@@ -135,6 +155,9 @@ class LinkSession:
         self._heard_s: float | None = None  # host time of the last message (while streaming)
         self._clock = clock
         self.restarts = 0
+        #: a tap test's recording: the decoded messages since it began (None: not recording)
+        self._tap: list[Message] | None = None
+        self._stream_config: Message | None = None  # the stream's, as the board sent it
 
     @classmethod
     def for_machine(cls, url: str, profile: MachineProfile, *, rate_hz: int = 2000,
@@ -312,7 +335,11 @@ class LinkSession:
 
     def _handle(self, msg: Message) -> None:
         v = msg.values
+        if self._tap is not None and msg.name in TAP_MESSAGES:
+            if msg.name != "samples" or len(self._tap) < TAP_MAX_MESSAGES:
+                self._tap.append(msg)
         if msg.name == "stream_config":
+            self._stream_config = msg
             self._handle_config(v)
         elif msg.name == "samples":
             last_index = v["first_index"] + len(v["samples"]) - 1
@@ -418,6 +445,32 @@ class LinkSession:
         None."""
         with self._state:
             return self.meter.stop_sweep()
+
+    def start_tap_recording(self) -> None:
+        """Keep the board's samples and tach edges from now on (a tap test at standstill);
+        the stream's configuration goes first, so the recording reads on its own."""
+        with self._state:
+            self._tap = [self._stream_config] if self._stream_config is not None else []
+
+    def stop_tap_recording(self) -> TapRecording | None:
+        """Stop recording; what was kept, with what its analysis needs (None: not
+        recording)."""
+        with self._state:
+            kept, self._tap = self._tap, None
+        if kept is None:
+            return None
+        ident = self.board.identity if self.board is not None else None
+        return TapRecording(tuple(kept), tuple(self.meter.profiles), self.mains_hz,
+                            dict(ident) if ident else None, self.watch.now_s or 0.0)
+
+    @property
+    def tap_recording_s(self) -> float | None:
+        """Seconds of samples the tap test's recording holds (None: not recording)."""
+        kept = self._tap
+        if kept is None:
+            return None
+        samples = sum(len(m.values["samples"]) for m in kept if m.name == "samples")
+        return samples / max(1, self.channels) / max(1, self.rate_hz)
 
     @property
     def sweeping(self) -> bool:

@@ -48,6 +48,8 @@ from trueturn.procedure.guide import (
     ShowVerdict,
     Step,
     Stopped,
+    TapPhase,
+    TapTest,
     TooSmallTrial,
     standstill_basis_words,
     standstill_refusal,
@@ -77,6 +79,7 @@ class GuideContext:
     alarm: str = ""  # an alarm held until acknowledged: shown instead of the message
     condition: tuple[str, ...] = ()  # the machine's condition from the last as-found/check run
     open_job: tuple[str, ...] = ()  # the set-up's offer of an open job (texts.open_job_lines)
+    tap_status: str = ""  # the tap test's recording: seconds kept, or being analysed
 
 
 class StepPanel(Static):
@@ -232,17 +235,7 @@ class HandsOnPanel(ProcedurePanel):
 
     def evidence_words(self, ev: StandstillEvidence | None) -> tuple[str, ...]:
         """What proved standstill, or why it is not proven (and to stop the machine)."""
-        if ev is None:
-            return ()
-        if ev.proven:
-            return (f"[green]Standstill proven: {standstill_basis_words(ev)}.[/green]",)
-        style = "yellow" if ev.state is StandstillState.CHECKING else "b red"
-        lines = [f"[{style}]Not at proven standstill: {standstill_refusal(ev)}.[/]"]
-        if ev.state in (StandstillState.TURNING, StandstillState.TACH_FAULT) or (
-                ev.tach_absent and ev.moving_pickups):
-            how = texts.STOP_DEMO if self.demo else texts.STOP_MACHINE
-            lines.append(f"[b red]Stop: {how}.[/]")
-        return tuple(lines)
+        return standstill_lines(ev, self.demo)
 
     def body(self) -> list[str]:
         lines = [*(self.work or (texts.LOOK_OVER,)), *self.standstill]
@@ -257,6 +250,21 @@ class HandsOnPanel(ProcedurePanel):
         lines.append((texts.ENTER_LOCKED_OUT if lockout else texts.ENTER_DONE)
                      + (texts.FIT_KEYS if self.fittable else ""))
         return lines
+
+
+def standstill_lines(ev: StandstillEvidence | None, demo: bool) -> tuple[str, ...]:
+    """What proved standstill, or why it is not proven (and to stop the machine)."""
+    if ev is None:
+        return ()
+    if ev.proven:
+        return (f"[green]Standstill proven: {standstill_basis_words(ev)}.[/green]",)
+    style = "yellow" if ev.state is StandstillState.CHECKING else "b red"
+    lines = [f"[{style}]Not at proven standstill: {standstill_refusal(ev)}.[/]"]
+    if ev.state in (StandstillState.TURNING, StandstillState.TACH_FAULT) or (
+            ev.tach_absent and ev.moving_pickups):
+        how = texts.STOP_DEMO if demo else texts.STOP_MACHINE
+        lines.append(f"[b red]Stop: {how}.[/]")
+    return tuple(lines)
 
 
 @dataclass(frozen=True)
@@ -618,6 +626,46 @@ class StoppedPanel(ProcedurePanel):
         return lines
 
 
+class TapPanel(ProcedurePanel):
+    """The optional tap test (model-first on a stiff mount): what to do and the cautions,
+    the standstill evidence and the gate's checklist, then the recording's status; a
+    recording refused says why; the modes found and the model's answer follow the step."""
+
+    phase: reactive[TapPhase] = reactive(TapPhase.OFFERED)
+    refused: reactive[str] = reactive("")
+    items: reactive[tuple[str, ...]] = reactive(())
+    ticked: reactive[frozenset[int]] = reactive(frozenset())
+    standstill: reactive[tuple[str, ...]] = reactive(())
+    recording: reactive[str] = reactive("")  # the recording's status (from the app)
+
+    def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
+        super().show(proc, snap, ctx)
+        assert proc is not None and isinstance(proc.step, TapTest)
+        self.phase = proc.step.phase
+        why = proc.step.refused
+        self.refused = texts.TAP_REFUSED[why] if why is not None else ""
+        self.items = proc.checklist()
+        self.ticked = frozenset(proc.ticked)
+        self.standstill = standstill_lines(snap.evidence, self.demo) \
+            if self.phase is not TapPhase.TAPPING else ()
+        self.recording = ctx.tap_status
+
+    def body(self) -> list[str]:
+        if self.phase is TapPhase.TAPPING:
+            return [texts.TAP_TAPPING, *([texts.TAP_DEMO] if self.demo else []),
+                    *([self.recording] if self.recording else []), texts.MAKER_NOTE,
+                    texts.ENTER_TAP_DONE]
+        lines = list(texts.TAP_OFFER) if not self.refused else [
+            f"[b red]Tap test not used[/]: {self.refused}."]
+        lines += [*self.standstill, texts.TAP_TICK]
+        for i, item in enumerate(self.items):
+            box = "\\[x]" if i in self.ticked else "\\[ ]"
+            lines.append(f"  {box} {item}")
+        lines += [texts.MAKER_NOTE,
+                  texts.ENTER_TAP_AGAIN if self.refused else texts.ENTER_TAP]
+        return lines
+
+
 def panel_for(step: Step) -> str:
     """The id of the panel that shows a step, by the step's type (the tagged union)."""
     match step:
@@ -631,6 +679,8 @@ def panel_for(step: Step) -> str:
             return "verdict-panel"
         case ShowDoubt():
             return "doubt-panel"
+        case TapTest():
+            return "tap-panel"
         case Stopped():
             return "stopped-panel"
     raise TypeError(f"no panel for {type(step).__name__}")
@@ -667,6 +717,7 @@ class GuideView(Vertical):
             yield CorrectionPanel(id="correction-panel")
             yield VerdictPanel(id="verdict-panel")
             yield DoubtPanel(id="doubt-panel")
+            yield TapPanel(id="tap-panel")
             yield StoppedPanel(id="stopped-panel")
             yield LinkLostPanel(id="link-panel")
         yield ProgressBar(total=100, show_eta=False, id="progress")

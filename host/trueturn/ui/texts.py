@@ -21,7 +21,7 @@ from trueturn.model.units import (
     vibration_text,
 )
 from trueturn.positions import number_of, position_text
-from trueturn.procedure.guide import Mode
+from trueturn.procedure.guide import Mode, TapOutcome, TapRefusal
 
 if TYPE_CHECKING:
     from trueturn.procedure.guide import MassChange
@@ -118,6 +118,7 @@ KEYS: list[tuple[str, str]] = [
     ("e", "Guide: run again the run that was off speed, before placing the correction"),
     ("n", "Guide: start once more as found, after a stop (does the 1x repeat? optional)"),
     ("k", "Guide: stop the job here when balancing may not help (the reason is kept)"),
+    ("t", "Guide: skip the tap test (model first, stiff mounts) and use trial runs"),
     ("o / x", "Demo rig: switch the virtual motor on / off"),
     ("l", "Link lost: reconnect to the same port (the run starts over)"),
     ("w", "Job not saved (disk full, workspace not writable): save it in another folder"),
@@ -248,6 +249,51 @@ def model_refused(codes: Sequence[str]) -> str:
     """One line: why the model gives no correction, and what happens instead."""
     why = "; ".join(DISTRUST_WORDS.get(c, c) for c in codes) or "no reason given"
     return f"Model not trusted ({why}): a trial run per plane follows; the as-found run is kept."
+
+
+#: the tap test's screen (model-first on a stiff mount): what to do, and its keys
+TAP_OFFER = (
+    "The coast-down found no resonance of the supports below the speed: the mounts are "
+    "stiff, and the coast-down alone cannot tell how stiff, so the model is not trusted yet.",
+    "A tap test may settle it: with the machine stopped and locked out, strike the bearing "
+    "housing or the frame (not the rotor, a weight or a pickup) with a soft mallet, about "
+    "every 2 s, a few times at each pickup; the pickups record how it rings.",
+    "Optional: t skips it and goes on with a trial run per plane.",
+)
+TAP_TICK = "Before you start, at proven standstill (Space ticks, Backspace takes back):"
+ENTER_TAP = "[b]Enter[/b]: locked out, start recording   [b]t[/b]: skip, use trial runs"
+ENTER_TAP_AGAIN = "[b]Enter[/b]: tap again (record anew)   [b]t[/b]: skip, use trial runs"
+TAP_TAPPING = ("Recording: tap the bearing housing or the frame with a soft mallet, about "
+               "every 2 s, five taps or more, then press Enter. Keep clear of the wheel.")
+ENTER_TAP_DONE = "[b]Enter[/b]: taps done, analyse   [b]t[/b]: skip, use trial runs"
+TAP_DEMO = "Demo: the virtual mallet taps the housings every 2 s while recording."
+TAP_ANALYSING = "Analysing the taps (the support fit takes a few seconds)…"
+#: why a tap test's recording was not used (procedure.guide.TapRefusal)
+TAP_REFUSED: dict[TapRefusal, str] = {
+    TapRefusal.TURNING: "the rotor turned during the recording (tach edges, or a line that "
+                        "does not die out): stop the machine, lock it out and tap again",
+    TapRefusal.NO_TAPS: "no tap was found in the recording: strike firmer (a soft mallet, on "
+                        "the housing), about every 2 s",
+    TapRefusal.NO_MODES: "the taps did not ring at a frequency they agree on: tap the housing "
+                         "at each pickup, a few times each, and let it ring out between taps",
+}
+TAP_SKIPPED = "Tap test skipped: a trial run per plane follows."
+
+
+def tap_lines(tap: TapOutcome | None, trusted: bool | None) -> tuple[str, ...]:
+    """The tap test's modes per pickup (Hz, ± one standard error) and whether the model
+    is trusted with them (None: not asked yet)."""
+    if tap is None:
+        return ()
+    found = "; ".join(
+        f"{name} " + ", ".join(f"{m.frequency_hz:.1f} ± {m.frequency_se_hz:.1f} Hz"
+                               for m in modes)
+        for name, modes in tap.modes.items() if modes) or "no mode"
+    lines = [f"Tap test ({tap.taps} taps): {found}."]
+    if trusted is not None:
+        lines.append("With it the model is trusted: its correction needs no trial run."
+                     if trusted else "Even with it the model is not trusted.")
+    return tuple(lines)
 
 
 MODEL_TRUSTED = ("From the model, no trial run: the coast-down fits, the pickups' angles are "

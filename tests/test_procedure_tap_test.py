@@ -1,0 +1,203 @@
+"""Model-first on a stiff mount: the optional tap (bump) test at standstill (issue #20).
+
+Checked against the simulator's physics (its 4-DOF rotor, trueturn.sim.rotor; not our
+estimator). The lathe faceplate's supports are stiff: its rigid-body modes (29-70 Hz) lie
+above the balancing speed, so the coast-down finds none. The coast-down's curve is stood in
+for by the simulator's own 1x from the speed down to a quarter of it with a measurement
+scatter (tests/test_balance_support_fit.py ``_curve``); the tap by the simulator's damped
+modes at rest each pickup sees (tests/test_balance_support_fit_tap.py ``_tap``; the
+eigenproblem of K and M, Rao, *Mechanical Vibrations*, from memory), each frequency with
+a 1 % error. Physics truth: the masses placed cut the modelled 1x at every pickup to a
+tenth and the job reaches PASS. A tap test is a hands-on step: proven standstill and the
+checklist (common practice, no source: lock out, strike the housing, never the rotor).
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from test_balance_support_fit_tap import _tap
+from test_procedure_model_first import coast_down_resonances
+from test_ui_procedure import Rig, tick_all
+from test_ui_resume_model_first import keep_job, restart
+from trueturn.balance.support_fit import SweepCurve
+from trueturn.jobs.report import model_lines
+from trueturn.procedure.engine import SweepEvidence
+from trueturn.procedure.guide import (
+    GateRefused,
+    Mode,
+    ShowCorrection,
+    TapOutcome,
+    TapPhase,
+    TapRefusal,
+    TapTest,
+)
+
+#: the curve's scatter per part, m/s^2 (a noisy coast-down: the model alone is unsure)
+SCATTER_M_S2 = 0.2
+
+
+def stiff_sweep(rig: Rig, seed: int = 0) -> tuple[SweepEvidence, np.random.Generator]:
+    """The as-found coast-down of the rig's rotor: no resonance below the speed (the
+    simulator's own criticals) and the whole curve, noisy; and the random stream after it."""
+    rng = np.random.default_rng(seed)
+    rotor, speed = rig.scenario.rotor, rig.setup.speed_rpm
+    speeds = speed * np.geomspace(1.0, 0.25, 278)
+    truth = np.array([[rotor.response_1x(float(n), rig.masses)[k] for k in rig.setup.sensors]
+                      for n in speeds])
+    sigma = SCATTER_M_S2 + 0.003 * np.abs(truth)
+    noisy = truth + sigma * (rng.normal(size=truth.shape) + 1j * rng.normal(size=truth.shape))
+    resonances = coast_down_resonances(rig)
+    assert not any(resonances.values())  # a stiff mount: nothing below the speed
+    return SweepEvidence(resonances, SweepCurve(speeds, noisy, sigma)), rng
+
+
+def offered(rig: Rig) -> np.random.Generator:
+    """Set-up, the as-found run and its coast-down: the tap test is offered."""
+    rig.hands_on()
+    rig.run()
+    evidence, rng = stiff_sweep(rig)
+    rig.proc.sweep_analysed(evidence)
+    model = rig.proc.model
+    assert model is not None and not model.trusted and model.tap_may_help, model
+    assert isinstance(rig.proc.step, TapTest) and rig.proc.step.phase is TapPhase.OFFERED
+    return rng
+
+
+def tapped(rig: Rig, rng: np.random.Generator) -> TapOutcome:
+    modes = _tap(rig.scenario.rotor, rng)
+    return TapOutcome({k: tuple(v) for k, v in modes.items()}, taps=5, time_s=rig.t)
+
+
+def begin(rig: Rig) -> None:
+    rig.settle()
+    tick_all(rig.proc)
+    rig.proc.begin_tap(rig.t)
+
+
+def test_offered_only_when_the_model_of_a_stiff_mount_is_not_trusted() -> None:
+    # the grinder's soft mounts: the coast-down finds its supports; trusted, no tap
+    soft = Rig("bench-grinder", Mode.MODEL_FIRST)
+    soft.hands_on()
+    soft.run()
+    soft.proc.sweep_analysed(coast_down_resonances(soft))
+    assert soft.proc.model is not None and soft.proc.model.trusted
+    assert not soft.proc.model.tap_may_help and isinstance(soft.proc.step, ShowCorrection)
+    # the lathe without the curve (resonances only): the tap has no fit to hold, trials
+    flat = Rig("lathe-faceplate", Mode.MODEL_FIRST)
+    flat.hands_on()
+    flat.run()
+    flat.proc.sweep_analysed(coast_down_resonances(flat))
+    assert flat.proc.model is not None and "stiffness-unknown" in flat.proc.model.distrust
+    assert not flat.proc.model.tap_may_help and flat.proc.fallback
+    assert flat.proc.step.kind == "hands-on" and "trial" in flat.proc.step.title
+    # the lathe with its noisy curve: too uncertain, the tap is offered
+    offered(Rig("lathe-faceplate", Mode.MODEL_FIRST))
+
+
+def test_skipping_the_tap_goes_on_with_trials() -> None:
+    rig = Rig("lathe-faceplate", Mode.MODEL_FIRST)
+    before = rig.response()
+    offered(rig)
+    rig.proc.skip_tap()
+    assert rig.proc.fallback and rig.proc.tap is None
+    assert rig.proc.step.kind == "hands-on" and "trial" in rig.proc.step.title
+    rig.complete()
+    assert rig.proc.verdict is not None and rig.proc.verdict.passed
+    rig.assert_cut(before)
+    assert [r.label for r in rig.proc.runs][:2] == ["as found", "trial faceplate"]
+
+
+def test_the_tap_needs_standstill_and_the_checklist() -> None:
+    rig = Rig("lathe-faceplate", Mode.MODEL_FIRST)
+    offered(rig)
+    rig.spin(1.0, 300.0)   # someone turned the rotor over by hand: no standstill
+    with pytest.raises(GateRefused, match="turning|checking standstill"):
+        rig.proc.tick_next()
+    with pytest.raises(GateRefused):
+        rig.proc.begin_tap(rig.t)
+    rig.settle()
+    with pytest.raises(GateRefused, match="tick every item"):
+        rig.proc.begin_tap(rig.t)
+    tick_all(rig.proc)
+    assert len(rig.proc.checklist()) == 4
+    rig.proc.begin_tap(rig.t)
+    assert rig.proc.step.phase is TapPhase.TAPPING  # type: ignore[union-attr]
+    assert rig.proc.confirmations[-1][1].startswith("lock-out before: Tap test")
+    assert rig.proc.evidence_log[-1].proven
+
+
+def test_a_tap_with_modes_makes_the_model_trusted_and_balances_without_trials() -> None:
+    # on this rotor and coast-down the model alone is too uncertain; held to the tapped
+    # modes it is trusted (bench/bench_balance.py, "[model first, with a tap test]": most
+    # one-plane stiff mounts become trusted), and its correction cuts the 1x to a tenth
+    rig = Rig("lathe-faceplate", Mode.MODEL_FIRST)
+    before = rig.response()
+    rng = offered(rig)
+    blind = rig.proc.model
+    assert blind is not None and blind.distrust == ("too-uncertain",)
+    begin(rig)
+    outcome = tapped(rig, rng)
+    assert rig.proc.tap_recorded(outcome) is None
+    model = rig.proc.model
+    assert model is not None and model.trusted and model.tapped and rig.proc.tap == outcome
+    assert blind.residual_fraction_95 is not None and model.residual_fraction_95 is not None
+    assert model.residual_fraction_95 < blind.residual_fraction_95
+    assert isinstance(rig.proc.step, ShowCorrection) and not rig.proc.fallback
+    rig.complete()
+    assert rig.proc.verdict is not None and rig.proc.verdict.passed
+    rig.assert_cut(before)
+    assert not any(r.label.startswith("trial") for r in rig.proc.runs)
+
+
+@pytest.mark.parametrize("why", ["no-modes", "no-taps", "steady-line", "tach-edge"])
+def test_a_tap_recording_that_cannot_be_used_is_refused_and_can_be_redone(why: str) -> None:
+    rig = Rig("lathe-faceplate", Mode.MODEL_FIRST)
+    rng = offered(rig)
+    begin(rig)
+    good = tapped(rig, rng)
+    bad = {"no-modes": TapOutcome({n: () for n in rig.setup.sensors}, taps=4),
+           "no-taps": TapOutcome({}, taps=0),
+           "steady-line": TapOutcome(good.modes, taps=5, steady_line=True),
+           "tach-edge": good}[why]
+    if why == "tach-edge":
+        rig.spin(0.5, 120.0)   # the tach saw the rotor turn during the recording
+    expected = {"no-modes": TapRefusal.NO_MODES, "no-taps": TapRefusal.NO_TAPS,
+                "steady-line": TapRefusal.TURNING, "tach-edge": TapRefusal.TURNING}[why]
+    assert rig.proc.tap_recorded(bad) is expected
+    step = rig.proc.step
+    assert isinstance(step, TapTest) and step.phase is TapPhase.REFUSED
+    assert step.refused is expected and rig.proc.tap is None
+    with pytest.raises(GateRefused):
+        rig.proc.tap_recorded(good)   # not recording: a redo opens the gate again
+    begin(rig)
+    assert rig.proc.tap_recorded(good) is None
+    assert rig.proc.model is not None and rig.proc.model.tapped
+
+
+def test_a_resumed_job_keeps_the_tap_and_its_report_says_so(tmp_path: Path) -> None:
+    rig = Rig("lathe-faceplate", Mode.MODEL_FIRST)
+    keeper = keep_job(rig, tmp_path)
+    rng = offered(rig)
+    begin(rig)
+    rig.proc.tap_recorded(tapped(rig, rng))
+    keeper.model(rig.proc)
+    straight = rig.proc
+    assert straight.solution is not None
+    restart(rig, keeper)
+    proc = rig.proc
+    assert proc.model is not None and proc.model.trusted and proc.model.tapped
+    assert proc.tap is not None and proc.tap.modes.keys() == straight.tap.modes.keys()  # type: ignore[union-attr]
+    for name, modes in straight.tap.modes.items():  # type: ignore[union-attr]
+        assert [m.frequency_hz for m in proc.tap.modes[name]] == pytest.approx(
+            [m.frequency_hz for m in modes], rel=1e-12)
+    assert isinstance(proc.step, ShowCorrection) and proc.solution is not None
+    for a, b in zip(proc.solution.corrections, straight.solution.corrections, strict=True):
+        assert a.mass_g == pytest.approx(b.mass_g, rel=1e-9)
+    job = keeper.job
+    assert job is not None
+    tap_lines = [line for line in model_lines(job) if line.startswith("A tap test")]
+    assert len(tap_lines) == 1 and "Hz" in tap_lines[0], model_lines(job)

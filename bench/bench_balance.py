@@ -40,11 +40,16 @@ Procedures measured:
   correction with no trial, every later run refining the coefficients (recursive least
   squares), until a run falls far outside the model's prediction and the runs cannot stand
   alone: then, as in the app, the model's masses come off and trials follow; when not
-  trusted, trials sized to be seen, then corrections from the runs alone. Its verdict: the
-  residual's 95 % upper bound within the share of every plane. The rotor's polar inertia
-  is drawn between 0.25 and 0.75 M r^2.
-* ``[model first, with a tap test]``: the same rotors (same seed), every stiff mount also
-  tapped at standstill (``tap_test``: the rotor model's modes at rest each pickup sees,
+  trusted, trials sized to be seen, then corrections from the runs alone. When the app
+  offers a tap test at standstill (procedure.engine.tap_may_help: the coast-down found no
+  resonance and only the supports' stiffness stands in the way), the person takes it
+  (``tap_test``) and the model is asked again with its modes; a tap is a hands-on step at
+  standstill, not a run. Its verdict: the residual's 95 % upper bound within the share of
+  every plane. The rotor's polar inertia is drawn between 0.25 and 0.75 M r^2.
+* ``[model first, the tap test skipped]``: the same rotors (same seed), the offered tap
+  test skipped (trials instead).
+* ``[model first, with a tap test]``: the same rotors (same seed), every stiff mount
+  tapped at standstill whether offered or not (``tap_test``: the rotor model's modes at rest each pickup sees,
   housing included, 1 % frequency error, half the time only the lowest per pickup) and
   the modes handed to the support fit; also how often a trusted stiff prediction's own
   correction truly left more of the as-found 1x than its stated 95 % bound.
@@ -100,7 +105,7 @@ from trueturn.dsp.synthetic import (  # noqa: E402
 )
 from trueturn.dsp.units import PickupProfile  # noqa: E402
 from trueturn.errors import UserError  # noqa: E402
-from trueturn.procedure.engine import TRIAL_REDO_MARGIN  # noqa: E402
+from trueturn.procedure.engine import TRIAL_REDO_MARGIN, tap_may_help  # noqa: E402
 from trueturn.procedure.guide import DEFAULT_PHASE_LIMIT_DEG, SMALL_VECTOR_FRACTION  # noqa: E402
 from trueturn.sim import CorrectionPlane, Mass, PickupMount, RigidRotor, Support  # noqa: E402
 from trueturn.sim.scenario import ADC_COUNTS_PER_REFERENCE, ADC_REFERENCE_V  # noqa: E402
@@ -725,8 +730,10 @@ def one_rotor(rng: np.random.Generator, sizing: str, soft: bool) -> dict:
 
 
 def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool,
-                      tap: bool = False) -> dict:
-    """As found (+ sweep; with ``tap``, a stiff mount's tap test too) -> predicted coefficients -> a correction with no trial when the
+                      tap: str = "offered") -> dict:
+    """As found (+ sweep; a tap test when ``tap`` is "offered" and the app offers one,
+    or on every stiff mount with "every stiff"; never with "skipped") -> predicted
+    coefficients -> a correction with no trial when the
     model is trusted, every run refining them (RLS); a run far outside the model's
     prediction that the runs cannot stand without refutes it: its masses come off and
     trials follow, as in the app (procedure.guide.ModelRefuted). Not trusted: trials sized
@@ -742,9 +749,18 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool,
     first = shop.measure()["readings"]
     r0 = phasors_of(first)
     sweep = sweep_resonances(rotor, speed, rng)
+    curve = sweep_curve(shop, rng)
     prediction = predict_influence(layout_of(rotor), placements(rotor), speed, sweep, r0,
-                                   curve=sweep_curve(shop, rng),
-                                   standstill=tap_test(rotor) if tap and not soft else None)
+                                   curve=curve,
+                                   standstill=tap_test(rotor) if tap == "every stiff"
+                                   and not soft else None)
+    trusted_before_tap = prediction.trusted
+    tapped = tap == "every stiff" and not soft
+    if tap == "offered" and not prediction.trusted and tap_may_help(sweep, curve,
+                                                                    prediction.distrust):
+        tapped = True
+        prediction = predict_influence(layout_of(rotor), placements(rotor), speed, sweep, r0,
+                                       curve=curve, standstill=tap_test(rotor))
     # the share of the as-found 1x the model's own correction truly leaves (on the rotor
     # as found, no placement errors), against its stated 95 % bound
     over_bound = None
@@ -829,6 +845,7 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool,
     return {"runs": n_runs + shop.extra_runs if said_pass else MAX_RUNS + 1,
             "first_reduction": first_reduction if first_reduction is not None else 0.0,
             "true_pass": true_pass, "trusted": prediction.trusted, "refuted": refuted,
+            "tapped": tapped, "trusted_before_tap": trusted_before_tap,
             "names": names, "over_bound": over_bound}
 
 
@@ -887,6 +904,11 @@ def _model_first_figures() -> list[Row]:
                 f"{np.percentile(runs, 95):g} runs", "-", None),
             Row(f"balance [model first]: {words}, rotors whose model was trusted (no trial run)",
                 f"{100 * trusted:.0f} %", "-", None),
+            Row(f"balance [model first]: {words}, rotors offered a tap test at standstill "
+                "(taken)", f"{100 * np.mean([r['tapped'] for r in results]):.0f} %", "-", None),
+            Row(f"balance [model first]: {words}, rotors whose model was trusted before a tap "
+                "test", f"{100 * np.mean([r['trusted_before_tap'] for r in results]):.0f} %",
+                "-", None),
             Row(f"balance [model first]: {words}, rotors whose model a run refuted (its masses "
                 "off, trials followed)", f"{100 * refuted:.0f} %", "-", None),
             Row(f"balance [model first]: {words}, 1x reduction after the first correction (median)",
@@ -904,8 +926,30 @@ def _model_first_figures() -> list[Row]:
                 Row(f"balance [model first]: {words}, {mount}, rotors whose model was trusted",
                     f"{100 * np.mean([r['trusted'] for r in half]):.0f} %", "-", None),
             ]
-        rows_out += _tap_figures(n_planes, goal, words)
+        rows_out += _skipped_figures(n_planes, goal, words) + _tap_figures(n_planes, goal, words)
     return rows_out
+
+
+def _skipped_figures(n_planes: int, goal: int, words: str) -> list[Row]:
+    """The same rotors (same seed) when the person skips the offered tap test: trials
+    follow wherever the coast-down alone cannot tell the supports."""
+    rng = np.random.default_rng(2025 + n_planes)
+    results = [model_first_rotor(rng, n_planes, soft=bool(k % 2), tap="skipped")
+               for k in range(ROTORS_MODEL)]
+    runs = np.array([r["runs"] for r in results])
+    said = [r for r in results if r["runs"] <= MAX_RUNS]
+    false_pass = float(np.mean([not r["true_pass"] for r in said])) if said else 0.0
+    label = "balance [model first, the tap test skipped]"
+    return [
+        Row(f"{label}: runs to reach G {GRADE:g}, {words} (median)", f"{np.median(runs):g} runs",
+            f"median {goal}", bool(np.median(runs) <= goal)),
+        Row(f"{label}: runs to reach G {GRADE:g}, {words}, 95th percentile",
+            f"{np.percentile(runs, 95):g} runs", "-", None),
+        Row(f"{label}: {words}, rotors whose model was trusted",
+            f"{100 * np.mean([r['trusted'] for r in results]):.0f} %", "-", None),
+        Row(f"{label}: {words}, said within G {GRADE:g} but the true residual was not",
+            f"{100 * false_pass:.1f} %", "<= 1 %", false_pass <= 0.01),
+    ]
 
 
 def _tap_figures(n_planes: int, goal: int, words: str) -> list[Row]:
@@ -913,7 +957,7 @@ def _tap_figures(n_planes: int, goal: int, words: str) -> list[Row]:
     (tap_test), the soft ones as they were: how far a tap brings the stiff mounts, and
     whether the trusted predictions keep their 95 % bound."""
     rng = np.random.default_rng(2025 + n_planes)
-    results = [model_first_rotor(rng, n_planes, soft=bool(k % 2), tap=True)
+    results = [model_first_rotor(rng, n_planes, soft=bool(k % 2), tap="every stiff")
                for k in range(ROTORS_MODEL)]
     stiff = [r for k, r in enumerate(results) if not k % 2]
     said = [r for r in results if r["runs"] <= MAX_RUNS]

@@ -258,7 +258,8 @@ def standstill_lines(ev: StandstillEvidence | None, demo: bool) -> tuple[str, ..
         return ()
     if ev.proven:
         return (f"[green]Standstill proven: {standstill_basis_words(ev)}.[/green]",)
-    style = "yellow" if ev.state is StandstillState.CHECKING else "b red"
+    style = ("yellow" if ev.state in (StandstillState.CHECKING, StandstillState.TAP_RINGING)
+             else "b red")
     lines = [f"[{style}]Not at proven standstill: {standstill_refusal(ev)}.[/]"]
     if ev.state in (StandstillState.TURNING, StandstillState.TACH_FAULT) or (
             ev.tach_absent and ev.moving_pickups):
@@ -646,14 +647,20 @@ class TapPanel(ProcedurePanel):
         self.refused = texts.TAP_REFUSED[why] if why is not None else ""
         self.items = proc.checklist()
         self.ticked = frozenset(proc.ticked)
-        self.standstill = standstill_lines(snap.evidence, self.demo) \
-            if self.phase is not TapPhase.TAPPING else ()
+        ev = snap.evidence
+        # while tapping its ringing is expected: only a turning rotor is said (it refuses
+        # the recording)
+        turning = ev is not None and ev.state in (StandstillState.TURNING,
+                                                  StandstillState.TACH_FAULT)
+        self.standstill = standstill_lines(ev, self.demo) \
+            if self.phase is not TapPhase.TAPPING or turning else ()
         self.recording = ctx.tap_status
 
     def body(self) -> list[str]:
         if self.phase is TapPhase.TAPPING:
             return [texts.TAP_TAPPING, *([texts.TAP_DEMO] if self.demo else []),
-                    *([self.recording] if self.recording else []), texts.MAKER_NOTE,
+                    *([self.recording] if self.recording else []), *self.standstill,
+                    texts.MAKER_NOTE,
                     texts.ENTER_TAP_DONE]
         lines = list(texts.TAP_OFFER) if not self.refused else [
             f"[b red]Tap test not used[/]: {self.refused}."]

@@ -111,6 +111,11 @@ def test_the_tap_test_screen_gate_recording_and_modes(tmp_path: Path) -> None:
             shown = re.sub(r"\s+", " ", screen_text(app))
             assert "tap test" in shown.lower() and "Hz" in shown
             assert proc.model is not None and proc.model.tapped
+            # held to the tapped modes the model is trusted (test_procedure_tap_test.py);
+            # its correction says what made it so
+            assert proc.model.trusted, proc.model
+            assert "the tap test's modes pinned the supports' stiffness" in shown
+            assert "the coast-down fits," not in shown
             await press(app, pilot, "q")
     asyncio.run(scenario())
 

@@ -431,6 +431,7 @@ class CorrectionPanel(ProcedurePanel):
     waiting_sweep: reactive[bool] = reactive(False)
     model_spread: reactive[tuple[tuple[float, float], ...]] = reactive(())
     model_left: reactive[float | None] = reactive(None)
+    model_tapped: reactive[bool] = reactive(False)  # a tap test's modes informed the model
 
     def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
         super().show(proc, snap, ctx)
@@ -441,6 +442,7 @@ class CorrectionPanel(ProcedurePanel):
         self.model_spread = (tuple(zip(model.mass_95_g, model.angle_95_deg, strict=True))
                              if first and model is not None else ())
         self.model_left = model.residual_fraction_95 if first and model is not None else None
+        self.model_tapped = first and model is not None and model.tapped
         self.problem = proc.problem
         self.sweep_lost = proc.sweep_lost
         small = proc.too_small_trial
@@ -476,7 +478,8 @@ class CorrectionPanel(ProcedurePanel):
         if self.waiting_sweep:
             return [texts.MODEL_WAITING]
         spread = self.model_spread
-        lines = [texts.MODEL_TRUSTED] if spread else [f"Method: {self.method}"]
+        trusted = texts.MODEL_TRUSTED_TAPPED if self.model_tapped else texts.MODEL_TRUSTED
+        lines = [trusted] if spread else [f"Method: {self.method}"]
         for j, c in enumerate(self.corrections):
             # removal: the same mass taken out opposite the add angle
             verb, at = (("remove", wrap_deg(c.angle_deg + 180.0)) if self.removal

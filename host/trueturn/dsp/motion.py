@@ -78,6 +78,10 @@ class PickupMotion:
     #: the line is a free vibration dying out (:func:`free_vibration`): a structure ringing
     #: after its rotor stopped, not a turning rotor. Still motion: the pickup is not quiet.
     ringing: bool = False
+    #: the line's envelope falls well below its peak within the window (:func:`lulls`):
+    #: bursts of free vibration, as a tap test's strikes make, not the level a turning
+    #: rotor keeps. False when it keeps its level or cannot be told (the safe side).
+    lulls: bool = False
 
     @property
     def live(self) -> bool:
@@ -300,19 +304,12 @@ def free_vibration(values: np.ndarray, rate_hz: float, line_hz: float,
        signal (from memory); ``scipy.signal.hilbert``, ``scipy.signal.sosfiltfilt``.
     """
     x = np.asarray(values, dtype=float)
-    half_hz = min(max(RING_BAND_MIN_HZ, RING_BAND_FRACTION * line_hz), 0.5 * line_hz)
-    low_hz, high_hz = line_hz - half_hz, line_hz + half_hz
-    if x.size < 64 or low_hz <= 0 or high_hz >= 0.45 * rate_hz:
+    band = _line_band(x, rate_hz, line_hz)
+    if band is None:
         return None
-    zeros, poles, gain = signal.butter(2, [low_hz, high_hz], btype="bandpass", fs=rate_hz,
-                                       output="zpk")
-    sos = signal.zpk2sos(zeros, poles, gain)
-    analytic = signal.hilbert(signal.sosfiltfilt(sos, x - float(np.mean(x))))
+    analytic, settle = band
     envelope = np.abs(analytic)
     time_s = np.arange(x.size) / rate_hz
-    # the filter's own transient, from each end: its slowest pole's decay, per sample
-    slowest = float(-np.log(np.abs(poles)).min())
-    settle = int(math.ceil(RING_SETTLE_E_FOLDS / slowest))
     use = np.zeros(x.size, dtype=bool)
     use[settle: x.size - settle] = True
     use &= envelope >= min_amplitude
@@ -335,6 +332,73 @@ def free_vibration(values: np.ndarray, rate_hz: float, line_hz: float,
     drift = float(2.0 * curve * span_s / (2.0 * math.pi)) / frequency_hz
     return FreeVibration(decay_per_s=-float(slope), frequency_hz=frequency_hz, drift=drift,
                          fade=math.exp(float(slope) * span_s), r2=r2, span_s=span_s)
+
+
+def _line_band(x: np.ndarray, rate_hz: float, line_hz: float
+               ) -> tuple[np.ndarray, int] | None:
+    """The analytic signal of the band kept around a line (Butterworth forward and
+    backward, Hilbert transform) and how many samples its filter's own transient lasts at
+    each end (its slowest pole's ``RING_SETTLE_E_FOLDS`` e-folds); None when the band does
+    not fit below Nyquist or there are too few samples."""
+    half_hz = min(max(RING_BAND_MIN_HZ, RING_BAND_FRACTION * line_hz), 0.5 * line_hz)
+    low_hz, high_hz = line_hz - half_hz, line_hz + half_hz
+    if x.size < 64 or low_hz <= 0 or high_hz >= 0.45 * rate_hz:
+        return None
+    zeros, poles, gain = signal.butter(2, [low_hz, high_hz], btype="bandpass", fs=rate_hz,
+                                       output="zpk")
+    sos = signal.zpk2sos(zeros, poles, gain)
+    analytic = signal.hilbert(signal.sosfiltfilt(sos, x - float(np.mean(x))))
+    slowest = float(-np.log(np.abs(poles)).min())
+    return analytic, int(math.ceil(RING_SETTLE_E_FOLDS / slowest))
+
+
+#: :func:`lulls`: the line's envelope, low decile against high decile over the window
+LULL_PERCENTILES = (10.0, 90.0)
+
+
+def lulls(values: np.ndarray, rate_hz: float, line_hz: float) -> bool:
+    """Does a line fall well below its peak within the window (lulls between bursts)?
+
+    A turning rotor forces its lines at a level that holds from turn to turn (it changes
+    with the speed, slowly); free vibration started by strikes (a tap test: one strike
+    every second or two) dies out between them, each burst falling as
+    ``e^{-zeta omega_n t}``. The band around the line is kept as in
+    :func:`free_vibration`; over the window (the filter's settling left out at each end)
+    the envelope's low decile under :data:`RING_FADE` of its high decile is a lull.
+
+    Parameters
+    ----------
+    values : numpy.ndarray
+        One pickup's samples, g (or volts).
+    rate_hz : float
+        Sample rate, Hz.
+    line_hz : float
+        The line's frequency (:func:`motion_spectrum`), Hz.
+
+    Returns
+    -------
+    bool
+        True: the line lulls (bursts of free vibration). False: it keeps its level, or the
+        window is too short or the band does not fit below Nyquist (nothing is said: the
+        safe side, a line that may be a turning rotor's).
+
+    References
+    ----------
+    .. [1] S. S. Rao, "Mechanical Vibrations", 2.6 (free vibration with viscous damping)
+       (from memory); steady forced response at the forcing frequency, ch. 3 (from memory).
+    .. [2] M. Feldman, "Hilbert Transform Applications in Mechanical Vibration", Wiley,
+       2011: the envelope from the analytic signal (from memory).
+    """
+    x = np.asarray(values, dtype=float)
+    band = _line_band(x, rate_hz, line_hz)
+    if band is None:
+        return False
+    analytic, settle = band
+    envelope = np.abs(analytic)[settle: x.size - settle]
+    if envelope.size < max(RING_MIN_SPAN_S, RING_MIN_CYCLES / line_hz) * rate_hz:
+        return False
+    low, high = np.percentile(envelope, LULL_PERCENTILES)
+    return bool(high > 0.0 and low < RING_FADE * high)
 
 
 class MotionMonitor:
@@ -478,5 +542,6 @@ class MotionMonitor:
             out.append(PickupMotion(
                 name, level, limit, None if line is None else line[0],
                 None if line is None else line[1], x.size / self.rate_hz, self.units[c],
-                self._at_rail(counts), ringing=ring is not None and ring.rings_down))
+                self._at_rail(counts), ringing=ring is not None and ring.rings_down,
+                lulls=line is not None and lulls(x, self.rate_hz, line[0])))
         return tuple(out)

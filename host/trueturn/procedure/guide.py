@@ -535,6 +535,9 @@ def standstill_refusal(ev: StandstillEvidence) -> str:
         return "the tach sees the rotor turning: stop the machine and wait"
     if state is StandstillState.TACH_FAULT:
         return tach_fault_words(ev) + ": nothing hands-on until the tach and the pickups agree"
+    if state is StandstillState.TAP_RINGING:
+        return ("the tap test's ringing: the pickups see the supports ring after each strike "
+                "(expected); standstill is proven again once it has died out")
     if ev.tach_fault_latched and not ev.tach_absent:
         return (f"the tach went silent while the pickups saw the machine run: standstill "
                 f"needs {ev.tach_hold_needed_s:.0f} s of quiet pickups and tach "
@@ -1360,7 +1363,10 @@ class Procedure:
         if not isinstance(step, TapTest) or step.phase is not TapPhase.TAPPING:
             raise GateRefused("no tap test is being recorded")
         edge = self.watch.last_edge_s
-        turned = edge is not None and edge > (self._tap_started_s or 0.0)
+        # a tach edge since it began, or a line that kept its level behind the silent tach
+        # while it was recorded (the watch's tap test, trueturn.procedure.standstill)
+        turned = (edge is not None and edge > (self._tap_started_s or 0.0)
+                  or self.watch.tap_turned)
         refusal = TapRefusal.TURNING if turned else outcome.refusal
         if refusal is not None:
             self.step = replace(step, phase=TapPhase.REFUSED, refused=refusal)

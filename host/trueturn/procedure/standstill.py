@@ -37,6 +37,14 @@ quiet), so a stop is proven on the tach and the pickups once the ringing has die
 are believed when they say the rotor turns (``TURNING``), whatever the pickups say: a refusal
 is always safe.
 
+**A tap test** (:meth:`StandstillWatch.tap_test`: someone strikes the housings at
+standstill while it is recorded) rings the supports on purpose, again and again: lines that
+lull between strikes (``PickupMotion.lulls``) are then that ringing, expected, not a fault
+(``TAP_RINGING``, not a standstill either), as long as the pickups' window holds any of the
+tap test. A line that keeps its level is still a running machine behind a silent tach
+(``TACH_FAULT``, latched), and edges still say ``TURNING``; either marks the tap test as
+turned (:attr:`StandstillWatch.tap_turned`), and its recording is refused.
+
 The result carries its evidence (:class:`StandstillEvidence`) so the screen can say what
 proved standstill or why not, and the job record can keep what was seen at each
 confirmation. Words are the UI's.
@@ -78,6 +86,7 @@ class StandstillState(str, Enum):
     CHECKING = "checking"  # nothing says it turns, but not yet long enough or not enough data
     TURNING = "turning"  # the tach sees the rotor turn
     TACH_FAULT = "tach-fault"  # the tach is silent but the pickups see a running machine
+    TAP_RINGING = "tap-ringing"  # a tap test: the pickups see its ringing (no steady line)
     NO_DATA = "no-data"  # no fresh data from the board: nothing can be proven
 
 
@@ -149,6 +158,13 @@ class StandstillWatch:
         self.untrusted_hold_s = max(untrusted_hold_s, hold_s)
         #: the machine has no tach (amplitude-only procedure): kept across :meth:`reset`
         self.tach_absent = False
+        #: a tap test: board time it began, and ended (None: still recorded); kept across
+        #: :meth:`reset` while it is recorded
+        self.tap_from_s: float | None = None
+        self.tap_until_s: float | None = None
+        #: since the tap test began the tach saw an edge or the pickups a line that keeps
+        #: its level behind the silent tach: the rotor turned, the recording is refused
+        self.tap_turned = False
         self.reset()
 
     def set_tach_absent(self, absent: bool) -> None:
@@ -158,8 +174,33 @@ class StandstillWatch:
         if absent:
             self.fault_latched = False
 
+    def tap_test(self, on: bool) -> None:
+        """A tap test is being recorded from now (``on``: strikes on the housings at
+        standstill, their ringing expected), or its recording ended (its ringing is still
+        expected while the pickups' window holds some of it)."""
+        if on:
+            self.tap_from_s, self.tap_until_s = self.now_s or 0.0, None
+            self.tap_turned = False
+        elif self.tap_from_s is not None and self.tap_until_s is None:
+            self.tap_until_s = self.now_s or 0.0
+
+    @property
+    def tapping(self) -> bool:
+        """A tap test is being recorded."""
+        return self.tap_from_s is not None and self.tap_until_s is None
+
+    def _in_tap(self) -> bool:
+        """The pickups' last window holds some of a tap test."""
+        return self.tapping or (self.tap_until_s is not None
+                                and self._window_start_s < self.tap_until_s)
+
     def reset(self) -> None:
-        """Forget everything (new stream, board reset, link lost)."""
+        """Forget everything (new stream, board reset, link lost); a tap test still recorded
+        goes on from the new stream's start, one that ended is forgotten."""
+        if not self.tapping:
+            self.tap_from_s = self.tap_until_s = None
+        elif self.now_s is not None:
+            self.tap_from_s = -math.inf  # board time starts afresh
         self.first_s: float | None = None
         self.now_s: float | None = None
         self.last_edge_s: float | None = None
@@ -194,6 +235,8 @@ class StandstillWatch:
         self.last_edge_s = board_time_s
         self._rings.clear()  # the rotor turns: what rang before this edge is past
         self.edges_seen += 1
+        if self.tapping:
+            self.tap_turned = True
         if self.fault_latched:
             self._edges_since_fault += 1
             if self._edges_since_fault >= TACH_PROVEN_EDGES:
@@ -219,6 +262,8 @@ class StandstillWatch:
         if not quiet and not self.tach_absent and self._line_after_silence():
             self.fault_latched = True
             self._edges_since_fault = 0
+            if self.tap_from_s is not None and self._in_tap():
+                self.tap_turned = True
 
     def _line_after_silence(self) -> bool:
         """The pickups see a line in a window that began after the tach fell silent (so the
@@ -232,9 +277,11 @@ class StandstillWatch:
 
     def _running_line(self) -> bool:
         """The pickups see a line that may be a turning rotor's: any line but a ring-down,
-        or the fainter tail of a ring-down seen since the tach's last edge."""
+        or the fainter tail of a ring-down seen since the tach's last edge, or (while the
+        window holds a tap test) a line that lulls between the strikes."""
+        tap = self._in_tap()
         return any(p.periodic_hz is not None and not p.ringing and not self._fading_ring(p)
-                   for p in self.pickups)
+                   and not (tap and p.lulls) for p in self.pickups)
 
     def _fading_ring(self, pickup: PickupMotion) -> bool:
         hz, g = pickup.periodic_hz, pickup.periodic_g or 0.0
@@ -294,6 +341,8 @@ class StandstillWatch:
             state = StandstillState.TURNING
         elif pickups_moving and not self.tach_absent and self._line_after_silence():
             state = StandstillState.TACH_FAULT
+        elif pickups_moving and self._in_tap():
+            state = StandstillState.TAP_RINGING
         elif (silent >= need and quiet_for >= need and not pickups_moving
               and all(p.live for p in self.pickups)):
             state = StandstillState.PROVEN

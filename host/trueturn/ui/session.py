@@ -451,12 +451,14 @@ class LinkSession:
         the stream's configuration goes first, so the recording reads on its own."""
         with self._state:
             self._tap = [self._stream_config] if self._stream_config is not None else []
+            self.watch.tap_test(True)  # the ringing is expected, a steady line is not
 
     def stop_tap_recording(self) -> TapRecording | None:
         """Stop recording; what was kept, with what its analysis needs (None: not
         recording)."""
         with self._state:
             kept, self._tap = self._tap, None
+            self.watch.tap_test(False)
         if kept is None:
             return None
         ident = self.board.identity if self.board is not None else None

@@ -258,7 +258,8 @@ def standstill_lines(ev: StandstillEvidence | None, demo: bool) -> tuple[str, ..
         return ()
     if ev.proven:
         return (f"[green]Standstill proven: {standstill_basis_words(ev)}.[/green]",)
-    style = "yellow" if ev.state is StandstillState.CHECKING else "b red"
+    style = ("yellow" if ev.state in (StandstillState.CHECKING, StandstillState.TAP_RINGING)
+             else "b red")
     lines = [f"[{style}]Not at proven standstill: {standstill_refusal(ev)}.[/]"]
     if ev.state in (StandstillState.TURNING, StandstillState.TACH_FAULT) or (
             ev.tach_absent and ev.moving_pickups):
@@ -430,6 +431,7 @@ class CorrectionPanel(ProcedurePanel):
     waiting_sweep: reactive[bool] = reactive(False)
     model_spread: reactive[tuple[tuple[float, float], ...]] = reactive(())
     model_left: reactive[float | None] = reactive(None)
+    model_tapped: reactive[bool] = reactive(False)  # a tap test's modes informed the model
 
     def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
         super().show(proc, snap, ctx)
@@ -440,6 +442,7 @@ class CorrectionPanel(ProcedurePanel):
         self.model_spread = (tuple(zip(model.mass_95_g, model.angle_95_deg, strict=True))
                              if first and model is not None else ())
         self.model_left = model.residual_fraction_95 if first and model is not None else None
+        self.model_tapped = first and model is not None and model.tapped
         self.problem = proc.problem
         self.sweep_lost = proc.sweep_lost
         small = proc.too_small_trial
@@ -475,7 +478,8 @@ class CorrectionPanel(ProcedurePanel):
         if self.waiting_sweep:
             return [texts.MODEL_WAITING]
         spread = self.model_spread
-        lines = [texts.MODEL_TRUSTED] if spread else [f"Method: {self.method}"]
+        trusted = texts.MODEL_TRUSTED_TAPPED if self.model_tapped else texts.MODEL_TRUSTED
+        lines = [trusted] if spread else [f"Method: {self.method}"]
         for j, c in enumerate(self.corrections):
             # removal: the same mass taken out opposite the add angle
             verb, at = (("remove", wrap_deg(c.angle_deg + 180.0)) if self.removal
@@ -646,14 +650,20 @@ class TapPanel(ProcedurePanel):
         self.refused = texts.TAP_REFUSED[why] if why is not None else ""
         self.items = proc.checklist()
         self.ticked = frozenset(proc.ticked)
-        self.standstill = standstill_lines(snap.evidence, self.demo) \
-            if self.phase is not TapPhase.TAPPING else ()
+        ev = snap.evidence
+        # while tapping its ringing is expected: only a turning rotor is said (it refuses
+        # the recording)
+        turning = ev is not None and ev.state in (StandstillState.TURNING,
+                                                  StandstillState.TACH_FAULT)
+        self.standstill = standstill_lines(ev, self.demo) \
+            if self.phase is not TapPhase.TAPPING or turning else ()
         self.recording = ctx.tap_status
 
     def body(self) -> list[str]:
         if self.phase is TapPhase.TAPPING:
             return [texts.TAP_TAPPING, *([texts.TAP_DEMO] if self.demo else []),
-                    *([self.recording] if self.recording else []), texts.MAKER_NOTE,
+                    *([self.recording] if self.recording else []), *self.standstill,
+                    texts.MAKER_NOTE,
                     texts.ENTER_TAP_DONE]
         lines = list(texts.TAP_OFFER) if not self.refused else [
             f"[b red]Tap test not used[/]: {self.refused}."]

@@ -298,6 +298,11 @@ def tap_lines(tap: TapOutcome | None, trusted: bool | None) -> tuple[str, ...]:
 
 MODEL_TRUSTED = ("From the model, no trial run: the coast-down fits, the pickups' angles are "
                  "known, the speed is off the resonances' peaks. The check run refines it.")
+#: ... when a tap test's modes informed it (model first on a stiff mount)
+MODEL_TRUSTED_TAPPED = ("From the model, no trial run: the tap test's modes pinned the "
+                        "supports' stiffness and the coast-down fits them, the pickups' angles "
+                        "are known, the speed is off the resonances' peaks. The check run "
+                        "refines it.")
 #: after the model's 95 % share when it may exceed the as-found 1x (model_first's bound)
 MODEL_MAY_RAISE = ("  It may not lower the 1x: the check run then measures the coefficients, "
                    "as a trial run would, and the next correction comes from the runs.")

@@ -26,7 +26,7 @@ STYLES = ("cyan", "magenta", "yellow", "green")  # pickup A, B, ... on the meter
 
 class StatusStrip(MarkupText):
     """Two lines always on top: machine and board; motion (standstill, turning, tach fault,
-    no data, lost link) and what the link lost."""
+    a tap test's ringing, no data, lost link) and what the link lost."""
 
     def show(self, snap: Snapshot, *, machine: str, demo: bool,
              identity: BoardIdentity | None, link_error: str, reconnecting: bool) -> None:
@@ -54,6 +54,10 @@ class StatusStrip(MarkupText):
             hz = ev.seen_hz
             motion = "[b red]TACH FAULT[/]: pickups see " + (
                 f"{hz:.0f} Hz (~{60 * hz:.0f} rpm)" if hz is not None else "vibration")
+        elif state is StandstillState.TAP_RINGING:
+            hz = ev.seen_hz
+            motion = "[b yellow]TAP TEST[/]: ringing expected" + (
+                f" ({hz:.0f} Hz)" if hz is not None else "") + ", no steady line"
         else:
             motion = f"[yellow]checking standstill… {ev.wait_s:.0f} s to go[/]"
         c = snap.counters

@@ -44,7 +44,7 @@ def test_the_most_telling_pickup_decides() -> None:
     # two pickups: the trial needs only be seen on one of them (the one it moves most
     # relative to its level), as trueturn.balance.influence.trial_size_factor judges it
     t = size_trial_for_effect([1.0, 4.0], [1.0, 1.0], 5.0, 50.0, 3000.0)
-    assert t.mass_g == pytest.approx(0.5 * 1.0 / 1.0)
+    assert t.mass_g == pytest.approx(TARGET_CHANGE * 1.0 / 1.0)
     before = {"a": 1.0 + 0j, "b": 4.0 + 0j}
     after = {"a": 1.0 + 1.0 * t.mass_g, "b": 4.0 + 1.0 * t.mass_g}
     assert trial_size_factor(before, after) == 1.0
@@ -80,9 +80,9 @@ def test_suggest_trial_prefers_saved_coefficients_then_what_a_trial_showed() -> 
     pred = free_rotor_prediction(("a",), 5.0, [50.0], 3000.0)
     saved = suggest_trial([1.0], [None], pred, 0, 5.0, 50.0, 3000.0,
                           saved_sensitivities_per_g=[0.5])
-    assert saved.mass_g == pytest.approx(0.5 / 0.5)
+    assert saved.mass_g == pytest.approx(TARGET_CHANGE / 0.5)
     scaled = suggest_trial([1.0], [None], pred, 0, 5.0, 50.0, 3000.0, measured_scale=0.5)
-    assert scaled.mass_g == pytest.approx(0.5 / (0.5 * pred.magnitude[0, 0]))
+    assert scaled.mass_g == pytest.approx(TARGET_CHANGE / (0.5 * pred.magnitude[0, 0]))
 
 
 def test_a_stiff_mounting_gets_at_least_the_force_floor() -> None:

@@ -76,9 +76,9 @@ NEAR_RESONANCE_FRACTION = 0.15
 #: the model's first correction is offered only when, in 95 % of its draws, it leaves at
 #: most this share of the as-found 1x. Our choice, measured by bench/bench_balance.py: the
 #: correction run is also the trial (every run refines the coefficients), so an uncertain
-#: correction costs no run over a trial and saves one whenever it lands; it is held to what
-#: a trial sized to be seen may do (balance.trial_mass.TARGET_CHANGE: aimed at a 50 %
-#: change, which leaves 150 % of the 1x when the trial's angle happens to add to it)
+#: correction costs no run over a trial and saves one whenever it lands; it is held within
+#: what a trial sized to be seen may do (balance.trial_mass.TARGET_CHANGE: aimed at a 75 %
+#: change, which leaves 175 % of the 1x when the trial's angle happens to add to it)
 MAX_RESIDUAL_FRACTION_95 = 1.5
 #: ... and only when, in 95 % of its draws, it changes the as-found 1x by at least this
 #: share: the check run must also measure the coefficients, as a trial would

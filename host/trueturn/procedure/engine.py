@@ -195,12 +195,13 @@ def sweep_evidence(outcome: SweepOutcome | None, sensors: Sequence[str],
     return SweepEvidence(resonances, curve_from_sweep(outcome, sensors))
 
 
-#: the reasons a stiff mount's model is not trusted that a tap test can answer: the
-#: supports' stiffness (the coast-down found no resonance, so the fit cannot tell it and
-#: its draws say too uncertain or its correction too small to see, or it puts a resonance
-#: the coast-down did not show)
-TAP_ANSWERS = frozenset({Distrust.STIFFNESS_UNKNOWN, Distrust.UNSEEN_RESONANCE,
-                         Distrust.TOO_UNCERTAIN, Distrust.UNSEEN_EFFECT})
+#: the reasons a stiff mount's model is not trusted that a tap test can answer: the fit to
+#: the coast-down's curve cannot tell the supports' stiffness, so its draws say too
+#: uncertain or its correction too small to see, or it puts a resonance the coast-down did
+#: not show. Not ``stiffness-unknown``: that one means no fit was made (the curve had too
+#: few clear points), and the tap's modes only ever hold a fit
+TAP_ANSWERS = frozenset({Distrust.UNSEEN_RESONANCE, Distrust.TOO_UNCERTAIN,
+                         Distrust.UNSEEN_EFFECT})
 
 
 def tap_may_help(resonances: Mapping[str, Sequence[SupportResonance]] | None,

@@ -312,7 +312,11 @@ def test_overspeed_and_runaway_stop_the_run_and_are_recorded() -> None:
     rig.hands_on()  # trial mass on
     rig.proc.arm_run(True, rig.t)
     over = rig.setup.max_speed_rpm + 50
-    events = rig.proc.observe(rig.readings(scale=3.5), over, rig.t)
+    # every pickup's 1x at 3.5 times its as-found level (over DEFAULT_RUNAWAY_FACTOR, 3),
+    # whatever the trial mass does on its own
+    wild = {name: replace(r, amplitude=3.5 * r.amplitude)
+            for name, r in rig.proc.runs[0].readings.items()}
+    events = rig.proc.observe(wild, over, rig.t)
     kinds = sorted(e.kind for e in events)
     assert kinds == ["overspeed", "runaway", "runaway"]
     assert all("STOP THE MACHINE" in e.detail for e in events)

@@ -849,16 +849,21 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool,
             "names": names, "over_bound": over_bound}
 
 
+def false_pass_rate(results: list[dict], key: str = "true_pass") -> float:
+    """Of the rotors said within G 6.3 (within MAX_RUNS), the share whose true residual
+    (``key``: in the planes, or at the bearings) was not; 0 when none was said to be."""
+    said = [r for r in results if r["runs"] <= MAX_RUNS]
+    return float(np.mean([not r[key] for r in said])) if said else 0.0
+
+
 def _classic_figures(sizing: str, label: str) -> list[Row]:
     rng = np.random.default_rng(2024)
     results = [one_rotor(rng, sizing, soft=bool(k % 2)) for k in range(ROTORS)]
     runs = np.array([r["runs"] for r in results])
     first = np.array([r["first_reduction"] for r in results])
     trim = np.array([r["trim_reduction"] for r in results if np.isfinite(r["trim_reduction"])])
-    said_pass = [r for r in results if r["runs"] <= MAX_RUNS]
-    false_pass = float(np.mean([not r["true_pass"] for r in said_pass])) if said_pass else 0.0
-    false_pass_bearings = (float(np.mean([not r["true_pass_bearings"] for r in said_pass]))
-                           if said_pass else 0.0)
+    false_pass = false_pass_rate(results)
+    false_pass_bearings = false_pass_rate(results, "true_pass_bearings")
     within5 = float(np.mean(runs <= 5))
     too_small = sum(r["too_small"] for r in results) / sum(r["trials"] for r in results)
     redone = sum(r["redone"] for r in results) / sum(r["trials"] for r in results)
@@ -893,8 +898,7 @@ def _model_first_figures() -> list[Row]:
         results = [model_first_rotor(rng, n_planes, soft=bool(k % 2)) for k in range(ROTORS_MODEL)]
         runs = np.array([r["runs"] for r in results])
         first = np.array([r["first_reduction"] for r in results])
-        said = [r for r in results if r["runs"] <= MAX_RUNS]
-        false_pass = float(np.mean([not r["true_pass"] for r in said])) if said else 0.0
+        false_pass = false_pass_rate(results)
         trusted = float(np.mean([r["trusted"] for r in results]))
         refuted = float(np.mean([r["refuted"] for r in results]))
         rows_out += [
@@ -937,8 +941,7 @@ def _skipped_figures(n_planes: int, goal: int, words: str) -> list[Row]:
     results = [model_first_rotor(rng, n_planes, soft=bool(k % 2), tap="skipped")
                for k in range(ROTORS_MODEL)]
     runs = np.array([r["runs"] for r in results])
-    said = [r for r in results if r["runs"] <= MAX_RUNS]
-    false_pass = float(np.mean([not r["true_pass"] for r in said])) if said else 0.0
+    false_pass = false_pass_rate(results)
     label = "balance [model first, the tap test skipped]"
     return [
         Row(f"{label}: runs to reach G {GRADE:g}, {words} (median)", f"{np.median(runs):g} runs",
@@ -960,8 +963,7 @@ def _tap_figures(n_planes: int, goal: int, words: str) -> list[Row]:
     results = [model_first_rotor(rng, n_planes, soft=bool(k % 2), tap="every stiff")
                for k in range(ROTORS_MODEL)]
     stiff = [r for k, r in enumerate(results) if not k % 2]
-    said = [r for r in results if r["runs"] <= MAX_RUNS]
-    false_pass = float(np.mean([not r["true_pass"] for r in said])) if said else 0.0
+    false_pass = false_pass_rate(results)
     bounded = [r["over_bound"] for r in stiff if r["over_bound"] is not None]
     over = float(np.mean(bounded)) if bounded else math.nan
     label = "balance [model first, with a tap test]"

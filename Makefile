@@ -8,6 +8,10 @@ STAMP  := $(VENV)/.installed
 # tests ran 43 s threaded, 27 s in one thread, 2026-12-03); the app sets the same
 export OPENBLAS_NUM_THREADS ?= 1
 
+# the suite on every core, at most four (pytest-xdist); a file's tests and the firmware
+# builds stay on one worker each (tests/conftest.py). PARALLEL= runs it in one process.
+PARALLEL ?= -n auto --maxprocesses 4 --dist loadgroup
+
 .PHONY: demo test test-python lint typecheck bench firmware firmware-image clean
 
 $(STAMP): pyproject.toml
@@ -24,10 +28,10 @@ test: $(STAMP)
 	$(MAKE) -C firmware
 	$(PY) -m ruff check host tests bench
 	$(PY) -m mypy
-	$(PY) -m pytest -q
+	$(PY) -m pytest -q $(PARALLEL)
 
 test-python: $(STAMP)
-	$(PY) -m pytest -q
+	$(PY) -m pytest -q $(PARALLEL)
 
 lint: $(STAMP)
 	$(PY) -m ruff check host tests bench

@@ -105,7 +105,12 @@ from trueturn.dsp.synthetic import (  # noqa: E402
 )
 from trueturn.dsp.units import PickupProfile  # noqa: E402
 from trueturn.errors import UserError  # noqa: E402
-from trueturn.procedure.engine import TRIAL_REDO_MARGIN, tap_may_help  # noqa: E402
+from trueturn.model import Correction  # noqa: E402
+from trueturn.procedure.engine import (  # noqa: E402
+    TRIAL_REDO_MARGIN,
+    short_of_grade,
+    tap_may_help,
+)
 from trueturn.procedure.guide import DEFAULT_PHASE_LIMIT_DEG, SMALL_VECTOR_FRACTION  # noqa: E402
 from trueturn.sim import CorrectionPlane, Mass, PickupMount, RigidRotor, Support  # noqa: E402
 from trueturn.sim.scenario import ADC_COUNTS_PER_REFERENCE, ADC_REFERENCE_V  # noqa: E402
@@ -729,6 +734,16 @@ def one_rotor(rng: np.random.Generator, sizing: str, soft: bool) -> dict:
             "too_small": too_small, "trials": len(rotor.planes), "redone": redone}
 
 
+def model_correction(prediction, r0: dict, rotor) -> list[Correction]:  # type: ignore[no-untyped-def]
+    """The correction a trusted prediction alone gives (least squares on the as-found 1x),
+    per plane at its radius: what the app weighs against the grade before it offers a tap
+    test (procedure.engine.short_of_grade)."""
+    names = [p.name for p in rotor.pickups]
+    c = np.linalg.lstsq(prediction.matrix, -r0_vector(r0, names), rcond=None)[0]
+    return [Correction(p.name, float(abs(c[j])), math.degrees(np.angle(c[j])) % 360.0,
+                       radius_mm=p.radius_mm) for j, p in enumerate(rotor.planes)]
+
+
 def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool,
                       tap: str = "offered") -> dict:
     """As found (+ sweep; a tap test when ``tap`` is "offered" and the app offers one,
@@ -756,8 +771,11 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool,
                                    and not soft else None)
     trusted_before_tap = prediction.trusted
     tapped = tap == "every stiff" and not soft
-    if tap == "offered" and not prediction.trusted and tap_may_help(sweep, curve,
-                                                                    prediction.distrust):
+    if tap == "offered" and tap_may_help(sweep, curve, prediction.distrust,
+                                         short_of_grade=prediction.trusted and short_of_grade(
+                                             prediction.residual_fraction_95 or 0.0,
+                                             model_correction(prediction, r0, rotor), GRADE,
+                                             speed, rotor.mass_kg)):
         tapped = True
         prediction = predict_influence(layout_of(rotor), placements(rotor), speed, sweep, r0,
                                        curve=curve, standstill=tap_test(rotor))

@@ -25,7 +25,8 @@ from test_ui_procedure import Rig, pickups, tick_all
 from test_ui_resume_model_first import keep_job, restart
 from trueturn.balance.support_fit import SweepCurve
 from trueturn.jobs.report import model_lines
-from trueturn.procedure.engine import TAP_ANSWERS, SweepEvidence
+from trueturn.model import Correction
+from trueturn.procedure.engine import TAP_ANSWERS, SweepEvidence, short_of_grade
 from trueturn.procedure.guide import (
     GateRefused,
     Mode,
@@ -42,15 +43,17 @@ from trueturn.procedure.standstill import StandstillState
 SCATTER_M_S2 = 2.0
 
 
-def stiff_sweep(rig: Rig, seed: int = 0) -> tuple[SweepEvidence, np.random.Generator]:
+def stiff_sweep(rig: Rig, seed: int = 0, scatter_m_s2: float = SCATTER_M_S2
+                ) -> tuple[SweepEvidence, np.random.Generator]:
     """The as-found coast-down of the rig's rotor: no resonance below the speed (the
-    simulator's own criticals) and the whole curve, noisy; and the random stream after it."""
+    simulator's own criticals) and the whole curve, noisy (``scatter_m_s2`` per part); and
+    the random stream after it."""
     rng = np.random.default_rng(seed)
     rotor, speed = rig.scenario.rotor, rig.setup.speed_rpm
     speeds = speed * np.geomspace(1.0, 0.25, 278)
     truth = np.array([[rotor.response_1x(float(n), rig.masses)[k] for k in rig.setup.sensors]
                       for n in speeds])
-    sigma = SCATTER_M_S2 + 0.003 * np.abs(truth)
+    sigma = scatter_m_s2 + 0.003 * np.abs(truth)
     noisy = truth + sigma * (rng.normal(size=truth.shape) + 1j * rng.normal(size=truth.shape))
     resonances = coast_down_resonances(rig)
     assert not any(resonances.values())  # a stiff mount: nothing below the speed
@@ -80,7 +83,7 @@ def begin(rig: Rig) -> None:
     rig.proc.begin_tap(rig.t)
 
 
-def test_offered_only_when_the_model_of_a_stiff_mount_is_not_trusted() -> None:
+def test_offered_on_a_stiff_mount_whose_curve_was_fitted() -> None:
     # the grinder's soft mounts: the coast-down finds its supports; trusted, no tap
     soft = Rig("bench-grinder", Mode.MODEL_FIRST)
     soft.hands_on()
@@ -215,3 +218,63 @@ def test_a_resumed_job_keeps_the_tap_and_its_report_says_so(tmp_path: Path) -> N
     assert job is not None
     tap_lines = [line for line in model_lines(job) if line.startswith("A tap test")]
     assert len(tap_lines) == 1 and "Hz" in tap_lines[0], model_lines(job)
+
+
+def test_short_of_grade_weighs_the_bound_against_the_iso_allowance() -> None:
+    # ISO 21940-11:2016, eq. (2): U_per = 1000 G m / omega; G 6.3, 10 kg at 3000 rpm ->
+    # 1000 * 6.3 * 10 / 314.16 = 200.5 g mm. A correction of 10 g at 100 mm stands for
+    # 1000 g mm as found: the grade permits leaving 20.05 % of it
+    one = [Correction("rim", 10.0, 0.0, radius_mm=100.0)]
+    assert short_of_grade(0.2010, one, 6.3, 3000.0, 10.0)
+    assert not short_of_grade(0.2000, one, 6.3, 3000.0, 10.0)
+    # two planes: the unbalance as found is the planes' sum (5 g + 5 g at 100 mm)
+    two = [Correction("left", 5.0, 0.0, radius_mm=100.0),
+           Correction("right", 5.0, 180.0, radius_mm=100.0)]
+    assert short_of_grade(0.2010, two, 6.3, 3000.0, 10.0)
+    assert not short_of_grade(0.2000, two, 6.3, 3000.0, 10.0)
+    # a correction without its radius has nothing to weigh: never short
+    assert not short_of_grade(5.0, [Correction("rim", 10.0, 0.0)], 6.3, 3000.0, 10.0)
+
+
+def test_a_trusted_model_short_of_the_grade_offers_the_tap_and_skipping_keeps_its_correction(
+        ) -> None:
+    # a clean coast-down (scatter 0.1 m/s^2): the model is trusted, but its correction may
+    # leave about 45 % of the 1x where the grade permits about a tenth: the tap is offered
+    rig = Rig("lathe-faceplate", Mode.MODEL_FIRST)
+    before = rig.response()
+    rig.hands_on()
+    rig.run()
+    evidence, _ = stiff_sweep(rig, scatter_m_s2=0.1)
+    rig.proc.sweep_analysed(evidence)
+    blind = rig.proc.model
+    assert blind is not None and blind.trusted and blind.tap_may_help, blind
+    assert blind.solution is not None and blind.residual_fraction_95 is not None
+    setup = rig.setup
+    assert short_of_grade(blind.residual_fraction_95, blind.solution.corrections,
+                          setup.grade_mm_per_s, setup.speed_rpm, setup.rotor_mass_kg)
+    assert isinstance(rig.proc.step, TapTest) and rig.proc.solution is None
+    rig.proc.skip_tap()
+    # skipped: the very correction the model gave, no trial run
+    assert isinstance(rig.proc.step, ShowCorrection) and not rig.proc.fallback
+    assert rig.proc.solution is blind.solution and rig.proc.tap is None
+    rig.complete()
+    assert rig.proc.verdict is not None and rig.proc.verdict.passed
+    rig.assert_cut(before)
+    assert not any(r.label.startswith("trial") for r in rig.proc.runs)
+
+
+def test_a_trusted_model_short_of_the_grade_is_narrowed_by_the_tap() -> None:
+    rig = Rig("lathe-faceplate", Mode.MODEL_FIRST)
+    rig.hands_on()
+    rig.run()
+    evidence, rng = stiff_sweep(rig, scatter_m_s2=0.1)
+    rig.proc.sweep_analysed(evidence)
+    blind = rig.proc.model
+    assert blind is not None and blind.trusted and isinstance(rig.proc.step, TapTest)
+    begin(rig)
+    assert rig.proc.tap_recorded(tapped(rig, rng)) is None
+    model = rig.proc.model
+    assert model is not None and model.trusted and model.tapped and not model.tap_may_help
+    assert blind.residual_fraction_95 is not None and model.residual_fraction_95 is not None
+    assert model.residual_fraction_95 < blind.residual_fraction_95
+    assert isinstance(rig.proc.step, ShowCorrection) and not rig.proc.fallback

@@ -39,16 +39,20 @@ from trueturn.ui.app import AppConfig, TrueturnApp
 from trueturn.ui.launch import scenario_profile
 
 
-@pytest.fixture(autouse=True)
-def noisy_coast_down(monkeypatch: pytest.MonkeyPatch) -> None:
-    """The app's coast-down evidence: the lathe's own curve, too noisy for the model alone
-    (fixed draw; see the module's docstring)."""
-    evidence, _ = stiff_sweep(Rig("lathe-faceplate", Mode.MODEL_FIRST))
+def coast_down_evidence(monkeypatch: pytest.MonkeyPatch, **scatter: float) -> None:
+    """The app's coast-down evidence: the lathe's own curve, by default too noisy for the
+    model alone (a fixed draw; see the module's docstring)."""
+    evidence, _ = stiff_sweep(Rig("lathe-faceplate", Mode.MODEL_FIRST), **scatter)
 
     def stand_in(outcome: object, sensors: object, speed_rpm: float) -> SweepEvidence | None:
         return None if outcome is None else evidence
 
     monkeypatch.setattr("trueturn.ui.app.sweep_evidence", stand_in)
+
+
+@pytest.fixture(autouse=True)
+def noisy_coast_down(monkeypatch: pytest.MonkeyPatch) -> None:
+    coast_down_evidence(monkeypatch)
 
 
 def lathe_app(tmp_path: Path) -> tuple[TrueturnApp, str]:
@@ -151,5 +155,33 @@ def test_t_skips_the_tap_test_and_trials_follow(tmp_path: Path) -> None:
             assert proc.fallback and proc.tap is None
             assert "trial" in proc.step.title  # type: ignore[union-attr]
             assert "trial" in screen_text(app).lower()
+            await press(app, pilot, "q")
+    asyncio.run(scenario())
+
+
+def test_a_trusted_model_short_of_the_grade_offers_the_tap_and_t_keeps_its_correction(
+        tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # a clean coast-down: the model is trusted, but its correction may leave more than the
+    # grade permits (procedure.engine.short_of_grade): the tap is offered to narrow it,
+    # and skipping it goes on with the model's correction, not trials
+    coast_down_evidence(monkeypatch, scatter_m_s2=0.1)
+
+    async def scenario() -> None:
+        app, _ = lathe_app(tmp_path)
+        async with app.run_test(size=SIZE) as pilot:
+            await offered(app, pilot)
+            proc = app.procedure
+            assert proc is not None and proc.model is not None and proc.model.trusted
+            left = proc.model.residual_fraction_95
+            assert left is not None
+            shown = re.sub(r"\s+", " ", screen_text(app))
+            assert f"may leave up to {100 * left:.0f} % of the 1x" in shown, shown
+            assert "skip, use the model's correction" in shown
+            await press(app, pilot, "t")
+            await wait_for(pilot, lambda: not isinstance(proc.step, TapTest), 10)
+            assert not proc.fallback and proc.tap is None
+            assert proc.solution is not None and proc.solution is proc.model.solution
+            await wait_for(pilot, lambda: "Correction from the model" in screen_text(app), 10)
+            assert "the model's correction follows" in screen_text(app)
             await press(app, pilot, "q")
     asyncio.run(scenario())

@@ -205,12 +205,15 @@ TAP_ANSWERS = frozenset({Distrust.UNSEEN_RESONANCE, Distrust.TOO_UNCERTAIN,
 
 
 def tap_may_help(resonances: Mapping[str, Sequence[SupportResonance]] | None,
-                 curve: SweepCurve | None, distrust: Sequence[Distrust]) -> bool:
-    """A tap (bump) test at standstill may make the model trustworthy: the coast-down was
-    a sweep that found no support resonance below the speed at any pickup (a stiff mount),
-    its curve can be fitted (the fit is what the tap's modes hold,
-    :func:`trueturn.balance.model_first.predict_influence` ``standstill``), and every
-    reason not to trust the model is the supports' unknown stiffness (:data:`TAP_ANSWERS`).
+                 curve: SweepCurve | None, distrust: Sequence[Distrust],
+                 short_of_grade: bool = False) -> bool:
+    """A tap (bump) test at standstill may help the model: the coast-down was a sweep that
+    found no support resonance below the speed at any pickup (a stiff mount), its curve can
+    be fitted (the fit is what the tap's modes hold,
+    :func:`trueturn.balance.model_first.predict_influence` ``standstill``), and either
+    every reason not to trust the model is the supports' unknown stiffness
+    (:data:`TAP_ANSWERS`), or the model is trusted but its correction may fall short of the
+    grade (``short_of_grade``, :func:`short_of_grade`): the tap may narrow it.
 
     Parameters
     ----------
@@ -219,7 +222,9 @@ def tap_may_help(resonances: Mapping[str, Sequence[SupportResonance]] | None,
     curve : SweepCurve or None
         The coast-down's curve (None: not usable).
     distrust : sequence of Distrust
-        Why the model is not trusted.
+        Why the model is not trusted (empty: trusted).
+    short_of_grade : bool
+        A trusted model's correction may leave more than the grade permits.
 
     Returns
     -------
@@ -231,8 +236,46 @@ def tap_may_help(resonances: Mapping[str, Sequence[SupportResonance]] | None,
        coast-down from it never passes them; struck at standstill it rings at them (bump
        test; common practice, no source).
     """
-    return (resonances is not None and curve is not None and bool(distrust)
-            and not any(resonances.values()) and set(distrust) <= TAP_ANSWERS)
+    stiff = (resonances is not None and curve is not None
+             and not any(resonances.values()))
+    if not distrust:
+        return stiff and short_of_grade
+    return stiff and set(distrust) <= TAP_ANSWERS
+
+
+def short_of_grade(residual_fraction_95: float, corrections: Sequence[Correction],
+                   grade_mm_s: float, speed_rpm: float, rotor_mass_kg: float) -> bool:
+    """A trusted model's correction may leave more unbalance than the grade permits: the
+    fraction of the as-found 1x it may leave (95 % of the model's draws) exceeds the
+    permissible residual unbalance (ISO 21940-11, eq. (2)) over the as-found unbalance the
+    correction stands for (the sum of its planes' mass x radius). The 1x is taken as
+    proportional to the unbalance (linear supports); a check run then a trim may follow.
+
+    Parameters
+    ----------
+    residual_fraction_95 : float
+        What the correction may leave, as a fraction of the as-found 1x (95 %).
+    corrections : sequence of Correction
+        The model's correction per plane (mass in g at its plane's radius in mm).
+    grade_mm_s, speed_rpm, rotor_mass_kg : float
+        The balance quality grade, the maximum service speed and the rotor's mass.
+
+    Returns
+    -------
+    bool
+        False when the corrections do not say their radius (nothing to compare).
+
+    References
+    ----------
+    .. [1] ISO 21940-11:2016, 6.2 (permissible residual unbalance from the grade).
+    """
+    if any(c.radius_mm is None for c in corrections) or not corrections:
+        return False
+    found_gmm = sum(c.mass_g * float(c.radius_mm or 0.0) for c in corrections)
+    if found_gmm <= 0.0:
+        return False
+    allowed = permissible_unbalance_gmm(grade_mm_s, speed_rpm, rotor_mass_kg) / found_gmm
+    return residual_fraction_95 > allowed
 
 
 def tap_outcome(result: BumpResult | None, tach_edges: int, time_s: float) -> TapOutcome:
@@ -709,9 +752,15 @@ class BalanceEngine:
         estimate = self._estimate(setup, runs, prior)
         _, mass95, angle95 = correction_spread(estimate)
         solution = self._model_solution(setup, runs, estimate, False)
+        # a stiff mount whose correction may fall short of the grade: the tap test is
+        # offered first (optional; skipped, this very correction follows)
+        short = short_of_grade(pred.residual_fraction_95, solution.corrections,
+                               setup.grade_mm_per_s, setup.speed_rpm, setup.rotor_mass_kg)
         return ModelAnswer(True, (), tuple(float(m) for m in mass95),
                            tuple(float(a) for a in angle95), pred.residual_fraction_95, prior,
-                           solution, tapped=tapped)
+                           solution, tap_may_help=not tapped and tap_may_help(
+                               sweep, curve, (), short_of_grade=short),
+                           tapped=tapped)
 
     def model_estimate(self, setup: ProcedureSetup, runs: Sequence[Run],
                        prior: object) -> CoefficientEstimate:

@@ -284,9 +284,10 @@ class ModelAnswer:
     #: the pickup whose reading refuted the model after its correction went on (then
     #: ``trusted`` is False, ``distrust`` ends with "refuted", trials follow)
     refuted_at: str | None = None
-    #: not trusted on a stiff mount (the coast-down found no support resonance below the
-    #: speed, yet its curve could be fitted): a tap test at standstill may pin the
-    #: supports' stiffness (:class:`TapTest`)
+    #: a stiff mount (the coast-down found no support resonance below the speed, yet its
+    #: curve could be fitted) whose model is not trusted for the supports' stiffness, or is
+    #: trusted with a correction that may fall short of the grade: a tap test at
+    #: standstill may pin the stiffness (:class:`TapTest`; engine.tap_may_help)
     tap_may_help: bool = False
     #: the answer was computed with a tap test's standstill modes
     tapped: bool = False
@@ -1316,15 +1317,17 @@ class Procedure:
         return answer
 
     def _take_answer(self, answer: ModelAnswer, offer_tap: bool) -> None:
-        """The model's answer decides the next step: its correction when trusted; the
-        optional tap test when it may help (a stiff mount, ``offer_tap``); else trials."""
+        """The model's answer decides the next step: the optional tap test when it may help
+        (a stiff mount, ``offer_tap``: the model not trusted for the supports' stiffness, or
+        trusted with a correction that may fall short of the grade); else its correction
+        when trusted; else trials."""
         self.model = answer
-        if answer.trusted and answer.solution is not None:
-            self.solution = answer.solution
-            self.step = ShowCorrection("Correction from the model")
-        elif offer_tap and answer.tap_may_help:
+        if offer_tap and answer.tap_may_help:
             self.solution = None
             self.step = TapTest("Tap test at standstill (optional)")
+        elif answer.trusted and answer.solution is not None:
+            self.solution = answer.solution
+            self.step = ShowCorrection("Correction from the model")
         else:
             self.fallback = True
             self.solution = None
@@ -1378,7 +1381,8 @@ class Procedure:
         return None
 
     def skip_tap(self) -> None:
-        """The person skips the tap test (at any moment of it): trial runs follow."""
+        """The person skips the tap test (at any moment of it): the model's correction
+        follows when it was trusted without the tap, else trial runs."""
         if not isinstance(self.step, TapTest):
             raise GateRefused("no tap test is offered")
         self.ticked = set()

@@ -868,7 +868,7 @@ class TrueturnApp(App):
             self.message = f"Refused: {exc}"
         else:
             self._stop_taps()
-            self.message = texts.TAP_SKIPPED
+            self.message = texts.TAP_SKIPPED[not proc.fallback]
         self.tick()
 
     def _stop_taps(self) -> object:
@@ -912,8 +912,8 @@ class TrueturnApp(App):
         else:
             if refusal is None:
                 self.keeper.model(proc)  # a continued job uses the very same model
-                self.message = " ".join(texts.tap_lines(
-                    outcome, proc.model.trusted if proc.model is not None else None))
+                self.message = texts.TAP_ANALYSED[proc.model is not None
+                                                  and proc.model.trusted]
             else:
                 self.message = f"Tap test not used: {texts.TAP_REFUSED[refusal]}."
         self.tick()

@@ -641,6 +641,9 @@ class TapPanel(ProcedurePanel):
     ticked: reactive[frozenset[int]] = reactive(frozenset())
     standstill: reactive[tuple[str, ...]] = reactive(())
     recording: reactive[str] = reactive("")  # the recording's status (from the app)
+    #: the model is trusted without the tap: what its correction may leave, % of the 1x
+    #: (the tap is offered to narrow it; skipping keeps the correction); None: not trusted
+    trusted_left_pct: reactive[float | None] = reactive(None)
 
     def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
         super().show(proc, snap, ctx)
@@ -658,21 +661,31 @@ class TapPanel(ProcedurePanel):
         self.standstill = standstill_lines(ev, self.demo) \
             if self.phase is not TapPhase.TAPPING or turning else ()
         self.recording = ctx.tap_status
+        model = proc.model
+        self.trusted_left_pct = (100.0 * model.residual_fraction_95
+                                 if model is not None and model.trusted
+                                 and model.residual_fraction_95 is not None else None)
 
     def body(self) -> list[str]:
+        skip = texts.TAP_SKIP_TO[self.trusted_left_pct is not None]
         if self.phase is TapPhase.TAPPING:
             return [texts.TAP_TAPPING, *([texts.TAP_DEMO] if self.demo else []),
                     *([self.recording] if self.recording else []), *self.standstill,
                     texts.MAKER_NOTE,
-                    texts.ENTER_TAP_DONE]
-        lines = list(texts.TAP_OFFER) if not self.refused else [
-            f"[b red]Tap test not used[/]: {self.refused}."]
+                    texts.ENTER_TAP_DONE + skip]
+        if self.refused:
+            lines = [f"[b red]Tap test not used[/]: {self.refused}."]
+        elif self.trusted_left_pct is not None:
+            lines = [line.format(left=self.trusted_left_pct)
+                     for line in texts.TAP_OFFER_TRUSTED]
+        else:
+            lines = list(texts.TAP_OFFER)
         lines += [*self.standstill, texts.TAP_TICK]
         for i, item in enumerate(self.items):
             box = "\\[x]" if i in self.ticked else "\\[ ]"
             lines.append(f"  {box} {item}")
         lines += [texts.MAKER_NOTE,
-                  texts.ENTER_TAP_AGAIN if self.refused else texts.ENTER_TAP]
+                  (texts.ENTER_TAP_AGAIN if self.refused else texts.ENTER_TAP) + skip]
         return lines
 
 

@@ -252,20 +252,33 @@ def model_refused(codes: Sequence[str]) -> str:
 
 
 #: the tap test's screen (model-first on a stiff mount): what to do, and its keys
+_TAP_HOW = ("with the machine stopped and locked out, strike the bearing housing or the frame "
+            "(not the rotor, a weight or a pickup) with a soft mallet, about every 2 s, a few "
+            "times at each pickup; the pickups record how it rings.")
 TAP_OFFER = (
     "The coast-down found no resonance of the supports below the speed: the mounts are "
     "stiff, and the coast-down alone cannot tell how stiff, so the model is not trusted yet.",
-    "A tap test may settle it: with the machine stopped and locked out, strike the bearing "
-    "housing or the frame (not the rotor, a weight or a pickup) with a soft mallet, about "
-    "every 2 s, a few times at each pickup; the pickups record how it rings.",
+    "A tap test may settle it: " + _TAP_HOW,
     "Optional: t skips it and goes on with a trial run per plane.",
 )
+#: the same offer when the model is trusted but its correction may fall short of the grade
+#: (engine.short_of_grade): ``{left}`` is what it may leave, percent of the as-found 1x
+TAP_OFFER_TRUSTED = (
+    "The coast-down found no resonance of the supports below the speed: the mounts are "
+    "stiff. The model has a correction, but it may leave up to {left:.0f} % of the 1x "
+    "(95 %), more than the grade permits, so a trim run may follow.",
+    "A tap test may narrow it: " + _TAP_HOW,
+    "Optional: t skips it and goes on with the model's correction as it is.",
+)
 TAP_TICK = "Before you start, at proven standstill (Space ticks, Backspace takes back):"
-ENTER_TAP = "[b]Enter[/b]: locked out, start recording   [b]t[/b]: skip, use trial runs"
-ENTER_TAP_AGAIN = "[b]Enter[/b]: tap again (record anew)   [b]t[/b]: skip, use trial runs"
+#: the skip key's words: to trial runs, or to the model's correction (trusted untapped)
+TAP_SKIP_TO = {False: "[b]t[/b]: skip, use trial runs",
+               True: "[b]t[/b]: skip, use the model's correction"}
+ENTER_TAP = "[b]Enter[/b]: locked out, start recording   "
+ENTER_TAP_AGAIN = "[b]Enter[/b]: tap again (record anew)   "
 TAP_TAPPING = ("Recording: tap the bearing housing or the frame with a soft mallet, about "
                "every 2 s, five taps or more, then press Enter. Keep clear of the wheel.")
-ENTER_TAP_DONE = "[b]Enter[/b]: taps done, analyse   [b]t[/b]: skip, use trial runs"
+ENTER_TAP_DONE = "[b]Enter[/b]: taps done, analyse   "
 TAP_DEMO = "Demo: the virtual mallet taps the housings every 2 s while recording."
 TAP_ANALYSING = "Analysing the taps (the support fit takes a few seconds)…"
 #: why a tap test's recording was not used (procedure.guide.TapRefusal)
@@ -277,7 +290,8 @@ TAP_REFUSED: dict[TapRefusal, str] = {
     TapRefusal.NO_MODES: "the taps did not ring at a frequency they agree on: tap the housing "
                          "at each pickup, a few times each, and let it ring out between taps",
 }
-TAP_SKIPPED = "Tap test skipped: a trial run per plane follows."
+TAP_SKIPPED = {False: "Tap test skipped: a trial run per plane follows.",
+               True: "Tap test skipped: the model's correction follows."}
 
 
 def tap_lines(tap: TapOutcome | None, trusted: bool | None) -> tuple[str, ...]:
@@ -294,6 +308,13 @@ def tap_lines(tap: TapOutcome | None, trusted: bool | None) -> tuple[str, ...]:
         lines.append("With it the model is trusted: its correction needs no trial run."
                      if trusted else "Even with it the model is not trusted.")
     return tuple(lines)
+
+
+#: the message line once the taps are analysed (the modes themselves are on the step's
+#: screen, tap_lines): with them the model is trusted, or not (trials follow)
+TAP_ANALYSED = {True: "Tap test analysed: the model is trusted with its modes.",
+                False: "Tap test analysed: the model is still not trusted; a trial run per "
+                       "plane follows."}
 
 
 MODEL_TRUSTED = ("From the model, no trial run: the coast-down fits, the pickups' angles are "

@@ -754,8 +754,9 @@ class BalanceEngine:
         solution = self._model_solution(setup, runs, estimate, False)
         # a stiff mount whose correction may fall short of the grade: the tap test is
         # offered first (optional; skipped, this very correction follows)
-        short = short_of_grade(pred.residual_fraction_95, solution.corrections,
-                               setup.grade_mm_per_s, setup.speed_rpm, setup.rotor_mass_kg)
+        short = pred.residual_fraction_95 is not None and short_of_grade(
+            pred.residual_fraction_95, solution.corrections, setup.grade_mm_per_s,
+            setup.speed_rpm, setup.rotor_mass_kg)
         return ModelAnswer(True, (), tuple(float(m) for m in mass95),
                            tuple(float(a) for a in angle95), pred.residual_fraction_95, prior,
                            solution, tap_may_help=not tapped and tap_may_help(

@@ -42,7 +42,8 @@ Procedures measured:
   alone: then, as in the app, the model's masses come off and trials follow; when not
   trusted, trials sized to be seen, then corrections from the runs alone. When the app
   offers a tap test at standstill (procedure.engine.tap_may_help: the coast-down found no
-  resonance and only the supports' stiffness stands in the way), the person takes it
+  resonance and only the supports' stiffness stands in the way, or the trusted correction
+  may leave more than the grade permits, short_of_grade), the person takes it
   (``tap_test``) and the model is asked again with its modes; a tap is a hands-on step at
   standstill, not a run. Its verdict: the residual's 95 % upper bound within the share of
   every plane. The rotor's polar inertia is drawn between 0.25 and 0.75 M r^2.

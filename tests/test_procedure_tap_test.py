@@ -23,10 +23,19 @@ from test_balance_support_fit_tap import _tap
 from test_procedure_model_first import coast_down_resonances
 from test_ui_procedure import Rig, pickups, tick_all
 from test_ui_resume_model_first import keep_job, restart
+from trueturn.angles import amplitude_phase
+from trueturn.balance.model_first import CIRCLE95
 from trueturn.balance.support_fit import SweepCurve
+from trueturn.dsp.coast import SweepOutcome
+from trueturn.dsp.sweep import Sweep, SweepPoint, SweepValue
 from trueturn.jobs.report import model_lines
 from trueturn.model import Correction
-from trueturn.procedure.engine import TAP_ANSWERS, SweepEvidence, short_of_grade
+from trueturn.procedure.engine import (
+    TAP_ANSWERS,
+    SweepEvidence,
+    short_of_grade,
+    sweep_evidence,
+)
 from trueturn.procedure.guide import (
     GateRefused,
     Mode,
@@ -37,6 +46,7 @@ from trueturn.procedure.guide import (
     TapTest,
 )
 from trueturn.procedure.standstill import StandstillState
+from trueturn.ui.jobfile import JobKeeper
 
 #: the curve's scatter per part, m/s^2 (a very noisy coast-down: the model alone may leave
 #: more of the 1x than a trial would, balance.model_first.MAX_RESIDUAL_FRACTION_95)
@@ -277,4 +287,82 @@ def test_a_trusted_model_short_of_the_grade_is_narrowed_by_the_tap() -> None:
     assert model is not None and model.trusted and model.tapped and not model.tap_may_help
     assert blind.residual_fraction_95 is not None and model.residual_fraction_95 is not None
     assert model.residual_fraction_95 < blind.residual_fraction_95
+    assert isinstance(rig.proc.step, ShowCorrection) and not rig.proc.fallback
+
+
+def stiff_outcome(rig: Rig, scatter_m_s2: float = SCATTER_M_S2
+                  ) -> tuple[SweepOutcome, np.random.Generator]:
+    """:func:`stiff_sweep`'s curve as the DSP layer's coast-down (m/s^2 pk, each point's
+    95 % circle from its 1 sigma), as the app keeps it in the job."""
+    evidence, rng = stiff_sweep(rig, scatter_m_s2=scatter_m_s2)
+    curve = evidence.curve
+    assert curve is not None
+    points = tuple(SweepPoint(float(speed), 8, tuple(
+        SweepValue(name, *amplitude_phase(complex(v)), float(sigma) * CIRCLE95)
+        for name, v, sigma in zip(rig.setup.sensors, row, sigmas, strict=True)))
+        for speed, row, sigmas in zip(curve.speeds_rpm, curve.phasors_m_s2, curve.sigma_m_s2,
+                                      strict=True))[::-1]
+    sweep = Sweep("m/s2 pk", points, (), float(curve.speeds_rpm.min()),
+                  float(curve.speeds_rpm.max()), True)
+    return SweepOutcome("coastdown", sweep, float(curve.speeds_rpm.max()), ()), rng
+
+
+def kept_at_the_offer(rig: Rig, tmp_path: Path, scatter_m_s2: float
+                      ) -> tuple[JobKeeper, np.random.Generator]:
+    """The as-found run and its coast-down kept in the job as the app keeps them, the
+    model's answer with the tap test on offer."""
+    keeper = keep_job(rig, tmp_path)
+    rig.hands_on()
+    rig.run()
+    outcome, rng = stiff_outcome(rig, scatter_m_s2)
+    keeper.sweep(1, outcome)
+    rig.proc.sweep_analysed(sweep_evidence(outcome, rig.setup.sensors,
+                                           rig.proc.runs[0].speed_rpm or rig.setup.speed_rpm))
+    assert isinstance(rig.proc.step, TapTest) and keeper.job is not None
+    assert keeper.job.model is not None and keeper.job.model.tap_offered
+    return keeper, rng
+
+
+def test_a_job_kept_at_the_tap_offer_offers_it_again_with_the_same_fit(
+        tmp_path: Path) -> None:
+    # the model alone not trusted: continued, the tap is offered again, and the taps give
+    # the answer the uninterrupted job would have given (the same kept coast-down)
+    rig = Rig("lathe-faceplate", Mode.MODEL_FIRST)
+    keeper, rng = kept_at_the_offer(rig, tmp_path, SCATTER_M_S2)
+    straight = rig.proc
+    assert straight.model is not None and not straight.model.trusted
+    restart(rig, keeper)
+    proc = rig.proc
+    assert isinstance(proc.step, TapTest) and proc.step.phase is TapPhase.OFFERED
+    assert proc.model is not None and proc.model.tap_may_help and not proc.fallback
+    assert proc.model.distrust == straight.model.distrust
+    begin(rig)
+    outcome = tapped(rig, rng)
+    assert proc.tap_recorded(outcome) is None
+    live = straight.tap_answer(outcome)
+    assert proc.model is not None and proc.model.trusted and live.trusted
+    assert proc.solution is not None and live.solution is not None
+    for a, b in zip(proc.solution.corrections, live.solution.corrections, strict=True):
+        assert a.mass_g == pytest.approx(b.mass_g, rel=1e-6)
+        assert a.angle_deg == pytest.approx(b.angle_deg, abs=1e-4)
+
+
+def test_a_job_kept_at_the_offer_of_a_trusted_model_keeps_its_correction_when_skipped(
+        tmp_path: Path) -> None:
+    rig = Rig("lathe-faceplate", Mode.MODEL_FIRST)
+    keeper, _ = kept_at_the_offer(rig, tmp_path, 0.1)
+    straight = rig.proc.model
+    assert straight is not None and straight.trusted and straight.solution is not None
+    restart(rig, keeper)
+    assert isinstance(rig.proc.step, TapTest)
+    rig.proc.skip_tap()
+    keeper.model(rig.proc)   # as the app keeps it: the offer is closed
+    assert isinstance(rig.proc.step, ShowCorrection) and rig.proc.solution is not None
+    for a, b in zip(rig.proc.solution.corrections, straight.solution.corrections,
+                    strict=True):
+        assert a.mass_g == pytest.approx(b.mass_g, rel=1e-6)
+    # skipped and kept: continued again, the tap is not offered again
+    assert keeper.job is not None and keeper.job.model is not None
+    assert not keeper.job.model.tap_offered
+    restart(rig, keeper)
     assert isinstance(rig.proc.step, ShowCorrection) and not rig.proc.fallback

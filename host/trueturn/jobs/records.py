@@ -304,6 +304,10 @@ class ModelEntry:
     #: the tap test at standstill the model was computed with (optional: files without it
     #: read as before, no migration)
     tap: TapEntry | None = None
+    #: the optional tap test was on offer when this answer was kept (not taken nor skipped
+    #: yet): a continued job offers it again, asked anew with the as-found run's kept
+    #: coast-down (files without it read False: the job goes on as the answer says)
+    tap_offered: bool = False
 
     def _checks(self) -> list[tuple[str, str]]:
         problems: list[tuple[str, str]] = []

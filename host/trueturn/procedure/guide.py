@@ -667,7 +667,7 @@ class Procedure:
                 on_rotor: Sequence[PlacedMass], rotor_set: bool, redo_of: int | None = None,
                 watch: StandstillWatch | None = None, model: ModelAnswer | None = None,
                 doubt: tuple[str, ...] = (), went_on: bool = False,
-                tap: TapOutcome | None = None) -> Procedure:
+                tap: TapOutcome | None = None, sweep: object = None) -> Procedure:
         """Rebuild the procedure of an open job from the runs it kept (readings and the
         masses on the rotor in each), without the person: the engine solves them again as
         it did live, so the trims counted, the correction and the verdict come out as
@@ -687,8 +687,11 @@ class Procedure:
         not trusted: then the trials it fell back to); without it, after the as-found run,
         the model still needs that run's coast-down, so the as-found run is measured again
         (its coast-down is the sweep). ``tap``: the tap test that informed the model, kept
-        with it (the model's answer already holds its effect). A job kept at the tap test's
-        offer (its coast-down evidence is not kept) goes on with trials. ``doubt``: the
+        with it (the model's answer already holds its effect). ``sweep``: a job kept at the
+        tap test's offer, the as-found run's coast-down evidence rebuilt from the job: the
+        model is asked again with it (the engine is deterministic: the same answer) and the
+        tap test is offered again; without it the job goes on as the kept answer says
+        (trusted: its correction; else trials). ``doubt``: the
         rules the as-found run failed (is it
         unbalance? issue #22); unless the person ``went_on`` already, or hands-on work was
         done since, the question comes again before any mass goes on.
@@ -716,7 +719,13 @@ class Procedure:
             proc._keep(kept.run, kept.number)
         proc.on_rotor = list(on_rotor)
         proc.doubt = tuple(doubt)
-        if len(proc.runs) == 1 and setup.mode is Mode.MODEL_FIRST:
+        if (sweep is not None and tap is None and model is not None and len(proc.runs) == 1
+                and setup.mode is Mode.MODEL_FIRST and not rotor_set):
+            # kept at the tap test's offer: asked again with the kept coast-down
+            proc._sweep = sweep
+            proc.fallback = False
+            proc._take_answer(engine.model_first(setup, proc.runs[:1], sweep), offer_tap=True)
+        elif len(proc.runs) == 1 and setup.mode is Mode.MODEL_FIRST:
             if proc.awaiting_sweep:  # the coast-down that the model needs was not kept
                 proc.problem, proc.sweep_lost = MODEL_SWEEP_LOST, True
             elif not proc.fallback and not proc.problem:

@@ -868,6 +868,7 @@ class TrueturnApp(App):
             self.message = f"Refused: {exc}"
         else:
             self._stop_taps()
+            self.keeper.model(proc)  # no longer on offer: a continued job does not ask again
             self.message = texts.TAP_SKIPPED[not proc.fallback]
         self.tick()
 

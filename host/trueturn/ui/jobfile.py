@@ -441,7 +441,8 @@ def model_record(proc: Procedure) -> rec.ModelEntry:
     tap = tap_record(proc.tap) if proc.tap is not None else None
     if not model.trusted or not isinstance(prior, PredictedInfluence):
         return rec.ModelEntry(after, rec.now_iso(), False, distrust,
-                              model.residual_fraction_95, tap=tap)
+                              model.residual_fraction_95, tap=tap,
+                              tap_offered=model.tap_may_help)
     planes = [p.name for p in planes_for(proc.setup)]
     variance = np.array([np.real(np.diagonal(c)) for c in prior.covariance])
     covariance = [rec.ModelCovarianceEntry(s, np.real(c).tolist(), np.imag(c).tolist())
@@ -449,7 +450,7 @@ def model_record(proc: Procedure) -> rec.ModelEntry:
     return rec.ModelEntry(after, rec.now_iso(), True, [], model.residual_fraction_95, planes,
                           list(model.mass_95_g), list(model.angle_95_deg),
                           coefficient_entries(prior.sensors, planes, prior.matrix, variance),
-                          covariance, tap=tap)
+                          covariance, tap=tap, tap_offered=model.tap_may_help)
 
 
 def tap_record(tap: TapOutcome) -> rec.TapEntry:

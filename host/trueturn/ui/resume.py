@@ -24,6 +24,7 @@ import numpy as np
 from trueturn.angles import phasor
 from trueturn.balance.model_first import PredictedInfluence
 from trueturn.balance.support_fit import StandstillMode
+from trueturn.dsp.coast import SweepOutcome
 from trueturn.dsp.findings import Finding
 from trueturn.dsp.severity import BAND_HZ, NoSeverity, Severity, Zone
 from trueturn.dsp.unbalance import failing_rules
@@ -32,10 +33,15 @@ from trueturn.jobs import records as rec
 from trueturn.jobs.condition import evidence_finding, verdict_finding
 from trueturn.jobs.profiles import MachineProfile
 from trueturn.jobs.store import Workspace
-from trueturn.jobs.sweeps import slope_sweeps
+from trueturn.jobs.sweeps import slope_sweeps, sweep_of
 from trueturn.model import MassKind, PlacedMass, Plane, Run, RunKind
 from trueturn.positions import index_of, number_of, position_text
-from trueturn.procedure.engine import resonances_of_sweeps, speed_slopes_from_sweeps
+from trueturn.procedure.engine import (
+    SweepEvidence,
+    resonances_of_sweeps,
+    speed_slopes_from_sweeps,
+    sweep_evidence,
+)
 from trueturn.procedure.guide import (
     Engine,
     KeptRun,
@@ -256,6 +262,25 @@ def job_support_resonances(job: rec.JobRecord) -> object:
                                 latest.speed_rpm)
 
 
+def offered_tap_evidence(job: rec.JobRecord, sensors: tuple[str, ...]
+                         ) -> SweepEvidence | None:
+    """A job kept while the tap test was on offer (model-first): the as-found run's
+    coast-down as the model took it (:func:`trueturn.procedure.engine.sweep_evidence`),
+    rebuilt from the points the job keeps, so the tap's modes can be held to the same fit;
+    None when the offer is not open or the points are not there (then the job goes on as
+    the kept answer says)."""
+    model = job.model
+    if model is None or not model.tap_offered or model.tap is not None or len(job.runs) != 1:
+        return None
+    as_found = job.runs[0]
+    kept = [sw for sw in as_found.sweeps if sw.kind == "coastdown" and sw.points]
+    if not kept:
+        return None
+    entry = kept[-1]
+    outcome = SweepOutcome("coastdown", sweep_of(entry), entry.balancing_rpm, ())
+    return sweep_evidence(outcome, sensors, as_found.speed_rpm)
+
+
 def restore_procedure(job: rec.JobRecord, engine: Engine, watch: StandstillWatch | None,
                       standstill_s: float = 3.0, revolutions_per_run: int = 30) -> Procedure:
     """The procedure of an open job, at the step after its last run (one-line UserError
@@ -287,7 +312,8 @@ def restore_procedure(job: rec.JobRecord, engine: Engine, watch: StandstillWatch
                                  rotor_set=pending is not None,
                                  redo_of=pending.redo_of if pending is not None else None,
                                  watch=watch, model=model, doubt=as_found_doubt(job),
-                                 went_on=job.went_on is not None, tap=kept_tap(job.model))
+                                 went_on=job.went_on is not None, tap=kept_tap(job.model),
+                                 sweep=offered_tap_evidence(job, setup.sensors))
     except ValueError as exc:
         raise UserError(f"job {job.job_id} cannot be continued: {exc}") from None
 

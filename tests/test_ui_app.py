@@ -125,7 +125,15 @@ async def type_text(app: TrueturnApp, pilot: Pilot, text: str) -> None:
 
 
 def _rig_seconds(pilot: Pilot) -> float | None:
-    """The simulated rig's own clock (None: no simulated rig)."""
+    """The board's time as the app last looked at it (its last refresh's snapshot), else
+    the simulated rig's own clock (None: neither). The app's own view, not the rig's clock:
+    with ``realtime=0`` the reader thread pulls the rig's time on as fast as it can read,
+    so on a loaded machine the rig's clock can run far ahead of the refreshes that judge a
+    run (CI, 2026-12-03: a run "timed out" after 60 s of the rig's time)."""
+    snap = getattr(pilot.app, "snap", None)
+    value = getattr(snap, "board_time_s", None)
+    if isinstance(value, (int, float)):
+        return float(value)
     session = getattr(pilot.app, "session", None)
     rig = getattr(session, "rig", None) if session is not None else None
     value = getattr(rig, "time_s", None)

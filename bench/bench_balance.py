@@ -40,7 +40,9 @@ Procedures measured:
   correction with no trial, every later run refining the coefficients (recursive least
   squares), until a run falls far outside the model's prediction and the runs cannot stand
   alone: then, as in the app, the model's masses come off and trials follow; when not
-  trusted, trials sized to be seen, then corrections from the runs alone. When the app
+  trusted (or refuted), the app's fallback: the classic procedure from the as-found run
+  (``classic_after_as_found``: trials sized to be seen with the sweep's resonances, then
+  balance.solve over every run with its guard-banded verdict, as engine.assess). When the app
   offers a tap test at standstill (procedure.engine.tap_may_help: the coast-down found no
   resonance and only the supports' stiffness stands in the way, or the trusted correction
   may leave more than the grade permits, short_of_grade), the person takes it
@@ -609,22 +611,19 @@ def trial_for_effect(shop: Shop, plane_index: int, as_found: dict, prediction,
                          measured_scale).mass_g
 
 
-def one_rotor(rng: np.random.Generator, sizing: str, soft: bool) -> dict:
-    rotor, speed = random_rotor(rng, soft)
-    u_per = permissible_unbalance_gmm(GRADE, speed, rotor.mass_kg)
-    shares = per_plane_permissible(u_per, 2)
-    as_found = [Mass(p.name, shares[j] * rng.uniform(AS_FOUND_LOW, AS_FOUND_HIGH) / p.radius_mm, rng.uniform(0, 360))
-                for j, p in enumerate(rotor.planes)]
-    shop = Shop(rotor, speed, as_found, rng)
-    tolerance = {"rotor_mass_kg": rotor.mass_kg, "grade": GRADE, "speed_rpm": speed}
-    before = shop.true_1x()
-    runs = [run_entry("as found", [], shop.measure())]
+def classic_after_as_found(shop: Shop, rng: np.random.Generator, runs: list[dict], prediction,
+                           sizing: str, tolerance: dict, slopes: list[dict] | None,
+                           before: float, as_found: list[Mass], runs_before: int = 0
+                           ) -> tuple:  # type: ignore[no-untyped-def]
+    """The classic procedure after the as-found run (``runs[0]``): a trial per plane (sized
+    to be seen with ``sizing`` "default", else the force rule at that ratio), then
+    corrections solved from every run (the app's ``engine.assess``: balance.solve with its
+    guard-banded verdict) until the verdict passes or the run limit; ``runs_before``: runs
+    made before (a refuted model's corrections). Returns the last solve's report (None:
+    none passed), the runs made, the first correction's cut of the true 1x, the trials too
+    small and the trials refused after the fact."""
+    rotor, speed = shop.rotor, shop.speed
     as_found_1x = phasors_of(runs[0]["readings"])
-    # the coast-down after the as-found run gives each pickup's slope (issue #20 item 2)
-    slopes = speed_slopes(rotor, speed, shop.true_masses, rng)
-    # the coast-down after the as-found run gives the sweep (issue #20 item 1), and the
-    # trials are sized with its resonances as the app sizes them
-    prediction = trial_prediction(rotor, speed, sweep_resonances(rotor, speed, rng))
     too_small = 0
     redo_runs = 0
     if sizing == "default":
@@ -661,7 +660,7 @@ def one_rotor(rng: np.random.Generator, sizing: str, soft: bool) -> dict:
             trial_g *= TRIAL_MARGIN * factor
     first_reduction = None
     report = None
-    n_runs = len(runs) + redo_runs
+    n_runs = len(runs) + redo_runs + runs_before
     redone = 0
 
     def solved():
@@ -708,6 +707,26 @@ def one_rotor(rng: np.random.Generator, sizing: str, soft: bool) -> dict:
         if check is not None and check.verdict is not None and check.verdict.passed:
             report = check
             break
+    return report, n_runs, first_reduction, too_small, redone
+
+
+def one_rotor(rng: np.random.Generator, sizing: str, soft: bool) -> dict:
+    rotor, speed = random_rotor(rng, soft)
+    u_per = permissible_unbalance_gmm(GRADE, speed, rotor.mass_kg)
+    shares = per_plane_permissible(u_per, 2)
+    as_found = [Mass(p.name, shares[j] * rng.uniform(AS_FOUND_LOW, AS_FOUND_HIGH) / p.radius_mm, rng.uniform(0, 360))
+                for j, p in enumerate(rotor.planes)]
+    shop = Shop(rotor, speed, as_found, rng)
+    tolerance = {"rotor_mass_kg": rotor.mass_kg, "grade": GRADE, "speed_rpm": speed}
+    before = shop.true_1x()
+    runs = [run_entry("as found", [], shop.measure())]
+    # the coast-down after the as-found run gives each pickup's slope (issue #20 item 2)
+    slopes = speed_slopes(rotor, speed, shop.true_masses, rng)
+    # the coast-down after the as-found run gives the sweep (issue #20 item 1), and the
+    # trials are sized with its resonances as the app sizes them
+    prediction = trial_prediction(rotor, speed, sweep_resonances(rotor, speed, rng))
+    report, n_runs, first_reduction, too_small, redone = classic_after_as_found(
+        shop, rng, runs, prediction, sizing, tolerance, slopes, before, as_found)
     if report is None:
         return {"runs": MAX_RUNS + 1, "first_reduction": first_reduction or 0.0,
                 "trim_reduction": np.nan, "true_pass": False, "true_pass_bearings": False,
@@ -752,8 +771,8 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool,
     coefficients -> a correction with no trial when the
     model is trusted, every run refining them (RLS); a run far outside the model's
     prediction that the runs cannot stand without refutes it: its masses come off and
-    trials follow, as in the app (procedure.guide.ModelRefuted). Not trusted: trials sized
-    to be seen, then corrections from the runs alone (the app's classic solve)."""
+    trials follow, as in the app (procedure.guide.ModelRefuted). Not trusted (or refuted):
+    the app's classic procedure from the as-found run (:func:`classic_after_as_found`)."""
     rotor, speed = random_rotor(rng, soft, n_planes)
     u_per = permissible_unbalance_gmm(GRADE, speed, rotor.mass_kg)
     shares = per_plane_permissible(u_per, n_planes)
@@ -762,7 +781,8 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool,
     shop = Shop(rotor, speed, as_found, rng)
     names = [p.name for p in rotor.pickups]
     before = shop.true_1x()
-    first = shop.measure()["readings"]
+    as_found_run = shop.measure()
+    first = as_found_run["readings"]
     r0 = phasors_of(first)
     sweep = sweep_resonances(rotor, speed, rng)
     curve = sweep_curve(shop, rng)
@@ -834,32 +854,19 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool,
             # the person takes the model's masses off: the rotor is as found again
             shop.true_masses = list(as_found)
     if not prediction.trusted or refuted:
-        estimate = CoefficientEstimate(tuple(names), n_planes)   # the runs alone
-        take(estimate, first, zeros)
-        # the trials are sized as the app sizes them: with the sweep's resonances, not
-        # from the model it distrusts
-        sizing = trial_prediction(rotor, speed, sweep)
-        scale = None
-        for j, p in enumerate(rotor.planes):
-            if n_runs + shop.extra_runs >= MAX_RUNS:
-                break
-            trial_g = trial_for_effect(shop, j, first, sizing, scale)
-            angle = 90.0 * j
-            for _attempt in range(2):   # the effect checked right after the run; one redo
-                readings = shop.measure([shop.place(p.name, trial_g, angle)])["readings"]
-                u = np.zeros(n_planes, dtype=complex)
-                u[j] = phasor(trial_g, angle)
-                take(estimate, readings, u)   # a small trial still tells something: kept
-                n_runs += 1
-                factor = trial_size_factor(r0, phasors_of(readings),
-                                           {k: v["confidence"] for k, v in readings.items()})
-                if factor <= 1.0 or _attempt:
-                    break
-                trial_g *= factor * TRIAL_REDO_MARGIN
-            seen = min(abs(phasors_of(readings)[n] - r0[n]) / trial_g / sizing.magnitude[i, j]
-                       for i, n in enumerate(names))
-            scale = float(seen)
-        _, said_pass = corrections(estimate, zeros)
+        # trials follow, as in the app: the classic procedure on every run from the as-found
+        # one (procedure.guide: fallback -> engine.assess, balance.solve and its verdict),
+        # its trials sized with the sweep's resonances, not from the model it distrusts,
+        # and the coast-down's slopes normalising the runs' speeds
+        tolerance = {"rotor_mass_kg": rotor.mass_kg, "grade": GRADE, "speed_rpm": speed}
+        slopes = speed_slopes(rotor, speed, as_found, rng)
+        report, n_runs, first_classic, _, _ = classic_after_as_found(
+            shop, rng, [run_entry("as found", [], as_found_run)],
+            trial_prediction(rotor, speed, sweep), "default", tolerance, slopes, before,
+            as_found, runs_before=n_runs - 1)
+        said_pass = report is not None and report.verdict is not None and report.verdict.passed
+        if first_reduction is None:
+            first_reduction = first_classic
     true_pass = all(r <= s for r, s in zip(shop.true_residual_gmm(), shares, strict=True))
     return {"runs": n_runs + shop.extra_runs if said_pass else MAX_RUNS + 1,
             "first_reduction": first_reduction if first_reduction is not None else 0.0,

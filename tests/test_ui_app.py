@@ -158,7 +158,12 @@ async def wait_for(pilot: Pilot, condition, timeout_s: float = 60.0) -> None:  #
         rig_now = _rig_seconds(pilot)
         rig_done = rig_started is None or rig_now is None or rig_now - rig_started > timeout_s
         if (wall > timeout_s and rig_done) or wall > HANG_FACTOR * timeout_s:
-            raise AssertionError("timed out waiting for the app")
+            proc = getattr(pilot.app, "procedure", None)
+            step = getattr(proc, "step", None)
+            raise AssertionError(
+                f"timed out waiting for the app ({wall:.0f} s wall, board "
+                f"{rig_started} -> {rig_now} s); step {step!r}; screen:\n"
+                f"{screen_text(pilot.app) if isinstance(pilot.app, TrueturnApp) else ''}")
         await pilot.pause(0.05)
 
 

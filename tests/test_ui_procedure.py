@@ -16,6 +16,7 @@ from trueturn.dsp.motion import PickupMotion
 from trueturn.model import Reading, Run, Verdict, VerdictFlag
 from trueturn.procedure.engine import BalanceEngine
 from trueturn.procedure.guide import (
+    DEFAULT_RUNAWAY_FACTOR,
     GateRefused,
     Mode,
     Procedure,
@@ -303,6 +304,33 @@ def test_run_needs_force_confirmation_and_a_ready_reading() -> None:
     with pytest.raises(GateRefused, match="not steady"):
         rig.proc.record(unsteady, 3500.0, rig.t)
     assert rig.proc.progress(unsteady) == pytest.approx(5 / 30)
+
+
+def test_a_run_up_through_a_critical_speed_is_no_runaway() -> None:
+    # the demo shop fan's run-up passes its supports' critical speeds, where the 1x is many
+    # times its level at speed (sim truth: 19 times at 1000 rpm for a run at 1754): no
+    # alarm there; the same level at the as-found speed stops the run
+    rig = Rig("shop-fan", Mode.ONE_PLANE)
+    rig.hands_on()
+    rig.run()  # as found
+    rig.hands_on()  # trial mass on
+    rig.proc.arm_run(True, rig.t)
+    as_found = rig.proc.runs[0]
+    speed = as_found.speed_rpm
+    assert speed is not None
+    rotor = rig.scenario.rotor
+    resonant = rotor.response_1x(1000.0, rig.masses)
+    at_speed = rotor.response_1x(speed, rig.masses)
+    ratio = {n: abs(resonant[n]) * speed / (abs(at_speed[n]) * 1000.0)
+             for n in rig.setup.sensors}  # in velocity, the readings' quantity
+    assert min(ratio.values()) > DEFAULT_RUNAWAY_FACTOR   # physics: over the factor
+    loud = {n: replace(r, amplitude=ratio[n] * r.amplitude)
+            for n, r in as_found.readings.items()}
+    assert rig.proc.observe(loud, 1000.0, rig.t) == []
+    assert rig.proc.step.phase == "running"
+    events = rig.proc.observe(loud, speed, rig.t)
+    assert sorted(e.kind for e in events) == ["runaway", "runaway"]
+    assert rig.proc.step.phase == "stopped"
 
 
 def test_overspeed_and_runaway_stop_the_run_and_are_recorded() -> None:

@@ -153,6 +153,13 @@ class Rig:
             elif c.action == "detach":
                 self.masses.remove(mass)
 
+    def trial_armed(self) -> None:
+        """The as-found run, the first trial mass on, and its run armed (turning)."""
+        self.hands_on()
+        self.run()  # as found
+        self.hands_on()  # trial mass on
+        self.proc.arm_run(True, self.t)
+
     def run(self) -> None:
         self.proc.arm_run(True, self.t)
         self.spin(2.0, self.setup.speed_rpm)
@@ -311,10 +318,7 @@ def test_a_run_up_through_a_critical_speed_is_no_runaway() -> None:
     # times its level at speed (sim truth: 19 times at 1000 rpm for a run at 1754): no
     # alarm there; the same level at the as-found speed stops the run
     rig = Rig("shop-fan", Mode.ONE_PLANE)
-    rig.hands_on()
-    rig.run()  # as found
-    rig.hands_on()  # trial mass on
-    rig.proc.arm_run(True, rig.t)
+    rig.trial_armed()
     as_found = rig.proc.runs[0]
     speed = as_found.speed_rpm
     assert speed is not None
@@ -335,10 +339,7 @@ def test_a_run_up_through_a_critical_speed_is_no_runaway() -> None:
 
 def test_overspeed_and_runaway_stop_the_run_and_are_recorded() -> None:
     rig = Rig("bench-grinder", Mode.TWO_PLANE)
-    rig.hands_on()
-    rig.run()  # as found
-    rig.hands_on()  # trial mass on
-    rig.proc.arm_run(True, rig.t)
+    rig.trial_armed()
     over = rig.setup.max_speed_rpm + 50
     # every pickup's 1x at 3.5 times its as-found level (over DEFAULT_RUNAWAY_FACTOR, 3),
     # whatever the trial mass does on its own

@@ -65,10 +65,7 @@ def shown(rig: Rig, **context: object) -> dict[str, str]:
 
 def test_an_alarm_stops_the_run_in_red_until_acknowledged() -> None:
     rig = Rig("bench-grinder", Mode.TWO_PLANE)
-    rig.hands_on()
-    rig.run()  # as found
-    rig.hands_on()  # trial mass on
-    rig.proc.arm_run(True, rig.t)
+    rig.trial_armed()
     over = rig.setup.max_speed_rpm + 50
     (alarm, *_) = rig.proc.observe(rig.readings(), over, rig.t)
     seen = shown(rig, alarm=alarm.detail)

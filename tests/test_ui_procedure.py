@@ -335,6 +335,16 @@ def test_a_run_up_through_a_critical_speed_is_no_runaway() -> None:
     events = rig.proc.observe(loud, speed, rig.t)
     assert sorted(e.kind for e in events) == ["runaway", "runaway"]
     assert rig.proc.step.phase == "stopped"
+    # with no speed known (the tach went silent) the level is judged as before: STOP
+    blind = Rig("shop-fan", Mode.ONE_PLANE)
+    blind.trial_armed()
+    for no_speed in (0.0, float("nan")):
+        assert blind.proc.step.phase == "running"
+        events = blind.proc.observe(loud, no_speed, blind.t)
+        assert sorted(e.kind for e in events) == ["runaway", "runaway"], no_speed
+        blind.proc.acknowledge_alarm()
+        blind.hands_on()
+        blind.proc.arm_run(True, blind.t)
 
 
 def test_overspeed_and_runaway_stop_the_run_and_are_recorded() -> None:

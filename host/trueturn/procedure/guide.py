@@ -116,7 +116,8 @@ DEFAULT_RUNAWAY_FACTOR = 3.0
 #: of the as-found run's speed. A run-up passes the supports' critical speeds, where the 1x
 #: is many times its level at speed on a soft mount (the demo shop fan: 19 times at 1000
 #: rpm for a run at 1754, sim truth), which is no runaway; every start of such a machine
-#: read as STOP (CI, 2026-12-03). Overspeed is judged at every speed. Our choice, no source.
+#: read as STOP (CI, 2026-12-03). Overspeed is judged at every speed, and the runaway too
+#: when the speed is not known (a silent tach). Our choice, no source.
 RUNAWAY_SPEED_BAND = 0.10
 DEFAULT_PHASE_LIMIT_DEG = 5.0  # the DSP's default phase confidence for a steady reading
 SMALL_VECTOR_FRACTION = 0.05  # below 5 % of the as-found 1x, a tight circle is enough
@@ -1029,10 +1030,12 @@ class Procedure:
                 "overspeed", f"speed {speed_rpm:.0f} rpm is over the machine's maximum "
                 f"{self.setup.max_speed_rpm:.0f} rpm: STOP THE MACHINE", now_s))
         base = self.as_found()
-        at_speed = (base is not None and math.isfinite(speed_rpm) and speed_rpm > 0
-                    and (not base.speed_rpm
-                         or abs(speed_rpm / base.speed_rpm - 1.0) <= RUNAWAY_SPEED_BAND))
-        if base is not None and at_speed:
+        # judged unless the speed is known and away from the as-found speed: with no speed
+        # (a silent tach, no tachless estimate) the alarm is judged as before
+        known = math.isfinite(speed_rpm) and speed_rpm > 0
+        away = (base is not None and known and bool(base.speed_rpm)
+                and abs(speed_rpm / float(base.speed_rpm or 1.0) - 1.0) > RUNAWAY_SPEED_BAND)
+        if base is not None and not away:
             for name, r in readings.items():
                 ref = base.readings.get(name)
                 key = f"runaway:{name}"

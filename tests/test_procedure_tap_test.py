@@ -231,7 +231,8 @@ def test_a_resumed_job_keeps_the_tap_and_its_report_says_so(tmp_path: Path) -> N
 
 
 def test_short_of_grade_weighs_the_bound_against_the_iso_allowance() -> None:
-    # ISO 21940-11:2016, eq. (2): U_per = 1000 G m / omega; G 6.3, 10 kg at 3000 rpm ->
+    # ISO 21940-11:2016: U_per = 1000 G m / omega (from memory; the formula
+    # balance.iso21940 is checked against elsewhere); G 6.3, 10 kg at 3000 rpm ->
     # 1000 * 6.3 * 10 / 314.16 = 200.5 g mm. A correction of 10 g at 100 mm stands for
     # 1000 g mm as found: the grade permits leaving 20.05 % of it
     one = [Correction("rim", 10.0, 0.0, radius_mm=100.0)]

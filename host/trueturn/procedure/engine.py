@@ -247,7 +247,8 @@ def short_of_grade(residual_fraction_95: float, corrections: Sequence[Correction
                    grade_mm_s: float, speed_rpm: float, rotor_mass_kg: float) -> bool:
     """A trusted model's correction may leave more unbalance than the grade permits: the
     fraction of the as-found 1x it may leave (95 % of the model's draws) exceeds the
-    permissible residual unbalance (ISO 21940-11, eq. (2)) over the as-found unbalance the
+    permissible residual unbalance (ISO 21940-11, U_per = G m / omega,
+    :func:`trueturn.balance.iso21940.permissible_unbalance_gmm`) over the as-found unbalance the
     correction stands for (the sum of its planes' mass x radius). The 1x is taken as
     proportional to the unbalance (linear supports); a check run then a trim may follow.
 
@@ -267,7 +268,9 @@ def short_of_grade(residual_fraction_95: float, corrections: Sequence[Correction
 
     References
     ----------
-    .. [1] ISO 21940-11:2016, 6.2 (permissible residual unbalance from the grade).
+    .. [1] ISO 21940-11:2016, Mechanical vibration -- Rotor balancing -- Part 11: the
+       permissible residual unbalance from the balance quality grade; the comparison with
+       the model's bound is ours.
     """
     if any(c.radius_mm is None for c in corrections) or not corrections:
         return False

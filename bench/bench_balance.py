@@ -805,10 +805,8 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool,
     over_bound = None
     if prediction.trusted and prediction.residual_fraction_95 is not None:
         start = np.array([rotor.response_1x(speed, as_found)[n] for n in names])
-        c = np.linalg.lstsq(prediction.matrix, -r0_vector(r0, names), rcond=None)[0]
         after = rotor.response_1x(speed, as_found + [
-            Mass(p.name, abs(c[j]), math.degrees(np.angle(c[j])))
-            for j, p in enumerate(rotor.planes)])
+            Mass(c.plane, c.mass_g, c.angle_deg) for c in model_correction(prediction, r0, rotor)])
         left = np.linalg.norm([after[n] for n in names]) / np.linalg.norm(start)
         over_bound = bool(left > prediction.residual_fraction_95)
     zeros = np.zeros(n_planes, dtype=complex)

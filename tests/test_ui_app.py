@@ -128,8 +128,9 @@ def _rig_seconds(pilot: Pilot) -> float | None:
     """The board's time as the app last looked at it (its last refresh's snapshot), else
     the simulated rig's own clock (None: neither). The app's own view, not the rig's clock:
     with ``realtime=0`` the reader thread pulls the rig's time on as fast as it can read,
-    so on a loaded machine the rig's clock can run far ahead of the refreshes that judge a
-    run (CI, 2026-12-03: a run "timed out" after 60 s of the rig's time)."""
+    so on a loaded machine the rig's clock can run ahead of the refreshes that judge a
+    run. (A run that "timed out" on CI, 2026-12-03, had really stopped on the runaway
+    alarm; the timeout message now shows the step and the screen.)"""
     snap = getattr(pilot.app, "snap", None)
     value = getattr(snap, "board_time_s", None)
     if isinstance(value, (int, float)):

@@ -28,6 +28,9 @@ Procedures measured:
   sized by the force rule (``trial-mass``; when the engine's trial_size_factor says the
   first trial changed the 1x too little, the next plane's is made that much bigger, times
   2), correction, check run; trims from all runs until the engine says within G 6.3.
+  A trial run whose 1x passes the runaway alarm's factor (3 times the as-found level on a
+  pickup) is stopped, as the app stops it, and run again with a smaller trial in its place
+  (balance.trial_mass.trial_after_runaway); each stopped run counts as a run.
 * ``[default]``: the same, with trials sized to be seen (balance.trial_mass
   .size_trial_for_effect from the as-found reading and the free-rotor sensitivity of
   balance.model_first; the second plane's trial scaled by what the first showed), as the
@@ -94,7 +97,11 @@ from trueturn.balance.model_first import (  # noqa: E402
 )
 from trueturn.balance.sanity import NoInformationError  # noqa: E402
 from trueturn.balance.support_fit import StandstillMode, SweepCurve  # noqa: E402
-from trueturn.balance.trial_mass import size_trial_mass, suggest_trial  # noqa: E402
+from trueturn.balance.trial_mass import (  # noqa: E402
+    size_trial_mass,
+    suggest_trial,
+    trial_after_runaway,
+)
 from trueturn.constants import STANDARD_GRAVITY_M_S2  # noqa: E402
 from trueturn.dsp import analyze_capture  # noqa: E402
 from trueturn.dsp.averaging import SteadinessLimits  # noqa: E402
@@ -114,7 +121,11 @@ from trueturn.procedure.engine import (  # noqa: E402
     short_of_grade,
     tap_may_help,
 )
-from trueturn.procedure.guide import DEFAULT_PHASE_LIMIT_DEG, SMALL_VECTOR_FRACTION  # noqa: E402
+from trueturn.procedure.guide import (  # noqa: E402
+    DEFAULT_PHASE_LIMIT_DEG,
+    DEFAULT_RUNAWAY_FACTOR,
+    SMALL_VECTOR_FRACTION,
+)
 from trueturn.sim import CorrectionPlane, Mass, PickupMount, RigidRotor, Support  # noqa: E402
 from trueturn.sim.scenario import ADC_COUNTS_PER_REFERENCE, ADC_REFERENCE_V  # noqa: E402
 
@@ -621,11 +632,30 @@ def classic_after_as_found(shop: Shop, rng: np.random.Generator, runs: list[dict
     guard-banded verdict) until the verdict passes or the run limit; ``runs_before``: runs
     made before (a refuted model's corrections). Returns the last solve's report (None:
     none passed), the runs made, the first correction's cut of the true 1x, the trials too
-    small and the trials refused after the fact."""
+    small, the trials refused after the fact and the trial runs the runaway alarm stopped
+    (``trial_run``)."""
     rotor, speed = shop.rotor, shop.speed
     as_found_1x = phasors_of(runs[0]["readings"])
     too_small = 0
     redo_runs = 0
+    stopped = 0
+
+    def trial_run(on: Shop, plane: str, mass_g: float, angle: float,
+                  extra: Sequence[Mass] = ()) -> tuple[dict, float]:
+        """A trial run as the app makes it: its 1x over DEFAULT_RUNAWAY_FACTOR times the
+        as-found level on a pickup stops the run (procedure.guide's runaway alarm), and the
+        inspection puts a smaller trial in its place (balance.trial_mass.trial_after_runaway)
+        before the run again: each stopped run counts."""
+        nonlocal stopped
+        while True:
+            entry = run_entry(f"trial {plane}", [{"plane": plane, "mass_g": mass_g,
+                                                  "angle_deg": angle}],
+                              on.measure([*extra, on.place(plane, mass_g, angle)]))
+            level = max(r["amp"] / abs(as_found_1x[n]) for n, r in entry["readings"].items())
+            if level <= DEFAULT_RUNAWAY_FACTOR or stopped >= MAX_RUNS:
+                return entry, mass_g
+            stopped += 1
+            mass_g = trial_after_runaway(mass_g, level)
     if sizing == "default":
         trial_g = trial_for_effect(shop, 0, runs[0]["readings"], prediction)
     else:
@@ -633,9 +663,8 @@ def classic_after_as_found(shop: Shop, rng: np.random.Generator, runs: list[dict
                                   float(sizing)).mass_g
     for j, p in enumerate(rotor.planes):
         angle = 90.0 * j
-        runs.append(run_entry(f"trial {p.name}",
-                              [{"plane": p.name, "mass_g": trial_g, "angle_deg": angle}],
-                              shop.measure([shop.place(p.name, trial_g, angle)])))
+        entry, trial_g = trial_run(shop, p.name, trial_g, angle)
+        runs.append(entry)
         readings = runs[-1]["readings"]
         after = phasors_of(readings)
         confidence = {k: v["confidence"] for k, v in readings.items()}
@@ -645,9 +674,7 @@ def classic_after_as_found(shop: Shop, rng: np.random.Generator, runs: list[dict
             # the app checks the effect right after the run and redoes the trial larger
             # (procedure.engine.TRIAL_REDO_MARGIN) before moving on: one more run
             trial_g *= factor * TRIAL_REDO_MARGIN
-            runs[-1] = run_entry(f"trial {p.name}",
-                                 [{"plane": p.name, "mass_g": trial_g, "angle_deg": angle}],
-                                 shop.measure([shop.place(p.name, trial_g, angle)]))
+            runs[-1], trial_g = trial_run(shop, p.name, trial_g, angle)
             readings = runs[-1]["readings"]
             after = phasors_of(readings)
             redo_runs += 1
@@ -660,7 +687,7 @@ def classic_after_as_found(shop: Shop, rng: np.random.Generator, runs: list[dict
             trial_g *= TRIAL_MARGIN * factor
     first_reduction = None
     report = None
-    n_runs = len(runs) + redo_runs + runs_before
+    n_runs = len(runs) + redo_runs + runs_before + stopped
     redone = 0
 
     def solved():
@@ -675,15 +702,13 @@ def classic_after_as_found(shop: Shop, rng: np.random.Generator, runs: list[dict
                     return None
                 j = next(k for k, p in enumerate(rotor.planes) if p.name == exc.plane)
                 mass_g = exc.suggested_g or 10 * runs[1 + j]["added"][0]["mass_g"]
-                extra = [shop.place(exc.plane, mass_g, 90.0 * j)]
                 # the person takes the correction off for the redo and puts it back after
                 again = Shop(rotor, speed, as_found, rng, shop.signals)
                 again.as_found_amp = shop.as_found_amp
-                runs[1 + j] = run_entry(f"trial {exc.plane}",
-                                        [{"plane": exc.plane, "mass_g": mass_g,
-                                          "angle_deg": 90.0 * j}], again.measure(extra))
+                was_stopped = stopped
+                runs[1 + j], _ = trial_run(again, exc.plane, mass_g, 90.0 * j)
                 shop.signals = again.signals
-                n_runs += 1 + again.extra_runs
+                n_runs += 1 + again.extra_runs + stopped - was_stopped
                 redone += 1
             except UserError:
                 return None     # refused (e.g. a run clipped on every pickup there is)
@@ -707,7 +732,7 @@ def classic_after_as_found(shop: Shop, rng: np.random.Generator, runs: list[dict
         if check is not None and check.verdict is not None and check.verdict.passed:
             report = check
             break
-    return report, n_runs, first_reduction, too_small, redone
+    return report, n_runs, first_reduction, too_small, redone, stopped
 
 
 def one_rotor(rng: np.random.Generator, sizing: str, soft: bool) -> dict:
@@ -725,12 +750,13 @@ def one_rotor(rng: np.random.Generator, sizing: str, soft: bool) -> dict:
     # the coast-down after the as-found run gives the sweep (issue #20 item 1), and the
     # trials are sized with its resonances as the app sizes them
     prediction = trial_prediction(rotor, speed, sweep_resonances(rotor, speed, rng))
-    report, n_runs, first_reduction, too_small, redone = classic_after_as_found(
+    report, n_runs, first_reduction, too_small, redone, stopped = classic_after_as_found(
         shop, rng, runs, prediction, sizing, tolerance, slopes, before, as_found)
     if report is None:
         return {"runs": MAX_RUNS + 1, "first_reduction": first_reduction or 0.0,
                 "trim_reduction": np.nan, "true_pass": False, "true_pass_bearings": False,
-                "too_small": too_small, "trials": len(rotor.planes), "redone": redone}
+                "too_small": too_small, "trials": len(rotor.planes), "redone": redone,
+                "stopped": stopped}
     true_pass = all(r <= s for r, s in zip(shop.true_residual_gmm(), shares, strict=True))
     true_pass_bearings = shop.true_pass_at_bearings(u_per)
     # later: the same rotor gets a new unbalance (e.g. after a wheel change); one run + saved
@@ -751,7 +777,8 @@ def one_rotor(rng: np.random.Generator, sizing: str, soft: bool) -> dict:
     return {"runs": n_runs + shop.extra_runs if passed else MAX_RUNS + 1,
             "first_reduction": first_reduction, "trim_reduction": trim_reduction,
             "true_pass": true_pass, "true_pass_bearings": true_pass_bearings,
-            "too_small": too_small, "trials": len(rotor.planes), "redone": redone}
+            "too_small": too_small, "trials": len(rotor.planes), "redone": redone,
+            "stopped": stopped}
 
 
 def model_correction(prediction, r0: dict, rotor) -> list[Correction]:  # type: ignore[no-untyped-def]
@@ -858,7 +885,7 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool,
         # and the coast-down's slopes normalising the runs' speeds
         tolerance = {"rotor_mass_kg": rotor.mass_kg, "grade": GRADE, "speed_rpm": speed}
         slopes = speed_slopes(rotor, speed, as_found, rng)
-        report, n_runs, first_classic, _, _ = classic_after_as_found(
+        report, n_runs, first_classic, _, _, _ = classic_after_as_found(
             shop, rng, [run_entry("as found", [], as_found_run)],
             trial_prediction(rotor, speed, sweep), "default", tolerance, slopes, before,
             as_found, runs_before=n_runs - 1)
@@ -891,6 +918,7 @@ def _classic_figures(sizing: str, label: str) -> list[Row]:
     within5 = float(np.mean(runs <= 5))
     too_small = sum(r["too_small"] for r in results) / sum(r["trials"] for r in results)
     redone = sum(r["redone"] for r in results) / sum(r["trials"] for r in results)
+    stopped = sum(r["stopped"] for r in results) / sum(r["trials"] for r in results)
     return [
         Row(f"balance [{label}]: runs to reach G {GRADE:g}, {ROTORS} random 2-plane rotors (median)",
             f"{np.median(runs):g} runs", "median <= 4", bool(np.median(runs) <= 4)),
@@ -906,6 +934,8 @@ def _classic_figures(sizing: str, label: str) -> list[Row]:
             "a larger one)", f"{100 * too_small:.1f} %", "-", None),
         Row(f"balance [{label}]: trials refused after the fact and run again larger",
             f"{100 * redone:.1f} %", "-", None),
+        Row(f"balance [{label}]: trials whose run the runaway alarm stopped (a smaller trial "
+            "followed)", f"{100 * stopped:.1f} %", "-", None),
         Row(f"balance [{label}]: 1x reduction after a one-run trim with saved coefficients (median)",
             f"{100 * np.median(trim):.1f} %", "median >= 90 %", bool(np.median(trim) >= 0.90)),
         Row(f"balance [{label}]: said within G {GRADE:g} but the true residual was not",

@@ -17,10 +17,11 @@ from trueturn.balance.trial_mass import (
     size_trial_for_effect,
     size_trial_mass,
     suggest_trial,
+    trial_after_runaway,
 )
 from trueturn.constants import STANDARD_GRAVITY_M_S2
 from trueturn.errors import UserError
-from trueturn.procedure.guide import Mode
+from trueturn.procedure.guide import DEFAULT_RUNAWAY_FACTOR, Mode
 
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 from test_ui_procedure import Rig  # noqa: E402
@@ -183,3 +184,33 @@ def test_the_apps_trials_are_sized_with_the_coast_downs_resonances() -> None:
         n: [SupportResonance(823.0, 0.03), SupportResonance(1230.0, 0.03)]
         for n in setup.sensors})
     assert engine.trial_mass(soft, plane, [quiet]).mass_g != pytest.approx(none)
+
+
+@pytest.mark.parametrize("level_ratio", [3.01, 3.5, 5.0, 12.0])
+def test_a_trial_after_a_runaway_is_seen_and_stays_under_the_alarm(level_ratio: float) -> None:
+    # Whatever the phases: a run that read |R0 + dR| = level_ratio |R0| bounds the trial's
+    # effect by the triangle inequality, (level_ratio - 1)|R0| <= |dR| <= (level_ratio + 1)
+    # |R0| (from memory). Every phase of the trial's effect against the as-found 1x is tried;
+    # the smaller trial (the 1x linear in the mass: Thearle 1934, from memory) then changes
+    # the 1x by at least the 25 % a trial must (balance.influence) and, even added in phase,
+    # leaves the run under the runaway alarm's factor.
+    r0 = 1.0
+    trial_g = 10.0
+    smaller_g = trial_after_runaway(trial_g, level_ratio)
+    for k in range(360):
+        phi = math.radians(k)
+        # |r0 + e^{i phi} d| = level_ratio: d = -cos(phi) + sqrt(level_ratio^2 - sin(phi)^2)
+        d = -math.cos(phi) + math.sqrt(level_ratio**2 - math.sin(phi) ** 2)
+        assert abs(r0 + d * complex(math.cos(phi), math.sin(phi))) == pytest.approx(level_ratio)
+        change = d * smaller_g / trial_g
+        assert change >= 0.25 * 1.5, (k, change)   # seen, with a margin
+        assert r0 + change < DEFAULT_RUNAWAY_FACTOR, (k, change)
+    # the geometric middle of the changes it can make is the target
+    low, high = (level_ratio - 1) * smaller_g / trial_g, (level_ratio + 1) * smaller_g / trial_g
+    assert math.sqrt(low * high) == pytest.approx(TARGET_CHANGE)
+
+
+@pytest.mark.parametrize("level_ratio", [1.0, 0.5, math.inf, math.nan])
+def test_a_trial_after_a_runaway_needs_a_level_over_the_as_found(level_ratio: float) -> None:
+    with pytest.raises(UserError):
+        trial_after_runaway(10.0, level_ratio)

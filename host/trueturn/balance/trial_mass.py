@@ -282,3 +282,53 @@ def suggest_trial(as_found_amplitudes: Sequence[float], confidences_95: Sequence
                 floor_g = min(floor_g, FREE_ROTOR_BOUND * free_g)
     return size_trial_for_effect(as_found_amplitudes, sens, rotor_mass_kg, radius_mm, speed_rpm,
                                  confidences_95, max_mass_g=max_mass_g, min_mass_g=floor_g)
+
+
+def trial_after_runaway(trial_g: float, level_ratio: float,
+                        target_change: float = TARGET_CHANGE) -> float:
+    """A smaller trial after a trial run was stopped because its 1x passed a multiple of
+    the as-found level.
+
+    With the as-found 1x ``R0`` and the trial's own effect ``dR`` on a pickup, the run read
+    ``|R0 + dR| = level_ratio |R0|``; by the triangle inequality the effect lies between
+    ``(level_ratio - 1) |R0|`` and ``(level_ratio + 1) |R0|``, whatever the phases. The
+    effect is linear in the mass, so a trial of ``trial_g * target_change /
+    sqrt(level_ratio**2 - 1)`` puts ``target_change`` at the geometric middle of the changes
+    it can make: at ``level_ratio`` 3 and the 75 % target, between 53 % and 106 % of the
+    as-found 1x, seen (the 25 % minimum) and, added in phase, at most 2.06 times the as-found
+    level.
+
+    Parameters
+    ----------
+    trial_g : float
+        The trial that was stopped, g (> 0).
+    level_ratio : float
+        The largest 1x over its as-found level the stopped run read (> 1).
+    target_change : float, default :data:`TARGET_CHANGE`
+        The wanted change over the as-found 1x.
+
+    Returns
+    -------
+    float
+        The smaller trial, g.
+
+    Raises
+    ------
+    UserError
+        When the mass is not above 0, or the ratio is not a finite number above 1 (a run
+        at or under its as-found level tells nothing about the trial's size).
+
+    References
+    ----------
+    .. [1] The triangle inequality ``||a| - |b|| <= |a + b| <= |a| + |b|`` for complex
+       numbers (any complex-analysis text; from memory); the 1x linear in the unbalance is
+       the influence-coefficient method's own assumption (E. L. Thearle, "Dynamic Balancing
+       of Rotating Machinery in the Field", Trans. ASME (1934); from memory). The geometric
+       middle: our choice.
+    """
+    if not 0 < trial_g < math.inf:
+        raise UserError(f"trial mass must be a finite number greater than 0, got {trial_g:g}")
+    if not 1 < level_ratio < math.inf:
+        raise UserError(f"the level over the as-found must be a finite number above 1, got "
+                        f"{level_ratio:g}")
+    return trial_g * target_change / math.sqrt(level_ratio**2 - 1.0)

@@ -54,6 +54,7 @@ from trueturn.balance.trial_mass import (
     centrifugal_force_n,
     size_trial_mass,
     suggest_trial,
+    trial_after_runaway,
 )
 from trueturn.dsp.bump import BumpResult
 from trueturn.dsp.coast import SweepOutcome
@@ -536,6 +537,12 @@ class BalanceEngine:
             return None
         return TooSmallTrial(trials[0].plane, abs(trials[0].mass_g),
                              abs(trials[0].mass_g) * factor * TRIAL_REDO_MARGIN)
+
+    def trial_after_runaway(self, trial_g: float, level_ratio: float) -> float:
+        """A trial run stopped by the runaway alarm at ``level_ratio`` times the as-found
+        1x: the smaller trial (:func:`trueturn.balance.trial_mass.trial_after_runaway`,
+        aimed at the same change as a trial sized to be seen)."""
+        return trial_after_runaway(trial_g, level_ratio)
 
     def force_n(self, mass_g: float, radius_mm: float, speed_rpm: float) -> float:
         """Centrifugal force F = m r omega^2 (newtons)."""

@@ -135,6 +135,19 @@ class TooSmallTrial:
 
 
 @dataclass(frozen=True)
+class ShrunkTrial:
+    """A trial run stopped by the runaway alarm: the trial on ``plane`` (``trial_g``) moved
+    the 1x to ``level_ratio`` times its as-found level, so the hands-on step after the
+    alarm puts ``smaller_g`` in its place (the engine's :meth:`Engine.trial_after_runaway`)
+    before the same trial run again."""
+
+    plane: str
+    trial_g: float
+    level_ratio: float
+    smaller_g: float
+
+
+@dataclass(frozen=True)
 class OffSpeed:
     """A run of the coefficient set taken off its group's speed (``index`` into the runs):
     ``deviation`` is signed (-0.02 = 2 % slow); ``worst_cut`` is the 1x cut the correction
@@ -374,6 +387,11 @@ class Engine(Protocol):
 
     def trial_effect(self, setup: ProcedureSetup, runs: Sequence[Run]) -> TooSmallTrial | None:
         """Right after a trial run: the trial if it changed the 1x too little to be seen."""
+        ...
+
+    def trial_after_runaway(self, trial_g: float, level_ratio: float) -> float:
+        """A trial run stopped with its 1x at ``level_ratio`` times the as-found level: the
+        smaller trial, g, to put in its place."""
         ...
 
     def force_n(self, mass_g: float, radius_mm: float, speed_rpm: float) -> float: ...
@@ -627,6 +645,9 @@ class Procedure:
         self._force_text: tuple[str, ...] = ()
         self.problem = ""  # why no correction could be computed (then: repeat the run)
         self.too_small_trial: TooSmallTrial | None = None  # the problem is a trial too small
+        #: a trial run the runaway alarm stopped, and the smaller trial put in its place
+        self.shrunk_trial: ShrunkTrial | None = None
+        self._runaway_ratio = 0.0  # the alarm's 1x over the as-found level (largest pickup)
         self._redo_index: int | None = None  # a recorded run being measured again
         self.ticked: set[int] = set()  # checklist items ticked at the open gate
         self.alarm: SafetyEvent | None = None  # held until acknowledged
@@ -1017,6 +1038,8 @@ class Procedure:
         self._pending_run_events = []
         self._alarmed = set()
         self.alarm = None
+        self._runaway_ratio = 0.0
+        self.shrunk_trial = None
         self.last_speed_rpm = 0.0
 
     def observe(self, readings: dict[str, Reading], speed_rpm: float,
@@ -1041,6 +1064,7 @@ class Procedure:
                 key = f"runaway:{name}"
                 if (ref is not None and ref.amplitude > 0 and key not in self._alarmed
                         and r.amplitude > self.setup.runaway_factor * ref.amplitude):
+                    self._runaway_ratio = max(self._runaway_ratio, r.amplitude / ref.amplitude)
                     new.append(SafetyEvent(
                         "runaway", f"{name}: 1x {r.amplitude:.3g} {r.unit} is over "
                         f"{self.setup.runaway_factor:g} x the as-found {ref.amplitude:.3g}: "
@@ -1198,8 +1222,36 @@ class Procedure:
         self.alarm = None
         what = {"overspeed": "overspeed", "runaway": "vibration too high"}.get(alarm.kind,
                                                                              alarm.kind)
+        stopped = self.step
         self._inspect_step(f"Stopped ({what}): inspect the rotor")
+        if alarm.kind == "runaway" and isinstance(stopped, Measure):
+            self._shrink_trial(stopped)
         return alarm
+
+    def _shrink_trial(self, stopped: Measure) -> None:
+        """After a runaway alarm on a trial run (a trial per plane): the trial moved the 1x
+        by more than the alarm's factor, so the same run would stop again. The inspection
+        step takes the trial off and puts a smaller one in its place (same plane and
+        position), sized from the level the alarm read; ``shrunk_trial`` says so. Nothing
+        changes when the scale cannot weigh a smaller one."""
+        self.shrunk_trial = None
+        trials = [m for m in self.on_rotor if m.kind == MassKind.TRIAL]
+        if (stopped.run_kind != RunKind.TRIAL or not self._by_trials or len(trials) != 1
+                or not self._runaway_ratio > 1.0 or not isinstance(self.step, HandsOn)):
+            return
+        old = trials[0]
+        smaller_g = ceil_to_scale_g(self.engine.trial_after_runaway(abs(old.mass_g),
+                                                                    self._runaway_ratio),
+                                    self.setup.units.mass)
+        if not smaller_g < abs(old.mass_g):
+            return
+        smaller = replace(old, mass_g=math.copysign(smaller_g, old.mass_g))
+        self.shrunk_trial = ShrunkTrial(old.plane, abs(old.mass_g), self._runaway_ratio,
+                                        smaller_g)
+        self.step = replace(self.step, title=(
+            f"Stopped (vibration too high): a smaller trial on {old.plane}, "
+            f"{self.setup.units.mass_words(smaller_g)}"),
+            changes=(MassChange("detach", old), MassChange("attach", smaller)))
 
     def _inspect_step(self, title: str) -> None:
         self.ticked = set()

@@ -800,7 +800,8 @@ class TrueturnApp(App):
                 alarm = proc.acknowledge_alarm()
                 self.alarm = None
                 self.message = (f"Alarm acknowledged ({alarm.kind}). Wait for standstill, then "
-                                "inspect the rotor before it runs again.")
+                                "inspect the rotor before it runs again"
+                                + ("; a smaller trial goes on." if proc.shrunk_trial else "."))
             case HandsOn(phase=HandsOnPhase.LOCKOUT):
                 proc.lock_out(now)
                 self.message = texts.LOCKED_OUT

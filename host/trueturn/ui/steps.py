@@ -208,10 +208,14 @@ class HandsOnPanel(ProcedurePanel):
     #: a second start as found is offered (before the first trial mass goes on)
     offer_second_start: reactive[bool] = reactive(False)
     fittable: reactive[bool] = reactive(False)  # f enters what was fitted (issue #17)
+    #: after a runaway alarm on a trial run: why a smaller trial goes on ("" otherwise)
+    shrunk: reactive[str] = reactive("")
 
     def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
         super().show(proc, snap, ctx)
         assert proc is not None and isinstance(proc.step, HandsOn)
+        self.shrunk = (texts.shrunk_trial_line(proc.shrunk_trial, self.units)
+                       if proc.shrunk_trial is not None else "")
         step = proc.step
         self.phase = step.phase
         changes = step.changes
@@ -238,7 +242,8 @@ class HandsOnPanel(ProcedurePanel):
         return standstill_lines(ev, self.demo)
 
     def body(self) -> list[str]:
-        lines = [*(self.work or (texts.LOOK_OVER,)), *self.standstill]
+        lines = [*((self.shrunk,) if self.shrunk else ()),
+                 *(self.work or (texts.LOOK_OVER,)), *self.standstill]
         if self.offer_second_start:
             lines.append(texts.N_SECOND_START)
         lockout = self.phase is HandsOnPhase.LOCKOUT

@@ -21,7 +21,7 @@ from trueturn.model.units import (
     vibration_text,
 )
 from trueturn.positions import number_of, position_text
-from trueturn.procedure.guide import Mode, TapOutcome, TapRefusal
+from trueturn.procedure.guide import Mode, ShrunkTrial, TapOutcome, TapRefusal
 
 if TYPE_CHECKING:
     from trueturn.procedure.guide import MassChange
@@ -484,6 +484,16 @@ def open_job_lines(offer: OpenJob | None) -> tuple[str, ...]:
 
 def runs_words(runs: int) -> str:
     return f"{runs} run" + ("" if runs == 1 else "s")
+
+
+def shrunk_trial_line(shrunk: ShrunkTrial, shown: Shown | None = None) -> str:
+    """The hands-on step after a runaway alarm on a trial run: why a smaller trial goes on
+    in place of the one that was on (the same run would stop again)."""
+    u = shown or Shown()
+    return (f"[b]The trial on {shrunk.plane} ({u.mass(shrunk.trial_g)}) moved the 1x to "
+            f"{shrunk.level_ratio:.1f} times its as-found level:[/b] the same run would stop "
+            f"again. Take it off and fit {u.mass(shrunk.smaller_g)} at the same place; the "
+            "trial run follows.")
 
 
 def resumed(job_id: str, runs: int, rotor: Sequence[str]) -> str:

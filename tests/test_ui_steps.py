@@ -16,7 +16,7 @@ from dataclasses import replace
 from textual.app import App, ComposeResult
 from textual.widgets import ContentSwitcher
 
-from test_ui_procedure import Rig, _TinyTrialEngine
+from test_ui_procedure import Rig, _HugeTrialEngine, _TinyTrialEngine
 from trueturn.angles import wrap_deg
 from trueturn.model import VerdictFlag
 from trueturn.procedure.engine import BalanceEngine
@@ -78,6 +78,25 @@ def test_an_alarm_stops_the_run_in_red_until_acknowledged() -> None:
     seen = shown(rig)
     assert seen["drawn"] == "hands-on-panel" and seen["alarm"] == "no"
     assert "Stopped (overspeed): inspect the rotor" in seen["text"]
+
+
+def test_a_runaway_on_a_trial_shows_the_smaller_trial_that_goes_on() -> None:
+    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+    rig.proc = Procedure(rig.setup, _HugeTrialEngine())
+    rig.trial_armed()
+    rig.spin(2.0, rig.setup.speed_rpm)
+    assert rig.proc.observe(rig.readings(), rig.setup.speed_rpm, rig.t)  # the simulator's 1x
+    rig.proc.acknowledge_alarm()
+    shrunk = rig.proc.shrunk_trial
+    assert shrunk is not None
+    text = shown(rig)["text"]
+    line = re.search(r"The trial on (\S+) \(([\d.]+) g\) moved the 1x to ([\d.]+) times its "
+                     r"as-found level:.*fit ([\d.]+) g at the same place", text, re.S)
+    assert line is not None, text
+    assert line[1] == shrunk.plane and float(line[2]) == round(shrunk.trial_g, 2)
+    assert float(line[3]) == round(shrunk.level_ratio, 1)
+    assert float(line[4]) == round(shrunk.smaller_g, 2)
+    assert "Stopped (vibration too high): a smaller trial on" in text
 
 
 def test_a_trial_too_small_offers_the_mass_the_procedure_will_ask_for() -> None:

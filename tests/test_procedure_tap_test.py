@@ -32,6 +32,7 @@ from trueturn.jobs.report import model_lines
 from trueturn.model import Correction
 from trueturn.procedure.engine import (
     TAP_ANSWERS,
+    BalanceEngine,
     SweepEvidence,
     short_of_grade,
     sweep_evidence,
@@ -325,14 +326,25 @@ def kept_at_the_offer(rig: Rig, tmp_path: Path, scatter_m_s2: float
 
 
 def test_a_job_kept_at_the_tap_offer_offers_it_again_with_the_same_fit(
-        tmp_path: Path) -> None:
+        tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
     # the model alone not trusted: continued, the tap is offered again, and the taps give
     # the answer the uninterrupted job would have given (the same kept coast-down)
     rig = Rig("lathe-faceplate", Mode.MODEL_FIRST)
     keeper, rng = kept_at_the_offer(rig, tmp_path, SCATTER_M_S2)
     straight = rig.proc
     assert straight.model is not None and not straight.model.trusted
+    asked = []
+    fit = BalanceEngine.model_first
+
+    def counted(self, *args, **kwargs):  # type: ignore[no-untyped-def]
+        asked.append(kwargs.get("standstill"))
+        return fit(self, *args, **kwargs)
+
+    monkeypatch.setattr(BalanceEngine, "model_first", counted)
     restart(rig, keeper)
+    # the kept answer offers the tap again: no support fit at start-up (seconds on the
+    # screen's thread); the model is asked again only with the taps
+    assert asked == []
     proc = rig.proc
     assert isinstance(proc.step, TapTest) and proc.step.phase is TapPhase.OFFERED
     assert proc.model is not None and proc.model.tap_may_help and not proc.fallback
@@ -340,6 +352,7 @@ def test_a_job_kept_at_the_tap_offer_offers_it_again_with_the_same_fit(
     begin(rig)
     outcome = tapped(rig, rng)
     assert proc.tap_recorded(outcome) is None
+    assert len(asked) == 1 and asked[0] is not None
     live = straight.tap_answer(outcome)
     assert proc.model is not None and proc.model.trusted and live.trusted
     assert proc.solution is not None and live.solution is not None

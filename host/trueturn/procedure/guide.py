@@ -719,9 +719,10 @@ class Procedure:
         (its coast-down is the sweep). ``tap``: the tap test that informed the model, kept
         with it (the model's answer already holds its effect). ``sweep``: a job kept at the
         tap test's offer, the as-found run's coast-down evidence rebuilt from the job: the
-        model is asked again with it (the engine is deterministic: the same answer) and the
-        tap test is offered again; without it the job goes on as the kept answer says
-        (trusted: its correction; else trials). ``doubt``: the
+        tap test is offered again with the kept answer, and the model is asked again with
+        that evidence and the taps (the engine is deterministic: as it would have live);
+        without it the job goes on as the kept answer says (trusted: its correction; else
+        trials). ``doubt``: the
         rules the as-found run failed (is it
         unbalance? issue #22); unless the person ``went_on`` already, or hands-on work was
         done since, the question comes again before any mass goes on.
@@ -751,10 +752,12 @@ class Procedure:
         proc.doubt = tuple(doubt)
         if (sweep is not None and tap is None and model is not None and len(proc.runs) == 1
                 and setup.mode is Mode.MODEL_FIRST and not rotor_set):
-            # kept at the tap test's offer: asked again with the kept coast-down
+            # kept at the tap test's offer: the kept answer offers it again; the kept
+            # coast-down is what the model is asked again with once the taps are in (the
+            # support fit takes seconds: not at start-up, on the screen's thread)
             proc._sweep = sweep
             proc.fallback = False
-            proc._take_answer(engine.model_first(setup, proc.runs[:1], sweep), offer_tap=True)
+            proc._take_answer(replace(model, tap_may_help=True), offer_tap=True)
         elif len(proc.runs) == 1 and setup.mode is Mode.MODEL_FIRST:
             if proc.awaiting_sweep:  # the coast-down that the model needs was not kept
                 proc.problem, proc.sweep_lost = MODEL_SWEEP_LOST, True
@@ -1403,6 +1406,8 @@ class Procedure:
         elif answer.trusted and answer.solution is not None:
             self.solution = answer.solution
             self.step = ShowCorrection("Correction from the model")
+        elif answer.trusted:  # an answer a job kept (its prior only): solved from the prior
+            self._to_correction()
         else:
             self.fallback = True
             self.solution = None

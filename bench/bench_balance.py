@@ -12,7 +12,7 @@ Every run is taken at a speed that wanders +/-0.5 % from the set speed.
 Readings come out of the DSP (issue #20 item 5): each run's capture is synthesized as the
 bytes a board would send (dsp.synthetic) and analysed by dsp.analyze_capture, as the app's
 meter analyses a live stream (30 revolutions, when the app keeps a run; 60 when not
-settled by then). In each capture: the rotor
+settled by then; a check run over 120: procedure.guide.CHECK_REVOLUTIONS_FACTOR). In each capture: the rotor
 model's 1x at the run's speed on both pickups (0.3 V/g on a 1.65 V zero, 10-bit ADC on
 5 V, as every packaged scenario's pickups), the speed drifting +/-0.1 % across it, a 2x,
 mains hum at the line frequency and twice it, and broadband noise - their levels drawn per
@@ -122,6 +122,7 @@ from trueturn.procedure.engine import (  # noqa: E402
     tap_may_help,
 )
 from trueturn.procedure.guide import (  # noqa: E402
+    CHECK_REVOLUTIONS_FACTOR,
     DEFAULT_PHASE_LIMIT_DEG,
     DEFAULT_RUNAWAY_FACTOR,
     SMALL_VECTOR_FRACTION,
@@ -173,6 +174,10 @@ RATE_HZ = 4000                 # the board's default: 2 channels at 4000 Hz each
 # max_revs): a reading not settled at 30 is taken over 60
 REVS_PER_READING = 30
 REVS_METER_WINDOW = 60
+# a check run is kept over CHECK_REVOLUTIONS_FACTOR times as many (procedure.guide
+# .Procedure.revolutions_wanted), the meter's window then that long (ui.app: at least
+# METER_WINDOW_REVS): the reading is taken over exactly that many
+REVS_PER_CHECK = REVS_PER_READING * CHECK_REVOLUTIONS_FACTOR
 # the app's meter: "steady" without the 5 degree phase limit, which the procedure applies
 # (ui/meter.py METER_LIMITS)
 METER_LIMITS = SteadinessLimits(max_confidence_deg=180.0)
@@ -317,13 +322,14 @@ def settled(reading: dict, as_found_amp: float | None) -> bool:
 
 def kept_reading(response_m_s2: dict[str, complex], speed_rpm: float,
                  signals: CaptureSignals, drift_fraction: float, seed: int,
-                 first_edge_rev: float, as_found_amp: dict[str, float] | None = None
-                 ) -> tuple[dict, float]:
+                 first_edge_rev: float, as_found_amp: dict[str, float] | None = None,
+                 check: bool = False) -> tuple[dict, float]:
     """One run's readings as the app keeps them: over REVS_PER_READING revolutions when
     every pickup's is settled by then, else over the meter's REVS_METER_WINDOW (the same
-    run, longer). ``response_m_s2`` by pickup name, in channel order."""
+    run, longer); a ``check`` run over REVS_PER_CHECK. ``response_m_s2`` by pickup name,
+    in channel order."""
     names = list(response_m_s2)
-    for revs in (REVS_PER_READING, REVS_METER_WINDOW):
+    for revs in (REVS_PER_CHECK,) if check else (REVS_PER_READING, REVS_METER_WINDOW):
         data = capture_bytes(list(response_m_s2.values()), speed_rpm, signals, drift_fraction,
                              seed, first_edge_rev, revs)
         readings, measured_rpm = read_capture(data, names, signals.mains_hz,
@@ -423,9 +429,10 @@ class Shop:
         return Mass(plane, mass_g * (1 + MASS_ERR * self.rng.normal()),
                     angle_deg + ANGLE_ERR_DEG * self.rng.normal())
 
-    def measure(self, extra: Sequence[Mass] = ()) -> dict:
+    def measure(self, extra: Sequence[Mass] = (), check: bool = False) -> dict:
         """One run: its capture through the DSP. Readings by pickup (``amp``, ``phase_deg``,
-        ``confidence``: the 95 % circle's radius, m/s^2) and the measured ``speed_rpm``.
+        ``confidence``: the 95 % circle's radius, m/s^2) and the measured ``speed_rpm``;
+        a ``check`` run (after a correction or trim) averaged longer (``kept_reading``).
 
         A clipped run is run again with the next less sensitive pickup, as the engine asks
         ("repeat the clipped run(s) with the pickup's gain reduced"): one more run each
@@ -439,7 +446,7 @@ class Shop:
                 {n: truth[n] for n in names}, speed, self.signals,
                 float(self.rng.uniform(-DRIFT_WITHIN, DRIFT_WITHIN)),
                 int(self.rng.integers(1 << 31)), float(self.rng.uniform(0, 1)),
-                self.as_found_amp)
+                self.as_found_amp, check)
             CircleTally.add(readings, truth)
             louder = [v for v in LOUDER_PICKUPS_V_PER_G if v < self.signals.sensitivity_v_per_g]
             if not louder or not any(r["clipped"] for r in readings.values()):
@@ -724,7 +731,8 @@ def classic_after_as_found(shop: Shop, rng: np.random.Generator, runs: list[dict
                 shop.true_masses.append(shop.place(c.plane, c.mass_g, c.angle_deg))
         shop.added = [{"plane": c.plane, "mass_g": c.mass_g, "angle_deg": c.angle_deg}
                       for c in sol.corrections]
-        runs.append(run_entry(f"check {n_runs + 1}", list(shop.added), shop.measure()))
+        runs.append(run_entry(f"check {n_runs + 1}", list(shop.added),
+                              shop.measure(check=True)))
         n_runs += 1
         if first_reduction is None:
             first_reduction = 1 - shop.true_1x() / before
@@ -856,7 +864,7 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool,
                 if mass_g > 0:
                     shop.true_masses.append(shop.place(p.name, mass_g, angle))
             on_rotor = want
-            readings = shop.measure()["readings"]
+            readings = shop.measure(check=True)["readings"]   # the app's check run
             take(est, readings, on_rotor)
             n_runs += 1
             if first_reduction is None:

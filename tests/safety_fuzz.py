@@ -93,7 +93,8 @@ class FuzzRig:
 
     def readings(self) -> dict[str, Reading]:
         amp = FULL_1X_G * (self.rpm / RATED_RPM) ** 2
-        return {n: Reading(n, amp + 0.01 * k, "g pk", 30.0 + 40 * k, 0.5, 40, True,
+        revs = max(40, self.proc.revolutions_wanted)
+        return {n: Reading(n, amp + 0.01 * k, "g pk", 30.0 + 40 * k, 0.5, revs, True,
                                  self.rpm, 0.002) for k, n in enumerate(self.sensors)}
 
     def act(self, action: str) -> None:

@@ -85,7 +85,8 @@ class SpeedRig(Rig):
         for name, z in self.scenario.rotor.response_1x(speed, self.masses).items():
             amp = abs(z)
             readings[name] = Reading(name, amp, "m/s2 pk", math.degrees(math.atan2(z.imag, z.real))
-                                     % 360.0, 0.5, 40, True, speed, amp * CIRCLE)
+                                     % 360.0, 0.5, max(40, self.proc.revolutions_wanted),
+                                     True, speed, amp * CIRCLE)
         assert self.proc.ready(readings)
         self.proc.record(readings, speed, self.t)
         self.coast(self.setup.speed_rpm)

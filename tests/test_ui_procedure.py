@@ -13,9 +13,10 @@ from dataclasses import replace
 import pytest
 
 from trueturn.dsp.motion import PickupMotion
-from trueturn.model import Reading, Run, Verdict, VerdictFlag
+from trueturn.model import Reading, Run, RunKind, Verdict, VerdictFlag
 from trueturn.procedure.engine import BalanceEngine
 from trueturn.procedure.guide import (
+    CHECK_REVOLUTIONS_FACTOR,
     DEFAULT_RUNAWAY_FACTOR,
     GateRefused,
     Mode,
@@ -100,8 +101,10 @@ class Rig:
         for name, z in response.items():
             amp = abs(z) * scale
             phase = math.degrees(math.atan2(z.imag, z.real)) % 360.0
-            out[name] = Reading(name, amp, "m/s2 pk", phase, 0.5, 40, True,
-                                      self.setup.speed_rpm, amp * 0.005)
+            # as many revolutions as the run wants (a check run: more), as the meter gives
+            out[name] = Reading(name, amp, "m/s2 pk", phase, 0.5,
+                                max(40, self.proc.revolutions_wanted), True,
+                                self.setup.speed_rpm, amp * 0.005)
         return out
 
     def response(self) -> dict[str, complex]:
@@ -311,6 +314,34 @@ def test_run_needs_force_confirmation_and_a_ready_reading() -> None:
     with pytest.raises(GateRefused, match="not steady"):
         rig.proc.record(unsteady, 3500.0, rig.t)
     assert rig.proc.progress(unsteady) == pytest.approx(5 / 30)
+
+
+def test_a_check_run_averages_four_times_the_revolutions() -> None:
+    # the verdict's 95 % bound holds the check run's circles (radius as 1/sqrt(revolutions):
+    # the mean of independent revolutions, any statistics text; from memory): a check run
+    # is kept only over CHECK_REVOLUTIONS_FACTOR times revolutions_per_run, every other
+    # run over revolutions_per_run
+    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+    proc = rig.proc
+    wanted = {}
+    for _ in range(12):
+        step = proc.step
+        if step.kind == "run" and step.run_kind == RunKind.CHECK:
+            break
+        if step.kind == "run":
+            wanted[step.run_kind] = proc.revolutions_wanted
+        {"hands-on": rig.hands_on, "run": rig.run,
+         "correction": proc.accept_correction}[step.kind]()
+    assert wanted == {RunKind.AS_FOUND: 30, RunKind.TRIAL: 30}
+    per_check = CHECK_REVOLUTIONS_FACTOR * rig.setup.revolutions_per_run
+    assert proc.revolutions_wanted == per_check == 120
+    proc.arm_run(True, rig.t)
+    rig.spin(2.0, rig.setup.speed_rpm)
+    full = rig.readings()
+    short = {n: replace(r, revolutions=per_check - 1) for n, r in full.items()}
+    assert not proc.ready(short)
+    assert proc.progress(short) == pytest.approx((per_check - 1) / per_check)
+    assert proc.ready(full) and proc.progress(full) == 1.0
 
 
 def test_a_run_up_through_a_critical_speed_is_no_runaway() -> None:

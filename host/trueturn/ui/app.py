@@ -97,6 +97,8 @@ GREET_PHASE_TEXT = {
 }
 
 TICK_S = 0.1
+#: the meter's window for runs that want fewer revolutions (ui.meter.MeterAdapter's)
+METER_WINDOW_REVS = 60
 TACH_SILENT_S = 2.0  # no tach edge for this long while data arrive: the tach is not seen
 
 
@@ -814,7 +816,8 @@ class TrueturnApp(App):
             case Measure(phase=RunPhase.ARMING):
                 proc.arm_run(True, now)
                 self.quit_armed = False
-                self.session.reset_meter()
+                # the meter's window holds what the run averages (a check run: more)
+                self.session.reset_meter(max(METER_WINDOW_REVS, proc.revolutions_wanted))
                 self.start_sweep(None, coasting=False)  # the run-up
                 self.alarm = None
                 if self.rig is not None:

@@ -163,8 +163,12 @@ class MeterAdapter:
         tachless = self.tachless.speed_rpm if self.tachless is not None else math.nan
         return machine_condition(self.analyzer, tachless if math.isfinite(tachless) else None)
 
-    def reset(self) -> None:
-        """Forget the averaged revolutions (a new run starts)."""
+    def reset(self, max_revs: int | None = None) -> None:
+        """Forget the averaged revolutions (a new run starts); ``max_revs``: the window the
+        new run's readings average (None: as before), at least what the run wants
+        (``procedure.guide.Procedure.revolutions_wanted``)."""
+        if max_revs is not None:
+            self.max_revs = max_revs
         self.analyzer = self._new()
         if self.tachless is not None:
             self.tachless.reset()

@@ -428,10 +428,11 @@ class LinkSession:
         with self._state:
             return self.meter.condition()
 
-    def reset_meter(self) -> None:
-        """Start averaging afresh (a new run)."""
+    def reset_meter(self, max_revs: int | None = None) -> None:
+        """Start averaging afresh (a new run); ``max_revs``: the meter's window from now on
+        (None: as it was)."""
         with self._state:
-            self.meter.reset()
+            self.meter.reset(max_revs)
 
     def start_sweep_recording(self) -> SweepRecorder | None:
         """Keep each revolution's 1x from now on for a sweep (:meth:`MeterAdapter.start_sweep`);

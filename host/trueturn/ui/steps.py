@@ -320,7 +320,7 @@ class RunPanel(ProcedurePanel):
                    if f.code is Code.ORDER_ON_MAINS and f.blocking and f.pickup in sensors]
             self.on_hum = tuple((str(f.pickup), "revolutions_held" in f.details) for f in hum)
             # a 1x next to the hum line is averaged over one beat (dsp.meter)
-            self.revolutions = max([proc.setup.revolutions_per_run] + [
+            self.revolutions = max([proc.revolutions_wanted] + [
                 int(f.details["revolutions_needed"]) for f in hum
                 if "revolutions_held" in f.details])
             self.readings = tuple((name, meter.readings.get(name)) for name in sensors)

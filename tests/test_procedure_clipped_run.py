@@ -47,9 +47,11 @@ def rattling_copy(folder: Path) -> Path:
     return path
 
 
-def measure(url: str, added: list[Mass], seconds: float = 3.0) -> dict[str, Reading]:
+def measure(url: str, added: list[Mass], seconds: float = 3.0,
+            max_revs: int = 100) -> dict[str, Reading]:
     """The sim rig with ``added`` on it brought to speed, streamed for ``seconds``; the
-    meter's readings as the procedure takes them (as the app does: ``as_reading``)."""
+    meter's readings over its last ``max_revs`` revolutions as the procedure takes them (as
+    the app does: ``as_reading``)."""
     port = open_port(url)
     try:
         rig = port.rig
@@ -61,7 +63,7 @@ def measure(url: str, added: list[Mass], seconds: float = 3.0) -> dict[str, Read
                     for p, e in zip(rig.scenario.rotor.pickups, rig.scenario.electrical,
                                     strict=True)]
         meter = LiveAnalyzer(profiles=profiles, unit="m/s2 pk",
-                             mains_hz=rig.scenario.motor.mains_hz, max_revs=100)
+                             mains_hz=rig.scenario.motor.mains_hz, max_revs=max_revs)
         port.write(encode_frame("start", 1))
         rig.advance_s(seconds)
         port.write(encode_frame("stop", 2))
@@ -95,7 +97,9 @@ class SimRig(Rig):
         self.spin(2.0, self.setup.speed_rpm)
         first_check = corrected and not self.checks
         self.checks += corrected
-        readings = measure(self.check_url if first_check else self.url, added)
+        # the meter's window holds what the run wants (a check run: more), as the app sets it
+        readings = measure(self.check_url if first_check else self.url, added,
+                           max_revs=max(100, self.proc.revolutions_wanted))
         self.measured.append(readings)
         assert self.proc.ready(readings), readings
         speed = statistics.fmean(r.speed_rpm or 0.0 for r in readings.values())

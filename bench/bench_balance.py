@@ -125,6 +125,7 @@ from trueturn.procedure.guide import (  # noqa: E402
     CHECK_REVOLUTIONS_FACTOR,
     DEFAULT_PHASE_LIMIT_DEG,
     DEFAULT_RUNAWAY_FACTOR,
+    RUNAWAY_NOISE_RADII,
     SMALL_VECTOR_FRACTION,
 )
 from trueturn.sim import CorrectionPlane, Mass, PickupMount, RigidRotor, Support  # noqa: E402
@@ -643,6 +644,9 @@ def classic_after_as_found(shop: Shop, rng: np.random.Generator, runs: list[dict
     (``trial_run``)."""
     rotor, speed = shop.rotor, shop.speed
     as_found_1x = phasors_of(runs[0]["readings"])
+    # what the app's runaway alarm multiplies (procedure.guide.runaway_reference)
+    reference = {n: max(r["amp"], RUNAWAY_NOISE_RADII * r["confidence"])
+                 for n, r in runs[0]["readings"].items()}
     too_small = 0
     redo_runs = 0
     stopped = 0
@@ -650,7 +654,8 @@ def classic_after_as_found(shop: Shop, rng: np.random.Generator, runs: list[dict
     def trial_run(on: Shop, plane: str, mass_g: float, angle: float,
                   extra: Sequence[Mass] = ()) -> tuple[dict, float]:
         """A trial run as the app makes it: its 1x over DEFAULT_RUNAWAY_FACTOR times the
-        as-found level on a pickup stops the run (procedure.guide's runaway alarm), and the
+        as-found level (``reference``) on a pickup stops the run (procedure.guide's runaway
+        alarm), and the
         inspection puts a smaller trial in its place (balance.trial_mass.trial_after_runaway)
         before the run again: each stopped run counts."""
         nonlocal stopped
@@ -658,7 +663,7 @@ def classic_after_as_found(shop: Shop, rng: np.random.Generator, runs: list[dict
             entry = run_entry(f"trial {plane}", [{"plane": plane, "mass_g": mass_g,
                                                   "angle_deg": angle}],
                               on.measure([*extra, on.place(plane, mass_g, angle)]))
-            level = max(r["amp"] / abs(as_found_1x[n]) for n, r in entry["readings"].items())
+            level = max(r["amp"] / reference[n] for n, r in entry["readings"].items())
             if level <= DEFAULT_RUNAWAY_FACTOR or stopped >= MAX_RUNS:
                 return entry, mass_g
             stopped += 1

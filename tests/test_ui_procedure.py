@@ -18,9 +18,11 @@ from trueturn.procedure.engine import BalanceEngine
 from trueturn.procedure.guide import (
     CHECK_REVOLUTIONS_FACTOR,
     DEFAULT_RUNAWAY_FACTOR,
+    RUNAWAY_NOISE_RADII,
     GateRefused,
     Mode,
     Procedure,
+    runaway_reference,
 )
 from trueturn.procedure.standstill import StandstillState, StandstillWatch
 from trueturn.sim.rotor import Mass
@@ -376,6 +378,31 @@ def test_a_run_up_through_a_critical_speed_is_no_runaway() -> None:
         blind.proc.acknowledge_alarm()
         blind.hands_on()
         blind.proc.arm_run(True, blind.t)
+
+
+def test_the_runaway_alarm_judges_a_1x_lost_in_the_noise_by_its_circle() -> None:
+    # an as-found 1x inside its own 95 % circle says only that the level is below about
+    # that much; a trial must move the 1x by three radii to be seen (balance.influence,
+    # common practice, no source), so the alarm's reference is at least three radii (our
+    # choice: RUNAWAY_NOISE_RADII) and a trial that can be seen is not stopped
+    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+    rig.trial_armed()
+    base = rig.proc.runs[0]
+    lost = {n: replace(r, amplitude=0.1 * r.amplitude, confidence_radius=0.2 * r.amplitude)
+            for n, r in base.readings.items()}
+    rig.proc.runs[0] = replace(base, readings=lost)
+    for r in lost.values():
+        assert runaway_reference(r) == pytest.approx(RUNAWAY_NOISE_RADII * r.confidence_radius)
+    seen = {n: replace(r, amplitude=r.amplitude + 3.5 * r.confidence_radius)
+            for n, r in lost.items()}   # 8 times the lost 1x: a trial just seen
+    assert rig.proc.observe(seen, rig.setup.speed_rpm, rig.t) == []
+    wild = {n: replace(r, amplitude=1.01 * DEFAULT_RUNAWAY_FACTOR * runaway_reference(r))
+            for n, r in lost.items()}
+    assert {e.kind for e in rig.proc.observe(wild, rig.setup.speed_rpm, rig.t)} == {"runaway"}
+    # a clear as-found 1x (the grinder's own) is its own reference
+    for r in base.readings.values():
+        assert r.confidence_radius is not None and r.confidence_radius < r.amplitude / 3
+        assert runaway_reference(r) == r.amplitude
 
 
 def test_overspeed_and_runaway_stop_the_run_and_are_recorded() -> None:

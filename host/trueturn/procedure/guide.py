@@ -29,9 +29,10 @@ Safety gates (ARCHITECTURE.md, "Safety"):
 * every run needs the person to confirm the centrifugal force of the masses on the rotor at
   the planned speed;
 * while the rotor turns, overspeed (profile max) and runaway vibration (``runaway_factor``
-  times the as-found 1x, judged within ``RUNAWAY_SPEED_BAND`` of the as-found speed: a
-  run-up's critical speeds are not compared with the level at speed) raise a stop warning
-  that is recorded with the run.
+  times the as-found 1x, or ``RUNAWAY_NOISE_RADII`` of its 95 % radius when the 1x is lost
+  in the noise; judged within ``RUNAWAY_SPEED_BAND`` of the as-found speed: a run-up's
+  critical speeds are not compared with the level at speed) raise a stop warning that is
+  recorded with the run; a trial run so stopped gets a smaller trial (``ShrunkTrial``).
 """
 
 from __future__ import annotations
@@ -127,6 +128,20 @@ RUNAWAY_SPEED_BAND = 0.10
 #: revolutions took the rotors within G 6.3 in 5 runs from 87 % to 93 %; 240 changed no
 #: rotor further). The amplitude-only method keeps its own (spectrum) readings as they are.
 CHECK_REVOLUTIONS_FACTOR = 4
+#: the runaway alarm's reference is the as-found 1x, but never less than this many of its
+#: 95 % radii: an as-found 1x lost in its pickup's noise says only that the level is below
+#: about that much, and a trial must move the 1x by three radii to be seen
+#: (trueturn.balance.influence.MIN_TRIAL_CONFIDENCES), so three times a noise-level 1x
+#: would stop every trial that can be seen (bench/bench_balance.py: a stiff rotor whose
+#: as-found 1x, 0.095 m/s^2, lay inside its 0.14 circle went from trials too small to
+#: trials stopped and back, never reaching a correction). Our choice.
+RUNAWAY_NOISE_RADII = 3.0
+
+
+def runaway_reference(as_found: Reading) -> float:
+    """What the runaway alarm multiplies (``runaway_factor``) for one pickup: its as-found
+    1x, or :data:`RUNAWAY_NOISE_RADII` of its 95 % radius when that is more."""
+    return max(as_found.amplitude, RUNAWAY_NOISE_RADII * (as_found.confidence_radius or 0.0))
 DEFAULT_PHASE_LIMIT_DEG = 5.0  # the DSP's default phase confidence for a steady reading
 SMALL_VECTOR_FRACTION = 0.05  # below 5 % of the as-found 1x, a tight circle is enough
 
@@ -1072,13 +1087,14 @@ class Procedure:
         if base is not None and not away:
             for name, r in readings.items():
                 ref = base.readings.get(name)
+                level = runaway_reference(ref) if ref is not None else 0.0
                 key = f"runaway:{name}"
-                if (ref is not None and ref.amplitude > 0 and key not in self._alarmed
-                        and r.amplitude > self.setup.runaway_factor * ref.amplitude):
-                    self._runaway_ratio = max(self._runaway_ratio, r.amplitude / ref.amplitude)
+                if (level > 0 and key not in self._alarmed
+                        and r.amplitude > self.setup.runaway_factor * level):
+                    self._runaway_ratio = max(self._runaway_ratio, r.amplitude / level)
                     new.append(SafetyEvent(
                         "runaway", f"{name}: 1x {r.amplitude:.3g} {r.unit} is over "
-                        f"{self.setup.runaway_factor:g} x the as-found {ref.amplitude:.3g}: "
+                        f"{self.setup.runaway_factor:g} x the as-found {level:.3g}: "
                         "STOP THE MACHINE", now_s))
         if math.isfinite(speed_rpm) and speed_rpm > self.last_speed_rpm:
             self.last_speed_rpm = speed_rpm

@@ -136,14 +136,14 @@ CHECK_REVOLUTIONS_FACTOR = 4
 #: as-found 1x, 0.095 m/s^2, lay inside its 0.14 circle went from trials too small to
 #: trials stopped and back, never reaching a correction). Our choice.
 RUNAWAY_NOISE_RADII = 3.0
+DEFAULT_PHASE_LIMIT_DEG = 5.0  # the DSP's default phase confidence for a steady reading
+SMALL_VECTOR_FRACTION = 0.05  # below 5 % of the as-found 1x, a tight circle is enough
 
 
 def runaway_reference(as_found: Reading) -> float:
     """What the runaway alarm multiplies (``runaway_factor``) for one pickup: its as-found
     1x, or :data:`RUNAWAY_NOISE_RADII` of its 95 % radius when that is more."""
     return max(as_found.amplitude, RUNAWAY_NOISE_RADII * (as_found.confidence_radius or 0.0))
-DEFAULT_PHASE_LIMIT_DEG = 5.0  # the DSP's default phase confidence for a steady reading
-SMALL_VECTOR_FRACTION = 0.05  # below 5 % of the as-found 1x, a tight circle is enough
 
 
 @dataclass(frozen=True)

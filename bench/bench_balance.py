@@ -650,6 +650,13 @@ def classic_after_as_found(shop: Shop, rng: np.random.Generator, runs: list[dict
     too_small = 0
     redo_runs = 0
     stopped = 0
+    stopped_g: dict[str, float] = {}   # per plane, the smallest trial the alarm stopped
+
+    def bracketed(plane: str, old_g: float, new_g: float) -> float:
+        """A redo larger stays under a trial the alarm stopped on that plane: their
+        geometric mean when it would reach it (procedure.guide.Procedure._bracketed)."""
+        top = stopped_g.get(plane)
+        return new_g if top is None or new_g < top else math.sqrt(old_g * top)
 
     def trial_run(on: Shop, plane: str, mass_g: float, angle: float,
                   extra: Sequence[Mass] = ()) -> tuple[dict, float]:
@@ -667,6 +674,7 @@ def classic_after_as_found(shop: Shop, rng: np.random.Generator, runs: list[dict
             if level <= DEFAULT_RUNAWAY_FACTOR or stopped >= MAX_RUNS:
                 return entry, mass_g
             stopped += 1
+            stopped_g[plane] = min(mass_g, stopped_g.get(plane, math.inf))
             mass_g = trial_after_runaway(mass_g, level)
     if sizing == "default":
         trial_g = trial_for_effect(shop, 0, runs[0]["readings"], prediction)
@@ -685,7 +693,7 @@ def classic_after_as_found(shop: Shop, rng: np.random.Generator, runs: list[dict
         if sizing == "default" and factor > 1.0:
             # the app checks the effect right after the run and redoes the trial larger
             # (procedure.engine.TRIAL_REDO_MARGIN) before moving on: one more run
-            trial_g *= factor * TRIAL_REDO_MARGIN
+            trial_g = bracketed(p.name, trial_g, trial_g * factor * TRIAL_REDO_MARGIN)
             runs[-1], trial_g = trial_run(shop, p.name, trial_g, angle)
             readings = runs[-1]["readings"]
             after = phasors_of(readings)
@@ -713,7 +721,8 @@ def classic_after_as_found(shop: Shop, rng: np.random.Generator, runs: list[dict
                 if n_runs + shop.extra_runs >= MAX_RUNS:
                     return None
                 j = next(k for k, p in enumerate(rotor.planes) if p.name == exc.plane)
-                mass_g = exc.suggested_g or 10 * runs[1 + j]["added"][0]["mass_g"]
+                old_g = runs[1 + j]["added"][0]["mass_g"]
+                mass_g = bracketed(exc.plane, old_g, exc.suggested_g or 10 * old_g)
                 # the person takes the correction off for the redo and puts it back after
                 again = Shop(rotor, speed, as_found, rng, shop.signals)
                 again.as_found_amp = shop.as_found_amp

@@ -776,6 +776,75 @@ def test_a_trial_that_trips_the_runaway_alarm_is_replaced_by_a_smaller_one() -> 
     rig.assert_cut(before)  # physics truth: the 1x cut by at least 90 % at every pickup
 
 
+class _SwingEngine(_HugeTrialEngine):
+    """Trials eight times too big; after a stop, one two hundred times smaller (too small);
+    after a trial too small, a suggestion forty times what it asks (too big again): an
+    engine whose sizes would swing between the alarm and the trial-effect check."""
+
+    def trial_after_runaway(self, trial_g, level_ratio):  # type: ignore[no-untyped-def]
+        return trial_g / 200.0
+
+    def trial_effect(self, setup, runs):  # type: ignore[no-untyped-def]
+        small = super().trial_effect(setup, runs)
+        if small is None or small.suggested_g is None:
+            return small
+        return replace(small, suggested_g=40.0 * small.suggested_g)
+
+
+def test_a_redo_after_a_stopped_trial_stays_between_the_two() -> None:
+    # too big (stopped), then too small: the redo goes to the geometric mean of the two
+    # (a bisection in log mass, our choice), not past the one that stopped the run; on the
+    # grinder's physics that trial is seen and runs, and the job reaches its verdict
+    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+    rig.proc = Procedure(rig.setup, _SwingEngine())
+    before = rig.response()
+    rig.trial_armed()
+    proc = rig.proc
+    rig.spin(2.0, rig.setup.speed_rpm)
+    assert proc.observe(rig.readings(), rig.setup.speed_rpm, rig.t)
+    rig.coast(rig.setup.speed_rpm)
+    proc.acknowledge_alarm()
+    shrunk = proc.shrunk_trial
+    assert shrunk is not None
+    rig.hands_on()
+    rig.run()
+    small = proc.too_small_trial
+    assert small is not None and small.suggested_g is not None
+    assert small.trial_g == pytest.approx(shrunk.smaller_g)
+    assert small.suggested_g == pytest.approx(math.sqrt(shrunk.smaller_g * shrunk.trial_g))
+    assert small.suggested_g < shrunk.trial_g
+    assert f"redo it with {small.suggested_g:.2f} g" in proc.problem
+    larger = proc.redo_trial_larger()
+    rig.hands_on()
+    proc.arm_run(True, rig.t)
+    rig.spin(2.0, rig.setup.speed_rpm)
+    assert proc.observe(rig.readings(), rig.setup.speed_rpm, rig.t) == []   # runs
+    proc.record(rig.readings(), rig.setup.speed_rpm, rig.t)
+    rig.coast(rig.setup.speed_rpm)
+    assert proc.too_small_trial is None and proc.runs[1].masses == (larger,)   # and is seen
+    for _ in range(30):   # the other plane the same way, then the correction and checks
+        step = proc.step
+        if step.kind == "verdict":
+            break
+        if step.kind == "run" and step.phase == "arming":
+            proc.arm_run(True, rig.t)
+            rig.spin(2.0, rig.setup.speed_rpm)
+            if proc.observe(rig.readings(), rig.setup.speed_rpm, rig.t):
+                rig.coast(rig.setup.speed_rpm)
+                proc.acknowledge_alarm()
+                continue
+            proc.record(rig.readings(), rig.setup.speed_rpm, rig.t)
+            rig.coast(rig.setup.speed_rpm)
+        elif step.kind == "hands-on":
+            rig.hands_on()
+        elif proc.too_small_trial is not None:
+            proc.redo_trial_larger()
+        else:
+            proc.accept_correction()
+    assert proc.verdict is not None and proc.verdict.passed
+    rig.assert_cut(before)  # physics truth: the 1x cut by at least 90 % at every pickup
+
+
 def test_a_runaway_on_a_check_run_keeps_the_masses() -> None:
     # a correction that shakes the machine is not a trial to shrink: the inspection step
     # changes nothing and the same run follows (the person looks for a mass fitted wrong)

@@ -671,6 +671,9 @@ class Procedure:
         #: a trial run the runaway alarm stopped, and the smaller trial put in its place
         self.shrunk_trial: ShrunkTrial | None = None
         self._runaway_ratio = 0.0  # the alarm's 1x over the as-found level (largest pickup)
+        #: per plane, the smallest trial the runaway alarm stopped (g): a later redo of a
+        #: trial too small stays under it
+        self._stopped_trial_g: dict[str, float] = {}
         self._redo_index: int | None = None  # a recorded run being measured again
         self.ticked: set[int] = set()  # checklist items ticked at the open gate
         self.alarm: SafetyEvent | None = None  # held until acknowledged
@@ -1285,6 +1288,8 @@ class Procedure:
         if not smaller_g < abs(old.mass_g):
             return
         smaller = replace(old, mass_g=math.copysign(smaller_g, old.mass_g))
+        self._stopped_trial_g[old.plane] = min(abs(old.mass_g),
+                                               self._stopped_trial_g.get(old.plane, math.inf))
         self.shrunk_trial = ShrunkTrial(old.plane, abs(old.mass_g), self._runaway_ratio,
                                         smaller_g)
         self.step = replace(self.step, title=(
@@ -1624,14 +1629,28 @@ class Procedure:
         if small is None:
             return False
         self.step = ShowCorrection("Trial too small to be seen")
-        self.too_small_trial = small
+        self.too_small_trial = self._bracketed(small)
+        self.problem = self._too_small_words(self.too_small_trial)
+        return True
+
+    def _too_small_words(self, small: TooSmallTrial) -> str:
         words = self.setup.units.mass_words
         redo = (f": redo it with {words(ceil_to_scale_g(small.suggested_g, self.setup.units.mass))}"
                 if small.suggested_g is not None else
                 ": no change at all - is the trial mass on the rotor?")
-        self.problem = (f"the trial on {small.plane} ({words(small.trial_g)}) "
-                        f"changed the 1x too little to be seen{redo}")
-        return True
+        return (f"the trial on {small.plane} ({words(small.trial_g)}) "
+                f"changed the 1x too little to be seen{redo}")
+
+    def _bracketed(self, small: TooSmallTrial) -> TooSmallTrial:
+        """A trial too small on a plane where a larger one stopped the run (the runaway
+        alarm): the redo goes between the two, at their geometric mean, whenever the
+        suggestion reaches the stopped one, so the redos close in on a trial that is seen
+        and runs (a bisection in the logarithm of the mass) instead of swinging between
+        too small and too big."""
+        stopped = self._stopped_trial_g.get(small.plane)
+        if stopped is None or small.suggested_g is None or small.suggested_g < stopped:
+            return small
+        return replace(small, suggested_g=math.sqrt(small.trial_g * stopped))
 
     @property
     def _by_trials(self) -> bool:
@@ -1721,6 +1740,11 @@ class Procedure:
         except GateRefused as exc:
             self.problem = str(exc)
             self.too_small_trial = exc.too_small_trial
+            if exc.too_small_trial is not None:
+                bracketed = self._bracketed(exc.too_small_trial)
+                if bracketed != exc.too_small_trial:   # the engine's words name another mass
+                    self.too_small_trial = bracketed
+                    self.problem = self._too_small_words(bracketed)
 
     def _whole_machine(self, verdict: Verdict, run: Run) -> Verdict:
         """The verdict looks at every pickup and the whole rotor, not only the planes solved.

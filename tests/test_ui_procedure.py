@@ -173,6 +173,32 @@ class Rig:
         self.proc.record(r, self.setup.speed_rpm, self.t)
         self.coast(self.setup.speed_rpm)
 
+    def through_alarms(self, steps: int = 30) -> int:
+        """Go on to the verdict as a person would: every run judged by the alarms on the
+        way (a stopped run acknowledged, its inspection done), a trial too small redone
+        larger, every correction placed. Returns the runs the alarms stopped."""
+        proc, stops = self.proc, 0
+        for _ in range(steps):
+            step = proc.step
+            if step.kind == "verdict":
+                return stops
+            if step.kind == "run":
+                proc.arm_run(True, self.t)
+                self.spin(2.0, self.setup.speed_rpm)
+                if proc.observe(self.readings(), self.setup.speed_rpm, self.t):
+                    stops += 1
+                    proc.acknowledge_alarm()
+                else:
+                    proc.record(self.readings(), self.setup.speed_rpm, self.t)
+                self.coast(self.setup.speed_rpm)
+            elif step.kind == "hands-on":
+                self.hands_on()
+            elif proc.too_small_trial is not None:
+                proc.redo_trial_larger()
+            else:
+                proc.accept_correction()
+        raise AssertionError(f"no verdict in {steps} steps")
+
     def complete(self) -> None:
         for _ in range(20):
             kind = self.proc.step.kind
@@ -708,18 +734,25 @@ class _HugeTrialEngine(BalanceEngine):
                        s.force_ratio * 8.0)
 
 
+def trial_turning(engine: BalanceEngine) -> tuple[Rig, dict[str, complex]]:
+    """The grinder with ``engine``'s trials: as found, the first trial on and turning at
+    speed (not yet judged); and the 1x as found (physics truth)."""
+    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+    rig.proc = Procedure(rig.setup, engine)
+    before = rig.response()
+    rig.trial_armed()
+    rig.spin(2.0, rig.setup.speed_rpm)
+    return rig, before
+
+
 def test_a_trial_that_trips_the_runaway_alarm_is_replaced_by_a_smaller_one() -> None:
     # the same trial run again would stop again: the inspection after the alarm takes the
     # trial off and fits one sized from the level the alarm read (balance.trial_mass
     # .trial_after_runaway), and the job goes on to a verdict on the simulator's physics
-    rig = Rig("bench-grinder", Mode.TWO_PLANE)
-    rig.proc = Procedure(rig.setup, _HugeTrialEngine())
-    before = rig.response()
-    rig.trial_armed()
+    rig, before = trial_turning(_HugeTrialEngine())
     proc = rig.proc
     as_found = proc.runs[0].readings
     big = next(m for m in proc.on_rotor if m.kind == "trial")
-    rig.spin(2.0, rig.setup.speed_rpm)
     loud = rig.readings()
     ratio = max(loud[n].amplitude / as_found[n].amplitude for n in loud)
     assert ratio > DEFAULT_RUNAWAY_FACTOR  # physics: the simulator's rotor with that trial
@@ -755,23 +788,7 @@ def test_a_trial_that_trips_the_runaway_alarm_is_replaced_by_a_smaller_one() -> 
     assert [r.label for r in proc.runs] == ["as found", f"trial {big.plane}"]
     assert proc.runs[1].masses == (smaller,) and proc.too_small_trial is None
     # the second plane's trial (eight times again) trips the alarm too; the same way on
-    for _ in range(20):
-        if proc.step.kind == "run" and proc.step.phase == "arming":
-            proc.arm_run(True, rig.t)
-            rig.spin(2.0, rig.setup.speed_rpm)
-            if proc.observe(rig.readings(), rig.setup.speed_rpm, rig.t):
-                rig.coast(rig.setup.speed_rpm)
-                proc.acknowledge_alarm()
-                assert proc.shrunk_trial is not None
-                continue
-            proc.record(rig.readings(), rig.setup.speed_rpm, rig.t)
-            rig.coast(rig.setup.speed_rpm)
-        elif proc.step.kind == "hands-on":
-            rig.hands_on()
-        elif proc.step.kind == "correction":
-            proc.accept_correction()
-        else:
-            break
+    assert rig.through_alarms() >= 1
     assert proc.verdict is not None and proc.verdict.passed
     rig.assert_cut(before)  # physics truth: the 1x cut by at least 90 % at every pickup
 
@@ -795,12 +812,8 @@ def test_a_redo_after_a_stopped_trial_stays_between_the_two() -> None:
     # too big (stopped), then too small: the redo goes to the geometric mean of the two
     # (a bisection in log mass, our choice), not past the one that stopped the run; on the
     # grinder's physics that trial is seen and runs, and the job reaches its verdict
-    rig = Rig("bench-grinder", Mode.TWO_PLANE)
-    rig.proc = Procedure(rig.setup, _SwingEngine())
-    before = rig.response()
-    rig.trial_armed()
+    rig, before = trial_turning(_SwingEngine())
     proc = rig.proc
-    rig.spin(2.0, rig.setup.speed_rpm)
     assert proc.observe(rig.readings(), rig.setup.speed_rpm, rig.t)
     rig.coast(rig.setup.speed_rpm)
     proc.acknowledge_alarm()
@@ -822,25 +835,7 @@ def test_a_redo_after_a_stopped_trial_stays_between_the_two() -> None:
     proc.record(rig.readings(), rig.setup.speed_rpm, rig.t)
     rig.coast(rig.setup.speed_rpm)
     assert proc.too_small_trial is None and proc.runs[1].masses == (larger,)   # and is seen
-    for _ in range(30):   # the other plane the same way, then the correction and checks
-        step = proc.step
-        if step.kind == "verdict":
-            break
-        if step.kind == "run" and step.phase == "arming":
-            proc.arm_run(True, rig.t)
-            rig.spin(2.0, rig.setup.speed_rpm)
-            if proc.observe(rig.readings(), rig.setup.speed_rpm, rig.t):
-                rig.coast(rig.setup.speed_rpm)
-                proc.acknowledge_alarm()
-                continue
-            proc.record(rig.readings(), rig.setup.speed_rpm, rig.t)
-            rig.coast(rig.setup.speed_rpm)
-        elif step.kind == "hands-on":
-            rig.hands_on()
-        elif proc.too_small_trial is not None:
-            proc.redo_trial_larger()
-        else:
-            proc.accept_correction()
+    rig.through_alarms()   # the other plane the same way, then the correction and checks
     assert proc.verdict is not None and proc.verdict.passed
     rig.assert_cut(before)  # physics truth: the 1x cut by at least 90 % at every pickup
 

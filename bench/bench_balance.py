@@ -658,18 +658,17 @@ def classic_after_as_found(shop: Shop, rng: np.random.Generator, runs: list[dict
         top = stopped_g.get(plane)
         return new_g if top is None or new_g < top else math.sqrt(old_g * top)
 
-    def trial_run(on: Shop, plane: str, mass_g: float, angle: float,
-                  extra: Sequence[Mass] = ()) -> tuple[dict, float]:
+    def trial_run(on: Shop, plane: str, mass_g: float, angle: float) -> tuple[dict, float]:
         """A trial run as the app makes it: its 1x over DEFAULT_RUNAWAY_FACTOR times the
         as-found level (``reference``) on a pickup stops the run (procedure.guide's runaway
-        alarm), and the
-        inspection puts a smaller trial in its place (balance.trial_mass.trial_after_runaway)
-        before the run again: each stopped run counts."""
+        alarm), and the inspection puts a smaller trial in its place
+        (balance.trial_mass.trial_after_runaway) before the run again: each stopped run
+        counts. Returns the run kept and its trial mass."""
         nonlocal stopped
         while True:
             entry = run_entry(f"trial {plane}", [{"plane": plane, "mass_g": mass_g,
                                                   "angle_deg": angle}],
-                              on.measure([*extra, on.place(plane, mass_g, angle)]))
+                              on.measure([on.place(plane, mass_g, angle)]))
             level = max(r["amp"] / reference[n] for n, r in entry["readings"].items())
             if level <= DEFAULT_RUNAWAY_FACTOR or stopped >= MAX_RUNS:
                 return entry, mass_g

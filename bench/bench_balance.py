@@ -98,6 +98,7 @@ from trueturn.balance.model_first import (  # noqa: E402
 from trueturn.balance.sanity import NoInformationError  # noqa: E402
 from trueturn.balance.support_fit import StandstillMode, SweepCurve  # noqa: E402
 from trueturn.balance.trial_mass import (  # noqa: E402
+    redo_below_stopped,
     size_trial_mass,
     suggest_trial,
     trial_after_runaway,
@@ -125,11 +126,12 @@ from trueturn.procedure.guide import (  # noqa: E402
     CHECK_REVOLUTIONS_FACTOR,
     DEFAULT_PHASE_LIMIT_DEG,
     DEFAULT_RUNAWAY_FACTOR,
-    RUNAWAY_NOISE_RADII,
     SMALL_VECTOR_FRACTION,
+    runaway_reference,
 )
 from trueturn.sim import CorrectionPlane, Mass, PickupMount, RigidRotor, Support  # noqa: E402
 from trueturn.sim.scenario import ADC_COUNTS_PER_REFERENCE, ADC_REFERENCE_V  # noqa: E402
+from trueturn.ui.meter import METER_WINDOW_REVS  # noqa: E402
 
 ROTORS = 200
 ROTORS_MODEL = 100
@@ -171,10 +173,10 @@ RATE_HZ = 4000                 # the board's default: 2 channels at 4000 Hz each
 # The app keeps a run by itself as soon as its readings are ready (ui/app.py _run_logic):
 # steady over revolutions_per_run = 30 revolutions and settled (procedure.guide.settled:
 # the phase within DEFAULT_PHASE_LIMIT_DEG, or a circle within SMALL_VECTOR_FRACTION of
-# the as-found 1x); until then the meter keeps averaging its last 60 (MeterAdapter
-# max_revs): a reading not settled at 30 is taken over 60
+# the as-found 1x); until then the meter keeps averaging its last METER_WINDOW_REVS (60,
+# ui.meter): a reading not settled at 30 is taken over 60
 REVS_PER_READING = 30
-REVS_METER_WINDOW = 60
+REVS_METER_WINDOW = METER_WINDOW_REVS
 # a check run is kept over CHECK_REVOLUTIONS_FACTOR times as many (procedure.guide
 # .Procedure.revolutions_wanted), the meter's window then that long (ui.app: at least
 # METER_WINDOW_REVS): the reading is taken over exactly that many
@@ -644,19 +646,13 @@ def classic_after_as_found(shop: Shop, rng: np.random.Generator, runs: list[dict
     (``trial_run``)."""
     rotor, speed = shop.rotor, shop.speed
     as_found_1x = phasors_of(runs[0]["readings"])
-    # what the app's runaway alarm multiplies (procedure.guide.runaway_reference)
-    reference = {n: max(r["amp"], RUNAWAY_NOISE_RADII * r["confidence"])
+    # what the app's runaway alarm multiplies
+    reference = {n: runaway_reference(r["amp"], r["confidence"])
                  for n, r in runs[0]["readings"].items()}
     too_small = 0
     redo_runs = 0
     stopped = 0
     stopped_g: dict[str, float] = {}   # per plane, the smallest trial the alarm stopped
-
-    def bracketed(plane: str, old_g: float, new_g: float) -> float:
-        """A redo larger stays under a trial the alarm stopped on that plane: their
-        geometric mean when it would reach it (procedure.guide.Procedure._bracketed)."""
-        top = stopped_g.get(plane)
-        return new_g if top is None or new_g < top else math.sqrt(old_g * top)
 
     def trial_run(on: Shop, plane: str, mass_g: float, angle: float) -> tuple[dict, float]:
         """A trial run as the app makes it: its 1x over DEFAULT_RUNAWAY_FACTOR times the
@@ -692,7 +688,8 @@ def classic_after_as_found(shop: Shop, rng: np.random.Generator, runs: list[dict
         if sizing == "default" and factor > 1.0:
             # the app checks the effect right after the run and redoes the trial larger
             # (procedure.engine.TRIAL_REDO_MARGIN) before moving on: one more run
-            trial_g = bracketed(p.name, trial_g, trial_g * factor * TRIAL_REDO_MARGIN)
+            trial_g = redo_below_stopped(trial_g, trial_g * factor * TRIAL_REDO_MARGIN,
+                                         stopped_g.get(p.name))
             runs[-1], trial_g = trial_run(shop, p.name, trial_g, angle)
             readings = runs[-1]["readings"]
             after = phasors_of(readings)
@@ -721,7 +718,8 @@ def classic_after_as_found(shop: Shop, rng: np.random.Generator, runs: list[dict
                     return None
                 j = next(k for k, p in enumerate(rotor.planes) if p.name == exc.plane)
                 old_g = runs[1 + j]["added"][0]["mass_g"]
-                mass_g = bracketed(exc.plane, old_g, exc.suggested_g or 10 * old_g)
+                mass_g = redo_below_stopped(old_g, exc.suggested_g or 10 * old_g,
+                                            stopped_g.get(exc.plane))
                 # the person takes the correction off for the redo and puts it back after
                 again = Shop(rotor, speed, as_found, rng, shop.signals)
                 again.as_found_amp = shop.as_found_amp

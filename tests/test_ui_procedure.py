@@ -418,17 +418,17 @@ def test_the_runaway_alarm_judges_a_1x_lost_in_the_noise_by_its_circle() -> None
             for n, r in base.readings.items()}
     rig.proc.runs[0] = replace(base, readings=lost)
     for r in lost.values():
-        assert runaway_reference(r) == pytest.approx(RUNAWAY_NOISE_RADII * r.confidence_radius)
+        assert runaway_reference(r.amplitude, r.confidence_radius) == pytest.approx(RUNAWAY_NOISE_RADII * r.confidence_radius)
     seen = {n: replace(r, amplitude=r.amplitude + 3.5 * r.confidence_radius)
             for n, r in lost.items()}   # 8 times the lost 1x: a trial just seen
     assert rig.proc.observe(seen, rig.setup.speed_rpm, rig.t) == []
-    wild = {n: replace(r, amplitude=1.01 * DEFAULT_RUNAWAY_FACTOR * runaway_reference(r))
+    wild = {n: replace(r, amplitude=1.01 * DEFAULT_RUNAWAY_FACTOR * runaway_reference(r.amplitude, r.confidence_radius))
             for n, r in lost.items()}
     assert {e.kind for e in rig.proc.observe(wild, rig.setup.speed_rpm, rig.t)} == {"runaway"}
     # a clear as-found 1x (the grinder's own) is its own reference
     for r in base.readings.values():
         assert r.confidence_radius is not None and r.confidence_radius < r.amplitude / 3
-        assert runaway_reference(r) == r.amplitude
+        assert runaway_reference(r.amplitude, r.confidence_radius) == r.amplitude
 
 
 def test_overspeed_and_runaway_stop_the_run_and_are_recorded() -> None:

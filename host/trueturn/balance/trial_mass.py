@@ -284,6 +284,37 @@ def suggest_trial(as_found_amplitudes: Sequence[float], confidences_95: Sequence
                                  confidences_95, max_mass_g=max_mass_g, min_mass_g=floor_g)
 
 
+def redo_below_stopped(trial_g: float, suggested_g: float, stopped_g: float | None) -> float:
+    """The redo of a trial too small (``trial_g``, with ``suggested_g`` asked for) on a plane
+    where a larger trial, ``stopped_g``, stopped the run (the runaway alarm): the suggestion
+    while it stays under the stopped one, else the geometric mean of the two, so the redos
+    close in on a trial that is seen and runs (a bisection in the logarithm of the mass)
+    instead of swinging between too small and too big.
+
+    Parameters
+    ----------
+    trial_g : float
+        The trial too small, g.
+    suggested_g : float
+        The mass the effect check asks for, g.
+    stopped_g : float or None
+        The smallest trial the alarm stopped on that plane, g (None: none was).
+
+    Returns
+    -------
+    float
+        The redo's mass, g.
+
+    References
+    ----------
+    .. [1] Bisection on a bracketed interval (any numerical-analysis text; here in the
+       logarithm of the mass, our choice).
+    """
+    if stopped_g is None or suggested_g < stopped_g:
+        return suggested_g
+    return math.sqrt(trial_g * stopped_g)
+
+
 def trial_after_runaway(trial_g: float, level_ratio: float,
                         target_change: float = TARGET_CHANGE) -> float:
     """A smaller trial after a trial run was stopped because its 1x passed a multiple of

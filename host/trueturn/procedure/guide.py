@@ -45,6 +45,7 @@ from typing import ClassVar, Literal, Protocol
 
 from trueturn.angles import angle_difference_deg, wrap_deg
 from trueturn.balance.support_fit import StandstillMode
+from trueturn.balance.trial_mass import redo_below_stopped
 from trueturn.model import (
     Bearing,
     Correction,
@@ -140,10 +141,11 @@ DEFAULT_PHASE_LIMIT_DEG = 5.0  # the DSP's default phase confidence for a steady
 SMALL_VECTOR_FRACTION = 0.05  # below 5 % of the as-found 1x, a tight circle is enough
 
 
-def runaway_reference(as_found: Reading) -> float:
+def runaway_reference(amplitude: float, confidence_radius: float | None) -> float:
     """What the runaway alarm multiplies (``runaway_factor``) for one pickup: its as-found
-    1x, or :data:`RUNAWAY_NOISE_RADII` of its 95 % radius when that is more."""
-    return max(as_found.amplitude, RUNAWAY_NOISE_RADII * (as_found.confidence_radius or 0.0))
+    1x ``amplitude``, or :data:`RUNAWAY_NOISE_RADII` of its 95 % radius when that is
+    more."""
+    return max(amplitude, RUNAWAY_NOISE_RADII * (confidence_radius or 0.0))
 
 
 @dataclass(frozen=True)
@@ -1090,7 +1092,8 @@ class Procedure:
         if base is not None and not away:
             for name, r in readings.items():
                 ref = base.readings.get(name)
-                level = runaway_reference(ref) if ref is not None else 0.0
+                level = (runaway_reference(ref.amplitude, ref.confidence_radius)
+                         if ref is not None else 0.0)
                 key = f"runaway:{name}"
                 if (level > 0 and key not in self._alarmed
                         and r.amplitude > self.setup.runaway_factor * level):
@@ -1643,14 +1646,12 @@ class Procedure:
 
     def _bracketed(self, small: TooSmallTrial) -> TooSmallTrial:
         """A trial too small on a plane where a larger one stopped the run (the runaway
-        alarm): the redo goes between the two, at their geometric mean, whenever the
-        suggestion reaches the stopped one, so the redos close in on a trial that is seen
-        and runs (a bisection in the logarithm of the mass) instead of swinging between
-        too small and too big."""
-        stopped = self._stopped_trial_g.get(small.plane)
-        if stopped is None or small.suggested_g is None or small.suggested_g < stopped:
+        alarm): the redo stays under the stopped one
+        (:func:`trueturn.balance.trial_mass.redo_below_stopped`)."""
+        if small.suggested_g is None:
             return small
-        return replace(small, suggested_g=math.sqrt(small.trial_g * stopped))
+        return replace(small, suggested_g=redo_below_stopped(
+            small.trial_g, small.suggested_g, self._stopped_trial_g.get(small.plane)))
 
     @property
     def _by_trials(self) -> bool:

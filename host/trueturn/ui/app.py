@@ -63,6 +63,7 @@ from trueturn.ui.fitted import FitEntry, FittedForm
 from trueturn.ui.jobfile import JobKeeper
 from trueturn.ui.machine import setup_from_profile
 from trueturn.ui.machines import MachinePicker
+from trueturn.ui.meter import METER_WINDOW_REVS
 from trueturn.ui.placement import marking_markup
 from trueturn.ui.resume import (
     OpenJob,
@@ -97,8 +98,6 @@ GREET_PHASE_TEXT = {
 }
 
 TICK_S = 0.1
-#: the meter's window for runs that want fewer revolutions (ui.meter.MeterAdapter's)
-METER_WINDOW_REVS = 60
 TACH_SILENT_S = 2.0  # no tach edge for this long while data arrive: the tach is not seen
 
 

@@ -67,11 +67,16 @@ class _Msg:
         return self.values[key]
 
 
+#: the revolutions a reading averages at most (the meter's window) unless a run wants more
+#: (``procedure.guide.Procedure.revolutions_wanted``: a check run)
+METER_WINDOW_REVS = 60
+
+
 class MeterAdapter:
     """One :class:`LiveAnalyzer` per run; identity and stream set-up kept for restarts."""
 
     def __init__(self, sensor_names: Sequence[str], mains_hz: float = 50.0,
-                 pickups: Sequence[Any] = (), max_revs: int = 60) -> None:
+                 pickups: Sequence[Any] = (), max_revs: int = METER_WINDOW_REVS) -> None:
         self.sensors = tuple(sensor_names)
         self.mains_hz = mains_hz
         self.max_revs = max_revs

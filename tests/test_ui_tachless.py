@@ -12,6 +12,7 @@ from __future__ import annotations
 import asyncio
 from pathlib import Path
 
+from cli_helpers import run_cli
 from test_ui_app import (
     SIZE,
     connect,
@@ -22,10 +23,16 @@ from test_ui_app import (
     unbalance_now,
     wait_for,
 )
+from trueturn.dsp.findings import Code
+from trueturn.dsp.tachless import speed_band_hz
 from trueturn.jobs.store import read_document
+from trueturn.link.capture import read_capture
+from trueturn.link.codec import Message, StreamDecoder
 from trueturn.procedure.standstill import Basis
 from trueturn.ui.app import AppConfig, TrueturnApp
 from trueturn.ui.launch import scenario_profile
+from trueturn.ui.meter import MeterAdapter
+from trueturn.ui.texts import no_tach_measuring
 
 
 def make_tachless_app(scenario: str, tmp_path: Path) -> TrueturnApp:
@@ -69,8 +76,51 @@ def test_amplitude_only_with_no_tach_reaches_a_correction_that_cuts_the_1x(tmp_p
             # the overall level is measured at the spectrum's speed (no tach needed)
             first = job.runs[0]
             assert all(s.velocity_rms_mm_s and s.zone for s in first.severity)
+            # once the as-found run is kept, the meter knows its speed (a 1x later lost in
+            # the noise is read at the speed a harmonic gives)
+            tachless = app.session.meter.tachless
+            assert tachless is not None and tachless.reference_hz is not None
+            assert abs(60.0 * tachless.reference_hz - first.speed_rpm) < 1e-6
             # every confirmation rests on the pickups, the tach absent
             assert all(c.basis == Basis.PICKUPS_NO_TACH.value and not c.standstill_by_tach
                        for r in job.runs for c in r.confirmations)
             await press(app, pilot, "q")
     asyncio.run(scenario())
+
+
+def test_a_check_run_whose_1x_is_lost_in_the_noise_reads_it_at_the_2x_speed(tmp_path: Path
+                                                                            ) -> None:
+    # A correction that cut the 1x into the noise: the check run's band then holds no line
+    # and, with the spectrum alone, the run waited for ever. The simulated shop fan with no
+    # unbalance at all (its 2x, turbulence and hum as shipped) and no tach: the app's meter,
+    # told the as-found speed, reads the 1x at the speed its 2x gives (dsp.tachless), near
+    # zero within its circle, and says where the speed came from.
+    cap = tmp_path / "fan.cap"
+    code, _, err = run_cli(["record", "--port",
+                            "sim://shop-fan?realtime=0&unbalance=none&tach=off",
+                            "--seconds", "20", "-o", str(cap)])
+    assert code == 0, err
+    _, raw = read_capture(cap)
+    profile = scenario_profile("shop-fan")
+    sensors = [p.name for p in profile.pickups]
+    band = speed_band_hz(1737.0, profile.max_speed_rpm)  # the planned speed (scenario)
+
+    def view(reference_rpm: float | None):  # noqa: ANN202 - the adapter's own MeterView
+        meter = MeterAdapter(sensors, 60.0, profile.pickups)
+        meter.use_tachless(band, reference_rpm)
+        for msg in StreamDecoder().feed(raw):
+            if isinstance(msg, Message):
+                meter.feed(msg)
+        return meter.view()
+
+    lost = view(None)  # before the as-found run: no speed, no reading, and why
+    assert lost.readings == {} and [f.code for f in lost.findings] == [Code.NO_SPEED_LINE]
+    found = view(1740.0)  # the as-found run's speed (the scenario's slip gives ~1737)
+    assert found.speed_rpm is not None and abs(found.speed_rpm - 1737.0) < 10.0
+    assert sorted(found.readings) == sorted(sensors)
+    for r in found.readings.values():
+        assert r.steady and r.no_tach and r.confidence_radius is not None
+        assert r.amplitude <= r.confidence_radius  # zero within its 95 % circle
+    (order,) = [f for f in found.findings if f.code is Code.SPEED_FROM_ORDER]
+    assert order.details["order"] == 2  # the fan's 2x (scenario: harmonics, order 2)
+    assert "from the 2x line" in no_tach_measuring(found.speed_rpm, order.details["order"])

@@ -60,6 +60,8 @@ class Code(str, Enum):
     HALF_ORDER = "half_order"                        # a line at 0.5x: averaged over rev pairs
     MAINS_WINDOW = "mains_window"                    # 1x near a hum line: read over its last 6 s
     NO_SPEED_LINE = "no_speed_line"                  # no tach, and no steady line in the band
+    SPEED_FROM_ORDER = "speed_from_order"            # no tach, 1x lost in the noise: speed
+    #                                                  from a harmonic line
     # is it unbalance? (dsp/unbalance.py: evidence per pickup with ``ok``, then one verdict)
     ONE_X_SHARE = "one_x_share"                      # 1x against the broadband velocity
     PHASE_STEADINESS = "phase_steadiness"            # 1x phase steady within the run
@@ -327,6 +329,10 @@ def _sentence(f: Finding) -> str:
                 "in the last 4 s: without a tach the speed comes from the spectrum, so run the "
                 "machine steadily at its planned speed (a speed still changing, or on the "
                 "mains line, gives no reading)")
+    if c is Code.SPEED_FROM_ORDER:
+        return (f"the 1x is lost in the noise: the speed ({_n(f, 'speed_rpm'):.0f} rpm) comes "
+                f"from the {_n(f, 'order')}x line, and the 1x is read there (a rotor balanced "
+                "close to what the pickups can see without a tach)")
     if c is Code.HALF_ORDER:
         return (f"a line at half the running speed ({_n(f, 'level'):.3g} {f.details.get('unit', '')}"
                 " in the 1x fit; a 2:1 belt or gear, a rub?): the 1x is averaged over whole "

@@ -32,10 +32,26 @@ inside ``±1.96/2.45`` of it with 95 %).
 A segment counts only when its line stands ``LINE_SNR_POWER`` (power) above the noise beside
 it at one pickup at least.
 
+**A 1x lost in the noise** (a rotor already very well balanced: a check run after a good
+correction): when the band holds no line above the noise and a *reference speed* is known
+(the speed of the job's as-found run: the runs of one job are at one speed within
+``REFERENCE_BAND_FRACTION``), the speed is taken from a harmonic instead. For each order
+``h`` of ``2..MAX_SPEED_ORDER`` the strongest line within ``h`` times the reference band is
+fitted as above; the clearest one (highest power over the noise beside it, at least
+``LINE_SNR_POWER``, both halves agreeing) gives the speed ``f_h / h``, and the 1x amplitude is
+read at that speed by the same windowed DTFT, with its noise and bias correction. It is then
+a measurement at a known frequency, however small (a harmonic fitted to a fraction of a
+bin gives the 1x's frequency ``h`` times better still). The segment carries the order its
+speed came from, and the finding ``speed_from_order`` says so.
+
 Limits, said plainly: a running speed within ``MAINS_GUARD_HZ`` of the mains line (or its
 double) cannot be told from hum without a tach and gives no reading; neither does a 1x lost
-in the noise at every pickup (a rotor already very well balanced: without a tach its speed
-cannot be found; the finding ``no_speed_line`` says so); a line stronger than
+in the noise at every pickup with no reference speed or no harmonic line near its multiples
+(the finding ``no_speed_line`` says so; a machine that is not running gives none either); a
+line at a multiple of the reference that is not the machine's harmonic (another machine's
+line) would be taken for one, but only while the 1x band holds nothing above the noise, so
+the 1x read there is then at most the detection threshold (``LINE_SNR_POWER``) too low; a
+line stronger than
 the 1x inside the band (a belt, a neighbour machine) would be taken for it — the band is the
 profile's, so keep the planned speed right; speed wander within a segment widens the line a
 little and reads a little low, the same in every run at that speed.
@@ -75,6 +91,11 @@ MAX_SEGMENTS = 8
 BAND_FRACTION = 0.10  # the 1x is searched within +/-10 % of the planned speed
 MAINS_GUARD_HZ = 0.5  # two bins of SEGMENT_S each side of the mains line and its double
 SPEED_AGREE = 0.01  # halves of a segment, and segments averaged, agree within 1 %
+#: a harmonic line stands for the speed when the 1x is lost in the noise: orders 2..this
+MAX_SPEED_ORDER = 6
+#: the runs of one job are at one speed within 3 % (balance.influence.SPEED_MATCH): the
+#: harmonic is searched within this fraction of the reference speed times its order
+REFERENCE_BAND_FRACTION = 0.03
 NOISE_SPAN_HZ = 10.0  # the noise level is read within this much of the line
 LOBE_GUARD_BINS = 4  # the Hann main lobe is +/-2 bins; twice that is left out
 PAD = 8  # zero padding of the coarse search
@@ -178,15 +199,91 @@ def strongest_line_hz(windowed: np.ndarray, rate_hz: float, band_hz: tuple[float
 @dataclass(frozen=True)
 class SegmentLine:
     """One segment's line: frequency (Hz), per pickup the bias-corrected amplitude (peak,
-    volts) and the per-part noise variance ``v`` of the complex amplitude (V^2)."""
+    volts) and the per-part noise variance ``v`` of the complex amplitude (V^2); ``order``:
+    the order of the line the speed came from (1: the 1x itself; 2 and up: a harmonic, the
+    1x being lost in the noise)."""
 
     frequency_hz: float
     amplitudes_v: tuple[float, ...]
     noise_var_v2: tuple[float, ...]
+    order: int = 1
+
+
+def _halves_agree(x: np.ndarray, rate_hz: float, band_hz: tuple[float, float],
+                  mains_hz: float | None, f_hz: float) -> bool:
+    """The segment's two halves find their strongest line in the band within
+    ``SPEED_AGREE`` of ``f_hz`` (the speed did not change inside the segment)."""
+    n = x.shape[-1]
+    for part in (x[:, : n // 2], x[:, n // 2:]):
+        w_half = signal.get_window("hann", part.shape[-1])
+        centred = part - part.mean(axis=-1, keepdims=True)
+        half = strongest_line_hz(centred * w_half, rate_hz, band_hz, mains_hz)
+        if half is None or abs(half - f_hz) > SPEED_AGREE * f_hz:
+            return False
+    return True
+
+
+def _line_at(x: np.ndarray, window: np.ndarray, rate_hz: float, f_hz: float,
+             mains_hz: float | None) -> tuple[np.ndarray, np.ndarray]:
+    """Per pickup the squared coherent amplitude ``|z|^2`` of the windowed DTFT at ``f_hz``
+    and the per-part noise variance ``v`` beside it (module docstring; Harris 1978)."""
+    n = x.shape[-1]
+    gain = float(window.sum())
+    z = 2.0 * _dtft(x * window, rate_hz, f_hz) / gain
+    # the noise level beside the line: median of the plain periodogram's bins / ln 2
+    spectrum = np.abs(np.fft.rfft(x * window, axis=-1)) ** 2
+    freqs = np.fft.rfftfreq(n, 1.0 / rate_hz)
+    bin_hz = rate_hz / n
+    near = (np.abs(freqs - f_hz) <= NOISE_SPAN_HZ) & (np.abs(freqs - f_hz) > LOBE_GUARD_BINS
+                                                       * bin_hz)
+    near &= ~_excluded(freqs, mains_hz)
+    noise = (np.median(spectrum[:, near], axis=-1) / math.log(2.0) if near.any()
+             else np.zeros(x.shape[0]))
+    return np.abs(z) ** 2, 2.0 * noise / gain ** 2
+
+
+def _above_noise(power: np.ndarray, var: np.ndarray) -> float:
+    """The line's power over the noise at its clearest pickup (0 when it stands at none
+    ``LINE_SNR_POWER`` above)."""
+    ratio = power / np.maximum(2.0 * var, 1e-300)
+    best = float(np.max(ratio))
+    return best if best >= LINE_SNR_POWER else 0.0
+
+
+def _speed_from_harmonic(x: np.ndarray, window: np.ndarray, rate_hz: float,
+                         reference_hz: float, mains_hz: float | None
+                         ) -> tuple[float, int] | None:
+    """The speed (Hz) from the clearest harmonic line near ``h`` times the reference, and its
+    order ``h``; None when no harmonic stands above the noise (module docstring).
+
+    The orders are ranked on one zero-padded spectrum (the peak within a sixteenth of a
+    bin); the clearest is then fitted (:func:`strongest_line_hz`) and must keep its speed
+    over the segment's halves, else the next one is tried."""
+    xw = x * window
+    n = x.shape[-1]
+    power = (np.abs(np.fft.rfft(xw, n=PAD * n, axis=-1)) ** 2).sum(axis=0)
+    freqs = np.fft.rfftfreq(PAD * n, 1.0 / rate_hz)
+    ranked: list[tuple[float, int, tuple[float, float]]] = []
+    for order in range(2, MAX_SPEED_ORDER + 1):
+        band = (order * reference_hz * (1.0 - REFERENCE_BAND_FRACTION),
+                order * reference_hz * (1.0 + REFERENCE_BAND_FRACTION))
+        usable = (freqs >= band[0]) & (freqs <= band[1]) & ~_excluded(freqs, mains_hz)
+        if not usable.any():
+            continue
+        peak = float(freqs[np.flatnonzero(usable)[np.argmax(power[usable])]])
+        clear = _above_noise(*_line_at(x, window, rate_hz, peak, mains_hz))
+        if clear:
+            ranked.append((clear, order, band))
+    for _, order, band in sorted(ranked, reverse=True):
+        f_hz = strongest_line_hz(xw, rate_hz, band, mains_hz)
+        if f_hz is not None and _halves_agree(x, rate_hz, band, mains_hz, f_hz):
+            return f_hz / order, order
+    return None
 
 
 def segment_line(volts: np.ndarray, rate_hz: float, band_hz: tuple[float, float],
-                 mains_hz: float | None = None) -> SegmentLine | None:
+                 mains_hz: float | None = None, reference_hz: float | None = None
+                 ) -> SegmentLine | None:
     """The 1x line of one segment: speed from the spectrum, amplitude from its peak.
 
     Parameters
@@ -199,12 +296,17 @@ def segment_line(volts: np.ndarray, rate_hz: float, band_hz: tuple[float, float]
         Where the 1x is searched, Hz (:func:`speed_band_hz`).
     mains_hz : float or None, default None
         Mains frequency (left out of the search).
+    reference_hz : float or None, default None
+        The speed the job's runs are at (its as-found run), Hz: when the band holds no line
+        above the noise, a harmonic near a multiple of it gives the speed (module
+        docstring); None: no such fallback.
 
     Returns
     -------
     SegmentLine or None
-        None when no line is found in the band, or the segment's two halves disagree on
-        the speed by more than ``SPEED_AGREE`` (the speed changed inside it).
+        None when no line is found in the band (nor a harmonic of the reference), or the
+        segment's two halves disagree on the speed by more than ``SPEED_AGREE`` (the speed
+        changed inside it).
 
     References
     ----------
@@ -213,6 +315,8 @@ def segment_line(volts: np.ndarray, rate_hz: float, band_hz: tuple[float, float]
        noise bandwidth; from memory).
     .. [2] S. O. Rice, "Mathematical analysis of random noise", Bell Syst. Tech. J. 23, 1944
        (from memory).
+    .. [3] A harmonic at exactly h times the running speed (a periodic signal's Fourier
+       series); taking the speed from it when the 1x is weak: common practice, no source.
     """
     x = np.atleast_2d(np.asarray(volts, dtype=float))
     n = x.shape[-1]
@@ -220,34 +324,26 @@ def segment_line(volts: np.ndarray, rate_hz: float, band_hz: tuple[float, float]
         return None
     x = x - x.mean(axis=-1, keepdims=True)
     window = signal.get_window("hann", n)
+    order = 1
     f_hz = strongest_line_hz(x * window, rate_hz, band_hz, mains_hz)
+    if f_hz is not None:
+        power, var = _line_at(x, window, rate_hz, f_hz, mains_hz)
+        if not (_above_noise(power, var) and _halves_agree(x, rate_hz, band_hz, mains_hz,
+                                                           f_hz)):
+            # the strongest bin of noise, or a line whose speed changed inside the segment
+            # (then a harmonic's does too: no reading)
+            f_hz = None
     if f_hz is None:
-        return None
-    halves = []
-    for part in (x[:, : n // 2], x[:, n // 2:]):
-        w_half = signal.get_window("hann", part.shape[-1])
-        centred = part - part.mean(axis=-1, keepdims=True)
-        halves.append(strongest_line_hz(centred * w_half, rate_hz, band_hz, mains_hz))
-    if any(h is None or abs(h - f_hz) > SPEED_AGREE * f_hz for h in halves):
-        return None
-    gain = float(window.sum())
-    z = 2.0 * _dtft(x * window, rate_hz, f_hz) / gain
-    # the noise level beside the line: median of the plain periodogram's bins / ln 2
-    spectrum = np.abs(np.fft.rfft(x * window, axis=-1)) ** 2
-    freqs = np.fft.rfftfreq(n, 1.0 / rate_hz)
-    bin_hz = rate_hz / n
-    near = (np.abs(freqs - f_hz) <= NOISE_SPAN_HZ) & (np.abs(freqs - f_hz) > LOBE_GUARD_BINS
-                                                       * bin_hz)
-    near &= ~_excluded(freqs, mains_hz)
-    noise = (np.median(spectrum[:, near], axis=-1) / math.log(2.0) if near.any()
-             else np.zeros(x.shape[0]))
-    var = 2.0 * noise / gain ** 2
-    power = np.abs(z) ** 2
-    if not np.any(power >= LINE_SNR_POWER * 2.0 * var):
-        return None  # the strongest bin of noise, not a line
+        if reference_hz is None:
+            return None
+        found = _speed_from_harmonic(x, window, rate_hz, reference_hz, mains_hz)
+        if found is None:
+            return None
+        f_hz, order = found
+        power, var = _line_at(x, window, rate_hz, f_hz, mains_hz)
     amp2 = power - 2.0 * var
     return SegmentLine(f_hz, tuple(float(math.sqrt(max(a, 0.0))) for a in amp2),
-                       tuple(float(v) for v in var))
+                       tuple(float(v) for v in var), order)
 
 
 def amplitude_uncertainty(amplitudes: np.ndarray, noise_var: np.ndarray) -> float:
@@ -301,11 +397,14 @@ class TachlessMeter:
         Reading unit (a key of :data:`trueturn.dsp.units.UNITS`); None: each profile's default.
     segment_s : float, default SEGMENT_S
         Segment length, s.
+    reference_hz : float or None, default None
+        The speed of the job's as-found run, Hz: a 1x lost in the noise is then read at the
+        speed a harmonic gives (:func:`segment_line`); settable later as ``reference_hz``.
     """
 
     def __init__(self, profiles: Sequence[PickupProfile], band_hz: tuple[float, float],
                  mains_hz: float | None = None, unit: str | None = None,
-                 segment_s: float = SEGMENT_S) -> None:
+                 segment_s: float = SEGMENT_S, reference_hz: float | None = None) -> None:
         if not (0 < band_hz[0] < band_hz[1]):
             raise ValueError(f"band_hz must be (low, high) with 0 < low < high, got {band_hz!r}")
         if not segment_s > 0:
@@ -315,6 +414,9 @@ class TachlessMeter:
         self.mains_hz = mains_hz
         self.unit = unit
         self.segment_s = segment_s
+        if reference_hz is not None and not (reference_hz > 0 and math.isfinite(reference_hz)):
+            raise ValueError(f"reference_hz must be positive, got {reference_hz!r}")
+        self.reference_hz = reference_hz
         self.adc_bits = 10
         self.reference_mv = 5000.0
         self._stream_reference_mv = 0.0
@@ -383,7 +485,7 @@ class TachlessMeter:
             self._parts, self._held = ([rest], len(rest)) if len(rest) else ([], 0)
             volts = block.reshape(-1, self.channels).T * self.volts_per_count
             self.segments.append(segment_line(volts, self.rate_hz, self.band_hz,
-                                              self.mains_hz))
+                                              self.mains_hz, self.reference_hz))
 
     def _run(self) -> list[SegmentLine]:
         """The newest consecutive good segments whose speeds agree with the newest."""
@@ -396,21 +498,30 @@ class TachlessMeter:
         return out[::-1]
 
     def stream_findings(self) -> list[Finding]:
-        """``no_speed_line`` when the newest segment held no steady line in the band.
+        """``no_speed_line`` when the newest segment held no steady line in the band (nor a
+        harmonic of the reference); ``speed_from_order`` when its speed came from a harmonic
+        (the 1x lost in the noise).
 
         Returns
         -------
         list of Finding
-            Empty, or one finding (pickup None) with the band in rpm.
+            Empty, or one finding (pickup None): the band in rpm, or the order and the
+            speed in rpm.
 
         References
         ----------
         .. [1] See the module docstring (the segment's rules; ours).
         """
-        if not self.segments or self.segments[-1] is not None:
+        if not self.segments:
             return []
-        return [Finding(Code.NO_SPEED_LINE, details={"low_rpm": 60.0 * self.band_hz[0],
-                                                     "high_rpm": 60.0 * self.band_hz[1]})]
+        newest = self.segments[-1]
+        if newest is None:
+            return [Finding(Code.NO_SPEED_LINE, details={"low_rpm": 60.0 * self.band_hz[0],
+                                                         "high_rpm": 60.0 * self.band_hz[1]})]
+        if newest.order > 1:
+            return [Finding(Code.SPEED_FROM_ORDER, details={
+                "order": newest.order, "speed_rpm": 60.0 * newest.frequency_hz})]
+        return []
 
     @property
     def speed_rpm(self) -> float:

@@ -717,11 +717,17 @@ class TrueturnApp(App):
                             "Quit and choose 2 for both planes.")
 
     def _measure_for(self, proc: Procedure) -> None:
-        """Amplitude only: no tach needed, speed and 1x from the spectrum (dsp.tachless);
-        else from the tach (idempotent: the refresh calls it for a procedure made any way)."""
+        """Amplitude only: no tach needed, speed and 1x from the spectrum (dsp.tachless; once
+        the as-found run is kept, a 1x lost in the noise is read at the speed a harmonic of
+        the as-found speed gives); else from the tach (idempotent: the refresh calls it for a
+        procedure made any way)."""
         setup = proc.setup
-        self.session.use_tachless(speed_band_hz(setup.speed_rpm, setup.max_speed_rpm)
-                                  if setup.mode is Mode.AMPLITUDE_ONLY else None)
+        if setup.mode is not Mode.AMPLITUDE_ONLY:
+            self.session.use_tachless(None)
+            return
+        as_found = proc.as_found()
+        self.session.use_tachless(speed_band_hz(setup.speed_rpm, setup.max_speed_rpm),
+                                  as_found.speed_rpm if as_found is not None else None)
 
     def saved_coefficients(self) -> CoefficientSet | None:
         """Influence coefficients an earlier job kept for this machine near this speed."""

@@ -101,18 +101,25 @@ class MeterAdapter:
         other._identity, other._config = self._identity, self._config
         other.analyzer = other._new()
         if self.tachless is not None:
-            other.use_tachless(self.tachless.band_hz)
+            reference = self.tachless.reference_hz
+            other.use_tachless(self.tachless.band_hz, 60.0 * reference if reference else None)
         return other
 
-    def use_tachless(self, band_hz: tuple[float, float] | None) -> None:
+    def use_tachless(self, band_hz: tuple[float, float] | None,
+                     reference_rpm: float | None = None) -> None:
         """Read speed and 1x amplitude from the spectrum in ``band_hz`` (no tach: the
-        amplitude-only procedure), or from the tach again (None)."""
+        amplitude-only procedure), or from the tach again (None); ``reference_rpm``: the
+        speed of the job's as-found run (a 1x lost in the noise is then read at the speed a
+        harmonic gives, :func:`trueturn.dsp.tachless.segment_line`), None before it."""
         if band_hz is None:
             self.tachless = None
             return
+        reference_hz = reference_rpm / 60.0 if reference_rpm else None
         if self.tachless is not None and self.tachless.band_hz == band_hz:
-            return  # already so: keep what is measured
-        self.tachless = TachlessMeter(self.profiles, band_hz, self.mains_hz)
+            self.tachless.reference_hz = reference_hz  # keep what is measured
+            return
+        self.tachless = TachlessMeter(self.profiles, band_hz, self.mains_hz,
+                                      reference_hz=reference_hz)
         for msg in (self._identity, self._config):
             if msg is not None:
                 self.tachless.feed(msg)

@@ -416,11 +416,13 @@ class LinkSession:
                 self.motion = None
                 self._new_motion(rate_hz)
 
-    def use_tachless(self, band_hz: tuple[float, float] | None) -> None:
+    def use_tachless(self, band_hz: tuple[float, float] | None,
+                     reference_rpm: float | None = None) -> None:
         """Measure without a tach (speed and 1x from the spectrum in ``band_hz``: the
-        amplitude-only procedure), or with the tach again (None)."""
+        amplitude-only procedure), or with the tach again (None); ``reference_rpm``: the
+        job's as-found speed (:meth:`MeterAdapter.use_tachless`)."""
         with self._state:
-            self.meter.use_tachless(band_hz)
+            self.meter.use_tachless(band_hz, reference_rpm)
 
     def machine_condition(self) -> tuple[tuple[Any, ...], tuple[Any, ...]]:
         """The machine's overall severity per pickup and the unbalance verdict from the run

@@ -295,6 +295,8 @@ class RunPanel(ProcedurePanel):
     tach_silent_s: reactive[float | None] = reactive(None)  # None: the tach is seen
     no_tach: reactive[bool] = reactive(False)  # amplitude only: speed and 1x from the spectrum
     no_line: reactive[str] = reactive("")  # no tach, and no steady line in the speed band
+    #: no tach, the 1x lost in the noise: the order of the line the speed comes from (1: 1x)
+    speed_order: reactive[int] = reactive(1)
     tach_faults: reactive[tuple[str, ...]] = reactive(())
     not_ready: reactive[str] = reactive("")
     #: pickups whose 1x the hum line next to it hides: True while the meter waits it out,
@@ -329,6 +331,8 @@ class RunPanel(ProcedurePanel):
             self.tach_faults = tuple(meter.tach_faults[:2])
             self.no_line = next((describe(f) for f in meter.findings
                                  if f.code is Code.NO_SPEED_LINE), "")
+            self.speed_order = next((int(f.details["order"]) for f in meter.findings
+                                     if f.code is Code.SPEED_FROM_ORDER), 1)
             waiting = [r for _, r in self.readings if r is not None and not proc.settled(r)]
             own = [w for r in waiting for w in meter.pickup_warnings(r.sensor)]
             # a 1x next to a mains line says first what the reading waits for, on one line
@@ -368,7 +372,7 @@ class RunPanel(ProcedurePanel):
 
     def _measuring(self) -> list[str]:
         if self.no_tach:
-            lines = [texts.no_tach_measuring(self.speed_rpm)]
+            lines = [texts.no_tach_measuring(self.speed_rpm, self.speed_order)]
         else:
             lines = [f"Measuring at {self.units.speed(self.speed_rpm)}; averaging "
                      f"{self.revolutions} steady revolutions."]

@@ -456,9 +456,14 @@ def condition_lines(severity: Sequence[Severity], unbalance: Sequence[Finding],
     return tuple(lines)
 
 
-def no_tach_measuring(speed_rpm: float) -> str:
-    """The run line of the amplitude-only procedure: there is no tach (dsp.tachless)."""
+def no_tach_measuring(speed_rpm: float, speed_order: int = 1) -> str:
+    """The run line of the amplitude-only procedure: there is no tach (dsp.tachless);
+    ``speed_order`` above 1: the 1x is lost in the noise and the speed comes from that
+    harmonic (finding ``speed_from_order``)."""
     speed = f"about {speed_rpm:.0f} rpm" if speed_rpm > 0 else "the speed not found yet"
+    if speed_order > 1:
+        return (f"No tach: speed from the {speed_order}x line ({speed}), the 1x being lost "
+                "in the noise; the 1x is read at that speed, no phase.")
     return f"No tach: speed from the spectrum ({speed}), 1x from its peak, no phase."
 
 

@@ -233,3 +233,14 @@ def test_the_streaming_meter_says_when_the_speed_comes_from_a_harmonic() -> None
     (finding,) = meter.stream_findings()
     assert finding.code is Code.SPEED_FROM_ORDER and finding.details["order"] == 2
     assert "from the 2x line" in describe(finding)
+    # a reference whose multiples miss every line (3000 rpm: 100, 150, 200 ... Hz, the 2x at
+    # 118 Hz): no reading, and the finding says the 1x may be lost in the noise
+    meter.reference_hz = 50.0
+    meter.reset()
+    for m in StreamDecoder().feed(raw):
+        if isinstance(m, Message) and m.name == "samples":
+            meter.feed(m)
+    assert meter.readings() == []
+    (finding,) = meter.stream_findings()
+    assert finding.code is Code.NO_SPEED_LINE and finding.details["reference_rpm"] == 3000.0
+    assert "lost in the noise" in describe(finding)

@@ -325,10 +325,16 @@ def _sentence(f: Finding) -> str:
                 f"{100 * _n(f, 'damping_ratio'):.1f} %): running there rings the structure; "
                 "keep the speed further away if the machine allows, or ask the manufacturer")
     if c is Code.NO_SPEED_LINE:
-        return (f"no steady line between {_n(f, 'low_rpm'):.0f} and {_n(f, 'high_rpm'):.0f} rpm "
+        said = (f"no steady line between {_n(f, 'low_rpm'):.0f} and {_n(f, 'high_rpm'):.0f} rpm "
                 "in the last 4 s: without a tach the speed comes from the spectrum, so run the "
                 "machine steadily at its planned speed (a speed still changing, or on the "
                 "mains line, gives no reading)")
+        if _n(f, "reference_rpm", None) is not None:
+            said += (f"; nor a harmonic of the as-found {_n(f, 'reference_rpm'):.0f} rpm. If "
+                     "the machine does run steadily there, its 1x is lost in the noise (a "
+                     "rotor balanced very well) and cannot be measured without a tach: stop "
+                     "the run (a) and fit a tach to check it with phase")
+        return said
     if c is Code.SPEED_FROM_ORDER:
         return (f"the 1x is lost in the noise: the speed ({_n(f, 'speed_rpm'):.0f} rpm) comes "
                 f"from the {_n(f, 'order')}x line, and the 1x is read there (a rotor balanced "

@@ -505,8 +505,8 @@ class TachlessMeter:
         Returns
         -------
         list of Finding
-            Empty, or one finding (pickup None): the band in rpm, or the order and the
-            speed in rpm.
+            Empty, or one finding (pickup None): the band in rpm (and the reference speed
+            when one is known), or the order and the speed in rpm.
 
         References
         ----------
@@ -516,8 +516,10 @@ class TachlessMeter:
             return []
         newest = self.segments[-1]
         if newest is None:
-            return [Finding(Code.NO_SPEED_LINE, details={"low_rpm": 60.0 * self.band_hz[0],
-                                                         "high_rpm": 60.0 * self.band_hz[1]})]
+            details = {"low_rpm": 60.0 * self.band_hz[0], "high_rpm": 60.0 * self.band_hz[1]}
+            if self.reference_hz is not None:
+                details["reference_rpm"] = 60.0 * self.reference_hz
+            return [Finding(Code.NO_SPEED_LINE, details=details)]
         if newest.order > 1:
             return [Finding(Code.SPEED_FROM_ORDER, details={
                 "order": newest.order, "speed_rpm": 60.0 * newest.frequency_hz})]

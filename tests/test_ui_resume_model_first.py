@@ -402,6 +402,119 @@ def test_a_refuted_model_resumes_with_the_trials_it_fell_back_to(tmp_path: Path,
     rig.assert_cut(before)
 
 
+class _WrongModelEngine(BalanceEngine):
+    """A model far off (as a profile whose pickups' angles are 180 deg out and whose supports
+    are far softer than they are would give): its coefficients a third of the truth and of
+    opposite sign, trusted all the same. Its correction puts on three times the unbalance
+    the rotor has, on the same side: the check run's 1x is four times the as-found 1x
+    (linear in the unbalance; Thearle 1934, from memory), over the runaway alarm's three."""
+
+    def model_first(self, setup, runs, resonances, standstill=None):  # type: ignore[no-untyped-def]
+        answer = super().model_first(setup, runs, resonances, standstill)
+        prior = answer.prior
+        wrong = replace(prior, matrix=prior.matrix * (-1.0 / 3.0),
+                        magnitude=prior.magnitude / 3.0,
+                        covariance=tuple(c / 9.0 for c in prior.covariance))
+        solution = self._model_solution(setup, runs, self._estimate(setup, runs, wrong), False)
+        return replace(answer, prior=wrong, solution=solution)
+
+
+def _shake_at_the_model_check(rig: Rig) -> float:
+    """As found, the coast-down, the model's correction on, its check run stopped by the
+    runaway alarm and acknowledged; returns the level the alarm read (over the as-found)."""
+    proc = rig.proc
+    proc.arm_run(True, rig.t)
+    rig.spin(2.0, rig.setup.speed_rpm)
+    loud = rig.readings()
+    as_found = proc.runs[0].readings
+    ratio = max(loud[n].amplitude / as_found[n].amplitude for n in loud)
+    assert {e.kind for e in proc.observe(loud, rig.setup.speed_rpm, rig.t)} == {"runaway"}
+    rig.coast(rig.setup.speed_rpm)
+    proc.acknowledge_alarm()
+    return ratio
+
+
+@pytest.mark.parametrize("quit_at", ["alarm", "trial-on"])
+def test_a_model_correction_that_trips_the_runaway_alarm_is_refuted_and_trials_follow(
+        tmp_path: Path, quit_at: str) -> None:
+    """The check run of a wrong model's correction shakes the machine over the runaway
+    alarm: it is stopped and not kept, so no reading can refute the model. The same run
+    again would stop again; instead the step after the alarm takes the model's masses off
+    and puts the first trial on, and trials lead to a PASS on the simulator's physics. The
+    job keeps the refutation once that step is confirmed: quit before it, the job comes back
+    to the model's check run (which stops again, the same way on); quit after it, the job
+    goes on with the trials. Either way exactly as the uninterrupted job."""
+    from trueturn.jobs.report import model_lines
+    from trueturn.model import MassKind
+
+    rigs = []
+    for _ in range(2):
+        r = Rig("bench-grinder", Mode.MODEL_FIRST)
+        r.proc = Procedure(r.setup, _WrongModelEngine())
+        rigs.append(r)
+    straight, rig = rigs
+    keeper = keep_job(rig, tmp_path)
+    before = rig.response()
+    for r in rigs:
+        r.hands_on()
+        r.run()
+        r.proc.sweep_analysed(coast_down_resonances(r))
+        assert r.proc.model is not None and r.proc.model.trusted
+        r.proc.accept_correction()
+        r.hands_on()  # the model's correction on
+        placed = [m for m in r.proc.on_rotor if m.kind == MassKind.CORRECTION]
+        assert placed
+        ratio = _shake_at_the_model_check(r)
+        assert ratio > 3.5  # physics: about four times the as-found 1x
+        shook, model = r.proc.model_shook, r.proc.model
+        assert shook is not None and shook.level_ratio == pytest.approx(ratio)
+        assert model is not None and not model.trusted and model.refuted_by_alarm
+        assert model.refuted_at == shook.sensor and r.proc.fallback
+        step = r.proc.step
+        assert isinstance(step, HandsOn) and "model's correction comes off" in step.title
+        assert [c.mass for c in step.changes if c.action == "detach"] == placed
+        attached = [c.mass for c in step.changes if c.action == "attach"]
+        assert len(attached) == 1 and attached[0] is not None
+        assert attached[0].kind == MassKind.TRIAL
+        assert [x.label for x in r.proc.runs] == ["as found"]  # the stopped run is not kept
+    job = read_document(keeper.path, "job")  # type: ignore[arg-type]
+    assert job.model is not None and not job.model.refuted_by_alarm  # not confirmed yet
+    if quit_at == "trial-on":
+        for r in rigs:
+            r.hands_on()  # the model's masses off, the first trial on
+        job = read_document(keeper.path, "job")  # type: ignore[arg-type]
+        entry = job.model
+        assert entry is not None and entry.trusted and entry.refuted_by_alarm
+        assert entry.refuted_at == shook.sensor and entry.refuted_by_run is None
+    restart(rig, keeper)
+    proc = rig.proc
+    assert proc.checking_resumed_rotor and proc.on_rotor == straight.proc.on_rotor
+    rig.hands_on()
+    if quit_at == "alarm":
+        # back at the model's check run, its correction on: it stops again, the same way on
+        assert isinstance(proc.step, Measure) and proc.step.run_kind == "check"
+        assert not proc.fallback
+        _shake_at_the_model_check(rig)
+        assert proc.step == straight.proc.step
+        for r in rigs:
+            r.hands_on()
+    else:
+        assert proc.fallback and proc.model is not None and proc.model.refuted_by_alarm
+    assert proc.step == straight.proc.step  # the first trial run
+    for r in rigs:
+        assert r.through_alarms() == 0
+    assert [x.label for x in proc.runs] == [x.label for x in straight.proc.runs]
+    assert proc.verdict is not None and straight.proc.verdict is not None
+    for a, b in zip(proc.verdict.rows(), straight.proc.verdict.rows(), strict=True):
+        assert a[1] == pytest.approx(b[1], rel=1e-9)
+    assert proc.verdict.passed
+    rig.assert_cut(before)
+    keeper.finish(proc)
+    lines = model_lines(read_document(keeper.path, "job"))  # type: ignore[arg-type]
+    assert any("runaway alarm" in line and shook.sensor in line for line in lines)
+    assert not any("No check run has refined" in line for line in lines)
+
+
 # ---- the report (issue #20 item 4): what the model said, and how the check run refined it --
 
 

@@ -16,7 +16,9 @@ from dataclasses import replace
 from textual.app import App, ComposeResult
 from textual.widgets import ContentSwitcher
 
+from test_procedure_model_first import coast_down_resonances
 from test_ui_procedure import Rig, _HugeTrialEngine, _TinyTrialEngine
+from test_ui_resume_model_first import _shake_at_the_model_check, _WrongModelEngine
 from trueturn.angles import wrap_deg
 from trueturn.model import VerdictFlag
 from trueturn.procedure.engine import BalanceEngine
@@ -97,6 +99,26 @@ def test_a_runaway_on_a_trial_shows_the_smaller_trial_that_goes_on() -> None:
     assert float(line[3]) == round(shrunk.level_ratio, 1)
     assert float(line[4]) == round(shrunk.smaller_g, 2)
     assert "Stopped (vibration too high): a smaller trial on" in text
+
+
+def test_a_runaway_on_the_model_check_says_the_model_is_refuted_and_trials_follow() -> None:
+    rig = Rig("bench-grinder", Mode.MODEL_FIRST)
+    rig.proc = Procedure(rig.setup, _WrongModelEngine())
+    rig.hands_on()
+    rig.run()
+    rig.proc.sweep_analysed(coast_down_resonances(rig))
+    rig.proc.accept_correction()
+    rig.hands_on()
+    _shake_at_the_model_check(rig)
+    shook = rig.proc.model_shook
+    assert shook is not None
+    text = shown(rig)["text"]
+    line = re.search(r"The model's correction moved the 1x at (\S+) to ([\d.]+) times its "
+                     r"as-found level:.*model is not trusted.*trial run per plane",
+                     text, re.S)
+    assert line is not None, text
+    assert line[1] == shook.sensor and float(line[2]) == round(shook.level_ratio, 1)
+    assert "Stopped (vibration too high): the model's correction comes off" in text
 
 
 def test_a_trial_too_small_offers_the_mass_the_procedure_will_ask_for() -> None:

@@ -301,6 +301,11 @@ class ModelEntry:
     #: went on with trials, the model's masses taken off; a continued job finds the same)
     refuted_by_run: int | None = field(default=None, metadata=limits(minimum=1))
     refuted_at: str | None = None
+    #: the check run of the model's correction was stopped by the runaway alarm at the
+    #: pickup ``refuted_at`` (not kept, so no run number): kept once the hands-on step after
+    #: the alarm took the model's masses off; the job went on with trials (files without
+    #: it read False)
+    refuted_by_alarm: bool = False
     #: the tap test at standstill the model was computed with (optional: files without it
     #: read as before, no migration)
     tap: TapEntry | None = None
@@ -317,6 +322,10 @@ class ModelEntry:
                              "and covariance"))
         if self.trusted and self.distrust:
             problems.append(("distrust", "a trusted model has no reason not to be trusted"))
+        if self.refuted_by_alarm and (not self.trusted or self.refuted_by_run is not None
+                                      or not self.refuted_at):
+            problems.append(("refuted_by_alarm", "a model refuted by the runaway alarm was "
+                             "trusted, names the pickup (refuted_at) and no refuting run"))
         for name in ("mass_95_g", "angle_95_deg"):
             if len(getattr(self, name)) not in (0, n):
                 problems.append((name, f"needs one value per plane ({n})"))

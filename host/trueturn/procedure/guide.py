@@ -173,6 +173,19 @@ class ShrunkTrial:
 
 
 @dataclass(frozen=True)
+class ModelShook:
+    """Model-first: the check run of the model's correction was stopped by the runaway
+    alarm, the 1x at ``sensor`` at ``level_ratio`` times its as-found level. The correction
+    made the machine worse than the model allowed (its 95 % bound leaves at most
+    ``MAX_RESIDUAL_FRACTION_95`` of the 1x, half the alarm's factor): the model is refuted,
+    the hands-on step after the alarm takes its masses off and puts the first trial on, and
+    a trial run per plane follows (the as-found run kept)."""
+
+    sensor: str
+    level_ratio: float
+
+
+@dataclass(frozen=True)
 class OffSpeed:
     """A run of the coefficient set taken off its group's speed (``index`` into the runs):
     ``deviation`` is signed (-0.02 = 2 % slow); ``worst_cut`` is the 1x cut the correction
@@ -331,6 +344,9 @@ class ModelAnswer:
     #: the pickup whose reading refuted the model after its correction went on (then
     #: ``trusted`` is False, ``distrust`` ends with "refuted", trials follow)
     refuted_at: str | None = None
+    #: the refuting run was the model's check run, stopped by the runaway alarm (not kept:
+    #: :class:`ModelShook`)
+    refuted_by_alarm: bool = False
     #: a stiff mount (the coast-down found no support resonance below the speed, yet its
     #: curve could be fitted) whose model is not trusted for the supports' stiffness, or is
     #: trusted with a correction that may fall short of the grade: a tap test at
@@ -673,6 +689,8 @@ class Procedure:
         #: a trial run the runaway alarm stopped, and the smaller trial put in its place
         self.shrunk_trial: ShrunkTrial | None = None
         self._runaway_ratio = 0.0  # the alarm's 1x over the as-found level (largest pickup)
+        self._runaway_sensor: str | None = None  # the pickup of that largest ratio
+        self.model_shook: ModelShook | None = None
         #: per plane, the smallest trial the runaway alarm stopped (g): a later redo of a
         #: trial too small stays under it
         self._stopped_trial_g: dict[str, float] = {}
@@ -1070,7 +1088,9 @@ class Procedure:
         self._alarmed = set()
         self.alarm = None
         self._runaway_ratio = 0.0
+        self._runaway_sensor = None
         self.shrunk_trial = None
+        self.model_shook = None
         self.last_speed_rpm = 0.0
 
     def observe(self, readings: dict[str, Reading], speed_rpm: float,
@@ -1097,7 +1117,8 @@ class Procedure:
                 key = f"runaway:{name}"
                 if (level > 0 and key not in self._alarmed
                         and r.amplitude > self.setup.runaway_factor * level):
-                    self._runaway_ratio = max(self._runaway_ratio, r.amplitude / level)
+                    if r.amplitude / level > self._runaway_ratio:
+                        self._runaway_ratio, self._runaway_sensor = r.amplitude / level, name
                     new.append(SafetyEvent(
                         "runaway", f"{name}: 1x {r.amplitude:.3g} {r.unit} is over "
                         f"{self.setup.runaway_factor:g} x the as-found {level:.3g}: "
@@ -1270,8 +1291,31 @@ class Procedure:
         stopped = self.step
         self._inspect_step(f"Stopped ({what}): inspect the rotor")
         if alarm.kind == "runaway" and isinstance(stopped, Measure):
-            self._shrink_trial(stopped)
+            if self._model_check_shook(stopped):
+                self._refute_by_alarm()
+            else:
+                self._shrink_trial(stopped)
         return alarm
+
+    def _model_check_shook(self, stopped: Measure) -> bool:
+        """Model-first: the stopped run was the check run of the model's correction (no run
+        kept since the as-found run) and the runaway alarm stopped it."""
+        return (self.setup.mode is Mode.MODEL_FIRST and not self.fallback
+                and self.model is not None and self.model.trusted
+                and stopped.run_kind == RunKind.CHECK and len(self.runs) == 1
+                and self._runaway_sensor is not None and isinstance(self.step, HandsOn))
+
+    def _refute_by_alarm(self) -> None:
+        """The model's correction shook the machine over the alarm's limit: the model is
+        refuted as a kept run would refute it (:meth:`_drop_model`); the hands-on step after
+        the alarm takes its masses off and puts the first trial on (:class:`ModelShook`)."""
+        assert self._runaway_sensor is not None and self.model is not None
+        self.model_shook = ModelShook(self._runaway_sensor, self._runaway_ratio)
+        self._drop_model(self._runaway_sensor, by_alarm=True)
+        if isinstance(self.step, HandsOn):
+            self.step = replace(self.step, title=(
+                "Stopped (vibration too high): the model's correction comes off, "
+                "a trial goes on"))
 
     def _shrink_trial(self, stopped: Measure) -> None:
         """After a runaway alarm on a trial run (a trial per plane): the trial moved the 1x
@@ -1710,11 +1754,18 @@ class Procedure:
 
     def _model_refuted(self, exc: ModelRefuted) -> None:
         """Model-first: the run just kept refutes the model and the runs cannot stand without
-        it. The model's masses come off, the job goes on with a trial run per plane (the
-        as-found run kept); the refuting run stays in the record (the job has it) but no
-        longer in the coefficient set, so the trials' numbering is the fallback's own."""
+        it (:meth:`_drop_model`)."""
+        self._drop_model(exc.sensor)
+
+    def _drop_model(self, sensor: str, by_alarm: bool = False) -> None:
+        """Model-first: a run refuted the model (kept, or stopped by the runaway alarm:
+        ``by_alarm``). The model's masses come off, the job goes on with a trial run per
+        plane (the as-found run kept); a refuting run that was kept stays in the record
+        (the job has it) but no longer in the coefficient set, so the trials' numbering is
+        the fallback's own."""
         assert self.model is not None
-        self.model = replace(self.model, trusted=False, refuted_at=exc.sensor,
+        self.model = replace(self.model, trusted=False, refuted_at=sensor,
+                             refuted_by_alarm=by_alarm,
                              distrust=(*self.model.distrust, "refuted"))
         self.fallback = True
         self.solution = None

@@ -808,7 +808,9 @@ class TrueturnApp(App):
                 self.alarm = None
                 self.message = (f"Alarm acknowledged ({alarm.kind}). Wait for standstill, then "
                                 "inspect the rotor before it runs again"
-                                + ("; a smaller trial goes on." if proc.shrunk_trial else "."))
+                                + ("; a smaller trial goes on." if proc.shrunk_trial else
+                                   "; the model's correction comes off and a trial goes on."
+                                   if proc.model_shook else "."))
             case HandsOn(phase=HandsOnPhase.LOCKOUT):
                 proc.lock_out(now)
                 self.message = texts.LOCKED_OUT

@@ -189,6 +189,13 @@ class JobKeeper:
         if self.job is None:
             return
         pending = self.job.pending or rec.PendingStep()
+        model = self.job.model
+        if (proc.model_shook is not None and model is not None and model.trusted
+                and not model.refuted_by_alarm and model.refuted_by_run is None):
+            # the model's masses came off after the alarm: a continued job goes on with
+            # trials too (kept in the same save as the changes)
+            self.job.model = replace(model, refuted_by_alarm=True,
+                                     refuted_at=proc.model_shook.sensor)
         added = [mass_record(proc, change) for change in changes
                  if change.mass is not None and change.action in ("attach", "detach")]
         confirmations = self._new_confirmations(proc)
@@ -324,7 +331,8 @@ class JobKeeper:
         if (job is None or job.model is None or not job.model.trusted or proc.model is None
                 or run.kind is RunKind.AS_FOUND):
             return
-        if proc.model.refuted_at is not None and job.model.refuted_by_run is None:
+        if (proc.model.refuted_at is not None and job.model.refuted_by_run is None
+                and not job.model.refuted_by_alarm):
             job.model = replace(job.model, refuted_by_run=job.next_run_index,
                                 refuted_at=proc.model.refuted_at)
             return

@@ -22,7 +22,7 @@ from pathlib import Path
 import numpy as np
 
 from trueturn.angles import phasor
-from trueturn.balance.model_first import PredictedInfluence
+from trueturn.balance.model_first import Distrust, PredictedInfluence
 from trueturn.balance.support_fit import StandstillMode
 from trueturn.dsp.coast import SweepOutcome
 from trueturn.dsp.findings import Finding
@@ -201,6 +201,10 @@ def model_answer(entry: rec.ModelEntry, job: rec.JobRecord) -> ModelAnswer:
     job's pickups and planes."""
     distrust = tuple(d.value for d in entry.distrust)
     tapped = entry.tap is not None
+    if entry.refuted_by_alarm:  # its check run shook the machine: the job went on with trials
+        return ModelAnswer(False, (*distrust, Distrust.REFUTED.value),
+                           residual_fraction_95=entry.residual_fraction_95,
+                           refuted_at=entry.refuted_at, refuted_by_alarm=True, tapped=tapped)
     if not entry.trusted:
         return ModelAnswer(False, distrust, residual_fraction_95=entry.residual_fraction_95,
                            tapped=tapped)

@@ -208,14 +208,17 @@ class HandsOnPanel(ProcedurePanel):
     #: a second start as found is offered (before the first trial mass goes on)
     offer_second_start: reactive[bool] = reactive(False)
     fittable: reactive[bool] = reactive(False)  # f enters what was fitted (issue #17)
-    #: after a runaway alarm on a trial run: why a smaller trial goes on ("" otherwise)
+    #: after a runaway alarm on a trial run: why a smaller trial goes on; on the check run
+    #: of the model's correction: why its masses come off ("" otherwise)
     shrunk: reactive[str] = reactive("")
 
     def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
         super().show(proc, snap, ctx)
         assert proc is not None and isinstance(proc.step, HandsOn)
         self.shrunk = (texts.shrunk_trial_line(proc.shrunk_trial, self.units)
-                       if proc.shrunk_trial is not None else "")
+                       if proc.shrunk_trial is not None else
+                       texts.model_shook_line(proc.model_shook)
+                       if proc.model_shook is not None else "")
         step = proc.step
         self.phase = step.phase
         changes = step.changes

@@ -21,7 +21,7 @@ from trueturn.model.units import (
     vibration_text,
 )
 from trueturn.positions import number_of, position_text
-from trueturn.procedure.guide import Mode, ShrunkTrial, TapOutcome, TapRefusal
+from trueturn.procedure.guide import Mode, ModelShook, ShrunkTrial, TapOutcome, TapRefusal
 
 if TYPE_CHECKING:
     from trueturn.procedure.guide import MassChange
@@ -499,6 +499,15 @@ def shrunk_trial_line(shrunk: ShrunkTrial, shown: Shown | None = None) -> str:
             f"{shrunk.level_ratio:.1f} times its as-found level:[/b] the same run would stop "
             f"again. Take it off and fit {u.mass(shrunk.smaller_g)} at the same place; the "
             "trial run follows.")
+
+
+def model_shook_line(shook: ModelShook) -> str:
+    """The hands-on step after a runaway alarm on the check run of the model's correction:
+    the model is refuted, its masses come off and trials follow."""
+    return (f"[b]The model's correction moved the 1x at {shook.sensor} to "
+            f"{shook.level_ratio:.1f} times its as-found level:[/b] the model is not trusted "
+            "for this machine any more. Take its masses off and fit the trial shown; a trial "
+            "run per plane follows.")
 
 
 def resumed(job_id: str, runs: int, rotor: Sequence[str]) -> str:

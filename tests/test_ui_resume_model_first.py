@@ -468,6 +468,7 @@ def test_a_model_correction_that_trips_the_runaway_alarm_is_refuted_and_trials_f
         assert ratio > 3.5  # physics: about four times the as-found 1x
         shook, model = r.proc.model_shook, r.proc.model
         assert shook is not None and shook.level_ratio == pytest.approx(ratio)
+        assert shook.after_run == 1  # stopped after the as-found run
         assert model is not None and not model.trusted and model.refuted_by_alarm
         assert model.refuted_at == shook.sensor and r.proc.fallback
         step = r.proc.step
@@ -478,13 +479,13 @@ def test_a_model_correction_that_trips_the_runaway_alarm_is_refuted_and_trials_f
         assert attached[0].kind == MassKind.TRIAL
         assert [x.label for x in r.proc.runs] == ["as found"]  # the stopped run is not kept
     job = read_document(keeper.path, "job")  # type: ignore[arg-type]
-    assert job.model is not None and not job.model.refuted_by_alarm  # not confirmed yet
+    assert job.model is not None and job.model.refuted_by_alarm_after_run is None  # not yet
     if quit_at == "trial-on":
         for r in rigs:
             r.hands_on()  # the model's masses off, the first trial on
         job = read_document(keeper.path, "job")  # type: ignore[arg-type]
         entry = job.model
-        assert entry is not None and entry.trusted and entry.refuted_by_alarm
+        assert entry is not None and entry.trusted and entry.refuted_by_alarm_after_run == 1
         assert entry.refuted_at == shook.sensor and entry.refuted_by_run is None
     restart(rig, keeper)
     proc = rig.proc
@@ -513,6 +514,62 @@ def test_a_model_correction_that_trips_the_runaway_alarm_is_refuted_and_trials_f
     lines = model_lines(read_document(keeper.path, "job"))  # type: ignore[arg-type]
     assert any("runaway alarm" in line and shook.sensor in line for line in lines)
     assert not any("No check run has refined" in line for line in lines)
+
+
+def test_a_trim_check_stopped_by_the_alarm_refutes_the_model_after_its_kept_runs(
+        tmp_path: Path) -> None:
+    """The model's correction comes out light (the weights 60 % of what was asked), its
+    check run is kept and a trim follows; the trim goes on 180 deg out and twelve times too
+    heavy (a slip the app cannot see): its check run trips the runaway alarm. The model is
+    refuted after run 2 as after the as-found run: every model mass comes off, trials
+    follow; the job continued after that step replays the refutation after run 2 and goes
+    on exactly as the uninterrupted one, to PASS on the simulator's physics."""
+    from trueturn.model import MassKind
+    from trueturn.sim import Mass
+
+    rigs = [Rig("bench-grinder", Mode.MODEL_FIRST, correction_scale=0.6) for _ in range(2)]
+    straight, rig = rigs
+    keeper = keep_job(rig, tmp_path)
+    before = rig.response()
+    for r in rigs:
+        r.hands_on()
+        r.run()
+        r.proc.sweep_analysed(coast_down_resonances(r))
+        r.proc.accept_correction()
+        r.hands_on()
+        r.run()  # the model's check run: kept, the coefficients refined, a trim offered
+        assert r.proc.step.kind == "correction" and r.proc.trims_done == 1
+        r.proc.accept_correction()
+        r.hands_on()  # the trim on
+        trim = r.masses[-1]
+        r.masses[-1] = Mass(trim.plane, 12.0 * trim.mass_g, trim.angle_deg + 180.0)
+        assert _shake_at_the_model_check(r) > 3.0
+        r.masses[-1] = trim  # the step lists the trim as asked: the person takes it off
+        shook = r.proc.model_shook
+        assert shook is not None and shook.after_run == 2 and r.proc.fallback
+        step = r.proc.step
+        assert isinstance(step, HandsOn)
+        off = {c.mass.kind for c in step.changes if c.action == "detach" and c.mass}
+        assert off == {MassKind.CORRECTION, MassKind.TRIM}
+        assert [x.label for x in r.proc.runs] == ["as found"]
+        r.hands_on()  # the model's masses off, the first trial on
+    job = read_document(keeper.path, "job")  # type: ignore[arg-type]
+    assert job.model is not None and job.model.refuted_by_alarm_after_run == 2
+    assert [x.kind for x in job.runs] == ["initial", "check"]
+    restart(rig, keeper)
+    proc = rig.proc
+    assert proc.fallback and proc.on_rotor == straight.proc.on_rotor
+    assert [x.label for x in proc.runs] == ["as found"]
+    rig.hands_on()  # the resumed job's check of the rotor
+    assert proc.step == straight.proc.step  # the first trial run
+    for r in rigs:
+        r.through_alarms()
+    assert [x.label for x in proc.runs] == [x.label for x in straight.proc.runs]
+    assert proc.verdict is not None and straight.proc.verdict is not None
+    for a, b in zip(proc.verdict.rows(), straight.proc.verdict.rows(), strict=True):
+        assert a[1] == pytest.approx(b[1], rel=1e-9)
+    assert proc.verdict.passed
+    rig.assert_cut(before)
 
 
 # ---- the report (issue #20 item 4): what the model said, and how the check run refined it --

@@ -301,11 +301,11 @@ class ModelEntry:
     #: went on with trials, the model's masses taken off; a continued job finds the same)
     refuted_by_run: int | None = field(default=None, metadata=limits(minimum=1))
     refuted_at: str | None = None
-    #: the check run of the model's correction was stopped by the runaway alarm at the
-    #: pickup ``refuted_at`` (not kept, so no run number): kept once the hands-on step after
-    #: the alarm took the model's masses off; the job went on with trials (files without
-    #: it read False)
-    refuted_by_alarm: bool = False
+    #: a check run of the model's masses (its correction, or a trim) was stopped by the
+    #: runaway alarm at the pickup ``refuted_at`` after this kept run (the stopped run is
+    #: not kept): kept once the hands-on step after the alarm took the model's masses off;
+    #: the job went on with trials (files without it: None)
+    refuted_by_alarm_after_run: int | None = field(default=None, metadata=limits(minimum=1))
     #: the tap test at standstill the model was computed with (optional: files without it
     #: read as before, no migration)
     tap: TapEntry | None = None
@@ -322,10 +322,11 @@ class ModelEntry:
                              "and covariance"))
         if self.trusted and self.distrust:
             problems.append(("distrust", "a trusted model has no reason not to be trusted"))
-        if self.refuted_by_alarm and (not self.trusted or self.refuted_by_run is not None
-                                      or not self.refuted_at):
-            problems.append(("refuted_by_alarm", "a model refuted by the runaway alarm was "
-                             "trusted, names the pickup (refuted_at) and no refuting run"))
+        if self.refuted_by_alarm_after_run is not None and (
+                not self.trusted or self.refuted_by_run is not None or not self.refuted_at):
+            problems.append(("refuted_by_alarm_after_run", "a model refuted by the runaway "
+                             "alarm was trusted, names the pickup (refuted_at) and no "
+                             "refuting run"))
         for name in ("mass_95_g", "angle_95_deg"):
             if len(getattr(self, name)) not in (0, n):
                 problems.append((name, f"needs one value per plane ({n})"))
@@ -598,7 +599,8 @@ class JobRecord:
                              "recorded"))
         if self.model is not None:
             last = max([self.model.after_run, *(r.after_run for r in self.model.refined),
-                        self.model.refuted_by_run or 0])
+                        self.model.refuted_by_run or 0,
+                        self.model.refuted_by_alarm_after_run or 0])
             if last > len(self.runs):
                 problems.append(("model", f"refers to run {last}, which is not recorded"))
         return problems

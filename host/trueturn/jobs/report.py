@@ -1026,11 +1026,11 @@ def model_lines(job: JobRecord) -> list[str]:
         lines.append(f"Run {model.refuted_by_run} refuted the model: the 1x at "
                      f"{model.refuted_at or 'a pickup'} fell far outside its prediction, so "
                      "its masses came off and a trial run per plane followed.")
-    if model.refuted_by_alarm:
-        lines.append(f"The check run of the model's correction refuted the model: the 1x at "
-                     f"{model.refuted_at or 'a pickup'} rose over the runaway alarm's limit "
-                     "and the run was stopped (not kept), so its masses came off and a trial "
-                     "run per plane followed.")
+    if model.refuted_by_alarm_after_run is not None:
+        lines.append(f"The check run after run {model.refuted_by_alarm_after_run} refuted the "
+                     f"model: the 1x at {model.refuted_at or 'a pickup'} rose over the runaway "
+                     "alarm's limit and the run was stopped (not kept), so the model's masses "
+                     "came off and a trial run per plane followed.")
     if model.refined:
         first = model.refined[0]
         table = {(c.sensor, c.plane): c for c in model.predicted}
@@ -1048,7 +1048,7 @@ def model_lines(job: JobRecord) -> list[str]:
             f"{100 * max(m for m, _ in moved):.0f} % and {max(a for _, a in moved):.0f}\u00b0 "
             f"from the prediction{narrowed}." if moved else
             f"Run {first.after_run} refined the coefficients.")
-    elif model.refuted_by_run is None and not model.refuted_by_alarm:
+    elif model.refuted_by_run is None and model.refuted_by_alarm_after_run is None:
         lines.append("No check run has refined the model yet.")
     return lines
 

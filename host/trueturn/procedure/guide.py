@@ -174,15 +174,18 @@ class ShrunkTrial:
 
 @dataclass(frozen=True)
 class ModelShook:
-    """Model-first: the check run of the model's correction was stopped by the runaway
-    alarm, the 1x at ``sensor`` at ``level_ratio`` times its as-found level. The correction
-    made the machine worse than the model allowed (its 95 % bound leaves at most
-    ``MAX_RESIDUAL_FRACTION_95`` of the 1x, half the alarm's factor): the model is refuted,
-    the hands-on step after the alarm takes its masses off and puts the first trial on, and
-    a trial run per plane follows (the as-found run kept)."""
+    """Model-first: the check run of the model's correction (or of a trim from its refined
+    coefficients) was stopped by the runaway alarm, the 1x at ``sensor`` at
+    ``level_ratio`` times its as-found level. The masses made the machine worse than the
+    model allowed (its 95 % bound leaves at most ``MAX_RESIDUAL_FRACTION_95`` of the 1x,
+    half the alarm's factor): the model is refuted, the hands-on step after the alarm takes
+    its masses off and puts the first trial on, and a trial run per plane follows (the
+    as-found run kept)."""
 
     sensor: str
     level_ratio: float
+    #: the number of the last run kept before the stopped one (the job's numbering)
+    after_run: int
 
 
 @dataclass(frozen=True)
@@ -743,7 +746,8 @@ class Procedure:
                 on_rotor: Sequence[PlacedMass], rotor_set: bool, redo_of: int | None = None,
                 watch: StandstillWatch | None = None, model: ModelAnswer | None = None,
                 doubt: tuple[str, ...] = (), went_on: bool = False,
-                tap: TapOutcome | None = None, sweep: object = None) -> Procedure:
+                tap: TapOutcome | None = None, sweep: object = None,
+                shaken: tuple[int, str] | None = None) -> Procedure:
         """Rebuild the procedure of an open job from the runs it kept (readings and the
         masses on the rotor in each), without the person: the engine solves them again as
         it did live, so the trims counted, the correction and the verdict come out as
@@ -768,7 +772,9 @@ class Procedure:
         tap test is offered again with the kept answer, and the model is asked again with
         that evidence and the taps (the engine is deterministic: as it would have live);
         without it the job goes on as the kept answer says (trusted: its correction; else
-        trials). ``doubt``: the
+        trials). ``shaken``: (run number, pickup) when the runaway alarm stopped a check
+        run of the model's masses after that kept run and its step was confirmed
+        (:meth:`refute_after_alarm` is replayed there). ``doubt``: the
         rules the as-found run failed (is it
         unbalance? issue #22); unless the person ``went_on`` already, or hands-on work was
         done since, the question comes again before any mass goes on.
@@ -794,6 +800,8 @@ class Procedure:
                 else:  # a run of the coefficient set measured again (_redo)
                     proc._redo_index = k
             proc._keep(kept.run, kept.number)
+            if shaken is not None and kept.number == shaken[0] and not proc.fallback:
+                proc.refute_after_alarm(shaken[1])
         proc.on_rotor = list(on_rotor)
         proc.doubt = tuple(doubt)
         if (sweep is not None and tap is None and model is not None and len(proc.runs) == 1
@@ -1298,20 +1306,27 @@ class Procedure:
         return alarm
 
     def _model_check_shook(self, stopped: Measure) -> bool:
-        """Model-first: the stopped run was the check run of the model's correction (no run
-        kept since the as-found run) and the runaway alarm stopped it."""
+        """Model-first: the runaway alarm stopped a check run of the model's correction or
+        of a trim from its refined coefficients (a trusted model, no fallback yet)."""
         return (self.setup.mode is Mode.MODEL_FIRST and not self.fallback
                 and self.model is not None and self.model.trusted
-                and stopped.run_kind == RunKind.CHECK and len(self.runs) == 1
+                and stopped.run_kind == RunKind.CHECK and bool(self.run_numbers)
                 and self._runaway_sensor is not None and isinstance(self.step, HandsOn))
 
     def _refute_by_alarm(self) -> None:
-        """The model's correction shook the machine over the alarm's limit: the model is
+        """The model's masses shook the machine over the alarm's limit: the model is
         refuted as a kept run would refute it (:meth:`_drop_model`); the hands-on step after
         the alarm takes its masses off and puts the first trial on (:class:`ModelShook`)."""
         assert self._runaway_sensor is not None and self.model is not None
-        self.model_shook = ModelShook(self._runaway_sensor, self._runaway_ratio)
-        self._drop_model(self._runaway_sensor, by_alarm=True)
+        self.model_shook = ModelShook(self._runaway_sensor, self._runaway_ratio,
+                                      self.run_numbers[-1])
+        self.refute_after_alarm(self._runaway_sensor)
+
+    def refute_after_alarm(self, sensor: str) -> None:
+        """The model refuted by a check run the runaway alarm stopped at ``sensor``: its
+        masses come off and the first trial goes on (also how a continued job replays it,
+        after the run the job says the alarm came after)."""
+        self._drop_model(sensor, by_alarm=True)
         if isinstance(self.step, HandsOn):
             self.step = replace(self.step, title=(
                 "Stopped (vibration too high): the model's correction comes off, "

@@ -191,11 +191,11 @@ class JobKeeper:
         pending = self.job.pending or rec.PendingStep()
         model = self.job.model
         if (proc.model_shook is not None and model is not None and model.trusted
-                and not model.refuted_by_alarm and model.refuted_by_run is None):
+                and model.refuted_by_alarm_after_run is None and model.refuted_by_run is None):
             # the model's masses came off after the alarm: a continued job goes on with
             # trials too (kept in the same save as the changes)
-            self.job.model = replace(model, refuted_by_alarm=True,
-                                     refuted_at=proc.model_shook.sensor)
+            self.job.model = replace(model, refuted_at=proc.model_shook.sensor,
+                                     refuted_by_alarm_after_run=proc.model_shook.after_run)
         added = [mass_record(proc, change) for change in changes
                  if change.mass is not None and change.action in ("attach", "detach")]
         confirmations = self._new_confirmations(proc)
@@ -332,7 +332,7 @@ class JobKeeper:
                 or run.kind is RunKind.AS_FOUND):
             return
         if (proc.model.refuted_at is not None and job.model.refuted_by_run is None
-                and not job.model.refuted_by_alarm):
+                and job.model.refuted_by_alarm_after_run is None):
             job.model = replace(job.model, refuted_by_run=job.next_run_index,
                                 refuted_at=proc.model.refuted_at)
             return

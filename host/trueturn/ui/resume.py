@@ -22,7 +22,7 @@ from pathlib import Path
 import numpy as np
 
 from trueturn.angles import phasor
-from trueturn.balance.model_first import Distrust, PredictedInfluence
+from trueturn.balance.model_first import PredictedInfluence
 from trueturn.balance.support_fit import StandstillMode
 from trueturn.dsp.coast import SweepOutcome
 from trueturn.dsp.findings import Finding
@@ -201,10 +201,6 @@ def model_answer(entry: rec.ModelEntry, job: rec.JobRecord) -> ModelAnswer:
     job's pickups and planes."""
     distrust = tuple(d.value for d in entry.distrust)
     tapped = entry.tap is not None
-    if entry.refuted_by_alarm:  # its check run shook the machine: the job went on with trials
-        return ModelAnswer(False, (*distrust, Distrust.REFUTED.value),
-                           residual_fraction_95=entry.residual_fraction_95,
-                           refuted_at=entry.refuted_at, refuted_by_alarm=True, tapped=tapped)
     if not entry.trusted:
         return ModelAnswer(False, distrust, residual_fraction_95=entry.residual_fraction_95,
                            tapped=tapped)
@@ -226,6 +222,14 @@ def model_answer(entry: rec.ModelEntry, job: rec.JobRecord) -> ModelAnswer:
                                entry.residual_fraction_95)
     return ModelAnswer(True, (), tuple(entry.mass_95_g), tuple(entry.angle_95_deg),
                        entry.residual_fraction_95, prior, tapped=tapped)
+
+
+def shaken_by_alarm(entry: rec.ModelEntry | None) -> tuple[int, str] | None:
+    """After which kept run the runaway alarm stopped a check run of the model's masses,
+    and at which pickup (the model refuted: procedure.guide.ModelShook); None: it did not."""
+    if entry is None or entry.refuted_by_alarm_after_run is None:
+        return None
+    return entry.refuted_by_alarm_after_run, entry.refuted_at or "a pickup"
 
 
 def kept_tap(entry: rec.ModelEntry | None) -> TapOutcome | None:
@@ -317,7 +321,8 @@ def restore_procedure(job: rec.JobRecord, engine: Engine, watch: StandstillWatch
                                  redo_of=pending.redo_of if pending is not None else None,
                                  watch=watch, model=model, doubt=as_found_doubt(job),
                                  went_on=job.went_on is not None, tap=kept_tap(job.model),
-                                 sweep=offered_tap_evidence(job, setup.sensors))
+                                 sweep=offered_tap_evidence(job, setup.sensors),
+                                 shaken=shaken_by_alarm(job.model))
     except ValueError as exc:
         raise UserError(f"job {job.job_id} cannot be continued: {exc}") from None
 

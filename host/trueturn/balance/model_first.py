@@ -141,6 +141,7 @@ class Distrust(str, Enum):
     TOO_UNCERTAIN = "too-uncertain"      # the correction might raise the 1x more than a trial
     UNSEEN_EFFECT = "unseen-effect"      # the correction might change the 1x too little to see
     REFUTED = "refuted"                  # a run's 1x fell far outside the model's prediction
+    REFUTED_BY_ALARM = "refuted-by-alarm"  # a check run of its masses tripped the runaway alarm
     UNCALIBRATED = "uncalibrated"        # a pickup reads volts: no unit to predict in
     NO_MOUNTED_MASS = "no-mounted-mass"  # what the mounts carry is not known: no magnitude
     CLIPPED = "clipped"                  # an as-found reading clipped: its 1x reads low
@@ -164,6 +165,8 @@ DISTRUST_WORDS: dict[str, str] = {
                                   "response)",
     Distrust.REFUTED.value: "the check run's 1x fell far outside its prediction, so its "
                             "masses come off",
+    Distrust.REFUTED_BY_ALARM.value: "a check run of its masses shook the machine over the "
+                                     "runaway alarm's limit, so they come off",
     Distrust.UNCALIBRATED.value: "a pickup reads volts (no sensitivity in the profile)",
     Distrust.NO_MOUNTED_MASS.value: "the machine profile does not say what the mounts carry "
                                     "(the weight of everything that shakes with the rotor)",

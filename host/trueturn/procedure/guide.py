@@ -345,7 +345,8 @@ class ModelAnswer:
     prior: object = None
     solution: Solution | None = None
     #: the pickup whose reading refuted the model after its correction went on (then
-    #: ``trusted`` is False, ``distrust`` ends with "refuted", trials follow)
+    #: ``trusted`` is False, ``distrust`` ends with "refuted" - "refuted-by-alarm" when
+    #: the runaway alarm stopped that run -, trials follow)
     refuted_at: str | None = None
     #: the refuting run was the model's check run, stopped by the runaway alarm (not kept:
     #: :class:`ModelShook`)
@@ -1781,7 +1782,8 @@ class Procedure:
         assert self.model is not None
         self.model = replace(self.model, trusted=False, refuted_at=sensor,
                              refuted_by_alarm=by_alarm,
-                             distrust=(*self.model.distrust, "refuted"))
+                             distrust=(*self.model.distrust,
+                                       "refuted-by-alarm" if by_alarm else "refuted"))
         self.fallback = True
         self.solution = None
         self.verdict = None

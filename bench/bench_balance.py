@@ -42,7 +42,9 @@ Procedures measured:
   centre of mass; not the inertias, which the model guesses); when trusted, the first
   correction with no trial, every later run refining the coefficients (recursive least
   squares), until a run falls far outside the model's prediction and the runs cannot stand
-  alone: then, as in the app, the model's masses come off and trials follow; when not
+  alone, or the runaway alarm stops a check run of the model's masses (its 1x over 3 times
+  the as-found level; the stopped run counts): then, as in the app, the model's masses come
+  off and trials follow; when not
   trusted (or refuted), the app's fallback: the classic procedure from the as-found run
   (``classic_after_as_found``: trials sized to be seen with the sweep's resonances, then
   balance.solve over every run with its guard-banded verdict, as engine.assess). When the app
@@ -859,14 +861,19 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool,
     n_runs = 1
     first_reduction = None
     refuted = False
+    # what the app's runaway alarm multiplies; a check run over it is stopped, not kept
+    reference = {n: runaway_reference(r["amp"], r["confidence"]) for n, r in first.items()}
+    stopped = False   # the runaway alarm stopped a check run of the model's masses
 
     def take(est: CoefficientEstimate, readings: dict, masses: np.ndarray) -> None:
         est.update(masses, phasors_of(readings), {k: v["confidence"] for k, v in readings.items()})
 
     def corrections(est: CoefficientEstimate, on_rotor: np.ndarray) -> tuple[np.ndarray, bool]:
         """Correction runs until the verdict (the residual's 95 % bound within every
-        plane's share) or the run limit; False when the model was refuted on the way."""
-        nonlocal n_runs, first_reduction
+        plane's share) or the run limit; False when the model was refuted on the way, or
+        the runaway alarm stopped a check run (``stopped``: that refutes the model too, as
+        procedure.guide's ModelShook; the stopped run counts)."""
+        nonlocal n_runs, first_reduction, stopped
         while n_runs + shop.extra_runs < MAX_RUNS:
             want = est.correction_g()
             add = want - on_rotor
@@ -876,8 +883,11 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool,
                     shop.true_masses.append(shop.place(p.name, mass_g, angle))
             on_rotor = want
             readings = shop.measure(check=True)["readings"]   # the app's check run
-            take(est, readings, on_rotor)
             n_runs += 1
+            if any(readings[n]["amp"] > DEFAULT_RUNAWAY_FACTOR * reference[n] for n in names):
+                stopped = True
+                return on_rotor, False
+            take(est, readings, on_rotor)
             if first_reduction is None:
                 first_reduction = 1 - shop.true_1x() / before
             if est.prior_refuted and not est.determined_by_runs:
@@ -893,7 +903,7 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool,
         estimate = CoefficientEstimate.from_prediction(prediction)
         take(estimate, first, zeros)
         _, said_pass = corrections(estimate, zeros)
-        refuted = estimate.prior_refuted and not estimate.determined_by_runs
+        refuted = estimate.prior_refuted and not estimate.determined_by_runs or stopped
         if refuted:
             # the person takes the model's masses off: the rotor is as found again
             shop.true_masses = list(as_found)
@@ -916,7 +926,7 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool,
             "first_reduction": first_reduction if first_reduction is not None else 0.0,
             "true_pass": true_pass, "trusted": prediction.trusted, "refuted": refuted,
             "tapped": tapped, "trusted_before_tap": trusted_before_tap,
-            "names": names, "over_bound": over_bound}
+            "names": names, "over_bound": over_bound, "stopped": stopped}
 
 
 def false_pass_rate(results: list[dict], key: str = "true_pass") -> float:
@@ -988,6 +998,9 @@ def _model_first_figures() -> list[Row]:
                 "-", None),
             Row(f"balance [model first]: {words}, rotors whose model a run refuted (its masses "
                 "off, trials followed)", f"{100 * refuted:.0f} %", "-", None),
+            Row(f"balance [model first]: {words}, rotors whose model a check run stopped by the "
+                "runaway alarm refuted (trials followed)",
+                f"{100 * np.mean([r['stopped'] for r in results]):.0f} %", "-", None),
             Row(f"balance [model first]: {words}, 1x reduction after the first correction (median)",
                 f"{100 * np.median(first):.1f} %", "-", None),
             Row(f"balance [model first]: {words}, said within G {GRADE:g} but the true residual "

@@ -353,28 +353,57 @@ def test_old_job_files_without_the_model_still_load(tmp_path: Path) -> None:
         restore_procedure(again, BalanceEngine(), None)
 
 
+def twin_jobs(tmp_path: Path, engine: type[BalanceEngine] = BalanceEngine,
+              angle_offset_deg: float = 0.0, correction_scale: float = 1.0
+              ) -> tuple[Rig, Rig, JobKeeper, dict[str, complex]]:
+    """Two model-first jobs on the grinder alike: one uninterrupted, one kept in a file to
+    be continued; the pickups' angles in the profile ``angle_offset_deg`` off, the person's
+    corrections ``correction_scale`` of what was asked. Returns both rigs, the kept job's
+    keeper and the physics' 1x as found."""
+    rigs = []
+    for _ in range(2):
+        r = Rig("bench-grinder", Mode.MODEL_FIRST, correction_scale=correction_scale)
+        if angle_offset_deg:
+            angles = tuple((a or 0.0) + angle_offset_deg for a in r.setup.pickup_angles_deg)
+            r.setup = replace(r.setup, pickup_angles_deg=angles)
+        r.proc = Procedure(r.setup, engine())
+        rigs.append(r)
+    straight, rig = rigs
+    return straight, rig, keep_job(rig, tmp_path), rig.response()
+
+
+def model_correction_on(rig: Rig) -> None:
+    """As found, its coast-down (the simulator's own modes), the model's correction
+    accepted and placed."""
+    rig.hands_on()
+    rig.run()
+    rig.proc.sweep_analysed(coast_down_resonances(rig))
+    rig.proc.accept_correction()
+    rig.hands_on()
+
+
+def same_ending(rig: Rig, straight: Rig, before: dict[str, complex]) -> None:
+    """The continued job ended as the uninterrupted one: the same runs, the same verdict
+    (to 1e-9), a PASS, and the masses placed cut the physics' 1x to a tenth."""
+    proc = rig.proc
+    assert [x.label for x in proc.runs] == [x.label for x in straight.proc.runs]
+    assert proc.verdict is not None and straight.proc.verdict is not None
+    for a, b in zip(proc.verdict.rows(), straight.proc.verdict.rows(), strict=True):
+        assert a[1] == pytest.approx(b[1], rel=1e-9)
+    assert proc.verdict.passed
+    rig.assert_cut(before)
+
+
 @pytest.mark.parametrize("quit_at", ["refuted", "trial-on"])
 def test_a_refuted_model_resumes_with_the_trials_it_fell_back_to(tmp_path: Path,
                                                                  quit_at: str) -> None:
     """A pickup angle mis-measured by 150 deg: the check run refutes the model (as in
     tests/test_procedure_model_first.py); quit then, or with the first trial on: the job
     continues exactly as the uninterrupted one, to PASS."""
-    rigs = []
-    for _ in range(2):
-        r = Rig("bench-grinder", Mode.MODEL_FIRST)
-        angles = tuple((a or 0.0) + 150.0 for a in r.setup.pickup_angles_deg)
-        r.setup = replace(r.setup, pickup_angles_deg=angles)
-        r.proc = Procedure(r.setup, BalanceEngine())
-        rigs.append(r)
-    straight, rig = rigs
-    keeper = keep_job(rig, tmp_path)
-    before = rig.response()
+    straight, rig, keeper, before = twin_jobs(tmp_path, angle_offset_deg=150.0)
+    rigs = (straight, rig)
     for r in rigs:
-        r.hands_on()
-        r.run()
-        r.proc.sweep_analysed(coast_down_resonances(r))
-        r.proc.accept_correction()
-        r.hands_on()
+        model_correction_on(r)
         r.run()  # the check run refutes the model
         assert r.proc.model is not None and r.proc.model.refuted_at is not None
         if quit_at == "trial-on":
@@ -394,12 +423,7 @@ def test_a_refuted_model_resumes_with_the_trials_it_fell_back_to(tmp_path: Path,
         assert proc.step == straight.proc.step
     for r in rigs:
         r.complete()
-    assert [r.label for r in proc.runs] == [r.label for r in straight.proc.runs]
-    assert proc.verdict is not None and straight.proc.verdict is not None
-    for a, b in zip(proc.verdict.rows(), straight.proc.verdict.rows(), strict=True):
-        assert a[1] == pytest.approx(b[1], rel=1e-9)
-    assert proc.verdict.passed
-    rig.assert_cut(before)
+    same_ending(rig, straight, before)
 
 
 class _WrongModelEngine(BalanceEngine):
@@ -447,21 +471,11 @@ def test_a_model_correction_that_trips_the_runaway_alarm_is_refuted_and_trials_f
     from trueturn.jobs.report import model_lines
     from trueturn.model import MassKind
 
-    rigs = []
-    for _ in range(2):
-        r = Rig("bench-grinder", Mode.MODEL_FIRST)
-        r.proc = Procedure(r.setup, _WrongModelEngine())
-        rigs.append(r)
-    straight, rig = rigs
-    keeper = keep_job(rig, tmp_path)
-    before = rig.response()
+    straight, rig, keeper, before = twin_jobs(tmp_path, _WrongModelEngine)
+    rigs = (straight, rig)
     for r in rigs:
-        r.hands_on()
-        r.run()
-        r.proc.sweep_analysed(coast_down_resonances(r))
+        model_correction_on(r)
         assert r.proc.model is not None and r.proc.model.trusted
-        r.proc.accept_correction()
-        r.hands_on()  # the model's correction on
         placed = [m for m in r.proc.on_rotor if m.kind == MassKind.CORRECTION]
         assert placed
         ratio = _shake_at_the_model_check(r)
@@ -504,12 +518,7 @@ def test_a_model_correction_that_trips_the_runaway_alarm_is_refuted_and_trials_f
     assert proc.step == straight.proc.step  # the first trial run
     for r in rigs:
         assert r.through_alarms() == 0
-    assert [x.label for x in proc.runs] == [x.label for x in straight.proc.runs]
-    assert proc.verdict is not None and straight.proc.verdict is not None
-    for a, b in zip(proc.verdict.rows(), straight.proc.verdict.rows(), strict=True):
-        assert a[1] == pytest.approx(b[1], rel=1e-9)
-    assert proc.verdict.passed
-    rig.assert_cut(before)
+    same_ending(rig, straight, before)
     keeper.finish(proc)
     lines = model_lines(read_document(keeper.path, "job"))  # type: ignore[arg-type]
     assert any("runaway alarm" in line and shook.sensor in line for line in lines)
@@ -527,16 +536,10 @@ def test_a_trim_check_stopped_by_the_alarm_refutes_the_model_after_its_kept_runs
     from trueturn.model import MassKind
     from trueturn.sim import Mass
 
-    rigs = [Rig("bench-grinder", Mode.MODEL_FIRST, correction_scale=0.6) for _ in range(2)]
-    straight, rig = rigs
-    keeper = keep_job(rig, tmp_path)
-    before = rig.response()
+    straight, rig, keeper, before = twin_jobs(tmp_path, correction_scale=0.6)
+    rigs = (straight, rig)
     for r in rigs:
-        r.hands_on()
-        r.run()
-        r.proc.sweep_analysed(coast_down_resonances(r))
-        r.proc.accept_correction()
-        r.hands_on()
+        model_correction_on(r)
         r.run()  # the model's check run: kept, the coefficients refined, a trim offered
         assert r.proc.step.kind == "correction" and r.proc.trims_done == 1
         r.proc.accept_correction()
@@ -564,12 +567,7 @@ def test_a_trim_check_stopped_by_the_alarm_refutes_the_model_after_its_kept_runs
     assert proc.step == straight.proc.step  # the first trial run
     for r in rigs:
         r.through_alarms()
-    assert [x.label for x in proc.runs] == [x.label for x in straight.proc.runs]
-    assert proc.verdict is not None and straight.proc.verdict is not None
-    for a, b in zip(proc.verdict.rows(), straight.proc.verdict.rows(), strict=True):
-        assert a[1] == pytest.approx(b[1], rel=1e-9)
-    assert proc.verdict.passed
-    rig.assert_cut(before)
+    same_ending(rig, straight, before)
 
 
 # ---- the report (issue #20 item 4): what the model said, and how the check run refined it --

@@ -16,9 +16,12 @@ from dataclasses import replace
 from textual.app import App, ComposeResult
 from textual.widgets import ContentSwitcher
 
-from test_procedure_model_first import coast_down_resonances
 from test_ui_procedure import Rig, _HugeTrialEngine, _TinyTrialEngine
-from test_ui_resume_model_first import _shake_at_the_model_check, _WrongModelEngine
+from test_ui_resume_model_first import (
+    _shake_at_the_model_check,
+    _WrongModelEngine,
+    model_correction_on,
+)
 from trueturn.angles import wrap_deg
 from trueturn.model import VerdictFlag
 from trueturn.procedure.engine import BalanceEngine
@@ -104,11 +107,7 @@ def test_a_runaway_on_a_trial_shows_the_smaller_trial_that_goes_on() -> None:
 def test_a_runaway_on_the_model_check_says_the_model_is_refuted_and_trials_follow() -> None:
     rig = Rig("bench-grinder", Mode.MODEL_FIRST)
     rig.proc = Procedure(rig.setup, _WrongModelEngine())
-    rig.hands_on()
-    rig.run()
-    rig.proc.sweep_analysed(coast_down_resonances(rig))
-    rig.proc.accept_correction()
-    rig.hands_on()
+    model_correction_on(rig)
     _shake_at_the_model_check(rig)
     shook = rig.proc.model_shook
     assert shook is not None

@@ -23,6 +23,7 @@ from test_ui_resume_model_first import (
     model_correction_on,
 )
 from trueturn.angles import wrap_deg
+from trueturn.dsp.findings import Code, Finding
 from trueturn.model import VerdictFlag
 from trueturn.procedure.engine import BalanceEngine
 from trueturn.procedure.guide import Mode, Procedure, RunPhase
@@ -42,21 +43,22 @@ class GuideApp(App):
         yield GuideView(id="guide-view")
 
 
-def snapshot(rig: Rig) -> Snapshot:
+def snapshot(rig: Rig, meter: MeterReadings | None = None) -> Snapshot:
     ev = rig.proc.watch.evidence()
-    return Snapshot(meter=MeterReadings(rig.setup.sensors), standstill=ev.proven,
+    return Snapshot(meter=meter or MeterReadings(rig.setup.sensors), standstill=ev.proven,
                     evidence=ev, quiet_s=ev.tach_silent_s, board_time_s=rig.t)
 
 
-def shown(rig: Rig, **context: object) -> dict[str, str]:
-    """Show the procedure's step in a fresh guide; what is on screen, by part."""
+def shown(rig: Rig, meter: MeterReadings | None = None, **context: object) -> dict[str, str]:
+    """Show the procedure's step in a fresh guide (the meter as given, else empty); what
+    is on screen, by part."""
 
     async def look() -> dict[str, str]:
         app = GuideApp()
         async with app.run_test(size=SIZE) as pilot:
             guide = app.query_one(GuideView)
             ctx = GuideContext(rig.profile, BalanceEngine(), demo=True, **context)  # type: ignore[arg-type]
-            guide.show(rig.proc, snapshot(rig), ctx)
+            guide.show(rig.proc, snapshot(rig, meter), ctx)
             await pilot.pause()
             drawn = [p for p in app.query(StepPanel) if str(p.render())]
             msg = app.query_one(MessageLine)
@@ -118,6 +120,20 @@ def test_a_runaway_on_the_model_check_says_the_model_is_refuted_and_trials_follo
     assert line is not None, text
     assert line[1] == shook.sensor and float(line[2]) == round(shook.level_ratio, 1)
     assert "Stopped (vibration too high): the model's correction comes off" in text
+
+
+def test_a_tachless_run_says_when_its_speed_comes_from_a_harmonic() -> None:
+    # the meter's finding (dsp.tachless: the 1x lost in the noise, the speed from the 2x)
+    # reaches the run panel's first line; without it the plain spectrum line stays
+    rig = Rig("bench-grinder", Mode.AMPLITUDE_ONLY)
+    rig.hands_on()
+    rig.proc.arm_run(True, rig.t)
+    meter = MeterReadings(rig.setup.sensors, speed_rpm=3541.0, findings=[
+        Finding(Code.SPEED_FROM_ORDER, details={"order": 2, "speed_rpm": 3541.0})])
+    text = shown(rig, meter)["text"]
+    assert "No tach: speed from the 2x line (about 3541 rpm), the 1x being lost" in text
+    plain = shown(rig, MeterReadings(rig.setup.sensors, speed_rpm=3541.0))["text"]
+    assert "No tach: speed from the spectrum (about 3541 rpm)" in plain
 
 
 def test_a_trial_too_small_offers_the_mass_the_procedure_will_ask_for() -> None:

@@ -286,24 +286,29 @@ def test_two_plane_bench_grinder_to_a_pass_verdict(tmp_path: Path) -> None:
             before = unbalance_now(app)
             keys = await follow_the_screens(app, pilot, "2")
             proc = app.procedure
-            assert proc is not None and proc.verdict is not None
-            assert proc.verdict.passed
+            # (an intermittent failure of this test, seen twice and not reproduced: each
+            # assertion says what it saw, so the next one can be told apart)
+            assert proc is not None and proc.verdict is not None, screen_text(app)
+            assert proc.verdict.passed, screen_text(app)
             assert "PASS" in screen_text(app)
             # ISO 21940-11 at the bearings (the profile places them), at the service speed
             assert "judged at the bearings" in screen_text(app)
             assert "bearing 1: residual" in screen_text(app)
             # Honest residual: the weights the app placed on the simulated rotor cut the
             # exact 1x (physics) by at least 90 %.
-            assert unbalance_now(app) < 0.1 * before
-            assert keys < 60
+            assert unbalance_now(app) < 0.1 * before, (unbalance_now(app), before)
+            assert keys < 60, keys
             job = read_document(app.keeper.path, "job")
             assert job.status == "closed" and job.verdict.passed
             assert [p.plane for p in job.verdict.planes] == ["bearing 1", "bearing 2"]
-            assert [r.kind for r in job.runs] == ["initial", "trial", "trial", "check"]
+            assert [r.kind for r in job.runs] == ["initial", "trial", "trial", "check"], [
+                (r.kind, r.label, [(x.sensor, x.amplitude, x.phase_deg) for x in r.readings])
+                for r in job.runs]
             # Is it unbalance, and how bad overall (issue #22): measured in the as-found and
             # the check run, kept in the job; the demo grinder is plain unbalance.
             first, last = job.runs[0], job.runs[-1]
-            assert first.unbalance is not None and first.unbalance.verdict == "unbalance_likely"
+            assert first.unbalance is not None and \
+                first.unbalance.verdict == "unbalance_likely", first.unbalance
             assert {s.sensor for s in first.severity} == set(proc.setup.sensors)
             assert all(s.velocity_rms_mm_s and s.zone for s in first.severity)
             assert last.severity and not job.runs[1].severity  # not in trial runs

@@ -48,6 +48,21 @@ def _record(url: str, path: str) -> None:
         raise RuntimeError(f"trueturn record {url} exited {code}")
 
 
+def _tachless_readings(url: str, path: str, profile, band: tuple[float, float],  # type: ignore[no-untyped-def]
+                       reference_hz: float | None = None) -> tuple[list, list]:
+    """Record ``url`` and read it as the app's tachless meter does: readings, findings."""
+    _record(url, path)
+    meter = TachlessMeter([PickupProfile(p.name) for p in profile.pickups], band,
+                          float(profile.mains_hz), unit="V pk", reference_hz=reference_hz)
+    decoder = StreamDecoder()
+    with CaptureReader(path) as reader:
+        for chunk in reader.chunks():
+            for m in decoder.feed(chunk):
+                if isinstance(m, Message):
+                    meter.feed(m)
+    return meter.readings(), meter.stream_findings()
+
+
 def sim_rows(seeds: int) -> list[Row]:
     errors, inside, total = [], 0, 0
     names = ("bench-grinder", "shop-fan")
@@ -57,17 +72,9 @@ def sim_rows(seeds: int) -> list[Row]:
             profile = scenario_profile(name)
             band = speed_band_hz(profile.speed_max_rpm, profile.max_speed_rpm)
             for seed in range(1, seeds + 1):
-                cap = str(Path(folder) / f"{name}-{seed}.cap")
-                _record(f"sim://{name}?realtime=0&tach=off&seed={seed}", cap)
-                meter = TachlessMeter([PickupProfile(p.name) for p in profile.pickups], band,
-                                      float(profile.mains_hz), unit="V pk")
-                decoder = StreamDecoder()
-                with CaptureReader(cap) as reader:
-                    for chunk in reader.chunks():
-                        for m in decoder.feed(chunk):
-                            if isinstance(m, Message):
-                                meter.feed(m)
-                readings = meter.readings()
+                readings, _ = _tachless_readings(
+                    f"sim://{name}?realtime=0&tach=off&seed={seed}",
+                    str(Path(folder) / f"{name}-{seed}.cap"), profile, band)
                 if not readings:
                     errors.append(math.inf)
                     continue
@@ -87,21 +94,6 @@ def sim_rows(seeds: int) -> list[Row]:
         Row("no tach [sim, tach=off]: readings whose stated 95 % amplitude interval holds the "
             "exact 1x", f"{inside} of {total}", "-", None),
     ]
-
-
-def _tachless_readings(url: str, path: str, profile, band: tuple[float, float],  # type: ignore[no-untyped-def]
-                       reference_hz: float | None = None) -> tuple[list, list]:
-    """Record ``url`` and read it as the app's tachless meter does: readings, findings."""
-    _record(url, path)
-    meter = TachlessMeter([PickupProfile(p.name) for p in profile.pickups], band,
-                          float(profile.mains_hz), unit="V pk", reference_hz=reference_hz)
-    decoder = StreamDecoder()
-    with CaptureReader(path) as reader:
-        for chunk in reader.chunks():
-            for m in decoder.feed(chunk):
-                if isinstance(m, Message):
-                    meter.feed(m)
-    return meter.readings(), meter.stream_findings()
 
 
 def lost_line_rows(seeds: int) -> list[Row]:

@@ -177,13 +177,36 @@ def strongest_line_hz(windowed: np.ndarray, rate_hz: float, band_hz: tuple[float
        observations", IEEE Trans. Inf. Theory 20(5), 1974 (periodogram maximum = ML
        frequency; from memory).
     """
+    power, freqs = _padded_power(windowed, rate_hz)
+    return _fitted_hz(windowed, rate_hz, power, freqs, band_hz, mains_hz)
+
+
+def _padded_power(windowed: np.ndarray, rate_hz: float) -> tuple[np.ndarray, np.ndarray]:
+    """The zero-padded (``PAD`` times) periodogram summed over the channels, and its
+    frequencies (Hz): the coarse search's grid, a sixteenth of a Hann bin apart."""
     n = windowed.shape[-1]
     power = (np.abs(np.fft.rfft(windowed, n=PAD * n, axis=-1)) ** 2).sum(axis=0)
-    freqs = np.fft.rfftfreq(PAD * n, 1.0 / rate_hz)
+    return power, np.fft.rfftfreq(PAD * n, 1.0 / rate_hz)
+
+
+def _peak_index(power: np.ndarray, freqs: np.ndarray, band_hz: tuple[float, float],
+                mains_hz: float | None) -> int | None:
+    """The strongest bin of ``power`` inside the band, the mains lines left out (None: the
+    band holds no bin)."""
     usable = (freqs >= band_hz[0]) & (freqs <= band_hz[1]) & ~_excluded(freqs, mains_hz)
     if not usable.any():
         return None
-    i = int(np.flatnonzero(usable)[np.argmax(power[usable])])
+    return int(np.flatnonzero(usable)[np.argmax(power[usable])])
+
+
+def _fitted_hz(windowed: np.ndarray, rate_hz: float, power: np.ndarray, freqs: np.ndarray,
+               band_hz: tuple[float, float], mains_hz: float | None) -> float | None:
+    """:func:`strongest_line_hz` on its padded periodogram ``power`` (``freqs``), computed
+    once per segment by the caller."""
+    i = _peak_index(power, freqs, band_hz, mains_hz)
+    if i is None:
+        return None
+    n = windowed.shape[-1]
     coarse = refine_peak_hz(freqs, power, i)
     half_bin = 0.5 * rate_hz / n
 
@@ -209,37 +232,62 @@ class SegmentLine:
     order: int = 1
 
 
-def _halves_agree(x: np.ndarray, rate_hz: float, band_hz: tuple[float, float],
-                  mains_hz: float | None, f_hz: float) -> bool:
-    """The segment's two halves find their strongest line in the band within
-    ``SPEED_AGREE`` of ``f_hz`` (the speed did not change inside the segment)."""
-    n = x.shape[-1]
-    for part in (x[:, : n // 2], x[:, n // 2:]):
-        w_half = signal.get_window("hann", part.shape[-1])
-        centred = part - part.mean(axis=-1, keepdims=True)
-        half = strongest_line_hz(centred * w_half, rate_hz, band_hz, mains_hz)
-        if half is None or abs(half - f_hz) > SPEED_AGREE * f_hz:
-            return False
-    return True
+@dataclass(frozen=True)
+class _Spectra:
+    """One segment (DC removed, ``x``), Hann-windowed, with what every line search and
+    reading in it needs, computed once: the window's coherent gain (its sum), the padded
+    periodogram summed over the channels (:func:`_padded_power`) and each channel's plain
+    periodogram (the noise level beside a line)."""
 
+    x: np.ndarray
+    windowed: np.ndarray
+    gain: float
+    rate_hz: float
+    padded: np.ndarray
+    padded_freqs: np.ndarray
+    plain: np.ndarray
 
-def _line_at(x: np.ndarray, window: np.ndarray, rate_hz: float, f_hz: float,
-             mains_hz: float | None) -> tuple[np.ndarray, np.ndarray]:
-    """Per pickup the squared coherent amplitude ``|z|^2`` of the windowed DTFT at ``f_hz``
-    and the per-part noise variance ``v`` beside it (module docstring; Harris 1978)."""
-    n = x.shape[-1]
-    gain = float(window.sum())
-    z = 2.0 * _dtft(x * window, rate_hz, f_hz) / gain
-    # the noise level beside the line: median of the plain periodogram's bins / ln 2
-    spectrum = np.abs(np.fft.rfft(x * window, axis=-1)) ** 2
-    freqs = np.fft.rfftfreq(n, 1.0 / rate_hz)
-    bin_hz = rate_hz / n
-    near = (np.abs(freqs - f_hz) <= NOISE_SPAN_HZ) & (np.abs(freqs - f_hz) > LOBE_GUARD_BINS
-                                                       * bin_hz)
-    near &= ~_excluded(freqs, mains_hz)
-    noise = (np.median(spectrum[:, near], axis=-1) / math.log(2.0) if near.any()
-             else np.zeros(x.shape[0]))
-    return np.abs(z) ** 2, 2.0 * noise / gain ** 2
+    @classmethod
+    def of(cls, x: np.ndarray, rate_hz: float) -> _Spectra:
+        window = signal.get_window("hann", x.shape[-1])
+        windowed = x * window
+        padded, padded_freqs = _padded_power(windowed, rate_hz)
+        plain = np.abs(np.fft.rfft(windowed, axis=-1)) ** 2
+        return cls(x, windowed, float(window.sum()), rate_hz, padded, padded_freqs, plain)
+
+    def fitted_hz(self, band_hz: tuple[float, float], mains_hz: float | None) -> float | None:
+        """The strongest line in the band, refined (:func:`strongest_line_hz`)."""
+        return _fitted_hz(self.windowed, self.rate_hz, self.padded, self.padded_freqs,
+                          band_hz, mains_hz)
+
+    def line_at(self, f_hz: float, mains_hz: float | None) -> tuple[np.ndarray, np.ndarray]:
+        """Per pickup the squared coherent amplitude ``|z|^2`` of the windowed DTFT at
+        ``f_hz`` and the per-part noise variance ``v`` beside it (module docstring; Harris
+        1978)."""
+        n = self.x.shape[-1]
+        z = 2.0 * _dtft(self.windowed, self.rate_hz, f_hz) / self.gain
+        # the noise level beside the line: median of the plain periodogram's bins / ln 2
+        freqs = np.fft.rfftfreq(n, 1.0 / self.rate_hz)
+        bin_hz = self.rate_hz / n
+        near = ((np.abs(freqs - f_hz) <= NOISE_SPAN_HZ)
+                & (np.abs(freqs - f_hz) > LOBE_GUARD_BINS * bin_hz))
+        near &= ~_excluded(freqs, mains_hz)
+        noise = (np.median(self.plain[:, near], axis=-1) / math.log(2.0) if near.any()
+                 else np.zeros(self.x.shape[0]))
+        return np.abs(z) ** 2, 2.0 * noise / self.gain ** 2
+
+    def halves_agree(self, band_hz: tuple[float, float], mains_hz: float | None,
+                     f_hz: float) -> bool:
+        """The segment's two halves find their strongest line in the band within
+        ``SPEED_AGREE`` of ``f_hz`` (the speed did not change inside the segment)."""
+        n = self.x.shape[-1]
+        for part in (self.x[:, : n // 2], self.x[:, n // 2:]):
+            w_half = signal.get_window("hann", part.shape[-1])
+            centred = part - part.mean(axis=-1, keepdims=True)
+            half = strongest_line_hz(centred * w_half, self.rate_hz, band_hz, mains_hz)
+            if half is None or abs(half - f_hz) > SPEED_AGREE * f_hz:
+                return False
+        return True
 
 
 def _above_noise(power: np.ndarray, var: np.ndarray) -> float:
@@ -250,33 +298,27 @@ def _above_noise(power: np.ndarray, var: np.ndarray) -> float:
     return best if best >= LINE_SNR_POWER else 0.0
 
 
-def _speed_from_harmonic(x: np.ndarray, window: np.ndarray, rate_hz: float,
-                         reference_hz: float, mains_hz: float | None
+def _speed_from_harmonic(seg: _Spectra, reference_hz: float, mains_hz: float | None
                          ) -> tuple[float, int] | None:
     """The speed (Hz) from the clearest harmonic line near ``h`` times the reference, and its
     order ``h``; None when no harmonic stands above the noise (module docstring).
 
-    The orders are ranked on one zero-padded spectrum (the peak within a sixteenth of a
-    bin); the clearest is then fitted (:func:`strongest_line_hz`) and must keep its speed
-    over the segment's halves, else the next one is tried."""
-    xw = x * window
-    n = x.shape[-1]
-    power = (np.abs(np.fft.rfft(xw, n=PAD * n, axis=-1)) ** 2).sum(axis=0)
-    freqs = np.fft.rfftfreq(PAD * n, 1.0 / rate_hz)
+    The orders are ranked at their padded periodogram's peak (within a sixteenth of a
+    bin); the clearest is then fitted and must keep its speed over the segment's halves,
+    else the next one is tried."""
     ranked: list[tuple[float, int, tuple[float, float]]] = []
     for order in range(2, MAX_SPEED_ORDER + 1):
         band = (order * reference_hz * (1.0 - REFERENCE_BAND_FRACTION),
                 order * reference_hz * (1.0 + REFERENCE_BAND_FRACTION))
-        usable = (freqs >= band[0]) & (freqs <= band[1]) & ~_excluded(freqs, mains_hz)
-        if not usable.any():
+        i = _peak_index(seg.padded, seg.padded_freqs, band, mains_hz)
+        if i is None:
             continue
-        peak = float(freqs[np.flatnonzero(usable)[np.argmax(power[usable])]])
-        clear = _above_noise(*_line_at(x, window, rate_hz, peak, mains_hz))
+        clear = _above_noise(*seg.line_at(float(seg.padded_freqs[i]), mains_hz))
         if clear:
             ranked.append((clear, order, band))
     for _, order, band in sorted(ranked, reverse=True):
-        f_hz = strongest_line_hz(xw, rate_hz, band, mains_hz)
-        if f_hz is not None and _halves_agree(x, rate_hz, band, mains_hz, f_hz):
+        f_hz = seg.fitted_hz(band, mains_hz)
+        if f_hz is not None and seg.halves_agree(band, mains_hz, f_hz):
             return f_hz / order, order
     return None
 
@@ -319,28 +361,25 @@ def segment_line(volts: np.ndarray, rate_hz: float, band_hz: tuple[float, float]
        series); taking the speed from it when the 1x is weak: common practice, no source.
     """
     x = np.atleast_2d(np.asarray(volts, dtype=float))
-    n = x.shape[-1]
-    if n < 64:
+    if x.shape[-1] < 64:
         return None
-    x = x - x.mean(axis=-1, keepdims=True)
-    window = signal.get_window("hann", n)
+    seg = _Spectra.of(x - x.mean(axis=-1, keepdims=True), rate_hz)
     order = 1
-    f_hz = strongest_line_hz(x * window, rate_hz, band_hz, mains_hz)
+    f_hz = seg.fitted_hz(band_hz, mains_hz)
     if f_hz is not None:
-        power, var = _line_at(x, window, rate_hz, f_hz, mains_hz)
-        if not (_above_noise(power, var) and _halves_agree(x, rate_hz, band_hz, mains_hz,
-                                                           f_hz)):
+        power, var = seg.line_at(f_hz, mains_hz)
+        if not (_above_noise(power, var) and seg.halves_agree(band_hz, mains_hz, f_hz)):
             # the strongest bin of noise, or a line whose speed changed inside the segment
             # (then a harmonic's does too: no reading)
             f_hz = None
     if f_hz is None:
         if reference_hz is None:
             return None
-        found = _speed_from_harmonic(x, window, rate_hz, reference_hz, mains_hz)
+        found = _speed_from_harmonic(seg, reference_hz, mains_hz)
         if found is None:
             return None
         f_hz, order = found
-        power, var = _line_at(x, window, rate_hz, f_hz, mains_hz)
+        power, var = seg.line_at(f_hz, mains_hz)
     amp2 = power - 2.0 * var
     return SegmentLine(f_hz, tuple(float(math.sqrt(max(a, 0.0))) for a in amp2),
                        tuple(float(v) for v in var), order)

@@ -44,6 +44,7 @@ from enum import Enum
 from typing import ClassVar, Literal, Protocol
 
 from trueturn.angles import angle_difference_deg, wrap_deg
+from trueturn.balance.model_first import Distrust
 from trueturn.balance.support_fit import StandstillMode
 from trueturn.balance.trial_mass import redo_below_stopped
 from trueturn.model import (
@@ -348,9 +349,6 @@ class ModelAnswer:
     #: ``trusted`` is False, ``distrust`` ends with "refuted" - "refuted-by-alarm" when
     #: the runaway alarm stopped that run -, trials follow)
     refuted_at: str | None = None
-    #: the refuting run was the model's check run, stopped by the runaway alarm (not kept:
-    #: :class:`ModelShook`)
-    refuted_by_alarm: bool = False
     #: a stiff mount (the coast-down found no support resonance below the speed, yet its
     #: curve could be fitted) whose model is not trusted for the supports' stiffness, or is
     #: trusted with a correction that may fall short of the grade: a tap test at
@@ -358,6 +356,12 @@ class ModelAnswer:
     tap_may_help: bool = False
     #: the answer was computed with a tap test's standstill modes
     tapped: bool = False
+
+    @property
+    def refuted_by_alarm(self) -> bool:
+        """The refuting run was a check run of the model's masses that the runaway alarm
+        stopped (not kept: :class:`ModelShook`)."""
+        return Distrust.REFUTED_BY_ALARM.value in self.distrust
 
 
 class TapRefusal(str, Enum):
@@ -1780,10 +1784,9 @@ class Procedure:
         (the job has it) but no longer in the coefficient set, so the trials' numbering is
         the fallback's own."""
         assert self.model is not None
+        refuted = Distrust.REFUTED_BY_ALARM if by_alarm else Distrust.REFUTED
         self.model = replace(self.model, trusted=False, refuted_at=sensor,
-                             refuted_by_alarm=by_alarm,
-                             distrust=(*self.model.distrust,
-                                       "refuted-by-alarm" if by_alarm else "refuted"))
+                             distrust=(*self.model.distrust, refuted.value))
         self.fallback = True
         self.solution = None
         self.verdict = None

@@ -634,6 +634,19 @@ def trial_for_effect(shop: Shop, plane_index: int, as_found: dict, prediction,
                          measured_scale).mass_g
 
 
+def alarm_reference(as_found: dict) -> dict[str, float]:
+    """Per pickup, the level the app's runaway alarm multiplies (procedure.guide
+    .runaway_reference: the as-found 1x, or three of its 95 % radii when it is lost in the
+    noise), from the as-found run's readings."""
+    return {n: runaway_reference(r["amp"], r["confidence"]) for n, r in as_found.items()}
+
+
+def alarm_level(readings: dict, reference: dict[str, float]) -> float:
+    """The largest 1x over its alarm reference: over DEFAULT_RUNAWAY_FACTOR the app's
+    runaway alarm stops the run."""
+    return max(r["amp"] / reference[n] for n, r in readings.items())
+
+
 def classic_after_as_found(shop: Shop, rng: np.random.Generator, runs: list[dict], prediction,
                            sizing: str, tolerance: dict, slopes: list[dict] | None,
                            before: float, as_found: list[Mass], runs_before: int = 0
@@ -648,9 +661,7 @@ def classic_after_as_found(shop: Shop, rng: np.random.Generator, runs: list[dict
     (``trial_run``)."""
     rotor, speed = shop.rotor, shop.speed
     as_found_1x = phasors_of(runs[0]["readings"])
-    # what the app's runaway alarm multiplies
-    reference = {n: runaway_reference(r["amp"], r["confidence"])
-                 for n, r in runs[0]["readings"].items()}
+    reference = alarm_reference(runs[0]["readings"])
     too_small = 0
     redo_runs = 0
     stopped = 0
@@ -667,7 +678,7 @@ def classic_after_as_found(shop: Shop, rng: np.random.Generator, runs: list[dict
             entry = run_entry(f"trial {plane}", [{"plane": plane, "mass_g": mass_g,
                                                   "angle_deg": angle}],
                               on.measure([on.place(plane, mass_g, angle)]))
-            level = max(r["amp"] / reference[n] for n, r in entry["readings"].items())
+            level = alarm_level(entry["readings"], reference)
             if level <= DEFAULT_RUNAWAY_FACTOR or stopped >= MAX_RUNS:
                 return entry, mass_g
             stopped += 1
@@ -861,8 +872,7 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool,
     n_runs = 1
     first_reduction = None
     refuted = False
-    # what the app's runaway alarm multiplies; a check run over it is stopped, not kept
-    reference = {n: runaway_reference(r["amp"], r["confidence"]) for n, r in first.items()}
+    reference = alarm_reference(first)  # a check run over it is stopped, not kept
     stopped = False   # the runaway alarm stopped a check run of the model's masses
 
     def take(est: CoefficientEstimate, readings: dict, masses: np.ndarray) -> None:
@@ -884,7 +894,7 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool,
             on_rotor = want
             readings = shop.measure(check=True)["readings"]   # the app's check run
             n_runs += 1
-            if any(readings[n]["amp"] > DEFAULT_RUNAWAY_FACTOR * reference[n] for n in names):
+            if alarm_level(readings, reference) > DEFAULT_RUNAWAY_FACTOR:
                 stopped = True
                 return on_rotor, False
             take(est, readings, on_rotor)

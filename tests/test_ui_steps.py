@@ -136,6 +136,19 @@ def test_a_tachless_run_says_when_its_speed_comes_from_a_harmonic() -> None:
     assert "No tach: speed from the spectrum (about 3541 rpm)" in plain
 
 
+def test_an_amplitude_only_run_says_when_a_tach_reads_its_1x() -> None:
+    # a tach fitted after all (ui.meter: finding tach_reads_1x): the run panel says the 1x
+    # is read locked to it and that the method takes its amplitude, not "no tach"
+    rig = Rig("bench-grinder", Mode.AMPLITUDE_ONLY)
+    rig.hands_on()
+    rig.proc.arm_run(True, rig.t)
+    meter = MeterReadings(rig.setup.sensors, speed_rpm=3541.0, findings=[
+        Finding(Code.TACH_READS_1X, details={"speed_rpm": 3541.0})])
+    text = shown(rig, meter)["text"]
+    assert "Tach seen: speed 3541 rpm from it, the 1x read locked to it" in text
+    assert "No tach" not in text
+
+
 def test_a_trial_too_small_offers_the_mass_the_procedure_will_ask_for() -> None:
     rig = Rig("bench-grinder", Mode.TWO_PLANE)
     rig.proc = Procedure(rig.setup, _TinyTrialEngine())

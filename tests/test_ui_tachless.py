@@ -10,7 +10,10 @@ it, independent of the estimator.
 from __future__ import annotations
 
 import asyncio
+import math
 from pathlib import Path
+
+import yaml
 
 from cli_helpers import run_cli
 from test_ui_app import (
@@ -23,15 +26,16 @@ from test_ui_app import (
     unbalance_now,
     wait_for,
 )
-from trueturn.dsp.findings import Code
+from trueturn.dsp.findings import Code, describe
 from trueturn.dsp.tachless import speed_band_hz
 from trueturn.jobs.store import read_document
 from trueturn.link.capture import read_capture
 from trueturn.link.codec import Message, StreamDecoder
 from trueturn.procedure.standstill import Basis
+from trueturn.sim.scenario import scenario_dir
 from trueturn.ui.app import AppConfig, TrueturnApp
 from trueturn.ui.launch import scenario_profile
-from trueturn.ui.meter import MeterAdapter
+from trueturn.ui.meter import MeterAdapter, MeterView
 from trueturn.ui.texts import no_tach_measuring
 
 
@@ -124,3 +128,123 @@ def test_a_check_run_whose_1x_is_lost_in_the_noise_reads_it_at_the_2x_speed(tmp_
     (order,) = [f for f in found.findings if f.code is Code.SPEED_FROM_ORDER]
     assert order.details["order"] == 2  # the fan's 2x (scenario: harmonics, order 2)
     assert "from the 2x line" in no_tach_measuring(found.speed_rpm, order.details["order"])
+
+
+def _quiet_fan(tmp_path: Path) -> str:
+    """The shop fan as shipped but with no harmonic line and no other tone: with no
+    unbalance, nothing in its spectrum tells the speed (a rotor balanced into the noise)."""
+    raw = yaml.safe_load((scenario_dir() / "shop-fan.yaml").read_text(encoding="utf-8"))
+    raw["signals"]["harmonics"] = []
+    raw["signals"]["tones"] = []
+    path = tmp_path / "quiet-fan.yaml"
+    path.write_text(yaml.safe_dump(raw), encoding="utf-8")
+    return str(path)
+
+
+def _amplitude_only_meter(cap: Path, band: tuple[float, float], reference_rpm: float | None
+                          ) -> MeterAdapter:
+    """The app's meter in the amplitude-only procedure, fed a whole recording."""
+    _, raw = read_capture(cap)
+    profile = scenario_profile("shop-fan")
+    meter = MeterAdapter([p.name for p in profile.pickups], 60.0, profile.pickups)
+    meter.use_tachless(band, reference_rpm)
+    for msg in StreamDecoder().feed(raw):
+        if isinstance(msg, Message):
+            meter.feed(msg)
+    return meter
+
+
+def _amplitude_only_view(cap: Path, band: tuple[float, float], reference_rpm: float | None
+                         ) -> MeterView:
+    return _amplitude_only_meter(cap, band, reference_rpm).view()
+
+
+class _SpectrumAt:
+    """Stands in for the spectrum's meter (dsp.tachless.TachlessMeter) with a given speed
+    and no readings: what the tach is weighed against."""
+
+    def __init__(self, band_hz: tuple[float, float], speed_rpm: float) -> None:
+        self.band_hz, self.speed_rpm = band_hz, speed_rpm
+
+    def readings(self) -> list:  # type: ignore[type-arg]
+        return []
+
+    def stream_findings(self) -> list:  # type: ignore[type-arg]
+        return []
+
+
+def test_a_1x_lost_in_the_noise_with_no_harmonic_is_read_once_a_tach_is_fitted(
+        tmp_path: Path) -> None:
+    # The dead end: an amplitude-only check run of a rotor balanced into the noise, with no
+    # harmonic line either. The spectrum finds no speed and reads nothing, and the app says
+    # to fit a tach. With a tach fitted the same job's meter reads the 1x locked to it:
+    # zero within its 95 % circle (the rig has no unbalance at all), at the tach's speed.
+    scenario = _quiet_fan(tmp_path)
+    band = speed_band_hz(1737.0, scenario_profile("shop-fan").max_speed_rpm)
+    views = {}
+    for tach in ("off", "none"):  # the tach absent; fitted and without fault
+        cap = tmp_path / f"tach-{tach}.cap"
+        code, _, err = run_cli(["record", "--port",
+                                f"sim://{scenario}?realtime=0&unbalance=none&tach={tach}",
+                                "--seconds", "12", "-o", str(cap)])
+        assert code == 0, err
+        views[tach] = _amplitude_only_view(cap, band, 1740.0)
+    # a tach whose speed lies outside the job's speed band (a second mark on the rotor, a
+    # tach on another shaft) is not used, though the spectrum has nothing to set against it
+    max_rpm = scenario_profile("shop-fan").max_speed_rpm
+    elsewhere = _amplitude_only_view(cap, speed_band_hz(2 * 1737.0, 2 * max_rpm), None)
+    assert elsewhere.readings == {}
+    assert [f.code for f in elsewhere.findings] == [Code.NO_SPEED_LINE]
+    dark = views["off"]
+    assert dark.readings == {}
+    assert [f.code for f in dark.findings] == [Code.NO_SPEED_LINE]
+    assert "fit a tach and run again" in describe(dark.findings[0])
+    lit = views["none"]
+    assert lit.speed_rpm is not None and abs(lit.speed_rpm - 1737.0) < 15.0
+    assert Code.TACH_READS_1X in [f.code for f in lit.findings]
+    assert sorted(lit.readings) == sorted(p.name for p in scenario_profile("shop-fan").pickups)
+    # zero within its 99.9 % circle: the 95 % radius times sqrt(ln 1000 / ln 20), the
+    # Rayleigh distribution's quantiles (a circular normal's magnitude; from memory), so two
+    # pickups do not fail one time in ten by chance alone
+    widen = math.sqrt(math.log(1000.0) / math.log(20.0))
+    for r in lit.readings.values():
+        assert not r.no_tach and r.confidence_radius is not None
+        assert r.amplitude <= widen * r.confidence_radius
+
+
+def test_a_tach_reads_the_same_1x_as_the_spectrum_and_only_at_the_planned_speed(
+        tmp_path: Path) -> None:
+    # The shop fan as shipped, tach fitted, amplitude-only meter. The tach's synchronous 1x
+    # and the spectrum's (dsp.tachless) measure one line: they agree within their combined
+    # 95 % circles (both estimators' own uncertainty), so a job whose runs mix them is
+    # consistent. A tach that disagrees with the spectrum's speed is not used.
+    cap = tmp_path / "fan.cap"
+    code, _, err = run_cli(["record", "--port", "sim://shop-fan?realtime=0&motor=on",
+                            "--seconds", "12", "-o", str(cap)])
+    assert code == 0, err
+    max_rpm = scenario_profile("shop-fan").max_speed_rpm
+    band = speed_band_hz(1737.0, max_rpm)
+    meter = _amplitude_only_meter(cap, band, 1740.0)
+    with_tach = meter.view()
+    assert Code.TACH_READS_1X in [f.code for f in with_tach.findings]
+    # the spectrum's speed 5 % off the tach's (more than the 3 % one job's runs may differ):
+    # the tach is not used, the spectrum's (here no) readings stand
+    assert with_tach.speed_rpm is not None
+    meter.tachless = _SpectrumAt(band, 1.05 * with_tach.speed_rpm)  # type: ignore[assignment]
+    off = meter.view()
+    assert off.readings == {} and Code.TACH_READS_1X not in [f.code for f in off.findings]
+    meter.tachless = _SpectrumAt(band, 1.01 * with_tach.speed_rpm)  # type: ignore[assignment]
+    assert Code.TACH_READS_1X in [f.code for f in meter.view().findings]
+    _, raw = read_capture(cap)
+    profile = scenario_profile("shop-fan")
+    spectrum = MeterAdapter([p.name for p in profile.pickups], 60.0, profile.pickups)
+    spectrum.use_tachless(speed_band_hz(1737.0, max_rpm), 1740.0)
+    for msg in StreamDecoder().feed(raw):
+        if isinstance(msg, Message):
+            spectrum.feed(msg)
+    assert spectrum.tachless is not None
+    for r in spectrum.tachless.readings():
+        locked = with_tach.readings[r.sensor]
+        assert r.confidence_radius is not None and locked.confidence_radius is not None
+        assert abs(locked.amplitude - r.amplitude) <= math.hypot(r.confidence_radius,
+                                                                 locked.confidence_radius)

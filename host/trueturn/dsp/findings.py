@@ -62,6 +62,8 @@ class Code(str, Enum):
     NO_SPEED_LINE = "no_speed_line"                  # no tach, and no steady line in the band
     SPEED_FROM_ORDER = "speed_from_order"            # no tach, 1x lost in the noise: speed
     #                                                  from a harmonic line
+    TACH_READS_1X = "tach_reads_1x"                  # amplitude only, yet a tach is seen: the
+    #                                                  1x phase-locked to it, amplitude used
     # is it unbalance? (dsp/unbalance.py: evidence per pickup with ``ok``, then one verdict)
     ONE_X_SHARE = "one_x_share"                      # 1x against the broadband velocity
     PHASE_STEADINESS = "phase_steadiness"            # 1x phase steady within the run
@@ -333,8 +335,13 @@ def _sentence(f: Finding) -> str:
             said += (f"; nor a harmonic of the as-found {_n(f, 'reference_rpm'):.0f} rpm. If "
                      "the machine does run steadily there, its 1x is lost in the noise (a "
                      "rotor balanced very well) and cannot be measured without a tach: stop "
-                     "the run (a) and fit a tach to check it with phase")
+                     "the run (a), fit a tach and run again; this job then reads the 1x "
+                     "locked to it")
         return said
+    if c is Code.TACH_READS_1X:
+        return (f"a tach is seen ({_n(f, 'speed_rpm'):.0f} rpm): the 1x is read locked to it, "
+                "which finds a 1x too small for the spectrum; this method uses its "
+                "amplitude only")
     if c is Code.SPEED_FROM_ORDER:
         return (f"the 1x is lost in the noise: the speed ({_n(f, 'speed_rpm'):.0f} rpm) comes "
                 f"from the {_n(f, 'order')}x line, and the 1x is read there (a rotor balanced "

@@ -12,6 +12,7 @@ from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
+from trueturn.balance.influence import SPEED_MATCH
 from trueturn.dsp.analysis import machine_condition
 from trueturn.dsp.averaging import SteadinessLimits
 from trueturn.dsp.coast import SweepRecorder
@@ -197,7 +198,12 @@ class MeterAdapter:
             out.findings += [f for f in r.findings if f not in out.findings]
         if not readings:  # no revolution yet: the stream's own findings (no tach, ...)
             out.findings += [f for f in a.stream_findings() if f.code is not Code.NO_STREAM]
-        if self.tachless is not None:
+        if self.tachless is not None and self._tach_reads(out):
+            # amplitude only, yet a tach is seen: the synchronous 1x (the procedure takes
+            # its amplitude), which a 1x too small for the spectrum does not escape
+            out.findings.append(Finding(Code.TACH_READS_1X,
+                                        details={"speed_rpm": round(float(speed), 1)}))
+        elif self.tachless is not None:
             # no tach by design: the spectrum's readings, and no tach finding to fix
             out.readings = {r.sensor: r for r in self.tachless.readings()}
             speed = self.tachless.speed_rpm
@@ -210,6 +216,23 @@ class MeterAdapter:
         if self.spectrum_wanted:
             self._spectrum(out)
         return out
+
+    def _tach_reads(self, out: MeterView) -> bool:
+        """With the spectrum's meter on (amplitude only): whether the tach's readings in
+        ``out`` may stand instead. They do when every pickup has one, no tach fault is
+        found, and the tach's speed lies in the speed band and within
+        :data:`~trueturn.balance.influence.SPEED_MATCH` of the spectrum's speed (when the
+        spectrum has one): a tach miscounting its marks, or on another shaft, is not
+        used."""
+        assert self.tachless is not None
+        speed = out.speed_rpm
+        if speed is None or set(out.readings) != set(self.sensors) or tach_faults(out.findings):
+            return False
+        low_hz, high_hz = self.tachless.band_hz
+        if not 60.0 * low_hz <= speed <= 60.0 * high_hz:
+            return False
+        spectrum = self.tachless.speed_rpm
+        return not math.isfinite(spectrum) or abs(speed - spectrum) <= SPEED_MATCH * spectrum
 
     def _spectrum(self, out: MeterView) -> None:
         spectra = self.analyzer.spectra()

@@ -300,6 +300,8 @@ class RunPanel(ProcedurePanel):
     no_line: reactive[str] = reactive("")  # no tach, and no steady line in the speed band
     #: no tach, the 1x lost in the noise: the order of the line the speed comes from (1: 1x)
     speed_order: reactive[int] = reactive(1)
+    #: amplitude only, yet a tach is seen: the 1x is read locked to it (tach_reads_1x)
+    tach_reads: reactive[bool] = reactive(False)
     tach_faults: reactive[tuple[str, ...]] = reactive(())
     not_ready: reactive[str] = reactive("")
     #: pickups whose 1x the hum line next to it hides: True while the meter waits it out,
@@ -336,6 +338,7 @@ class RunPanel(ProcedurePanel):
                                  if f.code is Code.NO_SPEED_LINE), "")
             self.speed_order = next((int(f.details["order"]) for f in meter.findings
                                      if f.code is Code.SPEED_FROM_ORDER), 1)
+            self.tach_reads = any(f.code is Code.TACH_READS_1X for f in meter.findings)
             waiting = [r for _, r in self.readings if r is not None and not proc.settled(r)]
             own = [w for r in waiting for w in meter.pickup_warnings(r.sensor)]
             # a 1x next to a mains line says first what the reading waits for, on one line
@@ -374,7 +377,9 @@ class RunPanel(ProcedurePanel):
                         texts.A_NOT_NOW + (texts.FIT_KEYS if self.fittable else "")]
 
     def _measuring(self) -> list[str]:
-        if self.no_tach:
+        if self.no_tach and self.tach_reads:
+            lines = [texts.tach_reads_amplitude_only(self.speed_rpm)]
+        elif self.no_tach:
             lines = [texts.no_tach_measuring(self.speed_rpm, self.speed_order)]
         else:
             lines = [f"Measuring at {self.units.speed(self.speed_rpm)}; averaging "

@@ -467,6 +467,13 @@ def no_tach_measuring(speed_rpm: float, speed_order: int = 1) -> str:
     return f"No tach: speed from the spectrum ({speed}), 1x from its peak, no phase."
 
 
+def tach_reads_amplitude_only(speed_rpm: float) -> str:
+    """The run line of the amplitude-only procedure when a tach is seen after all (finding
+    ``tach_reads_1x``): the 1x is read locked to it, and the method uses its amplitude."""
+    return (f"Tach seen: speed {speed_rpm:.0f} rpm from it, the 1x read locked to it; this "
+            "method uses the amplitude only.")
+
+
 # ---- resuming a job and what was fitted (issue #17) --------------------------------------
 NOTHING_TO_FIT = ("Nothing to enter: what was fitted is entered at the hands-on step that "
                   "places a mass, or before its run starts.")

@@ -75,6 +75,31 @@ def test_no_tach_standstill_rests_on_live_quiet_pickups_for_the_long_hold() -> N
     assert w.evidence().state is StandstillState.TURNING
 
 
+def test_a_tach_fitted_to_an_amplitude_only_job_is_believed_but_not_relied_on() -> None:
+    # The amplitude-only job may meet a tach after all (the meter then reads the 1x locked to
+    # it, ui.meter). Its edges say the rotor turns; its silence proves nothing: standstill
+    # still rests on the pickups' long hold, and the words say a tach is fitted, not that
+    # there is none.
+    wall = [0.0]
+    w = watch_at(wall)
+    t = 0.0
+    for _ in range(50):  # the machine runs with the tach's edges, 29 Hz
+        t += 0.2
+        w.motion(t, motion(29.0))
+        for k in range(6):
+            w.edge(t + k / 29.0)
+    assert w.evidence().state is StandstillState.TURNING
+    t = quiet_for(w, t + 1.0, 10.0)  # the tach silent and the pickups quiet for 10 s
+    ev = w.evidence()
+    assert not ev.proven  # a trusted tach's 3 s hold would have proven it by now
+    assert "this method does not rely on the tach" in standstill_refusal(ev)
+    t = quiet_for(w, t, UNTRUSTED_TACH_HOLD_S)
+    ev = w.evidence()
+    assert ev.proven and ev.basis is Basis.PICKUPS_NO_TACH
+    assert standstill_basis_words(ev).startswith(
+        "a tach is fitted but this method does not rely on it: every pickup live and quiet")
+
+
 def test_no_tach_railed_pickups_prove_nothing() -> None:
     wall = [0.0]
     w = watch_at(wall)

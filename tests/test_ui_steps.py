@@ -222,3 +222,26 @@ def test_a_lost_link_mid_run_says_nothing_of_the_run_is_kept() -> None:
     assert seen["drawn"] == "link-panel" and panel_for(rig.proc.step) == "run-panel"
     assert "LINK LOST: the port vanished" in seen["text"]
     assert "Run 1 (as found) is incomplete: nothing of it was kept" in seen["text"]
+
+
+def test_the_status_strip_names_a_fitted_tach_in_an_amplitude_only_job() -> None:
+    # The amplitude-only job's watch does not rely on the tach, but a fitted tach's edges
+    # say the rotor turns: the strip says so with the tach's speed, not "(pickups, no
+    # tach)"; stopped and proven on the pickups it says the tach is not relied on
+    from trueturn.procedure.standstill import UNTRUSTED_TACH_HOLD_S
+    from trueturn.ui.views import StatusStrip
+
+    rig = Rig("shop-fan", Mode.AMPLITUDE_ONLY)
+    assert rig.proc.watch.tach_absent
+    rig.spin(5.0, 1740.0)  # a tach edge each turn, the pickups seeing the 1x
+
+    def strip() -> str:
+        s = StatusStrip()
+        s.show(snapshot(rig, MeterReadings(rig.setup.sensors, speed_rpm=1740.0)),
+               machine="fan", demo=True, identity=None, link_error="", reconnecting=False)
+        return str(s.text)
+
+    assert "TURNING 1740 rpm" in strip() and "no tach" not in strip()
+    rig.coast(1740.0)
+    rig.rest(UNTRUSTED_TACH_HOLD_S + 5.0)
+    assert "STANDSTILL[/] (tach not relied on; pickups quiet" in strip()

@@ -632,7 +632,9 @@ def standstill_refusal(ev: StandstillEvidence) -> str:
     if not ev.pickups:
         return "the pickups' signal is not judged yet: wait a moment"
     if ev.tach_absent:
-        return (f"checking standstill: {ev.wait_s:.1f} s to go (no tach on this machine: the "
+        tach = ("no tach on this machine" if not ev.tach_edges_seen else
+                "this method does not rely on the tach")
+        return (f"checking standstill: {ev.wait_s:.1f} s to go ({tach}: the "
                 f"pickups must stay quiet and live {ev.tach_hold_needed_s:.0f} s, quiet "
                 f"{ev.pickups_quiet_s:.1f} s so far)")
     return (f"checking standstill: {ev.wait_s:.1f} s to go (tach silent "
@@ -653,8 +655,10 @@ def standstill_basis_words(ev: StandstillEvidence) -> str:
     """What proved standstill, for the screen (e.g. tach silent 3 s, seen working ...)."""
     levels = ", ".join(f"{p.name} {p.level_g_rms:.3f} {p.unit} rms" for p in ev.pickups)
     if ev.tach_absent:
-        return (f"no tach on this machine: every pickup live and quiet "
-                f"{ev.pickups_quiet_s:.0f} s: {levels}")
+        # the amplitude-only procedure rests on the pickups, whether a tach was fitted or not
+        tach = ("no tach on this machine" if not ev.tach_edges_seen else
+                "a tach is fitted but this method does not rely on it")
+        return f"{tach}: every pickup live and quiet {ev.pickups_quiet_s:.0f} s: {levels}"
     if ev.tach_trusted:
         seen = (f", last edge {ev.last_edge_age_s:.0f} s ago at "
                 f"{ev.last_speed_rpm:.0f} rpm" if ev.last_speed_rpm else "")

@@ -41,15 +41,17 @@ class StatusStrip(MarkupText):
         elif ev is None or state is StandstillState.NO_DATA:
             motion = "[b red]NO DATA[/]: standstill cannot be proven"
         elif state is StandstillState.PROVEN and ev.tach_absent:
-            motion = f"[green]STANDSTILL[/] (no tach; pickups quiet {ev.pickups_quiet_s:.0f} s)"
+            # the amplitude-only procedure: the pickups alone, a tach fitted or not
+            tach = "no tach" if not ev.tach_edges_seen else "tach not relied on"
+            motion = f"[green]STANDSTILL[/] ({tach}; pickups quiet {ev.pickups_quiet_s:.0f} s)"
         elif state is StandstillState.PROVEN:
             motion = (f"[green]STANDSTILL[/] (tach silent {ev.tach_silent_s:.0f} s, "
                       "pickups quiet)")
+        elif state is StandstillState.TURNING:   # tach edges: believed, whatever the method
+            motion = f"[b red]TURNING {speed or 0:.0f} rpm[/]"
         elif ev.tach_absent and ev.moving_pickups:
             motion = (f"[b red]TURNING ~{speed:.0f} rpm[/] (pickups, no tach)" if speed else
                       "[b red]MOVING[/] (the pickups see vibration; no tach)")
-        elif state is StandstillState.TURNING:
-            motion = f"[b red]TURNING {speed or 0:.0f} rpm[/]"
         elif state is StandstillState.TACH_FAULT:
             hz = ev.seen_hz
             motion = "[b red]TACH FAULT[/]: pickups see " + (

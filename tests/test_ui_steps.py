@@ -122,29 +122,30 @@ def test_a_runaway_on_the_model_check_says_the_model_is_refuted_and_trials_follo
     assert "Stopped (vibration too high): the model's correction comes off" in text
 
 
-def test_a_tachless_run_says_when_its_speed_comes_from_a_harmonic() -> None:
-    # the meter's finding (dsp.tachless: the 1x lost in the noise, the speed from the 2x)
-    # reaches the run panel's first line; without it the plain spectrum line stays
+def _amplitude_only_run_text(*findings: Finding) -> str:
+    """The guide of an amplitude-only run under way, the meter at 3541 rpm with
+    ``findings``."""
     rig = Rig("bench-grinder", Mode.AMPLITUDE_ONLY)
     rig.hands_on()
     rig.proc.arm_run(True, rig.t)
-    meter = MeterReadings(rig.setup.sensors, speed_rpm=3541.0, findings=[
-        Finding(Code.SPEED_FROM_ORDER, details={"order": 2, "speed_rpm": 3541.0})])
-    text = shown(rig, meter)["text"]
+    meter = MeterReadings(rig.setup.sensors, speed_rpm=3541.0, findings=list(findings))
+    return shown(rig, meter)["text"]
+
+
+def test_a_tachless_run_says_when_its_speed_comes_from_a_harmonic() -> None:
+    # the meter's finding (dsp.tachless: the 1x lost in the noise, the speed from the 2x)
+    # reaches the run panel's first line; without it the plain spectrum line stays
+    text = _amplitude_only_run_text(
+        Finding(Code.SPEED_FROM_ORDER, details={"order": 2, "speed_rpm": 3541.0}))
     assert "No tach: speed from the 2x line (about 3541 rpm), the 1x being lost" in text
-    plain = shown(rig, MeterReadings(rig.setup.sensors, speed_rpm=3541.0))["text"]
+    plain = _amplitude_only_run_text()
     assert "No tach: speed from the spectrum (about 3541 rpm)" in plain
 
 
 def test_an_amplitude_only_run_says_when_a_tach_reads_its_1x() -> None:
     # a tach fitted after all (ui.meter: finding tach_reads_1x): the run panel says the 1x
     # is read locked to it and that the method takes its amplitude, not "no tach"
-    rig = Rig("bench-grinder", Mode.AMPLITUDE_ONLY)
-    rig.hands_on()
-    rig.proc.arm_run(True, rig.t)
-    meter = MeterReadings(rig.setup.sensors, speed_rpm=3541.0, findings=[
-        Finding(Code.TACH_READS_1X, details={"speed_rpm": 3541.0})])
-    text = shown(rig, meter)["text"]
+    text = _amplitude_only_run_text(Finding(Code.TACH_READS_1X, details={"speed_rpm": 3541.0}))
     assert "Tach seen: speed 3541 rpm from it, the 1x read locked to it" in text
     assert "No tach" not in text
 

@@ -104,18 +104,12 @@ def test_a_check_run_whose_1x_is_lost_in_the_noise_reads_it_at_the_2x_speed(tmp_
                             "sim://shop-fan?realtime=0&unbalance=none&tach=off",
                             "--seconds", "20", "-o", str(cap)])
     assert code == 0, err
-    _, raw = read_capture(cap)
     profile = scenario_profile("shop-fan")
     sensors = [p.name for p in profile.pickups]
     band = speed_band_hz(1737.0, profile.max_speed_rpm)  # the planned speed (scenario)
 
-    def view(reference_rpm: float | None):  # noqa: ANN202 - the adapter's own MeterView
-        meter = MeterAdapter(sensors, 60.0, profile.pickups)
-        meter.use_tachless(band, reference_rpm)
-        for msg in StreamDecoder().feed(raw):
-            if isinstance(msg, Message):
-                meter.feed(msg)
-        return meter.view()
+    def view(reference_rpm: float | None) -> MeterView:
+        return _amplitude_only_view(cap, band, reference_rpm)
 
     lost = view(None)  # before the as-found run: no speed, no reading, and why
     assert lost.readings == {} and [f.code for f in lost.findings] == [Code.NO_SPEED_LINE]
@@ -227,6 +221,12 @@ def test_a_tach_reads_the_same_1x_as_the_spectrum_and_only_at_the_planned_speed(
     meter = _amplitude_only_meter(cap, band, 1740.0)
     with_tach = meter.view()
     assert Code.TACH_READS_1X in [f.code for f in with_tach.findings]
+    assert meter.tachless is not None
+    for r in meter.tachless.readings():   # the spectrum's own readings of the same stream
+        locked = with_tach.readings[r.sensor]
+        assert r.confidence_radius is not None and locked.confidence_radius is not None
+        assert abs(locked.amplitude - r.amplitude) <= math.hypot(r.confidence_radius,
+                                                                 locked.confidence_radius)
     # the spectrum's speed 5 % off the tach's (more than the 3 % one job's runs may differ):
     # the tach is not used, the spectrum's (here no) readings stand
     assert with_tach.speed_rpm is not None
@@ -235,16 +235,3 @@ def test_a_tach_reads_the_same_1x_as_the_spectrum_and_only_at_the_planned_speed(
     assert off.readings == {} and Code.TACH_READS_1X not in [f.code for f in off.findings]
     meter.tachless = _SpectrumAt(band, 1.01 * with_tach.speed_rpm)  # type: ignore[assignment]
     assert Code.TACH_READS_1X in [f.code for f in meter.view().findings]
-    _, raw = read_capture(cap)
-    profile = scenario_profile("shop-fan")
-    spectrum = MeterAdapter([p.name for p in profile.pickups], 60.0, profile.pickups)
-    spectrum.use_tachless(speed_band_hz(1737.0, max_rpm), 1740.0)
-    for msg in StreamDecoder().feed(raw):
-        if isinstance(msg, Message):
-            spectrum.feed(msg)
-    assert spectrum.tachless is not None
-    for r in spectrum.tachless.readings():
-        locked = with_tach.readings[r.sensor]
-        assert r.confidence_radius is not None and locked.confidence_radius is not None
-        assert abs(locked.amplitude - r.amplitude) <= math.hypot(r.confidence_radius,
-                                                                 locked.confidence_radius)

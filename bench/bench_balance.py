@@ -120,6 +120,7 @@ from trueturn.dsp.units import PickupProfile  # noqa: E402
 from trueturn.errors import UserError  # noqa: E402
 from trueturn.model import Correction  # noqa: E402
 from trueturn.procedure.engine import (  # noqa: E402
+    TRIAL_FIT_DESPITE,
     TRIAL_REDO_MARGIN,
     short_of_grade,
     tap_may_help,
@@ -602,10 +603,20 @@ def sweep_curve(shop: Shop, rng) -> SweepCurve | None:
     return SweepCurve(speeds, noisy, sigma)
 
 
-def trial_prediction(rotor: RigidRotor, speed: float, sweep: dict[str, list[SupportResonance]]):
+def trial_prediction(rotor: RigidRotor, speed: float, sweep: dict[str, list[SupportResonance]],
+                     curve: SweepCurve | None = None):
     """The sensitivity the app sizes a trial from (procedure.engine._trial_prediction):
-    the rigid rotor on supports with the coast-down's resonances when it says only a
-    magnitude for a stiff mount or nothing speaks against it, else the free rigid rotor."""
+    on a soft mount the support model fitted to the coast-down's ``curve`` when it has a
+    phase and nothing speaks against it but what does not matter to a trial's size
+    (engine.BalanceEngine.trial_sensitivity: the app's by-planes procedures; None for the
+    model-first fallback, which the app sizes from the resonances); else the rigid rotor on
+    supports with the coast-down's resonances when it says only a magnitude for a stiff
+    mount or nothing speaks against it, else the free rigid rotor."""
+    if curve is not None and any(sweep.values()):
+        fitted = predict_influence(layout_of(rotor), placements(rotor), speed, sweep,
+                                   curve=curve)
+        if not fitted.magnitude_only and not set(fitted.distrust) - TRIAL_FIT_DESPITE:
+            return fitted
     pred = predict_influence(layout_of(rotor), placements(rotor), speed, sweep)
     if pred.magnitude_only and Distrust.STIFFNESS_UNKNOWN in pred.distrust:
         return pred
@@ -780,8 +791,10 @@ def one_rotor(rng: np.random.Generator, sizing: str, soft: bool) -> dict:
     # the coast-down after the as-found run gives each pickup's slope (issue #20 item 2)
     slopes = speed_slopes(rotor, speed, shop.true_masses, rng)
     # the coast-down after the as-found run gives the sweep (issue #20 item 1), and the
-    # trials are sized with its resonances as the app sizes them
-    prediction = trial_prediction(rotor, speed, sweep_resonances(rotor, speed, rng))
+    # trials are sized with its resonances and its curve as the app sizes them (the
+    # curve's scatter from its own draws, seeded by the rotor: the other draws stay)
+    curve = sweep_curve(shop, np.random.default_rng(int(rotor.mass_kg * 1e9) + 11))
+    prediction = trial_prediction(rotor, speed, sweep_resonances(rotor, speed, rng), curve)
     report, n_runs, first_reduction, too_small, redone, stopped = classic_after_as_found(
         shop, rng, runs, prediction, sizing, tolerance, slopes, before, as_found)
     if report is None:

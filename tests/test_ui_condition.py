@@ -102,7 +102,8 @@ def test_belt_drive_going_on_anyway_reaches_the_trial(tmp_path: Path) -> None:
             await wait_for(pilot, lambda: isinstance(proc.step, ShowDoubt), 10)
             await press(app, pilot, "enter")
             await wait_for(pilot, lambda: isinstance(proc.step, HandsOn), 10)
-            await wait_for(pilot, lambda: "Attach trial mass" in screen_text(app), 10)
+            # its size once the coast-down is fitted (issue #20 item 3: seconds of work)
+            await wait_for(pilot, lambda: "Attach trial mass" in screen_text(app), 60)
             assert "balancing may not help" in screen_text(app)  # still said below the step
             panel_fits(app, "Attach the trial mass")
             job = read_document(app.keeper.path, "job")
@@ -163,6 +164,9 @@ def test_a_second_start_of_the_grinder_repeats_and_the_trial_follows(tmp_path: P
             await press(app, pilot, "x")
             await wait_for(pilot, lambda: "n: optional: start it again" in screen_text(app), 60)
             panel_fits(app, "n: optional: start")
+            # the trial as sized from the coast-down (issue #20 item 3), which the second
+            # start comes back to
+            await wait_for(pilot, lambda: not proc.sizing_trial, 60)
             trial_step = proc.step
             await press(app, pilot, "n")
             await wait_for(pilot, lambda: isinstance(proc.step, Measure), 10)

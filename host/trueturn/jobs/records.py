@@ -412,6 +412,10 @@ class SweepEntry:
     #: the side file beside the job that holds the points (:class:`SweepPointsFile`), written
     #: once when the sweep was kept, so a save of the job does not grow with its sweeps
     points_file: str | None = field(default=None, metadata=limits(nonempty=True))
+    #: samples at the ADC's ends while it was recorded (a resonance drove a pickup past its
+    #: range: some points' 1x read low, so its curve is not fitted point by point); 0 in
+    #: files written before it was kept
+    clipped_samples: int = field(default=0, metadata=limits(minimum=0))
     #: why the points could not be read from ``points_file`` (never saved; set on loading)
     points_problem: str | None = field(default=None, init=False, compare=False,
                                        metadata={"transient": True})

@@ -36,7 +36,8 @@ def sweep_entry(outcome: SweepOutcome) -> SweepEntry:
         r.half_power_damping_ratio, r.swept, r.peak_rpm, r.sweep_rate_parameter)
         for r in sweep.resonances]
     return SweepEntry(outcome.kind, now_iso(), sweep.unit, sweep.low_rpm, sweep.high_rpm,
-                      points, resonances, outcome.balancing_rpm)
+                      points, resonances, outcome.balancing_rpm,
+                      clipped_samples=outcome.clipped_samples)
 
 
 def sweep_of(entry: SweepEntry) -> Sweep:
@@ -52,6 +53,23 @@ def sweep_of(entry: SweepEntry) -> Sweep:
         r.swept, r.peak_rpm, r.sweep_rate_parameter)
         for r in entry.resonances)
     return Sweep(entry.unit, points, resonances, entry.low_rpm, entry.high_rpm, True)
+
+
+def outcome_of(entry: SweepEntry) -> SweepOutcome:
+    """The kept entry as the finished recording it came from (its findings are not kept:
+    none), as the model and the trial sizing take it."""
+    return SweepOutcome(entry.kind, sweep_of(entry), entry.balancing_rpm, (),
+                        entry.clipped_samples)
+
+
+def as_found_coast_down(job: JobRecord) -> SweepEntry | None:
+    """The as-found run's coast-down the job kept with its points (the last one measured
+    when the as-found run was measured again); None when there is none (the app was closed
+    while it coasted, or its side file cannot be read)."""
+    if not job.runs or job.runs[0].kind != RunKind.AS_FOUND:
+        return None
+    kept = [sw for sw in job.runs[0].sweeps if sw.kind == "coastdown" and sw.points]
+    return kept[-1] if kept else None
 
 
 def slope_sweeps(job: JobRecord) -> list[Sweep]:

@@ -196,6 +196,15 @@ def sweep_evidence(outcome: SweepOutcome | None, sensors: Sequence[str],
     return SweepEvidence(resonances, curve_from_sweep(outcome, sensors))
 
 
+#: the reasons a model fitted to the coast-down is not trusted for a correction that do not
+#: matter to a trial's size (:meth:`BalanceEngine.trial_sensitivity`): a correction that
+#: might overshoot or be too small to see is judged to a few percent; a trial only needs
+#: its effect within a factor, and the check after the trial run asks for more when short.
+#: A mounted mass the profile does not give is what the fit to the curve finds instead
+TRIAL_FIT_DESPITE = frozenset({Distrust.TOO_UNCERTAIN, Distrust.UNSEEN_EFFECT,
+                               Distrust.NO_MOUNTED_MASS})
+
+
 #: the reasons a stiff mount's model is not trusted that a tap test can answer: the fit to
 #: the coast-down's curve cannot tell the supports' stiffness, so its draws say too
 #: uncertain or its correction too small to see, or it puts a resonance the coast-down did
@@ -437,14 +446,64 @@ class BalanceEngine:
         return free_rotor_prediction(setup.sensors, setup.mounted_mass_kg or setup.rotor_mass_kg,
                                      [p.radius_mm for p in planes], setup.speed_rpm)
 
+    def trial_fit_wanted(self, setup: ProcedureSetup) -> bool:
+        """The trials may be sized from the support model fitted to the as-found run's
+        coast-down (:meth:`trial_sensitivity`): a procedure with a trial run per plane that
+        reads the 1x with its phase, on a profile that places both bearings and every
+        plane (what the rigid rotor on its supports needs)."""
+        return (setup.mode in (Mode.ONE_PLANE, Mode.TWO_PLANE) and len(setup.bearings) == 2
+                and all(p.axial_mm is not None for p in planes_for(setup)))
+
+    def trial_sensitivity(self, setup: ProcedureSetup,
+                          evidence: SweepEvidence | None) -> PredictedInfluence | None:
+        """The sensitivity the trials are sized from when the as-found coast-down can be
+        fitted: the rigid rotor on supports fitted to the whole curve
+        (:func:`trueturn.balance.model_first.predict_influence` with ``curve``; seconds of
+        work, so the app calls it off the screen's thread). Only on a soft mount (a
+        resonance below the speed at some pickup: a stiff mount's curve cannot tell the
+        stiffness, and the force floor of :meth:`_trial_prediction` stands), and only when
+        the fit says a phase and nothing speaks against it but what does not matter to a
+        trial's size (:data:`TRIAL_FIT_DESPITE`). None otherwise: the trials are sized
+        from the resonances alone (:meth:`_trial_prediction`).
+
+        Parameters
+        ----------
+        setup : ProcedureSetup
+        evidence : SweepEvidence or None
+            The as-found run's coast-down (:func:`sweep_evidence`; None: none kept).
+
+        Returns
+        -------
+        PredictedInfluence or None
+
+        References
+        ----------
+        .. [1] :mod:`trueturn.balance.support_fit` (the fit; ours). bench/bench_balance.py
+           measured it on 600 soft mounts: trial runs stopped by the runaway alarm 0.3 %
+           against 1.5-2 % sized from the resonances alone.
+        """
+        if (evidence is None or evidence.curve is None or not self.trial_fit_wanted(setup)
+                or not any(evidence.resonances.values())):
+            return None
+        layout, placements = _layout_and_placements(setup)
+        pred = predict_influence(layout, placements, setup.speed_rpm, evidence.resonances,
+                                 curve=evidence.curve)
+        if pred.magnitude_only or set(pred.distrust) - TRIAL_FIT_DESPITE:
+            return None
+        return pred
+
     def _trial_prediction(self, setup: ProcedureSetup) -> PredictedInfluence:
-        """The sensitivity a trial is sized from: with the as-found coast-down's support
+        """The sensitivity a trial is sized from: the support model fitted to the as-found
+        coast-down's curve when the app has it (``setup.trial_sensitivity``,
+        :meth:`trial_sensitivity`); else with the as-found coast-down's support
         resonances (``setup.support_resonances``) the rigid rotor on its supports, kept
         when it says only a magnitude (a stiff mount: no resonance below the speed, the
         force floor applies) or when nothing speaks against it; else (near a resonance, no
         pickup angle for a phase, no sweep) the free rigid rotor of :meth:`prediction`. A
         profile without the mass on the mounts sizes from the rotor alone (its largest
         response, so the smallest trial: the check after the run asks for more)."""
+        if isinstance(setup.trial_sensitivity, PredictedInfluence):
+            return setup.trial_sensitivity
         res = setup.support_resonances
         planes = planes_for(setup)
         if (isinstance(res, dict) and len(setup.bearings) == 2

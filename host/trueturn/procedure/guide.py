@@ -41,7 +41,7 @@ import math
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, replace
 from enum import Enum
-from typing import ClassVar, Literal, Protocol
+from typing import Any, ClassVar, Literal, Protocol
 
 from trueturn.angles import angle_difference_deg, wrap_deg
 from trueturn.balance.model_first import Distrust
@@ -107,6 +107,10 @@ RESUME_CHECK_TITLE = "Resumed job: check the rotor"
 MODEL_SWEEP_LOST = ("the model needs the as-found run's coast-down, which was not recorded "
                     "before the app closed: run the machine as found once more and let it "
                     "coast down")
+#: the lock-out gate of a trial waiting for its size from the as-found run's coast-down
+#: (:meth:`Procedure.await_trial_sizing`): the size shown before it would not be the one used
+TRIAL_SIZING_WAIT = ("the trial is being sized from the as-found run's coast-down: a few "
+                     "seconds once the machine has stopped")
 #: a check run with a clipped reading (a pickup reached an ADC rail: its 1x reads low) can
 #: neither be judged nor trimmed from: it is measured again once the cause is fixed
 CLIPPED_CHECK_RUN = ("a pickup's signal reached the end of the ADC's range in this run, so "
@@ -265,6 +269,10 @@ class ProcedureSetup:
     #: type, opaque here; :func:`trueturn.procedure.engine.resonances_of_sweeps`): the
     #: trials are sized with them; None: no sweep kept
     support_resonances: object = None
+    #: the sensitivity fitted to the as-found coast-down's whole curve (the engine's type,
+    #: opaque here; :meth:`trueturn.procedure.engine.BalanceEngine.trial_sensitivity`):
+    #: the trials are sized from it before the resonances; None: not fitted
+    trial_sensitivity: object = None
 
 
 @dataclass(frozen=True)
@@ -476,6 +484,17 @@ class Engine(Protocol):
                        prior: object) -> object:
         """Model-first: the prior refined by ``runs`` (the engine's type; the job keeps
         its coefficients)."""
+        ...
+
+    def trial_fit_wanted(self, setup: ProcedureSetup) -> bool:
+        """The trials may be sized from a fit to the as-found run's coast-down (the app
+        then asks :meth:`trial_sensitivity` off its screen's thread)."""
+        ...
+
+    def trial_sensitivity(self, setup: ProcedureSetup, evidence: Any) -> object:
+        """The sensitivity fitted to the as-found coast-down (``evidence``: the engine's
+        sweep evidence, None: no coast-down kept) the trials are sized from; None: the
+        fit cannot be had or trusted (the trials are sized as before)."""
         ...
 
 
@@ -722,6 +741,10 @@ class Procedure:
         self.doubt: tuple[str, ...] = ()
         self.stopped: EarlyStop | None = None
         self._before_trials: Step | None = None  # the first trial's hands-on step
+        #: the last trial hands-on step as built, and whether its size waits for the fit to
+        #: the as-found run's coast-down (:meth:`await_trial_sizing`)
+        self._trial_step: Step | None = None
+        self._trial_sizing_awaited = False
         self._return_step: Step | None = None  # where a second start goes back to
         #: the number of each kept run (1, 2, ... in the order measured; parallel to runs)
         self.run_numbers: list[int] = []
@@ -947,10 +970,13 @@ class Procedure:
         self.evidence_log.append(evidence)
 
     def lock_out(self, now_s: float) -> None:
-        """The person says power is off and locked out; allowed only at proven standstill."""
+        """The person says power is off and locked out; allowed only at proven standstill,
+        and not while the trial to attach waits for its size (:attr:`sizing_trial`)."""
         if self.step.kind != "hands-on" or self.step.phase != "lockout":
             raise GateRefused("no hands-on step is waiting for lock-out")
-        ev = self._require_standstill()
+        ev = self._require_standstill()   # a turning rotor is said first
+        if self.sizing_trial:
+            raise GateRefused(TRIAL_SIZING_WAIT)
         self._require_ticks(LOCKOUT_CHECKLIST)
         self._confirm(now_s, f"lock-out before: {self.step.title}", ev)
         self.ticked = set()
@@ -1587,6 +1613,55 @@ class Procedure:
                                             self.model.prior)
         return self.engine.assess(self.setup, self.runs, self.removal)
 
+    # ---- trials sized from the coast-down (issue #20 item 3) ------------------------------
+    def await_trial_sizing(self) -> None:
+        """The app will size the trials from the as-found run's coast-down (it records the
+        coast-down, or a continued job kept one): until :meth:`trial_sizing_in`, the trial's
+        hands-on step is not opened (:attr:`sizing_trial`), so the size a person weighs out
+        is the one used. Nothing to wait for when no trial is still to come, the fit is
+        already in, or the engine cannot size from a fit (:meth:`Engine.trial_fit_wanted`)."""
+        if (self.setup.mode in (Mode.ONE_PLANE, Mode.TWO_PLANE) and self.runs
+                and len(self.runs) <= len(self._runs_needed())
+                and self.setup.trial_sensitivity is None
+                and self.engine.trial_fit_wanted(self.setup)):
+            self._trial_sizing_awaited = True
+
+    @property
+    def trial_sizing_awaited(self) -> bool:
+        """The app owes the trials their size (:meth:`trial_sizing_in`)."""
+        return self._trial_sizing_awaited
+
+    @property
+    def sizing_trial(self) -> bool:
+        """The step shown attaches a trial whose size is still awaited."""
+        return (self._trial_sizing_awaited and self._trial_step is not None
+                and self.step == self._trial_step)
+
+    def trial_sizing_in(self, sensitivity: object) -> None:
+        """The fit to the as-found coast-down is done (``sensitivity``: the engine's
+        :meth:`Engine.trial_sensitivity`; None: no fit, the trials keep their size). A
+        trial's hands-on step not yet opened (nor its mass entered as fitted) is sized
+        again with it, wherever it waits (shown, behind a doubt or a second start)."""
+        self._trial_sizing_awaited = False
+        if sensitivity is None:
+            return
+        self.setup = replace(self.setup, trial_sensitivity=sensitivity)
+        old = self._trial_step
+        if not isinstance(old, HandsOn) or old.phase is not HandsOnPhase.LOCKOUT:
+            return
+        changes = tuple(
+            MassChange("attach", self._trial_mass(self.plane(c.mass.plane), 0.0))
+            if c.action == "attach" and c.mass is not None and c.mass.kind == MassKind.TRIAL
+            and c.suggested is None else c for c in old.changes)
+        new = replace(old, changes=changes)
+        self._trial_step = new
+        if self.step == old:
+            self.step = new
+        if self._before_trials == old:
+            self._before_trials = new
+        if self._return_step == old:
+            self._return_step = new
+
     # ---- is it unbalance? (issue #22) --------------------------------------------------
     @property
     def offers_second_start(self) -> bool:
@@ -1747,6 +1822,7 @@ class Procedure:
             label, plane, offset = trials[n_runs - 1]
             changes.append(MassChange("attach", self._trial_mass(plane, offset)))
             self.step = HandsOn(f"Attach the trial mass for: {label}", tuple(changes))
+            self._trial_step = self.step
             if n_runs == 1:
                 self._before_trials = self.step
             return

@@ -69,6 +69,7 @@ from trueturn.ui.resume import (
     OpenJob,
     as_found_condition,
     find_open_job,
+    job_coast_down_evidence,
     job_speed_slopes,
     job_support_resonances,
     refuse_changed_profile,
@@ -432,6 +433,8 @@ class TrueturnApp(App):
         self.sweep_coasting = False
         self.sweeps_pending = 0  # recordings being fitted off the refresh (_finish_sweep)
         self.tap_analysing = False  # a tap test's recording is being analysed (a thread)
+        #: the trials' size is being fitted to the as-found coast-down (a thread)
+        self.trial_sizing = False
 
     # ---- lifecycle ----------------------------------------------------------------------
     def on_mount(self) -> None:
@@ -636,6 +639,7 @@ class TrueturnApp(App):
             return
         self.procedure, self.open_job = proc, None
         self.keeper.resume(job, path)
+        proc.await_trial_sizing()  # from the kept coast-down, as live (_size_trials)
         if len(proc.runs) == 1:  # the machine's condition as found, as shown live
             self.as_found_condition = as_found_condition(job)
             self.condition = texts.condition_lines(*self.as_found_condition, as_found=True)
@@ -1025,6 +1029,9 @@ class TrueturnApp(App):
             self._finish_sweep(self.session.stop_sweep_recording(), self.sweep_run,
                                self.sweep_label, self._coast_down_analysed,
                                self.sweep_speed_rpm, self._model_answer)
+        if (proc is not None and proc.trial_sizing_awaited and not self.sweep_coasting
+                and self.sweeps_pending == 0 and not self.trial_sizing):
+            self._size_trials(proc)
         bench.query_one("#status", StatusStrip).show(
             snap, machine=self.config.profile.name, demo=self.config.demo,
             identity=self.session.identity, link_error=self.link_error,
@@ -1063,6 +1070,8 @@ class TrueturnApp(App):
             speeds = [r.speed_rpm for r in meter.readings.values()
                       if r.speed_rpm is not None and r.speed_rpm > 0]
             run = proc.record(meter.readings, statistics.fmean(speeds), now, live)
+            if run.kind is RunKind.AS_FOUND and run is not proc.second_start:
+                proc.await_trial_sizing()  # from the coast-down that follows (_size_trials)
             condition = None
             note = ""
             if run is proc.second_start:
@@ -1197,6 +1206,36 @@ class TrueturnApp(App):
                     outcome, proc.setup.sensors,
                     proc.runs[0].speed_rpm or proc.setup.speed_rpm))
             self.keeper.model(proc)  # a continued job uses the very same model
+
+    def _size_trials(self, proc: Procedure) -> None:
+        """Size the trials from the as-found run's coast-down as the job keeps it (the
+        support fit to its curve takes seconds: in a thread), so a continued job sizes
+        them alike (:func:`trueturn.ui.resume.job_coast_down_evidence`); without a kept
+        coast-down, or a curve to fit, they keep the size they have."""
+        job = self.keeper.job
+        evidence = job_coast_down_evidence(job, proc.setup.sensors) if job is not None else None
+        if evidence is None or evidence.curve is None:
+            proc.trial_sizing_in(None)
+            return
+        self.trial_sizing = True
+        setup = proc.setup
+
+        def done(sensitivity: object, failed: bool) -> None:
+            self.trial_sizing = False
+            if failed:
+                self.message = texts.TRIAL_FIT_FAILED
+            if self.procedure is proc and proc.trial_sizing_awaited:
+                proc.trial_sizing_in(sensitivity)
+            self.tick()
+
+        def fit() -> None:
+            try:
+                sensitivity, failed = proc.engine.trial_sensitivity(setup, evidence), False
+            except Exception:  # noqa: BLE001 - the trial keeps its size, said
+                sensitivity, failed = None, True
+            self.call_from_thread(done, sensitivity, failed)
+
+        self.run_worker(fit, thread=True, group="trial-sizing", exit_on_error=False)
 
     def model_words(self) -> tuple[str, ...]:
         """Model-first: why the model was not trusted, while the trials it led to go on."""

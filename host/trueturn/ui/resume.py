@@ -24,7 +24,6 @@ import numpy as np
 from trueturn.angles import phasor
 from trueturn.balance.model_first import PredictedInfluence
 from trueturn.balance.support_fit import StandstillMode
-from trueturn.dsp.coast import SweepOutcome
 from trueturn.dsp.findings import Finding
 from trueturn.dsp.severity import BAND_HZ, NoSeverity, Severity, Zone
 from trueturn.dsp.unbalance import failing_rules
@@ -33,7 +32,7 @@ from trueturn.jobs import records as rec
 from trueturn.jobs.condition import evidence_finding, verdict_finding
 from trueturn.jobs.profiles import MachineProfile
 from trueturn.jobs.store import Workspace
-from trueturn.jobs.sweeps import slope_sweeps, sweep_of
+from trueturn.jobs.sweeps import as_found_coast_down, outcome_of, slope_sweeps
 from trueturn.model import MassKind, PlacedMass, Plane, Run, RunKind
 from trueturn.positions import index_of, number_of, position_text
 from trueturn.procedure.engine import (
@@ -280,13 +279,20 @@ def offered_tap_evidence(job: rec.JobRecord, sensors: tuple[str, ...]
     model = job.model
     if model is None or not model.tap_offered or model.tap is not None or len(job.runs) != 1:
         return None
-    as_found = job.runs[0]
-    kept = [sw for sw in as_found.sweeps if sw.kind == "coastdown" and sw.points]
-    if not kept:
+    return job_coast_down_evidence(job, sensors)
+
+
+def job_coast_down_evidence(job: rec.JobRecord, sensors: tuple[str, ...]
+                            ) -> SweepEvidence | None:
+    """The as-found run's coast-down as the job keeps it, rebuilt as the engine takes it
+    (:func:`trueturn.procedure.engine.sweep_evidence`: the resonances below the as-found
+    speed and the curve); None when the job kept none. The live app sizes the trials from
+    it once the coast-down is kept, and a continued job the same
+    (:meth:`trueturn.procedure.engine.BalanceEngine.trial_sensitivity`)."""
+    entry = as_found_coast_down(job)
+    if entry is None:
         return None
-    entry = kept[-1]
-    outcome = SweepOutcome("coastdown", sweep_of(entry), entry.balancing_rpm, ())
-    return sweep_evidence(outcome, sensors, as_found.speed_rpm)
+    return sweep_evidence(outcome_of(entry), sensors, job.runs[0].speed_rpm)
 
 
 def restore_procedure(job: rec.JobRecord, engine: Engine, watch: StandstillWatch | None,

@@ -224,7 +224,9 @@ class HandsOnPanel(ProcedurePanel):
         changes = step.changes
         u = self.units
         pictured = pictures_for(changes, proc.planes_used, ctx.profile.rotation)
-        if proc.checking_resumed_rotor:  # what the job says is on the rotor, item by item
+        if proc.sizing_trial:  # the size shown is the one used: none till it is in
+            self.work = (texts.TRIAL_SIZING,)
+        elif proc.checking_resumed_rotor:  # what the job says is on the rotor, item by item
             checks = tuple("  " + describe_change(c, proc, ctx.engine, u) for c in changes)
             self.work = (texts.RESUMED_CHECK, *(checks or ("  nothing added to the rotor",)))
         elif any(c.mass is not None for c in changes) and fits_legend(pictured):
@@ -802,7 +804,8 @@ class GuideView(Vertical):
         hands_on = proc.step if proc is not None and not ctx.link_error else None
         self.query_one("#placement", PlacementView).show(
             pictures_for(hands_on.changes, proc.planes_used, ctx.profile.rotation)
-            if isinstance(hands_on, HandsOn) and proc is not None else (),
+            if isinstance(hands_on, HandsOn) and proc is not None
+            and not proc.sizing_trial else (),   # no size drawn that is not the one used
             ctx.profile.units.choice())
         msg = self.query_one("#guide-msg", MessageLine)
         msg.alarm = bool(ctx.alarm)

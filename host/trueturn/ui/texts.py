@@ -245,6 +245,16 @@ A_STOP_RUN = ("Stop at once on a warning below. [b]a[/b]: stop this run now (not
 MODEL_WAITING = ("The model needs this run's coast-down: switch the machine off and let it "
                  "run down to a stop by itself (no brake). Nothing hands-on until it stands "
                  "still.")
+
+
+# ---- trials sized from the coast-down (issue #20 item 3) ------------------------------------
+TRIAL_SIZING = ("The trial is sized from this run's coast-down: let the machine run down to a "
+                "stop by itself (no brake). Its size shows here a few seconds after it stands "
+                "still.")
+TRIAL_FIT_FAILED = ("The coast-down's curve could not be fitted: the trial keeps the size its "
+                    "resonances gave.")
+
+
 def model_refused(codes: Sequence[str]) -> str:
     """One line: why the model gives no correction, and what happens instead."""
     why = "; ".join(DISTRUST_WORDS.get(c, c) for c in codes) or "no reason given"

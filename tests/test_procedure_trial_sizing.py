@@ -83,6 +83,7 @@ def test_the_grinders_trial_is_sized_from_its_coast_down_and_seen(
     with pytest.raises(GateRefused) as refused:
         proc.lock_out(rig.t)
     assert str(refused.value) == TRIAL_SIZING_WAIT
+    assert proc.fittable() == ()   # no size shown: nothing to enter as fitted instead
     sensitivity = fitted(rig, coast_down)
     proc.trial_sizing_in(sensitivity)
     assert not proc.trial_sizing_awaited and not proc.sizing_trial

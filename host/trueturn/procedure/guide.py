@@ -1013,6 +1013,8 @@ class Procedure:
         the rotor (indexes into its changes); at a run not started yet, the masses the
         hands-on step before it put on (indexes into :meth:`fit_target`'s list)."""
         if isinstance(self.step, HandsOn):
+            if self.sizing_trial:   # no size shown yet: nothing to have fitted instead
+                return ()
             return tuple(k for k, c in enumerate(self.step.changes)
                          if c.action == "attach" and c.mass is not None)
         if isinstance(self.step, Measure) and self.step.phase is RunPhase.ARMING:
@@ -1046,6 +1048,8 @@ class Procedure:
         where the profile allows it). The run and every calculation after it use the
         fitted mass; the suggestion is kept beside it. Refused with one line when the
         entry is not possible; :meth:`undo_fit` takes the last entry back."""
+        if self.sizing_trial:
+            raise GateRefused(TRIAL_SIZING_WAIT)
         items = self.fittable()
         if not items:
             raise GateRefused("a fitted mass is entered at the hands-on step that places it, "

@@ -793,7 +793,8 @@ def one_rotor(rng: np.random.Generator, sizing: str, soft: bool) -> dict:
     # the coast-down after the as-found run gives the sweep (issue #20 item 1), and the
     # trials are sized with its resonances and its curve as the app sizes them (the
     # curve's scatter from its own draws, seeded by the rotor: the other draws stay)
-    curve = sweep_curve(shop, np.random.default_rng(int(rotor.mass_kg * 1e9) + 11))
+    curve = (sweep_curve(shop, np.random.default_rng(int(rotor.mass_kg * 1e9) + 11))
+             if sizing == "default" else None)   # the force rules size without it
     prediction = trial_prediction(rotor, speed, sweep_resonances(rotor, speed, rng), curve)
     report, n_runs, first_reduction, too_small, redone, stopped = classic_after_as_found(
         shop, rng, runs, prediction, sizing, tolerance, slopes, before, as_found)
@@ -959,9 +960,16 @@ def false_pass_rate(results: list[dict], key: str = "true_pass") -> float:
     return float(np.mean([not r[key] for r in said])) if said else 0.0
 
 
+def rotor_rng(seed: int, k: int) -> np.random.Generator:
+    """Rotor ``k``'s own random stream: each rotor and every reading of it is drawn the
+    same whatever the rotors before it needed (one more run there no longer reshuffles every
+    rotor after it), so two variants of the procedure meet the very same rotors and
+    readings, and a change shows rotor by rotor (a paired comparison)."""
+    return np.random.default_rng([seed, k])
+
+
 def _classic_figures(sizing: str, label: str) -> list[Row]:
-    rng = np.random.default_rng(2024)
-    results = [one_rotor(rng, sizing, soft=bool(k % 2)) for k in range(ROTORS)]
+    results = [one_rotor(rotor_rng(2024, k), sizing, soft=bool(k % 2)) for k in range(ROTORS)]
     runs = np.array([r["runs"] for r in results])
     first = np.array([r["first_reduction"] for r in results])
     trim = np.array([r["trim_reduction"] for r in results if np.isfinite(r["trim_reduction"])])
@@ -1000,8 +1008,8 @@ def _classic_figures(sizing: str, label: str) -> list[Row]:
 def _model_first_figures() -> list[Row]:
     rows_out = []
     for n_planes, goal, words in ((1, 2, "one plane"), (2, 3, "two planes")):
-        rng = np.random.default_rng(2025 + n_planes)
-        results = [model_first_rotor(rng, n_planes, soft=bool(k % 2)) for k in range(ROTORS_MODEL)]
+        results = [model_first_rotor(rotor_rng(2025 + n_planes, k), n_planes, soft=bool(k % 2))
+                   for k in range(ROTORS_MODEL)]
         runs = np.array([r["runs"] for r in results])
         first = np.array([r["first_reduction"] for r in results])
         false_pass = false_pass_rate(results)
@@ -1046,9 +1054,8 @@ def _model_first_figures() -> list[Row]:
 def _skipped_figures(n_planes: int, goal: int, words: str) -> list[Row]:
     """The same rotors (same seed) when the person skips the offered tap test: trials
     follow wherever the coast-down alone cannot tell the supports."""
-    rng = np.random.default_rng(2025 + n_planes)
-    results = [model_first_rotor(rng, n_planes, soft=bool(k % 2), tap="skipped")
-               for k in range(ROTORS_MODEL)]
+    results = [model_first_rotor(rotor_rng(2025 + n_planes, k), n_planes, soft=bool(k % 2),
+                                 tap="skipped") for k in range(ROTORS_MODEL)]
     runs = np.array([r["runs"] for r in results])
     false_pass = false_pass_rate(results)
     label = "balance [model first, the tap test skipped]"
@@ -1068,9 +1075,8 @@ def _tap_figures(n_planes: int, goal: int, words: str) -> list[Row]:
     """The same rotors (same seed) with a tap test at standstill on every stiff mount
     (tap_test), the soft ones as they were: how far a tap brings the stiff mounts, and
     whether the trusted predictions keep their 95 % bound."""
-    rng = np.random.default_rng(2025 + n_planes)
-    results = [model_first_rotor(rng, n_planes, soft=bool(k % 2), tap="every stiff")
-               for k in range(ROTORS_MODEL)]
+    results = [model_first_rotor(rotor_rng(2025 + n_planes, k), n_planes, soft=bool(k % 2),
+                                 tap="every stiff") for k in range(ROTORS_MODEL)]
     stiff = [r for k, r in enumerate(results) if not k % 2]
     false_pass = false_pass_rate(results)
     bounded = [r["over_bound"] for r in stiff if r["over_bound"] is not None]

@@ -197,3 +197,49 @@ def test_a_coast_down_that_clipped_is_kept_so_and_not_fitted(
     kept = job_coast_down_evidence(keeper.workspace.resume_job(keeper.path), rig.setup.sensors)
     assert kept is not None and kept.curve is None
     assert BalanceEngine().trial_sensitivity(rig.proc.setup, kept) is None
+
+
+def test_in_the_app_a_fit_that_fails_keeps_the_size_and_says_so(
+        tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> None:
+    # the app on the simulated grinder: the as-found run, the demo motor off; the fit to the
+    # coast-down raises (whatever the cause): the person is told, the trial keeps the size
+    # it had, and the lock-out opens - the job is not stuck waiting
+    import asyncio
+
+    from test_ui_app import (
+        SIZE,
+        connect,
+        make_app,
+        press,
+        screen_text,
+        through_hands_on_gates,
+        wait_for,
+    )
+    from trueturn.ui import texts
+
+    def broken(self: BalanceEngine, setup: object, evidence: object) -> None:
+        raise FloatingPointError("the fit diverged")
+
+    monkeypatch.setattr(BalanceEngine, "trial_sensitivity", broken)
+
+    async def scenario() -> None:
+        app = make_app("bench-grinder", tmp_path)
+        async with app.run_test(size=SIZE) as pilot:
+            await connect(app, pilot)
+            await press(app, pilot, "2")
+            await through_hands_on_gates(app, pilot)
+            proc = app.procedure
+            assert proc is not None
+            await press(app, pilot, "enter")   # the forces: the as-found run
+            await wait_for(pilot, lambda: len(proc.runs) == 1, 90)
+            before = trial_of(proc.step)
+            assert proc.sizing_trial
+            await press(app, pilot, "x")        # the demo motor off: it coasts down
+            await wait_for(pilot, lambda: not proc.sizing_trial, 120)
+            assert app.message == texts.TRIAL_FIT_FAILED
+            assert trial_of(proc.step) == before
+            await wait_for(pilot, lambda: "Attach trial mass" in screen_text(app), 10)
+            await through_hands_on_gates(app, pilot)   # the lock-out opens
+            assert proc.step.kind == "run"
+            await press(app, pilot, "q", "q")
+    asyncio.run(scenario())

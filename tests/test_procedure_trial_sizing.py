@@ -215,6 +215,7 @@ def test_in_the_app_a_fit_that_fails_keeps_the_size_and_says_so(
         through_hands_on_gates,
         wait_for,
     )
+    from test_ui_reliability import to_the_as_found_run
     from trueturn.ui import texts
 
     def broken(self: BalanceEngine, setup: object, evidence: object) -> None:
@@ -226,8 +227,7 @@ def test_in_the_app_a_fit_that_fails_keeps_the_size_and_says_so(
         app = make_app("bench-grinder", tmp_path)
         async with app.run_test(size=SIZE) as pilot:
             await connect(app, pilot)
-            await press(app, pilot, "2")
-            await through_hands_on_gates(app, pilot)
+            await to_the_as_found_run(app, pilot, "2")
             proc = app.procedure
             assert proc is not None
             await press(app, pilot, "enter")   # the forces: the as-found run

@@ -71,9 +71,10 @@ def fault_while_spinning_up(app: TrueturnApp, fault: Callable[[], None]) -> dict
     return fired
 
 
-async def to_the_as_found_run(app: TrueturnApp, pilot: Pilot) -> None:
-    """Set-up step through both gates, then confirm the forces: the motor starts."""
-    await press(app, pilot, "1")
+async def to_the_as_found_run(app: TrueturnApp, pilot: Pilot, mode_key: str = "1") -> None:
+    """The procedure of ``mode_key`` (default: one plane), its set-up step through both
+    gates: the as-found run waits for its forces to be confirmed."""
+    await press(app, pilot, mode_key)
     await through_hands_on_gates(app, pilot, 20)
     proc = app.procedure
     assert proc is not None and proc.step.kind == "run" and proc.step.phase == "arming"

@@ -243,3 +243,23 @@ def test_in_the_app_a_fit_that_fails_keeps_the_size_and_says_so(
             assert proc.step.kind == "run"
             await press(app, pilot, "q", "q")
     asyncio.run(scenario())
+
+
+def test_a_trial_waiting_behind_a_second_start_gets_the_fitted_size(
+        coast_down: SweepOutcome) -> None:  # noqa: F811 - the fixture
+    # a second start as found (is it unbalance?) while the trial waits for its size: the
+    # fit arriving during it sizes the trial the second start comes back to
+    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+    trial_step(rig)
+    proc = rig.proc
+    proc.await_trial_sizing()
+    rig.settle()
+    proc.start_again()
+    assert proc.step.kind == "run" and not proc.sizing_trial
+    proc.trial_sizing_in(fitted(rig, coast_down))
+    rig.run()   # the second start, measured
+    assert proc.second_start is not None and proc.step.kind == "hands-on"
+    trial = trial_of(proc.step)
+    assert trial.mass_g == proc.engine.trial_mass(proc.setup, proc.plane(trial.plane),
+                                                  proc.runs).mass_g
+    rig.hands_on()

@@ -634,15 +634,17 @@ def phasors_of(readings: dict) -> dict[str, complex]:
 
 
 def trial_for_effect(shop: Shop, plane_index: int, as_found: dict, prediction,
-                     measured_scale: float | None = None) -> float:
+                     measured_scale: float | None = None,
+                     seen_unbalance_gmm: float | None = None) -> float:
     """The default trial: sized to be seen from the as-found reading and the predicted
-    sensitivity (balance.trial_mass.suggest_trial), scaled by what an earlier trial showed."""
+    sensitivity (balance.trial_mass.suggest_trial), scaled by what an earlier trial showed
+    and, on a magnitude-only prediction, not under that trial's unbalance."""
     names = list(prediction.sensors)
     plane = shop.rotor.planes[plane_index]
     return suggest_trial([as_found[n]["amp"] for n in names],
                          [as_found[n]["confidence"] for n in names], prediction, plane_index,
                          shop.rotor.mass_kg, plane.radius_mm, shop.speed,
-                         measured_scale).mass_g
+                         measured_scale, seen_unbalance_gmm=seen_unbalance_gmm).mass_g
 
 
 def alarm_reference(as_found: dict) -> dict[str, float]:
@@ -722,7 +724,8 @@ def classic_after_as_found(shop: Shop, rng: np.random.Generator, runs: list[dict
             # what this trial showed against its prediction scales the next one's
             seen = min(abs(after[n] - as_found_1x[n]) / trial_g / prediction.magnitude[i, j]
                        for i, n in enumerate(prediction.sensors))
-            trial_g = trial_for_effect(shop, j + 1, runs[0]["readings"], prediction, float(seen))
+            trial_g = trial_for_effect(shop, j + 1, runs[0]["readings"], prediction, float(seen),
+                                       trial_g * p.radius_mm)
         elif factor > 1.0:             # the engine's advice: this much bigger next time
             trial_g *= TRIAL_MARGIN * factor
     first_reduction = None

@@ -214,3 +214,52 @@ def test_a_trial_after_a_runaway_is_seen_and_stays_under_the_alarm(level_ratio: 
 def test_a_trial_after_a_runaway_needs_a_level_over_the_as_found(level_ratio: float) -> None:
     with pytest.raises(UserError):
         trial_after_runaway(10.0, level_ratio)
+
+
+def test_on_a_magnitude_only_prediction_a_later_trial_keeps_the_seen_unbalance() -> None:
+    # a stiff mount: the free rotor says a magnitude per plane but not how the planes
+    # differ, so a later trial scaled by what the first one showed can come out short
+    # where the first trial's unbalance was seen; that unbalance is its floor (the same
+    # trial unbalance in each plane: common practice, from memory). Saved coefficients
+    # (exact) and a prediction with a phase size without it.
+    from dataclasses import replace
+
+    from trueturn.balance.model_first import PickupPlacement, RotorLayout
+    layout = RotorLayout(5.0, (-80.0, 80.0), (-100.0, 100.0), (50.0, 60.0))
+    stiff = predict_influence(layout, [PickupPlacement("a", 0, 0.0), PickupPlacement("b", 1, 0.0)],
+                              3000.0, {"a": [], "b": []})
+    assert stiff.magnitude_only
+    seen_gmm = 4.0 * 50.0          # the first trial: 4 g at 50 mm, seen
+    args = ([1.0, 1.0], [None, None])
+    rest = (1, 5.0, 60.0, 3000.0)
+    alone = suggest_trial(*args, stiff, *rest, measured_scale=20.0).mass_g
+    floored = suggest_trial(*args, stiff, *rest, measured_scale=20.0,
+                            seen_unbalance_gmm=seen_gmm).mass_g
+    assert alone < seen_gmm / 60.0
+    assert floored == pytest.approx(seen_gmm / 60.0)
+    phased = replace(stiff, magnitude_only=False)
+    assert suggest_trial(*args, phased, *rest, measured_scale=20.0,
+                         seen_unbalance_gmm=seen_gmm).mass_g == pytest.approx(alone)
+    assert suggest_trial(*args, stiff, *rest, saved_sensitivities_per_g=[0.5, 0.5],
+                         seen_unbalance_gmm=seen_gmm).mass_g == pytest.approx(TARGET_CHANGE / 0.5)
+
+
+def test_the_apps_second_trial_on_a_stiff_mount_is_not_under_the_first() -> None:
+    # the grinder as if stiffly mounted (its coast-down found no resonance below the
+    # speed): the second trial's unbalance is at least the first one's, which was seen
+    from dataclasses import replace
+
+    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+    rig.proc.setup = replace(rig.proc.setup,
+                             support_resonances={n: [] for n in rig.setup.sensors})
+    rig.hands_on()
+    rig.run()
+    rig.hands_on()   # the first trial on
+    rig.run()
+    first = next(m for m in rig.proc.runs[1].masses if m.kind == "trial")
+    step = rig.proc.step
+    assert step.kind == "hands-on"
+    second = next(c.mass for c in step.changes if c.action == "attach" and c.mass is not None)
+    r1 = rig.proc.plane(first.plane).radius_mm
+    r2 = rig.proc.plane(second.plane).radius_mm
+    assert second.mass_g * r2 >= first.mass_g * r1 * (1 - 1e-9)

@@ -557,6 +557,7 @@ class BalanceEngine:
         saved = {c.sensor: c.amp_per_g for c in setup.saved_coefficients
                  if isinstance(c, SavedCoefficient) and c.plane == plane.name}
         scale = None
+        seen_gmm = None   # that trial's unbalance, g mm
         for run in runs:     # an earlier trial of this job: what it showed against the model
             trials = [m for m in run.masses if m.kind == MassKind.TRIAL]
             if run.kind != RunKind.TRIAL or len(trials) != 1 or trials[0].plane == plane.name:
@@ -568,12 +569,13 @@ class BalanceEngine:
                        / abs(trials[0].mass_g) / float(prediction.magnitude[i, k])
                        for i, n in enumerate(names) if n in run.readings)
             scale = seen if seen > 0 else scale
+            seen_gmm = abs(trials[0].mass_g) * planes[k].radius_mm
         return suggest_trial([as_found.readings[n].amplitude for n in names],
                              [as_found.readings[n].confidence_radius for n in names],
                              prediction, j, setup.rotor_mass_kg, plane.radius_mm,
                              setup.speed_rpm, scale,
                              [saved[n] for n in names] if all(n in saved for n in names) else None,
-                             plane.max_mass_g)
+                             plane.max_mass_g, seen_gmm)
 
     def trial_effect(self, setup: ProcedureSetup, runs: Sequence[Run]) -> TooSmallTrial | None:
         """Right after a trial run: a trial whose change of the 1x is under 25 % of the

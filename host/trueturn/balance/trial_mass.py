@@ -272,8 +272,8 @@ def suggest_trial(as_found_amplitudes: Sequence[float], confidences_95: Sequence
        docstring), measured by bench/bench_balance.py.
     .. [2] The same trial unbalance in each plane when nothing better is known: common
        practice (from memory). bench/bench_balance.py measured the floor, paired on 300
-       stiff mounts (600 trials): too-small trials 39 -> 23, runs stopped by the alarm
-       10 -> 11, within 5 runs 87.7 % -> 91.0 %.
+       stiff mounts (600 trials): too-small trials 39 -> 24, runs stopped by the alarm
+       10 -> 13, within 5 runs 87.7 % -> 90.7 %.
     """
     floor_g = 0.0
     if saved_sensitivities_per_g is not None:

@@ -52,6 +52,24 @@ def trial_of(step: object) -> PlacedMass:
     return masses[0]
 
 
+def waiting_rig() -> Rig:
+    """The grinder by two planes after its as-found run, its first trial waiting for the
+    size from the coast-down."""
+    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+    trial_step(rig)
+    rig.proc.await_trial_sizing()
+    return rig
+
+
+def sized_by_the_engine(rig: Rig) -> PlacedMass:
+    """The trial the step shows, checked to be the size the engine gives now."""
+    proc = rig.proc
+    trial = trial_of(proc.step)
+    assert trial.mass_g == proc.engine.trial_mass(proc.setup, proc.plane(trial.plane),
+                                                  proc.runs).mass_g
+    return trial
+
+
 def fitted(rig: Rig, outcome: SweepOutcome) -> PredictedInfluence:
     """The engine's fit to the coast-down, as the app asks it once the sweep is kept."""
     evidence = sweep_evidence(outcome, rig.setup.sensors, rig.setup.speed_rpm)
@@ -74,10 +92,9 @@ def effect(rig: Rig, trial: PlacedMass) -> tuple[float, float]:
 
 def test_the_grinders_trial_is_sized_from_its_coast_down_and_seen(
         coast_down: SweepOutcome) -> None:  # noqa: F811 - the fixture
-    rig = Rig("bench-grinder", Mode.TWO_PLANE)
-    step = trial_step(rig)   # set-up, as found: the first trial's step, sized as before
+    rig = waiting_rig()      # set-up, as found: the first trial's step, sized as before
     proc = rig.proc
-    proc.await_trial_sizing()
+    step = proc.step
     assert proc.trial_sizing_awaited and proc.sizing_trial
     rig.settle()
     with pytest.raises(GateRefused) as refused:
@@ -87,10 +104,8 @@ def test_the_grinders_trial_is_sized_from_its_coast_down_and_seen(
     sensitivity = fitted(rig, coast_down)
     proc.trial_sizing_in(sensitivity)
     assert not proc.trial_sizing_awaited and not proc.sizing_trial
-    trial = trial_of(proc.step)
     # the step shows the size the engine gives with the fit, on the same plane and spot
-    suggestion = proc.engine.trial_mass(proc.setup, proc.plane(trial.plane), proc.runs)
-    assert trial.mass_g == suggestion.mass_g
+    trial = sized_by_the_engine(rig)
     assert (trial.plane, trial.angle_deg) == (trial_of(step).plane, trial_of(step).angle_deg)
     # on the simulator's physics it is seen, and the machine is not shaken to the alarm
     change, level = effect(rig, trial)
@@ -100,17 +115,13 @@ def test_the_grinders_trial_is_sized_from_its_coast_down_and_seen(
     rig.hands_on()
     rig.run()
     assert proc.setup.trial_sensitivity is sensitivity
-    second = trial_of(proc.step)
-    assert second.plane != trial.plane
-    assert second.mass_g == proc.engine.trial_mass(proc.setup, proc.plane(second.plane),
-                                                   proc.runs).mass_g
+    assert sized_by_the_engine(rig).plane != trial.plane
 
 
 def test_no_fit_keeps_the_size_and_opens_the_gate() -> None:
     # the coast-down was not kept or could not be fitted: the trial keeps the size it had
-    rig = Rig("bench-grinder", Mode.TWO_PLANE)
-    before = trial_of(trial_step(rig))
-    rig.proc.await_trial_sizing()
+    rig = waiting_rig()
+    before = trial_of(rig.proc.step)
     assert rig.proc.sizing_trial
     rig.proc.trial_sizing_in(None)
     assert not rig.proc.sizing_trial and trial_of(rig.proc.step) == before
@@ -136,18 +147,13 @@ def test_a_trial_behind_the_doubt_question_gets_the_fitted_size(
         coast_down: SweepOutcome) -> None:  # noqa: F811 - the fixture
     # the as-found run failed a rule (is it unbalance?): the question comes first; the fit
     # arriving meanwhile sizes the trial the person goes on to
-    rig = Rig("bench-grinder", Mode.TWO_PLANE)
-    trial_step(rig)
+    rig = waiting_rig()
     proc = rig.proc
-    proc.await_trial_sizing()
     proc.as_found_judged(("harmonics",))
     assert proc.step.kind == "doubt" and not proc.sizing_trial
-    sensitivity = fitted(rig, coast_down)
-    proc.trial_sizing_in(sensitivity)
+    proc.trial_sizing_in(fitted(rig, coast_down))
     proc.go_on()
-    trial = trial_of(proc.step)
-    assert trial.mass_g == proc.engine.trial_mass(proc.setup, proc.plane(trial.plane),
-                                                  proc.runs).mass_g
+    sized_by_the_engine(rig)
     rig.hands_on()
 
 
@@ -249,17 +255,13 @@ def test_a_trial_waiting_behind_a_second_start_gets_the_fitted_size(
         coast_down: SweepOutcome) -> None:  # noqa: F811 - the fixture
     # a second start as found (is it unbalance?) while the trial waits for its size: the
     # fit arriving during it sizes the trial the second start comes back to
-    rig = Rig("bench-grinder", Mode.TWO_PLANE)
-    trial_step(rig)
+    rig = waiting_rig()
     proc = rig.proc
-    proc.await_trial_sizing()
     rig.settle()
     proc.start_again()
     assert proc.step.kind == "run" and not proc.sizing_trial
     proc.trial_sizing_in(fitted(rig, coast_down))
     rig.run()   # the second start, measured
     assert proc.second_start is not None and proc.step.kind == "hands-on"
-    trial = trial_of(proc.step)
-    assert trial.mass_g == proc.engine.trial_mass(proc.setup, proc.plane(trial.plane),
-                                                  proc.runs).mass_g
+    sized_by_the_engine(rig)
     rig.hands_on()

@@ -120,8 +120,8 @@ from trueturn.dsp.units import PickupProfile  # noqa: E402
 from trueturn.errors import UserError  # noqa: E402
 from trueturn.model import Correction  # noqa: E402
 from trueturn.procedure.engine import (  # noqa: E402
-    TRIAL_FIT_DESPITE,
     TRIAL_REDO_MARGIN,
+    fit_sizes_trials,
     short_of_grade,
     tap_may_help,
 )
@@ -615,7 +615,7 @@ def trial_prediction(rotor: RigidRotor, speed: float, sweep: dict[str, list[Supp
     if curve is not None and any(sweep.values()):
         fitted = predict_influence(layout_of(rotor), placements(rotor), speed, sweep,
                                    curve=curve)
-        if not fitted.magnitude_only and not set(fitted.distrust) - TRIAL_FIT_DESPITE:
+        if fit_sizes_trials(fitted):
             return fitted
     pred = predict_influence(layout_of(rotor), placements(rotor), speed, sweep)
     if pred.magnitude_only and Distrust.STIFFNESS_UNKNOWN in pred.distrust:

@@ -205,6 +205,14 @@ TRIAL_FIT_DESPITE = frozenset({Distrust.TOO_UNCERTAIN, Distrust.UNSEEN_EFFECT,
                                Distrust.NO_MOUNTED_MASS})
 
 
+def fit_sizes_trials(prediction: PredictedInfluence) -> bool:
+    """A prediction fitted to the coast-down's curve may size the trials: it says a phase,
+    and nothing speaks against it but what does not matter to a trial's size
+    (:data:`TRIAL_FIT_DESPITE`). The app's rule (:meth:`BalanceEngine.trial_sensitivity`)
+    and the bench's mirror of it (bench/bench_balance.py) both ask here."""
+    return not prediction.magnitude_only and not set(prediction.distrust) - TRIAL_FIT_DESPITE
+
+
 #: the reasons a stiff mount's model is not trusted that a tap test can answer: the fit to
 #: the coast-down's curve cannot tell the supports' stiffness, so its draws say too
 #: uncertain or its correction too small to see, or it puts a resonance the coast-down did
@@ -491,9 +499,7 @@ class BalanceEngine:
         layout, placements = _layout_and_placements(setup)
         pred = predict_influence(layout, placements, setup.speed_rpm, evidence.resonances,
                                  curve=evidence.curve)
-        if pred.magnitude_only or set(pred.distrust) - TRIAL_FIT_DESPITE:
-            return None
-        return pred
+        return pred if fit_sizes_trials(pred) else None
 
     def _trial_prediction(self, setup: ProcedureSetup) -> PredictedInfluence:
         """The sensitivity a trial is sized from: the support model fitted to the as-found

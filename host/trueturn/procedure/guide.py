@@ -1624,8 +1624,7 @@ class Procedure:
         hands-on step is not opened (:attr:`sizing_trial`), so the size a person weighs out
         is the one used. Nothing to wait for when no trial is still to come, the fit is
         already in, or the engine cannot size from a fit (:meth:`Engine.trial_fit_wanted`)."""
-        if (self.setup.mode in (Mode.ONE_PLANE, Mode.TWO_PLANE) and self.runs
-                and len(self.runs) <= len(self._runs_needed())
+        if (self.runs and len(self.runs) <= len(self._runs_needed())
                 and self.setup.trial_sensitivity is None
                 and self.engine.trial_fit_wanted(self.setup)):
             self._trial_sizing_awaited = True

@@ -332,11 +332,12 @@ def read_capture(data: bytes, names: Sequence[str], mains_hz: float,
     return out, float(analysis.speed_rpm)
 
 
-def settled(reading: dict, as_found_amp: float | None) -> bool:
-    """The app keeps it (procedure.guide.Guide.settled): steady, and the phase within the
-    limit or the circle within SMALL_VECTOR_FRACTION of the as-found 1x."""
+def settled(reading: dict, as_found_amp: float | None, check: bool = False) -> bool:
+    """The app keeps it (procedure.guide.Procedure.settled): steady, and the phase within
+    the limit or the circle within SMALL_VECTOR_FRACTION of the as-found 1x; a ``check``
+    run's reading when steady (its verdict weighs the circle)."""
     ref = reading["amp"] if as_found_amp is None else as_found_amp
-    return reading["steady"] and (reading["confidence_deg"] <= DEFAULT_PHASE_LIMIT_DEG
+    return reading["steady"] and (check or reading["confidence_deg"] <= DEFAULT_PHASE_LIMIT_DEG
                                   or reading["confidence"] <= SMALL_VECTOR_FRACTION * ref)
 
 
@@ -368,7 +369,7 @@ def kept_reading(response_m_s2: dict[str, complex], speed_rpm: float,
         needed = max((n for n, _ in waits), default=0)
         if needed > revs and waits_left:    # the meter holds one beat, then reads
             windows, waits_left = [needed], waits_left - 1
-        elif all(settled(r, as_found_amp[n] if as_found_amp else None)
+        elif all(settled(r, as_found_amp[n] if as_found_amp else None, check)
                  for n, r in readings.items()):
             break
     return readings, measured_rpm, False

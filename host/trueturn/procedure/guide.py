@@ -1197,7 +1197,13 @@ class Procedure:
 
         Steady (revolutions, speed, drift) and either the phase known within the limit, or
         - for a vector that became small after a correction - a 95 % circle no wider than
-        5 % of the as-found 1x at that pickup (then its phase does not matter).
+        5 % of the as-found 1x at that pickup (then its phase does not matter). A check
+        run's reading needs a phase, not its limit: its verdict and trim weigh its circle as
+        it is (balance.solve's guard band), as the DSP keeps a small 1x ready after
+        ``SteadinessLimits.settled_revolutions`` (dsp.averaging). The meter's window
+        slides, so waiting would not shrink the circle: a phase limit there held the check
+        run of a rotor balanced close to its pickups' noise for ever (bench/bench_balance.py,
+        [default]: 7 of 51 check runs on the first 40 rotors).
         """
         if not r.steady or r.revolutions < self.revolutions_wanted:
             return False
@@ -1215,6 +1221,9 @@ class Procedure:
         if r.phase_deg is None:
             return False
         if r.confidence_deg <= self.setup.phase_limit_deg:
+            return True
+        step = self.step
+        if isinstance(step, Measure) and step.run_kind == RunKind.CHECK:
             return True
         base = self.as_found()
         ref = base.readings.get(r.sensor) if base is not None else None

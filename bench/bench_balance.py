@@ -130,6 +130,7 @@ from trueturn.procedure.guide import (  # noqa: E402
     DEFAULT_PHASE_LIMIT_DEG,
     DEFAULT_RUNAWAY_FACTOR,
     SMALL_VECTOR_FRACTION,
+    WIDEN_FACTOR_MAX,
     runaway_reference,
 )
 from trueturn.sim import CorrectionPlane, Mass, PickupMount, RigidRotor, Support  # noqa: E402
@@ -312,6 +313,7 @@ def read_capture(data: bytes, names: Sequence[str], mains_hz: float,
                          "confidence": r.confidence_radius,
                          "confidence_deg": r.confidence_deg,
                          "clipped": bool(r.clipped),
+                         "revolutions": int(r.revolutions),
                          # the DSP's warning that hum shares the 1x's frequency (its circle
                          # does not cover that: analysis.CONFIDENCE_SCOPE)
                          "one_x_on_mains": any(f.code is Code.ORDER_ON_MAINS
@@ -353,9 +355,18 @@ def kept_reading(response_m_s2: dict[str, complex], speed_rpm: float,
     A 1x next to a mains line is read as the app's meter reads it (dsp.meter: the reading
     is blocked, ``order_on_mains``): over the revolutions one beat needs when the meter may
     wait that long. True last when it may not: the app keeps no reading of this run (it
-    cannot tell the 1x from the hum at this speed)."""
+    cannot tell the 1x from the hum at this speed).
+
+    A reading steady over the window but whose phase is not yet within its limit is read
+    again over twice the window, up to WIDEN_FACTOR_MAX times REVS_PER_READING, and kept
+    there as it is (the app's meter widens its window: procedure.guide.Procedure.widen_to).
+    """
     names = list(response_m_s2)
+    # the app's meter: the run's revolutions, then its window, then (steady, the phase not
+    # within its limit) the window doubled up to WIDEN_FACTOR_MAX times the run's
+    # revolutions, where the reading is kept as it is (procedure.guide.Procedure.widen_to)
     windows = [REVS_PER_CHECK] if check else [REVS_PER_READING, REVS_METER_WINDOW]
+    most = REVS_PER_READING * WIDEN_FACTOR_MAX
     waits_left = 2     # the speed read over the longer window can ask a little more
     while windows:
         revs = windows.pop(0)
@@ -370,8 +381,10 @@ def kept_reading(response_m_s2: dict[str, complex], speed_rpm: float,
         if needed > revs and waits_left:    # the meter holds one beat, then reads
             windows, waits_left = [needed], waits_left - 1
         elif all(settled(r, as_found_amp[n] if as_found_amp else None, check)
-                 for n, r in readings.items()):
+                 for n, r in readings.items()) or revs >= most:
             break
+        elif not windows and all(r["steady"] for r in readings.values()):
+            windows = [min(2 * revs, most)]
     return readings, measured_rpm, False
 
 

@@ -70,21 +70,27 @@ def _humming_shop(pickups: int = 1) -> bench.CaptureSignals:
         phases_deg=((10.0, 70.0, 200.0), (300.0, 15.0, 100.0))[:pickups])
 
 
-@pytest.mark.parametrize("offset_hz, seed", [(0.5, 5), (-0.6, 6), (0.8, 7)])
-def test_a_1x_next_to_the_hum_is_read_over_one_beat_as_the_app_waits(offset_hz: float,
-                                                                     seed: int) -> None:
+@pytest.mark.parametrize("offset_hz", [0.3, -0.35, 0.45])
+def test_a_1x_next_to_the_hum_is_read_over_one_beat_as_the_app_waits(offset_hz: float) -> None:
     # dsp.meter: a 1x next to a mains line the hum fit had to drop is held for one beat
     # between them (a tone df from an order is orthogonal to it over 1/df; common practice,
     # no source) before the app keeps it. Read over the bench's 30 or 60 revolutions it is
-    # not steady and its circle misses the true 1x; the bench must wait as the app does
+    # not steady and its circle misses the true 1x; the bench must wait as the app does.
+    # The 95 % circle then holds the true 1x about 19 times in 20: at least 34 of 40 seeds
+    # (binomial, p = 0.95: 33 or fewer about 1.4 % of the time). 0.3-0.45 Hz from the
+    # line, 60 revolutions are under half a beat: the fit drops the line, the reading is
+    # blocked
     truth = complex(0.3, -0.4)
-    readings, _, hidden = bench.kept_reading(
-        {"inboard": truth}, (50.0 + offset_hz) * 60.0, _humming_shop(), 0.0, seed, 0.4)
-    r = readings["inboard"]
-    assert not hidden and r["steady"]
-    got = r["amp"] * complex(math.cos(math.radians(r["phase_deg"])),
-                             math.sin(math.radians(r["phase_deg"])))
-    assert abs(got - truth) <= r["confidence"], (got, truth, r["confidence"])
+    inside = 0
+    for seed in range(40):
+        readings, _, hidden = bench.kept_reading(
+            {"inboard": truth}, (50.0 + offset_hz) * 60.0, _humming_shop(), 0.0, seed, 0.4)
+        r = readings["inboard"]
+        assert not hidden and r["steady"]
+        got = r["amp"] * complex(math.cos(math.radians(r["phase_deg"])),
+                                 math.sin(math.radians(r["phase_deg"])))
+        inside += abs(got - truth) <= r["confidence"]
+    assert inside >= 34
 
 
 def test_a_1x_the_hum_hides_gives_no_reading_and_the_rotor_no_verdict() -> None:
@@ -163,3 +169,36 @@ def test_the_slope_is_the_textbook_one_far_from_resonance(mode_over_speed: float
     for s in slopes:
         assert s["amplitude_exponent"] == pytest.approx(exponent, abs=0.05)
         assert abs(s["phase_deg_per_ln_speed"]) < 5.0
+
+
+def test_a_steady_1x_near_the_noise_is_averaged_longer_as_the_app_widens() -> None:
+    # procedure.guide.Procedure.widen_to: a reading steady over the meter's window but whose
+    # phase is wider than its 5 degree limit is averaged over twice the window, up to
+    # WIDEN_FACTOR_MAX times the run's revolutions, and kept there. A 0.06 m/s^2 1x under
+    # the loudest noise the bench draws at 1500 rpm (25 Hz, half the 50 Hz line): over 60
+    # revolutions its phase is known to several degrees. The 95 % circle of the longer
+    # average holds the true 1x about 19 times in 20: at least 17 of 20 seeds (binomial,
+    # p = 0.95: 16 or fewer about 1.6 % of the time)
+    truth = complex(0.06, 0.0)
+    signals = bench.CaptureSignals(
+        noise_rms_g=bench.CAPTURE_RANGES["noise_rms_g"][1], mains_hz=50.0,
+        sensitivity_v_per_g=bench.SENSITIVITY_V_PER_G, hum_line_v=0.0, hum_double_v=0.0,
+        harmonic_2x_g=0.0, phases_deg=((10.0, 70.0, 200.0),))
+    inside, widened = 0, 0
+    most = bench.REVS_PER_READING * bench.WIDEN_FACTOR_MAX
+    for seed in range(20):
+        readings, _, hidden = bench.kept_reading({"inboard": truth}, 1500.0, signals, 0.0,
+                                                 seed, 0.4)
+        r = readings["inboard"]
+        assert not hidden
+        assert bench.REVS_METER_WINDOW <= r["revolutions"] <= most
+        # kept where it settled, or at the longest window as it is (an unsteady one is not
+        # averaged longer: the app waits on it)
+        if r["steady"] and not bench.settled(r, None):
+            assert r["revolutions"] == most
+        widened += r["steady"] and r["revolutions"] > bench.REVS_METER_WINDOW
+        got = r["amp"] * complex(math.cos(math.radians(r["phase_deg"])),
+                                 math.sin(math.radians(r["phase_deg"])))
+        inside += abs(got - truth) <= r["confidence"]
+    assert widened >= 15     # nearly every seed needs more than the meter's 60 revolutions
+    assert inside >= 17

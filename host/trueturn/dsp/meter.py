@@ -953,6 +953,12 @@ class LiveAnalyzer:
         return 60.0 * self.tick_hz / self._periods.last(n)["ticks"].astype(float)
 
     @property
+    def revolutions_fitted(self) -> int:
+        """Every revolution fitted since this analyser's stream began (the window slides
+        over the last :attr:`max_revs` of them)."""
+        return self._revs_fitted
+
+    @property
     def speed_rpm(self) -> float:
         """Speed of the last complete revolution, NaN before the first one."""
         if not len(self._periods):

@@ -142,6 +142,15 @@ CHECK_REVOLUTIONS_FACTOR = 4
 #: as-found 1x, 0.095 m/s^2, lay inside its 0.14 circle went from trials too small to
 #: trials stopped and back, never reaching a correction). Our choice.
 RUNAWAY_NOISE_RADII = 3.0
+#: A run whose readings are steady over the meter's whole window but whose phase is not yet
+#: within the limit averages longer, the window doubling up to this many times what the run
+#: wants (the circle shrinks as one over the square root of the revolutions: 8 times as many,
+#: 0.35 of the circle); there its reading is kept as the pickup's noise leaves it, its circle
+#: weighed downstream (the trial's effect against three radii, the solution's spread, the
+#: verdict's guard band). The meter's window slides, so a limit it cannot reach held the run
+#: for ever (bench/bench_balance.py, [default]: 6 of 159 runs not settled at 60 revolutions
+#: on the first 40 rotors). Our choice.
+WIDEN_FACTOR_MAX = 8
 DEFAULT_PHASE_LIMIT_DEG = 5.0  # the DSP's default phase confidence for a steady reading
 SMALL_VECTOR_FRACTION = 0.05  # below 5 % of the as-found 1x, a tight circle is enough
 
@@ -1192,6 +1201,49 @@ class Procedure:
             return self.setup.revolutions_per_run * CHECK_REVOLUTIONS_FACTOR
         return self.setup.revolutions_per_run
 
+    @property
+    def revolutions_most(self) -> int:
+        """The longest window the current run's readings may average
+        (:data:`WIDEN_FACTOR_MAX` times :attr:`revolutions_wanted`): a reading steady over it
+        is kept whatever its phase's width (:meth:`settled`)."""
+        return self.revolutions_wanted * WIDEN_FACTOR_MAX
+
+    def widen_to(self, readings: dict[str, Reading], window_revs: int,
+                 revolutions_seen: int) -> int | None:
+        """The window (revolutions) the meter should average next, or None to leave it.
+
+        Twice ``window_revs`` (at most :attr:`revolutions_most`) while a run is measuring,
+        not ready, every pickup's reading steady over the whole window, and the window has
+        slid a whole window's length since it filled (``revolutions_seen`` at least twice
+        ``window_revs``): a reading still held by its phase then will not settle by waiting,
+        averaging more tightens it. Before that, the revolutions of the speed settling slide
+        out and the reading may settle as the run goes on. None while a reading is short of
+        the window or not steady (more time helps, or nothing does), and when ready.
+
+        Parameters
+        ----------
+        readings : dict of str to Reading
+            The meter's readings by pickup.
+        window_revs : int
+            The revolutions the meter averages at most now.
+        revolutions_seen : int
+            Every revolution the meter has taken since the run started.
+        """
+        step = self.step
+        if not isinstance(step, Measure) or step.phase != RunPhase.RUNNING:
+            return None
+        if self.setup.mode is Mode.AMPLITUDE_ONLY or self.ready(readings):
+            return None
+        most = self.revolutions_most
+        if window_revs >= most or revolutions_seen < 2 * window_revs:
+            return None
+        if not all(name in readings and readings[name].steady
+                   and readings[name].phase_deg is not None
+                   and readings[name].revolutions >= window_revs
+                   for name in self.setup.sensors):
+            return None
+        return min(2 * window_revs, most)
+
     def settled(self, r: Reading) -> bool:
         """One pickup's reading is good enough to keep.
 
@@ -1203,7 +1255,9 @@ class Procedure:
         ``SteadinessLimits.settled_revolutions`` (dsp.averaging). The meter's window
         slides, so waiting would not shrink the circle: a phase limit there held the check
         run of a rotor balanced close to its pickups' noise for ever (bench/bench_balance.py,
-        [default]: 7 of 51 check runs on the first 40 rotors).
+        [default]: 7 of 51 check runs on the first 40 rotors). Any other run's reading
+        steady over :attr:`revolutions_most` is kept too (:data:`WIDEN_FACTOR_MAX`; the app
+        widens the meter's window up to it, :meth:`widen_to`).
         """
         if not r.steady or r.revolutions < self.revolutions_wanted:
             return False
@@ -1225,6 +1279,8 @@ class Procedure:
         step = self.step
         if isinstance(step, Measure) and step.run_kind == RunKind.CHECK:
             return True
+        if r.revolutions >= self.revolutions_most:
+            return True     # averaged as long as a run may: its circle says the rest
         base = self.as_found()
         ref = base.readings.get(r.sensor) if base is not None else None
         return (ref is not None and r.confidence_radius is not None

@@ -435,6 +435,8 @@ class TrueturnApp(App):
         self.tap_analysing = False  # a tap test's recording is being analysed (a thread)
         #: the trials' size is being fitted to the as-found coast-down (a thread)
         self.trial_sizing = False
+        #: the meter's window a run starts with (its readings may average longer: widen_to)
+        self.run_window_revs = METER_WINDOW_REVS
 
     # ---- lifecycle ----------------------------------------------------------------------
     def on_mount(self) -> None:
@@ -828,7 +830,8 @@ class TrueturnApp(App):
                 proc.arm_run(True, now)
                 self.quit_armed = False
                 # the meter's window holds what the run averages (a check run: more)
-                self.session.reset_meter(max(METER_WINDOW_REVS, proc.revolutions_wanted))
+                self.run_window_revs = max(METER_WINDOW_REVS, proc.revolutions_wanted)
+                self.session.reset_meter(self.run_window_revs)
                 self.start_sweep(None, coasting=False)  # the run-up
                 self.alarm = None
                 if self.rig is not None:
@@ -1065,7 +1068,13 @@ class TrueturnApp(App):
             self.quit_armed = False
             return
         live = self.tach_live(snap)
-        if proc.ready(meter.readings, live):
+        wider = (proc.widen_to(meter.readings, meter.window_revs, meter.revolutions_fitted)
+                 if live else None)
+        if wider is not None:
+            # steady over the whole window, the phase not yet within its limit: a sliding
+            # window would not tighten it, a longer one does
+            self.session.set_meter_window(wider)
+        elif proc.ready(meter.readings, live):
             # The run's speed: the mean over the averaged revolutions of its readings.
             speeds = [r.speed_rpm for r in meter.readings.values()
                       if r.speed_rpm is not None and r.speed_rpm > 0]
@@ -1086,6 +1095,8 @@ class TrueturnApp(App):
             runup = self.session.start_sweep_recording()
             if run is not proc.second_start:
                 self.keeper.run(proc, run, condition)
+            if meter.window_revs > self.run_window_revs:
+                self.session.set_meter_window(self.run_window_revs)  # the live view again
             self.start_sweep(run, coasting=True)
             self._finish_sweep(runup, self.sweep_run, run.label, None, run.speed_rpm)
             if condition is not None and run.kind is RunKind.AS_FOUND:

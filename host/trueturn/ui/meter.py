@@ -50,6 +50,10 @@ class MeterView:
     warnings: list[str] = field(default_factory=list)  # the findings in words
     tach_faults: tuple[str, ...] = ()  # plain words, see :func:`tach_faults`
     findings: list[Finding] = field(default_factory=list)
+    #: the revolutions the readings average at most (the meter's window), and every
+    #: revolution fitted since the run's meter was reset (how long it has been averaging)
+    window_revs: int = 0
+    revolutions_fitted: int = 0
 
     def pickup_warnings(self, sensor: str) -> list[str]:
         """The words of the findings about one pickup (by the finding's pickup, not by
@@ -186,10 +190,21 @@ class MeterAdapter:
         if self.tachless is not None:
             self.tachless.reset()
 
+    def set_window(self, max_revs: int) -> int:
+        """Average the last ``max_revs`` revolutions from now on, keeping those already
+        fitted (a run whose readings want a longer average,
+        ``procedure.guide.Procedure.widen_to``, and back after it); at most what the
+        analyser holds. Returns the window now averaged."""
+        n = max(1, min(int(max_revs), self.analyzer.hold_revs))
+        self.max_revs = n
+        self.analyzer.max_revs = n
+        return n
+
     def view(self) -> MeterView:
         a = self.analyzer
         out = MeterView(self.sensors)
         readings = a.readings()  # processes pending revolutions first
+        out.window_revs, out.revolutions_fitted = self.max_revs, a.revolutions_fitted
         speed = a.speed_rpm
         out.speed_rpm = speed if math.isfinite(speed) else None
         for r in readings:

@@ -430,6 +430,12 @@ class LinkSession:
         with self._state:
             return self.meter.condition()
 
+    def set_meter_window(self, max_revs: int) -> int:
+        """Average the last ``max_revs`` revolutions from now on, keeping those already
+        averaged (:meth:`MeterAdapter.set_window`); the window now averaged."""
+        with self._state:
+            return self.meter.set_window(max_revs)
+
     def reset_meter(self, max_revs: int | None = None) -> None:
         """Start averaging afresh (a new run); ``max_revs``: the meter's window from now on
         (None: as it was)."""

@@ -69,6 +69,7 @@ within G 6.3 was not, and how often the true 1x lay inside the reading's 95 % ci
 
 from __future__ import annotations
 
+import copy
 import math
 import sys
 from collections.abc import Sequence
@@ -109,6 +110,7 @@ from trueturn.constants import STANDARD_GRAVITY_M_S2  # noqa: E402
 from trueturn.dsp import analyze_capture  # noqa: E402
 from trueturn.dsp.averaging import SteadinessLimits  # noqa: E402
 from trueturn.dsp.findings import Code  # noqa: E402
+from trueturn.dsp.meter import mains_hold_revs  # noqa: E402
 from trueturn.dsp.sweep import BIN_FRACTION, MAX_SLOPE_SE, SLOPE_WINDOW_FRACTION  # noqa: E402
 from trueturn.dsp.synthetic import (  # noqa: E402
     OrderComponent,
@@ -474,6 +476,9 @@ class Shop:
         self.extra_runs = 0                # runs repeated (less sensitive pickup, hum)
         self.hum_hidden = False            # the mains hum hid the 1x start after start
         self.as_found_amp: dict[str, float] | None = None   # the first run's, for settled()
+        #: the last run's draw (response by pickup, speed, drift, seed, first edge): the
+        #: same run read longer (read_longer)
+        self.last_draw: tuple = ({}, speed, 0.0, 0, 0.0)
 
     def place(self, plane: str, mass_g: float, angle_deg: float) -> Mass:
         return Mass(plane, mass_g * (1 + MASS_ERR * self.rng.normal()),
@@ -493,11 +498,12 @@ class Shop:
         while True:
             speed = self.speed * (1 + self.rng.uniform(-SPEED_WANDER, SPEED_WANDER))
             truth = self.rotor.response_1x(speed, self.true_masses + list(extra))
+            draw = ({n: truth[n] for n in names}, speed,
+                    float(self.rng.uniform(-DRIFT_WITHIN, DRIFT_WITHIN)),
+                    int(self.rng.integers(1 << 31)), float(self.rng.uniform(0, 1)))
+            self.last_draw = draw
             readings, measured_rpm, hidden = kept_reading(
-                {n: truth[n] for n in names}, speed, self.signals,
-                float(self.rng.uniform(-DRIFT_WITHIN, DRIFT_WITHIN)),
-                int(self.rng.integers(1 << 31)), float(self.rng.uniform(0, 1)),
-                self.as_found_amp, check)
+                draw[0], speed, self.signals, *draw[2:], self.as_found_amp, check)
             if hidden:
                 # the app keeps no reading: the 1x cannot be told from the mains hum at
                 # this speed. The person stops and starts again (the next start's speed
@@ -521,6 +527,24 @@ class Shop:
                 return {"readings": readings, "speed_rpm": measured_rpm}
             self.signals = replace(self.signals, sensitivity_v_per_g=louder[0])
             self.extra_runs += 1
+
+    def read_longer(self, revs: int) -> dict | None:
+        """The run just measured, averaged over ``revs`` revolutions: the app widens its
+        meter's window on the same run (procedure.guide.Procedure.widen_to), so this is the
+        same run's capture, longer (the same seed: its first revolutions' noise is the same
+        noise). None when the hum blocks a reading that long (the app keeps the earlier)."""
+        response, speed, drift, seed, first_edge = self.last_draw
+        names = list(response)
+        data = capture_bytes(list(response.values()), speed, self.signals, drift, seed,
+                             first_edge, revs)
+        readings, measured_rpm = read_capture(data, names, self.signals.mains_hz,
+                                              self.signals.sensitivity_v_per_g, revs)
+        if any(r["hum_wait"] is not None and (r["hum_wait"][0] is None
+                                              or r["hum_wait"][0] > revs)
+               for r in readings.values()):
+            return None
+        CircleTally.add(readings, response)
+        return {"readings": readings, "speed_rpm": measured_rpm}
 
     def true_1x(self) -> float:
         return float(np.linalg.norm(list(self.rotor.response_1x(self.speed, self.true_masses).values())))
@@ -707,6 +731,35 @@ def trial_for_effect(shop: Shop, plane_index: int, as_found: dict, prediction,
                          measured_scale, seen_unbalance_gmm=seen_unbalance_gmm).mass_g
 
 
+def passes_tighter(shop: Shop, runs: list[dict], tolerance: dict, slopes: list[dict] | None,
+                   shrink: float) -> bool:
+    """The verdict on ``runs`` passes with the last run's circles ``shrink`` times as wide:
+    what the longest average of that run would give (one over the square root of its
+    revolutions, the standard error of a mean)."""
+    last = runs[-1]
+    tighter = {**last, "readings": {n: {**r, "confidence": r["confidence"] * shrink}
+                                    for n, r in last["readings"].items()}}
+    try:
+        report = solve(parse_readings(document(shop, [*runs[:-1], tighter], tolerance,
+                                               slopes=slopes)))
+    except UserError:
+        return False
+    return report.verdict is not None and report.verdict.passed
+
+
+def wider_checks(mains_hz: float) -> list[int]:
+    """The windows a check run whose verdict is undecided is read over next, in turn: the
+    app's meter doubles its window from the run's REVS_PER_CHECK up to WIDEN_FACTOR_MAX
+    times it, at most what the meter holds (dsp.meter.mains_hold_revs)."""
+    most = min(REVS_PER_CHECK * WIDEN_FACTOR_MAX,
+               max(REVS_PER_CHECK, mains_hold_revs(mains_hz)))
+    out, revs = [], REVS_PER_CHECK
+    while revs < most:
+        revs = min(2 * revs, most)
+        out.append(revs)
+    return out
+
+
 def alarm_reference(as_found: dict) -> dict[str, float]:
     """Per pickup, the level the app's runaway alarm multiplies (procedure.guide
     .runaway_reference: the as-found 1x, or three of its 95 % radii when it is lost in the
@@ -835,6 +888,20 @@ def classic_after_as_found(shop: Shop, rng: np.random.Generator, runs: list[dict
         if first_reduction is None:
             first_reduction = 1 - shop.true_1x() / before
         check = solved()
+        windows = wider_checks(shop.signals.mains_hz)
+        for now, revs in zip([REVS_PER_CHECK, *windows[:-1]], windows, strict=True):
+            # the app averages a check run whose verdict is undecided longer before it
+            # keeps it, when the longest average would decide it
+            # (procedure.guide.Procedure.widen_to): a trim would correct noise
+            if (check is None or check.verdict is None or not check.verdict.undecided
+                    or not passes_tighter(shop, runs, tolerance, slopes,
+                                          math.sqrt(now / windows[-1]))):
+                break
+            longer = shop.read_longer(revs)
+            if longer is None:
+                break
+            runs[-1] = run_entry(runs[-1]["label"], runs[-1]["added"], longer)
+            check = solved()
         if check is not None and check.verdict is not None and check.verdict.passed:
             report = check
             break
@@ -956,6 +1023,27 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool,
     def take(est: CoefficientEstimate, readings: dict, masses: np.ndarray) -> None:
         est.update(masses, phasors_of(readings), {k: v["confidence"] for k, v in readings.items()})
 
+    def model_undecided(est: CoefficientEstimate, readings: dict, on_rotor: np.ndarray,
+                        shrink: float) -> bool:
+        """The verdict the check run's ``readings`` would give, kept now, is undecided
+        (every plane's residual within its share, its 95 % bound past one: trueturn.model
+        .Verdict.undecided) and would pass with every circle ``shrink`` times as wide (the
+        longest average); not when they would refute the model."""
+        radius_mm = [p.radius_mm for p in rotor.planes]
+
+        def bounds(scale: float) -> tuple[bool, bool]:
+            after = copy.deepcopy(est)
+            circles = {k: v["confidence"] * scale for k, v in readings.items()}
+            after.update(on_rotor, phasors_of(readings), circles)
+            if after.prior_refuted and not after.determined_by_runs:
+                return False, False
+            nominal_g, upper95_g = after.residual_g(phasors_of(readings), circles)
+            return (all(abs(nominal_g[j]) * radius_mm[j] <= shares[j] for j in range(n_planes)),
+                    all(upper95_g[j] * radius_mm[j] <= shares[j] for j in range(n_planes)))
+
+        within, proven = bounds(1.0)
+        return within and not proven and bounds(shrink)[1]
+
     def corrections(est: CoefficientEstimate, on_rotor: np.ndarray) -> tuple[np.ndarray, bool]:
         """Correction runs until the verdict (the residual's 95 % bound within every
         plane's share) or the run limit; False when the model was refuted on the way, or
@@ -975,6 +1063,16 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool,
             if alarm_level(readings, reference) > DEFAULT_RUNAWAY_FACTOR:
                 stopped = True
                 return on_rotor, False
+            windows = wider_checks(shop.signals.mains_hz)
+            for now, revs in zip([REVS_PER_CHECK, *windows[:-1]], windows, strict=True):
+                # an undecided verdict the longest average would decide: the app averages
+                # the check run longer first
+                if not model_undecided(est, readings, on_rotor, math.sqrt(now / windows[-1])):
+                    break
+                longer = shop.read_longer(revs)
+                if longer is None:
+                    break
+                readings = longer["readings"]
             take(est, readings, on_rotor)
             if first_reduction is None:
                 first_reduction = 1 - shop.true_1x() / before

@@ -9,12 +9,15 @@ circle as one over the square root of N (the standard error of a mean; from memo
 from __future__ import annotations
 
 import asyncio
+import re
 from pathlib import Path
 
 import yaml
 
-from test_ui_app import connect, make_app, press, wait_for
+from test_ui_app import connect, make_app, press, screen_text, wait_for
 from test_ui_reliability import to_the_as_found_run
+from trueturn.procedure.guide import Widened
+from trueturn.ui import texts
 from trueturn.ui.meter import METER_WINDOW_REVS
 
 NOISE_RMS_G = 0.15
@@ -33,7 +36,16 @@ def test_a_noisy_as_found_run_averages_longer_and_is_kept(tmp_path: Path) -> Non
             proc = app.procedure
             assert proc is not None
             await press(app, pilot, "enter")
-            await wait_for(pilot, lambda: len(proc.runs) == 1, 60)
+            # while it averages longer the run says so, and how many revolutions
+            seen: list[str] = []
+            await wait_for(pilot, lambda: seen.append(screen_text(app)) or len(proc.runs) == 1,
+                           60)
+            why = texts.WIDENED_WHY[Widened.PHASE_WIDE]
+            widened = [int(m.group(1)) for text in seen
+                       for m in re.finditer(r"averaging (\d+) steady revolutions \((.*?)\)",
+                                            text.replace("\n", " "))
+                       if m.group(2) == why]
+            assert widened and min(widened) > METER_WINDOW_REVS, seen[-1]
             kept = proc.runs[0].readings
             print({n: (r.revolutions, r.confidence_deg) for n, r in kept.items()})
             assert max(r.revolutions for r in kept.values()) > METER_WINDOW_REVS

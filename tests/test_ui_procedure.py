@@ -372,6 +372,33 @@ def test_a_check_run_averages_four_times_the_revolutions() -> None:
     assert proc.ready(full) and proc.progress(full) == 1.0
 
 
+def running_the_check_run(rig: Rig, circle_of_as_found: float) -> dict[str, Reading]:
+    """From the as-found run kept, through the trials and the correction to the first check
+    run, running: its readings (the correction's true 1x) with a 95 % circle of
+    ``circle_of_as_found`` times the as-found 1x at each pickup."""
+    proc = rig.proc
+    as_found = proc.runs[0].readings
+    for _ in range(8):
+        step = proc.step
+        if step.kind == "run" and step.run_kind == RunKind.CHECK:
+            break
+        {"hands-on": rig.hands_on, "run": rig.run,
+         "correction": proc.accept_correction}[step.kind]()
+    assert proc.step.kind == "run" and proc.step.run_kind == RunKind.CHECK
+    proc.arm_run(True, rig.t)
+    rig.spin(2.0, rig.setup.speed_rpm)
+    return {n: with_circle(r, circle_of_as_found * as_found[n].amplitude)
+            for n, r in rig.readings().items()}
+
+
+def with_circle(r: Reading, radius: float, revolutions: int | None = None) -> Reading:
+    """The reading with a 95 % circle of ``radius`` (its phase's half-width to match)."""
+    half_width = (math.degrees(math.asin(radius / r.amplitude)) if radius < r.amplitude
+                  else 180.0)
+    return replace(r, confidence_radius=radius, confidence_deg=half_width,
+                   revolutions=r.revolutions if revolutions is None else revolutions)
+
+
 @pytest.mark.parametrize("circle_of_as_found, proven", [(0.08, True), (0.4, False)])
 def test_a_check_run_near_the_noise_is_kept_and_its_circle_judged(circle_of_as_found: float,
                                                                   proven: bool) -> None:
@@ -396,21 +423,7 @@ def test_a_check_run_near_the_noise_is_kept_and_its_circle_judged(circle_of_as_f
     assert not proc.ready(trial)
     proc.record(rig.readings(), rig.setup.speed_rpm, rig.t)
     rig.coast(rig.setup.speed_rpm)
-    for _ in range(8):
-        step = proc.step
-        if step.kind == "run" and step.run_kind == RunKind.CHECK:
-            break
-        {"hands-on": rig.hands_on, "run": rig.run,
-         "correction": proc.accept_correction}[step.kind]()
-    assert proc.step.kind == "run" and proc.step.run_kind == RunKind.CHECK
-    proc.arm_run(True, rig.t)
-    rig.spin(2.0, rig.setup.speed_rpm)
-    check = {}
-    for n, r in rig.readings().items():       # the correction's true 1x, a wide circle
-        radius = circle_of_as_found * as_found[n].amplitude
-        half_width = (math.degrees(math.asin(radius / r.amplitude)) if radius < r.amplitude
-                      else 180.0)
-        check[n] = replace(r, confidence_radius=radius, confidence_deg=half_width)
+    check = running_the_check_run(rig, circle_of_as_found)
     assert all(r.steady and r.confidence_deg > rig.setup.phase_limit_deg
                for r in check.values())
     # a reading the DSP does not call steady is still never kept

@@ -113,6 +113,16 @@ class Verdict:
         return all(r <= p for r, p in zip(self.residual_gmm, self.permissible_gmm, strict=True))
 
     @property
+    def undecided(self) -> bool:
+        """Within on the estimate, the pass withheld by its uncertainty alone (flag
+        ``not_proven`` and no other withholding flag): a longer average of the run judged
+        may prove it, a trim would not (it would correct noise)."""
+        return (not self.passed and self.planes_passed
+                and VerdictFlag.NOT_PROVEN in self.flags
+                and not any(f in WITHHOLDING_FLAGS for f in self.flags
+                            if f is not VerdictFlag.NOT_PROVEN))
+
+    @property
     def at_bearings(self) -> bool:
         return self.tolerance_planes is TolerancePlanes.BEARINGS
 

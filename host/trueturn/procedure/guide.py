@@ -151,8 +151,28 @@ RUNAWAY_NOISE_RADII = 3.0
 #: for ever (bench/bench_balance.py, [default]: 6 of 159 runs not settled at 60 revolutions
 #: on the first 40 rotors). Our choice.
 WIDEN_FACTOR_MAX = 8
+#: A widened window is full once its readings average this share of it (a revolution the fit
+#: leaves out must not hold the run). Our choice.
+WIDENED_FULL_FRACTION = 0.9
+
+
+class Widened(str, Enum):
+    """Why the current run averages longer than it wanted (:meth:`Procedure.widen_to`)."""
+
+    #: steady over the whole window, its phase not yet within the limit
+    PHASE_WIDE = "phase_wide"
+    #: a check run's verdict undecided (within on the estimate, its bound past the allowance)
+    VERDICT_UNDECIDED = "verdict_undecided"
+
+
 DEFAULT_PHASE_LIMIT_DEG = 5.0  # the DSP's default phase confidence for a steady reading
 SMALL_VECTOR_FRACTION = 0.05  # below 5 % of the as-found 1x, a tight circle is enough
+
+
+def _half_width_deg(radius: float, amplitude: float) -> float:
+    """The phase half-width a 95 % circle of ``radius`` subtends at ``amplitude`` (180
+    degrees once the circle holds the origin)."""
+    return math.degrees(math.asin(radius / amplitude)) if radius < amplitude else 180.0
 
 
 def runaway_reference(amplitude: float, confidence_radius: float | None) -> float:
@@ -729,6 +749,11 @@ class Procedure:
         #: a trial run the runaway alarm stopped, and the smaller trial put in its place
         self.shrunk_trial: ShrunkTrial | None = None
         self._runaway_ratio = 0.0  # the alarm's 1x over the as-found level (largest pickup)
+        #: the window the current run asked the meter for (:meth:`widen_to`; 0: none), and
+        #: the most the meter holds (0: not told)
+        self._window_revs = 0
+        self._window_most = 0
+        self.widened: Widened | None = None   # why the run averages longer (None: it does not)
         self._runaway_sensor: str | None = None  # the pickup of that largest ratio
         self.model_shook: ModelShook | None = None
         #: per plane, the smallest trial the runaway alarm stopped (g): a later redo of a
@@ -1145,6 +1170,8 @@ class Procedure:
         self.alarm = None
         self._runaway_ratio = 0.0
         self._runaway_sensor = None
+        self._window_revs = self._window_most = 0
+        self.widened = None
         self.shrunk_trial = None
         self.model_shook = None
         self.last_speed_rpm = 0.0
@@ -1204,21 +1231,34 @@ class Procedure:
     @property
     def revolutions_most(self) -> int:
         """The longest window the current run's readings may average
-        (:data:`WIDEN_FACTOR_MAX` times :attr:`revolutions_wanted`): a reading steady over it
-        is kept whatever its phase's width (:meth:`settled`)."""
-        return self.revolutions_wanted * WIDEN_FACTOR_MAX
+        (:data:`WIDEN_FACTOR_MAX` times :attr:`revolutions_wanted`, at most what the meter
+        holds when :meth:`widen_to` was told): a reading steady over it is kept whatever its
+        phase's width (:meth:`settled`)."""
+        most = self.revolutions_wanted * WIDEN_FACTOR_MAX
+        return min(most, self._window_most) if self._window_most else most
+
+    def _window_full(self, r: Reading, window_revs: int) -> bool:
+        return r.revolutions >= WIDENED_FULL_FRACTION * window_revs
 
     def widen_to(self, readings: dict[str, Reading], window_revs: int,
-                 revolutions_seen: int) -> int | None:
+                 revolutions_seen: int, window_most: int = 0) -> int | None:
         """The window (revolutions) the meter should average next, or None to leave it.
 
-        Twice ``window_revs`` (at most :attr:`revolutions_most`) while a run is measuring,
-        not ready, every pickup's reading steady over the whole window, and the window has
-        slid a whole window's length since it filled (``revolutions_seen`` at least twice
-        ``window_revs``): a reading still held by its phase then will not settle by waiting,
-        averaging more tightens it. Before that, the revolutions of the speed settling slide
-        out and the reading may settle as the run goes on. None while a reading is short of
-        the window or not steady (more time helps, or nothing does), and when ready.
+        Twice ``window_revs`` (at most :attr:`revolutions_most`) while a run is measuring
+        and every pickup's reading is steady, with a phase, over the whole window, when
+
+        - a check run's verdict from these readings would be undecided (within on the
+          estimate, its 95 % bound past the allowance: :attr:`Verdict.undecided`): a trim
+          then would correct noise, a longer average may prove it, or
+        - any other run is not ready and the window has slid a whole window's length since
+          it filled (``revolutions_seen`` at least twice ``window_revs``): a reading still
+          held by its phase then will not settle by waiting, averaging more tightens it.
+          Before that, the revolutions of the speed settling slide out and the reading may
+          settle as the run goes on.
+
+        None while a reading is short of the window or not steady (more time helps, or
+        nothing does), when a wider window cannot be had, and otherwise. Once widened, the
+        run's readings are kept only when they fill the new window (:meth:`settled`).
 
         Parameters
         ----------
@@ -1228,21 +1268,70 @@ class Procedure:
             The revolutions the meter averages at most now.
         revolutions_seen : int
             Every revolution the meter has taken since the run started.
+        window_most : int, default 0
+            The most the meter can hold (0: no limit but :data:`WIDEN_FACTOR_MAX`).
         """
         step = self.step
         if not isinstance(step, Measure) or step.phase != RunPhase.RUNNING:
             return None
-        if self.setup.mode is Mode.AMPLITUDE_ONLY or self.ready(readings):
+        if window_most > 0:
+            self._window_most = window_most
+        if self.setup.mode is Mode.AMPLITUDE_ONLY:
             return None
         most = self.revolutions_most
-        if window_revs >= most or revolutions_seen < 2 * window_revs:
+        if window_revs >= most:
             return None
         if not all(name in readings and readings[name].steady
                    and readings[name].phase_deg is not None
-                   and readings[name].revolutions >= window_revs
+                   and self._window_full(readings[name], window_revs)
                    for name in self.setup.sensors):
             return None
-        return min(2 * window_revs, most)
+        if step.run_kind == RunKind.CHECK:
+            if not self.ready(readings) or not self._check_undecided(
+                    readings, math.sqrt(window_revs / most)):
+                return None
+            self.widened = Widened.VERDICT_UNDECIDED
+        elif self.ready(readings) or revolutions_seen < 2 * window_revs:
+            return None
+        else:
+            self.widened = Widened.PHASE_WIDE
+        self._window_revs = min(2 * window_revs, most)
+        return self._window_revs
+
+    @property
+    def revolutions_target(self) -> int:
+        """The revolutions the current run's readings average before they are kept: what
+        it wants, or the wider window it asked for (:meth:`widen_to`)."""
+        return max(self.revolutions_wanted, self._window_revs)
+
+    def _check_undecided(self, readings: dict[str, Reading], shrink: float) -> bool:
+        """The verdict a check run kept with these readings now would give is undecided
+        (:attr:`Verdict.undecided`), and the longest average would decide it: with every
+        circle ``shrink`` times as wide (one over the square root of the revolutions, the
+        standard error of a mean) the verdict passes. Often the coefficients' own spread
+        holds the bound past the allowance and a longer average would not change it: the
+        run is kept at once. False too when no verdict would come (the run refutes the
+        model, the engine refuses it: the run is kept and says so)."""
+        step = self.step
+        assert isinstance(step, Measure)
+        speeds = [r.speed_rpm for r in readings.values()
+                  if r.speed_rpm is not None and r.speed_rpm > 0]
+        run = Run(step.run_label, tuple(self.on_rotor),
+                  {s: readings[s] for s in self.setup.sensors},
+                  sum(speeds) / len(speeds) if speeds else None, step.run_kind)
+        try:
+            verdict, _ = self._assess([*self.runs, run])
+            if not self._whole_machine(verdict, run).undecided:
+                return False
+            tighter = replace(run, readings={
+                n: replace(r, confidence_radius=r.confidence_radius * shrink,
+                           confidence_deg=_half_width_deg(r.confidence_radius * shrink,
+                                                          r.amplitude))
+                if r.confidence_radius is not None else r for n, r in run.readings.items()})
+            verdict, _ = self._assess([*self.runs, tighter])
+        except (ModelRefuted, GateRefused):
+            return False
+        return self._whole_machine(verdict, tighter).passed
 
     def settled(self, r: Reading) -> bool:
         """One pickup's reading is good enough to keep.
@@ -1261,6 +1350,8 @@ class Procedure:
         """
         if not r.steady or r.revolutions < self.revolutions_wanted:
             return False
+        if self._window_revs and not self._window_full(r, self._window_revs):
+            return False    # widened (widen_to): its readings fill the new window first
         if r.no_tach and self.setup.mode is not Mode.AMPLITUDE_ONLY:
             return False  # the amplitude-only method needs no phase, the others do
         if self.setup.mode is Mode.AMPLITUDE_ONLY:
@@ -1279,7 +1370,7 @@ class Procedure:
         step = self.step
         if isinstance(step, Measure) and step.run_kind == RunKind.CHECK:
             return True
-        if r.revolutions >= self.revolutions_most:
+        if self._window_full(r, self.revolutions_most):
             return True     # averaged as long as a run may: its circle says the rest
         base = self.as_found()
         ref = base.readings.get(r.sensor) if base is not None else None
@@ -1306,7 +1397,7 @@ class Procedure:
         if not readings:
             return 0.0
         revs = min((readings[s].revolutions if s in readings else 0) for s in self.setup.sensors)
-        return max(0.0, min(1.0, revs / self.revolutions_wanted))
+        return max(0.0, min(1.0, revs / self.revolutions_target))
 
     def record(self, readings: dict[str, Reading], speed_rpm: float,
                now_s: float, tach_live: bool = True) -> Run:
@@ -1676,11 +1767,12 @@ class Procedure:
         assert self.model is not None
         self._take_answer(replace(self.model, tap_may_help=False), offer_tap=False)
 
-    def _assess(self) -> tuple[Verdict, Solution]:
+    def _assess(self, runs: list[Run] | None = None) -> tuple[Verdict, Solution]:
+        """Verdict on the last of ``runs`` (None: the runs kept) and the trim still needed."""
+        runs = self.runs if runs is None else runs
         if self.setup.mode is Mode.MODEL_FIRST and not self.fallback and self.model is not None:
-            return self.engine.model_assess(self.setup, self.runs, self.removal,
-                                            self.model.prior)
-        return self.engine.assess(self.setup, self.runs, self.removal)
+            return self.engine.model_assess(self.setup, runs, self.removal, self.model.prior)
+        return self.engine.assess(self.setup, runs, self.removal)
 
     # ---- trials sized from the coast-down (issue #20 item 3) ------------------------------
     def await_trial_sizing(self) -> None:

@@ -1068,11 +1068,12 @@ class TrueturnApp(App):
             self.quit_armed = False
             return
         live = self.tach_live(snap)
-        wider = (proc.widen_to(meter.readings, meter.window_revs, meter.revolutions_fitted)
-                 if live else None)
+        wider = (proc.widen_to(meter.readings, meter.window_revs, meter.revolutions_fitted,
+                               meter.hold_revs) if live else None)
         if wider is not None:
-            # steady over the whole window, the phase not yet within its limit: a sliding
-            # window would not tighten it, a longer one does
+            # steady over the whole window, the phase not yet within its limit (a sliding
+            # window would not tighten it, a longer one does), or a check run's verdict
+            # undecided (its bound shrinks with a longer average)
             self.session.set_meter_window(wider)
         elif proc.ready(meter.readings, live):
             # The run's speed: the mean over the averaged revolutions of its readings.

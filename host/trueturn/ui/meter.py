@@ -50,10 +50,12 @@ class MeterView:
     warnings: list[str] = field(default_factory=list)  # the findings in words
     tach_faults: tuple[str, ...] = ()  # plain words, see :func:`tach_faults`
     findings: list[Finding] = field(default_factory=list)
-    #: the revolutions the readings average at most (the meter's window), and every
-    #: revolution fitted since the run's meter was reset (how long it has been averaging)
+    #: the revolutions the readings average at most (the meter's window), every revolution
+    #: fitted since the run's meter was reset (how long it has been averaging), and the
+    #: longest window the meter can hold
     window_revs: int = 0
     revolutions_fitted: int = 0
+    hold_revs: int = 0
 
     def pickup_warnings(self, sensor: str) -> list[str]:
         """The words of the findings about one pickup (by the finding's pickup, not by
@@ -205,6 +207,7 @@ class MeterAdapter:
         out = MeterView(self.sensors)
         readings = a.readings()  # processes pending revolutions first
         out.window_revs, out.revolutions_fitted = self.max_revs, a.revolutions_fitted
+        out.hold_revs = a.hold_revs
         speed = a.speed_rpm
         out.speed_rpm = speed if math.isfinite(speed) else None
         for r in readings:

@@ -51,6 +51,7 @@ from trueturn.procedure.guide import (
     TapPhase,
     TapTest,
     TooSmallTrial,
+    Widened,
     standstill_basis_words,
     standstill_refusal,
 )
@@ -310,6 +311,8 @@ class RunPanel(ProcedurePanel):
     #: False when it cannot (trueturn.dsp.findings: order_on_mains)
     on_hum: reactive[tuple[tuple[str, bool], ...]] = reactive(())
     fittable: reactive[bool] = reactive(False)  # f: the masses just put on, as fitted (#17)
+    #: why the run averages longer than it wanted (procedure.guide.Procedure.widen_to)
+    widened: reactive[Widened | None] = reactive(None)
 
     def show(self, proc: Procedure | None, snap: Snapshot, ctx: GuideContext) -> None:
         super().show(proc, snap, ctx)
@@ -329,7 +332,8 @@ class RunPanel(ProcedurePanel):
                    if f.code is Code.ORDER_ON_MAINS and f.blocking and f.pickup in sensors]
             self.on_hum = tuple((str(f.pickup), "revolutions_held" in f.details) for f in hum)
             # a 1x next to the hum line is averaged over one beat (dsp.meter)
-            self.revolutions = max([proc.revolutions_wanted] + [
+            self.widened = proc.widened
+            self.revolutions = max([proc.revolutions_target] + [
                 int(f.details["revolutions_needed"]) for f in hum
                 if "revolutions_held" in f.details])
             self.readings = tuple((name, meter.readings.get(name)) for name in sensors)
@@ -348,7 +352,9 @@ class RunPanel(ProcedurePanel):
             mains = [describe(dataclasses.replace(f, pickup=None), brief=True)
                      for r in waiting for f in meter.findings
                      if f.pickup == r.sensor and f.code is Code.ORDER_ON_MAINS and f.blocking]
-            self.not_ready = ((mains or own or [texts.NOT_READY_WHY])[0]) if waiting else ""
+            widened = [texts.WIDENED_WHY[proc.widened]] if proc.widened is not None else []
+            self.not_ready = ((mains or own or widened or [texts.NOT_READY_WHY])[0]
+                              if waiting else "")
 
     def body(self) -> list[str]:
         if self.phase is RunPhase.STOPPED:
@@ -385,7 +391,8 @@ class RunPanel(ProcedurePanel):
             lines = [texts.no_tach_measuring(self.speed_rpm, self.speed_order)]
         else:
             lines = [f"Measuring at {self.units.speed(self.speed_rpm)}; averaging "
-                     f"{self.revolutions} steady revolutions."]
+                     f"{self.revolutions} steady revolutions"
+                     + (f" ({texts.WIDENED_WHY[self.widened]})." if self.widened else ".")]
         for name, r in self.readings:
             if r is None:
                 lines.append(f"  {name}: waiting")

@@ -21,7 +21,14 @@ from trueturn.model.units import (
     vibration_text,
 )
 from trueturn.positions import number_of, position_text
-from trueturn.procedure.guide import Mode, ModelShook, ShrunkTrial, TapOutcome, TapRefusal
+from trueturn.procedure.guide import (
+    Mode,
+    ModelShook,
+    ShrunkTrial,
+    TapOutcome,
+    TapRefusal,
+    Widened,
+)
 
 if TYPE_CHECKING:
     from trueturn.procedure.guide import MassChange
@@ -238,6 +245,12 @@ ENTER_FORCES = "[b]Enter[/b]: I confirm these forces; start the run"
 ENTER_FORCES_DEMO = " (starts the virtual motor)"
 A_NOT_NOW = "[b]a[/b]: not now, go back and inspect the rotor"
 NOT_READY_WHY = "waiting for enough steady revolutions"
+#: why a run averages longer than it wanted (procedure.guide.Widened)
+WIDENED_WHY = {
+    Widened.PHASE_WIDE: "longer: the phase is not yet known to its limit",
+    Widened.VERDICT_UNDECIDED: "longer: the residual is within on the estimate, "
+                               "not yet proven within",
+}
 A_STOP_RUN = ("Stop at once on a warning below. [b]a[/b]: stop this run now (nothing of it is "
               "kept)")
 

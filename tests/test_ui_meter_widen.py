@@ -91,6 +91,15 @@ def test_the_procedure_widens_a_steady_window_and_keeps_the_reading_at_its_end()
     assert not proc.ready(over(most, steady=False))
 
 
+def _at_the_check_run(circle_of_as_found: float) -> tuple[Rig, dict[str, Reading]]:
+    """The bench grinder's two-plane job, run to its first check run: the rig, and the
+    check run's readings with circles of ``circle_of_as_found`` times the as-found 1x."""
+    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+    rig.hands_on()
+    rig.run()                                   # as found
+    return rig, running_the_check_run(rig, circle_of_as_found)
+
+
 def test_an_undecided_check_run_averages_longer_before_its_verdict() -> None:
     # A check run whose residual is within the grade on the estimate but whose 95 % bound
     # reaches past it (ISO 14253-1 decision rule, from memory: conformance is proven only
@@ -98,12 +107,9 @@ def test_an_undecided_check_run_averages_longer_before_its_verdict() -> None:
     # corrects noise. When the longest average would decide it (its circles shrink as one
     # over the square root of the revolutions: the standard error of a mean), its window
     # doubles instead, up to what the meter holds
-    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+    rig, check = _at_the_check_run(0.2)         # within on the estimate, not proven
     proc = rig.proc
-    rig.hands_on()
-    rig.run()                                   # as found
     as_found = proc.runs[0].readings
-    check = running_the_check_run(rig, 0.2)     # within on the estimate, not proven
     wanted = proc.revolutions_wanted
     hold = 600
     assert proc.ready(check)
@@ -133,11 +139,8 @@ def test_a_check_run_a_longer_average_would_not_decide_is_kept_at_once(
         circle_of_as_found: float) -> None:
     # 0.4 of the as-found 1x: undecided, and still so with the circle shrunk to the longest
     # window's (600 revolutions: 0.45 of it); 0.1: proven as it is
-    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+    rig, check = _at_the_check_run(circle_of_as_found)
     proc = rig.proc
-    rig.hands_on()
-    rig.run()                                   # as found
-    check = running_the_check_run(rig, circle_of_as_found)
     wanted = proc.revolutions_wanted
     assert proc.ready(check)
     assert proc.widen_to(check, wanted, wanted, 600) is None
@@ -146,12 +149,9 @@ def test_a_check_run_a_longer_average_would_not_decide_is_kept_at_once(
 def test_a_check_run_clearly_over_the_grade_is_not_averaged_longer() -> None:
     # the estimate itself past the allowance: a longer average would not change the
     # answer, the trim follows at once
-    rig = Rig("bench-grinder", Mode.TWO_PLANE)
+    rig, _ = _at_the_check_run(0.4)
     proc = rig.proc
-    rig.hands_on()
-    rig.run()                                   # as found
     as_found = proc.runs[0].readings
-    running_the_check_run(rig, 0.4)
     wanted = proc.revolutions_wanted
     as_left = {n: with_circle(replace(r, revolutions=wanted), 0.4 * r.amplitude)
                for n, r in as_found.items()}    # the correction did nothing

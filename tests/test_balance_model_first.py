@@ -12,6 +12,7 @@ import pytest
 
 from trueturn.balance.model_first import (
     MAX_RESIDUAL_FRACTION_95,
+    READING_REL_FLOOR,
     CoefficientEstimate,
     Distrust,
     PickupPlacement,
@@ -194,14 +195,17 @@ def test_rls_with_a_flat_prior_is_weighted_least_squares() -> None:
         est.update(u, noisy, radius)
         rows.append(np.concatenate([[1], u]))
         ys.append([noisy["a"], noisy["b"]])
-        sig.append([max(radius[k] / 2.4477, 0.02 * abs(noisy[k])) for k in ("a", "b")])
+        sig.append([max(radius[k] / 2.4477, READING_REL_FLOOR * abs(noisy[k]))
+                    for k in ("a", "b")])
     a = np.array(rows)
     y_all = np.array(ys)
     s_all = np.array(sig)
     for i in range(2):
         w = 1 / s_all[:, i]
         theta, *_ = np.linalg.lstsq(a * w[:, None], y_all[:, i] * w, rcond=None)
-        assert est.theta[i] == pytest.approx(theta, rel=1e-6, abs=1e-9)
+        # the estimate solves the normal equations (information form), which square the
+        # rows' condition number: the two agree to round-off of about 1e-6 here
+        assert est.theta[i] == pytest.approx(theta, rel=1e-5, abs=1e-9)
 
 
 def test_two_plane_correction_matches_thearles_closed_form() -> None:

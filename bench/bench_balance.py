@@ -364,9 +364,6 @@ def kept_reading(response_m_s2: dict[str, complex], speed_rpm: float,
     there as it is (the app's meter widens its window: procedure.guide.Procedure.widen_to).
     """
     names = list(response_m_s2)
-    # the app's meter: the run's revolutions, then its window, then (steady, the phase not
-    # within its limit) the window doubled up to WIDEN_FACTOR_MAX times the run's
-    # revolutions, where the reading is kept as it is (procedure.guide.Procedure.widen_to)
     windows = [REVS_PER_CHECK] if check else [REVS_PER_READING, REVS_METER_WINDOW]
     most = REVS_PER_READING * WIDEN_FACTOR_MAX
     waits_left = 2     # the speed read over the longer window can ask a little more
@@ -747,16 +744,18 @@ def passes_tighter(shop: Shop, runs: list[dict], tolerance: dict, slopes: list[d
     return report.verdict is not None and report.verdict.passed
 
 
-def wider_checks(mains_hz: float) -> list[int]:
-    """The windows a check run whose verdict is undecided is read over next, in turn: the
-    app's meter doubles its window from the run's REVS_PER_CHECK up to WIDEN_FACTOR_MAX
-    times it, at most what the meter holds (dsp.meter.mains_hold_revs)."""
+def wider_checks(mains_hz: float) -> list[tuple[int, float]]:
+    """The windows a check run whose verdict is undecided is read over next, in turn, each
+    with the share of the run's circles the longest window would leave (one over the square
+    root of the revolutions) had the run stopped just before it: the app's meter doubles
+    its window from the run's REVS_PER_CHECK up to WIDEN_FACTOR_MAX times it, at most what
+    the meter holds (dsp.meter.mains_hold_revs; procedure.guide.Procedure.widen_to)."""
     most = min(REVS_PER_CHECK * WIDEN_FACTOR_MAX,
                max(REVS_PER_CHECK, mains_hold_revs(mains_hz)))
     out, revs = [], REVS_PER_CHECK
     while revs < most:
+        out.append((min(2 * revs, most), math.sqrt(revs / most)))
         revs = min(2 * revs, most)
-        out.append(revs)
     return out
 
 
@@ -888,14 +887,11 @@ def classic_after_as_found(shop: Shop, rng: np.random.Generator, runs: list[dict
         if first_reduction is None:
             first_reduction = 1 - shop.true_1x() / before
         check = solved()
-        windows = wider_checks(shop.signals.mains_hz)
-        for now, revs in zip([REVS_PER_CHECK, *windows[:-1]], windows, strict=True):
+        for revs, shrink in wider_checks(shop.signals.mains_hz):
             # the app averages a check run whose verdict is undecided longer before it
-            # keeps it, when the longest average would decide it
-            # (procedure.guide.Procedure.widen_to): a trim would correct noise
+            # keeps it, when the longest average would decide it: a trim would correct noise
             if (check is None or check.verdict is None or not check.verdict.undecided
-                    or not passes_tighter(shop, runs, tolerance, slopes,
-                                          math.sqrt(now / windows[-1]))):
+                    or not passes_tighter(shop, runs, tolerance, slopes, shrink)):
                 break
             longer = shop.read_longer(revs)
             if longer is None:
@@ -1063,13 +1059,11 @@ def model_first_rotor(rng: np.random.Generator, n_planes: int, soft: bool,
             if alarm_level(readings, reference) > DEFAULT_RUNAWAY_FACTOR:
                 stopped = True
                 return on_rotor, False
-            windows = wider_checks(shop.signals.mains_hz)
-            for now, revs in zip([REVS_PER_CHECK, *windows[:-1]], windows, strict=True):
+            for revs, shrink in wider_checks(shop.signals.mains_hz):
                 # an undecided verdict the longest average would decide: the app averages
                 # the check run longer first
-                if not model_undecided(est, readings, on_rotor, math.sqrt(now / windows[-1])):
-                    break
-                longer = shop.read_longer(revs)
+                longer = (shop.read_longer(revs)
+                          if model_undecided(est, readings, on_rotor, shrink) else None)
                 if longer is None:
                     break
                 readings = longer["readings"]

@@ -12,6 +12,7 @@ from dataclasses import replace
 
 import pytest
 
+from trueturn.dsp.averaging import subtended_deg
 from trueturn.dsp.motion import PickupMotion
 from trueturn.model import Reading, Run, RunKind, Verdict, VerdictFlag
 from trueturn.procedure.engine import BalanceEngine
@@ -393,9 +394,7 @@ def running_the_check_run(rig: Rig, circle_of_as_found: float) -> dict[str, Read
 
 def with_circle(r: Reading, radius: float, revolutions: int | None = None) -> Reading:
     """The reading with a 95 % circle of ``radius`` (its phase's half-width to match)."""
-    half_width = (math.degrees(math.asin(radius / r.amplitude)) if radius < r.amplitude
-                  else 180.0)
-    return replace(r, confidence_radius=radius, confidence_deg=half_width,
+    return replace(r, confidence_radius=radius, confidence_deg=subtended_deg(radius, r.amplitude),
                    revolutions=r.revolutions if revolutions is None else revolutions)
 
 

@@ -47,6 +47,7 @@ from trueturn.angles import angle_difference_deg, wrap_deg
 from trueturn.balance.model_first import Distrust
 from trueturn.balance.support_fit import StandstillMode
 from trueturn.balance.trial_mass import redo_below_stopped
+from trueturn.dsp.averaging import subtended_deg
 from trueturn.model import (
     Bearing,
     Correction,
@@ -167,12 +168,6 @@ class Widened(str, Enum):
 
 DEFAULT_PHASE_LIMIT_DEG = 5.0  # the DSP's default phase confidence for a steady reading
 SMALL_VECTOR_FRACTION = 0.05  # below 5 % of the as-found 1x, a tight circle is enough
-
-
-def _half_width_deg(radius: float, amplitude: float) -> float:
-    """The phase half-width a 95 % circle of ``radius`` subtends at ``amplitude`` (180
-    degrees once the circle holds the origin)."""
-    return math.degrees(math.asin(radius / amplitude)) if radius < amplitude else 180.0
 
 
 def runaway_reference(amplitude: float, confidence_radius: float | None) -> float:
@@ -1325,8 +1320,8 @@ class Procedure:
                 return False
             tighter = replace(run, readings={
                 n: replace(r, confidence_radius=r.confidence_radius * shrink,
-                           confidence_deg=_half_width_deg(r.confidence_radius * shrink,
-                                                          r.amplitude))
+                           confidence_deg=subtended_deg(r.confidence_radius * shrink,
+                                                        r.amplitude))
                 if r.confidence_radius is not None else r for n, r in run.readings.items()})
             verdict, _ = self._assess([*self.runs, tighter])
         except (ModelRefuted, GateRefused):

@@ -352,9 +352,7 @@ class RunPanel(ProcedurePanel):
             mains = [describe(dataclasses.replace(f, pickup=None), brief=True)
                      for r in waiting for f in meter.findings
                      if f.pickup == r.sensor and f.code is Code.ORDER_ON_MAINS and f.blocking]
-            widened = [texts.WIDENED_WHY[proc.widened]] if proc.widened is not None else []
-            self.not_ready = ((mains or own or widened or [texts.NOT_READY_WHY])[0]
-                              if waiting else "")
+            self.not_ready = ((mains or own or [texts.NOT_READY_WHY])[0]) if waiting else ""
 
     def body(self) -> list[str]:
         if self.phase is RunPhase.STOPPED:

@@ -99,6 +99,15 @@ REFUTE_TAIL_PROBABILITY = 1e-3
 #: plane-checks with 0.02 (93.0 %, nine of the twelve rotors that passed it soft-mounted),
 #: in 364 of 382 with 0.03 (95.3 %))
 READING_REL_FLOOR = 0.03
+#: a mass as placed differs from the mass asked for: weighed on a kitchen scale to about 2 %
+#: of a few grams, set at its angle within about 2 degrees of a mark at the radius
+#: (common practice, from memory; the bench draws the same errors, bench/bench_balance.py
+#: MASS_ERR, ANGLE_ERR_DEG). A run's reading then differs from what the masses asked for
+#: would give by the masses' own effect times that error: with the correction run serving
+#: as the trial, a correction placed 2 % heavy makes the coefficient 2 % large and the
+#: residual 2 % small, which no reading's circle shows. 1 sigma, relative, and degrees
+PLACED_MASS_REL_SIGMA = 0.02
+PLACED_ANGLE_SIGMA_DEG = 2.0
 #: relative model error of the support model fitted to a whole sweep
 #: (:mod:`trueturn.balance.support_fit`), 1 sigma per coefficient: what the fit's own
 #: covariance does not hold (a mount's nonlinearity, supports not along the pickups).
@@ -1045,7 +1054,9 @@ class CoefficientEstimate:
     (the Kalman filter of a constant parameter vector, kept in information form:
     ``P^-1 += phi* phi^T / s2``, ``P^-1 theta += phi* y / s2``; the same estimate as the
     gain form ``K = P phi* / (phi^T P phi* + s2)`` without its round-off when the prior is
-    flat).
+    flat). ``s2`` is the reading's complex variance ``E|e|^2``, twice its per-axis sigma
+    squared, so ``P`` is a complex covariance ``E[d d^H]`` as the prior's is and as the
+    Monte Carlo draws (:meth:`residual_draws_g`) take it.
 
     References
     ----------
@@ -1057,6 +1068,11 @@ class CoefficientEstimate:
 
     sensors: tuple[str, ...]
     n_planes: int
+    #: how far a placed mass may differ from the one asked for, 1 sigma (relative, and
+    #: degrees): :data:`PLACED_MASS_REL_SIGMA`, :data:`PLACED_ANGLE_SIGMA_DEG`; 0 for a rig
+    #: that places its masses exactly
+    placed_mass_rel_sigma: float = PLACED_MASS_REL_SIGMA
+    placed_angle_sigma_deg: float = PLACED_ANGLE_SIGMA_DEG
     theta: np.ndarray = field(init=False)             # pickups x (1 + planes)
     covariance: np.ndarray = field(init=False)        # pickups x (1+n) x (1+n)
     runs_used: int = field(init=False, default=0)
@@ -1134,7 +1150,8 @@ class CoefficientEstimate:
             The 1x per pickup (phasors, reading units).
         confidence_95 : mapping of str to float or None
             Each reading's 95 % circle radius (None: :data:`READING_REL_FLOOR` of the
-            reading alone).
+            reading alone). The masses' placement adds its own variance
+            (:meth:`_placement_variance`).
 
         Raises
         ------
@@ -1150,26 +1167,58 @@ class CoefficientEstimate:
         if u.shape != (self.n_planes,):
             raise ValueError(f"masses_g needs {self.n_planes} entries, got {u.shape}")
         phi = np.concatenate([[1.0 + 0j], u])
-        sigmas = {}
-        for name in self.sensors:
+        placed = self._placement_variance(u, readings)
+        # each reading's complex variance E|e|^2: twice its per-axis sigma squared (the
+        # prior's covariance is a complex covariance too, E[d d^H], so both weigh alike)
+        variances = {}
+        for i, name in enumerate(self.sensors):
             radius = confidence_95.get(name) or 0.0
-            sigmas[name] = max(radius / CIRCLE95, READING_REL_FLOOR * abs(complex(readings[name])),
-                               1e-300)
+            reading = max(radius / CIRCLE95, READING_REL_FLOOR * abs(complex(readings[name])))
+            variances[name] = max(2.0 * (reading**2 + placed[i]), 1e-300)
         if self._has_prior and not self.prior_refuted and self.runs_used >= 1:
-            self._test_innovation(phi, readings, sigmas)
+            self._test_innovation(phi, readings, variances)
         for i, name in enumerate(self.sensors):
             y = complex(readings[name])
-            sigma = sigmas[name]
+            s2 = variances[name]
             # y = phi^T theta + e: information += conj(phi) phi^T / s2, moment += conj(phi) y / s2
-            self._information[i] += np.outer(phi.conj(), phi) / sigma**2
-            self._moment[i] += phi.conj() * y / sigma**2
+            self._information[i] += np.outer(phi.conj(), phi) / s2
+            self._moment[i] += phi.conj() * y / s2
         self._solve()
         self.runs_used += 1
 
+    def _placement_variance(self, u: np.ndarray, readings: Mapping[str, complex]) -> np.ndarray:
+        """Per pickup, the variance (per axis) a run's reading carries from the masses being
+        placed as a person places them (:attr:`placed_mass_rel_sigma`,
+        :attr:`placed_angle_sigma_deg`): each plane's effect ``H_ij u_j`` times its relative
+        error, the errors of the planes independent (the effective-variance treatment of
+        errors in the inputs). The effects come from the estimate so far; while the runs
+        alone do not yet tell them and no prior does, from the reading's change from the
+        as-found 1x.
+
+        References
+        ----------
+        .. [1] Orear, J., "Least squares when both variables have uncertainties",
+           *Am. J. Phys.* 50(10), 1982 (the effective variance method; from memory).
+        """
+        rel2 = self.placed_mass_rel_sigma**2 + math.radians(self.placed_angle_sigma_deg) ** 2
+        if not np.any(u):
+            return np.zeros(len(self.sensors))
+        known = (self._has_prior and not self.prior_refuted) or self.determined_by_runs
+        out = np.empty(len(self.sensors))
+        for i, name in enumerate(self.sensors):
+            if known:
+                effect2 = float(np.sum(np.abs(self.theta[i, 1:] * u) ** 2))
+            else:
+                effect2 = abs(complex(readings[name]) - complex(self.theta[i, 0])) ** 2
+            # a circular complex error of mean square rel2 |effect|^2: half of it per axis
+            out[i] = 0.5 * rel2 * effect2
+        return out
+
     def _test_innovation(self, phi: np.ndarray, readings: Mapping[str, complex],
-                         sigmas: Mapping[str, float]) -> None:
+                         variances: Mapping[str, float]) -> None:
         """Does this run's reading fit what the estimate so far predicts? Normalised
-        innovation squared ``|y - phi^T theta|^2 / (s^2 + phi^H P phi)``: for a circular
+        innovation squared ``|y - phi^T theta|^2 / (s2 + phi^H P phi)`` (``s2`` the
+        reading's complex variance ``E|e|^2``, ``P`` the estimate's complex covariance): for a circular
         complex Gaussian it is exponentially distributed, so a value beyond
         ``ln(1 / REFUTE_TAIL_PROBABILITY)`` refutes the prior (Bar-Shalom, Li and
         Kirubarajan, *Estimation with Applications to Tracking and Navigation*, 2001,
@@ -1178,7 +1227,7 @@ class CoefficientEstimate:
         for i, name in enumerate(self.sensors):
             predicted = complex(phi @ self.theta[i])
             spread = float(np.real(phi.conj() @ self.covariance[i] @ phi))
-            var = sigmas[name] ** 2 + max(spread, 0.0)
+            var = variances[name] + max(spread, 0.0)
             surprise = abs(complex(readings[name]) - predicted) ** 2 / var
             if surprise > limit:
                 self.prior_refuted = True

@@ -94,10 +94,12 @@ REFUTE_TAIL_PROBABILITY = 1e-3
 #: readings taken runs apart differ by more than their scatter (speed wander of +/-0.5 %
 #: moves the 1x by ~1-2 %, mounts are mildly nonlinear: the as-found run and a check run
 #: drive a soft mount at very different amplitudes): a floor on each reading's relative 1
-#: sigma (our choice, measured by bench/bench_balance.py [model first], two planes, seed
-#: 2027, 2026-12-04: the check verdict's 95 % bound held the true residual in 361 of 388
-#: plane-checks with 0.02 (93.0 %, nine of the twelve rotors that passed it soft-mounted),
-#: in 364 of 382 with 0.03 (95.3 %))
+#: sigma (our choice, measured by bench/bench_balance.py [model first], 200 rotors each,
+#: seeds 2026 (one plane) and 2027 (two planes), 2026-12-04, with the runs weighed by their
+#: complex variance and the placement's own error: the check verdict's 95 % bound missed the
+#: true residual in 13 of 172 one-plane and 17 of 392 two-plane plane-checks with 0.02, in
+#: 11 of 172 and 14 of 392 with 0.03 (mostly soft mounts, driven at very different
+#: amplitudes as found and at the check); medians and said-within-wrongly (0) the same)
 READING_REL_FLOOR = 0.03
 #: a mass as placed differs from the mass asked for: weighed on a kitchen scale to about 2 %
 #: of a few grams, set at its angle within about 2 degrees of a mark at the radius

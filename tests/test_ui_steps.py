@@ -16,6 +16,7 @@ from dataclasses import replace
 from textual.app import App, ComposeResult
 from textual.widgets import ContentSwitcher
 
+from test_ui_meter_widen import _at_the_check_run
 from test_ui_procedure import Rig, _HugeTrialEngine, _TinyTrialEngine
 from test_ui_resume_model_first import (
     _shake_at_the_model_check,
@@ -26,12 +27,12 @@ from trueturn.angles import wrap_deg
 from trueturn.dsp.findings import Code, Finding
 from trueturn.model import VerdictFlag
 from trueturn.procedure.engine import BalanceEngine
-from trueturn.procedure.guide import Mode, Procedure, RunPhase
+from trueturn.procedure.guide import Mode, Procedure, RunPhase, Widened
 from trueturn.ui.machine import setup_from_profile
 from trueturn.ui.meter import MeterView as MeterReadings
 from trueturn.ui.session import Snapshot
 from trueturn.ui.steps import GuideContext, GuideView, MessageLine, StepPanel, panel_for
-from trueturn.ui.texts import VERDICT_FLAG_WORDS
+from trueturn.ui.texts import VERDICT_FLAG_WORDS, WIDENED_WHY
 
 SIZE = (80, 24)
 
@@ -246,3 +247,19 @@ def test_the_status_strip_names_a_fitted_tach_in_an_amplitude_only_job() -> None
     rig.coast(1740.0)
     rig.rest(UNTRUSTED_TACH_HOLD_S + 5.0)
     assert "STANDSTILL[/] (tach not relied on; pickups quiet" in strip()
+
+
+def test_a_run_that_averages_longer_says_how_long_and_why() -> None:
+    # an undecided check run the longest average would decide (procedure.guide.widen_to):
+    # the run panel counts to the wider window and names why, in the words of
+    # texts.WIDENED_WHY; before it widens, neither
+    rig, check = _at_the_check_run(0.2)
+    proc = rig.proc
+    wanted = proc.revolutions_wanted
+    meter = MeterReadings(rig.setup.sensors, speed_rpm=rig.setup.speed_rpm, readings=check)
+    before = " ".join(shown(rig, meter)["text"].split())
+    assert f"averaging {wanted} steady revolutions." in before
+    assert proc.widen_to(check, wanted, wanted, 600) == 2 * wanted
+    after = " ".join(shown(rig, meter)["text"].split())
+    why = WIDENED_WHY[Widened.VERDICT_UNDECIDED]
+    assert f"averaging {2 * wanted} steady revolutions ({why})." in after

@@ -17,6 +17,7 @@ gives the very correction and verdict the uninterrupted procedure gives (to 1e-9
 
 from __future__ import annotations
 
+import math
 from dataclasses import replace
 from pathlib import Path
 from typing import Any
@@ -28,7 +29,12 @@ from test_jobs_keeper import follow
 from test_procedure_model_first import coast_down_resonances
 from test_ui_procedure import Rig
 from trueturn.angles import phasor
-from trueturn.balance.model_first import CIRCLE95, READING_REL_FLOOR
+from trueturn.balance.model_first import (
+    CIRCLE95,
+    PLACED_ANGLE_SIGMA_DEG,
+    PLACED_MASS_REL_SIGMA,
+    READING_REL_FLOOR,
+)
 from trueturn.dsp.findings import Code, Finding
 from trueturn.dsp.severity import NoSeverity, Severity, Zone
 from trueturn.dsp.unbalance import failing_rules
@@ -576,17 +582,22 @@ def test_a_trim_check_stopped_by_the_alarm_refutes_the_model_after_its_kept_runs
 def posterior(prior_h: np.ndarray, prior_cov: np.ndarray,
               runs: list[tuple[np.ndarray, complex, float]]) -> np.ndarray:
     """Independent: the Gaussian posterior mean of ``[b, h]`` (flat prior on the as-found
-    1x ``b``, ``N(prior_h, prior_cov)`` on the coefficients) from readings
-    ``y = phi^T [b, h] + e``, ``e`` circular with per-part sigma ``s``: information
-    ``P0^-1 + sum conj(phi) phi^T / s^2`` (Ljung 1999, §11.2; from memory)."""
+    1x ``b``, ``N(prior_h, prior_cov)`` on the coefficients, ``prior_cov`` a complex
+    covariance) from readings ``y = phi^T [b, h] + e``, ``e`` circular with per-part sigma
+    ``s``, so ``E|e|^2 = 2 s^2``, and the masses' placement error on top (2 % and 2 degrees
+    of each plane's effect, the prior's before the check run: Orear 1982's effective
+    variance): information ``P0^-1 + sum conj(phi) phi^T / E|e|^2`` (Ljung 1999, §11.2;
+    from memory)."""
     n = 1 + len(prior_h)
     info = np.zeros((n, n), dtype=complex)
     moment = np.zeros(n, dtype=complex)
     info[1:, 1:] = np.linalg.inv(prior_cov)
     moment[1:] = info[1:, 1:] @ prior_h
+    placed_rel2 = PLACED_MASS_REL_SIGMA**2 + math.radians(PLACED_ANGLE_SIGMA_DEG) ** 2
     for phi, y, s in runs:
-        info += np.outer(phi.conj(), phi) / s**2
-        moment += phi.conj() * y / s**2
+        e2 = 2 * s**2 + placed_rel2 * float(np.sum(np.abs(prior_h * phi[1:]) ** 2))
+        info += np.outer(phi.conj(), phi) / e2
+        moment += phi.conj() * y / e2
     return np.linalg.solve(info, moment)
 
 

@@ -1043,6 +1043,12 @@ def _from_draws(pickups: Sequence[PickupPlacement], nominal: np.ndarray, drawn: 
                               phase95, mag95, False, residual95, tuple(dict.fromkeys(distrust)))
 
 
+def _reading_sigma(radius_95: float | None, reading: complex) -> float:
+    """A reading's 1 sigma per axis: its 95 % circle's radius over :data:`CIRCLE95`, at
+    least :data:`READING_REL_FLOOR` of the reading (None: the floor alone)."""
+    return max((radius_95 or 0.0) / CIRCLE95, READING_REL_FLOOR * abs(complex(reading)))
+
+
 @dataclass
 class CoefficientEstimate:
     """Influence coefficients and the as-found 1x, refined run by run (recursive least
@@ -1172,11 +1178,10 @@ class CoefficientEstimate:
         placed = self._placement_variance(u, readings)
         # each reading's complex variance E|e|^2: twice its per-axis sigma squared (the
         # prior's covariance is a complex covariance too, E[d d^H], so both weigh alike)
-        variances = {}
-        for i, name in enumerate(self.sensors):
-            radius = confidence_95.get(name) or 0.0
-            reading = max(radius / CIRCLE95, READING_REL_FLOOR * abs(complex(readings[name])))
-            variances[name] = max(2.0 * (reading**2 + placed[i]), 1e-300)
+        variances = {
+            name: max(2.0 * _reading_sigma(confidence_95.get(name), readings[name]) ** 2
+                      + placed[i], 1e-300)
+            for i, name in enumerate(self.sensors)}
         if self._has_prior and not self.prior_refuted and self.runs_used >= 1:
             self._test_innovation(phi, readings, variances)
         for i, name in enumerate(self.sensors):
@@ -1189,7 +1194,7 @@ class CoefficientEstimate:
         self.runs_used += 1
 
     def _placement_variance(self, u: np.ndarray, readings: Mapping[str, complex]) -> np.ndarray:
-        """Per pickup, the variance (per axis) a run's reading carries from the masses being
+        """Per pickup, the complex variance a run's reading carries from the masses being
         placed as a person places them (:attr:`placed_mass_rel_sigma`,
         :attr:`placed_angle_sigma_deg`): each plane's effect ``H_ij u_j`` times its relative
         error, the errors of the planes independent (the effective-variance treatment of
@@ -1212,16 +1217,16 @@ class CoefficientEstimate:
                 effect2 = float(np.sum(np.abs(self.theta[i, 1:] * u) ** 2))
             else:
                 effect2 = abs(complex(readings[name]) - complex(self.theta[i, 0])) ** 2
-            # a circular complex error of mean square rel2 |effect|^2: half of it per axis
-            out[i] = 0.5 * rel2 * effect2
+            # a circular complex error of mean square rel2 |effect|^2
+            out[i] = rel2 * effect2
         return out
 
     def _test_innovation(self, phi: np.ndarray, readings: Mapping[str, complex],
                          variances: Mapping[str, float]) -> None:
         """Does this run's reading fit what the estimate so far predicts? Normalised
         innovation squared ``|y - phi^T theta|^2 / (s2 + phi^H P phi)`` (``s2`` the
-        reading's complex variance ``E|e|^2``, ``P`` the estimate's complex covariance): for a circular
-        complex Gaussian it is exponentially distributed, so a value beyond
+        reading's complex variance ``E|e|^2``, ``P`` the estimate's complex covariance):
+        for a circular complex Gaussian it is exponentially distributed, so a value beyond
         ``ln(1 / REFUTE_TAIL_PROBABILITY)`` refutes the prior (Bar-Shalom, Li and
         Kirubarajan, *Estimation with Applications to Tracking and Navigation*, 2001,
         §5.4, filter consistency by the normalised innovation; from memory)."""
@@ -1313,8 +1318,8 @@ class CoefficientEstimate:
             roots.append(v * np.sqrt(np.maximum(w, 0.0))[None, :])
         z = (rng.normal(size=(draws, n_s, n)) + 1j * rng.normal(size=(draws, n_s, n))) / math.sqrt(2)
         theta = self.theta[None] + np.einsum("ijk,dik->dij", np.array(roots), z)
-        sigma = np.array([max((confidence_95.get(s) or 0.0) / CIRCLE95,
-                              READING_REL_FLOOR * abs(y[i])) for i, s in enumerate(self.sensors)])
+        sigma = np.array([_reading_sigma(confidence_95.get(s), y[i])
+                          for i, s in enumerate(self.sensors)])
         yd = y[None] + sigma[None] * (rng.normal(size=(draws, n_s)) + 1j * rng.normal(size=(draws, n_s)))
         drawn = np.array([np.linalg.lstsq(theta[d, :, 1:], -yd[d], rcond=None)[0]
                           for d in range(draws)])
